@@ -1,0 +1,109 @@
+#pragma once
+//! The resolved case: every value in SI units, every default filled in.
+#include <map>
+#include <optional>
+#include <stdexcept>
+#include <string>
+#include <vector>
+
+#include "models/tissues.hpp"
+
+namespace thermorph {
+
+//! Bad input: the message names file, line, column, key path, value and what is allowed. Exit code 2.
+class CaseError : public std::runtime_error {
+ public:
+  using std::runtime_error::runtime_error;
+};
+
+enum class Shape { Sphere, Cylinder, Cone, Plate };
+enum class EndCondition { Exposed, Insulated };
+enum class InitialCondition { Temperature, Steady };
+
+const char* shapeName(Shape shape);
+
+//! One concentric tissue layer, inside out.
+struct LayerSpec {
+  std::string tissue;
+  double thickness = 0.0;  //!< radial thickness [m]; a cylinder's or sphere's first layer: its radius
+  int cells = 1;           //!< radial cells in this layer
+};
+
+//! Optional fur or feather coat outside the outermost tissue layer.
+struct CoatSpec {
+  std::string material;
+  double thickness = 0.0;  //!< [m]
+  int cells = 1;
+};
+
+struct SurfaceSpec {
+  EndCondition ends = EndCondition::Exposed;            //!< cylinder and cone end faces
+  std::optional<double> convectionCoefficient;          //!< per-segment fixed coefficient [W/(m2 K)]
+};
+
+//! One body segment: geometry, layers, coat and surface.
+struct SegmentSpec {
+  std::string name;
+  Shape shape = Shape::Cylinder;
+  double length = 0.0;          //!< [m] (cylinder, cone, plate)
+  double radiusProximal = 0.0;  //!< outer tissue radius at the proximal end [m] (cone; cylinder and sphere: radius)
+  double radiusDistal = 0.0;    //!< outer tissue radius at the distal end [m] (cone)
+  double width = 0.0;           //!< [m] (plate)
+  int axialCells = 1;
+  std::vector<LayerSpec> layers;
+  std::optional<CoatSpec> coat;
+  SurfaceSpec surface;
+
+  //! Outer tissue radius or half-thickness (coat excluded) [m].
+  double tissueRadius() const;
+};
+
+struct RunSpec {
+  double duration = 3600.0;        //!< [s]
+  double outputInterval = 60.0;    //!< [s]
+  InitialCondition initial = InitialCondition::Temperature;
+  double initialTemperature = 310.15;  //!< [K]
+  double rtol = 1e-6;              //!< relative tolerance [1]
+  double atol = 1e-6;              //!< absolute tolerance on temperatures [K]
+  double maxStep = 0.0;            //!< maximum step [s] (0: no limit)
+};
+
+struct CirculationSpec {
+  double bloodDensity = 1050.0;       //!< [kg/m3]
+  double bloodSpecificHeat = 3617.0;  //!< [J/(kg K)]
+  std::optional<double> fixedArterialTemperature;  //!< pins the arterial supply [K]
+  double q10Reference = 310.15;       //!< reference temperature of tissue Q10 [K]
+};
+
+struct EnvironmentSpec {
+  double temperature = 293.15;            //!< medium temperature [K]
+  double convectionCoefficient = 10.0;    //!< fixed convection coefficient [W/(m2 K)]
+};
+
+struct Case {
+  std::string title;
+  std::string sourceFile;  //!< path of the case file
+  RunSpec run;
+  CirculationSpec circulation;
+  std::map<std::string, TissueProperties> tissues;  //!< built-ins merged with [tissues.*]
+  std::vector<SegmentSpec> segments;
+  EnvironmentSpec environment;
+};
+
+//! Upper limit on the total number of nodes in one case (memory and run time guard).
+inline constexpr long maxCells = 2'000'000;
+
+//! Load and validate a case file, applying `--set KEY=VALUE` overrides in order. Throws CaseError.
+Case loadCase(const std::string& path, const std::vector<std::string>& overrides = {});
+
+//! Load from TOML text (tests); `sourceName` is used in messages.
+Case loadCaseFromString(const std::string& text, const std::string& sourceName,
+                        const std::vector<std::string>& overrides = {});
+
+//! The fully resolved case as TOML text (SI values, every default filled in).
+std::string resolvedCaseToml(const Case& c);
+
+//! Markdown reference of every case key (generated from the schema).
+std::string caseReferenceMarkdown();
+
+}  // namespace thermorph

@@ -1,0 +1,275 @@
+#include "models/media.hpp"
+
+#include <algorithm>
+#include <array>
+#include <cmath>
+#include <cstddef>
+#include <mutex>
+#include <set>
+#include <span>
+#include <stdexcept>
+
+#include <fmt/format.h>
+
+namespace thermorph {
+
+// ---- validity warnings ------------------------------------------------------------
+
+namespace {
+struct WarningLog {
+  std::mutex mutex;
+  std::set<std::string, std::less<>> issued;  // "correlation|parameter"
+  std::vector<std::string> pending;
+};
+WarningLog& warningLog() {
+  static WarningLog log;
+  return log;
+}
+}  // namespace
+
+bool checkValidity(const ValidityRange& range, double value) {
+  if (range.contains(value)) return false;
+  std::string key = fmt::format("{}|{}", range.correlation, range.parameter);
+  WarningLog& log = warningLog();
+  std::lock_guard lock(log.mutex);
+  if (log.issued.insert(std::move(key)).second) {
+    const std::string unit = range.unit.empty() ? std::string() : fmt::format(" {}", range.unit);
+    log.pending.push_back(fmt::format("{}: {} = {:.6g}{} outside the validity range [{:.6g}, {:.6g}]{}", range.correlation,
+                                      range.parameter, value, unit, range.min, range.max, unit));
+  }
+  return true;
+}
+
+std::vector<std::string> takeValidityWarnings() {
+  WarningLog& log = warningLog();
+  std::lock_guard lock(log.mutex);
+  std::vector<std::string> out;
+  out.swap(log.pending);
+  return out;
+}
+
+void resetValidityWarnings() {
+  WarningLog& log = warningLog();
+  std::lock_guard lock(log.mutex);
+  log.issued.clear();
+  log.pending.clear();
+}
+
+// ---- table interpolation --------------------------------------------------------
+
+namespace {
+
+//! Value of a C1 cubic Hermite interpolant through (x, y) at xq [units of y];
+//! nodal slopes are those of the parabola through each node and its neighbours.
+//! x strictly increasing, x and y of equal length >= 3; xq inside [x.front(), x.back()].
+double hermiteInterpolate(std::span<const double> x, std::span<const double> y, double xq) {
+  const std::size_t n = x.size();
+  std::size_t i = static_cast<std::size_t>(std::upper_bound(x.begin(), x.end(), xq) - x.begin());
+  i = std::clamp<std::size_t>(i, 1, n - 1) - 1;  // interval [x_i, x_{i+1}]
+  auto secant = [&](std::size_t j) { return (y[j + 1] - y[j]) / (x[j + 1] - x[j]); };
+  auto slope = [&](std::size_t j) {
+    if (j == 0) {
+      const double h0 = x[1] - x[0], h1 = x[2] - x[1];
+      return secant(0) + (secant(0) - secant(1)) * h0 / (h0 + h1);
+    }
+    if (j == n - 1) {
+      const double h0 = x[n - 2] - x[n - 3], h1 = x[n - 1] - x[n - 2];
+      return secant(n - 2) + (secant(n - 2) - secant(n - 3)) * h1 / (h0 + h1);
+    }
+    const double hl = x[j] - x[j - 1], hr = x[j + 1] - x[j];
+    return (secant(j - 1) * hr + secant(j) * hl) / (hl + hr);
+  };
+  const double h = x[i + 1] - x[i];
+  const double t = (xq - x[i]) / h;
+  const double t2 = t * t, t3 = t2 * t;
+  return (2 * t3 - 3 * t2 + 1) * y[i] + (t3 - 2 * t2 + t) * h * slope(i) + (-2 * t3 + 3 * t2) * y[i + 1] +
+         (t3 - t2) * h * slope(i + 1);
+}
+
+//! Clamp `value` into `range`, recording a warning and setting `clamped` when it was outside.
+double clampToRange(const ValidityRange& range, double value, bool& clamped) {
+  if (checkValidity(range, value)) {
+    clamped = true;
+    return std::isnan(value) ? range.min : std::clamp(value, range.min, range.max);
+  }
+  return value;
+}
+
+// Incropera, DeWitt, Bergman & Lavine, Fundamentals of Heat and Mass Transfer, 6th ed.,
+// Table A.4, dry air at atmospheric pressure. Rows 250, 300, 350 K (nu, k, Pr) and rho, cp, mu
+// at 300 K as checked in shared/REFERENCES.md; the rest from memory (consistent with
+// nu = mu/rho and Pr = mu cp/k to 0.1 %, and with Sutherland's law to 0.2 %).
+// The densities equal the ideal gas at 1.000e5 Pa.
+constexpr std::array<double, 5> kAirT{200, 250, 300, 350, 400};                          // K
+constexpr std::array<double, 5> kAirRho{1.7458, 1.3947, 1.1614, 0.9950, 0.8711};         // kg/m3
+constexpr std::array<double, 5> kAirCp{1007, 1006, 1007, 1009, 1014};                    // J/(kg K)
+constexpr std::array<double, 5> kAirMu{132.5e-7, 159.6e-7, 184.6e-7, 208.2e-7, 230.1e-7};  // Pa s
+constexpr std::array<double, 5> kAirK{0.0181, 0.0223, 0.0263, 0.0300, 0.0338};           // W/(m K)
+
+// Incropera et al. 6th ed., Table A.6, saturated liquid water. Rows 280 and 300 K (cp, mu, k)
+// and 310 K (cp, mu, k) as checked in shared/REFERENCES.md; other rows from memory.
+constexpr std::array<double, 22> kWaterT{273.15, 275, 280, 285, 290, 295, 300, 305, 310, 315, 320,
+                                         325,    330, 335, 340, 345, 350, 355, 360, 365, 370, 373.15};  // K
+constexpr std::array<double, 22> kWaterCp{4217, 4211, 4198, 4189, 4184, 4181, 4179, 4178, 4178, 4179, 4180,
+                                          4182, 4184, 4186, 4188, 4191, 4195, 4199, 4203, 4209, 4214, 4217};
+constexpr std::array<double, 22> kWaterMu{1750e-6, 1652e-6, 1422e-6, 1225e-6, 1080e-6, 959e-6, 855e-6, 769e-6,
+                                          695e-6,  631e-6,  577e-6,  528e-6,  489e-6,  453e-6, 420e-6, 389e-6,
+                                          365e-6,  343e-6,  324e-6,  306e-6,  289e-6,  279e-6};
+constexpr std::array<double, 22> kWaterK{0.569, 0.574, 0.582, 0.590, 0.598, 0.606, 0.613, 0.620,
+                                         0.628, 0.634, 0.640, 0.645, 0.650, 0.656, 0.660, 0.664,
+                                         0.668, 0.671, 0.674, 0.677, 0.679, 0.680};
+
+//! Fresh-water density and its temperature derivative, Kell (1975), J. Chem. Eng. Data 20:97:
+//! rho = (999.83952 + 16.945176 t - 7.9870401e-3 t^2 - 46.170461e-6 t^3 + 105.56302e-9 t^4
+//!        - 280.54253e-12 t^5) / (1 + 16.879850e-3 t), t in degC, 0-150 degC.
+struct DensityAndSlope {
+  double rho;   // kg/m3
+  double drho;  // kg/(m3 K)
+};
+DensityAndSlope kellDensity(double temperatureK) {
+  const double t = temperatureK - kZeroCelsius;
+  const double num = 999.83952 + t * (16.945176 + t * (-7.9870401e-3 + t * (-46.170461e-6 + t * (105.56302e-9 + t * -280.54253e-12))));
+  const double dnum = 16.945176 + t * (2 * -7.9870401e-3 + t * (3 * -46.170461e-6 + t * (4 * 105.56302e-9 + t * 5 * -280.54253e-12)));
+  const double den = 1.0 + 16.879850e-3 * t;
+  const double dden = 16.879850e-3;
+  return {num / den, (dnum * den - num * dden) / (den * den)};
+}
+
+//! Sea-water density, Sharqawy et al. (2010) eq. 8 (after Isdale & Morris 1972), t in degC,
+//! S in kg/kg, 0-180 degC, 0-0.16 kg/kg, +-0.1 %:
+//! rho_w = 999.9 + 2.034e-2 t - 6.162e-3 t^2 + 2.261e-5 t^3 - 4.657e-8 t^4,
+//! rho = rho_w + S (802.0 - 2.001 t + 1.677e-2 t^2 - 3.060e-5 t^3 - 1.613e-5 S t^2).
+DensityAndSlope sharqawyDensity(double temperatureK, double salinity) {
+  const double t = temperatureK - kZeroCelsius, s = salinity;
+  const double rhoW = 999.9 + t * (2.034e-2 + t * (-6.162e-3 + t * (2.261e-5 + t * -4.657e-8)));
+  const double drhoW = 2.034e-2 + t * (2 * -6.162e-3 + t * (3 * 2.261e-5 + t * 4 * -4.657e-8));
+  const double salt = s * (802.0 + t * (-2.001 + t * (1.677e-2 + t * -3.060e-5)) - 1.613e-5 * s * t * t);
+  const double dsalt = s * (-2.001 + t * (2 * 1.677e-2 + t * 3 * -3.060e-5) - 2 * 1.613e-5 * s * t);
+  return {rhoW + salt, drhoW + dsalt};
+}
+
+FluidProperties airProperties(double temperatureK) {
+  FluidProperties p;
+  const double t = clampToRange(kAirTableRange, temperatureK, p.outsideValidity);
+  p.density = hermiteInterpolate(kAirT, kAirRho, t);
+  p.specificHeat = hermiteInterpolate(kAirT, kAirCp, t);
+  p.viscosity = hermiteInterpolate(kAirT, kAirMu, t);
+  p.conductivity = hermiteInterpolate(kAirT, kAirK, t);
+  p.expansion = 1.0 / t;  // ideal gas
+  return p;
+}
+
+FluidProperties freshWaterProperties(double temperatureK) {
+  FluidProperties p;
+  const double t = clampToRange(kFreshWaterTableRange, temperatureK, p.outsideValidity);
+  const DensityAndSlope d = kellDensity(t);
+  p.density = d.rho;
+  p.expansion = -d.drho / d.rho;
+  p.specificHeat = hermiteInterpolate(kWaterT, kWaterCp, t);
+  p.viscosity = hermiteInterpolate(kWaterT, kWaterMu, t);
+  p.conductivity = hermiteInterpolate(kWaterT, kWaterK, t);
+  return p;
+}
+
+FluidProperties seaWaterProperties(double temperatureK, double salinity) {
+  FluidProperties p;
+  const double temp = clampToRange(kSeaWaterTemperatureRange, temperatureK, p.outsideValidity);
+  const double s = clampToRange(kSeaWaterSalinityRange, salinity, p.outsideValidity);
+  const double t = temp - kZeroCelsius;
+  const DensityAndSlope d = sharqawyDensity(temp, s);
+  p.density = d.rho;
+  p.expansion = -d.drho / d.rho;
+
+  // Sharqawy et al. (2010) eq. 9 (after Jamieson et al. 1969): cp [kJ/(kg K)] = A + B T + C T^2 + D T^3,
+  // T in K, S in g/kg.
+  const double sg = 1000.0 * s;
+  const double a = 5.328 - 9.76e-2 * sg + 4.04e-4 * sg * sg;
+  const double b = -6.913e-3 + 7.351e-4 * sg - 3.15e-6 * sg * sg;
+  const double c = 9.6e-6 - 1.927e-6 * sg + 8.23e-9 * sg * sg;
+  const double dd = 2.5e-9 + 1.666e-9 * sg - 7.125e-12 * sg * sg;
+  p.specificHeat = 1000.0 * (a + temp * (b + temp * (c + temp * dd)));
+
+  // Sharqawy et al. (2010) eq. 13 (after Jamieson & Tudhope 1970), k in mW/(m K):
+  // log10 k = log10(240 + 0.0002 S) + 0.434 (2.3 - (343.5 + 0.037 S)/T) (1 - T/(647 + 0.03 S))^{1/3}.
+  const double log10k = std::log10(240.0 + 0.0002 * sg) +
+                        0.434 * (2.3 - (343.5 + 0.037 * sg) / temp) * std::cbrt(1.0 - temp / (647.0 + 0.03 * sg));
+  p.conductivity = 1e-3 * std::pow(10.0, log10k);
+
+  // Sharqawy et al. (2010) eqs. 22-23: mu_w = 4.2844e-5 + 1/(0.157 (t + 64.993)^2 - 91.296),
+  // mu = mu_w (1 + A S + B S^2), A = 1.541 + 1.998e-2 t - 9.52e-5 t^2, B = 7.974 - 7.561e-2 t + 4.724e-4 t^2.
+  const double muW = 4.2844e-5 + 1.0 / (0.157 * (t + 64.993) * (t + 64.993) - 91.296);
+  const double ca = 1.541 + 1.998e-2 * t - 9.52e-5 * t * t;
+  const double cb = 7.974 - 7.561e-2 * t + 4.724e-4 * t * t;
+  p.viscosity = muW * (1.0 + ca * s + cb * s * s);
+  return p;
+}
+
+}  // namespace
+
+FluidProperties fluidProperties(Medium medium, double temperatureK, double salinity) {
+  FluidProperties p;
+  switch (medium) {
+    case Medium::Air: p = airProperties(temperatureK); break;
+    case Medium::FreshWater: p = freshWaterProperties(temperatureK); break;
+    case Medium::SeaWater: p = seaWaterProperties(temperatureK, salinity); break;
+  }
+  p.prandtl = p.viscosity * p.specificHeat / p.conductivity;
+  return p;
+}
+
+double mediumDensity(Medium medium, double temperatureK, double salinity) {
+  bool clamped = false;
+  switch (medium) {
+    case Medium::Air: return 1.0e5 / (kGasConstantDryAir * clampToRange(kAirTableRange, temperatureK, clamped));
+    case Medium::FreshWater: return kellDensity(clampToRange(kFreshWaterTableRange, temperatureK, clamped)).rho;
+    case Medium::SeaWater:
+      return sharqawyDensity(clampToRange(kSeaWaterTemperatureRange, temperatureK, clamped),
+                             clampToRange(kSeaWaterSalinityRange, salinity, clamped))
+          .rho;
+  }
+  throw std::invalid_argument("mediumDensity: unknown medium");
+}
+
+// ---- moist air --------------------------------------------------------------------
+
+double saturationVapourPressure(double temperatureK) {
+  bool clamped = false;
+  const double t = clampToRange(kBuckRange, temperatureK, clamped) - kZeroCelsius;
+  return 611.21 * std::exp(17.502 * t / (240.97 + t));
+}
+
+double saturationVapourPressureSlope(double temperatureK) {
+  if (!kBuckRange.contains(temperatureK)) {
+    checkValidity(kBuckRange, temperatureK);
+    return 0.0;
+  }
+  const double t = temperatureK - kZeroCelsius;
+  // d/dt [17.502 t/(240.97 + t)] = 17.502 * 240.97 / (240.97 + t)^2
+  return saturationVapourPressure(temperatureK) * 17.502 * 240.97 / ((240.97 + t) * (240.97 + t));
+}
+
+double latentHeatVaporisation(double temperatureK) {
+  bool clamped = false;
+  const double t = clampToRange(kLatentHeatRange, temperatureK, clamped) - kZeroCelsius;
+  return 2.501e6 - 2361.0 * t;
+}
+
+double latentHeatVaporisationSlope(double temperatureK) {
+  if (checkValidity(kLatentHeatRange, temperatureK)) return 0.0;
+  return -2361.0;
+}
+
+double humidAirDensity(double temperatureK, double relativeHumidity, double pressure) {
+  const double e = relativeHumidity * saturationVapourPressure(temperatureK);
+  return (pressure - e) / (kGasConstantDryAir * temperatureK) + e / (kGasConstantVapour * temperatureK);
+}
+
+double humidityRatio(double vapourPressure, double pressure) {
+  return (kMolarMassWater / kMolarMassDryAir) * vapourPressure / (pressure - vapourPressure);
+}
+
+double vapourDiffusivityInAir(double temperatureK, double pressure) {
+  return 0.26e-4 * std::pow(temperatureK / 298.0, 1.5) * (kStandardPressure / pressure);
+}
+
+}  // namespace thermorph

@@ -1,0 +1,141 @@
+#pragma once
+//! Properties of the surrounding media (air, fresh water, sea water), moist-air
+//! relations and the process-wide validity-warning facility used by media,
+//! convection and surface-exchange correlations.
+#include <limits>
+#include <string>
+#include <string_view>
+#include <vector>
+
+namespace thermorph {
+
+// ---- physical constants -------------------------------------------------------
+
+//! Molar gas constant [J/(mol K)] (CODATA 2018, exact).
+inline constexpr double kMolarGasConstant = 8.314462618;
+//! Molar mass of water [kg/mol] (common practice, no source).
+inline constexpr double kMolarMassWater = 18.01528e-3;
+//! Molar mass of dry air [kg/mol] (common practice, no source).
+inline constexpr double kMolarMassDryAir = 28.9647e-3;
+//! Specific gas constant of dry air [J/(kg K)].
+inline constexpr double kGasConstantDryAir = kMolarGasConstant / kMolarMassDryAir;
+//! Specific gas constant of water vapour [J/(kg K)].
+inline constexpr double kGasConstantVapour = kMolarGasConstant / kMolarMassWater;
+//! Standard atmosphere [Pa].
+inline constexpr double kStandardPressure = 101325.0;
+//! 0 degC in kelvin [K].
+inline constexpr double kZeroCelsius = 273.15;
+
+// ---- validity ranges and warnings ----------------------------------------------
+
+//! Range of one input over which a published correlation or table was fitted.
+struct ValidityRange {
+  std::string_view correlation;  //!< author, year and what it is
+  std::string_view parameter;    //!< e.g. "Re", "temperature"
+  std::string_view unit;         //!< unit of the parameter ("" if dimensionless)
+  double min = -std::numeric_limits<double>::infinity();
+  double max = std::numeric_limits<double>::infinity();
+  //! True when `value` lies inside [min, max] (NaN is outside).
+  constexpr bool contains(double value) const { return value >= min && value <= max; }
+};
+
+//! True when `value` is outside `range`; then records a warning the first time this
+//! (correlation, parameter) pair is seen in the process. Thread-safe.
+bool checkValidity(const ValidityRange& range, double value);
+
+//! Warnings recorded since the last call, each (correlation, parameter, value, range)
+//! reported once per process. Thread-safe.
+std::vector<std::string> takeValidityWarnings();
+
+//! Forget which warnings were issued (for tests, or before a new case in the same process).
+void resetValidityWarnings();
+
+// ---- fluid properties ------------------------------------------------------------
+
+enum class Medium { Air, FreshWater, SeaWater };
+
+//! Thermophysical properties of a fluid at one temperature.
+struct FluidProperties {
+  double density = 0.0;       //!< [kg/m3]
+  double viscosity = 0.0;     //!< dynamic viscosity [Pa s]
+  double conductivity = 0.0;  //!< [W/(m K)]
+  double specificHeat = 0.0;  //!< [J/(kg K)]
+  double prandtl = 0.0;       //!< viscosity * specificHeat / conductivity [-]
+  double expansion = 0.0;     //!< volumetric expansion coefficient -(1/rho) drho/dT [1/K]
+  bool outsideValidity = false;  //!< temperature or salinity was clamped to the fitted range
+
+  //! Kinematic viscosity [m2/s]
+  double kinematicViscosity() const { return viscosity / density; }
+  //! Thermal diffusivity [m2/s]
+  double diffusivity() const { return conductivity / (density * specificHeat); }
+};
+
+//! Temperature range of the air table [K] (Incropera et al., Table A.4 rows used).
+inline constexpr ValidityRange kAirTableRange{"air properties, Incropera et al. Table A.4", "temperature", "K",
+                                              200.0, 400.0};
+//! Temperature range of the saturated-water table [K] (Incropera et al., Table A.6 rows used).
+inline constexpr ValidityRange kFreshWaterTableRange{"fresh water properties, Incropera et al. Table A.6",
+                                                     "temperature", "K", 273.15, 373.15};
+//! Temperature range for sea water [K]: Sharqawy et al. (2010) fits hold from 0 degC; we
+//! extrapolate 2 K lower so that sea water at its freezing point (-1.9 degC at 35 g/kg) is usable.
+inline constexpr ValidityRange kSeaWaterTemperatureRange{"sea water properties, Sharqawy et al. (2010)",
+                                                         "temperature", "K", 271.15, 373.15};
+//! Salinity range for sea water [kg/kg] (Sharqawy et al. 2010: viscosity fit to 150 g/kg).
+inline constexpr ValidityRange kSeaWaterSalinityRange{"sea water properties, Sharqawy et al. (2010)", "salinity",
+                                                      "kg/kg", 0.0, 0.150};
+
+//! Properties of `medium` at `temperatureK` [K]; `salinity` [kg/kg] is used for sea water only.
+//! Outside the fitted range the temperature (and salinity) is clamped, a warning recorded and
+//! `outsideValidity` set.
+//!  - Air (dry, 1 atm): cubic Hermite interpolation of Incropera et al., Fundamentals of Heat and
+//!    Mass Transfer, Table A.4, 200-400 K; expansion 1/T (ideal gas).
+//!  - Fresh water: Incropera et al. Table A.6 (saturated liquid) for cp, viscosity, conductivity;
+//!    density and expansion from Kell (1975), J. Chem. Eng. Data 20:97 (the 0-150 degC density fit).
+//!  - Sea water: Sharqawy, Lienhard & Zubair (2010), Desalination and Water Treatment 16:354,
+//!    eqs. 8 (density), 9 (cp), 13 (conductivity), 22-23 (viscosity); coefficients from memory,
+//!    checked at zero salinity against Table A.6 and at 35 g/kg against known sea-water values
+//!    (tests/test_media.cpp). Expansion by differentiating eq. 8 (about 3 % low at 20 degC, S = 0).
+FluidProperties fluidProperties(Medium medium, double temperatureK, double salinity = 35e-3);
+
+//! Density of fresh water (Kell 1975) or sea water (Sharqawy et al. 2010 eq. 8) [kg/m3];
+//! for air the ideal gas at 1 bar, matching Table A.4. Same clamping as fluidProperties.
+double mediumDensity(Medium medium, double temperatureK, double salinity = 35e-3);
+
+// ---- moist air ----------------------------------------------------------------------
+
+//! Range of the Buck (1981) saturation vapour pressure fit over water [K] (-20 to +50 degC).
+inline constexpr ValidityRange kBuckRange{"saturation vapour pressure, Buck (1981)", "temperature", "K", 253.15,
+                                          323.15};
+//! Range over which the linear latent-heat fit is used [K].
+inline constexpr ValidityRange kLatentHeatRange{"latent heat of vaporisation, FAO-56 (Allen et al. 1998)",
+                                                "temperature", "K", 253.15, 373.15};
+
+//! Saturation vapour pressure over liquid water [Pa].
+//! Buck (1981), J. Appl. Meteorol. 20:1527: e_s = 611.21 exp(17.502 t / (240.97 + t)), t in degC.
+//! Clamped to kBuckRange outside -20..50 degC (slope is then zero).
+double saturationVapourPressure(double temperatureK);
+
+//! Derivative of saturationVapourPressure with temperature [Pa/K] (analytic).
+double saturationVapourPressureSlope(double temperatureK);
+
+//! Latent heat of vaporisation of water [J/kg].
+//! Linear fit L = 2.501e6 - 2361 t (t in degC), Allen et al. (1998) FAO Irrigation and Drainage
+//! Paper 56, Annex 3, eq. 3-1; within 0.4 % of steam tables 0-100 degC. Clamped to kLatentHeatRange.
+double latentHeatVaporisation(double temperatureK);
+
+//! Derivative of latentHeatVaporisation [J/(kg K)] (-2361 inside the range, 0 outside).
+double latentHeatVaporisationSlope(double temperatureK);
+
+//! Density of moist air [kg/m3] as an ideal mixture of dry air and vapour:
+//! rho = (p - e)/(R_d T) + e/(R_v T), e = relativeHumidity * e_s(T) (common practice, no source).
+//! relativeHumidity in 0..1, pressure [Pa].
+double humidAirDensity(double temperatureK, double relativeHumidity, double pressure = kStandardPressure);
+
+//! Humidity ratio [kg vapour / kg dry air]: 0.622 e / (p - e) with the exact ratio of molar masses.
+double humidityRatio(double vapourPressure, double pressure = kStandardPressure);
+
+//! Binary diffusion coefficient of water vapour in air [m2/s]: 0.26e-4 at 298 K, 1 atm
+//! (Incropera et al. Table A.8, from memory), scaled as T^{3/2}/p (Incropera ch. 14).
+double vapourDiffusivityInAir(double temperatureK, double pressure = kStandardPressure);
+
+}  // namespace thermorph

@@ -1,0 +1,291 @@
+#include "solver/integrator.hpp"
+
+#include <cvode/cvode.h>
+#include <kinsol/kinsol.h>
+#include <nvector/nvector_serial.h>
+#include <sundials/sundials_context.h>
+#include <sunlinsol/sunlinsol_dense.h>
+#include <sunlinsol/sunlinsol_klu.h>
+#include <sunmatrix/sunmatrix_dense.h>
+#include <sunmatrix/sunmatrix_sparse.h>
+
+#include <algorithm>
+#include <chrono>
+#include <cmath>
+#include <numeric>
+
+#include <fmt/format.h>
+
+namespace thermorph {
+
+namespace detail {
+void SundialsDeleter::operator()(_SUNContext* p) const { SUNContext_Free(&p); }
+void SundialsDeleter::operator()(_generic_N_Vector* p) const { N_VDestroy(p); }
+void SundialsDeleter::operator()(_generic_SUNMatrix* p) const { SUNMatDestroy(p); }
+void SundialsDeleter::operator()(_generic_SUNLinearSolver* p) const { SUNLinSolFree(p); }
+}  // namespace detail
+
+namespace {
+
+std::span<double> view(N_Vector v) {
+  return {N_VGetArrayPointer(v), static_cast<std::size_t>(N_VGetLength(v))};
+}
+
+void check(int flag, const char* call) {
+  if (flag < 0) throw SolverError(fmt::format("SUNDIALS call {} failed with flag {}", call, flag));
+}
+
+template <class T>
+T* checkCreated(T* p, const char* what) {
+  if (!p) throw SolverError(fmt::format("SUNDIALS could not create {}", what));
+  return p;
+}
+
+//! Copy the CSC pattern and values into a SUNDIALS matrix (sparse or dense).
+void fillMatrix(SUNMatrix J, const SparsePattern& pattern, std::span<const double> values) {
+  if (SUNMatGetID(J) == SUNMATRIX_SPARSE) {
+    sunindextype* colptr = SUNSparseMatrix_IndexPointers(J);
+    sunindextype* rows = SUNSparseMatrix_IndexValues(J);
+    double* data = SUNSparseMatrix_Data(J);
+    for (Index c = 0; c <= pattern.size; ++c) colptr[c] = static_cast<sunindextype>(pattern.columnStart[c]);
+    for (Index p = 0; p < pattern.nonzeros(); ++p) {
+      rows[p] = static_cast<sunindextype>(pattern.rowIndex[p]);
+      data[p] = values[p];
+    }
+  } else {
+    SUNMatZero(J);
+    for (Index c = 0; c < pattern.size; ++c)
+      for (Index p = pattern.columnStart[c]; p < pattern.columnStart[c + 1]; ++p)
+        SM_ELEMENT_D(J, pattern.rowIndex[p], c) = values[p];
+  }
+}
+
+}  // namespace
+
+Integrator::Integrator(const NetworkSystem& system, std::span<const double> initialState, double initialTime,
+                       const IntegratorOptions& options)
+    : system_(system), options_(options), memory_(nullptr, detail::MemoryDeleter{CVodeFree}), time_(initialTime) {
+  SUNContext ctx = nullptr;
+  check(SUNContext_Create(nullptr, &ctx), "SUNContext_Create");
+  context_.reset(ctx);
+  const auto n = static_cast<sunindextype>(system.size());
+  state_.reset(checkCreated(N_VNew_Serial(n, ctx), "the state vector"));
+  std::copy(initialState.begin(), initialState.end(), view(state_.get()).begin());
+  tolerances_.reset(checkCreated(N_VNew_Serial(n, ctx), "the tolerance vector"));
+  auto atol = view(tolerances_.get());
+  if (options.atol.size() != atol.size()) throw std::invalid_argument("atol must have one entry per state");
+  std::copy(options.atol.begin(), options.atol.end(), atol.begin());
+
+  memory_.reset(checkCreated(CVodeCreate(CV_BDF, ctx), "CVODE memory"));
+  void* mem = memory_.get();
+  check(CVodeInit(mem, &Integrator::rhsCallback, initialTime, state_.get()), "CVodeInit");
+  check(CVodeSVtolerances(mem, options.rtol, tolerances_.get()), "CVodeSVtolerances");
+  check(CVodeSetUserData(mem, this), "CVodeSetUserData");
+  check(CVodeSetMaxNumSteps(mem, 1'000'000), "CVodeSetMaxNumSteps");
+  check(CVodeSetMaxOrd(mem, options.maxOrder), "CVodeSetMaxOrd");
+  if (options.maxStep > 0.0) check(CVodeSetMaxStep(mem, options.maxStep), "CVodeSetMaxStep");
+  const SparsePattern& pattern = system.pattern();
+  jacobianValues_.resize(pattern.nonzeros());
+  if (options.linearSolver == LinearSolverKind::Klu) {
+    matrix_.reset(checkCreated(SUNSparseMatrix(n, n, static_cast<sunindextype>(pattern.nonzeros()), CSC_MAT, ctx),
+                               "the sparse Jacobian"));
+    linearSolver_.reset(checkCreated(SUNLinSol_KLU(state_.get(), matrix_.get(), ctx), "the KLU solver"));
+  } else {
+    matrix_.reset(checkCreated(SUNDenseMatrix(n, n, ctx), "the dense Jacobian"));
+    linearSolver_.reset(checkCreated(SUNLinSol_Dense(state_.get(), matrix_.get(), ctx), "the dense solver"));
+  }
+  check(CVodeSetLinearSolver(mem, linearSolver_.get(), matrix_.get()), "CVodeSetLinearSolver");
+  check(CVodeSetJacFn(mem, &Integrator::jacobianCallback), "CVodeSetJacFn");
+}
+
+Integrator::~Integrator() = default;
+
+std::span<const double> Integrator::state() const { return view(state_.get()); }
+
+int Integrator::rhsCallback(double t, N_Vector y, N_Vector ydot, void* user) {
+  auto* self = static_cast<Integrator*>(user);
+  return self->guard_.run([&] {
+    self->system_.evaluate(t, view(y), view(ydot));
+#ifndef NDEBUG
+    self->checkFinite(view(ydot), "the time derivative");
+#endif
+  });
+}
+
+int Integrator::jacobianCallback(double t, N_Vector y, N_Vector, SUNMatrix J, void* user, N_Vector, N_Vector,
+                                 N_Vector) {
+  auto* self = static_cast<Integrator*>(user);
+  return self->guard_.run([&] {
+    self->system_.jacobian(t, view(y), self->jacobianValues_);
+    fillMatrix(J, self->system_.pattern(), self->jacobianValues_);
+  });
+}
+
+void Integrator::checkFinite(std::span<const double> values, const char* what) const {
+  for (Index i = 0; i < values.size(); ++i)
+    if (!std::isfinite(values[i])) {
+      std::string name = i < system_.nodeCount() ? system_.network().nodes[i].label
+                                                 : "energy of channel " + system_.network().channels[i - system_.nodeCount()];
+      throw SolverError(fmt::format("{} is not finite at t = {:g} s: {} = {}", what, time_, name, values[i]));
+    }
+}
+
+std::string Integrator::failureMessage(int flag) const {
+  void* mem = memory_.get();
+  double reached = time_;
+  CVodeGetCurrentTime(mem, &reached);
+  std::string message = fmt::format("CVODE failed with {} ({}) at t = {:.6g} s", CVodeGetReturnFlagName(flag), flag,
+                                    reached);
+  // Name the components with the largest weighted local error.
+  const auto n = static_cast<sunindextype>(system_.size());
+  detail::Handle<_generic_N_Vector> weights(N_VNew_Serial(n, context_.get()));
+  detail::Handle<_generic_N_Vector> errors(N_VNew_Serial(n, context_.get()));
+  if (weights && errors && CVodeGetErrWeights(mem, weights.get()) == CV_SUCCESS &&
+      CVodeGetEstLocalErrors(mem, errors.get()) == CV_SUCCESS) {
+    auto w = view(weights.get());
+    auto e = view(errors.get());
+    std::vector<Index> order(system_.nodeCount());
+    std::iota(order.begin(), order.end(), 0);
+    auto score = [&](Index i) { return std::abs(w[i] * e[i]); };
+    std::partial_sort(order.begin(), order.begin() + std::min<std::ptrdiff_t>(3, std::ssize(order)), order.end(),
+                      [&](Index a, Index b) { return score(a) > score(b); });
+    message += "; largest weighted errors:";
+    for (std::size_t k = 0; k < std::min<std::size_t>(3, order.size()); ++k)
+      message += fmt::format(" [{}: {:.3g}]", system_.network().nodes[order[k]].label, score(order[k]));
+  }
+  return message;
+}
+
+void Integrator::advanceTo(double time) {
+  if (time <= time_) return;
+  auto start = std::chrono::steady_clock::now();
+  void* mem = memory_.get();
+  check(CVodeSetStopTime(mem, time), "CVodeSetStopTime");
+  double reached = time_;
+  int flag = CVode(mem, time, state_.get(), &reached, CV_NORMAL);
+  wallSeconds_ += std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+  if (flag < 0) {
+    std::string message = failureMessage(flag);
+    CVodeGetCurrentTime(mem, &time_);
+    if (guard_.error) {
+      try {
+        guard_.rethrow();
+      } catch (const std::exception& e) {
+        throw SolverError(message + "; cause: " + e.what());
+      }
+    }
+    throw SolverError(message);
+  }
+  time_ = time;
+  checkFinite(state(), "the state");
+}
+
+void Integrator::restart() {
+  check(CVodeReInit(memory_.get(), time_, state_.get()), "CVodeReInit");
+}
+
+SolverStatistics Integrator::statistics() const {
+  SolverStatistics s;
+  void* mem = memory_.get();
+  CVodeGetNumSteps(mem, &s.steps);
+  CVodeGetNumRhsEvals(mem, &s.rhsEvaluations);
+  CVodeGetNumJacEvals(mem, &s.jacobianEvaluations);
+  CVodeGetNumNonlinSolvIters(mem, &s.nonlinearIterations);
+  CVodeGetNumErrTestFails(mem, &s.errorTestFailures);
+  CVodeGetNumNonlinSolvConvFails(mem, &s.nonlinearFailures);
+  CVodeGetNumLinSolvSetups(mem, &s.linearSetups);
+  s.wallSeconds = wallSeconds_;
+  return s;
+}
+
+// ---- KINSOL -------------------------------------------------------------------------------------
+
+namespace {
+
+struct SteadyProblem {
+  const NetworkSystem* system;
+  double time;
+  detail::CallbackGuard guard;
+  std::vector<double> values;
+};
+
+int steadyResidual(N_Vector u, N_Vector f, void* user) {
+  auto* p = static_cast<SteadyProblem*>(user);
+  return p->guard.run([&] { p->system->evaluate(p->time, view(u), view(f)); });
+}
+
+int steadyJacobian(N_Vector u, N_Vector, SUNMatrix J, void* user, N_Vector, N_Vector) {
+  auto* p = static_cast<SteadyProblem*>(user);
+  return p->guard.run([&] {
+    p->system->jacobian(p->time, view(u), p->values);
+    fillMatrix(J, p->system->pattern(), p->values);
+  });
+}
+
+}  // namespace
+
+std::vector<double> solveSteadyState(const NetworkSystem& system, std::span<const double> guess, double time,
+                                     SolverStatistics* statistics) {
+  auto start = std::chrono::steady_clock::now();
+  SUNContext raw = nullptr;
+  check(SUNContext_Create(nullptr, &raw), "SUNContext_Create");
+  detail::Handle<_SUNContext> ctx(raw);
+  const auto n = static_cast<sunindextype>(system.size());
+  const SparsePattern& pattern = system.pattern();
+  detail::Handle<_generic_N_Vector> u(checkCreated(N_VNew_Serial(n, raw), "the state"));
+  detail::Handle<_generic_N_Vector> uScale(checkCreated(N_VNew_Serial(n, raw), "scales"));
+  detail::Handle<_generic_N_Vector> fScale(checkCreated(N_VNew_Serial(n, raw), "scales"));
+  std::copy(guess.begin(), guess.end(), view(u.get()).begin());
+  SteadyProblem problem{&system, time, {}, std::vector<double>(pattern.nonzeros())};
+
+  // Scale each residual (W) by its node's diagonal conductance so the norm is in kelvin.
+  system.jacobian(time, guess, problem.values);
+  auto fs = view(fScale.get());
+  for (Index c = 0; c < pattern.size; ++c)
+    for (Index p = pattern.columnStart[c]; p < pattern.columnStart[c + 1]; ++p)
+      if (pattern.rowIndex[p] == c) fs[c] = 1.0 / std::max(std::abs(problem.values[p]), 1e-300);
+  N_VConst(1.0, uScale.get());
+
+  detail::Handle<_generic_SUNMatrix> J(
+      checkCreated(SUNSparseMatrix(n, n, static_cast<sunindextype>(pattern.nonzeros()), CSC_MAT, raw), "the Jacobian"));
+  detail::Handle<_generic_SUNLinearSolver> LS(checkCreated(SUNLinSol_KLU(u.get(), J.get(), raw), "KLU"));
+  detail::SolverMemory mem(checkCreated(KINCreate(raw), "KINSOL memory"), detail::MemoryDeleter{KINFree});
+  check(KINInit(mem.get(), steadyResidual, u.get()), "KINInit");
+  check(KINSetUserData(mem.get(), &problem), "KINSetUserData");
+  check(KINSetLinearSolver(mem.get(), LS.get(), J.get()), "KINSetLinearSolver");
+  check(KINSetJacFn(mem.get(), steadyJacobian), "KINSetJacFn");
+  check(KINSetFuncNormTol(mem.get(), 1e-11), "KINSetFuncNormTol");
+  check(KINSetScaledStepTol(mem.get(), 1e-13), "KINSetScaledStepTol");
+  check(KINSetMaxSetupCalls(mem.get(), 1), "KINSetMaxSetupCalls");
+  check(KINSetNumMaxIters(mem.get(), 200), "KINSetNumMaxIters");
+  int flag = KINSol(mem.get(), u.get(), KIN_LINESEARCH, uScale.get(), fScale.get());
+  if (problem.guard.error) {
+    try {
+      problem.guard.rethrow();
+    } catch (const std::exception& e) {
+      throw SolverError(fmt::format("KINSOL residual failed: {}", e.what()));
+    }
+  }
+  if (flag < 0) {
+    double fnorm = 0.0;
+    KINGetFuncNorm(mem.get(), &fnorm);
+    throw SolverError(fmt::format(
+        "KINSOL found no steady state: {} ({}), scaled residual norm {:.3g} K. A body with no path to the "
+        "surroundings (all faces insulated, no fixed arterial temperature) has none.",
+        KINGetReturnFlagName(flag), flag, fnorm));
+  }
+  if (statistics) {
+    long iters = 0, fevals = 0, jevals = 0;
+    KINGetNumNonlinSolvIters(mem.get(), &iters);
+    KINGetNumFuncEvals(mem.get(), &fevals);
+    KINGetNumJacEvals(mem.get(), &jevals);
+    statistics->nonlinearIterations = iters;
+    statistics->rhsEvaluations = fevals;
+    statistics->jacobianEvaluations = jevals;
+    statistics->wallSeconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+  }
+  auto result = view(u.get());
+  return {result.begin(), result.end()};
+}
+
+}  // namespace thermorph

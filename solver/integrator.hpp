@@ -1,0 +1,130 @@
+#pragma once
+//! SUNDIALS wrappers: CVODE (BDF, Newton, KLU) for transients, KINSOL for steady states. Every SUNDIALS object
+//! is owned through an RAII handle by one class; the system integrated is referenced, never copied.
+#include <exception>
+#include <memory>
+#include <span>
+#include <stdexcept>
+#include <string>
+#include <vector>
+
+#include "solver/assembly.hpp"
+
+struct _generic_N_Vector;
+struct _generic_SUNMatrix;
+struct _generic_SUNLinearSolver;
+struct _SUNContext;
+
+namespace thermorph {
+
+//! The solver failed (CVODE or KINSOL flag, time reached, worst components by name). Exit code 3.
+class SolverError : public std::runtime_error {
+ public:
+  using std::runtime_error::runtime_error;
+};
+
+//! A right-hand-side failure CVODE may retry with a smaller step (returns 1 to SUNDIALS).
+class RecoverableError : public std::runtime_error {
+ public:
+  using std::runtime_error::runtime_error;
+};
+
+enum class LinearSolverKind { Klu, Dense };
+
+struct IntegratorOptions {
+  double rtol = 1e-6;
+  std::vector<double> atol;  //!< per state component
+  double maxStep = 0.0;      //!< [s], 0: none
+  LinearSolverKind linearSolver = LinearSolverKind::Klu;
+  int maxOrder = 5;
+};
+
+struct SolverStatistics {
+  long steps = 0, rhsEvaluations = 0, jacobianEvaluations = 0, nonlinearIterations = 0, errorTestFailures = 0,
+       nonlinearFailures = 0, linearSetups = 0;
+  double wallSeconds = 0.0;
+};
+
+namespace detail {
+struct SundialsDeleter {
+  void operator()(_SUNContext* p) const;
+  void operator()(_generic_N_Vector* p) const;
+  void operator()(_generic_SUNMatrix* p) const;
+  void operator()(_generic_SUNLinearSolver* p) const;
+};
+struct MemoryDeleter {
+  void (*free)(void**);
+  void operator()(void* p) const { free(&p); }
+};
+template <class T>
+using Handle = std::unique_ptr<T, SundialsDeleter>;
+using SolverMemory = std::unique_ptr<void, MemoryDeleter>;
+
+//! Exception captured inside a SUNDIALS callback, rethrown (type intact) when the SUNDIALS call returns.
+struct CallbackGuard {
+  std::exception_ptr error;
+  template <class F>
+  int run(F&& f) noexcept {
+    try {
+      f();
+      return 0;
+    } catch (const RecoverableError&) {
+      error = std::current_exception();
+      return 1;
+    } catch (...) {
+      error = std::current_exception();
+      return -1;
+    }
+  }
+  void rethrow() {
+    if (error) {
+      std::exception_ptr e = error;
+      error = nullptr;
+      std::rethrow_exception(e);
+    }
+  }
+};
+}  // namespace detail
+
+//! CVODE BDF integrator of a NetworkSystem in transient mode.
+class Integrator {
+ public:
+  Integrator(const NetworkSystem& system, std::span<const double> initialState, double initialTime,
+             const IntegratorOptions& options);
+  ~Integrator();
+  Integrator(const Integrator&) = delete;
+  Integrator& operator=(const Integrator&) = delete;
+
+  //! Integrate exactly to `time` (a stop time: never steps past it) [s].
+  void advanceTo(double time);
+  //! Restart at a discontinuity (after an event changed the network) from the current state.
+  void restart();
+  double time() const { return time_; }
+  std::span<const double> state() const;
+  SolverStatistics statistics() const;
+
+ private:
+  static int rhsCallback(double t, _generic_N_Vector* y, _generic_N_Vector* ydot, void* self);
+  static int jacobianCallback(double t, _generic_N_Vector* y, _generic_N_Vector* fy, _generic_SUNMatrix* J,
+                              void* self, _generic_N_Vector*, _generic_N_Vector*, _generic_N_Vector*);
+  std::string failureMessage(int flag) const;
+  void checkFinite(std::span<const double> values, const char* what) const;
+
+  const NetworkSystem& system_;
+  IntegratorOptions options_;
+  detail::CallbackGuard guard_;
+  detail::Handle<_SUNContext> context_;
+  detail::Handle<_generic_N_Vector> state_, tolerances_;
+  detail::Handle<_generic_SUNMatrix> matrix_;
+  detail::Handle<_generic_SUNLinearSolver> linearSolver_;
+  detail::SolverMemory memory_;
+  std::vector<double> jacobianValues_;
+  double time_ = 0.0;
+  double wallSeconds_ = 0.0;
+};
+
+//! Steady state of a NetworkSystem in steady mode by KINSOL (Newton, line search, KLU, analytic Jacobian).
+std::vector<double> solveSteadyState(const NetworkSystem& system, std::span<const double> guess, double time,
+                                     SolverStatistics* statistics = nullptr);
+
+}  // namespace thermorph

@@ -1,0 +1,133 @@
+//! thermorph command-line driver: run, steady, check, reference.
+#include <CLI/CLI.hpp>
+
+#include <cstdio>
+#include <filesystem>
+#include <iostream>
+
+#include <fmt/format.h>
+
+#include "models/body.hpp"
+#include "models/case.hpp"
+#include "solver/simulation.hpp"
+
+namespace {
+
+using namespace thermorph;
+
+constexpr int exitBadInput = 2;
+constexpr int exitSolverFailure = 3;
+
+std::string defaultOutput(const std::string& casePath) {
+  return std::filesystem::path(casePath).stem().string() + ".h5";
+}
+
+void describe(const Body& body) {
+  const Case& c = body.spec();
+  fmt::print("{}\n{}\n", c.title, std::string(c.title.size(), '='));
+  fmt::print("{:<14}{:<10}{:>28}{:>11}{:>12}{:>10}{:>10}{:>8}\n", "segment", "shape", "dimensions [cm]", "area [cm2]",
+             "volume [cm3]", "mass [g]", "S/V [1/m]", "cells");
+  double area = 0, volume = 0, mass = 0;
+  long cells = 0;
+  for (std::size_t i = 0; i < body.segments().size(); ++i) {
+    const SegmentMesh& m = body.segments()[i];
+    const SegmentSpec& s = c.segments[i];
+    std::string dims;
+    double coat = s.coat ? s.coat->thickness : 0.0;
+    switch (s.shape) {
+      case Shape::Sphere: dims = fmt::format("r {:.3g}", 100 * s.radiusProximal); break;
+      case Shape::Cylinder: dims = fmt::format("r {:.3g}, L {:.3g}", 100 * s.radiusProximal, 100 * s.length); break;
+      case Shape::Cone:
+        dims = fmt::format("r {:.3g}->{:.3g}, L {:.3g}", 100 * s.radiusProximal, 100 * s.radiusDistal, 100 * s.length);
+        break;
+      case Shape::Plate:
+        dims = fmt::format("{:.3g} x {:.3g} x {:.3g}", 100 * s.length, 100 * s.width, 200 * s.tissueRadius());
+        break;
+    }
+    if (coat > 0) dims += fmt::format(" +coat {:.2g}", 100 * coat);
+    long n = static_cast<long>(m.nz) * m.nr;
+    fmt::print("{:<14}{:<10}{:>28}{:>11.4g}{:>12.4g}{:>10.4g}{:>10.4g}{:>8}\n", m.name, shapeName(m.shape), dims,
+               m.area * 1e4, m.tissueVolume * 1e6, m.tissueMass * 1e3, m.area / m.tissueVolume, n);
+    area += m.area;
+    volume += m.tissueVolume;
+    mass += m.tissueMass;
+    cells += n;
+  }
+  fmt::print("{:<14}{:<10}{:>28}{:>11.4g}{:>12.4g}{:>10.4g}{:>10.4g}{:>8}\n", "body", "", "", area * 1e4,
+             volume * 1e6, mass * 1e3, area / volume, cells);
+  fmt::print("Volumes and masses exclude the coat; area is the exposed outer surface (coat included).\n");
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  CLI::App app{"thermorph: tissue temperatures and heat budgets of animal bodies built from linked segments.\n"
+               "Model estimates for research; not veterinary or medical advice."};
+  app.set_version_flag("--version", std::string(THERMORPH_VERSION));
+  app.require_subcommand(1);
+  std::string casePath, output;
+  std::vector<std::string> overrides;
+  bool quiet = false, resolved = false, dense = false;
+
+  auto addCommon = [&](CLI::App* sub) {
+    sub->add_option("case", casePath, "Case file (TOML)")->required();
+    sub->add_option("--set", overrides, "Override a case key: KEY=VALUE, e.g. environment.temperature=\"5 degC\"")
+        ->take_all()
+        ->allow_extra_args(false);
+  };
+  CLI::App* run = app.add_subcommand("run", "Integrate a case and print its heat budget");
+  addCommon(run);
+  run->add_option("-o,--output", output, "Results file (HDF5); default: CASE-NAME.h5 in the current folder");
+  run->add_flag("-q,--quiet", quiet, "No progress on stderr");
+  run->add_flag("--dense", dense, "Use the dense linear solver instead of KLU (benchmarks)");
+  CLI::App* steady = app.add_subcommand("steady", "Find the steady state of a case");
+  addCommon(steady);
+  steady->add_option("-o,--output", output, "Results file (HDF5); default: CASE-NAME.h5");
+  steady->add_flag("-q,--quiet", quiet, "No progress on stderr");
+  CLI::App* check = app.add_subcommand("check", "Validate a case and describe the body");
+  addCommon(check);
+  check->add_flag("--resolved", resolved, "Print the fully resolved case (SI values, defaults filled in) as TOML");
+  CLI::App* reference = app.add_subcommand("reference", "Print the case-file reference (Markdown) generated from the schema");
+
+  CLI11_PARSE(app, argc, argv);
+
+  std::string commandLine;
+  for (int i = 0; i < argc; ++i) commandLine += (i ? " " : "") + std::string(argv[i]);
+
+  if (reference->parsed()) {
+    std::cout << caseReferenceMarkdown();
+    return 0;
+  }
+  try {
+    Case c = loadCase(casePath, overrides);
+    Body body(c);
+    if (check->parsed()) {
+      if (resolved) std::cout << resolvedCaseToml(c);
+      else describe(body);
+      return 0;
+    }
+    RunOptions options;
+    options.output = output.empty() ? defaultOutput(casePath) : output;
+    options.commandLine = commandLine;
+    options.quiet = quiet;
+    options.linearSolver = dense ? LinearSolverKind::Dense : LinearSolverKind::Klu;
+    RunSummary summary = run->parsed() ? runTransient(body, options) : runSteady(body, options);
+    printBudget(body, summary, stdout);
+    if (!summary.complete) {
+      fmt::print(stderr, "error: {}\nPartial results up to t = {:g} s kept in {} (marked incomplete).\n",
+                 summary.failure, summary.finalTime, summary.outputPath);
+      return exitSolverFailure;
+    }
+    fmt::print("Results: {}\n", summary.outputPath);
+    return 0;
+  } catch (const CaseError& e) {
+    fmt::print(stderr, "error: {}\n", e.what());
+    return exitBadInput;
+  } catch (const SolverError& e) {
+    fmt::print(stderr, "error: {}\n", e.what());
+    return exitSolverFailure;
+  } catch (const std::exception& e) {
+    fmt::print(stderr, "error: {}\n", e.what());
+    return exitSolverFailure;
+  }
+}

@@ -1,0 +1,213 @@
+#include "solver/results.hpp"
+
+#include <hdf5.h>
+#include <unistd.h>
+
+#include <filesystem>
+#include <numeric>
+#include <stdexcept>
+
+#include <fmt/format.h>
+
+namespace thermorph {
+namespace {
+
+void checkH5(long long status, const std::string& what) {
+  if (status < 0) throw std::runtime_error(fmt::format("HDF5: cannot {}", what));
+}
+
+void writeStringAttribute(hid_t object, const std::string& name, const std::string& value) {
+  hid_t type = H5Tcopy(H5T_C_S1);
+  H5Tset_size(type, value.empty() ? 1 : value.size());
+  H5Tset_cset(type, H5T_CSET_UTF8);
+  hid_t space = H5Screate(H5S_SCALAR);
+  if (H5Aexists(object, name.c_str()) > 0) H5Adelete(object, name.c_str());
+  hid_t attr = H5Acreate2(object, name.c_str(), type, space, H5P_DEFAULT, H5P_DEFAULT);
+  checkH5(attr, "create attribute " + name);
+  H5Awrite(attr, type, value.empty() ? "" : value.c_str());
+  H5Aclose(attr);
+  H5Sclose(space);
+  H5Tclose(type);
+}
+
+}  // namespace
+
+ResultsFile::ResultsFile(std::string finalPath) : finalPath_(std::move(finalPath)) {
+  std::filesystem::path p(finalPath_);
+  std::filesystem::path dir = p.parent_path().empty() ? std::filesystem::path(".") : p.parent_path();
+  if (!std::filesystem::is_directory(dir))
+    throw std::runtime_error(fmt::format("output folder {} does not exist", dir.string()));
+  temporaryPath_ = (dir / fmt::format(".{}.tmp-{}", p.filename().string(), ::getpid())).string();
+  H5Eset_auto2(H5E_DEFAULT, nullptr, nullptr);
+  file_ = H5Fcreate(temporaryPath_.c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, H5P_DEFAULT);
+  checkH5(file_, "create " + temporaryPath_);
+}
+
+ResultsFile::~ResultsFile() {
+  for (Series& s : series_) H5Dclose(s.dataset);
+  if (file_ >= 0) H5Fclose(file_);
+  if (!committed_) std::filesystem::remove(temporaryPath_);
+}
+
+long long ResultsFile::ensureGroup(const std::string& path) {
+  // Create every missing group along `path`; return the deepest (caller closes).
+  std::string partial;
+  hid_t group = H5Gopen2(file_, "/", H5P_DEFAULT);
+  std::size_t start = 1;
+  while (start <= path.size()) {
+    std::size_t end = path.find('/', start);
+    if (end == std::string::npos) end = path.size();
+    std::string name = path.substr(start, end - start);
+    if (!name.empty()) {
+      hid_t next = H5Lexists(group, name.c_str(), H5P_DEFAULT) > 0
+                       ? H5Gopen2(group, name.c_str(), H5P_DEFAULT)
+                       : H5Gcreate2(group, name.c_str(), H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+      checkH5(next, "create group " + path);
+      H5Gclose(group);
+      group = next;
+    }
+    start = end + 1;
+  }
+  return group;
+}
+
+static std::pair<std::string, std::string> splitPath(const std::string& path) {
+  auto pos = path.find_last_of('/');
+  return {pos == 0 ? "/" : path.substr(0, pos), path.substr(pos + 1)};
+}
+
+void ResultsFile::writeArray(const std::string& path, std::span<const double> values,
+                             const std::vector<std::uint64_t>& shape, const std::string& units) {
+  auto [parent, name] = splitPath(path);
+  hid_t group = ensureGroup(parent);
+  std::vector<hsize_t> dims(shape.begin(), shape.end());
+  hid_t space = H5Screate_simple(static_cast<int>(dims.size()), dims.data(), nullptr);
+  hid_t ds = H5Dcreate2(group, name.c_str(), H5T_NATIVE_DOUBLE, space, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+  checkH5(ds, "create " + path);
+  checkH5(H5Dwrite(ds, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, values.data()), "write " + path);
+  writeStringAttribute(ds, "units", units);
+  H5Dclose(ds);
+  H5Sclose(space);
+  H5Gclose(group);
+}
+
+void ResultsFile::writeIntArray(const std::string& path, std::span<const int> values, const std::string& units) {
+  auto [parent, name] = splitPath(path);
+  hid_t group = ensureGroup(parent);
+  hsize_t dims = values.size();
+  hid_t space = H5Screate_simple(1, &dims, nullptr);
+  hid_t ds = H5Dcreate2(group, name.c_str(), H5T_NATIVE_INT, space, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+  checkH5(ds, "create " + path);
+  H5Dwrite(ds, H5T_NATIVE_INT, H5S_ALL, H5S_ALL, H5P_DEFAULT, values.data());
+  writeStringAttribute(ds, "units", units);
+  H5Dclose(ds);
+  H5Sclose(space);
+  H5Gclose(group);
+}
+
+void ResultsFile::writeStringArrayAttribute(const std::string& object, const std::string& name,
+                                            const std::vector<std::string>& values) {
+  hid_t obj = H5Oopen(file_, object.c_str(), H5P_DEFAULT);
+  checkH5(obj, "open " + object);
+  hid_t type = H5Tcopy(H5T_C_S1);
+  H5Tset_size(type, H5T_VARIABLE);
+  H5Tset_cset(type, H5T_CSET_UTF8);
+  hsize_t n = values.size();
+  hid_t space = H5Screate_simple(1, &n, nullptr);
+  std::vector<const char*> pointers;
+  for (const std::string& v : values) pointers.push_back(v.c_str());
+  hid_t attr = H5Acreate2(obj, name.c_str(), type, space, H5P_DEFAULT, H5P_DEFAULT);
+  H5Awrite(attr, type, pointers.data());
+  H5Aclose(attr);
+  H5Sclose(space);
+  H5Tclose(type);
+  H5Oclose(obj);
+}
+
+std::size_t ResultsFile::createSeries(const std::string& path, const std::vector<std::uint64_t>& shape,
+                                      const std::string& units) {
+  auto [parent, name] = splitPath(path);
+  hid_t group = ensureGroup(parent);
+  std::vector<hsize_t> dims{0}, maxDims{H5S_UNLIMITED}, chunk;
+  for (auto s : shape) {
+    dims.push_back(s);
+    maxDims.push_back(s);
+  }
+  // Chunks of about 64 KiB: several time points of the whole field.
+  std::uint64_t perPoint = std::accumulate(shape.begin(), shape.end(), std::uint64_t{1}, std::multiplies<>());
+  chunk.push_back(std::max<hsize_t>(1, 8192 / std::max<std::uint64_t>(perPoint, 1)));
+  for (auto s : shape) chunk.push_back(s);
+  hid_t space = H5Screate_simple(static_cast<int>(dims.size()), dims.data(), maxDims.data());
+  hid_t plist = H5Pcreate(H5P_DATASET_CREATE);
+  H5Pset_chunk(plist, static_cast<int>(chunk.size()), chunk.data());
+  H5Pset_shuffle(plist);
+  H5Pset_deflate(plist, 4);
+  hid_t ds = H5Dcreate2(group, name.c_str(), H5T_NATIVE_DOUBLE, space, H5P_DEFAULT, plist, H5P_DEFAULT);
+  checkH5(ds, "create " + path);
+  writeStringAttribute(ds, "units", units);
+  H5Pclose(plist);
+  H5Sclose(space);
+  H5Gclose(group);
+  series_.push_back({ds, shape, 0});
+  return series_.size() - 1;
+}
+
+void ResultsFile::append(std::size_t index, std::span<const double> values) {
+  Series& s = series_.at(index);
+  std::vector<hsize_t> dims{s.count + 1}, start{s.count}, count{1};
+  for (auto d : s.shape) {
+    dims.push_back(d);
+    start.push_back(0);
+    count.push_back(d);
+  }
+  checkH5(H5Dset_extent(s.dataset, dims.data()), "extend a time series");
+  hid_t fileSpace = H5Dget_space(s.dataset);
+  H5Sselect_hyperslab(fileSpace, H5S_SELECT_SET, start.data(), nullptr, count.data(), nullptr);
+  hid_t memSpace = H5Screate_simple(static_cast<int>(count.size()), count.data(), nullptr);
+  checkH5(H5Dwrite(s.dataset, H5T_NATIVE_DOUBLE, memSpace, fileSpace, H5P_DEFAULT, values.data()),
+          "write a time series");
+  H5Sclose(memSpace);
+  H5Sclose(fileSpace);
+  ++s.count;
+}
+
+void ResultsFile::setAttribute(const std::string& object, const std::string& name, const std::string& value) {
+  hid_t obj = object == "/" ? H5Gopen2(file_, "/", H5P_DEFAULT) : ensureGroup(object);
+  writeStringAttribute(obj, name, value);
+  H5Gclose(obj);
+}
+
+void ResultsFile::setAttribute(const std::string& object, const std::string& name, double value) {
+  hid_t obj = object == "/" ? H5Gopen2(file_, "/", H5P_DEFAULT) : ensureGroup(object);
+  hid_t space = H5Screate(H5S_SCALAR);
+  if (H5Aexists(obj, name.c_str()) > 0) H5Adelete(obj, name.c_str());
+  hid_t attr = H5Acreate2(obj, name.c_str(), H5T_NATIVE_DOUBLE, space, H5P_DEFAULT, H5P_DEFAULT);
+  H5Awrite(attr, H5T_NATIVE_DOUBLE, &value);
+  H5Aclose(attr);
+  H5Sclose(space);
+  H5Gclose(obj);
+}
+
+void ResultsFile::setAttribute(const std::string& object, const std::string& name, long value) {
+  hid_t obj = object == "/" ? H5Gopen2(file_, "/", H5P_DEFAULT) : ensureGroup(object);
+  hid_t space = H5Screate(H5S_SCALAR);
+  if (H5Aexists(obj, name.c_str()) > 0) H5Adelete(obj, name.c_str());
+  hid_t attr = H5Acreate2(obj, name.c_str(), H5T_NATIVE_LONG, space, H5P_DEFAULT, H5P_DEFAULT);
+  H5Awrite(attr, H5T_NATIVE_LONG, &value);
+  H5Aclose(attr);
+  H5Sclose(space);
+  H5Gclose(obj);
+}
+
+std::string ResultsFile::commit(const std::string& otherPath) {
+  for (Series& s : series_) H5Dclose(s.dataset);
+  series_.clear();
+  checkH5(H5Fclose(file_), "close " + temporaryPath_);
+  file_ = -1;
+  std::string target = otherPath.empty() ? finalPath_ : otherPath;
+  std::filesystem::rename(temporaryPath_, target);
+  committed_ = true;
+  return target;
+}
+
+}  // namespace thermorph

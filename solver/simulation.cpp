@@ -1,0 +1,278 @@
+#include "solver/simulation.hpp"
+
+#include <chrono>
+#include <cmath>
+#include <ctime>
+#include <filesystem>
+#include <numeric>
+
+#include <fmt/format.h>
+
+#include "solver/results.hpp"
+
+namespace thermorph {
+namespace {
+
+constexpr double kelvinOffset = 273.15;
+const char* caution =
+    "Model estimates for research; not veterinary or medical advice. Thresholds such as critical tissue "
+    "temperatures vary by species and must come from your own sources; follow local regulations and licensed "
+    "practice.";
+
+std::string nowIso() {
+  std::time_t t = std::time(nullptr);
+  char buffer[32];
+  std::strftime(buffer, sizeof buffer, "%Y-%m-%dT%H:%M:%SZ", std::gmtime(&t));
+  return buffer;
+}
+
+//! Writes outputs as they come: one time point per call.
+class Recorder {
+ public:
+  Recorder(const Body& body, const NetworkSystem& system, const RunOptions& options)
+      : body_(body), system_(system), network_(body.network()) {
+    if (options.output.empty()) return;
+    file_ = std::make_unique<ResultsFile>(options.output);
+    ResultsFile& f = *file_;
+    f.setAttribute("/", "tool_version", std::string(THERMORPH_VERSION));
+    f.setAttribute("/", "command_line", options.commandLine);
+    f.setAttribute("/", "case", resolvedCaseToml(body.spec()));
+    f.setAttribute("/", "title", body.spec().title);
+    f.setAttribute("/", "created", nowIso());
+    f.setAttribute("/", "caution", std::string(caution));
+    f.setAttribute("/", "complete", 0L);
+    time_ = f.createSeries("/time", {}, "s");
+    for (Index c = 0; c < network_.channels.size(); ++c)
+      bodyFlow_.push_back(f.createSeries("/body/heat_flow/" + network_.channels[c], {}, "W"));
+    bodyStorage_ = f.createSeries("/body/heat_flow/storage", {}, "W");
+    for (Index c = 0; c < network_.channels.size(); ++c)
+      bodyEnergy_.push_back(f.createSeries("/body/cumulative_heat/" + network_.channels[c], {}, "J"));
+    balance_ = f.createSeries("/body/energy_balance_error", {}, "J");
+    for (const SegmentMesh& m : body.segments()) {
+      std::string g = "/segments/" + m.name;
+      f.writeArray(g + "/radius", m.radius, {m.radius.size()}, "m");
+      f.writeArray(g + "/axial", m.axial, {m.axial.size()}, "m");
+      f.writeIntArray(g + "/layer", m.layer, "1");
+      f.writeStringArrayAttribute(g + "/layer", "layer_names", m.layerNames);
+      f.writeArray(g + "/volume", m.volume, {static_cast<std::uint64_t>(m.nz), static_cast<std::uint64_t>(m.nr)}, "m3");
+      f.setAttribute(g, "shape", std::string(shapeName(m.shape)));
+      f.setAttribute(g, "surface_area", m.area);
+      Segment s;
+      s.temperature = f.createSeries(g + "/temperature", {static_cast<std::uint64_t>(m.nz), static_cast<std::uint64_t>(m.nr)}, "degC");
+      s.surface = f.createSeries(g + "/surface_temperature", {static_cast<std::uint64_t>(m.nz)}, "degC");
+      for (Index c = 0; c < network_.channels.size(); ++c)
+        s.flows.push_back(f.createSeries(g + "/heat_flow/" + network_.channels[c], {}, "W"));
+      s.storage = f.createSeries(g + "/heat_flow/storage", {}, "W");
+      segments_.push_back(s);
+    }
+  }
+
+  //! Record time t with full state y (nodes then channel energies).
+  void record(double t, std::span<const double> y, double initialStored, RunSummary& summary) {
+    const Index groups = network_.groups.size(), channels = network_.channels.size();
+    summary.flows.assign(groups * channels, 0.0);
+    summary.storage.assign(groups, 0.0);
+    faceTemperatures_.assign(network_.faces.size(), 0.0);
+    system_.groupFlows(t, y.first(system_.nodeCount()), summary.flows, summary.storage, faceTemperatures_);
+    summary.channelEnergy.assign(y.begin() + static_cast<std::ptrdiff_t>(system_.nodeCount()), y.end());
+    summary.storedChange = system_.storedHeat(y) - initialStored;
+    double gained = std::accumulate(summary.channelEnergy.begin(), summary.channelEnergy.end(), 0.0);
+    summary.energyBalanceError = gained - summary.storedChange;
+    summary.throughput = std::abs(summary.storedChange);
+    for (double e : summary.channelEnergy) summary.throughput += std::abs(e);
+    summary.finalTime = t;
+    if (!file_) return;
+    ResultsFile& f = *file_;
+    double tt = t;
+    f.append(time_, {&tt, 1});
+    for (Index c = 0; c < channels; ++c) {
+      double total = 0.0;
+      for (Index g = 0; g < groups; ++g) total += network_.groupWeights[g] * summary.flows[g * channels + c];
+      f.append(bodyFlow_[c], {&total, 1});
+      f.append(bodyEnergy_[c], {&summary.channelEnergy[c], 1});
+    }
+    double storage = 0.0;
+    for (Index g = 0; g < groups; ++g) storage += network_.groupWeights[g] * summary.storage[g];
+    f.append(bodyStorage_, {&storage, 1});
+    f.append(balance_, {&summary.energyBalanceError, 1});
+    for (Index g = 0; g < groups; ++g) {
+      const SegmentMesh& m = body_.segments()[g];
+      buffer_.resize(static_cast<std::size_t>(m.nz * m.nr));
+      for (std::size_t i = 0; i < buffer_.size(); ++i) buffer_[i] = y[m.offset + i] - kelvinOffset;
+      f.append(segments_[g].temperature, buffer_);
+      buffer_.resize(static_cast<std::size_t>(m.nz));
+      for (int iz = 0; iz < m.nz; ++iz) buffer_[static_cast<std::size_t>(iz)] = faceTemperatures_[m.lateralFace[iz]] - kelvinOffset;
+      f.append(segments_[g].surface, buffer_);
+      for (Index c = 0; c < channels; ++c) f.append(segments_[g].flows[c], {&summary.flows[g * channels + c], 1});
+      f.append(segments_[g].storage, {&summary.storage[g], 1});
+    }
+  }
+
+  void finish(RunSummary& summary, bool steady) {
+    if (!file_) return;
+    ResultsFile& f = *file_;
+    const SolverStatistics& s = summary.statistics;
+    f.setAttribute("/solver", "method", std::string(steady ? "KINSOL Newton, KLU" : "CVODE BDF, Newton, KLU"));
+    f.setAttribute("/solver", "steps", s.steps);
+    f.setAttribute("/solver", "rhs_evaluations", s.rhsEvaluations);
+    f.setAttribute("/solver", "jacobian_evaluations", s.jacobianEvaluations);
+    f.setAttribute("/solver", "nonlinear_iterations", s.nonlinearIterations);
+    f.setAttribute("/solver", "error_test_failures", s.errorTestFailures);
+    f.setAttribute("/solver", "wall_seconds", s.wallSeconds);
+    f.setAttribute("/", "complete", summary.complete ? 1L : 0L);
+    if (!summary.complete) f.setAttribute("/", "failure", summary.failure);
+    std::filesystem::path out(f.temporaryPath());
+    if (summary.complete) {
+      summary.outputPath = f.commit();
+    } else {
+      // Never clobber an earlier complete result with a partial one.
+      std::filesystem::path final = body_.spec().sourceFile;
+      std::string partial = file_->commit(incompletePath());
+      summary.outputPath = partial;
+    }
+  }
+
+  std::string incompletePath() const {
+    return incompletePath_;
+  }
+  void setIncompletePath(std::string p) { incompletePath_ = std::move(p); }
+
+ private:
+  struct Segment {
+    std::size_t temperature = 0, surface = 0, storage = 0;
+    std::vector<std::size_t> flows;
+  };
+  const Body& body_;
+  const NetworkSystem& system_;
+  const Network& network_;
+  std::unique_ptr<ResultsFile> file_;
+  std::size_t time_ = 0, bodyStorage_ = 0, balance_ = 0;
+  std::vector<std::size_t> bodyFlow_, bodyEnergy_;
+  std::vector<Segment> segments_;
+  std::vector<double> faceTemperatures_, buffer_;
+  std::string incompletePath_;
+};
+
+std::string incompleteName(const std::string& output) {
+  std::filesystem::path p(output);
+  return (p.parent_path() / (p.stem().string() + ".incomplete" + p.extension().string())).string();
+}
+
+std::vector<double> steadyTemperatures(const Body& body, std::span<const double> guess, SolverStatistics* stats) {
+  NetworkSystem steady(body.network(), NetworkSystem::Mode::Steady);
+  return solveSteadyState(steady, guess, 0.0, stats);
+}
+
+}  // namespace
+
+RunSummary runTransient(const Body& body, const RunOptions& options) {
+  const Case& c = body.spec();
+  NetworkSystem system(body.network(), NetworkSystem::Mode::Transient);
+  const Index nodes = system.nodeCount();
+  std::vector<double> y(system.size(), 0.0);
+  std::fill(y.begin(), y.begin() + static_cast<std::ptrdiff_t>(nodes), c.run.initialTemperature);
+  if (c.run.initial == InitialCondition::Steady) {
+    std::vector<double> steady = steadyTemperatures(body, std::span<const double>(y).first(nodes), nullptr);
+    std::copy(steady.begin(), steady.end(), y.begin());
+  }
+  IntegratorOptions io;
+  io.rtol = c.run.rtol;
+  io.maxStep = c.run.maxStep;
+  io.linearSolver = options.linearSolver;
+  io.atol.assign(system.size(), c.run.atol);
+  // Channel energies are exact quadratures of the flows: excluded from the error test.
+  for (Index i = nodes; i < system.size(); ++i) io.atol[i] = 1e30;
+
+  RunSummary summary;
+  Recorder recorder(body, system, options);
+  recorder.setIncompletePath(options.output.empty() ? "" : incompleteName(options.output));
+  const double initialStored = system.storedHeat(y);
+  Integrator integrator(system, y, 0.0, io);
+  recorder.record(0.0, integrator.state(), initialStored, summary);
+
+  const auto start = std::chrono::steady_clock::now();
+  auto lastReport = start;
+  bool reported = false;
+  const long outputs = std::lround(std::ceil(c.run.duration / c.run.outputInterval - 1e-9));
+  try {
+    for (long k = 1; k <= outputs; ++k) {
+      double t = std::min(c.run.duration, static_cast<double>(k) * c.run.outputInterval);
+      integrator.advanceTo(t);
+      recorder.record(t, integrator.state(), initialStored, summary);
+      auto now = std::chrono::steady_clock::now();
+      if (!options.quiet && std::chrono::duration<double>(now - start).count() > 1.0 &&
+          std::chrono::duration<double>(now - lastReport).count() > 0.25) {
+        double wall = std::chrono::duration<double>(now - start).count();
+        std::fprintf(stderr, "\r  t = %.0f / %.0f s (%3.0f%%)  %ld steps  %.3g simulated s per wall s   ", t,
+                     c.run.duration, 100.0 * t / c.run.duration, integrator.statistics().steps, t / wall);
+        lastReport = now;
+        reported = true;
+      }
+    }
+  } catch (const SolverError& e) {
+    summary.complete = false;
+    summary.failure = e.what();
+  }
+  if (reported) std::fprintf(stderr, "\n");
+  summary.statistics = integrator.statistics();
+  summary.finalState.assign(integrator.state().begin(), integrator.state().begin() + static_cast<std::ptrdiff_t>(nodes));
+  recorder.finish(summary, false);
+  return summary;
+}
+
+RunSummary runSteady(const Body& body, const RunOptions& options) {
+  const Case& c = body.spec();
+  NetworkSystem transient(body.network(), NetworkSystem::Mode::Transient);
+  const Index nodes = transient.nodeCount();
+  std::vector<double> guess(nodes, c.run.initialTemperature);
+  RunSummary summary;
+  Recorder recorder(body, transient, options);
+  recorder.setIncompletePath(options.output.empty() ? "" : incompleteName(options.output));
+  std::vector<double> steady = steadyTemperatures(body, guess, &summary.statistics);
+  std::vector<double> y(transient.size(), 0.0);
+  std::copy(steady.begin(), steady.end(), y.begin());
+  recorder.record(0.0, y, transient.storedHeat(y), summary);
+  summary.finalState = steady;
+  recorder.finish(summary, true);
+  return summary;
+}
+
+void printBudget(const Body& body, const RunSummary& s, std::FILE* out) {
+  const Network& n = body.network();
+  const Index channels = n.channels.size();
+  std::string header = fmt::format("{:<16}", "segment [W]");
+  for (const std::string& ch : n.channels) header += fmt::format("{:>12}", ch);
+  header += fmt::format("{:>12}", "storage");
+  fmt::print(out, "\nHeat budget at t = {:g} s (W, positive into the body)\n{}\n", s.finalTime, header);
+  std::vector<double> body_(channels + 1, 0.0);
+  for (Index g = 0; g < n.groups.size(); ++g) {
+    double w = n.groupWeights[g];
+    std::string row = fmt::format("{:<16}", w == 1.0 ? n.groups[g] : fmt::format("{} x{:g}", n.groups[g], w));
+    for (Index c = 0; c < channels; ++c) {
+      row += fmt::format("{:>12.4g}", s.flows[g * channels + c] * w);
+      body_[c] += s.flows[g * channels + c] * w;
+    }
+    row += fmt::format("{:>12.4g}", s.storage[g] * w);
+    body_[channels] += s.storage[g] * w;
+    fmt::print(out, "{}\n", row);
+  }
+  std::string total = fmt::format("{:<16}", "whole body");
+  for (double v : body_) total += fmt::format("{:>12.4g}", v);
+  fmt::print(out, "{}\n", total);
+  if (!s.channelEnergy.empty() && s.finalTime > 0.0) {
+    std::string energy = fmt::format("{:<16}", "run total [kJ]");
+    for (double e : s.channelEnergy) energy += fmt::format("{:>12.4g}", e / 1e3);
+    energy += fmt::format("{:>12.4g}", s.storedChange / 1e3);
+    fmt::print(out, "{}\n", energy);
+    fmt::print(out, "Energy balance error: {:.3g} J ({:.2g} of the {:.4g} kJ exchanged)\n", s.energyBalanceError,
+               s.throughput > 0 ? std::abs(s.energyBalanceError) / s.throughput : 0.0, s.throughput / 1e3);
+  }
+  const SolverStatistics& st = s.statistics;
+  fmt::print(out,
+             "Solver: {} steps, {} rhs evaluations, {} Jacobians, {} Newton iterations, {} error-test failures, "
+             "{:.3f} s wall\n",
+             st.steps, st.rhsEvaluations, st.jacobianEvaluations, st.nonlinearIterations, st.errorTestFailures,
+             st.wallSeconds);
+}
+
+}  // namespace thermorph

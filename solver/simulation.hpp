@@ -1,0 +1,42 @@
+#pragma once
+//! Runs a discretised body: transient (CVODE) or steady (KINSOL), recording results and the heat budget.
+#include <cstdio>
+#include <string>
+#include <vector>
+
+#include "models/body.hpp"
+#include "solver/integrator.hpp"
+
+namespace thermorph {
+
+struct RunOptions {
+  std::string output;        //!< HDF5 path ("" : no file)
+  std::string commandLine;   //!< stored with the results
+  bool quiet = false;        //!< no progress on stderr
+  LinearSolverKind linearSolver = LinearSolverKind::Klu;
+};
+
+struct RunSummary {
+  bool complete = true;
+  std::string outputPath;        //!< file written
+  std::string failure;           //!< solver failure message when incomplete
+  double finalTime = 0.0;        //!< [s]
+  SolverStatistics statistics;
+  std::vector<double> flows;     //!< final heat flows [groups x channels] [W], unweighted
+  std::vector<double> storage;   //!< final storage per group [W]
+  std::vector<double> channelEnergy;  //!< cumulative heat per channel over the run [J], weighted
+  double storedChange = 0.0;     //!< change of stored heat over the run [J]
+  double energyBalanceError = 0.0;    //!< sum of channel energies minus stored change [J]
+  double throughput = 0.0;       //!< gross heat exchanged, for the relative error [J]
+  std::vector<double> finalState;     //!< node temperatures [K]
+  std::vector<std::string> warnings;
+};
+
+//! Integrate the case from its initial state for run.duration; output every run.output_interval.
+RunSummary runTransient(const Body& body, const RunOptions& options);
+//! Steady state of the case (KINSOL), written with one time point.
+RunSummary runSteady(const Body& body, const RunOptions& options);
+//! Per-segment heat budget table, whole-body totals and the energy-balance error.
+void printBudget(const Body& body, const RunSummary& summary, std::FILE* out);
+
+}  // namespace thermorph
