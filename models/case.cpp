@@ -107,7 +107,7 @@ class CaseReader {
       try {
         value = toSI(*text, p, density);
       } catch (const UnitError& e) {
-        fail(&node, path, fmt::format("{} = {}: {} (expected a {} in {}, e.g. {})", lastComponent(path), shown,
+        fail(&node, path, fmt::format("{} = {}: {}; expected a {} in {} or a convertible unit, e.g. {}", lastComponent(path), shown,
                                       e.what(), quantityName(p.unit), p.unit, example(p)));
       }
     } else {

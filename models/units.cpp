@@ -80,8 +80,8 @@ double convertUnit(double value, std::string_view unit, std::string_view siUnit)
   UnitPtr to = parseUnit(siUnit);
   if (!to) throw UnitError(fmt::format("internal: bad SI unit \"{}\"", siUnit));
   if (!ut_are_convertible(from.get(), to.get()))
-    throw UnitError(fmt::format("unit \"{}\" is not a {} (expected a unit convertible to {})", unit,
-                                quantityName(siUnit), siUnit));
+    throw UnitError(fmt::format("unit \"{}\" is not a {} (not convertible to {})", unit, quantityName(siUnit),
+                                siUnit));
   cv_converter* converter = ut_get_converter(from.get(), to.get());
   double result = cv_convert_double(converter, value);
   cv_free(converter);

@@ -17,14 +17,16 @@ void checkH5(long long status, const std::string& what) {
 }
 
 void writeStringAttribute(hid_t object, const std::string& name, const std::string& value) {
+  // Variable-length UTF-8: read back as text (str in h5py), not bytes.
   hid_t type = H5Tcopy(H5T_C_S1);
-  H5Tset_size(type, value.empty() ? 1 : value.size());
+  H5Tset_size(type, H5T_VARIABLE);
   H5Tset_cset(type, H5T_CSET_UTF8);
   hid_t space = H5Screate(H5S_SCALAR);
   if (H5Aexists(object, name.c_str()) > 0) H5Adelete(object, name.c_str());
   hid_t attr = H5Acreate2(object, name.c_str(), type, space, H5P_DEFAULT, H5P_DEFAULT);
   checkH5(attr, "create attribute " + name);
-  H5Awrite(attr, type, value.empty() ? "" : value.c_str());
+  const char* text = value.c_str();
+  H5Awrite(attr, type, &text);
   H5Aclose(attr);
   H5Sclose(space);
   H5Tclose(type);

@@ -1,0 +1,44 @@
+#!/usr/bin/env bash
+# thermorph set-up on Debian 12: installs missing Debian packages, builds, then runs the demo or the tests.
+#   bash setup.sh demo    simulate the demo case and draw its figures (results/)
+#   bash setup.sh test    run every test (ctest)
+#   bash setup.sh build   only install and build
+set -euo pipefail
+here="$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)"
+cd "$here"
+action="${1:-demo}"
+
+packages=(cmake make g++ pkg-config libeigen3-dev libsundials-dev libhdf5-dev catch2 libtomlplusplus-dev
+          libcli11-dev libfmt-dev libudunits2-dev libopenmpi-dev openmpi-bin python3 python3-numpy python3-h5py
+          python3-matplotlib python3-scipy time)
+missing=()
+for p in "${packages[@]}"; do
+  dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed" || missing+=("$p")
+done
+if ((${#missing[@]})); then
+  echo "Installing missing Debian packages: ${missing[*]}"
+  sudo=""; [[ $(id -u) -ne 0 ]] && sudo="sudo"
+  $sudo apt-get update -q
+  $sudo env DEBIAN_FRONTEND=noninteractive apt-get install -y -q --no-install-recommends "${missing[@]}"
+fi
+
+# Debian's numpy/h5py/matplotlib belong to /usr/bin/python3; a python3 earlier on PATH may lack them.
+python=/usr/bin/python3
+jobs="$(nproc 2>/dev/null || echo 2)"
+cmake -S . -B build -DCMAKE_BUILD_TYPE=Release -DTHERMORPH_PYTHON="$python" >/dev/null
+cmake --build build -j"$jobs"
+
+case "$action" in
+  build) ;;
+  demo)
+    mkdir -p results
+    build/thermorph check cases/limb_cooling.toml
+    build/thermorph run cases/limb_cooling.toml -o results/limb_cooling.h5
+    "$python" postproc/figures.py results/limb_cooling.h5 --out results/figures
+    echo "Demo results in results/limb_cooling.h5, figures in results/figures/"
+    ;;
+  test)
+    ctest --test-dir build --output-on-failure -j"$jobs"
+    ;;
+  *) echo "usage: bash setup.sh [demo|test|build]" >&2; exit 2 ;;
+esac

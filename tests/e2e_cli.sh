@@ -1,0 +1,43 @@
+#!/usr/bin/env bash
+# End-to-end: the demo case runs and matches its stored summary; bad input exits 2 and never clobbers results.
+# Arguments: THERMORPH_EXE SOURCE_DIR PYTHON
+set -uo pipefail
+exe="$1"; src="$2"; python="${3:-/usr/bin/python3}"
+work="$(mktemp -d)"; trap 'rm -rf "$work"' EXIT
+fail() { echo "FAIL: $*"; exit 1; }
+
+# 1. Demo case: runs, writes results, prints the budget, matches the stored summary.
+"$exe" run "$src/cases/limb_cooling.toml" -o "$work/demo.h5" --quiet > "$work/out.txt" || fail "demo run exit $?"
+grep -q "Heat budget" "$work/out.txt" || fail "no budget table"
+grep -q "Energy balance error" "$work/out.txt" || fail "no energy balance line"
+"$python" "$src/tests/regression.py" "$work/demo.h5" "$src/tests/data/limb_cooling.summary.json" || fail "demo regression"
+
+# 2. Bad input: exit 2, message names the key, the earlier result survives byte for byte.
+cp "$work/demo.h5" "$work/keep.h5"
+"$exe" run "$src/cases/limb_cooling.toml" -o "$work/demo.h5" --set environment.temperature="5 kg" 2> "$work/err.txt"
+rc=$?; [[ $rc -eq 2 ]] || fail "bad unit gave exit $rc, expected 2"
+grep -q "environment.temperature" "$work/err.txt" || fail "message lacks the key path: $(cat "$work/err.txt")"
+cmp -s "$work/demo.h5" "$work/keep.h5" || fail "a failed run changed the earlier result"
+ls -a "$work" | grep -q "tmp-" && fail "temporary file left behind"
+
+"$exe" run "$work/missing.toml" 2> "$work/err.txt"; rc=$?
+[[ $rc -eq 2 ]] || fail "missing file gave exit $rc"
+grep -q "cannot open" "$work/err.txt" || fail "missing-file message: $(cat "$work/err.txt")"
+
+# 3. check, steady, and the resolved case round trip.
+"$exe" check "$src/cases/limb_cooling.toml" > "$work/check.txt" || fail "check exit $?"
+grep -q "forelimb" "$work/check.txt" || fail "check does not list the segment"
+"$exe" check "$src/cases/limb_cooling.toml" --resolved > "$work/resolved.toml" || fail "resolved exit $?"
+"$exe" check "$work/resolved.toml" > /dev/null || fail "the resolved case does not load"
+"$exe" steady "$src/cases/limb_cooling.toml" -o "$work/steady.h5" --quiet > /dev/null || fail "steady exit $?"
+"$python" - "$work/steady.h5" <<'PY' || fail "steady result layout"
+import sys, h5py
+with h5py.File(sys.argv[1]) as f:
+    assert f["time"].shape == (1,), f["time"].shape
+    assert f["segments/forelimb/temperature"].shape[0] == 1
+    for name, ds in f["body/heat_flow"].items():
+        assert ds.attrs["units"] == "W", name
+    assert int(f.attrs["complete"]) == 1
+    assert "[[segments]]" in f.attrs["case"]
+PY
+echo "e2e_cli: all checks passed"
