@@ -62,11 +62,12 @@ MitchellShape mitchellConstants(Geometry geometry) {
 
 namespace {
 
-inline constexpr ValidityRange kMitchellShape{"Mitchell (1976) constants (sphere row used for this shape)",
+//! Only Mitchell's sphere row is known here; other shapes reuse it (warned once).
+inline constexpr ValidityRange kMitchellShape{"Mitchell (1976) shape constants, sphere row reused",
                                               "geometry (0 sphere, 1 cylinder, 2 plate)", "", 0.0, 0.0};
 
 //! Square of the floor on the relative density difference of free convection [-].
-constexpr double kBuoyancyFloorSquared = 1e-12;
+constexpr double kBuoyancyFloorSquared = 1e-16;
 
 //! h and dimensionless groups at one surface temperature (no derivative).
 ConvectionResult evaluateAt(const ConvectionInput& in, double surfaceTemperature, bool checkRanges) {
@@ -156,7 +157,7 @@ ConvectionResult evaluateAt(const ConvectionInput& in, double surfaceTemperature
         const double viscosityRatio = stream.viscosity / surface.viscosity;
         check(kWhitakerRe, r.reynolds);
         check(kWhitakerPr, stream.prandtl);
-        check(kWhitakerViscosityRatio, viscosityRatio);
+        if (in.medium != Medium::Air) check(kWhitakerViscosityRatio, viscosityRatio);
         const double nuForced = nusseltSphereForced(r.reynolds, stream.prandtl, viscosityRatio);
         const double hConductionForced = 2.0 * stream.conductivity / in.length;
         const double hConductionFree = 2.0 * film.conductivity / in.length;

@@ -13,8 +13,6 @@ namespace thermorph {
 //! Standard acceleration of gravity [m/s2] (CGPM 1901, exact).
 inline constexpr double kStandardGravity = 9.80665;
 
-inline constexpr double kInf = std::numeric_limits<double>::infinity();
-
 // ---- forced convection -------------------------------------------------------------
 
 //! Mean Nusselt number of a cylinder in cross flow [-], length = diameter.
@@ -23,7 +21,7 @@ inline constexpr double kInf = std::numeric_limits<double>::infinity();
 //! properties at the film temperature; valid Re Pr >= 0.2.
 double nusseltCylinderCrossFlow(double reynolds, double prandtl);
 inline constexpr ValidityRange kChurchillBernsteinRePr{"Churchill & Bernstein (1977) cylinder in cross flow",
-                                                       "Re*Pr", "", 0.2, kInf};
+                                                       "Re*Pr", "", 0.2, std::numeric_limits<double>::infinity()};
 
 //! Mean Nusselt number of a sphere in forced flow [-], length = diameter.
 //! Whitaker (1972), AIChE J. 18:361:
@@ -31,7 +29,10 @@ inline constexpr ValidityRange kChurchillBernsteinRePr{"Churchill & Bernstein (1
 //! properties at the free stream except mu_s at the surface.
 double nusseltSphereForced(double reynolds, double prandtl, double viscosityRatio);
 inline constexpr ValidityRange kWhitakerRe{"Whitaker (1972) sphere in forced flow", "Re", "", 3.5, 7.6e4};
-inline constexpr ValidityRange kWhitakerPr{"Whitaker (1972) sphere in forced flow", "Pr", "", 0.71, 380.0};
+//! Whitaker's lower Pr limit 0.71 is air's; 0.69 here so that air from Table A.4 (Pr 0.69-0.72 over
+//! 200-400 K) is not flagged. The viscosity ratio is checked for liquids only: in a gas it lies near 1
+//! (0.95 for 20 degC air on a 40 degC surface) and its 1/4 power changes Nu by under 2 %.
+inline constexpr ValidityRange kWhitakerPr{"Whitaker (1972) sphere in forced flow", "Pr", "", 0.69, 380.0};
 inline constexpr ValidityRange kWhitakerViscosityRatio{"Whitaker (1972) sphere in forced flow", "mu/mu_s", "", 1.0,
                                                        3.2};
 
@@ -63,7 +64,8 @@ inline constexpr ValidityRange kChurchillChuCylinderRa{"Churchill & Chu (1975) h
 //! Nu = 2 + 0.589 Ra^{1/4} / [1 + (0.469/Pr)^{9/16}]^{4/9}, Ra <= 1e11, Pr >= 0.7.
 double nusseltSphereFree(double rayleigh, double prandtl);
 inline constexpr ValidityRange kChurchillSphereRa{"Churchill (1983) sphere, free", "Ra", "", 0.0, 1e11};
-inline constexpr ValidityRange kChurchillSpherePr{"Churchill (1983) sphere, free", "Pr", "", 0.7, kInf};
+inline constexpr ValidityRange kChurchillSpherePr{"Churchill (1983) sphere, free", "Pr", "", 0.7,
+                                                  std::numeric_limits<double>::infinity()};
 
 //! Mean Nusselt number of a vertical plate in free convection [-], length = height.
 //! Churchill & Chu (1975), IJHMT 18:1323, all Ra:
@@ -144,7 +146,7 @@ struct ConvectionResult {
 //!    Churchill & Chu; horizontal plate the mean of its upper- and lower-face coefficients, length
 //!    area/perimeter. Grashof number g |rho_inf - rho_s|/rho_f L^3/nu^2 (so water near its density
 //!    maximum is right); for air beta = 1/T_film, i.e. g (|Ts - Tinf|/T_film) L^3/nu^2 (Incropera).
-//!    The buoyancy term is floored smoothly, sqrt(b^2 + 1e-12), so h is smooth at Ts = Tinf.
+//!    The buoyancy term is floored smoothly, sqrt(b^2 + 1e-16), so h is smooth at Ts = Tinf.
 //!  - Mixed: Churchill-Usagi, n = 3. For a sphere the conduction limit 2 k/D is taken out of both
 //!    parts before blending and added back once (so speed 0 gives exactly the free-convection value).
 //!  - dh_dTs: central difference with Ts +- 0.01 K (smooth across branch switches; truncation error

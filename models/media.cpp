@@ -2,12 +2,14 @@
 
 #include <algorithm>
 #include <array>
+#include <atomic>
 #include <cmath>
 #include <cstddef>
 #include <mutex>
 #include <set>
 #include <span>
 #include <stdexcept>
+#include <utility>
 
 #include <fmt/format.h>
 
@@ -20,6 +22,7 @@ struct WarningLog {
   std::mutex mutex;
   std::set<std::string, std::less<>> issued;  // "correlation|parameter"
   std::vector<std::string> pending;
+  std::atomic<unsigned> generation{0};  // bumped by resetValidityWarnings
 };
 WarningLog& warningLog() {
   static WarningLog log;
@@ -29,13 +32,25 @@ WarningLog& warningLog() {
 
 bool checkValidity(const ValidityRange& range, double value) {
   if (range.contains(value)) return false;
-  std::string key = fmt::format("{}|{}", range.correlation, range.parameter);
   WarningLog& log = warningLog();
+  // Fast path without the lock: pairs this thread has already reported since the last reset.
+  thread_local unsigned seenGeneration = ~0u;
+  thread_local std::vector<std::pair<std::string, std::string>> seen;
+  const unsigned generation = log.generation.load(std::memory_order_acquire);
+  if (seenGeneration != generation) {
+    seen.clear();
+    seenGeneration = generation;
+  }
+  for (const auto& [correlation, parameter] : seen)
+    if (correlation == range.correlation && parameter == range.parameter) return true;
+  seen.emplace_back(range.correlation, range.parameter);
+
+  std::string key = fmt::format("{}|{}", range.correlation, range.parameter);
   std::lock_guard lock(log.mutex);
   if (log.issued.insert(std::move(key)).second) {
     const std::string unit = range.unit.empty() ? std::string() : fmt::format(" {}", range.unit);
-    log.pending.push_back(fmt::format("{}: {} = {:.6g}{} outside the validity range [{:.6g}, {:.6g}]{}", range.correlation,
-                                      range.parameter, value, unit, range.min, range.max, unit));
+    log.pending.push_back(fmt::format("{}: {} = {:.6g}{} outside the validity range [{:.6g}, {:.6g}]{}",
+                                      range.correlation, range.parameter, value, unit, range.min, range.max, unit));
   }
   return true;
 }
@@ -53,6 +68,7 @@ void resetValidityWarnings() {
   std::lock_guard lock(log.mutex);
   log.issued.clear();
   log.pending.clear();
+  log.generation.fetch_add(1, std::memory_order_release);
 }
 
 // ---- table interpolation --------------------------------------------------------
@@ -98,7 +114,7 @@ double clampToRange(const ValidityRange& range, double value, bool& clamped) {
 // Incropera, DeWitt, Bergman & Lavine, Fundamentals of Heat and Mass Transfer, 6th ed.,
 // Table A.4, dry air at atmospheric pressure. Rows 250, 300, 350 K (nu, k, Pr) and rho, cp, mu
 // at 300 K as checked in shared/REFERENCES.md; the rest from memory (consistent with
-// nu = mu/rho and Pr = mu cp/k to 0.1 %, and with Sutherland's law to 0.2 %).
+// nu = mu/rho and Pr = mu cp/k to 0.1 %, and with Sutherland's law to 0.6 %).
 // The densities equal the ideal gas at 1.000e5 Pa.
 constexpr std::array<double, 5> kAirT{200, 250, 300, 350, 400};                          // K
 constexpr std::array<double, 5> kAirRho{1.7458, 1.3947, 1.1614, 0.9950, 0.8711};         // kg/m3
@@ -128,8 +144,10 @@ struct DensityAndSlope {
 };
 DensityAndSlope kellDensity(double temperatureK) {
   const double t = temperatureK - kZeroCelsius;
-  const double num = 999.83952 + t * (16.945176 + t * (-7.9870401e-3 + t * (-46.170461e-6 + t * (105.56302e-9 + t * -280.54253e-12))));
-  const double dnum = 16.945176 + t * (2 * -7.9870401e-3 + t * (3 * -46.170461e-6 + t * (4 * 105.56302e-9 + t * 5 * -280.54253e-12)));
+  constexpr double c0 = 999.83952, c1 = 16.945176, c2 = -7.9870401e-3, c3 = -46.170461e-6, c4 = 105.56302e-9,
+                   c5 = -280.54253e-12;
+  const double num = c0 + t * (c1 + t * (c2 + t * (c3 + t * (c4 + t * c5))));
+  const double dnum = c1 + t * (2 * c2 + t * (3 * c3 + t * (4 * c4 + t * 5 * c5)));
   const double den = 1.0 + 16.879850e-3 * t;
   const double dden = 16.879850e-3;
   return {num / den, (dnum * den - num * dden) / (den * den)};
