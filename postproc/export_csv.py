@@ -25,8 +25,9 @@ from pathlib import Path
 import h5py
 import numpy as np
 
-# Datasets in a segment group that are coordinates, not time series (results contract).
-SEGMENT_STATIC = {"radius", "axial", "layer"}
+# Datasets in a segment group that are not time series: coordinates (results contract) and
+# the cell volumes [nz, nr] that thermorph also writes.
+SEGMENT_STATIC = {"radius", "axial", "layer", "volume"}
 # Column order: contract order for known names, then alphabetical.
 PREFERRED_ORDER = ("start", "end", "label",
                    "core_temperature", "blood_temperature", "mean_skin_temperature", "energy_balance_error",
@@ -182,8 +183,11 @@ def export_group(h5: h5py.File, group_path: str, out: Path, recursive: bool = Fa
         columns = [[str(i) for i in range(values.shape[0])]]
         if values.ndim == 1:
             columns.append(column_text(values))
-        else:
-            heads = ["index"] + [header(f"{name}[{j}]", units_of(ds)) for j in range(values[0].size)]
+        else:  # first index down the rows (column `z` or `i`), the rest across, e.g. volume[r=5]
+            dims = _dim_names(group_path, name, values.ndim)
+            heads = [dims[0]] + [
+                header(f"{name}[{','.join(f'{d}={i}' for d, i in zip(dims[1:], idx))}]", units_of(ds))
+                for idx in np.ndindex(*values.shape[1:])]
             flat = values.reshape(values.shape[0], -1)
             columns += [column_text(flat[:, j]) for j in range(flat.shape[1])]
         if "layer_names" in ds.attrs and values.ndim == 1:

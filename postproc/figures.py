@@ -113,8 +113,8 @@ def title_prefix(res: Results) -> str:
 
 
 def case_title(res: Results) -> str:
-    """Case title from the stored case, else the results file name."""
-    title = res.case.get("title")
+    """Title from the root attribute `title` or the stored case, else the results file name."""
+    title = res.attr("title") or res.case.get("title")
     return str(title) if title else res.path.name
 
 
@@ -277,6 +277,7 @@ def budget(results, out_dir, units: str = "physiology", segments=None, window=No
             ax_bar.bar(x + 0.3, np.nan_to_num(storage), 0.18, color="white", edgecolor=CHANNEL_COLOUR["storage"],
                        hatch="////", lw=0.8, label="storage (rate of heat stored)")
         ax_bar.axhline(0.0, color="black", lw=0.8)
+        ax_bar.set_xlim(-0.75, len(segs) - 0.25)  # keep bars slim when there are few segments
         # Storage is often small beside the channels: its value goes under each segment name.
         ax_bar.set_xticks(x, [s.name + ("\nstorage " + f"{st:+.3g}".replace("-", "\u2212") + " W"
                                        if np.isfinite(st) else "") for s, st in zip(segs, storage)])

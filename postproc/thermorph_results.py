@@ -164,7 +164,9 @@ class Segment:
 
     @property
     def shape(self) -> str:
-        """Shape name from the stored case (sphere|cylinder|cone|plate), or "" if unknown."""
+        """Shape name (sphere|cylinder|cone|plate) from the group attribute or the stored case, or ""."""
+        if "shape" in self.group.attrs:
+            return _text(self.group.attrs["shape"])
         return str(self.case_entry.get("shape", "")) if self.case_entry else ""
 
     @property
@@ -206,23 +208,34 @@ class Segment:
             return []
         return ordered_channels(list(self.group["heat_flow"].keys()))
 
+    def cell_volumes(self) -> np.ndarray:
+        """Volume of each cell [m3] ([nz, nr]), or relative volumes [1] when not stored.
+
+        Uses the optional dataset `volume` [nz, nr] when the file has it; otherwise
+        estimates from the cell-centre coordinates (faces from faces_from_centres)
+        and the shape: radial weights r^k dr (radial_cell_weights) times axial cell
+        length (a cone's taper along its length is then not weighted).
+        """
+        nz = len(self.axial)
+        if self.has("volume"):
+            vol = np.asarray(self.read("volume").values, dtype=float)
+            if vol.shape == (nz, len(self.radius)):
+                return vol
+        w_r = radial_cell_weights(self.radius, self.shape)
+        w_z = np.diff(faces_from_centres(self.axial)) if nz > 1 else np.ones(1)
+        return np.outer(w_z, w_r)
+
     def mean_tissue_temperature(self) -> np.ndarray:
         """Volume-weighted mean temperature of the tissue cells, coat excluded [degC] ([nt]).
 
-        Cell volumes are estimated from the cell-centre coordinates (faces from
-        faces_from_centres) and the shape in the stored case: radial weights
-        r^k dr (radial_cell_weights), axial weights the axial cell length. For a
-        cone the change of radius along the length is not weighted.
+        Weights from cell_volumes(); coat cells get weight 0 (all cells count if
+        the segment were coat only).
         """
         temp = self.read("temperature").values  # [nt, nz, nr]
-        w_r = radial_cell_weights(self.radius, self.shape)
+        w = self.cell_volumes()
         coat = self.coat_layer()
-        if coat is not None:
-            w_r = np.where(self.layer == coat, 0.0, w_r)
-            if w_r.sum() == 0.0:
-                w_r = radial_cell_weights(self.radius, self.shape)
-        w_z = np.diff(faces_from_centres(self.axial)) if temp.shape[1] > 1 else np.ones(1)
-        w = np.outer(w_z, w_r)
+        if coat is not None and np.any(self.layer != coat):
+            w = np.where((self.layer == coat)[None, :], 0.0, w)
         return np.tensordot(temp, w, axes=([1, 2], [0, 1])) / w.sum()
 
     def mean_surface_temperature(self) -> np.ndarray:

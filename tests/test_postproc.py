@@ -108,6 +108,18 @@ def check_mean_tissue_excludes_coat(sample: Path, tmp: Path):
         seg = res.segments(["left_ear"])[0]
         got = seg.mean_tissue_temperature()
         check(np.allclose(got, 30.0, rtol=0, atol=1e-12), f"mean tissue temperature with coat: {got[:3]}")
+    # With a stored `volume` [nz, nr] (thermorph writes one) the mean uses it: all volume in the
+    # cell z=2, r=1 gives that cell's temperature exactly (definition of a volume-weighted mean).
+    with h5py.File(copy, "r+") as f:
+        temp = f["segments/left_ear/temperature"]
+        nz, nr = temp.shape[1:]
+        temp[:, 2, 1] = 33.25
+        vol = np.zeros((nz, nr))
+        vol[2, 1] = 1e-6
+        f.create_dataset("segments/left_ear/volume", data=vol).attrs["units"] = "m3"
+    with tr.Results(copy) as res:
+        got = res.segments(["left_ear"])[0].mean_tissue_temperature()
+        check(np.allclose(got, 33.25, rtol=0, atol=1e-12), f"mean tissue temperature from volume: {got[:3]}")
 
 
 # ---- figures ------------------------------------------------------------------------------
@@ -168,7 +180,7 @@ def is_static(path: str) -> bool:
     """Datasets not indexed by time (results contract): segment coordinates and /events."""
     parts = path.strip("/").split("/")
     return parts[0] == "events" or (len(parts) == 3 and parts[0] == "segments"
-                                    and parts[2] in ("radius", "axial", "layer"))
+                                    and parts[2] in ("radius", "axial", "layer", "volume"))
 
 
 def check_export_all(sample: Path, out: Path):
@@ -203,6 +215,14 @@ def check_export_all(sample: Path, out: Path):
                 same(cols[0], f["time"][()], f"{stem}.csv time column")
                 check(ds.shape[0] == nt, f"{name}: time series of length {ds.shape[0]} != {nt}")
             values = ds[()]
+            if values.ndim == 2 and is_static(name):  # e.g. volume [nz, nr]: rows z, columns r
+                for j in range(values.shape[1]):
+                    col = f"{base}[r={j}] [{units}]"
+                    check(col in head, f"{name}: column {col!r} missing")
+                    if col in head:
+                        same(cols[head.index(col)], values[:, j], f"{name}[:, {j}]")
+                covered += 1
+                continue
             if values.ndim <= 1 or is_static(name):
                 col = f"{base} [{units}]"
                 check(col in head, f"{name}: column {col!r} not in {head[:6]}...")
@@ -225,7 +245,11 @@ def check_export_all(sample: Path, out: Path):
         head, cols = read_csv(out / "solver.csv")
         rows = dict(zip(cols[0], cols[1])) if cols else {}
         for key, value in f["solver"].attrs.items():
-            check(key in rows and float(rows[key]) == float(value), f"solver attribute {key}")
+            if isinstance(value, (bytes, str)):
+                ok = key in rows and rows[key] == (value.decode() if isinstance(value, bytes) else value)
+            else:
+                ok = key in rows and float(rows[key]) == float(value)
+            check(ok, f"solver attribute {key}")
     return covered
 
 
