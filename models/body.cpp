@@ -9,15 +9,6 @@ namespace thermorph {
 
 using std::numbers::pi;
 
-void EnvironmentModel::faceHeat(Index face, double faceTemperature, double /*time*/, std::span<double> channelHeat,
-                                std::span<double> channelDerivative) const {
-  // Newton cooling: q = h A (T_medium - T_s), positive into the body.
-  const FaceInfo& f = faces[face];
-  double hA = f.convectionCoefficient * f.area;
-  channelHeat[convectionChannel] += hA * (mediumTemperature - faceTemperature);
-  channelDerivative[convectionChannel] -= hA;
-}
-
 namespace {
 
 //! Radial cell boundaries of one cross-section: tissue layers scaled by `scale`, then the coat.
@@ -63,13 +54,11 @@ double sectionArea(Shape shape, double a, double b, double width) {
 
 }  // namespace
 
-Body::Body(const Case& c) : case_(c), environment_(std::make_unique<EnvironmentModel>()) {
-  network_.surface = environment_.get();
-  network_.channel("metabolism");
+Body::Body(const Case& c) : case_(c) {
   metabolismChannel_ = network_.channel("metabolism");
   bloodChannel_ = network_.channel("blood");
-  environment_->convectionChannel = network_.channel("convection");
-  environment_->mediumTemperature = case_.environment.temperature;
+  environment_ = std::make_unique<EnvironmentModel>(case_, network_);
+  network_.surface = environment_.get();
   if (!case_.circulation.fixedArterialTemperature)
     for (const SegmentSpec& s : case_.segments)
       for (const LayerSpec& l : s.layers)
@@ -184,6 +173,7 @@ void Body::addSegment(const SegmentSpec& s, Index group) {
     }
     m.lateralFace.push_back(network_.faces.size());
     network_.faces.push_back({m.node(iz, nr - 1), half, area});
+    environment_->addFace({group, s.shape, true, area, s.shape == Shape::Plate ? s.length : 2.0 * rOut, 0.0});
     m.area += area;
     // Axial conduction through the shared face at z1 (same tissue on both sides).
     if (iz + 1 < nz) {
@@ -201,14 +191,11 @@ void Body::addSegment(const SegmentSpec& s, Index group) {
       for (int ir = 0; ir < nr; ++ir) {
         double section = sectionArea(s.shape, ce.bounds[ir], ce.bounds[ir + 1], s.width);
         network_.faces.push_back({m.node(iz, ir), tissue[ir]->conductivity * section / (0.5 * dz), section});
+        environment_->addFace({group, s.shape, false, section, 2.0 * ce.bounds[nr], 0.0});
         m.area += section;
       }
     }
   }
-  // Convection coefficient of every face of this segment.
-  double h = s.surface.convectionCoefficient.value_or(case_.environment.convectionCoefficient);
-  environment_->faces.resize(network_.faces.size(), {h, 0.0});
-  for (Index f = 0; f < network_.faces.size(); ++f) environment_->faces[f].area = network_.faces[f].area;
   meshes_.push_back(std::move(m));
 }
 

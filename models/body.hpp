@@ -5,6 +5,7 @@
 #include <vector>
 
 #include "models/case.hpp"
+#include "models/environment.hpp"
 #include "solver/network.hpp"
 
 namespace thermorph {
@@ -28,21 +29,6 @@ struct SegmentMesh {
   Index node(int iz, int ir) const { return offset + static_cast<Index>(iz * nr + ir); }
 };
 
-//! Surface exchange with the medium (fixed convection coefficient in this version).
-class EnvironmentModel : public SurfaceModel {
- public:
-  struct FaceInfo {
-    double convectionCoefficient = 0.0;  //!< [W/(m2 K)]
-    double area = 0.0;                   //!< [m2]
-  };
-  void faceHeat(Index face, double faceTemperature, double time, std::span<double> channelHeat,
-                std::span<double> channelDerivative) const override;
-
-  std::vector<FaceInfo> faces;
-  double mediumTemperature = 293.15;  //!< [K]
-  Index convectionChannel = 0;
-};
-
 //! The discretised body: network, meshes and the environment model it points to.
 class Body {
  public:
@@ -53,7 +39,8 @@ class Body {
   const Case& spec() const { return case_; }
   const Network& network() const { return network_; }
   const std::vector<SegmentMesh>& segments() const { return meshes_; }
-  const EnvironmentModel& environment() const { return *environment_; }
+  //! The surroundings; the run loop sets its timeline interval, hence non-const.
+  EnvironmentModel& environment() const { return *environment_; }
 
  private:
   void addSegment(const SegmentSpec& s, Index group);

@@ -6,6 +6,7 @@
 #include <string>
 #include <vector>
 
+#include "models/environment_spec.hpp"
 #include "models/tissues.hpp"
 
 namespace thermorph {
@@ -17,7 +18,6 @@ class CaseError : public std::runtime_error {
 };
 
 enum class Shape { Sphere, Cylinder, Cone, Plate };
-enum class EndCondition { Exposed, Insulated };
 enum class InitialCondition { Temperature, Steady };
 
 const char* shapeName(Shape shape);
@@ -34,11 +34,6 @@ struct CoatSpec {
   std::string material;
   double thickness = 0.0;  //!< [m]
   int cells = 1;
-};
-
-struct SurfaceSpec {
-  EndCondition ends = EndCondition::Exposed;            //!< cylinder and cone end faces
-  std::optional<double> convectionCoefficient;          //!< per-segment fixed coefficient [W/(m2 K)]
 };
 
 //! One body segment: geometry, layers, coat and surface.
@@ -75,11 +70,6 @@ struct CirculationSpec {
   double q10Reference = 310.15;       //!< reference temperature of tissue Q10 [K]
 };
 
-struct EnvironmentSpec {
-  double temperature = 293.15;            //!< medium temperature [K]
-  double convectionCoefficient = 10.0;    //!< fixed convection coefficient [W/(m2 K)]
-};
-
 struct Case {
   std::string title;
   std::string sourceFile;  //!< path of the case file
@@ -88,6 +78,7 @@ struct Case {
   std::map<std::string, TissueProperties> tissues;  //!< built-ins merged with [tissues.*]
   std::vector<SegmentSpec> segments;
   EnvironmentSpec environment;
+  std::vector<EventSpec> events;
 };
 
 //! Upper limit on the total number of nodes in one case (memory and run time guard).

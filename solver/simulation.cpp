@@ -48,6 +48,8 @@ class Recorder {
     for (Index c = 0; c < network_.channels.size(); ++c)
       bodyEnergy_.push_back(f.createSeries("/body/cumulative_heat/" + network_.channels[c], {}, "J"));
     balance_ = f.createSeries("/body/energy_balance_error", {}, "J");
+    for (const EnvironmentSeries& e : body.environment().series())
+      environment_.push_back(f.createSeries("/environment/" + e.name, {}, e.units));
     for (const SegmentMesh& m : body.segments()) {
       std::string g = "/segments/" + m.name;
       f.writeArray(g + "/radius", m.radius, {m.radius.size()}, "m");
@@ -63,6 +65,7 @@ class Recorder {
       for (Index c = 0; c < network_.channels.size(); ++c)
         s.flows.push_back(f.createSeries(g + "/heat_flow/" + network_.channels[c], {}, "W"));
       s.storage = f.createSeries(g + "/heat_flow/storage", {}, "W");
+      s.convection = f.createSeries(g + "/convection_coefficient", {}, "W m-2 K-1");
       segments_.push_back(s);
     }
   }
@@ -95,6 +98,9 @@ class Recorder {
     for (Index g = 0; g < groups; ++g) storage += network_.groupWeights[g] * summary.storage[g];
     f.append(bodyStorage_, {&storage, 1});
     f.append(balance_, {&summary.energyBalanceError, 1});
+    environmentValues_.resize(environment_.size());
+    body_.environment().seriesValues(t, environmentValues_);
+    for (std::size_t e = 0; e < environment_.size(); ++e) f.append(environment_[e], {&environmentValues_[e], 1});
     for (Index g = 0; g < groups; ++g) {
       const SegmentMesh& m = body_.segments()[g];
       buffer_.resize(static_cast<std::size_t>(m.nz * m.nr));
@@ -105,6 +111,8 @@ class Recorder {
       f.append(segments_[g].surface, buffer_);
       for (Index c = 0; c < channels; ++c) f.append(segments_[g].flows[c], {&summary.flows[g * channels + c], 1});
       f.append(segments_[g].storage, {&summary.storage[g], 1});
+      double h = body_.environment().meanConvectionCoefficient(g, t, faceTemperatures_);
+      f.append(segments_[g].convection, {&h, 1});
     }
   }
 
@@ -139,7 +147,7 @@ class Recorder {
 
  private:
   struct Segment {
-    std::size_t temperature = 0, surface = 0, storage = 0;
+    std::size_t temperature = 0, surface = 0, storage = 0, convection = 0;
     std::vector<std::size_t> flows;
   };
   const Body& body_;
@@ -147,9 +155,9 @@ class Recorder {
   const Network& network_;
   std::unique_ptr<ResultsFile> file_;
   std::size_t time_ = 0, bodyStorage_ = 0, balance_ = 0;
-  std::vector<std::size_t> bodyFlow_, bodyEnergy_;
+  std::vector<std::size_t> bodyFlow_, bodyEnergy_, environment_;
   std::vector<Segment> segments_;
-  std::vector<double> faceTemperatures_, buffer_;
+  std::vector<double> faceTemperatures_, buffer_, environmentValues_;
   std::string incompletePath_;
 };
 
@@ -194,9 +202,18 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   auto lastReport = start;
   bool reported = false;
   const long outputs = std::lround(std::ceil(c.run.duration / c.run.outputInterval - 1e-9));
+  // Discontinuities of the timeline: the integrator stops exactly at each and restarts (never steps across).
+  std::vector<double> breakpoints = body.environment().breakpoints();
+  std::size_t interval = 0;
+  body.environment().setInterval(0);
   try {
     for (long k = 1; k <= outputs; ++k) {
       double t = std::min(c.run.duration, static_cast<double>(k) * c.run.outputInterval);
+      while (interval < breakpoints.size() && breakpoints[interval] <= t) {
+        integrator.advanceTo(breakpoints[interval]);
+        body.environment().setInterval(++interval);
+        integrator.restart();
+      }
       integrator.advanceTo(t);
       recorder.record(t, integrator.state(), initialStored, summary);
       auto now = std::chrono::steady_clock::now();

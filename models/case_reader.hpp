@@ -1,0 +1,310 @@
+#pragma once
+//! Reading typed, unit-checked values from a TOML case against the schema. Internal to models/ case loading;
+//! every failure is a CaseError naming file, line, column, key path, value and what is allowed.
+#include <algorithm>
+#include <cmath>
+#include <optional>
+#include <sstream>
+#include <string>
+#include <vector>
+
+#include <fmt/format.h>
+#include <toml++/toml.h>
+
+#include "models/case.hpp"
+#include "models/case_schema.hpp"
+#include "models/units.hpp"
+
+namespace thermorph {
+
+inline std::size_t editDistance(std::string_view a, std::string_view b) {
+  std::vector<std::size_t> row(b.size() + 1);
+  for (std::size_t j = 0; j <= b.size(); ++j) row[j] = j;
+  for (std::size_t i = 1; i <= a.size(); ++i) {
+    std::size_t diag = row[0];
+    row[0] = i;
+    for (std::size_t j = 1; j <= b.size(); ++j) {
+      std::size_t up = row[j];
+      row[j] = std::min({row[j] + 1, row[j - 1] + 1, diag + (a[i - 1] == b[j - 1] ? 0 : 1)});
+      diag = up;
+    }
+  }
+  return row[b.size()];
+}
+
+inline std::string lastComponent(std::string_view pattern) {
+  auto pos = pattern.find_last_of('.');
+  std::string_view tail = pos == std::string_view::npos ? pattern : pattern.substr(pos + 1);
+  return std::string(tail);
+}
+
+inline std::string parentPattern(std::string_view pattern) {
+  auto pos = pattern.find_last_of('.');
+  return pos == std::string_view::npos ? std::string() : std::string(pattern.substr(0, pos));
+}
+
+//! Reads typed values from the TOML tree against the schema; every failure is a CaseError with location.
+class CaseReader {
+ public:
+  explicit CaseReader(std::string file) : file_(std::move(file)) {}
+
+  [[noreturn]] void fail(const toml::node* node, const std::string& path, const std::string& what) const {
+    std::string where = file_;
+    if (node && node->source().begin.line > 0)
+      where += fmt::format(":{}:{}", node->source().begin.line, node->source().begin.column);
+    else if (node)
+      where += " (--set on the command line)";
+    throw CaseError(fmt::format("{}: {}: {}", where, path, what));
+  }
+
+  //! Check every key below `table` against the schema (recursively).
+  void checkKeys(const toml::table& table, const std::string& pattern, const std::string& display) const {
+    for (auto&& [key, node] : table) {
+      std::string k(key.str());
+      std::string childPattern = pattern.empty() ? k : pattern + "." + k;
+      std::string childDisplay = display.empty() ? k : display + "." + k;
+      const Param* p = findParam(childPattern);
+      if (!p) unknownKey(&node, pattern, childDisplay, k);
+      checkNode(node, *p, childPattern, childDisplay);
+    }
+  }
+
+  std::string formatValue(const toml::node& node) const {
+    std::ostringstream os;
+    if (node.is_string()) os << '"' << *node.value<std::string>() << '"';
+    else if (node.is_table()) os << "a table";
+    else if (node.is_array()) os << "an array";
+    else if (node.is_integer()) os << *node.value<int64_t>();
+    else if (node.is_floating_point()) os << *node.value<double>();
+    else if (node.is_boolean()) os << (*node.value<bool>() ? "true" : "false");
+    else os << "a value";
+    return os.str();
+  }
+
+  //! SI value of a quantity node (number in SI, or a string with a unit), range-checked.
+  double quantity(const toml::node& node, const Param& p, const std::string& path, double density = 0.0) const {
+    double value = 0.0;
+    std::string shown = formatValue(node);
+    if (auto number = node.value<double>(); number && !node.is_string()) {
+      value = *number;
+    } else if (auto text = node.value<std::string>()) {
+      try {
+        value = toSI(*text, p, density);
+      } catch (const UnitError& e) {
+        fail(&node, path, fmt::format("{} = {}: {}; expected a {} in {} or a convertible unit, e.g. {}", lastComponent(path), shown,
+                                      e.what(), quantityName(p.unit), p.unit, example(p)));
+      }
+    } else {
+      fail(&node, path, fmt::format("{} is not a number or a quantity string (expected a {} in {}, e.g. {})", shown,
+                                    quantityName(p.unit), p.unit, example(p)));
+    }
+    checkRange(&node, p, path, value, shown);
+    return value;
+  }
+
+  double toSI(const std::string& text, const Param& p, double density) const {
+    if (p.kind == ParamKind::Perfusion) {
+      ValueWithUnit vu = splitValueUnit(text);
+      if (!vu.unit.empty() && !unitConvertible(vu.unit, "1/s") && unitConvertible(vu.unit, "m3/(kg s)")) {
+        // Volume of blood per tissue mass per time, times tissue density: omega [1/s].
+        return convertUnit(vu.value, vu.unit, "m3/(kg s)") * density;
+      }
+    }
+    return parseQuantity(text, p.unit);
+  }
+
+  void checkRange(const toml::node* node, const Param& p, const std::string& path, double value,
+                  const std::string& shown) const {
+    bool belowMin = p.minExclusive ? !(value > p.min) : !(value >= p.min);
+    if (!std::isfinite(value) || belowMin || value > p.max) {
+      std::string unit = p.unit.empty() ? "" : " " + std::string(p.unit);
+      std::string hint;
+      if (p.unit == "K" && value < p.min && value > -100 && value < 100)
+        hint = fmt::format(" (a bare number is in kelvin; did you mean \"{} degC\"?)", value);
+      fail(node, path,
+           fmt::format("{} = {}: out of range, allowed {} {:g}{} to {:g}{}{}", lastComponent(path), shown,
+                       p.minExclusive ? ">" : ">=", p.min, unit, p.max, unit, hint));
+    }
+  }
+
+  double number(const toml::node& node, const Param& p, const std::string& path) const {
+    auto v = node.value<double>();
+    if (!v || node.is_string()) fail(&node, path, fmt::format("{} must be a plain number", formatValue(node)));
+    checkRange(&node, p, path, *v, formatValue(node));
+    return *v;
+  }
+
+  long integer(const toml::node& node, const Param& p, const std::string& path) const {
+    auto v = node.value<int64_t>();
+    if (!v || !node.is_integer()) fail(&node, path, fmt::format("{} must be an integer", formatValue(node)));
+    checkRange(&node, p, path, static_cast<double>(*v), formatValue(node));
+    return static_cast<long>(*v);
+  }
+
+  std::string text(const toml::node& node, const std::string& path) const {
+    auto v = node.value<std::string>();
+    if (!v || !node.is_string()) fail(&node, path, fmt::format("{} must be a string", formatValue(node)));
+    return *v;
+  }
+
+  std::string choice(const toml::node& node, const Param& p, const std::string& path) const {
+    std::string v = text(node, path);
+    std::string choices(p.choices);
+    std::vector<std::string> options;
+    std::stringstream ss(choices);
+    for (std::string item; std::getline(ss, item, '|');) options.push_back(item);
+    if (std::find(options.begin(), options.end(), v) == options.end())
+      fail(&node, path, fmt::format("\"{}\" is not one of: {}", v, fmt::join(options, ", ")));
+    return v;
+  }
+
+  const std::string& file() const { return file_; }
+
+ private:
+  static std::string example(const Param& p) {
+    if (!p.defaultValue.empty()) return fmt::format("\"{}\"", p.defaultValue);
+    return fmt::format("\"1 {}\"", p.unit);
+  }
+
+  void checkNode(const toml::node& node, const Param& p, const std::string& pattern, const std::string& display) const {
+    switch (p.kind) {
+      case ParamKind::Table:
+        if (!node.is_table()) fail(&node, display, fmt::format("expected a table, got {}", formatValue(node)));
+        checkKeys(*node.as_table(), pattern, display);
+        break;
+      case ParamKind::NamedTables:
+        if (!node.is_table()) fail(&node, display, "expected a table of named tables, e.g. [tissues.muscle]");
+        for (auto&& [name, child] : *node.as_table()) {
+          std::string d = display + "." + std::string(name.str());
+          if (!child.is_table()) fail(&child, d, "expected a table");
+          checkKeys(*child.as_table(), pattern + ".*", d);
+        }
+        break;
+      case ParamKind::TableArray: {
+        const toml::array* array = node.as_array();
+        if (!array) fail(&node, display, "expected an array of tables ([[" + display + "]] or [{...}, ...])");
+        for (std::size_t i = 0; i < array->size(); ++i) {
+          const toml::node& element = (*array)[i];
+          std::string d = display + "." + elementLabel(element, i);
+          if (!element.is_table()) fail(&element, d, "expected a table");
+          checkKeys(*element.as_table(), pattern + "[]", d);
+        }
+        break;
+      }
+      default:
+        if (node.is_table() || node.is_array())
+          fail(&node, display, fmt::format("expected a value, got {}", formatValue(node)));
+        break;
+    }
+  }
+
+ public:
+  static std::string elementLabel(const toml::node& element, std::size_t index) {
+    if (const toml::table* t = element.as_table())
+      if (auto name = (*t)["name"].value<std::string>()) return *name;
+    return std::to_string(index);
+  }
+
+ private:
+  [[noreturn]] void unknownKey(const toml::node* node, const std::string& parent, const std::string& display,
+                               const std::string& key) const {
+    std::vector<std::string> siblings;
+    std::string normalizedParent = parent;
+    for (const Param& p : caseSchema())
+      if (parentPattern(p.path) == normalizedParent) siblings.push_back(lastComponent(p.path));
+    std::sort(siblings.begin(), siblings.end(), [&](const std::string& a, const std::string& b) {
+      return editDistance(key, a) < editDistance(key, b);
+    });
+    std::string suggestion;
+    if (!siblings.empty() && editDistance(key, siblings.front()) <= std::max<std::size_t>(2, key.size() / 3))
+      suggestion = fmt::format("; did you mean \"{}\"?", siblings.front());
+    std::sort(siblings.begin(), siblings.end());
+    fail(node, display,
+         fmt::format("unknown key \"{}\"{} (valid keys here: {})", key, suggestion, fmt::join(siblings, ", ")));
+  }
+
+  std::string file_;
+};
+
+//! Typed access to one table of the case, with its schema pattern and display path.
+class TableView {
+ public:
+  TableView(const CaseReader& reader, const toml::table* table, std::string pattern, std::string display)
+      : reader_(reader), table_(table), pattern_(std::move(pattern)), display_(std::move(display)) {}
+
+  const toml::node* node(std::string_view key) const { return table_ ? table_->get(key) : nullptr; }
+  bool has(std::string_view key) const { return node(key) != nullptr; }
+  const Param& param(std::string_view key) const {
+    const Param* p = findParam(join(pattern_, key));
+    if (!p) throw std::logic_error("schema has no " + join(pattern_, key));
+    return *p;
+  }
+  std::string path(std::string_view key) const { return join(display_, key); }
+
+  std::optional<double> optionalQuantity(std::string_view key, double density = 0.0) const {
+    const Param& p = param(key);
+    if (const toml::node* n = node(key)) return reader_.quantity(*n, p, path(key), density);
+    if (p.defaultValue.empty()) return std::nullopt;
+    return parseQuantity(p.defaultValue, p.unit);
+  }
+  double quantity(std::string_view key, double density = 0.0) const {
+    if (auto v = optionalQuantity(key, density)) return *v;
+    missing(key);
+  }
+  double number(std::string_view key) const {
+    const Param& p = param(key);
+    if (const toml::node* n = node(key)) return reader_.number(*n, p, path(key));
+    return std::stod(std::string(p.defaultValue));
+  }
+  int integer(std::string_view key) const {
+    const Param& p = param(key);
+    if (const toml::node* n = node(key)) return static_cast<int>(reader_.integer(*n, p, path(key)));
+    if (p.defaultValue.empty()) missing(key);
+    return std::stoi(std::string(p.defaultValue));
+  }
+  std::string text(std::string_view key) const {
+    const Param& p = param(key);
+    if (const toml::node* n = node(key)) return reader_.text(*n, path(key));
+    if (p.defaultValue.empty()) missing(key);
+    return std::string(p.defaultValue);
+  }
+  std::optional<std::string> optionalText(std::string_view key) const {
+    param(key);
+    if (const toml::node* n = node(key)) return reader_.text(*n, path(key));
+    return std::nullopt;
+  }
+  std::string choice(std::string_view key) const {
+    const Param& p = param(key);
+    if (const toml::node* n = node(key)) return reader_.choice(*n, p, path(key));
+    if (p.defaultValue.empty()) missing(key);
+    return std::string(p.defaultValue);
+  }
+  TableView child(std::string_view key) const {
+    const toml::node* n = node(key);
+    return TableView(reader_, n ? n->as_table() : nullptr, join(pattern_, key), path(key));
+  }
+  [[noreturn]] void fail(std::string_view key, const std::string& what) const {
+    const toml::node* n = node(key);
+    reader_.fail(n ? n : anchor(), path(key), what);
+  }
+  [[noreturn]] void missing(std::string_view key) const {
+    const Param& p = param(key);
+    reader_.fail(anchor(), path(key),
+                 fmt::format("required key \"{}\" is missing ({}{})", key, p.doc,
+                             p.unit.empty() ? "" : fmt::format(" Unit: {}.", p.unit)));
+  }
+  const toml::node* anchor() const { return table_; }
+  const std::string& display() const { return display_; }
+
+ private:
+  static std::string join(std::string_view a, std::string_view b) {
+    return a.empty() ? std::string(b) : fmt::format("{}.{}", a, b);
+  }
+  const CaseReader& reader_;
+  const toml::table* table_;
+  std::string pattern_;
+  std::string display_;
+};
+
+
+}  // namespace thermorph
