@@ -1,0 +1,131 @@
+#pragma once
+//! Shared helpers of the validation tests: cases from TOML text, transient and steady runs, radial fields,
+//! root bracketing, Jacobian lookup and convergence orders.
+#include <cmath>
+#include <cstdio>
+#include <functional>
+#include <memory>
+#include <span>
+#include <string>
+#include <vector>
+
+#include "models/body.hpp"
+#include "models/case.hpp"
+#include "solver/assembly.hpp"
+#include "solver/integrator.hpp"
+#include "solver/simulation.hpp"
+
+namespace thermorph::testing {
+
+//! A number as TOML text with full double precision (bare numbers are SI in a case file).
+inline std::string num(double value) {
+  char buffer[40];
+  std::snprintf(buffer, sizeof buffer, "%.17g", value);
+  return buffer;
+}
+
+//! Load a case from TOML text and discretise it.
+inline std::unique_ptr<Body> bodyFromToml(const std::string& toml) {
+  return std::make_unique<Body>(loadCaseFromString(toml, "test-case"));
+}
+
+//! Initial transient state: every node at run.initial_temperature, channel energies zero [K, J].
+inline std::vector<double> initialState(const Body& body, const NetworkSystem& system) {
+  std::vector<double> y(system.size(), 0.0);
+  for (Index i = 0; i < system.nodeCount(); ++i) y[i] = body.spec().run.initialTemperature;
+  return y;
+}
+
+//! Integrate the case from its uniform initial temperature with run.rtol and run.atol; node temperatures at
+//! each of `times` [K] ([times.size()][nodes]).
+inline std::vector<std::vector<double>> temperaturesAt(const Body& body, std::span<const double> times) {
+  NetworkSystem system(body.network(), NetworkSystem::Mode::Transient);
+  std::vector<double> y = initialState(body, system);
+  IntegratorOptions options;
+  options.rtol = body.spec().run.rtol;
+  options.atol.assign(system.size(), body.spec().run.atol);
+  // Channel energies are quadratures of the flows: kept out of the error test, as runTransient does.
+  for (Index i = system.nodeCount(); i < system.size(); ++i) options.atol[i] = 1e30;
+  Integrator integrator(system, y, 0.0, options);
+  std::vector<std::vector<double>> out;
+  for (double t : times) {
+    integrator.advanceTo(t);
+    auto s = integrator.state();
+    out.emplace_back(s.begin(), s.begin() + static_cast<std::ptrdiff_t>(system.nodeCount()));
+  }
+  return out;
+}
+
+//! Steady node temperatures by KINSOL from the uniform initial temperature [K].
+inline std::vector<double> steadyTemperatures(const Body& body) {
+  NetworkSystem system(body.network(), NetworkSystem::Mode::Steady);
+  std::vector<double> guess(system.size(), body.spec().run.initialTemperature);
+  return solveSteadyState(system, guess, 0.0);
+}
+
+//! Radial temperature field of one axial cell of a segment, inside out [K] ([nr]).
+inline std::vector<double> radialField(const Body& body, std::span<const double> temperatures, std::size_t segment,
+                                       int iz = 0) {
+  const SegmentMesh& m = body.segments().at(segment);
+  std::vector<double> field;
+  for (int ir = 0; ir < m.nr; ++ir) field.push_back(temperatures[m.node(iz, ir)]);
+  return field;
+}
+
+//! Root of f in [a, b] by bisection (f(a) and f(b) of opposite sign) to the resolution of doubles.
+inline double bisect(const std::function<double(double)>& f, double a, double b) {
+  double fa = f(a);
+  for (int i = 0; i < 200; ++i) {
+    double c = 0.5 * (a + b);
+    if (c <= a || c >= b) break;
+    double fc = f(c);
+    if ((fc < 0.0) == (fa < 0.0)) {
+      a = c;
+      fa = fc;
+    } else {
+      b = c;
+    }
+  }
+  return 0.5 * (a + b);
+}
+
+//! The first `count` positive roots of f: sign changes on a grid of spacing `step` from `start`, then bisection.
+inline std::vector<double> positiveRoots(const std::function<double(double)>& f, int count, double start = 1e-9,
+                                         double step = 1e-2) {
+  std::vector<double> roots;
+  double a = start, fa = f(a);
+  while (static_cast<int>(roots.size()) < count) {
+    double b = a + step, fb = f(b);
+    if ((fa < 0.0) != (fb < 0.0)) roots.push_back(bisect(f, a, b));
+    a = b;
+    fa = fb;
+  }
+  return roots;
+}
+
+//! Value of Jacobian entry (row, col) from values in pattern order; 0 outside the pattern.
+inline double jacobianEntry(const SparsePattern& pattern, std::span<const double> values, Index row, Index col) {
+  for (Index p = pattern.columnStart[col]; p < pattern.columnStart[col + 1]; ++p)
+    if (pattern.rowIndex[p] == row) return values[p];
+  return 0.0;
+}
+
+//! True when (row, col) is in the sparsity pattern.
+inline bool inPattern(const SparsePattern& pattern, Index row, Index col) {
+  for (Index p = pattern.columnStart[col]; p < pattern.columnStart[col + 1]; ++p)
+    if (pattern.rowIndex[p] == row) return true;
+  return false;
+}
+
+//! Observed order of convergence between grids refined by two [1].
+inline double observedOrder(double coarseError, double fineError) { return std::log2(coarseError / fineError); }
+
+//! Run options that write no file and print no progress.
+inline RunOptions silentRun() {
+  RunOptions options;
+  options.output = "";
+  options.quiet = true;
+  return options;
+}
+
+}  // namespace thermorph::testing
