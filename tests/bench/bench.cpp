@@ -1,0 +1,260 @@
+//! thermorph_bench: writes the benchmark cases and times them in-process (scaling, 2-D appendage, KLU vs dense).
+//!
+//!   thermorph_bench cases DIR                  write the benchmark case files into DIR
+//!   thermorph_bench table DIR [--repeat N] [--skip-dense]
+//!                                              run them in this process and print Markdown tables
+//!
+//! Whole-process runs (peak memory, results-file size, the SciPy comparison) are made by run_benchmarks.sh with
+//! /usr/bin/time -v on the thermorph executable, using the same case files. Not part of ctest: a benchmark
+//! measures, it does not pass or fail.
+#include <sys/resource.h>
+
+#include <algorithm>
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <filesystem>
+#include <fstream>
+#include <string>
+#include <vector>
+
+#include <fmt/format.h>
+
+#include "models/body.hpp"
+#include "models/case.hpp"
+#include "solver/simulation.hpp"
+
+namespace {
+
+using namespace thermorph;
+namespace fs = std::filesystem;
+
+// ---- benchmark cases --------------------------------------------------------------------------------------
+// Values are illustrative (not measured on any animal). Every property is written out in SI units so the SciPy
+// reference (scipy_bdf.py) reads the same numbers from the same file.
+
+//! One-tissue radial cylinder (insulated ends, one axial cell): metabolism (Q10), Pennes perfusion with a fixed
+//! arterial temperature, convection at the lateral surface. `cells` radial cells, one simulated hour.
+std::string radialCase(int cells, double outputInterval = 60.0) {
+  return fmt::format(R"(# Benchmark (illustrative values): 1-D radial cylinder, one tissue, {cells} radial cells.
+title = "bench: 1-D radial, {cells} cells"
+
+[run]
+duration = 3600.0          # s
+output_interval = {interval}     # s
+initial_temperature = 310.15
+rtol = 1e-6
+atol = 1e-6
+
+[circulation]
+fixed_arterial_temperature = 310.15
+blood_density = 1050.0
+blood_specific_heat = 3617.0
+
+# Built-in muscle values written out (McIntosh & Anderson 2010, from memory); perfusion 37 mL/(min kg).
+[tissues.muscle]
+conductivity = 0.49
+density = 1090.0
+specific_heat = 3421.0
+metabolic_heat = 684.0
+perfusion = 6.7216666666666667e-4
+q10 = 2.0
+
+[[segments]]
+name = "trunk"
+shape = "cylinder"
+length = 0.2
+radius = 0.04
+axial_cells = 1
+layers = [ {{ tissue = "muscle", thickness = 0.04, cells = {cells} }} ]
+surface = {{ ends = "insulated", convection = 20.0 }}
+
+[environment]
+temperature = 283.15
+convection = 20.0
+)",
+                     fmt::arg("cells", cells), fmt::arg("interval", fmt::format("{:.1f}", outputInterval)));
+}
+
+//! 2-D r-z cone with exposed ends: bone, muscle, fat, skin (10 + 20 + 4 + 6 = 40 radial cells).
+std::string appendageCase(int axial, double duration, double outputInterval) {
+  return fmt::format(R"(# Benchmark (illustrative values): 2-D appendage, {axial} axial x 40 radial cells.
+title = "bench: 2-D appendage {axial} x 40"
+
+[run]
+duration = {duration}        # s
+output_interval = {interval} # s
+initial_temperature = 310.15
+
+[circulation]
+fixed_arterial_temperature = 310.15
+
+[[segments]]
+name = "limb"
+shape = "cone"
+length = 0.25
+radius_proximal = 0.03
+radius_distal = 0.015
+axial_cells = {axial}
+layers = [
+  {{ tissue = "bone",   thickness = 0.008, cells = 10 }},
+  {{ tissue = "muscle", thickness = 0.015, cells = 20 }},
+  {{ tissue = "fat",    thickness = 0.003, cells = 4 }},
+  {{ tissue = "skin",   thickness = 0.004, cells = 6 }},
+]
+surface = {{ ends = "exposed", convection = 25.0 }}
+
+[environment]
+temperature = 278.15
+)",
+                     fmt::arg("axial", axial), fmt::arg("duration", fmt::format("{:.1f}", duration)),
+                     fmt::arg("interval", fmt::format("{:.1f}", outputInterval)));
+}
+
+const std::vector<int> radialSizes = {1000, 10000, 20000, 100000};
+
+std::string radialFile(int cells) { return fmt::format("radial_{}.toml", cells); }
+
+void writeCases(const fs::path& dir) {
+  fs::create_directories(dir);
+  auto write = [&](const std::string& name, const std::string& text) {
+    std::ofstream(dir / name) << text;
+    fmt::print("{}\n", (dir / name).string());
+  };
+  for (int n : radialSizes) write(radialFile(n), radialCase(n));
+  write("radial_20000_hourly.toml", radialCase(20000, 3600.0));  // output only at 0 and 1 h
+  write("appendage_100x40.toml", appendageCase(100, 3600.0, 60.0));
+  write("appendage_125x40.toml", appendageCase(125, 3600.0, 60.0));
+  write("appendage_125x40_day.toml", appendageCase(125, 86400.0, 60.0));
+}
+
+// ---- timing -----------------------------------------------------------------------------------------------
+
+//! Processor time of this process, user + system [s].
+double cpuSeconds() {
+  rusage u{};
+  getrusage(RUSAGE_SELF, &u);
+  return static_cast<double>(u.ru_utime.tv_sec + u.ru_stime.tv_sec) +
+         1e-6 * static_cast<double>(u.ru_utime.tv_usec + u.ru_stime.tv_usec);
+}
+
+struct Measurement {
+  long cells = 0;
+  SolverStatistics stats;
+  double setupWall = 0.0;  //!< case loading and discretisation [s]
+  double runWall = 0.0;    //!< runTransient: assembly set-up, integration, budget at every output [s]
+  double runCpu = 0.0;     //!< processor time of runTransient [s]
+  std::vector<double> finalState;  //!< [K]
+};
+
+//! Load, discretise and integrate `path` (no results file); throws when the run is incomplete.
+Measurement measureOnce(const fs::path& path, LinearSolverKind solver) {
+  Measurement m;
+  auto t0 = std::chrono::steady_clock::now();
+  Case c = loadCase(path.string());
+  Body body(c);
+  auto t1 = std::chrono::steady_clock::now();
+  RunOptions options;
+  options.quiet = true;
+  options.linearSolver = solver;
+  double cpu0 = cpuSeconds();
+  RunSummary s = runTransient(body, options);
+  m.runCpu = cpuSeconds() - cpu0;
+  auto t2 = std::chrono::steady_clock::now();
+  if (!s.complete) throw std::runtime_error(fmt::format("{}: {}", path.string(), s.failure));
+  m.cells = static_cast<long>(body.network().nodes.size());
+  m.stats = s.statistics;
+  m.setupWall = std::chrono::duration<double>(t1 - t0).count();
+  m.runWall = std::chrono::duration<double>(t2 - t1).count();
+  m.finalState = std::move(s.finalState);
+  return m;
+}
+
+//! Best (shortest run wall time) of `repeat` runs: the least disturbed by other load on a shared machine.
+Measurement measure(const fs::path& path, LinearSolverKind solver, int repeat) {
+  Measurement best = measureOnce(path, solver);
+  for (int i = 1; i < repeat; ++i) {
+    Measurement m = measureOnce(path, solver);
+    if (m.runWall < best.runWall) best = std::move(m);
+  }
+  return best;
+}
+
+double maxDifference(const std::vector<double>& a, const std::vector<double>& b) {
+  double d = 0.0;
+  for (std::size_t i = 0; i < std::min(a.size(), b.size()); ++i) d = std::max(d, std::abs(a[i] - b[i]));
+  return d;
+}
+
+const char* header =
+    "| case | cells | steps | rhs evals | Jacobians | lin. setups | Newton its | run wall [s] | run CPU [s] |";
+const char* rule = "|---|---:|---:|---:|---:|---:|---:|---:|---:|";
+
+std::string row(const std::string& name, const Measurement& m) {
+  const SolverStatistics& s = m.stats;
+  return fmt::format("| {} | {} | {} | {} | {} | {} | {} | {:.3f} | {:.3f} |", name, m.cells, s.steps,
+                     s.rhsEvaluations, s.jacobianEvaluations, s.linearSetups, s.nonlinearIterations, m.runWall,
+                     m.runCpu);
+}
+
+int table(const fs::path& dir, int repeat, bool dense) {
+  fmt::print("In-process runs (no results file), best of {} by wall time; run = runTransient (assembly set-up, "
+             "CVODE, heat budget at each of the 61 outputs).\n\n",
+             repeat);
+
+  fmt::print("### 1. 1-D radial cylinder, one tissue, one simulated hour\n\n{}{}\n{}{}\n", header,
+             " wall per cell [us] | CPU per cell [us] | CPU per cell vs 1e3 |", rule, "---:|---:|---:|");
+  double reference = 0.0;
+  for (int n : radialSizes) {
+    Measurement m = measure(dir / radialFile(n), LinearSolverKind::Klu, repeat);
+    double perCell = m.runCpu / static_cast<double>(m.cells);
+    if (reference == 0.0) reference = perCell;
+    fmt::print("{} {:.3f} | {:.3f} | {:.2f} |\n", row(fmt::format("radial {}", n), m),
+               1e6 * m.runWall / static_cast<double>(m.cells), 1e6 * perCell, perCell / reference);
+  }
+
+  fmt::print("\n### 2. 2-D appendage (cone, exposed ends), 100 axial x 40 radial, one simulated hour\n\n{}\n{}\n",
+             header, rule);
+  Measurement app = measure(dir / "appendage_100x40.toml", LinearSolverKind::Klu, repeat);
+  fmt::print("{}\n", row("appendage 100x40", app));
+
+  fmt::print("\n### 3. KLU vs dense at 5,000 cells (appendage 125 x 40, one simulated hour)\n\n{}\n{}\n", header, rule);
+  Measurement klu = measure(dir / "appendage_125x40.toml", LinearSolverKind::Klu, repeat);
+  fmt::print("{}\n", row("KLU", klu));
+  if (dense) {
+    Measurement full = measureOnce(dir / "appendage_125x40.toml", LinearSolverKind::Dense);
+    fmt::print("{}\n", row("dense (1 run)", full));
+    fmt::print("\ndense / KLU: wall {:.1f}x, CPU {:.1f}x (target KLU >= 20x faster: {}); max |T_dense - T_KLU| at "
+               "1 h = {:.2e} K\n",
+               full.runWall / klu.runWall, full.runCpu / klu.runCpu,
+               full.runWall / klu.runWall >= 20.0 ? "met" : "MISSED", maxDifference(full.finalState, klu.finalState));
+  }
+  return 0;
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  std::vector<std::string> args(argv + 1, argv + argc);
+  try {
+    if (args.size() == 2 && args[0] == "cases") {
+      writeCases(args[1]);
+      return 0;
+    }
+    if (args.size() >= 2 && args[0] == "table") {
+      int repeat = 3;
+      bool dense = true;
+      for (std::size_t i = 2; i < args.size(); ++i) {
+        if (args[i] == "--repeat" && i + 1 < args.size()) repeat = std::max(1, std::stoi(args[++i]));
+        else if (args[i] == "--skip-dense") dense = false;
+        else throw std::invalid_argument("unknown option " + args[i]);
+      }
+      return table(args[1], repeat, dense);
+    }
+  } catch (const std::exception& e) {
+    fmt::print(stderr, "error: {}\n", e.what());
+    return 1;
+  }
+  fmt::print(stderr, "usage: thermorph_bench cases DIR\n       thermorph_bench table DIR [--repeat N] [--skip-dense]\n");
+  return 2;
+}
