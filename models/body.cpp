@@ -1,6 +1,8 @@
 #include "models/body.hpp"
 
+#include <algorithm>
 #include <cmath>
+#include <map>
 #include <numbers>
 
 #include <fmt/format.h>
@@ -57,24 +59,280 @@ double sectionArea(Shape shape, double a, double b, double width) {
 Body::Body(const Case& c) : case_(c) {
   metabolismChannel_ = network_.channel("metabolism");
   bloodChannel_ = network_.channel("blood");
+  conductionChannel_ = network_.channel("conduction");
   environment_ = std::make_unique<EnvironmentModel>(case_, network_);
   network_.surface = environment_.get();
-  if (!case_.circulation.fixedArterialTemperature)
-    for (const SegmentSpec& s : case_.segments)
-      for (const LayerSpec& l : s.layers)
-        if (case_.tissues.at(l.tissue).perfusion > 0.0)
-          throw CaseError(fmt::format(
-              "{}: segments.{}: tissue \"{}\" is perfused ({:g} 1/s) but the arterial supply is not defined: set "
-              "[circulation] fixed_arterial_temperature, or perfusion = 0 under [tissues.{}]",
-              case_.sourceFile, s.name, l.tissue, case_.tissues.at(l.tissue).perfusion, l.tissue));
+
+  // Root first, then children breadth first; weights multiply down the tree.
+  std::map<std::string, Index> index;
+  for (Index g = 0; g < case_.segments.size(); ++g) index[case_.segments[g].name] = g;
+  std::vector<double> weight(case_.segments.size(), 1.0);
+  for (Index g = 0; g < case_.segments.size(); ++g)
+    if (case_.segments[g].parent.empty()) order_.push_back(g);
+  for (std::size_t k = 0; k < order_.size(); ++k)
+    for (Index g = 0; g < case_.segments.size(); ++g)
+      if (case_.segments[g].parent == case_.segments[order_[k]].name) {
+        order_.push_back(g);
+        weight[g] = case_.segments[g].count * weight[order_[k]];
+      }
+  core_ = case_.body.coreSegment.empty() ? order_.front() : index.at(case_.body.coreSegment);
+
+  // Area each parent's lateral face loses where children attach (their proximal cross-sections).
+  coveredArea_.resize(case_.segments.size());
+  for (Index g = 0; g < case_.segments.size(); ++g) {
+    const SegmentSpec& s = case_.segments[g];
+    if (s.parent.empty()) continue;
+    const Index p = index.at(s.parent);
+    const SegmentSpec& ps = case_.segments[p];
+    int nz = ps.shape == Shape::Sphere ? 1 : ps.axialCells;
+    coveredArea_[p].resize(static_cast<std::size_t>(nz), 0.0);
+    double outer = s.tissueRadius() + (s.coat ? s.coat->thickness : 0.0);
+    double section = s.shape == Shape::Plate ? 2.0 * s.width * outer : pi * outer * outer;
+    coveredArea_[p][static_cast<std::size_t>(std::clamp(static_cast<int>(s.attachPosition * nz), 0, nz - 1))] += s.count * section;
+  }
+  cellPerfusion_.resize(case_.segments.size());
   for (Index g = 0; g < case_.segments.size(); ++g) {
     network_.groups.push_back(case_.segments[g].name);
-    network_.groupWeights.push_back(1.0);
-    addSegment(case_.segments[g], g);
+    network_.groupWeights.push_back(weight[g]);
+    addSegment(case_.segments[g], g, !case_.segments[g].parent.empty());
+    meshes_.back().weight = weight[g];
+  }
+  for (Index g = 0; g < meshes_.size(); ++g) bodyMass_ += meshes_[g].weight * meshes_[g].tissueMass;
+  if (case_.body.mass) bodyMass_ = *case_.body.mass;
+  attachChildren();
+  scaleMetabolism();
+  buildCirculation();
+}
+
+void Body::scaleMetabolism() {
+  // Whole-body basal rate: the sum of tissue rates, Kleiber's 70 M^0.75 kcal/day (Kleiber 1932, Hilgardia 6:315;
+  // 70 kcal/day = 3.3898 W), or a given power; the last two scale every tissue rate by one factor.
+  double tissueSum = 0.0;
+  for (const HeatSource& src : network_.sources)
+    tissueSum += network_.groupWeights[network_.nodes[src.node].group] * src.power;
+  double target = tissueSum;
+  if (case_.body.basal == BasalRate::Kleiber) target = 70.0 * 4184.0 / 86400.0 * std::pow(bodyMass_, 0.75);
+  if (case_.body.basal == BasalRate::Power) target = case_.body.basalPower;
+  if (case_.body.basal != BasalRate::Tissues && !(tissueSum > 0.0))
+    throw CaseError(fmt::format("{}: body.basal_metabolic_rate: no tissue produces metabolic heat, so there is "
+                                "nothing to scale to the whole-body rate",
+                                case_.sourceFile));
+  double factor = (tissueSum > 0.0 ? target / tissueSum : 1.0) * case_.body.activity;
+  for (HeatSource& src : network_.sources) src.power *= factor;
+  basalRate_ = target * case_.body.activity;
+}
+
+void Body::attachChildren() {
+  // A child's proximal end conducts to the parent's attachment tissue through the child's half-cell axial
+  // resistance; the parent's lateral face there loses the area the children cover.
+  for (Index g = 0; g < case_.segments.size(); ++g) {
+    const SegmentSpec& s = case_.segments[g];
+    if (s.parent.empty()) continue;
+    Index p = 0;
+    while (case_.segments[p].name != s.parent) ++p;
+    const SegmentSpec& ps = case_.segments[p];
+    const SegmentMesh& pm = meshes_[p];
+    const SegmentMesh& cm = meshes_[g];
+    int k = std::clamp(static_cast<int>(s.attachPosition * pm.nz), 0, pm.nz - 1);
+    // Parent radial cell: middle cell of the attachment tissue's layer, else of the innermost layer.
+    int layer = 0;
+    for (std::size_t l = 0; l < ps.layers.size(); ++l)
+      if (ps.layers[l].tissue == s.attachTissue) layer = static_cast<int>(l);
+    int first = 0;
+    for (int l = 0; l < layer; ++l) first += ps.layers[static_cast<std::size_t>(l)].cells;
+    int pr = first + ps.layers[static_cast<std::size_t>(layer)].cells / 2;
+    double dz = s.length / cm.nz;
+    double scale = 1.0;  // proximal cross-section of a cone is at its stated radii
+    double covered = 0.0;
+    double r = 0.0;
+    for (int ir = 0, li = 0, inLayer = 0; ir < cm.nr; ++ir) {
+      const bool coat = s.coat && ir >= cm.nr - s.coat->cells;
+      double dr = coat ? s.coat->thickness / s.coat->cells
+                       : s.layers[static_cast<std::size_t>(li)].thickness * scale / s.layers[static_cast<std::size_t>(li)].cells;
+      double a = r, b = r + dr;
+      r = b;
+      double area = s.shape == Shape::Plate ? 2.0 * s.width * (b - a) : pi * (b * b - a * a);
+      covered += area;
+      const TissueProperties& t = case_.tissues.at(coat ? s.coat->material : s.layers[static_cast<std::size_t>(li)].tissue);
+      network_.conductances.push_back({cm.node(0, ir), pm.node(k, pr), t.conductivity * area / (0.5 * dz), conductionChannel_});
+      if (!coat && ++inLayer == s.layers[static_cast<std::size_t>(li)].cells) {
+        ++li;
+        inLayer = 0;
+      }
+    }
+    (void)covered;
   }
 }
 
-void Body::addSegment(const SegmentSpec& s, Index group) {
+void Body::buildCirculation() {
+  const CirculationSpec& circ = case_.circulation;
+  const double rc = circ.bloodDensity * circ.bloodSpecificHeat;  // [J/(m3 K)]
+  const std::size_t n = case_.segments.size();
+  // Per segment and axial cell: perfusion, shunt, and what the children draw and return (per copy).
+  std::vector<std::vector<double>> perf(n), shunt(n), childDraw(n), childDeep(n), childSuperficial(n);
+  std::vector<double> draw(n, 0.0), deep(n, 0.0), superficialFlow(n, 0.0);
+  std::vector<Index> parentOf(n, n);
+  std::vector<int> attachCell(n, 0);
+  for (Index g = 0; g < n; ++g) {
+    const SegmentSpec& s = case_.segments[g];
+    const SegmentMesh& m = meshes_[g];
+    perf[g].assign(static_cast<std::size_t>(m.nz), 0.0);
+    shunt[g].assign(static_cast<std::size_t>(m.nz), 0.0);
+    childDraw[g] = childDeep[g] = childSuperficial[g] = std::vector<double>(static_cast<std::size_t>(m.nz), 0.0);
+    for (int iz = 0; iz < m.nz; ++iz)
+      for (int ir = 0; ir < m.nr; ++ir) perf[g][static_cast<std::size_t>(iz)] += cellPerfusion_[g][static_cast<std::size_t>(iz * m.nr + ir)];
+    // Shunts open through the skin of the distal half of the axial cells.
+    double shuntTotal = s.vessels.shuntFlowMax * s.vasomotor.shunt;
+    int firstDistal = m.nz / 2;
+    for (int iz = firstDistal; iz < m.nz; ++iz) shunt[g][static_cast<std::size_t>(iz)] = shuntTotal / (m.nz - firstDistal);
+    if (!s.parent.empty()) {
+      Index p = 0;
+      while (case_.segments[p].name != s.parent) ++p;
+      parentOf[g] = p;
+      attachCell[g] = std::clamp(static_cast<int>(s.attachPosition * meshes_[p].nz), 0, meshes_[p].nz - 1);
+    }
+  }
+  // Flows bottom-up (reverse of root-first order): mass is conserved at every junction by construction.
+  for (auto it = order_.rbegin(); it != order_.rend(); ++it) {
+    Index g = *it;
+    const SegmentSpec& s = case_.segments[g];
+    double sigma = s.vasomotor.superficialReturn;
+    double perfusion = 0.0, shunted = 0.0;
+    for (std::size_t iz = 0; iz < perf[g].size(); ++iz) {
+      perfusion += perf[g][iz];
+      shunted += shunt[g][iz];
+      draw[g] += perf[g][iz] + shunt[g][iz] + childDraw[g][iz];
+      deep[g] += (1.0 - sigma) * perf[g][iz] + childDeep[g][iz];
+      superficialFlow[g] += sigma * perf[g][iz] + shunt[g][iz] + childSuperficial[g][iz];
+    }
+    meshes_[g].bloodFlow = draw[g];
+    meshes_[g].perfusionFlow = perfusion;
+    meshes_[g].shuntFlow = shunted;
+    if (parentOf[g] < n) {
+      auto k = static_cast<std::size_t>(attachCell[g]);
+      childDraw[parentOf[g]][k] += s.count * draw[g];
+      childDeep[parentOf[g]][k] += s.count * deep[g];
+      childSuperficial[parentOf[g]][k] += s.count * superficialFlow[g];
+    }
+  }
+  const Index root = order_.front();
+  totalFlow_ = draw[root];
+  bloodVolume_ = case_.body.bloodVolume.value_or(0.07 * bodyMass_ / circ.bloodDensity);  // ~7 % of mass (Stahl 1967, from memory)
+  // Default cardiac output 187 M^0.81 mL/min (Stahl 1967, J. Appl. Physiol. 22:453; from memory).
+  cardiacOutput_ = case_.body.cardiacOutput.value_or(187e-6 / 60.0 * std::pow(bodyMass_, 0.81));
+  if (totalFlow_ > cardiacOutput_)
+    warnings_.push_back(fmt::format("total blood flow {:.4g} mL/min exceeds the cardiac output {:.4g} mL/min",
+                                    totalFlow_ * 6e7, cardiacOutput_ * 6e7));
+  if (!(totalFlow_ > 0.0)) return;  // no circulation: tissues exchange heat by conduction only
+
+  // Blood nodes per axial cell; capacities from the large-vessel blood volume.
+  double vesselVolume = 0.0;
+  for (Index g : order_) {
+    SegmentMesh& m = meshes_[g];
+    const SegmentSpec& s = case_.segments[g];
+    if (!(draw[g] > 0.0)) continue;
+    for (int iz = 0; iz < m.nz; ++iz) {
+      double tissue = 0.0;
+      for (int ir = 0; ir < m.nr; ++ir) tissue += m.volume[static_cast<std::size_t>(iz * m.nr + ir)];
+      double vb = s.vessels.bloodFraction * tissue;
+      auto label = [&](const char* what) { return fmt::format("{}: axial {}, {} blood", s.name, iz, what); };
+      m.arterial.push_back(network_.addNode(rc * vb / 3.0, g, label("arterial")));
+      vesselVolume += m.weight * vb / 3.0;
+      if (deep[g] > 0.0) {
+        m.venous.push_back(network_.addNode(rc * vb / 2.0, g, label("deep venous")));
+        vesselVolume += m.weight * vb / 2.0;
+      }
+      if (superficialFlow[g] > 0.0) {
+        m.superficial.push_back(network_.addNode(rc * vb / 6.0, g, label("superficial venous")));
+        vesselVolume += m.weight * vb / 6.0;
+      }
+    }
+  }
+  if (!circ.fixedArterialTemperature) {
+    double poolVolume = bloodVolume_ - vesselVolume;
+    if (!(poolVolume > 0.0))
+      throw CaseError(fmt::format("{}: body.blood_volume: {:.4g} mL is less than the {:.4g} mL held in segment vessels "
+                                  "(vessels.blood_fraction); raise the blood volume or lower the fractions",
+                                  case_.sourceFile, bloodVolume_ * 1e6, vesselVolume * 1e6));
+    network_.groups.push_back("blood_pool");
+    network_.groupWeights.push_back(1.0);
+    pool_ = network_.addNode(rc * poolVolume, network_.groups.size() - 1, "central blood pool");
+  }
+
+  auto link = [&](Index from, Index to, double flow) {
+    if (flow > 0.0) network_.advections.push_back({from, to, rc * flow, bloodChannel_});
+  };
+  for (Index g : order_) {
+    const SegmentMesh& m = meshes_[g];
+    const SegmentSpec& s = case_.segments[g];
+    if (!(draw[g] > 0.0)) continue;
+    const double sigma = s.vasomotor.superficialReturn;
+    // Arterial inflow at the proximal cell: from the parent's arterial stream, the pool, or pinned blood.
+    if (parentOf[g] < n) {
+      link(meshes_[parentOf[g]].arterial[static_cast<std::size_t>(attachCell[g])], m.arterial[0], draw[g]);
+    } else if (pool_) {
+      link(*pool_, m.arterial[0], draw[g]);
+      if (!m.venous.empty()) link(m.venous[0], *pool_, deep[g]);
+      if (!m.superficial.empty()) link(m.superficial[0], *pool_, superficialFlow[g]);
+    } else {
+      network_.exchanges.push_back({m.arterial[0], rc * draw[g], *circ.fixedArterialTemperature, bloodChannel_});
+    }
+    if (parentOf[g] < n) {
+      const SegmentMesh& pm = meshes_[parentOf[g]];
+      auto k = static_cast<std::size_t>(attachCell[g]);
+      if (!m.venous.empty()) link(m.venous[0], pm.venous.at(k), s.count * deep[g]);
+      if (!m.superficial.empty()) link(m.superficial[0], pm.superficial.at(k), s.count * superficialFlow[g]);
+    }
+    double downstreamArterial = draw[g];
+    double upstreamDeep = deep[g], upstreamSuperficial = superficialFlow[g];
+    for (int iz = 0; iz < m.nz; ++iz) {
+      auto z = static_cast<std::size_t>(iz);
+      if (iz > 0) link(m.arterial[z - 1], m.arterial[z], downstreamArterial);
+      downstreamArterial -= perf[g][z] + shunt[g][z] + childDraw[g][z];
+      // Pennes term at the local arterial temperature; venous blood leaves at tissue temperature.
+      for (int ir = 0; ir < m.nr; ++ir) {
+        double q = cellPerfusion_[g][static_cast<std::size_t>(iz * m.nr + ir)];
+        if (!(q > 0.0)) continue;
+        link(m.arterial[z], m.node(iz, ir), q);
+        if (!m.venous.empty()) link(m.node(iz, ir), m.venous[z], (1.0 - sigma) * q);
+        if (!m.superficial.empty()) link(m.node(iz, ir), m.superficial[z], sigma * q);
+      }
+      // Arteriovenous shunt through the skin cell, back by superficial veins.
+      link(m.arterial[z], m.node(iz, m.skinCell), shunt[g][z]);
+      if (!m.superficial.empty()) link(m.node(iz, m.skinCell), m.superficial[z], shunt[g][z]);
+      // Veins flow proximally: cell iz receives from cell iz + 1 what returns beyond it.
+      upstreamDeep -= (1.0 - sigma) * perf[g][z] + childDeep[g][z];
+      upstreamSuperficial -= sigma * perf[g][z] + shunt[g][z] + childSuperficial[g][z];
+      if (iz + 1 < m.nz) {
+        if (!m.venous.empty()) link(m.venous[z + 1], m.venous[z], upstreamDeep);
+        if (!m.superficial.empty()) link(m.superficial[z + 1], m.superficial[z], upstreamSuperficial);
+      }
+      if (!m.venous.empty() && s.vessels.countercurrentConductance > 0.0)
+        network_.conductances.push_back({m.arterial[z], m.venous[z], s.vessels.countercurrentConductance / m.nz, 0});
+    }
+    if (s.vessels.countercurrentConductance > 0.0 && m.venous.empty())
+      warnings_.push_back(fmt::format("{}: all venous return is superficial, so the countercurrent exchanger carries "
+                                      "no flow", s.name));
+  }
+  // Mass balance at every node: inflow equals outflow (to round-off).
+  std::vector<double> in(network_.nodes.size(), 0.0), out(network_.nodes.size(), 0.0);
+  for (const Advection& a : network_.advections) {
+    double w = network_.groupWeights[network_.nodes[a.to].group];
+    in[a.to] += w * a.flowCapacity;
+    out[a.from] += w * a.flowCapacity;
+  }
+  for (const BoundaryExchange& e : network_.exchanges)
+    if (e.channel == bloodChannel_) in[e.node] += e.conductance;
+  for (Index i = 0; i < network_.nodes.size(); ++i) {
+    double w = network_.groupWeights[network_.nodes[i].group];
+    bool sink = pool_ ? false : (out[i] == 0.0 && in[i] > 0.0);  // pinned supply: returns leave the body
+    if (!sink && std::abs(in[i] - out[i]) > 1e-9 * (in[i] + out[i]))
+      throw std::logic_error(fmt::format("blood mass not conserved at {} (in {:g}, out {:g} W/K, weight {:g})",
+                                         network_.nodes[i].label, in[i], out[i], w));
+  }
+}
+
+void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
   SegmentMesh m;
   m.name = s.name;
   m.shape = s.shape;
@@ -105,13 +363,14 @@ void Body::addSegment(const SegmentSpec& s, Index group) {
   // Outer tissue radius along a cone varies linearly; every tissue layer scales with it.
   auto scaleAt = [&](double z) { return s.shape == Shape::Cone ? (rp + (s.radiusDistal - rp) * z / length) / rp : 1.0; };
 
-  const CirculationSpec& circ = case_.circulation;
-  const double bloodCapacity = circ.bloodDensity * circ.bloodSpecificHeat;  // [J/(m3 K)]
 
   CrossSection mid = crossSection(s, scaleAt(0.5 * length));
   for (int ir = 0; ir < nr; ++ir) m.radius.push_back(0.5 * (mid.bounds[ir] + mid.bounds[ir + 1]));
   for (int iz = 0; iz < nz; ++iz) m.axial.push_back((iz + 0.5) * dz);
   m.volume.resize(static_cast<std::size_t>(nz * nr));
+  cellPerfusion_[group].assign(static_cast<std::size_t>(nz * nr), 0.0);
+  m.innermostLayerCells = s.layers.front().cells;
+  m.skinCell = nr - 1 - (s.coat ? s.coat->cells : 0);
 
   for (int iz = 0; iz < nz; ++iz) {
     const double z0 = iz * dz, z1 = (iz + 1) * dz;
@@ -140,12 +399,11 @@ void Body::addSegment(const SegmentSpec& s, Index group) {
         m.tissueMass += t.density * volume;
       }
       if (t.metabolicHeat > 0.0)
-        network_.sources.push_back({node, t.metabolicHeat * volume, t.q10, circ.q10Reference, metabolismChannel_});
-      if (t.perfusion > 0.0) {
-        // Pennes (1948): omega rho_b c_b (T_a - T) per unit volume, arterial temperature pinned.
-        double arterial = circ.fixedArterialTemperature.value_or(0.0);
-        network_.exchanges.push_back({node, t.perfusion * bloodCapacity * volume, arterial, bloodChannel_});
-      }
+        network_.sources.push_back({node, t.metabolicHeat * volume, t.q10, case_.body.q10Reference, metabolismChannel_});
+      // Pennes (1948) perfusion omega V [m3/s]; the blood streams are linked in buildCirculation().
+      double multiplier = m.layerNames[static_cast<std::size_t>(m.layer[static_cast<std::size_t>(ir)])].find("skin") != std::string::npos
+                              ? s.vasomotor.skinPerfusion : 1.0;
+      cellPerfusion_[group][static_cast<std::size_t>(iz * nr + ir)] = t.isCoat ? 0.0 : t.perfusion * multiplier * volume;
     }
     // Radial conduction: node centre -> shared face -> next node centre, exact shell resistances.
     for (int ir = 0; ir + 1 < nr; ++ir) {
@@ -171,6 +429,16 @@ void Body::addSegment(const SegmentSpec& s, Index group) {
         break;
       }
     }
+    // Children cover part of this face: keep at least 10 % exposed.
+    if (static_cast<std::size_t>(iz) < coveredArea_[group].size() && coveredArea_[group][static_cast<std::size_t>(iz)] > 0.0) {
+      double covered = coveredArea_[group][static_cast<std::size_t>(iz)];
+      double remaining = std::max(0.1 * area, area - covered);
+      if (area - covered < 0.1 * area)
+        warnings_.push_back(fmt::format("segments attached to {} cover more than 90 % of its surface at axial cell "
+                                        "{}; 10 % is kept exposed", s.name, iz));
+      half *= remaining / area;
+      area = remaining;
+    }
     m.lateralFace.push_back(network_.faces.size());
     network_.faces.push_back({m.node(iz, nr - 1), half, area});
     environment_->addFace({group, s.shape, true, area, s.shape == Shape::Plate ? s.length : 2.0 * rOut, 0.0});
@@ -185,7 +453,7 @@ void Body::addSegment(const SegmentSpec& s, Index group) {
   }
   // Exposed end faces of cylinders and cones: half-cell axial conductance to the face.
   if ((s.shape == Shape::Cylinder || s.shape == Shape::Cone) && s.surface.ends == EndCondition::Exposed) {
-    for (int end = 0; end < 2; ++end) {
+    for (int end = attached ? 1 : 0; end < 2; ++end) {
       int iz = end == 0 ? 0 : nz - 1;
       CrossSection ce = crossSection(s, scaleAt(end == 0 ? 0.0 : length));
       for (int ir = 0; ir < nr; ++ir) {

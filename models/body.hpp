@@ -1,6 +1,7 @@
 #pragma once
 //! Discretises a case into the thermal network: control volumes per segment, conductances, sources, faces.
 #include <memory>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -26,6 +27,15 @@ struct SegmentMesh {
   double area = 0.0;                //!< exposed surface area [m2]
   double tissueVolume = 0.0;        //!< [m3], coat excluded
   double tissueMass = 0.0;          //!< [kg], coat excluded
+  double weight = 1.0;              //!< copies represented (count times the parent's weight)
+  int innermostLayerCells = 0;      //!< radial cells of layer 0 (core temperature)
+  int skinCell = 0;                 //!< radial index of the outermost tissue cell
+  std::vector<Index> arterial;      //!< [nz] arterial blood nodes (empty: no flow through the segment)
+  std::vector<Index> venous;        //!< [nz] deep-venous blood nodes (may be empty)
+  std::vector<Index> superficial;   //!< [nz] superficial-venous blood nodes (may be empty)
+  double bloodFlow = 0.0;           //!< arterial inflow of one copy, children included [m3/s]
+  double perfusionFlow = 0.0;       //!< tissue perfusion of one copy [m3/s]
+  double shuntFlow = 0.0;           //!< shunt flow of one copy [m3/s]
   Index node(int iz, int ir) const { return offset + static_cast<Index>(iz * nr + ir); }
 };
 
@@ -42,14 +52,39 @@ class Body {
   //! The surroundings; the run loop sets its timeline interval, hence non-const.
   EnvironmentModel& environment() const { return *environment_; }
 
+  //! Central blood pool node, when the arterial supply is not pinned and blood flows.
+  std::optional<Index> poolNode() const { return pool_; }
+  //! Index of the segment whose innermost layer defines the core temperature.
+  Index coreSegment() const { return core_; }
+  //! Total arterial flow leaving the pool (cardiac output used) [m3/s] and the case's cardiac output [m3/s].
+  double totalBloodFlow() const { return totalFlow_; }
+  double cardiacOutput() const { return cardiacOutput_; }
+  double bodyMass() const { return bodyMass_; }
+  double bloodVolume() const { return bloodVolume_; }
+  //! Basal metabolic heat at the Q10 reference temperature, activity included [W].
+  double basalMetabolicRate() const { return basalRate_; }
+  //! Messages for the user (e.g. perfusion above cardiac output).
+  const std::vector<std::string>& warnings() const { return warnings_; }
+
  private:
-  void addSegment(const SegmentSpec& s, Index group);
+  struct CellFlows;
+  void addSegment(const SegmentSpec& s, Index group, bool attached);
+  void attachChildren();
+  void scaleMetabolism();
+  void buildCirculation();
 
   Case case_;
   Network network_;
   std::vector<SegmentMesh> meshes_;
   std::unique_ptr<EnvironmentModel> environment_;
-  Index metabolismChannel_ = 0, bloodChannel_ = 0;
+  std::vector<Index> order_;               //!< segments root first
+  std::vector<std::vector<double>> cellPerfusion_;  // per segment [nz * nr] perfusion flow [m3/s]
+  std::vector<std::vector<double>> coveredArea_;    //!< per segment [nz] lateral area covered by children [m2]  //!< per segment [nz * nr] perfusion flow [m3/s]
+  Index metabolismChannel_ = 0, bloodChannel_ = 0, conductionChannel_ = 0;
+  std::optional<Index> pool_;
+  Index core_ = 0;
+  double totalFlow_ = 0.0, cardiacOutput_ = 0.0, bodyMass_ = 0.0, bloodVolume_ = 0.0, basalRate_ = 0.0;
+  std::vector<std::string> warnings_;
 };
 
 }  // namespace thermorph

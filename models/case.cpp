@@ -158,6 +158,18 @@ SegmentSpec readSegment(const CaseReader& reader, const Case& c, const toml::tab
   TableView t(reader, &table, "segments[]", "segments." + label);
   SegmentSpec s;
   s.name = t.text("name");
+  s.parent = t.optionalText("parent").value_or("");
+  s.count = t.integer("count");
+  s.attachPosition = t.number("attach_position");
+  s.attachTissue = t.text("attach_tissue");
+  TableView vessels = t.child("vessels");
+  s.vessels.countercurrentConductance = vessels.quantity("countercurrent_conductance");
+  s.vessels.shuntFlowMax = vessels.quantity("shunt_flow_max");
+  s.vessels.bloodFraction = vessels.number("blood_fraction");
+  TableView vaso = t.child("vasomotor");
+  s.vasomotor.skinPerfusion = vaso.number("skin_perfusion");
+  s.vasomotor.shunt = vaso.number("shunt");
+  s.vasomotor.superficialReturn = vaso.number("superficial_return");
   std::string shape = t.choice("shape");
   s.shape = shape == "sphere" ? Shape::Sphere : shape == "cylinder" ? Shape::Cylinder : shape == "cone" ? Shape::Cone : Shape::Plate;
 
@@ -248,6 +260,54 @@ SegmentSpec readSegment(const CaseReader& reader, const Case& c, const toml::tab
   return s;
 }
 
+//! One root, known parents, no cycles; shunts only where there is skin.
+void validateTree(const CaseReader& reader, const toml::array& segArray, const Case& c) {
+  std::map<std::string, std::size_t> index;
+  for (std::size_t i = 0; i < c.segments.size(); ++i) index[c.segments[i].name] = i;
+  std::vector<std::string> roots;
+  for (std::size_t i = 0; i < c.segments.size(); ++i) {
+    const SegmentSpec& s = c.segments[i];
+    TableView t(reader, segArray[i].as_table(), "segments[]", "segments." + s.name);
+    if (s.parent.empty()) {
+      roots.push_back(s.name);
+      if (s.count != 1) t.fail("count", "the root segment cannot be repeated (count must be 1)");
+      continue;
+    }
+    auto it = index.find(s.parent);
+    if (it == index.end()) {
+      std::vector<std::string> names;
+      for (auto& [n, _] : index) names.push_back(n);
+      t.fail("parent", fmt::format("unknown parent \"{}\" (segments: {})", s.parent, fmt::join(names, ", ")));
+    }
+    if (s.shape == Shape::Sphere)
+      t.fail("parent", "a sphere can only be the root segment; attach a head or body part as a cylinder or cone");
+    // Walk up: a cycle returns to this segment before reaching a root.
+    std::vector<std::string> chain{s.name};
+    std::size_t j = it->second;
+    while (true) {
+      chain.push_back(c.segments[j].name);
+      if (c.segments[j].name == s.name)
+        t.fail("parent", fmt::format("the segment tree has a cycle: {}", fmt::join(chain, " -> ")));
+      if (c.segments[j].parent.empty() || chain.size() > c.segments.size() + 1) break;
+      j = index.at(c.segments[j].parent);
+    }
+  }
+  if (roots.size() != 1)
+    reader.fail(&segArray, "segments",
+                roots.empty() ? std::string("no root segment: exactly one segment must have no parent")
+                              : fmt::format("{} root segments ({}): exactly one segment may have no parent; give the "
+                                            "others a parent",
+                                            roots.size(), fmt::join(roots, ", ")));
+  for (std::size_t i = 0; i < c.segments.size(); ++i) {
+    const SegmentSpec& s = c.segments[i];
+    TableView t(reader, segArray[i].as_table(), "segments[]", "segments." + s.name);
+    if (s.vessels.shuntFlowMax > 0.0 && s.layers.back().tissue.find("skin") == std::string::npos)
+      t.child("vessels").fail("shunt_flow_max",
+                              fmt::format("shunts need skin: the outermost layer of {} is \"{}\", not a skin tissue",
+                                          s.name, s.layers.back().tissue));
+  }
+}
+
 Case buildCase(toml::table& root, const std::string& file, const std::vector<std::string>& overrides) {
   for (const std::string& o : overrides) applyOverride(root, file, o);
   CaseReader reader(file);
@@ -279,7 +339,28 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   c.circulation.bloodDensity = circ.quantity("blood_density");
   c.circulation.bloodSpecificHeat = circ.quantity("blood_specific_heat");
   c.circulation.fixedArterialTemperature = circ.optionalQuantity("fixed_arterial_temperature");
-  c.circulation.q10Reference = circ.quantity("q10_reference");
+
+  TableView bodyTable = top.child("body");
+  c.body.mass = bodyTable.optionalQuantity("mass");
+  c.body.bloodVolume = bodyTable.optionalQuantity("blood_volume");
+  c.body.cardiacOutput = bodyTable.optionalQuantity("cardiac_output");
+  std::string basal = bodyTable.text("basal_metabolic_rate");
+  if (basal == "tissues") c.body.basal = BasalRate::Tissues;
+  else if (basal == "kleiber") c.body.basal = BasalRate::Kleiber;
+  else {
+    c.body.basal = BasalRate::Power;
+    try {
+      c.body.basalPower = parseQuantity(basal, "W");
+    } catch (const UnitError& e) {
+      bodyTable.fail("basal_metabolic_rate", fmt::format("\"{}\": expected \"tissues\", \"kleiber\" or a power such as "
+                                                         "\"45 W\" ({})", basal, e.what()));
+    }
+    if (!(c.body.basalPower > 0.0)) bodyTable.fail("basal_metabolic_rate", "a basal power must be > 0 W");
+  }
+  c.body.activity = bodyTable.number("activity");
+  c.body.q10Reference = bodyTable.quantity("q10_reference");
+  c.body.coreSegment = bodyTable.optionalText("core_segment").value_or("");
+  c.body.respiratorySegment = bodyTable.optionalText("respiratory_segment").value_or("");
 
   readTissues(reader, top, c);
 
@@ -307,9 +388,12 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
     reader.fail(segs, "segments",
                 fmt::format("the body has {} cells; the limit is {} (reduce axial_cells or layer cells)", cells,
                             maxCells));
-  if (c.segments.size() > 1)
-    reader.fail(&segArray[1], "segments." + c.segments[1].name,
-                "this version simulates one segment per case (linked segments are not available yet)");
+  validateTree(reader, segArray, c);
+  for (const char* key : {"core_segment", "respiratory_segment"}) {
+    std::string name = key == std::string("core_segment") ? c.body.coreSegment : c.body.respiratorySegment;
+    if (!name.empty() && !names.count(name))
+      bodyTable.fail(key, fmt::format("no segment named \"{}\" (segments: {})", name, fmt::join(names, ", ")));
+  }
 
   c.environment = readEnvironment(top);
   c.events = readEvents(reader, top, root, c.run.duration);
@@ -349,11 +433,20 @@ std::string resolvedCaseToml(const Case& c) {
                                  {"atol", c.run.atol},
                                  {"max_step", c.run.maxStep}});
   toml::table circ{{"blood_density", c.circulation.bloodDensity},
-                   {"blood_specific_heat", c.circulation.bloodSpecificHeat},
-                   {"q10_reference", c.circulation.q10Reference}};
+                   {"blood_specific_heat", c.circulation.bloodSpecificHeat}};
   if (c.circulation.fixedArterialTemperature)
     circ.insert("fixed_arterial_temperature", *c.circulation.fixedArterialTemperature);
   root.insert("circulation", circ);
+  toml::table body{{"activity", c.body.activity}, {"q10_reference", c.body.q10Reference}};
+  body.insert("basal_metabolic_rate", c.body.basal == BasalRate::Tissues   ? std::string("tissues")
+                                      : c.body.basal == BasalRate::Kleiber ? std::string("kleiber")
+                                                                           : fmt::format("{:.17g} W", c.body.basalPower));
+  if (c.body.mass) body.insert("mass", *c.body.mass);
+  if (c.body.bloodVolume) body.insert("blood_volume", *c.body.bloodVolume);
+  if (c.body.cardiacOutput) body.insert("cardiac_output", *c.body.cardiacOutput);
+  if (!c.body.coreSegment.empty()) body.insert("core_segment", c.body.coreSegment);
+  if (!c.body.respiratorySegment.empty()) body.insert("respiratory_segment", c.body.respiratorySegment);
+  root.insert("body", body);
 
   // Only the tissues the body uses, each fully specified.
   std::set<std::string> used;
@@ -375,6 +468,18 @@ std::string resolvedCaseToml(const Case& c) {
   toml::array segments;
   for (const SegmentSpec& s : c.segments) {
     toml::table t{{"name", s.name}, {"shape", shapeName(s.shape)}};
+    if (!s.parent.empty()) {
+      t.insert("parent", s.parent);
+      t.insert("count", s.count);
+      t.insert("attach_position", s.attachPosition);
+      t.insert("attach_tissue", s.attachTissue);
+    }
+    t.insert("vessels", toml::table{{"countercurrent_conductance", s.vessels.countercurrentConductance},
+                                    {"shunt_flow_max", s.vessels.shuntFlowMax},
+                                    {"blood_fraction", s.vessels.bloodFraction}});
+    t.insert("vasomotor", toml::table{{"skin_perfusion", s.vasomotor.skinPerfusion},
+                                      {"shunt", s.vasomotor.shunt},
+                                      {"superficial_return", s.vasomotor.superficialReturn}});
     if (s.shape != Shape::Sphere) {
       t.insert("length", s.length);
       t.insert("axial_cells", s.axialCells);

@@ -36,9 +36,29 @@ struct CoatSpec {
   int cells = 1;
 };
 
+//! Large vessels of a segment.
+struct VesselSpec {
+  double countercurrentConductance = 0.0;  //!< artery to deep vein, whole segment [W/K]
+  double shuntFlowMax = 0.0;               //!< largest arteriovenous shunt flow [m3/s]
+  double bloodFraction = 0.03;             //!< large-vessel blood volume per tissue volume [1]
+};
+
+//! Vasomotor state of a segment (static here; events and controllers change it).
+struct VasomotorState {
+  double skinPerfusion = 1.0;      //!< multiplier on skin perfusion [1]
+  double shunt = 0.0;              //!< open fraction of the shunts [1]
+  double superficialReturn = 0.0;  //!< share of tissue venous return taking superficial veins [1]
+};
+
 //! One body segment: geometry, layers, coat and surface.
 struct SegmentSpec {
   std::string name;
+  std::string parent;           //!< empty for the root
+  int count = 1;                //!< identical copies simulated once
+  double attachPosition = 0.5;  //!< along the parent's length [1]
+  std::string attachTissue = "muscle";
+  VesselSpec vessels;
+  VasomotorState vasomotor;
   Shape shape = Shape::Cylinder;
   double length = 0.0;          //!< [m] (cylinder, cone, plate)
   double radiusProximal = 0.0;  //!< outer tissue radius at the proximal end [m] (cone; cylinder and sphere: radius)
@@ -67,7 +87,20 @@ struct CirculationSpec {
   double bloodDensity = 1050.0;       //!< [kg/m3]
   double bloodSpecificHeat = 3617.0;  //!< [J/(kg K)]
   std::optional<double> fixedArterialTemperature;  //!< pins the arterial supply [K]
-  double q10Reference = 310.15;       //!< reference temperature of tissue Q10 [K]
+};
+
+enum class BasalRate { Tissues, Kleiber, Power };
+
+struct BodySpec {
+  std::optional<double> mass;           //!< [kg]; default: tissue mass
+  std::optional<double> bloodVolume;    //!< [m3]; default 7 % of mass
+  std::optional<double> cardiacOutput;  //!< [m3/s]; default Stahl (1967)
+  BasalRate basal = BasalRate::Tissues;
+  double basalPower = 0.0;              //!< [W] when basal == Power
+  double activity = 1.0;                //!< metabolic multiplier [1]
+  double q10Reference = 310.15;         //!< reference temperature of tissue Q10 [K]
+  std::string coreSegment;              //!< default: root
+  std::string respiratorySegment;       //!< default: root
 };
 
 struct Case {
@@ -75,6 +108,7 @@ struct Case {
   std::string sourceFile;  //!< path of the case file
   RunSpec run;
   CirculationSpec circulation;
+  BodySpec body;
   std::map<std::string, TissueProperties> tissues;  //!< built-ins merged with [tissues.*]
   std::vector<SegmentSpec> segments;
   EnvironmentSpec environment;

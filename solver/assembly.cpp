@@ -17,6 +17,13 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
     Index g = network.nodes[i].group;
     nodeWeight_[i] = g < network.groupWeights.size() ? network.groupWeights[g] : 1.0;
   }
+  // Between groups of different multiplicity a conductance carries its flow once per copy of the more
+  // numerous group: the single parent receives count times what each child copy gives.
+  for (const Conductance& c : network.conductances) {
+    double w = std::max(nodeWeight_[c.a], nodeWeight_[c.b]);
+    conductanceFactor_.push_back(w / nodeWeight_[c.a]);
+    conductanceFactor_.push_back(w / nodeWeight_[c.b]);
+  }
   rowScale_.assign(pattern_.size, 1.0);
   if (transient)
     for (Index i = 0; i < nodes_; ++i) {
@@ -132,10 +139,11 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
   const bool transient = mode_ == Mode::Transient;
   std::fill(out.begin(), out.end(), 0.0);
   std::span<double> acc = transient ? out.subspan(nodes_, channels_) : std::span<double>();
-  for (const Conductance& c : network_.conductances) {
+  for (std::size_t k = 0; k < network_.conductances.size(); ++k) {
+    const Conductance& c = network_.conductances[k];
     double q = c.conductance * (T[c.b] - T[c.a]);
-    out[c.a] += q;
-    out[c.b] -= q;
+    out[c.a] += conductanceFactor_[2 * k] * q;
+    out[c.b] -= conductanceFactor_[2 * k + 1] * q;
   }
   for (const Advection& a : network_.advections) {
     double q = a.flowCapacity * (T[a.from] - T[a.to]);
@@ -168,11 +176,13 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
   const bool transient = mode_ == Mode::Transient;
   std::fill(values.begin(), values.end(), 0.0);
   std::size_t k = 0;
-  for (const Conductance& c : network_.conductances) {
-    values[conductanceSlots_[k++]] -= c.conductance;
-    values[conductanceSlots_[k++]] += c.conductance;
-    values[conductanceSlots_[k++]] -= c.conductance;
-    values[conductanceSlots_[k++]] += c.conductance;
+  for (std::size_t i = 0; i < network_.conductances.size(); ++i) {
+    const double G = network_.conductances[i].conductance;
+    const double fa = conductanceFactor_[2 * i], fb = conductanceFactor_[2 * i + 1];
+    values[conductanceSlots_[k++]] -= fa * G;
+    values[conductanceSlots_[k++]] += fa * G;
+    values[conductanceSlots_[k++]] -= fb * G;
+    values[conductanceSlots_[k++]] += fb * G;
   }
   std::size_t a = 0, acc = 0;
   for (const Advection& adv : network_.advections) {
@@ -220,13 +230,14 @@ void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span
   auto group = [&](Index node) { return network_.nodes[node].group; };
   auto at = [&](Index node, Index channel) -> double& { return flows[group(node) * channels_ + channel]; };
   std::vector<double> rate(nodes_, 0.0);
-  for (const Conductance& c : network_.conductances) {
+  for (std::size_t k = 0; k < network_.conductances.size(); ++k) {
+    const Conductance& c = network_.conductances[k];
     double q = c.conductance * (T[c.b] - T[c.a]);
-    rate[c.a] += q;
-    rate[c.b] -= q;
+    rate[c.a] += conductanceFactor_[2 * k] * q;
+    rate[c.b] -= conductanceFactor_[2 * k + 1] * q;
     if (group(c.a) != group(c.b)) {
-      at(c.a, c.channel) += q;
-      at(c.b, c.channel) -= q;
+      at(c.a, c.channel) += conductanceFactor_[2 * k] * q;
+      at(c.b, c.channel) -= conductanceFactor_[2 * k + 1] * q;
     }
   }
   for (const Advection& a : network_.advections) {

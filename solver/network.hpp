@@ -8,6 +8,9 @@
 //!   source       P_ref Q10^((T_i - T_ref)/10)        volumetric heat (metabolism)
 //!   surface      q(T_s, t), through a half-cell conductance to the face temperature T_s
 //! Every term except conductances names a budget channel; every node a group (a body segment).
+//! A group may stand for several identical copies (groupWeights): advection flows are per copy of the
+//! receiving node; a conductance between groups of different weight carries its flow once per copy of the
+//! more numerous group. Stored heat and budgets are weighted, so energy is conserved exactly.
 #include <cstddef>
 #include <span>
 #include <string>

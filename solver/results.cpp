@@ -78,6 +78,15 @@ static std::pair<std::string, std::string> splitPath(const std::string& path) {
   return {pos == 0 ? "/" : path.substr(0, pos), path.substr(pos + 1)};
 }
 
+long long ResultsFile::openObject(const std::string& path) {
+  // An existing group or dataset, else a new group.
+  if (path == "/") return H5Oopen(file_, "/", H5P_DEFAULT);
+  if (H5Lexists(file_, path.c_str(), H5P_DEFAULT) > 0) return H5Oopen(file_, path.c_str(), H5P_DEFAULT);
+  hid_t group = ensureGroup(path);
+  H5Gclose(group);
+  return H5Oopen(file_, path.c_str(), H5P_DEFAULT);
+}
+
 void ResultsFile::writeArray(const std::string& path, std::span<const double> values,
                              const std::vector<std::uint64_t>& shape, const std::string& units) {
   auto [parent, name] = splitPath(path);
@@ -174,31 +183,31 @@ void ResultsFile::append(std::size_t index, std::span<const double> values) {
 }
 
 void ResultsFile::setAttribute(const std::string& object, const std::string& name, const std::string& value) {
-  hid_t obj = object == "/" ? H5Gopen2(file_, "/", H5P_DEFAULT) : ensureGroup(object);
+  hid_t obj = openObject(object);
   writeStringAttribute(obj, name, value);
-  H5Gclose(obj);
+  H5Oclose(obj);
 }
 
 void ResultsFile::setAttribute(const std::string& object, const std::string& name, double value) {
-  hid_t obj = object == "/" ? H5Gopen2(file_, "/", H5P_DEFAULT) : ensureGroup(object);
+  hid_t obj = openObject(object);
   hid_t space = H5Screate(H5S_SCALAR);
   if (H5Aexists(obj, name.c_str()) > 0) H5Adelete(obj, name.c_str());
   hid_t attr = H5Acreate2(obj, name.c_str(), H5T_NATIVE_DOUBLE, space, H5P_DEFAULT, H5P_DEFAULT);
   H5Awrite(attr, H5T_NATIVE_DOUBLE, &value);
   H5Aclose(attr);
   H5Sclose(space);
-  H5Gclose(obj);
+  H5Oclose(obj);
 }
 
 void ResultsFile::setAttribute(const std::string& object, const std::string& name, long value) {
-  hid_t obj = object == "/" ? H5Gopen2(file_, "/", H5P_DEFAULT) : ensureGroup(object);
+  hid_t obj = openObject(object);
   hid_t space = H5Screate(H5S_SCALAR);
   if (H5Aexists(obj, name.c_str()) > 0) H5Adelete(obj, name.c_str());
   hid_t attr = H5Acreate2(obj, name.c_str(), H5T_NATIVE_LONG, space, H5P_DEFAULT, H5P_DEFAULT);
   H5Awrite(attr, H5T_NATIVE_LONG, &value);
   H5Aclose(attr);
   H5Sclose(space);
-  H5Gclose(obj);
+  H5Oclose(obj);
 }
 
 std::string ResultsFile::commit(const std::string& otherPath) {

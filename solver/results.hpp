@@ -39,6 +39,7 @@ class ResultsFile {
 
  private:
   long long ensureGroup(const std::string& path);
+  long long openObject(const std::string& path);
   struct Series {
     long long dataset;
     std::vector<std::uint64_t> shape;

@@ -48,6 +48,20 @@ class Recorder {
     for (Index c = 0; c < network_.channels.size(); ++c)
       bodyEnergy_.push_back(f.createSeries("/body/cumulative_heat/" + network_.channels[c], {}, "J"));
     balance_ = f.createSeries("/body/energy_balance_error", {}, "J");
+    core_ = f.createSeries("/body/core_temperature", {}, "degC");
+    blood_ = f.createSeries("/body/blood_temperature", {}, "degC");
+    skin_ = f.createSeries("/body/mean_skin_temperature", {}, "degC");
+    f.setAttribute("/body/core_temperature", "definition",
+                   "volume-weighted mean of the innermost layer of segment " + body.segments()[body.coreSegment()].name);
+    f.setAttribute("/body/blood_temperature", "definition",
+                   "central blood pool (or the pinned arterial temperature)");
+    f.setAttribute("/body/mean_skin_temperature", "definition",
+                   "outermost tissue cells (under any coat), weighted by exposed area and segment count");
+    f.setAttribute("/body", "mass", body.bodyMass());
+    f.setAttribute("/body", "blood_volume", body.bloodVolume());
+    f.setAttribute("/body", "blood_flow", body.totalBloodFlow());
+    f.setAttribute("/body", "cardiac_output", body.cardiacOutput());
+    f.setAttribute("/body", "basal_metabolic_rate", body.basalMetabolicRate());
     for (const EnvironmentSeries& e : body.environment().series())
       environment_.push_back(f.createSeries("/environment/" + e.name, {}, e.units));
     for (const SegmentMesh& m : body.segments()) {
@@ -66,6 +80,8 @@ class Recorder {
         s.flows.push_back(f.createSeries(g + "/heat_flow/" + network_.channels[c], {}, "W"));
       s.storage = f.createSeries(g + "/heat_flow/storage", {}, "W");
       s.convection = f.createSeries(g + "/convection_coefficient", {}, "W m-2 K-1");
+      s.arterial = f.createSeries(g + "/arterial_temperature", {static_cast<std::uint64_t>(m.nz)}, "degC");
+      s.venous = f.createSeries(g + "/venous_temperature", {static_cast<std::uint64_t>(m.nz)}, "degC");
       segments_.push_back(s);
     }
   }
@@ -101,7 +117,8 @@ class Recorder {
     environmentValues_.resize(environment_.size());
     body_.environment().seriesValues(t, environmentValues_);
     for (std::size_t e = 0; e < environment_.size(); ++e) f.append(environment_[e], {&environmentValues_[e], 1});
-    for (Index g = 0; g < groups; ++g) {
+    recordBodyTemperatures(y);
+    for (Index g = 0; g < body_.segments().size(); ++g) {
       const SegmentMesh& m = body_.segments()[g];
       buffer_.resize(static_cast<std::size_t>(m.nz * m.nr));
       for (std::size_t i = 0; i < buffer_.size(); ++i) buffer_[i] = y[m.offset + i] - kelvinOffset;
@@ -113,6 +130,16 @@ class Recorder {
       f.append(segments_[g].storage, {&summary.storage[g], 1});
       double h = body_.environment().meanConvectionCoefficient(g, t, faceTemperatures_);
       f.append(segments_[g].convection, {&h, 1});
+      // Blood streams: arterial and deep-venous temperature per axial cell (the supply temperature where the
+      // segment has no stream of its own).
+      for (int which = 0; which < 2; ++which) {
+        const std::vector<Index>& nodes = which == 0 ? m.arterial : m.venous;
+        buffer_.resize(static_cast<std::size_t>(m.nz));
+        for (int iz = 0; iz < m.nz; ++iz)
+          buffer_[static_cast<std::size_t>(iz)] =
+              (nodes.empty() ? supplyTemperature(y) : y[nodes[static_cast<std::size_t>(iz)]]) - kelvinOffset;
+        f.append(which == 0 ? segments_[g].arterial : segments_[g].venous, buffer_);
+      }
     }
   }
 
@@ -140,6 +167,38 @@ class Recorder {
     }
   }
 
+  //! Temperature of the arterial supply: the pool node, or the pinned value [K].
+  double supplyTemperature(std::span<const double> y) const {
+    if (body_.poolNode()) return y[*body_.poolNode()];
+    return body_.spec().circulation.fixedArterialTemperature.value_or(std::nan(""));
+  }
+
+  void recordBodyTemperatures(std::span<const double> y) {
+    ResultsFile& f = *file_;
+    const SegmentMesh& core = body_.segments()[body_.coreSegment()];
+    double sum = 0.0, volume = 0.0;
+    for (int iz = 0; iz < core.nz; ++iz)
+      for (int ir = 0; ir < core.innermostLayerCells; ++ir) {
+        double v = core.volume[static_cast<std::size_t>(iz * core.nr + ir)];
+        sum += v * y[core.node(iz, ir)];
+        volume += v;
+      }
+    double value = sum / volume - kelvinOffset;
+    f.append(core_, {&value, 1});
+    value = supplyTemperature(y) - kelvinOffset;
+    f.append(blood_, {&value, 1});
+    double skin = 0.0, area = 0.0;
+    const Network& n = body_.network();
+    for (const SegmentMesh& m : body_.segments())
+      for (int iz = 0; iz < m.nz; ++iz) {
+        double a = m.weight * n.faces[m.lateralFace[static_cast<std::size_t>(iz)]].area;
+        skin += a * y[m.node(iz, m.skinCell)];
+        area += a;
+      }
+    value = skin / area - kelvinOffset;
+    f.append(skin_, {&value, 1});
+  }
+
   std::string incompletePath() const {
     return incompletePath_;
   }
@@ -147,14 +206,14 @@ class Recorder {
 
  private:
   struct Segment {
-    std::size_t temperature = 0, surface = 0, storage = 0, convection = 0;
+    std::size_t temperature = 0, surface = 0, storage = 0, convection = 0, arterial = 0, venous = 0;
     std::vector<std::size_t> flows;
   };
   const Body& body_;
   const NetworkSystem& system_;
   const Network& network_;
   std::unique_ptr<ResultsFile> file_;
-  std::size_t time_ = 0, bodyStorage_ = 0, balance_ = 0;
+  std::size_t time_ = 0, bodyStorage_ = 0, balance_ = 0, core_ = 0, blood_ = 0, skin_ = 0;
   std::vector<std::size_t> bodyFlow_, bodyEnergy_, environment_;
   std::vector<Segment> segments_;
   std::vector<double> faceTemperatures_, buffer_, environmentValues_;
