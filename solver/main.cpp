@@ -25,8 +25,8 @@ std::string defaultOutput(const std::string& casePath) {
 void describe(const Body& body) {
   const Case& c = body.spec();
   fmt::print("{}\n{}\n", c.title, std::string(c.title.size(), '='));
-  fmt::print("{:<14}{:<10}{:>28}{:>11}{:>12}{:>10}{:>10}{:>8}\n", "segment", "shape", "dimensions [cm]", "area [cm2]",
-             "volume [cm3]", "mass [g]", "S/V [1/m]", "cells");
+  fmt::print("{:<14}{:<9}{:>4}{:>28}{:>11}{:>13}{:>10}{:>10}{:>7}{:>14}\n", "segment", "shape", "n", "dimensions [cm]",
+             "area [cm2]", "volume [cm3]", "mass [g]", "S/V [1/m]", "cells", "blood mL/min");
   double area = 0, volume = 0, mass = 0;
   long cells = 0;
   for (std::size_t i = 0; i < body.segments().size(); ++i) {
@@ -46,16 +46,25 @@ void describe(const Body& body) {
     }
     if (coat > 0) dims += fmt::format(" +coat {:.2g}", 100 * coat);
     long n = static_cast<long>(m.nz) * m.nr;
-    fmt::print("{:<14}{:<10}{:>28}{:>11.4g}{:>12.4g}{:>10.4g}{:>10.4g}{:>8}\n", m.name, shapeName(m.shape), dims,
-               m.area * 1e4, m.tissueVolume * 1e6, m.tissueMass * 1e3, m.area / m.tissueVolume, n);
-    area += m.area;
-    volume += m.tissueVolume;
-    mass += m.tissueMass;
+    fmt::print("{:<14}{:<9}{:>4}{:>28}{:>11.4g}{:>13.4g}{:>10.4g}{:>10.4g}{:>7}{:>14.4g}\n", m.name, shapeName(m.shape),
+               m.weight, dims, m.area * 1e4, m.tissueVolume * 1e6, m.tissueMass * 1e3, m.area / m.tissueVolume, n,
+               m.bloodFlow * 6e7);
+    area += m.weight * m.area;
+    volume += m.weight * m.tissueVolume;
+    mass += m.weight * m.tissueMass;
     cells += n;
   }
-  fmt::print("{:<14}{:<10}{:>28}{:>11.4g}{:>12.4g}{:>10.4g}{:>10.4g}{:>8}\n", "body", "", "", area * 1e4,
-             volume * 1e6, mass * 1e3, area / volume, cells);
-  fmt::print("Volumes and masses exclude the coat; area is the exposed outer surface (coat included).\n");
+  fmt::print("{:<14}{:<9}{:>4}{:>28}{:>11.4g}{:>13.4g}{:>10.4g}{:>10.4g}{:>7}{:>14.4g}\n", "body", "", "all",
+             "", area * 1e4, volume * 1e6, mass * 1e3, area / volume, body.network().nodes.size(),
+             body.totalBloodFlow() * 6e7);
+  fmt::print("n: copies simulated once (count). Volumes and masses exclude the coat; area is the exposed outer surface\n"
+             "(coat included, minus what attached segments cover); blood is the arterial inflow of one copy,\n"
+             "children included. Body cells include blood nodes.\n");
+  fmt::print("Body mass {:.4g} kg, blood volume {:.4g} mL, blood flow {:.4g} of cardiac output {:.4g} mL/min, basal "
+             "metabolism {:.4g} W{}\n",
+             body.bodyMass(), body.bloodVolume() * 1e6, body.totalBloodFlow() * 6e7, body.cardiacOutput() * 6e7,
+             body.basalMetabolicRate(),
+             body.poolNode() ? "" : c.circulation.fixedArterialTemperature ? " (arterial supply pinned)" : " (no blood flow)");
 }
 
 }  // namespace
@@ -92,7 +101,10 @@ int main(int argc, char** argv) {
   CLI11_PARSE(app, argc, argv);
 
   std::string commandLine;
-  for (int i = 0; i < argc; ++i) commandLine += (i ? " " : "") + std::string(argv[i]);
+  for (int i = 0; i < argc; ++i) {
+    if (i > 0) commandLine += ' ';
+    commandLine += argv[i];
+  }
 
   if (reference->parsed()) {
     std::cout << caseReferenceMarkdown();
@@ -101,6 +113,7 @@ int main(int argc, char** argv) {
   try {
     Case c = loadCase(casePath, overrides);
     Body body(c);
+    for (const std::string& w : body.warnings()) fmt::print(stderr, "warning: {}\n", w);
     if (check->parsed()) {
       if (resolved) std::cout << resolvedCaseToml(c);
       else describe(body);
