@@ -1,38 +1,279 @@
 #include "models/environment.hpp"
 
+#include <algorithm>
+#include <cmath>
+#include <numbers>
+
+#include "models/convection.hpp"
+#include "models/surface_physics.hpp"
+
 namespace thermorph {
+
+namespace {
+
+using V = EnvironmentVariable;
+using std::numbers::pi;
+
+constexpr std::size_t index(V v) { return static_cast<std::size_t>(v); }
+
+//! Long-wave emissivity of bare skin [1] (Steketee 1973, Phys. Med. Biol. 18:686).
+constexpr double kSkinEmissivity = 0.98;
+//! Long-wave emissivity of fur and feathers [1]: the low end of 0.95-0.98 (from memory).
+constexpr double kCoatEmissivity = 0.95;
+
+//! Volume of a segment, coat included [m3]: exact for the shape (sphere, cylinder, frustum, slab).
+double outerVolume(const SegmentSpec& s) {
+  const double coat = s.coat ? s.coat->thickness : 0.0;
+  const double r = s.tissueRadius() + coat;
+  switch (s.shape) {
+    case Shape::Sphere: return 4.0 / 3.0 * pi * r * r * r;
+    case Shape::Cylinder: return pi * r * r * s.length;
+    case Shape::Cone: {
+      const double r0 = s.radiusProximal + coat, r1 = s.radiusDistal + coat;
+      return pi * s.length / 3.0 * (r0 * r0 + r0 * r1 + r1 * r1);
+    }
+    case Shape::Plate: return 2.0 * r * s.width * s.length;
+  }
+  return 0.0;
+}
+
+Medium waterMedium(SurroundingMedium m) { return m == SurroundingMedium::SeaWater ? Medium::SeaWater : Medium::FreshWater; }
+
+//! Property group of the heat-mass transfer analogy h_m / h_c = 1 / (rho c_p Le^{2/3}) [m3 K/J] of dry air at
+//! `filmTemperature` and standard pressure (Incropera et al. ch. 6; as cutaneousEvaporation's film form).
+double analogyGroup(double filmTemperature) {
+  const double density = kStandardPressure / (kGasConstantDryAir * filmTemperature);
+  const double cp = fluidProperties(Medium::Air, filmTemperature).specificHeat;
+  return 1.0 / (density * cp * std::pow(lewisNumberVapourInAir(filmTemperature), 2.0 / 3.0));
+}
+
+}  // namespace
 
 EnvironmentModel::EnvironmentModel(const Case& c, Network& network) : case_(c) {
   convectionChannel_ = network.channel("convection");
+  radiationChannel_ = network.channel("radiation");
+  solarChannel_ = network.channel("solar");
+  evaporationChannel_ = network.channel("evaporation");
+  substrateChannel_ = network.channel("substrate");
+  resetValidityWarnings();  // a new case: report each range violation again
+
+  const EnvironmentSpec& env = case_.environment;
+  for (const SegmentSpec& s : case_.segments) {
+    SegmentSurface surface;
+    surface.inWater = s.surface.immersion == Immersion::Always ||
+                      (s.surface.immersion == Immersion::Body && env.medium != SurroundingMedium::Air);
+    const ConvectionSetting convection = s.surface.convection.value_or(env.convection);
+    surface.fixedConvection = convection.fixed;
+    surface.convectionCoefficient = convection.coefficient;
+    // A fixed coefficient stands for the whole surface exchange (Newton cooling, as in validation problems):
+    // radiation only when an emissivity is given.
+    surface.emissivity =
+        s.surface.emissivity.value_or(convection.fixed ? 0.0 : s.coat ? kCoatEmissivity : kSkinEmissivity);
+    surface.volumeLength = std::cbrt(outerVolume(s));
+    surface.width = s.width;
+    surfaces_.push_back(surface);
+  }
+
+  for (const EventSpec& e : case_.events)
+    for (double t : {e.at, e.at + e.ramp})
+      if (t > 0.0 && t < case_.run.duration) breakpoints_.push_back(t);
+  std::sort(breakpoints_.begin(), breakpoints_.end());
+  breakpoints_.erase(std::unique(breakpoints_.begin(), breakpoints_.end()), breakpoints_.end());
+  setInterval(0);
 }
 
-void EnvironmentModel::addFace(const FaceDescription& face) { faces_.push_back(face); }
-
-double EnvironmentModel::convectionCoefficient(Index face, double, double, double* derivative) const {
-  const SegmentSpec& s = case_.segments[faces_[face].segment];
-  if (derivative) *derivative = 0.0;
-  return s.surface.convectionCoefficient.value_or(case_.environment.convectionCoefficient);
+void EnvironmentModel::addFace(const FaceDescription& face) {
+  faces_.push_back(face);
+  if (!(faces_.back().volumeLength > 0.0)) faces_.back().volumeLength = surfaces_.at(face.segment).volumeLength;
 }
 
-void EnvironmentModel::faceHeat(Index face, double faceTemperature, double time, std::span<double> channelHeat,
-                                std::span<double> channelDerivative) const {
-  // Newton cooling: q = h A (T_medium - T_s), positive into the body.
+std::vector<double> EnvironmentModel::breakpoints() const { return breakpoints_; }
+
+void EnvironmentModel::setInterval(std::size_t interval) {
+  // Interval k lies between breakpoints k-1 and k. An event has started in interval k when k >= the number of
+  // breakpoints at or before its start, and its ramp is complete likewise for its end (when that is in the run).
+  interval_ = interval;
+  const EnvironmentSpec& env = case_.environment;
+  for (std::size_t v = 0; v < kEnvironmentVariables; ++v) {
+    offset_[v] = env.value(static_cast<V>(v));
+    slope_[v] = 0.0;
+  }
+  auto breakpointsUpTo = [&](double t) {
+    return static_cast<std::size_t>(std::upper_bound(breakpoints_.begin(), breakpoints_.end(), t) - breakpoints_.begin());
+  };
+  for (const EventSpec& e : case_.events) {
+    if (interval < breakpointsUpTo(e.at)) continue;
+    const double end = e.at + e.ramp;
+    const bool complete = e.ramp == 0.0 || (end < case_.run.duration && interval >= breakpointsUpTo(end));
+    for (const EnvironmentValue& target : e.environment) {
+      const std::size_t v = index(target.variable);
+      if (complete) {
+        offset_[v] = target.value;
+        slope_[v] = 0.0;
+      } else {
+        // Linear from the value at `at` to the target at `at + ramp`.
+        const double start = offset_[v] + slope_[v] * e.at;
+        slope_[v] = (target.value - start) / e.ramp;
+        offset_[v] = start - slope_[v] * e.at;
+      }
+    }
+  }
+}
+
+double EnvironmentModel::value(EnvironmentVariable variable, double time) const {
+  return offset_[index(variable)] + slope_[index(variable)] * time;
+}
+
+bool EnvironmentModel::immersed(Index segment) const { return surfaces_.at(segment).inWater; }
+
+double EnvironmentModel::emissivity(Index segment) const { return surfaces_.at(segment).emissivity; }
+
+FaceFluid EnvironmentModel::fluid(Index segment, double time) const {
+  const EnvironmentSpec& env = case_.environment;
+  const bool mediumIsAir = env.medium == SurroundingMedium::Air;
+  if (surfaces_[segment].inWater) {
+    if (mediumIsAir)
+      return {waterMedium(env.immersionWater), value(V::WaterTemperature, time), value(V::WaterSpeed, time)};
+    return {waterMedium(env.medium), value(V::Temperature, time), value(V::Speed, time)};
+  }
+  if (mediumIsAir) return {Medium::Air, value(V::Temperature, time), value(V::Speed, time)};
+  return {Medium::Air, value(V::AirTemperature, time), value(V::AirSpeed, time)};
+}
+
+double EnvironmentModel::convectionCoefficient(Index face, double faceTemperature, double time,
+                                               double* derivative) const {
   const FaceDescription& f = faces_[face];
-  double dh = 0.0;
-  double h = convectionCoefficient(face, faceTemperature, time, &dh);
-  double difference = case_.environment.temperature - faceTemperature;
-  channelHeat[convectionChannel_] += h * f.area * difference;
-  channelDerivative[convectionChannel_] += f.area * (dh * difference - h);
+  const SegmentSurface& surface = surfaces_[f.segment];
+  if (derivative) *derivative = 0.0;
+  if (surface.fixedConvection) return surface.convectionCoefficient;
+
+  const SegmentSpec& s = case_.segments[f.segment];
+  const FaceFluid fl = fluid(f.segment, time);
+  ConvectionInput in;
+  in.medium = fl.medium;
+  in.geometry = f.shape == Shape::Sphere ? Geometry::Sphere : f.shape == Shape::Plate ? Geometry::Plate
+                                                                                      : Geometry::Cylinder;
+  in.choice = s.surface.correlation == ConvectionCorrelation::Mitchell ? CorrelationChoice::Mitchell
+                                                                        : CorrelationChoice::Standard;
+  in.surfaceTemperature = faceTemperature;
+  in.fluidTemperature = fl.temperature;
+  in.speed = fl.speed;
+  in.length = f.characteristicLength;
+  in.volumeLength = f.volumeLength;
+  in.verticalPlate = s.surface.orientation == PlateOrientation::Vertical;
+  in.width = surface.width;
+  const ConvectionResult r = thermorph::convectionCoefficient(in);
+  if (r.outsideValidity) collectWarnings();
+  if (derivative) *derivative = r.dh_dTs;
+  return r.h;
 }
 
-std::vector<double> EnvironmentModel::breakpoints() const { return {}; }
+void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<double> channelHeat,
+                                std::span<double> channelDerivative) const {
+  const FaceDescription& f = faces_[face];
+  const SegmentSurface& surface = surfaces_[f.segment];
+  const SurfaceSpec& spec = case_.segments[f.segment].surface;
+  const FaceFluid fl = fluid(f.segment, time);
+  const double exposed = (1.0 - spec.contactFraction) * f.area;  // A_e [m2]
 
-void EnvironmentModel::setInterval(std::size_t interval) { interval_ = interval; }
+  // Convection, Newton's law: q = h A_e (T_f - T_s), dq/dT_s = A_e (h' (T_f - T_s) - h).
+  double dh = 0.0;
+  const double h = convectionCoefficient(face, Ts, time, &dh);
+  const double difference = fl.temperature - Ts;
+  channelHeat[convectionChannel_] += h * exposed * difference;
+  channelDerivative[convectionChannel_] += exposed * (dh * difference - h);
 
-std::vector<EnvironmentSeries> EnvironmentModel::series() const { return {{"temperature", "degC"}}; }
+  if (!surface.inWater) {
+    // Long-wave radiation (Stefan-Boltzmann), the exposed surface seeing sky over sky_view and the
+    // surroundings at the mean radiant temperature over the rest. Water is opaque to long-wave radiation.
+    if (surface.emissivity > 0.0) {
+      const double eps = surface.emissivity * exposed;
+      const SurfaceFlux sky = longwaveRadiation(eps * spec.skyView, Ts, value(V::SkyTemperature, time));
+      const SurfaceFlux rest = longwaveRadiation(eps * (1.0 - spec.skyView), Ts, value(V::RadiantTemperature, time));
+      channelHeat[radiationChannel_] += sky.flux + rest.flux;
+      channelDerivative[radiationChannel_] += sky.dFlux_dTs + rest.dFlux_dTs;
+    }
+    // Absorbed solar radiation: alpha S (projected / total area) A.
+    channelHeat[solarChannel_] += spec.solarAbsorptivity * value(V::SolarIrradiance, time) * spec.solarExposure * f.area;
 
-void EnvironmentModel::seriesValues(double, std::span<double> values) const {
-  values[0] = case_.environment.temperature - 273.15;
+    // Cutaneous evaporation by the heat-mass transfer analogy with air properties at the film temperature;
+    // the slope includes h(T_s) and the film properties' dependence on T_s (through T_film = (T_s + T_a)/2).
+    if (spec.wettedFraction > 0.0) {
+      const double film = 0.5 * (Ts + fl.temperature);
+      EvaporationInput in;
+      in.convectionCoefficient = h;
+      in.surfaceTemperature = Ts;
+      in.airTemperature = fl.temperature;
+      in.relativeHumidity = value(V::RelativeHumidity, time);
+      in.wettedFraction = spec.wettedFraction;
+      in.airDensity = kStandardPressure / (kGasConstantDryAir * film);
+      in.airSpecificHeat = fluidProperties(Medium::Air, film).specificHeat;
+      in.lewisNumber = lewisNumberVapourInAir(film);
+      const EvaporationFlux e = cutaneousEvaporation(in);
+      constexpr double step = 0.01;  // K, central difference of the smooth property group
+      const double group = analogyGroup(film);
+      const double dLogGroup = (analogyGroup(film + step) - analogyGroup(film - step)) / (2.0 * step * group);
+      channelHeat[evaporationChannel_] += e.flux * exposed;
+      channelDerivative[evaporationChannel_] += exposed * (e.dFlux_dTs + e.dFlux_dh * dh + e.flux * 0.5 * dLogGroup);
+    }
+  }
+
+  // Conduction to the substrate over the contact area: q = h_sub f_c A (T_sub - T_s).
+  if (spec.contactFraction > 0.0) {
+    const double conductance = case_.environment.substrateConductance.value_or(0.0) * spec.contactFraction * f.area;
+    channelHeat[substrateChannel_] += conductance * (value(V::SubstrateTemperature, time) - Ts);
+    channelDerivative[substrateChannel_] -= conductance;
+  }
+}
+
+namespace {
+struct SeriesInfo {
+  V variable;
+  const char* name;
+  const char* units;
+};
+constexpr SeriesInfo kSeries[] = {
+    {V::Temperature, "temperature", "degC"},
+    {V::Speed, "speed", "m s-1"},
+    {V::WaterTemperature, "water_temperature", "degC"},
+    {V::WaterSpeed, "water_speed", "m s-1"},
+    {V::AirTemperature, "air_temperature", "degC"},
+    {V::AirSpeed, "air_speed", "m s-1"},
+    {V::RelativeHumidity, "relative_humidity", "1"},
+    {V::RadiantTemperature, "radiant_temperature", "degC"},
+    {V::SkyTemperature, "sky_temperature", "degC"},
+    {V::SolarIrradiance, "solar_irradiance", "W m-2"},
+    {V::SubstrateTemperature, "substrate_temperature", "degC"},
+};
+}  // namespace
+
+//! The other medium's values are stored only when some segment is in it.
+static bool seriesUsed(const SeriesInfo& s, SurroundingMedium medium, bool anyWater, bool anyAir) {
+  const bool water = s.variable == V::WaterTemperature || s.variable == V::WaterSpeed;
+  const bool air = s.variable == V::AirTemperature || s.variable == V::AirSpeed;
+  if (water) return medium == SurroundingMedium::Air && anyWater;
+  if (air) return medium != SurroundingMedium::Air && anyAir;
+  return true;
+}
+
+std::vector<EnvironmentSeries> EnvironmentModel::series() const {
+  bool anyWater = false, anyAir = false;
+  for (const SegmentSurface& s : surfaces_) (s.inWater ? anyWater : anyAir) = true;
+  std::vector<EnvironmentSeries> out;
+  for (const SeriesInfo& s : kSeries)
+    if (seriesUsed(s, case_.environment.medium, anyWater, anyAir)) out.push_back({s.name, s.units});
+  return out;
+}
+
+void EnvironmentModel::seriesValues(double time, std::span<double> values) const {
+  bool anyWater = false, anyAir = false;
+  for (const SegmentSurface& s : surfaces_) (s.inWater ? anyWater : anyAir) = true;
+  std::size_t k = 0;
+  for (const SeriesInfo& s : kSeries) {
+    if (!seriesUsed(s, case_.environment.medium, anyWater, anyAir)) continue;
+    const double v = value(s.variable, time);
+    values[k++] = std::string_view(s.units) == "degC" ? v - kZeroCelsius : v;
+  }
 }
 
 double EnvironmentModel::meanConvectionCoefficient(Index segment, double time,
@@ -44,6 +285,15 @@ double EnvironmentModel::meanConvectionCoefficient(Index segment, double time,
     area += faces_[f].area;
   }
   return area > 0.0 ? hA / area : 0.0;
+}
+
+void EnvironmentModel::collectWarnings() const {
+  for (std::string& w : takeValidityWarnings()) warnings_.push_back(std::move(w));
+}
+
+std::vector<std::string> EnvironmentModel::warnings() const {
+  collectWarnings();
+  return warnings_;
 }
 
 }  // namespace thermorph

@@ -1,10 +1,14 @@
 #pragma once
 //! Surface exchange of exterior faces with the surroundings: the SurfaceModel that models/ gives the solver.
+//! Channels (W, positive into the body): convection, radiation (long-wave), solar, evaporation (cutaneous),
+//! substrate (contact conduction). Environment values change along the [[events]] timeline.
+#include <array>
 #include <span>
 #include <string>
 #include <vector>
 
 #include "models/case.hpp"
+#include "models/media.hpp"
 #include "solver/network.hpp"
 
 namespace thermorph {
@@ -16,7 +20,7 @@ struct FaceDescription {
   bool lateral = true;          //!< outer lateral face (false: an end face of a cylinder or cone)
   double area = 0.0;            //!< [m2]
   double characteristicLength = 0.0;  //!< outer diameter (sphere, cylinder, cone) or plate length [m]
-  double volumeLength = 0.0;    //!< cube root of the segment's volume, coat included [m]
+  double volumeLength = 0.0;    //!< cube root of the segment's volume, coat included [m] (0: computed here)
 };
 
 //! One named environment series for the results file (/environment/NAME).
@@ -25,14 +29,28 @@ struct EnvironmentSeries {
   std::string units;
 };
 
+//! The fluid around one face at one time.
+struct FaceFluid {
+  Medium medium = Medium::Air;
+  double temperature = 0.0;  //!< [K]
+  double speed = 0.0;        //!< [m/s]
+};
+
 class EnvironmentModel : public SurfaceModel {
  public:
-  //! Registers its budget channels in `network` (convection first).
+  //! Registers its budget channels in `network`: convection, radiation, solar, evaporation, substrate.
   EnvironmentModel(const Case& c, Network& network);
 
   //! Describe the next exterior face; faces are added in network face-index order.
   void addFace(const FaceDescription& face);
 
+  //! Heat into the body through one face [W] per channel and its derivative with the face temperature [W/K]:
+  //!   convection  h A_e (T_f - T_s), h from correlations at the film temperature or fixed;
+  //!   radiation   eps sigma A_e [F_sky (T_sky^4 - T_s^4) + (1 - F_sky)(T_r^4 - T_s^4)] (air only);
+  //!   solar       alpha S exposure A (air only);
+  //!   evaporation -w h_m [rho_v,sat(T_s) - RH rho_v,sat(T_a)] L_v A_e (air only; Chilton-Colburn analogy);
+  //!   substrate   h_sub f_c A (T_sub - T_s);
+  //! with A_e = (1 - f_c) A the exposed area and f_c the contact fraction.
   void faceHeat(Index face, double faceTemperature, double time, std::span<double> channelHeat,
                 std::span<double> channelDerivative) const override;
 
@@ -49,13 +67,41 @@ class EnvironmentModel : public SurfaceModel {
   //! temperatures (all faces of the network) [W/(m2 K)].
   double meanConvectionCoefficient(Index segment, double time, std::span<const double> faceTemperatures) const;
 
+  //! True when the segment is in water (its coat then conducts at its wet conductivity).
+  bool immersed(Index segment) const;
+  //! The fluid around a segment's faces at time t in the current interval.
+  FaceFluid fluid(Index segment, double time) const;
+  //! Long-wave emissivity used for a segment, defaults resolved [1].
+  double emissivity(Index segment) const;
+  //! Value of an environment variable at time t in the current interval [SI].
+  double value(EnvironmentVariable variable, double time) const;
+  //! Correlations used outside their validity range, each reported once (collected while running).
+  std::vector<std::string> warnings() const;
+
  private:
+  //! A segment's surface with every default resolved.
+  struct SegmentSurface {
+    bool inWater = false;
+    bool fixedConvection = false;
+    double convectionCoefficient = 0.0;  //!< when fixed [W/(m2 K)]
+    double emissivity = 0.0;
+    double volumeLength = 0.0;  //!< V^(1/3), coat included [m]
+    double width = 0.0;         //!< plate width [m]
+  };
+  //! Convection coefficient [W/(m2 K)] of a face and its slope with the face temperature [W/(m2 K2)].
   double convectionCoefficient(Index face, double faceTemperature, double time, double* derivative) const;
+  void collectWarnings() const;
 
   const Case& case_;
   std::vector<FaceDescription> faces_;
-  Index convectionChannel_ = 0;
+  std::vector<SegmentSurface> surfaces_;
+  std::vector<double> breakpoints_;
+  Index convectionChannel_ = 0, radiationChannel_ = 0, solarChannel_ = 0, evaporationChannel_ = 0,
+        substrateChannel_ = 0;
   std::size_t interval_ = 0;
+  //! In the current interval every variable is linear in time: offset + slope t [SI, SI/s].
+  std::array<double, kEnvironmentVariables> offset_{}, slope_{};
+  mutable std::vector<std::string> warnings_;
 };
 
 }  // namespace thermorph

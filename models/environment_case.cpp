@@ -1,14 +1,143 @@
 #include "models/environment_case.hpp"
 
+#include <algorithm>
+#include <array>
+#include <cctype>
+#include <numbers>
+
+// GCC 12 reports a false -Wrestrict in std::string concatenation inlined from CaseReader::checkRange
+// (GCC bug 105329); the header is not ours to change.
+#if defined(__GNUC__) && !defined(__clang__)
+#pragma GCC diagnostic push
+#pragma GCC diagnostic ignored "-Wrestrict"
+#endif
 #include "models/case_reader.hpp"
+#if defined(__GNUC__) && !defined(__clang__)
+#pragma GCC diagnostic pop
+#endif
 
 namespace thermorph {
+
+namespace {
+
+using V = EnvironmentVariable;
+
+//! Every variable in enum order, with its case key.
+struct VariableInfo {
+  V variable;
+  std::string_view key;
+  double EnvironmentSpec::*field;
+};
+constexpr std::array<VariableInfo, kEnvironmentVariables> variables{{
+    {V::Temperature, "temperature", &EnvironmentSpec::temperature},
+    {V::Speed, "speed", &EnvironmentSpec::speed},
+    {V::WaterTemperature, "water_temperature", &EnvironmentSpec::waterTemperature},
+    {V::WaterSpeed, "water_speed", &EnvironmentSpec::waterSpeed},
+    {V::AirTemperature, "air_temperature", &EnvironmentSpec::airTemperature},
+    {V::AirSpeed, "air_speed", &EnvironmentSpec::airSpeed},
+    {V::RelativeHumidity, "relative_humidity", &EnvironmentSpec::relativeHumidity},
+    {V::RadiantTemperature, "radiant_temperature", &EnvironmentSpec::radiantTemperature},
+    {V::SkyTemperature, "sky_temperature", &EnvironmentSpec::skyTemperature},
+    {V::SolarIrradiance, "solar_irradiance", &EnvironmentSpec::solarIrradiance},
+    {V::SubstrateTemperature, "substrate_temperature", &EnvironmentSpec::substrateTemperature},
+}};
+
+const VariableInfo& info(V v) { return variables[static_cast<std::size_t>(v)]; }
+
+//! Variables that follow another until given explicitly (in [environment] or an earlier event), in
+//! dependency order: the follower takes the leader's value whenever the leader changes.
+struct FollowRule {
+  V follower;
+  V leader;
+};
+//! The air temperature is `temperature` in air and `air_temperature` in water.
+std::array<FollowRule, 5> followRules(SurroundingMedium medium) {
+  const V air = medium == SurroundingMedium::Air ? V::Temperature : V::AirTemperature;
+  return {{{V::WaterTemperature, V::Temperature},
+           {V::AirTemperature, V::Temperature},
+           {V::RadiantTemperature, air},
+           {V::SkyTemperature, V::RadiantTemperature},
+           {V::SubstrateTemperature, V::Temperature}}};
+}
+
+//! True when `v` belongs to the other medium than `medium` (water_* in water, air_* in air): not a case key.
+bool notApplicable(V v, SurroundingMedium medium) {
+  const bool inAir = medium == SurroundingMedium::Air;
+  return inAir ? (v == V::AirTemperature || v == V::AirSpeed) : (v == V::WaterTemperature || v == V::WaterSpeed);
+}
+
+[[noreturn]] void failNotApplicable(const TableView& view, V v, SurroundingMedium medium) {
+  const bool inAir = medium == SurroundingMedium::Air;
+  view.fail(info(v).key,
+            fmt::format("\"{}\" applies only when [environment] medium is {}; here the medium is {}, so use "
+                        "\"{}\"",
+                        info(v).key, inAir ? "water or sea_water" : "air", inAir ? "air" : "water",
+                        info(v).key.substr(info(v).key.find('_') + 1)));
+}
+
+SurroundingMedium mediumOf(const std::string& name) {
+  return name == "air" ? SurroundingMedium::Air : name == "water" ? SurroundingMedium::Water
+                                                                  : SurroundingMedium::SeaWater;
+}
+const char* mediumName(SurroundingMedium m) {
+  return m == SurroundingMedium::Air ? "air" : m == SurroundingMedium::Water ? "water" : "sea_water";
+}
+
+//! A convection key: "correlation" or a coefficient (schema kind Quantity).
+std::optional<ConvectionSetting> readConvection(const TableView& view) {
+  const toml::node* node = view.node("convection");
+  if (!node) return std::nullopt;
+  if (auto text = node->value<std::string>()) {
+    if (*text == "correlation") return ConvectionSetting{};
+    if (std::none_of(text->begin(), text->end(), [](unsigned char c) { return std::isdigit(c); }))
+      view.fail("convection", fmt::format("convection = \"{}\": expected \"correlation\" or a fixed coefficient "
+                                          "such as \"10 W/(m2 K)\"",
+                                          *text));
+  }
+  return ConvectionSetting{true, view.quantity("convection")};
+}
+
+}  // namespace
+
+std::string_view environmentKey(EnvironmentVariable variable) { return info(variable).key; }
+
+double EnvironmentSpec::value(EnvironmentVariable v) const { return this->*info(v).field; }
+double& EnvironmentSpec::value(EnvironmentVariable v) { return this->*info(v).field; }
 
 EnvironmentSpec readEnvironment(const TableView& root) {
   TableView env = root.child("environment");
   EnvironmentSpec e;
-  e.temperature = env.quantity("temperature");
-  e.convectionCoefficient = env.quantity("convection");
+  e.medium = mediumOf(env.choice("medium"));
+  e.immersionWater = mediumOf(env.choice("immersion_water"));
+  if (e.medium != SurroundingMedium::Air && env.has("immersion_water"))
+    env.fail("immersion_water", "immersion_water applies only when the medium is air (in water, segments with "
+                                "immersion = \"always\" are in the medium)");
+  if (auto c = readConvection(env)) e.convection = *c;
+
+  for (const VariableInfo& v : variables) {
+    if (notApplicable(v.variable, e.medium)) {
+      if (env.has(v.key)) failNotApplicable(env, v.variable, e.medium);
+      continue;
+    }
+    if (auto value = env.optionalQuantity(v.key)) e.value(v.variable) = *value;
+  }
+  for (const FollowRule& rule : followRules(e.medium))
+    if (!env.has(info(rule.follower).key)) e.value(rule.follower) = e.value(rule.leader);
+  if (e.medium != SurroundingMedium::Air) e.immersionWater = e.medium;
+
+  e.substrateConductance = env.optionalQuantity("substrate_conductance");
+  if (!e.substrateConductance) {
+    // Contact needs the substrate's conductance: find a segment that asks for it.
+    if (const toml::node* segments = root.node("segments"); segments && segments->is_array()) {
+      const toml::array& array = *segments->as_array();
+      for (std::size_t i = 0; i < array.size(); ++i) {
+        const toml::table* s = array[i].as_table();
+        auto fraction = s ? (*s)["surface"]["contact_fraction"].value<double>() : std::nullopt;
+        if (fraction && *fraction > 0.0)
+          env.missing("substrate_conductance");
+      }
+    }
+  }
   return e;
 }
 
@@ -17,23 +146,137 @@ SurfaceSpec readSurface(const TableView& segment, Shape shape) {
   SurfaceSpec s;
   s.ends = surface.choice("ends") == "insulated" ? EndCondition::Insulated : EndCondition::Exposed;
   if (shape == Shape::Sphere && surface.has("ends")) surface.fail("ends", "a sphere has no end faces");
-  s.convectionCoefficient = surface.optionalQuantity("convection");
+  s.convection = readConvection(surface);
+  s.correlation =
+      surface.choice("correlation") == "mitchell" ? ConvectionCorrelation::Mitchell : ConvectionCorrelation::Standard;
+  s.orientation = surface.choice("orientation") == "horizontal" ? PlateOrientation::Horizontal
+                                                                 : PlateOrientation::Vertical;
+  if (shape != Shape::Plate && surface.has("orientation"))
+    surface.fail("orientation", fmt::format("orientation applies to plates; a {} is taken as horizontal in free "
+                                            "convection and in cross flow when forced",
+                                            shapeName(shape)));
+  if (surface.has("emissivity")) s.emissivity = surface.number("emissivity");
+  s.solarAbsorptivity = surface.number("solar_absorptivity");
+  // Projected over total area for a beam normal to the axis or face: sphere pi r^2 / 4 pi r^2; cylinder
+  // 2 r L / 2 pi r L; plate one face of two (common practice, no source).
+  switch (shape) {
+    case Shape::Sphere: s.solarExposure = 0.25; break;
+    case Shape::Cylinder:
+    case Shape::Cone: s.solarExposure = 1.0 / std::numbers::pi; break;
+    case Shape::Plate: s.solarExposure = 0.5; break;
+  }
+  if (surface.has("solar_exposure")) s.solarExposure = surface.number("solar_exposure");
+  s.skyView = surface.number("sky_view");
+  s.contactFraction = surface.number("contact_fraction");
+  s.wettedFraction = surface.number("wetted_fraction");
+  const std::string immersion = surface.choice("immersion");
+  s.immersion = immersion == "always" ? Immersion::Always : immersion == "never" ? Immersion::Never : Immersion::Body;
   return s;
 }
 
-std::vector<EventSpec> readEvents(const CaseReader&, const TableView&, const toml::table&, double) { return {}; }
+std::vector<EventSpec> readEvents(const CaseReader& reader, const TableView& root, const toml::table& rootTable,
+                                  double duration) {
+  const toml::node* node = rootTable.get("events");
+  if (!node || !node->is_array()) return {};
+  const toml::array& array = *node->as_array();
+  const SurroundingMedium medium = mediumOf(root.child("environment").choice("medium"));
+
+  std::vector<EventSpec> read;
+  std::vector<TableView> views;
+  for (std::size_t i = 0; i < array.size(); ++i) {
+    TableView view(reader, array[i].as_table(), "events[]", "events." + CaseReader::elementLabel(array[i], i));
+    EventSpec e;
+    e.at = view.quantity("at");
+    e.ramp = view.quantity("ramp");
+    if (e.at >= duration)
+      view.fail("at", fmt::format("at = {:g} s is not before the end of the run (run.duration = {:g} s)", e.at,
+                                  duration));
+    TableView env = view.child("environment");
+    for (const VariableInfo& v : variables) {
+      if (!env.has(v.key)) continue;
+      if (notApplicable(v.variable, medium)) failNotApplicable(env, v.variable, medium);
+      e.environment.push_back({v.variable, env.quantity(v.key)});
+    }
+    read.push_back(std::move(e));
+    views.push_back(view);
+  }
+  std::vector<std::size_t> order(read.size());
+  for (std::size_t i = 0; i < order.size(); ++i) order[i] = i;
+  std::stable_sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) { return read[a].at < read[b].at; });
+  for (std::size_t k = 1; k < order.size(); ++k) {
+    const EventSpec& previous = read[order[k - 1]];
+    const EventSpec& e = read[order[k]];
+    if (e.at < previous.at + previous.ramp)
+      views[order[k]].fail("at", fmt::format("at = {:g} s falls inside the ramp of {} ({:g} s to {:g} s); events "
+                                             "may not overlap",
+                                             e.at, views[order[k - 1]].display(), previous.at,
+                                             previous.at + previous.ramp));
+  }
+
+  // Followers not given in [environment] keep following their leader through the timeline until given.
+  std::array<bool, kEnvironmentVariables> explicitly{};
+  TableView base = root.child("environment");
+  for (const VariableInfo& v : variables) explicitly[static_cast<std::size_t>(v.variable)] = base.has(v.key);
+  std::vector<EventSpec> events;
+  for (std::size_t index : order) {
+    EventSpec& e = read[index];
+    auto target = [&](V v) -> const double* {
+      for (const EnvironmentValue& value : e.environment)
+        if (value.variable == v) return &value.value;
+      return nullptr;
+    };
+    for (const EnvironmentValue& value : e.environment) explicitly[static_cast<std::size_t>(value.variable)] = true;
+    for (const FollowRule& rule : followRules(medium)) {
+      if (explicitly[static_cast<std::size_t>(rule.follower)] || notApplicable(rule.follower, medium)) continue;
+      if (const double* leader = target(rule.leader)) e.environment.push_back({rule.follower, *leader});
+    }
+    events.push_back(std::move(e));
+  }
+  return events;
+}
 
 toml::table environmentToml(const EnvironmentSpec& e) {
-  return toml::table{{"temperature", e.temperature}, {"convection", e.convectionCoefficient}};
+  toml::table t;
+  t.insert("medium", mediumName(e.medium));
+  if (e.convection.fixed) t.insert("convection", e.convection.coefficient);
+  else t.insert("convection", "correlation");
+  for (const VariableInfo& v : variables)
+    if (!notApplicable(v.variable, e.medium)) t.insert(v.key, e.value(v.variable));
+  if (e.medium == SurroundingMedium::Air) t.insert("immersion_water", mediumName(e.immersionWater));
+  if (e.substrateConductance) t.insert("substrate_conductance", *e.substrateConductance);
+  return t;
 }
 
 toml::table surfaceToml(const SurfaceSpec& s, Shape shape) {
   toml::table surface;
   if (shape != Shape::Sphere) surface.insert("ends", s.ends == EndCondition::Insulated ? "insulated" : "exposed");
-  if (s.convectionCoefficient) surface.insert("convection", *s.convectionCoefficient);
+  if (s.convection) {
+    if (s.convection->fixed) surface.insert("convection", s.convection->coefficient);
+    else surface.insert("convection", "correlation");
+  }
+  surface.insert("correlation", s.correlation == ConvectionCorrelation::Mitchell ? "mitchell" : "standard");
+  if (shape == Shape::Plate)
+    surface.insert("orientation", s.orientation == PlateOrientation::Horizontal ? "horizontal" : "vertical");
+  if (s.emissivity) surface.insert("emissivity", *s.emissivity);
+  surface.insert("solar_absorptivity", s.solarAbsorptivity);
+  surface.insert("solar_exposure", s.solarExposure);
+  surface.insert("sky_view", s.skyView);
+  surface.insert("contact_fraction", s.contactFraction);
+  surface.insert("wetted_fraction", s.wettedFraction);
+  surface.insert("immersion", s.immersion == Immersion::Always  ? "always"
+                              : s.immersion == Immersion::Never ? "never"
+                                                                : "body");
   return surface;
 }
 
-toml::array eventsToml(const std::vector<EventSpec>&) { return {}; }
+toml::array eventsToml(const std::vector<EventSpec>& events) {
+  toml::array out;
+  for (const EventSpec& e : events) {
+    toml::table environment;
+    for (const EnvironmentValue& v : e.environment) environment.insert(info(v.variable).key, v.value);
+    out.push_back(toml::table{{"at", e.at}, {"ramp", e.ramp}, {"environment", environment}});
+  }
+  return out;
+}
 
 }  // namespace thermorph

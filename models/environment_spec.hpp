@@ -1,28 +1,99 @@
 #pragma once
 //! Case data of the surroundings: the medium, per-segment surface properties and the event timeline.
+#include <cstddef>
 #include <optional>
+#include <string_view>
 #include <vector>
 
 namespace thermorph {
 
 enum class EndCondition { Exposed, Insulated };
 
-//! Surface properties of one segment ([segments.surface]).
+//! Which fluid a segment sits in: the [environment] medium, always water, or never water (always air).
+enum class Immersion { Body, Always, Never };
+enum class SurroundingMedium { Air, Water, SeaWater };
+enum class ConvectionCorrelation { Standard, Mitchell };
+enum class PlateOrientation { Vertical, Horizontal };
+
+//! A convection coefficient from published correlations, or a fixed value.
+struct ConvectionSetting {
+  bool fixed = false;
+  double coefficient = 0.0;  //!< when fixed [W/(m2 K)]
+};
+
+//! Surface properties of one segment ([segments.surface]); every default resolved except `emissivity`,
+//! whose default depends on the convection setting (see EnvironmentModel).
 struct SurfaceSpec {
-  EndCondition ends = EndCondition::Exposed;    //!< cylinder and cone end faces
-  std::optional<double> convectionCoefficient;  //!< per-segment fixed coefficient [W/(m2 K)]
+  EndCondition ends = EndCondition::Exposed;     //!< cylinder and cone end faces
+  std::optional<ConvectionSetting> convection;  //!< per-segment override of [environment] convection
+  std::optional<double> emissivity;             //!< long-wave emissivity [1]; nullopt: default rule
+  double solarAbsorptivity = 0.7;               //!< [1]
+  double solarExposure = 0.0;                   //!< sunlit projected area / surface area [1]
+  double skyView = 0.5;                         //!< share of the exposed surface's view filled by sky [1]
+  double contactFraction = 0.0;                 //!< share of the surface touching the substrate [1]
+  double wettedFraction = 0.0;                  //!< share of the exposed surface that is wet [1]
+  Immersion immersion = Immersion::Body;
+  ConvectionCorrelation correlation = ConvectionCorrelation::Standard;
+  PlateOrientation orientation = PlateOrientation::Vertical;  //!< plates only
 };
 
-//! The medium around the animal ([environment]).
+//! Time-dependent environment values, each a key of [environment] and of `environment = {...}` in [[events]].
+enum class EnvironmentVariable {
+  Temperature,           //!< of the medium [K]
+  Speed,                 //!< of the medium relative to the animal [m/s]
+  WaterTemperature,      //!< water around immersed segments when the medium is air [K]
+  WaterSpeed,            //!< [m/s]
+  AirTemperature,        //!< air around never-immersed segments when the medium is water [K]
+  AirSpeed,              //!< [m/s]
+  RelativeHumidity,      //!< of the air [1]
+  RadiantTemperature,    //!< mean radiant temperature of the surroundings [K]
+  SkyTemperature,        //!< effective long-wave sky temperature [K]
+  SolarIrradiance,       //!< beam irradiance on a surface normal to the beam [W/m2]
+  SubstrateTemperature,  //!< ground or perch [K]
+};
+inline constexpr std::size_t kEnvironmentVariables = 11;
+
+//! Case key of a variable ("water_temperature").
+std::string_view environmentKey(EnvironmentVariable variable);
+
+//! The medium around the animal ([environment]), every default resolved.
 struct EnvironmentSpec {
-  double temperature = 293.15;          //!< medium temperature [K]
-  double convectionCoefficient = 10.0;  //!< fixed convection coefficient [W/(m2 K)]
+  SurroundingMedium medium = SurroundingMedium::Air;
+  //! Kind of the water around segments with immersion "always" when the medium is air.
+  SurroundingMedium immersionWater = SurroundingMedium::Water;
+  ConvectionSetting convection;                //!< correlations unless fixed
+  std::optional<double> substrateConductance;  //!< contact conductance of the substrate [W/(m2 K)]
+  // Values at t = 0 (the timeline starts from them).
+  double temperature = 293.15;           //!< medium temperature [K]
+  double speed = 0.0;                    //!< medium speed relative to the animal [m/s]
+  double waterTemperature = 293.15;      //!< water for immersed segments in air [K]
+  double waterSpeed = 0.0;               //!< [m/s]
+  double airTemperature = 293.15;        //!< air for never-immersed segments in water [K]
+  double airSpeed = 0.0;                 //!< [m/s]
+  double relativeHumidity = 0.5;         //!< [1]
+  double radiantTemperature = 293.15;    //!< [K]
+  double skyTemperature = 293.15;        //!< [K]
+  double solarIrradiance = 0.0;          //!< [W/m2]
+  double substrateTemperature = 293.15;  //!< [K]
+
+  //! Value of one variable at t = 0 [SI].
+  double value(EnvironmentVariable v) const;
+  double& value(EnvironmentVariable v);
 };
 
-//! One entry of the timeline ([[events]]).
+//! One environment value set by an event.
+struct EnvironmentValue {
+  EnvironmentVariable variable = EnvironmentVariable::Temperature;
+  double value = 0.0;  //!< [SI]
+};
+
+//! One entry of the timeline ([[events]]): from `at`, values move linearly to their targets over `ramp`.
 struct EventSpec {
   double at = 0.0;    //!< start [s]
   double ramp = 0.0;  //!< duration of a linear ramp [s]; 0: a step
+  //! Targets, including values that follow another (radiant temperature following the air temperature when
+  //! never given explicitly), resolved at load time.
+  std::vector<EnvironmentValue> environment;
 };
 
 }  // namespace thermorph
