@@ -75,7 +75,7 @@ TEST_CASE("defaults are filled in and the resolved case reloads to the same valu
   CHECK(*again.circulation.fixedArterialTemperature == Approx(310.15));
 }
 
-TEST_CASE("--set overrides any key with the same checks", "[case]") {
+TEST_CASE("KEY=VALUE overrides (--set) change any key with the same checks", "[case]") {
   Case c = loadCaseFromString(minimal, "case.toml",
                               {"segments.leg.layers.1.thickness=4 cm", "environment.temperature=\"5 degC\"",
                                "run.duration=600", "segments.0.axial_cells=7"});
