@@ -350,8 +350,15 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
   }
   if (s.coat) {
     m.layerNames.push_back(s.coat->material);
+    // An immersed coat conducts with its wet conductivity (Scholander et al. 1950: wet fur loses most insulation).
+    const TissueProperties* coat = &case_.tissues.at(s.coat->material);
+    if (environment_->immersed(group) && coat->wetConductivity > 0.0) {
+      wetCoats_.push_back(std::make_unique<TissueProperties>(*coat));
+      wetCoats_.back()->conductivity = coat->wetConductivity;
+      coat = wetCoats_.back().get();
+    }
     for (int i = 0; i < s.coat->cells; ++i) {
-      tissue.push_back(&case_.tissues.at(s.coat->material));
+      tissue.push_back(coat);
       m.layer.push_back(static_cast<int>(s.layers.size()));
     }
   }

@@ -85,6 +85,7 @@ class Body {
   Index core_ = 0;
   double totalFlow_ = 0.0, cardiacOutput_ = 0.0, bodyMass_ = 0.0, bloodVolume_ = 0.0, basalRate_ = 0.0;
   std::vector<std::string> warnings_;
+  std::vector<std::unique_ptr<TissueProperties>> wetCoats_;  //!< coat properties of immersed segments
 };
 
 }  // namespace thermorph
