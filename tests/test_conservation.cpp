@@ -47,6 +47,49 @@ convection = "10 W/(m2 K)"
   CHECK(relative <= 1e-6);
 }
 
+TEST_CASE("Whole-body run with a blood pool, paired limbs and surface correlations conserves energy",
+          "[validation]") {
+  // First law (common practice, no source), as above, where budgets are weighted by segment counts (a pair of
+  // legs simulated once), blood circulates through a central pool with countercurrent exchange and shunts, and
+  // the surface exchanges heat by convection correlations, radiation, sun and evaporation.
+  auto body = bodyFromToml(R"toml(
+[run]
+duration = "1 h"
+output_interval = "15 min"
+initial_temperature = "37 degC"
+[[segments]]
+name = "trunk"
+shape = "sphere"
+layers = [{ tissue = "viscera", thickness = "5 cm", cells = 5 }, { tissue = "muscle", thickness = "1 cm", cells = 3 },
+          { tissue = "skin", thickness = "0.2 cm", cells = 1 }]
+coat = { material = "fur", thickness = "1 cm", cells = 2 }
+[[segments]]
+name = "leg"
+parent = "trunk"
+count = 2
+shape = "cylinder"
+length = "15 cm"
+axial_cells = 4
+layers = [{ tissue = "muscle", thickness = "1 cm", cells = 3 }, { tissue = "skin", thickness = "0.2 cm", cells = 1 }]
+vessels = { countercurrent_conductance = "0.05 W/K", shunt_flow_max = "0.1 mL/s" }
+vasomotor = { shunt = 0.5, superficial_return = 0.3 }
+surface = { wetted_fraction = 0.2 }
+[environment]
+temperature = "5 degC"
+speed = "2 m/s"
+solar_irradiance = "300 W/m2"
+)toml");
+  RunSummary s = runTransient(*body, silentRun());
+  REQUIRE(s.complete);
+  const double relative = std::abs(s.energyBalanceError) / s.throughput;
+  std::printf("[validation] energy balance, whole body with pool and paired legs, 1 h: error %.3e J of %.4e J "
+              "exchanged (relative %.2e)\n",
+              s.energyBalanceError, s.throughput, relative);
+  INFO("energy balance error " << s.energyBalanceError << " J, throughput " << s.throughput << " J");
+  CHECK(s.throughput > 1e4);
+  CHECK(relative <= 1e-6);
+}
+
 TEST_CASE("An insulated body stores exactly its metabolic heat", "[validation]") {
   // First law (common practice, no source): with insulated ends, no convection (h = 0) and no perfusion the only
   // heat input is metabolism M = q V_tissue, constant because Q10 = 1; stored heat rises by M t. Criterion:
