@@ -29,7 +29,7 @@ constexpr double initialTemperature = 310.15;  // [K]
 constexpr double fluidTemperature = 290.15;    // [K]
 constexpr double diffusivity = conductivity / (density * specificHeat);
 
-//! Eigenvalues zeta_n and coefficients C_n of the one-term-and-beyond series theta* = sum C_n e^(-zeta_n^2 Fo) X_n.
+//! Eigenvalues zeta_n and coefficients C_n of the series theta* = sum C_n e^(-zeta_n^2 Fo) X_n(zeta_n r*) [1].
 struct Series {
   std::vector<double> zeta, coefficient;
 };
