@@ -118,7 +118,7 @@ constexpr std::array params = {
     Param{"segments[].surface.emissivity", K::Number, "", "", 0, 1, false, "",
           "Long-wave emissivity. Default 0.98 for bare skin (Steketee 1973), 0.95 for a coat (from memory) when "
           "convection comes from correlations; 0 (no radiation) when the segment's convection is a fixed "
-          "coefficient, read as a combined textbook coefficient."},
+          "coefficient, which then stands for the whole dry heat exchange (Newton cooling)."},
     Param{"segments[].surface.solar_absorptivity", K::Number, "", "0.7", 0, 1, false, "",
           "Share of solar radiation absorbed (coats range 0.34-0.90, Dawson et al. 2014)."},
     Param{"segments[].surface.solar_exposure", K::Number, "", "", 0, 1, false, "",
@@ -173,6 +173,9 @@ constexpr std::array params = {
           "Ground or perch temperature; default: the medium temperature."},
     Param{"environment.substrate_conductance", K::Quantity, "W/(m2 K)", "", 0, 1e6, true, "",
           "Contact conductance of the substrate per contact area; required when a contact_fraction is > 0."},
+    Param{"environment.weather", K::Text, "", "", 0, 0, false, "",
+          "CSV file (relative to the case) of values over time, linearly interpolated between rows: header "
+          "`time [h], temperature [degC], speed [m/s], ...` with [[events]] environment keys and optional units."},
     Param{"environment.water_temperature", K::Quantity, "K", "", tMin, tMax, false, "",
           "Medium air only: water around segments with immersion = \"always\"; default: temperature."},
     Param{"environment.water_speed", K::Quantity, "m/s", "0 m/s", 0, 100, false, "",

@@ -3,6 +3,10 @@
 #include <algorithm>
 #include <array>
 #include <cctype>
+#include <charconv>
+#include <filesystem>
+#include <fstream>
+#include <sstream>
 #include <numbers>
 
 // GCC 12 reports a false -Wrestrict in std::string concatenation inlined from CaseReader::checkRange
@@ -174,50 +178,165 @@ SurfaceSpec readSurface(const TableView& segment, Shape shape) {
   return s;
 }
 
+namespace {
+
+//! Where an event came from, for messages.
+struct EventSource {
+  const toml::node* node = nullptr;  //!< the `at` key, or environment.weather
+  std::string path;                  //!< key path of that node
+  std::string label;                 //!< "events.2", "weather.csv line 7"
+};
+
+std::string trim(std::string_view text) {
+  std::size_t begin = 0, end = text.size();
+  while (begin < end && std::isspace(static_cast<unsigned char>(text[begin]))) ++begin;
+  while (end > begin && std::isspace(static_cast<unsigned char>(text[end - 1]))) --end;
+  return std::string(text.substr(begin, end - begin));
+}
+
+std::vector<std::string> splitCsv(const std::string& line) {
+  std::vector<std::string> cells;
+  std::stringstream ss(line);
+  for (std::string cell; std::getline(ss, cell, ',');) cells.push_back(trim(cell));
+  if (!line.empty() && line.back() == ',') cells.push_back("");
+  return cells;
+}
+
+[[noreturn]] void failWeather(const CaseReader& reader, const toml::node* node, const std::string& key,
+                              const std::filesystem::path& file, int line, const std::string& what) {
+  reader.fail(node, key, fmt::format("{}:{}: {}", file.string(), line, what));
+}
+
+//! Rows of environment.weather as events: a step to the first row at its time, then a linear ramp to each next
+//! row; rows after the run are dropped. Header: `time [h], temperature [degC], speed [m/s], ...` (units optional,
+//! SI without).
+void readWeather(const CaseReader& reader, const TableView& environment, SurroundingMedium medium, double duration,
+                 std::vector<EventSpec>& events, std::vector<EventSource>& sources) {
+  const std::string name = environment.text("weather");
+  const toml::node* node = environment.node("weather");
+  const std::string key = environment.path("weather");
+  std::filesystem::path file(name);
+  if (file.is_relative()) file = std::filesystem::path(reader.file()).parent_path() / file;
+  std::ifstream in(file);
+  if (!in) reader.fail(node, key, fmt::format("cannot open the weather file {}", file.string()));
+  auto failAt = [&](int line, const std::string& what) { failWeather(reader, node, key, file, line, what); };
+
+  struct Column {
+    std::optional<V> variable;  //!< nullopt: time
+    std::string unit, siUnit;
+  };
+  std::vector<Column> columns;
+  std::vector<double> previous;
+  double previousTime = -1.0;
+  int lineNumber = 0;
+  for (std::string line; std::getline(in, line);) {
+    ++lineNumber;
+    if (!line.empty() && line.back() == '\r') line.pop_back();
+    if (trim(line).empty() || trim(line).front() == '#') continue;
+    std::vector<std::string> cells = splitCsv(line);
+    if (columns.empty()) {
+      for (std::size_t i = 0; i < cells.size(); ++i) {
+        std::string header = cells[i], unit;
+        if (auto open = header.find('['); open != std::string::npos) {
+          auto close = header.find(']', open);
+          if (close == std::string::npos) failAt(lineNumber, fmt::format("column \"{}\": unit without \"]\"", header));
+          unit = trim(header.substr(open + 1, close - open - 1));
+          header = trim(header.substr(0, open));
+        }
+        Column column{std::nullopt, unit, "s"};
+        if (i == 0) {
+          if (header != "time") failAt(lineNumber, fmt::format("the first column must be \"time\", not \"{}\"", header));
+        } else {
+          auto it = std::find_if(variables.begin(), variables.end(), [&](const VariableInfo& v) { return v.key == header; });
+          if (it == variables.end() || notApplicable(it->variable, medium)) {
+            std::vector<std::string> keys;
+            for (const VariableInfo& v : variables)
+              if (!notApplicable(v.variable, medium)) keys.emplace_back(v.key);
+            failAt(lineNumber, fmt::format("unknown column \"{}\" (columns: time, {})", header, fmt::join(keys, ", ")));
+          }
+          column.variable = it->variable;
+          column.siUnit = std::string(findParam("events[].environment." + std::string(it->key))->unit);
+        }
+        if (!unit.empty() && !unitConvertible(unit, column.siUnit))
+          failAt(lineNumber, fmt::format("column \"{}\": unit \"{}\" is not a {} (SI: {})", header, unit,
+                                         quantityName(column.siUnit), column.siUnit));
+        columns.push_back(column);
+      }
+      continue;
+    }
+    if (cells.size() != columns.size())
+      failAt(lineNumber, fmt::format("{} values, expected {} (one per column)", cells.size(), columns.size()));
+    std::vector<double> row;
+    for (std::size_t i = 0; i < cells.size(); ++i) {
+      double value = 0.0;
+      auto [ptr, ec] = std::from_chars(cells[i].data(), cells[i].data() + cells[i].size(), value);
+      if (ec != std::errc() || ptr != cells[i].data() + cells[i].size())
+        failAt(lineNumber, fmt::format("\"{}\" is not a number", cells[i]));
+      const Column& c = columns[i];
+      if (!c.unit.empty()) value = convertUnit(value, c.unit, c.siUnit);
+      if (c.variable) {
+        const Param& p = *findParam("events[].environment." + std::string(info(*c.variable).key));
+        if (!(value >= p.min && value <= p.max))
+          failAt(lineNumber, fmt::format("{} = {:g} {} is out of range ({:g} to {:g} {})", info(*c.variable).key, value,
+                                         c.siUnit, p.min, p.max, c.siUnit));
+      }
+      row.push_back(value);
+    }
+    const double time = row[0];
+    if (!(time >= 0.0)) failAt(lineNumber, fmt::format("time {:g} s is negative", time));
+    if (!previous.empty() && !(time > previousTime))
+      failAt(lineNumber, fmt::format("time {:g} s does not increase (previous row {:g} s)", time, previousTime));
+    if (previous.empty() ? time < duration : previousTime < duration) {
+      EventSpec e;
+      e.at = previous.empty() ? time : previousTime;
+      e.ramp = previous.empty() ? 0.0 : time - previousTime;
+      for (std::size_t i = 1; i < row.size(); ++i) e.environment.push_back({*columns[i].variable, row[i]});
+      events.push_back(std::move(e));
+      sources.push_back({node, key, fmt::format("{} line {}", file.filename().string(), lineNumber)});
+    }
+    previous = row;
+    previousTime = time;
+  }
+  if (previous.empty()) reader.fail(node, key, fmt::format("{}: no data rows", file.string()));
+}
+
+}  // namespace
+
 std::vector<EventSpec> readEvents(const CaseReader& reader, const TableView& root, const toml::table& rootTable,
                                   double duration) {
-  const toml::node* node = rootTable.get("events");
-  if (!node || !node->is_array()) return {};
-  const toml::array& array = *node->as_array();
-  const SurroundingMedium medium = mediumOf(root.child("environment").choice("medium"));
-
+  TableView base = root.child("environment");
+  const SurroundingMedium medium = mediumOf(base.choice("medium"));
   std::vector<EventSpec> read;
-  std::vector<TableView> views;
-  for (std::size_t i = 0; i < array.size(); ++i) {
-    TableView view(reader, array[i].as_table(), "events[]", "events." + CaseReader::elementLabel(array[i], i));
-    EventSpec e;
-    e.at = view.quantity("at");
-    e.ramp = view.quantity("ramp");
-    if (e.at >= duration)
-      view.fail("at", fmt::format("at = {:g} s is not before the end of the run (run.duration = {:g} s)", e.at,
-                                  duration));
-    TableView env = view.child("environment");
-    for (const VariableInfo& v : variables) {
-      if (!env.has(v.key)) continue;
-      if (notApplicable(v.variable, medium)) failNotApplicable(env, v.variable, medium);
-      e.environment.push_back({v.variable, env.quantity(v.key)});
+  std::vector<EventSource> sources;
+  if (const toml::node* node = rootTable.get("events"); node && node->is_array()) {
+    const toml::array& array = *node->as_array();
+    for (std::size_t i = 0; i < array.size(); ++i) {
+      TableView view(reader, array[i].as_table(), "events[]", "events." + CaseReader::elementLabel(array[i], i));
+      EventSpec e;
+      e.at = view.quantity("at");
+      e.ramp = view.quantity("ramp");
+      if (e.at >= duration)
+        view.fail("at", fmt::format("at = {:g} s is not before the end of the run (run.duration = {:g} s)", e.at,
+                                    duration));
+      TableView env = view.child("environment");
+      for (const VariableInfo& v : variables) {
+        if (!env.has(v.key)) continue;
+        if (notApplicable(v.variable, medium)) failNotApplicable(env, v.variable, medium);
+        e.environment.push_back({v.variable, env.quantity(v.key)});
+      }
+      read.push_back(std::move(e));
+      sources.push_back({view.node("at"), view.path("at"), view.display()});
     }
-    read.push_back(std::move(e));
-    views.push_back(view);
   }
+  if (base.has("weather")) readWeather(reader, base, medium, duration, read, sources);
+
   std::vector<std::size_t> order(read.size());
   for (std::size_t i = 0; i < order.size(); ++i) order[i] = i;
   std::stable_sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) { return read[a].at < read[b].at; });
-  for (std::size_t k = 1; k < order.size(); ++k) {
-    const EventSpec& previous = read[order[k - 1]];
-    const EventSpec& e = read[order[k]];
-    if (e.at < previous.at + previous.ramp)
-      views[order[k]].fail("at", fmt::format("at = {:g} s falls inside the ramp of {} ({:g} s to {:g} s); events "
-                                             "may not overlap",
-                                             e.at, views[order[k - 1]].display(), previous.at,
-                                             previous.at + previous.ramp));
-  }
 
   // Followers not given in [environment] keep following their leader through the timeline until given.
   std::array<bool, kEnvironmentVariables> explicitly{};
-  TableView base = root.child("environment");
   for (const VariableInfo& v : variables) explicitly[static_cast<std::size_t>(v.variable)] = base.has(v.key);
-  std::vector<EventSpec> events;
   for (std::size_t index : order) {
     EventSpec& e = read[index];
     auto target = [&](V v) -> const double* {
@@ -230,8 +349,28 @@ std::vector<EventSpec> readEvents(const CaseReader& reader, const TableView& roo
       if (explicitly[static_cast<std::size_t>(rule.follower)] || notApplicable(rule.follower, medium)) continue;
       if (const double* leader = target(rule.leader)) e.environment.push_back({rule.follower, *leader});
     }
-    events.push_back(std::move(e));
   }
+
+  // One change of a variable at a time: no event may change a variable during another's ramp of it.
+  std::array<std::optional<std::size_t>, kEnvironmentVariables> last;
+  for (std::size_t index : order) {
+    const EventSpec& e = read[index];
+    for (const EnvironmentValue& value : e.environment) {
+      auto& previous = last[static_cast<std::size_t>(value.variable)];
+      if (previous && e.at < read[*previous].at + read[*previous].ramp) {
+        const EventSource& s = sources[index];
+        reader.fail(s.node, s.path,
+                    fmt::format("{} changes {} at {:g} s, inside the ramp of {} ({:g} s to {:g} s); changes of one "
+                                "value may not overlap (a value that follows another, such as radiant_temperature "
+                                "following the air temperature, stops following once given in [environment])",
+                                s.label, info(value.variable).key, e.at, sources[*previous].label,
+                                read[*previous].at, read[*previous].at + read[*previous].ramp));
+      }
+      previous = index;
+    }
+  }
+  std::vector<EventSpec> events;
+  for (std::size_t index : order) events.push_back(std::move(read[index]));
   return events;
 }
 

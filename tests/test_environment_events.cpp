@@ -8,6 +8,7 @@
 
 #include <cmath>
 #include <filesystem>
+#include <fstream>
 #include <memory>
 #include <string>
 #include <vector>
@@ -208,4 +209,59 @@ TEST_CASE("Environment input errors name the key path and what is allowed", "[en
   CHECK(c.environment.relativeHumidity == Approx(0.5).epsilon(1e-14));
   CHECK(c.environment.convection.fixed);
   CHECK(Body(c).environment().emissivity(0) == 0.0);
+}
+
+TEST_CASE("A weather file interpolates linearly between its rows, with a breakpoint at each", "[environment][events]") {
+  // Rows in hours and degC; an [[events]] entry may change another value meanwhile. Linear interpolation between
+  // rows (common practice, no source): at 1.5 h the temperature is (10 + 16)/2 = 13 degC and the humidity 65 %.
+  const std::filesystem::path dir =
+      std::filesystem::temp_directory_path() / ("thermorph-weather-" + std::to_string(::getpid()));
+  std::filesystem::create_directories(dir);
+  {
+    std::ofstream csv(dir / "weather.csv");
+    csv << "# hourly field record (invented)\n"
+        << "time [h], temperature [degC], relative_humidity [%], solar_irradiance [W/m2]\n"
+        << "0, 8, 90, 0\n1, 10, 80, 200\n2, 16, 50, 700\n5, 20, 40, 300\n";
+    std::ofstream toml(dir / "case.toml");
+    toml << leg << "[run]\nduration = \"3 h\"\n[environment]\nweather = \"weather.csv\"\n"
+         << "[[events]]\nat = \"1.5 h\"\nenvironment = { speed = \"2 m/s\" }\n";
+  }
+  Body body(loadCase((dir / "case.toml").string()));
+  EnvironmentModel& env = body.environment();
+  CHECK(env.breakpoints() == std::vector<double>{3600.0, 5400.0, 7200.0});  // the 5 h row ends after the run
+  env.setInterval(0);
+  CHECK(env.value(V::Temperature, 0.0) == Approx(8 + kZero).epsilon(1e-14));
+  CHECK(env.value(V::Temperature, 1800.0) == Approx(9 + kZero).epsilon(1e-14));
+  env.setInterval(1);
+  CHECK(env.value(V::Temperature, 5400.0) == Approx(13 + kZero).epsilon(1e-14));
+  CHECK(env.value(V::RelativeHumidity, 5400.0) == Approx(0.65).epsilon(1e-14));
+  CHECK(env.value(V::RadiantTemperature, 5400.0) == Approx(13 + kZero).epsilon(1e-14));  // follows
+  CHECK(env.value(V::Speed, 5400.0) == 0.0);
+  env.setInterval(2);
+  CHECK(env.value(V::SolarIrradiance, 5400.0) == Approx(450.0).epsilon(1e-14));
+  CHECK(env.value(V::Speed, 5400.0) == 2.0);
+  env.setInterval(3);
+  // Towards the 5 h row: 16 + (20 - 16) (3 - 2)/3 degC at the end of the run.
+  CHECK(env.value(V::Temperature, 10800.0) == Approx(16 + 4.0 / 3.0 + kZero).epsilon(1e-14));
+
+  // The resolved case carries the rows as events and needs no file.
+  Body again(loadCaseFromString(resolvedCaseToml(body.spec()), "resolved.toml"));
+  again.environment().setInterval(1);
+  CHECK(again.environment().value(V::Temperature, 5400.0) == Approx(13 + kZero).epsilon(1e-14));
+
+  // Errors name the file and line.
+  {
+    std::ofstream csv(dir / "bad.csv");
+    csv << "time [h], temperature [kg]\n0, 1\n";
+  }
+  std::string e = errorOf(leg + "[environment]\nweather = \"" + (dir / "bad.csv").string() + "\"\n");
+  CHECK_THAT(e, Catch::Contains("environment.weather") && Catch::Contains("bad.csv:1") &&
+                    Catch::Contains("unit \"kg\" is not a temperature"));
+  {
+    std::ofstream csv(dir / "bad.csv");
+    csv << "time, temperature\n0, 280\n60, 281\n60, 282\n";
+  }
+  e = errorOf(leg + "[environment]\nweather = \"" + (dir / "bad.csv").string() + "\"\n");
+  CHECK_THAT(e, Catch::Contains("bad.csv:4") && Catch::Contains("does not increase"));
+  std::filesystem::remove_all(dir);
 }
