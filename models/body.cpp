@@ -37,16 +37,24 @@ CrossSection crossSection(const SegmentSpec& s, double scale) {
   return cs;
 }
 
-//! Conduction resistance from radius a to b in a material of conductivity k [K/W]:
-//! cylinder ln(b/a)/(2 pi k dz); sphere (1/a - 1/b)/(4 pi k); plate, both halves, (b - a)/(2 w dz k).
-double radialResistance(Shape shape, double a, double b, double k, double dz, double width) {
+//! Area of the radial face at distance r from the axis or mid-plane over axial length dz [m2]:
+//! cylinder 2 pi r dz, sphere 4 pi r^2, plate (both halves) 2 w dz.
+double radialFaceArea(Shape shape, double r, double dz, double width) {
   switch (shape) {
-    case Shape::Sphere: return (1.0 / a - 1.0 / b) / (4.0 * pi * k);
-    case Shape::Plate: return (b - a) / (2.0 * width * dz * k);
+    case Shape::Sphere: return 4.0 * pi * r * r;
+    case Shape::Plate: return 2.0 * width * dz;
     case Shape::Cylinder:
-    case Shape::Cone: return std::log(b / a) / (2.0 * pi * k * dz);
+    case Shape::Cone: return 2.0 * pi * r * dz;
   }
   return 0.0;
+}
+
+//! Conduction resistance between a node at ri, the face at rf and a node at rj [K/W]: the flux through the face
+//! is A_f k dT/dr with the gradient taken linearly across each half cell (harmonic mean of the conductivities).
+//! Second order for smooth profiles, also next to the axis, where exact shell resistances between cell
+//! centres under-conduct (25 % at a sphere's first face).
+double radialResistance(Shape shape, double ri, double rf, double rj, double ki, double kj, double dz, double width) {
+  return ((rf - ri) / ki + (rj - rf) / kj) / radialFaceArea(shape, rf, dz, width);
 }
 
 //! Axial cross-section area of the radial cell between a and b [m2] (plates: both halves).
@@ -412,19 +420,19 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
                               ? s.vasomotor.skinPerfusion : 1.0;
       cellPerfusion_[group][static_cast<std::size_t>(iz * nr + ir)] = t.isCoat ? 0.0 : t.perfusion * multiplier * volume;
     }
-    // Radial conduction: node centre -> shared face -> next node centre, exact shell resistances.
+    // Radial conduction: node centre -> shared face -> next node centre (harmonic-mean interface conductance).
     for (int ir = 0; ir + 1 < nr; ++ir) {
       double ri = 0.5 * (cm.bounds[ir] + cm.bounds[ir + 1]);
       double rj = 0.5 * (cm.bounds[ir + 1] + cm.bounds[ir + 2]);
       double face = cm.bounds[ir + 1];
-      double resistance = radialResistance(s.shape, ri, face, tissue[ir]->conductivity, dz, s.width) +
-                          radialResistance(s.shape, face, rj, tissue[ir + 1]->conductivity, dz, s.width);
+      double resistance = radialResistance(s.shape, ri, face, rj, tissue[ir]->conductivity,
+                                           tissue[ir + 1]->conductivity, dz, s.width);
       network_.conductances.push_back({m.node(iz, ir), m.node(iz, ir + 1), 1.0 / resistance, 0});
     }
     // Outer lateral face.
     double rLast = 0.5 * (cm.bounds[nr - 1] + cm.bounds[nr]);
     double rOut = cm.bounds[nr];
-    double half = 1.0 / radialResistance(s.shape, rLast, rOut, tissue[nr - 1]->conductivity, dz, s.width);
+    double half = 1.0 / radialResistance(s.shape, rLast, rOut, rOut, tissue[nr - 1]->conductivity, 1.0, dz, s.width);
     double area = 0.0;
     switch (s.shape) {
       case Shape::Sphere: area = 4.0 * pi * rOut * rOut; break;

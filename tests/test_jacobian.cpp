@@ -209,10 +209,11 @@ TEST_CASE("Analytic Jacobian matches central finite differences for every shape"
 }
 
 TEST_CASE("Jacobian entries of a perfused sphere derived by hand", "[validation][jacobian]") {
-  // One tissue, 5 equal cells of a sphere of radius R. Conductance between cell centres c_i = (i + 1/2) R/5 from
-  // the shell resistance (1/a - 1/b)/(4 pi k) (Incropera eq. 3.36): G_i,i+1 = 4 pi k / (1/c_i - 1/c_i+1).
+  // One tissue, 5 equal cells of a sphere of radius R. Conductance between cell centres c_i = (i + 1/2) R/5
+  // through the face at r_f = (i + 1) R/5 with a linear gradient (finite-volume face flux, Patankar 1980 ch. 4):
+  // G_i,i+1 = k 4 pi r_f^2 / (c_i+1 - c_i).
   // Perfusion conductance omega rho_b c_b V_i (Pennes 1948). Source P Q10^((T - T_ref)/10), derivative
-  // P Q10^(...) ln(Q10)/10. Surface node: half-cell conductance G_h = 4 pi k / (1/c_4 - 1/R) in series with h A.
+  // P Q10^(...) ln(Q10)/10. Surface node: half-cell conductance G_h = k 4 pi R^2 / (R - c_4) in series with h A.
   const double R = 0.03, k = 0.5, rho = 1050.0, c = 3600.0, q = 1500.0, omega = 6e-4, q10 = 2.5, h = 15.0;
   const double rhoB = 1050.0, cB = 3617.0, Tref = 310.15;  // schema defaults (case_schema.cpp)
   auto body = bodyFromToml(tissues + R"toml(
@@ -225,7 +226,7 @@ layers = [{ tissue = "flesh", thickness = 0.03, cells = 5 }]
   const double dr = R / n;
   auto centre = [&](int i) { return (i + 0.5) * dr; };
   auto volume = [&](int i) { return 4.0 / 3.0 * pi * (std::pow((i + 1) * dr, 3) - std::pow(i * dr, 3)); };
-  auto G = [&](int i) { return 4.0 * pi * k / (1.0 / centre(i) - 1.0 / centre(i + 1)); };  // between i and i+1
+  auto G = [&](int i) { return k * 4.0 * pi * std::pow((i + 1) * dr, 2) / (centre(i + 1) - centre(i)); };  // i, i+1
   std::vector<double> T = {309.0, 308.0, 306.5, 304.0, 300.0};
   auto sourceDerivative = [&](int i) { return q * volume(i) * std::pow(q10, (T[i] - Tref) / 10.0) * std::log(q10) / 10.0; };
 
@@ -246,7 +247,7 @@ layers = [{ tissue = "flesh", thickness = 0.03, cells = 5 }]
   NetworkSystem steady(body->network(), NetworkSystem::Mode::Steady);
   std::vector<double> steadyValues(steady.pattern().nonzeros());
   steady.jacobian(0.0, T, steadyValues);
-  const double Gh = 4.0 * pi * k / (1.0 / centre(4) - 1.0 / R);
+  const double Gh = k * 4.0 * pi * R * R / (R - centre(4));  // half cell to the surface, face area at R
   const double U = 1.0 / (1.0 / Gh + 1.0 / (h * 4.0 * pi * R * R));
   const double surface = -(G(3) + U + omega * rhoB * cB * volume(4)) + sourceDerivative(4);
   const double e3 = std::abs(jacobianEntry(steady.pattern(), steadyValues, 4, 4) / surface - 1.0);

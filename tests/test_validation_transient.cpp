@@ -176,14 +176,10 @@ TEST_CASE("Convective cooling of a cylinder and a sphere at Bi = 1 matches the e
 }
 
 TEST_CASE("Convective cooling of a cylinder and a sphere at Bi = 10 matches the exact series",
-          "[validation][!mayfail]") {
+          "[validation]") {
   // Carslaw & Jaeger (1959); Incropera et al. eqs. 5.49-5.50; same criterion as at Bi = 1.
-  // Known solver defect (may fail): the sphere's centre cell misses 0.1 % at Fo 0.2 (1.06e-3). models/body.cpp
-  // (radial conduction loop) joins neighbouring radial nodes by exact shell resistances between cell centres,
-  // which are exact only for a source-free steady profile (ln r, 1/r); near the centre these
-  // under-conduct a smooth (even, ~r^2) profile by O(1) (sphere: first face 3 pi k dr instead of 4 pi k dr), and
-  // the centre error grows like h^2 ln N. With face-gradient conductances k A_f / (r_j - r_i) the same grid
-  // gives 3.2e-4 (measured with a modified copy of the network).
+  // History: with exact shell resistances between cell centres the sphere's centre cell missed 0.1 % here
+  // (1.06e-3); body.cpp now uses face-gradient (harmonic-mean) interface conductances: 1.6e-4.
   checkCooling(10.0);
 }
 
@@ -221,13 +217,10 @@ TEST_CASE("Convective cooling of a sphere converges at second order in the RMS n
   }
 }
 
-TEST_CASE("Convective cooling of a sphere converges at second order in the max norm", "[validation][!mayfail]") {
+TEST_CASE("Convective cooling of a sphere converges at second order in the max norm", "[validation]") {
   // Same reference and criterion (1.8-2.2) for the max error, which sits at the centre cell.
-  // Known solver defect (may fail): observed 1.67 and 1.74 (1.78, 1.81, 1.83 on 80-320 cells): the centre error
-  // behaves like h^2 ln N because models/body.cpp uses exact shell resistances between cell centres, whose
-  // relative flux error for a smooth profile is about h^2/(4 r_f^2) on a sphere, O(1) at the first faces.
-  // Face-gradient conductances k A_f / (r_j - r_i) give 2.01 and 2.01 on the same grids, and 4.6e-5 on 40 cells
-  // (measured with a modified copy of the network).
+  // History: exact shell resistances between cell centres gave 1.67 and 1.74 here (centre error ~ h^2 ln N);
+  // face-gradient (harmonic-mean) interface conductances give 2.01 and 2.00.
   const auto& errors = sphereConvergence();
   for (std::size_t i = 1; i < errors.size(); ++i) {
     double order = observedOrder(errors[i - 1].maxError, errors[i].maxError);
