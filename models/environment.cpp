@@ -84,6 +84,7 @@ EnvironmentModel::EnvironmentModel(const Case& c, Network& network) : case_(c) {
 
 void EnvironmentModel::addFace(const FaceDescription& face) {
   faces_.push_back(face);
+  cache_.emplace_back();
   if (!(faces_.back().volumeLength > 0.0)) faces_.back().volumeLength = surfaces_.at(face.segment).volumeLength;
 }
 
@@ -147,6 +148,14 @@ double EnvironmentModel::convectionCoefficient(Index face, double faceTemperatur
   if (derivative) *derivative = 0.0;
   if (surface.fixedConvection) return surface.convectionCoefficient;
 
+  // Within 1e-6 K of the last evaluation the first-order expansion h + h' dT is exact to ~1e-14 relative.
+  CachedCoefficient& cached = cache_[face];
+  const double shift = faceTemperature - cached.faceTemperature;
+  if (std::abs(shift) < 1e-6 && cached.time == time && cached.interval == interval_) {
+    if (derivative) *derivative = cached.dh;
+    return cached.h + cached.dh * shift;
+  }
+
   const SegmentSpec& s = case_.segments[f.segment];
   const FaceFluid fl = fluid(f.segment, time);
   ConvectionInput in;
@@ -164,6 +173,7 @@ double EnvironmentModel::convectionCoefficient(Index face, double faceTemperatur
   in.width = surface.width;
   const ConvectionResult r = thermorph::convectionCoefficient(in);
   if (r.outsideValidity) collectWarnings();
+  cached = {faceTemperature, time, r.h, r.dh_dTs, interval_};
   if (derivative) *derivative = r.dh_dTs;
   return r.h;
 }
