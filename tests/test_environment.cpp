@@ -365,3 +365,33 @@ substrate_conductance = 30
     CHECK(q.heat[channelIndex(*body, channel)] != 0.0);
   CHECK(body->environment().emissivity(0) == 0.95);  // a coat with correlations (from memory)
 }
+
+TEST_CASE("Correlations used outside their range are reported once per case", "[environment]") {
+  // A small horizontal plate in still air: Ra on the length area/perimeter = 0.1*0.04/0.28 = 0.0143 m is about
+  // 3e3 for 10 K, below the 1e4 where Incropera eqs. 9.30-9.32 begin.
+  const std::string plate = R"toml(
+[circulation]
+fixed_arterial_temperature = "37 degC"
+[[segments]]
+name = "ear"
+shape = "plate"
+length = "10 cm"
+width = "4 cm"
+thickness = "0.4 cm"
+axial_cells = 2
+layers = [{ tissue = "skin", cells = 2 }]
+surface = { orientation = "horizontal" }
+[environment]
+temperature = 295.15
+)toml";
+  for (int repeat = 0; repeat < 2; ++repeat) {  // a new case reports again
+    auto body = makeBody(plate);
+    CHECK(body->environment().warnings().empty());
+    faceHeat(*body, 0, 305.15);
+    faceHeat(*body, 1, 305.0);
+    const std::vector<std::string> warnings = body->environment().warnings();
+    INFO("warnings: " << warnings.size());
+    REQUIRE(warnings.size() == 2);  // upper and lower face correlations, once each
+    CHECK_THAT(warnings[0], Catch::Contains("horizontal plate") && Catch::Contains("Ra"));
+  }
+}
