@@ -237,6 +237,8 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
 }
 
 namespace {
+
+//! One /environment series: its variable, dataset name and units.
 struct SeriesInfo {
   V variable;
   const char* name;
@@ -255,16 +257,17 @@ constexpr SeriesInfo kSeries[] = {
     {V::SolarIrradiance, "solar_irradiance", "W m-2"},
     {V::SubstrateTemperature, "substrate_temperature", "degC"},
 };
-}  // namespace
 
-//! The other medium's values are stored only when some segment is in it.
-static bool seriesUsed(const SeriesInfo& s, SurroundingMedium medium, bool anyWater, bool anyAir) {
+//! The other fluid's values are stored only when some segment is in it.
+bool seriesUsed(const SeriesInfo& s, SurroundingMedium medium, bool anyWater, bool anyAir) {
   const bool water = s.variable == V::WaterTemperature || s.variable == V::WaterSpeed;
   const bool air = s.variable == V::AirTemperature || s.variable == V::AirSpeed;
   if (water) return medium == SurroundingMedium::Air && anyWater;
   if (air) return medium != SurroundingMedium::Air && anyAir;
   return true;
 }
+
+}  // namespace
 
 std::vector<EnvironmentSeries> EnvironmentModel::series() const {
   bool anyWater = false, anyAir = false;
