@@ -233,27 +233,41 @@ void Body::buildCirculation() {
                                     totalFlow_ * 6e7, cardiacOutput_ * 6e7));
   if (!(totalFlow_ > 0.0)) return;  // no circulation: tissues exchange heat by conduction only
 
-  // Blood nodes per axial cell; capacities from the large-vessel blood volume.
+  // Flow through each axial cell's vessels (per copy): arterial inflow, and what each vein carries proximally
+  // out of the cell. A blood node exists only where its flow is positive (no isolated nodes).
+  std::vector<std::vector<double>> arterialIn(n), deepOut(n), superficialOut(n);
+  for (Index g = 0; g < n; ++g) {
+    const auto nz = static_cast<std::size_t>(meshes_[g].nz);
+    const double sigma = case_.segments[g].vasomotor.superficialReturn;
+    arterialIn[g].assign(nz + 1, 0.0);
+    deepOut[g].assign(nz + 1, 0.0);
+    superficialOut[g].assign(nz + 1, 0.0);
+    for (std::size_t z = nz; z-- > 0;) {
+      arterialIn[g][z] = arterialIn[g][z + 1] + perf[g][z] + shunt[g][z] + childDraw[g][z];
+      deepOut[g][z] = deepOut[g][z + 1] + (1.0 - sigma) * perf[g][z] + childDeep[g][z];
+      superficialOut[g][z] = superficialOut[g][z + 1] + sigma * perf[g][z] + shunt[g][z] + childSuperficial[g][z];
+    }
+  }
+
+  // Blood nodes; capacities from the large-vessel blood volume of the cell's tissue (coat excluded).
   double vesselVolume = 0.0;
   for (Index g : order_) {
     SegmentMesh& m = meshes_[g];
     const SegmentSpec& s = case_.segments[g];
     if (!(draw[g] > 0.0)) continue;
     for (int iz = 0; iz < m.nz; ++iz) {
+      auto z = static_cast<std::size_t>(iz);
       double tissue = 0.0;
-      for (int ir = 0; ir < m.nr; ++ir) tissue += m.volume[static_cast<std::size_t>(iz * m.nr + ir)];
+      for (int ir = 0; ir <= m.skinCell; ++ir) tissue += m.volume[static_cast<std::size_t>(iz * m.nr + ir)];
       double vb = s.vessels.bloodFraction * tissue;
-      auto label = [&](const char* what) { return fmt::format("{}: axial {}, {} blood", s.name, iz, what); };
-      m.arterial.push_back(network_.addNode(rc * vb / 3.0, g, label("arterial")));
-      vesselVolume += m.weight * vb / 3.0;
-      if (deep[g] > 0.0) {
-        m.venous.push_back(network_.addNode(rc * vb / 2.0, g, label("deep venous")));
-        vesselVolume += m.weight * vb / 2.0;
-      }
-      if (superficialFlow[g] > 0.0) {
-        m.superficial.push_back(network_.addNode(rc * vb / 6.0, g, label("superficial venous")));
-        vesselVolume += m.weight * vb / 6.0;
-      }
+      auto add = [&](double flow, double share, const char* what) {
+        if (!(flow > 0.0)) return noNode;
+        vesselVolume += m.weight * vb * share;
+        return network_.addNode(rc * vb * share, g, fmt::format("{}: axial {}, {} blood", s.name, iz, what));
+      };
+      m.arterial.push_back(add(arterialIn[g][z], 1.0 / 3.0, "arterial"));
+      m.venous.push_back(add(deepOut[g][z], 1.0 / 2.0, "deep venous"));
+      m.superficial.push_back(add(superficialOut[g][z], 1.0 / 6.0, "superficial venous"));
     }
   }
   if (!circ.fixedArterialTemperature) {
@@ -268,7 +282,9 @@ void Body::buildCirculation() {
   }
 
   auto link = [&](Index from, Index to, double flow) {
-    if (flow > 0.0) network_.advections.push_back({from, to, rc * flow, bloodChannel_});
+    if (!(flow > 0.0)) return;
+    if (from == noNode || to == noNode) throw std::logic_error("blood link to a node that carries no flow");
+    network_.advections.push_back({from, to, rc * flow, bloodChannel_});
   };
   for (Index g : order_) {
     const SegmentMesh& m = meshes_[g];
@@ -277,48 +293,41 @@ void Body::buildCirculation() {
     const double sigma = s.vasomotor.superficialReturn;
     // Arterial inflow at the proximal cell: from the parent's arterial stream, the pool, or pinned blood.
     if (parentOf[g] < n) {
-      link(meshes_[parentOf[g]].arterial[static_cast<std::size_t>(attachCell[g])], m.arterial[0], draw[g]);
+      const SegmentMesh& pm = meshes_[parentOf[g]];
+      auto k = static_cast<std::size_t>(attachCell[g]);
+      link(pm.arterial[k], m.arterial[0], draw[g]);
+      link(m.venous[0], pm.venous[k], s.count * deep[g]);
+      link(m.superficial[0], pm.superficial[k], s.count * superficialFlow[g]);
     } else if (pool_) {
       link(*pool_, m.arterial[0], draw[g]);
-      if (!m.venous.empty()) link(m.venous[0], *pool_, deep[g]);
-      if (!m.superficial.empty()) link(m.superficial[0], *pool_, superficialFlow[g]);
+      link(m.venous[0], *pool_, deep[g]);
+      link(m.superficial[0], *pool_, superficialFlow[g]);
     } else {
       network_.exchanges.push_back({m.arterial[0], rc * draw[g], *circ.fixedArterialTemperature, bloodChannel_});
     }
-    if (parentOf[g] < n) {
-      const SegmentMesh& pm = meshes_[parentOf[g]];
-      auto k = static_cast<std::size_t>(attachCell[g]);
-      if (!m.venous.empty()) link(m.venous[0], pm.venous.at(k), s.count * deep[g]);
-      if (!m.superficial.empty()) link(m.superficial[0], pm.superficial.at(k), s.count * superficialFlow[g]);
-    }
-    double downstreamArterial = draw[g];
-    double upstreamDeep = deep[g], upstreamSuperficial = superficialFlow[g];
     for (int iz = 0; iz < m.nz; ++iz) {
       auto z = static_cast<std::size_t>(iz);
-      if (iz > 0) link(m.arterial[z - 1], m.arterial[z], downstreamArterial);
-      downstreamArterial -= perf[g][z] + shunt[g][z] + childDraw[g][z];
+      if (iz > 0) link(m.arterial[z - 1], m.arterial[z], arterialIn[g][z]);
       // Pennes term at the local arterial temperature; venous blood leaves at tissue temperature.
       for (int ir = 0; ir < m.nr; ++ir) {
         double q = cellPerfusion_[g][static_cast<std::size_t>(iz * m.nr + ir)];
         if (!(q > 0.0)) continue;
         link(m.arterial[z], m.node(iz, ir), q);
-        if (!m.venous.empty()) link(m.node(iz, ir), m.venous[z], (1.0 - sigma) * q);
-        if (!m.superficial.empty()) link(m.node(iz, ir), m.superficial[z], sigma * q);
+        link(m.node(iz, ir), m.venous[z], (1.0 - sigma) * q);
+        link(m.node(iz, ir), m.superficial[z], sigma * q);
       }
       // Arteriovenous shunt through the skin cell, back by superficial veins.
       link(m.arterial[z], m.node(iz, m.skinCell), shunt[g][z]);
-      if (!m.superficial.empty()) link(m.node(iz, m.skinCell), m.superficial[z], shunt[g][z]);
+      link(m.node(iz, m.skinCell), m.superficial[z], shunt[g][z]);
       // Veins flow proximally: cell iz receives from cell iz + 1 what returns beyond it.
-      upstreamDeep -= (1.0 - sigma) * perf[g][z] + childDeep[g][z];
-      upstreamSuperficial -= sigma * perf[g][z] + shunt[g][z] + childSuperficial[g][z];
       if (iz + 1 < m.nz) {
-        if (!m.venous.empty()) link(m.venous[z + 1], m.venous[z], upstreamDeep);
-        if (!m.superficial.empty()) link(m.superficial[z + 1], m.superficial[z], upstreamSuperficial);
+        link(m.venous[z + 1], m.venous[z], deepOut[g][z + 1]);
+        link(m.superficial[z + 1], m.superficial[z], superficialOut[g][z + 1]);
       }
-      if (!m.venous.empty() && s.vessels.countercurrentConductance > 0.0)
+      if (m.arterial[z] != noNode && m.venous[z] != noNode && s.vessels.countercurrentConductance > 0.0)
         network_.conductances.push_back({m.arterial[z], m.venous[z], s.vessels.countercurrentConductance / m.nz, 0});
     }
-    if (s.vessels.countercurrentConductance > 0.0 && m.venous.empty())
+    if (s.vessels.countercurrentConductance > 0.0 && !(deep[g] > 0.0))
       warnings_.push_back(fmt::format("{}: all venous return is superficial, so the countercurrent exchanger carries "
                                       "no flow", s.name));
   }

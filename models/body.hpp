@@ -11,6 +11,9 @@
 
 namespace thermorph {
 
+//! Marks a blood node that does not exist because no blood flows there.
+inline constexpr Index noNode = static_cast<Index>(-1);
+
 //! Where one segment's cells sit in the state vector and in space.
 struct SegmentMesh {
   std::string name;
@@ -30,9 +33,9 @@ struct SegmentMesh {
   double weight = 1.0;              //!< copies represented (count times the parent's weight)
   int innermostLayerCells = 0;      //!< radial cells of layer 0 (core temperature)
   int skinCell = 0;                 //!< radial index of the outermost tissue cell
-  std::vector<Index> arterial;      //!< [nz] arterial blood nodes (empty: no flow through the segment)
-  std::vector<Index> venous;        //!< [nz] deep-venous blood nodes (may be empty)
-  std::vector<Index> superficial;   //!< [nz] superficial-venous blood nodes (may be empty)
+  std::vector<Index> arterial;      //!< [nz] arterial blood nodes (empty: no flow; noNode where none flows)
+  std::vector<Index> venous;        //!< [nz] deep-venous blood nodes (empty or noNode where none flows)
+  std::vector<Index> superficial;   //!< [nz] superficial-venous blood nodes (empty or noNode where none flows)
   double bloodFlow = 0.0;           //!< arterial inflow of one copy, children included [m3/s]
   double perfusionFlow = 0.0;       //!< tissue perfusion of one copy [m3/s]
   double shuntFlow = 0.0;           //!< shunt flow of one copy [m3/s]

@@ -181,6 +181,10 @@ void Integrator::advanceTo(double time) {
 }
 
 void Integrator::restart() {
+  // CVodeReInit zeroes CVODE's counters: keep the totals of the intervals before.
+  SolverStatistics s = statistics();
+  s.wallSeconds = 0.0;
+  previous_ = s;
   check(CVodeReInit(memory_.get(), time_, state_.get()), "CVodeReInit");
 }
 
@@ -194,6 +198,13 @@ SolverStatistics Integrator::statistics() const {
   CVodeGetNumErrTestFails(mem, &s.errorTestFailures);
   CVodeGetNumNonlinSolvConvFails(mem, &s.nonlinearFailures);
   CVodeGetNumLinSolvSetups(mem, &s.linearSetups);
+  s.steps += previous_.steps;
+  s.rhsEvaluations += previous_.rhsEvaluations;
+  s.jacobianEvaluations += previous_.jacobianEvaluations;
+  s.nonlinearIterations += previous_.nonlinearIterations;
+  s.errorTestFailures += previous_.errorTestFailures;
+  s.nonlinearFailures += previous_.nonlinearFailures;
+  s.linearSetups += previous_.linearSetups;
   s.wallSeconds = wallSeconds_;
   return s;
 }

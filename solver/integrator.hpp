@@ -121,6 +121,7 @@ class Integrator {
   std::vector<double> jacobianValues_;
   double time_ = 0.0;
   double wallSeconds_ = 0.0;
+  SolverStatistics previous_;  //!< counters of the intervals before the last restart
 };
 
 //! Steady state of a NetworkSystem in steady mode by KINSOL (Newton, line search, KLU, analytic Jacobian).

@@ -126,6 +126,7 @@ int main(int argc, char** argv) {
     options.linearSolver = dense ? LinearSolverKind::Dense : LinearSolverKind::Klu;
     RunSummary summary = run->parsed() ? runTransient(body, options) : runSteady(body, options);
     printBudget(body, summary, stdout);
+    for (const std::string& w : body.environment().warnings()) fmt::print(stderr, "warning: {}\n", w);
     if (!summary.complete) {
       fmt::print(stderr, "error: {}\nPartial results up to t = {:g} s kept in {} (marked incomplete).\n",
                  summary.failure, summary.finalTime, summary.outputPath);

@@ -130,14 +130,15 @@ class Recorder {
       f.append(segments_[g].storage, {&summary.storage[g], 1});
       double h = body_.environment().meanConvectionCoefficient(g, t, faceTemperatures_);
       f.append(segments_[g].convection, {&h, 1});
-      // Blood streams: arterial and deep-venous temperature per axial cell (the supply temperature where the
-      // segment has no stream of its own).
+      // Blood streams: arterial and deep-venous temperature per axial cell (NaN where no blood flows).
       for (int which = 0; which < 2; ++which) {
         const std::vector<Index>& nodes = which == 0 ? m.arterial : m.venous;
         buffer_.resize(static_cast<std::size_t>(m.nz));
         for (int iz = 0; iz < m.nz; ++iz)
           buffer_[static_cast<std::size_t>(iz)] =
-              (nodes.empty() ? supplyTemperature(y) : y[nodes[static_cast<std::size_t>(iz)]]) - kelvinOffset;
+              (nodes.empty() || nodes[static_cast<std::size_t>(iz)] == noNode ? std::nan("")
+                                                                               : y[nodes[static_cast<std::size_t>(iz)]]) -
+              kelvinOffset;
         f.append(which == 0 ? segments_[g].arterial : segments_[g].venous, buffer_);
       }
     }
