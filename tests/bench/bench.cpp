@@ -3,6 +3,7 @@
 //!   thermorph_bench cases DIR                  write the benchmark case files into DIR
 //!   thermorph_bench table DIR [--repeat N] [--skip-dense]
 //!                                              run them in this process and print Markdown tables
+//!   thermorph_bench one CASE [--dense]         one in-process run of any case file, one table row
 //!
 //! Whole-process runs (peak memory, results-file size, the SciPy comparison) are made by run_benchmarks.sh with
 //! /usr/bin/time -v on the thermorph executable, using the same case files. Not part of ctest: a benchmark
@@ -139,7 +140,8 @@ double cpuSeconds() {
 }
 
 struct Measurement {
-  long cells = 0;
+  long cells = 0;  //!< tissue and coat cells of all segments
+  long nodes = 0;  //!< network nodes (cells plus any blood nodes)
   SolverStatistics stats;
   double setupWall = 0.0;  //!< case loading and discretisation [s]
   double runWall = 0.0;    //!< runTransient: assembly set-up, integration, budget at every output [s]
@@ -162,7 +164,8 @@ Measurement measureOnce(const fs::path& path, LinearSolverKind solver) {
   m.runCpu = cpuSeconds() - cpu0;
   auto t2 = std::chrono::steady_clock::now();
   if (!s.complete) throw std::runtime_error(fmt::format("{}: {}", path.string(), s.failure));
-  m.cells = static_cast<long>(body.network().nodes.size());
+  for (const SegmentMesh& seg : body.segments()) m.cells += static_cast<long>(seg.nz) * seg.nr;
+  m.nodes = static_cast<long>(body.network().nodes.size());
   m.stats = s.statistics;
   m.setupWall = std::chrono::duration<double>(t1 - t0).count();
   m.runWall = std::chrono::duration<double>(t2 - t1).count();
@@ -187,12 +190,12 @@ double maxDifference(const std::vector<double>& a, const std::vector<double>& b)
 }
 
 const char* header =
-    "| case | cells | steps | rhs evals | Jacobians | lin. setups | Newton its | run wall [s] | run CPU [s] |";
-const char* rule = "|---|---:|---:|---:|---:|---:|---:|---:|---:|";
+    "| case | cells | nodes | steps | rhs evals | Jacobians | lin. setups | Newton its | run wall [s] | run CPU [s] |";
+const char* rule = "|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|";
 
 std::string row(const std::string& name, const Measurement& m) {
   const SolverStatistics& s = m.stats;
-  return fmt::format("| {} | {} | {} | {} | {} | {} | {} | {:.3f} | {:.3f} |", name, m.cells, s.steps,
+  return fmt::format("| {} | {} | {} | {} | {} | {} | {} | {} | {:.3f} | {:.3f} |", name, m.cells, m.nodes, s.steps,
                      s.rhsEvaluations, s.jacobianEvaluations, s.linearSetups, s.nonlinearIterations, m.runWall,
                      m.runCpu);
 }
@@ -203,14 +206,16 @@ int table(const fs::path& dir, int repeat, bool dense) {
              repeat);
 
   fmt::print("### 1. 1-D radial cylinder, one tissue, one simulated hour\n\n{}{}\n{}{}\n", header,
-             " wall per cell [us] | CPU per cell [us] | CPU per cell vs 1e3 |", rule, "---:|---:|---:|");
+             " wall per cell [us] | CPU per cell [us] | CPU per cell vs 1e3 | CPU per cell-step [ns] |", rule,
+             "---:|---:|---:|---:|");
   double reference = 0.0;
   for (int n : radialSizes) {
     Measurement m = measure(dir / radialFile(n), LinearSolverKind::Klu, repeat);
     double perCell = m.runCpu / static_cast<double>(m.cells);
     if (reference == 0.0) reference = perCell;
-    fmt::print("{} {:.3f} | {:.3f} | {:.2f} |\n", row(fmt::format("radial {}", n), m),
-               1e6 * m.runWall / static_cast<double>(m.cells), 1e6 * perCell, perCell / reference);
+    fmt::print("{} {:.2f} | {:.2f} | {:.2f} | {:.0f} |\n", row(fmt::format("radial {}", n), m),
+               1e6 * m.runWall / static_cast<double>(m.cells), 1e6 * perCell, perCell / reference,
+               1e9 * perCell / static_cast<double>(m.stats.steps));
   }
 
   fmt::print("\n### 2. 2-D appendage (cone, exposed ends), 100 axial x 40 radial, one simulated hour\n\n{}\n{}\n",
@@ -241,6 +246,11 @@ int main(int argc, char** argv) {
       writeCases(args[1]);
       return 0;
     }
+    if ((args.size() == 2 || (args.size() == 3 && args[2] == "--dense")) && args[0] == "one") {
+      Measurement m = measureOnce(args[1], args.size() == 3 ? LinearSolverKind::Dense : LinearSolverKind::Klu);
+      fmt::print("{}\n{}\n{}\n", header, rule, row(fs::path(args[1]).filename().string(), m));
+      return 0;
+    }
     if (args.size() >= 2 && args[0] == "table") {
       int repeat = 3;
       bool dense = true;
@@ -255,6 +265,8 @@ int main(int argc, char** argv) {
     fmt::print(stderr, "error: {}\n", e.what());
     return 1;
   }
-  fmt::print(stderr, "usage: thermorph_bench cases DIR\n       thermorph_bench table DIR [--repeat N] [--skip-dense]\n");
+  fmt::print(stderr,
+             "usage: thermorph_bench cases DIR\n       thermorph_bench table DIR [--repeat N] [--skip-dense]\n"
+             "       thermorph_bench one CASE [--dense]\n");
   return 2;
 }

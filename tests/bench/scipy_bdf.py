@@ -2,8 +2,9 @@
 """SciPy reference for the thermorph benchmark: the same 1-D radial finite-volume discretisation integrated by
 scipy.integrate.solve_ivp(method=BDF) with a sparse analytic Jacobian.
 
-    scipy_bdf.py run CASE.toml OUT.npz        integrate, save final temperatures and statistics
-    scipy_bdf.py compare OUT.npz RESULTS.h5   max |T_scipy - T_thermorph| at the end, cell volumes cross-checked
+    scipy_bdf.py run CASE.toml OUT.npz [TOL]  integrate, save final temperatures and statistics
+                                              (TOL: rtol = atol = TOL instead of the case's run.rtol, run.atol)
+    scipy_bdf.py compare A B                  max |T_A - T_B| at the end (each .npz or thermorph .h5), volumes checked
 
 The case must be one sphere, or one cylinder with one axial cell and insulated ends, with every value a number in
 SI units and every tissue fully defined under [tissues.NAME] (the benchmark cases written by thermorph_bench are).
@@ -121,10 +122,12 @@ class RadialModel:
         return sp.diags([g * s[1:], diagonal * s, g * s[:-1]], [-1, 0, 1], format="csc")
 
 
-def run(case_path, out_path):
+def run(case_path, out_path, tolerance=None):
     start_process = time.process_time()
     with open(case_path, "rb") as f:
         model = RadialModel(tomllib.load(f))
+    if tolerance is not None:
+        model.rtol = model.atol = tolerance
     outputs = np.arange(0.0, model.duration + 0.5 * model.output_interval, model.output_interval)
     y0 = np.full(model.n, model.initial)
     start = time.perf_counter()
@@ -139,24 +142,31 @@ def run(case_path, out_path):
           f"{sol.nlu} LU, solve_ivp {wall:.3f} s wall")
 
 
-def compare(npz_path, h5_path):
+def final_temperatures(path):
+    """Final node temperatures [K] and cell volumes [m3] from a .npz written here or a thermorph results file."""
+    if path.endswith(".npz"):
+        ref = np.load(path)
+        return ref["final"], ref["volume"]
     import h5py
 
-    ref = np.load(npz_path)
-    with h5py.File(h5_path, "r") as f:
+    with h5py.File(path, "r") as f:
         (name,) = list(f["segments"])
         g = f["segments"][name]
-        thermorph = g["temperature"][-1].ravel() + 273.15  # stored in degC
-        volume = g["volume"][()].ravel()
-    dT = np.max(np.abs(ref["final"] - thermorph))
-    dV = np.max(np.abs(ref["volume"] - volume) / volume)
-    print(f"max |T_scipy - T_thermorph| = {dT:.3e} K; max relative cell-volume difference = {dV:.1e}; "
-          f"final T range {thermorph.min() - 273.15:.4f} .. {thermorph.max() - 273.15:.4f} degC")
+        return g["temperature"][-1].ravel() + 273.15, g["volume"][()].ravel()  # temperatures stored in degC
+
+
+def compare(a_path, b_path):
+    a, va = final_temperatures(a_path)
+    b, vb = final_temperatures(b_path)
+    dT = np.max(np.abs(a - b))
+    dV = np.max(np.abs(va - vb) / vb)
+    print(f"max |dT| = {dT:.2e} K, max relative cell-volume difference = {dV:.1e} "
+          f"(final T {b.min() - 273.15:.3f} .. {b.max() - 273.15:.3f} degC)")
 
 
 if __name__ == "__main__":
-    if len(sys.argv) == 4 and sys.argv[1] == "run":
-        run(sys.argv[2], sys.argv[3])
+    if len(sys.argv) in (4, 5) and sys.argv[1] == "run":
+        run(sys.argv[2], sys.argv[3], float(sys.argv[4]) if len(sys.argv) == 5 else None)
     elif len(sys.argv) == 4 and sys.argv[1] == "compare":
         compare(sys.argv[2], sys.argv[3])
     else:
