@@ -30,7 +30,7 @@ std::string nowIso() {
 class Recorder {
  public:
   Recorder(const Body& body, const NetworkSystem& system, const RunOptions& options)
-      : body_(body), system_(system), network_(body.network()) {
+      : body_(body), system_(system), network_(body.network()), observer_(options.observer) {
     if (options.output.empty()) return;
     file_ = std::make_unique<ResultsFile>(options.output);
     ResultsFile& f = *file_;
@@ -100,6 +100,7 @@ class Recorder {
     summary.throughput = std::abs(summary.storedChange);
     for (double e : summary.channelEnergy) summary.throughput += std::abs(e);
     summary.finalTime = t;
+    if (observer_) observer_(t, y.first(system_.nodeCount()), summary);
     if (!file_) return;
     ResultsFile& f = *file_;
     double tt = t;
@@ -214,6 +215,7 @@ class Recorder {
   const NetworkSystem& system_;
   const Network& network_;
   std::unique_ptr<ResultsFile> file_;
+  OutputObserver observer_;
   std::size_t time_ = 0, bodyStorage_ = 0, balance_ = 0, core_ = 0, blood_ = 0, skin_ = 0;
   std::vector<std::size_t> bodyFlow_, bodyEnergy_, environment_;
   std::vector<Segment> segments_;

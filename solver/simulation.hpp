@@ -1,6 +1,8 @@
 #pragma once
 //! Runs a discretised body: transient (CVODE) or steady (KINSOL), recording results and the heat budget.
 #include <cstdio>
+#include <functional>
+#include <span>
 #include <string>
 #include <vector>
 
@@ -9,11 +11,18 @@
 
 namespace thermorph {
 
+struct RunSummary;
+
+//! Called at every output time with the time [s], the node temperatures [K] and the summary filled for that
+//! time (flows, storage, channel energies). Sweeps compute their metrics from it.
+using OutputObserver = std::function<void(double time, std::span<const double> temperatures, const RunSummary&)>;
+
 struct RunOptions {
   std::string output;        //!< HDF5 path ("" : no file)
   std::string commandLine;   //!< stored with the results
   bool quiet = false;        //!< no progress on stderr
   LinearSolverKind linearSolver = LinearSolverKind::Klu;
+  OutputObserver observer;   //!< optional
 };
 
 struct RunSummary {
