@@ -24,6 +24,8 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
     conductanceFactor_.push_back(w / nodeWeight_[c.a]);
     conductanceFactor_.push_back(w / nodeWeight_[c.b]);
   }
+  // Q10^((T - T_ref)/10) = exp(a (T - T_ref)), a = ln(Q10)/10.
+  for (const HeatSource& src : network.sources) q10Rate_.push_back(std::log(src.q10) / 10.0);
   rowScale_.assign(pattern_.size, 1.0);
   if (transient)
     for (Index i = 0; i < nodes_; ++i) {
@@ -156,7 +158,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
     if (transient) acc[e.channel] += nodeWeight_[e.node] * q;
   }
   for (const HeatSource& s : network_.sources) {
-    double q = s.power * std::pow(s.q10, (T[s.node] - s.referenceTemperature) / 10.0);
+    double q = s.power * std::exp(q10Rate_[&s - network_.sources.data()] * (T[s.node] - s.referenceTemperature));
     out[s.node] += q;
     if (transient) acc[s.channel] += nodeWeight_[s.node] * q;
   }
@@ -201,7 +203,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
   for (std::size_t i = 0; i < network_.sources.size(); ++i) {
     const HeatSource& s = network_.sources[i];
     // d/dT [P Q10^((T - T_ref)/10)] = P Q10^(...) ln(Q10)/10.
-    double dq = s.power * std::pow(s.q10, (T[s.node] - s.referenceTemperature) / 10.0) * std::log(s.q10) / 10.0;
+    double dq = s.power * std::exp(q10Rate_[i] * (T[s.node] - s.referenceTemperature)) * q10Rate_[i];
     values[sourceSlots_[i]] += dq;
     if (transient) values[accumulatorSlots_[acc++]] += nodeWeight_[s.node] * dq;
   }
@@ -251,7 +253,7 @@ void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span
     at(e.node, e.channel) += q;
   }
   for (const HeatSource& s : network_.sources) {
-    double q = s.power * std::pow(s.q10, (T[s.node] - s.referenceTemperature) / 10.0);
+    double q = s.power * std::exp(q10Rate_[&s - network_.sources.data()] * (T[s.node] - s.referenceTemperature));
     rate[s.node] += q;
     at(s.node, s.channel) += q;
   }

@@ -58,6 +58,7 @@ class NetworkSystem {
   SparsePattern pattern_;
   std::vector<double> rowScale_;   //!< 1/C for node rows (transient), 1 otherwise
   std::vector<double> nodeWeight_; //!< group multiplicity of each node
+  std::vector<double> q10Rate_;            //!< per source ln(Q10)/10 [1/K]
   std::vector<double> conductanceFactor_;  //!< per conductance: factors on the flow into a and into b
   // Value slots of every term, in the order of the network's vectors.
   std::vector<Index> conductanceSlots_;   //!< 4 per conductance: aa, ab, bb, ba

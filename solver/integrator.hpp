@@ -95,8 +95,10 @@ class Integrator {
   Integrator(const Integrator&) = delete;
   Integrator& operator=(const Integrator&) = delete;
 
-  //! Integrate exactly to `time` (a stop time: never steps past it) [s].
+  //! Integrate to `time` [s]; the state is interpolated there unless it is the stop time.
   void advanceTo(double time);
+  //! The integrator never steps past this time (the next discontinuity or the end of the run) [s].
+  void setStopTime(double time);
   //! Restart at a discontinuity (after an event changed the network) from the current state.
   void restart();
   double time() const { return time_; }

@@ -265,9 +265,12 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   bool reported = false;
   const long outputs = std::lround(std::ceil(c.run.duration / c.run.outputInterval - 1e-9));
   // Discontinuities of the timeline: the integrator stops exactly at each and restarts (never steps across).
+  // Outputs in between are interpolated (CVODE's dense output), so they do not shorten the steps.
   std::vector<double> breakpoints = body.environment().breakpoints();
   std::size_t interval = 0;
   body.environment().setInterval(0);
+  auto nextStop = [&] { return interval < breakpoints.size() ? breakpoints[interval] : c.run.duration; };
+  integrator.setStopTime(nextStop());
   try {
     for (long k = 1; k <= outputs; ++k) {
       double t = std::min(c.run.duration, static_cast<double>(k) * c.run.outputInterval);
@@ -275,6 +278,7 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
         integrator.advanceTo(breakpoints[interval]);
         body.environment().setInterval(++interval);
         integrator.restart();
+        integrator.setStopTime(nextStop());
       }
       integrator.advanceTo(t);
       recorder.record(t, integrator.state(), initialStored, summary);
