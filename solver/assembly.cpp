@@ -9,9 +9,13 @@
 namespace thermorph {
 
 NetworkSystem::NetworkSystem(const Network& network, Mode mode)
-    : network_(network), mode_(mode), nodes_(network.nodes.size()), channels_(network.channels.size()) {
+    : network_(network),
+      mode_(mode),
+      nodes_(network.nodes.size()),
+      controls_(network.controllers.size()),
+      channels_(network.channels.size()) {
   const bool transient = mode == Mode::Transient;
-  pattern_.size = nodes_ + (transient ? channels_ : 0);
+  pattern_.size = nodes_ + controls_ + (transient ? channels_ : 0);
   nodeWeight_.resize(nodes_);
   for (Index i = 0; i < nodes_; ++i) {
     Index g = network.nodes[i].group;
@@ -33,12 +37,23 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
         throw std::invalid_argument(fmt::format("node {} has no heat capacity", network.nodes[i].label));
       rowScale_[i] = 1.0 / network.nodes[i].capacity;
     }
+  for (const Modulator& m : network.modulators)
+    if ((m.schedule != none && !network.schedules) || (m.control != none && m.control >= controls_))
+      throw std::invalid_argument(fmt::format("modulator {} refers to a missing schedule or controller", m.name));
 
-  // Collect (row, col) of every term, then compress into CSC once.
+  // Collect (row, col) of every term, then compress into CSC once; the same order then finds each slot.
   std::vector<std::pair<Index, Index>> entries;  // (col, row)
   auto add = [&](Index row, Index col) { entries.emplace_back(col, row); };
-  auto accumulator = [&](Index channel) { return nodes_ + channel; };
-  for (Index i = 0; i < nodes_; ++i) add(i, i);
+  auto accumulator = [&](Index channel) { return nodes_ + controls_ + channel; };
+  auto forParts = [&](Index begin, Index end, Index row, Index channel, auto&& visit) {
+    for (Index p = begin; p < end; ++p) {
+      Index u = controlColumn(network.flowParts[p].modulator);
+      if (u == none) continue;
+      visit(row, u);
+      if (transient) visit(accumulator(channel), u);
+    }
+  };
+  for (Index i = 0; i < pattern_.size; ++i) add(i, i);
   for (const Conductance& c : network.conductances) {
     add(c.a, c.b);
     add(c.b, c.a);
@@ -49,14 +64,24 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       add(accumulator(a.channel), a.from);
       add(accumulator(a.channel), a.to);
     }
+    forParts(a.partsBegin, a.partsEnd, a.to, a.channel, add);
   }
-  if (transient) {
-    for (const BoundaryExchange& e : network.exchanges) add(accumulator(e.channel), e.node);
-    for (const HeatSource& s : network.sources) add(accumulator(s.channel), s.node);
-    for (const SurfaceFace& f : network.faces)
+  for (const BoundaryExchange& e : network.exchanges) {
+    if (transient) add(accumulator(e.channel), e.node);
+    forParts(e.partsBegin, e.partsEnd, e.node, e.channel, add);
+  }
+  for (const HeatSource& s : network.sources) {
+    if (transient) add(accumulator(s.channel), s.node);
+    if (Index u = controlColumn(s.modulator); u != none) {
+      add(s.node, u);
+      if (transient) add(accumulator(s.channel), u);
+    }
+  }
+  for (const SurfaceFace& f : network.faces)
+    if (transient)
       for (Index c = 0; c < channels_; ++c) add(accumulator(c), f.node);
-    for (Index c = 0; c < channels_; ++c) add(accumulator(c), accumulator(c));  // keeps the diagonal structural
-  }
+  for (Index k = 0; k < controls_; ++k)
+    for (auto [node, weight] : network.controllers[k].signal) add(nodes_ + k, node);
   std::sort(entries.begin(), entries.end());
   entries.erase(std::unique(entries.begin(), entries.end()), entries.end());
   pattern_.columnStart.assign(pattern_.size + 1, 0);
@@ -67,31 +92,48 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
   }
   for (Index c = 0; c < pattern_.size; ++c) pattern_.columnStart[c + 1] += pattern_.columnStart[c];
 
-  for (const Conductance& c : network.conductances) {
+  auto slotOf = [&](Index row, Index col) { partSlots_.push_back(slot(row, col)); };
+  for (const Conductance& c : network.conductances)
     conductanceSlots_.insert(conductanceSlots_.end(), {slot(c.a, c.a), slot(c.a, c.b), slot(c.b, c.b), slot(c.b, c.a)});
-  }
   for (const Advection& a : network.advections) {
     advectionSlots_.insert(advectionSlots_.end(), {slot(a.to, a.to), slot(a.to, a.from)});
     if (transient)
-      accumulatorSlots_.insert(accumulatorSlots_.end(),
-                               {slot(accumulator(a.channel), a.from), slot(accumulator(a.channel), a.to)});
+      advectionSlots_.insert(advectionSlots_.end(),
+                             {slot(accumulator(a.channel), a.from), slot(accumulator(a.channel), a.to)});
+    forParts(a.partsBegin, a.partsEnd, a.to, a.channel, slotOf);
   }
   for (const BoundaryExchange& e : network.exchanges) {
     exchangeSlots_.push_back(slot(e.node, e.node));
-    if (transient) accumulatorSlots_.push_back(slot(accumulator(e.channel), e.node));
+    if (transient) exchangeSlots_.push_back(slot(accumulator(e.channel), e.node));
+    forParts(e.partsBegin, e.partsEnd, e.node, e.channel, slotOf);
   }
   for (const HeatSource& s : network.sources) {
     sourceSlots_.push_back(slot(s.node, s.node));
-    if (transient) accumulatorSlots_.push_back(slot(accumulator(s.channel), s.node));
+    if (transient) sourceSlots_.push_back(slot(accumulator(s.channel), s.node));
+    if (Index u = controlColumn(s.modulator); u != none) {
+      sourceSlots_.push_back(slot(s.node, u));
+      if (transient) sourceSlots_.push_back(slot(accumulator(s.channel), u));
+    }
   }
   for (const SurfaceFace& f : network.faces) {
     faceSlots_.push_back(slot(f.node, f.node));
     if (transient)
-      for (Index c = 0; c < channels_; ++c) accumulatorSlots_.push_back(slot(accumulator(c), f.node));
+      for (Index c = 0; c < channels_; ++c) faceSlots_.push_back(slot(accumulator(c), f.node));
+  }
+  for (Index k = 0; k < controls_; ++k) {
+    controlSlots_.push_back(slot(nodes_ + k, nodes_ + k));
+    for (auto [node, weight] : network.controllers[k].signal) controlSlots_.push_back(slot(nodes_ + k, node));
   }
   faceGuess_.assign(network.faces.size(), std::nan(""));
   scratchHeat_.resize(channels_);
   scratchDerivative_.resize(channels_);
+  modulators_.resize(network.modulators.size());
+}
+
+Index NetworkSystem::controlColumn(Index modulator) const {
+  if (modulator == none) return none;
+  Index c = network_.modulators[modulator].control;
+  return c == none ? none : nodes_ + c;
 }
 
 Index NetworkSystem::slot(Index row, Index col) const {
@@ -100,6 +142,36 @@ Index NetworkSystem::slot(Index row, Index col) const {
   auto it = std::lower_bound(first, last, row);
   if (it == last || *it != row) throw std::logic_error("sparse pattern misses an entry");
   return static_cast<Index>(it - pattern_.rowIndex.begin());
+}
+
+void NetworkSystem::modulatorValues(double time, std::span<const double> y, std::span<double> values) const {
+  for (Index k = 0; k < network_.modulators.size(); ++k) {
+    const Modulator& m = network_.modulators[k];
+    double v = m.schedule == none ? 1.0 : network_.schedules->value(m.schedule, time);
+    if (m.control != none) v *= y[nodes_ + m.control];
+    values[k] = v;
+  }
+}
+
+double NetworkSystem::partsValue(Index begin, Index end, std::span<const double> m) const {
+  double sum = 0.0;
+  for (Index p = begin; p < end; ++p) sum += network_.flowParts[p].coefficient * m[network_.flowParts[p].modulator];
+  return sum;
+}
+
+double NetworkSystem::controlTarget(const Controller& c, double time, std::span<const double> y, bool* active) const {
+  // Proportional control about a set point with limits (the common form in thermoregulation models).
+  bool enabled = c.enableSchedule == none || network_.schedules->value(c.enableSchedule, time) > 0.5;
+  if (!enabled) {
+    if (active) *active = false;
+    return c.offValue;
+  }
+  double signal = 0.0;
+  for (auto [node, weight] : c.signal) signal += weight * y[node];
+  double setpoint = c.setpointSchedule == none ? c.setpoint : network_.schedules->value(c.setpointSchedule, time);
+  double raw = c.bias + c.gain * (signal - setpoint);
+  if (active) *active = raw > c.lower && raw < c.upper;
+  return std::clamp(raw, c.lower, c.upper);
 }
 
 NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, double nodeTemperature,
@@ -140,7 +212,8 @@ NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, do
 void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<double> out) const {
   const bool transient = mode_ == Mode::Transient;
   std::fill(out.begin(), out.end(), 0.0);
-  std::span<double> acc = transient ? out.subspan(nodes_, channels_) : std::span<double>();
+  std::span<double> acc = transient ? out.subspan(nodes_ + controls_, channels_) : std::span<double>();
+  modulatorValues(time, T, modulators_);
   for (std::size_t k = 0; k < network_.conductances.size(); ++k) {
     const Conductance& c = network_.conductances[k];
     double q = c.conductance * (T[c.b] - T[c.a]);
@@ -148,17 +221,21 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
     out[c.b] -= conductanceFactor_[2 * k + 1] * q;
   }
   for (const Advection& a : network_.advections) {
-    double q = a.flowCapacity * (T[a.from] - T[a.to]);
+    double F = a.flowCapacity + partsValue(a.partsBegin, a.partsEnd, modulators_);
+    double q = F * (T[a.from] - T[a.to]);
     out[a.to] += q;
     if (transient) acc[a.channel] += nodeWeight_[a.to] * q;
   }
   for (const BoundaryExchange& e : network_.exchanges) {
-    double q = e.conductance * (e.temperature - T[e.node]);
+    double G = e.conductance + partsValue(e.partsBegin, e.partsEnd, modulators_);
+    double q = G * (e.temperature - T[e.node]);
     out[e.node] += q;
     if (transient) acc[e.channel] += nodeWeight_[e.node] * q;
   }
-  for (const HeatSource& s : network_.sources) {
-    double q = s.power * std::exp(q10Rate_[&s - network_.sources.data()] * (T[s.node] - s.referenceTemperature));
+  for (std::size_t i = 0; i < network_.sources.size(); ++i) {
+    const HeatSource& s = network_.sources[i];
+    double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
+    double q = s.power * m * std::exp(q10Rate_[i] * (T[s.node] - s.referenceTemperature));
     out[s.node] += q;
     if (transient) acc[s.channel] += nodeWeight_[s.node] * q;
   }
@@ -170,6 +247,11 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
       if (transient) acc[c] += nodeWeight_[node] * scratchHeat_[c];
     }
   }
+  for (Index k = 0; k < controls_; ++k) {
+    const Controller& c = network_.controllers[k];
+    double difference = controlTarget(c, time, T, nullptr) - T[nodes_ + k];
+    out[nodes_ + k] = transient ? difference / c.timeConstant : difference;
+  }
   if (transient)
     for (Index i = 0; i < nodes_; ++i) out[i] *= rowScale_[i];
 }
@@ -177,6 +259,12 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
 void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<double> values) const {
   const bool transient = mode_ == Mode::Transient;
   std::fill(values.begin(), values.end(), 0.0);
+  modulatorValues(time, T, modulators_);
+  // d m_k / d u_control = schedule(t) for a part whose modulator has a control.
+  auto scheduleOf = [&](Index modulator) {
+    const Modulator& m = network_.modulators[modulator];
+    return m.schedule == none ? 1.0 : network_.schedules->value(m.schedule, time);
+  };
   std::size_t k = 0;
   for (std::size_t i = 0; i < network_.conductances.size(); ++i) {
     const double G = network_.conductances[i].conductance;
@@ -186,36 +274,68 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     values[conductanceSlots_[k++]] -= fb * G;
     values[conductanceSlots_[k++]] += fb * G;
   }
-  std::size_t a = 0, acc = 0;
-  for (const Advection& adv : network_.advections) {
-    values[advectionSlots_[a++]] -= adv.flowCapacity;
-    values[advectionSlots_[a++]] += adv.flowCapacity;
-    if (transient) {
-      values[accumulatorSlots_[acc++]] += nodeWeight_[adv.to] * adv.flowCapacity;
-      values[accumulatorSlots_[acc++]] -= nodeWeight_[adv.to] * adv.flowCapacity;
+  std::size_t a = 0, ps = 0;
+  auto partDerivatives = [&](Index begin, Index end, double difference, double weight) {
+    for (Index p = begin; p < end; ++p) {
+      const FlowPart& part = network_.flowParts[p];
+      if (controlColumn(part.modulator) == none) continue;
+      double d = part.coefficient * scheduleOf(part.modulator) * difference;
+      values[partSlots_[ps++]] += d;
+      if (transient) values[partSlots_[ps++]] += weight * d;
     }
+  };
+  for (const Advection& adv : network_.advections) {
+    double F = adv.flowCapacity + partsValue(adv.partsBegin, adv.partsEnd, modulators_);
+    values[advectionSlots_[a++]] -= F;
+    values[advectionSlots_[a++]] += F;
+    const double w = nodeWeight_[adv.to];
+    if (transient) {
+      values[advectionSlots_[a++]] += w * F;
+      values[advectionSlots_[a++]] -= w * F;
+    }
+    partDerivatives(adv.partsBegin, adv.partsEnd, T[adv.from] - T[adv.to], w);
   }
-  for (std::size_t i = 0; i < network_.exchanges.size(); ++i) {
-    const BoundaryExchange& e = network_.exchanges[i];
-    values[exchangeSlots_[i]] -= e.conductance;
-    if (transient) values[accumulatorSlots_[acc++]] -= nodeWeight_[e.node] * e.conductance;
+  std::size_t e = 0;
+  for (const BoundaryExchange& ex : network_.exchanges) {
+    double G = ex.conductance + partsValue(ex.partsBegin, ex.partsEnd, modulators_);
+    values[exchangeSlots_[e++]] -= G;
+    if (transient) values[exchangeSlots_[e++]] -= nodeWeight_[ex.node] * G;
+    partDerivatives(ex.partsBegin, ex.partsEnd, ex.temperature - T[ex.node], nodeWeight_[ex.node]);
   }
+  std::size_t so = 0;
   for (std::size_t i = 0; i < network_.sources.size(); ++i) {
     const HeatSource& s = network_.sources[i];
-    // d/dT [P Q10^((T - T_ref)/10)] = P Q10^(...) ln(Q10)/10.
-    double dq = s.power * std::exp(q10Rate_[i] * (T[s.node] - s.referenceTemperature)) * q10Rate_[i];
-    values[sourceSlots_[i]] += dq;
-    if (transient) values[accumulatorSlots_[acc++]] += nodeWeight_[s.node] * dq;
+    double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
+    double base = s.power * std::exp(q10Rate_[i] * (T[s.node] - s.referenceTemperature));
+    // d/dT [P m Q10^((T - T_ref)/10)] = P m Q10^(...) ln(Q10)/10.
+    double dq = base * m * q10Rate_[i];
+    values[sourceSlots_[so++]] += dq;
+    if (transient) values[sourceSlots_[so++]] += nodeWeight_[s.node] * dq;
+    if (controlColumn(s.modulator) != none) {
+      double du = base * scheduleOf(s.modulator);
+      values[sourceSlots_[so++]] += du;
+      if (transient) values[sourceSlots_[so++]] += nodeWeight_[s.node] * du;
+    }
   }
+  std::size_t fs = 0;
   for (Index f = 0; f < network_.faces.size(); ++f) {
     Index node = network_.faces[f].node;
     FaceSolution sol = solveFace(f, time, T[node], scratchHeat_, scratchDerivative_);
     double total = 0.0;
     for (Index c = 0; c < channels_; ++c) total += scratchDerivative_[c];
-    values[faceSlots_[f]] += total * sol.dTsdTn;
+    values[faceSlots_[fs++]] += total * sol.dTsdTn;
     if (transient)
       for (Index c = 0; c < channels_; ++c)
-        values[accumulatorSlots_[acc++]] += nodeWeight_[node] * scratchDerivative_[c] * sol.dTsdTn;
+        values[faceSlots_[fs++]] += nodeWeight_[node] * scratchDerivative_[c] * sol.dTsdTn;
+  }
+  std::size_t cs = 0;
+  for (Index kk = 0; kk < controls_; ++kk) {
+    const Controller& c = network_.controllers[kk];
+    const double scale = transient ? 1.0 / c.timeConstant : 1.0;
+    bool active = false;
+    controlTarget(c, time, T, &active);
+    values[controlSlots_[cs++]] -= scale;
+    for (auto [node, weight] : c.signal) values[controlSlots_[cs++]] += active ? scale * c.gain * weight : 0.0;
   }
   if (transient) {
     // Row scaling by 1/C for node rows.
@@ -229,6 +349,7 @@ void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span
                                std::span<double> storage, std::span<double> faceTemperatures) const {
   std::fill(flows.begin(), flows.end(), 0.0);
   std::fill(storage.begin(), storage.end(), 0.0);
+  modulatorValues(time, T, modulators_);
   auto group = [&](Index node) { return network_.nodes[node].group; };
   auto at = [&](Index node, Index channel) -> double& { return flows[group(node) * channels_ + channel]; };
   std::vector<double> rate(nodes_, 0.0);
@@ -243,17 +364,19 @@ void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span
     }
   }
   for (const Advection& a : network_.advections) {
-    double q = a.flowCapacity * (T[a.from] - T[a.to]);
+    double q = (a.flowCapacity + partsValue(a.partsBegin, a.partsEnd, modulators_)) * (T[a.from] - T[a.to]);
     rate[a.to] += q;
     at(a.to, a.channel) += q;
   }
   for (const BoundaryExchange& e : network_.exchanges) {
-    double q = e.conductance * (e.temperature - T[e.node]);
+    double q = (e.conductance + partsValue(e.partsBegin, e.partsEnd, modulators_)) * (e.temperature - T[e.node]);
     rate[e.node] += q;
     at(e.node, e.channel) += q;
   }
-  for (const HeatSource& s : network_.sources) {
-    double q = s.power * std::exp(q10Rate_[&s - network_.sources.data()] * (T[s.node] - s.referenceTemperature));
+  for (std::size_t i = 0; i < network_.sources.size(); ++i) {
+    const HeatSource& s = network_.sources[i];
+    double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
+    double q = s.power * m * std::exp(q10Rate_[i] * (T[s.node] - s.referenceTemperature));
     rate[s.node] += q;
     at(s.node, s.channel) += q;
   }

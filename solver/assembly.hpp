@@ -7,7 +7,7 @@
 
 namespace thermorph {
 
-//! Compressed sparse column pattern with the value slot of every network term.
+//! Compressed sparse column pattern.
 struct SparsePattern {
   Index size = 0;
   std::vector<Index> columnStart;  //!< [size + 1]
@@ -16,9 +16,9 @@ struct SparsePattern {
 };
 
 //! Right-hand side and Jacobian of a network.
-//! Transient mode: state = node temperatures [K] then one cumulative energy per channel [J];
-//!   rhs = dT/dt = Q_i / C_i and dE_c/dt = sum of channel-c flows (weighted by group multiplicity).
-//! Steady mode: state = node temperatures; residual = Q_i [W] (net heat into each node).
+//! State: node temperatures [K], then controller states [1], then (transient only) one cumulative energy per
+//! channel [J]. Transient: dT/dt = Q_i / C_i, du/dt = (u* - u)/tau, dE_c/dt = sum of channel-c flows (weighted by
+//! group multiplicity). Steady: residuals Q_i [W] and u* - u.
 class NetworkSystem {
  public:
   enum class Mode { Transient, Steady };
@@ -26,22 +26,25 @@ class NetworkSystem {
 
   Index size() const { return pattern_.size; }
   Index nodeCount() const { return nodes_; }
+  Index controlCount() const { return controls_; }
   Index channelCount() const { return channels_; }
   const SparsePattern& pattern() const { return pattern_; }
   const Network& network() const { return network_; }
 
-  //! Time derivative (transient) or net heat residual (steady) [size].
+  //! Time derivative (transient) or residual (steady) [size].
   void evaluate(double time, std::span<const double> state, std::span<double> out) const;
   //! Jacobian values in the order of pattern().rowIndex [nonzeros].
   void jacobian(double time, std::span<const double> state, std::span<double> values) const;
 
-  //! Heat flow by group and channel at the current state [W], row-major [groups x channels], unweighted,
-  //! plus storage per group sum C dT/dt [W] [groups]. Face temperatures [faces] are filled too.
+  //! Heat flow by group and channel at the state (nodes and controls at least) [W], row-major
+  //! [groups x channels], unweighted, plus storage per group sum C dT/dt [W] [groups]; face temperatures [faces].
   void groupFlows(double time, std::span<const double> state, std::span<double> flows, std::span<double> storage,
                   std::span<double> faceTemperatures) const;
 
   //! Stored heat sum w C T of the nodes (weighted by group multiplicity) [J].
   double storedHeat(std::span<const double> state) const;
+  //! Modulator values m_k(t, u) for the state [modulators].
+  void modulatorValues(double time, std::span<const double> state, std::span<double> values) const;
 
  private:
   struct FaceSolution {
@@ -51,22 +54,28 @@ class NetworkSystem {
   FaceSolution solveFace(Index face, double time, double nodeTemperature, std::span<double> channelHeat,
                          std::span<double> channelDerivative) const;
   Index slot(Index row, Index col) const;
+  double partsValue(Index begin, Index end, std::span<const double> m) const;
+  double controlTarget(const Controller& c, double time, std::span<const double> state, bool* active) const;
+  Index controlColumn(Index modulator) const;  //!< state column of the modulator's control, or none
 
   const Network& network_;
   Mode mode_;
-  Index nodes_ = 0, channels_ = 0;
+  Index nodes_ = 0, controls_ = 0, channels_ = 0;
   SparsePattern pattern_;
-  std::vector<double> rowScale_;   //!< 1/C for node rows (transient), 1 otherwise
-  std::vector<double> nodeWeight_; //!< group multiplicity of each node
+  std::vector<double> rowScale_;           //!< 1/C for node rows (transient), 1 otherwise
+  std::vector<double> nodeWeight_;         //!< group multiplicity of each node
   std::vector<double> q10Rate_;            //!< per source ln(Q10)/10 [1/K]
   std::vector<double> conductanceFactor_;  //!< per conductance: factors on the flow into a and into b
   // Value slots of every term, in the order of the network's vectors.
   std::vector<Index> conductanceSlots_;   //!< 4 per conductance: aa, ab, bb, ba
-  std::vector<Index> advectionSlots_;     //!< 2 per advection: (to,to), (to,from)
-  std::vector<Index> exchangeSlots_, sourceSlots_, faceSlots_;
-  std::vector<Index> accumulatorSlots_;   //!< per term with a channel, the (accumulator, node) slots
+  std::vector<Index> advectionSlots_;     //!< per advection: (to,to), (to,from), [(acc,from), (acc,to)]
+  std::vector<Index> exchangeSlots_;      //!< per exchange: (node,node), [(acc,node)]
+  std::vector<Index> sourceSlots_;        //!< per source: (node,node), [(acc,node)], [(node,u), [(acc,u)]]
+  std::vector<Index> faceSlots_;          //!< per face: (node,node), [(acc_c,node) per channel]
+  std::vector<Index> partSlots_;          //!< per flow part with a control: (row,u), [(acc,u)]
+  std::vector<Index> controlSlots_;       //!< per controller: (u,u), then (u,node) per signal entry
   mutable std::vector<double> faceGuess_;  //!< last face temperatures, Newton start values
-  mutable std::vector<double> scratchHeat_, scratchDerivative_;
+  mutable std::vector<double> scratchHeat_, scratchDerivative_, modulators_;
 };
 
 }  // namespace thermorph

@@ -20,6 +20,45 @@ namespace thermorph {
 
 using Index = std::size_t;
 
+//! "No such entry" for optional indices (modulator, control, schedule).
+inline constexpr Index none = static_cast<Index>(-1);
+
+//! One part of a modulated flow: coefficient times the value of a modulator [W/K].
+struct FlowPart {
+  Index modulator = none;
+  double coefficient = 0.0;
+};
+
+//! A multiplier on terms: a time function from the model (events, ramps) times a control state:
+//! m(t, u) = schedule(t) * u_control (either factor is 1 when absent).
+struct Modulator {
+  Index schedule = none;  //!< index for ScheduleModel::value
+  Index control = none;   //!< controller whose state multiplies
+  std::string name;
+};
+
+//! Feedback control state u with first-order lag: du/dt = (u* - u)/tau,
+//! u* = clamp(bias + gain (signal - setpoint), lower, upper) when enabled, else offValue;
+//! signal = sum of weight * node temperature [K]. Proportional control about a set point with limits.
+struct Controller {
+  std::string name;
+  std::vector<std::pair<Index, double>> signal;  //!< (node, weight), weights sum to 1
+  double setpoint = 310.15;                       //!< [K], unless setpointSchedule gives it
+  Index setpointSchedule = none;
+  Index enableSchedule = none;                    //!< schedule value > 0.5: enabled
+  double gain = 0.0;                              //!< [1/K]
+  double bias = 1.0, lower = 0.0, upper = 1.0, offValue = 1.0;
+  double timeConstant = 60.0;                     //!< [s]
+  double initial = 1.0;
+};
+
+class ScheduleModel {
+ public:
+  virtual ~ScheduleModel() = default;
+  //! Value of time function `schedule` at time t (steps resolved by the model's current interval).
+  virtual double value(Index schedule, double time) const = 0;
+};
+
 struct NetworkNode {
   double capacity = 0.0;  //!< heat capacity [J/K]
   Index group = 0;        //!< owning group (segment)
@@ -36,16 +75,18 @@ struct Conductance {
 //! Heat carried by a fluid stream from `from` into `to`: F (T_from - T_to) [W/K].
 struct Advection {
   Index from = 0, to = 0;
-  double flowCapacity = 0.0;  //!< mass flow times specific heat [W/K]
+  double flowCapacity = 0.0;  //!< mass flow times specific heat [W/K] (constant part)
   Index channel = 0;
+  Index partsBegin = 0, partsEnd = 0;  //!< modulated parts in Network::flowParts, added to flowCapacity
 };
 
 //! Exchange with a prescribed boundary temperature: G (T_b - T_i).
 struct BoundaryExchange {
   Index node = 0;
-  double conductance = 0.0;  //!< [W/K]
+  double conductance = 0.0;  //!< [W/K] (constant part)
   double temperature = 0.0;  //!< [K]
   Index channel = 0;
+  Index partsBegin = 0, partsEnd = 0;  //!< modulated parts in Network::flowParts
 };
 
 //! Temperature-dependent heat source P_ref Q10^((T - T_ref)/10) [W].
@@ -55,6 +96,7 @@ struct HeatSource {
   double q10 = 1.0;                   //!< [1]
   double referenceTemperature = 0.0;  //!< [K]
   Index channel = 0;
+  Index modulator = none;             //!< multiplies the power
 };
 
 //! One exterior face: node -> (half-cell conductance) -> face at T_s -> environment.
@@ -86,6 +128,10 @@ struct Network {
   std::vector<double> groupWeights;   //!< multiplicity of each group in the budget (1 unless mirrored)
   std::vector<std::string> channels;  //!< budget channel names
   const SurfaceModel* surface = nullptr;
+  std::vector<FlowPart> flowParts;
+  std::vector<Modulator> modulators;
+  std::vector<Controller> controllers;
+  const ScheduleModel* schedules = nullptr;  //!< required when a modulator or controller uses a schedule
 
   Index addNode(double capacity, Index group, std::string label) {
     nodes.push_back({capacity, group, std::move(label)});

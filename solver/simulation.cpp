@@ -92,8 +92,11 @@ class Recorder {
     summary.flows.assign(groups * channels, 0.0);
     summary.storage.assign(groups, 0.0);
     faceTemperatures_.assign(network_.faces.size(), 0.0);
-    system_.groupFlows(t, y.first(system_.nodeCount()), summary.flows, summary.storage, faceTemperatures_);
-    summary.channelEnergy.assign(y.begin() + static_cast<std::ptrdiff_t>(system_.nodeCount()), y.end());
+    const Index states = system_.nodeCount() + system_.controlCount();
+    system_.groupFlows(t, y.first(states), summary.flows, summary.storage, faceTemperatures_);
+    summary.channelEnergy.assign(y.begin() + static_cast<std::ptrdiff_t>(states), y.end());
+    summary.controls.assign(y.begin() + static_cast<std::ptrdiff_t>(system_.nodeCount()),
+                            y.begin() + static_cast<std::ptrdiff_t>(states));
     summary.storedChange = system_.storedHeat(y) - initialStored;
     double gained = std::accumulate(summary.channelEnergy.begin(), summary.channelEnergy.end(), 0.0);
     summary.energyBalanceError = gained - summary.storedChange;
@@ -239,10 +242,12 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   const Case& c = body.spec();
   NetworkSystem system(body.network(), NetworkSystem::Mode::Transient);
   const Index nodes = system.nodeCount();
+  const Index states = nodes + system.controlCount();  // temperatures, then controller states
   std::vector<double> y(system.size(), 0.0);
   std::fill(y.begin(), y.begin() + static_cast<std::ptrdiff_t>(nodes), c.run.initialTemperature);
+  for (Index k = 0; k < system.controlCount(); ++k) y[nodes + k] = body.network().controllers[k].initial;
   if (c.run.initial == InitialCondition::Steady) {
-    std::vector<double> steady = steadyTemperatures(body, std::span<const double>(y).first(nodes), nullptr);
+    std::vector<double> steady = steadyTemperatures(body, std::span<const double>(y).first(states), nullptr);
     std::copy(steady.begin(), steady.end(), y.begin());
   }
   IntegratorOptions io;
@@ -250,8 +255,9 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   io.maxStep = c.run.maxStep;
   io.linearSolver = options.linearSolver;
   io.atol.assign(system.size(), c.run.atol);
+  for (Index i = nodes; i < states; ++i) io.atol[i] = 1e-6;  // controller states are fractions of their range
   // Channel energies are exact quadratures of the flows: excluded from the error test.
-  for (Index i = nodes; i < system.size(); ++i) io.atol[i] = 1e30;
+  for (Index i = states; i < system.size(); ++i) io.atol[i] = 1e30;
 
   RunSummary summary;
   Recorder recorder(body, system, options);
@@ -307,15 +313,17 @@ RunSummary runSteady(const Body& body, const RunOptions& options) {
   const Case& c = body.spec();
   NetworkSystem transient(body.network(), NetworkSystem::Mode::Transient);
   const Index nodes = transient.nodeCount();
-  std::vector<double> guess(nodes, c.run.initialTemperature);
+  std::vector<double> guess(nodes + transient.controlCount(), c.run.initialTemperature);
+  for (Index k = 0; k < transient.controlCount(); ++k) guess[nodes + k] = body.network().controllers[k].initial;
   RunSummary summary;
   Recorder recorder(body, transient, options);
   recorder.setIncompletePath(options.output.empty() ? "" : incompleteName(options.output));
+  body.environment().setInterval(0);
   std::vector<double> steady = steadyTemperatures(body, guess, &summary.statistics);
   std::vector<double> y(transient.size(), 0.0);
   std::copy(steady.begin(), steady.end(), y.begin());
   recorder.record(0.0, y, transient.storedHeat(y), summary);
-  summary.finalState = steady;
+  summary.finalState.assign(steady.begin(), steady.begin() + static_cast<std::ptrdiff_t>(nodes));
   recorder.finish(summary, true);
   return summary;
 }

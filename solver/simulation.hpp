@@ -38,6 +38,7 @@ struct RunSummary {
   double energyBalanceError = 0.0;    //!< sum of channel energies minus stored change [J]
   double throughput = 0.0;       //!< gross heat exchanged, for the relative error [J]
   std::vector<double> finalState;     //!< node temperatures [K]
+  std::vector<double> controls;       //!< controller states at the last output [1]
   std::vector<std::string> warnings;
 };
 
