@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <array>
 #include <map>
 #include <numbers>
 
@@ -109,7 +110,123 @@ Body::Body(const Case& c) : case_(c) {
   if (case_.body.mass) bodyMass_ = *case_.body.mass;
   attachChildren();
   scaleMetabolism();
+  const bool breathing = !case_.body.respiratorySegment.empty() &&
+                         !environment_->immersed(index.at(case_.body.respiratorySegment));
+  physiology_ = std::make_unique<PhysiologyModel>(case_, *environment_, basalRate_, breathing);
+  basalRate_ *= case_.body.activity;  // reported with the static activity
+  network_.schedules = physiology_.get();
+  buildControllers();
+  addMetabolicModulation(breathing ? index.at(case_.body.respiratorySegment) : none);
   buildCirculation();
+}
+
+void Body::setInterval(std::size_t interval) const {
+  environment_->setInterval(interval);
+  physiology_->setInterval(interval);
+}
+
+Index Body::addModulator(Index schedule, Index control, std::string name) {
+  network_.modulators.push_back({schedule, control, std::move(name)});
+  return network_.modulators.size() - 1;
+}
+
+std::vector<std::pair<Index, double>> Body::signalNodes(ControlSignal signal) const {
+  std::vector<std::pair<Index, double>> nodes;
+  double total = 0.0;
+  if (signal == ControlSignal::Core) {
+    const SegmentMesh& m = meshes_[core_];
+    for (int iz = 0; iz < m.nz; ++iz)
+      for (int ir = 0; ir < m.innermostLayerCells; ++ir) {
+        double v = m.volume[static_cast<std::size_t>(iz * m.nr + ir)];
+        nodes.emplace_back(m.node(iz, ir), v);
+        total += v;
+      }
+  } else {
+    for (const SegmentMesh& m : meshes_)
+      for (int iz = 0; iz < m.nz; ++iz) {
+        double a = m.weight * network_.faces[m.lateralFace[static_cast<std::size_t>(iz)]].area;
+        nodes.emplace_back(m.node(iz, m.skinCell), a);
+        total += a;
+      }
+  }
+  for (auto& [node, w] : nodes) w /= total;
+  return nodes;
+}
+
+void Body::buildControllers() {
+  // Proportional control about a set point with limits and a first-order lag: the common form in
+  // thermoregulation models. u* = clamp(bias + gain (T - set point), lower, upper); see solver/network.hpp.
+  using K = PhysiologyModel::Kind;
+  auto add = [&](const ControllerSpec& spec, std::size_t k, const char* name, double bias, double gain, double lower,
+                 double upper, double offValue) {
+    Controller c;
+    c.name = name;
+    c.signal = signalNodes(spec.signal);
+    c.setpoint = spec.setPoint;
+    c.setpointSchedule = physiology_->add({K::ControlSetPoint, 0, false, false, k});
+    c.enableSchedule = physiology_->add({K::ControlEnabled, 0, false, false, k});
+    c.gain = gain;
+    c.bias = bias;
+    c.lower = lower;
+    c.upper = upper;
+    c.offValue = offValue;
+    c.timeConstant = spec.timeConstant;
+    double raw = bias + gain * (case_.run.initialTemperature - spec.setPoint);
+    c.initial = spec.enabled ? std::clamp(raw, lower, upper) : offValue;
+    network_.controllers.push_back(c);
+    return network_.controllers.size() - 1;
+  };
+  const ControlSpec& cs = case_.control;
+  if (cs.vasomotor.present) {
+    skinControl_ = add(cs.vasomotor, 0, "vasomotor skin perfusion", 1.0, cs.vasomotor.gain, cs.vasomotor.lower,
+                       cs.vasomotor.upper, 1.0);
+    shuntControl_ = add(cs.vasomotor, 0, "vasomotor shunts", 0.0, cs.vasomotor.shuntGain, 0.0, 1.0, 1.0);
+  }
+  if (cs.shivering.present)
+    shiverControl_ = add(cs.shivering, 1, "shivering", 0.0, -cs.shivering.gain, 0.0, 1.0, 0.0);
+  if (cs.panting.present)
+    pantControl_ = add(cs.panting, 2, "panting", 1.0, cs.panting.gain, 1.0, cs.panting.upper, 1.0);
+}
+
+void Body::addMetabolicModulation(Index respiratorySegment) {
+  using K = PhysiologyModel::Kind;
+  // Tissue metabolism follows activity x hypometabolism from the case and its events.
+  Index metabolism = addModulator(physiology_->add({K::Metabolism}), none, "metabolism");
+  for (HeatSource& src : network_.sources) src.modulator = metabolism;
+  // Shivering: extra heat in muscle, distributed by muscle volume (all copies counted).
+  if (shiverControl_ != none) {
+    Index shivering = addModulator(none, shiverControl_, "shivering");
+    Index channel = network_.channel("shivering");
+    double maxPower = case_.control.shivering.maxPower > 0.0 ? case_.control.shivering.maxPower
+                                                             : 3.0 * basalRate_ / case_.body.activity;
+    double muscleVolume = 0.0;
+    std::vector<std::pair<Index, double>> cells;
+    for (const SegmentMesh& m : meshes_)
+      for (int iz = 0; iz < m.nz; ++iz)
+        for (int ir = 0; ir < m.nr; ++ir)
+          if (m.layerNames[static_cast<std::size_t>(m.layer[static_cast<std::size_t>(ir)])] == "muscle") {
+            double v = m.volume[static_cast<std::size_t>(iz * m.nr + ir)];
+            cells.emplace_back(m.node(iz, ir), v);
+            muscleVolume += m.weight * v;
+          }
+    if (cells.empty())
+      throw CaseError(fmt::format("{}: control.shivering: no segment has a muscle layer to shiver", case_.sourceFile));
+    for (auto [node, v] : cells)
+      network_.sources.push_back({node, maxPower * v / muscleVolume, 1.0, case_.body.q10Reference, channel, shivering});
+  }
+  // Respiration: the loss taken from the innermost layer of the respiratory segment, by volume.
+  if (respiratorySegment != none) {
+    Index respiration = addModulator(physiology_->add({K::Respiration}), pantControl_, "respiration");
+    Index channel = network_.channel("respiration");
+    const SegmentMesh& m = meshes_[respiratorySegment];
+    double volume = 0.0;
+    for (int iz = 0; iz < m.nz; ++iz)
+      for (int ir = 0; ir < m.innermostLayerCells; ++ir) volume += m.weight * m.volume[static_cast<std::size_t>(iz * m.nr + ir)];
+    for (int iz = 0; iz < m.nz; ++iz)
+      for (int ir = 0; ir < m.innermostLayerCells; ++ir)
+        network_.sources.push_back({m.node(iz, ir), -m.volume[static_cast<std::size_t>(iz * m.nr + ir)] / volume, 1.0,
+                                    case_.body.q10Reference, channel, respiration});
+  }
 }
 
 void Body::scaleMetabolism() {
@@ -125,9 +242,10 @@ void Body::scaleMetabolism() {
     throw CaseError(fmt::format("{}: body.basal_metabolic_rate: no tissue produces metabolic heat, so there is "
                                 "nothing to scale to the whole-body rate",
                                 case_.sourceFile));
-  double factor = (tissueSum > 0.0 ? target / tissueSum : 1.0) * case_.body.activity;
+  // Activity (and later events) multiply through the metabolism modulator.
+  double factor = tissueSum > 0.0 ? target / tissueSum : 1.0;
   for (HeatSource& src : network_.sources) src.power *= factor;
-  basalRate_ = target * case_.body.activity;
+  basalRate_ = target;
 }
 
 void Body::attachChildren() {
@@ -172,27 +290,109 @@ void Body::attachChildren() {
   }
 }
 
+namespace {
+
+//! A blood flow as a sum of modulated parts, sum_k c_k m_k(t, u) [m3/s]; every flow in the circulation is one,
+//! so mass balance holds at every junction for every modulator separately, at all times.
+struct FlowExpr {
+  std::map<Index, double> parts;  //!< modulator -> coefficient [m3/s]
+  void add(Index modulator, double coefficient) {
+    if (coefficient != 0.0) parts[modulator] += coefficient;
+  }
+  void add(const FlowExpr& other, double factor = 1.0) {
+    for (auto [m, c] : other.parts) add(m, factor * c);
+  }
+  bool empty() const {
+    for (auto [m, c] : parts)
+      if (c != 0.0) return false;
+    return true;
+  }
+  double value(const std::vector<double>& modulators) const {
+    double v = 0.0;
+    for (auto [m, c] : parts) v += c * modulators[m];
+    return v;
+  }
+};
+
+}  // namespace
+
 void Body::buildCirculation() {
+  using K = PhysiologyModel::Kind;
   const CirculationSpec& circ = case_.circulation;
   const double rc = circ.bloodDensity * circ.bloodSpecificHeat;  // [J/(m3 K)]
   const std::size_t n = case_.segments.size();
-  // Per segment and axial cell: perfusion, shunt, and what the children draw and return (per copy).
-  std::vector<std::vector<double>> perf(n), shunt(n), childDraw(n), childDeep(n), childSuperficial(n);
-  std::vector<double> draw(n, 0.0), deep(n, 0.0), superficialFlow(n, 0.0);
+
+  // Modulators: per segment and layer the perfusion factor (total, superficial share), per segment
+  // the shunt opening; skin layers and shunts follow the vasomotor controllers when there are any.
+  std::vector<std::vector<std::array<Index, 3>>> perfusionModulators(n);
+  std::vector<Index> shuntModulator(n, none);
+  for (Index g = 0; g < n; ++g) {
+    const SegmentSpec& s = case_.segments[g];
+    // A superficial return exists when the case or an event gives this segment one.
+    bool superficialPossible = s.vasomotor.superficialReturn > 0.0;
+    for (const EventSpec& e : case_.events)
+      for (const VasomotorTarget& v : e.vasomotor)
+        if ((v.segment == "all" || v.segment == s.name) && v.superficialReturn && *v.superficialReturn > 0.0)
+          superficialPossible = true;
+    for (const LayerSpec& l : s.layers) {
+      bool skin = l.tissue.find("skin") != std::string::npos;
+      bool brain = l.tissue == "brain";
+      Index control = skin ? skinControl_ : none;
+      std::array<Index, 3> mods{none, none, none};
+      mods[0] = addModulator(physiology_->add({K::Perfusion, g, skin, brain, 0}), control,
+                             fmt::format("{} {} perfusion", s.name, l.tissue));
+      if (superficialPossible)
+        mods[2] = addModulator(physiology_->add({K::PerfusionSuperficial, g, skin, brain, 0}), control,
+                               fmt::format("{} {} superficial return", s.name, l.tissue));
+      perfusionModulators[g].push_back(mods);
+    }
+    if (s.vessels.shuntFlowMax > 0.0)
+      shuntModulator[g] = addModulator(physiology_->add({K::Shunt, g}), shuntControl_, s.name + " shunts");
+  }
+  // Modulator values at t = 0 with the controllers at their initial states (for the bookkeeping and `check`).
+  std::vector<double> m0(network_.modulators.size(), 1.0);
+  for (Index k = 0; k < m0.size(); ++k) {
+    const Modulator& m = network_.modulators[k];
+    m0[k] = (m.schedule == none ? 1.0 : physiology_->value(m.schedule, 0.0)) *
+            (m.control == none ? 1.0 : network_.controllers[m.control].initial);
+  }
+
+  // Per segment and axial cell (per copy): perfusion of each tissue cell split into deep and superficial
+  // return, shunt flow, and what the children draw and return.
+  std::vector<std::vector<FlowExpr>> cellTotal(n), cellDeep(n), cellSuperficial(n);  // [nz * nr]
+  std::vector<std::vector<FlowExpr>> shunt(n), childDraw(n), childDeep(n), childSuperficial(n);  // [nz]
+  std::vector<FlowExpr> draw(n), deep(n), superficialFlow(n);
   std::vector<Index> parentOf(n, n);
   std::vector<int> attachCell(n, 0);
   for (Index g = 0; g < n; ++g) {
     const SegmentSpec& s = case_.segments[g];
     const SegmentMesh& m = meshes_[g];
-    perf[g].assign(static_cast<std::size_t>(m.nz), 0.0);
-    shunt[g].assign(static_cast<std::size_t>(m.nz), 0.0);
-    childDraw[g] = childDeep[g] = childSuperficial[g] = std::vector<double>(static_cast<std::size_t>(m.nz), 0.0);
+    const auto nz = static_cast<std::size_t>(m.nz);
+    cellTotal[g].resize(nz * static_cast<std::size_t>(m.nr));
+    cellDeep[g].resize(cellTotal[g].size());
+    cellSuperficial[g].resize(cellTotal[g].size());
+    shunt[g].resize(nz);
+    childDraw[g].resize(nz);
+    childDeep[g].resize(nz);
+    childSuperficial[g].resize(nz);
     for (int iz = 0; iz < m.nz; ++iz)
-      for (int ir = 0; ir < m.nr; ++ir) perf[g][static_cast<std::size_t>(iz)] += cellPerfusion_[g][static_cast<std::size_t>(iz * m.nr + ir)];
+      for (int ir = 0; ir < m.nr; ++ir) {
+        auto c = static_cast<std::size_t>(iz * m.nr + ir);
+        double q = cellPerfusion_[g][c];
+        if (!(q > 0.0)) continue;
+        const auto& mods = perfusionModulators[g][static_cast<std::size_t>(m.layer[static_cast<std::size_t>(ir)])];
+        cellTotal[g][c].add(mods[0], q);
+        cellDeep[g][c].add(mods[0], q);  // deep = total - superficial, so mass balances per modulator
+        if (mods[2] != none) {
+          cellDeep[g][c].add(mods[2], -q);
+          cellSuperficial[g][c].add(mods[2], q);
+        }
+      }
     // Shunts open through the skin of the distal half of the axial cells.
-    double shuntTotal = s.vessels.shuntFlowMax * s.vasomotor.shunt;
     int firstDistal = m.nz / 2;
-    for (int iz = firstDistal; iz < m.nz; ++iz) shunt[g][static_cast<std::size_t>(iz)] = shuntTotal / (m.nz - firstDistal);
+    if (shuntModulator[g] != none)
+      for (int iz = firstDistal; iz < m.nz; ++iz)
+        shunt[g][static_cast<std::size_t>(iz)].add(shuntModulator[g], s.vessels.shuntFlowMax / (m.nz - firstDistal));
     if (!s.parent.empty()) {
       Index p = 0;
       while (case_.segments[p].name != s.parent) ++p;
@@ -200,68 +400,72 @@ void Body::buildCirculation() {
       attachCell[g] = std::clamp(static_cast<int>(s.attachPosition * meshes_[p].nz), 0, meshes_[p].nz - 1);
     }
   }
-  // Flows bottom-up (reverse of root-first order): mass is conserved at every junction by construction.
+  // Flows bottom-up (reverse of root-first order).
+  std::vector<std::vector<FlowExpr>> arterialIn(n), deepOut(n), superficialOut(n);  // [nz + 1]
   for (auto it = order_.rbegin(); it != order_.rend(); ++it) {
     Index g = *it;
     const SegmentSpec& s = case_.segments[g];
-    double sigma = s.vasomotor.superficialReturn;
-    double perfusion = 0.0, shunted = 0.0;
-    for (std::size_t iz = 0; iz < perf[g].size(); ++iz) {
-      perfusion += perf[g][iz];
-      shunted += shunt[g][iz];
-      draw[g] += perf[g][iz] + shunt[g][iz] + childDraw[g][iz];
-      deep[g] += (1.0 - sigma) * perf[g][iz] + childDeep[g][iz];
-      superficialFlow[g] += sigma * perf[g][iz] + shunt[g][iz] + childSuperficial[g][iz];
+    SegmentMesh& m = meshes_[g];
+    const auto nz = static_cast<std::size_t>(m.nz);
+    arterialIn[g].assign(nz + 1, FlowExpr{});
+    deepOut[g].assign(nz + 1, FlowExpr{});
+    superficialOut[g].assign(nz + 1, FlowExpr{});
+    FlowExpr perfusion, shunted;
+    for (std::size_t z = nz; z-- > 0;) {
+      FlowExpr a = arterialIn[g][z + 1], d = deepOut[g][z + 1], sf = superficialOut[g][z + 1];
+      for (int ir = 0; ir < m.nr; ++ir) {
+        auto c = z * static_cast<std::size_t>(m.nr) + static_cast<std::size_t>(ir);
+        a.add(cellTotal[g][c]);
+        d.add(cellDeep[g][c]);
+        sf.add(cellSuperficial[g][c]);
+        perfusion.add(cellTotal[g][c]);
+      }
+      a.add(shunt[g][z]);
+      sf.add(shunt[g][z]);
+      shunted.add(shunt[g][z]);
+      a.add(childDraw[g][z]);
+      d.add(childDeep[g][z]);
+      sf.add(childSuperficial[g][z]);
+      arterialIn[g][z] = a;
+      deepOut[g][z] = d;
+      superficialOut[g][z] = sf;
     }
-    meshes_[g].bloodFlow = draw[g];
-    meshes_[g].perfusionFlow = perfusion;
-    meshes_[g].shuntFlow = shunted;
+    draw[g] = arterialIn[g][0];
+    deep[g] = deepOut[g][0];
+    superficialFlow[g] = superficialOut[g][0];
+    m.bloodFlow = draw[g].value(m0);
+    m.perfusionFlow = perfusion.value(m0);
+    m.shuntFlow = shunted.value(m0);
     if (parentOf[g] < n) {
       auto k = static_cast<std::size_t>(attachCell[g]);
-      childDraw[parentOf[g]][k] += s.count * draw[g];
-      childDeep[parentOf[g]][k] += s.count * deep[g];
-      childSuperficial[parentOf[g]][k] += s.count * superficialFlow[g];
+      childDraw[parentOf[g]][k].add(draw[g], s.count);
+      childDeep[parentOf[g]][k].add(deep[g], s.count);
+      childSuperficial[parentOf[g]][k].add(superficialFlow[g], s.count);
     }
   }
   const Index root = order_.front();
-  totalFlow_ = draw[root];
+  totalFlow_ = draw[root].value(m0);
   bloodVolume_ = case_.body.bloodVolume.value_or(0.07 * bodyMass_ / circ.bloodDensity);  // ~7 % of mass (Stahl 1967, from memory)
   // Default cardiac output 187 M^0.81 mL/min (Stahl 1967, J. Appl. Physiol. 22:453; from memory).
   cardiacOutput_ = case_.body.cardiacOutput.value_or(187e-6 / 60.0 * std::pow(bodyMass_, 0.81));
   if (totalFlow_ > cardiacOutput_)
     warnings_.push_back(fmt::format("total blood flow {:.4g} mL/min exceeds the cardiac output {:.4g} mL/min",
                                     totalFlow_ * 6e7, cardiacOutput_ * 6e7));
-  if (!(totalFlow_ > 0.0)) return;  // no circulation: tissues exchange heat by conduction only
+  if (draw[root].empty()) return;  // no circulation: tissues exchange heat by conduction only
 
-  // Flow through each axial cell's vessels (per copy): arterial inflow, and what each vein carries proximally
-  // out of the cell. A blood node exists only where its flow is positive (no isolated nodes).
-  std::vector<std::vector<double>> arterialIn(n), deepOut(n), superficialOut(n);
-  for (Index g = 0; g < n; ++g) {
-    const auto nz = static_cast<std::size_t>(meshes_[g].nz);
-    const double sigma = case_.segments[g].vasomotor.superficialReturn;
-    arterialIn[g].assign(nz + 1, 0.0);
-    deepOut[g].assign(nz + 1, 0.0);
-    superficialOut[g].assign(nz + 1, 0.0);
-    for (std::size_t z = nz; z-- > 0;) {
-      arterialIn[g][z] = arterialIn[g][z + 1] + perf[g][z] + shunt[g][z] + childDraw[g][z];
-      deepOut[g][z] = deepOut[g][z + 1] + (1.0 - sigma) * perf[g][z] + childDeep[g][z];
-      superficialOut[g][z] = superficialOut[g][z + 1] + sigma * perf[g][z] + shunt[g][z] + childSuperficial[g][z];
-    }
-  }
-
-  // Blood nodes; capacities from the large-vessel blood volume of the cell's tissue (coat excluded).
+  // Blood nodes where some flow can pass; capacities from the large-vessel blood of the cell's tissue.
   double vesselVolume = 0.0;
   for (Index g : order_) {
     SegmentMesh& m = meshes_[g];
     const SegmentSpec& s = case_.segments[g];
-    if (!(draw[g] > 0.0)) continue;
+    if (draw[g].empty()) continue;
     for (int iz = 0; iz < m.nz; ++iz) {
       auto z = static_cast<std::size_t>(iz);
       double tissue = 0.0;
       for (int ir = 0; ir <= m.skinCell; ++ir) tissue += m.volume[static_cast<std::size_t>(iz * m.nr + ir)];
       double vb = s.vessels.bloodFraction * tissue;
-      auto add = [&](double flow, double share, const char* what) {
-        if (!(flow > 0.0)) return noNode;
+      auto add = [&](const FlowExpr& flow, double share, const char* what) {
+        if (flow.empty()) return noNode;
         vesselVolume += m.weight * vb * share;
         return network_.addNode(rc * vb * share, g, fmt::format("{}: axial {}, {} blood", s.name, iz, what));
       };
@@ -281,40 +485,47 @@ void Body::buildCirculation() {
     pool_ = network_.addNode(rc * poolVolume, network_.groups.size() - 1, "central blood pool");
   }
 
-  auto link = [&](Index from, Index to, double flow) {
-    if (!(flow > 0.0)) return;
+  auto parts = [&](const FlowExpr& flow, double factor) {
+    std::pair<Index, Index> range{network_.flowParts.size(), 0};
+    for (auto [mod, c] : flow.parts)
+      if (c != 0.0) network_.flowParts.push_back({mod, factor * rc * c});
+    range.second = network_.flowParts.size();
+    return range;
+  };
+  auto link = [&](Index from, Index to, const FlowExpr& flow, double factor = 1.0) {
+    if (flow.empty()) return;
     if (from == noNode || to == noNode) throw std::logic_error("blood link to a node that carries no flow");
-    network_.advections.push_back({from, to, rc * flow, bloodChannel_});
+    auto [begin, end] = parts(flow, factor);
+    network_.advections.push_back({from, to, 0.0, bloodChannel_, begin, end});
   };
   for (Index g : order_) {
     const SegmentMesh& m = meshes_[g];
     const SegmentSpec& s = case_.segments[g];
-    if (!(draw[g] > 0.0)) continue;
-    const double sigma = s.vasomotor.superficialReturn;
+    if (draw[g].empty()) continue;
     // Arterial inflow at the proximal cell: from the parent's arterial stream, the pool, or pinned blood.
     if (parentOf[g] < n) {
       const SegmentMesh& pm = meshes_[parentOf[g]];
       auto k = static_cast<std::size_t>(attachCell[g]);
       link(pm.arterial[k], m.arterial[0], draw[g]);
-      link(m.venous[0], pm.venous[k], s.count * deep[g]);
-      link(m.superficial[0], pm.superficial[k], s.count * superficialFlow[g]);
+      link(m.venous[0], pm.venous[k], deep[g], s.count);
+      link(m.superficial[0], pm.superficial[k], superficialFlow[g], s.count);
     } else if (pool_) {
       link(*pool_, m.arterial[0], draw[g]);
       link(m.venous[0], *pool_, deep[g]);
       link(m.superficial[0], *pool_, superficialFlow[g]);
     } else {
-      network_.exchanges.push_back({m.arterial[0], rc * draw[g], *circ.fixedArterialTemperature, bloodChannel_});
+      auto [begin, end] = parts(draw[g], 1.0);
+      network_.exchanges.push_back({m.arterial[0], 0.0, *circ.fixedArterialTemperature, bloodChannel_, begin, end});
     }
     for (int iz = 0; iz < m.nz; ++iz) {
       auto z = static_cast<std::size_t>(iz);
       if (iz > 0) link(m.arterial[z - 1], m.arterial[z], arterialIn[g][z]);
       // Pennes term at the local arterial temperature; venous blood leaves at tissue temperature.
       for (int ir = 0; ir < m.nr; ++ir) {
-        double q = cellPerfusion_[g][static_cast<std::size_t>(iz * m.nr + ir)];
-        if (!(q > 0.0)) continue;
-        link(m.arterial[z], m.node(iz, ir), q);
-        link(m.node(iz, ir), m.venous[z], (1.0 - sigma) * q);
-        link(m.node(iz, ir), m.superficial[z], sigma * q);
+        auto c = static_cast<std::size_t>(iz * m.nr + ir);
+        link(m.arterial[z], m.node(iz, ir), cellTotal[g][c]);
+        link(m.node(iz, ir), m.venous[z], cellDeep[g][c]);
+        link(m.node(iz, ir), m.superficial[z], cellSuperficial[g][c]);
       }
       // Arteriovenous shunt through the skin cell, back by superficial veins.
       link(m.arterial[z], m.node(iz, m.skinCell), shunt[g][z]);
@@ -326,26 +537,31 @@ void Body::buildCirculation() {
       }
       if (m.arterial[z] != noNode && m.venous[z] != noNode && s.vessels.countercurrentConductance > 0.0)
         network_.conductances.push_back({m.arterial[z], m.venous[z], s.vessels.countercurrentConductance / m.nz, 0});
+      if (m.superficial[z] != noNode && s.vessels.superficialConductance > 0.0)
+        network_.conductances.push_back(
+            {m.superficial[z], m.node(iz, m.skinCell), s.vessels.superficialConductance / m.nz, 0});
     }
-    if (s.vessels.countercurrentConductance > 0.0 && !(deep[g] > 0.0))
+    if (s.vessels.countercurrentConductance > 0.0 && deep[g].empty())
       warnings_.push_back(fmt::format("{}: all venous return is superficial, so the countercurrent exchanger carries "
                                       "no flow", s.name));
   }
-  // Mass balance at every node: inflow equals outflow (to round-off).
-  std::vector<double> in(network_.nodes.size(), 0.0), out(network_.nodes.size(), 0.0);
+  // Mass balance at every node for every modulator separately: inflow equals outflow (to round-off).
+  std::map<std::pair<Index, Index>, std::array<double, 2>> balance;  // (node, modulator) -> in, out
   for (const Advection& a : network_.advections) {
     double w = network_.groupWeights[network_.nodes[a.to].group];
-    in[a.to] += w * a.flowCapacity;
-    out[a.from] += w * a.flowCapacity;
+    for (Index p = a.partsBegin; p < a.partsEnd; ++p) {
+      balance[{a.to, network_.flowParts[p].modulator}][0] += w * network_.flowParts[p].coefficient;
+      balance[{a.from, network_.flowParts[p].modulator}][1] += w * network_.flowParts[p].coefficient;
+    }
   }
   for (const BoundaryExchange& e : network_.exchanges)
-    if (e.channel == bloodChannel_) in[e.node] += e.conductance;
-  for (Index i = 0; i < network_.nodes.size(); ++i) {
-    double w = network_.groupWeights[network_.nodes[i].group];
-    bool sink = pool_ ? false : (out[i] == 0.0 && in[i] > 0.0);  // pinned supply: returns leave the body
-    if (!sink && std::abs(in[i] - out[i]) > 1e-9 * (in[i] + out[i]))
-      throw std::logic_error(fmt::format("blood mass not conserved at {} (in {:g}, out {:g} W/K, weight {:g})",
-                                         network_.nodes[i].label, in[i], out[i], w));
+    for (Index p = e.partsBegin; p < e.partsEnd; ++p) balance[{e.node, network_.flowParts[p].modulator}][0] += network_.flowParts[p].coefficient;
+  for (auto& [key, io] : balance) {
+    bool sink = !pool_ && io[1] == 0.0;  // pinned supply: returns leave the body
+    if (!sink && std::abs(io[0] - io[1]) > 1e-9 * (std::abs(io[0]) + std::abs(io[1])))
+      throw std::logic_error(fmt::format("blood mass not conserved at {} for {} (in {:g}, out {:g} W/K)",
+                                         network_.nodes[key.first].label, network_.modulators[key.second].name, io[0],
+                                         io[1]));
   }
 }
 
@@ -425,9 +641,8 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
       if (t.metabolicHeat > 0.0)
         network_.sources.push_back({node, t.metabolicHeat * volume, t.q10, case_.body.q10Reference, metabolismChannel_});
       // Pennes (1948) perfusion omega V [m3/s]; the blood streams are linked in buildCirculation().
-      double multiplier = m.layerNames[static_cast<std::size_t>(m.layer[static_cast<std::size_t>(ir)])].find("skin") != std::string::npos
-                              ? s.vasomotor.skinPerfusion : 1.0;
-      cellPerfusion_[group][static_cast<std::size_t>(iz * nr + ir)] = t.isCoat ? 0.0 : t.perfusion * multiplier * volume;
+      // (skin multipliers, bradycardia and controllers act through modulators: see buildCirculation)
+      cellPerfusion_[group][static_cast<std::size_t>(iz * nr + ir)] = t.isCoat ? 0.0 : t.perfusion * volume;
     }
     // Radial conduction: node centre -> shared face -> next node centre (harmonic-mean interface conductance).
     for (int ir = 0; ir + 1 < nr; ++ir) {

@@ -7,6 +7,7 @@
 
 #include "models/case.hpp"
 #include "models/environment.hpp"
+#include "models/physiology.hpp"
 #include "solver/network.hpp"
 
 namespace thermorph {
@@ -64,7 +65,10 @@ class Body {
   double cardiacOutput() const { return cardiacOutput_; }
   double bodyMass() const { return bodyMass_; }
   double bloodVolume() const { return bloodVolume_; }
-  //! Basal metabolic heat at the Q10 reference temperature, activity included [W].
+  //! Move every time-dependent model to timeline interval k (after breakpoint k-1).
+  void setInterval(std::size_t interval) const;
+  const PhysiologyModel& physiology() const { return *physiology_; }
+  //! Basal metabolic heat at the Q10 reference temperature, static activity included [W].
   double basalMetabolicRate() const { return basalRate_; }
   //! Messages for the user (e.g. perfusion above cardiac output).
   const std::vector<std::string>& warnings() const { return warnings_; }
@@ -75,11 +79,17 @@ class Body {
   void attachChildren();
   void scaleMetabolism();
   void buildCirculation();
+  void buildControllers();
+  void addMetabolicModulation(Index respiratorySegment);
+  Index addModulator(Index schedule, Index control, std::string name);
+  std::vector<std::pair<Index, double>> signalNodes(ControlSignal signal) const;
 
   Case case_;
   Network network_;
   std::vector<SegmentMesh> meshes_;
   std::unique_ptr<EnvironmentModel> environment_;
+  std::unique_ptr<PhysiologyModel> physiology_;
+  Index skinControl_ = none, shuntControl_ = none, shiverControl_ = none, pantControl_ = none;
   std::vector<Index> order_;               //!< segments root first
   std::vector<std::vector<double>> cellPerfusion_;  // per segment [nz * nr] perfusion flow [m3/s]
   std::vector<std::vector<double>> coveredArea_;    //!< per segment [nz] lateral area covered by children [m2]  //!< per segment [nz * nr] perfusion flow [m3/s]

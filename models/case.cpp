@@ -166,6 +166,7 @@ SegmentSpec readSegment(const CaseReader& reader, const Case& c, const toml::tab
   s.vessels.countercurrentConductance = vessels.quantity("countercurrent_conductance");
   s.vessels.shuntFlowMax = vessels.quantity("shunt_flow_max");
   s.vessels.bloodFraction = vessels.number("blood_fraction");
+  s.vessels.superficialConductance = vessels.quantity("superficial_conductance");
   TableView vaso = t.child("vasomotor");
   s.vasomotor.skinPerfusion = vaso.number("skin_perfusion");
   s.vasomotor.shunt = vaso.number("shunt");
@@ -258,6 +259,64 @@ SegmentSpec readSegment(const CaseReader& reader, const Case& c, const toml::tab
 
   s.surface = readSurface(t, s.shape);
   return s;
+}
+
+//! [control.vasomotor], [control.shivering], [control.panting].
+void readControl(const TableView& top, Case& c) {
+  TableView control = top.child("control");
+  auto common = [&](const char* name, ControllerSpec& spec) {
+    if (!control.has(name)) return std::optional<TableView>();
+    TableView t = control.child(name);
+    spec.present = true;
+    spec.signal = t.choice("signal") == "mean_skin" ? ControlSignal::MeanSkin : ControlSignal::Core;
+    spec.setPoint = t.quantity("set_point");
+    spec.gain = t.quantity("gain");
+    spec.timeConstant = t.quantity("time_constant");
+    spec.enabled = t.choice("enabled") == "on";
+    return std::optional<TableView>(t);
+  };
+  if (auto t = common("vasomotor", c.control.vasomotor)) {
+    c.control.vasomotor.lower = t->number("min");
+    c.control.vasomotor.upper = t->number("max");
+    c.control.vasomotor.shuntGain = t->quantity("shunt_gain");
+    if (c.control.vasomotor.lower > c.control.vasomotor.upper)
+      t->fail("min", fmt::format("min = {:g} exceeds max = {:g}", c.control.vasomotor.lower, c.control.vasomotor.upper));
+  }
+  if (auto t = common("shivering", c.control.shivering)) c.control.shivering.maxPower = t->optionalQuantity("max_power").value_or(0.0);
+  if (auto t = common("panting", c.control.panting)) {
+    c.control.panting.lower = 1.0;
+    c.control.panting.upper = t->number("max");
+  }
+}
+
+toml::table controlToml(const ControlSpec& control) {
+  toml::table out;
+  auto common = [&](const char* name, const ControllerSpec& spec) {
+    toml::table t{{"signal", spec.signal == ControlSignal::Core ? "core" : "mean_skin"},
+                  {"set_point", spec.setPoint},
+                  {"gain", spec.gain},
+                  {"time_constant", spec.timeConstant},
+                  {"enabled", spec.enabled ? "on" : "off"}};
+    return t;
+  };
+  if (control.vasomotor.present) {
+    toml::table t = common("vasomotor", control.vasomotor);
+    t.insert("min", control.vasomotor.lower);
+    t.insert("max", control.vasomotor.upper);
+    t.insert("shunt_gain", control.vasomotor.shuntGain);
+    out.insert("vasomotor", t);
+  }
+  if (control.shivering.present) {
+    toml::table t = common("shivering", control.shivering);
+    if (control.shivering.maxPower > 0.0) t.insert("max_power", control.shivering.maxPower);
+    out.insert("shivering", t);
+  }
+  if (control.panting.present) {
+    toml::table t = common("panting", control.panting);
+    t.insert("max", control.panting.upper);
+    out.insert("panting", t);
+  }
+  return out;
 }
 
 //! One root, known parents, no cycles; shunts only where there is skin.
@@ -361,6 +420,8 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   c.body.q10Reference = bodyTable.quantity("q10_reference");
   c.body.coreSegment = bodyTable.optionalText("core_segment").value_or("");
   c.body.respiratorySegment = bodyTable.optionalText("respiratory_segment").value_or("");
+  c.body.exhaledTemperature = bodyTable.quantity("exhaled_temperature");
+  readControl(top, c);
 
   readTissues(reader, top, c);
 
@@ -397,6 +458,21 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
 
   c.environment = readEnvironment(top);
   c.events = readEvents(reader, top, root, c.run.duration);
+  for (std::size_t i = 0; i < c.events.size(); ++i) {
+    for (const VasomotorTarget& v : c.events[i].vasomotor)
+      if (v.segment != "all" && !names.count(v.segment))
+        throw CaseError(fmt::format("{}: events (at {:g} s): vasomotor.{}: no segment of that name (segments: {}, "
+                                    "or all)", file, c.events[i].at, v.segment, fmt::join(names, ", ")));
+    for (const ControlTarget& t : c.events[i].control) {
+      const ControllerSpec& spec = t.controller == "vasomotor" ? c.control.vasomotor
+                                   : t.controller == "shivering" ? c.control.shivering : c.control.panting;
+      if (!spec.present)
+        throw CaseError(fmt::format("{}: events (at {:g} s): control.{}: the case has no [control.{}]", file,
+                                    c.events[i].at, t.controller, t.controller));
+    }
+  }
+  if (c.control.panting.present && c.body.respiratorySegment.empty())
+    throw CaseError(fmt::format("{}: control.panting: panting needs respiration: set [body] respiratory_segment", file));
   return c;
 }
 
@@ -446,7 +522,9 @@ std::string resolvedCaseToml(const Case& c) {
   if (c.body.cardiacOutput) body.insert("cardiac_output", *c.body.cardiacOutput);
   if (!c.body.coreSegment.empty()) body.insert("core_segment", c.body.coreSegment);
   if (!c.body.respiratorySegment.empty()) body.insert("respiratory_segment", c.body.respiratorySegment);
+  body.insert("exhaled_temperature", c.body.exhaledTemperature);
   root.insert("body", body);
+  if (toml::table control = controlToml(c.control); !control.empty()) root.insert("control", control);
 
   // Only the tissues the body uses, each fully specified.
   std::set<std::string> used;
@@ -476,6 +554,7 @@ std::string resolvedCaseToml(const Case& c) {
     }
     t.insert("vessels", toml::table{{"countercurrent_conductance", s.vessels.countercurrentConductance},
                                     {"shunt_flow_max", s.vessels.shuntFlowMax},
+                                    {"superficial_conductance", s.vessels.superficialConductance},
                                     {"blood_fraction", s.vessels.bloodFraction}});
     t.insert("vasomotor", toml::table{{"skin_perfusion", s.vasomotor.skinPerfusion},
                                       {"shunt", s.vasomotor.shunt},

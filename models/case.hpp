@@ -41,6 +41,7 @@ struct VesselSpec {
   double countercurrentConductance = 0.0;  //!< artery to deep vein, whole segment [W/K]
   double shuntFlowMax = 0.0;               //!< largest arteriovenous shunt flow [m3/s]
   double bloodFraction = 0.03;             //!< large-vessel blood volume per tissue volume [1]
+  double superficialConductance = 0.001;   //!< superficial veins to skin, whole segment [W/K]
 };
 
 //! Vasomotor state of a segment (static here; events and controllers change it).
@@ -100,7 +101,27 @@ struct BodySpec {
   double activity = 1.0;                //!< metabolic multiplier [1]
   double q10Reference = 310.15;         //!< reference temperature of tissue Q10 [K]
   std::string coreSegment;              //!< default: root
-  std::string respiratorySegment;       //!< default: root
+  std::string respiratorySegment;       //!< empty: no respiratory heat loss
+  double exhaledTemperature = 308.15;   //!< [K]
+};
+
+enum class ControlSignal { Core, MeanSkin };
+
+//! One feedback controller ([control.NAME]); present only when the table is given.
+struct ControllerSpec {
+  bool present = false;
+  ControlSignal signal = ControlSignal::Core;
+  double setPoint = 310.15;     //!< [K]
+  double gain = 1.0;            //!< [1/K]
+  double lower = 0.0, upper = 1.0;
+  double shuntGain = 1.0;       //!< vasomotor only [1/K]
+  double maxPower = 0.0;        //!< shivering only [W] (0: 3 x basal)
+  double timeConstant = 120.0;  //!< [s]
+  bool enabled = true;
+};
+
+struct ControlSpec {
+  ControllerSpec vasomotor, shivering, panting;
 };
 
 struct Case {
@@ -109,6 +130,7 @@ struct Case {
   RunSpec run;
   CirculationSpec circulation;
   BodySpec body;
+  ControlSpec control;
   std::map<std::string, TissueProperties> tissues;  //!< built-ins merged with [tissues.*]
   std::vector<SegmentSpec> segments;
   EnvironmentSpec environment;

@@ -279,6 +279,13 @@ class TableView {
     if (p.defaultValue.empty()) missing(key);
     return std::string(p.defaultValue);
   }
+  //! A user-named table under a NamedTables key ("tissues.muscle" has the pattern "tissues.*").
+  TableView namedChild(std::string_view group, std::string_view name) const {
+    const toml::node* g = node(group);
+    const toml::node* n = g && g->as_table() ? g->as_table()->get(name) : nullptr;
+    return TableView(reader_, n ? n->as_table() : nullptr, join(pattern_, group) + ".*",
+                     path(group) + "." + std::string(name));
+  }
   TableView child(std::string_view key) const {
     const toml::node* n = node(key);
     return TableView(reader_, n ? n->as_table() : nullptr, join(pattern_, key), path(key));

@@ -302,6 +302,41 @@ void readWeather(const CaseReader& reader, const TableView& environment, Surroun
 
 }  // namespace
 
+//! Vasomotor, metabolic, circulatory, respiratory and controller targets of one [[events]] entry.
+void readPhysiologyEvent(const TableView& view, EventSpec& e) {
+  if (const toml::node* node = view.node("vasomotor")) {
+    for (auto&& [name, child] : *node->as_table()) {
+      TableView t = view.namedChild("vasomotor", name.str());
+      VasomotorTarget target;
+      target.segment = std::string(name.str());
+      if (t.has("skin_perfusion")) target.skinPerfusion = t.number("skin_perfusion");
+      if (t.has("shunt")) target.shunt = t.number("shunt");
+      if (t.has("superficial_return")) target.superficialReturn = t.number("superficial_return");
+      e.vasomotor.push_back(target);
+    }
+  }
+  TableView metabolism = view.child("metabolism");
+  if (metabolism.has("activity")) e.activity = metabolism.number("activity");
+  if (metabolism.has("hypometabolism")) e.hypometabolism = metabolism.number("hypometabolism");
+  TableView circulation = view.child("circulation");
+  if (circulation.has("bradycardia")) e.bradycardia = circulation.number("bradycardia");
+  TableView respiration = view.child("respiration");
+  if (respiration.has("panting")) e.panting = respiration.number("panting");
+  if (const toml::node* node = view.node("control")) {
+    for (auto&& [name, child] : *node->as_table()) {
+      TableView t = view.namedChild("control", name.str());
+      std::string controller(name.str());
+      if (controller != "vasomotor" && controller != "shivering" && controller != "panting")
+        view.fail("control", fmt::format("unknown controller \"{}\" (vasomotor, shivering, panting)", controller));
+      ControlTarget target;
+      target.controller = controller;
+      if (t.has("enabled")) target.enabled = t.choice("enabled") == "on";
+      if (t.has("set_point")) target.setPoint = t.quantity("set_point");
+      e.control.push_back(target);
+    }
+  }
+}
+
 std::vector<EventSpec> readEvents(const CaseReader& reader, const TableView& root, const toml::table& rootTable,
                                   double duration) {
   TableView base = root.child("environment");
@@ -324,6 +359,7 @@ std::vector<EventSpec> readEvents(const CaseReader& reader, const TableView& roo
         if (notApplicable(v.variable, medium)) failNotApplicable(env, v.variable, medium);
         e.environment.push_back({v.variable, env.quantity(v.key)});
       }
+      readPhysiologyEvent(view, e);
       read.push_back(std::move(e));
       sources.push_back({view.node("at"), view.path("at"), view.display()});
     }
@@ -413,7 +449,32 @@ toml::array eventsToml(const std::vector<EventSpec>& events) {
   for (const EventSpec& e : events) {
     toml::table environment;
     for (const EnvironmentValue& v : e.environment) environment.insert(info(v.variable).key, v.value);
-    out.push_back(toml::table{{"at", e.at}, {"ramp", e.ramp}, {"environment", environment}});
+    toml::table event{{"at", e.at}, {"ramp", e.ramp}};
+    if (!environment.empty()) event.insert("environment", environment);
+    toml::table vasomotor;
+    for (const VasomotorTarget& v : e.vasomotor) {
+      toml::table t;
+      if (v.skinPerfusion) t.insert("skin_perfusion", *v.skinPerfusion);
+      if (v.shunt) t.insert("shunt", *v.shunt);
+      if (v.superficialReturn) t.insert("superficial_return", *v.superficialReturn);
+      vasomotor.insert(v.segment, t);
+    }
+    if (!vasomotor.empty()) event.insert("vasomotor", vasomotor);
+    toml::table metabolism;
+    if (e.activity) metabolism.insert("activity", *e.activity);
+    if (e.hypometabolism) metabolism.insert("hypometabolism", *e.hypometabolism);
+    if (!metabolism.empty()) event.insert("metabolism", metabolism);
+    if (e.bradycardia) event.insert("circulation", toml::table{{"bradycardia", *e.bradycardia}});
+    if (e.panting) event.insert("respiration", toml::table{{"panting", *e.panting}});
+    toml::table control;
+    for (const ControlTarget& c : e.control) {
+      toml::table t;
+      if (c.enabled) t.insert("enabled", *c.enabled ? "on" : "off");
+      if (c.setPoint) t.insert("set_point", *c.setPoint);
+      control.insert(c.controller, t);
+    }
+    if (!control.empty()) event.insert("control", control);
+    out.push_back(event);
   }
   return out;
 }

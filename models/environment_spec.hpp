@@ -2,6 +2,7 @@
 //! Case data of the surroundings: the medium, per-segment surface properties and the event timeline.
 #include <cstddef>
 #include <optional>
+#include <string>
 #include <string_view>
 #include <vector>
 
@@ -87,6 +88,19 @@ struct EnvironmentValue {
   double value = 0.0;  //!< [SI]
 };
 
+//! Vasomotor targets of one event for one segment ("all": every segment).
+struct VasomotorTarget {
+  std::string segment;
+  std::optional<double> skinPerfusion, shunt, superficialReturn;
+};
+
+//! Controller change of one event.
+struct ControlTarget {
+  std::string controller;  //!< vasomotor, shivering or panting
+  std::optional<bool> enabled;
+  std::optional<double> setPoint;  //!< [K]
+};
+
 //! One entry of the timeline ([[events]]): from `at`, values move linearly to their targets over `ramp`.
 struct EventSpec {
   double at = 0.0;    //!< start [s]
@@ -94,6 +108,9 @@ struct EventSpec {
   //! Targets, including values that follow another (radiant temperature following the air temperature when
   //! never given explicitly), resolved at load time.
   std::vector<EnvironmentValue> environment;
+  std::vector<VasomotorTarget> vasomotor;
+  std::optional<double> activity, hypometabolism, bradycardia, panting;
+  std::vector<ControlTarget> control;
 };
 
 }  // namespace thermorph

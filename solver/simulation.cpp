@@ -274,7 +274,7 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   // Outputs in between are interpolated (CVODE's dense output), so they do not shorten the steps.
   std::vector<double> breakpoints = body.environment().breakpoints();
   std::size_t interval = 0;
-  body.environment().setInterval(0);
+  body.setInterval(0);
   auto nextStop = [&] { return interval < breakpoints.size() ? breakpoints[interval] : c.run.duration; };
   integrator.setStopTime(nextStop());
   try {
@@ -282,7 +282,7 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
       double t = std::min(c.run.duration, static_cast<double>(k) * c.run.outputInterval);
       while (interval < breakpoints.size() && breakpoints[interval] <= t) {
         integrator.advanceTo(breakpoints[interval]);
-        body.environment().setInterval(++interval);
+        body.setInterval(++interval);
         integrator.restart();
         integrator.setStopTime(nextStop());
       }
@@ -318,7 +318,7 @@ RunSummary runSteady(const Body& body, const RunOptions& options) {
   RunSummary summary;
   Recorder recorder(body, transient, options);
   recorder.setIncompletePath(options.output.empty() ? "" : incompleteName(options.output));
-  body.environment().setInterval(0);
+  body.setInterval(0);
   std::vector<double> steady = steadyTemperatures(body, guess, &summary.statistics);
   std::vector<double> y(transient.size(), 0.0);
   std::copy(steady.begin(), steady.end(), y.begin());

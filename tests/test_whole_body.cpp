@@ -534,9 +534,16 @@ TEST_CASE("Total arterial flow equals the sum over copies of perfusion and shunt
   CHECK(trunk.shuntFlow == 0.0);
 
   const Network& n = body->network();
+  // Flows are sums of modulated parts: evaluate them at t = 0 (controllers at their initial states).
+  NetworkSystem system(n, NetworkSystem::Mode::Transient);
+  std::vector<double> state(system.size(), 310.15), modulators(n.modulators.size());
+  for (Index k = 0; k < n.controllers.size(); ++k) state[system.nodeCount() + k] = n.controllers[k].initial;
+  system.modulatorValues(0.0, state, modulators);
   std::vector<double> in(n.nodes.size(), 0.0), out(n.nodes.size(), 0.0);
   for (const Advection& a : n.advections) {
-    const double w = nodeWeight(n, a.to) * a.flowCapacity;  // per copy of the receiving node
+    double flow = a.flowCapacity;
+    for (Index p = a.partsBegin; p < a.partsEnd; ++p) flow += n.flowParts[p].coefficient * modulators[n.flowParts[p].modulator];
+    const double w = nodeWeight(n, a.to) * flow;  // per copy of the receiving node
     in[a.to] += w;
     out[a.from] += w;
   }
