@@ -1,4 +1,4 @@
-//! thermorph command-line driver: run, steady, check, reference.
+//! thermorph command-line driver: run, steady, check, reference, sweep.
 #include <CLI/CLI.hpp>
 
 #include <cstdio>
@@ -10,6 +10,7 @@
 #include "models/body.hpp"
 #include "models/case.hpp"
 #include "solver/simulation.hpp"
+#include "solver/sweep_cli.hpp"
 
 namespace {
 
@@ -98,6 +99,11 @@ int main(int argc, char** argv) {
   check->add_flag("--resolved", resolved, "Print the fully resolved case (SI values, defaults filled in) as TOML");
   CLI::App* reference = app.add_subcommand("reference", "Print the case-file reference (Markdown) generated from the schema");
 
+  // ---- sweep: registration (solver/sweep_cli.cpp) ----
+  SweepOptions sweepOptions;
+  CLI::App* sweep = addSweepSubcommand(app, sweepOptions);
+  // ---- end sweep ----
+
   CLI11_PARSE(app, argc, argv);
 
   std::string commandLine;
@@ -110,6 +116,9 @@ int main(int argc, char** argv) {
     std::cout << caseReferenceMarkdown();
     return 0;
   }
+  // ---- sweep: dispatch ----
+  if (sweep->parsed()) return runSweepCli(sweepOptions, commandLine);
+  // ---- end sweep ----
   try {
     Case c = loadCase(casePath, overrides);
     Body body(c);

@@ -1,0 +1,413 @@
+//! Sweep plans: value specs, grids and zips, size series as overrides, metric selection, fingerprint.
+#include <fnmatch.h>
+
+#include <algorithm>
+#include <cmath>
+#include <filesystem>
+#include <fstream>
+#include <limits>
+#include <sstream>
+
+#include <fmt/format.h>
+
+#include "models/case_schema.hpp"
+#include "models/units.hpp"
+#include "solver/sweep.hpp"
+
+namespace thermorph {
+namespace {
+
+constexpr std::size_t maxRuns = 100'000'000;
+
+std::string trim(const std::string& s) {
+  std::size_t b = s.find_first_not_of(" \t\r\n"), e = s.find_last_not_of(" \t\r\n");
+  return b == std::string::npos ? std::string() : s.substr(b, e - b + 1);
+}
+
+std::vector<std::string> split(const std::string& s, char separator) {
+  std::vector<std::string> parts;
+  std::stringstream ss(s);
+  for (std::string part; std::getline(ss, part, separator);) parts.push_back(trim(part));
+  if (!s.empty() && s.back() == separator) parts.emplace_back();
+  return parts;
+}
+
+//! "KEY=VALUE" split at the first '='.
+std::pair<std::string, std::string> keyValue(const std::string& text, const char* option, const char* example) {
+  auto eq = text.find('=');
+  if (eq == std::string::npos || eq == 0)
+    throw CaseError(fmt::format("{} {}: expected KEY=SPEC, e.g. {} {}", option, text, option, example));
+  return {trim(text.substr(0, eq)), trim(text.substr(eq + 1))};
+}
+
+//! The schema entry of a key path ("segments.ears.layers.1.thickness" -> "segments[].layers[].thickness").
+const Param* schemaEntry(const std::string& key) {
+  std::vector<std::string> parts = split(key, '.');
+  std::string pattern;
+  const Param* p = nullptr;
+  for (std::size_t i = 0; i < parts.size(); ++i) {
+    pattern += (pattern.empty() ? "" : ".") + parts[i];
+    p = findParam(pattern);
+    if (!p) return nullptr;
+    if (p->kind == ParamKind::TableArray) {
+      pattern += "[]";
+      ++i;  // the element: a name or an index
+    } else if (p->kind == ParamKind::NamedTables) {
+      pattern += ".*";
+      ++i;
+    }
+  }
+  return p;
+}
+
+//! FNV-1a, 64 bit (Fowler, Noll and Vo): a stable fingerprint of the plan across runs and ranks.
+struct Fingerprint {
+  std::uint64_t hash = 1469598103934665603ull;
+  void add(std::string_view s) {
+    for (unsigned char ch : s) {
+      hash ^= ch;
+      hash *= 1099511628211ull;
+    }
+    hash ^= 0xff;  // separator
+    hash *= 1099511628211ull;
+  }
+};
+
+//! The numbers of an axis in one unit, for the table and the figures; words stay words.
+void fillNumbers(SweepAxis& axis) {
+  std::vector<ValueWithUnit> parsed;
+  for (const std::string& text : axis.texts) {
+    try {
+      parsed.push_back(splitValueUnit(text));
+      if (!parsed.back().unit.empty() && !unitConvertible(parsed.back().unit, parsed.back().unit)) break;
+    } catch (const UnitError&) {
+      break;
+    }
+  }
+  const double nan = std::numeric_limits<double>::quiet_NaN();
+  if (parsed.size() != axis.texts.size()) {  // words: "water", "exposed"
+    axis.units.clear();
+    axis.numbers.assign(axis.texts.size(), nan);
+    return;
+  }
+  const Param* p = axis.scale ? nullptr : schemaEntry(axis.key);
+  const std::string si = p && !p->unit.empty() ? std::string(p->unit) : std::string();
+  axis.units = parsed.front().unit.empty() ? (si.empty() ? "1" : si) : parsed.front().unit;
+  for (const ValueWithUnit& v : parsed) {
+    const std::string from = v.unit.empty() ? (si.empty() ? "1" : si) : v.unit;
+    if (from == axis.units) {
+      axis.numbers.push_back(v.value);
+      continue;
+    }
+    try {
+      axis.numbers.push_back(convertUnit(v.value, from, axis.units));
+    } catch (const UnitError&) {
+      axis.numbers.push_back(nan);  // the run itself reports the bad unit
+    }
+  }
+}
+
+//! Check a --vary key against the schema and the base case's segment names.
+void checkKey(const std::string& key, const Case& base) {
+  if (!schemaEntry(key))
+    throw CaseError(fmt::format("--vary {}: no such case key (see cases/REFERENCE.md; segments are addressed by "
+                                "name, e.g. segments.NAME.length)",
+                                key));
+  std::vector<std::string> parts = split(key, '.');
+  if (parts.size() > 1 && parts[0] == "segments") {
+    std::vector<std::string> names;
+    for (const SegmentSpec& s : base.segments) names.push_back(s.name);
+    bool index = std::all_of(parts[1].begin(), parts[1].end(), ::isdigit) && !parts[1].empty() &&
+                 std::stoul(parts[1]) < names.size();
+    if (!index && std::find(names.begin(), names.end(), parts[1]) == names.end())
+      throw CaseError(fmt::format("--vary {}: no segment \"{}\" (segments: {})", key, parts[1], fmt::join(names, ", ")));
+  }
+}
+
+//! Shortest text that reads back to the same double.
+std::string siText(double v) { return fmt::format("{}", v); }
+
+}  // namespace
+
+std::vector<std::string> expandSpec(const std::string& spec, const std::string& what) {
+  auto bad = [&](const std::string& why) {
+    return CaseError(fmt::format("{}: \"{}\": {}; a SPEC is START:END:COUNT (\"2 cm:12 cm:11\"), "
+                                 "log:START:END:COUNT (\"log:1 mL/min:100 mL/min:5\") or a list (\"20degC,40degC\")",
+                                 what, spec, why));
+  };
+  if (spec.find(':') == std::string::npos) {
+    std::vector<std::string> values = split(spec, ',');
+    for (const std::string& v : values)
+      if (v.empty()) throw bad("an empty value in the list");
+    if (values.empty()) throw bad("no values");
+    return values;
+  }
+  std::vector<std::string> parts = split(spec, ':');
+  const bool geometric = !parts.empty() && parts[0] == "log";
+  if (geometric) parts.erase(parts.begin());
+  if (parts.size() != 3) throw bad("a range has a start, an end and a count");
+  long count = 0;
+  try {
+    std::size_t used = 0;
+    count = std::stol(parts[2], &used);
+    if (used != parts[2].size()) throw std::invalid_argument("count");
+  } catch (const std::logic_error&) {
+    throw bad(fmt::format("the count \"{}\" is not a whole number", parts[2]));
+  }
+  if (count < 1 || static_cast<std::size_t>(count) > maxRuns) throw bad("the count must be at least 1");
+  ValueWithUnit start, end;
+  try {
+    start = splitValueUnit(parts[0]);
+    end = splitValueUnit(parts[1]);
+  } catch (const UnitError& e) {
+    throw bad(e.what());
+  }
+  double last = end.value;
+  if (end.unit != start.unit) {
+    if (end.unit.empty() || start.unit.empty()) throw bad("give both ends with units, or both without");
+    try {
+      last = convertUnit(end.value, end.unit, start.unit);
+    } catch (const UnitError& e) {
+      throw bad(e.what());
+    }
+  }
+  if (geometric && !(start.value > 0.0 && last > 0.0)) throw bad("a log range needs positive ends");
+  const std::string unit = start.unit.empty() ? "" : " " + start.unit;
+  std::vector<std::string> values;
+  for (long i = 0; i < count; ++i) {
+    if (i == 0) {
+      values.push_back(parts[0]);
+      continue;
+    }
+    if (i == count - 1 && end.unit == start.unit) {
+      values.push_back(parts[1]);
+      continue;
+    }
+    const double fraction = static_cast<double>(i) / static_cast<double>(count - 1);
+    const double v = geometric ? start.value * std::pow(last / start.value, fraction)
+                               : start.value + (last - start.value) * fraction;
+    values.push_back(fmt::format("{:.12g}{}", v, unit));
+  }
+  return values;
+}
+
+std::vector<std::string> scaleOverrides(const Case& c, const std::string& target, double factor) {
+  std::vector<std::string> out;
+  const double f = factor;
+  bool found = false;
+  for (const SegmentSpec& s : c.segments) {
+    if (target != "body" && s.name != target) continue;
+    found = true;
+    const std::string p = "segments." + s.name + ".";
+    if (s.shape != Shape::Sphere) out.push_back(p + "length=" + siText(f * s.length));
+    for (std::size_t i = 0; i < s.layers.size(); ++i)
+      out.push_back(fmt::format("{}layers.{}.thickness={}", p, i, siText(f * s.layers[i].thickness)));
+    // The overall size, consistent with the scaled layers (it may also be given in the case file).
+    const double outer = f * s.tissueRadius();
+    switch (s.shape) {
+      case Shape::Sphere:
+      case Shape::Cylinder: out.push_back(p + "radius=" + siText(outer)); break;
+      case Shape::Cone:
+        out.push_back(p + "radius_proximal=" + siText(outer));
+        out.push_back(p + "radius_distal=" + siText(f * s.radiusDistal));
+        break;
+      case Shape::Plate:
+        out.push_back(p + "thickness=" + siText(2.0 * outer));
+        out.push_back(p + "width=" + siText(f * s.width));
+        break;
+    }
+    if (s.coat) out.push_back(p + "coat.thickness=" + siText(f * s.coat->thickness));
+  }
+  if (target == "body") {
+    // Mass and blood volume follow the volume when the case gives them; rates (cardiac output, basal power,
+    // vessel conductances and shunt flows) are physiology, not geometry, and stay as given.
+    if (c.body.mass) out.push_back("body.mass=" + siText(f * f * f * *c.body.mass));
+    if (c.body.bloodVolume) out.push_back("body.blood_volume=" + siText(f * f * f * *c.body.bloodVolume));
+  } else if (!found) {
+    std::vector<std::string> names;
+    for (const SegmentSpec& s : c.segments) names.push_back(s.name);
+    throw CaseError(fmt::format("--scale {}: no segment \"{}\" (segments: {}; or \"body\" for the whole body)", target,
+                                target, fmt::join(names, ", ")));
+  }
+  return out;
+}
+
+std::vector<std::size_t> SweepPlan::valueIndices(std::size_t run) const {
+  std::vector<std::size_t> v(axes.size(), run);
+  if (zip) return v;
+  for (std::size_t a = axes.size(); a-- > 0;) {
+    v[a] = run % shape[a];
+    run /= shape[a];
+  }
+  return v;
+}
+
+std::vector<std::string> SweepPlan::keyOverrides(std::size_t run) const {
+  std::vector<std::string> out = overrides;
+  std::vector<std::size_t> v = valueIndices(run);
+  for (std::size_t a = 0; a < axes.size(); ++a)
+    if (!axes[a].scale) out.push_back(axes[a].key + "=" + axes[a].texts[v[a]]);
+  return out;
+}
+
+std::vector<std::string> runOverrides(const SweepPlan& plan, std::size_t run) {
+  std::vector<std::string> out = plan.keyOverrides(run);
+  bool anyScale = std::any_of(plan.axes.begin(), plan.axes.end(), [](const SweepAxis& a) { return a.scale; });
+  if (!anyScale) return out;
+  // Size series act on the case as varied: each segment's factor is the product of the factors that reach it.
+  const Case varied = loadCaseFromString(plan.caseText, plan.casePath, out);
+  std::vector<std::size_t> v = plan.valueIndices(run);
+  double bodyFactor = 1.0;
+  std::vector<std::pair<std::string, double>> segmentFactors;
+  for (std::size_t a = 0; a < plan.axes.size(); ++a) {
+    if (!plan.axes[a].scale) continue;
+    const double f = plan.axes[a].numbers[v[a]];
+    if (plan.axes[a].target == "body") bodyFactor *= f;
+    else segmentFactors.emplace_back(plan.axes[a].target, f);
+  }
+  for (const SegmentSpec& s : varied.segments) {
+    double f = bodyFactor;
+    for (const auto& [name, factor] : segmentFactors)
+      if (name == s.name) f *= factor;
+    if (f != 1.0) for (std::string& o : scaleOverrides(varied, s.name, f)) out.push_back(std::move(o));
+  }
+  if (bodyFactor != 1.0) {
+    Case massOnly = varied;
+    massOnly.segments.clear();
+    for (std::string& o : scaleOverrides(massOnly, "body", bodyFactor)) out.push_back(std::move(o));
+  }
+  return out;
+}
+
+SweepPlan makeSweepPlan(const SweepOptions& options) {
+  SweepPlan plan;
+  plan.casePath = options.casePath;
+  std::ifstream in(options.casePath, std::ios::binary);
+  if (!in) throw CaseError(fmt::format("{}: cannot open the case file (does it exist?)", options.casePath));
+  std::stringstream buffer;
+  buffer << in.rdbuf();
+  plan.caseText = buffer.str();
+  plan.overrides = options.overrides;
+  plan.zip = options.zip;
+  plan.steady = options.steady;
+
+  const Case base = loadCaseFromString(plan.caseText, plan.casePath, plan.overrides);
+  plan.title = base.title;
+  plan.resolvedCase = resolvedCaseToml(base);
+
+  for (const std::string& v : options.vary) {
+    auto [key, spec] = keyValue(v, "--vary", "\"segments.NAME.length=2 cm:12 cm:11\"");
+    checkKey(key, base);
+    for (const SweepAxis& a : plan.axes)
+      if (a.key == key) throw CaseError(fmt::format("--vary {}: the key is varied twice", key));
+    SweepAxis axis;
+    axis.key = key;
+    axis.spec = spec;
+    axis.texts = expandSpec(spec, "--vary " + key);
+    fillNumbers(axis);
+    plan.axes.push_back(std::move(axis));
+  }
+  for (const std::string& s : options.scale) {
+    auto [target, spec] = keyValue(s, "--scale", "\"body=0.5:2:7\"");
+    SweepAxis axis;
+    axis.key = "scale." + target;
+    axis.scale = true;
+    axis.target = target;
+    axis.spec = spec;
+    for (const SweepAxis& a : plan.axes)
+      if (a.key == axis.key) throw CaseError(fmt::format("--scale {}: scaled twice", target));
+    if (target != "body") (void)scaleOverrides(base, target, 1.0);  // names the segments when unknown
+    axis.texts = expandSpec(spec, "--scale " + target);
+    for (const std::string& t : axis.texts) {
+      ValueWithUnit f;
+      try {
+        f = splitValueUnit(t);
+      } catch (const UnitError& e) {
+        throw CaseError(fmt::format("--scale {}: factor \"{}\": {}", target, t, e.what()));
+      }
+      if (!f.unit.empty() || !(f.value > 0.0))
+        throw CaseError(fmt::format("--scale {}: factor \"{}\" must be a positive number without a unit", target, t));
+      axis.numbers.push_back(f.value);
+    }
+    axis.units = "1";
+    plan.axes.push_back(std::move(axis));
+  }
+  if (plan.axes.empty()) throw CaseError("sweep: give at least one --vary KEY=SPEC or --scale SEGMENT=SPEC");
+
+  plan.runs = 1;
+  if (plan.zip) {
+    for (const SweepAxis& a : plan.axes)
+      if (a.texts.size() != plan.axes.front().texts.size())
+        throw CaseError(fmt::format("--zip: every axis needs the same number of values ({} has {}, {} has {})",
+                                    plan.axes.front().key, plan.axes.front().texts.size(), a.key, a.texts.size()));
+    plan.shape = {plan.axes.front().texts.size()};
+    plan.runs = plan.shape.front();
+  } else {
+    for (const SweepAxis& a : plan.axes) {
+      plan.shape.push_back(a.texts.size());
+      if (plan.runs > maxRuns / a.texts.size())
+        throw CaseError(fmt::format("sweep: more than {} runs; split the sweep", maxRuns));
+      plan.runs *= a.texts.size();
+    }
+  }
+
+  if (!options.window.empty()) {
+    std::vector<std::string> ends = split(options.window, ':');
+    if (ends.size() != 2 || ends[0].empty())
+      throw CaseError(fmt::format("--window {}: expected START:END with units, e.g. \"30 min:1 h\" (END may be empty: "
+                                  "the end of the run)",
+                                  options.window));
+    try {
+      plan.window.start = parseQuantity(ends[0], "s");
+      plan.window.end = ends[1].empty() ? -1.0 : parseQuantity(ends[1], "s");
+    } catch (const UnitError& e) {
+      throw CaseError(fmt::format("--window {}: {}", options.window, e.what()));
+    }
+  }
+
+  // Metric columns from the base body; selectors keep a subset; thresholds are always kept.
+  std::vector<std::string> selectors;
+  for (const std::string& m : options.metrics) {
+    if (m.rfind("time_to:", 0) == 0) plan.thresholds.push_back(parseThreshold(m));
+    else selectors.push_back(trim(m));
+  }
+  Body body(base);
+  MetricCollector check(body, plan.window, plan.thresholds, plan.steady);  // window and thresholds valid
+  std::vector<MetricColumn> all = metricColumns(body, plan.thresholds, plan.steady);
+  std::vector<bool> keep(all.size(), selectors.empty());
+  for (const std::string& sel : selectors) {
+    const std::string below = sel + ".*";
+    bool any = false;
+    for (std::size_t c = 0; c < all.size(); ++c)
+      if (fnmatch(sel.c_str(), all[c].name.c_str(), 0) == 0 || fnmatch(below.c_str(), all[c].name.c_str(), 0) == 0) {
+        keep[c] = true;
+        any = true;
+      }
+    if (!any)
+      throw CaseError(fmt::format("--metric {}: matches no metric; metrics are body.heat_flow.CHANNEL, "
+                                  "body.core_temperature.STAT, body.blood_temperature.STAT, "
+                                  "body.mean_skin_temperature.STAT, segments.NAME.heat_flow.CHANNEL, "
+                                  "segments.NAME.mean_temperature.STAT (STAT: mean, final, min, max; CHANNEL: {}, "
+                                  "storage), a prefix of these or a pattern with *, and time_to:QUANTITY<VALUE",
+                                  sel, fmt::join(body.network().channels, ", ")));
+  }
+  for (std::size_t c = 0; c < all.size(); ++c)
+    if (keep[c] || c >= all.size() - plan.thresholds.size()) plan.columns.push_back(all[c]);
+
+  Fingerprint fp;
+  fp.add(THERMORPH_VERSION);
+  fp.add(plan.caseText);
+  for (const std::string& o : plan.overrides) fp.add(o);
+  for (const SweepAxis& a : plan.axes) {
+    fp.add(a.key);
+    for (const std::string& t : a.texts) fp.add(t);
+  }
+  fp.add(plan.zip ? "zip" : "grid");
+  fp.add(plan.steady ? "steady" : "transient");
+  fp.add(fmt::format("{} {}", plan.window.start, plan.window.end));
+  for (const MetricColumn& c : plan.columns) fp.add(c.name);
+  plan.fingerprint = fp.hash;
+  return plan;
+}
+
+}  // namespace thermorph
