@@ -1,0 +1,285 @@
+// Parameter sweeps: value specs, size series, metrics against single runs written to HDF5, threads, the
+// progress file and failed runs.
+#include <hdf5.h>
+#include <unistd.h>
+
+#include <catch2/catch.hpp>
+#include <cmath>
+#include <filesystem>
+#include <fstream>
+#include <numeric>
+
+#include "models/body.hpp"
+#include "solver/sweep.hpp"
+#include "solver/sweep_output.hpp"
+
+using namespace thermorph;
+
+namespace {
+
+const std::string quadruped = std::string(THERMORPH_SOURCE_DIR) + "/cases/quadruped.toml";
+
+//! A scratch folder removed at the end of the test.
+struct Scratch {
+  std::filesystem::path dir;
+  Scratch() {
+    dir = std::filesystem::temp_directory_path() / ("thermorph-sweep-" + std::to_string(::getpid()) + "-" +
+                                                     std::to_string(reinterpret_cast<std::uintptr_t>(this)));
+    std::filesystem::create_directories(dir);
+  }
+  ~Scratch() { std::filesystem::remove_all(dir); }
+  std::string path(const std::string& name) const { return (dir / name).string(); }
+};
+
+std::vector<double> readSeries(const std::string& file, const std::string& path) {
+  hid_t f = H5Fopen(file.c_str(), H5F_ACC_RDONLY, H5P_DEFAULT);
+  REQUIRE(f >= 0);
+  hid_t d = H5Dopen2(f, path.c_str(), H5P_DEFAULT);
+  REQUIRE(d >= 0);
+  hid_t space = H5Dget_space(d);
+  std::vector<double> out(static_cast<std::size_t>(H5Sget_simple_extent_npoints(space)));
+  H5Dread(d, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, out.data());
+  H5Sclose(space);
+  H5Dclose(d);
+  H5Fclose(f);
+  return out;
+}
+
+double column(const SweepPlan& plan, const RunRow& row, const std::string& name) {
+  for (std::size_t c = 0; c < plan.columns.size(); ++c)
+    if (plan.columns[c].name == name) return row.metrics[c];
+  FAIL("no metric column " << name);
+  return 0.0;
+}
+
+std::vector<RunRow> runAll(const SweepPlan& plan, int jobs) {
+  std::vector<std::size_t> todo(plan.runs);
+  std::iota(todo.begin(), todo.end(), std::size_t{0});
+  std::vector<RunRow> rows(plan.runs);
+  std::atomic<bool> stop{false};
+  runLocal(plan, todo, jobs, stop, [&](RunRow&& r) { rows[r.index] = std::move(r); }, [] {});
+  return rows;
+}
+
+}  // namespace
+
+TEST_CASE("sweep specs: linear, geometric and list values", "[sweep]") {
+  // Evenly spaced and geometric sequences with both ends included, as numpy.linspace / numpy.logspace define
+  // them (common practice, no source).
+  std::vector<std::string> linear = expandSpec("2 cm:12 cm:11", "test");
+  REQUIRE(linear.size() == 11);
+  CHECK(linear.front() == "2 cm");
+  CHECK(linear[1] == "3 cm");
+  CHECK(linear[5] == "7 cm");
+  CHECK(linear.back() == "12 cm");
+  std::vector<std::string> geometric = expandSpec("log:1 mL/min:100 mL/min:5", "test");
+  REQUIRE(geometric.size() == 5);
+  CHECK(geometric[1] == "3.16227766017 mL/min");  // 10^0.5
+  CHECK(geometric[2] == "10 mL/min");
+  CHECK(geometric.back() == "100 mL/min");
+  // Ends in different but convertible units: the values are in the start's unit.
+  std::vector<std::string> mixed = expandSpec("20 mm:4 cm:3", "test");
+  CHECK(mixed[1] == "30 mm");
+  CHECK(mixed[2] == "40 mm");
+  std::vector<std::string> list = expandSpec("20degC, 40degC", "test");
+  REQUIRE(list.size() == 2);
+  CHECK(list[1] == "40degC");
+  CHECK_THROWS_WITH(expandSpec("2 cm:12 cm", "--vary x"), Catch::Contains("a range has a start, an end and a count"));
+  CHECK_THROWS_WITH(expandSpec("2 cm:12 kg:3", "--vary x"), Catch::Contains("not convertible"));
+  CHECK_THROWS_WITH(expandSpec("log:0 cm:1 cm:3", "--vary x"), Catch::Contains("positive ends"));
+  CHECK_THROWS_WITH(expandSpec("1 cm:2 cm:two", "--vary x"), Catch::Contains("not a whole number"));
+}
+
+TEST_CASE("sweep plan: grid order, zip, bad keys", "[sweep]") {
+  SweepOptions o;
+  o.casePath = quadruped;
+  o.vary = {"segments.ears.length=4 cm:8 cm:3", "environment.temperature=20degC,40degC"};
+  SweepPlan grid = makeSweepPlan(o);
+  CHECK(grid.runs == 6);
+  CHECK(grid.axes[1].units == "degC");
+  CHECK(grid.axes[1].numbers[1] == 40.0);
+  // The last axis varies fastest.
+  CHECK(grid.keyOverrides(3) == std::vector<std::string>{"segments.ears.length=6 cm", "environment.temperature=40degC"});
+  o.zip = true;
+  CHECK_THROWS_WITH(makeSweepPlan(o), Catch::Contains("same number of values"));
+  o.vary[1] = "environment.temperature=10degC:30degC:3";
+  CHECK(makeSweepPlan(o).runs == 3);
+  o.zip = false;
+  o.vary = {"segments.ear.length=4 cm:8 cm:3"};
+  CHECK_THROWS_WITH(makeSweepPlan(o), Catch::Contains("no segment \"ear\"") && Catch::Contains("ears"));
+  o.vary = {"environment.temprature=1 K:2 K:2"};
+  CHECK_THROWS_WITH(makeSweepPlan(o), Catch::Contains("no such case key"));
+  o.vary = {"environment.temperature=20degC"};
+  o.metrics = {"body.heat_flow.wind"};
+  CHECK_THROWS_WITH(makeSweepPlan(o), Catch::Contains("matches no metric"));
+}
+
+TEST_CASE("sweep: metrics reproduce single runs bit for bit", "[sweep]") {
+  Scratch scratch;
+  SweepOptions o;
+  o.casePath = quadruped;
+  o.vary = {"segments.ears.length=3 cm,7.5 cm,12 cm"};
+  o.metrics = {"time_to:body.core_temperature>37.5degC"};
+  const SweepPlan plan = makeSweepPlan(o);
+  const std::vector<RunRow> rows = runAll(plan, 2);
+  const char* lengths[] = {"3 cm", "7.5 cm", "12 cm"};
+  for (std::size_t r = 0; r < plan.runs; ++r) {
+    INFO("run " << r);
+    REQUIRE(rows[r].status == RunStatus::Ok);
+    // The same case with the same override, run alone and written to a results file by the recorder.
+    Body body(loadCase(quadruped, {std::string("segments.ears.length=") + lengths[r]}));
+    RunOptions options;
+    options.output = scratch.path("single.h5");
+    options.quiet = true;
+    RunSummary summary = runTransient(body, options);
+    REQUIRE(summary.complete);
+    const std::string h5 = options.output;
+    const std::vector<double> time = readSeries(h5, "/time");
+    const double span = time.back() - time.front();
+    for (const char* q : {"core_temperature", "blood_temperature", "mean_skin_temperature"}) {
+      const std::vector<double> series = readSeries(h5, std::string("/body/") + q);
+      const std::string name = std::string("body.") + q;
+      CHECK(column(plan, rows[r], name + ".final") == series.back());
+      CHECK(column(plan, rows[r], name + ".min") == *std::min_element(series.begin(), series.end()));
+      CHECK(column(plan, rows[r], name + ".max") == *std::max_element(series.begin(), series.end()));
+    }
+    for (const char* ch : {"metabolism", "convection", "radiation"}) {
+      // Mean over the run from the cumulative channel energy the integrator carries.
+      const std::vector<double> energy = readSeries(h5, std::string("/body/cumulative_heat/") + ch);
+      CHECK(column(plan, rows[r], std::string("body.heat_flow.") + ch) == (energy.back() - energy.front()) / span);
+    }
+    // A segment's mean by the trapezoid rule over the stored outputs.
+    const std::vector<double> ear = readSeries(h5, "/segments/ears/heat_flow/convection");
+    double integral = 0.0;
+    for (std::size_t k = 1; k < time.size(); ++k) integral += (time[k] - time[k - 1]) * (ear[k - 1] + ear[k]) / 2.0;
+    CHECK(column(plan, rows[r], "segments.ears.heat_flow.convection") == integral / span);
+    // Threshold time: linear interpolation of the stored core temperature between outputs.
+    const std::vector<double> core = readSeries(h5, "/body/core_temperature");
+    double crossing = std::nan("");
+    for (std::size_t k = 1; k < core.size() && std::isnan(crossing); ++k)
+      if (core[k] > 37.5 && core[k - 1] <= 37.5)
+        crossing = time[k - 1] + (37.5 - core[k - 1]) / (core[k] - core[k - 1]) * (time[k] - time[k - 1]);
+    REQUIRE(!std::isnan(crossing));
+    CHECK(column(plan, rows[r], "time_to.body.core_temperature>37.5degC") == Approx(crossing).epsilon(1e-12));
+    // The tissue mean of a segment from the stored field (degC there, so equal to round-off only).
+    const std::vector<double> field = readSeries(h5, "/segments/ears/temperature");
+    const std::vector<double> volume = readSeries(h5, "/segments/ears/volume");
+    const SegmentMesh& m = body.segments().back();
+    const std::size_t cells = volume.size(), last = field.size() - cells;
+    double sum = 0.0, v = 0.0;
+    for (int iz = 0; iz < m.nz; ++iz)
+      for (int ir = 0; ir <= m.skinCell; ++ir) {
+        std::size_t i = static_cast<std::size_t>(iz * m.nr + ir);
+        sum += volume[i] * field[last + i];
+        v += volume[i];
+      }
+    CHECK(column(plan, rows[r], "segments.ears.mean_temperature.final") == Approx(sum / v).epsilon(1e-13));
+  }
+  // First law over the run: the channel means add up to the mean rate of storage (to round-off).
+  double channels = 0.0;
+  for (const MetricColumn& c : plan.columns)
+    if (c.name.rfind("body.heat_flow.", 0) == 0 && c.name != "body.heat_flow.storage")
+      channels += column(plan, rows[0], c.name);
+  CHECK(channels == Approx(column(plan, rows[0], "body.heat_flow.storage")).margin(1e-9));
+}
+
+TEST_CASE("sweep: results identical on one and two threads; a failed run is recorded", "[sweep]") {
+  SweepOptions o;
+  o.casePath = quadruped;
+  o.vary = {"segments.ears.length=-2 cm,4 cm,8 cm", "environment.speed=0 m/s,2 m/s"};
+  o.metrics = {"body.heat_flow", "segments.ears"};
+  const SweepPlan plan = makeSweepPlan(o);
+  const std::vector<RunRow> one = runAll(plan, 1), two = runAll(plan, 2);
+  for (std::size_t r = 0; r < plan.runs; ++r) {
+    INFO("run " << r);
+    CHECK(one[r].status == two[r].status);
+    CHECK(one[r].error == two[r].error);
+    for (std::size_t c = 0; c < plan.columns.size(); ++c)
+      if (!std::isnan(one[r].metrics[c])) CHECK(one[r].metrics[c] == two[r].metrics[c]);
+  }
+  // A negative length inside the grid: both of its runs fail with the loader's message, the others complete.
+  for (std::size_t r : {0u, 1u}) {
+    CHECK(one[r].status == RunStatus::Failed);
+    CHECK_THAT(one[r].error, Catch::Contains("segments.ears.length") && Catch::Contains("out of range"));
+  }
+  for (std::size_t r = 2; r < plan.runs; ++r) CHECK(one[r].status == RunStatus::Ok);
+}
+
+TEST_CASE("sweep: size series scale area with the square and volume with the cube", "[sweep]") {
+  // Geometric similarity: areas scale with f^2 and volumes with f^3 (the square-cube law; common practice,
+  // no source). Exposed areas of attached segments scale too, because the covered sections do.
+  const Case base = loadCase(quadruped);
+  const Body reference(base);
+  auto totals = [](const Body& b) {
+    double area = 0.0, volume = 0.0;
+    for (const SegmentMesh& m : b.segments()) {
+      area += m.weight * m.area;
+      volume += m.weight * m.tissueVolume;
+    }
+    return std::pair{area, volume};
+  };
+  const auto [area0, volume0] = totals(reference);
+  for (double f : {0.5, 1.7, 3.0}) {
+    INFO("factor " << f);
+    const Body scaled(loadCase(quadruped, scaleOverrides(base, "body", f)));
+    const auto [area, volume] = totals(scaled);
+    CHECK(area / area0 == Approx(f * f).epsilon(1e-12));
+    CHECK(volume / volume0 == Approx(f * f * f).epsilon(1e-12));
+  }
+  // One segment: the ears alone change; the body's other volumes stay.
+  const Body ears(loadCase(quadruped, scaleOverrides(base, "ears", 2.0)));
+  for (std::size_t g = 0; g < ears.segments().size(); ++g) {
+    const SegmentMesh &a = reference.segments()[g], &b = ears.segments()[g];
+    if (a.name == "ears") {
+      CHECK(b.area / a.area == Approx(4.0).epsilon(1e-12));
+      CHECK(b.tissueVolume / a.tissueVolume == Approx(8.0).epsilon(1e-12));
+    } else {
+      CHECK(b.tissueVolume == a.tissueVolume);
+    }
+  }
+  CHECK_THROWS_WITH(scaleOverrides(base, "ear", 2.0), Catch::Contains("no segment \"ear\""));
+}
+
+TEST_CASE("sweep progress file: exact round trip, cut-short line ignored, other sweep refused", "[sweep]") {
+  Scratch scratch;
+  SweepOptions o;
+  o.casePath = quadruped;
+  o.vary = {"environment.temperature=10degC,20degC,30degC"};
+  o.metrics = {"body.core_temperature"};
+  const SweepPlan plan = makeSweepPlan(o);
+  const std::string path = scratch.path("t.progress");
+  RunRow a;
+  a.index = 2;
+  a.status = RunStatus::Ok;
+  a.metrics = {0.1, 1.0 / 3.0, -2.5e-300, std::nan("")};
+  a.overrides = "environment.temperature=30degC";
+  a.steps = 42;
+  RunRow b;
+  b.index = 0;
+  b.status = RunStatus::Failed;
+  b.metrics.assign(4, std::nan(""));
+  b.error = "file:1:2: a message\twith a tab\nand a newline \\ and a backslash";
+  {
+    SweepJournal journal(path, plan, false);
+    journal.append(a);
+    journal.append(b);
+  }
+  CHECK_THROWS_WITH(SweepJournal(path, plan, false), Catch::Contains("--resume"));
+  {
+    std::ofstream cut(path, std::ios::app);
+    cut << "1\tok\t0.1\t0.2";  // a kill in the middle of a line
+  }
+  SweepJournal again(path, plan, true);
+  REQUIRE(again.earlierRows().size() == 2);
+  const RunRow& b2 = again.earlierRows()[0];
+  const RunRow& a2 = again.earlierRows()[1];
+  CHECK(b2.error == b.error);
+  CHECK(a2.index == 2);
+  CHECK(a2.steps == 42);
+  CHECK(a2.metrics[1] == 1.0 / 3.0);
+  CHECK(a2.metrics[2] == -2.5e-300);
+  CHECK(std::isnan(a2.metrics[3]));
+  SweepOptions other = o;
+  other.vary = {"environment.temperature=10degC,20degC,31degC"};
+  CHECK_THROWS_WITH(SweepJournal(path, makeSweepPlan(other), true), Catch::Contains("different sweep"));
+}
