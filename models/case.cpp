@@ -291,7 +291,7 @@ void readControl(const TableView& top, Case& c) {
 
 toml::table controlToml(const ControlSpec& control) {
   toml::table out;
-  auto common = [&](const char* name, const ControllerSpec& spec) {
+  auto common = [&](const ControllerSpec& spec) {
     toml::table t{{"signal", spec.signal == ControlSignal::Core ? "core" : "mean_skin"},
                   {"set_point", spec.setPoint},
                   {"gain", spec.gain},
@@ -300,19 +300,19 @@ toml::table controlToml(const ControlSpec& control) {
     return t;
   };
   if (control.vasomotor.present) {
-    toml::table t = common("vasomotor", control.vasomotor);
+    toml::table t = common(control.vasomotor);
     t.insert("min", control.vasomotor.lower);
     t.insert("max", control.vasomotor.upper);
     t.insert("shunt_gain", control.vasomotor.shuntGain);
     out.insert("vasomotor", t);
   }
   if (control.shivering.present) {
-    toml::table t = common("shivering", control.shivering);
+    toml::table t = common(control.shivering);
     if (control.shivering.maxPower > 0.0) t.insert("max_power", control.shivering.maxPower);
     out.insert("shivering", t);
   }
   if (control.panting.present) {
-    toml::table t = common("panting", control.panting);
+    toml::table t = common(control.panting);
     t.insert("max", control.panting.upper);
     out.insert("panting", t);
   }

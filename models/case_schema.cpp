@@ -218,6 +218,9 @@ constexpr std::array params = {
     Param{"events[].environment.air_temperature", K::Quantity, "K", "", tMin, tMax, false, "",
           "Medium water only (follows temperature unless ever given)."},
     Param{"events[].environment.air_speed", K::Quantity, "m/s", "", 0, 100, false, "", "Medium water only."},
+    Param{"events[].label", K::Text, "", "", 0, 0, false, "", "Name shown in figures (e.g. \"dive 1\")."},
+    Param{"events[].span", K::Quantity, "s", "", 0, 1e9, false, "",
+          "How long the labelled state lasts, for shading in figures (default: the ramp)."},
     Param{"events[].vasomotor", K::NamedTables, "", "", 0, 0, false, "",
           "Vasomotor targets per segment name, or `all`: `vasomotor = { all = { skin_perfusion = 0.2 }, "
           "ear = { shunt = 1 } }`."},

@@ -304,6 +304,8 @@ void readWeather(const CaseReader& reader, const TableView& environment, Surroun
 
 //! Vasomotor, metabolic, circulatory, respiratory and controller targets of one [[events]] entry.
 void readPhysiologyEvent(const TableView& view, EventSpec& e) {
+  e.label = view.optionalText("label").value_or("");
+  e.span = view.optionalQuantity("span").value_or(e.ramp);
   if (const toml::node* node = view.node("vasomotor")) {
     for (auto&& [name, child] : *node->as_table()) {
       TableView t = view.namedChild("vasomotor", name.str());
@@ -450,6 +452,8 @@ toml::array eventsToml(const std::vector<EventSpec>& events) {
     toml::table environment;
     for (const EnvironmentValue& v : e.environment) environment.insert(info(v.variable).key, v.value);
     toml::table event{{"at", e.at}, {"ramp", e.ramp}};
+    if (!e.label.empty()) event.insert("label", e.label);
+    if (e.span != e.ramp) event.insert("span", e.span);
     if (!environment.empty()) event.insert("environment", environment);
     toml::table vasomotor;
     for (const VasomotorTarget& v : e.vasomotor) {

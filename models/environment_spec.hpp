@@ -111,6 +111,8 @@ struct EventSpec {
   std::vector<VasomotorTarget> vasomotor;
   std::optional<double> activity, hypometabolism, bradycardia, panting;
   std::vector<ControlTarget> control;
+  std::string label;   //!< for figures
+  double span = 0.0;   //!< shaded duration in figures [s] (0: the ramp)
 };
 
 }  // namespace thermorph

@@ -116,6 +116,25 @@ void ResultsFile::writeIntArray(const std::string& path, std::span<const int> va
   H5Gclose(group);
 }
 
+void ResultsFile::writeStringArray(const std::string& path, const std::vector<std::string>& values) {
+  auto [parent, name] = splitPath(path);
+  hid_t group = ensureGroup(parent);
+  hid_t type = H5Tcopy(H5T_C_S1);
+  H5Tset_size(type, H5T_VARIABLE);
+  H5Tset_cset(type, H5T_CSET_UTF8);
+  hsize_t n = values.size();
+  hid_t space = H5Screate_simple(1, &n, nullptr);
+  std::vector<const char*> pointers;
+  for (const std::string& v : values) pointers.push_back(v.c_str());
+  hid_t ds = H5Dcreate2(group, name.c_str(), type, space, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+  checkH5(ds, "create " + path);
+  H5Dwrite(ds, type, H5S_ALL, H5S_ALL, H5P_DEFAULT, pointers.data());
+  H5Dclose(ds);
+  H5Sclose(space);
+  H5Tclose(type);
+  H5Gclose(group);
+}
+
 void ResultsFile::writeStringArrayAttribute(const std::string& object, const std::string& name,
                                             const std::vector<std::string>& values) {
   hid_t obj = H5Oopen(file_, object.c_str(), H5P_DEFAULT);

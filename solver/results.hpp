@@ -21,6 +21,7 @@ class ResultsFile {
   void writeArray(const std::string& path, std::span<const double> values, const std::vector<std::uint64_t>& shape,
                   const std::string& units);
   void writeIntArray(const std::string& path, std::span<const int> values, const std::string& units);
+  void writeStringArray(const std::string& path, const std::vector<std::string>& values);
   void writeStringArrayAttribute(const std::string& object, const std::string& name,
                                  const std::vector<std::string>& values);
 

@@ -26,6 +26,21 @@ std::string nowIso() {
   return buffer;
 }
 
+//! /events: start, end [s] and label of every event, for shading in figures.
+void writeEvents(ResultsFile& f, const Case& c) {
+  if (c.events.empty()) return;
+  std::vector<double> start, end;
+  std::vector<std::string> labels;
+  for (const EventSpec& e : c.events) {
+    start.push_back(e.at);
+    end.push_back(std::min(e.at + e.span, c.run.duration));
+    labels.push_back(e.label.empty() ? fmt::format("event at {:g} s", e.at) : e.label);
+  }
+  f.writeArray("/events/start", start, {start.size()}, "s");
+  f.writeArray("/events/end", end, {end.size()}, "s");
+  f.writeStringArray("/events/label", labels);
+}
+
 //! Writes outputs as they come: one time point per call.
 class Recorder {
  public:
@@ -62,6 +77,7 @@ class Recorder {
     f.setAttribute("/body", "blood_flow", body.totalBloodFlow());
     f.setAttribute("/body", "cardiac_output", body.cardiacOutput());
     f.setAttribute("/body", "basal_metabolic_rate", body.basalMetabolicRate());
+    writeEvents(f, body.spec());
     for (const EnvironmentSeries& e : body.environment().series())
       environment_.push_back(f.createSeries("/environment/" + e.name, {}, e.units));
     for (const SegmentMesh& m : body.segments()) {
