@@ -43,6 +43,8 @@ struct SolverStatistics {
   long steps = 0, rhsEvaluations = 0, jacobianEvaluations = 0, nonlinearIterations = 0, errorTestFailures = 0,
        nonlinearFailures = 0, linearSetups = 0;
   double wallSeconds = 0.0;
+  long jacobianNonzeros = 0;  //!< stored entries of the sparse Jacobian
+  long factorNonzeros = 0;    //!< entries of KLU's L + U (fill), 0 for the dense solver
 };
 
 namespace detail {

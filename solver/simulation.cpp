@@ -175,6 +175,9 @@ class Recorder {
     f.setAttribute("/solver", "nonlinear_iterations", s.nonlinearIterations);
     f.setAttribute("/solver", "error_test_failures", s.errorTestFailures);
     f.setAttribute("/solver", "wall_seconds", s.wallSeconds);
+    f.setAttribute("/solver", "state_size", static_cast<long>(system_.size()));
+    f.setAttribute("/solver", "jacobian_nonzeros", s.jacobianNonzeros);
+    f.setAttribute("/solver", "factor_nonzeros", s.factorNonzeros);
     f.setAttribute("/", "complete", summary.complete ? 1L : 0L);
     if (!summary.complete) f.setAttribute("/", "failure", summary.failure);
     std::filesystem::path out(f.temporaryPath());
@@ -377,9 +380,13 @@ void printBudget(const Body& body, const RunSummary& s, std::FILE* out) {
   const SolverStatistics& st = s.statistics;
   fmt::print(out,
              "Solver: {} steps, {} rhs evaluations, {} Jacobians, {} Newton iterations, {} error-test failures, "
-             "{:.3f} s wall\n",
+             "{:.3f} s wall",
              st.steps, st.rhsEvaluations, st.jacobianEvaluations, st.nonlinearIterations, st.errorTestFailures,
              st.wallSeconds);
+  if (st.factorNonzeros > 0)
+    fmt::print(out, "; {} nodes, Jacobian {} nonzeros, KLU L+U {}", n.nodes.size(), st.jacobianNonzeros,
+               st.factorNonzeros);
+  fmt::print(out, "\n");
 }
 
 }  // namespace thermorph
