@@ -5,6 +5,7 @@
 #include <cmath>
 #include <filesystem>
 #include <fstream>
+#include <functional>
 #include <limits>
 #include <sstream>
 
@@ -127,21 +128,9 @@ void checkKey(const std::string& key, const Case& base) {
 //! Shortest text that reads back to the same double.
 std::string siText(double v) { return fmt::format("{}", v); }
 
-}  // namespace
-
-std::vector<std::string> expandSpec(const std::string& spec, const std::string& what) {
-  auto bad = [&](const std::string& why) {
-    return CaseError(fmt::format("{}: \"{}\": {}; a SPEC is START:END:COUNT (\"2 cm:12 cm:11\"), "
-                                 "log:START:END:COUNT (\"log:1 mL/min:100 mL/min:5\") or a list (\"20degC,40degC\")",
-                                 what, spec, why));
-  };
-  if (spec.find(':') == std::string::npos) {
-    std::vector<std::string> values = split(spec, ',');
-    for (const std::string& v : values)
-      if (v.empty()) throw bad("an empty value in the list");
-    if (values.empty()) throw bad("no values");
-    return values;
-  }
+//! Values of one range START:END:COUNT or log:START:END:COUNT; `bad` makes the error.
+std::vector<std::string> expandRange(const std::string& spec,
+                                     const std::function<CaseError(const std::string&)>& bad) {
   std::vector<std::string> parts = split(spec, ':');
   const bool geometric = !parts.empty() && parts[0] == "log";
   if (geometric) parts.erase(parts.begin());
@@ -162,6 +151,9 @@ std::vector<std::string> expandSpec(const std::string& spec, const std::string& 
   } catch (const UnitError& e) {
     throw bad(e.what());
   }
+  for (const ValueWithUnit* v : {&start, &end})
+    if (!v->unit.empty() && !unitConvertible(v->unit, v->unit))
+      throw bad(fmt::format("\"{}\" is not a unit udunits2 understands", v->unit));
   double last = end.value;
   if (end.unit != start.unit) {
     if (end.unit.empty() || start.unit.empty()) throw bad("give both ends with units, or both without");
@@ -190,6 +182,30 @@ std::vector<std::string> expandSpec(const std::string& spec, const std::string& 
   }
   return values;
 }
+
+}  // namespace
+
+std::vector<std::string> expandSpec(const std::string& spec, const std::string& what) {
+  auto bad = [&](const std::string& why) {
+    return CaseError(fmt::format("{}: \"{}\": {}; a SPEC is START:END:COUNT (\"2 cm:12 cm:11\"), "
+                                 "log:START:END:COUNT (\"log:1 mL/min:100 mL/min:5\") or a list (\"20degC,40degC\")",
+                                 what, spec, why));
+  };
+  // A list of values and ranges: "20degC,40degC", "-2 cm,3 cm:12 cm:7".
+  std::vector<std::string> items = split(spec, ',');
+  if (items.empty()) throw bad("no values");
+  std::vector<std::string> values;
+  for (const std::string& item : items) {
+    if (item.empty()) throw bad("an empty value in the list");
+    if (item.find(':') == std::string::npos) {
+      values.push_back(item);
+      continue;
+    }
+    for (std::string& v : expandRange(item, bad)) values.push_back(std::move(v));
+  }
+  return values;
+}
+
 
 std::vector<std::string> scaleOverrides(const Case& c, const std::string& target, double factor) {
   std::vector<std::string> out;
