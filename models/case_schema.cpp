@@ -161,7 +161,8 @@ constexpr std::array params = {
 
     Param{"environment", K::Table, "", "", 0, 0, false, "", "The medium around the animal."},
     Param{"environment.medium", K::Choice, "", "air", 0, 0, false, "air|water|sea_water",
-          "Medium around segments with immersion = \"body\" (sea water: 35 g/kg salinity)."},
+          "Medium around segments with immersion = \"body\" at t = 0 (sea water: 35 g/kg salinity); [[events]] may "
+          "step it."},
     Param{"environment.temperature", K::Quantity, "K", "20 degC", tMin, tMax, false, "", "Medium temperature."},
     Param{"environment.speed", K::Quantity, "m/s", "0 m/s", 0, 100, false, "",
           "Speed of the medium relative to the animal (wind or current); 0: free convection only."},
@@ -184,15 +185,15 @@ constexpr std::array params = {
           "CSV file (relative to the case) of values over time, linearly interpolated between rows: header "
           "`time [h], temperature [degC], speed [m/s], ...` with [[events]] environment keys and optional units."},
     Param{"environment.water_temperature", K::Quantity, "K", "", tMin, tMax, false, "",
-          "Medium air only: water around segments with immersion = \"always\"; default: temperature."},
+          "While the medium is air: water around segments with immersion = \"always\"; default: temperature."},
     Param{"environment.water_speed", K::Quantity, "m/s", "0 m/s", 0, 100, false, "",
-          "Medium air only: speed of that water."},
+          "While the medium is air: speed of that water."},
     Param{"environment.immersion_water", K::Choice, "", "water", 0, 0, false, "water|sea_water",
-          "Medium air only: kind of that water."},
+          "While the medium is air: kind of that water (default: the medium when it is water at t = 0)."},
     Param{"environment.air_temperature", K::Quantity, "K", "", tMin, tMax, false, "",
-          "Medium water only: air around segments with immersion = \"never\"; default: temperature."},
+          "While the medium is water: air around segments with immersion = \"never\"; default: temperature."},
     Param{"environment.air_speed", K::Quantity, "m/s", "0 m/s", 0, 100, false, "",
-          "Medium water only: speed of that air."},
+          "While the medium is water: speed of that air."},
 
     Param{"events", K::TableArray, "", "", 0, 0, false, "",
           "Timeline: `[[events]]` step or ramp environment values; the integrator stops at each `at` and "
@@ -202,6 +203,10 @@ constexpr std::array params = {
           "Duration of a linear ramp from the values at `at` to the targets; 0: a step. Events may not overlap."},
     Param{"events[].environment", K::Table, "", "", 0, 0, false, "",
           "Targets: `environment = { temperature = \"5 degC\", speed = \"3 m/s\" }`; keys as in [environment]."},
+    Param{"events[].environment.medium", K::Choice, "", "", 0, 0, false, "air|water|sea_water",
+          "A step of the medium (never a ramp): convection, radiation, sun, evaporation and immersion follow it; "
+          "the event also gives the new medium's temperature and speed. A coat keeps the conductivity chosen at "
+          "t = 0 (wet if immersed then)."},
     Param{"events[].environment.temperature", K::Quantity, "K", "", tMin, tMax, false, "", "Medium temperature."},
     Param{"events[].environment.speed", K::Quantity, "m/s", "", 0, 100, false, "", "Medium speed."},
     Param{"events[].environment.relative_humidity", K::Quantity, "1", "", 0, 1, false, "", "Relative humidity."},
@@ -213,11 +218,13 @@ constexpr std::array params = {
     Param{"events[].environment.substrate_temperature", K::Quantity, "K", "", tMin, tMax, false, "",
           "Substrate temperature (follows the medium temperature unless ever given)."},
     Param{"events[].environment.water_temperature", K::Quantity, "K", "", tMin, tMax, false, "",
-          "Medium air only (follows temperature unless ever given)."},
-    Param{"events[].environment.water_speed", K::Quantity, "m/s", "", 0, 100, false, "", "Medium air only."},
+          "While the medium is air (follows temperature unless ever given; with a medium alternating between air "
+          "and water, only while it is water)."},
+    Param{"events[].environment.water_speed", K::Quantity, "m/s", "", 0, 100, false, "", "While the medium is air."},
     Param{"events[].environment.air_temperature", K::Quantity, "K", "", tMin, tMax, false, "",
-          "Medium water only (follows temperature unless ever given)."},
-    Param{"events[].environment.air_speed", K::Quantity, "m/s", "", 0, 100, false, "", "Medium water only."},
+          "While the medium is water (follows temperature unless ever given; with a medium alternating between "
+          "air and water, only while it is air)."},
+    Param{"events[].environment.air_speed", K::Quantity, "m/s", "", 0, 100, false, "", "While the medium is water."},
     Param{"events[].label", K::Text, "", "", 0, 0, false, "", "Name shown in figures (e.g. \"dive 1\")."},
     Param{"events[].span", K::Quantity, "s", "", 0, 1e9, false, "",
           "How long the labelled state lasts, for shading in figures (default: the ramp)."},

@@ -60,8 +60,7 @@ EnvironmentModel::EnvironmentModel(const Case& c, Network& network) : case_(c) {
   const EnvironmentSpec& env = case_.environment;
   for (const SegmentSpec& s : case_.segments) {
     SegmentSurface surface;
-    surface.inWater = s.surface.immersion == Immersion::Always ||
-                      (s.surface.immersion == Immersion::Body && env.medium != SurroundingMedium::Air);
+    surface.immersion = s.surface.immersion;
     const ConvectionSetting convection = s.surface.convection.value_or(env.convection);
     surface.fixedConvection = convection.fixed;
     surface.convectionCoefficient = convection.coefficient;
@@ -80,6 +79,7 @@ EnvironmentModel::EnvironmentModel(const Case& c, Network& network) : case_(c) {
   std::sort(breakpoints_.begin(), breakpoints_.end());
   breakpoints_.erase(std::unique(breakpoints_.begin(), breakpoints_.end()), breakpoints_.end());
   setInterval(0);
+  initialMedium_ = medium_;
 }
 
 void EnvironmentModel::addFace(const FaceDescription& face) {
@@ -95,6 +95,7 @@ void EnvironmentModel::setInterval(std::size_t interval) {
   // breakpoints at or before its start, and its ramp is complete likewise for its end (when that is in the run).
   interval_ = interval;
   const EnvironmentSpec& env = case_.environment;
+  medium_ = env.medium;
   for (std::size_t v = 0; v < kEnvironmentVariables; ++v) {
     offset_[v] = env.value(static_cast<V>(v));
     slope_[v] = 0.0;
@@ -106,6 +107,7 @@ void EnvironmentModel::setInterval(std::size_t interval) {
     if (interval < breakpointsUpTo(e.at)) continue;
     const double end = e.at + e.ramp;
     const bool complete = e.ramp == 0.0 || (end < case_.run.duration && interval >= breakpointsUpTo(end));
+    if (e.medium) medium_ = *e.medium;  // always a step (the reader rejects a ramp)
     for (const EnvironmentValue& target : e.environment) {
       const std::size_t v = index(target.variable);
       if (complete) {
@@ -125,17 +127,25 @@ double EnvironmentModel::value(EnvironmentVariable variable, double time) const 
   return offset_[index(variable)] + slope_[index(variable)] * time;
 }
 
-bool EnvironmentModel::immersed(Index segment) const { return surfaces_.at(segment).inWater; }
+bool EnvironmentModel::inWater(Immersion immersion, SurroundingMedium medium) {
+  return immersion == Immersion::Always || (immersion == Immersion::Body && medium != SurroundingMedium::Air);
+}
+
+bool EnvironmentModel::immersed(Index segment) const { return inWater(surfaces_.at(segment).immersion, initialMedium_); }
+
+bool EnvironmentModel::immersed(Index segment, double /*time*/) const {
+  return inWater(surfaces_.at(segment).immersion, medium_);
+}
 
 double EnvironmentModel::emissivity(Index segment) const { return surfaces_.at(segment).emissivity; }
 
 FaceFluid EnvironmentModel::fluid(Index segment, double time) const {
   const EnvironmentSpec& env = case_.environment;
-  const bool mediumIsAir = env.medium == SurroundingMedium::Air;
-  if (surfaces_[segment].inWater) {
+  const bool mediumIsAir = medium_ == SurroundingMedium::Air;
+  if (inWater(surfaces_[segment].immersion, medium_)) {
     if (mediumIsAir)
       return {waterMedium(env.immersionWater), value(V::WaterTemperature, time), value(V::WaterSpeed, time)};
-    return {waterMedium(env.medium), value(V::Temperature, time), value(V::Speed, time)};
+    return {waterMedium(medium_), value(V::Temperature, time), value(V::Speed, time)};
   }
   if (mediumIsAir) return {Medium::Air, value(V::Temperature, time), value(V::Speed, time)};
   return {Medium::Air, value(V::AirTemperature, time), value(V::AirSpeed, time)};
@@ -193,7 +203,7 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
   channelHeat[convectionChannel_] += h * exposed * difference;
   channelDerivative[convectionChannel_] += exposed * (dh * difference - h);
 
-  if (!surface.inWater) {
+  if (!inWater(surface.immersion, medium_)) {
     // Long-wave radiation (Stefan-Boltzmann), the exposed surface seeing sky over sky_view and the
     // surroundings at the mean radiant temperature over the rest. Water is opaque to long-wave radiation.
     if (surface.emissivity > 0.0) {
@@ -258,32 +268,35 @@ constexpr SeriesInfo kSeries[] = {
     {V::SubstrateTemperature, "substrate_temperature", "degC"},
 };
 
-//! The other fluid's values are stored only when some segment is in it.
-bool seriesUsed(const SeriesInfo& s, SurroundingMedium medium, bool anyWater, bool anyAir) {
+//! The other fluid's values are stored only when some segment is in it at some time: water_* when the medium is
+//! ever air and a segment is always in water, air_* when it is ever water and a segment never is.
+bool seriesUsed(const SeriesInfo& s, const EnvironmentSpec& env, bool anyAlways, bool anyNever) {
   const bool water = s.variable == V::WaterTemperature || s.variable == V::WaterSpeed;
   const bool air = s.variable == V::AirTemperature || s.variable == V::AirSpeed;
-  if (water) return medium == SurroundingMedium::Air && anyWater;
-  if (air) return medium != SurroundingMedium::Air && anyAir;
+  if (water) return env.everAir() && anyAlways;
+  if (air) return env.everWater() && anyNever;
   return true;
 }
 
 }  // namespace
 
 std::vector<EnvironmentSeries> EnvironmentModel::series() const {
-  bool anyWater = false, anyAir = false;
-  for (const SegmentSurface& s : surfaces_) (s.inWater ? anyWater : anyAir) = true;
+  bool anyAlways = false, anyNever = false;
+  for (const SegmentSurface& s : surfaces_) {
+    anyAlways = anyAlways || s.immersion == Immersion::Always;
+    anyNever = anyNever || s.immersion == Immersion::Never;
+  }
   std::vector<EnvironmentSeries> out;
   for (const SeriesInfo& s : kSeries)
-    if (seriesUsed(s, case_.environment.medium, anyWater, anyAir)) out.push_back({s.name, s.units});
+    if (seriesUsed(s, case_.environment, anyAlways, anyNever)) out.push_back({s.name, s.units});
   return out;
 }
 
 void EnvironmentModel::seriesValues(double time, std::span<double> values) const {
-  bool anyWater = false, anyAir = false;
-  for (const SegmentSurface& s : surfaces_) (s.inWater ? anyWater : anyAir) = true;
+  const std::vector<EnvironmentSeries> used = series();
   std::size_t k = 0;
   for (const SeriesInfo& s : kSeries) {
-    if (!seriesUsed(s, case_.environment.medium, anyWater, anyAir)) continue;
+    if (k == used.size() || used[k].name != s.name) continue;
     const double v = value(s.variable, time);
     values[k++] = std::string_view(s.units) == "degC" ? v - kZeroCelsius : v;
   }

@@ -67,8 +67,14 @@ class EnvironmentModel : public SurfaceModel {
   //! temperatures (all faces of the network) [W/(m2 K)].
   double meanConvectionCoefficient(Index segment, double time, std::span<const double> faceTemperatures) const;
 
-  //! True when the segment is in water (its coat then conducts at its wet conductivity).
+  //! True when the segment is in water at t = 0 (the medium of the first interval, an event at 0 included).
+  //! The body chooses a coat's wet conductivity from this once; it does not follow later changes of medium.
   bool immersed(Index segment) const;
+  //! True when the segment is in water at time t in the current interval (the medium steps only at
+  //! breakpoints, so it is constant within an interval).
+  bool immersed(Index segment, double time) const;
+  //! The medium around segments with immersion "body" in the current interval.
+  SurroundingMedium medium() const { return medium_; }
   //! The fluid around a segment's faces at time t in the current interval.
   FaceFluid fluid(Index segment, double time) const;
   //! Long-wave emissivity used for a segment, defaults resolved [1].
@@ -81,7 +87,7 @@ class EnvironmentModel : public SurfaceModel {
  private:
   //! A segment's surface with every default resolved.
   struct SegmentSurface {
-    bool inWater = false;
+    Immersion immersion = Immersion::Body;
     bool fixedConvection = false;
     double convectionCoefficient = 0.0;  //!< when fixed [W/(m2 K)]
     double emissivity = 0.0;
@@ -91,6 +97,8 @@ class EnvironmentModel : public SurfaceModel {
   //! Convection coefficient [W/(m2 K)] of a face and its slope with the face temperature [W/(m2 K2)].
   double convectionCoefficient(Index face, double faceTemperature, double time, double* derivative) const;
   void collectWarnings() const;
+  //! Whether a segment with this immersion is in water while the medium is `medium`.
+  static bool inWater(Immersion immersion, SurroundingMedium medium);
 
   const Case& case_;
   std::vector<FaceDescription> faces_;
@@ -99,6 +107,8 @@ class EnvironmentModel : public SurfaceModel {
   Index convectionChannel_ = 0, radiationChannel_ = 0, solarChannel_ = 0, evaporationChannel_ = 0,
         substrateChannel_ = 0;
   std::size_t interval_ = 0;
+  //! Medium of the current interval and of the first one (t = 0).
+  SurroundingMedium medium_ = SurroundingMedium::Air, initialMedium_ = SurroundingMedium::Air;
   //! In the current interval every variable is linear in time: offset + slope t [SI, SI/s].
   std::array<double, kEnvironmentVariables> offset_{}, slope_{};
   mutable std::vector<std::string> warnings_;

@@ -54,27 +54,34 @@ struct FollowRule {
   V follower;
   V leader;
 };
-//! The air temperature is `temperature` in air and `air_temperature` in water.
-std::array<FollowRule, 5> followRules(SurroundingMedium medium) {
-  const V air = medium == SurroundingMedium::Air ? V::Temperature : V::AirTemperature;
-  return {{{V::WaterTemperature, V::Temperature},
-           {V::AirTemperature, V::Temperature},
-           {V::RadiantTemperature, air},
-           {V::SkyTemperature, V::RadiantTemperature},
-           {V::SubstrateTemperature, V::Temperature}}};
+//! Rules while the medium is `medium`. The air temperature is `temperature` in air and `air_temperature` in
+//! water. When the medium alternates between air and water (`alternating`), water_temperature follows
+//! `temperature` only while the medium is water and air_temperature only while it is air, so each keeps the
+//! value of the last interval in its fluid; otherwise both follow `temperature` throughout.
+std::vector<FollowRule> followRules(SurroundingMedium medium, bool alternating) {
+  const bool inAir = medium == SurroundingMedium::Air;
+  std::vector<FollowRule> rules;
+  if (!alternating || !inAir) rules.push_back({V::WaterTemperature, V::Temperature});
+  if (!alternating || inAir) rules.push_back({V::AirTemperature, V::Temperature});
+  rules.push_back({V::RadiantTemperature, inAir ? V::Temperature : V::AirTemperature});
+  rules.push_back({V::SkyTemperature, V::RadiantTemperature});
+  rules.push_back({V::SubstrateTemperature, V::Temperature});
+  return rules;
 }
 
-//! True when `v` belongs to the other medium than `medium` (water_* in water, air_* in air): not a case key.
-bool notApplicable(V v, SurroundingMedium medium) {
-  const bool inAir = medium == SurroundingMedium::Air;
-  return inAir ? (v == V::AirTemperature || v == V::AirSpeed) : (v == V::WaterTemperature || v == V::WaterSpeed);
+//! True when `v` belongs to a fluid the surroundings never are over the run (water_* when the medium is air
+//! throughout, air_* when it is water throughout): not a case key then.
+bool notApplicable(V v, const EnvironmentSpec& media) {
+  if (v == V::AirTemperature || v == V::AirSpeed) return !media.everWater();
+  if (v == V::WaterTemperature || v == V::WaterSpeed) return !media.everAir();
+  return false;
 }
 
-[[noreturn]] void failNotApplicable(const TableView& view, V v, SurroundingMedium medium) {
-  const bool inAir = medium == SurroundingMedium::Air;
+[[noreturn]] void failNotApplicable(const TableView& view, V v, const EnvironmentSpec& media) {
+  const bool inAir = media.medium == SurroundingMedium::Air;
   view.fail(info(v).key,
-            fmt::format("\"{}\" applies only when [environment] medium is {}; here the medium is {}, so use "
-                        "\"{}\"",
+            fmt::format("\"{}\" applies only when the medium is {} during some part of the run; here the medium is "
+                        "{} throughout, so use \"{}\"",
                         info(v).key, inAir ? "water or sea_water" : "air", inAir ? "air" : "water",
                         info(v).key.substr(info(v).key.find('_') + 1)));
 }
@@ -85,6 +92,20 @@ SurroundingMedium mediumOf(const std::string& name) {
 }
 const char* mediumName(SurroundingMedium m) {
   return m == SurroundingMedium::Air ? "air" : m == SurroundingMedium::Water ? "water" : "sea_water";
+}
+
+//! The media the [[events]] switch to, read leniently (an invalid value is reported with its key path by
+//! readEvents): sets eventsAir and eventsWater of `e`.
+void scanEventMedia(const TableView& root, EnvironmentSpec& e) {
+  const toml::node* node = root.node("events");
+  if (!node || !node->is_array()) return;
+  for (const toml::node& element : *node->as_array()) {
+    const toml::table* t = element.as_table();
+    auto name = t ? (*t)["environment"]["medium"].value<std::string>() : std::nullopt;
+    if (!name) continue;
+    if (*name == "air") e.eventsAir = true;
+    if (*name == "water" || *name == "sea_water") e.eventsWater = true;
+  }
 }
 
 //! A convection key: "correlation" or a coefficient (schema kind Quantity).
@@ -112,22 +133,25 @@ EnvironmentSpec readEnvironment(const TableView& root) {
   TableView env = root.child("environment");
   EnvironmentSpec e;
   e.medium = mediumOf(env.choice("medium"));
+  scanEventMedia(root, e);
   e.immersionWater = mediumOf(env.choice("immersion_water"));
-  if (e.medium != SurroundingMedium::Air && env.has("immersion_water"))
-    env.fail("immersion_water", "immersion_water applies only when the medium is air (in water, segments with "
-                                "immersion = \"always\" are in the medium)");
+  if (!e.everAir() && env.has("immersion_water"))
+    env.fail("immersion_water", "immersion_water applies only when the medium is air during some part of the run "
+                                "(in water, segments with immersion = \"always\" are in the medium)");
   if (auto c = readConvection(env)) e.convection = *c;
 
   for (const VariableInfo& v : variables) {
-    if (notApplicable(v.variable, e.medium)) {
-      if (env.has(v.key)) failNotApplicable(env, v.variable, e.medium);
+    if (notApplicable(v.variable, e)) {
+      if (env.has(v.key)) failNotApplicable(env, v.variable, e);
       continue;
     }
     if (auto value = env.optionalQuantity(v.key)) e.value(v.variable) = *value;
   }
-  for (const FollowRule& rule : followRules(e.medium))
+  // At t = 0 every follower not given takes its leader's value (air_temperature and water_temperature:
+  // `temperature`, whatever the medium).
+  for (const FollowRule& rule : followRules(e.medium, false))
     if (!env.has(info(rule.follower).key)) e.value(rule.follower) = e.value(rule.leader);
-  if (e.medium != SurroundingMedium::Air) e.immersionWater = e.medium;
+  if (e.medium != SurroundingMedium::Air && !env.has("immersion_water")) e.immersionWater = e.medium;
 
   e.substrateConductance = env.optionalQuantity("substrate_conductance");
   if (!e.substrateConductance) {
@@ -210,7 +234,7 @@ std::vector<std::string> splitCsv(const std::string& line) {
 //! Rows of environment.weather as events: a step to the first row at its time, then a linear ramp to each next
 //! row; rows after the run are dropped. Header: `time [h], temperature [degC], speed [m/s], ...` (units optional,
 //! SI without).
-void readWeather(const CaseReader& reader, const TableView& environment, SurroundingMedium medium, double duration,
+void readWeather(const CaseReader& reader, const TableView& environment, const EnvironmentSpec& media, double duration,
                  std::vector<EventSpec>& events, std::vector<EventSource>& sources) {
   const std::string name = environment.text("weather");
   const toml::node* node = environment.node("weather");
@@ -248,10 +272,10 @@ void readWeather(const CaseReader& reader, const TableView& environment, Surroun
           if (header != "time") failAt(lineNumber, fmt::format("the first column must be \"time\", not \"{}\"", header));
         } else {
           auto it = std::find_if(variables.begin(), variables.end(), [&](const VariableInfo& v) { return v.key == header; });
-          if (it == variables.end() || notApplicable(it->variable, medium)) {
+          if (it == variables.end() || notApplicable(it->variable, media)) {
             std::vector<std::string> keys;
             for (const VariableInfo& v : variables)
-              if (!notApplicable(v.variable, medium)) keys.emplace_back(v.key);
+              if (!notApplicable(v.variable, media)) keys.emplace_back(v.key);
             failAt(lineNumber, fmt::format("unknown column \"{}\" (columns: time, {})", header, fmt::join(keys, ", ")));
           }
           column.variable = it->variable;
@@ -342,7 +366,9 @@ void readPhysiologyEvent(const TableView& view, EventSpec& e) {
 std::vector<EventSpec> readEvents(const CaseReader& reader, const TableView& root, const toml::table& rootTable,
                                   double duration) {
   TableView base = root.child("environment");
-  const SurroundingMedium medium = mediumOf(base.choice("medium"));
+  EnvironmentSpec media;
+  media.medium = mediumOf(base.choice("medium"));
+  scanEventMedia(root, media);
   std::vector<EventSpec> read;
   std::vector<EventSource> sources;
   if (const toml::node* node = rootTable.get("events"); node && node->is_array()) {
@@ -356,9 +382,22 @@ std::vector<EventSpec> readEvents(const CaseReader& reader, const TableView& roo
         view.fail("at", fmt::format("at = {:g} s is not before the end of the run (run.duration = {:g} s)", e.at,
                                     duration));
       TableView env = view.child("environment");
+      if (env.has("medium")) {
+        e.medium = mediumOf(env.choice("medium"));
+        if (e.ramp > 0.0)
+          env.fail("medium", fmt::format("the medium changes by a step, not over ramp = {:g} s; give the change of "
+                                         "medium an event of its own without a ramp",
+                                         e.ramp));
+        for (std::string_view key : {"temperature", "speed"})
+          if (!env.has(key))
+            env.fail("medium", fmt::format("an event that sets the medium also gives the new medium's {} (it is not "
+                                           "carried over from the previous medium), e.g. environment = {{ medium = "
+                                           "\"{}\", temperature = \"4 degC\", speed = \"1 m/s\" }}",
+                                           key, mediumName(*e.medium)));
+      }
       for (const VariableInfo& v : variables) {
         if (!env.has(v.key)) continue;
-        if (notApplicable(v.variable, medium)) failNotApplicable(env, v.variable, medium);
+        if (notApplicable(v.variable, media)) failNotApplicable(env, v.variable, media);
         e.environment.push_back({v.variable, env.quantity(v.key)});
       }
       readPhysiologyEvent(view, e);
@@ -366,25 +405,28 @@ std::vector<EventSpec> readEvents(const CaseReader& reader, const TableView& roo
       sources.push_back({view.node("at"), view.path("at"), view.display()});
     }
   }
-  if (base.has("weather")) readWeather(reader, base, medium, duration, read, sources);
+  if (base.has("weather")) readWeather(reader, base, media, duration, read, sources);
 
   std::vector<std::size_t> order(read.size());
   for (std::size_t i = 0; i < order.size(); ++i) order[i] = i;
   std::stable_sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) { return read[a].at < read[b].at; });
 
-  // Followers not given in [environment] keep following their leader through the timeline until given.
+  // Followers not given in [environment] keep following their leader through the timeline until given, by the
+  // rules of the medium in effect after each event.
   std::array<bool, kEnvironmentVariables> explicitly{};
   for (const VariableInfo& v : variables) explicitly[static_cast<std::size_t>(v.variable)] = base.has(v.key);
+  SurroundingMedium medium = media.medium;
   for (std::size_t index : order) {
     EventSpec& e = read[index];
+    if (e.medium) medium = *e.medium;
     auto target = [&](V v) -> const double* {
       for (const EnvironmentValue& value : e.environment)
         if (value.variable == v) return &value.value;
       return nullptr;
     };
     for (const EnvironmentValue& value : e.environment) explicitly[static_cast<std::size_t>(value.variable)] = true;
-    for (const FollowRule& rule : followRules(medium)) {
-      if (explicitly[static_cast<std::size_t>(rule.follower)] || notApplicable(rule.follower, medium)) continue;
+    for (const FollowRule& rule : followRules(medium, media.mediumChanges())) {
+      if (explicitly[static_cast<std::size_t>(rule.follower)] || notApplicable(rule.follower, media)) continue;
       if (const double* leader = target(rule.leader)) e.environment.push_back({rule.follower, *leader});
     }
   }
@@ -418,8 +460,8 @@ toml::table environmentToml(const EnvironmentSpec& e) {
   if (e.convection.fixed) t.insert("convection", e.convection.coefficient);
   else t.insert("convection", "correlation");
   for (const VariableInfo& v : variables)
-    if (!notApplicable(v.variable, e.medium)) t.insert(v.key, e.value(v.variable));
-  if (e.medium == SurroundingMedium::Air) t.insert("immersion_water", mediumName(e.immersionWater));
+    if (!notApplicable(v.variable, e)) t.insert(v.key, e.value(v.variable));
+  if (e.everAir()) t.insert("immersion_water", mediumName(e.immersionWater));
   if (e.substrateConductance) t.insert("substrate_conductance", *e.substrateConductance);
   return t;
 }
@@ -450,6 +492,7 @@ toml::array eventsToml(const std::vector<EventSpec>& events) {
   toml::array out;
   for (const EventSpec& e : events) {
     toml::table environment;
+    if (e.medium) environment.insert("medium", mediumName(*e.medium));
     for (const EnvironmentValue& v : e.environment) environment.insert(info(v.variable).key, v.value);
     toml::table event{{"at", e.at}, {"ramp", e.ramp}};
     if (!e.label.empty()) event.insert("label", e.label);

@@ -59,7 +59,9 @@ std::string_view environmentKey(EnvironmentVariable variable);
 
 //! The medium around the animal ([environment]), every default resolved.
 struct EnvironmentSpec {
-  SurroundingMedium medium = SurroundingMedium::Air;
+  SurroundingMedium medium = SurroundingMedium::Air;  //!< at t = 0; [[events]] may step it
+  //! Some [[events]] entry switches the medium to air, or to water or sea water (a diver's timeline).
+  bool eventsAir = false, eventsWater = false;
   //! Kind of the water around segments with immersion "always" when the medium is air.
   SurroundingMedium immersionWater = SurroundingMedium::Water;
   ConvectionSetting convection;                //!< correlations unless fixed
@@ -76,6 +78,12 @@ struct EnvironmentSpec {
   double skyTemperature = 293.15;        //!< [K]
   double solarIrradiance = 0.0;          //!< [W/m2]
   double substrateTemperature = 293.15;  //!< [K]
+
+  //! The surroundings are air (water) during some part of the run: the air_* (water_*) keys may apply.
+  bool everAir() const { return medium == SurroundingMedium::Air || eventsAir; }
+  bool everWater() const { return medium != SurroundingMedium::Air || eventsWater; }
+  //! The medium alternates between air and water over the run.
+  bool mediumChanges() const { return everAir() && everWater(); }
 
   //! Value of one variable at t = 0 [SI].
   double value(EnvironmentVariable v) const;
@@ -108,6 +116,8 @@ struct EventSpec {
   //! Targets, including values that follow another (radiant temperature following the air temperature when
   //! never given explicitly), resolved at load time.
   std::vector<EnvironmentValue> environment;
+  //! A step of the medium (never ramped); the event then also gives the new medium's temperature and speed.
+  std::optional<SurroundingMedium> medium;
   std::vector<VasomotorTarget> vasomotor;
   std::optional<double> activity, hypometabolism, bradycardia, panting;
   std::vector<ControlTarget> control;
