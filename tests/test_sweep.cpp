@@ -184,7 +184,7 @@ TEST_CASE("sweep: metrics reproduce single runs bit for bit", "[sweep]") {
   CHECK(channels == Approx(column(plan, rows[0], "body.heat_flow.storage")).margin(1e-9));
 }
 
-TEST_CASE("sweep: results identical on one and two threads; a failed run is recorded", "[sweep]") {
+TEST_CASE("sweep: results identical on one and two threads, a failed run recorded", "[sweep]") {
   SweepOptions o;
   o.casePath = quadruped;
   o.vary = {"segments.ears.length=-2 cm,4 cm,8 cm", "environment.speed=0 m/s,2 m/s"};
