@@ -22,9 +22,12 @@ from pathlib import Path
 import h5py
 import numpy as np
 
-#: Heat-flow channels in the order the contract lists them (storage last).
-CHANNEL_ORDER = ("metabolism", "blood", "convection", "radiation", "solar",
-                 "evaporation", "respiration", "substrate", "storage")
+#: Heat-flow channels in the order of thermorph's budget table (storage last).
+CHANNEL_ORDER = ("metabolism", "shivering", "blood", "conduction", "convection", "radiation", "solar",
+                 "evaporation", "substrate", "respiration", "storage")
+
+#: Channels that exchange heat with the surroundings (losses here are "heat lost to the environment").
+ENVIRONMENT_CHANNELS = ("convection", "radiation", "solar", "evaporation", "substrate", "respiration")
 
 #: Offset between the Celsius and kelvin scales [K] (SI Brochure, 9th ed., 2019, §2.3.1).
 ZERO_CELSIUS_IN_KELVIN = 273.15
@@ -45,6 +48,11 @@ def _text(value) -> str:
     if isinstance(value, (bytes, np.bytes_)):
         return value.decode("utf-8", errors="replace")
     return str(value)
+
+
+def is_default_event_label(label: str) -> bool:
+    """Whether an event label is the one thermorph writes for an unlabelled event ("event at 3600 s")."""
+    return re.fullmatch(r"event at [-+0-9.eE]+ s", label.strip()) is not None
 
 
 def ordered_channels(names) -> list[str]:
@@ -202,6 +210,23 @@ class Segment:
                 return i
         return None
 
+    @property
+    def count(self) -> int:
+        """How many identical copies of this segment the body has [1] (Results.segment_count).
+
+        /segments/NAME/heat_flow holds one copy; whole-body sums multiply by the count.
+        """
+        return self.results.segment_count(self.name)
+
+    @property
+    def label(self) -> str:
+        """Display name: the segment name, with "×N" when the body has N copies."""
+        return self.name if self.count == 1 else f"{self.name} ×{self.count}"
+
+    def heat_flow(self, channel: str) -> np.ndarray | None:
+        """Heat flow of one copy of the segment by `channel` [W] ([nt]), None when not stored."""
+        return self.read(f"heat_flow/{channel}").values if self.has(f"heat_flow/{channel}") else None
+
     def heat_flow_channels(self) -> list[str]:
         """Heat-flow channels stored for this segment, in contract order."""
         if "heat_flow" not in self.group:
@@ -225,6 +250,12 @@ class Segment:
         w_z = np.diff(faces_from_centres(self.axial)) if nz > 1 else np.ones(1)
         return np.outer(w_z, w_r)
 
+    def tissue_cells(self) -> np.ndarray:
+        """Whether each radial cell is tissue (not coat) [1] ([nr]); all True for a coat-only segment."""
+        coat = self.coat_layer()
+        tissue = self.layer != coat if coat is not None else np.ones(len(self.layer), dtype=bool)
+        return tissue if np.any(tissue) else np.ones(len(self.layer), dtype=bool)
+
     def mean_tissue_temperature(self) -> np.ndarray:
         """Volume-weighted mean temperature of the tissue cells, coat excluded [degC] ([nt]).
 
@@ -232,11 +263,14 @@ class Segment:
         the segment were coat only).
         """
         temp = self.read("temperature").values  # [nt, nz, nr]
-        w = self.cell_volumes()
-        coat = self.coat_layer()
-        if coat is not None and np.any(self.layer != coat):
-            w = np.where((self.layer == coat)[None, :], 0.0, w)
+        w = np.where(self.tissue_cells()[None, :], self.cell_volumes(), 0.0)
         return np.tensordot(temp, w, axes=([1, 2], [0, 1])) / w.sum()
+
+    def extreme_tissue_temperature(self, which: str) -> np.ndarray:
+        """Lowest ("min") or highest ("max") temperature of any tissue cell, coat excluded [degC] ([nt])."""
+        temp = self.read("temperature").values[:, :, self.tissue_cells()]
+        flat = temp.reshape(temp.shape[0], -1)
+        return flat.min(axis=1) if which == "min" else flat.max(axis=1)
 
     def mean_surface_temperature(self) -> np.ndarray:
         """Mean surface temperature over the axial cells, weighted by cell length [degC] ([nt])."""
@@ -333,18 +367,38 @@ class Results:
                 return entry
         return {}
 
+    def segment_count(self, name: str) -> int:
+        """Copies of segment `name` in the body [1]: its `count` times its parent's copies (counts
+        multiply down the tree), 1 when the stored case does not say."""
+        count, seen = 1, set()
+        while name and name not in seen:
+            seen.add(name)
+            entry = self.case_segment(name)
+            try:
+                count *= max(1, int(entry.get("count", 1)))
+            except (TypeError, ValueError):
+                pass
+            name = entry.get("parent", "")
+        return count
+
     @property
     def body_mass(self) -> float | None:
-        """Body mass from the case's `[body] mass`, or None when absent [kg]."""
+        """Body mass: the case's `[body] mass`, else the attribute `mass` of /body (the built body), else None [kg]."""
         body = self.case.get("body", {})
-        if not isinstance(body, dict) or "mass" not in body:
-            return None
-        return parse_mass(body["mass"])
+        if isinstance(body, dict) and "mass" in body:
+            return parse_mass(body["mass"])
+        grp = self.file.get("body")
+        if grp is not None and "mass" in grp.attrs:
+            mass = float(np.asarray(grp.attrs["mass"]).ravel()[0])
+            return mass if np.isfinite(mass) and mass > 0 else None
+        return None
 
     # ---- groups ----------------------------------------------------------------------
     def segment_names(self) -> list[str]:
-        """Names of the segment groups in file order."""
-        return list(self.file["segments"].keys()) if "segments" in self.file else []
+        """Names of the segment groups, in the order of the stored case (any others after, in file order)."""
+        stored = list(self.file["segments"].keys()) if "segments" in self.file else []
+        in_case = [e.get("name") for e in self.case.get("segments", []) or [] if isinstance(e, dict)]
+        return [n for n in in_case if n in stored] + [n for n in stored if n not in in_case]
 
     def segments(self, names=None) -> list[Segment]:
         """Segment objects, all or those named (ResultsError lists valid names on a typo)."""
@@ -362,6 +416,16 @@ class Results:
         grp = self.file.get("body/heat_flow")
         return ordered_channels(list(grp.keys())) if grp is not None else []
 
+    def body_heat_flow(self, channel: str) -> np.ndarray | None:
+        """Whole-body heat flow by `channel`, copies of segments and the blood pool included [W] ([nt])."""
+        path = f"/body/heat_flow/{channel}"
+        return self.read(path).values if self.has(path) else None
+
+    def cumulative_heat(self, channel: str) -> np.ndarray | None:
+        """Whole-body energy exchanged by `channel` since t = 0 [J] ([nt]); None when not stored."""
+        path = f"/body/cumulative_heat/{channel}"
+        return self.read(path).values if self.has(path) else None
+
     def environment(self) -> dict[str, Series]:
         """The /environment time series by variable name ({} when absent)."""
         grp = self.file.get("environment")
@@ -370,14 +434,14 @@ class Results:
         return {k: self.read(f"/environment/{k}") for k, v in grp.items() if isinstance(v, h5py.Dataset)}
 
     def events(self) -> list[tuple[float, float, str]]:
-        """Intervals to shade as (start [s], end [s], label); [] when /events is absent."""
+        """Intervals to shade as (start [s], end [s], label), sorted, duplicates dropped; [] without /events."""
         grp = self.file.get("events")
         if grp is None or "start" not in grp:
             return []
         start = np.atleast_1d(grp["start"][()]).astype(float)
         end = np.atleast_1d(grp["end"][()]).astype(float) if "end" in grp else start
         labels = [_text(x) for x in np.atleast_1d(grp["label"][()])] if "label" in grp else [""] * len(start)
-        return [(float(s), float(e), lab) for s, e, lab in zip(start, end, labels)]
+        return sorted({(float(s), float(max(e, s)), lab) for s, e, lab in zip(start, end, labels)})
 
     def solver_stats(self) -> dict:
         """Attributes of the /solver group ({} when absent)."""

@@ -1,19 +1,29 @@
 #!/usr/bin/python3
 """Test of postproc/: figures and CSV export on synthetic results files.
 
-    /usr/bin/python3 tests/test_postproc.py [PYTHON]
+    /usr/bin/python3 tests/test_postproc.py [PYTHON [THERMORPH]]
 
 Writes sample files with postproc/make_sample.py into a temporary directory,
 runs figures.py and export_csv.py on them, and checks that the outputs exist,
 are well-formed, and that every number in the CSV export equals the HDF5
-dataset bit for bit. Exits 1 on any failure.
+dataset bit for bit. Then runs thermorph (THERMORPH, else $THERMORPH_EXE,
+else ../thermorph from the working directory as under ctest, else
+build/thermorph) on small real cases and checks that the numbers each figure
+plots (its NAME.data.csv, read from the drawn artists) equal values computed
+here from the CSV export of the same file, and that events are shaded.
+Exits 1 on any failure.
 """
 
+import contextlib
 import csv
+import importlib
+import io
+import os
 import struct
 import subprocess
 import sys
 import tempfile
+import tomllib
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
@@ -23,6 +33,20 @@ import numpy as np
 ROOT = Path(__file__).resolve().parent.parent
 POSTPROC = ROOT / "postproc"
 PYTHON = sys.argv[1] if len(sys.argv) > 1 else sys.executable
+
+
+def find_thermorph() -> str:
+    """The thermorph executable: argument 2, $THERMORPH_EXE, ../thermorph (ctest's cwd is build/tests), build/."""
+    candidates = ([sys.argv[2]] if len(sys.argv) > 2 else []) + \
+        ([os.environ["THERMORPH_EXE"]] if os.environ.get("THERMORPH_EXE") else []) + \
+        [str(Path.cwd().parent / "thermorph"), str(ROOT / "build" / "thermorph")]
+    for c in candidates:
+        if Path(c).is_file() and os.access(c, os.X_OK):
+            return c
+    return candidates[0]
+
+
+THERMORPH = find_thermorph()
 sys.path.insert(0, str(POSTPROC))
 import thermorph_results as tr  # noqa: E402
 
@@ -36,11 +60,23 @@ def check(condition: bool, what: str):
         print(f"FAIL: {what}")
 
 
-def run(script: str, *args, expect: int = 0) -> subprocess.CompletedProcess:
-    """Run a postproc script; check its exit code."""
-    proc = subprocess.run([PYTHON, str(POSTPROC / script), *map(str, args)], capture_output=True, text=True)
+def run(script: str, *args, expect: int = 0, subprocess_run: bool = False) -> subprocess.CompletedProcess:
+    """Run a postproc script's main(argv) in this process (stdout and stderr captured; saves starting
+    Python and matplotlib each time), or as a separate process with subprocess_run; check its exit code."""
+    argv = [str(a) for a in args]
+    if subprocess_run:
+        proc = subprocess.run([PYTHON, str(POSTPROC / script), *argv], capture_output=True, text=True)
+    else:
+        module = importlib.import_module(Path(script).stem)
+        out, err = io.StringIO(), io.StringIO()
+        with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+            try:
+                code = module.main(argv)
+            except SystemExit as exit_:   # argparse errors
+                code = exit_.code
+        proc = subprocess.CompletedProcess([script, *argv], code, out.getvalue(), err.getvalue())
     check(proc.returncode == expect,
-          f"{script} {' '.join(map(str, args))}: exit {proc.returncode}, expected {expect}\n{proc.stderr}")
+          f"{script} {' '.join(argv)}: exit {proc.returncode}, expected {expect}\n{proc.stderr}")
     return proc
 
 
@@ -124,14 +160,18 @@ def check_mean_tissue_excludes_coat(sample: Path, tmp: Path):
 
 # ---- figures ------------------------------------------------------------------------------
 def check_figures(sample: Path, out: Path, extra=(), expect_maps=("left_ear", "tail"),
-                  incomplete=False, events=True, per_kg=True):
-    proc = run("figures.py", sample, "--out", out, *extra)
+                  incomplete=False, events=True, per_kg=True, formats=("pdf", "svg", "png")):
+    proc = run("figures.py", sample, "--out", out, "--formats", ",".join(formats), *extra)
     files = listed_files(proc)
     stems = {"temperatures", "budget"} | {f"maps_{s}" for s in expect_maps}
-    expected = {out / f"{s}.{ext}" for s in stems for ext in ("pdf", "svg", "png")}
+    expected = {out / f"{s}.{ext}" for s in stems for ext in formats + ("data.csv",)}
     check(set(files) == expected, f"figures {sample.name} {extra}: wrote {sorted(map(str, files))}")
     for path in files:
-        check(path.is_file() and path.stat().st_size > 1000, f"{path} missing or tiny")
+        check(path.is_file() and path.stat().st_size > (0 if path.name.endswith(".csv") else 1000),
+              f"{path} missing or tiny")
+    for path in (p for p in files if p.name.endswith(".data.csv")):
+        head, cols = read_csv(path)
+        check(head[:4] == ["panel", "series", "x", "y"] and len(cols[0]) > 0, f"{path}: source data {head}")
     for path in (p for p in files if p.suffix == ".pdf"):
         check(path.read_bytes()[:5] == b"%PDF-", f"{path} is not a PDF")
     for path in (p for p in files if p.suffix == ".png"):
@@ -275,6 +315,297 @@ def check_export_group(sample: Path, out: Path):
         check(cols[-1] == [names[i] for i in f["segments/left_ear/layer"][()]], "layer_name column")
 
 
+# ---- real thermorph results: plotted numbers against the CSV export -------------------------
+LENGTH_UNITS = {"mm": 1e-3, "cm": 1e-2, "m": 1.0}   # SI prefixes (SI Brochure, 9th ed., 2019, Table 7)
+TIME_UNITS = {"min": 60.0, "h": 3600.0}
+ENVIRONMENT_CHANNELS = ("convection", "radiation", "solar", "evaporation", "substrate", "respiration")
+EVENTS_TOML = """
+[[events]]
+at = "2 min"
+span = "3 min"
+label = "cold snap"
+environment = { temperature = "-15 degC" }
+
+[[events]]
+at = "6 min"
+span = "2 min"
+label = "thaw"
+environment = { temperature = "0 degC" }
+"""
+
+
+def thermorph_run(case: Path, out: Path, *settings) -> bool:
+    """Run thermorph on a case with --set overrides; check it succeeded."""
+    args = [THERMORPH, "run", str(case), "-o", str(out), "--quiet"]
+    for setting in settings:
+        args += ["--set", setting]
+    try:
+        proc = subprocess.run(args, capture_output=True, text=True)
+    except OSError as err:
+        check(False, f"cannot run thermorph ({THERMORPH}): {err}; pass its path as the second argument")
+        return False
+    check(proc.returncode == 0 and out.is_file(), f"thermorph run {case.name} failed: {proc.stderr[-1500:]}")
+    return out.is_file()
+
+
+def source_data(path: Path) -> dict:
+    """A figure's NAME.data.csv as {(panel, series): [row dicts]}."""
+    data = {}
+    with open(path, newline="", encoding="utf-8") as fh:
+        for row in csv.DictReader(fh):
+            data.setdefault((row["panel"], row["series"]), []).append(row)
+    return data
+
+
+def columns(path: Path) -> dict:
+    """An exported CSV as {header: float array} (text columns kept as lists of str)."""
+    head, cols = read_csv(path)
+    out = {}
+    for h, col in zip(head, cols):
+        try:
+            out[h] = np.array([float(v) for v in col])
+        except ValueError:
+            out[h] = col
+    return out
+
+
+def axis_unit(label: str) -> str:
+    """The unit in the last parentheses of an axis label, e.g. 'Time (min)' -> 'min'."""
+    return label.rsplit("(", 1)[-1].rstrip(")") if "(" in label else ""
+
+
+def xy(rows, field="y"):
+    """x and another field of source-data rows as float arrays."""
+    return np.array([float(r["x"]) for r in rows]), np.array([float(r[field]) for r in rows])
+
+
+def same_numbers(got, expected, what: str, rtol: float = 0.0, atol: float = 0.0):
+    """Arrays of equal length and equal values (exactly by default)."""
+    got, expected = np.asarray(got, float), np.asarray(expected, float)
+    if got.shape != expected.shape:
+        check(False, f"{what}: {got.shape} values plotted, expected {expected.shape}")
+        return
+    ok = np.allclose(got, expected, rtol=rtol, atol=atol, equal_nan=True) if (rtol or atol) else \
+        np.array_equal(got, expected, equal_nan=True)
+    check(ok, f"{what}: plotted values differ (max |diff| {np.nanmax(np.abs(got - expected)):.3g})")
+
+
+def trapezoid_mean(t, y):
+    """Mean over the run by the trapezoidal rule on the outputs [units of y]."""
+    return float(np.sum(0.5 * (y[1:] + y[:-1]) * np.diff(t)) / (t[-1] - t[0]))
+
+
+class Exported:
+    """The CSV export (--all) of a results file, with the arrays a figure is built from."""
+
+    def __init__(self, h5: Path, out: Path):
+        run("export_csv.py", h5, "--all", out)
+        self.dir = out
+        self.time = columns(out / "root.csv")["time [s]"]
+        attrs = dict(zip(*read_csv(out / "root.attributes.csv")[1]))
+        self.case = tomllib.loads(attrs["case"])
+        body_attrs = dict(zip(*read_csv(out / "body.attributes.csv")[1]))
+        self.mass = float(body_attrs["mass"])
+        self.body = columns(out / "body.csv")
+        self.body_flow = columns(out / "body.heat_flow.csv")
+        self.environment = columns(out / "environment.csv")
+
+    def segment(self, name: str) -> dict:
+        """Temperature [nt, nz, nr], surface [nt, nz], volume [nz, nr], coordinates, layers and flows."""
+        stem = self.dir / f"segments.{name}"
+        seg = columns(stem.with_name(stem.name + ".csv"))
+        radius = columns(stem.with_name(stem.name + ".radius.csv"))["radius [m]"]
+        axial = columns(stem.with_name(stem.name + ".axial.csv"))["axial [m]"]
+        layers = columns(stem.with_name(stem.name + ".layer.csv"))["layer_name"]
+        vol = columns(stem.with_name(stem.name + ".volume.csv"))
+        nz, nr = len(axial), len(radius)
+        volume = np.array([[vol[f"volume[r={r}] [m3]"][z] for r in range(nr)] for z in range(nz)])
+        temp = np.stack([np.stack([seg[f"temperature[z={z},r={r}] [degC]"] for r in range(nr)], axis=1)
+                         for z in range(nz)], axis=1)
+        surface = np.stack([seg[f"surface_temperature[z={z}] [degC]"] for z in range(nz)], axis=1)
+        flows = {h.split(" [")[0]: v for h, v in columns(stem.with_name(stem.name + ".heat_flow.csv")).items()
+                 if h != "time [s]"}
+        entry = next(e for e in self.case["segments"] if e["name"] == name)
+        return dict(temp=temp, surface=surface, volume=volume, radius=radius, axial=axial, layers=layers,
+                    flows=flows, coat=entry.get("coat", {}).get("material"))
+
+    def copies(self, name: str) -> int:
+        """Copies of a segment: its count times its parent's copies (counts multiply down the tree)."""
+        entries = {e["name"]: e for e in self.case["segments"]}
+        n = 1
+        while name:
+            n *= int(entries[name].get("count", 1))
+            name = entries[name].get("parent", "")
+        return n
+
+
+def check_real_limb(tmp: Path):
+    """Every figure on a 10-minute forelimb run; the plotted numbers against the CSV export."""
+    h5 = tmp / "limb.h5"
+    if not thermorph_run(ROOT / "cases" / "limb_cooling.toml", h5, 'run.duration="10 min"'):
+        return
+    figs = tmp / "fig_limb"
+    files = listed_files(run("figures.py", h5, "--out", figs, subprocess_run=True))
+    expected = {figs / f"{s}.{e}" for s in ("temperatures", "budget", "maps_forelimb")
+                for e in ("pdf", "svg", "png", "data.csv")}
+    check(set(files) == expected, f"limb figures: wrote {sorted(map(str, files))}")
+    for path in files:
+        check(path.is_file() and path.stat().st_size > (1000 if not path.name.endswith(".csv") else 0),
+              f"{path} missing or empty")
+    ex = Exported(h5, tmp / "csv_limb")
+    seg = ex.segment("forelimb")
+    t = ex.time
+
+    # Temperatures: time in minutes (a 10 min run), temperatures in degC as stored.
+    data = source_data(figs / "temperatures.data.csv")
+    x, y = xy(data[("body temperatures", "core")])
+    same_numbers(x * TIME_UNITS[axis_unit(data[("body temperatures", "core")][0]["x_label"])], t,
+                 "core: time axis", rtol=1e-14)
+    same_numbers(y, ex.body["core_temperature [degC]"], "core temperature")
+    # Mean tissue temperature: volume-weighted over the cells not in the coat (definition).
+    tissue = np.array([name != seg["coat"] for name in seg["layers"]])
+    w = seg["volume"] * tissue[None, :]
+    expected = np.einsum("tzr,zr->t", seg["temp"], w) / w.sum()
+    same_numbers(xy(data[("segment mean tissue temperatures", "forelimb")])[1], expected,
+                 "forelimb mean tissue temperature", rtol=1e-13)
+    # Mean surface temperature: equal axial cells here, so the plain mean over the cells.
+    check(np.allclose(np.diff(seg["axial"]), np.diff(seg["axial"])[0], rtol=1e-12), "limb: uniform axial cells")
+    same_numbers(xy(data[("segment mean surface temperatures", "forelimb")])[1], seg["surface"].mean(axis=1),
+                 "forelimb mean surface temperature", rtol=1e-13)
+    same_numbers(xy(data[("segment mean surface temperatures", "air (surroundings)")])[1],
+                 ex.environment["temperature [degC]"], "air temperature")
+
+    # Budget: bars are trapezoidal means of the segment flows over the run; whole body in W/kg.
+    data = source_data(figs / "budget.data.csv")
+    drawn = {s for (p, s) in data if p == "segment budget"}
+    nonzero = {c for c, v in seg["flows"].items() if c != "storage" and np.any(v != 0)}
+    check(drawn == nonzero | {"sum of channels", "storage (rate of heat stored)"},
+          f"budget bars: drawn {sorted(drawn)}, non-zero channels {sorted(nonzero)}")
+    total = 0.0
+    for c in sorted(nonzero):
+        rows = data.get(("segment budget", c), [])
+        check([r["x"] for r in rows] == ["forelimb"], f"budget bar {c}: categories {[r['x'] for r in rows]}")
+        mean = trapezoid_mean(t, seg["flows"][c])
+        total += mean
+        same_numbers([float(r["y"]) for r in rows], [mean], f"budget bar {c}", rtol=1e-12, atol=1e-15)
+    same_numbers([float(r["y"]) for r in data[("segment budget", "sum of channels")]], [total],
+                 "budget: sum of channels", rtol=1e-12, atol=1e-15)
+    same_numbers([float(r["y"]) for r in data[("segment budget", "storage (rate of heat stored)")]],
+                 [trapezoid_mean(t, seg["flows"]["storage"])], "budget: storage bar", rtol=1e-12, atol=1e-15)
+    for c, flow in ex.body_flow.items():
+        c = c.split(" [")[0]
+        if c == "time" or not np.any(flow != 0):
+            check(("whole-body heat flows", c) not in data, f"zero channel {c} drawn")
+            continue
+        rows = data.get(("whole-body heat flows", c))
+        check(rows is not None, f"whole-body channel {c} not drawn")
+        if rows:
+            x, y = xy(rows)
+            check(rows[0]["y_label"].endswith("(W/kg)"), f"body flow unit {rows[0]['y_label']}")
+            same_numbers(x * 60.0, t, f"body {c}: time axis", rtol=1e-14)
+            same_numbers(y * ex.mass, flow, f"body {c} [W/kg x mass]", rtol=1e-13)
+
+    # Maps: every cell of each map equals the stored temperature at that time; profiles at mid-length.
+    data = source_data(figs / "maps_forelimb.data.csv")
+    maps = {p: rows for (p, s), rows in data.items() if p.startswith("map at t = ")}
+    check(len(maps) == 3, f"maps: {len(maps)} times drawn, expected first, middle and last")
+    nz, nr = len(seg["axial"]), len(seg["radius"])
+    for panel, rows in maps.items():
+        i = int(np.argmin(np.abs(t - float(panel.split("=")[1].split()[0]))))
+        ux, uy = LENGTH_UNITS[axis_unit(rows[0]["x_label"])], LENGTH_UNITS[axis_unit(rows[0]["y_label"])]
+        cells = set()
+        for r in rows:
+            z = int(np.argmin(np.abs(float(r["x"]) * ux - seg["axial"])))
+            k = int(np.argmin(np.abs(float(r["y"]) * uy - seg["radius"])))
+            cells.add((z, k))
+            if float(r["value"]) != seg["temp"][i, z, k]:
+                check(False, f"{panel}: cell z={z}, r={k} plotted {r['value']}, stored {seg['temp'][i, z, k]!r}")
+                break
+        check(len(cells) == len(rows) == nz * nr, f"{panel}: {len(cells)} distinct cells of {nz * nr}")
+    # Twelve equal axial cells: mid-length lies halfway between the centres of cells 5 and 6.
+    profiles = {s: rows for (p, s), rows in data.items() if p == "radial profiles at mid-length"}
+    check(len(profiles) == 3, f"profiles: {sorted(profiles)}")
+    for label, rows in profiles.items():
+        i = int(np.argmin(np.abs(t - float(label.split()[2]) * TIME_UNITS[label.split()[3]])))
+        x, y = xy(rows)
+        same_numbers(x * LENGTH_UNITS[axis_unit(rows[0]["x_label"])], seg["radius"], f"profile {label}: radius",
+                     rtol=1e-14)
+        same_numbers(y, 0.5 * (seg["temp"][i, 5, :] + seg["temp"][i, 6, :]), f"profile {label}", rtol=1e-13)
+
+
+def check_real_events(tmp: Path):
+    """A tiny case with two labelled events with a span: shaded where /events says, labelled in the SVG."""
+    case = tmp / "events.toml"
+    case.write_text((ROOT / "cases" / "limb_cooling.toml").read_text() + EVENTS_TOML)
+    h5 = tmp / "events.h5"
+    if not thermorph_run(case, h5, 'run.duration="10 min"'):
+        return
+    figs = tmp / "fig_events"
+    run("figures.py", h5, "--out", figs, "--only", "temperatures,budget", "--formats", "svg")
+    text = svg_text(figs / "temperatures.svg")
+    for label in ("cold snap", "thaw"):
+        check(label in text, f"event label {label!r} missing from temperatures.svg")
+    ex = columns(_export_events(h5, tmp / "events.csv"))
+    for stem in ("temperatures", "budget"):
+        data = source_data(figs / f"{stem}.data.csv")
+        for k, label in enumerate(ex["label"]):
+            rows = [r for (p, s), rs in data.items() if s == f"event: {label}" for r in rs]
+            check(len(rows) >= 1, f"{stem}: event {label!r} not shaded")
+            for r in rows:
+                unit = TIME_UNITS[axis_unit(r["x_label"])]
+                same_numbers([float(r["x"]) * unit, float(r["value"]) * unit],
+                             [ex["start [s]"][k], ex["end [s]"][k]], f"{stem}: shading of {label!r}", rtol=1e-14)
+
+
+def _export_events(h5: Path, out: Path) -> Path:
+    """Export /events to CSV; return its path."""
+    run("export_csv.py", h5, "events", "--out", out)
+    return out
+
+
+def check_real_quadruped(tmp: Path):
+    """Many segments, a blood pool, shivering and respiration: default top-N selection and the extra bars."""
+    h5 = tmp / "quadruped.h5"
+    if not thermorph_run(ROOT / "cases" / "quadruped.toml", h5, 'run.duration="20 min"',
+                         'run.output_interval="2 min"', 'control.shivering.set_point="37.5 degC"'):
+        return
+    figs = tmp / "fig_quadruped"
+    run("figures.py", h5, "--out", figs, "--only", "temperatures,budget", "--top", "3", "--formats", "png")
+    ex = Exported(h5, tmp / "csv_quadruped")
+    t = ex.time
+    names = [e["name"] for e in ex.case["segments"]]
+    segs = {n: ex.segment(n) for n in names}
+    copies = {n: ex.copies(n) for n in names}
+    # Heat lost to the surroundings: minus the mean of the exchange channels, all copies.
+    loss = {n: -copies[n] * sum(trapezoid_mean(t, s["flows"][c]) for c in ENVIRONMENT_CHANNELS if c in s["flows"])
+            for n, s in segs.items()}
+    top = sorted(names, key=lambda n: -loss[n])[:3]
+    rest = [n for n in names if n not in top]
+    label = lambda n: n if copies[n] == 1 else f"{n} ×{copies[n]}"  # noqa: E731
+    data = source_data(figs / "budget.data.csv")
+    cats = [r["x"] for r in data[("segment budget", "sum of channels")]]
+    check(cats == [label(n) for n in top] + [f"other segments ({len(rest)})", "blood pool"],
+          f"quadruped budget bars {cats}, expected top 3 {top} then the others and the pool")
+    for c in ("metabolism", "blood", "shivering", "respiration", "radiation"):
+        rows = {r["x"]: float(r["y"]) for r in data.get(("segment budget", c), [])}
+        check(bool(rows), f"quadruped: channel {c} not drawn")
+        if not rows:
+            continue
+        for n in top:
+            same_numbers([rows[label(n)]], [copies[n] * trapezoid_mean(t, segs[n]["flows"][c])],
+                         f"quadruped {label(n)} {c}", rtol=1e-12, atol=1e-15)
+        others = sum(copies[n] * trapezoid_mean(t, segs[n]["flows"][c]) for n in rest)
+        same_numbers([rows[f"other segments ({len(rest)})"]], [others], f"quadruped others {c}", rtol=1e-12,
+                     atol=1e-15)
+        # The blood pool is not a segment: the whole body minus all segments.
+        pool = trapezoid_mean(t, ex.body_flow[f"{c} [W]"]) - sum(
+            copies[n] * trapezoid_mean(t, segs[n]["flows"][c]) for n in names)
+        same_numbers([rows["blood pool"]], [pool], f"quadruped blood pool {c}", atol=1e-12)
+    data = source_data(figs / "temperatures.data.csv")
+    drawn = [s for (p, s) in data if p == "segment mean tissue temperatures"]
+    check(drawn == top, f"quadruped temperatures: segments {drawn}, expected the top 3 {top}")
+
+
 def main() -> int:
     check_reader_helpers()
     with tempfile.TemporaryDirectory(prefix="thermorph_postproc_") as tmpname:
@@ -287,12 +618,13 @@ def main() -> int:
 
         check_figures(full, tmp / "fig_full")
         check_figures(full, tmp / "fig_window", extra=("--window", "3600,7200", "--times", "0,5400",
-                                                       "--segments", "tail,trunk"), expect_maps=("tail",))
+                                                       "--segments", "tail,trunk"), expect_maps=("tail",),
+                      formats=("svg",))
         check_figures(minimal, tmp / "fig_min", extra=("--units", "si"), incomplete=True, events=False,
-                      per_kg=False)
-        check_figures(steady, tmp / "fig_steady", events=False)
-        only = listed_files(run("figures.py", full, "--out", tmp / "only", "--only", "budget"))
-        check(sorted(p.name for p in only) == ["budget.pdf", "budget.png", "budget.svg"], f"--only budget: {only}")
+                      per_kg=False, formats=("svg",))
+        check_figures(steady, tmp / "fig_steady", events=False, formats=("svg",))
+        only = listed_files(run("figures.py", full, "--out", tmp / "only", "--only", "budget", "--formats", "png"))
+        check(sorted(p.name for p in only) == ["budget.data.csv", "budget.png"], f"--only budget: {only}")
         # Errors: wording is part of the interface.
         proc = run("figures.py", full, "--out", tmp / "bad", "--segments", "tial", expect=2)
         check("no segment tial" in proc.stderr and "left_ear" in proc.stderr, f"bad segment message: {proc.stderr}")
@@ -304,6 +636,10 @@ def main() -> int:
         check_export_group(full, tmp / "csv_group")
         proc = run("export_csv.py", full, "no_such_group", "--out", tmp / "x.csv", expect=2)
         check("no group /no_such_group" in proc.stderr, f"bad group message: {proc.stderr}")
+
+        check_real_limb(tmp)
+        check_real_events(tmp)
+        check_real_quadruped(tmp)
 
     if FAILURES:
         print(f"test_postproc: {len(FAILURES)} check(s) failed")

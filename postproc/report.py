@@ -1,0 +1,348 @@
+#!/usr/bin/python3
+"""Summary of a thermorph result: heat budget over a window, time above/below thresholds, time to reach them.
+
+    report.py RESULT.h5 [--window t0,t1] [--above KEY=TEMP ...] [--below KEY=TEMP ...]
+              [--segments a,b] [--csv FILE]
+
+KEY is core, blood, skin (mean skin), or SEGMENT.mean, SEGMENT.min, SEGMENT.max
+(volume-weighted mean, lowest and highest tissue temperature of the segment,
+coat excluded). TEMP in degC, or with a unit: 39.5, 39.5degC, 312.65K.
+Times in s, or with a unit: 600, 10min, 1.5h. See postproc/README.md, "Reports".
+"""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import re
+import sys
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from budget import WindowBudget, window_budget  # noqa: E402
+from thermorph_results import ZERO_CELSIUS_IN_KELVIN, Results, ResultsError  # noqa: E402
+
+CAUTION = ("Thresholds such as critical tissue temperatures are species-specific and must come from your own "
+           "sources; these are model estimates for research, not veterinary or medical advice.")
+BODY_KEYS = {"core": ("/body/core_temperature", "core temperature"),
+             "blood": ("/body/blood_temperature", "blood temperature"),
+             "skin": ("/body/mean_skin_temperature", "mean skin temperature")}
+SEGMENT_STATS = {"mean": "mean tissue temperature", "min": "lowest tissue temperature",
+                 "max": "highest tissue temperature"}
+TIME_UNITS = {"s": 1.0, "min": 60.0, "h": 3600.0, "d": 86400.0}
+
+
+class ArgumentError(Exception):
+    """A bad command-line value (reported with exit code 2)."""
+
+
+# ---- parsing ------------------------------------------------------------------------------
+def parse_time(text: str) -> float:
+    """A time such as '600', '10 min' or '1.5h' [s]."""
+    match = re.fullmatch(r"\s*([-+]?[0-9.]+(?:[eE][-+]?[0-9]+)?)\s*([a-z]*)\s*", text)
+    if not match or (match.group(2) or "s") not in TIME_UNITS:
+        raise ArgumentError(f"bad time {text!r}: expected a number in s, or with a unit "
+                            f"({', '.join(TIME_UNITS)}), e.g. 600 or 10min")
+    try:
+        return float(match.group(1)) * TIME_UNITS[match.group(2) or "s"]
+    except ValueError:
+        raise ArgumentError(f"bad time {text!r}: not a number") from None
+
+
+def parse_temperature(text: str) -> float:
+    """A temperature such as '39.5', '39.5 degC' or '312.65 K' [degC]."""
+    match = re.fullmatch(r"\s*([-+]?[0-9.]+(?:[eE][-+]?[0-9]+)?)\s*(degC|°C|C|K)?\s*", text)
+    try:
+        value = float(match.group(1)) if match else float("nan")
+    except ValueError:
+        value = float("nan")
+    if not np.isfinite(value):
+        raise ArgumentError(f"bad temperature {text!r}: expected a number in degC, or with a unit "
+                            f"(degC or K), e.g. 39.5 or 312.65K")
+    return value - ZERO_CELSIUS_IN_KELVIN if match.group(2) == "K" else value
+
+
+def parse_window(res: Results, text: str | None) -> tuple[float, float]:
+    """`t0,t1` [s] inside the run; default the whole run. ArgumentError when outside or reversed."""
+    t_first, t_last = float(res.time[0]), float(res.time[-1])
+    if text is None:
+        return t_first, t_last
+    parts = text.split(",")
+    if len(parts) != 2:
+        raise ArgumentError(f"--window {text!r}: expected two times t0,t1 (s), e.g. 600,3600 or 10min,1h")
+    t0, t1 = parse_time(parts[0]), parse_time(parts[1])
+    slack = 1e-9 * max(1.0, abs(t_last))
+    if t0 < t_first - slack or t1 > t_last + slack:
+        raise ArgumentError(f"--window {t0:g},{t1:g} s lies outside the run, which covers "
+                            f"{t_first:g} to {t_last:g} s")
+    if len(res.time) > 1 and t1 <= t0:
+        raise ArgumentError(f"--window {t0:g},{t1:g} s: the end must come after the start")
+    return max(t0, t_first), min(t1, t_last)
+
+
+@dataclass
+class Threshold:
+    """A user threshold on one temperature series."""
+    key: str
+    description: str
+    above: bool
+    value: float           # [degC]
+    time: np.ndarray       # [s]
+    series: np.ndarray     # [degC]
+
+
+def temperature_keys(res: Results) -> list[str]:
+    """Every valid threshold key for this file."""
+    keys = [k for k, (path, _) in BODY_KEYS.items() if res.has(path)]
+    return keys + [f"{n}.{stat}" for n in res.segment_names() for stat in SEGMENT_STATS]
+
+
+def temperature_series(res: Results, key: str) -> tuple[np.ndarray, str]:
+    """The temperature series [degC] ([nt]) and a description for a threshold key."""
+    if key in BODY_KEYS and res.has(BODY_KEYS[key][0]):
+        return np.asarray(res.read(BODY_KEYS[key][0]).values, dtype=float), BODY_KEYS[key][1]
+    name, _, stat = key.rpartition(".")
+    if name in res.segment_names() and stat in SEGMENT_STATS:
+        seg = res.segments([name])[0]
+        values = seg.mean_tissue_temperature() if stat == "mean" else seg.extreme_tissue_temperature(stat)
+        return values, f"{name}: {SEGMENT_STATS[stat]}"
+    keys = temperature_keys(res)
+    raise ArgumentError(f"unknown temperature {key!r}; valid keys: {', '.join(keys)}")
+
+
+def parse_threshold(res: Results, text: str, above: bool) -> Threshold:
+    """`KEY=TEMP` into a Threshold (ArgumentError names the problem)."""
+    flag = "--above" if above else "--below"
+    key, sep, value = text.partition("=")
+    if not sep or not key.strip():
+        raise ArgumentError(f"{flag} {text!r}: expected KEY=TEMP, e.g. core=39.5 or ears.min=10")
+    series, description = temperature_series(res, key.strip())
+    try:
+        temp = parse_temperature(value)
+    except ArgumentError as err:
+        raise ArgumentError(f"{flag} {text!r}: {err}") from None
+    return Threshold(key.strip(), description, above, temp, res.time, series)
+
+
+# ---- thresholds ---------------------------------------------------------------------------
+def _clip(time, values, t0: float, t1: float):
+    """Samples on [t0, t1], with values linearly interpolated at the window ends."""
+    inside = (time > t0) & (time < t1)
+    grid = np.concatenate(([t0], time[inside], [t1])) if t1 > t0 else np.array([t0])
+    return grid, np.interp(grid, time, values)
+
+
+def time_beyond(time, values, threshold: float, above: bool, t0: float, t1: float) -> float:
+    """Time in [t0, t1] with the series above (or below) the threshold [s], linear between outputs."""
+    grid, y = _clip(np.asarray(time, float), np.asarray(values, float), t0, t1)
+    d = (y - threshold) if above else (threshold - y)   # > 0 where the condition holds
+    total = 0.0
+    for a, b, da, db in zip(grid[:-1], grid[1:], d[:-1], d[1:]):
+        if not (np.isfinite(da) and np.isfinite(db)):
+            continue
+        if da > 0 and db > 0:
+            total += b - a
+        elif da > 0 or db > 0:          # one crossing: the linear piece changes sign once
+            total += (b - a) * max(da, db) / abs(db - da)
+    return float(total)
+
+
+def first_reach(time, values, threshold: float, above: bool, t0: float, t1: float) -> float | None:
+    """First time in [t0, t1] at which the series reaches the threshold from the start [s]; None if never.
+
+    Returns t0 when the series is already at or beyond the threshold at t0.
+    """
+    grid, y = _clip(np.asarray(time, float), np.asarray(values, float), t0, t1)
+    d = (y - threshold) if above else (threshold - y)   # >= 0 once reached
+    if np.isfinite(d[0]) and d[0] >= 0:
+        return float(grid[0])
+    for a, b, da, db in zip(grid[:-1], grid[1:], d[:-1], d[1:]):
+        if np.isfinite(da) and np.isfinite(db) and db >= 0 > da:
+            return float(a + (b - a) * (-da) / (db - da))
+    return None
+
+
+# ---- output -------------------------------------------------------------------------------
+def _fmt(value: float, scale: float = 0.0) -> str:
+    """A number for the tables, 4 significant digits; "0" below 1e-9 of `scale` (rounding noise)."""
+    return "0" if value == 0 or abs(value) < 1e-9 * scale else f"{value:.4g}"
+
+
+def fmt_time(t: float | None) -> str:
+    """A duration [s] with minutes or hours beside it."""
+    if t is None:
+        return "never (not reached)"
+    if abs(t) >= 7200:
+        return f"{t:.6g} s ({t / 3600:.4g} h)"
+    if abs(t) >= 120:
+        return f"{t:.6g} s ({t / 60:.4g} min)"
+    return f"{t:.6g} s"
+
+
+def budget_lines(b: WindowBudget, mass: float | None) -> list[str]:
+    """The budget as text table lines."""
+    width = max([len(r.label) for r in b.rows()] + [len("sum of rows − whole body"), 14]) + 2
+    scale = max(abs(v) for r in b.rows() for v in r.means.values())
+    fmt = lambda v: _fmt(v, scale)  # noqa: E731
+    head = "[W]".ljust(width) + "".join(f"{c:>12}" for c in b.channels)
+    lines = [head]
+    for row in b.rows():
+        lines.append(row.label.ljust(width) + "".join(f"{fmt(row.means.get(c, 0.0)):>12}" for c in b.channels))
+    if mass:
+        lines.append("whole body [W/kg]".ljust(width)
+                     + "".join(f"{fmt(b.body.means.get(c, 0.0) / mass):>12}" for c in b.channels))
+    parts = b.parts_sum()
+    lines.append("sum of rows − whole body".ljust(width)
+                 + "".join(f"{fmt(parts[c] - b.body.means.get(c, 0.0)):>12}" for c in b.channels))
+    if b.t1 > b.t0:
+        lines.append("whole body [kJ]".ljust(width)
+                     + "".join(f"{fmt(b.body.means.get(c, 0.0) * (b.t1 - b.t0) / 1e3):>12}" for c in b.channels))
+    return lines
+
+
+def threshold_rows(thresholds, t0: float, t1: float) -> list[dict]:
+    """Per threshold: time beyond it, share of the window, first time reached, range in the window."""
+    rows = []
+    for th in thresholds:
+        beyond = time_beyond(th.time, th.series, th.value, th.above, t0, t1)
+        reached = first_reach(th.time, th.series, th.value, th.above, t0, t1)
+        _, y = _clip(th.time, th.series, t0, t1)
+        rows.append({
+            "key": th.key, "quantity": th.description, "condition": "above" if th.above else "below",
+            "threshold [degC]": th.value, "time beyond [s]": beyond,
+            "share of window [1]": beyond / (t1 - t0) if t1 > t0 else float(beyond > 0),
+            "first reached at [s]": reached,
+            "first reached after window start [s]": None if reached is None else reached - t0,
+            "minimum in window [degC]": float(np.nanmin(y)), "maximum in window [degC]": float(np.nanmax(y)),
+        })
+    return rows
+
+
+def write_csv(path: Path, b: WindowBudget, mass: float | None, rows: list[dict]) -> list[Path]:
+    """Budget to `path`, thresholds to PATH.thresholds.csv beside it; return the paths written."""
+    path.parent.mkdir(parents=True, exist_ok=True)
+    written = [path]
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh, lineterminator="\n")
+        w.writerow(["row", "units", "window start [s]", "window end [s]", "method"] + b.channels)
+        for r in b.rows():
+            w.writerow([r.label, "W", repr(b.t0), repr(b.t1), r.method]
+                       + [repr(r.means.get(c, 0.0)) for c in b.channels])
+        if mass:
+            w.writerow(["whole body per kg", "W/kg", repr(b.t0), repr(b.t1), b.body.method]
+                       + [repr(b.body.means.get(c, 0.0) / mass) for c in b.channels])
+    if rows:
+        side = path.with_name(f"{path.stem}.thresholds.csv")
+        with open(side, "w", newline="", encoding="utf-8") as fh:
+            w = csv.writer(fh, lineterminator="\n")
+            w.writerow(list(rows[0].keys()))
+            for r in rows:
+                w.writerow(["" if v is None else (repr(v) if isinstance(v, float) else v) for v in r.values()])
+        written.append(side)
+    return written
+
+
+def report(res: Results, window=None, above=(), below=(), segments=None, csv_path=None, out=sys.stdout) -> int:
+    """Print the report for an open result; raise ArgumentError on bad arguments. Returns 0."""
+    t0, t1 = parse_window(res, window)
+    thresholds = [parse_threshold(res, a, True) for a in above] + [parse_threshold(res, b, False) for b in below]
+    b = window_budget(res, t0, t1, segments)
+    mass = res.body_mass
+    p = lambda *a: print(*a, file=out)  # noqa: E731
+    p(f"thermorph report: {res.path}")
+    title = res.attr("title") or res.case.get("title")
+    if title:
+        p(f"case: {title}")
+    if not res.complete:
+        p(f"INCOMPLETE RUN: the results stop at t = {res.time[-1]:g} s ({res.attr('failure', 'solver failure')})")
+    if t1 > t0:
+        p(f"window: {fmt_time(t0)} to {fmt_time(t1)}, {fmt_time(t1 - t0)} long; "
+          f"{int(np.sum((res.time >= t0) & (res.time <= t1)))} outputs inside")
+    else:
+        p(f"time: {fmt_time(t0)} (a single output; values at that time, no averaging)")
+    if mass:
+        p(f"body mass: {mass:.4g} kg")
+
+    p("")
+    p("Heat budget: " + ("mean heat flow over the window" if t1 > t0 else "heat flow at that time")
+      + " by channel [W], positive into the body")
+    for line in budget_lines(b, mass):
+        p(line)
+    p("Segment rows: all copies of the segment (×N); trapezoidal rule on the flows at the output times,")
+    p("  linearly interpolated at window ends between outputs.")
+    if b.body.method == "cumulative":
+        p("Whole body: exact, from /body/cumulative_heat (energy difference / window length; storage = the")
+        p("  channel energies minus the change of /body/energy_balance_error).")
+    else:
+        p("Whole body: trapezoidal rule on /body/heat_flow (no cumulative energies for this window).")
+    if b.pool is not None:
+        p("Blood pool: whole-body flows minus the sum over all segments (trapezoidal rule).")
+    if b.others is not None:
+        p(f"{b.others.label}: the segments not named in --segments, summed.")
+    if b.body.method == "cumulative":
+        p("'sum of rows − whole body' is the error of the trapezoidal rule at this output interval.")
+    else:
+        p("'sum of rows − whole body' is not zero where the segment flows in this file do not add up to the "
+          "whole body.")
+
+    rows = threshold_rows(thresholds, t0, t1)
+    if rows:
+        p("")
+        p("Thresholds (temperatures linearly interpolated between outputs)")
+        for r in rows:
+            sign = ">" if r["condition"] == "above" else "<"
+            reached = r["first reached at [s]"]
+            p(f"  {r['key']} ({r['quantity']}) {sign} {r['threshold [degC]']:g} °C")
+            if t1 <= t0:
+                holds = r["first reached at [s]"] is not None
+                p(f"    at that time: {r['maximum in window [degC]']:.4g} °C, "
+                  f"{'' if holds else 'not '}{r['condition']} the threshold")
+                continue
+            beyond = f"    time {r['condition']}: {fmt_time(r['time beyond [s]'])}"
+            if t1 > t0:
+                beyond += f", {100 * r['share of window [1]']:.3g} % of the window"
+            p(beyond)
+            if reached is None:
+                p("    first reached: never in the window")
+            elif reached == t0:
+                p(f"    first reached: already at the window start, {fmt_time(t0)}")
+            else:
+                after = "" if t0 == 0 else f", {fmt_time(reached - t0)} after the window start"
+                p(f"    first reached: at {fmt_time(reached)}{after}")
+            p(f"    range in the window: {r['minimum in window [degC]']:.4g} to "
+              f"{r['maximum in window [degC]']:.4g} °C")
+    if csv_path:
+        for path in write_csv(Path(csv_path), b, mass, rows):
+            p(f"wrote {path}")
+    p("")
+    p(f"Caution: {CAUTION}")
+    return 0
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(
+        description="Heat budget over a window, time above/below temperature thresholds and time to reach them.",
+        epilog="KEY: core, blood, skin, or SEGMENT.mean|min|max (tissue, coat excluded). " + CAUTION)
+    ap.add_argument("result", help="results file (HDF5) written by thermorph")
+    ap.add_argument("--window", help="t0,t1 in s (or with units: 10min,1h); default the whole run")
+    ap.add_argument("--above", action="extend", nargs="+", default=[], metavar="KEY=TEMP",
+                    help="time above TEMP (degC, or e.g. 312K) of temperature KEY")
+    ap.add_argument("--below", action="extend", nargs="+", default=[], metavar="KEY=TEMP",
+                    help="time below TEMP of temperature KEY")
+    ap.add_argument("--segments", help="comma-separated segments for the budget rows (the rest summed in one row)")
+    ap.add_argument("--csv", help="write the budget to FILE and the thresholds to FILE.thresholds.csv")
+    args = ap.parse_args(argv)
+    segments = [s.strip() for s in args.segments.split(",") if s.strip()] if args.segments else None
+    try:
+        with Results(args.result) as res:
+            return report(res, args.window, args.above, args.below, segments, args.csv)
+    except (ArgumentError, ResultsError) as err:
+        print(f"report: error: {err}", file=sys.stderr)
+        return 2
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,372 @@
+#!/usr/bin/python3
+"""Test of postproc/report.py: window heat budgets, threshold times and argument errors.
+
+    /usr/bin/python3 tests/test_report.py [PYTHON [THERMORPH]]
+
+1. A synthetic results file whose flows and temperatures are simple functions of
+   time (ramps, a quadratic, a triangle), so every number the report prints has
+   a closed form worked out here by hand.
+2. A real thermorph run (the quadruped with a shivering controller): report
+   numbers against values computed here directly from the HDF5 arrays.
+3. Bad arguments exit with code 2 and say what is wrong.
+Exits 1 on any failure.
+"""
+
+import csv
+import subprocess
+import sys
+import tempfile
+import tomllib
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+ROOT = Path(__file__).resolve().parent.parent
+REPORT = ROOT / "postproc" / "report.py"
+PYTHON = sys.argv[1] if len(sys.argv) > 1 else sys.executable
+THERMORPH = sys.argv[2] if len(sys.argv) > 2 else str(ROOT / "build" / "thermorph")
+CAUTION = ("Thresholds such as critical tissue temperatures are species-specific and must come from your own "
+           "sources; these are model estimates for research, not veterinary or medical advice.")
+FAILURES = []
+
+
+def check(condition: bool, what: str):
+    """Record a failed check (and print it) without stopping the run."""
+    if not condition:
+        FAILURES.append(what)
+        print(f"FAIL: {what}")
+
+
+def close(got: float, expected: float, what: str, rtol: float = 1e-12, atol: float = 1e-12):
+    """Check |got − expected| <= atol + rtol |expected|."""
+    ok = got is not None and abs(got - expected) <= atol + rtol * abs(expected)
+    check(ok, f"{what}: got {got!r}, expected {expected!r}")
+
+
+def run_report(*args, expect: int = 0) -> subprocess.CompletedProcess:
+    """Run report.py; check its exit code."""
+    proc = subprocess.run([PYTHON, str(REPORT), *map(str, args)], capture_output=True, text=True)
+    check(proc.returncode == expect, f"report.py {' '.join(map(str, args))}: exit {proc.returncode}, "
+                                     f"expected {expect}\n{proc.stdout[-2000:]}\n{proc.stderr}")
+    return proc
+
+
+def read_table(path: Path) -> dict:
+    """CSV rows keyed by their first column, each a dict of column -> text."""
+    with open(path, newline="", encoding="utf-8") as fh:
+        return {row[next(iter(row))]: row for row in csv.DictReader(fh)}
+
+
+def number(text: str):
+    """A CSV cell as float (None when empty)."""
+    return None if text in ("", None) else float(text)
+
+
+# ---- 1. synthetic file with closed-form answers ---------------------------------------------
+# Non-uniform output times [s]; the window ends 50 s and 1000 s fall between outputs.
+TIME = np.array([0.0, 100.0, 250.0, 400.0, 600.0, 900.0, 1200.0])
+T0, T1 = 50.0, 1000.0
+A_SOLAR = 3e-6          # body solar flow a t^2 [W], cumulative a t^3 / 3 [J]
+ERR_RATE = 1e-3         # energy_balance_error = ERR_RATE t [J]
+
+CASE = """title = "report test (invented)"
+[body]
+mass = "4 kg"
+[[segments]]
+name = "trunk"
+shape = "cylinder"
+coat = { material = "fur", thickness = "1 cm", cells = 1 }
+[[segments]]
+name = "leg"
+parent = "trunk"
+count = 2
+shape = "cylinder"
+"""
+
+
+def seg_flows(t):
+    """Flows of one copy of each segment [W] (invented)."""
+    return {
+        "trunk": {"metabolism": 10.0 + 0.002 * t, "blood": -2.0 + 0 * t, "convection": -5.0 + 0 * t,
+                  "solar": A_SOLAR * t**2},
+        "leg": {"metabolism": 1.0 + 0 * t, "blood": 0.75 + 0 * t, "convection": -2.0 - 0.001 * t,
+                "solar": 0 * t},
+    }
+
+
+def write_synthetic(path: Path):
+    t = TIME
+    flows = seg_flows(t)
+    count = {"trunk": 1, "leg": 2}
+    pool_blood = 0.5 + 0 * t   # the pool receives +0.5 W from the circulation; body blood sums to zero
+    with h5py.File(path, "w") as f:
+        f.attrs["case"] = CASE
+        f.attrs["title"] = "report test (invented)"
+        f.attrs["complete"] = np.int32(1)
+        f.create_dataset("time", data=t).attrs["units"] = "s"
+        body = {c: sum(count[s] * flows[s][c] for s in flows) for c in ("metabolism", "blood", "convection", "solar")}
+        body["blood"] = body["blood"] + pool_blood
+        body["storage"] = sum(body.values())
+        # Exact integrals from 0 of each body flow (all ramps or the quadratic) [J].
+        cumulative = {
+            "metabolism": (10.0 + 2 * 1.0) * t + 0.5 * 0.002 * t**2,
+            "blood": 0 * t,
+            "convection": (-5.0 - 4.0) * t - 0.5 * 0.002 * t**2,
+            "solar": A_SOLAR * t**3 / 3.0,
+        }
+        for c, v in body.items():
+            f.create_dataset(f"body/heat_flow/{c}", data=v).attrs["units"] = "W"
+        for c, v in cumulative.items():
+            f.create_dataset(f"body/cumulative_heat/{c}", data=v).attrs["units"] = "J"
+        f.create_dataset("body/energy_balance_error", data=ERR_RATE * t).attrs["units"] = "J"
+        f.create_dataset("body/core_temperature", data=37.0 + 0.002 * t).attrs["units"] = "degC"
+        f.create_dataset("body/blood_temperature", data=37.0 + 0 * t).attrs["units"] = "degC"
+        skin = 33.0 + 2.0 * (1.0 - np.abs(t - 600.0) / 600.0)   # 33 -> 35 at 600 s -> 33
+        f.create_dataset("body/mean_skin_temperature", data=skin).attrs["units"] = "degC"
+        for name in flows:
+            g = f.create_group(f"segments/{name}")
+            for c, v in flows[name].items():
+                g.create_dataset(f"heat_flow/{c}", data=v).attrs["units"] = "W"
+            g.create_dataset("heat_flow/storage", data=sum(flows[name].values())).attrs["units"] = "W"
+            g.attrs["shape"] = "cylinder"
+        trunk = f["segments/trunk"]
+        trunk.create_dataset("radius", data=[0.005, 0.015, 0.025]).attrs["units"] = "m"
+        trunk.create_dataset("axial", data=[0.1]).attrs["units"] = "m"
+        lay = trunk.create_dataset("layer", data=np.array([0, 0, 1], dtype=np.int32))
+        lay.attrs["units"] = "1"
+        lay.attrs["layer_names"] = ["muscle", "fur"]
+        trunk.create_dataset("volume", data=[[1e-6, 3e-6, 5e-6]]).attrs["units"] = "m3"
+        temp = np.empty((len(t), 1, 3))
+        temp[:, 0, 0] = 39.0 + 0.001 * t      # mean tissue = (1 x cell 0 + 3 x cell 1) / 4
+        temp[:, 0, 1] = 35.0 + 0 * t
+        temp[:, 0, 2] = 10.0                  # coat: excluded from tissue min/mean
+        trunk.create_dataset("temperature", data=temp).attrs["units"] = "degC"
+        trunk.create_dataset("surface_temperature", data=temp[:, :, 2]).attrs["units"] = "degC"
+        leg = f["segments/leg"]
+        leg.create_dataset("radius", data=[0.002, 0.006]).attrs["units"] = "m"
+        leg.create_dataset("axial", data=[0.05, 0.15]).attrs["units"] = "m"
+        lay = leg.create_dataset("layer", data=np.array([0, 1], dtype=np.int32))
+        lay.attrs["units"] = "1"
+        lay.attrs["layer_names"] = ["muscle", "skin"]
+        leg.create_dataset("volume", data=[[1e-6, 1e-6], [1e-6, 1e-6]]).attrs["units"] = "m3"
+        temp = np.empty((len(t), 2, 2))
+        temp[:, 0, :] = 36.0
+        temp[:, 1, 0] = 34.0
+        temp[:, 1, 1] = 30.0 - 0.01 * t       # the coldest cell: below 25 degC from 500 s
+        leg.create_dataset("temperature", data=temp).attrs["units"] = "degC"
+        leg.create_dataset("surface_temperature", data=temp[:, :, 1]).attrs["units"] = "degC"
+
+
+def check_synthetic(tmp: Path):
+    h5 = tmp / "synthetic.h5"
+    write_synthetic(h5)
+    out = tmp / "syn.csv"
+    proc = run_report(h5, "--window", f"{T0:g},{T1:g}", "--above", "core=38", "skin=34", "trunk.max=39.5",
+                      "--below", "core=37.5", "leg.min=25", "trunk.min=30", "trunk.mean=310.15K", "--csv", out)
+    check(CAUTION in proc.stdout, "caution sentence missing from the report")
+    for unit in ("[W]", "[W/kg]", "°C", " s"):
+        check(unit in proc.stdout, f"unit {unit!r} missing from the report text")
+    rows = read_table(out)
+    span = T1 - T0
+
+    # Mean of a ramp a + b t over [T0, T1] is its value at the midpoint (exact calculus); the trapezoidal
+    # rule with linear interpolation at the window ends is exact for ramps (common practice, no source).
+    mid = 0.5 * (T0 + T1)
+    trunk, leg = rows["trunk"], rows["leg ×2"]
+    close(number(trunk["metabolism"]), 10.0 + 0.002 * mid, "trunk metabolism mean (ramp)")
+    close(number(leg["convection"]), 2 * (-2.0 - 0.001 * mid), "leg ×2 convection mean (count 2)")
+    close(number(leg["blood"]), 1.5, "leg ×2 blood mean")
+    check(trunk["method"] == "trapezoid", f"segment method {trunk['method']}")
+    # Blood pool = whole body − segments: +0.5 W of blood and the same as storage (by construction).
+    pool = rows.get("blood pool")
+    check(pool is not None, f"blood pool row missing: {list(rows)}")
+    if pool:
+        close(number(pool["blood"]), 0.5, "blood pool blood")
+        close(number(pool["storage"]), 0.5, "blood pool storage")
+        close(number(pool["metabolism"]), 0.0, "blood pool metabolism")
+    # Whole body from cumulative energies: (E(T1) − E(T0)) / (T1 − T0) of the exact integrals.
+    body = rows["whole body"]
+    check(body["method"] == "cumulative", f"whole-body method {body['method']}")
+    e_met = lambda t: 12.0 * t + 0.001 * t**2                          # noqa: E731
+    e_conv = lambda t: -9.0 * t - 0.001 * t**2                          # noqa: E731
+    e_sol = lambda t: A_SOLAR * t**3 / 3.0                              # noqa: E731
+    close(number(body["metabolism"]), (e_met(T1) - e_met(T0)) / span, "body metabolism from cumulative")
+    close(number(body["convection"]), (e_conv(T1) - e_conv(T0)) / span, "body convection from cumulative")
+    # Cubic energy, window ends inside output intervals: cubic Hermite interpolation through E and
+    # dE/dt reproduces a cubic exactly (Burden & Faires, Numerical Analysis, §3.4, from memory).
+    solar = (e_sol(T1) - e_sol(T0)) / span
+    close(number(body["solar"]), solar, "body solar (cubic energy) via Hermite", rtol=1e-12)
+    # The trapezoid on the same quadratic flow is not exact: the trunk row (same flow) differs.
+    check(abs(number(trunk["solar"]) - solar) > 1e-4 * solar, "trapezoid on a quadratic should be inexact")
+    # Storage = channel energies − change of the energy balance error (its definition: gains − stored).
+    gains = sum(number(body[c]) for c in ("metabolism", "blood", "convection", "solar"))
+    close(number(body["storage"]), gains - ERR_RATE, "body storage from energy balance error")
+    per_kg = rows["whole body per kg"]
+    close(number(per_kg["metabolism"]), number(body["metabolism"]) / 4.0, "W/kg with [body] mass 4 kg")
+
+    # Thresholds on piecewise-linear series: crossing times by hand.
+    th = read_table(out.with_name("syn.thresholds.csv"))
+    expect = {
+        # core = 37 + 0.002 t: above 38 from 500 s; below 37.5 until 250 s.
+        "core above": (1000.0 - 500.0, 500.0),
+        "core below": (250.0 - 50.0, 50.0),
+        # skin: triangle 33 -> 35 (600 s) -> 33: above 34 between 300 s and 900 s.
+        "skin above": (600.0, 300.0),
+        # leg coldest tissue cell 30 − 0.01 t: below 25 from 500 s.
+        "leg.min below": (500.0, 500.0),
+        # trunk tissue cells 39 + 0.001 t and 35 (coat at 10 excluded): min 35 never below 30;
+        # max above 39.5 from 500 s; mean (39 + 0.001 t + 3 x 35) / 4 = 36 + 0.00025 t below 37 throughout.
+        "trunk.min below": (0.0, None),
+        "trunk.max above": (500.0, 500.0),
+        "trunk.mean below": (T1 - T0, T0),
+    }
+    with open(out.with_name("syn.thresholds.csv"), newline="", encoding="utf-8") as fh:
+        table = list(csv.DictReader(fh))
+    got = {f"{r['key']} {r['condition']}": r for r in table}
+    check(len(th) >= 1 and set(got) == set(expect), f"threshold rows {sorted(got)}")
+    for key, (beyond, first) in expect.items():
+        r = got.get(key)
+        if r is None:
+            continue
+        close(number(r["time beyond [s]"]), beyond, f"{key}: time beyond", rtol=1e-12, atol=1e-9)
+        if first is None:
+            check(r["first reached at [s]"] == "", f"{key}: first reached {r['first reached at [s]']!r}, expected never")
+        else:
+            close(number(r["first reached at [s]"]), first, f"{key}: first reached", atol=1e-9)
+        close(number(r["share of window [1]"]), beyond / span, f"{key}: share of window", atol=1e-12)
+    mean_row = got.get("trunk.mean below")
+    if mean_row:
+        close(number(mean_row["threshold [degC]"]), 310.15 - 273.15, "310.15 K in degC (SI Brochure 2019, §2.3.1)")
+        # Mean tissue temperature with volumes 1 and 3 (coat excluded) at T1 (exact weighting).
+        close(number(mean_row["maximum in window [degC]"]), (39.0 + 0.001 * T1 + 3 * 35.0) / 4.0,
+              "trunk mean tissue temperature (volume-weighted, coat excluded)")
+
+
+# ---- 2. a real thermorph result -------------------------------------------------------------
+def trapezoid_mean(t, y, t0, t1):
+    """Trapezoidal mean on the outputs inside [t0, t1] (t0, t1 output times) [units of y]."""
+    sel = (t >= t0) & (t <= t1)
+    ts, ys = t[sel], y[sel]
+    return float(np.sum(0.5 * (ys[1:] + ys[:-1]) * np.diff(ts)) / (t1 - t0))
+
+
+def check_real(tmp: Path):
+    h5 = tmp / "quadruped.h5"
+    try:
+        proc = subprocess.run([THERMORPH, "run", str(ROOT / "cases" / "quadruped.toml"), "-o", str(h5), "--quiet",
+                               "--set", 'run.duration="30 min"', "--set", 'run.output_interval="1 min"',
+                               "--set", 'control.shivering.set_point="37.5 degC"'],
+                              capture_output=True, text=True)
+        check(proc.returncode == 0 and h5.is_file(), f"thermorph run failed: {proc.stderr[-1500:]}")
+    except OSError as err:
+        check(False, f"cannot run thermorph ({THERMORPH}): {err}; pass its path as the second argument")
+    if not h5.is_file():
+        return
+    out = tmp / "real.csv"
+    t0, t1 = 300.0, 1500.0   # output times, so the whole-body row is the plain energy difference
+    with h5py.File(h5, "r") as f:
+        time = f["time"][()]
+        core = f["body/core_temperature"][()]
+        case = tomllib.loads(f.attrs["case"])
+        mass = float(f["body"].attrs["mass"])
+        threshold = float(np.round(0.5 * (core.min() + core.max()), 3))
+    report_proc = run_report(h5, "--window", f"{t0:g},{t1:g}", "--above", f"core={threshold}",
+                             "--below", "ears.min=30", "--csv", out)
+    check(CAUTION in report_proc.stdout, "caution missing (real run)")
+    rows = read_table(out)
+    with h5py.File(h5, "r") as f:
+        i0, i1 = int(np.searchsorted(time, t0)), int(np.searchsorted(time, t1))
+        check(time[i0] == t0 and time[i1] == t1, "window ends are output times")
+        body = rows["whole body"]
+        gained = 0.0
+        for c in f["body/cumulative_heat"]:
+            e = f[f"body/cumulative_heat/{c}"][()]
+            expected = (e[i1] - e[i0]) / (t1 - t0)
+            gained += e[i1] - e[i0]
+            close(number(body[c]), expected, f"real: whole-body {c} = ΔE / Δt", rtol=1e-12, atol=1e-12)
+        err = f["body/energy_balance_error"][()]
+        close(number(body["storage"]), (gained - (err[i1] - err[i0])) / (t1 - t0), "real: whole-body storage",
+              atol=1e-12)
+        close(number(rows["whole body per kg"]["metabolism"]), number(body["metabolism"]) / mass,
+              "real: W/kg with the built body's mass")
+        check("shivering" in body, "real: shivering channel missing from the report")
+        # Segments: trapezoid of the stored flows of one copy, times the copies (count, times the
+        # parent's count: counts multiply down the tree), from the stored case.
+        entries = {e["name"]: e for e in case["segments"]}
+
+        def copies(name):
+            n = 1
+            while name:
+                n *= int(entries[name].get("count", 1))
+                name = entries[name].get("parent", "")
+            return n
+
+        parts = {c: 0.0 for c in f["body/heat_flow"]}
+        for name in f["segments"]:
+            n = copies(name)
+            label = name if n == 1 else f"{name} ×{n}"
+            check(label in rows, f"real: row {label!r} missing")
+            for c in f[f"segments/{name}/heat_flow"]:
+                expected = n * trapezoid_mean(time, f[f"segments/{name}/heat_flow/{c}"][()], t0, t1)
+                close(number(rows[label][c]), expected, f"real: {label} {c}", rtol=1e-12, atol=1e-13)
+                parts[c] += expected
+        # The quadruped has a central blood pool: the pool row closes segments to the whole body.
+        pool = rows.get("blood pool")
+        check(pool is not None, "real: blood pool row missing")
+        for c in parts:
+            body_trap = trapezoid_mean(time, f[f"body/heat_flow/{c}"][()], t0, t1)
+            if pool:
+                close(number(pool[c]), body_trap - parts[c], f"real: pool {c}", atol=1e-12)
+            # Trapezoid (1 min outputs) against the integrator's own energies: close, not equal (the
+            # shivering controller switches on within a few outputs, so 2 %).
+            close(body_trap, number(body[c]), f"real: trapezoid vs cumulative {c}", rtol=2e-2, atol=2e-3)
+    # Time above a threshold, by dense sampling of the linear interpolant (a second method):
+    # the measure of {t : interp(t) > T} on 2e6 points, accurate to the sample spacing.
+    dense = np.linspace(t0, t1, 2_000_001)
+    above = float(np.mean(np.interp(dense, time, core) > threshold) * (t1 - t0))
+    th = read_table(out.with_name("real.thresholds.csv"))
+    close(number(th["core"]["time beyond [s]"]), above, "real: time above the core threshold", atol=2e-3)
+    crossing = dense[np.argmax(np.interp(dense, time, core) >= threshold)]
+    if np.interp(t0, time, core) < threshold and above > 0:
+        close(number(th["core"]["first reached at [s]"]), crossing, "real: first time at the core threshold",
+              atol=2e-3)
+
+
+# ---- 3. bad arguments -----------------------------------------------------------------------
+def check_errors(tmp: Path):
+    h5 = tmp / "synthetic.h5"
+    cases = [
+        (["--above", "liver=40"], "unknown temperature 'liver'"),
+        (["--above", "core=warm"], "bad temperature 'warm'"),
+        (["--below", "core"], "expected KEY=TEMP"),
+        (["--window", "0,2h"], "outside the run"),
+        (["--window=-10,100"], "outside the run"),
+        (["--window", "500,100"], "end must come after the start"),
+        (["--window", "1,2,3"], "expected two times"),
+        (["--window", "1,soon"], "bad time 'soon'"),
+        (["--segments", "tial"], "no segment tial"),
+    ]
+    for args, message in cases:
+        proc = run_report(h5, *args, expect=2)
+        check(message in proc.stderr, f"report {' '.join(args)}: message {proc.stderr.strip()!r} lacks {message!r}")
+        check("valid keys" in proc.stderr or args[0] != "--above" or "liver" not in args[1],
+              "unknown key message should list the valid keys")
+    run_report(tmp / "missing.h5", expect=2)
+
+
+def main() -> int:
+    with tempfile.TemporaryDirectory(prefix="thermorph_report_") as name:
+        tmp = Path(name)
+        check_synthetic(tmp)
+        check_errors(tmp)
+        check_real(tmp)
+    if FAILURES:
+        print(f"test_report: {len(FAILURES)} check(s) failed")
+        return 1
+    print("test_report: all checks passed")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
