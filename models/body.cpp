@@ -178,9 +178,9 @@ void Body::buildControllers() {
   };
   const ControlSpec& cs = case_.control;
   if (cs.vasomotor.present) {
-    skinControl_ = add(cs.vasomotor, 0, "vasomotor skin perfusion", 1.0, cs.vasomotor.gain, cs.vasomotor.lower,
+    skinControl_ = add(cs.vasomotor, 0, "vasomotor_skin_perfusion", 1.0, cs.vasomotor.gain, cs.vasomotor.lower,
                        cs.vasomotor.upper, 1.0);
-    shuntControl_ = add(cs.vasomotor, 0, "vasomotor shunts", 0.0, cs.vasomotor.shuntGain, 0.0, 1.0, 1.0);
+    shuntControl_ = add(cs.vasomotor, 0, "vasomotor_shunts", 0.0, cs.vasomotor.shuntGain, 0.0, 1.0, 1.0);
   }
   if (cs.shivering.present)
     shiverControl_ = add(cs.shivering, 1, "shivering", 0.0, -cs.shivering.gain, 0.0, 1.0, 0.0);

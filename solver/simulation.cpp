@@ -26,16 +26,18 @@ std::string nowIso() {
   return buffer;
 }
 
-//! /events: start, end [s] and label of every event, for shading in figures.
+//! /events: start, end [s] and label of every labelled event, for shading in figures.
 void writeEvents(ResultsFile& f, const Case& c) {
-  if (c.events.empty()) return;
+  // Labelled events only: weather-file rows and unlabelled changes are not intervals to shade.
   std::vector<double> start, end;
   std::vector<std::string> labels;
   for (const EventSpec& e : c.events) {
+    if (e.label.empty()) continue;
     start.push_back(e.at);
     end.push_back(std::min(e.at + e.span, c.run.duration));
-    labels.push_back(e.label.empty() ? fmt::format("event at {:g} s", e.at) : e.label);
+    labels.push_back(e.label);
   }
+  if (labels.empty()) return;
   f.writeArray("/events/start", start, {start.size()}, "s");
   f.writeArray("/events/end", end, {end.size()}, "s");
   f.writeStringArray("/events/label", labels);
@@ -78,6 +80,11 @@ class Recorder {
     f.setAttribute("/body", "cardiac_output", body.cardiacOutput());
     f.setAttribute("/body", "basal_metabolic_rate", body.basalMetabolicRate());
     writeEvents(f, body.spec());
+    for (const Controller& c : network_.controllers) {
+      control_.push_back(f.createSeries("/control/" + c.name, {}, "1"));
+      f.setAttribute("/control/" + c.name, "definition",
+                     fmt::format("controller state (multiplier or open fraction), limits {:g} to {:g}", c.lower, c.upper));
+    }
     for (const EnvironmentSeries& e : body.environment().series())
       environment_.push_back(f.createSeries("/environment/" + e.name, {}, e.units));
     for (const SegmentMesh& m : body.segments()) {
@@ -134,6 +141,7 @@ class Recorder {
     for (Index g = 0; g < groups; ++g) storage += network_.groupWeights[g] * summary.storage[g];
     f.append(bodyStorage_, {&storage, 1});
     f.append(balance_, {&summary.energyBalanceError, 1});
+    for (std::size_t k = 0; k < control_.size(); ++k) f.append(control_[k], {&summary.controls[k], 1});
     environmentValues_.resize(environment_.size());
     body_.environment().seriesValues(t, environmentValues_);
     for (std::size_t e = 0; e < environment_.size(); ++e) f.append(environment_[e], {&environmentValues_[e], 1});
@@ -239,7 +247,7 @@ class Recorder {
   std::unique_ptr<ResultsFile> file_;
   OutputObserver observer_;
   std::size_t time_ = 0, bodyStorage_ = 0, balance_ = 0, core_ = 0, blood_ = 0, skin_ = 0;
-  std::vector<std::size_t> bodyFlow_, bodyEnergy_, environment_;
+  std::vector<std::size_t> bodyFlow_, bodyEnergy_, environment_, control_;
   std::vector<Segment> segments_;
   std::vector<double> faceTemperatures_, buffer_, environmentValues_;
   std::string incompletePath_;

@@ -213,8 +213,8 @@ environment = { temperature = "42 degC" }
 at = "300 min"
 environment = { temperature = "20 degC" }
 )toml");
-  const Index skin = controllerIndex(body->network(), "vasomotor skin perfusion");
-  const Index shunt = controllerIndex(body->network(), "vasomotor shunts");
+  const Index skin = controllerIndex(body->network(), "vasomotor_skin_perfusion");
+  const Index shunt = controllerIndex(body->network(), "vasomotor_shunts");
   Trace trace = traceRun(*body);
   auto at = [&](double t) {
     for (std::size_t i = 0; i < trace.time.size(); ++i)
@@ -279,8 +279,8 @@ control = { vasomotor = { set_point = "36.5 degC" }, panting = { set_point = "36
     const char* name;
     double before, after, tau;
   };
-  const Expected expected[] = {{"vasomotor skin perfusion", 1.0, 1.5, 120.0},
-                               {"vasomotor shunts", 0.0, 0.5, 120.0},
+  const Expected expected[] = {{"vasomotor_skin_perfusion", 1.0, 1.5, 120.0},
+                               {"vasomotor_shunts", 0.0, 0.5, 120.0},
                                {"panting", 1.0, 1.6, 45.0}};
   Trace trace = traceRun(*body);
   for (const Expected& e : expected) {
@@ -332,7 +332,7 @@ at = "20 min"
 control = { vasomotor = { enabled = "on" } }
 )toml");
   const Network& n = body->network();
-  const Index skin = controllerIndex(n, "vasomotor skin perfusion"), shunt = controllerIndex(n, "vasomotor shunts");
+  const Index skin = controllerIndex(n, "vasomotor_skin_perfusion"), shunt = controllerIndex(n, "vasomotor_shunts");
   const double tau = 120.0;
   // Piecewise response: stretches (start, target) for the skin and shunt states, starting values carried over.
   struct Stretch {
