@@ -32,10 +32,11 @@ case "$action" in
   build) ;;
   demo)
     mkdir -p results
-    build/thermorph check cases/limb_cooling.toml
-    build/thermorph run cases/limb_cooling.toml -o results/limb_cooling.h5
-    "$python" postproc/figures.py results/limb_cooling.h5 --out results/figures
-    echo "Demo results in results/limb_cooling.h5, figures in results/figures/"
+    build/thermorph check cases/hare_ears.toml
+    build/thermorph run cases/hare_ears.toml -o results/hare_ears.h5
+    "$python" postproc/report.py results/hare_ears.h5 --window 2h,4h --above core=41
+    "$python" postproc/figures.py results/hare_ears.h5 --out results/figures
+    echo "Demo results in results/hare_ears.h5, figures in results/figures/ (model estimates for research)"
     ;;
   test)
     ctest --test-dir build --output-on-failure -j"$jobs"
