@@ -110,13 +110,14 @@ Body::Body(const Case& c) : case_(c) {
   if (case_.body.mass) bodyMass_ = *case_.body.mass;
   attachChildren();
   scaleMetabolism();
-  const bool breathing = !case_.body.respiratorySegment.empty() &&
-                         !environment_->immersed(index.at(case_.body.respiratorySegment));
-  physiology_ = std::make_unique<PhysiologyModel>(case_, *environment_, basalRate_, breathing);
+  // Respiration when a respiratory segment is named; it pauses while that segment is in water (checked at each
+  // time by the physiology model).
+  const Index respiratory = case_.body.respiratorySegment.empty() ? none : index.at(case_.body.respiratorySegment);
+  physiology_ = std::make_unique<PhysiologyModel>(case_, *environment_, basalRate_, respiratory);
   basalRate_ *= case_.body.activity;  // reported with the static activity
   network_.schedules = physiology_.get();
   buildControllers();
-  addMetabolicModulation(breathing ? index.at(case_.body.respiratorySegment) : none);
+  addMetabolicModulation(respiratory);
   buildCirculation();
 }
 

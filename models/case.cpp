@@ -40,8 +40,10 @@ namespace {
 //! Index of the element named `component` (or numbered), or the array size when there is none.
 std::size_t findArrayElement(const toml::array& array, const std::string& component) {
   for (std::size_t i = 0; i < array.size(); ++i)
-    if (auto* t = array[i].as_table())
+    if (auto* t = array[i].as_table()) {
       if (auto name = (*t)["name"].value<std::string>(); name && *name == component) return i;
+      if (auto label = (*t)["label"].value<std::string>(); label && *label == component) return i;  // events
+    }
   if (!component.empty() && std::all_of(component.begin(), component.end(), ::isdigit)) {
     std::size_t index = std::stoul(component);
     if (index < array.size()) return index;

@@ -7,8 +7,8 @@
 namespace thermorph {
 
 PhysiologyModel::PhysiologyModel(const Case& c, const EnvironmentModel& environment, double basalRate,
-                                 bool breathing)
-    : case_(c), environment_(environment), basalRate_(basalRate), breathing_(breathing) {
+                                 Index respiratorySegment)
+    : case_(c), environment_(environment), basalRate_(basalRate), respiratorySegment_(respiratorySegment) {
   auto track = [](double v) { return Track{v, v, 0.0}; };
   for (const SegmentSpec& s : c.segments) {
     skin_.push_back(track(s.vasomotor.skinPerfusion));
@@ -87,9 +87,10 @@ void PhysiologyModel::setInterval(std::size_t interval) {
 }
 
 double PhysiologyModel::respiratoryLoss(double time, double pantingMultiplier) const {
-  if (!breathing_) return 0.0;
-  // Inspired air: the air around the animal (the medium, or the air above water).
-  const bool air = case_.environment.medium == SurroundingMedium::Air;
+  // No breathing without a respiratory segment, or while it is under water (a breath hold).
+  if (respiratorySegment_ == none || environment_.immersed(respiratorySegment_, time)) return 0.0;
+  // Inspired air: the air around the animal (the medium of the current interval, or the air above water).
+  const bool air = environment_.medium() == SurroundingMedium::Air;
   const double inspired = environment_.value(air ? EnvironmentVariable::Temperature : EnvironmentVariable::AirTemperature, time);
   const double humidity = environment_.value(EnvironmentVariable::RelativeHumidity, time);
   const double metabolic = basalRate_ * activity_.at(time) * hypometabolism_.at(time);

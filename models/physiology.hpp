@@ -31,7 +31,8 @@ class PhysiologyModel : public ScheduleModel {
     Index controller = 0;  //!< 0 vasomotor, 1 shivering, 2 panting
   };
 
-  PhysiologyModel(const Case& c, const EnvironmentModel& environment, double basalRate, bool breathing);
+  //! `respiratorySegment`: the segment that breathes (none: no respiration).
+  PhysiologyModel(const Case& c, const EnvironmentModel& environment, double basalRate, Index respiratorySegment);
 
   Index add(const Schedule& schedule);
   double value(Index schedule, double time) const override;
@@ -52,7 +53,7 @@ class PhysiologyModel : public ScheduleModel {
   const Case& case_;
   const EnvironmentModel& environment_;
   double basalRate_;
-  bool breathing_;
+  Index respiratorySegment_;
   std::vector<Schedule> schedules_;
   std::vector<Track> skin_, shunt_, superficial_;  //!< per segment
   Track activity_, hypometabolism_, bradycardia_, panting_;
