@@ -371,6 +371,12 @@ RunRow unpackRow(std::string_view in) {
   return row;
 }
 
+int launcherWorldSize() {
+  for (const char* name : {"OMPI_COMM_WORLD_SIZE", "PMI_SIZE", "MV2_COMM_WORLD_SIZE"})
+    if (const char* value = std::getenv(name)) return std::max(1, std::atoi(value));
+  return 1;
+}
+
 bool launchedUnderMpi() {
   for (const char* name : {"OMPI_COMM_WORLD_SIZE", "PMIX_RANK", "PMI_RANK", "PMI_SIZE", "MV2_COMM_WORLD_SIZE"})
     if (std::getenv(name)) return true;
@@ -417,7 +423,8 @@ bool sweepHasMpi() { return false; }
 #endif
 
 int runSweepCommand(const SweepOptions& options) {
-  if (launchedUnderMpi()) return runSweepMpi(options);  // every rank plans after MPI_Init
+  // Every rank plans after MPI_Init. Without MPI support, a launcher with one process runs locally.
+  if (launchedUnderMpi() && (sweepHasMpi() || launcherWorldSize() > 1)) return runSweepMpi(options);
   SweepPlan plan = makeSweepPlan(options);
   if (options.list) {
     listRuns(plan);

@@ -60,6 +60,8 @@ class SweepSession {
 
 //! True when started by an MPI launcher (mpirun, mpiexec, srun with PMIx/PMI).
 bool launchedUnderMpi();
+//! Number of processes the launcher started, from its environment (1 when unknown).
+int launcherWorldSize();
 
 //! A row as bytes for a message, and back.
 std::string packRow(const RunRow& row);
