@@ -1,4 +1,4 @@
-//! thermorph command-line driver: run, steady, check, reference, sweep.
+//! thermorph command-line driver: run, steady, check, reference.
 #include <CLI/CLI.hpp>
 
 #include <cstdio>
