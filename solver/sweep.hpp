@@ -16,7 +16,7 @@ namespace thermorph {
 
 //! One swept quantity: a case key (or a size-series target) and its values.
 struct SweepAxis {
-  std::string key;                 //!< case key path ("segments.ears.length"), or "scale.NAME" / "scale.body"
+  std::string key;                 //!< case key path ("segments.NAME.length"), or "scale.NAME" / "scale.body"
   bool scale = false;              //!< a geometric size factor of a segment or of the whole body
   std::string target;              //!< scale: segment name or "body"
   std::string spec;                //!< as given on the command line

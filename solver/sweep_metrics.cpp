@@ -151,14 +151,15 @@ void MetricCollector::sample(std::span<const double> y, const RunSummary& s) {
     }
   current_[k++] = skin / area - kelvinOffset;
   for (const SegmentMesh& m : body_.segments()) {
-    double tissue = 0.0, tissueVolume = 0.0;
+    // Volume mean over the cells inside the outermost body cell (the coat excluded).
+    double weighted = 0.0, cellVolume = 0.0;
     for (int iz = 0; iz < m.nz; ++iz)
       for (int ir = 0; ir <= m.skinCell; ++ir) {
         double v = m.volume[static_cast<std::size_t>(iz * m.nr + ir)];
-        tissue += v * y[m.node(iz, ir)];
-        tissueVolume += v;
+        weighted += v * y[m.node(iz, ir)];
+        cellVolume += v;
       }
-    current_[k++] = tissue / tissueVolume - kelvinOffset;
+    current_[k++] = weighted / cellVolume - kelvinOffset;
   }
   for (std::size_t g = 0; g < body_.segments().size(); ++g) {
     for (std::size_t c = 0; c < channels; ++c) current_[k++] = s.flows[g * channels + c];

@@ -11,7 +11,7 @@ namespace thermorph {
 
 //! One column of the sweep table.
 struct MetricColumn {
-  std::string name;        //!< "body.heat_flow.convection", "segments.ears.mean_temperature.max", ...
+  std::string name;        //!< "body.heat_flow.convection", "segments.NAME.mean_temperature.max", ...
   std::string units;       //!< "W", "degC", "s"
   std::string definition;  //!< one line for the table's attributes
 };

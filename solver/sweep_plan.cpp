@@ -41,7 +41,7 @@ std::pair<std::string, std::string> keyValue(const std::string& text, const char
   return {trim(text.substr(0, eq)), trim(text.substr(eq + 1))};
 }
 
-//! The schema entry of a key path ("segments.ears.layers.1.thickness" -> "segments[].layers[].thickness").
+//! The schema entry of a key path ("segments.NAME.layers.1.thickness" -> "segments[].layers[].thickness").
 const Param* schemaEntry(const std::string& key) {
   std::vector<std::string> parts = split(key, '.');
   std::string pattern;
