@@ -225,7 +225,10 @@ void Body::addMetabolicModulation(Index respiratorySegment) {
       for (int ir = 0; ir < m.innermostLayerCells; ++ir) volume += m.weight * m.volume[static_cast<std::size_t>(iz * m.nr + ir)];
     for (int iz = 0; iz < m.nz; ++iz)
       for (int ir = 0; ir < m.innermostLayerCells; ++ir)
-        network_.sources.push_back({m.node(iz, ir), -m.volume[static_cast<std::size_t>(iz * m.nr + ir)] / volume, 1.0,
+        // Ventilation follows metabolism: the loss carries the Q10 of the layer's tissue, so it falls with the
+        // metabolic rate of a cooling body instead of draining it at the basal rate.
+        network_.sources.push_back({m.node(iz, ir), -m.volume[static_cast<std::size_t>(iz * m.nr + ir)] / volume,
+                                    case_.tissues.at(case_.segments[respiratorySegment].layers.front().tissue).q10,
                                     case_.body.q10Reference, channel, respiration});
   }
 }

@@ -210,6 +210,15 @@ NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, do
 }
 
 void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<double> out) const {
+  time = at(time);
+  // A body without a stable state (e.g. Q10 metabolism outrunning its losses) leaves any sensible range long
+  // before the numbers fail: stop with a message that says so.
+  for (Index i = 0; i < nodes_; ++i)
+    if (!(T[i] > 150.0 && T[i] < 450.0))
+      throw std::runtime_error(fmt::format(
+          "temperature {:.5g} K at {} is outside 150-450 K: the body has no stable state here (for example Q10 "
+          "metabolism outrunning the heat losses of a body without thermoregulation, or a cooling runaway)",
+          T[i], network_.nodes[i].label));
   const bool transient = mode_ == Mode::Transient;
   std::fill(out.begin(), out.end(), 0.0);
   std::span<double> acc = transient ? out.subspan(nodes_ + controls_, channels_) : std::span<double>();
@@ -257,6 +266,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
 }
 
 void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<double> values) const {
+  time = at(time);
   const bool transient = mode_ == Mode::Transient;
   std::fill(values.begin(), values.end(), 0.0);
   modulatorValues(time, T, modulators_);
@@ -347,6 +357,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
 
 void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span<double> flows,
                                std::span<double> storage, std::span<double> faceTemperatures) const {
+  time = at(time);
   std::fill(flows.begin(), flows.end(), 0.0);
   std::fill(storage.begin(), storage.end(), 0.0);
   modulatorValues(time, T, modulators_);

@@ -1,5 +1,6 @@
 #pragma once
 //! Assembles a thermal network into heat rates, dT/dt and a sparse CSC Jacobian through an index map built once.
+#include <optional>
 #include <span>
 #include <vector>
 
@@ -43,6 +44,9 @@ class NetworkSystem {
 
   //! Stored heat sum w C T of the nodes (weighted by group multiplicity) [J].
   double storedHeat(std::span<const double> state) const;
+  //! Evaluate every term at this time whatever time the caller passes (steady states of the t = 0 surroundings
+  //! found by integrating in pseudo-time); nullopt: use the caller's time.
+  void freezeTime(std::optional<double> time) { frozenTime_ = time; }
   //! Modulator values m_k(t, u) for the state [modulators].
   void modulatorValues(double time, std::span<const double> state, std::span<double> values) const;
 
@@ -76,6 +80,8 @@ class NetworkSystem {
   std::vector<Index> controlSlots_;       //!< per controller: (u,u), then (u,node) per signal entry
   mutable std::vector<double> faceGuess_;  //!< last face temperatures, Newton start values
   mutable std::vector<double> scratchHeat_, scratchDerivative_, modulators_;
+  std::optional<double> frozenTime_;
+  double at(double time) const { return frozenTime_ ? *frozenTime_ : time; }
 };
 
 }  // namespace thermorph

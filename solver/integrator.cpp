@@ -81,6 +81,8 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
   check(CVodeInit(mem, &Integrator::rhsCallback, initialTime, state_.get()), "CVodeInit");
   check(CVodeSVtolerances(mem, options.rtol, tolerances_.get()), "CVodeSVtolerances");
   check(CVodeSetUserData(mem, this), "CVodeSetUserData");
+  // CVODE's own messages go into the failure message, not straight to stderr (sweeps run many solvers).
+  check(CVodeSetErrHandlerFn(mem, &Integrator::errorHandler, this), "CVodeSetErrHandlerFn");
   check(CVodeSetMaxNumSteps(mem, 1'000'000), "CVodeSetMaxNumSteps");
   check(CVodeSetMaxOrd(mem, options.maxOrder), "CVodeSetMaxOrd");
   if (options.maxStep > 0.0) check(CVodeSetMaxStep(mem, options.maxStep), "CVodeSetMaxStep");
@@ -106,6 +108,10 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
 Integrator::~Integrator() = default;
 
 std::span<const double> Integrator::state() const { return view(state_.get()); }
+
+void Integrator::errorHandler(int, const char*, const char*, char* message, void* self) {
+  static_cast<Integrator*>(self)->lastMessage_ = message ? message : "";
+}
 
 int Integrator::rhsCallback(double t, N_Vector y, N_Vector ydot, void* user) {
   auto* self = static_cast<Integrator*>(user);
@@ -141,6 +147,7 @@ std::string Integrator::failureMessage(int flag) const {
   CVodeGetCurrentTime(mem, &reached);
   std::string message = fmt::format("CVODE failed with {} ({}) at t = {:.6g} s", CVodeGetReturnFlagName(flag), flag,
                                     reached);
+  if (!lastMessage_.empty()) message += " (" + lastMessage_ + ")";
   // Name the components with the largest weighted local error.
   const auto n = static_cast<sunindextype>(system_.size());
   detail::Handle<_generic_N_Vector> weights(N_VNew_Serial(n, context_.get()));
@@ -274,6 +281,8 @@ std::vector<double> solveSteadyState(const NetworkSystem& system, std::span<cons
   detail::SolverMemory mem(checkCreated(KINCreate(raw), "KINSOL memory"), detail::MemoryDeleter{KINFree});
   check(KINInit(mem.get(), steadyResidual, u.get()), "KINInit");
   check(KINSetUserData(mem.get(), &problem), "KINSetUserData");
+  check(KINSetErrHandlerFn(mem.get(), [](int, const char*, const char*, char*, void*) {}, nullptr),
+        "KINSetErrHandlerFn");
   check(KINSetLinearSolver(mem.get(), LS.get(), J.get()), "KINSetLinearSolver");
   check(KINSetJacFn(mem.get(), steadyJacobian), "KINSetJacFn");
   check(KINSetFuncNormTol(mem.get(), 1e-11), "KINSetFuncNormTol");

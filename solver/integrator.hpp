@@ -112,6 +112,8 @@ class Integrator {
   static int jacobianCallback(double t, _generic_N_Vector* y, _generic_N_Vector* fy, _generic_SUNMatrix* J,
                               void* self, _generic_N_Vector*, _generic_N_Vector*, _generic_N_Vector*);
   std::string failureMessage(int flag) const;
+  static void errorHandler(int code, const char* module, const char* function, char* message, void* self);
+  std::string lastMessage_;
   void checkFinite(std::span<const double> values, const char* what) const;
 
   const NetworkSystem& system_;

@@ -258,9 +258,45 @@ std::string incompleteName(const std::string& output) {
   return (p.parent_path() / (p.stem().string() + ".incomplete" + p.extension().string())).string();
 }
 
+//! Steady state of the surroundings and physiology at t = 0 [K and controller states]. Newton alone may land on
+//! an unstable branch (Q10 metabolism can balance large losses at a runaway temperature) or wander to
+//! unphysical iterates, so the state is first relaxed in pseudo-time by CVODE with time frozen at 0, from the
+//! guess until it changes by less than 1e-7 K/s, then polished by KINSOL: the steady state reached is the
+//! stable one the body would settle in from that start.
 std::vector<double> steadyTemperatures(const Body& body, std::span<const double> guess, SolverStatistics* stats) {
+  NetworkSystem transient(body.network(), NetworkSystem::Mode::Transient);
+  transient.freezeTime(0.0);
+  const Index states = transient.nodeCount() + transient.controlCount();
+  std::vector<double> y(transient.size(), 0.0);
+  std::copy(guess.begin(), guess.end(), y.begin());
+  IntegratorOptions io;
+  io.rtol = 1e-6;
+  io.atol.assign(transient.size(), 1e-4);
+  for (Index i = states; i < transient.size(); ++i) io.atol[i] = 1e30;
+  Integrator relax(transient, y, 0.0, io);
+  std::vector<double> rate(transient.size());
+  double horizon = 600.0;
+  for (int k = 0; k < 40 && horizon < 1e10; ++k, horizon *= 2.0) {
+    relax.setStopTime(horizon);
+    relax.advanceTo(horizon);
+    transient.evaluate(horizon, relax.state(), rate);
+    double fastest = 0.0;
+    for (Index i = 0; i < transient.nodeCount(); ++i) fastest = std::max(fastest, std::abs(rate[i]));
+    if (fastest < 1e-7) break;
+  }
+  std::vector<double> start(relax.state().begin(), relax.state().begin() + static_cast<std::ptrdiff_t>(states));
   NetworkSystem steady(body.network(), NetworkSystem::Mode::Steady);
-  return solveSteadyState(steady, guess, 0.0, stats);
+  steady.freezeTime(0.0);
+  std::vector<double> result = solveSteadyState(steady, start, 0.0, stats);
+  if (stats) {
+    SolverStatistics r = relax.statistics();
+    stats->steps = r.steps;
+    stats->rhsEvaluations += r.rhsEvaluations;
+    stats->jacobianEvaluations += r.jacobianEvaluations;
+    stats->nonlinearIterations += r.nonlinearIterations;
+    stats->wallSeconds += r.wallSeconds;
+  }
+  return result;
 }
 
 }  // namespace

@@ -283,6 +283,8 @@ initial_temperature = "37 degC"
 [body]
 basal_metabolic_rate = "10 W"
 respiratory_segment = "head"
+[tissues.brain]
+q10 = 1   # the respiratory loss carries the Q10 of the respiratory layer: 1 keeps it a function of the air alone
 [[segments]]
 name = "trunk"
 shape = "cylinder"
