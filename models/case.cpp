@@ -424,6 +424,17 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   c.body.respiratorySegment = bodyTable.optionalText("respiratory_segment").value_or("");
   c.body.exhaledTemperature = bodyTable.quantity("exhaled_temperature");
   readControl(top, c);
+  TableView sweep = top.child("sweep");
+  if (auto metrics = sweep.optionalText("metrics")) {
+    std::stringstream ss(*metrics);
+    for (std::string item; std::getline(ss, item, ',');) {
+      item.erase(0, item.find_first_not_of(" \t"));
+      item.erase(item.find_last_not_of(" \t") + 1);
+      if (!item.empty()) c.sweep.metrics.push_back(item);
+    }
+  }
+  c.sweep.window = sweep.optionalText("window").value_or("");
+  c.sweep.steady = sweep.choice("mode") == "steady";
 
   readTissues(reader, top, c);
 
@@ -527,6 +538,12 @@ std::string resolvedCaseToml(const Case& c) {
   body.insert("exhaled_temperature", c.body.exhaledTemperature);
   root.insert("body", body);
   if (toml::table control = controlToml(c.control); !control.empty()) root.insert("control", control);
+  {
+    toml::table sweep{{"mode", c.sweep.steady ? "steady" : "transient"}};
+    if (!c.sweep.metrics.empty()) sweep.insert("metrics", fmt::format("{}", fmt::join(c.sweep.metrics, ", ")));
+    if (!c.sweep.window.empty()) sweep.insert("window", c.sweep.window);
+    root.insert("sweep", sweep);
+  }
 
   // Only the tissues the body uses, each fully specified.
   std::set<std::string> used;

@@ -120,6 +120,13 @@ struct ControllerSpec {
   bool enabled = true;
 };
 
+//! Defaults of `thermorph sweep` from the case ([sweep]).
+struct SweepSpec {
+  std::vector<std::string> metrics;  //!< selectors, as --metric
+  std::string window;                //!< "START:END"
+  bool steady = false;
+};
+
 struct ControlSpec {
   ControllerSpec vasomotor, shivering, panting;
 };
@@ -131,6 +138,7 @@ struct Case {
   CirculationSpec circulation;
   BodySpec body;
   ControlSpec control;
+  SweepSpec sweep;
   std::map<std::string, TissueProperties> tissues;  //!< built-ins merged with [tissues.*]
   std::vector<SegmentSpec> segments;
   EnvironmentSpec environment;

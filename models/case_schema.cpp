@@ -250,6 +250,15 @@ constexpr std::array params = {
     Param{"events[].control.*.enabled", K::Choice, "", "", 0, 0, false, "on|off", "Switch the controller on or off."},
     Param{"events[].control.*.set_point", K::Quantity, "K", "", tMin, tMax, false, "", "New set point."},
 
+    Param{"sweep", K::Table, "", "", 0, 0, false, "",
+          "Defaults for `thermorph sweep` (command-line options win): what each run reports."},
+    Param{"sweep.metrics", K::Text, "", "", 0, 0, false, "",
+          "Comma-separated metric selectors as for --metric, e.g. \"body.heat_flow, segments.ears.heat_flow, "
+          "time_to:body.core_temperature<35 degC\"."},
+    Param{"sweep.window", K::Text, "", "", 0, 0, false, "", "Averaging window START:END, e.g. \"30 min:1 h\"."},
+    Param{"sweep.mode", K::Choice, "", "transient", 0, 0, false, "transient|steady",
+          "Report the transient run, or each run's steady state."},
+
     Param{"control", K::Table, "", "", 0, 0, false, "",
           "Feedback controllers: proportional control about a set point with limits and a first-order lag "
           "(the common form in thermoregulation models). Defaults are illustrative."},

@@ -295,7 +295,10 @@ std::vector<std::string> runOverrides(const SweepPlan& plan, std::size_t run) {
   return out;
 }
 
-SweepPlan makeSweepPlan(const SweepOptions& options) {
+static SweepPlan finishSweepPlan(SweepPlan plan, const SweepOptions& options, const Case& base);
+
+SweepPlan makeSweepPlan(const SweepOptions& commandLine) {
+  const SweepOptions& options = commandLine;  // until the case is read
   SweepPlan plan;
   plan.casePath = options.casePath;
   std::ifstream in(options.casePath, std::ios::binary);
@@ -308,6 +311,15 @@ SweepPlan makeSweepPlan(const SweepOptions& options) {
   plan.steady = options.steady;
 
   const Case base = loadCaseFromString(plan.caseText, plan.casePath, plan.overrides);
+  // [sweep] in the case gives defaults; the command line wins.
+  SweepOptions withCase = commandLine;
+  if (withCase.metrics.empty()) withCase.metrics = base.sweep.metrics;
+  if (withCase.window.empty()) withCase.window = base.sweep.window;
+  plan.steady = commandLine.steady || base.sweep.steady;
+  return finishSweepPlan(std::move(plan), withCase, base);
+}
+
+static SweepPlan finishSweepPlan(SweepPlan plan, const SweepOptions& options, const Case& base) {
   plan.title = base.title;
   plan.resolvedCase = resolvedCaseToml(base);
 

@@ -114,6 +114,29 @@ TEST_CASE("sweep plan: grid order, zip, bad keys", "[sweep]") {
   CHECK_THROWS_WITH(makeSweepPlan(o), Catch::Contains("matches no metric"));
 }
 
+TEST_CASE("sweep plan: [sweep] in the case gives metric and window defaults; the command line wins", "[sweep]") {
+  // Issue: metrics "chosen on the command line or in the case" (common practice, no source).
+  const std::string path = (std::filesystem::temp_directory_path() / "thermorph_sweep_defaults.toml").string();
+  {
+    std::ifstream in(quadruped);
+    std::ofstream out(path);
+    out << in.rdbuf() << "\n[sweep]\nmetrics = \"body.core_temperature.max, segments.ears.heat_flow.convection\"\n"
+        << "window = \"30 min:1 h\"\n";
+  }
+  SweepOptions o;
+  o.casePath = path;
+  o.vary = {"segments.ears.length=4 cm,8 cm"};
+  SweepPlan fromCase = makeSweepPlan(o);
+  REQUIRE(fromCase.columns.size() == 2);
+  CHECK(fromCase.columns[0].name == "body.core_temperature.max");
+  CHECK(fromCase.window.start == 1800.0);
+  o.metrics = {"body.heat_flow.metabolism"};
+  SweepPlan fromCommandLine = makeSweepPlan(o);
+  REQUIRE(fromCommandLine.columns.size() == 1);
+  CHECK(fromCommandLine.columns[0].name == "body.heat_flow.metabolism");
+  std::filesystem::remove(path);
+}
+
 TEST_CASE("sweep: metrics reproduce single runs bit for bit", "[sweep]") {
   Scratch scratch;
   SweepOptions o;
