@@ -66,6 +66,13 @@ void describe(const Body& body) {
              body.bodyMass(), body.bloodVolume() * 1e6, body.totalBloodFlow() * 6e7, body.cardiacOutput() * 6e7,
              body.basalMetabolicRate(),
              body.poolNode() ? "" : c.circulation.fixedArterialTemperature ? " (arterial supply pinned)" : " (no blood flow)");
+  std::string controllers;
+  for (const Controller& k : body.network().controllers)
+    controllers += fmt::format("{}{} (set point {:.4g} degC, lag {:g} s)", controllers.empty() ? "" : ", ", k.name,
+                               k.setpoint - 273.15, k.timeConstant);
+  fmt::print("Respiration: {}. Controllers: {}. Events: {}.\n",
+             c.body.respiratorySegment.empty() ? "off (no [body] respiratory_segment)" : "from " + c.body.respiratorySegment,
+             controllers.empty() ? "none" : controllers, c.events.size());
 }
 
 }  // namespace
