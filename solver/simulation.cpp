@@ -22,7 +22,9 @@ const char* caution =
 std::string nowIso() {
   std::time_t t = std::time(nullptr);
   char buffer[32];
-  std::strftime(buffer, sizeof buffer, "%Y-%m-%dT%H:%M:%SZ", std::gmtime(&t));
+  std::tm utc{};
+  gmtime_r(&t, &utc);  // thread safe (sweeps)
+  std::strftime(buffer, sizeof buffer, "%Y-%m-%dT%H:%M:%SZ", &utc);
   return buffer;
 }
 
