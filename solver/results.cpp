@@ -207,25 +207,28 @@ void ResultsFile::setAttribute(const std::string& object, const std::string& nam
   H5Oclose(obj);
 }
 
-void ResultsFile::setAttribute(const std::string& object, const std::string& name, double value) {
-  hid_t obj = openObject(object);
+namespace {
+//! A scalar numeric attribute of `object` (replaced when present).
+template <class T>
+void writeScalarAttribute(hid_t object, const std::string& name, hid_t type, T value) {
   hid_t space = H5Screate(H5S_SCALAR);
-  if (H5Aexists(obj, name.c_str()) > 0) H5Adelete(obj, name.c_str());
-  hid_t attr = H5Acreate2(obj, name.c_str(), H5T_NATIVE_DOUBLE, space, H5P_DEFAULT, H5P_DEFAULT);
-  H5Awrite(attr, H5T_NATIVE_DOUBLE, &value);
+  if (H5Aexists(object, name.c_str()) > 0) H5Adelete(object, name.c_str());
+  hid_t attr = H5Acreate2(object, name.c_str(), type, space, H5P_DEFAULT, H5P_DEFAULT);
+  H5Awrite(attr, type, &value);
   H5Aclose(attr);
   H5Sclose(space);
+}
+}  // namespace
+
+void ResultsFile::setAttribute(const std::string& object, const std::string& name, double value) {
+  hid_t obj = openObject(object);
+  writeScalarAttribute(obj, name, H5T_NATIVE_DOUBLE, value);
   H5Oclose(obj);
 }
 
 void ResultsFile::setAttribute(const std::string& object, const std::string& name, long value) {
   hid_t obj = openObject(object);
-  hid_t space = H5Screate(H5S_SCALAR);
-  if (H5Aexists(obj, name.c_str()) > 0) H5Adelete(obj, name.c_str());
-  hid_t attr = H5Acreate2(obj, name.c_str(), H5T_NATIVE_LONG, space, H5P_DEFAULT, H5P_DEFAULT);
-  H5Awrite(attr, H5T_NATIVE_LONG, &value);
-  H5Aclose(attr);
-  H5Sclose(space);
+  writeScalarAttribute(obj, name, H5T_NATIVE_LONG, value);
   H5Oclose(obj);
 }
 

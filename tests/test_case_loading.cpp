@@ -3,6 +3,7 @@
 
 #include <string>
 
+#include "test_common.hpp"
 #include "models/case.hpp"
 #include "models/units.hpp"
 
@@ -22,14 +23,6 @@ layers = [{ tissue = "bone", thickness = "0.5 cm", cells = 2 },
           { tissue = "muscle", thickness = "1 cm", cells = 4 }]
 )toml";
 
-std::string errorOf(const std::string& text, const std::vector<std::string>& overrides = {}) {
-  try {
-    loadCaseFromString(text, "case.toml", overrides);
-  } catch (const CaseError& e) {
-    return e.what();
-  }
-  return "no error";
-}
 
 }  // namespace
 
@@ -83,21 +76,21 @@ TEST_CASE("KEY=VALUE overrides (--set) change any key with the same checks", "[c
   CHECK(c.environment.temperature == Approx(278.15));
   CHECK(c.run.duration == 600.0);
   CHECK(c.segments[0].axialCells == 7);
-  std::string e = errorOf(minimal, {"segments.leg.layers.0.thickness=5 kg"});
+  std::string e = common::caseErrorOf(minimal, {"segments.leg.layers.0.thickness=5 kg"});
   CHECK_THAT(e, Catch::Contains("--set") && Catch::Contains("segments.leg.layers.0.thickness") &&
                     Catch::Contains("length"));
-  CHECK_THAT(errorOf(minimal, {"segments.arm.length=1"}), Catch::Contains("no element \"arm\"") && Catch::Contains("leg"));
+  CHECK_THAT(common::caseErrorOf(minimal, {"segments.arm.length=1"}), Catch::Contains("no element \"arm\"") && Catch::Contains("leg"));
 }
 
 TEST_CASE("bad input names file, line, key path, value and what is allowed", "[case][errors]") {
   // Wrong dimension.
-  std::string e = errorOf(minimal + "[environment]\ntemperature = \"5 kg\"\n");
+  std::string e = common::caseErrorOf(minimal + "[environment]\ntemperature = \"5 kg\"\n");
   CHECK_THAT(e, Catch::Contains("case.toml:12:15") && Catch::Contains("environment.temperature") &&
                     Catch::Contains("\"5 kg\"") && Catch::Contains("temperature"));
   // Unknown key with the nearest valid key.
-  e = errorOf(minimal + "[run]\nduraton = \"1 h\"\n");
+  e = common::caseErrorOf(minimal + "[run]\nduraton = \"1 h\"\n");
   CHECK_THAT(e, Catch::Contains("unknown key \"duraton\"") && Catch::Contains("did you mean \"duration\""));
-  e = errorOf(R"toml(
+  e = common::caseErrorOf(R"toml(
 [[segments]]
 name = "leg"
 shape = "cylinder"
@@ -107,7 +100,7 @@ layers = [{ tissue = "muscle", thickness = "1 cm" }]
   CHECK_THAT(e, Catch::Contains("case.toml:5:") && Catch::Contains("segments.leg.lenght") &&
                     Catch::Contains("did you mean \"length\""));
   // Unknown tissue, unknown shape.
-  e = errorOf(R"toml(
+  e = common::caseErrorOf(R"toml(
 [[segments]]
 name = "leg"
 shape = "cylinder"
@@ -116,7 +109,7 @@ layers = [{ tissue = "musle", thickness = "1 cm" }]
 )toml");
   CHECK_THAT(e, Catch::Contains("unknown tissue \"musle\"") && Catch::Contains("muscle") &&
                     Catch::Contains("segments.leg.layers.0.tissue"));
-  e = errorOf(R"toml(
+  e = common::caseErrorOf(R"toml(
 [[segments]]
 name = "leg"
 shape = "cube"
@@ -125,19 +118,19 @@ layers = [{ tissue = "muscle", thickness = "1 cm" }]
 )toml");
   CHECK_THAT(e, Catch::Contains("\"cube\" is not one of: sphere, cylinder, cone, plate"));
   // Non-positive sizes and properties.
-  e = errorOf(minimal + "[tissues.muscle]\nconductivity = -0.4\n");
+  e = common::caseErrorOf(minimal + "[tissues.muscle]\nconductivity = -0.4\n");
   CHECK_THAT(e, Catch::Contains("tissues.muscle.conductivity") && Catch::Contains("out of range") &&
                     Catch::Contains("> 0"));
-  e = errorOf(minimal, {"segments.leg.length=\"0 cm\""});
+  e = common::caseErrorOf(minimal, {"segments.leg.length=\"0 cm\""});
   CHECK_THAT(e, Catch::Contains("segments.leg.length") && Catch::Contains("out of range"));
   // A bare number for a temperature is kelvin: suggest degC.
-  e = errorOf(minimal + "[environment]\ntemperature = 20\n");
+  e = common::caseErrorOf(minimal + "[environment]\ntemperature = 20\n");
   CHECK_THAT(e, Catch::Contains("did you mean \"20 degC\""));
   // Too many cells: the limit is stated.
-  e = errorOf(minimal, {"segments.leg.axial_cells=100000", "segments.leg.layers.1.cells=100"});
+  e = common::caseErrorOf(minimal, {"segments.leg.axial_cells=100000", "segments.leg.layers.1.cells=100"});
   CHECK_THAT(e, Catch::Contains("the limit is 2000000"));
   // Syntax errors carry the position.
-  e = errorOf("[run\nduration = 1\n");
+  e = common::caseErrorOf("[run\nduration = 1\n");
   CHECK_THAT(e, Catch::Contains("case.toml:1:") && Catch::Contains("TOML syntax error"));
   // A missing file.
   try {

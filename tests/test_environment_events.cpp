@@ -13,6 +13,7 @@
 #include <string>
 #include <vector>
 
+#include "test_common.hpp"
 #include "models/body.hpp"
 #include "models/case.hpp"
 #include "solver/simulation.hpp"
@@ -61,29 +62,7 @@ at = "50 min"
 environment = { temperature = "15 degC" }
 )toml";
 
-std::string errorOf(const std::string& text, const std::vector<std::string>& overrides = {}) {
-  try {
-    loadCaseFromString(text, "case.toml", overrides);
-  } catch (const CaseError& e) {
-    return e.what();
-  }
-  return "no error";
-}
 
-//! A one-dimensional dataset of an HDF5 results file.
-std::vector<double> readSeries(const std::string& file, const std::string& path) {
-  hid_t f = H5Fopen(file.c_str(), H5F_ACC_RDONLY, H5P_DEFAULT);
-  REQUIRE(f >= 0);
-  hid_t d = H5Dopen2(f, path.c_str(), H5P_DEFAULT);
-  REQUIRE(d >= 0);
-  hid_t space = H5Dget_space(d);
-  std::vector<double> out(static_cast<std::size_t>(H5Sget_simple_extent_npoints(space)));
-  H5Dread(d, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, out.data());
-  H5Sclose(space);
-  H5Dclose(d);
-  H5Fclose(f);
-  return out;
-}
 
 //! Environment values by interval: {interval, time, variable, expected [SI]}.
 struct Expectation {
@@ -158,10 +137,10 @@ environment = { solar_irradiance = 600 }
   options.quiet = true;
   RunSummary s = runTransient(body, options);
   REQUIRE(s.complete);
-  const std::vector<double> time = readSeries(out.string(), "/time");
-  const std::vector<double> temperature = readSeries(out.string(), "/environment/temperature");
-  const std::vector<double> solar = readSeries(out.string(), "/environment/solar_irradiance");
-  const std::vector<double> radiant = readSeries(out.string(), "/environment/radiant_temperature");
+  const std::vector<double> time = common::readDataset(out.string(), "/time");
+  const std::vector<double> temperature = common::readDataset(out.string(), "/environment/temperature");
+  const std::vector<double> solar = common::readDataset(out.string(), "/environment/solar_irradiance");
+  const std::vector<double> radiant = common::readDataset(out.string(), "/environment/radiant_temperature");
   std::filesystem::remove(out);
   REQUIRE(time == std::vector<double>{0.0, 300.0, 600.0, 900.0, 1200.0});
   CHECK(temperature == std::vector<double>{20.0, 20.0, 5.0, 5.0, 5.0});
@@ -178,30 +157,30 @@ environment = { solar_irradiance = 600 }
 
 TEST_CASE("Environment input errors name the key path and what is allowed", "[environment][errors]") {
   // Wording is part of the interface (STYLE.md).
-  std::string e = errorOf(leg + "[run]\nduration = \"1 h\"\n[[events]]\nat = \"2 h\"\nenvironment = { speed = 2 }\n");
+  std::string e = common::caseErrorOf(leg + "[run]\nduration = \"1 h\"\n[[events]]\nat = \"2 h\"\nenvironment = { speed = 2 }\n");
   CHECK_THAT(e, Catch::Contains("case.toml:") && Catch::Contains("events.0.at") &&
                     Catch::Contains("not before the end of the run") && Catch::Contains("3600"));
 
-  e = errorOf(leg + "[[events]]\nat = 0\nramp = 600\nenvironment = { speed = 2 }\n"
+  e = common::caseErrorOf(leg + "[[events]]\nat = 0\nramp = 600\nenvironment = { speed = 2 }\n"
                     "[[events]]\nat = 300\nenvironment = { speed = 1 }\n");
   CHECK_THAT(e, Catch::Contains("events.1.at") && Catch::Contains("inside the ramp of events.0"));
 
-  e = errorOf(leg + "[[events]]\nat = 60\nenvironment = { temprature = \"5 degC\" }\n");
+  e = common::caseErrorOf(leg + "[[events]]\nat = 60\nenvironment = { temprature = \"5 degC\" }\n");
   CHECK_THAT(e, Catch::Contains("events.0.environment.temprature") && Catch::Contains("did you mean \"temperature\""));
 
-  e = errorOf(leg + "[environment]\nmedium = \"water\"\nwater_temperature = \"4 degC\"\n");
+  e = common::caseErrorOf(leg + "[environment]\nmedium = \"water\"\nwater_temperature = \"4 degC\"\n");
   CHECK_THAT(e, Catch::Contains("environment.water_temperature") && Catch::Contains("use \"temperature\""));
 
-  e = errorOf(leg + "[environment]\nconvection = \"corelation\"\n");
+  e = common::caseErrorOf(leg + "[environment]\nconvection = \"corelation\"\n");
   CHECK_THAT(e, Catch::Contains("environment.convection") && Catch::Contains("\"correlation\" or a fixed coefficient"));
 
-  e = errorOf(leg, {"segments.leg.surface.contact_fraction=0.2"});
+  e = common::caseErrorOf(leg, {"segments.leg.surface.contact_fraction=0.2"});
   CHECK_THAT(e, Catch::Contains("environment.substrate_conductance") && Catch::Contains("required"));
 
-  e = errorOf(leg, {"segments.leg.surface.orientation=horizontal"});
+  e = common::caseErrorOf(leg, {"segments.leg.surface.orientation=horizontal"});
   CHECK_THAT(e, Catch::Contains("segments.leg.surface.orientation") && Catch::Contains("plates"));
 
-  e = errorOf(leg, {"segments.leg.surface.emissivity=1.2"});
+  e = common::caseErrorOf(leg, {"segments.leg.surface.emissivity=1.2"});
   CHECK_THAT(e, Catch::Contains("segments.leg.surface.emissivity") && Catch::Contains("out of range"));
 
   // Units and defaults: "50 %" is a relative humidity; a fixed coefficient switches the default emissivity off.
@@ -254,14 +233,14 @@ TEST_CASE("A weather file interpolates linearly between its rows, with a breakpo
     std::ofstream csv(dir / "bad.csv");
     csv << "time [h], temperature [kg]\n0, 1\n";
   }
-  std::string e = errorOf(leg + "[environment]\nweather = \"" + (dir / "bad.csv").string() + "\"\n");
+  std::string e = common::caseErrorOf(leg + "[environment]\nweather = \"" + (dir / "bad.csv").string() + "\"\n");
   CHECK_THAT(e, Catch::Contains("environment.weather") && Catch::Contains("bad.csv:1") &&
                     Catch::Contains("unit \"kg\" is not a temperature"));
   {
     std::ofstream csv(dir / "bad.csv");
     csv << "time, temperature\n0, 280\n60, 281\n60, 282\n";
   }
-  e = errorOf(leg + "[environment]\nweather = \"" + (dir / "bad.csv").string() + "\"\n");
+  e = common::caseErrorOf(leg + "[environment]\nweather = \"" + (dir / "bad.csv").string() + "\"\n");
   CHECK_THAT(e, Catch::Contains("bad.csv:4") && Catch::Contains("does not increase"));
   std::filesystem::remove_all(dir);
 }

@@ -15,6 +15,7 @@
 #include <tuple>
 #include <vector>
 
+#include "test_common.hpp"
 #include "models/media.hpp"
 #include "models/surface_physics.hpp"
 #include "test_support_body.hpp"
@@ -63,29 +64,7 @@ environment = { medium = "sea_water", temperature = "4 degC", speed = "0.5 m/s" 
 
 constexpr double kRadius = 0.012, kLength = 0.10;
 
-std::string errorOf(const std::string& text) {
-  try {
-    loadCaseFromString(text, "case.toml");
-  } catch (const CaseError& e) {
-    return e.what();
-  }
-  return "no error";
-}
 
-//! A dataset of an HDF5 results file, flattened.
-std::vector<double> readDataset(const std::string& file, const std::string& path) {
-  hid_t f = H5Fopen(file.c_str(), H5F_ACC_RDONLY, H5P_DEFAULT);
-  REQUIRE(f >= 0);
-  hid_t d = H5Dopen2(f, path.c_str(), H5P_DEFAULT);
-  REQUIRE(d >= 0);
-  hid_t space = H5Dget_space(d);
-  std::vector<double> out(static_cast<std::size_t>(H5Sget_simple_extent_npoints(space)));
-  H5Dread(d, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, out.data());
-  H5Sclose(space);
-  H5Dclose(d);
-  H5Fclose(f);
-  return out;
-}
 
 //! Convection coefficient of a horizontal cylinder of diameter D in cross flow, written out [W/(m2 K)]:
 //! forced, Churchill & Bernstein (1977) Nu = 0.3 + 0.62 Re^1/2 Pr^1/3 [1 + (0.4/Pr)^2/3]^-1/4
@@ -120,7 +99,7 @@ TEST_CASE("A step of the medium lands at its time; energy is conserved across th
   options.quiet = true;
   RunSummary s = runTransient(body, options);
   REQUIRE(s.complete);
-  auto read = [&](const std::string& path) { return readDataset(out.string(), path); };
+  auto read = [&](const std::string& path) { return common::readDataset(out.string(), path); };
   const std::vector<double> time = read("/time"), h = read("/segments/leg/convection_coefficient"),
                             surface = read("/segments/leg/surface_temperature"),
                             radiation = read("/segments/leg/heat_flow/radiation"),
@@ -296,25 +275,25 @@ length = "10 cm"
 layers = [{ tissue = "muscle", thickness = "1 cm", cells = 2 }]
 )toml";
   // A ramp of the medium.
-  std::string e = errorOf(leg + "[[events]]\nat = 60\nramp = 30\nenvironment = { medium = \"water\", temperature = "
+  std::string e = common::caseErrorOf(leg + "[[events]]\nat = 60\nramp = 30\nenvironment = { medium = \"water\", temperature = "
                                 "\"4 degC\", speed = 0 }\n");
   CHECK_THAT(e, Catch::Contains("case.toml:") && Catch::Contains("events.0.environment.medium") &&
                     Catch::Contains("step") && Catch::Contains("ramp = 30 s"));
   // The new medium's speed missing.
-  e = errorOf(leg + "[[events]]\nat = 60\nenvironment = { medium = \"sea_water\", temperature = \"4 degC\" }\n");
+  e = common::caseErrorOf(leg + "[[events]]\nat = 60\nenvironment = { medium = \"sea_water\", temperature = \"4 degC\" }\n");
   CHECK_THAT(e, Catch::Contains("events.0.environment.medium") && Catch::Contains("speed"));
   // An unknown medium.
-  e = errorOf(leg + "[[events]]\nat = 60\nenvironment = { medium = \"brine\", temperature = 280, speed = 0 }\n");
+  e = common::caseErrorOf(leg + "[[events]]\nat = 60\nenvironment = { medium = \"brine\", temperature = 280, speed = 0 }\n");
   CHECK_THAT(e, Catch::Contains("events.0.environment.medium") && Catch::Contains("air, water, sea_water"));
   // air_temperature still needs water at some time.
-  e = errorOf(leg + "[[events]]\nat = 60\nenvironment = { air_temperature = \"4 degC\" }\n");
+  e = common::caseErrorOf(leg + "[[events]]\nat = 60\nenvironment = { air_temperature = \"4 degC\" }\n");
   CHECK_THAT(e, Catch::Contains("events.0.environment.air_temperature") && Catch::Contains("throughout"));
   // ... and is accepted once an event takes the animal into water.
-  e = errorOf(leg + "[[events]]\nat = 60\nenvironment = { medium = \"water\", temperature = \"4 degC\", speed = 0, "
+  e = common::caseErrorOf(leg + "[[events]]\nat = 60\nenvironment = { medium = \"water\", temperature = \"4 degC\", speed = 0, "
                     "air_temperature = \"12 degC\" }\n");
   CHECK(e == "no error");
   // A step of the medium inside another event's ramp of the temperature.
-  e = errorOf(leg + "[[events]]\nat = 0\nramp = 600\nenvironment = { temperature = \"5 degC\" }\n"
+  e = common::caseErrorOf(leg + "[[events]]\nat = 0\nramp = 600\nenvironment = { temperature = \"5 degC\" }\n"
                     "[[events]]\nat = 300\nenvironment = { medium = \"water\", temperature = \"4 degC\", speed = 0 }\n");
   CHECK_THAT(e, Catch::Contains("events.1.at") && Catch::Contains("inside the ramp of events.0"));
 }

@@ -9,6 +9,7 @@
 #include <fstream>
 #include <numeric>
 
+#include "test_common.hpp"
 #include "models/body.hpp"
 #include "solver/sweep.hpp"
 #include "solver/sweep_output.hpp"
@@ -31,19 +32,6 @@ struct Scratch {
   std::string path(const std::string& name) const { return (dir / name).string(); }
 };
 
-std::vector<double> readSeries(const std::string& file, const std::string& path) {
-  hid_t f = H5Fopen(file.c_str(), H5F_ACC_RDONLY, H5P_DEFAULT);
-  REQUIRE(f >= 0);
-  hid_t d = H5Dopen2(f, path.c_str(), H5P_DEFAULT);
-  REQUIRE(d >= 0);
-  hid_t space = H5Dget_space(d);
-  std::vector<double> out(static_cast<std::size_t>(H5Sget_simple_extent_npoints(space)));
-  H5Dread(d, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, out.data());
-  H5Sclose(space);
-  H5Dclose(d);
-  H5Fclose(f);
-  return out;
-}
 
 double column(const SweepPlan& plan, const RunRow& row, const std::string& name) {
   for (std::size_t c = 0; c < plan.columns.size(); ++c)
@@ -157,10 +145,10 @@ TEST_CASE("sweep: metrics reproduce single runs bit for bit", "[sweep]") {
     RunSummary summary = runTransient(body, options);
     REQUIRE(summary.complete);
     const std::string h5 = options.output;
-    const std::vector<double> time = readSeries(h5, "/time");
+    const std::vector<double> time = common::readDataset(h5, "/time");
     const double span = time.back() - time.front();
     for (const char* q : {"core_temperature", "blood_temperature", "mean_skin_temperature"}) {
-      const std::vector<double> series = readSeries(h5, std::string("/body/") + q);
+      const std::vector<double> series = common::readDataset(h5, std::string("/body/") + q);
       const std::string name = std::string("body.") + q;
       CHECK(column(plan, rows[r], name + ".final") == series.back());
       CHECK(column(plan, rows[r], name + ".min") == *std::min_element(series.begin(), series.end()));
@@ -168,17 +156,17 @@ TEST_CASE("sweep: metrics reproduce single runs bit for bit", "[sweep]") {
     }
     for (const char* ch : {"metabolism", "convection", "radiation"}) {
       // Mean over the run from the cumulative channel energy the integrator carries.
-      const std::vector<double> energy = readSeries(h5, std::string("/body/cumulative_heat/") + ch);
+      const std::vector<double> energy = common::readDataset(h5, std::string("/body/cumulative_heat/") + ch);
       CHECK(column(plan, rows[r], std::string("body.heat_flow.") + ch) == (energy.back() - energy.front()) / span);
     }
     // A segment's mean by the trapezoid rule over the stored outputs.
-    const std::vector<double> ear = readSeries(h5, "/segments/ears/heat_flow/convection");
+    const std::vector<double> ear = common::readDataset(h5, "/segments/ears/heat_flow/convection");
     double integral = 0.0;
     for (std::size_t k = 1; k < time.size(); ++k) integral += (time[k] - time[k - 1]) * (ear[k - 1] + ear[k]) / 2.0;
     CHECK(column(plan, rows[r], "segments.ears.heat_flow.convection") == integral / span);
     // Threshold time: linear interpolation of the stored skin temperature between outputs (the skin cools
     // from 37 degC in 15 degC air).
-    const std::vector<double> skin = readSeries(h5, "/body/mean_skin_temperature");
+    const std::vector<double> skin = common::readDataset(h5, "/body/mean_skin_temperature");
     double crossing = std::nan("");
     for (std::size_t k = 1; k < skin.size() && std::isnan(crossing); ++k)
       if (skin[k] < 35.5 && skin[k - 1] >= 35.5)
@@ -186,8 +174,8 @@ TEST_CASE("sweep: metrics reproduce single runs bit for bit", "[sweep]") {
     REQUIRE(!std::isnan(crossing));
     CHECK(column(plan, rows[r], "time_to.body.mean_skin_temperature<35.5degC") == Approx(crossing).epsilon(1e-12));
     // The tissue mean of a segment from the stored field (degC there, so equal to round-off only).
-    const std::vector<double> field = readSeries(h5, "/segments/ears/temperature");
-    const std::vector<double> volume = readSeries(h5, "/segments/ears/volume");
+    const std::vector<double> field = common::readDataset(h5, "/segments/ears/temperature");
+    const std::vector<double> volume = common::readDataset(h5, "/segments/ears/volume");
     const SegmentMesh& m = body.segments().back();
     const std::size_t cells = volume.size(), last = field.size() - cells;
     double sum = 0.0, v = 0.0;
