@@ -106,7 +106,7 @@ def temperatures(results, out_dir, units: str = "physiology", segments=None, top
                 ax_s.plot(t, temperature_in(seg.mean_surface_temperature(), units), lw=1.5, label=seg.name,
                           **style, **kw)
             env = res.environment()
-            for key, lab, colour in (("temperature", "air (surroundings)", "0.35"),
+            for key, lab, colour in (("temperature", "medium (surroundings)", "0.35"),
                                      ("water_temperature", "water", OKABE_ITO["sky_blue"])):
                 if key in env and env[key].units == "degC":
                     ax_s.plot(t, temperature_in(env[key].values, units), color=colour, ls=(0, (1, 1.5)), lw=1.4,
