@@ -351,17 +351,29 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
         integrator.restart();
         integrator.setStopTime(nextStop());
       }
-      integrator.advanceTo(t);
-      recorder.record(t, integrator.state(), initialStored, summary);
-      auto now = std::chrono::steady_clock::now();
-      if (!options.quiet && std::chrono::duration<double>(now - start).count() > 1.0 &&
-          std::chrono::duration<double>(now - lastReport).count() > 0.25) {
+      // Progress on stderr once a run has taken a second: report within long output intervals too, by
+      // advancing to interpolated intermediate times (CVODE's steps are not shortened by them).
+      auto report = [&](double now_t) {
+        auto now = std::chrono::steady_clock::now();
+        if (options.quiet || std::chrono::duration<double>(now - start).count() < 1.0 ||
+            std::chrono::duration<double>(now - lastReport).count() < 0.25)
+          return;
         double wall = std::chrono::duration<double>(now - start).count();
-        std::fprintf(stderr, "\r  t = %.0f / %.0f s (%3.0f%%)  %ld steps  %.3g simulated s per wall s   ", t,
-                     c.run.duration, 100.0 * t / c.run.duration, integrator.statistics().steps, t / wall);
+        std::fprintf(stderr, "\r  t = %.0f / %.0f s (%3.0f%%)  %ld steps  %.3g simulated s per wall s   ", now_t,
+                     c.run.duration, 100.0 * now_t / c.run.duration, integrator.statistics().steps, now_t / wall);
         lastReport = now;
         reported = true;
+      };
+      if (!options.quiet) {
+        const double from = integrator.time();
+        for (int part = 1; part < 16; ++part) {
+          integrator.advanceTo(from + (t - from) * part / 16.0);
+          report(integrator.time());
+        }
       }
+      integrator.advanceTo(t);
+      recorder.record(t, integrator.state(), initialStored, summary);
+      report(t);
     }
   } catch (const SolverError& e) {
     summary.complete = false;
