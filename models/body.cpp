@@ -340,7 +340,10 @@ void Body::buildCirculation() {
           superficialPossible = true;
     for (const LayerSpec& l : s.layers) {
       bool skin = l.tissue.find("skin") != std::string::npos;
-      bool brain = l.tissue == "brain";
+      // Bradycardia scales the listed tissues (default: all but brain); `brain` below means "spared".
+      const auto& listed = case_.circulation.bradycardiaTissues;
+      bool brain = listed.empty() ? l.tissue == "brain"
+                                  : std::find(listed.begin(), listed.end(), l.tissue) == listed.end();
       Index control = skin ? skinControl_ : none;
       std::array<Index, 3> mods{none, none, none};
       mods[0] = addModulator(physiology_->add({K::Perfusion, g, skin, brain, 0}), control,

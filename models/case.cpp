@@ -400,6 +400,14 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   c.circulation.bloodDensity = circ.quantity("blood_density");
   c.circulation.bloodSpecificHeat = circ.quantity("blood_specific_heat");
   c.circulation.fixedArterialTemperature = circ.optionalQuantity("fixed_arterial_temperature");
+  if (auto list = circ.optionalText("bradycardia_tissues")) {
+    std::stringstream ss(*list);
+    for (std::string item; std::getline(ss, item, ',');) {
+      item.erase(0, item.find_first_not_of(" \t"));
+      item.erase(item.find_last_not_of(" \t") + 1);
+      if (!item.empty()) c.circulation.bradycardiaTissues.push_back(item);
+    }
+  }
 
   TableView bodyTable = top.child("body");
   c.body.mass = bodyTable.optionalQuantity("mass");
@@ -437,6 +445,8 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   c.sweep.steady = sweep.choice("mode") == "steady";
 
   readTissues(reader, top, c);
+  for (const std::string& t : c.circulation.bradycardiaTissues)
+    if (!c.tissues.count(t)) circ.fail("bradycardia_tissues", fmt::format("unknown tissue \"{}\"", t));
 
   const toml::node* segs = root.get("segments");
   if (!segs || segs->as_array()->empty())
@@ -525,6 +535,8 @@ std::string resolvedCaseToml(const Case& c) {
                    {"blood_specific_heat", c.circulation.bloodSpecificHeat}};
   if (c.circulation.fixedArterialTemperature)
     circ.insert("fixed_arterial_temperature", *c.circulation.fixedArterialTemperature);
+  if (!c.circulation.bradycardiaTissues.empty())
+    circ.insert("bradycardia_tissues", fmt::format("{}", fmt::join(c.circulation.bradycardiaTissues, ", ")));
   root.insert("circulation", circ);
   toml::table body{{"activity", c.body.activity}, {"q10_reference", c.body.q10Reference}};
   body.insert("basal_metabolic_rate", c.body.basal == BasalRate::Tissues   ? std::string("tissues")

@@ -88,6 +88,7 @@ struct CirculationSpec {
   double bloodDensity = 1050.0;       //!< [kg/m3]
   double bloodSpecificHeat = 3617.0;  //!< [J/(kg K)]
   std::optional<double> fixedArterialTemperature;  //!< pins the arterial supply [K]
+  std::vector<std::string> bradycardiaTissues;     //!< empty: every tissue except brain
 };
 
 enum class BasalRate { Tissues, Kleiber, Power };

@@ -37,6 +37,10 @@ constexpr std::array params = {
           "Pins the arterial supply: the central blood pool is replaced by blood at this temperature "
           "(validation, clamped-core experiments)."},
 
+    Param{"circulation.bradycardia_tissues", K::Text, "", "", 0, 0, false, "",
+          "Comma-separated tissues whose perfusion the events' `circulation.bradycardia` factor scales "
+          "(default: every tissue except brain, whose flow the dive response spares)."},
+
     Param{"body", K::Table, "", "", 0, 0, false, "", "Whole-body quantities: mass, blood, metabolism."},
     Param{"body.mass", K::Quantity, "kg", "", 0, 1e6, true, "",
           "Body mass for allometry; default: the tissue mass of the segments (counts included)."},
@@ -241,7 +245,7 @@ constexpr std::array params = {
           "Multiplier below 1 for metabolic depression (e.g. during dives); 1: none."},
     Param{"events[].circulation", K::Table, "", "", 0, 0, false, "", "Cardiovascular state."},
     Param{"events[].circulation.bradycardia", K::Number, "", "", 0, 2, false, "",
-          "Factor on the perfusion of every tissue except brain (dive response: below 1)."},
+          "Factor on the perfusion of the [circulation] bradycardia_tissues (dive response: below 1)."},
     Param{"events[].respiration", K::Table, "", "", 0, 0, false, "", "Breathing."},
     Param{"events[].respiration.panting", K::Number, "", "", 0, 50, false, "",
           "Ventilation multiplier (0: breath hold)."},

@@ -27,7 +27,8 @@ class PhysiologyModel : public ScheduleModel {
   struct Schedule {
     Kind kind;
     Index segment = 0;
-    bool skin = false, brain = false;
+    bool skin = false;
+    bool brain = false;  //!< spared by bradycardia (brain by default; see [circulation] bradycardia_tissues)
     Index controller = 0;  //!< 0 vasomotor, 1 shivering, 2 panting
   };
 

@@ -11,6 +11,7 @@
 #include <string>
 #include <vector>
 
+#include "test_common.hpp"
 #include "test_support_body.hpp"
 
 using namespace thermorph;
@@ -331,4 +332,49 @@ metabolism = { hypometabolism = 0.5 }
   CHECK(-bodyChannelTotal(body.network(), trace.flows[1], respiration) ==
         Approx(-4.0 * bodyChannelTotal(body.network(), trace.flows[0], respiration)).epsilon(1e-12));
   CHECK(trace.worstBalance <= 1e-6);
+}
+
+TEST_CASE("Bradycardia scales the perfusion of the chosen tissues only", "[physiology][events]") {
+  // [circulation] bradycardia_tissues = "muscle": an event factor 0.5 halves muscle perfusion and leaves skin
+  // perfusion as it was (the schedule of each layer's modulator; common practice: the dive response spares some
+  // organs — here the choice is the user's).
+  Body body(loadCaseFromString(R"toml(
+[run]
+duration = "10 min"
+output_interval = "5 min"
+[circulation]
+bradycardia_tissues = "muscle"
+[[segments]]
+name = "trunk"
+shape = "cylinder"
+length = "30 cm"
+axial_cells = 2
+layers = [{ tissue = "muscle", thickness = "4 cm", cells = 2 }, { tissue = "skin", thickness = "0.3 cm", cells = 1 }]
+[[events]]
+at = "5 min"
+circulation = { bradycardia = 0.5 }
+)toml",
+                               "brady.toml"));
+  const Network& n = body.network();
+  NetworkSystem system(n, NetworkSystem::Mode::Transient);
+  std::vector<double> state(system.size(), 310.15), before(n.modulators.size()), after(n.modulators.size());
+  body.setInterval(0);
+  system.modulatorValues(299.0, state, before);
+  body.setInterval(1);
+  system.modulatorValues(301.0, state, after);
+  int checked = 0;
+  for (Index k = 0; k < n.modulators.size(); ++k) {
+    if (n.modulators[k].name == "trunk muscle perfusion") {
+      CHECK(after[k] == Approx(0.5 * before[k]).epsilon(1e-15));
+      ++checked;
+    }
+    if (n.modulators[k].name == "trunk skin perfusion") {
+      CHECK(after[k] == before[k]);
+      ++checked;
+    }
+  }
+  CHECK(checked == 2);
+  CHECK_THAT(common::caseErrorOf("[circulation]\nbradycardia_tissues = \"musle\"\n[[segments]]\nname = \"a\"\n"
+                                 "shape = \"sphere\"\nlayers = [{ tissue = \"muscle\", thickness = \"2 cm\" }]\n"),
+             Catch::Contains("circulation.bradycardia_tissues") && Catch::Contains("unknown tissue \"musle\""));
 }
