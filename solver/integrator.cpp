@@ -10,6 +10,7 @@
 #include <sunmatrix/sunmatrix_sparse.h>
 
 #include <algorithm>
+#include <cstdlib>
 #include <chrono>
 #include <cmath>
 #include <numeric>
@@ -39,6 +40,13 @@ template <class T>
 T* checkCreated(T* p, const char* what) {
   if (!p) throw SolverError(fmt::format("SUNDIALS could not create {}", what));
   return p;
+}
+
+//! The text of a SUNDIALS flag name, which SUNDIALS allocates with malloc for the caller to free.
+std::string flagName(char* name) {
+  std::string text = name ? name : "unknown flag";
+  std::free(name);
+  return text;
 }
 
 //! Copy the CSC pattern and values into a SUNDIALS matrix (sparse or dense).
@@ -145,8 +153,8 @@ std::string Integrator::failureMessage(int flag) const {
   void* mem = memory_.get();
   double reached = time_;
   CVodeGetCurrentTime(mem, &reached);
-  std::string message = fmt::format("CVODE failed with {} ({}) at t = {:.6g} s", CVodeGetReturnFlagName(flag), flag,
-                                    reached);
+  std::string message = fmt::format("CVODE failed with {} ({}) at t = {:.6g} s", flagName(CVodeGetReturnFlagName(flag)),
+                                    flag, reached);
   if (!lastMessage_.empty()) message += " (" + lastMessage_ + ")";
   // Name the components with the largest weighted local error.
   const auto n = static_cast<sunindextype>(system_.size());
@@ -303,7 +311,7 @@ std::vector<double> solveSteadyState(const NetworkSystem& system, std::span<cons
     throw SolverError(fmt::format(
         "KINSOL found no steady state: {} ({}), scaled residual norm {:.3g} K. A body with no path to the "
         "surroundings (all faces insulated, no fixed arterial temperature) has none.",
-        KINGetReturnFlagName(flag), flag, fnorm));
+        flagName(KINGetReturnFlagName(flag)), flag, fnorm));
   }
   if (statistics) {
     long iters = 0, fevals = 0, jevals = 0;

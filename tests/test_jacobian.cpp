@@ -246,7 +246,9 @@ layers = [{ tissue = "flesh", thickness = 0.03, cells = 5 }]
   // Surface node 4, steady: dQ4/dT4 = -(G_34 + U + omega rho_b c_b V_4) + dP_4/dT_4, U = 1/(1/G_h + 1/(h A)).
   NetworkSystem steady(body->network(), NetworkSystem::Mode::Steady);
   std::vector<double> steadyValues(steady.pattern().nonzeros());
-  steady.jacobian(0.0, T, steadyValues);
+  std::vector<double> steadyState(steady.size(), 310.0);  // tissue cells, then the blood nodes
+  std::copy(T.begin(), T.end(), steadyState.begin());
+  steady.jacobian(0.0, steadyState, steadyValues);
   const double Gh = k * 4.0 * pi * R * R / (R - centre(4));  // half cell to the surface, face area at R
   const double U = 1.0 / (1.0 / Gh + 1.0 / (h * 4.0 * pi * R * R));
   const double surface = -(G(3) + U + omega * rhoB * cB * volume(4)) + sourceDerivative(4);
