@@ -111,7 +111,13 @@ int main(int argc, char** argv) {
   CLI::App* sweep = addSweepSubcommand(app, sweepOptions);
   // ---- end sweep ----
 
-  CLI11_PARSE(app, argc, argv);
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::ParseError& e) {
+    // Help and version exit 0; any other command-line error is bad input: exit 2 like a bad case file.
+    int code = app.exit(e);
+    return code == 0 ? 0 : exitBadInput;
+  }
 
   std::string commandLine;
   for (int i = 0; i < argc; ++i) {
