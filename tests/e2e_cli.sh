@@ -24,6 +24,11 @@ ls -a "$work" | grep -q "tmp-" && fail "temporary file left behind"
 [[ $rc -eq 2 ]] || fail "missing file gave exit $rc"
 grep -q "cannot open" "$work/err.txt" || fail "missing-file message: $(cat "$work/err.txt")"
 
+# Command-line errors are bad input too: exit 2.
+"$exe" run 2> /dev/null; rc=$?; [[ $rc -eq 2 ]] || fail "missing case argument gave exit $rc"
+"$exe" run "$src/cases/limb_cooling.toml" --no-such-option 2> /dev/null; rc=$?
+[[ $rc -eq 2 ]] || fail "unknown option gave exit $rc"
+
 # 3. check, steady, and the resolved case round trip.
 "$exe" check "$src/cases/limb_cooling.toml" > "$work/check.txt" || fail "check exit $?"
 grep -q "forelimb" "$work/check.txt" || fail "check does not list the segment"
