@@ -124,6 +124,12 @@ Body::Body(const Case& c) : case_(c) {
 void Body::setInterval(std::size_t interval) const {
   environment_->setInterval(interval);
   physiology_->setInterval(interval);
+  // Coats conduct wet while their segment is in water (the medium may change by event).
+  for (const CoatSwitch& c : coatSwitches_) {
+    double value = environment_->immersed(c.segment, 0.0) ? c.wet : c.dry;
+    if (c.face) network_.faces[c.index].halfConductance = value;
+    else network_.conductances[c.index].conductance = value;
+  }
 }
 
 Index Body::addModulator(Index schedule, Index control, std::string name) {
@@ -604,6 +610,18 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
   }
   m.nr = static_cast<int>(tissue.size());
   const int nz = m.nz, nr = m.nr;
+  // A coat changes conductivity when its segment goes in or out of water (medium events): every conductance and
+  // face that involves a coat cell is computed dry and wet, and setInterval() picks one.
+  const int firstCoat = s.coat ? nr - s.coat->cells : nr;
+  const TissueProperties* coatDry = s.coat ? &case_.tissues.at(s.coat->material) : nullptr;
+  const bool coatChanges = coatDry && coatDry->wetConductivity > 0.0 && coatDry->wetConductivity != coatDry->conductivity;
+  auto conductivity = [&](int ir, bool wet) {
+    if (ir < firstCoat) return tissue[static_cast<std::size_t>(ir)]->conductivity;
+    return wet ? coatDry->wetConductivity : coatDry->conductivity;
+  };
+  auto recordCoat = [&](bool face, Index index, double dry, double wet) {
+    if (coatChanges && dry != wet) coatSwitches_.push_back({face, index, group, dry, wet});
+  };
   const double length = s.shape == Shape::Sphere ? 0.0 : s.length;
   const double dz = s.shape == Shape::Sphere ? 1.0 : length / nz;
   const double rp = s.radiusProximal;
@@ -659,11 +677,17 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
       double resistance = radialResistance(s.shape, ri, face, rj, tissue[ir]->conductivity,
                                            tissue[ir + 1]->conductivity, dz, s.width);
       network_.conductances.push_back({m.node(iz, ir), m.node(iz, ir + 1), 1.0 / resistance, 0});
+      if (ir + 1 >= firstCoat)
+        recordCoat(false, network_.conductances.size() - 1,
+                   1.0 / radialResistance(s.shape, ri, face, rj, conductivity(ir, false), conductivity(ir + 1, false), dz, s.width),
+                   1.0 / radialResistance(s.shape, ri, face, rj, conductivity(ir, true), conductivity(ir + 1, true), dz, s.width));
     }
     // Outer lateral face.
     double rLast = 0.5 * (cm.bounds[nr - 1] + cm.bounds[nr]);
     double rOut = cm.bounds[nr];
     double half = 1.0 / radialResistance(s.shape, rLast, rOut, rOut, tissue[nr - 1]->conductivity, 1.0, dz, s.width);
+    double halfDry = 1.0 / radialResistance(s.shape, rLast, rOut, rOut, conductivity(nr - 1, false), 1.0, dz, s.width);
+    double halfWet = 1.0 / radialResistance(s.shape, rLast, rOut, rOut, conductivity(nr - 1, true), 1.0, dz, s.width);
     double area = 0.0;
     switch (s.shape) {
       case Shape::Sphere: area = 4.0 * pi * rOut * rOut; break;
@@ -683,10 +707,13 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
         warnings_.push_back(fmt::format("segments attached to {} cover more than 90 % of its surface at axial cell "
                                         "{}; 10 % is kept exposed", s.name, iz));
       half *= remaining / area;
+      halfDry *= remaining / area;
+      halfWet *= remaining / area;
       area = remaining;
     }
     m.lateralFace.push_back(network_.faces.size());
     network_.faces.push_back({m.node(iz, nr - 1), half, area});
+    if (nr - 1 >= firstCoat) recordCoat(true, network_.faces.size() - 1, halfDry, halfWet);
     environment_->addFace({group, s.shape, true, area, s.shape == Shape::Plate ? s.length : 2.0 * rOut, 0.0});
     m.area += area;
     // Axial conduction through the shared face at z1 (same tissue on both sides).
@@ -694,6 +721,9 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
       for (int ir = 0; ir < nr; ++ir) {
         double section = sectionArea(s.shape, c1.bounds[ir], c1.bounds[ir + 1], s.width);
         network_.conductances.push_back({m.node(iz, ir), m.node(iz + 1, ir), tissue[ir]->conductivity * section / dz, 0});
+        if (ir >= firstCoat)
+          recordCoat(false, network_.conductances.size() - 1, conductivity(ir, false) * section / dz,
+                     conductivity(ir, true) * section / dz);
       }
     }
   }
@@ -705,6 +735,9 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
       for (int ir = 0; ir < nr; ++ir) {
         double section = sectionArea(s.shape, ce.bounds[ir], ce.bounds[ir + 1], s.width);
         network_.faces.push_back({m.node(iz, ir), tissue[ir]->conductivity * section / (0.5 * dz), section});
+        if (ir >= firstCoat)
+          recordCoat(true, network_.faces.size() - 1, conductivity(ir, false) * section / (0.5 * dz),
+                     conductivity(ir, true) * section / (0.5 * dz));
         environment_->addFace({group, s.shape, false, section, 2.0 * ce.bounds[nr], 0.0});
         m.area += section;
       }

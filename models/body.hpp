@@ -84,8 +84,17 @@ class Body {
   Index addModulator(Index schedule, Index control, std::string name);
   std::vector<std::pair<Index, double>> signalNodes(ControlSignal signal) const;
 
+  //! A coat conductance (or face half-conductance) dry and wet, chosen per timeline interval.
+  struct CoatSwitch {
+    bool face;
+    Index index;
+    Index segment;
+    double dry, wet;  //!< [W/K]
+  };
+
   Case case_;
-  Network network_;
+  mutable Network network_;  //!< coat conductances follow immersion in setInterval()
+  std::vector<CoatSwitch> coatSwitches_;
   std::vector<SegmentMesh> meshes_;
   std::unique_ptr<EnvironmentModel> environment_;
   std::unique_ptr<PhysiologyModel> physiology_;

@@ -209,8 +209,8 @@ constexpr std::array params = {
           "Targets: `environment = { temperature = \"5 degC\", speed = \"3 m/s\" }`; keys as in [environment]."},
     Param{"events[].environment.medium", K::Choice, "", "", 0, 0, false, "air|water|sea_water",
           "A step of the medium (never a ramp): convection, radiation, sun, evaporation and immersion follow it; "
-          "the event also gives the new medium's temperature and speed. A coat keeps the conductivity chosen at "
-          "t = 0 (wet if immersed then)."},
+          "the event also gives the new medium's temperature and speed. A coat conducts wet while its segment is "
+          "in water."},
     Param{"events[].environment.temperature", K::Quantity, "K", "", tMin, tMax, false, "", "Medium temperature."},
     Param{"events[].environment.speed", K::Quantity, "m/s", "", 0, 100, false, "", "Medium speed."},
     Param{"events[].environment.relative_humidity", K::Quantity, "1", "", 0, 1, false, "", "Relative humidity."},
