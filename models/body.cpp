@@ -278,25 +278,14 @@ void Body::attachChildren() {
     for (int l = 0; l < layer; ++l) first += ps.layers[static_cast<std::size_t>(l)].cells;
     int pr = first + ps.layers[static_cast<std::size_t>(layer)].cells / 2;
     double dz = s.length / cm.nz;
-    double scale = 1.0;  // proximal cross-section of a cone is at its stated radii
-    double covered = 0.0;
-    double r = 0.0;
-    for (int ir = 0, li = 0, inLayer = 0; ir < cm.nr; ++ir) {
-      const bool coat = s.coat && ir >= cm.nr - s.coat->cells;
-      double dr = coat ? s.coat->thickness / s.coat->cells
-                       : s.layers[static_cast<std::size_t>(li)].thickness * scale / s.layers[static_cast<std::size_t>(li)].cells;
-      double a = r, b = r + dr;
-      r = b;
-      double area = s.shape == Shape::Plate ? 2.0 * s.width * (b - a) : pi * (b * b - a * a);
-      covered += area;
-      const TissueProperties& t = case_.tissues.at(coat ? s.coat->material : s.layers[static_cast<std::size_t>(li)].tissue);
+    // The child's proximal cross-section (a cone's layers are at their stated thickness there).
+    const std::vector<double> bounds = crossSection(s, 1.0).bounds;
+    for (int ir = 0; ir < cm.nr; ++ir) {
+      auto r = static_cast<std::size_t>(ir);
+      double area = sectionArea(s.shape, bounds[r], bounds[r + 1], s.width);
+      const TissueProperties& t = case_.tissues.at(cm.layerNames[static_cast<std::size_t>(cm.layer[r])]);
       network_.conductances.push_back({cm.node(0, ir), pm.node(k, pr), t.conductivity * area / (0.5 * dz), conductionChannel_});
-      if (!coat && ++inLayer == s.layers[static_cast<std::size_t>(li)].cells) {
-        ++li;
-        inLayer = 0;
-      }
     }
-    (void)covered;
   }
 }
 

@@ -74,7 +74,6 @@ class Body {
   const std::vector<std::string>& warnings() const { return warnings_; }
 
  private:
-  struct CellFlows;
   void addSegment(const SegmentSpec& s, Index group, bool attached);
   void attachChildren();
   void scaleMetabolism();

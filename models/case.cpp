@@ -82,11 +82,7 @@ void applyOverride(toml::table& root, const std::string& file, const std::string
         table->insert_or_assign(c, value);
         return;
       }
-      if (!table->contains(c)) {
-        bool nextIsIndex = false;
-        (void)nextIsIndex;
-        table->insert(c, toml::table{});
-      }
+      if (!table->contains(c)) table->insert(c, toml::table{});
       current = table->get(c);
     } else if (auto* array = current->as_array()) {
       std::size_t index = findArrayElement(*array, c);
@@ -462,10 +458,6 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
     for (auto& l : s.layers) radial += l.cells;
     if (s.coat) radial += s.coat->cells;
     cells += radial * s.axialCells;
-    if (s.shape == Shape::Cone) {
-      double outer = s.tissueRadius() - s.layers[0].thickness;
-      (void)outer;
-    }
     c.segments.push_back(std::move(s));
   }
   if (cells > maxCells)

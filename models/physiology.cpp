@@ -107,10 +107,8 @@ double PhysiologyModel::value(Index schedule, double time) const {
   };
   switch (s.kind) {
     case Kind::Perfusion: return perfusion();
-    case Kind::PerfusionDeep: return perfusion() * (1.0 - superficial_[s.segment].at(time));
     case Kind::PerfusionSuperficial: return perfusion() * superficial_[s.segment].at(time);
-    case Kind::Shunt:
-    case Kind::ShuntDeepless: return shunt_[s.segment].at(time);
+    case Kind::Shunt: return shunt_[s.segment].at(time);
     case Kind::Metabolism: return activity_.at(time) * hypometabolism_.at(time);
     case Kind::Respiration: return respiratoryLoss(time, 1.0);
     case Kind::ControlEnabled: return enabled_[s.controller].at(time);

@@ -15,10 +15,8 @@ class PhysiologyModel : public ScheduleModel {
  public:
   enum class Kind {
     Perfusion,             //!< tissue perfusion factor of a layer: skin multiplier (skin) x bradycardia (not brain)
-    PerfusionDeep,         //!< the same x (1 - superficial return)
     PerfusionSuperficial,  //!< the same x superficial return
     Shunt,                 //!< open fraction of a segment's shunts
-    ShuntDeepless,         //!< placeholder (unused)
     Metabolism,            //!< activity x hypometabolism
     Respiration,           //!< respiratory heat loss of the whole body [W] (ventilation at the metabolic rate)
     ControlEnabled,        //!< 1 on, 0 off

@@ -128,6 +128,7 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
   scratchHeat_.resize(channels_);
   scratchDerivative_.resize(channels_);
   modulators_.resize(network.modulators.size());
+  scheduleValues_.resize(network.modulators.size());
 }
 
 Index NetworkSystem::controlColumn(Index modulator) const {
@@ -147,9 +148,8 @@ Index NetworkSystem::slot(Index row, Index col) const {
 void NetworkSystem::modulatorValues(double time, std::span<const double> y, std::span<double> values) const {
   for (Index k = 0; k < network_.modulators.size(); ++k) {
     const Modulator& m = network_.modulators[k];
-    double v = m.schedule == none ? 1.0 : network_.schedules->value(m.schedule, time);
-    if (m.control != none) v *= y[nodes_ + m.control];
-    values[k] = v;
+    scheduleValues_[k] = m.schedule == none ? 1.0 : network_.schedules->value(m.schedule, time);
+    values[k] = m.control == none ? scheduleValues_[k] : scheduleValues_[k] * y[nodes_ + m.control];
   }
 }
 
@@ -270,11 +270,8 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
   const bool transient = mode_ == Mode::Transient;
   std::fill(values.begin(), values.end(), 0.0);
   modulatorValues(time, T, modulators_);
-  // d m_k / d u_control = schedule(t) for a part whose modulator has a control.
-  auto scheduleOf = [&](Index modulator) {
-    const Modulator& m = network_.modulators[modulator];
-    return m.schedule == none ? 1.0 : network_.schedules->value(m.schedule, time);
-  };
+  // d m_k / d u_control = schedule(t) for a part whose modulator has a control (evaluated just above).
+  auto scheduleOf = [&](Index modulator) { return scheduleValues_[modulator]; };
   std::size_t k = 0;
   for (std::size_t i = 0; i < network_.conductances.size(); ++i) {
     const double G = network_.conductances[i].conductance;

@@ -80,6 +80,7 @@ class NetworkSystem {
   std::vector<Index> controlSlots_;       //!< per controller: (u,u), then (u,node) per signal entry
   mutable std::vector<double> faceGuess_;  //!< last face temperatures, Newton start values
   mutable std::vector<double> scratchHeat_, scratchDerivative_, modulators_;
+  mutable std::vector<double> scheduleValues_;  //!< schedule factor of each modulator at the last evaluation
   std::optional<double> frozenTime_;
   double at(double time) const { return frozenTime_ ? *frozenTime_ : time; }
 };

@@ -190,15 +190,8 @@ class Recorder {
     f.setAttribute("/solver", "factor_nonzeros", s.factorNonzeros);
     f.setAttribute("/", "complete", summary.complete ? 1L : 0L);
     if (!summary.complete) f.setAttribute("/", "failure", summary.failure);
-    std::filesystem::path out(f.temporaryPath());
-    if (summary.complete) {
-      summary.outputPath = f.commit();
-    } else {
-      // Never clobber an earlier complete result with a partial one.
-      std::filesystem::path final = body_.spec().sourceFile;
-      std::string partial = file_->commit(incompletePath());
-      summary.outputPath = partial;
-    }
+    // Never clobber an earlier complete result with a partial one.
+    summary.outputPath = summary.complete ? f.commit() : f.commit(incompletePath());
   }
 
   //! Temperature of the arterial supply: the pool node, or the pinned value [K].
@@ -260,6 +253,13 @@ std::string incompleteName(const std::string& output) {
   return (p.parent_path() / (p.stem().string() + ".incomplete" + p.extension().string())).string();
 }
 
+//! Uniform initial temperature for every node, then the controllers' initial states [nodes + controls].
+std::vector<double> initialState(const Body& body, const NetworkSystem& system) {
+  std::vector<double> y(system.nodeCount(), body.spec().run.initialTemperature);
+  for (const Controller& k : body.network().controllers) y.push_back(k.initial);
+  return y;
+}
+
 //! Steady state of the surroundings and physiology at t = 0 [K and controller states]. Newton alone may land on
 //! an unstable branch (Q10 metabolism can balance large losses at a runaway temperature) or wander to
 //! unphysical iterates, so the state is first relaxed in pseudo-time by CVODE with time frozen at 0, from the
@@ -308,9 +308,8 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   NetworkSystem system(body.network(), NetworkSystem::Mode::Transient);
   const Index nodes = system.nodeCount();
   const Index states = nodes + system.controlCount();  // temperatures, then controller states
-  std::vector<double> y(system.size(), 0.0);
-  std::fill(y.begin(), y.begin() + static_cast<std::ptrdiff_t>(nodes), c.run.initialTemperature);
-  for (Index k = 0; k < system.controlCount(); ++k) y[nodes + k] = body.network().controllers[k].initial;
+  std::vector<double> y = initialState(body, system);
+  y.resize(system.size(), 0.0);  // channel energies start at 0
   if (c.run.initial == InitialCondition::Steady) {
     std::vector<double> steady = steadyTemperatures(body, std::span<const double>(y).first(states), nullptr);
     std::copy(steady.begin(), steady.end(), y.begin());
@@ -387,11 +386,9 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
 }
 
 RunSummary runSteady(const Body& body, const RunOptions& options) {
-  const Case& c = body.spec();
   NetworkSystem transient(body.network(), NetworkSystem::Mode::Transient);
   const Index nodes = transient.nodeCount();
-  std::vector<double> guess(nodes + transient.controlCount(), c.run.initialTemperature);
-  for (Index k = 0; k < transient.controlCount(); ++k) guess[nodes + k] = body.network().controllers[k].initial;
+  std::vector<double> guess = initialState(body, transient);
   RunSummary summary;
   Recorder recorder(body, transient, options);
   recorder.setIncompletePath(options.output.empty() ? "" : incompleteName(options.output));
