@@ -162,7 +162,7 @@ std::vector<std::pair<Index, double>> Body::signalNodes(ControlSignal signal) co
 
 void Body::buildControllers() {
   // Proportional control about a set point with limits and a first-order lag: the common form in
-  // thermoregulation models. u* = clamp(bias + gain (T - set point), lower, upper); see solver/network.hpp.
+  // thermoregulation models. u* = clamp(bias + gain (T - set point), lower, upper); see network/network.hpp.
   using K = PhysiologyModel::Kind;
   auto add = [&](const ControllerSpec& spec, std::size_t k, const char* name, double bias, double gain, double lower,
                  double upper, double offValue) {

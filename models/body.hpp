@@ -8,7 +8,7 @@
 #include "models/case.hpp"
 #include "models/environment.hpp"
 #include "models/physiology.hpp"
-#include "solver/network.hpp"
+#include "network/network.hpp"
 
 namespace thermorph {
 

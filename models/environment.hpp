@@ -9,7 +9,7 @@
 
 #include "models/case.hpp"
 #include "models/media.hpp"
-#include "solver/network.hpp"
+#include "network/network.hpp"
 
 namespace thermorph {
 

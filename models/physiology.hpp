@@ -7,7 +7,7 @@
 
 #include "models/case.hpp"
 #include "models/environment.hpp"
-#include "solver/network.hpp"
+#include "network/network.hpp"
 
 namespace thermorph {
 

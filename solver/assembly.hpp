@@ -4,7 +4,7 @@
 #include <span>
 #include <vector>
 
-#include "solver/network.hpp"
+#include "network/network.hpp"
 
 namespace thermorph {
 

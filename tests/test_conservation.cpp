@@ -1,4 +1,4 @@
-// Energy conservation of transient runs (solver/simulation.hpp): the cumulative channel energies must equal the
+// Energy conservation of transient runs (drivers/simulation.hpp): the cumulative channel energies must equal the
 // change of stored heat, and an insulated body must store exactly its metabolic heat.
 #include <catch2/catch.hpp>
 

@@ -1,4 +1,4 @@
-// Feedback controllers ([control.*], solver/network.hpp Controller): proportional control about a set point with
+// Feedback controllers ([control.*], network/network.hpp Controller): proportional control about a set point with
 // limits and a first-order lag du/dt = (u* - u)/tau. A step of the surroundings drives the vasomotor controller to
 // its limit and back; with a constant signal the state follows the first-order step response; events switch a
 // controller off and move its set point; the Jacobian with controller states matches finite differences.

@@ -15,7 +15,7 @@
 #include "models/case.hpp"
 #include "models/surface_physics.hpp"
 #include "solver/assembly.hpp"
-#include "solver/simulation.hpp"
+#include "drivers/simulation.hpp"
 
 using namespace thermorph;
 

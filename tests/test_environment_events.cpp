@@ -16,7 +16,7 @@
 #include "test_common.hpp"
 #include "models/body.hpp"
 #include "models/case.hpp"
-#include "solver/simulation.hpp"
+#include "drivers/simulation.hpp"
 
 using namespace thermorph;
 

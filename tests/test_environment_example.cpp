@@ -10,7 +10,7 @@
 
 #include "models/body.hpp"
 #include "models/case.hpp"
-#include "solver/simulation.hpp"
+#include "drivers/simulation.hpp"
 
 using namespace thermorph;
 

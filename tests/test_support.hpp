@@ -13,7 +13,7 @@
 #include "models/case.hpp"
 #include "solver/assembly.hpp"
 #include "solver/integrator.hpp"
-#include "solver/simulation.hpp"
+#include "drivers/simulation.hpp"
 
 namespace thermorph::testing {
 

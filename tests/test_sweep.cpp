@@ -11,8 +11,8 @@
 
 #include "test_common.hpp"
 #include "models/body.hpp"
-#include "solver/sweep.hpp"
-#include "solver/sweep_output.hpp"
+#include "drivers/sweep.hpp"
+#include "drivers/sweep_output.hpp"
 
 using namespace thermorph;
 

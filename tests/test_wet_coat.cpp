@@ -2,7 +2,7 @@
 #include <catch2/catch.hpp>
 
 #include "models/body.hpp"
-#include "solver/simulation.hpp"
+#include "drivers/simulation.hpp"
 
 using namespace thermorph;
 

@@ -23,7 +23,7 @@
 
 #include "models/body.hpp"
 #include "models/case.hpp"
-#include "solver/simulation.hpp"
+#include "drivers/simulation.hpp"
 
 namespace {
 

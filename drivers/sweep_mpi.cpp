@@ -16,7 +16,7 @@
 
 #include <fmt/format.h>
 
-#include "solver/sweep_engine.hpp"
+#include "drivers/sweep_engine.hpp"
 
 namespace thermorph {
 namespace {

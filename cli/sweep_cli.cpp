@@ -1,4 +1,4 @@
-#include "solver/sweep_cli.hpp"
+#include "cli/sweep_cli.hpp"
 
 #include <fmt/format.h>
 

@@ -5,7 +5,7 @@
 #include <vector>
 
 #include "models/body.hpp"
-#include "solver/simulation.hpp"
+#include "drivers/simulation.hpp"
 
 namespace thermorph {
 

@@ -10,7 +10,7 @@
 
 #include "models/body.hpp"
 #include "models/case.hpp"
-#include "solver/sweep_metrics.hpp"
+#include "drivers/sweep_metrics.hpp"
 
 namespace thermorph {
 

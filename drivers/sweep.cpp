@@ -1,6 +1,6 @@
 //! Sweep runs: one run reduced to its metrics, local worker threads, the session that journals and writes the
 //! table, signal handling and the `sweep` command.
-#include "solver/sweep.hpp"
+#include "drivers/sweep.hpp"
 
 #include <unistd.h>
 
@@ -18,7 +18,7 @@
 
 #include <fmt/format.h>
 
-#include "solver/sweep_engine.hpp"
+#include "drivers/sweep_engine.hpp"
 
 namespace thermorph {
 namespace {

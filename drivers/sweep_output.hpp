@@ -5,7 +5,7 @@
 #include <string>
 #include <vector>
 
-#include "solver/sweep.hpp"
+#include "drivers/sweep.hpp"
 
 namespace thermorph {
 

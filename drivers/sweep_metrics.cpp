@@ -1,4 +1,4 @@
-#include "solver/sweep_metrics.hpp"
+#include "drivers/sweep_metrics.hpp"
 
 #include <algorithm>
 #include <cmath>
@@ -129,7 +129,7 @@ void MetricCollector::sample(std::span<const double> y, const RunSummary& s) {
   const std::size_t channels = n.channels.size();
   current_.assign(series_.size(), 0.0);
   std::size_t k = 0;
-  // Core, blood and skin: the same sums in the same order as the results file (solver/simulation.cpp), so the
+  // Core, blood and skin: the same sums in the same order as the results file (drivers/simulation.cpp), so the
   // metrics reproduce /body/*_temperature bit for bit.
   const SegmentMesh& core = body_.segments()[body_.coreSegment()];
   double sum = 0.0, volume = 0.0;

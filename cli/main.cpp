@@ -9,8 +9,8 @@
 
 #include "models/body.hpp"
 #include "models/case.hpp"
-#include "solver/simulation.hpp"
-#include "solver/sweep_cli.hpp"
+#include "drivers/simulation.hpp"
+#include "cli/sweep_cli.hpp"
 
 namespace {
 
@@ -106,7 +106,7 @@ int main(int argc, char** argv) {
   check->add_flag("--resolved", resolved, "Print the fully resolved case (SI values, defaults filled in) as TOML");
   CLI::App* reference = app.add_subcommand("reference", "Print the case-file reference (Markdown) generated from the schema");
 
-  // ---- sweep: registration (solver/sweep_cli.cpp) ----
+  // ---- sweep: registration (cli/sweep_cli.cpp) ----
   SweepOptions sweepOptions;
   CLI::App* sweep = addSweepSubcommand(app, sweepOptions);
   // ---- end sweep ----

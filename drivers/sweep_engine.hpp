@@ -9,8 +9,8 @@
 #include <string_view>
 #include <vector>
 
-#include "solver/sweep.hpp"
-#include "solver/sweep_output.hpp"
+#include "drivers/sweep.hpp"
+#include "drivers/sweep_output.hpp"
 
 namespace thermorph {
 
@@ -67,7 +67,7 @@ int launcherWorldSize();
 std::string packRow(const RunRow& row);
 RunRow unpackRow(std::string_view bytes);
 
-//! The MPI engine (solver/sweep_mpi.cpp): every rank plans, rank 0 hands out run indices and writes the table.
+//! The MPI engine (drivers/sweep_mpi.cpp): every rank plans, rank 0 hands out run indices and writes the table.
 int runSweepMpi(const SweepOptions& options);
 //! The sweep on local threads (also a one-rank MPI world); --list prints the runs instead.
 int runSweepLocally(const SweepPlan& plan, const SweepOptions& options);

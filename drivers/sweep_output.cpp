@@ -1,4 +1,4 @@
-#include "solver/sweep_output.hpp"
+#include "drivers/sweep_output.hpp"
 
 #include <hdf5.h>
 #include <unistd.h>

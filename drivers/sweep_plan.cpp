@@ -13,7 +13,7 @@
 
 #include "models/case_schema.hpp"
 #include "models/units.hpp"
-#include "solver/sweep.hpp"
+#include "drivers/sweep.hpp"
 
 namespace thermorph {
 namespace {

@@ -1,4 +1,4 @@
-#include "solver/results.hpp"
+#include "drivers/results.hpp"
 
 #include <hdf5.h>
 #include <unistd.h>

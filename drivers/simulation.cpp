@@ -1,4 +1,4 @@
-#include "solver/simulation.hpp"
+#include "drivers/simulation.hpp"
 
 #include <chrono>
 #include <cmath>
@@ -8,7 +8,7 @@
 
 #include <fmt/format.h>
 
-#include "solver/results.hpp"
+#include "drivers/results.hpp"
 
 namespace thermorph {
 namespace {

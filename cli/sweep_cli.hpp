@@ -2,7 +2,7 @@
 //! The `sweep` subcommand of the command-line driver: its options (CLI11) and its dispatch.
 #include <CLI/CLI.hpp>
 
-#include "solver/sweep.hpp"
+#include "drivers/sweep.hpp"
 
 namespace thermorph {
 
