@@ -1,6 +1,21 @@
 #pragma once
 //! Internals shared by the local (threads) and MPI sweep engines: the session on the rank that writes the
 //! table, signal handling, and rows packed for messages.
+//!
+//! Shared state of a sweep — the complete list (anything not named here belongs to one run):
+//!  - `SweepPlan` (drivers/sweep.hpp): built once per process (every MPI rank builds the same one from the same
+//!    arguments), then read-only; workers read the case text, overrides and column names from it.
+//!  - the stop flag and signal (`sweepStopFlag()`, `sweepStopSignal()`, drivers/sweep.cpp): lock-free atomics set
+//!    by the SIGINT/SIGTERM handler; workers stop taking runs and running runs abandon at their next output.
+//!  - the local queue (`runLocal`, drivers/sweep.cpp): an atomic index into `todo`; finished rows go to a deque
+//!    under one mutex + condition variable; only the calling thread drains it into the session.
+//!  - the MPI queue (drivers/sweep_mpi.cpp, rank 0): the dispatcher (main thread, the only MPI caller) and one
+//!    compute thread share the next-run index and the session under one mutex.
+//!  - `SweepSession` (below): rows by run index, the progress journal, warnings, the progress bar; touched only
+//!    by the thread that drains results (local) or under the dispatcher's mutex (MPI).
+//!  - process-wide, outside the sweep: the udunits2 lock (models/units.cpp) and the correlation-validity warning
+//!    log (models/media.cpp, mutex; warnings are issued once per process, so rows keep only their body's own).
+//! Each run builds its own Case, Body, network, SUNDIALS context and KLU objects (drivers/sweep.cpp `runOne`).
 #include <atomic>
 #include <chrono>
 #include <memory>
