@@ -1,0 +1,27 @@
+#pragma once
+//! Progress of a transient run on stderr: shown once the run has taken a second, at most every 0.25 s.
+#include <chrono>
+
+namespace thermorph {
+
+class ProgressReporter {
+ public:
+  ProgressReporter(double duration, bool quiet);
+  ~ProgressReporter();  //!< ends the progress line when one was shown
+  ProgressReporter(const ProgressReporter&) = delete;
+  ProgressReporter& operator=(const ProgressReporter&) = delete;
+
+  bool active() const { return !quiet_; }
+  //! Simulated time t [s] reached after `steps` solver steps.
+  void report(double t, long steps);
+  //! Ends the progress line (idempotent).
+  void finish();
+
+ private:
+  using Clock = std::chrono::steady_clock;
+  double duration_;
+  bool quiet_, reported_ = false;
+  Clock::time_point start_, last_;
+};
+
+}  // namespace thermorph

@@ -1,0 +1,60 @@
+#include "drivers/record_budget.hpp"
+
+#include <cmath>
+#include <numeric>
+
+namespace thermorph {
+
+void BudgetRecorder::compute(double t, std::span<const double> y, double initialStored, RunSummary& summary,
+                             std::vector<double>& faceTemperatures) const {
+  const Index groups = network_.groups.size(), channels = network_.channels.size();
+  summary.flows.assign(groups * channels, 0.0);
+  summary.storage.assign(groups, 0.0);
+  faceTemperatures.assign(network_.faces.size(), 0.0);
+  const Index states = system_.nodeCount() + system_.controlCount();
+  system_.groupFlows(t, y.first(states), summary.flows, summary.storage, faceTemperatures);
+  summary.channelEnergy.assign(y.begin() + static_cast<std::ptrdiff_t>(states), y.end());
+  summary.controls.assign(y.begin() + static_cast<std::ptrdiff_t>(system_.nodeCount()),
+                          y.begin() + static_cast<std::ptrdiff_t>(states));
+  summary.storedChange = system_.storedHeat(y) - initialStored;
+  double gained = std::accumulate(summary.channelEnergy.begin(), summary.channelEnergy.end(), 0.0);
+  summary.energyBalanceError = gained - summary.storedChange;
+  summary.throughput = std::abs(summary.storedChange);
+  for (double e : summary.channelEnergy) summary.throughput += std::abs(e);
+  summary.finalTime = t;
+}
+
+void BudgetRecorder::create(ResultsFile& f, const std::vector<std::string>& segmentNames) {
+  for (const std::string& ch : network_.channels) flow_.push_back(f.createSeries("/body/heat_flow/" + ch, {}, "W"));
+  storage_ = f.createSeries("/body/heat_flow/storage", {}, "W");
+  for (const std::string& ch : network_.channels)
+    energy_.push_back(f.createSeries("/body/cumulative_heat/" + ch, {}, "J"));
+  balance_ = f.createSeries("/body/energy_balance_error", {}, "J");
+  for (const std::string& name : segmentNames) {
+    std::string g = "/segments/" + name;
+    segmentFlow_.emplace_back();
+    for (const std::string& ch : network_.channels)
+      segmentFlow_.back().push_back(f.createSeries(g + "/heat_flow/" + ch, {}, "W"));
+    segmentStorage_.push_back(f.createSeries(g + "/heat_flow/storage", {}, "W"));
+  }
+}
+
+void BudgetRecorder::write(ResultsFile& f, const RunSummary& summary) const {
+  const Index groups = network_.groups.size(), channels = network_.channels.size();
+  for (Index c = 0; c < channels; ++c) {
+    double total = 0.0;
+    for (Index g = 0; g < groups; ++g) total += network_.groupWeights[g] * summary.flows[g * channels + c];
+    f.append(flow_[c], {&total, 1});
+    f.append(energy_[c], {&summary.channelEnergy[c], 1});
+  }
+  double storage = 0.0;
+  for (Index g = 0; g < groups; ++g) storage += network_.groupWeights[g] * summary.storage[g];
+  f.append(storage_, {&storage, 1});
+  f.append(balance_, {&summary.energyBalanceError, 1});
+  for (std::size_t g = 0; g < segmentFlow_.size(); ++g) {
+    for (Index c = 0; c < channels; ++c) f.append(segmentFlow_[g][c], {&summary.flows[g * channels + c], 1});
+    f.append(segmentStorage_[g], {&summary.storage[g], 1});
+  }
+}
+
+}  // namespace thermorph

@@ -1,0 +1,34 @@
+#pragma once
+//! Heat budget of one output time: per-group flows and storage, cumulative channel heat, energy-balance error.
+#include <cstddef>
+#include <span>
+#include <vector>
+
+#include "drivers/results.hpp"
+#include "drivers/simulation.hpp"
+#include "solver/assembly.hpp"
+
+namespace thermorph {
+
+class BudgetRecorder {
+ public:
+  BudgetRecorder(const Network& network, const NetworkSystem& system) : network_(network), system_(system) {}
+
+  //! Flows, storage, controls, channel energies and the balance error at time t into `summary`; the lateral
+  //! face temperatures [K] into `faceTemperatures` (the other recorders use them).
+  void compute(double t, std::span<const double> y, double initialStored, RunSummary& summary,
+               std::vector<double>& faceTemperatures) const;
+  //! /body/heat_flow, /body/cumulative_heat, /body/energy_balance_error and /segments/*/heat_flow.
+  void create(ResultsFile& f, const std::vector<std::string>& segmentNames);
+  void write(ResultsFile& f, const RunSummary& summary) const;
+
+ private:
+  const Network& network_;
+  const NetworkSystem& system_;
+  std::size_t storage_ = 0, balance_ = 0;
+  std::vector<std::size_t> flow_, energy_;
+  std::vector<std::vector<std::size_t>> segmentFlow_;  //!< [group][channel]
+  std::vector<std::size_t> segmentStorage_;
+};
+
+}  // namespace thermorph

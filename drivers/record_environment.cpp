@@ -1,0 +1,54 @@
+#include "drivers/record_environment.hpp"
+
+#include <algorithm>
+
+#include <fmt/format.h>
+
+namespace thermorph {
+namespace {
+
+//! /events: start, end [s] and label of every labelled event, for shading in figures.
+void writeEvents(ResultsFile& f, const Case& c) {
+  // Labelled events only: weather-file rows and unlabelled changes are not intervals to shade.
+  std::vector<double> start, end;
+  std::vector<std::string> labels;
+  for (const EventSpec& e : c.events) {
+    if (e.label.empty()) continue;
+    start.push_back(e.at);
+    end.push_back(std::min(e.at + e.span, c.run.duration));
+    labels.push_back(e.label);
+  }
+  if (labels.empty()) return;
+  f.writeArray("/events/start", start, {start.size()}, "s");
+  f.writeArray("/events/end", end, {end.size()}, "s");
+  f.writeStringArray("/events/label", labels);
+}
+
+}  // namespace
+
+EnvironmentRecorder::EnvironmentRecorder(ResultsFile& f, const Body& body) : body_(body) {
+  writeEvents(f, body.spec());
+  for (const Controller& c : body.network().controllers) {
+    control_.push_back(f.createSeries("/control/" + c.name, {}, "1"));
+    f.setAttribute("/control/" + c.name, "definition",
+                   fmt::format("controller state (multiplier or open fraction), limits {:g} to {:g}", c.lower, c.upper));
+  }
+  for (const EnvironmentSeries& e : body.environment().series())
+    environment_.push_back(f.createSeries("/environment/" + e.name, {}, e.units));
+  for (const SegmentMesh& m : body.segments())
+    convection_.push_back(f.createSeries("/segments/" + m.name + "/convection_coefficient", {}, "W m-2 K-1"));
+}
+
+void EnvironmentRecorder::write(ResultsFile& f, double t, std::span<const double> controls,
+                                std::span<const double> faceTemperatures) {
+  for (std::size_t k = 0; k < control_.size(); ++k) f.append(control_[k], {&controls[k], 1});
+  values_.resize(environment_.size());
+  body_.environment().seriesValues(t, values_);
+  for (std::size_t e = 0; e < environment_.size(); ++e) f.append(environment_[e], {&values_[e], 1});
+  for (Index g = 0; g < convection_.size(); ++g) {
+    double h = body_.environment().meanConvectionCoefficient(g, t, faceTemperatures);
+    f.append(convection_[g], {&h, 1});
+  }
+}
+
+}  // namespace thermorph

@@ -1,0 +1,26 @@
+#pragma once
+//! Surroundings and controls over the run: environment series, controller states, mean convection coefficient
+//! per segment, and the labelled events (for shading in figures).
+#include <cstddef>
+#include <span>
+#include <vector>
+
+#include "drivers/results.hpp"
+#include "models/body.hpp"
+
+namespace thermorph {
+
+class EnvironmentRecorder {
+ public:
+  //! Creates /environment/*, /control/*, /segments/*/convection_coefficient and writes /events.
+  EnvironmentRecorder(ResultsFile& f, const Body& body);
+  //! Appends time t; `controls` from the summary, `faceTemperatures` [K] from the budget.
+  void write(ResultsFile& f, double t, std::span<const double> controls, std::span<const double> faceTemperatures);
+
+ private:
+  const Body& body_;
+  std::vector<std::size_t> environment_, control_, convection_;
+  std::vector<double> values_;
+};
+
+}  // namespace thermorph

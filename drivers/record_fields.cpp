@@ -1,0 +1,89 @@
+#include "drivers/record_fields.hpp"
+
+#include <cmath>
+
+namespace thermorph {
+namespace {
+constexpr double kelvinOffset = 273.15;
+}
+
+FieldRecorder::FieldRecorder(ResultsFile& f, const Body& body) : body_(body) {
+  core_ = f.createSeries("/body/core_temperature", {}, "degC");
+  blood_ = f.createSeries("/body/blood_temperature", {}, "degC");
+  skin_ = f.createSeries("/body/mean_skin_temperature", {}, "degC");
+  f.setAttribute("/body/core_temperature", "definition",
+                 "volume-weighted mean of the innermost layer of segment " + body.segments()[body.coreSegment()].name);
+  f.setAttribute("/body/blood_temperature", "definition", "central blood pool (or the pinned arterial temperature)");
+  f.setAttribute("/body/mean_skin_temperature", "definition",
+                 "outermost tissue cells (under any coat), weighted by exposed area and segment count");
+  for (const SegmentMesh& m : body.segments()) {
+    const std::string g = "/segments/" + m.name;
+    const auto nz = static_cast<std::uint64_t>(m.nz), nr = static_cast<std::uint64_t>(m.nr);
+    f.writeArray(g + "/radius", m.radius, {m.radius.size()}, "m");
+    f.writeArray(g + "/axial", m.axial, {m.axial.size()}, "m");
+    f.writeIntArray(g + "/layer", m.layer, "1");
+    f.writeStringArrayAttribute(g + "/layer", "layer_names", m.layerNames);
+    f.writeArray(g + "/volume", m.volume, {nz, nr}, "m3");
+    f.setAttribute(g, "shape", std::string(shapeName(m.shape)));
+    f.setAttribute(g, "surface_area", m.area);
+    Segment s;
+    s.temperature = f.createSeries(g + "/temperature", {nz, nr}, "degC");
+    s.surface = f.createSeries(g + "/surface_temperature", {nz}, "degC");
+    s.arterial = f.createSeries(g + "/arterial_temperature", {nz}, "degC");
+    s.venous = f.createSeries(g + "/venous_temperature", {nz}, "degC");
+    segments_.push_back(s);
+  }
+}
+
+double FieldRecorder::supplyTemperature(std::span<const double> y) const {
+  if (body_.poolNode()) return y[*body_.poolNode()];
+  return body_.spec().circulation.fixedArterialTemperature.value_or(std::nan(""));
+}
+
+void FieldRecorder::writeBodyTemperatures(ResultsFile& f, std::span<const double> y) {
+  const SegmentMesh& core = body_.segments()[body_.coreSegment()];
+  double sum = 0.0, volume = 0.0;
+  for (int iz = 0; iz < core.nz; ++iz)
+    for (int ir = 0; ir < core.innermostLayerCells; ++ir) {
+      double v = core.volume[static_cast<std::size_t>(iz * core.nr + ir)];
+      sum += v * y[core.node(iz, ir)];
+      volume += v;
+    }
+  double value = sum / volume - kelvinOffset;
+  f.append(core_, {&value, 1});
+  value = supplyTemperature(y) - kelvinOffset;
+  f.append(blood_, {&value, 1});
+  double skin = 0.0, area = 0.0;
+  const Network& n = body_.network();
+  for (const SegmentMesh& m : body_.segments())
+    for (int iz = 0; iz < m.nz; ++iz) {
+      double a = m.weight * n.faces[m.lateralFace[static_cast<std::size_t>(iz)]].area;
+      skin += a * y[m.node(iz, m.skinCell)];
+      area += a;
+    }
+  value = skin / area - kelvinOffset;
+  f.append(skin_, {&value, 1});
+}
+
+void FieldRecorder::write(ResultsFile& f, std::span<const double> y, std::span<const double> faceTemperatures) {
+  writeBodyTemperatures(f, y);
+  for (Index g = 0; g < body_.segments().size(); ++g) {
+    const SegmentMesh& m = body_.segments()[g];
+    const auto nz = static_cast<std::size_t>(m.nz);
+    buffer_.resize(nz * static_cast<std::size_t>(m.nr));
+    for (std::size_t i = 0; i < buffer_.size(); ++i) buffer_[i] = y[m.offset + i] - kelvinOffset;
+    f.append(segments_[g].temperature, buffer_);
+    buffer_.resize(nz);
+    for (std::size_t iz = 0; iz < nz; ++iz) buffer_[iz] = faceTemperatures[m.lateralFace[iz]] - kelvinOffset;
+    f.append(segments_[g].surface, buffer_);
+    // Blood streams: arterial and deep-venous temperature per axial cell (NaN where no blood flows).
+    for (int which = 0; which < 2; ++which) {
+      const std::vector<Index>& nodes = which == 0 ? m.arterial : m.venous;
+      for (std::size_t iz = 0; iz < nz; ++iz)
+        buffer_[iz] = (nodes.empty() || nodes[iz] == noNode ? std::nan("") : y[nodes[iz]]) - kelvinOffset;
+      f.append(which == 0 ? segments_[g].arterial : segments_[g].venous, buffer_);
+    }
+  }
+}
+
+}  // namespace thermorph

@@ -1,0 +1,102 @@
+#include "drivers/recorder.hpp"
+
+#include <ctime>
+#include <filesystem>
+
+#include "models/case.hpp"
+
+namespace thermorph {
+namespace {
+
+const char* caution =
+    "Model estimates for research; not veterinary or medical advice. Thresholds such as critical tissue "
+    "temperatures vary by species and must come from your own sources; follow local regulations and licensed "
+    "practice.";
+
+std::string nowIso() {
+  std::time_t t = std::time(nullptr);
+  char buffer[32];
+  std::tm utc{};
+  gmtime_r(&t, &utc);  // thread safe (sweeps)
+  std::strftime(buffer, sizeof buffer, "%Y-%m-%dT%H:%M:%SZ", &utc);
+  return buffer;
+}
+
+//! Root attributes (tool, command line, case, caution) and whole-body constants.
+void writeMetadata(ResultsFile& f, const Body& body, const RunOptions& options) {
+  f.setAttribute("/", "tool_version", std::string(THERMORPH_VERSION));
+  f.setAttribute("/", "command_line", options.commandLine);
+  f.setAttribute("/", "case", resolvedCaseToml(body.spec()));
+  f.setAttribute("/", "title", body.spec().title);
+  f.setAttribute("/", "created", nowIso());
+  f.setAttribute("/", "caution", std::string(caution));
+  f.setAttribute("/", "complete", 0L);
+}
+
+void writeBodyConstants(ResultsFile& f, const Body& body) {
+  f.setAttribute("/body", "mass", body.bodyMass());
+  f.setAttribute("/body", "blood_volume", body.bloodVolume());
+  f.setAttribute("/body", "blood_flow", body.totalBloodFlow());
+  f.setAttribute("/body", "cardiac_output", body.cardiacOutput());
+  f.setAttribute("/body", "basal_metabolic_rate", body.basalMetabolicRate());
+}
+
+std::vector<std::string> segmentNames(const Body& body) {
+  std::vector<std::string> names;
+  for (const SegmentMesh& m : body.segments()) names.push_back(m.name);
+  return names;
+}
+
+}  // namespace
+
+Recorder::Recorder(const Body& body, const NetworkSystem& system, const RunOptions& options)
+    : system_(system), observer_(options.observer), budget_(body.network(), system) {
+  if (options.output.empty()) return;
+  file_ = std::make_unique<ResultsFile>(options.output);
+  ResultsFile& f = *file_;
+  writeMetadata(f, body, options);
+  time_ = f.createSeries("/time", {}, "s");
+  budget_.create(f, segmentNames(body));
+  fields_ = std::make_unique<FieldRecorder>(f, body);
+  writeBodyConstants(f, body);
+  environment_ = std::make_unique<EnvironmentRecorder>(f, body);
+}
+
+void Recorder::record(double t, std::span<const double> y, double initialStored, RunSummary& summary) {
+  std::vector<double>& faces = faceTemperatures_;
+  budget_.compute(t, y, initialStored, summary, faces);
+  if (observer_) observer_(t, y.first(system_.nodeCount()), summary);
+  if (!file_) return;
+  ResultsFile& f = *file_;
+  f.append(time_, {&t, 1});
+  budget_.write(f, summary);
+  environment_->write(f, t, summary.controls, faces);
+  fields_->write(f, y, faces);
+}
+
+void Recorder::finish(RunSummary& summary, bool steady) {
+  if (!file_) return;
+  ResultsFile& f = *file_;
+  const SolverStatistics& s = summary.statistics;
+  f.setAttribute("/solver", "method", std::string(steady ? "KINSOL Newton, KLU" : "CVODE BDF, Newton, KLU"));
+  f.setAttribute("/solver", "steps", s.steps);
+  f.setAttribute("/solver", "rhs_evaluations", s.rhsEvaluations);
+  f.setAttribute("/solver", "jacobian_evaluations", s.jacobianEvaluations);
+  f.setAttribute("/solver", "nonlinear_iterations", s.nonlinearIterations);
+  f.setAttribute("/solver", "error_test_failures", s.errorTestFailures);
+  f.setAttribute("/solver", "wall_seconds", s.wallSeconds);
+  f.setAttribute("/solver", "state_size", static_cast<long>(system_.size()));
+  f.setAttribute("/solver", "jacobian_nonzeros", s.jacobianNonzeros);
+  f.setAttribute("/solver", "factor_nonzeros", s.factorNonzeros);
+  f.setAttribute("/", "complete", summary.complete ? 1L : 0L);
+  if (!summary.complete) f.setAttribute("/", "failure", summary.failure);
+  // Never clobber an earlier complete result with a partial one.
+  summary.outputPath = summary.complete ? f.commit() : f.commit(incompletePath_);
+}
+
+std::string incompleteName(const std::string& output) {
+  std::filesystem::path p(output);
+  return (p.parent_path() / (p.stem().string() + ".incomplete" + p.extension().string())).string();
+}
+
+}  // namespace thermorph

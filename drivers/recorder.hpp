@@ -1,0 +1,50 @@
+#pragma once
+//! The run loop's recording, split by what is recorded. Recorder (recorder.cpp) opens the results file, writes
+//! the run's metadata and solver statistics, and calls the parts in turn at every output time:
+//!   BudgetRecorder       heat flows, storage, cumulative heat, energy balance (record_budget.cpp); also fills
+//!                        the RunSummary, with or without a file
+//!   EnvironmentRecorder  surroundings series, controller states, convection coefficients, events
+//!                        (record_environment.cpp)
+//!   FieldRecorder        temperature fields, surface and blood temperatures, core/blood/skin means, meshes
+//!                        (record_fields.cpp)
+//! Progress on stderr is ProgressReporter (progress.hpp).
+#include <memory>
+#include <span>
+#include <string>
+#include <vector>
+
+#include "drivers/record_budget.hpp"
+#include "drivers/record_environment.hpp"
+#include "drivers/record_fields.hpp"
+#include "drivers/results.hpp"
+#include "drivers/simulation.hpp"
+
+namespace thermorph {
+
+//! Writes outputs as they come: one time point per call.
+class Recorder {
+ public:
+  Recorder(const Body& body, const NetworkSystem& system, const RunOptions& options);
+
+  //! Record time t with full state y (nodes, controls, then channel energies); fills `summary`.
+  void record(double t, std::span<const double> y, double initialStored, RunSummary& summary);
+  //! Solver statistics and completeness, then commit (a partial run goes to the incomplete path).
+  void finish(RunSummary& summary, bool steady);
+  void setIncompletePath(std::string p) { incompletePath_ = std::move(p); }
+
+ private:
+  const NetworkSystem& system_;
+  OutputObserver observer_;
+  std::unique_ptr<ResultsFile> file_;
+  std::size_t time_ = 0;
+  BudgetRecorder budget_;
+  std::unique_ptr<EnvironmentRecorder> environment_;
+  std::unique_ptr<FieldRecorder> fields_;
+  std::vector<double> faceTemperatures_;  //!< [K], from the budget, used by the other parts
+  std::string incompletePath_;
+};
+
+//! `dir/name.incomplete.ext` for `dir/name.ext`: where a partial run is written.
+std::string incompleteName(const std::string& output);
+
+}  // namespace thermorph
