@@ -25,17 +25,21 @@ void BudgetRecorder::compute(double t, std::span<const double> y, double initial
 }
 
 void BudgetRecorder::create(ResultsFile& f, const std::vector<std::string>& segmentNames) {
-  for (const std::string& ch : network_.channels) flow_.push_back(f.createSeries("/body/heat_flow/" + ch, {}, "W"));
-  storage_ = f.createSeries("/body/heat_flow/storage", {}, "W");
   for (const std::string& ch : network_.channels)
-    energy_.push_back(f.createSeries("/body/cumulative_heat/" + ch, {}, "J"));
-  balance_ = f.createSeries("/body/energy_balance_error", {}, "J");
+    flow_.push_back(f.createSeries("/body/heat_flow/" + ch, {}, "W", "whole-body heat flow by " + ch + ", positive into the body"));
+  storage_ = f.createSeries("/body/heat_flow/storage", {}, "W", "whole-body rate of heat storage");
+  for (const std::string& ch : network_.channels)
+    energy_.push_back(f.createSeries("/body/cumulative_heat/" + ch, {}, "J",
+                                     "whole-body heat gained by " + ch + " since the start of the run"));
+  balance_ = f.createSeries("/body/energy_balance_error", {}, "J",
+                            "heat gained by all channels minus the change of stored heat");
   for (const std::string& name : segmentNames) {
     std::string g = "/segments/" + name;
     segmentFlow_.emplace_back();
     for (const std::string& ch : network_.channels)
-      segmentFlow_.back().push_back(f.createSeries(g + "/heat_flow/" + ch, {}, "W"));
-    segmentStorage_.push_back(f.createSeries(g + "/heat_flow/storage", {}, "W"));
+      segmentFlow_.back().push_back(f.createSeries(g + "/heat_flow/" + ch, {}, "W",
+                                                   "heat flow of one " + name + " by " + ch + ", positive into it"));
+    segmentStorage_.push_back(f.createSeries(g + "/heat_flow/storage", {}, "W", "rate of heat storage of one " + name));
   }
 }
 

@@ -19,9 +19,13 @@ void writeEvents(ResultsFile& f, const Case& c) {
     labels.push_back(e.label);
   }
   if (labels.empty()) return;
-  f.writeArray("/events/start", start, {start.size()}, "s");
-  f.writeArray("/events/end", end, {end.size()}, "s");
+  // The labels are the events' coordinate (netCDF dimension `label`).
   f.writeStringArray("/events/label", labels);
+  f.makeCoordinate("/events/label");
+  f.writeArray("/events/start", start, {start.size()}, "s", "start of the event since the start of the run");
+  f.writeArray("/events/end", end, {end.size()}, "s", "end of the event since the start of the run");
+  f.attachDimensions("/events/start", {"label"});
+  f.attachDimensions("/events/end", {"label"});
 }
 
 }  // namespace
@@ -29,14 +33,18 @@ void writeEvents(ResultsFile& f, const Case& c) {
 EnvironmentRecorder::EnvironmentRecorder(ResultsFile& f, const Body& body) : body_(body) {
   writeEvents(f, body.spec());
   for (const Controller& c : body.network().controllers) {
-    control_.push_back(f.createSeries("/control/" + c.name, {}, "1"));
+    control_.push_back(f.createSeries("/control/" + c.name, {}, "1", "state of controller " + c.name));
     f.setAttribute("/control/" + c.name, "definition",
                    fmt::format("controller state (multiplier or open fraction), limits {:g} to {:g}", c.lower, c.upper));
   }
-  for (const EnvironmentSeries& e : body.environment().series())
-    environment_.push_back(f.createSeries("/environment/" + e.name, {}, e.units));
+  for (const EnvironmentSeries& e : body.environment().series()) {
+    std::string words = e.name;
+    std::replace(words.begin(), words.end(), '_', ' ');
+    environment_.push_back(f.createSeries("/environment/" + e.name, {}, e.units, words));
+  }
   for (const SegmentMesh& m : body.segments())
-    convection_.push_back(f.createSeries("/segments/" + m.name + "/convection_coefficient", {}, "W m-2 K-1"));
+    convection_.push_back(f.createSeries("/segments/" + m.name + "/convection_coefficient", {}, "W m-2 K-1",
+                                         "mean convection coefficient over the exposed surface"));
 }
 
 void EnvironmentRecorder::write(ResultsFile& f, double t, std::span<const double> controls,

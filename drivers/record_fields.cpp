@@ -8,9 +8,9 @@ constexpr double kelvinOffset = 273.15;
 }
 
 FieldRecorder::FieldRecorder(ResultsFile& f, const Body& body) : body_(body) {
-  core_ = f.createSeries("/body/core_temperature", {}, "degC");
-  blood_ = f.createSeries("/body/blood_temperature", {}, "degC");
-  skin_ = f.createSeries("/body/mean_skin_temperature", {}, "degC");
+  core_ = f.createSeries("/body/core_temperature", {}, "degC", "core temperature");
+  blood_ = f.createSeries("/body/blood_temperature", {}, "degC", "central blood temperature");
+  skin_ = f.createSeries("/body/mean_skin_temperature", {}, "degC", "mean skin temperature");
   f.setAttribute("/body/core_temperature", "definition",
                  "volume-weighted mean of the innermost layer of segment " + body.segments()[body.coreSegment()].name);
   f.setAttribute("/body/blood_temperature", "definition", "central blood pool (or the pinned arterial temperature)");
@@ -19,18 +19,27 @@ FieldRecorder::FieldRecorder(ResultsFile& f, const Body& body) : body_(body) {
   for (const SegmentMesh& m : body.segments()) {
     const std::string g = "/segments/" + m.name;
     const auto nz = static_cast<std::uint64_t>(m.nz), nr = static_cast<std::uint64_t>(m.nr);
-    f.writeArray(g + "/radius", m.radius, {m.radius.size()}, "m");
-    f.writeArray(g + "/axial", m.axial, {m.axial.size()}, "m");
+    // Coordinates (netCDF dimensions `radius` and `axial` of this segment's group).
+    f.writeArray(g + "/radius", m.radius, {m.radius.size()}, "m",
+                 "cell-centre distance from the axis (or mid-plane) at mid-length");
+    f.writeArray(g + "/axial", m.axial, {m.axial.size()}, "m", "cell-centre distance from the proximal end");
+    f.makeCoordinate(g + "/radius");
+    f.makeCoordinate(g + "/axial");
     f.writeIntArray(g + "/layer", m.layer, "1");
+    f.setAttribute(g + "/layer", "long_name", std::string("layer index of each radial cell (see layer_names)"));
     f.writeStringArrayAttribute(g + "/layer", "layer_names", m.layerNames);
-    f.writeArray(g + "/volume", m.volume, {nz, nr}, "m3");
+    f.attachDimensions(g + "/layer", {"radius"});
+    f.writeArray(g + "/volume", m.volume, {nz, nr}, "m3", "cell volume of one copy");
+    f.attachDimensions(g + "/volume", {"axial", "radius"});
     f.setAttribute(g, "shape", std::string(shapeName(m.shape)));
     f.setAttribute(g, "surface_area", m.area);
     Segment s;
-    s.temperature = f.createSeries(g + "/temperature", {nz, nr}, "degC");
-    s.surface = f.createSeries(g + "/surface_temperature", {nz}, "degC");
-    s.arterial = f.createSeries(g + "/arterial_temperature", {nz}, "degC");
-    s.venous = f.createSeries(g + "/venous_temperature", {nz}, "degC");
+    s.temperature = f.createSeries(g + "/temperature", {nz, nr}, "degC", "cell temperature", {"axial", "radius"});
+    s.surface = f.createSeries(g + "/surface_temperature", {nz}, "degC", "outer surface temperature", {"axial"});
+    s.arterial = f.createSeries(g + "/arterial_temperature", {nz}, "degC",
+                                "arterial blood temperature (NaN where no blood flows)", {"axial"});
+    s.venous = f.createSeries(g + "/venous_temperature", {nz}, "degC",
+                              "deep-venous blood temperature (NaN where no blood flows)", {"axial"});
     segments_.push_back(s);
   }
 }

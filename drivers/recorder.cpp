@@ -55,7 +55,7 @@ Recorder::Recorder(const Body& body, const NetworkSystem& system, const RunOptio
   file_ = std::make_unique<ResultsFile>(options.output);
   ResultsFile& f = *file_;
   writeMetadata(f, body, options);
-  time_ = f.createSeries("/time", {}, "s");
+  time_ = f.createTime("s", "time since the start of the run");
   budget_.create(f, segmentNames(body));
   fields_ = std::make_unique<FieldRecorder>(f, body);
   writeBodyConstants(f, body);

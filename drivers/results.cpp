@@ -1,6 +1,7 @@
 #include "drivers/results.hpp"
 
 #include <hdf5.h>
+#include <hdf5_hl.h>
 #include <unistd.h>
 
 #include <filesystem>
@@ -88,7 +89,8 @@ long long ResultsFile::openObject(const std::string& path) {
 }
 
 void ResultsFile::writeArray(const std::string& path, std::span<const double> values,
-                             const std::vector<std::uint64_t>& shape, const std::string& units) {
+                             const std::vector<std::uint64_t>& shape, const std::string& units,
+                             const std::string& longName) {
   auto [parent, name] = splitPath(path);
   hid_t group = ensureGroup(parent);
   std::vector<hsize_t> dims(shape.begin(), shape.end());
@@ -97,6 +99,7 @@ void ResultsFile::writeArray(const std::string& path, std::span<const double> va
   checkH5(ds, "create " + path);
   checkH5(H5Dwrite(ds, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, values.data()), "write " + path);
   writeStringAttribute(ds, "units", units);
+  if (!longName.empty()) writeStringAttribute(ds, "long_name", longName);
   H5Dclose(ds);
   H5Sclose(space);
   H5Gclose(group);
@@ -154,8 +157,8 @@ void ResultsFile::writeStringArrayAttribute(const std::string& object, const std
   H5Oclose(obj);
 }
 
-std::size_t ResultsFile::createSeries(const std::string& path, const std::vector<std::uint64_t>& shape,
-                                      const std::string& units) {
+std::size_t ResultsFile::createDataset(const std::string& path, const std::vector<std::uint64_t>& shape,
+                                       const std::string& units, const std::string& longName) {
   auto [parent, name] = splitPath(path);
   hid_t group = ensureGroup(parent);
   std::vector<hsize_t> dims{0}, maxDims{H5S_UNLIMITED}, chunk;
@@ -175,11 +178,81 @@ std::size_t ResultsFile::createSeries(const std::string& path, const std::vector
   hid_t ds = H5Dcreate2(group, name.c_str(), H5T_NATIVE_DOUBLE, space, H5P_DEFAULT, plist, H5P_DEFAULT);
   checkH5(ds, "create " + path);
   writeStringAttribute(ds, "units", units);
+  if (!longName.empty()) writeStringAttribute(ds, "long_name", longName);
   H5Pclose(plist);
   H5Sclose(space);
   H5Gclose(group);
   series_.push_back({ds, shape, 0});
   return series_.size() - 1;
+}
+
+std::size_t ResultsFile::createTime(const std::string& units, const std::string& longName) {
+  time_ = createDataset("/time", {}, units, longName);
+  timeUnits_ = units;
+  timeLongName_ = longName;
+  checkH5(H5DSset_scale(series_[time_].dataset, "time"), "make /time a dimension scale");
+  groupTimes_.emplace_back("/", time_);
+  return time_;
+}
+
+std::size_t ResultsFile::groupTime(const std::string& group) {
+  for (const auto& [g, series] : groupTimes_)
+    if (g == group) return series;
+  if (time_ == noSeries) throw std::logic_error("ResultsFile: createTime before any other series");
+  std::size_t copy = createDataset(group + "/time", {}, timeUnits_, timeLongName_);
+  checkH5(H5DSset_scale(series_[copy].dataset, "time"), "make " + group + "/time a dimension scale");
+  // Catch up with the points already written (series created after the first output).
+  if (series_[time_].count > 0) {
+    std::vector<double> times(series_[time_].count);
+    checkH5(H5Dread(series_[time_].dataset, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, times.data()),
+            "read /time");
+    for (double t : times) append(copy, {&t, 1});
+  }
+  groupTimes_.emplace_back(group, copy);
+  return copy;
+}
+
+std::size_t ResultsFile::createSeries(const std::string& path, const std::vector<std::uint64_t>& shape,
+                                      const std::string& units, const std::string& longName,
+                                      const std::vector<std::string>& dims) {
+  const std::string parent = splitPath(path).first;
+  const std::size_t time = groupTime(parent);
+  const std::size_t index = createDataset(path, shape, units, longName);
+  checkH5(H5DSattach_scale(series_[index].dataset, series_[time].dataset, 0), "attach time to " + path);
+  for (std::size_t i = 0; i < dims.size(); ++i) {
+    if (dims[i].empty()) continue;
+    const std::string scalePath = (parent == "/" ? "" : parent) + "/" + dims[i];
+    hid_t scale = H5Dopen2(file_, scalePath.c_str(), H5P_DEFAULT);
+    checkH5(scale, "open coordinate " + scalePath);
+    herr_t status = H5DSattach_scale(series_[index].dataset, scale, static_cast<unsigned>(i + 1));
+    H5Dclose(scale);
+    checkH5(status, "attach " + scalePath + " to " + path);
+  }
+  return index;
+}
+
+void ResultsFile::makeCoordinate(const std::string& path) {
+  hid_t ds = H5Dopen2(file_, path.c_str(), H5P_DEFAULT);
+  checkH5(ds, "open " + path);
+  herr_t status = H5DSset_scale(ds, splitPath(path).second.c_str());
+  H5Dclose(ds);
+  checkH5(status, "make " + path + " a dimension scale");
+}
+
+void ResultsFile::attachDimensions(const std::string& path, const std::vector<std::string>& dims) {
+  const std::string parent = splitPath(path).first;
+  hid_t ds = H5Dopen2(file_, path.c_str(), H5P_DEFAULT);
+  checkH5(ds, "open " + path);
+  for (std::size_t i = 0; i < dims.size(); ++i) {
+    if (dims[i].empty()) continue;
+    const std::string scalePath = (parent == "/" ? "" : parent) + "/" + dims[i];
+    hid_t scale = H5Dopen2(file_, scalePath.c_str(), H5P_DEFAULT);
+    herr_t status = scale < 0 ? -1 : H5DSattach_scale(ds, scale, static_cast<unsigned>(i));
+    if (scale >= 0) H5Dclose(scale);
+    if (status < 0) H5Dclose(ds);
+    checkH5(status, "attach " + scalePath + " to " + path);
+  }
+  H5Dclose(ds);
 }
 
 void ResultsFile::append(std::size_t index, std::span<const double> values) {
@@ -199,6 +272,10 @@ void ResultsFile::append(std::size_t index, std::span<const double> values) {
   H5Sclose(memSpace);
   H5Sclose(fileSpace);
   ++s.count;
+  // The time coordinate extends every group's copy with it.
+  if (index == time_)
+    for (const auto& [group, copy] : groupTimes_)
+      if (copy != time_) append(copy, values);
 }
 
 void ResultsFile::setAttribute(const std::string& object, const std::string& name, const std::string& value) {

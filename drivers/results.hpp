@@ -2,6 +2,12 @@
 //! HDF5 results file: datasets with `units` attributes, time series chunked, compressed and extended per output.
 //! Written under a temporary name in the same folder and renamed on success, so a failed run never clobbers
 //! an earlier result.
+//!
+//! netCDF-4 layout (HDF5 dimension scales, H5DS API of hdf5_hl; CF `units` and `long_name`): `/time` is a
+//! dimension scale, and every group holding time series gets its own copy `<group>/time` (same values, extended
+//! with /time), so a netCDF-4 reader opening one group (xarray with group=...) finds `time` as a coordinate
+//! there; the time dimension of each series is attached to its group's copy. Other axes are attached to
+//! coordinates of the same group made with makeCoordinate (e.g. a segment's `radius` and `axial`).
 #include <cstdint>
 #include <span>
 #include <string>
@@ -19,16 +25,25 @@ class ResultsFile {
 
   //! Fixed dataset of doubles with shape `shape`.
   void writeArray(const std::string& path, std::span<const double> values, const std::vector<std::uint64_t>& shape,
-                  const std::string& units);
+                  const std::string& units, const std::string& longName = "");
   void writeIntArray(const std::string& path, std::span<const int> values, const std::string& units);
   void writeStringArray(const std::string& path, const std::vector<std::string>& values);
   void writeStringArrayAttribute(const std::string& object, const std::string& name,
                                  const std::vector<std::string>& values);
 
-  //! A time series dataset [nt, shape...]; returns a handle for append().
-  std::size_t createSeries(const std::string& path, const std::vector<std::uint64_t>& shape, const std::string& units);
+  //! The time coordinate /time [nt] (a dimension scale); returns a handle for append(), which also extends
+  //! every group's copy. Create it before any other series.
+  std::size_t createTime(const std::string& units, const std::string& longName);
+  //! A time series dataset [nt, shape...]; returns a handle for append(). `dims` names the coordinates of the
+  //! axes after time (datasets of the same group made coordinates with makeCoordinate; "" leaves one unnamed).
+  std::size_t createSeries(const std::string& path, const std::vector<std::uint64_t>& shape, const std::string& units,
+                           const std::string& longName = "", const std::vector<std::string>& dims = {});
   //! Append one time point to series `series` (size: product of its shape).
   void append(std::size_t series, std::span<const double> values);
+  //! Make the 1-D dataset `path` a dimension scale (a netCDF coordinate) named after it.
+  void makeCoordinate(const std::string& path);
+  //! Attach axis i of dataset `path` to the coordinate `dims[i]` of the same group ("" skips an axis).
+  void attachDimensions(const std::string& path, const std::vector<std::string>& dims);
 
   void setAttribute(const std::string& object, const std::string& name, const std::string& value);
   void setAttribute(const std::string& object, const std::string& name, double value);
@@ -41,6 +56,10 @@ class ResultsFile {
  private:
   long long ensureGroup(const std::string& path);
   long long openObject(const std::string& path);
+  //! The group's copy of /time (made at its first series); its series handle.
+  std::size_t groupTime(const std::string& group);
+  std::size_t createDataset(const std::string& path, const std::vector<std::uint64_t>& shape,
+                            const std::string& units, const std::string& longName);
   struct Series {
     long long dataset;
     std::vector<std::uint64_t> shape;
@@ -49,6 +68,10 @@ class ResultsFile {
   std::string finalPath_, temporaryPath_;
   long long file_ = -1;
   std::vector<Series> series_;
+  static constexpr std::size_t noSeries = static_cast<std::size_t>(-1);
+  std::size_t time_ = noSeries;
+  std::string timeUnits_, timeLongName_;
+  std::vector<std::pair<std::string, std::size_t>> groupTimes_;  //!< group path, series of its /time copy
   bool committed_ = false;
 };
 

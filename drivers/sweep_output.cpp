@@ -1,6 +1,7 @@
 #include "drivers/sweep_output.hpp"
 
 #include <hdf5.h>
+#include <hdf5_hl.h>
 #include <unistd.h>
 
 #include <cerrno>
@@ -206,7 +207,10 @@ void doubles(hid_t group, const std::string& name, const std::vector<double>& va
              const std::string& definition = "") {
   H5 ds = dataset(group, name, H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, values.data(), values.size());
   attribute(ds, "units", units);
-  if (!definition.empty()) attribute(ds, "definition", definition);
+  if (!definition.empty()) {
+    attribute(ds, "definition", definition);
+    attribute(ds, "long_name", definition);  // CF
+  }
 }
 
 void longs(hid_t group, const std::string& name, const std::vector<long>& values, const std::string& units) {
@@ -219,6 +223,26 @@ H5 texts(hid_t group, const std::string& name, const std::vector<std::string>& v
   std::vector<const char*> pointers;
   for (const std::string& s : values) pointers.push_back(s.c_str());
   return dataset(group, name, type, type, pointers.data(), pointers.size());
+}
+
+//! netCDF-4 coordinate of a table group: `run` (run index 0..n-1) made an HDF5 dimension scale, attached to
+//! every other dataset of the group, so netCDF readers (xarray) see one named dimension `run` per group.
+void attachRunCoordinate(hid_t group, std::size_t n) {
+  std::vector<long> index(n);
+  for (std::size_t r = 0; r < n; ++r) index[r] = static_cast<long>(r);
+  H5 run = dataset(group, "run", H5T_STD_I64LE, H5T_NATIVE_LONG, index.data(), n);
+  attribute(run, "units", std::string("1"));
+  attribute(run, "long_name", std::string("run index (row of the sweep table)"));
+  check(H5DSset_scale(run, "run"), "make run a dimension scale");
+  H5G_info_t info;
+  check(H5Gget_info(group, &info), "list a group");
+  for (hsize_t i = 0; i < info.nlinks; ++i) {
+    char name[1024];
+    if (H5Lget_name_by_idx(group, ".", H5_INDEX_NAME, H5_ITER_INC, i, name, sizeof name, H5P_DEFAULT) < 0) continue;
+    if (std::string(name) == "run") continue;
+    H5 ds(H5Dopen2(group, name, H5P_DEFAULT), H5Dclose, std::string("open ") + name);
+    check(H5DSattach_scale(ds, run, 0), std::string("attach run to ") + name);
+  }
 }
 
 std::string nowIso() {
@@ -308,6 +332,7 @@ void writeHdf5(const SweepPlan& plan, std::span<const RunRow> rows, const SweepT
         attribute(ds, "axis", static_cast<long>(a));
       }
     }
+    attachRunCoordinate(group, n);
   }
   {
     H5 group(H5Gcreate2(file, "metrics", H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT), H5Gclose, "create /metrics");
@@ -317,6 +342,7 @@ void writeHdf5(const SweepPlan& plan, std::span<const RunRow> rows, const SweepT
       for (std::size_t r = 0; r < n; ++r) v[r] = rows[r].status == RunStatus::Ok ? rows[r].metrics[c] : missing;
       doubles(group, plan.columns[c].name, v, plan.columns[c].units, plan.columns[c].definition);
     }
+    attachRunCoordinate(group, n);
   }
   {
     H5 group(H5Gcreate2(file, "runs", H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT), H5Gclose, "create /runs");
@@ -348,6 +374,7 @@ void writeHdf5(const SweepPlan& plan, std::span<const RunRow> rows, const SweepT
     doubles(group, "wall_seconds", wall, "s", "whole run (wall time)");
     longs(group, "steps", steps, "1");
     doubles(group, "energy_balance_error", balance, "J", "cumulative gains minus the change in stored heat");
+    attachRunCoordinate(group, n);
   }
 }
 

@@ -153,7 +153,8 @@ def export_group(h5: h5py.File, group_path: str, out: Path, recursive: bool = Fa
         raise KeyError(f"no group {group_path}; groups are: / {' '.join(groups)}")
     group = h5[group_path]
     nt = len(h5["time"]) if "time" in h5 else -1
-    entries = [(n, d) for n, d in _datasets(group, recursive) if not (group_path == "/" and n == "time")]
+    # /time and each group's copy of it (its netCDF coordinate) are the time column.
+    entries = [(n, d) for n, d in _datasets(group, recursive) if n.split("/")[-1] != "time"]
     series = [(n, d) for n, d in entries if _is_time_series(group_path, n, d, nt)]
     static = [(n, d) for n, d in entries if not _is_time_series(group_path, n, d, nt)]
     written = []

@@ -79,7 +79,7 @@ class Sweep:
                 data = ds[()]
                 self.params[n] = np.array([text(v) for v in data]) if data.dtype.kind in "OSU" else data.astype(float)
             self.metrics = {n: (ds[()].astype(float), text(ds.attrs.get("units", "")))
-                            for n, ds in f["metrics"].items()}
+                            for n, ds in f["metrics"].items() if n != "run"}  # run: the netCDF coordinate
 
     def numeric(self, name: str) -> bool:
         return self.params[name].dtype.kind == "f"

@@ -55,6 +55,13 @@ def is_default_event_label(label: str) -> bool:
     return re.fullmatch(r"event at [-+0-9.eE]+ s", label.strip()) is not None
 
 
+def data_names(group) -> list[str]:
+    """Names of the datasets of `group` that are data, not coordinates: each group of a results file holds its
+    own copy of the netCDF coordinate `time` (an HDF5 dimension scale), which is not a channel or a variable."""
+    return [k for k, v in group.items()
+            if isinstance(v, h5py.Dataset) and _text(v.attrs.get("CLASS", b"")) != "DIMENSION_SCALE"]
+
+
 def ordered_channels(names) -> list[str]:
     """Heat-flow channel names in contract order, unknown names after, alphabetically."""
     known = [c for c in CHANNEL_ORDER if c in names]
@@ -231,7 +238,7 @@ class Segment:
         """Heat-flow channels stored for this segment, in contract order."""
         if "heat_flow" not in self.group:
             return []
-        return ordered_channels(list(self.group["heat_flow"].keys()))
+        return ordered_channels(data_names(self.group["heat_flow"]))
 
     def cell_volumes(self) -> np.ndarray:
         """Volume of each cell [m3] ([nz, nr]), or relative volumes [1] when not stored.
@@ -414,7 +421,7 @@ class Results:
     def body_channels(self) -> list[str]:
         """Heat-flow channels stored for the whole body, in contract order."""
         grp = self.file.get("body/heat_flow")
-        return ordered_channels(list(grp.keys())) if grp is not None else []
+        return ordered_channels(data_names(grp)) if grp is not None else []
 
     def body_heat_flow(self, channel: str) -> np.ndarray | None:
         """Whole-body heat flow by `channel`, copies of segments and the blood pool included [W] ([nt])."""
@@ -431,7 +438,7 @@ class Results:
         grp = self.file.get("environment")
         if grp is None:
             return {}
-        return {k: self.read(f"/environment/{k}") for k, v in grp.items() if isinstance(v, h5py.Dataset)}
+        return {k: self.read(f"/environment/{k}") for k in data_names(grp)}
 
     def events(self) -> list[tuple[float, float, str]]:
         """Intervals to shade as (start [s], end [s], label), sorted, duplicates dropped; [] without /events."""

@@ -17,11 +17,14 @@ def summarise(path):
         out["complete"] = int(f.attrs["complete"])
         out["final_time_s"] = float(f["time"][-1])
         out["outputs"] = int(f["time"].shape[0])
+        # Each group's `time` is its copy of the netCDF coordinate /time, not a channel.
         for name, ds in f["body/heat_flow"].items():
-            out[f"body.heat_flow.{name}.final_W"] = float(ds[-1])
+            if name != "time":
+                out[f"body.heat_flow.{name}.final_W"] = float(ds[-1])
         if "body/cumulative_heat" in f:
             for name, ds in f["body/cumulative_heat"].items():
-                out[f"body.cumulative_heat.{name}.final_J"] = float(ds[-1])
+                if name != "time":
+                    out[f"body.cumulative_heat.{name}.final_J"] = float(ds[-1])
         for key in ("core_temperature", "blood_temperature", "mean_skin_temperature"):
             if f"body/{key}" in f:
                 out[f"body.{key}.final_degC"] = float(f[f"body/{key}"][-1])
