@@ -21,9 +21,8 @@ from pathlib import Path
 
 import numpy as np
 
-sys.path.insert(0, str(Path(__file__).resolve().parent))
-from budget import WindowBudget, window_budget  # noqa: E402
-from thermorph_results import ZERO_CELSIUS_IN_KELVIN, Results, ResultsError  # noqa: E402
+from thermorph_post.budget import WindowBudget, window_budget
+from thermorph_post.results import ZERO_CELSIUS_IN_KELVIN, Results, ResultsError
 
 CAUTION = ("Thresholds such as critical tissue temperatures are species-specific and must come from your own "
            "sources; these are model estimates for research, not veterinary or medical advice.")

@@ -97,12 +97,12 @@ with h5py.File(sys.argv[1]) as f:
     assert np.all(np.abs(storage) < 1e-6), storage
 PY
 
-# 5. Figures: lines and a heat map, PNG and PDF, with the failed runs as gaps.
+# 5. Figures: lines and a heat map, PDF, SVG, PNG and source data, with the failed runs as gaps.
 "$python" "$src/postproc/sweep_figure.py" "$work/j1.h5" --metric segments.ears.heat_flow.convection \
   --out "$work/fig" > "$work/fig.txt" || fail "sweep_figure.py lines"
 "$python" "$src/postproc/sweep_figure.py" "$work/ref.h5" --metric body.core_temperature.final --heatmap \
   --out "$work/fig" >> "$work/fig.txt" || fail "sweep_figure.py heat map"
-[[ $(grep -c . "$work/fig.txt") -eq 4 ]] || fail "figure files: $(cat "$work/fig.txt")"
+[[ $(grep -c . "$work/fig.txt") -eq 8 ]] || fail "figure files (pdf, svg, png, data.csv of two figures): $(cat "$work/fig.txt")"
 while read -r f; do [[ -s "$f" ]] || fail "empty figure $f"; done < "$work/fig.txt"
 head -c 4 "$work/fig/ref_body.core_temperature.final_map.pdf" | grep -q "%PDF" || fail "not a PDF"
 

@@ -49,6 +49,7 @@ def find_thermorph() -> str:
 THERMORPH = find_thermorph()
 sys.path.insert(0, str(POSTPROC))
 import thermorph_results as tr  # noqa: E402
+from thermorph_post import CAUTION  # noqa: E402
 
 FAILURES = []
 
@@ -160,10 +161,10 @@ def check_mean_tissue_excludes_coat(sample: Path, tmp: Path):
 
 # ---- figures ------------------------------------------------------------------------------
 def check_figures(sample: Path, out: Path, extra=(), expect_maps=("left_ear", "tail"),
-                  incomplete=False, events=True, per_kg=True, formats=("pdf", "svg", "png")):
+                  incomplete=False, events=True, per_kg=True, formats=("pdf", "svg", "png"), forcing=True):
     proc = run("figures.py", sample, "--out", out, "--formats", ",".join(formats), *extra)
     files = listed_files(proc)
-    stems = {"temperatures", "budget"} | {f"maps_{s}" for s in expect_maps}
+    stems = {"temperatures", "budget"} | {f"maps_{s}" for s in expect_maps} | ({"forcing"} if forcing else set())
     expected = {out / f"{s}.{ext}" for s in stems for ext in formats + ("data.csv",)}
     check(set(files) == expected, f"figures {sample.name} {extra}: wrote {sorted(map(str, files))}")
     for path in files:
@@ -176,13 +177,13 @@ def check_figures(sample: Path, out: Path, extra=(), expect_maps=("left_ear", "t
         check(path.read_bytes()[:5] == b"%PDF-", f"{path} is not a PDF")
     for path in (p for p in files if p.suffix == ".png"):
         dpi = png_dpi(path)
-        check(dpi is not None and abs(dpi - 150.0) < 0.1, f"{path}: {dpi} dpi, expected 150")
+        check(dpi is not None and abs(dpi - 300.0) < 0.1, f"{path}: {dpi} dpi, expected 300 (the default)")
     for path in (p for p in files if p.suffix == ".svg"):
-        text = svg_text(path)
+        text = " ".join(svg_text(path).split())
         check(("INCOMPLETE RUN" in text) == incomplete, f"{path}: INCOMPLETE RUN marking wrong")
+        # The caution footer is on every figure by default (thermorph_post.CAUTION, wrapped over lines).
+        check(CAUTION in text, f"{path}: caution footer missing")
         if path.stem == "budget":
-            check("Model estimates for research; not veterinary or medical advice." in text,
-                  f"{path}: caution footer missing")
             check(("W/kg" in text) == per_kg, f"{path}: body heat flow unit W/kg expected {per_kg}")
         if path.stem == "temperatures":
             check(("cold air" in text) == events, f"{path}: event label 'cold air' expected {events}")
@@ -446,7 +447,7 @@ def check_real_limb(tmp: Path):
         return
     figs = tmp / "fig_limb"
     files = listed_files(run("figures.py", h5, "--out", figs, subprocess_run=True))
-    expected = {figs / f"{s}.{e}" for s in ("temperatures", "budget", "maps_forelimb")
+    expected = {figs / f"{s}.{e}" for s in ("temperatures", "budget", "maps_forelimb", "forcing")
                 for e in ("pdf", "svg", "png", "data.csv")}
     check(set(files) == expected, f"limb figures: wrote {sorted(map(str, files))}")
     for path in files:
@@ -472,7 +473,7 @@ def check_real_limb(tmp: Path):
     check(np.allclose(np.diff(seg["axial"]), np.diff(seg["axial"])[0], rtol=1e-12), "limb: uniform axial cells")
     same_numbers(xy(data[("segment mean surface temperatures", "forelimb")])[1], seg["surface"].mean(axis=1),
                  "forelimb mean surface temperature", rtol=1e-13)
-    same_numbers(xy(data[("segment mean surface temperatures", "medium (surroundings)")])[1],
+    same_numbers(xy(data[("segment mean surface temperatures", "surroundings")])[1],
                  ex.environment["temperature [degC]"], "air temperature")
 
     # Budget: bars are trapezoidal means of the segment flows over the run; whole body in W/kg.
@@ -621,7 +622,7 @@ def main() -> int:
                                                        "--segments", "tail,trunk"), expect_maps=("tail",),
                       formats=("svg",))
         check_figures(minimal, tmp / "fig_min", extra=("--units", "si"), incomplete=True, events=False,
-                      per_kg=False, formats=("svg",))
+                      per_kg=False, formats=("svg",), forcing=False)
         check_figures(steady, tmp / "fig_steady", events=False, formats=("svg",))
         only = listed_files(run("figures.py", full, "--out", tmp / "only", "--only", "budget", "--formats", "png"))
         check(sorted(p.name for p in only) == ["budget.data.csv", "budget.png"], f"--only budget: {only}")

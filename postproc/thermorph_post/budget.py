@@ -1,0 +1,164 @@
+"""Heat budget over a time window: mean heat flow by channel for segments, the blood pool and the whole body.
+
+Shared by report.py and figures.py. Heat flows are positive into the body [W].
+
+- Segment rows: trapezoidal rule on the stored flows at the output times, with
+  the flows linearly interpolated at window ends that fall between outputs;
+  all copies of a segment counted (one copy is stored, `count` multiplies).
+- Whole body: from /body/cumulative_heat (the integrator's own channel energies,
+  so exact to its tolerance): (E(t1) − E(t0)) / (t1 − t0). Between two outputs
+  E is interpolated by the cubic Hermite polynomial through E and its
+  derivative, the stored flow, at both outputs. Storage = sum of the channel
+  energies minus the change of /body/energy_balance_error (whose definition is
+  gains − change in stored heat). Without cumulative energies: trapezoid.
+- Blood pool: whole-body flows minus the sum over all segments (trapezoid),
+  shown when it is not zero and the file has whole-body `blood` flows (a body
+  with a central blood pool).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from thermorph_post.results import ENVIRONMENT_CHANNELS, Results, ordered_channels, time_average
+
+
+@dataclass
+class Row:
+    """One row of the budget: mean heat flow per channel over the window [W] (all copies)."""
+    label: str
+    kind: str                 # "segment", "others", "pool", "body"
+    means: dict[str, float] = field(default_factory=dict)
+    method: str = "trapezoid"  # "trapezoid", "cumulative", "difference"
+
+    def total(self, channels) -> float:
+        """Sum over `channels` [W]."""
+        return float(sum(self.means.get(c, 0.0) for c in channels))
+
+
+@dataclass
+class WindowBudget:
+    """Rows for a window [t0, t1] [s]; `channels` in display order, storage last."""
+    t0: float
+    t1: float
+    channels: list[str]
+    segments: list[Row]
+    others: Row | None
+    pool: Row | None
+    body: Row
+    body_trapezoid: Row
+
+    def rows(self) -> list[Row]:
+        """Segment rows, then 'other segments' and 'blood pool' when present, then the whole body."""
+        return self.segments + [r for r in (self.others, self.pool) if r is not None] + [self.body]
+
+    def parts_sum(self) -> dict[str, float]:
+        """Sum over segment, others and pool rows per channel [W] (compare with the whole-body row)."""
+        parts = self.segments + [r for r in (self.others, self.pool) if r is not None]
+        return {c: float(sum(r.means.get(c, 0.0) for r in parts)) for c in self.channels}
+
+
+def hermite_cumulative(time, energy, flow, t: float) -> float:
+    """Cumulative energy at time t [J] from samples E(time) [J] and dE/dt = flow [W].
+
+    Cubic Hermite interpolation on the output interval holding t (exact for
+    energies up to cubic in time); the stored value when t is an output time.
+    """
+    time = np.asarray(time, dtype=float)
+    i = int(np.searchsorted(time, t, side="right")) - 1
+    if i < 0 or t <= time[0]:
+        return float(energy[0])
+    if i >= len(time) - 1:
+        return float(energy[-1])
+    if t == time[i]:
+        return float(energy[i])
+    h = time[i + 1] - time[i]
+    s = (t - time[i]) / h
+    h00, h10 = 2 * s**3 - 3 * s**2 + 1, s**3 - 2 * s**2 + s
+    h01, h11 = -2 * s**3 + 3 * s**2, s**3 - s**2
+    return float(h00 * energy[i] + h10 * h * flow[i] + h01 * energy[i + 1] + h11 * h * flow[i + 1])
+
+
+def _mean(time, values, t0, t1) -> float:
+    """Trapezoidal mean over [t0, t1], or the interpolated value when t0 == t1 [units of values]."""
+    return float(time_average(time, values, t0, t1))
+
+
+def heat_lost_to_environment(res: Results, seg, t0: float, t1: float) -> float:
+    """Mean heat lost to the surroundings by all copies of a segment over the window [W] (≥ 0 means loss)."""
+    total = 0.0
+    for c in ENVIRONMENT_CHANNELS:
+        flow = seg.heat_flow(c)
+        if flow is not None:
+            total -= seg.count * _mean(res.time, flow, t0, t1)
+    return total
+
+
+def rank_segments(res: Results, segs, t0: float, t1: float):
+    """Segments sorted by mean heat lost to the surroundings over the window, largest first."""
+    return sorted(segs, key=lambda s: -heat_lost_to_environment(res, s, t0, t1))
+
+
+def window_budget(res: Results, t0: float, t1: float, segments=None) -> WindowBudget:
+    """Mean heat flows over [t0, t1] [s] for the named segments (default all), the rest, the pool and the body."""
+    all_segs = res.segments()
+    chosen = res.segments(segments) if segments is not None else all_segs
+    chosen_names = {s.name for s in chosen}
+    channels = ordered_channels(set(res.body_channels()) | {c for s in all_segs for c in s.heat_flow_channels()})
+    time = res.time
+
+    def seg_row(seg) -> Row:
+        means = {}
+        for c in channels:
+            flow = seg.heat_flow(c)
+            means[c] = seg.count * _mean(time, flow, t0, t1) if flow is not None else 0.0
+        return Row(seg.label, "segment", means)
+
+    seg_rows = {s.name: seg_row(s) for s in all_segs}
+    rest = [s for s in all_segs if s.name not in chosen_names]
+    others = None
+    if rest:
+        others = Row(f"other segments ({len(rest)})", "others",
+                     {c: sum(seg_rows[s.name].means[c] for s in rest) for c in channels})
+
+    body_trap = Row("whole body", "body", {}, "trapezoid")
+    for c in channels:
+        flow = res.body_heat_flow(c)
+        body_trap.means[c] = _mean(time, flow, t0, t1) if flow is not None else 0.0
+
+    # Blood pool (and anything else outside the segments): whole body minus the segments.
+    pool_means = {c: body_trap.means[c] - sum(r.means[c] for r in seg_rows.values()) for c in channels}
+    scale = max([abs(v) for v in body_trap.means.values()] + [1e-300])
+    pool = None
+    # Only a file with whole-body blood flows can show a pool (it exchanges heat only with the blood).
+    if res.segment_names() and res.body_heat_flow("blood") is not None and \
+            max(abs(v) for v in pool_means.values()) > 1e-9 * scale:
+        pool = Row("blood pool", "pool", pool_means, "difference")
+
+    body = _body_from_cumulative(res, channels, t0, t1) or body_trap
+    return WindowBudget(t0, t1, channels, [seg_rows[s.name] for s in chosen], others, pool, body, body_trap)
+
+
+def _body_from_cumulative(res: Results, channels, t0: float, t1: float) -> Row | None:
+    """Whole-body means from /body/cumulative_heat, or None when they are missing or the window is a point."""
+    if t1 <= t0 or len(res.time) < 2:
+        return None
+    energies = {c: res.cumulative_heat(c) for c in channels if c != "storage"}
+    if any(e is None for e in energies.values()):
+        return None
+    means = {}
+    gained = 0.0
+    for c, energy in energies.items():
+        flow = res.body_heat_flow(c)
+        delta = hermite_cumulative(res.time, energy, flow, t1) - hermite_cumulative(res.time, energy, flow, t0)
+        means[c] = delta / (t1 - t0)
+        gained += delta
+    err = res.optional("/body/energy_balance_error")
+    if "storage" in channels:
+        d_err = 0.0
+        if err is not None:
+            d_err = float(np.interp(t1, res.time, err.values) - np.interp(t0, res.time, err.values))
+        means["storage"] = (gained - d_err) / (t1 - t0)
+    return Row("whole body", "body", means, "cumulative")

@@ -1,0 +1,660 @@
+"""Publication figures from a thermorph results file (PDF, SVG, PNG, and the plotted numbers as CSV).
+
+    thermorph-figures RESULT.h5 [RESULT2.h5 ...] [--out DIR] [--only temperatures,budget,maps,forcing]
+                      [--units physiology|si] [--segments a,b | --top N] [--window t0,t1] [--times t1,t2,...]
+                      [--formats pdf,svg,png] [--style single|double] [--dpi N] [--no-caution]
+                      [--overlay KEY,KEY] [--labels A,B,...]
+
+(also `python3 postproc/figures.py ...` from a checkout). Several result files
+give the overlay figure of those runs.
+
+From Python each figure has a builder returning a matplotlib.figure.Figure
+(temperatures_figure, budget_figure, maps_figures, forcing_figure,
+overlay_figure) and a writer taking an output directory and returning the
+files written (temperatures, budget, maps, forcing, overlay). No global
+Matplotlib state is set. See postproc/README.md for what each figure shows.
+"""
+
+from __future__ import annotations
+
+import argparse
+import contextlib
+import sys
+from pathlib import Path
+
+import numpy as np
+from matplotlib.ticker import MaxNLocator
+
+from thermorph_post.budget import rank_segments, window_budget
+from thermorph_post.results import Results, ResultsError, faces_from_centres
+from thermorph_post.style import (BODY_STYLE, DEFAULT_STYLE, ENVIRONMENT_STYLE, FORMATS, LINE_CYCLE, MAP_COLOURS,
+                                  MARKER_CYCLE, PNG_DPI, STYLES, add_footer, body_flow_scale, case_title,
+                                  channel_styles, finish, format_time, legend_outside, length_scale, letters,
+                                  line_kwargs, line_style, negligible, new_figure, outline, panel_title, rc, save,
+                                  segment_style, set_time_axis, shade_events, style_of, suptitle, temperature_in,
+                                  temperature_label, time_scale, title_prefix)
+
+FIGURES = ("temperatures", "budget", "maps", "forcing")
+UNIT_SYSTEMS = ("physiology", "si")
+#: Segments drawn by default: those losing most heat to the surroundings (--segments or --top to change).
+DEFAULT_TOP = 6
+#: Panel height of the stacked time-series figures [in] per preset.
+PANEL_HEIGHT = {"single": 1.45, "double": 1.75}
+
+
+@contextlib.contextmanager
+def _opened(results):
+    """Yield a Results for a Results object or a path (closing only what it opened)."""
+    if isinstance(results, Results):
+        yield results
+    else:
+        with Results(results) as res:
+            yield res
+
+
+def select_segments(res: Results, names, top: int, t0: float, t1: float):
+    """The named segments (in the order given), else the `top` losing most heat to the surroundings over
+    [t0, t1] [s], largest loss first. Returns (segments, how many were left out)."""
+    if names is not None:
+        return res.segments(names), 0
+    ranked = rank_segments(res, res.segments(), t0, t1)
+    return ranked[:max(top, 1)], max(len(ranked) - max(top, 1), 0)
+
+
+def _selection_note(shown: int, left_out: int) -> str:
+    """Footer note when segments were left out by the default selection."""
+    if not left_out:
+        return ""
+    return (f"Segments: the {shown} of {shown + left_out} losing most heat to the surroundings "
+            f"(--segments for others).")
+
+
+def _panel_height(style: str) -> float:
+    return PANEL_HEIGHT[style] if style in PANEL_HEIGHT else PANEL_HEIGHT[DEFAULT_STYLE]
+
+
+# ---- figure: temperatures ---------------------------------------------------------------
+def temperatures_figure(res: Results, units: str = "physiology", segments=None, top: int = DEFAULT_TOP,
+                        style: str = DEFAULT_STYLE, caution: bool = True):
+    """Figure of body (core, blood, mean skin) temperatures and per-segment mean tissue and mean surface
+    temperatures with the surrounding temperature; None when the file has neither."""
+    style_of(style)
+    scale = time_scale(res.duration)
+    t = res.time / scale[0]
+    tu = temperature_label(units)
+    body = [(lab, res.optional(f"/body/{key}")) for key, lab in
+            (("core_temperature", "core"), ("blood_temperature", "blood"), ("mean_skin_temperature", "mean skin"))]
+    body = [(lab, s) for lab, s in body if s is not None]
+    segs, left_out = select_segments(res, segments, top, res.time[0], res.time[-1])
+    nrows = (1 if body else 0) + (2 if segs else 0)
+    if nrows == 0:
+        print(f"figures: {res.path}: no body or segment temperatures; temperatures figure skipped", file=sys.stderr)
+        return None
+    with rc(style):
+        fig = new_figure(style, _panel_height(style) * nrows + 0.9)
+        axes = list(fig.subplots(nrows, 1, sharex=True, squeeze=False)[:, 0])
+        kw = line_kwargs(len(t))
+        letter = letters()
+        labelled = False
+        if body:
+            ax = axes.pop(0)
+            ax.set_label("body temperatures")
+            for lab, s in body:
+                colour, ls = BODY_STYLE[lab]
+                ax.plot(t, temperature_in(s.values, units), color=colour, ls=ls, label=lab, **kw)
+            ax.set_ylabel(f"Temperature ({tu})")
+            panel_title(ax, next(letter), "Whole body")
+            legend_outside(ax)
+            set_time_axis(ax, res, scale)
+            shade_events(ax, res, scale)
+            labelled = True
+        if segs:
+            ax_t, ax_s = axes
+            ax_t.set_label("segment mean tissue temperatures")
+            ax_s.set_label("segment mean surface temperatures")
+            for seg in segs:
+                st = segment_style(res, seg.name)
+                ax_t.plot(t, temperature_in(seg.mean_tissue_temperature(), units), label=seg.name, **st, **kw)
+                ax_s.plot(t, temperature_in(seg.mean_surface_temperature(), units), label=seg.name, **st, **kw)
+            env = res.environment()
+            for key, lab in (("temperature", "surroundings"), ("water_temperature", "water")):
+                if key in env and env[key].units == "degC":
+                    colour, ls = ENVIRONMENT_STYLE[key]
+                    ax_s.plot(t, temperature_in(env[key].values, units), color=colour, ls=ls, lw=1.2, label=lab,
+                              **kw)
+            ax_t.set_ylabel(f"Tissue ({tu})")
+            panel_title(ax_t, next(letter), "Segments: mean tissue temperature (coat excluded)")
+            ax_s.set_ylabel(f"Surface ({tu})")
+            panel_title(ax_s, next(letter), "Segments: mean surface temperature; the surroundings")
+            legend_outside(ax_t, title="segment")
+            handles, labels = ax_s.get_legend_handles_labels()
+            extra = [(h, lab) for h, lab in zip(handles, labels) if lab not in {s.name for s in segs}]
+            if extra:
+                legend_outside(ax_s, handles=[h for h, _ in extra], labels=[lab for _, lab in extra])
+            for k, ax in enumerate((ax_t, ax_s)):
+                set_time_axis(ax, res, scale)
+                shade_events(ax, res, scale, label=not labelled and k == 0)
+        for ax in fig.axes[:-1]:
+            ax.set_xlabel("")
+        fig.axes[-1].set_xlabel(f"Time ({scale[1]})")
+        suptitle(fig, f"{title_prefix(res)}{case_title(res)}: temperatures")
+        add_footer(fig, [n for n in [_selection_note(len(segs), left_out)] if n], caution)
+        finish(fig)
+    return fig
+
+
+def temperatures(results, out_dir, units: str = "physiology", segments=None, top: int = DEFAULT_TOP,
+                 formats=FORMATS, style: str = DEFAULT_STYLE, dpi: float = PNG_DPI, caution: bool = True) -> list[Path]:
+    """Write the temperatures figure (temperatures.*) to out_dir; return the files written."""
+    with _opened(results) as res:
+        fig = temperatures_figure(res, units, segments, top, style, caution)
+        return [] if fig is None else save(fig, out_dir, "temperatures", res, formats, dpi)
+
+
+# ---- figure: budget ---------------------------------------------------------------------
+def _parse_window(res: Results, window) -> tuple[float, float]:
+    """Averaging window [s] clipped to the run; default the whole run."""
+    t_first, t_last = float(res.time[0]), float(res.time[-1])
+    if window is None:
+        return t_first, t_last
+    t0, t1 = float(window[0]), float(window[1])
+    if t1 < t0:
+        raise ValueError(f"--window {t0:g},{t1:g}: end before start")
+    if t1 < t_first or t0 > t_last:
+        raise ValueError(f"--window {t0:g},{t1:g} s lies outside the run ({t_first:g} to {t_last:g} s)")
+    if t0 < t_first or t1 > t_last:
+        print(f"figures: --window clipped to the run: {max(t0, t_first):g} to {min(t1, t_last):g} s",
+              file=sys.stderr)
+    return max(t0, t_first), min(t1, t_last)
+
+
+def budget_figure(res: Results, units: str = "physiology", segments=None, window=None, top: int = DEFAULT_TOP,
+                  style: str = DEFAULT_STYLE, caution: bool = True):
+    """Figure: mean heat flow by channel over a window for segments, the rest and the blood pool (stacked
+    bars), and whole-body heat flows over time."""
+    style_of(style)
+    t0, t1 = _parse_window(res, window)
+    scale = time_scale(res.duration)
+    segs, left_out = select_segments(res, segments, top, t0, t1)
+    b = window_budget(res, t0, t1, [s.name for s in segs])
+    rows = b.segments + [r for r in (b.others, b.pool) if r is not None]
+    size = max([abs(v) for r in rows for v in r.means.values()] + [1e-300])
+    channels = [c for c in b.channels if c != "storage" and not negligible([r.means[c] for r in rows], size)]
+    zero = [c for c in b.channels if c != "storage" and c not in channels]
+    styles = channel_styles(set(b.channels) | set(res.body_channels()))
+    lw = style_of(style)["line"]
+    with rc(style):
+        fig = new_figure(style, 2 * _panel_height(style) + 1.6)
+        ax_bar, ax_time = fig.subplots(2, 1, height_ratios=[1.15, 1.0])
+        ax_bar.set_label("segment budget")
+        ax_time.set_label("whole-body heat flows")
+
+        # Panel a: stacked bars (gains up, losses down), storage as a separate hatched bar.
+        x = np.arange(len(rows))
+        pos_base, neg_base, net = np.zeros(len(rows)), np.zeros(len(rows)), np.zeros(len(rows))
+        for c in channels:
+            mean = np.array([r.means[c] for r in rows])
+            colour, hatch, _ = styles[c]
+            ax_bar.bar(x - 0.12, mean, 0.5, bottom=np.where(mean >= 0, pos_base, neg_base), color=colour,
+                       hatch=hatch, edgecolor="white", lw=0.5, label=c)
+            pos_base += np.clip(mean, 0, None)
+            neg_base += np.clip(mean, None, 0)
+            net += mean
+        ax_bar.scatter(x - 0.12, net, marker="D", s=16, facecolor="white", edgecolor="black", zorder=3,
+                       label="sum of channels")
+        storage = np.array([r.means.get("storage", np.nan) for r in rows])
+        if np.any(np.isfinite(storage)):
+            ax_bar.bar(x + 0.3, np.nan_to_num(storage), 0.18, color="white", edgecolor=styles["storage"][0],
+                       hatch=styles["storage"][1], lw=0.8, label="storage (rate of heat stored)")
+        ax_bar.axhline(0.0, color="black", lw=0.8)
+        widen = 0.5 if len(rows) == 1 else 0.0  # keep a lone bar slim and centred
+        ax_bar.set_xlim(-0.75 - widen, len(rows) - 0.25 + widen)
+        lo = min(0.0, float(np.min(neg_base)), float(np.nanmin(np.append(storage, 0.0))), float(np.min(net)))
+        hi = max(0.0, float(np.max(pos_base)), float(np.nanmax(np.append(storage, 0.0))), float(np.max(net)))
+        pad = 0.06 * (hi - lo) if hi > lo else 1.0
+        ax_bar.set_ylim(lo - pad, hi + pad)
+        ax_bar.thermorph_categories = [r.label for r in rows]
+        narrow = style == "single"
+        long_names = len(rows) > (3 if narrow else 5) or max(len(r.label) for r in rows) > (8 if narrow else 12)
+        ax_bar.set_xticks(x, [r.label for r in rows], rotation=30 if long_names else 0,
+                          ha="right" if long_names else "center", rotation_mode="anchor")
+        ax_bar.set_ylabel("Mean heat flow (W)")
+        ax_bar.grid(axis="x", visible=False)
+        span = (f"mean {format_time(t0, scale)} to {format_time(t1, scale)}" if t1 > t0
+                else f"at t = {format_time(t0, scale)}")
+        panel_title(ax_bar, "a", f"Heat budget by segment, all copies (×N), {span}; positive = into the body")
+        handles, labels = ax_bar.get_legend_handles_labels()
+        order = sorted(range(len(labels)), key=lambda j: labels[j] == "sum of channels")
+        legend_outside(ax_bar, handles=[handles[j] for j in order],
+                       labels=[labels[j].replace("storage (rate of heat stored)", "storage\n(rate of heat stored)")
+                               for j in order])
+
+        # Panel b: body heat flows by channel over time (channels zero throughout left out).
+        div, flow_unit, quantity = body_flow_scale(res, units)
+        t = res.time / scale[0]
+        flows = {c: res.body_heat_flow(c) for c in res.body_channels()}
+        fsize = max([float(np.nanmax(np.abs(v))) for v in flows.values() if v.size] + [1e-300])
+        body_channels = [c for c, v in flows.items() if not negligible(v, fsize)]
+        internal = [c for c in flows if c not in body_channels and c not in zero and c != "storage"]
+        if len(t) > 1:
+            for c in body_channels:
+                colour, _, ls = styles[c]
+                ax_time.plot(t, flows[c] / div, color=colour, ls=ls, lw=lw, label=c, path_effects=outline(colour))
+            if t1 > t0 and (t0 > res.time[0] or t1 < res.time[-1]):
+                for edge in (t0, t1):
+                    ax_time.axvline(edge / scale[0], color="0.3", lw=0.8, ls="-.")
+            set_time_axis(ax_time, res, scale)
+            shade_events(ax_time, res, scale)
+            panel_title(ax_time, "b", "Whole body heat flows by channel (positive = into the body)"
+                        + ("; dash-dot lines: averaging window" if t1 > t0 and (t0 > res.time[0] or t1 < res.time[-1])
+                           else ""))
+            legend_outside(ax_time)
+        else:  # a single output time (steady solve): one bar per channel
+            values = [float(flows[c][0]) / div for c in body_channels]
+            ax_time.bar(range(len(values)), values, 0.6, edgecolor="black", lw=0.5, label="whole body",
+                        color=[styles[c][0] if c != "storage" else "white" for c in body_channels],
+                        hatch=[styles[c][1] for c in body_channels])
+            ax_time.thermorph_categories = body_channels
+            ax_time.set_xticks(range(len(values)), body_channels, rotation=30, ha="right", rotation_mode="anchor")
+            ax_time.set_xlabel("Channel")
+            ax_time.grid(axis="x", visible=False)
+            panel_title(ax_time, "b", f"Whole body heat flows by channel at t = {format_time(res.time[0], scale)} "
+                                      "(positive = into the body)")
+        ax_time.axhline(0.0, color="black", lw=0.6)
+        ax_time.set_ylabel(f"{quantity} ({flow_unit})")
+
+        suptitle(fig, f"{title_prefix(res)}{case_title(res)}: heat budget")
+        notes = [n for n in [_selection_note(len(segs), left_out)] if n]
+        if zero:
+            notes.append(f"Not drawn, zero throughout: {', '.join(zero)}.")
+        if internal:
+            notes.append(f"Whole body: {', '.join(internal)} zero throughout (transfers inside the body), not drawn.")
+        err = res.optional("/body/energy_balance_error")
+        if err is not None and err.values.size:
+            notes.append(f"Largest |energy balance error| = {np.max(np.abs(err.values)):.3g} {err.units}.")
+        add_footer(fig, notes, caution)
+        finish(fig)
+    return fig
+
+
+def budget(results, out_dir, units: str = "physiology", segments=None, window=None, top: int = DEFAULT_TOP,
+           formats=FORMATS, style: str = DEFAULT_STYLE, dpi: float = PNG_DPI, caution: bool = True) -> list[Path]:
+    """Write the budget figure (budget.*) to out_dir; return the files written."""
+    with _opened(results) as res:
+        fig = budget_figure(res, units, segments, window, top, style, caution)
+        return save(fig, out_dir, "budget", res, formats, dpi)
+
+
+# ---- figure: maps -----------------------------------------------------------------------
+def _time_indices(res: Results, times) -> list[int]:
+    """Output indices nearest the requested times [s]; default first, middle and last."""
+    requested = times is not None
+    if not requested:
+        times = [res.time[0], 0.5 * (res.time[0] + res.time[-1]), res.time[-1]]
+    indices = []
+    for t in times:
+        i = int(np.argmin(np.abs(res.time - float(t))))
+        if requested and res.time[i] != float(t):
+            print(f"figures: --times {float(t):g} s: nearest output time {res.time[i]:g} s used", file=sys.stderr)
+        if i not in indices:
+            indices.append(i)
+    return indices
+
+
+def layer_boundaries(seg) -> list[tuple[float, str]]:
+    """Outer face of each layer [m] with the layer's name, from the radial faces."""
+    faces = faces_from_centres(seg.radius)
+    layer, names = seg.layer, seg.layer_names
+    bounds = []
+    for i in range(len(layer)):
+        if i == len(layer) - 1 or layer[i + 1] != layer[i]:
+            name = names[layer[i]] if layer[i] < len(names) else f"layer {layer[i]}"
+            bounds.append((float(faces[i + 1]), name))
+    return bounds
+
+
+def maps_figures(res: Results, units: str = "physiology", segments=None, times=None, top: int = DEFAULT_TOP,
+                 style: str = DEFAULT_STYLE, caution: bool = True) -> dict:
+    """Axial × radial temperature maps and radial profiles at mid-length: {segment name: Figure} for each
+    chosen segment with more than one axial cell."""
+    style_of(style)
+    figs = {}
+    scale = time_scale(res.duration)
+    indices = _time_indices(res, times)
+    segs, _ = select_segments(res, segments, top, res.time[0], res.time[-1])
+    small = style_of(style)["small"]
+    for seg in segs:
+        temp_all = seg.read("temperature").values
+        if temp_all.shape[1] < 2:
+            continue
+        temp = temperature_in(temp_all[indices], units)  # [n, nz, nr]
+        z_faces = faces_from_centres(seg.axial)
+        r_faces = faces_from_centres(seg.radius)
+        zs, zu = length_scale(z_faces[-1], units)
+        rs, ru = length_scale(r_faces[-1], units)
+        bounds = layer_boundaries(seg)
+        tu = temperature_label(units)
+        radial_name = "Distance from mid-plane" if seg.shape == "plate" else "Radial position"
+        n = len(indices)
+        with rc(style):
+            fig = new_figure(style, 2 * _panel_height(style) + 1.5)
+            mosaic = [[f"map{k}" for k in range(n)], ["profile"] * n]
+            axd = fig.subplot_mosaic(mosaic, height_ratios=[1.0, 1.0])
+            vmin, vmax = float(np.nanmin(temp)), float(np.nanmax(temp))
+            map_axes = [axd[f"map{k}"] for k in range(n)]
+            for k, (ax, i) in enumerate(zip(map_axes, indices)):
+                ax.grid(False)
+                ax.set_label(f"map at t = {res.time[i]:.10g} s")
+                mesh = ax.pcolormesh(z_faces * zs, r_faces * rs, temp[k].T, shading="flat",
+                                     cmap=MAP_COLOURS, vmin=vmin, vmax=vmax, rasterized=True)
+                mesh.set_label("temperature")
+                mesh.thermorph_value_label = f"Temperature ({tu})"
+                for r_b, _ in bounds[:-1]:
+                    ax.axhline(r_b * rs, color="white", lw=0.8, ls="--")
+                panel_title(ax, "a" if k == 0 else None, f"t = {format_time(res.time[i], scale)}")
+                ax.set_xlabel(f"Axial ({zu})" if n > 2 and style == "single" else f"Axial position ({zu})")
+                ax.xaxis.set_major_locator(MaxNLocator(3 if style == "single" else 4))
+                ax.thermorph_ylabel = f"{radial_name} ({ru})"   # for the source data of unlabelled panels
+                if k == 0:
+                    ax.set_ylabel(f"{radial_name} ({ru})")
+                else:
+                    ax.sharey(map_axes[0])
+                    ax.tick_params(labelleft=False)
+            cbar = fig.colorbar(mesh, ax=map_axes, shrink=0.95, pad=0.02)
+            cbar.set_label(f"Temperature ({tu})")
+            cbar.ax.tick_params(labelsize=small)
+
+            # Radial profiles at mid-length, interpolated between the two nearest axial cells.
+            ax = axd["profile"]
+            ax.set_label("radial profiles at mid-length")
+            z_mid = 0.5 * (z_faces[0] + z_faces[-1])
+            for k, i in enumerate(indices):
+                prof = np.array([np.interp(z_mid, seg.axial, temp[k, :, j]) for j in range(temp.shape[2])])
+                ax.plot(seg.radius * rs, prof, color=LINE_CYCLE[k % len(LINE_CYCLE)],
+                        marker=MARKER_CYCLE[k % len(MARKER_CYCLE)], ms=3, label=f"t = {format_time(res.time[i], scale)}")
+            for r_b, _ in bounds[:-1]:
+                ax.axvline(r_b * rs, color="0.4", lw=0.8, ls=":")
+            ax.set_xlim(0.0, r_faces[-1] * rs)
+            # Layer names on a second axis along the top, at the middle of each layer.
+            top_axis = ax.secondary_xaxis("top")
+            inner, ticks, names = 0.0, [], []
+            for r_b, name in bounds:
+                ticks.append(0.5 * (inner + r_b) * rs)
+                names.append(name)
+                inner = r_b
+            top_axis.set_xticks(ticks, names, fontsize=small, color="0.25")
+            top_axis.tick_params(length=0)
+            ax.set_xlabel(f"{radial_name} ({ru})")
+            ax.set_ylabel(f"Temperature ({tu})")
+            panel_title(ax, "b", f"Radial profile at mid-length ({z_mid * zs:.3g} {zu}); dotted: layer boundaries")
+            legend_outside(ax)
+            count = f" (one of {seg.count})" if seg.count > 1 else ""
+            suptitle(fig, f"{title_prefix(res)}{case_title(res)}: {seg.name}{count} temperature map")
+            add_footer(fig, [], caution)
+            finish(fig)
+        figs[seg.name] = fig
+    if not figs:
+        print(f"figures: {res.path}: no chosen segment has more than one axial cell; no maps drawn", file=sys.stderr)
+    return figs
+
+
+def maps(results, out_dir, units: str = "physiology", segments=None, times=None, top: int = DEFAULT_TOP,
+         formats=FORMATS, style: str = DEFAULT_STYLE, dpi: float = PNG_DPI, caution: bool = True) -> list[Path]:
+    """Write one maps_SEGMENT.* figure per chosen segment with nz > 1; return the files written."""
+    written = []
+    with _opened(results) as res:
+        for name, fig in maps_figures(res, units, segments, times, top, style, caution).items():
+            written += save(fig, out_dir, f"maps_{name}", res, formats, dpi)
+    return written
+
+
+# ---- figure: forcing (the surroundings) --------------------------------------------------
+#: Readable names of the /environment series (thermorph's results layout).
+ENVIRONMENT_NAMES = {
+    "temperature": "medium (air or water)", "air_temperature": "air", "water_temperature": "water",
+    "radiant_temperature": "radiant surroundings", "sky_temperature": "sky", "substrate_temperature": "substrate",
+    "speed": "medium (wind or current)", "air_speed": "wind", "water_speed": "water current",
+    "solar_irradiance": "solar irradiance", "relative_humidity": "relative humidity",
+}
+#: Panels of the forcing figure by the series' units: (title, axis label, factor to the axis unit).
+FORCING_PANELS = {
+    "degC": ("Temperatures of the surroundings", "Temperature", 1.0),
+    "m s-1": ("Wind and water current", "Speed (m/s)", 1.0),
+    "W m-2": ("Sun", "Solar irradiance (W/m²)", 1.0),
+    "1": ("Humidity of the air", "Relative humidity (%)", 100.0),
+}
+
+
+def forcing_figure(res: Results, units: str = "physiology", style: str = DEFAULT_STYLE, caution: bool = True):
+    """Figure of the surroundings over time from /environment: temperatures, speeds, sun and humidity, one
+    panel per quantity the file stores; None without /environment."""
+    style_of(style)
+    env = res.environment()
+    if not env:
+        print(f"figures: {res.path}: no /environment group; forcing figure skipped", file=sys.stderr)
+        return None
+    groups: dict[str, list[str]] = {}
+    for name, series in env.items():
+        groups.setdefault(series.units, []).append(name)
+    order = [u for u in FORCING_PANELS if u in groups] + sorted(u for u in groups if u not in FORCING_PANELS)
+    scale = time_scale(res.duration)
+    t = res.time / scale[0]
+    kw = line_kwargs(len(t))
+    with rc(style):
+        fig = new_figure(style, 0.8 * _panel_height(style) * len(order) + 1.0)
+        axes = fig.subplots(len(order), 1, sharex=True, squeeze=False)[:, 0]
+        letter = letters()
+        for ax, unit in zip(axes, order):
+            title, ylabel, factor = FORCING_PANELS.get(unit, (f"Surroundings ({unit})", unit, 1.0))
+            if unit == "degC":
+                ylabel = f"Temperature ({temperature_label(units)})"
+            ax.set_label(f"forcing: {title.lower()}")
+            for k, name in enumerate(groups[unit]):
+                values = env[name].values
+                values = temperature_in(values, units) if unit == "degC" else factor * np.asarray(values, float)
+                colour, ls = ENVIRONMENT_STYLE.get(name, (LINE_CYCLE[k % len(LINE_CYCLE)], "-"))
+                ax.plot(t, values, color=colour, ls=ls, lw=1.2, label=ENVIRONMENT_NAMES.get(name, name), **kw)
+            ax.set_ylabel(ylabel)
+            if unit == "1":
+                ax.set_ylim(0.0, 100.0)
+            elif unit in ("m s-1", "W m-2"):   # speeds and irradiance are not negative: axis from zero
+                top = max(float(np.nanmax([np.nanmax(env[n].values) for n in groups[unit]])), 0.0)
+                ax.set_ylim(0.0, 1.15 * top if top > 0 else 1.0)
+            panel_title(ax, next(letter), title)
+            legend_outside(ax)
+            set_time_axis(ax, res, scale, label=False)
+            shade_events(ax, res, scale, label=ax is axes[0])
+        axes[-1].set_xlabel(f"Time ({scale[1]})")
+        suptitle(fig, f"{title_prefix(res)}{case_title(res)}: surroundings (forcing)")
+        add_footer(fig, [], caution)
+        finish(fig)
+    return fig
+
+
+def forcing(results, out_dir, units: str = "physiology", formats=FORMATS, style: str = DEFAULT_STYLE,
+            dpi: float = PNG_DPI, caution: bool = True) -> list[Path]:
+    """Write the forcing figure (forcing.*) when the file has /environment; return the files written."""
+    with _opened(results) as res:
+        fig = forcing_figure(res, units, style, caution)
+        return [] if fig is None else save(fig, out_dir, "forcing", res, formats, dpi)
+
+
+# ---- figure: overlay of several runs -----------------------------------------------------
+#: Quantities the overlay can draw: key -> (HDF5 path, panel title).
+OVERLAY_BODY = {"core": ("/body/core_temperature", "Core temperature"),
+                "blood": ("/body/blood_temperature", "Blood temperature"),
+                "skin": ("/body/mean_skin_temperature", "Mean skin temperature")}
+DEFAULT_OVERLAY = ("core", "skin")
+
+
+def _overlay_series(res: Results, key: str):
+    """(values [degC] or None, title) of an overlay key: core, blood, skin, or SEGMENT.mean|surface."""
+    if key in OVERLAY_BODY:
+        path, title = OVERLAY_BODY[key]
+        s = res.optional(path)
+        return (None if s is None else s.values), title
+    seg_name, _, stat = key.rpartition(".")
+    if not seg_name or stat not in ("mean", "surface"):
+        raise ValueError(f"--overlay {key}: expected core, blood, skin, SEGMENT.mean or SEGMENT.surface")
+    if seg_name not in res.segment_names():
+        return None, f"{seg_name}: mean {'tissue' if stat == 'mean' else 'surface'} temperature"
+    seg = res.segments([seg_name])[0]
+    values = seg.mean_tissue_temperature() if stat == "mean" else seg.mean_surface_temperature()
+    return values, f"{seg_name}: mean {'tissue' if stat == 'mean' else 'surface'} temperature"
+
+
+def overlay_figure(results, labels=None, keys=DEFAULT_OVERLAY, units: str = "physiology",
+                   style: str = DEFAULT_STYLE, caution: bool = True):
+    """Several runs on the same axes: one panel per key (core, blood, skin, SEGMENT.mean, SEGMENT.surface),
+    one colour per run (in the order given). `results`: paths or Results objects."""
+    style_of(style)
+    with contextlib.ExitStack() as stack:
+        runs = [stack.enter_context(_opened(r)) for r in results]
+        if not runs:
+            raise ValueError("overlay: no result files given")
+        labels = list(labels) if labels else [r.path.stem for r in runs]
+        if len(labels) != len(runs):
+            raise ValueError(f"--labels: {len(labels)} labels for {len(runs)} result files")
+        duration = max(r.time[-1] for r in runs) - min(r.time[0] for r in runs)
+        scale = time_scale(duration)
+        panels = []
+        for key in keys:
+            data = [_overlay_series(r, key) for r in runs]
+            if all(v is None for v, _ in data):
+                print(f"figures: overlay: no run stores {key}; panel left out", file=sys.stderr)
+                continue
+            panels.append((key, data))
+        if not panels:
+            raise ValueError(f"overlay: none of {', '.join(keys)} is stored in these runs")
+        tu = temperature_label(units)
+        with rc(style):
+            fig = new_figure(style, _panel_height(style) * len(panels) + 0.9)
+            axes = fig.subplots(len(panels), 1, sharex=True, squeeze=False)[:, 0]
+            letter = letters()
+            for ax, (key, data) in zip(axes, panels):
+                ax.set_label(f"overlay: {key}")
+                for k, (run, label, (values, _)) in enumerate(zip(runs, labels, data)):
+                    if values is None:
+                        continue
+                    ax.plot(run.time / scale[0], temperature_in(values, units), label=label,
+                            **line_style(k), **line_kwargs(len(run.time)))
+                ax.set_ylabel(f"Temperature ({tu})")
+                panel_title(ax, next(letter), data[0][1])
+                ax.xaxis.set_major_locator(MaxNLocator(nbins=6, steps=[1, 2, 3, 6, 10]))
+                ax.thermorph_time_scale = scale
+                legend_outside(ax, title="run")
+            t_lo = min(r.time[0] for r in runs) / scale[0]
+            t_hi = max(r.time[-1] for r in runs) / scale[0]
+            if t_hi > t_lo:
+                axes[-1].set_xlim(t_lo, t_hi)
+            axes[-1].set_xlabel(f"Time ({scale[1]})")
+            incomplete = [lab for r, lab in zip(runs, labels) if not r.complete]
+            suptitle(fig, ("INCOMPLETE RUN — " if incomplete else "") + f"Overlay of {len(runs)} runs")
+            notes = [f"Runs: " + "; ".join(f"{lab} = {r.path.name} ({case_title(r)})" for r, lab in zip(runs, labels))]
+            if incomplete:
+                notes.append(f"Incomplete (complete = 0): {', '.join(incomplete)}.")
+            add_footer(fig, notes, caution)
+            finish(fig)
+        return fig
+
+
+def overlay(results, out_dir, labels=None, keys=DEFAULT_OVERLAY, units: str = "physiology", formats=FORMATS,
+            style: str = DEFAULT_STYLE, dpi: float = PNG_DPI, caution: bool = True) -> list[Path]:
+    """Write the overlay figure (overlay.*) of several runs; return the files written."""
+    fig = overlay_figure(results, labels, keys, units, style, caution)
+    names = ", ".join(str(Path(getattr(r, "path", r)).name) for r in results)
+    return save(fig, out_dir, "overlay", None, formats, dpi, title="thermorph runs overlaid", source=names)
+
+
+# ---- command line -----------------------------------------------------------------------
+def _floats(text: str, what: str) -> list[float]:
+    """Comma-separated numbers, e.g. '0,600,3600'."""
+    try:
+        return [float(v) for v in text.replace(" ", "").split(",") if v]
+    except ValueError as err:
+        raise argparse.ArgumentTypeError(f"{what}: expected comma-separated numbers in s, got {text!r}") from err
+
+
+def _names(text: str | None):
+    return [s.strip() for s in text.split(",") if s.strip()] if text else None
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(prog="thermorph-figures",
+                                 description="Figures (PDF, SVG, PNG) and their plotted numbers (CSV) from thermorph "
+                                             "results files; several files give an overlay of the runs.")
+    ap.add_argument("result", nargs="+", help="results file(s) (HDF5) written by thermorph")
+    ap.add_argument("--out", default=None, help="output directory (default: RESULT_figures beside the first file)")
+    ap.add_argument("--only", default=None,
+                    help=f"comma-separated subset of: {', '.join(FIGURES)} (default: all)")
+    ap.add_argument("--units", choices=UNIT_SYSTEMS, default="physiology",
+                    help="physiology: °C, segment heat flows in W, body heat flows in W/kg of body mass; "
+                         "si: K and W throughout (default: physiology)")
+    ap.add_argument("--segments", default=None,
+                    help="comma-separated segment names, in the order to draw them (default: see --top)")
+    ap.add_argument("--top", type=int, default=DEFAULT_TOP,
+                    help=f"without --segments, draw the N segments losing most heat to the surroundings "
+                         f"(default {DEFAULT_TOP}); in the budget the rest are summed in one bar")
+    ap.add_argument("--window", type=lambda s: _floats(s, "--window"), default=None,
+                    help="budget averaging window t0,t1 in s (default: whole run)")
+    ap.add_argument("--times", type=lambda s: _floats(s, "--times"), default=None,
+                    help="map times in s, comma-separated (default: first, middle, last output)")
+    ap.add_argument("--formats", default=",".join(FORMATS),
+                    help=f"comma-separated subset of {', '.join(FORMATS)} (default: all three)")
+    ap.add_argument("--style", choices=tuple(STYLES), default=DEFAULT_STYLE,
+                    help="size preset: single (85 mm wide, 7 pt) or double (175 mm wide, 8 pt) journal column "
+                         f"(default {DEFAULT_STYLE})")
+    ap.add_argument("--dpi", type=float, default=PNG_DPI, help=f"PNG resolution (default {PNG_DPI})")
+    ap.add_argument("--no-caution", action="store_true",
+                    help="leave out the caution footer (for a journal that prints it elsewhere)")
+    ap.add_argument("--overlay", default=None,
+                    help="with several files: comma-separated quantities, from core, blood, skin, SEGMENT.mean, "
+                         f"SEGMENT.surface (default {','.join(DEFAULT_OVERLAY)})")
+    ap.add_argument("--labels", default=None, help="with several files: comma-separated run labels (default: file names)")
+    args = ap.parse_args(argv)
+
+    only = FIGURES if args.only is None else tuple(n.strip() for n in args.only.split(",") if n.strip())
+    bad = [n for n in only if n not in FIGURES]
+    if bad:
+        ap.error(f"--only: unknown figure {', '.join(bad)}; choose from {', '.join(FIGURES)}")
+    formats = tuple(f.strip().lower() for f in args.formats.split(",") if f.strip())
+    if not formats or any(f not in FORMATS for f in formats):
+        ap.error(f"--formats: choose from {', '.join(FORMATS)}, got {args.formats!r}")
+    if args.window is not None and len(args.window) != 2:
+        ap.error("--window: expected two times t0,t1 in s")
+    if args.top < 1:
+        ap.error("--top: expected a whole number of segments, 1 or more")
+    if not (10.0 <= args.dpi <= 2400.0):
+        ap.error(f"--dpi {args.dpi:g}: expected 10 to 2400")
+    segments = _names(args.segments)
+    first = Path(args.result[0])
+    out = Path(args.out) if args.out else first.with_name(first.stem + ("_overlay" if len(args.result) > 1
+                                                                       else "_figures"))
+    common = dict(formats=formats, style=args.style, dpi=args.dpi, caution=not args.no_caution)
+    written = []
+    try:
+        if len(args.result) > 1:
+            keys = _names(args.overlay) or list(DEFAULT_OVERLAY)
+            written += overlay(args.result, out, _names(args.labels), keys, args.units, **common)
+        else:
+            with Results(first) as res:
+                if not res.complete:
+                    print(f"figures: {res.path}: run marked incomplete (complete = 0)", file=sys.stderr)
+                if "temperatures" in only:
+                    written += temperatures(res, out, args.units, segments, args.top, **common)
+                if "budget" in only:
+                    written += budget(res, out, args.units, segments, args.window, args.top, **common)
+                if "maps" in only:
+                    written += maps(res, out, args.units, segments, args.times, args.top, **common)
+                if "forcing" in only:
+                    written += forcing(res, out, args.units, **common)
+    except (ResultsError, ValueError) as err:
+        print(f"figures: error: {err}", file=sys.stderr)
+        return 2
+    for path in written:
+        print(path)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,458 @@
+"""Reader for thermorph results files (HDF5) with units kept beside every array.
+
+The layout is the one thermorph writes (main README, "Results (HDF5)"; cases/REFERENCE.md for the case).
+Optional parts (body temperatures, arterial/venous temperatures, /environment,
+/events, the root attribute `complete`) may be absent; the accessors return
+None or empty collections instead of raising.
+
+    with Results("run.h5") as res:
+        t, t_units = res.time, res.units("/time")
+        for seg in res.segments():
+            print(seg.name, seg.mean_tissue_temperature()[-1])
+"""
+
+from __future__ import annotations
+
+import re
+import sys
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+#: Heat-flow channels in the order of thermorph's budget table (storage last).
+CHANNEL_ORDER = ("metabolism", "shivering", "blood", "conduction", "convection", "radiation", "solar",
+                 "evaporation", "substrate", "respiration", "storage")
+
+#: Channels that exchange heat with the surroundings (losses here are "heat lost to the environment").
+ENVIRONMENT_CHANNELS = ("convection", "radiation", "solar", "evaporation", "substrate", "respiration")
+
+#: Offset between the Celsius and kelvin scales [K] (SI Brochure, 9th ed., 2019, §2.3.1).
+ZERO_CELSIUS_IN_KELVIN = 273.15
+
+# Mass units accepted in the case's `[body] mass` string [kg per unit].
+# Pound: exact by the 1959 international yard and pound agreement.
+_MASS_UNITS = {"kg": 1.0, "g": 1e-3, "mg": 1e-6, "t": 1e3, "lb": 0.45359237}
+
+
+class ResultsError(Exception):
+    """A results file that does not follow the contract (message names the path)."""
+
+
+def _text(value) -> str:
+    """Decode an HDF5 string attribute or element (bytes, str or 0-d array) to str."""
+    if isinstance(value, np.ndarray) and value.shape == ():
+        value = value[()]
+    if isinstance(value, (bytes, np.bytes_)):
+        return value.decode("utf-8", errors="replace")
+    return str(value)
+
+
+def is_default_event_label(label: str) -> bool:
+    """Whether an event label is the one thermorph writes for an unlabelled event ("event at 3600 s")."""
+    return re.fullmatch(r"event at [-+0-9.eE]+ s", label.strip()) is not None
+
+
+def data_names(group) -> list[str]:
+    """Names of the datasets of `group` that are data, not coordinates: each group of a results file holds its
+    own copy of the netCDF coordinate `time` (an HDF5 dimension scale), which is not a channel or a variable."""
+    return [k for k, v in group.items()
+            if isinstance(v, h5py.Dataset) and _text(v.attrs.get("CLASS", b"")) != "DIMENSION_SCALE"]
+
+
+def ordered_channels(names) -> list[str]:
+    """Heat-flow channel names in contract order, unknown names after, alphabetically."""
+    known = [c for c in CHANNEL_ORDER if c in names]
+    return known + sorted(n for n in names if n not in CHANNEL_ORDER)
+
+
+def parse_mass(value) -> float | None:
+    """Body mass from a case value: a number in kg or a string such as "12 kg" [kg].
+
+    Returns None (with a warning on stderr) when the value cannot be read.
+    """
+    if isinstance(value, bool):
+        return None
+    if isinstance(value, (int, float)):
+        return float(value)
+    match = re.fullmatch(r"\s*([-+0-9.eE]+)\s*([A-Za-z]*)\s*", str(value))
+    if match:
+        try:
+            number = float(match.group(1))
+        except ValueError:
+            number = None
+        unit = match.group(2) or "kg"
+        if number is not None and unit in _MASS_UNITS:
+            return number * _MASS_UNITS[unit]
+    print(f"thermorph_results: cannot read body mass {value!r}; "
+          f"expected a number in kg or a string with one of {sorted(_MASS_UNITS)}",
+          file=sys.stderr)
+    return None
+
+
+def time_average(time, values, t0: float, t1: float):
+    """Time-weighted mean of `values` over [t0, t1] by the trapezoidal rule [units of values].
+
+    `time` [nt] s, `values` [nt, ...]; samples are linearly interpolated at t0 and t1.
+    With t0 == t1, or a single sample, returns the (interpolated) value at t0.
+    """
+    time = np.asarray(time, dtype=float)
+    values = np.asarray(values, dtype=float)
+    flat = values.reshape(len(time), -1)
+    if len(time) == 1 or t1 <= t0:
+        out = np.array([np.interp(t0, time, flat[:, j]) for j in range(flat.shape[1])])
+        return out.reshape(values.shape[1:]) if values.ndim > 1 else out[0]
+    inside = (time > t0) & (time < t1)
+    grid = np.concatenate(([t0], time[inside], [t1]))
+    out = np.empty(flat.shape[1])
+    for j in range(flat.shape[1]):
+        y = np.interp(grid, time, flat[:, j])
+        out[j] = np.sum(0.5 * (y[1:] + y[:-1]) * np.diff(grid)) / (t1 - t0)
+    return out.reshape(values.shape[1:]) if values.ndim > 1 else out[0]
+
+
+def faces_from_centres(centres, inner_face: float = 0.0):
+    """Cell faces [m] estimated from cell-centre positions [m] ([n] -> [n+1]).
+
+    The first face is `inner_face` (the axis, mid-plane or proximal end); every
+    further face sits so that each centre is midway between its two faces, which
+    is exact whenever the centres are cell midpoints (uniform or not). If that
+    walk fails (a face passing its centre), interior faces fall back to
+    midpoints between neighbouring centres.
+    """
+    centres = np.asarray(centres, dtype=float)
+    faces = np.empty(len(centres) + 1)
+    faces[0] = inner_face
+    for i, c in enumerate(centres):
+        faces[i + 1] = 2.0 * c - faces[i]
+    if np.all(np.diff(faces) > 0) and np.all((faces[:-1] < centres) & (centres < faces[1:])):
+        return faces
+    faces[1:-1] = 0.5 * (centres[1:] + centres[:-1])
+    faces[0] = min(inner_face, centres[0])
+    faces[-1] = centres[-1] + (centres[-1] - faces[-2])
+    return faces
+
+
+#: Exponent of r in the cell volume for each shape: dV ∝ r^k dr (plate k=0, cylinder/cone 1, sphere 2).
+SHAPE_RADIAL_EXPONENT = {"plate": 0, "cylinder": 1, "cone": 1, "sphere": 2}
+
+
+def radial_cell_weights(radius, shape: str):
+    """Relative cell volumes across the radial direction [1], summing to 1 ([nr]).
+
+    Volume between faces r_i, r_{i+1} is ∝ (r_{i+1}^(k+1) − r_i^(k+1)) with k from
+    SHAPE_RADIAL_EXPONENT (cylinder: annulus area; sphere: shell volume; plate: slab).
+    """
+    k = SHAPE_RADIAL_EXPONENT.get(shape, 1)
+    faces = faces_from_centres(radius)
+    vol = np.diff(faces ** (k + 1))
+    return vol / vol.sum()
+
+
+@dataclass
+class Series:
+    """A dataset's values with their `units` attribute and HDF5 path."""
+    path: str
+    values: np.ndarray
+    units: str
+
+
+class Segment:
+    """One body segment: coordinates, layers and per-cell temperatures."""
+
+    def __init__(self, results: "Results", name: str):
+        self.results = results
+        self.name = name
+        self.path = f"/segments/{name}"
+        self.group = results.file[self.path]
+        self.case_entry = results.case_segment(name)
+
+    def has(self, rel: str) -> bool:
+        """Whether dataset `rel` (relative to the segment group) exists."""
+        return rel in self.group and isinstance(self.group[rel], h5py.Dataset)
+
+    def read(self, rel: str) -> Series:
+        """Dataset `rel` relative to the segment group, with units."""
+        return self.results.read(f"{self.path}/{rel}")
+
+    @property
+    def shape(self) -> str:
+        """Shape name (sphere|cylinder|cone|plate) from the group attribute or the stored case, or ""."""
+        if "shape" in self.group.attrs:
+            return _text(self.group.attrs["shape"])
+        return str(self.case_entry.get("shape", "")) if self.case_entry else ""
+
+    @property
+    def radius(self) -> np.ndarray:
+        """Radial cell-centre positions from the axis or mid-plane, coat included [m] ([nr])."""
+        return self.read("radius").values
+
+    @property
+    def axial(self) -> np.ndarray:
+        """Axial cell-centre positions from the proximal end [m] ([nz])."""
+        return self.read("axial").values
+
+    @property
+    def layer(self) -> np.ndarray:
+        """Layer index of each radial cell, coat last ([nr])."""
+        return self.read("layer").values.astype(int)
+
+    @property
+    def layer_names(self) -> list[str]:
+        """Names of the layers, indexed by the values in `layer`."""
+        names = self.group["layer"].attrs.get("layer_names") if "layer" in self.group else None
+        if names is None:
+            return [f"layer {i}" for i in range(int(self.layer.max()) + 1)]
+        return [_text(n) for n in np.atleast_1d(names)]
+
+    def coat_layer(self) -> int | None:
+        """Index of the coat layer (fur or feathers), or None when the segment has none."""
+        names = self.layer_names
+        if self.case_entry and "coat" in self.case_entry:
+            return len(names) - 1
+        for i, n in enumerate(names):
+            if n.lower() in ("coat", "fur", "feathers", "plumage", "pelage"):
+                return i
+        return None
+
+    @property
+    def count(self) -> int:
+        """How many identical copies of this segment the body has [1] (Results.segment_count).
+
+        /segments/NAME/heat_flow holds one copy; whole-body sums multiply by the count.
+        """
+        return self.results.segment_count(self.name)
+
+    @property
+    def label(self) -> str:
+        """Display name: the segment name, with "×N" when the body has N copies."""
+        return self.name if self.count == 1 else f"{self.name} ×{self.count}"
+
+    def heat_flow(self, channel: str) -> np.ndarray | None:
+        """Heat flow of one copy of the segment by `channel` [W] ([nt]), None when not stored."""
+        return self.read(f"heat_flow/{channel}").values if self.has(f"heat_flow/{channel}") else None
+
+    def heat_flow_channels(self) -> list[str]:
+        """Heat-flow channels stored for this segment, in contract order."""
+        if "heat_flow" not in self.group:
+            return []
+        return ordered_channels(data_names(self.group["heat_flow"]))
+
+    def cell_volumes(self) -> np.ndarray:
+        """Volume of each cell [m3] ([nz, nr]), or relative volumes [1] when not stored.
+
+        Uses the optional dataset `volume` [nz, nr] when the file has it; otherwise
+        estimates from the cell-centre coordinates (faces from faces_from_centres)
+        and the shape: radial weights r^k dr (radial_cell_weights) times axial cell
+        length (a cone's taper along its length is then not weighted).
+        """
+        nz = len(self.axial)
+        if self.has("volume"):
+            vol = np.asarray(self.read("volume").values, dtype=float)
+            if vol.shape == (nz, len(self.radius)):
+                return vol
+        w_r = radial_cell_weights(self.radius, self.shape)
+        w_z = np.diff(faces_from_centres(self.axial)) if nz > 1 else np.ones(1)
+        return np.outer(w_z, w_r)
+
+    def tissue_cells(self) -> np.ndarray:
+        """Whether each radial cell is tissue (not coat) [1] ([nr]); all True for a coat-only segment."""
+        coat = self.coat_layer()
+        tissue = self.layer != coat if coat is not None else np.ones(len(self.layer), dtype=bool)
+        return tissue if np.any(tissue) else np.ones(len(self.layer), dtype=bool)
+
+    def mean_tissue_temperature(self) -> np.ndarray:
+        """Volume-weighted mean temperature of the tissue cells, coat excluded [degC] ([nt]).
+
+        Weights from cell_volumes(); coat cells get weight 0 (all cells count if
+        the segment were coat only).
+        """
+        temp = self.read("temperature").values  # [nt, nz, nr]
+        w = np.where(self.tissue_cells()[None, :], self.cell_volumes(), 0.0)
+        return np.tensordot(temp, w, axes=([1, 2], [0, 1])) / w.sum()
+
+    def extreme_tissue_temperature(self, which: str) -> np.ndarray:
+        """Lowest ("min") or highest ("max") temperature of any tissue cell, coat excluded [degC] ([nt])."""
+        temp = self.read("temperature").values[:, :, self.tissue_cells()]
+        flat = temp.reshape(temp.shape[0], -1)
+        return flat.min(axis=1) if which == "min" else flat.max(axis=1)
+
+    def mean_surface_temperature(self) -> np.ndarray:
+        """Mean surface temperature over the axial cells, weighted by cell length [degC] ([nt])."""
+        surf = self.read("surface_temperature").values  # [nt, nz]
+        if surf.shape[1] == 1:
+            return surf[:, 0]
+        w_z = np.diff(faces_from_centres(self.axial))
+        return surf @ w_z / w_z.sum()
+
+
+class Results:
+    """An open thermorph results file. Use as a context manager, or call close()."""
+
+    def __init__(self, path):
+        self.path = Path(path)
+        if not self.path.is_file():
+            raise ResultsError(f"{self.path}: no such file")
+        try:
+            self.file = h5py.File(self.path, "r")
+        except OSError as err:
+            raise ResultsError(f"{self.path}: not a readable HDF5 file ({err})") from err
+        if "time" not in self.file:
+            self.file.close()
+            raise ResultsError(f"{self.path}: dataset /time missing; not a thermorph results file")
+        self.time = np.asarray(self.file["time"][()], dtype=float)
+        self._case = None
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+
+    def close(self):
+        """Close the HDF5 file."""
+        self.file.close()
+
+    # ---- generic access -------------------------------------------------------------
+    def has(self, path: str) -> bool:
+        """Whether a dataset exists at `path`."""
+        return path in self.file and isinstance(self.file[path], h5py.Dataset)
+
+    def units(self, path: str) -> str:
+        """The `units` attribute of dataset `path` ("" when missing)."""
+        return _text(self.file[path].attrs.get("units", ""))
+
+    def read(self, path: str) -> Series:
+        """Dataset `path` with its units; raises ResultsError naming the path if absent."""
+        if not self.has(path):
+            raise ResultsError(f"{self.path}: dataset {path} missing")
+        return Series(path, self.file[path][()], self.units(path))
+
+    def optional(self, path: str) -> Series | None:
+        """Dataset `path` with its units, or None when absent."""
+        return self.read(path) if self.has(path) else None
+
+    def attr(self, name: str, default=None):
+        """Root attribute `name` decoded to str (or int for `complete`), or default."""
+        if name not in self.file.attrs:
+            return default
+        value = self.file.attrs[name]
+        if name == "complete":
+            return int(np.asarray(value).ravel()[0])
+        return _text(value)
+
+    # ---- run metadata ----------------------------------------------------------------
+    @property
+    def complete(self) -> bool:
+        """False only when the root attribute `complete` is 0 (a run stopped early)."""
+        return self.attr("complete", 1) != 0
+
+    @property
+    def duration(self) -> float:
+        """Simulated time span of the stored output [s]."""
+        return float(self.time[-1] - self.time[0]) if len(self.time) else 0.0
+
+    @property
+    def case(self) -> dict:
+        """The resolved case parsed from the root attribute `case` (TOML); {} if absent or unreadable."""
+        if self._case is None:
+            text = self.attr("case", "")
+            try:
+                self._case = tomllib.loads(text) if text else {}
+            except tomllib.TOMLDecodeError as err:
+                print(f"thermorph_results: {self.path}: root attribute `case` is not valid TOML ({err})",
+                      file=sys.stderr)
+                self._case = {}
+        return self._case
+
+    def case_segment(self, name: str) -> dict:
+        """The `[[segments]]` entry called `name` in the stored case, or {}."""
+        for entry in self.case.get("segments", []) or []:
+            if isinstance(entry, dict) and entry.get("name") == name:
+                return entry
+        return {}
+
+    def segment_count(self, name: str) -> int:
+        """Copies of segment `name` in the body [1]: its `count` times its parent's copies (counts
+        multiply down the tree), 1 when the stored case does not say."""
+        count, seen = 1, set()
+        while name and name not in seen:
+            seen.add(name)
+            entry = self.case_segment(name)
+            try:
+                count *= max(1, int(entry.get("count", 1)))
+            except (TypeError, ValueError):
+                pass
+            name = entry.get("parent", "")
+        return count
+
+    @property
+    def body_mass(self) -> float | None:
+        """Body mass: the case's `[body] mass`, else the attribute `mass` of /body (the built body), else None [kg]."""
+        body = self.case.get("body", {})
+        if isinstance(body, dict) and "mass" in body:
+            return parse_mass(body["mass"])
+        grp = self.file.get("body")
+        if grp is not None and "mass" in grp.attrs:
+            mass = float(np.asarray(grp.attrs["mass"]).ravel()[0])
+            return mass if np.isfinite(mass) and mass > 0 else None
+        return None
+
+    # ---- groups ----------------------------------------------------------------------
+    def segment_names(self) -> list[str]:
+        """Names of the segment groups, in the order of the stored case (any others after, in file order)."""
+        stored = list(self.file["segments"].keys()) if "segments" in self.file else []
+        in_case = [e.get("name") for e in self.case.get("segments", []) or [] if isinstance(e, dict)]
+        return [n for n in in_case if n in stored] + [n for n in stored if n not in in_case]
+
+    def segments(self, names=None) -> list[Segment]:
+        """Segment objects, all or those named (ResultsError lists valid names on a typo)."""
+        available = self.segment_names()
+        if names is None:
+            names = available
+        unknown = [n for n in names if n not in available]
+        if unknown:
+            raise ResultsError(f"{self.path}: no segment {', '.join(unknown)}; "
+                               f"segments are: {', '.join(available) or '(none)'}")
+        return [Segment(self, n) for n in names]
+
+    def body_channels(self) -> list[str]:
+        """Heat-flow channels stored for the whole body, in contract order."""
+        grp = self.file.get("body/heat_flow")
+        return ordered_channels(data_names(grp)) if grp is not None else []
+
+    def body_heat_flow(self, channel: str) -> np.ndarray | None:
+        """Whole-body heat flow by `channel`, copies of segments and the blood pool included [W] ([nt])."""
+        path = f"/body/heat_flow/{channel}"
+        return self.read(path).values if self.has(path) else None
+
+    def cumulative_heat(self, channel: str) -> np.ndarray | None:
+        """Whole-body energy exchanged by `channel` since t = 0 [J] ([nt]); None when not stored."""
+        path = f"/body/cumulative_heat/{channel}"
+        return self.read(path).values if self.has(path) else None
+
+    def environment(self) -> dict[str, Series]:
+        """The /environment time series by variable name ({} when absent)."""
+        grp = self.file.get("environment")
+        if grp is None:
+            return {}
+        return {k: self.read(f"/environment/{k}") for k in data_names(grp)}
+
+    def events(self) -> list[tuple[float, float, str]]:
+        """Intervals to shade as (start [s], end [s], label), sorted, duplicates dropped; [] without /events."""
+        grp = self.file.get("events")
+        if grp is None or "start" not in grp:
+            return []
+        start = np.atleast_1d(grp["start"][()]).astype(float)
+        end = np.atleast_1d(grp["end"][()]).astype(float) if "end" in grp else start
+        labels = [_text(x) for x in np.atleast_1d(grp["label"][()])] if "label" in grp else [""] * len(start)
+        return sorted({(float(s), float(max(e, s)), lab) for s, e, lab in zip(start, end, labels)})
+
+    def solver_stats(self) -> dict:
+        """Attributes of the /solver group ({} when absent)."""
+        grp = self.file.get("solver")
+        if grp is None:
+            return {}
+        return {k: (v.item() if isinstance(v, np.ndarray) and v.size == 1 else v) for k, v in grp.attrs.items()}

@@ -1,0 +1,303 @@
+#!/usr/bin/python3
+"""Test of the publication figures and the installable package postproc/ (thermorph_post).
+
+    /usr/bin/python3 tests/test_figures.py [PYTHON]
+
+- Every figure type (temperatures, budget, maps, forcing, overlay, sweep lines, sweep heat map) is built at
+  both style presets (single and double column) from synthetic files, and every visible text's drawn
+  bounding box (fig.canvas.get_renderer(), Text.get_window_extent) lies inside the figure: no clipped text.
+- The caution footer (thermorph_post.CAUTION) is on every figure by default and gone with caution=False /
+  --no-caution; the figure width is the preset's (85 mm, 175 mm).
+- No global Matplotlib state: importing and drawing leaves matplotlib.rcParams as they were, pyplot unused.
+- Fixed colours: a segment has the same colour in every panel and whatever the selection; channels too.
+- Time ticks at multiples of 6 h on a 24 h run (0, 6, 12, 18, 24; common practice, no source).
+- Sweep figures: log axis for a log: range, body-mass axis and column for a size series (mass = m0 f³:
+  volume scales with the cube of a length factor, exact geometry), heat map limited to the swept range.
+- The long ("tidy") CSV export equals the HDF5 datasets bit for bit (read with h5py, not with postproc).
+- `pip install --target DIR --no-deps --no-build-isolation --no-index ./postproc` works offline and the
+  installed entry points (thermorph-figures, thermorph-export, thermorph-report, thermorph-sweep-figure)
+  run from DIR with the checkout out of reach.
+Exits 1 on any failure.
+"""
+
+import csv
+import os
+import shutil
+import subprocess
+import sys
+import tempfile
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+ROOT = Path(__file__).resolve().parent.parent
+POSTPROC = ROOT / "postproc"
+PYTHON = sys.argv[1] if len(sys.argv) > 1 else sys.executable
+RC_BEFORE = None
+FAILURES = []
+
+
+def check(condition: bool, what: str):
+    """Record a failed check (and print it) without stopping the run."""
+    if not condition:
+        FAILURES.append(what)
+        print(f"FAIL: {what}")
+
+
+def all_text(fig) -> str:
+    """Every visible text of a figure, whitespace-normalised (wrapped lines joined)."""
+    import matplotlib.text
+    return " ".join(" ".join(t.get_text() for t in fig.findobj(matplotlib.text.Text) if t.get_visible()).split())
+
+
+def write_sweep(path: Path):
+    """A small synthetic sweep table in thermorph's layout: a size series (log range) x two temperatures."""
+    factors = np.array([0.5, 0.5 * 4 ** (1 / 3), 0.5 * 4 ** (2 / 3), 2.0])
+    temps = np.array([10.0, 30.0])
+    f_col, t_col = np.repeat(factors, 2), np.tile(temps, 4)      # grid order: factor outer, temperature inner
+    with h5py.File(path, "w") as f:
+        f.attrs["kind"] = "thermorph sweep"
+        f.attrs["title"] = "Synthetic size sweep (invented values)"
+        f.attrs["complete"] = 1
+        f.attrs["case"] = 'title = "x"\n[body]\nmass = "3 kg"\n'
+        f.attrs["parameters"] = ["scale.body", "environment.temperature"]
+        p = f.create_group("parameters")
+        d = p.create_dataset("scale.body", data=f_col)
+        d.attrs.update(units="1", spec="log:0.5:2:4")
+        d = p.create_dataset("environment.temperature", data=t_col)
+        d.attrs.update(units="degC", spec="10degC,30degC")
+        m = f.create_group("metrics")
+        d = m.create_dataset("body.heat_flow.convection", data=-(t_col - 38.0) * f_col ** 2)
+        d.attrs.update(units="W", definition="convection heat flow into the whole body, mean over the window")
+        d = m.create_dataset("body.core_temperature.final", data=37.0 + 0.01 * t_col * f_col)
+        d.attrs.update(units="degC", definition="final of the core temperature over the window")
+        r = f.create_group("runs")
+        r.create_dataset("overrides", data=[f"body.mass={3.0 * x ** 3!r}" for x in f_col],
+                         dtype=h5py.string_dtype())
+    return f_col, t_col
+
+
+def check_figures(tmp: Path):
+    import matplotlib
+    global RC_BEFORE
+    RC_BEFORE = dict(matplotlib.rcParams)
+    from thermorph_post import CAUTION, figures, style, sweep
+    from thermorph_post.results import Results
+
+    full, steady, day = tmp / "full.h5", tmp / "steady.h5", tmp / "day.h5"
+    from thermorph_post import sample
+    sample.main([str(full)])
+    sample.main([str(steady), "--steady"])
+    sample.main([str(day), "--hours", "24"])
+    sweep_path = tmp / "sweep.h5"
+    f_col, _ = write_sweep(sweep_path)
+    sw = sweep.Sweep(sweep_path)
+
+    def builders(style_name, caution):
+        with Results(full) as res:
+            yield "temperatures", figures.temperatures_figure(res, style=style_name, caution=caution)
+            yield "budget", figures.budget_figure(res, style=style_name, caution=caution)
+            for name, fig in figures.maps_figures(res, style=style_name, caution=caution).items():
+                yield f"maps_{name}", fig
+            yield "forcing", figures.forcing_figure(res, style=style_name, caution=caution)
+        with Results(steady) as res:
+            yield "steady budget", figures.budget_figure(res, style=style_name, caution=caution)
+        yield "overlay", figures.overlay_figure([full, day, steady], ["A", "B", "C"], style=style_name,
+                                                 caution=caution)
+        mask = np.ones(len(f_col), bool)
+        yield "sweep lines", sweep.line_figure(sw, "body.heat_flow.convection", "scale.body",
+                                               "environment.temperature", mask, style=style_name, caution=caution)
+        yield "sweep mass", sweep.line_figure(sw, "body.core_temperature.final", "body.mass",
+                                              "environment.temperature", mask, style=style_name, caution=caution)
+        yield "sweep map", sweep.heatmap_figure(sw, "body.heat_flow.convection", "environment.temperature",
+                                                "scale.body", mask, style=style_name, caution=caution)
+
+    kinds = set()
+    for style_name in ("single", "double"):
+        width_mm = style.STYLES[style_name]["width_mm"]
+        for caution in (True, False) if style_name == "single" else (True,):
+            for kind, fig in builders(style_name, caution):
+                kinds.add(kind)
+                check(fig is not None, f"{kind} ({style_name}): no figure")
+                if fig is None:
+                    continue
+                what = f"{kind} ({style_name}, caution={caution})"
+                bad = style.text_outside(fig)
+                check(not bad, f"{what}: text outside the figure: {bad}")
+                check(abs(fig.get_figwidth() * 25.4 - width_mm) < 0.01, f"{what}: width {fig.get_figwidth() * 25.4} mm")
+                text = all_text(fig)
+                check((CAUTION in text) == caution, f"{what}: caution footer {'missing' if caution else 'present'}")
+                check(("veterinary" in text) == caution, f"{what}: caution words with caution={caution}")
+                # Multi-panel figures carry panel letters a, b, ... in bold (mathtext) at the left of each title.
+                titled = [ax for ax in fig.axes if getattr(ax, "thermorph_title", None) and ax.thermorph_title[0]]
+                if len(titled) > 1:
+                    got = [ax.thermorph_title[0] for ax in titled]
+                    check(got == list("abcdefgh"[:len(got)]), f"{what}: panel letters {got}")
+    check(kinds >= {"temperatures", "budget", "maps_left_ear", "forcing", "overlay", "sweep lines", "sweep map"},
+          f"figure types drawn: {sorted(kinds)}")
+
+    # The CLI writes the footer by default and leaves it out with --no-caution (SVG keeps text as text).
+    for extra, expected in (((), True), (("--no-caution",), False)):
+        out = tmp / f"cli{len(extra)}"
+        code = figures.main([str(full), "--out", str(out), "--only", "temperatures,forcing", "--formats", "svg",
+                             "--style", "single", *extra])
+        check(code == 0, f"figures.main {extra}: exit {code}")
+        for stem in ("temperatures", "forcing"):
+            import xml.etree.ElementTree as ET
+            svg = " ".join(" ".join(ET.parse(out / f"{stem}.svg").getroot().itertext()).split())
+            check((CAUTION in svg) == expected, f"{stem}.svg {extra}: caution expected {expected}")
+    code = sweep.main([str(sweep_path), "--metric", "body.heat_flow.convection", "--out", str(tmp / "sw"),
+                       "--formats", "svg,png", "--dpi", "120"])
+    check(code == 0, f"sweep main exit {code}")
+    stem = tmp / "sw" / "sweep_body.heat_flow.convection"
+    for ext in (".svg", ".png", ".data.csv"):
+        check(Path(str(stem) + ext).is_file(), f"sweep figure {ext} missing")
+
+    # Fixed colours: the tail has one colour in both segment panels, also when drawn alone.
+    with Results(full) as res:
+        def colours(fig, panel):
+            ax = next(a for a in fig.axes if a.get_label() == panel)
+            return {ln.get_label(): matplotlib.colors.to_hex(ln.get_color()) for ln in ax.get_lines()
+                    if not ln.get_label().startswith("_")}
+        fig_all = figures.temperatures_figure(res)
+        fig_tail = figures.temperatures_figure(res, segments=["tail"])
+        a = colours(fig_all, "segment mean tissue temperatures")
+        b = colours(fig_all, "segment mean surface temperatures")
+        c = colours(fig_tail, "segment mean tissue temperatures")
+        check(a["tail"] == b["tail"] == c["tail"], f"tail colours differ: {a['tail']}, {b['tail']}, {c['tail']}")
+        check(len({a[n] for n in ("trunk", "left_ear", "tail")}) == 3, f"segment colours not distinct: {a}")
+        body = colours(fig_all, "body temperatures")
+        check(not set(body.values()) & set(a.values()), f"body and segment colours shared: {body} {a}")
+        budget = figures.budget_figure(res)
+        bars = next(ax for ax in budget.axes if ax.get_label() == "segment budget")
+        lines = colours(budget, "whole-body heat flows")
+        for cont in bars.containers:
+            name = cont.get_label()
+            if name in lines and cont.patches:
+                check(matplotlib.colors.to_hex(cont.patches[0].get_facecolor()) == lines[name],
+                      f"channel {name}: bar and line colours differ")
+
+    # A 24 h run: ticks at 0, 6, 12, 18, 24 h.
+    with Results(day) as res:
+        fig = figures.temperatures_figure(res)
+        ax = fig.axes[-1]
+        fig.canvas.draw()
+        ticks = [t for t in ax.get_xticks() if ax.get_xlim()[0] - 1e-9 <= t <= ax.get_xlim()[1] + 1e-9]
+        check(list(ticks) == [0, 6, 12, 18, 24], f"24 h ticks {ticks}")
+        check(ax.get_xlabel() == "Time (h)", f"24 h axis label {ax.get_xlabel()!r}")
+
+    # Sweep: log axis from the log: spec, body mass m0 f^3 on the top axis and in the data.
+    fig = sweep.line_figure(sw, "body.heat_flow.convection", "scale.body", "environment.temperature",
+                            np.ones(len(f_col), bool))
+    ax = fig.axes[0]
+    check(ax.get_xscale() == "log", f"log range drawn on a {ax.get_xscale()} axis")
+    check(ax.get_xlabel().startswith("Body size factor"), f"readable x label {ax.get_xlabel()!r}")
+    check(ax.get_ylabel() == "Convection heat flow, whole body (W)", f"readable y label {ax.get_ylabel()!r}")
+    mass_rows = {round(r[2], 12): r[4] for r in style.source_data_rows(fig) if r[1] == "body mass"}
+    for fx in np.unique(f_col):
+        check(abs(mass_rows.get(round(fx, 12), np.nan) - 3.0 * fx ** 3) < 1e-12, f"body mass at f = {fx}")
+    leg = ax.get_legend()
+    check(leg is not None and leg.get_bbox_to_anchor().x0 >= ax.bbox.x1 - 1, "sweep legend not outside the axes")
+    fig = sweep.heatmap_figure(sw, "body.heat_flow.convection", "environment.temperature", "scale.body",
+                               np.ones(len(f_col), bool))
+    ax = fig.axes[0]
+    check(tuple(ax.get_xlim()) == (10.0, 30.0), f"heat map x range {ax.get_xlim()} beyond the swept 10..30")
+    check(np.allclose(ax.get_ylim(), (0.5, 2.0), rtol=1e-12), f"heat map y range {ax.get_ylim()} beyond 0.5..2")
+
+    # No global state: rcParams as before, pyplot never imported.
+    after = dict(matplotlib.rcParams)
+    changed = [k for k in RC_BEFORE if str(RC_BEFORE[k]) != str(after.get(k))]
+    check(not changed, f"global rcParams changed: {changed[:8]}")
+    check("matplotlib.pyplot" not in sys.modules, "pyplot imported by thermorph_post")
+    return full
+
+
+def check_tidy(full: Path, tmp: Path):
+    """The long CSV against the HDF5 file read with h5py: every value of every time series, bit for bit."""
+    from thermorph_post import export
+    out = tmp / "tidy.csv"
+    check(export.main([str(full), "--tidy", str(out)]) == 0, "export --tidy failed")
+    with open(out, newline="") as fh:
+        rows = list(csv.reader(fh))
+    check(rows[0] == ["time", "segment", "quantity", "value", "unit"], f"tidy header {rows[0]}")
+    table = {}
+    for t, seg, q, v, u in rows[1:]:
+        table[(seg, q, float(t))] = (float(v), u)
+    with h5py.File(full, "r") as f:
+        time = f["time"][()]
+        temp = f["segments/left_ear/temperature"][()]
+        units = f["segments/left_ear/temperature"].attrs["units"]
+        for k in (0, 37, len(time) - 1):
+            got = table.get(("left_ear", "temperature[z=3,r=5]", time[k]))
+            check(got is not None and got[0] == temp[k, 3, 5] and got[1] == units,
+                  f"tidy temperature[z=3,r=5] at {time[k]}: {got} vs {temp[k, 3, 5]!r}")
+        conv = f["body/heat_flow/convection"][()]
+        same = all(table[("body", "heat_flow.convection", time[k])][0] == conv[k] for k in range(len(time)))
+        check(same, "tidy body convection differs from the HDF5 values")
+        surf = f["segments/tail/surface_temperature"][()]
+        check(table[("tail", "surface_temperature[z=2]", time[5])][0] == surf[5, 2], "tidy tail surface")
+        check(table[("environment", "temperature", time[70])][0] == f["environment/temperature"][70], "tidy env")
+        # One row per time and cell of every time series: count them from the file.
+        n = 0
+
+        def count(name, obj):
+            nonlocal n
+            parts = name.split("/")
+            static = parts[0] == "events" or parts[-1] == "time" or (
+                len(parts) == 3 and parts[0] == "segments" and parts[2] in ("radius", "axial", "layer", "volume"))
+            if isinstance(obj, h5py.Dataset) and not static and obj.shape and obj.shape[0] == len(time):
+                n += obj.size
+        f.visititems(count)
+        check(len(rows) - 1 == n, f"tidy rows {len(rows) - 1}, expected {n}")
+
+
+def check_install(tmp: Path, full: Path, sweep_path: Path):
+    """pip install into a target directory, offline, then run the entry points from there."""
+    src = tmp / "src"
+    shutil.copytree(POSTPROC, src, ignore=shutil.ignore_patterns("__pycache__", "build", "*.egg-info"))
+    target = tmp / "site"
+    proc = subprocess.run([PYTHON, "-m", "pip", "install", "--quiet", "--no-deps", "--no-build-isolation",
+                           "--no-index", "--disable-pip-version-check", "--target", str(target), str(src)],
+                          capture_output=True, text=True)
+    check(proc.returncode == 0, f"pip install --target failed:\n{proc.stdout}\n{proc.stderr}")
+    if proc.returncode != 0:
+        return
+    env = dict(os.environ, PYTHONPATH=str(target))
+    away = tmp / "elsewhere"
+    away.mkdir()
+    proc = subprocess.run([PYTHON, "-c", "import thermorph_post, thermorph_post.figures, thermorph_post.scripts.report"
+                           " as r; print(thermorph_post.__file__); print(r.__file__)"],
+                          capture_output=True, text=True, env=env, cwd=away)
+    check(proc.returncode == 0 and all(line.startswith(str(target)) for line in proc.stdout.split()),
+          f"installed import: {proc.stdout} {proc.stderr}")
+    scripts = {"thermorph-figures": [str(full), "--out", str(tmp / "inst"), "--only", "budget", "--formats", "png"],
+               "thermorph-export": [str(full), "--tidy", str(tmp / "inst" / "t.csv")],
+               "thermorph-report": [str(full), "--window", "1h,2h"],
+               "thermorph-sweep-figure": [str(sweep_path), "--metric", "body.heat_flow.convection", "--out",
+                                          str(tmp / "inst"), "--formats", "png"]}
+    for name, args in scripts.items():
+        exe = target / "bin" / name
+        check(exe.is_file(), f"entry point {exe} not installed")
+        if exe.is_file():
+            proc = subprocess.run([PYTHON, str(exe), *args], capture_output=True, text=True, env=env, cwd=away)
+            check(proc.returncode == 0, f"{name}: exit {proc.returncode}\n{proc.stderr[-800:]}")
+    check((tmp / "inst" / "budget.png").is_file() and (tmp / "inst" / "t.csv").is_file(), "installed outputs")
+
+
+def main() -> int:
+    with tempfile.TemporaryDirectory(prefix="thermorph_figures_") as name:
+        tmp = Path(name)
+        sys.path.insert(0, str(POSTPROC))   # the checkout's package (the installed one is checked below)
+        full = check_figures(tmp)
+        check_tidy(full, tmp)
+        check_install(tmp, full, tmp / "sweep.h5")
+    if FAILURES:
+        print(f"test_figures: {len(FAILURES)} check(s) failed")
+        return 1
+    print("test_figures: all checks passed")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
