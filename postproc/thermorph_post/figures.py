@@ -411,9 +411,9 @@ def maps(results, out_dir, units: str = "physiology", segments=None, times=None,
 # ---- figure: forcing (the surroundings) --------------------------------------------------
 #: Readable names of the /environment series (thermorph's results layout).
 ENVIRONMENT_NAMES = {
-    "temperature": "medium (air or water)", "air_temperature": "air", "water_temperature": "water",
+    "temperature": "air or water", "air_temperature": "air", "water_temperature": "water",
     "radiant_temperature": "radiant surroundings", "sky_temperature": "sky", "substrate_temperature": "substrate",
-    "speed": "medium (wind or current)", "air_speed": "wind", "water_speed": "water current",
+    "speed": "wind or current", "air_speed": "wind", "water_speed": "water current",
     "solar_irradiance": "solar irradiance", "relative_humidity": "relative humidity",
 }
 #: Panels of the forcing figure by the series' units: (title, axis label, factor to the axis unit).
@@ -550,7 +550,10 @@ def overlay_figure(results, labels=None, keys=DEFAULT_OVERLAY, units: str = "phy
             axes[-1].set_xlabel(f"Time ({scale[1]})")
             incomplete = [lab for r, lab in zip(runs, labels) if not r.complete]
             suptitle(fig, ("INCOMPLETE RUN — " if incomplete else "") + f"Overlay of {len(runs)} runs")
-            notes = [f"Runs: " + "; ".join(f"{lab} = {r.path.name} ({case_title(r)})" for r, lab in zip(runs, labels))]
+            titles = {case_title(r) for r in runs}
+            notes = ["Runs: " + "; ".join(f"{lab} = {r.path.name}" + (f" ({case_title(r)})" if len(titles) > 1 else "")
+                                          for r, lab in zip(runs, labels))
+                     + (f". Case: {titles.pop()}." if len(titles) == 1 else ".")]
             if incomplete:
                 notes.append(f"Incomplete (complete = 0): {', '.join(incomplete)}.")
             add_footer(fig, notes, caution)

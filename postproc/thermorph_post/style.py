@@ -271,11 +271,21 @@ def finish(fig):
     for ax in fig.axes:
         ax.tick_params(labelsize=s["small"], width=0.6)
     titled = [ax for ax in fig.axes if getattr(ax, "thermorph_title", None)]
-    if not titled:
+    labels = [t for ax in fig.axes for t in ax.texts if getattr(t, "thermorph_event_label", False)]
+    if not titled and not labels:
         return fig
     for _ in range(1):   # lay out, then fit the titles to the panels (savefig lays out again)
         fig.canvas.draw()
         renderer = fig.canvas.get_renderer()
+        for label in labels:   # event labels placed before the layout: move them back inside their panel
+            ext, box = label.get_window_extent(renderer), label.axes.bbox
+            if ext.width > box.width:
+                label.set_visible(False)
+                continue
+            shift = max(box.x0 + 1.0 - ext.x0, 0.0) - max(ext.x1 - (box.x1 - 1.0), 0.0)
+            if shift:
+                x_disp = label.axes.transData.transform((label.get_position()[0], 0.0))[0] + shift
+                label.set_x(label.axes.transData.inverted().transform((x_disp, 0.0))[0])
         for ax in titled:
             letter, text = ax.thermorph_title
             title = ax._left_title   # the loc="left" title of set_title
@@ -368,23 +378,29 @@ def shade_events(ax, res: Results, scale, label: bool = True):
     ax.thermorph_events = drawn
     if not to_label:
         return
+    rows_used = 0
     fontsize = style_of(getattr(ax.figure, "thermorph_style", DEFAULT_STYLE))["small"]
     x0, x1 = ax.get_xlim()
     fig = ax.figure
     width_pt = ax.get_position().width * fig.get_figwidth() * 72.0
     per_pt = (x1 - x0) / max(width_pt, 1.0)
     right_edge = [-np.inf] * len(LABEL_ROWS)
-    rows_used = 0
     for x, text in sorted(to_label):
-        half = 0.5 * (0.55 * fontsize * len(text) + 4.0) * per_pt   # about 0.55 em per character
-        lo, hi = max(x - half, x0), min(x + half, x1)
+        half = 0.5 * (0.6 * fontsize * len(text) + 4.0) * per_pt   # about 0.55 em per character, and a margin
+        if 2.0 * half > x1 - x0:
+            continue   # wider than the panel: left out (its shading stays)
+        centre = min(max(x, x0 + half), x1 - half)                 # shifted inwards, never cut at an edge
+        lo, hi = centre - half, centre + half
         for row, y in enumerate(LABEL_ROWS):
             if lo > right_edge[row]:
-                ax.text(0.5 * (lo + hi), y, text, transform=trans, ha="center", va="top", fontsize=fontsize,
-                        color="0.3", clip_on=True)
+                label = ax.text(centre, y, text, transform=trans, ha="center", va="top", fontsize=fontsize,
+                                color="0.3", clip_on=True)
+                label.thermorph_event_label = True
                 right_edge[row] = hi
                 rows_used = max(rows_used, row + 1)
                 break
+    if not rows_used:
+        return
     # Headroom: raise the top of the y axis so the label rows sit above the data.
     y0, y1 = ax.get_ylim()
     band = 1.0 - LABEL_ROWS[rows_used - 1] + 0.06
@@ -413,7 +429,8 @@ def line_kwargs(nt: int, filled: bool = True) -> dict:
 
 # ---- checks -------------------------------------------------------------------------------
 def text_outside(fig, tolerance_px: float = 0.5) -> list[str]:
-    """Visible texts whose drawn extent leaves the figure (clipped text), as 'text: bbox' strings.
+    """Visible texts whose drawn extent leaves the figure, or leaves the panel that clips them (clipped
+    text), as 'text: bbox' strings.
 
     Draws the figure with its own renderer (fig.canvas.get_renderer()) and
     compares every visible Text's window extent with the figure's bounding box.
@@ -434,9 +451,15 @@ def text_outside(fig, tolerance_px: float = 0.5) -> list[str]:
             continue
         if id(text) in tick_labels and id(text) not in drawn:
             continue
-        if text.get_clip_on() and text.axes is not None and not text.axes.bbox.overlaps(text.get_window_extent(renderer)):
-            continue  # clipped to its axes on purpose (an event label beyond the data)
         ext = text.get_window_extent(renderer)
+        if text.get_clip_on() and text.axes is not None and id(text) not in tick_labels:
+            # Clipped to its axes (event labels): it must lie wholly inside them, or be wholly outside (hidden).
+            ab = text.axes.bbox
+            inside = (ext.x0 >= ab.x0 - tolerance_px and ext.x1 <= ab.x1 + tolerance_px
+                      and ext.y0 >= ab.y0 - tolerance_px and ext.y1 <= ab.y1 + tolerance_px)
+            if not inside and ab.overlaps(ext):
+                bad.append(f"{text.get_text()[:60]!r}: {ext.bounds} cut by its panel {ab.bounds}")
+            continue
         if (ext.x0 < box.x0 - tolerance_px or ext.y0 < box.y0 - tolerance_px or ext.x1 > box.x1 + tolerance_px
                 or ext.y1 > box.y1 + tolerance_px):
             bad.append(f"{text.get_text()[:60]!r}: {ext.bounds} outside {box.bounds}")
