@@ -211,13 +211,14 @@ void Body::addMetabolicModulation(Index respiratorySegment) {
     for (const SegmentMesh& m : meshes_)
       for (int iz = 0; iz < m.nz; ++iz)
         for (int ir = 0; ir < m.nr; ++ir)
-          if (m.layerNames[static_cast<std::size_t>(m.layer[static_cast<std::size_t>(ir)])] == "muscle") {
+          if (case_.tissues.at(m.layerNames[static_cast<std::size_t>(m.layer[static_cast<std::size_t>(ir)])]).role ==
+              TissueRole::Muscle) {
             double v = m.volume[static_cast<std::size_t>(iz * m.nr + ir)];
             cells.emplace_back(m.node(iz, ir), v);
             muscleVolume += m.weight * v;
           }
     if (cells.empty())
-      throw CaseError(fmt::format("{}: control.shivering: no segment has a muscle layer to shiver", case_.sourceFile));
+      throw CaseError(fmt::format("{}: control.shivering: no segment has a layer with role muscle to shiver", case_.sourceFile));
     for (auto [node, v] : cells)
       network_.sources.push_back({node, maxPower * v / muscleVolume, 1.0, case_.body.q10Reference, channel, shivering});
   }
@@ -334,10 +335,11 @@ void Body::buildCirculation() {
         if ((v.segment == "all" || v.segment == s.name) && v.superficialReturn && *v.superficialReturn > 0.0)
           superficialPossible = true;
     for (const LayerSpec& l : s.layers) {
-      bool skin = l.tissue.find("skin") != std::string::npos;
-      // Bradycardia scales the listed tissues (default: all but brain); `brain` below means "spared".
+      const TissueRole role = case_.tissues.at(l.tissue).role;
+      bool skin = role == TissueRole::Skin;
+      // Bradycardia scales the listed tissues (default: all but role brain); `brain` below means "spared".
       const auto& listed = case_.circulation.bradycardiaTissues;
-      bool brain = listed.empty() ? l.tissue == "brain"
+      bool brain = listed.empty() ? role == TissueRole::Brain
                                   : std::find(listed.begin(), listed.end(), l.tissue) == listed.end();
       Index control = skin ? skinControl_ : none;
       std::array<Index, 3> mods{none, none, none};
@@ -648,7 +650,7 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
       m.volume[static_cast<std::size_t>(iz * nr + ir)] = volume;
       std::string label = fmt::format("{}: axial {}, radial {} ({})", s.name, iz, ir, m.layerNames[m.layer[ir]]);
       Index node = network_.addNode(t.density * t.specificHeat * volume, group, label);
-      if (!t.isCoat) {
+      if (!t.isCoat()) {
         m.tissueVolume += volume;
         m.tissueMass += t.density * volume;
       }
@@ -656,7 +658,7 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
         network_.sources.push_back({node, t.metabolicHeat * volume, t.q10, case_.body.q10Reference, metabolismChannel_});
       // Pennes (1948) perfusion omega V [m3/s]; the blood streams are linked in buildCirculation().
       // (skin multipliers, bradycardia and controllers act through modulators: see buildCirculation)
-      cellPerfusion_[group][static_cast<std::size_t>(iz * nr + ir)] = t.isCoat ? 0.0 : t.perfusion * volume;
+      cellPerfusion_[group][static_cast<std::size_t>(iz * nr + ir)] = t.isCoat() ? 0.0 : t.perfusion * volume;
     }
     // Radial conduction: node centre -> shared face -> next node centre (harmonic-mean interface conductance).
     for (int ir = 0; ir + 1 < nr; ++ir) {

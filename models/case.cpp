@@ -136,6 +136,16 @@ void readTissues(const CaseReader& reader, const TableView& root, Case& c) {
     if (auto v = t.optionalQuantity("perfusion", props.density)) props.perfusion = *v;
     if (t.has("q10")) props.q10 = t.number("q10");
     if (auto v = t.optionalQuantity("wet_conductivity")) props.wetConductivity = *v;
+    // The role is inherited from the base unless given; it is never inferred from the name.
+    if (t.has("role")) props.role = *roleFromName(t.choice("role"));
+    if (props.isCoat()) {
+      // A coat conducts only: inherited metabolism and perfusion are dropped, stated ones refused.
+      for (const char* key : {"metabolic_heat", "perfusion"})
+        if (t.has(key) && *t.optionalQuantity(key, props.density) != 0.0)
+          t.fail(key, fmt::format("\"{}\" has role \"coat\" (conduction only); a coat has no {}", name, key));
+      props.metabolicHeat = 0.0;
+      props.perfusion = 0.0;
+    }
     c.tissues[name] = props;
   }
 }
@@ -182,7 +192,7 @@ SegmentSpec readSegment(const CaseReader& reader, const Case& c, const toml::tab
     LayerSpec layer;
     layer.tissue = l.text("tissue");
     const TissueProperties& props = requireTissue(c, l, "tissue", layer.tissue);
-    if (props.isCoat) l.fail("tissue", fmt::format("\"{}\" is a coat material; give it as coat = {{ material = \"{}\", ... }}", layer.tissue, layer.tissue));
+    if (props.isCoat()) l.fail("tissue", fmt::format("\"{}\" is a coat material; give it as coat = {{ material = \"{}\", ... }}", layer.tissue, layer.tissue));
     layer.cells = l.integer("cells");
     if (i > 0 || l.has("thickness")) layer.thickness = l.quantity("thickness");
     s.layers.push_back(layer);
@@ -247,7 +257,7 @@ SegmentSpec readSegment(const CaseReader& reader, const Case& c, const toml::tab
     CoatSpec coat;
     coat.material = ct.text("material");
     const TissueProperties& props = requireTissue(c, ct, "material", coat.material);
-    if (!props.isCoat && ct.has("material"))
+    if (!props.isCoat() && ct.has("material"))
       ct.fail("material", fmt::format("\"{}\" is a tissue, not a coat material (fur, feathers, or a [tissues.NAME] "
                                       "with base = \"fur\")", coat.material));
     coat.thickness = ct.quantity("thickness");
@@ -358,10 +368,13 @@ void validateTree(const CaseReader& reader, const toml::array& segArray, const C
   for (std::size_t i = 0; i < c.segments.size(); ++i) {
     const SegmentSpec& s = c.segments[i];
     TableView t(reader, segArray[i].as_table(), "segments[]", "segments." + s.name);
-    if (s.vessels.shuntFlowMax > 0.0 && s.layers.back().tissue.find("skin") == std::string::npos)
+    if (s.vessels.shuntFlowMax > 0.0 && c.tissues.at(s.layers.back().tissue).role != TissueRole::Skin)
       t.child("vessels").fail("shunt_flow_max",
-                              fmt::format("shunts need skin: the outermost layer of {} is \"{}\", not a skin tissue",
-                                          s.name, s.layers.back().tissue));
+                              fmt::format("shunts need skin: the outermost layer of {} is \"{}\", not a skin tissue "
+                                          "(its role is \"{}\"; a tissue is skin when its base is skin or it "
+                                          "sets role = \"skin\")",
+                                          s.name, s.layers.back().tissue,
+                                          roleName(c.tissues.at(s.layers.back().tissue).role)));
   }
 }
 
@@ -560,8 +573,9 @@ std::string resolvedCaseToml(const Case& c) {
     const TissueProperties& p = c.tissues.at(name);
     toml::table t{{"conductivity", p.conductivity}, {"density", p.density},     {"specific_heat", p.specificHeat},
                   {"metabolic_heat", p.metabolicHeat}, {"perfusion", p.perfusion}, {"q10", p.q10}};
-    if (p.isCoat) t.insert("wet_conductivity", p.wetConductivity > 0 ? p.wetConductivity : p.conductivity);
-    if (!builtinTissues().count(name)) t.insert("base", "fur");
+    if (p.isCoat()) t.insert("wet_conductivity", p.wetConductivity > 0 ? p.wetConductivity : p.conductivity);
+    // Every value is stated, and so is the role: the tissue reloads without a base.
+    t.insert("role", roleName(p.role));
     tissues.insert(name, t);
   }
   root.insert("tissues", tissues);

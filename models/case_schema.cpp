@@ -39,7 +39,7 @@ constexpr std::array params = {
 
     Param{"circulation.bradycardia_tissues", K::Text, "", "", 0, 0, false, "",
           "Comma-separated tissues whose perfusion the events' `circulation.bradycardia` factor scales "
-          "(default: every tissue except brain, whose flow the dive response spares)."},
+          "(default: every tissue except those with role brain, whose flow the dive response spares)."},
 
     Param{"body", K::Table, "", "", 0, 0, false, "", "Whole-body quantities: mass, blood, metabolism."},
     Param{"body.mass", K::Quantity, "kg", "", 0, 1e6, true, "",
@@ -68,6 +68,14 @@ constexpr std::array params = {
           "Override built-in tissues or define new ones: `[tissues.NAME]`."},
     Param{"tissues.*.base", K::Text, "", "", 0, 0, false, "",
           "Built-in tissue whose values a new tissue starts from (default: the tissue of the same name)."},
+    Param{"tissues.*.role", K::Choice, "", "", 0, 0, false, "skin|muscle|fat|bone|viscera|brain|coat|blood|other",
+          "What the tissue does, never inferred from its name; default: the role of `base` (a tissue without a "
+          "base: other). skin: the vasomotor skin-perfusion factor and controllers act on its perfusion, and "
+          "shunts need an outermost skin layer; brain: spared by bradycardia unless "
+          "`circulation.bradycardia_tissues` is given; muscle: receives the shivering heat; coat: a coat "
+          "material (conduction only, no metabolism or perfusion; wet conductivity when immersed); fat, bone, "
+          "viscera, blood, other: no special treatment. Built-ins: skin, muscle, fat (fat, blubber), bone, "
+          "viscera, brain, coat (fur, feathers), blood."},
     Param{"tissues.*.conductivity", K::Quantity, "W/(m K)", "", 0, 1e3, true, "", "Thermal conductivity."},
     Param{"tissues.*.density", K::Quantity, "kg/m3", "", 0, 2e4, true, "", "Density."},
     Param{"tissues.*.specific_heat", K::Quantity, "J/(kg K)", "", 0, 1e5, true, "", "Specific heat capacity."},
