@@ -14,30 +14,6 @@ using std::numbers::pi;
 
 namespace {
 
-//! Radial cell boundaries of one cross-section: tissue layers scaled by `scale`, then the coat.
-struct CrossSection {
-  std::vector<double> bounds;  //!< nr + 1 boundaries from the axis or mid-plane outward [m]
-};
-
-CrossSection crossSection(const SegmentSpec& s, double scale) {
-  CrossSection cs;
-  cs.bounds.push_back(0.0);
-  double r = 0.0;
-  for (const LayerSpec& l : s.layers) {
-    double dr = l.thickness * scale / l.cells;
-    for (int i = 0; i < l.cells; ++i) cs.bounds.push_back(r + (i + 1) * dr);
-    r += l.thickness * scale;
-    cs.bounds.back() = r;
-  }
-  if (s.coat) {
-    double dr = s.coat->thickness / s.coat->cells;
-    for (int i = 0; i < s.coat->cells; ++i) cs.bounds.push_back(r + (i + 1) * dr);
-    r += s.coat->thickness;
-    cs.bounds.back() = r;
-  }
-  return cs;
-}
-
 //! Area of the radial face at distance r from the axis or mid-plane over axial length dz [m2]:
 //! cylinder 2 pi r dz, sphere 4 pi r^2, plate (both halves) 2 w dz.
 double radialFaceArea(Shape shape, double r, double dz, double width) {
@@ -64,6 +40,30 @@ double sectionArea(Shape shape, double a, double b, double width) {
 }
 
 }  // namespace
+
+//! Radial cell boundaries of one cross-section: tissue layers scaled by `scale`, then the coat.
+struct Body::CrossSection {
+  std::vector<double> bounds;  //!< nr + 1 boundaries from the axis or mid-plane outward [m]
+};
+
+Body::CrossSection Body::crossSection(const SegmentSpec& s, double scale) {
+  CrossSection cs;
+  cs.bounds.push_back(0.0);
+  double r = 0.0;
+  for (const LayerSpec& l : s.layers) {
+    double dr = l.thickness * scale / l.cells;
+    for (int i = 0; i < l.cells; ++i) cs.bounds.push_back(r + (i + 1) * dr);
+    r += l.thickness * scale;
+    cs.bounds.back() = r;
+  }
+  if (s.coat) {
+    double dr = s.coat->thickness / s.coat->cells;
+    for (int i = 0; i < s.coat->cells; ++i) cs.bounds.push_back(r + (i + 1) * dr);
+    r += s.coat->thickness;
+    cs.bounds.back() = r;
+  }
+  return cs;
+}
 
 Body::Body(const Case& c) : case_(c) {
   metabolismChannel_ = network_.channel("metabolism");
@@ -290,11 +290,9 @@ void Body::attachChildren() {
   }
 }
 
-namespace {
-
 //! A blood flow as a sum of modulated parts, sum_k c_k m_k(t, u) [m3/s]; every flow in the circulation is one,
 //! so mass balance holds at every junction for every modulator separately, at all times.
-struct FlowExpr {
+struct Body::FlowExpr {
   std::map<Index, double> parts;  //!< modulator -> coefficient [m3/s]
   void add(Index modulator, double coefficient) {
     if (coefficient != 0.0) parts[modulator] += coefficient;
@@ -314,19 +312,45 @@ struct FlowExpr {
   }
 };
 
-}  // namespace
+//! Everything the circulation builder carries from one step to the next, per segment g (n segments).
+struct Body::Circulation {
+  explicit Circulation(std::size_t segments, double rhoC)
+      : n(segments), rc(rhoC), perfusionModulators(n), shuntModulator(n, none), cellTotal(n), cellDeep(n),
+        cellSuperficial(n), shunt(n), childDraw(n), childDeep(n), childSuperficial(n), draw(n), deep(n),
+        superficialFlow(n), parentOf(n, n), attachCell(n, 0), arterialIn(n), deepOut(n), superficialOut(n) {}
+  std::size_t n;
+  double rc;  //!< blood volumetric heat capacity [J/(m3 K)]
+  std::vector<std::vector<std::array<Index, 3>>> perfusionModulators;  //!< per layer: total, -, superficial
+  std::vector<Index> shuntModulator;
+  std::vector<double> m0;  //!< modulator values at t = 0 with the controllers at their initial states
+  // Per copy: [nz * nr] perfusion of each cell (total, deep and superficial return), [nz] shunts and what the
+  // children draw and return at each axial cell.
+  std::vector<std::vector<FlowExpr>> cellTotal, cellDeep, cellSuperficial;
+  std::vector<std::vector<FlowExpr>> shunt, childDraw, childDeep, childSuperficial;
+  std::vector<FlowExpr> draw, deep, superficialFlow;  //!< at the proximal end of one copy
+  std::vector<Index> parentOf;                        //!< n: the root
+  std::vector<int> attachCell;                        //!< axial cell of the parent the segment joins
+  std::vector<std::vector<FlowExpr>> arterialIn, deepOut, superficialOut;  //!< [nz + 1] through each axial face
+};
 
 void Body::buildCirculation() {
-  using K = PhysiologyModel::Kind;
   const CirculationSpec& circ = case_.circulation;
-  const double rc = circ.bloodDensity * circ.bloodSpecificHeat;  // [J/(m3 K)]
-  const std::size_t n = case_.segments.size();
+  Circulation c(case_.segments.size(), circ.bloodDensity * circ.bloodSpecificHeat);
+  addPerfusionModulators(c);
+  planCellFlows(c);
+  sumFlowsUpTheTree(c);
+  setBloodTotals(c);
+  if (c.draw[order_.front()].empty()) return;  // no circulation: tissues exchange heat by conduction only
+  addBloodNodes(c);
+  for (Index g : order_) linkSegmentBlood(c, g);
+  checkBloodMassBalance();
+}
 
+void Body::addPerfusionModulators(Circulation& c) {
+  using K = PhysiologyModel::Kind;
   // Modulators: per segment and layer the perfusion factor (total, superficial share), per segment
   // the shunt opening; skin layers and shunts follow the vasomotor controllers when there are any.
-  std::vector<std::vector<std::array<Index, 3>>> perfusionModulators(n);
-  std::vector<Index> shuntModulator(n, none);
-  for (Index g = 0; g < n; ++g) {
+  for (Index g = 0; g < c.n; ++g) {
     const SegmentSpec& s = case_.segments[g];
     // A superficial return exists when the case or an event gives this segment one.
     bool superficialPossible = s.vasomotor.superficialReturn > 0.0;
@@ -348,121 +372,123 @@ void Body::buildCirculation() {
       if (superficialPossible)
         mods[2] = addModulator(physiology_->add({K::PerfusionSuperficial, g, skin, brain, 0}), control,
                                fmt::format("{} {} superficial return", s.name, l.tissue));
-      perfusionModulators[g].push_back(mods);
+      c.perfusionModulators[g].push_back(mods);
     }
     if (s.vessels.shuntFlowMax > 0.0)
-      shuntModulator[g] = addModulator(physiology_->add({K::Shunt, g}), shuntControl_, s.name + " shunts");
+      c.shuntModulator[g] = addModulator(physiology_->add({K::Shunt, g}), shuntControl_, s.name + " shunts");
   }
   // Modulator values at t = 0 with the controllers at their initial states (for the bookkeeping and `check`).
-  std::vector<double> m0(network_.modulators.size(), 1.0);
-  for (Index k = 0; k < m0.size(); ++k) {
+  c.m0.assign(network_.modulators.size(), 1.0);
+  for (Index k = 0; k < c.m0.size(); ++k) {
     const Modulator& m = network_.modulators[k];
-    m0[k] = (m.schedule == none ? 1.0 : physiology_->value(m.schedule, 0.0)) *
-            (m.control == none ? 1.0 : network_.controllers[m.control].initial);
+    c.m0[k] = (m.schedule == none ? 1.0 : physiology_->value(m.schedule, 0.0)) *
+              (m.control == none ? 1.0 : network_.controllers[m.control].initial);
   }
+}
 
+void Body::planCellFlows(Circulation& c) {
   // Per segment and axial cell (per copy): perfusion of each tissue cell split into deep and superficial
-  // return, shunt flow, and what the children draw and return.
-  std::vector<std::vector<FlowExpr>> cellTotal(n), cellDeep(n), cellSuperficial(n);  // [nz * nr]
-  std::vector<std::vector<FlowExpr>> shunt(n), childDraw(n), childDeep(n), childSuperficial(n);  // [nz]
-  std::vector<FlowExpr> draw(n), deep(n), superficialFlow(n);
-  std::vector<Index> parentOf(n, n);
-  std::vector<int> attachCell(n, 0);
-  for (Index g = 0; g < n; ++g) {
+  // return, and the shunt flow; where each segment joins its parent.
+  for (Index g = 0; g < c.n; ++g) {
     const SegmentSpec& s = case_.segments[g];
     const SegmentMesh& m = meshes_[g];
     const auto nz = static_cast<std::size_t>(m.nz);
-    cellTotal[g].resize(nz * static_cast<std::size_t>(m.nr));
-    cellDeep[g].resize(cellTotal[g].size());
-    cellSuperficial[g].resize(cellTotal[g].size());
-    shunt[g].resize(nz);
-    childDraw[g].resize(nz);
-    childDeep[g].resize(nz);
-    childSuperficial[g].resize(nz);
+    c.cellTotal[g].resize(nz * static_cast<std::size_t>(m.nr));
+    c.cellDeep[g].resize(c.cellTotal[g].size());
+    c.cellSuperficial[g].resize(c.cellTotal[g].size());
+    for (auto* v : {&c.shunt[g], &c.childDraw[g], &c.childDeep[g], &c.childSuperficial[g]}) v->resize(nz);
     for (int iz = 0; iz < m.nz; ++iz)
       for (int ir = 0; ir < m.nr; ++ir) {
-        auto c = static_cast<std::size_t>(iz * m.nr + ir);
-        double q = cellPerfusion_[g][c];
+        auto k = static_cast<std::size_t>(iz * m.nr + ir);
+        double q = cellPerfusion_[g][k];
         if (!(q > 0.0)) continue;
-        const auto& mods = perfusionModulators[g][static_cast<std::size_t>(m.layer[static_cast<std::size_t>(ir)])];
-        cellTotal[g][c].add(mods[0], q);
-        cellDeep[g][c].add(mods[0], q);  // deep = total - superficial, so mass balances per modulator
+        const auto& mods = c.perfusionModulators[g][static_cast<std::size_t>(m.layer[static_cast<std::size_t>(ir)])];
+        c.cellTotal[g][k].add(mods[0], q);
+        c.cellDeep[g][k].add(mods[0], q);  // deep = total - superficial, so mass balances per modulator
         if (mods[2] != none) {
-          cellDeep[g][c].add(mods[2], -q);
-          cellSuperficial[g][c].add(mods[2], q);
+          c.cellDeep[g][k].add(mods[2], -q);
+          c.cellSuperficial[g][k].add(mods[2], q);
         }
       }
     // Shunts open through the skin of the distal half of the axial cells.
     int firstDistal = m.nz / 2;
-    if (shuntModulator[g] != none)
+    if (c.shuntModulator[g] != none)
       for (int iz = firstDistal; iz < m.nz; ++iz)
-        shunt[g][static_cast<std::size_t>(iz)].add(shuntModulator[g], s.vessels.shuntFlowMax / (m.nz - firstDistal));
+        c.shunt[g][static_cast<std::size_t>(iz)].add(c.shuntModulator[g], s.vessels.shuntFlowMax / (m.nz - firstDistal));
     if (!s.parent.empty()) {
       Index p = 0;
       while (case_.segments[p].name != s.parent) ++p;
-      parentOf[g] = p;
-      attachCell[g] = std::clamp(static_cast<int>(s.attachPosition * meshes_[p].nz), 0, meshes_[p].nz - 1);
+      c.parentOf[g] = p;
+      c.attachCell[g] = std::clamp(static_cast<int>(s.attachPosition * meshes_[p].nz), 0, meshes_[p].nz - 1);
     }
   }
-  // Flows bottom-up (reverse of root-first order).
-  std::vector<std::vector<FlowExpr>> arterialIn(n), deepOut(n), superficialOut(n);  // [nz + 1]
+}
+
+void Body::sumFlowsUpTheTree(Circulation& c) {
+  // Flows bottom-up (reverse of root-first order): through each axial face, what the cells beyond it and the
+  // children attached beyond it draw (arterial) and return (deep and superficial veins).
   for (auto it = order_.rbegin(); it != order_.rend(); ++it) {
     Index g = *it;
-    const SegmentSpec& s = case_.segments[g];
     SegmentMesh& m = meshes_[g];
     const auto nz = static_cast<std::size_t>(m.nz);
-    arterialIn[g].assign(nz + 1, FlowExpr{});
-    deepOut[g].assign(nz + 1, FlowExpr{});
-    superficialOut[g].assign(nz + 1, FlowExpr{});
+    c.arterialIn[g].assign(nz + 1, FlowExpr{});
+    c.deepOut[g].assign(nz + 1, FlowExpr{});
+    c.superficialOut[g].assign(nz + 1, FlowExpr{});
     FlowExpr perfusion, shunted;
     for (std::size_t z = nz; z-- > 0;) {
-      FlowExpr a = arterialIn[g][z + 1], d = deepOut[g][z + 1], sf = superficialOut[g][z + 1];
+      FlowExpr a = c.arterialIn[g][z + 1], d = c.deepOut[g][z + 1], sf = c.superficialOut[g][z + 1];
       for (int ir = 0; ir < m.nr; ++ir) {
-        auto c = z * static_cast<std::size_t>(m.nr) + static_cast<std::size_t>(ir);
-        a.add(cellTotal[g][c]);
-        d.add(cellDeep[g][c]);
-        sf.add(cellSuperficial[g][c]);
-        perfusion.add(cellTotal[g][c]);
+        auto k = z * static_cast<std::size_t>(m.nr) + static_cast<std::size_t>(ir);
+        a.add(c.cellTotal[g][k]);
+        d.add(c.cellDeep[g][k]);
+        sf.add(c.cellSuperficial[g][k]);
+        perfusion.add(c.cellTotal[g][k]);
       }
-      a.add(shunt[g][z]);
-      sf.add(shunt[g][z]);
-      shunted.add(shunt[g][z]);
-      a.add(childDraw[g][z]);
-      d.add(childDeep[g][z]);
-      sf.add(childSuperficial[g][z]);
-      arterialIn[g][z] = a;
-      deepOut[g][z] = d;
-      superficialOut[g][z] = sf;
+      a.add(c.shunt[g][z]);
+      sf.add(c.shunt[g][z]);
+      shunted.add(c.shunt[g][z]);
+      a.add(c.childDraw[g][z]);
+      d.add(c.childDeep[g][z]);
+      sf.add(c.childSuperficial[g][z]);
+      c.arterialIn[g][z] = a;
+      c.deepOut[g][z] = d;
+      c.superficialOut[g][z] = sf;
     }
-    draw[g] = arterialIn[g][0];
-    deep[g] = deepOut[g][0];
-    superficialFlow[g] = superficialOut[g][0];
-    m.bloodFlow = draw[g].value(m0);
-    m.perfusionFlow = perfusion.value(m0);
-    m.shuntFlow = shunted.value(m0);
-    if (parentOf[g] < n) {
-      auto k = static_cast<std::size_t>(attachCell[g]);
-      childDraw[parentOf[g]][k].add(draw[g], s.count);
-      childDeep[parentOf[g]][k].add(deep[g], s.count);
-      childSuperficial[parentOf[g]][k].add(superficialFlow[g], s.count);
+    c.draw[g] = c.arterialIn[g][0];
+    c.deep[g] = c.deepOut[g][0];
+    c.superficialFlow[g] = c.superficialOut[g][0];
+    m.bloodFlow = c.draw[g].value(c.m0);
+    m.perfusionFlow = perfusion.value(c.m0);
+    m.shuntFlow = shunted.value(c.m0);
+    if (c.parentOf[g] < c.n) {
+      const double count = case_.segments[g].count;
+      auto k = static_cast<std::size_t>(c.attachCell[g]);
+      c.childDraw[c.parentOf[g]][k].add(c.draw[g], count);
+      c.childDeep[c.parentOf[g]][k].add(c.deep[g], count);
+      c.childSuperficial[c.parentOf[g]][k].add(c.superficialFlow[g], count);
     }
   }
-  const Index root = order_.front();
-  totalFlow_ = draw[root].value(m0);
+}
+
+void Body::setBloodTotals(const Circulation& c) {
+  const CirculationSpec& circ = case_.circulation;
+  totalFlow_ = c.draw[order_.front()].value(c.m0);
   bloodVolume_ = case_.body.bloodVolume.value_or(0.07 * bodyMass_ / circ.bloodDensity);  // ~7 % of mass (Stahl 1967, from memory)
   // Default cardiac output 187 M^0.81 mL/min (Stahl 1967, J. Appl. Physiol. 22:453; from memory).
   cardiacOutput_ = case_.body.cardiacOutput.value_or(187e-6 / 60.0 * std::pow(bodyMass_, 0.81));
   if (totalFlow_ > cardiacOutput_)
     warnings_.push_back(fmt::format("total blood flow {:.4g} mL/min exceeds the cardiac output {:.4g} mL/min",
                                     totalFlow_ * 6e7, cardiacOutput_ * 6e7));
-  if (draw[root].empty()) return;  // no circulation: tissues exchange heat by conduction only
+}
 
+void Body::addBloodNodes(const Circulation& c) {
   // Blood nodes where some flow can pass; capacities from the large-vessel blood of the cell's tissue.
+  const CirculationSpec& circ = case_.circulation;
   double vesselVolume = 0.0;
   for (Index g : order_) {
     SegmentMesh& m = meshes_[g];
     const SegmentSpec& s = case_.segments[g];
-    if (draw[g].empty()) continue;
+    if (c.draw[g].empty()) continue;
     for (int iz = 0; iz < m.nz; ++iz) {
       auto z = static_cast<std::size_t>(iz);
       double tissue = 0.0;
@@ -471,11 +497,11 @@ void Body::buildCirculation() {
       auto add = [&](const FlowExpr& flow, double share, const char* what) {
         if (flow.empty()) return noNode;
         vesselVolume += m.weight * vb * share;
-        return network_.addNode(rc * vb * share, g, fmt::format("{}: axial {}, {} blood", s.name, iz, what));
+        return network_.addNode(c.rc * vb * share, g, fmt::format("{}: axial {}, {} blood", s.name, iz, what));
       };
-      m.arterial.push_back(add(arterialIn[g][z], 1.0 / 3.0, "arterial"));
-      m.venous.push_back(add(deepOut[g][z], 1.0 / 2.0, "deep venous"));
-      m.superficial.push_back(add(superficialOut[g][z], 1.0 / 6.0, "superficial venous"));
+      m.arterial.push_back(add(c.arterialIn[g][z], 1.0 / 3.0, "arterial"));
+      m.venous.push_back(add(c.deepOut[g][z], 1.0 / 2.0, "deep venous"));
+      m.superficial.push_back(add(c.superficialOut[g][z], 1.0 / 6.0, "superficial venous"));
     }
   }
   if (!circ.fixedArterialTemperature) {
@@ -486,69 +512,75 @@ void Body::buildCirculation() {
                                   case_.sourceFile, bloodVolume_ * 1e6, vesselVolume * 1e6));
     network_.groups.push_back("blood_pool");
     network_.groupWeights.push_back(1.0);
-    pool_ = network_.addNode(rc * poolVolume, network_.groups.size() - 1, "central blood pool");
+    pool_ = network_.addNode(c.rc * poolVolume, network_.groups.size() - 1, "central blood pool");
   }
+}
 
-  auto parts = [&](const FlowExpr& flow, double factor) {
-    std::pair<Index, Index> range{network_.flowParts.size(), 0};
-    for (auto [mod, c] : flow.parts)
-      if (c != 0.0) network_.flowParts.push_back({mod, factor * rc * c});
-    range.second = network_.flowParts.size();
-    return range;
-  };
-  auto link = [&](Index from, Index to, const FlowExpr& flow, double factor = 1.0) {
-    if (flow.empty()) return;
-    if (from == noNode || to == noNode) throw std::logic_error("blood link to a node that carries no flow");
-    auto [begin, end] = parts(flow, factor);
-    network_.advections.push_back({from, to, 0.0, bloodChannel_, begin, end});
-  };
-  for (Index g : order_) {
-    const SegmentMesh& m = meshes_[g];
-    const SegmentSpec& s = case_.segments[g];
-    if (draw[g].empty()) continue;
-    // Arterial inflow at the proximal cell: from the parent's arterial stream, the pool, or pinned blood.
-    if (parentOf[g] < n) {
-      const SegmentMesh& pm = meshes_[parentOf[g]];
-      auto k = static_cast<std::size_t>(attachCell[g]);
-      link(pm.arterial[k], m.arterial[0], draw[g]);
-      link(m.venous[0], pm.venous[k], deep[g], s.count);
-      link(m.superficial[0], pm.superficial[k], superficialFlow[g], s.count);
-    } else if (pool_) {
-      link(*pool_, m.arterial[0], draw[g]);
-      link(m.venous[0], *pool_, deep[g]);
-      link(m.superficial[0], *pool_, superficialFlow[g]);
-    } else {
-      auto [begin, end] = parts(draw[g], 1.0);
-      network_.exchanges.push_back({m.arterial[0], 0.0, *circ.fixedArterialTemperature, bloodChannel_, begin, end});
-    }
-    for (int iz = 0; iz < m.nz; ++iz) {
-      auto z = static_cast<std::size_t>(iz);
-      if (iz > 0) link(m.arterial[z - 1], m.arterial[z], arterialIn[g][z]);
-      // Pennes term at the local arterial temperature; venous blood leaves at tissue temperature.
-      for (int ir = 0; ir < m.nr; ++ir) {
-        auto c = static_cast<std::size_t>(iz * m.nr + ir);
-        link(m.arterial[z], m.node(iz, ir), cellTotal[g][c]);
-        link(m.node(iz, ir), m.venous[z], cellDeep[g][c]);
-        link(m.node(iz, ir), m.superficial[z], cellSuperficial[g][c]);
-      }
-      // Arteriovenous shunt through the skin cell, back by superficial veins.
-      link(m.arterial[z], m.node(iz, m.skinCell), shunt[g][z]);
-      link(m.node(iz, m.skinCell), m.superficial[z], shunt[g][z]);
-      // Veins flow proximally: cell iz receives from cell iz + 1 what returns beyond it.
-      if (iz + 1 < m.nz) {
-        link(m.venous[z + 1], m.venous[z], deepOut[g][z + 1]);
-        link(m.superficial[z + 1], m.superficial[z], superficialOut[g][z + 1]);
-      }
-      if (m.arterial[z] != noNode && m.venous[z] != noNode && s.vessels.countercurrentConductance > 0.0)
-        network_.conductances.push_back({m.arterial[z], m.venous[z], s.vessels.countercurrentConductance / m.nz, 0});
-      if (m.superficial[z] != noNode && s.vessels.superficialConductance > 0.0)
-        network_.conductances.push_back(
-            {m.superficial[z], m.node(iz, m.skinCell), s.vessels.superficialConductance / m.nz, 0});
-    }
-    if (s.vessels.countercurrentConductance > 0.0 && deep[g].empty())
-      warnings_.push_back(fmt::format("{}: all venous return is superficial, so the countercurrent exchanger carries "
-                                      "no flow", s.name));
+std::pair<Index, Index> Body::addFlowParts(const Circulation& c, const FlowExpr& flow, double factor) {
+  std::pair<Index, Index> range{network_.flowParts.size(), 0};
+  for (auto [mod, k] : flow.parts)
+    if (k != 0.0) network_.flowParts.push_back({mod, factor * c.rc * k});
+  range.second = network_.flowParts.size();
+  return range;
+}
+
+void Body::linkBlood(const Circulation& c, Index from, Index to, const FlowExpr& flow, double factor) {
+  if (flow.empty()) return;
+  if (from == noNode || to == noNode) throw std::logic_error("blood link to a node that carries no flow");
+  auto [begin, end] = addFlowParts(c, flow, factor);
+  network_.advections.push_back({from, to, 0.0, bloodChannel_, begin, end});
+}
+
+void Body::linkSegmentBlood(const Circulation& c, Index g) {
+  const SegmentMesh& m = meshes_[g];
+  const SegmentSpec& s = case_.segments[g];
+  if (c.draw[g].empty()) return;
+  // Arterial inflow at the proximal cell: from the parent's arterial stream, the pool, or pinned blood.
+  if (c.parentOf[g] < c.n) {
+    const SegmentMesh& pm = meshes_[c.parentOf[g]];
+    auto k = static_cast<std::size_t>(c.attachCell[g]);
+    linkBlood(c, pm.arterial[k], m.arterial[0], c.draw[g]);
+    linkBlood(c, m.venous[0], pm.venous[k], c.deep[g], s.count);
+    linkBlood(c, m.superficial[0], pm.superficial[k], c.superficialFlow[g], s.count);
+  } else if (pool_) {
+    linkBlood(c, *pool_, m.arterial[0], c.draw[g]);
+    linkBlood(c, m.venous[0], *pool_, c.deep[g]);
+    linkBlood(c, m.superficial[0], *pool_, c.superficialFlow[g]);
+  } else {
+    auto [begin, end] = addFlowParts(c, c.draw[g], 1.0);
+    network_.exchanges.push_back(
+        {m.arterial[0], 0.0, *case_.circulation.fixedArterialTemperature, bloodChannel_, begin, end});
   }
+  for (int iz = 0; iz < m.nz; ++iz) {
+    auto z = static_cast<std::size_t>(iz);
+    if (iz > 0) linkBlood(c, m.arterial[z - 1], m.arterial[z], c.arterialIn[g][z]);
+    // Pennes term at the local arterial temperature; venous blood leaves at tissue temperature.
+    for (int ir = 0; ir < m.nr; ++ir) {
+      auto k = static_cast<std::size_t>(iz * m.nr + ir);
+      linkBlood(c, m.arterial[z], m.node(iz, ir), c.cellTotal[g][k]);
+      linkBlood(c, m.node(iz, ir), m.venous[z], c.cellDeep[g][k]);
+      linkBlood(c, m.node(iz, ir), m.superficial[z], c.cellSuperficial[g][k]);
+    }
+    // Arteriovenous shunt through the skin cell, back by superficial veins.
+    linkBlood(c, m.arterial[z], m.node(iz, m.skinCell), c.shunt[g][z]);
+    linkBlood(c, m.node(iz, m.skinCell), m.superficial[z], c.shunt[g][z]);
+    // Veins flow proximally: cell iz receives from cell iz + 1 what returns beyond it.
+    if (iz + 1 < m.nz) {
+      linkBlood(c, m.venous[z + 1], m.venous[z], c.deepOut[g][z + 1]);
+      linkBlood(c, m.superficial[z + 1], m.superficial[z], c.superficialOut[g][z + 1]);
+    }
+    if (m.arterial[z] != noNode && m.venous[z] != noNode && s.vessels.countercurrentConductance > 0.0)
+      network_.conductances.push_back({m.arterial[z], m.venous[z], s.vessels.countercurrentConductance / m.nz, 0});
+    if (m.superficial[z] != noNode && s.vessels.superficialConductance > 0.0)
+      network_.conductances.push_back(
+          {m.superficial[z], m.node(iz, m.skinCell), s.vessels.superficialConductance / m.nz, 0});
+  }
+  if (s.vessels.countercurrentConductance > 0.0 && c.deep[g].empty())
+    warnings_.push_back(fmt::format("{}: all venous return is superficial, so the countercurrent exchanger carries "
+                                    "no flow", s.name));
+}
+
+void Body::checkBloodMassBalance() const {
   // Mass balance at every node for every modulator separately: inflow equals outflow (to round-off).
   std::map<std::pair<Index, Index>, std::array<double, 2>> balance;  // (node, modulator) -> in, out
   for (const Advection& a : network_.advections) {
@@ -559,7 +591,8 @@ void Body::buildCirculation() {
     }
   }
   for (const BoundaryExchange& e : network_.exchanges)
-    for (Index p = e.partsBegin; p < e.partsEnd; ++p) balance[{e.node, network_.flowParts[p].modulator}][0] += network_.flowParts[p].coefficient;
+    for (Index p = e.partsBegin; p < e.partsEnd; ++p)
+      balance[{e.node, network_.flowParts[p].modulator}][0] += network_.flowParts[p].coefficient;
   for (auto& [key, io] : balance) {
     bool sink = !pool_ && io[1] == 0.0;  // pinned supply: returns leave the body
     if (!sink && std::abs(io[0] - io[1]) > 1e-9 * (std::abs(io[0]) + std::abs(io[1])))
@@ -569,19 +602,65 @@ void Body::buildCirculation() {
   }
 }
 
+//! One segment while it is being built: the tissue of each radial cell and what the steps share.
+struct Body::SegmentBuild {
+  explicit SegmentBuild(const SegmentSpec& spec) : s(spec) {}
+  const SegmentSpec& s;
+  Index group = 0;
+  std::vector<const TissueProperties*> tissue;  //!< [nr] tissue of each radial cell (wet coat when immersed)
+  int nz = 1, nr = 0;
+  int firstCoat = 0;                            //!< first coat cell (nr: no coat)
+  const TissueProperties* coatDry = nullptr;    //!< the coat material as given (dry)
+  bool coatChanges = false;                     //!< the coat has a different wet conductivity
+  double length = 0.0, dz = 1.0;                //!< sphere: 0 and 1
+  //! Outer tissue radius along a cone varies linearly; every tissue layer scales with it.
+  double scaleAt(double z) const {
+    return s.shape == Shape::Cone ? (s.radiusProximal + (s.radiusDistal - s.radiusProximal) * z / length) / s.radiusProximal
+                                  : 1.0;
+  }
+  //! Conductivity of radial cell ir, the coat dry or wet.
+  double conductivity(int ir, bool wet) const {
+    if (ir < firstCoat) return tissue[static_cast<std::size_t>(ir)]->conductivity;
+    return wet ? coatDry->wetConductivity : coatDry->conductivity;
+  }
+};
+
 void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
   SegmentMesh m;
   m.name = s.name;
   m.shape = s.shape;
   m.offset = network_.nodes.size();
   m.nz = s.shape == Shape::Sphere ? 1 : s.axialCells;
+  SegmentBuild b = segmentTissues(s, group, m);
+  CrossSection mid = crossSection(s, b.scaleAt(0.5 * b.length));
+  for (int ir = 0; ir < b.nr; ++ir) m.radius.push_back(0.5 * (mid.bounds[ir] + mid.bounds[ir + 1]));
+  for (int iz = 0; iz < b.nz; ++iz) m.axial.push_back((iz + 0.5) * b.dz);
+  m.volume.resize(static_cast<std::size_t>(b.nz * b.nr));
+  cellPerfusion_[group].assign(static_cast<std::size_t>(b.nz * b.nr), 0.0);
+  m.innermostLayerCells = s.layers.front().cells;
+  m.skinCell = b.nr - 1 - (s.coat ? s.coat->cells : 0);
+  for (int iz = 0; iz < b.nz; ++iz) {
+    const double z0 = iz * b.dz, z1 = (iz + 1) * b.dz;
+    const CrossSection c0 = crossSection(s, b.scaleAt(z0));
+    const CrossSection c1 = crossSection(s, b.scaleAt(z1));
+    const CrossSection cm = crossSection(s, b.scaleAt(0.5 * (z0 + z1)));
+    addCellNodes(b, m, iz, c0, c1);
+    addRadialConduction(b, m, iz, cm);
+    addLateralFace(b, m, iz, c0, c1, cm);
+    if (iz + 1 < b.nz) addAxialConduction(b, m, iz, c1);
+  }
+  if ((s.shape == Shape::Cylinder || s.shape == Shape::Cone) && s.surface.ends == EndCondition::Exposed)
+    addEndFaces(b, m, attached);
+  meshes_.push_back(std::move(m));
+}
 
-  // Tissue and thickness of each radial cell.
-  std::vector<const TissueProperties*> tissue;
+Body::SegmentBuild Body::segmentTissues(const SegmentSpec& s, Index group, SegmentMesh& m) {
+  SegmentBuild b(s);
+  b.group = group;
   for (std::size_t li = 0; li < s.layers.size(); ++li) {
     m.layerNames.push_back(s.layers[li].tissue);
     for (int i = 0; i < s.layers[li].cells; ++i) {
-      tissue.push_back(&case_.tissues.at(s.layers[li].tissue));
+      b.tissue.push_back(&case_.tissues.at(s.layers[li].tissue));
       m.layer.push_back(static_cast<int>(li));
     }
   }
@@ -595,146 +674,146 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
       coat = wetCoats_.back().get();
     }
     for (int i = 0; i < s.coat->cells; ++i) {
-      tissue.push_back(coat);
+      b.tissue.push_back(coat);
       m.layer.push_back(static_cast<int>(s.layers.size()));
     }
   }
-  m.nr = static_cast<int>(tissue.size());
-  const int nz = m.nz, nr = m.nr;
+  b.nz = m.nz;
+  b.nr = static_cast<int>(b.tissue.size());
+  m.nr = b.nr;
   // A coat changes conductivity when its segment goes in or out of water (medium events): every conductance and
   // face that involves a coat cell is computed dry and wet, and setInterval() picks one.
-  const int firstCoat = s.coat ? nr - s.coat->cells : nr;
-  const TissueProperties* coatDry = s.coat ? &case_.tissues.at(s.coat->material) : nullptr;
-  const bool coatChanges = coatDry && coatDry->wetConductivity > 0.0 && coatDry->wetConductivity != coatDry->conductivity;
-  auto conductivity = [&](int ir, bool wet) {
-    if (ir < firstCoat) return tissue[static_cast<std::size_t>(ir)]->conductivity;
-    return wet ? coatDry->wetConductivity : coatDry->conductivity;
-  };
-  auto recordCoat = [&](bool face, Index index, double dry, double wet) {
-    if (coatChanges && dry != wet) coatSwitches_.push_back({face, index, group, dry, wet});
-  };
-  const double length = s.shape == Shape::Sphere ? 0.0 : s.length;
-  const double dz = s.shape == Shape::Sphere ? 1.0 : length / nz;
-  const double rp = s.radiusProximal;
-  // Outer tissue radius along a cone varies linearly; every tissue layer scales with it.
-  auto scaleAt = [&](double z) { return s.shape == Shape::Cone ? (rp + (s.radiusDistal - rp) * z / length) / rp : 1.0; };
+  b.firstCoat = s.coat ? b.nr - s.coat->cells : b.nr;
+  b.coatDry = s.coat ? &case_.tissues.at(s.coat->material) : nullptr;
+  b.coatChanges = b.coatDry && b.coatDry->wetConductivity > 0.0 && b.coatDry->wetConductivity != b.coatDry->conductivity;
+  b.length = s.shape == Shape::Sphere ? 0.0 : s.length;
+  b.dz = s.shape == Shape::Sphere ? 1.0 : b.length / b.nz;
+  return b;
+}
 
+void Body::recordCoat(const SegmentBuild& b, bool face, Index index, double dry, double wet) {
+  if (b.coatChanges && dry != wet) coatSwitches_.push_back({face, index, b.group, dry, wet});
+}
 
-  CrossSection mid = crossSection(s, scaleAt(0.5 * length));
-  for (int ir = 0; ir < nr; ++ir) m.radius.push_back(0.5 * (mid.bounds[ir] + mid.bounds[ir + 1]));
-  for (int iz = 0; iz < nz; ++iz) m.axial.push_back((iz + 0.5) * dz);
-  m.volume.resize(static_cast<std::size_t>(nz * nr));
-  cellPerfusion_[group].assign(static_cast<std::size_t>(nz * nr), 0.0);
-  m.innermostLayerCells = s.layers.front().cells;
-  m.skinCell = nr - 1 - (s.coat ? s.coat->cells : 0);
-
-  for (int iz = 0; iz < nz; ++iz) {
-    const double z0 = iz * dz, z1 = (iz + 1) * dz;
-    CrossSection c0 = crossSection(s, scaleAt(z0));
-    CrossSection c1 = crossSection(s, scaleAt(z1));
-    CrossSection cm = crossSection(s, scaleAt(0.5 * (z0 + z1)));
-    // Nodes: exact control volumes.
-    for (int ir = 0; ir < nr; ++ir) {
-      double volume = 0.0;
-      double a0 = c0.bounds[ir], b0 = c0.bounds[ir + 1], a1 = c1.bounds[ir], b1 = c1.bounds[ir + 1];
-      switch (s.shape) {
-        case Shape::Sphere: volume = 4.0 / 3.0 * pi * (std::pow(b0, 3) - std::pow(a0, 3)); break;
-        case Shape::Plate: volume = 2.0 * s.width * dz * (b0 - a0); break;
-        case Shape::Cylinder:
-        case Shape::Cone:
-          // Frustum shell between two linearly varying radii: pi dz/3 (b0^2 + b0 b1 + b1^2 - (a0^2 + a0 a1 + a1^2)).
-          volume = pi * dz / 3.0 * ((b0 * b0 + b0 * b1 + b1 * b1) - (a0 * a0 + a0 * a1 + a1 * a1));
-          break;
-      }
-      const TissueProperties& t = *tissue[ir];
-      m.volume[static_cast<std::size_t>(iz * nr + ir)] = volume;
-      std::string label = fmt::format("{}: axial {}, radial {} ({})", s.name, iz, ir, m.layerNames[m.layer[ir]]);
-      Index node = network_.addNode(t.density * t.specificHeat * volume, group, label);
-      if (!t.isCoat()) {
-        m.tissueVolume += volume;
-        m.tissueMass += t.density * volume;
-      }
-      if (t.metabolicHeat > 0.0)
-        network_.sources.push_back({node, t.metabolicHeat * volume, t.q10, case_.body.q10Reference, metabolismChannel_});
-      // Pennes (1948) perfusion omega V [m3/s]; the blood streams are linked in buildCirculation().
-      // (skin multipliers, bradycardia and controllers act through modulators: see buildCirculation)
-      cellPerfusion_[group][static_cast<std::size_t>(iz * nr + ir)] = t.isCoat() ? 0.0 : t.perfusion * volume;
-    }
-    // Radial conduction: node centre -> shared face -> next node centre (harmonic-mean interface conductance).
-    for (int ir = 0; ir + 1 < nr; ++ir) {
-      double ri = 0.5 * (cm.bounds[ir] + cm.bounds[ir + 1]);
-      double rj = 0.5 * (cm.bounds[ir + 1] + cm.bounds[ir + 2]);
-      double face = cm.bounds[ir + 1];
-      double resistance = radialResistance(s.shape, ri, face, rj, tissue[ir]->conductivity,
-                                           tissue[ir + 1]->conductivity, dz, s.width);
-      network_.conductances.push_back({m.node(iz, ir), m.node(iz, ir + 1), 1.0 / resistance, 0});
-      if (ir + 1 >= firstCoat)
-        recordCoat(false, network_.conductances.size() - 1,
-                   1.0 / radialResistance(s.shape, ri, face, rj, conductivity(ir, false), conductivity(ir + 1, false), dz, s.width),
-                   1.0 / radialResistance(s.shape, ri, face, rj, conductivity(ir, true), conductivity(ir + 1, true), dz, s.width));
-    }
-    // Outer lateral face.
-    double rLast = 0.5 * (cm.bounds[nr - 1] + cm.bounds[nr]);
-    double rOut = cm.bounds[nr];
-    double half = 1.0 / radialResistance(s.shape, rLast, rOut, rOut, tissue[nr - 1]->conductivity, 1.0, dz, s.width);
-    double halfDry = 1.0 / radialResistance(s.shape, rLast, rOut, rOut, conductivity(nr - 1, false), 1.0, dz, s.width);
-    double halfWet = 1.0 / radialResistance(s.shape, rLast, rOut, rOut, conductivity(nr - 1, true), 1.0, dz, s.width);
-    double area = 0.0;
+void Body::addCellNodes(const SegmentBuild& b, SegmentMesh& m, int iz, const CrossSection& c0, const CrossSection& c1) {
+  // Nodes: exact control volumes, heat capacity, basal metabolism and Pennes perfusion of each radial cell.
+  const SegmentSpec& s = b.s;
+  const double dz = b.dz;
+  for (int ir = 0; ir < b.nr; ++ir) {
+    double volume = 0.0;
+    double a0 = c0.bounds[ir], b0 = c0.bounds[ir + 1], a1 = c1.bounds[ir], b1 = c1.bounds[ir + 1];
     switch (s.shape) {
-      case Shape::Sphere: area = 4.0 * pi * rOut * rOut; break;
-      case Shape::Plate: area = 2.0 * s.width * dz; break;
+      case Shape::Sphere: volume = 4.0 / 3.0 * pi * (std::pow(b0, 3) - std::pow(a0, 3)); break;
+      case Shape::Plate: volume = 2.0 * s.width * dz * (b0 - a0); break;
       case Shape::Cylinder:
-      case Shape::Cone: {
-        double R0 = c0.bounds[nr], R1 = c1.bounds[nr];
-        area = pi * (R0 + R1) * std::sqrt(dz * dz + (R1 - R0) * (R1 - R0));  // frustum lateral area
+      case Shape::Cone:
+        // Frustum shell between two linearly varying radii: pi dz/3 (b0^2 + b0 b1 + b1^2 - (a0^2 + a0 a1 + a1^2)).
+        volume = pi * dz / 3.0 * ((b0 * b0 + b0 * b1 + b1 * b1) - (a0 * a0 + a0 * a1 + a1 * a1));
         break;
-      }
     }
-    // Children cover part of this face: keep at least 10 % exposed.
-    if (static_cast<std::size_t>(iz) < coveredArea_[group].size() && coveredArea_[group][static_cast<std::size_t>(iz)] > 0.0) {
-      double covered = coveredArea_[group][static_cast<std::size_t>(iz)];
-      double remaining = std::max(0.1 * area, area - covered);
-      if (area - covered < 0.1 * area)
-        warnings_.push_back(fmt::format("segments attached to {} cover more than 90 % of its surface at axial cell "
-                                        "{}; 10 % is kept exposed", s.name, iz));
-      half *= remaining / area;
-      halfDry *= remaining / area;
-      halfWet *= remaining / area;
-      area = remaining;
+    const TissueProperties& t = *b.tissue[static_cast<std::size_t>(ir)];
+    m.volume[static_cast<std::size_t>(iz * b.nr + ir)] = volume;
+    std::string label = fmt::format("{}: axial {}, radial {} ({})", s.name, iz, ir, m.layerNames[m.layer[ir]]);
+    Index node = network_.addNode(t.density * t.specificHeat * volume, b.group, label);
+    if (!t.isCoat()) {
+      m.tissueVolume += volume;
+      m.tissueMass += t.density * volume;
     }
-    m.lateralFace.push_back(network_.faces.size());
-    network_.faces.push_back({m.node(iz, nr - 1), half, area});
-    if (nr - 1 >= firstCoat) recordCoat(true, network_.faces.size() - 1, halfDry, halfWet);
-    environment_->addFace({group, s.shape, true, area, s.shape == Shape::Plate ? s.length : 2.0 * rOut, 0.0});
-    m.area += area;
-    // Axial conduction through the shared face at z1 (same tissue on both sides).
-    if (iz + 1 < nz) {
-      for (int ir = 0; ir < nr; ++ir) {
-        double section = sectionArea(s.shape, c1.bounds[ir], c1.bounds[ir + 1], s.width);
-        network_.conductances.push_back({m.node(iz, ir), m.node(iz + 1, ir), tissue[ir]->conductivity * section / dz, 0});
-        if (ir >= firstCoat)
-          recordCoat(false, network_.conductances.size() - 1, conductivity(ir, false) * section / dz,
-                     conductivity(ir, true) * section / dz);
-      }
+    if (t.metabolicHeat > 0.0)
+      network_.sources.push_back({node, t.metabolicHeat * volume, t.q10, case_.body.q10Reference, metabolismChannel_});
+    // Pennes (1948) perfusion omega V [m3/s]; the blood streams are linked in buildCirculation().
+    // (skin multipliers, bradycardia and controllers act through modulators: see buildCirculation)
+    cellPerfusion_[b.group][static_cast<std::size_t>(iz * b.nr + ir)] = t.isCoat() ? 0.0 : t.perfusion * volume;
+  }
+}
+
+void Body::addRadialConduction(const SegmentBuild& b, const SegmentMesh& m, int iz, const CrossSection& cm) {
+  // Radial conduction: node centre -> shared face -> next node centre (harmonic-mean interface conductance).
+  const SegmentSpec& s = b.s;
+  for (int ir = 0; ir + 1 < b.nr; ++ir) {
+    double ri = 0.5 * (cm.bounds[ir] + cm.bounds[ir + 1]);
+    double rj = 0.5 * (cm.bounds[ir + 1] + cm.bounds[ir + 2]);
+    double face = cm.bounds[ir + 1];
+    auto conductance = [&](bool wet) {
+      return 1.0 / radialResistance(s.shape, ri, face, rj, b.conductivity(ir, wet), b.conductivity(ir + 1, wet), b.dz, s.width);
+    };
+    double resistance = radialResistance(s.shape, ri, face, rj, b.tissue[ir]->conductivity,
+                                         b.tissue[ir + 1]->conductivity, b.dz, s.width);
+    network_.conductances.push_back({m.node(iz, ir), m.node(iz, ir + 1), 1.0 / resistance, 0});
+    if (ir + 1 >= b.firstCoat) recordCoat(b, false, network_.conductances.size() - 1, conductance(false), conductance(true));
+  }
+}
+
+void Body::addLateralFace(const SegmentBuild& b, SegmentMesh& m, int iz, const CrossSection& c0, const CrossSection& c1,
+                          const CrossSection& cm) {
+  // Outer lateral face of axial cell iz: half-cell conductance from the outermost node to the surface.
+  const SegmentSpec& s = b.s;
+  const int nr = b.nr;
+  double rLast = 0.5 * (cm.bounds[nr - 1] + cm.bounds[nr]);
+  double rOut = cm.bounds[nr];
+  auto halfConductance = [&](double k) { return 1.0 / radialResistance(s.shape, rLast, rOut, rOut, k, 1.0, b.dz, s.width); };
+  double half = halfConductance(b.tissue[nr - 1]->conductivity);
+  double halfDry = halfConductance(b.conductivity(nr - 1, false));
+  double halfWet = halfConductance(b.conductivity(nr - 1, true));
+  double area = 0.0;
+  switch (s.shape) {
+    case Shape::Sphere: area = 4.0 * pi * rOut * rOut; break;
+    case Shape::Plate: area = 2.0 * s.width * b.dz; break;
+    case Shape::Cylinder:
+    case Shape::Cone: {
+      double R0 = c0.bounds[nr], R1 = c1.bounds[nr];
+      area = pi * (R0 + R1) * std::sqrt(b.dz * b.dz + (R1 - R0) * (R1 - R0));  // frustum lateral area
+      break;
     }
   }
-  // Exposed end faces of cylinders and cones: half-cell axial conductance to the face.
-  if ((s.shape == Shape::Cylinder || s.shape == Shape::Cone) && s.surface.ends == EndCondition::Exposed) {
-    for (int end = attached ? 1 : 0; end < 2; ++end) {
-      int iz = end == 0 ? 0 : nz - 1;
-      CrossSection ce = crossSection(s, scaleAt(end == 0 ? 0.0 : length));
-      for (int ir = 0; ir < nr; ++ir) {
-        double section = sectionArea(s.shape, ce.bounds[ir], ce.bounds[ir + 1], s.width);
-        network_.faces.push_back({m.node(iz, ir), tissue[ir]->conductivity * section / (0.5 * dz), section});
-        if (ir >= firstCoat)
-          recordCoat(true, network_.faces.size() - 1, conductivity(ir, false) * section / (0.5 * dz),
-                     conductivity(ir, true) * section / (0.5 * dz));
-        environment_->addFace({group, s.shape, false, section, 2.0 * ce.bounds[nr], 0.0});
-        m.area += section;
-      }
+  // Children cover part of this face: keep at least 10 % exposed.
+  const auto z = static_cast<std::size_t>(iz);
+  if (z < coveredArea_[b.group].size() && coveredArea_[b.group][z] > 0.0) {
+    double covered = coveredArea_[b.group][z];
+    double remaining = std::max(0.1 * area, area - covered);
+    if (area - covered < 0.1 * area)
+      warnings_.push_back(fmt::format("segments attached to {} cover more than 90 % of its surface at axial cell "
+                                      "{}; 10 % is kept exposed", s.name, iz));
+    half *= remaining / area;
+    halfDry *= remaining / area;
+    halfWet *= remaining / area;
+    area = remaining;
+  }
+  m.lateralFace.push_back(network_.faces.size());
+  network_.faces.push_back({m.node(iz, nr - 1), half, area});
+  if (nr - 1 >= b.firstCoat) recordCoat(b, true, network_.faces.size() - 1, halfDry, halfWet);
+  environment_->addFace({b.group, s.shape, true, area, s.shape == Shape::Plate ? s.length : 2.0 * rOut, 0.0});
+  m.area += area;
+}
+
+void Body::addAxialConduction(const SegmentBuild& b, const SegmentMesh& m, int iz, const CrossSection& c1) {
+  // Axial conduction through the shared face at z1 between cells iz and iz + 1 (same tissue on both sides).
+  for (int ir = 0; ir < b.nr; ++ir) {
+    double section = sectionArea(b.s.shape, c1.bounds[ir], c1.bounds[ir + 1], b.s.width);
+    network_.conductances.push_back({m.node(iz, ir), m.node(iz + 1, ir), b.tissue[ir]->conductivity * section / b.dz, 0});
+    if (ir >= b.firstCoat)
+      recordCoat(b, false, network_.conductances.size() - 1, b.conductivity(ir, false) * section / b.dz,
+                 b.conductivity(ir, true) * section / b.dz);
+  }
+}
+
+void Body::addEndFaces(const SegmentBuild& b, SegmentMesh& m, bool attached) {
+  // Exposed end faces of cylinders and cones (the proximal one only on the root): half-cell axial conductance
+  // from each radial cell of the end cell to its part of the face.
+  const SegmentSpec& s = b.s;
+  for (int end = attached ? 1 : 0; end < 2; ++end) {
+    int iz = end == 0 ? 0 : b.nz - 1;
+    CrossSection ce = crossSection(s, b.scaleAt(end == 0 ? 0.0 : b.length));
+    for (int ir = 0; ir < b.nr; ++ir) {
+      double section = sectionArea(s.shape, ce.bounds[ir], ce.bounds[ir + 1], s.width);
+      network_.faces.push_back({m.node(iz, ir), b.tissue[ir]->conductivity * section / (0.5 * b.dz), section});
+      if (ir >= b.firstCoat)
+        recordCoat(b, true, network_.faces.size() - 1, b.conductivity(ir, false) * section / (0.5 * b.dz),
+                   b.conductivity(ir, true) * section / (0.5 * b.dz));
+      environment_->addFace({b.group, s.shape, false, section, 2.0 * ce.bounds[b.nr], 0.0});
+      m.area += section;
     }
   }
-  meshes_.push_back(std::move(m));
 }
 
 }  // namespace thermorph

@@ -3,6 +3,7 @@
 #include <memory>
 #include <optional>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "models/case.hpp"
@@ -74,10 +75,36 @@ class Body {
   const std::vector<std::string>& warnings() const { return warnings_; }
 
  private:
+  // Building a segment (body.cpp): its radial cells' tissues, then per axial cell the nodes, radial conduction,
+  // the lateral face and axial conduction, then the exposed end faces.
+  struct CrossSection;
+  struct SegmentBuild;
+  static CrossSection crossSection(const SegmentSpec& s, double scale);
   void addSegment(const SegmentSpec& s, Index group, bool attached);
+  SegmentBuild segmentTissues(const SegmentSpec& s, Index group, SegmentMesh& m);
+  void recordCoat(const SegmentBuild& b, bool face, Index index, double dry, double wet);
+  void addCellNodes(const SegmentBuild& b, SegmentMesh& m, int iz, const CrossSection& c0, const CrossSection& c1);
+  void addRadialConduction(const SegmentBuild& b, const SegmentMesh& m, int iz, const CrossSection& cm);
+  void addLateralFace(const SegmentBuild& b, SegmentMesh& m, int iz, const CrossSection& c0, const CrossSection& c1,
+                      const CrossSection& cm);
+  void addAxialConduction(const SegmentBuild& b, const SegmentMesh& m, int iz, const CrossSection& c1);
+  void addEndFaces(const SegmentBuild& b, SegmentMesh& m, bool attached);
   void attachChildren();
   void scaleMetabolism();
+  // The circulation (body.cpp): perfusion modulators, per-cell flows, flows summed up the tree, blood nodes,
+  // the links of each segment, and a mass-balance check.
+  struct FlowExpr;
+  struct Circulation;
   void buildCirculation();
+  void addPerfusionModulators(Circulation& c);
+  void planCellFlows(Circulation& c);
+  void sumFlowsUpTheTree(Circulation& c);
+  void setBloodTotals(const Circulation& c);
+  void addBloodNodes(const Circulation& c);
+  std::pair<Index, Index> addFlowParts(const Circulation& c, const FlowExpr& flow, double factor);
+  void linkBlood(const Circulation& c, Index from, Index to, const FlowExpr& flow, double factor = 1.0);
+  void linkSegmentBlood(const Circulation& c, Index g);
+  void checkBloodMassBalance() const;
   void buildControllers();
   void addMetabolicModulation(Index respiratorySegment);
   Index addModulator(Index schedule, Index control, std::string name);
@@ -100,7 +127,7 @@ class Body {
   Index skinControl_ = none, shuntControl_ = none, shiverControl_ = none, pantControl_ = none;
   std::vector<Index> order_;               //!< segments root first
   std::vector<std::vector<double>> cellPerfusion_;  // per segment [nz * nr] perfusion flow [m3/s]
-  std::vector<std::vector<double>> coveredArea_;    //!< per segment [nz] lateral area covered by children [m2]  //!< per segment [nz * nr] perfusion flow [m3/s]
+  std::vector<std::vector<double>> coveredArea_;    //!< per segment [nz] lateral area covered by children [m2]
   Index metabolismChannel_ = 0, bloodChannel_ = 0, conductionChannel_ = 0;
   std::optional<Index> pool_;
   Index core_ = 0;
