@@ -3,6 +3,7 @@
 #include <ctime>
 #include <filesystem>
 
+#include "drivers/provenance.hpp"
 #include "models/case.hpp"
 
 namespace thermorph {
@@ -50,11 +51,12 @@ std::vector<std::string> segmentNames(const Body& body) {
 }  // namespace
 
 Recorder::Recorder(const Body& body, const NetworkSystem& system, const RunOptions& options)
-    : system_(system), observer_(options.observer), budget_(body.network(), system) {
+    : body_(body), system_(system), observer_(options.observer), budget_(body.network(), system) {
   if (options.output.empty()) return;
   file_ = std::make_unique<ResultsFile>(options.output);
   ResultsFile& f = *file_;
   writeMetadata(f, body, options);
+  writeProvenance(f, body.spec().inputs);
   time_ = f.createTime("s", "time since the start of the run");
   budget_.create(f, segmentNames(body));
   fields_ = std::make_unique<FieldRecorder>(f, body);
@@ -75,6 +77,9 @@ void Recorder::record(double t, std::span<const double> y, double initialStored,
 }
 
 void Recorder::finish(RunSummary& summary, bool steady) {
+  // Every warning of the run: the body's (at build) and the environment's (validity ranges, while running).
+  summary.warnings = body_.warnings();
+  for (const std::string& w : body_.environment().warnings()) summary.warnings.push_back(w);
   if (!file_) return;
   ResultsFile& f = *file_;
   const SolverStatistics& s = summary.statistics;
@@ -88,6 +93,7 @@ void Recorder::finish(RunSummary& summary, bool steady) {
   f.setAttribute("/solver", "state_size", static_cast<long>(system_.size()));
   f.setAttribute("/solver", "jacobian_nonzeros", s.jacobianNonzeros);
   f.setAttribute("/solver", "factor_nonzeros", s.factorNonzeros);
+  writeWarnings(f, summary.warnings);
   f.setAttribute("/", "complete", summary.complete ? 1L : 0L);
   if (!summary.complete) f.setAttribute("/", "failure", summary.failure);
   // Never clobber an earlier complete result with a partial one.

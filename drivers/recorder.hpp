@@ -33,6 +33,7 @@ class Recorder {
   void setIncompletePath(std::string p) { incompletePath_ = std::move(p); }
 
  private:
+  const Body& body_;
   const NetworkSystem& system_;
   OutputObserver observer_;
   std::unique_ptr<ResultsFile> file_;

@@ -131,7 +131,7 @@ void ResultsFile::writeStringArray(const std::string& path, const std::vector<st
   for (const std::string& v : values) pointers.push_back(v.c_str());
   hid_t ds = H5Dcreate2(group, name.c_str(), type, space, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
   checkH5(ds, "create " + path);
-  H5Dwrite(ds, type, H5S_ALL, H5S_ALL, H5P_DEFAULT, pointers.data());
+  if (!values.empty()) checkH5(H5Dwrite(ds, type, H5S_ALL, H5S_ALL, H5P_DEFAULT, pointers.data()), "write " + path);
   H5Dclose(ds);
   H5Sclose(space);
   H5Tclose(type);
@@ -150,7 +150,7 @@ void ResultsFile::writeStringArrayAttribute(const std::string& object, const std
   std::vector<const char*> pointers;
   for (const std::string& v : values) pointers.push_back(v.c_str());
   hid_t attr = H5Acreate2(obj, name.c_str(), type, space, H5P_DEFAULT, H5P_DEFAULT);
-  H5Awrite(attr, type, pointers.data());
+  if (!values.empty()) H5Awrite(attr, type, pointers.data());
   H5Aclose(attr);
   H5Sclose(space);
   H5Tclose(type);

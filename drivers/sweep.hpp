@@ -58,6 +58,7 @@ struct SweepPlan {
   std::vector<MetricColumn> columns;   //!< the selected metrics, in table order
   std::string title;
   std::string resolvedCase;            //!< resolved base case (TOML), stored with the table
+  std::vector<InputFile> inputs;       //!< the base case's text and the files it reads, with SHA-256 (provenance)
   std::uint64_t fingerprint = 0;       //!< of the case text and every run's definition and columns
 
   //! Index of each axis's value in run `run` (the last axis varies fastest).

@@ -1,4 +1,5 @@
 #include "drivers/sweep_output.hpp"
+#include "drivers/provenance.hpp"
 
 #include <hdf5.h>
 #include <hdf5_hl.h>
@@ -305,6 +306,25 @@ void writeHdf5(const SweepPlan& plan, std::span<const RunRow> rows, const SweepT
                                      : fmt::format("{}", fmt::join(plan.shape, " x ")));
     attribute(root, "set", plan.overrides);
     attribute(root, "warnings", info.warnings);
+  }
+  {
+    // Provenance, as in result files (drivers/provenance.hpp).
+    H5 group(H5Gcreate2(file, "provenance", H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT), H5Gclose, "create /provenance");
+    attribute(group, "source_revision", sourceRevision());
+    attribute(group, "source_commit", sourceCommit());
+    std::vector<std::string> roles, paths, hashes;
+    for (const InputFile& i : plan.inputs) {
+      roles.push_back(i.role);
+      paths.push_back(i.path);
+      hashes.push_back(i.sha256);
+      if (i.role == "case") attribute(group, "case_sha256", i.sha256);
+    }
+    attribute(group, "input_roles", roles);
+    attribute(group, "input_paths", paths);
+    attribute(group, "input_sha256", hashes);
+    H5 warnings = texts(group, "warnings", info.warnings);
+    attribute(warnings, "long_name", std::string("distinct warnings of the runs of this session"));
+    check(H5DSset_scale(warnings, "warnings"), "make /provenance/warnings a dimension scale");
   }
   {
     H5 group(H5Gcreate2(file, "parameters", H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT), H5Gclose, "create /parameters");

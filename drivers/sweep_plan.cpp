@@ -322,6 +322,7 @@ SweepPlan makeSweepPlan(const SweepOptions& commandLine) {
 static SweepPlan finishSweepPlan(SweepPlan plan, const SweepOptions& options, const Case& base) {
   plan.title = base.title;
   plan.resolvedCase = resolvedCaseToml(base);
+  plan.inputs = base.inputs;
 
   for (const std::string& v : options.vary) {
     auto [key, spec] = keyValue(v, "--vary", "\"segments.NAME.length=2 cm:12 cm:11\"");

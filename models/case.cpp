@@ -1,4 +1,5 @@
 #include "models/case.hpp"
+#include "models/sha256.hpp"
 
 #include <algorithm>
 #include <cmath>
@@ -378,6 +379,20 @@ void validateTree(const CaseReader& reader, const toml::array& segArray, const C
   }
 }
 
+//! Provenance: SHA-256 of the case text and of every file the case (overrides applied) reads.
+void recordInputs(Case& c, const toml::table& root, const std::string& text) {
+  c.inputs.push_back({"case", c.sourceFile, sha256Hex(text)});
+  if (auto weather = root.at_path("environment.weather").value<std::string>()) {
+    // Resolved as readWeather does (relative to the case file's folder); it has just been read successfully.
+    std::filesystem::path file(*weather);
+    if (file.is_relative()) file = std::filesystem::path(c.sourceFile).parent_path() / file;
+    std::ifstream in(file, std::ios::binary);
+    std::stringstream bytes;
+    bytes << in.rdbuf();
+    c.inputs.push_back({"environment.weather", file.string(), sha256Hex(bytes.str())});
+  }
+}
+
 Case buildCase(toml::table& root, const std::string& file, const std::vector<std::string>& overrides) {
   for (const std::string& o : overrides) applyOverride(root, file, o);
   CaseReader reader(file);
@@ -515,7 +530,9 @@ Case loadCaseFromString(const std::string& text, const std::string& sourceName,
     throw CaseError(fmt::format("{}:{}:{}: TOML syntax error: {}", sourceName, e.source().begin.line,
                                 e.source().begin.column, e.description()));
   }
-  return buildCase(root, sourceName, overrides);
+  Case c = buildCase(root, sourceName, overrides);
+  recordInputs(c, root, text);
+  return c;
 }
 
 Case loadCase(const std::string& path, const std::vector<std::string>& overrides) {

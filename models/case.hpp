@@ -132,9 +132,17 @@ struct ControlSpec {
   ControllerSpec vasomotor, shivering, panting;
 };
 
+//! A file a case was read from (provenance): the case text itself, then every file it reads (weather, ...).
+struct InputFile {
+  std::string role;    //!< "case", or the key that names the file (e.g. "environment.weather")
+  std::string path;    //!< as resolved when read
+  std::string sha256;  //!< SHA-256 of the bytes read (64 hex digits)
+};
+
 struct Case {
   std::string title;
   std::string sourceFile;  //!< path of the case file
+  std::vector<InputFile> inputs;  //!< the case text and every file it read, with their SHA-256
   RunSpec run;
   CirculationSpec circulation;
   BodySpec body;
