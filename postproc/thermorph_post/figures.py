@@ -436,6 +436,9 @@ def forcing_figure(res: Results, units: str = "physiology", style: str = DEFAULT
     groups: dict[str, list[str]] = {}
     for name, series in env.items():
         groups.setdefault(series.units, []).append(name)
+    known = list(ENVIRONMENT_NAMES)
+    for names in groups.values():   # the medium first, then the others in a fixed order
+        names.sort(key=lambda n: (known.index(n) if n in known else len(known), n))
     order = [u for u in FORCING_PANELS if u in groups] + sorted(u for u in groups if u not in FORCING_PANELS)
     scale = time_scale(res.duration)
     t = res.time / scale[0]
@@ -449,11 +452,18 @@ def forcing_figure(res: Results, units: str = "physiology", style: str = DEFAULT
             if unit == "degC":
                 ylabel = f"Temperature ({temperature_label(units)})"
             ax.set_label(f"forcing: {title.lower()}")
+            drawn = []   # [values, line, equal names]: a series equal to one drawn already joins its label
             for k, name in enumerate(groups[unit]):
                 values = env[name].values
                 values = temperature_in(values, units) if unit == "degC" else factor * np.asarray(values, float)
+                twin = next((d for d in drawn if d[0].shape == values.shape and np.array_equal(d[0], values)), None)
+                if twin is not None:
+                    twin[2].append(ENVIRONMENT_NAMES.get(name, name))
+                    twin[1].set_label(f"{twin[1].get_label().split(' (same: ')[0]} (same: {', '.join(twin[2])})")
+                    continue
                 colour, ls = ENVIRONMENT_STYLE.get(name, (LINE_CYCLE[k % len(LINE_CYCLE)], "-"))
-                ax.plot(t, values, color=colour, ls=ls, lw=1.2, label=ENVIRONMENT_NAMES.get(name, name), **kw)
+                line, = ax.plot(t, values, color=colour, ls=ls, lw=1.2, label=ENVIRONMENT_NAMES.get(name, name), **kw)
+                drawn.append([values, line, []])
             ax.set_ylabel(ylabel)
             if unit == "1":
                 ax.set_ylim(0.0, 100.0)

@@ -65,8 +65,8 @@ BODY_STYLE = {"core": ("#000000", "-"), "blood": ("#000000", (0, (5, 1.5, 1, 1.5
 ENVIRONMENT_STYLE = {
     "temperature": ("#4D4D4D", (0, (1, 1.5))), "air_temperature": ("#4D4D4D", (0, (1, 1.5))),
     "water_temperature": ("#4D4D4D", (0, (4, 1.5, 1, 1.5, 1, 1.5))),
-    "radiant_temperature": ("#8C8C8C", (0, (1, 1.5))), "sky_temperature": ("#8C8C8C", (0, (3, 1.5))),
-    "substrate_temperature": ("#8C8C8C", (0, (6, 2))),
+    "radiant_temperature": ("#A0A0A0", "-"), "sky_temperature": ("#A0A0A0", (0, (4, 1.5))),
+    "substrate_temperature": ("#8B5A2B", "-"),
     "speed": ("#4D4D4D", "-"), "air_speed": ("#4D4D4D", "-"), "water_speed": ("#4D4D4D", "--"),
     "solar_irradiance": ("#B8860B", "-"), "relative_humidity": ("#4D4D4D", "-"),
 }
@@ -317,6 +317,13 @@ def legend_outside(ax, **kw):
     if kw.get("title") and len(kw["title"]) > 20:   # a long title would widen the legend: wrap it
         kw["title"] = "\n".join(textwrap.wrap(kw["title"], 20))
     kw.setdefault("handlelength", 1.8)
+    # Long entries would widen the legend and squeeze the panel: wrap them (narrower in a single column).
+    width = 18 if getattr(ax.figure, "thermorph_style", DEFAULT_STYLE) == "single" else 30
+    if "labels" not in kw:
+        handles, labels = ax.get_legend_handles_labels()
+        kw.setdefault("handles", handles)
+        kw["labels"] = labels
+    kw["labels"] = ["\n".join(textwrap.wrap(lab, width)) if len(lab) > width else lab for lab in kw["labels"]]
     return ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0, **kw)
 
 
