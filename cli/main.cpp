@@ -11,6 +11,7 @@
 #include "models/case.hpp"
 #include "drivers/simulation.hpp"
 #include "cli/sweep_cli.hpp"
+#include "cli/fit_cli.hpp"
 
 namespace {
 
@@ -110,6 +111,8 @@ int main(int argc, char** argv) {
   SweepOptions sweepOptions;
   CLI::App* sweep = addSweepSubcommand(app, sweepOptions);
   // ---- end sweep ----
+  FitOptions fitOptions;
+  CLI::App* fit = addFitSubcommand(app, fitOptions);  // cli/fit_cli.cpp
 
   try {
     app.parse(argc, argv);
@@ -132,6 +135,7 @@ int main(int argc, char** argv) {
   // ---- sweep: dispatch ----
   if (sweep->parsed()) return runSweepCli(sweepOptions, commandLine);
   // ---- end sweep ----
+  if (fit->parsed()) return runFitCli(fitOptions, commandLine);
   try {
     Case c = loadCase(casePath, overrides);
     Body body(c);

@@ -1,0 +1,64 @@
+#include "cli/fit_cli.hpp"
+
+#include <fmt/format.h>
+
+#include "solver/integrator.hpp"
+
+namespace thermorph {
+
+namespace {
+template <class Options>
+int guarded(Options& options, const std::string& commandLine, int (*command)(const Options&)) {
+  options.commandLine = commandLine;
+  try {
+    return command(options);
+  } catch (const CaseError& e) {
+    fmt::print(stderr, "error: {}\n", e.what());
+    return 2;
+  } catch (const std::exception& e) {
+    fmt::print(stderr, "error: {}\n", e.what());
+    return 3;
+  }
+}
+}  // namespace
+
+CLI::App* addFitSubcommand(CLI::App& app, FitOptions& o) {
+  CLI::App* fit = app.add_subcommand(
+      "fit", "Fit case parameters to observed series (Ceres least squares): values, standard errors, 95 % intervals, "
+             "correlations, RMSE, AIC/BIC; the fitted run's results with /fit, and a fitted case file");
+  fit->add_option("case", o.casePath, "Case file (TOML)")->required();
+  fit->add_option("--set", o.overrides, "Override a case key: KEY=VALUE")->take_all()->allow_extra_args(false);
+  fit->add_option("--data", o.data,
+                  "Observed-data CSV: time [UNIT] (or datetime), then columns NAME [UNIT] and optional NAME.sd [UNIT]")
+      ->take_all()
+      ->allow_extra_args(false);
+  fit->add_option("--data-start", o.dataStart, "ISO 8601 date-time of t = 0, for datetime columns (2026-06-01T06:00)");
+  fit->add_option("--free", o.free,
+                  "A free parameter, addressed as --set addresses it, with bounds: KEY=LOWER:UPPER or "
+                  "KEY=LOWER:UPPER:log, e.g. \"segments.trunk.coat.thickness=0.5 cm:3 cm\"")
+      ->take_all()
+      ->allow_extra_args(false);
+  fit->add_option("--start", o.starts, "Start value KEY=VALUE (default: the case's value)")->take_all()->allow_extra_args(false);
+  fit->add_option("--prior", o.priors, "Gaussian prior KEY=MEAN:SD (an extra residual (value - MEAN) / SD)")
+      ->take_all()
+      ->allow_extra_args(false);
+  fit->add_option("--multi-start", o.multiStart, "Number of starts: the given one plus N - 1 Sobol' points in the bounds")
+      ->check(CLI::Range(1, 1000));
+  fit->add_option("--max-iterations", o.maxIterations, "Iterations of the least-squares solver (default 50)")
+      ->check(CLI::Range(1, 10000));
+  fit->add_option("--step", o.step, "Finite-difference step, relative (or in ln for log-scale parameters); default 1e-4");
+  fit->add_option("--rtol", o.rtol,
+                  "Integrator tolerances of the fit's runs (run.rtol, run.atol in K); 0 keeps the case's. Default 1e-8");
+  fit->add_option("-j,--jobs", o.jobs, "Threads for the runs of one Jacobian (default: all cores)");
+  fit->add_option("-o,--output", o.output,
+                  "Results of the fitted run with the /fit group (HDF5); the fitted case goes beside it as "
+                  "NAME_fitted.toml. Default: CASE-NAME_fit.h5");
+  fit->add_flag("-q,--quiet", o.quiet, "No progress on stderr");
+  return fit;
+}
+
+int runFitCli(FitOptions& options, const std::string& commandLine) {
+  return guarded(options, commandLine, &runFitCommand);
+}
+
+}  // namespace thermorph

@@ -1,0 +1,941 @@
+//! Fits of case parameters to observed series with Ceres Solver (Agarwal, Mierle et al., ceres-solver.org):
+//! Levenberg-Marquardt trust region with bounds, gradients by central finite differences of whole runs on
+//! threads. Covariance from the Jacobian at the optimum scaled by the residual variance, Cov = s^2 (J^T J)^-1,
+//! s^2 = SSR / (n - p) (Bates & Watts 1988, ch. 2; Seber & Wild 1989, sec. 2.1), by singular value decomposition
+//! (Eigen).
+#include "drivers/fit.hpp"
+
+#include <algorithm>
+#include <atomic>
+#include <chrono>
+#include <cmath>
+#include <filesystem>
+#include <fstream>
+#include <limits>
+#include <map>
+#include <sstream>
+#include <thread>
+
+#include <Eigen/Dense>
+#include <boost/math/distributions/students_t.hpp>
+#include <ceres/ceres.h>
+#include <fmt/format.h>
+#include <toml++/toml.h>
+
+#include "models/case_schema.hpp"
+#include "models/units.hpp"
+#include "drivers/h5_append.hpp"
+#include "drivers/sampling.hpp"
+#include "drivers/simulation.hpp"
+
+namespace thermorph {
+namespace {
+
+using Clock = std::chrono::steady_clock;
+constexpr double nan = std::numeric_limits<double>::quiet_NaN();
+const char* caution =
+    "Model estimates for research; not veterinary or medical advice. Follow local regulations, animal-welfare "
+    "rules and licensed veterinary or medical practice.";
+
+std::string trim(const std::string& s) {
+  std::size_t b = s.find_first_not_of(" \t\r\n"), e = s.find_last_not_of(" \t\r\n");
+  return b == std::string::npos ? std::string() : s.substr(b, e - b + 1);
+}
+
+std::vector<std::string> split(const std::string& s, char separator) {
+  std::vector<std::string> parts;
+  std::stringstream ss(s);
+  for (std::string part; std::getline(ss, part, separator);) parts.push_back(trim(part));
+  return parts;
+}
+
+std::pair<std::string, std::string> keyValue(const std::string& text, const char* option, const char* example) {
+  auto eq = text.find('=');
+  if (eq == std::string::npos || eq == 0)
+    throw CaseError(fmt::format("{} {}: expected KEY=..., e.g. {} {}", option, text, option, example));
+  return {trim(text.substr(0, eq)), trim(text.substr(eq + 1))};
+}
+
+//! The schema entry of a key path ("segments.NAME.layers.1.thickness" -> "segments[].layers[].thickness").
+const Param* schemaEntry(const std::string& key) {
+  std::vector<std::string> parts = split(key, '.');
+  std::string pattern;
+  const Param* p = nullptr;
+  for (std::size_t i = 0; i < parts.size(); ++i) {
+    pattern += (pattern.empty() ? "" : ".") + parts[i];
+    p = findParam(pattern);
+    if (!p) return nullptr;
+    if (p->kind == ParamKind::TableArray) {
+      pattern += "[]";
+      ++i;
+    } else if (p->kind == ParamKind::NamedTables) {
+      pattern += ".*";
+      ++i;
+    }
+  }
+  return p;
+}
+
+//! The value of `key` in the resolved case (SI), when it is there.
+std::optional<double> resolvedValue(const Case& c, const std::string& key) {
+  toml::table root;
+  try {
+    root = toml::parse(resolvedCaseToml(c));
+  } catch (const toml::parse_error&) {
+    return std::nullopt;
+  }
+  toml::node* node = &root;
+  for (const std::string& part : split(key, '.')) {
+    if (auto* t = node->as_table()) {
+      node = t->get(part);
+    } else if (auto* a = node->as_array()) {
+      toml::node* found = nullptr;
+      for (std::size_t i = 0; i < a->size() && !found; ++i)
+        if (auto* e = (*a)[i].as_table())
+          if (auto name = (*e)["name"].value<std::string>(); name && *name == part) found = &(*a)[i];
+      if (!found && !part.empty() && std::all_of(part.begin(), part.end(), ::isdigit) && std::stoul(part) < a->size())
+        found = &(*a)[std::stoul(part)];
+      node = found;
+    } else {
+      return std::nullopt;
+    }
+    if (!node) return std::nullopt;
+  }
+  if (auto v = node->value<double>()) return *v;
+  if (auto s = node->value<std::string>()) {
+    try {
+      ValueWithUnit vu = splitValueUnit(*s);
+      return vu.value;  // the resolved case writes SI values
+    } catch (const UnitError&) {
+      return std::nullopt;
+    }
+  }
+  return std::nullopt;
+}
+
+//! Parallel map over [0, n) on `jobs` threads.
+void parallelFor(std::size_t n, int jobs, const std::function<void(std::size_t)>& body) {
+  unsigned hw = std::max(1u, std::thread::hardware_concurrency());
+  std::size_t workers = std::min<std::size_t>(n, jobs > 0 ? static_cast<std::size_t>(jobs) : hw);
+  if (workers <= 1) {
+    for (std::size_t i = 0; i < n; ++i) body(i);
+    return;
+  }
+  std::atomic<std::size_t> next{0};
+  std::vector<std::thread> threads;
+  for (std::size_t w = 0; w < workers; ++w)
+    threads.emplace_back([&] {
+      for (std::size_t i = next.fetch_add(1); i < n; i = next.fetch_add(1)) body(i);
+    });
+  for (std::thread& t : threads) t.join();
+}
+
+//! Scaled variable u of each parameter: ln(x) on a log scale, else x / scale.
+struct Transform {
+  std::vector<double> scale;
+  std::vector<bool> log;
+  explicit Transform(const std::vector<FitParameter>& ps) {
+    for (const FitParameter& p : ps) {
+      log.push_back(p.log);
+      double s = std::abs(p.start);
+      if (!(s > 0.0)) s = std::max(std::abs(p.upper - p.lower), 1e-300);
+      scale.push_back(s);
+    }
+  }
+  double toU(std::size_t j, double x) const { return log[j] ? std::log(x) : x / scale[j]; }
+  double toX(std::size_t j, double u) const { return log[j] ? std::exp(u) : u * scale[j]; }
+  double dxdu(std::size_t j, double u) const { return log[j] ? std::exp(u) : scale[j]; }
+};
+
+//! Observations and weights flattened in ObservedData order.
+struct Targets {
+  std::vector<double> observed, sd;
+  std::vector<std::size_t> seriesOf;
+  explicit Targets(const ObservedData& d) {
+    for (std::size_t s = 0; s < d.series.size(); ++s)
+      for (std::size_t i = 0; i < d.series[s].values.size(); ++i) {
+        observed.push_back(d.series[s].values[i]);
+        sd.push_back(d.series[s].sd[i]);
+        seriesOf.push_back(s);
+      }
+  }
+};
+
+std::size_t priorCount(const FitProblem& pb) {
+  std::size_t k = 0;
+  for (const FitParameter& p : pb.parameters) k += p.priorMean ? 1 : 0;
+  return k;
+}
+
+//! Weighted residuals: data rows (model - observed) / sd, then prior rows (x - mean) / sd.
+std::vector<double> residualsOf(const FitProblem& pb, const Targets& t, const std::vector<double>& predictions,
+                                std::span<const double> x) {
+  std::vector<double> r(t.observed.size());
+  for (std::size_t i = 0; i < r.size(); ++i) r[i] = (predictions[i] - t.observed[i]) / t.sd[i];
+  for (std::size_t j = 0; j < pb.parameters.size(); ++j)
+    if (pb.parameters[j].priorMean) r.push_back((x[j] - *pb.parameters[j].priorMean) / *pb.parameters[j].priorSd);
+  return r;
+}
+
+//! Residuals and d(residual)/du by central differences (one-sided at a bound), every run in parallel.
+struct Linearisation {
+  bool ok = false;
+  std::string error;
+  std::vector<double> residuals, predictions;
+  std::vector<double> jacobian;  // [rows x p], d r / d u
+};
+
+class Model {
+ public:
+  Model(const FitProblem& pb, const Transform& tr, const Targets& t, std::vector<double> lowerU, std::vector<double> upperU)
+      : pb_(pb), tr_(tr), t_(t), lowerU_(std::move(lowerU)), upperU_(std::move(upperU)) {}
+
+  std::vector<double> xOf(std::span<const double> u) const {
+    std::vector<double> x(u.size());
+    for (std::size_t j = 0; j < u.size(); ++j) x[j] = tr_.toX(j, u[j]);
+    return x;
+  }
+
+  Linearisation at(std::span<const double> u, bool withJacobian) const {
+    const std::size_t p = u.size();
+    Linearisation out;
+    std::vector<std::vector<double>> points;
+    const bool cached = !lastU_.empty() && std::equal(u.begin(), u.end(), lastU_.begin());
+    if (!cached) points.push_back(xOf(u));
+    std::vector<double> plus(p), minus(p);
+    if (withJacobian)
+      for (std::size_t j = 0; j < p; ++j) {
+        const double h = pb_.step * std::max(1.0, std::abs(u[j]));
+        double up = u[j] + h, down = u[j] - h;
+        if (up > upperU_[j]) up = u[j];
+        if (down < lowerU_[j]) down = u[j];
+        if (up == down) up = u[j] + h;  // a degenerate interval: step outward anyway
+        plus[j] = up;
+        minus[j] = down;
+        std::vector<double> a(u.begin(), u.end()), b(u.begin(), u.end());
+        a[j] = up;
+        b[j] = down;
+        points.push_back(xOf(a));
+        points.push_back(xOf(b));
+      }
+    std::vector<Evaluation> evals = evaluateMany(pb_, points, pb_.jobs);
+    runs_ += static_cast<long>(evals.size());
+    std::size_t k = 0;
+    if (!cached) {
+      if (!evals[0].ok) {
+        out.error = evals[0].error;
+        return out;
+      }
+      lastU_.assign(u.begin(), u.end());
+      lastPredictions_ = evals[0].predictions;
+      k = 1;
+    }
+    out.predictions = lastPredictions_;
+    std::vector<double> x = xOf(u);
+    out.residuals = residualsOf(pb_, t_, out.predictions, x);
+    if (withJacobian) {
+      const std::size_t rows = out.residuals.size();
+      out.jacobian.assign(rows * p, 0.0);
+      for (std::size_t j = 0; j < p; ++j) {
+        const Evaluation& a = evals[k + 2 * j];
+        const Evaluation& b = evals[k + 2 * j + 1];
+        if (!a.ok || !b.ok) {
+          out.error = a.ok ? b.error : a.error;
+          return out;
+        }
+        std::vector<double> ua(u.begin(), u.end()), ub(u.begin(), u.end());
+        ua[j] = plus[j];
+        ub[j] = minus[j];
+        std::vector<double> ra = residualsOf(pb_, t_, a.predictions, xOf(ua));
+        std::vector<double> rb = residualsOf(pb_, t_, b.predictions, xOf(ub));
+        for (std::size_t i = 0; i < rows; ++i) out.jacobian[i * p + j] = (ra[i] - rb[i]) / (plus[j] - minus[j]);
+      }
+    }
+    out.ok = true;
+    return out;
+  }
+
+  long runs() const { return runs_; }
+
+ private:
+  const FitProblem& pb_;
+  const Transform& tr_;
+  const Targets& t_;
+  std::vector<double> lowerU_, upperU_;
+  mutable std::vector<double> lastU_, lastPredictions_;
+  mutable long runs_ = 0;
+};
+
+class FitCost : public ceres::CostFunction {
+ public:
+  FitCost(const Model& model, std::size_t rows, std::size_t p, std::string& lastError)
+      : model_(model), p_(p), lastError_(lastError) {
+    set_num_residuals(static_cast<int>(rows));
+    mutable_parameter_block_sizes()->push_back(static_cast<int>(p));
+  }
+  bool Evaluate(double const* const* parameters, double* residuals, double** jacobians) const override {
+    const bool withJacobian = jacobians && jacobians[0];
+    Linearisation l = model_.at(std::span<const double>(parameters[0], p_), withJacobian);
+    if (!l.ok) {
+      lastError_ = l.error;
+      return false;  // Ceres treats the point as infeasible and shrinks the trust region
+    }
+    std::copy(l.residuals.begin(), l.residuals.end(), residuals);
+    if (withJacobian) std::copy(l.jacobian.begin(), l.jacobian.end(), jacobians[0]);
+    return true;
+  }
+
+ private:
+  const Model& model_;
+  std::size_t p_;
+  std::string& lastError_;
+};
+
+class History : public ceres::IterationCallback {
+ public:
+  History(std::vector<FitIteration>& out, const double* u, const Transform& tr, std::size_t p, int start)
+      : out_(out), u_(u), tr_(tr), p_(p), start_(start) {}
+  ceres::CallbackReturnType operator()(const ceres::IterationSummary& s) override {
+    FitIteration it;
+    it.iteration = s.iteration;
+    it.cost = s.cost;
+    it.gradientNorm = s.gradient_max_norm;
+    it.stepNorm = s.step_norm;
+    it.successful = s.step_is_successful;
+    it.start = start_;
+    for (std::size_t j = 0; j < p_; ++j) it.values.push_back(tr_.toX(j, u_[j]));
+    out_.push_back(std::move(it));
+    return ceres::SOLVER_CONTINUE;
+  }
+
+ private:
+  std::vector<FitIteration>& out_;
+  const double* u_;
+  const Transform& tr_;
+  std::size_t p_;
+  int start_;
+};
+
+}  // namespace
+
+std::string parameterOverride(const FitParameter& p, double value) {
+  return p.unit.empty() ? fmt::format("{}={:.17g}", p.key, value) : fmt::format("{}={:.17g} {}", p.key, value, p.unit);
+}
+
+std::vector<FitParameter> parseFitParameters(const std::vector<std::string>& free, const std::vector<std::string>& starts,
+                                             const std::vector<std::string>& priors, const std::string& caseText,
+                                             const std::string& casePath, const std::vector<std::string>& overrides) {
+  const Case base = loadCaseFromString(caseText, casePath, overrides);
+  if (free.empty()) throw CaseError("fit: no free parameter; give at least one --free KEY=LOWER:UPPER");
+  std::map<std::string, std::string> startOf, priorOf;
+  for (const std::string& s : starts) {
+    auto [k, v] = keyValue(s, "--start", "segments.trunk.coat.thickness=\"1 cm\"");
+    startOf[k] = v;
+  }
+  for (const std::string& s : priors) {
+    auto [k, v] = keyValue(s, "--prior", "environment.convection=\"10 W/(m2 K):2 W/(m2 K)\"");
+    priorOf[k] = v;
+  }
+  std::vector<FitParameter> out;
+  for (const std::string& f : free) {
+    auto [key, spec] = keyValue(f, "--free", "\"segments.trunk.coat.thickness=0.5 cm:3 cm\"");
+    const std::string what = fmt::format("--free {}", f);
+    const Param* param = schemaEntry(key);
+    if (!param)
+      throw CaseError(fmt::format("{}: no such case key \"{}\" (see cases/REFERENCE.md; segments are addressed by name, "
+                                  "e.g. segments.NAME.length)",
+                                  what, key));
+    if (param->kind != ParamKind::Quantity && param->kind != ParamKind::Perfusion && param->kind != ParamKind::Number)
+      throw CaseError(fmt::format("{}: {} is not a continuous numeric key (a fit can only vary numbers and quantities)",
+                                  what, key));
+    std::vector<std::string> parts = split(key, '.');
+    if (parts.size() > 1 && parts[0] == "segments") {
+      bool found = false;
+      std::vector<std::string> names;
+      for (const SegmentSpec& s : base.segments) {
+        names.push_back(s.name);
+        found = found || s.name == parts[1];
+      }
+      if (!found)
+        throw CaseError(fmt::format("{}: no segment \"{}\" (segments: {})", what, parts[1], fmt::join(names, ", ")));
+    }
+    for (const FitParameter& p : out)
+      if (p.key == key) throw CaseError(fmt::format("{}: {} is free twice", what, key));
+    std::vector<std::string> bounds = split(spec, ':');
+    FitParameter p;
+    p.key = key;
+    if (bounds.size() == 3 && bounds[2] == "log") {
+      p.log = true;
+      bounds.pop_back();
+    }
+    if (bounds.size() != 2)
+      throw CaseError(fmt::format("{}: expected KEY=LOWER:UPPER or KEY=LOWER:UPPER:log, e.g. \"{}=0.5 cm:3 cm\"", what, key));
+    ValueWithUnit lo, hi;
+    try {
+      lo = splitValueUnit(bounds[0]);
+      hi = splitValueUnit(bounds[1]);
+    } catch (const UnitError& e) {
+      throw CaseError(fmt::format("{}: {}", what, e.what()));
+    }
+    const std::string si(param->unit);
+    p.unit = !lo.unit.empty() ? lo.unit : !hi.unit.empty() ? hi.unit : si;
+    auto inUnit = [&](const ValueWithUnit& v, const std::string& name) {
+      std::string from = v.unit.empty() ? si : v.unit;
+      if (from == p.unit) return v.value;
+      if (from.empty() || p.unit.empty())
+        throw CaseError(fmt::format("{}: the {} has no unit; give both bounds with units", what, name));
+      try {
+        return convertUnit(v.value, from, p.unit);
+      } catch (const UnitError& e) {
+        throw CaseError(fmt::format("{}: the {} \"{} {}\": {}", what, name, v.value, v.unit, e.what()));
+      }
+    };
+    if (!si.empty() && !p.unit.empty() && !unitConvertible(p.unit, si) && param->kind != ParamKind::Perfusion)
+      throw CaseError(fmt::format("{}: unit \"{}\" is not a {} (expected {})", what, p.unit, quantityName(si), si));
+    p.lower = inUnit(lo, "lower bound");
+    p.upper = inUnit(hi, "upper bound");
+    if (!(p.lower < p.upper))
+      throw CaseError(fmt::format("{}: the lower bound {} must be below the upper bound {}", what, bounds[0], bounds[1]));
+    if (p.log && !(p.lower > 0.0))
+      throw CaseError(fmt::format("{}: a log-scale parameter needs a positive lower bound", what));
+    // The start: --start, else the case's own value.
+    if (auto it = startOf.find(key); it != startOf.end()) {
+      try {
+        p.start = inUnit(splitValueUnit(it->second), "start");
+      } catch (const UnitError& e) {
+        throw CaseError(fmt::format("--start {}={}: {}", key, it->second, e.what()));
+      }
+      startOf.erase(it);
+    } else {
+      std::optional<double> v = resolvedValue(base, key);
+      if (!v)
+        throw CaseError(fmt::format("{}: the case does not give {} explicitly; give the start with --start {}=VALUE", what,
+                                    key, key));
+      try {
+        p.start = si == p.unit || si.empty() ? *v : convertUnit(*v, si, p.unit);
+      } catch (const UnitError& e) {
+        throw CaseError(fmt::format("{}: {}", what, e.what()));
+      }
+    }
+    if (!(p.start >= p.lower && p.start <= p.upper))
+      throw CaseError(fmt::format("{}: the start {:g} {} lies outside the bounds {:g} to {:g} {}", what, p.start, p.unit,
+                                  p.lower, p.upper, p.unit));
+    if (auto it = priorOf.find(key); it != priorOf.end()) {
+      std::vector<std::string> ms = split(it->second, ':');
+      if (ms.size() != 2)
+        throw CaseError(fmt::format("--prior {}={}: expected MEAN:SD, e.g. \"10 W/(m2 K):2 W/(m2 K)\"", key, it->second));
+      try {
+        p.priorMean = inUnit(splitValueUnit(ms[0]), "prior mean");
+        ValueWithUnit sd = splitValueUnit(ms[1]);
+        double sdValue = sd.unit.empty() || sd.unit == p.unit
+                             ? sd.value
+                             : convertUnit(sd.value, sd.unit, p.unit) - convertUnit(0.0, sd.unit, p.unit);
+        p.priorSd = sdValue;
+      } catch (const UnitError& e) {
+        throw CaseError(fmt::format("--prior {}={}: {}", key, it->second, e.what()));
+      }
+      if (!(*p.priorSd > 0.0)) throw CaseError(fmt::format("--prior {}={}: the SD must be positive", key, it->second));
+      priorOf.erase(it);
+    }
+    // The case loader checks both bounds (units and ranges of the schema).
+    for (double v : {p.lower, p.upper, p.start}) {
+      std::vector<std::string> o = overrides;
+      o.push_back(parameterOverride(p, v));
+      try {
+        (void)loadCaseFromString(caseText, casePath, o);
+      } catch (const CaseError& e) {
+        throw CaseError(fmt::format("{}: the case loader refuses {}: {}", what, parameterOverride(p, v), e.what()));
+      }
+    }
+    out.push_back(std::move(p));
+  }
+  if (!startOf.empty()) throw CaseError(fmt::format("--start {}: not a free parameter (give it with --free)", startOf.begin()->first));
+  if (!priorOf.empty()) throw CaseError(fmt::format("--prior {}: not a free parameter (give it with --free)", priorOf.begin()->first));
+  return out;
+}
+
+Evaluation evaluateModel(const FitProblem& pb, std::span<const double> x) {
+  Evaluation e;
+  try {
+    std::vector<std::string> overrides = pb.overrides;
+    for (std::size_t j = 0; j < pb.parameters.size(); ++j) overrides.push_back(parameterOverride(pb.parameters[j], x[j]));
+    const Case c = loadCaseFromString(pb.caseText, pb.casePath, overrides);
+    Body body(c);
+    ObservationSampler sampler(pb.data, body);
+    RunOptions options;
+    options.quiet = true;
+    options.observer = [&](double t, std::span<const double> y, const RunSummary& s) { sampler.observe(t, y, s); };
+    RunSummary summary = runTransient(body, options);
+    if (!summary.complete) {
+      e.error = summary.failure;
+      return e;
+    }
+    e.predictions = sampler.predictions();
+    for (double v : e.predictions)
+      if (!std::isfinite(v)) {
+        e.error = "the model gives a non-finite value";
+        return e;
+      }
+    e.ok = true;
+  } catch (const std::exception& ex) {
+    e.error = ex.what();
+  }
+  return e;
+}
+
+std::vector<Evaluation> evaluateMany(const FitProblem& pb, const std::vector<std::vector<double>>& xs, int jobs) {
+  std::vector<Evaluation> out(xs.size());
+  parallelFor(xs.size(), jobs, [&](std::size_t i) { out[i] = evaluateModel(pb, xs[i]); });
+  return out;
+}
+
+FitResult runFit(const FitProblem& pb) {
+  const auto wallStart = Clock::now();
+  const std::size_t p = pb.parameters.size();
+  if (p == 0) throw CaseError("fit: no free parameter");
+  const Targets targets(pb.data);
+  const std::size_t n = targets.observed.size();
+  if (n <= p)
+    throw CaseError(fmt::format("fit: {} observations for {} free parameters; a fit needs more observations than "
+                                "parameters",
+                                n, p));
+  const std::size_t rows = n + priorCount(pb);
+  const Transform tr(pb.parameters);
+  std::vector<double> lowerU(p), upperU(p);
+  for (std::size_t j = 0; j < p; ++j) {
+    lowerU[j] = tr.toU(j, pb.parameters[j].lower);
+    upperU[j] = tr.toU(j, pb.parameters[j].upper);
+  }
+  const Model model(pb, tr, targets, lowerU, upperU);
+
+  FitResult result;
+  result.n = n;
+  // Starts: the given one, then Sobol points in the bounds (log-uniform on a log scale).
+  result.startPoints.push_back({});
+  for (const FitParameter& fp : pb.parameters) result.startPoints.back().push_back(fp.start);
+  if (pb.starts > 1) {
+    std::vector<std::vector<double>> unit = sobolPoints(p, static_cast<std::size_t>(pb.starts - 1), 1);
+    for (const std::vector<double>& z : unit) {
+      std::vector<double> x(p);
+      for (std::size_t j = 0; j < p; ++j)
+        x[j] = tr.toX(j, lowerU[j] + (upperU[j] - lowerU[j]) * (0.05 + 0.9 * z[j]));
+      result.startPoints.push_back(x);
+    }
+  }
+
+  std::vector<double> bestU;
+  double bestCost = std::numeric_limits<double>::infinity();
+  ceres::Solver::Summary bestSummary;
+  bool anySolved = false;
+  std::string lastError;
+  for (std::size_t s = 0; s < result.startPoints.size(); ++s) {
+    std::vector<double> u(p);
+    for (std::size_t j = 0; j < p; ++j) u[j] = tr.toU(j, result.startPoints[s][j]);
+    ceres::Problem::Options problemOptions;
+    problemOptions.cost_function_ownership = ceres::TAKE_OWNERSHIP;
+    ceres::Problem problem(problemOptions);
+    problem.AddResidualBlock(new FitCost(model, rows, p, lastError), nullptr, u.data());
+    for (std::size_t j = 0; j < p; ++j) {
+      problem.SetParameterLowerBound(u.data(), static_cast<int>(j), lowerU[j]);
+      problem.SetParameterUpperBound(u.data(), static_cast<int>(j), upperU[j]);
+    }
+    ceres::Solver::Options options;
+    options.minimizer_type = ceres::TRUST_REGION;
+    options.trust_region_strategy_type = ceres::LEVENBERG_MARQUARDT;
+    options.linear_solver_type = ceres::DENSE_QR;
+    options.max_num_iterations = pb.maxIterations;
+    options.function_tolerance = 1e-12;
+    options.gradient_tolerance = 1e-12;
+    options.parameter_tolerance = 1e-10;
+    options.num_threads = 1;  // the runs of one evaluation are parallel already
+    options.logging_type = ceres::SILENT;
+    options.update_state_every_iteration = true;
+    History history(result.history, u.data(), tr, p, static_cast<int>(s));
+    options.callbacks.push_back(&history);
+    ceres::Solver::Summary summary;
+    ceres::Solve(options, &problem, &summary);
+    if (!pb.quiet)
+      fmt::print(stderr, "fit: start {} of {}: {} after {} iterations, cost {:.6g}\n", s + 1, result.startPoints.size(),
+                 ceres::TerminationTypeToString(summary.termination_type), summary.iterations.size(),
+                 summary.final_cost);
+    const bool solved = summary.termination_type == ceres::CONVERGENCE;
+    result.startCosts.push_back(summary.IsSolutionUsable() ? summary.final_cost : nan);
+    if (summary.initial_cost < 0.0 || !summary.IsSolutionUsable()) {
+      if (s == 0 && result.startPoints.size() == 1)
+        throw SolverError(fmt::format("fit: the model fails at the start values: {}", lastError.empty() ? summary.message : lastError));
+      continue;
+    }
+    // Prefer converged starts; among them the lowest cost.
+    const bool better = (solved && !result.converged) || (solved == result.converged && summary.final_cost < bestCost);
+    if (!anySolved || better) {
+      bestCost = summary.final_cost;
+      bestU = u;
+      bestSummary = summary;
+      result.converged = solved;
+      anySolved = true;
+    }
+  }
+  result.runs = model.runs();
+  if (!anySolved) {
+    result.converged = false;
+    result.message = "no start gave a usable solution: " + lastError;
+    result.values = result.startPoints.front();
+    result.wallSeconds = std::chrono::duration<double>(Clock::now() - wallStart).count();
+    return result;
+  }
+  result.message = bestSummary.message;
+  for (std::size_t j = 0; j < p; ++j) result.values.push_back(tr.toX(j, bestU[j]));
+
+  // Linearisation at the optimum, in the parameters' own units.
+  Linearisation l = model.at(bestU, true);
+  result.runs = model.runs();
+  if (!l.ok) {
+    result.converged = false;
+    result.message = "the model fails near the optimum: " + l.error;
+    result.wallSeconds = std::chrono::duration<double>(Clock::now() - wallStart).count();
+    return result;
+  }
+  result.predictions = l.predictions;
+  result.jacobian.assign(rows * p, 0.0);
+  for (std::size_t i = 0; i < rows; ++i)
+    for (std::size_t j = 0; j < p; ++j) result.jacobian[i * p + j] = l.jacobian[i * p + j] / tr.dxdu(j, bestU[j]);
+  for (std::size_t i = 0; i < n; ++i) {
+    result.residuals.push_back(l.predictions[i] - targets.observed[i]);
+    result.weightedResiduals.push_back(l.residuals[i]);
+    result.ssr += l.residuals[i] * l.residuals[i];
+  }
+  const double dof = static_cast<double>(n - p);
+  result.sigma2 = result.ssr / dof;
+  const double nd = static_cast<double>(n), k = static_cast<double>(p + 1);
+  // Least-squares forms with the error variance estimated (K = p + 1; Burnham & Anderson 2002, sec. 2.2.1).
+  result.aic = nd * std::log(result.ssr / nd) + 2.0 * k;
+  result.bic = nd * std::log(result.ssr / nd) + k * std::log(nd);
+  result.tQuantile = boost::math::quantile(boost::math::complement(boost::math::students_t(dof), 0.025));
+
+  // Covariance by SVD of J; identifiability from the column-scaled J's condition.
+  Eigen::MatrixXd J(rows, p);
+  for (std::size_t i = 0; i < rows; ++i)
+    for (std::size_t j = 0; j < p; ++j) J(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j)) = result.jacobian[i * p + j];
+  Eigen::VectorXd norms = J.colwise().norm();
+  Eigen::MatrixXd scaled = J;
+  for (Eigen::Index j = 0; j < scaled.cols(); ++j)
+    if (norms(j) > 0.0) scaled.col(j) /= norms(j);
+  Eigen::JacobiSVD<Eigen::MatrixXd> svd(scaled, Eigen::ComputeThinV);
+  const Eigen::VectorXd sv = svd.singularValues();
+  for (Eigen::Index i = 0; i < sv.size(); ++i) result.singularValues.push_back(sv(i));
+  const double ratio = sv(0) > 0.0 ? sv(sv.size() - 1) / sv(0) : 0.0;
+  const bool singular = !(ratio > 1e-12);
+  result.covariance.assign(p * p, nan);
+  result.correlation.assign(p * p, nan);
+  for (std::size_t j = 0; j < p; ++j)
+    if (norms(static_cast<Eigen::Index>(j)) == 0.0)
+      result.warnings.push_back(fmt::format("{} has no effect on the residuals (a zero Jacobian column): the data do not "
+                                            "determine it",
+                                            pb.parameters[j].key));
+  if (!singular) {
+    // (J^T J)^-1 = D^-1 V S^-2 V^T D^-1 with D the column norms.
+    const Eigen::MatrixXd& V = svd.matrixV();
+    Eigen::MatrixXd inner = V * sv.cwiseInverse().cwiseAbs2().asDiagonal() * V.transpose();
+    for (std::size_t a = 0; a < p; ++a)
+      for (std::size_t b = 0; b < p; ++b)
+        result.covariance[a * p + b] = result.sigma2 * inner(static_cast<Eigen::Index>(a), static_cast<Eigen::Index>(b)) /
+                                       (norms(static_cast<Eigen::Index>(a)) * norms(static_cast<Eigen::Index>(b)));
+    for (std::size_t a = 0; a < p; ++a)
+      for (std::size_t b = 0; b < p; ++b)
+        result.correlation[a * p + b] =
+            result.covariance[a * p + b] / std::sqrt(result.covariance[a * p + a] * result.covariance[b * p + b]);
+  }
+  if (singular || ratio < 1e-8)
+    result.warnings.push_back(fmt::format("the Jacobian is {} (condition number of the column-scaled Jacobian {:.3g}): "
+                                          "some combination of parameters is not identifiable from these data{}",
+                                          singular ? "singular" : "nearly singular", singular ? INFINITY : 1.0 / ratio,
+                                          singular ? "; no covariance" : "; standard errors are unreliable"));
+  for (std::size_t a = 0; a < p; ++a)
+    for (std::size_t b = a + 1; b < p; ++b) {
+      double r = result.correlation[a * p + b];
+      if (std::abs(r) > 0.95)
+        result.warnings.push_back(fmt::format("{} and {} are strongly correlated (r = {:.4f}): the data constrain a "
+                                              "combination of them, not each separately",
+                                              pb.parameters[a].key, pb.parameters[b].key, r));
+    }
+  for (std::size_t j = 0; j < p; ++j) {
+    double se = std::sqrt(result.covariance[j * p + j]);
+    result.standardErrors.push_back(se);
+    result.lower95.push_back(result.values[j] - result.tQuantile * se);
+    result.upper95.push_back(result.values[j] + result.tQuantile * se);
+    const FitParameter& fp = pb.parameters[j];
+    const double span = fp.upper - fp.lower;
+    if (result.values[j] <= fp.lower + 1e-6 * span || result.values[j] >= fp.upper - 1e-6 * span)
+      result.warnings.push_back(fmt::format("{} ended at a bound ({:g} {}): the interval assumes an interior optimum",
+                                            fp.key, result.values[j], fp.unit));
+  }
+  // RMSE per series.
+  for (std::size_t s = 0; s < pb.data.series.size(); ++s) {
+    double sum = 0.0;
+    std::size_t count = 0;
+    for (std::size_t i = 0; i < n; ++i)
+      if (targets.seriesOf[i] == s) {
+        sum += result.residuals[i] * result.residuals[i];
+        ++count;
+      }
+    result.rmse.push_back(std::sqrt(sum / static_cast<double>(count)));
+  }
+  if (!result.converged && result.message.empty()) result.message = bestSummary.message;
+  result.wallSeconds = std::chrono::duration<double>(Clock::now() - wallStart).count();
+  return result;
+}
+
+// ---- the command ------------------------------------------------------------------------------------
+
+namespace {
+
+void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const FitOptions& o,
+                   const std::vector<std::vector<double>>& modelSeries, const std::vector<double>& modelTimes) {
+  const std::size_t p = pb.parameters.size();
+  w.group("/fit");
+  w.attribute("/fit", "converged", r.converged ? 1.0 : 0.0);
+  w.attribute("/fit", "message", r.message);
+  w.attribute("/fit", "observations", static_cast<double>(r.n));
+  w.attribute("/fit", "parameters", static_cast<double>(p));
+  w.attribute("/fit", "weighted_ssr", r.ssr);
+  w.attribute("/fit", "residual_variance", r.sigma2);
+  w.attribute("/fit", "aic", r.aic);
+  w.attribute("/fit", "bic", r.bic);
+  w.attribute("/fit", "t_quantile", r.tQuantile);
+  w.attribute("/fit", "runs", static_cast<double>(r.runs));
+  w.attribute("/fit", "wall_seconds", r.wallSeconds);
+  w.attribute("/fit", "command_line", o.commandLine);
+  w.attribute("/fit", "data_files", fmt::format("{}", fmt::join(o.data, "; ")));
+  w.attribute("/fit", "warnings", fmt::format("{}", fmt::join(r.warnings, "\n")));
+  w.attribute("/fit", "method",
+              "Ceres Solver, Levenberg-Marquardt with bounds; central finite differences of whole runs; covariance "
+              "s^2 (J^T J)^-1 with s^2 = weighted SSR / (n - p); 95 % intervals value +- t(0.975, n - p) SE");
+  w.attribute("/fit", "caution", caution);
+  std::vector<std::string> names, units;
+  std::vector<double> start, lower, upper, log;
+  for (const FitParameter& fp : pb.parameters) {
+    names.push_back(fp.key);
+    units.push_back(fp.unit.empty() ? "1" : fp.unit);
+    start.push_back(fp.start);
+    lower.push_back(fp.lower);
+    upper.push_back(fp.upper);
+    log.push_back(fp.log ? 1.0 : 0.0);
+  }
+  w.strings("/fit/parameters/name", names);
+  w.strings("/fit/parameters/units", units);
+  const std::string perParameter = "see /fit/parameters/units";
+  w.doubles("/fit/parameters/value", r.values, {}, perParameter);
+  if (!r.standardErrors.empty()) {
+    w.doubles("/fit/parameters/standard_error", r.standardErrors, {}, perParameter);
+    w.doubles("/fit/parameters/lower_95", r.lower95, {}, perParameter);
+    w.doubles("/fit/parameters/upper_95", r.upper95, {}, perParameter);
+    w.doubles("/fit/covariance", r.covariance, {p, p}, "product of the two parameters' units");
+    w.doubles("/fit/correlation", r.correlation, {p, p}, "1");
+    w.doubles("/fit/jacobian", r.jacobian, {r.jacobian.size() / p, p}, "1 per parameter unit (weighted residuals)");
+    w.doubles("/fit/singular_values", r.singularValues, {}, "1 (column-scaled Jacobian)");
+  }
+  w.doubles("/fit/parameters/start", start, {}, perParameter);
+  w.doubles("/fit/parameters/lower_bound", lower, {}, perParameter);
+  w.doubles("/fit/parameters/upper_bound", upper, {}, perParameter);
+  w.doubles("/fit/parameters/log_scale", log, {}, "1");
+  // Iteration history.
+  std::vector<double> iteration, cost, gradient, stepNorm, ok, startIndex, values;
+  for (const FitIteration& it : r.history) {
+    iteration.push_back(it.iteration);
+    cost.push_back(it.cost);
+    gradient.push_back(it.gradientNorm);
+    stepNorm.push_back(it.stepNorm);
+    ok.push_back(it.successful ? 1.0 : 0.0);
+    startIndex.push_back(it.start);
+    values.insert(values.end(), it.values.begin(), it.values.end());
+  }
+  w.doubles("/fit/history/iteration", iteration, {}, "1");
+  w.doubles("/fit/history/cost", cost, {}, "1 (half the weighted sum of squares)");
+  w.doubles("/fit/history/gradient_max_norm", gradient, {}, "1 (scaled variables)");
+  w.doubles("/fit/history/step_norm", stepNorm, {}, "1 (scaled variables)");
+  w.doubles("/fit/history/successful", ok, {}, "1");
+  w.doubles("/fit/history/start", startIndex, {}, "1");
+  w.doubles("/fit/history/values", values, {r.history.size(), p}, perParameter);
+  std::vector<double> startValues;
+  for (const auto& s : r.startPoints) startValues.insert(startValues.end(), s.begin(), s.end());
+  w.doubles("/fit/starts/values", startValues, {r.startPoints.size(), p}, perParameter);
+  w.doubles("/fit/starts/cost", r.startCosts, {}, "1");
+  // Series.
+  std::size_t offset = 0;
+  std::map<std::string, int> seen;
+  std::vector<std::string> seriesNames;
+  for (std::size_t s = 0; s < pb.data.series.size(); ++s) {
+    const ObservedSeries& os = pb.data.series[s];
+    std::string name = os.quantity.name;
+    if (int k = seen[name]++; k > 0) name += fmt::format("#{}", k + 1);
+    seriesNames.push_back(name);
+    const std::string g = "/fit/series/" + name;
+    const std::size_t m = os.values.size();
+    auto slice = [&](const std::vector<double>& v) {
+      return v.size() >= offset + m ? std::vector<double>(v.begin() + static_cast<std::ptrdiff_t>(offset),
+                                                          v.begin() + static_cast<std::ptrdiff_t>(offset + m))
+                                    : std::vector<double>();
+    };
+    w.doubles(g + "/time", os.times, {}, "s");
+    w.doubles(g + "/observed", os.values, {}, os.unit());
+    w.doubles(g + "/sd", os.sd, {}, os.unit());
+    if (!r.predictions.empty()) {
+      w.doubles(g + "/predicted", slice(r.predictions), {}, os.unit());
+      w.doubles(g + "/residual", slice(r.residuals), {}, os.unit());
+      w.attribute(g, "rmse", r.rmse[s]);
+    }
+    if (s < modelSeries.size()) {
+      w.doubles(g + "/model_time", modelTimes, {}, "s");
+      w.doubles(g + "/model", modelSeries[s], {}, os.unit());
+    }
+    w.attribute(g, "file", os.file);
+    w.attribute(g, "column", static_cast<double>(os.column));
+    w.attribute(g, "file_unit", os.fileUnit);
+    w.attribute(g, "units", os.unit());
+    offset += m;
+  }
+  w.strings("/fit/series_names", seriesNames);
+}
+
+std::string stemOf(const std::string& output) {
+  std::filesystem::path path(output);
+  return (path.parent_path() / path.stem()).string();
+}
+
+void printReport(const FitProblem& pb, const FitResult& r) {
+  const std::size_t p = pb.parameters.size();
+  fmt::print("Fit: {} observations in {} series, {} parameters; {} ({} model runs, {:.3g} s)\n", r.n,
+             pb.data.series.size(), p, r.converged ? "converged" : "NOT converged", r.runs, r.wallSeconds);
+  fmt::print("  {}\n", r.message);
+  if (r.standardErrors.empty()) return;
+  fmt::print("{:<44} {:>14} {:>12} {:>30}  {}\n", "parameter", "value", "std. error", "95 % interval", "unit");
+  for (std::size_t j = 0; j < p; ++j)
+    fmt::print("{:<44} {:>14.8g} {:>12.4g} {:>14.8g} .. {:<14.8g}  {}\n", pb.parameters[j].key, r.values[j],
+               r.standardErrors[j], r.lower95[j], r.upper95[j], pb.parameters[j].unit.empty() ? "1" : pb.parameters[j].unit);
+  if (p > 1) {
+    fmt::print("Correlation matrix:\n");
+    for (std::size_t a = 0; a < p; ++a) {
+      std::string line = fmt::format("  {:<3}", a + 1);
+      for (std::size_t b = 0; b < p; ++b) line += fmt::format(" {:>7.3f}", r.correlation[a * p + b]);
+      fmt::print("{}\n", line);
+    }
+  }
+  fmt::print("{:<44} {:>12} {:>8}\n", "series", "RMSE", "n");
+  for (std::size_t s = 0; s < pb.data.series.size(); ++s)
+    fmt::print("{:<44} {:>12.4g} {:>8}  {}\n", pb.data.series[s].quantity.name, r.rmse[s],
+               pb.data.series[s].values.size(), pb.data.series[s].unit());
+  fmt::print("Weighted SSR {:.6g}, residual variance factor s^2 = {:.4g} (n - p = {}); AIC {:.4f}, BIC {:.4f}\n", r.ssr,
+             r.sigma2, r.n - p, r.aic, r.bic);
+}
+
+}  // namespace
+
+int runFitCommand(const FitOptions& o) {
+  FitProblem pb;
+  pb.casePath = o.casePath;
+  {
+    std::ifstream in(o.casePath);
+    if (!in) throw CaseError(fmt::format("{}: cannot open the case file", o.casePath));
+    std::stringstream ss;
+    ss << in.rdbuf();
+    pb.caseText = ss.str();
+  }
+  pb.overrides = o.overrides;
+  if (o.rtol > 0.0) {
+    pb.overrides.push_back(fmt::format("run.rtol={:g}", o.rtol));
+    pb.overrides.push_back(fmt::format("run.atol={:g} K", o.rtol));
+  }
+  const Case base = loadCaseFromString(pb.caseText, pb.casePath, pb.overrides);
+  if (o.data.empty()) throw CaseError("fit: no observed data; give --data FILE.csv");
+  ObservedOptions readOptions;
+  readOptions.startTime = o.dataStart;
+  for (const std::string& file : o.data) {
+    ObservedData d = readObservedCsv(file, readOptions);
+    for (ObservedSeries& s : d.series) pb.data.series.push_back(std::move(s));
+  }
+  {
+    Body body(base);
+    checkObserved(pb.data, body);
+  }
+  pb.parameters = parseFitParameters(o.free, o.starts, o.priors, pb.caseText, pb.casePath, pb.overrides);
+  pb.jobs = o.jobs;
+  pb.step = o.step;
+  pb.maxIterations = o.maxIterations;
+  pb.starts = std::max(1, o.multiStart);
+  pb.quiet = o.quiet;
+  if (!(pb.step > 0.0 && pb.step < 0.1)) throw CaseError(fmt::format("--step {}: must be between 0 and 0.1", pb.step));
+  bool mixed = false;
+  for (const ObservedSeries& s : pb.data.series)
+    mixed = mixed || (!s.sdGiven && s.quantity.temperature != pb.data.series.front().quantity.temperature);
+  if (mixed)
+    fmt::print(stderr, "warning: series in different units (degC and W) without standard deviations (NAME.sd columns) "
+                       "are weighted 1 per unit; give sd columns to weight them properly\n");
+
+  const std::string output = o.output.empty() ? std::filesystem::path(o.casePath).stem().string() + "_fit.h5" : o.output;
+  if (auto dir = std::filesystem::path(output).parent_path(); !dir.empty() && !std::filesystem::is_directory(dir))
+    throw CaseError(fmt::format("-o {}: the folder {} does not exist", output, dir.string()));
+
+  FitResult r = runFit(pb);
+  printReport(pb, r);
+  for (const std::string& w : r.warnings) fmt::print(stderr, "warning: {}\n", w);
+
+  if (!r.converged) {
+    const std::string partial = stemOf(output) + ".incomplete.h5";
+    {
+      H5Writer w(partial + ".tmp", false);
+      w.attribute("/", "complete", 0.0);
+      w.attribute("/", "caution", caution);
+      writeFitGroup(w, pb, r, o, {}, {});
+    }
+    std::filesystem::rename(partial + ".tmp", partial);
+    fmt::print(stderr, "error: the fit did not converge: {}\nIteration history kept in {} (marked incomplete).\n",
+               r.message, partial);
+    return 3;
+  }
+
+  // The fitted run with its full results, then /fit, then the case file that reproduces it.
+  std::vector<std::string> fitted = pb.overrides;
+  for (std::size_t j = 0; j < r.values.size(); ++j) fitted.push_back(parameterOverride(pb.parameters[j], r.values[j]));
+  const Case c = loadCaseFromString(pb.caseText, pb.casePath, fitted);
+  Body body(c);
+  ObservationSampler sampler(pb.data, body);
+  const std::string running = output + ".fitting.h5";
+  RunOptions options;
+  options.output = running;
+  options.commandLine = o.commandLine;
+  options.quiet = true;
+  options.observer = [&](double t, std::span<const double> y, const RunSummary& s) { sampler.observe(t, y, s); };
+  RunSummary summary = runTransient(body, options);
+  if (!summary.complete) {
+    std::error_code ec;
+    std::filesystem::remove(summary.outputPath, ec);
+    fmt::print(stderr, "error: the fitted run failed: {}\n", summary.failure);
+    return 3;
+  }
+  std::vector<std::vector<double>> modelSeries;
+  for (std::size_t s = 0; s < pb.data.series.size(); ++s) modelSeries.push_back(sampler.outputSeries(s));
+  {
+    H5Writer w(running, true);
+    writeFitGroup(w, pb, r, o, modelSeries, sampler.outputTimes());
+  }
+  std::filesystem::rename(running, output);
+
+  const std::string fittedCase = stemOf(output) + "_fitted.toml";
+  {
+    std::ofstream out(fittedCase + ".tmp");
+    out << "# Fitted case written by `" << o.commandLine << "`\n";
+    out << "# " << caution << "\n# The fitted values (also in " << output << ", /fit):\n";
+    for (std::size_t j = 0; j < r.values.size(); ++j)
+      out << fmt::format("#   {} = {:.10g} {} (SE {:.4g}, 95 % interval {:.6g} .. {:.6g})\n", pb.parameters[j].key,
+                         r.values[j], pb.parameters[j].unit, r.standardErrors[j], r.lower95[j], r.upper95[j]);
+    out << "# Below: the fully resolved case with these values (SI units); `thermorph run` on this file reproduces\n"
+           "# the fitted run.\n\n";
+    out << resolvedCaseToml(c);
+  }
+  std::filesystem::rename(fittedCase + ".tmp", fittedCase);
+  fmt::print("Results: {} (fitted run and /fit); fitted case: {}\n", output, fittedCase);
+  fmt::print("Caution: {}\n", caution);
+  return 0;
+}
+
+}  // namespace thermorph

@@ -1,0 +1,153 @@
+#include "drivers/h5_append.hpp"
+
+#include <hdf5.h>
+
+#include <stdexcept>
+
+#include <fmt/format.h>
+
+namespace thermorph {
+namespace {
+
+hid_t stringType() {
+  hid_t type = H5Tcopy(H5T_C_S1);
+  H5Tset_size(type, H5T_VARIABLE);
+  H5Tset_cset(type, H5T_CSET_UTF8);
+  return type;
+}
+
+//! Link-creation property list that creates missing intermediate groups.
+hid_t intermediate() {
+  hid_t plist = H5Pcreate(H5P_LINK_CREATE);
+  H5Pset_create_intermediate_group(plist, 1);
+  return plist;
+}
+
+void check(herr_t status, const std::string& what) {
+  if (status < 0) throw std::runtime_error("HDF5: cannot " + what);
+}
+
+}  // namespace
+
+H5Writer::H5Writer(const std::string& path, bool append) {
+  file_ = append ? H5Fopen(path.c_str(), H5F_ACC_RDWR, H5P_DEFAULT)
+                 : H5Fcreate(path.c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, H5P_DEFAULT);
+  if (file_ < 0) throw std::runtime_error(fmt::format("HDF5: cannot {} {}", append ? "open" : "create", path));
+}
+
+H5Writer::~H5Writer() { close(); }
+
+void H5Writer::close() {
+  if (file_ >= 0) H5Fclose(file_);
+  file_ = -1;
+}
+
+void H5Writer::group(const std::string& path) {
+  if (H5Lexists(file_, path.c_str(), H5P_DEFAULT) > 0) return;
+  hid_t plist = intermediate();
+  hid_t g = H5Gcreate2(file_, path.c_str(), plist, H5P_DEFAULT, H5P_DEFAULT);
+  H5Pclose(plist);
+  if (g < 0) throw std::runtime_error("HDF5: cannot create group " + path);
+  H5Gclose(g);
+}
+
+void H5Writer::doubles(const std::string& path, const std::vector<double>& values, std::vector<std::uint64_t> shape,
+                       const std::string& units) {
+  if (shape.empty()) shape = {values.size()};
+  std::vector<hsize_t> dims(shape.begin(), shape.end());
+  hid_t space = H5Screate_simple(static_cast<int>(dims.size()), dims.data(), nullptr);
+  hid_t plist = intermediate();
+  hid_t ds = H5Dcreate2(file_, path.c_str(), H5T_NATIVE_DOUBLE, space, plist, H5P_DEFAULT, H5P_DEFAULT);
+  H5Pclose(plist);
+  if (ds < 0) throw std::runtime_error("HDF5: cannot create " + path);
+  if (!values.empty()) check(H5Dwrite(ds, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, values.data()), "write " + path);
+  H5Dclose(ds);
+  H5Sclose(space);
+  attribute(path, "units", units);
+}
+
+void H5Writer::strings(const std::string& path, const std::vector<std::string>& values) {
+  std::vector<const char*> pointers;
+  for (const std::string& s : values) pointers.push_back(s.c_str());
+  hsize_t n = values.size();
+  hid_t type = stringType();
+  hid_t space = H5Screate_simple(1, &n, nullptr);
+  hid_t plist = intermediate();
+  hid_t ds = H5Dcreate2(file_, path.c_str(), type, space, plist, H5P_DEFAULT, H5P_DEFAULT);
+  H5Pclose(plist);
+  if (ds < 0) throw std::runtime_error("HDF5: cannot create " + path);
+  if (n) H5Dwrite(ds, type, H5S_ALL, H5S_ALL, H5P_DEFAULT, pointers.data());
+  H5Dclose(ds);
+  H5Sclose(space);
+  H5Tclose(type);
+}
+
+void H5Writer::attribute(const std::string& object, const std::string& name, const std::string& value) {
+  hid_t type = stringType();
+  hid_t space = H5Screate(H5S_SCALAR);
+  if (H5Aexists_by_name(file_, object.c_str(), name.c_str(), H5P_DEFAULT) > 0)
+    H5Adelete_by_name(file_, object.c_str(), name.c_str(), H5P_DEFAULT);
+  hid_t a = H5Acreate_by_name(file_, object.c_str(), name.c_str(), type, space, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+  const char* p = value.c_str();
+  if (a >= 0) {
+    H5Awrite(a, type, &p);
+    H5Aclose(a);
+  }
+  H5Sclose(space);
+  H5Tclose(type);
+  if (a < 0) throw std::runtime_error("HDF5: cannot write attribute " + name + " of " + object);
+}
+
+void H5Writer::attribute(const std::string& object, const std::string& name, double value) {
+  hid_t space = H5Screate(H5S_SCALAR);
+  if (H5Aexists_by_name(file_, object.c_str(), name.c_str(), H5P_DEFAULT) > 0)
+    H5Adelete_by_name(file_, object.c_str(), name.c_str(), H5P_DEFAULT);
+  hid_t a = H5Acreate_by_name(file_, object.c_str(), name.c_str(), H5T_NATIVE_DOUBLE, space, H5P_DEFAULT, H5P_DEFAULT,
+                              H5P_DEFAULT);
+  if (a >= 0) {
+    H5Awrite(a, H5T_NATIVE_DOUBLE, &value);
+    H5Aclose(a);
+  }
+  H5Sclose(space);
+  if (a < 0) throw std::runtime_error("HDF5: cannot write attribute " + name + " of " + object);
+}
+
+std::vector<double> h5ReadDoubles(const std::string& file, const std::string& path) {
+  std::vector<double> out;
+  hid_t f = H5Fopen(file.c_str(), H5F_ACC_RDONLY, H5P_DEFAULT);
+  if (f < 0) throw std::runtime_error("HDF5: cannot open " + file);
+  if (H5Lexists(f, path.c_str(), H5P_DEFAULT) > 0) {
+    hid_t ds = H5Dopen2(f, path.c_str(), H5P_DEFAULT);
+    hid_t space = H5Dget_space(ds);
+    hssize_t n = H5Sget_simple_extent_npoints(space);
+    out.resize(static_cast<std::size_t>(n));
+    if (n > 0) H5Dread(ds, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, out.data());
+    H5Sclose(space);
+    H5Dclose(ds);
+  }
+  H5Fclose(f);
+  return out;
+}
+
+std::vector<std::string> h5ReadStrings(const std::string& file, const std::string& path) {
+  std::vector<std::string> out;
+  hid_t f = H5Fopen(file.c_str(), H5F_ACC_RDONLY, H5P_DEFAULT);
+  if (f < 0) throw std::runtime_error("HDF5: cannot open " + file);
+  if (H5Lexists(f, path.c_str(), H5P_DEFAULT) > 0) {
+    hid_t ds = H5Dopen2(f, path.c_str(), H5P_DEFAULT);
+    hid_t space = H5Dget_space(ds);
+    hssize_t n = H5Sget_simple_extent_npoints(space);
+    std::vector<char*> buffer(static_cast<std::size_t>(n), nullptr);
+    hid_t type = stringType();
+    if (n > 0) H5Dread(ds, type, H5S_ALL, H5S_ALL, H5P_DEFAULT, buffer.data());
+    for (char* s : buffer) out.emplace_back(s ? s : "");
+    if (n > 0) H5Dvlen_reclaim(type, space, H5P_DEFAULT, buffer.data());
+    H5Tclose(type);
+    H5Sclose(space);
+    H5Dclose(ds);
+  }
+  H5Fclose(f);
+  return out;
+}
+
+}  // namespace thermorph

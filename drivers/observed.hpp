@@ -1,0 +1,95 @@
+#pragma once
+//! Observed data (logger series) for fits: a CSV file whose columns map to model outputs, and the sampler that
+//! reads the same quantities from a run at the observation times.
+#include <cstddef>
+#include <optional>
+#include <span>
+#include <string>
+#include <vector>
+
+#include "models/body.hpp"
+#include "drivers/simulation.hpp"
+
+namespace thermorph {
+
+//! A model output an observed column is compared with.
+struct ObservedQuantity {
+  enum class Kind { Core, Blood, MeanSkin, MetabolicRate, BodyFlow, SegmentMean, SegmentFlow, SegmentLocal };
+  Kind kind = Kind::Core;
+  std::string name;               //!< as written in the header, e.g. "segments.ears.heat_flow.convection"
+  std::string segment;            //!< segment name (segment kinds)
+  std::string channel;            //!< budget channel, or "storage" (flow kinds)
+  std::string layer;              //!< tissue name, layer index or "coat" (SegmentLocal)
+  double position = 0.5;          //!< along the segment's length, 0-1 (SegmentLocal)
+  bool temperature = true;        //!< degC; else a heat flow in W
+};
+
+//! One observed column: times [s] and values in the model's unit (degC or W); NaN where missing.
+struct ObservedSeries {
+  std::string file;
+  int column = 0;                 //!< 1-based column in the file
+  ObservedQuantity quantity;
+  std::string fileUnit;           //!< unit written in the header
+  std::vector<double> times;      //!< [s] since the start of the run, only rows with a value
+  std::vector<double> values;     //!< [degC] or [W]
+  std::vector<double> sd;         //!< measurement standard deviation in the same unit (1 when not given)
+  bool sdGiven = false;
+  std::string unit() const { return quantity.temperature ? "degC" : "W"; }
+};
+
+struct ObservedData {
+  std::vector<ObservedSeries> series;
+  std::size_t observations() const;
+};
+
+//! Options of the reader.
+struct ObservedOptions {
+  //! ISO 8601 date-time of t = 0 of the run ("2026-06-01T06:00"), needed for a `datetime` time column.
+  std::string startTime;
+};
+
+//! Parse a model-output name ("body.core_temperature", "segments.leg.temperature.muscle@0.5", ...). Throws
+//! CaseError naming `where` for an unknown output.
+ObservedQuantity parseObservedQuantity(const std::string& name, const std::string& where);
+
+//! Read one observed-data CSV file. Format (like a weather file): `#` comment lines; a header whose first
+//! column is `time [UNIT]` (any time unit) or `datetime` (ISO 8601, with ObservedOptions::startTime); then one
+//! column per output, `NAME [UNIT]`, optionally followed anywhere by `NAME.sd [UNIT]` (per-row standard
+//! deviation; a blank sd cell uses the column's last given one). Blank, `NA` or `nan` cells are missing.
+//! Throws CaseError (exit 2) naming file, line and column: unknown output, unit of the wrong kind, bad
+//! number, times not increasing, a column with no value.
+ObservedData readObservedCsv(const std::string& path, const ObservedOptions& options = {});
+
+//! Check the series against a built body: segments, channels and layers exist, every time lies within the run
+//! [0, run.duration]. Throws CaseError naming the file, column and key.
+void checkObserved(const ObservedData& data, const Body& body);
+
+//! Samples the observed quantities at every output of a run and interpolates them (linearly between outputs;
+//! exact when an observation falls on an output time) to the observation times.
+class ObservationSampler {
+ public:
+  ObservationSampler(const ObservedData& data, const Body& body);
+  //! The run observer.
+  void observe(double time, std::span<const double> temperatures, const RunSummary& summary);
+  //! Model values at every observation, series after series, in ObservedSeries order.
+  std::vector<double> predictions() const;
+  //! Model values of series `s` at every output (for the figure), and the output times.
+  const std::vector<double>& outputTimes() const { return times_; }
+  std::vector<double> outputSeries(std::size_t s) const;
+
+ private:
+  double value(std::size_t s, std::span<const double> y, const RunSummary& summary) const;
+  const ObservedData& data_;
+  const Body& body_;
+  struct Binding {
+    std::size_t segment = 0;
+    std::size_t channel = 0;      // channels.size(): storage
+    std::vector<std::size_t> nodes;
+    std::vector<double> weights;
+  };
+  std::vector<Binding> bindings_;
+  std::vector<double> times_;
+  std::vector<std::vector<double>> samples_;  // [output][series]
+};
+
+}  // namespace thermorph
