@@ -12,6 +12,7 @@
 #include "drivers/simulation.hpp"
 #include "cli/sweep_cli.hpp"
 #include "cli/fit_cli.hpp"
+#include "cli/sensitivity_cli.hpp"
 
 namespace {
 
@@ -113,6 +114,10 @@ int main(int argc, char** argv) {
   // ---- end sweep ----
   FitOptions fitOptions;
   CLI::App* fit = addFitSubcommand(app, fitOptions);  // cli/fit_cli.cpp
+  SensitivityOptions sensitivityOptions;
+  CLI::App* sensitivity = addSensitivitySubcommand(app, sensitivityOptions);  // cli/sensitivity_cli.cpp
+  UncertaintyOptions uncertaintyOptions;
+  CLI::App* uncertainty = addUncertaintySubcommand(app, uncertaintyOptions);  // cli/sensitivity_cli.cpp
 
   try {
     app.parse(argc, argv);
@@ -136,6 +141,8 @@ int main(int argc, char** argv) {
   if (sweep->parsed()) return runSweepCli(sweepOptions, commandLine);
   // ---- end sweep ----
   if (fit->parsed()) return runFitCli(fitOptions, commandLine);
+  if (sensitivity->parsed()) return runSensitivityCli(sensitivityOptions, commandLine);
+  if (uncertainty->parsed()) return runUncertaintyCli(uncertaintyOptions, commandLine);
   try {
     Case c = loadCase(casePath, overrides);
     Body body(c);

@@ -324,7 +324,8 @@ std::string parameterOverride(const FitParameter& p, double value) {
 
 std::vector<FitParameter> parseFitParameters(const std::vector<std::string>& free, const std::vector<std::string>& starts,
                                              const std::vector<std::string>& priors, const std::string& caseText,
-                                             const std::string& casePath, const std::vector<std::string>& overrides) {
+                                             const std::string& casePath, const std::vector<std::string>& overrides,
+                                             bool boundsOptional) {
   const Case base = loadCaseFromString(caseText, casePath, overrides);
   if (free.empty()) throw CaseError("fit: no free parameter; give at least one --free KEY=LOWER:UPPER");
   std::map<std::string, std::string> startOf, priorOf;
@@ -338,7 +339,10 @@ std::vector<FitParameter> parseFitParameters(const std::vector<std::string>& fre
   }
   std::vector<FitParameter> out;
   for (const std::string& f : free) {
-    auto [key, spec] = keyValue(f, "--free", "\"segments.trunk.coat.thickness=0.5 cm:3 cm\"");
+    // Without bounds (local sensitivities): KEY alone, unbounded, in the schema's unit.
+    const bool unbounded = boundsOptional && f.find('=') == std::string::npos;
+    auto [key, spec] = unbounded ? std::pair<std::string, std::string>(trim(f), "")
+                                 : keyValue(f, "--free", "\"segments.trunk.coat.thickness=0.5 cm:3 cm\"");
     const std::string what = fmt::format("--free {}", f);
     const Param* param = schemaEntry(key);
     if (!param)
@@ -364,16 +368,19 @@ std::vector<FitParameter> parseFitParameters(const std::vector<std::string>& fre
     std::vector<std::string> bounds = split(spec, ':');
     FitParameter p;
     p.key = key;
+    if (unbounded) bounds = {"", ""};
     if (bounds.size() == 3 && bounds[2] == "log") {
       p.log = true;
       bounds.pop_back();
     }
     if (bounds.size() != 2)
       throw CaseError(fmt::format("{}: expected KEY=LOWER:UPPER or KEY=LOWER:UPPER:log, e.g. \"{}=0.5 cm:3 cm\"", what, key));
-    ValueWithUnit lo, hi;
+    ValueWithUnit lo{-std::numeric_limits<double>::infinity(), ""}, hi{std::numeric_limits<double>::infinity(), ""};
     try {
-      lo = splitValueUnit(bounds[0]);
-      hi = splitValueUnit(bounds[1]);
+      if (!unbounded) {
+        lo = splitValueUnit(bounds[0]);
+        hi = splitValueUnit(bounds[1]);
+      }
     } catch (const UnitError& e) {
       throw CaseError(fmt::format("{}: {}", what, e.what()));
     }
@@ -439,6 +446,7 @@ std::vector<FitParameter> parseFitParameters(const std::vector<std::string>& fre
     }
     // The case loader checks both bounds (units and ranges of the schema).
     for (double v : {p.lower, p.upper, p.start}) {
+      if (!std::isfinite(v)) continue;
       std::vector<std::string> o = overrides;
       o.push_back(parameterOverride(p, v));
       try {
@@ -661,9 +669,15 @@ FitResult runFit(const FitProblem& pb) {
   for (std::size_t j = 0; j < p; ++j) {
     double se = std::sqrt(result.covariance[j * p + j]);
     result.standardErrors.push_back(se);
-    result.lower95.push_back(result.values[j] - result.tQuantile * se);
-    result.upper95.push_back(result.values[j] + result.tQuantile * se);
     const FitParameter& fp = pb.parameters[j];
+    if (fp.log) {
+      // On a log scale the interval is symmetric in ln(value): SE(ln x) = SE(x) / x (delta method).
+      result.lower95.push_back(result.values[j] * std::exp(-result.tQuantile * se / result.values[j]));
+      result.upper95.push_back(result.values[j] * std::exp(result.tQuantile * se / result.values[j]));
+    } else {
+      result.lower95.push_back(result.values[j] - result.tQuantile * se);
+      result.upper95.push_back(result.values[j] + result.tQuantile * se);
+    }
     const double span = fp.upper - fp.lower;
     if (result.values[j] <= fp.lower + 1e-6 * span || result.values[j] >= fp.upper - 1e-6 * span)
       result.warnings.push_back(fmt::format("{} ended at a bound ({:g} {}): the interval assumes an interior optimum",
@@ -709,7 +723,8 @@ void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const 
   w.attribute("/fit", "warnings", fmt::format("{}", fmt::join(r.warnings, "\n")));
   w.attribute("/fit", "method",
               "Ceres Solver, Levenberg-Marquardt with bounds; central finite differences of whole runs; covariance "
-              "s^2 (J^T J)^-1 with s^2 = weighted SSR / (n - p); 95 % intervals value +- t(0.975, n - p) SE");
+              "s^2 (J^T J)^-1 with s^2 = weighted SSR / (n - p); 95 % intervals value +- t(0.975, n - p) SE (log-scale "
+              "parameters: value x/ exp(t SE / value))");
   w.attribute("/fit", "caution", caution);
   std::vector<std::string> names, units;
   std::vector<double> start, lower, upper, log;

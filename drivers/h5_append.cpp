@@ -151,3 +151,53 @@ std::vector<std::string> h5ReadStrings(const std::string& file, const std::strin
 }
 
 }  // namespace thermorph
+
+namespace thermorph {
+
+namespace {
+herr_t collectName(hid_t, const char* name, const H5L_info_t*, void* data) {
+  static_cast<std::vector<std::string>*>(data)->emplace_back(name);
+  return 0;
+}
+}  // namespace
+
+std::vector<std::string> h5List(const std::string& file, const std::string& group) {
+  std::vector<std::string> out;
+  hid_t f = H5Fopen(file.c_str(), H5F_ACC_RDONLY, H5P_DEFAULT);
+  if (f < 0) throw std::runtime_error("HDF5: cannot open " + file);
+  if (H5Lexists(f, group.c_str(), H5P_DEFAULT) > 0) {
+    hid_t g = H5Gopen2(f, group.c_str(), H5P_DEFAULT);
+    H5Literate(g, H5_INDEX_NAME, H5_ITER_INC, nullptr, collectName, &out);
+    H5Gclose(g);
+  }
+  H5Fclose(f);
+  return out;
+}
+
+std::string h5ReadStringAttribute(const std::string& file, const std::string& object, const std::string& name) {
+  std::string out;
+  hid_t f = H5Fopen(file.c_str(), H5F_ACC_RDONLY, H5P_DEFAULT);
+  if (f < 0) throw std::runtime_error("HDF5: cannot open " + file);
+  if (H5Aexists_by_name(f, object.c_str(), name.c_str(), H5P_DEFAULT) > 0) {
+    hid_t a = H5Aopen_by_name(f, object.c_str(), name.c_str(), H5P_DEFAULT, H5P_DEFAULT);
+    hid_t type = H5Aget_type(a);
+    if (H5Tis_variable_str(type) > 0) {
+      char* s = nullptr;
+      hid_t mem = stringType();
+      H5Aread(a, mem, &s);
+      if (s) out = s;
+      H5free_memory(s);
+      H5Tclose(mem);
+    } else {
+      std::vector<char> buffer(H5Tget_size(type) + 1, '\0');
+      H5Aread(a, type, buffer.data());
+      out = buffer.data();
+    }
+    H5Tclose(type);
+    H5Aclose(a);
+  }
+  H5Fclose(f);
+  return out;
+}
+
+}  // namespace thermorph

@@ -33,3 +33,10 @@ std::vector<double> h5ReadDoubles(const std::string& file, const std::string& pa
 std::vector<std::string> h5ReadStrings(const std::string& file, const std::string& path);
 
 }  // namespace thermorph
+
+namespace thermorph {
+//! Names of the members of a group (empty when missing), in HDF5's name order.
+std::vector<std::string> h5List(const std::string& file, const std::string& group);
+//! A string attribute ("" when missing).
+std::string h5ReadStringAttribute(const std::string& file, const std::string& object, const std::string& name);
+}  // namespace thermorph

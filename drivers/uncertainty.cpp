@@ -1,0 +1,329 @@
+//! `thermorph uncertainty`: sampled parameters through whole runs, quantiles of metrics and bands of series.
+#include "drivers/uncertainty.hpp"
+
+#include <algorithm>
+#include <atomic>
+#include <chrono>
+#include <cmath>
+#include <filesystem>
+#include <fstream>
+#include <limits>
+#include <sstream>
+#include <thread>
+
+#include <Eigen/Dense>
+#include <boost/math/distributions/normal.hpp>
+#include <fmt/format.h>
+
+#include "models/case_schema.hpp"
+#include "models/units.hpp"
+#include "drivers/h5_append.hpp"
+#include "drivers/observed.hpp"
+#include "drivers/sampling.hpp"
+#include "drivers/simulation.hpp"
+#include "drivers/sweep_metrics.hpp"
+
+namespace thermorph {
+namespace {
+
+constexpr double nan = std::numeric_limits<double>::quiet_NaN();
+const char* caution =
+    "Model estimates for research; not veterinary or medical advice. Follow local regulations, animal-welfare "
+    "rules and licensed veterinary or medical practice.";
+constexpr double probabilities[] = {0.05, 0.25, 0.5, 0.75, 0.95};
+
+std::string trim(const std::string& s) {
+  std::size_t b = s.find_first_not_of(" \t\r\n"), e = s.find_last_not_of(" \t\r\n");
+  return b == std::string::npos ? std::string() : s.substr(b, e - b + 1);
+}
+
+//! Quantile of the finite values (linear between order statistics; Hyndman & Fan 1996, type 7).
+double quantileOf(std::vector<double> v, double q) {
+  v.erase(std::remove_if(v.begin(), v.end(), [](double x) { return !std::isfinite(x); }), v.end());
+  if (v.empty()) return nan;
+  std::sort(v.begin(), v.end());
+  const double pos = q * static_cast<double>(v.size() - 1);
+  const std::size_t lo = static_cast<std::size_t>(std::floor(pos));
+  const std::size_t hi = std::min(lo + 1, v.size() - 1);
+  return v[lo] + (v[hi] - v[lo]) * (pos - static_cast<double>(lo));
+}
+
+struct Sampled {
+  std::string key, unit;
+};
+
+struct RunOutput {
+  bool ok = false;
+  std::string error;
+  std::vector<double> metrics;
+  std::vector<std::vector<double>> series;  // [series][output]
+  std::vector<double> times;
+};
+
+}  // namespace
+
+int runUncertaintyCommand(const UncertaintyOptions& o) {
+  std::string caseText;
+  {
+    std::ifstream in(o.casePath);
+    if (!in) throw CaseError(fmt::format("{}: cannot open the case file", o.casePath));
+    std::stringstream ss;
+    ss << in.rdbuf();
+    caseText = ss.str();
+  }
+  const Case base = loadCaseFromString(caseText, o.casePath, o.overrides);
+  if (o.design != "lhs" && o.design != "sobol") throw CaseError(fmt::format("--design {}: expected lhs or sobol", o.design));
+  if (o.samples < 2 || o.samples > 1'000'000) throw CaseError(fmt::format("--samples {}: expected 2 to 1000000", o.samples));
+  if (o.params.empty() == o.fromFit.empty())
+    throw CaseError("uncertainty: give either --param KEY=DIST (one or more) or --from-fit FIT.h5");
+
+  // Parameters and the map from the unit cube.
+  std::vector<Sampled> params;
+  std::vector<Distribution> distributions;
+  Eigen::VectorXd mean;
+  Eigen::MatrixXd cholesky;
+  if (!o.fromFit.empty()) {
+    if (!std::filesystem::exists(o.fromFit)) throw CaseError(fmt::format("--from-fit {}: no such file", o.fromFit));
+    std::vector<std::string> names = h5ReadStrings(o.fromFit, "/fit/parameters/name");
+    std::vector<std::string> units = h5ReadStrings(o.fromFit, "/fit/parameters/units");
+    std::vector<double> values = h5ReadDoubles(o.fromFit, "/fit/parameters/value");
+    std::vector<double> cov = h5ReadDoubles(o.fromFit, "/fit/covariance");
+    const std::size_t k = names.size();
+    if (k == 0 || cov.size() != k * k)
+      throw CaseError(fmt::format("--from-fit {}: no /fit group with a covariance (a converged fit's results)", o.fromFit));
+    mean = Eigen::VectorXd(static_cast<Eigen::Index>(k));
+    Eigen::MatrixXd c(static_cast<Eigen::Index>(k), static_cast<Eigen::Index>(k));
+    for (std::size_t a = 0; a < k; ++a) {
+      mean(static_cast<Eigen::Index>(a)) = values[a];
+      params.push_back({names[a], units[a] == "1" ? "" : units[a]});
+      for (std::size_t b = 0; b < k; ++b) c(static_cast<Eigen::Index>(a), static_cast<Eigen::Index>(b)) = cov[a * k + b];
+    }
+    Eigen::LLT<Eigen::MatrixXd> llt(c);
+    if (llt.info() != Eigen::Success)
+      throw CaseError(fmt::format("--from-fit {}: the covariance is not positive definite", o.fromFit));
+    cholesky = llt.matrixL();
+  } else {
+    for (const std::string& p : o.params) {
+      auto eq = p.find('=');
+      if (eq == std::string::npos || eq == 0)
+        throw CaseError(fmt::format("--param {}: expected KEY[UNIT]=DIST, e.g. \"environment.temperature[degC]=normal:10:2\"", p));
+      std::string key = trim(p.substr(0, eq)), unit;
+      if (auto open = key.find('['); open != std::string::npos) {
+        auto close = key.find(']', open);
+        unit = trim(key.substr(open + 1, close == std::string::npos ? std::string::npos : close - open - 1));
+        key = trim(key.substr(0, open));
+      }
+      distributions.push_back(parseDistribution(trim(p.substr(eq + 1)), "--param " + p));
+      params.push_back({key, unit});
+    }
+  }
+  const std::size_t k = params.size();
+  // Each sampled value passes through the case loader: check the keys and units once, at the distribution's median.
+  auto overrideOf = [&](std::size_t j, double v) {
+    return params[j].unit.empty() ? fmt::format("{}={:.17g}", params[j].key, v)
+                                  : fmt::format("{}={:.17g} {}", params[j].key, v, params[j].unit);
+  };
+  for (std::size_t j = 0; j < k; ++j) {
+    std::vector<std::string> ov = o.overrides;
+    ov.push_back(overrideOf(j, distributions.empty() ? mean(static_cast<Eigen::Index>(j)) : distributions[j].quantile(0.5)));
+    try {
+      (void)loadCaseFromString(caseText, o.casePath, ov);
+    } catch (const CaseError& e) {
+      throw CaseError(fmt::format("--param {}: the case loader refuses {}: {}", params[j].key, ov.back(), e.what()));
+    }
+  }
+  std::vector<std::vector<double>> unit =
+      o.design == "sobol" ? sobolPoints(k, o.samples) : latinHypercube(k, o.samples, o.seed);
+  std::vector<std::vector<double>> values(o.samples, std::vector<double>(k));
+  for (std::size_t r = 0; r < o.samples; ++r) {
+    if (distributions.empty()) {
+      Eigen::VectorXd z(static_cast<Eigen::Index>(k));
+      for (std::size_t j = 0; j < k; ++j)
+        z(static_cast<Eigen::Index>(j)) = boost::math::quantile(boost::math::normal_distribution<double>(),
+                                                                std::clamp(unit[r][j], 1e-12, 1.0 - 1e-12));
+      Eigen::VectorXd x = mean + cholesky * z;
+      for (std::size_t j = 0; j < k; ++j) values[r][j] = x(static_cast<Eigen::Index>(j));
+    } else {
+      for (std::size_t j = 0; j < k; ++j) values[r][j] = distributions[j].quantile(unit[r][j]);
+    }
+  }
+
+  // Series to band.
+  ObservedData bands;
+  for (const std::string& name : o.series) {
+    ObservedSeries s;
+    s.file = "--series";
+    s.column = static_cast<int>(bands.series.size() + 1);
+    s.quantity = parseObservedQuantity(name, "--series " + name);
+    s.times = {0.0};
+    s.values = {0.0};
+    s.sd = {1.0};
+    bands.series.push_back(std::move(s));
+  }
+  {
+    Body body(base);
+    checkObserved(bands, body);
+  }
+
+  // The runs (index 0: the base case), on threads; a failing run is recorded and left out.
+  const std::size_t runs = o.samples + 1;
+  std::vector<RunOutput> outputs(runs);
+  std::vector<std::string> metricNames, metricUnits;
+  {
+    Body body(base);
+    for (const MetricColumn& c : metricColumns(body, {}, false)) {
+      metricNames.push_back(c.name);
+      metricUnits.push_back(c.units);
+    }
+  }
+  auto runOne = [&](std::size_t i) {
+    RunOutput& out = outputs[i];
+    try {
+      std::vector<std::string> ov = o.overrides;
+      if (i > 0)
+        for (std::size_t j = 0; j < k; ++j) ov.push_back(overrideOf(j, values[i - 1][j]));
+      const Case c = loadCaseFromString(caseText, o.casePath, ov);
+      Body body(c);
+      MetricCollector metrics(body, MetricWindow{}, {}, false);
+      ObservationSampler sampler(bands, body);
+      RunOptions options;
+      options.quiet = true;
+      options.observer = [&](double t, std::span<const double> y, const RunSummary& s) {
+        metrics.observe(t, y, s);
+        sampler.observe(t, y, s);
+      };
+      RunSummary summary = runTransient(body, options);
+      if (!summary.complete) {
+        out.error = summary.failure;
+        return;
+      }
+      out.metrics = metrics.values();
+      if (out.metrics.size() != metricNames.size()) out.metrics.assign(metricNames.size(), nan);
+      for (std::size_t s = 0; s < bands.series.size(); ++s) out.series.push_back(sampler.outputSeries(s));
+      out.times = sampler.outputTimes();
+      out.ok = true;
+    } catch (const std::exception& e) {
+      out.error = e.what();
+    }
+  };
+  const auto start = std::chrono::steady_clock::now();
+  {
+    unsigned hw = std::max(1u, std::thread::hardware_concurrency());
+    std::size_t workers = std::min<std::size_t>(runs, o.jobs > 0 ? static_cast<std::size_t>(o.jobs) : hw);
+    std::atomic<std::size_t> next{0}, done{0};
+    std::vector<std::thread> threads;
+    for (std::size_t w = 0; w < workers; ++w)
+      threads.emplace_back([&] {
+        for (std::size_t i = next.fetch_add(1); i < runs; i = next.fetch_add(1)) {
+          runOne(i);
+          ++done;
+        }
+      });
+    for (std::thread& t : threads) t.join();
+  }
+  const double wall = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+  std::size_t ok = 0;
+  for (std::size_t i = 1; i < runs; ++i) ok += outputs[i].ok ? 1 : 0;
+  if (!outputs[0].ok) throw CaseError(fmt::format("uncertainty: the base case fails: {}", outputs[0].error));
+  if (ok == 0) {
+    fmt::print(stderr, "error: every sampled run failed; the first: {}\n", outputs[1].error);
+    return 3;
+  }
+
+  const std::string output =
+      o.output.empty() ? std::filesystem::path(o.casePath).stem().string() + "_uncertainty.h5" : o.output;
+  const std::string tmp = output + ".tmp";
+  const std::size_t m = metricNames.size();
+  {
+    H5Writer w(tmp, false);
+    w.attribute("/", "kind", "thermorph uncertainty");
+    w.attribute("/", "caution", caution);
+    w.attribute("/", "command_line", o.commandLine);
+    w.group("/uncertainty");
+    const std::string design =
+        (o.design == "sobol" ? std::string("Sobol' points (Boost.Random)") : fmt::format("Latin hypercube, seed {}", o.seed)) +
+        (o.fromFit.empty() ? "" : ", multivariate normal from the fit's covariance");
+    w.attribute("/uncertainty", "design", design);
+    w.attribute("/uncertainty", "runs", static_cast<double>(o.samples));
+    w.attribute("/uncertainty", "runs_ok", static_cast<double>(ok));
+    w.attribute("/uncertainty", "wall_seconds", wall);
+    w.attribute("/uncertainty", "quantiles", "5, 25, 50, 75, 95 % (Hyndman & Fan 1996, type 7), failed runs left out");
+    std::vector<std::string> keys, units, errors;
+    for (const Sampled& s : params) {
+      keys.push_back(s.key);
+      units.push_back(s.unit.empty() ? "1" : s.unit);
+    }
+    w.strings("/uncertainty/parameters", keys);
+    w.strings("/uncertainty/parameter_units", units);
+    std::vector<double> flat, status;
+    for (std::size_t r = 0; r < o.samples; ++r) {
+      flat.insert(flat.end(), values[r].begin(), values[r].end());
+      status.push_back(outputs[r + 1].ok ? 1.0 : 0.0);
+      errors.push_back(outputs[r + 1].error);
+    }
+    w.doubles("/uncertainty/samples", flat, {o.samples, k}, "see parameter_units");
+    w.doubles("/uncertainty/run_ok", status, {}, "1");
+    w.strings("/uncertainty/run_error", errors);
+    // Metrics.
+    std::vector<double> all(o.samples * m, nan), quantiles, means, sds;
+    for (std::size_t r = 0; r < o.samples; ++r)
+      if (outputs[r + 1].ok) std::copy(outputs[r + 1].metrics.begin(), outputs[r + 1].metrics.end(), all.begin() + static_cast<std::ptrdiff_t>(r * m));
+    fmt::print("Uncertainty: {} of {} runs ok ({:.3g} s); parameters: {}\n", ok, o.samples, wall, fmt::join(keys, ", "));
+    fmt::print("{:<52} {:>10} {:>10} {:>10} {:>10} {:>10}  unit\n", "metric", "5 %", "25 %", "median", "75 %", "95 %");
+    for (std::size_t q = 0; q < m; ++q) {
+      std::vector<double> column;
+      for (std::size_t r = 0; r < o.samples; ++r) column.push_back(all[r * m + q]);
+      for (double pr : probabilities) quantiles.push_back(quantileOf(column, pr));
+      double sum = 0.0, sq = 0.0, count = 0.0;
+      for (double v : column)
+        if (std::isfinite(v)) {
+          sum += v;
+          sq += v * v;
+          count += 1.0;
+        }
+      means.push_back(sum / count);
+      sds.push_back(count > 1 ? std::sqrt(std::max(0.0, (sq - sum * sum / count) / (count - 1.0))) : nan);
+      const bool shown = metricNames[q].starts_with("body.");
+      if (shown)
+        fmt::print("{:<52} {:>10.4g} {:>10.4g} {:>10.4g} {:>10.4g} {:>10.4g}  {}\n", metricNames[q], quantiles[q * 5],
+                   quantiles[q * 5 + 1], quantiles[q * 5 + 2], quantiles[q * 5 + 3], quantiles[q * 5 + 4], metricUnits[q]);
+    }
+    w.strings("/uncertainty/metric_names", metricNames);
+    w.strings("/uncertainty/metric_units", metricUnits);
+    w.doubles("/uncertainty/metric_values", all, {o.samples, m}, "see metric_units");
+    w.doubles("/uncertainty/metric_quantiles", quantiles, {m, 5}, "see metric_units");
+    w.attribute("/uncertainty/metric_quantiles", "probabilities", "0.05, 0.25, 0.5, 0.75, 0.95");
+    w.doubles("/uncertainty/metric_mean", means, {}, "see metric_units");
+    w.doubles("/uncertainty/metric_sd", sds, {}, "see metric_units");
+    std::vector<double> baseMetrics = outputs[0].metrics;
+    w.doubles("/uncertainty/metric_base", baseMetrics, {}, "see metric_units");
+    // Bands.
+    const std::vector<double>& times = outputs[0].times;
+    w.doubles("/uncertainty/time", times, {}, "s");
+    for (std::size_t s = 0; s < bands.series.size(); ++s) {
+      const std::string g = "/uncertainty/series/" + bands.series[s].quantity.name;
+      const std::string u = bands.series[s].unit();
+      std::vector<std::vector<double>> band(5, std::vector<double>(times.size(), nan));
+      std::vector<double> meanSeries(times.size(), nan);
+      for (std::size_t t = 0; t < times.size(); ++t) {
+        std::vector<double> column;
+        for (std::size_t r = 1; r < runs; ++r)
+          if (outputs[r].ok && outputs[r].series[s].size() == times.size()) column.push_back(outputs[r].series[s][t]);
+        for (std::size_t p = 0; p < 5; ++p) band[p][t] = quantileOf(column, probabilities[p]);
+        double sum = 0.0;
+        for (double v : column) sum += v;
+        meanSeries[t] = column.empty() ? nan : sum / static_cast<double>(column.size());
+      }
+      const char* names[] = {"q05", "q25", "q50", "q75", "q95"};
+      for (std::size_t p = 0; p < 5; ++p) w.doubles(g + "/" + names[p], band[p], {}, u);
+      w.doubles(g + "/mean", meanSeries, {}, u);
+      w.doubles(g + "/base", outputs[0].series[s], {}, u);
+      w.attribute(g, "units", u);
+    }
+  }
+  std::filesystem::rename(tmp, output);
+  fmt::print("Results: {}\nCaution: {}\n", output, caution);
+  return 0;
+}
+
+}  // namespace thermorph
