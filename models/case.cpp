@@ -3,6 +3,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <numbers>
 #include <filesystem>
 #include <fstream>
 #include <set>
@@ -260,13 +261,19 @@ SegmentSpec readSegment(const CaseReader& reader, const Case& c, const toml::tab
     const TissueProperties& props = requireTissue(c, ct, "material", coat.material);
     if (!props.isCoat() && ct.has("material"))
       ct.fail("material", fmt::format("\"{}\" is a tissue, not a coat material (fur, feathers, or a [tissues.NAME] "
-                                      "with base = \"fur\")", coat.material));
+                                      "with role = \"coat\")", coat.material));
     coat.thickness = ct.quantity("thickness");
     coat.cells = ct.integer("cells");
     s.coat = coat;
   }
 
   s.surface = readSurface(t, s.shape);
+  // A cone's default exposure, shadow over lateral area for a beam normal to the axis: the shadow is the
+  // trapezoid (R0 + R1) L, the lateral area pi (R0 + R1) sqrt(L^2 + (R1 - R0)^2), so the ratio is cos(a) / pi
+  // with a the half-angle (the coat keeps its thickness, so its surface has the same slope; geometry, common
+  // practice, no source).
+  if (s.shape == Shape::Cone && !t.child("surface").has("solar_exposure"))
+    s.surface.solarExposure = s.length / (std::numbers::pi * std::hypot(s.length, s.radiusDistal - s.radiusProximal));
   return s;
 }
 

@@ -138,8 +138,10 @@ constexpr std::array params = {
     Param{"segments[].surface.solar_absorptivity", K::Number, "", "0.7", 0, 1, false, "",
           "Share of solar radiation absorbed (coats range 0.34-0.90, Dawson et al. 2014)."},
     Param{"segments[].surface.solar_exposure", K::Number, "", "", 0, 1, false, "",
-          "Sunlit projected area over surface area. Default: beam normal to the axis or face: sphere 1/4, "
-          "cylinder and cone 1/pi, plate 1/2."},
+          "Sunlit projected (shadow) area over lateral surface area, the beam normal to the axis (cylinder, cone) "
+          "or face (plate). Default: the shape's own shadow: sphere pi R^2 / 4 pi R^2 = 1/4, cylinder 2 R L / "
+          "2 pi R L = 1/pi, cone (R0 + R1) L over its lateral area = cos(a)/pi (a: half-angle), plate L w / 2 L w "
+          "= 1/2; R at the outer surface, coat included. End faces lie parallel to the beam and absorb no sun."},
     Param{"segments[].surface.sky_view", K::Number, "", "0.5", 0, 1, false, "",
           "Share of the exposed surface's long-wave view filled by the sky (at sky_temperature); the rest sees "
           "radiant_temperature."},

@@ -213,8 +213,11 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
       channelHeat[radiationChannel_] += sky.flux + rest.flux;
       channelDerivative[radiationChannel_] += sky.dFlux_dTs + rest.dFlux_dTs;
     }
-    // Absorbed solar radiation: alpha S (projected / total area) A.
-    channelHeat[solarChannel_] += spec.solarAbsorptivity * value(V::SolarIrradiance, time) * spec.solarExposure * f.area;
+    // Absorbed solar radiation on the lateral faces: alpha S (shadow / lateral area) A, which sums to alpha S times
+    // the shadow of the shape for a beam normal to its axis or face. End faces lie parallel to that beam and
+    // take none.
+    if (f.lateral)
+      channelHeat[solarChannel_] += spec.solarAbsorptivity * value(V::SolarIrradiance, time) * spec.solarExposure * f.area;
 
     // Cutaneous evaporation by the heat-mass transfer analogy with air properties at the film temperature;
     // the slope includes h(T_s) and the film properties' dependence on T_s (through T_film = (T_s + T_a)/2).

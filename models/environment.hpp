@@ -47,7 +47,7 @@ class EnvironmentModel : public SurfaceModel {
   //! Heat into the body through one face [W] per channel and its derivative with the face temperature [W/K]:
   //!   convection  h A_e (T_f - T_s), h from correlations at the film temperature or fixed;
   //!   radiation   eps sigma A_e [F_sky (T_sky^4 - T_s^4) + (1 - F_sky)(T_r^4 - T_s^4)] (air only);
-  //!   solar       alpha S exposure A (air only);
+  //!   solar       alpha S exposure A on lateral faces (air only; end faces are parallel to the beam);
   //!   evaporation -w h_m [rho_v,sat(T_s) - RH rho_v,sat(T_a)] L_v A_e (air only; Chilton-Colburn analogy);
   //!   substrate   h_sub f_c A (T_sub - T_s);
   //! with A_e = (1 - f_c) A the exposed area and f_c the contact fraction.

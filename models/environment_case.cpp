@@ -185,8 +185,9 @@ SurfaceSpec readSurface(const TableView& segment, Shape shape) {
                                             shapeName(shape)));
   if (surface.has("emissivity")) s.emissivity = surface.number("emissivity");
   s.solarAbsorptivity = surface.number("solar_absorptivity");
-  // Projected over total area for a beam normal to the axis or face: sphere pi r^2 / 4 pi r^2; cylinder
-  // 2 r L / 2 pi r L; plate one face of two (common practice, no source).
+  // Shadow over lateral area for a beam normal to the axis or face: sphere pi r^2 / 4 pi r^2; cylinder
+  // 2 r L / 2 pi r L; plate one face of two (geometry, common practice, no source). A cone's value depends on
+  // its taper and is set where its radii are read (models/case.cpp).
   switch (shape) {
     case Shape::Sphere: s.solarExposure = 0.25; break;
     case Shape::Cylinder:

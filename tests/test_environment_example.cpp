@@ -32,21 +32,23 @@ TEST_CASE("Day-cycle example: weather rows, immersion and the absorbed solar ene
   for (Index g = 0; g < n.groups.size(); ++g)
     if (g != feet && n.groups[g] != "blood_pool") CHECK_FALSE(env.immersed(g));
 
-  // Absorbed solar energy: alpha S exposure A summed over the faces in air (copies counted), times the time
-  // integral of S, which the linear interpolation between rows makes the trapezoid rule over the hourly values
-  // of env_day_cycle.csv (exact; common practice, no source).
+  // Absorbed solar energy: alpha S times the shadow of each segment in air for a beam normal to its axis
+  // (geometry, common practice, no source: cylinder 2 R L, cone (R0 + R1) L, outer radii with the coat; end
+  // faces parallel to the beam take none), copies counted, times the time integral of S, which the linear
+  // interpolation between rows makes the trapezoid rule over the hourly values of env_day_cycle.csv (exact).
+  // Where a child joins, the parent's lateral face loses the child's cross-section (README), and with it the
+  // shadow share 1/pi of that area.
   const double irradiance[] = {0, 0, 0, 0, 0, 0, 0, 189, 369, 530, 665, 766, 829,
                                850, 829, 766, 665, 530, 369, 189, 0, 0, 0, 0, 0};
   double integral = 0.0;  // [J/m2]
   for (int h = 0; h < 24; ++h) integral += 0.5 * (irradiance[h] + irradiance[h + 1]) * 3600.0;
-  double absorbing = 0.0;  // sum of alpha exposure A [m2]
-  for (Index f = 0; f < n.faces.size(); ++f) {
-    const Index g = n.nodes[n.faces[f].node].group;
-    if (env.immersed(g)) continue;
-    const SurfaceSpec& s = body.spec().segments[g].surface;
-    absorbing += n.groupWeights[g] * s.solarAbsorptivity * s.solarExposure * n.faces[f].area;
-  }
-
+  const double pi = 3.14159265358979323846;
+  const double trunk = 2.0 * 0.060 * 0.18 - (pi * 0.014 * 0.014 + 2.0 * pi * 0.0045 * 0.0045) / pi;  // R 2.5+1.2+0.2+0.1+2 cm
+  const double neck = 2.0 * 0.014 * 0.15 - 0.019 * 0.019;  // R 0.8 + 0.1 + 0.5 cm; the head (R0 1.9 cm) joins
+  const double head = (0.019 + 0.011) * 0.07;               // R0 1.6 + 0.3 cm, R1 0.8 + 0.3 cm
+  const double legs = 2.0 * (2.0 * 0.0045 * 0.12 - 0.003 * 0.003);  // two legs, R 0.45 cm, bare; a foot (0.3 cm) joins
+  // alpha x shadow [m2]: trunk and neck 0.6 (case), head and legs the default 0.7; the feet are in water.
+  const double absorbing = 0.6 * (trunk + neck) + 0.7 * (head + legs);
   RunOptions options;
   options.quiet = true;
   RunSummary s = runTransient(body, options);
@@ -59,7 +61,7 @@ TEST_CASE("Day-cycle example: weather rows, immersion and the absorbed solar ene
   };
   const double solar = s.channelEnergy[channel("solar")];
   const double expected = absorbing * integral;
-  std::printf("[environment] day cycle: solar %.6g J vs alpha S exposure A integrated %.6g J (rel %.1e); energy "
+  std::printf("[environment] day cycle: solar %.6g J vs alpha S shadow integrated %.6g J (rel %.1e); energy "
               "balance %.1e of %.4g J\n",
               solar, expected, std::abs(solar / expected - 1.0), std::abs(s.energyBalanceError) / s.throughput,
               s.throughput);
