@@ -9,10 +9,12 @@
 
 #include "models/body.hpp"
 #include "models/case.hpp"
+#include "models/grid.hpp"
 #include "drivers/simulation.hpp"
 #include "cli/sweep_cli.hpp"
 #include "cli/fit_cli.hpp"
 #include "cli/sensitivity_cli.hpp"
+#include "cli/refine_cli.hpp"
 
 namespace {
 
@@ -118,6 +120,7 @@ int main(int argc, char** argv) {
   CLI::App* sensitivity = addSensitivitySubcommand(app, sensitivityOptions);  // cli/sensitivity_cli.cpp
   UncertaintyOptions uncertaintyOptions;
   CLI::App* uncertainty = addUncertaintySubcommand(app, uncertaintyOptions);  // cli/sensitivity_cli.cpp
+  CLI::App* refine = addRefineSubcommand(app);  // grid refinement study (cli/refine_cli.cpp)
 
   try {
     app.parse(argc, argv);
@@ -143,13 +146,17 @@ int main(int argc, char** argv) {
   if (fit->parsed()) return runFitCli(fitOptions, commandLine);
   if (sensitivity->parsed()) return runSensitivityCli(sensitivityOptions, commandLine);
   if (uncertainty->parsed()) return runUncertaintyCli(uncertaintyOptions, commandLine);
+  if (refine->parsed()) return runRefineCli();
   try {
     Case c = loadCase(casePath, overrides);
     Body body(c);
     for (const std::string& w : body.warnings()) fmt::print(stderr, "warning: {}\n", w);
     if (check->parsed()) {
       if (resolved) std::cout << resolvedCaseToml(c);
-      else describe(body);
+      else {
+        describe(body);
+        fmt::print("{}", gridSummary(c));
+      }
       return 0;
     }
     RunOptions options;

@@ -101,6 +101,14 @@ RunRow runOne(const SweepPlan& plan, std::size_t run, const std::atomic<bool>* s
       collector.observe(t, temperatures, summary);
     };
     RunSummary summary = plan.steady ? runSteady(body, options) : runTransient(body, options);
+    // Warnings of this run, per row: the body's (grids, blood flow, command-line values the timeline takes
+    // over), the run's, and correlations used outside their range.
+    std::vector<std::string> warnings = body.warnings();
+    for (const std::string& w : summary.warnings)
+      if (std::find(warnings.begin(), warnings.end(), w) == warnings.end()) warnings.push_back(w);
+    for (const std::string& w : body.environment().warnings())
+      if (std::find(warnings.begin(), warnings.end(), w) == warnings.end()) warnings.push_back(w);
+    row.warnings = join(warnings);
     row.steps = plan.steady ? summary.statistics.nonlinearIterations : summary.statistics.steps;
     row.energyBalanceError = summary.energyBalanceError;
     if (!summary.complete) {

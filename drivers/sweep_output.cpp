@@ -412,7 +412,7 @@ void writeCsv(const SweepPlan& plan, std::span<const RunRow> rows, const std::st
   out << "run,status";
   for (const SweepAxis& a : plan.axes) out << "," << csvField(a.units.empty() ? a.key : a.key + " [" + a.units + "]");
   for (const MetricColumn& c : plan.columns) out << "," << csvField(c.name + " [" + c.units + "]");
-  out << ",error\n";
+  out << ",warnings,error\n";
   for (std::size_t r = 0; r < rows.size(); ++r) {
     const RunRow& row = rows[r];
     out << r << "," << statusName(row.status);
@@ -423,7 +423,7 @@ void writeCsv(const SweepPlan& plan, std::span<const RunRow> rows, const std::st
     }
     for (std::size_t c = 0; c < plan.columns.size(); ++c)
       out << "," << (row.status == RunStatus::Ok ? number(row.metrics[c]) : std::string());
-    out << "," << csvField(row.error) << "\n";
+    out << "," << csvField(row.warnings) << "," << csvField(row.error) << "\n";
   }
   if (!out.flush()) throw std::runtime_error("cannot write " + path);
 }

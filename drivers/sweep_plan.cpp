@@ -316,7 +316,18 @@ SweepPlan makeSweepPlan(const SweepOptions& commandLine) {
   if (withCase.metrics.empty()) withCase.metrics = base.sweep.metrics;
   if (withCase.window.empty()) withCase.window = base.sweep.window;
   plan.steady = commandLine.steady || base.sweep.steady;
-  return finishSweepPlan(std::move(plan), withCase, base);
+  SweepPlan finished = finishSweepPlan(std::move(plan), withCase, base);
+  // A varied [environment] value that the timeline overrides from t = 0 would give identical rows: refuse the
+  // sweep (exit 2). Other values the loader refuses fail their run only.
+  if (finished.runs > 0) {
+    try {
+      (void)loadCaseFromString(finished.caseText, finished.casePath, finished.keyOverrides(0));
+    } catch (const TimelineOverrideError& e) {
+      throw CaseError(fmt::format("--vary: {}", e.what()));
+    } catch (const CaseError&) {
+    }
+  }
+  return finished;
 }
 
 static SweepPlan finishSweepPlan(SweepPlan plan, const SweepOptions& options, const Case& base) {

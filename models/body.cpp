@@ -66,6 +66,7 @@ Body::CrossSection Body::crossSection(const SegmentSpec& s, double scale) {
 }
 
 Body::Body(const Case& c) : case_(c) {
+  warnings_ = case_.warnings;  // found while loading (models/grid.cpp)
   metabolismChannel_ = network_.channel("metabolism");
   bloodChannel_ = network_.channel("blood");
   conductionChannel_ = network_.channel("conduction");

@@ -1,4 +1,5 @@
 #include "models/case.hpp"
+#include "models/grid.hpp"
 #include "models/sha256.hpp"
 
 #include <algorithm>
@@ -196,6 +197,7 @@ SegmentSpec readSegment(const CaseReader& reader, const Case& c, const toml::tab
     const TissueProperties& props = requireTissue(c, l, "tissue", layer.tissue);
     if (props.isCoat()) l.fail("tissue", fmt::format("\"{}\" is a coat material; give it as coat = {{ material = \"{}\", ... }}", layer.tissue, layer.tissue));
     layer.cells = l.integer("cells");
+    layer.cellsAuto = !l.has("cells");
     if (i > 0 || l.has("thickness")) layer.thickness = l.quantity("thickness");
     s.layers.push_back(layer);
   }
@@ -245,6 +247,7 @@ SegmentSpec readSegment(const CaseReader& reader, const Case& c, const toml::tab
   } else {
     s.length = t.quantity("length");
     s.axialCells = t.integer("axial_cells");
+    s.axialAuto = !t.has("axial_cells");
   }
   if (s.shape == Shape::Cone) s.radiusDistal = t.quantity("radius_distal");
   else rejectKey("radius_distal", "only cones taper");
@@ -264,6 +267,7 @@ SegmentSpec readSegment(const CaseReader& reader, const Case& c, const toml::tab
                                       "with role = \"coat\")", coat.material));
     coat.thickness = ct.quantity("thickness");
     coat.cells = ct.integer("cells");
+    coat.cellsAuto = !ct.has("cells");
     s.coat = coat;
   }
 
@@ -400,6 +404,40 @@ void recordInputs(Case& c, const toml::table& root, const std::string& text) {
   }
 }
 
+//! Precedence of a `--set` (or sweep `--vary`) value of an [environment] key over the timeline: it holds until
+//! the first event or weather-file row that changes the same key (a warning says until when); when that change is
+//! at t = 0 the value would never take effect, which is refused (exit 2) rather than silently ignored.
+void checkOverriddenByTimeline(const TableView& top, Case& c, const std::vector<std::string>& overrides) {
+  const bool weather = top.child("environment").has("weather");
+  for (const std::string& o : overrides) {
+    const std::string key = o.substr(0, o.find('='));
+    if (key.rfind("environment.", 0) != 0) continue;
+    const std::string name = key.substr(std::string("environment.").size());
+    for (std::size_t v = 0; v < kEnvironmentVariables; ++v) {
+      const auto variable = static_cast<EnvironmentVariable>(v);
+      if (environmentKey(variable) != name) continue;
+      for (const EventSpec& e : c.events) {
+        bool changes = false;
+        for (const EnvironmentValue& value : e.environment) changes = changes || value.variable == variable;
+        if (!changes) continue;
+        const std::string by = weather ? "an [[events]] entry or a row of the weather file (environment.weather)"
+                                       : "an [[events]] entry";
+        if (e.at <= 0.0)
+          throw TimelineOverrideError(fmt::format(
+              "{}: {}: the value given on the command line ({}) would never take effect: {} sets {} from t = 0 s. "
+              "Change the value in the timeline instead (its events.N.environment.{} or the weather file's column), "
+              "or remove it there",
+              c.sourceFile, key, o.substr(o.find('=') + 1), by, name, name));
+        c.warnings.push_back(fmt::format(
+            "{} = {} (command line) holds until t = {:g} s, when {} changes it (the timeline takes over from "
+            "its first change)",
+            key, o.substr(o.find('=') + 1), e.at, by));
+        break;
+      }
+    }
+  }
+}
+
 Case buildCase(toml::table& root, const std::string& file, const std::vector<std::string>& overrides) {
   for (const std::string& o : overrides) applyOverride(root, file, o);
   CaseReader reader(file);
@@ -521,8 +559,21 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
                                     c.events[i].at, t.controller, t.controller));
     }
   }
+  checkOverriddenByTimeline(top, c, overrides);
   if (c.control.panting.present && c.body.respiratorySegment.empty())
     throw CaseError(fmt::format("{}: control.panting: panting needs respiration: set [body] respiratory_segment", file));
+  // Cell counts the case leaves out, from each segment's decay lengths; warnings for coarser given grids.
+  resolveGrid(c);
+  cells = 0;
+  for (const SegmentSpec& s : c.segments) {
+    long radial = s.coat ? s.coat->cells : 0;
+    for (const LayerSpec& l : s.layers) radial += l.cells;
+    cells += radial * s.axialCells;
+  }
+  if (cells > maxCells)
+    reader.fail(segs, "segments",
+                fmt::format("the body has {} cells with the automatic grid; the limit is {} (give axial_cells or "
+                            "layer cells)", cells, maxCells));
   return c;
 }
 

@@ -17,6 +17,13 @@ class CaseError : public std::runtime_error {
   using std::runtime_error::runtime_error;
 };
 
+//! A command-line value of an [environment] key that the timeline would override from t = 0 (never takes
+//! effect). Sweeps refuse the whole sweep for it (exit 2) instead of failing every run.
+class TimelineOverrideError : public CaseError {
+ public:
+  using CaseError::CaseError;
+};
+
 enum class Shape { Sphere, Cylinder, Cone, Plate };
 enum class InitialCondition { Temperature, Steady };
 
@@ -27,6 +34,7 @@ struct LayerSpec {
   std::string tissue;
   double thickness = 0.0;  //!< radial thickness [m]; a cylinder's or sphere's first layer: its radius
   int cells = 1;           //!< radial cells in this layer
+  bool cellsAuto = false;  //!< `cells` not given: chosen by resolveGrid (models/grid.hpp)
 };
 
 //! Optional fur or feather coat outside the outermost tissue layer.
@@ -34,6 +42,7 @@ struct CoatSpec {
   std::string material;
   double thickness = 0.0;  //!< [m]
   int cells = 1;
+  bool cellsAuto = false;  //!< `cells` not given: chosen by resolveGrid (models/grid.hpp)
 };
 
 //! Large vessels of a segment.
@@ -66,6 +75,7 @@ struct SegmentSpec {
   double radiusDistal = 0.0;    //!< outer tissue radius at the distal end [m] (cone)
   double width = 0.0;           //!< [m] (plate)
   int axialCells = 1;
+  bool axialAuto = false;       //!< `axial_cells` not given: chosen by resolveGrid (models/grid.hpp)
   std::vector<LayerSpec> layers;
   std::optional<CoatSpec> coat;
   SurfaceSpec surface;
@@ -152,6 +162,7 @@ struct Case {
   std::vector<SegmentSpec> segments;
   EnvironmentSpec environment;
   std::vector<EventSpec> events;
+  std::vector<std::string> warnings;  //!< found while loading (grids coarser than needed); Body reports them
 };
 
 //! Upper limit on the total number of nodes in one case (memory and run time guard).

@@ -1,0 +1,60 @@
+#include "cli/refine_cli.hpp"
+
+#include <cstdio>
+#include <fstream>
+
+#include <fmt/format.h>
+
+#include "drivers/refine.hpp"
+#include "solver/integrator.hpp"
+
+namespace thermorph {
+
+namespace {
+RefineOptions options;
+std::string csvPath;
+}  // namespace
+
+CLI::App* addRefineSubcommand(CLI::App& app) {
+  CLI::App* refine = app.add_subcommand(
+      "refine", "Run a case on its grid and on grids refined 2x, 4x (every axial and radial cell count); print the "
+                "observed order and Richardson-extrapolated budget and temperatures");
+  refine->add_option("case", options.casePath, "Case file (TOML)")->required();
+  refine->add_option("--set", options.overrides, "Override a case key: KEY=VALUE")->take_all()->allow_extra_args(false);
+  refine->add_option("--levels", options.levels, "Grids 1x, 2x, ... 2^(N-1)x (3 to 5; default 3)");
+  refine->add_flag("--steady", options.steady, "Steady states (KINSOL) instead of the transient run");
+  refine->add_option("--duration", options.duration, "Shorter run for the study, e.g. \"30 min\" (default: the case's)");
+  refine->add_option("--metric", options.metrics,
+                     "Quantities as in `thermorph sweep --metric` (default: body budget, core, blood and skin "
+                     "temperatures, every segment's budget and mean temperature)")
+      ->take_all()
+      ->allow_extra_args(false);
+  refine->add_option("--window", options.window, "Averaging window START:END, e.g. \"30 min:1 h\"; default: the whole run");
+  refine->add_option("--csv", csvPath, "Also write the table as CSV to this file");
+  return refine;
+}
+
+int runRefineCli() {
+  try {
+    RefineResult result = runRefinement(options);
+    for (const std::string& w : result.warnings) fmt::print(stderr, "warning (1x grid): {}\n", w);
+    std::fputs(refineTable(result).c_str(), stdout);
+    if (!csvPath.empty()) {
+      std::ofstream out(csvPath);
+      if (!out) {
+        fmt::print(stderr, "error: --csv {}: cannot write the file\n", csvPath);
+        return 2;
+      }
+      out << refineCsv(result);
+    }
+    return 0;
+  } catch (const CaseError& e) {
+    fmt::print(stderr, "error: {}\n", e.what());
+    return 2;
+  } catch (const std::exception& e) {
+    fmt::print(stderr, "error: {}\n", e.what());
+    return 3;
+  }
+}
+
+}  // namespace thermorph

@@ -1,0 +1,52 @@
+#pragma once
+//! Grid refinement study of one case: the case at 1x, 2x, 4x, ... its cells (axial and radial cells of every
+//! segment, layers and coats multiplied), observed order of convergence and Richardson-extrapolated values of the
+//! heat budget and key temperatures (Roache 1998, "Verification and Validation in Computational Science and
+//! Engineering", ch. 5: p = ln((f1 - f2) / (f2 - f3)) / ln 2, f* = f3 + (f3 - f2) / (2^p - 1)).
+#include <string>
+#include <vector>
+
+#include "models/case.hpp"
+
+namespace thermorph {
+
+struct RefineOptions {
+  std::string casePath;
+  std::vector<std::string> overrides;  //!< --set
+  int levels = 3;                      //!< grids 1x, 2x, ..., 2^(levels-1) x
+  bool steady = false;                 //!< steady states instead of transient runs
+  std::string duration;                //!< overrides run.duration (text with a unit), "" : the case's
+  std::vector<std::string> metrics;    //!< selectors as in sweep --metric; default: budget and key temperatures
+  std::string window;                  //!< "START:END"; default the whole run
+};
+
+//! One reported quantity over the levels.
+struct RefineRow {
+  std::string name, units;
+  std::vector<double> values;  //!< per level
+  double order = 0.0;          //!< observed order from the finest three levels (NaN: not monotone)
+  double extrapolated = 0.0;   //!< Richardson value (NaN when the order is undefined)
+  double coarseVsFinest = 0.0; //!< level 1 minus the finest level (W or K)
+  double relative = 0.0;       //!< |coarseVsFinest| / |finest| for flows; / |finest - reference| for temperatures
+};
+
+struct RefineResult {
+  std::vector<double> factors;   //!< 1, 2, 4, ...
+  std::vector<long> cells;       //!< tissue cells of the body per level
+  std::vector<double> seconds;   //!< wall time per level
+  std::vector<RefineRow> rows;
+  std::vector<std::string> warnings;  //!< of the 1x grid
+  double referenceTemperature = 0.0;  //!< [degC] the medium at t = 0 (temperatures' relative differences)
+};
+
+//! The case with every cell count multiplied by `factor` (axial cells of non-spheres, layer and coat cells).
+Case refinedCase(const Case& c, int factor);
+
+//! Run the study. Throws CaseError on bad input, SolverError when a level fails.
+RefineResult runRefinement(const RefineOptions& options);
+
+//! The table for a person (with the caution) and as CSV.
+std::string refineTable(const RefineResult& result);
+std::string refineCsv(const RefineResult& result);
+
+}  // namespace thermorph

@@ -1,0 +1,64 @@
+#pragma once
+//! Grid resolution from the local decay lengths of each segment: automatic cell counts where a case leaves them
+//! out, and warnings where a case gives fewer cells than its headline outputs need.
+//!
+//! The scheme is second order in space for conduction (harmonic-mean face conductances, DEVELOPERS.md) and first
+//! order along the blood streams (upwind advection), so the error of a segment's heat flows is estimated from
+//!   * the fin parameter m = sqrt((U' + sum_i w_i rho_b c_b A_i) / sum_i k_i A_i) [1/m]: U' the conductance per unit
+//!     length from the tissue to the surroundings (surface conductance from the environment's convection,
+//!     radiation, evaporation and substrate slopes, in series with the coat and tissue radial resistances), the
+//!     perfusion term tying tissue to the local arterial temperature (perfusion length sqrt(k / (w rho_b c_b))),
+//!     and the axial conductance of all layers. The discrete semi-infinite fin on cells of length dz with a
+//!     half-cell junction has the heat flow ratio q_h / q = 2 (1 - r + a^2) / (a (3 - r + a^2)), a = m dz,
+//!     r + 1/r = 2 + a^2 (derived in grid.cpp; for small a the error is a^2 / 8);
+//!   * the countercurrent exchanger: N mixed cells of a balanced counterflow exchanger transfer
+//!     NTU / (1 + NTU + NTU/N) of the largest possible heat instead of NTU / (1 + NTU) (Incropera et al. 2007,
+//!     Table 11.3, eq. 11.35 for the exact value; the cell form derived in grid.cpp): relative error about
+//!     NTU / (N (1 + NTU)), first order;
+//!   * each tissue layer's radial cells against its perfusion length and, for curved shapes, its inner radius
+//!     (second order; error ~ (dr / scale)^2 / 48, the constant calibrated on the examples).
+//! Segments whose axial profile is forced only by the surroundings (a root with insulated ends) need few axial
+//! cells; appendages and exposed ends are resolved to the decay length.
+#include <string>
+#include <vector>
+
+#include "models/case.hpp"
+
+namespace thermorph {
+
+//! Target of the automatic grid: estimated relative error of a segment's heat flows, chosen so that the
+//! outputs lie within 1 % of a grid refined 4x (a second-order error falls by 16 there, a first-order one by 4).
+inline constexpr double kGridTargetError = 0.005;
+//! Warnings name grids whose estimated error exceeds this.
+inline constexpr double kGridWarnError = 0.01;
+//! Upper limit of automatic axial cells per segment (and of radial cells per layer).
+inline constexpr int kMaxAutoAxialCells = 1200;
+inline constexpr int kMaxAutoLayerCells = 8;
+
+//! What the estimator found for one segment (for `check` and the warnings).
+struct SegmentGridEstimate {
+  std::string segment;
+  double decayLength = 0.0;   //!< 1/m [m] (infinite: no axial decay)
+  double ntu = 0.0;           //!< countercurrent exchanger NTU [1]
+  bool axialForced = false;   //!< a junction or exposed end forces axial profiles
+  double endWeight = 1.0;     //!< share of the segment's heat flows that passes the forced ends [1]
+  int axialNeeded = 1;        //!< axial cells meeting kGridTargetError
+  std::vector<double> layerScale;  //!< per layer (coat last) the radial length scale [m]
+  std::vector<int> layerNeeded;    //!< per layer (coat last) radial cells meeting kGridTargetError
+};
+
+//! Estimated relative error of a segment's heat flows with nz axial cells.
+double axialGridError(const SegmentGridEstimate& e, double length, int nz);
+
+//! Estimates for every segment of a case (uses the environment's surface conductances over the timeline).
+std::vector<SegmentGridEstimate> estimateGrid(const Case& c);
+
+//! Fill the cell counts the case left out (SegmentSpec::axialAuto, LayerSpec::cellsAuto, CoatSpec::cellsAuto)
+//! and append to c.warnings one line per segment whose given grid is estimated to miss 1 %.
+void resolveGrid(Case& c);
+
+//! A table for `check`: per segment the axial and radial cells (automatic ones marked), decay length, NTU and the
+//! estimated error.
+std::string gridSummary(const Case& c);
+
+}  // namespace thermorph

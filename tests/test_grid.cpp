@@ -1,0 +1,186 @@
+// Automatic grids, coarse-grid warnings and the refinement study (models/grid.cpp, drivers/refine.cpp), checked
+// against the pin fin with an adiabatic tip (Incropera et al. 2007, Table 3.4, case B: q = sqrt(h P k A_c) theta_b
+// tanh(mL)); command-line values that the timeline would override (models/case.cpp).
+#include <catch2/catch.hpp>
+
+#include <cmath>
+#include <cstdio>
+#include <filesystem>
+#include <fstream>
+#include <numbers>
+#include <string>
+
+#include "drivers/refine.hpp"
+#include "models/grid.hpp"
+#include "test_support_body.hpp"
+
+using namespace thermorph;
+using namespace thermorph::testing;
+
+namespace {
+
+using std::numbers::pi;
+
+//! A copper pin (D 1 mm, L 2 cm, insulated tip) in water on a reservoir sphere clamped at 30 degC by very high
+//! perfusion from a pinned arterial supply; a fixed h of 5000 W/(m2 K) (forced convection of water over a thin
+//! wire: Re ~ 1e3, Nu ~ 10-20, common practice, no source). m = sqrt(4h/(kD)) = 224 1/m, decay length 4.5 mm;
+//! Bi = h r / k = 6e-3, so the 1-D fin holds to ~0.2 %.
+std::string pinFinInWater(const std::string& axialCells) {
+  return R"toml(
+title = "pin fin in water"
+[run]
+initial = "steady"
+duration = "1 s"
+output_interval = "1 s"
+[circulation]
+fixed_arterial_temperature = "30 degC"
+[tissues.clamp]
+conductivity = 0.5
+density = 1000
+specific_heat = 4000
+metabolic_heat = 0
+perfusion = 1
+q10 = 1
+[tissues.copper]
+conductivity = 398
+density = 8933
+specific_heat = 385
+metabolic_heat = 0
+perfusion = 0
+q10 = 1
+[[segments]]
+name = "reservoir"
+shape = "sphere"
+layers = [{ tissue = "clamp", thickness = 0.1, cells = 1 }]
+surface = { convection = 0 }
+[[segments]]
+name = "pin"
+parent = "reservoir"
+shape = "cylinder"
+length = "2 cm"
+)toml" + axialCells + R"toml(
+layers = [{ tissue = "copper", thickness = "0.5 mm" }]
+surface = { ends = "insulated", convection = "5000 W/(m2 K)" }
+[environment]
+medium = "water"
+temperature = "10 degC"
+)toml";
+}
+
+//! Incropera et al. (2007), Table 3.4 case B (adiabatic tip): q = sqrt(h P k A_c) theta_b tanh(mL) [W].
+double adiabaticFin(double thetaB) {
+  const double D = 0.001, L = 0.02, k = 398.0, h = 5000.0;
+  const double P = pi * D, A = pi * D * D / 4.0, m = std::sqrt(h * P / (k * A));
+  return std::sqrt(h * P * k * A) * thetaB * std::tanh(m * L);
+}
+
+struct FinResult {
+  double q, reference;
+};
+
+FinResult solveFin(const Case& c) {
+  Body body(c);
+  RunSummary s = runSteady(body, silentRun());
+  REQUIRE(s.complete);
+  const Network& n = body.network();
+  const Index pin = segmentIndex(body, "pin"), reservoir = segmentIndex(body, "reservoir");
+  const double q = s.flows[pin * n.channels.size() + channelIndex(n, "conduction")];
+  const double thetaB = s.finalState[body.segments()[reservoir].node(0, 0)] - (273.15 + 10.0);
+  return {q, adiabaticFin(thetaB)};
+}
+
+bool anyContains(const std::vector<std::string>& lines, const std::string& a, const std::string& b) {
+  for (const std::string& l : lines)
+    if (l.find(a) != std::string::npos && l.find(b) != std::string::npos) return true;
+  return false;
+}
+
+}  // namespace
+
+TEST_CASE("Automatic axial grid of a pin fin in water is within 1 % of Incropera's adiabatic-tip fin", "[grid][validation]") {
+  const Case automatic = loadCaseFromString(pinFinInWater(""), "pin.toml");
+  const Case coarse = loadCaseFromString(pinFinInWater("axial_cells = 6"), "pin.toml");
+  const FinResult a = solveFin(automatic), k = solveFin(coarse);
+  const double errorAuto = a.q / a.reference - 1.0, errorCoarse = k.q / k.reference - 1.0;
+  std::printf("[grid] pin fin in water: automatic %d axial cells q %.5f W (reference %.5f W, error %.2e); "
+              "6 cells q %.5f W (error %.2e)\n",
+              automatic.segments[1].axialCells, a.q, a.reference, errorAuto, k.q, errorCoarse);
+  CHECK(std::abs(errorAuto) <= 0.01);
+  CHECK(automatic.segments[1].axialAuto);
+  CHECK(std::abs(errorCoarse) > 0.02);  // the coarse grid is visibly off ...
+  // ... and says so: segment, estimated error and the cell count that meets 1 %.
+  CHECK(anyContains(coarse.warnings, "segment pin", "axial_cells = 6"));
+  CHECK(anyContains(coarse.warnings, "segment pin", "axial cells meet 1 %"));
+  CHECK_FALSE(anyContains(automatic.warnings, "segment pin", "axial"));
+  // The warning reaches the body's warnings (the run's list, stored in result files).
+  Body body(coarse);
+  CHECK(anyContains(body.warnings(), "segment pin", "axial_cells = 6"));
+}
+
+TEST_CASE("Refinement study of the coarse pin fin: observed order 2 and Richardson value near the fin formula",
+          "[grid][validation]") {
+  const std::filesystem::path path = std::filesystem::temp_directory_path() / "thermorph_test_refine_pin.toml";
+  {
+    std::ofstream out(path);
+    out << pinFinInWater("axial_cells = 6");
+  }
+  RefineOptions options;
+  options.casePath = path.string();
+  options.steady = true;
+  options.metrics = {"segments.pin.heat_flow.conduction"};
+  RefineResult r = runRefinement(options);
+  std::filesystem::remove(path);
+  REQUIRE(r.rows.size() == 1);
+  const RefineRow& row = r.rows[0];
+  const double reference = adiabaticFin(20.0);  // the clamp holds the base at 30 degC over 10 degC water
+  std::printf("[grid] refine pin fin: %.5f / %.5f / %.5f W at 6/12/24 cells, order %.3f, Richardson %.5f W, "
+              "reference %.5f W (error %.2e)\n",
+              row.values[0], row.values[1], row.values[2], row.order, row.extrapolated, reference,
+              row.extrapolated / reference - 1.0);
+  CHECK(r.factors == std::vector<double>{1.0, 2.0, 4.0});
+  CHECK(std::abs(row.order - 2.0) <= 0.2);  // second-order scheme (DEVELOPERS.md)
+  CHECK(std::abs(row.extrapolated / reference - 1.0) <= 0.003);  // 1-D fin vs the 2-D body: Bi = 6e-3
+  CHECK(std::abs(row.relative - std::abs(row.values[0] / row.values[2] - 1.0)) <= 1e-12);
+}
+
+TEST_CASE("Refined case multiplies every cell count", "[grid]") {
+  const Case c = loadCaseFromString(pinFinInWater("axial_cells = 6"), "pin.toml");
+  const Case r = refinedCase(c, 4);
+  CHECK(r.segments[1].axialCells == 24);
+  CHECK(r.segments[1].layers[0].cells == 4 * c.segments[1].layers[0].cells);
+  CHECK(r.segments[0].layers[0].cells == 4);
+}
+
+TEST_CASE("A command-line environment value the timeline overrides at t = 0 is refused; later, it warns",
+          "[grid][case]") {
+  const std::string base = R"(
+[run]
+duration = "2 h"
+[[segments]]
+name = "limb"
+shape = "cylinder"
+length = "10 cm"
+layers = [{ tissue = "muscle", thickness = "1 cm" }]
+[environment]
+temperature = "10 degC"
+)";
+  const std::string atZero = base + "[[events]]\nat = 0\nenvironment = { speed = \"3 m/s\" }\n";
+  const std::string later = base + "[[events]]\nat = \"1 h\"\nenvironment = { speed = \"3 m/s\" }\n";
+  // Without a command-line value, no complaint.
+  CHECK_NOTHROW(loadCaseFromString(atZero, "t.toml"));
+  // The value would never take effect: exit 2 (CaseError) naming the key path.
+  try {
+    (void)loadCaseFromString(atZero, "t.toml", {"environment.speed=1 m/s"});
+    FAIL("expected a TimelineOverrideError");
+  } catch (const TimelineOverrideError& e) {
+    CHECK(std::string(e.what()).find("environment.speed") != std::string::npos);
+    CHECK(std::string(e.what()).find("never take effect") != std::string::npos);
+  }
+  // Documented precedence: the command-line value holds until the first change in the timeline, with a warning.
+  const Case c = loadCaseFromString(later, "t.toml", {"environment.speed=1 m/s"});
+  CHECK(c.environment.speed == Approx(1.0));
+  CHECK(anyContains(c.warnings, "environment.speed", "holds until t = 3600 s"));
+  // A key the timeline never changes: no warning.
+  const Case t = loadCaseFromString(later, "t.toml", {"environment.temperature=5 degC"});
+  CHECK_FALSE(anyContains(t.warnings, "environment.temperature", "holds"));
+}
