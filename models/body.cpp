@@ -98,7 +98,26 @@ Body::Body(const Case& c) : case_(c) {
     coveredArea_[p].resize(static_cast<std::size_t>(nz), 0.0);
     double outer = s.tissueRadius() + (s.coat ? s.coat->thickness : 0.0);
     double section = s.shape == Shape::Plate ? 2.0 * s.width * outer : pi * outer * outer;
-    coveredArea_[p][static_cast<std::size_t>(std::clamp(static_cast<int>(s.attachPosition * nz), 0, nz - 1))] += s.count * section;
+    if (nz == 1) {
+      coveredArea_[p][0] += s.count * section;
+      continue;
+    }
+    // The footprint is cut from every parent cell it covers: a disc of the child's outer radius (a plate: its
+    // width along the parent's axis, uniformly) centred at attach_position, moved inside the parent's length
+    // when it would stick out (spread over the whole length when longer than it). The share of each cell is
+    // the exact area of the disc between the cell's faces, so the covered area does not change with the grid.
+    const double L = ps.length, half = s.shape == Shape::Plate ? 0.5 * s.width : outer;
+    double centre = std::clamp(s.attachPosition * L, std::min(half, 0.5 * L), std::max(L - half, 0.5 * L));
+    // Cumulative covered share of the footprint up to axial position z (0 below it, 1 above it).
+    auto share = [&](double z) {
+      if (2.0 * half >= L) return std::clamp(z / L, 0.0, 1.0);  // spread over the whole length
+      const double x = std::clamp((z - centre) / half, -1.0, 1.0);
+      if (s.shape == Shape::Plate) return 0.5 * (x + 1.0);
+      return (x * std::sqrt(1.0 - x * x) + std::asin(x)) / pi + 0.5;  // disc area below a chord / pi R^2
+    };
+    for (int iz = 0; iz < nz; ++iz)
+      coveredArea_[p][static_cast<std::size_t>(iz)] +=
+          s.count * section * (share((iz + 1) * L / nz) - share(iz * L / nz));
   }
   cellPerfusion_.resize(case_.segments.size());
   for (Index g = 0; g < case_.segments.size(); ++g) {

@@ -109,18 +109,20 @@ constexpr std::array params = {
     Param{"segments[].thickness", K::Quantity, "m", "", 0, 10, true, "",
           "Plate total tissue thickness (coat excluded). Optional if the layers give it."},
     Param{"segments[].axial_cells", K::Integer, "", "1", 1, 100000, false, "",
-          "Cells along the length (cylinder, cone, plate; a sphere has 1)."},
+          "Cells along the length (cylinder, cone, plate; a sphere has 1). Leave it out to have it chosen from the "
+          "segment's decay lengths so that its heat flows lie within 1 % of a 4x refined grid (README, Grid); a "
+          "given value that is estimated to miss 1 % gets a warning."},
     Param{"segments[].layers", K::TableArray, "", "", 0, 0, false, "",
           "Concentric tissue layers, inside out: `[{ tissue, thickness, cells }, ...]`."},
     Param{"segments[].layers[].tissue", K::Text, "", "", 0, 0, false, "", "Tissue name (built-in or [tissues.NAME])."},
     Param{"segments[].layers[].thickness", K::Quantity, "m", "", 0, 10, true, "",
           "Layer thickness; the first layer of a sphere or cylinder: its radius; of a plate: its half-thickness. "
           "The first layer's thickness may be omitted when the segment's radius or thickness is given."},
-    Param{"segments[].layers[].cells", K::Integer, "", "1", 1, 100000, false, "", "Radial cells in the layer."},
+    Param{"segments[].layers[].cells", K::Integer, "", "1", 1, 100000, false, "", "Radial cells in the layer; leave it out to have it chosen from the layer's perfusion length and radius (README, Grid)."},
     Param{"segments[].coat", K::Table, "", "", 0, 0, false, "", "Optional fur or feather coat: `{ material, thickness, cells }`."},
     Param{"segments[].coat.material", K::Text, "", "fur", 0, 0, false, "", "Coat material (fur, feathers or a [tissues.NAME])."},
     Param{"segments[].coat.thickness", K::Quantity, "m", "", 0, 1, true, "", "Coat thickness."},
-    Param{"segments[].coat.cells", K::Integer, "", "2", 1, 10000, false, "", "Radial cells in the coat."},
+    Param{"segments[].coat.cells", K::Integer, "", "2", 1, 10000, false, "", "Radial cells in the coat; leave it out to have it chosen from its radius (README, Grid)."},
     Param{"segments[].surface", K::Table, "", "", 0, 0, false, "", "Surface properties of the segment."},
     Param{"segments[].surface.ends", K::Choice, "", "exposed", 0, 0, false, "exposed|insulated",
           "Cylinder and cone end faces: exchange heat with the medium, or insulated."},
