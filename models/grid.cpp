@@ -327,7 +327,7 @@ std::string gridSummary(const Case& c) {
       err = std::max(err, radialError(s.layers[i].thickness * scale / s.layers[i].cells, e.layerScale[i]));
     }
     if (s.coat) err = std::max(err, radialError(s.coat->thickness / s.coat->cells, e.layerScale.back()));
-    out += fmt::format("{:<14}{:>8}  {:<34}{:>12}{:>8}{:>8.2g}%\n", s.name, axial, radial,
+    out += fmt::format("  {:<14}{:>8}  {:<34}{:>12}{:>8}{:>8.2g}%\n", s.name, axial, radial,
                        std::isfinite(e.decayLength) && e.axialForced ? fmt::format("{:.3g}", 1e3 * e.decayLength) : "-",
                        e.ntu > 0.0 ? fmt::format("{:.3g}", e.ntu) : "-", 100.0 * err);
   }

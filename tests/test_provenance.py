@@ -86,7 +86,7 @@ def main():
 
         sweep = tmp / "sweep.h5"
         proc = subprocess.run([exe, "sweep", str(case), "--set", "run.duration=1 h", "--vary",
-                               "environment.speed=1 m/s,2 m/s", "-j", "1", "-q", "-o", str(sweep)],
+                               "segments.legs.length=10 cm,12 cm", "-j", "1", "-q", "-o", str(sweep)],
                               capture_output=True, text=True)
         check(proc.returncode == 0, f"sweep exit {proc.returncode}: {proc.stderr}")
         check_provenance(sweep, case, {"environment.weather": src / "cases/env_day_cycle.csv"}, src)

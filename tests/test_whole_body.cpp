@@ -553,8 +553,11 @@ TEST_CASE("Total arterial flow equals the sum over copies of perfusion and shunt
   CHECK(worst <= 1e-12);
   CHECK(relative(out[*body->poolNode()], rhoBlood * cBlood * flows.total) <= 1e-12);
 
-  REQUIRE(body->warnings().size() == 1);
-  CHECK_THAT(body->warnings().front(), Catch::Contains("exceeds the cardiac output 1 mL/min"));
+  std::vector<std::string> warnings;  // other than the coarse-grid warnings of this deliberately small grid
+  for (const std::string& w : body->warnings())
+    if (w.rfind("grid:", 0) != 0) warnings.push_back(w);
+  REQUIRE(warnings.size() == 1);
+  CHECK_THAT(warnings.front(), Catch::Contains("exceeds the cardiac output 1 mL/min"));
 }
 
 TEST_CASE("The central pool holds the blood volume the segment vessels do not", "[wholebody]") {
