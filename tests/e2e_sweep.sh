@@ -72,7 +72,7 @@ cmp -s "$work/ref.csv" "$work/cut.csv" || fail "the resumed table differs from t
 # 3. Size series against `thermorph check`: area x f^2 and volume x f^3 (geometric similarity, the square-cube
 #    law; common practice, no source). check prints 4 significant digits: tolerance 2e-3.
 row() {  # area [cm2] and volume [cm3] of a row of `thermorph check` (6th and 5th columns from the right)
-  awk -v name="$1" '$1 == name { print $(NF - 5), $(NF - 4) }'
+  awk -v name="$1" '/^Grid/ { exit } $1 == name { print $(NF - 5), $(NF - 4) }'
 }
 for target in body ears; do
   line=$("$exe" sweep "$case" --scale "$target=1,2" --list | sed -n 2p)
