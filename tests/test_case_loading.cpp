@@ -42,7 +42,7 @@ TEST_CASE("unit strings convert to SI", "[units]") {
 }
 
 TEST_CASE("perfusion in mL/(100 g min) converts with the tissue density", "[units]") {
-  // REFERENCES.md [computed]: 3 mL/(100 g min) <-> omega = 5.45e-4 1/s at rho 1090 kg/m3:
+  // docs/references.md [computed]: 3 mL/(100 g min) <-> omega = 5.45e-4 1/s at rho 1090 kg/m3:
   // 3e-6 m3 / (0.1 kg * 60 s) * 1090 kg/m3 = 5.45e-4 1/s.
   Case c = loadCaseFromString(minimal + R"toml(
 [tissues.muscle]
