@@ -41,7 +41,7 @@ with h5py.File(sys.argv[1]) as f, h5py.File(sys.argv[3]) as g:
     assert f["events/start"][0] == 1800.0 and f["events/end"][0] == 14400.0, (f["events/start"][0], f["events/end"][0])
     shunts, panting = f["control/vasomotor_shunts"][...], f["control/panting"][...]
     # The controller opens the bill's shunts as the core warms, and panting follows (controllers of the case).
-    assert shunts[0] < 0.05 and shunts[-1] > 0.95, (shunts[0], shunts[-1])
+    assert shunts[0] < 0.2 and shunts[-1] > 0.95, (shunts[0], shunts[-1])
     assert panting[0] == 1.0 and panting[-1] > 1.5, (panting[0], panting[-1])
     assert "respiration" in f["body/heat_flow"], "panting controller without respiration"
     assert f["body/heat_flow/respiration"][-1] < 1.5 * f["body/heat_flow/respiration"][0], "panting raised no loss"
