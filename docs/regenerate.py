@@ -17,7 +17,7 @@ A generated part of a Markdown file sits between two HTML comments (invisible wh
 
 EXPR is a Python expression over `r`, the run's results (see `Result` below: r.core, r.flow("convection",
 "bill"), r.exchange("bill"), r.at(values, "2 h"), r.control("panting"), ...; for a sweep, r.rows, r.pick(METRIC, length=12) and r.pick_exchange(SEGMENT, ...)),
-with numpy as `np`. FMT is a format specification (`.2f`, `.3g`, `d`) or `s` for a string.
+with numpy as `np`; run("OTHER") gives another named run's results. FMT is a format specification (`.2f`, `.3g`, `d`) or `s` for a string.
 Run names are shared by every scanned file, so a note can use a run defined in another.
 
 Check: the text between the markers must match what the runs give now. Numbers may differ by one unit in their
@@ -202,12 +202,17 @@ class Runner:
         return self.cache[name]
 
 
+def namespace(runner, run):
+    """Names an expression sees: r (the marker's run), run("OTHER") (any other named run), np and a few builtins."""
+    return {"np": np, "r": runner.get(run), "run": runner.get, "abs": abs, "min": min, "max": max, "sum": sum}
+
+
 def value_of(spec, runner):
     """The unformatted value of a one-number marker (None for blocks)."""
     words = spec.split(None, 2)
     if words[0] == "budget" or len(words) < 3:
         return None
-    return eval(words[2], {"np": np, "r": runner.get(words[0]), "abs": abs, "min": min, "max": max, "sum": sum})
+    return eval(words[2], namespace(runner, words[0]))
 
 
 def render(spec, runner):
@@ -219,7 +224,7 @@ def render(spec, runner):
         raise SystemExit(f"regenerate: bad marker <!-- gen:{spec} --> (want: RUN FMT EXPR, or budget RUN)")
     run, fmt, expr = words
     r = runner.get(run)
-    value = eval(expr, {"np": np, "r": r, "abs": abs, "min": min, "max": max, "sum": sum})  # noqa: S307 (our own docs)
+    value = eval(expr, namespace(runner, run))  # noqa: S307 (our own docs)
     if fmt == "s":
         return str(value)
     return format(value, fmt)
