@@ -694,13 +694,13 @@ std::string caseReferenceMarkdown() {
         "tissue per s; in mL/(100 g min) = omega / density x 6e6); metabolic heat is the basal rate at the Q10 "
         "reference temperature. Full citations: [docs/references.md](../docs/references.md). These are defaults "
         "for illustration: replace them with values for your species.\n\n"
-     << "| name | kind | k [W/(m K)] | wet k [W/(m K)] | density [kg/m3] | c [J/(kg K)] | metabolic heat [W/m3] | "
+     << "| name | role | k [W/(m K)] | wet k [W/(m K)] | density [kg/m3] | c [J/(kg K)] | metabolic heat [W/m3] | "
         "perfusion [1/s] | perfusion [mL/(100 g min)] | Q10 | source |\n"
      << "|---|---|---|---|---|---|---|---|---|---|---|\n";
   for (const auto& [name, t] : builtinTissues()) {
-    const bool coat = t.isCoat;
+    const bool coat = t.isCoat();
     os << fmt::format("| `{}` | {} | {:g} | {} | {:g} | {:g} | {} | {} | {} | {} | {} |\n", name,
-                      coat ? "coat" : "tissue", t.conductivity,
+                      roleName(t.role), t.conductivity,
                       coat ? fmt::format("{:g}", t.wetConductivity > 0 ? t.wetConductivity : t.conductivity) : "",
                       t.density, t.specificHeat, coat ? "" : fmt::format("{:g}", t.metabolicHeat),
                       coat ? "" : fmt::format("{:.4g}", t.perfusion),
