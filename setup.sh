@@ -33,11 +33,17 @@ case "$action" in
   build) ;;
   demo)
     mkdir -p results
-    build/thermorph check cases/hare_ears.toml
-    build/thermorph run cases/hare_ears.toml -o results/hare_ears.h5
-    "$python" postproc/report.py results/hare_ears.h5 --window 2h,4h --above core=41
-    "$python" postproc/figures.py results/hare_ears.h5 --out results/figures
-    echo "Demo results in results/hare_ears.h5, figures in results/figures/ (model estimates for research)"
+    build/thermorph check cases/large_bill.toml
+    build/thermorph run cases/large_bill.toml -o results/large_bill.h5
+    "$python" postproc/report.py results/large_bill.h5 --window 2h,4h --above core=42
+    "$python" postproc/figures.py results/large_bill.h5 --out results/figures
+    build/thermorph sweep cases/large_bill.toml --steady --vary segments.bill.vasomotor.shunt=0,1 \
+      --vary "segments.bill.length=6 cm:24 cm:4" --set "circulation.fixed_arterial_temperature=40 degC" \
+      --set control.vasomotor.enabled=off --metric segments.bill.heat_flow -o results/bill_sizes.h5 -q
+    "$python" postproc/sweep_figure.py results/bill_sizes.h5 --out results/figures \
+      --metric segments.bill.heat_flow.convection
+    echo "Demo results in results/large_bill.h5 and results/bill_sizes.h5, figures in results/figures/"
+    echo "Caution: Model estimates for research only; not veterinary or medical advice. Follow local regulations, animal-welfare rules and licensed veterinary or medical practice."
     ;;
   test)
     ctest --test-dir build --output-on-failure -j"$jobs"

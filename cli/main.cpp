@@ -9,6 +9,7 @@
 
 #include "models/body.hpp"
 #include "models/case.hpp"
+#include "models/caution.hpp"
 #include "models/grid.hpp"
 #include "drivers/simulation.hpp"
 #include "cli/sweep_cli.hpp"
@@ -82,8 +83,8 @@ void describe(const Body& body) {
 }  // namespace
 
 int main(int argc, char** argv) {
-  CLI::App app{"thermorph: tissue temperatures and heat budgets of animal bodies built from linked segments.\n"
-               "Model estimates for research; not veterinary or medical advice."};
+  CLI::App app{std::string("thermorph: tissue temperatures and heat budgets of animal bodies built from linked segments.\n"
+                           "Caution: ") + caution};
   app.set_version_flag("--version", std::string(THERMORPH_VERSION));
   app.require_subcommand(1);
   std::string casePath, output;
@@ -121,6 +122,8 @@ int main(int argc, char** argv) {
   UncertaintyOptions uncertaintyOptions;
   CLI::App* uncertainty = addUncertaintySubcommand(app, uncertaintyOptions);  // cli/sensitivity_cli.cpp
   CLI::App* refine = addRefineSubcommand(app);  // grid refinement study (cli/refine_cli.cpp)
+  for (CLI::App* sub : app.get_subcommands([](CLI::App*) { return true; }))
+    sub->footer(std::string("Caution: ") + caution);
 
   try {
     app.parse(argc, argv);
@@ -140,6 +143,8 @@ int main(int argc, char** argv) {
     std::cout << caseReferenceMarkdown();
     return 0;
   }
+  // Every other subcommand computes: the caution once on stderr, before anything else it prints.
+  fmt::print(stderr, "Caution: {}\n", caution);
   // ---- sweep: dispatch ----
   if (sweep->parsed()) return runSweepCli(sweepOptions, commandLine);
   // ---- end sweep ----

@@ -3,6 +3,7 @@
 //! threads. Covariance from the Jacobian at the optimum scaled by the residual variance, Cov = s^2 (J^T J)^-1,
 //! s^2 = SSR / (n - p) (Bates & Watts 1988, ch. 2; Seber & Wild 1989, sec. 2.1), by singular value decomposition
 //! (Eigen).
+#include "models/caution.hpp"
 #include "drivers/fit.hpp"
 
 #include <algorithm>
@@ -33,9 +34,6 @@ namespace {
 
 using Clock = std::chrono::steady_clock;
 constexpr double nan = std::numeric_limits<double>::quiet_NaN();
-const char* caution =
-    "Model estimates for research; not veterinary or medical advice. Follow local regulations, animal-welfare "
-    "rules and licensed veterinary or medical practice.";
 
 std::string trim(const std::string& s) {
   std::size_t b = s.find_first_not_of(" \t\r\n"), e = s.find_last_not_of(" \t\r\n");

@@ -5,14 +5,10 @@
 
 #include "drivers/provenance.hpp"
 #include "models/case.hpp"
+#include "models/caution.hpp"
 
 namespace thermorph {
 namespace {
-
-const char* caution =
-    "Model estimates for research; not veterinary or medical advice. Thresholds such as critical tissue "
-    "temperatures vary by species and must come from your own sources; follow local regulations and licensed "
-    "practice.";
 
 std::string nowIso() {
   std::time_t t = std::time(nullptr);

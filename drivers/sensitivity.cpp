@@ -1,5 +1,6 @@
 //! `thermorph sensitivity`: a design in the unit cube (Saltelli, Morris or local central differences), its runs
 //! through the sweep engine (zipped --vary lists), indices computed from the sweep table.
+#include "models/caution.hpp"
 #include "drivers/sensitivity.hpp"
 
 #include <cmath>
@@ -21,9 +22,6 @@ namespace thermorph {
 namespace {
 
 constexpr double nan = std::numeric_limits<double>::quiet_NaN();
-const char* caution =
-    "Model estimates for research; not veterinary or medical advice. Follow local regulations, animal-welfare "
-    "rules and licensed veterinary or medical practice.";
 
 std::string readText(const std::string& path) {
   std::ifstream in(path);

@@ -19,6 +19,8 @@
 
 #include <fmt/format.h>
 
+#include "models/caution.hpp"
+
 namespace thermorph {
 namespace {
 
@@ -279,10 +281,7 @@ void writeHdf5(const SweepPlan& plan, std::span<const RunRow> rows, const SweepT
     attribute(root, "case_file", plan.casePath);
     attribute(root, "title", plan.title);
     attribute(root, "created", nowIso());
-    attribute(root, "caution",
-              std::string("Model estimates for research; not veterinary or medical advice. Thresholds such as critical "
-                          "tissue temperatures vary by species and must come from your own sources; follow local "
-                          "regulations and licensed practice."));
+    attribute(root, "caution", std::string(caution));
     attribute(root, "fingerprint", fmt::format("{:016x}", plan.fingerprint));
     attribute(root, "runs", static_cast<long>(n));
     attribute(root, "runs_ok", static_cast<long>(ok));

@@ -1,4 +1,5 @@
 //! `thermorph uncertainty`: sampled parameters through whole runs, quantiles of metrics and bands of series.
+#include "models/caution.hpp"
 #include "drivers/uncertainty.hpp"
 
 #include <algorithm>
@@ -27,9 +28,6 @@ namespace thermorph {
 namespace {
 
 constexpr double nan = std::numeric_limits<double>::quiet_NaN();
-const char* caution =
-    "Model estimates for research; not veterinary or medical advice. Follow local regulations, animal-welfare "
-    "rules and licensed veterinary or medical practice.";
 constexpr double probabilities[] = {0.05, 0.25, 0.5, 0.75, 0.95};
 
 std::string trim(const std::string& s) {

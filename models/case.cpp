@@ -16,6 +16,8 @@
 #include "models/case_reader.hpp"
 #include "models/environment_case.hpp"
 #include "models/case_schema.hpp"
+#include "models/caution.hpp"
+#include "models/tissues.hpp"
 #include "models/units.hpp"
 
 namespace thermorph {
@@ -736,6 +738,27 @@ std::string caseReferenceMarkdown() {
     os << fmt::format("| `{}` | {} | {} | {} | {} | {} |\n", key, kind, p.unit.empty() ? "" : "`" + std::string(p.unit) + "`",
                       p.defaultValue.empty() ? "" : "`" + std::string(p.defaultValue) + "`", allowed, p.doc);
   }
+  // The built-in tissues (models/tissues.cpp) with their values and sources (full citations: docs/references.md).
+  os << "\n## Built-in tissues and coats\n\n"
+     << "Names usable as `tissue` in `layers` (and as `base` of a `[tissues.NAME]`), or as `material` of a coat; "
+        "generated from `models/tissues.cpp`. Perfusion is the basal volumetric blood flow (m3 of blood per m3 of "
+        "tissue per s; in mL/(100 g min) = omega / density x 6e6); metabolic heat is the basal rate at the Q10 "
+        "reference temperature. Full citations: [docs/references.md](../docs/references.md). These are defaults "
+        "for illustration: replace them with values for your species.\n\n"
+     << "| name | role | k [W/(m K)] | wet k [W/(m K)] | density [kg/m3] | c [J/(kg K)] | metabolic heat [W/m3] | "
+        "perfusion [1/s] | perfusion [mL/(100 g min)] | Q10 | source |\n"
+     << "|---|---|---|---|---|---|---|---|---|---|---|\n";
+  for (const auto& [name, t] : builtinTissues()) {
+    const bool coat = t.isCoat();
+    os << fmt::format("| `{}` | {} | {:g} | {} | {:g} | {:g} | {} | {} | {} | {} | {} |\n", name,
+                      roleName(t.role), t.conductivity,
+                      coat ? fmt::format("{:g}", t.wetConductivity > 0 ? t.wetConductivity : t.conductivity) : "",
+                      t.density, t.specificHeat, coat ? "" : fmt::format("{:g}", t.metabolicHeat),
+                      coat ? "" : fmt::format("{:.4g}", t.perfusion),
+                      coat || t.density <= 0 ? "" : fmt::format("{:.4g}", t.perfusion / t.density * 6e6),
+                      coat ? "" : fmt::format("{:g}", t.q10), t.source);
+  }
+  os << "\n**Caution.** " << caution << "\n";
   return os.str();
 }
 

@@ -113,7 +113,7 @@ double clampToRange(const ValidityRange& range, double value, bool& clamped) {
 
 // Incropera, DeWitt, Bergman & Lavine, Fundamentals of Heat and Mass Transfer, 6th ed.,
 // Table A.4, dry air at atmospheric pressure. Rows 250, 300, 350 K (nu, k, Pr) and rho, cp, mu
-// at 300 K as checked in shared/REFERENCES.md; the rest from memory (consistent with
+// at 300 K as checked (docs/references.md); the rest from memory (consistent with
 // nu = mu/rho and Pr = mu cp/k to 0.1 %, and with Sutherland's law to 0.6 %).
 // The densities equal the ideal gas at 1.000e5 Pa.
 constexpr std::array<double, 5> kAirT{200, 250, 300, 350, 400};                          // K
@@ -123,7 +123,7 @@ constexpr std::array<double, 5> kAirMu{132.5e-7, 159.6e-7, 184.6e-7, 208.2e-7, 2
 constexpr std::array<double, 5> kAirK{0.0181, 0.0223, 0.0263, 0.0300, 0.0338};           // W/(m K)
 
 // Incropera et al. 6th ed., Table A.6, saturated liquid water. Rows 280 and 300 K (cp, mu, k)
-// and 310 K (cp, mu, k) as checked in shared/REFERENCES.md; other rows from memory.
+// and 310 K (cp, mu, k) as checked (docs/references.md); other rows from memory.
 constexpr std::array<double, 22> kWaterT{273.15, 275, 280, 285, 290, 295, 300, 305, 310, 315, 320,
                                          325,    330, 335, 340, 345, 350, 355, 360, 365, 370, 373.15};  // K
 constexpr std::array<double, 22> kWaterCp{4217, 4211, 4198, 4189, 4184, 4181, 4179, 4178, 4178, 4179, 4180,

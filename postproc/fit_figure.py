@@ -21,7 +21,8 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
-CAUTION = "Model estimates for research; not veterinary or medical advice."
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from thermorph_post import CAUTION  # noqa: E402  (the text of models/caution.hpp)
 # Okabe & Ito (2008) colour-blind-safe colours.
 BLUE, VERMILLION, GREEN, ORANGE, GREY = "#0072B2", "#D55E00", "#009E73", "#E69F00", "#777777"
 

@@ -21,11 +21,12 @@ from pathlib import Path
 
 import numpy as np
 
+from thermorph_post import CAUTION  # the text of models/caution.hpp (tests/test_docs.py)
 from thermorph_post.budget import WindowBudget, window_budget
 from thermorph_post.results import ZERO_CELSIUS_IN_KELVIN, Results, ResultsError
 
-CAUTION = ("Thresholds such as critical tissue temperatures are species-specific and must come from your own "
-           "sources; these are model estimates for research, not veterinary or medical advice.")
+THRESHOLDS = ("Thresholds such as critical tissue temperatures are species-specific and must come from your own "
+              "sources.")
 BODY_KEYS = {"core": ("/body/core_temperature", "core temperature"),
              "blood": ("/body/blood_temperature", "blood temperature"),
              "skin": ("/body/mean_skin_temperature", "mean skin temperature")}
@@ -317,14 +318,14 @@ def report(res: Results, window=None, above=(), below=(), segments=None, csv_pat
         for path in write_csv(Path(csv_path), b, mass, rows):
             p(f"wrote {path}")
     p("")
-    p(f"Caution: {CAUTION}")
+    p(f"Caution: {CAUTION} {THRESHOLDS}")
     return 0
 
 
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(
         description="Heat budget over a window, time above/below temperature thresholds and time to reach them.",
-        epilog="KEY: core, blood, skin, or SEGMENT.mean|min|max (tissue, coat excluded). " + CAUTION)
+        epilog="KEY: core, blood, skin, or SEGMENT.mean|min|max (tissue, coat excluded). Caution: " + CAUTION)
     ap.add_argument("result", help="results file (HDF5) written by thermorph")
     ap.add_argument("--window", help="t0,t1 in s (or with units: 10min,1h); default the whole run")
     ap.add_argument("--above", action="extend", nargs="+", default=[], metavar="KEY=TEMP",

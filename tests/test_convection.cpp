@@ -51,7 +51,7 @@ TEST_CASE("forced-convection correlations by hand", "[convection]") {
   //   0.4*1000^1/2 = 12.6491, 0.06*1000^2/3 = 6.0, sum 18.6491; 0.71^0.4 = 0.871974; 1.1^1/4 = 1.024114;
   //   Nu = 2 + 18.6491*0.871974*1.024114 = 2 + 16.6537 = 18.6537.
   CHECK(relErr(nusseltSphereForced(1000.0, 0.71, 1.1), 18.6537) < 1e-4);
-  // Ranz-Marshall 2 + 0.6 Re^1/2 Pr^1/3 (shared/REFERENCES.md, checked) at the same point:
+  // Ranz-Marshall 2 + 0.6 Re^1/2 Pr^1/3 (docs/references.md, checked) at the same point:
   // 2 + 0.6*31.6228*0.892112 = 18.93; the two agree within 5 % here (common practice).
   CHECK(relErr(nusseltSphereForced(1000.0, 0.71, 1.0), 2.0 + 0.6 * std::sqrt(1000.0) * std::cbrt(0.71)) < 0.05);
 
@@ -80,7 +80,7 @@ TEST_CASE("free-convection correlations by hand", "[convection]") {
   //   0.387*6.81292/1.205899 = 2.186419; (0.60 + 2.186419)^2 = 7.76413.
   CHECK(relErr(nusseltHorizontalCylinderFree(1e5, 0.7), 7.76413) < 1e-4);
 
-  // Churchill (1983) sphere at Ra 1.5e6, Pr 2 (shared/REFERENCES.md: 19.52, checked):
+  // Churchill (1983) sphere at Ra 1.5e6, Pr 2 (docs/references.md: 19.52, checked):
   //   Ra^1/4 = 34.99636; (0.469/2)^9/16 = 0.442288; 1.442288^4/9 = 1.176765;
   //   0.589*34.99636/1.176765 = 17.51654; Nu = 2 + 17.51654 = 19.5165.
   CHECK(relErr(nusseltSphereFree(1.5e6, 2.0), 19.52) < 1e-3);
@@ -104,7 +104,7 @@ TEST_CASE("free-convection correlations by hand", "[convection]") {
 }
 
 TEST_CASE("Churchill-Bernstein agrees with Hilpert's constants", "[convection]") {
-  // Hilpert constants, Nu = C Re^m Pr^1/3 (shared/REFERENCES.md, checked), compared at the geometric
+  // Hilpert constants, Nu = C Re^m Pr^1/3 (docs/references.md, checked), compared at the geometric
   // centre of each Re band in air (Pr 0.707). Loose tolerance: the two are fits to different data
   // sets and Incropera notes such correlations scatter by about 20 %; measured deviations are
   // -11.2, -6.0, +2.0, +3.5 % in the first four bands and -18 % in the last.
@@ -163,7 +163,7 @@ TEST_CASE("mixed convection for a sphere keeps the conduction limit once", "[con
   const double whitaker = nusseltSphereForced(re, stream.prandtl, viscosityRatio) * stream.conductivity / 0.05;
   CHECK(r.h > whitaker);
   CHECK(relErr(r.h, whitaker) < 0.01);
-  // Ranz-Marshall (shared/REFERENCES.md, checked) lies within 10 % of it at this Re.
+  // Ranz-Marshall (docs/references.md, checked) lies within 10 % of it at this Re.
   const double ranzMarshall = (2.0 + 0.6 * std::sqrt(re) * std::cbrt(stream.prandtl)) * stream.conductivity / 0.05;
   CHECK(relErr(r.h, ranzMarshall) < 0.10);
   CHECK_FALSE(r.outsideValidity);

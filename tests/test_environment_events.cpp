@@ -74,7 +74,7 @@ struct Expectation {
 
 void checkTimeline(Body& body) {
   // Steps apply from their interval on; ramps are linear in time from the value at `at` to the target at
-  // `at + ramp` (DESIGN.md "Time"; common practice, no source).
+  // `at + ramp` (README, "Environment": events; common practice, no source).
   EnvironmentModel& env = body.environment();
   REQUIRE(env.breakpoints() == std::vector<double>{600.0, 1200.0, 1800.0, 3000.0});
   const Expectation expectations[] = {
@@ -156,7 +156,7 @@ environment = { solar_irradiance = 600 }
 }
 
 TEST_CASE("Environment input errors name the key path and what is allowed", "[environment][errors]") {
-  // Wording is part of the interface (STYLE.md).
+  // Wording is part of the interface (DEVELOPERS.md, "Error handling").
   std::string e = common::caseErrorOf(leg + "[run]\nduration = \"1 h\"\n[[events]]\nat = \"2 h\"\nenvironment = { speed = 2 }\n");
   CHECK_THAT(e, Catch::Contains("case.toml:") && Catch::Contains("events.0.at") &&
                     Catch::Contains("not before the end of the run") && Catch::Contains("3600"));

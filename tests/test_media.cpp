@@ -16,7 +16,7 @@ TEST_CASE("air properties match Incropera Table A.4 rows", "[media]") {
   struct Row {
     double T, nu, k, pr;
   };
-  // Incropera et al., Fundamentals of Heat and Mass Transfer, Table A.4 (shared/REFERENCES.md: checked).
+  // Incropera et al., Fundamentals of Heat and Mass Transfer, Table A.4 (docs/references.md: checked).
   for (const Row row : {Row{250, 11.44e-6, 0.0223, 0.720}, Row{300, 15.89e-6, 0.0263, 0.707},
                         Row{350, 20.92e-6, 0.0300, 0.700}}) {
     const FluidProperties air = fluidProperties(Medium::Air, row.T);
@@ -50,7 +50,7 @@ TEST_CASE("fresh water properties match Incropera Table A.6 rows", "[media]") {
   struct Row {
     double T, rho, cp, mu, k, pr;
   };
-  // Incropera et al. Table A.6 (shared/REFERENCES.md): 280 and 300 K checked; at 310 K cp, mu, k
+  // Incropera et al. Table A.6 (docs/references.md): 280 and 300 K checked; at 310 K cp, mu, k
   // checked and rho 993, Pr 4.62 from memory. rho comes from Kell (1975), not the table.
   for (const Row row : {Row{280, 1000, 4198, 1422e-6, 0.582, 10.26}, Row{300, 997, 4179, 855e-6, 0.613, 5.83},
                         Row{310, 993, 4178, 695e-6, 0.628, 4.62}}) {
@@ -125,7 +125,7 @@ TEST_CASE("out-of-range temperatures are clamped and flagged", "[media]") {
 }
 
 TEST_CASE("Buck saturation vapour pressure and its slope", "[media]") {
-  // Buck (1981): 35 degC -> 5626 Pa (shared/REFERENCES.md: checked, computed):
+  // Buck (1981): 35 degC -> 5626 Pa (docs/references.md: checked, computed):
   // 17.502*35/(240.97+35) = 2.219697; exp = 9.204582; *611.21 = 5625.9 Pa.
   CHECK(relErr(saturationVapourPressure(308.15), 5625.9) < 1e-4);
   // Incropera Table A.6 saturation pressures 0.03531 bar at 300 K, 0.06221 bar at 310 K (from memory).
@@ -142,7 +142,7 @@ TEST_CASE("Buck saturation vapour pressure and its slope", "[media]") {
 }
 
 TEST_CASE("latent heat of vaporisation", "[media]") {
-  // About 2.418e6 J/kg at 35 degC (shared/REFERENCES.md, from memory).
+  // About 2.418e6 J/kg at 35 degC (docs/references.md, from memory).
   CHECK(relErr(latentHeatVaporisation(308.15), 2.418e6) < 0.01);
   // Incropera Table A.6 h_fg [kJ/kg]: 300 K 2438, 350 K 2317, 373.15 K 2257 (from memory).
   CHECK(relErr(latentHeatVaporisation(300.0), 2438e3) < 0.005);

@@ -191,7 +191,7 @@ metabolism = { hypometabolism = 1 }
 TEST_CASE("Vasoconstriction and bradycardia at a dive start act at exactly that time", "[physiology][events]") {
   // The dive starts at 600 s, an output time. The run stops at the breakpoint and switches the physiology before
   // writing, so the output at 600 s must carry the dive's flows, and the same state evaluated in the interval before
-  // must carry the surface flows (DESIGN.md "Time"; common practice, no source). Expected multipliers: skin
+  // must carry the surface flows (README, "Physiology over time"; common practice, no source). Expected multipliers: skin
   // 0.2 x bradycardia 0.4 = 0.08; other tissues 0.4 except brain (1); flipper shunts 0.5 -> 0 -> 1 (flushing at
   // the surface). Flows by hand per flipper (a plate: skin volume 2 w L t_skin on both faces): arterial flow into
   // the skin = omega_skin V_skin m_skin + Q_shunt,max m_shunt.

@@ -26,8 +26,8 @@ ROOT = Path(__file__).resolve().parent.parent
 REPORT = ROOT / "postproc" / "report.py"
 PYTHON = sys.argv[1] if len(sys.argv) > 1 else sys.executable
 THERMORPH = sys.argv[2] if len(sys.argv) > 2 else str(ROOT / "build" / "thermorph")
-CAUTION = ("Thresholds such as critical tissue temperatures are species-specific and must come from your own "
-           "sources; these are model estimates for research, not veterinary or medical advice.")
+CAUTION = ("Model estimates for research only; not veterinary or medical advice. Follow local regulations, "
+           "animal-welfare rules and licensed veterinary or medical practice.")
 FAILURES = []
 
 

@@ -1,7 +1,7 @@
-// Physiological sense of the example studies (cases/wading_bird.toml, cases/hare_ears.toml): a countercurrent
-// exchanger in the legs saves heat, and an ear sheds more heat the larger it is when the air is cooler than the
-// skin and gains more when the air is much hotter. Each expectation is common practice, no source; the numbers are
-// printed for the studies' notes.
+// Physiological sense of the example studies (cases/wading_bird.toml, cases/large_bill.toml): a countercurrent
+// exchanger in the legs saves heat; a bill sheds more heat the longer it is when the air is cooler than the blood
+// and gains more when the air is much hotter, less per unit length the longer it is (as a fin), and more with its
+// shunts open. Each expectation is named beside its check; the numbers are printed for the studies' notes.
 #include <catch2/catch.hpp>
 
 #include <cmath>
@@ -118,38 +118,52 @@ TEST_CASE("Wading bird: the leg exchanger saves heat", "[studies]") {
   CHECK(saved > 0.0);
 }
 
-TEST_CASE("Hare ears: heat loss rises with ear size in cool air and turns into a gain in hot air", "[studies]") {
-  // Expectation (common practice, no source): an ear is a fin; with its shunts open and the arterial supply held
-  // at 38.5 degC (a clamped core), its surface exchange h A (T_air - T_surface) + radiation grows with its area,
-  // negative (a loss) when the air and surroundings are cooler than the skin (20 degC) and positive (a gain) when
-  // they are much hotter (45 degC). Steady states, no sun, radiant and sky temperatures equal to the air's; ear
-  // length 6, 9, 12 and 15 cm at 5 cm width. Exchange per ear = convection + radiation (no sun, a dry surface).
-  const double lengths[] = {6.0, 9.0, 12.0, 15.0};  // [cm]
+TEST_CASE("Large bill: exchange grows with bill length, falls per unit length, and rises with open shunts",
+          "[studies]") {
+  // Steady states with the arterial supply held at 40 degC (a clamped core), the controllers off, no sun, radiant
+  // and sky temperatures equal to the air's; bill length 6, 12, 18 and 24 cm with the base and tip radii kept.
+  // Exchange of the bill = convection + radiation (no sun, a dry surface).
+  // Expectations: (1) the exchange is a loss in air cooler than the blood (20 degC) and a gain in air much hotter
+  // (45 degC), and grows in size with the bill's area (common practice, no source); (2) in cool air the loss per
+  // unit length falls with length: the bill is a fin whose efficiency tanh(mL)/(mL) falls with L (Incropera et al.,
+  // fin efficiency, Table 3.4 / eq. 3.89); (3) open arteriovenous shunts carry warm blood past the exchanger into
+  // the distal skin and raise the loss (common practice, no source).
+  const double lengths[] = {6.0, 12.0, 18.0, 24.0};  // [cm]
+  auto exchange = [&](double length, double air, double shunt) {
+    const std::string t = std::to_string(air) + " degC";
+    Body body(loadCase(casePath("large_bill.toml"),
+                       {"segments.bill.length=" + std::to_string(length) + " cm", "environment.temperature=" + t,
+                        "environment.radiant_temperature=" + t, "environment.sky_temperature=" + t,
+                        "environment.substrate_temperature=" + t, "environment.solar_irradiance=0",
+                        "circulation.fixed_arterial_temperature=40 degC", "control.vasomotor.enabled=off",
+                        "control.panting.enabled=off", "segments.bill.vasomotor.shunt=" + std::to_string(shunt)}));
+    RunSummary s = runSteady(body, silentRun());
+    REQUIRE(s.complete);
+    const Network& n = body.network();
+    const Index bill = segmentIndex(body, "bill");
+    const double q = s.flows[bill * n.channels.size() + channelIndex(n, "convection")] +
+                     s.flows[bill * n.channels.size() + channelIndex(n, "radiation")];
+    std::printf("[studies] bill %4.1f cm at %2.0f degC air, shunts %.0f: %+.4f W (%+.4f W/cm)\n", length, air, shunt,
+                q, q / length);
+    return q;
+  };
   for (double air : {20.0, 45.0}) {
-    std::vector<double> exchange;
+    std::vector<double> open, closed;
     for (double length : lengths) {
-      const std::string t = std::to_string(air) + " degC";
-      Body body(loadCase(casePath("hare_ears.toml"),
-                         {"segments.ears.length=" + std::to_string(length) + " cm", "environment.temperature=" + t,
-                          "environment.radiant_temperature=" + t, "environment.sky_temperature=" + t,
-                          "environment.solar_irradiance=0", "circulation.fixed_arterial_temperature=38.5 degC",
-                          "segments.ears.vasomotor.shunt=1"}));
-      RunSummary s = runSteady(body, silentRun());
-      REQUIRE(s.complete);
-      const Network& n = body.network();
-      const Index ears = segmentIndex(body, "ears");
-      const double perEar = s.flows[ears * n.channels.size() + channelIndex(n, "convection")] +
-                            s.flows[ears * n.channels.size() + channelIndex(n, "radiation")];
-      exchange.push_back(perEar);
-      std::printf("[studies] hare ear %4.1f cm at %2.0f degC air: %+.4f W per ear (convection + radiation)\n", length,
-                  air, perEar);
+      open.push_back(exchange(length, air, 1.0));
+      closed.push_back(exchange(length, air, 0.0));
     }
     INFO("air " << air << " degC");
-    for (std::size_t i = 0; i < exchange.size(); ++i) {
-      if (air < 38.5) CHECK(exchange[i] < 0.0);  // a loss in air cooler than the skin
-      if (air > 38.5) CHECK(exchange[i] > 0.0);  // a gain in air much hotter than the skin
+    for (std::size_t i = 0; i < open.size(); ++i) {
+      if (air < 40.0) CHECK(open[i] < 0.0);  // a loss in air cooler than the blood
+      if (air > 40.0) CHECK(open[i] > 0.0);  // a gain in air much hotter than the blood
+      if (air < 40.0) CHECK(open[i] < closed[i]);  // open shunts shed more
       if (i == 0) continue;
-      CHECK(std::abs(exchange[i]) > std::abs(exchange[i - 1]));  // larger ears exchange more
+      CHECK(std::abs(open[i]) > std::abs(open[i - 1]));  // longer bills exchange more
+      if (air < 40.0) {
+        CHECK(open[i] / lengths[i] > open[i - 1] / lengths[i - 1]);      // less loss per cm (a fin)
+        CHECK(closed[i] / lengths[i] > closed[i - 1] / lengths[i - 1]);
+      }
     }
   }
 }

@@ -12,14 +12,14 @@ double relErr(double value, double reference) { return std::abs(value / referenc
 }  // namespace
 
 TEST_CASE("long-wave radiation by hand", "[surface]") {
-  // Skin (eps 0.98, Steketee 1973, shared/REFERENCES.md) at 35 degC facing surroundings at 20 degC.
+  // Skin (eps 0.98, Steketee 1973, docs/references.md) at 35 degC facing surroundings at 20 degC.
   // Stefan-Boltzmann law: 293.15^4 = 7.385155e9, 308.15^4 = 9.016722e9, difference -1.631568e9 K^4;
   // q = 0.98*5.670374419e-8*(-1.631568e9) = -90.666 W/m2 (a loss);
   // dq/dTs = -4*0.98*5.670374419e-8*308.15^3 = -4*0.98*5.670374419e-8*2.926126e7 = -6.5041 W/(m2 K).
   const SurfaceFlux q = longwaveRadiation(0.98, 308.15, 293.15);
   CHECK(relErr(q.flux, -90.666) < 1e-4);
   CHECK(relErr(q.dFlux_dTs, -6.5041) < 1e-4);
-  // Linearised form q = h_r (T_r - T_s) holds exactly (shared/REFERENCES.md; Incropera ch. 1).
+  // Linearised form q = h_r (T_r - T_s) holds exactly (docs/references.md; Incropera ch. 1).
   CHECK(relErr(radiativeCoefficient(0.98, 308.15, 293.15) * (293.15 - 308.15), q.flux) < 1e-12);
   // Derivative against a central difference (consistency).
   const double fd =
@@ -72,7 +72,7 @@ TEST_CASE("evaporation from a fully wetted surface into dry air, by hand", "[sur
 }
 
 TEST_CASE("Lewis ratio implied by the analogy", "[surface]") {
-  // LR ~ 16.5 K/kPa in air at sea level (shared/REFERENCES.md, from memory) = 0.0165 K/Pa.
+  // LR ~ 16.5 K/kPa in air at sea level (docs/references.md, from memory) = 0.0165 K/Pa.
   CHECK(relErr(lewisRatio(300.0), 16.5e-3) < 0.03);
   // Le of water vapour in air near 300 K, 1 atm: alpha = 0.0263/(1.1766*1007) = 22.20e-6 m2/s (Table A.4
   // k and cp, ideal-gas density at 101325 Pa) over D_AB = 0.26e-4*(300/298)^1.5 = 26.26e-6 m2/s

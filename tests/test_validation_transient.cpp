@@ -116,7 +116,7 @@ std::vector<CoolingError> coolingErrors(Shape shape, int cells, double bi, std::
 }  // namespace
 
 TEST_CASE("Series roots and coefficients at Bi = 1 and 10 match Incropera Table 5.1", "[validation]") {
-  // Incropera et al., Table 5.1 (values in /work/shared/REFERENCES.md for Bi = 1; Bi = 10 and 0.1 from memory).
+  // Incropera et al., Table 5.1 (values in docs/references.md for Bi = 1; Bi = 10 and 0.1 from memory).
   struct Row {
     double bi;
     Shape shape;
@@ -124,8 +124,8 @@ TEST_CASE("Series roots and coefficients at Bi = 1 and 10 match Incropera Table 
     const char* source;
   };
   const Row rows[] = {
-      {1.0, Shape::Cylinder, 1.2558, 1.2071, "Incropera Table 5.1 (REFERENCES.md)"},
-      {1.0, Shape::Sphere, 1.5708, 1.2732, "Incropera Table 5.1 (REFERENCES.md)"},
+      {1.0, Shape::Cylinder, 1.2558, 1.2071, "Incropera Table 5.1 (docs/references.md)"},
+      {1.0, Shape::Sphere, 1.5708, 1.2732, "Incropera Table 5.1 (docs/references.md)"},
       {10.0, Shape::Cylinder, 2.1795, 1.5677, "Incropera Table 5.1 (from memory)"},
       {10.0, Shape::Sphere, 2.8363, 1.9249, "Incropera Table 5.1 (from memory)"},
       {0.1, Shape::Cylinder, 0.4417, 1.0246, "Incropera Table 5.1 (from memory)"},

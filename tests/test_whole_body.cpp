@@ -322,7 +322,7 @@ temperature = "20 degC"
 TEST_CASE("A conducting appendage reproduces the pin fin with a convective tip", "[wholebody]") {
   // Pin fin with convective tip (Incropera et al., Table 3.4, eqs. 3.72/3.77): m^2 = hP/(k A_c),
   // M = sqrt(h P k A_c) theta_b, q = M [sinh mL + (h/mk) cosh mL] / [cosh mL + (h/mk) sinh mL]. Incropera's
-  // example values (REFERENCES.md): D 5 mm, L 50 mm, k 398, h 100, theta_b 75 K -> 5.160 W. The pin's heat flow is
+  // example values (docs/references.md): D 5 mm, L 50 mm, k 398, h 100, theta_b 75 K -> 5.160 W. The pin's heat flow is
   // its `conduction` channel (what enters through the attachment). Criterion: within 1 % at 100 axial cells (the
   // 1-D fin neglects the radial gradient; Bi = h r / k = 6e-4, which leaves a floor near 1e-4). Convergence:
   // successive differences q(2N) - q(N) fall by about four per halving (second order, common practice).
@@ -332,7 +332,7 @@ TEST_CASE("A conducting appendage reproduces the pin fin with a convective tip",
     return std::sqrt(h * P * k * A) * thetaB * (std::sinh(m * L) + ratio * std::cosh(m * L)) /
            (std::cosh(m * L) + ratio * std::sinh(m * L));
   };
-  CHECK(std::abs(finRate(75.0) - 5.160) <= 0.0005);  // Incropera's worked value, 5.160 W (REFERENCES.md)
+  CHECK(std::abs(finRate(75.0) - 5.160) <= 0.0005);  // Incropera's worked value, 5.160 W (docs/references.md)
 
   std::vector<double> rates;
   for (int cells : {5, 10, 20, 100}) {
@@ -364,10 +364,10 @@ TEST_CASE("A conducting appendage reproduces the pin fin with a convective tip",
 
 TEST_CASE("Kleiber basal rate of a 10 kg body at the Q10 reference temperature", "[wholebody]") {
   // Kleiber (1932, Hilgardia 6:315; 1961): basal rate 70 M^0.75 kcal/day = 3.39 W x M^0.75 (1 kcal = 4184 J,
-  // REFERENCES.md). With basal_metabolic_rate = "kleiber" the tissue rates are scaled so that the metabolism
+  // docs/references.md). With basal_metabolic_rate = "kleiber" the tissue rates are scaled so that the metabolism
   // channel at the Q10 reference temperature is that rate. Criteria: 3.39 x 10^0.75 W within 0.1 % (3.39 is
   // rounded) and 70 kcal/day exactly (1e-12); Q10 = 2 doubles it 10 K above the reference (Q10 definition,
-  // REFERENCES.md); activity multiplies it.
+  // docs/references.md); activity multiplies it.
   const std::string bodyText = R"(
 [run]
 initial_temperature = "36 degC"
@@ -459,7 +459,7 @@ TEST_CASE("Jacobian with the whole circulation matches central finite difference
   // deep and superficial returns and loses rho c Q_total on its diagonal; a leg's first arterial cell receives
   // rho c times the leg's draw from the trunk's arterial cell 3 (attach_position 0.8 of 4 cells); the trunk's deep
   // vein there receives 2 x the leg's deep return; a leg cell's artery sees its vein through G/N (upwind advection
-  // and the countercurrent conductance as in DESIGN.md).
+  // and the countercurrent conductance as in the README, "A whole body").
   TestBody spec;
   spec.fleshHeat = 1000.0;
   spec.skinHeat = 400.0;
@@ -581,7 +581,7 @@ TEST_CASE("The central pool holds the blood volume the segment vessels do not", 
 }
 
 TEST_CASE("Bad trees and negative flows are case errors naming the segments", "[wholebody][errors]") {
-  // Error wording is part of the interface (STYLE.md): each message names the segment(s) and the problem.
+  // Error wording is part of the interface (DEVELOPERS.md, "Error handling"): each message names the segment(s) and the problem.
   const std::string tissues = R"(
 [tissues.flesh]
 conductivity = 0.5

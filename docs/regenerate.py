@@ -1,0 +1,301 @@
+#!/usr/bin/env python3
+"""Numbers quoted in the docs, regenerated from thermorph runs (and checked by the test `docs_current`).
+
+    /usr/bin/python3 docs/regenerate.py              check: exit 1 and show what drifted
+    /usr/bin/python3 docs/regenerate.py --write      rewrite the generated parts in place
+    /usr/bin/python3 docs/regenerate.py --refine     rerun with doubled axial and radial cells; print changes
+
+Options: --exe PATH (default build/thermorph), FILE... (default README.md and cases/*.md).
+
+A generated part of a Markdown file sits between two HTML comments (invisible when rendered):
+
+    <!-- gen-run NAME: run cases/x.toml --set KEY=VALUE -->   a named run (run | steady | sweep + arguments)
+    <!-- gen:NAME FMT EXPR -->36.72<!-- /gen -->                 one number: EXPR on run NAME, formatted by FMT
+    <!-- gen:budget NAME -->                                      a block: the heat budget printed by run NAME
+    ...
+    <!-- /gen -->
+
+EXPR is a Python expression over `r`, the run's results (see `Result` below: r.core, r.flow("convection",
+"bill"), r.exchange("bill"), r.at(values, "2 h"), r.control("panting"), ...; for a sweep, r.rows, r.pick(METRIC, length=12) and r.pick_exchange(SEGMENT, ...)),
+with numpy as `np`; run("OTHER") gives another named run's results. FMT is a format specification (`.2f`, `.3g`, `d`) or `s` for a string.
+Run names are shared by every scanned file, so a note can use a run defined in another.
+
+Check: the text between the markers must match what the runs give now. Numbers may differ by one unit in their
+last printed digit (a last-ulp difference of the maths library between machines) or by 1e-6 in absolute terms
+(round-off-level residuals); anything else is drift.
+"""
+import argparse
+import csv
+import difflib
+import re
+import shlex
+import subprocess
+import sys
+import tempfile
+import tomllib
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+ROOT = Path(__file__).resolve().parent.parent
+RUN_RE = re.compile(r"<!-- gen-run (\w+): (.*?) -->")
+GEN_RE = re.compile(r"(<!-- gen:(.*?) -->)(.*?)(<!-- /gen -->)", re.S)
+NUMBER_RE = re.compile(r"[-+−]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?")
+TIME_UNITS = {"s": 1.0, "min": 60.0, "h": 3600.0}
+
+
+def seconds(t):
+    """A time as seconds: a number, or text like "90 min" or "2 h"."""
+    if isinstance(t, str):
+        value, unit = t.split()
+        return float(value) * TIME_UNITS[unit]
+    return float(t)
+
+
+class Result:
+    """A results file (run, steady) or a sweep table, with helpers for expressions."""
+
+    def __init__(self, kind, path, stdout):
+        self.kind, self.stdout = kind, stdout
+        if kind == "sweep":
+            with open(path.with_suffix(".csv"), newline="") as fh:
+                self.rows = [{k.split(" [")[0]: _number(v) for k, v in row.items()} for row in csv.DictReader(fh)]
+            return
+        with h5py.File(path, "r") as f:
+            self.t = f["time"][...]
+            self.core = f["body/core_temperature"][...]
+            self.blood = f["body/blood_temperature"][...]
+            self.skin = f["body/mean_skin_temperature"][...]
+            self._body = {k: v[...] for k, v in f["body/heat_flow"].items()}
+            self._seg, self._surface, self._mean = {}, {}, {}
+            for name, g in f["segments"].items():
+                self._seg[name] = {k: v[...] for k, v in g["heat_flow"].items()}
+                self._surface[name] = g["surface_temperature"][...].mean(axis=1)
+                vol = g["volume"][...]
+                self._mean[name] = (g["temperature"][...] * vol).sum(axis=(1, 2)) / vol.sum()
+                if "arterial_temperature" in g:
+                    self._seg[name]["_arterial"] = g["arterial_temperature"][...]
+                    self._seg[name]["_venous"] = g["venous_temperature"][...]
+            self._control = {k: v[...] for k, v in f["control"].items()} if "control" in f else {}
+
+    # --- runs and steady states ---
+    def flow(self, channel, segment=None):
+        """Heat flow of a channel [W], whole body (counts included) or one copy of a segment."""
+        return (self._body if segment is None else self._seg[segment])[channel]
+
+    def exchange(self, segment=None):
+        """Exchange with the surroundings [W]: convection + radiation + solar + evaporation + substrate."""
+        src = self._body if segment is None else self._seg[segment]
+        return sum(src[c] for c in ("convection", "radiation", "solar", "evaporation", "substrate") if c in src)
+
+    def surface(self, segment):
+        """Mean surface temperature of a segment's axial cells [degC]."""
+        return self._surface[segment]
+
+    def mean(self, segment):
+        """Volume-mean tissue temperature of a segment [degC] (coat included when the file stores it)."""
+        return self._mean[segment]
+
+    def arterial(self, segment):
+        return self._seg[segment]["_arterial"]
+
+    def venous(self, segment):
+        return self._seg[segment]["_venous"]
+
+    def control(self, name):
+        return self._control[name]
+
+    def at(self, values, time):
+        """Linear interpolation of a time series at a time (seconds or text like "2 h")."""
+        return float(np.interp(seconds(time), self.t, values))
+
+    def first(self, values, above=None, below=None):
+        """First time [s] a series is above (or below) a value, linear between outputs; NaN: never."""
+        v = np.asarray(values, dtype=float)
+        hit = v > above if above is not None else v < below
+        if not hit.any():
+            return float("nan")
+        i = int(np.argmax(hit))
+        if i == 0:
+            return float(self.t[0])
+        level = above if above is not None else below
+        return float(self.t[i - 1] + (level - v[i - 1]) / (v[i] - v[i - 1]) * (self.t[i] - self.t[i - 1]))
+
+    def budget(self):
+        """The heat budget table printed by `run` / `steady` (from its heading to the energy-balance line)."""
+        lines = self.stdout.splitlines()
+        start = next(i for i, line in enumerate(lines) if line.startswith("Heat budget"))
+        end = next((i for i, line in enumerate(lines) if line.startswith("Energy balance")), len(lines) - 1)
+        return "\n".join(lines[start:end + 1])
+
+    # --- sweeps ---
+    def _row(self, where):
+        """The one sweep row whose parameters match `where` (a key matches a parameter ending in .KEY)."""
+        def match(row, key, value):
+            names = [k for k in row if k == key or k.endswith("." + key)]
+            return any(row[k] == value for k in names)
+        rows = [row for row in self.rows if all(match(row, k, v) for k, v in where.items())]
+        if len(rows) != 1:
+            raise SystemExit(f"regenerate: {len(rows)} sweep rows match {where}")
+        return rows[0]
+
+    def pick(self, metric, **where):
+        """A sweep metric of the row matching `where`, e.g. pick("body.core_temperature.final", length=12)."""
+        return self._row(where)[metric]
+
+    def pick_exchange(self, segment, **where):
+        """Sum of a segment's exchange channels (convection, radiation, solar, evaporation, substrate) [W]."""
+        row = self._row(where)
+        return sum(row.get(f"segments.{segment}.heat_flow.{c}", 0.0)
+                   for c in ("convection", "radiation", "solar", "evaporation", "substrate"))
+
+
+def _number(text):
+    try:
+        return float(text)
+    except ValueError:
+        return text
+
+
+class Runner:
+    def __init__(self, exe, runs, refine=False):
+        self.exe, self.runs, self.refine = exe, runs, refine
+        self.cache = {}
+        self.tmp = Path(tempfile.mkdtemp(prefix="thermorph-docs-"))
+
+    def refined_overrides(self, case_arg, extra_sets):
+        """--set arguments doubling every segment's axial cells and every layer's and coat's radial cells."""
+        case = tomllib.loads((ROOT / case_arg).read_text())
+        sets = []
+        for s in case.get("segments", []):
+            name = s["name"]
+            for key, value in extra_sets:
+                if key == f"segments.{name}.axial_cells":
+                    s["axial_cells"] = int(value)
+            sets.append(f"segments.{name}.axial_cells={2 * int(s.get('axial_cells', 1))}")
+            for i, layer in enumerate(s.get("layers", [])):
+                sets.append(f"segments.{name}.layers.{i}.cells={2 * int(layer.get('cells', 1))}")
+            if "coat" in s:
+                sets.append(f"segments.{name}.coat.cells={2 * int(s['coat'].get('cells', 1))}")
+        return sets
+
+    def get(self, name):
+        if name in self.cache:
+            return self.cache[name]
+        if name not in self.runs:
+            raise SystemExit(f"regenerate: no run named {name!r} (define it with <!-- gen-run {name}: run CASE -->)")
+        args = shlex.split(self.runs[name])
+        kind, case = args[0], args[1]
+        if self.refine:
+            sets = [a.split("=", 1) for a in args if "=" in a]
+            extra = []
+            for s in self.refined_overrides(case, sets):
+                extra += ["--set", s]
+            args = args + extra
+        out = self.tmp / f"{name}.h5"
+        cmd = [str(self.exe)] + [str(ROOT / a) if i == 1 else a for i, a in enumerate(args)] + ["-o", str(out), "-q"]
+        proc = subprocess.run(cmd, capture_output=True, text=True, cwd=self.tmp)
+        if proc.returncode != 0:
+            raise SystemExit(f"regenerate: run {name} failed ({proc.returncode}): {' '.join(cmd)}\n{proc.stderr}")
+        self.cache[name] = Result(kind, out, proc.stdout)
+        return self.cache[name]
+
+
+def namespace(runner, run):
+    """Names an expression sees: r (the marker's run), run("OTHER") (any other named run), np and a few builtins."""
+    return {"np": np, "r": runner.get(run), "run": runner.get, "abs": abs, "min": min, "max": max, "sum": sum}
+
+
+def value_of(spec, runner):
+    """The unformatted value of a one-number marker (None for blocks)."""
+    words = spec.split(None, 2)
+    if words[0] == "budget" or len(words) < 3:
+        return None
+    return eval(words[2], namespace(runner, words[0]))
+
+
+def render(spec, runner):
+    """The text a marker's spec stands for."""
+    words = spec.split(None, 2)
+    if words[0] == "budget":
+        return "\n```\n" + runner.get(words[1]).budget() + "\n```\n"
+    if len(words) < 3:
+        raise SystemExit(f"regenerate: bad marker <!-- gen:{spec} --> (want: RUN FMT EXPR, or budget RUN)")
+    run, fmt, expr = words
+    r = runner.get(run)
+    value = eval(expr, namespace(runner, run))  # noqa: S307 (our own docs)
+    if fmt == "s":
+        return str(value)
+    return format(value, fmt)
+
+
+def last_digit_unit(text):
+    """One unit of the last printed digit of a number's text (1 for integers)."""
+    mantissa, _, exponent = text.lower().replace("−", "-").partition("e")
+    decimals = len(mantissa.split(".")[1]) if "." in mantissa else 0
+    return 10.0 ** (-decimals + (int(exponent) if exponent else 0))
+
+
+def same(old, new):
+    """Equal text apart from numbers within one unit of the last digit or 1e-6 absolute."""
+    split_old, split_new = NUMBER_RE.split(old), NUMBER_RE.split(new)
+    nums_old, nums_new = NUMBER_RE.findall(old), NUMBER_RE.findall(new)
+    if split_old != split_new or len(nums_old) != len(nums_new):
+        return False
+    for a, b in zip(nums_old, nums_new):
+        x, y = float(a.replace("−", "-")), float(b.replace("−", "-"))
+        if abs(x - y) > max(1.0001 * last_digit_unit(a), 1e-6):
+            return False
+    return True
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    ap.add_argument("files", nargs="*")
+    ap.add_argument("--write", action="store_true", help="rewrite the generated parts")
+    ap.add_argument("--refine", action="store_true", help="double every axial and radial cell count; print changes")
+    ap.add_argument("--exe", default=str(ROOT / "build" / "thermorph"))
+    a = ap.parse_args()
+    files = [Path(f) for f in a.files] or [ROOT / "README.md"] + sorted((ROOT / "cases").glob("*.md"))
+    texts = {f: f.read_text() for f in files}
+    runs = {}
+    for f in sorted((ROOT / "cases").glob("*.md")) + [ROOT / "README.md"] + files:
+        for name, command in RUN_RE.findall(f.read_text()):
+            runs[name] = command
+    runner = Runner(Path(a.exe).resolve(), runs)
+    refined = Runner(Path(a.exe).resolve(), runs, refine=True) if a.refine else None
+    drift = 0
+    for f, text in texts.items():
+        def substitute(m):
+            nonlocal drift
+            new = render(m.group(2), runner)
+            coarse = value_of(m.group(2), runner) if refined is not None else None
+            if isinstance(coarse, (int, float)):
+                fine = value_of(m.group(2), refined)
+                rel = abs(fine - coarse) / max(abs(coarse), 1e-300)
+                print(f"{f.name}: {m.group(2)}: {coarse:.6g} -> {fine:.6g} with doubled cells ({100 * rel:.2f} %)")
+            if not same(m.group(3), new):
+                drift += 1
+                rel = f.relative_to(ROOT) if f.is_relative_to(ROOT) else f
+                print(f"DRIFT {rel}: <!-- gen:{m.group(2)} -->")
+                for line in difflib.unified_diff(m.group(3).splitlines(), new.splitlines(), "in the file", "now",
+                                                 lineterm="", n=0):
+                    print("    " + line)
+            return m.group(1) + new + m.group(4)
+        out = GEN_RE.sub(substitute, text)
+        if a.write and out != text:
+            f.write_text(out)
+            print(f"rewrote {f}")
+    if a.refine:
+        return 0
+    if drift and not a.write:
+        print(f"{drift} generated part(s) drifted: run /usr/bin/python3 docs/regenerate.py --write and review the diff")
+        return 1
+    print(f"docs: {sum(len(GEN_RE.findall(t)) for t in texts.values())} generated parts "
+          + ("rewritten" if a.write else "current"))
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
