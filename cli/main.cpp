@@ -9,7 +9,9 @@
 
 #include "models/body.hpp"
 #include "models/case.hpp"
+#include "drivers/output_file.hpp"
 #include "drivers/simulation.hpp"
+#include "drivers/stop_signal.hpp"
 #include "cli/sweep_cli.hpp"
 #include "cli/fit_cli.hpp"
 #include "cli/sensitivity_cli.hpp"
@@ -80,6 +82,8 @@ void describe(const Body& body) {
 }  // namespace
 
 int main(int argc, char** argv) {
+  skipHdf5CleanupAtExit();  // before any HDF5 call (drivers/output_file.hpp)
+  ignoreFileSizeSignal();   // a file-size limit is a write error, not a kill (drivers/stop_signal.hpp)
   CLI::App app{"thermorph: tissue temperatures and heat budgets of animal bodies built from linked segments.\n"
                "Model estimates for research; not veterinary or medical advice."};
   app.set_version_flag("--version", std::string(THERMORPH_VERSION));
@@ -145,6 +149,11 @@ int main(int argc, char** argv) {
   if (uncertainty->parsed()) return runUncertaintyCli(uncertaintyOptions, commandLine);
   try {
     Case c = loadCase(casePath, overrides);
+    if (!check->parsed()) {
+      // The output is checked before any computing (drivers/output_file.hpp).
+      if (output.empty()) output = defaultOutput(casePath);
+      checkOutputPath(output, inputPaths(c), {incompleteOutputPath(output)});
+    }
     Body body(c);
     for (const std::string& w : body.warnings()) fmt::print(stderr, "warning: {}\n", w);
     if (check->parsed()) {
@@ -152,14 +161,23 @@ int main(int argc, char** argv) {
       else describe(body);
       return 0;
     }
+    if (run->parsed())
+      if (std::string w = projectedOutputWarning(body); !w.empty()) fmt::print(stderr, "warning: {}\n", w);
     RunOptions options;
-    options.output = output.empty() ? defaultOutput(casePath) : output;
+    options.output = output;
     options.commandLine = commandLine;
     options.quiet = quiet;
     options.linearSolver = dense ? LinearSolverKind::Dense : LinearSolverKind::Klu;
+    StopSignalGuard signals;  // SIGINT/SIGTERM: stop at the next step, keep the outputs so far
+    options.stop = &stopRequested();
     RunSummary summary = run->parsed() ? runTransient(body, options) : runSteady(body, options);
     printBudget(body, summary, stdout);
     for (const std::string& w : body.environment().warnings()) fmt::print(stderr, "warning: {}\n", w);
+    if (summary.stopped) {
+      fmt::print(stderr, "stopped by {}.\nPartial results up to t = {:g} s kept in {} (marked incomplete).\n",
+                 stopSignalName(), summary.finalTime, summary.outputPath);
+      return stopExitCode();
+    }
     if (!summary.complete) {
       fmt::print(stderr, "error: {}\nPartial results up to t = {:g} s kept in {} (marked incomplete).\n",
                  summary.failure, summary.finalTime, summary.outputPath);
