@@ -786,7 +786,9 @@ std::string caseReferenceMarkdown() {
   os << "# Case-file reference\n\n"
      << "Generated from the parameter schema in `models/case_schema.cpp` by `thermorph reference`; do not edit by hand.\n"
      << "Every dimensional value is a number in SI units or a string with a unit parsed by udunits2 (`\"12 cm\"`, "
-        "`\"37 degC\"`, `\"30 mL/(100 g min)\"`). Temperatures accept degC and K; a bare number is kelvin.\n"
+        "`\"37 degC\"`, `\"30 mL/(100 g min)\"`). Temperatures accept degC and K; a bare number is kelvin. A quoted "
+        "number without a unit (`\"18\"`) is refused. Limits (nesting, segments, tree depth, outputs): README, "
+        "\"Limits and guarantees\".\n"
      << "Key paths are those of `--set KEY=VALUE`; segments are addressed by name "
         "(`segments.ear.layers.0.thickness`).\n\n"
      << "| key | kind | SI unit | default | allowed | description |\n|---|---|---|---|---|---|\n";
