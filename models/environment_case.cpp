@@ -388,7 +388,7 @@ std::vector<std::string> changedKeys(const EventSpec& e) {
   return keys;
 }
 
-//! Two [[events]] changing the same value at the same time: which one wins is not defined, so the case is refused
+//! Two [[events]] stepping the same value at the same time: which one wins is not defined, so the case is refused
 //! naming both. `tableEvents`: how many of `read` come from [[events]] (weather rows follow; a row's step and the
 //! ramp to the next row start together by construction, and events inside a weather ramp are refused later).
 void refuseSimultaneousChanges(const CaseReader& reader, const std::vector<EventSpec>& read,
@@ -397,7 +397,9 @@ void refuseSimultaneousChanges(const CaseReader& reader, const std::vector<Event
   std::map<std::string, std::size_t> atThisTime;  // key -> event, for the events at one time
   double time = -1.0;
   for (const std::size_t index : order) {
-    if (index >= tableEvents) continue;
+    // Steps only: a ramp starting with a step at its start is well defined (the resolved form of weather rows),
+    // and a change during a ramp is refused below.
+    if (index >= tableEvents || read[index].ramp > 0.0) continue;
     if (read[index].at != time) atThisTime.clear();
     time = read[index].at;
     for (const std::string& key : changedKeys(read[index])) {
