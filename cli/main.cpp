@@ -11,7 +11,9 @@
 #include "models/case.hpp"
 #include "models/caution.hpp"
 #include "models/grid.hpp"
+#include "drivers/output_file.hpp"
 #include "drivers/simulation.hpp"
+#include "drivers/stop_signal.hpp"
 #include "cli/sweep_cli.hpp"
 #include "cli/fit_cli.hpp"
 #include "cli/sensitivity_cli.hpp"
@@ -83,6 +85,8 @@ void describe(const Body& body) {
 }  // namespace
 
 int main(int argc, char** argv) {
+  skipHdf5CleanupAtExit();  // before any HDF5 call (drivers/output_file.hpp)
+  ignoreFileSizeSignal();   // a file-size limit is a write error, not a kill (drivers/stop_signal.hpp)
   CLI::App app{std::string("thermorph: tissue temperatures and heat budgets of animal bodies built from linked segments.\n"
                            "Caution: ") + caution};
   app.set_version_flag("--version", std::string(THERMORPH_VERSION));
@@ -154,6 +158,11 @@ int main(int argc, char** argv) {
   if (refine->parsed()) return runRefineCli();
   try {
     Case c = loadCase(casePath, overrides);
+    if (!check->parsed()) {
+      // The output is checked before any computing (drivers/output_file.hpp).
+      if (output.empty()) output = defaultOutput(casePath);
+      checkOutputPath(output, inputPaths(c), {incompleteOutputPath(output)});
+    }
     Body body(c);
     for (const std::string& w : body.warnings()) fmt::print(stderr, "warning: {}\n", w);
     if (check->parsed()) {
@@ -164,14 +173,23 @@ int main(int argc, char** argv) {
       }
       return 0;
     }
+    if (run->parsed())
+      if (std::string w = projectedOutputWarning(body); !w.empty()) fmt::print(stderr, "warning: {}\n", w);
     RunOptions options;
-    options.output = output.empty() ? defaultOutput(casePath) : output;
+    options.output = output;
     options.commandLine = commandLine;
     options.quiet = quiet;
     options.linearSolver = dense ? LinearSolverKind::Dense : LinearSolverKind::Klu;
+    StopSignalGuard signals;  // SIGINT/SIGTERM: stop at the next step, keep the outputs so far
+    options.stop = &stopRequested();
     RunSummary summary = run->parsed() ? runTransient(body, options) : runSteady(body, options);
     printBudget(body, summary, stdout);
     for (const std::string& w : body.environment().warnings()) fmt::print(stderr, "warning: {}\n", w);
+    if (summary.stopped) {
+      fmt::print(stderr, "stopped by {}.\nPartial results up to t = {:g} s kept in {} (marked incomplete).\n",
+                 stopSignalName(), summary.finalTime, summary.outputPath);
+      return stopExitCode();
+    }
     if (!summary.complete) {
       fmt::print(stderr, "error: {}\nPartial results up to t = {:g} s kept in {} (marked incomplete).\n",
                  summary.failure, summary.finalTime, summary.outputPath);

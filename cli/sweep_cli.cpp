@@ -30,7 +30,8 @@ CLI::App* addSweepSubcommand(CLI::App& app, SweepOptions& o) {
       ->allow_extra_args(false);
   sweep->add_option("--window", o.window, "Averaging window START:END, e.g. \"30 min:1 h\"; default: the whole run");
   sweep->add_flag("--steady", o.steady, "Steady state of every run (KINSOL) instead of the transient run");
-  sweep->add_option("-j,--jobs", o.jobs, "Worker threads (default: all cores); under mpirun one run per rank");
+  sweep->add_option("-j,--jobs", o.jobs, "Worker threads, up to 1024; 0 or omitted: all cores. Under mpirun one run per rank")
+      ->check(CLI::Range(0, 1024));
   sweep->add_option("-o,--output", o.output, "Result table (HDF5); the CSV goes beside it. Default: CASE-NAME_sweep.h5");
   sweep->add_flag("--resume", o.resume, "Continue an interrupted sweep: only runs missing from OUT.progress are run");
   sweep->add_flag("-q,--quiet", o.quiet, "No progress bar");

@@ -3,6 +3,7 @@
 #include <ctime>
 #include <filesystem>
 
+#include "drivers/output_file.hpp"
 #include "drivers/provenance.hpp"
 #include "models/case.hpp"
 #include "models/caution.hpp"
@@ -96,9 +97,6 @@ void Recorder::finish(RunSummary& summary, bool steady) {
   summary.outputPath = summary.complete ? f.commit() : f.commit(incompletePath_);
 }
 
-std::string incompleteName(const std::string& output) {
-  std::filesystem::path p(output);
-  return (p.parent_path() / (p.stem().string() + ".incomplete" + p.extension().string())).string();
-}
+std::string incompleteName(const std::string& output) { return incompleteOutputPath(output); }
 
 }  // namespace thermorph

@@ -2,7 +2,6 @@
 
 #include <hdf5.h>
 #include <hdf5_hl.h>
-#include <unistd.h>
 
 #include <filesystem>
 #include <numeric>
@@ -10,11 +9,16 @@
 
 #include <fmt/format.h>
 
+#include "drivers/output_file.hpp"
+
 namespace thermorph {
 namespace {
 
 void checkH5(long long status, const std::string& what) {
-  if (status < 0) throw std::runtime_error(fmt::format("HDF5: cannot {}", what));
+  if (status < 0) {
+    const std::string reason = writeFailureReason();
+    throw OutputError(fmt::format("HDF5: cannot {}{}", what, reason.empty() ? "" : ": " + reason));
+  }
 }
 
 void writeStringAttribute(hid_t object, const std::string& name, const std::string& value) {
@@ -40,16 +44,30 @@ ResultsFile::ResultsFile(std::string finalPath) : finalPath_(std::move(finalPath
   std::filesystem::path dir = p.parent_path().empty() ? std::filesystem::path(".") : p.parent_path();
   if (!std::filesystem::is_directory(dir))
     throw std::runtime_error(fmt::format("output folder {} does not exist", dir.string()));
-  temporaryPath_ = (dir / fmt::format(".{}.tmp-{}", p.filename().string(), ::getpid())).string();
+  temporary_ = std::make_unique<TemporaryFile>(finalPath_);  // a short name beside it (drivers/output_file.hpp)
   H5Eset_auto2(H5E_DEFAULT, nullptr, nullptr);
-  file_ = H5Fcreate(temporaryPath_.c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, H5P_DEFAULT);
-  checkH5(file_, "create " + temporaryPath_);
+  file_ = H5Fcreate(temporary_->path().c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, H5P_DEFAULT);
+  checkH5(file_, "create " + temporary_->path() + " for " + finalPath_);
 }
 
 ResultsFile::~ResultsFile() {
-  for (Series& s : series_) H5Dclose(s.dataset);
-  if (file_ >= 0) H5Fclose(file_);
-  if (!committed_) std::filesystem::remove(temporaryPath_);
+  close();  // the temporary file is removed by temporary_ unless committed
+}
+
+const std::string& ResultsFile::temporaryPath() const { return temporary_->path(); }
+
+bool ResultsFile::close() {
+  bool ok = true;
+  for (Series& s : series_) ok = H5Dclose(s.dataset) >= 0 && ok;
+  series_.clear();
+  if (file_ >= 0) {
+    // The handle is given up whatever H5Fclose returns: closing it again (the destructor after a failed
+    // commit) crashed HDF5.
+    const hid_t file = file_;
+    file_ = -1;
+    ok = H5Fclose(file) >= 0 && ok;
+  }
+  return ok;
 }
 
 long long ResultsFile::ensureGroup(const std::string& path) {
@@ -310,12 +328,14 @@ void ResultsFile::setAttribute(const std::string& object, const std::string& nam
 }
 
 std::string ResultsFile::commit(const std::string& otherPath) {
-  for (Series& s : series_) H5Dclose(s.dataset);
-  series_.clear();
-  checkH5(H5Fclose(file_), "close " + temporaryPath_);
-  file_ = -1;
-  std::string target = otherPath.empty() ? finalPath_ : otherPath;
-  std::filesystem::rename(temporaryPath_, target);
+  const std::string target = otherPath.empty() ? finalPath_ : otherPath;
+  if (!close()) {
+    const std::string reason = writeFailureReason();
+    temporary_->discard();
+    throw OutputError(fmt::format("cannot write the results file {}{}; {} is unchanged", target,
+                                  reason.empty() ? "" : ": " + reason, target));
+  }
+  temporary_->commit(target);
   committed_ = true;
   return target;
 }

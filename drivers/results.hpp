@@ -9,11 +9,14 @@
 //! there; the time dimension of each series is attached to its group's copy. Other axes are attached to
 //! coordinates of the same group made with makeCoordinate (e.g. a segment's `radius` and `axial`).
 #include <cstdint>
+#include <memory>
 #include <span>
 #include <string>
 #include <vector>
 
 namespace thermorph {
+
+class TemporaryFile;
 
 class ResultsFile {
  public:
@@ -49,9 +52,10 @@ class ResultsFile {
   void setAttribute(const std::string& object, const std::string& name, double value);
   void setAttribute(const std::string& object, const std::string& name, long value);
 
-  //! Close and move to the final path (or `otherPath` when given). Returns the path written.
+  //! Close and move to the final path (or `otherPath` when given). Returns the path written. Throws OutputError
+  //! when the file cannot be completed (disk full): the temporary file is then removed.
   std::string commit(const std::string& otherPath = "");
-  const std::string& temporaryPath() const { return temporaryPath_; }
+  const std::string& temporaryPath() const;
 
  private:
   long long ensureGroup(const std::string& path);
@@ -65,7 +69,10 @@ class ResultsFile {
     std::vector<std::uint64_t> shape;
     std::uint64_t count;
   };
-  std::string finalPath_, temporaryPath_;
+  //! Closes every series and the file; false when HDF5 could not flush them.
+  bool close();
+  std::string finalPath_;
+  std::unique_ptr<TemporaryFile> temporary_;
   long long file_ = -1;
   std::vector<Series> series_;
   static constexpr std::size_t noSeries = static_cast<std::size_t>(-1);

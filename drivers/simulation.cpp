@@ -22,7 +22,10 @@ std::vector<double> initialState(const Body& body, const NetworkSystem& system) 
 //! unphysical iterates, so the state is first relaxed in pseudo-time by CVODE with time frozen at 0, from the
 //! guess until it changes by less than 1e-7 K/s, then polished by KINSOL: the steady state reached is the
 //! stable one the body would settle in from that start.
-std::vector<double> steadyTemperatures(const Body& body, std::span<const double> guess, SolverStatistics* stats) {
+//! With `stop` set during the relaxation, returns the relaxed state so far at the next step (no Newton polish)
+//! and sets `*stopped`.
+std::vector<double> steadyTemperatures(const Body& body, std::span<const double> guess, SolverStatistics* stats,
+                                       const std::atomic<bool>* stop = nullptr, bool* stopped = nullptr) {
   NetworkSystem transient(body.network(), NetworkSystem::Mode::Transient);
   transient.freezeTime(0.0);
   const Index states = transient.nodeCount() + transient.controlCount();
@@ -37,7 +40,10 @@ std::vector<double> steadyTemperatures(const Body& body, std::span<const double>
   double horizon = 600.0;
   for (int k = 0; k < 40 && horizon < 1e10; ++k, horizon *= 2.0) {
     relax.setStopTime(horizon);
-    relax.advanceTo(horizon);
+    if (stop ? !relax.advanceTo(horizon, *stop) : (relax.advanceTo(horizon), false)) {
+      if (stopped) *stopped = true;  // KINSOL's polish below is not interrupted
+      return std::vector<double>(relax.state().begin(), relax.state().begin() + static_cast<std::ptrdiff_t>(states));
+    }
     transient.evaluate(horizon, relax.state(), rate);
     double fastest = 0.0;
     for (Index i = 0; i < transient.nodeCount(); ++i) fastest = std::max(fastest, std::abs(rate[i]));
@@ -67,8 +73,10 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   const Index states = nodes + system.controlCount();  // temperatures, then controller states
   std::vector<double> y = initialState(body, system);
   y.resize(system.size(), 0.0);  // channel energies start at 0
+  RunSummary summary;
   if (c.run.initial == InitialCondition::Steady) {
-    std::vector<double> steady = steadyTemperatures(body, std::span<const double>(y).first(states), nullptr);
+    std::vector<double> steady =
+        steadyTemperatures(body, std::span<const double>(y).first(states), nullptr, options.stop, &summary.stopped);
     std::copy(steady.begin(), steady.end(), y.begin());
   }
   IntegratorOptions io;
@@ -80,7 +88,6 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   // Channel energies are exact quadratures of the flows: excluded from the error test.
   for (Index i = states; i < system.size(); ++i) io.atol[i] = 1e30;
 
-  RunSummary summary;
   Recorder recorder(body, system, options);
   recorder.setIncompletePath(options.output.empty() ? "" : incompleteName(options.output));
   const double initialStored = system.storedHeat(y);
@@ -96,31 +103,45 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   body.setInterval(0);
   auto nextStop = [&] { return interval < breakpoints.size() ? breakpoints[interval] : c.run.duration; };
   integrator.setStopTime(nextStop());
+  // With a stop request to poll (signals), CVODE is driven one step at a time: the same steps, and a stop takes
+  // effect at the next step; the outputs so far are kept and none is made at an intermediate time.
+  auto advance = [&](double time) {
+    if (!options.stop) {
+      integrator.advanceTo(time);
+      return true;
+    }
+    if (!integrator.advanceTo(time, *options.stop)) summary.stopped = true;
+    return !summary.stopped;
+  };
   try {
-    for (long k = 1; k <= outputs; ++k) {
+    for (long k = 1; k <= outputs && !summary.stopped; ++k) {
       double t = std::min(c.run.duration, static_cast<double>(k) * c.run.outputInterval);
       while (interval < breakpoints.size() && breakpoints[interval] <= t) {
-        integrator.advanceTo(breakpoints[interval]);
+        if (!advance(breakpoints[interval])) break;
         body.setInterval(++interval);
         integrator.restart();
         integrator.setStopTime(nextStop());
       }
       // Progress within long output intervals too: advance to interpolated intermediate times (CVODE's steps
       // are not shortened by them).
+      if (summary.stopped) break;
       if (progress.active()) {
         const double from = integrator.time();
-        for (int part = 1; part < 16; ++part) {
-          integrator.advanceTo(from + (t - from) * part / 16.0);
-          progress.report(integrator.time(), integrator.statistics().steps);
-        }
+        for (int part = 1; part < 16 && !summary.stopped; ++part)
+          if (advance(from + (t - from) * part / 16.0)) progress.report(integrator.time(), integrator.statistics().steps);
       }
-      integrator.advanceTo(t);
+      if (summary.stopped || !advance(t)) break;
       recorder.record(t, integrator.state(), initialStored, summary);
       progress.report(t, integrator.statistics().steps);
     }
   } catch (const SolverError& e) {
     summary.complete = false;
     summary.failure = e.what();
+  }
+  if (summary.stopped) {
+    summary.complete = false;
+    summary.failure = fmt::format("stopped at t = {:g} s before the end of the run ({:g} s)", summary.finalTime,
+                                  c.run.duration);
   }
   progress.finish();
   summary.statistics = integrator.statistics();
@@ -137,10 +158,15 @@ RunSummary runSteady(const Body& body, const RunOptions& options) {
   Recorder recorder(body, transient, options);
   recorder.setIncompletePath(options.output.empty() ? "" : incompleteName(options.output));
   body.setInterval(0);
-  std::vector<double> steady = steadyTemperatures(body, guess, &summary.statistics);
+  std::vector<double> steady = steadyTemperatures(body, guess, &summary.statistics, options.stop, &summary.stopped);
   std::vector<double> y(transient.size(), 0.0);
   std::copy(steady.begin(), steady.end(), y.begin());
   recorder.record(0.0, y, transient.storedHeat(y), summary);
+  if (summary.stopped) {
+    summary.complete = false;
+    summary.failure = "stopped before the steady state was reached; the state stored is the pseudo-time relaxation "
+                      "reached so far";
+  }
   summary.finalState.assign(steady.begin(), steady.begin() + static_cast<std::ptrdiff_t>(nodes));
   recorder.finish(summary, true);
   return summary;

@@ -1,5 +1,6 @@
 #pragma once
 //! Runs a discretised body: transient (CVODE) or steady (KINSOL), recording results and the heat budget.
+#include <atomic>
 #include <cstdio>
 #include <functional>
 #include <span>
@@ -23,10 +24,14 @@ struct RunOptions {
   bool quiet = false;        //!< no progress on stderr
   LinearSolverKind linearSolver = LinearSolverKind::Klu;
   OutputObserver observer;   //!< optional
+  //! Optional stop request (drivers/stop_signal.hpp: set by SIGINT/SIGTERM): polled between outputs and within
+  //! them; the run then ends as incomplete with `stopped` set, keeping its outputs so far.
+  const std::atomic<bool>* stop = nullptr;
 };
 
 struct RunSummary {
   bool complete = true;
+  bool stopped = false;          //!< incomplete because RunOptions::stop was set
   std::string outputPath;        //!< file written
   std::string failure;           //!< solver failure message when incomplete
   double finalTime = 0.0;        //!< [s]

@@ -18,6 +18,8 @@
 
 #include <fmt/format.h>
 
+#include "drivers/output_file.hpp"
+#include "drivers/stop_signal.hpp"
 #include "drivers/sweep_engine.hpp"
 
 namespace thermorph {
@@ -30,22 +32,6 @@ double seconds(Clock::time_point a, Clock::time_point b) { return std::chrono::d
 //! Thrown by the run observer when the sweep is being stopped.
 struct RunAbandoned {};
 
-std::atomic<bool> stopFlag{false};
-std::atomic<int> stopSignal{0};
-static_assert(std::atomic<bool>::is_always_lock_free && std::atomic<int>::is_always_lock_free,
-              "signal handlers need lock-free atomics");
-
-extern "C" void onStopSignal(int signal) {
-  if (stopFlag.load()) {
-    // A second signal: stop at once. Finished runs are already in the progress file.
-    std::signal(signal, SIG_DFL);
-    std::raise(signal);
-    return;
-  }
-  stopSignal.store(signal);
-  stopFlag.store(true);
-}
-
 std::string join(const std::vector<std::string>& parts) { return fmt::format("{}", fmt::join(parts, "; ")); }
 
 std::string clock(double s) {
@@ -56,27 +42,16 @@ std::string clock(double s) {
 
 }  // namespace
 
-std::atomic<bool>& sweepStopFlag() { return stopFlag; }
-int sweepStopSignal() { return stopSignal.load(); }
+// The sweep's signals are those of every command (drivers/stop_signal.hpp).
+std::atomic<bool>& sweepStopFlag() { return stopRequested(); }
+int sweepStopSignal() { return stopSignalNumber(); }
 
 struct SweepSignalGuard::Saved {
-  struct sigaction interrupt {}, terminate {};
+  StopSignalGuard guard;
 };
 
-SweepSignalGuard::SweepSignalGuard() : saved_(std::make_unique<Saved>()) {
-  stopFlag.store(false);
-  stopSignal.store(0);
-  struct sigaction action {};
-  action.sa_handler = onStopSignal;
-  sigemptyset(&action.sa_mask);
-  sigaction(SIGINT, &action, &saved_->interrupt);
-  sigaction(SIGTERM, &action, &saved_->terminate);
-}
-
-SweepSignalGuard::~SweepSignalGuard() {
-  sigaction(SIGINT, &saved_->interrupt, nullptr);
-  sigaction(SIGTERM, &saved_->terminate, nullptr);
-}
+SweepSignalGuard::SweepSignalGuard() : saved_(std::make_unique<Saved>()) {}
+SweepSignalGuard::~SweepSignalGuard() = default;
 
 RunRow runOne(const SweepPlan& plan, std::size_t run, const std::atomic<bool>* stop) {
   RunRow row;
@@ -96,6 +71,7 @@ RunRow runOne(const SweepPlan& plan, std::size_t run, const std::atomic<bool>* s
     MetricCollector collector(body, plan.window, plan.thresholds, plan.steady);
     RunOptions options;
     options.quiet = true;  // and no results file: options.output stays empty
+    options.stop = stop;   // a stop request ends the run at its next step
     options.observer = [&](double t, std::span<const double> temperatures, const RunSummary& summary) {
       if (stop && stop->load(std::memory_order_relaxed)) throw RunAbandoned{};
       collector.observe(t, temperatures, summary);
@@ -111,6 +87,7 @@ RunRow runOne(const SweepPlan& plan, std::size_t run, const std::atomic<bool>* s
     row.warnings = join(warnings);
     row.steps = plan.steady ? summary.statistics.nonlinearIterations : summary.statistics.steps;
     row.energyBalanceError = summary.energyBalanceError;
+    if (summary.stopped) throw RunAbandoned{};
     if (!summary.complete) {
       row.status = RunStatus::Failed;
       row.error = summary.failure;
@@ -215,9 +192,10 @@ SweepSession::SweepSession(const SweepPlan& plan, const SweepOptions& options, s
       engine_(std::move(engine)),
       output_(outputPath(options)),
       journal_([&] {
-        std::filesystem::path dir = std::filesystem::path(output_).parent_path();
-        if (!dir.empty() && !std::filesystem::is_directory(dir))
-          throw CaseError(fmt::format("-o {}: the folder {} does not exist", output_, dir.string()));
+        // Checked before any run (drivers/output_file.hpp): the table, its CSV and the progress file.
+        std::vector<std::string> inputs;
+        for (const InputFile& f : plan.inputs) inputs.push_back(f.path);
+        checkOutputPath(output_, inputs, {sweepCsvPath(output_), sweepProgressPath(output_)});
         return sweepProgressPath(output_);
       }(),
                plan, options.resume) {
@@ -307,8 +285,8 @@ int SweepSession::finish() {
   fmt::print("Results: {} and {}\n", output_, sweepCsvPath(output_));
   if (signal != 0) {
     fmt::print(stderr, "sweep stopped by {}: {} runs not run; continue with the same command and --resume\n",
-               signal == SIGINT ? "SIGINT" : signal == SIGTERM ? "SIGTERM" : "a signal", missing);
-    return 128 + signal;
+               stopSignalName(), missing);
+    return stopExitCode();
   }
   return 0;
 }

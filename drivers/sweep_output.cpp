@@ -3,6 +3,9 @@
 
 #include <hdf5.h>
 #include <hdf5_hl.h>
+#include <fcntl.h>
+#include <sys/file.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include <cerrno>
@@ -20,6 +23,7 @@
 #include <fmt/format.h>
 
 #include "models/caution.hpp"
+#include "drivers/output_file.hpp"
 
 namespace thermorph {
 namespace {
@@ -153,7 +157,10 @@ class H5 {
 };
 
 void check(herr_t status, const std::string& what) {
-  if (status < 0) throw std::runtime_error("HDF5: cannot " + what);
+  if (status < 0) {
+    const std::string reason = writeFailureReason();
+    throw OutputError("HDF5: cannot " + what + (reason.empty() ? "" : ": " + reason));
+  }
 }
 
 H5 textType() {
@@ -257,10 +264,6 @@ std::string nowIso() {
   return buffer;
 }
 
-std::string temporaryName(const std::string& path) {
-  std::filesystem::path p(path);
-  return (p.parent_path() / fmt::format(".{}.tmp-{}", p.filename().string(), ::getpid())).string();
-}
 
 void writeHdf5(const SweepPlan& plan, std::span<const RunRow> rows, const SweepTableInfo& info,
                const std::string& path) {
@@ -271,7 +274,16 @@ void writeHdf5(const SweepPlan& plan, std::span<const RunRow> rows, const SweepT
     else if (r.status == RunStatus::Failed) ++failed;
   }
   H5Eset_auto2(H5E_DEFAULT, nullptr, nullptr);
-  H5 file(H5Fcreate(path.c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, H5P_DEFAULT), H5Fclose, "create " + path);
+  hid_t fileId = H5Fcreate(path.c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, H5P_DEFAULT);
+  if (fileId < 0) check(-1, "create " + path);
+  // Closed explicitly at the end, where a failure (disk full) is reported; an exception closes it unchecked.
+  struct Closer {
+    hid_t id;
+    ~Closer() {
+      if (id >= 0) H5Fclose(id);
+    }
+  } closer{fileId};
+  const hid_t file = fileId;
   {
     H5 root(H5Gopen2(file, "/", H5P_DEFAULT), H5Gclose, "open /");
     attribute(root, "kind", std::string("thermorph sweep"));
@@ -304,7 +316,13 @@ void writeHdf5(const SweepPlan& plan, std::span<const RunRow> rows, const SweepT
     attribute(root, "grid", plan.zip ? fmt::format("zip of {} values", plan.runs)
                                      : fmt::format("{}", fmt::join(plan.shape, " x ")));
     attribute(root, "set", plan.overrides);
-    attribute(root, "warnings", info.warnings);
+    // At most 1 000 distinct warnings in the attribute (an attribute holds 64 kB); every run's own in /runs/warnings.
+    std::vector<std::string> warnings(info.warnings.begin(),
+                                      info.warnings.begin() + static_cast<std::ptrdiff_t>(std::min<std::size_t>(
+                                                                  info.warnings.size(), 1000)));
+    if (info.warnings.size() > warnings.size())
+      warnings.push_back(fmt::format("... and {} more (see /runs/warnings)", info.warnings.size() - warnings.size()));
+    attribute(root, "warnings", warnings);
   }
   {
     // Provenance, as in result files (drivers/provenance.hpp).
@@ -340,18 +358,25 @@ void writeHdf5(const SweepPlan& plan, std::span<const RunRow> rows, const SweepT
       if (numeric) {
         H5 ds = dataset(group, axis.key, H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, numbers.data(), n);
         attribute(ds, "units", axis.units);
-        attribute(ds, "values", axis.texts);
         attribute(ds, "spec", axis.spec);
         attribute(ds, "axis", static_cast<long>(a));
       } else {
         H5 ds = texts(group, axis.key, words);
         attribute(ds, "units", std::string(""));
-        attribute(ds, "values", axis.texts);
         attribute(ds, "spec", axis.spec);
         attribute(ds, "axis", static_cast<long>(a));
       }
     }
     attachRunCoordinate(group, n);
+  }
+  {
+    // The values of each axis as given, in a dataset: an attribute holds at most 64 kB (about 4 000 texts).
+    H5 group(H5Gcreate2(file, "parameter_values", H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT), H5Gclose,
+             "create /parameter_values");
+    for (const SweepAxis& axis : plan.axes) {
+      H5 ds = texts(group, axis.key, axis.texts);
+      attribute(ds, "units", axis.units);
+    }
   }
   {
     H5 group(H5Gcreate2(file, "metrics", H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT), H5Gclose, "create /metrics");
@@ -395,6 +420,8 @@ void writeHdf5(const SweepPlan& plan, std::span<const RunRow> rows, const SweepT
     doubles(group, "energy_balance_error", balance, "J", "cumulative gains minus the change in stored heat");
     attachRunCoordinate(group, n);
   }
+  closer.id = -1;
+  check(H5Fclose(file), "finish " + path);
 }
 
 //! RFC 4180 quoting where needed.
@@ -407,7 +434,7 @@ std::string csvField(const std::string& s) {
 
 void writeCsv(const SweepPlan& plan, std::span<const RunRow> rows, const std::string& path) {
   std::ofstream out(path, std::ios::binary);
-  if (!out) throw std::runtime_error("cannot write " + path);
+  if (!out) throw OutputError("cannot write " + path);
   out << "run,status";
   for (const SweepAxis& a : plan.axes) out << "," << csvField(a.units.empty() ? a.key : a.key + " [" + a.units + "]");
   for (const MetricColumn& c : plan.columns) out << "," << csvField(c.name + " [" + c.units + "]");
@@ -424,7 +451,11 @@ void writeCsv(const SweepPlan& plan, std::span<const RunRow> rows, const std::st
       out << "," << (row.status == RunStatus::Ok ? number(row.metrics[c]) : std::string());
     out << "," << csvField(row.warnings) << "," << csvField(row.error) << "\n";
   }
-  if (!out.flush()) throw std::runtime_error("cannot write " + path);
+  out.close();
+  if (!out) {
+    const std::string reason = writeFailureReason();
+    throw OutputError("cannot write " + path + (reason.empty() ? "" : ": " + reason));
+  }
 }
 
 }  // namespace
@@ -432,16 +463,69 @@ void writeCsv(const SweepPlan& plan, std::span<const RunRow> rows, const std::st
 std::string sweepProgressPath(const std::string& output) { return replaceExtension(output, ".progress"); }
 std::string sweepCsvPath(const std::string& output) { return replaceExtension(output, ".csv"); }
 
+namespace {
+
+//! A file descriptor closed on scope exit unless released.
+struct Descriptor {
+  int fd = -1;
+  ~Descriptor() {
+    if (fd >= 0) ::close(fd);
+  }
+};
+
+//! Open `path` (created when missing) and lock it for this process alone. The lock is on the file at `path` now:
+//! when another process renamed a new file over it meanwhile, the new one is locked instead. Throws CaseError
+//! when another sweep holds the lock.
+int openLocked(const std::string& path) {
+  for (int attempt = 0; attempt < 5; ++attempt) {
+    Descriptor d{::open(path.c_str(), O_RDWR | O_CREAT | O_CLOEXEC, 0644)};
+    if (d.fd < 0)
+      throw CaseError(fmt::format("cannot open the progress file {}: {}", path, std::strerror(errno)));
+    if (::flock(d.fd, LOCK_EX | LOCK_NB) != 0) {
+      if (errno == EWOULDBLOCK)
+        throw CaseError(fmt::format("{} is locked by another sweep writing the same output; wait for it to finish "
+                                    "(then --resume if it was interrupted), or give another -o",
+                                    path));
+      throw CaseError(fmt::format("cannot lock the progress file {}: {}", path, std::strerror(errno)));
+    }
+    struct stat open {}, named {};
+    if (::fstat(d.fd, &open) == 0 && ::stat(path.c_str(), &named) == 0 && open.st_dev == named.st_dev &&
+        open.st_ino == named.st_ino) {
+      const int fd = d.fd;
+      d.fd = -1;
+      return fd;
+    }
+  }
+  throw CaseError(fmt::format("cannot lock the progress file {}: it keeps being replaced by another process", path));
+}
+
+std::string readAll(int fd) {
+  std::string text;
+  char buffer[65536];
+  for (ssize_t n; (n = ::read(fd, buffer, sizeof buffer)) != 0;) {
+    if (n < 0) {
+      if (errno == EINTR) continue;
+      throw CaseError(fmt::format("cannot read the progress file: {}", std::strerror(errno)));
+    }
+    text.append(buffer, static_cast<std::size_t>(n));
+  }
+  return text;
+}
+
+}  // namespace
+
 SweepJournal::SweepJournal(std::string path, const SweepPlan& plan, bool resume)
     : path_(std::move(path)), columns_(plan.columns.size()) {
-  const bool exists = std::filesystem::exists(path_);
+  // One sweep per progress file: an exclusive lock, held until this journal goes away (two identical sweeps
+  // started together would otherwise both run and write the same table).
+  Descriptor locked{openLocked(path_)};
+  const std::string text = readAll(locked.fd);
+  const bool exists = !text.empty();  // an empty file: just created here, or by a sweep that never wrote to it
   if (exists && !resume)
     throw CaseError(fmt::format("{} holds the finished runs of an interrupted sweep: continue it with --resume, or "
                                 "delete it to start again",
                                 path_));
   if (exists) {
-    std::ifstream in(path_, std::ios::binary);
-    std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
     std::size_t end = text.find('\n');
     std::string first = text.substr(0, end);
     if (first != header(plan))
@@ -458,18 +542,26 @@ SweepJournal::SweepJournal(std::string path, const SweepPlan& plan, bool resume)
     }
     for (auto& [index, row] : byIndex) earlier_.push_back(std::move(row));
   }
-  // (Re)write the file with the header and the valid rows only, then append to it.
-  const std::string temporary = temporaryName(path_);
-  {
-    std::ofstream out(temporary, std::ios::binary);
-    if (!out) throw CaseError(fmt::format("cannot write the progress file {}", temporary));
-    out << header(plan) << "\n";
-    for (const RunRow& row : earlier_) out << formatRow(row);
-    if (!out.flush()) throw CaseError(fmt::format("cannot write the progress file {}", temporary));
+  // (Re)write the file with the header and the valid rows only (a new file, locked before it replaces the old
+  // one), then append to it.
+  TemporaryFile temporary(path_);
+  std::FILE* out = std::fopen(temporary.path().c_str(), "wbe");
+  if (!out) throw CaseError(fmt::format("cannot write the progress file {}: {}", path_, std::strerror(errno)));
+  std::string content = header(plan) + "\n";
+  for (const RunRow& row : earlier_) content += formatRow(row);
+  if (std::fwrite(content.data(), 1, content.size(), out) != content.size() || std::fflush(out) != 0 ||
+      ::flock(fileno(out), LOCK_EX | LOCK_NB) != 0) {
+    const std::string reason = std::strerror(errno);
+    std::fclose(out);
+    throw OutputError(fmt::format("cannot write the progress file {}: {}", path_, reason));
   }
-  std::filesystem::rename(temporary, path_);
-  file_ = std::fopen(path_.c_str(), "ab");
-  if (!file_) throw CaseError(fmt::format("cannot append to the progress file {}", path_));
+  try {
+    temporary.commit(path_);
+  } catch (...) {
+    std::fclose(out);
+    throw;
+  }
+  file_ = out;  // holds the lock now; the old file's lock goes with `locked`
 }
 
 SweepJournal::~SweepJournal() {
@@ -484,25 +576,25 @@ void SweepJournal::append(const RunRow& row) {
 }
 
 void SweepJournal::remove() {
+  std::filesystem::remove(path_);  // before the lock goes with the file
   if (file_) std::fclose(file_);
   file_ = nullptr;
-  std::filesystem::remove(path_);
 }
 
 void writeSweepTable(const SweepPlan& plan, std::span<const RunRow> rows, const SweepTableInfo& info,
                      const std::string& output) {
   const std::string csv = sweepCsvPath(output);
-  const std::string h5Temporary = temporaryName(output), csvTemporary = temporaryName(csv);
+  TemporaryFile h5Temporary(output), csvTemporary(csv);  // removed on every path but the renames below
   try {
-    writeHdf5(plan, rows, info, h5Temporary);
-    writeCsv(plan, rows, csvTemporary);
-  } catch (...) {
-    std::filesystem::remove(h5Temporary);
-    std::filesystem::remove(csvTemporary);
-    throw;
+    writeHdf5(plan, rows, info, h5Temporary.path());
+    writeCsv(plan, rows, csvTemporary.path());
+  } catch (const std::exception& e) {
+    throw OutputError(fmt::format("cannot write the sweep table {}: {}; {} is unchanged and the finished runs are in "
+                                  "{} (the same command with --resume writes the table)",
+                                  output, e.what(), output, sweepProgressPath(output)));
   }
-  std::filesystem::rename(h5Temporary, output);
-  std::filesystem::rename(csvTemporary, csv);
+  h5Temporary.commit(output);
+  csvTemporary.commit(csv);
 }
 
 }  // namespace thermorph

@@ -15,7 +15,8 @@ std::string sweepProgressPath(const std::string& output);
 std::string sweepCsvPath(const std::string& output);
 
 //! Append-only progress file: a header with the plan's fingerprint, then one line per finished run (ok or
-//! failed), flushed as each run completes. A line cut short by a kill is ignored on resume.
+//! failed), flushed as each run completes. A line cut short by a kill is ignored on resume. The file is locked
+//! (flock) while the journal lives: a second sweep on the same output is refused (CaseError).
 class SweepJournal {
  public:
   //! Start a new progress file at `path`, or with `resume` read the rows of an earlier session (same

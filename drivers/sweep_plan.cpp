@@ -18,7 +18,10 @@
 namespace thermorph {
 namespace {
 
-constexpr std::size_t maxRuns = 100'000'000;
+// Limits (README "Limits"): every value of every axis and every run's row are held in memory, about 100 and
+// 300 bytes each, so a million of each stays well under a gigabyte.
+constexpr std::size_t maxRuns = 1'000'000;
+constexpr std::size_t maxValues = 1'000'000;  // per axis
 
 std::string trim(const std::string& s) {
   std::size_t b = s.find_first_not_of(" \t\r\n"), e = s.find_last_not_of(" \t\r\n");
@@ -143,7 +146,8 @@ std::vector<std::string> expandRange(const std::string& spec,
   } catch (const std::logic_error&) {
     throw bad(fmt::format("the count \"{}\" is not a whole number", parts[2]));
   }
-  if (count < 1 || static_cast<std::size_t>(count) > maxRuns) throw bad("the count must be at least 1");
+  if (count < 1) throw bad("the count must be at least 1");
+  if (static_cast<std::size_t>(count) > maxValues) throw bad(fmt::format("the count must be at most {}", maxValues));
   ValueWithUnit start, end;
   try {
     start = splitValueUnit(parts[0]);
@@ -202,6 +206,7 @@ std::vector<std::string> expandSpec(const std::string& spec, const std::string& 
       continue;
     }
     for (std::string& v : expandRange(item, bad)) values.push_back(std::move(v));
+    if (values.size() > maxValues) throw bad(fmt::format("more than {} values", maxValues));
   }
   return values;
 }

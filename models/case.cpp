@@ -40,6 +40,68 @@ double SegmentSpec::tissueRadius() const {
 
 namespace {
 
+// ---- nesting guard (before parsing) ------------------------------------------------------------
+
+//! Deepest nesting a case may have: open brackets and braces plus the parts of one dotted key. The TOML
+//! parser recurses once per level (a key 40 000 parts deep overflowed the stack), so the text is scanned
+//! first; real cases nest 5 deep or less.
+constexpr std::size_t maxNesting = 64;
+
+//! Throws CaseError when `text` nests deeper than maxNesting (strings and comments skipped).
+void checkNesting(std::string_view text, const std::string& source) {
+  std::size_t depth = 0, dots = 0, line = 1, column = 0;
+  auto bare = [](char ch) { return std::isalnum(static_cast<unsigned char>(ch)) || ch == '_' || ch == '-'; };
+  for (std::size_t i = 0; i < text.size(); ++i) {
+    const char ch = text[i];
+    ++column;
+    if (ch == '\n') {
+      ++line;
+      column = 0;
+      dots = 0;
+      continue;
+    }
+    if (ch == '#') {  // comment: to the end of the line
+      while (i + 1 < text.size() && text[i + 1] != '\n') ++i;
+      continue;
+    }
+    if (ch == '"' || ch == '\'') {  // a string or quoted key: skip it (it may be a key part)
+      const bool multi = text.substr(i, 3) == std::string(3, ch);
+      const std::string close = multi ? std::string(3, ch) : std::string(1, ch);
+      std::size_t j = i + close.size();
+      bool closed = false;
+      for (; j < text.size(); ++j) {
+        if (text.compare(j, close.size(), close) == 0) {
+          closed = true;
+          break;
+        }
+        if (ch == '"' && text[j] == '\\' && j + 1 < text.size() && text[j + 1] != '\n') ++j;  // an escape
+        if (text[j] == '\n') {
+          if (!multi) break;  // unterminated: the parser reports it
+          ++line;
+          column = 0;
+        }
+      }
+      i = closed ? j + close.size() - 1 : j - 1;
+      continue;
+    }
+    if (ch == '.') {
+      ++dots;
+    } else if (ch == '[' || ch == '{') {
+      ++depth;
+      dots = 0;
+    } else if (ch == ']' || ch == '}') {
+      depth = depth > 0 ? depth - 1 : 0;
+      dots = 0;
+    } else if (!bare(ch) && ch != ' ' && ch != '\t') {
+      dots = 0;
+    }
+    if (depth + dots > maxNesting)
+      throw CaseError(fmt::format("{}:{}:{}: nesting too deep: more than {} levels of brackets, braces and dotted key "
+                                  "parts (a case nests 5 levels or less)",
+                                  source, line, column, maxNesting));
+  }
+}
+
 // ---- --set KEY=VALUE ---------------------------------------------------------------------------
 
 //! Index of the element named `component` (or numbered), or the array size when there is none.
@@ -63,6 +125,8 @@ void applyOverride(toml::table& root, const std::string& file, const std::string
                                 assignment));
   std::string key = assignment.substr(0, eq);
   std::string valueText = assignment.substr(eq + 1);
+  checkNesting(key, "--set " + key);
+  checkNesting(valueText, "--set " + key);
 
   toml::table parsedValue;
   try {
@@ -98,6 +162,11 @@ void applyOverride(toml::table& root, const std::string& file, const std::string
                                     walked.substr(0, walked.size() - c.size() - 1), fmt::join(names, ", ")));
       }
       if (last) {
+        // An element of an array of tables is a table: refuse a value here, naming the key as written.
+        if ((*array)[index].is_table() && !value.is_table())
+          throw CaseError(fmt::format("{}: --set {}: {} is a table (an element of {}), not a value; set a key inside "
+                                      "it, e.g. {}.KEY=VALUE",
+                                      file, key, walked, walked.substr(0, walked.size() - c.size() - 1), walked));
         array->replace(array->cbegin() + static_cast<std::ptrdiff_t>(index), value);
         return;
       }
@@ -171,6 +240,13 @@ SegmentSpec readSegment(const CaseReader& reader, const Case& c, const toml::tab
   TableView t(reader, &table, "segments[]", "segments." + label);
   SegmentSpec s;
   s.name = t.text("name");
+  // Names are HDF5 group names (/segments/NAME) and key-path components (segments.NAME.length).
+  if (s.name.empty()) t.fail("name", "name = \"\": a segment name must not be empty");
+  if (s.name.find_first_of("/.") != std::string::npos ||
+      std::any_of(s.name.begin(), s.name.end(), [](unsigned char ch) { return ch < 0x20 || ch == 0x7f; }))
+    t.fail("name", fmt::format("name = \"{}\": a segment name may not contain '/', '.' or control characters (it "
+                               "names an HDF5 group and a part of key paths such as segments.NAME.length)",
+                               s.name));
   s.parent = t.optionalText("parent").value_or("");
   s.count = t.integer("count");
   s.attachPosition = t.number("attach_position");
@@ -341,11 +417,17 @@ toml::table controlToml(const ControlSpec& control) {
   return out;
 }
 
-//! One root, known parents, no cycles; shunts only where there is skin.
+//! Deepest segment tree (root at depth 0): the circulation's flow expressions grow with the number of
+//! segments above each one, so memory grows with depth squared (a chain 1 000 deep took 0.3 GB).
+constexpr std::size_t maxTreeDepth = 64;
+
+//! One root, known parents, no cycles, depth within maxTreeDepth; an attach_tissue the parent has; shunts only
+//! where there is skin.
 void validateTree(const CaseReader& reader, const toml::array& segArray, const Case& c) {
   std::map<std::string, std::size_t> index;
   for (std::size_t i = 0; i < c.segments.size(); ++i) index[c.segments[i].name] = i;
   std::vector<std::string> roots;
+  std::vector<std::size_t> parentOf(c.segments.size(), c.segments.size());
   for (std::size_t i = 0; i < c.segments.size(); ++i) {
     const SegmentSpec& s = c.segments[i];
     TableView t(reader, segArray[i].as_table(), "segments[]", "segments." + s.name);
@@ -362,15 +444,46 @@ void validateTree(const CaseReader& reader, const toml::array& segArray, const C
     }
     if (s.shape == Shape::Sphere)
       t.fail("parent", "a sphere can only be the root segment; attach a head or body part as a cylinder or cone");
-    // Walk up: a cycle returns to this segment before reaching a root.
-    std::vector<std::string> chain{s.name};
-    std::size_t j = it->second;
-    while (true) {
+    parentOf[i] = it->second;
+    // The default attach_tissue (muscle) falls back to the parent's innermost layer; a named one must exist.
+    if (t.has("attach_tissue")) {
+      const SegmentSpec& p = c.segments[it->second];
+      std::vector<std::string> layers;
+      for (const LayerSpec& l : p.layers) layers.push_back(l.tissue);
+      if (std::find(layers.begin(), layers.end(), s.attachTissue) == layers.end())
+        t.fail("attach_tissue", fmt::format("attach_tissue = \"{}\": the parent {} has no such layer (its layers: {})",
+                                            s.attachTissue, p.name, fmt::join(layers, ", ")));
+    }
+  }
+  // Depth of every segment, each walked once (linear): 0 for a root; a segment met again on its own walk is
+  // a cycle.
+  constexpr std::size_t unknown = static_cast<std::size_t>(-1), onPath = static_cast<std::size_t>(-2);
+  std::vector<std::size_t> depth(c.segments.size(), unknown);
+  for (std::size_t i = 0; i < c.segments.size(); ++i) {
+    std::vector<std::size_t> path;
+    std::size_t j = i;
+    while (depth[j] == unknown && parentOf[j] < c.segments.size()) {
+      depth[j] = onPath;
+      path.push_back(j);
+      j = parentOf[j];
+    }
+    if (depth[j] == onPath) {  // a cycle through j
+      std::vector<std::string> chain;
+      auto from = std::find(path.begin(), path.end(), j);
+      for (auto k = from; k != path.end(); ++k) chain.push_back(c.segments[*k].name);
       chain.push_back(c.segments[j].name);
-      if (c.segments[j].name == s.name)
-        t.fail("parent", fmt::format("the segment tree has a cycle: {}", fmt::join(chain, " -> ")));
-      if (c.segments[j].parent.empty() || chain.size() > c.segments.size() + 1) break;
-      j = index.at(c.segments[j].parent);
+      TableView t(reader, segArray[j].as_table(), "segments[]", "segments." + c.segments[j].name);
+      t.fail("parent", fmt::format("the segment tree has a cycle: {}", fmt::join(chain, " -> ")));
+    }
+    if (depth[j] == unknown) depth[j] = 0;  // a root
+    for (auto k = path.rbegin(); k != path.rend(); ++k) {
+      depth[*k] = depth[parentOf[*k]] + 1;
+      if (depth[*k] > maxTreeDepth) {
+        TableView t(reader, segArray[*k].as_table(), "segments[]", "segments." + c.segments[*k].name);
+        t.fail("parent", fmt::format("the segment tree is more than {} segments deep below its root (the limit; "
+                                     "memory grows with the square of the depth)",
+                                     maxTreeDepth));
+      }
     }
   }
   if (roots.size() != 1)
@@ -466,6 +579,22 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   if (c.run.outputInterval > c.run.duration)
     run.fail("output_interval", fmt::format("output_interval = {:g} s exceeds duration = {:g} s",
                                             c.run.outputInterval, c.run.duration));
+  // Work and output bounds, checked before any computing (a run that cannot finish is bad input).
+  if (c.run.duration / c.run.outputInterval > static_cast<double>(maxOutputs))
+    run.fail("output_interval", fmt::format("output_interval = {:g} s over duration = {:g} s makes {:.3g} outputs; the "
+                                            "limit is {} (each output stores every cell)",
+                                            c.run.outputInterval, c.run.duration,
+                                            std::ceil(c.run.duration / c.run.outputInterval), maxOutputs));
+  if (c.run.maxStep > 0.0) {
+    const double steps = c.run.duration / c.run.maxStep;
+    const double perOutput = std::min(c.run.outputInterval, c.run.duration) / c.run.maxStep;
+    if (steps > static_cast<double>(maxForcedSteps) || perOutput > static_cast<double>(maxStepsPerOutput))
+      run.fail("max_step", fmt::format("max_step = {:g} s forces at least {:.3g} steps over duration = {:g} s ({:.3g} per "
+                                       "output interval); the limits are {} steps per run and {} per output interval "
+                                       "(the integrator's step limit)",
+                                       c.run.maxStep, std::ceil(steps), c.run.duration, std::ceil(perOutput),
+                                       maxForcedSteps, maxStepsPerOutput));
+  }
 
   TableView circ = top.child("circulation");
   c.circulation.bloodDensity = circ.quantity("blood_density");
@@ -490,6 +619,7 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   else {
     c.body.basal = BasalRate::Power;
     try {
+      if (splitValueUnit(basal).unit.empty()) throw UnitError("a power needs a unit");
       c.body.basalPower = parseQuantity(basal, "W");
     } catch (const UnitError& e) {
       bodyTable.fail("basal_metabolic_rate", fmt::format("\"{}\": expected \"tissues\", \"kleiber\" or a power such as "
@@ -525,6 +655,8 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   std::set<std::string> names;
   long cells = 0;
   const toml::array& segArray = *segs->as_array();
+  if (segArray.size() > maxSegments)
+    reader.fail(segs, "segments", fmt::format("the case has {} segments; the limit is {}", segArray.size(), maxSegments));
   for (std::size_t i = 0; i < segArray.size(); ++i) {
     SegmentSpec s = readSegment(reader, c, *segArray[i].as_table(), i);
     if (!names.insert(s.name).second)
@@ -583,6 +715,7 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
 
 Case loadCaseFromString(const std::string& text, const std::string& sourceName,
                         const std::vector<std::string>& overrides) {
+  checkNesting(text, sourceName);
   toml::table root;
   try {
     root = toml::parse(text, sourceName);
@@ -706,7 +839,9 @@ std::string caseReferenceMarkdown() {
   os << "# Case-file reference\n\n"
      << "Generated from the parameter schema in `models/case_schema.cpp` by `thermorph reference`; do not edit by hand.\n"
      << "Every dimensional value is a number in SI units or a string with a unit parsed by udunits2 (`\"12 cm\"`, "
-        "`\"37 degC\"`, `\"30 mL/(100 g min)\"`). Temperatures accept degC and K; a bare number is kelvin.\n"
+        "`\"37 degC\"`, `\"30 mL/(100 g min)\"`). Temperatures accept degC and K; a bare number is kelvin. A quoted "
+        "number without a unit (`\"18\"`) is refused. Limits (nesting, segments, tree depth, outputs): README, "
+        "\"Limits and guarantees\".\n"
      << "Key paths are those of `--set KEY=VALUE`; segments are addressed by name "
         "(`segments.ear.layers.0.thickness`).\n\n"
      << "| key | kind | SI unit | default | allowed | description |\n|---|---|---|---|---|---|\n";

@@ -167,6 +167,12 @@ struct Case {
 
 //! Upper limit on the total number of nodes in one case (memory and run time guard).
 inline constexpr long maxCells = 2'000'000;
+//! Upper limits checked when a case is loaded (README "Limits"): segments, outputs per run (duration /
+//! output_interval), steps forced by max_step per run and per output interval (CVODE's step limit per call).
+inline constexpr std::size_t maxSegments = 1'000;
+inline constexpr long maxOutputs = 10'000'000;
+inline constexpr long maxForcedSteps = 10'000'000;
+inline constexpr long maxStepsPerOutput = 1'000'000;
 
 //! Load and validate a case file, applying `--set KEY=VALUE` overrides in order. Throws CaseError.
 Case loadCase(const std::string& path, const std::vector<std::string>& overrides = {});

@@ -89,6 +89,12 @@ class CaseReader {
       value = *number;
     } else if (auto text = node.value<std::string>()) {
       try {
+        // A quoted number without a unit is most likely a forgotten unit ("18" meant as cm): refuse it. A bare
+        // (unquoted) number is SI by definition.
+        if (!p.unit.empty() && p.unit != "1" && splitValueUnit(*text).unit.empty())
+          throw UnitError(fmt::format("a quoted value needs a unit (\"{} {}\"), or write the number without quotes "
+                                      "for SI",
+                                      trimmed(*text), p.unit));
         value = toSI(*text, p, density);
       } catch (const UnitError& e) {
         fail(&node, path, fmt::format("{} = {}: {}; expected a {} in {} or a convertible unit, e.g. {}", lastComponent(path), shown,
@@ -99,7 +105,23 @@ class CaseReader {
                                     quantityName(p.unit), p.unit, example(p)));
     }
     checkRange(&node, p, path, value, shown);
+    return snapToRange(p, value);
+  }
+
+  //! A value a rounding error outside an inclusive bound (-100 degC converts to 173.14999999999998 K): the
+  //! bound itself. checkRange accepts such values.
+  static double snapToRange(const Param& p, double value) {
+    if (value < p.min && !p.minExclusive) return p.min;
+    if (value > p.max) return p.max;
     return value;
+  }
+  static bool nearBound(double value, double bound) {
+    return std::abs(value - bound) <= 1e-12 * std::max(1.0, std::abs(bound));
+  }
+  static std::string trimmed(std::string text) {
+    text.erase(0, text.find_first_not_of(" \t"));
+    text.erase(text.find_last_not_of(" \t") + 1);
+    return text;
   }
 
   double toSI(const std::string& text, const Param& p, double density) const {
@@ -115,8 +137,11 @@ class CaseReader {
 
   void checkRange(const toml::node* node, const Param& p, const std::string& path, double value,
                   const std::string& shown) const {
-    bool belowMin = p.minExclusive ? !(value > p.min) : !(value >= p.min);
-    if (!std::isfinite(value) || belowMin || value > p.max) {
+    bool belowMin = p.minExclusive ? !(value > p.min) : !(value >= p.min || nearBound(value, p.min));
+    bool aboveMax = value > p.max && !nearBound(value, p.max);
+    // Subnormal numbers (below 2.2e-308) lose their precision in any product: no physical input is that small.
+    bool subnormal = std::fpclassify(value) == FP_SUBNORMAL;
+    if (!std::isfinite(value) || belowMin || aboveMax || subnormal) {
       std::string unit = p.unit.empty() ? "" : " " + std::string(p.unit);
       std::string hint;
       if (p.unit == "K" && value < p.min && value > -100 && value < 100)
@@ -131,7 +156,7 @@ class CaseReader {
     auto v = node.value<double>();
     if (!v || node.is_string()) fail(&node, path, fmt::format("{} must be a plain number", formatValue(node)));
     checkRange(&node, p, path, *v, formatValue(node));
-    return *v;
+    return snapToRange(p, *v);
   }
 
   long integer(const toml::node& node, const Param& p, const std::string& path) const {

@@ -6,6 +6,7 @@
 #include <charconv>
 #include <filesystem>
 #include <fstream>
+#include <map>
 #include <sstream>
 #include <numbers>
 
@@ -364,6 +365,57 @@ void readPhysiologyEvent(const TableView& view, EventSpec& e) {
   }
 }
 
+namespace {
+
+//! The values an event changes, as key paths (before followers are added).
+std::vector<std::string> changedKeys(const EventSpec& e) {
+  std::vector<std::string> keys;
+  if (e.medium) keys.emplace_back("environment.medium");
+  for (const EnvironmentValue& v : e.environment) keys.push_back("environment." + std::string(info(v.variable).key));
+  for (const VasomotorTarget& v : e.vasomotor) {
+    if (v.skinPerfusion) keys.push_back("vasomotor." + v.segment + ".skin_perfusion");
+    if (v.shunt) keys.push_back("vasomotor." + v.segment + ".shunt");
+    if (v.superficialReturn) keys.push_back("vasomotor." + v.segment + ".superficial_return");
+  }
+  if (e.activity) keys.emplace_back("metabolism.activity");
+  if (e.hypometabolism) keys.emplace_back("metabolism.hypometabolism");
+  if (e.bradycardia) keys.emplace_back("circulation.bradycardia");
+  if (e.panting) keys.emplace_back("respiration.panting");
+  for (const ControlTarget& c : e.control) {
+    if (c.enabled) keys.push_back("control." + c.controller + ".enabled");
+    if (c.setPoint) keys.push_back("control." + c.controller + ".set_point");
+  }
+  return keys;
+}
+
+//! Two [[events]] stepping the same value at the same time: which one wins is not defined, so the case is refused
+//! naming both. `tableEvents`: how many of `read` come from [[events]] (weather rows follow; a row's step and the
+//! ramp to the next row start together by construction, and events inside a weather ramp are refused later).
+void refuseSimultaneousChanges(const CaseReader& reader, const std::vector<EventSpec>& read,
+                               const std::vector<EventSource>& sources, const std::vector<std::size_t>& order,
+                               std::size_t tableEvents) {
+  std::map<std::string, std::size_t> atThisTime;  // key -> event, for the events at one time
+  double time = -1.0;
+  for (const std::size_t index : order) {
+    // Steps only: a ramp starting with a step at its start is well defined (the resolved form of weather rows),
+    // and a change during a ramp is refused below.
+    if (index >= tableEvents || read[index].ramp > 0.0) continue;
+    if (read[index].at != time) atThisTime.clear();
+    time = read[index].at;
+    for (const std::string& key : changedKeys(read[index])) {
+      auto [it, inserted] = atThisTime.emplace(key, index);
+      if (inserted) continue;
+      const EventSource& s = sources[index];
+      reader.fail(s.node, s.path,
+                  fmt::format("{} and {} both change {} at {:g} s; give one change per value and time (which one "
+                              "would win is not defined)",
+                              sources[it->second].label, s.label, key, read[index].at));
+    }
+  }
+}
+
+}  // namespace
+
 std::vector<EventSpec> readEvents(const CaseReader& reader, const TableView& root, const toml::table& rootTable,
                                   double duration) {
   TableView base = root.child("environment");
@@ -406,11 +458,13 @@ std::vector<EventSpec> readEvents(const CaseReader& reader, const TableView& roo
       sources.push_back({view.node("at"), view.path("at"), view.display()});
     }
   }
+  const std::size_t tableEvents = read.size();
   if (base.has("weather")) readWeather(reader, base, media, duration, read, sources);
 
   std::vector<std::size_t> order(read.size());
   for (std::size_t i = 0; i < order.size(); ++i) order[i] = i;
   std::stable_sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) { return read[a].at < read[b].at; });
+  refuseSimultaneousChanges(reader, read, sources, order, tableEvents);
 
   // Followers not given in [environment] keep following their leader through the timeline until given, by the
   // rules of the medium in effect after each event.

@@ -199,6 +199,43 @@ void Integrator::advanceTo(double time) {
   checkFinite(state(), "the state");
 }
 
+bool Integrator::advanceTo(double time, const std::atomic<bool>& stop) {
+  if (time <= time_) return true;
+  auto start = std::chrono::steady_clock::now();
+  void* mem = memory_.get();
+  double reached = time_;
+  CVodeGetCurrentTime(mem, &reached);  // the last step may already have passed `time`
+  int flag = CV_SUCCESS;
+  bool stopped = false;
+  while (reached < time) {
+    if (stop.load(std::memory_order_relaxed)) {
+      stopped = true;
+      break;
+    }
+    flag = CVode(mem, time, state_.get(), &reached, CV_ONE_STEP);
+    if (flag < 0 || flag == CV_TSTOP_RETURN) break;
+  }
+  // The state at `time` from the last step's interpolating polynomial, as CVODE's normal mode gives it (at the
+  // step's end this is the step's own solution).
+  if (!stopped && flag >= 0) flag = CVodeGetDky(mem, time, 0, state_.get());
+  wallSeconds_ += std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+  if (flag < 0) {
+    std::string message = failureMessage(flag);
+    CVodeGetCurrentTime(mem, &time_);
+    if (guard_.error) {
+      try {
+        guard_.rethrow();
+      } catch (const std::exception& e) {
+        throw SolverError(message + "; cause: " + e.what());
+      }
+    }
+    throw SolverError(message);
+  }
+  time_ = stopped ? reached : time;
+  checkFinite(state(), "the state");
+  return !stopped;
+}
+
 void Integrator::setStopTime(double time) { check(CVodeSetStopTime(memory_.get(), time), "CVodeSetStopTime"); }
 
 void Integrator::restart() {

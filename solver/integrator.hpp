@@ -1,6 +1,7 @@
 #pragma once
 //! SUNDIALS wrappers: CVODE (BDF, Newton, KLU) for transients, KINSOL for steady states. Every SUNDIALS object
 //! is owned through an RAII handle by one class; the system integrated is referenced, never copied.
+#include <atomic>
 #include <exception>
 #include <memory>
 #include <span>
@@ -99,6 +100,10 @@ class Integrator {
 
   //! Integrate to `time` [s]; the state is interpolated there unless it is the stop time.
   void advanceTo(double time);
+  //! The same, one step at a time, returning false as soon as `stop` is set (the state is then that of the last
+  //! step taken, and time() its time). Steps and result are those of advanceTo(time): CVODE's normal mode takes
+  //! the same steps internally.
+  bool advanceTo(double time, const std::atomic<bool>& stop);
   //! The integrator never steps past this time (the next discontinuity or the end of the run) [s].
   void setStopTime(double time);
   //! Restart at a discontinuity (after an event changed the network) from the current state.

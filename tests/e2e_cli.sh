@@ -18,7 +18,7 @@ cp "$work/demo.h5" "$work/keep.h5"
 rc=$?; [[ $rc -eq 2 ]] || fail "bad unit gave exit $rc, expected 2"
 grep -q "environment.temperature" "$work/err.txt" || fail "message lacks the key path: $(cat "$work/err.txt")"
 cmp -s "$work/demo.h5" "$work/keep.h5" || fail "a failed run changed the earlier result"
-ls -a "$work" | grep -q "tmp-" && fail "temporary file left behind"
+ls -a "$work" | grep -q "^\.thermorph-\|tmp-" && fail "temporary file left behind"
 
 "$exe" run "$work/missing.toml" 2> "$work/err.txt"; rc=$?
 [[ $rc -eq 2 ]] || fail "missing file gave exit $rc"

@@ -281,16 +281,18 @@ TEST_CASE("sweep progress file: exact round trip, cut-short line ignored, other 
     std::ofstream cut(path, std::ios::app);
     cut << "1\tok\t0.1\t0.2";  // a kill in the middle of a line
   }
-  SweepJournal again(path, plan, true);
-  REQUIRE(again.earlierRows().size() == 2);
-  const RunRow& b2 = again.earlierRows()[0];
-  const RunRow& a2 = again.earlierRows()[1];
-  CHECK(b2.error == b.error);
-  CHECK(a2.index == 2);
-  CHECK(a2.steps == 42);
-  CHECK(a2.metrics[1] == 1.0 / 3.0);
-  CHECK(a2.metrics[2] == -2.5e-300);
-  CHECK(std::isnan(a2.metrics[3]));
+  {  // (the journal holds a lock on the file while it lives)
+    SweepJournal again(path, plan, true);
+    REQUIRE(again.earlierRows().size() == 2);
+    const RunRow& b2 = again.earlierRows()[0];
+    const RunRow& a2 = again.earlierRows()[1];
+    CHECK(b2.error == b.error);
+    CHECK(a2.index == 2);
+    CHECK(a2.steps == 42);
+    CHECK(a2.metrics[1] == 1.0 / 3.0);
+    CHECK(a2.metrics[2] == -2.5e-300);
+    CHECK(std::isnan(a2.metrics[3]));
+  }
   SweepOptions other = o;
   other.vary = {"environment.temperature=10degC,20degC,31degC"};
   CHECK_THROWS_WITH(SweepJournal(path, makeSweepPlan(other), true), Catch::Contains("different sweep"));
