@@ -63,8 +63,12 @@ class ResultsFile {
   struct Series {
     long long dataset;
     std::vector<std::uint64_t> shape;
-    std::uint64_t count;
+    std::uint64_t count;                //!< time points in the file
+    std::uint64_t chunkRows = 1;        //!< time points per chunk
+    std::vector<double> pending = {};   //!< time points appended but not yet written (fewer than a chunk)
   };
+  //! Write the pending time points of series `index` in one extent change and one write.
+  void flush(std::size_t index);
   std::string finalPath_, temporaryPath_;
   long long file_ = -1;
   std::vector<Series> series_;

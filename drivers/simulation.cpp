@@ -106,8 +106,8 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
         integrator.setStopTime(nextStop());
       }
       // Progress within long output intervals too: advance to interpolated intermediate times (CVODE's steps
-      // are not shortened by them).
-      if (progress.active()) {
+      // are not shortened by them), once a progress line can be shown (no interpolation nobody reads).
+      if (progress.due()) {
         const double from = integrator.time();
         for (int part = 1; part < 16; ++part) {
           integrator.advanceTo(from + (t - from) * part / 16.0);
