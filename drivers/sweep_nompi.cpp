@@ -8,7 +8,7 @@ namespace thermorph {
 
 int runSweepMpi(const SweepOptions&) {
   throw CaseError("thermorph runs sweeps on local threads only; for MPI ranks launch thermorph-mpi instead: "
-                  "mpirun -np N thermorph-mpi sweep ... (built when MPI is found, see README); or run the sweep "
+                  "mpirun -np N thermorph-mpi sweep ... (or sensitivity ...; built when MPI is found, see README); or run "
                   "without mpirun, on local cores with -j N");
 }
 
