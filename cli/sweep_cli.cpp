@@ -36,8 +36,9 @@ CLI::App* addSweepSubcommand(CLI::App& app, SweepOptions& o) {
   sweep->add_flag("--resume", o.resume, "Continue an interrupted sweep: only runs missing from OUT.progress are run");
   sweep->add_flag("-q,--quiet", o.quiet, "No progress bar");
   sweep->add_flag("--list", o.list, "Print every run's overrides (as --set arguments) and run nothing");
-  sweep->footer(sweepHasMpi() ? "\nMPI: built in (mpirun -np N thermorph sweep ... distributes the runs)\n"
-                              : "\nMPI: not built in (local threads only)\n");
+  sweep->footer(sweepHasMpi() ? "\nMPI: built in (mpirun -np N thermorph-mpi sweep ... distributes the runs)\n"
+                              : "\nMPI: local threads only; for MPI ranks use thermorph-mpi under mpirun "
+                                "(mpirun -np N thermorph-mpi sweep ...)\n");
   return sweep;
 }
 

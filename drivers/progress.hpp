@@ -12,6 +12,9 @@ class ProgressReporter {
   ProgressReporter& operator=(const ProgressReporter&) = delete;
 
   bool active() const { return !quiet_; }
+  //! True when a report now could be shown (not quiet and the run has taken a second): intermediate times
+  //! are worth interpolating for progress only then.
+  bool due() const { return !quiet_ && std::chrono::duration<double>(Clock::now() - start_).count() >= 1.0; }
   //! Simulated time t [s] reached after `steps` solver steps.
   void report(double t, long steps);
   //! Ends the progress line (idempotent).

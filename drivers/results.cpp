@@ -200,7 +200,7 @@ std::size_t ResultsFile::createDataset(const std::string& path, const std::vecto
   H5Pclose(plist);
   H5Sclose(space);
   H5Gclose(group);
-  series_.push_back({ds, shape, 0});
+  series_.push_back({ds, shape, 0, chunk[0]});
   return series_.size() - 1;
 }
 
@@ -220,6 +220,7 @@ std::size_t ResultsFile::groupTime(const std::string& group) {
   std::size_t copy = createDataset(group + "/time", {}, timeUnits_, timeLongName_);
   checkH5(H5DSset_scale(series_[copy].dataset, "time"), "make " + group + "/time a dimension scale");
   // Catch up with the points already written (series created after the first output).
+  flush(time_);
   if (series_[time_].count > 0) {
     std::vector<double> times(series_[time_].count);
     checkH5(H5Dread(series_[time_].dataset, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, times.data()),
@@ -274,8 +275,26 @@ void ResultsFile::attachDimensions(const std::string& path, const std::vector<st
 }
 
 void ResultsFile::append(std::size_t index, std::span<const double> values) {
+  // Time points are collected a chunk at a time and written with one extent change and one write per chunk
+  // (a few large writes instead of one per output and series).
   Series& s = series_.at(index);
-  std::vector<hsize_t> dims{s.count + 1}, start{s.count}, count{1};
+  s.pending.insert(s.pending.end(), values.begin(), values.end());
+  const std::uint64_t perPoint = std::max<std::uint64_t>(
+      1, std::accumulate(s.shape.begin(), s.shape.end(), std::uint64_t{1}, std::multiplies<>()));
+  if (s.pending.size() / perPoint >= s.chunkRows) flush(index);
+  // The time coordinate extends every group's copy with it.
+  if (index == time_)
+    for (const auto& [group, copy] : groupTimes_)
+      if (copy != time_) append(copy, values);
+}
+
+void ResultsFile::flush(std::size_t index) {
+  Series& s = series_.at(index);
+  if (s.pending.empty()) return;
+  const std::uint64_t perPoint = std::max<std::uint64_t>(
+      1, std::accumulate(s.shape.begin(), s.shape.end(), std::uint64_t{1}, std::multiplies<>()));
+  const hsize_t rows = s.pending.size() / perPoint;
+  std::vector<hsize_t> dims{s.count + rows}, start{s.count}, count{rows};
   for (auto d : s.shape) {
     dims.push_back(d);
     start.push_back(0);
@@ -285,15 +304,12 @@ void ResultsFile::append(std::size_t index, std::span<const double> values) {
   hid_t fileSpace = H5Dget_space(s.dataset);
   H5Sselect_hyperslab(fileSpace, H5S_SELECT_SET, start.data(), nullptr, count.data(), nullptr);
   hid_t memSpace = H5Screate_simple(static_cast<int>(count.size()), count.data(), nullptr);
-  checkH5(H5Dwrite(s.dataset, H5T_NATIVE_DOUBLE, memSpace, fileSpace, H5P_DEFAULT, values.data()),
+  checkH5(H5Dwrite(s.dataset, H5T_NATIVE_DOUBLE, memSpace, fileSpace, H5P_DEFAULT, s.pending.data()),
           "write a time series");
   H5Sclose(memSpace);
   H5Sclose(fileSpace);
-  ++s.count;
-  // The time coordinate extends every group's copy with it.
-  if (index == time_)
-    for (const auto& [group, copy] : groupTimes_)
-      if (copy != time_) append(copy, values);
+  s.count += rows;
+  s.pending.clear();
 }
 
 void ResultsFile::setAttribute(const std::string& object, const std::string& name, const std::string& value) {
@@ -329,7 +345,13 @@ void ResultsFile::setAttribute(const std::string& object, const std::string& nam
 
 std::string ResultsFile::commit(const std::string& otherPath) {
   const std::string target = otherPath.empty() ? finalPath_ : otherPath;
-  if (!close()) {
+  bool flushed = true;
+  try {
+    for (std::size_t i = 0; i < series_.size(); ++i) flush(i);  // the last, partly filled chunks
+  } catch (const std::exception&) {
+    flushed = false;
+  }
+  if (!close() || !flushed) {
     const std::string reason = writeFailureReason();
     temporary_->discard();
     throw OutputError(fmt::format("cannot write the results file {}{}; {} is unchanged", target,

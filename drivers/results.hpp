@@ -67,10 +67,14 @@ class ResultsFile {
   struct Series {
     long long dataset;
     std::vector<std::uint64_t> shape;
-    std::uint64_t count;
+    std::uint64_t count;                //!< time points in the file
+    std::uint64_t chunkRows = 1;        //!< time points per chunk
+    std::vector<double> pending = {};   //!< time points appended but not yet written (fewer than a chunk)
   };
   //! Closes every series and the file; false when HDF5 could not flush them.
   bool close();
+  //! Write the pending time points of series `index` in one extent change and one write.
+  void flush(std::size_t index);
   std::string finalPath_;
   std::unique_ptr<TemporaryFile> temporary_;
   long long file_ = -1;

@@ -123,9 +123,9 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
         integrator.setStopTime(nextStop());
       }
       // Progress within long output intervals too: advance to interpolated intermediate times (CVODE's steps
-      // are not shortened by them).
+      // are not shortened by them), once a progress line can be shown (no interpolation nobody reads).
       if (summary.stopped) break;
-      if (progress.active()) {
+      if (progress.due()) {
         const double from = integrator.time();
         for (int part = 1; part < 16 && !summary.stopped; ++part)
           if (advance(from + (t - from) * part / 16.0)) progress.report(integrator.time(), integrator.statistics().steps);

@@ -400,14 +400,6 @@ int runLocalSweep(const SweepPlan& plan, const SweepOptions& options) {
 
 }  // namespace
 
-#ifndef THERMORPH_HAVE_MPI
-int runSweepMpi(const SweepOptions&) {
-  throw CaseError("this thermorph was built without MPI (install libopenmpi-dev and rebuild with "
-                  "-DTHERMORPH_WITH_MPI=ON); run the sweep without mpirun, on local cores with -j N");
-}
-bool sweepHasMpi() { return false; }
-#endif
-
 int runSweepCommand(const SweepOptions& options) {
   // Every rank plans after MPI_Init. Without MPI support, a launcher with one process runs locally.
   if (launchedUnderMpi() && (sweepHasMpi() || launcherWorldSize() > 1)) return runSweepMpi(options);

@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <memory>
 #include <array>
 #include <map>
 #include <numbers>
@@ -618,7 +619,7 @@ void Body::checkBloodMassBalance() const {
     // (An absolute floor: flows of subnormal size carry no relative precision.)
     if (!sink && std::abs(io[0] - io[1]) > 1e-9 * (std::abs(io[0]) + std::abs(io[1])) + 1e-290)
       throw std::logic_error(fmt::format("blood mass not conserved at {} for {} (in {:g}, out {:g} W/K)",
-                                         network_.nodes[key.first].label, network_.modulators[key.second].name, io[0],
+                                         network_.label(key.first), network_.modulators[key.second].name, io[0],
                                          io[1]));
   }
 }
@@ -660,6 +661,27 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
   cellPerfusion_[group].assign(static_cast<std::size_t>(b.nz * b.nr), 0.0);
   m.innermostLayerCells = s.layers.front().cells;
   m.skinCell = b.nr - 1 - (s.coat ? s.coat->cells : 0);
+  // Cell labels are generated when a message asks for one, not stored per node (memory at 1e5 nodes).
+  {
+    struct Grid {
+      std::string name;
+      Index offset;
+      int nz, nr;
+      std::vector<std::string> ringTissue;
+    };
+    auto grid = std::make_shared<Grid>(Grid{s.name, m.offset, b.nz, b.nr, {}});
+    for (int ir = 0; ir < b.nr; ++ir)
+      grid->ringTissue.push_back(m.layerNames[static_cast<std::size_t>(m.layer[static_cast<std::size_t>(ir)])]);
+    network_.labeler = [grid, previous = std::move(network_.labeler)](Index i) -> std::string {
+      const Index cells = static_cast<Index>(grid->nz * grid->nr);
+      if (i >= grid->offset && i < grid->offset + cells) {
+        const int k = static_cast<int>(i - grid->offset);
+        return fmt::format("{}: axial {}, radial {} ({})", grid->name, k / grid->nr, k % grid->nr,
+                           grid->ringTissue[static_cast<std::size_t>(k % grid->nr)]);
+      }
+      return previous ? previous(i) : "node " + std::to_string(i);
+    };
+  }
   for (int iz = 0; iz < b.nz; ++iz) {
     const double z0 = iz * b.dz, z1 = (iz + 1) * b.dz;
     const CrossSection c0 = crossSection(s, b.scaleAt(z0));
@@ -734,8 +756,7 @@ void Body::addCellNodes(const SegmentBuild& b, SegmentMesh& m, int iz, const Cro
     }
     const TissueProperties& t = *b.tissue[static_cast<std::size_t>(ir)];
     m.volume[static_cast<std::size_t>(iz * b.nr + ir)] = volume;
-    std::string label = fmt::format("{}: axial {}, radial {} ({})", s.name, iz, ir, m.layerNames[m.layer[ir]]);
-    Index node = network_.addNode(t.density * t.specificHeat * volume, b.group, label);
+    Index node = network_.addNode(t.density * t.specificHeat * volume, b.group);  // label: see addSegment
     if (!t.isCoat()) {
       m.tissueVolume += volume;
       m.tissueMass += t.density * volume;

@@ -7,50 +7,103 @@
 namespace thermorph {
 
 // ---- correlations ---------------------------------------------------------------------
+// Each correlation is written once as a template on the number type: double for the public functions below,
+// Dual (models/dual.hpp) inside the evaluator for h and dh/dT_s in one pass.
 
-double nusseltCylinderCrossFlow(double reynolds, double prandtl) {
-  const double laminar = 0.62 * std::sqrt(reynolds) * std::cbrt(prandtl) /
-                         std::pow(1.0 + std::pow(0.4 / prandtl, 2.0 / 3.0), 0.25);
-  return 0.3 + laminar * std::pow(1.0 + std::pow(reynolds / 282000.0, 5.0 / 8.0), 4.0 / 5.0);
+namespace {
+
+template <class T>
+T cylinderCrossFlow(T reynolds, T prandtl) {
+  using std::cbrt, std::pow, std::sqrt;
+  const T laminar = 0.62 * sqrt(reynolds) * cbrt(prandtl) / pow(1.0 + pow(0.4 / prandtl, 2.0 / 3.0), 0.25);
+  return 0.3 + laminar * pow(1.0 + pow(reynolds / 282000.0, 5.0 / 8.0), 4.0 / 5.0);
 }
+
+template <class T>
+T sphereForced(T reynolds, T prandtl, T viscosityRatio) {
+  using std::pow, std::sqrt;
+  return 2.0 + (0.4 * sqrt(reynolds) + 0.06 * pow(reynolds, 2.0 / 3.0)) * pow(prandtl, 0.4) *
+                   pow(viscosityRatio, 0.25);
+}
+
+template <class T>
+T flatPlateForced(T reynolds, T prandtl) {
+  using std::cbrt, std::pow, std::sqrt;
+  const T laminar = 0.664 * sqrt(reynolds);
+  const T mixed = 0.037 * pow(reynolds, 0.8) - 871.0;
+  return maxOf(laminar, mixed) * cbrt(prandtl);
+}
+
+template <class T>
+T mitchell(T reynolds, double a, double b) {
+  using std::pow;
+  return a * pow(reynolds, b);
+}
+
+template <class T>
+T horizontalCylinderFree(T rayleigh, T prandtl) {
+  using std::pow;
+  const T root = 0.60 + 0.387 * pow(rayleigh, 1.0 / 6.0) / pow(1.0 + pow(0.559 / prandtl, 9.0 / 16.0), 8.0 / 27.0);
+  return root * root;
+}
+
+template <class T>
+T sphereFree(T rayleigh, T prandtl) {
+  using std::pow;
+  return 2.0 + 0.589 * pow(rayleigh, 0.25) / pow(1.0 + pow(0.469 / prandtl, 9.0 / 16.0), 4.0 / 9.0);
+}
+
+template <class T>
+T verticalPlateFree(T rayleigh, T prandtl) {
+  using std::pow;
+  const T root = 0.825 + 0.387 * pow(rayleigh, 1.0 / 6.0) / pow(1.0 + pow(0.492 / prandtl, 9.0 / 16.0), 8.0 / 27.0);
+  return root * root;
+}
+
+template <class T>
+T horizontalPlateFreeUpper(T rayleigh) {
+  using std::cbrt, std::pow;
+  return maxOf<T>(0.54 * pow(rayleigh, 0.25), 0.15 * cbrt(rayleigh));
+}
+
+template <class T>
+T horizontalPlateFreeLower(T rayleigh) {
+  using std::pow;
+  return 0.52 * pow(rayleigh, 0.2);
+}
+
+template <class T>
+T mixed(T nusseltForced, T nusseltFree, double exponent) {
+  using std::pow;
+  return pow(pow(nusseltForced, exponent) + pow(nusseltFree, exponent), 1.0 / exponent);
+}
+
+}  // namespace
+
+double nusseltCylinderCrossFlow(double reynolds, double prandtl) { return cylinderCrossFlow(reynolds, prandtl); }
 
 double nusseltSphereForced(double reynolds, double prandtl, double viscosityRatio) {
-  return 2.0 + (0.4 * std::sqrt(reynolds) + 0.06 * std::pow(reynolds, 2.0 / 3.0)) * std::pow(prandtl, 0.4) *
-                   std::pow(viscosityRatio, 0.25);
+  return sphereForced(reynolds, prandtl, viscosityRatio);
 }
 
-double nusseltFlatPlateForced(double reynolds, double prandtl) {
-  const double laminar = 0.664 * std::sqrt(reynolds);
-  const double mixed = 0.037 * std::pow(reynolds, 0.8) - 871.0;
-  return std::max(laminar, mixed) * std::cbrt(prandtl);
-}
+double nusseltFlatPlateForced(double reynolds, double prandtl) { return flatPlateForced(reynolds, prandtl); }
 
-double nusseltMitchell(double reynolds, double a, double b) { return a * std::pow(reynolds, b); }
+double nusseltMitchell(double reynolds, double a, double b) { return mitchell(reynolds, a, b); }
 
 double nusseltHorizontalCylinderFree(double rayleigh, double prandtl) {
-  const double root = 0.60 + 0.387 * std::pow(rayleigh, 1.0 / 6.0) /
-                                 std::pow(1.0 + std::pow(0.559 / prandtl, 9.0 / 16.0), 8.0 / 27.0);
-  return root * root;
+  return horizontalCylinderFree(rayleigh, prandtl);
 }
 
-double nusseltSphereFree(double rayleigh, double prandtl) {
-  return 2.0 + 0.589 * std::pow(rayleigh, 0.25) / std::pow(1.0 + std::pow(0.469 / prandtl, 9.0 / 16.0), 4.0 / 9.0);
-}
+double nusseltSphereFree(double rayleigh, double prandtl) { return sphereFree(rayleigh, prandtl); }
 
-double nusseltVerticalPlateFree(double rayleigh, double prandtl) {
-  const double root = 0.825 + 0.387 * std::pow(rayleigh, 1.0 / 6.0) /
-                                  std::pow(1.0 + std::pow(0.492 / prandtl, 9.0 / 16.0), 8.0 / 27.0);
-  return root * root;
-}
+double nusseltVerticalPlateFree(double rayleigh, double prandtl) { return verticalPlateFree(rayleigh, prandtl); }
 
-double nusseltHorizontalPlateFreeUpper(double rayleigh) {
-  return std::max(0.54 * std::pow(rayleigh, 0.25), 0.15 * std::cbrt(rayleigh));
-}
+double nusseltHorizontalPlateFreeUpper(double rayleigh) { return horizontalPlateFreeUpper(rayleigh); }
 
-double nusseltHorizontalPlateFreeLower(double rayleigh) { return 0.52 * std::pow(rayleigh, 0.2); }
+double nusseltHorizontalPlateFreeLower(double rayleigh) { return horizontalPlateFreeLower(rayleigh); }
 
 double mixedNusselt(double nusseltForced, double nusseltFree, double exponent) {
-  return std::pow(std::pow(nusseltForced, exponent) + std::pow(nusseltFree, exponent), 1.0 / exponent);
+  return mixed(nusseltForced, nusseltFree, exponent);
 }
 
 MitchellShape mitchellConstants(Geometry geometry) {
@@ -69,107 +122,117 @@ inline constexpr ValidityRange kMitchellShape{"Mitchell (1976) shape constants, 
 //! Square of the floor on the relative density difference of free convection [-].
 constexpr double kBuoyancyFloorSquared = 1e-16;
 
-//! h and dimensionless groups at one surface temperature (no derivative).
-ConvectionResult evaluateAt(const ConvectionInput& in, double surfaceTemperature, bool checkRanges) {
+//! h and dimensionless groups at the surface temperature, and dh/dT_s exactly: the surface temperature is a Dual
+//! with derivative 1 and every property and correlation is differentiated with it (forward mode).
+ConvectionResult evaluate(const ConvectionInput& in) {
+  using D = Dual;
   ConvectionResult r;
   auto check = [&](const ValidityRange& range, double value) {
-    if (checkRanges && checkValidity(range, value)) r.outsideValidity = true;
+    if (checkValidity(range, value)) r.outsideValidity = true;
   };
-  const double ts = surfaceTemperature, tinf = in.fluidTemperature;
-  const double filmTemperature = 0.5 * (ts + tinf);
-  const FluidProperties film = fluidProperties(in.medium, filmTemperature, in.salinity);
-  const double nuFilm = film.kinematicViscosity();
-  if (checkRanges && film.outsideValidity) r.outsideValidity = true;
+  const D ts{in.surfaceTemperature, 1.0};
+  const double tinf = in.fluidTemperature;
+  const D filmTemperature = 0.5 * (ts + tinf);
+  const FluidPropertiesDual film = fluidPropertiesDual(in.medium, filmTemperature, in.salinity);
+  const D nuFilm = film.kinematicViscosity();
+  if (film.outsideValidity) r.outsideValidity = true;
 
   // Free convection: relative density difference b, floored smoothly.
-  double b = 0.0;
+  D b = 0.0;
   if (in.medium == Medium::Air) {
     b = (ts - tinf) / filmTemperature;  // beta = 1/T_film (ideal gas)
   } else {
-    b = (mediumDensity(in.medium, tinf, in.salinity) - mediumDensity(in.medium, ts, in.salinity)) / film.density;
+    b = (mediumDensity(in.medium, tinf, in.salinity) - mediumDensityDual(in.medium, ts, in.salinity)) / film.density;
   }
-  b = std::sqrt(b * b + kBuoyancyFloorSquared);
+  b = sqrt(b * b + kBuoyancyFloorSquared);
 
   double freeLength = in.length;
   if (in.geometry == Geometry::Plate && !in.verticalPlate) {
     const double width = in.width > 0.0 ? in.width : in.length;
     freeLength = in.length * width / (2.0 * (in.length + width));  // area / perimeter
   }
-  r.grashof = kStandardGravity * b * std::pow(freeLength, 3) / (nuFilm * nuFilm);
-  r.rayleigh = r.grashof * film.prandtl;
+  const D grashof = kStandardGravity * b * std::pow(freeLength, 3) / (nuFilm * nuFilm);
+  const D rayleigh = grashof * film.prandtl;
+  r.grashof = grashof.v;
+  r.rayleigh = rayleigh.v;
 
-  double nuFree = 0.0;
+  D nuFree = 0.0;
   switch (in.geometry) {
     case Geometry::Sphere:
       check(kChurchillSphereRa, r.rayleigh);
-      check(kChurchillSpherePr, film.prandtl);
-      nuFree = nusseltSphereFree(r.rayleigh, film.prandtl);
+      check(kChurchillSpherePr, film.prandtl.v);
+      nuFree = sphereFree(rayleigh, film.prandtl);
       break;
     case Geometry::Cylinder:
       check(kChurchillChuCylinderRa, r.rayleigh);
-      nuFree = nusseltHorizontalCylinderFree(r.rayleigh, film.prandtl);
+      nuFree = horizontalCylinderFree(rayleigh, film.prandtl);
       break;
     case Geometry::Plate:
       if (in.verticalPlate) {
-        nuFree = nusseltVerticalPlateFree(r.rayleigh, film.prandtl);
+        nuFree = verticalPlateFree(rayleigh, film.prandtl);
       } else {
         check(kHorizontalPlateUpperRa, r.rayleigh);
         check(kHorizontalPlateLowerRa, r.rayleigh);
-        nuFree = 0.5 * (nusseltHorizontalPlateFreeUpper(r.rayleigh) + nusseltHorizontalPlateFreeLower(r.rayleigh));
+        nuFree = 0.5 * (horizontalPlateFreeUpper(rayleigh) + horizontalPlateFreeLower(rayleigh));
       }
       break;
   }
-  const double hFree = nuFree * film.conductivity / freeLength;
+  const D hFree = nuFree * film.conductivity / freeLength;
 
+  D h = 0.0;
   const double speed = std::abs(in.speed);
   if (speed == 0.0) {
-    r.h = hFree;
+    h = hFree;
   } else if (in.choice == CorrelationChoice::Mitchell) {
     const MitchellShape shape = mitchellConstants(in.geometry);
     if (!shape.exact) check(kMitchellShape, static_cast<double>(in.geometry));
-    r.reynolds = speed * in.volumeLength / nuFilm;
-    const double hForced =
-        nusseltMitchell(r.reynolds, shape.constants.a, shape.constants.b) * film.conductivity / in.volumeLength;
-    r.h = mixedNusselt(hForced, hFree);
+    const D reynolds = speed * in.volumeLength / nuFilm;
+    r.reynolds = reynolds.v;
+    const D hForced = mitchell(reynolds, shape.constants.a, shape.constants.b) * film.conductivity / in.volumeLength;
+    h = mixed(hForced, hFree, 3.0);
   } else {
     switch (in.geometry) {
       case Geometry::Cylinder: {
-        r.reynolds = speed * in.length / nuFilm;
-        check(kChurchillBernsteinRePr, r.reynolds * film.prandtl);
-        const double hForced = nusseltCylinderCrossFlow(r.reynolds, film.prandtl) * film.conductivity / in.length;
-        r.h = mixedNusselt(hForced, hFree);
+        const D reynolds = speed * in.length / nuFilm;
+        r.reynolds = reynolds.v;
+        check(kChurchillBernsteinRePr, r.reynolds * film.prandtl.v);
+        const D hForced = cylinderCrossFlow(reynolds, film.prandtl) * film.conductivity / in.length;
+        h = mixed(hForced, hFree, 3.0);
         break;
       }
       case Geometry::Plate: {
-        r.reynolds = speed * in.length / nuFilm;
+        const D reynolds = speed * in.length / nuFilm;
+        r.reynolds = reynolds.v;
         check(kFlatPlateRe, r.reynolds);
-        check(kFlatPlatePr, film.prandtl);
-        const double hForced = nusseltFlatPlateForced(r.reynolds, film.prandtl) * film.conductivity / in.length;
-        r.h = mixedNusselt(hForced, hFree);
+        check(kFlatPlatePr, film.prandtl.v);
+        const D hForced = flatPlateForced(reynolds, film.prandtl) * film.conductivity / in.length;
+        h = mixed(hForced, hFree, 3.0);
         break;
       }
       case Geometry::Sphere: {
         // Whitaker: free-stream properties, mu_s at the surface.
         const FluidProperties stream = fluidProperties(in.medium, tinf, in.salinity);
-        const FluidProperties surface = fluidProperties(in.medium, ts, in.salinity);
-        if (checkRanges && (stream.outsideValidity || surface.outsideValidity)) r.outsideValidity = true;
+        const FluidPropertiesDual surface = fluidPropertiesDual(in.medium, ts, in.salinity);
+        if (stream.outsideValidity || surface.outsideValidity) r.outsideValidity = true;
         r.reynolds = speed * in.length / stream.kinematicViscosity();
-        const double viscosityRatio = stream.viscosity / surface.viscosity;
+        const D viscosityRatio = stream.viscosity / surface.viscosity;
         check(kWhitakerRe, r.reynolds);
         check(kWhitakerPr, stream.prandtl);
-        if (in.medium != Medium::Air) check(kWhitakerViscosityRatio, viscosityRatio);
-        const double nuForced = nusseltSphereForced(r.reynolds, stream.prandtl, viscosityRatio);
+        if (in.medium != Medium::Air) check(kWhitakerViscosityRatio, viscosityRatio.v);
+        const D nuForced = sphereForced<D>(r.reynolds, stream.prandtl, viscosityRatio);
         const double hConductionForced = 2.0 * stream.conductivity / in.length;
-        const double hConductionFree = 2.0 * film.conductivity / in.length;
-        const double hForced = nuForced * stream.conductivity / in.length;
-        r.h = hConductionFree + mixedNusselt(hForced - hConductionForced, hFree - hConductionFree);
+        const D hConductionFree = 2.0 * film.conductivity / in.length;
+        const D hForced = nuForced * stream.conductivity / in.length;
+        h = hConductionFree + mixed(hForced - hConductionForced, hFree - hConductionFree, 3.0);
         break;
       }
     }
   }
+  r.h = h.v;
+  r.dh_dTs = h.d;
   const double nusseltLength =
       (in.choice == CorrelationChoice::Mitchell && speed > 0.0) ? in.volumeLength : in.length;
-  r.nusselt = r.h * nusseltLength / film.conductivity;
+  r.nusselt = r.h * nusseltLength / film.conductivity.v;
   return r;
 }
 
@@ -182,12 +245,7 @@ ConvectionResult convectionCoefficient(const ConvectionInput& input) {
   if (!(input.surfaceTemperature > 0.0) || !(input.fluidTemperature > 0.0))
     throw std::invalid_argument("convectionCoefficient: temperatures must be positive kelvin");
 
-  ConvectionResult r = evaluateAt(input, input.surfaceTemperature, true);
-  constexpr double step = 0.01;  // K
-  const double hPlus = evaluateAt(input, input.surfaceTemperature + step, false).h;
-  const double hMinus = evaluateAt(input, input.surfaceTemperature - step, false).h;
-  r.dh_dTs = (hPlus - hMinus) / (2.0 * step);
-  return r;
+  return evaluate(input);
 }
 
 }  // namespace thermorph

@@ -40,11 +40,21 @@ double outerVolume(const SegmentSpec& s) {
 Medium waterMedium(SurroundingMedium m) { return m == SurroundingMedium::SeaWater ? Medium::SeaWater : Medium::FreshWater; }
 
 //! Property group of the heat-mass transfer analogy h_m / h_c = 1 / (rho c_p Le^{2/3}) [m3 K/J] of dry air at
-//! `filmTemperature` and standard pressure (Incropera et al. ch. 6; as cutaneousEvaporation's film form).
-double analogyGroup(double filmTemperature) {
-  const double density = kStandardPressure / (kGasConstantDryAir * filmTemperature);
-  const double cp = fluidProperties(Medium::Air, filmTemperature).specificHeat;
-  return 1.0 / (density * cp * std::pow(lewisNumberVapourInAir(filmTemperature), 2.0 / 3.0));
+//! `filmTemperature` and standard pressure (Incropera et al. ch. 6; as cutaneousEvaporation's film form), with its
+//! exact derivative (dual numbers); also the specific heat and Lewis number at the film temperature, equal bit for
+//! bit to fluidProperties(...).specificHeat and lewisNumberVapourInAir(...).
+struct AnalogyGroup {
+  Dual group;
+  double specificHeat = 0.0, lewisNumber = 0.0;
+};
+AnalogyGroup analogyGroup(Dual film) {
+  const FluidPropertiesDual air = fluidPropertiesDual(Medium::Air, film);
+  const Dual density = kStandardPressure / (kGasConstantDryAir * film);
+  // lewisNumberVapourInAir and vapourDiffusivityInAir (models/surface_physics.cpp, models/media.cpp) at 1 atm.
+  const Dual alpha = air.conductivity / (density * air.specificHeat);
+  const Dual diffusivity = 0.26e-4 * pow(film / 298.0, 1.5) * (kStandardPressure / kStandardPressure);
+  const Dual lewis = alpha / diffusivity;
+  return {1.0 / (density * air.specificHeat * pow(lewis, 2.0 / 3.0)), air.specificHeat.v, lewis.v};
 }
 
 }  // namespace
@@ -158,16 +168,18 @@ double EnvironmentModel::convectionCoefficient(Index face, double faceTemperatur
   if (derivative) *derivative = 0.0;
   if (surface.fixedConvection) return surface.convectionCoefficient;
 
-  // Within 1e-6 K of the last evaluation the first-order expansion h + h' dT is exact to ~1e-14 relative.
+  // Within 1e-6 K of the last evaluation the first-order expansion h + h' dT is exact to ~1e-14 relative. The
+  // coefficient depends on time only through the fluid (medium, temperature, speed): an unchanged fluid reuses it.
+  const FaceFluid fl = fluid(f.segment, time);
   CachedCoefficient& cached = cache_[face];
   const double shift = faceTemperature - cached.faceTemperature;
-  if (std::abs(shift) < 1e-6 && cached.time == time && cached.interval == interval_) {
+  if (std::abs(shift) < 1e-6 && cached.fluidTemperature == fl.temperature && cached.speed == fl.speed &&
+      cached.medium == fl.medium) {
     if (derivative) *derivative = cached.dh;
     return cached.h + cached.dh * shift;
   }
 
   const SegmentSpec& s = case_.segments[f.segment];
-  const FaceFluid fl = fluid(f.segment, time);
   ConvectionInput in;
   in.medium = fl.medium;
   in.geometry = f.shape == Shape::Sphere ? Geometry::Sphere : f.shape == Shape::Plate ? Geometry::Plate
@@ -183,7 +195,7 @@ double EnvironmentModel::convectionCoefficient(Index face, double faceTemperatur
   in.width = surface.width;
   const ConvectionResult r = thermorph::convectionCoefficient(in);
   if (r.outsideValidity) collectWarnings();
-  cached = {faceTemperature, time, r.h, r.dh_dTs, interval_};
+  cached = {faceTemperature, fl.temperature, fl.speed, r.h, r.dh_dTs, fl.medium};
   if (derivative) *derivative = r.dh_dTs;
   return r.h;
 }
@@ -223,6 +235,7 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
     // the slope includes h(T_s) and the film properties' dependence on T_s (through T_film = (T_s + T_a)/2).
     if (spec.wettedFraction > 0.0) {
       const double film = 0.5 * (Ts + fl.temperature);
+      const AnalogyGroup group = analogyGroup(Dual{film, 1.0});
       EvaporationInput in;
       in.convectionCoefficient = h;
       in.surfaceTemperature = Ts;
@@ -230,12 +243,10 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
       in.relativeHumidity = value(V::RelativeHumidity, time);
       in.wettedFraction = spec.wettedFraction;
       in.airDensity = kStandardPressure / (kGasConstantDryAir * film);
-      in.airSpecificHeat = fluidProperties(Medium::Air, film).specificHeat;
-      in.lewisNumber = lewisNumberVapourInAir(film);
+      in.airSpecificHeat = group.specificHeat;
+      in.lewisNumber = group.lewisNumber;
       const EvaporationFlux e = cutaneousEvaporation(in);
-      constexpr double step = 0.01;  // K, central difference of the smooth property group
-      const double group = analogyGroup(film);
-      const double dLogGroup = (analogyGroup(film + step) - analogyGroup(film - step)) / (2.0 * step * group);
+      const double dLogGroup = group.group.d / group.group.v;  // d ln(group) / d T_film [1/K]
       channelHeat[evaporationChannel_] += e.flux * exposed;
       channelDerivative[evaporationChannel_] += exposed * (e.dFlux_dTs + e.dFlux_dh * dh + e.flux * 0.5 * dLogGroup);
     }

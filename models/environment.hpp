@@ -112,10 +112,11 @@ class EnvironmentModel : public SurfaceModel {
   //! In the current interval every variable is linear in time: offset + slope t [SI, SI/s].
   std::array<double, kEnvironmentVariables> offset_{}, slope_{};
   mutable std::vector<std::string> warnings_;
-  //! Last correlation result per face: the face Newton solve ends with a call a few nK from its last iterate.
+  //! Last correlation result per face and the fluid it was for: the face Newton solve ends with a call a few nK
+  //! from its last iterate, and the next right-hand side starts from the same face temperature.
   struct CachedCoefficient {
-    double faceTemperature = -1.0, time = 0.0, h = 0.0, dh = 0.0;
-    std::size_t interval = 0;
+    double faceTemperature = -1.0, fluidTemperature = -1.0, speed = 0.0, h = 0.0, dh = 0.0;
+    Medium medium = Medium::Air;
   };
   mutable std::vector<CachedCoefficient> cache_;
 };

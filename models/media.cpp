@@ -75,31 +75,68 @@ void resetValidityWarnings() {
 
 namespace {
 
-//! Value of a C1 cubic Hermite interpolant through (x, y) at xq [units of y];
-//! nodal slopes are those of the parabola through each node and its neighbours.
-//! x strictly increasing, x and y of equal length >= 3; xq inside [x.front(), x.back()].
-double hermiteInterpolate(std::span<const double> x, std::span<const double> y, double xq) {
-  const std::size_t n = x.size();
+//! A table for C1 cubic Hermite interpolation: nodes x (strictly increasing, at least 3), values y and nodal
+//! slopes, those of the parabola through each node and its neighbours (one-sided parabola at the ends),
+//! computed once.
+template <std::size_t N>
+struct HermiteTable {
+  std::array<double, N> x, y, slope;
+  constexpr HermiteTable(const std::array<double, N>& xs, const std::array<double, N>& ys) : x(xs), y(ys), slope{} {
+    static_assert(N >= 3);
+    auto secant = [&](std::size_t j) { return (y[j + 1] - y[j]) / (x[j + 1] - x[j]); };
+    for (std::size_t j = 0; j < N; ++j) {
+      if (j == 0) {
+        const double h0 = x[1] - x[0], h1 = x[2] - x[1];
+        slope[j] = secant(0) + (secant(0) - secant(1)) * h0 / (h0 + h1);
+      } else if (j == N - 1) {
+        const double h0 = x[N - 2] - x[N - 3], h1 = x[N - 1] - x[N - 2];
+        slope[j] = secant(N - 2) + (secant(N - 2) - secant(N - 3)) * h1 / (h0 + h1);
+      } else {
+        const double hl = x[j] - x[j - 1], hr = x[j + 1] - x[j];
+        slope[j] = (secant(j - 1) * hr + secant(j) * hl) / (hl + hr);
+      }
+    }
+  }
+};
+
+//! Where xq lies in the nodes x: interval [x_i, x_{i+1}] and the local coordinate t in [0, 1].
+template <std::size_t N>
+struct HermitePoint {
+  std::size_t i;
+  double h, t;
+};
+template <std::size_t N>
+HermitePoint<N> hermiteLocate(const std::array<double, N>& x, double xq) {
   std::size_t i = static_cast<std::size_t>(std::upper_bound(x.begin(), x.end(), xq) - x.begin());
-  i = std::clamp<std::size_t>(i, 1, n - 1) - 1;  // interval [x_i, x_{i+1}]
-  auto secant = [&](std::size_t j) { return (y[j + 1] - y[j]) / (x[j + 1] - x[j]); };
-  auto slope = [&](std::size_t j) {
-    if (j == 0) {
-      const double h0 = x[1] - x[0], h1 = x[2] - x[1];
-      return secant(0) + (secant(0) - secant(1)) * h0 / (h0 + h1);
-    }
-    if (j == n - 1) {
-      const double h0 = x[n - 2] - x[n - 3], h1 = x[n - 1] - x[n - 2];
-      return secant(n - 2) + (secant(n - 2) - secant(n - 3)) * h1 / (h0 + h1);
-    }
-    const double hl = x[j] - x[j - 1], hr = x[j + 1] - x[j];
-    return (secant(j - 1) * hr + secant(j) * hl) / (hl + hr);
-  };
+  i = std::clamp<std::size_t>(i, 1, N - 1) - 1;
   const double h = x[i + 1] - x[i];
-  const double t = (xq - x[i]) / h;
-  const double t2 = t * t, t3 = t2 * t;
-  return (2 * t3 - 3 * t2 + 1) * y[i] + (t3 - 2 * t2 + t) * h * slope(i) + (-2 * t3 + 3 * t2) * y[i + 1] +
-         (t3 - t2) * h * slope(i + 1);
+  return {i, h, (xq - x[i]) / h};
+}
+
+//! Value of the Hermite interpolant of `table` at the located point [units of y]; with a Dual temperature the
+//! derivative too (the interpolant's exact slope times the temperature's derivative).
+template <std::size_t N>
+double hermiteValue(const HermiteTable<N>& table, const HermitePoint<N>& p) {
+  const double t = p.t, t2 = t * t, t3 = t2 * t;
+  const std::size_t i = p.i;
+  return (2 * t3 - 3 * t2 + 1) * table.y[i] + (t3 - 2 * t2 + t) * p.h * table.slope[i] +
+         (-2 * t3 + 3 * t2) * table.y[i + 1] + (t3 - t2) * p.h * table.slope[i + 1];
+}
+template <std::size_t N>
+double hermiteSlope(const HermiteTable<N>& table, const HermitePoint<N>& p) {
+  const double t = p.t, t2 = t * t;
+  const std::size_t i = p.i;
+  return ((6 * t2 - 6 * t) * table.y[i] + (3 * t2 - 4 * t + 1) * p.h * table.slope[i] +
+          (-6 * t2 + 6 * t) * table.y[i + 1] + (3 * t2 - 2 * t) * p.h * table.slope[i + 1]) /
+         p.h;
+}
+template <std::size_t N>
+double hermite(const HermiteTable<N>& table, const HermitePoint<N>& p, double) {
+  return hermiteValue(table, p);
+}
+template <std::size_t N>
+Dual hermite(const HermiteTable<N>& table, const HermitePoint<N>& p, Dual x) {
+  return {hermiteValue(table, p), hermiteSlope(table, p) * x.d};
 }
 
 //! Clamp `value` into `range`, recording a warning and setting `clamped` when it was outside.
@@ -107,6 +144,14 @@ double clampToRange(const ValidityRange& range, double value, bool& clamped) {
   if (checkValidity(range, value)) {
     clamped = true;
     return std::isnan(value) ? range.min : std::clamp(value, range.min, range.max);
+  }
+  return value;
+}
+//! As above; a clamped value is constant (derivative 0).
+Dual clampToRange(const ValidityRange& range, Dual value, bool& clamped) {
+  if (checkValidity(range, value.v)) {
+    clamped = true;
+    return {std::isnan(value.v) ? range.min : std::clamp(value.v, range.min, range.max), 0.0};
   }
   return value;
 }
@@ -166,37 +211,66 @@ DensityAndSlope sharqawyDensity(double temperatureK, double salinity) {
   return {rhoW + salt, drhoW + dsalt};
 }
 
-FluidProperties airProperties(double temperatureK) {
-  FluidProperties p;
-  const double t = clampToRange(kAirTableRange, temperatureK, p.outsideValidity);
-  p.density = hermiteInterpolate(kAirT, kAirRho, t);
-  p.specificHeat = hermiteInterpolate(kAirT, kAirCp, t);
-  p.viscosity = hermiteInterpolate(kAirT, kAirMu, t);
-  p.conductivity = hermiteInterpolate(kAirT, kAirK, t);
+const HermiteTable<5> kAirRhoTable{kAirT, kAirRho}, kAirCpTable{kAirT, kAirCp}, kAirMuTable{kAirT, kAirMu},
+    kAirKTable{kAirT, kAirK};
+const HermiteTable<22> kWaterCpTable{kWaterT, kWaterCp}, kWaterMuTable{kWaterT, kWaterMu},
+    kWaterKTable{kWaterT, kWaterK};
+
+//! Fluid properties with values of type T (double, or Dual for values and temperature derivatives).
+template <class T>
+struct Properties {
+  T density{}, viscosity{}, conductivity{}, specificHeat{}, expansion{};
+  bool outsideValidity = false;
+};
+
+//! Density [kg/m3] of the fit `fit` at t (double or Dual); with a Dual the fit's own slope is the derivative.
+template <class Fit>
+double densityAt(Fit fit, double t) {
+  return fit(t).rho;
+}
+template <class Fit>
+Dual densityAt(Fit fit, Dual t) {
+  const DensityAndSlope d = fit(t.v);
+  return {d.rho, d.drho * t.d};
+}
+
+template <class T>
+Properties<T> airProperties(T temperatureK) {
+  Properties<T> p;
+  const T t = clampToRange(kAirTableRange, temperatureK, p.outsideValidity);
+  const auto at = hermiteLocate(kAirT, valueOf(t));
+  p.density = hermite(kAirRhoTable, at, t);
+  p.specificHeat = hermite(kAirCpTable, at, t);
+  p.viscosity = hermite(kAirMuTable, at, t);
+  p.conductivity = hermite(kAirKTable, at, t);
   p.expansion = 1.0 / t;  // ideal gas
   return p;
 }
 
-FluidProperties freshWaterProperties(double temperatureK) {
-  FluidProperties p;
-  const double t = clampToRange(kFreshWaterTableRange, temperatureK, p.outsideValidity);
-  const DensityAndSlope d = kellDensity(t);
-  p.density = d.rho;
-  p.expansion = -d.drho / d.rho;
-  p.specificHeat = hermiteInterpolate(kWaterT, kWaterCp, t);
-  p.viscosity = hermiteInterpolate(kWaterT, kWaterMu, t);
-  p.conductivity = hermiteInterpolate(kWaterT, kWaterK, t);
+template <class T>
+Properties<T> freshWaterProperties(T temperatureK) {
+  Properties<T> p;
+  const T t = clampToRange(kFreshWaterTableRange, temperatureK, p.outsideValidity);
+  const DensityAndSlope d = kellDensity(valueOf(t));
+  p.density = densityAt([](double x) { return kellDensity(x); }, t);
+  p.expansion = -d.drho / d.rho;  // value only (the convection evaluator does not use it)
+  const auto at = hermiteLocate(kWaterT, valueOf(t));
+  p.specificHeat = hermite(kWaterCpTable, at, t);
+  p.viscosity = hermite(kWaterMuTable, at, t);
+  p.conductivity = hermite(kWaterKTable, at, t);
   return p;
 }
 
-FluidProperties seaWaterProperties(double temperatureK, double salinity) {
-  FluidProperties p;
-  const double temp = clampToRange(kSeaWaterTemperatureRange, temperatureK, p.outsideValidity);
+template <class T>
+Properties<T> seaWaterProperties(T temperatureK, double salinity) {
+  using std::cbrt, std::pow;
+  Properties<T> p;
+  const T temp = clampToRange(kSeaWaterTemperatureRange, temperatureK, p.outsideValidity);
   const double s = clampToRange(kSeaWaterSalinityRange, salinity, p.outsideValidity);
-  const double t = temp - kZeroCelsius;
-  const DensityAndSlope d = sharqawyDensity(temp, s);
-  p.density = d.rho;
-  p.expansion = -d.drho / d.rho;
+  const T t = temp - kZeroCelsius;
+  const DensityAndSlope d = sharqawyDensity(valueOf(temp), s);
+  p.density = densityAt([s](double x) { return sharqawyDensity(x, s); }, temp);
+  p.expansion = -d.drho / d.rho;  // value only
 
   // Sharqawy et al. (2010) eq. 9 (after Jamieson et al. 1969): cp [kJ/(kg K)] = A + B T + C T^2 + D T^3,
   // T in K, S in g/kg.
@@ -209,30 +283,69 @@ FluidProperties seaWaterProperties(double temperatureK, double salinity) {
 
   // Sharqawy et al. (2010) eq. 13 (after Jamieson & Tudhope 1970), k in mW/(m K):
   // log10 k = log10(240 + 0.0002 S) + 0.434 (2.3 - (343.5 + 0.037 S)/T) (1 - T/(647 + 0.03 S))^{1/3}.
-  const double log10k = std::log10(240.0 + 0.0002 * sg) +
-                        0.434 * (2.3 - (343.5 + 0.037 * sg) / temp) * std::cbrt(1.0 - temp / (647.0 + 0.03 * sg));
-  p.conductivity = 1e-3 * std::pow(10.0, log10k);
+  const T log10k = std::log10(240.0 + 0.0002 * sg) +
+                   0.434 * (2.3 - (343.5 + 0.037 * sg) / temp) * cbrt(1.0 - temp / (647.0 + 0.03 * sg));
+  p.conductivity = 1e-3 * pow(10.0, log10k);
 
   // Sharqawy et al. (2010) eqs. 22-23: mu_w = 4.2844e-5 + 1/(0.157 (t + 64.993)^2 - 91.296),
   // mu = mu_w (1 + A S + B S^2), A = 1.541 + 1.998e-2 t - 9.52e-5 t^2, B = 7.974 - 7.561e-2 t + 4.724e-4 t^2.
-  const double muW = 4.2844e-5 + 1.0 / (0.157 * (t + 64.993) * (t + 64.993) - 91.296);
-  const double ca = 1.541 + 1.998e-2 * t - 9.52e-5 * t * t;
-  const double cb = 7.974 - 7.561e-2 * t + 4.724e-4 * t * t;
+  const T muW = 4.2844e-5 + 1.0 / (0.157 * (t + 64.993) * (t + 64.993) - 91.296);
+  const T ca = 1.541 + 1.998e-2 * t - 9.52e-5 * t * t;
+  const T cb = 7.974 - 7.561e-2 * t + 4.724e-4 * t * t;
   p.viscosity = muW * (1.0 + ca * s + cb * s * s);
   return p;
+}
+
+template <class T>
+Properties<T> properties(Medium medium, T temperatureK, double salinity) {
+  switch (medium) {
+    case Medium::Air: return airProperties(temperatureK);
+    case Medium::FreshWater: return freshWaterProperties(temperatureK);
+    case Medium::SeaWater: return seaWaterProperties(temperatureK, salinity);
+  }
+  return {};
 }
 
 }  // namespace
 
 FluidProperties fluidProperties(Medium medium, double temperatureK, double salinity) {
+  const Properties<double> q = properties(medium, temperatureK, salinity);
   FluidProperties p;
-  switch (medium) {
-    case Medium::Air: p = airProperties(temperatureK); break;
-    case Medium::FreshWater: p = freshWaterProperties(temperatureK); break;
-    case Medium::SeaWater: p = seaWaterProperties(temperatureK, salinity); break;
-  }
+  p.density = q.density;
+  p.viscosity = q.viscosity;
+  p.conductivity = q.conductivity;
+  p.specificHeat = q.specificHeat;
+  p.expansion = q.expansion;
+  p.outsideValidity = q.outsideValidity;
   p.prandtl = p.viscosity * p.specificHeat / p.conductivity;
   return p;
+}
+
+FluidPropertiesDual fluidPropertiesDual(Medium medium, Dual temperatureK, double salinity) {
+  const Properties<Dual> q = properties(medium, temperatureK, salinity);
+  FluidPropertiesDual p;
+  p.density = q.density;
+  p.viscosity = q.viscosity;
+  p.conductivity = q.conductivity;
+  p.specificHeat = q.specificHeat;
+  p.outsideValidity = q.outsideValidity;
+  p.prandtl = p.viscosity * p.specificHeat / p.conductivity;
+  return p;
+}
+
+Dual mediumDensityDual(Medium medium, Dual temperatureK, double salinity) {
+  bool clamped = false;
+  switch (medium) {
+    case Medium::Air: return 1.0e5 / (kGasConstantDryAir * clampToRange(kAirTableRange, temperatureK, clamped));
+    case Medium::FreshWater:
+      return densityAt([](double x) { return kellDensity(x); }, clampToRange(kFreshWaterTableRange, temperatureK, clamped));
+    case Medium::SeaWater: {
+      const double s = clampToRange(kSeaWaterSalinityRange, salinity, clamped);
+      return densityAt([s](double x) { return sharqawyDensity(x, s); },
+                       clampToRange(kSeaWaterTemperatureRange, temperatureK, clamped));
+    }
+  }
+  throw std::invalid_argument("mediumDensity: unknown medium");
 }
 
 double mediumDensity(Medium medium, double temperatureK, double salinity) {

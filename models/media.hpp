@@ -7,6 +7,8 @@
 #include <string_view>
 #include <vector>
 
+#include "models/dual.hpp"
+
 namespace thermorph {
 
 // ---- physical constants -------------------------------------------------------
@@ -96,6 +98,19 @@ inline constexpr ValidityRange kSeaWaterSalinityRange{"sea water properties, Sha
 //!    checked at zero salinity against Table A.6 and at 35 g/kg against known sea-water values
 //!    (tests/test_media.cpp). Expansion by differentiating eq. 8 (about 3 % low at 20 degC, S = 0).
 FluidProperties fluidProperties(Medium medium, double temperatureK, double salinity = 35e-3);
+
+//! The properties fluidProperties gives (expansion aside) with their derivatives with respect to the temperature
+//! (exact: the Hermite interpolant's own slope, the fits differentiated; 0 where the temperature is clamped).
+//! Values equal fluidProperties' bit for bit. Used by the convection evaluator for dh/dT_s.
+struct FluidPropertiesDual {
+  Dual density, viscosity, conductivity, specificHeat, prandtl;
+  bool outsideValidity = false;
+  Dual kinematicViscosity() const { return viscosity / density; }
+};
+FluidPropertiesDual fluidPropertiesDual(Medium medium, Dual temperatureK, double salinity = 35e-3);
+
+//! mediumDensity with its temperature derivative (the fits' own slopes; 0 where clamped).
+Dual mediumDensityDual(Medium medium, Dual temperatureK, double salinity = 35e-3);
 
 //! Density of fresh water (Kell 1975) or sea water (Sharqawy et al. 2010 eq. 8) [kg/m3];
 //! for air the ideal gas at 1 bar, matching Table A.4. Same clamping as fluidProperties.

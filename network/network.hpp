@@ -12,6 +12,7 @@
 //! receiving node; a conductance between groups of different weight carries its flow once per copy of the
 //! more numerous group. Stored heat and budgets are weighted, so energy is conserved exactly.
 #include <cstddef>
+#include <functional>
 #include <span>
 #include <string>
 #include <vector>
@@ -59,10 +60,10 @@ class ScheduleModel {
   virtual double value(Index schedule, double time) const = 0;
 };
 
+//! A node: 16 bytes. Its human-readable label is generated on demand (Network::label), not stored.
 struct NetworkNode {
   double capacity = 0.0;  //!< heat capacity [J/K]
   Index group = 0;        //!< owning group (segment)
-  std::string label;      //!< human-readable position, e.g. "arm: axial 3, radial 7 (skin)"
 };
 
 //! Conduction between two nodes [W/K].
@@ -133,9 +134,25 @@ struct Network {
   std::vector<Controller> controllers;
   const ScheduleModel* schedules = nullptr;  //!< required when a modulator or controller uses a schedule
 
-  Index addNode(double capacity, Index group, std::string label) {
-    nodes.push_back({capacity, group, std::move(label)});
+  //! Labels of nodes added with one (few: blood nodes, pools, hand-built test networks).
+  std::vector<std::pair<Index, std::string>> namedNodes;
+  //! Label of any other node (the model's grid cells), generated when asked; may be empty.
+  std::function<std::string(Index)> labeler;
+
+  //! Human-readable position of node i, e.g. "arm: axial 3, radial 7 (skin)" (for messages; not fast).
+  std::string label(Index i) const {
+    for (const auto& [node, text] : namedNodes)
+      if (node == i) return text;
+    if (labeler) return labeler(i);
+    return "node " + std::to_string(i);
+  }
+  Index addNode(double capacity, Index group) {
+    nodes.push_back({capacity, group});
     return nodes.size() - 1;
+  }
+  Index addNode(double capacity, Index group, std::string label) {
+    namedNodes.emplace_back(nodes.size(), std::move(label));
+    return addNode(capacity, group);
   }
   Index channel(const std::string& name) {
     for (Index i = 0; i < channels.size(); ++i)

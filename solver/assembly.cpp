@@ -34,7 +34,7 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
   if (transient)
     for (Index i = 0; i < nodes_; ++i) {
       if (!(network.nodes[i].capacity > 0.0))
-        throw std::invalid_argument(fmt::format("node {} has no heat capacity", network.nodes[i].label));
+        throw std::invalid_argument(fmt::format("node {} has no heat capacity", network.label(i)));
       rowScale_[i] = 1.0 / network.nodes[i].capacity;
     }
   for (const Modulator& m : network.modulators)
@@ -206,7 +206,7 @@ NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, do
       return {Ts, G / (G - dq)};
     }
   }
-  throw std::runtime_error(fmt::format("face temperature did not converge at {}", network_.nodes[f.node].label));
+  throw std::runtime_error(fmt::format("face temperature did not converge at {}", network_.label(f.node)));
 }
 
 void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<double> out) const {
@@ -218,7 +218,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
       throw std::runtime_error(fmt::format(
           "temperature {:.5g} K at {} is outside 150-450 K: the body has no stable state here (for example Q10 "
           "metabolism outrunning the heat losses of a body without thermoregulation, or a cooling runaway)",
-          T[i], network_.nodes[i].label));
+          T[i], network_.label(i)));
   const bool transient = mode_ == Mode::Transient;
   std::fill(out.begin(), out.end(), 0.0);
   std::span<double> acc = transient ? out.subspan(nodes_ + controls_, channels_) : std::span<double>();

@@ -143,7 +143,7 @@ int Integrator::jacobianCallback(double t, N_Vector y, N_Vector, SUNMatrix J, vo
 void Integrator::checkFinite(std::span<const double> values, const char* what) const {
   for (Index i = 0; i < values.size(); ++i)
     if (!std::isfinite(values[i])) {
-      std::string name = i < system_.nodeCount() ? system_.network().nodes[i].label
+      std::string name = i < system_.nodeCount() ? system_.network().label(i)
                                                  : "energy of channel " + system_.network().channels[i - system_.nodeCount()];
       throw SolverError(fmt::format("{} is not finite at t = {:g} s: {} = {}", what, time_, name, values[i]));
     }
@@ -171,7 +171,7 @@ std::string Integrator::failureMessage(int flag) const {
                       [&](Index a, Index b) { return score(a) > score(b); });
     message += "; largest weighted errors:";
     for (std::size_t k = 0; k < std::min<std::size_t>(3, order.size()); ++k)
-      message += fmt::format(" [{}: {:.3g}]", system_.network().nodes[order[k]].label, score(order[k]));
+      message += fmt::format(" [{}: {:.3g}]", system_.network().label(order[k]), score(order[k]));
   }
   return message;
 }

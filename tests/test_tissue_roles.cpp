@@ -87,7 +87,7 @@ TEST_CASE("A tissue's role comes from its base or its role key, never from its n
   int cells = 0;
   for (const HeatSource& s : n.sources)
     if (s.channel == shivering) {
-      CHECK_THAT(n.nodes[s.node].label, Catch::Contains("(skin_graft)"));
+      CHECK_THAT(n.label(s.node), Catch::Contains("(skin_graft)"));
       ++cells;
     }
   CHECK(cells == 2 * 2);  // 2 axial x 2 radial cells of skin_graft

@@ -729,7 +729,7 @@ convection = 10
   for (const SurfaceFace& f : n.faces) ++terms[f.node];
   std::vector<std::string> isolated;
   for (Index i = 0; i < n.nodes.size(); ++i)
-    if (terms[i] == 0) isolated.push_back(n.nodes[i].label);
+    if (terms[i] == 0) isolated.push_back(n.label(i));
   for (const std::string& label : isolated) std::printf("[wholebody] isolated node: %s\n", label.c_str());
   CHECK(isolated.empty());
   CHECK_NOTHROW(runSteady(*body, silentRun()));
