@@ -79,7 +79,7 @@ started() {  # wait until the command has created its temporary results file (it
 }
 for signal in INT TERM; do
   rm -f "$work/limb.incomplete.h5"
-  "$exe" run "$case" -o "$work/limb.h5" -q --set "run.duration=300 d" --set "run.output_interval=1 h" \
+  "$exe" run "$case" -o "$work/limb.h5" -q --set "run.duration=300 d" --set "run.max_step=20 s" --set "run.output_interval=1 h" \
     > /dev/null 2> "$work/err.txt" &
   pid=$!
   started || fail "the long run did not start"
@@ -101,7 +101,7 @@ with h5py.File(sys.argv[1]) as f:
 PY
 done
 # A second signal stops at once, and still removes the temporary file.
-"$exe" run "$case" -o "$work/twice.h5" -q --set "run.duration=300 d" --set "run.output_interval=1 h" \
+"$exe" run "$case" -o "$work/twice.h5" -q --set "run.duration=300 d" --set "run.max_step=20 s" --set "run.output_interval=1 h" \
   > /dev/null 2>&1 &
 pid=$!
 started || fail "the long run did not start"
