@@ -41,7 +41,8 @@ struct SobolIndices {
   std::size_t used = 0;                      //!< base rows without a missing value
 };
 //! Indices from the outputs of saltelliDesign's rows (NaN rows are dropped with their whole base row):
-//! S_i = mean(f_B (f_ABi - f_A)) / V (Saltelli et al. 2010, Table 2 (b)); S_Ti = mean((f_A - f_ABi)^2) / (2 V)
+//! S_i = mean((f_B - mean f) (f_ABi - f_A)) / V (Saltelli et al. 2010, Table 2 (b), with f_B centred: the same
+//! expectation, a much smaller variance when the mean is large against the spread); S_Ti = mean((f_A - f_ABi)^2) / (2 V)
 //! (Jansen 1999; Saltelli et al. 2010, Table 2 (f)); V the variance of f_A and f_B together. Bootstrap over base
 //! rows (Efron & Tibshirani 1993, percentile intervals), `resamples` times with `seed`.
 SobolIndices saltelliIndices(std::size_t k, std::size_t n, const std::vector<double>& f, std::size_t resamples = 1000,
