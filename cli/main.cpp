@@ -127,7 +127,7 @@ int main(int argc, char** argv) {
   CLI::App* uncertainty = addUncertaintySubcommand(app, uncertaintyOptions);  // cli/sensitivity_cli.cpp
   CLI::App* refine = addRefineSubcommand(app);  // grid refinement study (cli/refine_cli.cpp)
   for (CLI::App* sub : app.get_subcommands([](CLI::App*) { return true; }))
-    sub->footer(std::string("Caution: ") + caution);
+    sub->footer(sub->get_footer() + (sub->get_footer().empty() ? "" : "\n") + "Caution: " + caution);
 
   try {
     app.parse(argc, argv);
