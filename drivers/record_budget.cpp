@@ -43,16 +43,27 @@ void BudgetRecorder::create(ResultsFile& f, const std::vector<std::string>& segm
   }
 }
 
-void BudgetRecorder::write(ResultsFile& f, const RunSummary& summary) const {
-  const Index groups = network_.groups.size(), channels = network_.channels.size();
+void BudgetRecorder::bodyFlows(const Network& network, const RunSummary& summary, std::span<double> perChannel,
+                               double& storage) {
+  const Index groups = network.groups.size(), channels = network.channels.size();
   for (Index c = 0; c < channels; ++c) {
     double total = 0.0;
-    for (Index g = 0; g < groups; ++g) total += network_.groupWeights[g] * summary.flows[g * channels + c];
-    f.append(flow_[c], {&total, 1});
+    for (Index g = 0; g < groups; ++g) total += network.groupWeights[g] * summary.flows[g * channels + c];
+    perChannel[c] = total;
+  }
+  storage = 0.0;
+  for (Index g = 0; g < groups; ++g) storage += network.groupWeights[g] * summary.storage[g];
+}
+
+void BudgetRecorder::write(ResultsFile& f, const RunSummary& summary) const {
+  const Index channels = network_.channels.size();
+  bodyFlow_.resize(channels);
+  double storage = 0.0;
+  bodyFlows(network_, summary, bodyFlow_, storage);
+  for (Index c = 0; c < channels; ++c) {
+    f.append(flow_[c], {&bodyFlow_[c], 1});
     f.append(energy_[c], {&summary.channelEnergy[c], 1});
   }
-  double storage = 0.0;
-  for (Index g = 0; g < groups; ++g) storage += network_.groupWeights[g] * summary.storage[g];
   f.append(storage_, {&storage, 1});
   f.append(balance_, {&summary.energyBalanceError, 1});
   for (std::size_t g = 0; g < segmentFlow_.size(); ++g) {

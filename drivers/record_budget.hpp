@@ -18,6 +18,9 @@ class BudgetRecorder {
   //! face temperatures [K] into `faceTemperatures` (the other recorders use them).
   void compute(double t, std::span<const double> y, double initialStored, RunSummary& summary,
                std::vector<double>& faceTemperatures) const;
+  //! Whole-body heat flow per channel [W] (copies weighted) and storage [W] of a filled summary.
+  static void bodyFlows(const Network& network, const RunSummary& summary, std::span<double> perChannel,
+                        double& storage);
   //! /body/heat_flow, /body/cumulative_heat, /body/energy_balance_error and /segments/*/heat_flow.
   void create(ResultsFile& f, const std::vector<std::string>& segmentNames);
   void write(ResultsFile& f, const RunSummary& summary) const;
@@ -29,6 +32,7 @@ class BudgetRecorder {
   std::vector<std::size_t> flow_, energy_;
   std::vector<std::vector<std::size_t>> segmentFlow_;  //!< [group][channel]
   std::vector<std::size_t> segmentStorage_;
+  mutable std::vector<double> bodyFlow_;  //!< [channel] scratch
 };
 
 }  // namespace thermorph

@@ -44,13 +44,9 @@ FieldRecorder::FieldRecorder(ResultsFile& f, const Body& body) : body_(body) {
   }
 }
 
-double FieldRecorder::supplyTemperature(std::span<const double> y) const {
-  if (body_.poolNode()) return y[*body_.poolNode()];
-  return body_.spec().circulation.fixedArterialTemperature.value_or(std::nan(""));
-}
-
-void FieldRecorder::writeBodyTemperatures(ResultsFile& f, std::span<const double> y) {
-  const SegmentMesh& core = body_.segments()[body_.coreSegment()];
+BodyTemperatures bodyTemperatures(const Body& body, std::span<const double> y) {
+  BodyTemperatures out;
+  const SegmentMesh& core = body.segments()[body.coreSegment()];
   double sum = 0.0, volume = 0.0;
   for (int iz = 0; iz < core.nz; ++iz)
     for (int ir = 0; ir < core.innermostLayerCells; ++ir) {
@@ -58,20 +54,27 @@ void FieldRecorder::writeBodyTemperatures(ResultsFile& f, std::span<const double
       sum += v * y[core.node(iz, ir)];
       volume += v;
     }
-  double value = sum / volume - kelvinOffset;
-  f.append(core_, {&value, 1});
-  value = supplyTemperature(y) - kelvinOffset;
-  f.append(blood_, {&value, 1});
+  out.core = sum / volume;
+  out.blood = body.poolNode() ? y[*body.poolNode()]
+                              : body.spec().circulation.fixedArterialTemperature.value_or(std::nan(""));
   double skin = 0.0, area = 0.0;
-  const Network& n = body_.network();
-  for (const SegmentMesh& m : body_.segments())
+  const Network& n = body.network();
+  for (const SegmentMesh& m : body.segments())
     for (int iz = 0; iz < m.nz; ++iz) {
       double a = m.weight * n.faces[m.lateralFace[static_cast<std::size_t>(iz)]].area;
       skin += a * y[m.node(iz, m.skinCell)];
       area += a;
     }
-  value = skin / area - kelvinOffset;
-  f.append(skin_, {&value, 1});
+  out.skin = skin / area;
+  return out;
+}
+
+void FieldRecorder::writeBodyTemperatures(ResultsFile& f, std::span<const double> y) {
+  const BodyTemperatures b = bodyTemperatures(body_, y);
+  for (auto [series, value] : {std::pair{core_, b.core}, std::pair{blood_, b.blood}, std::pair{skin_, b.skin}}) {
+    double celsius = value - kelvinOffset;
+    f.append(series, {&celsius, 1});
+  }
 }
 
 void FieldRecorder::write(ResultsFile& f, std::span<const double> y, std::span<const double> faceTemperatures) {

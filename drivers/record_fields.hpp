@@ -10,6 +10,14 @@
 
 namespace thermorph {
 
+//! Whole-body mean temperatures of a state [K]: core (volume mean of the innermost layer of the core segment),
+//! blood (central pool, or the pinned arterial supply), mean skin (outermost tissue cells, weighted by exposed
+//! area and copies). The recorder and the Python module (python/) both use it.
+struct BodyTemperatures {
+  double core = 0.0, blood = 0.0, skin = 0.0;
+};
+BodyTemperatures bodyTemperatures(const Body& body, std::span<const double> y);
+
 class FieldRecorder {
  public:
   //! Creates /body/*_temperature and /segments/<name>/{radius, axial, layer, volume, temperature, ...}.
@@ -22,8 +30,6 @@ class FieldRecorder {
     std::size_t temperature = 0, surface = 0, arterial = 0, venous = 0;
   };
   void writeBodyTemperatures(ResultsFile& f, std::span<const double> y);
-  //! Temperature of the arterial supply: the pool node, or the pinned value [K].
-  double supplyTemperature(std::span<const double> y) const;
 
   const Body& body_;
   std::size_t core_ = 0, blood_ = 0, skin_ = 0;
