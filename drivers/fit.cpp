@@ -4,6 +4,7 @@
 //! s^2 = SSR / (n - p) (Bates & Watts 1988, ch. 2; Seber & Wild 1989, sec. 2.1), by singular value decomposition
 //! (Eigen).
 #include "models/caution.hpp"
+#include "drivers/sweep.hpp"
 #include "drivers/fit.hpp"
 
 #include <algorithm>
@@ -54,25 +55,6 @@ std::pair<std::string, std::string> keyValue(const std::string& text, const char
   return {trim(text.substr(0, eq)), trim(text.substr(eq + 1))};
 }
 
-//! The schema entry of a key path ("segments.NAME.layers.1.thickness" -> "segments[].layers[].thickness").
-const Param* schemaEntry(const std::string& key) {
-  std::vector<std::string> parts = split(key, '.');
-  std::string pattern;
-  const Param* p = nullptr;
-  for (std::size_t i = 0; i < parts.size(); ++i) {
-    pattern += (pattern.empty() ? "" : ".") + parts[i];
-    p = findParam(pattern);
-    if (!p) return nullptr;
-    if (p->kind == ParamKind::TableArray) {
-      pattern += "[]";
-      ++i;
-    } else if (p->kind == ParamKind::NamedTables) {
-      pattern += ".*";
-      ++i;
-    }
-  }
-  return p;
-}
 
 //! The value of `key` in the resolved case (SI), when it is there.
 std::optional<double> resolvedValue(const Case& c, const std::string& key) {

@@ -10,6 +10,7 @@
 
 #include "models/body.hpp"
 #include "models/case.hpp"
+#include "models/case_schema.hpp"
 #include "drivers/sweep_metrics.hpp"
 
 namespace thermorph {
@@ -115,5 +116,9 @@ int runSweepCommand(const SweepOptions& options);
 
 //! True when this executable was built with MPI support.
 bool sweepHasMpi();
+
+//! The schema entry of a key path as `--set` addresses it ("segments.NAME.layers.1.thickness" ->
+//! "segments[].layers[].thickness"); nullptr for an unknown key. Shared by sweeps and fits.
+const Param* schemaEntry(const std::string& key);
 
 }  // namespace thermorph

@@ -44,25 +44,6 @@ std::pair<std::string, std::string> keyValue(const std::string& text, const char
   return {trim(text.substr(0, eq)), trim(text.substr(eq + 1))};
 }
 
-//! The schema entry of a key path ("segments.NAME.layers.1.thickness" -> "segments[].layers[].thickness").
-const Param* schemaEntry(const std::string& key) {
-  std::vector<std::string> parts = split(key, '.');
-  std::string pattern;
-  const Param* p = nullptr;
-  for (std::size_t i = 0; i < parts.size(); ++i) {
-    pattern += (pattern.empty() ? "" : ".") + parts[i];
-    p = findParam(pattern);
-    if (!p) return nullptr;
-    if (p->kind == ParamKind::TableArray) {
-      pattern += "[]";
-      ++i;  // the element: a name or an index
-    } else if (p->kind == ParamKind::NamedTables) {
-      pattern += ".*";
-      ++i;
-    }
-  }
-  return p;
-}
 
 //! FNV-1a, 64 bit (Fowler, Noll and Vo): a stable fingerprint of the plan across runs and ranks.
 struct Fingerprint {
@@ -188,6 +169,26 @@ std::vector<std::string> expandRange(const std::string& spec,
 }
 
 }  // namespace
+
+//! The schema entry of a key path ("segments.NAME.layers.1.thickness" -> "segments[].layers[].thickness").
+const Param* schemaEntry(const std::string& key) {
+  std::vector<std::string> parts = split(key, '.');
+  std::string pattern;
+  const Param* p = nullptr;
+  for (std::size_t i = 0; i < parts.size(); ++i) {
+    pattern += (pattern.empty() ? "" : ".") + parts[i];
+    p = findParam(pattern);
+    if (!p) return nullptr;
+    if (p->kind == ParamKind::TableArray) {
+      pattern += "[]";
+      ++i;  // the element: a name or an index
+    } else if (p->kind == ParamKind::NamedTables) {
+      pattern += ".*";
+      ++i;
+    }
+  }
+  return p;
+}
 
 std::vector<std::string> expandSpec(const std::string& spec, const std::string& what) {
   auto bad = [&](const std::string& why) {
