@@ -17,6 +17,8 @@
 
 #include <fmt/format.h>
 
+#include "solver/fast_kernels.hpp"
+
 namespace thermorph {
 
 namespace detail {
@@ -78,8 +80,10 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
   context_.reset(ctx);
   const auto n = static_cast<sunindextype>(system.size());
   state_.reset(checkCreated(N_VNew_Serial(n, ctx), "the state vector"));
+  useFastVectorOperations(state_.get());  // CVODE's own vectors are clones of this one
   std::copy(initialState.begin(), initialState.end(), view(state_.get()).begin());
   tolerances_.reset(checkCreated(N_VNew_Serial(n, ctx), "the tolerance vector"));
+  useFastVectorOperations(tolerances_.get());
   auto atol = view(tolerances_.get());
   if (options.atol.size() != atol.size()) throw std::invalid_argument("atol must have one entry per state");
   std::copy(options.atol.begin(), options.atol.end(), atol.begin());
@@ -99,6 +103,7 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
   if (options.linearSolver == LinearSolverKind::Klu) {
     matrix_.reset(checkCreated(SUNSparseMatrix(n, n, static_cast<sunindextype>(pattern.nonzeros()), CSC_MAT, ctx),
                                "the sparse Jacobian"));
+    useFastSparseOperations(matrix_.get());
     linearSolver_.reset(checkCreated(SUNLinSol_KLU(state_.get(), matrix_.get(), ctx), "the KLU solver"));
     // The Newton matrix I - gamma J is well scaled by construction (rows of dT/dt): skip KLU's row scaling.
     SUNLinSol_KLUGetCommon(linearSolver_.get())->scale = 0;
@@ -306,6 +311,7 @@ std::vector<double> solveSteadyState(const NetworkSystem& system, std::span<cons
   const auto n = static_cast<sunindextype>(system.size());
   const SparsePattern& pattern = system.pattern();
   detail::Handle<_generic_N_Vector> u(checkCreated(N_VNew_Serial(n, raw), "the state"));
+  useFastVectorOperations(u.get());
   detail::Handle<_generic_N_Vector> uScale(checkCreated(N_VNew_Serial(n, raw), "scales"));
   detail::Handle<_generic_N_Vector> fScale(checkCreated(N_VNew_Serial(n, raw), "scales"));
   std::copy(guess.begin(), guess.end(), view(u.get()).begin());
@@ -321,6 +327,7 @@ std::vector<double> solveSteadyState(const NetworkSystem& system, std::span<cons
 
   detail::Handle<_generic_SUNMatrix> J(
       checkCreated(SUNSparseMatrix(n, n, static_cast<sunindextype>(pattern.nonzeros()), CSC_MAT, raw), "the Jacobian"));
+  useFastSparseOperations(J.get());
   detail::Handle<_generic_SUNLinearSolver> LS(checkCreated(SUNLinSol_KLU(u.get(), J.get(), raw), "KLU"));
   check(SUNLinSol_KLUSetOrdering(LS.get(), 0), "SUNLinSol_KLUSetOrdering");  // AMD, as for CVODE
   detail::SolverMemory mem(checkCreated(KINCreate(raw), "KINSOL memory"), detail::MemoryDeleter{KINFree});
