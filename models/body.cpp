@@ -214,6 +214,100 @@ void Body::buildControllers() {
     shiverControl_ = add(cs.shivering, 1, "shivering", 0.0, -cs.shivering.gain, 0.0, 1.0, 0.0);
   if (cs.panting.present)
     pantControl_ = add(cs.panting, 2, "panting", 1.0, cs.panting.gain, 1.0, cs.panting.upper, 1.0);
+  buildLocalControllers();
+}
+
+std::vector<std::pair<Index, double>> Body::localSkinNodes(Index segment) const {
+  // The segment's own skin: its outermost tissue cells (under any coat), weighted by their lateral face area.
+  const SegmentMesh& m = meshes_[segment];
+  std::vector<std::pair<Index, double>> nodes;
+  double total = 0.0;
+  for (int iz = 0; iz < m.nz; ++iz) {
+    double a = network_.faces[m.lateralFace[static_cast<std::size_t>(iz)]].area;
+    nodes.emplace_back(m.node(iz, m.skinCell), a);
+    total += a;
+  }
+  for (auto& [node, w] : nodes) w /= total;
+  return nodes;
+}
+
+void Body::buildLocalControllers() {
+  // [control.local.NAME]: the body-wide vasomotor form (skin perfusion 1 + gain (T - set point) within [min, max],
+  // shunts shunt_gain (T - set point) within [0, 1]) acting on the named segments only; with signal local_skin
+  // each segment has its own pair of states driven by its own skin. The case loader has checked that every
+  // segment is named once at most, so a segment follows one controller: a local one, or else the body-wide one.
+  using K = PhysiologyModel::Kind;
+  const std::size_t n = case_.segments.size();
+  localSkinControl_.assign(n, none);
+  localShuntControl_.assign(n, none);
+  civdControl_.assign(n, none);
+  auto segmentIndex = [&](const std::string& name) {
+    Index g = 0;
+    while (case_.segments[g].name != name) ++g;
+    return g;
+  };
+  auto add = [&](const LocalControllerSpec& l, std::size_t k, std::string name, std::vector<std::pair<Index, double>> signal,
+                 double bias, double gain, double lower, double upper) {
+    Controller c;
+    c.name = std::move(name);
+    c.signal = std::move(signal);
+    c.setpoint = l.setPoint;
+    c.setpointSchedule = physiology_->add({K::ControlSetPoint, 0, false, false, k});
+    c.enableSchedule = physiology_->add({K::ControlEnabled, 0, false, false, k});
+    c.gain = gain;
+    c.bias = bias;
+    c.lower = lower;
+    c.upper = upper;
+    c.offValue = 1.0;
+    c.timeConstant = l.timeConstant;
+    c.initial = l.enabled ? std::clamp(bias + gain * (case_.run.initialTemperature - l.setPoint), lower, upper) : 1.0;
+    network_.controllers.push_back(c);
+    return network_.controllers.size() - 1;
+  };
+  for (std::size_t i = 0; i < case_.control.local.size(); ++i) {
+    const LocalControllerSpec& l = case_.control.local[i];
+    const std::size_t k = 3 + i;  // its enable and set-point tracks in the physiology model
+    std::vector<Index> segments;
+    for (const std::string& name : l.segments) segments.push_back(segmentIndex(name));
+    auto hasShunts = [&](Index g) { return case_.segments[g].vessels.shuntFlowMax > 0.0; };
+    if (l.signal == ControlSignal::LocalSkin) {
+      for (Index g : segments) {
+        const std::string& seg = case_.segments[g].name;
+        localSkinControl_[g] = add(l, k, fmt::format("{}_{}_skin_perfusion", l.name, seg), localSkinNodes(g), 1.0,
+                                   l.gain, l.lower, l.upper);
+        if (hasShunts(g))
+          localShuntControl_[g] = add(l, k, fmt::format("{}_{}_shunts", l.name, seg), localSkinNodes(g), 0.0,
+                                      l.shuntGain, 0.0, 1.0);
+      }
+    } else {
+      Index skin = add(l, k, l.name + "_skin_perfusion", signalNodes(l.signal), 1.0, l.gain, l.lower, l.upper);
+      Index shunt = std::any_of(segments.begin(), segments.end(), hasShunts)
+                        ? add(l, k, l.name + "_shunts", signalNodes(l.signal), 0.0, l.shuntGain, 0.0, 1.0)
+                        : none;
+      for (Index g : segments) {
+        localSkinControl_[g] = skin;
+        if (hasShunts(g)) localShuntControl_[g] = shunt;
+      }
+    }
+    if (!l.civd) continue;
+    // Cold-induced vasodilation (Lewis 1930): c* = clamp((threshold - T_skin) / width, 0, 1) of the segment's own
+    // skin, first-order lag; always on (not switched by the controller's `enabled`). Form: our choice.
+    for (Index g : segments) {
+      Controller c;
+      c.name = fmt::format("{}_{}_civd", l.name, case_.segments[g].name);
+      c.signal = localSkinNodes(g);
+      c.setpoint = l.civd->threshold;
+      c.gain = -1.0 / l.civd->width;
+      c.bias = 0.0;
+      c.lower = 0.0;
+      c.upper = 1.0;
+      c.offValue = 0.0;
+      c.timeConstant = l.civd->timeConstant;
+      c.initial = std::clamp((l.civd->threshold - case_.run.initialTemperature) / l.civd->width, 0.0, 1.0);
+      network_.controllers.push_back(c);
+      civdControl_[g] = network_.controllers.size() - 1;
+    }
+  }
 }
 
 void Body::addMetabolicModulation(Index respiratorySegment) {
@@ -336,13 +430,14 @@ struct Body::FlowExpr {
 //! Everything the circulation builder carries from one step to the next, per segment g (n segments).
 struct Body::Circulation {
   explicit Circulation(std::size_t segments, double rhoC)
-      : n(segments), rc(rhoC), perfusionModulators(n), shuntModulator(n, none), cellTotal(n), cellDeep(n),
+      : n(segments), rc(rhoC), perfusionModulators(n), shuntModulator(n, none), civdModulator(n, none), cellTotal(n), cellDeep(n),
         cellSuperficial(n), shunt(n), childDraw(n), childDeep(n), childSuperficial(n), draw(n), deep(n),
         superficialFlow(n), parentOf(n, n), attachCell(n, 0), arterialIn(n), deepOut(n), superficialOut(n) {}
   std::size_t n;
   double rc;  //!< blood volumetric heat capacity [J/(m3 K)]
   std::vector<std::vector<std::array<Index, 3>>> perfusionModulators;  //!< per layer: total, -, superficial
   std::vector<Index> shuntModulator;
+  std::vector<Index> civdModulator;  //!< cold-induced vasodilation: extra shunt opening (none: no CIVD)
   std::vector<double> m0;  //!< modulator values at t = 0 with the controllers at their initial states
   // Per copy: [nz * nr] perfusion of each cell (total, deep and superficial return), [nz] shunts and what the
   // children draw and return at each axial cell.
@@ -386,7 +481,8 @@ void Body::addPerfusionModulators(Circulation& c) {
       const auto& listed = case_.circulation.bradycardiaTissues;
       bool brain = listed.empty() ? role == TissueRole::Brain
                                   : std::find(listed.begin(), listed.end(), l.tissue) == listed.end();
-      Index control = skin ? skinControl_ : none;
+      // A segment named by a local controller follows it instead of the body-wide one.
+      Index control = !skin ? none : localSkinControl_[g] != none ? localSkinControl_[g] : skinControl_;
       std::array<Index, 3> mods{none, none, none};
       mods[0] = addModulator(physiology_->add({K::Perfusion, g, skin, brain, 0}), control,
                              fmt::format("{} {} perfusion", s.name, l.tissue));
@@ -396,7 +492,10 @@ void Body::addPerfusionModulators(Circulation& c) {
       c.perfusionModulators[g].push_back(mods);
     }
     if (s.vessels.shuntFlowMax > 0.0)
-      c.shuntModulator[g] = addModulator(physiology_->add({K::Shunt, g}), shuntControl_, s.name + " shunts");
+      c.shuntModulator[g] = addModulator(physiology_->add({K::Shunt, g}),
+                                         localShuntControl_[g] != none ? localShuntControl_[g] : shuntControl_,
+                                         s.name + " shunts");
+    if (civdControl_[g] != none) c.civdModulator[g] = addModulator(none, civdControl_[g], s.name + " civd");
   }
   // Modulator values at t = 0 with the controllers at their initial states (for the bookkeeping and `check`).
   c.m0.assign(network_.modulators.size(), 1.0);
@@ -436,6 +535,13 @@ void Body::planCellFlows(Circulation& c) {
     if (c.shuntModulator[g] != none)
       for (int iz = firstDistal; iz < m.nz; ++iz)
         c.shunt[g][static_cast<std::size_t>(iz)].add(c.shuntModulator[g], s.vessels.shuntFlowMax / (m.nz - firstDistal));
+    // Cold-induced vasodilation opens the same shunts further: opening x shunt_flow_max at full opening.
+    if (c.civdModulator[g] != none)
+      for (const LocalControllerSpec& l : case_.control.local)
+        if (l.civd && std::find(l.segments.begin(), l.segments.end(), s.name) != l.segments.end())
+          for (int iz = firstDistal; iz < m.nz; ++iz)
+            c.shunt[g][static_cast<std::size_t>(iz)].add(c.civdModulator[g],
+                                                         l.civd->opening * s.vessels.shuntFlowMax / (m.nz - firstDistal));
     if (!s.parent.empty()) {
       Index p = 0;
       while (case_.segments[p].name != s.parent) ++p;

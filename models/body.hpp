@@ -109,6 +109,8 @@ class Body {
   void addMetabolicModulation(Index respiratorySegment);
   Index addModulator(Index schedule, Index control, std::string name);
   std::vector<std::pair<Index, double>> signalNodes(ControlSignal signal) const;
+  std::vector<std::pair<Index, double>> localSkinNodes(Index segment) const;
+  void buildLocalControllers();
 
   //! A coat conductance (or face half-conductance) dry and wet, chosen per timeline interval.
   struct CoatSwitch {
@@ -125,6 +127,9 @@ class Body {
   std::unique_ptr<EnvironmentModel> environment_;
   std::unique_ptr<PhysiologyModel> physiology_;
   Index skinControl_ = none, shuntControl_ = none, shiverControl_ = none, pantControl_ = none;
+  //! Per segment: the local controller of its skin perfusion and shunts, and its CIVD state (none: the body-wide
+  //! controller, or none at all); see buildLocalControllers.
+  std::vector<Index> localSkinControl_, localShuntControl_, civdControl_;
   std::vector<Index> order_;               //!< segments root first
   std::vector<std::vector<double>> cellPerfusion_;  // per segment [nz * nr] perfusion flow [m3/s]
   std::vector<std::vector<double>> coveredArea_;    //!< per segment [nz] lateral area covered by children [m2]

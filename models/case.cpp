@@ -7,6 +7,7 @@
 #include <numbers>
 #include <filesystem>
 #include <fstream>
+#include <map>
 #include <set>
 #include <sstream>
 
@@ -385,6 +386,76 @@ void readControl(const TableView& top, Case& c) {
     c.control.panting.lower = 1.0;
     c.control.panting.upper = t->number("max");
   }
+  // [control.local.NAME]: local vasomotor controllers (segment names are checked once the segments are read).
+  if (const toml::node* local = control.node("local"))
+    for (auto&& [key, child] : *local->as_table()) {
+      LocalControllerSpec spec;
+      spec.name = std::string(key.str());
+      TableView t = control.namedChild("local", spec.name);
+      if (spec.name == "vasomotor" || spec.name == "shivering" || spec.name == "panting")
+        control.child("local").fail(spec.name, fmt::format("a local controller may not be named \"{}\" (the name of a "
+                                                    "body-wide controller, used by [[events]] control)", spec.name));
+      if (!t.has("segments")) t.missing("segments");
+      std::stringstream ss(t.text("segments"));
+      for (std::string item; std::getline(ss, item, ',');) {
+        item.erase(0, item.find_first_not_of(" \t"));
+        item.erase(item.find_last_not_of(" \t") + 1);
+        if (!item.empty()) spec.segments.push_back(item);
+      }
+      if (spec.segments.empty()) t.fail("segments", "names no segment (expected e.g. \"leg, foot\")");
+      std::string signal = t.choice("signal");
+      spec.signal = signal == "core" ? ControlSignal::Core
+                    : signal == "mean_skin" ? ControlSignal::MeanSkin : ControlSignal::LocalSkin;
+      spec.setPoint = t.quantity("set_point");
+      spec.gain = t.quantity("gain");
+      spec.lower = t.number("min");
+      spec.upper = t.number("max");
+      if (spec.lower > spec.upper) t.fail("min", fmt::format("min = {:g} exceeds max = {:g}", spec.lower, spec.upper));
+      spec.shuntGain = t.quantity("shunt_gain");
+      spec.timeConstant = t.quantity("time_constant");
+      spec.enabled = t.choice("enabled") == "on";
+      if (t.has("civd")) {
+        TableView v = t.child("civd");
+        CivdSpec civd;
+        civd.threshold = v.quantity("threshold");
+        if (auto text = v.has("width") ? v.node("width")->value<std::string>() : std::nullopt;
+            text && text->find("deg") != std::string::npos)
+          v.fail("width", "give the width in K (a temperature difference), e.g. \"2 K\"");
+        civd.width = v.quantity("width");
+        civd.opening = v.number("opening");
+        civd.timeConstant = v.quantity("time_constant");
+        spec.civd = civd;
+      }
+      c.control.local.push_back(std::move(spec));
+    }
+}
+
+//! Local controllers: every named segment exists, has a skin layer to act on and (with CIVD) shunts to open, and
+//! is named by one local controller only.
+void checkLocalControllers(const TableView& top, const Case& c) {
+  std::map<std::string, std::string> owner;  // segment -> local controller
+  for (const LocalControllerSpec& spec : c.control.local) {
+    TableView t = top.child("control").namedChild("local", spec.name);
+    for (const std::string& name : spec.segments) {
+      auto it = std::find_if(c.segments.begin(), c.segments.end(), [&](const SegmentSpec& s) { return s.name == name; });
+      if (it == c.segments.end()) {
+        std::vector<std::string> names;
+        for (const SegmentSpec& s : c.segments) names.push_back(s.name);
+        t.fail("segments", fmt::format("no segment named \"{}\" (segments: {})", name, fmt::join(names, ", ")));
+      }
+      bool skin = std::any_of(it->layers.begin(), it->layers.end(), [&](const LayerSpec& l) {
+        return c.tissues.at(l.tissue).role == TissueRole::Skin;
+      });
+      if (!skin)
+        t.fail("segments", fmt::format("segment \"{}\" has no layer with role skin: a vasomotor controller has no "
+                                       "skin perfusion to act on there", name));
+      if (auto [previous, fresh] = owner.emplace(name, spec.name); !fresh)
+        t.fail("segments", fmt::format("segment \"{}\" is already controlled by [control.local.{}]; a segment may "
+                                       "follow one local controller only", name, previous->second));
+      if (spec.civd && !(it->vessels.shuntFlowMax > 0.0))
+        t.fail("civd", fmt::format("segment \"{}\" has no shunts to open (set its vessels.shunt_flow_max > 0)", name));
+    }
+  }
 }
 
 toml::table controlToml(const ControlSpec& control) {
@@ -414,6 +485,27 @@ toml::table controlToml(const ControlSpec& control) {
     t.insert("max", control.panting.upper);
     out.insert("panting", t);
   }
+  toml::table local;
+  for (const LocalControllerSpec& spec : control.local) {
+    toml::table t{{"segments", fmt::format("{}", fmt::join(spec.segments, ", "))},
+                  {"signal", spec.signal == ControlSignal::Core       ? "core"
+                             : spec.signal == ControlSignal::MeanSkin ? "mean_skin"
+                                                                      : "local_skin"},
+                  {"set_point", spec.setPoint},
+                  {"gain", spec.gain},
+                  {"min", spec.lower},
+                  {"max", spec.upper},
+                  {"shunt_gain", spec.shuntGain},
+                  {"time_constant", spec.timeConstant},
+                  {"enabled", spec.enabled ? "on" : "off"}};
+    if (spec.civd)
+      t.insert("civd", toml::table{{"threshold", spec.civd->threshold},
+                                   {"width", spec.civd->width},
+                                   {"opening", spec.civd->opening},
+                                   {"time_constant", spec.civd->timeConstant}});
+    local.insert(spec.name, t);
+  }
+  if (!local.empty()) out.insert("local", local);
   return out;
 }
 
@@ -686,6 +778,17 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
         throw CaseError(fmt::format("{}: events (at {:g} s): vasomotor.{}: no segment of that name (segments: {}, "
                                     "or all)", file, c.events[i].at, v.segment, fmt::join(names, ", ")));
     for (const ControlTarget& t : c.events[i].control) {
+      if (t.controller != "vasomotor" && t.controller != "shivering" && t.controller != "panting") {
+        if (std::none_of(c.control.local.begin(), c.control.local.end(),
+                         [&](const LocalControllerSpec& l) { return l.name == t.controller; })) {
+          std::vector<std::string> known{"vasomotor", "shivering", "panting"};
+          for (const LocalControllerSpec& l : c.control.local) known.push_back(l.name);
+          throw CaseError(fmt::format("{}{}: {}: unknown controller \"{}\" (the case has: {})", file,
+                                      t.where.empty() ? "" : ":" + t.where, t.path, t.controller,
+                                      fmt::join(known, ", ")));
+        }
+        continue;
+      }
       const ControllerSpec& spec = t.controller == "vasomotor" ? c.control.vasomotor
                                    : t.controller == "shivering" ? c.control.shivering : c.control.panting;
       if (!spec.present)
@@ -693,6 +796,7 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
                                     c.events[i].at, t.controller, t.controller));
     }
   }
+  checkLocalControllers(top, c);
   checkOverriddenByTimeline(top, c, overrides);
   if (c.control.panting.present && c.body.respiratorySegment.empty())
     throw CaseError(fmt::format("{}: control.panting: panting needs respiration: set [body] respiratory_segment", file));

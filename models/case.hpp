@@ -116,7 +116,9 @@ struct BodySpec {
   double exhaledTemperature = 308.15;   //!< [K]
 };
 
-enum class ControlSignal { Core, MeanSkin };
+//! Core: innermost layer of the core segment; MeanSkin: area-weighted outermost tissue cells of the whole body;
+//! LocalSkin (local controllers only): the outermost tissue cells of each controlled segment, its own signal.
+enum class ControlSignal { Core, MeanSkin, LocalSkin };
 
 //! One feedback controller ([control.NAME]); present only when the table is given.
 struct ControllerSpec {
@@ -138,8 +140,33 @@ struct SweepSpec {
   bool steady = false;
 };
 
+//! Cold-induced vasodilation of a local controller's segments (Lewis 1930, the "hunting" reaction); form: our
+//! choice. Extra shunt opening c in [0, 1] with a first-order lag towards clamp((threshold - T_skin) / width, 0, 1).
+struct CivdSpec {
+  double threshold = 285.15;    //!< local skin temperature below which the shunts open [K]
+  double width = 2.0;           //!< full opening this far below the threshold [K]
+  double opening = 1.0;         //!< extra shunt flow at full opening, times shunt_flow_max [1]
+  double timeConstant = 300.0;  //!< [s]
+};
+
+//! A local vasomotor controller ([control.local.NAME]): the body-wide controller's form, acting on the named
+//! segments only (which the body-wide [control.vasomotor] then leaves alone).
+struct LocalControllerSpec {
+  std::string name;
+  std::vector<std::string> segments;
+  ControlSignal signal = ControlSignal::LocalSkin;
+  double setPoint = 303.15;     //!< [K]
+  double gain = 1.0;            //!< skin perfusion gain [1/K]
+  double lower = 0.1, upper = 4.0;
+  double shuntGain = 1.0;       //!< [1/K]
+  double timeConstant = 120.0;  //!< [s]
+  bool enabled = true;
+  std::optional<CivdSpec> civd;
+};
+
 struct ControlSpec {
   ControllerSpec vasomotor, shivering, panting;
+  std::vector<LocalControllerSpec> local;  //!< in the order of the case file
 };
 
 //! A file a case was read from (provenance): the case text itself, then every file it reads (weather, ...).

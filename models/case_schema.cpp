@@ -262,7 +262,8 @@ constexpr std::array params = {
     Param{"events[].respiration.panting", K::Number, "", "", 0, 50, false, "",
           "Ventilation multiplier (0: breath hold)."},
     Param{"events[].control", K::NamedTables, "", "", 0, 0, false, "",
-          "Controller changes by name (vasomotor, shivering, panting): `control = { vasomotor = { enabled = \"off\" } }`."},
+          "Controller changes by name (vasomotor, shivering, panting, or the NAME of a [control.local.NAME]): "
+          "`control = { vasomotor = { enabled = \"off\" } }`."},
     Param{"events[].control.*.enabled", K::Choice, "", "", 0, 0, false, "on|off", "Switch the controller on or off."},
     Param{"events[].control.*.set_point", K::Quantity, "K", "", tMin, tMax, false, "", "New set point."},
 
@@ -306,6 +307,38 @@ constexpr std::array params = {
     Param{"control.panting.max", K::Number, "", "10", 1, 100, false, "", "Largest ventilation multiplier."},
     Param{"control.panting.time_constant", K::Quantity, "s", "1 min", 0, 1e6, true, "", "First-order lag."},
     Param{"control.panting.enabled", K::Choice, "", "on", 0, 0, false, "on|off", "Initially on or off."},
+    Param{"control.local", K::NamedTables, "", "", 0, 0, false, "",
+          "Local vasomotor controllers `[control.local.NAME]`: the form of [control.vasomotor] acting only on the "
+          "named segments, which [control.vasomotor] then leaves alone; a segment may be named by one local "
+          "controller only (two: exit 2). NAME is used in [[events]] `control = { NAME = {...} }` and may not be "
+          "vasomotor, shivering or panting. Defaults are illustrative."},
+    Param{"control.local.*.segments", K::Text, "", "", 0, 0, false, "",
+          "Comma-separated names of the segments it acts on, e.g. \"leg, foot\" (required); each needs a layer "
+          "with role skin."},
+    Param{"control.local.*.signal", K::Choice, "", "local_skin", 0, 0, false, "core|mean_skin|local_skin",
+          "Controlled temperature; local_skin: each segment's own skin (area-weighted outermost tissue cells of "
+          "one copy), so each segment gets its own controller states."},
+    Param{"control.local.*.set_point", K::Quantity, "K", "30 degC", tMin, tMax, false, "", "Set point."},
+    Param{"control.local.*.gain", K::Quantity, "1/K", "1 1/K", -100, 100, false, "",
+          "Skin perfusion gain; negative: perfusion rises as the signal falls below the set point (a floor the "
+          "segment's skin is defended at, paid for with body heat)."},
+    Param{"control.local.*.min", K::Number, "", "0.1", 0, 100, false, "", "Lowest skin perfusion multiplier."},
+    Param{"control.local.*.max", K::Number, "", "4", 0, 100, false, "", "Highest skin perfusion multiplier."},
+    Param{"control.local.*.shunt_gain", K::Quantity, "1/K", "1 1/K", -100, 100, false, "",
+          "Shunt opening gain; negative: the shunts open as the signal falls below the set point."},
+    Param{"control.local.*.time_constant", K::Quantity, "s", "2 min", 0, 1e6, true, "", "First-order lag."},
+    Param{"control.local.*.enabled", K::Choice, "", "on", 0, 0, false, "on|off", "Initially on or off."},
+    Param{"control.local.*.civd", K::Table, "", "", 0, 0, false, "",
+          "Cold-induced vasodilation (Lewis 1930, the \"hunting\" reaction; form: our choice): extra shunt flow "
+          "opening x shunt_flow_max x c in each segment, c following clamp((threshold - T_skin) / width, 0, 1) "
+          "with a first-order lag (T_skin: the segment's own skin); needs vessels.shunt_flow_max > 0."},
+    Param{"control.local.*.civd.threshold", K::Quantity, "K", "12 degC", tMin, tMax, false, "",
+          "Local skin temperature below which the shunts open (illustrative)."},
+    Param{"control.local.*.civd.width", K::Quantity, "K", "2 K", 0, 100, true, "",
+          "Fully open this far below the threshold (a temperature difference: give it in K)."},
+    Param{"control.local.*.civd.opening", K::Number, "", "1", 0, 10, false, "",
+          "Extra shunt flow at full opening, times vessels.shunt_flow_max."},
+    Param{"control.local.*.civd.time_constant", K::Quantity, "s", "5 min", 0, 1e6, true, "", "First-order lag."},
 };
 
 }  // namespace

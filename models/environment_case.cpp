@@ -354,10 +354,12 @@ void readPhysiologyEvent(const TableView& view, EventSpec& e) {
     for (auto&& [name, child] : *node->as_table()) {
       TableView t = view.namedChild("control", name.str());
       std::string controller(name.str());
-      if (controller != "vasomotor" && controller != "shivering" && controller != "panting")
-        view.fail("control", fmt::format("unknown controller \"{}\" (vasomotor, shivering, panting)", controller));
+      // vasomotor, shivering, panting or a [control.local.NAME]: checked by the case loader against the controllers.
       ControlTarget target;
       target.controller = controller;
+      if (child.source().begin.line > 0)
+        target.where = fmt::format("{}:{}", child.source().begin.line, child.source().begin.column);
+      target.path = view.path("control") + "." + controller;
       if (t.has("enabled")) target.enabled = t.choice("enabled") == "on";
       if (t.has("set_point")) target.setPoint = t.quantity("set_point");
       e.control.push_back(target);

@@ -104,7 +104,9 @@ struct VasomotorTarget {
 
 //! Controller change of one event.
 struct ControlTarget {
-  std::string controller;  //!< vasomotor, shivering or panting
+  std::string controller;  //!< vasomotor, shivering, panting or the NAME of a [control.local.NAME]
+  std::string where;       //!< "line:column" of its table in the case file (messages), empty for --set
+  std::string path;        //!< key path of its table, e.g. "events.2.control.feet" (messages)
   std::optional<bool> enabled;
   std::optional<double> setPoint;  //!< [K]
 };

@@ -21,8 +21,12 @@ PhysiologyModel::PhysiologyModel(const Case& c, const EnvironmentModel& environm
   panting_ = track(1.0);
   const ControllerSpec* specs[3] = {&c.control.vasomotor, &c.control.shivering, &c.control.panting};
   for (std::size_t k = 0; k < 3; ++k) {
-    enabled_[k] = track(specs[k]->enabled ? 1.0 : 0.0);
-    setPoint_[k] = track(specs[k]->setPoint);
+    enabled_.push_back(track(specs[k]->enabled ? 1.0 : 0.0));
+    setPoint_.push_back(track(specs[k]->setPoint));
+  }
+  for (const LocalControllerSpec& l : c.control.local) {
+    enabled_.push_back(track(l.enabled ? 1.0 : 0.0));
+    setPoint_.push_back(track(l.setPoint));
   }
   breakpoints_ = environment.breakpoints();
   setInterval(0);
@@ -55,7 +59,7 @@ void PhysiologyModel::setInterval(std::size_t interval) {
   for (auto* group : {&skin_, &shunt_, &superficial_})
     for (Track& t : *group) reset(t);
   for (Track* t : {&activity_, &hypometabolism_, &bradycardia_, &panting_}) reset(*t);
-  for (std::size_t k = 0; k < 3; ++k) {
+  for (std::size_t k = 0; k < enabled_.size(); ++k) {
     reset(enabled_[k]);
     reset(setPoint_[k]);
   }
@@ -79,6 +83,9 @@ void PhysiologyModel::setInterval(std::size_t interval) {
     if (e.panting) moveTrack(panting_, *e.panting, e, complete);
     for (const ControlTarget& c : e.control) {
       std::size_t k = c.controller == "vasomotor" ? 0 : c.controller == "shivering" ? 1 : 2;
+      if (c.controller != "vasomotor" && c.controller != "shivering" && c.controller != "panting")
+        for (std::size_t i = 0; i < case_.control.local.size(); ++i)
+          if (case_.control.local[i].name == c.controller) k = 3 + i;
       // Switching is a step even within a ramped event.
       if (c.enabled) moveTrack(enabled_[k], *c.enabled ? 1.0 : 0.0, e, true);
       if (c.setPoint) moveTrack(setPoint_[k], *c.setPoint, e, complete);

@@ -27,7 +27,7 @@ class PhysiologyModel : public ScheduleModel {
     Index segment = 0;
     bool skin = false;
     bool brain = false;  //!< spared by bradycardia (brain by default; see [circulation] bradycardia_tissues)
-    Index controller = 0;  //!< 0 vasomotor, 1 shivering, 2 panting
+    Index controller = 0;  //!< 0 vasomotor, 1 shivering, 2 panting, 3 + i: case.control.local[i]
   };
 
   //! `respiratorySegment`: the segment that breathes (none: no respiration).
@@ -56,7 +56,7 @@ class PhysiologyModel : public ScheduleModel {
   std::vector<Schedule> schedules_;
   std::vector<Track> skin_, shunt_, superficial_;  //!< per segment
   Track activity_, hypometabolism_, bradycardia_, panting_;
-  std::array<Track, 3> enabled_, setPoint_;
+  std::vector<Track> enabled_, setPoint_;  //!< per controller (see Schedule::controller)
   std::vector<double> breakpoints_;
 };
 
