@@ -47,11 +47,13 @@ std::vector<std::string> segmentNames(const Body& body) {
 
 }  // namespace
 
-Recorder::Recorder(const Body& body, const NetworkSystem& system, const RunOptions& options)
+Recorder::Recorder(const Body& body, const NetworkSystem& system, const RunOptions& options,
+                   std::uint64_t expectedPoints)
     : body_(body), system_(system), observer_(options.observer), budget_(body.network(), system) {
   if (options.output.empty()) return;
   file_ = std::make_unique<ResultsFile>(options.output);
   ResultsFile& f = *file_;
+  f.expectPoints(expectedPoints);
   writeMetadata(f, body, options);
   writeProvenance(f, body.spec().inputs);
   time_ = f.createTime("s", "time since the start of the run");

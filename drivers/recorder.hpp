@@ -8,6 +8,7 @@
 //!   FieldRecorder        temperature fields, surface and blood temperatures, core/blood/skin means, meshes
 //!                        (record_fields.cpp)
 //! Progress on stderr is ProgressReporter (progress.hpp).
+#include <cstdint>
 #include <memory>
 #include <span>
 #include <string>
@@ -24,7 +25,9 @@ namespace thermorph {
 //! Writes outputs as they come: one time point per call.
 class Recorder {
  public:
-  Recorder(const Body& body, const NetworkSystem& system, const RunOptions& options);
+  //! `expectedPoints`: the number of time points the run will record (0: not known), which lets the file leave
+  //! small series uncompressed (ResultsFile::expectPoints).
+  Recorder(const Body& body, const NetworkSystem& system, const RunOptions& options, std::uint64_t expectedPoints = 0);
 
   //! Record time t with full state y (nodes, controls, then channel energies); fills `summary`.
   void record(double t, std::span<const double> y, double initialStored, RunSummary& summary);

@@ -187,12 +187,17 @@ std::size_t ResultsFile::createDataset(const std::string& path, const std::vecto
   // Chunks of about 64 KiB: several time points of the whole field.
   std::uint64_t perPoint = std::accumulate(shape.begin(), shape.end(), std::uint64_t{1}, std::multiplies<>());
   chunk.push_back(std::max<hsize_t>(1, 8192 / std::max<std::uint64_t>(perPoint, 1)));
+  // All the expected points in one chunk: that chunk, uncompressed (at most 64 KiB).
+  const bool small = expectedPoints_ > 0 && std::max<std::uint64_t>(perPoint, 1) * expectedPoints_ <= 8192;
+  if (small) chunk[0] = expectedPoints_;
   for (auto s : shape) chunk.push_back(s);
   hid_t space = H5Screate_simple(static_cast<int>(dims.size()), dims.data(), maxDims.data());
   hid_t plist = H5Pcreate(H5P_DATASET_CREATE);
   H5Pset_chunk(plist, static_cast<int>(chunk.size()), chunk.data());
-  H5Pset_shuffle(plist);
-  H5Pset_deflate(plist, 1);  // level 1: most of the size gain at a fraction of the time
+  if (!small) {
+    H5Pset_shuffle(plist);
+    H5Pset_deflate(plist, 1);  // level 1: most of the size gain at a fraction of the time
+  }
   hid_t ds = H5Dcreate2(group, name.c_str(), H5T_NATIVE_DOUBLE, space, H5P_DEFAULT, plist, H5P_DEFAULT);
   checkH5(ds, "create " + path);
   writeStringAttribute(ds, "units", units);

@@ -34,6 +34,10 @@ class ResultsFile {
   void writeStringArrayAttribute(const std::string& object, const std::string& name,
                                  const std::vector<std::string>& values);
 
+  //! The number of time points the series will get (0: not known; the default). A series whose points
+  //! altogether fit in one chunk (8192 values) is then stored in one uncompressed chunk of that many points:
+  //! deflating a few hundred bytes cost more CPU time than anything else in writing a small run's file.
+  void expectPoints(std::uint64_t points) { expectedPoints_ = points; }
   //! The time coordinate /time [nt] (a dimension scale); returns a handle for append(), which also extends
   //! every group's copy. Create it before any other series.
   std::size_t createTime(const std::string& units, const std::string& longName);
@@ -84,6 +88,7 @@ class ResultsFile {
   std::string timeUnits_, timeLongName_;
   std::vector<std::pair<std::string, std::size_t>> groupTimes_;  //!< group path, series of its /time copy
   bool committed_ = false;
+  std::uint64_t expectedPoints_ = 0;
 };
 
 }  // namespace thermorph

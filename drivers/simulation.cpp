@@ -88,14 +88,14 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   // Channel energies are exact quadratures of the flows: excluded from the error test.
   for (Index i = states; i < system.size(); ++i) io.atol[i] = 1e30;
 
-  Recorder recorder(body, system, options);
+  const long outputs = std::lround(std::ceil(c.run.duration / c.run.outputInterval - 1e-9));
+  Recorder recorder(body, system, options, static_cast<std::uint64_t>(outputs) + 1);
   recorder.setIncompletePath(options.output.empty() ? "" : incompleteName(options.output));
   const double initialStored = system.storedHeat(y);
   Integrator integrator(system, y, 0.0, io);
   recorder.record(0.0, integrator.state(), initialStored, summary);
 
   ProgressReporter progress(c.run.duration, options.quiet);
-  const long outputs = std::lround(std::ceil(c.run.duration / c.run.outputInterval - 1e-9));
   // Discontinuities of the timeline: the integrator stops exactly at each and restarts (never steps across).
   // Outputs in between are interpolated (CVODE's dense output), so they do not shorten the steps.
   std::vector<double> breakpoints = body.environment().breakpoints();
@@ -155,7 +155,7 @@ RunSummary runSteady(const Body& body, const RunOptions& options) {
   const Index nodes = transient.nodeCount();
   std::vector<double> guess = initialState(body, transient);
   RunSummary summary;
-  Recorder recorder(body, transient, options);
+  Recorder recorder(body, transient, options, 1);
   recorder.setIncompletePath(options.output.empty() ? "" : incompleteName(options.output));
   body.setInterval(0);
   std::vector<double> steady = steadyTemperatures(body, guess, &summary.statistics, options.stop, &summary.stopped);
