@@ -123,9 +123,9 @@ std::string localFloor(const std::string& signal, double gain, const std::string
 }  // namespace
 
 TEST_CASE("A local controller keeps a foot's skin above its floor where a body-wide signal cannot", "[control][local]") {
-  // Proportional control with limits: while the controller is not saturated, its steady signal lies inside the
-  // proportional band, T_set - 1/|g| < T < T_set (so it tends to the set point as the gain grows; control theory,
-  // common practice, no source). Uncontrolled, the foot's skin sits far below the 15 degC floor; the same
+  // Proportional control with limits: while a controller is not saturated, its steady signal lies inside its
+  // proportional band, T_set - (u_max - u_0)/|g| < T < T_set (so it tends to the set point as the gain grows;
+  // control theory, common practice, no source): 1/|g| for the shunts (0 to 1), 3/|g| for skin perfusion (1 to 4). Uncontrolled, the foot's skin sits far below the 15 degC floor; the same
   // controller fed the body's mean skin (dominated by the warm trunk) closes the foot further instead.
   const double floor = 15.0 + kZero;
   auto uncontrolled = traceFoot(*bodyFromToml(footCase("0", "")));
@@ -139,12 +139,18 @@ TEST_CASE("A local controller keeps a foot's skin above its floor where a body-w
     const double T = trace.skin.back();
     const double offset = floor - T;
     const Index shunt = controllerIndex(body->network(), "feet_foot_shunts");
-    std::printf("[local] local_skin, gain -%g 1/K: foot skin %.4f degC (set point 15; band %.4f K), shunts %.3f\n", g,
-                T - kZero, 1.0 / g, trace.controls.back()[shunt]);
+    const Index skinPerfusion = controllerIndex(body->network(), "feet_foot_skin_perfusion");
+    const double us = trace.controls.back()[shunt], up = trace.controls.back()[skinPerfusion];
+    std::printf("[local] local_skin, gain -%g 1/K: foot skin %.4f degC (set point 15; offset %.4f K, bands %.4f K "
+                "(shunts) and %.4f K (skin perfusion)), shunts %.4f, skin perfusion %.3f\n",
+                g, T - kZero, offset, 1.0 / g, 3.0 / g, us, up);
     INFO("gain " << g);
-    CHECK(trace.controls.back()[shunt] < 1.0);  // not saturated: the band bound applies
+    // Skin perfusion 1 + g x offset is below its max 4: inside its band, offset < (4 - 1)/g; the shunts' band is
+    // 1/g while they are below fully open.
+    CHECK(up < 4.0);
     CHECK(offset > 0.0);
-    CHECK(offset < 1.0 / g + 1e-3);
+    CHECK(offset < 3.0 / g);
+    if (us < 1.0 - 1e-6) CHECK(offset < 1.0 / g + 1e-6);
     CHECK(offset < previousOffset);
     previousOffset = offset;
   }
