@@ -46,6 +46,10 @@ CLI::App* addFitSubcommand(CLI::App& app, FitOptions& o) {
       ->check(CLI::Range(1, 1000));
   fit->add_option("--max-iterations", o.maxIterations, "Iterations of the least-squares solver (default 50)")
       ->check(CLI::Range(1, 10000));
+  fit->add_option("--gradient", o.gradient,
+                  "Jacobian: auto (CVODES forward sensitivities for parameters that enter the network as coefficients, "
+                  "central differences for geometry and the rest) or fd (central differences for all); default auto")
+      ->check(CLI::IsMember({"auto", "fd"}));
   fit->add_option("--step", o.step, "Finite-difference step, relative (or in ln for log-scale parameters); default 1e-4");
   fit->add_option("--rtol", o.rtol,
                   "Integrator tolerances of the fit's runs (run.rtol, run.atol in K); 0 keeps the case's. Default 1e-8");

@@ -26,6 +26,7 @@
 
 #include "models/case_schema.hpp"
 #include "models/units.hpp"
+#include "drivers/forward_sensitivity.hpp"
 #include "drivers/h5_append.hpp"
 #include "drivers/sampling.hpp"
 #include "drivers/simulation.hpp"
@@ -165,15 +166,34 @@ struct Linearisation {
   std::vector<double> jacobian;  // [rows x p], d r / d u
 };
 
+//! The observation sampler as a probe of the forward-sensitivity driver.
+class SamplerProbe : public OutputProbe {
+ public:
+  SamplerProbe(const ObservedData& data, const Body& body) : sampler_(data, body) {}
+  void observe(double t, std::span<const double> y, const RunSummary& s) override { sampler_.observe(t, y, s); }
+  std::vector<double> values() const override { return sampler_.predictions(); }
+
+ private:
+  ObservationSampler sampler_;
+};
+
 class Model {
  public:
   Model(const FitProblem& pb, const Transform& tr, const Targets& t, std::vector<double> lowerU, std::vector<double> upperU)
-      : pb_(pb), tr_(tr), t_(t), lowerU_(std::move(lowerU)), upperU_(std::move(upperU)) {}
+      : pb_(pb), tr_(tr), t_(t), lowerU_(std::move(lowerU)), upperU_(std::move(upperU)),
+        methods_(pb.parameters.size()), reasons_(pb.parameters.size()) {}
 
   std::vector<double> xOf(std::span<const double> u) const {
     std::vector<double> x(u.size());
     for (std::size_t j = 0; j < u.size(); ++j) x[j] = tr_.toX(j, u[j]);
     return x;
+  }
+
+  //! The parameters at x, as the sensitivity driver takes them.
+  std::vector<SensitivityParameter> sensitivityParameters(std::span<const double> x) const {
+    std::vector<SensitivityParameter> out;
+    for (std::size_t j = 0; j < x.size(); ++j) out.push_back({pb_.parameters[j].key, pb_.parameters[j].unit, x[j]});
+    return out;
   }
 
   Linearisation at(std::span<const double> u, bool withJacobian) const {
@@ -182,9 +202,31 @@ class Model {
     std::vector<std::vector<double>> points;
     const bool cached = !lastU_.empty() && std::equal(u.begin(), u.end(), lastU_.begin());
     if (!cached) points.push_back(xOf(u));
+    // Which columns come from CVODES forward sensitivities (one run with sensitivities), which from central
+    // differences (two runs each); all of these runs go to the threads together.
+    std::vector<bool> forward(p, false);
+    bool anyForward = false;
+    if (withJacobian && pb_.gradient != "fd") {
+      try {
+        std::vector<ParameterGradient> g = classifyParameters(pb_.caseText, pb_.casePath, pb_.overrides,
+                                                              sensitivityParameters(xOf(u)));
+        for (std::size_t j = 0; j < p; ++j) {
+          forward[j] = g[j].method == GradientMethod::Forward;
+          anyForward = anyForward || forward[j];
+          methods_[j] = gradientMethodName(g[j].method);
+          reasons_[j] = g[j].reason;
+        }
+      } catch (const std::exception&) {
+        // The base case fails to build here: the runs below report it.
+      }
+    }
     std::vector<double> plus(p), minus(p);
+    std::vector<std::size_t> fdColumns;
     if (withJacobian)
       for (std::size_t j = 0; j < p; ++j) {
+        if (forward[j]) continue;
+        methods_[j] = gradientMethodName(GradientMethod::FiniteDifference);
+        fdColumns.push_back(j);
         const double h = pb_.step * std::max(1.0, std::abs(u[j]));
         double up = u[j] + h, down = u[j] - h;
         if (up > upperU_[j]) up = u[j];
@@ -198,8 +240,22 @@ class Model {
         points.push_back(xOf(a));
         points.push_back(xOf(b));
       }
-    std::vector<Evaluation> evals = evaluateMany(pb_, points, pb_.jobs);
-    runs_ += static_cast<long>(evals.size());
+    std::vector<Evaluation> evals(points.size());
+    ForwardSensitivityResult sens;
+    const std::vector<double> x = xOf(u);
+    // The run with sensitivities is the longest: it goes first.
+    const std::size_t first = anyForward ? 1 : 0;
+    parallelFor(points.size() + first, pb_.jobs, [&](std::size_t i) {
+      if (i >= first) {
+        evals[i - first] = evaluateModel(pb_, points[i - first]);
+        return;
+      }
+      std::vector<SensitivityParameter> ps = sensitivityParameters(x);
+      sens = forwardSensitivities(pb_.caseText, pb_.casePath, pb_.overrides, ps, [&](const Body& body) {
+        return std::unique_ptr<OutputProbe>(new SamplerProbe(pb_.data, body));
+      });
+    });
+    runs_ += static_cast<long>(evals.size()) + (anyForward ? 1 : 0);
     std::size_t k = 0;
     if (!cached) {
       if (!evals[0].ok) {
@@ -211,14 +267,18 @@ class Model {
       k = 1;
     }
     out.predictions = lastPredictions_;
-    std::vector<double> x = xOf(u);
     out.residuals = residualsOf(pb_, t_, out.predictions, x);
     if (withJacobian) {
       const std::size_t rows = out.residuals.size();
       out.jacobian.assign(rows * p, 0.0);
-      for (std::size_t j = 0; j < p; ++j) {
-        const Evaluation& a = evals[k + 2 * j];
-        const Evaluation& b = evals[k + 2 * j + 1];
+      if (anyForward && !sens.ok) {
+        out.error = sens.error;
+        return out;
+      }
+      for (std::size_t c = 0; c < fdColumns.size(); ++c) {
+        const std::size_t j = fdColumns[c];
+        const Evaluation& a = evals[k + 2 * c];
+        const Evaluation& b = evals[k + 2 * c + 1];
         if (!a.ok || !b.ok) {
           out.error = a.ok ? b.error : a.error;
           return out;
@@ -230,10 +290,30 @@ class Model {
         std::vector<double> rb = residualsOf(pb_, t_, b.predictions, xOf(ub));
         for (std::size_t i = 0; i < rows; ++i) out.jacobian[i * p + j] = (ra[i] - rb[i]) / (plus[j] - minus[j]);
       }
+      // Forward columns: d r_i / d u_j = (d prediction_i / d x_j) / sd_i * dx_j/du_j; a prior row: dx/du / sd.
+      for (std::size_t j = 0; j < p; ++j) {
+        if (!forward[j]) continue;
+        const std::vector<double>& d = sens.derivatives[j];
+        if (d.size() != t_.observed.size()) {
+          out.error = "forward sensitivities gave no derivative for " + pb_.parameters[j].key;
+          return out;
+        }
+        const double dxdu = tr_.dxdu(j, u[j]);
+        for (std::size_t i = 0; i < d.size(); ++i) out.jacobian[i * p + j] = d[i] / t_.sd[i] * dxdu;
+        std::size_t row = t_.observed.size();
+        for (std::size_t q = 0; q < p; ++q) {
+          if (!pb_.parameters[q].priorMean) continue;
+          if (q == j) out.jacobian[row * p + j] = dxdu / *pb_.parameters[q].priorSd;
+          ++row;
+        }
+      }
     }
     out.ok = true;
     return out;
   }
+
+  const std::vector<std::string>& methods() const { return methods_; }
+  const std::vector<std::string>& reasons() const { return reasons_; }
 
   long runs() const { return runs_; }
 
@@ -244,6 +324,7 @@ class Model {
   std::vector<double> lowerU_, upperU_;
   mutable std::vector<double> lastU_, lastPredictions_;
   mutable long runs_ = 0;
+  mutable std::vector<std::string> methods_, reasons_;
 };
 
 class FitCost : public ceres::CostFunction {
@@ -584,6 +665,8 @@ FitResult runFit(const FitProblem& pb) {
     return result;
   }
   result.predictions = l.predictions;
+  result.gradientMethods = model.methods();
+  result.gradientReasons = model.reasons();
   result.jacobian.assign(rows * p, 0.0);
   for (std::size_t i = 0; i < rows; ++i)
     for (std::size_t j = 0; j < p; ++j) result.jacobian[i * p + j] = l.jacobian[i * p + j] / tr.dxdu(j, bestU[j]);
@@ -702,7 +785,9 @@ void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const 
   w.attribute("/fit", "data_files", fmt::format("{}", fmt::join(o.data, "; ")));
   w.attribute("/fit", "warnings", fmt::format("{}", fmt::join(r.warnings, "\n")));
   w.attribute("/fit", "method",
-              "Ceres Solver, Levenberg-Marquardt with bounds; central finite differences of whole runs; covariance "
+              "Ceres Solver, Levenberg-Marquardt with bounds; Jacobian columns by CVODES forward sensitivities where a "
+              "parameter enters the network as a coefficient, else central finite differences of whole runs (see "
+              "/fit/parameters/gradient_method); covariance "
               "s^2 (J^T J)^-1 with s^2 = weighted SSR / (n - p); 95 % intervals value +- t(0.975, n - p) SE (log-scale "
               "parameters: value x/ exp(t SE / value))");
   w.attribute("/fit", "caution", caution);
@@ -733,6 +818,10 @@ void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const 
   w.doubles("/fit/parameters/lower_bound", lower, {}, perParameter);
   w.doubles("/fit/parameters/upper_bound", upper, {}, perParameter);
   w.doubles("/fit/parameters/log_scale", log, {}, "1");
+  if (r.gradientMethods.size() == p) {
+    w.strings("/fit/parameters/gradient_method", r.gradientMethods);
+    w.strings("/fit/parameters/gradient_reason", r.gradientReasons);
+  }
   // Iteration history.
   std::vector<double> iteration, cost, gradient, stepNorm, ok, startIndex, values;
   for (const FitIteration& it : r.history) {
@@ -815,6 +904,12 @@ void printReport(const FitProblem& pb, const FitResult& r) {
       fmt::print("{}\n", line);
     }
   }
+  if (r.gradientMethods.size() == p) {
+    fmt::print("Jacobian columns:\n");
+    for (std::size_t j = 0; j < p; ++j)
+      fmt::print("  {:<44} {}{}\n", pb.parameters[j].key, r.gradientMethods[j],
+                 r.gradientReasons[j].empty() ? "" : " (" + r.gradientReasons[j] + ")");
+  }
   fmt::print("{:<44} {:>12} {:>8}\n", "series", "RMSE", "n");
   for (std::size_t s = 0; s < pb.data.series.size(); ++s)
     fmt::print("{:<44} {:>12.4g} {:>8}  {}\n", pb.data.series[s].quantity.name, r.rmse[s],
@@ -858,6 +953,9 @@ int runFitCommand(const FitOptions& o) {
   pb.maxIterations = o.maxIterations;
   pb.starts = std::max(1, o.multiStart);
   pb.quiet = o.quiet;
+  pb.gradient = o.gradient;
+  if (pb.gradient != "auto" && pb.gradient != "fd")
+    throw CaseError(fmt::format("--gradient {}: expected auto (CVODES sensitivities where possible) or fd", pb.gradient));
   if (!(pb.step > 0.0 && pb.step < 0.1)) throw CaseError(fmt::format("--step {}: must be between 0 and 0.1", pb.step));
   bool mixed = false;
   for (const ObservedSeries& s : pb.data.series)

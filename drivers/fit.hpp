@@ -47,6 +47,9 @@ struct FitProblem {
   int maxIterations = 50;
   int starts = 1;                      //!< multi-start: starts - 1 extra points of a Sobol design in the bounds
   bool quiet = true;
+  //! Jacobian columns: "auto" (CVODES forward sensitivities for parameters that enter the network as
+  //! coefficients, central differences of whole runs for the rest) or "fd" (central differences for all).
+  std::string gradient = "auto";
 };
 
 //! One model evaluation at parameter values x: predictions at every observation (ObservedData order).
@@ -88,8 +91,10 @@ struct FitResult {
   std::vector<FitIteration> history;
   std::vector<std::vector<double>> startPoints;  //!< multi-start: initial values of every start
   std::vector<double> startCosts;                //!< final cost of every start (NaN: failed)
-  long runs = 0;                  //!< model runs
+  long runs = 0;                  //!< model runs (a run with sensitivities counts once)
   double wallSeconds = 0.0;
+  std::vector<std::string> gradientMethods;  //!< per parameter: "cvodes" or "finite differences"
+  std::vector<std::string> gradientReasons;  //!< per parameter: why finite differences ("" for cvodes)
 };
 
 //! Minimise the weighted squared residuals. Throws CaseError for bad input and SolverError when the model
@@ -109,6 +114,7 @@ struct FitOptions {
   int multiStart = 1;
   double step = 1e-4;
   double rtol = 1e-8;                //!< tolerances of the fit's runs (0: keep the case's)
+  std::string gradient = "auto";     //!< auto | fd (see FitProblem::gradient)
   bool quiet = false;
   std::string commandLine;
 };

@@ -406,4 +406,195 @@ double NetworkSystem::storedHeat(std::span<const double> T) const {
   return e;
 }
 
+
+// ---- forward sensitivities --------------------------------------------------------------------------
+
+std::string structuralDifference(const Network& a, const Network& b) {
+  auto sizes = [](const Network& n) {
+    return std::vector<std::size_t>{n.nodes.size(),      n.conductances.size(), n.advections.size(),
+                                    n.exchanges.size(),  n.sources.size(),      n.faces.size(),
+                                    n.groups.size(),     n.channels.size(),     n.flowParts.size(),
+                                    n.modulators.size(), n.controllers.size()};
+  };
+  if (sizes(a) != sizes(b)) return "the number of nodes or terms differs (cell counts, segments or vessels)";
+  if (a.groupWeights != b.groupWeights || a.channels != b.channels) return "segment counts or channels differ";
+  if ((a.surface == nullptr) != (b.surface == nullptr) || (a.schedules == nullptr) != (b.schedules == nullptr))
+    return "one network has surroundings or schedules the other lacks";
+  for (Index i = 0; i < a.nodes.size(); ++i)
+    if (a.nodes[i].group != b.nodes[i].group) return "a node moved to another segment";
+  for (Index i = 0; i < a.conductances.size(); ++i) {
+    const Conductance &x = a.conductances[i], &y = b.conductances[i];
+    if (x.a != y.a || x.b != y.b || x.channel != y.channel) return "conductances join other nodes";
+  }
+  for (Index i = 0; i < a.advections.size(); ++i) {
+    const Advection &x = a.advections[i], &y = b.advections[i];
+    if (x.from != y.from || x.to != y.to || x.channel != y.channel || x.partsBegin != y.partsBegin ||
+        x.partsEnd != y.partsEnd)
+      return "blood streams join other nodes";
+  }
+  for (Index i = 0; i < a.exchanges.size(); ++i) {
+    const BoundaryExchange &x = a.exchanges[i], &y = b.exchanges[i];
+    if (x.node != y.node || x.channel != y.channel || x.partsBegin != y.partsBegin || x.partsEnd != y.partsEnd)
+      return "boundary exchanges differ";
+  }
+  for (Index i = 0; i < a.sources.size(); ++i) {
+    const HeatSource &x = a.sources[i], &y = b.sources[i];
+    if (x.node != y.node || x.channel != y.channel || x.modulator != y.modulator || x.q10 != y.q10 ||
+        x.referenceTemperature != y.referenceTemperature)
+      return "a heat source's Q10 law or reference temperature differs";
+  }
+  for (Index i = 0; i < a.faces.size(); ++i)
+    if (a.faces[i].node != b.faces[i].node) return "faces sit on other nodes";
+  for (Index i = 0; i < a.flowParts.size(); ++i)
+    if (a.flowParts[i].modulator != b.flowParts[i].modulator) return "modulated flows differ";
+  for (Index i = 0; i < a.modulators.size(); ++i)
+    if (a.modulators[i].schedule != b.modulators[i].schedule || a.modulators[i].control != b.modulators[i].control)
+      return "modulators differ";
+  for (Index i = 0; i < a.controllers.size(); ++i) {
+    const Controller &x = a.controllers[i], &y = b.controllers[i];
+    if (x.signal != y.signal || x.gain != y.gain || x.bias != y.bias || x.lower != y.lower || x.upper != y.upper ||
+        x.offValue != y.offValue || x.timeConstant != y.timeConstant || x.setpointSchedule != y.setpointSchedule ||
+        x.enableSchedule != y.enableSchedule)
+      return "a controller's law (gain, limits, time constant) differs";
+  }
+  return "";
+}
+
+void NetworkSystem::parameterDerivative(double time, std::span<const double> T, std::span<const double> rhs,
+                                        const ParameterNetworks& parameter, std::span<double> out) const {
+  const std::span<double> outs[1] = {out};
+  parameterDerivatives(time, T, rhs, std::span<const ParameterNetworks>(&parameter, 1), outs);
+}
+
+void NetworkSystem::parameterDerivatives(double time, std::span<const double> T, std::span<const double> rhs,
+                                         std::span<const ParameterNetworks> parameters,
+                                         std::span<const std::span<double>> outs) const {
+  time = at(time);
+  const bool transient = mode_ == Mode::Transient;
+  modulatorValues(time, T, modulators_);
+  // The base face solutions, shared by every parameter: T_s, each channel's slope q_c'(T_s) and their sum.
+  const Index faces = network_.faces.size();
+  std::vector<double> faceT(faces), faceSlope(faces * channels_), faceDq(faces);
+  for (Index f = 0; f < faces; ++f) {
+    const FaceSolution sol = solveFace(f, time, T[network_.faces[f].node], scratchHeat_, scratchDerivative_);
+    faceT[f] = sol.temperature;
+    double dq = 0.0;
+    for (Index c = 0; c < channels_; ++c) {
+      faceSlope[f * channels_ + c] = scratchDerivative_[c];
+      dq += scratchDerivative_[c];
+    }
+    faceDq[f] = dq;
+  }
+  std::vector<double> dm(network_.modulators.size());
+  std::vector<double> hp(channels_), dhp(channels_), hm(channels_), dhm(channels_);
+  for (std::size_t j = 0; j < parameters.size(); ++j) {
+    const ParameterNetworks& parameter = parameters[j];
+    std::span<double> out = outs[j];
+    const Network& P = *parameter.plus;
+    const Network& M = *parameter.minus;
+    const double h = parameter.step;
+    std::fill(out.begin(), out.end(), 0.0);
+    std::span<double> acc = transient ? out.subspan(nodes_ + controls_, channels_) : std::span<double>();
+    // d m_k / d p at fixed control state: the schedule's derivative times the control.
+    for (Index k = 0; k < dm.size(); ++k) {
+      const Modulator& m = network_.modulators[k];
+      dm[k] = 0.0;
+      if (m.schedule == none) continue;
+      const double ds = (P.schedules->value(m.schedule, time) - M.schedules->value(m.schedule, time)) / h;
+      dm[k] = m.control == none ? ds : ds * T[nodes_ + m.control];
+    }
+    auto dParts = [&](Index begin, Index end) {
+      double sum = 0.0;
+      for (Index p = begin; p < end; ++p) {
+        const FlowPart& part = network_.flowParts[p];
+        const double dc = (P.flowParts[p].coefficient - M.flowParts[p].coefficient) / h;
+        sum += dc * modulators_[part.modulator] + part.coefficient * dm[part.modulator];
+      }
+      return sum;
+    };
+    for (std::size_t k = 0; k < network_.conductances.size(); ++k) {
+      const Conductance& c = network_.conductances[k];
+      const double dG = (P.conductances[k].conductance - M.conductances[k].conductance) / h;
+      if (dG == 0.0) continue;
+      const double q = dG * (T[c.b] - T[c.a]);
+      out[c.a] += conductanceFactor_[2 * k] * q;
+      out[c.b] -= conductanceFactor_[2 * k + 1] * q;
+    }
+    for (std::size_t k = 0; k < network_.advections.size(); ++k) {
+      const Advection& a = network_.advections[k];
+      const double dF =
+          (P.advections[k].flowCapacity - M.advections[k].flowCapacity) / h + dParts(a.partsBegin, a.partsEnd);
+      const double q = dF * (T[a.from] - T[a.to]);
+      out[a.to] += q;
+      if (transient) acc[a.channel] += nodeWeight_[a.to] * q;
+    }
+    for (std::size_t k = 0; k < network_.exchanges.size(); ++k) {
+      const BoundaryExchange& e = network_.exchanges[k];
+      const double G = e.conductance + partsValue(e.partsBegin, e.partsEnd, modulators_);
+      const double dG =
+          (P.exchanges[k].conductance - M.exchanges[k].conductance) / h + dParts(e.partsBegin, e.partsEnd);
+      const double dTb = (P.exchanges[k].temperature - M.exchanges[k].temperature) / h;
+      const double q = dG * (e.temperature - T[e.node]) + G * dTb;
+      out[e.node] += q;
+      if (transient) acc[e.channel] += nodeWeight_[e.node] * q;
+    }
+    for (std::size_t i = 0; i < network_.sources.size(); ++i) {
+      const HeatSource& s = network_.sources[i];
+      const double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
+      const double dmv = s.modulator == none ? 0.0 : dm[s.modulator];
+      const double dP = (P.sources[i].power - M.sources[i].power) / h;
+      if (dP == 0.0 && dmv == 0.0) continue;
+      const double q = (dP * m + s.power * dmv) * std::exp(q10Rate_[i] * (T[s.node] - s.referenceTemperature));
+      out[s.node] += q;
+      if (transient) acc[s.channel] += nodeWeight_[s.node] * q;
+    }
+    // A face: G (T_n - T_s) + q(T_s, p) = 0 with G = G(p). Implicit differentiation at fixed T_n:
+    // dT_s/dp = (dq/dp|T_s + dG/dp (T_n - T_s)) / (G - q'(T_s)); the node receives q(T_s), so each channel's
+    // flow changes by dq_c/dp|T_s + q_c'(T_s) dT_s/dp.
+    for (Index f = 0; f < faces; ++f) {
+      const Index node = network_.faces[f].node;
+      double dqp = 0.0;
+      std::fill(hp.begin(), hp.end(), 0.0);
+      if (parameter.surface) {
+        std::fill(dhp.begin(), dhp.end(), 0.0);
+        std::fill(hm.begin(), hm.end(), 0.0);
+        std::fill(dhm.begin(), dhm.end(), 0.0);
+        P.surface->faceHeat(f, faceT[f], time, hp, dhp);
+        M.surface->faceHeat(f, faceT[f], time, hm, dhm);
+        for (Index c = 0; c < channels_; ++c) {
+          hp[c] = (hp[c] - hm[c]) / h;
+          dqp += hp[c];
+        }
+      }
+      const double G = network_.faces[f].halfConductance;
+      const double dG = (P.faces[f].halfConductance - M.faces[f].halfConductance) / h;
+      if (dG == 0.0 && dqp == 0.0 && !parameter.surface) continue;
+      const double dTs = (dqp + dG * (T[node] - faceT[f])) / (G - faceDq[f]);
+      for (Index c = 0; c < channels_; ++c) {
+        const double dqc = hp[c] + faceSlope[f * channels_ + c] * dTs;
+        out[node] += dqc;
+        if (transient) acc[c] += nodeWeight_[node] * dqc;
+      }
+    }
+    for (Index k = 0; k < controls_; ++k) {
+      const Controller& c = network_.controllers[k];
+      bool active = false;
+      controlTarget(c, time, T, &active);
+      if (!active) continue;
+      const double dSetpoint =
+          c.setpointSchedule == none
+              ? (P.controllers[k].setpoint - M.controllers[k].setpoint) / h
+              : (P.schedules->value(c.setpointSchedule, time) - M.schedules->value(c.setpointSchedule, time)) / h;
+      const double d = -c.gain * dSetpoint;
+      out[nodes_ + k] = transient ? d / c.timeConstant : d;
+    }
+    if (transient)
+      for (Index i = 0; i < nodes_; ++i) {
+        // f_i = Q_i / C_i: d f_i / dp = (dQ_i/dp) / C_i - f_i (dC_i/dp) / C_i.
+        const double dC = (P.nodes[i].capacity - M.nodes[i].capacity) / h;
+        out[i] = (out[i] - rhs[i] * dC) * rowScale_[i];
+      }
+  }
+}
+
 }  // namespace thermorph

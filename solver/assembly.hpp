@@ -1,6 +1,7 @@
 #pragma once
 //! Assembles a thermal network into heat rates, dT/dt and a sparse CSC Jacobian through an index map built once.
 #include <optional>
+#include <string>
 #include <span>
 #include <vector>
 
@@ -14,6 +15,21 @@ struct SparsePattern {
   std::vector<Index> columnStart;  //!< [size + 1]
   std::vector<Index> rowIndex;     //!< [nonzeros]
   Index nonzeros() const { return rowIndex.size(); }
+};
+
+//! How a network's terms differ from another's in structure ("" when only their coefficients differ): node groups,
+//! term endpoints, channels, modulators, Q10 laws, controller laws. Forward sensitivities need equal structures.
+std::string structuralDifference(const Network& a, const Network& b);
+
+//! One parameter's effect on a network, for forward sensitivities: the same network built at p + h and p - h
+//! (equal structure). The solver differences their coefficients (capacities, conductances, flows, boundary
+//! temperatures, source powers, face half-conductances, set points), their schedules at the time asked and their
+//! surface models at the face temperature asked, and carries these through the assembly's exact chain rule.
+struct ParameterNetworks {
+  const Network* plus = nullptr;
+  const Network* minus = nullptr;
+  double step = 0.0;  //!< (p + h) - (p - h)
+  bool surface = true;  //!< the surface models differ (false: skip differencing them, their difference is zero)
 };
 
 //! Right-hand side and Jacobian of a network.
@@ -36,6 +52,15 @@ class NetworkSystem {
   void evaluate(double time, std::span<const double> state, std::span<double> out) const;
   //! Jacobian values in the order of pattern().rowIndex [nonzeros].
   void jacobian(double time, std::span<const double> state, std::span<double> values) const;
+
+  //! Partial derivative of the right-hand side (transient mode) with respect to a parameter at fixed state:
+  //! d f / d p [size]. `rhs` is evaluate()'s result at the same time and state.
+  void parameterDerivative(double time, std::span<const double> state, std::span<const double> rhs,
+                           const ParameterNetworks& parameter, std::span<double> out) const;
+  //! The same for several parameters at one time and state (face temperatures solved once): out[j] for
+  //! parameters[j].
+  void parameterDerivatives(double time, std::span<const double> state, std::span<const double> rhs,
+                            std::span<const ParameterNetworks> parameters, std::span<const std::span<double>> out) const;
 
   //! Heat flow by group and channel at the state (nodes and controls at least) [W], row-major
   //! [groups x channels], unweighted, plus storage per group sum C dT/dt [W] [groups]; face temperatures [faces].

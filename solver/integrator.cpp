@@ -1,6 +1,6 @@
 #include "solver/integrator.hpp"
 
-#include <cvode/cvode.h>
+#include <cvodes/cvodes.h>
 #include <kinsol/kinsol.h>
 #include <nvector/nvector_serial.h>
 #include <sundials/sundials_context.h>
@@ -118,7 +118,71 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
   check(CVodeSetJacFn(mem, &Integrator::jacobianCallback), "CVodeSetJacFn");
 }
 
-Integrator::~Integrator() = default;
+Integrator::~Integrator() {
+  if (sensitivityVectors_) N_VDestroyVectorArray(sensitivityVectors_, static_cast<int>(sensitivity_.count));
+}
+
+void Integrator::enableSensitivities(SensitivityProblem problem) {
+  if (sensitivityVectors_) throw std::logic_error("sensitivities are already enabled");
+  if (problem.count == 0) return;
+  if (problem.initial.size() != problem.count || problem.scale.size() != problem.count || !problem.derivative)
+    throw std::invalid_argument("a sensitivity problem needs an initial vector, a scale and a derivative per parameter");
+  const int ns = static_cast<int>(problem.count);
+  sensitivity_ = std::move(problem);
+  sensitivityVectors_ = checkCreated(N_VCloneVectorArray(ns, state_.get()), "the sensitivity vectors");
+  for (std::size_t j = 0; j < sensitivity_.count; ++j) {
+    auto v = view(sensitivityVectors_[j]);
+    if (sensitivity_.initial[j].size() != v.size()) throw std::invalid_argument("a sensitivity's initial vector has the wrong size");
+    std::copy(sensitivity_.initial[j].begin(), sensitivity_.initial[j].end(), v.begin());
+  }
+  void* mem = memory_.get();
+  check(CVodeSensInit(mem, ns, CV_STAGGERED, &Integrator::sensitivityCallback, sensitivityVectors_), "CVodeSensInit");
+  // Absolute tolerance of s_j: the state's over |p_j| (a change of p by its own size moves y by atol at most).
+  N_Vector* tolerances = checkCreated(N_VCloneVectorArray(ns, state_.get()), "the sensitivity tolerances");
+  auto atol = view(tolerances_.get());
+  for (std::size_t j = 0; j < sensitivity_.count; ++j) {
+    const double scale = sensitivity_.scale[j] > 0.0 ? sensitivity_.scale[j] : 1.0;
+    auto t = view(tolerances[j]);
+    for (Index i = 0; i < t.size(); ++i) t[i] = atol[i] / scale;
+  }
+  const int flag = CVodeSensSVtolerances(mem, options_.rtol, tolerances);
+  N_VDestroyVectorArray(tolerances, ns);
+  check(flag, "CVodeSensSVtolerances");
+  check(CVodeSetSensErrCon(mem, sensitivity_.errorControl ? SUNTRUE : SUNFALSE), "CVodeSetSensErrCon");
+  sensitivityJacobian_.resize(system_.pattern().nonzeros());
+}
+
+std::span<const double> Integrator::sensitivity(std::size_t j) const {
+  if (!sensitivityVectors_ || j >= sensitivity_.count) return {};
+  return view(sensitivityVectors_[j]);
+}
+
+void Integrator::fetchSensitivities() {
+  if (sensitivityVectors_) check(CVodeGetSensDky(memory_.get(), time_, 0, sensitivityVectors_), "CVodeGetSensDky");
+}
+
+int Integrator::sensitivityCallback(int count, double t, N_Vector y, N_Vector ydot, N_Vector* yS, N_Vector* ySdot,
+                                    void* user, N_Vector, N_Vector) {
+  auto* self = static_cast<Integrator*>(user);
+  return self->guard_.run([&] {
+    // ds_j/dt = J s_j + df/dp_j, J assembled once for all parameters.
+    self->system_.jacobian(t, view(y), self->sensitivityJacobian_);
+    const SparsePattern& pattern = self->system_.pattern();
+    std::vector<std::span<double>> outs;
+    for (int j = 0; j < count; ++j) outs.push_back(view(ySdot[j]));
+    self->sensitivity_.derivative(t, view(y), view(ydot), outs);
+    for (int j = 0; j < count; ++j) {
+      auto out = outs[static_cast<std::size_t>(j)];
+      auto sj = view(yS[j]);
+      for (Index c = 0; c < pattern.size; ++c) {
+        const double v = sj[c];
+        if (v == 0.0) continue;
+        for (Index p = pattern.columnStart[c]; p < pattern.columnStart[c + 1]; ++p)
+          out[pattern.rowIndex[p]] += self->sensitivityJacobian_[p] * v;
+      }
+    }
+  });
+}
 
 std::span<const double> Integrator::state() const { return view(state_.get()); }
 
@@ -202,6 +266,7 @@ void Integrator::advanceTo(double time) {
   }
   time_ = time;
   checkFinite(state(), "the state");
+  fetchSensitivities();
 }
 
 bool Integrator::advanceTo(double time, const std::atomic<bool>& stop) {
@@ -238,6 +303,7 @@ bool Integrator::advanceTo(double time, const std::atomic<bool>& stop) {
   }
   time_ = stopped ? reached : time;
   checkFinite(state(), "the state");
+  if (!stopped) fetchSensitivities();
   return !stopped;
 }
 
@@ -249,6 +315,7 @@ void Integrator::restart() {
   s.wallSeconds = 0.0;
   previous_ = s;
   check(CVodeReInit(memory_.get(), time_, state_.get()), "CVodeReInit");
+  if (sensitivityVectors_) check(CVodeSensReInit(memory_.get(), CV_STAGGERED, sensitivityVectors_), "CVodeSensReInit");
 }
 
 SolverStatistics Integrator::statistics() const {

@@ -3,6 +3,7 @@
 //! is owned through an RAII handle by one class; the system integrated is referenced, never copied.
 #include <atomic>
 #include <exception>
+#include <functional>
 #include <memory>
 #include <span>
 #include <stdexcept>
@@ -89,7 +90,22 @@ struct CallbackGuard {
 };
 }  // namespace detail
 
-//! CVODE BDF integrator of a NetworkSystem in transient mode.
+//! Forward sensitivities of the state with respect to parameters (CVODES, staggered corrector): for each
+//! parameter j, ds_j/dt = J s_j + df/dp_j, with df/dp_j supplied by `derivative` (e.g.
+//! NetworkSystem::parameterDerivative) and J the assembly's analytic Jacobian.
+struct SensitivityProblem {
+  std::size_t count = 0;
+  //! df/dp_j at (t, y) given f(t, y) = rhs, into out[j] [size], for every parameter at once.
+  std::function<void(double t, std::span<const double> y, std::span<const double> rhs,
+                     std::span<const std::span<double>> out)>
+      derivative;
+  std::vector<std::vector<double>> initial;  //!< s_j(t0) [count][size]
+  std::vector<double> scale;                 //!< |p_j|: absolute tolerances of s_j are atol / |p_j|
+  bool errorControl = true;                  //!< include the sensitivities in the local error test
+};
+
+//! CVODE BDF integrator of a NetworkSystem in transient mode (CVODES library, which holds CVODE's integrator;
+//! without sensitivities it takes the same steps as CVODE).
 class Integrator {
  public:
   Integrator(const NetworkSystem& system, std::span<const double> initialState, double initialTime,
@@ -110,10 +126,19 @@ class Integrator {
   void restart();
   double time() const { return time_; }
   std::span<const double> state() const;
+  //! Start forward sensitivities at the current time (before the first advanceTo or after a restart()).
+  void enableSensitivities(SensitivityProblem problem);
+  //! s_j at time() (after advanceTo(time)); empty without sensitivities.
+  std::span<const double> sensitivity(std::size_t j) const;
+  std::size_t sensitivityCount() const { return sensitivity_.count; }
   SolverStatistics statistics() const;
 
  private:
   static int rhsCallback(double t, _generic_N_Vector* y, _generic_N_Vector* ydot, void* self);
+  static int sensitivityCallback(int count, double t, _generic_N_Vector* y, _generic_N_Vector* ydot,
+                                 _generic_N_Vector** yS, _generic_N_Vector** ySdot, void* self, _generic_N_Vector*,
+                                 _generic_N_Vector*);
+  void fetchSensitivities();
   static int jacobianCallback(double t, _generic_N_Vector* y, _generic_N_Vector* fy, _generic_SUNMatrix* J,
                               void* self, _generic_N_Vector*, _generic_N_Vector*, _generic_N_Vector*);
   std::string failureMessage(int flag) const;
@@ -130,6 +155,9 @@ class Integrator {
   detail::Handle<_generic_SUNLinearSolver> linearSolver_;
   detail::SolverMemory memory_;
   std::vector<double> jacobianValues_;
+  SensitivityProblem sensitivity_;
+  _generic_N_Vector** sensitivityVectors_ = nullptr;  //!< CVODES vector array (N_VCloneVectorArray)
+  std::vector<double> sensitivityJacobian_;
   double time_ = 0.0;
   double wallSeconds_ = 0.0;
   SolverStatistics previous_;  //!< counters of the intervals before the last restart

@@ -1,0 +1,308 @@
+//! Forward sensitivities of run outputs (CVODES, staggered corrector): see forward_sensitivity.hpp.
+#include "drivers/forward_sensitivity.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <cstdlib>
+#include <numeric>
+
+#include <fmt/format.h>
+
+#include "models/case.hpp"
+#include "solver/assembly.hpp"
+#include "solver/integrator.hpp"
+
+namespace thermorph {
+namespace {
+
+//! Relative step of the two network builds (coefficient derivatives) and of the output chain rule.
+constexpr double buildStep = 1e-6;
+constexpr double stateStep = 1e-4;
+
+std::string overrideText(const SensitivityParameter& p, double value) {
+  return p.unit.empty() ? fmt::format("{}={:.17g}", p.key, value) : fmt::format("{}={:.17g} {}", p.key, value, p.unit);
+}
+
+double stepOf(const SensitivityParameter& p, double relative) {
+  return relative * (p.value != 0.0 ? std::abs(p.value) : 1.0);
+}
+
+std::vector<std::string> withValues(std::vector<std::string> overrides, const std::vector<SensitivityParameter>& ps,
+                                    std::size_t j = 0, double shifted = 0.0, bool shift = false) {
+  for (std::size_t k = 0; k < ps.size(); ++k)
+    overrides.push_back(overrideText(ps[k], shift && k == j ? shifted : ps[k].value));
+  return overrides;
+}
+
+bool sameGeometry(const Body& a, const Body& b) {
+  if (a.segments().size() != b.segments().size()) return false;
+  for (std::size_t g = 0; g < a.segments().size(); ++g) {
+    const SegmentMesh &x = a.segments()[g], &y = b.segments()[g];
+    if (x.radius != y.radius || x.axial != y.axial || x.volume != y.volume) return false;
+  }
+  return true;
+}
+
+//! Uniform initial temperature, then the controllers' initial states, then zero channel energies.
+std::vector<double> initialState(const Body& body, const NetworkSystem& system) {
+  std::vector<double> y(system.nodeCount(), body.spec().run.initialTemperature);
+  for (const Controller& k : body.network().controllers) y.push_back(k.initial);
+  y.resize(system.size(), 0.0);
+  return y;
+}
+
+//! The run summary at one output, as the recorder fills it (drivers/record_budget.cpp).
+void summaryAt(const NetworkSystem& system, double t, std::span<const double> y, double initialStored, RunSummary& s) {
+  const Network& n = system.network();
+  s.flows.assign(n.groups.size() * n.channels.size(), 0.0);
+  s.storage.assign(n.groups.size(), 0.0);
+  std::vector<double> faces(n.faces.size(), 0.0);
+  const Index states = system.nodeCount() + system.controlCount();
+  system.groupFlows(t, y.first(states), s.flows, s.storage, faces);
+  s.channelEnergy.assign(y.begin() + static_cast<std::ptrdiff_t>(states), y.end());
+  s.controls.assign(y.begin() + static_cast<std::ptrdiff_t>(system.nodeCount()),
+                    y.begin() + static_cast<std::ptrdiff_t>(states));
+  s.storedChange = system.storedHeat(y) - initialStored;
+  const double gained = std::accumulate(s.channelEnergy.begin(), s.channelEnergy.end(), 0.0);
+  s.energyBalanceError = gained - s.storedChange;
+  s.finalTime = t;
+}
+
+struct Perturbed {
+  std::unique_ptr<Body> plus, minus;
+  double step = 0.0;     // (p + h) - (p - h), in the parameter's unit
+  bool surface = true;   // the surroundings' heat flows depend on the parameter
+};
+
+//! Whether the two bodies' surroundings give different face heat flows: every face at two face temperatures, at
+//! the start and the middle of every timeline interval (the models move between intervals at breakpoints).
+bool surfaceDiffers(const Body& a, const Body& b) {
+  const Network& n = a.network();
+  if (!n.surface || n.faces.empty()) return false;
+  std::vector<double> breaks = a.environment().breakpoints();
+  const double end = a.spec().run.duration;
+  std::vector<double> qa(n.channels.size()), da(n.channels.size()), qb(n.channels.size()), db(n.channels.size());
+  bool differs = false;
+  for (std::size_t k = 0; k <= breaks.size() && !differs; ++k) {
+    const double t0 = k == 0 ? 0.0 : breaks[k - 1];
+    const double t1 = k < breaks.size() ? breaks[k] : end;
+    a.setInterval(k);
+    b.setInterval(k);
+    for (double t : {t0, 0.5 * (t0 + t1)})
+      for (Index f = 0; f < n.faces.size() && !differs; ++f)
+        for (double ts : {283.15, 308.15}) {
+          std::fill(qa.begin(), qa.end(), 0.0);
+          std::fill(da.begin(), da.end(), 0.0);
+          std::fill(qb.begin(), qb.end(), 0.0);
+          std::fill(db.begin(), db.end(), 0.0);
+          a.network().surface->faceHeat(f, ts, t, qa, da);
+          b.network().surface->faceHeat(f, ts, t, qb, db);
+          if (qa != qb || da != db) differs = true;
+        }
+  }
+  a.setInterval(0);
+  b.setInterval(0);
+  return differs;
+}
+
+//! Classify one parameter; on success fill the two bodies.
+ParameterGradient classifyOne(const std::string& caseText, const std::string& casePath,
+                              const std::vector<std::string>& overrides, const std::vector<SensitivityParameter>& ps,
+                              std::size_t j, const Body& base, Perturbed* out) {
+  const SensitivityParameter& p = ps[j];
+  ParameterGradient g;
+  if (p.key.rfind("run.", 0) == 0 && p.key != "run.initial_temperature") {
+    g.reason = "a run setting";
+    return g;
+  }
+  if (base.spec().run.initial == InitialCondition::Steady) {
+    g.reason = "the run starts from a steady state (KINSOL), whose derivative is not carried";
+    return g;
+  }
+  const double h = stepOf(p, buildStep);
+  Perturbed q;
+  try {
+    q.plus = std::make_unique<Body>(loadCaseFromString(caseText, casePath, withValues(overrides, ps, j, p.value + h, true)));
+    q.minus = std::make_unique<Body>(loadCaseFromString(caseText, casePath, withValues(overrides, ps, j, p.value - h, true)));
+  } catch (const std::exception& e) {
+    g.reason = fmt::format("the case cannot be built at p +- {:.3g}: {}", h, e.what());
+    return g;
+  }
+  q.step = (p.value + h) - (p.value - h);
+  for (const Body* b : {q.plus.get(), q.minus.get()}) {
+    if (std::string why = structuralDifference(base.network(), b->network()); !why.empty()) {
+      g.reason = "it changes the network's structure: " + why;
+      return g;
+    }
+    if (!sameGeometry(base, *b)) {
+      g.reason = "it changes the geometry (cell sizes or positions)";
+      return g;
+    }
+    if (b->environment().breakpoints() != base.environment().breakpoints() ||
+        b->spec().run.duration != base.spec().run.duration || b->spec().run.outputInterval != base.spec().run.outputInterval) {
+      g.reason = "it moves the timeline";
+      return g;
+    }
+  }
+  g.method = GradientMethod::Forward;
+  q.surface = surfaceDiffers(*q.plus, *q.minus);
+  if (out) *out = std::move(q);
+  return g;
+}
+
+}  // namespace
+
+const char* gradientMethodName(GradientMethod m) {
+  return m == GradientMethod::Forward ? "cvodes" : "finite differences";
+}
+
+std::vector<ParameterGradient> classifyParameters(const std::string& caseText, const std::string& casePath,
+                                                  const std::vector<std::string>& overrides,
+                                                  const std::vector<SensitivityParameter>& parameters) {
+  const Body base(loadCaseFromString(caseText, casePath, withValues(overrides, parameters)));
+  std::vector<ParameterGradient> out;
+  for (std::size_t j = 0; j < parameters.size(); ++j)
+    out.push_back(classifyOne(caseText, casePath, overrides, parameters, j, base, nullptr));
+  return out;
+}
+
+ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const std::string& casePath,
+                                              const std::vector<std::string>& overrides,
+                                              const std::vector<SensitivityParameter>& parameters,
+                                              const ProbeFactory& makeProbe, bool errorControl) {
+  ForwardSensitivityResult result;
+  const std::size_t k = parameters.size();
+  result.derivatives.resize(k);
+  try {
+    const Body body(loadCaseFromString(caseText, casePath, withValues(overrides, parameters)));
+    const Case& c = body.spec();
+    std::vector<Perturbed> perturbed(k);
+    std::vector<std::size_t> forward;  // parameters with sensitivities, in order
+    for (std::size_t j = 0; j < k; ++j) {
+      result.methods.push_back(classifyOne(caseText, casePath, overrides, parameters, j, body, &perturbed[j]));
+      if (result.methods.back().method == GradientMethod::Forward) forward.push_back(j);
+    }
+    NetworkSystem system(body.network(), NetworkSystem::Mode::Transient);
+    const Index nodes = system.nodeCount();
+    const Index states = nodes + system.controlCount();
+    std::vector<double> y0 = initialState(body, system);
+    const double initialStored = system.storedHeat(y0);
+
+    // The perturbed networks' systems (their flows at the base state, for the outputs' explicit dependence).
+    struct Side {
+      std::unique_ptr<NetworkSystem> plus, minus;
+      double plusStored = 0.0, minusStored = 0.0;
+    };
+    std::vector<Side> sides(k);
+    SensitivityProblem problem;
+    problem.count = forward.size();
+    problem.errorControl = errorControl;
+    for (std::size_t j : forward) {
+      Perturbed& q = perturbed[j];
+      sides[j].plus = std::make_unique<NetworkSystem>(q.plus->network(), NetworkSystem::Mode::Transient);
+      sides[j].minus = std::make_unique<NetworkSystem>(q.minus->network(), NetworkSystem::Mode::Transient);
+      std::vector<double> yp = initialState(*q.plus, *sides[j].plus), ym = initialState(*q.minus, *sides[j].minus);
+      sides[j].plusStored = sides[j].plus->storedHeat(yp);
+      sides[j].minusStored = sides[j].minus->storedHeat(ym);
+      std::vector<double> s0(system.size(), 0.0);
+      for (Index i = 0; i < states; ++i) s0[i] = (yp[i] - ym[i]) / q.step;
+      problem.initial.push_back(std::move(s0));
+      problem.scale.push_back(parameters[j].value != 0.0 ? std::abs(parameters[j].value) : 1.0);
+    }
+    std::vector<ParameterNetworks> networks;
+    for (std::size_t j : forward)
+      networks.push_back({&perturbed[j].plus->network(), &perturbed[j].minus->network(), perturbed[j].step,
+                          perturbed[j].surface});
+    problem.derivative = [&](double t, std::span<const double> y, std::span<const double> rhs,
+                             std::span<const std::span<double>> out) {
+      system.parameterDerivatives(t, y, rhs, networks, out);
+    };
+
+    IntegratorOptions io;
+    io.rtol = c.run.rtol;
+    io.maxStep = c.run.maxStep;
+    io.atol.assign(system.size(), c.run.atol);
+    for (Index i = nodes; i < states; ++i) io.atol[i] = 1e-6;
+    for (Index i = states; i < system.size(); ++i) io.atol[i] = 1e30;
+    Integrator integrator(system, y0, 0.0, io);
+    integrator.enableSensitivities(std::move(problem));
+
+    // Probes: the base; per forward parameter, the base body at y +- e s, and the two perturbed bodies at y.
+    std::unique_ptr<OutputProbe> baseProbe = makeProbe(body);
+    struct Probes {
+      std::unique_ptr<OutputProbe> up, down, plus, minus;
+      double e = 0.0;
+    };
+    std::vector<Probes> probes(k);
+    for (std::size_t j : forward) {
+      probes[j].up = makeProbe(body);
+      probes[j].down = makeProbe(body);
+      probes[j].plus = makeProbe(*perturbed[j].plus);
+      probes[j].minus = makeProbe(*perturbed[j].minus);
+      probes[j].e = stepOf(parameters[j], stateStep);
+    }
+    RunSummary summary;
+    std::vector<double> shifted(system.size());
+    auto observe = [&](double t) {
+      std::span<const double> y = integrator.state();
+      summaryAt(system, t, y, initialStored, summary);
+      baseProbe->observe(t, y.first(nodes), summary);
+      for (std::size_t s = 0; s < forward.size(); ++s) {
+        const std::size_t j = forward[s];
+        std::span<const double> sj = integrator.sensitivity(s);
+        for (double sign : {1.0, -1.0}) {
+          for (Index i = 0; i < shifted.size(); ++i) shifted[i] = y[i] + sign * probes[j].e * sj[i];
+          summaryAt(system, t, shifted, initialStored, summary);
+          (sign > 0 ? probes[j].up : probes[j].down)->observe(t, std::span<const double>(shifted).first(nodes), summary);
+        }
+        summaryAt(*sides[j].plus, t, y, sides[j].plusStored, summary);
+        probes[j].plus->observe(t, y.first(nodes), summary);
+        summaryAt(*sides[j].minus, t, y, sides[j].minusStored, summary);
+        probes[j].minus->observe(t, y.first(nodes), summary);
+      }
+    };
+    auto setInterval = [&](std::size_t interval) {
+      body.setInterval(interval);
+      for (std::size_t j : forward) {
+        perturbed[j].plus->setInterval(interval);
+        perturbed[j].minus->setInterval(interval);
+      }
+    };
+
+    const long outputs = std::lround(std::ceil(c.run.duration / c.run.outputInterval - 1e-9));
+    std::vector<double> breakpoints = body.environment().breakpoints();
+    std::size_t interval = 0;
+    setInterval(0);
+    observe(0.0);
+    auto nextStop = [&] { return interval < breakpoints.size() ? breakpoints[interval] : c.run.duration; };
+    integrator.setStopTime(nextStop());
+    for (long n = 1; n <= outputs; ++n) {
+      const double t = std::min(c.run.duration, static_cast<double>(n) * c.run.outputInterval);
+      while (interval < breakpoints.size() && breakpoints[interval] <= t) {
+        integrator.advanceTo(breakpoints[interval]);
+        setInterval(++interval);
+        integrator.restart();
+        integrator.setStopTime(nextStop());
+      }
+      integrator.advanceTo(t);
+      observe(t);
+    }
+    result.statistics = integrator.statistics();
+    result.values = baseProbe->values();
+    for (std::size_t j : forward) {
+      const std::vector<double> up = probes[j].up->values(), down = probes[j].down->values();
+      const std::vector<double> plus = probes[j].plus->values(), minus = probes[j].minus->values();
+      std::vector<double>& d = result.derivatives[j];
+      d.resize(result.values.size());
+      for (std::size_t i = 0; i < d.size(); ++i)
+        d[i] = (up[i] - down[i]) / (2.0 * probes[j].e) + (plus[i] - minus[i]) / perturbed[j].step;
+    }
+    result.ok = true;
+  } catch (const std::exception& e) {
+    result.ok = false;
+    result.error = e.what();
+  }
+  return result;
+}
+
+}  // namespace thermorph

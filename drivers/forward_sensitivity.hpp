@@ -1,0 +1,79 @@
+#pragma once
+//! Forward sensitivities of a run's outputs with respect to case parameters, by CVODES.
+//!
+//! A parameter "enters the network as a coefficient" when the case built at p + h and at p - h (h = 1e-6 |p|)
+//! gives networks of the same structure (solver/assembly.hpp: structuralDifference) on the same geometry (every
+//! segment's cell radii, positions and volumes equal) and timeline, with a uniform initial state. Then the
+//! sensitivity right-hand side df/dp is assembled with the exact chain rule of the assembly
+//! (NetworkSystem::parameterDerivative: conductances, flows, sources, boundary temperatures, capacities, set
+//! points, the face balance with its surface model, modulator schedules) from the coefficient differences of the
+//! two builds (a deterministic function of p with no solver in it: round-off level, exact for coefficients linear
+//! in p), and CVODES integrates s = dy/dp beside the state. Every other parameter (geometry, cell counts, Q10,
+//! controller laws, run settings, a steady initial state) is reported as needing finite differences, with the
+//! reason.
+//!
+//! Outputs are whatever a probe computes from the run's outputs (an ObservationSampler for fits, a
+//! MetricCollector for local sensitivities); their derivatives follow from the state sensitivities by the chain
+//! rule: d g / d p = (g(y + e s) - g(y - e s)) / 2e + (g_{p+h}(y) - g_{p-h}(y)) / 2h, exact for outputs linear
+//! in the state (temperatures), second order in e = 1e-4 |p| for heat flows.
+#include <functional>
+#include <memory>
+#include <span>
+#include <string>
+#include <vector>
+
+#include "models/body.hpp"
+#include "drivers/simulation.hpp"
+
+namespace thermorph {
+
+//! Something computed from a run's outputs: observes every output (t = 0 included), then gives its values.
+class OutputProbe {
+ public:
+  virtual ~OutputProbe() = default;
+  virtual void observe(double time, std::span<const double> temperatures, const RunSummary& summary) = 0;
+  virtual std::vector<double> values() const = 0;
+};
+using ProbeFactory = std::function<std::unique_ptr<OutputProbe>(const Body&)>;
+
+//! A case key addressed as --set addresses it, at `value` in `unit` ("" : the key's SI unit).
+struct SensitivityParameter {
+  std::string key, unit;
+  double value = 0.0;
+};
+
+enum class GradientMethod { Forward, FiniteDifference };
+const char* gradientMethodName(GradientMethod m);  //!< "cvodes" or "finite differences"
+
+struct ParameterGradient {
+  GradientMethod method = GradientMethod::FiniteDifference;
+  std::string reason;  //!< why finite differences ("" for forward)
+};
+
+//! How each parameter's derivative can be taken at these values (builds the case at p +- h for each).
+std::vector<ParameterGradient> classifyParameters(const std::string& caseText, const std::string& casePath,
+                                                  const std::vector<std::string>& overrides,
+                                                  const std::vector<SensitivityParameter>& parameters);
+
+struct ForwardSensitivityResult {
+  bool ok = false;
+  std::string error;
+  std::vector<double> values;                    //!< the probe's values at the base
+  std::vector<std::vector<double>> derivatives;  //!< [parameter][value] d value / d parameter (in its unit); empty
+                                                 //!< for a parameter that needs finite differences
+  std::vector<ParameterGradient> methods;
+  SolverStatistics statistics;
+};
+
+//! One transient run of the case (text, overrides, then every parameter at its value) with CVODES forward
+//! sensitivities for the parameters that allow them. Never throws for a model failure: ok = false, error.
+//! `errorControl`: include the sensitivities in CVODES' local error test (CVodeSetSensErrCon). Off (default),
+//! the run takes the plain run's steps and the sensitivities are those of the same discrete solution (agreement
+//! with central differences at tolerances 1e-11: about 1e-7 either way, tests/test_forward_sensitivity.cpp); on,
+//! their own truncation error is controlled too, at two to three times the steps.
+ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const std::string& casePath,
+                                              const std::vector<std::string>& overrides,
+                                              const std::vector<SensitivityParameter>& parameters,
+                                              const ProbeFactory& probe, bool errorControl = false);
+
+}  // namespace thermorph
