@@ -40,6 +40,10 @@ CLI::App* addSensitivitySubcommand(CLI::App& app, SensitivityOptions& o) {
   s->add_flag("--steady", o.steady, "Steady state of every run");
   s->add_option("-N,--samples", o.samples, "Sobol: base samples N, N (k + 2) runs (default 512); Morris: trajectories (default 10)");
   s->add_option("--levels", o.levels, "Morris grid levels (even; default 4)");
+  s->add_option("--gradient", o.gradient,
+                "Local: auto (CVODES forward sensitivities for parameters that enter the network as coefficients, "
+                "central differences for geometry and the rest) or fd (central differences for all); default auto")
+      ->check(CLI::IsMember({"auto", "fd"}));
   s->add_option("--step", o.step, "Local: relative step of the central difference (default 1e-3)");
   s->add_option("--bootstrap", o.bootstrap, "Sobol: bootstrap resamples for the 95 % intervals (default 1000)");
   s->add_option("--seed", o.seed, "Seed of the Morris design and the bootstrap (default 1)");

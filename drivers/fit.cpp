@@ -860,7 +860,7 @@ void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const 
                                                           v.begin() + static_cast<std::ptrdiff_t>(offset + m))
                                     : std::vector<double>();
     };
-    w.doubles(g + "/time", os.times, {}, "s");
+    w.doubles(g + "/time", os.times, {}, "s", "observation time since the start of the run");
     w.doubles(g + "/observed", os.values, {}, os.unit());
     w.doubles(g + "/sd", os.sd, {}, os.unit());
     if (!r.predictions.empty()) {
@@ -879,6 +879,42 @@ void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const 
     offset += m;
   }
   w.strings("/fit/series_names", seriesNames);
+  w.scale("/fit/series_names");
+
+  // netCDF-4 dimensions (HDF5 dimension scales): every dataset's axes are named coordinates.
+  const std::string P = "/fit/parameter", P2 = "/fit/parameter_b";
+  w.indexScale(P, p, "parameter index (names in parameters/name)");
+  w.indexScale(P2, p, "parameter index, second axis of square matrices");
+  for (const char* name : {"name", "units", "value", "standard_error", "lower_95", "upper_95", "start", "lower_bound",
+                           "upper_bound", "log_scale", "gradient_method", "gradient_reason"})
+    if (w.exists(std::string("/fit/parameters/") + name)) w.attach(std::string("/fit/parameters/") + name, {P});
+  for (const char* name : {"/fit/covariance", "/fit/correlation"})
+    if (w.exists(name)) w.attach(name, {P, P2});
+  if (w.exists("/fit/jacobian")) {
+    w.indexScale("/fit/row", r.jacobian.size() / p, "residual row: observations series after series, then priors");
+    w.attach("/fit/jacobian", {"/fit/row", P});
+  }
+  if (w.exists("/fit/singular_values")) {
+    w.indexScale("/fit/component", r.singularValues.size(), "singular value index, largest first");
+    w.attach("/fit/singular_values", {"/fit/component"});
+  }
+  w.indexScale("/fit/history/record", r.history.size(), "iteration record (all starts in order)");
+  for (const char* name : {"iteration", "cost", "gradient_max_norm", "step_norm", "successful", "start"})
+    w.attach(std::string("/fit/history/") + name, {"/fit/history/record"});
+  w.attach("/fit/history/values", {"/fit/history/record", P});
+  w.indexScale("/fit/starts/start", r.startPoints.size(), "start index of the multi-start");
+  w.attach("/fit/starts/values", {"/fit/starts/start", P});
+  w.attach("/fit/starts/cost", {"/fit/starts/start"});
+  for (const std::string& name : seriesNames) {
+    const std::string g = "/fit/series/" + name;
+    w.scale(g + "/time");
+    for (const char* v : {"observed", "sd", "predicted", "residual"})
+      if (w.exists(g + "/" + v)) w.attach(g + "/" + v, {g + "/time"});
+    if (w.exists(g + "/model_time")) {
+      w.scale(g + "/model_time");
+      w.attach(g + "/model", {g + "/model_time"});
+    }
+  }
 }
 
 std::string stemOf(const std::string& output) {

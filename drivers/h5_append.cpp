@@ -1,6 +1,7 @@
 #include "drivers/h5_append.hpp"
 
 #include <hdf5.h>
+#include <hdf5_hl.h>
 
 #include <stdexcept>
 
@@ -25,6 +26,14 @@ hid_t intermediate() {
 
 void check(herr_t status, const std::string& what) {
   if (status < 0) throw std::runtime_error("HDF5: cannot " + what);
+}
+
+//! The default CF long_name: the dataset's name, underscores as spaces.
+std::string nameOf(const std::string& path) {
+  std::string name = path.substr(path.find_last_of('/') + 1);
+  for (char& c : name)
+    if (c == '_') c = ' ';
+  return name;
 }
 
 }  // namespace
@@ -52,7 +61,7 @@ void H5Writer::group(const std::string& path) {
 }
 
 void H5Writer::doubles(const std::string& path, const std::vector<double>& values, std::vector<std::uint64_t> shape,
-                       const std::string& units) {
+                       const std::string& units, const std::string& longName) {
   if (shape.empty()) shape = {values.size()};
   std::vector<hsize_t> dims(shape.begin(), shape.end());
   hid_t space = H5Screate_simple(static_cast<int>(dims.size()), dims.data(), nullptr);
@@ -64,9 +73,42 @@ void H5Writer::doubles(const std::string& path, const std::vector<double>& value
   H5Dclose(ds);
   H5Sclose(space);
   attribute(path, "units", units);
+  attribute(path, "long_name", longName.empty() ? nameOf(path) : longName);
 }
 
-void H5Writer::strings(const std::string& path, const std::vector<std::string>& values) {
+bool H5Writer::exists(const std::string& path) const { return H5Lexists(file_, path.c_str(), H5P_DEFAULT) > 0; }
+
+void H5Writer::scale(const std::string& path) {
+  hid_t ds = H5Dopen2(file_, path.c_str(), H5P_DEFAULT);
+  if (ds < 0) throw std::runtime_error("HDF5: cannot open " + path);
+  const std::string name = path.substr(path.find_last_of('/') + 1);
+  const herr_t status = H5DSset_scale(ds, name.c_str());
+  H5Dclose(ds);
+  check(status, "make " + path + " a dimension scale");
+}
+
+void H5Writer::indexScale(const std::string& path, std::size_t n, const std::string& longName) {
+  std::vector<double> index(n);
+  for (std::size_t i = 0; i < n; ++i) index[i] = static_cast<double>(i);
+  doubles(path, index, {}, "1", longName);
+  scale(path);
+}
+
+void H5Writer::attach(const std::string& path, const std::vector<std::string>& scales) {
+  hid_t ds = H5Dopen2(file_, path.c_str(), H5P_DEFAULT);
+  if (ds < 0) throw std::runtime_error("HDF5: cannot open " + path);
+  herr_t status = 0;
+  for (std::size_t i = 0; i < scales.size() && status >= 0; ++i) {
+    if (scales[i].empty()) continue;
+    hid_t sc = H5Dopen2(file_, scales[i].c_str(), H5P_DEFAULT);
+    status = sc < 0 ? -1 : H5DSattach_scale(ds, sc, static_cast<unsigned>(i));
+    if (sc >= 0) H5Dclose(sc);
+  }
+  H5Dclose(ds);
+  check(status, "attach dimension scales to " + path);
+}
+
+void H5Writer::strings(const std::string& path, const std::vector<std::string>& values, const std::string& longName) {
   std::vector<const char*> pointers;
   for (const std::string& s : values) pointers.push_back(s.c_str());
   hsize_t n = values.size();
@@ -80,6 +122,7 @@ void H5Writer::strings(const std::string& path, const std::vector<std::string>& 
   H5Dclose(ds);
   H5Sclose(space);
   H5Tclose(type);
+  attribute(path, "long_name", longName.empty() ? nameOf(path) : longName);
 }
 
 void H5Writer::attribute(const std::string& object, const std::string& name, const std::string& value) {

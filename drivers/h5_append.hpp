@@ -15,9 +15,17 @@ class H5Writer {
   H5Writer(const H5Writer&) = delete;
   H5Writer& operator=(const H5Writer&) = delete;
 
+  //! Every dataset gets `units` (numbers) and a CF `long_name` (given, or its name with spaces for underscores).
   void doubles(const std::string& path, const std::vector<double>& values, std::vector<std::uint64_t> shape,
-               const std::string& units);
-  void strings(const std::string& path, const std::vector<std::string>& values);
+               const std::string& units, const std::string& longName = "");
+  void strings(const std::string& path, const std::vector<std::string>& values, const std::string& longName = "");
+  //! netCDF-4 dimensions: make dataset `path` a dimension scale (a coordinate named after the dataset).
+  void scale(const std::string& path);
+  //! An index coordinate 0 .. n-1 (units 1) at `path`, made a dimension scale.
+  void indexScale(const std::string& path, std::size_t n, const std::string& longName);
+  //! Attach one dimension scale (a dataset path) to each dimension of dataset `path`, in order.
+  void attach(const std::string& path, const std::vector<std::string>& scales);
+  bool exists(const std::string& path) const;
   void attribute(const std::string& object, const std::string& name, const std::string& value);
   void attribute(const std::string& object, const std::string& name, double value);
   void group(const std::string& path);

@@ -76,7 +76,8 @@ const char* knownOutputs =
     "body.core_temperature, body.blood_temperature, body.mean_skin_temperature, body.metabolic_rate, "
     "body.heat_flow.CHANNEL, segments.NAME.mean_temperature, segments.NAME.heat_flow.CHANNEL, "
     "segments.NAME.temperature.LAYER@POSITION (LAYER: tissue name, layer index or coat; POSITION 0-1 along the "
-    "length)";
+    "length), segments.NAME.surface_temperature (area-weighted mean of the outer lateral surface) and "
+    "segments.NAME.surface_temperature@POSITION";
 
 }  // namespace
 
@@ -138,9 +139,19 @@ ObservedQuantity parseObservedQuantity(const std::string& name, const std::strin
         throw unknown(fmt::format("position \"{}\" is not a number from 0 to 1", at));
       return q;
     }
-    if (parts.size() == 3 && parts[2] == "surface_temperature")
-      throw unknown("surface temperatures are not available to fits yet: the run observer does not pass the face "
-                    "temperatures; use segments.NAME.temperature.LAYER@POSITION of the outermost layer");
+    if (parts.size() == 3 && parts[2] == "surface_temperature") {
+      // The outer lateral surface (the coat's, if any): the area-weighted mean over the segment, or the face of
+      // the axial cell nearest @POSITION.
+      q.kind = K::SegmentSurface;
+      q.position = -1.0;
+      if (!at.empty()) {
+        char* end = nullptr;
+        q.position = std::strtod(at.c_str(), &end);
+        if (end == at.c_str() || *end != '\0' || !(q.position >= 0.0 && q.position <= 1.0))
+          throw unknown(fmt::format("position \"{}\" is not a number from 0 to 1", at));
+      }
+      return q;
+    }
   }
   throw unknown("");
 }
@@ -344,6 +355,21 @@ ObservationSampler::ObservationSampler(const ObservedData& data, const Body& bod
       for (std::size_t c = 0; c < n.channels.size(); ++c)
         if (n.channels[c] == q.channel) b.channel = c;
     }
+    if (q.kind == ObservedQuantity::Kind::SegmentSurface) {
+      const SegmentMesh& m = body.segments()[b.segment];
+      const double length = m.axial.empty() ? 0.0 : m.axial.back() + m.axial.front();
+      int nearest = 0;
+      for (int k = 1; k < m.nz; ++k)
+        if (std::abs(m.axial[static_cast<std::size_t>(k)] - q.position * length) <
+            std::abs(m.axial[static_cast<std::size_t>(nearest)] - q.position * length))
+          nearest = k;
+      for (int iz = 0; iz < m.nz; ++iz)
+        if (q.position < 0.0 || iz == nearest) {
+          const Index face = m.lateralFace[static_cast<std::size_t>(iz)];
+          b.nodes.push_back(face);
+          b.weights.push_back(n.faces[face].area);
+        }
+    }
     if (q.kind == ObservedQuantity::Kind::SegmentLocal) {
       const SegmentMesh& m = body.segments()[b.segment];
       int layer = -1;
@@ -367,7 +393,7 @@ ObservationSampler::ObservationSampler(const ObservedData& data, const Body& bod
   }
 }
 
-double ObservationSampler::value(std::size_t s, std::span<const double> y, const RunSummary& summary) const {
+double ObservationSampler::value(std::size_t s, double time, std::span<const double> y, const RunSummary& summary) const {
   using K = ObservedQuantity::Kind;
   const ObservedQuantity& q = data_.series[s].quantity;
   const Binding& b = bindings_[s];
@@ -426,6 +452,34 @@ double ObservationSampler::value(std::size_t s, std::span<const double> y, const
     }
     case K::SegmentFlow:
       return b.channel == channels ? summary.storage[b.segment] : summary.flows[b.segment * channels + b.channel];
+    case K::SegmentSurface: {
+      // Face temperatures as the assembly solves them: G (T_n - T_s) + q(T_s, t) = 0 by Newton's method.
+      double weighted = 0.0, area = 0.0;
+      std::vector<double> heat(channels), slope(channels);
+      for (std::size_t i = 0; i < b.nodes.size(); ++i) {
+        const SurfaceFace& f = n.faces[b.nodes[i]];
+        const double tn = y[f.node];
+        double ts = tn;
+        bool converged = false;
+        for (int iteration = 0; iteration < 60 && !converged; ++iteration) {
+          std::fill(heat.begin(), heat.end(), 0.0);
+          std::fill(slope.begin(), slope.end(), 0.0);
+          n.surface->faceHeat(b.nodes[i], ts, time, heat, slope);
+          double total = 0.0, dq = 0.0;
+          for (std::size_t c = 0; c < channels; ++c) {
+            total += heat[c];
+            dq += slope[c];
+          }
+          const double step = (f.halfConductance * (tn - ts) + total) / (f.halfConductance - dq);
+          ts += step;
+          converged = std::abs(step) < 1e-11 * (1.0 + std::abs(ts));
+        }
+        if (!converged) return nan;
+        weighted += b.weights[i] * ts;
+        area += b.weights[i];
+      }
+      return weighted / area - kelvinOffset;
+    }
     case K::SegmentLocal: {
       double weighted = 0.0, volume = 0.0;
       for (std::size_t i = 0; i < b.nodes.size(); ++i) {
@@ -440,7 +494,7 @@ double ObservationSampler::value(std::size_t s, std::span<const double> y, const
 
 void ObservationSampler::observe(double time, std::span<const double> temperatures, const RunSummary& summary) {
   std::vector<double> row(data_.series.size());
-  for (std::size_t s = 0; s < row.size(); ++s) row[s] = value(s, temperatures, summary);
+  for (std::size_t s = 0; s < row.size(); ++s) row[s] = value(s, time, temperatures, summary);
   if (!times_.empty() && time == times_.back()) {  // a repeated output time (a restart): keep the latest
     samples_.back() = std::move(row);
     return;

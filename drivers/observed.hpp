@@ -14,13 +14,13 @@ namespace thermorph {
 
 //! A model output an observed column is compared with.
 struct ObservedQuantity {
-  enum class Kind { Core, Blood, MeanSkin, MetabolicRate, BodyFlow, SegmentMean, SegmentFlow, SegmentLocal };
+  enum class Kind { Core, Blood, MeanSkin, MetabolicRate, BodyFlow, SegmentMean, SegmentFlow, SegmentLocal, SegmentSurface };
   Kind kind = Kind::Core;
   std::string name;               //!< as written in the header, e.g. "segments.ears.heat_flow.convection"
   std::string segment;            //!< segment name (segment kinds)
   std::string channel;            //!< budget channel, or "storage" (flow kinds)
   std::string layer;              //!< tissue name, layer index or "coat" (SegmentLocal)
-  double position = 0.5;          //!< along the segment's length, 0-1 (SegmentLocal)
+  double position = 0.5;          //!< along the segment's length, 0-1 (SegmentLocal; SegmentSurface: < 0 for the mean)
   bool temperature = true;        //!< degC; else a heat flow in W
 };
 
@@ -78,14 +78,14 @@ class ObservationSampler {
   std::vector<double> outputSeries(std::size_t s) const;
 
  private:
-  double value(std::size_t s, std::span<const double> y, const RunSummary& summary) const;
+  double value(std::size_t s, double time, std::span<const double> y, const RunSummary& summary) const;
   const ObservedData& data_;
   const Body& body_;
   struct Binding {
     std::size_t segment = 0;
     std::size_t channel = 0;      // channels.size(): storage
-    std::vector<std::size_t> nodes;
-    std::vector<double> weights;
+    std::vector<std::size_t> nodes;   // SegmentLocal: nodes; SegmentSurface: lateral faces
+    std::vector<double> weights;      // volumes; face areas
   };
   std::vector<Binding> bindings_;
   std::vector<double> times_;

@@ -3,6 +3,7 @@
 #include "models/caution.hpp"
 #include "drivers/sensitivity.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <cstdlib>
 #include <filesystem>
@@ -14,6 +15,8 @@
 
 #include "models/case.hpp"
 #include "drivers/fit.hpp"
+#include "drivers/forward_sensitivity.hpp"
+#include "drivers/sweep_metrics.hpp"
 #include "drivers/h5_append.hpp"
 #include "drivers/sampling.hpp"
 #include "drivers/sweep.hpp"
@@ -48,6 +51,17 @@ std::string valueText(const FitParameter& p, double v) {
   return p.unit.empty() ? fmt::format("{:.17g}", v) : fmt::format("{:.17g} {}", v, p.unit);
 }
 
+//! The sweep's metric collector as a probe of the forward-sensitivity driver.
+class MetricProbe : public OutputProbe {
+ public:
+  MetricProbe(const Body& body, const SweepPlan& plan) : collector_(body, plan.window, plan.thresholds, false) {}
+  void observe(double t, std::span<const double> y, const RunSummary& s) override { collector_.observe(t, y, s); }
+  std::vector<double> values() const override { return collector_.values(); }
+
+ private:
+  MetricCollector collector_;
+};
+
 }  // namespace
 
 int runSensitivityCommand(const SensitivityOptions& o) {
@@ -81,21 +95,38 @@ int runSensitivityCommand(const SensitivityOptions& o) {
     morris = morrisDesign(k, n, o.levels, o.seed);
     unit = morris.points;
   }
+  // Local: which parameters get CVODES forward sensitivities (transient runs, coefficient parameters), which
+  // central differences of whole runs on the sweep engine.
+  std::vector<ParameterGradient> gradients(k);
+  std::vector<std::size_t> rowOf(k, 0);  // local, finite differences: the design row of p (1 + step)
   if (method == "local") {
-    // Base, then for each parameter p (1 + step) and p (1 - step).
+    std::vector<SensitivityParameter> sp;
+    for (const FitParameter& p : params) sp.push_back({p.key, p.unit, p.start});
+    if (o.steady) {
+      for (ParameterGradient& g : gradients) g.reason = "a steady state (KINSOL), whose derivative is not carried";
+    } else if (o.gradient == "fd") {
+      for (ParameterGradient& g : gradients) g.reason = "--gradient fd";
+    } else {
+      gradients = classifyParameters(caseText, o.casePath, o.overrides, sp);
+    }
+    // Base, then for each finite-difference parameter p (1 + step) and p (1 - step).
     std::vector<double> base;
-    for (const FitParameter& p : params) {
-      if (p.start == 0.0)
+    for (std::size_t j = 0; j < k; ++j) {
+      const FitParameter& p = params[j];
+      if (p.start == 0.0 && gradients[j].method == GradientMethod::FiniteDifference)
         throw CaseError(fmt::format("--param {}: the base value is 0; a relative step needs a non-zero value", p.key));
       base.push_back(p.start);
     }
     values.push_back(base);
-    for (std::size_t j = 0; j < k; ++j)
+    for (std::size_t j = 0; j < k; ++j) {
+      if (gradients[j].method == GradientMethod::Forward) continue;
+      rowOf[j] = values.size();
       for (double sign : {1.0, -1.0}) {
         std::vector<double> v = base;
         v[j] = base[j] * (1.0 + sign * o.step);
         values.push_back(v);
       }
+    }
   } else {
     for (const std::vector<double>& z : unit) {
       std::vector<double> v(k);
@@ -132,6 +163,26 @@ int runSensitivityCommand(const SensitivityOptions& o) {
   const int code = runSweepCommand(sweep);
   if (code != 0 || launcherRank() != 0) return code;
 
+  // Local: one run with CVODES forward sensitivities for the coefficient parameters, its metrics by name.
+  ForwardSensitivityResult forward;
+  std::vector<std::string> forwardNames;
+  bool anyForward = false;
+  for (const ParameterGradient& g : gradients) anyForward = anyForward || g.method == GradientMethod::Forward;
+  if (method == "local" && anyForward) {
+    const SweepPlan plan = makeSweepPlan(sweep);
+    std::vector<SensitivityParameter> sp;
+    for (const FitParameter& p : params) sp.push_back({p.key, p.unit, p.start});
+    forward = forwardSensitivities(caseText, o.casePath, o.overrides, sp, [&](const Body& body) {
+      return std::unique_ptr<OutputProbe>(new MetricProbe(body, plan));
+    });
+    if (!forward.ok) {
+      fmt::print(stderr, "error: the run with forward sensitivities failed: {}\n", forward.error);
+      return 3;
+    }
+    const Body body(loadCaseFromString(caseText, o.casePath, o.overrides));
+    for (const MetricColumn& column : metricColumns(body, plan.thresholds, false)) forwardNames.push_back(column.name);
+  }
+
   // Indices from the table.
   const std::vector<std::string> status = h5ReadStrings(runsTable, "/runs/status");
   if (status.size() != values.size())
@@ -164,6 +215,7 @@ int runSensitivityCommand(const SensitivityOptions& o) {
       base.push_back(p.start);
     }
     w.strings("/sensitivity/parameters", keys);
+    w.scale("/sensitivity/parameters");
     w.strings("/sensitivity/parameter_units", punits);
     w.doubles("/sensitivity/parameter_base", base, {}, "see parameter_units");
     if (method != "local") {
@@ -179,9 +231,14 @@ int runSensitivityCommand(const SensitivityOptions& o) {
       w.doubles("/sensitivity/design/unit", flat, {unit.size(), k}, "1");
     }
     w.strings("/sensitivity/metrics", metrics);
+    w.scale("/sensitivity/metrics");
     std::vector<double> a, b, c, d, e, f, variance, used;
     fmt::print("Sensitivity ({}), {} runs ({} failed); parameters: {}\n", method, values.size(), failed,
                fmt::join(keys, ", "));
+    if (method == "local")
+      for (std::size_t j = 0; j < k; ++j)
+        fmt::print("  {:<44} derivative by {}{}\n", keys[j], gradientMethodName(gradients[j].method),
+                   gradients[j].reason.empty() ? "" : " (" + gradients[j].reason + ")");
     for (std::size_t q = 0; q < m; ++q) {
       std::vector<double> y = h5ReadDoubles(runsTable, "/metrics/" + metrics[q]);
       units.push_back(h5ReadStringAttribute(runsTable, "/metrics/" + metrics[q], "units"));
@@ -221,9 +278,17 @@ int runSensitivityCommand(const SensitivityOptions& o) {
       } else {
         const bool temperature = units[q] == "degC";
         const double y0 = y[0];
+        const auto named = std::find(forwardNames.begin(), forwardNames.end(), metrics[q]);
         for (std::size_t j = 0; j < k; ++j) {
-          const double up = values[1 + 2 * j][j], down = values[2 + 2 * j][j];
-          const double derivative = (y[1 + 2 * j] - y[2 + 2 * j]) / (up - down);
+          double derivative = nan;
+          if (gradients[j].method == GradientMethod::Forward) {
+            if (named != forwardNames.end())
+              derivative = forward.derivatives[j][static_cast<std::size_t>(named - forwardNames.begin())];
+          } else {
+            const std::size_t r = rowOf[j];
+            const double up = values[r][j], down = values[r + 1][j];
+            derivative = (y[r] - y[r + 1]) / (up - down);
+          }
           const double p0 = params[j].start;
           a.push_back(derivative);
           b.push_back(derivative * p0 / (temperature ? y0 + 273.15 : y0));
@@ -273,9 +338,33 @@ int runSensitivityCommand(const SensitivityOptions& o) {
       w.doubles("/sensitivity/base", e, {}, "see units");
       w.attribute("/sensitivity", "step", o.step);
       w.attribute("/sensitivity", "estimators",
-                  "central differences of whole runs at p (1 +- step); normalised: d ln y / d ln p with temperatures "
-                  "in kelvin; semi-normalised: p dy/dp");
+                  "CVODES forward sensitivities for parameters that enter the network as coefficients (one run), "
+                  "central differences of whole runs at p (1 +- step) for the rest (see gradient_method); normalised: "
+                  "d ln y / d ln p with temperatures in kelvin; semi-normalised: p dy/dp");
+      std::vector<std::string> methods, reasons;
+      for (const ParameterGradient& g : gradients) {
+        methods.push_back(gradientMethodName(g.method));
+        reasons.push_back(g.reason);
+      }
+      w.strings("/sensitivity/gradient_method", methods);
+      w.strings("/sensitivity/gradient_reason", reasons);
     }
+  }
+  {
+    // netCDF-4 dimensions: parameters, metrics and the design's rows are coordinates of every dataset.
+    H5Writer w(tmp, true);
+    const std::string P = "/sensitivity/parameters", M = "/sensitivity/metrics";
+    w.indexScale("/sensitivity/design/run", values.size(), "design row (run index in the runs table)");
+    for (const char* name : {"parameter_units", "parameter_base", "parameter_lower", "parameter_upper", "gradient_method",
+                             "gradient_reason"})
+      if (w.exists(std::string("/sensitivity/") + name)) w.attach(std::string("/sensitivity/") + name, {P});
+    for (const char* name : {"units", "variance", "base_rows_used", "base"})
+      if (w.exists(std::string("/sensitivity/") + name)) w.attach(std::string("/sensitivity/") + name, {M});
+    for (const char* name : {"first", "total", "first_low", "first_high", "total_low", "total_high", "mu", "mu_star",
+                             "sigma", "effects", "derivative", "normalised", "semi_normalised"})
+      if (w.exists(std::string("/sensitivity/") + name)) w.attach(std::string("/sensitivity/") + name, {M, P});
+    for (const char* name : {"/sensitivity/design/values", "/sensitivity/design/unit"})
+      if (w.exists(name)) w.attach(name, {"/sensitivity/design/run", P});
   }
   std::filesystem::rename(tmp, output);
   fmt::print("Results: {} (indices), {} (runs)\nCaution: {}\n", output, runsTable, caution);

@@ -19,6 +19,7 @@ struct SensitivityOptions {
   std::size_t samples = 0;             //!< sobol: base samples N (default 512); morris: trajectories (default 10)
   std::size_t levels = 4;              //!< morris grid levels
   double step = 1e-3;                  //!< local: relative step of the central difference
+  std::string gradient = "auto";       //!< local: auto (CVODES where possible) or fd
   std::size_t bootstrap = 1000;
   std::uint64_t seed = 1;
   int jobs = 0;

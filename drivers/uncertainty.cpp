@@ -252,6 +252,8 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
       units.push_back(s.unit.empty() ? "1" : s.unit);
     }
     w.strings("/uncertainty/parameters", keys);
+    w.scale("/uncertainty/parameters");
+    w.indexScale("/uncertainty/sample", o.samples, "sample index");
     w.strings("/uncertainty/parameter_units", units);
     std::vector<double> flat, status;
     for (std::size_t r = 0; r < o.samples; ++r) {
@@ -287,6 +289,7 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
                    quantiles[q * 5 + 1], quantiles[q * 5 + 2], quantiles[q * 5 + 3], quantiles[q * 5 + 4], metricUnits[q]);
     }
     w.strings("/uncertainty/metric_names", metricNames);
+    w.scale("/uncertainty/metric_names");
     w.strings("/uncertainty/metric_units", metricUnits);
     w.doubles("/uncertainty/metric_values", all, {o.samples, m}, "see metric_units");
     w.doubles("/uncertainty/metric_quantiles", quantiles, {m, 5}, "see metric_units");
@@ -297,7 +300,8 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
     w.doubles("/uncertainty/metric_base", baseMetrics, {}, "see metric_units");
     // Bands.
     const std::vector<double>& times = outputs[0].times;
-    w.doubles("/uncertainty/time", times, {}, "s");
+    w.doubles("/uncertainty/time", times, {}, "s", "time since the start of the run");
+    w.scale("/uncertainty/time");
     for (std::size_t s = 0; s < bands.series.size(); ++s) {
       const std::string g = "/uncertainty/series/" + bands.series[s].quantity.name;
       const std::string u = bands.series[s].unit();
@@ -317,7 +321,24 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
       w.doubles(g + "/mean", meanSeries, {}, u);
       w.doubles(g + "/base", outputs[0].series[s], {}, u);
       w.attribute(g, "units", u);
+      for (const char* name : {"q05", "q25", "q50", "q75", "q95", "mean", "base"})
+        w.attach(g + "/" + name, {"/uncertainty/time"});
     }
+    // netCDF-4 dimensions: parameters, samples, metrics, quantile probabilities and time are coordinates.
+    const std::string P = "/uncertainty/parameters", S = "/uncertainty/sample", M = "/uncertainty/metric_names",
+                      Q = "/uncertainty/probability";
+    w.doubles(Q, std::vector<double>(std::begin(probabilities), std::end(probabilities)), {}, "1",
+              "probability of the quantile");
+    w.scale(Q);
+    w.attach("/uncertainty/parameter_units", {P});
+    w.attach("/uncertainty/samples", {S, P});
+    w.attach("/uncertainty/run_ok", {S});
+    w.attach("/uncertainty/run_error", {S});
+    w.attach("/uncertainty/metric_units", {M});
+    w.attach("/uncertainty/metric_values", {S, M});
+    w.attach("/uncertainty/metric_quantiles", {M, Q});
+    for (const char* name : {"/uncertainty/metric_mean", "/uncertainty/metric_sd", "/uncertainty/metric_base"})
+      w.attach(name, {M});
   }
   std::filesystem::rename(tmp, output);
   fmt::print("Results: {}\nCaution: {}\n", output, caution);

@@ -216,20 +216,33 @@ convection = "{} W/(m2 K)"
   const std::vector<std::string> overrides = {"run.rtol=1e-10", "run.atol=1e-10 K"};
   const std::vector<SensitivityParameter> ps = {{"tissues.fur.conductivity", "W/(m K)", kc},
                                                 {"environment.convection", "W/(m2 K)", h}};
-  const ObservedData data = outputsAt({"body.core_temperature"}, 1000.0, 2000.0);
+  // The core (series 1) and the outer surface (series 2, a fit observable): at steady state all of Q leaves
+  // through the lateral face, h 2 pi r2 L (T_s - T_inf) = Q, so T_s = T_inf + q r1^2 / (2 r2 h) on any grid and
+  // dT_s/dh = -q r1^2 / (2 r2 h^2), dT_s/dk_c = 0 (Incropera et al. 2007, eq. 3.28, the convection resistance).
+  const ObservedData data = outputsAt({"body.core_temperature", "segments.limb.surface_temperature"}, 1000.0, 2000.0);
   ForwardSensitivityResult r = forward(text, overrides, ps, data);
   REQUIRE(r.methods[0].method == GradientMethod::Forward);
   REQUIRE(r.methods[1].method == GradientMethod::Forward);
+  const std::size_t core = 2, surface = 5;  // the last output of each series (t = 0, 1000, 2000 s)
   const double exactK = -q * r1 * r1 * std::log(r2 / r1) / (2 * kc * kc);
   const double exactH = -q * r1 * r1 / (2 * r2 * h * h);
-  const double dk = r.derivatives[0].back(), dh = r.derivatives[1].back();
+  const double dk = r.derivatives[0][core], dh = r.derivatives[1][core];
   for (std::size_t j = 0; j < 2; ++j) {
     const std::vector<double> fd = centralDifference(text, overrides, ps, j, data, 1e-4);
-    const double fdError = std::abs(r.derivatives[j].back() / fd.back() - 1);
-    fmt::print("coated cylinder, dT/d{}: CVODES {:.8g}, central differences {:.8g} (relative {:.2e})\n", ps[j].key,
-               r.derivatives[j].back(), fd.back(), fdError);
+    const double fdError = std::abs(r.derivatives[j][core] / fd[core] - 1);
+    fmt::print("coated cylinder, dT/d{}: CVODES {:.8g}, central differences {:.8g} (relative {:.2e}); surface "
+               "{:.8g}, {:.8g}\n",
+               ps[j].key, r.derivatives[j][core], fd[core], fdError, r.derivatives[j][surface], fd[surface]);
     CHECK(fdError < 1e-5);
+    CHECK(std::abs(r.derivatives[j][surface] - fd[surface]) < 1e-5 * std::abs(exactH));
   }
+  const double exactTs = tInf + q * r1 * r1 / (2 * r2 * h);
+  fmt::print("coated cylinder surface: T_s = {:.10f} degC (exact {:.10f}); dT_s/dh = {:.8g} (exact {:.8g}); "
+             "dT_s/dk_c = {:.3g} (exact 0)\n",
+             r.values[surface], exactTs, r.derivatives[1][surface], exactH, r.derivatives[0][surface]);
+  CHECK(std::abs(r.values[surface] - exactTs) < 1e-6);
+  CHECK(std::abs(r.derivatives[1][surface] / exactH - 1) < 1e-5);
+  CHECK(std::abs(r.derivatives[0][surface]) < 1e-5 * std::abs(exactH));
   fmt::print("coated cylinder: dT/dk_c = {:.8g} (series resistances {:.8g}, relative {:.2e}); dT/dh = {:.8g} ({:.8g}, "
              "{:.2e})\n",
              dk, exactK, dk / exactK - 1, dh, exactH, dh / exactH - 1);
