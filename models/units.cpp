@@ -7,6 +7,8 @@
 #include <map>
 #include <memory>
 #include <mutex>
+#include <string>
+#include <utility>
 
 #include <fmt/format.h>
 
@@ -75,17 +77,29 @@ bool unitConvertible(std::string_view unit, std::string_view siUnit) {
 
 double convertUnit(double value, std::string_view unit, std::string_view siUnit) {
   std::lock_guard lock(unitMutex);
-  UnitPtr from = parseUnit(unit);
-  if (!from) throw UnitError(fmt::format("\"{}\" is not a unit udunits2 understands", unit));
-  UnitPtr to = parseUnit(siUnit);
-  if (!to) throw UnitError(fmt::format("internal: bad SI unit \"{}\"", siUnit));
-  if (!ut_are_convertible(from.get(), to.get()))
-    throw UnitError(fmt::format("unit \"{}\" is not a {} (not convertible to {})", unit, quantityName(siUnit),
-                                siUnit));
-  cv_converter* converter = ut_get_converter(from.get(), to.get());
-  double result = cv_convert_double(converter, value);
-  cv_free(converter);
-  return result;
+  // udunits2's converter of each (unit, SI unit) pair is kept for the process: a case and the schema's defaults
+  // name few distinct units, and parsing them again for every value (and every run of a sweep) cost more than
+  // the conversions. The same converter converts, so the values are the same.
+  struct ConverterFree {
+    void operator()(cv_converter* c) const { cv_free(c); }
+  };
+  static std::map<std::pair<std::string, std::string>, std::unique_ptr<cv_converter, ConverterFree>, std::less<>>
+      converters;
+  std::pair<std::string, std::string> key{std::string(unit), std::string(siUnit)};
+  auto it = converters.find(key);
+  if (it == converters.end()) {
+    UnitPtr from = parseUnit(unit);
+    if (!from) throw UnitError(fmt::format("\"{}\" is not a unit udunits2 understands", unit));
+    UnitPtr to = parseUnit(siUnit);
+    if (!to) throw UnitError(fmt::format("internal: bad SI unit \"{}\"", siUnit));
+    if (!ut_are_convertible(from.get(), to.get()))
+      throw UnitError(fmt::format("unit \"{}\" is not a {} (not convertible to {})", unit, quantityName(siUnit),
+                                  siUnit));
+    cv_converter* converter = ut_get_converter(from.get(), to.get());
+    if (!converter) throw UnitError(fmt::format("udunits2: no converter from \"{}\" to {}", unit, siUnit));
+    it = converters.emplace(std::move(key), converter).first;
+  }
+  return cv_convert_double(it->second.get(), value);
 }
 
 ValueWithUnit splitValueUnit(std::string_view text) {
