@@ -3,7 +3,9 @@
 
     /usr/bin/python3 docs/regenerate.py              check: exit 1 and show what drifted
     /usr/bin/python3 docs/regenerate.py --write      rewrite the generated parts in place
-    /usr/bin/python3 docs/regenerate.py --refine     rerun with doubled axial and radial cells; print changes
+    /usr/bin/python3 docs/regenerate.py --refine [N]  rerun every named run with N x its cells (default 4,
+                                                      `--set run.grid_refinement=N`); exit 1 when a quoted number
+                                                      moves by more than --tolerance (default 1 %)
 
 Options: --exe PATH (default build/thermorph), FILE... (default README.md and cases/*.md).
 
@@ -25,6 +27,7 @@ last printed digit (a last-ulp difference of the maths library between machines)
 (round-off-level residuals); anything else is drift.
 """
 import argparse
+import copy
 import csv
 import difflib
 import re
@@ -56,8 +59,8 @@ def seconds(t):
 class Result:
     """A results file (run, steady) or a sweep table, with helpers for expressions."""
 
-    def __init__(self, kind, path, stdout):
-        self.kind, self.stdout = kind, stdout
+    def __init__(self, kind, path, stdout, medium=0.0):
+        self.kind, self.stdout, self.medium = kind, stdout, medium
         if kind == "sweep":
             with open(path.with_suffix(".csv"), newline="") as fh:
                 self.rows = [{k.split(" [")[0]: _number(v) for k, v in row.items()} for row in csv.DictReader(fh)]
@@ -78,6 +81,21 @@ class Result:
                     self._seg[name]["_arterial"] = g["arterial_temperature"][...]
                     self._seg[name]["_venous"] = g["venous_temperature"][...]
             self._control = {k: v[...] for k, v in f["control"].items()} if "control" in f else {}
+
+    def excess(self):
+        """The same results with every temperature [degC] replaced by its excess over the medium at t = 0 [K]: the
+        scale on which a temperature's grid error is judged (a drop of 1.4 K is not 1 % of 35 degC)."""
+        out = copy.copy(self)
+        m = self.medium
+        if self.kind == "sweep":
+            out.rows = [{k: (v - m if "temperature" in k and not k.startswith("time_to") and isinstance(v, float)
+                             else v) for k, v in row.items()} for row in self.rows]
+            return out
+        out.core, out.blood, out.skin = self.core - m, self.blood - m, self.skin - m
+        out._surface = {k: v - m for k, v in self._surface.items()}
+        out._mean = {k: v - m for k, v in self._mean.items()}
+        out._seg = {k: {c: (v - m if c.startswith("_") else v) for c, v in d.items()} for k, d in self._seg.items()}
+        return out
 
     # --- runs and steady states ---
     def flow(self, channel, segment=None):
@@ -158,27 +176,23 @@ def _number(text):
         return text
 
 
+def medium_temperature(case_arg, args):
+    """The medium's temperature at t = 0 [degC]: environment.temperature of the case or of a --set."""
+    text = tomllib.loads((ROOT / case_arg).read_text()).get("environment", {}).get("temperature", "20 degC")
+    for a in args:
+        if a.startswith("environment.temperature="):
+            text = a.split("=", 1)[1].strip('"')
+    if isinstance(text, (int, float)):
+        return float(text) - 273.15
+    value, unit = text.split()
+    return float(value) - (273.15 if unit == "K" else 0.0)
+
+
 class Runner:
-    def __init__(self, exe, runs, refine=False):
+    def __init__(self, exe, runs, refine=1):
         self.exe, self.runs, self.refine = exe, runs, refine
         self.cache = {}
         self.tmp = Path(tempfile.mkdtemp(prefix="thermorph-docs-"))
-
-    def refined_overrides(self, case_arg, extra_sets):
-        """--set arguments doubling every segment's axial cells and every layer's and coat's radial cells."""
-        case = tomllib.loads((ROOT / case_arg).read_text())
-        sets = []
-        for s in case.get("segments", []):
-            name = s["name"]
-            for key, value in extra_sets:
-                if key == f"segments.{name}.axial_cells":
-                    s["axial_cells"] = int(value)
-            sets.append(f"segments.{name}.axial_cells={2 * int(s.get('axial_cells', 1))}")
-            for i, layer in enumerate(s.get("layers", [])):
-                sets.append(f"segments.{name}.layers.{i}.cells={2 * int(layer.get('cells', 1))}")
-            if "coat" in s:
-                sets.append(f"segments.{name}.coat.cells={2 * int(s['coat'].get('cells', 1))}")
-        return sets
 
     def get(self, name):
         if name in self.cache:
@@ -187,18 +201,15 @@ class Runner:
             raise SystemExit(f"regenerate: no run named {name!r} (define it with <!-- gen-run {name}: run CASE -->)")
         args = shlex.split(self.runs[name])
         kind, case = args[0], args[1]
-        if self.refine:
-            sets = [a.split("=", 1) for a in args if "=" in a]
-            extra = []
-            for s in self.refined_overrides(case, sets):
-                extra += ["--set", s]
-            args = args + extra
+        medium = medium_temperature(case, args)
+        if self.refine > 1:
+            args = args + ["--set", f"run.grid_refinement={self.refine}"]
         out = self.tmp / f"{name}.h5"
         cmd = [str(self.exe)] + [str(ROOT / a) if i == 1 else a for i, a in enumerate(args)] + ["-o", str(out), "-q"]
         proc = subprocess.run(cmd, capture_output=True, text=True, cwd=self.tmp)
         if proc.returncode != 0:
             raise SystemExit(f"regenerate: run {name} failed ({proc.returncode}): {' '.join(cmd)}\n{proc.stderr}")
-        self.cache[name] = Result(kind, out, proc.stdout)
+        self.cache[name] = Result(kind, out, proc.stdout, medium)
         return self.cache[name]
 
 
@@ -207,12 +218,16 @@ def namespace(runner, run):
     return {"np": np, "r": runner.get(run), "run": runner.get, "abs": abs, "min": min, "max": max, "sum": sum}
 
 
-def value_of(spec, runner):
-    """The unformatted value of a one-number marker (None for blocks)."""
+def value_of(spec, runner, excess=False):
+    """The unformatted value of a one-number marker (None for blocks); excess: temperatures as excess over the
+    medium (Result.excess)."""
     words = spec.split(None, 2)
-    if words[0] == "budget" or len(words) < 3:
+    if words[0] == "budget" or len(words) < 3 or words[1] == "s":
         return None
-    return eval(words[2], namespace(runner, words[0]))
+    if not excess:
+        return eval(words[2], namespace(runner, words[0]))
+    get = lambda n: runner.get(n).excess()  # noqa: E731
+    return eval(words[2], {**namespace(runner, words[0]), "r": get(words[0]), "run": get})
 
 
 def render(spec, runner):
@@ -254,7 +269,9 @@ def main():
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("files", nargs="*")
     ap.add_argument("--write", action="store_true", help="rewrite the generated parts")
-    ap.add_argument("--refine", action="store_true", help="double every axial and radial cell count; print changes")
+    ap.add_argument("--refine", type=int, nargs="?", const=4, default=1, metavar="N",
+                    help="rerun with N x every cell count (default 4); check quoted numbers against it")
+    ap.add_argument("--tolerance", type=float, default=0.01, help="--refine: largest relative change (default 0.01)")
     ap.add_argument("--exe", default=str(ROOT / "build" / "thermorph"))
     a = ap.parse_args()
     files = [Path(f) for f in a.files] or [ROOT / "README.md"] + sorted((ROOT / "cases").glob("*.md"))
@@ -264,17 +281,24 @@ def main():
         for name, command in RUN_RE.findall(f.read_text()):
             runs[name] = command
     runner = Runner(Path(a.exe).resolve(), runs)
-    refined = Runner(Path(a.exe).resolve(), runs, refine=True) if a.refine else None
+    refined = Runner(Path(a.exe).resolve(), runs, refine=a.refine) if a.refine > 1 else None
     drift = 0
+    unconverged, checked = [], 0
     for f, text in texts.items():
         def substitute(m):
             nonlocal drift
             new = render(m.group(2), runner)
-            coarse = value_of(m.group(2), runner) if refined is not None else None
-            if isinstance(coarse, (int, float)):
-                fine = value_of(m.group(2), refined)
-                rel = abs(fine - coarse) / max(abs(coarse), 1e-300)
-                print(f"{f.name}: {m.group(2)}: {coarse:.6g} -> {fine:.6g} with doubled cells ({100 * rel:.2f} %)")
+            coarse = value_of(m.group(2), runner, excess=True) if refined is not None else None
+            if isinstance(coarse, (int, float)) and np.isfinite(coarse):
+                nonlocal checked
+                checked += 1
+                fine = value_of(m.group(2), refined, excess=True)
+                rel = abs(fine - coarse) / max(abs(fine), 1e-12)
+                flag = "ok " if rel <= a.tolerance else "OFF"
+                print(f"{flag} {100 * rel:6.2f} %  {f.name}: {m.group(2)}: {value_of(m.group(2), runner):.6g} "
+                      f"({a.refine}x: {value_of(m.group(2), refined):.6g})")
+                if rel > a.tolerance:
+                    unconverged.append(f"{f.name}: {m.group(2)}")
             if not same(m.group(3), new):
                 drift += 1
                 rel = f.relative_to(ROOT) if f.is_relative_to(ROOT) else f
@@ -287,8 +311,10 @@ def main():
         if a.write and out != text:
             f.write_text(out)
             print(f"rewrote {f}")
-    if a.refine:
-        return 0
+    if refined is not None:
+        print(f"{checked} quoted numbers checked against {a.refine}x cells (temperatures as excess over the medium "
+              f"at t = 0): {len(unconverged)} move by more than {100 * a.tolerance:g} %")
+        return 1 if unconverged else 0
     if drift and not a.write:
         print(f"{drift} generated part(s) drifted: run /usr/bin/python3 docs/regenerate.py --write and review the diff")
         return 1

@@ -668,6 +668,7 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   }
   c.run.atol = run.quantity("atol");
   c.run.maxStep = run.quantity("max_step");
+  c.run.gridRefinement = static_cast<int>(run.integer("grid_refinement"));
   if (c.run.outputInterval > c.run.duration)
     run.fail("output_interval", fmt::format("output_interval = {:g} s exceeds duration = {:g} s",
                                             c.run.outputInterval, c.run.duration));

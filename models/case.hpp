@@ -92,6 +92,7 @@ struct RunSpec {
   double rtol = 1e-6;              //!< relative tolerance [1]
   double atol = 1e-6;              //!< absolute tolerance on temperatures [K]
   double maxStep = 0.0;            //!< maximum step [s] (0: no limit)
+  int gridRefinement = 1;          //!< every cell count multiplied by this after the grid is resolved [1]
 };
 
 struct CirculationSpec {

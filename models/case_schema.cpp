@@ -27,6 +27,9 @@ constexpr std::array params = {
     Param{"run.atol", K::Quantity, "K", "1e-6 K", 1e-12, 1.0, false, "",
           "Absolute tolerance on temperatures (a temperature difference; give it in K)."},
     Param{"run.max_step", K::Quantity, "s", "0 s", 0, 1e9, false, "", "Largest integrator step; 0: no limit."},
+    Param{"run.grid_refinement", K::Integer, "", "1", 1, 64, false, "",
+          "Multiply every axial, layer and coat cell count (given or chosen automatically) by this factor: a grid "
+          "convergence check of any command, e.g. `--set run.grid_refinement=4` (see also `thermorph refine`)."},
 
     Param{"circulation", K::Table, "", "", 0, 0, false, "", "Blood properties and arterial supply."},
     Param{"circulation.blood_density", K::Quantity, "kg/m3", "1050 kg/m3", 0, 5000, true, "",

@@ -253,13 +253,17 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
 
 void resolveGrid(Case& c) {
   const std::vector<SegmentGridEstimate> estimates = estimateGrid(c);
+  // run.grid_refinement multiplies every count, given or chosen, before the checks (which then describe the grid
+  // actually used); the counts are then explicit, so the resolved case reproduces the refined run.
+  const int f = std::max(1, c.run.gridRefinement);
   for (std::size_t g = 0; g < c.segments.size(); ++g) {
     SegmentSpec& s = c.segments[g];
     const SegmentGridEstimate& e = estimates[g];
     // Axial cells.
     if (s.shape != Shape::Sphere) {
+      if (!s.axialAuto) s.axialCells *= f;
       if (s.axialAuto) {
-        s.axialCells = e.axialNeeded;
+        s.axialCells = e.axialNeeded * f;
         if (axialGridError(e, s.length, s.axialCells) > kGridWarnError)
           c.warnings.push_back(fmt::format(
               "grid: segment {}: {} axial cells (the automatic limit) leave an estimated error of {:.2g} % in its "
@@ -283,9 +287,10 @@ void resolveGrid(Case& c) {
     // Radial cells per layer, the coat last.
     auto radial = [&](std::size_t i, int& cells, bool automatic, const std::string& what, double thickness) {
       if (automatic) {
-        cells = e.layerNeeded[i];
+        cells = e.layerNeeded[i] * f;
         return;
       }
+      cells *= f;
       const double err = radialError(thickness / cells, e.layerScale[i]);
       if (err > kGridWarnError) {
         int need = cells;
@@ -301,7 +306,13 @@ void resolveGrid(Case& c) {
       radial(i, s.layers[i].cells, s.layers[i].cellsAuto, fmt::format("layer {} ({})", i, s.layers[i].tissue),
              s.layers[i].thickness * scale);
     if (s.coat) radial(s.layers.size(), s.coat->cells, s.coat->cellsAuto, "the coat", s.coat->thickness);
+    if (f > 1) {
+      s.axialAuto = false;
+      for (LayerSpec& l : s.layers) l.cellsAuto = false;
+      if (s.coat) s.coat->cellsAuto = false;
+    }
   }
+  c.run.gridRefinement = 1;  // applied: the counts above are the refined ones
 }
 
 }  // namespace thermorph
