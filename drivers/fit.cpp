@@ -205,14 +205,12 @@ class Model {
     // Which columns come from CVODES forward sensitivities (one run with sensitivities), which from central
     // differences (two runs each); all of these runs go to the threads together.
     std::vector<bool> forward(p, false);
-    bool anyForward = false;
     if (withJacobian && pb_.gradient != "fd") {
       try {
         std::vector<ParameterGradient> g = classifyParameters(pb_.caseText, pb_.casePath, pb_.overrides,
                                                               sensitivityParameters(xOf(u)));
         for (std::size_t j = 0; j < p; ++j) {
           forward[j] = g[j].method == GradientMethod::Forward;
-          anyForward = anyForward || forward[j];
           methods_[j] = gradientMethodName(g[j].method);
           reasons_[j] = g[j].reason;
         }
@@ -241,21 +239,35 @@ class Model {
         points.push_back(xOf(b));
       }
     std::vector<Evaluation> evals(points.size());
-    ForwardSensitivityResult sens;
     const std::vector<double> x = xOf(u);
-    // The run with sensitivities is the longest: it goes first.
-    const std::size_t first = anyForward ? 1 : 0;
-    parallelFor(points.size() + first, pb_.jobs, [&](std::size_t i) {
-      if (i >= first) {
-        evals[i - first] = evaluateModel(pb_, points[i - first]);
+    // The forward parameters in groups, one run with sensitivities per group and thread (round robin over the
+    // threads the fit may use); these runs are the longest, so they go first.
+    std::size_t groups = 0;
+    std::vector<std::size_t> groupOf(p, 0);
+    {
+      const unsigned hw = std::max(1u, std::thread::hardware_concurrency());
+      const std::size_t threads = pb_.jobs > 0 ? static_cast<std::size_t>(pb_.jobs) : hw;
+      std::size_t count = 0;
+      for (std::size_t j = 0; j < p; ++j) count += forward[j] ? 1 : 0;
+      groups = std::min(count, std::max<std::size_t>(1, threads));
+      std::size_t next = 0;
+      for (std::size_t j = 0; j < p; ++j)
+        if (forward[j]) groupOf[j] = next++ % std::max<std::size_t>(1, groups);
+    }
+    std::vector<ForwardSensitivityResult> sens(groups);
+    parallelFor(points.size() + groups, pb_.jobs, [&](std::size_t i) {
+      if (i >= groups) {
+        evals[i - groups] = evaluateModel(pb_, points[i - groups]);
         return;
       }
-      std::vector<SensitivityParameter> ps = sensitivityParameters(x);
-      sens = forwardSensitivities(pb_.caseText, pb_.casePath, pb_.overrides, ps, [&](const Body& body) {
-        return std::unique_ptr<OutputProbe>(new SamplerProbe(pb_.data, body));
-      });
+      std::vector<bool> select(p, false);
+      for (std::size_t j = 0; j < p; ++j) select[j] = forward[j] && groupOf[j] == i;
+      sens[i] = forwardSensitivities(
+          pb_.caseText, pb_.casePath, pb_.overrides, sensitivityParameters(x),
+          [&](const Body& body) { return std::unique_ptr<OutputProbe>(new SamplerProbe(pb_.data, body)); }, false,
+          select);
     });
-    runs_ += static_cast<long>(evals.size()) + (anyForward ? 1 : 0);
+    runs_ += static_cast<long>(evals.size() + groups);
     std::size_t k = 0;
     if (!cached) {
       if (!evals[0].ok) {
@@ -271,10 +283,11 @@ class Model {
     if (withJacobian) {
       const std::size_t rows = out.residuals.size();
       out.jacobian.assign(rows * p, 0.0);
-      if (anyForward && !sens.ok) {
-        out.error = sens.error;
-        return out;
-      }
+      for (const ForwardSensitivityResult& g : sens)
+        if (!g.ok) {
+          out.error = g.error;
+          return out;
+        }
       for (std::size_t c = 0; c < fdColumns.size(); ++c) {
         const std::size_t j = fdColumns[c];
         const Evaluation& a = evals[k + 2 * c];
@@ -293,7 +306,7 @@ class Model {
       // Forward columns: d r_i / d u_j = (d prediction_i / d x_j) / sd_i * dx_j/du_j; a prior row: dx/du / sd.
       for (std::size_t j = 0; j < p; ++j) {
         if (!forward[j]) continue;
-        const std::vector<double>& d = sens.derivatives[j];
+        const std::vector<double>& d = sens[groupOf[j]].derivatives[j];
         if (d.size() != t_.observed.size()) {
           out.error = "forward sensitivities gave no derivative for " + pb_.parameters[j].key;
           return out;

@@ -169,7 +169,8 @@ std::vector<ParameterGradient> classifyParameters(const std::string& caseText, c
 ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const std::string& casePath,
                                               const std::vector<std::string>& overrides,
                                               const std::vector<SensitivityParameter>& parameters,
-                                              const ProbeFactory& makeProbe, bool errorControl) {
+                                              const ProbeFactory& makeProbe, bool errorControl,
+                                              const std::vector<bool>& select) {
   ForwardSensitivityResult result;
   const std::size_t k = parameters.size();
   result.derivatives.resize(k);
@@ -179,6 +180,10 @@ ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const
     std::vector<Perturbed> perturbed(k);
     std::vector<std::size_t> forward;  // parameters with sensitivities, in order
     for (std::size_t j = 0; j < k; ++j) {
+      if (!select.empty() && !select[j]) {
+        result.methods.push_back({GradientMethod::FiniteDifference, "not selected"});
+        continue;
+      }
       result.methods.push_back(classifyOne(caseText, casePath, overrides, parameters, j, body, &perturbed[j]));
       if (result.methods.back().method == GradientMethod::Forward) forward.push_back(j);
     }

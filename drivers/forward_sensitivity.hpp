@@ -70,10 +70,13 @@ struct ForwardSensitivityResult {
 //! `errorControl`: include the sensitivities in CVODES' local error test (CVodeSetSensErrCon). Off (default),
 //! the run takes the plain run's steps and the sensitivities are those of the same discrete solution (agreement
 //! with central differences at tolerances 1e-11: about 1e-7 either way, tests/test_forward_sensitivity.cpp); on,
-//! their own truncation error is controlled too, at two to three times the steps.
+//! their own truncation error is controlled too, at two to three times the steps. `select` (empty: all) limits
+//! the sensitivities to some parameters (the others get no derivative and the reason "not selected"), so that
+//! groups of parameters can run on separate threads.
 ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const std::string& casePath,
                                               const std::vector<std::string>& overrides,
                                               const std::vector<SensitivityParameter>& parameters,
-                                              const ProbeFactory& probe, bool errorControl = false);
+                                              const ProbeFactory& probe, bool errorControl = false,
+                                              const std::vector<bool>& select = {});
 
 }  // namespace thermorph
