@@ -71,8 +71,16 @@ class Result:
             self.blood = f["body/blood_temperature"][...]
             self.skin = f["body/mean_skin_temperature"][...]
             self._body = {k: v[...] for k, v in f["body/heat_flow"].items()}
-            self._seg, self._surface, self._mean = {}, {}, {}
+            self._seg, self._surface, self._mean, self._layer, self._h = {}, {}, {}, {}, {}
+            self._cumulative = {k: v[...] for k, v in f["body/cumulative_heat"].items() if k != "time"}
             for name, g in f["segments"].items():
+                layers = [n.decode() if isinstance(n, bytes) else str(n) for n in g["layer"].attrs["layer_names"]]
+                index, temperature, volume = g["layer"][...], g["temperature"][...], g["volume"][...]
+                for i, layer in enumerate(layers):
+                    v = volume * (index == i)[None, :]
+                    self._layer[(name, layer)] = (temperature * v).sum(axis=(1, 2)) / v.sum()
+                if "convection_coefficient" in g:
+                    self._h[name] = g["convection_coefficient"][...]
                 self._seg[name] = {k: v[...] for k, v in g["heat_flow"].items()}
                 self._surface[name] = g["surface_temperature"][...].mean(axis=1)
                 vol = g["volume"][...]
@@ -114,6 +122,22 @@ class Result:
     def mean(self, segment):
         """Volume-mean tissue temperature of a segment [degC] (coat included when the file stores it)."""
         return self._mean[segment]
+
+    def layer_mean(self, segment, layer):
+        """Volume-mean temperature of one tissue layer of a segment [degC], e.g. layer_mean("trunk", "blubber")."""
+        return self._layer[(segment, layer)]
+
+    def h(self, segment):
+        """Area-weighted mean convection coefficient of a segment's faces [W/(m2 K)]."""
+        return self._h[segment]
+
+    def cumulative(self, channel):
+        """Energy exchanged by a channel since t = 0, whole body [J]."""
+        return self._cumulative[channel]
+
+    def between(self, values, start, end):
+        """The outputs of a series with start < t <= end (seconds or text like "7 min")."""
+        return np.asarray(values)[(self.t > seconds(start)) & (self.t <= seconds(end))]
 
     def arterial(self, segment):
         return self._seg[segment]["_arterial"]
