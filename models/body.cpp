@@ -954,7 +954,17 @@ void Body::addEndFaces(const SegmentBuild& b, SegmentMesh& m, bool attached) {
     CrossSection ce = crossSection(s, b.scaleAt(end == 0 ? 0.0 : b.length));
     for (int ir = 0; ir < b.nr; ++ir) {
       double section = sectionArea(s.shape, ce.bounds[ir], ce.bounds[ir + 1], s.width);
-      network_.faces.push_back({m.node(iz, ir), b.tissue[ir]->conductivity * section / (0.5 * b.dz), section});
+      if (ir < b.firstCoat && s.coat && s.surface.endCoat) {
+        // Tissue under the end coat: the half cell in series with a flat coat layer of the coat's thickness,
+        // R = c / (k A) (plane wall, Incropera et al. eq. 3.6), dry or wet with the medium.
+        const double tissueR = 0.5 * b.dz / (b.tissue[ir]->conductivity * section);
+        auto conductance = [&](double coatK) { return 1.0 / (tissueR + s.coat->thickness / (coatK * section)); };
+        network_.faces.push_back({m.node(iz, ir), conductance(b.tissue[b.firstCoat]->conductivity), section});
+        recordCoat(b, true, network_.faces.size() - 1, conductance(b.conductivity(b.firstCoat, false)),
+                   conductance(b.conductivity(b.firstCoat, true)));
+      } else {
+        network_.faces.push_back({m.node(iz, ir), b.tissue[ir]->conductivity * section / (0.5 * b.dz), section});
+      }
       if (ir >= b.firstCoat)
         recordCoat(b, true, network_.faces.size() - 1, b.conductivity(ir, false) * section / (0.5 * b.dz),
                    b.conductivity(ir, true) * section / (0.5 * b.dz));

@@ -129,6 +129,10 @@ constexpr std::array params = {
     Param{"segments[].surface", K::Table, "", "", 0, 0, false, "", "Surface properties of the segment."},
     Param{"segments[].surface.ends", K::Choice, "", "exposed", 0, 0, false, "exposed|insulated",
           "Cylinder and cone end faces: exchange heat with the medium, or insulated."},
+    Param{"segments[].surface.end_coat", K::Choice, "", "on", 0, 0, false, "on|off",
+          "Whether a coated segment's coat also covers its exposed end faces: on, the tissue of each end is under "
+          "a flat coat layer of the coat's thickness (series resistance thickness / (k A), no heat capacity; "
+          "wet conductivity in water); off, the tissue ends are bare."},
     Param{"segments[].surface.convection", K::Quantity, "W/(m2 K)", "", 0, 1e5, false, "",
           "\"correlation\" or a fixed coefficient for this segment; overrides [environment] convection."},
     Param{"segments[].surface.correlation", K::Choice, "", "standard", 0, 0, false, "standard|mitchell",

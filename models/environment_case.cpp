@@ -175,6 +175,8 @@ SurfaceSpec readSurface(const TableView& segment, Shape shape) {
   SurfaceSpec s;
   s.ends = surface.choice("ends") == "insulated" ? EndCondition::Insulated : EndCondition::Exposed;
   if (shape == Shape::Sphere && surface.has("ends")) surface.fail("ends", "a sphere has no end faces");
+  s.endCoat = surface.choice("end_coat") == "on";
+  if (shape == Shape::Sphere && surface.has("end_coat")) surface.fail("end_coat", "a sphere has no end faces");
   s.convection = readConvection(surface);
   s.correlation =
       surface.choice("correlation") == "mitchell" ? ConvectionCorrelation::Mitchell : ConvectionCorrelation::Standard;
@@ -526,6 +528,7 @@ toml::table environmentToml(const EnvironmentSpec& e) {
 toml::table surfaceToml(const SurfaceSpec& s, Shape shape) {
   toml::table surface;
   if (shape != Shape::Sphere) surface.insert("ends", s.ends == EndCondition::Insulated ? "insulated" : "exposed");
+  if (shape != Shape::Sphere) surface.insert("end_coat", s.endCoat ? "on" : "off");
   if (s.convection) {
     if (s.convection->fixed) surface.insert("convection", s.convection->coefficient);
     else surface.insert("convection", "correlation");

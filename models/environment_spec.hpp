@@ -26,6 +26,7 @@ struct ConvectionSetting {
 //! whose default depends on the convection setting (see EnvironmentModel).
 struct SurfaceSpec {
   EndCondition ends = EndCondition::Exposed;     //!< cylinder and cone end faces
+  bool endCoat = true;                          //!< a coated segment's coat covers its exposed end faces
   std::optional<ConvectionSetting> convection;  //!< per-segment override of [environment] convection
   std::optional<double> emissivity;             //!< long-wave emissivity [1]; nullopt: default rule
   double solarAbsorptivity = 0.7;               //!< [1]
