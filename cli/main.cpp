@@ -33,8 +33,8 @@ std::string defaultOutput(const std::string& casePath) {
 void describe(const Body& body) {
   const Case& c = body.spec();
   fmt::print("{}\n{}\n", c.title, std::string(c.title.size(), '='));
-  fmt::print("{:<14}{:<9}{:>4}{:>28}{:>11}{:>13}{:>10}{:>10}{:>7}{:>14}\n", "segment", "shape", "n", "dimensions [cm]",
-             "area [cm2]", "volume [cm3]", "mass [g]", "S/V [1/m]", "cells", "blood mL/min");
+  fmt::print("{:<14}{:<9}{:>6}{:>4}{:>28}{:>11}{:>13}{:>10}{:>10}{:>7}{:>14}\n", "segment", "shape", "count", "n",
+             "dimensions [cm]", "area [cm2]", "volume [cm3]", "mass [g]", "S/V [1/m]", "cells", "blood mL/min");
   double area = 0, volume = 0, mass = 0;
   long cells = 0;
   for (std::size_t i = 0; i < body.segments().size(); ++i) {
@@ -54,18 +54,19 @@ void describe(const Body& body) {
     }
     if (coat > 0) dims += fmt::format(" +coat {:.2g}", 100 * coat);
     long n = static_cast<long>(m.nz) * m.nr;
-    fmt::print("{:<14}{:<9}{:>4}{:>28}{:>11.4g}{:>13.4g}{:>10.4g}{:>10.4g}{:>7}{:>14.4g}\n", m.name, shapeName(m.shape),
-               m.weight, dims, m.area * 1e4, m.tissueVolume * 1e6, m.tissueMass * 1e3, m.area / m.tissueVolume, n,
+    fmt::print("{:<14}{:<9}{:>6}{:>4}{:>28}{:>11.4g}{:>13.4g}{:>10.4g}{:>10.4g}{:>7}{:>14.4g}\n", m.name,
+               shapeName(m.shape), s.count, m.weight, dims, m.area * 1e4, m.tissueVolume * 1e6, m.tissueMass * 1e3, m.area / m.tissueVolume, n,
                m.bloodFlow * 6e7);
     area += m.weight * m.area;
     volume += m.weight * m.tissueVolume;
     mass += m.weight * m.tissueMass;
     cells += n;
   }
-  fmt::print("{:<14}{:<9}{:>4}{:>28}{:>11.4g}{:>13.4g}{:>10.4g}{:>10.4g}{:>7}{:>14.4g}\n", "body", "", "all",
+  fmt::print("{:<14}{:<9}{:>6}{:>4}{:>28}{:>11.4g}{:>13.4g}{:>10.4g}{:>10.4g}{:>7}{:>14.4g}\n", "body", "", "", "all",
              "", area * 1e4, volume * 1e6, mass * 1e3, area / volume, body.network().nodes.size(),
              body.totalBloodFlow() * 6e7);
-  fmt::print("n: copies simulated once (count). Volumes and masses exclude the coat; area is the exposed outer surface\n"
+  fmt::print("count: the segment's own count; n: copies in the body, its count times the counts of all its ancestors\n"
+             "(legs x2 carrying feet x2: 4 feet), each simulated once. Volumes and masses exclude the coat; area is the exposed outer surface\n"
              "(coat included, minus what attached segments cover); blood is the arterial inflow of one copy,\n"
              "children included. Body cells include blood nodes.\n");
   fmt::print("Body mass {:.4g} kg, blood volume {:.4g} mL, blood flow {:.4g} of cardiac output {:.4g} mL/min, basal "
@@ -185,6 +186,7 @@ int main(int argc, char** argv) {
     RunSummary summary = run->parsed() ? runTransient(body, options) : runSteady(body, options);
     printBudget(body, summary, stdout);
     for (const std::string& w : body.environment().warnings()) fmt::print(stderr, "warning: {}\n", w);
+    for (const std::string& w : summary.runWarnings) fmt::print(stderr, "warning: {}\n", w);
     if (summary.stopped) {
       fmt::print(stderr, "stopped by {}.\nPartial results up to t = {:g} s kept in {} (marked incomplete).\n",
                  stopSignalName(), summary.finalTime, summary.outputPath);

@@ -95,7 +95,10 @@ constexpr std::array params = {
     Param{"segments[].parent", K::Text, "", "", 0, 0, false, "",
           "Segment this one is attached to (omit for the root; exactly one root)."},
     Param{"segments[].count", K::Integer, "", "1", 1, 1000, false, "",
-          "Number of identical copies (2 for a pair of ears): simulated once, heat flows multiplied."},
+          "Number of identical copies per copy of the parent (2 for a pair of ears): simulated once, heat flows "
+          "multiplied. Counts multiply down the tree: a segment stands for its own count times the counts of all its "
+          "ancestors (legs count 2 carrying feet count 2: four feet); `thermorph check` shows this number (column n) "
+          "and the budget, masses and areas use it."},
     Param{"segments[].attach_position", K::Number, "", "0.5", 0, 1, false, "",
           "Where along the parent's length the segment attaches (0 proximal, 1 distal)."},
     Param{"segments[].attach_tissue", K::Text, "", "muscle", 0, 0, false, "",
