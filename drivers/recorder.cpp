@@ -49,7 +49,7 @@ std::vector<std::string> segmentNames(const Body& body) {
 
 Recorder::Recorder(const Body& body, const NetworkSystem& system, const RunOptions& options,
                    std::uint64_t expectedPoints)
-    : body_(body), system_(system), observer_(options.observer), budget_(body.network(), system) {
+    : body_(body), system_(system), observer_(options.observer), budget_(body.network(), system), freezing_(body) {
   if (options.output.empty()) return;
   file_ = std::make_unique<ResultsFile>(options.output);
   ResultsFile& f = *file_;
@@ -66,6 +66,7 @@ Recorder::Recorder(const Body& body, const NetworkSystem& system, const RunOptio
 void Recorder::record(double t, std::span<const double> y, double initialStored, RunSummary& summary) {
   std::vector<double>& faces = faceTemperatures_;
   budget_.compute(t, y, initialStored, summary, faces);
+  freezing_.observe(t, y);
   if (observer_) observer_(t, y.first(system_.nodeCount()), summary);
   if (!file_) return;
   ResultsFile& f = *file_;
@@ -79,6 +80,9 @@ void Recorder::finish(RunSummary& summary, bool steady) {
   // Every warning of the run: the body's (at build) and the environment's (validity ranges, while running).
   summary.warnings = body_.warnings();
   for (const std::string& w : body_.environment().warnings()) summary.warnings.push_back(w);
+  // Found while running (tissue below 0 degC): stored with the others, in result files and sweep rows.
+  summary.runWarnings = freezing_.warnings();
+  for (const std::string& w : summary.runWarnings) summary.warnings.push_back(w);
   if (!file_) return;
   ResultsFile& f = *file_;
   const SolverStatistics& s = summary.statistics;

@@ -17,6 +17,7 @@
 #include "drivers/record_budget.hpp"
 #include "drivers/record_environment.hpp"
 #include "drivers/record_fields.hpp"
+#include "drivers/record_freezing.hpp"
 #include "drivers/results.hpp"
 #include "drivers/simulation.hpp"
 
@@ -44,6 +45,7 @@ class Recorder {
   BudgetRecorder budget_;
   std::unique_ptr<EnvironmentRecorder> environment_;
   std::unique_ptr<FieldRecorder> fields_;
+  FreezeWatch freezing_;                  //!< tissue below 0 degC: warnings of the run (record_freezing.hpp)
   std::vector<double> faceTemperatures_;  //!< [K], from the budget, used by the other parts
   std::string incompletePath_;
 };

@@ -44,7 +44,8 @@ struct RunSummary {
   double throughput = 0.0;       //!< gross heat exchanged, for the relative error [J]
   std::vector<double> finalState;     //!< node temperatures [K]
   std::vector<double> controls;       //!< controller states at the last output [1]
-  std::vector<std::string> warnings;
+  std::vector<std::string> warnings;     //!< every warning of the run: body, environment, then runWarnings
+  std::vector<std::string> runWarnings;  //!< found while running (tissue below 0 degC), also in `warnings`
 };
 
 //! Integrate the case from its initial state for run.duration; output every run.output_interval.

@@ -18,14 +18,16 @@ namespace thermorph {
 // ---- validity warnings ------------------------------------------------------------
 
 namespace {
+// One log per thread: a run (load, build, integrate, collect) happens on one thread, and EnvironmentModel resets
+// the log when it is built, so each run reports its own range violations once, also when a sweep runs several
+// at a time on other threads (a process-wide log gave a warning to whichever run collected first, once per
+// process).
 struct WarningLog {
-  std::mutex mutex;
-  std::set<std::string, std::less<>> issued;  // "correlation|parameter"
+  std::vector<std::pair<std::string, std::string>> issued;  // (correlation, parameter) reported since the reset
   std::vector<std::string> pending;
-  std::atomic<unsigned> generation{0};  // bumped by resetValidityWarnings
 };
 WarningLog& warningLog() {
-  static WarningLog log;
+  thread_local WarningLog log;
   return log;
 }
 }  // namespace
@@ -33,42 +35,25 @@ WarningLog& warningLog() {
 bool checkValidity(const ValidityRange& range, double value) {
   if (range.contains(value)) return false;
   WarningLog& log = warningLog();
-  // Fast path without the lock: pairs this thread has already reported since the last reset.
-  thread_local unsigned seenGeneration = ~0u;
-  thread_local std::vector<std::pair<std::string, std::string>> seen;
-  const unsigned generation = log.generation.load(std::memory_order_acquire);
-  if (seenGeneration != generation) {
-    seen.clear();
-    seenGeneration = generation;
-  }
-  for (const auto& [correlation, parameter] : seen)
+  for (const auto& [correlation, parameter] : log.issued)
     if (correlation == range.correlation && parameter == range.parameter) return true;
-  seen.emplace_back(range.correlation, range.parameter);
-
-  std::string key = fmt::format("{}|{}", range.correlation, range.parameter);
-  std::lock_guard lock(log.mutex);
-  if (log.issued.insert(std::move(key)).second) {
-    const std::string unit = range.unit.empty() ? std::string() : fmt::format(" {}", range.unit);
-    log.pending.push_back(fmt::format("{}: {} = {:.6g}{} outside the validity range [{:.6g}, {:.6g}]{}",
-                                      range.correlation, range.parameter, value, unit, range.min, range.max, unit));
-  }
+  log.issued.emplace_back(range.correlation, range.parameter);
+  const std::string unit = range.unit.empty() ? std::string() : fmt::format(" {}", range.unit);
+  log.pending.push_back(fmt::format("{}: {} = {:.6g}{} outside the validity range [{:.6g}, {:.6g}]{}",
+                                    range.correlation, range.parameter, value, unit, range.min, range.max, unit));
   return true;
 }
 
 std::vector<std::string> takeValidityWarnings() {
-  WarningLog& log = warningLog();
-  std::lock_guard lock(log.mutex);
   std::vector<std::string> out;
-  out.swap(log.pending);
+  out.swap(warningLog().pending);
   return out;
 }
 
 void resetValidityWarnings() {
   WarningLog& log = warningLog();
-  std::lock_guard lock(log.mutex);
   log.issued.clear();
   log.pending.clear();
-  log.generation.fetch_add(1, std::memory_order_release);
 }
 
 // ---- table interpolation --------------------------------------------------------

@@ -1,6 +1,6 @@
 #pragma once
 //! Properties of the surrounding media (air, fresh water, sea water), moist-air
-//! relations and the process-wide validity-warning facility used by media,
+//! relations and the per-thread validity-warning log used by media,
 //! convection and surface-exchange correlations.
 #include <limits>
 #include <string>
@@ -42,14 +42,14 @@ struct ValidityRange {
 };
 
 //! True when `value` is outside `range`; then records a warning the first time this
-//! (correlation, parameter) pair is seen in the process. Thread-safe.
+//! (correlation, parameter) pair is seen on this thread since the last reset (a log per thread).
 bool checkValidity(const ValidityRange& range, double value);
 
-//! Warnings recorded since the last call, each (correlation, parameter, value, range)
-//! reported once per process. Thread-safe.
+//! Warnings recorded on this thread since the last call, each (correlation, parameter, value, range)
+//! reported once between resets.
 std::vector<std::string> takeValidityWarnings();
 
-//! Forget which warnings were issued (for tests, or before a new case in the same process).
+//! Forget which warnings were issued on this thread (EnvironmentModel does this for every new case).
 void resetValidityWarnings();
 
 // ---- fluid properties ------------------------------------------------------------
