@@ -24,9 +24,11 @@
 #include "models/case.hpp"
 #include "drivers/forward_sensitivity.hpp"
 #include "drivers/observed.hpp"
+#include "test_lumped_sphere.hpp"
 #include "drivers/simulation.hpp"
 
 using namespace thermorph;
+using thermorph::testing::lumpedSphere;
 
 namespace {
 
@@ -111,27 +113,6 @@ ForwardSensitivityResult forward(const std::string& text, const std::vector<std:
   return r;
 }
 
-const char* lumpedSphere = R"toml(
-title = "lumped sphere"
-[run]
-duration = "600 s"
-output_interval = "10 s"
-initial_temperature = "40 degC"
-[tissues.lump]
-base = "muscle"
-conductivity = "1000 W/(m K)"
-density = "1 kg/m3"
-specific_heat = "100 J/(kg K)"
-metabolic_heat = "0 W/m3"
-perfusion = "0 1/s"
-[[segments]]
-name = "ball"
-shape = "sphere"
-layers = [{ tissue = "lump", thickness = "2 cm", cells = 1 }]
-[environment]
-temperature = "10 degC"
-convection = "0.01 W/(m2 K)"
-)toml";
 
 }  // namespace
 
