@@ -40,6 +40,11 @@ double sectionArea(Shape shape, double a, double b, double width) {
   return shape == Shape::Plate ? 2.0 * width * (b - a) : pi * (b * b - a * a);
 }
 
+//! Radius of a sphere child's contact patch on its parent [m]: as given, else the smaller tissue radius.
+double contactRadius(const SegmentSpec& s, const SegmentSpec& parent) {
+  return s.contactRadius.value_or(std::min(s.tissueRadius(), parent.tissueRadius()));
+}
+
 }  // namespace
 
 //! Radial cell boundaries of one cross-section: tissue layers scaled by `scale`, then the coat.
@@ -98,6 +103,13 @@ Body::Body(const Case& c) : case_(c) {
     int nz = ps.shape == Shape::Sphere ? 1 : ps.axialCells;
     coveredArea_[p].resize(static_cast<std::size_t>(nz), 0.0);
     double outer = s.tissueRadius() + (s.coat ? s.coat->thickness : 0.0);
+    if (s.shape == Shape::Sphere) {
+      // A sphere child sits on a contact patch, a disc of radius a cut from the parent (below) and from the
+      // sphere's own surface (one copy).
+      outer = contactRadius(s, ps);
+      coveredArea_[g].resize(1, 0.0);
+      coveredArea_[g][0] += pi * outer * outer;
+    }
     double section = s.shape == Shape::Plate ? 2.0 * s.width * outer : pi * outer * outer;
     if (nz == 1) {
       coveredArea_[p][0] += s.count * section;
@@ -393,6 +405,16 @@ void Body::attachChildren() {
     int first = 0;
     for (int l = 0; l < layer; ++l) first += ps.layers[static_cast<std::size_t>(l)].cells;
     int pr = first + ps.layers[static_cast<std::size_t>(layer)].cells / 2;
+    if (s.shape == Shape::Sphere) {
+      // Across the contact patch (a disc of radius a) from the sphere's outermost tissue cell into the parent:
+      // the spreading resistance of an isothermal disc on a semi-infinite medium, R = 1 / (4 k a) (Incropera et
+      // al. 2007, Table 4.1 case 10, S = 2D; from memory), with k of that tissue; the coat does not cover it.
+      const double a = contactRadius(s, ps);
+      const auto skin = static_cast<std::size_t>(cm.skinCell);
+      const TissueProperties& t = case_.tissues.at(cm.layerNames[static_cast<std::size_t>(cm.layer[skin])]);
+      network_.conductances.push_back({cm.node(0, cm.skinCell), pm.node(k, pr), 4.0 * t.conductivity * a, conductionChannel_});
+      continue;
+    }
     double dz = s.length / cm.nz;
     // The child's proximal cross-section (a cone's layers are at their stated thickness there).
     const std::vector<double> bounds = crossSection(s, 1.0).bounds;

@@ -319,6 +319,13 @@ SegmentSpec readSegment(const CaseReader& reader, const Case& c, const toml::tab
   auto rejectKey = [&](std::string_view key, const char* why) {
     if (t.has(key)) t.fail(key, fmt::format("\"{}\" does not apply to a {} ({})", key, shape, why));
   };
+  if (t.has("contact_radius")) {
+    if (s.shape != Shape::Sphere) t.fail("contact_radius", "contact_radius is for a sphere attached to a parent");
+    s.contactRadius = t.quantity("contact_radius");
+    if (*s.contactRadius > s.tissueRadius())
+      t.fail("contact_radius", fmt::format("contact_radius = {:g} m is larger than the sphere's tissue radius {:g} m",
+                                           *s.contactRadius, s.tissueRadius()));
+  }
   if (s.shape == Shape::Sphere) {
     rejectKey("length", "a sphere has only a radius");
     rejectKey("axial_cells", "a sphere is resolved radially only");
@@ -526,6 +533,8 @@ void validateTree(const CaseReader& reader, const toml::array& segArray, const C
     if (s.parent.empty()) {
       roots.push_back(s.name);
       if (s.count != 1) t.fail("count", "the root segment cannot be repeated (count must be 1)");
+      if (t.has("contact_radius")) t.fail("contact_radius", "contact_radius is for a sphere attached to a parent; "
+                                                            "the root has none");
       continue;
     }
     auto it = index.find(s.parent);
@@ -534,8 +543,6 @@ void validateTree(const CaseReader& reader, const toml::array& segArray, const C
       for (auto& [n, _] : index) names.push_back(n);
       t.fail("parent", fmt::format("unknown parent \"{}\" (segments: {})", s.parent, fmt::join(names, ", ")));
     }
-    if (s.shape == Shape::Sphere)
-      t.fail("parent", "a sphere can only be the root segment; attach a head or body part as a cylinder or cone");
     parentOf[i] = it->second;
     // The default attach_tissue (muscle) falls back to the parent's innermost layer; a named one must exist.
     if (t.has("attach_tissue")) {
@@ -903,6 +910,7 @@ std::string resolvedCaseToml(const Case& c) {
       t.insert("count", s.count);
       t.insert("attach_position", s.attachPosition);
       t.insert("attach_tissue", s.attachTissue);
+      if (s.contactRadius) t.insert("contact_radius", *s.contactRadius);
     }
     t.insert("vessels", toml::table{{"countercurrent_conductance", s.vessels.countercurrentConductance},
                                     {"shunt_flow_max", s.vessels.shuntFlowMax},

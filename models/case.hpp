@@ -79,6 +79,7 @@ struct SegmentSpec {
   std::vector<LayerSpec> layers;
   std::optional<CoatSpec> coat;
   SurfaceSpec surface;
+  std::optional<double> contactRadius;  //!< sphere child: radius of the contact patch on the parent [m]
 
   //! Outer tissue radius or half-thickness (coat excluded) [m].
   double tissueRadius() const;

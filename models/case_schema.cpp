@@ -99,6 +99,12 @@ constexpr std::array params = {
           "multiplied. Counts multiply down the tree: a segment stands for its own count times the counts of all its "
           "ancestors (legs count 2 carrying feet count 2: four feet); `thermorph check` shows this number (column n) "
           "and the budget, masses and areas use it."},
+    Param{"segments[].contact_radius", K::Quantity, "m", "", 0, 10, true, "",
+          "A sphere attached to a parent (a head on a neck): radius a of its contact patch, a disc cut from the "
+          "parent's surface and from the sphere's; across it the parent's attachment cell and the sphere's outermost "
+          "tissue cell conduct through the spreading resistance 1 / (4 k a) of a disc on a semi-infinite medium "
+          "(Incropera et al. 2007, Table 4.1 case 10; k of that tissue). Default: the smaller of the sphere's and the "
+          "parent's tissue radius (plate: half-thickness); at most the sphere's tissue radius."},
     Param{"segments[].attach_position", K::Number, "", "0.5", 0, 1, false, "",
           "Where along the parent's length the segment attaches (0 proximal, 1 distal)."},
     Param{"segments[].attach_tissue", K::Text, "", "muscle", 0, 0, false, "",
