@@ -99,7 +99,7 @@ std::vector<double> flowsAt(const Body& body, std::span<const double> T, double 
   return flows;
 }
 
-// An invented seal-like diver of about 80 kg in 8 degC sea water: trunk, head (brain), a pair of fore-flippers
+// An invented diving mammal of about 80 kg in 8 degC sea water: trunk, head (brain), a pair of fore-flippers
 // with shunts and a countercurrent exchanger. Every tissue has Q10 = 1, so metabolic heat is exactly the basal
 // rate times the multipliers whatever the temperatures.
 constexpr double flipperLength = 0.25, flipperWidth = 0.12, flipperSkin = 0.002;  // [m]
