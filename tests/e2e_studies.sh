@@ -59,7 +59,7 @@ with h5py.File(sys.argv[2]) as f:
     assert labels == ["sunrise"], labels
     assert "shivering" in f["body/heat_flow"], "no shivering channel"
     leg = f["segments/leg"]
-    assert leg["arterial_temperature"].shape[1] == 6
+    assert leg["arterial_temperature"].shape[1] >= 6  # axial cells chosen automatically
     # The exchanger precools the arterial blood along the leg (countercurrent exchange; common practice, no source).
     artery = leg["arterial_temperature"][0]
     assert np.all(np.diff(artery) < 0.0), artery
