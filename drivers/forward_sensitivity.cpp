@@ -6,6 +6,7 @@
 #include <cstdlib>
 #include <numeric>
 
+#include <Eigen/Sparse>
 #include <fmt/format.h>
 
 #include "models/case.hpp"
@@ -115,10 +116,6 @@ ParameterGradient classifyOne(const std::string& caseText, const std::string& ca
     g.reason = "a run setting";
     return g;
   }
-  if (base.spec().run.initial == InitialCondition::Steady) {
-    g.reason = "the run starts from a steady state (KINSOL), whose derivative is not carried";
-    return g;
-  }
   const double h = stepOf(p, buildStep);
   Perturbed q;
   try {
@@ -150,10 +147,54 @@ ParameterGradient classifyOne(const std::string& caseText, const std::string& ca
   return g;
 }
 
+//! Implicit function theorem at a steady state y [nodes + controls] of `body` (surroundings of t = 0, interval 0
+//! set on every body): F(y, p) = 0 gives dy/dp = -(dF/dy)^{-1} dF/dp, one vector per parameter [nodes + controls].
+//! dF/dy is the assembly's exact steady Jacobian, factorised once by Eigen's sparse LU; dF/dp is
+//! NetworkSystem::parameterDerivatives in steady mode (heat rates, not divided by capacities).
+std::vector<std::vector<double>> steadyDerivatives(const Body& body, std::span<const double> y,
+                                                   std::span<const ParameterNetworks> networks) {
+  NetworkSystem steady(body.network(), NetworkSystem::Mode::Steady);
+  steady.freezeTime(0.0);
+  const Index n = steady.size();
+  const SparsePattern& pattern = steady.pattern();
+  std::vector<double> values(pattern.nonzeros());
+  steady.jacobian(0.0, y, values);
+  using Matrix = Eigen::SparseMatrix<double, Eigen::ColMajor, int>;
+  std::vector<Eigen::Triplet<double, int>> entries;
+  entries.reserve(values.size());
+  for (Index col = 0; col < n; ++col)
+    for (Index p = pattern.columnStart[col]; p < pattern.columnStart[col + 1]; ++p)
+      entries.emplace_back(static_cast<int>(pattern.rowIndex[p]), static_cast<int>(col), values[p]);
+  Matrix J(static_cast<int>(n), static_cast<int>(n));
+  J.setFromTriplets(entries.begin(), entries.end());
+  Eigen::SparseLU<Matrix> lu;
+  lu.compute(J);
+  if (lu.info() != Eigen::Success)
+    throw SolverError("steady-state sensitivities: the Jacobian at the steady state is singular (" + lu.lastErrorMessage() + ")");
+  std::vector<double> residual(n);
+  steady.evaluate(0.0, y, residual);
+  std::vector<std::vector<double>> dF(networks.size(), std::vector<double>(n, 0.0));
+  std::vector<std::span<double>> outs(dF.begin(), dF.end());
+  steady.parameterDerivatives(0.0, y, residual, networks, outs);
+  std::vector<std::vector<double>> ds(networks.size(), std::vector<double>(n, 0.0));
+  for (std::size_t j = 0; j < networks.size(); ++j) {
+    const Eigen::VectorXd b = -Eigen::Map<const Eigen::VectorXd>(dF[j].data(), static_cast<Eigen::Index>(n));
+    const Eigen::VectorXd x = lu.solve(b);
+    if (lu.info() != Eigen::Success || !x.allFinite())
+      throw SolverError("steady-state sensitivities: the linear solve failed");
+    std::copy(x.data(), x.data() + n, ds[j].begin());
+  }
+  return ds;
+}
+
 }  // namespace
 
 const char* gradientMethodName(GradientMethod m) {
-  return m == GradientMethod::Forward ? "cvodes" : "finite differences";
+  switch (m) {
+    case GradientMethod::Forward: return "cvodes";
+    case GradientMethod::Steady: return "implicit function";
+    default: return "finite differences";
+  }
 }
 
 std::vector<ParameterGradient> classifyParameters(const std::string& caseText, const std::string& casePath,
@@ -191,6 +232,22 @@ ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const
     const Index nodes = system.nodeCount();
     const Index states = nodes + system.controlCount();
     std::vector<double> y0 = initialState(body, system);
+    // A steady initial state (as runTransient finds it) and its sensitivities by the implicit function theorem.
+    const bool steadyStart = c.run.initial == InitialCondition::Steady;
+    std::vector<std::vector<double>> steadyS;
+    if (steadyStart) {
+      body.setInterval(0);
+      std::vector<double> ys = steadyState(body, std::span<const double>(y0).first(states));
+      std::copy(ys.begin(), ys.end(), y0.begin());
+      std::vector<ParameterNetworks> nets;
+      for (std::size_t j : forward) {
+        perturbed[j].plus->setInterval(0);
+        perturbed[j].minus->setInterval(0);
+        nets.push_back({&perturbed[j].plus->network(), &perturbed[j].minus->network(), perturbed[j].step,
+                        perturbed[j].surface});
+      }
+      steadyS = steadyDerivatives(body, ys, nets);
+    }
     const double initialStored = system.storedHeat(y0);
 
     // The perturbed networks' systems (their flows at the base state, for the outputs' explicit dependence).
@@ -202,15 +259,23 @@ ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const
     SensitivityProblem problem;
     problem.count = forward.size();
     problem.errorControl = errorControl;
-    for (std::size_t j : forward) {
+    for (std::size_t f = 0; f < forward.size(); ++f) {
+      const std::size_t j = forward[f];
       Perturbed& q = perturbed[j];
       sides[j].plus = std::make_unique<NetworkSystem>(q.plus->network(), NetworkSystem::Mode::Transient);
       sides[j].minus = std::make_unique<NetworkSystem>(q.minus->network(), NetworkSystem::Mode::Transient);
+      // The initial states at p +- h (their stored heat carries the initial state's dependence on p into the
+      // stored-heat change): uniform, or the steady state moved by +- h/2 its sensitivity (exact: linear in T).
       std::vector<double> yp = initialState(*q.plus, *sides[j].plus), ym = initialState(*q.minus, *sides[j].minus);
+      if (steadyStart)
+        for (Index i = 0; i < states; ++i) {
+          yp[i] = y0[i] + 0.5 * q.step * steadyS[f][i];
+          ym[i] = y0[i] - 0.5 * q.step * steadyS[f][i];
+        }
       sides[j].plusStored = sides[j].plus->storedHeat(yp);
       sides[j].minusStored = sides[j].minus->storedHeat(ym);
       std::vector<double> s0(system.size(), 0.0);
-      for (Index i = 0; i < states; ++i) s0[i] = (yp[i] - ym[i]) / q.step;
+      for (Index i = 0; i < states; ++i) s0[i] = steadyStart ? steadyS[f][i] : (yp[i] - ym[i]) / q.step;
       problem.initial.push_back(std::move(s0));
       problem.scale.push_back(parameters[j].value != 0.0 ? std::abs(parameters[j].value) : 1.0);
     }
@@ -301,6 +366,87 @@ ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const
       d.resize(result.values.size());
       for (std::size_t i = 0; i < d.size(); ++i)
         d[i] = (up[i] - down[i]) / (2.0 * probes[j].e) + (plus[i] - minus[i]) / perturbed[j].step;
+    }
+    result.ok = true;
+  } catch (const std::exception& e) {
+    result.ok = false;
+    result.error = e.what();
+  }
+  return result;
+}
+
+ForwardSensitivityResult steadySensitivities(const std::string& caseText, const std::string& casePath,
+                                             const std::vector<std::string>& overrides,
+                                             const std::vector<SensitivityParameter>& parameters,
+                                             const ProbeFactory& makeProbe, const std::vector<bool>& select) {
+  ForwardSensitivityResult result;
+  const std::size_t k = parameters.size();
+  result.derivatives.resize(k);
+  try {
+    const Body body(loadCaseFromString(caseText, casePath, withValues(overrides, parameters)));
+    std::vector<Perturbed> perturbed(k);
+    std::vector<std::size_t> exact;  // parameters with derivatives, in order
+    for (std::size_t j = 0; j < k; ++j) {
+      if (!select.empty() && !select[j]) {
+        result.methods.push_back({GradientMethod::FiniteDifference, "not selected"});
+        continue;
+      }
+      ParameterGradient g = classifyOne(caseText, casePath, overrides, parameters, j, body, &perturbed[j]);
+      if (g.method == GradientMethod::Forward) {
+        g.method = GradientMethod::Steady;
+        exact.push_back(j);
+      }
+      result.methods.push_back(g);
+    }
+    // The steady state as runSteady finds it (surroundings at t = 0, interval 0), then dy/dp.
+    body.setInterval(0);
+    std::vector<ParameterNetworks> networks;
+    for (std::size_t j : exact) {
+      perturbed[j].plus->setInterval(0);
+      perturbed[j].minus->setInterval(0);
+      networks.push_back({&perturbed[j].plus->network(), &perturbed[j].minus->network(), perturbed[j].step,
+                          perturbed[j].surface});
+    }
+    NetworkSystem system(body.network(), NetworkSystem::Mode::Transient);
+    const Index states = system.nodeCount() + system.controlCount();
+    std::vector<double> y = initialState(body, system);
+    const std::vector<double> steady = steadyState(body, std::span<const double>(y).first(states), &result.statistics);
+    std::copy(steady.begin(), steady.end(), y.begin());
+    std::fill(y.begin() + static_cast<std::ptrdiff_t>(states), y.end(), 0.0);
+    const std::vector<std::vector<double>> ds = steadyDerivatives(body, steady, networks);
+
+    // Outputs: the probe at the steady state, as runSteady records it (one output at t = 0, no stored change);
+    // their derivatives by the chain rule of forwardSensitivities (state shifted by +- e ds, perturbed bodies).
+    RunSummary summary;
+    auto observe = [&](OutputProbe& probe, const NetworkSystem& sys, std::span<const double> state) {
+      summaryAt(sys, 0.0, state, sys.storedHeat(state), summary);
+      probe.observe(0.0, state.first(sys.nodeCount()), summary);
+    };
+    std::unique_ptr<OutputProbe> base = makeProbe(body);
+    observe(*base, system, y);
+    result.values = base->values();
+    std::vector<double> shifted(y.size());
+    for (std::size_t s = 0; s < exact.size(); ++s) {
+      const std::size_t j = exact[s];
+      const double e = stepOf(parameters[j], stateStep);
+      std::vector<double> up, down;
+      for (double sign : {1.0, -1.0}) {
+        shifted = y;
+        for (Index i = 0; i < states; ++i) shifted[i] = y[i] + sign * e * ds[s][i];
+        std::unique_ptr<OutputProbe> probe = makeProbe(body);
+        observe(*probe, system, shifted);
+        (sign > 0 ? up : down) = probe->values();
+      }
+      const NetworkSystem plusSystem(perturbed[j].plus->network(), NetworkSystem::Mode::Transient);
+      const NetworkSystem minusSystem(perturbed[j].minus->network(), NetworkSystem::Mode::Transient);
+      std::unique_ptr<OutputProbe> plus = makeProbe(*perturbed[j].plus), minus = makeProbe(*perturbed[j].minus);
+      observe(*plus, plusSystem, y);
+      observe(*minus, minusSystem, y);
+      const std::vector<double> pv = plus->values(), mv = minus->values();
+      std::vector<double>& d = result.derivatives[j];
+      d.resize(result.values.size());
+      for (std::size_t i = 0; i < d.size(); ++i)
+        d[i] = (up[i] - down[i]) / (2.0 * e) + (pv[i] - mv[i]) / perturbed[j].step;
     }
     result.ok = true;
   } catch (const std::exception& e) {

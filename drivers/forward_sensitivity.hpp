@@ -12,6 +12,13 @@
 //! controller laws, run settings, a steady initial state) is reported as needing finite differences, with the
 //! reason.
 //!
+//! Steady states (KINSOL) get exact sensitivities too, by the implicit function theorem (common practice, no
+//! source; e.g. any calculus text on implicit functions): the steady residual F(s, p) = 0 (node heat balances,
+//! controller equations) gives ds/dp = -(dF/ds)^{-1} dF/dp, with dF/ds the assembly's exact Jacobian (steady
+//! mode) and dF/dp the same chain rule as above, solved with a sparse LU (Eigen). This is the whole derivative of
+//! a `--steady` local sensitivity (steadySensitivities), and the initial sensitivity s(0) of a transient run with
+//! `run.initial = "steady"` (forwardSensitivities), from which CVODES carries it on.
+//!
 //! Outputs are whatever a probe computes from the run's outputs (an ObservationSampler for fits, a
 //! MetricCollector for local sensitivities); their derivatives follow from the state sensitivities by the chain
 //! rule: d g / d p = (g(y + e s) - g(y - e s)) / 2e + (g_{p+h}(y) - g_{p-h}(y)) / 2h, exact for outputs linear
@@ -42,8 +49,11 @@ struct SensitivityParameter {
   double value = 0.0;
 };
 
-enum class GradientMethod { Forward, FiniteDifference };
-const char* gradientMethodName(GradientMethod m);  //!< "cvodes" or "finite differences"
+//! Forward: CVODES forward sensitivities (a steady initial state by the implicit function theorem); Steady: the
+//! implicit function theorem at a steady state (no integration); FiniteDifference: central differences of runs.
+enum class GradientMethod { Forward, FiniteDifference, Steady };
+const char* gradientMethodName(GradientMethod m);  //!< "cvodes", "finite differences" or "implicit function"
+inline bool isExact(GradientMethod m) { return m != GradientMethod::FiniteDifference; }
 
 struct ParameterGradient {
   GradientMethod method = GradientMethod::FiniteDifference;
@@ -78,5 +88,14 @@ ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const
                                               const std::vector<SensitivityParameter>& parameters,
                                               const ProbeFactory& probe, bool errorControl = false,
                                               const std::vector<bool>& select = {});
+
+//! The steady state of the case (text, overrides, then every parameter at its value; KINSOL as runSteady finds
+//! it) and the exact derivatives of the probe's values there, ds/dp = -(dF/ds)^{-1} dF/dp for the parameters
+//! that enter the network as coefficients (methods: Steady), none for the others (FiniteDifference, with the
+//! reason). The probe observes the one output at t = 0, as in runSteady. Never throws for a model failure.
+ForwardSensitivityResult steadySensitivities(const std::string& caseText, const std::string& casePath,
+                                             const std::vector<std::string>& overrides,
+                                             const std::vector<SensitivityParameter>& parameters,
+                                             const ProbeFactory& probe, const std::vector<bool>& select = {});
 
 }  // namespace thermorph

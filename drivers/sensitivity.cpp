@@ -54,7 +54,7 @@ std::string valueText(const FitParameter& p, double v) {
 //! The sweep's metric collector as a probe of the forward-sensitivity driver.
 class MetricProbe : public OutputProbe {
  public:
-  MetricProbe(const Body& body, const SweepPlan& plan) : collector_(body, plan.window, plan.thresholds, false) {}
+  MetricProbe(const Body& body, const SweepPlan& plan) : collector_(body, plan.window, plan.thresholds, plan.steady) {}
   void observe(double t, std::span<const double> y, const RunSummary& s) override { collector_.observe(t, y, s); }
   std::vector<double> values() const override { return collector_.values(); }
 
@@ -95,31 +95,33 @@ int runSensitivityCommand(const SensitivityOptions& o) {
     morris = morrisDesign(k, n, o.levels, o.seed);
     unit = morris.points;
   }
-  // Local: which parameters get CVODES forward sensitivities (transient runs, coefficient parameters), which
-  // central differences of whole runs on the sweep engine.
+  // Local: which parameters get exact derivatives (coefficient parameters: CVODES forward sensitivities of a
+  // transient run, the implicit function theorem at a steady state), which central differences of whole runs on
+  // the sweep engine.
   std::vector<ParameterGradient> gradients(k);
   std::vector<std::size_t> rowOf(k, 0);  // local, finite differences: the design row of p (1 + step)
   if (method == "local") {
     std::vector<SensitivityParameter> sp;
     for (const FitParameter& p : params) sp.push_back({p.key, p.unit, p.start});
-    if (o.steady) {
-      for (ParameterGradient& g : gradients) g.reason = "a steady state (KINSOL), whose derivative is not carried";
-    } else if (o.gradient == "fd") {
+    if (o.gradient == "fd") {
       for (ParameterGradient& g : gradients) g.reason = "--gradient fd";
     } else {
       gradients = classifyParameters(caseText, o.casePath, o.overrides, sp);
+      if (o.steady)
+        for (ParameterGradient& g : gradients)
+          if (g.method == GradientMethod::Forward) g.method = GradientMethod::Steady;
     }
     // Base, then for each finite-difference parameter p (1 + step) and p (1 - step).
     std::vector<double> base;
     for (std::size_t j = 0; j < k; ++j) {
       const FitParameter& p = params[j];
-      if (p.start == 0.0 && gradients[j].method == GradientMethod::FiniteDifference)
+      if (p.start == 0.0 && !isExact(gradients[j].method))
         throw CaseError(fmt::format("--param {}: the base value is 0; a relative step needs a non-zero value", p.key));
       base.push_back(p.start);
     }
     values.push_back(base);
     for (std::size_t j = 0; j < k; ++j) {
-      if (gradients[j].method == GradientMethod::Forward) continue;
+      if (isExact(gradients[j].method)) continue;
       rowOf[j] = values.size();
       for (double sign : {1.0, -1.0}) {
         std::vector<double> v = base;
@@ -163,24 +165,26 @@ int runSensitivityCommand(const SensitivityOptions& o) {
   const int code = runSweepCommand(sweep);
   if (code != 0 || launcherRank() != 0) return code;
 
-  // Local: one run with CVODES forward sensitivities for the coefficient parameters, its metrics by name.
+  // Local: one run with CVODES forward sensitivities (a steady state: the implicit function theorem) for the
+  // coefficient parameters, its metrics by name.
   ForwardSensitivityResult forward;
   std::vector<std::string> forwardNames;
   bool anyForward = false;
-  for (const ParameterGradient& g : gradients) anyForward = anyForward || g.method == GradientMethod::Forward;
+  for (const ParameterGradient& g : gradients) anyForward = anyForward || isExact(g.method);
   if (method == "local" && anyForward) {
     const SweepPlan plan = makeSweepPlan(sweep);
     std::vector<SensitivityParameter> sp;
     for (const FitParameter& p : params) sp.push_back({p.key, p.unit, p.start});
-    forward = forwardSensitivities(caseText, o.casePath, o.overrides, sp, [&](const Body& body) {
-      return std::unique_ptr<OutputProbe>(new MetricProbe(body, plan));
-    });
+    const ProbeFactory probe = [&](const Body& body) { return std::unique_ptr<OutputProbe>(new MetricProbe(body, plan)); };
+    forward = o.steady ? steadySensitivities(caseText, o.casePath, o.overrides, sp, probe)
+                       : forwardSensitivities(caseText, o.casePath, o.overrides, sp, probe);
     if (!forward.ok) {
-      fmt::print(stderr, "error: the run with forward sensitivities failed: {}\n", forward.error);
+      fmt::print(stderr, "error: the {} failed: {}\n",
+                 o.steady ? "steady state with sensitivities" : "run with forward sensitivities", forward.error);
       return 3;
     }
     const Body body(loadCaseFromString(caseText, o.casePath, o.overrides));
-    for (const MetricColumn& column : metricColumns(body, plan.thresholds, false)) forwardNames.push_back(column.name);
+    for (const MetricColumn& column : metricColumns(body, plan.thresholds, o.steady)) forwardNames.push_back(column.name);
   }
 
   // Indices from the table.
@@ -281,7 +285,7 @@ int runSensitivityCommand(const SensitivityOptions& o) {
         const auto named = std::find(forwardNames.begin(), forwardNames.end(), metrics[q]);
         for (std::size_t j = 0; j < k; ++j) {
           double derivative = nan;
-          if (gradients[j].method == GradientMethod::Forward) {
+          if (isExact(gradients[j].method)) {
             if (named != forwardNames.end())
               derivative = forward.derivatives[j][static_cast<std::size_t>(named - forwardNames.begin())];
           } else {
@@ -318,7 +322,8 @@ int runSensitivityCommand(const SensitivityOptions& o) {
       w.attribute("/sensitivity", "base_samples", static_cast<double>(n));
       w.attribute("/sensitivity", "bootstrap", static_cast<double>(o.bootstrap));
       w.attribute("/sensitivity", "estimators",
-                  "Saltelli et al. (2010) Table 2: S1 = mean(fB (fABi - fA)) / V, ST (Jansen 1999) = mean((fA - "
+                  "Saltelli et al. (2010) Table 2 (b) with fB centred: S1 = mean((fB - mean f) (fABi - fA)) / V, ST "
+                  "(Jansen 1999; Table 2 (f)) = mean((fA - "
                   "fABi)^2) / (2 V); A, B from a 2k-dimensional Sobol' sequence (Boost.Random); 95 % bootstrap "
                   "percentile intervals over base rows");
     } else if (method == "morris") {
@@ -338,7 +343,8 @@ int runSensitivityCommand(const SensitivityOptions& o) {
       w.doubles("/sensitivity/base", e, {}, "see units");
       w.attribute("/sensitivity", "step", o.step);
       w.attribute("/sensitivity", "estimators",
-                  "CVODES forward sensitivities for parameters that enter the network as coefficients (one run), "
+                  "CVODES forward sensitivities for parameters that enter the network as coefficients (one run; a "
+                  "steady state: ds/dp = -J^-1 dF/dp, the implicit function theorem), "
                   "central differences of whole runs at p (1 +- step) for the rest (see gradient_method); normalised: "
                   "d ln y / d ln p with temperatures in kelvin; semi-normalised: p dy/dp");
       std::vector<std::string> methods, reasons;

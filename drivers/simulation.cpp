@@ -66,6 +66,10 @@ std::vector<double> steadyTemperatures(const Body& body, std::span<const double>
 
 }  // namespace
 
+std::vector<double> steadyState(const Body& body, std::span<const double> guess, SolverStatistics* statistics) {
+  return steadyTemperatures(body, guess, statistics);
+}
+
 RunSummary runTransient(const Body& body, const RunOptions& options) {
   const Case& c = body.spec();
   NetworkSystem system(body.network(), NetworkSystem::Mode::Transient);

@@ -52,6 +52,10 @@ struct RunSummary {
 RunSummary runTransient(const Body& body, const RunOptions& options);
 //! Steady state of the case (KINSOL), written with one time point.
 RunSummary runSteady(const Body& body, const RunOptions& options);
+//! The steady state (node temperatures and controller states) of the surroundings and physiology at t = 0 from
+//! `guess` [nodes + controls], as runSteady and a run with `initial = "steady"` find it: pseudo-time relaxation,
+//! then KINSOL. Throws SolverError when it fails.
+std::vector<double> steadyState(const Body& body, std::span<const double> guess, SolverStatistics* statistics = nullptr);
 //! Per-segment heat budget table, whole-body totals and the energy-balance error.
 void printBudget(const Body& body, const RunSummary& summary, std::FILE* out);
 

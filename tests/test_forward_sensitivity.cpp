@@ -279,3 +279,212 @@ TEST_CASE("Forward sensitivities of a whole body agree with central differences 
     fmt::print("{}\n", line);
   }
 }
+
+// ---- steady states: ds/dp = -J^{-1} dF/dp (implicit function theorem; common practice, no source) ----------
+
+namespace {
+
+//! The probe's outputs at the steady state of the case (runSteady, the one output at t = 0).
+std::vector<double> plainSteady(const std::string& text, std::vector<std::string> overrides,
+                                const std::vector<SensitivityParameter>& ps, const ObservedData& data) {
+  for (const SensitivityParameter& p : ps) overrides.push_back(overrideText(p, p.value));
+  Body body(loadCaseFromString(text, "test.toml", overrides));
+  ObservationSampler sampler(data, body);
+  RunOptions o;
+  o.quiet = true;
+  o.observer = [&](double t, std::span<const double> y, const RunSummary& s) { sampler.observe(t, y, s); };
+  RunSummary r = runSteady(body, o);
+  REQUIRE(r.complete);
+  return sampler.predictions();
+}
+
+std::vector<double> centralDifferenceSteady(const std::string& text, const std::vector<std::string>& overrides,
+                                            std::vector<SensitivityParameter> ps, std::size_t j,
+                                            const ObservedData& data, double step) {
+  const double v = ps[j].value, h = step * std::abs(v);
+  ps[j].value = v + h;
+  std::vector<double> up = plainSteady(text, overrides, ps, data);
+  ps[j].value = v - h;
+  std::vector<double> down = plainSteady(text, overrides, ps, data);
+  std::vector<double> d(up.size());
+  for (std::size_t i = 0; i < d.size(); ++i) d[i] = (up[i] - down[i]) / (2 * h);
+  return d;
+}
+
+ForwardSensitivityResult steadyExact(const std::string& text, const std::vector<std::string>& overrides,
+                                     const std::vector<SensitivityParameter>& ps, const ObservedData& data) {
+  ForwardSensitivityResult r = steadySensitivities(text, "test.toml", overrides, ps, [&](const Body& body) {
+    return std::unique_ptr<OutputProbe>(new SamplerProbe(data, body));
+  });
+  INFO(r.error);
+  REQUIRE(r.ok);
+  return r;
+}
+
+const std::string& quadrupedText() {
+  static const std::string text = [] {
+    std::ifstream in(std::string(THERMORPH_SOURCE_DIR) + "/cases/quadruped.toml");
+    std::stringstream ss;
+    ss << in.rdbuf();
+    return ss.str();
+  }();
+  return text;
+}
+
+}  // namespace
+
+TEST_CASE("Steady-state sensitivity of a coated cylinder's heat loss matches the series resistances",
+          "[sensitivity][steady]") {
+  // A core held at the arterial temperature T_a by strong perfusion (fixed arterial supply) inside a coat (r1 to
+  // r2, k_c) with a fixed convection coefficient h to air at T_inf. Its steady heat loss through the coat is
+  //   Q = (T_a - T_inf) / (R_p + ln(r2 / r1) / (2 pi k_c L) + 1 / (h 2 pi r2 L))
+  // (series resistances of a cylindrical shell and convection: Incropera et al. 2007, eqs. 3.32/3.33), with
+  // R_p = 1 / (w rho_b c_b V) the perfusion's own resistance: a well-mixed core loses Q = w rho_b c_b V (T_a - T)
+  // to the blood (Pennes 1948; the core conducts 2 10^4 times better than the coat, so it is nearly uniform). So
+  //   dQ/dk_c = Q^2 ln(r2 / r1) / (2 pi k_c^2 L (T_a - T_inf)),  dQ/dh = Q^2 / (h^2 2 pi r2 L (T_a - T_inf)).
+  const double r1 = 0.01, r2 = 0.02, L = 0.1, kc = 0.05, h = 10.0, tA = 37.0, tInf = 10.0;
+  const double w = 1.0, rhoB = 5000.0, cB = 10000.0;  // 1/s, kg/m3, J/(kg K): the largest the schema allows
+  const std::string text = fmt::format(R"toml(
+title = "coated cylinder at a held core temperature"
+[run]
+initial = "steady"
+[circulation]
+fixed_arterial_temperature = "{} degC"
+blood_density = "{} kg/m3"
+blood_specific_heat = "{} J/(kg K)"
+[tissues.core]
+base = "muscle"
+conductivity = "1000 W/(m K)"
+metabolic_heat = "0 W/m3"
+perfusion = "{} 1/s"
+q10 = 1
+[tissues.fur]
+conductivity = "{} W/(m K)"
+[[segments]]
+name = "limb"
+shape = "cylinder"
+length = "{} m"
+axial_cells = 1
+layers = [{{ tissue = "core", thickness = "{} m", cells = 4 }}]
+coat = {{ material = "fur", thickness = "{} m", cells = 100 }}
+surface = {{ ends = "insulated" }}
+[environment]
+temperature = "{} degC"
+convection = "{} W/(m2 K)"
+)toml",
+                                       tA, rhoB, cB, w, kc, L, r1, r2 - r1, tInf, h);
+  const std::vector<SensitivityParameter> ps = {{"tissues.fur.conductivity", "W/(m K)", kc},
+                                                {"environment.convection", "W/(m2 K)", h}};
+  const ObservedData data = outputsAt({"body.heat_flow.convection", "body.core_temperature"}, 1.0, 0.0);
+  ForwardSensitivityResult r = steadyExact(text, {}, ps, data);
+  REQUIRE(r.methods[0].method == GradientMethod::Steady);
+  REQUIRE(r.methods[1].method == GradientMethod::Steady);
+  const double pi = 3.14159265358979323846;
+  const double rp = 1.0 / (w * rhoB * cB * pi * r1 * r1 * L);
+  const double rc = std::log(r2 / r1) / (2 * pi * kc * L), rh = 1.0 / (h * 2 * pi * r2 * L);
+  const double q = (tA - tInf) / (rp + rc + rh);
+  const double dQdk = q * q * std::log(r2 / r1) / (2 * pi * kc * kc * L * (tA - tInf));
+  const double dQdh = q * q / (h * h * 2 * pi * r2 * L * (tA - tInf));
+  // The convection channel is positive into the body: -Q.
+  const double loss = -r.values[0], dk = -r.derivatives[0][0], dh = -r.derivatives[1][0];
+  fmt::print("coated cylinder, steady heat loss: Q = {:.8g} W (series resistances {:.8g}, relative {:.2e}); "
+             "dQ/dk_c = {:.8g} ({:.8g}, {:.2e}); dQ/dh = {:.8g} ({:.8g}, {:.2e}); R_p/R = {:.1e}\n",
+             loss, q, loss / q - 1, dk, dQdk, dk / dQdk - 1, dh, dQdh, dh / dQdh - 1, rp / (rp + rc + rh));
+  // What remains is the grid's (4 core and 100 coat cells: Q is 1.9e-5 low, 1.3e-5 with 400 coat cells) and the
+  // core's own small conduction resistance.
+  CHECK(std::abs(loss / q - 1) < 1e-4);
+  CHECK(std::abs(dk / dQdk - 1) < 1e-4);
+  CHECK(std::abs(dh / dQdh - 1) < 1e-4);
+  // And against central differences of whole steady solves (step 1e-4): the same discrete problem, to 1e-5.
+  for (std::size_t j = 0; j < ps.size(); ++j) {
+    const std::vector<double> fd = centralDifferenceSteady(text, {}, ps, j, data, 1e-4);
+    for (std::size_t i = 0; i < fd.size(); ++i) {
+      fmt::print("coated cylinder, steady d{}/d{}: implicit {:.10g}, central differences {:.10g} (relative {:.2e})\n",
+                 data.series[i].quantity.name, ps[j].key, r.derivatives[j][i], fd[i], r.derivatives[j][i] / fd[i] - 1);
+      CHECK(std::abs(r.derivatives[j][i] / fd[i] - 1) < 1e-5);
+    }
+  }
+}
+
+TEST_CASE("Steady-state sensitivities of a whole body agree with central differences of steady solves",
+          "[sensitivity][steady]") {
+  // The example quadruped in 5 degC air and a 2 m/s wind (blood pool, countercurrent exchangers, shunts, Q10
+  // metabolism, controllers, convection and radiation correlations): the implicit-function derivatives against
+  // central differences of whole KINSOL solves. Each solve stops at its residual tolerance, which puts noise of
+  // order 1e-10 K / step into a difference quotient: at steps 1e-4 to 1e-3 of the value, plain central
+  // differences of the small derivatives (the ear exchanger's effect on the whole body's convection, 5e-4 in
+  // d ln y / d ln p) scatter by 1e-5 to 1e-4. So the reference is Richardson's extrapolation of central differences
+  // at steps h and 2h, (4 D(h) - D(2h)) / 3 (truncation error O(h^4); Richardson 1911, common practice), with
+  // h = 2e-2 of the value, where the noise is negligible.
+  const std::vector<std::string> overrides = {"environment.temperature=5 degC", "environment.speed=2 m/s"};
+  const std::vector<SensitivityParameter> ps = {{"tissues.fur.conductivity", "W/(m K)", 0.04},
+                                                {"segments.ears.vasomotor.shunt", "", 0.25},
+                                                {"segments.ears.vessels.countercurrent_conductance", "W/K", 0.05},
+                                                {"body.activity", "", 1.0},
+                                                {"tissues.muscle.perfusion", "1/s", 6e-4},
+                                                {"environment.temperature", "degC", 5.0},
+                                                {"segments.ears.length", "cm", 10.0}};
+  const ObservedData data =
+      outputsAt({"body.core_temperature", "body.mean_skin_temperature", "segments.ears.temperature.skin@0.5",
+                 "body.metabolic_rate", "body.heat_flow.convection", "segments.ears.surface_temperature"},
+                1.0, 0.0);
+  const auto start = std::chrono::steady_clock::now();
+  ForwardSensitivityResult r = steadyExact(quadrupedText(), overrides, ps, data);
+  const double seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+  fmt::print("quadruped steady state with {} implicit-function sensitivities: {:.3f} s\n", ps.size() - 1, seconds);
+  double worst = 0.0;
+  for (std::size_t j = 0; j < ps.size(); ++j) {
+    if (ps[j].key == "segments.ears.length") {
+      INFO(r.methods[j].reason);
+      CHECK(r.methods[j].method == GradientMethod::FiniteDifference);
+      CHECK(r.derivatives[j].empty());
+      continue;
+    }
+    INFO(ps[j].key << ": " << r.methods[j].reason);
+    REQUIRE(r.methods[j].method == GradientMethod::Steady);
+    const std::vector<double> d1 = centralDifferenceSteady(quadrupedText(), overrides, ps, j, data, 2e-2);
+    const std::vector<double> d2 = centralDifferenceSteady(quadrupedText(), overrides, ps, j, data, 4e-2);
+    std::vector<double> fd(d1.size());
+    for (std::size_t i = 0; i < fd.size(); ++i) fd[i] = (4 * d1[i] - d2[i]) / 3;
+    std::string line = fmt::format("quadruped steady, d/d {}:", ps[j].key);
+    for (std::size_t i = 0; i < fd.size(); ++i) {
+      const double error = std::abs(r.derivatives[j][i] - fd[i]) / std::max(std::abs(fd[i]), 1e-12);
+      worst = std::max(worst, error);
+      line += fmt::format(" {} {:.1e}", data.series[i].quantity.name, error);
+      CHECK(error < 1e-5);
+    }
+    fmt::print("{}\n", line);
+  }
+  fmt::print("quadruped steady: largest relative difference from central differences {:.2e}\n", worst);
+}
+
+TEST_CASE("A run from a steady initial state carries its implicit-function sensitivities through CVODES",
+          "[sensitivity][steady][cvodes]") {
+  // The quadruped settles at 15 degC air (initial = "steady"), then a cold front at 10 min: 5 degC and 4 m/s. The
+  // initial sensitivities come from the implicit function theorem, CVODES carries them on; against central
+  // differences of whole runs (steady start included) at tolerances 1e-11.
+  const std::string text =
+      quadrupedText() + "\n[[events]]\nat = \"10 min\"\nenvironment = { temperature = \"5 degC\", speed = \"4 m/s\" }\n";
+  const std::vector<std::string> overrides = {"run.rtol=1e-11", "run.atol=1e-11 K", "run.duration=30 min",
+                                              "run.output_interval=5 min", "run.initial=steady",
+                                              "environment.temperature=15 degC"};
+  const std::vector<SensitivityParameter> ps = {{"tissues.fur.conductivity", "W/(m K)", 0.04},
+                                                {"body.activity", "", 1.0},
+                                                {"segments.ears.vessels.countercurrent_conductance", "W/K", 0.05}};
+  const ObservedData data = outputsAt(
+      {"body.core_temperature", "segments.ears.temperature.skin@0.5", "body.heat_flow.convection"}, 300.0, 1800.0);
+  ForwardSensitivityResult r = forward(text, overrides, ps, data);
+  const std::size_t per = data.series[0].times.size();
+  for (std::size_t j = 0; j < ps.size(); ++j) {
+    INFO(ps[j].key << ": " << r.methods[j].reason);
+    REQUIRE(r.methods[j].method == GradientMethod::Forward);
+    const std::vector<double> fd = centralDifference(text, overrides, ps, j, data, 1e-4);
+    std::string line = fmt::format("quadruped from a steady start, d/d {}:", ps[j].key);
+    for (std::size_t s = 0; s < data.series.size(); ++s) {
+      const double error = relativeError(r.derivatives[j], fd, s * per, (s + 1) * per);
+      line += fmt::format(" {} {:.1e}", data.series[s].quantity.name, error);
+      CHECK(error < 1e-5);
+    }
+    fmt::print("{}\n", line);
+  }
+}
