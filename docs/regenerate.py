@@ -11,7 +11,8 @@ Options: --exe PATH (default build/thermorph), FILE... (default README.md and ca
 
 A generated part of a Markdown file sits between two HTML comments (invisible when rendered):
 
-    <!-- gen-run NAME: run cases/x.toml --set KEY=VALUE -->   a named run (run | steady | sweep + arguments)
+    <!-- gen-run NAME: run cases/x.toml --set KEY=VALUE -->   a named run (run | steady | sweep | fit + arguments)
+    <!-- gen-run NAME: catch [TAG] -->                           the Catch2 tests of TAG (build/tests/thermorph_tests)
     <!-- gen:NAME FMT EXPR -->36.72<!-- /gen -->                 one number: EXPR on run NAME, formatted by FMT
     <!-- gen:budget NAME -->                                      a block: the heat budget printed by run NAME
     ...
@@ -19,7 +20,10 @@ A generated part of a Markdown file sits between two HTML comments (invisible wh
 
 EXPR is a Python expression over `r`, the run's results (see `Result` below: r.core, r.flow("convection",
 "bill"), r.exchange("bill"), r.at(values, "2 h"), r.control("panting"), ...; for a sweep, r.rows, r.pick(METRIC, length=12) and r.pick_exchange(SEGMENT, ...)),
-with numpy as `np`; run("OTHER") gives another named run's results. FMT is a format specification (`.2f`, `.3g`, `d`) or `s` for a string.
+with numpy as `np`; run("OTHER") gives another named run's results. A fit run (`fit CASE --data FILE --free ...`) is
+the fitted run plus r.value(KEY), r.se(KEY), r.lower(KEY), r.upper(KEY), r.correlation(KEY1, KEY2), r.rmse(SERIES)
+and r.fit_attrs (aic, bic, residual_variance, runs, ...). A `catch [TAG]` run is the tests' printed lines
+(r.stdout) with r.coverage_study() for the coverage study of tests/test_fit.cpp. FMT is a format specification (`.2f`, `.3g`, `d`) or `s` for a string.
 Run names are shared by every scanned file, so a note can use a run defined in another.
 
 Check: the text between the markers must match what the runs give now. Numbers may differ by one unit in their
@@ -61,6 +65,18 @@ class Result:
 
     def __init__(self, kind, path, stdout, medium=0.0):
         self.kind, self.stdout, self.medium = kind, stdout, medium
+        if kind == "catch":
+            return
+        if kind == "fit":
+            with h5py.File(path, "r") as f:
+                g = f["fit"]
+                names = [n.decode() if isinstance(n, bytes) else str(n) for n in g["parameters/name"][...]]
+                self._fit = {k: dict(zip(names, g["parameters"][k][...])) for k in
+                             ("value", "standard_error", "lower_95", "upper_95", "start")}
+                self._names = names
+                self._correlation = g["correlation"][...]
+                self._rmse = {k: float(np.sqrt(np.mean(v["residual"][...] ** 2))) for k, v in g["series"].items()}
+                self.fit_attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in g.attrs.items()}
         if kind == "sweep":
             with open(path.with_suffix(".csv"), newline="") as fh:
                 self.rows = [{k.split(" [")[0]: _number(v) for k, v in row.items()} for row in csv.DictReader(fh)]
@@ -94,6 +110,8 @@ class Result:
         """The same results with every temperature [degC] replaced by its excess over the medium at t = 0 [K]: the
         scale on which a temperature's grid error is judged (a drop of 1.4 K is not 1 % of 35 degC)."""
         out = copy.copy(self)
+        if self.kind == "catch":
+            return out
         m = self.medium
         if self.kind == "sweep":
             out.rows = [{k: (v - m if "temperature" in k and not k.startswith("time_to") and isinstance(v, float)
@@ -171,6 +189,45 @@ class Result:
         end = next((i for i, line in enumerate(lines) if line.startswith("Energy balance")), len(lines) - 1)
         return "\n".join(lines[start:end + 1])
 
+    # --- fits ---
+    def value(self, key):
+        """Fitted value of a free parameter (its --free key) in the parameter's unit."""
+        return float(self._fit["value"][key])
+
+    def se(self, key):
+        return float(self._fit["standard_error"][key])
+
+    def lower(self, key):
+        return float(self._fit["lower_95"][key])
+
+    def upper(self, key):
+        return float(self._fit["upper_95"][key])
+
+    def correlation(self, a, b):
+        return float(self._correlation[self._names.index(a), self._names.index(b)])
+
+    def rmse(self, series):
+        """Root mean square of the raw residuals (model - observed) of one observed series."""
+        return self._rmse[series]
+
+    # --- Catch2 output ---
+    def coverage_study(self):
+        """The coverage study's printed lines: {"draws", "ratio": [per parameter], "coverage": [...], "worst_z"}."""
+        out = {"ratio": [], "coverage": [], "draws": None, "worst_z": None}
+        for line in self.stdout.splitlines():
+            m = re.match(r"parameter (\d+): mean SE / observed SD = ([\d.]+), coverage of 95 % intervals ([\d.]+) "
+                         r"\((\d+) draws\)", line)
+            if m:
+                out["ratio"].append(float(m.group(2)))
+                out["coverage"].append(float(m.group(3)))
+                out["draws"] = int(m.group(4))
+            m = re.match(r"largest \|estimate - truth\| / SE over the first 10 draws: ([\d.]+)", line)
+            if m:
+                out["worst_z"] = float(m.group(1))
+        if out["draws"] is None:
+            raise SystemExit("regenerate: no coverage-study lines in the tests' output")
+        return out
+
     # --- sweeps ---
     def _row(self, where):
         """The one sweep row whose parameters match `where` (a key matches a parameter ending in .KEY)."""
@@ -225,11 +282,21 @@ class Runner:
             raise SystemExit(f"regenerate: no run named {name!r} (define it with <!-- gen-run {name}: run CASE -->)")
         args = shlex.split(self.runs[name])
         kind, case = args[0], args[1]
+        if kind == "catch":
+            tests = self.exe.parent / "tests" / "thermorph_tests"
+            proc = subprocess.run([str(tests)] + args[1:], capture_output=True, text=True, cwd=self.tmp)
+            if proc.returncode != 0:
+                raise SystemExit(f"regenerate: run {name} failed ({proc.returncode}): {tests} {' '.join(args[1:])}\n"
+                                 f"{proc.stdout[-2000:]}")
+            self.cache[name] = Result(kind, None, proc.stdout)
+            return self.cache[name]
         medium = medium_temperature(case, args)
         if self.refine > 1:
             args = args + ["--set", f"run.grid_refinement={self.refine}"]
         out = self.tmp / f"{name}.h5"
-        cmd = [str(self.exe)] + [str(ROOT / a) if i == 1 else a for i, a in enumerate(args)] + ["-o", str(out), "-q"]
+        # The case, and any data file given by a path in the repository (fit --data cases/x.csv), from ROOT.
+        cmd = [str(self.exe)] + [str(ROOT / a) if i == 1 or (i > 1 and a.startswith("cases/") and (ROOT / a).is_file())
+                                 else a for i, a in enumerate(args)] + ["-o", str(out), "-q"]
         proc = subprocess.run(cmd, capture_output=True, text=True, cwd=self.tmp)
         if proc.returncode != 0:
             raise SystemExit(f"regenerate: run {name} failed ({proc.returncode}): {' '.join(cmd)}\n{proc.stderr}")

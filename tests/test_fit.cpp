@@ -137,7 +137,8 @@ TEST_CASE("Recovery from starts 30-50 % off; standard errors against the spread 
 }
 
 // The full study (50 draws, SE within 25 %, coverage >= 0.86: with 50 draws at p = 0.95, 43 or more intervals
-// cover the truth with probability 0.96). About 10 s of CPU: hidden from ctest, run by tests/bench/fit_bench.sh.
+// cover the truth with probability 0.96). About 7 s of CPU: hidden from ctest; run by tests/bench/fit_example.sh, and its numbers quoted in
+// cases/quadruped_fit.md come from it through docs/regenerate.py (`catch [fitbench]`).
 TEST_CASE("Coverage study: 50 noise draws", "[.][fitbench]") { coverageStudy(50, 0.25, 0.86); }
 
 TEST_CASE("A fit of two parameters that only act together warns of non-identifiability", "[fit]") {
