@@ -152,6 +152,9 @@ Body::Body(const Case& c) : case_(c) {
   buildControllers();
   addMetabolicModulation(respiratory);
   buildCirculation();
+  // A controller chained to another reads that controller's state, which sits after all nodes in the state vector.
+  for (auto [k, previous] : controlChain_)
+    network_.controllers[k].signal = {{network_.nodes.size() + previous, 1.0}};
 }
 
 void Body::setInterval(std::size_t interval) const {
@@ -303,7 +306,10 @@ void Body::buildLocalControllers() {
     }
     if (!l.civd) continue;
     // Cold-induced vasodilation (Lewis 1930): c* = clamp((threshold - T_skin) / width, 0, 1) of the segment's own
-    // skin, first-order lag; always on (not switched by the controller's `enabled`). Form: our choice.
+    // skin, followed through a chain of `stages` first-order lags of time_constant / stages each (a gamma-distributed
+    // delay of mean time_constant: the linear chain trick, MacDonald 1978); always on (not switched by the
+    // controller's `enabled`). Form: our choice.
+    const int stages = l.civd->stages;
     for (Index g : segments) {
       Controller c;
       c.name = fmt::format("{}_{}_civd", l.name, case_.segments[g].name);
@@ -314,9 +320,20 @@ void Body::buildLocalControllers() {
       c.lower = 0.0;
       c.upper = 1.0;
       c.offValue = 0.0;
-      c.timeConstant = l.civd->timeConstant;
+      c.timeConstant = l.civd->timeConstant / stages;
       c.initial = std::clamp((l.civd->threshold - case_.run.initialTemperature) / l.civd->width, 0.0, 1.0);
       network_.controllers.push_back(c);
+      // Further stages follow the previous stage's state (clamp(u_prev, 0, 1) = u_prev); their signal index into
+      // the state vector is set once every node exists (see the end of the constructor).
+      for (int stage = 2; stage <= stages; ++stage) {
+        Controller next = c;
+        next.name = fmt::format("{}_{}_civd_stage{}", l.name, case_.segments[g].name, stage);
+        next.signal.clear();
+        next.setpoint = 0.0;
+        next.gain = 1.0;
+        controlChain_.emplace_back(network_.controllers.size(), network_.controllers.size() - 1);
+        network_.controllers.push_back(std::move(next));
+      }
       civdControl_[g] = network_.controllers.size() - 1;
     }
   }

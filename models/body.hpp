@@ -130,6 +130,8 @@ class Body {
   //! Per segment: the local controller of its skin perfusion and shunts, and its CIVD state (none: the body-wide
   //! controller, or none at all); see buildLocalControllers.
   std::vector<Index> localSkinControl_, localShuntControl_, civdControl_;
+  //! (controller, the controller whose state it follows): lag stages of a CIVD chain.
+  std::vector<std::pair<Index, Index>> controlChain_;
   std::vector<Index> order_;               //!< segments root first
   std::vector<std::vector<double>> cellPerfusion_;  // per segment [nz * nr] perfusion flow [m3/s]
   std::vector<std::vector<double>> coveredArea_;    //!< per segment [nz] lateral area covered by children [m2]

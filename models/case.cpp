@@ -431,6 +431,7 @@ void readControl(const TableView& top, Case& c) {
         civd.width = v.quantity("width");
         civd.opening = v.number("opening");
         civd.timeConstant = v.quantity("time_constant");
+        civd.stages = v.integer("stages");
         spec.civd = civd;
       }
       c.control.local.push_back(std::move(spec));
@@ -509,7 +510,8 @@ toml::table controlToml(const ControlSpec& control) {
       t.insert("civd", toml::table{{"threshold", spec.civd->threshold},
                                    {"width", spec.civd->width},
                                    {"opening", spec.civd->opening},
-                                   {"time_constant", spec.civd->timeConstant}});
+                                   {"time_constant", spec.civd->timeConstant},
+                                   {"stages", spec.civd->stages}});
     local.insert(spec.name, t);
   }
   if (!local.empty()) out.insert("local", local);

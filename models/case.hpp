@@ -148,7 +148,8 @@ struct CivdSpec {
   double threshold = 285.15;    //!< local skin temperature below which the shunts open [K]
   double width = 2.0;           //!< full opening this far below the threshold [K]
   double opening = 1.0;         //!< extra shunt flow at full opening, times shunt_flow_max [1]
-  double timeConstant = 300.0;  //!< [s]
+  double timeConstant = 300.0;  //!< mean delay of the opening [s]
+  int stages = 1;               //!< first-order lags in the chain, each timeConstant / stages
 };
 
 //! A local vasomotor controller ([control.local.NAME]): the body-wide controller's form, acting on the named

@@ -354,7 +354,14 @@ constexpr std::array params = {
           "Fully open this far below the threshold (a temperature difference: give it in K)."},
     Param{"control.local.*.civd.opening", K::Number, "", "1", 0, 10, false, "",
           "Extra shunt flow at full opening, times vessels.shunt_flow_max."},
-    Param{"control.local.*.civd.time_constant", K::Quantity, "s", "5 min", 0, 1e6, true, "", "First-order lag."},
+    Param{"control.local.*.civd.time_constant", K::Quantity, "s", "5 min", 0, 1e6, true, "",
+          "Mean delay of the opening behind its target: one first-order lag of this time constant, or, with stages "
+          "= N, a chain of N lags of time_constant / N each (a gamma-distributed delay, the linear chain trick, "
+          "MacDonald 1978)."},
+    Param{"control.local.*.civd.stages", K::Integer, "", "1", 1, 20, false, "",
+          "Number of first-order lags in the chain. One lag lets the opening settle; with 3 or more and a narrow "
+          "width the loop skin -> opening -> warm blood -> skin can oscillate, the repeated waves of the hunting "
+          "reaction (Lewis 1930)."},
 };
 
 }  // namespace

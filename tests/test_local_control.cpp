@@ -244,19 +244,25 @@ TEST_CASE("Jacobian with local controllers and CIVD matches central differences"
   // second local controller on the body's mean skin, g = 1: 1 + 0.4 = 1.4.
   std::string controls = "[control.local.feet]\nsegments = \"foot\"\nset_point = \"" + degC(skin + 0.3) +
                          "\"\ngain = \"-1 1/K\"\nshunt_gain = \"-1 1/K\"\ntime_constant = \"90 s\"\n"
-                         "civd = { threshold = \"" + degC(skin + 1.0) + "\", width = \"2 K\", time_constant = \"200 s\" }\n"
+                         "civd = { threshold = \"" + degC(skin + 1.0) + "\", width = \"2 K\", time_constant = \"200 s\", stages = 3 }\n"
                          "[control.local.body]\nsegments = \"trunk\"\nsignal = \"mean_skin\"\nset_point = \"" +
                          degC(mean - 0.4) + "\"\ngain = \"1 1/K\"\n";
   std::string text = footCase("1", controls);
   text.replace(text.find("fixed_arterial_temperature"), std::string("fixed_arterial_temperature = \"37 degC\"").size(), "");
   auto body = bodyFromToml(text);
   const Network& n = body->network();
-  REQUIRE(n.controllers.size() == 4);  // feet: skin, shunts, civd; body: skin (the trunk has no shunts)
+  // feet: skin, shunts, civd in three lag stages; body: skin (the trunk has no shunts)
+  REQUIRE(n.controllers.size() == 6);
+  // The chain: stage 2 reads stage 1's state, stage 3 stage 2's (state index = nodes + controller index).
+  const Index stage1 = controllerIndex(n, "feet_foot_civd"), stage2 = controllerIndex(n, "feet_foot_civd_stage2"),
+              stage3 = controllerIndex(n, "feet_foot_civd_stage3");
+  CHECK(n.controllers[stage2].signal == std::vector<std::pair<Index, double>>{{n.nodes.size() + stage1, 1.0}});
+  CHECK(n.controllers[stage3].signal == std::vector<std::pair<Index, double>>{{n.nodes.size() + stage2, 1.0}});
   for (auto mode : {NetworkSystem::Mode::Transient, NetworkSystem::Mode::Steady}) {
     NetworkSystem system(n, mode);
     auto y = makeState(system);
-    const double states[] = {1.25, 0.35, 0.45, 1.3};
-    for (Index k = 0; k < 4; ++k) y[system.nodeCount() + k] = states[k];
+    const double states[] = {1.25, 0.35, 0.45, 0.5, 0.55, 1.3};
+    for (Index k = 0; k < 6; ++k) y[system.nodeCount() + k] = states[k];
     for (Index i = system.nodeCount() + system.controlCount(); i < system.size(); ++i) y[i] = 1e3 * static_cast<double>(i);
     JacobianCheck c = checkJacobian(system, y, 0.0, 1050.0 * 3617.0 * body->totalBloodFlow());
     const bool transient = mode == NetworkSystem::Mode::Transient;
@@ -271,9 +277,14 @@ TEST_CASE("Jacobian with local controllers and CIVD matches central differences"
     double area = 0.0;
     for (int iz = 0; iz < foot.nz; ++iz) area += n.faces[foot.lateralFace[static_cast<std::size_t>(iz)]].area;
     const double w = n.faces[foot.lateralFace[2]].area / area;
-    const double e1 = std::abs(jacobianEntry(system.pattern(), c.values, row, row) / (-1.0 / 200.0) - 1.0);
+    const double tau = 200.0 / 3.0;  // each of the three stages
+    const double e1 = std::abs(jacobianEntry(system.pattern(), c.values, row, row) / (-1.0 / tau) - 1.0);
     const double e2 = std::abs(jacobianEntry(system.pattern(), c.values, row, foot.node(2, foot.skinCell)) /
-                                   (-0.5 * w / 200.0) - 1.0);
+                                   (-0.5 * w / tau) - 1.0);
+    // A later stage: d(du3/dt)/du2 = 1/tau.
+    const double e3 = std::abs(jacobianEntry(system.pattern(), c.values, system.nodeCount() + stage3,
+                                             system.nodeCount() + stage2) / (1.0 / tau) - 1.0);
+    CHECK(e3 <= 1e-12);
     std::printf("[local] CIVD Jacobian entries by hand: dc/dc %.1e, dc/dT_skin %.1e\n", e1, e2);
     CHECK(e1 <= 1e-12);
     CHECK(e2 <= 1e-12);
@@ -329,6 +340,49 @@ TEST_CASE("CIVD opens the shunts when and only when the local skin falls below i
   // Without CIVD the two runs agree until the skin first reaches the threshold (the extra state only changes the
   // integrator's error norm).
   for (std::size_t i = 0; i + 1 < firstCold; ++i) CHECK(std::abs(trace.skin[i] - without.skin[i]) < 1e-4);
+}
+
+TEST_CASE("CIVD through a chain of lags hunts; through one lag it settles", "[control][local]") {
+  // Lewis 1930 (Heart 15:177-208): a finger in ice water cools, rewarms as its vessels dilate, cools again, in
+  // repeated waves (the "hunting" reaction) of several minutes (from memory). A loop skin -> opening -> warm blood
+  // -> skin with one short lag and the tissue's own capacities settles; a delay in the opening (three lag stages,
+  // a gamma-distributed delay: MacDonald 1978) makes it oscillate (a Hopf bifurcation of a delayed negative
+  // feedback loop; common practice, no source). Feet in 2 degC water, shunts closed by a body-wide core signal.
+  const std::string wide = "[control.vasomotor]\nsignal = \"core\"\nset_point = \"37.5 degC\"\n";
+  auto civd = [](int stages) {
+    return "[control.local.feet]\nsegments = \"foot\"\nsignal = \"core\"\nset_point = \"37.5 degC\"\n"
+           "civd = { threshold = \"12 degC\", width = \"1 K\", opening = 1, time_constant = \"5 min\", stages = " +
+           std::to_string(stages) + " }\n";
+  };
+  for (int stages : {1, 3}) {
+    std::string text = footCase("1", wide + civd(stages));
+    text.replace(text.find("output_interval = \"5 min\""), std::string("output_interval = \"5 min\"").size(),
+                 "output_interval = \"30 s\"");
+    auto body = bodyFromToml(text);
+    auto trace = traceFoot(*body);
+    // The last 90 minutes: extremes, and the times of the skin's local maxima.
+    double low = 1e9, high = -1e9;
+    std::vector<double> peaks;
+    for (std::size_t i = 1; i + 1 < trace.time.size(); ++i) {
+      if (trace.time[i] < 5400.0) continue;
+      low = std::min(low, trace.skin[i]);
+      high = std::max(high, trace.skin[i]);
+      if (trace.skin[i] > trace.skin[i - 1] && trace.skin[i] >= trace.skin[i + 1]) peaks.push_back(trace.time[i]);
+    }
+    const double period = peaks.size() > 1 ? (peaks.back() - peaks.front()) / static_cast<double>(peaks.size() - 1) : 0.0;
+    std::printf("[local] CIVD with %d lag stage(s): foot skin over the last 90 min %.2f .. %.2f degC, %zu peaks, "
+                "mean period %.1f min; energy balance %.1e\n",
+                stages, low - kZero, high - kZero, peaks.size(), period / 60.0, trace.worstBalance);
+    CHECK(trace.worstBalance < 1e-6);
+    if (stages == 1) {
+      CHECK(high - low < 0.05);  // settled
+    } else {
+      CHECK(high - low > 1.0);                 // sustained waves, not a decaying ripple
+      CHECK(peaks.size() >= 3);
+      CHECK(period > 300.0);                   // minutes, as Lewis's waves
+      CHECK(period < 1800.0);
+    }
+  }
 }
 
 TEST_CASE("Bad local controller input names the file, line and key path", "[control][local][case]") {
