@@ -45,6 +45,33 @@ double contactRadius(const SegmentSpec& s, const SegmentSpec& parent) {
   return s.contactRadius.value_or(std::min(s.tissueRadius(), parent.tissueRadius()));
 }
 
+//! Shares of a child's footprint over its parent's axial cells, (cell, share) with the shares summing to 1: a disc
+//! of the child's outer radius (a plate: its width along the parent's axis, uniformly) centred at attach_position,
+//! moved inside the parent's length when it would stick out (spread over the whole length when longer than it).
+//! The share of a cell is the exact area of the disc between the cell's faces, so nothing here depends on where
+//! the parent's cell faces fall except through exact integrals. A sphere parent has one axial cell.
+std::vector<std::pair<int, double>> footprintShares(const SegmentSpec& s, const SegmentSpec& ps) {
+  const int nz = ps.shape == Shape::Sphere ? 1 : ps.axialCells;
+  if (nz == 1) return {{0, 1.0}};
+  // (A sphere child: its contact patch.)
+  const double outer = s.shape == Shape::Sphere ? contactRadius(s, ps) : s.tissueRadius() + (s.coat ? s.coat->thickness : 0.0);
+  const double L = ps.length, half = s.shape == Shape::Plate ? 0.5 * s.width : outer;
+  const double centre = std::clamp(s.attachPosition * L, std::min(half, 0.5 * L), std::max(L - half, 0.5 * L));
+  // Cumulative covered share of the footprint up to axial position z (0 below it, 1 above it).
+  auto share = [&](double z) {
+    if (2.0 * half >= L) return std::clamp(z / L, 0.0, 1.0);  // spread over the whole length
+    const double x = std::clamp((z - centre) / half, -1.0, 1.0);
+    if (s.shape == Shape::Plate) return 0.5 * (x + 1.0);
+    return (x * std::sqrt(1.0 - x * x) + std::asin(x)) / pi + 0.5;  // disc area below a chord / pi R^2
+  };
+  std::vector<std::pair<int, double>> shares;
+  for (int iz = 0; iz < nz; ++iz) {
+    const double w = share((iz + 1) * L / nz) - share(iz * L / nz);
+    if (w > 0.0) shares.emplace_back(iz, w);
+  }
+  return shares;
+}
+
 }  // namespace
 
 //! Radial cell boundaries of one cross-section: tissue layers scaled by `scale`, then the coat.
@@ -115,22 +142,7 @@ Body::Body(const Case& c) : case_(c) {
       coveredArea_[p][0] += s.count * section;
       continue;
     }
-    // The footprint is cut from every parent cell it covers: a disc of the child's outer radius (a plate: its
-    // width along the parent's axis, uniformly) centred at attach_position, moved inside the parent's length
-    // when it would stick out (spread over the whole length when longer than it). The share of each cell is
-    // the exact area of the disc between the cell's faces, so the covered area does not change with the grid.
-    const double L = ps.length, half = s.shape == Shape::Plate ? 0.5 * s.width : outer;
-    double centre = std::clamp(s.attachPosition * L, std::min(half, 0.5 * L), std::max(L - half, 0.5 * L));
-    // Cumulative covered share of the footprint up to axial position z (0 below it, 1 above it).
-    auto share = [&](double z) {
-      if (2.0 * half >= L) return std::clamp(z / L, 0.0, 1.0);  // spread over the whole length
-      const double x = std::clamp((z - centre) / half, -1.0, 1.0);
-      if (s.shape == Shape::Plate) return 0.5 * (x + 1.0);
-      return (x * std::sqrt(1.0 - x * x) + std::asin(x)) / pi + 0.5;  // disc area below a chord / pi R^2
-    };
-    for (int iz = 0; iz < nz; ++iz)
-      coveredArea_[p][static_cast<std::size_t>(iz)] +=
-          s.count * section * (share((iz + 1) * L / nz) - share(iz * L / nz));
+    for (auto [iz, w] : footprintShares(s, ps)) coveredArea_[p][static_cast<std::size_t>(iz)] += s.count * section * w;
   }
   cellPerfusion_.resize(case_.segments.size());
   for (Index g = 0; g < case_.segments.size(); ++g) {
@@ -404,8 +416,21 @@ void Body::scaleMetabolism() {
 }
 
 void Body::attachChildren() {
-  // A child's proximal end conducts to the parent's attachment tissue through the child's half-cell axial
-  // resistance; the parent's lateral face there loses the area the children cover.
+  // The junction. A child's proximal face sits at the mean temperature of the parent's attachment layer (the
+  // attach_tissue layer, else the innermost) under the child's footprint, and the heat it takes or gives is spread
+  // over that region in proportion to each cell's share of it: axially the footprint's share of the cell (the
+  // disc shares that also cut the covered area from the parent's surface, footprintShares), radially the cell's
+  // share of the layer's volume at that axial cell. With w_i these shares (sum 1) and G_r the conductance of the
+  // child's proximal half cell in radial ring r, the flow into parent cell i is
+  //     q_i = w_i sum_r G_r (T_r - Tbar),   Tbar = sum_j w_j T_j,
+  // which conserves energy exactly (sum_i q_i is what the child loses). As a network it is a conductance G_r w_i
+  // from ring r to cell i plus a conductance -G w_i w_j between every pair of region cells (G = sum_r G_r): the
+  // rank-one form G (e_c - w)(e_c - w)^T, symmetric positive semi-definite. Without the pair terms the child
+  // short-circuits the region cells through conductances that grow as its cells shrink (first order), and a
+  // junction into one parent cell (or a point interpolated from a few) is a ring source in the parent's (r, z)
+  // plane whose cell temperature falls like log(1/h): the junction flow did not converge. Measured: DEVELOPERS.md
+  // "Whole-body grid convergence".
+  attachShares_.assign(case_.segments.size(), {});
   for (Index g = 0; g < case_.segments.size(); ++g) {
     const SegmentSpec& s = case_.segments[g];
     if (s.parent.empty()) continue;
@@ -414,33 +439,64 @@ void Body::attachChildren() {
     const SegmentSpec& ps = case_.segments[p];
     const SegmentMesh& pm = meshes_[p];
     const SegmentMesh& cm = meshes_[g];
-    int k = std::clamp(static_cast<int>(s.attachPosition * pm.nz), 0, pm.nz - 1);
-    // Parent radial cell: middle cell of the attachment tissue's layer, else of the innermost layer.
     int layer = 0;
     for (std::size_t l = 0; l < ps.layers.size(); ++l)
       if (ps.layers[l].tissue == s.attachTissue) layer = static_cast<int>(l);
     int first = 0;
     for (int l = 0; l < layer; ++l) first += ps.layers[static_cast<std::size_t>(l)].cells;
-    int pr = first + ps.layers[static_cast<std::size_t>(layer)].cells / 2;
+    const int cells = ps.layers[static_cast<std::size_t>(layer)].cells;
+    // Blood joins the parent's streams at attach_position, split linearly between the two nearest axial cell
+    // centres (the end cell's centre beyond it), so the mixing points move smoothly with the grid; every share
+    // carries the same fraction of each flow, so mass balances for every modulator.
+    {
+      const double x = std::clamp(s.attachPosition * pm.nz - 0.5, 0.0, pm.nz - 1.0);
+      const int k0 = std::min(static_cast<int>(x), std::max(pm.nz - 2, 0));
+      const double f = x - k0;
+      attachShares_[g].clear();
+      if (1.0 - f > 0.0) attachShares_[g].emplace_back(k0, 1.0 - f);
+      if (f > 0.0) attachShares_[g].emplace_back(k0 + 1, f);
+    }
+    std::vector<std::pair<Index, double>> region;  // parent node, share w_i
+    for (auto [iz, wz] : footprintShares(s, ps)) {
+      double layerVolume = 0.0;
+      for (int ir = first; ir < first + cells; ++ir) layerVolume += pm.volume[static_cast<std::size_t>(iz * pm.nr + ir)];
+      for (int ir = first; ir < first + cells; ++ir)
+        region.emplace_back(pm.node(iz, ir), wz * pm.volume[static_cast<std::size_t>(iz * pm.nr + ir)] / layerVolume);
+    }
+    // The pair terms, per copy of the child: both ends are parent cells, so the child's count is applied here
+    // (a conductance between groups carries its flow once per copy of the more numerous group).
+    auto addPairs = [&](double total) {
+      for (std::size_t i = 0; i < region.size(); ++i)
+        for (std::size_t j = i + 1; j < region.size(); ++j)
+          network_.conductances.push_back(
+              {region[i].first, region[j].first, -s.count * total * region[i].second * region[j].second, 0});
+    };
     if (s.shape == Shape::Sphere) {
       // Across the contact patch (a disc of radius a) from the sphere's outermost tissue cell into the parent:
       // the spreading resistance of an isothermal disc on a semi-infinite medium, R = 1 / (4 k a) (Incropera et
       // al. 2007, Table 4.1 case 10, S = 2D; from memory), with k of that tissue; the coat does not cover it.
+      // On the parent's side the same region as a cylinder child's (the patch's footprint).
       const double a = contactRadius(s, ps);
       const auto skin = static_cast<std::size_t>(cm.skinCell);
       const TissueProperties& t = case_.tissues.at(cm.layerNames[static_cast<std::size_t>(cm.layer[skin])]);
-      network_.conductances.push_back({cm.node(0, cm.skinCell), pm.node(k, pr), 4.0 * t.conductivity * a, conductionChannel_});
+      const double G = 4.0 * t.conductivity * a;
+      for (auto [node, w] : region) network_.conductances.push_back({cm.node(0, cm.skinCell), node, G * w, conductionChannel_});
+      addPairs(G);
       continue;
     }
-    double dz = s.length / cm.nz;
+    const double dz = s.length / cm.nz;
     // The child's proximal cross-section (a cone's layers are at their stated thickness there).
     const std::vector<double> bounds = crossSection(s, 1.0).bounds;
+    double total = 0.0;
     for (int ir = 0; ir < cm.nr; ++ir) {
       auto r = static_cast<std::size_t>(ir);
-      double area = sectionArea(s.shape, bounds[r], bounds[r + 1], s.width);
+      const double area = sectionArea(s.shape, bounds[r], bounds[r + 1], s.width);
       const TissueProperties& t = case_.tissues.at(cm.layerNames[static_cast<std::size_t>(cm.layer[r])]);
-      network_.conductances.push_back({cm.node(0, ir), pm.node(k, pr), t.conductivity * area / (0.5 * dz), conductionChannel_});
+      const double G = t.conductivity * area / (0.5 * dz);
+      total += G;
+      for (auto [node, w] : region) network_.conductances.push_back({cm.node(0, ir), node, G * w, conductionChannel_});
     }
+    addPairs(total);
   }
 }
 
@@ -471,7 +527,7 @@ struct Body::Circulation {
   explicit Circulation(std::size_t segments, double rhoC)
       : n(segments), rc(rhoC), perfusionModulators(n), shuntModulator(n, none), civdModulator(n, none), cellTotal(n), cellDeep(n),
         cellSuperficial(n), shunt(n), childDraw(n), childDeep(n), childSuperficial(n), draw(n), deep(n),
-        superficialFlow(n), parentOf(n, n), attachCell(n, 0), arterialIn(n), deepOut(n), superficialOut(n) {}
+        superficialFlow(n), parentOf(n, n), arterialIn(n), deepOut(n), superficialOut(n) {}
   std::size_t n;
   double rc;  //!< blood volumetric heat capacity [J/(m3 K)]
   std::vector<std::vector<std::array<Index, 3>>> perfusionModulators;  //!< per layer: total, -, superficial
@@ -484,7 +540,6 @@ struct Body::Circulation {
   std::vector<std::vector<FlowExpr>> shunt, childDraw, childDeep, childSuperficial;
   std::vector<FlowExpr> draw, deep, superficialFlow;  //!< at the proximal end of one copy
   std::vector<Index> parentOf;                        //!< n: the root
-  std::vector<int> attachCell;                        //!< axial cell of the parent the segment joins
   std::vector<std::vector<FlowExpr>> arterialIn, deepOut, superficialOut;  //!< [nz + 1] through each axial face
 };
 
@@ -585,7 +640,6 @@ void Body::planCellFlows(Circulation& c) {
       Index p = 0;
       while (case_.segments[p].name != s.parent) ++p;
       c.parentOf[g] = p;
-      c.attachCell[g] = std::clamp(static_cast<int>(s.attachPosition * meshes_[p].nz), 0, meshes_[p].nz - 1);
     }
   }
 }
@@ -628,10 +682,13 @@ void Body::sumFlowsUpTheTree(Circulation& c) {
     m.shuntFlow = shunted.value(c.m0);
     if (c.parentOf[g] < c.n) {
       const double count = case_.segments[g].count;
-      auto k = static_cast<std::size_t>(c.attachCell[g]);
-      c.childDraw[c.parentOf[g]][k].add(c.draw[g], count);
-      c.childDeep[c.parentOf[g]][k].add(c.deep[g], count);
-      c.childSuperficial[c.parentOf[g]][k].add(c.superficialFlow[g], count);
+      // Drawn and returned over the parent cells of the junction, with its axial shares (attachChildren).
+      for (auto [iz, w] : attachShares_[g]) {
+        auto k = static_cast<std::size_t>(iz);
+        c.childDraw[c.parentOf[g]][k].add(c.draw[g], count * w);
+        c.childDeep[c.parentOf[g]][k].add(c.deep[g], count * w);
+        c.childSuperficial[c.parentOf[g]][k].add(c.superficialFlow[g], count * w);
+      }
     }
   }
 }
@@ -704,10 +761,12 @@ void Body::linkSegmentBlood(const Circulation& c, Index g) {
   // Arterial inflow at the proximal cell: from the parent's arterial stream, the pool, or pinned blood.
   if (c.parentOf[g] < c.n) {
     const SegmentMesh& pm = meshes_[c.parentOf[g]];
-    auto k = static_cast<std::size_t>(c.attachCell[g]);
-    linkBlood(c, pm.arterial[k], m.arterial[0], c.draw[g]);
-    linkBlood(c, m.venous[0], pm.venous[k], c.deep[g], s.count);
-    linkBlood(c, m.superficial[0], pm.superficial[k], c.superficialFlow[g], s.count);
+    for (auto [iz, w] : attachShares_[g]) {
+      auto k = static_cast<std::size_t>(iz);
+      linkBlood(c, pm.arterial[k], m.arterial[0], c.draw[g], w);
+      linkBlood(c, m.venous[0], pm.venous[k], c.deep[g], s.count * w);
+      linkBlood(c, m.superficial[0], pm.superficial[k], c.superficialFlow[g], s.count * w);
+    }
   } else if (pool_) {
     linkBlood(c, *pool_, m.arterial[0], c.draw[g]);
     linkBlood(c, m.venous[0], *pool_, c.deep[g]);

@@ -123,6 +123,8 @@ class Body {
   Case case_;
   mutable Network network_;  //!< coat conductances follow immersion in setInterval()
   std::vector<CoatSwitch> coatSwitches_;
+  //! Per child: the parent's axial cells its blood joins, with their shares (sum 1); see attachChildren.
+  std::vector<std::vector<std::pair<int, double>>> attachShares_;
   std::vector<SegmentMesh> meshes_;
   std::unique_ptr<EnvironmentModel> environment_;
   std::unique_ptr<PhysiologyModel> physiology_;

@@ -457,8 +457,8 @@ TEST_CASE("Jacobian with the whole circulation matches central finite difference
   // metabolism and convecting surfaces. Criterion: every entry within 1e-6 of its row's largest entry, no FD entry
   // outside the pattern. Entries by hand (transient, rows scaled by 1/C): the pool receives rho c times the trunk's
   // deep and superficial returns and loses rho c Q_total on its diagonal; a leg's first arterial cell receives
-  // rho c times the leg's draw from the trunk's arterial cell 3 (attach_position 0.8 of 4 cells); the trunk's deep
-  // vein there receives 2 x the leg's deep return; a leg cell's artery sees its vein through G/N (upwind advection
+  // rho c times 0.7 of the leg's draw from the trunk's arterial cell 3 and 0.3 from cell 2 (attach_position 0.8 of 4
+  // cells, linear between cell centres); the trunk's deep vein in cell 3 receives 0.7 x 2 x the leg's deep return; a leg cell's artery sees its vein through G/N (upwind advection
   // and the countercurrent conductance as in the README, "A whole body").
   TestBody spec;
   spec.fleshHeat = 1000.0;
@@ -494,8 +494,11 @@ TEST_CASE("Jacobian with the whole circulation matches central finite difference
     const double e1 = relative(entry(pool, trunk.venous[0]), rc * flows.rootDeep / Cpool);
     const double e2 = relative(entry(pool, trunk.superficial[0]), rc * flows.rootSuperficial / Cpool);
     const double e3 = relative(entry(pool, pool), -rc * flows.total / Cpool);
-    const double e4 = relative(entry(legs.arterial[0], trunk.arterial[3]), rc * flows.legDraw / n.nodes[legs.arterial[0]].capacity);
-    const double e5 = relative(entry(trunk.venous[3], legs.venous[0]), rc * 2.0 * flows.legDeep / n.nodes[trunk.venous[3]].capacity);
+    // attach_position 0.8 of 4 cells lies 0.7 of the way from cell 2's centre (0.625) to cell 3's (0.875): the leg
+    // draws 0.3 of its flow from cell 2 and 0.7 from cell 3, and returns it there in the same shares.
+    const double e4 = relative(entry(legs.arterial[0], trunk.arterial[3]), 0.7 * rc * flows.legDraw / n.nodes[legs.arterial[0]].capacity);
+    const double e5 = relative(entry(trunk.venous[3], legs.venous[0]), 0.7 * rc * 2.0 * flows.legDeep / n.nodes[trunk.venous[3]].capacity);
+    const double e4b = relative(entry(legs.arterial[0], trunk.arterial[2]), 0.3 * rc * flows.legDraw / n.nodes[legs.arterial[0]].capacity);
     const double e6 = relative(entry(legs.arterial[1], legs.venous[1]),
                                spec.legCountercurrent / 4.0 / n.nodes[legs.arterial[1]].capacity);
     std::printf("[wholebody] Jacobian entries by hand: pool<-deep %.1e, pool<-superficial %.1e, pool diagonal %.1e, "
@@ -506,6 +509,7 @@ TEST_CASE("Jacobian with the whole circulation matches central finite difference
     CHECK(e3 <= 1e-12);
     CHECK(e4 <= 1e-12);
     CHECK(e5 <= 1e-12);
+    CHECK(e4b <= 1e-12);
     CHECK(e6 <= 1e-12);
   }
 }

@@ -1,0 +1,205 @@
+// The junction of a child segment with its parent (models/body.cpp, Body::attachChildren): second-order grid
+// convergence of a whole body, exact conservation across the junction, and the single-cell limit.
+// Observed order p = log2(|f1 - f2| / |f2 - f4|) on grids refined 2x and 4x: common practice, no source
+// (grid-convergence studies: Roache 1998).
+#include <catch2/catch.hpp>
+
+#include <cmath>
+#include <cstdio>
+#include <numbers>
+#include <string>
+
+#include "test_support_body.hpp"
+
+using namespace thermorph;
+using namespace thermorph::testing;
+
+namespace {
+
+//! A trunk (cylinder, 30 cm, heated core) with one bare limb (cylinder, 8 cm) joined at 37 % of its length, in
+//! 10 degC air with a fixed h; no blood, so the limb is a fin fed through the junction only. Values illustrative.
+std::string trunkAndLimb(int refinement, int count = 1, const std::string& extra = "") {
+  return R"toml(
+title = "trunk and limb"
+[run]
+initial = "steady"
+duration = "1 h"
+output_interval = "30 min"
+initial_temperature = "37 degC"
+grid_refinement = )toml" + std::to_string(refinement) + R"toml(
+[tissues.core]
+conductivity = 0.5
+density = 1050
+specific_heat = 3600
+metabolic_heat = 10000
+perfusion = 0
+q10 = 1
+[tissues.flesh]
+conductivity = 0.45
+density = 1050
+specific_heat = 3600
+metabolic_heat = 0
+perfusion = 0
+q10 = 1
+[[segments]]
+name = "trunk"
+shape = "cylinder"
+length = "30 cm"
+axial_cells = 10
+layers = [{ tissue = "core", thickness = "3 cm", cells = 3 }, { tissue = "flesh", thickness = "2 cm", cells = 2 }]
+surface = { ends = "insulated", convection = "5 W/(m2 K)" }
+[[segments]]
+name = "limb"
+parent = "trunk"
+attach_position = 0.37
+attach_tissue = "flesh"
+count = )toml" + std::to_string(count) + R"toml(
+shape = "cylinder"
+length = "8 cm"
+axial_cells = 10
+layers = [{ tissue = "flesh", thickness = "1.5 cm", cells = 3 }]
+surface = { ends = "insulated", convection = "3 W/(m2 K)" }
+[environment]
+temperature = "10 degC"
+)toml" + extra;
+}
+
+struct JunctionResult {
+  double junction;  //!< heat flow from the trunk into one limb [W]
+  double tip;       //!< the limb's cross-section mean at 90 % of its length, interpolated [degC]
+  double trunkConduction, residual;
+};
+
+JunctionResult solveTrunkAndLimb(int refinement, int count = 1) {
+  auto body = bodyFromToml(trunkAndLimb(refinement, count));
+  RunSummary s = runSteady(*body, silentRun());
+  REQUIRE(s.complete);
+  const Network& n = body->network();
+  const Index limb = segmentIndex(*body, "limb"), trunk = segmentIndex(*body, "trunk");
+  const Index conduction = channelIndex(n, "conduction");
+  JunctionResult r;
+  r.junction = s.flows[limb * n.channels.size() + conduction];
+  r.trunkConduction = s.flows[trunk * n.channels.size() + conduction];
+  // Cross-section means (cell averages, second order), then linear interpolation between cell centres.
+  const SegmentMesh& m = body->segments()[limb];
+  std::vector<double> mean(static_cast<std::size_t>(m.nz));
+  for (int iz = 0; iz < m.nz; ++iz) {
+    double tv = 0.0, v = 0.0;
+    for (int ir = 0; ir < m.nr; ++ir) {
+      const double vol = m.volume[static_cast<std::size_t>(iz * m.nr + ir)];
+      tv += vol * s.finalState[m.node(iz, ir)];
+      v += vol;
+    }
+    mean[static_cast<std::size_t>(iz)] = tv / v - 273.15;
+  }
+  const double z = 0.9 * m.nz - 0.5;  // in cell-centre units
+  const auto k = static_cast<std::size_t>(z);
+  r.tip = mean[k] + (z - static_cast<double>(k)) * (mean[k + 1] - mean[k]);
+  double total = 0.0;
+  for (double f : s.flows) total += std::abs(f);
+  r.residual = total;
+  return r;
+}
+
+}  // namespace
+
+TEST_CASE("A trunk with a limb converges: junction heat flow and limb temperature near the tip, 1x to 8x",
+          "[junction][grid][validation]") {
+  // Before the junction spread over the parent's attachment layer under the footprint, the junction flow of this
+  // kind of body fell with every refinement (a ring source in the parent's (r, z) plane: log divergence).
+  JunctionResult r1 = solveTrunkAndLimb(1), r2 = solveTrunkAndLimb(2), r4 = solveTrunkAndLimb(4),
+                 r8 = solveTrunkAndLimb(8);
+  auto order = [](double a, double b, double c) { return std::log2(std::abs(a - b) / std::abs(b - c)); };
+  const double pJunction = order(r1.junction, r2.junction, r4.junction);
+  const double pJunctionFine = order(r2.junction, r4.junction, r8.junction);
+  const double pTip = order(r1.tip, r2.tip, r4.tip), pTipFine = order(r2.tip, r4.tip, r8.tip);
+  std::printf("[junction] trunk + limb, steady, 1x/2x/4x/8x: junction %.7g / %.7g / %.7g / %.7g W (orders %.2f, %.2f); "
+              "limb at 0.9 L %.7g / %.7g / %.7g / %.7g degC (orders %.2f, %.2f)\n",
+              r1.junction, r2.junction, r4.junction, r8.junction, pJunction, pJunctionFine, r1.tip, r2.tip, r4.tip,
+              r8.tip, pTip, pTipFine);
+  CHECK(r1.junction > 0.05);  // a junction that carries heat
+  // Monotone convergence on every level (a junction into one cell fell at every refinement instead).
+  CHECK((r2.junction - r1.junction) * (r4.junction - r2.junction) > 0.0);
+  CHECK((r4.junction - r2.junction) * (r8.junction - r4.junction) > 0.0);
+  CHECK((r2.tip - r1.tip) * (r4.tip - r2.tip) > 0.0);
+  CHECK((r4.tip - r2.tip) * (r8.tip - r4.tip) > 0.0);
+  // Measured 2.56 and 1.57 (junction), 1.20 and 2.25 (tip): second order where the tip is asymptotic (2-4-8) and
+  // for the junction on 1-2-4; the junction's finest pair is at 1.6 (see DEVELOPERS.md, "Whole-body grid
+  // convergence": still open).
+  CHECK(pJunction >= 1.8);
+  CHECK(pJunctionFine >= 1.4);
+  CHECK(pTipFine >= 1.8);
+  CHECK(pTipFine <= 2.6);
+  // The 1x junction flow within 2 % of the Richardson value from the finest grids (Roache 1998; measured 1.05 %).
+  const double richardson = r8.junction + (r8.junction - r4.junction) / (std::pow(2.0, pJunctionFine) - 1.0);
+  CHECK(std::abs(r1.junction - richardson) <= 0.02 * std::abs(richardson));
+}
+
+TEST_CASE("The junction conserves energy exactly: what the trunk gives, the limbs take", "[junction][validation]") {
+  // First law (common practice, no source). A pair of limbs (count 2): the trunk's conduction loss equals twice
+  // one limb's gain to round-off, in steady state and over a transient run.
+  JunctionResult r = solveTrunkAndLimb(2, 2);
+  const double mismatch = std::abs(r.trunkConduction + 2.0 * r.junction);
+  std::printf("[junction] steady, pair of limbs: trunk conduction %.15g W, limbs 2 x %.15g W, mismatch %.2e W\n",
+              r.trunkConduction, r.junction, mismatch);
+  CHECK(r.junction > 0.05);
+  CHECK(mismatch <= 1e-12 * r.residual);
+
+  std::string toml = trunkAndLimb(2, 2);
+  toml.erase(toml.find("initial = \"steady\"\n"), std::string("initial = \"steady\"\n").size());
+  auto transient = bodyFromToml(toml);
+  RunSummary s = runTransient(*transient, silentRun());
+  REQUIRE(s.complete);
+  const double relative = std::abs(s.energyBalanceError) / s.throughput;
+  std::printf("[junction] transient 1 h from 37 degC, pair of limbs: energy balance error %.3e J of %.4e J (%.2e)\n",
+              s.energyBalanceError, s.throughput, relative);
+  CHECK(s.throughput > 1e4);
+  CHECK(relative <= 1e-11);
+}
+
+TEST_CASE("A junction inside one parent cell joins that cell alone, as a single conductance per child ring",
+          "[junction]") {
+  // The limit the spread junction must keep (geometry, common practice, no source): the footprint of a thin limb
+  // at a cell centre lies inside one axial cell, and an attachment layer of one cell is one radial cell, so every
+  // ring of the child conducts k A / (dz / 2) to exactly that node and there are no pair terms.
+  auto body = bodyFromToml(R"toml(
+[run]
+duration = "1 min"
+output_interval = "1 min"
+[[segments]]
+name = "trunk"
+shape = "cylinder"
+length = "30 cm"
+axial_cells = 5
+layers = [{ tissue = "viscera", thickness = "3 cm", cells = 2 }, { tissue = "muscle", thickness = "2 cm", cells = 1 }]
+[[segments]]
+name = "limb"
+parent = "trunk"
+attach_position = 0.5
+shape = "cylinder"
+length = "10 cm"
+axial_cells = 4
+layers = [{ tissue = "bone", thickness = "0.4 cm", cells = 1 }, { tissue = "muscle", thickness = "0.6 cm", cells = 2 }]
+)toml");
+  const Network& n = body->network();
+  const SegmentMesh& trunk = body->segments()[segmentIndex(*body, "trunk")];
+  const SegmentMesh& limb = body->segments()[segmentIndex(*body, "limb")];
+  const Case& c = body->spec();
+  const Index expected = trunk.node(2, 2);  // axial cell 2 of 5 holds 0.5; the one muscle cell is radial cell 2
+  const double dz = 0.10 / 4, r[] = {0.0, 0.004, 0.007, 0.010};
+  const double k[] = {c.tissues.at("bone").conductivity, c.tissues.at("muscle").conductivity,
+                      c.tissues.at("muscle").conductivity};
+  int found = 0, negative = 0;
+  for (const Conductance& g : n.conductances) {
+    if (g.conductance < 0.0) ++negative;
+    for (int ir = 0; ir < limb.nr; ++ir)
+      if (g.a == limb.node(0, ir) && n.nodes[g.b].group != n.nodes[g.a].group) {
+        CHECK(g.b == expected);
+        const double area = std::numbers::pi * (r[ir + 1] * r[ir + 1] - r[ir] * r[ir]);
+        CHECK(g.conductance == Approx(k[ir] * area / (0.5 * dz)).epsilon(1e-12));
+        ++found;
+      }
+  }
+  CHECK(found == limb.nr);
+  CHECK(negative == 0);
+}
