@@ -167,6 +167,7 @@ Body::Body(const Case& c) : case_(c) {
   // A controller chained to another reads that controller's state, which sits after all nodes in the state vector.
   for (auto [k, previous] : controlChain_)
     network_.controllers[k].signal = {{network_.nodes.size() + previous, 1.0}};
+  network_.compact();
 }
 
 void Body::setInterval(std::size_t interval) const {

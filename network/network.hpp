@@ -154,6 +154,18 @@ struct Network {
     namedNodes.emplace_back(nodes.size(), std::move(label));
     return addNode(capacity, group);
   }
+  //! Return the spare capacity of the term vectors (they grow by doubling while a model builds them): called
+  //! once the network is complete; at 10^5 nodes this is about 100 bytes per node of peak memory.
+  void compact() {
+    nodes.shrink_to_fit();
+    conductances.shrink_to_fit();
+    advections.shrink_to_fit();
+    exchanges.shrink_to_fit();
+    sources.shrink_to_fit();
+    faces.shrink_to_fit();
+    flowParts.shrink_to_fit();
+    namedNodes.shrink_to_fit();
+  }
   Index channel(const std::string& name) {
     for (Index i = 0; i < channels.size(); ++i)
       if (channels[i] == name) return i;

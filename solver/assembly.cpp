@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
 #include <stdexcept>
 
 #include <fmt/format.h>
@@ -23,6 +24,8 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
   }
   // Between groups of different multiplicity a conductance carries its flow once per copy of the more
   // numerous group: the single parent receives count times what each child copy gives.
+  conductanceFactor_.reserve(2 * network.conductances.size());
+  q10Rate_.reserve(network.sources.size());
   for (const Conductance& c : network.conductances) {
     double w = std::max(nodeWeight_[c.a], nodeWeight_[c.b]);
     conductanceFactor_.push_back(w / nodeWeight_[c.a]);
@@ -84,13 +87,42 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
     for (auto [node, weight] : network.controllers[k].signal) add(nodes_ + k, node);
   std::sort(entries.begin(), entries.end());
   entries.erase(std::unique(entries.begin(), entries.end()), entries.end());
+  if (entries.size() > std::numeric_limits<Slot>::max() || pattern_.size >= std::numeric_limits<Slot>::max())
+    throw std::invalid_argument(fmt::format("the Jacobian has {} entries, more than this build supports", entries.size()));
   pattern_.columnStart.assign(pattern_.size + 1, 0);
   pattern_.rowIndex.reserve(entries.size());
   for (auto& [col, row] : entries) {
     ++pattern_.columnStart[col + 1];
-    pattern_.rowIndex.push_back(row);
+    pattern_.rowIndex.push_back(static_cast<std::uint32_t>(row));
   }
   for (Index c = 0; c < pattern_.size; ++c) pattern_.columnStart[c + 1] += pattern_.columnStart[c];
+  std::vector<std::pair<Index, Index>>().swap(entries);  // freed before the slot tables grow
+  // Exact sizes of the slot tables (counted as they are filled below), so that none keeps spare capacity.
+  {
+    std::size_t parts = 0, advection = 0, exchange = 0, source = 0, control = 0;
+    auto countParts = [&](Index begin, Index end) {
+      for (Index p = begin; p < end; ++p)
+        if (controlColumn(network.flowParts[p].modulator) != none) parts += transient ? 2 : 1;
+    };
+    for (const Advection& a : network.advections) {
+      advection += transient ? 4 : 2;
+      countParts(a.partsBegin, a.partsEnd);
+    }
+    for (const BoundaryExchange& e : network.exchanges) {
+      exchange += transient ? 2 : 1;
+      countParts(e.partsBegin, e.partsEnd);
+    }
+    for (const HeatSource& s : network.sources)
+      source += (transient ? 2 : 1) * (controlColumn(s.modulator) != none ? 2 : 1);
+    for (const Controller& c : network.controllers) control += 1 + c.signal.size();
+    conductanceSlots_.reserve(4 * network.conductances.size());
+    advectionSlots_.reserve(advection);
+    exchangeSlots_.reserve(exchange);
+    sourceSlots_.reserve(source);
+    faceSlots_.reserve(network.faces.size() * (1 + (transient ? channels_ : 0)));
+    partSlots_.reserve(parts);
+    controlSlots_.reserve(control);
+  }
 
   auto slotOf = [&](Index row, Index col) { partSlots_.push_back(slot(row, col)); };
   for (const Conductance& c : network.conductances)
@@ -137,12 +169,12 @@ Index NetworkSystem::controlColumn(Index modulator) const {
   return c == none ? none : nodes_ + c;
 }
 
-Index NetworkSystem::slot(Index row, Index col) const {
+NetworkSystem::Slot NetworkSystem::slot(Index row, Index col) const {
   auto first = pattern_.rowIndex.begin() + static_cast<std::ptrdiff_t>(pattern_.columnStart[col]);
   auto last = pattern_.rowIndex.begin() + static_cast<std::ptrdiff_t>(pattern_.columnStart[col + 1]);
   auto it = std::lower_bound(first, last, row);
   if (it == last || *it != row) throw std::logic_error("sparse pattern misses an entry");
-  return static_cast<Index>(it - pattern_.rowIndex.begin());
+  return static_cast<Slot>(it - pattern_.rowIndex.begin());
 }
 
 void NetworkSystem::modulatorValues(double time, std::span<const double> y, std::span<double> values) const {

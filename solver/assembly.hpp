@@ -1,5 +1,6 @@
 #pragma once
 //! Assembles a thermal network into heat rates, dT/dt and a sparse CSC Jacobian through an index map built once.
+#include <cstdint>
 #include <optional>
 #include <string>
 #include <span>
@@ -9,11 +10,11 @@
 
 namespace thermorph {
 
-//! Compressed sparse column pattern.
+//! Compressed sparse column pattern; positions and rows in 32 bits (NetworkSystem checks that they suffice).
 struct SparsePattern {
   Index size = 0;
-  std::vector<Index> columnStart;  //!< [size + 1]
-  std::vector<Index> rowIndex;     //!< [nonzeros]
+  std::vector<std::uint32_t> columnStart;  //!< [size + 1]
+  std::vector<std::uint32_t> rowIndex;     //!< [nonzeros]
   Index nonzeros() const { return rowIndex.size(); }
 };
 
@@ -82,7 +83,10 @@ class NetworkSystem {
   };
   FaceSolution solveFace(Index face, double time, double nodeTemperature, std::span<double> channelHeat,
                          std::span<double> channelDerivative) const;
-  Index slot(Index row, Index col) const;
+  //! Position of a Jacobian entry in pattern().rowIndex; 32 bits (the constructor checks that they suffice): the
+  //! slot tables below hold about 10 per node.
+  using Slot = std::uint32_t;
+  Slot slot(Index row, Index col) const;
   double partsValue(Index begin, Index end, std::span<const double> m) const;
   double controlTarget(const Controller& c, double time, std::span<const double> state, bool* active) const;
   Index controlColumn(Index modulator) const;  //!< state column of the modulator's control, or none
@@ -96,13 +100,13 @@ class NetworkSystem {
   std::vector<double> q10Rate_;            //!< per source ln(Q10)/10 [1/K]
   std::vector<double> conductanceFactor_;  //!< per conductance: factors on the flow into a and into b
   // Value slots of every term, in the order of the network's vectors.
-  std::vector<Index> conductanceSlots_;   //!< 4 per conductance: aa, ab, bb, ba
-  std::vector<Index> advectionSlots_;     //!< per advection: (to,to), (to,from), [(acc,from), (acc,to)]
-  std::vector<Index> exchangeSlots_;      //!< per exchange: (node,node), [(acc,node)]
-  std::vector<Index> sourceSlots_;        //!< per source: (node,node), [(acc,node)], [(node,u), [(acc,u)]]
-  std::vector<Index> faceSlots_;          //!< per face: (node,node), [(acc_c,node) per channel]
-  std::vector<Index> partSlots_;          //!< per flow part with a control: (row,u), [(acc,u)]
-  std::vector<Index> controlSlots_;       //!< per controller: (u,u), then (u,node) per signal entry
+  std::vector<Slot> conductanceSlots_;   //!< 4 per conductance: aa, ab, bb, ba
+  std::vector<Slot> advectionSlots_;     //!< per advection: (to,to), (to,from), [(acc,from), (acc,to)]
+  std::vector<Slot> exchangeSlots_;      //!< per exchange: (node,node), [(acc,node)]
+  std::vector<Slot> sourceSlots_;        //!< per source: (node,node), [(acc,node)], [(node,u), [(acc,u)]]
+  std::vector<Slot> faceSlots_;          //!< per face: (node,node), [(acc_c,node) per channel]
+  std::vector<Slot> partSlots_;          //!< per flow part with a control: (row,u), [(acc,u)]
+  std::vector<Slot> controlSlots_;       //!< per controller: (u,u), then (u,node) per signal entry
   mutable std::vector<double> faceGuess_;  //!< last face temperatures, Newton start values
   mutable std::vector<double> scratchHeat_, scratchDerivative_, modulators_;
   mutable std::vector<double> scheduleValues_;  //!< schedule factor of each modulator at the last evaluation

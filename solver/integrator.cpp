@@ -115,7 +115,12 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
     linearSolver_.reset(checkCreated(SUNLinSol_Dense(state_.get(), matrix_.get(), ctx), "the dense solver"));
   }
   check(CVodeSetLinearSolver(mem, linearSolver_.get(), matrix_.get()), "CVodeSetLinearSolver");
-  check(CVodeSetJacFn(mem, &Integrator::jacobianCallback), "CVodeSetJacFn");
+  if (options.linearSolver == LinearSolverKind::Klu) {
+    fillMatrix(matrix_.get(), pattern, jacobianValues_);  // the pattern, set once; values come per setup
+    check(CVodeSetLinSysFn(mem, &Integrator::linearSystemCallback), "CVodeSetLinSysFn");
+  } else {
+    check(CVodeSetJacFn(mem, &Integrator::jacobianCallback), "CVodeSetJacFn");
+  }
 }
 
 Integrator::~Integrator() {
@@ -206,6 +211,21 @@ int Integrator::jacobianCallback(double t, N_Vector y, N_Vector, SUNMatrix J, vo
   return self->guard_.run([&] {
     self->system_.jacobian(t, view(y), self->jacobianValues_);
     fillMatrix(J, self->system_.pattern(), self->jacobianValues_);
+  });
+}
+
+int Integrator::linearSystemCallback(double t, N_Vector y, N_Vector, SUNMatrix A, int jok, int* jcur, double gamma,
+                                     void* user, N_Vector, N_Vector, N_Vector) {
+  auto* self = static_cast<Integrator*>(user);
+  return self->guard_.run([&] {
+    if (jok) {
+      *jcur = SUNFALSE;
+    } else {
+      self->system_.jacobian(t, view(y), self->jacobianValues_);
+      *jcur = SUNTRUE;
+    }
+    std::copy(self->jacobianValues_.begin(), self->jacobianValues_.end(), SUNSparseMatrix_Data(A));
+    if (SUNMatScaleAddI(-gamma, A) != 0) throw SolverError("SUNMatScaleAddI failed");
   });
 }
 

@@ -141,6 +141,13 @@ class Integrator {
   void fetchSensitivities();
   static int jacobianCallback(double t, _generic_N_Vector* y, _generic_N_Vector* fy, _generic_SUNMatrix* J,
                               void* self, _generic_N_Vector*, _generic_N_Vector*, _generic_N_Vector*);
+  //! The Newton matrix A = I - gamma J for CVODE's sparse (KLU) path: J re-evaluated only when CVODE asks
+  //! (jok false), kept in jacobianValues_ otherwise. CVODE's own linear-system function does the same
+  //! arithmetic (copy of J, SUNMatScaleAddI), but it keeps J in a second sparse matrix (a clone of A with
+  //! 64-bit indices, ~16 bytes per Jacobian entry).
+  static int linearSystemCallback(double t, _generic_N_Vector* y, _generic_N_Vector* fy, _generic_SUNMatrix* A,
+                                  int jok, int* jcur, double gamma, void* self, _generic_N_Vector*,
+                                  _generic_N_Vector*, _generic_N_Vector*);
   std::string failureMessage(int flag) const;
   static void errorHandler(int code, const char* module, const char* function, char* message, void* self);
   std::string lastMessage_;
