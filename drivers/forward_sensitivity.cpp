@@ -9,6 +9,7 @@
 #include <Eigen/Sparse>
 #include <fmt/format.h>
 
+#include "drivers/record_budget.hpp"
 #include "models/case.hpp"
 #include "solver/assembly.hpp"
 #include "solver/integrator.hpp"
@@ -52,21 +53,27 @@ std::vector<double> initialState(const Body& body, const NetworkSystem& system) 
   return y;
 }
 
-//! The run summary at one output, as the recorder fills it (drivers/record_budget.cpp).
-void summaryAt(const NetworkSystem& system, double t, std::span<const double> y, double initialStored, RunSummary& s) {
+//! The run summary at one output, as the recorder fills it (drivers/record_budget.cpp). `initialGroupStored`:
+//! groupStoredHeat() of the initial state.
+void summaryAt(const NetworkSystem& system, double t, std::span<const double> y, double initialStored,
+               std::span<const double> initialGroupStored, RunSummary& s) {
   const Network& n = system.network();
   s.flows.assign(n.groups.size() * n.channels.size(), 0.0);
   s.storage.assign(n.groups.size(), 0.0);
   std::vector<double> faces(n.faces.size(), 0.0);
   const Index states = system.nodeCount() + system.controlCount();
   system.groupFlows(t, y.first(states), s.flows, s.storage, faces);
-  s.channelEnergy.assign(y.begin() + static_cast<std::ptrdiff_t>(states), y.end());
   s.controls.assign(y.begin() + static_cast<std::ptrdiff_t>(system.nodeCount()),
                     y.begin() + static_cast<std::ptrdiff_t>(states));
-  s.storedChange = system.storedHeat(y) - initialStored;
-  const double gained = std::accumulate(s.channelEnergy.begin(), s.channelEnergy.end(), 0.0);
-  s.energyBalanceError = gained - s.storedChange;
+  energiesAt(system, y, initialStored, initialGroupStored, s);
   s.finalTime = t;
+}
+
+//! groupStoredHeat() of a state.
+std::vector<double> groupStored(const NetworkSystem& system, std::span<const double> y) {
+  std::vector<double> out(system.network().groups.size());
+  system.groupStoredHeat(y, out);
+  return out;
 }
 
 struct Perturbed {
@@ -249,11 +256,13 @@ ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const
       steadyS = steadyDerivatives(body, ys, nets);
     }
     const double initialStored = system.storedHeat(y0);
+    const std::vector<double> initialGroupStored = groupStored(system, y0);
 
     // The perturbed networks' systems (their flows at the base state, for the outputs' explicit dependence).
     struct Side {
       std::unique_ptr<NetworkSystem> plus, minus;
       double plusStored = 0.0, minusStored = 0.0;
+      std::vector<double> plusGroupStored, minusGroupStored;
     };
     std::vector<Side> sides(k);
     SensitivityProblem problem;
@@ -274,6 +283,8 @@ ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const
         }
       sides[j].plusStored = sides[j].plus->storedHeat(yp);
       sides[j].minusStored = sides[j].minus->storedHeat(ym);
+      sides[j].plusGroupStored = groupStored(*sides[j].plus, yp);
+      sides[j].minusGroupStored = groupStored(*sides[j].minus, ym);
       std::vector<double> s0(system.size(), 0.0);
       for (Index i = 0; i < states; ++i) s0[i] = steadyStart ? steadyS[f][i] : (yp[i] - ym[i]) / q.step;
       problem.initial.push_back(std::move(s0));
@@ -315,19 +326,19 @@ ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const
     std::vector<double> shifted(system.size());
     auto observe = [&](double t) {
       std::span<const double> y = integrator.state();
-      summaryAt(system, t, y, initialStored, summary);
+      summaryAt(system, t, y, initialStored, initialGroupStored, summary);
       baseProbe->observe(t, y.first(nodes), summary);
       for (std::size_t s = 0; s < forward.size(); ++s) {
         const std::size_t j = forward[s];
         std::span<const double> sj = integrator.sensitivity(s);
         for (double sign : {1.0, -1.0}) {
           for (Index i = 0; i < shifted.size(); ++i) shifted[i] = y[i] + sign * probes[j].e * sj[i];
-          summaryAt(system, t, shifted, initialStored, summary);
+          summaryAt(system, t, shifted, initialStored, initialGroupStored, summary);
           (sign > 0 ? probes[j].up : probes[j].down)->observe(t, std::span<const double>(shifted).first(nodes), summary);
         }
-        summaryAt(*sides[j].plus, t, y, sides[j].plusStored, summary);
+        summaryAt(*sides[j].plus, t, y, sides[j].plusStored, sides[j].plusGroupStored, summary);
         probes[j].plus->observe(t, y.first(nodes), summary);
-        summaryAt(*sides[j].minus, t, y, sides[j].minusStored, summary);
+        summaryAt(*sides[j].minus, t, y, sides[j].minusStored, sides[j].minusGroupStored, summary);
         probes[j].minus->observe(t, y.first(nodes), summary);
       }
     };

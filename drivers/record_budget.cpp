@@ -5,6 +5,33 @@
 
 namespace thermorph {
 
+void energiesAt(const NetworkSystem& system, std::span<const double> y, double initialStored,
+                std::span<const double> initialGroupStored, RunSummary& summary) {
+  const Index states = system.nodeCount() + system.controlCount(), channels = system.channelCount();
+  const Index groups = system.network().groups.size();
+  const auto at = [&](Index i) { return y.begin() + static_cast<std::ptrdiff_t>(i); };
+  summary.channelEnergy.assign(at(states), at(states + channels));
+  summary.storedChange = system.storedHeat(y) - initialStored;
+  double gained = std::accumulate(summary.channelEnergy.begin(), summary.channelEnergy.end(), 0.0);
+  summary.energyBalanceError = gained - summary.storedChange;
+  summary.throughput = std::abs(summary.storedChange);
+  for (double e : summary.channelEnergy) summary.throughput += std::abs(e);
+  // Per group: energies from the state (zero where the system carries none: steady mode), stored change from T.
+  summary.segmentEnergy.assign(groups * channels, 0.0);
+  if (system.groupCount() == groups)
+    std::copy(at(system.groupEnergyOffset()), at(system.groupEnergyOffset() + groups * channels),
+              summary.segmentEnergy.begin());
+  summary.segmentStoredChange.assign(groups, 0.0);
+  system.groupStoredHeat(y, summary.segmentStoredChange);
+  summary.segmentBalanceError.assign(groups, 0.0);
+  for (Index g = 0; g < groups; ++g) {
+    summary.segmentStoredChange[g] -= g < initialGroupStored.size() ? initialGroupStored[g] : 0.0;
+    double sum = 0.0;
+    for (Index c = 0; c < channels; ++c) sum += summary.segmentEnergy[g * channels + c];
+    summary.segmentBalanceError[g] = sum - summary.segmentStoredChange[g];
+  }
+}
+
 void BudgetRecorder::compute(double t, std::span<const double> y, double initialStored, RunSummary& summary,
                              std::vector<double>& faceTemperatures) const {
   const Index groups = network_.groups.size(), channels = network_.channels.size();
@@ -13,14 +40,13 @@ void BudgetRecorder::compute(double t, std::span<const double> y, double initial
   faceTemperatures.assign(network_.faces.size(), 0.0);
   const Index states = system_.nodeCount() + system_.controlCount();
   system_.groupFlows(t, y.first(states), summary.flows, summary.storage, faceTemperatures);
-  summary.channelEnergy.assign(y.begin() + static_cast<std::ptrdiff_t>(states), y.end());
   summary.controls.assign(y.begin() + static_cast<std::ptrdiff_t>(system_.nodeCount()),
                           y.begin() + static_cast<std::ptrdiff_t>(states));
-  summary.storedChange = system_.storedHeat(y) - initialStored;
-  double gained = std::accumulate(summary.channelEnergy.begin(), summary.channelEnergy.end(), 0.0);
-  summary.energyBalanceError = gained - summary.storedChange;
-  summary.throughput = std::abs(summary.storedChange);
-  for (double e : summary.channelEnergy) summary.throughput += std::abs(e);
+  if (initialGroupStored_.empty()) {  // the first output is the initial state
+    initialGroupStored_.assign(groups, 0.0);
+    system_.groupStoredHeat(y, initialGroupStored_);
+  }
+  energiesAt(system_, y, initialStored, initialGroupStored_, summary);
   summary.finalTime = t;
 }
 
@@ -40,6 +66,17 @@ void BudgetRecorder::create(ResultsFile& f, const std::vector<std::string>& segm
       segmentFlow_.back().push_back(f.createSeries(g + "/heat_flow/" + ch, {}, "W",
                                                    "heat flow of one " + name + " by " + ch + ", positive into it"));
     segmentStorage_.push_back(f.createSeries(g + "/heat_flow/storage", {}, "W", "rate of heat storage of one " + name));
+    segmentEnergy_.emplace_back();
+    for (const std::string& ch : network_.channels)
+      segmentEnergy_.back().push_back(f.createSeries(g + "/cumulative_heat/" + ch, {}, "J",
+                                                     "heat gained by one " + name + " by " + ch +
+                                                         " since the start of the run (integrated by the solver)"));
+    segmentEnergy_.back().push_back(f.createSeries(g + "/cumulative_heat/storage", {}, "J",
+                                                   "change of the heat stored in one " + name +
+                                                       " since the start of the run"));
+    segmentBalance_.push_back(f.createSeries(g + "/energy_balance_error", {}, "J",
+                                             "heat gained by all channels of one " + name +
+                                                 " minus the change of its stored heat"));
   }
 }
 
@@ -69,6 +106,10 @@ void BudgetRecorder::write(ResultsFile& f, const RunSummary& summary) const {
   for (std::size_t g = 0; g < segmentFlow_.size(); ++g) {
     for (Index c = 0; c < channels; ++c) f.append(segmentFlow_[g][c], {&summary.flows[g * channels + c], 1});
     f.append(segmentStorage_[g], {&summary.storage[g], 1});
+    for (Index c = 0; c < channels; ++c)
+      f.append(segmentEnergy_[g][c], {&summary.segmentEnergy[g * channels + c], 1});
+    f.append(segmentEnergy_[g][channels], {&summary.segmentStoredChange[g], 1});
+    f.append(segmentBalance_[g], {&summary.segmentBalanceError[g], 1});
   }
 }
 

@@ -10,6 +10,12 @@
 
 namespace thermorph {
 
+//! Channel energies (whole body and per group), stored-heat changes and energy-balance errors of the state y
+//! (nodes, controls, channel energies, group energies) into `summary`; flows and storage rates untouched.
+//! `initialStored`, `initialGroupStored`: storedHeat() and groupStoredHeat() of the initial state.
+void energiesAt(const NetworkSystem& system, std::span<const double> y, double initialStored,
+                std::span<const double> initialGroupStored, RunSummary& summary);
+
 class BudgetRecorder {
  public:
   BudgetRecorder(const Network& network, const NetworkSystem& system) : network_(network), system_(system) {}
@@ -21,7 +27,8 @@ class BudgetRecorder {
   //! Whole-body heat flow per channel [W] (copies weighted) and storage [W] of a filled summary.
   static void bodyFlows(const Network& network, const RunSummary& summary, std::span<double> perChannel,
                         double& storage);
-  //! /body/heat_flow, /body/cumulative_heat, /body/energy_balance_error and /segments/*/heat_flow.
+  //! /body/heat_flow, /body/cumulative_heat, /body/energy_balance_error, /segments/*/heat_flow,
+  //! /segments/*/cumulative_heat and /segments/*/energy_balance_error.
   void create(ResultsFile& f, const std::vector<std::string>& segmentNames);
   void write(ResultsFile& f, const RunSummary& summary) const;
 
@@ -32,6 +39,9 @@ class BudgetRecorder {
   std::vector<std::size_t> flow_, energy_;
   std::vector<std::vector<std::size_t>> segmentFlow_;  //!< [group][channel]
   std::vector<std::size_t> segmentStorage_;
+  std::vector<std::vector<std::size_t>> segmentEnergy_;  //!< [group][channel + 1]: channels, then storage
+  std::vector<std::size_t> segmentBalance_;
+  mutable std::vector<double> initialGroupStored_;  //!< groupStoredHeat() at the first output
   mutable std::vector<double> bodyFlow_;  //!< [channel] scratch
 };
 

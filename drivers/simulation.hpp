@@ -42,6 +42,11 @@ struct RunSummary {
   double storedChange = 0.0;     //!< change of stored heat over the run [J]
   double energyBalanceError = 0.0;    //!< sum of channel energies minus stored change [J]
   double throughput = 0.0;       //!< gross heat exchanged, for the relative error [J]
+  //! Cumulative heat per group and channel since the start [groups x channels] [J], one copy of the group
+  //! (unweighted, as `flows`), integrated by CVODE with the state (NetworkSystem group energies).
+  std::vector<double> segmentEnergy;
+  std::vector<double> segmentStoredChange;  //!< change of the stored heat of one copy of each group [J]
+  std::vector<double> segmentBalanceError;  //!< per group: sum of its channel energies minus its stored change [J]
   std::vector<double> finalState;     //!< node temperatures [K]
   std::vector<double> controls;       //!< controller states at the last output [1]
   std::vector<std::string> warnings;     //!< every warning of the run: body, environment, then runWarnings

@@ -84,9 +84,10 @@ std::vector<MetricColumn> metricColumns(const Body& body, std::span<const Thresh
     for (const std::string& ch : n.channels)
       columns.push_back({"segments." + m.name + ".heat_flow." + ch, "W",
                          fmt::format("{} heat flow into {}{}, {}{}", ch, m.name, copies, window,
-                                     steady ? "" : " (trapezoid rule over the outputs)")});
+                                     steady ? "" : ", from the segment's cumulative channel energy")});
     columns.push_back({"segments." + m.name + ".heat_flow.storage", "W",
-                       fmt::format("rate of heat storage of {}{}, {}", m.name, copies, window)});
+                       fmt::format("rate of heat storage of {}{}, {}{}", m.name, copies, window,
+                                   steady ? "" : ", from the change of its stored heat")});
     addTemperature(3 + g, "tissue temperature of " + m.name + " (volume mean, coat excluded)");
   }
   for (const Threshold& th : thresholds)
@@ -161,9 +162,12 @@ void MetricCollector::sample(std::span<const double> y, const RunSummary& s) {
       }
     current_[k++] = weighted / cellVolume - kelvinOffset;
   }
+  // Segments: rates at a steady state; over a transient window the cumulative energies the integrator carries
+  // (their differences over the window are exact for its quadrature, whatever the output spacing).
   for (std::size_t g = 0; g < body_.segments().size(); ++g) {
-    for (std::size_t c = 0; c < channels; ++c) current_[k++] = s.flows[g * channels + c];
-    current_[k++] = s.storage[g];
+    for (std::size_t c = 0; c < channels; ++c)
+      current_[k++] = steady_ ? s.flows[g * channels + c] : s.segmentEnergy[g * channels + c];
+    current_[k++] = steady_ ? s.storage[g] : s.segmentStoredChange[g];
   }
   if (steady_) {
     // Whole-body flows at the steady state: weighted sums over every group, as the results file does.
@@ -253,7 +257,7 @@ std::vector<double> MetricCollector::values() const {
   };
   for (std::size_t q = 0; q < 3; ++q) temperature(q);
   for (std::size_t g = 0; g < body_.segments().size(); ++g) {
-    for (std::size_t c = 0; c <= channels; ++c) out.push_back(mean(temperatures_ + g * (channels + 1) + c));
+    for (std::size_t c = 0; c <= channels; ++c) out.push_back(difference(temperatures_ + g * (channels + 1) + c));
     temperature(3 + g);
   }
   for (double t : crossing_) out.push_back(t);

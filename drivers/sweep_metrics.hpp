@@ -38,9 +38,10 @@ std::vector<MetricColumn> metricColumns(const Body& body, std::span<const Thresh
 
 //! Follows one run output by output and reduces it to the values of metricColumns().
 //!
-//! Over the window [a, b]: a body channel's mean heat flow is (E(b) - E(a)) / (b - a) from the cumulative
-//! channel energies the integrator carries (exact for its quadrature); a segment's mean heat flow and every
-//! temperature's mean use the trapezoid rule over the outputs; min and max are over the outputs in the window;
+//! Over the window [a, b]: a body or segment channel's mean heat flow is (E(b) - E(a)) / (b - a) from the
+//! cumulative channel energies the integrator carries (exact for its quadrature, so they converge with the
+//! integrator whatever the output spacing); a storage mean is the change of stored heat over the window / (b - a);
+//! every temperature's mean uses the trapezoid rule over the outputs; min and max are over the outputs in the window;
 //! "final" is the value at b. Values between outputs are interpolated linearly. Thresholds are checked over the
 //! whole run, with linear interpolation between outputs.
 class MetricCollector {

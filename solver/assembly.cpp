@@ -16,7 +16,11 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       controls_(network.controllers.size()),
       channels_(network.channels.size()) {
   const bool transient = mode == Mode::Transient;
-  pattern_.size = nodes_ + controls_ + (transient ? channels_ : 0);
+  groups_ = transient ? network.groups.size() : 0;
+  pattern_.size = nodes_ + controls_ + (transient ? channels_ + groups_ * channels_ : 0);
+  groupRow_.assign(nodes_, none);
+  for (Index i = 0; i < nodes_; ++i)
+    if (network.nodes[i].group < groups_) groupRow_[i] = groupEnergyOffset() + network.nodes[i].group * channels_;
   nodeWeight_.resize(nodes_);
   for (Index i = 0; i < nodes_; ++i) {
     Index g = network.nodes[i].group;
@@ -85,6 +89,38 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       for (Index c = 0; c < channels_; ++c) add(accumulator(c), f.node);
   for (Index k = 0; k < controls_; ++k)
     for (auto [node, weight] : network.controllers[k].signal) add(nodes_ + k, node);
+  // Group energies: each term's flow into a group, in that group's row of the term's channel.
+  auto groupEntries = [&](auto&& visit) {
+    auto row = [&](Index node, Index channel) { return groupRow_[node] == none ? none : groupRow_[node] + channel; };
+    auto partColumns = [&](Index begin, Index end, Index r) {
+      for (Index p = begin; p < end; ++p)
+        if (Index u = controlColumn(network.flowParts[p].modulator); u != none) visit(r, u, &groupPartSlots_);
+    };
+    for (const Conductance& c : network.conductances) {
+      const bool across = network.nodes[c.a].group != network.nodes[c.b].group;
+      const Index ra = across ? row(c.a, c.channel) : none, rb = across ? row(c.b, c.channel) : none;
+      for (auto [r, col] : {std::pair{ra, c.a}, {ra, c.b}, {rb, c.a}, {rb, c.b}}) visit(r, col, &groupConductanceSlots_);
+    }
+    for (const Advection& a : network.advections) {
+      visit(row(a.to, a.channel), a.from, &groupAdvectionSlots_);
+      visit(row(a.to, a.channel), a.to, &groupAdvectionSlots_);
+      partColumns(a.partsBegin, a.partsEnd, row(a.to, a.channel));
+    }
+    for (const BoundaryExchange& e : network.exchanges) {
+      visit(row(e.node, e.channel), e.node, &groupExchangeSlots_);
+      partColumns(e.partsBegin, e.partsEnd, row(e.node, e.channel));
+    }
+    for (const HeatSource& s : network.sources) {
+      visit(row(s.node, s.channel), s.node, &groupSourceSlots_);
+      visit(row(s.node, s.channel), controlColumn(s.modulator), &groupSourceSlots_);
+    }
+    for (const SurfaceFace& f : network.faces)
+      for (Index c = 0; c < channels_; ++c) visit(row(f.node, c), f.node, &groupFaceSlots_);
+  };
+  if (transient)
+    groupEntries([&](Index r, Index col, std::vector<Index>*) {
+      if (r != none && col != none) add(r, col);
+    });
   std::sort(entries.begin(), entries.end());
   entries.erase(std::unique(entries.begin(), entries.end()), entries.end());
   if (entries.size() > std::numeric_limits<Slot>::max() || pattern_.size >= std::numeric_limits<Slot>::max())
@@ -156,6 +192,10 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
     controlSlots_.push_back(slot(nodes_ + k, nodes_ + k));
     for (auto [node, weight] : network.controllers[k].signal) controlSlots_.push_back(slot(nodes_ + k, node));
   }
+  if (transient)
+    groupEntries([&](Index r, Index col, std::vector<Index>* slots) {
+      slots->push_back(r != none && col != none ? slot(r, col) : none);
+    });
   faceGuess_.assign(network.faces.size(), std::nan(""));
   scratchHeat_.resize(channels_);
   scratchDerivative_.resize(channels_);
@@ -255,37 +295,57 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
   std::fill(out.begin(), out.end(), 0.0);
   std::span<double> acc = transient ? out.subspan(nodes_ + controls_, channels_) : std::span<double>();
   modulatorValues(time, T, modulators_);
+  // Flow q of channel c into one copy of the node's group (group energies, transient only).
+  auto toGroup = [&](Index node, Index channel, double q) {
+    if (groupRow_[node] != none) out[groupRow_[node] + channel] += q;
+  };
   for (std::size_t k = 0; k < network_.conductances.size(); ++k) {
     const Conductance& c = network_.conductances[k];
     double q = c.conductance * (T[c.b] - T[c.a]);
     out[c.a] += conductanceFactor_[2 * k] * q;
     out[c.b] -= conductanceFactor_[2 * k + 1] * q;
+    if (transient && network_.nodes[c.a].group != network_.nodes[c.b].group) {
+      toGroup(c.a, c.channel, conductanceFactor_[2 * k] * q);
+      toGroup(c.b, c.channel, -conductanceFactor_[2 * k + 1] * q);
+    }
   }
   for (const Advection& a : network_.advections) {
     double F = a.flowCapacity + partsValue(a.partsBegin, a.partsEnd, modulators_);
     double q = F * (T[a.from] - T[a.to]);
     out[a.to] += q;
-    if (transient) acc[a.channel] += nodeWeight_[a.to] * q;
+    if (transient) {
+      acc[a.channel] += nodeWeight_[a.to] * q;
+      toGroup(a.to, a.channel, q);
+    }
   }
   for (const BoundaryExchange& e : network_.exchanges) {
     double G = e.conductance + partsValue(e.partsBegin, e.partsEnd, modulators_);
     double q = G * (e.temperature - T[e.node]);
     out[e.node] += q;
-    if (transient) acc[e.channel] += nodeWeight_[e.node] * q;
+    if (transient) {
+      acc[e.channel] += nodeWeight_[e.node] * q;
+      toGroup(e.node, e.channel, q);
+    }
   }
   for (std::size_t i = 0; i < network_.sources.size(); ++i) {
     const HeatSource& s = network_.sources[i];
     double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
     double q = s.power * m * std::exp(q10Rate_[i] * (T[s.node] - s.referenceTemperature));
     out[s.node] += q;
-    if (transient) acc[s.channel] += nodeWeight_[s.node] * q;
+    if (transient) {
+      acc[s.channel] += nodeWeight_[s.node] * q;
+      toGroup(s.node, s.channel, q);
+    }
   }
   for (Index f = 0; f < network_.faces.size(); ++f) {
     Index node = network_.faces[f].node;
     solveFace(f, time, T[node], scratchHeat_, scratchDerivative_);
     for (Index c = 0; c < channels_; ++c) {
       out[node] += scratchHeat_[c];
-      if (transient) acc[c] += nodeWeight_[node] * scratchHeat_[c];
+      if (transient) {
+        acc[c] += nodeWeight_[node] * scratchHeat_[c];
+        toGroup(node, c, scratchHeat_[c]);
+      }
     }
   }
   for (Index k = 0; k < controls_; ++k) {
@@ -304,6 +364,13 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
   modulatorValues(time, T, modulators_);
   // d m_k / d u_control = schedule(t) for a part whose modulator has a control (evaluated just above).
   auto scheduleOf = [&](Index modulator) { return scheduleValues_[modulator]; };
+  // Group-energy rows (transient only): each slot list is consumed in the constructor's order; none: skipped.
+  std::size_t gk = 0, ga = 0, ge = 0, gs = 0, gf = 0, gp = 0;
+  auto toGroup = [&](const std::vector<Index>& slots, std::size_t& next, double d) {
+    if (!transient) return;
+    const Index s = slots[next++];
+    if (s != none) values[s] += d;
+  };
   std::size_t k = 0;
   for (std::size_t i = 0; i < network_.conductances.size(); ++i) {
     const double G = network_.conductances[i].conductance;
@@ -312,6 +379,10 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     values[conductanceSlots_[k++]] += fa * G;
     values[conductanceSlots_[k++]] -= fb * G;
     values[conductanceSlots_[k++]] += fb * G;
+    toGroup(groupConductanceSlots_, gk, -fa * G);
+    toGroup(groupConductanceSlots_, gk, fa * G);
+    toGroup(groupConductanceSlots_, gk, fb * G);
+    toGroup(groupConductanceSlots_, gk, -fb * G);
   }
   std::size_t a = 0, ps = 0;
   auto partDerivatives = [&](Index begin, Index end, double difference, double weight) {
@@ -321,6 +392,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
       double d = part.coefficient * scheduleOf(part.modulator) * difference;
       values[partSlots_[ps++]] += d;
       if (transient) values[partSlots_[ps++]] += weight * d;
+      toGroup(groupPartSlots_, gp, d);
     }
   };
   for (const Advection& adv : network_.advections) {
@@ -332,6 +404,8 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
       values[advectionSlots_[a++]] += w * F;
       values[advectionSlots_[a++]] -= w * F;
     }
+    toGroup(groupAdvectionSlots_, ga, F);
+    toGroup(groupAdvectionSlots_, ga, -F);
     partDerivatives(adv.partsBegin, adv.partsEnd, T[adv.from] - T[adv.to], w);
   }
   std::size_t e = 0;
@@ -339,6 +413,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     double G = ex.conductance + partsValue(ex.partsBegin, ex.partsEnd, modulators_);
     values[exchangeSlots_[e++]] -= G;
     if (transient) values[exchangeSlots_[e++]] -= nodeWeight_[ex.node] * G;
+    toGroup(groupExchangeSlots_, ge, -G);
     partDerivatives(ex.partsBegin, ex.partsEnd, ex.temperature - T[ex.node], nodeWeight_[ex.node]);
   }
   std::size_t so = 0;
@@ -350,11 +425,13 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     double dq = base * m * q10Rate_[i];
     values[sourceSlots_[so++]] += dq;
     if (transient) values[sourceSlots_[so++]] += nodeWeight_[s.node] * dq;
+    toGroup(groupSourceSlots_, gs, dq);
+    const double du = controlColumn(s.modulator) != none ? base * scheduleOf(s.modulator) : 0.0;
     if (controlColumn(s.modulator) != none) {
-      double du = base * scheduleOf(s.modulator);
       values[sourceSlots_[so++]] += du;
       if (transient) values[sourceSlots_[so++]] += nodeWeight_[s.node] * du;
     }
+    toGroup(groupSourceSlots_, gs, du);
   }
   std::size_t fs = 0;
   for (Index f = 0; f < network_.faces.size(); ++f) {
@@ -364,8 +441,10 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     for (Index c = 0; c < channels_; ++c) total += scratchDerivative_[c];
     values[faceSlots_[fs++]] += total * sol.dTsdTn;
     if (transient)
-      for (Index c = 0; c < channels_; ++c)
+      for (Index c = 0; c < channels_; ++c) {
         values[faceSlots_[fs++]] += nodeWeight_[node] * scratchDerivative_[c] * sol.dTsdTn;
+        toGroup(groupFaceSlots_, gf, scratchDerivative_[c] * sol.dTsdTn);
+      }
   }
   std::size_t cs = 0;
   for (Index kk = 0; kk < controls_; ++kk) {
@@ -436,6 +515,12 @@ double NetworkSystem::storedHeat(std::span<const double> T) const {
   double e = 0.0;
   for (Index i = 0; i < nodes_; ++i) e += nodeWeight_[i] * network_.nodes[i].capacity * T[i];
   return e;
+}
+
+void NetworkSystem::groupStoredHeat(std::span<const double> T, std::span<double> out) const {
+  std::fill(out.begin(), out.end(), 0.0);
+  for (Index i = 0; i < nodes_; ++i)
+    if (network_.nodes[i].group < out.size()) out[network_.nodes[i].group] += network_.nodes[i].capacity * T[i];
 }
 
 
@@ -527,6 +612,9 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
     const double h = parameter.step;
     std::fill(out.begin(), out.end(), 0.0);
     std::span<double> acc = transient ? out.subspan(nodes_ + controls_, channels_) : std::span<double>();
+    auto toGroup = [&](Index node, Index channel, double q) {
+      if (transient && groupRow_[node] != none) out[groupRow_[node] + channel] += q;
+    };
     // d m_k / d p at fixed control state: the schedule's derivative times the control.
     for (Index k = 0; k < dm.size(); ++k) {
       const Modulator& m = network_.modulators[k];
@@ -551,6 +639,10 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
       const double q = dG * (T[c.b] - T[c.a]);
       out[c.a] += conductanceFactor_[2 * k] * q;
       out[c.b] -= conductanceFactor_[2 * k + 1] * q;
+      if (network_.nodes[c.a].group != network_.nodes[c.b].group) {
+        toGroup(c.a, c.channel, conductanceFactor_[2 * k] * q);
+        toGroup(c.b, c.channel, -conductanceFactor_[2 * k + 1] * q);
+      }
     }
     for (std::size_t k = 0; k < network_.advections.size(); ++k) {
       const Advection& a = network_.advections[k];
@@ -559,6 +651,7 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
       const double q = dF * (T[a.from] - T[a.to]);
       out[a.to] += q;
       if (transient) acc[a.channel] += nodeWeight_[a.to] * q;
+      toGroup(a.to, a.channel, q);
     }
     for (std::size_t k = 0; k < network_.exchanges.size(); ++k) {
       const BoundaryExchange& e = network_.exchanges[k];
@@ -569,6 +662,7 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
       const double q = dG * (e.temperature - T[e.node]) + G * dTb;
       out[e.node] += q;
       if (transient) acc[e.channel] += nodeWeight_[e.node] * q;
+      toGroup(e.node, e.channel, q);
     }
     for (std::size_t i = 0; i < network_.sources.size(); ++i) {
       const HeatSource& s = network_.sources[i];
@@ -579,6 +673,7 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
       const double q = (dP * m + s.power * dmv) * std::exp(q10Rate_[i] * (T[s.node] - s.referenceTemperature));
       out[s.node] += q;
       if (transient) acc[s.channel] += nodeWeight_[s.node] * q;
+      toGroup(s.node, s.channel, q);
     }
     // A face: G (T_n - T_s) + q(T_s, p) = 0 with G = G(p). Implicit differentiation at fixed T_n:
     // dT_s/dp = (dq/dp|T_s + dG/dp (T_n - T_s)) / (G - q'(T_s)); the node receives q(T_s), so each channel's
@@ -606,6 +701,7 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
         const double dqc = hp[c] + faceSlope[f * channels_ + c] * dTs;
         out[node] += dqc;
         if (transient) acc[c] += nodeWeight_[node] * dqc;
+        toGroup(node, c, dqc);
       }
     }
     for (Index k = 0; k < controls_; ++k) {

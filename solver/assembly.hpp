@@ -35,8 +35,13 @@ struct ParameterNetworks {
 
 //! Right-hand side and Jacobian of a network.
 //! State: node temperatures [K], then controller states [1], then (transient only) one cumulative energy per
-//! channel [J]. Transient: dT/dt = Q_i / C_i, du/dt = (u* - u)/tau, dE_c/dt = sum of channel-c flows (weighted by
-//! group multiplicity). Steady: residuals Q_i [W] and u* - u.
+//! channel [J], then (transient only) one cumulative energy per group and channel [J] (row-major [groups x
+//! channels], one copy of the group). Transient: dT/dt = Q_i / C_i, du/dt = (u* - u)/tau, dE_c/dt = sum of
+//! channel-c flows (weighted by group multiplicity), dE_gc/dt = channel-c flow into one copy of group g (as
+//! groupFlows(), conduction across group boundaries included). Steady: residuals Q_i [W] and u* - u.
+//! The group energies are linear in the node rates: sum_c dE_gc/dt = sum_(i in g) C_i dT_i/dt identically, and
+//! the Jacobian carries the same identity, so BDF with Newton keeps sum_c E_gc = sum_(i in g) C_i (T_i - T_i(0))
+//! to round-off whatever the error control (CVODE's corrector preserves linear invariants).
 class NetworkSystem {
  public:
   enum class Mode { Transient, Steady };
@@ -46,6 +51,10 @@ class NetworkSystem {
   Index nodeCount() const { return nodes_; }
   Index controlCount() const { return controls_; }
   Index channelCount() const { return channels_; }
+  //! Groups with cumulative energies in the state (transient: every group; steady: 0).
+  Index groupCount() const { return groups_; }
+  //! First state index of the group energies (after the channel energies).
+  Index groupEnergyOffset() const { return nodes_ + controls_ + channels_; }
   const SparsePattern& pattern() const { return pattern_; }
   const Network& network() const { return network_; }
 
@@ -70,6 +79,8 @@ class NetworkSystem {
 
   //! Stored heat sum w C T of the nodes (weighted by group multiplicity) [J].
   double storedHeat(std::span<const double> state) const;
+  //! Stored heat sum C T of one copy of each group [J] [network groups], unweighted.
+  void groupStoredHeat(std::span<const double> state, std::span<double> out) const;
   //! Evaluate every term at this time whatever time the caller passes (steady states of the t = 0 surroundings
   //! found by integrating in pseudo-time); nullopt: use the caller's time.
   void freezeTime(std::optional<double> time) { frozenTime_ = time; }
@@ -107,6 +118,16 @@ class NetworkSystem {
   std::vector<Slot> faceSlots_;          //!< per face: (node,node), [(acc_c,node) per channel]
   std::vector<Slot> partSlots_;          //!< per flow part with a control: (row,u), [(acc,u)]
   std::vector<Slot> controlSlots_;       //!< per controller: (u,u), then (u,node) per signal entry
+  // Group energies: the state row of each node's group energy of channel 0 (none: no group energies), and the
+  // value slots of every term in those rows (none where a term does not reach them).
+  Index groups_ = 0;
+  std::vector<Index> groupRow_;                 //!< per node
+  std::vector<Index> groupConductanceSlots_;    //!< 4 per conductance: (g_a,a), (g_a,b), (g_b,a), (g_b,b)
+  std::vector<Index> groupAdvectionSlots_;      //!< 2 per advection: (g_to,from), (g_to,to)
+  std::vector<Index> groupExchangeSlots_;       //!< per exchange: (g,node)
+  std::vector<Index> groupSourceSlots_;         //!< per source: (g,node), (g,u) [none without a control]
+  std::vector<Index> groupFaceSlots_;           //!< per face: (g_c,node) per channel
+  std::vector<Index> groupPartSlots_;           //!< per flow part of advections and exchanges: (g,u) or none
   mutable std::vector<double> faceGuess_;  //!< last face temperatures, Newton start values
   mutable std::vector<double> scratchHeat_, scratchDerivative_, modulators_;
   mutable std::vector<double> scheduleValues_;  //!< schedule factor of each modulator at the last evaluation

@@ -91,7 +91,18 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
   memory_.reset(checkCreated(CVodeCreate(CV_BDF, ctx), "CVODE memory"));
   void* mem = memory_.get();
   check(CVodeInit(mem, &Integrator::rhsCallback, initialTime, state_.get()), "CVodeInit");
-  check(CVodeSVtolerances(mem, options.rtol, tolerances_.get()), "CVodeSVtolerances");
+  const auto counted = std::count_if(options.atol.begin(), options.atol.end(),
+                                     [](double a) { return a < IntegratorOptions::excludedTolerance; });
+  if (counted == 0) throw std::invalid_argument("every state component is excluded from the error test");
+  if (counted < n) {
+    // Excluded components get weight 0; the others sqrt(N / counted) / (rtol |y| + atol), so CVODE's RMS norms
+    // over all N components equal the norms over the counted ones (the steps do not depend on how many
+    // accumulators ride along).
+    weightScale_ = std::sqrt(static_cast<double>(n) / static_cast<double>(counted));
+    check(CVodeWFtolerances(mem, &Integrator::weightCallback), "CVodeWFtolerances");
+  } else {
+    check(CVodeSVtolerances(mem, options.rtol, tolerances_.get()), "CVodeSVtolerances");
+  }
   check(CVodeSetUserData(mem, this), "CVodeSetUserData");
   // CVODE's own messages go into the failure message, not straight to stderr (sweeps run many solvers).
   check(CVodeSetErrHandlerFn(mem, &Integrator::errorHandler, this), "CVodeSetErrHandlerFn");
@@ -123,6 +134,18 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
   }
 }
 
+int Integrator::weightCallback(N_Vector y, N_Vector weights, void* user) {
+  auto* self = static_cast<Integrator*>(user);
+  auto v = view(y);
+  auto w = view(weights);
+  const double rtol = self->options_.rtol, scale = self->weightScale_;
+  for (std::size_t i = 0; i < w.size(); ++i) {
+    const double atol = self->options_.atol[i];
+    w[i] = atol < IntegratorOptions::excludedTolerance ? scale / (rtol * std::abs(v[i]) + atol) : 0.0;
+  }
+  return 0;
+}
+
 Integrator::~Integrator() {
   if (sensitivityVectors_) N_VDestroyVectorArray(sensitivityVectors_, static_cast<int>(sensitivity_.count));
 }
@@ -148,9 +171,10 @@ void Integrator::enableSensitivities(SensitivityProblem problem) {
   for (std::size_t j = 0; j < sensitivity_.count; ++j) {
     const double scale = sensitivity_.scale[j] > 0.0 ? sensitivity_.scale[j] : 1.0;
     auto t = view(tolerances[j]);
-    for (Index i = 0; i < t.size(); ++i) t[i] = atol[i] / scale;
+    // The state's weight scaling (excluded components) applies to the sensitivities too: tolerances / weightScale_.
+    for (Index i = 0; i < t.size(); ++i) t[i] = atol[i] / scale / weightScale_;
   }
-  const int flag = CVodeSensSVtolerances(mem, options_.rtol, tolerances);
+  const int flag = CVodeSensSVtolerances(mem, options_.rtol / weightScale_, tolerances);
   N_VDestroyVectorArray(tolerances, ns);
   check(flag, "CVodeSensSVtolerances");
   check(CVodeSetSensErrCon(mem, sensitivity_.errorControl ? SUNTRUE : SUNFALSE), "CVodeSetSensErrCon");
@@ -232,8 +256,14 @@ int Integrator::linearSystemCallback(double t, N_Vector y, N_Vector, SUNMatrix A
 void Integrator::checkFinite(std::span<const double> values, const char* what) const {
   for (Index i = 0; i < values.size(); ++i)
     if (!std::isfinite(values[i])) {
-      std::string name = i < system_.nodeCount() ? system_.network().label(i)
-                                                 : "energy of channel " + system_.network().channels[i - system_.nodeCount()];
+      const Network& n = system_.network();
+      const Index channels = system_.channelCount(), controls = system_.nodeCount() + system_.controlCount();
+      std::string name = i < system_.nodeCount() ? n.label(i)
+                         : i < controls          ? "controller " + std::to_string(i - system_.nodeCount())
+                         : i < system_.groupEnergyOffset()
+                             ? "energy of channel " + n.channels[i - controls]
+                             : "energy of " + n.groups[(i - system_.groupEnergyOffset()) / channels] + " by " +
+                                   n.channels[(i - system_.groupEnergyOffset()) % channels];
       throw SolverError(fmt::format("{} is not finite at t = {:g} s: {} = {}", what, time_, name, values[i]));
     }
 }

@@ -35,7 +35,12 @@ enum class LinearSolverKind { Klu, Dense };
 
 struct IntegratorOptions {
   double rtol = 1e-6;
-  std::vector<double> atol;  //!< per state component
+  //! Per state component. A component with atol >= excludedTolerance (the cumulative energies) is left out of the
+  //! error and Newton convergence norms altogether: the others' weights are scaled by sqrt(N / counted), so the
+  //! norms (RMS over N components in CVODE) and the steps are those of a system without the excluded components,
+  //! whatever their number.
+  std::vector<double> atol;
+  static constexpr double excludedTolerance = 1e20;
   double maxStep = 0.0;      //!< [s], 0: none
   LinearSolverKind linearSolver = LinearSolverKind::Klu;
   int maxOrder = 5;
@@ -139,6 +144,7 @@ class Integrator {
                                  _generic_N_Vector** yS, _generic_N_Vector** ySdot, void* self, _generic_N_Vector*,
                                  _generic_N_Vector*);
   void fetchSensitivities();
+  static int weightCallback(_generic_N_Vector* y, _generic_N_Vector* weights, void* self);
   static int jacobianCallback(double t, _generic_N_Vector* y, _generic_N_Vector* fy, _generic_SUNMatrix* J,
                               void* self, _generic_N_Vector*, _generic_N_Vector*, _generic_N_Vector*);
   //! The Newton matrix A = I - gamma J for CVODE's sparse (KLU) path: J re-evaluated only when CVODE asks
@@ -167,6 +173,7 @@ class Integrator {
   std::vector<double> sensitivityJacobian_;
   double time_ = 0.0;
   double wallSeconds_ = 0.0;
+  double weightScale_ = 1.0;  //!< sqrt(N / counted components); 1: every component counted (CVODE's own weights)
   SolverStatistics previous_;  //!< counters of the intervals before the last restart
 };
 

@@ -45,9 +45,9 @@ TEST_CASE("a failing model stops CVODE with the flag, the time and a clear cause
   FailingSurface surface;
   Network network = twoNodes(&surface);
   NetworkSystem system(network, NetworkSystem::Mode::Transient);
-  std::vector<double> y{310.0, 310.0, 0.0};
+  std::vector<double> y{310.0, 310.0, 0.0, 0.0};  // nodes, the channel's energy, the group's energy
   IntegratorOptions options;
-  options.atol = {1e-8, 1e-8, 1e30};
+  options.atol = {1e-8, 1e-8, 1e30, 1e30};
   Integrator integrator(system, y, 0.0, options);
   integrator.advanceTo(4.0);
   CHECK(integrator.time() == 4.0);
@@ -74,10 +74,10 @@ TEST_CASE("two-node network relaxes to the exact steady state and conserves ener
   } surface;
   Network network = twoNodes(&surface);
   NetworkSystem system(network, NetworkSystem::Mode::Transient);
-  std::vector<double> y{310.0, 300.0, 0.0};
+  std::vector<double> y{310.0, 300.0, 0.0, 0.0};  // nodes, the channel's energy, the group's energy
   IntegratorOptions options;
   options.rtol = 1e-10;
-  options.atol = {1e-10, 1e-10, 1e30};
+  options.atol = {1e-10, 1e-10, 1e30, 1e30};
   Integrator integrator(system, y, 0.0, options);
   integrator.advanceTo(2000.0);
   auto state = integrator.state();
@@ -87,6 +87,8 @@ TEST_CASE("two-node network relaxes to the exact steady state and conserves ener
   double stored = 100.0 * (state[0] - 310.0) + 50.0 * (state[1] - 300.0);
   CHECK(state[2] == Approx(stored).epsilon(1e-10));
   CHECK(state[2] == Approx(-4000.0).epsilon(1e-6));
+  // Both nodes are one group: its energy is the body's.
+  CHECK(state[3] == Approx(stored).epsilon(1e-10));
 }
 
 TEST_CASE("a chain of N first-order lags follows the Erlang step response", "[solver][control]") {

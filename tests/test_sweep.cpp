@@ -159,11 +159,12 @@ TEST_CASE("sweep: metrics reproduce single runs bit for bit", "[sweep]") {
       const std::vector<double> energy = common::readDataset(h5, std::string("/body/cumulative_heat/") + ch);
       CHECK(column(plan, rows[r], std::string("body.heat_flow.") + ch) == (energy.back() - energy.front()) / span);
     }
-    // A segment's mean by the trapezoid rule over the stored outputs.
-    const std::vector<double> ear = common::readDataset(h5, "/segments/ears/heat_flow/convection");
-    double integral = 0.0;
-    for (std::size_t k = 1; k < time.size(); ++k) integral += (time[k] - time[k - 1]) * (ear[k - 1] + ear[k]) / 2.0;
-    CHECK(column(plan, rows[r], "segments.ears.heat_flow.convection") == integral / span);
+    // A segment's mean from its cumulative channel energy and its storage from its stored-heat change, both as
+    // the results file stores them.
+    const std::vector<double> ear = common::readDataset(h5, "/segments/ears/cumulative_heat/convection");
+    CHECK(column(plan, rows[r], "segments.ears.heat_flow.convection") == (ear.back() - ear.front()) / span);
+    const std::vector<double> stored = common::readDataset(h5, "/segments/ears/cumulative_heat/storage");
+    CHECK(column(plan, rows[r], "segments.ears.heat_flow.storage") == (stored.back() - stored.front()) / span);
     // Threshold time: linear interpolation of the stored skin temperature between outputs (the skin cools
     // from 37 degC in 15 degC air).
     const std::vector<double> skin = common::readDataset(h5, "/body/mean_skin_temperature");
