@@ -234,6 +234,12 @@ class Segment:
         """Heat flow of one copy of the segment by `channel` [W] ([nt]), None when not stored."""
         return self.read(f"heat_flow/{channel}").values if self.has(f"heat_flow/{channel}") else None
 
+    def cumulative_heat(self, channel: str) -> np.ndarray | None:
+        """Heat gained by one copy of the segment by `channel` since t = 0 [J] ([nt]), integrated by the solver;
+        `storage`: the change of its stored heat. None when not stored (files before these datasets)."""
+        path = f"cumulative_heat/{channel}"
+        return self.read(path).values if self.has(path) else None
+
     def heat_flow_channels(self) -> list[str]:
         """Heat-flow channels stored for this segment, in contract order."""
         if "heat_flow" not in self.group:
