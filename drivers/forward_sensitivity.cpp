@@ -430,7 +430,7 @@ ForwardSensitivityResult steadySensitivities(const std::string& caseText, const 
     // their derivatives by the chain rule of forwardSensitivities (state shifted by +- e ds, perturbed bodies).
     RunSummary summary;
     auto observe = [&](OutputProbe& probe, const NetworkSystem& sys, std::span<const double> state) {
-      summaryAt(sys, 0.0, state, sys.storedHeat(state), summary);
+      summaryAt(sys, 0.0, state, sys.storedHeat(state), groupStored(sys, state), summary);
       probe.observe(0.0, state.first(sys.nodeCount()), summary);
     };
     std::unique_ptr<OutputProbe> base = makeProbe(body);
