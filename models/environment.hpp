@@ -5,6 +5,7 @@
 #include <array>
 #include <span>
 #include <string>
+#include <limits>
 #include <vector>
 
 #include "models/case.hpp"
@@ -114,8 +115,11 @@ class EnvironmentModel : public SurfaceModel {
   mutable std::vector<std::string> warnings_;
   //! Last correlation result per face and the fluid it was for: the face Newton solve ends with a call a few nK
   //! from its last iterate, and the next right-hand side starts from the same face temperature.
+  //! `curvature` bounds |d2h/dT_s2| by the change of dh/dT_s between the last two evaluations for the same fluid
+  //! (infinite when unknown): it sets how far from its face temperature the first-order expansion may be used.
   struct CachedCoefficient {
     double faceTemperature = -1.0, fluidTemperature = -1.0, speed = 0.0, h = 0.0, dh = 0.0;
+    double curvature = std::numeric_limits<double>::infinity();
     Medium medium = Medium::Air;
   };
   mutable std::vector<CachedCoefficient> cache_;
