@@ -344,8 +344,10 @@ def last_digit_unit(text):
 
 
 def same(old, new):
-    """Equal text apart from numbers within one unit of the last digit or 1e-6 absolute."""
-    split_old, split_new = NUMBER_RE.split(old), NUMBER_RE.split(new)
+    """Equal text apart from numbers within one unit of the last digit or 1e-6 absolute, and whitespace runs."""
+    # Whitespace runs compare equal (a table column's padding follows a number's width, e.g. round-off signs).
+    split_old = [re.sub(r"\s+", " ", x) for x in NUMBER_RE.split(old)]
+    split_new = [re.sub(r"\s+", " ", x) for x in NUMBER_RE.split(new)]
     nums_old, nums_new = NUMBER_RE.findall(old), NUMBER_RE.findall(new)
     if split_old != split_new or len(nums_old) != len(nums_new):
         return False
