@@ -63,16 +63,18 @@ std::string overrideText(const SensitivityParameter& p, double v) {
   return p.unit.empty() ? fmt::format("{}={:.17g}", p.key, v) : fmt::format("{}={:.17g} {}", p.key, v, p.unit);
 }
 
-//! The outputs of one plain run (no sensitivities) with every parameter at its value.
+//! The outputs of one plain run (no sensitivities) with every parameter at its value; `steady`: of the steady
+//! state (runSteady, the one output at t = 0) instead of the transient run.
 std::vector<double> plainRun(const std::string& text, std::vector<std::string> overrides,
-                             const std::vector<SensitivityParameter>& ps, const ObservedData& data) {
+                             const std::vector<SensitivityParameter>& ps, const ObservedData& data,
+                             bool steady = false) {
   for (const SensitivityParameter& p : ps) overrides.push_back(overrideText(p, p.value));
   Body body(loadCaseFromString(text, "test.toml", overrides));
   ObservationSampler sampler(data, body);
   RunOptions o;
   o.quiet = true;
   o.observer = [&](double t, std::span<const double> y, const RunSummary& s) { sampler.observe(t, y, s); };
-  RunSummary r = runTransient(body, o);
+  RunSummary r = steady ? runSteady(body, o) : runTransient(body, o);
   REQUIRE(r.complete);
   return sampler.predictions();
 }
@@ -287,15 +289,7 @@ namespace {
 //! The probe's outputs at the steady state of the case (runSteady, the one output at t = 0).
 std::vector<double> plainSteady(const std::string& text, std::vector<std::string> overrides,
                                 const std::vector<SensitivityParameter>& ps, const ObservedData& data) {
-  for (const SensitivityParameter& p : ps) overrides.push_back(overrideText(p, p.value));
-  Body body(loadCaseFromString(text, "test.toml", overrides));
-  ObservationSampler sampler(data, body);
-  RunOptions o;
-  o.quiet = true;
-  o.observer = [&](double t, std::span<const double> y, const RunSummary& s) { sampler.observe(t, y, s); };
-  RunSummary r = runSteady(body, o);
-  REQUIRE(r.complete);
-  return sampler.predictions();
+  return plainRun(text, std::move(overrides), ps, data, true);
 }
 
 std::vector<double> centralDifferenceSteady(const std::string& text, const std::vector<std::string>& overrides,
