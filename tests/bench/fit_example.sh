@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
 # The fitting example study (cases/quadruped_fit.md) and the fit/sensitivity benchmarks (DEVELOPERS.md).
-#   bash tests/bench/fit_example.sh [make-data]
+#   bash tests/bench/fit_example.sh [make-data [only]]
 # make-data: regenerate cases/quadruped_logger.csv (invented: thermorph with the hidden values below plus
 # Gaussian noise of documented SD, seed 20261202). Then: the 4-parameter fit to the 200 observations, a Sobol'
 # analysis with 4 parameters and 512 base samples, Morris screening, uncertainty from the fitted covariance, the
@@ -60,6 +60,7 @@ with open(sys.argv[2], "w") as out:
         out.write(", ".join(row) + "\n")
 print("wrote", sys.argv[2], len(t) - 1, "rows")
 PY
+  [[ "${2:-}" == "only" ]] && exit 0
 fi
 free=(--free 'tissues.fur.conductivity=0.02 W/(m K):0.1 W/(m K)' --free 'segments.ears.vasomotor.shunt=0:1'
       --free 'segments.ears.vessels.countercurrent_conductance=0.005 W/K:0.2 W/K:log' --free 'body.activity=0.5:3')
