@@ -3,6 +3,8 @@
 #include <udunits2.h>
 
 #include <cctype>
+#include <cstdio>
+#include <tuple>
 #include <charconv>
 #include <map>
 #include <memory>
@@ -18,7 +20,8 @@ namespace {
 // udunits2 keeps global state and is not thread safe: one system, one lock.
 std::mutex unitMutex;
 
-ut_system* unitSystem() {
+// The full udunits2 database (about 110 kB of XML, several milliseconds to read): read on first use only.
+ut_system* fullSystem() {
   static ut_system* system = [] {
     ut_set_error_message_handler(ut_ignore);
     ut_system* s = ut_read_xml(nullptr);
@@ -28,16 +31,89 @@ ut_system* unitSystem() {
   return system;
 }
 
+// thermorph's small database (models/udunits/thermorph-units.xml): the source tree's copy of the build, or the
+// installed one (share/thermorph). Not found: every unit uses the full database.
+const std::string& smallPath() {
+  static const std::string path = [] {
+    // The source tree's first: a build's own copy; an installed executable reads the installed one.
+    for (const char* candidate : {THERMORPH_UNITS_XML_SOURCE, THERMORPH_UNITS_XML_INSTALLED})
+      if (std::FILE* f = std::fopen(candidate, "rb")) {
+        std::fclose(f);
+        return std::string(candidate);
+      }
+    return std::string();
+  }();
+  return path;
+}
+
+ut_system* smallSystem() {
+  static ut_system* system = [] {
+    ut_set_error_message_handler(ut_ignore);
+    return smallPath().empty() ? nullptr : ut_read_xml(smallPath().c_str());
+  }();
+  return system;
+}
+
+// Identifiers read with the small database. Each is defined there exactly as in the full database (the same
+// definitions, copied), and none is a prefixed form of something else in the full one; tests/test_units_small.cpp
+// converts each (and every unit of the schema and the example cases) with both databases and compares.
+constexpr std::string_view smallIdentifiers[] = {
+    "m", "km", "dm", "cm", "mm", "um", "\u00b5m", "nm", "meter", "meters", "metre", "metres",
+    "kg", "g", "mg", "gram", "grams", "kilogram", "kilograms",
+    "s", "ms", "min", "h", "hr", "d", "second", "seconds", "minute", "minutes", "hour", "hours", "day", "days",
+    "K", "degC", "kelvin",
+    "W", "mW", "kW", "watt", "watts", "J", "kJ", "MJ", "joule", "joules", "cal", "kcal",
+    "L", "l", "mL", "ml", "dL", "uL", "liter", "liters", "litre", "litres",
+    "Pa", "kPa", "hPa", "percent", "%",
+};
+
+bool isIdentifierByte(unsigned char c) { return std::isalpha(c) || c == '_' || c == '%' || c >= 0x80; }
+
+// True when every identifier of `text` (a run of letters, '_', '%' and non-ASCII bytes; digits, spaces,
+// operators and parentheses separate them) is one of smallIdentifiers.
+bool smallCovers(std::string_view text) {
+  std::size_t i = 0;
+  while (i < text.size()) {
+    if (!isIdentifierByte(static_cast<unsigned char>(text[i]))) {
+      ++i;
+      continue;
+    }
+    std::size_t j = i;
+    while (j < text.size() && isIdentifierByte(static_cast<unsigned char>(text[j]))) ++j;
+    const std::string_view word = text.substr(i, j - i);
+    bool known = false;
+    for (std::string_view id : smallIdentifiers) known = known || id == word;
+    if (!known) return false;
+    i = j;
+  }
+  return true;
+}
+
+std::string normalised(std::string_view text) {
+  std::string s(text);
+  // Accept the udunits-style "W m-2 K-1" and the common "W/(m2 K)" alike; "°C" as degC.
+  if (s == "°C" || s == "C" || s == "celsius") s = "degC";
+  return s;
+}
+
+// The database for a pair of unit strings (both parsed with the same one: udunits2 compares units of one system).
+ut_system* systemFor(UnitDatabase database, const std::string& unit, const std::string& siUnit) {
+  if (database == UnitDatabase::full) return fullSystem();
+  if (database == UnitDatabase::small) {
+    if (!smallSystem()) throw UnitError("udunits2: thermorph's small unit database was not found");
+    return smallSystem();
+  }
+  if (smallSystem() && smallCovers(unit) && smallCovers(siUnit)) return smallSystem();
+  return fullSystem();
+}
+
 struct UnitFree {
   void operator()(ut_unit* u) const { ut_free(u); }
 };
 using UnitPtr = std::unique_ptr<ut_unit, UnitFree>;
 
-UnitPtr parseUnit(std::string_view text) {
-  std::string s(text);
-  // Accept the udunits-style "W m-2 K-1" and the common "W/(m2 K)" alike; "°C" as degC.
-  if (s == "°C" || s == "C" || s == "celsius") s = "degC";
-  return UnitPtr(ut_parse(unitSystem(), ut_trim(s.data(), UT_UTF8), UT_UTF8));
+UnitPtr parseUnit(ut_system* system, std::string s) {
+  return UnitPtr(ut_parse(system, ut_trim(s.data(), UT_UTF8), UT_UTF8));
 }
 
 }  // namespace
@@ -70,12 +146,27 @@ std::string quantityName(std::string_view siUnit) {
 
 bool unitConvertible(std::string_view unit, std::string_view siUnit) {
   std::lock_guard lock(unitMutex);
-  UnitPtr from = parseUnit(unit);
-  UnitPtr to = parseUnit(siUnit);
+  const std::string u = normalised(unit), si = normalised(siUnit);
+  ut_system* system = systemFor(UnitDatabase::automatic, u, si);
+  UnitPtr from = parseUnit(system, u);
+  UnitPtr to = parseUnit(system, si);
   return from && to && ut_are_convertible(from.get(), to.get());
 }
 
 double convertUnit(double value, std::string_view unit, std::string_view siUnit) {
+  return convertUnitWith(UnitDatabase::automatic, value, unit, siUnit);
+}
+
+std::span<const std::string_view> smallUnitIdentifiers() { return smallIdentifiers; }
+
+bool smallUnitDatabaseCovers(std::string_view unit) { return smallCovers(normalised(unit)); }
+
+std::string smallUnitDatabasePath() {
+  std::lock_guard lock(unitMutex);
+  return smallSystem() ? smallPath() : std::string();
+}
+
+double convertUnitWith(UnitDatabase database, double value, std::string_view unit, std::string_view siUnit) {
   std::lock_guard lock(unitMutex);
   // udunits2's converter of each (unit, SI unit) pair is kept for the process: a case and the schema's defaults
   // name few distinct units, and parsing them again for every value (and every run of a sweep) cost more than
@@ -83,14 +174,17 @@ double convertUnit(double value, std::string_view unit, std::string_view siUnit)
   struct ConverterFree {
     void operator()(cv_converter* c) const { cv_free(c); }
   };
-  static std::map<std::pair<std::string, std::string>, std::unique_ptr<cv_converter, ConverterFree>, std::less<>>
+  static std::map<std::tuple<std::string, std::string, ut_system*>, std::unique_ptr<cv_converter, ConverterFree>,
+                  std::less<>>
       converters;
-  std::pair<std::string, std::string> key{std::string(unit), std::string(siUnit)};
+  const std::string u = normalised(unit), si = normalised(siUnit);
+  ut_system* system = systemFor(database, u, si);
+  std::tuple<std::string, std::string, ut_system*> key{std::string(unit), std::string(siUnit), system};
   auto it = converters.find(key);
   if (it == converters.end()) {
-    UnitPtr from = parseUnit(unit);
+    UnitPtr from = parseUnit(system, u);
     if (!from) throw UnitError(fmt::format("\"{}\" is not a unit udunits2 understands", unit));
-    UnitPtr to = parseUnit(siUnit);
+    UnitPtr to = parseUnit(system, si);
     if (!to) throw UnitError(fmt::format("internal: bad SI unit \"{}\"", siUnit));
     if (!ut_are_convertible(from.get(), to.get()))
       throw UnitError(fmt::format("unit \"{}\" is not a {} (not convertible to {})", unit, quantityName(siUnit),

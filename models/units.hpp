@@ -1,5 +1,6 @@
 #pragma once
 //! Unit strings parsed with udunits2 and converted to SI.
+#include <span>
 #include <stdexcept>
 #include <string>
 #include <string_view>
@@ -31,5 +32,20 @@ ValueWithUnit splitValueUnit(std::string_view text);
 
 //! Parse `text` and convert to `siUnit`; throws UnitError naming the expected unit.
 double parseQuantity(std::string_view text, std::string_view siUnit);
+
+//! Which udunits2 unit database parses a unit string. `automatic` (what every function above uses): the small
+//! database shipped with thermorph (models/udunits/thermorph-units.xml, a verbatim subset of udunits2's own,
+//! read in about a tenth of the time) when every identifier in both strings is one of smallUnitIdentifiers(),
+//! else the full database (read on first use). An identifier outside that list is never read with the small
+//! database, where it could parse as something else (a prefix and a unit: "ft" as femto-tonne).
+enum class UnitDatabase { automatic, small, full };
+//! Convert with a chosen database (tests compare the two; `small` throws UnitError when it is not found).
+double convertUnitWith(UnitDatabase database, double value, std::string_view unit, std::string_view siUnit);
+//! The identifiers the small database is used for; each converts as with the full database (tested).
+std::span<const std::string_view> smallUnitIdentifiers();
+//! True when `unit` is read with the small database (every identifier in it is one of smallUnitIdentifiers()).
+bool smallUnitDatabaseCovers(std::string_view unit);
+//! The small database's file, or "" when none was found (then every unit uses the full database).
+std::string smallUnitDatabasePath();
 
 }  // namespace thermorph
