@@ -37,6 +37,17 @@ void writeStringAttribute(hid_t object, const std::string& name, const std::stri
   H5Tclose(type);
 }
 
+//! A scalar numeric attribute of `object` (replaced when present).
+template <class T>
+void writeScalarAttribute(hid_t object, const std::string& name, hid_t type, T value) {
+  hid_t space = H5Screate(H5S_SCALAR);
+  if (H5Aexists(object, name.c_str()) > 0) H5Adelete(object, name.c_str());
+  hid_t attr = H5Acreate2(object, name.c_str(), type, space, H5P_DEFAULT, H5P_DEFAULT);
+  H5Awrite(attr, type, &value);
+  H5Aclose(attr);
+  H5Sclose(space);
+}
+
 }  // namespace
 
 ResultsFile::ResultsFile(std::string finalPath) : finalPath_(std::move(finalPath)) {
@@ -58,8 +69,11 @@ const std::string& ResultsFile::temporaryPath() const { return temporary_->path(
 
 bool ResultsFile::close() {
   bool ok = true;
-  for (Series& s : series_) ok = H5Dclose(s.dataset) >= 0 && ok;
+  for (Series& s : series_)
+    if (s.dataset >= 0) ok = H5Dclose(s.dataset) >= 0 && ok;
   series_.clear();
+  for (const auto& [path, group] : groups_) ok = H5Gclose(group) >= 0 && ok;
+  groups_.clear();
   if (file_ >= 0) {
     // The handle is given up whatever H5Fclose returns: closing it again (the destructor after a failed
     // commit) crashed HDF5.
@@ -71,7 +85,12 @@ bool ResultsFile::close() {
 }
 
 long long ResultsFile::ensureGroup(const std::string& path) {
-  // Create every missing group along `path`; return the deepest (caller closes).
+  // Create every missing group along `path`; return the deepest (caller closes). Groups made or opened here stay
+  // open until the file is closed (one handle per group path): most datasets go into a group already used.
+  if (auto it = groups_.find(path); it != groups_.end()) {
+    H5Iinc_ref(it->second);
+    return it->second;
+  }
   std::string partial;
   hid_t group = H5Gopen2(file_, "/", H5P_DEFAULT);
   std::size_t start = 1;
@@ -88,6 +107,10 @@ long long ResultsFile::ensureGroup(const std::string& path) {
       group = next;
     }
     start = end + 1;
+  }
+  if (group >= 0) {
+    groups_.emplace(path, group);
+    H5Iinc_ref(group);
   }
   return group;
 }
@@ -187,17 +210,25 @@ std::size_t ResultsFile::createDataset(const std::string& path, const std::vecto
   // Chunks of about 64 KiB: several time points of the whole field.
   std::uint64_t perPoint = std::accumulate(shape.begin(), shape.end(), std::uint64_t{1}, std::multiplies<>());
   chunk.push_back(std::max<hsize_t>(1, 8192 / std::max<std::uint64_t>(perPoint, 1)));
-  // All the expected points in one chunk: that chunk, uncompressed (at most 64 KiB).
-  const bool small = expectedPoints_ > 0 && std::max<std::uint64_t>(perPoint, 1) * expectedPoints_ <= 8192;
-  if (small) chunk[0] = expectedPoints_;
+  // All the expected points at most 128 KiB: kept in memory, created and written whole at commit (expectPoints).
+  const bool small = expectedPoints_ > 0 && std::max<std::uint64_t>(perPoint, 1) * expectedPoints_ <= 16384;
+  if (small) {
+    H5Gclose(group);
+    Series s{-1, shape, 0, expectedPoints_};
+    s.deferred = true;
+    s.path = path;
+    s.units = units;
+    s.longName = longName;
+    s.pending.reserve(std::max<std::uint64_t>(perPoint, 1) * expectedPoints_);
+    series_.push_back(std::move(s));
+    return series_.size() - 1;
+  }
   for (auto s : shape) chunk.push_back(s);
   hid_t space = H5Screate_simple(static_cast<int>(dims.size()), dims.data(), maxDims.data());
   hid_t plist = H5Pcreate(H5P_DATASET_CREATE);
   H5Pset_chunk(plist, static_cast<int>(chunk.size()), chunk.data());
-  if (!small) {
-    H5Pset_shuffle(plist);
-    H5Pset_deflate(plist, 1);  // level 1: most of the size gain at a fraction of the time
-  }
+  H5Pset_shuffle(plist);
+  H5Pset_deflate(plist, 1);  // level 1: most of the size gain at a fraction of the time
   hid_t ds = H5Dcreate2(group, name.c_str(), H5T_NATIVE_DOUBLE, space, H5P_DEFAULT, plist, H5P_DEFAULT);
   checkH5(ds, "create " + path);
   writeStringAttribute(ds, "units", units);
@@ -213,7 +244,10 @@ std::size_t ResultsFile::createTime(const std::string& units, const std::string&
   time_ = createDataset("/time", {}, units, longName);
   timeUnits_ = units;
   timeLongName_ = longName;
-  checkH5(H5DSset_scale(series_[time_].dataset, "time"), "make /time a dimension scale");
+  if (series_[time_].deferred)
+    series_[time_].scaleName = "time";
+  else
+    checkH5(H5DSset_scale(series_[time_].dataset, "time"), "make /time a dimension scale");
   groupTimes_.emplace_back("/", time_);
   return time_;
 }
@@ -223,17 +257,66 @@ std::size_t ResultsFile::groupTime(const std::string& group) {
     if (g == group) return series;
   if (time_ == noSeries) throw std::logic_error("ResultsFile: createTime before any other series");
   std::size_t copy = createDataset(group + "/time", {}, timeUnits_, timeLongName_);
-  checkH5(H5DSset_scale(series_[copy].dataset, "time"), "make " + group + "/time a dimension scale");
-  // Catch up with the points already written (series created after the first output).
-  flush(time_);
-  if (series_[time_].count > 0) {
-    std::vector<double> times(series_[time_].count);
-    checkH5(H5Dread(series_[time_].dataset, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, times.data()),
-            "read /time");
-    for (double t : times) append(copy, {&t, 1});
-  }
+  if (series_[copy].deferred)
+    series_[copy].scaleName = "time";
+  else
+    checkH5(H5DSset_scale(series_[copy].dataset, "time"), "make " + group + "/time a dimension scale");
+  // Catch up with the points already recorded (series created after the first output).
+  for (double t : pointsSoFar(time_)) append(copy, {&t, 1});
   groupTimes_.emplace_back(group, copy);
   return copy;
+}
+
+std::vector<double> ResultsFile::pointsSoFar(std::size_t index) {
+  Series& s = series_.at(index);
+  if (s.deferred) return s.pending;
+  flush(index);
+  std::vector<double> values(s.count * std::accumulate(s.shape.begin(), s.shape.end(), std::uint64_t{1},
+                                                      std::multiplies<>()));
+  if (!values.empty())
+    checkH5(H5Dread(s.dataset, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, values.data()), "read a series");
+  return values;
+}
+
+std::size_t ResultsFile::deferredSeries(const std::string& path) const {
+  for (std::size_t i = 0; i < series_.size(); ++i)
+    if (series_[i].deferred && series_[i].path == path) return i;
+  return noSeries;
+}
+
+void ResultsFile::materialise(std::size_t index) {
+  Series& s = series_.at(index);
+  const std::uint64_t perPoint =
+      std::accumulate(s.shape.begin(), s.shape.end(), std::uint64_t{1}, std::multiplies<>());
+  const hsize_t rows = perPoint == 0 ? 0 : s.pending.size() / perPoint;
+  std::vector<hsize_t> dims{rows};
+  for (auto d : s.shape) dims.push_back(d);
+  auto [parent, name] = splitPath(s.path);
+  hid_t group = ensureGroup(parent);
+  hid_t space = H5Screate_simple(static_cast<int>(dims.size()), dims.data(), nullptr);
+  hid_t plist = H5Pcreate(H5P_DATASET_CREATE);
+  // Compact: the values inside the dataset's object header (no separate block); limit 64 KiB with the header.
+  if (!s.pending.empty() && s.pending.size() * sizeof(double) <= 32768) H5Pset_layout(plist, H5D_COMPACT);
+  hid_t ds = H5Dcreate2(group, name.c_str(), H5T_NATIVE_DOUBLE, space, H5P_DEFAULT, plist, H5P_DEFAULT);
+  H5Pclose(plist);
+  H5Sclose(space);
+  H5Gclose(group);
+  checkH5(ds, "create " + s.path);
+  s.dataset = ds;
+  s.deferred = false;
+  s.count = rows;
+  if (!s.pending.empty())
+    checkH5(H5Dwrite(ds, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, s.pending.data()), "write " + s.path);
+  s.pending = {};
+  writeStringAttribute(ds, "units", s.units);
+  if (!s.longName.empty()) writeStringAttribute(ds, "long_name", s.longName);
+  for (const PendingAttribute& a : s.attributes) {
+    if (a.kind == 0) writeStringAttribute(ds, a.name, a.text);
+    if (a.kind == 1) writeScalarAttribute(ds, a.name, H5T_NATIVE_DOUBLE, a.number);
+    if (a.kind == 2) writeScalarAttribute(ds, a.name, H5T_NATIVE_LONG, a.integer);
+  }
+  s.attributes.clear();
+  if (!s.scaleName.empty()) checkH5(H5DSset_scale(ds, s.scaleName.c_str()), "make " + s.path + " a dimension scale");
 }
 
 std::size_t ResultsFile::createSeries(const std::string& path, const std::vector<std::uint64_t>& shape,
@@ -242,20 +325,21 @@ std::size_t ResultsFile::createSeries(const std::string& path, const std::vector
   const std::string parent = splitPath(path).first;
   const std::size_t time = groupTime(parent);
   const std::size_t index = createDataset(path, shape, units, longName);
-  checkH5(H5DSattach_scale(series_[index].dataset, series_[time].dataset, 0), "attach time to " + path);
+  // Attached at commit, when every series exists in the file.
+  attachments_.push_back({index, time, "", 0});
   for (std::size_t i = 0; i < dims.size(); ++i) {
     if (dims[i].empty()) continue;
     const std::string scalePath = (parent == "/" ? "" : parent) + "/" + dims[i];
-    hid_t scale = H5Dopen2(file_, scalePath.c_str(), H5P_DEFAULT);
-    checkH5(scale, "open coordinate " + scalePath);
-    herr_t status = H5DSattach_scale(series_[index].dataset, scale, static_cast<unsigned>(i + 1));
-    H5Dclose(scale);
-    checkH5(status, "attach " + scalePath + " to " + path);
+    attachments_.push_back({index, noSeries, scalePath, static_cast<unsigned>(i + 1)});
   }
   return index;
 }
 
 void ResultsFile::makeCoordinate(const std::string& path) {
+  if (std::size_t d = deferredSeries(path); d != noSeries) {
+    series_[d].scaleName = splitPath(path).second;
+    return;
+  }
   hid_t ds = H5Dopen2(file_, path.c_str(), H5P_DEFAULT);
   checkH5(ds, "open " + path);
   herr_t status = H5DSset_scale(ds, splitPath(path).second.c_str());
@@ -265,6 +349,12 @@ void ResultsFile::makeCoordinate(const std::string& path) {
 
 void ResultsFile::attachDimensions(const std::string& path, const std::vector<std::string>& dims) {
   const std::string parent = splitPath(path).first;
+  if (std::size_t d = deferredSeries(path); d != noSeries) {
+    for (std::size_t i = 0; i < dims.size(); ++i)
+      if (!dims[i].empty())
+        attachments_.push_back({d, noSeries, (parent == "/" ? "" : parent) + "/" + dims[i], static_cast<unsigned>(i)});
+    return;
+  }
   hid_t ds = H5Dopen2(file_, path.c_str(), H5P_DEFAULT);
   checkH5(ds, "open " + path);
   for (std::size_t i = 0; i < dims.size(); ++i) {
@@ -295,7 +385,7 @@ void ResultsFile::append(std::size_t index, std::span<const double> values) {
 
 void ResultsFile::flush(std::size_t index) {
   Series& s = series_.at(index);
-  if (s.pending.empty()) return;
+  if (s.pending.empty() || s.deferred) return;
   const std::uint64_t perPoint = std::max<std::uint64_t>(
       1, std::accumulate(s.shape.begin(), s.shape.end(), std::uint64_t{1}, std::multiplies<>()));
   const hsize_t rows = s.pending.size() / perPoint;
@@ -318,31 +408,37 @@ void ResultsFile::flush(std::size_t index) {
 }
 
 void ResultsFile::setAttribute(const std::string& object, const std::string& name, const std::string& value) {
+  if (std::size_t d = deferredSeries(object); d != noSeries) {
+    PendingAttribute a{name, 0, "", 0.0, 0};
+    a.text = value;
+    series_[d].attributes.push_back(std::move(a));
+    return;
+  }
   hid_t obj = openObject(object);
   writeStringAttribute(obj, name, value);
   H5Oclose(obj);
 }
 
-namespace {
-//! A scalar numeric attribute of `object` (replaced when present).
-template <class T>
-void writeScalarAttribute(hid_t object, const std::string& name, hid_t type, T value) {
-  hid_t space = H5Screate(H5S_SCALAR);
-  if (H5Aexists(object, name.c_str()) > 0) H5Adelete(object, name.c_str());
-  hid_t attr = H5Acreate2(object, name.c_str(), type, space, H5P_DEFAULT, H5P_DEFAULT);
-  H5Awrite(attr, type, &value);
-  H5Aclose(attr);
-  H5Sclose(space);
-}
-}  // namespace
 
 void ResultsFile::setAttribute(const std::string& object, const std::string& name, double value) {
+  if (std::size_t d = deferredSeries(object); d != noSeries) {
+    PendingAttribute a{name, 1, "", 0.0, 0};
+    a.number = value;
+    series_[d].attributes.push_back(std::move(a));
+    return;
+  }
   hid_t obj = openObject(object);
   writeScalarAttribute(obj, name, H5T_NATIVE_DOUBLE, value);
   H5Oclose(obj);
 }
 
 void ResultsFile::setAttribute(const std::string& object, const std::string& name, long value) {
+  if (std::size_t d = deferredSeries(object); d != noSeries) {
+    PendingAttribute a{name, 2, "", 0.0, 0};
+    a.integer = value;
+    series_[d].attributes.push_back(std::move(a));
+    return;
+  }
   hid_t obj = openObject(object);
   writeScalarAttribute(obj, name, H5T_NATIVE_LONG, value);
   H5Oclose(obj);
@@ -352,7 +448,21 @@ std::string ResultsFile::commit(const std::string& otherPath) {
   const std::string target = otherPath.empty() ? finalPath_ : otherPath;
   bool flushed = true;
   try {
-    for (std::size_t i = 0; i < series_.size(); ++i) flush(i);  // the last, partly filled chunks
+    for (std::size_t i = 0; i < series_.size(); ++i) {
+      if (series_[i].deferred)
+        materialise(i);  // the small series, whole
+      else
+        flush(i);  // the last, partly filled chunks
+    }
+    for (const Attachment& a : attachments_) {
+      const hid_t scale = a.scaleSeries != noSeries ? series_[a.scaleSeries].dataset
+                                                    : H5Dopen2(file_, a.scalePath.c_str(), H5P_DEFAULT);
+      checkH5(scale, "open coordinate " + a.scalePath);
+      const herr_t status = H5DSattach_scale(series_[a.series].dataset, scale, a.axis);
+      if (a.scaleSeries == noSeries) H5Dclose(scale);
+      checkH5(status, "attach a dimension scale");
+    }
+    attachments_.clear();
   } catch (const std::exception&) {
     flushed = false;
   }

@@ -9,6 +9,7 @@
 //! there; the time dimension of each series is attached to its group's copy. Other axes are attached to
 //! coordinates of the same group made with makeCoordinate (e.g. a segment's `radius` and `axial`).
 #include <cstdint>
+#include <map>
 #include <memory>
 #include <span>
 #include <string>
@@ -35,8 +36,10 @@ class ResultsFile {
                                  const std::vector<std::string>& values);
 
   //! The number of time points the series will get (0: not known; the default). A series whose points
-  //! altogether fit in one chunk (8192 values) is then stored in one uncompressed chunk of that many points:
-  //! deflating a few hundred bytes cost more CPU time than anything else in writing a small run's file.
+  //! altogether are at most 16384 values (128 KiB) is then kept in memory and written when the file is committed,
+  //! with the number of points recorded, in one write, uncompressed (compact layout up to 32 KiB, else contiguous;
+  //! not extensible): deflating a few kilobytes and the chunk index of each small series cost more CPU time than
+  //! anything else in writing a small run's file. Other series are chunked, deflated and written a chunk at a time.
   void expectPoints(std::uint64_t points) { expectedPoints_ = points; }
   //! The time coordinate /time [nt] (a dimension scale); returns a handle for append(), which also extends
   //! every group's copy. Create it before any other series.
@@ -68,13 +71,40 @@ class ResultsFile {
   std::size_t groupTime(const std::string& group);
   std::size_t createDataset(const std::string& path, const std::vector<std::uint64_t>& shape,
                             const std::string& units, const std::string& longName);
+  //! An attribute of a series written at commit (a deferred series does not exist in the file before).
+  struct PendingAttribute {
+    std::string name;
+    int kind;  //!< 0 text, 1 double, 2 long
+    std::string text;
+    double number;
+    long integer;
+  };
   struct Series {
-    long long dataset;
+    long long dataset;                  //!< -1 while deferred
     std::vector<std::uint64_t> shape;
     std::uint64_t count;                //!< time points in the file
     std::uint64_t chunkRows = 1;        //!< time points per chunk
     std::vector<double> pending = {};   //!< time points appended but not yet written (fewer than a chunk)
+    bool deferred = false;              //!< created and written whole at commit (see expectPoints)
+    std::string path = {}, units = {}, longName = {}, scaleName = {};
+    std::vector<PendingAttribute> attributes = {};
   };
+  //! A dimension scale attached at commit: axis `axis` of series `series` to series `scaleSeries` or the
+  //! dataset `scalePath`.
+  struct Attachment {
+    std::size_t series;
+    std::size_t scaleSeries;
+    std::string scalePath;
+    unsigned axis;
+  };
+  //! The deferred series at `path`, or noSeries.
+  std::size_t deferredSeries(const std::string& path) const;
+  //! Create, write and close-ready a deferred series (at commit).
+  void materialise(std::size_t index);
+  //! The time points of series `index` so far (written and pending).
+  std::vector<double> pointsSoFar(std::size_t index);
+  std::vector<Attachment> attachments_;
+  std::map<std::string, long long> groups_;  //!< open group handles by path (ensureGroup)
   //! Closes every series and the file; false when HDF5 could not flush them.
   bool close();
   //! Write the pending time points of series `index` in one extent change and one write.
