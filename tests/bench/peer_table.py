@@ -1,7 +1,9 @@
 #!/usr/bin/python3
 """One table, one run: thermorph against the SciPy peer (scipy_bdf.py), per-run cost in sweeps, start-up, memory.
 
-    peer_table.py [--repeat N] [--sweep-runs N] NAME=EXE [NAME=EXE ...]
+    peer_table.py [--repeat N] [--sweep-runs N] [--only PARTS] NAME=EXE [NAME=EXE ...]
+
+--only peer,sweep,startup,memory selects parts of the table (default: all).
 
 Each NAME=EXE is a thermorph executable (e.g. before=/tmp/old/thermorph after=build/thermorph); the table has
 one column per executable, so a before/after comparison is measured in the same session under the same load.
@@ -114,8 +116,11 @@ def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--repeat", type=int, default=5)
     ap.add_argument("--sweep-runs", type=int, default=10)
+    ap.add_argument("--only", default="peer,sweep,startup,memory",
+                    help="comma-separated parts: peer, sweep, startup, memory (default: all)")
     ap.add_argument("exes", nargs="+")
     args = ap.parse_args()
+    parts = set(args.only.split(","))
     exes = [tuple(e.split("=", 1)) if "=" in e else (e, e) for e in args.exes]
     exes = [(name, str(Path(path).resolve())) for name, path in exes]
     work = Path(tempfile.mkdtemp(prefix="thermorph-peer."))
@@ -131,7 +136,7 @@ def main():
         for c in STUDIES:
             shutil.copy(HERE / "studies" / f"{c}.toml", work / f"{c}.toml")
         # ---- the peer problem ----
-        for cells, whole_target, solver_target in ((500, 5, 10), (5000, 3, None), (20000, 2, None)):
+        for cells, whole_target, solver_target in ((500, 5, 10), (5000, 3, None), (20000, 2, None)) if "peer" in parts else ():
             case = work / f"radial_{cells}.toml"
             case.write_text(radial_case(cells))
             sp = best([PY, SCIPY, "run", str(case), str(work / "s.npz")], work, R)
@@ -157,7 +162,7 @@ def main():
         # ---- per-run CPU in a sweep ----
         K = args.sweep_runs
         base = {}
-        for c in STUDIES:
+        for c in STUDIES if "sweep" in parts else ():
             cells = {}
             for name, exe in exes:
                 sweep = [exe, "sweep", str(work / f"{c}.toml"), "-j", "1", "-q", "-o", str(work / f"sw_{name}.h5")]
@@ -174,30 +179,33 @@ def main():
                          ("met" if cells[first] / cells[exes[-1][0]] >= 4 else "MISSED") if len(exes) > 1 else ""))
             base[c] = cells
         cells = {}
-        for name, exe in exes:
+        for name, exe in exes if "sweep" in parts else ():
             n = 20 * ncpu
             r = measure([exe, "sweep", str(work / "hare_ears.toml"), "-j", str(ncpu), "-q", "-o",
                          str(work / f"swj_{name}.h5"), "--scale", f"body=1:1:{n}"], work)
             cells[name] = f"{n / r.wall:.1f} runs/s ({n} runs, {ncpu} threads)"
-        rows.append(("hare_ears: sweep on all cores", "", cells, "", ""))
+        if "sweep" in parts:
+            rows.append(("hare_ears: sweep on all cores", "", cells, "", ""))
         # ---- start-up ----
         small = work / "radial_98.toml"
         small.write_text(radial_case(98, duration=3600.0, interval=36.0))
         cells, last = {}, 0.0
-        for name, exe in exes:
+        for name, exe in exes if "startup" in parts else ():
             r = best([exe, "check", str(work / "hare_ears.toml")], work, R)
             cells[name] = f"{fmt_s(r.wall)} (CPU {fmt_s(r.cpu)}, RSS {r.rss / 2**20:.1f} MB)"
-        rows.append(("start-up: `check` hare_ears", "", cells, "", ""))
+        if "startup" in parts:
+            rows.append(("start-up: `check` hare_ears", "", cells, "", ""))
         cells = {}
-        for name, exe in exes:
+        for name, exe in exes if "startup" in parts else ():
             r = best([exe, "run", str(small), "-o", str(work / "small.h5"), "-q"], work, R)
             steps = int(number(r"Solver: ([0-9]+) steps", r.out))
             nodes = int(number(r"; ([0-9]+) nodes", r.out))
             cells[name] = f"{fmt_s(r.wall)} (CPU {fmt_s(r.cpu)}; {nodes} nodes, {steps} steps, 101 outputs)"
             last = r.wall
-        rows.append(("100-node `run`, whole process", "", cells, "≤ 15 ms", "met" if last <= 0.015 else "MISSED"))
+        if "startup" in parts:
+            rows.append(("100-node `run`, whole process", "", cells, "≤ 15 ms", "met" if last <= 0.015 else "MISSED"))
         # ---- memory ----
-        for cells_n in (9998, 99998):
+        for cells_n in (9998, 99998) if "memory" in parts else ():
             case = work / f"radial_{cells_n}.toml"
             case.write_text(radial_case(cells_n))
             cells = {}
