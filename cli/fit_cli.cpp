@@ -1,26 +1,8 @@
 #include "cli/fit_cli.hpp"
 
-#include <fmt/format.h>
-
-#include "solver/integrator.hpp"
 
 namespace thermorph {
 
-namespace {
-template <class Options>
-int guarded(Options& options, const std::string& commandLine, int (*command)(const Options&)) {
-  options.commandLine = commandLine;
-  try {
-    return command(options);
-  } catch (const CaseError& e) {
-    fmt::print(stderr, "error: {}\n", e.what());
-    return 2;
-  } catch (const std::exception& e) {
-    fmt::print(stderr, "error: {}\n", e.what());
-    return 3;
-  }
-}
-}  // namespace
 
 CLI::App* addFitSubcommand(CLI::App& app, FitOptions& o) {
   CLI::App* fit = app.add_subcommand(
@@ -61,8 +43,5 @@ CLI::App* addFitSubcommand(CLI::App& app, FitOptions& o) {
   return fit;
 }
 
-int runFitCli(FitOptions& options, const std::string& commandLine) {
-  return guarded(options, commandLine, &runFitCommand);
-}
 
 }  // namespace thermorph

@@ -148,12 +148,13 @@ int main(int argc, char** argv) {
     std::cout << caseReferenceMarkdown();
     return 0;
   }
+  // fit: cli/fit_run.cpp (prints the caution) or, in thermorph, thermorph-fit in its place (cli/fit_exec.cpp).
+  if (fit->parsed()) return runFitCli(fitOptions, commandLine);
   // Every other subcommand computes: the caution once on stderr, before anything else it prints.
   fmt::print(stderr, "Caution: {}\n", caution);
   // ---- sweep: dispatch ----
   if (sweep->parsed()) return runSweepCli(sweepOptions, commandLine);
   // ---- end sweep ----
-  if (fit->parsed()) return runFitCli(fitOptions, commandLine);
   if (sensitivity->parsed()) return runSensitivityCli(sensitivityOptions, commandLine);
   if (uncertainty->parsed()) return runUncertaintyCli(uncertaintyOptions, commandLine);
   if (refine->parsed()) return runRefineCli();

@@ -9,6 +9,11 @@ exe="$1"; src="$2"; python="${3:-/usr/bin/python3}"
 work="$(mktemp -d)"; trap 'rm -rf "$work"' EXIT
 fail() { echo "FAIL: $*"; exit 1; }
 cd "$work"
+# `thermorph fit` runs thermorph-fit (Ceres) in its place; thermorph itself loads none of Ceres' libraries.
+if command -v ldd > /dev/null && ldd "$exe" | grep -Eq "libglog|libcholmod|liblapack"; then
+  fail "thermorph links Ceres' shared libraries"
+fi
+[[ -x "$(dirname "$exe")/thermorph-fit" ]] || fail "no thermorph-fit beside $exe"
 cat > lump.toml <<'TOML'
 title = "lumped sphere (Newton cooling)"
 [run]
