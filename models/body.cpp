@@ -897,21 +897,24 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
   m.skinCell = b.nr - 1 - (s.coat ? s.coat->cells : 0);
   // Cell labels are generated when a message asks for one, not stored per node (memory at 1e5 nodes).
   {
+    // The layer of each radial ring (an index into the few layer names, not a name per ring: a 1-D radial grid
+    // of 10^5 rings held 4 MB of strings here).
     struct Grid {
       std::string name;
       Index offset;
       int nz, nr;
-      std::vector<std::string> ringTissue;
+      std::vector<std::string> layerNames;
+      std::vector<int> ringLayer;
     };
-    auto grid = std::make_shared<Grid>(Grid{s.name, m.offset, b.nz, b.nr, {}});
-    for (int ir = 0; ir < b.nr; ++ir)
-      grid->ringTissue.push_back(m.layerNames[static_cast<std::size_t>(m.layer[static_cast<std::size_t>(ir)])]);
+    auto grid = std::make_shared<Grid>(Grid{s.name, m.offset, b.nz, b.nr, m.layerNames, {}});
+    grid->ringLayer = m.layer;
     network_.labeler = [grid, previous = std::move(network_.labeler)](Index i) -> std::string {
       const Index cells = static_cast<Index>(grid->nz * grid->nr);
       if (i >= grid->offset && i < grid->offset + cells) {
         const int k = static_cast<int>(i - grid->offset);
         return fmt::format("{}: axial {}, radial {} ({})", grid->name, k / grid->nr, k % grid->nr,
-                           grid->ringTissue[static_cast<std::size_t>(k % grid->nr)]);
+                           grid->layerNames[static_cast<std::size_t>(
+                               grid->ringLayer[static_cast<std::size_t>(k % grid->nr)])]);
       }
       return previous ? previous(i) : "node " + std::to_string(i);
     };
