@@ -61,9 +61,9 @@ RunRow runOne(const SweepPlan& plan, std::size_t run, const std::atomic<bool>* s
   try {
     std::vector<std::string> overrides = plan.keyOverrides(run);
     row.overrides = join(overrides);
-    overrides = runOverrides(plan, run);
+    Case c;
+    overrides = runOverrides(plan, run, &c);
     row.overrides = join(overrides);
-    const Case c = loadCaseFromString(plan.caseText, plan.casePath, overrides);
     loaded = Clock::now();
     Body body(c);
     built = Clock::now();

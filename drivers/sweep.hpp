@@ -82,7 +82,8 @@ std::vector<std::string> scaleOverrides(const Case& c, const std::string& target
 SweepPlan makeSweepPlan(const SweepOptions& options);
 
 //! Every override of run `run`, size series included (loads the case once more when there is a --scale).
-std::vector<std::string> runOverrides(const SweepPlan& plan, std::size_t run);
+//! With `runCase`, also the run's case: loaded once, or twice when a size factor other than 1 applies.
+std::vector<std::string> runOverrides(const SweepPlan& plan, std::size_t run, Case* runCase = nullptr);
 
 enum class RunStatus { NotRun = 0, Ok = 1, Failed = 2 };
 

@@ -272,12 +272,15 @@ std::vector<std::string> SweepPlan::keyOverrides(std::size_t run) const {
   return out;
 }
 
-std::vector<std::string> runOverrides(const SweepPlan& plan, std::size_t run) {
+std::vector<std::string> runOverrides(const SweepPlan& plan, std::size_t run, Case* runCase) {
   std::vector<std::string> out = plan.keyOverrides(run);
   bool anyScale = std::any_of(plan.axes.begin(), plan.axes.end(), [](const SweepAxis& a) { return a.scale; });
-  if (!anyScale) return out;
+  if (!anyScale) {
+    if (runCase) *runCase = loadCaseFromString(plan.caseText, plan.casePath, out);
+    return out;
+  }
   // Size series act on the case as varied: each segment's factor is the product of the factors that reach it.
-  const Case varied = loadCaseFromString(plan.caseText, plan.casePath, out);
+  Case varied = loadCaseFromString(plan.caseText, plan.casePath, out);
   std::vector<std::size_t> v = plan.valueIndices(run);
   double bodyFactor = 1.0;
   std::vector<std::pair<std::string, double>> segmentFactors;
@@ -287,6 +290,7 @@ std::vector<std::string> runOverrides(const SweepPlan& plan, std::size_t run) {
     if (plan.axes[a].target == "body") bodyFactor *= f;
     else segmentFactors.emplace_back(plan.axes[a].target, f);
   }
+  const std::size_t unscaled = out.size();
   for (const SegmentSpec& s : varied.segments) {
     double f = bodyFactor;
     for (const auto& [name, factor] : segmentFactors)
@@ -297,6 +301,11 @@ std::vector<std::string> runOverrides(const SweepPlan& plan, std::size_t run) {
     Case massOnly = varied;
     massOnly.segments.clear();
     for (std::string& o : scaleOverrides(massOnly, "body", bodyFactor)) out.push_back(std::move(o));
+  }
+  if (runCase) {
+    // A run whose factors are all 1 is the varied case itself: no second parse.
+    if (out.size() == unscaled) *runCase = std::move(varied);
+    else *runCase = loadCaseFromString(plan.caseText, plan.casePath, out);
   }
   return out;
 }
