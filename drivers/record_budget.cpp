@@ -33,13 +33,13 @@ void energiesAt(const NetworkSystem& system, std::span<const double> y, double i
 }
 
 void BudgetRecorder::compute(double t, std::span<const double> y, double initialStored, RunSummary& summary,
-                             std::vector<double>& faceTemperatures) const {
+                             std::vector<double>& faceTemperatures, bool flows) const {
   const Index groups = network_.groups.size(), channels = network_.channels.size();
   summary.flows.assign(groups * channels, 0.0);
   summary.storage.assign(groups, 0.0);
   faceTemperatures.assign(network_.faces.size(), 0.0);
   const Index states = system_.nodeCount() + system_.controlCount();
-  system_.groupFlows(t, y.first(states), summary.flows, summary.storage, faceTemperatures);
+  if (flows) system_.groupFlows(t, y.first(states), summary.flows, summary.storage, faceTemperatures);
   summary.controls.assign(y.begin() + static_cast<std::ptrdiff_t>(system_.nodeCount()),
                           y.begin() + static_cast<std::ptrdiff_t>(states));
   if (initialGroupStored_.empty()) {  // the first output is the initial state

@@ -21,9 +21,10 @@ class BudgetRecorder {
   BudgetRecorder(const Network& network, const NetworkSystem& system) : network_(network), system_(system) {}
 
   //! Flows, storage, controls, channel energies and the balance error at time t into `summary`; the lateral
-  //! face temperatures [K] into `faceTemperatures` (the other recorders use them).
+  //! face temperatures [K] into `faceTemperatures` (the other recorders use them). Without `flows`, the flows,
+  //! storage and face temperatures are left at zero (no face solve of the whole surface).
   void compute(double t, std::span<const double> y, double initialStored, RunSummary& summary,
-               std::vector<double>& faceTemperatures) const;
+               std::vector<double>& faceTemperatures, bool flows = true) const;
   //! Whole-body heat flow per channel [W] (copies weighted) and storage [W] of a filled summary.
   static void bodyFlows(const Network& network, const RunSummary& summary, std::span<double> perChannel,
                         double& storage);

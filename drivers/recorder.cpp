@@ -49,7 +49,12 @@ std::vector<std::string> segmentNames(const Body& body) {
 
 Recorder::Recorder(const Body& body, const NetworkSystem& system, const RunOptions& options,
                    std::uint64_t expectedPoints)
-    : body_(body), system_(system), observer_(options.observer), budget_(body.network(), system), freezing_(body) {
+    : body_(body),
+      system_(system),
+      observer_(options.observer),
+      flows_(options.flowsAtOutputs || !options.output.empty()),
+      budget_(body.network(), system),
+      freezing_(body) {
   if (options.output.empty()) return;
   file_ = std::make_unique<ResultsFile>(options.output);
   ResultsFile& f = *file_;
@@ -65,7 +70,7 @@ Recorder::Recorder(const Body& body, const NetworkSystem& system, const RunOptio
 
 void Recorder::record(double t, std::span<const double> y, double initialStored, RunSummary& summary) {
   std::vector<double>& faces = faceTemperatures_;
-  budget_.compute(t, y, initialStored, summary, faces);
+  budget_.compute(t, y, initialStored, summary, faces, flows_);
   freezing_.observe(t, y);
   if (observer_) observer_(t, y.first(system_.nodeCount()), summary);
   if (!file_) return;

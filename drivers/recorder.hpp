@@ -40,6 +40,7 @@ class Recorder {
   const Body& body_;
   const NetworkSystem& system_;
   OutputObserver observer_;
+  bool flows_ = true;  //!< RunOptions::flowsAtOutputs, or a results file
   std::unique_ptr<ResultsFile> file_;
   std::size_t time_ = 0;
   BudgetRecorder budget_;

@@ -27,6 +27,11 @@ struct RunOptions {
   //! Optional stop request (drivers/stop_signal.hpp: set by SIGINT/SIGTERM): polled between outputs and within
   //! them; the run then ends as incomplete with `stopped` set, keeping its outputs so far.
   const std::atomic<bool>* stop = nullptr;
+  //! Heat flows by group and channel at every output (RunSummary::flows and storage: a face solve of the whole
+  //! surface per output, 3-7 % of a run). A caller without a results file that reads only temperatures, controls
+  //! and energies (a transient sweep's metrics) sets false: flows and storage then stay zero. A results file
+  //! always gets them.
+  bool flowsAtOutputs = true;
 };
 
 struct RunSummary {

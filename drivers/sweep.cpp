@@ -72,6 +72,7 @@ RunRow runOne(const SweepPlan& plan, std::size_t run, const std::atomic<bool>* s
     RunOptions options;
     options.quiet = true;  // and no results file: options.output stays empty
     options.stop = stop;   // a stop request ends the run at its next step
+    options.flowsAtOutputs = plan.steady;  // transient metrics come from temperatures and integrated energies
     options.observer = [&](double t, std::span<const double> temperatures, const RunSummary& summary) {
       if (stop && stop->load(std::memory_order_relaxed)) throw RunAbandoned{};
       collector.observe(t, temperatures, summary);

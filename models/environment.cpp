@@ -203,7 +203,7 @@ double EnvironmentModel::convectionCoefficient(Index face, double faceTemperatur
   if (r.outsideValidity) collectWarnings();
   const double curvature = sameFluid && shift != 0.0 ? std::abs(r.dh_dTs - cached.dh) / std::abs(shift)
                                                      : std::numeric_limits<double>::infinity();
-  cached = {faceTemperature, fl.temperature, fl.speed, r.h, r.dh_dTs, curvature, fl.medium};
+  if (!reporting_) cached = {faceTemperature, fl.temperature, fl.speed, r.h, r.dh_dTs, curvature, fl.medium};
   if (derivative) *derivative = r.dh_dTs;
   return r.h;
 }
@@ -327,11 +327,14 @@ void EnvironmentModel::seriesValues(double time, std::span<double> values) const
 double EnvironmentModel::meanConvectionCoefficient(Index segment, double time,
                                                    std::span<const double> faceTemperatures) const {
   double hA = 0.0, area = 0.0;
+  const bool reporting = reporting_;
+  reporting_ = true;  // a report: the cache is read, not written
   for (Index f = 0; f < faces_.size(); ++f) {
     if (faces_[f].segment != segment) continue;
     hA += convectionCoefficient(f, faceTemperatures[f], time, nullptr) * faces_[f].area;
     area += faces_[f].area;
   }
+  reporting_ = reporting;
   return area > 0.0 ? hA / area : 0.0;
 }
 

@@ -54,6 +54,8 @@ class EnvironmentModel : public SurfaceModel {
   //! with A_e = (1 - f_c) A the exposed area and f_c the contact fraction.
   void faceHeat(Index face, double faceTemperature, double time, std::span<double> channelHeat,
                 std::span<double> channelDerivative) const override;
+  //! Reports (budgets, mean coefficients at outputs) read the per-face coefficient cache but do not write it.
+  void setReporting(bool reporting) const override { reporting_ = reporting; }
 
   //! Times in (0, duration) where the surroundings change discontinuously (steps, ramp ends, series rows) [s].
   std::vector<double> breakpoints() const;
@@ -123,6 +125,7 @@ class EnvironmentModel : public SurfaceModel {
     Medium medium = Medium::Air;
   };
   mutable std::vector<CachedCoefficient> cache_;
+  mutable bool reporting_ = false;
 };
 
 }  // namespace thermorph

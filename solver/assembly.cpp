@@ -248,7 +248,7 @@ double NetworkSystem::controlTarget(const Controller& c, double time, std::span<
 
 NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, double nodeTemperature,
                                                      std::span<double> channelHeat,
-                                                     std::span<double> channelDerivative) const {
+                                                     std::span<double> channelDerivative, bool remember) const {
   // Face balance G (T_n - T_s) + q(T_s) = 0, solved by Newton for T_s; then by the implicit function theorem
   // dT_s/dT_n = G / (G - q'(T_s)).
   const SurfaceFace& f = network_.faces[face];
@@ -274,7 +274,7 @@ NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, do
       network_.surface->faceHeat(face, Ts, time, channelHeat, channelDerivative);
       dq = 0.0;
       for (Index c = 0; c < channels_; ++c) dq += channelDerivative[c];
-      faceGuess_[face] = Ts;
+      if (remember) faceGuess_[face] = Ts;
       return {Ts, G / (G - dq)};
     }
   }
@@ -499,9 +499,16 @@ void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span
     rate[s.node] += q;
     at(s.node, s.channel) += q;
   }
+  // A report: the face solves leave the Newton starts and the surface model's caches as they were, so outputs
+  // never change the integrator's path.
+  struct Reporting {
+    const SurfaceModel* surface;
+    explicit Reporting(const SurfaceModel* s) : surface(s) { if (surface) surface->setReporting(true); }
+    ~Reporting() { if (surface) surface->setReporting(false); }
+  } reporting(network_.faces.empty() ? nullptr : network_.surface);
   for (Index f = 0; f < network_.faces.size(); ++f) {
     Index node = network_.faces[f].node;
-    FaceSolution sol = solveFace(f, time, T[node], scratchHeat_, scratchDerivative_);
+    FaceSolution sol = solveFace(f, time, T[node], scratchHeat_, scratchDerivative_, false);
     if (f < faceTemperatures.size()) faceTemperatures[f] = sol.temperature;
     for (Index c = 0; c < channels_; ++c) {
       rate[node] += scratchHeat_[c];

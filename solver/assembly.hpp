@@ -92,8 +92,9 @@ class NetworkSystem {
     double temperature;  //!< face temperature [K]
     double dTsdTn;       //!< d(face temperature)/d(node temperature) [1]
   };
+  //! `remember`: keep the solution as the face's next Newton start (false for reports: groupFlows).
   FaceSolution solveFace(Index face, double time, double nodeTemperature, std::span<double> channelHeat,
-                         std::span<double> channelDerivative) const;
+                         std::span<double> channelDerivative, bool remember = true) const;
   //! Position of a Jacobian entry in pattern().rowIndex; 32 bits (the constructor checks that they suffice): the
   //! slot tables below hold about 10 per node.
   using Slot = std::uint32_t;
