@@ -426,7 +426,7 @@ double ObservationSampler::value(std::size_t s, double time, std::span<const dou
       for (const SegmentMesh& m : body_.segments())
         for (int iz = 0; iz < m.nz; ++iz) {
           double a = m.weight * n.faces[m.lateralFace[static_cast<std::size_t>(iz)]].area;
-          skin += a * y[m.node(iz, m.skinCell)];
+          skin += a * m.skinAt(iz, y);
           area += a;
         }
       return skin / area - kelvinOffset;

@@ -15,7 +15,7 @@ FieldRecorder::FieldRecorder(ResultsFile& f, const Body& body) : body_(body) {
                  "volume-weighted mean of the innermost layer of segment " + body.segments()[body.coreSegment()].name);
   f.setAttribute("/body/blood_temperature", "definition", "central blood pool (or the pinned arterial temperature)");
   f.setAttribute("/body/mean_skin_temperature", "definition",
-                 "outermost tissue cells (under any coat), weighted by exposed area and segment count");
+                 "volume mean of the outermost tissue layer (under any coat) of each axial cell, weighted by exposed area and segment count");
   for (const SegmentMesh& m : body.segments()) {
     const std::string g = "/segments/" + m.name;
     const auto nz = static_cast<std::uint64_t>(m.nz), nr = static_cast<std::uint64_t>(m.nr);
@@ -62,7 +62,7 @@ BodyTemperatures bodyTemperatures(const Body& body, std::span<const double> y) {
   for (const SegmentMesh& m : body.segments())
     for (int iz = 0; iz < m.nz; ++iz) {
       double a = m.weight * n.faces[m.lateralFace[static_cast<std::size_t>(iz)]].area;
-      skin += a * y[m.node(iz, m.skinCell)];
+      skin += a * m.skinAt(iz, y);
       area += a;
     }
   out.skin = skin / area;

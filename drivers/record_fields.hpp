@@ -11,7 +11,7 @@
 namespace thermorph {
 
 //! Whole-body mean temperatures of a state [K]: core (volume mean of the innermost layer of the core segment),
-//! blood (central pool, or the pinned arterial supply), mean skin (outermost tissue cells, weighted by exposed
+//! blood (central pool, or the pinned arterial supply), mean skin (outermost tissue layer, weighted by exposed
 //! area and copies). The recorder and the Python module (python/) both use it.
 struct BodyTemperatures {
   double core = 0.0, blood = 0.0, skin = 0.0;

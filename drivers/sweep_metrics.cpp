@@ -70,7 +70,7 @@ std::vector<MetricColumn> metricColumns(const Body& body, std::span<const Thresh
   const std::vector<std::string> temps = temperatureNames(body);
   const char* meaning[] = {"core temperature (volume mean of the core segment's innermost layer)",
                            "blood temperature (central pool or pinned arterial supply)",
-                           "mean skin temperature (area- and count-weighted outermost tissue cells)"};
+                           "mean skin temperature (area- and count-weighted outermost tissue layer)"};
   auto addTemperature = [&](std::size_t q, const std::string& what) {
     for (const char* s : statistics)
       columns.push_back({temps[q] + "." + s, "degC",
@@ -147,7 +147,7 @@ void MetricCollector::sample(std::span<const double> y, const RunSummary& s) {
   for (const SegmentMesh& m : body_.segments())
     for (int iz = 0; iz < m.nz; ++iz) {
       double a = m.weight * n.faces[m.lateralFace[static_cast<std::size_t>(iz)]].area;
-      skin += a * y[m.node(iz, m.skinCell)];
+      skin += a * m.skinAt(iz, y);
       area += a;
     }
   current_[k++] = skin / area - kelvinOffset;

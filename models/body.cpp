@@ -224,7 +224,7 @@ std::vector<std::pair<Index, double>> Body::signalNodes(ControlSignal signal) co
     for (const SegmentMesh& m : meshes_)
       for (int iz = 0; iz < m.nz; ++iz) {
         double a = m.weight * network_.faces[m.lateralFace[static_cast<std::size_t>(iz)]].area;
-        nodes.emplace_back(m.node(iz, m.skinCell), a);
+        m.skinNodes(iz, a, nodes);
         total += a;
       }
   }
@@ -269,13 +269,14 @@ void Body::buildControllers() {
 }
 
 std::vector<std::pair<Index, double>> Body::localSkinNodes(Index segment) const {
-  // The segment's own skin: its outermost tissue cells (under any coat), weighted by their lateral face area.
+  // The segment's own skin: its outermost tissue layer (under any coat), each axial cell's layer mean weighted by
+  // its lateral face area.
   const SegmentMesh& m = meshes_[segment];
   std::vector<std::pair<Index, double>> nodes;
   double total = 0.0;
   for (int iz = 0; iz < m.nz; ++iz) {
     double a = network_.faces[m.lateralFace[static_cast<std::size_t>(iz)]].area;
-    nodes.emplace_back(m.node(iz, m.skinCell), a);
+    m.skinNodes(iz, a, nodes);
     total += a;
   }
   for (auto& [node, w] : nodes) w /= total;
@@ -895,6 +896,7 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
   cellPerfusion_[group].assign(static_cast<std::size_t>(b.nz * b.nr), 0.0);
   m.innermostLayerCells = s.layers.front().cells;
   m.skinCell = b.nr - 1 - (s.coat ? s.coat->cells : 0);
+  m.skinFirst = m.skinCell + 1 - s.layers.back().cells;
   // Cell labels are generated when a message asks for one, not stored per node (memory at 1e5 nodes).
   {
     // The layer of each radial ring (an index into the few layer names, not a name per ring: a 1-D radial grid

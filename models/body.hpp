@@ -35,6 +35,7 @@ struct SegmentMesh {
   double weight = 1.0;              //!< copies represented (count times the parent's weight)
   int innermostLayerCells = 0;      //!< radial cells of layer 0 (core temperature)
   int skinCell = 0;                 //!< radial index of the outermost tissue cell
+  int skinFirst = 0;                //!< radial index of the first cell of the outermost tissue layer
   std::vector<Index> arterial;      //!< [nz] arterial blood nodes (empty: no flow; noNode where none flows)
   std::vector<Index> venous;        //!< [nz] deep-venous blood nodes (empty or noNode where none flows)
   std::vector<Index> superficial;   //!< [nz] superficial-venous blood nodes (empty or noNode where none flows)
@@ -42,6 +43,27 @@ struct SegmentMesh {
   double perfusionFlow = 0.0;       //!< tissue perfusion of one copy [m3/s]
   double shuntFlow = 0.0;           //!< shunt flow of one copy [m3/s]
   Index node(int iz, int ir) const { return offset + static_cast<Index>(iz * nr + ir); }
+  //! Skin temperature of axial cell iz: the volume mean of the outermost tissue layer's cells (under any coat).
+  //! A layer mean converges at second order in the cell size; the outermost cell's own value would converge
+  //! at first order to the surface value as that cell thins.
+  template <class Values>
+  double skinAt(int iz, const Values& y) const {
+    double sum = 0.0, total = 0.0;
+    for (int ir = skinFirst; ir <= skinCell; ++ir) {
+      const double v = volume[static_cast<std::size_t>(iz * nr + ir)];
+      sum += v * y[node(iz, ir)];
+      total += v;
+    }
+    return sum / total;
+  }
+  //! The nodes and weights (summing to `share`) of skinAt(iz).
+  template <class Out>
+  void skinNodes(int iz, double share, Out& out) const {
+    double total = 0.0;
+    for (int ir = skinFirst; ir <= skinCell; ++ir) total += volume[static_cast<std::size_t>(iz * nr + ir)];
+    for (int ir = skinFirst; ir <= skinCell; ++ir)
+      out.emplace_back(node(iz, ir), share * volume[static_cast<std::size_t>(iz * nr + ir)] / total);
+  }
 };
 
 //! The discretised body: network, meshes and the environment model it points to.

@@ -118,8 +118,8 @@ struct BodySpec {
   double exhaledTemperature = 308.15;   //!< [K]
 };
 
-//! Core: innermost layer of the core segment; MeanSkin: area-weighted outermost tissue cells of the whole body;
-//! LocalSkin (local controllers only): the outermost tissue cells of each controlled segment, its own signal.
+//! Core: innermost layer of the core segment; MeanSkin: area-weighted outermost tissue layer of the whole body;
+//! LocalSkin (local controllers only): the outermost tissue layer of each controlled segment, its own signal.
 enum class ControlSignal { Core, MeanSkin, LocalSkin };
 
 //! One feedback controller ([control.NAME]); present only when the table is given.

@@ -332,7 +332,7 @@ constexpr std::array params = {
           "Comma-separated names of the segments it acts on, e.g. \"leg, foot\" (required); each needs a layer "
           "with role skin."},
     Param{"control.local.*.signal", K::Choice, "", "local_skin", 0, 0, false, "core|mean_skin|local_skin",
-          "Controlled temperature; local_skin: each segment's own skin (area-weighted outermost tissue cells of "
+          "Controlled temperature; local_skin: each segment's own skin (area-weighted outermost tissue layer means of "
           "one copy), so each segment gets its own controller states."},
     Param{"control.local.*.set_point", K::Quantity, "K", "30 degC", tMin, tMax, false, "", "Set point."},
     Param{"control.local.*.gain", K::Quantity, "1/K", "1 1/K", -100, 100, false, "",

@@ -49,14 +49,26 @@ Index controllerIndex(const Network& network, const std::string& name) {
   throw std::invalid_argument("no controller " + name);
 }
 
-//! Area-weighted mean skin temperature written out from the meshes: the outermost tissue cell of every axial
-//! cell, weighted by its lateral face area times the segment's copies [K].
+//! Volume mean of the outermost tissue layer at axial cell iz, written out from the mesh's layer indices [K].
+double layerMeanAtSkin(const SegmentMesh& m, std::span<const double> T, int iz) {
+  double sum = 0.0, volume = 0.0;
+  for (int ir = 0; ir < m.nr; ++ir)
+    if (m.layer[static_cast<std::size_t>(ir)] == m.layer[static_cast<std::size_t>(m.skinCell)]) {
+      double v = m.volume[static_cast<std::size_t>(iz * m.nr + ir)];
+      sum += v * T[m.node(iz, ir)];
+      volume += v;
+    }
+  return sum / volume;
+}
+
+//! Area-weighted mean skin temperature written out from the meshes: the outermost tissue layer's mean at every
+//! axial cell, weighted by its lateral face area times the segment's copies [K].
 double meanSkin(const Body& body, std::span<const double> T) {
   double sum = 0.0, area = 0.0;
   for (const SegmentMesh& m : body.segments())
     for (int iz = 0; iz < m.nz; ++iz) {
       double a = m.weight * body.network().faces[m.lateralFace[static_cast<std::size_t>(iz)]].area;
-      sum += a * T[m.node(iz, m.skinCell)];
+      sum += a * layerMeanAtSkin(m, T, iz);
       area += a;
     }
   return sum / area;

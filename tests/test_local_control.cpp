@@ -26,7 +26,8 @@ struct LocalTrace {
   double worstBalance = 0.0;                  //!< max |energy-balance error| / throughput over the outputs
 };
 
-//! Area-weighted mean of a segment's outermost tissue cells, written out from the mesh and the face areas [K]
+//! Area-weighted mean of a segment's outermost tissue layer (each axial cell's layer mean, by volume), written out
+//! from the mesh's layer indices and the face areas [K]
 //! (the definition of the local skin signal, README "Local control").
 double localSkin(const Body& body, std::span<const double> T, const std::string& segment) {
   for (std::size_t g = 0; g < body.spec().segments.size(); ++g) {
@@ -35,7 +36,14 @@ double localSkin(const Body& body, std::span<const double> T, const std::string&
     double sum = 0.0, area = 0.0;
     for (int iz = 0; iz < m.nz; ++iz) {
       double a = body.network().faces[m.lateralFace[static_cast<std::size_t>(iz)]].area;
-      sum += a * T[m.node(iz, m.skinCell)];
+      double layerSum = 0.0, volume = 0.0;
+      for (int ir = 0; ir < m.nr; ++ir)
+        if (m.layer[static_cast<std::size_t>(ir)] == m.layer[static_cast<std::size_t>(m.skinCell)]) {
+          double v = m.volume[static_cast<std::size_t>(iz * m.nr + ir)];
+          layerSum += v * T[m.node(iz, ir)];
+          volume += v;
+        }
+      sum += a * layerSum / volume;
       area += a;
     }
     return sum / area;
@@ -276,7 +284,13 @@ TEST_CASE("Jacobian with local controllers and CIVD matches central differences"
     const SegmentMesh& foot = body->segments()[1];
     double area = 0.0;
     for (int iz = 0; iz < foot.nz; ++iz) area += n.faces[foot.lateralFace[static_cast<std::size_t>(iz)]].area;
-    const double w = n.faces[foot.lateralFace[2]].area / area;
+    // The skin signal is the outermost tissue layer's volume mean at each axial cell: the outermost cell's share.
+    double layerVolume = 0.0;
+    for (int ir = 0; ir < foot.nr; ++ir)
+      if (foot.layer[static_cast<std::size_t>(ir)] == foot.layer[static_cast<std::size_t>(foot.skinCell)])
+        layerVolume += foot.volume[static_cast<std::size_t>(2 * foot.nr + ir)];
+    const double w = n.faces[foot.lateralFace[2]].area / area *
+                     foot.volume[static_cast<std::size_t>(2 * foot.nr + foot.skinCell)] / layerVolume;
     const double tau = 200.0 / 3.0;  // each of the three stages
     const double e1 = std::abs(jacobianEntry(system.pattern(), c.values, row, row) / (-1.0 / tau) - 1.0);
     const double e2 = std::abs(jacobianEntry(system.pattern(), c.values, row, foot.node(2, foot.skinCell)) /
