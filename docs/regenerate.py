@@ -292,7 +292,14 @@ class Runner:
             return self.cache[name]
         medium = medium_temperature(case, args)
         if self.refine > 1:
-            args = args + ["--set", f"run.grid_refinement={self.refine}"]
+            # A run that already refines its grid (`--set run.grid_refinement=4`) is refined further (16x), not
+            # compared with itself.
+            given = 1
+            for i, a in enumerate(args):
+                m = re.fullmatch(r"run\.grid_refinement=(\d+)", a)
+                if m and i > 0 and args[i - 1] == "--set":
+                    given = int(m.group(1))
+            args = args + ["--set", f"run.grid_refinement={given * self.refine}"]
         out = self.tmp / f"{name}.h5"
         # The case, and any data file given by a path in the repository (fit --data cases/x.csv), from ROOT.
         cmd = [str(self.exe)] + [str(ROOT / a) if i == 1 or (i > 1 and a.startswith("cases/") and (ROOT / a).is_file())
