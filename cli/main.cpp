@@ -14,6 +14,7 @@
 #include "drivers/output_file.hpp"
 #include "drivers/simulation.hpp"
 #include "drivers/stop_signal.hpp"
+#include "cli/exit_codes.hpp"
 #include "cli/sweep_cli.hpp"
 #include "cli/fit_cli.hpp"
 #include "cli/sensitivity_cli.hpp"
@@ -23,8 +24,6 @@ namespace {
 
 using namespace thermorph;
 
-constexpr int exitBadInput = 2;
-constexpr int exitSolverFailure = 3;
 
 std::string defaultOutput(const std::string& casePath) {
   return std::filesystem::path(casePath).stem().string() + ".h5";

@@ -5,6 +5,7 @@
 
 #include <fmt/format.h>
 
+#include "cli/exit_codes.hpp"
 #include "drivers/refine.hpp"
 #include "solver/integrator.hpp"
 
@@ -35,7 +36,7 @@ CLI::App* addRefineSubcommand(CLI::App& app) {
 }
 
 int runRefineCli() {
-  try {
+  return withExitCodes([&] {
     RefineResult result = runRefinement(options);
     for (const std::string& w : result.warnings) fmt::print(stderr, "warning (1x grid): {}\n", w);
     std::fputs(refineTable(result).c_str(), stdout);
@@ -43,18 +44,12 @@ int runRefineCli() {
       std::ofstream out(csvPath);
       if (!out) {
         fmt::print(stderr, "error: --csv {}: cannot write the file\n", csvPath);
-        return 2;
+        return exitBadInput;
       }
       out << refineCsv(result);
     }
     return 0;
-  } catch (const CaseError& e) {
-    fmt::print(stderr, "error: {}\n", e.what());
-    return 2;
-  } catch (const std::exception& e) {
-    fmt::print(stderr, "error: {}\n", e.what());
-    return 3;
-  }
+  });
 }
 
 }  // namespace thermorph

@@ -2,7 +2,7 @@
 
 #include <fmt/format.h>
 
-#include "models/case.hpp"
+#include "cli/exit_codes.hpp"
 
 namespace thermorph {
 
@@ -10,15 +10,7 @@ namespace {
 template <class Options>
 int guarded(Options& options, const std::string& commandLine, int (*command)(const Options&)) {
   options.commandLine = commandLine;
-  try {
-    return command(options);
-  } catch (const CaseError& e) {
-    fmt::print(stderr, "error: {}\n", e.what());
-    return 2;
-  } catch (const std::exception& e) {
-    fmt::print(stderr, "error: {}\n", e.what());
-    return 3;
-  }
+  return withExitCodes([&] { return command(options); });
 }
 }  // namespace
 

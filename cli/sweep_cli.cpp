@@ -1,5 +1,7 @@
 #include "cli/sweep_cli.hpp"
 
+#include "cli/exit_codes.hpp"
+
 #include <fmt/format.h>
 
 #include "solver/integrator.hpp"
@@ -44,15 +46,7 @@ CLI::App* addSweepSubcommand(CLI::App& app, SweepOptions& o) {
 
 int runSweepCli(SweepOptions& options, const std::string& commandLine) {
   options.commandLine = commandLine;
-  try {
-    return runSweepCommand(options);
-  } catch (const CaseError& e) {
-    fmt::print(stderr, "error: {}\n", e.what());
-    return 2;
-  } catch (const std::exception& e) {
-    fmt::print(stderr, "error: {}\n", e.what());
-    return 3;
-  }
+  return withExitCodes([&] { return runSweepCommand(options); });
 }
 
 }  // namespace thermorph

@@ -13,6 +13,7 @@
 
 #include "models/case_schema.hpp"
 #include "models/units.hpp"
+#include "drivers/option_text.hpp"
 #include "drivers/sweep.hpp"
 
 namespace thermorph {
@@ -23,25 +24,11 @@ namespace {
 constexpr std::size_t maxRuns = 1'000'000;
 constexpr std::size_t maxValues = 1'000'000;  // per axis
 
-std::string trim(const std::string& s) {
-  std::size_t b = s.find_first_not_of(" \t\r\n"), e = s.find_last_not_of(" \t\r\n");
-  return b == std::string::npos ? std::string() : s.substr(b, e - b + 1);
-}
+using option_text::split;
+using option_text::trim;
 
-std::vector<std::string> split(const std::string& s, char separator) {
-  std::vector<std::string> parts;
-  std::stringstream ss(s);
-  for (std::string part; std::getline(ss, part, separator);) parts.push_back(trim(part));
-  if (!s.empty() && s.back() == separator) parts.emplace_back();
-  return parts;
-}
-
-//! "KEY=VALUE" split at the first '='.
 std::pair<std::string, std::string> keyValue(const std::string& text, const char* option, const char* example) {
-  auto eq = text.find('=');
-  if (eq == std::string::npos || eq == 0)
-    throw CaseError(fmt::format("{} {}: expected KEY=SPEC, e.g. {} {}", option, text, option, example));
-  return {trim(text.substr(0, eq)), trim(text.substr(eq + 1))};
+  return option_text::keyValue(text, option, example, "SPEC");
 }
 
 

@@ -11,17 +11,8 @@ fail() { echo "FAIL: $*"; exit 1; }
 
 # 1. The bout: whole command well under 10 s of CPU (user + system of the child, not wall time, which depends on the
 # machine's load; about 1.7 s on the automatic grid of 3205 nodes), summary as stored.
-"$python" - "$exe" "$case" "$work/dive.h5" "$work/out.txt" <<'PY' || fail "run failed or the bout took too long"
-import os, subprocess, sys
-exe, case, out, txt = sys.argv[1:]
-before = os.times()
-with open(txt, "w") as fh:
-    rc = subprocess.run([exe, "run", case, "-o", out, "--quiet"], stdout=fh).returncode
-after = os.times()
-cpu = (after.children_user - before.children_user) + (after.children_system - before.children_system)
-print(f"diving_seal: exit {rc}, whole command {cpu:.2f} s of CPU")
-sys.exit(0 if rc == 0 and cpu < 10.0 else 1)
-PY
+"$python" "$src/tests/cpu_limit.py" 10.0 diving_seal "$work/out.txt" -- \
+  "$exe" run "$case" -o "$work/dive.h5" --quiet || fail "run failed or the bout took too long"
 "$python" "$src/tests/regression.py" "$work/dive.h5" "$src/tests/data/diving_seal.summary.json" || fail "regression"
 
 # 2. The medium follows the dives: at each dive start (an output time) the segments are in sea water (h of order

@@ -10,19 +10,9 @@ work="$(mktemp -d)"; trap 'rm -rf "$work"' EXIT
 fail() { echo "FAIL: $*"; exit 1; }
 
 for study in large_bill wading_bird; do
-  # CPU time of the whole command (user + system), not wall time, which depends on the machine's load.
-  "$python" - "$exe" "$src/cases/$study.toml" "$work/$study.h5" "$work/$study.txt" "$study" <<'PY' \
+  "$python" "$src/tests/cpu_limit.py" 3.0 "$study" "$work/$study.txt" -- \
+    "$exe" run "$src/cases/$study.toml" -o "$work/$study.h5" --quiet \
     || fail "$study: run failed or took more than 3 s of CPU"
-import os, subprocess, sys
-exe, case, out, txt, study = sys.argv[1:]
-before = os.times()
-with open(txt, "w") as fh:
-    rc = subprocess.run([exe, "run", case, "-o", out, "--quiet"], stdout=fh).returncode
-after = os.times()
-cpu = (after.children_user - before.children_user) + (after.children_system - before.children_system)
-print(f"{study}: exit {rc}, whole command {cpu:.2f} s of CPU")
-sys.exit(0 if rc == 0 and cpu < 3.0 else 1)
-PY
   grep -q "Energy balance error" "$work/$study.txt" || fail "$study: no budget printed: $(cat "$work/$study.txt")"
   "$python" "$src/tests/regression.py" "$work/$study.h5" "$src/tests/data/$study.summary.json" || fail "$study: regression"
 done
