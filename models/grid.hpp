@@ -17,6 +17,17 @@
 //!     NTU / (N (1 + NTU)), first order;
 //!   * each tissue layer's radial cells against its perfusion length and, for curved shapes, its inner radius
 //!     (second order; error ~ (dr / scale)^2 / 48, the constant calibrated on the examples).
+//!   * transient forcing (models/grid.cpp, forcingInterval): a step of the surroundings (an event, or a start
+//!     from a uniform temperature) acts on the surface for at least tau, the shortest interval between such
+//!     steps (a ramped event: at least its ramp). Over that time it reaches the thermal penetration depth
+//!     delta = sqrt(alpha tau) into the tissue (semi-infinite solid, Carslaw & Jaeger 1959, sec. 2.4-2.7;
+//!     Incropera et al. 2007, sec. 5.7, eqs. 5.57-5.60), much less than the steady length scales. Cells of
+//!     size dx near the surface then miss the surface heat flux at t = tau and the heat exchanged over
+//!     [0, tau] by about (dx / delta)^2 / 13 (second order; the constant measured on the finite-volume scheme
+//!     against eq. 5.60 for Bi = h delta / k from 0.8 to 800, the worst case). Each layer counts with the share
+//!     erfc(depth / (2 delta)) of the step that reaches its outer face (Carslaw & Jaeger 1959, eq. 2.4(7)),
+//!     depth measured through the layers outside it in units of their own delta; exposed end faces of
+//!     cylinders and cones count with their share of the segment's exposed area.
 //! Segments whose axial profile is forced only by the surroundings (a root with insulated ends) need few axial
 //! cells; appendages and exposed ends are resolved to the decay length.
 #include <string>
@@ -34,6 +45,12 @@ inline constexpr double kGridWarnError = 0.01;
 //! Upper limit of automatic axial cells per segment (and of radial cells per layer).
 inline constexpr int kMaxAutoAxialCells = 1200;
 inline constexpr int kMaxAutoLayerCells = 8;
+//! Upper limit of automatic radial cells per layer where the transient penetration depth asks for more.
+inline constexpr int kMaxAutoPenetrationCells = 48;
+//! Transient error constant: cells of size dx under a surface stepped tau ago miss its heat flux (and the heat
+//! exchanged since the step) by about kPenetrationErrorConstant (dx / delta)^2, delta = sqrt(alpha tau)
+//! (measured on the scheme against Incropera et al. 2007, eq. 5.60; tests/test_grid_transient.cpp).
+inline constexpr double kPenetrationErrorConstant = 1.0 / 13.0;
 
 //! What the estimator found for one segment (for `check` and the warnings).
 struct SegmentGridEstimate {
@@ -45,7 +62,20 @@ struct SegmentGridEstimate {
   int axialNeeded = 1;        //!< axial cells meeting kGridTargetError
   std::vector<double> layerScale;  //!< per layer (coat last) the radial length scale [m]
   std::vector<int> layerNeeded;    //!< per layer (coat last) radial cells meeting kGridTargetError
+  double forcingInterval = 0.0;    //!< tau: shortest interval a step of the surroundings acts [s] (0: none)
+  std::vector<double> layerPenetration;  //!< per layer (coat last) delta = sqrt(alpha tau) [m] (0: no transient)
+  std::vector<double> layerStepShare;    //!< per layer (coat last) erfc(depth / (2 delta)) [1]
+  double endPenetration = 0.0;     //!< delta of the end faces' cross-section (area-weighted alpha) [m]
+  double endShare = 0.0;           //!< exposed end-face area over the segment's exposed area (transient only) [1]
 };
+
+//! Estimated relative error of a layer's heat flows with `cells` radial cells (steady length scale and transient
+//! penetration depth, the larger of the two).
+double layerGridError(const SegmentGridEstimate& e, std::size_t layer, double thickness, int cells);
+
+//! The shortest interval tau [s] over which a step of the surroundings acts (models/grid.cpp); 0 when the case
+//! has no steps (a steady start and no events).
+double forcingInterval(const Case& c);
 
 //! Estimated relative error of a segment's heat flows with nz axial cells.
 double axialGridError(const SegmentGridEstimate& e, double length, int nz);
