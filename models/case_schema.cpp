@@ -122,7 +122,8 @@ constexpr std::array params = {
           "Plate total tissue thickness (coat excluded). Optional if the layers give it."},
     Param{"segments[].axial_cells", K::Integer, "", "1", 1, 100000, false, "",
           "Cells along the length (cylinder, cone, plate; a sphere has 1). Leave it out to have it chosen from the "
-          "segment's decay lengths so that its heat flows lie within 1 % of a 4x refined grid (README, Grid); a "
+          "segment's decay lengths (and, at exposed end faces under stepped surroundings, the thermal penetration "
+          "depth) so that its heat flows lie within 1 % of a 4x refined grid (README, Grid); a "
           "given value that is estimated to miss 1 % gets a warning."},
     Param{"segments[].layers", K::TableArray, "", "", 0, 0, false, "",
           "Concentric tissue layers, inside out: `[{ tissue, thickness, cells }, ...]`."},
@@ -130,7 +131,7 @@ constexpr std::array params = {
     Param{"segments[].layers[].thickness", K::Quantity, "m", "", 0, 10, true, "",
           "Layer thickness; the first layer of a sphere or cylinder: its radius; of a plate: its half-thickness. "
           "The first layer's thickness may be omitted when the segment's radius or thickness is given."},
-    Param{"segments[].layers[].cells", K::Integer, "", "1", 1, 100000, false, "", "Radial cells in the layer; leave it out to have it chosen from the layer's perfusion length and radius (README, Grid)."},
+    Param{"segments[].layers[].cells", K::Integer, "", "1", 1, 100000, false, "", "Radial cells in the layer; leave it out to have it chosen from the layer's perfusion length and radius and, under surroundings that events step, the thermal penetration depth sqrt(alpha tau) (README, Grid)."},
     Param{"segments[].coat", K::Table, "", "", 0, 0, false, "", "Optional fur or feather coat: `{ material, thickness, cells }`."},
     Param{"segments[].coat.material", K::Text, "", "fur", 0, 0, false, "", "Coat material (fur, feathers or a [tissues.NAME])."},
     Param{"segments[].coat.thickness", K::Quantity, "m", "", 0, 1, true, "", "Coat thickness."},

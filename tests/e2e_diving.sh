@@ -10,7 +10,7 @@ work="$(mktemp -d)"; trap 'rm -rf "$work"' EXIT
 fail() { echo "FAIL: $*"; exit 1; }
 
 # 1. The bout: whole command well under 10 s of CPU (user + system of the child, not wall time, which depends on the
-# machine's load; about 1.7 s on the automatic grid of 3205 nodes), summary as stored.
+# machine's load; about 1.5 s on the automatic grid of 4099 nodes), summary as stored.
 "$python" "$src/tests/cpu_limit.py" 10.0 diving_seal "$work/out.txt" -- \
   "$exe" run "$case" -o "$work/dive.h5" --quiet || fail "run failed or the bout took too long"
 "$python" "$src/tests/regression.py" "$work/dive.h5" "$src/tests/data/diving_seal.summary.json" || fail "regression"
