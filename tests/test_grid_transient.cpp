@@ -178,3 +178,30 @@ TEST_CASE("Forcing interval: steps of the surroundings and how long each acts", 
   c.run.initial = InitialCondition::Temperature;
   CHECK(forcingInterval(c) == Approx(600.0));  // the start acts until the ramp begins
 }
+
+TEST_CASE("Exposed end faces under a transient get axial cells from the penetration depth; a coarse given count warns",
+          "[grid]") {
+  // A short cylinder (r 3 cm, L 10 cm) with bare ends plunged into water for 120 s, the material above: the rule of
+  // models/grid.cpp asks for axial cells of at most a fraction of delta = sqrt(alpha tau) = 3.9 mm near the ends,
+  // weighted by the ends' share of the exposed area (2 pi r^2 / (2 pi r^2 + 2 pi r L) = 0.23).
+  auto cylinder = [](const std::string& axial) {
+    return "[run]\nduration = " + num(tau) + "\noutput_interval = " + num(tau) + "\ninitial_temperature = " +
+           num(initialK) + "\n[tissues.slab]\nconductivity = " + num(kTissue) + "\ndensity = " + num(rhoTissue) +
+           "\nspecific_heat = " + num(cTissue) + "\nmetabolic_heat = 0\nperfusion = 0\nq10 = 1\n" +
+           "[[segments]]\nname = \"rod\"\nshape = \"cylinder\"\nlength = 0.1\n" + axial +
+           "layers = [{ tissue = \"slab\", thickness = 0.03 }]\n[environment]\ntemperature = " + num(waterK) +
+           "\nconvection = " + num(hWater) + "\n";
+  };
+  const Case automatic = loadCaseFromString(cylinder(""), "rod.toml");
+  const Case coarse = loadCaseFromString(cylinder("axial_cells = 4\n"), "rod.toml");
+  const std::vector<SegmentGridEstimate> e = estimateGrid(automatic);
+  CHECK(e[0].endShare == Approx(0.03 / (0.03 + 0.1)));
+  CHECK(e[0].endPenetration == Approx(std::sqrt(alpha * tau)));
+  // The chosen count meets the target: share (L / nz / delta)^2 / 13 <= 0.5 %.
+  const int nz = automatic.segments[0].axialCells;
+  CHECK(e[0].endShare * std::pow(0.1 / nz / std::sqrt(alpha * tau), 2) / 13.0 <= kGridTargetError);
+  CHECK(nz > 4);
+  CHECK(anyContains(coarse.warnings, "segment rod", "penetration depth"));
+  CHECK(anyContains(coarse.warnings, "segment rod", "axial cells meet 1 %"));
+  CHECK_FALSE(anyContains(automatic.warnings, "segment rod", "axial"));
+}
