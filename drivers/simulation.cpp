@@ -23,11 +23,17 @@ std::vector<double> initialState(const Body& body, const NetworkSystem& system) 
 //! guess until it changes by less than 1e-7 K/s, then polished by KINSOL: the steady state reached is the
 //! stable one the body would settle in from that start.
 //! With `stop` set during the relaxation, returns the relaxed state so far at the next step (no Newton polish)
-//! and sets `*stopped`.
-std::vector<double> steadyTemperatures(const Body& body, std::span<const double> guess, SolverStatistics* stats,
-                                       const std::atomic<bool>* stop = nullptr, bool* stopped = nullptr) {
-  NetworkSystem transient(body.network(), NetworkSystem::Mode::Transient);
+//! and sets `*stopped`. `transient` is the body's transient system (a run's own, lent for the relaxation: its
+//! time is frozen at 0 meanwhile and free again on return; its face temperatures, the Newton starts of the face
+//! balances, are left at the relaxed state).
+std::vector<double> steadyTemperatures(const Body& body, NetworkSystem& transient, std::span<const double> guess,
+                                       SolverStatistics* stats, const std::atomic<bool>* stop = nullptr,
+                                       bool* stopped = nullptr) {
   transient.freezeTime(0.0);
+  struct Unfreeze {
+    NetworkSystem& system;
+    ~Unfreeze() { system.freezeTime(std::nullopt); }
+  } unfreeze{transient};
   const Index states = transient.nodeCount() + transient.controlCount();
   std::vector<double> y(transient.size(), 0.0);
   std::copy(guess.begin(), guess.end(), y.begin());
@@ -72,7 +78,8 @@ std::vector<double> steadyTemperatures(const Body& body, std::span<const double>
 }  // namespace
 
 std::vector<double> steadyState(const Body& body, std::span<const double> guess, SolverStatistics* statistics) {
-  return steadyTemperatures(body, guess, statistics);
+  NetworkSystem transient(body.network(), NetworkSystem::Mode::Transient);
+  return steadyTemperatures(body, transient, guess, statistics);
 }
 
 RunSummary runTransient(const Body& body, const RunOptions& options) {
@@ -84,8 +91,9 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   y.resize(system.size(), 0.0);  // channel energies start at 0
   RunSummary summary;
   if (c.run.initial == InitialCondition::Steady) {
-    std::vector<double> steady =
-        steadyTemperatures(body, std::span<const double>(y).first(states), nullptr, options.stop, &summary.stopped);
+    // The relaxation integrates this run's own system (one transient system per run instead of two).
+    std::vector<double> steady = steadyTemperatures(body, system, std::span<const double>(y).first(states), nullptr,
+                                                    options.stop, &summary.stopped);
     std::copy(steady.begin(), steady.end(), y.begin());
   }
   IntegratorOptions io;
@@ -167,7 +175,8 @@ RunSummary runSteady(const Body& body, const RunOptions& options) {
   Recorder recorder(body, transient, options, 1);
   recorder.setIncompletePath(options.output.empty() ? "" : incompleteName(options.output));
   body.setInterval(0);
-  std::vector<double> steady = steadyTemperatures(body, guess, &summary.statistics, options.stop, &summary.stopped);
+  std::vector<double> steady =
+      steadyTemperatures(body, transient, guess, &summary.statistics, options.stop, &summary.stopped);
   std::vector<double> y(transient.size(), 0.0);
   std::copy(steady.begin(), steady.end(), y.begin());
   recorder.record(0.0, y, transient.storedHeat(y), summary);

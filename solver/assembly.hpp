@@ -130,6 +130,7 @@ class NetworkSystem {
   std::vector<Index> groupFaceSlots_;           //!< per face: (g_c,node) per channel
   std::vector<Index> groupPartSlots_;           //!< per flow part of advections and exchanges: (g,u) or none
   mutable std::vector<double> faceGuess_;  //!< last face temperatures, Newton start values
+  mutable std::vector<double> faceNodeTemperature_, faceSlope_;  //!< node temperature and dT_s/dT_n there
   mutable std::vector<double> scratchHeat_, scratchDerivative_, modulators_;
   mutable std::vector<double> scheduleValues_;  //!< schedule factor of each modulator at the last evaluation
   std::optional<double> frozenTime_;
