@@ -311,9 +311,14 @@ class FitCost : public ceres::CostFunction {
 
 class History : public ceres::IterationCallback {
  public:
-  History(std::vector<FitIteration>& out, const double* u, const Transform& tr, std::size_t p, int start)
-      : out_(out), u_(u), tr_(tr), p_(p), start_(start) {}
+  History(std::vector<FitIteration>& out, const double* u, const Transform& tr, std::size_t p, int start, bool progress)
+      : out_(out), u_(u), tr_(tr), p_(p), start_(start), progress_(progress), begin_(Clock::now()) {}
   ceres::CallbackReturnType operator()(const ceres::IterationSummary& s) override {
+    // One line per iteration on stderr (unless --quiet): a fit of a large body runs for minutes.
+    if (progress_)
+      fmt::print(stderr, "fit: start {} iteration {:>3}: cost {:.8g}{}, max gradient {:.3g}, {:.1f} s\n", start_ + 1,
+                 s.iteration, s.cost, s.iteration > 0 && !s.step_is_successful ? " (step rejected)" : "",
+                 s.gradient_max_norm, std::chrono::duration<double>(Clock::now() - begin_).count());
     FitIteration it;
     it.iteration = s.iteration;
     it.cost = s.cost;
@@ -332,6 +337,8 @@ class History : public ceres::IterationCallback {
   const Transform& tr_;
   std::size_t p_;
   int start_;
+  bool progress_;
+  Clock::time_point begin_;
 };
 
 }  // namespace
@@ -433,7 +440,7 @@ FitResult runFit(const FitProblem& pb) {
     options.num_threads = 1;  // the runs of one evaluation are parallel already
     options.logging_type = ceres::SILENT;
     options.update_state_every_iteration = true;
-    History history(result.history, u.data(), tr, p, static_cast<int>(s));
+    History history(result.history, u.data(), tr, p, static_cast<int>(s), !pb.quiet);
     options.callbacks.push_back(&history);
     ceres::Solver::Summary summary;
     ceres::Solve(options, &problem, &summary);
