@@ -785,6 +785,37 @@ void Body::linkBlood(const Circulation& c, Index from, Index to, const FlowExpr&
   network_.advections.push_back({from, to, 0.0, bloodChannel_, begin, end});
 }
 
+void Body::linkExchanger(Index artery, Index vein, Index arteryIn, Index veinIn, double g) {
+  // One axial cell of the countercurrent exchanger, trapezoidal in the exchange: the heat passed from the artery
+  // to the deep vein is g times the mean over the cell's two faces of the stream difference,
+  //     q = g/2 [(T_a,in - T_v,out) + (T_a,out - T_v,in)] = g/2 [(T_a,in + T_a) - (T_v + T_v,in)],
+  // where the nodes hold the outlet temperatures (upwind streams) and the inlets are the upstream nodes (the
+  // cell's own node at a segment end). A balanced counterflow exchanger (C_r = 1) has the same stream difference
+  // everywhere, so this cell transfers exactly epsilon = n / (1 + n) of the largest possible heat, n = g / C, the
+  // exact effectiveness (Incropera et al. 2007, eq. 11.35 / Table 11.3 with C_r = 1); with unequal capacity rates
+  // it is second order in the cell length (the trapezoidal rule). The exchange between the outlet temperatures
+  // alone, g (T_a - T_v), transferred n / (1 + 2n) per cell (first order: NTU / (1 + NTU + NTU/N) for N cells)
+  // and its error, multiplied by about NTU in the heat the exchanger lets through, set the lower leg's grid.
+  // The coefficients do not depend on the flow (which controllers modulate), unlike an exponentially fitted
+  // conductance g' = g / (1 - n), which also fails for cell NTU n >= 1.
+  //   As network terms: a conductance g/2 between artery and vein, and the rest, g/2 (T_a,in - T_v,in) out of the
+  // artery node into the vein node, as four constant advections of +-g/2 whose flows balance at every node (into
+  // the vein: +g/2 from the artery inlet, -g/2 from the vein inlet; into the artery: +g/2 from the vein inlet,
+  // -g/2 from the artery inlet), so the network conserves energy exactly as for any mass-balanced streams.
+  network_.conductances.push_back({artery, vein, 0.5 * g, 0});
+  if (arteryIn == artery && veinIn == vein) {
+    network_.conductances.push_back({artery, vein, 0.5 * g, 0});
+    return;
+  }
+  auto add = [&](Index from, Index to, double F) {
+    if (from != to) network_.advections.push_back({from, to, F, bloodChannel_, 0, 0});
+  };
+  add(arteryIn, vein, 0.5 * g);
+  add(veinIn, vein, -0.5 * g);
+  add(veinIn, artery, 0.5 * g);
+  add(arteryIn, artery, -0.5 * g);
+}
+
 void Body::linkSegmentBlood(const Circulation& c, Index g) {
   const SegmentMesh& m = meshes_[g];
   const SegmentSpec& s = case_.segments[g];
@@ -807,13 +838,31 @@ void Body::linkSegmentBlood(const Circulation& c, Index g) {
     network_.exchanges.push_back(
         {m.arterial[0], 0.0, *case_.circulation.fixedArterialTemperature, bloodChannel_, begin, end});
   }
+  const bool exchanging = s.vessels.countercurrentConductance > 0.0 && !c.deep[g].empty();
   for (int iz = 0; iz < m.nz; ++iz) {
     auto z = static_cast<std::size_t>(iz);
-    if (iz > 0) linkBlood(c, m.arterial[z - 1], m.arterial[z], c.arterialIn[g][z]);
+    // Where an exchanger cools the artery along the segment, the cell's perfusion is drawn half from the artery's
+    // inlet (node z - 1) and half from its outlet (node z): the trapezoidal rule for the heat the draws take from
+    // the stream, so the artery's temperature change in the cell is set by its cell-mean capacity rate, and the
+    // tissue gets blood at the mean of the inlet and outlet temperatures (second order; drawing everything at the
+    // outlet was first order: the inlet capacity rate, and blood half a cell too far downstream). Without an
+    // exchanger the artery keeps its temperature along the segment and the whole draw is at node z.
+    const bool split = iz > 0 && exchanging && m.arterial[z - 1] != noNode;
+    if (iz > 0) {
+      FlowExpr through = c.arterialIn[g][z];
+      if (split)
+        for (int ir = 0; ir < m.nr; ++ir) through.add(c.cellTotal[g][static_cast<std::size_t>(iz * m.nr + ir)], -0.5);
+      linkBlood(c, m.arterial[z - 1], m.arterial[z], through);
+    }
     // Pennes term at the local arterial temperature; venous blood leaves at tissue temperature.
     for (int ir = 0; ir < m.nr; ++ir) {
       auto k = static_cast<std::size_t>(iz * m.nr + ir);
-      linkBlood(c, m.arterial[z], m.node(iz, ir), c.cellTotal[g][k]);
+      if (split) {
+        linkBlood(c, m.arterial[z - 1], m.node(iz, ir), c.cellTotal[g][k], 0.5);
+        linkBlood(c, m.arterial[z], m.node(iz, ir), c.cellTotal[g][k], 0.5);
+      } else {
+        linkBlood(c, m.arterial[z], m.node(iz, ir), c.cellTotal[g][k]);
+      }
       linkBlood(c, m.node(iz, ir), m.venous[z], c.cellDeep[g][k]);
       linkBlood(c, m.node(iz, ir), m.superficial[z], c.cellSuperficial[g][k]);
     }
@@ -826,7 +875,10 @@ void Body::linkSegmentBlood(const Circulation& c, Index g) {
       linkBlood(c, m.superficial[z + 1], m.superficial[z], c.superficialOut[g][z + 1]);
     }
     if (m.arterial[z] != noNode && m.venous[z] != noNode && s.vessels.countercurrentConductance > 0.0)
-      network_.conductances.push_back({m.arterial[z], m.venous[z], s.vessels.countercurrentConductance / m.nz, 0});
+      linkExchanger(m.arterial[z], m.venous[z],
+                    iz > 0 && m.arterial[z - 1] != noNode ? m.arterial[z - 1] : m.arterial[z],
+                    iz + 1 < m.nz && m.venous[z + 1] != noNode ? m.venous[z + 1] : m.venous[z],
+                    s.vessels.countercurrentConductance / m.nz);
     if (m.superficial[z] != noNode && s.vessels.superficialConductance > 0.0)
       network_.conductances.push_back(
           {m.superficial[z], m.node(iz, m.skinCell), s.vessels.superficialConductance / m.nz, 0});

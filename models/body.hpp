@@ -126,6 +126,8 @@ class Body {
   std::pair<Index, Index> addFlowParts(const Circulation& c, const FlowExpr& flow, double factor);
   void linkBlood(const Circulation& c, Index from, Index to, const FlowExpr& flow, double factor = 1.0);
   void linkSegmentBlood(const Circulation& c, Index g);
+  //! One axial cell of the countercurrent exchanger (trapezoidal in the exchange; see body.cpp).
+  void linkExchanger(Index artery, Index vein, Index arteryIn, Index veinIn, double g);
   void checkBloodMassBalance() const;
   void buildControllers();
   void addMetabolicModulation(Index respiratorySegment);

@@ -2,8 +2,9 @@
 //! Grid resolution from the local decay lengths of each segment: automatic cell counts where a case leaves them
 //! out, and warnings where a case gives fewer cells than its headline outputs need.
 //!
-//! The scheme is second order in space for conduction (harmonic-mean face conductances, DEVELOPERS.md) and first
-//! order along the blood streams (upwind advection), so the error of a segment's heat flows is estimated from
+//! The scheme is second order in space for conduction (harmonic-mean face conductances, DEVELOPERS.md) and along
+//! the blood streams where they exchange (trapezoidal exchange and draws, Body::linkExchanger), so the error of a
+//! segment's heat flows is estimated from
 //!   * the fin parameter m = sqrt((U' + sum_i w_i rho_b c_b A_i) / sum_i k_i A_i) [1/m]: U' the conductance per unit
 //!     length from the tissue to the surroundings (surface conductance from the environment's convection,
 //!     radiation, evaporation and substrate slopes, in series with the coat and tissue radial resistances), the
@@ -11,10 +12,10 @@
 //!     and the axial conductance of all layers. The discrete semi-infinite fin on cells of length dz with a
 //!     half-cell junction has the heat flow ratio q_h / q = 2 (1 - r + a^2) / (a (3 - r + a^2)), a = m dz,
 //!     r + 1/r = 2 + a^2 (derived in grid.cpp; for small a the error is a^2 / 8);
-//!   * the countercurrent exchanger: N mixed cells of a balanced counterflow exchanger transfer
-//!     NTU / (1 + NTU + NTU/N) of the largest possible heat instead of NTU / (1 + NTU) (Incropera et al. 2007,
-//!     Table 11.3, eq. 11.35 for the exact value; the cell form derived in grid.cpp): relative error about
-//!     NTU / (N (1 + NTU)), first order;
+//!   * the countercurrent exchanger: what it lets through (1 - epsilon, the heat a cooled appendage loses by it)
+//!     has a relative error of about 0.5 (NTU/N)^2 on N cells, second order (exact for a balanced counterflow
+//!     exchanger away from the ends: Incropera et al. 2007, eq. 11.35 / Table 11.3; constant measured in
+//!     tests/test_whole_body.cpp `[exchanger]`, grid.cpp);
 //!   * each tissue layer's radial cells against its perfusion length and, for curved shapes, its inner radius
 //!     (second order; error ~ (dr / scale)^2 / 48, the constant calibrated on the examples).
 //!   * transient forcing (models/grid.cpp, forcingInterval): a step of the surroundings (an event, or a start
