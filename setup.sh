@@ -8,7 +8,7 @@ here="$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)"
 cd "$here"
 action="${1:-demo}"
 
-packages=(cmake make g++ pkg-config libeigen3-dev libsundials-dev libhdf5-dev catch2 libtomlplusplus-dev
+packages=(cmake make g++ pkg-config libeigen3-dev libsundials-dev libsuitesparse-dev libhdf5-dev catch2 libtomlplusplus-dev
           libcli11-dev libfmt-dev libudunits2-dev libopenmpi-dev openmpi-bin python3 python3-numpy python3-h5py
           python3-matplotlib python3-scipy python3-xarray python3-h5netcdf time libceres-dev libboost-dev
           python3-dev pybind11-dev python3-pybind11)

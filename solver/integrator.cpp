@@ -18,6 +18,7 @@
 #include <fmt/format.h>
 
 #include "solver/fast_kernels.hpp"
+#include "solver/newton_solver.hpp"
 
 namespace thermorph {
 
@@ -70,19 +71,6 @@ void fillMatrix(SUNMatrix J, const SparsePattern& pattern, std::span<const doubl
   }
 }
 
-//! SUNLinSolInitialize of the KLU module, which CVODE calls again at every restart (CVodeReInit at a breakpoint
-//! of the timeline): SUNDIALS' own version marks the solver for a first factorisation, which redoes KLU's
-//! symbolic analysis (AMD ordering) and a pivoting factorisation from scratch. The Newton matrix's pattern
-//! never changes, so the analysis is kept and the next setup refactors numerically with the earlier pivot
-//! order (SUNDIALS' KLU module then checks the reciprocal condition number and factorises afresh when it is
-//! poor). Results move by round-off only (another pivot order).
-int keepKluAnalysis(SUNLinearSolver S) {
-  auto* content = static_cast<SUNLinearSolverContent_KLU>(S->content);
-  if (!content->symbolic || !content->numeric) return SUNLinSolInitialize_KLU(S);
-  content->last_flag = SUNLS_SUCCESS;
-  return SUNLS_SUCCESS;
-}
-
 }  // namespace
 
 Integrator::Integrator(const NetworkSystem& system, std::span<const double> initialState, double initialTime,
@@ -125,24 +113,20 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
   const SparsePattern& pattern = system.pattern();
   jacobianValues_.resize(pattern.nonzeros());
   if (options.linearSolver == LinearSolverKind::Klu) {
-    matrix_.reset(checkCreated(SUNSparseMatrix(n, n, static_cast<sunindextype>(pattern.nonzeros()), CSC_MAT, ctx),
-                               "the sparse Jacobian"));
-    useFastSparseOperations(matrix_.get());
-    linearSolver_.reset(checkCreated(SUNLinSol_KLU(state_.get(), matrix_.get(), ctx), "the KLU solver"));
-    // The Newton matrix I - gamma J is well scaled by construction (rows of dT/dt): skip KLU's row scaling, and
-    // (scale < 0) its check of the matrix at every factorisation (the pattern is ours and valid: 2-3 % of a run).
-    SUNLinSol_KLUGetCommon(linearSolver_.get())->scale = -1;
-    // AMD ordering (SUNDIALS defaults to COLAMD): half the fill on bodies of many 2-D segments
-    // (26,926 nodes: L+U 0.98 M instead of 2.03 M entries, 1.7x faster; tests/bench/whole_body_bench.sh).
-    check(SUNLinSol_KLUSetOrdering(linearSolver_.get(), 0), "SUNLinSol_KLUSetOrdering");
-    linearSolver_->ops->initialize = keepKluAnalysis;
+    // Our own direct solver on KLU's 32-bit interface (solver/newton_solver.hpp): it factorises the node and
+    // controller block of I - gamma J only (the cumulative energies follow by substitution) and holds the matrix
+    // itself; CVODE gets an empty matrix. Row scaling off and no check of the matrix at every factorisation
+    // (scale < 0): I - gamma J is well scaled by construction (rows of dT/dt) and the pattern is ours and valid.
+    // AMD ordering: half the fill of COLAMD on bodies of many 2-D segments (tests/bench/whole_body_bench.sh).
+    newton_ = std::make_unique<NewtonSolver>(pattern, system.nodeCount() + system.controlCount(), -1);
+    matrix_.reset(checkCreated(NewtonSolver::shellMatrix(ctx), "the Newton matrix"));
+    linearSolver_.reset(checkCreated(newton_->sundialsSolver(ctx), "the KLU solver"));
   } else {
     matrix_.reset(checkCreated(SUNDenseMatrix(n, n, ctx), "the dense Jacobian"));
     linearSolver_.reset(checkCreated(SUNLinSol_Dense(state_.get(), matrix_.get(), ctx), "the dense solver"));
   }
   check(CVodeSetLinearSolver(mem, linearSolver_.get(), matrix_.get()), "CVodeSetLinearSolver");
   if (options.linearSolver == LinearSolverKind::Klu) {
-    fillMatrix(matrix_.get(), pattern, jacobianValues_);  // the pattern, set once; values come per setup
     check(CVodeSetLinSysFn(mem, &Integrator::linearSystemCallback), "CVodeSetLinSysFn");
   } else {
     check(CVodeSetJacFn(mem, &Integrator::jacobianCallback), "CVodeSetJacFn");
@@ -253,7 +237,7 @@ int Integrator::jacobianCallback(double t, N_Vector y, N_Vector, SUNMatrix J, vo
   });
 }
 
-int Integrator::linearSystemCallback(double t, N_Vector y, N_Vector, SUNMatrix A, int jok, int* jcur, double gamma,
+int Integrator::linearSystemCallback(double t, N_Vector y, N_Vector, SUNMatrix, int jok, int* jcur, double gamma,
                                      void* user, N_Vector, N_Vector, N_Vector) {
   auto* self = static_cast<Integrator*>(user);
   return self->guard_.run([&] {
@@ -263,8 +247,7 @@ int Integrator::linearSystemCallback(double t, N_Vector y, N_Vector, SUNMatrix A
       self->system_.jacobian(t, view(y), self->jacobianValues_);
       *jcur = SUNTRUE;
     }
-    std::copy(self->jacobianValues_.begin(), self->jacobianValues_.end(), SUNSparseMatrix_Data(A));
-    if (SUNMatScaleAddI(-gamma, A) != 0) throw SolverError("SUNMatScaleAddI failed");
+    self->newton_->setMatrix(self->jacobianValues_, 1.0, -gamma);
   });
 }
 
@@ -402,9 +385,7 @@ SolverStatistics Integrator::statistics() const {
   s.linearSetups += previous_.linearSetups;
   s.wallSeconds = wallSeconds_;
   s.jacobianNonzeros = static_cast<long>(system_.pattern().nonzeros());
-  if (options_.linearSolver == LinearSolverKind::Klu)
-    if (sun_klu_numeric* numeric = SUNLinSol_KLUGetNumeric(linearSolver_.get()))
-      s.factorNonzeros = static_cast<long>(numeric->lnz + numeric->unz);
+  if (newton_) s.factorNonzeros = newton_->factorNonzeros();
   return s;
 }
 

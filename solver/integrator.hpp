@@ -19,6 +19,8 @@ struct _SUNContext;
 
 namespace thermorph {
 
+class NewtonSolver;
+
 //! The solver failed (CVODE or KINSOL flag, time reached, worst components by name). Exit code 3.
 class SolverError : public std::runtime_error {
  public:
@@ -147,10 +149,10 @@ class Integrator {
   static int weightCallback(_generic_N_Vector* y, _generic_N_Vector* weights, void* self);
   static int jacobianCallback(double t, _generic_N_Vector* y, _generic_N_Vector* fy, _generic_SUNMatrix* J,
                               void* self, _generic_N_Vector*, _generic_N_Vector*, _generic_N_Vector*);
-  //! The Newton matrix A = I - gamma J for CVODE's sparse (KLU) path: J re-evaluated only when CVODE asks
-  //! (jok false), kept in jacobianValues_ otherwise. CVODE's own linear-system function does the same
-  //! arithmetic (copy of J, SUNMatScaleAddI), but it keeps J in a second sparse matrix (a clone of A with
-  //! 64-bit indices, ~16 bytes per Jacobian entry).
+  //! The Newton matrix A = I - gamma J for CVODE's sparse (KLU) path, handed to newton_ (which holds it; CVODE's
+  //! A is an empty shell): J re-evaluated only when CVODE asks (jok false), kept in jacobianValues_ otherwise.
+  //! CVODE's own linear-system function does the same arithmetic (copy of J, SUNMatScaleAddI), but it keeps J in
+  //! a second sparse matrix (a clone of A with 64-bit indices, ~16 bytes per Jacobian entry).
   static int linearSystemCallback(double t, _generic_N_Vector* y, _generic_N_Vector* fy, _generic_SUNMatrix* A,
                                   int jok, int* jcur, double gamma, void* self, _generic_N_Vector*,
                                   _generic_N_Vector*, _generic_N_Vector*);
@@ -164,6 +166,7 @@ class Integrator {
   detail::CallbackGuard guard_;
   detail::Handle<_SUNContext> context_;
   detail::Handle<_generic_N_Vector> state_, tolerances_;
+  std::unique_ptr<NewtonSolver> newton_;  //!< the KLU path's linear solver (null for the dense one)
   detail::Handle<_generic_SUNMatrix> matrix_;
   detail::Handle<_generic_SUNLinearSolver> linearSolver_;
   detail::SolverMemory memory_;

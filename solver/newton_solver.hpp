@@ -1,0 +1,74 @@
+#pragma once
+//! Direct solver of the Newton systems A x = b with A = alpha I + beta J (CVODE: I - gamma J; KINSOL: J), on
+//! SuiteSparse KLU's 32-bit interface (klu_*, int indices) and the assembly's 32-bit pattern, behind SUNDIALS'
+//! generic linear-solver interface.
+//!
+//! The state's trailing components that nothing depends on (the cumulative energies: their columns of J hold
+//! only their diagonal) are left out of the factorisation: A is block lower triangular,
+//!   [ A_ff   0 ] [x_f]   [b_f]
+//!   [ A_ef   D ] [x_e] = [b_e],   D diagonal,
+//! so x_f = A_ff^-1 b_f (KLU) and x_e = D^-1 (b_e - A_ef x_f): the same solution as an LU of the whole matrix
+//! (block forward substitution; Golub & Van Loan 2013, sec. 3.1), with the factors, the matrix and KLU's work
+//! space of the leading block only (about 3 of the 7 Jacobian entries per node of a body with budgets).
+#include <cstdint>
+#include <memory>
+#include <span>
+#include <vector>
+
+#include "solver/assembly.hpp"
+
+struct _generic_SUNMatrix;
+struct _generic_SUNLinearSolver;
+struct _SUNContext;
+
+namespace thermorph {
+
+class NewtonSolver {
+ public:
+  //! `pattern`: the Jacobian's CSC pattern (kept by reference); `factored`: the leading block [0, factored) that
+  //! is factorised (every later column must hold only its diagonal entry: std::invalid_argument otherwise);
+  //! `scale`: KLU's row scaling option (-1: none and no check of the matrix, 0: none, 1: sum, 2: max).
+  //! Ordering: AMD.
+  NewtonSolver(const SparsePattern& pattern, Index factored, int scale);
+  ~NewtonSolver();
+  NewtonSolver(const NewtonSolver&) = delete;
+  NewtonSolver& operator=(const NewtonSolver&) = delete;
+
+  //! A = alpha I + beta J from J's values in the pattern's order. J is read again by solve() for the trailing
+  //! rows: keep it unchanged until the next setMatrix.
+  void setMatrix(std::span<const double> jacobian, double alpha, double beta);
+  //! Factorise A: the first time (or after forget()) KLU's symbolic analysis and a pivoting factorisation;
+  //! later a numeric refactorisation with the kept pivot order, factorised afresh when the reciprocal condition
+  //! estimates say it is poor (the rule of SUNDIALS' KLU module). False if KLU fails (singular matrix).
+  bool factor();
+  //! x := A^-1 x (in place) [size]. False if KLU fails.
+  bool solve(std::span<double> x) const;
+  //! The next factor() analyses and factorises from scratch.
+  void forget() { fresh_ = true; }
+  //! Entries of L + U of the last factorisation (0 before the first).
+  long factorNonzeros() const;
+  Index size() const { return pattern_.size; }
+  Index factoredSize() const { return factored_; }
+
+  //! A SUNDIALS direct linear solver (SUNLINEARSOLVER_CUSTOM) whose setup factorises the matrix last given to
+  //! setMatrix and whose solve calls solve(); its SUNLinSolInitialize keeps an existing factorisation (the
+  //! pattern never changes: a restart refactors numerically with the earlier pivot order). The caller owns it
+  //! (SUNLinSolFree) and keeps this object alive while it is used.
+  _generic_SUNLinearSolver* sundialsSolver(_SUNContext* context);
+  //! An empty SUNMatrix (SUNMATRIX_CUSTOM, no data) for CVODE's and KINSOL's matrix-based interfaces: the matrix
+  //! lives here; caller owns it (SUNMatDestroy). SUNMatZero on it does nothing.
+  static _generic_SUNMatrix* shellMatrix(_SUNContext* context);
+
+ private:
+  const SparsePattern& pattern_;
+  Index factored_ = 0;
+  std::vector<int> blockStart_, blockRow_;  //!< CSC pattern of A_ff (KLU's int interface)
+  std::vector<double> blockValues_;
+  std::span<const double> jacobian_;
+  double alpha_ = 1.0, beta_ = 0.0;
+  struct Klu;  //!< KLU's common parameters, symbolic analysis and numeric factorisation
+  std::unique_ptr<Klu> klu_;
+  bool fresh_ = true;
+};
+
+}  // namespace thermorph
