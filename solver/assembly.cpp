@@ -18,9 +18,12 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
   const bool transient = mode == Mode::Transient;
   groups_ = transient ? network.groups.size() : 0;
   pattern_.size = nodes_ + controls_ + (transient ? channels_ + groups_ * channels_ : 0);
-  groupRow_.assign(nodes_, none);
+  groupRow_.assign(nodes_, noSlot);
+  if (pattern_.size >= std::numeric_limits<Slot>::max())
+    throw std::invalid_argument(fmt::format("the state has {} components, more than this build supports", pattern_.size));
   for (Index i = 0; i < nodes_; ++i)
-    if (network.nodes[i].group < groups_) groupRow_[i] = groupEnergyOffset() + network.nodes[i].group * channels_;
+    if (network.nodes[i].group < groups_)
+      groupRow_[i] = static_cast<Slot>(groupEnergyOffset() + network.nodes[i].group * channels_);
   nodeWeight_.resize(nodes_);
   for (Index i = 0; i < nodes_; ++i) {
     Index g = network.nodes[i].group;
@@ -91,14 +94,14 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
     for (auto [node, weight] : network.controllers[k].signal) add(nodes_ + k, node);
   // Group energies: each term's flow into a group, in that group's row of the term's channel.
   auto groupEntries = [&](auto&& visit) {
-    auto row = [&](Index node, Index channel) { return groupRow_[node] == none ? none : groupRow_[node] + channel; };
+    auto row = [&](Index node, Index channel) { return groupRowOf(node) == none ? none : groupRowOf(node) + channel; };
     auto partColumns = [&](Index begin, Index end, Index r) {
       for (Index p = begin; p < end; ++p)
         if (Index u = controlColumn(network.flowParts[p].modulator); u != none) visit(r, u, &groupPartSlots_);
     };
     for (const Conductance& c : network.conductances) {
-      const bool across = network.nodes[c.a].group != network.nodes[c.b].group;
-      const Index ra = across ? row(c.a, c.channel) : none, rb = across ? row(c.b, c.channel) : none;
+      if (network.nodes[c.a].group == network.nodes[c.b].group) continue;
+      const Index ra = row(c.a, c.channel), rb = row(c.b, c.channel);
       for (auto [r, col] : {std::pair{ra, c.a}, {ra, c.b}, {rb, c.a}, {rb, c.b}}) visit(r, col, &groupConductanceSlots_);
     }
     for (const Advection& a : network.advections) {
@@ -118,7 +121,7 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       for (Index c = 0; c < channels_; ++c) visit(row(f.node, c), f.node, &groupFaceSlots_);
   };
   if (transient)
-    groupEntries([&](Index r, Index col, std::vector<Index>*) {
+    groupEntries([&](Index r, Index col, std::vector<Slot>*) {
       if (r != none && col != none) add(r, col);
     });
   std::sort(entries.begin(), entries.end());
@@ -193,9 +196,12 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
     for (auto [node, weight] : network.controllers[k].signal) controlSlots_.push_back(slot(nodes_ + k, node));
   }
   if (transient)
-    groupEntries([&](Index r, Index col, std::vector<Index>* slots) {
-      slots->push_back(r != none && col != none ? slot(r, col) : none);
+    groupEntries([&](Index r, Index col, std::vector<Slot>* slots) {
+      slots->push_back(r != none && col != none ? slot(r, col) : noSlot);
     });
+  for (auto* v : {&groupConductanceSlots_, &groupAdvectionSlots_, &groupExchangeSlots_, &groupSourceSlots_,
+                  &groupFaceSlots_, &groupPartSlots_})
+    v->shrink_to_fit();
   faceGuess_.assign(network.faces.size(), std::nan(""));
   faceNodeTemperature_.assign(network.faces.size(), 0.0);
   faceSlope_.assign(network.faces.size(), 0.0);
@@ -306,7 +312,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
   modulatorValues(time, T, modulators_);
   // Flow q of channel c into one copy of the node's group (group energies, transient only).
   auto toGroup = [&](Index node, Index channel, double q) {
-    if (groupRow_[node] != none) out[groupRow_[node] + channel] += q;
+    if (groupRow_[node] != noSlot) out[groupRow_[node] + channel] += q;
   };
   for (std::size_t k = 0; k < network_.conductances.size(); ++k) {
     const Conductance& c = network_.conductances[k];
@@ -375,10 +381,10 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
   auto scheduleOf = [&](Index modulator) { return scheduleValues_[modulator]; };
   // Group-energy rows (transient only): each slot list is consumed in the constructor's order; none: skipped.
   std::size_t gk = 0, ga = 0, ge = 0, gs = 0, gf = 0, gp = 0;
-  auto toGroup = [&](const std::vector<Index>& slots, std::size_t& next, double d) {
+  auto toGroup = [&](const std::vector<Slot>& slots, std::size_t& next, double d) {
     if (!transient) return;
-    const Index s = slots[next++];
-    if (s != none) values[s] += d;
+    const Slot s = slots[next++];
+    if (s != noSlot) values[s] += d;
   };
   std::size_t k = 0;
   for (std::size_t i = 0; i < network_.conductances.size(); ++i) {
@@ -388,6 +394,8 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     values[conductanceSlots_[k++]] += fa * G;
     values[conductanceSlots_[k++]] -= fb * G;
     values[conductanceSlots_[k++]] += fb * G;
+    if (!transient || network_.nodes[network_.conductances[i].a].group == network_.nodes[network_.conductances[i].b].group)
+      continue;  // no group-energy entries within a group
     toGroup(groupConductanceSlots_, gk, -fa * G);
     toGroup(groupConductanceSlots_, gk, fa * G);
     toGroup(groupConductanceSlots_, gk, fb * G);
@@ -629,7 +637,7 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
     std::fill(out.begin(), out.end(), 0.0);
     std::span<double> acc = transient ? out.subspan(nodes_ + controls_, channels_) : std::span<double>();
     auto toGroup = [&](Index node, Index channel, double q) {
-      if (transient && groupRow_[node] != none) out[groupRow_[node] + channel] += q;
+      if (transient && groupRow_[node] != noSlot) out[groupRow_[node] + channel] += q;
     };
     // d m_k / d p at fixed control state: the schedule's derivative times the control.
     for (Index k = 0; k < dm.size(); ++k) {

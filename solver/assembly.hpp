@@ -121,14 +121,17 @@ class NetworkSystem {
   std::vector<Slot> controlSlots_;       //!< per controller: (u,u), then (u,node) per signal entry
   // Group energies: the state row of each node's group energy of channel 0 (none: no group energies), and the
   // value slots of every term in those rows (none where a term does not reach them).
+  // 32 bits like the other slots (noSlot: none); conductances within one group have no entries.
+  static constexpr Slot noSlot = static_cast<Slot>(-1);
   Index groups_ = 0;
-  std::vector<Index> groupRow_;                 //!< per node
-  std::vector<Index> groupConductanceSlots_;    //!< 4 per conductance: (g_a,a), (g_a,b), (g_b,a), (g_b,b)
-  std::vector<Index> groupAdvectionSlots_;      //!< 2 per advection: (g_to,from), (g_to,to)
-  std::vector<Index> groupExchangeSlots_;       //!< per exchange: (g,node)
-  std::vector<Index> groupSourceSlots_;         //!< per source: (g,node), (g,u) [none without a control]
-  std::vector<Index> groupFaceSlots_;           //!< per face: (g_c,node) per channel
-  std::vector<Index> groupPartSlots_;           //!< per flow part of advections and exchanges: (g,u) or none
+  std::vector<Slot> groupRow_;                 //!< per node (a state row; noSlot: none)
+  std::vector<Slot> groupConductanceSlots_;    //!< 4 per conductance across groups: (g_a,a), (g_a,b), (g_b,a), (g_b,b)
+  std::vector<Slot> groupAdvectionSlots_;      //!< 2 per advection: (g_to,from), (g_to,to)
+  std::vector<Slot> groupExchangeSlots_;       //!< per exchange: (g,node)
+  std::vector<Slot> groupSourceSlots_;         //!< per source: (g,node), (g,u) [noSlot without a control]
+  std::vector<Slot> groupFaceSlots_;           //!< per face: (g_c,node) per channel
+  std::vector<Slot> groupPartSlots_;           //!< per flow part of advections and exchanges: (g,u) or noSlot
+  Index groupRowOf(Index node) const { return groupRow_[node] == noSlot ? none : groupRow_[node]; }
   mutable std::vector<double> faceGuess_;  //!< last face temperatures, Newton start values
   mutable std::vector<double> faceNodeTemperature_, faceSlope_;  //!< node temperature and dT_s/dT_n there
   mutable std::vector<double> scratchHeat_, scratchDerivative_, modulators_;
