@@ -104,6 +104,9 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
   } else {
     check(CVodeSVtolerances(mem, options.rtol, tolerances_.get()), "CVodeSVtolerances");
   }
+  // CVODE keeps its own copy of the tolerances (CVodeSVtolerances clones the vector) and the weight callback and
+  // the sensitivities read options_.atol: one state-sized vector less (8 bytes per node).
+  tolerances_.reset();
   check(CVodeSetUserData(mem, this), "CVodeSetUserData");
   // CVODE's own messages go into the failure message, not straight to stderr (sweeps run many solvers).
   check(CVodeSetErrHandlerFn(mem, &Integrator::errorHandler, this), "CVodeSetErrHandlerFn");
@@ -166,7 +169,7 @@ void Integrator::enableSensitivities(SensitivityProblem problem) {
   check(CVodeSensInit(mem, ns, CV_STAGGERED, &Integrator::sensitivityCallback, sensitivityVectors_), "CVodeSensInit");
   // Absolute tolerance of s_j: the state's over |p_j| (a change of p by its own size moves y by atol at most).
   N_Vector* tolerances = checkCreated(N_VCloneVectorArray(ns, state_.get()), "the sensitivity tolerances");
-  auto atol = view(tolerances_.get());
+  const std::vector<double>& atol = options_.atol;
   for (std::size_t j = 0; j < sensitivity_.count; ++j) {
     const double scale = sensitivity_.scale[j] > 0.0 ? sensitivity_.scale[j] : 1.0;
     auto t = view(tolerances[j]);
