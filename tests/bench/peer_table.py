@@ -19,7 +19,10 @@ what /usr/bin/time -v reports):
   - sweep throughput on all cores (runs/s, wall) for the hare study;
   - start-up: `check` of the hare study and `run` of a 100-node radial case (98 cells + 2 state rows), whole
     process wall, best of N;
-  - peak RSS of a `run` at 10^4 and 10^5 nodes (radial 9 998 and 99 998 cells), per node.
+  - peak RSS of a `run` at 10^4 and 10^5 nodes (radial 9 998 and 99 998 cells), per node;
+  - part `bodymemory` (not in the default): peak RSS of a `run` of the large invented body of large_body.py
+    (many 2-D segments, exchangers, one budget group per segment) at about 10^4 and 10^5 nodes (10 segments x 40
+    axial x 20 radial cells: 9 278 nodes; 40 x 100 x 24: 108 199 nodes; the second takes minutes).
 """
 import argparse
 import os
@@ -117,7 +120,7 @@ def main():
     ap.add_argument("--repeat", type=int, default=5)
     ap.add_argument("--sweep-runs", type=int, default=10)
     ap.add_argument("--only", default="peer,sweep,startup,memory",
-                    help="comma-separated parts: peer, sweep, startup, memory (default: all)")
+                    help="comma-separated parts: peer, sweep, startup, memory, bodymemory (default: all but bodymemory)")
     ap.add_argument("exes", nargs="+")
     args = ap.parse_args()
     parts = set(args.only.split(","))
@@ -217,6 +220,16 @@ def main():
             rows.append((f"peak RSS of `run` at {nodes} nodes", "", cells,
                          "≤ 400 B/node" if cells_n > 10000 else "",
                          ("met" if last <= 400 else "MISSED") if cells_n > 10000 else ""))
+        for shape in ((10, 40, 20), (40, 100, 24)) if "bodymemory" in parts else ():
+            case = work / f"body_{'_'.join(map(str, shape))}.toml"
+            case.write_text(subprocess.run([sys.executable, str(Path(__file__).with_name("large_body.py")),
+                                            *map(str, shape)], check=True, capture_output=True, text=True).stdout)
+            cells = {}
+            for name, exe in exes:
+                r = measure([exe, "run", str(case), "-o", str(work / "mem.h5"), "-q"], work)
+                nodes = int(number(r"; ([0-9]+) nodes", r.out))
+                cells[name] = f"{r.rss / 2**20:.1f} MB = {r.rss / nodes:.0f} B/node ({fmt_s(r.wall)})"
+            rows.append((f"peak RSS of `run`, large body {'x'.join(map(str, shape))}, {nodes} nodes", "", cells, "", ""))
     finally:
         shutil.rmtree(work, ignore_errors=True)
 

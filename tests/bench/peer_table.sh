@@ -5,7 +5,7 @@
 #   bash tests/bench/peer_table.sh                          # the executable of ./build
 #   bash tests/bench/peer_table.sh before=/tmp/old/thermorph after=build/thermorph   # side by side
 # Environment: BUILD_DIR (default ./build), REPEAT (best of N by wall time, default 5), SWEEP_RUNS (default 10),
-# ONLY (parts of the table: peer,sweep,startup,memory; default all).
+# ONLY (parts of the table: peer,sweep,startup,memory,bodymemory; default all but bodymemory, the large-body memory rows).
 set -euo pipefail
 ROOT=$(cd "$(dirname "${BASH_SOURCE[0]}")/../.." && pwd)
 BUILD=${BUILD_DIR:-$ROOT/build}
