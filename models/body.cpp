@@ -866,9 +866,17 @@ void Body::linkSegmentBlood(const Circulation& c, Index g) {
       linkBlood(c, m.node(iz, ir), m.venous[z], c.cellDeep[g][k]);
       linkBlood(c, m.node(iz, ir), m.superficial[z], c.cellSuperficial[g][k]);
     }
-    // Arteriovenous shunt through the skin cell, back by superficial veins.
-    linkBlood(c, m.arterial[z], m.node(iz, m.skinCell), c.shunt[g][z]);
-    linkBlood(c, m.node(iz, m.skinCell), m.superficial[z], c.shunt[g][z]);
+    // Arteriovenous shunts through the skin layer, back by superficial veins. The shunt flow and the superficial
+    // veins' conductance are spread over the layer's cells by volume (skinNodes), so the heat they bring is
+    // deposited through the layer as in the continuous model; through the outermost cell alone it would sit ever
+    // closer to the surface as that cell thins (first order in its thickness: a bare foot's surface under open
+    // shunts moved 0.99 / 1.16 / 1.24 / 1.28 degC on 3 / 6 / 12 / 24 skin cells).
+    std::vector<std::pair<Index, double>> skinShare;
+    m.skinNodes(iz, 1.0, skinShare);
+    for (auto [node, w] : skinShare) {
+      linkBlood(c, m.arterial[z], node, c.shunt[g][z], w);
+      linkBlood(c, node, m.superficial[z], c.shunt[g][z], w);
+    }
     // Veins flow proximally: cell iz receives from cell iz + 1 what returns beyond it.
     if (iz + 1 < m.nz) {
       linkBlood(c, m.venous[z + 1], m.venous[z], c.deepOut[g][z + 1]);
@@ -880,8 +888,8 @@ void Body::linkSegmentBlood(const Circulation& c, Index g) {
                     iz + 1 < m.nz && m.venous[z + 1] != noNode ? m.venous[z + 1] : m.venous[z],
                     s.vessels.countercurrentConductance / m.nz);
     if (m.superficial[z] != noNode && s.vessels.superficialConductance > 0.0)
-      network_.conductances.push_back(
-          {m.superficial[z], m.node(iz, m.skinCell), s.vessels.superficialConductance / m.nz, 0});
+      for (auto [node, w] : skinShare)
+        network_.conductances.push_back({m.superficial[z], node, w * s.vessels.superficialConductance / m.nz, 0});
   }
   if (s.vessels.countercurrentConductance > 0.0 && c.deep[g].empty())
     warnings_.push_back(fmt::format("{}: all venous return is superficial, so the countercurrent exchanger carries "
