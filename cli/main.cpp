@@ -157,7 +157,7 @@ int main(int argc, char** argv) {
   if (sensitivity->parsed()) return runSensitivityCli(sensitivityOptions, commandLine);
   if (uncertainty->parsed()) return runUncertaintyCli(uncertaintyOptions, commandLine);
   if (refine->parsed()) return runRefineCli();
-  try {
+  return withExitCodes([&]() -> int {
     Case c = loadCase(casePath, overrides);
     if (!check->parsed()) {
       // The output is checked before any computing (drivers/output_file.hpp).
@@ -199,14 +199,5 @@ int main(int argc, char** argv) {
     }
     fmt::print("Results: {}\n", summary.outputPath);
     return 0;
-  } catch (const CaseError& e) {
-    fmt::print(stderr, "error: {}\n", e.what());
-    return exitBadInput;
-  } catch (const SolverError& e) {
-    fmt::print(stderr, "error: {}\n", e.what());
-    return exitSolverFailure;
-  } catch (const std::exception& e) {
-    fmt::print(stderr, "error: {}\n", e.what());
-    return exitSolverFailure;
-  }
+  });
 }
