@@ -17,7 +17,12 @@
 //!     exchanger away from the ends: Incropera et al. 2007, eq. 11.35 / Table 11.3; constant measured in
 //!     tests/test_whole_body.cpp `[exchanger]`, grid.cpp);
 //!   * each tissue layer's radial cells against its perfusion length and, for curved shapes, its inner radius
-//!     (second order; error ~ (dr / scale)^2 / 48, the constant calibrated on the examples).
+//!     (second order; error ~ (dr / scale)^2 / 48, the constant calibrated on the examples), weighted by the share
+//!     of the segment's surface heat that crosses the layer's outer face (a fine 1-D radial model of the
+//!     cross-section; checked against the exact two-layer slab and cylinder, tests/test_grid_weights.cpp): a
+//!     perfused core layer near the arterial temperature delivers little of the surface heat. The core segment's
+//!     automatic counts keep the unweighted rule (its innermost layer's mean is the core temperature, which the
+//!     controllers magnify).
 //!   * transient forcing (models/grid.cpp, forcingInterval): a step of the surroundings (an event, or a start
 //!     from a uniform temperature) acts on the surface for at least tau, the shortest interval between such
 //!     steps (a ramped event: at least its ramp). Over that time it reaches the thermal penetration depth
@@ -62,6 +67,7 @@ struct SegmentGridEstimate {
   double endWeight = 1.0;     //!< share of the segment's heat flows that passes the forced ends [1]
   int axialNeeded = 1;        //!< axial cells meeting kGridTargetError
   std::vector<double> layerScale;  //!< per layer (coat last) the radial length scale [m]
+  std::vector<double> layerWeight; //!< per layer (coat last) share of the surface heat crossing its outer face [1]
   std::vector<int> layerNeeded;    //!< per layer (coat last) radial cells meeting kGridTargetError
   double forcingInterval = 0.0;    //!< tau: shortest interval a step of the surroundings acts [s] (0: none)
   std::vector<double> layerPenetration;  //!< per layer (coat last) delta = sqrt(alpha tau) [m] (0: no transient)

@@ -1,0 +1,111 @@
+// Weights of the radial grid estimate (models/grid.cpp, crossingShares): the share of a segment's surface heat
+// that crosses the outer face of its inner layer, from the estimator's fine 1-D model, against the exact steady
+// solutions of a two-layer perfused slab and cylinder with surface convection. Pennes (1948) tissue at the arterial
+// temperature: theta'' = m^2 theta with m^2 = w rho_b c_b / k in each layer; the slab's solutions are cosh and
+// sinh, the cylinder's the modified Bessel functions I0, K0 (the same equations as a fin and a cylindrical shell
+// with heat generation proportional to temperature: Incropera et al. 2007, sec. 3.6 and eqs. 3.70-3.77; Carslaw &
+// Jaeger 1959, sec. 7.2). The solutions here are solved independently (3x3 linear systems).
+#include <catch2/catch.hpp>
+
+#include <array>
+#include <cmath>
+#include <cstdio>
+#include <string>
+
+#include "models/grid.hpp"
+#include "test_support.hpp"
+
+using namespace thermorph;
+using namespace thermorph::testing;
+
+namespace {
+
+// Invented two-layer cross-section: a perfused core (k 0.5, w 0.002 1/s) 3 cm thick (radius or half-thickness),
+// an outer layer (k 0.4, w 0.0005 1/s) 1 cm thick, in water at a fixed 200 W/(m2 K) (fixed coefficient: no
+// radiation, Newton cooling).
+constexpr double k1 = 0.5, w1 = 0.002, a = 0.03, k2 = 0.4, w2 = 0.0005, b = 0.01, h = 200.0;
+
+std::string twoLayer(const std::string& shape) {
+  std::string geometry = shape == "plate" ? "shape = \"plate\"\nlength = 0.2\nwidth = 0.2\n"
+                                          : "shape = \"cylinder\"\nlength = 0.2\nsurface = { ends = \"insulated\" }\n";
+  return "title = \"two perfused layers\"\n[run]\nduration = 60\ninitial = \"steady\"\n"
+         "[tissues.core]\nconductivity = " + num(k1) + "\ndensity = 1000\nspecific_heat = 3500\nmetabolic_heat = 1000\n"
+         "perfusion = " + num(w1) + "\nq10 = 1\n[tissues.outer]\nconductivity = " + num(k2) +
+         "\ndensity = 1000\nspecific_heat = 3500\nmetabolic_heat = 0\nperfusion = " + num(w2) + "\nq10 = 1\n"
+         "[[segments]]\nname = \"body\"\n" + geometry +
+         "layers = [{ tissue = \"core\", thickness = " + num(a) + " }, { tissue = \"outer\", thickness = " + num(b) +
+         " }]\n[environment]\nmedium = \"water\"\ntemperature = 283.15\nconvection = " + num(h) + "\n";
+}
+
+//! Solves the 3x3 system A x = r (Gaussian elimination with partial pivoting).
+std::array<double, 3> solve3(std::array<std::array<double, 3>, 3> A, std::array<double, 3> r) {
+  for (int c = 0; c < 3; ++c) {
+    int p = c;
+    for (int i = c + 1; i < 3; ++i)
+      if (std::abs(A[i][c]) > std::abs(A[p][c])) p = i;
+    std::swap(A[c], A[p]);
+    std::swap(r[c], r[p]);
+    for (int i = c + 1; i < 3; ++i) {
+      const double f = A[i][c] / A[c][c];
+      for (int j = c; j < 3; ++j) A[i][j] -= f * A[c][j];
+      r[i] -= f * r[c];
+    }
+  }
+  std::array<double, 3> x{};
+  for (int i = 2; i >= 0; --i) {
+    double s = r[i];
+    for (int j = i + 1; j < 3; ++j) s -= A[i][j] * x[j];
+    x[i] = s / A[i][i];
+  }
+  return x;
+}
+
+//! Exact share q(a) / q(surface) of the slab: theta = C1 cosh(m1 x) in the core, C2 cosh(m2 (x - a)) +
+//! C3 sinh(m2 (x - a)) outside; continuity of theta and k theta' at a; -k2 theta'(s) = h (theta(s) + 1).
+double slabShare(double m1, double m2) {
+  const double s = b;  // x - a at the surface
+  const auto c = solve3({{{std::cosh(m1 * a), -1.0, 0.0},
+                          {k1 * m1 * std::sinh(m1 * a), 0.0, -k2 * m2},
+                          {0.0, k2 * m2 * std::sinh(m2 * s) + h * std::cosh(m2 * s),
+                           k2 * m2 * std::cosh(m2 * s) + h * std::sinh(m2 * s)}}},
+                        {0.0, 0.0, -h});
+  const double qa = -k1 * m1 * c[0] * std::sinh(m1 * a);
+  const double qs = -k2 * m2 * (c[1] * std::sinh(m2 * s) + c[2] * std::cosh(m2 * s));
+  return qa / qs;
+}
+
+//! Exact share of the cylinder: theta = C1 I0(m1 r) in the core, C2 I0(m2 r) + C3 K0(m2 r) outside (per unit
+//! length, the heat through radius r is -2 pi r k theta').
+double cylinderShare(double m1, double m2) {
+  const double R = a + b;
+  auto I0 = [](double x) { return std::cyl_bessel_i(0.0, x); };
+  auto I1 = [](double x) { return std::cyl_bessel_i(1.0, x); };
+  auto K0 = [](double x) { return std::cyl_bessel_k(0.0, x); };
+  auto K1 = [](double x) { return std::cyl_bessel_k(1.0, x); };
+  const auto c = solve3({{{I0(m1 * a), -I0(m2 * a), -K0(m2 * a)},
+                          {k1 * m1 * I1(m1 * a), -k2 * m2 * I1(m2 * a), k2 * m2 * K1(m2 * a)},
+                          {0.0, k2 * m2 * I1(m2 * R) + h * I0(m2 * R), -k2 * m2 * K1(m2 * R) + h * K0(m2 * R)}}},
+                        {0.0, 0.0, -h});
+  const double qa = -a * k1 * m1 * c[0] * I1(m1 * a);
+  const double qs = -R * k2 * m2 * (c[1] * I1(m2 * R) - c[2] * K1(m2 * R));
+  return qa / qs;
+}
+
+}  // namespace
+
+TEST_CASE("Radial grid weights: the share of the surface heat crossing an inner perfused layer matches the exact "
+          "two-layer slab and cylinder", "[grid][validation]") {
+  for (const std::string shape : {"plate", "cylinder"}) {
+    const Case c = loadCaseFromString(twoLayer(shape), "test-case");
+    const double rc = c.circulation.bloodDensity * c.circulation.bloodSpecificHeat;
+    const double m1 = std::sqrt(w1 * rc / k1), m2 = std::sqrt(w2 * rc / k2);
+    const double exact = shape == "plate" ? slabShare(m1, m2) : cylinderShare(m1, m2);
+    const SegmentGridEstimate e = estimateGrid(c).at(0);
+    std::printf("[grid] %s: share of the surface heat crossing the core's outer face %.6f (exact %.6f, %+.1e)\n",
+                shape.c_str(), e.layerWeight.at(0), exact, e.layerWeight.at(0) / exact - 1.0);
+    CHECK(exact > 0.05);
+    CHECK(exact < 0.95);  // a real weight, neither end of the range
+    CHECK(e.layerWeight.at(0) == Approx(exact).epsilon(1e-4));
+    CHECK(e.layerWeight.at(1) == 1.0);  // the whole surface heat crosses the outermost layer
+  }
+}
