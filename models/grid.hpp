@@ -21,8 +21,8 @@
 //!     of the segment's surface heat that crosses the layer's outer face (a fine 1-D radial model of the
 //!     cross-section; checked against the exact two-layer slab and cylinder, tests/test_grid_weights.cpp): a
 //!     perfused core layer near the arterial temperature delivers little of the surface heat. The core segment's
-//!     automatic counts keep the unweighted rule (its innermost layer's mean is the core temperature, which the
-//!     controllers magnify).
+//!     automatic counts keep the unweighted rule, and its innermost layer's curvature term counts unweighted in
+//!     the estimate (that layer's mean is the core temperature, which the controllers magnify).
 //!   * transient forcing (models/grid.cpp, forcingInterval): a step of the surroundings (an event, or a start
 //!     from a uniform temperature) acts on the surface for at least tau, the shortest interval between such
 //!     steps (a ramped event: at least its ramp). Over that time it reaches the thermal penetration depth
@@ -68,6 +68,7 @@ struct SegmentGridEstimate {
   int axialNeeded = 1;        //!< axial cells meeting kGridTargetError
   std::vector<double> layerScale;  //!< per layer (coat last) the radial length scale [m]
   std::vector<double> layerWeight; //!< per layer (coat last) share of the surface heat crossing its outer face [1]
+  std::vector<double> layerCoreScale;  //!< per layer: radius whose curvature counts unweighted (the core layer) [m]
   std::vector<int> layerNeeded;    //!< per layer (coat last) radial cells meeting kGridTargetError
   double forcingInterval = 0.0;    //!< tau: shortest interval a step of the surroundings acts [s] (0: none)
   std::vector<double> layerPenetration;  //!< per layer (coat last) delta = sqrt(alpha tau) [m] (0: no transient)
