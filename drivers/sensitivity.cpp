@@ -156,7 +156,10 @@ int runSensitivityCommand(const SensitivityOptions& o) {
   sweep.commandLine = o.commandLine;
   for (std::size_t j = 0; j < k; ++j) {
     std::string list;
-    for (std::size_t r = 0; r < values.size(); ++r) list += (r ? "," : "") + valueText(params[j], values[r][j]);
+    for (std::size_t r = 0; r < values.size(); ++r) {
+      if (r) list += ',';
+      list += valueText(params[j], values[r][j]);
+    }
     sweep.vary.push_back(params[j].key + "=" + list);
   }
   if (!o.quiet)
