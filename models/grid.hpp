@@ -21,8 +21,8 @@
 //!     of the segment's surface heat that crosses the layer's outer face (a fine 1-D radial model of the
 //!     cross-section; checked against the exact two-layer slab and cylinder, tests/test_grid_weights.cpp): a
 //!     perfused core layer near the arterial temperature delivers little of the surface heat. The core segment's
-//!     automatic counts keep the unweighted rule, and its innermost layer's curvature term counts unweighted in
-//!     the estimate (that layer's mean is the core temperature, which the controllers magnify).
+//!     innermost layer's curvature term counts unweighted (that layer's mean is the core temperature, which the
+//!     controllers magnify). The automatic counts keep the unweighted rule (a margin the examples' 4x checks need).
 //!   * transient forcing (models/grid.cpp, forcingInterval): a step of the surroundings (an event, or a start
 //!     from a uniform temperature) acts on the surface for at least tau, the shortest interval between such
 //!     steps (a ramped event: at least its ramp). Over that time it reaches the thermal penetration depth
