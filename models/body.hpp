@@ -102,6 +102,13 @@ class Body {
   struct CrossSection;
   struct SegmentBuild;
   static CrossSection crossSection(const SegmentSpec& s, double scale);
+  //! Where a child's tissue depth meets its parent's at a junction: a monotone piecewise-linear map of the depth
+  //! (fraction of the tissue radius, 0 at the axis or mid-plane, 1 at the tissue surface) through anchors.
+  struct DepthMap {
+    std::vector<std::pair<double, double>> anchors;  //!< (child, parent), from (1, 1) inwards
+    double operator()(double x) const;
+  };
+  static DepthMap junctionDepthMap(const SegmentSpec& s, const SegmentSpec& parent, int attachLayer);
   void addSegment(const SegmentSpec& s, Index group, bool attached);
   SegmentBuild segmentTissues(const SegmentSpec& s, Index group, SegmentMesh& m);
   void recordCoat(const SegmentBuild& b, bool face, Index index, double dry, double wet);

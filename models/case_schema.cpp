@@ -108,7 +108,12 @@ constexpr std::array params = {
     Param{"segments[].attach_position", K::Number, "", "0.5", 0, 1, false, "",
           "Where along the parent's length the segment attaches (0 proximal, 1 distal)."},
     Param{"segments[].attach_tissue", K::Text, "", "muscle", 0, 0, false, "",
-          "Parent tissue layer the proximal end conducts heat to (falls back to the innermost layer)."},
+          "Parent tissue layer the child's deep tissue meets at the junction (falls back to the innermost layer). "
+          "Each tissue ring of the child's proximal face conducts to the parent's cells at its own depth under the "
+          "child's footprint: the layers both share from the outside in (skin to skin, fat to fat, ...) meet each "
+          "other while the parent's layer lies outside this one; the child's layers inside those meet the parent "
+          "from this layer's inner boundary out to the first shared layer, depth linear in the radius. A sphere "
+          "child meets this layer alone."},
     Param{"segments[].shape", K::Choice, "", "", 0, 0, false, "sphere|cylinder|cone|plate", "Geometric shape."},
     Param{"segments[].length", K::Quantity, "m", "", 0, 100, true, "", "Length (cylinder, cone, plate)."},
     Param{"segments[].radius", K::Quantity, "m", "", 0, 10, true, "",
