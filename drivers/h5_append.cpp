@@ -3,7 +3,10 @@
 #include <hdf5.h>
 #include <hdf5_hl.h>
 
+#include <algorithm>
+#include <cstddef>
 #include <stdexcept>
+#include <unordered_map>
 
 #include <fmt/format.h>
 
@@ -203,6 +206,115 @@ herr_t collectName(hid_t, const char* name, const H5L_info_t*, void* data) {
   return 0;
 }
 }  // namespace
+
+void attachScales(std::span<const ScaleAttachment> list) {
+  if (list.empty()) return;
+  // Objects that carry their list already (attached earlier) keep HDF5's own read-modify-write, and so does every
+  // entry that shares a dataset or scale with them (closure): the two sets of entries touch disjoint objects.
+  std::vector<hobj_ref_t> datasetRefs(list.size()), scaleRefs(list.size());
+  for (std::size_t i = 0; i < list.size(); ++i) {  // object references: the objects' addresses in the file
+    check(H5Rcreate(&datasetRefs[i], list[i].dataset, ".", H5R_OBJECT, -1), "reference a dataset");
+    check(H5Rcreate(&scaleRefs[i], list[i].scale, ".", H5R_OBJECT, -1), "reference a dimension scale");
+  }
+  std::unordered_map<hobj_ref_t, bool> earlier;  // per object: attached before this call
+  for (std::size_t i = 0; i < list.size(); ++i) {
+    if (!earlier.count(datasetRefs[i])) earlier[datasetRefs[i]] = H5Aexists(list[i].dataset, "DIMENSION_LIST") != 0;
+    if (!earlier.count(scaleRefs[i])) earlier[scaleRefs[i]] = H5Aexists(list[i].scale, "REFERENCE_LIST") != 0;
+  }
+  std::vector<bool> legacy(list.size(), false);
+  for (bool grown = true; grown;) {
+    grown = false;
+    for (std::size_t i = 0; i < list.size(); ++i) {
+      if (legacy[i] || !(earlier[datasetRefs[i]] || earlier[scaleRefs[i]])) continue;
+      legacy[i] = grown = true;
+      earlier[datasetRefs[i]] = earlier[scaleRefs[i]] = true;
+    }
+  }
+  for (std::size_t i = 0; i < list.size(); ++i)
+    if (legacy[i]) check(H5DSattach_scale(list[i].dataset, list[i].scale, list[i].axis), "attach a dimension scale");
+  struct Target {
+    hid_t id;
+    std::vector<std::vector<hobj_ref_t>> axes;  // the scales of each axis, in the order given
+  };
+  // One REFERENCE_LIST element: the layout of HDF5's own ds_list_t (an object reference, then the axis).
+  struct Entry {
+    hobj_ref_t dataset;
+    unsigned int dimension;
+  };
+  struct Scale {
+    hid_t id;
+    std::vector<Entry> entries;
+  };
+  std::vector<Target> targets;
+  std::vector<Scale> scales;
+  std::unordered_map<hobj_ref_t, std::size_t> targetIndex, scaleIndex;
+  for (std::size_t i = 0; i < list.size(); ++i) {
+    if (legacy[i]) continue;
+    const ScaleAttachment& a = list[i];
+    const hobj_ref_t dataset = datasetRefs[i], scale = scaleRefs[i];
+    if (dataset == scale) throw std::runtime_error("HDF5: cannot attach a dataset to itself as a dimension scale");
+    auto [t, newTarget] = targetIndex.emplace(dataset, targets.size());
+    if (newTarget) {
+      if (H5DSis_scale(a.dataset) != 0) throw std::runtime_error("HDF5: a dimension scale cannot have dimension scales");
+      const hid_t space = H5Dget_space(a.dataset);
+      const int rank = space < 0 ? -1 : H5Sget_simple_extent_ndims(space);
+      if (space >= 0) H5Sclose(space);
+      check(rank, "read the rank of a dataset");
+      targets.push_back({a.dataset, std::vector<std::vector<hobj_ref_t>>(static_cast<std::size_t>(std::max(rank, 1)))});
+    }
+    Target& target = targets[t->second];
+    if (a.axis >= target.axes.size()) throw std::runtime_error("HDF5: dimension scale attached to a missing axis");
+    std::vector<hobj_ref_t>& axis = target.axes[a.axis];
+    if (std::find(axis.begin(), axis.end(), scale) != axis.end()) continue;  // attached already
+    axis.push_back(scale);
+    auto [s, newScale] = scaleIndex.emplace(scale, scales.size());
+    if (newScale) scales.push_back({a.scale, {}});
+    scales[s->second].entries.push_back({dataset, a.axis});
+  }
+  for (const Scale& s : scales) {
+    hobj_ref_t ref = 0;
+    H5Rcreate(&ref, s.id, ".", H5R_OBJECT, -1);
+    if (targetIndex.count(ref) || H5Aexists(s.id, "DIMENSION_LIST") != 0)
+      throw std::runtime_error("HDF5: a dimension scale cannot have dimension scales");
+  }
+  // Closes the HDF5 handles of this function on every path.
+  struct Handles {
+    std::vector<std::pair<hid_t, herr_t (*)(hid_t)>> open;
+    ~Handles() {
+      for (auto it = open.rbegin(); it != open.rend(); ++it)
+        if (it->first >= 0) it->second(it->first);
+    }
+    hid_t keep(hid_t id, herr_t (*closer)(hid_t)) {
+      open.emplace_back(id, closer);
+      return id;
+    }
+  } h;
+  const hid_t listType = h.keep(H5Tvlen_create(H5T_STD_REF_OBJ), H5Tclose);
+  check(listType < 0 ? -1 : 0, "create the DIMENSION_LIST type");
+  for (const Target& t : targets) {
+    std::vector<hvl_t> lists(t.axes.size());
+    for (std::size_t i = 0; i < t.axes.size(); ++i) {
+      lists[i].len = t.axes[i].size();
+      lists[i].p = t.axes[i].empty() ? nullptr : const_cast<hobj_ref_t*>(t.axes[i].data());
+    }
+    const hsize_t n = lists.size();
+    const hid_t space = h.keep(H5Screate_simple(1, &n, nullptr), H5Sclose);
+    const hid_t attr = h.keep(H5Acreate2(t.id, "DIMENSION_LIST", listType, space, H5P_DEFAULT, H5P_DEFAULT), H5Aclose);
+    check(attr < 0 ? -1 : H5Awrite(attr, listType, lists.data()), "write a DIMENSION_LIST");
+  }
+  const hid_t entryType = h.keep(H5Tcreate(H5T_COMPOUND, sizeof(Entry)), H5Tclose);
+  check(entryType < 0 ? -1 : 0, "create the REFERENCE_LIST type");
+  check(H5Tinsert(entryType, "dataset", offsetof(Entry, dataset), H5T_STD_REF_OBJ), "create the REFERENCE_LIST type");
+  check(H5Tinsert(entryType, "dimension", offsetof(Entry, dimension), H5T_NATIVE_INT), "create the REFERENCE_LIST type");
+  for (const Scale& s : scales) {
+    const hsize_t n = s.entries.size();
+    const hid_t space = h.keep(H5Screate_simple(1, &n, nullptr), H5Sclose);
+    const hid_t attr = h.keep(H5Acreate2(s.id, "REFERENCE_LIST", entryType, space, H5P_DEFAULT, H5P_DEFAULT), H5Aclose);
+    check(attr < 0 ? -1 : H5Awrite(attr, entryType, s.entries.data()), "write a REFERENCE_LIST");
+    // As H5DSattach_scale: a dataset attached as a scale is marked one.
+    if (H5DSis_scale(s.id) == 0) check(H5DSset_scale(s.id, nullptr), "make a dataset a dimension scale");
+  }
+}
 
 std::vector<std::string> h5List(const std::string& file, const std::string& group) {
   std::vector<std::string> out;

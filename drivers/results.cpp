@@ -9,6 +9,7 @@
 
 #include <fmt/format.h>
 
+#include "drivers/h5_append.hpp"
 #include "drivers/output_file.hpp"
 
 namespace thermorph {
@@ -355,18 +356,13 @@ void ResultsFile::attachDimensions(const std::string& path, const std::vector<st
         attachments_.push_back({d, noSeries, (parent == "/" ? "" : parent) + "/" + dims[i], static_cast<unsigned>(i)});
     return;
   }
+  // A dataset written already: attached at commit too, with the rest (one write per attribute).
   hid_t ds = H5Dopen2(file_, path.c_str(), H5P_DEFAULT);
   checkH5(ds, "open " + path);
-  for (std::size_t i = 0; i < dims.size(); ++i) {
-    if (dims[i].empty()) continue;
-    const std::string scalePath = (parent == "/" ? "" : parent) + "/" + dims[i];
-    hid_t scale = H5Dopen2(file_, scalePath.c_str(), H5P_DEFAULT);
-    herr_t status = scale < 0 ? -1 : H5DSattach_scale(ds, scale, static_cast<unsigned>(i));
-    if (scale >= 0) H5Dclose(scale);
-    if (status < 0) H5Dclose(ds);
-    checkH5(status, "attach " + scalePath + " to " + path);
-  }
   H5Dclose(ds);
+  for (std::size_t i = 0; i < dims.size(); ++i)
+    if (!dims[i].empty())
+      attachments_.push_back({noSeries, noSeries, (parent == "/" ? "" : parent) + "/" + dims[i], static_cast<unsigned>(i), path});
 }
 
 void ResultsFile::append(std::size_t index, std::span<const double> values) {
@@ -454,14 +450,29 @@ std::string ResultsFile::commit(const std::string& otherPath) {
       else
         flush(i);  // the last, partly filled chunks
     }
+    // Every attachment in one call: each DIMENSION_LIST and REFERENCE_LIST written once (drivers/h5_append.hpp).
+    std::map<std::string, hid_t> opened;  // coordinates given by path, each opened once
+    struct CloseOpened {
+      std::map<std::string, hid_t>& opened;
+      ~CloseOpened() {
+        for (const auto& [path, id] : opened) H5Dclose(id);
+      }
+    } closeOpened{opened};
+    auto open = [&](const std::string& path) {
+      if (auto it = opened.find(path); it != opened.end()) return it->second;
+      const hid_t id = H5Dopen2(file_, path.c_str(), H5P_DEFAULT);
+      checkH5(id, "open " + path);
+      opened.emplace(path, id);
+      return id;
+    };
+    std::vector<ScaleAttachment> list;
+    list.reserve(attachments_.size());
     for (const Attachment& a : attachments_) {
-      const hid_t scale = a.scaleSeries != noSeries ? series_[a.scaleSeries].dataset
-                                                    : H5Dopen2(file_, a.scalePath.c_str(), H5P_DEFAULT);
-      checkH5(scale, "open coordinate " + a.scalePath);
-      const herr_t status = H5DSattach_scale(series_[a.series].dataset, scale, a.axis);
-      if (a.scaleSeries == noSeries) H5Dclose(scale);
-      checkH5(status, "attach a dimension scale");
+      const hid_t scale = a.scaleSeries != noSeries ? series_[a.scaleSeries].dataset : open(a.scalePath);
+      const hid_t dataset = a.series != noSeries ? series_[a.series].dataset : open(a.datasetPath);
+      list.push_back({dataset, scale, a.axis});
     }
+    attachScales(list);
     attachments_.clear();
   } catch (const std::exception&) {
     flushed = false;

@@ -52,7 +52,7 @@ class ResultsFile {
   void append(std::size_t series, std::span<const double> values);
   //! Make the 1-D dataset `path` a dimension scale (a netCDF coordinate) named after it.
   void makeCoordinate(const std::string& path);
-  //! Attach axis i of dataset `path` to the coordinate `dims[i]` of the same group ("" skips an axis).
+  //! Attach axis i of dataset `path` to the coordinate `dims[i]` of the same group ("" skips an axis), at commit.
   void attachDimensions(const std::string& path, const std::vector<std::string>& dims);
 
   void setAttribute(const std::string& object, const std::string& name, const std::string& value);
@@ -89,13 +89,14 @@ class ResultsFile {
     std::string path = {}, units = {}, longName = {}, scaleName = {};
     std::vector<PendingAttribute> attributes = {};
   };
-  //! A dimension scale attached at commit: axis `axis` of series `series` to series `scaleSeries` or the
-  //! dataset `scalePath`.
+  //! A dimension scale attached at commit: axis `axis` of series `series` (or, when noSeries, the dataset
+  //! `datasetPath`) to series `scaleSeries` or the dataset `scalePath`.
   struct Attachment {
     std::size_t series;
     std::size_t scaleSeries;
     std::string scalePath;
     unsigned axis;
+    std::string datasetPath = {};
   };
   //! The deferred series at `path`, or noSeries.
   std::size_t deferredSeries(const std::string& path) const;

@@ -23,6 +23,7 @@
 #include <fmt/format.h>
 
 #include "models/caution.hpp"
+#include "drivers/h5_append.hpp"
 #include "drivers/output_file.hpp"
 
 namespace thermorph {
@@ -246,13 +247,18 @@ void attachRunCoordinate(hid_t group, std::size_t n) {
   check(H5DSset_scale(run, "run"), "make run a dimension scale");
   H5G_info_t info;
   check(H5Gget_info(group, &info), "list a group");
+  // All at once: one REFERENCE_LIST write on `run` instead of a rewrite per column (drivers/h5_append.hpp).
+  std::vector<H5> columns;
+  std::vector<ScaleAttachment> list;
+  columns.reserve(info.nlinks);
   for (hsize_t i = 0; i < info.nlinks; ++i) {
     char name[1024];
     if (H5Lget_name_by_idx(group, ".", H5_INDEX_NAME, H5_ITER_INC, i, name, sizeof name, H5P_DEFAULT) < 0) continue;
     if (std::string(name) == "run") continue;
-    H5 ds(H5Dopen2(group, name, H5P_DEFAULT), H5Dclose, std::string("open ") + name);
-    check(H5DSattach_scale(ds, run, 0), std::string("attach run to ") + name);
+    columns.emplace_back(H5Dopen2(group, name, H5P_DEFAULT), H5Dclose, std::string("open ") + name);
+    list.push_back({columns.back(), run, 0});
   }
+  attachScales(list);
 }
 
 std::string nowIso() {

@@ -1,0 +1,170 @@
+// Dimension scales attached in bulk (drivers/h5_append.hpp, attachScales) read back through HDF5's own
+// dimension-scale API (H5DS of hdf5_hl, the reference implementation netCDF-4 and h5py build on): the same scales
+// per axis, in the same order, and the same REFERENCE_LIST on each scale as one H5DSattach_scale per entry.
+#include <hdf5.h>
+#include <hdf5_hl.h>
+#include <unistd.h>
+
+#include <catch2/catch.hpp>
+#include <filesystem>
+#include <string>
+#include <utility>
+#include <vector>
+
+#include "drivers/h5_append.hpp"
+
+using namespace thermorph;
+
+namespace {
+
+//! The attachments of a file: per dataset and axis the names of its scales (H5DSiterate_scales order), and per
+//! scale its REFERENCE_LIST entries (dataset name, axis) in stored order.
+struct Layout {
+  std::vector<std::vector<std::vector<std::string>>> axes;
+  std::vector<std::vector<std::pair<std::string, int>>> references;
+};
+
+std::string nameOf(hid_t id) {
+  char name[256];
+  H5Iget_name(id, name, sizeof name);
+  return name;
+}
+
+herr_t collectScale(hid_t, unsigned, hid_t scale, void* out) {
+  static_cast<std::vector<std::string>*>(out)->push_back(nameOf(scale));
+  return 0;
+}
+
+Layout readLayout(hid_t file, const std::vector<std::string>& datasets, const std::vector<std::string>& scales) {
+  Layout out;
+  for (const std::string& d : datasets) {
+    hid_t ds = H5Dopen2(file, d.c_str(), H5P_DEFAULT);
+    REQUIRE(ds >= 0);
+    hid_t space = H5Dget_space(ds);
+    const int rank = H5Sget_simple_extent_ndims(space);
+    H5Sclose(space);
+    std::vector<std::vector<std::string>> axes(static_cast<std::size_t>(rank));
+    for (int i = 0; i < rank; ++i) {
+      const int n = H5DSget_num_scales(ds, static_cast<unsigned>(i));
+      if (n > 0) REQUIRE(H5DSiterate_scales(ds, static_cast<unsigned>(i), nullptr, collectScale, &axes[i]) >= 0);
+      CHECK(static_cast<int>(axes[i].size()) == std::max(n, 0));
+    }
+    out.axes.push_back(axes);
+    H5Dclose(ds);
+  }
+  // REFERENCE_LIST read with HDF5's own compound layout {object reference, int}.
+  struct Entry {
+    hobj_ref_t ref;
+    int dim;
+  };
+  for (const std::string& s : scales) {
+    hid_t sc = H5Dopen2(file, s.c_str(), H5P_DEFAULT);
+    REQUIRE(sc >= 0);
+    CHECK(H5DSis_scale(sc) > 0);
+    std::vector<std::pair<std::string, int>> refs;
+    if (H5Aexists(sc, "REFERENCE_LIST") > 0) {
+      hid_t attr = H5Aopen(sc, "REFERENCE_LIST", H5P_DEFAULT);
+      hid_t space = H5Aget_space(attr);
+      const auto n = static_cast<std::size_t>(H5Sget_simple_extent_npoints(space));
+      hid_t type = H5Tcreate(H5T_COMPOUND, sizeof(Entry));
+      H5Tinsert(type, "dataset", HOFFSET(Entry, ref), H5T_STD_REF_OBJ);
+      H5Tinsert(type, "dimension", HOFFSET(Entry, dim), H5T_NATIVE_INT);
+      std::vector<Entry> entries(n);
+      REQUIRE(H5Aread(attr, type, entries.data()) >= 0);
+      for (const Entry& e : entries) {
+        hid_t target = H5Rdereference2(sc, H5P_DEFAULT, H5R_OBJECT, &e.ref);
+        REQUIRE(target >= 0);
+        refs.emplace_back(nameOf(target), e.dim);
+        H5Dclose(target);
+      }
+      H5Tclose(type);
+      H5Sclose(space);
+      H5Aclose(attr);
+    }
+    out.references.push_back(refs);
+    H5Dclose(sc);
+  }
+  return out;
+}
+
+//! Scales /x (3), /y (2), /t (4), datasets /a [4 x 3], /b [4 x 3 x 2], /c [4], /d [4 x 3]; `attach` attaches.
+template <class Attach>
+Layout build(const std::string& path, bool duplicate, Attach attach) {
+  hid_t file = H5Fcreate(path.c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, H5P_DEFAULT);
+  REQUIRE(file >= 0);
+  auto make = [&](const std::string& name, std::vector<hsize_t> dims) {
+    hid_t space = H5Screate_simple(static_cast<int>(dims.size()), dims.data(), nullptr);
+    hid_t ds = H5Dcreate2(file, name.c_str(), H5T_NATIVE_DOUBLE, space, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+    H5Sclose(space);
+    REQUIRE(ds >= 0);
+    return ds;
+  };
+  hid_t x = make("x", {3}), y = make("y", {2}), t = make("t", {4});
+  for (auto [id, name] : {std::pair{x, "x"}, std::pair{y, "y"}, std::pair{t, "t"}}) REQUIRE(H5DSset_scale(id, name) >= 0);
+  hid_t a = make("a", {4, 3}), b = make("b", {4, 3, 2}), c = make("c", {4}), d = make("d", {4, 3});
+  // A second scale on one axis (/y on /a's axis 1 after /x); with `duplicate`, /c-/t twice.
+  std::vector<ScaleAttachment> list{{a, t, 0}, {a, x, 1}, {b, t, 0}, {b, x, 1}, {b, y, 2},
+                                    {c, t, 0}, {a, y, 1}, {d, t, 0}, {d, x, 1}};
+  if (duplicate) list.insert(list.begin() + 7, ScaleAttachment{c, t, 0});
+  attach(list, file);
+  Layout layout = readLayout(file, {"/a", "/b", "/c", "/d"}, {"/x", "/y", "/t"});
+  for (hid_t id : {x, y, t, a, b, c, d}) H5Dclose(id);
+  H5Fclose(file);
+  return layout;
+}
+
+}  // namespace
+
+TEST_CASE("attachScales writes the dimension scales H5DSattach_scale writes", "[h5][results]") {
+  const std::filesystem::path dir = std::filesystem::temp_directory_path();
+  const std::string one = (dir / ("thermorph-scales-one-" + std::to_string(::getpid()) + ".h5")).string();
+  const std::string bulk = (dir / ("thermorph-scales-bulk-" + std::to_string(::getpid()) + ".h5")).string();
+  const std::string mixed = (dir / ("thermorph-scales-mixed-" + std::to_string(::getpid()) + ".h5")).string();
+  const Layout reference = build(one, false, [](const std::vector<ScaleAttachment>& list, hid_t) {
+    for (const ScaleAttachment& e : list) REQUIRE(H5DSattach_scale(e.dataset, e.scale, e.axis) >= 0);
+  });
+  // The reference itself, as HDF5 documents it: /a axis 1 has /x then /y; /t is referenced by a, b, c, d.
+  REQUIRE(reference.axes[0][1] == std::vector<std::string>{"/x", "/y"});
+  REQUIRE(reference.references[2].size() == 4);
+
+  SECTION("all in one call") {
+    const Layout layout = build(bulk, false, [](const std::vector<ScaleAttachment>& list, hid_t) { attachScales(list); });
+    CHECK(layout.axes == reference.axes);
+    CHECK(layout.references == reference.references);
+  }
+  SECTION("a duplicate entry is dropped") {
+    // HDF5 1.10's H5DSattach_scale leaves DIMENSION_LIST alone for a duplicate but still appends it to the
+    // scale's REFERENCE_LIST (5 entries on /t); attachScales drops it from both.
+    const Layout layout = build(bulk, true, [](const std::vector<ScaleAttachment>& list, hid_t) { attachScales(list); });
+    CHECK(layout.axes == reference.axes);
+    CHECK(layout.references == reference.references);
+  }
+  SECTION("some attached earlier one by one: the rest joins them") {
+    const Layout layout = build(mixed, false, [](const std::vector<ScaleAttachment>& list, hid_t) {
+      // /d to /t before: every entry sharing /t, and by closure every entry here, goes one by one.
+      REQUIRE(H5DSattach_scale(list[7].dataset, list[7].scale, list[7].axis) >= 0);
+      std::vector<ScaleAttachment> rest(list.begin(), list.begin() + 7);
+      rest.push_back(list[8]);
+      attachScales(rest);
+    });
+    CHECK(layout.axes == reference.axes);
+    // /t's list starts with /d (attached first here); every other list as in the reference.
+    CHECK(layout.references[0] == reference.references[0]);
+    CHECK(layout.references[1] == reference.references[1]);
+    CHECK(layout.references[2].front().first == "/d");
+    CHECK(layout.references[2].size() == reference.references[2].size());
+  }
+  SECTION("a dataset cannot be its own scale") {
+    hid_t file = H5Fcreate(bulk.c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, H5P_DEFAULT);
+    hsize_t n = 3;
+    hid_t space = H5Screate_simple(1, &n, nullptr);
+    hid_t x = H5Dcreate2(file, "x", H5T_NATIVE_DOUBLE, space, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+    REQUIRE(H5DSset_scale(x, "x") >= 0);
+    std::vector<ScaleAttachment> list{{x, x, 0}};
+    CHECK_THROWS(attachScales(list));
+    H5Dclose(x);
+    H5Sclose(space);
+    H5Fclose(file);
+  }
+  for (const std::string& f : {one, bulk, mixed}) std::filesystem::remove(f);
+}
