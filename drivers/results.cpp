@@ -2,6 +2,9 @@
 
 #include <hdf5.h>
 #include <hdf5_hl.h>
+#include <libdeflate.h>
+
+#include <cstring>
 
 #include <filesystem>
 #include <numeric>
@@ -61,6 +64,15 @@ ResultsFile::ResultsFile(std::string finalPath) : finalPath_(std::move(finalPath
   file_ = H5Fcreate(temporary_->path().c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, H5P_DEFAULT);
   checkH5(file_, "create " + temporary_->path() + " for " + finalPath_);
 }
+
+//! The compressed series' filters: HDF5's shuffle (byte k of every element together) and deflate at this level.
+constexpr int deflateLevel = 1;
+
+struct ResultsFile::ChunkCompressor {
+  libdeflate_compressor* compressor = libdeflate_alloc_compressor(deflateLevel);
+  std::vector<unsigned char> raw, shuffled, packed;
+  ~ChunkCompressor() { libdeflate_free_compressor(compressor); }
+};
 
 ResultsFile::~ResultsFile() {
   close();  // the temporary file is removed by temporary_ unless committed
@@ -228,8 +240,10 @@ std::size_t ResultsFile::createDataset(const std::string& path, const std::vecto
   hid_t space = H5Screate_simple(static_cast<int>(dims.size()), dims.data(), maxDims.data());
   hid_t plist = H5Pcreate(H5P_DATASET_CREATE);
   H5Pset_chunk(plist, static_cast<int>(chunk.size()), chunk.data());
+  // Shuffle and deflate level 1: chunks filtered by writeChunks with libdeflate (the 20,000-cell field: 360
+  // million instructions against zlib's 878, file 4 % larger; libdeflate's level 2 608 million, 4 % smaller).
   H5Pset_shuffle(plist);
-  H5Pset_deflate(plist, 1);  // level 1: most of the size gain at a fraction of the time
+  H5Pset_deflate(plist, deflateLevel);
   hid_t ds = H5Dcreate2(group, name.c_str(), H5T_NATIVE_DOUBLE, space, H5P_DEFAULT, plist, H5P_DEFAULT);
   checkH5(ds, "create " + path);
   writeStringAttribute(ds, "units", units);
@@ -385,6 +399,11 @@ void ResultsFile::flush(std::size_t index) {
   const std::uint64_t perPoint = std::max<std::uint64_t>(
       1, std::accumulate(s.shape.begin(), s.shape.end(), std::uint64_t{1}, std::multiplies<>()));
   const hsize_t rows = s.pending.size() / perPoint;
+  if (s.count % s.chunkRows == 0) {  // whole chunks from the start of one: filtered here
+    writeChunks(s, rows);
+    return;
+  }
+  // A partly written chunk (points read back before a chunk was full): HDF5 reads, merges and refilters it.
   std::vector<hsize_t> dims{s.count + rows}, start{s.count}, count{rows};
   for (auto d : s.shape) {
     dims.push_back(d);
@@ -399,6 +418,38 @@ void ResultsFile::flush(std::size_t index) {
           "write a time series");
   H5Sclose(memSpace);
   H5Sclose(fileSpace);
+  s.count += rows;
+  s.pending.clear();
+}
+
+void ResultsFile::writeChunks(Series& s, std::uint64_t rows) {
+  const std::uint64_t perPoint = std::max<std::uint64_t>(
+      1, std::accumulate(s.shape.begin(), s.shape.end(), std::uint64_t{1}, std::multiplies<>()));
+  std::vector<hsize_t> dims{s.count + rows};
+  for (auto d : s.shape) dims.push_back(d);
+  checkH5(H5Dset_extent(s.dataset, dims.data()), "extend a time series");
+  if (!compressor_) compressor_ = std::make_unique<ChunkCompressor>();
+  ChunkCompressor& c = *compressor_;
+  if (!c.compressor) throw std::runtime_error("cannot allocate a deflate compressor");
+  const std::size_t elements = s.chunkRows * perPoint, bytes = elements * sizeof(double);
+  c.raw.resize(bytes);
+  c.shuffled.resize(bytes);
+  c.packed.resize(libdeflate_zlib_compress_bound(c.compressor, bytes));
+  std::vector<hsize_t> offset(dims.size(), 0);
+  for (std::uint64_t done = 0; done < rows; done += s.chunkRows) {
+    const std::uint64_t n = std::min<std::uint64_t>(s.chunkRows, rows - done);
+    // The points, then the fill value 0 past the end of the data (as HDF5 stores a partial edge chunk).
+    std::memcpy(c.raw.data(), s.pending.data() + done * perPoint, n * perPoint * sizeof(double));
+    std::memset(c.raw.data() + n * perPoint * sizeof(double), 0, bytes - n * perPoint * sizeof(double));
+    // HDF5's shuffle filter: byte k of element i goes to k * elements + i.
+    for (std::size_t i = 0; i < elements; ++i)
+      for (std::size_t k = 0; k < sizeof(double); ++k) c.shuffled[k * elements + i] = c.raw[i * sizeof(double) + k];
+    const std::size_t size =
+        libdeflate_zlib_compress(c.compressor, c.shuffled.data(), bytes, c.packed.data(), c.packed.size());
+    if (size == 0) throw std::runtime_error("deflate of a chunk failed");
+    offset[0] = s.count + done;
+    checkH5(H5Dwrite_chunk(s.dataset, H5P_DEFAULT, 0, offset.data(), size, c.packed.data()), "write a chunk");
+  }
   s.count += rows;
   s.pending.clear();
 }

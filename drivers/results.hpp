@@ -120,6 +120,12 @@ class ResultsFile {
   std::vector<std::pair<std::string, std::size_t>> groupTimes_;  //!< group path, series of its /time copy
   bool committed_ = false;
   std::uint64_t expectedPoints_ = 0;
+  //! Chunks of the compressed series filtered here (shuffle, then zlib-format deflate by libdeflate) and written
+  //! with H5Dwrite_chunk: the filters declared on the dataset, so every HDF5 reader decodes them as its own.
+  struct ChunkCompressor;
+  std::unique_ptr<ChunkCompressor> compressor_;
+  //! Write `rows` pending points of series `s`, which starts at a chunk boundary, chunk by chunk.
+  void writeChunks(Series& s, std::uint64_t rows);
 };
 
 }  // namespace thermorph
