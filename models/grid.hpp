@@ -74,6 +74,7 @@ struct SegmentGridEstimate {
   std::vector<double> layerPenetration;  //!< per layer (coat last) delta = sqrt(alpha tau) [m] (0: no transient)
   std::vector<double> layerStepShare;    //!< per layer (coat last) erfc(depth / (2 delta)) [1]
   double endPenetration = 0.0;     //!< delta of the end faces' cross-section (area-weighted alpha) [m]
+  std::string waterLineParent;     //!< the parent, when the water line lies at this segment's junction
   double endShare = 0.0;           //!< exposed end-face area over the segment's exposed area (transient only) [1]
 };
 
