@@ -18,26 +18,14 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
   const bool transient = mode == Mode::Transient;
   groups_ = transient ? network.groups.size() : 0;
   pattern_.size = nodes_ + controls_ + (transient ? channels_ + groups_ * channels_ : 0);
-  groupRow_.assign(nodes_, noSlot);
   if (pattern_.size >= std::numeric_limits<Slot>::max())
     throw std::invalid_argument(fmt::format("the state has {} components, more than this build supports", pattern_.size));
-  for (Index i = 0; i < nodes_; ++i)
-    if (network.nodes[i].group < groups_)
-      groupRow_[i] = static_cast<Slot>(groupEnergyOffset() + network.nodes[i].group * channels_);
   nodeWeight_.resize(nodes_);
   for (Index i = 0; i < nodes_; ++i) {
     Index g = network.nodes[i].group;
     nodeWeight_[i] = g < network.groupWeights.size() ? network.groupWeights[g] : 1.0;
   }
-  // Between groups of different multiplicity a conductance carries its flow once per copy of the more
-  // numerous group: the single parent receives count times what each child copy gives.
-  conductanceFactor_.reserve(2 * network.conductances.size());
   q10Rate_.reserve(network.sources.size());
-  for (const Conductance& c : network.conductances) {
-    double w = std::max(nodeWeight_[c.a], nodeWeight_[c.b]);
-    conductanceFactor_.push_back(w / nodeWeight_[c.a]);
-    conductanceFactor_.push_back(w / nodeWeight_[c.b]);
-  }
   // Q10^((T - T_ref)/10) = exp(a (T - T_ref)), a = ln(Q10)/10.
   for (const HeatSource& src : network.sources) q10Rate_.push_back(std::log(src.q10) / 10.0);
   rowScale_.assign(pattern_.size, 1.0);
@@ -51,157 +39,97 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
     if ((m.schedule != none && !network.schedules) || (m.control != none && m.control >= controls_))
       throw std::invalid_argument(fmt::format("modulator {} refers to a missing schedule or controller", m.name));
 
-  // Collect (row, col) of every term, then compress into CSC once; the same order then finds each slot.
-  std::vector<std::pair<Index, Index>> entries;  // (col, row)
-  auto add = [&](Index row, Index col) { entries.emplace_back(col, row); };
+  // Collect (row, col) of every term as one 64-bit key (column in the high half, so that sorting orders by
+  // column, then row), counted first so that the list is allocated once at its exact size; then compress into
+  // CSC. The Jacobian finds each term's value slot again by a search in its column (slot()).
   auto accumulator = [&](Index channel) { return nodes_ + controls_ + channel; };
-  auto forParts = [&](Index begin, Index end, Index row, Index channel, auto&& visit) {
-    for (Index p = begin; p < end; ++p) {
-      Index u = controlColumn(network.flowParts[p].modulator);
-      if (u == none) continue;
-      visit(row, u);
-      if (transient) visit(accumulator(channel), u);
+  auto visitEntries = [&](auto&& add) {
+    auto forParts = [&](Index begin, Index end, Index row, Index channel) {
+      for (Index p = begin; p < end; ++p) {
+        Index u = controlColumn(network.flowParts[p].modulator);
+        if (u == none) continue;
+        add(row, u);
+        if (transient) add(accumulator(channel), u);
+      }
+    };
+    for (Index i = 0; i < pattern_.size; ++i) add(i, i);
+    for (const Conductance& c : network.conductances) {
+      add(c.a, c.b);
+      add(c.b, c.a);
     }
-  };
-  for (Index i = 0; i < pattern_.size; ++i) add(i, i);
-  for (const Conductance& c : network.conductances) {
-    add(c.a, c.b);
-    add(c.b, c.a);
-  }
-  for (const Advection& a : network.advections) {
-    add(a.to, a.from);
-    if (transient) {
-      add(accumulator(a.channel), a.from);
-      add(accumulator(a.channel), a.to);
+    for (const Advection& a : network.advections) {
+      add(a.to, a.from);
+      if (transient) {
+        add(accumulator(a.channel), a.from);
+        add(accumulator(a.channel), a.to);
+      }
+      forParts(a.partsBegin, a.partsEnd, a.to, a.channel);
     }
-    forParts(a.partsBegin, a.partsEnd, a.to, a.channel, add);
-  }
-  for (const BoundaryExchange& e : network.exchanges) {
-    if (transient) add(accumulator(e.channel), e.node);
-    forParts(e.partsBegin, e.partsEnd, e.node, e.channel, add);
-  }
-  for (const HeatSource& s : network.sources) {
-    if (transient) add(accumulator(s.channel), s.node);
-    if (Index u = controlColumn(s.modulator); u != none) {
-      add(s.node, u);
-      if (transient) add(accumulator(s.channel), u);
+    for (const BoundaryExchange& e : network.exchanges) {
+      if (transient) add(accumulator(e.channel), e.node);
+      forParts(e.partsBegin, e.partsEnd, e.node, e.channel);
     }
-  }
-  for (const SurfaceFace& f : network.faces)
-    if (transient)
-      for (Index c = 0; c < channels_; ++c) add(accumulator(c), f.node);
-  for (Index k = 0; k < controls_; ++k)
-    for (auto [node, weight] : network.controllers[k].signal) add(nodes_ + k, node);
-  // Group energies: each term's flow into a group, in that group's row of the term's channel.
-  auto groupEntries = [&](auto&& visit) {
+    for (const HeatSource& s : network.sources) {
+      if (transient) add(accumulator(s.channel), s.node);
+      if (Index u = controlColumn(s.modulator); u != none) {
+        add(s.node, u);
+        if (transient) add(accumulator(s.channel), u);
+      }
+    }
+    for (const SurfaceFace& f : network.faces)
+      if (transient)
+        for (Index c = 0; c < channels_; ++c) add(accumulator(c), f.node);
+    for (Index k = 0; k < controls_; ++k)
+      for (auto [node, weight] : network.controllers[k].signal) add(nodes_ + k, node);
+    if (!transient) return;
+    // Group energies: each term's flow into a group, in that group's row of the term's channel (the entries that
+    // jacobian() fills through groupSlot()).
     auto row = [&](Index node, Index channel) { return groupRowOf(node) == none ? none : groupRowOf(node) + channel; };
+    auto visit = [&](Index r, Index col) {
+      if (r != none && col != none) add(r, col);
+    };
     auto partColumns = [&](Index begin, Index end, Index r) {
       for (Index p = begin; p < end; ++p)
-        if (Index u = controlColumn(network.flowParts[p].modulator); u != none) visit(r, u, &groupPartSlots_);
+        if (Index u = controlColumn(network.flowParts[p].modulator); u != none) visit(r, u);
     };
     for (const Conductance& c : network.conductances) {
       if (network.nodes[c.a].group == network.nodes[c.b].group) continue;
       const Index ra = row(c.a, c.channel), rb = row(c.b, c.channel);
-      for (auto [r, col] : {std::pair{ra, c.a}, {ra, c.b}, {rb, c.a}, {rb, c.b}}) visit(r, col, &groupConductanceSlots_);
+      for (auto [r, col] : {std::pair{ra, c.a}, {ra, c.b}, {rb, c.a}, {rb, c.b}}) visit(r, col);
     }
     for (const Advection& a : network.advections) {
-      visit(row(a.to, a.channel), a.from, &groupAdvectionSlots_);
-      visit(row(a.to, a.channel), a.to, &groupAdvectionSlots_);
+      visit(row(a.to, a.channel), a.from);
+      visit(row(a.to, a.channel), a.to);
       partColumns(a.partsBegin, a.partsEnd, row(a.to, a.channel));
     }
     for (const BoundaryExchange& e : network.exchanges) {
-      visit(row(e.node, e.channel), e.node, &groupExchangeSlots_);
+      visit(row(e.node, e.channel), e.node);
       partColumns(e.partsBegin, e.partsEnd, row(e.node, e.channel));
     }
     for (const HeatSource& s : network.sources) {
-      visit(row(s.node, s.channel), s.node, &groupSourceSlots_);
-      visit(row(s.node, s.channel), controlColumn(s.modulator), &groupSourceSlots_);
+      visit(row(s.node, s.channel), s.node);
+      visit(row(s.node, s.channel), controlColumn(s.modulator));
     }
     for (const SurfaceFace& f : network.faces)
-      for (Index c = 0; c < channels_; ++c) visit(row(f.node, c), f.node, &groupFaceSlots_);
+      for (Index c = 0; c < channels_; ++c) visit(row(f.node, c), f.node);
   };
-  if (transient)
-    groupEntries([&](Index r, Index col, std::vector<Slot>*) {
-      if (r != none && col != none) add(r, col);
-    });
+  std::size_t count = 0;
+  visitEntries([&](Index, Index) { ++count; });
+  std::vector<std::uint64_t> entries;
+  entries.reserve(count);
+  visitEntries([&](Index row, Index col) { entries.push_back(static_cast<std::uint64_t>(col) << 32 | row); });
   std::sort(entries.begin(), entries.end());
   entries.erase(std::unique(entries.begin(), entries.end()), entries.end());
   if (entries.size() > std::numeric_limits<Slot>::max() || pattern_.size >= std::numeric_limits<Slot>::max())
     throw std::invalid_argument(fmt::format("the Jacobian has {} entries, more than this build supports", entries.size()));
   pattern_.columnStart.assign(pattern_.size + 1, 0);
   pattern_.rowIndex.reserve(entries.size());
-  for (auto& [col, row] : entries) {
-    ++pattern_.columnStart[col + 1];
-    pattern_.rowIndex.push_back(static_cast<std::uint32_t>(row));
+  for (std::uint64_t key : entries) {
+    ++pattern_.columnStart[(key >> 32) + 1];
+    pattern_.rowIndex.push_back(static_cast<std::uint32_t>(key));
   }
   for (Index c = 0; c < pattern_.size; ++c) pattern_.columnStart[c + 1] += pattern_.columnStart[c];
-  std::vector<std::pair<Index, Index>>().swap(entries);  // freed before the slot tables grow
-  // Exact sizes of the slot tables (counted as they are filled below), so that none keeps spare capacity.
-  {
-    std::size_t parts = 0, advection = 0, exchange = 0, source = 0, control = 0;
-    auto countParts = [&](Index begin, Index end) {
-      for (Index p = begin; p < end; ++p)
-        if (controlColumn(network.flowParts[p].modulator) != none) parts += transient ? 2 : 1;
-    };
-    for (const Advection& a : network.advections) {
-      advection += transient ? 4 : 2;
-      countParts(a.partsBegin, a.partsEnd);
-    }
-    for (const BoundaryExchange& e : network.exchanges) {
-      exchange += transient ? 2 : 1;
-      countParts(e.partsBegin, e.partsEnd);
-    }
-    for (const HeatSource& s : network.sources)
-      source += (transient ? 2 : 1) * (controlColumn(s.modulator) != none ? 2 : 1);
-    for (const Controller& c : network.controllers) control += 1 + c.signal.size();
-    conductanceSlots_.reserve(4 * network.conductances.size());
-    advectionSlots_.reserve(advection);
-    exchangeSlots_.reserve(exchange);
-    sourceSlots_.reserve(source);
-    faceSlots_.reserve(network.faces.size() * (1 + (transient ? channels_ : 0)));
-    partSlots_.reserve(parts);
-    controlSlots_.reserve(control);
-  }
-
-  auto slotOf = [&](Index row, Index col) { partSlots_.push_back(slot(row, col)); };
-  for (const Conductance& c : network.conductances)
-    conductanceSlots_.insert(conductanceSlots_.end(), {slot(c.a, c.a), slot(c.a, c.b), slot(c.b, c.b), slot(c.b, c.a)});
-  for (const Advection& a : network.advections) {
-    advectionSlots_.insert(advectionSlots_.end(), {slot(a.to, a.to), slot(a.to, a.from)});
-    if (transient)
-      advectionSlots_.insert(advectionSlots_.end(),
-                             {slot(accumulator(a.channel), a.from), slot(accumulator(a.channel), a.to)});
-    forParts(a.partsBegin, a.partsEnd, a.to, a.channel, slotOf);
-  }
-  for (const BoundaryExchange& e : network.exchanges) {
-    exchangeSlots_.push_back(slot(e.node, e.node));
-    if (transient) exchangeSlots_.push_back(slot(accumulator(e.channel), e.node));
-    forParts(e.partsBegin, e.partsEnd, e.node, e.channel, slotOf);
-  }
-  for (const HeatSource& s : network.sources) {
-    sourceSlots_.push_back(slot(s.node, s.node));
-    if (transient) sourceSlots_.push_back(slot(accumulator(s.channel), s.node));
-    if (Index u = controlColumn(s.modulator); u != none) {
-      sourceSlots_.push_back(slot(s.node, u));
-      if (transient) sourceSlots_.push_back(slot(accumulator(s.channel), u));
-    }
-  }
-  for (const SurfaceFace& f : network.faces) {
-    faceSlots_.push_back(slot(f.node, f.node));
-    if (transient)
-      for (Index c = 0; c < channels_; ++c) faceSlots_.push_back(slot(accumulator(c), f.node));
-  }
-  for (Index k = 0; k < controls_; ++k) {
-    controlSlots_.push_back(slot(nodes_ + k, nodes_ + k));
-    for (auto [node, weight] : network.controllers[k].signal) controlSlots_.push_back(slot(nodes_ + k, node));
-  }
-  if (transient)
-    groupEntries([&](Index r, Index col, std::vector<Slot>* slots) {
-      slots->push_back(r != none && col != none ? slot(r, col) : noSlot);
-    });
-  for (auto* v : {&groupConductanceSlots_, &groupAdvectionSlots_, &groupExchangeSlots_, &groupSourceSlots_,
-                  &groupFaceSlots_, &groupPartSlots_})
-    v->shrink_to_fit();
+  std::vector<std::uint64_t>().swap(entries);
   faceGuess_.assign(network.faces.size(), std::nan(""));
   faceNodeTemperature_.assign(network.faces.size(), 0.0);
   faceSlope_.assign(network.faces.size(), 0.0);
@@ -312,16 +240,17 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
   modulatorValues(time, T, modulators_);
   // Flow q of channel c into one copy of the node's group (group energies, transient only).
   auto toGroup = [&](Index node, Index channel, double q) {
-    if (groupRow_[node] != noSlot) out[groupRow_[node] + channel] += q;
+    if (const Index r = groupRowOf(node); r != none) out[r + channel] += q;
   };
   for (std::size_t k = 0; k < network_.conductances.size(); ++k) {
     const Conductance& c = network_.conductances[k];
+    const auto [fa, fb] = conductanceFactors(c);
     double q = c.conductance * (T[c.b] - T[c.a]);
-    out[c.a] += conductanceFactor_[2 * k] * q;
-    out[c.b] -= conductanceFactor_[2 * k + 1] * q;
+    out[c.a] += fa * q;
+    out[c.b] -= fb * q;
     if (transient && network_.nodes[c.a].group != network_.nodes[c.b].group) {
-      toGroup(c.a, c.channel, conductanceFactor_[2 * k] * q);
-      toGroup(c.b, c.channel, -conductanceFactor_[2 * k + 1] * q);
+      toGroup(c.a, c.channel, fa * q);
+      toGroup(c.b, c.channel, -fb * q);
     }
   }
   for (const Advection& a : network_.advections) {
@@ -379,98 +308,101 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
   modulatorValues(time, T, modulators_);
   // d m_k / d u_control = schedule(t) for a part whose modulator has a control (evaluated just above).
   auto scheduleOf = [&](Index modulator) { return scheduleValues_[modulator]; };
-  // Group-energy rows (transient only): each slot list is consumed in the constructor's order; none: skipped.
-  std::size_t gk = 0, ga = 0, ge = 0, gs = 0, gf = 0, gp = 0;
-  auto toGroup = [&](const std::vector<Slot>& slots, std::size_t& next, double d) {
+  // Each entry is found by a search in its column (slot()), in the order in which the terms were once read from
+  // slot tables (the same sums in the same order: the same values).
+  auto add = [&](Index row, Index col, double d) { values[slot(row, col)] += d; };
+  // Group-energy rows (transient only): the flow of `channel` into the group of `node`; skipped where there is
+  // no such row (or no such column: a source without a control).
+  auto toGroup = [&](Index node, Index channel, Index col, double d) {
     if (!transient) return;
-    const Slot s = slots[next++];
-    if (s != noSlot) values[s] += d;
+    const Index r = groupRowOf(node);
+    if (r != none && col != none) values[slot(r + channel, col)] += d;
   };
-  std::size_t k = 0;
-  for (std::size_t i = 0; i < network_.conductances.size(); ++i) {
-    const double G = network_.conductances[i].conductance;
-    const double fa = conductanceFactor_[2 * i], fb = conductanceFactor_[2 * i + 1];
-    values[conductanceSlots_[k++]] -= fa * G;
-    values[conductanceSlots_[k++]] += fa * G;
-    values[conductanceSlots_[k++]] -= fb * G;
-    values[conductanceSlots_[k++]] += fb * G;
-    if (!transient || network_.nodes[network_.conductances[i].a].group == network_.nodes[network_.conductances[i].b].group)
+  for (const Conductance& c : network_.conductances) {
+    const double G = c.conductance;
+    const auto [fa, fb] = conductanceFactors(c);
+    add(c.a, c.a, -fa * G);
+    add(c.a, c.b, fa * G);
+    add(c.b, c.b, -fb * G);
+    add(c.b, c.a, fb * G);
+    if (!transient || network_.nodes[c.a].group == network_.nodes[c.b].group)
       continue;  // no group-energy entries within a group
-    toGroup(groupConductanceSlots_, gk, -fa * G);
-    toGroup(groupConductanceSlots_, gk, fa * G);
-    toGroup(groupConductanceSlots_, gk, fb * G);
-    toGroup(groupConductanceSlots_, gk, -fb * G);
+    toGroup(c.a, c.channel, c.a, -fa * G);
+    toGroup(c.a, c.channel, c.b, fa * G);
+    toGroup(c.b, c.channel, c.a, fb * G);
+    toGroup(c.b, c.channel, c.b, -fb * G);
   }
-  std::size_t a = 0, ps = 0;
-  auto partDerivatives = [&](Index begin, Index end, double difference, double weight) {
+  // Flow parts with a control of a term into `row` of budget `channel`.
+  auto partDerivatives = [&](Index begin, Index end, Index row, Index channel, double difference, double weight) {
     for (Index p = begin; p < end; ++p) {
       const FlowPart& part = network_.flowParts[p];
-      if (controlColumn(part.modulator) == none) continue;
+      const Index u = controlColumn(part.modulator);
+      if (u == none) continue;
       double d = part.coefficient * scheduleOf(part.modulator) * difference;
-      values[partSlots_[ps++]] += d;
-      if (transient) values[partSlots_[ps++]] += weight * d;
-      toGroup(groupPartSlots_, gp, d);
+      add(row, u, d);
+      if (transient) add(nodes_ + controls_ + channel, u, weight * d);
+      toGroup(row, channel, u, d);
     }
   };
   for (const Advection& adv : network_.advections) {
     double F = adv.flowCapacity + partsValue(adv.partsBegin, adv.partsEnd, modulators_);
-    values[advectionSlots_[a++]] -= F;
-    values[advectionSlots_[a++]] += F;
+    add(adv.to, adv.to, -F);
+    add(adv.to, adv.from, F);
     const double w = nodeWeight_[adv.to];
+    const Index acc = nodes_ + controls_ + adv.channel;
     if (transient) {
-      values[advectionSlots_[a++]] += w * F;
-      values[advectionSlots_[a++]] -= w * F;
+      add(acc, adv.from, w * F);
+      add(acc, adv.to, -(w * F));
     }
-    toGroup(groupAdvectionSlots_, ga, F);
-    toGroup(groupAdvectionSlots_, ga, -F);
-    partDerivatives(adv.partsBegin, adv.partsEnd, T[adv.from] - T[adv.to], w);
+    toGroup(adv.to, adv.channel, adv.from, F);
+    toGroup(adv.to, adv.channel, adv.to, -F);
+    partDerivatives(adv.partsBegin, adv.partsEnd, adv.to, adv.channel, T[adv.from] - T[adv.to], w);
   }
-  std::size_t e = 0;
   for (const BoundaryExchange& ex : network_.exchanges) {
     double G = ex.conductance + partsValue(ex.partsBegin, ex.partsEnd, modulators_);
-    values[exchangeSlots_[e++]] -= G;
-    if (transient) values[exchangeSlots_[e++]] -= nodeWeight_[ex.node] * G;
-    toGroup(groupExchangeSlots_, ge, -G);
-    partDerivatives(ex.partsBegin, ex.partsEnd, ex.temperature - T[ex.node], nodeWeight_[ex.node]);
+    add(ex.node, ex.node, -G);
+    if (transient) add(nodes_ + controls_ + ex.channel, ex.node, -(nodeWeight_[ex.node] * G));
+    toGroup(ex.node, ex.channel, ex.node, -G);
+    partDerivatives(ex.partsBegin, ex.partsEnd, ex.node, ex.channel, ex.temperature - T[ex.node],
+                    nodeWeight_[ex.node]);
   }
-  std::size_t so = 0;
   for (std::size_t i = 0; i < network_.sources.size(); ++i) {
     const HeatSource& s = network_.sources[i];
     double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
     double base = s.power * std::exp(q10Rate_[i] * (T[s.node] - s.referenceTemperature));
     // d/dT [P m Q10^((T - T_ref)/10)] = P m Q10^(...) ln(Q10)/10.
     double dq = base * m * q10Rate_[i];
-    values[sourceSlots_[so++]] += dq;
-    if (transient) values[sourceSlots_[so++]] += nodeWeight_[s.node] * dq;
-    toGroup(groupSourceSlots_, gs, dq);
-    const double du = controlColumn(s.modulator) != none ? base * scheduleOf(s.modulator) : 0.0;
-    if (controlColumn(s.modulator) != none) {
-      values[sourceSlots_[so++]] += du;
-      if (transient) values[sourceSlots_[so++]] += nodeWeight_[s.node] * du;
+    const Index acc = nodes_ + controls_ + s.channel;
+    add(s.node, s.node, dq);
+    if (transient) add(acc, s.node, nodeWeight_[s.node] * dq);
+    toGroup(s.node, s.channel, s.node, dq);
+    const Index u = controlColumn(s.modulator);
+    const double du = u != none ? base * scheduleOf(s.modulator) : 0.0;
+    if (u != none) {
+      add(s.node, u, du);
+      if (transient) add(acc, u, nodeWeight_[s.node] * du);
     }
-    toGroup(groupSourceSlots_, gs, du);
+    toGroup(s.node, s.channel, u, du);
   }
-  std::size_t fs = 0;
   for (Index f = 0; f < network_.faces.size(); ++f) {
     Index node = network_.faces[f].node;
     FaceSolution sol = solveFace(f, time, T[node], scratchHeat_, scratchDerivative_);
     double total = 0.0;
     for (Index c = 0; c < channels_; ++c) total += scratchDerivative_[c];
-    values[faceSlots_[fs++]] += total * sol.dTsdTn;
+    add(node, node, total * sol.dTsdTn);
     if (transient)
       for (Index c = 0; c < channels_; ++c) {
-        values[faceSlots_[fs++]] += nodeWeight_[node] * scratchDerivative_[c] * sol.dTsdTn;
-        toGroup(groupFaceSlots_, gf, scratchDerivative_[c] * sol.dTsdTn);
+        add(nodes_ + controls_ + c, node, nodeWeight_[node] * scratchDerivative_[c] * sol.dTsdTn);
+        toGroup(node, c, node, scratchDerivative_[c] * sol.dTsdTn);
       }
   }
-  std::size_t cs = 0;
   for (Index kk = 0; kk < controls_; ++kk) {
     const Controller& c = network_.controllers[kk];
     const double scale = transient ? 1.0 / c.timeConstant : 1.0;
     bool active = false;
     controlTarget(c, time, T, &active);
-    values[controlSlots_[cs++]] -= scale;
-    for (auto [node, weight] : c.signal) values[controlSlots_[cs++]] += active ? scale * c.gain * weight : 0.0;
+    add(nodes_ + kk, nodes_ + kk, -scale);
+    for (auto [node, weight] : c.signal) add(nodes_ + kk, node, active ? scale * c.gain * weight : 0.0);
   }
   if (transient) {
     // Row scaling by 1/C for node rows.
@@ -491,12 +423,13 @@ void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span
   std::vector<double> rate(nodes_, 0.0);
   for (std::size_t k = 0; k < network_.conductances.size(); ++k) {
     const Conductance& c = network_.conductances[k];
+    const auto [fa, fb] = conductanceFactors(c);
     double q = c.conductance * (T[c.b] - T[c.a]);
-    rate[c.a] += conductanceFactor_[2 * k] * q;
-    rate[c.b] -= conductanceFactor_[2 * k + 1] * q;
+    rate[c.a] += fa * q;
+    rate[c.b] -= fb * q;
     if (group(c.a) != group(c.b)) {
-      at(c.a, c.channel) += conductanceFactor_[2 * k] * q;
-      at(c.b, c.channel) -= conductanceFactor_[2 * k + 1] * q;
+      at(c.a, c.channel) += fa * q;
+      at(c.b, c.channel) -= fb * q;
     }
   }
   for (const Advection& a : network_.advections) {
@@ -637,7 +570,7 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
     std::fill(out.begin(), out.end(), 0.0);
     std::span<double> acc = transient ? out.subspan(nodes_ + controls_, channels_) : std::span<double>();
     auto toGroup = [&](Index node, Index channel, double q) {
-      if (transient && groupRow_[node] != noSlot) out[groupRow_[node] + channel] += q;
+      if (const Index r = groupRowOf(node); transient && r != none) out[r + channel] += q;
     };
     // d m_k / d p at fixed control state: the schedule's derivative times the control.
     for (Index k = 0; k < dm.size(); ++k) {
@@ -658,14 +591,15 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
     };
     for (std::size_t k = 0; k < network_.conductances.size(); ++k) {
       const Conductance& c = network_.conductances[k];
+    const auto [fa, fb] = conductanceFactors(c);
       const double dG = (P.conductances[k].conductance - M.conductances[k].conductance) / h;
       if (dG == 0.0) continue;
       const double q = dG * (T[c.b] - T[c.a]);
-      out[c.a] += conductanceFactor_[2 * k] * q;
-      out[c.b] -= conductanceFactor_[2 * k + 1] * q;
+      out[c.a] += fa * q;
+      out[c.b] -= fb * q;
       if (network_.nodes[c.a].group != network_.nodes[c.b].group) {
-        toGroup(c.a, c.channel, conductanceFactor_[2 * k] * q);
-        toGroup(c.b, c.channel, -conductanceFactor_[2 * k + 1] * q);
+        toGroup(c.a, c.channel, fa * q);
+        toGroup(c.b, c.channel, -fb * q);
       }
     }
     for (std::size_t k = 0; k < network_.advections.size(); ++k) {

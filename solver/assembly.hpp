@@ -1,9 +1,11 @@
 #pragma once
 //! Assembles a thermal network into heat rates, dT/dt and a sparse CSC Jacobian through an index map built once.
 #include <cstdint>
+#include <algorithm>
 #include <optional>
 #include <string>
 #include <span>
+#include <utility>
 #include <vector>
 
 #include "network/network.hpp"
@@ -95,8 +97,8 @@ class NetworkSystem {
   //! `remember`: keep the solution as the face's next Newton start (false for reports: groupFlows).
   FaceSolution solveFace(Index face, double time, double nodeTemperature, std::span<double> channelHeat,
                          std::span<double> channelDerivative, bool remember = true) const;
-  //! Position of a Jacobian entry in pattern().rowIndex; 32 bits (the constructor checks that they suffice): the
-  //! slot tables below hold about 10 per node.
+  //! Position of a Jacobian entry in pattern().rowIndex: a search in its column (the Jacobian's terms find their
+  //! entries this way; no per-term tables of positions are kept). 32 bits (the constructor checks that they suffice).
   using Slot = std::uint32_t;
   Slot slot(Index row, Index col) const;
   double partsValue(Index begin, Index end, std::span<const double> m) const;
@@ -110,28 +112,22 @@ class NetworkSystem {
   std::vector<double> rowScale_;           //!< 1/C for node rows (transient), 1 otherwise
   std::vector<double> nodeWeight_;         //!< group multiplicity of each node
   std::vector<double> q10Rate_;            //!< per source ln(Q10)/10 [1/K]
-  std::vector<double> conductanceFactor_;  //!< per conductance: factors on the flow into a and into b
-  // Value slots of every term, in the order of the network's vectors.
-  std::vector<Slot> conductanceSlots_;   //!< 4 per conductance: aa, ab, bb, ba
-  std::vector<Slot> advectionSlots_;     //!< per advection: (to,to), (to,from), [(acc,from), (acc,to)]
-  std::vector<Slot> exchangeSlots_;      //!< per exchange: (node,node), [(acc,node)]
-  std::vector<Slot> sourceSlots_;        //!< per source: (node,node), [(acc,node)], [(node,u), [(acc,u)]]
-  std::vector<Slot> faceSlots_;          //!< per face: (node,node), [(acc_c,node) per channel]
-  std::vector<Slot> partSlots_;          //!< per flow part with a control: (row,u), [(acc,u)]
-  std::vector<Slot> controlSlots_;       //!< per controller: (u,u), then (u,node) per signal entry
-  // Group energies: the state row of each node's group energy of channel 0 (none: no group energies), and the
-  // value slots of every term in those rows (none where a term does not reach them).
-  // 32 bits like the other slots (noSlot: none); conductances within one group have no entries.
-  static constexpr Slot noSlot = static_cast<Slot>(-1);
+  // Group energies (transient): the state row of a node's group energy of channel 0, from its group (none: no
+  // group energies); the rows of the other channels follow it.
   Index groups_ = 0;
-  std::vector<Slot> groupRow_;                 //!< per node (a state row; noSlot: none)
-  std::vector<Slot> groupConductanceSlots_;    //!< 4 per conductance across groups: (g_a,a), (g_a,b), (g_b,a), (g_b,b)
-  std::vector<Slot> groupAdvectionSlots_;      //!< 2 per advection: (g_to,from), (g_to,to)
-  std::vector<Slot> groupExchangeSlots_;       //!< per exchange: (g,node)
-  std::vector<Slot> groupSourceSlots_;         //!< per source: (g,node), (g,u) [noSlot without a control]
-  std::vector<Slot> groupFaceSlots_;           //!< per face: (g_c,node) per channel
-  std::vector<Slot> groupPartSlots_;           //!< per flow part of advections and exchanges: (g,u) or noSlot
-  Index groupRowOf(Index node) const { return groupRow_[node] == noSlot ? none : groupRow_[node]; }
+  Index groupRowOf(Index node) const {
+    const Index g = network_.nodes[node].group;
+    return g < groups_ ? groupEnergyOffset() + g * channels_ : none;
+  }
+  //! Factors on a conductance's flow into a and into b: between groups of different multiplicity it carries its
+  //! flow once per copy of the more numerous group (the single parent receives count times what each child copy
+  //! gives); 1 and 1 between nodes of equal multiplicity (w / w = 1 exactly, so the same numbers as dividing).
+  std::pair<double, double> conductanceFactors(const Conductance& c) const {
+    const double wa = nodeWeight_[c.a], wb = nodeWeight_[c.b];
+    if (wa == wb) return {1.0, 1.0};
+    const double w = std::max(wa, wb);
+    return {w / wa, w / wb};
+  }
   mutable std::vector<double> faceGuess_;  //!< last face temperatures, Newton start values
   mutable std::vector<double> faceNodeTemperature_, faceSlope_;  //!< node temperature and dT_s/dT_n there
   mutable std::vector<double> scratchHeat_, scratchDerivative_, modulators_;
