@@ -34,7 +34,10 @@ CLI::App* addFitSubcommand(CLI::App& app, FitOptions& o) {
       ->check(CLI::IsMember({"auto", "fd"}));
   fit->add_option("--step", o.step, "Finite-difference step, relative (or in ln for log-scale parameters); default 1e-4");
   fit->add_option("--rtol", o.rtol,
-                  "Integrator tolerances of the fit's runs (run.rtol, run.atol in K); 0 keeps the case's. Default 1e-8");
+                  "Integrator tolerances of the fit's runs (run.rtol, run.atol in K); 0 keeps the case's. Default 1e-7 (model errors below 1e-3 of a 0.05 K noise SD on the example fit)");
+  fit->add_option("--converged-se", o.stepTolerance,
+                  "Converged when the Gauss-Newton step is below this many standard errors (relative offset "
+                  "criterion, Bates & Watts 1981); default 0.01");
   fit->add_option("-j,--jobs", o.jobs, "Threads for the runs of one Jacobian (default: all cores)");
   fit->add_option("-o,--output", o.output,
                   "Results of the fitted run with the /fit group (HDF5); the fitted case goes beside it as "

@@ -55,6 +55,62 @@ void parallelFor(std::size_t n, int jobs, const std::function<void(std::size_t)>
   for (std::thread& t : threads) t.join();
 }
 
+//! The case text with every segment's cell counts (axial, per layer, coat) written out as the grid resolved at
+//! `overrides` (the base case's, then the start values) gives them; `pinned` says whether it did (the caller then
+//! appends run.grid_refinement = 1 to the fit's overrides: the counts written are the refined ones). The automatic grid depends on the parameters (the coat's conductivity sets the
+//! coat's and the tissue layers' counts through the decay length): left automatic, a fit's model jumps where a
+//! count changes (the example fit crept for 50 iterations on such jumps), and its Jacobian cannot come from
+//! forward sensitivities (a different network structure at p +- h). Returns the node count of the pinned grid.
+Index pinGrid(std::string& caseText, const std::string& casePath, const std::vector<std::string>& overrides,
+              bool& pinned) {
+  pinned = false;
+  const Case c = loadCaseFromString(caseText, casePath, overrides);
+  const Index nodes = Body(c).network().nodes.size();
+  toml::table text, resolved;
+  try {
+    text = toml::parse(caseText, casePath);
+    resolved = toml::parse(resolvedCaseToml(c));
+  } catch (const toml::parse_error&) {
+    return nodes;  // the loader accepted it: leave the text as it is
+  }
+  toml::array* mine = text["segments"].as_array();
+  const toml::array* theirs = resolved["segments"].as_array();
+  if (!mine || !theirs) return nodes;
+  auto copyCells = [](toml::table& to, const toml::table& from) {
+    if (auto cells = from["cells"].value<std::int64_t>()) to.insert_or_assign("cells", *cells);
+  };
+  for (toml::node& node : *mine) {
+    toml::table* segment = node.as_table();
+    if (!segment) continue;
+    const std::optional<std::string> name = (*segment)["name"].value<std::string>();
+    const toml::table* source = nullptr;
+    for (const toml::node& other : *theirs)
+      if (const toml::table* t = other.as_table(); t && name && (*t)["name"].value<std::string>() == name) source = t;
+    if (!source) continue;
+    if (auto axial = (*source)["axial_cells"].value<std::int64_t>()) segment->insert_or_assign("axial_cells", *axial);
+    if (toml::table* coat = (*segment)["coat"].as_table(); coat && (*source)["coat"].as_table())
+      copyCells(*coat, *(*source)["coat"].as_table());
+    toml::array* layers = (*segment)["layers"].as_array();
+    const toml::array* fromLayers = (*source)["layers"].as_array();
+    if (layers && fromLayers && layers->size() == fromLayers->size())
+      for (std::size_t i = 0; i < layers->size(); ++i)
+        if (toml::table* l = (*layers)[i].as_table(); l && (*fromLayers)[i].as_table()) copyCells(*l, *(*fromLayers)[i].as_table());
+  }
+  std::ostringstream out;
+  out << text;
+  std::vector<std::string> pinnedOverrides = overrides;
+  pinnedOverrides.push_back("run.grid_refinement=1");
+  // Keep the pinned text only if it builds the same grid.
+  try {
+    if (Body(loadCaseFromString(out.str(), casePath, pinnedOverrides)).network().nodes.size() != nodes) return nodes;
+  } catch (const std::exception&) {
+    return nodes;
+  }
+  caseText = out.str();
+  pinned = true;
+  return nodes;
+}
+
 //! Scaled variable u of each parameter: ln(x) on a log scale, else x / scale.
 struct Transform {
   std::vector<double> scale;
@@ -149,7 +205,11 @@ class Model {
     // Which columns come from CVODES forward sensitivities (one run with sensitivities), which from central
     // differences (two runs each); all of these runs go to the threads together.
     std::vector<bool> forward(p, false);
-    if (withJacobian && pb_.gradient != "fd") {
+    if (withJacobian && pb_.gradient != "fd" && !classified_.empty()) {
+      for (std::size_t j = 0; j < p; ++j) forward[j] = classified_[j];
+    } else if (withJacobian && pb_.gradient != "fd") {
+      // Once per fit: with the grid pinned, whether a parameter enters the network as a coefficient does not
+      // change between evaluations (the sensitivity runs check it again and fail the evaluation if it did).
       try {
         std::vector<ParameterGradient> g = classifyParameters(pb_.caseText, pb_.casePath, pb_.overrides,
                                                               sensitivityParameters(xOf(u)));
@@ -158,6 +218,7 @@ class Model {
           methods_[j] = gradientMethodName(g[j].method);
           reasons_[j] = g[j].reason;
         }
+        classified_ = forward;
       } catch (const std::exception&) {
         // The base case fails to build here: the runs below report it.
       }
@@ -266,7 +327,56 @@ class Model {
       }
     }
     out.ok = true;
+    if (withJacobian) {
+      lastJacobianU_.assign(u.begin(), u.end());
+      lastJacobian_ = out.jacobian;
+      lastResiduals_ = out.residuals;
+    }
     return out;
+  }
+
+  //! The Gauss-Newton step from u in standard errors, sqrt(d^T J^T J d) / s with s^2 = (|r|^2 - |J d|^2) / (rows -
+  //! p) (at most 1): sqrt(p) times the relative offset of Bates & Watts (1981, Technometrics 23, 179-183; Bates & Watts 1988,
+  //! sec. 2.2.3), the distance of the point from the least-squares optimum in the linear approximation, measured
+  //! in the data's own uncertainty. Parameters at a bound whose step points out of the box are held (their
+  //! columns dropped). NaN when no Jacobian at u is at hand.
+  double gaussNewtonStepSe(std::span<const double> u, std::vector<bool>* atBound = nullptr) const {
+    const std::size_t p = u.size();
+    if (atBound) atBound->assign(p, false);
+    if (lastJacobianU_.size() != p || !std::equal(u.begin(), u.end(), lastJacobianU_.begin())) return nan;
+    const std::size_t rows = lastResiduals_.size();
+    if (rows <= p) return nan;
+    Eigen::Map<const Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>> J(
+        lastJacobian_.data(), static_cast<Eigen::Index>(rows), static_cast<Eigen::Index>(p));
+    Eigen::Map<const Eigen::VectorXd> r(lastResiduals_.data(), static_cast<Eigen::Index>(rows));
+    std::vector<std::size_t> free;
+    for (std::size_t j = 0; j < p; ++j) free.push_back(j);
+    Eigen::VectorXd step;
+    Eigen::MatrixXd Jf;
+    for (std::size_t round = 0; round <= p && !free.empty(); ++round) {
+      Jf.resize(static_cast<Eigen::Index>(rows), static_cast<Eigen::Index>(free.size()));
+      for (std::size_t c = 0; c < free.size(); ++c) Jf.col(static_cast<Eigen::Index>(c)) = J.col(static_cast<Eigen::Index>(free[c]));
+      step = Jf.colPivHouseholderQr().solve(-r);
+      std::vector<std::size_t> keep;
+      for (std::size_t c = 0; c < free.size(); ++c) {
+        const std::size_t j = free[c];
+        const double tol = 1e-9 * (1.0 + std::abs(u[j]));
+        const bool outward = (u[j] <= lowerU_[j] + tol && step(static_cast<Eigen::Index>(c)) < 0.0) ||
+                             (u[j] >= upperU_[j] - tol && step(static_cast<Eigen::Index>(c)) > 0.0);
+        if (!outward) keep.push_back(j);
+      }
+      if (keep.size() == free.size()) break;
+      free = std::move(keep);
+    }
+    if (atBound)
+      for (std::size_t j = 0; j < p; ++j) (*atBound)[j] = std::find(free.begin(), free.end(), j) == free.end();
+    if (free.empty()) return 0.0;
+    const double explained = (Jf * step).squaredNorm();
+    // The noise scale: the residual variance factor s^2 (the reported standard errors scale with s), but at most 1
+    // (the stated SDs): a fit far from the data (s >> 1, a parameter held at a bound) still stops only within
+    // 0.01 of the standard error the stated noise gives.
+    const double s2 = std::min(1.0, std::max(r.squaredNorm() - explained, 0.0) / static_cast<double>(rows - p));
+    return s2 > 0.0 ? std::sqrt(explained / s2) : nan;
   }
 
   const std::vector<std::string>& methods() const { return methods_; }
@@ -280,6 +390,8 @@ class Model {
   const Targets& t_;
   std::vector<double> lowerU_, upperU_;
   mutable std::vector<double> lastU_, lastPredictions_;
+  mutable std::vector<double> lastJacobianU_, lastJacobian_, lastResiduals_;
+  mutable std::vector<bool> classified_;
   mutable long runs_ = 0;
   mutable std::vector<std::string> methods_, reasons_;
 };
@@ -311,14 +423,22 @@ class FitCost : public ceres::CostFunction {
 
 class History : public ceres::IterationCallback {
  public:
-  History(std::vector<FitIteration>& out, const double* u, const Transform& tr, std::size_t p, int start, bool progress)
-      : out_(out), u_(u), tr_(tr), p_(p), start_(start), progress_(progress), begin_(Clock::now()) {}
+  History(std::vector<FitIteration>& out, const double* u, const Transform& tr, std::size_t p, int start, bool progress,
+          const Model& model, double stepTolerance, double& finalStepSe, const std::vector<bool>& held)
+      : out_(out), u_(u), tr_(tr), p_(p), start_(start), progress_(progress), begin_(Clock::now()), model_(model),
+        stepTolerance_(stepTolerance), finalStepSe_(finalStepSe), held_(held) {}
+  //! Set when the solve stopped because the parameters held at a bound should change: the new set.
+  std::optional<std::vector<bool>> newHeld;
   ceres::CallbackReturnType operator()(const ceres::IterationSummary& s) override {
+    // The point's distance from the optimum in standard errors (Model::gaussNewtonStepSe): after a successful step
+    // (and at the start) Ceres has evaluated the Jacobian here.
+    std::vector<bool> atBound;
+    const double stepSe = model_.gaussNewtonStepSe(std::span<const double>(u_, p_), &atBound);
     // One line per iteration on stderr (unless --quiet): a fit of a large body runs for minutes.
     if (progress_)
-      fmt::print(stderr, "fit: start {} iteration {:>3}: cost {:.8g}{}, max gradient {:.3g}, {:.1f} s\n", start_ + 1,
-                 s.iteration, s.cost, s.iteration > 0 && !s.step_is_successful ? " (step rejected)" : "",
-                 s.gradient_max_norm, std::chrono::duration<double>(Clock::now() - begin_).count());
+      fmt::print(stderr, "fit: start {} iteration {:>3}: cost {:.8g}{}, max gradient {:.3g}, Gauss-Newton step {:.2g} SE, {:.1f} s\n",
+                 start_ + 1, s.iteration, s.cost, s.iteration > 0 && !s.step_is_successful ? " (step rejected)" : "",
+                 s.gradient_max_norm, stepSe, std::chrono::duration<double>(Clock::now() - begin_).count());
     FitIteration it;
     it.iteration = s.iteration;
     it.cost = s.cost;
@@ -326,8 +446,21 @@ class History : public ceres::IterationCallback {
     it.stepNorm = s.step_norm;
     it.successful = s.step_is_successful;
     it.start = start_;
+    it.stepSe = stepSe;
     for (std::size_t j = 0; j < p_; ++j) it.values.push_back(tr_.toX(j, u_[j]));
     out_.push_back(std::move(it));
+    if (stepSe < stepTolerance_) {
+      finalStepSe_ = stepSe;
+      return ceres::SOLVER_TERMINATE_SUCCESSFULLY;
+    }
+    // A parameter at a bound whose Gauss-Newton step points out of the box (or a held one whose step points back
+    // in): Ceres' trust region projects its steps onto the box, and with such a parameter the projected steps are
+    // a fraction of the Gauss-Newton step (the example fit crept at 0.25 SE per iteration with the ear exchanger
+    // at its upper bound). Stop and solve again with the parameters at a bound held there (an active set).
+    if (std::isfinite(stepSe) && atBound != held_) {
+      newHeld = atBound;
+      return ceres::SOLVER_TERMINATE_SUCCESSFULLY;
+    }
     return ceres::SOLVER_CONTINUE;
   }
 
@@ -339,6 +472,10 @@ class History : public ceres::IterationCallback {
   int start_;
   bool progress_;
   Clock::time_point begin_;
+  const Model& model_;
+  double stepTolerance_;
+  double& finalStepSe_;
+  const std::vector<bool>& held_;
 };
 
 }  // namespace
@@ -379,10 +516,24 @@ std::vector<Evaluation> evaluateMany(const FitProblem& pb, const std::vector<std
   return out;
 }
 
-FitResult runFit(const FitProblem& pb) {
+FitResult runFit(const FitProblem& given) {
   const auto wallStart = Clock::now();
-  const std::size_t p = pb.parameters.size();
+  const std::size_t p = given.parameters.size();
   if (p == 0) throw CaseError("fit: no free parameter");
+  // The grid of every run: the one resolved at the start values, written out (pinGrid).
+  FitProblem pb = given;
+  bool pinned = false;
+  Index gridNodes = 0;
+  {
+    std::vector<std::string> atStart = pb.overrides;
+    for (const FitParameter& fp : pb.parameters) atStart.push_back(parameterOverride(fp, fp.start));
+    try {
+      if (pb.pinGrid) gridNodes = pinGrid(pb.caseText, pb.casePath, atStart, pinned);
+    } catch (const std::exception&) {
+      // The case fails at the start values: the first evaluation reports it.
+    }
+    if (pinned) pb.overrides.push_back("run.grid_refinement=1");
+  }
   const Targets targets(pb.data);
   const std::size_t n = targets.observed.size();
   if (n <= p)
@@ -400,6 +551,13 @@ FitResult runFit(const FitProblem& pb) {
 
   FitResult result;
   result.n = n;
+  result.caseText = pb.caseText;
+  result.overrides = pb.overrides;
+  result.gridPinned = pinned;
+  result.gridNodes = static_cast<long>(gridNodes);
+  if (pinned && !pb.quiet)
+    fmt::print(stderr, "fit: cell counts fixed at the grid of the start values ({} nodes) for every run of the fit\n",
+               gridNodes);
   // Starts: the given one, then Sobol points in the bounds (log-uniform on a log scale).
   result.startPoints.push_back({});
   for (const FitParameter& fp : pb.parameters) result.startPoints.back().push_back(fp.start);
@@ -421,10 +579,23 @@ FitResult runFit(const FitProblem& pb) {
   for (std::size_t s = 0; s < result.startPoints.size(); ++s) {
     std::vector<double> u(p);
     for (std::size_t j = 0; j < p; ++j) u[j] = tr.toU(j, result.startPoints[s][j]);
+    // Rounds of the active set: parameters held at a bound (History::newHeld), at most a few changes.
+    std::vector<bool> held(p, false);
+    std::vector<std::vector<bool>> heldSeen{held};
+    ceres::Solver::Summary summary;
+    double finalStepSe = nan;
+    int iterationsLeft = pb.maxIterations;
+    double initialCost = nan;
+    for (int round = 0;; ++round) {
     ceres::Problem::Options problemOptions;
     problemOptions.cost_function_ownership = ceres::TAKE_OWNERSHIP;
+    problemOptions.manifold_ownership = ceres::TAKE_OWNERSHIP;
     ceres::Problem problem(problemOptions);
     problem.AddResidualBlock(new FitCost(model, rows, p, lastError), nullptr, u.data());
+    std::vector<int> constant;
+    for (std::size_t j = 0; j < p; ++j)
+      if (held[j]) constant.push_back(static_cast<int>(j));
+    if (!constant.empty()) problem.SetManifold(u.data(), new ceres::SubsetManifold(static_cast<int>(p), constant));
     for (std::size_t j = 0; j < p; ++j) {
       problem.SetParameterLowerBound(u.data(), static_cast<int>(j), lowerU[j]);
       problem.SetParameterUpperBound(u.data(), static_cast<int>(j), upperU[j]);
@@ -433,22 +604,57 @@ FitResult runFit(const FitProblem& pb) {
     options.minimizer_type = ceres::TRUST_REGION;
     options.trust_region_strategy_type = ceres::LEVENBERG_MARQUARDT;
     options.linear_solver_type = ceres::DENSE_QR;
-    options.max_num_iterations = pb.maxIterations;
-    options.function_tolerance = 1e-12;
-    options.gradient_tolerance = 1e-12;
-    options.parameter_tolerance = 1e-10;
+    options.max_num_iterations = std::max(iterationsLeft, 1);
+    // The fit stops when the Gauss-Newton step is below pb.stepTolerance standard errors (History, Bates & Watts
+    // 1981). Ceres' own tests are back-stops that a fit whose runs are accurate enough does not reach first: a
+    // relative cost decrease below 1e-9 (with the cost about n/2 at a fit that matches the noise, well below any
+    // change that moves a parameter by 0.01 SE) and a relative step below 1e-8 in the scaled variables.
+    options.function_tolerance = 1e-9;
+    options.gradient_tolerance = 1e-10;
+    options.parameter_tolerance = 1e-8;
     options.num_threads = 1;  // the runs of one evaluation are parallel already
     options.logging_type = ceres::SILENT;
     options.update_state_every_iteration = true;
-    History history(result.history, u.data(), tr, p, static_cast<int>(s), !pb.quiet);
+    History history(result.history, u.data(), tr, p, static_cast<int>(s), !pb.quiet, model, pb.stepTolerance, finalStepSe,
+                    held);
     options.callbacks.push_back(&history);
-    ceres::Solver::Summary summary;
     ceres::Solve(options, &problem, &summary);
+    if (round == 0) initialCost = summary.initial_cost;
+    iterationsLeft -= static_cast<int>(summary.iterations.size()) - 1;
+    const bool allHeld = history.newHeld && std::all_of(history.newHeld->begin(), history.newHeld->end(), [](bool b) { return b; });
+    if (!history.newHeld || allHeld || iterationsLeft <= 0 ||
+        std::find(heldSeen.begin(), heldSeen.end(), *history.newHeld) != heldSeen.end()) {
+      if (history.newHeld) {
+        // Cycling between sets, no iterations left or every parameter at a bound: not a convergence.
+        if (allHeld) {
+          finalStepSe = 0.0;
+        } else {
+          summary.termination_type = ceres::NO_CONVERGENCE;
+          summary.message = "the set of parameters at a bound did not settle";
+        }
+      }
+      break;
+    }
+    held = *history.newHeld;
+    heldSeen.push_back(held);
+    if (!pb.quiet) {
+      std::vector<std::string> names;
+      for (std::size_t j = 0; j < p; ++j)
+        if (held[j]) names.push_back(pb.parameters[j].key);
+      fmt::print(stderr, "fit: held at a bound: {}\n", names.empty() ? std::string("none") : fmt::format("{}", fmt::join(names, ", ")));
+    }
+    }
+    summary.initial_cost = initialCost;
     if (!pb.quiet)
       fmt::print(stderr, "fit: start {} of {}: {} after {} iterations, cost {:.6g}\n", s + 1, result.startPoints.size(),
                  ceres::TerminationTypeToString(summary.termination_type), summary.iterations.size(),
                  summary.final_cost);
-    const bool solved = summary.termination_type == ceres::CONVERGENCE;
+    const bool solved =
+        summary.termination_type == ceres::CONVERGENCE || summary.termination_type == ceres::USER_SUCCESS;
+    if (summary.termination_type == ceres::USER_SUCCESS)
+      summary.message = fmt::format("Converged: the Gauss-Newton step is {:.2g} standard errors (below {:g}; relative "
+                                    "offset criterion, Bates & Watts 1981)",
+                                    finalStepSe, pb.stepTolerance);
     result.startCosts.push_back(summary.IsSolutionUsable() ? summary.final_cost : nan);
     if (summary.initial_cost < 0.0 || !summary.IsSolutionUsable()) {
       if (s == 0 && result.startPoints.size() == 1)
@@ -602,6 +808,9 @@ void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const 
   w.attribute("/fit", "t_quantile", r.tQuantile);
   w.attribute("/fit", "runs", static_cast<double>(r.runs));
   w.attribute("/fit", "wall_seconds", r.wallSeconds);
+  w.attribute("/fit", "grid_nodes", static_cast<double>(r.gridNodes));
+  w.attribute("/fit", "grid_pinned", r.gridPinned ? 1.0 : 0.0);
+  w.attribute("/fit", "step_tolerance_se", pb.stepTolerance);
   w.attribute("/fit", "command_line", o.commandLine);
   w.attribute("/fit", "data_files", fmt::format("{}", fmt::join(o.data, "; ")));
   w.attribute("/fit", "warnings", fmt::format("{}", fmt::join(r.warnings, "\n")));
@@ -644,7 +853,7 @@ void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const 
     w.strings("/fit/parameters/gradient_reason", r.gradientReasons);
   }
   // Iteration history.
-  std::vector<double> iteration, cost, gradient, stepNorm, ok, startIndex, values;
+  std::vector<double> iteration, cost, gradient, stepNorm, ok, startIndex, values, stepSe;
   for (const FitIteration& it : r.history) {
     iteration.push_back(it.iteration);
     cost.push_back(it.cost);
@@ -652,6 +861,7 @@ void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const 
     stepNorm.push_back(it.stepNorm);
     ok.push_back(it.successful ? 1.0 : 0.0);
     startIndex.push_back(it.start);
+    stepSe.push_back(it.stepSe);
     values.insert(values.end(), it.values.begin(), it.values.end());
   }
   w.doubles("/fit/history/iteration", iteration, {}, "1");
@@ -660,6 +870,7 @@ void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const 
   w.doubles("/fit/history/step_norm", stepNorm, {}, "1 (scaled variables)");
   w.doubles("/fit/history/successful", ok, {}, "1");
   w.doubles("/fit/history/start", startIndex, {}, "1");
+  w.doubles("/fit/history/gauss_newton_step_se", stepSe, {}, "1 (standard errors; NaN: no Jacobian at the point)");
   w.doubles("/fit/history/values", values, {r.history.size(), p}, perParameter);
   std::vector<double> startValues;
   for (const auto& s : r.startPoints) startValues.insert(startValues.end(), s.begin(), s.end());
@@ -720,7 +931,7 @@ void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const 
     w.attach("/fit/singular_values", {"/fit/component"});
   }
   w.indexScale("/fit/history/record", r.history.size(), "iteration record (all starts in order)");
-  for (const char* name : {"iteration", "cost", "gradient_max_norm", "step_norm", "successful", "start"})
+  for (const char* name : {"iteration", "cost", "gradient_max_norm", "step_norm", "successful", "start", "gauss_newton_step_se"})
     w.attach(std::string("/fit/history/") + name, {"/fit/history/record"});
   w.attach("/fit/history/values", {"/fit/history/record", P});
   w.indexScale("/fit/starts/start", r.startPoints.size(), "start index of the multi-start");
@@ -745,8 +956,10 @@ std::string stemOf(const std::string& output) {
 
 void printReport(const FitProblem& pb, const FitResult& r) {
   const std::size_t p = pb.parameters.size();
-  fmt::print("Fit: {} observations in {} series, {} parameters; {} ({} model runs, {:.3g} s)\n", r.n,
-             pb.data.series.size(), p, r.converged ? "converged" : "NOT converged", r.runs, r.wallSeconds);
+  long iterations = 0;
+  for (const FitIteration& it : r.history) iterations += it.iteration > 0 ? 1 : 0;
+  fmt::print("Fit: {} observations in {} series, {} parameters; {} ({} iterations, {} model runs, {:.3g} s)\n", r.n,
+             pb.data.series.size(), p, r.converged ? "converged" : "NOT converged", iterations, r.runs, r.wallSeconds);
   fmt::print("  {}\n", r.message);
   if (r.standardErrors.empty()) return;
   fmt::print("{:<44} {:>14} {:>12} {:>30}  {}\n", "parameter", "value", "std. error", "95 % interval", "unit");
@@ -811,6 +1024,9 @@ int runFitCommand(const FitOptions& o) {
   pb.starts = std::max(1, o.multiStart);
   pb.quiet = o.quiet;
   pb.gradient = o.gradient;
+  pb.stepTolerance = o.stepTolerance;
+  if (!(pb.stepTolerance > 0.0 && pb.stepTolerance <= 1.0))
+    throw CaseError(fmt::format("--converged-se {}: must be above 0 and at most 1 (standard errors)", pb.stepTolerance));
   if (pb.gradient != "auto" && pb.gradient != "fd")
     throw CaseError(fmt::format("--gradient {}: expected auto (CVODES sensitivities where possible) or fd", pb.gradient));
   if (!(pb.step > 0.0 && pb.step < 0.1)) throw CaseError(fmt::format("--step {}: must be between 0 and 0.1", pb.step));
@@ -844,9 +1060,10 @@ int runFitCommand(const FitOptions& o) {
   }
 
   // The fitted run with its full results, then /fit, then the case file that reproduces it.
-  std::vector<std::string> fitted = pb.overrides;
+  // On the grid the fit's runs used (r.caseText, r.overrides: cell counts pinned at the start values).
+  std::vector<std::string> fitted = r.overrides;
   for (std::size_t j = 0; j < r.values.size(); ++j) fitted.push_back(parameterOverride(pb.parameters[j], r.values[j]));
-  const Case c = loadCaseFromString(pb.caseText, pb.casePath, fitted);
+  const Case c = loadCaseFromString(r.caseText, pb.casePath, fitted);
   Body body(c);
   ObservationSampler sampler(pb.data, body);
   const std::string running = output + ".fitting.h5";

@@ -249,3 +249,143 @@ TEST_CASE("Free parameters: bad keys, bounds and starts are input errors naming 
   CHECK(ok[0].unit == "degC");
   CHECK(ok[0].start == Approx(10.0).margin(1e-9));  // the case's own value, converted from the resolved kelvin
 }
+
+namespace {
+
+//! Closed-form least squares of the Newton-cooling curve in T_inf and T_i with tau known: the curve
+//! T(t) = T_inf (1 - e) + T_i e, e = exp(-t / tau), is linear in both, so the weighted least-squares solution solves
+//! the 2 x 2 normal equations (any regression text, e.g. Seber & Wild 1989, sec. 1.1), and with T_inf held at a
+//! value the conditional optimum of T_i is sum e (y - T_inf (1 - e)) / sum e^2.
+struct LinearNewton {
+  double tInf = 0.0, tInit = 0.0, tInitGivenBound = 0.0;
+};
+LinearNewton linearNewton(const ObservedData& d, double tau, double heldTInf) {
+  const ObservedSeries& s = d.series.front();
+  double aa = 0.0, ab = 0.0, bb = 0.0, ay = 0.0, by = 0.0, conditional = 0.0;
+  for (std::size_t i = 0; i < s.times.size(); ++i) {
+    const double e = std::exp(-s.times[i] / tau), a = 1.0 - e, y = s.values[i];
+    aa += a * a;
+    ab += a * e;
+    bb += e * e;
+    ay += a * y;
+    by += e * y;
+    conditional += e * (y - heldTInf * a);
+  }
+  const double det = aa * bb - ab * ab;
+  return {(ay * bb - by * ab) / det, (aa * by - ab * ay) / det, conditional / bb};
+}
+
+}  // namespace
+
+TEST_CASE("Convergence test in standard errors: a linear fit stops within 0.01 SE of the closed-form optimum",
+          "[fit]") {
+  // T_inf and T_i with h fixed: linear least squares (LinearNewton above). Noise SD 0.05 K, fixed seed; starts
+  // 50 % off. The fit stops when the Gauss-Newton step is below 0.01 SE (FitProblem::stepTolerance): on a linear
+  // problem the first Gauss-Newton step lands on the optimum.
+  std::mt19937_64 rng(4242);
+  const double h = 0.01;
+  ObservedData data = newtonData(h, 10.0, 40.0, 0.05, &rng);
+  const LinearNewton exact = linearNewton(data, tauOf(h), 0.0);
+  FitProblem pb = problemFor(data, {"environment.temperature=0 degC:30 degC", "run.initial_temperature=15 degC:60 degC"},
+                             {"environment.temperature=15 degC", "run.initial_temperature=20 degC"});
+  FitResult r = runFit(pb);
+  REQUIRE(r.converged);
+  long iterations = 0;
+  for (const FitIteration& it : r.history) iterations += it.iteration > 0 ? 1 : 0;
+  const double z0 = std::abs(r.values[0] - exact.tInf) / r.standardErrors[0];
+  const double z1 = std::abs(r.values[1] - exact.tInit) / r.standardErrors[1];
+  fmt::print("Linear fit: T_inf {:.8f} (closed form {:.8f}, {:.2g} SE), T_i {:.8f} ({:.8f}, {:.2g} SE), {} iterations; {}\n",
+             r.values[0], exact.tInf, z0, r.values[1], exact.tInit, z1, iterations, r.message);
+  CHECK(z0 < 0.01);
+  CHECK(z1 < 0.01);
+  CHECK(iterations <= 3);
+}
+
+TEST_CASE("An optimum outside the bounds: the parameter is held at its bound, the others meet the conditional "
+          "optimum", "[fit]") {
+  // The same linear problem with T_inf bounded to 0-8 degC (the unconstrained optimum is near 10 degC): the
+  // constrained optimum holds T_inf at 8 degC and T_i at the closed-form conditional optimum (LinearNewton).
+  std::mt19937_64 rng(4243);
+  const double h = 0.01;
+  ObservedData data = newtonData(h, 10.0, 40.0, 0.05, &rng);
+  const LinearNewton exact = linearNewton(data, tauOf(h), 8.0);
+  FitProblem pb = problemFor(data, {"environment.temperature=0 degC:8 degC", "run.initial_temperature=15 degC:60 degC"},
+                             {"environment.temperature=4 degC", "run.initial_temperature=20 degC"});
+  FitResult r = runFit(pb);
+  REQUIRE(r.converged);
+  long iterations = 0;
+  for (const FitIteration& it : r.history) iterations += it.iteration > 0 ? 1 : 0;
+  // The conditional SE of T_i: sd / sqrt(sum e^2), the standard error of a one-parameter linear fit.
+  double bb = 0.0;
+  for (double t : data.series.front().times) bb += std::exp(-2.0 * t / tauOf(h));
+  const double seTi = 0.05 / std::sqrt(bb);
+  fmt::print("Bounded fit: T_inf {:.10f} (bound 8), T_i {:.8f} (conditional closed form {:.8f}, {:.2g} SE), {} "
+             "iterations; {}\n",
+             r.values[0], r.values[1], exact.tInitGivenBound, std::abs(r.values[1] - exact.tInitGivenBound) / seTi,
+             iterations, r.message);
+  CHECK(std::abs(r.values[0] - 8.0) < 1e-9);
+  CHECK(std::abs(r.values[1] - exact.tInitGivenBound) < 0.01 * seTi);
+  CHECK(iterations <= 10);
+  bool warned = false;
+  for (const std::string& w : r.warnings) warned = warned || w.find("ended at a bound") != std::string::npos;
+  CHECK(warned);
+}
+
+TEST_CASE("A fit on an automatic grid keeps the grid of the start values: forward sensitivities for a coat "
+          "conductivity that moves the automatic cell counts", "[fit]") {
+  // A coated rod without cell counts: its automatic axial count is 14 at a coat conductivity of 0.04 W/(m K) and 12
+  // at 0.1 (`thermorph check`). Left automatic, the network's structure would change within the bounds, the model
+  // would jump where it does and the Jacobian column would need finite differences; the fit writes the start's
+  // counts into the case instead. Data: the rod's own core temperature at 0.07 W/(m K) on that grid (a check of
+  // the mechanism, not of the physics).
+  const char* rod = R"toml(
+title = "coated rod"
+[run]
+duration = "20 min"
+output_interval = "2 min"
+initial_temperature = "37 degC"
+[tissues.pelt]
+base = "fur"
+conductivity = "0.04 W/(m K)"
+[[segments]]
+name = "rod"
+shape = "cylinder"
+length = "10 cm"
+layers = [{ tissue = "muscle", thickness = "1 cm" }, { tissue = "skin", thickness = "0.2 cm" }]
+coat = { material = "pelt", thickness = "1 cm" }
+[environment]
+temperature = "5 degC"
+speed = "2 m/s"
+)toml";
+  FitProblem pb;
+  pb.casePath = "rod.toml";
+  pb.caseText = rod;
+  pb.overrides = {"run.rtol=1e-9", "run.atol=1e-9 K"};
+  ObservedSeries s;
+  s.file = "synthetic";
+  s.column = 2;
+  s.quantity = parseObservedQuantity("body.core_temperature", "test");
+  s.fileUnit = "degC";
+  for (int i = 1; i <= 10; ++i) {
+    s.times.push_back(120.0 * i);
+    s.values.push_back(0.0);
+    s.sd.push_back(0.05);
+  }
+  pb.data.series.push_back(s);
+  pb.parameters = parseFitParameters({"tissues.pelt.conductivity=0.02 W/(m K):0.15 W/(m K)"}, {}, {}, pb.caseText,
+                                     pb.casePath, pb.overrides);
+  pb.jobs = 2;
+  // Data on the start's grid: the pinned problem's own prediction at 0.07 W/(m K).
+  FitProblem pinnedAtStart = pb;
+  pinnedAtStart.overrides.push_back("segments.rod.axial_cells=14");
+  const Evaluation truth = evaluateModel(pinnedAtStart, std::vector<double>{0.07});
+  REQUIRE(truth.ok);
+  pb.data.series.front().values = truth.predictions;
+  FitResult r = runFit(pb);
+  REQUIRE(r.converged);
+  CHECK(r.gridPinned);
+  REQUIRE(r.gradientMethods.size() == 1);
+  CHECK(r.gradientMethods[0] == "cvodes");
+  CHECK(r.caseText.find("axial_cells = 14") != std::string::npos);
+  CHECK(std::abs(r.values[0] / 0.07 - 1.0) < 1e-4);
+}
