@@ -12,7 +12,9 @@
 //! receiving node; a conductance between groups of different weight carries its flow once per copy of the
 //! more numerous group. Stored heat and budgets are weighted, so energy is conserved exactly.
 #include <cstddef>
+#include <cstdint>
 #include <functional>
+#include <stdexcept>
 #include <span>
 #include <string>
 #include <vector>
@@ -24,9 +26,38 @@ using Index = std::size_t;
 //! "No such entry" for optional indices (modulator, control, schedule).
 inline constexpr Index none = static_cast<Index>(-1);
 
+//! An Index stored in 32 bits, for the endpoints, groups, channels and part ranges of the network's terms (there
+//! are several terms per node: at 10^5 nodes each 64-bit index costs about 1 MB). Written and read as an Index;
+//! an index that does not fit (none included) is refused where it is stored.
+class Index32 {
+ public:
+  constexpr Index32() = default;
+  constexpr Index32(Index i) : value_(static_cast<std::uint32_t>(i)) {  // NOLINT: implicit on purpose
+    if (i >= std::uint32_t(-1)) throw std::length_error("a network index does not fit in 32 bits");
+  }
+  constexpr operator Index() const { return value_; }  // NOLINT: implicit on purpose
+
+ private:
+  std::uint32_t value_ = 0;
+};
+
+//! An optional Index in 32 bits (none stays none): modulators of sources and flow parts.
+class OptionalIndex32 {
+ public:
+  constexpr OptionalIndex32() = default;
+  constexpr OptionalIndex32(Index i) : value_(i == none ? noValue : static_cast<std::uint32_t>(i)) {  // NOLINT
+    if (i != none && i >= noValue) throw std::length_error("a network index does not fit in 32 bits");
+  }
+  constexpr operator Index() const { return value_ == noValue ? none : value_; }  // NOLINT: implicit on purpose
+
+ private:
+  static constexpr std::uint32_t noValue = static_cast<std::uint32_t>(-1);
+  std::uint32_t value_ = noValue;
+};
+
 //! One part of a modulated flow: coefficient times the value of a modulator [W/K].
 struct FlowPart {
-  Index modulator = none;
+  OptionalIndex32 modulator = none;
   double coefficient = 0.0;
 };
 
@@ -60,49 +91,49 @@ class ScheduleModel {
   virtual double value(Index schedule, double time) const = 0;
 };
 
-//! A node: 16 bytes. Its human-readable label is generated on demand (Network::label), not stored.
+//! A node: 16 bytes (a double and a 32-bit group, padded). Its human-readable label is generated on demand (Network::label), not stored.
 struct NetworkNode {
   double capacity = 0.0;  //!< heat capacity [J/K]
-  Index group = 0;        //!< owning group (segment)
+  Index32 group = 0;      //!< owning group (segment)
 };
 
 //! Conduction between two nodes [W/K].
-struct Conductance {
-  Index a = 0, b = 0;
+struct Conductance {  // 24 bytes
+  Index32 a = 0, b = 0;
   double conductance = 0.0;
-  Index channel = 0;  //!< budget channel when a and b belong to different groups
+  Index32 channel = 0;  //!< budget channel when a and b belong to different groups
 };
 
 //! Heat carried by a fluid stream from `from` into `to`: F (T_from - T_to) [W/K].
-struct Advection {
-  Index from = 0, to = 0;
+struct Advection {  // 32 bytes
+  Index32 from = 0, to = 0;
   double flowCapacity = 0.0;  //!< mass flow times specific heat [W/K] (constant part)
-  Index channel = 0;
-  Index partsBegin = 0, partsEnd = 0;  //!< modulated parts in Network::flowParts, added to flowCapacity
+  Index32 channel = 0;
+  Index32 partsBegin = 0, partsEnd = 0;  //!< modulated parts in Network::flowParts, added to flowCapacity
 };
 
 //! Exchange with a prescribed boundary temperature: G (T_b - T_i).
-struct BoundaryExchange {
-  Index node = 0;
+struct BoundaryExchange {  // 40 bytes
+  Index32 node = 0;
   double conductance = 0.0;  //!< [W/K] (constant part)
   double temperature = 0.0;  //!< [K]
-  Index channel = 0;
-  Index partsBegin = 0, partsEnd = 0;  //!< modulated parts in Network::flowParts
+  Index32 channel = 0;
+  Index32 partsBegin = 0, partsEnd = 0;  //!< modulated parts in Network::flowParts
 };
 
 //! Temperature-dependent heat source P_ref Q10^((T - T_ref)/10) [W].
-struct HeatSource {
-  Index node = 0;
+struct HeatSource {  // 40 bytes
+  Index32 node = 0;
   double power = 0.0;                 //!< at the reference temperature [W]
   double q10 = 1.0;                   //!< [1]
   double referenceTemperature = 0.0;  //!< [K]
-  Index channel = 0;
-  Index modulator = none;             //!< multiplies the power
+  Index32 channel = 0;
+  OptionalIndex32 modulator = none;           //!< multiplies the power
 };
 
 //! One exterior face: node -> (half-cell conductance) -> face at T_s -> environment.
 struct SurfaceFace {
-  Index node = 0;
+  Index32 node = 0;
   double halfConductance = 0.0;  //!< node-to-face conductance [W/K]
   double area = 0.0;             //!< face area [m2]
 };
