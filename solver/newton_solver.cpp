@@ -136,17 +136,17 @@ SUNLinearSolver NewtonSolver::sundialsSolver(SUNContext context) {
   // Called by CVodeReInit at every restart: the pattern never changes, so an existing analysis and factorisation
   // are kept (the next setup refactors numerically with their pivot order).
   S->ops->initialize = [](SUNLinearSolver) { return static_cast<int>(SUNLS_SUCCESS); };
-  S->ops->setup = [](SUNLinearSolver S, SUNMatrix) {
-    return solverOf(S).factor() ? static_cast<int>(SUNLS_SUCCESS) : static_cast<int>(SUNLS_PACKAGE_FAIL_REC);
+  S->ops->setup = [](SUNLinearSolver ls, SUNMatrix) {
+    return solverOf(ls).factor() ? static_cast<int>(SUNLS_SUCCESS) : static_cast<int>(SUNLS_PACKAGE_FAIL_REC);
   };
-  S->ops->solve = [](SUNLinearSolver S, SUNMatrix, N_Vector x, N_Vector b, realtype) {
+  S->ops->solve = [](SUNLinearSolver ls, SUNMatrix, N_Vector x, N_Vector b, realtype) {
     N_VScale(1.0, b, x);
     std::span<double> v(N_VGetArrayPointer(x), static_cast<std::size_t>(N_VGetLength(x)));
-    return solverOf(S).solve(v) ? static_cast<int>(SUNLS_SUCCESS) : static_cast<int>(SUNLS_PACKAGE_FAIL_REC);
+    return solverOf(ls).solve(v) ? static_cast<int>(SUNLS_SUCCESS) : static_cast<int>(SUNLS_PACKAGE_FAIL_REC);
   };
-  S->ops->free = [](SUNLinearSolver S) {
-    S->content = nullptr;  // owned by the NewtonSolver
-    SUNLinSolFreeEmpty(S);
+  S->ops->free = [](SUNLinearSolver ls) {
+    ls->content = nullptr;  // owned by the NewtonSolver
+    SUNLinSolFreeEmpty(ls);
     return static_cast<int>(SUNLS_SUCCESS);
   };
   return S;
@@ -157,7 +157,7 @@ SUNMatrix NewtonSolver::shellMatrix(SUNContext context) {
   if (!A) return nullptr;
   A->ops->getid = [](SUNMatrix) { return SUNMATRIX_CUSTOM; };
   A->ops->zero = [](SUNMatrix) { return 0; };
-  A->ops->destroy = [](SUNMatrix A) { SUNMatFreeEmpty(A); };
+  A->ops->destroy = [](SUNMatrix m) { SUNMatFreeEmpty(m); };
   return A;
 }
 
