@@ -4,6 +4,7 @@
 #include <cstdio>
 #include <filesystem>
 #include <iostream>
+#include <optional>
 
 #include <fmt/format.h>
 
@@ -158,6 +159,12 @@ int main(int argc, char** argv) {
   if (uncertainty->parsed()) return runUncertaintyCli(uncertaintyOptions, commandLine);
   if (refine->parsed()) return runRefineCli();
   return withExitCodes([&]() -> int {
+    // SIGINT/SIGTERM: stop at the next step, keep the outputs so far. Installed before the output check and the
+    // body's build (run and steady only: `check` has nothing to keep), so a signal at any time after start-up is
+    // handled: the output check's probe file is a temporary too, and a signal that came while the body was being
+    // built killed the process with no partial result (e2e_hardening, seen once under load).
+    std::optional<StopSignalGuard> signals;
+    if (!check->parsed()) signals.emplace();
     Case c = loadCase(casePath, overrides);
     if (!check->parsed()) {
       // The output is checked before any computing (drivers/output_file.hpp).
@@ -181,7 +188,6 @@ int main(int argc, char** argv) {
     options.commandLine = commandLine;
     options.quiet = quiet;
     options.linearSolver = dense ? LinearSolverKind::Dense : LinearSolverKind::Klu;
-    StopSignalGuard signals;  // SIGINT/SIGTERM: stop at the next step, keep the outputs so far
     options.stop = &stopRequested();
     RunSummary summary = run->parsed() ? runTransient(body, options) : runSteady(body, options);
     printBudget(body, summary, stdout);
