@@ -67,6 +67,16 @@ double transientError(double dx, double delta) {
   return kPenetrationErrorConstant * x * x;
 }
 
+//! Volume of the shell between a and b [m3]: a sphere's, a plate's (both halves, width w) or a cylinder's of
+//! length L.
+double shellVolume(Shape shape, double width, double length, double a, double b) {
+  switch (shape) {
+    case Shape::Sphere: return 4.0 / 3.0 * pi * (b * b * b - a * a * a);
+    case Shape::Plate: return 2.0 * width * length * (b - a);
+    default: return pi * (b * b - a * a) * length;
+  }
+}
+
 //! One radial layer as the estimator sees it.
 struct Layer {
   double inner = 0.0, outer = 0.0;  //!< [m] from the axis or mid-plane (cones: at mid-length)
@@ -137,13 +147,7 @@ std::vector<double> crossingShares(Shape shape, double width, const std::vector<
       dr.push_back(d);
       k.push_back(kk);
       beta.push_back(b);
-      double v = 0.0;
-      switch (shape) {
-        case Shape::Sphere: v = 4.0 / 3.0 * pi * (r1 * r1 * r1 - r0 * r0 * r0); break;
-        case Shape::Plate: v = 2.0 * width * d; break;
-        default: v = pi * (r1 * r1 - r0 * r0); break;
-      }
-      vol.push_back(v);
+      vol.push_back(shellVolume(shape, width, 1.0, r0, r1));
     }
   }
   const std::size_t n = rc.size();
@@ -282,13 +286,7 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
     layers[g] = layersOf(c, s);
     for (const Layer& L : layers[g]) {
       if (L.coat) continue;
-      double volume = 0.0;
-      switch (s.shape) {
-        case Shape::Sphere: volume = 4.0 / 3.0 * pi * (std::pow(L.outer, 3) - std::pow(L.inner, 3)); break;
-        case Shape::Plate: volume = 2.0 * s.width * s.length * (L.outer - L.inner); break;
-        default: volume = pi * (L.outer * L.outer - L.inner * L.inner) * s.length; break;
-      }
-      own[g] += L.perfusion * volume;
+      own[g] += L.perfusion * shellVolume(s.shape, s.width, s.length, L.inner, L.outer);
     }
   }
   std::vector<std::vector<Index>> children(n);
