@@ -802,8 +802,11 @@ void Body::setBloodTotals(const Circulation& c) {
   // Default cardiac output 187 M^0.81 mL/min (Stahl 1967, J. Appl. Physiol. 22:453; from memory).
   cardiacOutput_ = case_.body.cardiacOutput.value_or(187e-6 / 60.0 * std::pow(bodyMass_, 0.81));
   if (totalFlow_ > cardiacOutput_)
-    warnings_.push_back(fmt::format("total blood flow {:.4g} mL/min exceeds the cardiac output {:.4g} mL/min",
-                                    totalFlow_ * 6e7, cardiacOutput_ * 6e7));
+    warnings_.push_back(fmt::format(
+        "total blood flow {:.4g} mL/min exceeds the cardiac output {:.4g} mL/min{}; a plausibility check only (the "
+        "flows follow the tissues' perfusion): lower perfusion or give [body] cardiac_output for your species",
+        totalFlow_ * 6e7, cardiacOutput_ * 6e7,
+        case_.body.cardiacOutput ? "" : " (default 187 M^0.81 mL/min, a mammalian allometry, Stahl 1967)"));
 }
 
 void Body::addBloodNodes(const Circulation& c) {
