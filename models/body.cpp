@@ -1236,9 +1236,21 @@ void Body::addEndFaces(const SegmentBuild& b, SegmentMesh& m, bool attached) {
       } else {
         network_.faces.push_back({m.node(iz, ir), b.tissue[ir]->conductivity * section / (0.5 * b.dz), section});
       }
-      if (ir >= b.firstCoat)
+      if (ir >= b.firstCoat && s.surface.endCoat) {
+        // The lateral coat's own annular end, under the same end coat as the tissue: its half cell in series with
+        // the flat coat layer. (Left bare, the warm skin met the exposed face at the corner: a near-singular
+        // corner whose heat converged at order ~0.8 under radial refinement, 8 % low on the automatic grid of a
+        // feathered trunk, DEVELOPERS.md "Coat at the end faces".)
+        auto conductance = [&](double coatK) {
+          return 1.0 / ((0.5 * b.dz + s.coat->thickness) / (coatK * section));
+        };
+        network_.faces.back().halfConductance = conductance(b.tissue[ir]->conductivity);
+        recordCoat(b, true, network_.faces.size() - 1, conductance(b.conductivity(ir, false)),
+                   conductance(b.conductivity(ir, true)));
+      } else if (ir >= b.firstCoat) {
         recordCoat(b, true, network_.faces.size() - 1, b.conductivity(ir, false) * section / (0.5 * b.dz),
                    b.conductivity(ir, true) * section / (0.5 * b.dz));
+      }
       environment_->addFace({b.group, s.shape, false, section, 2.0 * ce.bounds[b.nr], 0.0});
       m.area += section;
     }

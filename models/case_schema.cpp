@@ -145,9 +145,9 @@ constexpr std::array params = {
     Param{"segments[].surface.ends", K::Choice, "", "exposed", 0, 0, false, "exposed|insulated",
           "Cylinder and cone end faces: exchange heat with the medium, or insulated."},
     Param{"segments[].surface.end_coat", K::Choice, "", "on", 0, 0, false, "on|off",
-          "Whether a coated segment's coat also covers its exposed end faces: on, the tissue of each end is under "
-          "a flat coat layer of the coat's thickness (series resistance thickness / (k A), no heat capacity; "
-          "wet conductivity in water); off, the tissue ends are bare."},
+          "Whether a coated segment's coat also covers its exposed end faces: on, the tissue of each end and the "
+          "lateral coat's own annular end are under a flat coat layer of the coat's thickness (series resistance "
+          "thickness / (k A), no heat capacity; wet conductivity in water); off, both are bare."},
     Param{"segments[].surface.convection", K::Quantity, "W/(m2 K)", "", 0, 1e5, false, "",
           "\"correlation\" or a fixed coefficient for this segment; overrides [environment] convection."},
     Param{"segments[].surface.correlation", K::Choice, "", "standard", 0, 0, false, "standard|mitchell",

@@ -58,6 +58,11 @@ inline constexpr int kMaxAutoPenetrationCells = 48;
 //! (measured on the scheme against Incropera et al. 2007, eq. 5.60; tests/test_grid_transient.cpp).
 inline constexpr double kPenetrationErrorConstant = 1.0 / 13.0;
 
+//! Relative error of the heat through a coat's annular end faces on `cells` radial coat cells: about
+//! kCoatCornerConstant / cells^2 (measured on a feathered trunk, coat 2 / 4 / 8 cells against 16 on 320 axial
+//! cells: 0.3 / 0.29 / 0.26 of 1 / cells^2 of that heat; tests/test_grid.cpp).
+inline constexpr double kCoatCornerConstant = 0.3;
+
 //! What the estimator found for one segment (for `check` and the warnings).
 struct SegmentGridEstimate {
   std::string segment;
@@ -76,6 +81,13 @@ struct SegmentGridEstimate {
   double endPenetration = 0.0;     //!< delta of the end faces' cross-section (area-weighted alpha) [m]
   std::string waterLineParent;     //!< the parent, when the water line lies at this segment's junction
   double endShare = 0.0;           //!< exposed end-face area over the segment's exposed area (transient only) [1]
+  //! Steady exposed end faces (cylinders, cones; a root's two, a child's distal one), grid.cpp endFaceTerms:
+  double tissueEndShare = 0.0;     //!< share of the surface heat leaving through the tissue ends, times the share
+                                   //!< of the end resistance that lies in the tissue's axial decay [1]
+  double coatEndShare = 0.0;       //!< share of the surface heat leaving through the coat's own annular ends [1]
+  double coatEndDecay = 0.0;       //!< axial decay length of the coat next to an exposed end [m]
+  double coatEndRadialShare = 0.0; //!< share of the surface heat through the coat's annular ends, for the coat's
+                                   //!< radial cells at that corner (kCoatCornerConstant / cells^2 of it) [1]
 };
 
 //! Estimated relative error of a layer's heat flows with `cells` radial cells (steady length scale and transient
