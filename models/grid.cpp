@@ -244,6 +244,7 @@ struct SurfaceProbe {
   std::vector<double> conductance;
   std::vector<bool> everWet;
   std::vector<std::vector<char>> immersed;  //!< per segment, per probed time: in water
+  std::vector<double> times;                //!< the probed times [s] (as immersed's entries)
 };
 
 SurfaceProbe probeSurfaces(const Case& c) {
@@ -267,6 +268,7 @@ SurfaceProbe probeSurfaces(const Case& c) {
   for (std::size_t k = 0; k + 1 < times.size(); ++k) {
     env.setInterval(k);
     for (double t : {times[k], times[k + 1]}) {
+      probe.times.push_back(t);
       for (Index g = 0; g < n; ++g) {
         probe.immersed[g].push_back(env.immersed(g, t) ? 1 : 0);
         if (env.immersed(g, t)) probe.everWet[g] = true;
@@ -382,6 +384,10 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
       if (!s.parent.empty() && c.segments[p].name == s.parent && p < probe.immersed.size() && g < probe.immersed.size())
         for (std::size_t k = 0; k < probe.immersed[g].size() && k < probe.immersed[p].size(); ++k)
           if (probe.immersed[g][k] != probe.immersed[p][k]) e.waterLineParent = s.parent;
+    // A coat that leaves the water during the run (it dries at once in the model).
+    if (s.coat && g < probe.immersed.size())
+      for (std::size_t k = 1; k < probe.immersed[g].size() && k < probe.times.size(); ++k)
+        if (probe.immersed[g][k - 1] && !probe.immersed[g][k] && e.coatLeavesWater < 0.0) e.coatLeavesWater = probe.times[k];
 
     // Transient penetration (grid.hpp): from the outside in, each layer's delta = sqrt(alpha tau) and the share
     // erfc(depth / (2 delta)) of a surface step that reaches its outer face, the depth counted through the
@@ -572,6 +578,14 @@ void resolveGrid(Case& c) {
           "bird's leg: 4 % below its 4x value on the automatic grid); check the numbers you use with "
           "`thermorph refine` or 4x the segment's axial_cells",
           s.name, e.waterLineParent));
+    // A wet coat that leaves the water: the model has no drying (DEVELOPERS.md "Limits"), said so it is not silent.
+    if (e.coatLeavesWater >= 0.0)
+      c.warnings.push_back(fmt::format(
+          "segment {}: its coat leaves the water at t = {:g} s and is treated as dry from then on (dry conductivity, "
+          "no evaporation of the water it holds): thermorph does not model the drying of a wet coat, so the heat "
+          "lost after leaving the water is underestimated; surface.wetted_fraction adds evaporation from the "
+          "coat's surface over the whole run",
+          s.name, e.coatLeavesWater));
     // Radial cells per layer, the coat last.
     auto radial = [&](std::size_t i, int& cells, bool automatic, const std::string& what, double thickness) {
       if (automatic) {
