@@ -262,16 +262,18 @@ py::dict runSweep(const std::string& casePath, const std::vector<std::string>& v
     values[py::str(plan.columns[c].name)] = array(v, {n});
     units[py::str(plan.columns[c].name)] = plan.columns[c].units;
   }
-  py::list status, errors;
+  py::list status, errors, warnings;
   for (const RunRow& row : rows) {
     status.append(row.status == RunStatus::Ok ? "ok" : row.status == RunStatus::Failed ? "failed" : "not run");
     errors.append(row.error);
+    warnings.append(row.warnings);
   }
   r["parameters"] = params;
   r["metrics"] = values;
   r["units"] = units;
   r["status"] = status;
   r["errors"] = errors;
+  r["warnings"] = warnings;
   r["caution"] = caution;
   return r;
 }
@@ -307,5 +309,6 @@ PYBIND11_MODULE(thermorph, m) {
         py::arg("metrics") = std::vector<std::string>{}, py::arg("zip") = false, py::arg("steady") = false,
         py::arg("window") = "", py::arg("jobs") = 1,
         "Sweep a case file over --vary KEY=SPEC axes (and --scale); returns parameters and metrics per run as "
-        "NumPy arrays (NaN for failed runs), with units, status and errors.");
+        "NumPy arrays (NaN for failed runs), with units, status, errors and each run's warnings (as the results "
+        "file's /runs/warnings).");
 }

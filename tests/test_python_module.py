@@ -99,6 +99,14 @@ def main():
             same(s["parameters"]["environment.temperature"], f["parameters/environment.temperature"][()],
                  "sweep parameter")
         check(s["status"] == ["ok", "ok"], f"sweep status {s['status']}")
+        with h5py.File(sweep_h5, "r") as f:
+            stored = [w.decode() if isinstance(w, bytes) else w for w in f["runs/warnings"][()]]
+        check(s["warnings"] == stored, f"sweep warnings {s['warnings']} != /runs/warnings {stored}")
+        # A row's own warnings: a grid coarser than the guard is named in that run's row only.
+        coarse = thermorph.sweep(str(case), vary=["segments.forelimb.layers.0.cells=1,4"],
+                                 set=["run.duration=10 min"])
+        check("has 1 radial cells" in coarse["warnings"][0] and "radial cells" not in coarse["warnings"][1],
+              f"per-row grid warnings: {coarse['warnings']}")
 
         env = dict(os.environ, PYTHONPATH=module_dir, THERMORPH_EXAMPLE_OUT=str(tmp / "nb"), MPLBACKEND="Agg")
         proc = subprocess.run([sys.executable, str(src / "docs/notebook_example.py")], env=env, capture_output=True,
