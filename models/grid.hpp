@@ -80,6 +80,7 @@ struct SegmentGridEstimate {
   std::vector<double> layerStepShare;    //!< per layer (coat last) erfc(depth / (2 delta)) [1]
   double endPenetration = 0.0;     //!< delta of the end faces' cross-section (area-weighted alpha) [m]
   std::string waterLineParent;     //!< the parent, when the water line lies at this segment's junction
+  double junctionBiotLength = 0.0; //!< a bare child on a coated parent: k/h of its skin at the largest h [m]
   double coatLeavesWater = -1.0;   //!< first probed time a coated segment is out of water after being in it [s]
   double endShare = 0.0;           //!< exposed end-face area over the segment's exposed area (transient only) [1]
   //! Steady exposed end faces (cylinders, cones; a root's two, a child's distal one), grid.cpp endFaceTerms:

@@ -150,3 +150,26 @@ TEST_CASE("A coat that leaves the water is named in the warnings (no drying mode
   CHECK_FALSE(named(loadCaseFromString(text(fur, "air"), "test-case")));
   CHECK_FALSE(named(loadCaseFromString(text("", "water"), "test-case")));
 }
+
+TEST_CASE("A bare child on a coated parent, its cells longer than its skin's Biot length, is named", "[grid]") {
+  // The parent's warm skin under its coat meets the child's exposed skin at the junction's rim: in water the
+  // child's skin has a Biot length k/h well under a millimetre, and the heat across that corner converges slowly
+  // (measured on an invented swimmer's feet, README "Status and known limitations"). Common practice, no source.
+  auto text = [](const std::string& trunkCoat, const std::string& medium) {
+    return "title = \"bare limb\"\n[run]\nduration = 600\n[[segments]]\nname = \"trunk\"\nshape = \"cylinder\"\n"
+           "length = 0.2\nlayers = [{ tissue = \"muscle\", thickness = 0.03 }, { tissue = \"skin\", thickness = 0.002 }]\n" +
+           trunkCoat +
+           "[[segments]]\nname = \"foot\"\nparent = \"trunk\"\nshape = \"cylinder\"\nlength = 0.03\n"
+           "layers = [{ tissue = \"bone\", thickness = 0.002 }, { tissue = \"skin\", thickness = 0.0015 }]\n"
+           "[environment]\nmedium = \"" + medium + "\"\ntemperature = 283.15\nspeed = 0.5\n";
+  };
+  auto named = [](const Case& c) {
+    for (const std::string& w : c.warnings)
+      if (w.find("segment foot: its bare skin meets the coated trunk") != std::string::npos) return true;
+    return false;
+  };
+  const std::string fur = "coat = { material = \"fur\", thickness = 0.01 }\n";
+  CHECK(named(loadCaseFromString(text(fur, "water"), "test-case")));
+  CHECK_FALSE(named(loadCaseFromString(text("", "water"), "test-case")));  // no coat on the parent
+  CHECK_FALSE(named(loadCaseFromString(text(fur, "air"), "test-case")));   // in air at 0.5 m/s k/h is ~1 cm
+}
