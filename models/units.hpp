@@ -43,6 +43,9 @@ enum class UnitDatabase { automatic, small, full };
 double convertUnitWith(UnitDatabase database, double value, std::string_view unit, std::string_view siUnit);
 //! The identifiers the small database is used for; each converts as with the full database (tested).
 std::span<const std::string_view> smallUnitIdentifiers();
+//! The SI unit strings that `automatic` converts to themselves without a database (as udunits2 does: x); degC to
+//! K likewise (x + 273.15). A case in SI numbers reads no unit database (tested against udunits2).
+std::span<const std::string_view> databaseFreeSiUnits();
 //! True when `unit` is read with the small database (every identifier in it is one of smallUnitIdentifiers()).
 bool smallUnitDatabaseCovers(std::string_view unit);
 //! The small database's file, or "" when none was found (then every unit uses the full database).

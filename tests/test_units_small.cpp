@@ -3,6 +3,7 @@
 // database of UDUNITS-2 (Unidata, Debian package libudunits2-data), a general-purpose unit library.
 #include <catch2/catch.hpp>
 
+#include <cmath>
 #include <filesystem>
 #include <set>
 #include <string>
@@ -117,4 +118,26 @@ TEST_CASE("units outside the small database's identifiers use the full database"
   CHECK_FALSE(smallUnitDatabaseCovers("W/(m2 degF)"));
   CHECK(unitConvertible("lb", "kg"));
   CHECK_FALSE(unitConvertible("lb", "m"));
+}
+
+TEST_CASE("conversions made without a unit database equal udunits2's", "[units]") {
+  // The reference is udunits2's own converter with each database (UDUNITS-2, Unidata): x for a unit converted to
+  // itself, x + 273.15 for degC to K (the definition of the degree Celsius, BIPM SI Brochure 2019, 2.3.1).
+  std::vector<double> values{0.0, -0.0, 1.0, 37.0, -12.5, 0.1, 1e-3, 12345.678, 1e300, -273.15, 5e-324};
+  for (int k = 0; k < 200; ++k) values.push_back(-300.0 + 700.0 * std::sin(1.0 + k) * std::sin(1.0 + k) + 1e-7 * k);
+  const std::set<std::string> schema = schemaSiUnits();
+  for (std::string_view si : databaseFreeSiUnits()) {
+    INFO("unit \"" << si << "\"");
+    CHECK(schema.count(std::string(si)) == 1);  // a unit the schema converts to
+    for (double x : values) {
+      CHECK(convertUnit(x, si, si) == convertUnitWith(UnitDatabase::full, x, si, si));
+      CHECK(convertUnit(x, si, si) == convertUnitWith(UnitDatabase::small, x, si, si));
+    }
+  }
+  for (double x : values) {
+    INFO("degC -> K at " << x);
+    CHECK(convertUnit(x, "degC", "K") == convertUnitWith(UnitDatabase::full, x, "degC", "K"));
+    CHECK(convertUnit(x, "\u00b0C", "K") == convertUnitWith(UnitDatabase::small, x, "degC", "K"));
+  }
+  CHECK(convertUnit(37.0, "degC", "K") == Approx(310.15).epsilon(1e-15));
 }
