@@ -6,6 +6,7 @@
 #include <nvector/nvector_serial.h>
 
 #include <cfloat>
+#include <cstdint>
 #include <cmath>
 #include <limits>
 #include <stdexcept>
@@ -103,15 +104,22 @@ bool NewtonSolver::solve(std::span<double> x) const {
   if (factored_ > 0 && !klu_solve(k.symbolic, k.numeric, static_cast<int>(factored_), 1, x.data(), &k.common))
     return false;
   if (factored_ == pattern_.size) return true;
-  // x_e = D^-1 (b_e - A_ef x_f), A_ef = beta J_ef.
+  // x_e = D^-1 (b_e - A_ef x_f), A_ef = beta J_ef. The same operations in the same order as before, on local
+  // copies of the pointers and factors (a store into x could otherwise alias them, so each was loaded again for
+  // every entry).
+  double* const xs = x.data();
+  const double* const J = jacobian_.data();
+  const std::uint32_t* const rows = pattern_.rowIndex.data();
+  const auto* const start = pattern_.columnStart.data();
+  const int* const block = blockStart_.data();
+  const double alpha = alpha_, beta = beta_;
   for (Index c = 0; c < factored_; ++c) {
-    const double xc = x[c];
+    const double xc = xs[c];
     if (xc == 0.0) continue;
-    for (Index p = pattern_.columnStart[c] + static_cast<Index>(blockStart_[c + 1] - blockStart_[c]);
-         p < pattern_.columnStart[c + 1]; ++p)
-      x[pattern_.rowIndex[p]] -= beta_ * jacobian_[p] * xc;
+    const Index end = start[c + 1];
+    for (Index p = start[c] + static_cast<Index>(block[c + 1] - block[c]); p < end; ++p) xs[rows[p]] -= beta * J[p] * xc;
   }
-  for (Index r = factored_; r < pattern_.size; ++r) x[r] /= alpha_ + beta_ * jacobian_[pattern_.columnStart[r]];
+  for (Index r = factored_; r < pattern_.size; ++r) xs[r] /= alpha + beta * J[start[r]];
   return true;
 }
 
