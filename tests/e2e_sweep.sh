@@ -7,7 +7,7 @@ set -uo pipefail
 exe="$1"; src="$2"; python="${3:-/usr/bin/python3}"
 work="$(mktemp -d)"; trap 'rm -rf "$work"' EXIT
 fail() { echo "FAIL: $*"; exit 1; }
-case="$src/cases/quadruped.toml"
+case="$src/tests/data/quadruped_coarse.toml"   # the coarse test copy of cases/quadruped.toml
 
 # 1. One and two threads: identical CSV byte for byte; a negative length fails its two runs, the rest complete.
 grid=(--vary "segments.ears.length=-2 cm,3 cm,6 cm,12 cm" --vary "environment.temperature=20degC,40degC")

@@ -17,7 +17,7 @@ fi
 if [[ ! -x "$mpiexe" ]] || ! "$mpiexe" sweep --help | grep -q "MPI: built in"; then
   echo "e2e_sweep_mpi: SKIPPED: no thermorph-mpi (built without MPI: -DTHERMORPH_WITH_MPI=OFF or no libopenmpi-dev)"; exit 0
 fi
-case="$src/cases/quadruped.toml"
+case="$src/tests/data/quadruped_coarse.toml"   # the coarse test copy of cases/quadruped.toml
 mpi=(mpirun --allow-run-as-root --oversubscribe -np 2)
 
 grid=(--vary "segments.ears.length=-2 cm,3 cm:12 cm:7" --vary "environment.temperature=20degC,40degC")

@@ -237,7 +237,7 @@ convection = "{} W/(m2 K)"
 TEST_CASE("Forward sensitivities of a whole body agree with central differences of whole runs",
           "[sensitivity][cvodes]") {
   const std::string text = [] {
-    std::ifstream in(std::string(THERMORPH_SOURCE_DIR) + "/cases/quadruped.toml");
+    std::ifstream in(std::string(THERMORPH_SOURCE_DIR) + "/tests/data/quadruped_coarse.toml");
     std::stringstream ss;
     ss << in.rdbuf();
     return ss.str();
@@ -317,7 +317,7 @@ ForwardSensitivityResult steadyExact(const std::string& text, const std::vector<
 
 const std::string& quadrupedText() {
   static const std::string text = [] {
-    std::ifstream in(std::string(THERMORPH_SOURCE_DIR) + "/cases/quadruped.toml");
+    std::ifstream in(std::string(THERMORPH_SOURCE_DIR) + "/tests/data/quadruped_coarse.toml");
     std::stringstream ss;
     ss << in.rdbuf();
     return ss.str();

@@ -18,7 +18,7 @@ using namespace thermorph;
 
 namespace {
 
-const std::string quadruped = std::string(THERMORPH_SOURCE_DIR) + "/cases/quadruped.toml";
+const std::string quadruped = std::string(THERMORPH_SOURCE_DIR) + "/tests/data/quadruped_coarse.toml";
 
 //! A scratch folder removed at the end of the test.
 struct Scratch {
