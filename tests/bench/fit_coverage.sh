@@ -15,7 +15,8 @@ py=/usr/bin/python3
 mkdir -p "$out"
 case="$src/cases/quadruped.toml"
 scenario=(--set 'environment.temperature=5 degC' --set 'environment.speed=2 m/s' --set 'run.duration=200 min'
-          --set 'run.output_interval=4 min')
+          --set 'run.output_interval=4 min'
+          --set 'events=[{ at = "100 min", vasomotor = { ears = { shunt = 0 } }, label = "ear shunts close" }]')
 hidden=(--set 'tissues.fur.conductivity=0.055 W/(m K)' --set 'segments.ears.vasomotor.shunt=0.45'
         --set 'segments.ears.vessels.countercurrent_conductance=0.03 W/K' --set 'body.activity=1.3')
 free=(--free 'tissues.fur.conductivity=0.02 W/(m K):0.1 W/(m K)' --free 'segments.ears.vasomotor.shunt=0:1'
