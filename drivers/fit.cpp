@@ -88,6 +88,8 @@ Index pinGrid(std::string& caseText, const std::string& casePath, const std::vec
       if (const toml::table* t = other.as_table(); t && name && (*t)["name"].value<std::string>() == name) source = t;
     if (!source) continue;
     if (auto axial = (*source)["axial_cells"].value<std::int64_t>()) segment->insert_or_assign("axial_cells", *axial);
+    if (auto grading = (*source)["axial_grading"].value<double>(); grading && *grading > 1.0)
+      segment->insert_or_assign("axial_grading", *grading);  // graded cells (uniform: given axial_cells keep it)
     if (toml::table* coat = (*segment)["coat"].as_table(); coat && (*source)["coat"].as_table())
       copyCells(*coat, *(*source)["coat"].as_table());
     toml::array* layers = (*segment)["layers"].as_array();

@@ -88,8 +88,9 @@ std::vector<std::pair<int, double>> footprintShares(const SegmentSpec& s, const 
     return (x * std::sqrt(1.0 - x * x) + std::asin(x)) / pi + 0.5;  // disc area below a chord / pi R^2
   };
   std::vector<std::pair<int, double>> shares;
+  const std::vector<double> edges = ps.axialEdges();  // uniform or graded (axial_grading)
   for (int iz = 0; iz < nz; ++iz) {
-    const double w = share((iz + 1) * L / nz) - share(iz * L / nz);
+    const double w = share(edges[static_cast<std::size_t>(iz) + 1]) - share(edges[static_cast<std::size_t>(iz)]);
     if (w > 0.0) shares.emplace_back(iz, w);
   }
   return shares;
@@ -480,7 +481,17 @@ void Body::attachChildren() {
     // centres (the end cell's centre beyond it), so the mixing points move smoothly with the grid; every share
     // carries the same fraction of each flow, so mass balances for every modulator.
     {
-      const double x = std::clamp(s.attachPosition * pm.nz - 0.5, 0.0, pm.nz - 1.0);
+      double x = std::clamp(s.attachPosition * pm.nz - 0.5, 0.0, pm.nz - 1.0);
+      if (ps.shape != Shape::Sphere && ps.axialGrading > 1.0) {
+        // Graded cells: the same linear split between the two cell centres around the position (pm.axial).
+        const double z = s.attachPosition * ps.length;
+        x = 0.0;
+        for (int k = 0; k + 1 < pm.nz; ++k) {
+          const double a = pm.axial[static_cast<std::size_t>(k)], b = pm.axial[static_cast<std::size_t>(k) + 1];
+          if (z >= b) x = k + 1.0;
+          else if (z > a) x = k + (z - a) / (b - a);
+        }
+      }
       const int k0 = std::min(static_cast<int>(x), std::max(pm.nz - 2, 0));
       const double f = x - k0;
       attachShares_[g].clear();
@@ -547,7 +558,7 @@ void Body::attachChildren() {
       flushPairs();
       continue;
     }
-    const double dz = s.length / cm.nz;
+    const double dz = s.axialLengths().front();  // the child's proximal cell (graded: its shortest)
     // The child's proximal cross-section (a cone's layers are at their stated thickness there).
     const std::vector<double> bounds = crossSection(s, 1.0).bounds;
     const double childTissue = bounds[static_cast<std::size_t>(cm.skinCell + 1)];
@@ -726,18 +737,34 @@ void Body::planCellFlows(Circulation& c) {
           c.cellSuperficial[g][k].add(mods[2], q);
         }
       }
-    // Shunts open through the skin of the distal half of the axial cells.
+    // Shunts open through the skin of the distal half of the axial cells: uniform cells share them equally;
+    // graded cells (axial_grading) in proportion to each cell's length beyond mid-length (the distal half of the
+    // segment; cells straddling it count with the part beyond), so the shunt flow per length does not depend on
+    // the grading.
     int firstDistal = m.nz / 2;
+    std::vector<double> distalShare(static_cast<std::size_t>(m.nz), 0.0);
+    if (s.shape != Shape::Sphere && s.axialGrading > 1.0) {
+      const std::vector<double> edges = s.axialEdges();
+      for (int iz = 0; iz < m.nz; ++iz) {
+        const auto z = static_cast<std::size_t>(iz);
+        distalShare[z] = std::max(0.0, edges[z + 1] - std::max(edges[z], 0.5 * s.length)) / (0.5 * s.length);
+      }
+      firstDistal = 0;
+      while (firstDistal < m.nz && !(distalShare[static_cast<std::size_t>(firstDistal)] > 0.0)) ++firstDistal;
+    } else {
+      for (int iz = firstDistal; iz < m.nz; ++iz) distalShare[static_cast<std::size_t>(iz)] = 1.0 / (m.nz - firstDistal);
+    }
     if (c.shuntModulator[g] != none)
       for (int iz = firstDistal; iz < m.nz; ++iz)
-        c.shunt[g][static_cast<std::size_t>(iz)].add(c.shuntModulator[g], s.vessels.shuntFlowMax / (m.nz - firstDistal));
+        c.shunt[g][static_cast<std::size_t>(iz)].add(c.shuntModulator[g],
+                                                     s.vessels.shuntFlowMax * distalShare[static_cast<std::size_t>(iz)]);
     // Cold-induced vasodilation opens the same shunts further: opening x shunt_flow_max at full opening.
     if (c.civdModulator[g] != none)
       for (const LocalControllerSpec& l : case_.control.local)
         if (l.civd && std::find(l.segments.begin(), l.segments.end(), s.name) != l.segments.end())
           for (int iz = firstDistal; iz < m.nz; ++iz)
-            c.shunt[g][static_cast<std::size_t>(iz)].add(c.civdModulator[g],
-                                                         l.civd->opening * s.vessels.shuntFlowMax / (m.nz - firstDistal));
+            c.shunt[g][static_cast<std::size_t>(iz)].add(
+                c.civdModulator[g], l.civd->opening * s.vessels.shuntFlowMax * distalShare[static_cast<std::size_t>(iz)]);
     if (!s.parent.empty()) {
       Index p = 0;
       while (case_.segments[p].name != s.parent) ++p;
@@ -913,6 +940,16 @@ void Body::linkSegmentBlood(const Circulation& c, Index g) {
         {m.arterial[0], 0.0, *case_.circulation.fixedArterialTemperature, bloodChannel_, begin, end});
   }
   const bool exchanging = s.vessels.countercurrentConductance > 0.0 && !c.deep[g].empty();
+  // Share of the segment's length in each axial cell: the exchanger's and the superficial veins' conductances are
+  // per length (1 / nz each when uniform; the cell's own length over L when graded).
+  std::vector<double> lengthShare(static_cast<std::size_t>(m.nz), 1.0);
+  if (s.shape != Shape::Sphere && s.axialGrading > 1.0) {
+    const std::vector<double> dz = s.axialLengths();
+    for (std::size_t z = 0; z < dz.size(); ++z) lengthShare[z] = dz[z] / s.length;
+  }
+  auto perLength = [&](double conductance, std::size_t z) {
+    return s.shape != Shape::Sphere && s.axialGrading > 1.0 ? conductance * lengthShare[z] : conductance / m.nz;
+  };
   for (int iz = 0; iz < m.nz; ++iz) {
     auto z = static_cast<std::size_t>(iz);
     // Where an exchanger cools the artery along the segment, the cell's perfusion is drawn half from the artery's
@@ -960,10 +997,10 @@ void Body::linkSegmentBlood(const Circulation& c, Index g) {
       linkExchanger(m.arterial[z], m.venous[z],
                     iz > 0 && m.arterial[z - 1] != noNode ? m.arterial[z - 1] : m.arterial[z],
                     iz + 1 < m.nz && m.venous[z + 1] != noNode ? m.venous[z + 1] : m.venous[z],
-                    s.vessels.countercurrentConductance / m.nz);
+                    perLength(s.vessels.countercurrentConductance, z));
     if (m.superficial[z] != noNode && s.vessels.superficialConductance > 0.0)
       for (auto [node, w] : skinShare)
-        network_.conductances.push_back({m.superficial[z], node, w * s.vessels.superficialConductance / m.nz, 0});
+        network_.conductances.push_back({m.superficial[z], node, w * perLength(s.vessels.superficialConductance, z), 0});
   }
   if (s.vessels.countercurrentConductance > 0.0 && c.deep[g].empty())
     warnings_.push_back(fmt::format("{}: all venous return is superficial, so the countercurrent exchanger carries "
@@ -1003,7 +1040,8 @@ struct Body::SegmentBuild {
   int firstCoat = 0;                            //!< first coat cell (nr: no coat)
   const TissueProperties* coatDry = nullptr;    //!< the coat material as given (dry)
   bool coatChanges = false;                     //!< the coat has a different wet conductivity
-  double length = 0.0, dz = 1.0;                //!< sphere: 0 and 1
+  double length = 0.0;                          //!< sphere: 0
+  std::vector<double> edges, dz;                //!< [nz + 1] axial cell edges, [nz] cell lengths (sphere: {0, 1}, {1})
   //! Outer tissue radius along a cone varies linearly; every tissue layer scales with it.
   double scaleAt(double z) const {
     return s.shape == Shape::Cone ? (s.radiusProximal + (s.radiusDistal - s.radiusProximal) * z / length) / s.radiusProximal
@@ -1025,7 +1063,9 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
   SegmentBuild b = segmentTissues(s, group, m);
   CrossSection mid = crossSection(s, b.scaleAt(0.5 * b.length));
   for (int ir = 0; ir < b.nr; ++ir) m.radius.push_back(0.5 * (mid.bounds[ir] + mid.bounds[ir + 1]));
-  for (int iz = 0; iz < b.nz; ++iz) m.axial.push_back((iz + 0.5) * b.dz);
+  for (int iz = 0; iz < b.nz; ++iz)
+    m.axial.push_back(s.axialGrading > 1.0 ? 0.5 * (b.edges[static_cast<std::size_t>(iz)] + b.edges[static_cast<std::size_t>(iz) + 1])
+                                           : (iz + 0.5) * b.dz[static_cast<std::size_t>(iz)]);
   m.volume.resize(static_cast<std::size_t>(b.nz * b.nr));
   cellPerfusion_[group].assign(static_cast<std::size_t>(b.nz * b.nr), 0.0);
   m.innermostLayerCells = s.layers.front().cells;
@@ -1056,7 +1096,7 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
     };
   }
   for (int iz = 0; iz < b.nz; ++iz) {
-    const double z0 = iz * b.dz, z1 = (iz + 1) * b.dz;
+    const double z0 = b.edges[static_cast<std::size_t>(iz)], z1 = b.edges[static_cast<std::size_t>(iz) + 1];
     const CrossSection c0 = crossSection(s, b.scaleAt(z0));
     const CrossSection c1 = crossSection(s, b.scaleAt(z1));
     const CrossSection cm = crossSection(s, b.scaleAt(0.5 * (z0 + z1)));
@@ -1103,7 +1143,9 @@ Body::SegmentBuild Body::segmentTissues(const SegmentSpec& s, Index group, Segme
   b.coatDry = s.coat ? &case_.tissues.at(s.coat->material) : nullptr;
   b.coatChanges = b.coatDry && b.coatDry->wetConductivity > 0.0 && b.coatDry->wetConductivity != b.coatDry->conductivity;
   b.length = s.shape == Shape::Sphere ? 0.0 : s.length;
-  b.dz = s.shape == Shape::Sphere ? 1.0 : b.length / b.nz;
+  // Uniform: every cell L / nz and edges i (L / nz), as before axial_grading; graded: SegmentSpec::axialEdges.
+  b.edges = s.axialEdges();
+  b.dz = s.axialLengths();
   return b;
 }
 
@@ -1114,7 +1156,7 @@ void Body::recordCoat(const SegmentBuild& b, bool face, Index index, double dry,
 void Body::addCellNodes(const SegmentBuild& b, SegmentMesh& m, int iz, const CrossSection& c0, const CrossSection& c1) {
   // Nodes: exact control volumes, heat capacity, basal metabolism and Pennes perfusion of each radial cell.
   const SegmentSpec& s = b.s;
-  const double dz = b.dz;
+  const double dz = b.dz[static_cast<std::size_t>(iz)];
   for (int ir = 0; ir < b.nr; ++ir) {
     double volume = 0.0;
     double a0 = c0.bounds[ir], b0 = c0.bounds[ir + 1], a1 = c1.bounds[ir], b1 = c1.bounds[ir + 1];
@@ -1145,16 +1187,17 @@ void Body::addCellNodes(const SegmentBuild& b, SegmentMesh& m, int iz, const Cro
 void Body::addRadialConduction(const SegmentBuild& b, const SegmentMesh& m, int iz, const CrossSection& cm) {
   // Radial conduction: node centre -> shared face -> next node centre (harmonic-mean interface conductance).
   const SegmentSpec& s = b.s;
+  const double dz = b.dz[static_cast<std::size_t>(iz)];
   for (int ir = 0; ir + 1 < b.nr; ++ir) {
     double ri = 0.5 * (cm.bounds[ir] + cm.bounds[ir + 1]);
     double rj = 0.5 * (cm.bounds[ir + 1] + cm.bounds[ir + 2]);
     double face = cm.bounds[ir + 1];
     auto conductance = [&](bool wet) {
-      return 1.0 / radialResistance(s.shape, ri, face, rj, b.conductivity(ir, wet), b.conductivity(ir + 1, wet), b.dz, s.width,
+      return 1.0 / radialResistance(s.shape, ri, face, rj, b.conductivity(ir, wet), b.conductivity(ir + 1, wet), dz, s.width,
                                     ir >= b.firstCoat, ir + 1 >= b.firstCoat);
     };
     double resistance = radialResistance(s.shape, ri, face, rj, b.tissue[ir]->conductivity,
-                                         b.tissue[ir + 1]->conductivity, b.dz, s.width, ir >= b.firstCoat,
+                                         b.tissue[ir + 1]->conductivity, dz, s.width, ir >= b.firstCoat,
                                          ir + 1 >= b.firstCoat);
     network_.conductances.push_back({m.node(iz, ir), m.node(iz, ir + 1), 1.0 / resistance, 0});
     if (ir + 1 >= b.firstCoat) recordCoat(b, false, network_.conductances.size() - 1, conductance(false), conductance(true));
@@ -1166,10 +1209,11 @@ void Body::addLateralFace(const SegmentBuild& b, SegmentMesh& m, int iz, const C
   // Outer lateral face of axial cell iz: half-cell conductance from the outermost node to the surface.
   const SegmentSpec& s = b.s;
   const int nr = b.nr;
+  const double dz = b.dz[static_cast<std::size_t>(iz)];
   double rLast = 0.5 * (cm.bounds[nr - 1] + cm.bounds[nr]);
   double rOut = cm.bounds[nr];
   auto halfConductance = [&](double k) {
-    return 1.0 / radialResistance(s.shape, rLast, rOut, rOut, k, 1.0, b.dz, s.width, nr - 1 >= b.firstCoat, false);
+    return 1.0 / radialResistance(s.shape, rLast, rOut, rOut, k, 1.0, dz, s.width, nr - 1 >= b.firstCoat, false);
   };
   double half = halfConductance(b.tissue[nr - 1]->conductivity);
   double halfDry = halfConductance(b.conductivity(nr - 1, false));
@@ -1177,11 +1221,11 @@ void Body::addLateralFace(const SegmentBuild& b, SegmentMesh& m, int iz, const C
   double area = 0.0;
   switch (s.shape) {
     case Shape::Sphere: area = 4.0 * pi * rOut * rOut; break;
-    case Shape::Plate: area = 2.0 * s.width * b.dz; break;
+    case Shape::Plate: area = 2.0 * s.width * dz; break;
     case Shape::Cylinder:
     case Shape::Cone: {
       double R0 = c0.bounds[nr], R1 = c1.bounds[nr];
-      area = pi * (R0 + R1) * std::sqrt(b.dz * b.dz + (R1 - R0) * (R1 - R0));  // frustum lateral area
+      area = pi * (R0 + R1) * std::sqrt(dz * dz + (R1 - R0) * (R1 - R0));  // frustum lateral area
       break;
     }
   }
@@ -1206,13 +1250,16 @@ void Body::addLateralFace(const SegmentBuild& b, SegmentMesh& m, int iz, const C
 }
 
 void Body::addAxialConduction(const SegmentBuild& b, const SegmentMesh& m, int iz, const CrossSection& c1) {
-  // Axial conduction through the shared face at z1 between cells iz and iz + 1 (same tissue on both sides).
+  // Axial conduction through the shared face at z1 between cells iz and iz + 1 (same tissue on both sides), over
+  // the distance between their centres, half of each cell's length (graded cells: two different halves).
+  const auto z = static_cast<std::size_t>(iz);
+  const double dz = 0.5 * (b.dz[z] + b.dz[z + 1]);
   for (int ir = 0; ir < b.nr; ++ir) {
     double section = sectionArea(b.s.shape, c1.bounds[ir], c1.bounds[ir + 1], b.s.width);
-    network_.conductances.push_back({m.node(iz, ir), m.node(iz + 1, ir), b.tissue[ir]->conductivity * section / b.dz, 0});
+    network_.conductances.push_back({m.node(iz, ir), m.node(iz + 1, ir), b.tissue[ir]->conductivity * section / dz, 0});
     if (ir >= b.firstCoat)
-      recordCoat(b, false, network_.conductances.size() - 1, b.conductivity(ir, false) * section / b.dz,
-                 b.conductivity(ir, true) * section / b.dz);
+      recordCoat(b, false, network_.conductances.size() - 1, b.conductivity(ir, false) * section / dz,
+                 b.conductivity(ir, true) * section / dz);
   }
 }
 
@@ -1222,19 +1269,20 @@ void Body::addEndFaces(const SegmentBuild& b, SegmentMesh& m, bool attached) {
   const SegmentSpec& s = b.s;
   for (int end = attached ? 1 : 0; end < 2; ++end) {
     int iz = end == 0 ? 0 : b.nz - 1;
+    const double dz = b.dz[static_cast<std::size_t>(iz)];  // the end cell's own length
     CrossSection ce = crossSection(s, b.scaleAt(end == 0 ? 0.0 : b.length));
     for (int ir = 0; ir < b.nr; ++ir) {
       double section = sectionArea(s.shape, ce.bounds[ir], ce.bounds[ir + 1], s.width);
       if (ir < b.firstCoat && s.coat && s.surface.endCoat) {
         // Tissue under the end coat: the half cell in series with a flat coat layer of the coat's thickness,
         // R = c / (k A) (plane wall, Incropera et al. eq. 3.6), dry or wet with the medium.
-        const double tissueR = 0.5 * b.dz / (b.tissue[ir]->conductivity * section);
+        const double tissueR = 0.5 * dz / (b.tissue[ir]->conductivity * section);
         auto conductance = [&](double coatK) { return 1.0 / (tissueR + s.coat->thickness / (coatK * section)); };
         network_.faces.push_back({m.node(iz, ir), conductance(b.tissue[b.firstCoat]->conductivity), section});
         recordCoat(b, true, network_.faces.size() - 1, conductance(b.conductivity(b.firstCoat, false)),
                    conductance(b.conductivity(b.firstCoat, true)));
       } else {
-        network_.faces.push_back({m.node(iz, ir), b.tissue[ir]->conductivity * section / (0.5 * b.dz), section});
+        network_.faces.push_back({m.node(iz, ir), b.tissue[ir]->conductivity * section / (0.5 * dz), section});
       }
       if (ir >= b.firstCoat && s.surface.endCoat) {
         // The lateral coat's own annular end, under the same end coat as the tissue: its half cell in series with
@@ -1242,14 +1290,14 @@ void Body::addEndFaces(const SegmentBuild& b, SegmentMesh& m, bool attached) {
         // corner whose heat converged at order ~0.8 under radial refinement, 8 % low on the automatic grid of a
         // feathered trunk, DEVELOPERS.md "Coat at the end faces".)
         auto conductance = [&](double coatK) {
-          return 1.0 / ((0.5 * b.dz + s.coat->thickness) / (coatK * section));
+          return 1.0 / ((0.5 * dz + s.coat->thickness) / (coatK * section));
         };
         network_.faces.back().halfConductance = conductance(b.tissue[ir]->conductivity);
         recordCoat(b, true, network_.faces.size() - 1, conductance(b.conductivity(ir, false)),
                    conductance(b.conductivity(ir, true)));
       } else if (ir >= b.firstCoat) {
-        recordCoat(b, true, network_.faces.size() - 1, b.conductivity(ir, false) * section / (0.5 * b.dz),
-                   b.conductivity(ir, true) * section / (0.5 * b.dz));
+        recordCoat(b, true, network_.faces.size() - 1, b.conductivity(ir, false) * section / (0.5 * dz),
+                   b.conductivity(ir, true) * section / (0.5 * dz));
       }
       environment_->addFace({b.group, s.shape, false, section, 2.0 * ce.bounds[b.nr], 0.0});
       m.area += section;

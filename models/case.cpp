@@ -39,6 +39,33 @@ double SegmentSpec::tissueRadius() const {
   return r;
 }
 
+std::vector<double> SegmentSpec::axialEdges() const {
+  if (shape == Shape::Sphere) return {0.0, 1.0};
+  const int nz = std::max(axialCells, 1);
+  std::vector<double> edges(static_cast<std::size_t>(nz) + 1);
+  if (!(axialGrading > 1.0)) {
+    const double dz = length / nz;
+    for (int i = 0; i <= nz; ++i) edges[static_cast<std::size_t>(i)] = i * dz;
+    return edges;
+  }
+  // z(x) = L (Q^x - 1) / (Q - 1): expm1 keeps the small proximal cells accurate for Q near 1.
+  const double lnQ = std::log(axialGrading), denominator = std::expm1(lnQ);
+  for (int i = 0; i < nz; ++i)
+    edges[static_cast<std::size_t>(i)] = length * std::expm1(lnQ * i / nz) / denominator;
+  edges.back() = length;
+  return edges;
+}
+
+std::vector<double> SegmentSpec::axialLengths() const {
+  if (shape == Shape::Sphere) return {1.0};
+  const int nz = std::max(axialCells, 1);
+  if (!(axialGrading > 1.0)) return std::vector<double>(static_cast<std::size_t>(nz), length / nz);
+  const std::vector<double> edges = axialEdges();
+  std::vector<double> out(static_cast<std::size_t>(nz));
+  for (std::size_t i = 0; i < out.size(); ++i) out[i] = edges[i + 1] - edges[i];
+  return out;
+}
+
 namespace {
 
 // ---- nesting guard (before parsing) ------------------------------------------------------------
@@ -329,11 +356,14 @@ SegmentSpec readSegment(const CaseReader& reader, const Case& c, const toml::tab
   if (s.shape == Shape::Sphere) {
     rejectKey("length", "a sphere has only a radius");
     rejectKey("axial_cells", "a sphere is resolved radially only");
+    rejectKey("axial_grading", "a sphere is resolved radially only");
     rejectKey("width", "width is for plates");
   } else {
     s.length = t.quantity("length");
     s.axialCells = t.integer("axial_cells");
     s.axialAuto = !t.has("axial_cells");
+    s.axialGrading = t.number("axial_grading");
+    s.gradingAuto = !t.has("axial_grading");
   }
   if (s.shape == Shape::Cone) s.radiusDistal = t.quantity("radius_distal");
   else rejectKey("radius_distal", "only cones taper");
@@ -924,6 +954,7 @@ std::string resolvedCaseToml(const Case& c) {
     if (s.shape != Shape::Sphere) {
       t.insert("length", s.length);
       t.insert("axial_cells", s.axialCells);
+      t.insert("axial_grading", s.axialGrading);
     }
     if (s.shape == Shape::Cone) {
       t.insert("radius_proximal", s.radiusProximal);

@@ -76,6 +76,13 @@ struct SegmentSpec {
   double width = 0.0;           //!< [m] (plate)
   int axialCells = 1;
   bool axialAuto = false;       //!< `axial_cells` not given: chosen by resolveGrid (models/grid.hpp)
+  //! Geometric grading of the axial cells towards the proximal end (the junction): the ratio Q of the local cell
+  //! length at the distal end to that at the proximal end of the mapping z(x) = L (Q^x - 1) / (Q - 1), x in
+  //! [0, 1], whose cell edges are z(i / nz). 1: uniform. Neighbouring cells differ by Q^(1/nz), the longest is
+  //! Q^((nz-1)/nz) times the shortest; refining (nz -> N nz) keeps Q, so every cell splits into N cells of ratio
+  //! Q^(1/(N nz)) and refinement studies refine the same mapping.
+  double axialGrading = 1.0;
+  bool gradingAuto = false;     //!< `axial_grading` not given: chosen by resolveGrid (models/grid.hpp)
   std::vector<LayerSpec> layers;
   std::optional<CoatSpec> coat;
   SurfaceSpec surface;
@@ -83,6 +90,11 @@ struct SegmentSpec {
 
   //! Outer tissue radius or half-thickness (coat excluded) [m].
   double tissueRadius() const;
+  //! The nz + 1 axial cell edges from the proximal end [m] (axial_cells, axial_grading; a sphere: {0, 1}).
+  //! Uniform: i (L / nz), so a uniform segment's cells have exactly the length L / nz (axialLengths).
+  std::vector<double> axialEdges() const;
+  //! The nz axial cell lengths [m]: L / nz each when uniform, else the differences of axialEdges().
+  std::vector<double> axialLengths() const;
 };
 
 struct RunSpec {

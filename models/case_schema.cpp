@@ -130,6 +130,14 @@ constexpr std::array params = {
           "segment's decay lengths (and, at exposed end faces under stepped surroundings, the thermal penetration "
           "depth) so that its heat flows lie within 1 % of a 4x refined grid (README, Grid); a "
           "given value that is estimated to miss 1 % gets a warning."},
+    Param{"segments[].axial_grading", K::Number, "", "1", 1, 1e6, false, "",
+          "Axial cells graded geometrically towards the proximal end (the junction with the parent): the ratio Q of "
+          "the cell length at the distal end to that at the proximal end of the mapping z(x) = L (Q^x - 1) / (Q - 1) "
+          "whose cell edges are z(i / axial_cells). 1 is uniform. Neighbouring cells differ by Q^(1/axial_cells), "
+          "the longest is Q^((axial_cells - 1)/axial_cells) times the shortest. Refinement (run.grid_refinement, "
+          "`thermorph refine`) multiplies axial_cells and keeps Q: every cell splits into N cells along the same "
+          "mapping. Worth it where the segment's steepest gradient sits at its junction, e.g. a water line there (the "
+          "child in water, its parent in air), whose corner uniform cells resolve only slowly (README, Grid)."},
     Param{"segments[].layers", K::TableArray, "", "", 0, 0, false, "",
           "Concentric tissue layers, inside out: `[{ tissue, thickness, cells }, ...]`."},
     Param{"segments[].layers[].tissue", K::Text, "", "", 0, 0, false, "", "Tissue name (built-in or [tissues.NAME])."},

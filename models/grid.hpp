@@ -69,6 +69,7 @@ struct SegmentGridEstimate {
   double decayLength = 0.0;   //!< 1/m [m] (infinite: no axial decay)
   double ntu = 0.0;           //!< countercurrent exchanger NTU [1]
   bool axialForced = false;   //!< a junction or exposed end forces axial profiles
+  bool appendage = false;     //!< has a parent: the junction at its proximal end
   double endWeight = 1.0;     //!< share of the segment's heat flows that passes the forced ends [1]
   int axialNeeded = 1;        //!< axial cells meeting kGridTargetError
   std::vector<double> layerScale;  //!< per layer (coat last) the radial length scale [m]
@@ -100,8 +101,9 @@ double layerGridError(const SegmentGridEstimate& e, std::size_t layer, double th
 //! has no steps (a steady start and no events).
 double forcingInterval(const Case& c);
 
-//! Estimated relative error of a segment's heat flows with nz axial cells.
-double axialGridError(const SegmentGridEstimate& e, double length, int nz);
+//! Estimated relative error of a segment's heat flows with nz axial cells, uniform or graded towards the proximal
+//! end (grading: SegmentSpec::axialGrading).
+double axialGridError(const SegmentGridEstimate& e, double length, int nz, double grading = 1.0);
 
 //! Estimates for every segment of a case (uses the environment's surface conductances over the timeline).
 std::vector<SegmentGridEstimate> estimateGrid(const Case& c);
