@@ -340,8 +340,10 @@ double axialGridError(const SegmentGridEstimate& e, double length, int nz, doubl
       }
       fin = e.endWeight * finError(dzEff / e.decayLength);
     }
-    // An exposed distal end (transient): its own cell, the longest.
+    // Exposed ends (transient and steady): the distal end cell, the longest.
     const double ends = e.endShare * transientError(dz.back(), e.endPenetration);
+    const double steadyEnds = e.tissueEndShare * finError(dz.back() / e.decayLength) +
+                              (e.coatEndDecay > 0.0 ? e.coatEndShare * finError(dz.back() / e.coatEndDecay) : 0.0);
     // The exchanger's leak: c NTU^2 times the length-weighted mean of (dz/L)^2 (uniform cells: c (NTU/N)^2). The
     // longer distal cells weigh more than that mean says: c = 1 (not the uniform 0.5) bounds the graded errors
     // measured against Incropera et al. 2007, Table 11.3 (tests/test_graded.cpp `[exchanger]`: C_r = 0.5, NTU 3
@@ -351,7 +353,7 @@ double axialGridError(const SegmentGridEstimate& e, double length, int nz, doubl
       for (double d : dz) leak += std::pow(d / length, 3);
       leak *= e.ntu * e.ntu;
     }
-    return std::max({fin, ends, leak});
+    return std::max({fin, ends, steadyEnds, leak});
   }
   double fin = e.axialForced && e.decayLength > 0.0 && std::isfinite(e.decayLength)
                    ? e.endWeight * finError(length / nz / e.decayLength)
