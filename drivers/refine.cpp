@@ -53,6 +53,7 @@ Case refinedCase(const Case& c, int factor) {
     for (LayerSpec& l : s.layers) l.cells *= factor;
     if (s.coat) s.coat->cells *= factor;
     s.axialAuto = false;
+    s.gradingAuto = false;  // axial_grading is kept: the same mapping on factor x the cells
     for (LayerSpec& l : s.layers) l.cellsAuto = false;
     if (s.coat) s.coat->cellsAuto = false;
   }

@@ -136,8 +136,11 @@ constexpr std::array params = {
           "whose cell edges are z(i / axial_cells). 1 is uniform. Neighbouring cells differ by Q^(1/axial_cells), "
           "the longest is Q^((axial_cells - 1)/axial_cells) times the shortest. Refinement (run.grid_refinement, "
           "`thermorph refine`) multiplies axial_cells and keeps Q: every cell splits into N cells along the same "
-          "mapping. Worth it where the segment's steepest gradient sits at its junction, e.g. a water line there (the "
-          "child in water, its parent in air), whose corner uniform cells resolve only slowly (README, Grid)."},
+          "mapping. Left out together with axial_cells, it is chosen with them: graded where the water line lies at the "
+          "segment's junction (the child in water, its parent in air at some time of the run), whose corner uniform "
+          "cells resolve only slowly (the smallest Q of 10, 30, 100, 300, 1000 whose proximal cell is at most a "
+          "tenth of the outermost tissue layer; that layer also gets four times its automatic radial cells), "
+          "uniform elsewhere; uniform whenever axial_cells is given without it (README, Grid)."},
     Param{"segments[].layers", K::TableArray, "", "", 0, 0, false, "",
           "Concentric tissue layers, inside out: `[{ tissue, thickness, cells }, ...]`."},
     Param{"segments[].layers[].tissue", K::Text, "", "", 0, 0, false, "", "Tissue name (built-in or [tissues.NAME])."},

@@ -71,7 +71,11 @@ struct SegmentGridEstimate {
   bool axialForced = false;   //!< a junction or exposed end forces axial profiles
   bool appendage = false;     //!< has a parent: the junction at its proximal end
   double endWeight = 1.0;     //!< share of the segment's heat flows that passes the forced ends [1]
-  int axialNeeded = 1;        //!< axial cells meeting kGridTargetError
+  int axialNeeded = 1;        //!< axial cells meeting kGridTargetError (uniform)
+  //! Where the water line lies at the junction: the grading Q towards it (axial_grading) and the graded cells that
+  //! meet kGridTargetError; 1 and axialNeeded elsewhere.
+  double gradingNeeded = 1.0;
+  int gradedNeeded = 1;
   std::vector<double> layerScale;  //!< per layer (coat last) the radial length scale [m]
   std::vector<double> layerWeight; //!< per layer (coat last) share of the surface heat crossing its outer face [1]
   std::vector<double> layerCoreScale;  //!< per layer: radius whose curvature counts unweighted (the core layer) [m]

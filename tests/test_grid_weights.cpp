@@ -114,10 +114,12 @@ TEST_CASE("A water line at a junction is named in the warnings", "[grid]") {
   // A limb in water on a trunk in air: the corner at the junction converges more slowly than the grid estimate
   // assumes (measured on the wading bird's knee, DEVELOPERS.md), so the case's warnings say so; with both in air
   // they do not. Common practice, no source: a trap a user should be told about.
-  auto text = [](const std::string& immersion) {
+  // Since 2026-12-03 the automatic grid grades such a limb's cells towards the junction (axial_grading) and does not
+  // warn; given uniform cells (axial_cells without axial_grading) do.
+  auto text = [](const std::string& immersion, const std::string& cells = "axial_cells = 40\n") {
     return "title = \"limb in water\"\n[run]\nduration = 600\n[[segments]]\nname = \"trunk\"\nshape = \"cylinder\"\n"
            "length = 0.2\nlayers = [{ tissue = \"muscle\", thickness = 0.04 }]\nsurface = { ends = \"insulated\" }\n"
-           "[[segments]]\nname = \"limb\"\nparent = \"trunk\"\nshape = \"cylinder\"\nlength = 0.1\n"
+           "[[segments]]\nname = \"limb\"\nparent = \"trunk\"\nshape = \"cylinder\"\nlength = 0.1\n" + cells +
            "layers = [{ tissue = \"muscle\", thickness = 0.005 }, { tissue = \"skin\", thickness = 0.001 }]\n"
            "surface = { immersion = \"" + immersion + "\" }\n[environment]\ntemperature = 283.15\n";
   };
@@ -128,6 +130,10 @@ TEST_CASE("A water line at a junction is named in the warnings", "[grid]") {
   };
   CHECK(waterLine(loadCaseFromString(text("always"), "test-case")));
   CHECK_FALSE(waterLine(loadCaseFromString(text("body"), "test-case")));
+  const Case automatic = loadCaseFromString(text("always", ""), "test-case");
+  CHECK_FALSE(waterLine(automatic));
+  CHECK(automatic.segments[1].axialGrading > 1.0);
+  CHECK(loadCaseFromString(text("body", ""), "test-case").segments[1].axialGrading == 1.0);
 }
 
 TEST_CASE("A coat that leaves the water is named in the warnings (no drying model)", "[grid]") {
