@@ -16,6 +16,10 @@
 //!     has a relative error of about 0.5 (NTU/N)^2 on N cells, second order (exact for a balanced counterflow
 //!     exchanger away from the ends: Incropera et al. 2007, eq. 11.35 / Table 11.3; constant measured in
 //!     tests/test_whole_body.cpp `[exchanger]`, grid.cpp);
+//!     the stream that reaches a child carries only the child's flow F_c near the distal end (the artery gives up
+//!     the segment's own perfusion on the way): NTU_c = G / (rho_b c_b F_c) at the child's smallest flow, the
+//!     child's blood heat off by about kChildStreamErrorConstant (NTU_c/N)^2, weighted by the child's blood share
+//!     (measured on tests/test_grid.cpp's limb; grid.cpp);
 //!   * each tissue layer's radial cells against its perfusion length and, for curved shapes, its inner radius
 //!     (second order; error ~ (dr / scale)^2 / 48, the constant calibrated on the examples), weighted by the share
 //!     of the segment's surface heat that crosses the layer's outer face (a fine 1-D radial model of the
@@ -63,11 +67,21 @@ inline constexpr double kPenetrationErrorConstant = 1.0 / 13.0;
 //! cells: 0.3 / 0.29 / 0.26 of 1 / cells^2 of that heat; tests/test_grid.cpp).
 inline constexpr double kCoatCornerConstant = 0.3;
 
+//! Error constant of the exchanger's stream to a child: the child's blood heat misses by about
+//! kChildStreamErrorConstant (NTU_c / N)^2 on N axial cells of the parent, NTU_c = G / (rho_b c_b F_c) with F_c the
+//! child's smallest blood flow (models/grid.cpp; measured on the limb of tests/test_grid.cpp, where the value per
+//! count rises from 0.8 at NTU_c/N = 0.16 to 1.4 at 0.08 and about 3 asymptotically: 1.5 bounds the counts the
+//! rule lands on, 5-15 NTU_c).
+inline constexpr double kChildStreamErrorConstant = 1.5;
+
 //! What the estimator found for one segment (for `check` and the warnings).
 struct SegmentGridEstimate {
   std::string segment;
   double decayLength = 0.0;   //!< 1/m [m] (infinite: no axial decay)
   double ntu = 0.0;           //!< countercurrent exchanger NTU [1]
+  double childNtu = 0.0;      //!< NTU of the exchanger for the stream that reaches a child, G / (rho_b c_b F_c) [1]
+  double childBloodShare = 0.0;  //!< share of that child's heat flows that comes with its blood [1]
+  std::string childStream;    //!< that child
   bool axialForced = false;   //!< a junction or exposed end forces axial profiles
   bool appendage = false;     //!< has a parent: the junction at its proximal end
   double endWeight = 1.0;     //!< share of the segment's heat flows that passes the forced ends [1]

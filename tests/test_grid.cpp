@@ -338,3 +338,142 @@ speed = "4 m/s"
   CHECK(row.order >= 1.4);
   CHECK(row.order <= 2.6);
 }
+
+namespace {
+
+//! A limb with a countercurrent exchanger carrying a constricted bare foot at its distal end, arterial blood clamped
+//! at 37 degC, steady in -10 degC air and a 1 m/s wind (the cold feet example's limb; values illustrative). The
+//! foot's skin perfusion at 0.1 (constricted) leaves it 0.053 mL/min, so the exchanger (G 0.02 W/K) acts on the
+//! stream reaching the foot with an NTU of about 6, where the limb's whole stream (2.9 mL/min) has 0.1.
+std::string limbWithFoot(const std::string& legCells) {
+  return R"toml(
+title = "limb with exchanger and constricted foot"
+[run]
+initial = "steady"
+duration = "1 s"
+output_interval = "1 s"
+[circulation]
+fixed_arterial_temperature = "37 degC"
+[[segments]]
+name = "trunk"
+shape = "cylinder"
+length = "25 cm"
+layers = [
+  { tissue = "viscera", thickness = "3.5 cm" },
+  { tissue = "muscle",  thickness = "1.5 cm" },
+  { tissue = "fat",     thickness = "0.3 cm" },
+  { tissue = "skin",    thickness = "0.2 cm" },
+]
+coat = { material = "fur", thickness = "3 cm" }
+surface = { ends = "insulated" }
+[[segments]]
+name = "leg"
+parent = "trunk"
+attach_position = 0.5
+shape = "cylinder"
+length = "12 cm"
+)toml" + legCells + R"toml(
+layers = [
+  { tissue = "bone",   thickness = "0.3 cm" },
+  { tissue = "muscle", thickness = "0.7 cm" },
+  { tissue = "skin",   thickness = "0.15 cm" },
+]
+coat = { material = "fur", thickness = "1.5 cm" }
+surface = { ends = "insulated" }
+vessels = { countercurrent_conductance = "0.02 W/K" }
+[[segments]]
+name = "foot"
+parent = "leg"
+attach_position = 1.0
+shape = "cylinder"
+length = "5 cm"
+layers = [
+  { tissue = "bone", thickness = "0.25 cm" },
+  { tissue = "skin", thickness = "0.25 cm" },
+]
+vasomotor = { skin_perfusion = 0.1 }
+[environment]
+medium = "air"
+temperature = "-10 degC"
+speed = "1 m/s"
+relative_humidity = "70 %"
+)toml";
+}
+
+RefineResult refineLimb(const std::string& legCells) {
+  const std::filesystem::path path = std::filesystem::temp_directory_path() / "thermorph_test_refine_limb.toml";
+  {
+    std::ofstream out(path);
+    out << limbWithFoot(legCells);
+  }
+  RefineOptions options;
+  options.casePath = path.string();
+  options.steady = true;
+  options.metrics = {"segments.foot.heat_flow.blood", "segments.foot.heat_flow.convection"};
+  RefineResult r = runRefinement(options);
+  std::filesystem::remove(path);
+  REQUIRE(r.rows.size() == 2);
+  return r;
+}
+
+}  // namespace
+
+namespace {
+
+struct FootFlows {
+  double blood, convection;
+};
+
+FootFlows solveLimb(const std::string& legCells) {
+  const Case c = loadCaseFromString(limbWithFoot(legCells), "limb.toml");
+  Body body(c);
+  RunSummary s = runSteady(body, silentRun());
+  REQUIRE(s.complete);
+  const Network& n = body.network();
+  const Index foot = segmentIndex(body, "foot");
+  return {s.flows[foot * n.channels.size() + channelIndex(n, "blood")],
+          s.flows[foot * n.channels.size() + channelIndex(n, "convection")]};
+}
+
+}  // namespace
+
+TEST_CASE("The exchanger's stream to a constricted child: the automatic limb grid keeps the foot within 1 % of 4x",
+          "[grid][validation]") {
+  // The leg's exchanger works on the stream that reaches the foot with NTU G / (rho_b c_b F_foot); the whole
+  // stream's NTU (0.1) asked for 18 axial cells. Reference: the same limb on 1152 leg cells (grid convergence,
+  // Roache 1998; the differences between successive doublings fall by 1.5, 1.9, 2.5, 3.0, 3.5 from 18 cells up,
+  // so 1152 cells are within about 0.01 % of the limit), and a refinement study of the automatic grid.
+  const Case automatic = loadCaseFromString(limbWithFoot(""), "limb.toml");
+  const std::vector<SegmentGridEstimate> est = estimateGrid(automatic);
+  REQUIRE(est[1].segment == "leg");
+  CHECK(est[1].childStream == "foot");
+  CHECK(est[1].childNtu > 4.0);  // 0.02 W/K over 0.053 mL/min of blood (3.8e6 J/(m3 K)): about 6
+  CHECK(est[1].ntu < 0.2);
+  const int legCells = automatic.segments[1].axialCells;
+  CHECK(legCells >= 40);
+  const FootFlows fine = solveLimb("axial_cells = 1152");
+  for (int n : {legCells, 36, 18}) {
+    const FootFlows f = n == legCells ? solveLimb("") : solveLimb("axial_cells = " + std::to_string(n));
+    const double blood = std::abs(f.blood / fine.blood - 1.0), loss = std::abs(f.convection / fine.convection - 1.0);
+    // What the rule estimates for the foot's blood heat: the leg's error (the child-stream term) over the share.
+    const double estimated = axialGridError(est[1], 0.12, n) / est[1].childBloodShare;
+    std::printf("[grid] limb, leg %d axial cells: foot blood heat %.3f %% and loss %.3f %% from 1152 cells; "
+                "estimated %.2f %% in the blood heat\n", n, 100.0 * blood, 100.0 * loss, 100.0 * estimated);
+    if (n == legCells) {
+      CHECK(loss <= kGridTargetError);
+      CHECK(estimated >= blood);
+      CHECK(estimated <= 2.0 * blood);
+    } else if (n == 36) {
+      CHECK(estimated >= blood);
+      CHECK(estimated <= 2.5 * blood);
+    } else {
+      CHECK(loss > 0.01);  // the whole stream's NTU left the foot's loss off by more than 1 %
+    }
+  }
+  // And against 4x of the automatic grid (every count, `thermorph refine`): the foot's loss within 1 %.
+  const RefineResult r = refineLimb("");
+  const RefineRow& convection = r.rows[1];
+  std::printf("[grid] limb, automatic grid: foot loss %.5f / %.5f / %.5f W at 1/2/4x, 1x vs 4x %.2e\n",
+              convection.values[0], convection.values[1], convection.values[2], convection.relative);
+  CHECK(convection.relative <= 0.01);
+}
