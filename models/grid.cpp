@@ -666,14 +666,15 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
       skin = std::min(4 * skin, kMaxAutoPenetrationCells);
       const double corner = 0.1 * s.layers.back().thickness;
       for (double q : {10.0, 30.0, 100.0, 300.0, 1000.0}) {
-        int n = 4;
-        while (n < kMaxAutoAxialCells && axialGridError(e, s.length, n, q) > target) n = std::max(n + 1, n * 11 / 10);
-        if (s.vessels.shuntFlowMax > 0.0 || !children[g].empty()) n = std::max(n, 10);
-        if (n % 2) ++n;
-        n = std::min(n, kMaxAutoAxialCells);
+        int cells = 4;
+        while (cells < kMaxAutoAxialCells && axialGridError(e, s.length, cells, q) > target)
+          cells = std::max(cells + 1, cells * 11 / 10);
+        if (s.vessels.shuntFlowMax > 0.0 || !children[g].empty()) cells = std::max(cells, 10);
+        if (cells % 2) ++cells;
+        cells = std::min(cells, kMaxAutoAxialCells);
         e.gradingNeeded = q;
-        e.gradedNeeded = n;
-        if (s.length * std::expm1(std::log(q) / n) / std::expm1(std::log(q)) <= corner) break;
+        e.gradedNeeded = cells;
+        if (s.length * std::expm1(std::log(q) / cells) / std::expm1(std::log(q)) <= corner) break;
       }
     }
     out.push_back(e);
