@@ -95,6 +95,23 @@ bool anyContains(const std::vector<std::string>& lines, const std::string& a, co
   return false;
 }
 
+//! `thermorph refine --steady` (drivers/refine.cpp) of a case given as text, on `metrics`: 1x/2x/4x rows.
+RefineResult refineSteady(const std::string& text, const std::string& name, const std::vector<std::string>& metrics) {
+  const std::filesystem::path path = std::filesystem::temp_directory_path() / ("thermorph_test_refine_" + name + ".toml");
+  {
+    std::ofstream out(path);
+    out << text;
+  }
+  RefineOptions options;
+  options.casePath = path.string();
+  options.steady = true;
+  options.metrics = metrics;
+  RefineResult r = runRefinement(options);
+  std::filesystem::remove(path);
+  REQUIRE(r.rows.size() == metrics.size());
+  return r;
+}
+
 }  // namespace
 
 TEST_CASE("Automatic axial grid of a pin fin in water is within 1 % of Incropera's adiabatic-tip fin", "[grid][validation]") {
@@ -119,18 +136,7 @@ TEST_CASE("Automatic axial grid of a pin fin in water is within 1 % of Incropera
 
 TEST_CASE("Refinement study of the coarse pin fin: observed order 2 and Richardson value near the fin formula",
           "[grid][validation]") {
-  const std::filesystem::path path = std::filesystem::temp_directory_path() / "thermorph_test_refine_pin.toml";
-  {
-    std::ofstream out(path);
-    out << pinFinInWater("axial_cells = 6");
-  }
-  RefineOptions options;
-  options.casePath = path.string();
-  options.steady = true;
-  options.metrics = {"segments.pin.heat_flow.conduction"};
-  RefineResult r = runRefinement(options);
-  std::filesystem::remove(path);
-  REQUIRE(r.rows.size() == 1);
+  RefineResult r = refineSteady(pinFinInWater("axial_cells = 6"), "pin", {"segments.pin.heat_flow.conduction"});
   const RefineRow& row = r.rows[0];
   const double reference = adiabaticFin(20.0);  // the clamp holds the base at 30 degC over 10 degC water
   std::printf("[grid] refine pin fin: %.5f / %.5f / %.5f W at 6/12/24 cells, order %.3f, Richardson %.5f W, "
@@ -319,18 +325,7 @@ coat = { material = "feathers", thickness = "2.5 cm" }
 temperature = "-15 degC"
 speed = "4 m/s"
 )toml";
-  const std::filesystem::path path = std::filesystem::temp_directory_path() / "thermorph_test_refine_trunk.toml";
-  {
-    std::ofstream out(path);
-    out << text;
-  }
-  RefineOptions options;
-  options.casePath = path.string();
-  options.steady = true;
-  options.metrics = {"segments.trunk.heat_flow.convection"};
-  RefineResult r = runRefinement(options);
-  std::filesystem::remove(path);
-  REQUIRE(r.rows.size() == 1);
+  RefineResult r = refineSteady(text, "trunk", {"segments.trunk.heat_flow.convection"});
   const RefineRow& row = r.rows[0];
   std::printf("[grid] coated trunk, exposed ends: %.5f / %.5f / %.5f W at 1/2/4x, order %.3f, 1x vs 4x %.2e\n",
               row.values[0], row.values[1], row.values[2], row.order, row.relative);
@@ -401,19 +396,7 @@ relative_humidity = "70 %"
 }
 
 RefineResult refineLimb(const std::string& legCells) {
-  const std::filesystem::path path = std::filesystem::temp_directory_path() / "thermorph_test_refine_limb.toml";
-  {
-    std::ofstream out(path);
-    out << limbWithFoot(legCells);
-  }
-  RefineOptions options;
-  options.casePath = path.string();
-  options.steady = true;
-  options.metrics = {"segments.foot.heat_flow.blood", "segments.foot.heat_flow.convection"};
-  RefineResult r = runRefinement(options);
-  std::filesystem::remove(path);
-  REQUIRE(r.rows.size() == 2);
-  return r;
+  return refineSteady(limbWithFoot(legCells), "limb", {"segments.foot.heat_flow.blood", "segments.foot.heat_flow.convection"});
 }
 
 }  // namespace
