@@ -38,6 +38,11 @@ CLI::App* addFitSubcommand(CLI::App& app, FitOptions& o) {
   fit->add_option("--converged-se", o.stepTolerance,
                   "Converged when the Gauss-Newton step is below this many standard errors (relative offset "
                   "criterion, Bates & Watts 1981); default 0.01");
+  fit->add_option("--grid-check", o.gridCheck,
+                  "After the fit, run the fitted model once on the grid refined N x and estimate the grid's bias of "
+                  "the fitted values from the fit's Jacobian (warning above 0.2 SE or 1 % of a value); 0: no check. "
+                  "Default 2")
+      ->check(CLI::Range(0, 16));
   fit->add_option("-j,--jobs", o.jobs, "Threads for the runs of one Jacobian (default: all cores)");
   fit->add_option("-o,--output", o.output,
                   "Results of the fitted run with the /fit group (HDF5); the fitted case goes beside it as "

@@ -78,6 +78,12 @@ class Result:
                 self._correlation = g["correlation"][...]
                 self._rmse = {k: float(np.sqrt(np.mean(v["residual"][...] ** 2))) for k, v in g["series"].items()}
                 self.fit_attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in g.attrs.items()}
+                self._grid, self.grid_check_attrs = {}, {}
+                if "grid_check" in g and "shift" in g["grid_check"]:
+                    c = g["grid_check"]
+                    self._grid = {k: dict(zip(names, c[k][...])) for k in
+                                  ("shift", "shift_se", "bias", "bias_se", "bias_relative")}
+                    self.grid_check_attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in c.attrs.items()}
         if kind == "sweep":
             with open(path.with_suffix(".csv"), newline="") as fh:
                 self.rows = [{k.split(" [")[0]: _number(v) for k, v in row.items()} for row in csv.DictReader(fh)]
@@ -207,6 +213,11 @@ class Result:
     def correlation(self, a, b):
         return float(self._correlation[self._names.index(a), self._names.index(b)])
 
+    def grid_check(self, key, what="bias"):
+        """The fit's grid check (/fit/grid_check) for one parameter: what = shift, shift_se, bias, bias_se,
+        bias_relative; grid_check_attrs holds refinement, nodes, wall_seconds, ..."""
+        return float(self._grid[what][key])
+
     def rmse(self, series):
         """Root mean square of the raw residuals (model - observed) of one observed series."""
         return self._rmse[series]
@@ -301,6 +312,8 @@ class Runner:
                 if m and i > 0 and args[i - 1] == "--set":
                     given = int(m.group(1))
             args = args + ["--set", f"run.grid_refinement={given * self.refine}"]
+            if kind == "fit":  # the fit's own grid check would refine the refined grid again
+                args = args + ["--grid-check", "0"]
         out = self.tmp / f"{name}.h5"
         # The case, and any data file given by a path in the repository (fit --data cases/x.csv), from ROOT.
         cmd = [str(self.exe)] + [str(ROOT / a) if i == 1 or (i > 1 and a.startswith("cases/") and (ROOT / a).is_file())

@@ -796,7 +796,8 @@ FitResult runFit(const FitProblem& given) {
 namespace {
 
 void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const FitOptions& o,
-                   const std::vector<std::vector<double>>& modelSeries, const std::vector<double>& modelTimes) {
+                   const std::vector<std::vector<double>>& modelSeries, const std::vector<double>& modelTimes,
+                   const FitGridCheck& grid = {}) {
   const std::size_t p = pb.parameters.size();
   w.group("/fit");
   w.attribute("/fit", "converged", r.converged ? 1.0 : 0.0);
@@ -915,6 +916,49 @@ void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const 
   w.strings("/fit/series_names", seriesNames);
   w.scale("/fit/series_names");
 
+  // The grid check (gridCheck): the first-order shift of the optimum on the grid refined N x.
+  if (grid.refinement > 0) {
+    const std::string G = "/fit/grid_check";
+    w.group(G);
+    w.attribute(G, "refinement", static_cast<double>(grid.refinement));
+    w.attribute(G, "nodes", static_cast<double>(grid.nodes));
+    w.attribute(G, "case_nodes", static_cast<double>(r.gridNodes));
+    w.attribute(G, "wall_seconds", grid.seconds);
+    w.attribute(G, "ok", grid.ok ? 1.0 : 0.0);
+    w.attribute(G, "error", grid.error);
+    w.attribute(G, "se_fraction", gridCheckSeFraction);
+    w.attribute(G, "relative", gridCheckRelative);
+    w.attribute(G, "warnings", fmt::format("{}", fmt::join(grid.warnings, "\n")));
+    w.attribute(G, "method",
+                "one run at the fitted values on the grid refined N x (run.grid_refinement); shift = -(J^T J)^-1 J^T "
+                "(y_fine - y_case) / sd with the fit's weighted Jacobian J at its optimum (Gauss-Newton step towards "
+                "the fine grid's optimum, linear approximation of Bates & Watts 1988, ch. 2); bias = -shift N^2 / "
+                "(N^2 - 1), the fitted value minus that of a converged grid against a converged grid for a scheme of order 2 (Richardson 1911); "
+                "warning when |bias| exceeds se_fraction standard errors or relative x |value|");
+    w.attribute(G, "caution", caution);
+    if (grid.ok) {
+      w.doubles(G + "/shift", grid.shift, {}, perParameter, "optimum on the N x grid minus the fitted value");
+      w.doubles(G + "/shift_se", grid.shiftSe, {}, "1", "shift in standard errors");
+      w.doubles(G + "/bias", grid.bias, {}, perParameter, "estimated bias of the fitted value against a converged grid");
+      w.doubles(G + "/bias_se", grid.biasSe, {}, "1", "bias in standard errors");
+      w.doubles(G + "/bias_relative", grid.biasRelative, {}, "1", "|bias / value|");
+      std::vector<double> held;
+      for (bool b : grid.held) held.push_back(b ? 1.0 : 0.0);
+      w.doubles(G + "/held", held, {}, "1", "1: at a bound with the shift pointing out (held, shift 0)");
+      w.doubles(G + "/series_rms", grid.seriesRms, {}, "1", "RMS of (fine - case prediction) / sd per series");
+      std::size_t off = 0;
+      for (std::size_t s = 0; s < pb.data.series.size(); ++s) {
+        const std::size_t m = pb.data.series[s].values.size();
+        if (grid.finePredictions.size() >= off + m)
+          w.doubles("/fit/series/" + seriesNames[s] + "/predicted_refined",
+                    std::vector<double>(grid.finePredictions.begin() + static_cast<std::ptrdiff_t>(off),
+                                        grid.finePredictions.begin() + static_cast<std::ptrdiff_t>(off + m)),
+                    {}, pb.data.series[s].unit(), "prediction at the fitted values on the grid refined N x");
+        off += m;
+      }
+    }
+  }
+
   // netCDF-4 dimensions (HDF5 dimension scales): every dataset's axes are named coordinates.
   const std::string P = "/fit/parameter", P2 = "/fit/parameter_b";
   w.indexScale(P, p, "parameter index (names in parameters/name)");
@@ -924,6 +968,9 @@ void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const 
     if (w.exists(std::string("/fit/parameters/") + name)) w.attach(std::string("/fit/parameters/") + name, {P});
   for (const char* name : {"/fit/covariance", "/fit/correlation"})
     if (w.exists(name)) w.attach(name, {P, P2});
+  for (const char* name : {"shift", "shift_se", "bias", "bias_se", "bias_relative", "held"})
+    if (w.exists(std::string("/fit/grid_check/") + name)) w.attach(std::string("/fit/grid_check/") + name, {P});
+  if (w.exists("/fit/grid_check/series_rms")) w.attach("/fit/grid_check/series_rms", {"/fit/series_names"});
   if (w.exists("/fit/jacobian")) {
     w.indexScale("/fit/row", r.jacobian.size() / p, "residual row: observations series after series, then priors");
     w.attach("/fit/jacobian", {"/fit/row", P});
@@ -942,7 +989,7 @@ void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const 
   for (const std::string& name : seriesNames) {
     const std::string g = "/fit/series/" + name;
     w.scale(g + "/time");
-    for (const char* v : {"observed", "sd", "predicted", "residual"})
+    for (const char* v : {"observed", "sd", "predicted", "residual", "predicted_refined"})
       if (w.exists(g + "/" + v)) w.attach(g + "/" + v, {g + "/time"});
     if (w.exists(g + "/model_time")) {
       w.scale(g + "/model_time");
@@ -954,6 +1001,34 @@ void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const 
 std::string stemOf(const std::string& output) {
   std::filesystem::path path(output);
   return (path.parent_path() / path.stem()).string();
+}
+
+void printGridCheck(const FitProblem& pb, const FitResult& r, const FitGridCheck& g) {
+  if (g.refinement == 0) return;
+  const std::size_t p = pb.parameters.size();
+  fmt::print("Grid check: one run at the fitted values on the grid refined {}x ({} nodes against the fit's {}; {:.3g} s)\n",
+             g.refinement, g.nodes, r.gridNodes, g.seconds);
+  if (!g.ok) {
+    fmt::print("  no estimate: {}\n", g.error);
+    return;
+  }
+  fmt::print("  change of the predictions, RMS in noise SDs (largest, in the series' unit):");
+  for (std::size_t s = 0; s < pb.data.series.size(); ++s)
+    fmt::print("{} {} {:.3g} ({:.3g} {})", s ? "," : "", pb.data.series[s].quantity.name, g.seriesRms[s], g.seriesMax[s],
+               pb.data.series[s].unit());
+  fmt::print("\n{:<44} {:>12} {:>9} {:>12} {:>9} {:>9}  {}\n", "parameter", "shift to Nx", "in SE", "bias (est.)",
+             "in SE", "% value", "unit");
+  for (std::size_t j = 0; j < p; ++j)
+    fmt::print("{:<44} {:>12.4g} {:>9.3f} {:>12.4g} {:>9.3f} {:>9.3f}  {}{}\n", pb.parameters[j].key, g.shift[j], g.shiftSe[j],
+               g.bias[j], g.biasSe[j], 100.0 * g.biasRelative[j], pb.parameters[j].unit.empty() ? "1" : pb.parameters[j].unit,
+               g.held[j] ? " (held at its bound)" : "");
+  fmt::print("  shift: Gauss-Newton step from the fitted values towards the optimum on the refined grid, with the fit's "
+             "Jacobian (first order);\n  bias: fitted value minus that of a converged grid, -shift x N^2/(N^2 - 1) "
+             "for the scheme's order 2. {}\n",
+             g.warnings.empty() ? fmt::format("Every bias is within {} SE and {} % of its value.", gridCheckSeFraction,
+                                              100.0 * gridCheckRelative)
+                                : fmt::format("{} parameter(s) above {} SE or {} % of the value (warnings below).",
+                                              g.warnings.size(), gridCheckSeFraction, 100.0 * gridCheckRelative));
 }
 
 void printReport(const FitProblem& pb, const FitResult& r) {
@@ -1043,8 +1118,20 @@ int runFitCommand(const FitOptions& o) {
   if (auto dir = std::filesystem::path(output).parent_path(); !dir.empty() && !std::filesystem::is_directory(dir))
     throw CaseError(fmt::format("-o {}: the folder {} does not exist", output, dir.string()));
 
+  if (o.gridCheck == 1 || o.gridCheck < 0 || o.gridCheck > 16)
+    throw CaseError(fmt::format("--grid-check {}: expected 0 (no check) or a refinement from 2 to 16", o.gridCheck));
+
   FitResult r = runFit(pb);
+  FitGridCheck grid;
+  if (r.converged && o.gridCheck >= 2) {
+    if (!pb.quiet)
+      fmt::print(stderr, "fit: grid check: one run at the fitted values on the grid refined {}x\n", o.gridCheck);
+    grid = gridCheck(pb, r, o.gridCheck);
+    for (const std::string& w : grid.warnings) r.warnings.push_back(w);
+    if (!grid.ok) r.warnings.push_back("grid check: no estimate: " + grid.error);
+  }
   printReport(pb, r);
+  printGridCheck(pb, r, grid);
   for (const std::string& w : r.warnings) fmt::print(stderr, "warning: {}\n", w);
 
   if (!r.converged) {
@@ -1085,7 +1172,7 @@ int runFitCommand(const FitOptions& o) {
   for (std::size_t s = 0; s < pb.data.series.size(); ++s) modelSeries.push_back(sampler.outputSeries(s));
   {
     H5Writer w(running, true);
-    writeFitGroup(w, pb, r, o, modelSeries, sampler.outputTimes());
+    writeFitGroup(w, pb, r, o, modelSeries, sampler.outputTimes(), grid);
   }
   std::filesystem::rename(running, output);
 

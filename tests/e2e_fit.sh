@@ -50,6 +50,7 @@ PY
 free=(--free "environment.convection=0.001 W/(m2 K):0.1 W/(m2 K)" --start "environment.convection=0.0065 W/(m2 K)")
 "$exe" fit lump.toml --data obs.csv "${free[@]}" -q -o fit.h5 > fit.txt 2> fit.err || fail "fit exit $?: $(cat fit.err)"
 grep -q "converged" fit.txt || fail "report: $(cat fit.txt)"
+grep -q "Grid check: one run at the fitted values on the grid refined 2x" fit.txt || fail "no grid check: $(cat fit.txt)"
 [[ -f fit_fitted.toml ]] || fail "no fitted case"
 "$exe" run fit_fitted.toml -q -o rerun.h5 > /dev/null || fail "fitted case does not run"
 "$python" - <<'PY' || fail "fit file contents"
@@ -67,7 +68,16 @@ with h5py.File("fit.h5") as f, h5py.File("rerun.h5") as r:
     # the fitted run's full results are in the same file, and the fitted case reproduces them
     assert np.array_equal(f["body/core_temperature"][:], r["body/core_temperature"][:])
     assert "Model estimates for research" in g.attrs["caution"]
-print("fit: h =", v, "+-", se)
+    # the default grid check (2x): a lumped sphere (Bi 2e-7) barely changes with its cells, so its fitted h moves by
+    # far less than 0.2 SE and nothing is warned (the check's own validation: tests/test_fit_grid.cpp)
+    c = g["grid_check"]
+    assert int(c.attrs["refinement"]) == 2 and int(c.attrs["ok"]) == 1, dict(c.attrs)
+    assert c.attrs["nodes"] > c.attrs["case_nodes"], dict(c.attrs)
+    assert abs(c["shift_se"][0]) < 0.2 and c.attrs["warnings"] == "", (c["shift_se"][:], c.attrs["warnings"])
+    assert s["predicted_refined"].shape == (61,)
+    assert "Model estimates for research" in c.attrs["caution"]
+    shift, shift_se = c["shift"][0], c["shift_se"][0]
+print("fit: h =", v, "+-", se, "; grid check 2x shift", shift, "(", shift_se, "SE)")
 PY
 "$python" "$src/postproc/fit_figure.py" fit.h5 --out figs > /dev/null || fail "fit_figure.py"
 [[ -f figs/fit_fit_0.png ]] || fail "no figure"
@@ -94,6 +104,7 @@ expect2 "outside the run" --data late.csv "${free[@]}"
 printf 'time [s], body.core_temperature [degC], body.metabolic_rate [W]\n0, 37,\n10, 36,\n' > blank.csv
 expect2 "every value is missing" --data blank.csv "${free[@]}"
 expect2 "no observed data" "${free[@]}"
+expect2 "grid-check 1: expected 0 (no check) or a refinement from 2 to 16" --data obs.csv "${free[@]}" --grid-check 1
 cmp -s fit.h5 keep.h5 || fail "a refused fit changed earlier results"
 
 # No convergence within one iteration: exit 3, the history kept in fit.incomplete.h5.

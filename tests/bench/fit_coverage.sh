@@ -55,7 +55,7 @@ with open(sys.argv[2], "w") as out:
                              f"{ear[i] + rng.normal(0, sd['ear']):.2f}", f"{sd['ear']}" if first else "",
                              f"{met[i] + rng.normal(0, sd['met']):.2f}", f"{sd['met']}" if first else ""]) + "\n")
 PY
-  "$exe" fit "$case" "${scenario[@]}" --data "$out/data_$d.csv" "${free[@]}" -j "$jobs" -q -o "$out/fit_$d.h5" \
+  "$exe" fit "$case" "${scenario[@]}" --data "$out/data_$d.csv" "${free[@]}" -j "$jobs" -q --grid-check 0 -o "$out/fit_$d.h5" \
     > "$out/fit_$d.txt" 2>&1 || echo "draw $d: fit failed (exit $?)"
 done
 end=$(date +%s.%N)
