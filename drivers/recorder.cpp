@@ -54,7 +54,8 @@ Recorder::Recorder(const Body& body, const NetworkSystem& system, const RunOptio
       observer_(options.observer),
       flows_(options.flowsAtOutputs || !options.output.empty()),
       budget_(body.network(), system),
-      freezing_(body) {
+      freezing_(body),
+      controlGrid_(body, system) {
   if (options.output.empty()) return;
   file_ = std::make_unique<ResultsFile>(options.output);
   ResultsFile& f = *file_;
@@ -72,6 +73,13 @@ void Recorder::record(double t, std::span<const double> y, double initialStored,
   std::vector<double>& faces = faceTemperatures_;
   budget_.compute(t, y, initialStored, summary, faces, flows_);
   freezing_.observe(t, y);
+  if (controlGrid_.active()) {
+    if (flows_) controlGrid_.observe(t, y, summary.flows);
+    else {  // no flows at outputs (a transient sweep): the last output is checked at the end
+      lastTime_ = t;
+      lastState_.assign(y.begin(), y.begin() + static_cast<std::ptrdiff_t>(system_.nodeCount() + system_.controlCount()));
+    }
+  }
   if (observer_) observer_(t, y.first(system_.nodeCount()), summary);
   if (!file_) return;
   ResultsFile& f = *file_;
@@ -87,6 +95,16 @@ void Recorder::finish(RunSummary& summary, bool steady) {
   for (const std::string& w : body_.environment().warnings()) summary.warnings.push_back(w);
   // Found while running (tissue below 0 degC): stored with the others, in result files and sweep rows.
   summary.runWarnings = freezing_.warnings();
+  // Controller outputs whose estimated grid error exceeds 1 % (record_control_grid.hpp).
+  if (controlGrid_.active() && !lastState_.empty()) {
+    const Network& net = body_.network();
+    std::vector<double> flows(net.groups.size() * net.channels.size(), 0.0), storage(net.groups.size(), 0.0),
+        faces(net.faces.size(), 0.0);
+    system_.groupFlows(lastTime_, lastState_, flows, storage, faces);
+    controlGrid_.observe(lastTime_, lastState_, flows);
+  }
+  if (summary.complete)
+    for (std::string& w : controlGrid_.warnings()) summary.runWarnings.push_back(std::move(w));
   for (const std::string& w : summary.runWarnings) summary.warnings.push_back(w);
   if (!file_) return;
   ResultsFile& f = *file_;

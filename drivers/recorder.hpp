@@ -15,6 +15,7 @@
 #include <vector>
 
 #include "drivers/record_budget.hpp"
+#include "drivers/record_control_grid.hpp"
 #include "drivers/record_environment.hpp"
 #include "drivers/record_fields.hpp"
 #include "drivers/record_freezing.hpp"
@@ -47,6 +48,9 @@ class Recorder {
   std::unique_ptr<EnvironmentRecorder> environment_;
   std::unique_ptr<FieldRecorder> fields_;
   FreezeWatch freezing_;                  //!< tissue below 0 degC: warnings of the run (record_freezing.hpp)
+  ControlGridWatch controlGrid_;          //!< controller outputs' grid error (record_control_grid.hpp)
+  double lastTime_ = 0.0;                 //!< without flows at outputs: the last output, checked at the end
+  std::vector<double> lastState_;
   std::vector<double> faceTemperatures_;  //!< [K], from the budget, used by the other parts
   std::string incompletePath_;
 };

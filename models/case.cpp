@@ -708,6 +708,7 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   c.run.atol = run.quantity("atol");
   c.run.maxStep = run.quantity("max_step");
   c.run.gridRefinement = static_cast<int>(run.integer("grid_refinement"));
+  c.run.gridTolerance = run.number("grid_tolerance");
   if (c.run.outputInterval > c.run.duration)
     run.fail("output_interval", fmt::format("output_interval = {:g} s exceeds duration = {:g} s",
                                             c.run.outputInterval, c.run.duration));
@@ -889,7 +890,8 @@ std::string resolvedCaseToml(const Case& c) {
                                  {"initial_temperature", c.run.initialTemperature},
                                  {"rtol", c.run.rtol},
                                  {"atol", c.run.atol},
-                                 {"max_step", c.run.maxStep}});
+                                 {"max_step", c.run.maxStep},
+                                 {"grid_tolerance", c.run.gridTolerance}});
   toml::table circ{{"blood_density", c.circulation.bloodDensity},
                    {"blood_specific_heat", c.circulation.bloodSpecificHeat}};
   if (c.circulation.fixedArterialTemperature)

@@ -106,6 +106,10 @@ struct RunSpec {
   double atol = 1e-6;              //!< absolute tolerance on temperatures [K]
   double maxStep = 0.0;            //!< maximum step [s] (0: no limit)
   int gridRefinement = 1;          //!< every cell count multiplied by this after the grid is resolved [1]
+  //! Tolerance of the automatic grid against a grid refined 4x [1]: segments' heat flows are estimated within
+  //! half of it of their converged value (models/grid.hpp gridTargetError); controller outputs are checked after
+  //! the run (drivers/record_control_grid.hpp).
+  double gridTolerance = 0.01;
 };
 
 struct CirculationSpec {

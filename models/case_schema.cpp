@@ -30,6 +30,12 @@ constexpr std::array params = {
     Param{"run.grid_refinement", K::Integer, "", "1", 1, 64, false, "",
           "Multiply every axial, layer and coat cell count (given or chosen automatically) by this factor: a grid "
           "convergence check of any command, e.g. `--set run.grid_refinement=4` (see also `thermorph refine`)."},
+    Param{"run.grid_tolerance", K::Number, "", "0.01", 1e-4, 0.2, false, "",
+          "Tolerance of the automatic grid: the cell counts a case leaves out are chosen so that each segment's heat "
+          "flows are estimated within half of it of their converged value, hence within it of a grid refined 4x. "
+          "A controller output (shivering, a shunt or CIVD opening) that balances a larger heat flow carries that "
+          "error magnified; after each run a check estimates it and warns above 1 % (or this tolerance, if looser), "
+          "naming the tolerance that would meet it (README, Grid). Given cell counts are not changed."},
 
     Param{"circulation", K::Table, "", "", 0, 0, false, "", "Blood properties and arterial supply."},
     Param{"circulation.blood_density", K::Quantity, "kg/m3", "1050 kg/m3", 0, 5000, true, "",

@@ -466,7 +466,7 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
   };
   for (Index g = 0; g < n; ++g) flowMin[g] = totalMin(g);
 
-  const double target = kGridTargetError;
+  const double target = gridTargetError(c);  // run.grid_tolerance / 2
   const double tau = forcingInterval(c);
   // The core segment: body.core_segment, else the root (as Body).
   Index coreIndex = 0;
@@ -554,12 +554,14 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
         const double dr = scale * std::sqrt(48.0 * target);
         cells = static_cast<int>(std::ceil((L.outer - L.inner) / dr - 1e-9));
       }
-      cells = std::clamp(cells, 2, kMaxAutoLayerCells);
+      // The cap grows with a tighter run.grid_tolerance (8 cells at the default), so that tightening still refines.
+      cells = std::clamp(cells, 2, static_cast<int>(std::ceil(kMaxAutoLayerCells * std::sqrt(kGridTargetError / target) - 1e-9)));
       // Transient: cells of at most delta sqrt(target / (C share)), up to kMaxAutoPenetrationCells.
       if (e.layerStepShare[i] * transientError(L.outer - L.inner, e.layerPenetration[i]) > target) {
         const double dr = e.layerPenetration[i] * std::sqrt(target / (kPenetrationErrorConstant * e.layerStepShare[i]));
         cells = std::max(cells, std::min(static_cast<int>(std::ceil((L.outer - L.inner) / dr - 1e-9)),
-                                         kMaxAutoPenetrationCells));
+                                         static_cast<int>(std::ceil(kMaxAutoPenetrationCells *
+                                                                    std::sqrt(kGridTargetError / target) - 1e-9))));
       }
       e.layerNeeded.push_back(cells);
     }
@@ -595,7 +597,8 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
       endFaceTerms(e, ls, s.parent.empty() ? 2 : 1, m, h, surface * s.length, wet, s.surface.endCoat);
     if (s.coat && e.coatEndRadialShare > 0.0) {
       const int cells = static_cast<int>(std::ceil(std::sqrt(e.coatEndRadialShare * kCoatCornerConstant / target) - 1e-9));
-      e.layerNeeded.back() = std::max(e.layerNeeded.back(), std::min(cells, kMaxAutoLayerCells));
+      e.layerNeeded.back() = std::max(e.layerNeeded.back(), std::min(cells, static_cast<int>(std::ceil(
+                                                               kMaxAutoLayerCells * std::sqrt(kGridTargetError / target) - 1e-9))));
     }
     e.ntu = s.vessels.countercurrentConductance > 0.0 && flow[g] > 0.0
                 ? s.vessels.countercurrentConductance / (rc * flow[g])
@@ -701,7 +704,7 @@ void resolveGrid(Case& c) {
           s.axialCells = e.gradedNeeded * f;
         } else if (s.axialGrading > 1.0) {
           int n = 4;
-          while (n < kMaxAutoAxialCells && axialGridError(e, s.length, n, s.axialGrading) > kGridTargetError)
+          while (n < kMaxAutoAxialCells && axialGridError(e, s.length, n, s.axialGrading) > gridTargetError(c))
             n = std::max(n + 1, n * 11 / 10);
           n = std::max(n, std::min(e.axialNeeded, 10));
           s.axialCells = (n + n % 2) * f;
@@ -812,6 +815,17 @@ void resolveGrid(Case& c) {
 
 namespace thermorph {
 
+double segmentGridError(const Case& c, std::size_t g, const SegmentGridEstimate& e) {
+  const SegmentSpec& s = c.segments[g];
+  double err = s.shape == Shape::Sphere ? 0.0 : axialGridError(e, s.length, s.axialCells, s.axialGrading);
+  for (std::size_t i = 0; i < s.layers.size(); ++i) {
+    const double scale = s.shape == Shape::Cone ? 0.5 * (1.0 + s.radiusDistal / s.radiusProximal) : 1.0;
+    err = std::max(err, layerGridError(e, i, s.layers[i].thickness * scale, s.layers[i].cells));
+  }
+  if (s.coat) err = std::max(err, layerGridError(e, s.layers.size(), s.coat->thickness, s.coat->cells));
+  return err;
+}
+
 std::string gridSummary(const Case& c) {
   const std::vector<SegmentGridEstimate> estimates = estimateGrid(c);
   const double tau = estimates.empty() ? 0.0 : estimates.front().forcingInterval;
@@ -838,12 +852,7 @@ std::string gridSummary(const Case& c) {
     std::string axial = s.shape == Shape::Sphere ? "-" : fmt::format("{}{}", s.axialCells, s.axialAuto ? "*" : "");
     if (s.shape != Shape::Sphere && s.axialGrading > 1.0)  // graded: Q after a slash
       axial += fmt::format("/{:g}{}", s.axialGrading, s.gradingAuto ? "*" : "");
-    double err = s.shape == Shape::Sphere ? 0.0 : axialGridError(e, s.length, s.axialCells, s.axialGrading);
-    for (std::size_t i = 0; i < s.layers.size(); ++i) {
-      const double scale = s.shape == Shape::Cone ? 0.5 * (1.0 + s.radiusDistal / s.radiusProximal) : 1.0;
-      err = std::max(err, layerGridError(e, i, s.layers[i].thickness * scale, s.layers[i].cells));
-    }
-    if (s.coat) err = std::max(err, layerGridError(e, s.layers.size(), s.coat->thickness, s.coat->cells));
+    const double err = segmentGridError(c, g, e);
     std::string pen = "-";
     const std::size_t skin = s.layers.empty() ? 0 : s.layers.size() - 1;  // the outermost tissue layer
     if (skin < e.layerPenetration.size() && e.layerPenetration[skin] > 0.0) {

@@ -50,6 +50,9 @@ namespace thermorph {
 //! Target of the automatic grid: estimated relative error of a segment's heat flows, chosen so that the
 //! outputs lie within 1 % of a grid refined 4x (a second-order error falls by 16 there, a first-order one by 4).
 inline constexpr double kGridTargetError = 0.005;
+//! The automatic grid's target for a case: half of run.grid_tolerance (default 0.01: kGridTargetError), the
+//! estimated error of each segment's heat flows against the converged value, so within the tolerance of 4x.
+inline double gridTargetError(const Case& c) { return 0.5 * c.run.gridTolerance; }
 //! Warnings name grids whose estimated error exceeds this.
 inline constexpr double kGridWarnError = 0.01;
 //! Upper limit of automatic axial cells per segment (and of radial cells per layer).
@@ -125,6 +128,10 @@ double axialGridError(const SegmentGridEstimate& e, double length, int nz, doubl
 
 //! Estimates for every segment of a case (uses the environment's surface conductances over the timeline).
 std::vector<SegmentGridEstimate> estimateGrid(const Case& c);
+
+//! Estimated relative error of a segment's heat flows on its cell counts in `c` (the largest of the axial and
+//! layer errors, as `check` lists it); `e` from estimateGrid(c).
+double segmentGridError(const Case& c, std::size_t segment, const SegmentGridEstimate& e);
 
 //! Fill the cell counts the case left out (SegmentSpec::axialAuto, LayerSpec::cellsAuto, CoatSpec::cellsAuto)
 //! and append to c.warnings one line per segment whose given grid is estimated to miss 1 %.

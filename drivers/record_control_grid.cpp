@@ -1,0 +1,227 @@
+#include "drivers/record_control_grid.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <map>
+
+#include <fmt/format.h>
+
+#include "models/grid.hpp"
+
+namespace thermorph {
+namespace {
+
+//! Below this share of its range an output counts as closed: its error is stated relative to that share (an
+//! opening of 0.001 that is 50 % off is 0.0005 of its range, which no reader of the output would see).
+constexpr double kOutputFloor = 0.05;
+
+//! The signal is a layer mean of cell temperatures (the core's innermost layer, a skin layer), whose own
+//! discretisation error adds to the heat flows': kSignalFactor times that layer's estimated error. Measured on
+//! the core in a shell of tests/test_control_grid.cpp against its exact steady state (Incropera et al. 2007,
+//! eqs. 3.28, 3.53): the core temperature's error relative to its rise above the surroundings is 2.0-2.2 times the
+//! estimated error of the layer on 1+1 to 4+4 cells and on the automatic grid; 2.5 keeps a margin.
+constexpr double kSignalFactor = 2.5;
+
+//! A tolerance that meets `needed` or less: rounded down to two significant digits.
+double roundDown(double needed) {
+  if (!(needed > 0.0)) return needed;
+  const double scale = std::pow(10.0, std::floor(std::log10(needed)) - 1.0);
+  return std::floor(needed / scale + 1e-9) * scale;
+}
+
+}  // namespace
+
+ControlGridWatch::ControlGridWatch(const Body& body, const NetworkSystem& system) : body_(body), system_(system) {
+  const Network& net = body.network();
+  const Index nodes = system.nodeCount();
+  // Controllers that drive terms directly, by modulator.
+  std::vector<Index> owner(net.modulators.size(), none);
+  for (Index k = 0; k < net.modulators.size(); ++k) owner[k] = net.modulators[k].control;
+  std::map<Index, Watched> byControl;
+  auto term = [&](Index k, Term t) {
+    if (k == none || owner[k] == none) return;
+    Watched& w = byControl[owner[k]];
+    w.control = owner[k];
+    w.terms.push_back(t);
+  };
+  for (Index i = 0; i < net.advections.size(); ++i)
+    for (Index p = net.advections[i].partsBegin; p < net.advections[i].partsEnd; ++p)
+      term(net.flowParts[p].modulator, {Term::Advection, i, p});
+  for (Index i = 0; i < net.exchanges.size(); ++i)
+    for (Index p = net.exchanges[i].partsBegin; p < net.exchanges[i].partsEnd; ++p)
+      term(net.flowParts[p].modulator, {Term::Exchange, i, p});
+  for (Index i = 0; i < net.sources.size(); ++i) term(net.sources[i].modulator, {Term::Source, i, none});
+  if (byControl.empty()) return;
+
+  // The core segment's group: a signal that reads it (core temperature, mean skin) balances the whole body.
+  const Index groups = net.groups.size();
+  const Index core = body.coreSegment();
+  std::map<std::vector<Index>, std::size_t> loops;
+  for (auto& [c, w] : byControl) {
+    // A chained controller (a CIVD stage) reads the state of the one before it: follow it to the chain's head.
+    Index head = c;
+    while (net.controllers[head].signal.size() == 1 && net.controllers[head].signal[0].first >= nodes)
+      head = net.controllers[head].signal[0].first - nodes;
+    w.head = head;
+    std::vector<Index> signal;
+    w.scope.assign(groups, 0);
+    bool whole = false;
+    for (auto [node, weight] : net.controllers[head].signal) {
+      signal.push_back(node);
+      if (node >= nodes) continue;
+      const Index g = net.nodes[node].group;
+      w.scope[g] = 1;
+      whole = whole || g == core;
+    }
+    std::sort(signal.begin(), signal.end());
+    if (whole) {
+      w.scope.assign(groups, 1);
+      w.scopeName = "the body";
+    } else {
+      for (Index g = 0; g < groups; ++g)
+        if (w.scope[g]) w.scopeName += (w.scopeName.empty() ? "" : ", ") + net.groups[g];
+    }
+    w.loop = loops.emplace(signal, loops.size()).first->second;
+    controllers_.push_back(std::move(w));
+    Estimate e;
+    e.controller = net.controllers[c].name;
+    worst_.push_back(e);
+  }
+  modulators_.assign(net.modulators.size(), 0.0);
+  // eps: the largest estimated error of any segment's heat flows on the grid of this run.
+  const Case& spec = body.spec();
+  const std::vector<SegmentGridEstimate> estimates = estimateGrid(spec);
+  for (std::size_t g = 0; g < estimates.size(); ++g)
+    gridError_ = std::max(gridError_, segmentGridError(spec, g, estimates[g]));
+  // The signal's own reading: the estimated error of each layer its nodes lie in (kSignalFactor above).
+  const std::vector<SegmentMesh>& meshes = body.segments();
+  for (Watched& w : controllers_) {
+    for (auto [node, share] : net.controllers[w.head].signal) {
+      for (std::size_t g = 0; g < meshes.size() && g < spec.segments.size(); ++g) {
+        const SegmentMesh& m = meshes[g];
+        if (node < m.offset || node >= m.offset + static_cast<Index>(m.nz * m.nr)) continue;
+        const std::size_t layer = static_cast<std::size_t>(m.layer[(node - m.offset) % static_cast<Index>(m.nr)]);
+        const SegmentSpec& s = spec.segments[g];
+        if (layer >= s.layers.size()) break;  // the coat
+        const double scale = s.shape == Shape::Cone ? 0.5 * (1.0 + s.radiusDistal / s.radiusProximal) : 1.0;
+        w.signalError = std::max(w.signalError, kSignalFactor * layerGridError(estimates[g], layer,
+                                                                               s.layers[layer].thickness * scale,
+                                                                               s.layers[layer].cells));
+        break;
+      }
+    }
+  }
+  tolerance_ = spec.run.gridTolerance;
+  limit_ = std::max(kGridWarnError, tolerance_);
+}
+
+double ControlGridWatch::effectiveGain(const Watched& w) const {
+  // Along a chain each stage follows the one before with gain 1 (steady); the head's gain carries the signal.
+  const Network& net = body_.network();
+  double gain = net.controllers[w.head].gain;
+  for (Index c = w.control; c != w.head; c = net.controllers[c].signal[0].first - system_.nodeCount())
+    gain *= net.controllers[c].gain;
+  return std::abs(gain);
+}
+
+void ControlGridWatch::observe(double t, std::span<const double> y, std::span<const double> flows) {
+  if (controllers_.empty()) return;
+  const Network& net = body_.network();
+  const Index nodes = system_.nodeCount(), channels = net.channels.size(), groups = net.groups.size();
+  if (flows.size() < groups * channels) return;
+  if (std::all_of(flows.begin(), flows.end(), [](double f) { return f == 0.0; })) return;  // flows not computed
+  system_.modulatorValues(t, y, modulators_);
+  std::vector<char> internal(channels, 0);
+  for (Index ch = 0; ch < channels; ++ch) internal[ch] = net.channels[ch] == "blood" || net.channels[ch] == "conduction";
+  auto weight = [&](Index node) { return net.groupWeights[net.nodes[node].group]; };
+
+  struct Now {
+    bool active = false;
+    double u = 0.0, gain = 0.0, carried = 0.0, balanced = 0.0;
+  };
+  std::vector<Now> now(controllers_.size());
+  std::vector<double> stiffness;
+  for (std::size_t i = 0; i < controllers_.size(); ++i) {
+    const Watched& w = controllers_[i];
+    const Controller& head = net.controllers[w.head];
+    const bool enabled = head.enableSchedule == none || net.schedules->value(head.enableSchedule, t) > 0.5;
+    if (!enabled) continue;
+    double signal = 0.0;
+    for (auto [node, share] : head.signal) signal += share * y[node];
+    const double setpoint = head.setpointSchedule == none ? head.setpoint : net.schedules->value(head.setpointSchedule, t);
+    const double raw = head.bias + head.gain * (signal - setpoint);
+    if (!(raw > head.lower && raw < head.upper)) continue;  // clamped: no grid error of its own
+    Now& n = now[i];
+    n.u = y[nodes + w.control];
+    n.gain = effectiveGain(w);
+    for (const Term& term : w.terms) {
+      switch (term.kind) {
+        case Term::Advection: {
+          const Advection& a = net.advections[term.term];
+          const FlowPart& p = net.flowParts[term.part];
+          n.carried += weight(a.to) * std::abs(p.coefficient * modulators_[p.modulator] * (y[a.from] - y[a.to]));
+          break;
+        }
+        case Term::Exchange: {
+          const BoundaryExchange& e = net.exchanges[term.term];
+          const FlowPart& p = net.flowParts[term.part];
+          n.carried += weight(e.node) * std::abs(p.coefficient * modulators_[p.modulator] * (e.temperature - y[e.node]));
+          break;
+        }
+        case Term::Source: {
+          const HeatSource& s = net.sources[term.term];
+          n.carried += weight(s.node) * std::abs(s.power * std::pow(s.q10, (y[s.node] - s.referenceTemperature) / 10.0) *
+                                                 modulators_[s.modulator]);
+          break;
+        }
+      }
+    }
+    for (Index g = 0; g < groups; ++g) {
+      if (!w.scope[g]) continue;
+      for (Index ch = 0; ch < channels; ++ch)
+        if (!internal[ch]) n.balanced += net.groupWeights[g] * std::max(0.0, -flows[g * channels + ch]);
+    }
+    if (!(n.carried > 0.0) || !(n.balanced > 0.0)) continue;
+    n.active = true;
+    if (stiffness.size() <= w.loop) stiffness.resize(w.loop + 1, 0.0);
+    stiffness[w.loop] += n.gain * n.carried / std::max(std::abs(n.u), 1e-12);
+  }
+  for (std::size_t i = 0; i < controllers_.size(); ++i) {
+    const Now& n = now[i];
+    if (!n.active) continue;
+    const Controller& c = net.controllers[controllers_[i].control];
+    const double eps = gridError_ + controllers_[i].signalError;
+    const double shift = eps * n.balanced / stiffness[controllers_[i].loop];  // dT of the signal [K]
+    const double error = n.gain * shift / std::max(std::abs(n.u), kOutputFloor * (c.upper - c.lower));
+    Estimate& e = worst_[i];
+    if (e.observed && error <= e.error) continue;
+    e.observed = true;
+    e.time = t;
+    e.output = n.u;
+    e.balanced = n.balanced;
+    e.carried = n.carried;
+    e.gridError = eps;
+    e.error = error;
+    e.magnification = eps > 0.0 ? error / eps : 0.0;
+  }
+}
+
+std::vector<std::string> ControlGridWatch::warnings() const {
+  std::vector<std::string> out;
+  for (std::size_t i = 0; i < worst_.size(); ++i) {
+    const Estimate& e = worst_[i];
+    if (!e.observed || !(e.error > limit_)) continue;
+    // Automatic counts bring both parts of eps down in proportion to the tolerance (models/grid.cpp).
+    const double tolerance = roundDown(tolerance_ * limit_ / e.error);
+    out.push_back(fmt::format(
+        "grid: controller {}: its output {:.3g} at t = {:g} s balances {:.3g} W lost by {} with {:.3g} W it carries "
+        "(magnification {:.3g}): the grid's estimated {:.2g} % error in heat flows and in the signal makes an estimated {:.2g} % error "
+        "in this output (more than {:g} %); run.grid_tolerance = {:g} (now {:g}) meets it on automatic cell counts "
+        "(given counts: refine them, or check with `thermorph refine`)",
+        e.controller, e.output, e.time, e.balanced, controllers_[i].scopeName, e.carried, e.magnification,
+        100.0 * e.gridError, 100.0 * e.error, 100.0 * limit_, tolerance, tolerance_));
+  }
+  return out;
+}
+
+}  // namespace thermorph

@@ -1,0 +1,86 @@
+#pragma once
+//! Grid error of controller outputs, estimated after the run from the run's own numbers (README "Grid").
+//!
+//! The automatic grid (models/grid.cpp) bounds the estimated error eps of each segment's heat flows. A controller
+//! output u = clamp(bias + g (T_s - set point)) that balances a heat flow carries that error magnified: a grid error
+//! eps L in the heat balance L of the controller's scope moves the signal T_s by about
+//!     dT_s = eps L / K,   K = sum_j |g_j| dQ/du_j = sum_j |g_j| H_j / |u_j|,
+//! the loop's stiffness: every unclamped output j on the same signal, H_j the heat its modulated terms carry
+//! (shivering power, the heat of the blood through the shunts or the skin perfusion it scales; each term is linear
+//! in u_j, so u_j dQ/du_j = H_j). The output then moves by |g| dT_s, a relative error of
+//!     e_u = |g| eps L / (K max(|u|, 0.05 (upper - lower))).
+//! With one output on the signal this is eps L / H: the shivering that balances five times its power carries five
+//! times the heat flows' error. The body's own passive stiffness (a warmer body loses more) is left out, so e_u is
+//! an upper estimate (measured on the examples: README "Grid"; tests/test_control_grid.cpp against a lumped body
+//! solved exactly). eps is the largest estimated error of any segment's heat flows (models/grid.hpp
+//! segmentGridError) plus 2.5 times that of the layers the signal reads (their cell means; calibrated in the .cpp); L the heat lost to the surroundings (convection, radiation, evaporation, substrate,
+//! respiration, not the blood or conduction between segments) by the scope: the whole body when the signal reads
+//! the core segment (core temperature, mean skin), else the segments whose skin the signal reads.
+//!
+//! Checked at every output where the output's target is inside its limits (a clamped output carries no grid
+//! error of its own); the largest estimate of each controller above max(1 %, run.grid_tolerance) becomes a
+//! warning of the run (stored with the others in result files and sweep rows) naming the tolerance that meets it.
+#include <span>
+#include <string>
+#include <vector>
+
+#include "models/body.hpp"
+#include "solver/assembly.hpp"
+
+namespace thermorph {
+
+class ControlGridWatch {
+ public:
+  ControlGridWatch(const Body& body, const NetworkSystem& system);
+
+  //! True when some controller drives a term (only then are heat flows needed).
+  bool active() const { return !controllers_.empty(); }
+  //! State y (nodes, controls, ...) at time t [s]; `flows` [groups x channels] [W] as RunSummary::flows.
+  void observe(double t, std::span<const double> y, std::span<const double> flows);
+
+  //! The largest estimate of one controller over the observed outputs.
+  struct Estimate {
+    std::string controller;
+    bool observed = false;       //!< unclamped at some output with heat to balance
+    double time = 0.0;           //!< [s] of the largest estimate
+    double output = 0.0;         //!< u there [1]
+    double balanced = 0.0;       //!< L, heat lost by its scope [W]
+    double carried = 0.0;        //!< H, heat its output carries [W]
+    double magnification = 0.0;  //!< e_u / eps [1]
+    double gridError = 0.0;      //!< eps [1]
+    double error = 0.0;          //!< e_u, estimated relative error of the output [1]
+  };
+  const std::vector<Estimate>& estimates() const { return worst_; }
+  //! Relative error above which a warning is issued: max(kGridWarnError, run.grid_tolerance).
+  double limit() const { return limit_; }
+  //! One warning per controller whose estimate exceeds limit().
+  std::vector<std::string> warnings() const;
+
+ private:
+  struct Term {
+    enum Kind { Advection, Exchange, Source } kind;
+    Index term = 0;      //!< index in its network vector
+    Index part = none;   //!< flow part (advection, exchange) or none (source)
+  };
+  struct Watched {
+    Index control = 0;             //!< controller driving the terms
+    Index head = 0;                //!< first controller of a chain (its signal and gain)
+    std::vector<Term> terms;
+    std::vector<char> scope;       //!< per group: in the scope
+    std::string scopeName;
+    std::size_t loop = 0;          //!< index of its signal group
+    double signalError = 0.0;      //!< estimated error of the signal's reading (layer means), magnified
+  };
+  double effectiveGain(const Watched& w) const;
+
+  const Body& body_;
+  const NetworkSystem& system_;
+  std::vector<Watched> controllers_;
+  std::vector<Estimate> worst_;
+  std::vector<double> modulators_;
+  double gridError_ = 0.0;
+  double tolerance_ = 0.01;
+  double limit_ = 0.01;
+};
+
+}  // namespace thermorph

@@ -1,0 +1,127 @@
+// The grid error of a controller output, estimated after the run (drivers/record_control_grid.hpp), against the
+// exact steady state of a body whose heat flows have a closed form: a muscle core with uniform generation in a fat
+// shell, cooled by a fixed film coefficient (Incropera et al. 2007, eqs. 3.28 and 3.53: shell resistance
+// ln(r2/r1)/(2 pi k L), uniform generation T(r) = T_1 + q (r1^2 - r^2)/(4 k)), with proportional thermogenesis
+// u = g (T_set - T_core) of max_power P in the muscle. The core temperature is the mean of the muscle disc:
+//   T_core = T_inf + Q R,  R = 1/(h A) + ln(r2/r1)/(2 pi k_f L) + 1/(8 pi k_m L),  Q = Q_basal + u P,
+// so the steady output solves u (1 + g P R) = g (T_set - T_inf - Q_basal R) exactly (energy balance; the mean of
+// (r1^2 - r^2) over the disc is r1^2/2). Values invented for the test, illustrative.
+#include <catch2/catch.hpp>
+
+#include <cmath>
+#include <cstdio>
+#include <numbers>
+#include <string>
+#include <vector>
+
+#include "drivers/record_control_grid.hpp"
+#include "test_support.hpp"
+
+using namespace thermorph;
+using namespace thermorph::testing;
+
+namespace {
+
+using std::numbers::pi;
+
+constexpr double r1 = 0.02, r2 = 0.03, length = 0.2;  // [m]
+constexpr double kMuscle = 0.5, kFat = 0.2;           // [W/(m K)]
+constexpr double basalHeat = 10000.0;                  // [W/m3] in the muscle
+constexpr double film = 10.0;                          // [W/(m2 K)]
+constexpr double fluid = 293.15, setPoint = 310.15;    // [K]
+constexpr double gain = 0.5, maxPower = 20.0;          // [1/K], [W]
+
+//! The case: `cells` ("" for automatic) on both layers, and extra run keys.
+std::string thermogenesisCase(const std::string& muscleCells, const std::string& fatCells, const std::string& run = "") {
+  auto cells = [](const std::string& n) { return n.empty() ? std::string() : ", cells = " + n; };
+  return "title = \"Core and shell with thermogenesis (illustrative)\"\n[run]\ninitial_temperature = 310.15\n" + run +
+         "\n[control.shivering]\nset_point = " + num(setPoint) + "\ngain = " + num(gain) + "\nmax_power = " +
+         num(maxPower) + "\n[tissues.core]\nrole = \"muscle\"\nconductivity = " + num(kMuscle) +
+         "\ndensity = 1000\nspecific_heat = 3500\nmetabolic_heat = " + num(basalHeat) +
+         "\nperfusion = 0\nq10 = 1\n[tissues.shell]\nrole = \"fat\"\nconductivity = " + num(kFat) +
+         "\ndensity = 900\nspecific_heat = 2300\nmetabolic_heat = 0\nperfusion = 0\nq10 = 1\n[[segments]]\nname = "
+         "\"body\"\nshape = \"cylinder\"\nlength = " + num(length) +
+         "\naxial_cells = 1\nsurface = { ends = \"insulated\" }\nlayers = [{ tissue = \"core\", thickness = " + num(r1) +
+         cells(muscleCells) + " }, { tissue = \"shell\", thickness = " + num(r2 - r1) + cells(fatCells) +
+         " }]\n[environment]\ntemperature = " + num(fluid) + "\nconvection = " + num(film) + "\n";
+}
+
+//! The exact steady output u (Incropera et al. 2007, eqs. 3.28, 3.53; energy balance above).
+double exactOutput() {
+  const double area = 2.0 * pi * r2 * length;
+  const double R = 1.0 / (film * area) + std::log(r2 / r1) / (2.0 * pi * kFat * length) + 1.0 / (8.0 * pi * kMuscle * length);
+  const double basal = basalHeat * pi * r1 * r1 * length;
+  return gain * (setPoint - fluid - basal * R) / (1.0 + gain * maxPower * R);
+}
+
+struct Measured {
+  double output = 0.0;    //!< u of the run
+  double estimate = 0.0;  //!< estimated relative error of u
+  double magnification = 0.0;
+  std::vector<std::string> warnings;
+};
+
+Measured steadyOutput(const std::string& toml) {
+  Body body(loadCaseFromString(toml, "core.toml"));
+  RunSummary s = runSteady(body, silentRun());
+  REQUIRE(s.complete);
+  REQUIRE(s.controls.size() == 1);
+  NetworkSystem system(body.network(), NetworkSystem::Mode::Steady);
+  ControlGridWatch watch(body, system);
+  REQUIRE(watch.active());
+  std::vector<double> y = s.finalState;
+  y.insert(y.end(), s.controls.begin(), s.controls.end());
+  watch.observe(s.finalTime, y, s.flows);
+  REQUIRE(watch.estimates().size() == 1);
+  REQUIRE(watch.estimates()[0].observed);
+  return {s.controls[0], watch.estimates()[0].error, watch.estimates()[0].magnification, s.runWarnings};
+}
+
+}  // namespace
+
+TEST_CASE("The estimated grid error of a thermogenesis output stays above its error against the exact steady state",
+          "[control_grid]") {
+  const double exact = exactOutput();
+  REQUIRE(exact > 0.02);
+  REQUIRE(exact < 0.2);  // unclamped, and balancing a loss larger than itself (the magnification)
+  struct Grid {
+    std::string muscle, fat;
+  };
+  std::vector<double> measured;
+  for (const Grid& g : {Grid{"1", "1"}, Grid{"2", "1"}, Grid{"2", "2"}, Grid{"4", "4"}, Grid{"", ""}}) {
+    const Measured m = steadyOutput(thermogenesisCase(g.muscle, g.fat));
+    const double error = std::abs(m.output - exact) / exact;
+    measured.push_back(error);
+    std::printf("[control_grid] cells %s+%s: u = %.6f (exact %.6f): error %.3e, estimate %.3e (magnification %.3g)\n",
+                g.muscle.empty() ? "auto" : g.muscle.c_str(), g.fat.empty() ? "auto" : g.fat.c_str(), m.output, exact,
+                error, m.estimate, m.magnification);
+    INFO("cells " << g.muscle << "+" << g.fat << ": u " << m.output << " exact " << exact);
+    // The estimate stays above the measured error ...
+    CHECK(m.estimate >= error);
+    // ... and is not empty talk: within a factor 30 of it wherever the error is visible at all.
+    if (error > 1e-4) CHECK(m.estimate <= 30.0 * error);
+    // It sees that the output balances more than itself: the loss Q = Q_basal + u P over the shivering u P.
+    const double basal = basalHeat * pi * r1 * r1 * length;
+    CHECK(m.magnification >= 0.99 * (basal + exact * maxPower) / (exact * maxPower) * (1.0 - 1e-2));
+  }
+  // The error falls with refinement (second order: 1+1 -> 2+2 cells about 4x).
+  CHECK(measured[2] < 0.5 * measured[0]);
+}
+
+TEST_CASE("A controller output whose estimated grid error exceeds 1 % is a warning of the run; a tighter "
+          "run.grid_tolerance meets it",
+          "[control_grid]") {
+  const Measured coarse = steadyOutput(thermogenesisCase("1", "1"));
+  REQUIRE(coarse.estimate > 0.01);
+  bool found = false;
+  for (const std::string& w : coarse.warnings) found = found || w.rfind("grid: controller shivering:", 0) == 0;
+  CHECK(found);
+  // Automatic cells: the default tolerance, then the one the warning names.
+  const Measured automatic = steadyOutput(thermogenesisCase("", ""));
+  const Measured tight = steadyOutput(thermogenesisCase("", "", "grid_tolerance = 0.002"));
+  std::printf("[control_grid] automatic cells: estimate %.3e at grid_tolerance 0.01, %.3e at 0.002\n", automatic.estimate,
+              tight.estimate);
+  CHECK(tight.estimate < automatic.estimate);
+  CHECK(tight.estimate <= 0.01);
+  for (const std::string& w : tight.warnings) CHECK(w.find("grid: controller") == std::string::npos);
+}
