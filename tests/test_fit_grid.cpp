@@ -213,3 +213,40 @@ TEST_CASE("Grid check of a pin fin fitted on 6 axial cells: the predicted shift 
     CHECK(g.warnings.size() == 2);
   }
 }
+
+TEST_CASE("Observations at a position follow the fin's exact profile: a layer and the surface of the pin fin at "
+          "0.37 L and 0.71 L", "[fit][gridcheck]") {
+  // Adiabatic-tip fin (Incropera et al. 2007, Table 3.4 case B): theta(x) = theta_b cosh(m (L - x)) / cosh(m L), so
+  // theta(0.37 L) / theta(0.71 L) = cosh(0.63 m L) / cosh(0.29 m L), whatever the base temperature (m = sqrt(4 h /
+  // (k D)) = 224.2 1/m, L = 2 cm; the 1-D fin holds to about 0.2 % at Bi = h r / k = 6e-3). The observation
+  // interpolates linearly between the two cell centres that bracket the position. Measured: 0.81 %, 0.22 % and
+  // 0.13 % off on 12, 48 and 192 cells (the last near the 1-D limit). The nearest cell's centre (the rule before
+  // 2026-12-03) would put the exact profile's ratio 2.8 %, 5.9 % and 0.7 % off on these grids, erratically.
+  FitProblem pb = pinProblem({});
+  pb.data.series.clear();
+  for (const char* name : {"segments.pin.temperature.copper@0.37", "segments.pin.temperature.copper@0.71",
+                           "segments.pin.surface_temperature@0.37", "segments.pin.surface_temperature@0.71"})
+    pb.data.series.push_back(series(name, 0.01));
+  const double m = std::sqrt(4.0 * 5000.0 / (398.0 * 0.001)), L = 0.02, tInf = 10.0;
+  const double exact = std::cosh(0.63 * m * L) / std::cosh(0.29 * m * L);
+  std::vector<double> errors;
+  for (int n : {2, 8, 32}) {
+    FitProblem refined = pb;
+    refined.overrides.push_back(fmt::format("run.grid_refinement={}", n));
+    const Evaluation e = evaluateModel(refined, std::vector<double>{5000.0, 398.0});
+    REQUIRE(e.ok);
+    for (std::size_t s = 0; s < 4; s += 2) {
+      const double ratio = (e.predictions[s * 10 + 9] - tInf) / (e.predictions[(s + 1) * 10 + 9] - tInf);
+      fmt::print("Fin profile, {} on {} cells: theta(0.37 L)/theta(0.71 L) {:.6f}, exact {:.6f}, error {:.2e}\n",
+                 s == 0 ? "layer" : "surface", 6 * n, ratio, exact, ratio / exact - 1.0);
+      errors.push_back(std::abs(ratio / exact - 1.0));
+    }
+  }
+  // 12 cells: within 1.2 %; 48: 0.3 %; 192: 0.2 %, the 1-D limit (both kinds).
+  CHECK(errors[0] < 0.012);
+  CHECK(errors[1] < 0.012);
+  CHECK(errors[2] < 3e-3);
+  CHECK(errors[3] < 3e-3);
+  CHECK(errors[4] < 2e-3);
+  CHECK(errors[5] < 2e-3);
+}

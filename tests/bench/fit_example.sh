@@ -38,10 +38,11 @@ with h5py.File(sys.argv[1]) as f:
     layer = f["segments/ears/layer"][:]
     vol = f["segments/ears/volume"][:]
     axial = f["segments/ears/axial"][:]
-    iz = int(np.argmin(np.abs(axial - 0.5 * (axial[-1] + axial[0]))))
+    # the skin layer at mid-length as `thermorph fit` reads segments.ears.temperature.skin@0.5: its volume mean in
+    # the two axial cells whose centres bracket 0.5 L, interpolated linearly (drivers/observed.cpp)
     cells = np.where(layer == layers.index("skin"))[0]
-    w = vol[iz, cells]
-    ear = (T[:, iz, cells] * w).sum(axis=1) / w.sum()
+    mean = (T[:, :, cells] * vol[None, :, cells]).sum(axis=2) / vol[:, cells].sum(axis=1)[None, :]
+    ear = np.array([np.interp(0.5 * (axial[-1] + axial[0]), axial, row) for row in mean])
     met = f["body/heat_flow/metabolism"][:]
     if "shivering" in f["body/heat_flow"]:
         met = met + f["body/heat_flow/shivering"][:]
