@@ -34,10 +34,10 @@ with h5py.File(sys.argv[1]) as f:
     T = f["segments/ears/temperature"][:]
     layers = [l.decode() if isinstance(l, bytes) else l for l in f["segments/ears/layer"].attrs["layer_names"]]
     layer, vol, axial = f["segments/ears/layer"][:], f["segments/ears/volume"][:], f["segments/ears/axial"][:]
-    iz = int(np.argmin(np.abs(axial - 0.5 * (axial[-1] + axial[0]))))
+    # skin@0.5 as `thermorph fit` reads it: linear between the two cells whose centres bracket mid-length
     cells = np.where(layer == layers.index("skin"))[0]
-    w = vol[iz, cells]
-    ear = (T[:, iz, cells] * w).sum(axis=1) / w.sum()
+    mean = (T[:, :, cells] * vol[None, :, cells]).sum(axis=2) / vol[:, cells].sum(axis=1)[None, :]
+    ear = np.array([np.interp(0.5 * (axial[-1] + axial[0]), axial, row) for row in mean])
     met = f["body/heat_flow/metabolism"][:]
     if "shivering" in f["body/heat_flow"]:
         met = met + f["body/heat_flow/shivering"][:]
