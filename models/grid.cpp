@@ -192,21 +192,23 @@ std::vector<double> crossingShares(Shape shape, double width, const std::vector<
       default: return 2.0 * pi * r;
     }
   };
-  std::vector<double> rc, dr, k, beta, vol;
-  for (const Layer& L : ls) {
+  // Sized once (this runs for every segment of every case load, sweep runs included).
+  const std::size_t n = ls.size() * perLayer;
+  std::vector<double> rc(n), dr(n), k(n), beta(n), vol(n);
+  for (std::size_t i = 0, at = 0; i < ls.size(); ++i) {
+    const Layer& L = ls[i];
     const double d = (L.outer - L.inner) / perLayer;
     const double kk = L.coat && wet ? L.kWet : L.k;
     const double b = L.coat ? 0.0 : L.perfusion * rhoCBlood + kk * finM2;
-    for (int j = 0; j < perLayer; ++j) {
+    for (int j = 0; j < perLayer; ++j, ++at) {
       const double r0 = L.inner + j * d, r1 = r0 + d;
-      rc.push_back(0.5 * (r0 + r1));
-      dr.push_back(d);
-      k.push_back(kk);
-      beta.push_back(b);
-      vol.push_back(shellVolume(shape, width, 1.0, r0, r1));
+      rc[at] = 0.5 * (r0 + r1);
+      dr[at] = d;
+      k[at] = kk;
+      beta[at] = b;
+      vol[at] = shellVolume(shape, width, 1.0, r0, r1);
     }
   }
-  const std::size_t n = rc.size();
   // Conductance between cells j and j + 1, and from the last cell through the surface to the surroundings.
   std::vector<double> g(n, 0.0);
   for (std::size_t j = 0; j + 1 < n; ++j) {

@@ -130,6 +130,9 @@ class NetworkSystem {
   }
   mutable std::vector<double> faceGuess_;  //!< last face temperatures, Newton start values
   mutable std::vector<double> faceNodeTemperature_, faceSlope_;  //!< node temperature and dT_s/dT_n there
+  //! Face temperature of the last evaluation of the face's heats in a remembered solve, and dq/dT_s there (the
+  //! secant of dq/dT_s between two evaluations estimates q'' for the error of a single Newton step).
+  mutable std::vector<double> faceEvalTemperature_, faceEvalSlope_;
   mutable std::vector<double> scratchHeat_, scratchDerivative_, modulators_;
   mutable std::vector<double> scheduleValues_;  //!< schedule factor of each modulator at the last evaluation
   std::optional<double> frozenTime_;
