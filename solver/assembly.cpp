@@ -329,14 +329,25 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
   // d m_k / d u_control = schedule(t) for a part whose modulator has a control (evaluated just above).
   auto scheduleOf = [&](Index modulator) { return scheduleValues_[modulator]; };
   // Each entry is found by a search in its column (slot()), in the order in which the terms were once read from
-  // slot tables (the same sums in the same order: the same values).
-  auto add = [&](Index row, Index col, double d) { values[slot(row, col)] += d; };
+  // slot tables (the same sums in the same order: the same values). A small system records the positions at its
+  // first call and replays them afterwards (the same positions in the same order).
+  const bool replay = !slotSequence_.empty();
+  const bool record = !replay && pattern_.size <= kSlotReplayLimit;
+  std::size_t cursor = 0;
+  std::vector<Slot> recorded;  // kept only when the whole call completes
+  auto position = [&](Index row, Index col) -> Slot {
+    if (replay) return slotSequence_[cursor++];
+    const Slot s = slot(row, col);
+    if (record) recorded.push_back(s);
+    return s;
+  };
+  auto add = [&](Index row, Index col, double d) { values[position(row, col)] += d; };
   // Group-energy rows (transient only): the flow of `channel` into the group of `node`; skipped where there is
   // no such row (or no such column: a source without a control).
   auto toGroup = [&](Index node, Index channel, Index col, double d) {
     if (!transient) return;
     const Index r = groupRowOf(node);
-    if (r != none && col != none) values[slot(r + channel, col)] += d;
+    if (r != none && col != none) values[position(r + channel, col)] += d;
   };
   for (const Conductance& c : network_.conductances) {
     const double G = c.conductance;
@@ -424,6 +435,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     add(nodes_ + kk, nodes_ + kk, -scale);
     for (auto [node, weight] : c.signal) add(nodes_ + kk, node, active ? scale * c.gain * weight : 0.0);
   }
+  if (record) slotSequence_ = std::move(recorded);
   if (transient) {
     // Row scaling by 1/C for node rows.
     for (Index col = 0; col < pattern_.size; ++col)

@@ -101,6 +101,11 @@ class NetworkSystem {
   //! entries this way; no per-term tables of positions are kept). 32 bits (the constructor checks that they suffice).
   using Slot = std::uint32_t;
   Slot slot(Index row, Index col) const;
+  //! The positions jacobian() found, in the order it adds its terms (the order is fixed by the network): recorded
+  //! at the first call and replayed at later ones instead of searching, for systems of up to kSlotReplayLimit
+  //! states only (4 bytes per term, about 60 bytes per node; large bodies keep the searches and their memory).
+  static constexpr Index kSlotReplayLimit = 5000;
+  mutable std::vector<Slot> slotSequence_;
   double partsValue(Index begin, Index end, std::span<const double> m) const;
   double controlTarget(const Controller& c, double time, std::span<const double> state, bool* active) const;
   Index controlColumn(Index modulator) const;  //!< state column of the modulator's control, or none
