@@ -638,7 +638,13 @@ void validateTree(const CaseReader& reader, const toml::array& segArray, const C
 
 //! Provenance: SHA-256 of the case text and of every file the case (overrides applied) reads.
 void recordInputs(Case& c, const toml::table& root, const std::string& text) {
-  c.inputs.push_back({"case", c.sourceFile, sha256Hex(text)});
+  // Sweeps, fits and sensitivity runs load the same text once per run: its digest is kept per thread.
+  thread_local std::string hashedText, hash;
+  if (hash.empty() || text != hashedText) {
+    hash = sha256Hex(text);
+    hashedText = text;
+  }
+  c.inputs.push_back({"case", c.sourceFile, hash});
   if (auto weather = root.at_path("environment.weather").value<std::string>()) {
     // Resolved as readWeather does (relative to the case file's folder); it has just been read successfully.
     std::filesystem::path file(*weather);

@@ -304,13 +304,17 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
   for (Index f = 0; f < network_.faces.size(); ++f) {
     Index node = network_.faces[f].node;
     solveFace(f, time, T[node], scratchHeat_, scratchDerivative_);
+    // The node's sum in a register (the same additions in the same order; out[node] is none of the energy rows
+    // written meanwhile): a store and reload of out[node] per channel was the longest chain of the evaluation.
+    double sum = out[node];
     for (Index c = 0; c < channels_; ++c) {
-      out[node] += scratchHeat_[c];
+      sum += scratchHeat_[c];
       if (transient) {
         acc[c] += nodeWeight_[node] * scratchHeat_[c];
         toGroup(node, c, scratchHeat_[c]);
       }
     }
+    out[node] = sum;
   }
   for (Index k = 0; k < controls_; ++k) {
     const Controller& c = network_.controllers[k];

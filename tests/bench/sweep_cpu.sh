@@ -6,8 +6,8 @@
 #
 # Per study and executable: CPU (perf stat task-clock) of `sweep STUDY -j 1 --scale body=1:1:(RUNS+1)` minus that
 # of a one-run sweep, divided by RUNS, so start-up and the sweep table are not counted. The executables alternate
-# within each round (same load); the lowest of ROUNDS rounds is printed. Environment: RUNS (default 20),
-# ROUNDS (default 3). Studies: the frozen copies in tests/bench/studies/. Needs perf.
+# within each round (same load); the lowest and the median of ROUNDS rounds are printed. Environment: RUNS
+# (default 20), ROUNDS (default 3). Studies: the frozen copies in tests/bench/studies/. Needs perf.
 set -euo pipefail
 here=$(cd "$(dirname "$0")" && pwd)
 RUNS=${RUNS:-20}
@@ -19,7 +19,7 @@ studies=(hare_ears diving_seal wading_bird quadruped)
 cpu() {  # milliseconds of task-clock of one command
   perf stat -e task-clock -x, "$@" 2>&1 >/dev/null | awk -F, '/task-clock/ {print $1}'
 }
-declare -A best
+declare -A best all
 for ((r = 1; r <= ROUNDS; ++r)); do
   for c in "${studies[@]}"; do
     for ne in "$@"; do
@@ -28,15 +28,20 @@ for ((r = 1; r <= ROUNDS; ++r)); do
       many=$(cpu "$e" sweep "$here/studies/$c.toml" -j 1 -q -o "$work/$n.h5" --scale "body=1:1:$((RUNS + 1))")
       v=$(echo "($many - $one) / $RUNS" | bc -l)
       k="$n:$c"
+      all[$k]="${all[$k]:-} $v"
       if [ -z "${best[$k]:-}" ] || (($(echo "$v < ${best[$k]}" | bc -l))); then best[$k]=$v; fi
     done
   done
 done
-echo "Per-run CPU in a one-thread sweep [ms], lowest of $ROUNDS rounds; $(date -u '+%Y-%m-%d %H:%M UTC'); load $(cut -d' ' -f1-3 /proc/loadavg)"
+median() { tr ' ' '\n' | grep . | sort -g | awk '{v[NR] = $1} END {print (NR % 2 ? v[(NR + 1) / 2] : (v[NR / 2] + v[NR / 2 + 1]) / 2)}'; }
+echo "Per-run CPU in a one-thread sweep [ms], lowest / median of $ROUNDS rounds; $(date -u '+%Y-%m-%d %H:%M UTC'); load $(cut -d' ' -f1-3 /proc/loadavg)"
 printf "| study |"; for ne in "$@"; do printf " %s |" "${ne%%=*}"; done; echo
 printf "|---|"; for _ in "$@"; do printf -- "---:|"; done; echo
 for c in "${studies[@]}"; do
   printf "| %s |" "$c"
-  for ne in "$@"; do printf " %.2f |" "${best[${ne%%=*}:$c]}"; done
+  for ne in "$@"; do
+    k="${ne%%=*}:$c"
+    printf " %.2f / %.2f |" "${best[$k]}" "$(echo "${all[$k]}" | median)"
+  done
   echo
 done
