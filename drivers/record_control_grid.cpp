@@ -216,8 +216,8 @@ std::vector<std::string> ControlGridWatch::warnings() const {
     out.push_back(fmt::format(
         "grid: controller {}: its output {:.3g} at t = {:g} s balances {:.3g} W lost by {} with {:.3g} W it carries "
         "(magnification {:.3g}): the grid's estimated {:.2g} % error in heat flows and in the signal makes an estimated {:.2g} % error "
-        "in this output (more than {:g} %); run.grid_tolerance = {:g} (now {:g}) meets it on automatic cell counts "
-        "(given counts: refine them, or check with `thermorph refine`)",
+        "in this output (more than {:g} %); about run.grid_tolerance = {:g} (now {:g}) meets it on automatic cell "
+        "counts (they change in steps: rerun to see; given counts: refine them, or check with `thermorph refine`)",
         e.controller, e.output, e.time, e.balanced, controllers_[i].scopeName, e.carried, e.magnification,
         100.0 * e.gridError, 100.0 * e.error, 100.0 * limit_, tolerance, tolerance_));
   }
