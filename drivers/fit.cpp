@@ -78,6 +78,8 @@ Index pinGrid(std::string& caseText, const std::string& casePath, const std::vec
   if (!mine || !theirs) return nodes;
   auto copyCells = [](toml::table& to, const toml::table& from) {
     if (auto cells = from["cells"].value<std::int64_t>()) to.insert_or_assign("cells", *cells);
+    if (auto grading = from["grading"].value<double>(); grading && *grading > 1.0)
+      to.insert_or_assign("grading", *grading);  // a graded skin (layers[].grading)
   };
   for (toml::node& node : *mine) {
     toml::table* segment = node.as_table();

@@ -108,8 +108,8 @@ Body::CrossSection Body::crossSection(const SegmentSpec& s, double scale) {
   cs.bounds.push_back(0.0);
   double r = 0.0;
   for (const LayerSpec& l : s.layers) {
-    double dr = l.thickness * scale / l.cells;
-    for (int i = 0; i < l.cells; ++i) cs.bounds.push_back(r + (i + 1) * dr);
+    const std::vector<double> edges = l.cellEdges(l.thickness * scale);  // uniform or graded (layers[].grading)
+    for (std::size_t i = 1; i < edges.size(); ++i) cs.bounds.push_back(r + edges[i]);
     r += l.thickness * scale;
     cs.bounds.back() = r;
   }

@@ -56,6 +56,31 @@ std::vector<double> SegmentSpec::axialEdges() const {
   return edges;
 }
 
+std::vector<double> LayerSpec::cellEdges(double t) const {
+  const int n = std::max(cells, 1);
+  std::vector<double> edges(static_cast<std::size_t>(n) + 1);
+  if (!(grading > 1.0)) {
+    for (int i = 0; i <= n; ++i) edges[static_cast<std::size_t>(i)] = t * i / n;
+  } else {
+    // Distance from the outer face d(y) = t (Q^y - 1) / (Q - 1), y = 1 - i / n: the thinnest cell outermost.
+    const double lnQ = std::log(grading), denominator = std::expm1(lnQ);
+    for (int i = 0; i < n; ++i) edges[static_cast<std::size_t>(i)] = t - t * std::expm1(lnQ * (n - i) / n) / denominator;
+    edges[0] = 0.0;
+  }
+  edges.back() = t;
+  return edges;
+}
+
+double LayerSpec::largestCell(double t) const {
+  const std::vector<double> e = cellEdges(t);
+  return e[1] - e[0];
+}
+
+double LayerSpec::outermostCell(double t) const {
+  const std::vector<double> e = cellEdges(t);
+  return e[e.size() - 1] - e[e.size() - 2];
+}
+
 std::vector<double> SegmentSpec::axialLengths() const {
   if (shape == Shape::Sphere) return {1.0};
   const int nz = std::max(axialCells, 1);
@@ -304,6 +329,8 @@ SegmentSpec readSegment(const CaseReader& reader, const Case& c, const toml::tab
     if (props.isCoat()) l.fail("tissue", fmt::format("\"{}\" is a coat material; give it as coat = {{ material = \"{}\", ... }}", layer.tissue, layer.tissue));
     layer.cells = l.integer("cells");
     layer.cellsAuto = !l.has("cells");
+    layer.grading = l.number("grading");
+    layer.gradingAuto = !l.has("grading");
     if (i > 0 || l.has("thickness")) layer.thickness = l.quantity("thickness");
     s.layers.push_back(layer);
   }
@@ -970,8 +997,11 @@ std::string resolvedCaseToml(const Case& c) {
     }
     if (s.shape == Shape::Plate) t.insert("width", s.width);
     toml::array layers;
-    for (const LayerSpec& l : s.layers)
-      layers.push_back(toml::table{{"tissue", l.tissue}, {"thickness", l.thickness}, {"cells", l.cells}});
+    for (const LayerSpec& l : s.layers) {
+      toml::table layer{{"tissue", l.tissue}, {"thickness", l.thickness}, {"cells", l.cells}};
+      if (l.grading > 1.0) layer.insert("grading", l.grading);  // uniform layers as before
+      layers.push_back(layer);
+    }
     t.insert("layers", layers);
     if (s.coat) t.insert("coat", toml::table{{"material", s.coat->material}, {"thickness", s.coat->thickness}, {"cells", s.coat->cells}});
     toml::table surface = surfaceToml(s.surface, s.shape);

@@ -35,6 +35,15 @@ struct LayerSpec {
   double thickness = 0.0;  //!< radial thickness [m]; a cylinder's or sphere's first layer: its radius
   int cells = 1;           //!< radial cells in this layer
   bool cellsAuto = false;  //!< `cells` not given: chosen by resolveGrid (models/grid.hpp)
+  //! Radial cells graded geometrically towards the layer's outer face: the ratio Q of the mapping's cell thickness
+  //! at the inner face to that at the outer face (1: uniform), as axial_grading along a segment.
+  double grading = 1.0;
+  bool gradingAuto = true;  //!< `grading` not given: chosen with `cells` when both are left out
+  //! Offsets of the cell faces from the layer's inner face, cells + 1 values from 0 to `thickness`.
+  std::vector<double> cellEdges(double thickness) const;
+  //! The thickest (innermost) and thinnest (outermost) cell of the layer at `thickness`.
+  double largestCell(double thickness) const;
+  double outermostCell(double thickness) const;
 };
 
 //! Optional fur or feather coat outside the outermost tissue layer.

@@ -154,6 +154,13 @@ constexpr std::array params = {
           "Layer thickness; the first layer of a sphere or cylinder: its radius; of a plate: its half-thickness. "
           "The first layer's thickness may be omitted when the segment's radius or thickness is given."},
     Param{"segments[].layers[].cells", K::Integer, "", "1", 1, 100000, false, "", "Radial cells in the layer; leave it out to have it chosen from the layer's perfusion length and radius and, under surroundings that events step, the thermal penetration depth sqrt(alpha tau) (README, Grid)."},
+    Param{"segments[].layers[].grading", K::Number, "", "1", 1, 1e6, false, "",
+          "Radial cells of the layer graded geometrically towards its outer face: the ratio Q of the cell thickness at "
+          "the inner face to that at the outer face of the mapping d(y) = t (Q^y - 1) / (Q - 1) (d the distance from "
+          "the outer face, t the layer's thickness) whose cell faces are d(1 - i / cells). 1 is uniform. Refinement "
+          "multiplies cells and keeps Q, as axial_grading. Left out together with cells, it is chosen with them: "
+          "graded in the outermost layer of a bare child on a coated parent whose skin's Biot length k/h is shorter "
+          "than its cells there, uniform elsewhere (README, Grid)."},
     Param{"segments[].coat", K::Table, "", "", 0, 0, false, "", "Optional fur or feather coat: `{ material, thickness, cells }`."},
     Param{"segments[].coat.material", K::Text, "", "fur", 0, 0, false, "", "Coat material (fur, feathers or a [tissues.NAME])."},
     Param{"segments[].coat.thickness", K::Quantity, "m", "", 0, 1, true, "", "Coat thickness."},

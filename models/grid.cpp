@@ -368,8 +368,12 @@ double axialGridError(const SegmentGridEstimate& e, double length, int nz, doubl
   return std::max({fin, ends, steadyEnds, exchangerError(e.ntu, nz), childStream});
 }
 
-double layerGridError(const SegmentGridEstimate& e, std::size_t i, double thickness, int cells) {
-  const double dr = thickness / std::max(cells, 1);
+double layerGridError(const SegmentGridEstimate& e, std::size_t i, double thickness, int cells, double grading) {
+  // Graded cells (layers[].grading): the thickest, innermost cell sets the error of the smooth profile.
+  LayerSpec layer;
+  layer.cells = std::max(cells, 1);
+  layer.grading = grading;
+  const double dr = layer.largestCell(thickness);
   double err = std::max(e.layerWeight.at(i) * radialError(dr, e.layerScale.at(i)),
                         i < e.layerCoreScale.size() ? radialError(dr, e.layerCoreScale[i]) : 0.0);
   if (i < e.layerPenetration.size()) err = std::max(err, e.layerStepShare[i] * transientError(dr, e.layerPenetration[i]));
@@ -663,13 +667,9 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
     // the outermost tissue layer (where the surface condition jumps), on as many graded cells as the estimate
     // asks (the longer distal cells count in the exchanger's and the ends' errors). Measured on the wading bird's
     // leg: DEVELOPERS.md "Graded axial cells".
-    if (!e.waterLineParent.empty() && e.appendage && !s.layers.empty()) {
-      // The corner is two-dimensional: the outermost tissue layer, where the surface condition jumps, also gets
-      // four times its radial cells (wading bird's leg, skin 2 / 4 / 8 cells on 550 graded axial cells: knee
-      // conduction 0.1795 / 0.1813 / 0.1820 W, observed order 1.4).
-      int& skin = e.layerNeeded[s.layers.size() - 1];
-      skin = std::min(4 * skin, kMaxAutoPenetrationCells);
-      const double corner = 0.1 * s.layers.back().thickness;
+    // The smallest Q of 10, 30, 100, 300, 1000 whose proximal cell is at most `corner`, on as many graded cells as
+    // the estimate asks (the longer distal cells count in the exchanger's and the ends' errors).
+    auto gradeTowardsJunction = [&](double corner) {
       for (double q : {10.0, 30.0, 100.0, 300.0, 1000.0}) {
         int cells = 4;
         while (cells < kMaxAutoAxialCells && axialGridError(e, s.length, cells, q) > target)
@@ -679,7 +679,45 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
         cells = std::min(cells, kMaxAutoAxialCells);
         e.gradingNeeded = q;
         e.gradedNeeded = cells;
-        if (s.length * std::expm1(std::log(q) / cells) / std::expm1(std::log(q)) <= corner) break;
+        if (s.length * std::expm1(std::log(q) / cells) / std::expm1(std::log(q)) <= corner) return;
+      }
+      // Q = 1000 is not enough on these cells: more of them.
+      const double lnQ = std::log(e.gradingNeeded);
+      while (e.gradedNeeded < kMaxAutoAxialCells && s.length * std::expm1(lnQ / e.gradedNeeded) / std::expm1(lnQ) > corner)
+        e.gradedNeeded = std::min(kMaxAutoAxialCells, e.gradedNeeded + std::max(2, e.gradedNeeded / 10 * 2));
+    };
+    if (!e.waterLineParent.empty() && e.appendage && !s.layers.empty()) {
+      // The corner is two-dimensional: the outermost tissue layer, where the surface condition jumps, also gets
+      // four times its radial cells (wading bird's leg, skin 2 / 4 / 8 cells on 550 graded axial cells: knee
+      // conduction 0.1795 / 0.1813 / 0.1820 W, observed order 1.4).
+      int& skin = e.layerNeeded[s.layers.size() - 1];
+      skin = std::min(4 * skin, kMaxAutoPenetrationCells);
+      gradeTowardsJunction(0.1 * s.layers.back().thickness);
+    }
+    // A bare child on a coated parent: the parent's warm skin under its coat meets the child's skin at the rim of
+    // the junction. Where the child's skin has a Biot length k/h shorter than its thickness (in water), its
+    // surface sits near the water's temperature a few k/h from the rim, and the heat across that corner converges
+    // only once the cells there are a fraction of k/h in both directions (an invented swimmer's feet, k/h =
+    // 0.059 mm, skin 1.5 mm: uniform cells 26 % low; kBiotCornerFraction). Axial cells graded towards the junction
+    // and the skin's radial cells graded towards its surface put cells of that size at the corner only.
+    const double biot = e.junctionBiotLength;
+    if (e.waterLineParent.empty() && biot > 0.0 && e.appendage && !s.layers.empty() && s.shape != Shape::Sphere &&
+        biot < s.layers.back().thickness) {
+      const double corner = kBiotCornerFraction * biot;
+      if (s.length / e.axialNeeded > corner) gradeTowardsJunction(corner);
+      int& skin = e.layerNeeded[s.layers.size() - 1];
+      LayerSpec graded;
+      graded.cells = skin;
+      if (s.layers.back().thickness / skin > corner) {
+        graded.cells = std::max(skin, kBiotCornerSkinCells);
+        for (double q : {10.0, 30.0, 100.0, 300.0, 1000.0}) {
+          graded.grading = q;
+          if (graded.outermostCell(s.layers.back().thickness) <= corner) break;
+        }
+        while (graded.cells < kMaxAutoPenetrationCells && graded.outermostCell(s.layers.back().thickness) > corner)
+          ++graded.cells;
+        skin = graded.cells;
+        e.skinGradingNeeded = graded.grading;
       }
     }
     out.push_back(e);
@@ -764,16 +802,17 @@ void resolveGrid(Case& c) {
           "coat's surface over the whole run",
           s.name, e.coatLeavesWater));
     // Radial cells per layer, the coat last.
-    auto radial = [&](std::size_t i, int& cells, bool automatic, const std::string& what, double thickness) {
+    auto radial = [&](std::size_t i, int& cells, bool automatic, const std::string& what, double thickness,
+                      double grading) {
       if (automatic) {
         cells = e.layerNeeded[i] * f;
         return;
       }
       cells *= f;
-      const double err = layerGridError(e, i, thickness, cells);
+      const double err = layerGridError(e, i, thickness, cells, grading);
       if (err > kGridWarnError) {
         int need = cells;
-        while (need < 100000 && layerGridError(e, i, thickness, need) > kGridWarnError) ++need;
+        while (need < 100000 && layerGridError(e, i, thickness, need, grading) > kGridWarnError) ++need;
         std::string scale = fmt::format("length scale {:.3g} mm", 1e3 * e.layerScale[i]);
         if (e.layerStepShare[i] * transientError(thickness / cells, e.layerPenetration[i]) >
             radialError(thickness / cells, e.layerScale[i]))
@@ -785,22 +824,29 @@ void resolveGrid(Case& c) {
             s.name, what, cells, 100.0 * err, scale, need));
       }
     };
+    // The skin graded towards a Biot corner (estimateGrid) when neither its cells nor its grading are given.
+    if (!s.layers.empty() && s.layers.back().cellsAuto && s.layers.back().gradingAuto && e.skinGradingNeeded > 1.0)
+      s.layers.back().grading = e.skinGradingNeeded;
     const double scale = s.shape == Shape::Cone ? 0.5 * (1.0 + s.radiusDistal / s.radiusProximal) : 1.0;
     for (std::size_t i = 0; i < s.layers.size(); ++i)
       radial(i, s.layers[i].cells, s.layers[i].cellsAuto, fmt::format("layer {} ({})", i, s.layers[i].tissue),
-             s.layers[i].thickness * scale);
-    if (s.coat) radial(s.layers.size(), s.coat->cells, s.coat->cellsAuto, "the coat", s.coat->thickness);
-    // A bare child on a coated parent, its cells at the junction longer than the Biot length of its skin (the water
-    // line's warning above covers the same corner where it applies).
-    if (e.waterLineParent.empty() && e.junctionBiotLength > 0.0 && s.shape != Shape::Sphere) {
-      const double dz = s.length / std::max(s.axialCells, 1);
-      const double dr = s.layers.back().thickness / std::max(s.layers.back().cells, 1);  // at the proximal end
-      if (e.junctionBiotLength < std::max(dz, dr))
+             s.layers[i].thickness * scale, s.layers[i].grading);
+    if (s.coat) radial(s.layers.size(), s.coat->cells, s.coat->cellsAuto, "the coat", s.coat->thickness, 1.0);
+    // A bare child on a coated parent whose skin's Biot length is shorter than the skin, its cells at the corner
+    // longer than kBiotCornerFraction of it (estimateGrid; the water line's warning above covers the same corner
+    // where it applies).
+    if (e.waterLineParent.empty() && e.junctionBiotLength > 0.0 && s.shape != Shape::Sphere && !s.layers.empty() &&
+        e.junctionBiotLength < s.layers.back().thickness) {
+      const double dz = s.axialLengths().front();
+      const double dr = s.layers.back().outermostCell(s.layers.back().thickness);  // at the proximal end
+      if (std::max(dz, dr) > kBiotCornerFraction * e.junctionBiotLength)
         c.warnings.push_back(fmt::format(
             "grid: segment {}: its bare skin meets the coated {} at the junction, and the Biot length of its skin "
-            "k/h = {:.3g} mm is shorter than its cells there ({:.3g} mm along, {:.3g} mm across the skin): the heat "
-            "across that corner converges slowly and is underestimated (an invented swimmer's bare feet on a furred "
-            "trunk in water: +26 % with 16x the feet's cells); check the numbers you use with `thermorph refine`",
+            "k/h = {:.3g} mm is short: the cells at that corner ({:.3g} mm along, {:.3g} mm across the skin's "
+            "surface) are longer than a tenth of it, and the heat across the corner is underestimated (an invented "
+            "swimmer's bare feet on a furred trunk in water: 26 % low on uniform cells); leave the segment's "
+            "axial_cells and its skin's cells out to have both graded towards the corner (README, Grid), or check "
+            "the numbers you use with `thermorph refine`",
             s.name, s.parent, 1e3 * e.junctionBiotLength, 1e3 * dz, 1e3 * dr));
     }
     if (f > 1) {
@@ -822,7 +868,7 @@ double segmentGridError(const Case& c, std::size_t g, const SegmentGridEstimate&
   double err = s.shape == Shape::Sphere ? 0.0 : axialGridError(e, s.length, s.axialCells, s.axialGrading);
   for (std::size_t i = 0; i < s.layers.size(); ++i) {
     const double scale = s.shape == Shape::Cone ? 0.5 * (1.0 + s.radiusDistal / s.radiusProximal) : 1.0;
-    err = std::max(err, layerGridError(e, i, s.layers[i].thickness * scale, s.layers[i].cells));
+    err = std::max(err, layerGridError(e, i, s.layers[i].thickness * scale, s.layers[i].cells, s.layers[i].grading));
   }
   if (s.coat) err = std::max(err, layerGridError(e, s.layers.size(), s.coat->thickness, s.coat->cells));
   return err;
@@ -849,7 +895,9 @@ std::string gridSummary(const Case& c) {
     const SegmentSpec& s = c.segments[g];
     const SegmentGridEstimate& e = estimates[g];
     std::string radial;
-    for (const LayerSpec& l : s.layers) radial += fmt::format("{}{}{} ", l.tissue.substr(0, 0), l.cells, l.cellsAuto ? "*" : "");
+    for (const LayerSpec& l : s.layers)  // graded: Q after a slash, as the axial column
+      radial += fmt::format("{}{}{} ", l.cells, l.cellsAuto ? "*" : "",
+                            l.grading > 1.0 ? fmt::format("/{:g}{}", l.grading, l.gradingAuto ? "*" : "") : "");
     if (s.coat) radial += fmt::format("| {}{}", s.coat->cells, s.coat->cellsAuto ? "*" : "");
     std::string axial = s.shape == Shape::Sphere ? "-" : fmt::format("{}{}", s.axialCells, s.axialAuto ? "*" : "");
     if (s.shape != Shape::Sphere && s.axialGrading > 1.0)  // graded: Q after a slash

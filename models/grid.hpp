@@ -77,6 +77,17 @@ inline constexpr double kCoatCornerConstant = 0.3;
 //! rule lands on, 5-15 NTU_c).
 inline constexpr double kChildStreamErrorConstant = 1.5;
 
+//! A bare child on a coated parent whose skin's Biot length k/h is shorter than the skin: the coat's warm skin
+//! meets the child's cold surface at the junction's rim, a corner of size k/h. The automatic grid makes the cells
+//! there (the proximal axial cell and the outermost radial cell of the child's skin) at most this fraction of k/h
+//! (measured on an invented 0.9 kg swimmer's feet in 10 degC water, k/h = 0.059 mm: foot conduction on corner cells
+//! of 0.14 / 0.12 and 0.05 / 0.085 of k/h (axial / radial) 0.72 % and 0.46 % from the feet refined 4x; uniform
+//! cells 26 % low; tests/test_grid_weights.cpp).
+inline constexpr double kBiotCornerFraction = 0.1;
+//! Least radial cells of a skin graded towards such a corner (neighbouring cells then differ by at most
+//! Q^(1/12) = 1.8 at Q = 1000).
+inline constexpr int kBiotCornerSkinCells = 12;
+
 //! What the estimator found for one segment (for `check` and the warnings).
 struct SegmentGridEstimate {
   std::string segment;
@@ -93,6 +104,9 @@ struct SegmentGridEstimate {
   //! meet kGridTargetError; 1 and axialNeeded elsewhere.
   double gradingNeeded = 1.0;
   int gradedNeeded = 1;
+  //! A bare child on a coated parent with a short Biot length (kBiotCornerFraction): the radial grading of its
+  //! outermost tissue layer (layers[].grading) towards the surface; 1 elsewhere.
+  double skinGradingNeeded = 1.0;
   std::vector<double> layerScale;  //!< per layer (coat last) the radial length scale [m]
   std::vector<double> layerWeight; //!< per layer (coat last) share of the surface heat crossing its outer face [1]
   std::vector<double> layerCoreScale;  //!< per layer: radius whose curvature counts unweighted (the core layer) [m]
@@ -115,8 +129,9 @@ struct SegmentGridEstimate {
 };
 
 //! Estimated relative error of a layer's heat flows with `cells` radial cells (steady length scale and transient
-//! penetration depth, the larger of the two).
-double layerGridError(const SegmentGridEstimate& e, std::size_t layer, double thickness, int cells);
+//! penetration depth, the larger of the two); graded cells (LayerSpec::grading) by their thickest cell.
+double layerGridError(const SegmentGridEstimate& e, std::size_t layer, double thickness, int cells,
+                      double grading = 1.0);
 
 //! The shortest interval tau [s] over which a step of the surroundings acts (models/grid.cpp); 0 when the case
 //! has no steps (a steady start and no events).

@@ -159,14 +159,16 @@ TEST_CASE("A coat that leaves the water is named in the warnings (no drying mode
 
 TEST_CASE("A bare child on a coated parent, its cells longer than its skin's Biot length, is named", "[grid]") {
   // The parent's warm skin under its coat meets the child's exposed skin at the junction's rim: in water the
-  // child's skin has a Biot length k/h well under a millimetre, and the heat across that corner converges slowly
-  // (measured on an invented swimmer's feet, README "Status and known limitations"). Common practice, no source.
-  auto text = [](const std::string& trunkCoat, const std::string& medium) {
+  // child's skin has a Biot length k/h well under a millimetre, and the heat across that corner converges only on
+  // cells of a fraction of it (measured on an invented swimmer's feet, README "Grid"). Common practice, no source.
+  // The automatic grid grades the corner (no warning); a given uniform grid is named.
+  auto text = [](const std::string& trunkCoat, const std::string& medium, const std::string& footGrid) {
     return "title = \"bare limb\"\n[run]\nduration = 600\n[[segments]]\nname = \"trunk\"\nshape = \"cylinder\"\n"
            "length = 0.2\nlayers = [{ tissue = \"muscle\", thickness = 0.03 }, { tissue = \"skin\", thickness = 0.002 }]\n" +
            trunkCoat +
-           "[[segments]]\nname = \"foot\"\nparent = \"trunk\"\nshape = \"cylinder\"\nlength = 0.03\n"
-           "layers = [{ tissue = \"bone\", thickness = 0.002 }, { tissue = \"skin\", thickness = 0.0015 }]\n"
+           "[[segments]]\nname = \"foot\"\nparent = \"trunk\"\nshape = \"cylinder\"\nlength = 0.03\n" + footGrid +
+           "layers = [{ tissue = \"bone\", thickness = 0.002 }, { tissue = \"skin\", thickness = 0.0015" +
+           (footGrid.empty() ? "" : ", cells = 2") + " }]\n"
            "[environment]\nmedium = \"" + medium + "\"\ntemperature = 283.15\nspeed = 0.5\n";
   };
   auto named = [](const Case& c) {
@@ -174,8 +176,17 @@ TEST_CASE("A bare child on a coated parent, its cells longer than its skin's Bio
       if (w.find("segment foot: its bare skin meets the coated trunk") != std::string::npos) return true;
     return false;
   };
-  const std::string fur = "coat = { material = \"fur\", thickness = 0.01 }\n";
-  CHECK(named(loadCaseFromString(text(fur, "water"), "test-case")));
-  CHECK_FALSE(named(loadCaseFromString(text("", "water"), "test-case")));  // no coat on the parent
-  CHECK_FALSE(named(loadCaseFromString(text(fur, "air"), "test-case")));   // in air at 0.5 m/s k/h is ~1 cm
+  const std::string fur = "coat = { material = \"fur\", thickness = 0.01 }\n", uniform = "axial_cells = 72\n";
+  CHECK(named(loadCaseFromString(text(fur, "water", uniform), "test-case")));
+  const Case automatic = loadCaseFromString(text(fur, "water", ""), "test-case");
+  CHECK_FALSE(named(automatic));
+  const SegmentSpec& foot = automatic.segments[1];
+  CHECK(foot.axialGrading > 1.0);
+  CHECK(foot.layers.back().grading > 1.0);
+  CHECK(foot.layers.front().grading == 1.0);  // only the skin, where the surface condition jumps
+  CHECK_FALSE(named(loadCaseFromString(text("", "water", uniform), "test-case")));  // no coat on the parent
+  CHECK_FALSE(named(loadCaseFromString(text(fur, "air", uniform), "test-case")));   // in air at 0.5 m/s k/h is ~1 cm
+  const Case air = loadCaseFromString(text(fur, "air", ""), "test-case");            // ... and nothing is graded
+  CHECK(air.segments[1].axialGrading == 1.0);
+  CHECK(air.segments[1].layers.back().grading == 1.0);
 }
