@@ -90,7 +90,10 @@ ControlGridWatch::ControlGridWatch(const Body& body, const NetworkSystem& system
   modulators_.assign(net.modulators.size(), 0.0);
   // eps: the largest estimated error of any segment's heat flows on the grid of this run.
   const Case& spec = body.spec();
-  const std::vector<SegmentGridEstimate> estimates = estimateGrid(spec);
+  // The estimate the case was resolved with (it does not depend on the cell counts), else a new one.
+  const bool kept = spec.gridEstimates && spec.gridEstimates->size() == spec.segments.size();
+  const std::vector<SegmentGridEstimate> own = kept ? std::vector<SegmentGridEstimate>{} : estimateGrid(spec);
+  const std::vector<SegmentGridEstimate>& estimates = kept ? *spec.gridEstimates : own;
   for (std::size_t g = 0; g < estimates.size(); ++g)
     gridError_ = std::max(gridError_, segmentGridError(spec, g, estimates[g]));
   // The signal's own reading: the estimated error of each layer its nodes lie in (kSignalFactor above).
@@ -106,7 +109,8 @@ ControlGridWatch::ControlGridWatch(const Body& body, const NetworkSystem& system
         const double scale = s.shape == Shape::Cone ? 0.5 * (1.0 + s.radiusDistal / s.radiusProximal) : 1.0;
         w.signalError = std::max(w.signalError, kSignalFactor * layerGridError(estimates[g], layer,
                                                                                s.layers[layer].thickness * scale,
-                                                                               s.layers[layer].cells));
+                                                                               s.layers[layer].cells,
+                                                                               s.layers[layer].grading));
         break;
       }
     }

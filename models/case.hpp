@@ -1,6 +1,7 @@
 #pragma once
 //! The resolved case: every value in SI units, every default filled in.
 #include <map>
+#include <memory>
 #include <optional>
 #include <stdexcept>
 #include <string>
@@ -204,6 +205,8 @@ struct InputFile {
   std::string sha256;  //!< SHA-256 of the bytes read (64 hex digits)
 };
 
+struct SegmentGridEstimate;  // models/grid.hpp
+
 struct Case {
   std::string title;
   std::string sourceFile;  //!< path of the case file
@@ -218,6 +221,10 @@ struct Case {
   EnvironmentSpec environment;
   std::vector<EventSpec> events;
   std::vector<std::string> warnings;  //!< found while loading (grids coarser than needed); Body reports them
+  //! The grid estimate resolveGrid() worked from, per segment (it does not depend on the cell counts), kept for the
+  //! checks after a run (drivers/record_control_grid.cpp) so that they need not estimate again; null when the case
+  //! was not resolved.
+  std::shared_ptr<const std::vector<SegmentGridEstimate>> gridEstimates;
 };
 
 //! Upper limit on the total number of nodes in one case (memory and run time guard).

@@ -726,7 +726,8 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
 }
 
 void resolveGrid(Case& c) {
-  const std::vector<SegmentGridEstimate> estimates = estimateGrid(c);
+  c.gridEstimates = std::make_shared<const std::vector<SegmentGridEstimate>>(estimateGrid(c));
+  const std::vector<SegmentGridEstimate>& estimates = *c.gridEstimates;
   // run.grid_refinement multiplies every count, given or chosen, before the checks (which then describe the grid
   // actually used); the counts are then explicit, so the resolved case reproduces the refined run.
   const int f = std::max(1, c.run.gridRefinement);
