@@ -90,7 +90,9 @@ ControlGridWatch::ControlGridWatch(const Body& body, const NetworkSystem& system
   modulators_.assign(net.modulators.size(), 0.0);
   // eps: the largest estimated error of any segment's heat flows on the grid of this run.
   const Case& spec = body.spec();
-  // The estimate the case was resolved with (it does not depend on the cell counts), else a new one.
+  // The estimate the case was resolved with (it does not depend on the cell counts), else a new one. Estimating
+  // again here builds an EnvironmentModel, which resets this thread's log of validity warnings: a resolved case
+  // (every case loaded from a file) keeps the run's warnings; the new estimate is for cases built without it.
   const bool kept = spec.gridEstimates && spec.gridEstimates->size() == spec.segments.size();
   const std::vector<SegmentGridEstimate> own = kept ? std::vector<SegmentGridEstimate>{} : estimateGrid(spec);
   const std::vector<SegmentGridEstimate>& estimates = kept ? *spec.gridEstimates : own;

@@ -40,6 +40,16 @@ with h5py.File(sys.argv[1]) as f:
           f"water; solver {float(f['solver'].attrs['wall_seconds']):.3f} s")
 PY
 
+# 2b. The head's Reynolds number in sea water at 1.5 m/s (about 1.7e5) lies above the range of Whitaker's (1972)
+#     sphere correlation [3.5, 7.6e4]: the run's validity warning is stored in the result file (the notes say it).
+#     A second grid estimate after the body was built once cleared the run's pending warnings (2026-12-03).
+"$python" - "$work/dive.h5" <<'PY' || fail "the head's validity warning is not stored"
+import sys, h5py
+with h5py.File(sys.argv[1]) as f:
+    w = [x.decode() if isinstance(x, bytes) else x for x in f["provenance/warnings"][:]]
+    assert any(x.startswith("Whitaker (1972) sphere in forced flow: Re =") for x in w), w
+PY
+
 # 3. Physiological sense (common practice, no source): with vasoconstriction on during the dives, the diver's core
 #    cools more slowly than with it off. The second run keeps the dives' skin perfusion at its basal level
 #    (multiplier 1 instead of 0.1) by --set on the five dive events (events 0, 2, 4, 6, 8 of the case); everything
