@@ -32,31 +32,7 @@ title = "pin fin in water"
 initial = "steady"
 duration = "1 s"
 output_interval = "1 s"
-[circulation]
-fixed_arterial_temperature = "30 degC"
-[tissues.clamp]
-conductivity = 0.5
-density = 1000
-specific_heat = 4000
-metabolic_heat = 0
-perfusion = 1
-q10 = 1
-[tissues.copper]
-conductivity = 398
-density = 8933
-specific_heat = 385
-metabolic_heat = 0
-perfusion = 0
-q10 = 1
-[[segments]]
-name = "reservoir"
-shape = "sphere"
-layers = [{ tissue = "clamp", thickness = 0.1, cells = 1 }]
-surface = { convection = 0 }
-[[segments]]
-name = "pin"
-parent = "reservoir"
-shape = "cylinder"
+)toml" + copperPinOnClamp() + R"toml(
 length = "2 cm"
 )toml" + axialCells + R"toml(
 layers = [{ tissue = "copper", thickness = "0.5 mm" }]

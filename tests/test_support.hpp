@@ -128,4 +128,36 @@ inline RunOptions silentRun() {
   return options;
 }
 
+//! The case text of a copper pin (k = 398 W/(m K); Incropera et al. 2007, Table A.1) on a clamp held at 30 degC by
+//! its perfusion from fixed arterial blood, from [circulation] to the pin's `shape = "cylinder"` line; the caller
+//! gives the title and [run] before it and the pin's length, cells, layers and surroundings after it.
+inline std::string copperPinOnClamp() {
+  return R"toml([circulation]
+fixed_arterial_temperature = "30 degC"
+[tissues.clamp]
+conductivity = 0.5
+density = 1000
+specific_heat = 4000
+metabolic_heat = 0
+perfusion = 1
+q10 = 1
+[tissues.copper]
+conductivity = 398
+density = 8933
+specific_heat = 385
+metabolic_heat = 0
+perfusion = 0
+q10 = 1
+[[segments]]
+name = "reservoir"
+shape = "sphere"
+layers = [{ tissue = "clamp", thickness = 0.1, cells = 1 }]
+surface = { convection = 0 }
+[[segments]]
+name = "pin"
+parent = "reservoir"
+shape = "cylinder"
+)toml";
+}
+
 }  // namespace thermorph::testing
