@@ -1039,6 +1039,9 @@ struct Body::SegmentBuild {
   int nz = 1, nr = 0;
   int firstCoat = 0;                            //!< first coat cell (nr: no coat)
   const TissueProperties* coatDry = nullptr;    //!< the coat material as given (dry)
+  //! Share of the coat's rings away from the substrate: 1 - contact_fraction on a coated segment that touches it
+  //! (the coat over the contact patch is a column of its own, Body::addLateralFace), else 1.
+  double coatShare = 1.0;
   bool coatChanges = false;                     //!< the coat has a different wet conductivity
   double length = 0.0;                          //!< sphere: 0
   std::vector<double> edges, dz;                //!< [nz + 1] axial cell edges, [nz] cell lengths (sphere: {0, 1}, {1})
@@ -1142,6 +1145,7 @@ Body::SegmentBuild Body::segmentTissues(const SegmentSpec& s, Index group, Segme
   b.firstCoat = s.coat ? b.nr - s.coat->cells : b.nr;
   b.coatDry = s.coat ? &case_.tissues.at(s.coat->material) : nullptr;
   b.coatChanges = b.coatDry && b.coatDry->wetConductivity > 0.0 && b.coatDry->wetConductivity != b.coatDry->conductivity;
+  if (s.coat && s.surface.contactFraction > 0.0) b.coatShare = 1.0 - s.surface.contactFraction;
   b.length = s.shape == Shape::Sphere ? 0.0 : s.length;
   // Uniform: every cell L / nz and edges i (L / nz), as before axial_grading; graded: SegmentSpec::axialEdges.
   b.edges = s.axialEdges();
@@ -1199,8 +1203,10 @@ void Body::addRadialConduction(const SegmentBuild& b, const SegmentMesh& m, int 
     double resistance = radialResistance(s.shape, ri, face, rj, b.tissue[ir]->conductivity,
                                          b.tissue[ir + 1]->conductivity, dz, s.width, ir >= b.firstCoat,
                                          ir + 1 >= b.firstCoat);
-    network_.conductances.push_back({m.node(iz, ir), m.node(iz, ir + 1), 1.0 / resistance, 0});
-    if (ir + 1 >= b.firstCoat) recordCoat(b, false, network_.conductances.size() - 1, conductance(false), conductance(true));
+    const double share = ir + 1 >= b.firstCoat ? b.coatShare : 1.0;  // the coat's rings away from the substrate
+    network_.conductances.push_back({m.node(iz, ir), m.node(iz, ir + 1), share / resistance, 0});
+    if (ir + 1 >= b.firstCoat)
+      recordCoat(b, false, network_.conductances.size() - 1, share * conductance(false), share * conductance(true));
   }
 }
 
@@ -1215,9 +1221,10 @@ void Body::addLateralFace(const SegmentBuild& b, SegmentMesh& m, int iz, const C
   auto halfConductance = [&](double k) {
     return 1.0 / radialResistance(s.shape, rLast, rOut, rOut, k, 1.0, dz, s.width, nr - 1 >= b.firstCoat, false);
   };
-  double half = halfConductance(b.tissue[nr - 1]->conductivity);
-  double halfDry = halfConductance(b.conductivity(nr - 1, false));
-  double halfWet = halfConductance(b.conductivity(nr - 1, true));
+  const double share = nr - 1 >= b.firstCoat ? b.coatShare : 1.0;  // the coat's rings away from the substrate
+  double half = share * halfConductance(b.tissue[nr - 1]->conductivity);
+  double halfDry = share * halfConductance(b.conductivity(nr - 1, false));
+  double halfWet = share * halfConductance(b.conductivity(nr - 1, true));
   double area = 0.0;
   switch (s.shape) {
     case Shape::Sphere: area = 4.0 * pi * rOut * rOut; break;
@@ -1233,6 +1240,7 @@ void Body::addLateralFace(const SegmentBuild& b, SegmentMesh& m, int iz, const C
   // half cell keeps its full conductance. (Scaling that half cell by the exposed share, as before, made the result
   // depend on the thickness of the outermost cell, a first-order error that vanished only as the cell did: the
   // wading bird's trunk convection moved 0.2 % between 2 and 4 coat cells; now < 0.01 %.)
+  const double fullArea = area;
   const auto z = static_cast<std::size_t>(iz);
   if (z < coveredArea_[b.group].size() && coveredArea_[b.group][z] > 0.0) {
     double covered = coveredArea_[b.group][z];
@@ -1242,11 +1250,34 @@ void Body::addLateralFace(const SegmentBuild& b, SegmentMesh& m, int iz, const C
                                       "{}; 10 % is kept exposed", s.name, iz));
     area = remaining;
   }
+  const double diameter = s.shape == Shape::Plate ? s.length : 2.0 * rOut;
   m.lateralFace.push_back(network_.faces.size());
   network_.faces.push_back({m.node(iz, nr - 1), half, area});
   if (nr - 1 >= b.firstCoat) recordCoat(b, true, network_.faces.size() - 1, halfDry, halfWet);
-  environment_->addFace({b.group, s.shape, true, area, s.shape == Shape::Plate ? s.length : 2.0 * rOut, 0.0});
+  environment_->addFace({b.group, s.shape, true, area, diameter, 0.0,
+                         b.coatShare < 1.0 ? FaceContact::Elsewhere : FaceContact::Shared});
   m.area += area;
+  if (b.coatShare < 1.0) {
+    // The contact patch of a coated segment (f_c of the lateral surface): a column of coat from the outermost tissue
+    // cell to the substrate, in parallel with the coat's rings, which keep the other 1 - f_c of their conductances.
+    // The column's face touches only the substrate: its surface is not the air-cooled surface of the rest of the
+    // coat (a shared surface temperature let cold air set the temperature of the fur on the ground, and frozen
+    // ground then warmed the animal). Conduction: the outermost tissue cell's half and the coat's shell in series
+    // (the same radial resistances as the rings; no heat capacity, as the coat of the end faces), then h_sub on the
+    // face. Children's footprints shrink the column as they shrink the exposed face.
+    const int skin = b.firstCoat - 1;
+    const double rSkin = 0.5 * (cm.bounds[skin] + cm.bounds[skin + 1]);
+    auto column = [&](double coatK) {
+      return s.surface.contactFraction * (area / fullArea) /
+             radialResistance(s.shape, rSkin, cm.bounds[skin + 1], rOut, b.tissue[skin]->conductivity, coatK, dz,
+                              s.width, false, true);
+    };
+    network_.faces.push_back({m.node(iz, skin), column(b.tissue[nr - 1]->conductivity), s.surface.contactFraction * area});
+    recordCoat(b, true, network_.faces.size() - 1, column(b.conductivity(nr - 1, false)),
+               column(b.conductivity(nr - 1, true)));
+    environment_->addFace({b.group, s.shape, false, s.surface.contactFraction * area, diameter, 0.0,
+                           FaceContact::Column});
+  }
 }
 
 void Body::addAxialConduction(const SegmentBuild& b, const SegmentMesh& m, int iz, const CrossSection& c1) {
@@ -1256,10 +1287,12 @@ void Body::addAxialConduction(const SegmentBuild& b, const SegmentMesh& m, int i
   const double dz = 0.5 * (b.dz[z] + b.dz[z + 1]);
   for (int ir = 0; ir < b.nr; ++ir) {
     double section = sectionArea(b.s.shape, c1.bounds[ir], c1.bounds[ir + 1], b.s.width);
-    network_.conductances.push_back({m.node(iz, ir), m.node(iz + 1, ir), b.tissue[ir]->conductivity * section / dz, 0});
+    const double share = ir >= b.firstCoat ? b.coatShare : 1.0;  // the coat's rings away from the substrate
+    network_.conductances.push_back(
+        {m.node(iz, ir), m.node(iz + 1, ir), share * b.tissue[ir]->conductivity * section / dz, 0});
     if (ir >= b.firstCoat)
-      recordCoat(b, false, network_.conductances.size() - 1, b.conductivity(ir, false) * section / dz,
-                 b.conductivity(ir, true) * section / dz);
+      recordCoat(b, false, network_.conductances.size() - 1, share * b.conductivity(ir, false) * section / dz,
+                 share * b.conductivity(ir, true) * section / dz);
   }
 }
 
@@ -1299,7 +1332,9 @@ void Body::addEndFaces(const SegmentBuild& b, SegmentMesh& m, bool attached) {
         recordCoat(b, true, network_.faces.size() - 1, b.conductivity(ir, false) * section / (0.5 * dz),
                    b.conductivity(ir, true) * section / (0.5 * dz));
       }
-      environment_->addFace({b.group, s.shape, false, section, 2.0 * ce.bounds[b.nr], 0.0});
+      // A coated segment's contact patch lies on its lateral surface (its columns): the ends are all exposed.
+      environment_->addFace({b.group, s.shape, false, section, 2.0 * ce.bounds[b.nr], 0.0,
+                             b.coatShare < 1.0 ? FaceContact::None : FaceContact::Shared});
       m.area += section;
     }
   }

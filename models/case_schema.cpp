@@ -195,7 +195,8 @@ constexpr std::array params = {
           "radiant_temperature."},
     Param{"segments[].surface.contact_fraction", K::Number, "", "0", 0, 1, false, "",
           "Share of the surface in contact with the substrate (conduction at substrate_conductance); the rest is "
-          "exposed to the medium."},
+          "exposed to the medium. On a coated segment the contact patch lies on the lateral surface, below 1: the "
+          "coat over it conducts from the skin to the substrate, apart from the air-side coat; end faces are exposed."},
     Param{"segments[].surface.wetted_fraction", K::Number, "", "0", 0, 1, false, "",
           "Share of the exposed surface that is wet and evaporates (1: a wet surface); zero in water."},
     Param{"segments[].surface.immersion", K::Choice, "", "body", 0, 0, false, "body|always|never",

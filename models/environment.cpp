@@ -213,8 +213,15 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
   const FaceDescription& f = faces_[face];
   const SegmentSurface& surface = surfaces_[f.segment];
   const SurfaceSpec& spec = case_.segments[f.segment].surface;
+  const double hSubstrate = case_.environment.substrateConductance.value_or(0.0);
+  if (f.contact == FaceContact::Column) {
+    // A coat's contact column (Body::addLateralFace): the whole face touches the substrate, q = h_sub A (T_sub - T_s).
+    channelHeat[substrateChannel_] += hSubstrate * f.area * (value(V::SubstrateTemperature, time) - Ts);
+    channelDerivative[substrateChannel_] -= hSubstrate * f.area;
+    return;
+  }
   const FaceFluid fl = fluid(f.segment, time);
-  const double exposed = (1.0 - spec.contactFraction) * f.area;  // A_e [m2]
+  const double exposed = f.contact == FaceContact::None ? f.area : (1.0 - spec.contactFraction) * f.area;  // A_e [m2]
 
   // Convection, Newton's law: q = h A_e (T_f - T_s), dq/dT_s = A_e (h' (T_f - T_s) - h).
   double dh = 0.0;
@@ -261,8 +268,8 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
   }
 
   // Conduction to the substrate over the contact area: q = h_sub f_c A (T_sub - T_s).
-  if (spec.contactFraction > 0.0) {
-    const double conductance = case_.environment.substrateConductance.value_or(0.0) * spec.contactFraction * f.area;
+  if (spec.contactFraction > 0.0 && f.contact == FaceContact::Shared) {
+    const double conductance = hSubstrate * spec.contactFraction * f.area;
     channelHeat[substrateChannel_] += conductance * (value(V::SubstrateTemperature, time) - Ts);
     channelDerivative[substrateChannel_] -= conductance;
   }
@@ -330,7 +337,7 @@ double EnvironmentModel::meanConvectionCoefficient(Index segment, double time,
   const bool reporting = reporting_;
   reporting_ = true;  // a report: the cache is read, not written
   for (Index f = 0; f < faces_.size(); ++f) {
-    if (faces_[f].segment != segment) continue;
+    if (faces_[f].segment != segment || faces_[f].contact == FaceContact::Column) continue;
     hA += convectionCoefficient(f, faceTemperatures[f], time, nullptr) * faces_[f].area;
     area += faces_[f].area;
   }

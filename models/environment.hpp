@@ -14,6 +14,14 @@
 
 namespace thermorph {
 
+//! How a face meets the substrate (`surface.contact_fraction` f_c > 0).
+enum class FaceContact : unsigned char {
+  Shared,     //!< f_c of the face touches the substrate at the face's own surface, the rest is exposed (bare segments)
+  Column,     //!< the whole face touches the substrate: a coat's contact column from the outermost tissue cell
+  Elsewhere,  //!< (1 - f_c) of the face is exposed; its contact share is a Column face of its own
+  None,       //!< the whole face is exposed, none of it touches the substrate (end faces of coated segments)
+};
+
 //! What the environment needs to know of one exterior face; Body describes every face it creates.
 struct FaceDescription {
   Index segment = 0;            //!< segment (network group) index
@@ -22,6 +30,7 @@ struct FaceDescription {
   double area = 0.0;            //!< [m2]
   double characteristicLength = 0.0;  //!< outer diameter (sphere, cylinder, cone) or plate length [m]
   double volumeLength = 0.0;    //!< cube root of the segment's volume, coat included [m] (0: computed here)
+  FaceContact contact = FaceContact::Shared;
 };
 
 //! One named environment series for the results file (/environment/NAME).
@@ -51,7 +60,9 @@ class EnvironmentModel : public SurfaceModel {
   //!   solar       alpha S exposure A on lateral faces (air only; end faces are parallel to the beam);
   //!   evaporation -w h_m [rho_v,sat(T_s) - RH rho_v,sat(T_a)] L_v A_e (air only; Chilton-Colburn analogy);
   //!   substrate   h_sub f_c A (T_sub - T_s);
-  //! with A_e = (1 - f_c) A the exposed area and f_c the contact fraction.
+  //! with A_e = (1 - f_c) A the exposed area and f_c the contact fraction (FaceContact::Shared). A Column face
+  //! has only the substrate term over its whole area, an Elsewhere face A_e = (1 - f_c) A and no substrate term, a
+  //! None face A_e = A and no substrate term.
   void faceHeat(Index face, double faceTemperature, double time, std::span<double> channelHeat,
                 std::span<double> channelDerivative) const override;
   //! Reports (budgets, mean coefficients at outputs) read the per-face coefficient cache but do not write it.

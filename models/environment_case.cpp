@@ -200,6 +200,9 @@ SurfaceSpec readSurface(const TableView& segment, Shape shape) {
   if (surface.has("solar_exposure")) s.solarExposure = surface.number("solar_exposure");
   s.skyView = surface.number("sky_view");
   s.contactFraction = surface.number("contact_fraction");
+  if (s.contactFraction >= 1.0 && segment.has("coat"))
+    surface.fail("contact_fraction", "a coated segment needs part of its coat exposed: below 1 (the coat over the "
+                                     "contact patch conducts to the substrate, the rest meets the medium)");
   s.wettedFraction = surface.number("wetted_fraction");
   const std::string immersion = surface.choice("immersion");
   s.immersion = immersion == "always" ? Immersion::Always : immersion == "never" ? Immersion::Never : Immersion::Body;

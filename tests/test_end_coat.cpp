@@ -17,27 +17,7 @@ using namespace thermorph;
 
 namespace {
 
-const std::string caseText = R"toml(
-[circulation]
-fixed_arterial_temperature = "37 degC"
-[tissues.core]
-conductivity = 1000
-density = 1000
-specific_heat = 3600
-metabolic_heat = 0
-perfusion = "1 1/s"
-q10 = 1
-[[segments]]
-name = "trunk"
-shape = "cylinder"
-length = "10 cm"
-axial_cells = 1
-layers = [{ tissue = "core", thickness = "2 cm", cells = 2 }]
-coat = { material = "fur", thickness = "1 cm", cells = 4 }
-[environment]
-temperature = "0 degC"
-convection = "10 W/(m2 K)"
-)toml";
+const std::string caseText = testing::isothermalFurredCylinder();
 
 //! Steady dry heat loss (convection; a fixed coefficient has no radiation) through the end faces of the tissue and
 //! through those of the coat's annulus [W]: h A (T_face - T_air) per face.

@@ -358,10 +358,15 @@ substrate_conductance = 30
     INFO(name);
     CHECK(worst < 1e-5);
   }
-  // Every channel is active at this state.
+  // Every channel is active at this state: the exposed channels on the first lateral face, the substrate on the
+  // coat's contact column beside it (face 1; tests/test_contact_coat.cpp), not on the lateral face.
   const FaceHeat q = faceHeat(*body, 0, 290.0);
-  for (const char* channel : {"convection", "radiation", "solar", "evaporation", "substrate"})
+  for (const char* channel : {"convection", "radiation", "solar", "evaporation"})
     CHECK(q.heat[channelIndex(*body, channel)] != 0.0);
+  CHECK(q.heat[channelIndex(*body, "substrate")] == 0.0);
+  const FaceHeat column = faceHeat(*body, 1, 290.0);
+  CHECK(column.heat[channelIndex(*body, "substrate")] != 0.0);
+  CHECK(column.heat[channelIndex(*body, "convection")] == 0.0);
   CHECK(body->environment().emissivity(0) == 0.95);  // a coat with correlations (from memory)
 }
 

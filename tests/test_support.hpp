@@ -160,4 +160,32 @@ shape = "cylinder"
 )toml";
 }
 
+//! The case text of a furred cylinder whose tissue is held isothermal at 37 degC (conductivity 1000 W/(m K) and
+//! perfusion 1 1/s from fixed arterial blood, no metabolism): 2 cm of tissue in two cells, 1 cm of fur in four,
+//! 10 cm long, one axial cell, in 0 degC air with a fixed 10 W/(m2 K). `segmentKeys` and `environmentKeys` are TOML
+//! lines added to the segment and to [environment].
+inline std::string isothermalFurredCylinder(const std::string& segmentKeys = "", const std::string& environmentKeys = "") {
+  return R"toml([circulation]
+fixed_arterial_temperature = "37 degC"
+[tissues.core]
+conductivity = 1000
+density = 1000
+specific_heat = 3600
+metabolic_heat = 0
+perfusion = "1 1/s"
+q10 = 1
+[environment]
+temperature = "0 degC"
+convection = "10 W/(m2 K)"
+)toml" + environmentKeys + R"toml(
+[[segments]]
+name = "trunk"
+shape = "cylinder"
+length = "10 cm"
+axial_cells = 1
+layers = [{ tissue = "core", thickness = "2 cm", cells = 2 }]
+coat = { material = "fur", thickness = "1 cm", cells = 4 }
+)toml" + segmentKeys + "\n";
+}
+
 }  // namespace thermorph::testing
