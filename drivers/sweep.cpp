@@ -12,6 +12,7 @@
 #include <cstring>
 #include <deque>
 #include <filesystem>
+#include <map>
 #include <mutex>
 #include <thread>
 #include <unordered_map>
@@ -41,6 +42,31 @@ std::string clock(double s) {
 }
 
 }  // namespace
+
+std::string warningPattern(std::string_view text) {
+  // Numbers: a digit, then digits and points, then an optional exponent (1e-5, 2.3E+04).
+  std::string out;
+  out.reserve(text.size());
+  for (std::size_t i = 0; i < text.size();) {
+    auto digit = [&](std::size_t k) { return k < text.size() && text[k] >= '0' && text[k] <= '9'; };
+    if (!digit(i)) {
+      out += text[i++];
+      continue;
+    }
+    while (digit(i) || (i < text.size() && text[i] == '.' && digit(i + 1))) ++i;
+    if (i < text.size() && (text[i] == 'e' || text[i] == 'E')) {
+      std::size_t k = i + 1;
+      if (k < text.size() && (text[k] == '+' || text[k] == '-')) ++k;
+      if (digit(k)) {
+        i = k;
+        while (digit(i)) ++i;
+      }
+    }
+    if (!out.empty() && out.back() == '-') out.pop_back();  // a sign belongs to its number
+    out += '#';
+  }
+  return out;
+}
 
 // The sweep's signals are those of every command (drivers/stop_signal.hpp).
 std::atomic<bool>& sweepStopFlag() { return stopRequested(); }
@@ -273,7 +299,28 @@ int SweepSession::finish() {
   info.warnings.assign(warnings_.begin(), warnings_.end());
   writeSweepTable(plan_, rows_, info, output_);
   if (missing == 0) journal_.remove();
-  for (const std::string& w : warnings_) fmt::print(stderr, "warning (some runs): {}\n", w);
+  // The runs' warnings on stderr, one line per kind: runs whose warnings differ only in numbers (a controller's
+  // output, an estimated error) share a line with their count and the first run's text; every row keeps its own.
+  struct Kind {
+    std::size_t runs = 0, first = 0;
+    bool numbersDiffer = false;
+  };
+  std::map<std::string, Kind> kinds;
+  std::vector<std::string> order;
+  for (const RunRow& r : rows_) {
+    if (r.warnings.empty()) continue;
+    auto [it, added] = kinds.try_emplace(warningPattern(r.warnings), Kind{0, r.index, false});
+    if (added) order.push_back(it->first);
+    Kind& k = it->second;
+    ++k.runs;
+    k.numbersDiffer = k.numbersDiffer || r.warnings != rows_[k.first].warnings;
+  }
+  for (const std::string& pattern : order) {
+    const Kind& k = kinds.at(pattern);
+    fmt::print(stderr, "warning ({} of {} runs{}): {}\n", k.runs, total_,
+               k.numbersDiffer ? fmt::format("; numbers differ, see the warnings column; run {}", k.first) : "",
+               rows_[k.first].warnings);
+  }
   fmt::print("sweep: {} runs ({}): {} ok, {} failed, {} not run; {} done earlier, {} run now in {:.3g} s ({:.3g} runs/s, "
              "{})\n",
              total_, plan_.zip ? std::string("zip") : fmt::format("{}", fmt::join(plan_.shape, " x ")), ok, failed,

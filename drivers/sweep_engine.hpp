@@ -73,6 +73,10 @@ class SweepSession {
   bool drawn_ = false, tty_ = false;
 };
 
+//! A run's warnings with every number replaced by '#' (a leading minus sign included): the runs of a sweep whose
+//! warnings differ only in their numbers share one line of the summary printed on stderr.
+std::string warningPattern(std::string_view text);
+
 //! True when started by an MPI launcher (mpirun, mpiexec, srun with PMIx/PMI).
 bool launchedUnderMpi();
 //! Number of processes the launcher started, from its environment (1 when unknown).

@@ -12,6 +12,7 @@
 #include "test_common.hpp"
 #include "models/body.hpp"
 #include "drivers/sweep.hpp"
+#include "drivers/sweep_engine.hpp"
 #include "drivers/sweep_output.hpp"
 
 using namespace thermorph;
@@ -297,4 +298,15 @@ TEST_CASE("sweep progress file: exact round trip, cut-short line ignored, other 
   SweepOptions other = o;
   other.vary = {"environment.temperature=10degC,20degC,31degC"};
   CHECK_THROWS_WITH(SweepJournal(path, makeSweepPlan(other), true), Catch::Contains("different sweep"));
+}
+
+TEST_CASE("sweep: runs whose warnings differ only in numbers share one summary line", "[sweep]") {
+  // The pattern hides numbers (signs and exponents included) and nothing else (common practice, no source).
+  const std::string a = "grid: controller shivering: its output 0.403 at t = 0 s (magnification 1.8); tolerance 9.9e-3";
+  const std::string b = "grid: controller shivering: its output 0.39 at t = 12 s (magnification 1.82); tolerance 1E+01";
+  CHECK(warningPattern(a) == "grid: controller shivering: its output # at t = # s (magnification #); tolerance #");
+  CHECK(warningPattern(a) == warningPattern(b));
+  CHECK(warningPattern("segment rod: minimum -8.1 degC at axial 3") == "segment rod: minimum # degC at axial #");
+  CHECK(warningPattern("grid: segment legs") != warningPattern("grid: segment feet"));
+  CHECK(warningPattern("version 2.x, Q10 rates.") == "version #.x, Q# rates.");
 }

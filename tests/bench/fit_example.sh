@@ -3,7 +3,7 @@
 #   bash tests/bench/fit_example.sh [make-data [only]]
 # make-data: regenerate cases/quadruped_logger.csv (invented: thermorph with the hidden values below plus
 # Gaussian noise of documented SD, seed 20261202). Then: the 4-parameter fit to the 200 observations, a Sobol'
-# analysis with 4 parameters and 512 base samples, Morris screening, uncertainty from the fitted covariance, the
+# analysis with 4 parameters and 128 base samples (768 runs; the numbers of cases/quadruped_fit.md), Morris screening, uncertainty from the fitted covariance, the
 # figures, the 50-draw coverage study of tests/test_fit.cpp, and the wall times. BUILD_DIR (default ./build),
 # OUT (default ./fit_example).
 set -euo pipefail
@@ -73,7 +73,7 @@ t0=$(date +%s.%N)
 "$exe" fit "$case" "${scenario[@]}" --data "$src/cases/quadruped_logger.csv" "${free[@]}" -j 2 -o "$out/quadruped_fit.h5" \
   | tee "$out/fit.txt"
 t1=$(date +%s.%N)
-"$exe" sensitivity "$case" "${scenario[@]}" --method sobol -N 512 -j 2 -q \
+"$exe" sensitivity "$case" "${scenario[@]}" --method sobol -N 128 -j 2 -q \
   --param 'tissues.fur.conductivity=0.03 W/(m K):0.08 W/(m K)' --param 'segments.ears.vasomotor.shunt=0:1' \
   --param 'segments.ears.vessels.countercurrent_conductance=0.01 W/K:0.1 W/K:log' --param 'body.activity=0.8:1.6' \
   --metric body.core_temperature.final --metric body.heat_flow.convection -o "$out/quadruped_sobol.h5" | tee "$out/sobol.txt"
