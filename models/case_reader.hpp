@@ -53,7 +53,7 @@ class CaseReader {
     if (node && node->source().begin.line > 0)
       where += fmt::format(":{}:{}", node->source().begin.line, node->source().begin.column);
     else if (node)
-      where += " (--set on the command line)";
+      where += " (an override: --set, a sweep or fit parameter, or set= in Python)";
     throw CaseError(fmt::format("{}: {}: {}", where, path, what));
   }
 
