@@ -41,15 +41,19 @@ double SegmentSpec::tissueRadius() const {
 
 std::vector<double> SegmentSpec::axialEdges() const {
   if (shape == Shape::Sphere) return {0.0, 1.0};
+  return axialCellEdges(length, axialCells, axialGrading);
+}
+
+std::vector<double> axialCellEdges(double length, int axialCells, double grading) {
   const int nz = std::max(axialCells, 1);
   std::vector<double> edges(static_cast<std::size_t>(nz) + 1);
-  if (!(axialGrading > 1.0)) {
+  if (!(grading > 1.0)) {
     const double dz = length / nz;
     for (int i = 0; i <= nz; ++i) edges[static_cast<std::size_t>(i)] = i * dz;
     return edges;
   }
   // z(x) = L (Q^x - 1) / (Q - 1): expm1 keeps the small proximal cells accurate for Q near 1.
-  const double lnQ = std::log(axialGrading), denominator = std::expm1(lnQ);
+  const double lnQ = std::log(grading), denominator = std::expm1(lnQ);
   for (int i = 0; i < nz; ++i)
     edges[static_cast<std::size_t>(i)] = length * std::expm1(lnQ * i / nz) / denominator;
   edges.back() = length;

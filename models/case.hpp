@@ -107,6 +107,10 @@ struct SegmentSpec {
   std::vector<double> axialLengths() const;
 };
 
+//! The nz + 1 edges [m] of nz axial cells over a length, uniform (grading <= 1) or geometrically graded towards
+//! the proximal end with largest/smallest cell ratio `grading` (SegmentSpec::axialEdges of a cylinder, cone or plate).
+std::vector<double> axialCellEdges(double length, int axialCells, double grading);
+
 struct RunSpec {
   double duration = 3600.0;        //!< [s]
   double outputInterval = 60.0;    //!< [s]

@@ -192,45 +192,40 @@ std::vector<double> crossingShares(Shape shape, double width, const std::vector<
       default: return 2.0 * pi * r;
     }
   };
-  // Sized once (this runs for every segment of every case load, sweep runs included).
+  // One pass per cell builds the tridiagonal system and eliminates it (Thomas algorithm) as it goes; the arithmetic
+  // is the same as building the arrays of centres, widths, conductivities and volumes first (this runs for every
+  // segment of every case load, sweep runs included): conductance g[j] between cells j and j + 1 and from the last
+  // cell through the surface to the surroundings (gs), rows
+  // -g[j-1] t[j-1] + (g[j-1] + g[j] + beta V) t[j] - g[j] t[j+1] = rhs, the surroundings at -1.
   const std::size_t n = ls.size() * perLayer;
-  std::vector<double> rc(n), dr(n), k(n), beta(n), vol(n);
+  auto conductivity = [&](const Layer& L) { return L.coat && wet ? L.kWet : L.k; };
+  auto halfResistance = [&](const Layer& L) {  // 0.5 dr / k of the layer's cells
+    return 0.5 * ((L.outer - L.inner) / perLayer) / conductivity(L);
+  };
+  const double rs = ls.back().outer;
+  const double gs = 1.0 / (0.5 * ((ls.back().outer - ls.back().inner) / perLayer) / (conductivity(ls.back()) * area(rs)) +
+                           1.0 / (h * area(rs)));
+  std::vector<double> g(n, 0.0), diag(n), t(n);
   for (std::size_t i = 0, at = 0; i < ls.size(); ++i) {
     const Layer& L = ls[i];
     const double d = (L.outer - L.inner) / perLayer;
-    const double kk = L.coat && wet ? L.kWet : L.k;
+    const double kk = conductivity(L);
     const double b = L.coat ? 0.0 : L.perfusion * rhoCBlood + kk * finM2;
+    const double here = 0.5 * d / kk, next = i + 1 < ls.size() ? halfResistance(ls[i + 1]) : here;
     for (int j = 0; j < perLayer; ++j, ++at) {
       const double r0 = L.inner + j * d, r1 = r0 + d;
-      rc[at] = 0.5 * (r0 + r1);
-      dr[at] = d;
-      k[at] = kk;
-      beta[at] = b;
-      vol[at] = shellVolume(shape, width, 1.0, r0, r1);
+      const double rf = 0.5 * (r0 + r1) + 0.5 * d;
+      if (at + 1 < n) g[at] = 1.0 / ((here + (j + 1 < perLayer ? here : next)) / area(rf));
+      diag[at] = b * shellVolume(shape, width, 1.0, r0, r1) + (at > 0 ? g[at - 1] : 0.0) + (at + 1 < n ? g[at] : gs);
+      if (at > 0) {
+        const double f = -g[at - 1] / diag[at - 1];
+        diag[at] -= f * -g[at - 1];
+      }
     }
   }
-  // Conductance between cells j and j + 1, and from the last cell through the surface to the surroundings.
-  std::vector<double> g(n, 0.0);
-  for (std::size_t j = 0; j + 1 < n; ++j) {
-    const double rf = rc[j] + 0.5 * dr[j];
-    g[j] = 1.0 / ((0.5 * dr[j] / k[j] + 0.5 * dr[j + 1] / k[j + 1]) / area(rf));
-  }
-  const double rs = ls.back().outer;
-  const double gs = 1.0 / (0.5 * dr[n - 1] / (k[n - 1] * area(rs)) + 1.0 / (h * area(rs)));
-  // Tridiagonal system (Thomas algorithm): -g[j-1] t[j-1] + (g[j-1] + g[j] + beta V) t[j] - g[j] t[j+1] = rhs.
-  std::vector<double> diag(n), upper(n), rhs(n, 0.0), t(n);
-  for (std::size_t j = 0; j < n; ++j) {
-    diag[j] = beta[j] * vol[j] + (j > 0 ? g[j - 1] : 0.0) + (j + 1 < n ? g[j] : gs);
-    upper[j] = j + 1 < n ? -g[j] : 0.0;
-  }
-  rhs[n - 1] = -gs;  // surroundings at -1
-  for (std::size_t j = 1; j < n; ++j) {
-    const double f = -g[j - 1] / diag[j - 1];
-    diag[j] -= f * upper[j - 1];
-    rhs[j] -= f * rhs[j - 1];
-  }
-  t[n - 1] = rhs[n - 1] / diag[n - 1];
-  for (std::size_t j = n - 1; j-- > 0;) t[j] = (rhs[j] - upper[j] * t[j + 1]) / diag[j];
+  // The right-hand side is zero but for the last row (-gs), and elimination leaves it so (f 0 subtracted from 0).
+  t[n - 1] = -gs / diag[n - 1];
+  for (std::size_t j = n - 1; j-- > 0;) t[j] = (0.0 - -g[j] * t[j + 1]) / diag[j];
   const double surface = gs * (t[n - 1] + 1.0);  // outward [W per unit length per K]
   if (!(surface > 0.0)) return shares;
   for (std::size_t i = 0; i + 1 < ls.size(); ++i) {
@@ -320,22 +315,23 @@ double forcingInterval(const Case& c) {
 double axialGridError(const SegmentGridEstimate& e, double length, int nz, double grading) {
   if (grading > 1.0) {
     // Graded cells (axial_grading, SegmentSpec::axialEdges): each error with the cell lengths where it arises.
-    SegmentSpec probe;
-    probe.length = length;
-    probe.axialCells = nz;
-    probe.axialGrading = grading;
-    const std::vector<double> edges = probe.axialEdges(), dz = probe.axialLengths();
+    // The edges once (SegmentSpec::axialEdges without a segment, axialLengths' differences inline): this runs for
+    // every cell count of the automatic grading's searches (estimateGrid), a few hundred times per case load.
+    const std::vector<double> edges = axialCellEdges(length, nz, grading);
+    const std::size_t cells = edges.size() - 1;
+    const double last = edges[cells] - edges[cells - 1];  // the distal cell, the longest
     // The fin's: an appendage's junction at the proximal end, its profile decaying like exp(-z/l) and its error
     // density like the square of the gradient, so the cells count with exp(-2 z/l) (uniform cells: dz itself).
     // A root's ends and attachments may lie anywhere: its longest cell.
     double fin = 0.0;
     if (e.axialForced && e.decayLength > 0.0 && std::isfinite(e.decayLength)) {
-      double dzEff = dz.back();
+      double dzEff = last;
       if (e.appendage) {
         double num = 0.0, den = 0.0;
-        for (std::size_t i = 0; i < dz.size(); ++i) {
-          const double w = std::exp(-(edges[i] + edges[i + 1]) / e.decayLength) * dz[i];
-          num += w * dz[i] * dz[i];
+        for (std::size_t i = 0; i < cells; ++i) {
+          const double dz = edges[i + 1] - edges[i];
+          const double w = std::exp(-(edges[i] + edges[i + 1]) / e.decayLength) * dz;
+          num += w * dz * dz;
           den += w;
         }
         if (den > 0.0) dzEff = std::sqrt(num / den);
@@ -343,16 +339,16 @@ double axialGridError(const SegmentGridEstimate& e, double length, int nz, doubl
       fin = e.endWeight * finError(dzEff / e.decayLength);
     }
     // Exposed ends (transient and steady): the distal end cell, the longest.
-    const double ends = e.endShare * transientError(dz.back(), e.endPenetration);
-    const double steadyEnds = e.tissueEndShare * finError(dz.back() / e.decayLength) +
-                              (e.coatEndDecay > 0.0 ? e.coatEndShare * finError(dz.back() / e.coatEndDecay) : 0.0);
+    const double ends = e.endShare * transientError(last, e.endPenetration);
+    const double steadyEnds = e.tissueEndShare * finError(last / e.decayLength) +
+                              (e.coatEndDecay > 0.0 ? e.coatEndShare * finError(last / e.coatEndDecay) : 0.0);
     // The exchanger's leak: c NTU^2 times the length-weighted mean of (dz/L)^2 (uniform cells: c (NTU/N)^2). The
     // longer distal cells weigh more than that mean says: c = 1 (not the uniform 0.5) bounds the graded errors
     // measured against Incropera et al. 2007, Table 11.3 (tests/test_graded.cpp `[exchanger]`: C_r = 0.5, NTU 3
     // and 14, Q 10 and 100, 40-160 cells).
     double leak = 0.0;
     if (e.ntu > 0.0) {
-      for (double d : dz) leak += std::pow(d / length, 3);
+      for (std::size_t i = 0; i < cells; ++i) leak += std::pow((edges[i + 1] - edges[i]) / length, 3);
       leak *= e.ntu * e.ntu;
     }
     return std::max({fin, ends, steadyEnds, leak});
