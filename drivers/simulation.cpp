@@ -20,7 +20,8 @@ std::vector<double> initialState(const Body& body, const NetworkSystem& system) 
 //! Steady state of the surroundings and physiology at t = 0 [K and controller states]. Newton alone may land on
 //! an unstable branch (Q10 metabolism can balance large losses at a runaway temperature) or wander to
 //! unphysical iterates, so the state is first relaxed in pseudo-time by CVODE with time frozen at 0, from the
-//! guess until it changes by less than 1e-7 K/s, then polished by KINSOL: the steady state reached is the
+//! guess until it changes by less than 1e-5 K/s (1e-7 before KINSOL's extra Newton step made the root independent
+//! of where Newton starts), then polished by KINSOL: the steady state reached is the
 //! stable one the body would settle in from that start.
 //! With `stop` set during the relaxation, returns the relaxed state so far at the next step (no Newton polish)
 //! and sets `*stopped`. `transient` is the body's transient system (a run's own, lent for the relaxation: its
@@ -59,7 +60,7 @@ std::vector<double> steadyTemperatures(const Body& body, NetworkSystem& transien
     transient.evaluate(horizon, relax.state(), rate);
     double fastest = 0.0;
     for (Index i = 0; i < transient.nodeCount(); ++i) fastest = std::max(fastest, std::abs(rate[i]));
-    if (fastest < 1e-7) break;
+    if (fastest < 1e-5) break;
   }
   std::vector<double> start(relax.state().begin(), relax.state().begin() + static_cast<std::ptrdiff_t>(states));
   NetworkSystem steady(body.network(), NetworkSystem::Mode::Steady);
