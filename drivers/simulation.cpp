@@ -229,7 +229,9 @@ void printBudget(const Body& body, const RunSummary& s, std::FILE* out) {
              st.steps, st.rhsEvaluations, st.jacobianEvaluations, st.nonlinearIterations, st.errorTestFailures,
              st.wallSeconds);
   if (st.factorNonzeros > 0)
-    fmt::print(out, "; {} nodes, Jacobian {} nonzeros, KLU L+U {}", n.nodes.size(), st.jacobianNonzeros,
+    fmt::print(out, "; {} nodes, Jacobian {} nonzeros, {} L+U {}", n.nodes.size(), st.jacobianNonzeros,
+               st.bandwidth >= 0 ? fmt::format("band (bandwidth {}, border {})", st.bandwidth, st.bandBorder)
+                                 : std::string("KLU"),
                st.factorNonzeros);
   fmt::print(out, "\n");
 }

@@ -388,7 +388,13 @@ SolverStatistics Integrator::statistics() const {
   s.linearSetups += previous_.linearSetups;
   s.wallSeconds = wallSeconds_;
   s.jacobianNonzeros = static_cast<long>(system_.pattern().nonzeros());
-  if (newton_) s.factorNonzeros = newton_->factorNonzeros();
+  if (newton_) {
+    s.factorNonzeros = newton_->factorNonzeros();
+    if (newton_->banded()) {
+      s.bandwidth = static_cast<long>(newton_->lowerBandwidth() + newton_->upperBandwidth());
+      s.bandBorder = static_cast<long>(newton_->bandBorder());
+    }
+  }
   return s;
 }
 

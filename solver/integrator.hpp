@@ -53,7 +53,9 @@ struct SolverStatistics {
        nonlinearFailures = 0, linearSetups = 0;
   double wallSeconds = 0.0;
   long jacobianNonzeros = 0;  //!< stored entries of the sparse Jacobian
-  long factorNonzeros = 0;    //!< entries of KLU's L + U (fill), 0 for the dense solver
+  long factorNonzeros = 0;    //!< entries of KLU's L + U (fill), or of the band LU's storage; 0 for the dense solver
+  long bandwidth = -1;        //!< the band LU's lower + upper bandwidth of the factorised block; -1: KLU (or dense)
+  long bandBorder = 0;        //!< components after the band, eliminated by their Schur complement
 };
 
 namespace detail {

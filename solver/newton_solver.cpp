@@ -1,10 +1,13 @@
 #include "solver/newton_solver.hpp"
 
 #include <klu.h>
+#include <sundials/sundials_band.h>
+#include <sundials/sundials_dense.h>
 #include <sundials/sundials_linearsolver.h>
 #include <sundials/sundials_matrix.h>
 #include <nvector/nvector_serial.h>
 
+#include <algorithm>
 #include <cfloat>
 #include <cstdint>
 #include <cmath>
@@ -25,6 +28,44 @@ struct NewtonSolver::Klu {
   }
 };
 
+//! The leading block A_ff split at m into a banded part B = A[0, m) and a border of k = f - m components (blood
+//! nodes and controllers, coupled to many others):
+//!   [ B  E ] [x_1]   [b_1]
+//!   [ F  D ] [x_2] = [b_2],
+//! B factorised by SUNDIALS' band LU with partial pivoting (SUNDlsMat_bandGBTRF/GBTRS, the routines of
+//! SUNLinSol_Band), the border by its Schur complement S = D - F B^-1 E (dense LU, SUNDlsMat_denseGETRF/GETRS):
+//! x_2 = S^-1 (b_2 - F B^-1 b_1), x_1 = B^-1 b_1 - (B^-1 E) x_2 (block elimination; Golub & Van Loan 2013,
+//! sec. 3.2.10 and 4.3.6 for band LU). E, F and D are read from J where they are needed; B^-1 E is kept for the
+//! border columns that B's rows depend on (one value per node and column).
+struct NewtonSolver::Band {
+  Index size = 0;                               //!< m
+  Index lower = 0, upper = 0, storedUpper = 0;  //!< ml, mu of B, smu = min(m - 1, mu + ml) (room for the pivots' fill)
+  std::vector<double> data;                     //!< column j: rows j - smu .. j + ml, (smu + ml + 1) per column
+  std::vector<double*> columns;                 //!< SUNDIALS' column pointers into data
+  std::vector<sunindextype> pivots;
+  std::vector<Index> coupled;                   //!< border components (0-based from m) with entries in rows < m
+  std::vector<double> solved;                   //!< B^-1 E for the coupled columns [coupled x m], column by column
+  std::vector<double> schur;                    //!< S, then its LU [k x k], column-major
+  std::vector<double*> schurColumns;
+  std::vector<sunindextype> schurPivots;
+  bool factored = false;
+  Index columnLength() const { return storedUpper + lower + 1; }
+  Index border(Index f) const { return f - size; }
+  double bytes(Index f) const {
+    return static_cast<double>(size) * static_cast<double>(columnLength() * sizeof(double) + sizeof(double*) +
+                                                         sizeof(sunindextype) + coupled.size() * sizeof(double)) +
+           static_cast<double>(border(f) * border(f) * sizeof(double));
+  }
+};
+
+namespace {
+
+//! The narrowest band split of the leading block [0, f): for each border size k = 0 .. kMaxBorder, the bandwidths
+//! of A[0, f - k) in the natural order and the border columns with entries above the border.
+constexpr Index kMaxBorder = 16;
+
+}  // namespace
+
 NewtonSolver::NewtonSolver(const SparsePattern& pattern, Index factored, int scale)
     : pattern_(pattern), factored_(factored), klu_(std::make_unique<Klu>()) {
   if (factored > pattern.size || pattern.nonzeros() > static_cast<Index>(std::numeric_limits<int>::max()))
@@ -34,6 +75,49 @@ NewtonSolver::NewtonSolver(const SparsePattern& pattern, Index factored, int sca
     if (pattern.columnStart[c + 1] - pattern.columnStart[c] != 1 || pattern.rowIndex[pattern.columnStart[c]] != c)
       throw std::invalid_argument(fmt::format("state component {} is left out of the factorisation but others "
                                               "depend on it", c));
+  // Band or KLU: the band split of A_ff with the least storage (border sizes 0 .. kMaxBorder), if that storage is
+  // no more than the lower bound of the KLU path: 24 bytes per entry of the block (its values and 32-bit rows, and
+  // L + U with at least as many entries, each a value and an index), besides KLU's arrays of length n.
+  Index entries = 0;
+  for (Index c = 0; c < factored; ++c)
+    for (Index k = pattern.columnStart[c]; k < pattern.columnStart[c + 1] && pattern.rowIndex[k] < factored; ++k) ++entries;
+  std::unique_ptr<Band> best;
+  for (Index border = 0; factored > 1 && border <= std::min(kMaxBorder, factored - 2); ++border) {
+    auto b = std::make_unique<Band>();
+    b->size = factored - border;
+    std::vector<bool> coupled(border, false);
+    for (Index c = 0; c < factored; ++c)
+      for (Index k = pattern.columnStart[c]; k < pattern.columnStart[c + 1]; ++k) {
+        const Index r = pattern.rowIndex[k];
+        if (r >= b->size) break;
+        if (c >= b->size) {
+          coupled[c - b->size] = true;
+          continue;
+        }
+        b->lower = std::max(b->lower, r > c ? r - c : 0);
+        b->upper = std::max(b->upper, c > r ? c - r : 0);
+      }
+    b->storedUpper = std::min(b->size - 1, b->lower + b->upper);
+    for (Index j = 0; j < border; ++j)
+      if (coupled[j]) b->coupled.push_back(j);
+    if (!best || b->bytes(factored) < best->bytes(factored)) best = std::move(b);
+  }
+  if (best && best->bytes(factored) <= 24.0 * static_cast<double>(entries)) {
+    band_ = std::move(best);
+    Band& b = *band_;
+    b.data.resize(b.size * b.columnLength());
+    b.columns.resize(b.size);
+    for (Index c = 0; c < b.size; ++c) b.columns[c] = b.data.data() + c * b.columnLength();
+    b.pivots.resize(b.size);
+    b.solved.resize(b.coupled.size() * b.size);
+    const Index k = b.border(factored);
+    b.schur.resize(k * k);
+    b.schurColumns.resize(k);
+    for (Index j = 0; j < k; ++j) b.schurColumns[j] = b.schur.data() + j * k;
+    b.schurPivots.resize(k);
+    klu_.reset();
+    return;
+  }
   // A_ff: in each leading column the rows below `factored` come first (rows are sorted).
   blockStart_.assign(factored + 1, 0);
   for (Index c = 0; c < factored; ++c) {
@@ -57,6 +141,22 @@ void NewtonSolver::setMatrix(std::span<const double> jacobian, double alpha, dou
   jacobian_ = jacobian;
   alpha_ = alpha;
   beta_ = beta;
+  if (band_) {
+    // B's entries (beta J, plus alpha on the diagonal) in band storage: (i, j) at columns[j][smu + i - j]; the
+    // rest of the band is zero (GBTRF clears the fill rows above mu itself). E, F and D are read from J.
+    Band& b = *band_;
+    std::fill(b.data.begin(), b.data.end(), 0.0);
+    for (Index c = 0; c < b.size; ++c) {
+      double* column = b.columns[c] + b.storedUpper;
+      for (Index k = pattern_.columnStart[c]; k < pattern_.columnStart[c + 1] && pattern_.rowIndex[k] < b.size; ++k) {
+        const Index r = pattern_.rowIndex[k];
+        const double v = beta * jacobian[k];
+        column[static_cast<std::ptrdiff_t>(r) - static_cast<std::ptrdiff_t>(c)] = r == c ? v + alpha : v;
+      }
+    }
+    b.factored = false;
+    return;
+  }
   // The arithmetic of SUNDIALS' SUNMatScaleAddI on a copy of J: beta J, plus alpha on the diagonal.
   for (Index c = 0; c < factored_; ++c) {
     const Index first = pattern_.columnStart[c];
@@ -68,8 +168,55 @@ void NewtonSolver::setMatrix(std::span<const double> jacobian, double alpha, dou
 }
 
 bool NewtonSolver::factor() {
-  Klu& k = *klu_;
   if (factored_ == 0) return true;
+  if (band_) {
+    // SUNLinSolSetup_Band's factorisation of B: LU with partial pivoting; a positive return is a zero pivot.
+    Band& b = *band_;
+    const auto m = static_cast<sunindextype>(b.size);
+    b.factored = false;
+    if (SUNDlsMat_bandGBTRF(b.columns.data(), m, static_cast<sunindextype>(b.upper), static_cast<sunindextype>(b.lower),
+                            static_cast<sunindextype>(b.storedUpper), b.pivots.data()) != 0)
+      return false;
+    const Index k = b.border(factored_);
+    if (k > 0) {
+      // B^-1 E for the coupled border columns; S = D - F (B^-1 E).
+      for (Index t = 0; t < b.coupled.size(); ++t) {
+        double* w = b.solved.data() + t * b.size;
+        std::fill(w, w + b.size, 0.0);
+        const Index c = b.size + b.coupled[t];
+        for (Index p = pattern_.columnStart[c]; p < pattern_.columnStart[c + 1] && pattern_.rowIndex[p] < b.size; ++p)
+          w[pattern_.rowIndex[p]] = beta_ * jacobian_[p];
+        SUNDlsMat_bandGBTRS(b.columns.data(), m, static_cast<sunindextype>(b.storedUpper),
+                            static_cast<sunindextype>(b.lower), b.pivots.data(), w);
+      }
+      std::fill(b.schur.begin(), b.schur.end(), 0.0);
+      for (Index j = 0; j < k; ++j) {
+        const Index c = b.size + j;
+        for (Index p = pattern_.columnStart[c]; p < pattern_.columnStart[c + 1]; ++p) {
+          const Index r = pattern_.rowIndex[p];
+          if (r < b.size) continue;
+          if (r >= factored_) break;
+          const double v = beta_ * jacobian_[p];
+          b.schur[j * k + (r - b.size)] = r == c ? v + alpha_ : v;
+        }
+      }
+      for (Index c = 0; c < b.size; ++c)
+        for (Index p = pattern_.columnStart[c]; p < pattern_.columnStart[c + 1]; ++p) {
+          const Index r = pattern_.rowIndex[p];
+          if (r < b.size) continue;
+          if (r >= factored_) break;
+          const double f = beta_ * jacobian_[p];
+          for (Index t = 0; t < b.coupled.size(); ++t)
+            b.schur[b.coupled[t] * k + (r - b.size)] -= f * b.solved[t * b.size + c];
+        }
+      if (SUNDlsMat_denseGETRF(b.schurColumns.data(), static_cast<sunindextype>(k), static_cast<sunindextype>(k),
+                               b.schurPivots.data()) != 0)
+        return false;
+    }
+    b.factored = true;
+    return true;
+  }
+  Klu& k = *klu_;
   int* Ap = blockStart_.data();
   int* Ai = blockRow_.data();
   double* Ax = blockValues_.data();
@@ -100,9 +247,41 @@ bool NewtonSolver::factor() {
 }
 
 bool NewtonSolver::solve(std::span<double> x) const {
-  Klu& k = *klu_;
-  if (factored_ > 0 && !klu_solve(k.symbolic, k.numeric, static_cast<int>(factored_), 1, x.data(), &k.common))
-    return false;
+  if (band_) {
+    Band& b = *band_;  // GBTRS and GETRS take non-const pointers; they only read the factors
+    if (factored_ > 0) {
+      if (!b.factored) return false;
+      double* const xs = x.data();
+      const auto m = static_cast<sunindextype>(b.size);
+      // x_1 := B^-1 b_1
+      SUNDlsMat_bandGBTRS(b.columns.data(), m, static_cast<sunindextype>(b.storedUpper),
+                          static_cast<sunindextype>(b.lower), b.pivots.data(), xs);
+      const Index k = b.border(factored_);
+      if (k > 0) {
+        // x_2 := S^-1 (b_2 - F x_1), then x_1 -= (B^-1 E) x_2.
+        for (Index c = 0; c < b.size; ++c) {
+          const double xc = xs[c];
+          if (xc == 0.0) continue;
+          for (Index p = pattern_.columnStart[c]; p < pattern_.columnStart[c + 1]; ++p) {
+            const Index r = pattern_.rowIndex[p];
+            if (r < b.size) continue;
+            if (r >= factored_) break;
+            xs[r] -= beta_ * jacobian_[p] * xc;
+          }
+        }
+        SUNDlsMat_denseGETRS(b.schurColumns.data(), static_cast<sunindextype>(k), b.schurPivots.data(), xs + b.size);
+        for (Index t = 0; t < b.coupled.size(); ++t) {
+          const double x2 = xs[b.size + b.coupled[t]];
+          if (x2 == 0.0) continue;
+          const double* w = b.solved.data() + t * b.size;
+          for (Index i = 0; i < b.size; ++i) xs[i] -= w[i] * x2;
+        }
+      }
+    }
+  } else if (factored_ > 0) {
+    Klu& k = *klu_;
+    if (!klu_solve(k.symbolic, k.numeric, static_cast<int>(factored_), 1, x.data(), &k.common)) return false;
+  }
   if (factored_ == pattern_.size) return true;
   // x_e = D^-1 (b_e - A_ef x_f), A_ef = beta J_ef. The same operations in the same order as before, on local
   // copies of the pointers and factors (a store into x could otherwise alias them, so each was loaded again for
@@ -117,15 +296,27 @@ bool NewtonSolver::solve(std::span<double> x) const {
     const double xc = xs[c];
     if (xc == 0.0) continue;
     const Index end = start[c + 1];
-    for (Index p = start[c] + static_cast<Index>(block[c + 1] - block[c]); p < end; ++p) xs[rows[p]] -= beta * J[p] * xc;
+    Index p = start[c];
+    if (!band_) {
+      p += static_cast<Index>(block[c + 1] - block[c]);
+    } else {
+      while (p < end && rows[p] < factored_) ++p;  // band: the block's rows come first in the column
+    }
+    for (; p < end; ++p) xs[rows[p]] -= beta * J[p] * xc;
   }
   for (Index r = factored_; r < pattern_.size; ++r) xs[r] /= alpha + beta * J[start[r]];
   return true;
 }
 
 long NewtonSolver::factorNonzeros() const {
+  if (band_)
+    return band_->factored ? static_cast<long>(band_->data.size() + band_->solved.size() + band_->schur.size()) : 0;
   return klu_->numeric ? static_cast<long>(klu_->numeric->lnz) + klu_->numeric->unz : 0;
 }
+
+Index NewtonSolver::lowerBandwidth() const { return band_ ? band_->lower : 0; }
+Index NewtonSolver::upperBandwidth() const { return band_ ? band_->upper : 0; }
+Index NewtonSolver::bandBorder() const { return band_ ? band_->border(factored_) : 0; }
 
 // ---- SUNDIALS wrappers ------------------------------------------------------------------------------
 

@@ -10,6 +10,13 @@
 //! so x_f = A_ff^-1 b_f (KLU) and x_e = D^-1 (b_e - A_ef x_f): the same solution as an LU of the whole matrix
 //! (block forward substitution; Golub & Van Loan 2013, sec. 3.1), with the factors, the matrix and KLU's work
 //! space of the leading block only (about 3 of the 7 Jacobian entries per node of a body with budgets).
+//!
+//! A leading block that is narrow in its natural order but for a few components at its end (a 1-D radial grid:
+//! tridiagonal, and its arterial and venous blood nodes coupled to every cell) is factorised instead by SUNDIALS'
+//! band LU with partial pivoting (SUNDlsMat_bandGBTRF/GBTRS, the routines of SUNLinSol_Band) and the few by their
+//! Schur complement, chosen when that storage is smaller than the lower bound of the KLU path (the block's values
+//! and pattern, and L + U with at least as many entries): about 56 bytes per node for the radial grid against
+//! about 200 for KLU (its values, pattern, L and U, and Numeric's and Symbolic's arrays of length n).
 #include <cstdint>
 #include <memory>
 #include <span>
@@ -45,8 +52,14 @@ class NewtonSolver {
   bool solve(std::span<double> x) const;
   //! The next factor() analyses and factorises from scratch.
   void forget() { fresh_ = true; }
-  //! Entries of L + U of the last factorisation (0 before the first).
+  //! Entries of L + U of the last factorisation (0 before the first); band: the band storage's entries.
   long factorNonzeros() const;
+  //! The leading block is factorised by the band LU (else KLU); its lower and upper bandwidths (band only).
+  bool banded() const { return band_ != nullptr; }
+  Index lowerBandwidth() const;
+  Index upperBandwidth() const;
+  //! Components at the end of the leading block eliminated through their Schur complement (band only).
+  Index bandBorder() const;
   Index size() const { return pattern_.size; }
   Index factoredSize() const { return factored_; }
 
@@ -68,6 +81,8 @@ class NewtonSolver {
   double alpha_ = 1.0, beta_ = 0.0;
   struct Klu;  //!< KLU's common parameters, symbolic analysis and numeric factorisation
   std::unique_ptr<Klu> klu_;
+  struct Band;  //!< band storage of A_ff, its column pointers and pivots (SUNDIALS' band LU)
+  std::unique_ptr<Band> band_;
   bool fresh_ = true;
 };
 

@@ -142,3 +142,76 @@ TEST_CASE("Newton solver: a singular matrix is reported, not solved", "[newton_s
   solver.setMatrix(s.jacobian, 0.0, 1.0);
   CHECK_FALSE(solver.factor());
 }
+
+namespace {
+
+//! A tridiagonal leading block (a 1-D radial grid's conduction) of n - trailing components, the last `border` of
+//! them coupled to every earlier one (blood nodes: the first border component feeds every row, the others read
+//! every column), and `trailing` energy-like components whose rows read two leading components; diagonals dominate.
+RandomSystem bandedSystem(Index n, Index border, Index trailing, unsigned seed) {
+  std::mt19937 rng(seed);
+  const Index f = n - trailing, m = f - border;
+  std::uniform_int_distribution<Index> trailingRow(f, n - 1);
+  std::uniform_real_distribution<double> value(-1.0, 1.0);
+  RandomSystem s;
+  s.pattern.size = n;
+  s.pattern.columnStart.push_back(0);
+  for (Index c = 0; c < n; ++c) {
+    std::set<Index> rows{c};
+    if (c < m) {
+      if (c > 0) rows.insert(c - 1);
+      if (c + 1 < m) rows.insert(c + 1);
+      for (Index j = 1; j < border; ++j) rows.insert(m + j);
+      if (trailing > 0) rows.insert(trailingRow(rng));
+    } else if (c == m && border > 0) {
+      for (Index r = 0; r < m; ++r) rows.insert(r);
+    }
+    for (Index r : rows) {
+      s.pattern.rowIndex.push_back(static_cast<std::uint32_t>(r));
+      const double scale = r >= m && r < f && c < m ? 1.0 / static_cast<double>(m) : 1.0;  // rows of many entries
+      s.jacobian.push_back(r == c ? (c < f ? -(3.0 + value(rng)) : 0.0) : scale * value(rng));
+    }
+    s.pattern.columnStart.push_back(static_cast<std::uint32_t>(s.pattern.rowIndex.size()));
+  }
+  return s;
+}
+
+}  // namespace
+
+TEST_CASE("Newton solver: a tridiagonal leading block takes the band LU and matches a dense LU", "[newton_solver]") {
+  for (Index border : {0, 2}) {
+    const Index n = 500, trailing = 3;
+    RandomSystem s = bandedSystem(n, border, trailing, 20261204u);
+    NewtonSolver solver(s.pattern, n - trailing, -1);
+    INFO("border " << border);
+    REQUIRE(solver.banded());
+    CHECK(solver.lowerBandwidth() == 1);
+    CHECK(solver.upperBandwidth() == 1);
+    CHECK(solver.bandBorder() == border);
+    std::mt19937 rng(9);
+    std::uniform_real_distribution<double> value(-1.0, 1.0);
+    for (double gamma : {0.1, 2.5, 40.0}) {
+      solver.setMatrix(s.jacobian, 1.0, -gamma);
+      REQUIRE(solver.factor());
+      CHECK(solver.factorNonzeros() > 0);
+      Eigen::VectorXd b(static_cast<Eigen::Index>(n));
+      for (Eigen::Index i = 0; i < b.size(); ++i) b(i) = value(rng);
+      std::vector<double> x(b.data(), b.data() + b.size());
+      REQUIRE(solver.solve(x));
+      INFO("gamma " << gamma);
+      CHECK(relativeDifference(x, dense(s, 1.0, -gamma).partialPivLu().solve(b)) < 1e-12);
+    }
+  }
+  // The random systems above (about 7 entries per column, scattered) stay on KLU.
+  RandomSystem scattered = randomSystem(400, 24, 3, 20261203u);
+  CHECK_FALSE(NewtonSolver(scattered.pattern, 376, -1).banded());
+}
+
+TEST_CASE("Newton solver: a singular band block is reported, not solved", "[newton_solver]") {
+  RandomSystem s = bandedSystem(30, 0, 0, 4u);
+  std::fill(s.jacobian.begin(), s.jacobian.end(), 0.0);
+  NewtonSolver solver(s.pattern, 30, -1);
+  REQUIRE(solver.banded());
+  solver.setMatrix(s.jacobian, 0.0, 1.0);
+  CHECK_FALSE(solver.factor());
+}
