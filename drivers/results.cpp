@@ -91,7 +91,7 @@ constexpr int deflateLevel = 1;
 
 struct ResultsFile::ChunkCompressor {
   libdeflate_compressor* compressor = libdeflate_alloc_compressor(deflateLevel);
-  std::vector<unsigned char> raw, shuffled, packed;
+  std::vector<unsigned char> shuffled, packed;
   ~ChunkCompressor() { libdeflate_free_compressor(compressor); }
 };
 
@@ -407,10 +407,16 @@ void ResultsFile::append(std::size_t index, std::span<const double> values) {
   // Time points are collected a chunk at a time and written with one extent change and one write per chunk
   // (a few large writes instead of one per output and series).
   Series& s = series_.at(index);
-  s.pending.insert(s.pending.end(), values.begin(), values.end());
   const std::uint64_t perPoint = std::max<std::uint64_t>(
       1, std::accumulate(s.shape.begin(), s.shape.end(), std::uint64_t{1}, std::multiplies<>()));
-  if (s.pending.size() / perPoint >= s.chunkRows) flush(index);
+  if (!s.deferred && s.pending.empty() && s.count % s.chunkRows == 0 && values.size() == s.chunkRows * perPoint) {
+    // A whole chunk at once (a large field: one time point per chunk): filtered and written from the caller's
+    // values, without a copy in `pending` (the same chunk, written at the same point).
+    writeChunks(s, values, s.chunkRows);
+  } else {
+    s.pending.insert(s.pending.end(), values.begin(), values.end());
+    if (s.pending.size() / perPoint >= s.chunkRows) flush(index);
+  }
   // The time coordinate extends every group's copy with it.
   if (index == time_)
     for (const auto& [group, copy] : groupTimes_)
@@ -424,7 +430,8 @@ void ResultsFile::flush(std::size_t index) {
       1, std::accumulate(s.shape.begin(), s.shape.end(), std::uint64_t{1}, std::multiplies<>()));
   const hsize_t rows = s.pending.size() / perPoint;
   if (s.count % s.chunkRows == 0) {  // whole chunks from the start of one: filtered here
-    writeChunks(s, rows);
+    writeChunks(s, s.pending, rows);
+    s.pending.clear();
     return;
   }
   // A partly written chunk (points read back before a chunk was full): HDF5 reads, merges and refilters it.
@@ -446,7 +453,7 @@ void ResultsFile::flush(std::size_t index) {
   s.pending.clear();
 }
 
-void ResultsFile::writeChunks(Series& s, std::uint64_t rows) {
+void ResultsFile::writeChunks(Series& s, std::span<const double> points, std::uint64_t rows) {
   const std::uint64_t perPoint = std::max<std::uint64_t>(
       1, std::accumulate(s.shape.begin(), s.shape.end(), std::uint64_t{1}, std::multiplies<>()));
   std::vector<hsize_t> dims{s.count + rows};
@@ -456,18 +463,20 @@ void ResultsFile::writeChunks(Series& s, std::uint64_t rows) {
   ChunkCompressor& c = *compressor_;
   if (!c.compressor) throw std::runtime_error("cannot allocate a deflate compressor");
   const std::size_t elements = s.chunkRows * perPoint, bytes = elements * sizeof(double);
-  c.raw.resize(bytes);
   c.shuffled.resize(bytes);
   c.packed.resize(libdeflate_zlib_compress_bound(c.compressor, bytes));
   std::vector<hsize_t> offset(dims.size(), 0);
   for (std::uint64_t done = 0; done < rows; done += s.chunkRows) {
     const std::uint64_t n = std::min<std::uint64_t>(s.chunkRows, rows - done);
-    // The points, then the fill value 0 past the end of the data (as HDF5 stores a partial edge chunk).
-    std::memcpy(c.raw.data(), s.pending.data() + done * perPoint, n * perPoint * sizeof(double));
-    std::memset(c.raw.data() + n * perPoint * sizeof(double), 0, bytes - n * perPoint * sizeof(double));
-    // HDF5's shuffle filter: byte k of element i goes to k * elements + i.
-    for (std::size_t i = 0; i < elements; ++i)
-      for (std::size_t k = 0; k < sizeof(double); ++k) c.shuffled[k * elements + i] = c.raw[i * sizeof(double) + k];
+    // HDF5's shuffle filter: byte k of element i goes to k * elements + i; the elements are the points, then the
+    // fill value 0 past the end of the data (as HDF5 stores a partial edge chunk). Read from the points directly
+    // (no copy of the chunk first).
+    const auto* raw = reinterpret_cast<const unsigned char*>(points.data() + done * perPoint);
+    const std::size_t filled = n * perPoint;
+    for (std::size_t i = 0; i < filled; ++i)
+      for (std::size_t k = 0; k < sizeof(double); ++k) c.shuffled[k * elements + i] = raw[i * sizeof(double) + k];
+    for (std::size_t k = 0; k < sizeof(double); ++k)
+      std::memset(c.shuffled.data() + k * elements + filled, 0, elements - filled);
     const std::size_t size =
         libdeflate_zlib_compress(c.compressor, c.shuffled.data(), bytes, c.packed.data(), c.packed.size());
     if (size == 0) throw std::runtime_error("deflate of a chunk failed");
@@ -475,7 +484,6 @@ void ResultsFile::writeChunks(Series& s, std::uint64_t rows) {
     checkH5(H5Dwrite_chunk(s.dataset, H5P_DEFAULT, 0, offset.data(), size, c.packed.data()), "write a chunk");
   }
   s.count += rows;
-  s.pending.clear();
 }
 
 void ResultsFile::setAttribute(const std::string& object, const std::string& name, const std::string& value) {

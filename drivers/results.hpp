@@ -124,8 +124,9 @@ class ResultsFile {
   //! with H5Dwrite_chunk: the filters declared on the dataset, so every HDF5 reader decodes them as its own.
   struct ChunkCompressor;
   std::unique_ptr<ChunkCompressor> compressor_;
-  //! Write `rows` pending points of series `s`, which starts at a chunk boundary, chunk by chunk.
-  void writeChunks(Series& s, std::uint64_t rows);
+  //! Write `rows` points of series `s` (from `points`: its pending points, or a whole chunk given to append), which
+  //! starts at a chunk boundary, chunk by chunk.
+  void writeChunks(Series& s, std::span<const double> points, std::uint64_t rows);
 };
 
 }  // namespace thermorph
