@@ -1,7 +1,6 @@
 #include "solver/newton_solver.hpp"
 
 #include <klu.h>
-#include <sundials/sundials_band.h>
 #include <sundials/sundials_dense.h>
 #include <sundials/sundials_linearsolver.h>
 #include <sundials/sundials_matrix.h>
@@ -28,12 +27,100 @@ struct NewtonSolver::Klu {
   }
 };
 
+namespace {
+
+// SUNDIALS' band LU with partial pivoting (SUNDlsMat_bandGBTRF and SUNDlsMat_bandGBTRS of sundials_band.c,
+// SUNDIALS 6.4, BSD-3-Clause, Lawrence Livermore National Security and Southern Methodist University), the same
+// operations in the same order, compiled here: Debian's static SUNDIALS archives, which the `thermorph`
+// executable links, are built without optimisation (objdump shows -O0 code: every variable kept on the stack),
+// and SUNDIALS' own routine took 156 instructions per row and solve of a tridiagonal block, this one ~15.
+// tests/test_newton_solver.cpp checks that both give bit-for-bit equal factors and solutions.
+// a[j] + smu is column j's diagonal; (i, j) is a[j][i - j + smu]. Returns 0, or k + 1 for a zero pivot in column k.
+sunindextype bandFactor(double* const* a, sunindextype n, sunindextype mu, sunindextype ml, sunindextype smu,
+                        sunindextype* p) {
+  // Zero the first smu - mu rows (the room for the pivots' fill).
+  for (sunindextype c = 0; c < n; ++c)
+    for (sunindextype r = 0; r < smu - mu; ++r) a[c][r] = 0.0;
+  for (sunindextype k = 0; k < n - 1; ++k, ++p) {
+    double* const colK = a[k];
+    double* const diagK = colK + smu;
+    double* const subDiagK = diagK + 1;
+    const sunindextype lastRowK = std::min(n - 1, k + ml);
+    // l = pivot row
+    sunindextype l = k;
+    double max = std::abs(*diagK);
+    for (sunindextype i = k + 1; i <= lastRowK; ++i)
+      if (std::abs(subDiagK[i - k - 1]) > max) {
+        l = i;
+        max = std::abs(subDiagK[i - k - 1]);
+      }
+    sunindextype storageL = l - k + smu;
+    *p = l;
+    if (colK[storageL] == 0.0) return k + 1;
+    const bool swap = l != k;
+    if (swap) {
+      const double temp = colK[storageL];
+      colK[storageL] = *diagK;
+      *diagK = temp;
+    }
+    // Multipliers -a(i,k)/a(k,k) stored in a(i,k).
+    const double mult = -1.0 / (*diagK);
+    for (sunindextype i = k + 1; i <= lastRowK; ++i) subDiagK[i - k - 1] *= mult;
+    // row_i -= [a(i,k)/a(k,k)] row_k, one column j = k+1 .. min(k + smu, n - 1) at a time.
+    const sunindextype lastColK = std::min(k + smu, n - 1);
+    for (sunindextype j = k + 1; j <= lastColK; ++j) {
+      double* const colJ = a[j];
+      storageL = l - j + smu;
+      const sunindextype storageK = k - j + smu;
+      const double akj = colJ[storageL];
+      if (swap) {
+        colJ[storageL] = colJ[storageK];
+        colJ[storageK] = akj;
+      }
+      if (akj != 0.0) {
+        double* const jptr = colJ + (k + 1 - j + smu);
+        for (sunindextype i = 0; i < lastRowK - k; ++i) jptr[i] += akj * subDiagK[i];
+      }
+    }
+  }
+  *p = n - 1;
+  if (a[n - 1][smu] == 0.0) return n;
+  return 0;
+}
+
+//! b := A^-1 b from bandFactor's LU (SUNDlsMat_bandGBTRS).
+void bandSolve(const double* const* a, sunindextype n, sunindextype smu, sunindextype ml, const sunindextype* p,
+               double* b) {
+  // L y = P b
+  for (sunindextype k = 0; k < n - 1; ++k) {
+    const sunindextype l = p[k];
+    const double mult = b[l];
+    if (l != k) {
+      b[l] = b[k];
+      b[k] = mult;
+    }
+    const double* const diagK = a[k] + smu;
+    const sunindextype lastRowK = std::min(n - 1, k + ml);
+    for (sunindextype i = k + 1; i <= lastRowK; ++i) b[i] += mult * diagK[i - k];
+  }
+  // U x = y
+  for (sunindextype k = n - 1; k >= 0; --k) {
+    const double* const diagK = a[k] + smu;
+    const sunindextype firstRowK = std::max<sunindextype>(0, k - smu);
+    b[k] /= (*diagK);
+    const double mult = -b[k];
+    for (sunindextype i = firstRowK; i < k; ++i) b[i] += mult * diagK[i - k];
+  }
+}
+
+}  // namespace
+
 //! The leading block A_ff split at m into a banded part B = A[0, m) and a border of k = f - m components (blood
 //! nodes and controllers, coupled to many others):
 //!   [ B  E ] [x_1]   [b_1]
 //!   [ F  D ] [x_2] = [b_2],
-//! B factorised by SUNDIALS' band LU with partial pivoting (SUNDlsMat_bandGBTRF/GBTRS, the routines of
-//! SUNLinSol_Band), the border by its Schur complement S = D - F B^-1 E (dense LU, SUNDlsMat_denseGETRF/GETRS):
+//! B factorised by SUNDIALS' band LU with partial pivoting (the routines of SUNLinSol_Band, bandFactor and
+//! bandSolve above), the border by its Schur complement S = D - F B^-1 E (dense LU, SUNDlsMat_denseGETRF/GETRS):
 //! x_2 = S^-1 (b_2 - F B^-1 b_1), x_1 = B^-1 b_1 - (B^-1 E) x_2 (block elimination; Golub & Van Loan 2013,
 //! sec. 3.2.10 and 4.3.6 for band LU). E, F and D are read from J where they are needed; B^-1 E is kept for the
 //! border columns that B's rows depend on (one value per node and column).
@@ -174,8 +261,8 @@ bool NewtonSolver::factor() {
     Band& b = *band_;
     const auto m = static_cast<sunindextype>(b.size);
     b.factored = false;
-    if (SUNDlsMat_bandGBTRF(b.columns.data(), m, static_cast<sunindextype>(b.upper), static_cast<sunindextype>(b.lower),
-                            static_cast<sunindextype>(b.storedUpper), b.pivots.data()) != 0)
+    if (bandFactor(b.columns.data(), m, static_cast<sunindextype>(b.upper), static_cast<sunindextype>(b.lower),
+                   static_cast<sunindextype>(b.storedUpper), b.pivots.data()) != 0)
       return false;
     const Index k = b.border(factored_);
     if (k > 0) {
@@ -186,8 +273,8 @@ bool NewtonSolver::factor() {
         const Index c = b.size + b.coupled[t];
         for (Index p = pattern_.columnStart[c]; p < pattern_.columnStart[c + 1] && pattern_.rowIndex[p] < b.size; ++p)
           w[pattern_.rowIndex[p]] = beta_ * jacobian_[p];
-        SUNDlsMat_bandGBTRS(b.columns.data(), m, static_cast<sunindextype>(b.storedUpper),
-                            static_cast<sunindextype>(b.lower), b.pivots.data(), w);
+        bandSolve(b.columns.data(), m, static_cast<sunindextype>(b.storedUpper), static_cast<sunindextype>(b.lower),
+                  b.pivots.data(), w);
       }
       std::fill(b.schur.begin(), b.schur.end(), 0.0);
       for (Index j = 0; j < k; ++j) {
@@ -254,27 +341,31 @@ bool NewtonSolver::solve(std::span<double> x) const {
       double* const xs = x.data();
       const auto m = static_cast<sunindextype>(b.size);
       // x_1 := B^-1 b_1
-      SUNDlsMat_bandGBTRS(b.columns.data(), m, static_cast<sunindextype>(b.storedUpper),
-                          static_cast<sunindextype>(b.lower), b.pivots.data(), xs);
+      bandSolve(b.columns.data(), m, static_cast<sunindextype>(b.storedUpper), static_cast<sunindextype>(b.lower),
+                b.pivots.data(), xs);
       const Index k = b.border(factored_);
       if (k > 0) {
-        // x_2 := S^-1 (b_2 - F x_1), then x_1 -= (B^-1 E) x_2.
-        for (Index c = 0; c < b.size; ++c) {
+        // x_2 := S^-1 (b_2 - F x_1), then x_1 -= (B^-1 E) x_2. Local copies of the pointers (stores into x could
+        // otherwise alias them).
+        const double* const J = jacobian_.data();
+        const std::uint32_t* const rows = pattern_.rowIndex.data();
+        const auto* const start = pattern_.columnStart.data();
+        const Index size = b.size, f = factored_;
+        const double beta = beta_;
+        for (Index c = 0; c < size; ++c) {
           const double xc = xs[c];
           if (xc == 0.0) continue;
-          for (Index p = pattern_.columnStart[c]; p < pattern_.columnStart[c + 1]; ++p) {
-            const Index r = pattern_.rowIndex[p];
-            if (r < b.size) continue;
-            if (r >= factored_) break;
-            xs[r] -= beta_ * jacobian_[p] * xc;
-          }
+          Index q = start[c];
+          const Index end = start[c + 1];
+          while (q < end && rows[q] < size) ++q;
+          for (; q < end && rows[q] < f; ++q) xs[rows[q]] -= beta * J[q] * xc;
         }
-        SUNDlsMat_denseGETRS(b.schurColumns.data(), static_cast<sunindextype>(k), b.schurPivots.data(), xs + b.size);
+        SUNDlsMat_denseGETRS(b.schurColumns.data(), static_cast<sunindextype>(k), b.schurPivots.data(), xs + size);
         for (Index t = 0; t < b.coupled.size(); ++t) {
-          const double x2 = xs[b.size + b.coupled[t]];
+          const double x2 = xs[size + b.coupled[t]];
           if (x2 == 0.0) continue;
-          const double* w = b.solved.data() + t * b.size;
-          for (Index i = 0; i < b.size; ++i) xs[i] -= w[i] * x2;
+          const double* const w = b.solved.data() + t * size;
+          for (Index i = 0; i < size; ++i) xs[i] -= w[i] * x2;
         }
       }
     }

@@ -13,6 +13,11 @@
 #include <set>
 #include <vector>
 
+#include <sundials/sundials_context.h>
+#include <sunlinsol/sunlinsol_band.h>
+#include <sunmatrix/sunmatrix_band.h>
+#include <nvector/nvector_serial.h>
+
 #include "solver/newton_solver.hpp"
 
 using namespace thermorph;
@@ -205,6 +210,46 @@ TEST_CASE("Newton solver: a tridiagonal leading block takes the band LU and matc
   // The random systems above (about 7 entries per column, scattered) stay on KLU.
   RandomSystem scattered = randomSystem(400, 24, 3, 20261203u);
   CHECK_FALSE(NewtonSolver(scattered.pattern, 376, -1).banded());
+}
+
+TEST_CASE("Newton solver: the band LU gives SUNLinSol_Band's solution bit for bit", "[newton_solver]") {
+  // The band path's LU is SUNDIALS' band LU compiled here (solver/newton_solver.cpp): the same operations, so the
+  // same numbers as SUNDIALS' own band solver (SUNBandMatrix + SUNLinSol_Band) on the same matrix.
+  const Index n = 300;
+  RandomSystem s = bandedSystem(n, 0, 0, 77u);
+  NewtonSolver solver(s.pattern, n, -1);
+  REQUIRE(solver.banded());
+  SUNContext ctx = nullptr;
+  REQUIRE(SUNContext_Create(nullptr, &ctx) == 0);
+  const auto N = static_cast<sunindextype>(n);
+  SUNMatrix A = SUNBandMatrix(N, 1, 1, ctx);
+  N_Vector x = N_VNew_Serial(N, ctx), b = N_VNew_Serial(N, ctx);
+  SUNLinearSolver band = SUNLinSol_Band(x, A, ctx);
+  REQUIRE(band);
+  const double gamma = 3.0;
+  SUNMatZero(A);
+  for (Index c = 0; c < n; ++c)
+    for (Index p = s.pattern.columnStart[c]; p < s.pattern.columnStart[c + 1]; ++p) {
+      const Index r = s.pattern.rowIndex[p];
+      const double v = -gamma * s.jacobian[p];
+      SM_ELEMENT_B(A, static_cast<sunindextype>(r), static_cast<sunindextype>(c)) = r == c ? v + 1.0 : v;
+    }
+  REQUIRE(SUNLinSolSetup(band, A) == 0);
+  for (Index i = 0; i < n; ++i) NV_Ith_S(b, static_cast<sunindextype>(i)) = std::sin(0.1 * static_cast<double>(i));
+  REQUIRE(SUNLinSolSolve(band, A, x, b, 0.0) == 0);
+  solver.setMatrix(s.jacobian, 1.0, -gamma);
+  REQUIRE(solver.factor());
+  std::vector<double> ours(n);
+  for (Index i = 0; i < n; ++i) ours[i] = std::sin(0.1 * static_cast<double>(i));
+  REQUIRE(solver.solve(ours));
+  Index unequal = 0;
+  for (Index i = 0; i < n; ++i) unequal += ours[i] != NV_Ith_S(x, static_cast<sunindextype>(i));
+  CHECK(unequal == 0);
+  SUNLinSolFree(band);
+  N_VDestroy(x);
+  N_VDestroy(b);
+  SUNMatDestroy(A);
+  SUNContext_Free(&ctx);
 }
 
 TEST_CASE("Newton solver: a singular band block is reported, not solved", "[newton_solver]") {
