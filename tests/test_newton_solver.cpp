@@ -88,6 +88,21 @@ double relativeDifference(std::span<const double> x, const Eigen::VectorXd& refe
   return num / den;
 }
 
+//! Factorise I - gamma J, solve for a random right-hand side and compare with Eigen's dense LU: the relative
+//! difference; `x` and `b` get the solution and the right-hand side.
+double solveAgainstDense(NewtonSolver& solver, const RandomSystem& s, double gamma, std::mt19937& rng,
+                         std::vector<double>& x, Eigen::VectorXd& b) {
+  std::uniform_real_distribution<double> value(-1.0, 1.0);
+  solver.setMatrix(s.jacobian, 1.0, -gamma);
+  REQUIRE(solver.factor());
+  CHECK(solver.factorNonzeros() > 0);
+  b.resize(static_cast<Eigen::Index>(s.pattern.size));
+  for (Eigen::Index i = 0; i < b.size(); ++i) b(i) = value(rng);
+  x.assign(b.data(), b.data() + b.size());
+  REQUIRE(solver.solve(x));
+  return relativeDifference(x, dense(s, 1.0, -gamma).partialPivLu().solve(b));
+}
+
 }  // namespace
 
 TEST_CASE("Newton solver: KLU (32-bit) with trailing substitution matches a dense LU", "[newton_solver]") {
@@ -95,7 +110,6 @@ TEST_CASE("Newton solver: KLU (32-bit) with trailing substitution matches a dens
   RandomSystem s = randomSystem(n, trailing, 3, 20261203u);
   NewtonSolver solver(s.pattern, n - trailing, -1);
   std::mt19937 rng(7);
-  std::uniform_real_distribution<double> value(-1.0, 1.0);
   // Newton matrices I - gamma J for several gamma: the first is analysed and factorised, the later ones are
   // numeric refactorisations with the kept pivot order, then one after forget() (analysed again).
   for (double gamma : {0.1, 0.37, 2.5, 40.0, -1.0}) {
@@ -103,16 +117,10 @@ TEST_CASE("Newton solver: KLU (32-bit) with trailing substitution matches a dens
       gamma = 0.8;
       solver.forget();
     }
-    solver.setMatrix(s.jacobian, 1.0, -gamma);
-    REQUIRE(solver.factor());
-    CHECK(solver.factorNonzeros() > 0);
-    Eigen::VectorXd b(static_cast<Eigen::Index>(n));
-    for (Eigen::Index i = 0; i < b.size(); ++i) b(i) = value(rng);
-    std::vector<double> x(b.data(), b.data() + b.size());
-    REQUIRE(solver.solve(x));
-    const Eigen::VectorXd reference = dense(s, 1.0, -gamma).partialPivLu().solve(b);
+    std::vector<double> x;
+    Eigen::VectorXd b;
     INFO("gamma " << gamma);
-    CHECK(relativeDifference(x, reference) < 1e-12);
+    CHECK(solveAgainstDense(solver, s, gamma, rng, x, b) < 1e-12);
     // The solution satisfies the system itself (residual check, independent of the reference).
     const Eigen::VectorXd residual = dense(s, 1.0, -gamma) * Eigen::Map<const Eigen::VectorXd>(x.data(), b.size()) - b;
     CHECK(residual.lpNorm<Eigen::Infinity>() < 1e-12 * b.lpNorm<Eigen::Infinity>() * (1.0 + gamma * 10.0));
@@ -194,17 +202,11 @@ TEST_CASE("Newton solver: a tridiagonal leading block takes the band LU and matc
     CHECK(solver.upperBandwidth() == 1);
     CHECK(solver.bandBorder() == border);
     std::mt19937 rng(9);
-    std::uniform_real_distribution<double> value(-1.0, 1.0);
     for (double gamma : {0.1, 2.5, 40.0}) {
-      solver.setMatrix(s.jacobian, 1.0, -gamma);
-      REQUIRE(solver.factor());
-      CHECK(solver.factorNonzeros() > 0);
-      Eigen::VectorXd b(static_cast<Eigen::Index>(n));
-      for (Eigen::Index i = 0; i < b.size(); ++i) b(i) = value(rng);
-      std::vector<double> x(b.data(), b.data() + b.size());
-      REQUIRE(solver.solve(x));
+      std::vector<double> x;
+      Eigen::VectorXd b;
       INFO("gamma " << gamma);
-      CHECK(relativeDifference(x, dense(s, 1.0, -gamma).partialPivLu().solve(b)) < 1e-12);
+      CHECK(solveAgainstDense(solver, s, gamma, rng, x, b) < 1e-12);
     }
   }
   // The random systems above (about 7 entries per column, scattered) stay on KLU.
