@@ -35,27 +35,29 @@ namespace {
 // executable links, are built without optimisation (objdump shows -O0 code: every variable kept on the stack),
 // and SUNDIALS' own routine took 156 instructions per row and solve of a tridiagonal block, this one ~15.
 // tests/test_newton_solver.cpp checks that both give bit-for-bit equal factors and solutions.
-// a[j] + smu is column j's diagonal; (i, j) is a[j][i - j + smu]. Returns 0, or k + 1 for a zero pivot in column k.
-sunindextype bandFactor(double* const* a, sunindextype n, sunindextype mu, sunindextype ml, sunindextype smu,
-                        sunindextype* p) {
+// Column j starts at a + j ldim (ldim = smu + ml + 1; no array of column pointers: 8 bytes per node less) and
+// (i, j) is at a[j ldim + i - j + smu]; pivots in 32 bits. Returns 0, or k + 1 for a zero pivot in column k.
+using BandIndex = std::ptrdiff_t;
+BandIndex bandFactor(double* a, BandIndex ldim, BandIndex n, BandIndex mu, BandIndex ml, BandIndex smu,
+                     std::int32_t* p) {
   // Zero the first smu - mu rows (the room for the pivots' fill).
-  for (sunindextype c = 0; c < n; ++c)
-    for (sunindextype r = 0; r < smu - mu; ++r) a[c][r] = 0.0;
-  for (sunindextype k = 0; k < n - 1; ++k, ++p) {
-    double* const colK = a[k];
+  for (BandIndex c = 0; c < n; ++c)
+    for (BandIndex r = 0; r < smu - mu; ++r) a[c * ldim + r] = 0.0;
+  for (BandIndex k = 0; k < n - 1; ++k, ++p) {
+    double* const colK = a + k * ldim;
     double* const diagK = colK + smu;
     double* const subDiagK = diagK + 1;
-    const sunindextype lastRowK = std::min(n - 1, k + ml);
+    const BandIndex lastRowK = std::min(n - 1, k + ml);
     // l = pivot row
-    sunindextype l = k;
+    BandIndex l = k;
     double max = std::abs(*diagK);
-    for (sunindextype i = k + 1; i <= lastRowK; ++i)
+    for (BandIndex i = k + 1; i <= lastRowK; ++i)
       if (std::abs(subDiagK[i - k - 1]) > max) {
         l = i;
         max = std::abs(subDiagK[i - k - 1]);
       }
-    sunindextype storageL = l - k + smu;
-    *p = l;
+    BandIndex storageL = l - k + smu;
+    *p = static_cast<std::int32_t>(l);
     if (colK[storageL] == 0.0) return k + 1;
     const bool swap = l != k;
     if (swap) {
@@ -65,13 +67,13 @@ sunindextype bandFactor(double* const* a, sunindextype n, sunindextype mu, sunin
     }
     // Multipliers -a(i,k)/a(k,k) stored in a(i,k).
     const double mult = -1.0 / (*diagK);
-    for (sunindextype i = k + 1; i <= lastRowK; ++i) subDiagK[i - k - 1] *= mult;
+    for (BandIndex i = k + 1; i <= lastRowK; ++i) subDiagK[i - k - 1] *= mult;
     // row_i -= [a(i,k)/a(k,k)] row_k, one column j = k+1 .. min(k + smu, n - 1) at a time.
-    const sunindextype lastColK = std::min(k + smu, n - 1);
-    for (sunindextype j = k + 1; j <= lastColK; ++j) {
-      double* const colJ = a[j];
+    const BandIndex lastColK = std::min(k + smu, n - 1);
+    for (BandIndex j = k + 1; j <= lastColK; ++j) {
+      double* const colJ = a + j * ldim;
       storageL = l - j + smu;
-      const sunindextype storageK = k - j + smu;
+      const BandIndex storageK = k - j + smu;
       const double akj = colJ[storageL];
       if (swap) {
         colJ[storageL] = colJ[storageK];
@@ -79,37 +81,37 @@ sunindextype bandFactor(double* const* a, sunindextype n, sunindextype mu, sunin
       }
       if (akj != 0.0) {
         double* const jptr = colJ + (k + 1 - j + smu);
-        for (sunindextype i = 0; i < lastRowK - k; ++i) jptr[i] += akj * subDiagK[i];
+        for (BandIndex i = 0; i < lastRowK - k; ++i) jptr[i] += akj * subDiagK[i];
       }
     }
   }
-  *p = n - 1;
-  if (a[n - 1][smu] == 0.0) return n;
+  *p = static_cast<std::int32_t>(n - 1);
+  if (a[(n - 1) * ldim + smu] == 0.0) return n;
   return 0;
 }
 
 //! b := A^-1 b from bandFactor's LU (SUNDlsMat_bandGBTRS).
-void bandSolve(const double* const* a, sunindextype n, sunindextype smu, sunindextype ml, const sunindextype* p,
+void bandSolve(const double* a, BandIndex ldim, BandIndex n, BandIndex smu, BandIndex ml, const std::int32_t* p,
                double* b) {
   // L y = P b
-  for (sunindextype k = 0; k < n - 1; ++k) {
-    const sunindextype l = p[k];
+  for (BandIndex k = 0; k < n - 1; ++k) {
+    const BandIndex l = p[k];
     const double mult = b[l];
     if (l != k) {
       b[l] = b[k];
       b[k] = mult;
     }
-    const double* const diagK = a[k] + smu;
-    const sunindextype lastRowK = std::min(n - 1, k + ml);
-    for (sunindextype i = k + 1; i <= lastRowK; ++i) b[i] += mult * diagK[i - k];
+    const double* const diagK = a + k * ldim + smu;
+    const BandIndex lastRowK = std::min(n - 1, k + ml);
+    for (BandIndex i = k + 1; i <= lastRowK; ++i) b[i] += mult * diagK[i - k];
   }
   // U x = y
-  for (sunindextype k = n - 1; k >= 0; --k) {
-    const double* const diagK = a[k] + smu;
-    const sunindextype firstRowK = std::max<sunindextype>(0, k - smu);
+  for (BandIndex k = n - 1; k >= 0; --k) {
+    const double* const diagK = a + k * ldim + smu;
+    const BandIndex firstRowK = std::max<BandIndex>(0, k - smu);
     b[k] /= (*diagK);
     const double mult = -b[k];
-    for (sunindextype i = firstRowK; i < k; ++i) b[i] += mult * diagK[i - k];
+    for (BandIndex i = firstRowK; i < k; ++i) b[i] += mult * diagK[i - k];
   }
 }
 
@@ -128,8 +130,7 @@ struct NewtonSolver::Band {
   Index size = 0;                               //!< m
   Index lower = 0, upper = 0, storedUpper = 0;  //!< ml, mu of B, smu = min(m - 1, mu + ml) (room for the pivots' fill)
   std::vector<double> data;                     //!< column j: rows j - smu .. j + ml, (smu + ml + 1) per column
-  std::vector<double*> columns;                 //!< SUNDIALS' column pointers into data
-  std::vector<sunindextype> pivots;
+  std::vector<std::int32_t> pivots;
   std::vector<Index> coupled;                   //!< border components (0-based from m) with entries in rows < m
   std::vector<double> solved;                   //!< B^-1 E for the coupled columns [coupled x m], column by column
   std::vector<double> schur;                    //!< S, then its LU [k x k], column-major
@@ -139,8 +140,8 @@ struct NewtonSolver::Band {
   Index columnLength() const { return storedUpper + lower + 1; }
   Index border(Index f) const { return f - size; }
   double bytes(Index f) const {
-    return static_cast<double>(size) * static_cast<double>(columnLength() * sizeof(double) + sizeof(double*) +
-                                                         sizeof(sunindextype) + coupled.size() * sizeof(double)) +
+    return static_cast<double>(size) * static_cast<double>(columnLength() * sizeof(double) + sizeof(std::int32_t) +
+                                                         coupled.size() * sizeof(double)) +
            static_cast<double>(border(f) * border(f) * sizeof(double));
   }
 };
@@ -165,36 +166,43 @@ NewtonSolver::NewtonSolver(const SparsePattern& pattern, Index factored, int sca
   // Band or KLU: the band split of A_ff with the least storage (border sizes 0 .. kMaxBorder), if that storage is
   // no more than the lower bound of the KLU path: 24 bytes per entry of the block (its values and 32-bit rows, and
   // L + U with at least as many entries, each a value and an index), besides KLU's arrays of length n.
+  // One pass over the block: an entry (r, c) lies in B for every border size k < f - max(r, c), so the bandwidths
+  // of each split are suffix maxima over t = min(kMaxBorder, f - 1 - max(r, c)).
   Index entries = 0;
+  const Index borders = factored > 1 ? std::min(kMaxBorder, factored - 2) + 1 : 0;
+  std::vector<Index> lowerAt(borders, 0), upperAt(borders, 0);
   for (Index c = 0; c < factored; ++c)
-    for (Index k = pattern.columnStart[c]; k < pattern.columnStart[c + 1] && pattern.rowIndex[k] < factored; ++k) ++entries;
+    for (Index k = pattern.columnStart[c]; k < pattern.columnStart[c + 1] && pattern.rowIndex[k] < factored; ++k) {
+      ++entries;
+      const Index r = pattern.rowIndex[k];
+      if (borders == 0) continue;
+      const Index t = std::min(borders - 1, factored - 1 - std::max(r, c));
+      if (r > c) lowerAt[t] = std::max(lowerAt[t], r - c);
+      if (c > r) upperAt[t] = std::max(upperAt[t], c - r);
+    }
+  for (Index t = borders; t-- > 1;) {
+    lowerAt[t - 1] = std::max(lowerAt[t - 1], lowerAt[t]);
+    upperAt[t - 1] = std::max(upperAt[t - 1], upperAt[t]);
+  }
   std::unique_ptr<Band> best;
-  for (Index border = 0; factored > 1 && border <= std::min(kMaxBorder, factored - 2); ++border) {
+  for (Index border = 0; border < borders; ++border) {
     auto b = std::make_unique<Band>();
     b->size = factored - border;
-    std::vector<bool> coupled(border, false);
-    for (Index c = 0; c < factored; ++c)
-      for (Index k = pattern.columnStart[c]; k < pattern.columnStart[c + 1]; ++k) {
-        const Index r = pattern.rowIndex[k];
-        if (r >= b->size) break;
-        if (c >= b->size) {
-          coupled[c - b->size] = true;
-          continue;
-        }
-        b->lower = std::max(b->lower, r > c ? r - c : 0);
-        b->upper = std::max(b->upper, c > r ? c - r : 0);
-      }
+    b->lower = lowerAt[border];
+    b->upper = upperAt[border];
     b->storedUpper = std::min(b->size - 1, b->lower + b->upper);
-    for (Index j = 0; j < border; ++j)
-      if (coupled[j]) b->coupled.push_back(j);
+    // Border columns with entries in B's rows (rows are sorted: the first entry decides).
+    for (Index j = 0; j < border; ++j) {
+      const Index c = b->size + j;
+      if (pattern.columnStart[c] < pattern.columnStart[c + 1] && pattern.rowIndex[pattern.columnStart[c]] < b->size)
+        b->coupled.push_back(j);
+    }
     if (!best || b->bytes(factored) < best->bytes(factored)) best = std::move(b);
   }
   if (best && best->bytes(factored) <= 24.0 * static_cast<double>(entries)) {
     band_ = std::move(best);
     Band& b = *band_;
     b.data.resize(b.size * b.columnLength());
-    b.columns.resize(b.size);
-    for (Index c = 0; c < b.size; ++c) b.columns[c] = b.data.data() + c * b.columnLength();
     b.pivots.resize(b.size);
     b.solved.resize(b.coupled.size() * b.size);
     const Index k = b.border(factored);
@@ -229,12 +237,12 @@ void NewtonSolver::setMatrix(std::span<const double> jacobian, double alpha, dou
   alpha_ = alpha;
   beta_ = beta;
   if (band_) {
-    // B's entries (beta J, plus alpha on the diagonal) in band storage: (i, j) at columns[j][smu + i - j]; the
+    // B's entries (beta J, plus alpha on the diagonal) in band storage: (i, j) at data[j ldim + smu + i - j]; the
     // rest of the band is zero (GBTRF clears the fill rows above mu itself). E, F and D are read from J.
     Band& b = *band_;
     std::fill(b.data.begin(), b.data.end(), 0.0);
     for (Index c = 0; c < b.size; ++c) {
-      double* column = b.columns[c] + b.storedUpper;
+      double* column = b.data.data() + c * b.columnLength() + b.storedUpper;
       for (Index k = pattern_.columnStart[c]; k < pattern_.columnStart[c + 1] && pattern_.rowIndex[k] < b.size; ++k) {
         const Index r = pattern_.rowIndex[k];
         const double v = beta * jacobian[k];
@@ -259,10 +267,10 @@ bool NewtonSolver::factor() {
   if (band_) {
     // SUNLinSolSetup_Band's factorisation of B: LU with partial pivoting; a positive return is a zero pivot.
     Band& b = *band_;
-    const auto m = static_cast<sunindextype>(b.size);
+    const auto m = static_cast<BandIndex>(b.size), ldim = static_cast<BandIndex>(b.columnLength());
     b.factored = false;
-    if (bandFactor(b.columns.data(), m, static_cast<sunindextype>(b.upper), static_cast<sunindextype>(b.lower),
-                   static_cast<sunindextype>(b.storedUpper), b.pivots.data()) != 0)
+    if (bandFactor(b.data.data(), ldim, m, static_cast<BandIndex>(b.upper), static_cast<BandIndex>(b.lower),
+                   static_cast<BandIndex>(b.storedUpper), b.pivots.data()) != 0)
       return false;
     const Index k = b.border(factored_);
     if (k > 0) {
@@ -273,7 +281,7 @@ bool NewtonSolver::factor() {
         const Index c = b.size + b.coupled[t];
         for (Index p = pattern_.columnStart[c]; p < pattern_.columnStart[c + 1] && pattern_.rowIndex[p] < b.size; ++p)
           w[pattern_.rowIndex[p]] = beta_ * jacobian_[p];
-        bandSolve(b.columns.data(), m, static_cast<sunindextype>(b.storedUpper), static_cast<sunindextype>(b.lower),
+        bandSolve(b.data.data(), ldim, m, static_cast<BandIndex>(b.storedUpper), static_cast<BandIndex>(b.lower),
                   b.pivots.data(), w);
       }
       std::fill(b.schur.begin(), b.schur.end(), 0.0);
@@ -339,9 +347,9 @@ bool NewtonSolver::solve(std::span<double> x) const {
     if (factored_ > 0) {
       if (!b.factored) return false;
       double* const xs = x.data();
-      const auto m = static_cast<sunindextype>(b.size);
+      const auto m = static_cast<BandIndex>(b.size), ldim = static_cast<BandIndex>(b.columnLength());
       // x_1 := B^-1 b_1
-      bandSolve(b.columns.data(), m, static_cast<sunindextype>(b.storedUpper), static_cast<sunindextype>(b.lower),
+      bandSolve(b.data.data(), ldim, m, static_cast<BandIndex>(b.storedUpper), static_cast<BandIndex>(b.lower),
                 b.pivots.data(), xs);
       const Index k = b.border(factored_);
       if (k > 0) {
@@ -383,17 +391,22 @@ bool NewtonSolver::solve(std::span<double> x) const {
   const auto* const start = pattern_.columnStart.data();
   const int* const block = blockStart_.data();
   const double alpha = alpha_, beta = beta_;
-  for (Index c = 0; c < factored_; ++c) {
-    const double xc = xs[c];
-    if (xc == 0.0) continue;
-    const Index end = start[c + 1];
-    Index p = start[c];
-    if (!band_) {
-      p += static_cast<Index>(block[c + 1] - block[c]);
-    } else {
-      while (p < end && rows[p] < factored_) ++p;  // band: the block's rows come first in the column
+  if (!band_) {
+    for (Index c = 0; c < factored_; ++c) {
+      const double xc = xs[c];
+      if (xc == 0.0) continue;
+      const Index end = start[c + 1];
+      for (Index p = start[c] + static_cast<Index>(block[c + 1] - block[c]); p < end; ++p) xs[rows[p]] -= beta * J[p] * xc;
     }
-    for (; p < end; ++p) xs[rows[p]] -= beta * J[p] * xc;
+  } else {
+    for (Index c = 0; c < factored_; ++c) {
+      const double xc = xs[c];
+      if (xc == 0.0) continue;
+      const Index end = start[c + 1];
+      Index p = start[c];
+      while (p < end && rows[p] < factored_) ++p;  // the block's rows come first in the column
+      for (; p < end; ++p) xs[rows[p]] -= beta * J[p] * xc;
+    }
   }
   for (Index r = factored_; r < pattern_.size; ++r) xs[r] /= alpha + beta * J[start[r]];
   return true;
