@@ -312,47 +312,69 @@ double forcingInterval(const Case& c) {
   return std::isfinite(tau) ? tau : 0.0;
 }
 
-double axialGridError(const SegmentGridEstimate& e, double length, int nz, double grading) {
-  if (grading > 1.0) {
-    // Graded cells (axial_grading, SegmentSpec::axialEdges): each error with the cell lengths where it arises.
-    // The edges once (SegmentSpec::axialEdges without a segment, axialLengths' differences inline): this runs for
-    // every cell count of the automatic grading's searches (estimateGrid), a few hundred times per case load.
-    const std::vector<double> edges = axialCellEdges(length, nz, grading);
-    const std::size_t cells = edges.size() - 1;
-    const double last = edges[cells] - edges[cells - 1];  // the distal cell, the longest
-    // The fin's: an appendage's junction at the proximal end, its profile decaying like exp(-z/l) and its error
-    // density like the square of the gradient, so the cells count with exp(-2 z/l) (uniform cells: dz itself).
-    // A root's ends and attachments may lie anywhere: its longest cell.
-    double fin = 0.0;
-    if (e.axialForced && e.decayLength > 0.0 && std::isfinite(e.decayLength)) {
-      double dzEff = last;
-      if (e.appendage) {
-        double num = 0.0, den = 0.0;
-        for (std::size_t i = 0; i < cells; ++i) {
-          const double dz = edges[i + 1] - edges[i];
-          const double w = std::exp(-(edges[i] + edges[i + 1]) / e.decayLength) * dz;
-          num += w * dz * dz;
-          den += w;
-        }
-        if (den > 0.0) dzEff = std::sqrt(num / den);
+namespace {
+
+//! axialGridError of graded cells. With `above` finite, the searches' question only: as soon as one term is known to
+//! exceed `above`, that term is returned (then the error exceeds `above` too) and the costlier terms are not computed
+//! (the fin's exp and the leak's pow per cell). It returns early only where the fin term cannot be NaN (a finite
+//! weight, and finError's argument, at most the distal cell over the decay length, below 1e50), since std::max of
+//! the four terms is NaN exactly when the fin's, the first, is.
+double gradedAxialGridError(const SegmentGridEstimate& e, double length, int nz, double grading, double above) {
+  // Each error with the cell lengths where it arises. The edges once (SegmentSpec::axialEdges without a segment,
+  // axialLengths' differences inline): this runs for every cell count of the automatic grading's searches
+  // (estimateGrid), a few hundred times per case load.
+  const std::vector<double> edges = axialCellEdges(length, nz, grading);
+  const std::size_t cells = edges.size() - 1;
+  const double last = edges[cells] - edges[cells - 1];  // the distal cell, the longest
+  const bool finTerm = e.axialForced && e.decayLength > 0.0 && std::isfinite(e.decayLength);
+  const bool early = std::isfinite(above) && (!finTerm || (std::isfinite(e.endWeight) && last / e.decayLength < 1e50));
+  // Exposed ends (transient and steady): the distal end cell, the longest.
+  const double ends = e.endShare * transientError(last, e.endPenetration);
+  const double steadyEnds = e.tissueEndShare * finError(last / e.decayLength) +
+                            (e.coatEndDecay > 0.0 ? e.coatEndShare * finError(last / e.coatEndDecay) : 0.0);
+  if (early && ends > above) return ends;
+  if (early && steadyEnds > above) return steadyEnds;
+  // The fin's: an appendage's junction at the proximal end, its profile decaying like exp(-z/l) and its error
+  // density like the square of the gradient, so the cells count with exp(-2 z/l) (uniform cells: dz itself).
+  // A root's ends and attachments may lie anywhere: its longest cell.
+  double fin = 0.0;
+  if (finTerm) {
+    double dzEff = last;
+    if (e.appendage) {
+      double num = 0.0, den = 0.0;
+      for (std::size_t i = 0; i < cells; ++i) {
+        const double dz = edges[i + 1] - edges[i];
+        const double w = std::exp(-(edges[i] + edges[i + 1]) / e.decayLength) * dz;
+        num += w * dz * dz;
+        den += w;
       }
-      fin = e.endWeight * finError(dzEff / e.decayLength);
+      if (den > 0.0) dzEff = std::sqrt(num / den);
     }
-    // Exposed ends (transient and steady): the distal end cell, the longest.
-    const double ends = e.endShare * transientError(last, e.endPenetration);
-    const double steadyEnds = e.tissueEndShare * finError(last / e.decayLength) +
-                              (e.coatEndDecay > 0.0 ? e.coatEndShare * finError(last / e.coatEndDecay) : 0.0);
-    // The exchanger's leak: c NTU^2 times the length-weighted mean of (dz/L)^2 (uniform cells: c (NTU/N)^2). The
-    // longer distal cells weigh more than that mean says: c = 1 (not the uniform 0.5) bounds the graded errors
-    // measured against Incropera et al. 2007, Table 11.3 (tests/test_graded.cpp `[exchanger]`: C_r = 0.5, NTU 3
-    // and 14, Q 10 and 100, 40-160 cells).
-    double leak = 0.0;
-    if (e.ntu > 0.0) {
-      for (std::size_t i = 0; i < cells; ++i) leak += std::pow((edges[i + 1] - edges[i]) / length, 3);
-      leak *= e.ntu * e.ntu;
-    }
-    return std::max({fin, ends, steadyEnds, leak});
+    fin = e.endWeight * finError(dzEff / e.decayLength);
   }
+  if (early && fin > above) return fin;
+  // The exchanger's leak: c NTU^2 times the length-weighted mean of (dz/L)^2 (uniform cells: c (NTU/N)^2). The
+  // longer distal cells weigh more than that mean says: c = 1 (not the uniform 0.5) bounds the graded errors
+  // measured against Incropera et al. 2007, Table 11.3 (tests/test_graded.cpp `[exchanger]`: C_r = 0.5, NTU 3
+  // and 14, Q 10 and 100, 40-160 cells).
+  double leak = 0.0;
+  if (e.ntu > 0.0) {
+    for (std::size_t i = 0; i < cells; ++i) leak += std::pow((edges[i + 1] - edges[i]) / length, 3);
+    leak *= e.ntu * e.ntu;
+  }
+  return std::max({fin, ends, steadyEnds, leak});
+}
+
+//! Whether axialGridError(e, length, nz, grading) > target (the automatic searches' test).
+bool axialGridErrorAbove(const SegmentGridEstimate& e, double length, int nz, double grading, double target) {
+  return grading > 1.0 ? gradedAxialGridError(e, length, nz, grading, target) > target
+                       : axialGridError(e, length, nz, grading) > target;
+}
+
+}  // namespace
+
+double axialGridError(const SegmentGridEstimate& e, double length, int nz, double grading) {
+  if (grading > 1.0) return gradedAxialGridError(e, length, nz, grading, std::numeric_limits<double>::infinity());
   double fin = e.axialForced && e.decayLength > 0.0 && std::isfinite(e.decayLength)
                    ? e.endWeight * finError(length / nz / e.decayLength)
                    : 0.0;
@@ -668,7 +690,7 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
     auto gradeTowardsJunction = [&](double corner) {
       for (double q : {10.0, 30.0, 100.0, 300.0, 1000.0}) {
         int cells = 4;
-        while (cells < kMaxAutoAxialCells && axialGridError(e, s.length, cells, q) > target)
+        while (cells < kMaxAutoAxialCells && axialGridErrorAbove(e, s.length, cells, q, target))
           cells = std::max(cells + 1, cells * 11 / 10);
         if (s.vessels.shuntFlowMax > 0.0 || !children[g].empty()) cells = std::max(cells, 10);
         if (cells % 2) ++cells;
@@ -741,7 +763,7 @@ void resolveGrid(Case& c) {
           s.axialCells = e.gradedNeeded * f;
         } else if (s.axialGrading > 1.0) {
           int n = 4;
-          while (n < kMaxAutoAxialCells && axialGridError(e, s.length, n, s.axialGrading) > gridTargetError(c))
+          while (n < kMaxAutoAxialCells && axialGridErrorAbove(e, s.length, n, s.axialGrading, gridTargetError(c)))
             n = std::max(n + 1, n * 11 / 10);
           n = std::max(n, std::min(e.axialNeeded, 10));
           s.axialCells = (n + n % 2) * f;
@@ -757,7 +779,7 @@ void resolveGrid(Case& c) {
         const double err = axialGridError(e, s.length, s.axialCells, s.axialGrading);
         if (err > kGridWarnError) {
           int need = s.axialCells;
-          while (need < 100000 && axialGridError(e, s.length, need, s.axialGrading) > kGridWarnError) need = std::max(need + 1, need * 21 / 20);
+          while (need < 100000 && axialGridErrorAbove(e, s.length, need, s.axialGrading, kGridWarnError)) need = std::max(need + 1, need * 21 / 20);
           std::string why;
           if (e.axialForced && std::isfinite(e.decayLength)) why = fmt::format("decay length {:.3g} mm", 1e3 * e.decayLength);
           if (e.ntu > 0.0) why += fmt::format("{}countercurrent NTU {:.3g}", why.empty() ? "" : ", ", e.ntu);
