@@ -31,7 +31,9 @@ double roundDown(double needed) {
 
 }  // namespace
 
-ControlGridWatch::ControlGridWatch(const Body& body, const NetworkSystem& system) : body_(body), system_(system) {
+ControlGridWatch::ControlGridWatch(const Body& body, const NetworkSystem& system, bool steady)
+    : body_(body), system_(system), // A Steady-mode system keeps no group energies in its state.
+      steady_(steady || (system.groupCount() == 0 && !body.network().groups.empty())) {
   const Network& net = body.network();
   const Index nodes = system.nodeCount();
   // Controllers that drive terms directly, by modulator.
@@ -94,8 +96,8 @@ ControlGridWatch::ControlGridWatch(const Body& body, const NetworkSystem& system
   // again here builds an EnvironmentModel, which resets this thread's log of validity warnings: a resolved case
   // (every case loaded from a file) keeps the run's warnings; the new estimate is for cases built without it.
   const bool kept = spec.gridEstimates && spec.gridEstimates->size() == spec.segments.size();
-  const std::vector<SegmentGridEstimate> own = kept ? std::vector<SegmentGridEstimate>{} : estimateGrid(spec);
-  const std::vector<SegmentGridEstimate>& estimates = kept ? *spec.gridEstimates : own;
+  estimates_ = kept ? *spec.gridEstimates : estimateGrid(spec);
+  const std::vector<SegmentGridEstimate>& estimates = estimates_;
   for (std::size_t g = 0; g < estimates.size(); ++g)
     gridError_ = std::max(gridError_, segmentGridError(spec, g, estimates[g]));
   // The signal's own reading: the estimated error of each layer its nodes lie in (kSignalFactor above).
@@ -117,8 +119,22 @@ ControlGridWatch::ControlGridWatch(const Body& body, const NetworkSystem& system
       }
     }
   }
+  // The scope's heat capacity, copies weighted (C of the stored shift and of the storage term).
+  std::vector<double> groupCapacity(groups, 0.0);
+  for (const NetworkNode& node : net.nodes) groupCapacity[node.group] += node.capacity;
+  for (Watched& w : controllers_)
+    for (Index g = 0; g < groups; ++g)
+      if (w.scope[g]) w.capacity += net.groupWeights[g] * groupCapacity[g];
+  steady_ = steady_ || spec.run.initial == InitialCondition::Steady;
   tolerance_ = spec.run.gridTolerance;
   limit_ = std::max(kGridWarnError, tolerance_);
+}
+
+void ControlGridWatch::start(double t, std::span<const double> y) {
+  if (started_ || controllers_.empty()) return;
+  started_ = true;
+  start_ = last_ = t;
+  (void)y;
 }
 
 double ControlGridWatch::effectiveGain(const Watched& w) const {
@@ -136,9 +152,23 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
   const Index nodes = system_.nodeCount(), channels = net.channels.size(), groups = net.groups.size();
   if (flows.size() < groups * channels) return;
   if (std::all_of(flows.begin(), flows.end(), [](double f) { return f == 0.0; })) return;  // flows not computed
+  start(t, y);
+  const double dt = t - last_;
+  last_ = t;
   system_.modulatorValues(t, y, modulators_);
   std::vector<char> internal(channels, 0);
   for (Index ch = 0; ch < channels; ++ch) internal[ch] = net.channels[ch] == "blood" || net.channels[ch] == "conduction";
+  // Heat each group (one copy) has lost to its surroundings since the start, for the storage term (trapezoidal
+  // over the outputs; the first observation after the start, a sweep's last output: rectangle).
+  exchanged_.resize(groups, 0.0);
+  lastLoss_.resize(groups, -1.0);
+  for (Index g = 0; g < groups; ++g) {
+    double loss = 0.0;
+    for (Index ch = 0; ch < channels; ++ch)
+      if (!internal[ch]) loss += std::max(0.0, -flows[g * channels + ch]);
+    if (dt > 0.0) exchanged_[g] += (lastLoss_[g] < 0.0 ? loss : 0.5 * (lastLoss_[g] + loss)) * dt;
+    lastLoss_[g] = loss;
+  }
   auto weight = [&](Index node) { return net.groupWeights[net.nodes[node].group]; };
 
   struct Now {
@@ -148,16 +178,28 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
   std::vector<Now> now(controllers_.size());
   std::vector<double> stiffness;
   for (std::size_t i = 0; i < controllers_.size(); ++i) {
-    const Watched& w = controllers_[i];
+    Watched& w = controllers_[i];
     const Controller& head = net.controllers[w.head];
+    Now& n = now[i];
     const bool enabled = head.enableSchedule == none || net.schedules->value(head.enableSchedule, t) > 0.5;
+    if (enabled) {
+      for (Index g = 0; g < groups; ++g) {
+        if (!w.scope[g]) continue;
+        for (Index ch = 0; ch < channels; ++ch)
+          if (!internal[ch]) n.balanced += net.groupWeights[g] * std::max(0.0, -flows[g * channels + ch]);
+      }
+    }
+    // int eps L dt / C: the heat-flow error the scope can have stored by now (trapezoidal over the outputs).
+    const double source = (gridError_ + w.signalError) * n.balanced;
+    if (w.capacity > 0.0 && dt > 0.0)  // the first observation after the start (a sweep's last output): rectangle
+      w.stored += (w.lastSource < 0.0 ? source : 0.5 * (w.lastSource + source)) * dt / w.capacity;
+    w.lastSource = source;
     if (!enabled) continue;
     double signal = 0.0;
     for (auto [node, share] : head.signal) signal += share * y[node];
     const double setpoint = head.setpointSchedule == none ? head.setpoint : net.schedules->value(head.setpointSchedule, t);
     const double raw = head.bias + head.gain * (signal - setpoint);
     if (!(raw > head.lower && raw < head.upper)) continue;  // clamped: no grid error of its own
-    Now& n = now[i];
     n.u = y[nodes + w.control];
     n.gain = effectiveGain(w);
     for (const Term& term : w.terms) {
@@ -182,23 +224,36 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
         }
       }
     }
-    for (Index g = 0; g < groups; ++g) {
-      if (!w.scope[g]) continue;
-      for (Index ch = 0; ch < channels; ++ch)
-        if (!internal[ch]) n.balanced += net.groupWeights[g] * std::max(0.0, -flows[g * channels + ch]);
-    }
     if (!(n.carried > 0.0) || !(n.balanced > 0.0)) continue;
     n.active = true;
     if (stiffness.size() <= w.loop) stiffness.resize(w.loop + 1, 0.0);
     stiffness[w.loop] += n.gain * n.carried / std::max(std::abs(n.u), 1e-12);
   }
+  const Case& spec = body_.spec();
   for (std::size_t i = 0; i < controllers_.size(); ++i) {
     const Now& n = now[i];
     if (!n.active) continue;
-    const Controller& c = net.controllers[controllers_[i].control];
-    const double eps = gridError_ + controllers_[i].signalError;
-    const double shift = eps * n.balanced / stiffness[controllers_[i].loop];  // dT of the signal [K]
-    const double error = n.gain * shift / std::max(std::abs(n.u), kOutputFloor * (c.upper - c.lower));
+    const Watched& w = controllers_[i];
+    const Controller& c = net.controllers[w.control];
+    const double eps = gridError_ + w.signalError;
+    double shift = eps * n.balanced / stiffness[w.loop];  // dT of the signal [K], quasi-static
+    // From a uniform start: at most what the heat-flow error can have stored (a steady start has it in full).
+    if (!steady_) shift = std::min(shift, w.stored);
+    // The storage transient since a start from a uniform temperature: sum_g E_g(t) Q_g(t) / C (weighted copies).
+    double storage = 0.0, worst = 0.0;
+    StorageTransientError worstLayer;
+    std::size_t worstSegment = 0;
+    if (!steady_ && t > start_ && w.capacity > 0.0) {
+      for (std::size_t g = 0; g < spec.segments.size() && g < estimates_.size() && g < groups; ++g) {
+        if (!w.scope[g]) continue;
+        const StorageTransientError s = storageTransientError(spec.segments[g], estimates_[g], t - start_);
+        const double part = s.error * net.groupWeights[g] * exchanged_[g] / w.capacity;
+        storage += part;
+        if (part > worst) worst = part, worstLayer = s, worstSegment = g;
+      }
+    }
+    const double floor = std::max(std::abs(n.u), kOutputFloor * (c.upper - c.lower));
+    const double error = n.gain * (shift + storage) / floor;
     Estimate& e = worst_[i];
     if (e.observed && error <= e.error) continue;
     e.observed = true;
@@ -208,24 +263,55 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
     e.carried = n.carried;
     e.gridError = eps;
     e.error = error;
-    e.magnification = eps > 0.0 ? error / eps : 0.0;
+    e.magnification = eps > 0.0 ? n.gain * eps * n.balanced / stiffness[w.loop] / floor / eps : 0.0;
+    e.storageError = n.gain * storage / floor;
+    e.segment = worstSegment;
+    e.layer = worstLayer.layer;
+    e.cells = worstLayer.cells;
+    e.cellsNeeded = 0;
+    // Cells of that layer that bring the storage term below half the limit (it falls as 1 / cells^2).
+    const double part = n.gain * worst / floor;
+    if (e.storageError > 0.5 * limit_ && part > 0.0) {
+      const double target = std::max(0.5 * limit_ - (e.storageError - part), 0.125 * limit_);
+      e.cellsNeeded = static_cast<int>(std::ceil(worstLayer.cells * std::sqrt(part / target) - 1e-9));
+    }
   }
 }
 
 std::vector<std::string> ControlGridWatch::warnings() const {
   std::vector<std::string> out;
+  const Case& spec = body_.spec();
   for (std::size_t i = 0; i < worst_.size(); ++i) {
     const Estimate& e = worst_[i];
     if (!e.observed || !(e.error > limit_)) continue;
     // Automatic counts bring both parts of eps down in proportion to the tolerance (models/grid.cpp).
-    const double tolerance = roundDown(tolerance_ * limit_ / e.error);
-    out.push_back(fmt::format(
+    const double quasiStatic = e.error - e.storageError;
+    std::string text = fmt::format(
         "grid: controller {}: its output {:.3g} at t = {:g} s balances {:.3g} W lost by {} with {:.3g} W it carries "
         "(magnification {:.3g}): the grid's estimated {:.2g} % error in heat flows and in the signal makes an estimated {:.2g} % error "
-        "in this output (more than {:g} %); about run.grid_tolerance = {:g} (now {:g}) meets it on automatic cell "
-        "counts (they change in steps: rerun to see; given counts: refine them, or check with `thermorph refine`)",
+        "in this output (more than {:g} %)",
         e.controller, e.output, e.time, e.balanced, controllers_[i].scopeName, e.carried, e.magnification,
-        100.0 * e.gridError, 100.0 * e.error, 100.0 * limit_, tolerance, tolerance_));
+        100.0 * e.gridError, 100.0 * e.error, 100.0 * limit_);
+    if (e.storageError > 0.0) {
+      const SegmentSpec& seg = spec.segments.at(e.segment);
+      const bool coat = e.layer >= seg.layers.size();
+      const std::string where = coat ? fmt::format("segments.{}.coat.cells", seg.name)
+                                     : fmt::format("segments.{}.layers[{}].cells", seg.name, e.layer);
+      text += fmt::format(", {:.2g} % of it from the heat stored since the uniform start (most in {}'s {} on {} radial "
+                          "cells, {}",
+                          100.0 * e.storageError, seg.name, coat ? "coat" : seg.layers[e.layer].tissue, e.cells, where);
+      text += e.cellsNeeded > 0 ? fmt::format(": about {} cells meet it)", e.cellsNeeded) : ")";
+    }
+    if (!(e.storageError > 0.0) || quasiStatic > 0.5 * limit_) {
+      const bool rest = e.storageError > 0.0;
+      const double tolerance = roundDown(tolerance_ * (rest ? 0.5 : 1.0) * limit_ / quasiStatic);
+      text += fmt::format("; about run.grid_tolerance = {:g} (now {:g}) meets {} on automatic cell counts (they change "
+                          "in steps: rerun to see; given counts: refine them, or check with `thermorph refine`)",
+                          tolerance, tolerance_, rest ? "the rest" : "it");
+    } else {
+      text += "; check with `thermorph refine`";
+    }
+    out.push_back(std::move(text));
   }
   return out;
 }

@@ -17,6 +17,19 @@
 //! respiration, not the blood or conduction between segments) by the scope: the whole body when the signal reads
 //! the core segment (core temperature, mean skin), else the segments whose skin the signal reads.
 //!
+//! In a transient run two things change that picture (measured on cases/cold_feet_demo.toml against its 4x grid,
+//! DEVELOPERS.md "Controller outputs' grid error over time"):
+//!   * the heat-flow error eps L has to be stored before it moves the signal: from a start at a uniform
+//!     temperature the quasi-static shift is capped by what it can have stored, int eps L dt / C, C the heat
+//!     capacity of the scope (a run from a steady state, or a steady run, starts with it in full);
+//!   * the storage transient: after a start from a uniform temperature (or a step of the surroundings) the cells
+//!     near the surface, and the coat's, release their heat late or early; the heat Q_g(t) each segment g has lost
+//!     to its surroundings since the start is off by E_g(t) (models/grid.hpp storageTransientError, the
+//!     penetration rule at time t, coat included), so the scope's stored heat by sum_g E_g Q_g, and the signal by
+//!     that over C.
+//! The output's error is |g| (min(dT_s, int eps L dt / C) + sum_g E_g Q_g / C) / max(|u|, floor); the warning
+//! names the layer that carries the storage term and the radial cells that would bring it below half the limit.
+//!
 //! Checked at every output where the output's target is inside its limits (a clamped output carries no grid
 //! error of its own); the largest estimate of each controller above max(1 %, run.grid_tolerance) becomes a
 //! warning of the run (stored with the others in result files and sweep rows) naming the tolerance that meets it.
@@ -25,16 +38,23 @@
 #include <vector>
 
 #include "models/body.hpp"
+#include "models/grid.hpp"
 #include "solver/assembly.hpp"
 
 namespace thermorph {
 
 class ControlGridWatch {
  public:
-  ControlGridWatch(const Body& body, const NetworkSystem& system);
+  //! `steady`: the states observed are steady states (a steady run; also a system in Steady mode).
+  ControlGridWatch(const Body& body, const NetworkSystem& system, bool steady = false);
+  //! The states observed are steady states (runSteady): the quasi-static shift applies in full, no storage term.
+  void setSteady() { steady_ = true; }
 
   //! True when some controller drives a term (only then are heat flows needed).
   bool active() const { return !controllers_.empty(); }
+  //! The run's initial state (the first output; observe() calls it too): the start of the stored shift and of the
+  //! storage term.
+  void start(double t, std::span<const double> y);
   //! State y (nodes, controls, ...) at time t [s]; `flows` [groups x channels] [W] as RunSummary::flows.
   void observe(double t, std::span<const double> y, std::span<const double> flows);
 
@@ -49,6 +69,11 @@ class ControlGridWatch {
     double magnification = 0.0;  //!< e_u / eps [1]
     double gridError = 0.0;      //!< eps [1]
     double error = 0.0;          //!< e_u, estimated relative error of the output [1]
+    double storageError = 0.0;   //!< the part of e_u from the storage transient [1]
+    std::size_t segment = 0;     //!< the segment whose layer carries most of storageError
+    std::size_t layer = 0;       //!< that layer (the coat: the segment's layer count)
+    int cells = 0;               //!< its radial cells
+    int cellsNeeded = 0;         //!< radial cells that bring storageError below half of limit() (0: not needed)
   };
   const std::vector<Estimate>& estimates() const { return worst_; }
   //! Relative error above which a warning is issued: max(kGridWarnError, run.grid_tolerance).
@@ -70,6 +95,9 @@ class ControlGridWatch {
     std::string scopeName;
     std::size_t loop = 0;          //!< index of its signal group
     double signalError = 0.0;      //!< estimated error of the signal's reading (layer means), magnified
+    double capacity = 0.0;         //!< heat capacity of the scope, copies weighted [J/K]
+    double stored = 0.0;           //!< int eps L dt / C so far [K]
+    double lastSource = -1.0;      //!< eps L at the last observation [W] (-1: none yet)
   };
   double effectiveGain(const Watched& w) const;
 
@@ -78,6 +106,12 @@ class ControlGridWatch {
   std::vector<Watched> controllers_;
   std::vector<Estimate> worst_;
   std::vector<double> modulators_;
+  std::vector<SegmentGridEstimate> estimates_;  //!< the case's (Case::gridEstimates) or a new estimate
+  std::vector<double> exchanged_; //!< per group: heat lost to the surroundings since the start, one copy [J]
+  std::vector<double> lastLoss_;  //!< per group: that loss at the last observation [W] (-1: none yet)
+  double start_ = 0.0, last_ = 0.0;
+  bool started_ = false;
+  bool steady_ = false;
   double gridError_ = 0.0;
   double tolerance_ = 0.01;
   double limit_ = 0.01;

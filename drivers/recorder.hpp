@@ -36,6 +36,8 @@ class Recorder {
   //! Solver statistics and completeness, then commit (a partial run goes to the incomplete path).
   void finish(RunSummary& summary, bool steady);
   void setIncompletePath(std::string p) { incompletePath_ = std::move(p); }
+  //! The states recorded are steady states (runSteady): the controller-output check takes its shift in full.
+  void steadyState() { controlGrid_.setSteady(); }
 
  private:
   const Body& body_;

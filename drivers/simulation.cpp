@@ -176,6 +176,7 @@ RunSummary runSteady(const Body& body, const RunOptions& options) {
   RunSummary summary;
   Recorder recorder(body, transient, options, 1);
   recorder.setIncompletePath(options.output.empty() ? "" : incompleteName(options.output));
+  recorder.steadyState();
   body.setInterval(0);
   std::vector<double> steady =
       steadyTemperatures(body, transient, guess, &summary.statistics, options.stop, &summary.stopped);

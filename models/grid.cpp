@@ -400,6 +400,25 @@ double layerGridError(const SegmentGridEstimate& e, std::size_t i, double thickn
   return err;
 }
 
+StorageTransientError storageTransientError(const SegmentSpec& s, const SegmentGridEstimate& e, double t) {
+  StorageTransientError out;
+  if (!(t > 0.0)) return out;
+  double depth = 0.0;  // through the layers outside, in units of their own 2 delta
+  for (std::size_t j = e.layerDiffusivity.size(); j-- > 0;) {
+    const bool coat = j >= s.layers.size();
+    if (coat && !s.coat) continue;
+    const double thickness = coat ? s.coat->thickness : s.layers[j].thickness;
+    const int cells = std::max(coat ? s.coat->cells : s.layers[j].cells, 1);
+    const double alpha = e.layerDiffusivity[j];
+    if (!(alpha > 0.0)) continue;
+    const double delta = std::sqrt(alpha * t);
+    const double err = std::erfc(depth) * transientError(thickness / cells, delta);
+    if (err > out.error) out = {err, j, cells};
+    depth += thickness / (2.0 * delta);
+  }
+  return out;
+}
+
 //! Per unit length of a segment: the conductance U' from the tissue to the surroundings (surface conductance h in
 //! series with the coat and tissue radial resistances), the perfusion term sum w rho_b c_b A to the arterial blood
 //! and the axial conductance sum k A; the fin parameter m = sqrt((U' + perfusion) / sum k A) (0 for spheres).
@@ -527,6 +546,9 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
     // layers outside it in units of their own 2 delta (the coat at its smaller, dry or wet, diffusivity).
     e.layerPenetration.assign(ls.size(), 0.0);
     e.layerStepShare.assign(ls.size(), 0.0);
+    e.layerDiffusivity.assign(ls.size(), 0.0);
+    for (std::size_t j = 0; j < ls.size(); ++j)
+      if (ls[j].capacity > 0.0) e.layerDiffusivity[j] = std::min(ls[j].k, ls[j].kWet) / ls[j].capacity;
     if (tau > 0.0) {
       double depth = 0.0;
       for (std::size_t j = ls.size(); j-- > 0;) {

@@ -114,6 +114,8 @@ struct SegmentGridEstimate {
   double forcingInterval = 0.0;    //!< tau: shortest interval a step of the surroundings acts [s] (0: none)
   std::vector<double> layerPenetration;  //!< per layer (coat last) delta = sqrt(alpha tau) [m] (0: no transient)
   std::vector<double> layerStepShare;    //!< per layer (coat last) erfc(depth / (2 delta)) [1]
+  std::vector<double> layerDiffusivity;  //!< per layer (coat last) k / (rho c), the coat's smaller of dry and wet
+                                         //!< [m2/s] (0: no heat capacity)
   double endPenetration = 0.0;     //!< delta of the end faces' cross-section (area-weighted alpha) [m]
   std::string waterLineParent;     //!< the parent, when the water line lies at this segment's junction
   double junctionBiotLength = 0.0; //!< a bare child on a coated parent: k/h of its skin at the largest h [m]
@@ -132,6 +134,19 @@ struct SegmentGridEstimate {
 //! penetration depth, the larger of the two); graded cells (LayerSpec::grading) by their thickest cell.
 double layerGridError(const SegmentGridEstimate& e, std::size_t layer, double thickness, int cells,
                       double grading = 1.0);
+
+//! Relative error of the heat a segment has exchanged with its surroundings t seconds after a step of them (a
+//! start from a uniform temperature), on its cell counts in `s`, coat included: the largest over its layers of
+//! erfc(depth / (2 delta)) kPenetrationErrorConstant (dx / delta)^2, delta = sqrt(alpha t) (as the transient rule of
+//! grid.hpp, but at the time t rather than the case's forcing interval, and with the coat, which the automatic
+//! counts leave to the steady rule). `layer`: the layer of the largest (coat: s.layers.size()); `cells` its count.
+//! Used by the controller-output check after a run (drivers/record_control_grid.cpp).
+struct StorageTransientError {
+  double error = 0.0;
+  std::size_t layer = 0;
+  int cells = 1;
+};
+StorageTransientError storageTransientError(const SegmentSpec& s, const SegmentGridEstimate& e, double t);
 
 //! The shortest interval tau [s] over which a step of the surroundings acts (models/grid.cpp); 0 when the case
 //! has no steps (a steady start and no events).
