@@ -35,7 +35,9 @@ constexpr std::array params = {
           "flows are estimated within half of it of their converged value, hence within it of a grid refined 4x. "
           "A controller output (shivering, a shunt or CIVD opening) that balances a larger heat flow carries that "
           "error magnified; after each run a check estimates it and warns above 1 % (or this tolerance, if looser), "
-          "naming the tolerance that would meet it (README, Grid). Given cell counts are not changed."},
+          "naming the tolerance that would meet it and, after a start from a uniform temperature, the layer whose "
+          "storage transient carries it and the radial cells that would meet it (README, Grid). Given cell counts "
+          "are not changed."},
 
     Param{"circulation", K::Table, "", "", 0, 0, false, "", "Blood properties and arterial supply."},
     Param{"circulation.blood_density", K::Quantity, "kg/m3", "1050 kg/m3", 0, 5000, true, "",
