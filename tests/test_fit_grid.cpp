@@ -11,8 +11,10 @@
 
 #include "drivers/fit.hpp"
 #include "drivers/observed.hpp"
+#include "test_support.hpp"
 
 using namespace thermorph;
+using namespace thermorph::testing;
 
 TEST_CASE("Grid check, linear limit: the least-squares shift equals the closed-form refit of a weighted straight line",
           "[fit][gridcheck]") {
@@ -100,32 +102,7 @@ title = "pin fin in water"
 initial = "steady"
 duration = "1 s"
 output_interval = "0.1 s"
-[circulation]
-fixed_arterial_temperature = "30 degC"
-[tissues.clamp]
-conductivity = 0.5
-density = 1000
-specific_heat = 4000
-metabolic_heat = 0
-perfusion = 1
-q10 = 1
-[tissues.copper]
-conductivity = 398
-density = 8933
-specific_heat = 385
-metabolic_heat = 0
-perfusion = 0
-q10 = 1
-[[segments]]
-name = "reservoir"
-shape = "sphere"
-layers = [{ tissue = "clamp", thickness = 0.1, cells = 1 }]
-surface = { convection = 0 }
-[[segments]]
-name = "pin"
-parent = "reservoir"
-shape = "cylinder"
-length = "2 cm"
+)toml" + copperPinOnClamp() + R"toml(length = "2 cm"
 axial_cells = 6
 layers = [{ tissue = "copper", thickness = "0.5 mm", cells = 1 }]
 surface = { ends = "insulated", convection = "5000 W/(m2 K)" }

@@ -332,3 +332,19 @@ TEST_CASE("axial_grading: out of range or on a sphere is refused with the key pa
   INFO(sphere);
   CHECK(sphere.find("axial_grading") != std::string::npos);
 }
+
+TEST_CASE("A layer's largest cell in closed form is the first cell of its edges, bit for bit", "[graded]") {
+  // LayerSpec::largestCell (the grid estimate's thickest, innermost cell) against the difference of the first two
+  // edges LayerSpec::cellEdges builds (geometric from the outer face, uniform when grading is 1): the same
+  // operations, so equal to the bit for every count and grading.
+  for (double grading : {1.0, 1.5, 10.0, 100.0, 1000.0})
+    for (int cells = 1; cells <= 64; ++cells)
+      for (double thickness : {2.5e-3, 0.03, 0.1}) {
+        LayerSpec layer;
+        layer.cells = cells;
+        layer.grading = grading;
+        const std::vector<double> edges = layer.cellEdges(thickness);
+        INFO("grading " << grading << ", " << cells << " cells, thickness " << thickness);
+        CHECK(layer.largestCell(thickness) == edges[1] - edges[0]);
+      }
+}
