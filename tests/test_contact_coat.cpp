@@ -35,11 +35,8 @@ struct Flows {
 
 Flows steadyFlows(const std::string& text, const std::vector<std::string>& overrides) {
   Body body(loadCaseFromString(text, "contact-coat.toml", overrides));
-  const std::vector<double> t = testing::steadyTemperatures(body);
-  NetworkSystem system(body.network(), NetworkSystem::Mode::Steady);
   const Network& n = body.network();
-  std::vector<double> flows(n.groups.size() * n.channels.size()), storage(n.groups.size()), faces(n.faces.size());
-  system.groupFlows(0.0, t, flows, storage, faces);
+  const std::vector<double> flows = testing::steadyGroupFlows(body).flows;
   Flows f;
   f.substrate = testing::bodyChannelTotal(n, flows, testing::channelIndex(n, "substrate"));
   f.convection = testing::bodyChannelTotal(n, flows, testing::channelIndex(n, "convection"));

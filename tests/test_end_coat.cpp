@@ -27,11 +27,8 @@ struct EndLoss {
 
 EndLoss endLoss(const std::vector<std::string>& overrides) {
   Body body(loadCaseFromString(caseText, "end-coat.toml", overrides));
-  const std::vector<double> t = testing::steadyTemperatures(body);
-  NetworkSystem system(body.network(), NetworkSystem::Mode::Steady);
   const Network& n = body.network();
-  std::vector<double> flows(n.groups.size() * n.channels.size()), storage(n.groups.size()), faces(n.faces.size());
-  system.groupFlows(0.0, t, flows, storage, faces);
+  const std::vector<double> faces = testing::steadyGroupFlows(body).faces;
   const SegmentMesh& m = body.segments()[0];
   EndLoss loss;
   const std::size_t lateral = m.lateralFace[0];

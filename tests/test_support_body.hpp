@@ -121,6 +121,21 @@ inline JacobianCheck checkJacobian(const NetworkSystem& system, std::span<const 
   return result;
 }
 
+//! The steady state of `body` and its flows: per group and channel [W] ([groups x channels]) and the face
+//! temperatures [K], from NetworkSystem::groupFlows.
+struct SteadyFlows {
+  std::vector<double> flows, faces;
+};
+inline SteadyFlows steadyGroupFlows(const Body& body) {
+  const std::vector<double> t = steadyTemperatures(body);
+  NetworkSystem system(body.network(), NetworkSystem::Mode::Steady);
+  const Network& n = body.network();
+  SteadyFlows out{std::vector<double>(n.groups.size() * n.channels.size()), std::vector<double>(n.faces.size())};
+  std::vector<double> storage(n.groups.size());
+  system.groupFlows(0.0, t, out.flows, storage, out.faces);
+  return out;
+}
+
 //! Message of the CaseError thrown while loading `toml` and building its body; empty when both succeed.
 inline std::string caseErrorMessage(const std::string& toml) {
   try {
