@@ -445,9 +445,10 @@ TEST_CASE("Steady-state sensitivities of a whole body agree with central differe
       const double error = std::abs(r.derivatives[j][i] - fd[i]) / std::max(std::abs(fd[i]), 1e-12);
       worst = std::max(worst, error);
       line += fmt::format(" {} {:.1e}", data.series[i].quantity.name, error);
-      // Measured at most 1.5e-5 (the ear exchanger's small effect on the whole body's convection) since the
-      // junction meets the parent by depth (2026-12-03; the check was 1e-5 before); the others 2.2e-6 or less.
-      CHECK(error < 3e-5);
+      // Measured at most 9.6e-7 since the steady start ends with a full Newton step past KINSOL's test
+      // (2026-12-04); 1.5e-5 before (the ear exchanger's small effect on the whole body's convection: the steady
+      // state depended on where the relaxation stopped, and its central differences carried that).
+      CHECK(error < 1e-5);
     }
     fmt::print("{}\n", line);
   }
