@@ -1265,11 +1265,13 @@ void Body::addLateralFace(const SegmentBuild& b, SegmentMesh& m, int iz, const C
     // ground then warmed the animal). Conduction: the outermost tissue cell's half and the coat's shell in series
     // (the same radial resistances as the rings; no heat capacity, as the coat of the end faces), then h_sub on the
     // face. Children's footprints shrink the column as they shrink the exposed face.
+    // A compressed coat (surface.contact_coat_thickness) is a thinner shell from the same inner radius.
     const int skin = b.firstCoat - 1;
     const double rSkin = 0.5 * (cm.bounds[skin] + cm.bounds[skin + 1]);
+    const double rColumn = cm.bounds[skin + 1] + s.surface.contactCoatThickness.value_or(s.coat->thickness);
     auto column = [&](double coatK) {
       return s.surface.contactFraction * (area / fullArea) /
-             radialResistance(s.shape, rSkin, cm.bounds[skin + 1], rOut, b.tissue[skin]->conductivity, coatK, dz,
+             radialResistance(s.shape, rSkin, cm.bounds[skin + 1], rColumn, b.tissue[skin]->conductivity, coatK, dz,
                               s.width, false, true);
     };
     network_.faces.push_back({m.node(iz, skin), column(b.tissue[nr - 1]->conductivity), s.surface.contactFraction * area});

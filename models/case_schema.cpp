@@ -199,6 +199,9 @@ constexpr std::array params = {
           "Share of the surface in contact with the substrate (conduction at substrate_conductance); the rest is "
           "exposed to the medium. On a coated segment the contact patch lies on the lateral surface, below 1: the "
           "coat over it conducts from the skin to the substrate, apart from the air-side coat; end faces are exposed."},
+    Param{"segments[].surface.contact_coat_thickness", K::Quantity, "m", "", 0, 1, true, "",
+          "A coated segment's coat under the contact patch (fur or feathers compressed by the body's weight): the "
+          "contact column's coat thickness; default the coat's. At most the coat's thickness."},
     Param{"segments[].surface.wetted_fraction", K::Number, "", "0", 0, 1, false, "",
           "Share of the exposed surface that is wet and evaporates (1: a wet surface); zero in water."},
     Param{"segments[].surface.immersion", K::Choice, "", "body", 0, 0, false, "body|always|never",

@@ -203,6 +203,15 @@ SurfaceSpec readSurface(const TableView& segment, Shape shape) {
   if (s.contactFraction >= 1.0 && segment.has("coat"))
     surface.fail("contact_fraction", "a coated segment needs part of its coat exposed: below 1 (the coat over the "
                                      "contact patch conducts to the substrate, the rest meets the medium)");
+  if (surface.has("contact_coat_thickness")) {
+    if (!segment.has("coat"))
+      surface.fail("contact_coat_thickness", "is the coat under the contact patch: the segment has no coat");
+    s.contactCoatThickness = surface.quantity("contact_coat_thickness");
+    const double coat = segment.child("coat").quantity("thickness");
+    if (*s.contactCoatThickness > coat)
+      surface.fail("contact_coat_thickness", fmt::format("{:g} m is thicker than the coat ({:g} m): a compressed coat is "
+                                                         "at most as thick as the coat", *s.contactCoatThickness, coat));
+  }
   s.wettedFraction = surface.number("wetted_fraction");
   const std::string immersion = surface.choice("immersion");
   s.immersion = immersion == "always" ? Immersion::Always : immersion == "never" ? Immersion::Never : Immersion::Body;
@@ -544,6 +553,7 @@ toml::table surfaceToml(const SurfaceSpec& s, Shape shape) {
   surface.insert("solar_exposure", s.solarExposure);
   surface.insert("sky_view", s.skyView);
   surface.insert("contact_fraction", s.contactFraction);
+  if (s.contactCoatThickness) surface.insert("contact_coat_thickness", *s.contactCoatThickness);
   surface.insert("wetted_fraction", s.wettedFraction);
   surface.insert("immersion", s.immersion == Immersion::Always  ? "always"
                               : s.immersion == Immersion::Never ? "never"

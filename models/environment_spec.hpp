@@ -33,6 +33,7 @@ struct SurfaceSpec {
   double solarExposure = 0.0;                   //!< sunlit projected area / surface area [1]
   double skyView = 0.5;                         //!< share of the exposed surface's view filled by sky [1]
   double contactFraction = 0.0;                 //!< share of the surface touching the substrate [1]
+  std::optional<double> contactCoatThickness;   //!< a coated segment's coat under the contact patch [m] (compressed)
   double wettedFraction = 0.0;                  //!< share of the exposed surface that is wet [1]
   Immersion immersion = Immersion::Body;
   ConvectionCorrelation correlation = ConvectionCorrelation::Standard;

@@ -63,6 +63,29 @@ TEST_CASE("A coat's contact patch conducts to the substrate in parallel with the
   CHECK(std::abs(f.convection / convection - 1.0) < 1e-3);
 }
 
+TEST_CASE("A compressed coat under the contact patch is a thinner shell", "[environment][coat]") {
+  // surface.contact_coat_thickness t_c: the column's coat is the shell from r_i to r_i + t_c (Incropera et al. 2007
+  // eq. 3.28); the contact area and the air side stay those of the full coat.
+  const Flows f = steadyFlows(isothermalCase, {"segments.trunk.surface.contact_coat_thickness=\"3 mm\""});
+  const double pi = std::numbers::pi, L = 0.1, ri = 0.02, ro = 0.03, tc = 0.003, k = 0.04;
+  const double fc = 0.2, h = 10.0, hSub = 50.0, Tb = 37.0, Ta = 0.0, Tsub = 20.0, Ao = 2.0 * pi * ro * L;
+  const double Rc = std::log((ri + tc) / ri) / (2.0 * pi * k * L), R = std::log(ro / ri) / (2.0 * pi * k * L);
+  const double substrate = fc * (Tsub - Tb) / (Rc + 1.0 / (hSub * Ao));
+  const double convection = (1.0 - fc) * (Ta - Tb) / (R + 1.0 / (h * Ao));
+  std::printf("[contact] coat compressed to 3 mm: substrate %.8g W (analytic %.8g, rel. error %.1e), convection "
+              "%.8g W (analytic %.8g, %.1e)\n", f.substrate, substrate, std::abs(f.substrate / substrate - 1.0),
+              f.convection, convection, std::abs(f.convection / convection - 1.0));
+  CHECK(std::abs(f.substrate / substrate - 1.0) < 1e-3);
+  CHECK(std::abs(f.convection / convection - 1.0) < 1e-3);
+  // Thicker than the coat: refused.
+  std::string text = isothermalCase;
+  text.replace(text.find("contact_fraction = 0.2"), 22, "contact_fraction = 0.2, contact_coat_thickness = \"2 cm\"");
+  const std::string message = testing::caseErrorMessage(text);
+  INFO(message);
+  CHECK(message.find("segments.trunk.surface.contact_coat_thickness") != std::string::npos);
+  CHECK(message.find("thicker than the coat") != std::string::npos);
+}
+
 TEST_CASE("A substrate like the air changes nothing, for every shape", "[environment][coat]") {
   const std::string common = R"toml(
 [circulation]
