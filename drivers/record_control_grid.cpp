@@ -130,11 +130,10 @@ ControlGridWatch::ControlGridWatch(const Body& body, const NetworkSystem& system
   limit_ = std::max(kGridWarnError, tolerance_);
 }
 
-void ControlGridWatch::start(double t, std::span<const double> y) {
+void ControlGridWatch::start(double t) {
   if (started_ || controllers_.empty()) return;
   started_ = true;
   start_ = last_ = t;
-  (void)y;
 }
 
 double ControlGridWatch::effectiveGain(const Watched& w) const {
@@ -152,7 +151,7 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
   const Index nodes = system_.nodeCount(), channels = net.channels.size(), groups = net.groups.size();
   if (flows.size() < groups * channels) return;
   if (std::all_of(flows.begin(), flows.end(), [](double f) { return f == 0.0; })) return;  // flows not computed
-  start(t, y);
+  start(t);
   const double dt = t - last_;
   last_ = t;
   system_.modulatorValues(t, y, modulators_);

@@ -52,9 +52,8 @@ class ControlGridWatch {
 
   //! True when some controller drives a term (only then are heat flows needed).
   bool active() const { return !controllers_.empty(); }
-  //! The run's initial state (the first output; observe() calls it too): the start of the stored shift and of the
-  //! storage term.
-  void start(double t, std::span<const double> y);
+  //! The run's first output time (observe() calls it too): the start of the stored shift and of the storage term.
+  void start(double t);
   //! State y (nodes, controls, ...) at time t [s]; `flows` [groups x channels] [W] as RunSummary::flows.
   void observe(double t, std::span<const double> y, std::span<const double> flows);
 

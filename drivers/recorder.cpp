@@ -74,7 +74,7 @@ void Recorder::record(double t, std::span<const double> y, double initialStored,
   budget_.compute(t, y, initialStored, summary, faces, flows_);
   freezing_.observe(t, y);
   if (controlGrid_.active()) {
-    controlGrid_.start(t, y);
+    controlGrid_.start(t);
     if (flows_) controlGrid_.observe(t, y, summary.flows);
     else {  // no flows at outputs (a transient sweep): the last output is checked at the end
       lastTime_ = t;
