@@ -40,10 +40,13 @@ double finError(double a) {
 //! tests/test_whole_body.cpp `[exchanger]` (balanced: (NTU/N)^2 / (1 + NTU), C_r = 0.5: 0.2-0.5 (NTU/N)^2 at
 //! NTU 1-14, N 20-80). The upwind cells before (exchange between the outlet temperatures) transferred
 //! NTU / (1 + NTU + NTU/N) and let through an error about NTU times larger than that, first order.
-double exchangerError(double ntu, int n) {
+//! That holds for a stream that passes through to a child; the share `ownShare` of the flow that the segment's own
+//! tissue draws along its length misses by kOwnStreamErrorConstant (NTU/N)^2 of its blood heat (grid.hpp).
+double exchangerConstant(double ownShare) { return (1.0 - ownShare) * 0.5 + ownShare * kOwnStreamErrorConstant; }
+double exchangerError(double ntu, int n, double ownShare) {
   if (!(ntu > 0.0)) return 0.0;
   const double x = ntu / n;
-  return 0.5 * x * x;
+  return exchangerConstant(ownShare) * x * x;
 }
 
 //! Radial error estimate of a layer with cells of thickness dr against its length scale (second order; the
@@ -356,11 +359,12 @@ double gradedAxialGridError(const SegmentGridEstimate& e, double length, int nz,
   // The exchanger's leak: c NTU^2 times the length-weighted mean of (dz/L)^2 (uniform cells: c (NTU/N)^2). The
   // longer distal cells weigh more than that mean says: c = 1 (not the uniform 0.5) bounds the graded errors
   // measured against Incropera et al. 2007, Table 11.3 (tests/test_graded.cpp `[exchanger]`: C_r = 0.5, NTU 3
-  // and 14, Q 10 and 100, 40-160 cells).
+  // and 14, Q 10 and 100, 40-160 cells); the segment's own stream kOwnStreamErrorConstant (grid.hpp: at most 0.04
+  // measured on graded cells).
   double leak = 0.0;
   if (e.ntu > 0.0) {
     for (std::size_t i = 0; i < cells; ++i) leak += std::pow((edges[i + 1] - edges[i]) / length, 3);
-    leak *= e.ntu * e.ntu;
+    leak *= e.ntu * e.ntu * ((1.0 - e.ownStreamShare) + e.ownStreamShare * kOwnStreamErrorConstant);
   }
   return std::max({fin, ends, steadyEnds, leak});
 }
@@ -383,7 +387,7 @@ double axialGridError(const SegmentGridEstimate& e, double length, int nz, doubl
   const double steadyEnds = e.tissueEndShare * finError(dz / e.decayLength) +
                             (e.coatEndDecay > 0.0 ? e.coatEndShare * finError(dz / e.coatEndDecay) : 0.0);
   const double childStream = e.childBloodShare * kChildStreamErrorConstant * std::pow(e.childNtu / nz, 2);
-  return std::max({fin, ends, steadyEnds, exchangerError(e.ntu, nz), childStream});
+  return std::max({fin, ends, steadyEnds, exchangerError(e.ntu, nz, e.ownStreamShare), childStream});
 }
 
 double layerGridError(const SegmentGridEstimate& e, std::size_t i, double thickness, int cells, double grading) {
@@ -649,6 +653,7 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
     e.ntu = s.vessels.countercurrentConductance > 0.0 && flow[g] > 0.0
                 ? s.vessels.countercurrentConductance / (rc * flow[g])
                 : 0.0;
+    e.ownStreamShare = flow[g] > 0.0 ? std::clamp(own[g] / flow[g], 0.0, 1.0) : 0.0;
     // The stream that reaches a child. The artery gives up the segment's own perfusion along its length, so towards
     // the distal end it carries little more than the children's flow F_c, and the exchanger brings that stream
     // near the vein's temperature with the NTU G / (rho_b c_b F_c), not G / (rho_b c_b F_total); F_c at the
@@ -689,7 +694,9 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
     int nz = 4;
     if ((e.axialForced && m > 0.0) || e.endShare > 0.0 || e.tissueEndShare > 0.0 || e.coatEndShare > 0.0)
       while (nz < kMaxAutoAxialCells && axialGridError(e, s.length, nz) > target) nz = std::max(nz + 1, nz * 11 / 10);
-    if (e.ntu > 0.0) nz = std::max(nz, static_cast<int>(std::ceil(e.ntu * std::sqrt(0.5 / target) - 1e-9)));
+    if (e.ntu > 0.0)
+      nz = std::max(nz, static_cast<int>(std::ceil(
+                            e.ntu * std::sqrt(exchangerConstant(e.ownStreamShare) / target) - 1e-9)));
     if (e.childNtu > 0.0)
       nz = std::max(nz, static_cast<int>(std::ceil(
                             e.childNtu * std::sqrt(kChildStreamErrorConstant * e.childBloodShare / target) - 1e-9)));

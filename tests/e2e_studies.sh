@@ -50,9 +50,12 @@ with h5py.File(sys.argv[2]) as f:
     assert "shivering" in f["body/heat_flow"], "no shivering channel"
     leg = f["segments/leg"]
     assert leg["arterial_temperature"].shape[1] >= 6  # axial cells chosen automatically
-    # The exchanger precools the arterial blood along the leg (countercurrent exchange; common practice, no source).
+    # The exchanger precools the arterial blood along the leg (countercurrent exchange; common practice, no source):
+    # by kelvins over the leg; where both streams have reached the water's temperature, the long distal cells of the
+    # graded grid may differ by micro-kelvins either way (4e-6 K measured on 260 cells graded to Q = 100).
     artery = leg["arterial_temperature"][0]
-    assert np.all(np.diff(artery) < 0.0), artery
+    assert artery[0] - artery[-1] > 10.0, artery
+    assert np.all(np.diff(artery) < 1e-4), artery
     core = f["body/core_temperature"][0]
     assert 36.0 < core < 41.0, f"steady start not the physiological state: core {core} degC"
     print(f"wading_bird: leg artery {artery[0]:.1f} -> {artery[-1]:.1f} degC, core {core:.2f} degC at t = 0")

@@ -470,3 +470,52 @@ TEST_CASE("A bare foot on a furred trunk in water: the automatic grid grades the
   CHECK(uniform.values[2] < automatic.values[2] * 1.005);
 }
 
+
+namespace {
+
+//! The perfused limb of test_support_body.hpp with the exchanger's NTU on its whole flow (blood 1050 kg/m3,
+//! 3617 J/(kg K): the defaults).
+std::string ownStreamLimb(double ntu, const std::string& axialCells) {
+  return perfusedExchangerLimb(ntu * 1050.0 * 3617.0 * 0.002 * pi * 0.01 * 0.01 * 0.3, axialCells);
+}
+
+double ownStreamBloodHeat(double ntu, const std::string& axialCells) {
+  const Case c = loadCaseFromString(ownStreamLimb(ntu, axialCells), "limb.toml");
+  Body body(c);
+  RunSummary s = runSteady(body, silentRun());
+  REQUIRE(s.complete);
+  return s.flows[segmentIndex(body, "limb") * body.network().channels.size() + channelIndex(body.network(), "blood")];
+}
+
+}  // namespace
+
+TEST_CASE("The exchanger on a segment's own perfusion: the estimate bounds its error, the automatic grid meets 1 %",
+          "[grid][exchanger]") {
+  // The blood a limb's own tissue draws along its length leaves the artery at the local arterial temperature, so the
+  // exchanger's discretisation costs it less than a stream that passes through to a child (0.5 (NTU/N)^2, the
+  // counterflow of Incropera et al. 2007, Table 11.3; tests/test_whole_body.cpp): kOwnStreamErrorConstant
+  // (NTU/N)^2. Reference: the same limb on 2560 uniform cells (grid convergence, common practice, no source; the
+  // errors fall at order 1.8-2 from 20 to 160 cells, so 2560 cells are within about 1e-5 of the limit).
+  // Criteria: the estimate is at least the measured error of the blood heat (the limb's whole loss) and at most
+  // 10 times it at 20-80 cells; the automatic grid is within run.grid_tolerance (default 1 %) of the reference.
+  for (double ntu : {1.0, 3.0, 10.0, 40.0}) {
+    const Case automatic = loadCaseFromString(ownStreamLimb(ntu, ""), "limb.toml");
+    const std::vector<SegmentGridEstimate> est = estimateGrid(automatic);
+    REQUIRE(est.size() == 1);
+    CHECK(std::abs(est[0].ntu / ntu - 1.0) < 1e-9);
+    CHECK(est[0].ownStreamShare == Approx(1.0));
+    const double reference = ownStreamBloodHeat(ntu, "axial_cells = 2560");
+    for (int n : {20, 40, 80}) {
+      const double error = std::abs(ownStreamBloodHeat(ntu, "axial_cells = " + std::to_string(n)) / reference - 1.0);
+      const double estimated = axialGridError(est[0], 0.3, n);
+      std::printf("[grid] own-stream limb NTU %4.1f, %3d cells: blood heat error %.3e, estimated %.3e (ratio %.2f)\n",
+                  ntu, n, error, estimated, estimated / error);
+      CHECK(estimated >= error);
+      CHECK(estimated <= 10.0 * error);
+    }
+    const int cells = automatic.segments[0].axialCells;
+    const double error = std::abs(ownStreamBloodHeat(ntu, "") / reference - 1.0);
+    std::printf("[grid] own-stream limb NTU %4.1f: automatic %d cells, blood heat error %.3e\n", ntu, cells, error);
+    CHECK(error <= 0.01);
+  }
+}

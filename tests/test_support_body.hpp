@@ -136,6 +136,34 @@ inline SteadyFlows steadyGroupFlows(const Body& body) {
   return out;
 }
 
+//! A leg-like fin whose exchanger works on its own perfusion (no child): a cylinder of 0.3 m, radius 1 cm, perfusion
+//! 0.002 1/s drawn all along it, arterial supply pinned at 37 degC, h 500 W/(m2 K) to a 0 degC bath, insulated
+//! ends, artery-vein conductance `conductance` [W/K]; `axialCells` a TOML line (empty: chosen automatically).
+//! Its whole flow is 0.002 pi (0.01)^2 0.3 m3/s.
+inline std::string perfusedExchangerLimb(double conductance, const std::string& axialCells) {
+  return R"(
+[circulation]
+fixed_arterial_temperature = "37 degC"
+[tissues.flesh]
+conductivity = 0.5
+density = 1000
+specific_heat = 4000
+metabolic_heat = 0
+perfusion = 0.002
+q10 = 1
+[[segments]]
+name = "limb"
+shape = "cylinder"
+length = 0.3
+)" + axialCells + R"(
+layers = [{ tissue = "flesh", thickness = 0.01, cells = 4 }]
+surface = { ends = "insulated", convection = 500 }
+vessels = { countercurrent_conductance = )" + num(conductance) + R"(, superficial_conductance = 0 }
+[environment]
+temperature = "0 degC"
+)";
+}
+
 //! Message of the CaseError thrown while loading `toml` and building its body; empty when both succeed.
 inline std::string caseErrorMessage(const std::string& toml) {
   try {

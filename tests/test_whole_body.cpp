@@ -311,27 +311,7 @@ TEST_CASE("A perfused, cooled limb with an exchanger converges at second order i
   // source). Criterion: observed order p = log2(e_N / e_2N) >= 1.7 at N = 20 / 40 / 80, and within 0.2 % at 80.
   auto limb = [](int cells) {
     const double Q = 0.002 * pi * 0.01 * 0.01 * 0.3, C = rhoBlood * cBlood * Q;
-    return R"(
-[circulation]
-fixed_arterial_temperature = "37 degC"
-[tissues.flesh]
-conductivity = 0.5
-density = 1000
-specific_heat = 4000
-metabolic_heat = 0
-perfusion = 0.002
-q10 = 1
-[[segments]]
-name = "limb"
-shape = "cylinder"
-length = 0.3
-axial_cells = )" + std::to_string(cells) + R"(
-layers = [{ tissue = "flesh", thickness = 0.01, cells = 4 }]
-surface = { ends = "insulated", convection = 500 }
-vessels = { countercurrent_conductance = )" + num(10.0 * C) + R"(, superficial_conductance = 0 }
-[environment]
-temperature = "0 degC"
-)";
+    return perfusedExchangerLimb(10.0 * C, "axial_cells = " + std::to_string(cells));
   };
   auto loss = [&](int cells) {
     auto body = bodyFromToml(limb(cells));
