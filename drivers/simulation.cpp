@@ -10,6 +10,9 @@
 namespace thermorph {
 namespace {
 
+//! Pseudo-time of the steady start's first linearly implicit step and of the relaxation's first horizon [s].
+constexpr double kFirstStep = 600.0;
+
 //! Uniform initial temperature for every node, then the controllers' initial states [nodes + controls].
 std::vector<double> initialState(const Body& body, const NetworkSystem& system) {
   std::vector<double> y(system.nodeCount(), body.spec().run.initialTemperature);
@@ -19,10 +22,12 @@ std::vector<double> initialState(const Body& body, const NetworkSystem& system) 
 
 //! Steady state of the surroundings and physiology at t = 0 [K and controller states]. Newton alone may land on
 //! an unstable branch (Q10 metabolism can balance large losses at a runaway temperature) or wander to
-//! unphysical iterates, so the state is first relaxed in pseudo-time by CVODE with time frozen at 0, from the
-//! guess until it changes by less than 1e-5 K/s (1e-7 before KINSOL's extra Newton step made the root independent
-//! of where Newton starts), then polished by KINSOL: the steady state reached is the
-//! stable one the body would settle in from that start.
+//! unphysical iterates, so the state is first relaxed in pseudo-time by CVODE with time frozen at 0 until it
+//! changes by less than 1e-5 K/s (1e-7 before KINSOL's extra Newton step made the root independent of where Newton
+//! starts), then polished by KINSOL: the steady state reached is the stable one the body would settle in from
+//! that start. The relaxation starts from one linearly implicit Euler step of kFirstStep from the guess (the fast
+//! initial transient of a uniform start, which took most of the relaxation's steps, in one linear solve); if that
+//! step fails or the relaxation from it does (a runaway), the relaxation starts again from the guess itself.
 //! With `stop` set during the relaxation, returns the relaxed state so far at the next step (no Newton polish)
 //! and sets `*stopped`. `transient` is the body's transient system (a run's own, lent for the relaxation: its
 //! time is frozen at 0 meanwhile and free again on return; its face temperatures, the Newton starts of the face
@@ -48,31 +53,74 @@ std::vector<double> steadyTemperatures(const Body& body, NetworkSystem& transien
   io.rtol = 1e-3;
   io.atol.assign(transient.size(), 1e-2);
   for (Index i = states; i < transient.size(); ++i) io.atol[i] = 1e30;
-  Integrator relax(transient, y, 0.0, io);
-  std::vector<double> rate(transient.size());
-  double horizon = 600.0;
-  for (int k = 0; k < 40 && horizon < 1e10; ++k, horizon *= 2.0) {
-    relax.setStopTime(horizon);
-    if (stop ? !relax.advanceTo(horizon, *stop) : (relax.advanceTo(horizon), false)) {
-      if (stopped) *stopped = true;  // KINSOL's polish below is not interrupted
-      return std::vector<double>(relax.state().begin(), relax.state().begin() + static_cast<std::ptrdiff_t>(states));
+  SolverStatistics relaxed;
+  // Relaxes from `from` (the whole state) to the state reached (when stopped: so far).
+  bool wasStopped = false;
+  auto relax = [&](std::span<const double> from) {
+    Integrator integrator(transient, from, 0.0, io);
+    struct Count {
+      Integrator& integrator;
+      SolverStatistics& sum;
+      ~Count() {
+        const SolverStatistics r = integrator.statistics();
+        sum.steps += r.steps;
+        sum.rhsEvaluations += r.rhsEvaluations;
+        sum.jacobianEvaluations += r.jacobianEvaluations;
+        sum.nonlinearIterations += r.nonlinearIterations;
+        sum.wallSeconds += r.wallSeconds;
+      }
+    } count{integrator, relaxed};
+    std::vector<double> rate(transient.size());
+    double horizon = kFirstStep;
+    for (int k = 0; k < 40 && horizon < 1e10; ++k, horizon *= 2.0) {
+      integrator.setStopTime(horizon);
+      if (stop ? !integrator.advanceTo(horizon, *stop) : (integrator.advanceTo(horizon), false)) {
+        wasStopped = true;
+        break;
+      }
+      transient.evaluate(horizon, integrator.state(), rate);
+      double fastest = 0.0;
+      for (Index i = 0; i < transient.nodeCount(); ++i) fastest = std::max(fastest, std::abs(rate[i]));
+      if (fastest < 1e-5) break;
     }
-    transient.evaluate(horizon, relax.state(), rate);
-    double fastest = 0.0;
-    for (Index i = 0; i < transient.nodeCount(); ++i) fastest = std::max(fastest, std::abs(rate[i]));
-    if (fastest < 1e-5) break;
+    return std::vector<double>(integrator.state().begin(), integrator.state().end());
+  };
+  // The first step: kept when its linear solve succeeded and it stays inside the band the evaluations accept
+  // (150-450 K); any failure there or in the relaxation from it (a runaway) sends the relaxation back to the guess,
+  // which reports its own errors as before.
+  std::vector<double> first;
+  try {
+    first = linearlyImplicitStep(transient, y, 0.0, kFirstStep);
+  } catch (const std::exception&) {
+    first.clear();
   }
-  std::vector<double> start(relax.state().begin(), relax.state().begin() + static_cast<std::ptrdiff_t>(states));
+  for (Index i = 0; i < transient.nodeCount() && !first.empty(); ++i)
+    if (!(first[i] > 150.0 && first[i] < 450.0)) first.clear();
+  std::vector<double> state;
+  bool fromFirst = !first.empty();
+  if (fromFirst) {
+    std::fill(first.begin() + static_cast<std::ptrdiff_t>(states), first.end(), 0.0);  // channel energies at 0
+    try {
+      state = relax(first);
+    } catch (const std::exception&) {
+      fromFirst = false;
+    }
+  }
+  if (!fromFirst) state = relax(y);
+  std::vector<double> start(state.begin(), state.begin() + static_cast<std::ptrdiff_t>(states));
+  if (wasStopped) {
+    if (stopped) *stopped = true;  // KINSOL's polish below is not interrupted
+    return start;
+  }
   NetworkSystem steady(body.network(), NetworkSystem::Mode::Steady);
   steady.freezeTime(0.0);
   std::vector<double> result = solveSteadyState(steady, start, 0.0, stats);
   if (stats) {
-    SolverStatistics r = relax.statistics();
-    stats->steps = r.steps;
-    stats->rhsEvaluations += r.rhsEvaluations;
-    stats->jacobianEvaluations += r.jacobianEvaluations;
-    stats->nonlinearIterations += r.nonlinearIterations;
-    stats->wallSeconds += r.wallSeconds;
+    stats->steps = relaxed.steps;
+    stats->rhsEvaluations += relaxed.rhsEvaluations;
+    stats->jacobianEvaluations += relaxed.jacobianEvaluations;
+    stats->nonlinearIterations += relaxed.nonlinearIterations;
+    stats->wallSeconds += relaxed.wallSeconds;
   }
   return result;
 }

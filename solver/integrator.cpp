@@ -509,4 +509,35 @@ std::vector<double> solveSteadyState(const NetworkSystem& system, std::span<cons
   return {result.begin(), result.end()};
 }
 
+std::vector<double> linearlyImplicitStep(const NetworkSystem& system, std::span<const double> from, double time,
+                                         double step) {
+  SUNContext raw = nullptr;
+  check(SUNContext_Create(nullptr, &raw), "SUNContext_Create");
+  detail::Handle<_SUNContext> ctx(raw);
+  const auto n = static_cast<sunindextype>(system.size());
+  const SparsePattern& pattern = system.pattern();
+  // J - I/h (every diagonal entry is in the pattern: CVODE's Newton matrix I - gamma J needs it too).
+  std::vector<double> values(pattern.nonzeros());
+  system.jacobian(time, from, values);
+  for (Index c = 0; c < pattern.size; ++c)
+    for (Index p = pattern.columnStart[c]; p < pattern.columnStart[c + 1]; ++p)
+      if (pattern.rowIndex[p] == c) values[p] -= 1.0 / step;
+  detail::Handle<_generic_N_Vector> rate(checkCreated(N_VNew_Serial(n, raw), "the rates"));
+  detail::Handle<_generic_N_Vector> change(checkCreated(N_VNew_Serial(n, raw), "the step"));
+  system.evaluate(time, from, view(rate.get()));
+  N_VScale(-1.0, rate.get(), rate.get());
+  detail::Handle<_generic_SUNMatrix> J(
+      checkCreated(SUNSparseMatrix(n, n, static_cast<sunindextype>(pattern.nonzeros()), CSC_MAT, raw), "the Jacobian"));
+  fillMatrix(J.get(), pattern, values);
+  detail::Handle<_generic_SUNLinearSolver> LS(checkCreated(SUNLinSol_KLU(change.get(), J.get(), raw), "KLU"));
+  check(SUNLinSol_KLUSetOrdering(LS.get(), 0), "SUNLinSol_KLUSetOrdering");  // AMD, as for CVODE
+  if (SUNLinSolInitialize(LS.get()) != 0 || SUNLinSolSetup(LS.get(), J.get()) != 0 ||
+      SUNLinSolSolve(LS.get(), J.get(), change.get(), rate.get(), 0.0) != 0)
+    return {};
+  std::vector<double> result(from.begin(), from.end());
+  auto d = view(change.get());
+  for (Index i = 0; i < system.size(); ++i) result[i] += d[i];
+  return result;
+}
+
 }  // namespace thermorph

@@ -186,4 +186,11 @@ class Integrator {
 std::vector<double> solveSteadyState(const NetworkSystem& system, std::span<const double> guess, double time,
                                      SolverStatistics* statistics = nullptr);
 
+//! One linearly implicit Euler step of `step` [s] of a transient NetworkSystem from the state `from` (the whole
+//! state vector): y + d with (I - step J) d = step f(y), J and f at `from` (KLU on the analytic Jacobian). Modes much
+//! faster than `step` land at their quasi-steady values, slower ones move by about step times their rate. Empty
+//! when the linear solve fails; the evaluations' exceptions (a state outside the physical band) pass through.
+std::vector<double> linearlyImplicitStep(const NetworkSystem& system, std::span<const double> from, double time,
+                                         double step);
+
 }  // namespace thermorph
