@@ -1008,25 +1008,40 @@ void Body::linkSegmentBlood(const Circulation& c, Index g) {
 }
 
 void Body::checkBloodMassBalance() const {
-  // Mass balance at every node for every modulator separately: inflow equals outflow (to round-off).
-  std::map<std::pair<Index, Index>, std::array<double, 2>> balance;  // (node, modulator) -> in, out
+  // Mass balance at every node for every modulator separately: inflow equals outflow (to round-off). The terms
+  // (node, modulator, in, out) in the order of the network, sorted by (node, modulator) keeping that order within
+  // each pair, so every pair's sums add the same numbers in the same order as a map of sums would (a std::map of
+  // (node, modulator) pairs took about 1 % of a small study's run).
+  struct Term {
+    Index node, modulator;
+    double in, out;
+  };
+  std::vector<Term> terms;
   for (const Advection& a : network_.advections) {
     double w = network_.groupWeights[network_.nodes[a.to].group];
     for (Index p = a.partsBegin; p < a.partsEnd; ++p) {
-      balance[{a.to, network_.flowParts[p].modulator}][0] += w * network_.flowParts[p].coefficient;
-      balance[{a.from, network_.flowParts[p].modulator}][1] += w * network_.flowParts[p].coefficient;
+      terms.push_back({a.to, network_.flowParts[p].modulator, w * network_.flowParts[p].coefficient, 0.0});
+      terms.push_back({a.from, network_.flowParts[p].modulator, 0.0, w * network_.flowParts[p].coefficient});
     }
   }
   for (const BoundaryExchange& e : network_.exchanges)
     for (Index p = e.partsBegin; p < e.partsEnd; ++p)
-      balance[{e.node, network_.flowParts[p].modulator}][0] += network_.flowParts[p].coefficient;
-  for (auto& [key, io] : balance) {
+      terms.push_back({e.node, network_.flowParts[p].modulator, network_.flowParts[p].coefficient, 0.0});
+  std::stable_sort(terms.begin(), terms.end(), [](const Term& a, const Term& b) {
+    return a.node != b.node ? a.node < b.node : a.modulator < b.modulator;
+  });
+  for (std::size_t k = 0; k < terms.size();) {
+    const Index node = terms[k].node, modulator = terms[k].modulator;
+    std::array<double, 2> io{0.0, 0.0};
+    for (; k < terms.size() && terms[k].node == node && terms[k].modulator == modulator; ++k) {
+      io[0] += terms[k].in;  // + 0.0 for an outflow term: the same sum
+      io[1] += terms[k].out;
+    }
     bool sink = !pool_ && io[1] == 0.0;  // pinned supply: returns leave the body
     // (An absolute floor: flows of subnormal size carry no relative precision.)
     if (!sink && std::abs(io[0] - io[1]) > 1e-9 * (std::abs(io[0]) + std::abs(io[1])) + 1e-290)
       throw std::logic_error(fmt::format("blood mass not conserved at {} for {} (in {:g}, out {:g} W/K)",
-                                         network_.label(key.first), network_.modulators[key.second].name, io[0],
-                                         io[1]));
+                                         network_.label(node), network_.modulators[modulator].name, io[0], io[1]));
   }
 }
 
