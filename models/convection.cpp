@@ -30,12 +30,21 @@ T quarticRoot(T x) {
   return sqrt(sqrt(x));
 }
 
+// Products and quotients of powers as one exp of the sum of the logarithms, ln Pr shared between the powers of Pr:
+// two to three fewer exp and log per evaluation, equal to the separate powers to a few units in the last place.
 template <class T>
 T cylinderCrossFlow(T reynolds, T prandtl) {
-  using std::sqrt;
-  const T laminar =
-      0.62 * sqrt(reynolds) * powConst(prandtl, 1.0 / 3.0) / quarticRoot(1.0 + powConst(0.4 / prandtl, 2.0 / 3.0));
-  return 0.3 + laminar * powConst(1.0 + powConst(reynolds / 282000.0, 5.0 / 8.0), 4.0 / 5.0);
+  using std::exp, std::sqrt;
+  if (!(valueOf(reynolds) > 0.0) || !(valueOf(prandtl) > 0.0)) {
+    const T laminar =
+        0.62 * sqrt(reynolds) * powConst(prandtl, 1.0 / 3.0) / quarticRoot(1.0 + powConst(0.4 / prandtl, 2.0 / 3.0));
+    return 0.3 + laminar * powConst(1.0 + powConst(reynolds / 282000.0, 5.0 / 8.0), 4.0 / 5.0);
+  }
+  const T lnPr = logOf(prandtl);
+  const T x = exp((2.0 / 3.0) * (std::log(0.4) - lnPr));  // (0.4/Pr)^(2/3)
+  const T z = powConst(reynolds / 282000.0, 5.0 / 8.0);
+  // 0.62 Re^(1/2) Pr^(1/3) (1 + x)^(-1/4) (1 + z)^(4/5)
+  return 0.3 + 0.62 * sqrt(reynolds) / quarticRoot(1.0 + x) * exp(lnPr / 3.0 + 0.8 * logOf(1.0 + z));
 }
 
 template <class T>
@@ -59,12 +68,20 @@ T mitchell(T reynolds, double a, double b) {
   return a * powConst(reynolds, b);
 }
 
+//! Churchill and Chu's (c + 0.387 Ra^(1/6) / (1 + (k/Pr)^(9/16))^(8/27))^2, the quotient as one exp.
+template <class T>
+T churchillChu(T rayleigh, T prandtl, double c, double k) {
+  using std::exp;
+  const T denominatorBase = 1.0 + powConst(k / prandtl, 9.0 / 16.0);
+  const T root = valueOf(rayleigh) > 0.0
+                     ? c + 0.387 * exp(logOf(rayleigh) / 6.0 - (8.0 / 27.0) * logOf(denominatorBase))
+                     : c + 0.387 * powConst(rayleigh, 1.0 / 6.0) / powConst(denominatorBase, 8.0 / 27.0);
+  return root * root;
+}
+
 template <class T>
 T horizontalCylinderFree(T rayleigh, T prandtl) {
-  using std::pow;
-  const T root = 0.60 + 0.387 * powConst(rayleigh, 1.0 / 6.0) /
-                            powConst(1.0 + powConst(0.559 / prandtl, 9.0 / 16.0), 8.0 / 27.0);
-  return root * root;
+  return churchillChu(rayleigh, prandtl, 0.60, 0.559);
 }
 
 template <class T>
@@ -75,10 +92,7 @@ T sphereFree(T rayleigh, T prandtl) {
 
 template <class T>
 T verticalPlateFree(T rayleigh, T prandtl) {
-  using std::pow;
-  const T root = 0.825 + 0.387 * powConst(rayleigh, 1.0 / 6.0) /
-                             powConst(1.0 + powConst(0.492 / prandtl, 9.0 / 16.0), 8.0 / 27.0);
-  return root * root;
+  return churchillChu(rayleigh, prandtl, 0.825, 0.492);
 }
 
 template <class T>
