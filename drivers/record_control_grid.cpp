@@ -13,7 +13,7 @@ namespace {
 
 //! Below this share of its range an output counts as closed: its error is stated relative to that share (an
 //! opening of 0.001 that is 50 % off is 0.0005 of its range, which no reader of the output would see).
-constexpr double kOutputFloor = 0.05;
+constexpr double kOutputFloor = kControlOutputFloor;
 
 //! The signal is a layer mean of cell temperatures (the core's innermost layer, a skin layer), whose own
 //! discretisation error adds to the heat flows': kSignalFactor times that layer's estimated error. Measured on
@@ -245,8 +245,17 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
     if (!steady_ && t > start_ && w.capacity > 0.0) {
       for (std::size_t g = 0; g < spec.segments.size() && g < estimates_.size() && g < groups; ++g) {
         if (!w.scope[g]) continue;
-        const StorageTransientError s = storageTransientError(spec.segments[g], estimates_[g], t - start_);
-        const double part = s.error * net.groupWeights[g] * exchanged_[g] / w.capacity;
+        StorageTransientError s = storageTransientError(spec.segments[g], estimates_[g], t - start_);
+        // At most the heat the segment's layers can misplace over their whole transient (storageHeatBound): the
+        // error of the heat exchanged since the start no longer grows once each layer has reached its profile.
+        double heat = s.error * exchanged_[g];
+        const StorageHeatBound bound = storageHeatBound(spec.segments[g], estimates_[g]);
+        if (bound.heat < heat) {
+          heat = bound.heat;
+          s.layer = bound.layer;
+          s.cells = bound.cells;
+        }
+        const double part = heat * net.groupWeights[g] / w.capacity;
         storage += part;
         if (part > worst) worst = part, worstLayer = s, worstSegment = g;
       }

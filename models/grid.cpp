@@ -184,7 +184,7 @@ void endFaceTerms(SegmentGridEstimate& e, const std::vector<Layer>& ls, int ends
 //! its convection by 0.013 %, where the unweighted estimate said 2 %). Outer layers, which the whole surface heat
 //! crosses, keep weight 1. 400 cells per layer; cell-centred finite volumes with linear half cells (ours).
 std::vector<double> crossingShares(Shape shape, double width, const std::vector<Layer>& ls, bool wet, double rhoCBlood,
-                                   double finM2, double h) {
+                                   double finM2, double h, std::vector<double>* drop = nullptr) {
   std::vector<double> shares(ls.size(), 1.0);
   if (!(h > 0.0) || ls.empty()) return shares;
   constexpr int perLayer = 400;
@@ -229,6 +229,12 @@ std::vector<double> crossingShares(Shape shape, double width, const std::vector<
   // The right-hand side is zero but for the last row (-gs), and elimination leaves it so (f 0 subtracted from 0).
   t[n - 1] = -gs / diag[n - 1];
   for (std::size_t j = n - 1; j-- > 0;) t[j] = (0.0 - -g[j] * t[j + 1]) / diag[j];
+  // Per layer, as a fraction of the contrast between the arterial temperature and the surroundings: the drop of
+  // the steady temperature across the layer (first to last cell centre; storageHeatBound).
+  if (drop) {
+    drop->assign(ls.size(), 0.0);
+    for (std::size_t i = 0; i < ls.size(); ++i) (*drop)[i] = std::abs(t[i * perLayer] - t[(i + 1) * perLayer - 1]);
+  }
   const double surface = gs * (t[n - 1] + 1.0);  // outward [W per unit length per K]
   if (!(surface > 0.0)) return shares;
   for (std::size_t i = 0; i + 1 < ls.size(); ++i) {
@@ -245,6 +251,7 @@ struct SurfaceProbe {
   std::vector<bool> everWet;
   std::vector<std::vector<char>> immersed;  //!< per segment, per probed time: in water
   std::vector<double> times;                //!< the probed times [s] (as immersed's entries)
+  std::vector<double> contrast;             //!< per segment: largest |initial temperature - fluid| [K]
 };
 
 SurfaceProbe probeSurfaces(const Case& c) {
@@ -260,6 +267,7 @@ SurfaceProbe probeSurfaces(const Case& c) {
   probe.conductance.assign(n, 0.0);
   probe.everWet.assign(n, false);
   probe.immersed.assign(n, {});
+  probe.contrast.assign(n, 0.0);
   std::vector<double> times{0.0};
   for (double b : env.breakpoints()) times.push_back(b);
   times.push_back(c.run.duration);
@@ -273,6 +281,7 @@ SurfaceProbe probeSurfaces(const Case& c) {
         probe.immersed[g].push_back(env.immersed(g, t) ? 1 : 0);
         if (env.immersed(g, t)) probe.everWet[g] = true;
         const double fluid = env.fluid(g, t).temperature;
+        probe.contrast[g] = std::max(probe.contrast[g], std::abs(c.run.initialTemperature - fluid));
         for (double Ts : {fluid + 0.5 * (body - fluid), fluid + 0.1 * (body - fluid), fluid + 1.0}) {
           std::fill(heat.begin(), heat.end(), 0.0);
           std::fill(slope.begin(), slope.end(), 0.0);
@@ -423,6 +432,23 @@ StorageTransientError storageTransientError(const SegmentSpec& s, const SegmentG
   return out;
 }
 
+StorageHeatBound storageHeatBound(const SegmentSpec& s, const SegmentGridEstimate& e) {
+  StorageHeatBound out;
+  double worst = -1.0;
+  for (std::size_t j = 0; j < e.layerStorageHeat.size(); ++j) {
+    const bool coat = j >= s.layers.size();
+    if (coat && !s.coat) continue;
+    LayerSpec layer;
+    layer.cells = std::max(coat ? s.coat->cells : s.layers[j].cells, 1);
+    layer.grading = coat ? 1.0 : s.layers[j].grading;
+    const double x = layer.largestCell(1.0);  // dx / L
+    const double heat = kStorageErrorConstant * x * x * e.layerStorageHeat[j];
+    out.heat += heat;
+    if (heat > worst) worst = heat, out.layer = j, out.cells = layer.cells;
+  }
+  return out;
+}
+
 //! Per unit length of a segment: the conductance U' from the tissue to the surroundings (surface conductance h in
 //! series with the coat and tissue radial resistances), the perfusion term sum w rho_b c_b A to the arterial blood
 //! and the axial conductance sum k A; the fin parameter m = sqrt((U' + perfusion) / sum k A) (0 for spheres).
@@ -450,6 +476,105 @@ Fin finOf(const SegmentSpec& s, const std::vector<Layer>& ls, double h, bool wet
   f.surface = h > 0.0 ? 1.0 / (resistance + 1.0 / (h * perimeter)) : 0.0;
   f.m = s.shape == Shape::Sphere || !(f.axial > 0.0) ? 0.0 : std::sqrt((f.surface + f.blood) / f.axial);
   return f;
+}
+
+//! The storage transient after a start from a uniform temperature (storageHeatBound), for each controller output
+//! that drives a term: the heat misplaced in its scope, over the scope's heat capacity C, shifts its signal, and
+//! the output by gain x shift; the check after the run (drivers/record_control_grid.cpp) states that relative to
+//! max(u, kControlOutputFloor x range). The automatic radial cells keep the sum over the scope's layers
+//! sum_j a_j / N_j^2 (a_j = copies kPenetrationErrorConstant H_j) within B = half the check's limit at the floor:
+//! 0.5 max(1 %, run.grid_tolerance) kControlOutputFloor range C / gain [J], at the least cells (Lagrange:
+//! N_j proportional to (a_j / c_j)^(1/3), c_j the segment's axial cells, the nodes a radial cell costs).
+//! Scopes as the check's: a body-wide controller's (core, mean skin) the whole body, a local_skin controller's its
+//! segment. Measured on cases/cold_feet_demo.toml: DEVELOPERS.md "Coats in the automatic grid's storage rule".
+void storageRule(const Case& c, const std::vector<std::vector<Layer>>& layers, std::vector<SegmentGridEstimate>& out) {
+  if (c.run.initial != InitialCondition::Temperature || out.size() != c.segments.size()) return;
+  const std::size_t n = c.segments.size();
+  // Copies of each segment in the body (its count times its ancestors').
+  std::vector<double> copies(n, 1.0);
+  for (Index g = 0; g < n; ++g) {
+    copies[g] = c.segments[g].count;
+    for (std::string parent = c.segments[g].parent; !parent.empty();) {
+      Index p = 0;
+      while (p < n && c.segments[p].name != parent) ++p;
+      if (p == n) break;
+      copies[g] *= c.segments[p].count;
+      parent = c.segments[p].parent;
+    }
+  }
+  // A controller named in an event's control table may be enabled by it.
+  auto named = [&](const std::string& name) {
+    for (const EventSpec& ev : c.events)
+      for (const ControlTarget& t : ev.control)
+        if (t.controller == name) return true;
+    return false;
+  };
+  struct Output {
+    double gain, range;
+    std::vector<Index> scope;
+  };
+  std::vector<Output> outputs;
+  std::vector<Index> all(n);
+  for (Index g = 0; g < n; ++g) all[g] = g;
+  std::vector<char> local(n, 0);
+  for (const LocalControllerSpec& l : c.control.local)
+    for (const std::string& name : l.segments)
+      for (Index g = 0; g < n; ++g)
+        if (c.segments[g].name == name) local[g] = 1;
+  const ControlSpec& cs = c.control;
+  if (cs.vasomotor.present && (cs.vasomotor.enabled || named("vasomotor"))) {
+    outputs.push_back({cs.vasomotor.gain, cs.vasomotor.upper - cs.vasomotor.lower, all});
+    // Its shunts drive a term only where a segment with shunts follows it (not a local controller).
+    for (Index g = 0; g < n; ++g)
+      if (!local[g] && c.segments[g].vessels.shuntFlowMax > 0.0) {
+        outputs.push_back({cs.vasomotor.shuntGain, 1.0, all});
+        break;
+      }
+  }
+  if (cs.shivering.present && (cs.shivering.enabled || named("shivering"))) outputs.push_back({cs.shivering.gain, 1.0, all});
+  if (cs.panting.present && (cs.panting.enabled || named("panting")))
+    outputs.push_back({cs.panting.gain, cs.panting.upper - cs.panting.lower, all});
+  for (const LocalControllerSpec& l : cs.local) {
+    const bool on = l.enabled || named(l.name);
+    for (const std::string& name : l.segments)
+      for (Index g = 0; g < n; ++g) {
+        if (c.segments[g].name != name) continue;
+        const std::vector<Index> scope = l.signal == ControlSignal::LocalSkin ? std::vector<Index>{g} : all;
+        if (on) {
+          outputs.push_back({l.gain, l.upper - l.lower, scope});
+          if (c.segments[g].vessels.shuntFlowMax > 0.0) outputs.push_back({l.shuntGain, 1.0, scope});
+        }
+        if (l.civd) outputs.push_back({1.0 / l.civd->width, 1.0, {g}});  // always on; its own skin
+      }
+  }
+  const double limit = std::max(kGridWarnError, c.run.gridTolerance);
+  const int cap = static_cast<int>(std::ceil(kMaxAutoPenetrationCells * std::sqrt(kGridTargetError / gridTargetError(c)) - 1e-9));
+  for (const Output& o : outputs) {
+    if (!(std::abs(o.gain) > 0.0) || !(o.range > 0.0)) continue;
+    double capacity = 0.0;  // of the scope, copies weighted [J/K]
+    for (Index g : o.scope)
+      for (const Layer& L : layers[g])
+        capacity += copies[g] * L.capacity * shellVolume(c.segments[g].shape, c.segments[g].width, c.segments[g].length,
+                                                         L.inner, L.outer);
+    const double budget = 0.5 * limit * kControlOutputFloor * o.range * capacity / std::abs(o.gain);
+    if (!(budget > 0.0)) continue;
+    double sum = 0.0;  // sum a^(1/3) c^(2/3)
+    auto cost = [&](Index g) {
+      const SegmentGridEstimate& e = out[g];
+      if (c.segments[g].shape == Shape::Sphere) return 1.0;
+      return double(e.gradingNeeded > 1.0 ? e.gradedNeeded : e.axialNeeded);
+    };
+    for (Index g : o.scope)
+      for (double h : out[g].layerStorageHeat)
+        if (h > 0.0) sum += std::cbrt(copies[g] * kStorageErrorConstant * h) * std::pow(cost(g), 2.0 / 3.0);
+    for (Index g : o.scope)
+      for (std::size_t j = 0; j < out[g].layerStorageHeat.size() && j < out[g].layerNeeded.size(); ++j) {
+        const double a = copies[g] * kStorageErrorConstant * out[g].layerStorageHeat[j];
+        if (!(a > 0.0)) continue;
+        const int cells = static_cast<int>(std::ceil(std::cbrt(a / cost(g)) * std::sqrt(sum / budget) - 1e-9));
+        out[g].layerNeeded[j] = std::max(out[g].layerNeeded[j], std::min(cells, cap));
+      }
+  }
 }
 
 std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
@@ -589,7 +714,15 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
     // So however little heat crosses the core segment's innermost layer, the estimate keeps its curvature (its
     // radius) unweighted (limb_cooling's forelimb, bone of radius 5 mm in 1 cell instead of 4: heat flows 0.06 %,
     // core temperature 0.086 K).
-    e.layerWeight = crossingShares(s.shape, s.width, ls, wet, rc, e.axialForced ? m * m : 0.0, h);
+    std::vector<double> drop;
+    e.layerWeight = crossingShares(s.shape, s.width, ls, wet, rc, e.axialForced ? m * m : 0.0, h, &drop);
+    // The storage transient after a start from a uniform temperature (storageHeatBound): per layer its heat
+    // capacity C times the drop D across it on the steady profile times D over the whole contrast.
+    e.layerStorageHeat.assign(ls.size(), 0.0);
+    if (c.run.initial == InitialCondition::Temperature && drop.size() == ls.size())
+      for (std::size_t i = 0; i < ls.size(); ++i)
+        e.layerStorageHeat[i] = ls[i].capacity * shellVolume(s.shape, s.width, s.length, ls[i].inner, ls[i].outer) *
+                                probe.contrast[g] * drop[i] * drop[i];
     const bool coreSegment = g == coreIndex;
     e.layerCoreScale.assign(ls.size(), std::numeric_limits<double>::infinity());
     if (coreSegment && curved && !ls.empty()) e.layerCoreScale[0] = ls[0].outer;
@@ -769,6 +902,7 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
     }
     out.push_back(e);
   }
+  storageRule(c, layers, out);
   return out;
 }
 

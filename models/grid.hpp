@@ -141,7 +141,36 @@ struct SegmentGridEstimate {
   double coatEndDecay = 0.0;       //!< axial decay length of the coat next to an exposed end [m]
   double coatEndRadialShare = 0.0; //!< share of the surface heat through the coat's annular ends, for the coat's
                                    //!< radial cells at that corner (kCoatCornerConstant / cells^2 of it) [1]
+  //! A start from a uniform temperature: per layer (coat last) C D^2 / Delta [J per copy], C its heat capacity, D the
+  //! drop across it on the steady profile of the cross-section (1-D, crossingShares: tissue tied to the arterial
+  //! temperature, which stays at the initial one) and Delta the largest contrast between the initial temperature
+  //! and the fluid; empty or 0 for a steady start (storageHeatBound).
+  std::vector<double> layerStorageHeat;
 };
+
+//! Below this share of its range a controller output counts as closed: its grid error is stated relative to that
+//! share (the controller-output check, drivers/record_control_grid.cpp, and the automatic grid's storage rule).
+inline constexpr double kControlOutputFloor = 0.05;
+
+//! Storage transient after a start from a uniform temperature: the heat a layer's cells send into the body over its
+//! transient differs from the exact heat by kStorageErrorConstant (dx / L)^2 C D^2 / Delta (layerStorageHeat).
+//! Derivation (ours): the initial excess over the steady profile, phi_0, leaves through the inner face in the share
+//! w(x) (the steady profile with the inner face at 1 and the surroundings at 0), so the heat that reaches the body
+//! is the integral of rho c phi_0 w; the cell-centred scheme takes it by the midpoint rule, whose error for the
+//! product of two linear profiles is (dx^2 / 12) rho c phi_0' w' L = C D (D / Delta) / 12 per cells^2, exact in the
+//! slab limit (a coat on a body held at the initial temperature, convection outside: the difference of the scheme
+//! from the Carslaw & Jaeger 1959 sec. 3.11 series tends to it; tests/test_grid_transient.cpp). A layer that cools
+//! uniformly (small drop across it: a perfused tissue, a low Biot number) misplaces little on any cells.
+inline constexpr double kStorageErrorConstant = 1.0 / 12.0;
+//! The heat a segment's discretisation can have misplaced in its body (one copy) after a start from a uniform
+//! temperature, on its cell counts in `s` [J]: the sum over its layers (coat included) of kStorageErrorConstant
+//! (dx / L)^2 layerStorageHeat (dx the layer's largest cell, L its thickness). `layer`: the layer of the largest term.
+struct StorageHeatBound {
+  double heat = 0.0;  //!< [J]
+  std::size_t layer = 0;
+  int cells = 1;
+};
+StorageHeatBound storageHeatBound(const SegmentSpec& s, const SegmentGridEstimate& e);
 
 //! Estimated relative error of a layer's heat flows with `cells` radial cells (steady length scale and transient
 //! penetration depth, the larger of the two); graded cells (LayerSpec::grading) by their thickest cell.
