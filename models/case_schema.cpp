@@ -155,7 +155,7 @@ constexpr std::array params = {
     Param{"segments[].layers[].thickness", K::Quantity, "m", "", 0, 10, true, "",
           "Layer thickness; the first layer of a sphere or cylinder: its radius; of a plate: its half-thickness. "
           "The first layer's thickness may be omitted when the segment's radius or thickness is given."},
-    Param{"segments[].layers[].cells", K::Integer, "", "1", 1, 100000, false, "", "Radial cells in the layer; leave it out to have it chosen from the layer's perfusion length and radius and, under surroundings that events step, the thermal penetration depth sqrt(alpha tau) (README, Grid)."},
+    Param{"segments[].layers[].cells", K::Integer, "", "1", 1, 100000, false, "", "Radial cells in the layer; leave it out to have it chosen from the layer's perfusion length and radius and, under surroundings that events step, the thermal penetration depth sqrt(alpha tau) and, after a uniform start where controllers act, the heat its cells misplace (README, Grid)."},
     Param{"segments[].layers[].grading", K::Number, "", "1", 1, 1e6, false, "",
           "Radial cells of the layer graded geometrically towards its outer face: the ratio Q of the cell thickness at "
           "the inner face to that at the outer face of the mapping d(y) = t (Q^y - 1) / (Q - 1) (d the distance from "
@@ -166,7 +166,7 @@ constexpr std::array params = {
     Param{"segments[].coat", K::Table, "", "", 0, 0, false, "", "Optional fur or feather coat: `{ material, thickness, cells }`."},
     Param{"segments[].coat.material", K::Text, "", "fur", 0, 0, false, "", "Coat material (fur, feathers or a [tissues.NAME])."},
     Param{"segments[].coat.thickness", K::Quantity, "m", "", 0, 1, true, "", "Coat thickness."},
-    Param{"segments[].coat.cells", K::Integer, "", "2", 1, 10000, false, "", "Radial cells in the coat; leave it out to have it chosen from its radius (README, Grid)."},
+    Param{"segments[].coat.cells", K::Integer, "", "2", 1, 10000, false, "", "Radial cells in the coat; leave it out to have it chosen from its radius, its exposed ends and, after a uniform start where controllers act, the heat its cells misplace (README, Grid)."},
     Param{"segments[].surface", K::Table, "", "", 0, 0, false, "", "Surface properties of the segment."},
     Param{"segments[].surface.ends", K::Choice, "", "exposed", 0, 0, false, "exposed|insulated",
           "Cylinder and cone end faces: exchange heat with the medium, or insulated."},

@@ -684,8 +684,9 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
         const Layer& L = ls[j];
         if (!(L.capacity > 0.0)) continue;
         const double delta = std::sqrt(std::min(L.k, L.kWet) / L.capacity * tau);
-        // A coat (fur, feathers: rho c ~ 1e5, a twentieth of tissue) stores little of the heat the surface
-        // exchanges: it keeps the steady rule, and counts only in the depth of the layers inside it.
+        // A coat (fur, feathers: rho c ~ 1e5, a twentieth of tissue) stores little of the heat a step exchanges
+        // over tau: it keeps the steady rule here, and counts in the depth of the layers inside it; what it stores
+        // after a uniform start, which controllers see, is storageRule's.
         if (!L.coat) {
           e.layerPenetration[j] = delta;
           e.layerStepShare[j] = std::erfc(depth);

@@ -38,6 +38,9 @@
 //!     erfc(depth / (2 delta)) of the step that reaches its outer face (Carslaw & Jaeger 1959, eq. 2.4(7)),
 //!     depth measured through the layers outside it in units of their own delta; exposed end faces of
 //!     cylinders and cones count with their share of the segment's exposed area.
+//!   * after a start from a uniform temperature where controllers act: the heat each layer's cells (coats included)
+//!     misplace into the body over its transient, C D^2 / (12 Delta N^2) (storageHeatBound), held within what the
+//!     controllers' outputs resolve over their scopes' heat capacities (storageRule, grid.cpp).
 //! Segments whose axial profile is forced only by the surroundings (a root with insulated ends) need few axial
 //! cells; appendages and exposed ends are resolved to the decay length.
 #include <string>
