@@ -185,6 +185,19 @@ double EnvironmentModel::convectionCoefficient(Index face, double faceTemperatur
     return cached.h + cached.dh * shift;
   }
 
+  const ConvectionResult r = thermorph::convectionCoefficient(convectionInput(face, faceTemperature, fl));
+  if (r.outsideValidity) collectWarnings();
+  const double curvature = sameFluid && shift != 0.0 ? std::abs(r.dh_dTs - cached.dh) / std::abs(shift)
+                                                     : std::numeric_limits<double>::infinity();
+  if (!reporting_)
+    cached = {faceTemperature, fl.temperature, fl.speed, r.h, r.dh_dTs, curvature, fl.medium,
+              r.outsideValidity && !validityLogging()};
+  if (derivative) *derivative = r.dh_dTs;
+  return r.h;
+}
+
+ConvectionInput EnvironmentModel::convectionInput(Index face, double faceTemperature, const FaceFluid& fl) const {
+  const FaceDescription& f = faces_[face];
   const SegmentSpec& s = case_.segments[f.segment];
   ConvectionInput in;
   in.medium = fl.medium;
@@ -198,14 +211,19 @@ double EnvironmentModel::convectionCoefficient(Index face, double faceTemperatur
   in.length = f.characteristicLength;
   in.volumeLength = f.volumeLength;
   in.verticalPlate = s.surface.orientation == PlateOrientation::Vertical;
-  in.width = surface.width;
-  const ConvectionResult r = thermorph::convectionCoefficient(in);
-  if (r.outsideValidity) collectWarnings();
-  const double curvature = sameFluid && shift != 0.0 ? std::abs(r.dh_dTs - cached.dh) / std::abs(shift)
-                                                     : std::numeric_limits<double>::infinity();
-  if (!reporting_) cached = {faceTemperature, fl.temperature, fl.speed, r.h, r.dh_dTs, curvature, fl.medium};
-  if (derivative) *derivative = r.dh_dTs;
-  return r.h;
+  in.width = surfaces_[f.segment].width;
+  return in;
+}
+
+void EnvironmentModel::confirmRanges(double time) const {
+  for (Index face = 0; face < faces_.size(); ++face) {
+    CachedCoefficient& cached = cache_[face];
+    if (!cached.unlogged) continue;
+    cached.unlogged = false;
+    const FaceFluid fl = fluid(faces_[face].segment, time);
+    if (thermorph::convectionCoefficient(convectionInput(face, cached.faceTemperature, fl)).outsideValidity)
+      collectWarnings();
+  }
 }
 
 void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<double> channelHeat,

@@ -9,6 +9,7 @@
 #include <vector>
 
 #include "models/case.hpp"
+#include "models/convection.hpp"
 #include "models/media.hpp"
 #include "network/network.hpp"
 
@@ -97,8 +98,14 @@ class EnvironmentModel : public SurfaceModel {
   double value(EnvironmentVariable variable, double time) const;
   //! Correlations used outside their validity range, each reported once (collected while running).
   std::vector<std::string> warnings() const;
+  //! Range checks of the faces whose last convection evaluation lay outside a correlation's range while range checks
+  //! did not log (a ValidityLogScope(false): the steady start's trial states), again at that face temperature (within
+  //! 0.1 K of the face's latest evaluated state: the cache's reach) and the fluid at `time`, now logging; the cache is
+  //! not changed.
+  void confirmRanges(double time) const;
 
  private:
+  ConvectionInput convectionInput(Index face, double faceTemperature, const FaceFluid& fl) const;
   //! A segment's surface with every default resolved.
   struct SegmentSurface {
     Immersion immersion = Immersion::Body;
@@ -134,6 +141,9 @@ class EnvironmentModel : public SurfaceModel {
     double faceTemperature = -1.0, fluidTemperature = -1.0, speed = 0.0, h = 0.0, dh = 0.0;
     double curvature = std::numeric_limits<double>::infinity();
     Medium medium = Medium::Air;
+    //! that evaluation's inputs were outside a correlation's or table's validity range while range checks did not
+    //! log (ValidityLogScope(false)): confirmRanges checks them again
+    bool unlogged = false;
   };
   mutable std::vector<CachedCoefficient> cache_;
   mutable bool reporting_ = false;

@@ -25,6 +25,7 @@ namespace {
 struct WarningLog {
   std::vector<std::pair<std::string, std::string>> issued;  // (correlation, parameter) reported since the reset
   std::vector<std::string> pending;
+  bool logging = true;  // ValidityLogScope
 };
 WarningLog& warningLog() {
   thread_local WarningLog log;
@@ -35,6 +36,7 @@ WarningLog& warningLog() {
 bool checkValidity(const ValidityRange& range, double value) {
   if (range.contains(value)) return false;
   WarningLog& log = warningLog();
+  if (!log.logging) return true;
   for (const auto& [correlation, parameter] : log.issued)
     if (correlation == range.correlation && parameter == range.parameter) return true;
   log.issued.emplace_back(range.correlation, range.parameter);
@@ -49,6 +51,10 @@ std::vector<std::string> takeValidityWarnings() {
   out.swap(warningLog().pending);
   return out;
 }
+
+ValidityLogScope::ValidityLogScope(bool logging) : previous_(warningLog().logging) { warningLog().logging = logging; }
+ValidityLogScope::~ValidityLogScope() { warningLog().logging = previous_; }
+bool validityLogging() { return warningLog().logging; }
 
 void resetValidityWarnings() {
   WarningLog& log = warningLog();

@@ -52,6 +52,25 @@ std::vector<std::string> takeValidityWarnings();
 //! Forget which warnings were issued on this thread (EnvironmentModel does this for every new case).
 void resetValidityWarnings();
 
+//! While one lives, range checks on this thread answer (checkValidity still returns whether the value is outside)
+//! but log nothing (`logging` false), or log again (`logging` true) inside such a scope. The steady start defers
+//! them while it relaxes and iterates through states that are not the run's (a water film at -0.03 degC where no
+//! output comes within 4 K of it; drivers/simulation.cpp, steadyTemperatures) and then checks the faces again at
+//! the state reached (EnvironmentModel::confirmRanges).
+class ValidityLogScope {
+ public:
+  explicit ValidityLogScope(bool logging);
+  ~ValidityLogScope();
+  ValidityLogScope(const ValidityLogScope&) = delete;
+  ValidityLogScope& operator=(const ValidityLogScope&) = delete;
+
+ private:
+  bool previous_;
+};
+
+//! Whether range checks on this thread log now (true unless the innermost ValidityLogScope says false).
+bool validityLogging();
+
 // ---- fluid properties ------------------------------------------------------------
 
 enum class Medium { Air, FreshWater, SeaWater };
