@@ -13,6 +13,7 @@
 #include <deque>
 #include <filesystem>
 #include <map>
+#include <set>
 #include <mutex>
 #include <thread>
 #include <unordered_map>
@@ -42,6 +43,8 @@ std::string clock(double s) {
 }
 
 }  // namespace
+
+std::string joinedWarnings(const RunRow& row) { return join(row.warnings); }
 
 std::string warningPattern(std::string_view text) {
   // Numbers: a digit, then digits and points, then an optional exponent (1e-5, 2.3E+04).
@@ -93,7 +96,7 @@ RunRow runOne(const SweepPlan& plan, std::size_t run, const std::atomic<bool>* s
     loaded = Clock::now();
     Body body(c);
     built = Clock::now();
-    row.warnings = join(body.warnings());
+    row.warnings = body.warnings();
     MetricCollector collector(body, plan.window, plan.thresholds, plan.steady);
     RunOptions options;
     options.quiet = true;  // and no results file: options.output stays empty
@@ -111,7 +114,7 @@ RunRow runOne(const SweepPlan& plan, std::size_t run, const std::atomic<bool>* s
       if (std::find(warnings.begin(), warnings.end(), w) == warnings.end()) warnings.push_back(w);
     for (const std::string& w : body.environment().warnings())
       if (std::find(warnings.begin(), warnings.end(), w) == warnings.end()) warnings.push_back(w);
-    row.warnings = join(warnings);
+    row.warnings = std::move(warnings);
     row.steps = plan.steady ? summary.statistics.nonlinearIterations : summary.statistics.steps;
     row.energyBalanceError = summary.energyBalanceError;
     if (summary.stopped) throw RunAbandoned{};
@@ -252,7 +255,7 @@ void SweepSession::add(RunRow&& row) {
   if (row.abandoned || row.index >= rows_.size() || rows_[row.index].status != RunStatus::NotRun) return;
   journal_.append(row);
   if (row.status == RunStatus::Failed) ++failedNow_;
-  if (!row.warnings.empty()) warnings_.insert(row.warnings);
+  warnings_.insert(row.warnings.begin(), row.warnings.end());
   ++now_;
   rows_[row.index] = std::move(row);
 }
@@ -299,27 +302,34 @@ int SweepSession::finish() {
   info.warnings.assign(warnings_.begin(), warnings_.end());
   writeSweepTable(plan_, rows_, info, output_);
   if (missing == 0) journal_.remove();
-  // The runs' warnings on stderr, one line per kind: runs whose warnings differ only in numbers (a controller's
-  // output, an estimated error) share a line with their count and the first run's text; every row keeps its own.
+  // The runs' warnings on stderr, one line per kind: a warning of several runs that differs only in numbers (a
+  // controller's output, an estimated error) is one line with the number of runs that have it and the first such
+  // run's text; every row keeps its own. Kinds are single warnings, not a run's set of them (a run that warns of
+  // freezing and of a controller's grid error counts in both lines).
   struct Kind {
     std::size_t runs = 0, first = 0;
+    std::string text;
     bool numbersDiffer = false;
   };
   std::map<std::string, Kind> kinds;
   std::vector<std::string> order;
   for (const RunRow& r : rows_) {
-    if (r.warnings.empty()) continue;
-    auto [it, added] = kinds.try_emplace(warningPattern(r.warnings), Kind{0, r.index, false});
-    if (added) order.push_back(it->first);
-    Kind& k = it->second;
-    ++k.runs;
-    k.numbersDiffer = k.numbersDiffer || r.warnings != rows_[k.first].warnings;
+    std::set<std::string> seen;  // a kind counts once per run
+    for (const std::string& w : r.warnings) {
+      std::string pattern = warningPattern(w);
+      if (!seen.insert(pattern).second) continue;
+      auto [it, added] = kinds.try_emplace(std::move(pattern), Kind{0, r.index, w, false});
+      if (added) order.push_back(it->first);
+      Kind& k = it->second;
+      ++k.runs;
+      k.numbersDiffer = k.numbersDiffer || w != k.text;
+    }
   }
   for (const std::string& pattern : order) {
     const Kind& k = kinds.at(pattern);
     fmt::print(stderr, "warning ({} of {} runs{}): {}\n", k.runs, total_,
                k.numbersDiffer ? fmt::format("; numbers differ, see the warnings column; run {}", k.first) : "",
-               rows_[k.first].warnings);
+               k.text);
   }
   fmt::print("sweep: {} runs ({}): {} ok, {} failed, {} not run; {} done earlier, {} run now in {:.3g} s ({:.3g} runs/s, "
              "{})\n",
@@ -382,7 +392,8 @@ std::string packRow(const RunRow& row) {
   for (double v : row.metrics) put(out, v);
   putText(out, row.error);
   putText(out, row.overrides);
-  putText(out, row.warnings);
+  put(out, static_cast<std::uint64_t>(row.warnings.size()));
+  for (const std::string& w : row.warnings) putText(out, w);
   return out;
 }
 
@@ -401,7 +412,8 @@ RunRow unpackRow(std::string_view in) {
   for (double& v : row.metrics) v = get<double>(in);
   row.error = getText(in);
   row.overrides = getText(in);
-  row.warnings = getText(in);
+  row.warnings.resize(static_cast<std::size_t>(get<std::uint64_t>(in)));
+  for (std::string& w : row.warnings) w = getText(in);
   return row;
 }
 

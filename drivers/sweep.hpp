@@ -94,12 +94,16 @@ struct RunRow {
   bool abandoned = false;          //!< stopped by a signal: not a result, redone on resume
   std::string error;               //!< CaseError or SolverError message of a failed run
   std::string overrides;           //!< every override of the run, "; "-separated
-  std::string warnings;            //!< the body's warnings, "; "-separated
+  std::vector<std::string> warnings;  //!< the run's warnings, each whole (written "; "-separated: joinedWarnings)
   std::vector<double> metrics;     //!< [plan.columns]
   double loadSeconds = 0.0, buildSeconds = 0.0, solveSeconds = 0.0, wallSeconds = 0.0;  //!< [s]
   long steps = 0;                  //!< integrator steps (steady: nonlinear iterations)
   double energyBalanceError = 0.0; //!< [J]
 };
+
+//! A row's warnings as the table writes them (/runs/warnings, the CSV column, Python's t["warnings"]): "; "-separated.
+std::string joinedWarnings(const RunRow& row);
+
 
 //! Run `run` of the plan in this thread. A CaseError or SolverError gives a Failed row; `stop` (may be
 //! null) abandons the run at its next output.

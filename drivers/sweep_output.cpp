@@ -120,7 +120,14 @@ bool parseRow(const std::string& line, std::size_t columns, std::size_t runs, Ru
   for (std::size_t c = 0; c < columns; ++c)
     if (!parseNumber(f[fixedFields + c], row.metrics[c])) return false;
   row.overrides = unescape(f[fixedFields + columns]);
-  row.warnings = unescape(f[fixedFields + columns + 1]);
+  // One warning per line inside the field (no warning spans lines; the journal escapes the line breaks).
+  row.warnings.clear();
+  const std::string warnings = unescape(f[fixedFields + columns + 1]);
+  for (std::size_t start = 0; start < warnings.size();) {
+    const std::size_t end = std::min(warnings.find('\n', start), warnings.size());
+    row.warnings.push_back(warnings.substr(start, end - start));
+    start = end + 1;
+  }
   row.error = unescape(f[fixedFields + columns + 2]);
   return true;
 }
@@ -130,7 +137,8 @@ std::string formatRow(const RunRow& row) {
                                  number(row.loadSeconds), number(row.buildSeconds), number(row.solveSeconds),
                                  number(row.wallSeconds), row.steps, number(row.energyBalanceError));
   for (double v : row.metrics) fmt::format_to(std::back_inserter(line), "\t{}", v);
-  fmt::format_to(std::back_inserter(line), "\t{}\t{}\t{}\n", escape(row.overrides), escape(row.warnings),
+  fmt::format_to(std::back_inserter(line), "\t{}\t{}\t{}\n", escape(row.overrides),
+                 escape(fmt::format("{}", fmt::join(row.warnings, "\n"))),
                  escape(row.error));
   return line;
 }
@@ -405,7 +413,7 @@ void writeHdf5(const SweepPlan& plan, std::span<const RunRow> rows, const SweepT
       status[r] = statusName(row.status);
       error[r] = row.error;
       overrides[r] = row.overrides;
-      warnings[r] = row.warnings;
+      warnings[r] = joinedWarnings(row);
       load[r] = row.loadSeconds;
       build[r] = row.buildSeconds;
       solve[r] = row.solveSeconds;
@@ -455,7 +463,7 @@ void writeCsv(const SweepPlan& plan, std::span<const RunRow> rows, const std::st
     }
     for (std::size_t c = 0; c < plan.columns.size(); ++c)
       out << "," << (row.status == RunStatus::Ok ? number(row.metrics[c]) : std::string());
-    out << "," << csvField(row.warnings) << "," << csvField(row.error) << "\n";
+    out << "," << csvField(joinedWarnings(row)) << "," << csvField(row.error) << "\n";
   }
   out.close();
   if (!out) {

@@ -266,7 +266,7 @@ py::dict runSweep(const std::string& casePath, const std::vector<std::string>& v
   for (const RunRow& row : rows) {
     status.append(row.status == RunStatus::Ok ? "ok" : row.status == RunStatus::Failed ? "failed" : "not run");
     errors.append(row.error);
-    warnings.append(row.warnings);
+    warnings.append(joinedWarnings(row));
   }
   r["parameters"] = params;
   r["metrics"] = values;

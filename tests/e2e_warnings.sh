@@ -75,4 +75,24 @@ with h5py.File(sys.argv[1]) as f:
     w = [x.decode() if isinstance(x, bytes) else str(x) for x in f["runs/warnings"][()]]
 assert len(w) == 4 and all("Mitchell" in x for x in w), w
 PY
+# 4. The sweep's summary on stderr counts each warning over the runs that have it, not each run's set of warnings:
+#    freezing in 1 of 2 runs and Mitchell's constants in 2 of 2 (before, a run with both and a run with one made two
+#    lines that each named a different set); /provenance/warnings lists single warnings.
+"$exe" sweep "$work/rod.toml" --set segments.rod.surface.correlation=mitchell --set segments.rod.axial_cells=40 \
+  --vary "environment.temperature=-10 degC,20 degC" -j 1 -q -o "$work/k.h5" > /dev/null 2> "$work/k.err" \
+  || fail "kinds sweep exit $?"
+grep -q "^warning (1 of 2 runs): segment rod: tissue below 0 degC" "$work/k.err" \
+  || fail "freezing not counted as its own kind: $(cat "$work/k.err")"
+grep -q "^warning (2 of 2 runs): Mitchell (1976)" "$work/k.err" \
+  || fail "Mitchell's warning not counted over both runs: $(cat "$work/k.err")"
+[[ $(grep -c "^warning (" "$work/k.err") -eq 2 ]] || fail "expected two kinds: $(cat "$work/k.err")"
+"$python" - "$work/k.h5" <<'PY' || fail "sweep /provenance/warnings"
+import sys, h5py
+with h5py.File(sys.argv[1]) as f:
+    w = [x.decode() if isinstance(x, bytes) else str(x) for x in f["provenance/warnings"][()]]
+    rows = [x.decode() if isinstance(x, bytes) else str(x) for x in f["runs/warnings"][()]]
+assert len(w) == 2 and sum("Mitchell" in x for x in w) == 1 and sum("freezing" in x for x in w) == 1, w
+assert "freezing" in rows[0] and "Mitchell" in rows[0] and "; " in rows[0], rows   # a row keeps all its warnings
+assert "freezing" not in rows[1] and "Mitchell" in rows[1], rows
+PY
 echo "e2e_warnings: all checks passed"
