@@ -144,3 +144,38 @@ TEST_CASE("a chain of N first-order lags follows the Erlang step response", "[so
     CHECK(worst < 1e-6);
   }
 }
+
+TEST_CASE("one linearly implicit step of a linear lumped body is the implicit Euler step", "[solver][steady]") {
+  // One node of capacity C behind a face half-conductance G, cooled by a fixed h A to T_inf: T' = -k (T - T_inf)
+  // with k = U / C, U = 1 / (1/G + 1/(h A)) (series conductances, common practice). The implicit Euler step of
+  // size dt is T_1 = (T_0 + dt k T_inf) / (1 + dt k) (e.g. Hairer & Wanner 1996, "Solving ODEs II", sec. IV.3, from
+  // memory); on a linear system the linearly implicit step (the steady start's first step) is exactly that, and
+  // for dt -> infinity it lands on the steady state T_inf.
+  class Cooling : public SurfaceModel {
+   public:
+    void faceHeat(Index, double Ts, double, std::span<double> heat, std::span<double> derivative) const override {
+      heat[0] += 2.0 * (280.0 - Ts);
+      derivative[0] -= 2.0;
+    }
+  } surface;
+  Network n;
+  n.groups = {"ball"};
+  n.groupWeights = {1.0};
+  n.channel("convection");
+  const double C = 1000.0, G = 10.0, T0 = 310.0;
+  n.addNode(C, 0, "ball");
+  n.faces.push_back({0, G, 0.01});
+  n.surface = &surface;
+  NetworkSystem system(n, NetworkSystem::Mode::Transient);
+  std::vector<double> y(system.size(), 0.0);
+  y[0] = T0;
+  const double k = 1.0 / (1.0 / G + 1.0 / 2.0) / C;
+  for (double dt : {1.0, 600.0, 3600.0}) {
+    std::vector<double> step = linearlyImplicitStep(system, y, 0.0, dt);
+    REQUIRE(step.size() == y.size());
+    CHECK(step[0] == Approx((T0 + dt * k * 280.0) / (1.0 + dt * k)).epsilon(1e-13));
+  }
+  std::vector<double> steady = linearlyImplicitStep(system, y, 0.0, 1e15);
+  REQUIRE(steady.size() == y.size());
+  CHECK(steady[0] == Approx(280.0).epsilon(1e-9));
+}
