@@ -26,6 +26,15 @@ class FailingSurface : public SurfaceModel {
   }
 };
 
+//! Newton cooling by a fixed 2 W/K to 280 K.
+class Cooling : public SurfaceModel {
+ public:
+  void faceHeat(Index, double Ts, double, std::span<double> heat, std::span<double> derivative) const override {
+    heat[0] += 2.0 * (280.0 - Ts);
+    derivative[0] -= 2.0;
+  }
+};
+
 Network twoNodes(const SurfaceModel* surface) {
   Network n;
   n.groups = {"part"};
@@ -65,13 +74,7 @@ TEST_CASE("two-node network relaxes to the exact steady state and conserves ener
   // Series conductances (common practice, no source): Q = (T_inner - T_inf) / (1/3 + 1/10 + 1/(2*0.01*...)).
   // Here the face exchange is 2 W/K to 280 K through a 10 W/K half-cell: the steady state of an unheated
   // network is uniform at 280 K.
-  class Cooling : public SurfaceModel {
-   public:
-    void faceHeat(Index, double Ts, double, std::span<double> heat, std::span<double> derivative) const override {
-      heat[0] += 2.0 * (280.0 - Ts);
-      derivative[0] -= 2.0;
-    }
-  } surface;
+  Cooling surface;
   Network network = twoNodes(&surface);
   NetworkSystem system(network, NetworkSystem::Mode::Transient);
   std::vector<double> y{310.0, 300.0, 0.0, 0.0};  // nodes, the channel's energy, the group's energy
@@ -151,13 +154,7 @@ TEST_CASE("one linearly implicit step of a linear lumped body is the implicit Eu
   // size dt is T_1 = (T_0 + dt k T_inf) / (1 + dt k) (e.g. Hairer & Wanner 1996, "Solving ODEs II", sec. IV.3, from
   // memory); on a linear system the linearly implicit step (the steady start's first step) is exactly that, and
   // for dt -> infinity it lands on the steady state T_inf.
-  class Cooling : public SurfaceModel {
-   public:
-    void faceHeat(Index, double Ts, double, std::span<double> heat, std::span<double> derivative) const override {
-      heat[0] += 2.0 * (280.0 - Ts);
-      derivative[0] -= 2.0;
-    }
-  } surface;
+  Cooling surface;
   Network n;
   n.groups = {"ball"};
   n.groupWeights = {1.0};
