@@ -20,21 +20,19 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
   pattern_.size = nodes_ + controls_ + (transient ? channels_ + groups_ * channels_ : 0);
   if (pattern_.size >= std::numeric_limits<Slot>::max())
     throw std::invalid_argument(fmt::format("the state has {} components, more than this build supports", pattern_.size));
-  nodeWeight_.resize(nodes_);
-  for (Index i = 0; i < nodes_; ++i) {
-    Index g = network.nodes[i].group;
-    nodeWeight_[i] = g < network.groupWeights.size() ? network.groupWeights[g] : 1.0;
-  }
-  q10Rate_.reserve(network.sources.size());
-  // Q10^((T - T_ref)/10) = exp(a (T - T_ref)), a = ln(Q10)/10.
-  for (const HeatSource& src : network.sources) q10Rate_.push_back(std::log(src.q10) / 10.0);
-  rowScale_.assign(pattern_.size, 1.0);
+  // Q10^((T - T_ref)/10) = exp(a (T - T_ref)), a = ln(Q10)/10: one rate per distinct Q10 (a body has a few
+  // tissues), looked up by q10Rate() where a source's Q10 differs from the previous source's.
+  for (const HeatSource& src : network.sources)
+    if (std::none_of(q10Rates_.begin(), q10Rates_.end(), [&](const auto& r) { return r.first == src.q10; }))
+      q10Rates_.emplace_back(src.q10, std::log(src.q10) / 10.0);
+  for (const NetworkNode& node : network.nodes)
+    if (node.group >= groupWeight_.size()) groupWeight_.resize(node.group + 1, 1.0);
+  for (Index g = 0; g < groupWeight_.size() && g < network.groupWeights.size(); ++g)
+    groupWeight_[g] = network.groupWeights[g];
   if (transient)
-    for (Index i = 0; i < nodes_; ++i) {
+    for (Index i = 0; i < nodes_; ++i)
       if (!(network.nodes[i].capacity > 0.0))
         throw std::invalid_argument(fmt::format("node {} has no heat capacity", network.label(i)));
-      rowScale_[i] = 1.0 / network.nodes[i].capacity;
-    }
   for (const Modulator& m : network.modulators)
     if ((m.schedule != none && !network.schedules) || (m.control != none && m.control >= controls_))
       throw std::invalid_argument(fmt::format("modulator {} refers to a missing schedule or controller", m.name));
@@ -278,7 +276,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
     double q = F * (T[a.from] - T[a.to]);
     out[a.to] += q;
     if (transient) {
-      acc[a.channel] += nodeWeight_[a.to] * q;
+      acc[a.channel] += nodeWeight(a.to) * q;
       toGroup(a.to, a.channel, q);
     }
   }
@@ -287,17 +285,18 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
     double q = G * (e.temperature - T[e.node]);
     out[e.node] += q;
     if (transient) {
-      acc[e.channel] += nodeWeight_[e.node] * q;
+      acc[e.channel] += nodeWeight(e.node) * q;
       toGroup(e.node, e.channel, q);
     }
   }
+  Q10Cache q10;
   for (std::size_t i = 0; i < network_.sources.size(); ++i) {
     const HeatSource& s = network_.sources[i];
     double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
-    double q = s.power * m * std::exp(q10Rate_[i] * (T[s.node] - s.referenceTemperature));
+    double q = s.power * m * std::exp(q10Rate(s.q10, q10) * (T[s.node] - s.referenceTemperature));
     out[s.node] += q;
     if (transient) {
-      acc[s.channel] += nodeWeight_[s.node] * q;
+      acc[s.channel] += nodeWeight(s.node) * q;
       toGroup(s.node, s.channel, q);
     }
   }
@@ -310,7 +309,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
     for (Index c = 0; c < channels_; ++c) {
       sum += scratchHeat_[c];
       if (transient) {
-        acc[c] += nodeWeight_[node] * scratchHeat_[c];
+        acc[c] += nodeWeight(node) * scratchHeat_[c];
         toGroup(node, c, scratchHeat_[c]);
       }
     }
@@ -322,7 +321,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
     out[nodes_ + k] = transient ? difference / c.timeConstant : difference;
   }
   if (transient)
-    for (Index i = 0; i < nodes_; ++i) out[i] *= rowScale_[i];
+    for (Index i = 0; i < nodes_; ++i) out[i] *= 1.0 / network_.nodes[i].capacity;
 }
 
 void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<double> values) const {
@@ -383,7 +382,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     double F = adv.flowCapacity + partsValue(adv.partsBegin, adv.partsEnd, modulators_);
     add(adv.to, adv.to, -F);
     add(adv.to, adv.from, F);
-    const double w = nodeWeight_[adv.to];
+    const double w = nodeWeight(adv.to);
     const Index acc = nodes_ + controls_ + adv.channel;
     if (transient) {
       add(acc, adv.from, w * F);
@@ -396,26 +395,28 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
   for (const BoundaryExchange& ex : network_.exchanges) {
     double G = ex.conductance + partsValue(ex.partsBegin, ex.partsEnd, modulators_);
     add(ex.node, ex.node, -G);
-    if (transient) add(nodes_ + controls_ + ex.channel, ex.node, -(nodeWeight_[ex.node] * G));
+    if (transient) add(nodes_ + controls_ + ex.channel, ex.node, -(nodeWeight(ex.node) * G));
     toGroup(ex.node, ex.channel, ex.node, -G);
     partDerivatives(ex.partsBegin, ex.partsEnd, ex.node, ex.channel, ex.temperature - T[ex.node],
-                    nodeWeight_[ex.node]);
+                    nodeWeight(ex.node));
   }
+  Q10Cache q10;
   for (std::size_t i = 0; i < network_.sources.size(); ++i) {
     const HeatSource& s = network_.sources[i];
     double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
-    double base = s.power * std::exp(q10Rate_[i] * (T[s.node] - s.referenceTemperature));
+    const double rate = q10Rate(s.q10, q10);
+    double base = s.power * std::exp(rate * (T[s.node] - s.referenceTemperature));
     // d/dT [P m Q10^((T - T_ref)/10)] = P m Q10^(...) ln(Q10)/10.
-    double dq = base * m * q10Rate_[i];
+    double dq = base * m * rate;
     const Index acc = nodes_ + controls_ + s.channel;
     add(s.node, s.node, dq);
-    if (transient) add(acc, s.node, nodeWeight_[s.node] * dq);
+    if (transient) add(acc, s.node, nodeWeight(s.node) * dq);
     toGroup(s.node, s.channel, s.node, dq);
     const Index u = controlColumn(s.modulator);
     const double du = u != none ? base * scheduleOf(s.modulator) : 0.0;
     if (u != none) {
       add(s.node, u, du);
-      if (transient) add(acc, u, nodeWeight_[s.node] * du);
+      if (transient) add(acc, u, nodeWeight(s.node) * du);
     }
     toGroup(s.node, s.channel, u, du);
   }
@@ -427,7 +428,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     add(node, node, total * sol.dTsdTn);
     if (transient)
       for (Index c = 0; c < channels_; ++c) {
-        add(nodes_ + controls_ + c, node, nodeWeight_[node] * scratchDerivative_[c] * sol.dTsdTn);
+        add(nodes_ + controls_ + c, node, nodeWeight(node) * scratchDerivative_[c] * sol.dTsdTn);
         toGroup(node, c, node, scratchDerivative_[c] * sol.dTsdTn);
       }
   }
@@ -444,7 +445,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     // Row scaling by 1/C for node rows.
     for (Index col = 0; col < pattern_.size; ++col)
       for (Index p = pattern_.columnStart[col]; p < pattern_.columnStart[col + 1]; ++p)
-        values[p] *= rowScale_[pattern_.rowIndex[p]];
+        if (const Index r = pattern_.rowIndex[p]; r < nodes_) values[p] *= 1.0 / network_.nodes[r].capacity;
   }
 }
 
@@ -478,10 +479,11 @@ void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span
     rate[e.node] += q;
     at(e.node, e.channel) += q;
   }
+  Q10Cache q10;
   for (std::size_t i = 0; i < network_.sources.size(); ++i) {
     const HeatSource& s = network_.sources[i];
     double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
-    double q = s.power * m * std::exp(q10Rate_[i] * (T[s.node] - s.referenceTemperature));
+    double q = s.power * m * std::exp(q10Rate(s.q10, q10) * (T[s.node] - s.referenceTemperature));
     rate[s.node] += q;
     at(s.node, s.channel) += q;
   }
@@ -506,7 +508,7 @@ void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span
 
 double NetworkSystem::storedHeat(std::span<const double> T) const {
   double e = 0.0;
-  for (Index i = 0; i < nodes_; ++i) e += nodeWeight_[i] * network_.nodes[i].capacity * T[i];
+  for (Index i = 0; i < nodes_; ++i) e += nodeWeight(i) * network_.nodes[i].capacity * T[i];
   return e;
 }
 
@@ -644,7 +646,7 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
           (P.advections[k].flowCapacity - M.advections[k].flowCapacity) / h + dParts(a.partsBegin, a.partsEnd);
       const double q = dF * (T[a.from] - T[a.to]);
       out[a.to] += q;
-      if (transient) acc[a.channel] += nodeWeight_[a.to] * q;
+      if (transient) acc[a.channel] += nodeWeight(a.to) * q;
       toGroup(a.to, a.channel, q);
     }
     for (std::size_t k = 0; k < network_.exchanges.size(); ++k) {
@@ -655,18 +657,19 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
       const double dTb = (P.exchanges[k].temperature - M.exchanges[k].temperature) / h;
       const double q = dG * (e.temperature - T[e.node]) + G * dTb;
       out[e.node] += q;
-      if (transient) acc[e.channel] += nodeWeight_[e.node] * q;
+      if (transient) acc[e.channel] += nodeWeight(e.node) * q;
       toGroup(e.node, e.channel, q);
     }
+    Q10Cache q10;
     for (std::size_t i = 0; i < network_.sources.size(); ++i) {
       const HeatSource& s = network_.sources[i];
       const double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
       const double dmv = s.modulator == none ? 0.0 : dm[s.modulator];
       const double dP = (P.sources[i].power - M.sources[i].power) / h;
       if (dP == 0.0 && dmv == 0.0) continue;
-      const double q = (dP * m + s.power * dmv) * std::exp(q10Rate_[i] * (T[s.node] - s.referenceTemperature));
+      const double q = (dP * m + s.power * dmv) * std::exp(q10Rate(s.q10, q10) * (T[s.node] - s.referenceTemperature));
       out[s.node] += q;
-      if (transient) acc[s.channel] += nodeWeight_[s.node] * q;
+      if (transient) acc[s.channel] += nodeWeight(s.node) * q;
       toGroup(s.node, s.channel, q);
     }
     // A face: G (T_n - T_s) + q(T_s, p) = 0 with G = G(p). Implicit differentiation at fixed T_n:
@@ -694,7 +697,7 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
       for (Index c = 0; c < channels_; ++c) {
         const double dqc = hp[c] + faceSlope[f * channels_ + c] * dTs;
         out[node] += dqc;
-        if (transient) acc[c] += nodeWeight_[node] * dqc;
+        if (transient) acc[c] += nodeWeight(node) * dqc;
         toGroup(node, c, dqc);
       }
     }
@@ -714,7 +717,7 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
       for (Index i = 0; i < nodes_; ++i) {
         // f_i = Q_i / C_i: d f_i / dp = (dQ_i/dp) / C_i - f_i (dC_i/dp) / C_i.
         const double dC = (P.nodes[i].capacity - M.nodes[i].capacity) / h;
-        out[i] = (out[i] - rhs[i] * dC) * rowScale_[i];
+        out[i] = (out[i] - rhs[i] * dC) * (1.0 / network_.nodes[i].capacity);
       }
   }
 }

@@ -2,6 +2,8 @@
 //! Assembles a thermal network into heat rates, dT/dt and a sparse CSC Jacobian through an index map built once.
 #include <cstdint>
 #include <algorithm>
+#include <cmath>
+#include <limits>
 #include <optional>
 #include <string>
 #include <span>
@@ -114,9 +116,24 @@ class NetworkSystem {
   Mode mode_;
   Index nodes_ = 0, controls_ = 0, channels_ = 0;
   SparsePattern pattern_;
-  std::vector<double> rowScale_;           //!< 1/C for node rows (transient), 1 otherwise
-  std::vector<double> nodeWeight_;         //!< group multiplicity of each node
-  std::vector<double> q10Rate_;            //!< per source ln(Q10)/10 [1/K]
+  // Per-node and per-source factors are not stored (8 bytes per node each at 10^5 nodes): the node rows' scale
+  // 1/C is computed where it is applied (the same reciprocal, so the same products), a node's multiplicity is read
+  // from its group, and a source's ln(Q10)/10 from a table of the distinct Q10 values.
+  //! Group multiplicity of a node (1 unless its group is mirrored).
+  double nodeWeight(Index node) const { return groupWeight_[network_.nodes[node].group]; }
+  std::vector<double> groupWeight_;  //!< multiplicity of each group that has nodes (1 where groupWeights has none)
+  std::vector<std::pair<double, double>> q10Rates_;  //!< (Q10, ln(Q10)/10 [1/K]) for each distinct Q10 of the sources
+  //! The previous source's (Q10, rate) in a loop over the sources (consecutive sources mostly share their tissue).
+  struct Q10Cache {
+    double q10 = std::numeric_limits<double>::quiet_NaN(), rate = 0.0;
+  };
+  double q10Rate(double q10, Q10Cache& last) const {
+    if (q10 == last.q10) return last.rate;
+    last.q10 = q10;
+    for (const auto& [value, rate] : q10Rates_)
+      if (value == q10) return last.rate = rate;
+    return last.rate = std::log(q10) / 10.0;  // not in the table: a NaN Q10 (the table holds every other)
+  }
   // Group energies (transient): the state row of a node's group energy of channel 0, from its group (none: no
   // group energies); the rows of the other channels follow it.
   Index groups_ = 0;
@@ -128,7 +145,9 @@ class NetworkSystem {
   //! flow once per copy of the more numerous group (the single parent receives count times what each child copy
   //! gives); 1 and 1 between nodes of equal multiplicity (w / w = 1 exactly, so the same numbers as dividing).
   std::pair<double, double> conductanceFactors(const Conductance& c) const {
-    const double wa = nodeWeight_[c.a], wb = nodeWeight_[c.b];
+    const Index ga = network_.nodes[c.a].group, gb = network_.nodes[c.b].group;
+    if (ga == gb) return {1.0, 1.0};
+    const double wa = groupWeight_[ga], wb = groupWeight_[gb];
     if (wa == wb) return {1.0, 1.0};
     const double w = std::max(wa, wb);
     return {w / wa, w / wb};
