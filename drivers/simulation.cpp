@@ -177,6 +177,8 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   recorder.setIncompletePath(options.output.empty() ? "" : incompleteName(options.output));
   const double initialStored = system.storedHeat(y);
   Integrator integrator(system, y, 0.0, io);
+  std::vector<double>().swap(io.atol);  // the integrator holds what it needs of both (8 bytes per node each)
+  std::vector<double>().swap(y);
   recorder.record(0.0, integrator.state(), initialStored, summary);
 
   ProgressReporter progress(c.run.duration, options.quiet);

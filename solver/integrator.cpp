@@ -88,6 +88,15 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
   auto atol = view(tolerances_.get());
   if (options.atol.size() != atol.size()) throw std::invalid_argument("atol must have one entry per state");
   std::copy(options.atol.begin(), options.atol.end(), atol.begin());
+  // The weight callback and the sensitivities read the tolerances as runs of equal values (a body has three:
+  // temperatures, controller states, energies), not as a copy of the vector (8 bytes per node).
+  for (Index i = 0; i < options.atol.size(); ++i)
+    if (atolRuns_.empty() || atolRuns_.back().atol != options.atol[i])
+      atolRuns_.push_back({i + 1, options.atol[i]});
+    else
+      atolRuns_.back().end = i + 1;
+  atolRuns_.shrink_to_fit();
+  std::vector<double>().swap(options_.atol);
 
   memory_.reset(checkCreated(CVodeCreate(CV_BDF, ctx), "CVODE memory"));
   void* mem = memory_.get();
@@ -105,7 +114,7 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
     check(CVodeSVtolerances(mem, options.rtol, tolerances_.get()), "CVodeSVtolerances");
   }
   // CVODE keeps its own copy of the tolerances (CVodeSVtolerances clones the vector) and the weight callback and
-  // the sensitivities read options_.atol: one state-sized vector less (8 bytes per node).
+  // the sensitivities read atolRuns_: one state-sized vector less (8 bytes per node).
   tolerances_.reset();
   check(CVodeSetUserData(mem, this), "CVodeSetUserData");
   // CVODE's own messages go into the failure message, not straight to stderr (sweeps run many solvers).
@@ -141,9 +150,13 @@ int Integrator::weightCallback(N_Vector y, N_Vector weights, void* user) {
   auto v = view(y);
   auto w = view(weights);
   const double rtol = self->options_.rtol, scale = self->weightScale_;
-  for (std::size_t i = 0; i < w.size(); ++i) {
-    const double atol = self->options_.atol[i];
-    w[i] = atol < IntegratorOptions::excludedTolerance ? scale / (rtol * std::abs(v[i]) + atol) : 0.0;
+  std::size_t i = 0;
+  for (const ToleranceRun& run : self->atolRuns_) {
+    const double atol = run.atol;
+    if (atol < IntegratorOptions::excludedTolerance)
+      for (; i < run.end; ++i) w[i] = scale / (rtol * std::abs(v[i]) + atol);
+    else
+      for (; i < run.end; ++i) w[i] = 0.0;
   }
   return 0;
 }
@@ -169,12 +182,13 @@ void Integrator::enableSensitivities(SensitivityProblem problem) {
   check(CVodeSensInit(mem, ns, CV_STAGGERED, &Integrator::sensitivityCallback, sensitivityVectors_), "CVodeSensInit");
   // Absolute tolerance of s_j: the state's over |p_j| (a change of p by its own size moves y by atol at most).
   N_Vector* tolerances = checkCreated(N_VCloneVectorArray(ns, state_.get()), "the sensitivity tolerances");
-  const std::vector<double>& atol = options_.atol;
   for (std::size_t j = 0; j < sensitivity_.count; ++j) {
     const double scale = sensitivity_.scale[j] > 0.0 ? sensitivity_.scale[j] : 1.0;
     auto t = view(tolerances[j]);
     // The state's weight scaling (excluded components) applies to the sensitivities too: tolerances / weightScale_.
-    for (Index i = 0; i < t.size(); ++i) t[i] = atol[i] / scale / weightScale_;
+    Index i = 0;
+    for (const ToleranceRun& run : atolRuns_)
+      for (; i < run.end; ++i) t[i] = run.atol / scale / weightScale_;
   }
   const int flag = CVodeSensSVtolerances(mem, options_.rtol / weightScale_, tolerances);
   N_VDestroyVectorArray(tolerances, ns);

@@ -164,7 +164,12 @@ class Integrator {
   void checkFinite(std::span<const double> values, const char* what) const;
 
   const NetworkSystem& system_;
-  IntegratorOptions options_;
+  IntegratorOptions options_;  //!< without its atol (kept as atolRuns_)
+  struct ToleranceRun {
+    Index end;    //!< one past the last component of the run
+    double atol;  //!< their absolute tolerance
+  };
+  std::vector<ToleranceRun> atolRuns_;  //!< options.atol as runs of equal values
   detail::CallbackGuard guard_;
   detail::Handle<_SUNContext> context_;
   detail::Handle<_generic_N_Vector> state_, tolerances_;
