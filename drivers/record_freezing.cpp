@@ -9,30 +9,31 @@ namespace thermorph {
 FreezeWatch::FreezeWatch(const Body& body) : network_(body.network()) {
   for (const SegmentMesh& m : body.segments()) {
     Segment s;
+    s.mesh = &m;  // the body outlives the watch (as network_); no copy of the node list (8 bytes per node)
     s.name = m.name;
-    for (int iz = 0; iz < m.nz; ++iz)
-      for (int ir = 0; ir <= m.skinCell; ++ir) s.nodes.push_back(m.node(iz, ir));
     segments_.push_back(std::move(s));
   }
 }
 
 void FreezeWatch::observe(double t, std::span<const double> y) {
   for (Segment& s : segments_)
-    for (Index node : s.nodes) {
-      const double T = y[node];
-      if (!(T < kZeroCelsius)) continue;
-      if (!s.froze) {
-        s.froze = true;
-        s.firstTime = t;
-        s.minimum = T;
-        s.minimumTime = t;
-        s.where = network_.label(node);
-      } else if (T < s.minimum) {
-        s.minimum = T;
-        s.minimumTime = t;
-        s.where = network_.label(node);
+    for (int iz = 0; iz < s.mesh->nz; ++iz)
+      for (int ir = 0; ir <= s.mesh->skinCell; ++ir) {
+        const Index node = s.mesh->node(iz, ir);
+        const double T = y[node];
+        if (!(T < kZeroCelsius)) continue;
+        if (!s.froze) {
+          s.froze = true;
+          s.firstTime = t;
+          s.minimum = T;
+          s.minimumTime = t;
+          s.where = network_.label(node);
+        } else if (T < s.minimum) {
+          s.minimum = T;
+          s.minimumTime = t;
+          s.where = network_.label(node);
+        }
       }
-    }
 }
 
 std::vector<std::string> FreezeWatch::warnings() const {

@@ -21,8 +21,8 @@ class FreezeWatch {
 
  private:
   struct Segment {
+    const SegmentMesh* mesh = nullptr;  //!< its tissue nodes: node(iz, ir) for ir <= skinCell (coat excluded), read when observed
     std::string name;
-    std::vector<Index> nodes;  //!< tissue nodes (coat excluded)
     bool froze = false;
     double minimum = 0.0;      //!< [K]
     double minimumTime = 0.0;  //!< [s]
