@@ -188,6 +188,7 @@ Body::Body(const Case& c) : case_(c) {
   buildControllers();
   addMetabolicModulation(respiratory);
   buildCirculation();
+  std::vector<std::vector<double>>().swap(cellPerfusion_);  // read by the circulation's build only (8 bytes per cell)
   // A controller chained to another reads that controller's state, which sits after all nodes in the state vector.
   for (auto [k, previous] : controlChain_)
     network_.controllers[k].signal = {{network_.nodes.size() + previous, 1.0}};
@@ -616,11 +617,24 @@ double Body::DepthMap::operator()(double x) const {
 //! A blood flow as a sum of modulated parts, sum_k c_k m_k(t, u) [m3/s]; every flow in the circulation is one,
 //! so mass balance holds at every junction for every modulator separately, at all times.
 struct Body::FlowExpr {
-  std::map<Index, double> parts;  //!< modulator -> coefficient [m3/s]
+  //! (modulator, coefficient [m3/s]), sorted by modulator: a flat map (a 10^5-cell grid holds three per cell while
+  //! the circulation is built; a std::map took twice the memory). The same sums in the same order as a std::map.
+  std::vector<std::pair<Index, double>> parts;
   void add(Index modulator, double coefficient) {
-    if (coefficient != 0.0) parts[modulator] += coefficient;
+    if (coefficient == 0.0) return;
+    auto it = std::lower_bound(parts.begin(), parts.end(), modulator,
+                               [](const std::pair<Index, double>& p, Index m) { return p.first < m; });
+    if (it != parts.end() && it->first == modulator)
+      it->second += coefficient;
+    else
+      parts.insert(it, {modulator, 0.0 + coefficient});  // 0 + c: the std::map's value-initialised entry plus c
   }
   void add(const FlowExpr& other, double factor = 1.0) {
+    if (&other == this) {
+      const FlowExpr copy = other;
+      add(copy, factor);
+      return;
+    }
     for (auto [m, c] : other.parts) add(m, factor * c);
   }
   bool empty() const {
@@ -657,15 +671,20 @@ struct Body::Circulation {
 };
 
 void Body::buildCirculation() {
-  const CirculationSpec& circ = case_.circulation;
-  Circulation c(case_.segments.size(), circ.bloodDensity * circ.bloodSpecificHeat);
-  addPerfusionModulators(c);
-  planCellFlows(c);
-  sumFlowsUpTheTree(c);
-  setBloodTotals(c);
-  if (c.draw[order_.front()].empty()) return;  // no circulation: tissues exchange heat by conduction only
-  addBloodNodes(c);
-  for (Index g : order_) linkSegmentBlood(c, g);
+  {
+    const CirculationSpec& circ = case_.circulation;
+    Circulation c(case_.segments.size(), circ.bloodDensity * circ.bloodSpecificHeat);
+    addPerfusionModulators(c);
+    planCellFlows(c);
+    sumFlowsUpTheTree(c);
+    setBloodTotals(c);
+    if (c.draw[order_.front()].empty()) return;  // no circulation: tissues exchange heat by conduction only
+    addBloodNodes(c);
+    for (Index g : order_) linkSegmentBlood(c, g);
+  }
+  // The check's table after the builder's per-cell flows are gone and the terms' spare capacity is returned (at
+  // 10^5 cells all three were alive together: the peak of the set-up).
+  network_.compact();
   checkBloodMassBalance();
 }
 
@@ -1080,6 +1099,7 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
   m.nz = s.shape == Shape::Sphere ? 1 : s.axialCells;
   SegmentBuild b = segmentTissues(s, group, m);
   CrossSection mid = crossSection(s, b.scaleAt(0.5 * b.length));
+  m.radius.reserve(static_cast<std::size_t>(b.nr));  // exact: no spare capacity kept for the run
   for (int ir = 0; ir < b.nr; ++ir) m.radius.push_back(0.5 * (mid.bounds[ir] + mid.bounds[ir + 1]));
   for (int iz = 0; iz < b.nz; ++iz)
     m.axial.push_back(s.axialGrading > 1.0 ? 0.5 * (b.edges[static_cast<std::size_t>(iz)] + b.edges[static_cast<std::size_t>(iz) + 1])

@@ -166,7 +166,7 @@ class Body {
   //! (controller, the controller whose state it follows): lag stages of a CIVD chain.
   std::vector<std::pair<Index, Index>> controlChain_;
   std::vector<Index> order_;               //!< segments root first
-  std::vector<std::vector<double>> cellPerfusion_;  // per segment [nz * nr] perfusion flow [m3/s]
+  std::vector<std::vector<double>> cellPerfusion_;  // per segment [nz * nr] perfusion flow [m3/s] (while building)
   std::vector<std::vector<double>> coveredArea_;    //!< per segment [nz] lateral area covered by children [m2]
   Index metabolismChannel_ = 0, bloodChannel_ = 0, conductionChannel_ = 0;
   std::optional<Index> pool_;
