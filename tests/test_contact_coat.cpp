@@ -44,6 +44,14 @@ Flows steadyFlows(const std::string& text, const std::vector<std::string>& overr
   return f;
 }
 
+//! The error message of isothermalCase with its `contact_fraction = 0.2` replaced by `contactKeys`.
+std::string contactError(const std::string& contactKeys) {
+  std::string text = isothermalCase;
+  const std::string key = "contact_fraction = 0.2";
+  text.replace(text.find(key), key.size(), contactKeys);
+  return testing::caseErrorMessage(text);
+}
+
 }  // namespace
 
 TEST_CASE("A coat's contact patch conducts to the substrate in parallel with the air-side coat", "[environment][coat]") {
@@ -78,9 +86,7 @@ TEST_CASE("A compressed coat under the contact patch is a thinner shell", "[envi
   CHECK(std::abs(f.substrate / substrate - 1.0) < 1e-3);
   CHECK(std::abs(f.convection / convection - 1.0) < 1e-3);
   // Thicker than the coat: refused.
-  std::string text = isothermalCase;
-  text.replace(text.find("contact_fraction = 0.2"), 22, "contact_fraction = 0.2, contact_coat_thickness = \"2 cm\"");
-  const std::string message = testing::caseErrorMessage(text);
+  const std::string message = contactError("contact_fraction = 0.2, contact_coat_thickness = \"2 cm\"");
   INFO(message);
   CHECK(message.find("segments.trunk.surface.contact_coat_thickness") != std::string::npos);
   CHECK(message.find("thicker than the coat") != std::string::npos);
@@ -127,9 +133,7 @@ coat = { material = "fur", thickness = "1.5 cm", cells = 3 }
 
 TEST_CASE("A coated segment lying wholly on the substrate is refused", "[environment][coat]") {
   // contact_fraction = 1 would leave the coat's rings with no conductance and their surface with no area.
-  std::string text = isothermalCase;
-  text.replace(text.find("contact_fraction = 0.2"), 22, "contact_fraction = 1");
-  const std::string message = testing::caseErrorMessage(text);
+  const std::string message = contactError("contact_fraction = 1");
   INFO(message);
   CHECK(message.find("segments.trunk.surface.contact_fraction") != std::string::npos);
   CHECK(message.find("below 1") != std::string::npos);
