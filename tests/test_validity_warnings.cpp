@@ -82,8 +82,8 @@ TEST_CASE("A steady solve started far below the water's range warns of no state 
   CHECK_FALSE(anyContains(s.warnings, "outside the validity range"));
   for (double t : s.finalState) CHECK(t > 273.15 + 19.9);  // the reported states lie inside the table
   // A state the run reports outside a range still warns, whatever the guess: a sphere of 5 cm radius in water at
-  // 2 m/s has Re = 2 m/s 0.1 m / 1.0e-6 m2/s, about 2e5, above Whitaker's (1972) 7.6e4 (its range as Incropera et al.
-  // 2007 eq. 7.56 give it).
+  // 2 m/s has Re = 2 m/s 0.1 m / 1.0e-6 m2/s, about 2e5, above Whitaker's (1972) 7.6e4 (the range of
+  // models/convection.hpp; Incropera et al. 2007 eq. 7.56, equation number from memory).
   auto sphereRun = [](const std::string& guess) {
     std::string toml = limbInWater(guess, "2 m/s");
     const std::string cylinder = toml.substr(toml.find("shape = \"cylinder\""), toml.find("surface =") - toml.find("shape = \"cylinder\""));
