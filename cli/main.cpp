@@ -69,10 +69,17 @@ void describe(const Body& body) {
              "(legs x2 carrying feet x2: 4 feet), each simulated once. Volumes and masses exclude the coat; area is the exposed outer surface\n"
              "(coat included, minus what attached segments cover); blood is the arterial inflow of one copy,\n"
              "children included. Body cells include blood nodes.\n");
-  fmt::print("Body mass {:.4g} kg, blood volume {:.4g} mL, blood flow {:.4g} of cardiac output {:.4g} mL/min, basal "
-             "metabolism {:.4g} W{}\n",
+  // Body::basalMetabolicRate includes [body] activity; the line names both when activity is not 1 (a new-user trial
+  // read "basal metabolism 14.04 W" for a 2 kg body whose Kleiber rate is 5.62 W, at activity 2.5).
+  const double activity = c.body.activity;
+  const std::string metabolism =
+      activity == 1.0 || !(activity > 0.0)
+          ? fmt::format("basal metabolism {:.4g} W", body.basalMetabolicRate())
+          : fmt::format("basal metabolism {:.4g} W, times activity {:g}: {:.4g} W", body.basalMetabolicRate() / activity,
+                        activity, body.basalMetabolicRate());
+  fmt::print("Body mass {:.4g} kg, blood volume {:.4g} mL, blood flow {:.4g} of cardiac output {:.4g} mL/min, {}{}\n",
              body.bodyMass(), body.bloodVolume() * 1e6, body.totalBloodFlow() * 6e7, body.cardiacOutput() * 6e7,
-             body.basalMetabolicRate(),
+             metabolism,
              body.poolNode() ? "" : c.circulation.fixedArterialTemperature ? " (arterial supply pinned)" : " (no blood flow)");
   std::string controllers;
   for (const Controller& k : body.network().controllers)

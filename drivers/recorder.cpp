@@ -95,7 +95,8 @@ void Recorder::finish(RunSummary& summary, bool steady) {
   summary.warnings = body_.warnings();
   for (const std::string& w : body_.environment().warnings()) summary.warnings.push_back(w);
   // Found while running (tissue below 0 degC): stored with the others, in result files and sweep rows.
-  summary.runWarnings = freezing_.warnings();
+  summary.runWarnings = driverWarnings_;
+  for (std::string& w : freezing_.warnings()) summary.runWarnings.push_back(std::move(w));
   // Controller outputs whose estimated grid error exceeds 1 % (record_control_grid.hpp).
   if (controlGrid_.active() && !lastState_.empty()) {
     const Network& net = body_.network();

@@ -36,6 +36,8 @@ class Recorder {
   //! Solver statistics and completeness, then commit (a partial run goes to the incomplete path).
   void finish(RunSummary& summary, bool steady);
   void setIncompletePath(std::string p) { incompletePath_ = std::move(p); }
+  //! A warning found by the driver (a steady start with an exhausted heat defence), stored with the run's others.
+  void addRunWarning(std::string w) { driverWarnings_.push_back(std::move(w)); }
   //! The states recorded are steady states (runSteady): the controller-output check takes its shift in full.
   void steadyState() { controlGrid_.setSteady(); }
 
@@ -55,6 +57,7 @@ class Recorder {
   std::vector<double> lastState_;
   std::vector<double> faceTemperatures_;  //!< [K], from the budget, used by the other parts
   std::string incompletePath_;
+  std::vector<std::string> driverWarnings_;
 };
 
 //! `dir/name.incomplete.ext` for `dir/name.ext`: where a partial run is written.

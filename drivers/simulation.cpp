@@ -142,6 +142,45 @@ std::vector<double> steadyTemperatures(const Body& body, NetworkSystem& transien
   return result;
 }
 
+//! Warnings for a steady state in which a heat defence is exhausted: shivering at its maximum power or panting at its
+//! largest ventilation. The controller's proportional law then no longer holds its signal near the set point, so
+//! the state is the passive balance of a body at full effort. Found in a new-user trial: a 2 kg swimmer started
+//! with `initial = "steady"` in 6 degC water began its run at a core of 17.2 degC (shivering at its maximum), with
+//! nothing said; the user expected a body at rest before the swim.
+std::vector<std::string> exhaustedDefences(const Body& body, std::span<const double> state, const char* what) {
+  std::vector<std::string> warnings;
+  const Network& n = body.network();
+  const ControlSpec& cs = body.spec().control;
+  for (const Controller& c : n.controllers) {
+    const bool shivering = c.name == "shivering", panting = c.name == "panting";
+    if (!shivering && !panting) continue;
+    if (c.enableSchedule != none && n.schedules && !(n.schedules->value(c.enableSchedule, 0.0) > 0.5)) continue;
+    const double setpoint =
+        c.setpointSchedule != none && n.schedules ? n.schedules->value(c.setpointSchedule, 0.0) : c.setpoint;
+    double signal = 0.0;
+    for (auto [node, w] : c.signal) signal += w * state[node];
+    // At a steady state the lagged state equals its target clamp(bias + gain (T - set point), lower, upper).
+    const double target = c.bias + c.gain * (signal - setpoint);
+    if (!(target >= c.upper - 1e-9 * std::max(1.0, std::abs(c.upper)))) continue;
+    const ControllerSpec& spec = shivering ? cs.shivering : cs.panting;
+    const char* signalName = spec.signal == ControlSignal::Core ? "core" : "mean skin";
+    const double offset = signal - setpoint;
+    std::string reason =
+        shivering ? fmt::format("shivering at its maximum power and the {} at {:.1f} degC, {:.1f} K below the shivering "
+                                "set point ({:.4g} degC): the surroundings take more heat than the body can make",
+                                signalName, signal - 273.15, -offset, setpoint - 273.15)
+                  : fmt::format("panting at its largest ventilation ({:.4g} x) and the {} at {:.1f} degC, {:.1f} K above "
+                                "the panting set point ({:.4g} degC): the body cannot shed the heat it gains",
+                                c.upper, signalName, signal - 273.15, offset, setpoint - 273.15);
+    warnings.push_back(fmt::format(
+        "{}: {}. This is where the body settles after a long exposure at full effort (the surroundings and physiology "
+        "of t = 0), not a state at rest before it; to start from rest, start in other surroundings (initial_temperature, "
+        "or a steady start in the surroundings before the exposure, changed to it by an event)",
+        what, reason));
+  }
+  return warnings;
+}
+
 }  // namespace
 
 std::vector<double> steadyState(const Body& body, std::span<const double> guess, SolverStatistics* statistics) {
@@ -157,11 +196,13 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   std::vector<double> y = initialState(body, system);
   y.resize(system.size(), 0.0);  // channel energies start at 0
   RunSummary summary;
+  std::vector<std::string> startWarnings;
   if (c.run.initial == InitialCondition::Steady) {
     // The relaxation integrates this run's own system (one transient system per run instead of two).
     std::vector<double> steady = steadyTemperatures(body, system, std::span<const double>(y).first(states), nullptr,
                                                     options.stop, &summary.stopped);
     std::copy(steady.begin(), steady.end(), y.begin());
+    if (!summary.stopped) startWarnings = exhaustedDefences(body, steady, "steady start");
   }
   IntegratorOptions io;
   io.rtol = c.run.rtol;
@@ -174,6 +215,7 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
 
   const long outputs = std::lround(std::ceil(c.run.duration / c.run.outputInterval - 1e-9));
   Recorder recorder(body, system, options, static_cast<std::uint64_t>(outputs) + 1);
+  for (std::string& w : startWarnings) recorder.addRunWarning(std::move(w));
   recorder.setIncompletePath(options.output.empty() ? "" : incompleteName(options.output));
   const double initialStored = system.storedHeat(y);
   Integrator integrator(system, y, 0.0, io);
@@ -247,6 +289,8 @@ RunSummary runSteady(const Body& body, const RunOptions& options) {
   body.setInterval(0);
   std::vector<double> steady =
       steadyTemperatures(body, transient, guess, &summary.statistics, options.stop, &summary.stopped);
+  if (!summary.stopped)
+    for (std::string& w : exhaustedDefences(body, steady, "steady state")) recorder.addRunWarning(std::move(w));
   std::vector<double> y(transient.size(), 0.0);
   std::copy(steady.begin(), steady.end(), y.begin());
   recorder.record(0.0, y, transient.storedHeat(y), summary);
