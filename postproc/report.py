@@ -1,7 +1,7 @@
 #!/usr/bin/python3
 """Summary of a thermorph result: heat budget over a window, time above/below thresholds, time to reach them.
 
-    report.py RESULT.h5 [--window t0,t1] [--above KEY=TEMP ...] [--below KEY=TEMP ...]
+    report.py RESULT.h5 [--window t0,t1 ...] [--above KEY=TEMP ...] [--below KEY=TEMP ...]
               [--segments a,b] [--csv FILE]
 
 KEY is core, blood, skin (mean skin), or SEGMENT.mean, SEGMENT.min, SEGMENT.max
@@ -203,6 +203,29 @@ def budget_lines(b: WindowBudget, mass: float | None) -> list[str]:
     return lines
 
 
+def step_notes(res: Results, t0: float, t1: float) -> list[str]:
+    """Notes for window ends that lie between two outputs bracketing a step of the timeline: the flows jump there,
+    so the interpolation at that end (cumulative energies and flows alike) mixes the two sides of the step. An
+    output exactly at the step is not enough for an end before it: that output holds the flows after the step.
+    Found in a new-user trial: a window starting at a 5-min event with 2-min outputs gave a swim window 83 J of
+    radiation, which water has none of."""
+    time = res.time
+    notes = []
+    for label, t in (("start", t0), ("end", t1)):
+        i = int(np.searchsorted(time, t, side="right")) - 1
+        if i < 0 or i + 1 >= len(time) or time[i] == t:
+            continue  # at an output (or outside): exact
+        lo, hi = float(time[i]), float(time[i + 1])
+        for at, name in res.timeline_steps():
+            if lo < at <= hi:
+                notes.append(f"NOTE: the window {label} {fmt_time(t)} lies between the outputs at {fmt_time(lo)} and "
+                             f"{fmt_time(hi)}, across the step at {fmt_time(at)} ({name}): the values there are "
+                             f"interpolated across the step and mix both sides of it. Put the window {label} on an "
+                             f"output time, or rerun with a run.output_interval that makes {fmt_time(at)} an output "
+                             f"time.")
+    return notes
+
+
 def threshold_rows(thresholds, t0: float, t1: float) -> list[dict]:
     """Per threshold: time beyond it, share of the window, first time reached, range in the window."""
     rows = []
@@ -221,19 +244,21 @@ def threshold_rows(thresholds, t0: float, t1: float) -> list[dict]:
     return rows
 
 
-def write_csv(path: Path, b: WindowBudget, mass: float | None, rows: list[dict]) -> list[Path]:
-    """Budget to `path`, thresholds to PATH.thresholds.csv beside it; return the paths written."""
+def write_csv(path: Path, budgets: list[WindowBudget], mass: float | None, rows: list[dict]) -> list[Path]:
+    """Budgets (one block of rows per window) to `path`, thresholds to PATH.thresholds.csv beside it; return the
+    paths written."""
     path.parent.mkdir(parents=True, exist_ok=True)
     written = [path]
     with open(path, "w", newline="", encoding="utf-8") as fh:
         w = csv.writer(fh, lineterminator="\n")
-        w.writerow(["row", "units", "window start [s]", "window end [s]", "method"] + b.channels)
-        for r in b.rows():
-            w.writerow([r.label, "W", repr(b.t0), repr(b.t1), r.method]
-                       + [repr(r.means.get(c, 0.0)) for c in b.channels])
-        if mass:
-            w.writerow(["whole body per kg", "W/kg", repr(b.t0), repr(b.t1), b.body.method]
-                       + [repr(b.body.means.get(c, 0.0) / mass) for c in b.channels])
+        w.writerow(["row", "units", "window start [s]", "window end [s]", "method"] + budgets[0].channels)
+        for b in budgets:
+            for r in b.rows():
+                w.writerow([r.label, "W", repr(b.t0), repr(b.t1), r.method]
+                           + [repr(r.means.get(c, 0.0)) for c in b.channels])
+            if mass:
+                w.writerow(["whole body per kg", "W/kg", repr(b.t0), repr(b.t1), b.body.method]
+                           + [repr(b.body.means.get(c, 0.0) / mass) for c in b.channels])
     if rows:
         side = path.with_name(f"{path.stem}.thresholds.csv")
         with open(side, "w", newline="", encoding="utf-8") as fh:
@@ -246,10 +271,15 @@ def write_csv(path: Path, b: WindowBudget, mass: float | None, rows: list[dict])
 
 
 def report(res: Results, window=None, above=(), below=(), segments=None, csv_path=None, out=sys.stdout) -> int:
-    """Print the report for an open result; raise ArgumentError on bad arguments. Returns 0."""
-    t0, t1 = parse_window(res, window)
+    """Print the report for an open result; raise ArgumentError on bad arguments. Returns 0.
+
+    `window`: None (the whole run), one "t0,t1" text or a list of them: one budget and threshold section per
+    window, in the order given (a CSV then holds every window's rows, told apart by their start and end columns).
+    """
+    windows = [window] if window is None or isinstance(window, str) else list(window) or [None]
+    spans = [parse_window(res, w) for w in windows]  # every window checked before anything is printed
     thresholds = [parse_threshold(res, a, True) for a in above] + [parse_threshold(res, b, False) for b in below]
-    b = window_budget(res, t0, t1, segments)
+    budgets = [window_budget(res, t0, t1, segments) for t0, t1 in spans]
     mass = res.body_mass
     p = lambda *a: print(*a, file=out)  # noqa: E731
     p(f"thermorph report: {res.path}")
@@ -258,15 +288,30 @@ def report(res: Results, window=None, above=(), below=(), segments=None, csv_pat
         p(f"case: {title}")
     if not res.complete:
         p(f"INCOMPLETE RUN: the results stop at t = {res.time[-1]:g} s ({res.attr('failure', 'solver failure')})")
+    if mass:
+        p(f"body mass: {mass:.4g} kg")
+    all_rows = []
+    for (t0, t1), b in zip(spans, budgets):
+        rows = _report_window(res, b, t0, t1, thresholds, mass, p)
+        all_rows += [{**r, "window start [s]": t0, "window end [s]": t1} for r in rows]
+    if csv_path:
+        for path in write_csv(Path(csv_path), budgets, mass, all_rows):
+            p(f"wrote {path}")
+    p("")
+    p(f"Caution: {CAUTION} {THRESHOLDS}")
+    return 0
+
+
+def _report_window(res: Results, b: WindowBudget, t0: float, t1: float, thresholds, mass, p) -> list[dict]:
+    """One window's budget and thresholds, printed; returns its threshold rows."""
+    p("")
     if t1 > t0:
         p(f"window: {fmt_time(t0)} to {fmt_time(t1)}, {fmt_time(t1 - t0)} long; "
           f"{int(np.sum((res.time >= t0) & (res.time <= t1)))} outputs inside")
     else:
         p(f"time: {fmt_time(t0)} (a single output; values at that time, no averaging)")
-    if mass:
-        p(f"body mass: {mass:.4g} kg")
-
-    p("")
+    for note in step_notes(res, t0, t1):
+        p(note)
     p("Heat budget: " + ("mean heat flow over the window" if t1 > t0 else "heat flow at that time")
       + " by channel [W], positive into the body")
     for line in budget_lines(b, mass):
@@ -314,12 +359,7 @@ def report(res: Results, window=None, above=(), below=(), segments=None, csv_pat
                 p(f"    first reached: at {fmt_time(reached)}{after}")
             p(f"    range in the window: {r['minimum in window [degC]']:.4g} to "
               f"{r['maximum in window [degC]']:.4g} °C")
-    if csv_path:
-        for path in write_csv(Path(csv_path), b, mass, rows):
-            p(f"wrote {path}")
-    p("")
-    p(f"Caution: {CAUTION} {THRESHOLDS}")
-    return 0
+    return rows
 
 
 def main(argv=None) -> int:
@@ -327,7 +367,9 @@ def main(argv=None) -> int:
         description="Heat budget over a window, time above/below temperature thresholds and time to reach them.",
         epilog="KEY: core, blood, skin, or SEGMENT.mean|min|max (tissue, coat excluded). Caution: " + CAUTION)
     ap.add_argument("result", help="results file (HDF5) written by thermorph")
-    ap.add_argument("--window", help="t0,t1 in s (or with units: 10min,1h); default the whole run")
+    ap.add_argument("--window", action="append", metavar="T0,T1",
+                    help="t0,t1 in s (or with units: 10min,1h); default the whole run; repeat for several windows "
+                         "(one section each)")
     ap.add_argument("--above", action="extend", nargs="+", default=[], metavar="KEY=TEMP",
                     help="time above TEMP (degC, or e.g. 312K) of temperature KEY")
     ap.add_argument("--below", action="extend", nargs="+", default=[], metavar="KEY=TEMP",

@@ -9,6 +9,8 @@
 2. A real thermorph run (the quadruped with a shivering controller): report
    numbers against values computed here directly from the HDF5 arrays.
 3. Bad arguments exit with code 2 and say what is wrong.
+4. Repeated --window: one section per window, each as that window alone.
+5. A window end between outputs that bracket a step of the timeline is noted (and is really off).
 Exits 1 on any failure.
 """
 
@@ -359,12 +361,81 @@ def check_errors(tmp: Path):
     run_report(tmp / "missing.h5", expect=2)
 
 
+# ---- 4. several windows: each section and CSV block as that window alone --------------------------
+def check_windows(tmp: Path):
+    """`--window` repeated: one section per window, each equal to the report of that window alone (the closed-form
+    values of section 1 hold per window); before 2026-12-04 the last --window silently replaced the others."""
+    h5 = tmp / "synthetic.h5"
+    both = run_report(h5, "--window", f"{T0:g},{T1:g}", "--window", "0,300", "--below", "leg.min=25",
+                      "--csv", tmp / "two.csv").stdout
+    first = run_report(h5, "--window", f"{T0:g},{T1:g}", "--below", "leg.min=25", "--csv", tmp / "a.csv").stdout
+    second = run_report(h5, "--window", "0,300", "--below", "leg.min=25", "--csv", tmp / "b.csv").stdout
+
+    def section(text: str, n: int) -> str:
+        """The n-th window's section: from its 'window:' line to the next window or the CSV/caution lines."""
+        parts = text.split("\nwindow: ")
+        body = parts[n + 1]
+        return body.split("\nwrote ")[0].split("\n\nCaution")[0].rstrip()
+
+    check(both.count("\nwindow: ") == 2, "two --window options give two sections")
+    check(section(both, 0) == section(first, 0), "first window's section equals the report of that window alone")
+    check(section(both, 1) == section(second, 0), "second window's section equals the report of that window alone")
+    with open(tmp / "two.csv", encoding="utf-8") as fh, open(tmp / "a.csv", encoding="utf-8") as fa, \
+            open(tmp / "b.csv", encoding="utf-8") as fb:
+        a, b = fa.read().splitlines(), fb.read().splitlines()
+        check(fh.read().splitlines() == a + b[1:], "the CSV holds both windows' rows, in order")
+    th = (tmp / "two.thresholds.csv").read_text(encoding="utf-8").splitlines()
+    check(len(th) == 3 and th[0].endswith("window start [s],window end [s]"),
+          "the thresholds CSV has one row per window with its start and end")
+    check(th[1].endswith(f"{T0!r},{T1!r}") and th[2].endswith("0.0,300.0"), "threshold rows name their window")
+
+
+# ---- 5. a window end between two outputs that bracket a step of the timeline -------------------------
+def check_step_note(tmp: Path):
+    """The quadruped with a cold step at 5 min, outputs every 2 min and every 1 min: the same CVODE steps (outputs are
+    dense-output interpolations, README "Results"), so the 1-min file holds the exact cumulative energy at the
+    step. A window starting at the step is exact on the 1-min file and off on the 2-min one, where the report says
+    so; window ends on output times get no note."""
+    files = {}
+    for interval in ("1 min", "2 min"):
+        h5 = tmp / f"step_{interval.split()[0]}.h5"
+        proc = subprocess.run([THERMORPH, "run", str(ROOT / "cases" / "quadruped.toml"), "-o", str(h5), "--quiet",
+                               "--set", 'run.duration="20 min"', "--set", f'run.output_interval="{interval}"',
+                               "--set", 'events=[{ at = "5 min", environment = { temperature = "-5 degC", '
+                                        'speed = "4 m/s" }, label = "cold front" }]'],
+                              capture_output=True, text=True)
+        check(proc.returncode == 0 and h5.is_file(), f"thermorph run ({interval}) failed: {proc.stderr[-1500:]}")
+        files[interval] = h5
+    if not all(h.is_file() for h in files.values()):
+        return
+    exact_csv, coarse_csv = tmp / "step_exact.csv", tmp / "step_coarse.csv"
+    exact = run_report(files["1 min"], "--window", "5min,15min", "--csv", exact_csv).stdout
+    coarse = run_report(files["2 min"], "--window", "5min,15min", "--csv", coarse_csv).stdout
+    on_outputs = run_report(files["2 min"], "--window", "4min,16min").stdout
+    check("NOTE" not in exact, "no note when the window starts on an output at the step")
+    check("NOTE" not in on_outputs, "no note when both window ends are output times")
+    check("NOTE: the window start 300 s (5 min) lies between the outputs at 240 s (4 min) and 360 s (6 min), across "
+          "the step at 300 s (5 min) (cold front)" in coarse, "the 2-min file's window start is noted")
+    with h5py.File(files["1 min"], "r") as f:
+        time = f["time"][()]
+        e = f["body/cumulative_heat/convection"][()]
+        i0, i1 = int(np.searchsorted(time, 300.0)), int(np.searchsorted(time, 900.0))
+        truth = (e[i1] - e[i0]) / 600.0
+    got_exact = number(read_table(exact_csv)["whole body"]["convection"])
+    got_coarse = number(read_table(coarse_csv)["whole body"]["convection"])
+    close(got_exact, truth, "step window on the 1-min file = exact energy difference", rtol=1e-12)
+    check(abs(got_coarse - truth) > 1e-3 * abs(truth),
+          f"the noted window is visibly off ({got_coarse:.6g} W vs {truth:.6g} W): the note is not idle")
+
+
 def main() -> int:
     with tempfile.TemporaryDirectory(prefix="thermorph_report_") as name:
         tmp = Path(name)
         check_synthetic(tmp)
+        check_windows(tmp)
         check_errors(tmp)
         check_real(tmp)
+        check_step_note(tmp)
     if FAILURES:
         print(f"test_report: {len(FAILURES)} check(s) failed")
         return 1

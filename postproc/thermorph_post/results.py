@@ -456,6 +456,21 @@ class Results:
         labels = [_text(x) for x in np.atleast_1d(grp["label"][()])] if "label" in grp else [""] * len(start)
         return sorted({(float(s), float(max(e, s)), lab) for s, e, lab in zip(start, end, labels)})
 
+    def timeline_steps(self) -> list[tuple[float, str]]:
+        """Times of the timeline's steps (events with no ramp, from the stored case) as (time [s], label), sorted.
+        Heat flows jump there, so values interpolated between two outputs that bracket a step mix both sides."""
+        steps = set()
+        for e in self.case.get("events", []) or []:
+            if not isinstance(e, dict):
+                continue
+            try:
+                at, ramp = float(e.get("at", 0.0)), float(e.get("ramp", 0.0))
+            except (TypeError, ValueError):
+                continue
+            if ramp == 0.0:
+                steps.add((at, str(e.get("label", "")) or f"event at {at:g} s"))
+        return sorted(steps)
+
     def solver_stats(self) -> dict:
         """Attributes of the /solver group ({} when absent)."""
         grp = self.file.get("solver")
