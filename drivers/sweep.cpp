@@ -114,6 +114,7 @@ RunRow runOne(const SweepPlan& plan, std::size_t run, const std::atomic<bool>* s
       if (std::find(warnings.begin(), warnings.end(), w) == warnings.end()) warnings.push_back(w);
     for (const std::string& w : body.environment().warnings())
       if (std::find(warnings.begin(), warnings.end(), w) == warnings.end()) warnings.push_back(w);
+    for (const std::string& w : collector.windowWarnings()) warnings.push_back(w);
     row.warnings = std::move(warnings);
     row.steps = plan.steady ? summary.statistics.nonlinearIterations : summary.statistics.steps;
     row.energyBalanceError = summary.energyBalanceError;

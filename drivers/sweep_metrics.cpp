@@ -110,6 +110,27 @@ MetricCollector::MetricCollector(const Body& body, MetricWindow window, std::spa
       throw CaseError(fmt::format("--window ends at {:g} s, after the end of the run (run.duration = {:g} s)",
                                   window_.end, duration));
   }
+  if (!steady_) {
+    // Outputs at k dt (the last at the run's end); the flows jump at a step, so the linear interpolation of the
+    // energies between the outputs that bracket it mixes both sides (found in a new-user trial of report.py: a
+    // window starting at a 5-min cold front with 2-min outputs put the quadruped's convection 6 % off). An output
+    // exactly at the step holds the flows after it, so a step at the bracket's upper output counts too.
+    const double dt = body.spec().run.outputInterval;
+    for (auto [which, t] : {std::pair<const char*, double>{"start", window_.start}, {"end", window_.end}}) {
+      const double k = std::floor(t / dt + 1e-9);
+      const double lo = k * dt, hi = std::min(lo + dt, duration);
+      if (std::abs(t - lo) <= 1e-9 * dt || t >= duration || t <= 0.0) continue;  // an output time
+      for (const EventSpec& e : body.spec().events)
+        if (e.ramp == 0.0 && e.at > lo && e.at <= hi) {
+          windowWarnings_.push_back(fmt::format(
+              "the window {} {:g} s lies between the outputs at {:g} s and {:g} s, across a step of the timeline at "
+              "{:g} s: the window's metrics interpolate across the step and mix both sides of it; put the window {} "
+              "on an output time (run.output_interval = {:g} s) or make the step an output time",
+              which, t, lo, hi, e.at, which, dt));
+          break;
+        }
+    }
+  }
   const std::vector<std::string> names = temperatureNames(body);
   for (const Threshold& th : thresholds_) {
     auto it = std::find(names.begin(), names.end(), th.quantity);

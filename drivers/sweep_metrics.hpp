@@ -51,6 +51,10 @@ class MetricCollector {
   void observe(double time, std::span<const double> temperatures, const RunSummary& summary);
   //! Values in metricColumns() order; NaN where undefined (a threshold never reached).
   std::vector<double> values() const;
+  //! Window ends that lie between two outputs bracketing a step of the timeline (an event without a ramp): the
+  //! metrics interpolate across the step there, mixing both sides of it. One warning per such end; none at a
+  //! steady state.
+  const std::vector<std::string>& windowWarnings() const { return windowWarnings_; }
 
  private:
   struct Series {  // streaming reduction of one quantity over the window
@@ -73,6 +77,7 @@ class MetricCollector {
   std::vector<Series> series_;
   std::vector<double> crossing_;
   std::vector<double> steadyBodyFlows_;
+  std::vector<std::string> windowWarnings_;
 };
 
 }  // namespace thermorph

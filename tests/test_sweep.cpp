@@ -310,3 +310,36 @@ TEST_CASE("sweep: runs whose warnings differ only in numbers share one summary l
   CHECK(warningPattern("grid: segment legs") != warningPattern("grid: segment feet"));
   CHECK(warningPattern("version 2.x, Q10 rates.") == "version #.x, Q# rates.");
 }
+
+TEST_CASE("sweep: a window end between outputs that bracket a step of the timeline warns, and is off", "[sweep]") {
+  // A cold front at 5 min; outputs every 2 min put 300 s between the outputs at 240 s and 360 s. Outputs every
+  // minute give the same CVODE steps (outputs are dense-output interpolations, README "Results"), so there the
+  // window's metrics are the exact energy differences; the 2-min sweep interpolates across the jump of the flows.
+  auto plan = [](const char* interval) {
+    SweepOptions o;
+    o.casePath = quadruped;
+    o.overrides = {"run.duration=20 min", std::string("run.output_interval=") + interval,
+                   "events=[{ at = \"5 min\", environment = { temperature = \"-5 degC\", speed = \"4 m/s\" } }]"};
+    o.vary = {"segments.ears.length=5 cm,10 cm"};
+    o.metrics = {"body.heat_flow.convection"};
+    o.window = "5 min:15 min";
+    return makeSweepPlan(o);
+  };
+  const SweepPlan coarse = plan("2 min"), fine = plan("1 min");
+  const std::vector<RunRow> a = runAll(coarse, 1), b = runAll(fine, 1);
+  auto windowWarning = [](const RunRow& row) {
+    return std::count_if(row.warnings.begin(), row.warnings.end(), [](const std::string& w) {
+      return w.find("across a step of the timeline at 300 s") != std::string::npos;
+    });
+  };
+  for (std::size_t r = 0; r < 2; ++r) {
+    REQUIRE(a[r].status == RunStatus::Ok);
+    REQUIRE(b[r].status == RunStatus::Ok);
+    CHECK(windowWarning(a[r]) == 1);
+    CHECK(windowWarning(b[r]) == 0);
+    const double exact = column(fine, b[r], "body.heat_flow.convection");
+    const double interpolated = column(coarse, a[r], "body.heat_flow.convection");
+    INFO("exact " << exact << " W, interpolated across the step " << interpolated << " W");
+    CHECK(std::abs(interpolated - exact) > 1e-3 * std::abs(exact));  // the warning is not idle
+  }
+}
