@@ -304,9 +304,15 @@ int runSensitivityCommand(const SensitivityOptions& o) {
         e.push_back(y0);
         if (q < 12) {
           fmt::print("  {} = {:.6g} {}\n", metrics[q], y0, units[q]);
-          for (std::size_t j = 0; j < k; ++j)
-            fmt::print("    {:<44} dy/dp {:11.5g} {}/{}   dln y/dln p {:9.4g}   p dy/dp {:9.4g} {}\n", keys[j], a[q * k + j],
-                       units[q], punits[j], b[q * k + j], c[q * k + j], units[q]);
+          for (std::size_t j = 0; j < k; ++j) {
+            // A compound parameter unit in parentheses: "degC/(W/(m K))", not "degC/W/(m K)" (read as degC per W,
+            // per m K: found in a new-user trial).
+            const std::string& pu = punits[j];
+            const bool compound = pu.find_first_of("/ *.") != std::string::npos;
+            const std::string per = pu.empty() || pu == "1" ? units[q] : units[q] + "/" + (compound ? "(" + pu + ")" : pu);
+            fmt::print("    {:<44} dy/dp {:11.5g} {}   dln y/dln p {:9.4g}   p dy/dp {:9.4g} {}\n", keys[j], a[q * k + j],
+                       per, b[q * k + j], c[q * k + j], units[q]);
+          }
         }
       }
     }
