@@ -5,6 +5,7 @@
 #include <fmt/format.h>
 
 #include "drivers/progress.hpp"
+#include "drivers/record_fields.hpp"
 #include "drivers/recorder.hpp"
 #include "models/media.hpp"
 
@@ -333,6 +334,22 @@ void printBudget(const Body& body, const RunSummary& s, std::FILE* out) {
     fmt::print(out, "{}\n", energy);
     fmt::print(out, "Energy balance error: {:.3g} J ({:.2g} of the {:.4g} kJ exchanged)\n", s.energyBalanceError,
                s.throughput > 0 ? std::abs(s.energyBalanceError) / s.throughput : 0.0, s.throughput / 1e3);
+  }
+  // The temperatures a reader looks for first, at the same time as the table (a new-user trial had to open the
+  // results file to see that a steady start had put the core at 17 degC).
+  if (s.finalState.size() == n.nodes.size()) {
+    const BodyTemperatures t = bodyTemperatures(body, s.finalState);
+    std::string line = fmt::format("Temperatures at t = {:g} s: core {:.2f} degC, ", s.finalTime, t.core - 273.15);
+    if (!std::isnan(t.blood)) line += fmt::format("blood {:.2f} degC, ", t.blood - 273.15);
+    line += fmt::format("mean skin {:.2f} degC", t.skin - 273.15);
+    fmt::print(out, "{}\n", line);
+    if (!n.controllers.empty() && s.controls.size() >= n.controllers.size()) {
+      std::string states;
+      for (std::size_t k = 0; k < n.controllers.size(); ++k)
+        states += fmt::format("{}{} {:.3g}", k ? ", " : "", n.controllers[k].name,
+                              std::abs(s.controls[k]) < 1e-9 ? 0.0 : s.controls[k]);  // a lag's round-off: 0
+      fmt::print(out, "Controllers at t = {:g} s: {}\n", s.finalTime, states);
+    }
   }
   const SolverStatistics& st = s.statistics;
   fmt::print(out,

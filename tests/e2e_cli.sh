@@ -11,6 +11,17 @@ fail() { echo "FAIL: $*"; exit 1; }
 grep -q "Heat budget" "$work/out.txt" || fail "no budget table"
 grep -q "Energy balance error" "$work/out.txt" || fail "no energy balance line"
 "$python" "$src/tests/regression.py" "$work/demo.h5" "$src/tests/data/limb_cooling.summary.json" || fail "demo regression"
+# The printed final temperatures are the results file's last values (rounded to 0.01 K as printed).
+"$python" - "$work/out.txt" "$work/demo.h5" <<'PY' || fail "printed temperatures differ from the results file"
+import re, sys, h5py
+text = open(sys.argv[1]).read()
+m = re.search(r"Temperatures at t = (\S+) s: core (\S+) degC, blood (\S+) degC, mean skin (\S+) degC", text)
+assert m, "no temperature line"
+with h5py.File(sys.argv[2], "r") as f:
+    assert float(m.group(1)) == f["time"][-1]
+    for i, q in ((2, "core_temperature"), (3, "blood_temperature"), (4, "mean_skin_temperature")):
+        assert abs(float(m.group(i)) - f["body/" + q][-1]) <= 0.005 + 1e-9, (q, m.group(i), f["body/" + q][-1])
+PY
 
 # 2. Bad input: exit 2, message names the key, the earlier result survives byte for byte.
 cp "$work/demo.h5" "$work/keep.h5"
