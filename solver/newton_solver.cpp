@@ -17,13 +17,51 @@
 
 namespace thermorph {
 
+namespace {
+
+struct SymbolicFree {
+  void operator()(klu_symbolic* s) const {
+    klu_common common;
+    klu_defaults(&common);
+    klu_free_symbolic(&s, &common);
+  }
+};
+using SharedSymbolic = std::shared_ptr<klu_symbolic>;
+
+//! The last few symbolic analyses of this thread, with the patterns they were made for. klu_analyze depends only
+//! on the pattern (and the ordering options, the same for every solver here), and klu_factor, klu_refactor and
+//! klu_solve read the analysis without modifying it ("inputs, not modified", klu.h), so a solver with the same block
+//! pattern as an earlier one of the same thread (the runs of a sweep: the transient's and the steady start's
+//! systems) can share it: the same pivot order, the same factors, bit for bit. Kept only for blocks of up to
+//! kSharedAnalysisLimit components, whose pattern copies cost nothing next to a run (the memory at 10^5 nodes is not
+//! touched); the oldest of kSharedAnalyses goes first.
+constexpr Index kSharedAnalysisLimit = 5000;
+constexpr std::size_t kSharedAnalyses = 4;
+struct SharedAnalysis {
+  std::vector<int> start, row;
+  SharedSymbolic symbolic;
+};
+thread_local std::vector<SharedAnalysis> sharedAnalyses;
+
+SharedSymbolic findAnalysis(const std::vector<int>& start, const std::vector<int>& row) {
+  for (const SharedAnalysis& a : sharedAnalyses)
+    if (a.start == start && a.row == row) return a.symbolic;
+  return nullptr;
+}
+
+void keepAnalysis(const std::vector<int>& start, const std::vector<int>& row, SharedSymbolic symbolic) {
+  if (sharedAnalyses.size() == kSharedAnalyses) sharedAnalyses.erase(sharedAnalyses.begin());
+  sharedAnalyses.push_back(SharedAnalysis{start, row, std::move(symbolic)});
+}
+
+}  // namespace
+
 struct NewtonSolver::Klu {
   klu_common common{};
-  klu_symbolic* symbolic = nullptr;
+  SharedSymbolic symbolic;
   klu_numeric* numeric = nullptr;
   ~Klu() {
     if (numeric) klu_free_numeric(&numeric, &common);
-    if (symbolic) klu_free_symbolic(&symbolic, &common);
   }
 };
 
@@ -316,25 +354,30 @@ bool NewtonSolver::factor() {
   int* Ai = blockRow_.data();
   double* Ax = blockValues_.data();
   if (fresh_ || !k.symbolic || !k.numeric) {
-    if (k.symbolic) klu_free_symbolic(&k.symbolic, &k.common);
-    k.symbolic = klu_analyze(static_cast<int>(factored_), Ap, Ai, &k.common);
-    if (!k.symbolic) return false;
+    k.symbolic.reset();
+    const bool shareable = factored_ <= kSharedAnalysisLimit;
+    if (shareable) k.symbolic = findAnalysis(blockStart_, blockRow_);
+    if (!k.symbolic) {
+      k.symbolic = SharedSymbolic(klu_analyze(static_cast<int>(factored_), Ap, Ai, &k.common), SymbolicFree{});
+      if (!k.symbolic) return false;
+      if (shareable) keepAnalysis(blockStart_, blockRow_, k.symbolic);
+    }
     if (k.numeric) klu_free_numeric(&k.numeric, &k.common);
-    k.numeric = klu_factor(Ap, Ai, Ax, k.symbolic, &k.common);
+    k.numeric = klu_factor(Ap, Ai, Ax, k.symbolic.get(), &k.common);
     if (!k.numeric) return false;
     fresh_ = false;
     return true;
   }
-  if (!klu_refactor(Ap, Ai, Ax, k.symbolic, k.numeric, &k.common)) return false;
+  if (!klu_refactor(Ap, Ai, Ax, k.symbolic.get(), k.numeric, &k.common)) return false;
   // SUNDIALS' KLU module (SUNLinSolSetup_KLU): a cheap reciprocal condition estimate below eps^(2/3), confirmed
   // by klu_condest, makes it factorise afresh with new pivots.
-  if (!klu_rcond(k.symbolic, k.numeric, &k.common)) return false;
+  if (!klu_rcond(k.symbolic.get(), k.numeric, &k.common)) return false;
   const double threshold = std::pow(DBL_EPSILON, 2.0 / 3.0);
   if (k.common.rcond < threshold) {
-    if (!klu_condest(Ap, Ax, k.symbolic, k.numeric, &k.common)) return false;
+    if (!klu_condest(Ap, Ax, k.symbolic.get(), k.numeric, &k.common)) return false;
     if (k.common.condest > 1.0 / threshold) {
       klu_free_numeric(&k.numeric, &k.common);
-      k.numeric = klu_factor(Ap, Ai, Ax, k.symbolic, &k.common);
+      k.numeric = klu_factor(Ap, Ai, Ax, k.symbolic.get(), &k.common);
       if (!k.numeric) return false;
     }
   }
@@ -379,7 +422,7 @@ bool NewtonSolver::solve(std::span<double> x) const {
     }
   } else if (factored_ > 0) {
     Klu& k = *klu_;
-    if (!klu_solve(k.symbolic, k.numeric, static_cast<int>(factored_), 1, x.data(), &k.common)) return false;
+    if (!klu_solve(k.symbolic.get(), k.numeric, static_cast<int>(factored_), 1, x.data(), &k.common)) return false;
   }
   if (factored_ == pattern_.size) return true;
   // x_e = D^-1 (b_e - A_ef x_f), A_ef = beta J_ef. The same operations in the same order as before, on local
