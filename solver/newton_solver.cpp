@@ -36,6 +36,8 @@ using SharedSymbolic = std::shared_ptr<klu_symbolic>;
 //! kSharedAnalysisLimit components, whose pattern copies cost nothing next to a run (the memory at 10^5 nodes is not
 //! touched); the oldest of kSharedAnalyses goes first.
 constexpr Index kSharedAnalysisLimit = 5000;
+//! Systems up to this size keep A_ef by rows (NewtonSolver::rowStart_).
+constexpr Index kRowSubstitutionLimit = 5000;
 constexpr std::size_t kSharedAnalyses = 4;
 struct SharedAnalysis {
   std::vector<int> start, row;
@@ -201,6 +203,28 @@ NewtonSolver::NewtonSolver(const SparsePattern& pattern, Index factored, int sca
     if (pattern.columnStart[c + 1] - pattern.columnStart[c] != 1 || pattern.rowIndex[pattern.columnStart[c]] != c)
       throw std::invalid_argument(fmt::format("state component {} is left out of the factorisation but others "
                                               "depend on it", c));
+  // A_ef by rows for a small system: the substitution x_e = D^-1 (b_e - A_ef x_f) then sums each row in a register
+  // (the same terms in the same order: each row's updates came in ascending column order) instead of storing into
+  // x for every entry.
+  if (factored < pattern.size && pattern.size <= kRowSubstitutionLimit) {
+    const Index trailing = pattern.size - factored;
+    rowStart_.assign(trailing + 1, 0);
+    for (Index c = 0; c < factored; ++c)
+      for (Index p = pattern.columnStart[c]; p < pattern.columnStart[c + 1]; ++p)
+        if (pattern.rowIndex[p] >= factored) ++rowStart_[pattern.rowIndex[p] - factored + 1];
+    for (Index r = 0; r < trailing; ++r) rowStart_[r + 1] += rowStart_[r];
+    rowColumn_.resize(rowStart_[trailing]);
+    rowEntry_.resize(rowStart_[trailing]);
+    rowValue_.resize(rowStart_[trailing]);
+    std::vector<std::uint32_t> next(rowStart_.begin(), rowStart_.end() - 1);
+    for (Index c = 0; c < factored; ++c)
+      for (Index p = pattern.columnStart[c]; p < pattern.columnStart[c + 1]; ++p)
+        if (pattern.rowIndex[p] >= factored) {
+          const std::uint32_t q = next[pattern.rowIndex[p] - factored]++;
+          rowColumn_[q] = static_cast<std::uint32_t>(c);
+          rowEntry_[q] = static_cast<std::uint32_t>(p);
+        }
+  }
   // Band or KLU: the band split of A_ff with the least storage (border sizes 0 .. kMaxBorder), if that storage is
   // no more than the lower bound of the KLU path: 24 bytes per entry of the block (its values and 32-bit rows, and
   // L + U with at least as many entries, each a value and an index), besides KLU's arrays of length n.
@@ -274,6 +298,7 @@ void NewtonSolver::setMatrix(std::span<const double> jacobian, double alpha, dou
   jacobian_ = jacobian;
   alpha_ = alpha;
   beta_ = beta;
+  for (std::size_t q = 0; q < rowEntry_.size(); ++q) rowValue_[q] = beta * jacobian[rowEntry_[q]];
   if (band_) {
     // B's entries (beta J, plus alpha on the diagonal) in band storage: (i, j) at data[j ldim + smu + i - j]; the
     // rest of the band is zero (GBTRF clears the fill rows above mu itself). E, F and D are read from J.
@@ -434,6 +459,21 @@ bool NewtonSolver::solve(std::span<double> x) const {
   const auto* const start = pattern_.columnStart.data();
   const int* const block = blockStart_.data();
   const double alpha = alpha_, beta = beta_;
+  if (!rowStart_.empty()) {
+    // Row by row: x_r - sum over c of (beta J_rc) x_c in ascending c, the terms with x_c = 0 left out as before
+    // (subtracting +0.0 leaves every value, -0.0 included, unchanged).
+    const std::uint32_t* const column = rowColumn_.data();
+    const double* const value = rowValue_.data();
+    for (Index r = factored_; r < pattern_.size; ++r) {
+      double sum = xs[r];
+      for (std::uint32_t q = rowStart_[r - factored_]; q < rowStart_[r - factored_ + 1]; ++q) {
+        const double xc = xs[column[q]];
+        sum -= xc != 0.0 ? value[q] * xc : 0.0;
+      }
+      xs[r] = sum / (alpha + beta * J[start[r]]);
+    }
+    return true;
+  }
   if (!band_) {
     for (Index c = 0; c < factored_; ++c) {
       const double xc = xs[c];

@@ -77,6 +77,11 @@ class NewtonSolver {
   Index factored_ = 0;
   std::vector<int> blockStart_, blockRow_;  //!< CSC pattern of A_ff (KLU's int interface)
   std::vector<double> blockValues_;
+  //! A_ef row by row (systems of up to 5000 components; larger ones go column by column and keep no copy): for
+  //! trailing row r, entries [rowStart_[r - factored], rowStart_[r - factored + 1]) of rowColumn_ (the column c) and
+  //! rowEntry_ (the position of J's entry); rowValue_ = beta J at that position, set by setMatrix.
+  std::vector<std::uint32_t> rowStart_, rowColumn_, rowEntry_;
+  std::vector<double> rowValue_;
   std::span<const double> jacobian_;
   double alpha_ = 1.0, beta_ = 0.0;
   struct Klu;  //!< KLU's common parameters, symbolic analysis and numeric factorisation
