@@ -16,11 +16,22 @@ namespace {
 using Real = sunrealtype;
 using Size = sunindextype;
 
+// The element-wise loops compiled twice, for AVX2 (4 doubles per instruction) and for the baseline x86-64 (SSE2,
+// 2 per instruction), the version chosen once at load time by the processor (GCC's function multi-versioning,
+// an ifunc). Element-wise operations round the same at any vector width, and the sums (dot products, norms) keep
+// their index order (no reassociation without -ffast-math), so both versions give the same bits.
+#if defined(__GNUC__) && !defined(__clang__) && defined(__x86_64__) && defined(__linux__)
+#define THERMORPH_VECTOR_CLONES __attribute__((target_clones("avx2", "default")))
+#else
+#define THERMORPH_VECTOR_CLONES
+#endif
+
 inline Size length(N_Vector v) { return NV_LENGTH_S(v); }
 inline Real* data(N_Vector v) { return NV_DATA_S(v); }
 
 // ---- vectors: the cases and formulas of N_VLinearSum_Serial and friends ----
 
+THERMORPH_VECTOR_CLONES
 void linearSum(Real a, N_Vector x, Real b, N_Vector y, N_Vector z) {
   const Size n = length(x);
   const Real* xd = data(x);
@@ -73,6 +84,7 @@ void linearSum(Real a, N_Vector x, Real b, N_Vector y, N_Vector z) {
 
 void constant(Real c, N_Vector z) { std::fill_n(data(z), length(z), c); }
 
+THERMORPH_VECTOR_CLONES
 void product(N_Vector x, N_Vector y, N_Vector z) {
   const Size n = length(x);
   const Real *xd = data(x), *yd = data(y);
@@ -80,6 +92,7 @@ void product(N_Vector x, N_Vector y, N_Vector z) {
   for (Size i = 0; i < n; ++i) zd[i] = xd[i] * yd[i];
 }
 
+THERMORPH_VECTOR_CLONES
 void quotient(N_Vector x, N_Vector y, N_Vector z) {
   const Size n = length(x);
   const Real *xd = data(x), *yd = data(y);
@@ -87,6 +100,7 @@ void quotient(N_Vector x, N_Vector y, N_Vector z) {
   for (Size i = 0; i < n; ++i) zd[i] = xd[i] / yd[i];
 }
 
+THERMORPH_VECTOR_CLONES
 void scale(Real c, N_Vector x, N_Vector z) {
   const Size n = length(x);
   const Real* xd = data(x);
@@ -102,6 +116,7 @@ void scale(Real c, N_Vector x, N_Vector z) {
   }
 }
 
+THERMORPH_VECTOR_CLONES
 void absolute(N_Vector x, N_Vector z) {
   const Size n = length(x);
   const Real* xd = data(x);
@@ -109,6 +124,7 @@ void absolute(N_Vector x, N_Vector z) {
   for (Size i = 0; i < n; ++i) zd[i] = std::abs(xd[i]);
 }
 
+THERMORPH_VECTOR_CLONES
 void inverse(N_Vector x, N_Vector z) {
   const Size n = length(x);
   const Real* xd = data(x);
@@ -116,6 +132,7 @@ void inverse(N_Vector x, N_Vector z) {
   for (Size i = 0; i < n; ++i) zd[i] = 1.0 / xd[i];
 }
 
+THERMORPH_VECTOR_CLONES
 void addConstant(N_Vector x, Real b, N_Vector z) {
   const Size n = length(x);
   const Real* xd = data(x);
@@ -178,6 +195,7 @@ Real minimum(N_Vector x) {
   return min;
 }
 
+THERMORPH_VECTOR_CLONES
 void compare(Real c, N_Vector x, N_Vector z) {
   const Size n = length(x);
   const Real* xd = data(x);
