@@ -33,6 +33,10 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
     for (Index i = 0; i < nodes_; ++i)
       if (!(network.nodes[i].capacity > 0.0))
         throw std::invalid_argument(fmt::format("node {} has no heat capacity", network.label(i)));
+  if (transient && pattern_.size <= kSlotReplayLimit) {
+    inverseCapacity_.resize(nodes_);
+    for (Index i = 0; i < nodes_; ++i) inverseCapacity_[i] = 1.0 / network.nodes[i].capacity;
+  }
   for (const Modulator& m : network.modulators)
     if ((m.schedule != none && !network.schedules) || (m.control != none && m.control >= controls_))
       throw std::invalid_argument(fmt::format("modulator {} refers to a missing schedule or controller", m.name));
@@ -334,8 +338,12 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
     double difference = controlTarget(c, time, T, nullptr) - T[nodes_ + k];
     out[nodes_ + k] = transient ? difference / c.timeConstant : difference;
   }
-  if (transient)
-    for (Index i = 0; i < nodes_; ++i) out[i] *= 1.0 / network_.nodes[i].capacity;
+  if (transient) {
+    if (!inverseCapacity_.empty())
+      for (Index i = 0; i < nodes_; ++i) out[i] *= inverseCapacity_[i];
+    else
+      for (Index i = 0; i < nodes_; ++i) out[i] *= 1.0 / network_.nodes[i].capacity;
+  }
 }
 
 void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<double> values) const {
@@ -459,7 +467,8 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     // Row scaling by 1/C for node rows.
     for (Index col = 0; col < pattern_.size; ++col)
       for (Index p = pattern_.columnStart[col]; p < pattern_.columnStart[col + 1]; ++p)
-        if (const Index r = pattern_.rowIndex[p]; r < nodes_) values[p] *= 1.0 / network_.nodes[r].capacity;
+        if (const Index r = pattern_.rowIndex[p]; r < nodes_)
+          values[p] *= inverseCapacity_.empty() ? 1.0 / network_.nodes[r].capacity : inverseCapacity_[r];
   }
 }
 

@@ -152,6 +152,9 @@ class NetworkSystem {
     const double w = std::max(wa, wb);
     return {w / wa, w / wb};
   }
+  //! 1/C of each node (transient systems of up to kSlotReplayLimit states; larger ones divide where needed): the
+  //! same quotients as dividing at every evaluation, without a division per node and right-hand side.
+  std::vector<double> inverseCapacity_;
   mutable std::vector<double> faceGuess_;  //!< last face temperatures, Newton start values
   mutable std::vector<double> faceNodeTemperature_, faceSlope_;  //!< node temperature and dT_s/dT_n there
   //! Face temperature of the last evaluation of the face's heats in a remembered solve, and dq/dT_s there (the
