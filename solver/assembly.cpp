@@ -179,7 +179,7 @@ void NetworkSystem::modulatorValues(double time, std::span<const double> y, std:
   }
 }
 
-double NetworkSystem::partsValue(Index begin, Index end, std::span<const double> m) const {
+[[gnu::always_inline]] inline double NetworkSystem::partsValue(Index begin, Index end, std::span<const double> m) const {
   double sum = 0.0;
   for (Index p = begin; p < end; ++p) sum += network_.flowParts[p].coefficient * m[network_.flowParts[p].modulator];
   return sum;
