@@ -164,11 +164,18 @@ Index NetworkSystem::controlColumn(Index modulator) const {
 }
 
 NetworkSystem::Slot NetworkSystem::slot(Index row, Index col) const {
-  auto first = pattern_.rowIndex.begin() + static_cast<std::ptrdiff_t>(pattern_.columnStart[col]);
-  auto last = pattern_.rowIndex.begin() + static_cast<std::ptrdiff_t>(pattern_.columnStart[col + 1]);
-  auto it = std::lower_bound(first, last, row);
-  if (it == last || *it != row) throw std::logic_error("sparse pattern misses an entry");
-  return static_cast<Slot>(it - pattern_.rowIndex.begin());
+  // Binary search for the row in its column without data-dependent branches (the column's first entry not below
+  // the row, as std::lower_bound; its branches mispredicted at every step: 1.5 % of a quadruped sweep run's cycles).
+  const std::uint32_t* base = pattern_.rowIndex.data() + pattern_.columnStart[col];
+  std::size_t length = pattern_.columnStart[col + 1] - pattern_.columnStart[col];
+  if (length == 0) throw std::logic_error("sparse pattern misses an entry");
+  while (length > 1) {
+    const std::size_t half = length / 2;
+    base += base[half - 1] < row ? half : 0;
+    length -= half;
+  }
+  if (*base != row) throw std::logic_error("sparse pattern misses an entry");
+  return static_cast<Slot>(base - pattern_.rowIndex.data());
 }
 
 void NetworkSystem::modulatorValues(double time, std::span<const double> y, std::span<double> values) const {
