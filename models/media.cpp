@@ -90,36 +90,46 @@ struct HermiteTable {
   }
 };
 
-//! Where xq lies in the nodes x: interval [x_i, x_{i+1}] and the local coordinate t in [0, 1].
+//! Where xq lies in the nodes x: interval [x_i, x_{i+1}], the local coordinate t in [0, 1], and the cubic Hermite
+//! basis at t (value and slope weights, the slope-node ones times h), computed once for every table on the same
+//! nodes: each weight is the same expression as when every interpolation computed it, so the values are the same.
 template <std::size_t N>
 struct HermitePoint {
   std::size_t i;
   double h, t;
+  double v0, v1, v2, v3;  //!< value = v0 y_i + v1 s_i + v2 y_{i+1} + v3 s_{i+1}
+  double d0, d1, d2, d3;  //!< slope = (d0 y_i + d1 s_i + d2 y_{i+1} + d3 s_{i+1}) / h
 };
 template <std::size_t N>
 HermitePoint<N> hermiteLocate(const std::array<double, N>& x, double xq) {
   std::size_t i = static_cast<std::size_t>(std::upper_bound(x.begin(), x.end(), xq) - x.begin());
   i = std::clamp<std::size_t>(i, 1, N - 1) - 1;
   const double h = x[i + 1] - x[i];
-  return {i, h, (xq - x[i]) / h};
+  const double t = (xq - x[i]) / h, t2 = t * t, t3 = t2 * t;
+  return {i,
+          h,
+          t,
+          2 * t3 - 3 * t2 + 1,
+          (t3 - 2 * t2 + t) * h,
+          -2 * t3 + 3 * t2,
+          (t3 - t2) * h,
+          6 * t2 - 6 * t,
+          (3 * t2 - 4 * t + 1) * h,
+          -6 * t2 + 6 * t,
+          (3 * t2 - 2 * t) * h};
 }
 
 //! Value of the Hermite interpolant of `table` at the located point [units of y]; with a Dual temperature the
 //! derivative too (the interpolant's exact slope times the temperature's derivative).
 template <std::size_t N>
 double hermiteValue(const HermiteTable<N>& table, const HermitePoint<N>& p) {
-  const double t = p.t, t2 = t * t, t3 = t2 * t;
   const std::size_t i = p.i;
-  return (2 * t3 - 3 * t2 + 1) * table.y[i] + (t3 - 2 * t2 + t) * p.h * table.slope[i] +
-         (-2 * t3 + 3 * t2) * table.y[i + 1] + (t3 - t2) * p.h * table.slope[i + 1];
+  return p.v0 * table.y[i] + p.v1 * table.slope[i] + p.v2 * table.y[i + 1] + p.v3 * table.slope[i + 1];
 }
 template <std::size_t N>
 double hermiteSlope(const HermiteTable<N>& table, const HermitePoint<N>& p) {
-  const double t = p.t, t2 = t * t;
   const std::size_t i = p.i;
-  return ((6 * t2 - 6 * t) * table.y[i] + (3 * t2 - 4 * t + 1) * p.h * table.slope[i] +
-          (-6 * t2 + 6 * t) * table.y[i + 1] + (3 * t2 - 2 * t) * p.h * table.slope[i + 1]) /
-         p.h;
+  return (p.d0 * table.y[i] + p.d1 * table.slope[i] + p.d2 * table.y[i + 1] + p.d3 * table.slope[i + 1]) / p.h;
 }
 template <std::size_t N>
 double hermite(const HermiteTable<N>& table, const HermitePoint<N>& p, double) {
