@@ -84,7 +84,6 @@ class CaseReader {
   //! SI value of a quantity node (number in SI, or a string with a unit), range-checked.
   double quantity(const toml::node& node, const Param& p, const std::string& path, double density = 0.0) const {
     double value = 0.0;
-    std::string shown = formatValue(node);
     if (auto number = node.value<double>(); number && !node.is_string()) {
       value = *number;
     } else if (auto text = node.value<std::string>()) {
@@ -97,14 +96,14 @@ class CaseReader {
                                       trimmed(*text), p.unit));
         value = toSI(*text, p, density);
       } catch (const UnitError& e) {
-        fail(&node, path, fmt::format("{} = {}: {}; expected a {} in {} or a convertible unit, e.g. {}", lastComponent(path), shown,
+        fail(&node, path, fmt::format("{} = {}: {}; expected a {} in {} or a convertible unit, e.g. {}", lastComponent(path), formatValue(node),
                                       e.what(), quantityName(p.unit), p.unit, example(p)));
       }
     } else {
-      fail(&node, path, fmt::format("{} is not a number or a quantity string (expected a {} in {}, e.g. {})", shown,
+      fail(&node, path, fmt::format("{} is not a number or a quantity string (expected a {} in {}, e.g. {})", formatValue(node),
                                     quantityName(p.unit), p.unit, example(p)));
     }
-    checkRange(&node, p, path, value, shown);
+    checkRange(node, p, path, value);
     return snapToRange(p, value);
   }
 
@@ -135,8 +134,9 @@ class CaseReader {
     return parseQuantity(text, p.unit);
   }
 
-  void checkRange(const toml::node* node, const Param& p, const std::string& path, double value,
-                  const std::string& shown) const {
+  //! The value as written (formatValue) is formatted only for the message: an ostringstream per value was about
+  //! 1 % of a sweep run's instructions.
+  void checkRange(const toml::node& node, const Param& p, const std::string& path, double value) const {
     bool belowMin = p.minExclusive ? !(value > p.min) : !(value >= p.min || nearBound(value, p.min));
     bool aboveMax = value > p.max && !nearBound(value, p.max);
     // Subnormal numbers (below 2.2e-308) lose their precision in any product: no physical input is that small.
@@ -146,8 +146,8 @@ class CaseReader {
       std::string hint;
       if (p.unit == "K" && value < p.min && value > -100 && value < 100)
         hint = fmt::format(" (a bare number is in kelvin; did you mean \"{} degC\"?)", value);
-      fail(node, path,
-           fmt::format("{} = {}: out of range, allowed {} {:g}{} to {:g}{}{}", lastComponent(path), shown,
+      fail(&node, path,
+           fmt::format("{} = {}: out of range, allowed {} {:g}{} to {:g}{}{}", lastComponent(path), formatValue(node),
                        p.minExclusive ? ">" : ">=", p.min, unit, p.max, unit, hint));
     }
   }
@@ -155,14 +155,14 @@ class CaseReader {
   double number(const toml::node& node, const Param& p, const std::string& path) const {
     auto v = node.value<double>();
     if (!v || node.is_string()) fail(&node, path, fmt::format("{} must be a plain number", formatValue(node)));
-    checkRange(&node, p, path, *v, formatValue(node));
+    checkRange(node, p, path, *v);
     return snapToRange(p, *v);
   }
 
   long integer(const toml::node& node, const Param& p, const std::string& path) const {
     auto v = node.value<int64_t>();
     if (!v || !node.is_integer()) fail(&node, path, fmt::format("{} must be an integer", formatValue(node)));
-    checkRange(&node, p, path, static_cast<double>(*v), formatValue(node));
+    checkRange(node, p, path, static_cast<double>(*v));
     return static_cast<long>(*v);
   }
 
