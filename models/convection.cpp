@@ -6,6 +6,14 @@
 
 namespace thermorph {
 
+double freeConvectionLength(const ConvectionInput& in) {
+  if (in.geometry == Geometry::Plate && !in.verticalPlate) {
+    const double width = in.width > 0.0 ? in.width : in.length;
+    return in.length * width / (2.0 * (in.length + width));  // area / perimeter
+  }
+  return in.length;
+}
+
 // ---- correlations ---------------------------------------------------------------------
 // Each correlation is written once as a template on the number type: double for the public functions below,
 // Dual (models/dual.hpp) inside the evaluator for h and dh/dT_s in one pass.
@@ -185,12 +193,9 @@ ConvectionResult evaluate(const ConvectionInput& in) {
   }
   b = sqrt(b * b + kBuoyancyFloorSquared);
 
-  double freeLength = in.length;
-  if (in.geometry == Geometry::Plate && !in.verticalPlate) {
-    const double width = in.width > 0.0 ? in.width : in.length;
-    freeLength = in.length * width / (2.0 * (in.length + width));  // area / perimeter
-  }
-  const D grashof = kStandardGravity * b * std::pow(freeLength, 3) / (nuFilm * nuFilm);
+  const double freeLength = freeConvectionLength(in);
+  const double freeLengthCubed = in.freeLengthCubed > 0.0 ? in.freeLengthCubed : std::pow(freeLength, 3);
+  const D grashof = kStandardGravity * b * freeLengthCubed / (nuFilm * nuFilm);
   const D rayleigh = grashof * film.prandtl;
   r.grashof = grashof.v;
   r.rayleigh = rayleigh.v;

@@ -125,7 +125,13 @@ struct ConvectionInput {
   bool verticalPlate = true;  //!< plate orientation for free convection
   double width = 0.0;         //!< plate width across the flow [m]; 0 = square (free convection of horizontal plates)
   double salinity = 35e-3;    //!< sea water only [kg/kg]
+  //! std::pow(freeConvectionLength(*this), 3) if the caller keeps it (per face: it depends only on the geometry);
+  //! 0: computed at every evaluation.
+  double freeLengthCubed = 0.0;
 };
+
+//! Length of free convection [m]: `length`, or area / perimeter of a horizontal plate.
+double freeConvectionLength(const ConvectionInput& in);
 
 //! Convective heat-transfer coefficient of one surface and its slope.
 struct ConvectionResult {

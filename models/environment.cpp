@@ -95,6 +95,7 @@ EnvironmentModel::EnvironmentModel(const Case& c, Network& network) : case_(c) {
 void EnvironmentModel::addFace(const FaceDescription& face) {
   faces_.push_back(face);
   cache_.emplace_back();
+  freeLengthCubed_.push_back(0.0);
   if (!(faces_.back().volumeLength > 0.0)) faces_.back().volumeLength = surfaces_.at(face.segment).volumeLength;
 }
 
@@ -212,6 +213,8 @@ ConvectionInput EnvironmentModel::convectionInput(Index face, double faceTempera
   in.volumeLength = f.volumeLength;
   in.verticalPlate = s.surface.orientation == PlateOrientation::Vertical;
   in.width = surfaces_[f.segment].width;
+  if (!(freeLengthCubed_[face] > 0.0)) freeLengthCubed_[face] = std::pow(freeConvectionLength(in), 3);
+  in.freeLengthCubed = freeLengthCubed_[face];
   return in;
 }
 

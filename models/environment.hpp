@@ -146,6 +146,8 @@ class EnvironmentModel : public SurfaceModel {
     bool unlogged = false;
   };
   mutable std::vector<CachedCoefficient> cache_;
+  //! Per face: std::pow of its free-convection length, 3 (ConvectionInput::freeLengthCubed), 0 until first asked.
+  mutable std::vector<double> freeLengthCubed_;
   mutable bool reporting_ = false;
 };
 
