@@ -1,7 +1,7 @@
 #!/usr/bin/python3
 """Test of the publication figures and the installable package postproc/ (thermorph_post).
 
-    /usr/bin/python3 tests/test_figures.py [PYTHON]
+    /usr/bin/python3 tests/test_figures.py [PYTHON] [THERMORPH]
 
 - Every figure type (temperatures, budget, maps, forcing, overlay, sweep lines, sweep heat map) is built at
   both style presets (single and double column) from synthetic files, and every visible text's drawn
@@ -17,6 +17,8 @@
 - `pip install --target DIR --no-deps --no-build-isolation --no-index ./postproc` works offline and the
   installed entry points (thermorph-figures, thermorph-export, thermorph-report, thermorph-sweep-figure)
   run from DIR with the checkout out of reach.
+- With THERMORPH: a step of the surroundings between two outputs is drawn as a vertical jump at the step's time
+  (the quadruped with a step 15 -> -5 degC at 5 min, 2-min outputs), a ramp as a line (forcing and temperatures).
 Exits 1 on any failure.
 """
 
@@ -34,6 +36,7 @@ import numpy as np
 ROOT = Path(__file__).resolve().parent.parent
 POSTPROC = ROOT / "postproc"
 PYTHON = sys.argv[1] if len(sys.argv) > 1 else sys.executable
+EXE = sys.argv[2] if len(sys.argv) > 2 else None   # thermorph, for the run with a step of the surroundings
 RC_BEFORE = None
 FAILURES = []
 
@@ -285,11 +288,54 @@ def check_install(tmp: Path, full: Path, sweep_path: Path):
     check((tmp / "inst" / "budget.png").is_file() and (tmp / "inst" / "t.csv").is_file(), "installed outputs")
 
 
+def check_steps(tmp: Path, exe: str):
+    """A step of the surroundings between two outputs is drawn as a vertical jump at the step's time, a ramp as a
+    line. The quadruped with a step 15 -> -5 degC at 5 min, 2-min outputs (the step between the outputs at 4 and
+    6 min), and a 10-min ramp -5 -> -15 degC from 20 min: the values the case sets (--set below) are the reference.
+    Read from the plotted numbers (.data.csv) of the forcing figure and of the temperatures figure's surface panel."""
+    from thermorph_post import figures
+    h5 = tmp / "step.h5"
+    events = ('events=[{ at = "5 min", environment = { temperature = "-5 degC" } }, '
+              '{ at = "20 min", ramp = "10 min", environment = { temperature = "-15 degC" } }]')
+    proc = subprocess.run([exe, "run", str(ROOT / "cases" / "quadruped.toml"), "--set", events,
+                           "--set", 'run.output_interval="2 min"', "-o", str(h5)], capture_output=True, text=True)
+    check(proc.returncode == 0, f"quadruped with a step: exit {proc.returncode}\n{proc.stderr[-800:]}")
+    if proc.returncode != 0:
+        return
+    out = tmp / "steps"
+    code = figures.main([str(h5), "--out", str(out), "--only", "temperatures,forcing", "--formats", "png"])
+    check(code == 0, f"figures on the stepped run: exit {code}")
+    for stem, panel, series in (("forcing", "forcing: temperatures of the surroundings", "air or water"),
+                                ("temperatures", "segment mean surface temperatures", "surroundings")):
+        with open(out / f"{stem}.data.csv", newline="") as fh:
+            rows = [r for r in csv.DictReader(fh) if r["panel"] == panel and r["series"].startswith(series)]
+        what = f"{stem}: {series}"
+        check(bool(rows) and all(r["x_label"] == "Time (min)" for r in rows), f"{what}: no rows or not in minutes")
+        if not rows:
+            continue
+        x = np.array([60.0 * float(r["x"]) for r in rows])   # s
+        y = np.array([float(r["y"]) for r in rows])          # degC
+        check(bool(np.all(np.diff(x) >= 0.0)), f"{what}: times not in order")
+        at = np.flatnonzero(x == 300.0)
+        check(len(at) == 2 and list(y[at]) == [15.0, -5.0], f"{what}: no jump 15 -> -5 degC at 300 s: {y[at]}")
+        check(bool(np.all(y[x < 300.0] == 15.0)), f"{what}: not 15 degC before the step: {y[x < 300.0]}")
+        check(bool(np.all((y[x > 300.0] <= -5.0))), f"{what}: above -5 degC after the step: {y[x > 300.0]}")
+        check(not np.any((y > -5.0) & (y < 15.0)), f"{what}: values between the two sides of the step")
+        ramp = (x >= 1200.0) & (x <= 1800.0)   # outputs at 20, 22, ..., 30 min on the ramp line, no jump added
+        check(int(ramp.sum()) == 6 and len(np.unique(x[ramp])) == 6, f"{what}: ramp points {x[ramp]}")
+        check(bool(np.allclose(y[ramp], -5.0 - 10.0 * (x[ramp] - 1200.0) / 600.0, rtol=0.0, atol=1e-9)),
+              f"{what}: ramp not linear -5 -> -15 degC: {y[ramp]}")
+
+
 def main() -> int:
     with tempfile.TemporaryDirectory(prefix="thermorph_figures_") as name:
         tmp = Path(name)
         sys.path.insert(0, str(POSTPROC))   # the checkout's package (the installed one is checked below)
         full = check_figures(tmp)
+        if EXE:
+            check_steps(tmp, EXE)
+        else:
+            print("test_figures: no thermorph executable given (second argument): step drawing not checked")
         check_tidy(full, tmp)
         check_install(tmp, full, tmp / "sweep.h5")
     if FAILURES:

@@ -120,7 +120,8 @@ def temperatures_figure(res: Results, units: str = "physiology", segments=None, 
             for key, lab in (("temperature", "surroundings"), ("water_temperature", "water")):
                 if key in env and env[key].units == "degC":
                     colour, ls = ENVIRONMENT_STYLE[key]
-                    ax_s.plot(t, temperature_in(env[key].values, units), color=colour, ls=ls, lw=1.2, label=lab,
+                    t_env, v_env = res.environment_line(key)   # steps of the timeline drawn as jumps
+                    ax_s.plot(t_env / scale[0], temperature_in(v_env, units), color=colour, ls=ls, lw=1.2, label=lab,
                               **kw)
             ax_t.set_ylabel(f"Tissue ({tu})")
             panel_title(ax_t, next(letter), "Segments: mean tissue temperature (coat excluded)")
@@ -454,7 +455,7 @@ def forcing_figure(res: Results, units: str = "physiology", style: str = DEFAULT
             ax.set_label(f"forcing: {title.lower()}")
             drawn = []   # [values, line, equal names]: a series equal to one drawn already joins its label
             for k, name in enumerate(groups[unit]):
-                values = env[name].values
+                t_env, values = res.environment_line(name)   # steps of the timeline drawn as jumps
                 values = temperature_in(values, units) if unit == "degC" else factor * np.asarray(values, float)
                 twin = next((d for d in drawn if d[0].shape == values.shape and np.array_equal(d[0], values)), None)
                 if twin is not None:
@@ -462,7 +463,8 @@ def forcing_figure(res: Results, units: str = "physiology", style: str = DEFAULT
                     twin[1].set_label(f"{twin[1].get_label().split(' (same: ')[0]} (same: {', '.join(twin[2])})")
                     continue
                 colour, ls = ENVIRONMENT_STYLE.get(name, (LINE_CYCLE[k % len(LINE_CYCLE)], "-"))
-                line, = ax.plot(t, values, color=colour, ls=ls, lw=1.2, label=ENVIRONMENT_NAMES.get(name, name), **kw)
+                line, = ax.plot(t_env / scale[0], values, color=colour, ls=ls, lw=1.2,
+                                label=ENVIRONMENT_NAMES.get(name, name), **kw)
                 drawn.append([values, line, []])
             ax.set_ylabel(ylabel)
             if unit == "1":

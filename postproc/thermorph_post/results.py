@@ -471,6 +471,30 @@ class Results:
                 steps.add((at, str(e.get("label", "")) or f"event at {at:g} s"))
         return sorted(steps)
 
+    def environment_line(self, name: str) -> tuple[np.ndarray, np.ndarray]:
+        """Times [s] and values of /environment/NAME as the surroundings were: sampled at output times only, a step
+        of the timeline (timeline_steps) between two outputs would read as a slanted line, so the value at the last
+        output before the step is held up to it and the value at the first output at or after it holds from it on
+        (a vertical jump at the step); linear between outputs elsewhere (ramps, weather rows). With several steps
+        between the same two outputs the jump is drawn at the first (the values between them are not stored)."""
+        time = np.asarray(self.time, float)
+        values = np.asarray(self.read(f"/environment/{name}").values, float)
+        if time.size < 2 or values.shape != time.shape:
+            return time, values
+        where, at, before, after = [], [], [], []
+        for step, _ in self.timeline_steps():
+            i = int(np.searchsorted(time, step, side="left"))   # first output at or after the step
+            if i == 0 or i >= time.size or (where and where[-1] == i):
+                continue
+            where += [i, i]
+            at += [step, step]
+            before.append(values[i - 1])
+            after.append(values[i])
+        if not where:
+            return time, values
+        jumps = [v for pair in zip(before, after) for v in pair]
+        return np.insert(time, where, at), np.insert(values, where, jumps)
+
     def solver_stats(self) -> dict:
         """Attributes of the /solver group ({} when absent)."""
         grp = self.file.get("solver")
