@@ -122,6 +122,7 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
   check(CVodeSetMaxNumSteps(mem, 1'000'000), "CVodeSetMaxNumSteps");
   check(CVodeSetMaxOrd(mem, options.maxOrder), "CVodeSetMaxOrd");
   if (options.maxStep > 0.0) check(CVodeSetMaxStep(mem, options.maxStep), "CVodeSetMaxStep");
+  if (options.setupEveryStep) check(CVodeSetLSetupFrequency(mem, 1), "CVodeSetLSetupFrequency");
   const SparsePattern& pattern = system.pattern();
   jacobianValues_.resize(pattern.nonzeros());
   if (options.linearSolver == LinearSolverKind::Klu) {

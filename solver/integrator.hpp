@@ -46,6 +46,9 @@ struct IntegratorOptions {
   double maxStep = 0.0;      //!< [s], 0: none
   LinearSolverKind linearSolver = LinearSolverKind::Klu;
   int maxOrder = 5;
+  //! Update the Newton matrix I - gamma J at every step (CVodeSetLSetupFrequency 1) instead of CVODE's default
+  //! (every 20 steps or when gamma changed by 30 %): the steady start's fallback (drivers/simulation.cpp).
+  bool setupEveryStep = false;
 };
 
 struct SolverStatistics {
