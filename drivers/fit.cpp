@@ -440,9 +440,11 @@ class History : public ceres::IterationCallback {
     const double stepSe = model_.gaussNewtonStepSe(std::span<const double>(u_, p_), &atBound);
     // One line per iteration on stderr (unless --quiet): a fit of a large body runs for minutes.
     if (progress_)
-      fmt::print(stderr, "fit: start {} iteration {:>3}: cost {:.8g}{}, max gradient {:.3g}, Gauss-Newton step {:.2g} SE, {:.1f} s\n",
+      // After a rejected step there is no Jacobian at the trial point (stepSe is NaN): say so instead of "nan".
+      fmt::print(stderr, "fit: start {} iteration {:>3}: cost {:.8g}{}, max gradient {:.3g}, Gauss-Newton step {}, {:.1f} s\n",
                  start_ + 1, s.iteration, s.cost, s.iteration > 0 && !s.step_is_successful ? " (step rejected)" : "",
-                 s.gradient_max_norm, stepSe, std::chrono::duration<double>(Clock::now() - begin_).count());
+                 s.gradient_max_norm, std::isnan(stepSe) ? std::string("not evaluated") : fmt::format("{:.2g} SE", stepSe),
+                 std::chrono::duration<double>(Clock::now() - begin_).count());
     FitIteration it;
     it.iteration = s.iteration;
     it.cost = s.cost;
