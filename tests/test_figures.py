@@ -208,6 +208,30 @@ def check_figures(tmp: Path):
     check(tuple(ax.get_xlim()) == (10.0, 30.0), f"heat map x range {ax.get_xlim()} beyond the swept 10..30")
     check(np.allclose(ax.get_ylim(), (0.5, 2.0), rtol=1e-12), f"heat map y range {ax.get_ylim()} beyond 0.5..2")
 
+    # Failed runs (no metric values) are named under the figure, not silently left out (the synthetic sweep with
+    # its two smallest size factors at 10 degC marked failed, their metrics NaN).
+    failed_path = tmp / "sweep_failed.h5"
+    write_sweep(failed_path)
+    with h5py.File(failed_path, "r+") as f:
+        status = np.array(["ok"] * len(f_col), dtype=object)
+        status[[0, 2]] = "failed"
+        f["runs"].create_dataset("status", data=status, dtype=h5py.string_dtype())
+        for name in f["metrics"]:
+            values = f["metrics"][name][()]
+            values[[0, 2]] = np.nan
+            f["metrics"][name][...] = values
+    sw_failed = sweep.Sweep(failed_path)
+    for kind, fig in (("line", sweep.line_figure(sw_failed, "body.heat_flow.convection", "scale.body", None,
+                                                 np.ones(len(f_col), bool))),
+                      ("map", sweep.heatmap_figure(sw_failed, "body.heat_flow.convection", "environment.temperature",
+                                                   "scale.body", np.ones(len(f_col), bool)))):
+        footer = " ".join(t.get_text() for t in fig.texts)
+        check("2 of 8 runs failed, not drawn:" in footer, f"sweep {kind}: failed runs not named: {footer!r}")
+        check("0.5 (failed)" in footer and "0.7937 (failed)" in footer,
+              f"sweep {kind}: the failed runs' size factors (0.5, 0.7937) missing: {footer!r}")
+    fig = sweep.line_figure(sw, "body.heat_flow.convection", "scale.body", None, np.ones(len(f_col), bool))
+    check("not drawn" not in " ".join(t.get_text() for t in fig.texts), "a sweep without failures names none")
+
     # No global state: rcParams as before, pyplot never imported.
     after = dict(matplotlib.rcParams)
     changed = [k for k in RC_BEFORE if str(RC_BEFORE[k]) != str(after.get(k))]

@@ -165,6 +165,10 @@ class Sweep:
             runs = f.get("runs")
             self.overrides = ([text(v) for v in runs["overrides"][()]] if runs is not None and "overrides" in runs
                               else [])
+            n = len(next(iter(self.params.values()))) if self.params else 0
+            # Per run: "ok", "failed" or "not run" (an interrupted sweep); figures say which runs they cannot draw.
+            self.status = (np.array([text(v) for v in runs["status"][()]]) if runs is not None and "status" in runs
+                           else np.full(n, "ok"))
         self.mass_note = ""
         self.body_mass = self._body_mass()
 
@@ -270,6 +274,22 @@ def _notes(sweep: Sweep, metric: str, fixes) -> list[str]:
     return notes
 
 
+def _missing_note(sweep: Sweep, x: str, mask, y: str | None = None) -> str:
+    """A note naming the selected runs that failed or did not run (they have no metric values, so a line figure
+    would silently start or end elsewhere: found in a new-user trial, a tail-size series whose two smallest tails
+    had no steady state), or "" when every selected run is ok."""
+    bad = [k for k in np.flatnonzero(mask) if sweep.status[k] != "ok"]
+    if not bad:
+        return ""
+    def where(k):
+        return ", ".join(_value_text(sweep, p, sweep.params[p][k]) for p in ([x] if y is None else [x, y])
+                         if p in sweep.params)
+    kinds = sorted({sweep.status[k] for k in bad})
+    shown = "; ".join(f"{where(k)} ({sweep.status[k]})" for k in bad[:8]) + ("; ..." if len(bad) > 8 else "")
+    return (f"{len(bad)} of {int(np.count_nonzero(mask))} runs {' or '.join(kinds)}, not drawn: {shown} "
+            "(their errors: /runs/error in the sweep file).")
+
+
 def _title(sweep: Sweep) -> str:
     return sweep.title if sweep.complete else "INCOMPLETE SWEEP: " + sweep.title
 
@@ -321,6 +341,9 @@ def line_figure(sweep: Sweep, metric: str, x: str, lines: str | None, mask, logx
                                         "Body mass (kg)"] for f, mv in sorted(set(zip(f0[mask], mass[mask])))]
         panel_title(ax, None, _title(sweep))
         notes = _notes(sweep, metric, fixes)
+        missing = _missing_note(sweep, x, mask)
+        if missing:
+            notes.insert(0, missing)
         if not np.any(np.isfinite(values[mask])):
             notes.insert(0, "No values to draw: the metric is empty (NaN) in every selected run (never reached, "
                             "or the run failed).")
@@ -379,7 +402,11 @@ def heatmap_figure(sweep: Sweep, metric: str, x: str, y: str, mask, logx: bool |
         ax.set_xlim(edges(xs, logx)[0], edges(xs, logx)[-1])
         ax.set_ylim(edges(ys, logy)[0], edges(ys, logy)[-1])
         panel_title(ax, None, _title(sweep) + "; dots: runs")
-        add_footer(fig, _notes(sweep, metric, fixes), caution)
+        notes = _notes(sweep, metric, fixes)
+        missing = _missing_note(sweep, x, mask, y)
+        if missing:
+            notes.insert(0, missing)
+        add_footer(fig, notes, caution)
         finish(fig)
     return fig
 
