@@ -1,6 +1,7 @@
 #include "drivers/simulation.hpp"
 
 #include <cmath>
+#include <optional>
 
 #include <fmt/format.h>
 
@@ -247,10 +248,12 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   for (std::string& w : startWarnings) recorder.addRunWarning(std::move(w));
   recorder.setIncompletePath(options.output.empty() ? "" : incompleteName(options.output));
   const double initialStored = system.storedHeat(y);
-  Integrator integrator(system, y, 0.0, io);
+  // Held until the last state is read: the results file is finished without CVODE's vectors and the Newton
+  // matrix (the end of a run was its peak of memory).
+  std::optional<Integrator> integrator(std::in_place, system, y, 0.0, io);
   std::vector<double>().swap(io.atol);  // the integrator holds what it needs of both (8 bytes per node each)
   std::vector<double>().swap(y);
-  recorder.record(0.0, integrator.state(), initialStored, summary);
+  recorder.record(0.0, integrator->state(), initialStored, summary);
 
   ProgressReporter progress(c.run.duration, options.quiet);
   // Discontinuities of the timeline: the integrator stops exactly at each and restarts (never steps across).
@@ -259,15 +262,15 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   std::size_t interval = 0;
   body.setInterval(0);
   auto nextStop = [&] { return interval < breakpoints.size() ? breakpoints[interval] : c.run.duration; };
-  integrator.setStopTime(nextStop());
+  integrator->setStopTime(nextStop());
   // With a stop request to poll (signals), CVODE is driven one step at a time: the same steps, and a stop takes
   // effect at the next step; the outputs so far are kept and none is made at an intermediate time.
   auto advance = [&](double time) {
     if (!options.stop) {
-      integrator.advanceTo(time);
+      integrator->advanceTo(time);
       return true;
     }
-    if (!integrator.advanceTo(time, *options.stop)) summary.stopped = true;
+    if (!integrator->advanceTo(time, *options.stop)) summary.stopped = true;
     return !summary.stopped;
   };
   try {
@@ -276,20 +279,20 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
       while (interval < breakpoints.size() && breakpoints[interval] <= t) {
         if (!advance(breakpoints[interval])) break;
         body.setInterval(++interval);
-        integrator.restart();
-        integrator.setStopTime(nextStop());
+        integrator->restart();
+        integrator->setStopTime(nextStop());
       }
       // Progress within long output intervals too: advance to interpolated intermediate times (CVODE's steps
       // are not shortened by them), once a progress line can be shown (no interpolation nobody reads).
       if (summary.stopped) break;
       if (progress.due()) {
-        const double from = integrator.time();
+        const double from = integrator->time();
         for (int part = 1; part < 16 && !summary.stopped; ++part)
-          if (advance(from + (t - from) * part / 16.0)) progress.report(integrator.time(), integrator.statistics().steps);
+          if (advance(from + (t - from) * part / 16.0)) progress.report(integrator->time(), integrator->statistics().steps);
       }
       if (summary.stopped || !advance(t)) break;
-      recorder.record(t, integrator.state(), initialStored, summary);
-      progress.report(t, integrator.statistics().steps);
+      recorder.record(t, integrator->state(), initialStored, summary);
+      progress.report(t, integrator->statistics().steps);
     }
   } catch (const SolverError& e) {
     summary.complete = false;
@@ -301,8 +304,9 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
                                   c.run.duration);
   }
   progress.finish();
-  summary.statistics = integrator.statistics();
-  summary.finalState.assign(integrator.state().begin(), integrator.state().begin() + static_cast<std::ptrdiff_t>(nodes));
+  summary.statistics = integrator->statistics();
+  summary.finalState.assign(integrator->state().begin(), integrator->state().begin() + static_cast<std::ptrdiff_t>(nodes));
+  integrator.reset();
   recorder.finish(summary, false);
   return summary;
 }
