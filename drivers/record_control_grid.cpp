@@ -217,7 +217,8 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
         }
         case Term::Source: {
           const HeatSource& s = net.sources[term.term];
-          n.carried += weight(s.node) * std::abs(s.power * std::pow(s.q10, (y[s.node] - s.referenceTemperature) / 10.0) *
+          const Q10Law& law = net.q10Laws[s.law];
+          n.carried += weight(s.node) * std::abs(s.power * std::pow(law.q10, (y[s.node] - law.referenceTemperature) / 10.0) *
                                                  modulators_[s.modulator]);
           break;
         }

@@ -403,7 +403,8 @@ void Body::addMetabolicModulation(Index respiratorySegment) {
     if (cells.empty())
       throw CaseError(fmt::format("{}: control.shivering: no segment has a layer with role muscle to shiver", case_.sourceFile));
     for (auto [node, v] : cells)
-      network_.sources.push_back({node, maxPower * v / muscleVolume, 1.0, case_.body.q10Reference, channel, shivering});
+      network_.sources.push_back(
+          {node, maxPower * v / muscleVolume, network_.q10Law(1.0, case_.body.q10Reference), channel, shivering});
   }
   // Respiration: the loss taken from the innermost layer of the respiratory segment, by volume.
   if (respiratorySegment != none) {
@@ -417,9 +418,11 @@ void Body::addMetabolicModulation(Index respiratorySegment) {
       for (int ir = 0; ir < m.innermostLayerCells; ++ir)
         // Ventilation follows metabolism: the loss carries the Q10 of the layer's tissue, so it falls with the
         // metabolic rate of a cooling body instead of draining it at the basal rate.
-        network_.sources.push_back({m.node(iz, ir), -m.volume[static_cast<std::size_t>(iz * m.nr + ir)] / volume,
-                                    case_.tissues.at(case_.segments[respiratorySegment].layers.front().tissue).q10,
-                                    case_.body.q10Reference, channel, respiration});
+        network_.sources.push_back(
+            {m.node(iz, ir), -m.volume[static_cast<std::size_t>(iz * m.nr + ir)] / volume,
+             network_.q10Law(case_.tissues.at(case_.segments[respiratorySegment].layers.front().tissue).q10,
+                             case_.body.q10Reference),
+             channel, respiration});
   }
 }
 
@@ -1307,7 +1310,8 @@ void Body::addCellNodes(const SegmentBuild& b, SegmentMesh& m, int iz, const Cro
       m.tissueMass += t.density * volume;
     }
     if (t.metabolicHeat > 0.0)
-      network_.sources.push_back({node, t.metabolicHeat * volume, t.q10, case_.body.q10Reference, metabolismChannel_});
+      network_.sources.push_back(
+          {node, t.metabolicHeat * volume, network_.q10Law(t.q10, case_.body.q10Reference), metabolismChannel_});
     // Pennes (1948) perfusion omega V [m3/s]; the blood streams are linked in buildCirculation().
     // (skin multipliers, bradycardia and controllers act through modulators: see buildCirculation)
     cellPerfusion_[b.group][static_cast<std::size_t>(iz * b.nr + ir)] = t.isCoat() ? 0.0 : t.perfusion * volume;

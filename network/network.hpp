@@ -132,12 +132,12 @@ struct BoundaryExchange {  // 32 bytes
   Index32 partsBegin = 0, partsEnd = 0;  //!< modulated parts in Network::flowParts
 };
 
-//! Temperature-dependent heat source P_ref Q10^((T - T_ref)/10) [W].
-struct HeatSource {  // 36 bytes
+//! Temperature-dependent heat source P_ref Q10^((T - T_ref)/10) [W]; its Q10 and T_ref are one of the network's
+//! few Q10 laws (Network::q10Laws: a body has one per tissue Q10), not stored per source (16 bytes per cell).
+struct HeatSource {  // 24 bytes
   Index32 node = 0;
   double power = 0.0;                 //!< at the reference temperature [W]
-  double q10 = 1.0;                   //!< [1]
-  double referenceTemperature = 0.0;  //!< [K]
+  Index32 law = 0;                    //!< index in Network::q10Laws
   Index32 channel = 0;
   OptionalIndex32 modulator = none;           //!< multiplies the power
 };
@@ -151,8 +151,15 @@ struct SurfaceFace {  // 20 bytes
 
 #pragma pack(pop)
 static_assert(sizeof(FlowPart) == 12 && sizeof(NetworkNode) == 12 && sizeof(Conductance) == 20 &&
-              sizeof(Advection) == 28 && sizeof(BoundaryExchange) == 32 && sizeof(HeatSource) == 36 &&
+              sizeof(Advection) == 28 && sizeof(BoundaryExchange) == 32 && sizeof(HeatSource) == 24 &&
               sizeof(SurfaceFace) == 20, "the network's terms are packed");
+
+//! The temperature law of heat sources: Q10^((T - T_ref)/10).
+struct Q10Law {
+  double q10 = 1.0;                   //!< [1]
+  double referenceTemperature = 0.0;  //!< [K]
+  bool operator==(const Q10Law&) const = default;
+};
 
 //! Heat exchange of exterior faces with the surroundings; implemented by models/.
 class SurfaceModel {
@@ -175,6 +182,7 @@ struct Network {
   std::vector<Advection> advections;
   std::vector<BoundaryExchange> exchanges;
   std::vector<HeatSource> sources;
+  std::vector<Q10Law> q10Laws;  //!< the sources' Q10 laws (HeatSource::law)
   std::vector<SurfaceFace> faces;
   std::vector<std::string> groups;    //!< group names (segments)
   std::vector<double> groupWeights;   //!< multiplicity of each group in the budget (1 unless mirrored)
@@ -216,6 +224,14 @@ struct Network {
     faces.shrink_to_fit();
     flowParts.shrink_to_fit();
     namedNodes.shrink_to_fit();
+  }
+  //! The index of the Q10 law (q10, reference temperature) in q10Laws, added if new (a NaN Q10 matches a NaN).
+  Index q10Law(double q10, double referenceTemperature) {
+    auto same = [](double a, double b) { return a == b || (a != a && b != b); };
+    for (Index i = 0; i < q10Laws.size(); ++i)
+      if (same(q10Laws[i].q10, q10) && same(q10Laws[i].referenceTemperature, referenceTemperature)) return i;
+    q10Laws.push_back({q10, referenceTemperature});
+    return q10Laws.size() - 1;
   }
   Index channel(const std::string& name) {
     for (Index i = 0; i < channels.size(); ++i)

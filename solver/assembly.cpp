@@ -20,11 +20,10 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
   pattern_.size = nodes_ + controls_ + (transient ? channels_ + groups_ * channels_ : 0);
   if (pattern_.size >= std::numeric_limits<Slot>::max())
     throw std::invalid_argument(fmt::format("the state has {} components, more than this build supports", pattern_.size));
-  // Q10^((T - T_ref)/10) = exp(a (T - T_ref)), a = ln(Q10)/10: one rate per distinct Q10 (a body has a few
-  // tissues), looked up by q10Rate() where a source's Q10 differs from the previous source's.
+  // Q10^((T - T_ref)/10) = exp(a (T - T_ref)), a = ln(Q10)/10: one rate per Q10 law (a body has a few tissues).
+  for (const Q10Law& law : network.q10Laws) q10Rates_.emplace_back(std::log(law.q10) / 10.0, law.referenceTemperature);
   for (const HeatSource& src : network.sources)
-    if (std::none_of(q10Rates_.begin(), q10Rates_.end(), [&](const auto& r) { return r.first == src.q10; }))
-      q10Rates_.emplace_back(src.q10, std::log(src.q10) / 10.0);
+    if (src.law >= q10Rates_.size()) throw std::invalid_argument("a heat source refers to a missing Q10 law");
   for (const NetworkNode& node : network.nodes)
     if (node.group >= groupWeight_.size()) groupWeight_.resize(node.group + 1, 1.0);
   for (Index g = 0; g < groupWeight_.size() && g < network.groupWeights.size(); ++g)
@@ -314,11 +313,11 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
       toGroup(e.node, e.channel, q);
     }
   }
-  Q10Cache q10;
   for (std::size_t i = 0; i < network_.sources.size(); ++i) {
     const HeatSource& s = network_.sources[i];
     double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
-    double q = s.power * m * std::exp(q10Rate(s.q10, q10) * (T[s.node] - s.referenceTemperature));
+    const auto [rate, reference] = q10Rates_[s.law];
+    double q = s.power * m * std::exp(rate * (T[s.node] - reference));
     out[s.node] += q;
     if (transient) {
       acc[s.channel] += nodeWeight(s.node) * q;
@@ -429,12 +428,11 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     partDerivatives(ex.partsBegin, ex.partsEnd, ex.node, ex.channel, ex.temperature - T[ex.node],
                     nodeWeight(ex.node));
   }
-  Q10Cache q10;
   for (std::size_t i = 0; i < network_.sources.size(); ++i) {
     const HeatSource& s = network_.sources[i];
     double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
-    const double rate = q10Rate(s.q10, q10);
-    double base = s.power * std::exp(rate * (T[s.node] - s.referenceTemperature));
+    const auto [rate, reference] = q10Rates_[s.law];
+    double base = s.power * std::exp(rate * (T[s.node] - reference));
     // d/dT [P m Q10^((T - T_ref)/10)] = P m Q10^(...) ln(Q10)/10.
     double dq = base * m * rate;
     const Index acc = nodes_ + controls_ + s.channel;
@@ -509,11 +507,11 @@ void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span
     rate[e.node] += q;
     at(e.node, e.channel) += q;
   }
-  Q10Cache q10;
   for (std::size_t i = 0; i < network_.sources.size(); ++i) {
     const HeatSource& s = network_.sources[i];
     double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
-    double q = s.power * m * std::exp(q10Rate(s.q10, q10) * (T[s.node] - s.referenceTemperature));
+    const auto [q10Rate, reference] = q10Rates_[s.law];
+    double q = s.power * m * std::exp(q10Rate * (T[s.node] - reference));
     rate[s.node] += q;
     at(s.node, s.channel) += q;
   }
@@ -581,8 +579,8 @@ std::string structuralDifference(const Network& a, const Network& b) {
   }
   for (Index i = 0; i < a.sources.size(); ++i) {
     const HeatSource &x = a.sources[i], &y = b.sources[i];
-    if (x.node != y.node || x.channel != y.channel || x.modulator != y.modulator || x.q10 != y.q10 ||
-        x.referenceTemperature != y.referenceTemperature)
+    if (x.node != y.node || x.channel != y.channel || x.modulator != y.modulator || x.law != y.law ||
+        x.law >= a.q10Laws.size() || y.law >= b.q10Laws.size() || a.q10Laws[x.law] != b.q10Laws[y.law])
       return "a heat source's Q10 law or reference temperature differs";
   }
   for (Index i = 0; i < a.faces.size(); ++i)
@@ -690,14 +688,14 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
       if (transient) acc[e.channel] += nodeWeight(e.node) * q;
       toGroup(e.node, e.channel, q);
     }
-    Q10Cache q10;
     for (std::size_t i = 0; i < network_.sources.size(); ++i) {
       const HeatSource& s = network_.sources[i];
       const double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
       const double dmv = s.modulator == none ? 0.0 : dm[s.modulator];
       const double dP = (P.sources[i].power - M.sources[i].power) / h;
       if (dP == 0.0 && dmv == 0.0) continue;
-      const double q = (dP * m + s.power * dmv) * std::exp(q10Rate(s.q10, q10) * (T[s.node] - s.referenceTemperature));
+      const auto [rate, reference] = q10Rates_[s.law];
+      const double q = (dP * m + s.power * dmv) * std::exp(rate * (T[s.node] - reference));
       out[s.node] += q;
       if (transient) acc[s.channel] += nodeWeight(s.node) * q;
       toGroup(s.node, s.channel, q);

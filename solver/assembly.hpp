@@ -118,22 +118,13 @@ class NetworkSystem {
   SparsePattern pattern_;
   // Per-node and per-source factors are not stored (8 bytes per node each at 10^5 nodes): the node rows' scale
   // 1/C is computed where it is applied (the same reciprocal, so the same products), a node's multiplicity is read
-  // from its group, and a source's ln(Q10)/10 from a table of the distinct Q10 values.
+  // from its group, and a source's ln(Q10)/10 from a table of the network's Q10 laws.
   //! Group multiplicity of a node (1 unless its group is mirrored).
   double nodeWeight(Index node) const { return groupWeight_[network_.nodes[node].group]; }
   std::vector<double> groupWeight_;  //!< multiplicity of each group that has nodes (1 where groupWeights has none)
-  std::vector<std::pair<double, double>> q10Rates_;  //!< (Q10, ln(Q10)/10 [1/K]) for each distinct Q10 of the sources
-  //! The previous source's (Q10, rate) in a loop over the sources (consecutive sources mostly share their tissue).
-  struct Q10Cache {
-    double q10 = std::numeric_limits<double>::quiet_NaN(), rate = 0.0;
-  };
-  double q10Rate(double q10, Q10Cache& last) const {
-    if (q10 == last.q10) return last.rate;
-    last.q10 = q10;
-    for (const auto& [value, rate] : q10Rates_)
-      if (value == q10) return last.rate = rate;
-    return last.rate = std::log(q10) / 10.0;  // not in the table: a NaN Q10 (the table holds every other)
-  }
+  //! Each Q10 law of the network (Network::q10Laws) as (ln(Q10)/10 [1/K], T_ref [K]): Q10^((T - T_ref)/10) =
+  //! exp(rate (T - T_ref)).
+  std::vector<std::pair<double, double>> q10Rates_;
   // Group energies (transient): the state row of a node's group energy of channel 0, from its group (none: no
   // group energies); the rows of the other channels follow it.
   Index groups_ = 0;
