@@ -403,7 +403,13 @@ void ResultsFile::attachDimensions(const std::string& path, const std::vector<st
       attachments_.push_back({noSeries, noSeries, (parent == "/" ? "" : parent) + "/" + dims[i], static_cast<unsigned>(i), path});
 }
 
-void ResultsFile::append(std::size_t index, std::span<const double> values) {
+void ResultsFile::append(std::size_t index, std::span<const double> values) { appendPoints(index, values, std::nullopt); }
+
+void ResultsFile::append(std::size_t index, std::span<const double> values, double subtract) {
+  appendPoints(index, values, subtract);
+}
+
+void ResultsFile::appendPoints(std::size_t index, std::span<const double> values, std::optional<double> subtract) {
   // Time points are collected a chunk at a time and written with one extent change and one write per chunk
   // (a few large writes instead of one per output and series).
   Series& s = series_.at(index);
@@ -412,15 +418,18 @@ void ResultsFile::append(std::size_t index, std::span<const double> values) {
   if (!s.deferred && s.pending.empty() && s.count % s.chunkRows == 0 && values.size() == s.chunkRows * perPoint) {
     // A whole chunk at once (a large field: one time point per chunk): filtered and written from the caller's
     // values, without a copy in `pending` (the same chunk, written at the same point).
-    writeChunks(s, values, s.chunkRows);
+    writeChunks(s, values, s.chunkRows, subtract);
   } else {
-    s.pending.insert(s.pending.end(), values.begin(), values.end());
+    if (subtract)
+      for (double v : values) s.pending.push_back(v - *subtract);
+    else
+      s.pending.insert(s.pending.end(), values.begin(), values.end());
     if (s.pending.size() / perPoint >= s.chunkRows) flush(index);
   }
   // The time coordinate extends every group's copy with it.
   if (index == time_)
     for (const auto& [group, copy] : groupTimes_)
-      if (copy != time_) append(copy, values);
+      if (copy != time_) appendPoints(copy, values, subtract);
 }
 
 void ResultsFile::flush(std::size_t index) {
@@ -453,7 +462,8 @@ void ResultsFile::flush(std::size_t index) {
   s.pending.clear();
 }
 
-void ResultsFile::writeChunks(Series& s, std::span<const double> points, std::uint64_t rows) {
+void ResultsFile::writeChunks(Series& s, std::span<const double> points, std::uint64_t rows,
+                              std::optional<double> subtract) {
   const std::uint64_t perPoint = std::max<std::uint64_t>(
       1, std::accumulate(s.shape.begin(), s.shape.end(), std::uint64_t{1}, std::multiplies<>()));
   std::vector<hsize_t> dims{s.count + rows};
@@ -473,8 +483,18 @@ void ResultsFile::writeChunks(Series& s, std::span<const double> points, std::ui
     // (no copy of the chunk first).
     const auto* raw = reinterpret_cast<const unsigned char*>(points.data() + done * perPoint);
     const std::size_t filled = n * perPoint;
-    for (std::size_t i = 0; i < filled; ++i)
-      for (std::size_t k = 0; k < sizeof(double); ++k) c.shuffled[k * elements + i] = raw[i * sizeof(double) + k];
+    if (subtract) {
+      const double* const first = points.data() + done * perPoint;
+      for (std::size_t i = 0; i < filled; ++i) {
+        const double v = first[i] - *subtract;
+        unsigned char octets[sizeof(double)];
+        std::memcpy(octets, &v, sizeof(double));
+        for (std::size_t k = 0; k < sizeof(double); ++k) c.shuffled[k * elements + i] = octets[k];
+      }
+    } else {
+      for (std::size_t i = 0; i < filled; ++i)
+        for (std::size_t k = 0; k < sizeof(double); ++k) c.shuffled[k * elements + i] = raw[i * sizeof(double) + k];
+    }
     for (std::size_t k = 0; k < sizeof(double); ++k)
       std::memset(c.shuffled.data() + k * elements + filled, 0, elements - filled);
     const std::size_t size =
@@ -484,6 +504,13 @@ void ResultsFile::writeChunks(Series& s, std::span<const double> points, std::ui
     checkH5(H5Dwrite_chunk(s.dataset, H5P_DEFAULT, 0, offset.data(), size, c.packed.data()), "write a chunk");
   }
   s.count += rows;
+  // The filter buffers of a chunk larger than the usual 64 KiB (one time point of a field of more than 32 768
+  // cells) are released once it is written: kept, they sat beside the integrator through the run (1.6 MB at
+  // 10^5 cells), adding to the peak when the budget's per-node rates were allocated at the next output.
+  if (bytes > (std::size_t{1} << 18)) {
+    std::vector<unsigned char>().swap(c.shuffled);
+    std::vector<unsigned char>().swap(c.packed);
+  }
 }
 
 void ResultsFile::setAttribute(const std::string& object, const std::string& name, const std::string& value) {

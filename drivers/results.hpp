@@ -11,6 +11,7 @@
 #include <cstdint>
 #include <map>
 #include <memory>
+#include <optional>
 #include <span>
 #include <string>
 #include <vector>
@@ -50,6 +51,9 @@ class ResultsFile {
                            const std::string& longName = "", const std::vector<std::string>& dims = {});
   //! Append one time point to series `series` (size: product of its shape).
   void append(std::size_t series, std::span<const double> values);
+  //! Append values[i] - subtract (the same numbers as appending a shifted copy, without the copy: a whole chunk of
+  //! a large field is shifted as it is filtered).
+  void append(std::size_t series, std::span<const double> values, double subtract);
   //! Make the 1-D dataset `path` a dimension scale (a netCDF coordinate) named after it.
   void makeCoordinate(const std::string& path);
   //! Attach axis i of dataset `path` to the coordinate `dims[i]` of the same group ("" skips an axis), at commit.
@@ -126,7 +130,10 @@ class ResultsFile {
   std::unique_ptr<ChunkCompressor> compressor_;
   //! Write `rows` points of series `s` (from `points`: its pending points, or a whole chunk given to append), which
   //! starts at a chunk boundary, chunk by chunk.
-  void writeChunks(Series& s, std::span<const double> points, std::uint64_t rows);
+  //! `subtract`: written as points[i] - *subtract.
+  void writeChunks(Series& s, std::span<const double> points, std::uint64_t rows,
+                   std::optional<double> subtract = std::nullopt);
+  void appendPoints(std::size_t series, std::span<const double> values, std::optional<double> subtract);
 };
 
 }  // namespace thermorph
