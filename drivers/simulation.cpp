@@ -224,6 +224,7 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   const Index nodes = system.nodeCount();
   const Index states = nodes + system.controlCount();  // temperatures, then controller states
   std::vector<double> y = initialState(body, system);
+  y.reserve(system.size());  // exact: growing by doubling held a second node-sized block while CVODE's were allocated
   y.resize(system.size(), 0.0);  // channel energies start at 0
   RunSummary summary;
   std::vector<std::string> startWarnings;
@@ -250,9 +251,10 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   const double initialStored = system.storedHeat(y);
   // Held until the last state is read: the results file is finished without CVODE's vectors and the Newton
   // matrix (the end of a run was its peak of memory).
-  std::optional<Integrator> integrator(std::in_place, system, y, 0.0, io);
-  std::vector<double>().swap(io.atol);  // the integrator holds what it needs of both (8 bytes per node each)
-  std::vector<double>().swap(y);
+  // The tolerances moved in: the integrator keeps them as runs of equal values and frees the vector before it
+  // allocates CVODE's vectors (8 bytes per node at the set-up's peak).
+  std::optional<Integrator> integrator(std::in_place, system, y, 0.0, std::move(io));
+  std::vector<double>().swap(y);  // the integrator holds the state
   recorder.record(0.0, integrator->state(), initialStored, summary);
 
   ProgressReporter progress(c.run.duration, options.quiet);

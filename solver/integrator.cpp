@@ -74,8 +74,10 @@ void fillMatrix(SUNMatrix J, const SparsePattern& pattern, std::span<const doubl
 }  // namespace
 
 Integrator::Integrator(const NetworkSystem& system, std::span<const double> initialState, double initialTime,
-                       const IntegratorOptions& options)
-    : system_(system), options_(options), memory_(nullptr, detail::MemoryDeleter{CVodeFree}), time_(initialTime) {
+                       IntegratorOptions options)
+    : system_(system), options_(std::move(options)), memory_(nullptr, detail::MemoryDeleter{CVodeFree}),
+      time_(initialTime) {
+  const IntegratorOptions& o = options_;
   SUNContext ctx = nullptr;
   check(SUNContext_Create(nullptr, &ctx), "SUNContext_Create");
   context_.reset(ctx);
@@ -86,23 +88,23 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
   tolerances_.reset(checkCreated(N_VNew_Serial(n, ctx), "the tolerance vector"));
   useFastVectorOperations(tolerances_.get());
   auto atol = view(tolerances_.get());
-  if (options.atol.size() != atol.size()) throw std::invalid_argument("atol must have one entry per state");
-  std::copy(options.atol.begin(), options.atol.end(), atol.begin());
+  if (o.atol.size() != atol.size()) throw std::invalid_argument("atol must have one entry per state");
+  std::copy(o.atol.begin(), o.atol.end(), atol.begin());
   // The weight callback and the sensitivities read the tolerances as runs of equal values (a body has three:
   // temperatures, controller states, energies), not as a copy of the vector (8 bytes per node).
-  for (Index i = 0; i < options.atol.size(); ++i)
-    if (atolRuns_.empty() || atolRuns_.back().atol != options.atol[i])
-      atolRuns_.push_back({i + 1, options.atol[i]});
+  for (Index i = 0; i < o.atol.size(); ++i)
+    if (atolRuns_.empty() || atolRuns_.back().atol != o.atol[i])
+      atolRuns_.push_back({i + 1, o.atol[i]});
     else
       atolRuns_.back().end = i + 1;
   atolRuns_.shrink_to_fit();
+  const auto counted = std::count_if(o.atol.begin(), o.atol.end(),
+                                     [](double a) { return a < IntegratorOptions::excludedTolerance; });
   std::vector<double>().swap(options_.atol);
 
   memory_.reset(checkCreated(CVodeCreate(CV_BDF, ctx), "CVODE memory"));
   void* mem = memory_.get();
   check(CVodeInit(mem, &Integrator::rhsCallback, initialTime, state_.get()), "CVodeInit");
-  const auto counted = std::count_if(options.atol.begin(), options.atol.end(),
-                                     [](double a) { return a < IntegratorOptions::excludedTolerance; });
   if (counted == 0) throw std::invalid_argument("every state component is excluded from the error test");
   if (counted < n) {
     // Excluded components get weight 0; the others sqrt(N / counted) / (rtol |y| + atol), so CVODE's RMS norms
@@ -111,7 +113,7 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
     weightScale_ = std::sqrt(static_cast<double>(n) / static_cast<double>(counted));
     check(CVodeWFtolerances(mem, &Integrator::weightCallback), "CVodeWFtolerances");
   } else {
-    check(CVodeSVtolerances(mem, options.rtol, tolerances_.get()), "CVodeSVtolerances");
+    check(CVodeSVtolerances(mem, o.rtol, tolerances_.get()), "CVodeSVtolerances");
   }
   // CVODE keeps its own copy of the tolerances (CVodeSVtolerances clones the vector) and the weight callback and
   // the sensitivities read atolRuns_: one state-sized vector less (8 bytes per node).
@@ -120,12 +122,12 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
   // CVODE's own messages go into the failure message, not straight to stderr (sweeps run many solvers).
   check(CVodeSetErrHandlerFn(mem, &Integrator::errorHandler, this), "CVodeSetErrHandlerFn");
   check(CVodeSetMaxNumSteps(mem, 1'000'000), "CVodeSetMaxNumSteps");
-  check(CVodeSetMaxOrd(mem, options.maxOrder), "CVodeSetMaxOrd");
-  if (options.maxStep > 0.0) check(CVodeSetMaxStep(mem, options.maxStep), "CVodeSetMaxStep");
-  if (options.setupEveryStep) check(CVodeSetLSetupFrequency(mem, 1), "CVodeSetLSetupFrequency");
+  check(CVodeSetMaxOrd(mem, o.maxOrder), "CVodeSetMaxOrd");
+  if (o.maxStep > 0.0) check(CVodeSetMaxStep(mem, o.maxStep), "CVodeSetMaxStep");
+  if (o.setupEveryStep) check(CVodeSetLSetupFrequency(mem, 1), "CVodeSetLSetupFrequency");
   const SparsePattern& pattern = system.pattern();
   jacobianValues_.resize(pattern.nonzeros());
-  if (options.linearSolver == LinearSolverKind::Klu) {
+  if (o.linearSolver == LinearSolverKind::Klu) {
     // Our own direct solver on KLU's 32-bit interface (solver/newton_solver.hpp): it factorises the node and
     // controller block of I - gamma J only (the cumulative energies follow by substitution) and holds the matrix
     // itself; CVODE gets an empty matrix. Row scaling off and no check of the matrix at every factorisation
@@ -139,7 +141,7 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
     linearSolver_.reset(checkCreated(SUNLinSol_Dense(state_.get(), matrix_.get(), ctx), "the dense solver"));
   }
   check(CVodeSetLinearSolver(mem, linearSolver_.get(), matrix_.get()), "CVodeSetLinearSolver");
-  if (options.linearSolver == LinearSolverKind::Klu) {
+  if (o.linearSolver == LinearSolverKind::Klu) {
     check(CVodeSetLinSysFn(mem, &Integrator::linearSystemCallback), "CVodeSetLinSysFn");
   } else {
     check(CVodeSetJacFn(mem, &Integrator::jacobianCallback), "CVodeSetJacFn");

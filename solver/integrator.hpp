@@ -120,8 +120,10 @@ struct SensitivityProblem {
 //! without sensitivities it takes the same steps as CVODE).
 class Integrator {
  public:
+  //! `options` by value: a caller that moves them in gives up its absolute tolerances (8 bytes per state component)
+  //! before CVODE's vectors are allocated.
   Integrator(const NetworkSystem& system, std::span<const double> initialState, double initialTime,
-             const IntegratorOptions& options);
+             IntegratorOptions options);
   ~Integrator();
   Integrator(const Integrator&) = delete;
   Integrator& operator=(const Integrator&) = delete;
