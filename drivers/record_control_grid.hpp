@@ -85,6 +85,7 @@ class ControlGridWatch {
     enum Kind { Advection, Exchange, Source } kind;
     Index term = 0;      //!< index in its network vector
     Index part = none;   //!< flow part (advection, exchange) or none (source)
+    int hop = 0;         //!< hop of the advection (0, or 1 for the second of a stream through a node)
   };
   struct Watched {
     Index control = 0;             //!< controller driving the terms

@@ -1054,9 +1054,11 @@ void Body::linkSegmentBlood(const Circulation& c, Index g) {
       if (!split && !c.cellTotal[g][k].empty() && c.cellDeep[g][k].parts == c.cellTotal[g][k].parts &&
           m.venous[z] != noNode) {
         // No superficial return: the venous outflow is the arterial draw, part for part (the same modulators and
-        // coefficients), so it shares the draw's flow parts (12 bytes per cell less; the same values are read).
-        const Advection draw = network_.advections.back();
-        network_.advections.push_back({m.node(iz, ir), m.venous[z], 0.0, bloodChannel_, draw.partsBegin, draw.partsEnd});
+        // coefficients), so the draw continues through the cell to the vein: one term of the same flow (its hops
+        // add the same numbers in the same order as a draw and a return; 36 bytes per perfused cell less).
+        Advection& draw = network_.advections.back();
+        draw.via = Index(draw.to);
+        draw.to = m.venous[z];
       } else {
         linkBlood(c, m.node(iz, ir), m.venous[z], c.cellDeep[g][k]);
       }
@@ -1102,13 +1104,14 @@ void Body::checkBloodMassBalance() const {
     double in, out;
   };
   std::vector<Term> terms;
-  for (const Advection& a : network_.advections) {
-    double w = network_.groupWeights[network_.nodes[a.to].group];
-    for (Index p = a.partsBegin; p < a.partsEnd; ++p) {
-      terms.push_back({a.to, network_.flowParts[p].modulator, w * network_.flowParts[p].coefficient, 0.0});
-      terms.push_back({a.from, network_.flowParts[p].modulator, 0.0, w * network_.flowParts[p].coefficient});
-    }
-  }
+  for (const Advection& a : network_.advections)
+    forEachHop(a, [&](Index from, Index to) {
+      double w = network_.groupWeights[network_.nodes[to].group];
+      for (Index p = a.partsBegin; p < a.partsEnd; ++p) {
+        terms.push_back({to, network_.flowParts[p].modulator, w * network_.flowParts[p].coefficient, 0.0});
+        terms.push_back({from, network_.flowParts[p].modulator, 0.0, w * network_.flowParts[p].coefficient});
+      }
+    });
   for (const BoundaryExchange& e : network_.exchanges)
     for (Index p = e.partsBegin; p < e.partsEnd; ++p)
       terms.push_back({e.node, network_.flowParts[p].modulator, network_.flowParts[p].coefficient, 0.0});

@@ -115,13 +115,28 @@ struct Conductance {  // 20 bytes
   Index32 channel = 0;  //!< budget channel when a and b belong to different groups
 };
 
-//! Heat carried by a fluid stream from `from` into `to`: F (T_from - T_to) [W/K].
-struct Advection {  // 28 bytes
+//! Heat carried by a fluid stream from `from` into `to`: F (T_from - T_to) [W/K]. A stream through a node on its
+//! way (`via`: perfusion, artery -> tissue cell -> vein) is two hops of the same flow in one term, in this order:
+//! F (T_from - T_via) into `via`, then F (T_via - T_to) into `to` (the same sums as two advections, one term less
+//! per perfused cell).
+struct Advection {  // 32 bytes
   Index32 from = 0, to = 0;
   double flowCapacity = 0.0;  //!< mass flow times specific heat [W/K] (constant part)
   Index32 channel = 0;
   Index32 partsBegin = 0, partsEnd = 0;  //!< modulated parts in Network::flowParts, added to flowCapacity
+  OptionalIndex32 via = none;            //!< the node the stream passes through first (none: straight to `to`)
 };
+
+//! Calls f(from, to) for each hop of an advection, in order.
+template <class F>
+void forEachHop(const Advection& a, F&& f) {
+  if (a.via == none) {
+    f(Index(a.from), Index(a.to));
+  } else {
+    f(Index(a.from), Index(a.via));
+    f(Index(a.via), Index(a.to));
+  }
+}
 
 //! Exchange with a prescribed boundary temperature: G (T_b - T_i).
 struct BoundaryExchange {  // 32 bytes
@@ -151,7 +166,7 @@ struct SurfaceFace {  // 20 bytes
 
 #pragma pack(pop)
 static_assert(sizeof(FlowPart) == 12 && sizeof(NetworkNode) == 12 && sizeof(Conductance) == 20 &&
-              sizeof(Advection) == 28 && sizeof(BoundaryExchange) == 32 && sizeof(HeatSource) == 24 &&
+              sizeof(Advection) == 32 && sizeof(BoundaryExchange) == 32 && sizeof(HeatSource) == 24 &&
               sizeof(SurfaceFace) == 20, "the network's terms are packed");
 
 //! The temperature law of heat sources: Q10^((T - T_ref)/10).

@@ -58,14 +58,15 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       add(c.a, c.b);
       add(c.b, c.a);
     }
-    for (const Advection& a : network.advections) {
-      add(a.to, a.from);
-      if (transient) {
-        add(accumulator(a.channel), a.from);
-        add(accumulator(a.channel), a.to);
-      }
-      forParts(a.partsBegin, a.partsEnd, a.to, a.channel);
-    }
+    for (const Advection& a : network.advections)
+      forEachHop(a, [&](Index from, Index to) {
+        add(to, from);
+        if (transient) {
+          add(accumulator(a.channel), from);
+          add(accumulator(a.channel), to);
+        }
+        forParts(a.partsBegin, a.partsEnd, to, a.channel);
+      });
     for (const BoundaryExchange& e : network.exchanges) {
       if (transient) add(accumulator(e.channel), e.node);
       forParts(e.partsBegin, e.partsEnd, e.node, e.channel);
@@ -98,11 +99,12 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       const Index ra = row(c.a, c.channel), rb = row(c.b, c.channel);
       for (auto [r, col] : {std::pair{ra, c.a}, {ra, c.b}, {rb, c.a}, {rb, c.b}}) visit(r, col);
     }
-    for (const Advection& a : network.advections) {
-      visit(row(a.to, a.channel), a.from);
-      visit(row(a.to, a.channel), a.to);
-      partColumns(a.partsBegin, a.partsEnd, row(a.to, a.channel));
-    }
+    for (const Advection& a : network.advections)
+      forEachHop(a, [&](Index from, Index to) {
+        visit(row(to, a.channel), from);
+        visit(row(to, a.channel), to);
+        partColumns(a.partsBegin, a.partsEnd, row(to, a.channel));
+      });
     for (const BoundaryExchange& e : network.exchanges) {
       visit(row(e.node, e.channel), e.node);
       partColumns(e.partsBegin, e.partsEnd, row(e.node, e.channel));
@@ -297,12 +299,14 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
   }
   for (const Advection& a : network_.advections) {
     double F = a.flowCapacity + partsValue(a.partsBegin, a.partsEnd, modulators_);
-    double q = F * (T[a.from] - T[a.to]);
-    out[a.to] += q;
-    if (transient) {
-      acc[a.channel] += nodeWeight(a.to) * q;
-      toGroup(a.to, a.channel, q);
-    }
+    forEachHop(a, [&](Index from, Index to) {
+      double q = F * (T[from] - T[to]);
+      out[to] += q;
+      if (transient) {
+        acc[a.channel] += nodeWeight(to) * q;
+        toGroup(to, a.channel, q);
+      }
+    });
   }
   for (const BoundaryExchange& e : network_.exchanges) {
     double G = e.conductance + partsValue(e.partsBegin, e.partsEnd, modulators_);
@@ -408,17 +412,19 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
   };
   for (const Advection& adv : network_.advections) {
     double F = adv.flowCapacity + partsValue(adv.partsBegin, adv.partsEnd, modulators_);
-    add(adv.to, adv.to, -F);
-    add(adv.to, adv.from, F);
-    const double w = nodeWeight(adv.to);
-    const Index acc = nodes_ + controls_ + adv.channel;
-    if (transient) {
-      add(acc, adv.from, w * F);
-      add(acc, adv.to, -(w * F));
-    }
-    toGroup(adv.to, adv.channel, adv.from, F);
-    toGroup(adv.to, adv.channel, adv.to, -F);
-    partDerivatives(adv.partsBegin, adv.partsEnd, adv.to, adv.channel, T[adv.from] - T[adv.to], w);
+    forEachHop(adv, [&](Index from, Index to) {
+      add(to, to, -F);
+      add(to, from, F);
+      const double w = nodeWeight(to);
+      const Index acc = nodes_ + controls_ + adv.channel;
+      if (transient) {
+        add(acc, from, w * F);
+        add(acc, to, -(w * F));
+      }
+      toGroup(to, adv.channel, from, F);
+      toGroup(to, adv.channel, to, -F);
+      partDerivatives(adv.partsBegin, adv.partsEnd, to, adv.channel, T[from] - T[to], w);
+    });
   }
   for (const BoundaryExchange& ex : network_.exchanges) {
     double G = ex.conductance + partsValue(ex.partsBegin, ex.partsEnd, modulators_);
@@ -498,9 +504,12 @@ void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span
     }
   }
   for (const Advection& a : network_.advections) {
-    double q = (a.flowCapacity + partsValue(a.partsBegin, a.partsEnd, modulators_)) * (T[a.from] - T[a.to]);
-    rate[a.to] += q;
-    at(a.to, a.channel) += q;
+    const double F = a.flowCapacity + partsValue(a.partsBegin, a.partsEnd, modulators_);
+    forEachHop(a, [&](Index from, Index to) {
+      double q = F * (T[from] - T[to]);
+      rate[to] += q;
+      at(to, a.channel) += q;
+    });
   }
   for (const BoundaryExchange& e : network_.exchanges) {
     double q = (e.conductance + partsValue(e.partsBegin, e.partsEnd, modulators_)) * (e.temperature - T[e.node]);
@@ -568,8 +577,8 @@ std::string structuralDifference(const Network& a, const Network& b) {
   }
   for (Index i = 0; i < a.advections.size(); ++i) {
     const Advection &x = a.advections[i], &y = b.advections[i];
-    if (x.from != y.from || x.to != y.to || x.channel != y.channel || x.partsBegin != y.partsBegin ||
-        x.partsEnd != y.partsEnd)
+    if (x.from != y.from || x.to != y.to || x.via != y.via || x.channel != y.channel ||
+        x.partsBegin != y.partsBegin || x.partsEnd != y.partsEnd)
       return "blood streams join other nodes";
   }
   for (Index i = 0; i < a.exchanges.size(); ++i) {
@@ -672,10 +681,12 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
       const Advection& a = network_.advections[k];
       const double dF =
           (P.advections[k].flowCapacity - M.advections[k].flowCapacity) / h + dParts(a.partsBegin, a.partsEnd);
-      const double q = dF * (T[a.from] - T[a.to]);
-      out[a.to] += q;
-      if (transient) acc[a.channel] += nodeWeight(a.to) * q;
-      toGroup(a.to, a.channel, q);
+      forEachHop(a, [&](Index from, Index to) {
+        const double q = dF * (T[from] - T[to]);
+        out[to] += q;
+        if (transient) acc[a.channel] += nodeWeight(to) * q;
+        toGroup(to, a.channel, q);
+      });
     }
     for (std::size_t k = 0; k < network_.exchanges.size(); ++k) {
       const BoundaryExchange& e = network_.exchanges[k];

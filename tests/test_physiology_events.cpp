@@ -75,14 +75,15 @@ double arterialFlowInto(const Body& body, const std::string& segment, int layer,
   system.modulatorValues(t, y, mods);
   body.setInterval(0);
   double flow = 0.0;
-  for (const Advection& a : n.advections) {
-    if (std::find(m.arterial.begin(), m.arterial.end(), a.from) == m.arterial.end()) continue;
-    if (a.to < m.offset || a.to >= m.offset + static_cast<Index>(m.nz * m.nr)) continue;
-    if (m.layer[static_cast<std::size_t>((a.to - m.offset) % static_cast<Index>(m.nr))] != layer) continue;
-    double F = a.flowCapacity;
-    for (Index p = a.partsBegin; p < a.partsEnd; ++p) F += n.flowParts[p].coefficient * mods[n.flowParts[p].modulator];
-    flow += F / rhoC;
-  }
+  for (const Advection& a : n.advections)
+    forEachHop(a, [&](Index from, Index to) {
+      if (std::find(m.arterial.begin(), m.arterial.end(), from) == m.arterial.end()) return;
+      if (to < m.offset || to >= m.offset + static_cast<Index>(m.nz * m.nr)) return;
+      if (m.layer[static_cast<std::size_t>((to - m.offset) % static_cast<Index>(m.nr))] != layer) return;
+      double F = a.flowCapacity;
+      for (Index p = a.partsBegin; p < a.partsEnd; ++p) F += n.flowParts[p].coefficient * mods[n.flowParts[p].modulator];
+      flow += F / rhoC;
+    });
   return flow;
 }
 

@@ -612,9 +612,11 @@ TEST_CASE("Total arterial flow equals the sum over copies of perfusion and shunt
   for (const Advection& a : n.advections) {
     double flow = a.flowCapacity;
     for (Index p = a.partsBegin; p < a.partsEnd; ++p) flow += n.flowParts[p].coefficient * modulators[n.flowParts[p].modulator];
-    const double w = nodeWeight(n, a.to) * flow;  // per copy of the receiving node
-    in[a.to] += w;
-    out[a.from] += w;
+    forEachHop(a, [&](Index from, Index to) {
+      const double w = nodeWeight(n, to) * flow;  // per copy of the receiving node
+      in[to] += w;
+      out[from] += w;
+    });
   }
   double worst = 0.0;
   for (Index i = 0; i < n.nodes.size(); ++i)
@@ -793,7 +795,7 @@ convection = 10
   const Network& n = body->network();
   std::vector<int> terms(n.nodes.size(), 0);
   for (const Conductance& c : n.conductances) ++terms[c.a], ++terms[c.b];
-  for (const Advection& a : n.advections) ++terms[a.to], ++terms[a.from];
+  for (const Advection& a : n.advections) forEachHop(a, [&](Index from, Index to) { ++terms[to], ++terms[from]; });
   for (const BoundaryExchange& e : n.exchanges) ++terms[e.node];
   for (const SurfaceFace& f : n.faces) ++terms[f.node];
   std::vector<std::string> isolated;
