@@ -194,6 +194,13 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
     if (w.capacity > 0.0 && dt > 0.0)  // the first observation after the start (a sweep's last output): rectangle
       w.stored += (w.lastSource < 0.0 ? source : 0.5 * (w.lastSource + source)) * dt / w.capacity;
     w.lastSource = source;
+    if (steady_) {  // after a steady start: what the change of the heat-flow error can have stored
+      if (w.startLoss < 0.0) w.startLoss = n.balanced;
+      const double change = (gridError_ + w.signalError) * std::abs(n.balanced - w.startLoss);
+      if (w.capacity > 0.0 && dt > 0.0)
+        w.changeStored += (w.lastChange < 0.0 ? change : 0.5 * (w.lastChange + change)) * dt / w.capacity;
+      w.lastChange = change;
+    }
     if (!enabled) continue;
     double signal = 0.0;
     for (auto [node, share] : head.signal) signal += share * y[node];
@@ -239,8 +246,15 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
     const Controller& c = net.controllers[w.control];
     const double eps = gridError_ + w.signalError;
     double shift = eps * n.balanced / stiffness[w.loop];  // dT of the signal [K], quasi-static
-    // From a uniform start: at most what the heat-flow error can have stored (a steady start has it in full).
+    const double quasiStatic = shift;
+    // From a uniform start: at most what the heat-flow error can have stored. A steady start has the shift of its
+    // first observation in full, and from there at most what the change of the error can have stored.
     if (!steady_) shift = std::min(shift, w.stored);
+    else {
+      Watched& m = controllers_[i];
+      if (m.startShift < 0.0) m.startShift = shift;
+      shift = std::min(shift, m.startShift + m.changeStored);
+    }
     // The storage transient since a start from a uniform temperature: sum_g E_g(t) Q_g(t) / C (weighted copies).
     double storage = 0.0, worst = 0.0;
     StorageTransientError worstLayer;
@@ -275,6 +289,7 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
     e.gridError = eps;
     e.error = error;
     e.magnification = eps > 0.0 ? n.gain * eps * n.balanced / stiffness[w.loop] / floor / eps : 0.0;
+    e.capped = shift < quasiStatic;
     e.storageError = n.gain * storage / floor;
     e.segment = worstSegment;
     e.layer = worstLayer.layer;
@@ -299,9 +314,10 @@ std::vector<std::string> ControlGridWatch::warnings() const {
     const double quasiStatic = e.error - e.storageError;
     std::string text = fmt::format(
         "grid: controller {}: its output {:.3g} at t = {:g} s balances {:.3g} W lost by {} with {:.3g} W it carries "
-        "(magnification {:.3g}): the grid's estimated {:.2g} % error in heat flows and in the signal makes an estimated {:.2g} % error "
+        "(magnification {:.3g}{}): the grid's estimated {:.2g} % error in heat flows and in the signal makes an estimated {:.2g} % error "
         "in this output (more than {:g} %)",
         e.controller, e.output, e.time, e.balanced, controllers_[i].scopeName, e.carried, e.magnification,
+        e.capped ? " at a steady balance; the signal's shift capped by the heat the error can have stored by then" : "",
         100.0 * e.gridError, 100.0 * e.error, 100.0 * limit_);
     if (e.storageError > 0.0) {
       const SegmentSpec& seg = spec.segments.at(e.segment);

@@ -27,6 +27,10 @@
 //!     to its surroundings since the start is off by E_g(t) (models/grid.hpp storageTransientError, the
 //!     penetration rule at time t, coat included), so the scope's stored heat by sum_g E_g Q_g, and the signal by
 //!     that over C.
+//! After a steady start the signal starts with its quasi-static shift s_0 and can move from it only by what the
+//! change of the heat-flow error stores, int eps |L - L_0| dt / C: the shift is capped by s_0 plus that (found in a
+//! new-user trial: a swimmer's shunts were warned of at 140 % at the output on the instant it entered 6 degC water,
+//! where the body loses 791 W but no signal has moved yet; 9 % with outputs a minute later).
 //! The output's error is |g| (min(dT_s, int eps L dt / C) + sum_g E_g Q_g / C) / max(|u|, floor); the warning
 //! names the layer that carries the storage term and the radial cells that would bring it below half the limit.
 //!
@@ -65,7 +69,8 @@ class ControlGridWatch {
     double output = 0.0;         //!< u there [1]
     double balanced = 0.0;       //!< L, heat lost by its scope [W]
     double carried = 0.0;        //!< H, heat its output carries [W]
-    double magnification = 0.0;  //!< e_u / eps [1]
+    double magnification = 0.0;  //!< e_u / eps [1], quasi-static
+    bool capped = false;         //!< the signal's shift was capped by the heat stored (uniform or steady start)
     double gridError = 0.0;      //!< eps [1]
     double error = 0.0;          //!< e_u, estimated relative error of the output [1]
     double storageError = 0.0;   //!< the part of e_u from the storage transient [1]
@@ -98,6 +103,11 @@ class ControlGridWatch {
     double capacity = 0.0;         //!< heat capacity of the scope, copies weighted [J/K]
     double stored = 0.0;           //!< int eps L dt / C so far [K]
     double lastSource = -1.0;      //!< eps L at the last observation [W] (-1: none yet)
+    // A steady start: the shift it starts with, then only what the change of the heat-flow error can store.
+    double startLoss = -1.0;       //!< L at the first observation [W] (-1: none yet)
+    double changeStored = 0.0;     //!< int eps |L - L_0| dt / C so far [K]
+    double lastChange = -1.0;      //!< eps |L - L_0| at the last observation [W]
+    double startShift = -1.0;      //!< quasi-static shift when the output was first unclamped [K] (-1: not yet)
   };
   double effectiveGain(const Watched& w) const;
 
