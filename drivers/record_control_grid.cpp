@@ -154,6 +154,14 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
   if (std::all_of(flows.begin(), flows.end(), [](double f) { return f == 0.0; })) return;  // flows not computed
   start(t);
   const double dt = t - last_;
+  // The latest step of the timeline (an event without a ramp) in (last output, t]: the losses jump there, so the
+  // change of the heat-flow error since a steady start is integrated as the last output's value up to the step and
+  // this output's after it, not by the trapezoid across the jump (which credited half an interval of the new loss to
+  // the output on the step's own instant, and so made the estimate depend on the output interval).
+  double step = -1.0;
+  for (const EventSpec& e : body_.spec().events)
+    if (e.ramp == 0.0 && e.at > last_ && e.at <= t) step = std::max(step, e.at);
+  const double previous = last_;
   last_ = t;
   system_.modulatorValues(t, y, modulators_);
   std::vector<char> internal(channels, 0);
@@ -198,7 +206,9 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
       if (w.startLoss < 0.0) w.startLoss = n.balanced;
       const double change = (gridError_ + w.signalError) * std::abs(n.balanced - w.startLoss);
       if (w.capacity > 0.0 && dt > 0.0)
-        w.changeStored += (w.lastChange < 0.0 ? change : 0.5 * (w.lastChange + change)) * dt / w.capacity;
+        w.changeStored += (w.lastChange < 0.0 ? change * dt
+                           : step >= 0.0    ? w.lastChange * (step - previous) + change * (t - step)
+                                            : 0.5 * (w.lastChange + change) * dt) / w.capacity;
       w.lastChange = change;
     }
     if (!enabled) continue;

@@ -30,7 +30,8 @@
 //! After a steady start the signal starts with its quasi-static shift s_0 and can move from it only by what the
 //! change of the heat-flow error stores, int eps |L - L_0| dt / C: the shift is capped by s_0 plus that (found in a
 //! new-user trial: a swimmer's shunts were warned of at 140 % at the output on the instant it entered 6 degC water,
-//! where the body loses 791 W but no signal has moved yet; 9 % with outputs a minute later).
+//! where the body loses 791 W but no signal has moved yet; 9 % with the cap, a minute later). A step of the timeline
+//! between two outputs counts from its own time: the last output's |L - L_0| up to it, the next one's after it.
 //! The output's error is |g| (min(dT_s, int eps L dt / C) + sum_g E_g Q_g / C) / max(|u|, floor); the warning
 //! names the layer that carries the storage term and the radial cells that would bring it below half the limit.
 //!

@@ -246,7 +246,7 @@ TEST_CASE("After a steady start, a step of the surroundings moves the estimate o
   std::printf("[control_grid] furred trunk, steady start, cold front at 30 min: shivering %.2f %% off its 4x value at "
               "worst, estimated %.2f %% at t = %g s (quasi-static there %.2f %%)\n",
               100.0 * measured, 100.0 * e.error, e.time, 100.0 * quasiStatic);
-  // Measured 2026-12-04: 2.51 % off 4x at worst; estimated 4.07 % at 2400 s. Without the cap the worst estimate was
+  // Measured 2026-12-04: 2.51 % off 4x at worst; estimated 3.90 % at 2400 s. Without the cap the worst estimate was
   // the quasi-static one at the front's own output, 1800 s: 5.96 % (2.4x the measured error).
   REQUIRE(e.observed);
   CHECK(e.error >= measured);        // still an upper estimate
