@@ -252,7 +252,7 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
   for (std::size_t i = 0; i < controllers_.size(); ++i) {
     const Now& n = now[i];
     if (!n.active) continue;
-    const Watched& w = controllers_[i];
+    Watched& w = controllers_[i];
     const Controller& c = net.controllers[w.control];
     const double eps = gridError_ + w.signalError;
     double shift = eps * n.balanced / stiffness[w.loop];  // dT of the signal [K], quasi-static
@@ -261,9 +261,8 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
     // first observation in full, and from there at most what the change of the error can have stored.
     if (!steady_) shift = std::min(shift, w.stored);
     else {
-      Watched& m = controllers_[i];
-      if (m.startShift < 0.0) m.startShift = shift;
-      shift = std::min(shift, m.startShift + m.changeStored);
+      if (w.startShift < 0.0) w.startShift = shift;
+      shift = std::min(shift, w.startShift + w.changeStored);
     }
     // The storage transient since a start from a uniform temperature: sum_g E_g(t) Q_g(t) / C (weighted copies).
     double storage = 0.0, worst = 0.0;
