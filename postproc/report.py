@@ -70,9 +70,11 @@ def parse_window(res: Results, text: str | None) -> tuple[float, float]:
     t_first, t_last = float(res.time[0]), float(res.time[-1])
     if text is None:
         return t_first, t_last
-    parts = text.split(",")
+    # t0,t1 or t0:t1 (the form of thermorph sweep --window): one separator; a time holds neither.
+    parts = text.split(",") if "," in text else text.split(":")
     if len(parts) != 2:
-        raise ArgumentError(f"--window {text!r}: expected two times t0,t1 (s), e.g. 600,3600 or 10min,1h")
+        raise ArgumentError(f"--window {text!r}: expected two times t0,t1 (s), e.g. 600,3600 or 10min,1h "
+                            f"(or t0:t1, as thermorph sweep --window)")
     t0, t1 = parse_time(parts[0]), parse_time(parts[1])
     slack = 1e-9 * max(1.0, abs(t_last))
     if t0 < t_first - slack or t1 > t_last + slack:
@@ -182,6 +184,19 @@ def fmt_time(t: float | None) -> str:
     return f"{t:.6g} s"
 
 
+def exact_rows(b: WindowBudget) -> bool:
+    """True when the whole body and every segment row come from the solver's cumulative energies."""
+    return b.body.method == "cumulative" and all(r.method == "cumulative" for r in b.segments)
+
+
+def balance_residual(b: WindowBudget) -> float:
+    """Largest |sum of the channels − storage| of a row [W]: each row's energy conservation over the window."""
+    if "storage" not in b.channels:
+        return float("nan")
+    return max(abs(sum(r.means.get(c, 0.0) for c in b.channels if c != "storage") - r.means.get("storage", 0.0))
+               for r in b.rows())
+
+
 def budget_lines(b: WindowBudget, mass: float | None) -> list[str]:
     """The budget as text table lines."""
     width = max([len(r.label) for r in b.rows()] + [len("sum of rows − whole body"), 14]) + 2
@@ -194,9 +209,10 @@ def budget_lines(b: WindowBudget, mass: float | None) -> list[str]:
     if mass:
         lines.append("whole body [W/kg]".ljust(width)
                      + "".join(f"{fmt(b.body.means.get(c, 0.0) / mass):>12}" for c in b.channels))
-    parts = b.parts_sum()
-    lines.append("sum of rows − whole body".ljust(width)
-                 + "".join(f"{fmt(parts[c] - b.body.means.get(c, 0.0)):>12}" for c in b.channels))
+    if not exact_rows(b):  # exact rows and a pool defined as their difference: zero by construction, not shown
+        parts = b.parts_sum()
+        lines.append("sum of rows − whole body".ljust(width)
+                     + "".join(f"{fmt(parts[c] - b.body.means.get(c, 0.0)):>12}" for c in b.channels))
     if b.t1 > b.t0:
         lines.append("whole body [kJ]".ljust(width)
                      + "".join(f"{fmt(b.body.means.get(c, 0.0) * (b.t1 - b.t0) / 1e3):>12}" for c in b.channels))
@@ -316,18 +332,26 @@ def _report_window(res: Results, b: WindowBudget, t0: float, t1: float, threshol
       + " by channel [W], positive into the body")
     for line in budget_lines(b, mass):
         p(line)
-    p("Segment rows: all copies of the segment (×N); trapezoidal rule on the flows at the output times,")
-    p("  linearly interpolated at window ends between outputs.")
+    if exact_rows(b):
+        p("Segment rows: all copies of the segment (×N); exact, from /segments/NAME/cumulative_heat.")
+    else:
+        p("Segment rows: all copies of the segment (×N); trapezoidal rule on the flows at the output times,")
+        p("  linearly interpolated at window ends between outputs (no cumulative energies in this file).")
     if b.body.method == "cumulative":
         p("Whole body: exact, from /body/cumulative_heat (energy difference / window length; storage = the")
         p("  channel energies minus the change of /body/energy_balance_error).")
     else:
         p("Whole body: trapezoidal rule on /body/heat_flow (no cumulative energies for this window).")
     if b.pool is not None:
-        p("Blood pool: whole-body flows minus the sum over all segments (trapezoidal rule).")
+        p("Blood pool: whole-body flows minus the sum over all segments"
+          + (" (exact)." if exact_rows(b) else " (trapezoidal rule)."))
     if b.others is not None:
         p(f"{b.others.label}: the segments not named in --segments, summed.")
-    if b.body.method == "cumulative":
+    if exact_rows(b):
+        residual = balance_residual(b)
+        if np.isfinite(residual):
+            p(f"Energy conservation: the largest |sum of channels − storage| of a row is {residual:.3g} W.")
+    elif b.body.method == "cumulative":
         p("'sum of rows − whole body' is the error of the trapezoidal rule at this output interval.")
     else:
         p("'sum of rows − whole body' is not zero where the segment flows in this file do not add up to the "
