@@ -30,7 +30,7 @@ CLI::App* addRefineSubcommand(CLI::App& app) {
                      "temperatures, every segment's budget and mean temperature)")
       ->take_all()
       ->allow_extra_args(false);
-  refine->add_option("--window", options.window, "Averaging window START:END, e.g. \"30 min:1 h\"; default: the whole run");
+  refine->add_option("--window", options.window, "Averaging window START:END (or START,END), e.g. \"30 min:1 h\"; default: the whole run");
   refine->add_option("--csv", csvPath, "Also write the table as CSV to this file");
   return refine;
 }

@@ -30,7 +30,7 @@ CLI::App* addSweepSubcommand(CLI::App& app, SweepOptions& o) {
                     "(segments.*.heat_flow.convection); time_to:QUANTITY<VALUE adds a threshold time. Default: all")
       ->take_all()
       ->allow_extra_args(false);
-  sweep->add_option("--window", o.window, "Averaging window START:END, e.g. \"30 min:1 h\"; default: the whole run");
+  sweep->add_option("--window", o.window, "Averaging window START:END (or START,END), e.g. \"30 min:1 h\"; default: the whole run");
   sweep->add_flag("--steady", o.steady, "Steady state of every run (KINSOL) instead of the transient run");
   sweep->add_option("-j,--jobs", o.jobs, "Worker threads, up to 1024; 0 or omitted: all cores. Under mpirun one run per rank")
       ->check(CLI::Range(0, 1024));

@@ -36,6 +36,26 @@ double interpolate(double t0, double v0, double t1, double v1, double t) {
 
 }  // namespace
 
+MetricWindow parseMetricWindow(const std::string& text) {
+  // One separator, ':' or ',' (report.py writes 10min,1h; a time never holds either).
+  const std::size_t colon = text.find(':'), comma = text.find(',');
+  const std::size_t at = colon != std::string::npos ? colon : comma;
+  const bool single = at != std::string::npos && text.find_first_of(":,", at + 1) == std::string::npos;
+  if (!single || at == 0)
+    throw CaseError(fmt::format("--window {}: expected START:END (or START,END) with units, e.g. \"30 min:1 h\" (END may "
+                                "be empty: the end of the run)",
+                                text));
+  MetricWindow window;
+  try {
+    window.start = parseQuantity(text.substr(0, at), "s");
+    const std::string end = text.substr(at + 1);
+    window.end = end.find_first_not_of(" \t") == std::string::npos ? -1.0 : parseQuantity(end, "s");
+  } catch (const UnitError& e) {
+    throw CaseError(fmt::format("--window {}: {}", text, e.what()));
+  }
+  return window;
+}
+
 Threshold parseThreshold(const std::string& text) {
   const std::string prefix = "time_to:";
   Threshold th;

@@ -22,6 +22,10 @@ struct MetricWindow {
   double end = -1.0;
 };
 
+//! `--window` text: "START:END" or "START,END" (report.py's form), each a time with a unit, END may be empty (the
+//! end of the run). CaseError naming the option otherwise.
+MetricWindow parseMetricWindow(const std::string& text);
+
 //! "time_to:QUANTITY<VALUE": first time a temperature quantity crosses a threshold.
 struct Threshold {
   std::string text;      //!< as given, spaces removed (the column name)

@@ -393,19 +393,7 @@ static SweepPlan finishSweepPlan(SweepPlan plan, const SweepOptions& options, co
     }
   }
 
-  if (!options.window.empty()) {
-    std::vector<std::string> ends = split(options.window, ':');
-    if (ends.size() != 2 || ends[0].empty())
-      throw CaseError(fmt::format("--window {}: expected START:END with units, e.g. \"30 min:1 h\" (END may be empty: "
-                                  "the end of the run)",
-                                  options.window));
-    try {
-      plan.window.start = parseQuantity(ends[0], "s");
-      plan.window.end = ends[1].empty() ? -1.0 : parseQuantity(ends[1], "s");
-    } catch (const UnitError& e) {
-      throw CaseError(fmt::format("--window {}: {}", options.window, e.what()));
-    }
-  }
+  if (!options.window.empty()) plan.window = parseMetricWindow(options.window);
 
   // Metric columns from the base body; selectors keep a subset; thresholds are always kept.
   std::vector<std::string> selectors;

@@ -711,12 +711,12 @@ void checkOverriddenByTimeline(const TableView& top, Case& c, const std::vector<
                                        : "an [[events]] entry";
         if (e.at <= 0.0)
           throw TimelineOverrideError(fmt::format(
-              "{}: {}: the value given on the command line ({}) would never take effect: {} sets {} from t = 0 s. "
+              "{}: {}: the value given as an override ({}: --set, a sweep or fit parameter, or set= in Python) would never take effect: {} sets {} from t = 0 s. "
               "Change the value in the timeline instead (its events.N.environment.{} or the weather file's column), "
               "or remove it there",
               c.sourceFile, key, o.substr(o.find('=') + 1), by, name, name));
         c.warnings.push_back(fmt::format(
-            "{} = {} (command line) holds until t = {:g} s, when {} changes it (the timeline takes over from "
+            "{} = {} (an override: --set, a sweep or fit parameter, or set= in Python) holds until t = {:g} s, when {} changes it (the timeline takes over from "
             "its first change)",
             key, o.substr(o.find('=') + 1), e.at, by));
         break;

@@ -343,3 +343,16 @@ TEST_CASE("sweep: a window end between outputs that bracket a step of the timeli
     CHECK(std::abs(interpolated - exact) > 1e-3 * std::abs(exact));  // the warning is not idle
   }
 }
+
+TEST_CASE("sweep: --window takes START:END or report.py's START,END; anything else names the option", "[sweep]") {
+  // Both separators give the same seconds (SI Brochure 2019, Table 8: 1 min = 60 s, 1 h = 3600 s).
+  const MetricWindow colon = parseMetricWindow("30 min:1 h"), comma = parseMetricWindow("30min,1h");
+  CHECK(colon.start == 1800.0);
+  CHECK(colon.end == 3600.0);
+  CHECK(comma.start == colon.start);
+  CHECK(comma.end == colon.end);
+  CHECK(parseMetricWindow("10 min:").end == -1.0);  // to the end of the run
+  CHECK(parseMetricWindow("600,").end == -1.0);
+  for (const char* bad : {"30 min", ":1 h", "1:2:3", "1,2:3", "soon:1 h"})
+    CHECK_THROWS_WITH(parseMetricWindow(bad), Catch::Contains("--window"));
+}
