@@ -18,7 +18,9 @@
   installed entry points (thermorph-figures, thermorph-export, thermorph-report, thermorph-sweep-figure)
   run from DIR with the checkout out of reach.
 - With THERMORPH: a step of the surroundings between two outputs is drawn as a vertical jump at the step's time
-  (the quadruped with a step 15 -> -5 degC at 5 min, 2-min outputs), a ramp as a line (forcing and temperatures).
+  and a ramp whose ends fall between outputs from its own start to its own end (the quadruped with a step 15 -> -5
+  degC at 5 min and a ramp from 21 to 29 min, 2-min outputs; forcing and temperatures), and forcings are drawn only
+  where they act (the quadruped swimming from 10 to 20 min, all in water and with its head above water).
 Exits 1 on any failure.
 """
 
@@ -312,28 +314,48 @@ def check_install(tmp: Path, full: Path, sweep_path: Path):
     check((tmp / "inst" / "budget.png").is_file() and (tmp / "inst" / "t.csv").is_file(), "installed outputs")
 
 
+def _drawn_at(x, y, t):
+    """Value of a drawn polyline (x ascending, a repeated x a vertical jump) at t, away from its jumps; NaN where
+    the line is not drawn (a NaN end) or t lies outside it."""
+    for k in range(len(x) - 1):
+        if x[k] <= t <= x[k + 1] and x[k + 1] > x[k]:
+            return y[k] + (y[k + 1] - y[k]) * (t - x[k]) / (x[k + 1] - x[k])
+    return np.nan
+
+
 def check_steps(tmp: Path, exe: str):
-    """A step of the surroundings between two outputs is drawn as a vertical jump at the step's time, a ramp as a
-    line. The quadruped with a step 15 -> -5 degC at 5 min, 2-min outputs (the step between the outputs at 4 and
-    6 min), and a 10-min ramp -5 -> -15 degC from 20 min: the values the case sets (--set below) are the reference.
-    Read from the plotted numbers (.data.csv) of the forcing figure and of the temperatures figure's surface panel."""
+    """A step of the surroundings between two outputs is drawn as a vertical jump at the step's time, a ramp from its
+    own start to its own end. The quadruped with a step 15 -> -5 degC at 5 min and a ramp -5 -> -15 degC from 21 to
+    29 min, 2-min outputs: the step and both ends of the ramp fall between outputs (4|6, 20|22, 28|30 min). The
+    reference is the timeline the case sets (--set below; README: steps at their times, ramps linear): the drawn
+    line must equal it at every 10 s away from the step (an earlier version drew the ramp's corners at the outputs
+    around them, 0.625 K off at 21 and 29 min). Read from the plotted numbers (.data.csv) of the forcing figure and
+    of the temperatures figure's surface panel. Common practice, no source."""
     from thermorph_post import figures
     h5 = tmp / "step.h5"
     events = ('events=[{ at = "5 min", environment = { temperature = "-5 degC" } }, '
-              '{ at = "20 min", ramp = "10 min", environment = { temperature = "-15 degC" } }]')
+              '{ at = "21 min", ramp = "8 min", environment = { temperature = "-15 degC" } }]')
     proc = subprocess.run([exe, "run", str(ROOT / "cases" / "quadruped.toml"), "--set", events,
                            "--set", 'run.output_interval="2 min"', "-o", str(h5)], capture_output=True, text=True)
     check(proc.returncode == 0, f"quadruped with a step: exit {proc.returncode}\n{proc.stderr[-800:]}")
     if proc.returncode != 0:
         return
+
+    def exact(t):   # the case's timeline [degC] at t [s]
+        if t < 300.0:
+            return 15.0
+        if t < 1260.0:
+            return -5.0
+        return -5.0 - 10.0 * min(t - 1260.0, 480.0) / 480.0
+
     out = tmp / "steps"
     code = figures.main([str(h5), "--out", str(out), "--only", "temperatures,forcing", "--formats", "png"])
     check(code == 0, f"figures on the stepped run: exit {code}")
-    for stem, panel, series in (("forcing", "forcing: temperatures of the surroundings", "air or water"),
-                                ("temperatures", "segment mean surface temperatures", "surroundings")):
+    for stem, panel in (("forcing", "forcing: temperatures of the surroundings"),
+                        ("temperatures", "segment mean surface temperatures")):
         with open(out / f"{stem}.data.csv", newline="") as fh:
-            rows = [r for r in csv.DictReader(fh) if r["panel"] == panel and r["series"].startswith(series)]
-        what = f"{stem}: {series}"
+            rows = [r for r in csv.DictReader(fh) if r["panel"] == panel and r["series"].split(" (")[0] == "air"]
+        what = f"{stem}: air"
         check(bool(rows) and all(r["x_label"] == "Time (min)" for r in rows), f"{what}: no rows or not in minutes")
         if not rows:
             continue
@@ -342,13 +364,79 @@ def check_steps(tmp: Path, exe: str):
         check(bool(np.all(np.diff(x) >= 0.0)), f"{what}: times not in order")
         at = np.flatnonzero(x == 300.0)
         check(len(at) == 2 and list(y[at]) == [15.0, -5.0], f"{what}: no jump 15 -> -5 degC at 300 s: {y[at]}")
-        check(bool(np.all(y[x < 300.0] == 15.0)), f"{what}: not 15 degC before the step: {y[x < 300.0]}")
-        check(bool(np.all((y[x > 300.0] <= -5.0))), f"{what}: above -5 degC after the step: {y[x > 300.0]}")
         check(not np.any((y > -5.0) & (y < 15.0)), f"{what}: values between the two sides of the step")
-        ramp = (x >= 1200.0) & (x <= 1800.0)   # outputs at 20, 22, ..., 30 min on the ramp line, no jump added
-        check(int(ramp.sum()) == 6 and len(np.unique(x[ramp])) == 6, f"{what}: ramp points {x[ramp]}")
-        check(bool(np.allclose(y[ramp], -5.0 - 10.0 * (x[ramp] - 1200.0) / 600.0, rtol=0.0, atol=1e-9)),
-              f"{what}: ramp not linear -5 -> -15 degC: {y[ramp]}")
+        probe = [t for t in np.arange(0.0, 3600.0 + 1.0, 10.0) if t != 300.0]
+        worst = max(abs(_drawn_at(x, y, t) - exact(t)) for t in probe)
+        check(worst < 1e-9, f"{what}: drawn line off the case's timeline by {worst:.3g} K (ramp corners at 21 and "
+                            f"29 min: {_drawn_at(x, y, 1260.0):.6g}, {_drawn_at(x, y, 1740.0):.6g} degC)")
+
+
+def check_immersion(tmp: Path, exe: str):
+    """Forcings drawn only where they act. The quadruped swims from 10 to 20 min (medium water, 10 degC, 0.2 m/s;
+    back to air at 15 degC after), 1-min outputs. Every segment in water: radiation, sun and evaporation act in air
+    only and the air's temperature and wind touch nothing (README, "The medium and immersion"), so the air, wind,
+    radiant, sky and humidity lines have no point strictly inside the swim, the water and current lines no point
+    outside it, the swim is shaded with a legend entry, and the footer says on what each acts. With the head held
+    above water (segments.1.surface.immersion = never) the air lines go on through the swim (they act on the head)
+    and the footer says so. Common practice, no source."""
+    from thermorph_post import figures
+    from thermorph_post.results import Results
+    swim = ('events=[{ at = "10 min", environment = { medium = "water", temperature = "10 degC", speed = "0.2 m/s" } },'
+            ' { at = "20 min", environment = { medium = "air", temperature = "15 degC", speed = "0 m/s" } }]')
+    for variant, extra in (("all in water", []), ("head above water", ["--set", 'segments.1.surface.immersion="never"'])):
+        h5 = tmp / f"swim{len(extra)}.h5"
+        proc = subprocess.run([exe, "run", str(ROOT / "cases" / "quadruped.toml"), "--set", swim,
+                               "--set", 'run.output_interval="1 min"', *extra, "-o", str(h5)],
+                              capture_output=True, text=True)
+        check(proc.returncode == 0, f"swimming quadruped ({variant}): exit {proc.returncode}\n{proc.stderr[-800:]}")
+        if proc.returncode != 0:
+            continue
+        with Results(h5) as res:
+            fig = figures.forcing_figure(res)
+            temps = figures.temperatures_figure(res)
+        lines = {ln.get_label(): ln for ax in fig.axes for ln in ax.get_lines() if not ln.get_label().startswith("_")}
+        footer = " ".join(fig.thermorph_footer.get_text().split())
+
+        def times(name):   # [s] of the drawn points of the first line whose label starts with `name`
+            ln = next((v for k, v in lines.items() if k.split(" (")[0] == name or name in k), None)
+            if ln is None:
+                return None
+            x, y = np.asarray(ln.get_xdata(), float) * 60.0, np.asarray(ln.get_ydata(), float)
+            return x[np.isfinite(y)]
+
+        for name in ("air", "radiant surroundings", "wind", "relative humidity"):
+            x = times(name)
+            if variant == "all in water":
+                check(x is not None and not np.any((x > 600.0) & (x < 1200.0)),
+                      f"{variant}: {name} drawn while every segment is in water: {x[(x > 600) & (x < 1200)] if x is not None else 'no line'}")
+                check(x is not None and np.any(x < 600.0) and np.any(x > 1200.0), f"{variant}: {name} not drawn in air")
+            elif name != "wind":   # wind: 0 m/s in air and the air above the swim still: its panel is left out
+                check(x is not None and np.any((x > 600.0) & (x < 1200.0)),
+                      f"{variant}: {name} not drawn during the swim though it acts on the head")
+        for name in ("water", "water current"):
+            x = times(name)
+            check(x is not None and x.size and x.min() >= 600.0 and x.max() <= 1200.0,
+                  f"{variant}: {name} drawn outside the swim: {x}")
+        spans = [p for ax in fig.axes for p in ax.patches if p.get_label().startswith("every segment in water")]
+        if variant == "all in water":
+            check(len(spans) == 1, f"{variant}: no legend entry for the shaded swim")
+            check("every segment while the medium is air; none (not drawn) while the medium is water" in footer,
+                  f"{variant}: footer does not say the air acts on nothing in water: {footer!r}")
+            check("none (not drawn) while the medium is air; every segment while the medium is water" in footer,
+                  f"{variant}: footer does not say where the water acts: {footer!r}")
+        else:
+            check(not spans, f"{variant}: swim shaded as every segment in water though the head is in air")
+            check("every segment while the medium is air; head while the medium is water" in footer,
+                  f"{variant}: footer does not name the head for the air during the swim: {footer!r}")
+            check("trunk, forelegs ×2, hindlegs ×2, tail, ears ×2 while the medium is water" in footer,
+                  f"{variant}: footer does not name the segments in the water: {footer!r}")
+        ax_s = next(ax for ax in temps.axes if ax.get_label() == "segment mean surface temperatures")
+        air = next((ln for ln in ax_s.get_lines() if ln.get_label() == "air"), None)
+        x = np.asarray(air.get_xdata(), float)[np.isfinite(np.asarray(air.get_ydata(), float))] * 60.0 \
+            if air is not None else np.array([])
+        inside = bool(np.any((x > 600.0) & (x < 1200.0)))
+        check(x.size and inside == (variant != "all in water"),
+              f"{variant}: temperatures figure's air line {'drawn' if inside else 'not drawn'} during the swim")
 
 
 def main() -> int:
@@ -358,6 +446,7 @@ def main() -> int:
         full = check_figures(tmp)
         if EXE:
             check_steps(tmp, EXE)
+            check_immersion(tmp, EXE)
         else:
             print("test_figures: no thermorph executable given (second argument): step drawing not checked")
         check_tidy(full, tmp)

@@ -27,7 +27,7 @@ from matplotlib.ticker import MaxNLocator
 
 from thermorph_post.budget import rank_segments, window_budget
 from thermorph_post.results import Results, ResultsError, faces_from_centres
-from thermorph_post.style import (BODY_STYLE, DEFAULT_STYLE, ENVIRONMENT_STYLE, FORMATS, LINE_CYCLE, MAP_COLOURS,
+from thermorph_post.style import (ALL_IN_WATER_SHADE, BODY_STYLE, DEFAULT_STYLE, ENVIRONMENT_STYLE, FORMATS, LINE_CYCLE, MAP_COLOURS,
                                   MARKER_CYCLE, PNG_DPI, STYLES, add_footer, body_flow_scale, case_title,
                                   channel_styles, finish, format_time, legend_outside, length_scale, letters,
                                   line_kwargs, line_style, negligible, new_figure, outline, panel_title, rc, save,
@@ -116,13 +116,15 @@ def temperatures_figure(res: Results, units: str = "physiology", segments=None, 
                 st = segment_style(res, seg.name)
                 ax_t.plot(t, temperature_in(seg.mean_tissue_temperature(), units), label=seg.name, **st, **kw)
                 ax_s.plot(t, temperature_in(seg.mean_surface_temperature(), units), label=seg.name, **st, **kw)
-            env = res.environment()
-            for key, lab in (("temperature", "surroundings"), ("water_temperature", "water")):
-                if key in env and env[key].units == "degC":
-                    colour, ls = ENVIRONMENT_STYLE[key]
-                    t_env, v_env = res.environment_line(key)   # steps of the timeline drawn as jumps
-                    ax_s.plot(t_env / scale[0], temperature_in(v_env, units), color=colour, ls=ls, lw=1.2, label=lab,
-                              **kw)
+            # The air and the water where they act (surroundings_lines: steps and ramps at their own times).
+            surroundings = [ln for ln in surroundings_lines(res, keys=("air", "water")) if ln["units"] == "degC"
+                            and ln["key"] in ("air", "water", "temperature", "water_temperature")]
+            for ln in surroundings:
+                if np.any(np.isfinite(ln["v"])):
+                    colour, ls = ENVIRONMENT_STYLE[ln["key"]]
+                    label = "surroundings" if ln["key"] == "temperature" else ln["label"]
+                    ax_s.plot(ln["t"] / scale[0], temperature_in(ln["v"], units), color=colour, ls=ls, lw=1.2,
+                              label=label, **kw)
             ax_t.set_ylabel(f"Tissue ({tu})")
             panel_title(ax_t, next(letter), "Segments: mean tissue temperature (coat excluded)")
             ax_s.set_ylabel(f"Surface ({tu})")
@@ -139,7 +141,12 @@ def temperatures_figure(res: Results, units: str = "physiology", segments=None, 
             ax.set_xlabel("")
         fig.axes[-1].set_xlabel(f"Time ({scale[1]})")
         suptitle(fig, f"{title_prefix(res)}{case_title(res)}: temperatures")
-        add_footer(fig, [n for n in [_selection_note(len(segs), left_out)] if n], caution)
+        notes = [n for n in [_selection_note(len(segs), left_out)] if n]
+        if segs:
+            mixed = [ln for ln in surroundings if ln["targets"] is not None and any(
+                _segments_text(res, names) != "every segment" for names in ln["targets"].values())]
+            notes += acting_notes(res, mixed)
+        add_footer(fig, notes, caution)
         finish(fig)
     return fig
 
@@ -410,13 +417,120 @@ def maps(results, out_dir, units: str = "physiology", segments=None, times=None,
 
 
 # ---- figure: forcing (the surroundings) --------------------------------------------------
-#: Readable names of the /environment series (thermorph's results layout).
+#: Readable names of the /environment series (thermorph's results layout), for files without a readable case.
 ENVIRONMENT_NAMES = {
     "temperature": "air or water", "air_temperature": "air", "water_temperature": "water",
     "radiant_temperature": "radiant surroundings", "sky_temperature": "sky", "substrate_temperature": "substrate",
     "speed": "wind or current", "air_speed": "wind", "water_speed": "water current",
     "solar_irradiance": "solar irradiance", "relative_humidity": "relative humidity",
 }
+#: The surroundings as drawn, in order: key -> (label, units, kind of forcing (Results.forcing_targets), the stored
+#: /environment series by the medium's fluid). The medium's `temperature` and `speed` are the air's while the
+#: medium is air and the water's while it is water; `air_*` and `water_*` describe the other fluid.
+SURROUNDINGS = {
+    "air": ("air", "degC", "air", {"air": "temperature", "water": "air_temperature"}),
+    "water": ("water", "degC", "water", {"water": "temperature", "air": "water_temperature"}),
+    "radiant_temperature": ("radiant surroundings", "degC", "radiant", None),
+    "sky_temperature": ("sky", "degC", "sky", None),
+    "substrate_temperature": ("substrate", "degC", "substrate", None),
+    "wind": ("wind", "m s-1", "air", {"air": "speed", "water": "air_speed"}),
+    "water current": ("water current", "m s-1", "water", {"water": "speed", "air": "water_speed"}),
+    "solar_irradiance": ("solar irradiance", "W m-2", "sun", None),
+    "relative_humidity": ("relative humidity", "1", "humidity", None),
+}
+#: Kinds of forcing that act in air only (radiation, sun, evaporation, breathing).
+AIR_KINDS = ("air", "radiant", "sky", "sun", "humidity")
+
+
+def surroundings_lines(res: Results, keys=None) -> list[dict]:
+    """The surroundings as drawn, one dict per line: key, label, units, kind, t [s], v (in the series' units, NaN
+    where the forcing acts on no segment) and targets ({medium fluid: segments it acts on}, Results.forcing_targets;
+    None when the file has no readable case, and then each stored series is drawn as stored, everywhere).
+    Times are Results.timeline_knots (steps and ramps at their own times, Results.environment_line). `keys`:
+    a subset of SURROUNDINGS (default all, and any unknown stored series after them)."""
+    env = res.environment()
+    fluids = res.medium_fluids()
+    knots, before = res.timeline_knots()
+    if not fluids:
+        lines = []
+        for name in env:
+            t, v = res.environment_line(name)
+            lines.append(dict(key=name, label=ENVIRONMENT_NAMES.get(name, name), units=env[name].units, kind=None,
+                              t=t, v=v, targets=None))
+        return lines
+    medium = np.array([res.medium_fluid(t, b) for t, b in zip(knots.tolist(), before.tolist())])
+    drawn, used = [], set()
+    for key, (label, units, kind, sources) in SURROUNDINGS.items():
+        sources = sources or {"air": key, "water": key}
+        used.update(sources.values())
+        if (keys is not None and key not in keys) or not any(sources.get(f) in env for f in fluids):
+            continue   # not stored, or only for a medium the run never has (the water of a run in air)
+        targets = {f: res.forcing_targets(kind, f) for f in fluids}
+        v = np.full(knots.size, np.nan)
+        for f in fluids:
+            name = sources.get(f)
+            if name in env and env[name].units == units and targets[f]:
+                t_line, v_line = res.environment_line(name)
+                if t_line.shape == knots.shape:
+                    v[medium == f] = v_line[medium == f]
+        drawn.append(dict(key=key, label=label, units=units, kind=kind, t=knots, v=v, targets=targets))
+    if keys is None:   # stored series this module does not know: drawn as stored
+        for name in env:
+            if name not in used:
+                t, v = res.environment_line(name)
+                drawn.append(dict(key=name, label=name, units=env[name].units, kind=None, t=t, v=v, targets=None))
+    return drawn
+
+
+def _segments_text(res: Results, names: list[str]) -> str:
+    """'every segment' for the whole body, else the names."""
+    every = [n if res.segment_count(n) == 1 else f"{n} ×{res.segment_count(n)}" for n in res.segment_names()]
+    return "every segment" if names and names == every else ", ".join(names)
+
+
+def acting_notes(res: Results, lines: list[dict]) -> list[str]:
+    """Footer notes saying on which segments each drawn line acts (lines with equal targets together), and which
+    stored forcings act on no segment at all and are not drawn."""
+    fluids = res.medium_fluids()
+    groups: dict[str, list[str]] = {}
+    idle = []
+    for ln in lines:
+        if ln["targets"] is None:
+            continue
+        names = ln.get("names", [ln["label"]])
+        if not np.any(np.isfinite(ln["v"])):
+            idle += names
+            continue
+        texts = {f: _segments_text(res, ln["targets"][f]) for f in fluids}
+        if len(set(texts.values())) == 1:
+            where = {"water": " (in water)"}.get(ln["kind"], " (in air)" if ln["kind"] in AIR_KINDS[:4] else "")
+            desc = texts[fluids[0]] + (where if texts[fluids[0]] != "every segment" else "")
+        else:
+            desc = "; ".join(f"{texts[f] or 'none (not drawn)'} while the medium is {f}" for f in fluids)
+        groups.setdefault(desc, []).extend(names)
+    notes = [f"Acts on — {', '.join(names)}: {desc}." for desc, names in groups.items()]
+    if idle:
+        notes.append(f"Not drawn, acting on no segment: {', '.join(idle)}.")
+    return notes
+
+
+def all_in_water(res: Results) -> list[tuple[float, float]]:
+    """Intervals [s] during which every segment is in water (no segment in air), from the stored case."""
+    knots, before = res.timeline_knots()
+    spans, start = [], None
+    for t, b in zip(knots.tolist(), before.tolist()):
+        medium = res.medium_fluid(t, b)
+        wet = medium is not None and not res.forcing_targets("air", medium)
+        if wet and start is None:
+            start = t
+        elif not wet and start is not None:
+            spans.append((start, t))
+            start = None
+    if start is not None:
+        spans.append((start, float(knots[-1])))
+    return [(a, b) for a, b in spans if b > a]
+
+
 #: Panels of the forcing figure by the series' units: (title, axis label, factor to the axis unit).
 FORCING_PANELS = {
     "degC": ("Temperatures of the surroundings", "Temperature", 1.0),
@@ -426,24 +540,34 @@ FORCING_PANELS = {
 }
 
 
+#: Units of the forcing panels as written in legends and notes.
+FORCING_UNIT_TEXT = {"m s-1": "m/s", "W m-2": "W/m²", "1": "%"}
+
+
 def forcing_figure(res: Results, units: str = "physiology", style: str = DEFAULT_STYLE, caution: bool = True):
     """Figure of the surroundings over time from /environment: temperatures, speeds, sun and humidity, one
-    panel per quantity the file stores; None without /environment."""
+    panel per quantity, each line drawn only while it acts on some segment (surroundings_lines); intervals when
+    every segment is in water shaded; the footer says on which segments each acts. None without /environment."""
     style_of(style)
-    env = res.environment()
-    if not env:
+    if not res.environment():
         print(f"figures: {res.path}: no /environment group; forcing figure skipped", file=sys.stderr)
         return None
-    groups: dict[str, list[str]] = {}
-    for name, series in env.items():
-        groups.setdefault(series.units, []).append(name)
-    known = list(ENVIRONMENT_NAMES)
-    for names in groups.values():   # the medium first, then the others in a fixed order
-        names.sort(key=lambda n: (known.index(n) if n in known else len(known), n))
+    lines = surroundings_lines(res)
+    groups: dict[str, list[dict]] = {}
+    for ln in lines:
+        if np.any(np.isfinite(ln["v"])):
+            groups.setdefault(ln["units"], []).append(ln)
+    zero = []   # panels whose every line is zero throughout (no sun all run): named in the footer, not drawn
+    for unit in [u for u in groups if u != "degC"]:
+        if all(np.all(ln["v"][np.isfinite(ln["v"])] == 0.0) for ln in groups[unit]):
+            zero += [f"{ln['label']} 0 {FORCING_UNIT_TEXT.get(unit, unit)}" for ln in groups.pop(unit)]
+    if not groups:
+        print(f"figures: {res.path}: no forcing acts on any segment; forcing figure skipped", file=sys.stderr)
+        return None
     order = [u for u in FORCING_PANELS if u in groups] + sorted(u for u in groups if u not in FORCING_PANELS)
+    wet = all_in_water(res)
     scale = time_scale(res.duration)
-    t = res.time / scale[0]
-    kw = line_kwargs(len(t))
+    kw = line_kwargs(len(res.time))
     with rc(style):
         fig = new_figure(style, 0.8 * _panel_height(style) * len(order) + 1.0)
         axes = fig.subplots(len(order), 1, sharex=True, squeeze=False)[:, 0]
@@ -453,32 +577,49 @@ def forcing_figure(res: Results, units: str = "physiology", style: str = DEFAULT
             if unit == "degC":
                 ylabel = f"Temperature ({temperature_label(units)})"
             ax.set_label(f"forcing: {title.lower()}")
-            drawn = []   # [values, line, equal names]: a series equal to one drawn already joins its label
-            for k, name in enumerate(groups[unit]):
-                t_env, values = res.environment_line(name)   # steps of the timeline drawn as jumps
-                values = temperature_in(values, units) if unit == "degC" else factor * np.asarray(values, float)
-                twin = next((d for d in drawn if d[0].shape == values.shape and np.array_equal(d[0], values)), None)
+            drawn = []   # [values, line, names]: a series equal to one drawn already joins its label
+            for k, ln in enumerate(groups[unit]):
+                values = temperature_in(ln["v"], units) if unit == "degC" else factor * np.asarray(ln["v"], float)
+                twin = next((d for d in drawn if d[0].shape == values.shape
+                             and np.array_equal(d[0], values, equal_nan=True)), None)
                 if twin is not None:
-                    twin[2].append(ENVIRONMENT_NAMES.get(name, name))
-                    twin[1].set_label(f"{twin[1].get_label().split(' (same: ')[0]} (same: {', '.join(twin[2])})")
+                    twin[1].set_label(twin[1].get_label().split(" (same: ")[0])
+                    twin[2].append(ln)
+                    twin[1].set_label(f"{twin[1].get_label()} (same: {', '.join(x['label'] for x in twin[2][1:])})")
                     continue
-                colour, ls = ENVIRONMENT_STYLE.get(name, (LINE_CYCLE[k % len(LINE_CYCLE)], "-"))
-                line, = ax.plot(t_env / scale[0], values, color=colour, ls=ls, lw=1.2,
-                                label=ENVIRONMENT_NAMES.get(name, name), **kw)
-                drawn.append([values, line, []])
+                colour, ls = ENVIRONMENT_STYLE.get(ln["key"], (LINE_CYCLE[k % len(LINE_CYCLE)], "-"))
+                shown = values[np.isfinite(values)]
+                label = ln["label"]
+                if shown.size and np.all(shown == shown[0]):   # constant where drawn: its value in the legend (a
+                    axis_unit = temperature_label(units) if unit == "degC" else FORCING_UNIT_TEXT.get(unit, unit)
+                    label += f" ({shown[0]:.3g} {axis_unit})"   # 0.05 m/s current beside a 4 m/s wind reads as 0)
+                line, = ax.plot(ln["t"] / scale[0], values, color=colour, ls=ls, lw=1.2, label=label, **kw)
+                drawn.append([values, line, [ln]])
+            for _, _, same in drawn:
+                same[0]["names"] = [x["label"] for x in same]
+                for x in same[1:]:
+                    x["names"] = []
             ax.set_ylabel(ylabel)
             if unit == "1":
                 ax.set_ylim(0.0, 100.0)
             elif unit in ("m s-1", "W m-2"):   # speeds and irradiance are not negative: axis from zero
-                top = max(float(np.nanmax([np.nanmax(env[n].values) for n in groups[unit]])), 0.0)
+                top = max([float(np.nanmax(ln["v"])) for ln in groups[unit]] + [0.0])
                 ax.set_ylim(0.0, 1.15 * top if top > 0 else 1.0)
+            if wet and any(ln["kind"] in AIR_KINDS for ln in groups[unit]):
+                first = not any(getattr(a, "thermorph_wet", False) for a in axes)   # in the first such legend only
+                for k, (a, b) in enumerate(wet):
+                    ax.axvspan(a / scale[0], b / scale[0], **ALL_IN_WATER_SHADE,
+                               label="every segment in water: forcings of the air act on none, not drawn"
+                               if k == 0 and first else "_every segment in water")
+                ax.thermorph_wet = True
             panel_title(ax, next(letter), title)
             legend_outside(ax)
             set_time_axis(ax, res, scale, label=False)
             shade_events(ax, res, scale, label=ax is axes[0])
         axes[-1].set_xlabel(f"Time ({scale[1]})")
         suptitle(fig, f"{title_prefix(res)}{case_title(res)}: surroundings (forcing)")
-        add_footer(fig, [], caution)
+        add_footer(fig, acting_notes(res, lines) + ([f"Not drawn, zero throughout: {', '.join(zero)}."] if zero
+                                                    else []), caution)
         finish(fig)
     return fig
 

@@ -13,6 +13,7 @@ None or empty collections instead of raising.
 
 from __future__ import annotations
 
+import bisect
 import re
 import sys
 import tomllib
@@ -28,6 +29,9 @@ CHANNEL_ORDER = ("metabolism", "shivering", "blood", "conduction", "convection",
 
 #: Channels that exchange heat with the surroundings (losses here are "heat lost to the environment").
 ENVIRONMENT_CHANNELS = ("convection", "radiation", "solar", "evaporation", "substrate", "respiration")
+
+#: Values of the case's `medium` that are water (the others, "air", are air).
+WATER_MEDIA = ("water", "sea_water")
 
 #: Offset between the Celsius and kelvin scales [K] (SI Brochure, 9th ed., 2019, §2.3.1).
 ZERO_CELSIUS_IN_KELVIN = 273.15
@@ -471,29 +475,180 @@ class Results:
                 steps.add((at, str(e.get("label", "")) or f"event at {at:g} s"))
         return sorted(steps)
 
-    def environment_line(self, name: str) -> tuple[np.ndarray, np.ndarray]:
-        """Times [s] and values of /environment/NAME as the surroundings were: sampled at output times only, a step
-        of the timeline (timeline_steps) between two outputs would read as a slanted line, so the value at the last
-        output before the step is held up to it and the value at the first output at or after it holds from it on
-        (a vertical jump at the step); linear between outputs elsewhere (ramps, weather rows). With several steps
-        between the same two outputs the jump is drawn at the first (the values between them are not stored)."""
+    def timeline_changes(self) -> list[tuple[float, float]]:
+        """Every event of the stored case's timeline as (at [s], ramp [s]), sorted by time (weather rows are
+        stored as events); [] without a readable case."""
+        changes = []
+        for e in self.case.get("events", []) or []:
+            if not isinstance(e, dict):
+                continue
+            try:
+                changes.append((float(e.get("at", 0.0)), float(e.get("ramp", 0.0))))
+            except (TypeError, ValueError):
+                continue
+        return sorted(changes)
+
+    def timeline_knots(self) -> tuple[np.ndarray, np.ndarray]:
+        """Times [s] at which the surroundings are drawn, and whether each is the value just before a step: every
+        output, plus the timeline's breakpoints between outputs, so that lines bend and jump at their own times.
+        A step (an event without a ramp) in (first output, last output] gets a knot `before` it (flag True) and,
+        between outputs, one at it; the start and end of a ramp strictly between outputs get one knot each."""
         time = np.asarray(self.time, float)
-        values = np.asarray(self.read(f"/environment/{name}").values, float)
+        if time.size < 2:
+            return time.copy(), np.zeros(time.size, bool)
+        outputs = set(time.tolist())
+        steps = {at for at, ramp in self.timeline_changes() if ramp == 0.0}
+        kinks = {t for at, ramp in self.timeline_changes() if ramp > 0.0 for t in (at, at + ramp)} - steps
+        knots = [(t, False) for t in time.tolist()]
+        for s in steps:
+            if time[0] < s <= time[-1]:
+                knots.append((s, True))
+                if s not in outputs:
+                    knots.append((s, False))
+        knots += [(k, False) for k in kinks if time[0] < k < time[-1] and k not in outputs]
+        knots.sort(key=lambda k: (k[0], not k[1]))   # the value before a step first
+        return np.array([k[0] for k in knots]), np.array([k[1] for k in knots])
+
+    def _schedule(self, name: str, units: str):
+        """The timeline of /environment/NAME from the stored case as points [(t [s], value in `units`)] of a line
+        with jumps at repeated times (steps), or None when the case does not give it as numbers (a case stored
+        unresolved, or an unknown unit). Temperatures are stored in the case in K."""
+        offset = {"degC": -ZERO_CELSIUS_IN_KELVIN, "1": 0.0, "m s-1": 0.0, "W m-2": 0.0}.get(units)
+        env = self.case.get("environment", {})
+        value = env.get(name) if isinstance(env, dict) else None
+        if offset is None or isinstance(value, bool) or not isinstance(value, (int, float)):
+            return None
+        points = [(-np.inf, float(value) + offset)]
+        events = [e for e in self.case.get("events", []) or []
+                  if isinstance(e, dict) and isinstance(e.get("environment"), dict) and name in e["environment"]]
+        try:
+            events.sort(key=lambda e: float(e.get("at", 0.0)))
+            for e in events:
+                target = e["environment"][name]
+                if isinstance(target, bool) or not isinstance(target, (int, float)):
+                    return None
+                at, ramp = float(e.get("at", 0.0)), float(e.get("ramp", 0.0))
+                points += [(at, points[-1][1]), (at + max(ramp, 0.0), float(target) + offset)]
+        except (TypeError, ValueError):
+            return None
+        return points
+
+    @staticmethod
+    def _evaluate(points, t: float, before: bool) -> float:
+        """Value of a schedule (Results._schedule) at t [s]: the limit from the left when `before`, else from the
+        right (a step's new value at its own time)."""
+        xs = [p[0] for p in points]
+        j = bisect.bisect_left(xs, t) if before else bisect.bisect_right(xs, t)
+        if before and j < len(xs) and xs[j] == t:
+            return points[j][1]
+        if not before and j > 0 and xs[j - 1] == t:
+            return points[j - 1][1]
+        if j == 0:
+            return points[0][1]
+        if j == len(xs):
+            return points[-1][1]
+        (xa, va), (xb, vb) = points[j - 1], points[j]
+        return va if va == vb or not np.isfinite(xa) else va + (vb - va) * (t - xa) / (xb - xa)
+
+    def environment_line(self, name: str) -> tuple[np.ndarray, np.ndarray]:
+        """Times [s] and values of /environment/NAME as the surroundings were, on timeline_knots(): the stored value
+        at every output, and at the timeline's breakpoints between outputs the value the stored case's timeline
+        gives there (`environment` of [environment] and of each event), so a step is a vertical jump at its time
+        and a ramp starts and ends at its own times, not at the outputs around them. The case's timeline is used
+        only when it reproduces every stored output (to 1e-6 of the series' size); otherwise the value at the last
+        output before a step is held up to it and lines are straight between outputs elsewhere."""
+        time = np.asarray(self.time, float)
+        series = self.read(f"/environment/{name}")
+        values = np.asarray(series.values, float)
         if time.size < 2 or values.shape != time.shape:
             return time, values
-        where, at, before, after = [], [], [], []
-        for step, _ in self.timeline_steps():
-            i = int(np.searchsorted(time, step, side="left"))   # first output at or after the step
-            if i == 0 or i >= time.size or (where and where[-1] == i):
-                continue
-            where += [i, i]
-            at += [step, step]
-            before.append(values[i - 1])
-            after.append(values[i])
-        if not where:
-            return time, values
-        jumps = [v for pair in zip(before, after) for v in pair]
-        return np.insert(time, where, at), np.insert(values, where, jumps)
+        knots, before = self.timeline_knots()
+        points = self._schedule(name, series.units)
+        if points is not None:
+            expected = np.array([self._evaluate(points, t, False) for t in time])
+            size = 1.0 + float(np.nanmax(np.abs(values)))
+            if not np.all(np.abs(expected - values) <= 1e-6 * size):
+                points = None
+        out = np.empty(knots.size)
+        index = {t: i for i, t in enumerate(time.tolist())}
+        for k, (t, b) in enumerate(zip(knots.tolist(), before.tolist())):
+            if not b and t in index:
+                out[k] = values[index[t]]
+            elif points is not None:
+                out[k] = self._evaluate(points, t, b)
+            elif b:   # no usable timeline: hold the value drawn last up to the step
+                out[k] = out[k - 1]
+            else:     # ... and the next output's value from it (a step), or a straight line (a ramp's end)
+                i = int(np.searchsorted(time, t))
+                out[k] = values[i] if k > 0 and knots[k - 1] == t else np.interp(t, time, values)
+        return knots, out
+
+    # ---- where the surroundings act ---------------------------------------------------
+    def medium_fluid(self, t: float, before: bool = False) -> str | None:
+        """"air" or "water" (water, sea water): the fluid of the medium at t [s] from the stored case ([environment]
+        medium, changed by events as steps; the limit from the left when `before`); None without a case."""
+        env = self.case.get("environment")
+        if not isinstance(env, dict):
+            return None
+        medium = str(env.get("medium", "air"))
+        for e in sorted((e for e in self.case.get("events", []) or [] if isinstance(e, dict)
+                         and isinstance(e.get("environment"), dict) and "medium" in e["environment"]),
+                        key=lambda e: float(e.get("at", 0.0))):
+            at = float(e.get("at", 0.0))
+            if at < t or (at == t and not before):
+                medium = str(e["environment"]["medium"])
+        return "water" if medium in WATER_MEDIA else "air"
+
+    def medium_fluids(self) -> list[str]:
+        """Fluids the medium takes during the run ("air", "water"), in that order; [] without a case."""
+        if not len(self.time):
+            return []
+        times = [float(self.time[0])] + [at for at, _ in self.timeline_changes()
+                                         if self.time[0] <= at <= self.time[-1]]
+        found = {self.medium_fluid(t) for t in times} - {None}
+        return [f for f in ("air", "water") if f in found]
+
+    def segment_fluid(self, name: str, medium_fluid: str) -> str:
+        """Fluid around segment `name` while the medium is `medium_fluid`: its `surface.immersion` "always" puts
+        it in water, "never" in air, "body" (default) in the medium (main README, "The medium and immersion")."""
+        surface = self.case_segment(name).get("surface", {})
+        immersion = surface.get("immersion", "body") if isinstance(surface, dict) else "body"
+        return {"always": "water", "never": "air"}.get(immersion, medium_fluid)
+
+    def forcing_targets(self, kind: str, medium_fluid: str) -> list[str]:
+        """Segments (labels, "×N" for copies) on which a kind of forcing acts while the medium is `medium_fluid`,
+        after thermorph's surface model (main README, "Environment": radiation, sun and evaporation in air only;
+        substrate over a contact_fraction; breathing the air around the respiratory segment unless it is in water):
+        "air" and "water": segments in that fluid (convection; "air" also breathing); "radiant": in air, sky_view
+        below 1; "sky": in air, sky_view above 0; "sun": in air, solar_absorptivity and solar_exposure above 0;
+        "humidity": in air with a wetted_fraction, and the breathing segment (marked "breathing") in air;
+        "substrate": contact_fraction above 0. Missing surface keys take the case defaults (sky_view 0.5,
+        solar_absorptivity 0.7, wetted_fraction 0, contact_fraction 0)."""
+        breathing = self.case.get("body", {}).get("respiratory_segment") if isinstance(self.case.get("body"),
+                                                                                       dict) else None
+        targets = []
+        for seg in self.segment_names():
+            surface = self.case_segment(seg).get("surface", {})
+            surface = surface if isinstance(surface, dict) else {}
+
+            def number(key, default):
+                v = surface.get(key, default)
+                return float(v) if isinstance(v, (int, float)) and not isinstance(v, bool) else default
+
+            fluid = self.segment_fluid(seg, medium_fluid)
+            in_air = fluid == "air"
+            label = seg if self.segment_count(seg) == 1 else f"{seg} ×{self.segment_count(seg)}"
+            acts = {"air": in_air, "water": fluid == "water",
+                    "radiant": in_air and number("sky_view", 0.5) < 1.0,
+                    "sky": in_air and number("sky_view", 0.5) > 0.0,
+                    "sun": in_air and number("solar_absorptivity", 0.7) > 0.0 and number("solar_exposure", 1.0) > 0.0,
+                    "humidity": in_air and number("wetted_fraction", 0.0) > 0.0,
+                    "substrate": number("contact_fraction", 0.0) > 0.0}.get(kind, True)
+            if acts:
+                targets.append(label)
+            elif kind == "humidity" and in_air and seg == breathing:
+                targets.append(f"{label} (breathing)")
+        return targets
 
     def solver_stats(self) -> dict:
         """Attributes of the /solver group ({} when absent)."""

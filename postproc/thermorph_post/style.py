@@ -69,7 +69,12 @@ ENVIRONMENT_STYLE = {
     "substrate_temperature": ("#8B5A2B", "-"),
     "speed": ("#4D4D4D", "-"), "air_speed": ("#4D4D4D", "-"), "water_speed": ("#4D4D4D", "--"),
     "solar_irradiance": ("#B8860B", "-"), "relative_humidity": ("#4D4D4D", "-"),
+    # As drawn (figures.SURROUNDINGS): the air and the water whichever is the medium, wind and current.
+    "air": ("#4D4D4D", (0, (1, 1.5))), "water": ("#4D4D4D", (0, (4, 1.5, 1, 1.5, 1, 1.5))),
+    "wind": ("#4D4D4D", "-"), "water current": ("#4D4D4D", "--"),
 }
+#: Shading of the intervals when every segment is in water (forcings of the air act on nothing there).
+ALL_IN_WATER_SHADE = {"color": "#56B4E9", "alpha": 0.16, "lw": 0, "zorder": 0}
 
 # Heat-flow channels: colour, bar hatch and line style, the same in every panel and figure. Eight colours
 # serve eleven channels, so the two that share a colour with a related channel differ by hatch and dashes
