@@ -482,7 +482,7 @@ def check_real_limb(tmp: Path):
     check(np.allclose(np.diff(seg["axial"]), np.diff(seg["axial"])[0], rtol=1e-12), "limb: uniform axial cells")
     same_numbers(xy(data[("segment mean surface temperatures", "forelimb")])[1], seg["surface"].mean(axis=1),
                  "forelimb mean surface temperature", rtol=1e-13)
-    same_numbers(xy(data[("segment mean surface temperatures", "surroundings")])[1],
+    same_numbers(xy(data[("segment mean surface temperatures", "air")])[1],
                  ex.environment["temperature [degC]"], "air temperature")
 
     # Budget: bars are the segment's mean flows over the run from its cumulative energies (integrated by the solver;

@@ -321,6 +321,19 @@ def layer_boundaries(seg) -> list[tuple[float, str]]:
     return bounds
 
 
+def _cone_note(seg, units: str) -> str:
+    """Footer note for a cone: its cells are drawn at the radii of its mid-length cross-section (the stored `radius`,
+    grid.cpp), while the real radius tapers along it; '' for other shapes or a case without both radii."""
+    entry = seg.case_entry or {}
+    r0, r1 = entry.get("radius_proximal"), entry.get("radius_distal")
+    if seg.shape != "cone" or not all(isinstance(r, (int, float)) and not isinstance(r, bool) for r in (r0, r1)):
+        return ""
+    rs, ru = length_scale(max(r0, r1), units)
+    return (f"{seg.name} is a cone: drawn at the radii of its mid-length cross-section (outer radius "
+            f"{0.5 * (r0 + r1) * rs:.3g} {ru}); its real radius tapers from {r0 * rs:.3g} {ru} at the proximal end "
+            f"to {r1 * rs:.3g} {ru} at the distal end, the layers in proportion.")
+
+
 def maps_figures(res: Results, units: str = "physiology", segments=None, times=None, top: int = DEFAULT_TOP,
                  style: str = DEFAULT_STYLE, caution: bool = True) -> dict:
     """Axial × radial temperature maps and radial profiles at mid-length: {segment name: Figure} for each
@@ -398,7 +411,7 @@ def maps_figures(res: Results, units: str = "physiology", segments=None, times=N
             legend_outside(ax)
             count = f" (one of {seg.count})" if seg.count > 1 else ""
             suptitle(fig, f"{title_prefix(res)}{case_title(res)}: {seg.name}{count} temperature map")
-            add_footer(fig, [], caution)
+            add_footer(fig, [n for n in [_cone_note(seg, units)] if n], caution)
             finish(fig)
         figs[seg.name] = fig
     if not figs:
@@ -433,13 +446,13 @@ SURROUNDINGS = {
     "radiant_temperature": ("radiant surroundings", "degC", "radiant", None),
     "sky_temperature": ("sky", "degC", "sky", None),
     "substrate_temperature": ("substrate", "degC", "substrate", None),
-    "wind": ("wind", "m s-1", "air", {"air": "speed", "water": "air_speed"}),
-    "water current": ("water current", "m s-1", "water", {"water": "speed", "air": "water_speed"}),
+    "wind": ("wind", "m s-1", "wind", {"air": "speed", "water": "air_speed"}),
+    "water current": ("water current", "m s-1", "current", {"water": "speed", "air": "water_speed"}),
     "solar_irradiance": ("solar irradiance", "W m-2", "sun", None),
     "relative_humidity": ("relative humidity", "1", "humidity", None),
 }
 #: Kinds of forcing that act in air only (radiation, sun, evaporation, breathing).
-AIR_KINDS = ("air", "radiant", "sky", "sun", "humidity")
+AIR_KINDS = ("air", "wind", "radiant", "sky", "sun", "humidity")
 
 
 def surroundings_lines(res: Results, keys=None) -> list[dict]:
@@ -503,7 +516,8 @@ def acting_notes(res: Results, lines: list[dict]) -> list[str]:
             continue
         texts = {f: _segments_text(res, ln["targets"][f]) for f in fluids}
         if len(set(texts.values())) == 1:
-            where = {"water": " (in water)"}.get(ln["kind"], " (in air)" if ln["kind"] in AIR_KINDS[:4] else "")
+            where = " (in water)" if ln["kind"] in ("water", "current") else " (in air)" if ln["kind"] in AIR_KINDS[:5] \
+                else ""
             desc = texts[fluids[0]] + (where if texts[fluids[0]] != "every segment" else "")
         else:
             desc = "; ".join(f"{texts[f] or 'none (not drawn)'} while the medium is {f}" for f in fluids)

@@ -619,13 +619,17 @@ class Results:
         """Segments (labels, "×N" for copies) on which a kind of forcing acts while the medium is `medium_fluid`,
         after thermorph's surface model (main README, "Environment": radiation, sun and evaporation in air only;
         substrate over a contact_fraction; breathing the air around the respiratory segment unless it is in water):
-        "air" and "water": segments in that fluid (convection; "air" also breathing); "radiant": in air, sky_view
-        below 1; "sky": in air, sky_view above 0; "sun": in air, solar_absorptivity and solar_exposure above 0;
-        "humidity": in air with a wetted_fraction, and the breathing segment (marked "breathing") in air;
-        "substrate": contact_fraction above 0. Missing surface keys take the case defaults (sky_view 0.5,
-        solar_absorptivity 0.7, wetted_fraction 0, contact_fraction 0)."""
-        breathing = self.case.get("body", {}).get("respiratory_segment") if isinstance(self.case.get("body"),
-                                                                                       dict) else None
+        "air" and "water": segments in that fluid (convection; "air" also breathing); "wind" and "current": in air
+        or water, convection from correlations (a fixed coefficient does not depend on speed); "radiant": in air,
+        emissivity above 0, sky_view below 1; "sky": in air, emissivity and sky_view above 0; "sun": in air,
+        solar_absorptivity and solar_exposure above 0; "humidity": in air with a wetted_fraction, and the breathing
+        segment (marked "breathing") in air; "substrate": contact_fraction above 0. Missing surface keys take the
+        case defaults (sky_view 0.5, solar_absorptivity 0.7, wetted_fraction 0, contact_fraction 0, convection
+        [environment] convection or "correlation"; emissivity 0 with a fixed convection coefficient, else above 0:
+        main README, "Defaults and their sources")."""
+        body, env = self.case.get("body", {}), self.case.get("environment", {})
+        breathing = body.get("respiratory_segment") if isinstance(body, dict) else None
+        default_convection = env.get("convection", "correlation") if isinstance(env, dict) else "correlation"
         targets = []
         for seg in self.segment_names():
             surface = self.case_segment(seg).get("surface", {})
@@ -637,10 +641,14 @@ class Results:
 
             fluid = self.segment_fluid(seg, medium_fluid)
             in_air = fluid == "air"
+            convection = surface.get("convection", default_convection)
+            correlation = isinstance(convection, str) and convection.strip() == "correlation"
+            radiates = number("emissivity", 0.95 if correlation else 0.0) > 0.0
             label = seg if self.segment_count(seg) == 1 else f"{seg} ×{self.segment_count(seg)}"
             acts = {"air": in_air, "water": fluid == "water",
-                    "radiant": in_air and number("sky_view", 0.5) < 1.0,
-                    "sky": in_air and number("sky_view", 0.5) > 0.0,
+                    "wind": in_air and correlation, "current": fluid == "water" and correlation,
+                    "radiant": in_air and radiates and number("sky_view", 0.5) < 1.0,
+                    "sky": in_air and radiates and number("sky_view", 0.5) > 0.0,
                     "sun": in_air and number("solar_absorptivity", 0.7) > 0.0 and number("solar_exposure", 1.0) > 0.0,
                     "humidity": in_air and number("wetted_fraction", 0.0) > 0.0,
                     "substrate": number("contact_fraction", 0.0) > 0.0}.get(kind, True)
