@@ -413,9 +413,12 @@ def shade_events(ax, res: Results, scale, label: bool = True):
                 break
     if not rows_used:
         return
-    # Headroom: raise the top of the y axis so the label rows sit above the data.
+    # Headroom: raise the top of the y axis so the label rows sit above the data: the rows' offset from the top and
+    # a line of text measured on the panel's height before layout (2 lines: the layout shrinks the panel; 0.06
+    # of the panel at least). A fixed 0.06 let the labels of a single-column panel cover a line at the top.
     y0, y1 = ax.get_ylim()
-    band = 1.0 - LABEL_ROWS[rows_used - 1] + 0.06
+    height_pt = max(ax.get_position().height * fig.get_figheight() * 72.0, 1.0)
+    band = min(1.0 - LABEL_ROWS[rows_used - 1] + max(0.06, 2.0 * fontsize / height_pt), 0.5)
     ax.set_ylim(y0, y0 + (y1 - y0) / (1.0 - band))
 
 
