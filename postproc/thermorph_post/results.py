@@ -591,12 +591,16 @@ class Results:
         if not isinstance(env, dict):
             return None
         medium = str(env.get("medium", "air"))
-        for e in sorted((e for e in self.case.get("events", []) or [] if isinstance(e, dict)
-                         and isinstance(e.get("environment"), dict) and "medium" in e["environment"]),
-                        key=lambda e: float(e.get("at", 0.0))):
-            at = float(e.get("at", 0.0))
+        changes = []
+        for e in self.case.get("events", []) or []:
+            if isinstance(e, dict) and isinstance(e.get("environment"), dict) and "medium" in e["environment"]:
+                try:
+                    changes.append((float(e.get("at", 0.0)), str(e["environment"]["medium"])))
+                except (TypeError, ValueError):   # a case stored unresolved ("10 min"): not read
+                    continue
+        for at, new in sorted(changes, key=lambda c: c[0]):
             if at < t or (at == t and not before):
-                medium = str(e["environment"]["medium"])
+                medium = new
         return "water" if medium in WATER_MEDIA else "air"
 
     def medium_fluids(self) -> list[str]:
