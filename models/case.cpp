@@ -179,7 +179,48 @@ std::size_t findArrayElement(const toml::array& array, const std::string& compon
   return array.size();
 }
 
-void applyOverride(toml::table& root, const std::string& file, const std::string& assignment) {
+//! What one `--set` changed in a parsed tree, so that the tree can be put back as parsed (source positions
+//! included: toml++ does not copy them with a node, but moves keep them). The container is found again from the
+//! root by its path at restore time (a later override may have replaced one of its ancestors).
+struct OverrideChange {
+  struct Step {
+    std::string key;          // in a table
+    std::size_t index = 0;    // in an array, when `inArray`
+    bool inArray = false;
+  };
+  std::vector<Step> container;
+  Step at;                           // the changed key or element in the container
+  bool inserted = false;             // a new key (erased again), else the key's or element's earlier node
+  std::unique_ptr<toml::node> old;  // the earlier node, moved out
+};
+
+//! The node moved into a new heap node of its own type (source and value flags kept).
+std::unique_ptr<toml::node> moveOut(toml::node& n) {
+  return n.visit([](auto& concrete) -> std::unique_ptr<toml::node> {
+    return std::make_unique<std::remove_cvref_t<decltype(concrete)>>(std::move(concrete));
+  });
+}
+
+//! Undo the changes, last first: the tree is then the parsed one again.
+void restoreOverrides(toml::table& root, std::vector<OverrideChange>& changes) {
+  for (auto change = changes.rbegin(); change != changes.rend(); ++change) {
+    toml::node* container = &root;
+    for (const OverrideChange::Step& step : change->container)
+      container = step.inArray ? &(*container->as_array())[step.index] : container->as_table()->get(step.key);
+    if (change->at.inArray) {
+      toml::array& array = *container->as_array();
+      array.replace(array.cbegin() + static_cast<std::ptrdiff_t>(change->at.index), std::move(*change->old));
+    } else if (change->inserted) {
+      container->as_table()->erase(change->at.key);
+    } else {
+      container->as_table()->insert_or_assign(change->at.key, std::move(*change->old));
+    }
+  }
+  changes.clear();
+}
+
+void applyOverride(toml::table& root, const std::string& file, const std::string& assignment,
+                   std::vector<OverrideChange>* changes = nullptr) {
   auto eq = assignment.find('=');
   if (eq == std::string::npos || eq == 0)
     throw CaseError(fmt::format("--set {}: expected KEY=VALUE, e.g. --set environment.temperature=\"5 degC\"",
@@ -203,17 +244,27 @@ void applyOverride(toml::table& root, const std::string& file, const std::string
 
   toml::node* current = &root;
   std::string walked;
+  std::vector<OverrideChange::Step> path;
+  auto record = [&](OverrideChange::Step at, toml::node* old) {
+    if (!changes) return;
+    changes->push_back({path, std::move(at), old == nullptr, old ? moveOut(*old) : nullptr});
+  };
   for (std::size_t i = 0; i < components.size(); ++i) {
     const std::string& c = components[i];
     bool last = i + 1 == components.size();
     walked += (walked.empty() ? "" : ".") + c;
     if (auto* table = current->as_table()) {
       if (last) {
+        record({c}, table->get(c));
         table->insert_or_assign(c, value);
         return;
       }
-      if (!table->contains(c)) table->insert(c, toml::table{});
+      if (!table->contains(c)) {
+        record({c}, nullptr);
+        table->insert(c, toml::table{});
+      }
       current = table->get(c);
+      path.push_back({c});
     } else if (auto* array = current->as_array()) {
       std::size_t index = findArrayElement(*array, c);
       if (index == array->size()) {
@@ -228,10 +279,12 @@ void applyOverride(toml::table& root, const std::string& file, const std::string
           throw CaseError(fmt::format("{}: --set {}: {} is a table (an element of {}), not a value; set a key inside "
                                       "it, e.g. {}.KEY=VALUE",
                                       file, key, walked, walked.substr(0, walked.size() - c.size() - 1), walked));
+        record({"", index, true}, &(*array)[index]);
         array->replace(array->cbegin() + static_cast<std::ptrdiff_t>(index), value);
         return;
       }
       current = &(*array)[index];
+      path.push_back({"", index, true});
     } else {
       throw CaseError(fmt::format("{}: --set {}: {} is a value, not a table", file, key,
                                   walked.substr(0, walked.size() - c.size() - 1)));
@@ -725,8 +778,9 @@ void checkOverriddenByTimeline(const TableView& top, Case& c, const std::vector<
   }
 }
 
-Case buildCase(toml::table& root, const std::string& file, const std::vector<std::string>& overrides) {
-  for (const std::string& o : overrides) applyOverride(root, file, o);
+Case buildCase(toml::table& root, const std::string& file, const std::vector<std::string>& overrides,
+               std::vector<OverrideChange>* changes = nullptr) {
+  for (const std::string& o : overrides) applyOverride(root, file, o, changes);
   CaseReader reader(file);
   reader.checkKeys(root, "", "");
   TableView top(reader, &root, "", "");
@@ -901,16 +955,58 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
 
 Case loadCaseFromString(const std::string& text, const std::string& sourceName,
                         const std::vector<std::string>& overrides) {
-  checkNesting(text, sourceName);
-  toml::table root;
-  try {
-    root = toml::parse(text, sourceName);
-  } catch (const toml::parse_error& e) {
-    throw CaseError(fmt::format("{}:{}:{}: TOML syntax error: {}", sourceName, e.source().begin.line,
-                                e.source().begin.column, e.description()));
+  // Sweeps, fits and sensitivity runs load the same text once per run with other overrides: the text is parsed
+  // once per thread and each load applies its overrides to that tree and puts it back afterwards (the parse was
+  // about 4 % of a quadruped sweep run). The tree is the one a fresh parse gives, source positions included, so
+  // every value and message is the same (DEVELOPERS.md "Per-run CPU in sweeps, twelfth round").
+  struct Parsed {
+    std::string text, source;
+    toml::table root;
+    bool valid = false, inUse = false;
+  };
+  thread_local Parsed parsed;
+  if (parsed.inUse) {  // a load inside a load (none today): parse on its own
+    checkNesting(text, sourceName);
+    toml::table root;
+    try {
+      root = toml::parse(text, sourceName);
+    } catch (const toml::parse_error& e) {
+      throw CaseError(fmt::format("{}:{}:{}: TOML syntax error: {}", sourceName, e.source().begin.line,
+                                  e.source().begin.column, e.description()));
+    }
+    Case c = buildCase(root, sourceName, overrides);
+    recordInputs(c, root, text);
+    return c;
   }
-  Case c = buildCase(root, sourceName, overrides);
-  recordInputs(c, root, text);
+  if (!parsed.valid || parsed.text != text || parsed.source != sourceName) {
+    parsed.valid = false;
+    parsed.root = toml::table{};
+    checkNesting(text, sourceName);
+    try {
+      parsed.root = toml::parse(text, sourceName);
+    } catch (const toml::parse_error& e) {
+      throw CaseError(fmt::format("{}:{}:{}: TOML syntax error: {}", sourceName, e.source().begin.line,
+                                  e.source().begin.column, e.description()));
+    }
+    parsed.text = text;
+    parsed.source = sourceName;
+    parsed.valid = true;
+  }
+  struct Restore {
+    Parsed& p;
+    std::vector<OverrideChange> changes;
+    ~Restore() {
+      try {
+        restoreOverrides(p.root, changes);
+      } catch (...) {
+        p.valid = false;  // parsed again by the next load
+      }
+      p.inUse = false;
+    }
+  } restore{parsed, {}};
+  parsed.inUse = true;
+  Case c = buildCase(parsed.root, sourceName, overrides, &restore.changes);
+  recordInputs(c, parsed.root, text);
   return c;
 }
 
