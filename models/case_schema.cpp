@@ -2,6 +2,8 @@
 
 #include <array>
 #include <limits>
+#include <string_view>
+#include <unordered_map>
 
 namespace thermorph {
 namespace {
@@ -406,9 +408,16 @@ constexpr std::array params = {
 std::span<const Param> caseSchema() { return params; }
 
 const Param* findParam(std::string_view pattern) {
-  for (const Param& p : params)
-    if (p.path == pattern) return &p;
-  return nullptr;
+  // A hash index built once (the first entry of a path, as the linear search before it; that search over the
+  // whole schema per key was about 1 % of a sweep run's instructions).
+  static const std::unordered_map<std::string_view, const Param*> index = [] {
+    std::unordered_map<std::string_view, const Param*> m;
+    m.reserve(params.size());
+    for (const Param& p : params) m.emplace(p.path, &p);
+    return m;
+  }();
+  const auto it = index.find(pattern);
+  return it == index.end() ? nullptr : it->second;
 }
 
 }  // namespace thermorph
