@@ -35,6 +35,18 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
   if (transient && pattern_.size <= kSlotReplayLimit) {
     inverseCapacity_.resize(nodes_);
     for (Index i = 0; i < nodes_; ++i) inverseCapacity_[i] = 1.0 / network.nodes[i].capacity;
+    nodeGroupRow_.resize(nodes_);
+    nodeWeight_.resize(nodes_);
+    for (Index i = 0; i < nodes_; ++i) {
+      nodeGroupRow_[i] = groupRowOf(i);
+      nodeWeight_[i] = nodeWeight(i);
+    }
+    conductanceFactors_.resize(network.conductances.size());
+    for (std::size_t k = 0; k < network.conductances.size(); ++k) {
+      const Conductance& c = network.conductances[k];
+      const auto [fa, fb] = conductanceFactors(c);
+      conductanceFactors_[k] = {fa, fb, network.nodes[c.a].group != network.nodes[c.b].group};
+    }
   }
   for (const Modulator& m : network.modulators)
     if ((m.schedule != none && !network.schedules) || (m.control != none && m.control >= controls_))
@@ -271,30 +283,48 @@ NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, do
 void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<double> out) const {
   time = at(time);
   // A body without a stable state (e.g. Q10 metabolism outrunning its losses) leaves any sensible range long
-  // before the numbers fail: stop with a message that says so.
-  for (Index i = 0; i < nodes_; ++i)
-    if (!(T[i] > 150.0 && T[i] < 450.0))
-      throw std::runtime_error(fmt::format(
-          "temperature {:.5g} K at {} is outside 150-450 K: the body has no stable state here (for example Q10 "
-          "metabolism outrunning the heat losses of a body without thermoregulation, or a cooling runaway)",
-          T[i], network_.label(i)));
+  // before the numbers fail: stop with a message that says so (one pass without a branch per node, then the first
+  // node outside for the message).
+  bool outside = false;
+  for (Index i = 0; i < nodes_; ++i) outside |= !(T[i] > 150.0 && T[i] < 450.0);
+  if (outside)
+    for (Index i = 0; i < nodes_; ++i)
+      if (!(T[i] > 150.0 && T[i] < 450.0))
+        throw std::runtime_error(fmt::format(
+            "temperature {:.5g} K at {} is outside 150-450 K: the body has no stable state here (for example Q10 "
+            "metabolism outrunning the heat losses of a body without thermoregulation, or a cooling runaway)",
+            T[i], network_.label(i)));
   const bool transient = mode_ == Mode::Transient;
   std::fill(out.begin(), out.end(), 0.0);
   std::span<double> acc = transient ? out.subspan(nodes_ + controls_, channels_) : std::span<double>();
   modulatorValues(time, T, modulators_);
+  // Small transient systems read each node's group row and multiplicity from tables (the same values).
+  const bool tables = !nodeGroupRow_.empty();
+  const Index groupOffset = groupEnergyOffset(), groups = groups_, channels = channels_;
+  auto rowOf = [&](Index node) -> Index {
+    if (tables) return nodeGroupRow_[node];
+    const Index g = network_.nodes[node].group;
+    return g < groups ? groupOffset + g * channels : none;
+  };
+  auto weightOf = [&](Index node) { return tables ? nodeWeight_[node] : nodeWeight(node); };
   // Flow q of channel c into one copy of the node's group (group energies, transient only).
   auto toGroup = [&](Index node, Index channel, double q) {
-    if (const Index r = groupRowOf(node); r != none) out[r + channel] += q;
+    if (const Index r = rowOf(node); r != none) out[r + channel] += q;
   };
   for (std::size_t k = 0; k < network_.conductances.size(); ++k) {
     const Conductance& c = network_.conductances[k];
-    const auto [fa, fb] = conductanceFactors(c);
+    const ConductanceFactors f =
+        tables ? conductanceFactors_[k]
+               : [&] {
+                   const auto [fa, fb] = conductanceFactors(c);
+                   return ConductanceFactors{fa, fb, network_.nodes[c.a].group != network_.nodes[c.b].group};
+                 }();
     double q = c.conductance * (T[c.b] - T[c.a]);
-    out[c.a] += fa * q;
-    out[c.b] -= fb * q;
-    if (transient && network_.nodes[c.a].group != network_.nodes[c.b].group) {
-      toGroup(c.a, c.channel, fa * q);
-      toGroup(c.b, c.channel, -fb * q);
+    out[c.a] += f.a * q;
+    out[c.b] -= f.b * q;
+    if (transient && f.acrossGroups) {
+      toGroup(c.a, c.channel, f.a * q);
+      toGroup(c.b, c.channel, -f.b * q);
     }
   }
   for (const Advection& a : network_.advections) {
@@ -303,7 +333,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
       double q = F * (T[from] - T[to]);
       out[to] += q;
       if (transient) {
-        acc[a.channel] += nodeWeight(to) * q;
+        acc[a.channel] += weightOf(to) * q;
         toGroup(to, a.channel, q);
       }
     });
@@ -313,7 +343,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
     double q = G * (e.temperature - T[e.node]);
     out[e.node] += q;
     if (transient) {
-      acc[e.channel] += nodeWeight(e.node) * q;
+      acc[e.channel] += weightOf(e.node) * q;
       toGroup(e.node, e.channel, q);
     }
   }
@@ -324,7 +354,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
     double q = s.power * m * std::exp(rate * (T[s.node] - reference));
     out[s.node] += q;
     if (transient) {
-      acc[s.channel] += nodeWeight(s.node) * q;
+      acc[s.channel] += weightOf(s.node) * q;
       toGroup(s.node, s.channel, q);
     }
   }
@@ -337,7 +367,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
     for (Index c = 0; c < channels_; ++c) {
       sum += scratchHeat_[c];
       if (transient) {
-        acc[c] += nodeWeight(node) * scratchHeat_[c];
+        acc[c] += weightOf(node) * scratchHeat_[c];
         toGroup(node, c, scratchHeat_[c]);
       }
     }

@@ -146,6 +146,16 @@ class NetworkSystem {
   //! 1/C of each node (transient systems of up to kSlotReplayLimit states; larger ones divide where needed): the
   //! same quotients as dividing at every evaluation, without a division per node and right-hand side.
   std::vector<double> inverseCapacity_;
+  //! The same systems' group-energy row of each node (none: no group energies) and multiplicity, and each
+  //! conductance's factors and whether it joins two groups: evaluate() reads them instead of the nodes' groups
+  //! (the same values; about 3 % of a sweep run's instructions in the quadruped study).
+  struct ConductanceFactors {
+    double a = 1.0, b = 1.0;
+    bool acrossGroups = false;
+  };
+  std::vector<Index> nodeGroupRow_;
+  std::vector<double> nodeWeight_;
+  std::vector<ConductanceFactors> conductanceFactors_;
   mutable std::vector<double> faceGuess_;  //!< last face temperatures, Newton start values
   mutable std::vector<double> faceNodeTemperature_, faceSlope_;  //!< node temperature and dT_s/dT_n there
   //! Face temperature of the last evaluation of the face's heats in a remembered solve, and dq/dT_s there (the
