@@ -165,6 +165,16 @@ FaceFluid EnvironmentModel::fluid(Index segment, double time) const {
 double EnvironmentModel::convectionCoefficient(Index face, double faceTemperature, double time,
                                                double* derivative) const {
   const FaceDescription& f = faces_[face];
+  if (surfaces_[f.segment].fixedConvection) {
+    if (derivative) *derivative = 0.0;
+    return surfaces_[f.segment].convectionCoefficient;
+  }
+  return convectionCoefficient(face, faceTemperature, fluid(f.segment, time), derivative);
+}
+
+double EnvironmentModel::convectionCoefficient(Index face, double faceTemperature, const FaceFluid& fl,
+                                               double* derivative) const {
+  const FaceDescription& f = faces_[face];
   const SegmentSurface& surface = surfaces_[f.segment];
   if (derivative) *derivative = 0.0;
   if (surface.fixedConvection) return surface.convectionCoefficient;
@@ -175,7 +185,6 @@ double EnvironmentModel::convectionCoefficient(Index face, double faceTemperatur
   // (20-45 % fewer correlation evaluations in the example studies). The coefficient depends on time only through
   // the fluid (medium, temperature, speed): an unchanged fluid reuses it. dh/dT_s returned is the expansion's own
   // derivative, so the Jacobian stays exact for the function evaluated.
-  const FaceFluid fl = fluid(f.segment, time);
   CachedCoefficient& cached = cache_[face];
   const double shift = faceTemperature - cached.faceTemperature;
   const bool sameFluid =
@@ -246,7 +255,7 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
 
   // Convection, Newton's law: q = h A_e (T_f - T_s), dq/dT_s = A_e (h' (T_f - T_s) - h).
   double dh = 0.0;
-  const double h = convectionCoefficient(face, Ts, time, &dh);
+  const double h = convectionCoefficient(face, Ts, fl, &dh);
   const double difference = fl.temperature - Ts;
   channelHeat[convectionChannel_] += h * exposed * difference;
   channelDerivative[convectionChannel_] += exposed * (dh * difference - h);

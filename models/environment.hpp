@@ -117,6 +117,8 @@ class EnvironmentModel : public SurfaceModel {
   };
   //! Convection coefficient [W/(m2 K)] of a face and its slope with the face temperature [W/(m2 K2)].
   double convectionCoefficient(Index face, double faceTemperature, double time, double* derivative) const;
+  //! The same with the face's fluid at that time already known (faceHeat: fluid() once per face instead of twice).
+  double convectionCoefficient(Index face, double faceTemperature, const FaceFluid& fl, double* derivative) const;
   void collectWarnings() const;
   //! Whether a segment with this immersion is in water while the medium is `medium`.
   static bool inWater(Immersion immersion, SurroundingMedium medium);
