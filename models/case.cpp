@@ -951,6 +951,17 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   return c;
 }
 
+//! The tree of a case text; CaseError with the position of a syntax error.
+toml::table parseCaseText(const std::string& text, const std::string& sourceName) {
+  checkNesting(text, sourceName);
+  try {
+    return toml::parse(text, sourceName);
+  } catch (const toml::parse_error& e) {
+    throw CaseError(fmt::format("{}:{}:{}: TOML syntax error: {}", sourceName, e.source().begin.line,
+                                e.source().begin.column, e.description()));
+  }
+}
+
 }  // namespace
 
 Case loadCaseFromString(const std::string& text, const std::string& sourceName,
@@ -966,28 +977,14 @@ Case loadCaseFromString(const std::string& text, const std::string& sourceName,
   };
   thread_local Parsed parsed;
   if (parsed.inUse) {  // a load inside a load (none today): parse on its own
-    checkNesting(text, sourceName);
-    toml::table root;
-    try {
-      root = toml::parse(text, sourceName);
-    } catch (const toml::parse_error& e) {
-      throw CaseError(fmt::format("{}:{}:{}: TOML syntax error: {}", sourceName, e.source().begin.line,
-                                  e.source().begin.column, e.description()));
-    }
+    toml::table root = parseCaseText(text, sourceName);
     Case c = buildCase(root, sourceName, overrides);
     recordInputs(c, root, text);
     return c;
   }
   if (!parsed.valid || parsed.text != text || parsed.source != sourceName) {
     parsed.valid = false;
-    parsed.root = toml::table{};
-    checkNesting(text, sourceName);
-    try {
-      parsed.root = toml::parse(text, sourceName);
-    } catch (const toml::parse_error& e) {
-      throw CaseError(fmt::format("{}:{}:{}: TOML syntax error: {}", sourceName, e.source().begin.line,
-                                  e.source().begin.column, e.description()));
-    }
+    parsed.root = parseCaseText(text, sourceName);
     parsed.text = text;
     parsed.source = sourceName;
     parsed.valid = true;
