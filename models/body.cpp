@@ -193,14 +193,66 @@ Body::Body(const Case& c) : case_(c) {
   for (auto [k, previous] : controlChain_)
     network_.controllers[k].signal = {{network_.nodes.size() + previous, 1.0}};
   network_.compact();
+  // The values of t = 0 (the coats' conductances are built for the largest contact of the run: scaled to the first
+  // interval's, for a steady start and the first step).
+  setInterval(0);
+  warnStaticContact();
+}
+
+void Body::warnStaticContact() {
+  // A segment standing on the substrate while its fluid changes (medium events, immersion "body") keeps its contact
+  // in both unless an event changes it: a diver's feet would stand on the ground while it swims. Said, not refused
+  // (a wader's feet in a pond stand on the mud; a seal hauled out on ice may keep lying on it).
+  if (!case_.environment.mediumChanges()) return;
+  std::vector<Index> candidates;
+  for (Index g = 0; g < case_.segments.size(); ++g)
+    if (case_.segments[g].surface.contactFraction > 0.0 && !environment_->contactChanges(g) &&
+        case_.segments[g].surface.immersion == Immersion::Body)
+      candidates.push_back(g);
+  if (candidates.empty()) return;
+  std::vector<double> times{0.0};
+  for (double b : environment_->breakpoints()) times.push_back(b);
+  times.push_back(case_.run.duration);
+  for (Index g : candidates) {
+    // Spans of the run in water and in air, consecutive intervals in the same fluid merged.
+    std::vector<std::string> spans[2];
+    double start = 0.0;
+    for (std::size_t k = 0; k + 1 < times.size(); ++k) {
+      environment_->setInterval(k);
+      const bool water = environment_->immersed(g, times[k]);
+      bool next = water;
+      if (k + 2 < times.size()) {
+        environment_->setInterval(k + 1);
+        next = environment_->immersed(g, times[k + 1]);
+      }
+      if (next != water || k + 2 == times.size()) {
+        spans[water ? 1 : 0].push_back(fmt::format("{:g}-{:g} s", start, times[k + 1]));
+        start = times[k + 1];
+      }
+    }
+    if (spans[0].empty() || spans[1].empty()) continue;
+    const std::string& name = case_.segments[g].name;
+    warnings_.push_back(fmt::format(
+        "segment {}: contact_fraction {:g} holds in water ({}) and in air ({}): the same share of its surface stands on "
+        "the substrate in both; events can change it ([[events]] surface = {{ {} = {{ contact_fraction = 0 }} }})",
+        name, case_.segments[g].surface.contactFraction, fmt::join(spans[1], ", "), fmt::join(spans[0], ", "), name));
+  }
+  environment_->setInterval(0);
 }
 
 void Body::setInterval(std::size_t interval) const {
   environment_->setInterval(interval);
   physiology_->setInterval(interval);
-  // Coats conduct wet while their segment is in water (the medium may change by event).
+  // Coats conduct wet while their segment is in water (the medium may change by event), and share their
+  // conductance between the rings and the contact column by the interval's contact fraction f_c (events may change
+  // it; built for the run's largest, f_max).
   for (const CoatSwitch& c : coatSwitches_) {
     double value = environment_->immersed(c.segment, 0.0) ? c.wet : c.dry;
+    const double f = environment_->contactFraction(c.segment), fMax = environment_->maxContactFraction(c.segment);
+    if (c.part == ContactPart::Rings) value *= (1.0 - f) / (1.0 - fMax);
+    // A column without contact keeps its conductance: its face then has no area and exchanges nothing, and a zero
+    // conductance would leave the face's temperature undetermined (NetworkSystem::solveFace divides by G - q').
+    if (c.part == ContactPart::Column && f > 0.0) value *= f / fMax;
     if (c.face) network_.faces[c.index].halfConductance = value;
     else network_.conductances[c.index].conductance = value;
   }
@@ -1175,6 +1227,8 @@ struct Body::SegmentBuild {
   //! Share of the coat's rings away from the substrate: 1 - contact_fraction on a coated segment that touches it
   //! (the coat over the contact patch is a column of its own, Body::addLateralFace), else 1.
   double coatShare = 1.0;
+  double contact = 0.0;         //!< the segment's largest contact fraction over the run (its column's share)
+  bool contactChanges = false;  //!< events change the contact: the coat's conductances are scaled per interval
   bool coatChanges = false;                     //!< the coat has a different wet conductivity
   double length = 0.0;                          //!< sphere: 0
   std::vector<double> edges, dz;                //!< [nz + 1] axial cell edges, [nz] cell lengths (sphere: {0, 1}, {1})
@@ -1288,7 +1342,10 @@ Body::SegmentBuild Body::segmentTissues(const SegmentSpec& s, Index group, Segme
   b.firstCoat = s.coat ? b.nr - s.coat->cells : b.nr;
   b.coatDry = s.coat ? &case_.tissues.at(s.coat->material) : nullptr;
   b.coatChanges = b.coatDry && b.coatDry->wetConductivity > 0.0 && b.coatDry->wetConductivity != b.coatDry->conductivity;
-  if (s.coat && s.surface.contactFraction > 0.0) b.coatShare = 1.0 - s.surface.contactFraction;
+  // Built for the largest contact fraction of the run (events may change it; setInterval scales to each interval's).
+  b.contact = environment_->maxContactFraction(group);
+  b.contactChanges = environment_->contactChanges(group);
+  if (s.coat && b.contact > 0.0) b.coatShare = 1.0 - b.contact;
   b.length = s.shape == Shape::Sphere ? 0.0 : s.length;
   // Uniform: every cell L / nz and edges i (L / nz), as before axial_grading; graded: SegmentSpec::axialEdges.
   b.edges = s.axialEdges();
@@ -1296,8 +1353,11 @@ Body::SegmentBuild Body::segmentTissues(const SegmentSpec& s, Index group, Segme
   return b;
 }
 
-void Body::recordCoat(const SegmentBuild& b, bool face, Index index, double dry, double wet) {
-  if (b.coatChanges && dry != wet) coatSwitches_.push_back({face, index, b.group, dry, wet});
+void Body::recordCoat(const SegmentBuild& b, bool face, Index index, double dry, double wet, ContactPart part) {
+  if (!b.coatChanges) wet = dry;  // no wet conductivity of its own (or the same): the coat conducts as given
+  const bool scaled = b.contactChanges && b.coatShare < 1.0 && part != ContactPart::None;
+  if ((b.coatChanges && dry != wet) || scaled)
+    coatSwitches_.push_back({face, index, b.group, dry, wet, scaled ? part : ContactPart::None});
 }
 
 void Body::addCellNodes(const SegmentBuild& b, SegmentMesh& m, int iz, const CrossSection& c0, const CrossSection& c1) {
@@ -1350,7 +1410,8 @@ void Body::addRadialConduction(const SegmentBuild& b, const SegmentMesh& m, int 
     const double share = ir + 1 >= b.firstCoat ? b.coatShare : 1.0;  // the coat's rings away from the substrate
     network_.conductances.push_back({m.node(iz, ir), m.node(iz, ir + 1), share / resistance, 0});
     if (ir + 1 >= b.firstCoat)
-      recordCoat(b, false, network_.conductances.size() - 1, share * conductance(false), share * conductance(true));
+      recordCoat(b, false, network_.conductances.size() - 1, share * conductance(false), share * conductance(true),
+                 ContactPart::Rings);
   }
 }
 
@@ -1397,7 +1458,7 @@ void Body::addLateralFace(const SegmentBuild& b, SegmentMesh& m, int iz, const C
   const double diameter = s.shape == Shape::Plate ? s.length : 2.0 * rOut;
   m.lateralFace.push_back(network_.faces.size());
   network_.faces.push_back({m.node(iz, nr - 1), half, area});
-  if (nr - 1 >= b.firstCoat) recordCoat(b, true, network_.faces.size() - 1, halfDry, halfWet);
+  if (nr - 1 >= b.firstCoat) recordCoat(b, true, network_.faces.size() - 1, halfDry, halfWet, ContactPart::Rings);
   environment_->addFace({b.group, s.shape, true, area, diameter, 0.0,
                          b.coatShare < 1.0 ? FaceContact::Elsewhere : FaceContact::Shared});
   m.area += area;
@@ -1414,14 +1475,14 @@ void Body::addLateralFace(const SegmentBuild& b, SegmentMesh& m, int iz, const C
     const double rSkin = 0.5 * (cm.bounds[skin] + cm.bounds[skin + 1]);
     const double rColumn = cm.bounds[skin + 1] + s.surface.contactCoatThickness.value_or(s.coat->thickness);
     auto column = [&](double coatK) {
-      return s.surface.contactFraction * (area / fullArea) /
+      return b.contact * (area / fullArea) /
              radialResistance(s.shape, rSkin, cm.bounds[skin + 1], rColumn, b.tissue[skin]->conductivity, coatK, dz,
                               s.width, false, true);
     };
-    network_.faces.push_back({m.node(iz, skin), column(b.tissue[nr - 1]->conductivity), s.surface.contactFraction * area});
+    network_.faces.push_back({m.node(iz, skin), column(b.tissue[nr - 1]->conductivity), b.contact * area});
     recordCoat(b, true, network_.faces.size() - 1, column(b.conductivity(nr - 1, false)),
-               column(b.conductivity(nr - 1, true)));
-    environment_->addFace({b.group, s.shape, false, s.surface.contactFraction * area, diameter, 0.0,
+               column(b.conductivity(nr - 1, true)), ContactPart::Column);
+    environment_->addFace({b.group, s.shape, false, b.contact * area, diameter, 0.0,
                            FaceContact::Column});
   }
 }
@@ -1438,7 +1499,7 @@ void Body::addAxialConduction(const SegmentBuild& b, const SegmentMesh& m, int i
         {m.node(iz, ir), m.node(iz + 1, ir), share * b.tissue[ir]->conductivity * section / dz, 0});
     if (ir >= b.firstCoat)
       recordCoat(b, false, network_.conductances.size() - 1, share * b.conductivity(ir, false) * section / dz,
-                 share * b.conductivity(ir, true) * section / dz);
+                 share * b.conductivity(ir, true) * section / dz, ContactPart::Rings);
   }
 }
 

@@ -111,7 +111,11 @@ class Body {
   static DepthMap junctionDepthMap(const SegmentSpec& s, const SegmentSpec& parent, int attachLayer);
   void addSegment(const SegmentSpec& s, Index group, bool attached);
   SegmentBuild segmentTissues(const SegmentSpec& s, Index group, SegmentMesh& m);
-  void recordCoat(const SegmentBuild& b, bool face, Index index, double dry, double wet);
+  //! Which share of a coated segment's contact a coat conductance belongs to: none (end faces), the coat's rings
+  //! away from the substrate (1 - f_c), or the contact column (f_c).
+  enum class ContactPart : unsigned char { None, Rings, Column };
+  void recordCoat(const SegmentBuild& b, bool face, Index index, double dry, double wet,
+                  ContactPart part = ContactPart::None);
   void addCellNodes(const SegmentBuild& b, SegmentMesh& m, int iz, const CrossSection& c0, const CrossSection& c1);
   void addRadialConduction(const SegmentBuild& b, const SegmentMesh& m, int iz, const CrossSection& cm);
   void addLateralFace(const SegmentBuild& b, SegmentMesh& m, int iz, const CrossSection& c0, const CrossSection& c1,
@@ -142,17 +146,22 @@ class Body {
   std::vector<std::pair<Index, double>> signalNodes(ControlSignal signal) const;
   std::vector<std::pair<Index, double>> localSkinNodes(Index segment) const;
   void buildLocalControllers();
+  //! Warn about a segment whose static contact holds while its fluid changes (no event changes the contact).
+  void warnStaticContact();
 
-  //! A coat conductance (or face half-conductance) dry and wet, chosen per timeline interval.
+  //! A coat conductance (or face half-conductance) dry and wet, chosen per timeline interval, built for the
+  //! segment's largest contact fraction f_max and scaled to the interval's f_c: rings (1 - f_c) / (1 - f_max), the
+  //! column f_c / f_max.
   struct CoatSwitch {
     bool face;
     Index index;
     Index segment;
     double dry, wet;  //!< [W/K]
+    ContactPart part;
   };
 
   Case case_;
-  mutable Network network_;  //!< coat conductances follow immersion in setInterval()
+  mutable Network network_;  //!< coat conductances follow immersion and contact in setInterval()
   std::vector<CoatSwitch> coatSwitches_;
   //! Per child: the parent's axial cells its blood joins, with their shares (sum 1); see attachChildren.
   std::vector<std::vector<std::pair<int, double>>> attachShares_;

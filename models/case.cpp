@@ -751,6 +751,25 @@ void checkOverriddenByTimeline(const TableView& top, Case& c, const std::vector<
   const bool weather = top.child("environment").has("weather");
   for (const std::string& o : overrides) {
     const std::string key = o.substr(0, o.find('='));
+    // A segment's static contact (segments.NAME.surface.contact_fraction) holds until an event changes it.
+    for (const SegmentSpec& s : c.segments) {
+      if (key != "segments." + s.name + ".surface.contact_fraction") continue;
+      for (const EventSpec& e : c.events) {
+        if (std::none_of(e.contact.begin(), e.contact.end(),
+                         [&](const ContactTarget& t) { return t.segment == s.name || t.segment == "all"; }))
+          continue;
+        if (e.at <= 0.0)
+          throw TimelineOverrideError(fmt::format(
+              "{}: {}: the value given on the command line ({}) would never take effect: an [[events]] entry sets the "
+              "contact of {} from t = 0 s. Change the value in the timeline instead (its "
+              "events.N.surface.{}.contact_fraction), or remove it there",
+              c.sourceFile, key, o.substr(o.find('=') + 1), s.name, s.name));
+        c.warnings.push_back(fmt::format("{} = {} (command line) holds until t = {:g} s, when an [[events]] entry "
+                                         "changes it (the timeline takes over from its first change)",
+                                         key, o.substr(o.find('=') + 1), e.at));
+        break;
+      }
+    }
     if (key.rfind("environment.", 0) != 0) continue;
     const std::string name = key.substr(std::string("environment.").size());
     for (std::size_t v = 0; v < kEnvironmentVariables; ++v) {
@@ -907,7 +926,7 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   }
 
   c.environment = readEnvironment(top);
-  c.events = readEvents(reader, top, root, c.run.duration);
+  c.events = readEvents(reader, top, root, c.run.duration, c.segments);
   for (std::size_t i = 0; i < c.events.size(); ++i) {
     for (const VasomotorTarget& v : c.events[i].vasomotor)
       if (v.segment != "all" && !names.count(v.segment))

@@ -201,7 +201,8 @@ constexpr std::array params = {
     Param{"segments[].surface.contact_fraction", K::Number, "", "0", 0, 1, false, "",
           "Share of the surface in contact with the substrate (conduction at substrate_conductance); the rest is "
           "exposed to the medium. On a coated segment the contact patch lies on the lateral surface, below 1: the "
-          "coat over it conducts from the skin to the substrate, apart from the air-side coat; end faces are exposed."},
+          "coat over it conducts from the skin to the substrate, apart from the air-side coat; end faces are exposed. "
+          "Holds for the whole run unless [[events]] change it (events[].surface)."},
     Param{"segments[].surface.contact_coat_thickness", K::Quantity, "m", "", 0, 1, true, "",
           "A coated segment's coat under the contact patch (fur or feathers compressed by the body's weight): the "
           "contact column's coat thickness; default the coat's. At most the coat's thickness."},
@@ -251,7 +252,8 @@ constexpr std::array params = {
     Param{"environment.substrate_temperature", K::Quantity, "K", "", tMin, tMax, false, "",
           "Ground or perch temperature; default: the medium temperature."},
     Param{"environment.substrate_conductance", K::Quantity, "W/(m2 K)", "", 0, 1e6, true, "",
-          "Contact conductance of the substrate per contact area; required when a contact_fraction is > 0."},
+          "Contact conductance of the substrate per contact area; required when a contact_fraction is > 0 (given "
+          "for a segment or by an event)."},
     Param{"environment.weather", K::Text, "", "", 0, 0, false, "",
           "CSV file (relative to the case) of values over time, linearly interpolated between rows: header "
           "`time [h], temperature [degC], speed [m/s], ...` with [[events]] environment keys and optional units."},
@@ -306,6 +308,12 @@ constexpr std::array params = {
     Param{"events[].vasomotor.*.shunt", K::Number, "", "", 0, 1, false, "", "Open fraction of the shunts."},
     Param{"events[].vasomotor.*.superficial_return", K::Number, "", "", 0, 1, false, "",
           "Share of tissue venous return taking the superficial veins."},
+    Param{"events[].surface", K::NamedTables, "", "", 0, 0, false, "",
+          "Substrate contact per segment name, or `all`, from this event on (a step: not in an event with a ramp): "
+          "`surface = { feet = { contact_fraction = 0 } }` (a bird that takes off, an animal that lies down)."},
+    Param{"events[].surface.*.contact_fraction", K::Number, "", "", 0, 1, false, "",
+          "As segments[].surface.contact_fraction (a coated segment below 1), which holds until the first event "
+          "that changes it."},
     Param{"events[].metabolism", K::Table, "", "", 0, 0, false, "", "Metabolic multipliers."},
     Param{"events[].metabolism.activity", K::Number, "", "", 0, 50, false, "", "Activity multiplier (as [body] activity)."},
     Param{"events[].metabolism.hypometabolism", K::Number, "", "", 0, 1, false, "",

@@ -81,7 +81,16 @@ EnvironmentModel::EnvironmentModel(const Case& c, Network& network) : case_(c) {
     surface.volumeLength = std::cbrt(outerVolume(s));
     surface.width = s.width;
     surfaces_.push_back(surface);
+    maxContact_.push_back(s.surface.contactFraction);
   }
+  contactEvents_.assign(case_.segments.size(), 0);
+  for (const EventSpec& e : case_.events)
+    for (const ContactTarget& t : e.contact)
+      for (Index g = 0; g < case_.segments.size(); ++g)
+        if (t.segment == "all" || t.segment == case_.segments[g].name) {
+          maxContact_[g] = std::max(maxContact_[g], t.contactFraction);
+          contactEvents_[g] = 1;
+        }
 
   for (const EventSpec& e : case_.events)
     for (double t : {e.at, e.at + e.ramp})
@@ -107,6 +116,8 @@ void EnvironmentModel::setInterval(std::size_t interval) {
   interval_ = interval;
   const EnvironmentSpec& env = case_.environment;
   medium_ = env.medium;
+  contact_.resize(case_.segments.size());
+  for (Index g = 0; g < case_.segments.size(); ++g) contact_[g] = case_.segments[g].surface.contactFraction;
   for (std::size_t v = 0; v < kEnvironmentVariables; ++v) {
     offset_[v] = env.value(static_cast<V>(v));
     slope_[v] = 0.0;
@@ -119,6 +130,9 @@ void EnvironmentModel::setInterval(std::size_t interval) {
     const double end = e.at + e.ramp;
     const bool complete = e.ramp == 0.0 || (end < case_.run.duration && interval >= breakpointsUpTo(end));
     if (e.medium) medium_ = *e.medium;  // always a step (the reader rejects a ramp)
+    for (const ContactTarget& t : e.contact)  // steps ("all" before named segments: the reader's order)
+      for (Index g = 0; g < case_.segments.size(); ++g)
+        if (t.segment == "all" || t.segment == case_.segments[g].name) contact_[g] = t.contactFraction;
     for (const EnvironmentValue& target : e.environment) {
       const std::size_t v = index(target.variable);
       if (complete) {
@@ -244,14 +258,18 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
   const SegmentSurface& surface = surfaces_[f.segment];
   const SurfaceSpec& spec = case_.segments[f.segment].surface;
   const double hSubstrate = case_.environment.substrateConductance.value_or(0.0);
+  const double contact = contact_[f.segment];  // f_c of the current interval
   if (f.contact == FaceContact::Column) {
-    // A coat's contact column (Body::addLateralFace): the whole face touches the substrate, q = h_sub A (T_sub - T_s).
-    channelHeat[substrateChannel_] += hSubstrate * f.area * (value(V::SubstrateTemperature, time) - Ts);
-    channelDerivative[substrateChannel_] -= hSubstrate * f.area;
+    // A coat's contact column (Body::addLateralFace), built for the run's largest contact f_max: the whole face
+    // touches the substrate, q = h_sub A (T_sub - T_s), over f_c / f_max of its area in this interval (exactly the
+    // built area when the contact never changes: f_c / f_c = 1).
+    const double area = f.area * (contact / maxContact_[f.segment]);
+    channelHeat[substrateChannel_] += hSubstrate * area * (value(V::SubstrateTemperature, time) - Ts);
+    channelDerivative[substrateChannel_] -= hSubstrate * area;
     return;
   }
   const FaceFluid fl = fluid(f.segment, time);
-  const double exposed = f.contact == FaceContact::None ? f.area : (1.0 - spec.contactFraction) * f.area;  // A_e [m2]
+  const double exposed = f.contact == FaceContact::None ? f.area : (1.0 - contact) * f.area;  // A_e [m2]
 
   // Convection, Newton's law: q = h A_e (T_f - T_s), dq/dT_s = A_e (h' (T_f - T_s) - h).
   double dh = 0.0;
@@ -298,8 +316,8 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
   }
 
   // Conduction to the substrate over the contact area: q = h_sub f_c A (T_sub - T_s).
-  if (spec.contactFraction > 0.0 && f.contact == FaceContact::Shared) {
-    const double conductance = hSubstrate * spec.contactFraction * f.area;
+  if (contact > 0.0 && f.contact == FaceContact::Shared) {
+    const double conductance = hSubstrate * contact * f.area;
     channelHeat[substrateChannel_] += conductance * (value(V::SubstrateTemperature, time) - Ts);
     channelDerivative[substrateChannel_] -= conductance;
   }

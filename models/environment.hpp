@@ -61,9 +61,10 @@ class EnvironmentModel : public SurfaceModel {
   //!   solar       alpha S exposure A on lateral faces (air only; end faces are parallel to the beam);
   //!   evaporation -w h_m [rho_v,sat(T_s) - RH rho_v,sat(T_a)] L_v A_e (air only; Chilton-Colburn analogy);
   //!   substrate   h_sub f_c A (T_sub - T_s);
-  //! with A_e = (1 - f_c) A the exposed area and f_c the contact fraction (FaceContact::Shared). A Column face
-  //! has only the substrate term over its whole area, an Elsewhere face A_e = (1 - f_c) A and no substrate term, a
-  //! None face A_e = A and no substrate term.
+  //! with A_e = (1 - f_c) A the exposed area and f_c the contact fraction of the current interval
+  //! (contactFraction; FaceContact::Shared). A Column face, built for the largest contact of the run
+  //! (maxContactFraction), has only the substrate term over f_c / f_max of its area, an Elsewhere face
+  //! A_e = (1 - f_c) A and no substrate term, a None face A_e = A and no substrate term.
   void faceHeat(Index face, double faceTemperature, double time, std::span<double> channelHeat,
                 std::span<double> channelDerivative) const override;
   //! Reports (budgets, mean coefficients at outputs) read the per-face coefficient cache but do not write it.
@@ -88,6 +89,13 @@ class EnvironmentModel : public SurfaceModel {
   //! True when the segment is in water at time t in the current interval (the medium steps only at
   //! breakpoints, so it is constant within an interval).
   bool immersed(Index segment, double time) const;
+  //! Share of a segment's surface touching the substrate in the current interval: its surface.contact_fraction
+  //! until the first [[events]] entry that changes it (events[].surface) [1].
+  double contactFraction(Index segment) const { return contact_[segment]; }
+  //! The largest contact fraction of a segment over the run (the body is built for it; intervals scale it) [1].
+  double maxContactFraction(Index segment) const { return maxContact_[segment]; }
+  //! Some [[events]] entry sets the segment's contact (it may change during the run).
+  bool contactChanges(Index segment) const { return contactEvents_[segment] != 0; }
   //! The medium around segments with immersion "body" in the current interval.
   SurroundingMedium medium() const { return medium_; }
   //! The fluid around a segment's faces at time t in the current interval.
@@ -134,6 +142,9 @@ class EnvironmentModel : public SurfaceModel {
   SurroundingMedium medium_ = SurroundingMedium::Air, initialMedium_ = SurroundingMedium::Air;
   //! In the current interval every variable is linear in time: offset + slope t [SI, SI/s].
   std::array<double, kEnvironmentVariables> offset_{}, slope_{};
+  //! Per segment: contact fraction of the current interval, its largest value over the run, set by some event.
+  std::vector<double> contact_, maxContact_;
+  std::vector<char> contactEvents_;
   mutable std::vector<std::string> warnings_;
   //! Last correlation result per face and the fluid it was for: the face Newton solve ends with a call a few nK
   //! from its last iterate, and the next right-hand side starts from the same face temperature.

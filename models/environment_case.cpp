@@ -166,6 +166,16 @@ EnvironmentSpec readEnvironment(const TableView& root) {
           env.missing("substrate_conductance");
       }
     }
+    // ... or an event that sets a contact (events[].surface.SEGMENT.contact_fraction), read leniently here.
+    if (const toml::node* events = root.node("events"); events && events->is_array())
+      for (const toml::node& event : *events->as_array()) {
+        const toml::table* surface = event.as_table() ? (*event.as_table())["surface"].as_table() : nullptr;
+        if (surface)
+          for (auto&& [name, target] : *surface) {
+            auto fraction = target.as_table() ? (*target.as_table())["contact_fraction"].value<double>() : std::nullopt;
+            if (fraction && *fraction > 0.0) env.missing("substrate_conductance");
+          }
+      }
   }
   return e;
 }
@@ -383,6 +393,40 @@ void readPhysiologyEvent(const TableView& view, EventSpec& e) {
 
 namespace {
 
+//! Substrate contact steps of one [[events]] entry: `surface = { SEGMENT = { contact_fraction = F } }`, SEGMENT a
+//! segment's name or "all"; F in the static key's range (a coated segment below 1); never in an event with a ramp.
+void readContactEvent(const TableView& view, const std::vector<SegmentSpec>& segments, EventSpec& e) {
+  const toml::node* node = view.node("surface");
+  if (!node) return;
+  for (auto&& [key, child] : *node->as_table()) {
+    const std::string name(key.str());
+    TableView t = view.namedChild("surface", name);
+    const auto segment = std::find_if(segments.begin(), segments.end(), [&](const SegmentSpec& s) { return s.name == name; });
+    if (name != "all" && segment == segments.end()) {
+      std::vector<std::string> names;
+      for (const SegmentSpec& s : segments) names.push_back(s.name);
+      view.child("surface").fail(name, fmt::format("no segment named \"{}\" (segments: {}, or all)", name,
+                                                   fmt::join(names, ", ")));
+    }
+    if (!t.has("contact_fraction")) t.missing("contact_fraction");
+    const double fraction = t.number("contact_fraction");
+    if (e.ramp > 0.0)
+      t.fail("contact_fraction", fmt::format("contact changes by a step, not over ramp = {:g} s; give the change of "
+                                             "contact an event of its own without a ramp",
+                                             e.ramp));
+    if (fraction >= 1.0)
+      for (const SegmentSpec& s : segments)
+        if (s.coat && (name == "all" || s.name == name))
+          t.fail("contact_fraction", fmt::format("segment {} has a coat, which needs part of it exposed: below 1 (the "
+                                                 "coat over the contact patch conducts to the substrate, the rest "
+                                                 "meets the medium)",
+                                                 s.name));
+    e.contact.push_back({name, fraction});
+  }
+  // "all" first: a named segment's value wins within the event (as vasomotor targets).
+  std::stable_partition(e.contact.begin(), e.contact.end(), [](const ContactTarget& c) { return c.segment == "all"; });
+}
+
 //! The values an event changes, as key paths (before followers are added).
 std::vector<std::string> changedKeys(const EventSpec& e) {
   std::vector<std::string> keys;
@@ -393,6 +437,7 @@ std::vector<std::string> changedKeys(const EventSpec& e) {
     if (v.shunt) keys.push_back("vasomotor." + v.segment + ".shunt");
     if (v.superficialReturn) keys.push_back("vasomotor." + v.segment + ".superficial_return");
   }
+  for (const ContactTarget& c : e.contact) keys.push_back("surface." + c.segment + ".contact_fraction");
   if (e.activity) keys.emplace_back("metabolism.activity");
   if (e.hypometabolism) keys.emplace_back("metabolism.hypometabolism");
   if (e.bradycardia) keys.emplace_back("circulation.bradycardia");
@@ -420,6 +465,16 @@ void refuseSimultaneousChanges(const CaseReader& reader, const std::vector<Event
     time = read[index].at;
     for (const std::string& key : changedKeys(read[index])) {
       auto [it, inserted] = atThisTime.emplace(key, index);
+      // Contact of "all" and of a named segment in two events at one time: the same value twice (within one event
+      // the named segment wins, as for vasomotor targets).
+      if (inserted && key.rfind("surface.", 0) == 0)
+        for (auto other = atThisTime.lower_bound("surface."); other != atThisTime.end() &&
+                                                             other->first.rfind("surface.", 0) == 0; ++other)
+          if (other->second != index && (key == "surface.all.contact_fraction" ||
+                                         other->first == "surface.all.contact_fraction")) {
+            it = other;
+            inserted = false;
+          }
       if (inserted) continue;
       const EventSource& s = sources[index];
       reader.fail(s.node, s.path,
@@ -433,7 +488,7 @@ void refuseSimultaneousChanges(const CaseReader& reader, const std::vector<Event
 }  // namespace
 
 std::vector<EventSpec> readEvents(const CaseReader& reader, const TableView& root, const toml::table& rootTable,
-                                  double duration) {
+                                  double duration, const std::vector<SegmentSpec>& segments) {
   TableView base = root.child("environment");
   EnvironmentSpec media;
   media.medium = mediumOf(base.choice("medium"));
@@ -470,6 +525,7 @@ std::vector<EventSpec> readEvents(const CaseReader& reader, const TableView& roo
         e.environment.push_back({v.variable, env.quantity(v.key)});
       }
       readPhysiologyEvent(view, e);
+      readContactEvent(view, segments, e);
       read.push_back(std::move(e));
       sources.push_back({view.node("at"), view.path("at"), view.display()});
     }
@@ -580,6 +636,9 @@ toml::array eventsToml(const std::vector<EventSpec>& events) {
       vasomotor.insert(v.segment, t);
     }
     if (!vasomotor.empty()) event.insert("vasomotor", vasomotor);
+    toml::table surface;
+    for (const ContactTarget& c : e.contact) surface.insert(c.segment, toml::table{{"contact_fraction", c.contactFraction}});
+    if (!surface.empty()) event.insert("surface", surface);
     toml::table metabolism;
     if (e.activity) metabolism.insert("activity", *e.activity);
     if (e.hypometabolism) metabolism.insert("hypometabolism", *e.hypometabolism);

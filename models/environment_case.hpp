@@ -13,9 +13,10 @@ class TableView;
 EnvironmentSpec readEnvironment(const TableView& root);
 //! [segments.surface] of one segment (`segment` is the segment's table view; `shape` its shape).
 SurfaceSpec readSurface(const TableView& segment, Shape shape);
-//! [[events]] of the case root, sorted by time and checked against the run duration.
+//! [[events]] of the case root, sorted by time and checked against the run duration and the `segments` (the
+//! segments an event's surface contact names).
 std::vector<EventSpec> readEvents(const CaseReader& reader, const TableView& root, const toml::table& rootTable,
-                                  double duration);
+                                  double duration, const std::vector<SegmentSpec>& segments);
 
 //! Resolved-case TOML of the same parts.
 toml::table environmentToml(const EnvironmentSpec& environment);

@@ -104,6 +104,12 @@ struct VasomotorTarget {
   std::optional<double> skinPerfusion, shunt, superficialReturn;
 };
 
+//! Substrate contact of one segment set by one event ("all": every segment): a step, never ramped.
+struct ContactTarget {
+  std::string segment;
+  double contactFraction = 0.0;  //!< share of the surface touching the substrate from the event on [1]
+};
+
 //! Controller change of one event.
 struct ControlTarget {
   std::string controller;  //!< vasomotor, shivering, panting or the NAME of a [control.local.NAME]
@@ -123,6 +129,9 @@ struct EventSpec {
   //! A step of the medium (never ramped); the event then also gives the new medium's temperature and speed.
   std::optional<SurroundingMedium> medium;
   std::vector<VasomotorTarget> vasomotor;
+  //! `surface = { SEGMENT = { contact_fraction = F } }`: steps of substrate contact (a named segment's value wins
+  //! over "all" within one event).
+  std::vector<ContactTarget> contact;
   std::optional<double> activity, hypometabolism, bradycardia, panting;
   std::vector<ControlTarget> control;
   std::string label;   //!< for figures
