@@ -22,6 +22,7 @@
 #include <vector>
 
 #include "test_common.hpp"
+#include "test_lumped_sphere.hpp"
 #include "test_support.hpp"
 #include "test_support_body.hpp"
 #include "drivers/simulation.hpp"
@@ -40,8 +41,9 @@ struct Run {
   std::vector<double> time;
   std::vector<std::vector<double>> data;
 };
-Run runCase(const std::string& text, const std::vector<std::string>& datasets) {
-  Body body(loadCaseFromString(text, "contact-events.toml"));
+Run runCase(const std::string& text, const std::vector<std::string>& datasets,
+            const std::vector<std::string>& overrides = {}) {
+  Body body(loadCaseFromString(text, "contact-events.toml", overrides));
   const std::filesystem::path out =
       std::filesystem::temp_directory_path() / ("thermorph-contact-events-" + std::to_string(::getpid()) + ".h5");
   RunOptions options;
@@ -55,62 +57,23 @@ Run runCase(const std::string& text, const std::vector<std::string>& datasets) {
   return r;
 }
 
-// Lumped sphere: R = 2 cm, k = 1000 W/(m K), rho c = 1e5 J/(m3 K): Bi = h_eff R / k <= 25 * 0.02 / 1000 = 5e-4.
-// Air and substrate at 10 degC, start at 40 degC; fixed h = 10 (no radiation: the default emissivity with a fixed
-// coefficient is 0), h_sub = 40, contact 0.5 until 60 s, then 0.
-const std::string lumpedOnOff = R"toml(
-title = "lumped sphere, contact stepped off"
-[run]
-duration = "300 s"
-output_interval = "10 s"
-initial_temperature = "40 degC"
-rtol = 1e-9
-atol = 1e-9
-[tissues.lump]
-base = "muscle"
-conductivity = "1000 W/(m K)"
-density = "1000 kg/m3"
-specific_heat = "100 J/(kg K)"
-metabolic_heat = "0 W/m3"
-perfusion = "0 1/s"
-[[segments]]
-name = "ball"
-shape = "sphere"
-layers = [{ tissue = "lump", thickness = "2 cm", cells = 1 }]
-surface = { contact_fraction = 0.5 }
-[environment]
-temperature = "10 degC"
-convection = "10 W/(m2 K)"
-substrate_conductance = "40 W/(m2 K)"
-[[events]]
-at = "60 s"
-surface = { ball = { contact_fraction = 0 } }
-)toml";
+// The lumped sphere of tests/test_lumped_sphere.hpp (R = 2 cm, k = 1000 W/(m K)) with rho c = 1e5 J/(m3 K):
+// Bi = h_eff R / k <= 25 * 0.02 / 1000 = 5e-4. Air and substrate at 10 degC, start at 40 degC; fixed h = 10 (no
+// radiation: the default emissivity with a fixed coefficient is 0), h_sub = 40, contact 0.5 until 60 s, then 0.
+const std::string lumpedOnOff =
+    std::string(testing::lumpedSphere) + "[[events]]\nat = \"60 s\"\nsurface = { ball = { contact_fraction = 0 } }\n";
+const std::vector<std::string> lumpedOverrides = {
+    "run.duration=300",        "run.rtol=1e-9",
+    "run.atol=1e-9",           "tissues.lump.density=1000",
+    "environment.convection=10", "environment.substrate_conductance=40",
+    "segments.ball.surface.contact_fraction=0.5"};
 
-//! The diving leg: sea water until 600 s, then air; `surface` and `events` are TOML added to the segment and after.
-std::string divingLeg(const std::string& surface, const std::string& events) {
-  return R"toml(
-[run]
-duration = "20 min"
-output_interval = "5 min"
-[circulation]
-fixed_arterial_temperature = "37 degC"
-[[segments]]
-name = "leg"
-shape = "cylinder"
-length = "10 cm"
-axial_cells = 2
-layers = [{ tissue = "muscle", thickness = "1 cm", cells = 3 }, { tissue = "skin", thickness = "0.2 cm", cells = 1 }]
-)toml" + surface + R"toml(
-[environment]
-medium = "sea_water"
-temperature = "2 degC"
-speed = "1 m/s"
-substrate_conductance = "100 W/(m2 K)"
-[[events]]
-at = "10 min"
-environment = { medium = "air", temperature = "-6 degC", speed = "5 m/s" }
-)toml" + events;
+//! The diver of tests/test_support.hpp (a bare leg in sea water, in air from 10 to 20 min) standing on the substrate.
+const std::vector<std::string> diverContact = {"segments.leg.surface.contact_fraction=0.4",
+                                               "environment.substrate_conductance=100"};
+std::vector<std::string> diverWith(std::vector<std::string> more) {
+  more.insert(more.begin(), diverContact.begin(), diverContact.end());
+  return more;
 }
 
 bool hasWarning(const Body& body, const std::string& text) {
@@ -122,7 +85,7 @@ bool hasWarning(const Body& body, const std::string& text) {
 }  // namespace
 
 TEST_CASE("Contact stepped off by an event: Newton cooling with each phase's time constant", "[environment][contact]") {
-  const Run r = runCase(lumpedOnOff, {"/segments/ball/temperature"});
+  const Run r = runCase(lumpedOnOff, {"/segments/ball/temperature"}, lumpedOverrides);
   REQUIRE(r.summary.complete);
   const std::vector<double>& T = r.data[0];
   REQUIRE(T.size() == r.time.size());
@@ -283,25 +246,25 @@ TEST_CASE("Contact events: input errors name file, line and key path; the resolv
 }
 
 TEST_CASE("A static contact that holds while the segment's fluid changes is warned about", "[environment][contact]") {
-  const std::string warning = "segment leg: contact_fraction 0.4 holds in water (0-600 s) and in air (600-1200 s)";
-  // A diver's leg standing on the substrate in the sea and on the ice: warned.
-  Body diver(loadCaseFromString(divingLeg("surface = { contact_fraction = 0.4 }", ""), "diver.toml"));
+  const std::string warning =
+      "segment leg: contact_fraction 0.4 holds in water (0-600 s, 1200-1800 s) and in air (600-1200 s)";
+  // A diver's leg standing on the substrate in the sea and out of it: warned.
+  Body diver(loadCaseFromString(testing::divingLeg, "diver.toml", diverContact));
   for (const std::string& w : diver.warnings()) std::printf("[contact events] warning: %s\n", w.c_str());
   CHECK(hasWarning(diver, warning));
   CHECK(hasWarning(diver, "surface = { leg = { contact_fraction = 0 } }"));
-  // Its contact given by events: not warned.
-  Body lands(loadCaseFromString(
-      divingLeg("surface = { contact_fraction = 0 }",
-                "[[events]]\nat = \"10 min\"\nsurface = { leg = { contact_fraction = 0.4 } }\n"),
-      "lands.toml"));
-  CHECK_FALSE(hasWarning(lands, "contact_fraction"));
-  // A wader's leg, always in the pond, on the mud: its fluid never changes, not warned.
-  Body wader(loadCaseFromString(divingLeg("surface = { contact_fraction = 0.4, immersion = \"always\" }", ""),
-                                "wader.toml"));
-  CHECK_FALSE(hasWarning(wader, "contact_fraction"));
+  // Its contact given by an event: not warned.
+  Body lands(loadCaseFromString(testing::divingLeg, "lands.toml",
+                                diverWith({"events.0.surface.leg.contact_fraction=0.2"})));
+  CHECK_FALSE(hasWarning(lands, "holds in water"));
+  // (the --set of the static contact holds until that event, said as for environment keys)
+  CHECK(hasWarning(lands, "segments.leg.surface.contact_fraction = 0.4 (command line) holds until t = 600 s"));
+  // A wader's leg, always in water, on the mud: its fluid never changes, not warned.
+  Body wader(loadCaseFromString(testing::divingLeg, "wader.toml", diverWith({"segments.leg.surface.immersion=always"})));
+  CHECK_FALSE(hasWarning(wader, "holds in water"));
   Body pond(loadCaseFromString(
       testing::isothermalFurredCylinder(R"(surface = { contact_fraction = 0.4, immersion = "always" })",
                                         "substrate_conductance = \"50 W/(m2 K)\"\n"),
       "pond.toml"));
-  CHECK_FALSE(hasWarning(pond, "contact_fraction"));
+  CHECK_FALSE(hasWarning(pond, "holds in water"));
 }

@@ -30,37 +30,8 @@ using std::numbers::pi;
 
 constexpr double kZero = 273.15;
 
-// A bare cylinder (radius 1.2 cm, length 10 cm, one axial cell, insulated ends: one exterior face of area
-// 2 pi r L) with a wet skin in the sun, arterial blood pinned at 37 degC. It starts in sea water at 4 degC
-// (current 0.5 m/s), surfaces at 10 min into air at 15 degC (wind 1 m/s) and dives again at 20 min.
-const std::string diver = R"toml(
-[run]
-duration = "30 min"
-output_interval = "5 min"
-[circulation]
-fixed_arterial_temperature = "37 degC"
-[[segments]]
-name = "leg"
-shape = "cylinder"
-length = "10 cm"
-axial_cells = 1
-layers = [{ tissue = "muscle", thickness = "1 cm", cells = 3 }, { tissue = "skin", thickness = "0.2 cm", cells = 1 }]
-surface = { ends = "insulated", wetted_fraction = 0.5 }
-[environment]
-medium = "sea_water"
-temperature = "4 degC"
-speed = "0.5 m/s"
-solar_irradiance = "300 W/m2"
-relative_humidity = 0.6
-[[events]]
-at = "10 min"
-label = "surface"
-environment = { medium = "air", temperature = "15 degC", speed = "1 m/s" }
-[[events]]
-at = "20 min"
-label = "dive 2"
-environment = { medium = "sea_water", temperature = "4 degC", speed = "0.5 m/s" }
-)toml";
+// The diver: testing::divingLeg (tests/test_support.hpp).
+const std::string& diver = testing::divingLeg;
 
 constexpr double kRadius = 0.012, kLength = 0.10;
 
