@@ -76,10 +76,13 @@ namespace {
 // and SUNDIALS' own routine took 156 instructions per row and solve of a tridiagonal block, this one ~15.
 // tests/test_newton_solver.cpp checks that both give bit-for-bit equal factors and solutions.
 // Column j starts at a + j ldim (ldim = smu + ml + 1; no array of column pointers: 8 bytes per node less) and
-// (i, j) is at a[j ldim + i - j + smu]; pivots in 32 bits. Returns 0, or k + 1 for a zero pivot in column k.
+// (i, j) is at a[j ldim + i - j + smu]; the pivot row l of column k is stored as its offset l - k (0 .. ml, one
+// byte: the band path is taken only for ml <= kMaxPivotOffset). Returns 0, or k + 1 for a zero pivot in column k.
 using BandIndex = std::ptrdiff_t;
+using PivotOffset = std::uint8_t;
+constexpr BandIndex kMaxPivotOffset = 255;
 BandIndex bandFactor(double* a, BandIndex ldim, BandIndex n, BandIndex mu, BandIndex ml, BandIndex smu,
-                     std::int32_t* p) {
+                     PivotOffset* p) {
   // Zero the first smu - mu rows (the room for the pivots' fill).
   for (BandIndex c = 0; c < n; ++c)
     for (BandIndex r = 0; r < smu - mu; ++r) a[c * ldim + r] = 0.0;
@@ -97,7 +100,7 @@ BandIndex bandFactor(double* a, BandIndex ldim, BandIndex n, BandIndex mu, BandI
         max = std::abs(subDiagK[i - k - 1]);
       }
     BandIndex storageL = l - k + smu;
-    *p = static_cast<std::int32_t>(l);
+    *p = static_cast<PivotOffset>(l - k);
     if (colK[storageL] == 0.0) return k + 1;
     const bool swap = l != k;
     if (swap) {
@@ -125,17 +128,17 @@ BandIndex bandFactor(double* a, BandIndex ldim, BandIndex n, BandIndex mu, BandI
       }
     }
   }
-  *p = static_cast<std::int32_t>(n - 1);
+  *p = 0;
   if (a[(n - 1) * ldim + smu] == 0.0) return n;
   return 0;
 }
 
 //! b := A^-1 b from bandFactor's LU (SUNDlsMat_bandGBTRS).
-void bandSolve(const double* a, BandIndex ldim, BandIndex n, BandIndex smu, BandIndex ml, const std::int32_t* p,
+void bandSolve(const double* a, BandIndex ldim, BandIndex n, BandIndex smu, BandIndex ml, const PivotOffset* p,
                double* b) {
   // L y = P b
   for (BandIndex k = 0; k < n - 1; ++k) {
-    const BandIndex l = p[k];
+    const BandIndex l = k + p[k];
     const double mult = b[l];
     if (l != k) {
       b[l] = b[k];
@@ -170,7 +173,7 @@ struct NewtonSolver::Band {
   Index size = 0;                               //!< m
   Index lower = 0, upper = 0, storedUpper = 0;  //!< ml, mu of B, smu = min(m - 1, mu + ml) (room for the pivots' fill)
   std::vector<double> data;                     //!< column j: rows j - smu .. j + ml, (smu + ml + 1) per column
-  std::vector<std::int32_t> pivots;
+  std::vector<PivotOffset> pivots;  //!< pivot row of column k minus k
   std::vector<Index> coupled;                   //!< border components (0-based from m) with entries in rows < m
   std::vector<double> solved;                   //!< B^-1 E for the coupled columns [coupled x m], column by column
   std::vector<double> schur;                    //!< S, then its LU [k x k], column-major
@@ -180,7 +183,7 @@ struct NewtonSolver::Band {
   Index columnLength() const { return storedUpper + lower + 1; }
   Index border(Index f) const { return f - size; }
   double bytes(Index f) const {
-    return static_cast<double>(size) * static_cast<double>(columnLength() * sizeof(double) + sizeof(std::int32_t) +
+    return static_cast<double>(size) * static_cast<double>(columnLength() * sizeof(double) + sizeof(PivotOffset) +
                                                          coupled.size() * sizeof(double)) +
            static_cast<double>(border(f) * border(f) * sizeof(double));
   }
@@ -261,7 +264,8 @@ NewtonSolver::NewtonSolver(const SparsePattern& pattern, Index factored, int sca
     }
     if (!best || b->bytes(factored) < best->bytes(factored)) best = std::move(b);
   }
-  if (best && best->bytes(factored) <= 24.0 * static_cast<double>(entries)) {
+  if (best && best->bytes(factored) <= 24.0 * static_cast<double>(entries) &&
+      static_cast<BandIndex>(best->lower) <= kMaxPivotOffset) {
     band_ = std::move(best);
     Band& b = *band_;
     b.data.resize(b.size * b.columnLength());
