@@ -4,6 +4,7 @@
 #include <hdf5_hl.h>
 #include <libdeflate.h>
 
+#include <algorithm>
 #include <cstring>
 
 #include <filesystem>
@@ -88,6 +89,10 @@ ResultsFile::ResultsFile(std::string finalPath) : finalPath_(std::move(finalPath
 
 //! The compressed series' filters: HDF5's shuffle (byte k of every element together) and deflate at this level.
 constexpr int deflateLevel = 1;
+//! Values per chunk of a compressed series (64 KiB): time points of a field are gathered up to it.
+constexpr std::uint64_t kChunkValues = 8192;
+//! A field of more values than this per time point is written in chunks of part of a time point (256 KiB at most).
+constexpr std::uint64_t kSplitValues = 32768;
 
 struct ResultsFile::ChunkCompressor {
   libdeflate_compressor* compressor = libdeflate_alloc_compressor(deflateLevel);
@@ -241,9 +246,23 @@ std::size_t ResultsFile::createDataset(const std::string& path, const std::vecto
     dims.push_back(s);
     maxDims.push_back(s);
   }
-  // Chunks of about 64 KiB: several time points of the whole field.
+  // Chunks of about 64 KiB (8192 values): several time points of the whole field, or one time point of it; a field of
+  // more than 32 768 values per time point (256 KiB) is cut into chunks of at most that (the first dimensions cut
+  // first: a chunk holds whole rows of the last dimension where one fits). One time point of a field of 10^5 cells
+  // in one chunk needed two filter buffers of 0.8 MB each (shuffle, deflate) beside the integrator while it was
+  // written, the peak of a run at 10^5 nodes. Chunks of 32 768 values make its file 4 % larger (the radial run of
+  // peer_table.sh: 25.2 -> 26.2 MB; chunks of 8192 values: 27.5 MB).
   std::uint64_t perPoint = std::accumulate(shape.begin(), shape.end(), std::uint64_t{1}, std::multiplies<>());
-  chunk.push_back(std::max<hsize_t>(1, 8192 / std::max<std::uint64_t>(perPoint, 1)));
+  chunk.push_back(std::max<hsize_t>(1, kChunkValues / std::max<std::uint64_t>(perPoint, 1)));
+  std::vector<std::uint64_t> chunkShape(shape);
+  if (perPoint > kSplitValues) {
+    std::uint64_t rest = perPoint;  // values in one step of dimension d (the product of the later extents)
+    for (std::size_t d = 0; d < shape.size(); ++d) {
+      rest /= shape[d];
+      chunkShape[d] = std::clamp<std::uint64_t>(kSplitValues / std::max<std::uint64_t>(rest, 1), 1, shape[d]);
+      if (chunkShape[d] * rest <= kSplitValues) break;
+    }
+  }
   // All the expected points at most 128 KiB: kept in memory, created and written whole at commit (expectPoints).
   const bool small = expectedPoints_ > 0 && std::max<std::uint64_t>(perPoint, 1) * expectedPoints_ <= 16384;
   if (small) {
@@ -257,7 +276,7 @@ std::size_t ResultsFile::createDataset(const std::string& path, const std::vecto
     series_.push_back(std::move(s));
     return series_.size() - 1;
   }
-  for (auto s : shape) chunk.push_back(s);
+  for (auto c : chunkShape) chunk.push_back(c);
   hid_t space = H5Screate_simple(static_cast<int>(dims.size()), dims.data(), maxDims.data());
   hid_t plist = H5Pcreate(H5P_DATASET_CREATE);
   H5Pset_chunk(plist, static_cast<int>(chunk.size()), chunk.data());
@@ -272,7 +291,7 @@ std::size_t ResultsFile::createDataset(const std::string& path, const std::vecto
   H5Pclose(plist);
   H5Sclose(space);
   H5Gclose(group);
-  series_.push_back({ds, shape, 0, chunk[0]});
+  series_.push_back({ds, shape, 0, chunk[0], chunkShape});
   return series_.size() - 1;
 }
 
@@ -472,42 +491,73 @@ void ResultsFile::writeChunks(Series& s, std::span<const double> points, std::ui
   if (!compressor_) compressor_ = std::make_unique<ChunkCompressor>();
   ChunkCompressor& c = *compressor_;
   if (!c.compressor) throw std::runtime_error("cannot allocate a deflate compressor");
-  const std::size_t elements = s.chunkRows * perPoint, bytes = elements * sizeof(double);
+  // The chunk's extents in the field's dimensions, its lines along the last one (a scalar series: lines of one value).
+  const std::size_t rank = s.shape.size();
+  const std::vector<std::uint64_t>& extent = s.chunkShape.empty() ? s.shape : s.chunkShape;
+  const std::uint64_t line = rank == 0 ? 1 : std::max<std::uint64_t>(1, extent[rank - 1]);
+  const std::uint64_t perChunkPoint = std::max<std::uint64_t>(
+      1, std::accumulate(extent.begin(), extent.end(), std::uint64_t{1}, std::multiplies<>()));
+  const std::uint64_t lines = std::max<std::uint64_t>(1, perChunkPoint / line);
+  const std::size_t elements = s.chunkRows * perChunkPoint, bytes = elements * sizeof(double);
   c.shuffled.resize(bytes);
   c.packed.resize(libdeflate_zlib_compress_bound(c.compressor, bytes));
   std::vector<hsize_t> offset(dims.size(), 0);
+  std::vector<std::uint64_t> origin(rank, 0), at(rank, 0);
   for (std::uint64_t done = 0; done < rows; done += s.chunkRows) {
     const std::uint64_t n = std::min<std::uint64_t>(s.chunkRows, rows - done);
-    // HDF5's shuffle filter: byte k of element i goes to k * elements + i; the elements are the points, then the
-    // fill value 0 past the end of the data (as HDF5 stores a partial edge chunk). Read from the points directly
-    // (no copy of the chunk first).
-    const auto* raw = reinterpret_cast<const unsigned char*>(points.data() + done * perPoint);
-    const std::size_t filled = n * perPoint;
-    if (subtract) {
-      const double* const first = points.data() + done * perPoint;
-      for (std::size_t i = 0; i < filled; ++i) {
-        const double v = first[i] - *subtract;
-        unsigned char octets[sizeof(double)];
-        std::memcpy(octets, &v, sizeof(double));
-        for (std::size_t k = 0; k < sizeof(double); ++k) c.shuffled[k * elements + i] = octets[k];
+    // Every chunk of these time points: the field's chunk grid in row-major order.
+    std::fill(origin.begin(), origin.end(), 0);
+    for (;;) {
+      // HDF5's shuffle filter: byte k of element i goes to k * elements + i; the elements are the chunk's values
+      // in row-major order, the fill value 0 where the chunk reaches past the data (as HDF5 stores a partial edge
+      // chunk). Read from the points directly (no copy of the chunk first).
+      std::size_t i = 0;
+      for (std::uint64_t r = 0; r < s.chunkRows; ++r)
+        for (std::uint64_t l = 0; l < lines; ++l) {
+          // The line's first value in the field (row-major), or none inside it.
+          std::uint64_t first = 0, valid = r < n ? line : 0;
+          for (std::size_t d = 0, k = l; d + 1 < rank; ++d) {
+            std::uint64_t below = 1;
+            for (std::size_t e = d + 1; e + 1 < rank; ++e) below *= extent[e];
+            at[d] = origin[d] + k / below;
+            k %= below;
+            if (at[d] >= s.shape[d]) valid = 0;
+          }
+          if (rank > 0) {
+            at[rank - 1] = origin[rank - 1];
+            valid = std::min<std::uint64_t>(valid, s.shape[rank - 1] - origin[rank - 1]);
+          }
+          if (valid > 0)
+            for (std::size_t d = 0; d < rank; ++d) first = first * s.shape[d] + at[d];
+          const double* const values = valid > 0 ? points.data() + (done + r) * perPoint + first : nullptr;
+          for (std::uint64_t j = 0; j < line; ++j, ++i) {
+            const double v = j < valid ? (subtract ? values[j] - *subtract : values[j]) : 0.0;
+            unsigned char octets[sizeof(double)];
+            std::memcpy(octets, &v, sizeof(double));
+            for (std::size_t k = 0; k < sizeof(double); ++k) c.shuffled[k * elements + i] = octets[k];
+          }
+        }
+      const std::size_t size =
+          libdeflate_zlib_compress(c.compressor, c.shuffled.data(), bytes, c.packed.data(), c.packed.size());
+      if (size == 0) throw std::runtime_error("deflate of a chunk failed");
+      offset[0] = s.count + done;
+      for (std::size_t d = 0; d < rank; ++d) offset[d + 1] = origin[d];
+      checkH5(H5Dwrite_chunk(s.dataset, H5P_DEFAULT, 0, offset.data(), size, c.packed.data()), "write a chunk");
+      // The next chunk of the grid (the last dimension fastest); none after the last.
+      bool next = false;
+      for (std::size_t d = rank; d-- > 0 && !next;) {
+        origin[d] += extent[d];
+        next = origin[d] < s.shape[d];
+        if (!next) origin[d] = 0;
       }
-    } else {
-      for (std::size_t i = 0; i < filled; ++i)
-        for (std::size_t k = 0; k < sizeof(double); ++k) c.shuffled[k * elements + i] = raw[i * sizeof(double) + k];
+      if (!next) break;
     }
-    for (std::size_t k = 0; k < sizeof(double); ++k)
-      std::memset(c.shuffled.data() + k * elements + filled, 0, elements - filled);
-    const std::size_t size =
-        libdeflate_zlib_compress(c.compressor, c.shuffled.data(), bytes, c.packed.data(), c.packed.size());
-    if (size == 0) throw std::runtime_error("deflate of a chunk failed");
-    offset[0] = s.count + done;
-    checkH5(H5Dwrite_chunk(s.dataset, H5P_DEFAULT, 0, offset.data(), size, c.packed.data()), "write a chunk");
   }
   s.count += rows;
-  // The filter buffers of a chunk larger than the usual 64 KiB (one time point of a field of more than 32 768
-  // cells) are released once it is written: kept, they sat beside the integrator through the run (1.6 MB at
-  // 10^5 cells), adding to the peak when the budget's per-node rates were allocated at the next output.
-  if (bytes > (std::size_t{1} << 18)) {
+  // The filter buffers of a chunk larger than the usual 64 KiB (a field of more than 8192 cells) are released once
+  // it is written: kept, they sat beside the integrator through the run, adding to the peak when the budget's
+  // per-node rates were allocated at the next output.
+  if (bytes > kChunkValues * sizeof(double)) {
     std::vector<unsigned char>().swap(c.shuffled);
     std::vector<unsigned char>().swap(c.packed);
   }

@@ -223,3 +223,70 @@ TEST_CASE("compressed series filtered by the writer read back through HDF5's own
     for (std::uint64_t i = 0; i < cells; ++i) wrong += field[static_cast<std::size_t>(k) * cells + i] != value(k, i);
   CHECK(wrong == 0);
 }
+
+TEST_CASE("fields of more than 32768 values are split into chunks of part of a time point", "[h5][results]") {
+  // A large field's time point is written as several chunks of 256 KiB at most (the first dimensions cut first, edge
+  // chunks padded with the fill value); HDF5's own filter pipeline (zlib) and chunk index must give back every value
+  // written, and the dataset's chunk shape must say so.
+  const std::string path =
+      (std::filesystem::temp_directory_path() / ("thermorph-split-" + std::to_string(::getpid()) + ".h5")).string();
+  struct Field {
+    const char* name;
+    std::vector<std::uint64_t> shape;
+    std::vector<hsize_t> chunk;  // expected: time points, then the field's dimensions
+  };
+  const std::vector<Field> fields = {
+      {"/a/one_line", {70000}, {1, 32768}},       // two whole chunks and a partial one per time point
+      {"/b/rows", {7, 9000}, {1, 3, 9000}},       // whole rows, the last chunk of rows partial
+      {"/c/lines", {3, 40000}, {1, 1, 32768}},    // lines longer than a chunk: cut along the last dimension too
+      {"/e/whole", {20000}, {1, 20000}},          // up to 32 768 values: one time point per chunk, as before
+      {"/d/small", {40, 30}, {6, 40, 30}},        // 1200 values: several time points per chunk, as before
+  };
+  const int points = 5;
+  auto value = [](int k, std::size_t f, std::uint64_t i) {
+    return 37.0 - 1e-3 * static_cast<double>(k + 1) * std::sin(0.01 * static_cast<double>(i)) + 0.5 * static_cast<double>(f);
+  };
+  {
+    ResultsFile file(path);
+    const std::size_t time = file.createTime("s", "time");
+    std::vector<std::size_t> series;
+    for (const Field& f : fields) series.push_back(file.createSeries(f.name, f.shape, "degC"));
+    for (int k = 0; k < points; ++k) {
+      const double t = 60.0 * k;
+      file.append(time, {&t, 1});
+      for (std::size_t f = 0; f < fields.size(); ++f) {
+        std::uint64_t perPoint = 1;
+        for (auto d : fields[f].shape) perPoint *= d;
+        std::vector<double> row(perPoint);
+        for (std::uint64_t i = 0; i < row.size(); ++i) row[i] = value(k, f, i) + 273.15;
+        file.append(series[f], row, 273.15);  // written in degC as the field recorder does
+      }
+    }
+    file.commit();
+  }
+  hid_t file = H5Fopen(path.c_str(), H5F_ACC_RDONLY, H5P_DEFAULT);
+  REQUIRE(file >= 0);
+  for (std::size_t f = 0; f < fields.size(); ++f) {
+    const Field& field = fields[f];
+    std::uint64_t perPoint = 1;
+    for (auto d : field.shape) perPoint *= d;
+    hid_t ds = H5Dopen2(file, field.name, H5P_DEFAULT);
+    REQUIRE(ds >= 0);
+    hid_t plist = H5Dget_create_plist(ds);
+    std::vector<hsize_t> chunk(field.shape.size() + 1);
+    CHECK(H5Pget_chunk(plist, static_cast<int>(chunk.size()), chunk.data()) == static_cast<int>(chunk.size()));
+    H5Pclose(plist);
+    CHECK(chunk == field.chunk);
+    std::vector<double> out(points * perPoint);
+    REQUIRE(H5Dread(ds, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, out.data()) >= 0);
+    H5Dclose(ds);
+    std::size_t wrong = 0;
+    for (int k = 0; k < points; ++k)
+      for (std::uint64_t i = 0; i < perPoint; ++i)
+        wrong += out[static_cast<std::size_t>(k) * perPoint + i] != (value(k, f, i) + 273.15) - 273.15;
+    INFO(field.name);
+    CHECK(wrong == 0);
+  }
+  H5Fclose(file);
+  std::filesystem::remove(path);
+}
