@@ -168,7 +168,9 @@ void bandSolve(const double* a, BandIndex ldim, BandIndex n, BandIndex smu, Band
 //! bandSolve above), the border by its Schur complement S = D - F B^-1 E (dense LU, SUNDlsMat_denseGETRF/GETRS):
 //! x_2 = S^-1 (b_2 - F B^-1 b_1), x_1 = B^-1 b_1 - (B^-1 E) x_2 (block elimination; Golub & Van Loan 2013,
 //! sec. 3.2.10 and 4.3.6 for band LU). E, F and D are read from J where they are needed; B^-1 E is kept for the
-//! border columns that B's rows depend on (one value per node and column).
+//! border columns that B's rows depend on (one value per node and column) in blocks of up to
+//! kRowSubstitutionLimit components. A larger block keeps none (8 bytes per node and coupled column): its solve
+//! takes x_1 = B^-1 (b_1 - E x_2) with a second band solve, from the right-hand side b_1 the caller still holds.
 struct NewtonSolver::Band {
   Index size = 0;                               //!< m
   Index lower = 0, upper = 0, storedUpper = 0;  //!< ml, mu of B, smu = min(m - 1, mu + ml) (room for the pivots' fill)
@@ -176,6 +178,7 @@ struct NewtonSolver::Band {
   std::vector<PivotOffset> pivots;  //!< pivot row of column k minus k
   std::vector<Index> coupled;                   //!< border components (0-based from m) with entries in rows < m
   std::vector<double> solved;                   //!< B^-1 E for the coupled columns [coupled x m], column by column
+  bool keepSolved = true;                       //!< B^-1 E kept (else: a second band solve per solve)
   std::vector<double> schur;                    //!< S, then its LU [k x k], column-major
   std::vector<double*> schurColumns;
   std::vector<sunindextype> schurPivots;
@@ -184,7 +187,7 @@ struct NewtonSolver::Band {
   Index border(Index f) const { return f - size; }
   double bytes(Index f) const {
     return static_cast<double>(size) * static_cast<double>(columnLength() * sizeof(double) + sizeof(PivotOffset) +
-                                                         coupled.size() * sizeof(double)) +
+                                                         (keepSolved ? coupled.size() * sizeof(double) : 0)) +
            static_cast<double>(border(f) * border(f) * sizeof(double));
   }
 };
@@ -256,6 +259,7 @@ NewtonSolver::NewtonSolver(const SparsePattern& pattern, Index factored, int sca
     b->lower = lowerAt[border];
     b->upper = upperAt[border];
     b->storedUpper = std::min(b->size - 1, b->lower + b->upper);
+    b->keepSolved = factored <= kRowSubstitutionLimit;
     // Border columns with entries in B's rows (rows are sorted: the first entry decides).
     for (Index j = 0; j < border; ++j) {
       const Index c = b->size + j;
@@ -270,7 +274,7 @@ NewtonSolver::NewtonSolver(const SparsePattern& pattern, Index factored, int sca
     Band& b = *band_;
     b.data.resize(b.size * b.columnLength());
     b.pivots.resize(b.size);
-    b.solved.resize(b.coupled.size() * b.size);
+    if (b.keepSolved) b.solved.resize(b.coupled.size() * b.size);
     const Index k = b.border(factored);
     b.schur.resize(k * k);
     b.schurColumns.resize(k);
@@ -341,16 +345,10 @@ bool NewtonSolver::factor() {
       return false;
     const Index k = b.border(factored_);
     if (k > 0) {
-      // B^-1 E for the coupled border columns; S = D - F (B^-1 E).
-      for (Index t = 0; t < b.coupled.size(); ++t) {
-        double* w = b.solved.data() + t * b.size;
-        std::fill(w, w + b.size, 0.0);
-        const Index c = b.size + b.coupled[t];
-        for (Index p = pattern_.columnStart[c]; p < pattern_.columnStart[c + 1] && pattern_.rowIndex[p] < b.size; ++p)
-          w[pattern_.rowIndex[p]] = beta_ * jacobian_[p];
-        bandSolve(b.data.data(), ldim, m, static_cast<BandIndex>(b.storedUpper), static_cast<BandIndex>(b.lower),
-                  b.pivots.data(), w);
-      }
+      // S = D - F (B^-1 E): D first, then each coupled border column's B^-1 E_t (kept, or in a vector of the
+      // block's size while it is used) and its products, each entry of S still reduced in ascending c.
+      std::vector<double> column(b.keepSolved ? 0 : b.size);
+      auto solvedColumn = [&](Index t) { return b.keepSolved ? b.solved.data() + t * b.size : column.data(); };
       std::fill(b.schur.begin(), b.schur.end(), 0.0);
       for (Index j = 0; j < k; ++j) {
         const Index c = b.size + j;
@@ -362,15 +360,22 @@ bool NewtonSolver::factor() {
           b.schur[j * k + (r - b.size)] = r == c ? v + alpha_ : v;
         }
       }
-      for (Index c = 0; c < b.size; ++c)
-        for (Index p = pattern_.columnStart[c]; p < pattern_.columnStart[c + 1]; ++p) {
-          const Index r = pattern_.rowIndex[p];
-          if (r < b.size) continue;
-          if (r >= factored_) break;
-          const double f = beta_ * jacobian_[p];
-          for (Index t = 0; t < b.coupled.size(); ++t)
-            b.schur[b.coupled[t] * k + (r - b.size)] -= f * b.solved[t * b.size + c];
-        }
+      for (Index t = 0; t < b.coupled.size(); ++t) {
+        double* w = solvedColumn(t);
+        std::fill(w, w + b.size, 0.0);
+        const Index e = b.size + b.coupled[t];
+        for (Index p = pattern_.columnStart[e]; p < pattern_.columnStart[e + 1] && pattern_.rowIndex[p] < b.size; ++p)
+          w[pattern_.rowIndex[p]] = beta_ * jacobian_[p];
+        bandSolve(b.data.data(), ldim, m, static_cast<BandIndex>(b.storedUpper), static_cast<BandIndex>(b.lower),
+                  b.pivots.data(), w);
+        for (Index c = 0; c < b.size; ++c)
+          for (Index p = pattern_.columnStart[c]; p < pattern_.columnStart[c + 1]; ++p) {
+            const Index r = pattern_.rowIndex[p];
+            if (r < b.size) continue;
+            if (r >= factored_) break;
+            b.schur[b.coupled[t] * k + (r - b.size)] -= beta_ * jacobian_[p] * w[c];
+          }
+      }
       if (SUNDlsMat_denseGETRF(b.schurColumns.data(), static_cast<sunindextype>(k), static_cast<sunindextype>(k),
                                b.schurPivots.data()) != 0)
         return false;
@@ -413,19 +418,25 @@ bool NewtonSolver::factor() {
   return true;
 }
 
-bool NewtonSolver::solve(std::span<double> x) const {
+bool NewtonSolver::solve(std::span<double> x, const double* rhs) const {
   if (band_) {
     Band& b = *band_;  // GBTRS and GETRS take non-const pointers; they only read the factors
     if (factored_ > 0) {
       if (!b.factored) return false;
       double* const xs = x.data();
       const auto m = static_cast<BandIndex>(b.size), ldim = static_cast<BandIndex>(b.columnLength());
+      const Index k = b.border(factored_);
+      // b_1 for the second band solve (no B^-1 E kept): the caller's copy, else one here.
+      std::vector<double> copy;
+      if (k > 0 && !b.keepSolved && !b.coupled.empty() && (rhs == nullptr || rhs == xs)) {
+        copy.assign(xs, xs + b.size);
+        rhs = copy.data();
+      }
       // x_1 := B^-1 b_1
       bandSolve(b.data.data(), ldim, m, static_cast<BandIndex>(b.storedUpper), static_cast<BandIndex>(b.lower),
                 b.pivots.data(), xs);
-      const Index k = b.border(factored_);
       if (k > 0) {
-        // x_2 := S^-1 (b_2 - F x_1), then x_1 -= (B^-1 E) x_2. Local copies of the pointers (stores into x could
+        // x_2 := S^-1 (b_2 - F x_1), then x_1 -= (B^-1 E) x_2 (or x_1 := B^-1 (b_1 - E x_2)). Local copies of the pointers (stores into x could
         // otherwise alias them).
         const double* const J = jacobian_.data();
         const std::uint32_t* const rows = pattern_.rowIndex.data();
@@ -441,7 +452,22 @@ bool NewtonSolver::solve(std::span<double> x) const {
           for (; q < end && rows[q] < f; ++q) xs[rows[q]] -= beta * J[q] * xc;
         }
         SUNDlsMat_denseGETRS(b.schurColumns.data(), static_cast<sunindextype>(k), b.schurPivots.data(), xs + size);
-        for (Index t = 0; t < b.coupled.size(); ++t) {
+        // x_1 := B^-1 (b_1 - E x_2), unless every coupled x_2 is zero (a fixed arterial temperature: the first
+        // solve's x_1 is the answer, as the kept B^-1 E path leaves it).
+        bool coupledZero = true;
+        for (const Index j : b.coupled) coupledZero = coupledZero && xs[size + j] == 0.0;
+        if (!b.keepSolved && !coupledZero) {
+          std::copy(rhs, rhs + size, xs);
+          for (const Index j : b.coupled) {
+            const double x2 = xs[size + j];
+            if (x2 == 0.0) continue;
+            const Index e = size + j;
+            for (Index q = start[e]; q < start[e + 1] && rows[q] < size; ++q) xs[rows[q]] -= beta * J[q] * x2;
+          }
+          bandSolve(b.data.data(), ldim, m, static_cast<BandIndex>(b.storedUpper), static_cast<BandIndex>(b.lower),
+                    b.pivots.data(), xs);
+        }
+        for (Index t = 0; b.keepSolved && t < b.coupled.size(); ++t) {
           const double x2 = xs[size + b.coupled[t]];
           if (x2 == 0.0) continue;
           const double* const w = b.solved.data() + t * size;
@@ -560,7 +586,7 @@ SUNLinearSolver NewtonSolver::sundialsSolver(SUNContext context) {
   S->ops->solve = [](SUNLinearSolver ls, SUNMatrix, N_Vector x, N_Vector b, realtype) {
     N_VScale(1.0, b, x);
     std::span<double> v(N_VGetArrayPointer(x), static_cast<std::size_t>(N_VGetLength(x)));
-    return solverOf(ls).solve(v) ? static_cast<int>(SUNLS_SUCCESS) : static_cast<int>(SUNLS_PACKAGE_FAIL_REC);
+    return solverOf(ls).solve(v, N_VGetArrayPointer(b)) ? static_cast<int>(SUNLS_SUCCESS) : static_cast<int>(SUNLS_PACKAGE_FAIL_REC);
   };
   S->ops->free = [](SUNLinearSolver ls) {
     ls->content = nullptr;  // owned by the NewtonSolver

@@ -49,7 +49,10 @@ class NewtonSolver {
   //! estimates say it is poor (the rule of SUNDIALS' KLU module). False if KLU fails (singular matrix).
   bool factor();
   //! x := A^-1 x (in place) [size]. False if KLU fails.
-  bool solve(std::span<double> x) const;
+  //! `rhs`: the right-hand side x held on entry, if the caller keeps it unchanged during the call (CVODE's linear
+  //! solve does): a band block of more than 5000 components without a kept B^-1 E reads it for its second band
+  //! solve instead of copying x first.
+  bool solve(std::span<double> x, const double* rhs = nullptr) const;
   //! The next factor() analyses and factorises from scratch.
   void forget() { fresh_ = true; }
   //! Entries of L + U of the last factorisation (0 before the first); band: the band storage's entries.
