@@ -15,8 +15,9 @@
 //! tridiagonal, and its arterial and venous blood nodes coupled to every cell) is factorised instead by SUNDIALS'
 //! band LU with partial pivoting (the routines of SUNLinSol_Band, compiled here) and the few by their
 //! Schur complement, chosen when that storage is smaller than the lower bound of the KLU path (the block's values
-//! and pattern, and L + U with at least as many entries): about 41 bytes per node for the radial grid (one byte per pivot) against
-//! about 200 for KLU (its values, pattern, L and U, and Numeric's and Symbolic's arrays of length n).
+//! and pattern, and L + U with at least as many entries): about 33 bytes per node for the radial grid above 5000
+//! nodes (one byte per pivot, no B^-1 E kept) against about 200 for KLU (its values, pattern, L and U, and
+//! Numeric's and Symbolic's arrays of length n).
 #include <cstdint>
 #include <memory>
 #include <span>
