@@ -70,15 +70,17 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       add(c.a, c.b);
       add(c.b, c.a);
     }
-    for (const Advection& a : network.advections)
+    for (const Advection& a : network.advections) {
+      const bool cancels = viaCancels(a);
       forEachHop(a, [&](Index from, Index to) {
         add(to, from);
         if (transient) {
-          add(accumulator(a.channel), from);
-          add(accumulator(a.channel), to);
+          if (!(cancels && from == a.via)) add(accumulator(a.channel), from);
+          if (!(cancels && to == a.via)) add(accumulator(a.channel), to);
         }
         forParts(a.partsBegin, a.partsEnd, to, a.channel);
       });
+    }
     for (const BoundaryExchange& e : network.exchanges) {
       if (transient) add(accumulator(e.channel), e.node);
       forParts(e.partsBegin, e.partsEnd, e.node, e.channel);
@@ -111,12 +113,14 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       const Index ra = row(c.a, c.channel), rb = row(c.b, c.channel);
       for (auto [r, col] : {std::pair{ra, c.a}, {ra, c.b}, {rb, c.a}, {rb, c.b}}) visit(r, col);
     }
-    for (const Advection& a : network.advections)
+    for (const Advection& a : network.advections) {
+      const bool cancels = viaCancels(a);
       forEachHop(a, [&](Index from, Index to) {
-        visit(row(to, a.channel), from);
-        visit(row(to, a.channel), to);
+        if (!(cancels && from == a.via)) visit(row(to, a.channel), from);
+        if (!(cancels && to == a.via)) visit(row(to, a.channel), to);
         partColumns(a.partsBegin, a.partsEnd, row(to, a.channel));
       });
+    }
     for (const BoundaryExchange& e : network.exchanges) {
       visit(row(e.node, e.channel), e.node);
       partColumns(e.partsBegin, e.partsEnd, row(e.node, e.channel));
@@ -442,17 +446,21 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
   };
   for (const Advection& adv : network_.advections) {
     double F = adv.flowCapacity + partsValue(adv.partsBegin, adv.partsEnd, modulators_);
+    const bool cancels = viaCancels(adv);
     forEachHop(adv, [&](Index from, Index to) {
       add(to, to, -F);
       add(to, from, F);
       const double w = nodeWeight(to);
       const Index acc = nodes_ + controls_ + adv.channel;
+      // The energy rows' entries in via's column: -w F from the first hop, +w F from the second (the same w):
+      // zero, left out of the pattern and not added (viaCancels).
+      const bool fromVia = cancels && from == adv.via, toVia = cancels && to == adv.via;
       if (transient) {
-        add(acc, from, w * F);
-        add(acc, to, -(w * F));
+        if (!fromVia) add(acc, from, w * F);
+        if (!toVia) add(acc, to, -(w * F));
       }
-      toGroup(to, adv.channel, from, F);
-      toGroup(to, adv.channel, to, -F);
+      if (!fromVia) toGroup(to, adv.channel, from, F);
+      if (!toVia) toGroup(to, adv.channel, to, -F);
       partDerivatives(adv.partsBegin, adv.partsEnd, to, adv.channel, T[from] - T[to], w);
     });
   }

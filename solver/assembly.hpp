@@ -109,6 +109,14 @@ class NetworkSystem {
   static constexpr Index kSlotReplayLimit = 5000;
   mutable std::vector<Slot> slotSequence_;
   double partsValue(Index begin, Index end, std::span<const double> m) const;
+  //! A stream through a node of the group it flows on into (perfusion: artery -> tissue cell -> vein of the same
+  //! segment): its hops' flows into the energy rows of its channel and group, d/dT_via, are -w F (the stream
+  //! leaving via, first hop) and +w F (entering the second), with the same w and F: exactly zero together. These
+  //! entries are left out of the pattern and the Jacobian (two per perfused cell: at 10^5 cells 2.4 MB of values
+  //! and rows) wherever no other term has them; an entry that another term also fills no longer adds the two.
+  bool viaCancels(const Advection& a) const {
+    return a.via != none && network_.nodes[a.via].group == network_.nodes[a.to].group;
+  }
   double controlTarget(const Controller& c, double time, std::span<const double> state, bool* active) const;
   Index controlColumn(Index modulator) const;  //!< state column of the modulator's control, or none
 
