@@ -5,12 +5,14 @@
 
 #include <algorithm>
 #include <map>
+#include <optional>
 #include <sstream>
 
 #include <fmt/format.h>
 #include <toml++/toml.h>
 
 #include "models/case_schema.hpp"
+#include "models/inert_keys.hpp"
 #include "models/units.hpp"
 #include "drivers/option_text.hpp"
 #include "drivers/sweep.hpp"
@@ -190,16 +192,28 @@ std::vector<FitParameter> parseFitParameters(const std::vector<std::string>& fre
       if (!(*p.priorSd > 0.0)) throw CaseError(fmt::format("--prior {}={}: the SD must be positive", key, it->second));
       priorOf.erase(it);
     }
-    // The case loader checks both bounds (units and ranges of the schema).
+    // The case loader checks both bounds (units and ranges of the schema). A parameter with no effect in the case
+    // (models/inert_keys.hpp) at every one of them is refused: the data cannot determine it, and its sensitivity
+    // would be zero by construction.
+    std::optional<std::string> inert;
+    bool acts = false;
     for (double v : {p.lower, p.upper, p.start}) {
       if (!std::isfinite(v)) continue;
       std::vector<std::string> o = overrides;
       o.push_back(parameterOverride(p, v));
       try {
-        (void)loadCaseFromString(caseText, casePath, o);
+        const Case c = loadCaseFromString(caseText, casePath, o);
+        if (auto why = InertKeys(c).reason(key)) inert = why;
+        else acts = true;
       } catch (const CaseError& e) {
         throw CaseError(fmt::format("{}: the case loader refuses {}: {}", what, parameterOverride(p, v), e.what()));
       }
+    }
+    if (!acts) {
+      if (!inert) inert = InertKeys(base).reason(key);
+      if (inert)
+        throw CaseError(fmt::format("{}: {}: the key has no effect in this case, so the results cannot depend on it: {}",
+                                    casePath, what, *inert));
     }
     out.push_back(std::move(p));
   }

@@ -7,11 +7,14 @@
 #include <fstream>
 #include <functional>
 #include <limits>
+#include <optional>
+#include <set>
 #include <sstream>
 
 #include <fmt/format.h>
 
 #include "models/case_schema.hpp"
+#include "models/inert_keys.hpp"
 #include "models/units.hpp"
 #include "drivers/option_text.hpp"
 #include "drivers/sweep.hpp"
@@ -299,6 +302,53 @@ std::vector<std::string> runOverrides(const SweepPlan& plan, std::size_t run, Ca
 
 static SweepPlan finishSweepPlan(SweepPlan plan, const SweepOptions& options, const Case& base);
 
+//! A --vary key with no effect in the case (models/inert_keys.hpp) would give identical rows: refused (exit 2).
+//! Whether a key acts may depend on the other axes (an immersion, a medium, a controller switched on), so it is
+//! asked in a few runs: the first and the last, and each axis at up to 8 of its values (the others at their first);
+//! a key is refused when it has no effect in every one of them that loads.
+static void refuseInertAxes(const SweepPlan& plan) {
+  if (plan.runs == 0) return;
+  const std::size_t n = plan.axes.size();
+  std::set<std::vector<std::size_t>> probes{plan.valueIndices(0), plan.valueIndices(plan.runs - 1)};
+  for (std::size_t a = 0; a < n; ++a) {
+    const std::size_t count = plan.axes[a].texts.size(), used = std::min<std::size_t>(count, 8);
+    for (std::size_t k = 0; k < used; ++k) {
+      const std::size_t j = used > 1 ? k * (count - 1) / (used - 1) : 0;
+      std::vector<std::size_t> v = plan.valueIndices(0);
+      if (plan.zip) std::fill(v.begin(), v.end(), j);
+      else v[a] = j;
+      probes.insert(v);
+    }
+  }
+  std::vector<bool> acts(n, false);
+  std::vector<std::optional<std::string>> why(n);
+  bool loaded = false;
+  for (const std::vector<std::size_t>& v : probes) {
+    std::vector<std::string> overrides = plan.overrides;
+    for (std::size_t a = 0; a < n; ++a)
+      if (!plan.axes[a].scale) overrides.push_back(plan.axes[a].key + "=" + plan.axes[a].texts[v[a]]);
+    Case c;
+    try {
+      c = loadCaseFromString(plan.caseText, plan.casePath, overrides);
+    } catch (const CaseError&) {
+      continue;  // that run fails by itself
+    }
+    loaded = true;
+    const InertKeys inert(c);
+    for (std::size_t a = 0; a < n; ++a) {
+      if (plan.axes[a].scale) continue;
+      if (auto reason = inert.reason(plan.axes[a].key)) why[a] = reason;
+      else acts[a] = true;
+    }
+  }
+  if (!loaded) return;
+  for (std::size_t a = 0; a < n; ++a)
+    if (!plan.axes[a].scale && !acts[a] && why[a])
+      throw CaseError(fmt::format("{}: --vary {}: the key has no effect in this case, so every run would give the same "
+                                  "results: {}",
+                                  plan.casePath, plan.axes[a].key, *why[a]));
+}
+
 SweepPlan makeSweepPlan(const SweepOptions& commandLine) {
   const SweepOptions& options = commandLine;  // until the case is read
   SweepPlan plan;
@@ -329,6 +379,7 @@ SweepPlan makeSweepPlan(const SweepOptions& commandLine) {
     } catch (const CaseError&) {
     }
   }
+  refuseInertAxes(finished);
   return finished;
 }
 

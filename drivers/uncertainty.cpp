@@ -9,6 +9,7 @@
 #include <filesystem>
 #include <fstream>
 #include <limits>
+#include <optional>
 #include <sstream>
 #include <thread>
 
@@ -17,6 +18,7 @@
 #include <fmt/format.h>
 
 #include "models/case_schema.hpp"
+#include "models/inert_keys.hpp"
 #include "models/units.hpp"
 #include "drivers/h5_append.hpp"
 #include "drivers/observed.hpp"
@@ -124,11 +126,16 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
   for (std::size_t j = 0; j < k; ++j) {
     std::vector<std::string> ov = o.overrides;
     ov.push_back(overrideOf(j, distributions.empty() ? mean(static_cast<Eigen::Index>(j)) : distributions[j].quantile(0.5)));
+    std::optional<std::string> inert;
     try {
-      (void)loadCaseFromString(caseText, o.casePath, ov);
+      inert = InertKeys(loadCaseFromString(caseText, o.casePath, ov)).reason(params[j].key);
     } catch (const CaseError& e) {
       throw CaseError(fmt::format("--param {}: the case loader refuses {}: {}", params[j].key, ov.back(), e.what()));
     }
+    // A parameter with no effect in the case (models/inert_keys.hpp) would spread nothing: refused (exit 2).
+    if (inert)
+      throw CaseError(fmt::format("{}: --param {}: the key has no effect in this case, so the results cannot depend on "
+                                  "it: {}", o.casePath, params[j].key, *inert));
   }
   std::vector<std::vector<double>> unit =
       o.design == "sobol" ? sobolPoints(k, o.samples) : latinHypercube(k, o.samples, o.seed);

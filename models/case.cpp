@@ -1,5 +1,6 @@
 #include "models/case.hpp"
 #include "models/grid.hpp"
+#include "models/inert_keys.hpp"
 #include "models/sha256.hpp"
 
 #include <algorithm>
@@ -797,8 +798,15 @@ void checkOverriddenByTimeline(const TableView& top, Case& c, const std::vector<
   }
 }
 
+//! The second line of a resolved case since keys with no effect are left out of it (resolvedCaseToml). A resolved
+//! case without it (written by an earlier version) gives every key, so which ones its case gave is not known: it
+//! does not warn of keys with no effect.
+constexpr std::string_view kResolvedHeader = "# Fully resolved case:";
+constexpr std::string_view kLeftOutLine =
+    "# Keys with no effect in this case are left out unless the case gave them (thermorph warns of those).";
+
 Case buildCase(toml::table& root, const std::string& file, const std::vector<std::string>& overrides,
-               std::vector<OverrideChange>* changes = nullptr) {
+               bool warnInert, std::vector<OverrideChange>* changes = nullptr) {
   for (const std::string& o : overrides) applyOverride(root, file, o, changes);
   CaseReader reader(file);
   reader.checkKeys(root, "", "");
@@ -953,6 +961,10 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   }
   checkLocalControllers(top, c);
   checkOverriddenByTimeline(top, c, overrides);
+  // Keys the case gives that have no effect in it (models/inert_keys.hpp): a warning each, naming where.
+  reader.collectGiven(root, "", c.given);
+  if (warnInert)
+    for (std::string& w : InertKeys(c).warnings()) c.warnings.push_back(std::move(w));
   if (c.control.panting.present && c.body.respiratorySegment.empty())
     throw CaseError(fmt::format("{}: control.panting: panting needs respiration: set [body] respiratory_segment", file));
   // Cell counts the case leaves out, from each segment's decay lengths; warnings for coarser given grids.
@@ -981,6 +993,40 @@ toml::table parseCaseText(const std::string& text, const std::string& sourceName
   }
 }
 
+//! The resolved case leaves out keys that have no effect in it and that the case did not give (defaults and
+//! values following another): re-running it then warns of the same keys as the case itself (models/inert_keys.hpp).
+//! A key it gives with no effect stays, and warns again.
+void leaveOutInertDefaults(toml::table& root, const Case& c) {
+  const InertKeys inert(c);
+  // Values outside the timeline: walk each leaf key path of the resolved tree.
+  std::vector<std::pair<toml::table*, std::string>> erase;  // table, key
+  auto walk = [&](auto&& self, toml::table& table, const std::string& path) -> void {
+    for (auto&& [key, node] : table) {
+      const std::string p = path.empty() ? std::string(key.str()) : path + "." + std::string(key.str());
+      if (p == "events") continue;
+      if (toml::table* t = node.as_table()) {
+        self(self, *t, p);
+      } else if (toml::array* a = node.as_array(); a && !a->empty() && a->front().is_table()) {
+        for (std::size_t i = 0; i < a->size(); ++i)
+          if (toml::table* element = (*a)[i].as_table()) self(self, *element, p + "." + CaseReader::elementLabel((*a)[i], i));
+      } else if (!c.given.count(p) && inert.reason(p)) {
+        erase.emplace_back(&table, std::string(key.str()));
+      }
+    }
+  };
+  walk(walk, root, "");
+  for (auto& [table, key] : erase) table->erase(key);
+  // Values of the timeline that follow another (not given) and have no effect.
+  if (toml::array* events = root["events"].as_array())
+    for (std::size_t i = 0; i < c.events.size() && i < events->size(); ++i) {
+      toml::table* environment = (*events)[i].as_table() ? (*(*events)[i].as_table())["environment"].as_table() : nullptr;
+      if (!environment) continue;
+      for (const EnvironmentValue& v : c.events[i].environment)
+        if (!v.given && inert.variable(v.variable)) environment->erase(environmentKey(v.variable));
+      if (environment->empty()) (*events)[i].as_table()->erase("environment");
+    }
+}
+
 }  // namespace
 
 Case loadCaseFromString(const std::string& text, const std::string& sourceName,
@@ -995,9 +1041,11 @@ Case loadCaseFromString(const std::string& text, const std::string& sourceName,
     bool valid = false, inUse = false;
   };
   thread_local Parsed parsed;
+  // A resolved case of an earlier version (every key written, none left out): no warnings of keys with no effect.
+  const bool legacyResolved = text.rfind(kResolvedHeader, 0) == 0 && text.find(kLeftOutLine) == std::string::npos;
   if (parsed.inUse) {  // a load inside a load (none today): parse on its own
     toml::table root = parseCaseText(text, sourceName);
-    Case c = buildCase(root, sourceName, overrides);
+    Case c = buildCase(root, sourceName, overrides, !legacyResolved);
     recordInputs(c, root, text);
     return c;
   }
@@ -1021,7 +1069,7 @@ Case loadCaseFromString(const std::string& text, const std::string& sourceName,
     }
   } restore{parsed, {}};
   parsed.inUse = true;
-  Case c = buildCase(parsed.root, sourceName, overrides, &restore.changes);
+  Case c = buildCase(parsed.root, sourceName, overrides, !legacyResolved, &restore.changes);
   recordInputs(c, parsed.root, text);
   return c;
 }
@@ -1131,8 +1179,10 @@ std::string resolvedCaseToml(const Case& c) {
   root.insert("segments", segments);
   root.insert("environment", environmentToml(c.environment));
   if (toml::array events = eventsToml(c.events); !events.empty()) root.insert("events", events);
+  leaveOutInertDefaults(root, c);
   std::ostringstream os;
-  os << "# Fully resolved case: every value in SI units (m, kg, s, K, W), every default filled in.\n"
+  os << kResolvedHeader << " every value in SI units (m, kg, s, K, W), every default filled in.\n"
+     << kLeftOutLine << "\n"
      << "# Written by thermorph " << THERMORPH_VERSION << " from " << c.sourceFile << ".\n"
      << root << "\n";
   return os.str();

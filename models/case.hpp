@@ -225,6 +225,13 @@ struct Case {
   EnvironmentSpec environment;
   std::vector<EventSpec> events;
   std::vector<std::string> warnings;  //!< found while loading (grids coarser than needed); Body reports them
+  //! The values the case text gives (overrides applied), by key path as --set writes it, each with the line and
+  //! column of its value (0: an override): what the user gave, as opposed to defaults. Keys with no effect warn only
+  //! when given (models/inert_keys.hpp), and the resolved case leaves out only keys with no effect that were not given.
+  struct GivenAt {
+    unsigned line = 0, column = 0;
+  };
+  std::map<std::string, GivenAt> given;
   //! The grid estimate resolveGrid() worked from, per segment (it does not depend on the cell counts), kept for the
   //! checks after a run (drivers/record_control_grid.cpp) so that they need not estimate again; null when the case
   //! was not resolved.

@@ -3,6 +3,7 @@
 //! every failure is a CaseError naming file, line, column, key path, value and what is allowed.
 #include <algorithm>
 #include <cmath>
+#include <map>
 #include <optional>
 #include <sstream>
 #include <string>
@@ -58,12 +59,28 @@ class CaseReader {
   explicit CaseReader(std::string file) : file_(std::move(file)) {}
 
   [[noreturn]] void fail(const toml::node* node, const std::string& path, const std::string& what) const {
-    std::string where = file_;
+    throw CaseError(fmt::format("{}: {}: {}", location(node), path, what));
+  }
+
+  //! "FILE:LINE:COLUMN" of a node, or "FILE (an override: ...)" for a value that came from an override.
+  std::string location(const toml::node* node) const {
     if (node && node->source().begin.line > 0)
-      where += fmt::format(":{}:{}", node->source().begin.line, node->source().begin.column);
-    else if (node)
-      where += " (an override: --set, a sweep or fit parameter, or set= in Python)";
-    throw CaseError(fmt::format("{}: {}: {}", where, path, what));
+      return fmt::format("{}:{}:{}", file_, node->source().begin.line, node->source().begin.column);
+    if (node) return file_ + " (an override: --set, a sweep or fit parameter, or set= in Python)";
+    return file_;
+  }
+
+  //! Every value (not table) below `table` with its location, keyed by its key path as --set writes it (segments
+  //! and other named elements by name, array elements otherwise by index): which keys the case gives (Case::given).
+  static void collectGiven(const toml::node& node, const std::string& path, std::map<std::string, Case::GivenAt>& out) {
+    if (const toml::table* t = node.as_table()) {
+      for (auto&& [key, child] : *t) collectGiven(child, path.empty() ? std::string(key.str()) : path + "." + std::string(key.str()), out);
+    } else if (const toml::array* a = node.as_array(); a && !a->empty() && a->front().is_table()) {
+      for (std::size_t i = 0; i < a->size(); ++i) collectGiven((*a)[i], path + "." + elementLabel((*a)[i], i), out);
+    } else {
+      out.emplace(path, Case::GivenAt{static_cast<unsigned>(node.source().begin.line),
+                                      static_cast<unsigned>(node.source().begin.column)});
+    }
   }
 
   //! Check every key below `table` against the schema (recursively).

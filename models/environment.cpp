@@ -74,10 +74,7 @@ EnvironmentModel::EnvironmentModel(const Case& c, Network& network) : case_(c) {
     const ConvectionSetting convection = s.surface.convection.value_or(env.convection);
     surface.fixedConvection = convection.fixed;
     surface.convectionCoefficient = convection.coefficient;
-    // A fixed coefficient stands for the whole surface exchange (Newton cooling, as in validation problems):
-    // radiation only when an emissivity is given.
-    surface.emissivity =
-        s.surface.emissivity.value_or(convection.fixed ? 0.0 : s.coat ? kCoatEmissivity : kSkinEmissivity);
+    surface.emissivity = segmentEmissivity(s, env);
     surface.volumeLength = std::cbrt(outerVolume(s));
     surface.width = s.width;
     surfaces_.push_back(surface);
@@ -150,6 +147,13 @@ void EnvironmentModel::setInterval(std::size_t interval) {
 
 double EnvironmentModel::value(EnvironmentVariable variable, double time) const {
   return offset_[index(variable)] + slope_[index(variable)] * time;
+}
+
+double EnvironmentModel::segmentEmissivity(const SegmentSpec& s, const EnvironmentSpec& environment) {
+  // A fixed coefficient stands for the whole surface exchange (Newton cooling, as in validation problems):
+  // radiation only when an emissivity is given.
+  const bool fixed = s.surface.convection.value_or(environment.convection).fixed;
+  return s.surface.emissivity.value_or(fixed ? 0.0 : s.coat ? kCoatEmissivity : kSkinEmissivity);
 }
 
 bool EnvironmentModel::inWater(Immersion immersion, SurroundingMedium medium) {

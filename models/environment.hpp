@@ -83,6 +83,12 @@ class EnvironmentModel : public SurfaceModel {
   //! temperatures (all faces of the network) [W/(m2 K)].
   double meanConvectionCoefficient(Index segment, double time, std::span<const double> faceTemperatures) const;
 
+  //! Whether a segment with this immersion is in water while the medium is `medium`.
+  static bool inWater(Immersion immersion, SurroundingMedium medium);
+  //! Long-wave emissivity of a segment, its default resolved: a fixed convection coefficient (the segment's or the
+  //! environment's) stands for the whole exchange unless an emissivity is given [1].
+  static double segmentEmissivity(const SegmentSpec& s, const EnvironmentSpec& environment);
+
   //! True when the segment is in water at t = 0 (the medium of the first interval, an event at 0 included).
   //! The body chooses a coat's wet conductivity from this once; it does not follow later changes of medium.
   bool immersed(Index segment) const;
@@ -128,8 +134,6 @@ class EnvironmentModel : public SurfaceModel {
   //! The same with the face's fluid at that time already known (faceHeat: fluid() once per face instead of twice).
   double convectionCoefficient(Index face, double faceTemperature, const FaceFluid& fl, double* derivative) const;
   void collectWarnings() const;
-  //! Whether a segment with this immersion is in water while the medium is `medium`.
-  static bool inWater(Immersion immersion, SurroundingMedium medium);
 
   const Case& case_;
   std::vector<FaceDescription> faces_;

@@ -554,7 +554,7 @@ std::vector<EventSpec> readEvents(const CaseReader& reader, const TableView& roo
     for (const EnvironmentValue& value : e.environment) explicitly[static_cast<std::size_t>(value.variable)] = true;
     for (const FollowRule& rule : followRules(medium, media.mediumChanges())) {
       if (explicitly[static_cast<std::size_t>(rule.follower)] || notApplicable(rule.follower, media)) continue;
-      if (const double* leader = target(rule.leader)) e.environment.push_back({rule.follower, *leader});
+      if (const double* leader = target(rule.leader)) e.environment.push_back({rule.follower, *leader, false});
     }
   }
 
@@ -577,7 +577,12 @@ std::vector<EventSpec> readEvents(const CaseReader& reader, const TableView& roo
     }
   }
   std::vector<EventSpec> events;
-  for (std::size_t index : order) events.push_back(std::move(read[index]));
+  for (std::size_t index : order) {
+    read[index].where = reader.location(sources[index].node);
+    read[index].source = sources[index].label;
+    read[index].weatherRow = index >= tableEvents;
+    events.push_back(std::move(read[index]));
+  }
   return events;
 }
 

@@ -96,6 +96,9 @@ struct EnvironmentSpec {
 struct EnvironmentValue {
   EnvironmentVariable variable = EnvironmentVariable::Temperature;
   double value = 0.0;  //!< [SI]
+  //! Given by the case (an [[events]] entry or a weather-file column), not a value following another (models/
+  //! inert_keys.hpp warns only of given values).
+  bool given = true;
 };
 
 //! Vasomotor targets of one event for one segment ("all": every segment).
@@ -136,6 +139,10 @@ struct EventSpec {
   std::vector<ControlTarget> control;
   std::string label;   //!< for figures
   double span = 0.0;   //!< shaded duration in figures [s] (0: the ramp)
+  //! Where it came from, for warnings: "FILE:LINE:COLUMN" of its `at` (an [[events]] entry) or of
+  //! environment.weather (a weather row), and the entry's key path ("events.2") or the row ("weather.csv line 7").
+  std::string where, source;
+  bool weatherRow = false;
 };
 
 }  // namespace thermorph

@@ -1,0 +1,356 @@
+#include "models/inert_keys.hpp"
+
+#include <algorithm>
+#include <cctype>
+#include <set>
+
+#include <fmt/format.h>
+
+#include "models/environment.hpp"
+
+namespace thermorph {
+
+namespace {
+
+using V = EnvironmentVariable;
+constexpr std::size_t index(V v) { return static_cast<std::size_t>(v); }
+
+//! Where a segment's faces can be: the fluids of the run (EnvironmentModel::fluid).
+enum Fluid : std::size_t { MediumFluid, WaterInAir, AirInWater, kFluids };
+
+}  // namespace
+
+InertKeys::InertKeys(const Case& c) : case_(c) {
+  environment();
+  surfaces();
+  controllers();
+  others();
+}
+
+void InertKeys::environment() {
+  const Case& c = case_;
+  const EnvironmentSpec& spec = c.environment;
+  // The media of the run: the one in effect from t = 0 (an event at 0 included), then each an event steps to. The
+  // medium is constant between its steps, and so is which segments are in water (EnvironmentModel::inWater).
+  // (No EnvironmentModel here: its construction resets the log of range warnings, and the resolved case is written
+  // while a run's warnings are still being logged.)
+  std::vector<SurroundingMedium> media{spec.medium};
+  for (const EventSpec& e : c.events)
+    if (e.medium) {
+      if (e.at <= 0.0) media.front() = *e.medium;
+      else media.push_back(*e.medium);
+    }
+  const std::size_t n = c.segments.size();
+  std::array<bool, kEnvironmentVariables> used{};
+  std::array<bool, kFluids> inFluid{}, correlationInFluid{};
+  neverInAir_.assign(n, true);
+  everInWater_.assign(n, false);
+  for (std::size_t g = 0; g < n; ++g) emissivity_.push_back(EnvironmentModel::segmentEmissivity(c.segments[g], spec));
+  std::size_t respiratory = n;
+  for (std::size_t g = 0; g < n; ++g)
+    if (c.segments[g].name == c.body.respiratorySegment) respiratory = g;
+  for (const SurroundingMedium medium : media) {
+    const bool mediumAir = medium == SurroundingMedium::Air;
+    for (std::size_t g = 0; g < n; ++g) {
+      const SegmentSpec& s = c.segments[g];
+      const bool correlation = !s.surface.convection.value_or(spec.convection).fixed;
+      const bool water = EnvironmentModel::inWater(s.surface.immersion, medium);
+      const Fluid fluid = water == !mediumAir ? MediumFluid : water ? WaterInAir : AirInWater;
+      inFluid[fluid] = true;
+      correlationInFluid[fluid] = correlationInFluid[fluid] || correlation;
+      if (water) {
+        everInWater_[g] = true;
+      } else {
+        neverInAir_[g] = false;
+        // Long-wave radiation, sun and evaporation: air only (EnvironmentModel::faceHeat).
+        if (emissivity_[g] > 0.0) {
+          used[index(V::SkyTemperature)] = used[index(V::SkyTemperature)] || s.surface.skyView > 0.0;
+          used[index(V::RadiantTemperature)] = used[index(V::RadiantTemperature)] || s.surface.skyView < 1.0;
+        }
+        if (s.surface.solarAbsorptivity > 0.0 && s.surface.solarExposure > 0.0) used[index(V::SolarIrradiance)] = true;
+        if (s.surface.wettedFraction > 0.0) used[index(V::RelativeHumidity)] = true;
+      }
+      if (s.surface.contactFraction > 0.0) used[index(V::SubstrateTemperature)] = true;
+    }
+    // Respiration breathes the air around the animal unless its segment is under water (PhysiologyModel).
+    if (respiratory < n && !EnvironmentModel::inWater(c.segments[respiratory].surface.immersion, medium)) {
+      used[index(V::RelativeHumidity)] = true;
+      used[index(mediumAir ? V::Temperature : V::AirTemperature)] = true;
+    }
+  }
+  used[index(V::Temperature)] = used[index(V::Temperature)] || inFluid[MediumFluid];
+  used[index(V::Speed)] = correlationInFluid[MediumFluid];
+  used[index(V::WaterTemperature)] = inFluid[WaterInAir];
+  used[index(V::WaterSpeed)] = correlationInFluid[WaterInAir];
+  used[index(V::AirTemperature)] = used[index(V::AirTemperature)] || inFluid[AirInWater];
+  used[index(V::AirSpeed)] = correlationInFluid[AirInWater];
+  // A value that another follows acts through it (models/environment_case.cpp followRules, in any medium; whether
+  // the follower is given is not asked, so that a case and its resolved text, which gives every value, agree).
+  const std::pair<V, V> follows[] = {{V::WaterTemperature, V::Temperature}, {V::AirTemperature, V::Temperature},
+                                     {V::RadiantTemperature, V::Temperature}, {V::RadiantTemperature, V::AirTemperature},
+                                     {V::SkyTemperature, V::RadiantTemperature}, {V::SubstrateTemperature, V::Temperature}};
+  for (int pass = 0; pass < 3; ++pass)
+    for (auto [follower, leader] : follows) used[index(leader)] = used[index(leader)] || used[index(follower)];
+
+  const bool allInWater = std::all_of(neverInAir_.begin(), neverInAir_.end(), [](bool b) { return b; });
+  const std::string inWater =
+      spec.everAir() ? "every segment is in water for the whole run (every segment has surface.immersion = \"always\")"
+                     : "every segment is in water for the whole run (the medium is water throughout, no [[events]] "
+                       "entry changes it to air, and no segment has surface.immersion = \"never\")";
+  const std::string noMedium = "no segment is ever in the medium of [environment] (each has surface.immersion "
+                               "\"always\" while the medium is air, or \"never\" while it is water)";
+  const std::string noWaterInAir = "no segment is in water while the medium is air (no segment has surface.immersion = "
+                                   "\"always\")";
+  const std::string noAirInWater = "no segment is in air while the medium is water (no segment has surface.immersion = "
+                                   "\"never\")";
+  auto fixedIn = [](const char* where) {
+    return fmt::format("every segment {} has a fixed convection coefficient (the speed enters only the correlations)",
+                       where);
+  };
+  for (std::size_t v = 0; v < kEnvironmentVariables; ++v) {
+    if (used[v]) continue;
+    std::string why;
+    switch (static_cast<V>(v)) {
+      case V::Temperature: why = noMedium; break;
+      case V::Speed: why = inFluid[MediumFluid] ? fixedIn("in the medium") : noMedium; break;
+      case V::WaterTemperature: why = noWaterInAir; break;
+      case V::WaterSpeed: why = inFluid[WaterInAir] ? fixedIn("in water while the medium is air") : noWaterInAir; break;
+      case V::AirTemperature: why = allInWater ? inWater : noAirInWater; break;
+      case V::AirSpeed:
+        why = allInWater ? inWater : inFluid[AirInWater] ? fixedIn("in air while the medium is water") : noAirInWater;
+        break;
+      case V::RelativeHumidity:
+        why = allInWater ? inWater
+                         : std::string("no segment in air is wet (surface.wetted_fraction = 0 on every one) and there "
+                                       "is no breathing of air (") +
+                               (c.body.respiratorySegment.empty() ? "no [body] respiratory_segment)"
+                                                                  : "the respiratory segment is in water throughout)");
+        break;
+      case V::RadiantTemperature:
+      case V::SkyTemperature:
+        why = allInWater ? inWater
+                         : fmt::format("no segment in air exchanges long-wave radiation with it (each has sky_view = {} "
+                                       "or emissivity 0, the default with a fixed convection coefficient)",
+                                       static_cast<V>(v) == V::SkyTemperature ? 0 : 1);
+        break;
+      case V::SolarIrradiance:
+        why = allInWater ? inWater : "every segment in air has solar_absorptivity = 0 or solar_exposure = 0";
+        break;
+      case V::SubstrateTemperature:
+        why = "no segment touches the substrate (surface.contact_fraction = 0 on every segment)";
+        break;
+    }
+    variables_[v] = why;
+    add("environment." + std::string(environmentKey(static_cast<V>(v))), why);
+  }
+  if (spec.everAir() && !inFluid[WaterInAir]) add("environment.immersion_water", noWaterInAir);
+  if (!used[index(V::SubstrateTemperature)])
+    add("environment.substrate_conductance", *variables_[index(V::SubstrateTemperature)]);
+  if (n > 0 && std::all_of(c.segments.begin(), c.segments.end(), [](const SegmentSpec& s) { return s.surface.convection.has_value(); }))
+    add("environment.convection", "every segment gives its own surface.convection");
+
+}
+
+void InertKeys::surfaces() {
+  const Case& c = case_;
+  // The sun: zero throughout when [environment], every [[events]] entry and every weather row give 0 W/m2.
+  bool sun = c.environment.solarIrradiance > 0.0;
+  for (const EventSpec& e : c.events)
+    for (const EnvironmentValue& v : e.environment) sun = sun || (v.variable == V::SolarIrradiance && v.value > 0.0);
+  for (std::size_t g = 0; g < c.segments.size(); ++g) {
+    const SegmentSpec& s = c.segments[g];
+    const std::string p = "segments." + s.name + ".surface.";
+    if (neverInAir_[g]) {
+      const std::string why = fmt::format("segment {} is in water for the whole run (long-wave radiation, sun and "
+                                          "evaporation act in air only)", s.name);
+      for (const char* key : {"emissivity", "sky_view", "solar_absorptivity", "solar_exposure", "wetted_fraction"})
+        add(p + key, why);
+    } else {
+      if (!(emissivity_[g] > 0.0))
+        add(p + "sky_view", fmt::format("segment {} exchanges no long-wave radiation (emissivity 0, the default with a "
+                                        "fixed convection coefficient; give surface.emissivity)", s.name));
+      if (!sun) {
+        const std::string why = "the solar irradiance is 0 for the whole run (environment.solar_irradiance, every "
+                                "[[events]] entry and weather row)";
+        add(p + "solar_absorptivity", why);
+        add(p + "solar_exposure", why);
+      } else if (!(s.surface.solarExposure > 0.0)) {
+        add(p + "solar_absorptivity", fmt::format("segment {} has solar_exposure = 0 (no sunlit area)", s.name));
+      } else if (!(s.surface.solarAbsorptivity > 0.0)) {
+        add(p + "solar_exposure", fmt::format("segment {} has solar_absorptivity = 0 (absorbs no sun)", s.name));
+      }
+    }
+    if (!s.coat && s.shape != Shape::Sphere) add(p + "end_coat", fmt::format("segment {} has no coat", s.name));
+    if (s.surface.convection.value_or(c.environment.convection).fixed) {
+      const std::string why = fmt::format("segment {} has a fixed convection coefficient (no correlation is used)", s.name);
+      add(p + "correlation", why);
+      if (s.shape == Shape::Plate) add(p + "orientation", why);
+    }
+  }
+}
+
+void InertKeys::controllers() {
+  const Case& c = case_;
+  auto offThroughout = [&](const std::string& name, bool enabled) {
+    if (enabled) return false;
+    for (const EventSpec& e : c.events)
+      for (const ControlTarget& t : e.control)
+        if (t.controller == name && t.enabled && *t.enabled) return false;
+    return true;
+  };
+  auto off = [&](const std::string& name, const std::string& table, std::initializer_list<const char*> keys) {
+    const std::string why = fmt::format("[{}] is off for the whole run (enabled = \"off\" and no [[events]] entry "
+                                        "switches it on)", table);
+    controllerOff_[name] = why;
+    for (const char* key : keys) add(table + "." + key, why);
+  };
+  const ControlSpec& k = c.control;
+  if (k.vasomotor.present && offThroughout("vasomotor", k.vasomotor.enabled))
+    off("vasomotor", "control.vasomotor", {"signal", "set_point", "gain", "min", "max", "shunt_gain", "time_constant"});
+  if (k.shivering.present && offThroughout("shivering", k.shivering.enabled))
+    off("shivering", "control.shivering", {"signal", "set_point", "gain", "max_power", "time_constant"});
+  if (k.panting.present && offThroughout("panting", k.panting.enabled))
+    off("panting", "control.panting", {"signal", "set_point", "gain", "max", "time_constant"});
+  // A local controller's segments and CIVD act whether it is on or off (the body-wide controller leaves its
+  // segments alone; CIVD is never switched).
+  for (const LocalControllerSpec& l : k.local)
+    if (offThroughout(l.name, l.enabled))
+      off(l.name, "control.local." + l.name, {"signal", "set_point", "gain", "min", "max", "shunt_gain", "time_constant"});
+}
+
+void InertKeys::others() {
+  const Case& c = case_;
+  if (c.body.respiratorySegment.empty()) {
+    add("body.exhaled_temperature", "there is no respiration (no [body] respiratory_segment)");
+  } else {
+    for (std::size_t g = 0; g < c.segments.size(); ++g)
+      if (c.segments[g].name == c.body.respiratorySegment && neverInAir_[g])
+        add("body.exhaled_temperature", fmt::format("the respiratory segment {} is in water for the whole run (no "
+                                                    "breathing under water)", c.body.respiratorySegment));
+  }
+  bool bradycardia = false;
+  for (const EventSpec& e : c.events) bradycardia = bradycardia || e.bradycardia.has_value();
+  if (!bradycardia)
+    add("circulation.bradycardia_tissues", "no [[events]] entry sets circulation.bradycardia");
+  // [tissues.NAME] that no layer, coat, bradycardia list or other tissue's base names.
+  std::set<std::string> usedTissues(c.circulation.bradycardiaTissues.begin(), c.circulation.bradycardiaTissues.end());
+  for (const SegmentSpec& s : c.segments) {
+    for (const LayerSpec& l : s.layers) usedTissues.insert(l.tissue);
+    if (s.coat) usedTissues.insert(s.coat->material);
+  }
+  const std::string basedOn = "case file, based on ";
+  for (const auto& [name, tissue] : c.tissues)
+    if (tissue.source.rfind(basedOn, 0) == 0 && tissue.source.substr(basedOn.size()) != name)
+      usedTissues.insert(tissue.source.substr(basedOn.size()));
+  for (const auto& [name, tissue] : c.tissues)
+    if (!usedTissues.count(name))
+      add("tissues." + name, fmt::format("no segment uses the tissue {} (no layer or coat names it)", name));
+  // Coats conduct with their wet conductivity while their segment is in water (Body::setInterval).
+  std::set<std::string> wetCoats;
+  for (std::size_t g = 0; g < c.segments.size(); ++g)
+    if (c.segments[g].coat && everInWater_[g]) wetCoats.insert(c.segments[g].coat->material);
+  for (const auto& [name, tissue] : c.tissues)
+    if (tissue.isCoat() && usedTissues.count(name) && !wetCoats.count(name))
+      add("tissues." + name + ".wet_conductivity",
+          fmt::format("no segment with a coat of {} is in water at any time (the wet conductivity applies in water "
+                      "only)", name));
+}
+
+std::optional<std::string> InertKeys::reason(const std::string& given) const {
+  // A segment by number (as --set accepts it) is named here by its name.
+  std::string path = given;
+  if (path.rfind("segments.", 0) == 0) {
+    const std::size_t start = 9, end = path.find('.', start);
+    const std::string part = path.substr(start, end == std::string::npos ? std::string::npos : end - start);
+    if (!part.empty() && part.size() < 10 &&
+        std::all_of(part.begin(), part.end(), [](unsigned char ch) { return std::isdigit(ch); }) &&
+        std::stoul(part) < case_.segments.size())
+      path = "segments." + case_.segments[std::stoul(part)].name + (end == std::string::npos ? "" : path.substr(end));
+  }
+  // The key itself, or a table above it (a tissue no segment uses).
+  for (std::string p = path;;) {
+    if (auto it = reasons_.find(p); it != reasons_.end()) return it->second;
+    const auto dot = p.find_last_of('.');
+    if (dot == std::string::npos) break;
+    p.erase(dot);
+  }
+  // Values of the timeline: events.N.environment.KEY, environment.weather.KEY, events.N.control.NAME.set_point.
+  const auto last = path.find_last_of('.');
+  const std::string key = path.substr(last + 1), head = last == std::string::npos ? "" : path.substr(0, last);
+  const bool eventValue = path.rfind("events.", 0) == 0 && head.size() > 12 &&
+                          head.compare(head.size() - 12, 12, ".environment") == 0;
+  if (eventValue || head == "environment.weather")
+    for (std::size_t v = 0; v < kEnvironmentVariables; ++v)
+      if (environmentKey(static_cast<V>(v)) == key && variables_[v]) return variables_[v];
+  if (path.rfind("events.", 0) == 0 && key == "set_point") {
+    const auto control = head.find(".control.");
+    if (control != std::string::npos)
+      if (auto it = controllerOff_.find(head.substr(control + 9)); it != controllerOff_.end()) return it->second;
+  }
+  return std::nullopt;
+}
+
+std::vector<std::string> InertKeys::warnings() const {
+  const Case& c = case_;
+  std::vector<std::string> out;
+  std::set<std::string> tables;  // a table with no effect as a whole warns once
+  for (const auto& [path, at] : c.given) {
+    if (path.rfind("events.", 0) == 0) continue;  // below, from the timeline
+    std::optional<std::string> why;
+    std::string key = path;
+    for (std::string p = path;;) {
+      if (auto it = reasons_.find(p); it != reasons_.end()) {
+        why = it->second;
+        key = p;
+        break;
+      }
+      const auto dot = p.find_last_of('.');
+      if (dot == std::string::npos) break;
+      p.erase(dot);
+    }
+    if (!why) continue;
+    const std::string where = at.line > 0 ? fmt::format("{}:{}:{}", c.sourceFile, at.line, at.column)
+                                          : c.sourceFile + " (an override: --set, a sweep or fit parameter, or set= in "
+                                                           "Python)";
+    if (key != path) {
+      if (!tables.insert(key).second) continue;
+      out.push_back(fmt::format("{}: [{}] has no effect: {}", where, key, *why));
+    } else {
+      out.push_back(fmt::format("{}: {} has no effect: {}", where, path, *why));
+    }
+  }
+  // Values of the timeline: one warning per variable for [[events]] entries, one per weather column.
+  for (std::size_t v = 0; v < kEnvironmentVariables; ++v) {
+    if (!variables_[v]) continue;
+    const std::string key(environmentKey(static_cast<V>(v)));
+    const EventSpec* first = nullptr;
+    std::size_t entries = 0;
+    bool weather = false;
+    std::string weatherWhere;
+    for (const EventSpec& e : c.events)
+      for (const EnvironmentValue& value : e.environment) {
+        if (value.variable != static_cast<V>(v) || !value.given) continue;
+        if (e.weatherRow) {
+          weather = true;
+          weatherWhere = e.where;
+        } else if (entries++ == 0) {
+          first = &e;
+        }
+      }
+    if (first)
+      out.push_back(fmt::format("{}: {}.environment.{}{} has no effect: {}", first->where, first->source, key,
+                                entries > 1 ? fmt::format(" (and {} more [[events]] entries)", entries - 1) : "",
+                                *variables_[v]));
+    if (weather)
+      out.push_back(fmt::format("{}: environment.weather: the column {} has no effect: {}", weatherWhere, key,
+                                *variables_[v]));
+  }
+  for (const EventSpec& e : c.events)
+    for (const ControlTarget& t : e.control)
+      if (auto it = controllerOff_.find(t.controller); it != controllerOff_.end() && t.setPoint)
+        out.push_back(fmt::format("{}{}: {}.set_point has no effect: {}", c.sourceFile,
+                                  t.where.empty() ? "" : ":" + t.where, t.path, it->second));
+  return out;
+}
+
+}  // namespace thermorph

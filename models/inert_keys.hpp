@@ -1,0 +1,48 @@
+#pragma once
+//! Case keys that have no effect in the case as written: the air's values when every segment is in water for the
+//! whole run, the water's when none ever is, the parameters of a controller that is off throughout, surface keys of
+//! a segment in water throughout, and the like. The loader warns of those the user gave (Case::given); the resolved
+//! case leaves out those the user did not give (so that re-running it does not warn of them); sweeps, fits,
+//! sensitivity and uncertainty runs refuse a parameter with no effect (exit 2).
+#include <array>
+#include <map>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "models/case.hpp"
+
+namespace thermorph {
+
+class InertKeys {
+ public:
+  //! Works from the loaded case only (the same answers for a case and its resolved text).
+  explicit InertKeys(const Case& c);
+
+  //! Why `path` (a key path as --set writes it; events and weather columns as "events.N.environment.KEY" and
+  //! "environment.weather.KEY") has no effect in the case, or nullopt when it may have one.
+  std::optional<std::string> reason(const std::string& path) const;
+  //! Why an environment variable has no effect anywhere in the run ([environment], [[events]], weather rows).
+  const std::optional<std::string>& variable(EnvironmentVariable v) const {
+    return variables_[static_cast<std::size_t>(v)];
+  }
+  //! One warning per inert key the case gives: "FILE:LINE:COLUMN: KEY has no effect: WHY" (an environment value
+  //! given by several [[events]] entries or weather rows once, naming the first and how many).
+  std::vector<std::string> warnings() const;
+
+ private:
+  void environment();
+  void surfaces();
+  void controllers();
+  void others();
+  void add(const std::string& path, std::string why) { reasons_.emplace(path, std::move(why)); }
+
+  const Case& case_;
+  std::array<std::optional<std::string>, kEnvironmentVariables> variables_;
+  std::map<std::string, std::string> reasons_;  //!< key path -> why (keys outside [[events]] and weather rows)
+  std::map<std::string, std::string> controllerOff_;  //!< controller name -> why it is off throughout
+  std::vector<bool> neverInAir_, everInWater_;  //!< per segment
+  std::vector<double> emissivity_;              //!< per segment, defaults resolved (EnvironmentModel::emissivity)
+};
+
+}  // namespace thermorph

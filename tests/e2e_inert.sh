@@ -1,0 +1,92 @@
+#!/usr/bin/env bash
+# End-to-end: case keys with no effect in the case as written (models/inert_keys.hpp).
+# 1. `check`, `run` and `steady` warn of each one the case gives, naming FILE:LINE:COLUMN, the key path and why; the
+#    run's results file stores the warning in /provenance/warnings. A case that gives none warns of none.
+# 2. The resolved case (`check --resolved`) re-run warns of the same keys when the case gave them, of none when not.
+# 3. A sweep, fit, sensitivity or uncertainty run whose parameter has no effect is refused with exit 2 and a message
+#    naming the key and why, before any run and without an output file; a sweep whose other axis makes the key act
+#    runs (exit 0).
+# Arguments: THERMORPH_EXE SOURCE_DIR PYTHON
+set -uo pipefail
+exe="$1"; src="$2"; python="${3:-/usr/bin/python3}"
+work="$(mktemp -d)"; trap 'rm -rf "$work"' EXIT
+fail() { echo "FAIL: $*"; exit 1; }
+cd "$work"
+cat > bare.toml <<'TOML'
+title = "Swimmer (illustrative)"
+[run]
+duration = "10 min"
+output_interval = "5 min"
+[environment]
+medium = "water"
+temperature = "10 degC"
+speed = "0.5 m/s"
+[[segments]]
+name = "trunk"
+shape = "cylinder"
+length = "30 cm"
+axial_cells = 3
+layers = [{ tissue = "muscle", thickness = "5 cm", cells = 4 }, { tissue = "skin", thickness = "0.3 cm", cells = 1 }]
+[[segments]]
+name = "head"
+parent = "trunk"
+shape = "sphere"
+radius = "5 cm"
+layers = [{ tissue = "muscle", cells = 4 }]
+TOML
+# The same with the air's temperature (line 9, its value at column 19) and a controller that is never on.
+sed 's/^speed = "0.5 m\/s"$/speed = "0.5 m\/s"\nair_temperature = "-5 degC"/' bare.toml > swim.toml
+printf '[control.shivering]\nenabled = "off"\ngain = "0.8 1/K"\n' >> swim.toml
+grep -q '^air_temperature' swim.toml || fail "test set-up"
+
+# 1. Warnings of the given keys, stored in the results.
+"$exe" check swim.toml > /dev/null 2> check.err || fail "check exit $?: $(cat check.err)"
+grep -q '^warning: swim.toml:9:19: environment.air_temperature has no effect: every segment is in water for the whole run' check.err ||
+  fail "no air_temperature warning from check: $(cat check.err)"
+grep -q 'control.shivering.gain has no effect: \[control.shivering\] is off for the whole run' check.err ||
+  fail "no controller warning: $(cat check.err)"
+[[ $(grep -c 'has no effect' check.err) == 2 ]] || fail "expected 2 warnings: $(cat check.err)"
+for command in run steady; do
+  "$exe" $command swim.toml -q -o $command.h5 > /dev/null 2> $command.err || fail "$command exit $?: $(cat $command.err)"
+  grep -q 'environment.air_temperature has no effect' $command.err || fail "$command: no warning: $(cat $command.err)"
+done
+"$python" - run.h5 <<'PY' || fail "warning not stored in the results file"
+import sys, h5py
+with h5py.File(sys.argv[1]) as f:
+    w = [x.decode() if isinstance(x, bytes) else str(x) for x in f["provenance/warnings"][()]]
+assert any("swim.toml:9:19: environment.air_temperature has no effect" in x for x in w), w
+PY
+"$exe" check bare.toml > /dev/null 2> bare.err || fail "check bare exit $?"
+grep -q 'has no effect' bare.err && fail "a case without such keys warns: $(cat bare.err)"
+
+# 2. Resolved cases: the same warnings when given, none when not.
+"$exe" check --resolved swim.toml > swim.resolved.toml 2> /dev/null || fail "check --resolved"
+"$exe" check swim.resolved.toml > /dev/null 2> resolved.err || fail "check resolved exit $?"
+[[ $(grep -c 'has no effect' resolved.err) == 2 ]] || fail "resolved re-run: expected the 2 warnings: $(cat resolved.err)"
+grep -q 'swim.resolved.toml:[0-9]*:[0-9]*: environment.air_temperature has no effect' resolved.err || fail "$(cat resolved.err)"
+"$exe" check --resolved bare.toml > bare.resolved.toml 2> /dev/null || fail "check --resolved bare"
+"$exe" check bare.resolved.toml > /dev/null 2> bare.resolved.err || fail "check bare resolved exit $?"
+grep -q 'has no effect' bare.resolved.err && fail "the resolved case of a case without such keys warns: $(cat bare.resolved.err)"
+
+# 3. Parameters with no effect: refused before any run.
+expect2() {  # expect2 TEXT ARGS...: exit 2 and TEXT on stderr, no output file
+  local text="$1"; shift
+  "$exe" "$@" > out.txt 2> err.txt; local rc=$?
+  [[ $rc == 2 ]] || fail "$* : exit $rc, expected 2: $(cat err.txt)"
+  grep -q -- "$text" err.txt || fail "$* : message lacks \"$text\": $(cat err.txt)"
+  [[ -e out.csv || -e out.h5 ]] && fail "$* : an output file was written"
+  return 0
+}
+expect2 "bare.toml: --vary environment.air_temperature: the key has no effect in this case, so every run would give the same results: every segment is in water" \
+  sweep bare.toml --vary "environment.air_temperature=-10 degC:10 degC:3" -o out.csv -q
+expect2 "segments.0.surface.emissivity: the key has no effect" sweep bare.toml --vary "segments.0.surface.emissivity=0.5,0.9" -o out.csv -q
+"$exe" sweep bare.toml --vary "environment.air_temperature=-10 degC:10 degC:2" --vary "segments.head.surface.immersion=body,never" \
+  -o acts.csv -q > /dev/null 2> acts.err || fail "sweep with an axis that makes the key act: exit $?: $(cat acts.err)"
+printf 'time [min], body.core_temperature [degC], body.core_temperature.sd [K]\n0, 37, 0.1\n5, 36.9,\n10, 36.8,\n' > obs.csv
+expect2 "--free environment.air_temperature=-10 degC:10 degC: the key has no effect in this case" \
+  fit bare.toml --data obs.csv --free "environment.air_temperature=-10 degC:10 degC" --start "environment.air_temperature=0 degC" -o out.h5 -q
+expect2 "the key has no effect in this case" \
+  sensitivity bare.toml --set environment.air_temperature="0 degC" --method morris --param "environment.air_temperature=-10 degC:10 degC" -N 2 -o out.h5 -q
+expect2 "--param environment.air_temperature: the key has no effect in this case" \
+  uncertainty bare.toml --param "environment.air_temperature[degC]=normal:10:2" --samples 4 -o out.h5 -q
+echo "e2e_inert: ok"

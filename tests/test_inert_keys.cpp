@@ -1,0 +1,259 @@
+// Case keys with no effect in the case as written (models/inert_keys.hpp): the loader warns of each one the case
+// gives, naming file, line, column and key path; a key with no effect leaves every node temperature bit for bit
+// unchanged when its value changes, and a key that acts changes them (identity; no outside source needed: "no
+// effect" means exactly that). The resolved case leaves out keys with no effect that the case did not give, so that
+// re-running it warns of the same keys as the case, and of none when the case gave none.
+#include <catch2/catch.hpp>
+
+#include <algorithm>
+#include <filesystem>
+#include <string>
+#include <vector>
+
+#include "test_support.hpp"
+#include "models/inert_keys.hpp"
+
+using namespace thermorph;
+using thermorph::testing::silentRun;
+
+namespace {
+
+//! A small swimmer: a trunk and a head in 10 degC water (values illustrative), 10 minutes. `environment` and
+//! `trunk` add keys to [environment] and to the trunk's table; `rest` adds tables at the end.
+std::string swimmer(const std::string& environment, const std::string& trunk = "", const std::string& rest = "") {
+  return R"toml(title = "Swimmer (illustrative)"
+[run]
+duration = "10 min"
+output_interval = "5 min"
+[environment]
+medium = "water"
+temperature = "10 degC"
+speed = "0.5 m/s"
+)toml" + environment + R"toml(
+[[segments]]
+name = "trunk"
+shape = "cylinder"
+length = "30 cm"
+axial_cells = 3
+layers = [{ tissue = "muscle", thickness = "5 cm", cells = 4 }, { tissue = "skin", thickness = "0.3 cm", cells = 1 }]
+)toml" + trunk + R"toml(
+[[segments]]
+name = "head"
+parent = "trunk"
+shape = "sphere"
+radius = "5 cm"
+layers = [{ tissue = "muscle", cells = 4 }]
+)toml" + rest;
+}
+
+//! Warnings of the loaded case that say a key has no effect.
+std::vector<std::string> inertWarnings(const Case& c) {
+  std::vector<std::string> out;
+  for (const std::string& w : c.warnings)
+    if (w.find("has no effect") != std::string::npos) out.push_back(w);
+  return out;
+}
+
+bool mentions(const std::vector<std::string>& warnings, const std::string& text) {
+  return std::any_of(warnings.begin(), warnings.end(), [&](const std::string& w) { return w.find(text) != std::string::npos; });
+}
+
+//! Node temperatures at the end of a run of the case text with overrides [K].
+std::vector<double> finalTemperatures(const std::string& text, const std::vector<std::string>& overrides = {}) {
+  const Body body(loadCaseFromString(text, "inert.toml", overrides));
+  RunOptions options = silentRun();
+  std::vector<double> last;
+  options.observer = [&](double, std::span<const double> t, const RunSummary&) { last.assign(t.begin(), t.end()); };
+  REQUIRE(runTransient(body, options).complete);
+  return last;
+}
+
+}  // namespace
+
+TEST_CASE("Air-side keys in a case always in water warn and have no effect", "[case][inert]") {
+  const std::string text = swimmer(R"toml(air_temperature = "-5 degC"
+air_speed = "3 m/s"
+relative_humidity = "80 %"
+radiant_temperature = "0 degC"
+sky_temperature = "-20 degC"
+solar_irradiance = "600 W/m2")toml",
+                                   "surface = { emissivity = 0.9, wetted_fraction = 0.2 }");
+  const Case c = loadCaseFromString(text, "inert.toml");
+  const std::vector<std::string> w = inertWarnings(c);
+  for (const char* key : {"environment.air_temperature", "environment.air_speed", "environment.relative_humidity",
+                          "environment.radiant_temperature", "environment.sky_temperature",
+                          "environment.solar_irradiance", "segments.trunk.surface.emissivity",
+                          "segments.trunk.surface.wetted_fraction"}) {
+    INFO(key);
+    CHECK(mentions(w, std::string(key) + " has no effect: "));
+  }
+  // File, line and column of the key as written, and the reason.
+  CHECK(mentions(w, "inert.toml:9:19: environment.air_temperature has no effect: every segment is in water for the whole run"));
+  CHECK(w.size() == 8);
+  // No effect: other values give the same temperatures bit for bit.
+  const std::vector<double> a = finalTemperatures(text);
+  const std::vector<double> b = finalTemperatures(
+      text, {"environment.air_temperature=\"30 degC\"", "environment.solar_irradiance=\"0 W/m2\"",
+             "environment.relative_humidity=0.1", "segments.trunk.surface.emissivity=0.2"});
+  CHECK(a == b);
+
+  SECTION("with a segment in air they act, and do not warn") {
+    const std::vector<std::string> never{"segments.head.surface.immersion=\"never\""};
+    const Case acting = loadCaseFromString(text, "inert.toml", never);
+    const std::vector<std::string> w2 = inertWarnings(acting);
+    CHECK_FALSE(mentions(w2, "environment.air_temperature"));
+    CHECK_FALSE(mentions(w2, "environment.solar_irradiance"));
+    std::vector<std::string> warm = never;
+    warm.push_back("environment.air_temperature=\"30 degC\"");
+    CHECK(finalTemperatures(text, never) != finalTemperatures(text, warm));
+    // The trunk stays in water: its own surface keys still warn.
+    CHECK(mentions(w2, "segments.trunk.surface.emissivity has no effect"));
+  }
+}
+
+TEST_CASE("Water-side keys in a case never in water warn and have no effect", "[case][inert]") {
+  std::string text = swimmer(R"toml(water_temperature = "4 degC"
+water_speed = "1 m/s"
+immersion_water = "sea_water")toml");
+  text.replace(text.find("medium = \"water\""), 16, "medium = \"air\"");
+  const Case c = loadCaseFromString(text, "inert.toml");
+  const std::vector<std::string> w = inertWarnings(c);
+  for (const char* key : {"environment.water_temperature", "environment.water_speed", "environment.immersion_water"}) {
+    INFO(key);
+    CHECK(mentions(w, std::string(key) + " has no effect: no segment is in water while the medium is air"));
+  }
+  CHECK(finalTemperatures(text) == finalTemperatures(text, {"environment.water_temperature=\"30 degC\""}));
+  SECTION("a segment always in water makes them act") {
+    const std::vector<std::string> always{"segments.head.surface.immersion=\"always\""};
+    CHECK(inertWarnings(loadCaseFromString(text, "inert.toml", always)).empty());
+    std::vector<std::string> warm = always;
+    warm.push_back("environment.water_temperature=\"30 degC\"");
+    CHECK(finalTemperatures(text, always) != finalTemperatures(text, warm));
+  }
+}
+
+TEST_CASE("Parameters of a controller off for the whole run warn and have no effect", "[case][inert]") {
+  const std::string text = swimmer("", "", R"toml(
+[control.shivering]
+enabled = "off"
+set_point = "38 degC"
+gain = "0.8 1/K"
+)toml");
+  const std::vector<std::string> w = inertWarnings(loadCaseFromString(text, "inert.toml"));
+  CHECK(mentions(w, "control.shivering.gain has no effect: [control.shivering] is off for the whole run"));
+  CHECK(mentions(w, "control.shivering.set_point has no effect"));
+  CHECK_FALSE(mentions(w, "control.shivering.enabled"));
+  CHECK(finalTemperatures(text) == finalTemperatures(text, {"control.shivering.gain=\"0.1 1/K\""}));
+  SECTION("switched on, by the table or by an event, they act and do not warn") {
+    const std::vector<std::string> on{"control.shivering.enabled=\"on\""};
+    CHECK(inertWarnings(loadCaseFromString(text, "inert.toml", on)).empty());
+    std::vector<std::string> low = on;
+    low.push_back("control.shivering.gain=\"0.1 1/K\"");
+    CHECK(finalTemperatures(text, on) != finalTemperatures(text, low));
+    const std::string event = text + R"toml(
+[[events]]
+at = "5 min"
+control = { shivering = { enabled = "on" } }
+)toml";
+    CHECK(inertWarnings(loadCaseFromString(event, "inert.toml")).empty());
+  }
+}
+
+TEST_CASE("Coat, substrate, respiration and tissue keys that cannot act warn", "[case][inert]") {
+  std::string text = swimmer("substrate_temperature = \"15 degC\"\nsubstrate_conductance = \"50 W/(m2 K)\"",
+                             "surface = { end_coat = \"off\" }", R"toml(
+[body]
+exhaled_temperature = "33 degC"
+[tissues.blubber2]
+base = "fat"
+conductivity = "0.2 W/(m K)"
+)toml");
+  const std::vector<std::string> w = inertWarnings(loadCaseFromString(text, "inert.toml"));
+  CHECK(mentions(w, "segments.trunk.surface.end_coat has no effect: segment trunk has no coat"));
+  CHECK(mentions(w, "environment.substrate_temperature has no effect: no segment touches the substrate"));
+  CHECK(mentions(w, "environment.substrate_conductance has no effect"));
+  CHECK(mentions(w, "body.exhaled_temperature has no effect: there is no respiration"));
+  CHECK(mentions(w, "[tissues.blubber2] has no effect: no segment uses the tissue blubber2"));
+  CHECK(w.size() == 5);
+  CHECK(finalTemperatures(text) ==
+        finalTemperatures(text, {"segments.trunk.surface.end_coat=\"on\"", "environment.substrate_temperature=\"30 degC\"",
+                                 "body.exhaled_temperature=\"30 degC\""}));
+}
+
+TEST_CASE("Environment values of [[events]] with no effect warn once per key; followers do not", "[case][inert]") {
+  const std::string text = swimmer("", "", R"toml(
+[[events]]
+at = "2 min"
+environment = { temperature = "5 degC", air_temperature = "-10 degC" }
+[[events]]
+at = "4 min"
+environment = { air_temperature = "-12 degC" }
+)toml");
+  const std::vector<std::string> w = inertWarnings(loadCaseFromString(text, "inert.toml"));
+  REQUIRE(w.size() == 1);
+  CHECK(w[0].find("inert.toml:") == 0);
+  CHECK(w[0].find("events.0.environment.air_temperature (and 1 more [[events]] entries) has no effect") != std::string::npos);
+}
+
+TEST_CASE("A resolved case re-run warns of the keys the case gave, and of none it did not", "[case][inert][resolved]") {
+  SECTION("no key given: the resolved case, which writes every value that acts, warns of nothing") {
+    const std::string text = swimmer("");
+    const Case c = loadCaseFromString(text, "inert.toml");
+    REQUIRE(inertWarnings(c).empty());
+    const std::string resolved = resolvedCaseToml(c);
+    CHECK(resolved.find("air_temperature") == std::string::npos);  // no effect, not given: left out
+    CHECK(resolved.find("sky_view") == std::string::npos);
+    const Case again = loadCaseFromString(resolved, "resolved.toml");
+    CHECK(inertWarnings(again).empty());
+    CHECK(finalTemperatures(text) == finalTemperatures(resolved));
+  }
+  SECTION("keys given: the same warnings again") {
+    const std::string text = swimmer("air_temperature = \"-5 degC\"", "", R"toml(
+[control.shivering]
+enabled = "off"
+gain = "0.8 1/K"
+)toml");
+    const Case c = loadCaseFromString(text, "inert.toml");
+    const Case again = loadCaseFromString(resolvedCaseToml(c), "resolved.toml");
+    auto keys = [](const std::vector<std::string>& warnings) {
+      std::vector<std::string> out;
+      for (const std::string& w : warnings) out.push_back(w.substr(w.find(": ") + 2));  // without FILE:LINE:COLUMN
+      std::sort(out.begin(), out.end());
+      return out;
+    };
+    CHECK(keys(inertWarnings(c)).size() == 2);
+    CHECK(keys(inertWarnings(again)) == keys(inertWarnings(c)));
+  }
+  SECTION("a resolved case of an earlier version (every key written, no second header line) warns of nothing") {
+    std::string current = resolvedCaseToml(loadCaseFromString(swimmer(""), "inert.toml"));
+    current.replace(current.find("[environment]\n"), 14, "[environment]\nair_temperature = 270.0\n");
+    std::string legacy = current;
+    const std::size_t line = legacy.find("# Keys with no effect");
+    REQUIRE(line != std::string::npos);
+    legacy.erase(line, legacy.find('\n', line) - line + 1);
+    CHECK(inertWarnings(loadCaseFromString(legacy, "old.toml")).empty());
+    CHECK(inertWarnings(loadCaseFromString(current, "new.toml")).size() == 1);
+  }
+}
+
+TEST_CASE("InertKeys::reason answers for sweep and fit parameters", "[case][inert]") {
+  const Case c = loadCaseFromString(swimmer(""), "inert.toml");
+  const InertKeys inert(c);
+  CHECK(inert.reason("environment.air_temperature"));
+  CHECK(inert.reason("segments.0.surface.emissivity"));  // a segment by number
+  CHECK(inert.reason("events.3.environment.relative_humidity"));
+  CHECK_FALSE(inert.reason("environment.temperature"));
+  CHECK_FALSE(inert.reason("environment.speed"));
+  CHECK_FALSE(inert.reason("segments.trunk.length"));
+}
+
+TEST_CASE("No shipped case warns of a key with no effect after its resolved text is reloaded that it did not warn of",
+          "[case][inert][resolved]") {
+  for (const auto& entry : std::filesystem::directory_iterator(THERMORPH_SOURCE_DIR "/cases")) {
+    if (entry.path().extension() != ".toml") continue;
+    INFO(entry.path().filename().string());
+    const Case c = loadCase(entry.path().string());
+    const Case again = loadCaseFromString(resolvedCaseToml(c), (entry.path().parent_path() / "resolved.toml").string());
+    CHECK(inertWarnings(again).size() <= inertWarnings(c).size());
+  }
+}
