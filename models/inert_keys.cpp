@@ -256,6 +256,16 @@ void InertKeys::others() {
                       "only)", name));
 }
 
+std::map<std::string, std::string>::const_iterator InertKeys::find(const std::string& path) const {
+  // The key itself, or a table above it (a tissue no segment uses).
+  for (std::string p = path;;) {
+    if (auto it = reasons_.find(p); it != reasons_.end()) return it;
+    const auto dot = p.find_last_of('.');
+    if (dot == std::string::npos) return reasons_.end();
+    p.erase(dot);
+  }
+}
+
 std::optional<std::string> InertKeys::reason(const std::string& given) const {
   // A segment by number (as --set accepts it) is named here by its name.
   std::string path = given;
@@ -267,13 +277,7 @@ std::optional<std::string> InertKeys::reason(const std::string& given) const {
         std::stoul(part) < case_.segments.size())
       path = "segments." + case_.segments[std::stoul(part)].name + (end == std::string::npos ? "" : path.substr(end));
   }
-  // The key itself, or a table above it (a tissue no segment uses).
-  for (std::string p = path;;) {
-    if (auto it = reasons_.find(p); it != reasons_.end()) return it->second;
-    const auto dot = p.find_last_of('.');
-    if (dot == std::string::npos) break;
-    p.erase(dot);
-  }
+  if (auto it = find(path); it != reasons_.end()) return it->second;
   // Values of the timeline: events.N.environment.KEY, environment.weather.KEY, events.N.control.NAME.set_point.
   const auto last = path.find_last_of('.');
   const std::string key = path.substr(last + 1), head = last == std::string::npos ? "" : path.substr(0, last);
@@ -296,27 +300,18 @@ std::vector<std::string> InertKeys::warnings() const {
   std::set<std::string> tables;  // a table with no effect as a whole warns once
   for (const auto& [path, at] : c.given) {
     if (path.rfind("events.", 0) == 0) continue;  // below, from the timeline
-    std::optional<std::string> why;
-    std::string key = path;
-    for (std::string p = path;;) {
-      if (auto it = reasons_.find(p); it != reasons_.end()) {
-        why = it->second;
-        key = p;
-        break;
-      }
-      const auto dot = p.find_last_of('.');
-      if (dot == std::string::npos) break;
-      p.erase(dot);
-    }
-    if (!why) continue;
+    const auto found = find(path);
+    if (found == reasons_.end()) continue;
+    const std::string& key = found->first;
+    const std::string& why = found->second;
     const std::string where = at.line > 0 ? fmt::format("{}:{}:{}", c.sourceFile, at.line, at.column)
                                           : c.sourceFile + " (an override: --set, a sweep or fit parameter, or set= in "
                                                            "Python)";
     if (key != path) {
       if (!tables.insert(key).second) continue;
-      out.push_back(fmt::format("{}: [{}] has no effect: {}", where, key, *why));
+      out.push_back(fmt::format("{}: [{}] has no effect: {}", where, key, why));
     } else {
-      out.push_back(fmt::format("{}: {} has no effect: {}", where, path, *why));
+      out.push_back(fmt::format("{}: {} has no effect: {}", where, path, why));
     }
   }
   // Values of the timeline: one warning per variable for [[events]] entries, one per weather column.

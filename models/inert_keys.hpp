@@ -36,6 +36,8 @@ class InertKeys {
   void controllers();
   void others();
   void add(const std::string& path, std::string why) { reasons_.emplace(path, std::move(why)); }
+  //! The entry of `path` or of the nearest table above it, or reasons_.end().
+  std::map<std::string, std::string>::const_iterator find(const std::string& path) const;
 
   const Case& case_;
   std::array<std::optional<std::string>, kEnvironmentVariables> variables_;
