@@ -55,7 +55,7 @@ def main():
         # Every computing subcommand prints the caution once on stderr.
         for sub, extra in (("run", ["-o", str(tmp / "r.h5"), "--set", "run.duration=5 min"]),
                            ("steady", ["-o", str(tmp / "s.h5")]), ("check", []),
-                           ("sweep", ["--vary", "environment.speed=1 m/s,2 m/s", "--set", "run.duration=5 min",
+                           ("sweep", ["--vary", "environment.temperature=5 degC,10 degC", "--set", "run.duration=5 min",
                                       "-o", str(tmp / "w.h5"), "-q"])):
             proc = subprocess.run([THERMORPH, sub, str(case)] + extra, capture_output=True, text=True, cwd=tmp)
             check(proc.returncode == 0, f"{sub}: exit {proc.returncode}: {proc.stderr}")
