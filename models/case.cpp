@@ -962,7 +962,13 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   checkLocalControllers(top, c);
   checkOverriddenByTimeline(top, c, overrides);
   // Keys the case gives that have no effect in it (models/inert_keys.hpp): a warning each, naming where.
-  reader.collectGiven(root, "", c.given);
+  // Given-ness of the values in the tables where a key can be without effect (the rest is not asked: a sweep loads
+  // the case once per run).
+  for (const char* table : {"environment", "control", "body", "circulation", "tissues"})
+    if (const toml::node* n = root.get(table)) CaseReader::collectGiven(*n, table, c.given);
+  for (std::size_t i = 0; i < segArray.size(); ++i)
+    if (const toml::node* surface = segArray[i].as_table()->get("surface"))
+      CaseReader::collectGiven(*surface, "segments." + c.segments[i].name + ".surface", c.given);
   if (warnInert)
     for (std::string& w : InertKeys(c).warnings()) c.warnings.push_back(std::move(w));
   if (c.control.panting.present && c.body.respiratorySegment.empty())

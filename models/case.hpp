@@ -225,9 +225,11 @@ struct Case {
   EnvironmentSpec environment;
   std::vector<EventSpec> events;
   std::vector<std::string> warnings;  //!< found while loading (grids coarser than needed); Body reports them
-  //! The values the case text gives (overrides applied), by key path as --set writes it, each with the line and
-  //! column of its value (0: an override): what the user gave, as opposed to defaults. Keys with no effect warn only
-  //! when given (models/inert_keys.hpp), and the resolved case leaves out only keys with no effect that were not given.
+  //! The values the case text gives (overrides applied) in the tables where a key can be without effect
+  //! ([environment], [control], [body], [circulation], [tissues], each segment's surface), by key path as --set
+  //! writes it, each with the line and column of its value (0: an override): what the user gave, as opposed to
+  //! defaults. Keys with no effect warn only when given (models/inert_keys.hpp), and the resolved case leaves out
+  //! only keys with no effect that were not given. [[events]] values carry their own flag (EnvironmentValue::given).
   struct GivenAt {
     unsigned line = 0, column = 0;
   };

@@ -297,22 +297,20 @@ std::optional<std::string> InertKeys::reason(const std::string& given) const {
 std::vector<std::string> InertKeys::warnings() const {
   const Case& c = case_;
   std::vector<std::string> out;
-  std::set<std::string> tables;  // a table with no effect as a whole warns once
-  for (const auto& [path, at] : c.given) {
-    if (path.rfind("events.", 0) == 0) continue;  // below, from the timeline
-    const auto found = find(path);
-    if (found == reasons_.end()) continue;
-    const std::string& key = found->first;
-    const std::string& why = found->second;
-    const std::string where = at.line > 0 ? fmt::format("{}:{}:{}", c.sourceFile, at.line, at.column)
-                                          : c.sourceFile + " (an override: --set, a sweep or fit parameter, or set= in "
-                                                           "Python)";
-    if (key != path) {
-      if (!tables.insert(key).second) continue;
-      out.push_back(fmt::format("{}: [{}] has no effect: {}", where, key, why));
-    } else {
-      out.push_back(fmt::format("{}: {} has no effect: {}", where, path, why));
+  // Each key with no effect that the case gives, or for a table with no effect as a whole (a tissue no segment
+  // uses), the first value the case gives in it.
+  auto where = [&](const Case::GivenAt& at) {
+    return at.line > 0 ? fmt::format("{}:{}:{}", c.sourceFile, at.line, at.column)
+                       : c.sourceFile + " (an override: --set, a sweep or fit parameter, or set= in Python)";
+  };
+  for (const auto& [key, why] : reasons_) {
+    if (auto it = c.given.find(key); it != c.given.end()) {
+      out.push_back(fmt::format("{}: {} has no effect: {}", where(it->second), key, why));
+      continue;
     }
+    const std::string below = key + ".";
+    if (auto it = c.given.lower_bound(below); it != c.given.end() && it->first.compare(0, below.size(), below) == 0)
+      out.push_back(fmt::format("{}: [{}] has no effect: {}", where(it->second), key, why));
   }
   // Values of the timeline: one warning per variable for [[events]] entries, one per weather column.
   for (std::size_t v = 0; v < kEnvironmentVariables; ++v) {
