@@ -307,26 +307,32 @@ static SweepPlan finishSweepPlan(SweepPlan plan, const SweepOptions& options, co
 //! asked in a few runs: the first and the last, and each axis at up to 8 of its values (the others at their first);
 //! a key is refused when it has no effect in every one of them that loads.
 static void refuseInertAxes(const SweepPlan& plan) {
-  if (plan.runs == 0) return;
   const std::size_t n = plan.axes.size();
-  std::set<std::vector<std::size_t>> probes{plan.valueIndices(0), plan.valueIndices(plan.runs - 1)};
+  if (plan.runs == 0 || std::all_of(plan.axes.begin(), plan.axes.end(), [](const SweepAxis& a) { return a.scale; }))
+    return;  // size series only: no key to ask about
+  // Probes as their overrides (size factors are not applied here: probes that differ only in them are one).
+  auto overridesOf = [&](const std::vector<std::size_t>& v) {
+    std::vector<std::string> overrides = plan.overrides;
+    for (std::size_t a = 0; a < n; ++a)
+      if (!plan.axes[a].scale) overrides.push_back(plan.axes[a].key + "=" + plan.axes[a].texts[v[a]]);
+    return overrides;
+  };
+  std::set<std::vector<std::string>> probes{overridesOf(plan.valueIndices(0)), overridesOf(plan.valueIndices(plan.runs - 1))};
   for (std::size_t a = 0; a < n; ++a) {
+    if (plan.axes[a].scale) continue;
     const std::size_t count = plan.axes[a].texts.size(), used = std::min<std::size_t>(count, 8);
     for (std::size_t k = 0; k < used; ++k) {
       const std::size_t j = used > 1 ? k * (count - 1) / (used - 1) : 0;
       std::vector<std::size_t> v = plan.valueIndices(0);
       if (plan.zip) std::fill(v.begin(), v.end(), j);
       else v[a] = j;
-      probes.insert(v);
+      probes.insert(overridesOf(v));
     }
   }
   std::vector<bool> acts(n, false);
   std::vector<std::optional<std::string>> why(n);
   bool loaded = false;
-  for (const std::vector<std::size_t>& v : probes) {
-    std::vector<std::string> overrides = plan.overrides;
-    for (std::size_t a = 0; a < n; ++a)
-      if (!plan.axes[a].scale) overrides.push_back(plan.axes[a].key + "=" + plan.axes[a].texts[v[a]]);
+  for (const std::vector<std::string>& overrides : probes) {
     Case c;
     try {
       c = loadCaseFromString(plan.caseText, plan.casePath, overrides);
