@@ -71,6 +71,11 @@ void InertKeys::environment() {
         if (s.surface.wettedFraction > 0.0) used[index(V::RelativeHumidity)] = true;
       }
       if (s.surface.contactFraction > 0.0) used[index(V::SubstrateTemperature)] = true;
+      // ... or contact from an [[events]] step (surface = { SEGMENT = { contact_fraction = F } }).
+      for (const EventSpec& e : c.events)
+        for (const ContactTarget& t : e.contact)
+          if ((t.segment == s.name || t.segment == "all") && t.contactFraction > 0.0)
+            used[index(V::SubstrateTemperature)] = true;
     }
     // Respiration breathes the air around the animal unless its segment is under water (PhysiologyModel).
     if (respiratory < n && !EnvironmentModel::inWater(c.segments[respiratory].surface.immersion, medium)) {
@@ -137,7 +142,8 @@ void InertKeys::environment() {
         why = allInWater ? inWater : "every segment in air has solar_absorptivity = 0 or solar_exposure = 0";
         break;
       case V::SubstrateTemperature:
-        why = "no segment touches the substrate (surface.contact_fraction = 0 on every segment)";
+        why = "no segment touches the substrate (surface.contact_fraction = 0 on every segment, and no [[events]] entry "
+              "sets a contact)";
         break;
     }
     variables_[v] = why;

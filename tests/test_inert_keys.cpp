@@ -178,6 +178,16 @@ conductivity = "0.2 W/(m K)"
   CHECK(finalTemperatures(text) ==
         finalTemperatures(text, {"segments.trunk.surface.end_coat=\"on\"", "environment.substrate_temperature=\"30 degC\"",
                                  "body.exhaled_temperature=\"30 degC\""}));
+  SECTION("a contact set by an event makes the substrate's values act") {
+    const std::string contact = text + R"toml(
+[[events]]
+at = "5 min"
+surface = { trunk = { contact_fraction = 0.3 } }
+)toml";
+    const std::vector<std::string> w2 = inertWarnings(loadCaseFromString(contact, "inert.toml"));
+    CHECK_FALSE(mentions(w2, "substrate"));
+    CHECK(finalTemperatures(contact) != finalTemperatures(contact, {"environment.substrate_temperature=\"30 degC\""}));
+  }
 }
 
 TEST_CASE("Environment values of [[events]] with no effect warn once per key; followers do not", "[case][inert]") {
