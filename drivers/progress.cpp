@@ -4,14 +4,14 @@
 
 namespace thermorph {
 
-ProgressReporter::ProgressReporter(double duration, bool quiet)
-    : duration_(duration), quiet_(quiet), start_(Clock::now()), last_(start_) {}
+ProgressReporter::ProgressReporter(double duration, bool quiet, double after)
+    : duration_(duration), after_(after), quiet_(quiet), start_(Clock::now()), last_(start_) {}
 
 ProgressReporter::~ProgressReporter() { finish(); }
 
 void ProgressReporter::report(double t, long steps) {
   auto now = Clock::now();
-  if (quiet_ || std::chrono::duration<double>(now - start_).count() < 1.0 ||
+  if (quiet_ || std::chrono::duration<double>(now - start_).count() < after_ ||
       std::chrono::duration<double>(now - last_).count() < 0.25)
     return;
   double wall = std::chrono::duration<double>(now - start_).count();

@@ -6,7 +6,8 @@ namespace thermorph {
 
 class ProgressReporter {
  public:
-  ProgressReporter(double duration, bool quiet);
+  //! `after`: wall seconds before the first line (the default 1: a short run shows none).
+  ProgressReporter(double duration, bool quiet, double after = 1.0);
   ~ProgressReporter();  //!< ends the progress line when one was shown
   ProgressReporter(const ProgressReporter&) = delete;
   ProgressReporter& operator=(const ProgressReporter&) = delete;
@@ -14,7 +15,7 @@ class ProgressReporter {
   bool active() const { return !quiet_; }
   //! True when a report now could be shown (not quiet and the run has taken a second): intermediate times
   //! are worth interpolating for progress only then.
-  bool due() const { return !quiet_ && std::chrono::duration<double>(Clock::now() - start_).count() >= 1.0; }
+  bool due() const { return !quiet_ && std::chrono::duration<double>(Clock::now() - start_).count() >= after_; }
   //! Simulated time t [s] reached after `steps` solver steps.
   void report(double t, long steps);
   //! Ends the progress line (idempotent).
@@ -22,7 +23,7 @@ class ProgressReporter {
 
  private:
   using Clock = std::chrono::steady_clock;
-  double duration_;
+  double duration_, after_;
   bool quiet_, reported_ = false;
   Clock::time_point start_, last_;
 };

@@ -22,6 +22,7 @@ struct RunOptions {
   std::string output;        //!< HDF5 path ("" : no file)
   std::string commandLine;   //!< stored with the results
   bool quiet = false;        //!< no progress on stderr
+  double progressAfter = 1.0;  //!< [s] of wall time before progress lines start (tests: 0, progress from the start)
   LinearSolverKind linearSolver = LinearSolverKind::Klu;
   OutputObserver observer;   //!< optional
   //! Optional stop request (drivers/stop_signal.hpp: set by SIGINT/SIGTERM): polled between outputs and within

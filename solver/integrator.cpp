@@ -386,6 +386,12 @@ void Integrator::restart() {
   if (sensitivityVectors_) check(CVodeSensReInit(memory_.get(), CV_STAGGERED, sensitivityVectors_), "CVodeSensReInit");
 }
 
+bool Integrator::stepped() const {
+  long steps = 0;
+  CVodeGetNumSteps(memory_.get(), &steps);
+  return steps > 0;
+}
+
 SolverStatistics Integrator::statistics() const {
   SolverStatistics s;
   void* mem = memory_.get();

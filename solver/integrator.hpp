@@ -139,6 +139,10 @@ class Integrator {
   //! Restart at a discontinuity (after an event changed the network) from the current state.
   void restart();
   double time() const { return time_; }
+  //! True once CVODE has taken a step since its (re)initialisation. Before that, the next advanceTo's time also
+  //! bounds CVODE's estimate of the first step (cvHin: at most a tenth of the distance to it), so a caller that
+  //! wants the same steps whatever it asks for in between must not ask for an extra time then.
+  bool stepped() const;
   std::span<const double> state() const;
   //! Start forward sensitivities at the current time (before the first advanceTo or after a restart()).
   void enableSensitivities(SensitivityProblem problem);
