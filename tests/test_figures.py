@@ -439,6 +439,27 @@ def check_immersion(tmp: Path, exe: str):
               f"{variant}: temperatures figure's air line {'drawn' if inside else 'not drawn'} during the swim")
 
 
+def check_contact_events(tmp: Path, exe: str):
+    """A segment that touches the substrate only after an event (`[[events]] surface = { NAME = { contact_fraction
+    = F } }`, README "Timelines") is a target of the substrate forcing; without the event nothing touches it.
+    Common practice, no source."""
+    from thermorph_post.results import Results
+    lie = ('events=[{ at = "10 min", surface = { trunk = { contact_fraction = 0.2 } }, '
+           'environment = { substrate_temperature = "2 degC" } }]')
+    for variant, extra in (("lying down at 10 min", ["--set", lie]), ("standing", [])):
+        h5 = tmp / f"lie{len(extra)}.h5"
+        proc = subprocess.run([exe, "run", str(ROOT / "cases" / "quadruped.toml"), *extra, "-q",
+                               "--set", 'environment.substrate_conductance="50 W/(m2 K)"',
+                               "--set", 'run.duration="20 min"', "-o", str(h5)], capture_output=True, text=True)
+        check(proc.returncode == 0, f"quadruped {variant}: exit {proc.returncode}\n{proc.stderr[-800:]}")
+        if proc.returncode != 0:
+            continue
+        with Results(h5) as res:
+            targets = res.forcing_targets("substrate", "air")
+        expected = ["trunk"] if extra else []
+        check(targets == expected, f"quadruped {variant}: substrate acts on {targets}, expected {expected}")
+
+
 def main() -> int:
     with tempfile.TemporaryDirectory(prefix="thermorph_figures_") as name:
         tmp = Path(name)
@@ -447,6 +468,7 @@ def main() -> int:
         if EXE:
             check_steps(tmp, EXE)
             check_immersion(tmp, EXE)
+            check_contact_events(tmp, EXE)
         else:
             print("test_figures: no thermorph executable given (second argument): step drawing not checked")
         check_tidy(full, tmp)
