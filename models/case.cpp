@@ -967,8 +967,9 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   for (const char* table : {"environment", "control", "body", "circulation", "tissues"})
     if (const toml::node* n = root.get(table)) CaseReader::collectGiven(*n, table, c.given);
   for (std::size_t i = 0; i < segArray.size(); ++i)
-    if (const toml::node* surface = segArray[i].as_table()->get("surface"))
-      CaseReader::collectGiven(*surface, "segments." + c.segments[i].name + ".surface", c.given);
+    for (const char* table : {"surface", "vasomotor"})
+      if (const toml::node* n = segArray[i].as_table()->get(table))
+        CaseReader::collectGiven(*n, "segments." + c.segments[i].name + "." + table, c.given);
   if (warnInert)
     for (std::string& w : InertKeys(c).warnings()) c.warnings.push_back(std::move(w));
   if (c.control.panting.present && c.body.respiratorySegment.empty())

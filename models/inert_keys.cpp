@@ -187,6 +187,12 @@ void InertKeys::surfaces() {
       }
     }
     if (!s.coat && s.shape != Shape::Sphere) add(p + "end_coat", fmt::format("segment {} has no coat", s.name));
+    // Shunts open a fraction of shunt_flow_max: without it the opening moves no blood (a new-user trial's
+    // segments.neck.vasomotor.shunt = 1 on a neck without shunts said nothing).
+    if (!(s.vessels.shuntFlowMax > 0.0))
+      add("segments." + s.name + ".vasomotor.shunt",
+          fmt::format("segment {} has no arteriovenous shunts (vessels.shunt_flow_max = 0), so their opening moves no "
+                      "blood", s.name));
     if (s.surface.convection.value_or(c.environment.convection).fixed) {
       const std::string why = fmt::format("segment {} has a fixed convection coefficient (no correlation is used)", s.name);
       add(p + "correlation", why);

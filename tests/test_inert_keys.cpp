@@ -190,6 +190,19 @@ surface = { trunk = { contact_fraction = 0.3 } }
   }
 }
 
+TEST_CASE("A shunt opening on a segment without shunts warns; with shunt_flow_max it acts", "[case][inert]") {
+  // An open fraction of no flow is no flow (README, "A whole body": shunts pass shunt_flow_max times the opening).
+  const std::string text = swimmer("", "vasomotor = { shunt = 1 }", "");
+  const std::vector<std::string> w = inertWarnings(loadCaseFromString(text, "inert.toml"));
+  CHECK(mentions(w, "segments.trunk.vasomotor.shunt has no effect: segment trunk has no arteriovenous shunts"));
+  CHECK(finalTemperatures(text) == finalTemperatures(text, {"segments.trunk.vasomotor.shunt=0"}));
+  const std::vector<std::string> flow{"segments.trunk.vessels.shunt_flow_max=\"20 mL/min\""};
+  CHECK_FALSE(mentions(inertWarnings(loadCaseFromString(text, "inert.toml", flow)), "vasomotor.shunt"));
+  std::vector<std::string> closed = flow;
+  closed.push_back("segments.trunk.vasomotor.shunt=0");
+  CHECK(finalTemperatures(text, flow) != finalTemperatures(text, closed));
+}
+
 TEST_CASE("Environment values of [[events]] with no effect warn once per key; followers do not", "[case][inert]") {
   const std::string text = swimmer("", "", R"toml(
 [[events]]
