@@ -24,6 +24,7 @@ import numpy as np
 from thermorph_post import CAUTION  # the text of models/caution.hpp (tests/test_docs.py)
 from thermorph_post.budget import WindowBudget, window_budget
 from thermorph_post.results import ZERO_CELSIUS_IN_KELVIN, Results, ResultsError
+from thermorph_post.results import TIME_UNITS, parse_time as results_parse_time  # noqa: F401 (TIME_UNITS: re-exported)
 
 THRESHOLDS = ("Thresholds such as critical tissue temperatures are species-specific and must come from your own "
               "sources.")
@@ -32,7 +33,6 @@ BODY_KEYS = {"core": ("/body/core_temperature", "core temperature"),
              "skin": ("/body/mean_skin_temperature", "mean skin temperature")}
 SEGMENT_STATS = {"mean": "mean tissue temperature", "min": "lowest tissue temperature",
                  "max": "highest tissue temperature"}
-TIME_UNITS = {"s": 1.0, "min": 60.0, "h": 3600.0, "d": 86400.0}
 
 
 class ArgumentError(Exception):
@@ -41,15 +41,11 @@ class ArgumentError(Exception):
 
 # ---- parsing ------------------------------------------------------------------------------
 def parse_time(text: str) -> float:
-    """A time such as '600', '10 min' or '1.5h' [s]."""
-    match = re.fullmatch(r"\s*([-+]?[0-9.]+(?:[eE][-+]?[0-9]+)?)\s*([a-z]*)\s*", text)
-    if not match or (match.group(2) or "s") not in TIME_UNITS:
-        raise ArgumentError(f"bad time {text!r}: expected a number in s, or with a unit "
-                            f"({', '.join(TIME_UNITS)}), e.g. 600 or 10min")
+    """A time such as '600', '10 min' or '1.5h' [s] (thermorph_post.results.parse_time)."""
     try:
-        return float(match.group(1)) * TIME_UNITS[match.group(2) or "s"]
-    except ValueError:
-        raise ArgumentError(f"bad time {text!r}: not a number") from None
+        return results_parse_time(text)
+    except ValueError as err:
+        raise ArgumentError(str(err)) from None
 
 
 def parse_temperature(text: str) -> float:

@@ -460,10 +460,26 @@ def check_contact_events(tmp: Path, exe: str):
         check(targets == expected, f"quadruped {variant}: substrate acts on {targets}, expected {expected}")
 
 
+def check_cli_times():
+    """figures.py --window and --times take times with units like report.py (1 min = 60 s, 1 h = 3600 s: SI
+    Brochure 2019, Table 8), and a window also as t0:t1 (sweep's form); a bad time names the option."""
+    import argparse
+    from thermorph_post.figures import _floats
+    check(_floats("10min,1h", "--window") == [600.0, 3600.0], "--window 10min,1h")
+    check(_floats("600:3600", "--window") == [600.0, 3600.0], "--window 600:3600")
+    check(_floats("0,600,1.5h", "--times") == [0.0, 600.0, 5400.0], "--times 0,600,1.5h")
+    try:
+        _floats("soon,1h", "--window")
+        check(False, "--window soon,1h accepted")
+    except argparse.ArgumentTypeError as err:
+        check("--window" in str(err) and "soon" in str(err), f"--window soon,1h: {err}")
+
+
 def main() -> int:
     with tempfile.TemporaryDirectory(prefix="thermorph_figures_") as name:
         tmp = Path(name)
         sys.path.insert(0, str(POSTPROC))   # the checkout's package (the installed one is checked below)
+        check_cli_times()
         full = check_figures(tmp)
         if EXE:
             check_steps(tmp, EXE)

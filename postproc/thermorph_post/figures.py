@@ -26,7 +26,7 @@ import numpy as np
 from matplotlib.ticker import MaxNLocator
 
 from thermorph_post.budget import rank_segments, window_budget
-from thermorph_post.results import Results, ResultsError, faces_from_centres
+from thermorph_post.results import Results, ResultsError, faces_from_centres, parse_time
 from thermorph_post.style import (ALL_IN_WATER_SHADE, BODY_STYLE, DEFAULT_STYLE, ENVIRONMENT_STYLE, FORMATS, LINE_CYCLE, MAP_COLOURS,
                                   MARKER_CYCLE, PNG_DPI, STYLES, add_footer, body_flow_scale, case_title,
                                   channel_styles, finish, format_time, legend_outside, length_scale, letters,
@@ -738,11 +738,13 @@ def overlay(results, out_dir, labels=None, keys=DEFAULT_OVERLAY, units: str = "p
 
 # ---- command line -----------------------------------------------------------------------
 def _floats(text: str, what: str) -> list[float]:
-    """Comma-separated numbers, e.g. '0,600,3600'."""
+    """Comma-separated times [s], each a number in s or with a unit ('0,10min,1h'); a window may also be written
+    t0:t1 (as thermorph sweep --window)."""
+    parts = text.split(",") if "," in text or what != "--window" else text.split(":")
     try:
-        return [float(v) for v in text.replace(" ", "").split(",") if v]
+        return [parse_time(v) for v in parts if v.strip()]
     except ValueError as err:
-        raise argparse.ArgumentTypeError(f"{what}: expected comma-separated numbers in s, got {text!r}") from err
+        raise argparse.ArgumentTypeError(f"{what}: {err}") from err
 
 
 def _names(text: str | None):
@@ -766,9 +768,9 @@ def main(argv=None) -> int:
                     help=f"without --segments, draw the N segments losing most heat to the surroundings "
                          f"(default {DEFAULT_TOP}); in the budget the rest are summed in one bar")
     ap.add_argument("--window", type=lambda s: _floats(s, "--window"), default=None,
-                    help="budget averaging window t0,t1 in s (default: whole run)")
+                    help="budget averaging window t0,t1 (s, or with a unit: 10min,1h; or t0:t1) (default: whole run)")
     ap.add_argument("--times", type=lambda s: _floats(s, "--times"), default=None,
-                    help="map times in s, comma-separated (default: first, middle, last output)")
+                    help="map times, comma-separated, in s or with a unit (default: first, middle, last output)")
     ap.add_argument("--formats", default=",".join(FORMATS),
                     help=f"comma-separated subset of {', '.join(FORMATS)} (default: all three)")
     ap.add_argument("--style", choices=tuple(STYLES), default=DEFAULT_STYLE,

@@ -36,6 +36,20 @@ WATER_MEDIA = ("water", "sea_water")
 #: Offset between the Celsius and kelvin scales [K] (SI Brochure, 9th ed., 2019, §2.3.1).
 ZERO_CELSIUS_IN_KELVIN = 273.15
 
+TIME_UNITS = {"s": 1.0, "min": 60.0, "h": 3600.0, "d": 86400.0}
+
+
+def parse_time(text: str) -> float:
+    """A time such as '600', '10 min' or '1.5h' [s]; ValueError naming the forms otherwise."""
+    match = re.fullmatch(r"\s*([-+]?[0-9.]+(?:[eE][-+]?[0-9]+)?)\s*([a-z]*)\s*", text)
+    if not match or (match.group(2) or "s") not in TIME_UNITS:
+        raise ValueError(f"bad time {text!r}: expected a number in s, or with a unit "
+                         f"({', '.join(TIME_UNITS)}), e.g. 600 or 10min")
+    try:
+        return float(match.group(1)) * TIME_UNITS[match.group(2) or "s"]
+    except ValueError:
+        raise ValueError(f"bad time {text!r}: not a number") from None
+
 # Mass units accepted in the case's `[body] mass` string [kg per unit].
 # Pound: exact by the 1959 international yard and pound agreement.
 _MASS_UNITS = {"kg": 1.0, "g": 1e-3, "mg": 1e-6, "t": 1e3, "lb": 0.45359237}
