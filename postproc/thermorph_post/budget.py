@@ -116,9 +116,9 @@ def window_budget(res: Results, t0: float, t1: float, segments=None) -> WindowBu
     time = res.time
 
     def seg_row(seg) -> Row:
-        exact = _from_cumulative(time, channels, seg.cumulative_heat, seg.heat_flow, t0, t1)
+        exact = _energy_changes(time, channels, seg.cumulative_heat, seg.heat_flow, t0, t1)
         if exact is not None:
-            return Row(seg.label, "segment", {c: seg.count * v for c, v in exact.items()}, "cumulative")
+            return Row(seg.label, "segment", {c: seg.count * (d / (t1 - t0)) for c, d in exact.items()}, "cumulative")
         means = {}
         for c in channels:
             flow = seg.heat_flow(c)
@@ -152,34 +152,30 @@ def window_budget(res: Results, t0: float, t1: float, segments=None) -> WindowBu
     return WindowBudget(t0, t1, channels, [seg_rows[s.name] for s in chosen], others, pool, body, body_trap)
 
 
-def _from_cumulative(time, channels, cumulative, flow, t0: float, t1: float) -> dict[str, float] | None:
-    """Mean flows over [t0, t1] from cumulative energies [W]: (E(t1) − E(t0)) / (t1 − t0) per channel, E between
-    outputs by the cubic Hermite polynomial through E and the flow; None for a point window or when a channel's
-    energy is missing. `cumulative(c)`, `flow(c)`: [nt] arrays or None; storage's flow is its rate of storage."""
+def _energy_changes(time, channels, cumulative, flow, t0: float, t1: float) -> dict[str, float] | None:
+    """Energy gained over [t0, t1] per channel from cumulative energies, E(t1) − E(t0) [J], E between outputs by the
+    cubic Hermite polynomial through E and the flow; None for a point window or when a channel's energy or flow is
+    missing. `cumulative(c)`, `flow(c)`: [nt] arrays or None; storage's flow is its rate of storage."""
     if t1 <= t0 or len(time) < 2:
         return None
-    means = {}
+    changes = {}
     for c in channels:
         energy, rate = cumulative(c), flow(c)
         if energy is None or rate is None:
             return None
-        means[c] = (hermite_cumulative(time, energy, rate, t1) - hermite_cumulative(time, energy, rate, t0)) / (t1 - t0)
-    return means
+        changes[c] = hermite_cumulative(time, energy, rate, t1) - hermite_cumulative(time, energy, rate, t0)
+    return changes
 
 
 def _body_from_cumulative(res: Results, channels, t0: float, t1: float) -> Row | None:
     """Whole-body means from /body/cumulative_heat, or None when they are missing or the window is a point."""
-    if t1 <= t0 or len(res.time) < 2:
+    changes = _energy_changes(res.time, [c for c in channels if c != "storage"], res.cumulative_heat,
+                              res.body_heat_flow, t0, t1)
+    if changes is None:
         return None
-    energies = {c: res.cumulative_heat(c) for c in channels if c != "storage"}
-    if any(e is None for e in energies.values()):
-        return None
-    means = {}
+    means = {c: delta / (t1 - t0) for c, delta in changes.items()}
     gained = 0.0
-    for c, energy in energies.items():
-        flow = res.body_heat_flow(c)
-        delta = hermite_cumulative(res.time, energy, flow, t1) - hermite_cumulative(res.time, energy, flow, t0)
-        means[c] = delta / (t1 - t0)
+    for delta in changes.values():
         gained += delta
     err = res.optional("/body/energy_balance_error")
     if "storage" in channels:
