@@ -45,6 +45,18 @@ EnvironmentRecorder::EnvironmentRecorder(ResultsFile& f, const Body& body) : bod
   for (const SegmentMesh& m : body.segments())
     convection_.push_back(f.createSeries("/segments/" + m.name + "/convection_coefficient", {}, "W m-2 K-1",
                                          "mean convection coefficient over the exposed surface"));
+  for (const SegmentMesh& m : body.segments()) {
+    contact_.push_back(f.createSeries("/segments/" + m.name + "/contact_fraction", {}, "1",
+                                      "share of the surface touching the substrate"));
+    f.setAttribute("/segments/" + m.name + "/contact_fraction", "definition",
+                   "surface.contact_fraction, stepped by [[events]] surface entries; the value of the interval "
+                   "that follows an output at a step");
+    inWater_.push_back(f.createSeries("/segments/" + m.name + "/in_water", {}, "1",
+                                      "1 while the segment is in water, 0 while in air"));
+    f.setAttribute("/segments/" + m.name + "/in_water", "definition",
+                   "fluid around the segment: the medium (changed by events) unless surface.immersion is always "
+                   "(water) or never (air); the value of the interval that follows an output at a step");
+  }
 }
 
 void EnvironmentRecorder::write(ResultsFile& f, double t, std::span<const double> controls,
@@ -56,6 +68,10 @@ void EnvironmentRecorder::write(ResultsFile& f, double t, std::span<const double
   for (Index g = 0; g < convection_.size(); ++g) {
     double h = body_.environment().meanConvectionCoefficient(g, t, faceTemperatures);
     f.append(convection_[g], {&h, 1});
+    const double contact = body_.environment().contactFraction(g);
+    const double wet = body_.environment().immersed(g, t) ? 1.0 : 0.0;
+    f.append(contact_[g], {&contact, 1});
+    f.append(inWater_[g], {&wet, 1});
   }
 }
 

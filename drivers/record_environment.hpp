@@ -1,6 +1,7 @@
 #pragma once
-//! Surroundings and controls over the run: environment series, controller states, mean convection coefficient
-//! per segment, and the labelled events (for shading in figures).
+//! Surroundings and controls over the run: environment series, controller states, mean convection coefficient,
+//! substrate contact fraction and fluid (in water or air) per segment, and the labelled events (for shading in
+//! figures).
 #include <cstddef>
 #include <span>
 #include <vector>
@@ -12,14 +13,15 @@ namespace thermorph {
 
 class EnvironmentRecorder {
  public:
-  //! Creates /environment/*, /control/*, /segments/*/convection_coefficient and writes /events.
+  //! Creates /environment/*, /control/*, /segments/*/convection_coefficient, contact_fraction, in_water and
+  //! writes /events.
   EnvironmentRecorder(ResultsFile& f, const Body& body);
   //! Appends time t; `controls` from the summary, `faceTemperatures` [K] from the budget.
   void write(ResultsFile& f, double t, std::span<const double> controls, std::span<const double> faceTemperatures);
 
  private:
   const Body& body_;
-  std::vector<std::size_t> environment_, control_, convection_;
+  std::vector<std::size_t> environment_, control_, convection_, contact_, inWater_;
   std::vector<double> values_;
 };
 

@@ -313,7 +313,7 @@ constexpr std::array params = {
           "`surface = { feet = { contact_fraction = 0 } }` (a bird that takes off, an animal that lies down)."},
     Param{"events[].surface.*.contact_fraction", K::Number, "", "", 0, 1, false, "",
           "As segments[].surface.contact_fraction (a coated segment below 1), which holds until the first event "
-          "that changes it."},
+          "that changes it. Results store each segment's value at every output (/segments/NAME/contact_fraction)."},
     Param{"events[].metabolism", K::Table, "", "", 0, 0, false, "", "Metabolic multipliers."},
     Param{"events[].metabolism.activity", K::Number, "", "", 0, 50, false, "", "Activity multiplier (as [body] activity)."},
     Param{"events[].metabolism.hypometabolism", K::Number, "", "", 0, 1, false, "",

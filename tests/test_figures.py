@@ -17,7 +17,9 @@
 - `pip install --target DIR --no-deps --no-build-isolation --no-index ./postproc` works offline and the
   installed entry points (thermorph-figures, thermorph-export, thermorph-report, thermorph-sweep-figure)
   run from DIR with the checkout out of reach.
-- With THERMORPH: a step of the surroundings between two outputs is drawn as a vertical jump at the step's time
+- With THERMORPH: the substrate contact stored per segment equals the case's event table and the substrate is
+  drawn only while some segment touches (a dive between outputs), a water line equal to it stays visible, an old
+  file without the series still draws; a step of the surroundings between two outputs is drawn as a vertical jump at the step's time
   and a ramp whose ends fall between outputs from its own start to its own end (the quadruped with a step 15 -> -5
   degC at 5 min and a ramp from 21 to 29 min, 2-min outputs; forcing and temperatures), and forcings are drawn only
   where they act (the quadruped swimming from 10 to 20 min, all in water and with its head above water).
@@ -460,6 +462,117 @@ def check_contact_events(tmp: Path, exe: str):
         check(targets == expected, f"quadruped {variant}: substrate acts on {targets}, expected {expected}")
 
 
+#: The contact study's timeline (the events of check_contact_series), independent of thermorph: the legs stand on
+#: the substrate (contact 0.1) and leave it for a dive from 10.5 to 20 min (between outputs: 1-min outputs), stand
+#: again in air, and wade (still standing) in water at the substrate's temperature from 30 to 40 min.
+CONTACT_DIVE, CONTACT_BACK, WADE_START, WADE_END = 630.0, 1200.0, 1800.0, 2400.0
+
+
+def _contact_expected(name: str, t: float) -> float:
+    """Contact fraction of segment `name` at output t [s] from the case's own event table (the value after a step
+    at an output time; README, "Timelines": steps)."""
+    if name not in ("forelegs", "hindlegs"):
+        return 0.0
+    return 0.0 if CONTACT_DIVE <= t < CONTACT_BACK else 0.1
+
+
+def check_contact_series(tmp: Path, exe: str):
+    """Substrate contact stored as a time series (/segments/NAME/contact_fraction, in_water) and drawn only while some
+    segment touches: the quadruped's legs on a 10 degC substrate, a dive from 10.5 to 20 min (every contact 0 by
+    `surface = { all = ... }`), standing again, then wading in 10 degC water from 30 to 40 min still standing. The
+    stored series equal the event table above at every output (h5py, not the package); the forcing figure's substrate
+    line has no point strictly inside the dive and is drawn before and after it up to the dive's own times; while
+    wading the water line (equal to the substrate's) is not hidden under it; a file without the series (written
+    before 2026-12-05: the datasets deleted) is read with the static value and still draws. Common practice, no
+    source."""
+    import h5py
+    from thermorph_post import figures
+    from thermorph_post.results import Results
+    legs = "{ forelegs = { contact_fraction = 0.1 }, hindlegs = { contact_fraction = 0.1 } }"
+    events = (f'events=[{{ at = {CONTACT_DIVE}, label = "dive", span = {CONTACT_BACK - CONTACT_DIVE}, '
+              'environment = { medium = "water", temperature = "10 degC", speed = "0.2 m/s" }, surface = { all = { contact_fraction = 0 } } },'
+              f' {{ at = {CONTACT_BACK}, environment = {{ medium = "air", temperature = "15 degC", speed = "0 m/s" }}, surface = {legs} }},'
+              f' {{ at = {WADE_START}, environment = {{ medium = "water", temperature = "10 degC", speed = "0.2 m/s" }} }},'
+              f' {{ at = {WADE_END}, environment = {{ medium = "air", temperature = "15 degC", speed = "0 m/s" }} }}]')
+    h5 = tmp / "contact_series.h5"
+    proc = subprocess.run([exe, "run", str(ROOT / "cases" / "quadruped.toml"), "-q", "--set", events,
+                           "--set", "segments.forelegs.surface.contact_fraction=0.1",
+                           "--set", "segments.hindlegs.surface.contact_fraction=0.1",
+                           "--set", 'environment.substrate_conductance="50 W/(m2 K)"',
+                           "--set", 'environment.substrate_temperature="10 degC"',
+                           "--set", 'run.output_interval="1 min"', "-o", str(h5)], capture_output=True, text=True)
+    check(proc.returncode == 0, f"contact study: exit {proc.returncode}\n{proc.stderr[-800:]}")
+    if proc.returncode != 0:
+        return
+    with h5py.File(h5, "r") as f:
+        t = f["time"][()]
+        for name in ("trunk", "forelegs", "hindlegs", "tail"):
+            path = f"segments/{name}/contact_fraction"
+            check(path in f, f"contact study: {path} not stored")
+            if path not in f:
+                continue
+            expected = np.array([_contact_expected(name, x) for x in t])
+            stored = f[path][()]
+            check(np.array_equal(stored, expected), f"contact study: {path} != the event table at "
+                                                    f"{t[stored != expected]} s")
+            wet = np.array([1.0 if CONTACT_DIVE <= x < CONTACT_BACK or WADE_START <= x < WADE_END else 0.0 for x in t])
+            path = f"segments/{name}/in_water"
+            check(path in f and np.array_equal(f[path][()], wet), f"contact study: {path} != the event table")
+
+    try:   # the netCDF view (README, "Results (HDF5)"): the series on the segment's own time coordinate
+        import xarray as xr
+        with xr.open_dataset(h5, group="/segments/forelegs", engine="h5netcdf") as ds:
+            check(ds["contact_fraction"].dims == ("time",) and float(ds["contact_fraction"].sel(time=900.0)) == 0.0
+                  and float(ds["contact_fraction"].sel(time=1200.0)) == 0.1, "contact study: xarray view of contact")
+    except ImportError:
+        print("test_figures: xarray not installed: the netCDF view of the contact series not checked")
+
+    def substrate_and_water(path):
+        with Results(path) as res:
+            fig = figures.forcing_figure(res)
+        lines = {ln.get_label().split(" (")[0]: ln for ax in fig.axes for ln in ax.get_lines()}
+        return fig, lines.get("substrate"), lines.get("water")
+
+    fig, sub, water = substrate_and_water(h5)
+    check(sub is not None and water is not None, "contact study: no substrate or water line")
+    if sub is None or water is None:
+        return
+    x = np.asarray(sub.get_xdata(), float) * 60.0
+    y = np.asarray(sub.get_ydata(), float)
+    drawn = x[np.isfinite(y)]
+    check(not np.any((drawn > CONTACT_DIVE) & (drawn < CONTACT_BACK)),
+          f"contact study: substrate drawn during the dive at {drawn[(drawn > CONTACT_DIVE) & (drawn < CONTACT_BACK)]} s")
+    check(CONTACT_DIVE in drawn and CONTACT_BACK in drawn and drawn.min() == 0.0 and drawn.max() == 3600.0,
+          f"contact study: substrate not drawn up to the dive's start and from its end: {drawn}")
+    # While wading the two lines coincide (10 degC): both must show, the upper one dashed over a wider lower one,
+    # or one line labelled with both names.
+    xw = np.asarray(water.get_xdata(), float) * 60.0
+    wading = np.isfinite(np.asarray(water.get_ydata(), float)) & (xw > WADE_START) & (xw < WADE_END)
+    check(bool(np.any(wading)), "contact study: water not drawn while wading")
+    if water is not sub:
+        upper, lower = (sub, water) if sub.get_zorder() >= water.get_zorder() else (water, sub)
+        dashed = upper.get_linestyle() not in ("-", "solid")
+        check(dashed and lower.get_linewidth() > upper.get_linewidth() and "water" in sub.get_label(),
+              f"contact study: the water line hides under the substrate's while wading (upper {upper.get_label()!r} "
+              f"style {upper.get_linestyle()!r} lw {upper.get_linewidth()}, lower lw {lower.get_linewidth()})")
+    check("Model estimates for research" in all_text(fig), "contact study: forcing figure without the caution")
+
+    # A file written before the series: the datasets removed, the static contact (0.1) read and still drawn.
+    old = tmp / "contact_old.h5"
+    shutil.copy(h5, old)
+    with h5py.File(old, "r+") as f:
+        for name in f["segments"]:
+            for key in ("contact_fraction", "in_water"):
+                if key in f[f"segments/{name}"]:
+                    del f[f"segments/{name}/{key}"]
+    with Results(old) as res:
+        legs = res.segments(["forelegs"])[0].contact_fraction()
+        check(legs.path == "" and np.all(legs.values == 0.1), f"old file: forelegs contact {legs.values[:3]}...")
+    fig, sub, _ = substrate_and_water(old)
+    check(sub is not None and np.any(np.isfinite(np.asarray(sub.get_ydata(), float))),
+          "old file without contact series: no substrate line")
+
+
 def check_cli_times():
     """figures.py --window and --times take times with units like report.py (1 min = 60 s, 1 h = 3600 s: SI
     Brochure 2019, Table 8), and a window also as t0:t1 (sweep's form); a bad time names the option."""
@@ -485,6 +598,7 @@ def main() -> int:
             check_steps(tmp, EXE)
             check_immersion(tmp, EXE)
             check_contact_events(tmp, EXE)
+            check_contact_series(tmp, EXE)
         else:
             print("test_figures: no thermorph executable given (second argument): step drawing not checked")
         check_tidy(full, tmp)

@@ -486,6 +486,8 @@ def surroundings_lines(res: Results, keys=None) -> list[dict]:
                 t_line, v_line = res.environment_line(name)
                 if t_line.shape == knots.shape:
                     v[medium == f] = v_line[medium == f]
+        if kind == "substrate":   # only while some segment touches it (the stored contact fractions)
+            v[~in_contact(res, knots)] = np.nan
         drawn.append(dict(key=key, label=label, units=units, kind=kind, t=knots, v=v, targets=targets))
     if keys is None:   # stored series this module does not know: drawn as stored
         for name in env:
@@ -493,6 +495,17 @@ def surroundings_lines(res: Results, keys=None) -> list[dict]:
                 t, v = res.environment_line(name)
                 drawn.append(dict(key=name, label=name, units=env[name].units, kind=None, t=t, v=v, targets=None))
     return drawn
+
+
+def in_contact(res: Results, knots) -> np.ndarray:
+    """Whether some segment touches the substrate at each of `knots` (Results.timeline_knots) ([n] bool), from the
+    segments' stored contact fractions (Results.contact_line)."""
+    touching = np.zeros(len(knots), bool)
+    for name in res.segment_names():
+        t, f = res.contact_line(name)
+        if t.shape == np.shape(knots):
+            touching |= f > 0.0
+    return touching
 
 
 def _segments_text(res: Results, names: list[str]) -> str:
@@ -521,6 +534,8 @@ def acting_notes(res: Results, lines: list[dict]) -> list[str]:
             desc = texts[fluids[0]] + (where if texts[fluids[0]] != "every segment" else "")
         else:
             desc = "; ".join(f"{texts[f] or 'none (not drawn)'} while the medium is {f}" for f in fluids)
+        if ln["kind"] == "substrate":
+            desc += " while in contact (contact_fraction above 0)"
         groups.setdefault(desc, []).extend(names)
     notes = [f"Acts on — {', '.join(names)}: {desc}." for desc, names in groups.items()]
     if idle:
@@ -607,7 +622,18 @@ def forcing_figure(res: Results, units: str = "physiology", style: str = DEFAULT
                 if shown.size and np.all(shown == shown[0]):   # constant where drawn: its value in the legend (a
                     axis_unit = temperature_label(units) if unit == "degC" else FORCING_UNIT_TEXT.get(unit, unit)
                     label += f" ({shown[0]:.3g} {axis_unit})"   # 0.05 m/s current beside a 4 m/s wind reads as 0)
-                line, = ax.plot(ln["t"] / scale[0], values, color=colour, ls=ls, lw=1.2, label=label, **kw)
+                # A line that runs on one drawn already where both are drawn (the substrate at the water's
+                # temperature while wading) would hide it: the earlier one widened beneath, this one dashed on top.
+                under = [d for d in drawn if d[0].shape == values.shape and np.any(
+                    np.isfinite(d[0]) & np.isfinite(values) & np.isclose(d[0], values, rtol=1e-9, atol=1e-9))]
+                dashes = {}
+                if under:
+                    for d in under:
+                        d[1].set_linewidth(2.6)
+                    dashes = dict(ls=(0, (3, 2)), zorder=3)
+                    label += f" (dashed over {', '.join(d[2][0]['label'] for d in under)} where equal)"
+                line, = ax.plot(ln["t"] / scale[0], values, color=colour, lw=1.2, label=label,
+                                **({"ls": ls} | dashes), **kw)
                 drawn.append([values, line, [ln]])
             for _, _, same in drawn:
                 same[0]["names"] = [x["label"] for x in same]

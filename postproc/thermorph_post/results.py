@@ -258,6 +258,23 @@ class Segment:
         path = f"cumulative_heat/{channel}"
         return self.read(path).values if self.has(path) else None
 
+    def contact_fraction(self) -> Series:
+        """Share of the surface touching the substrate at each output [1] ([nt]): the stored series
+        /segments/NAME/contact_fraction (events step it), or, in a file written before that series (2026-12-05),
+        the segment's static `surface.contact_fraction` from the stored case (0 when it gives none) at every
+        output, as such a file's run had it unless an event changed it (path "" then)."""
+        if self.has("contact_fraction"):
+            return self.read("contact_fraction")
+        surface = self.case_entry.get("surface", {}) if self.case_entry else {}
+        value = surface.get("contact_fraction", 0.0) if isinstance(surface, dict) else 0.0
+        value = float(value) if isinstance(value, (int, float)) and not isinstance(value, bool) else 0.0
+        return Series("", np.full(len(self.results.time), value), "1")
+
+    def in_water(self) -> np.ndarray | None:
+        """Whether the segment is in water (True) or air (False) at each output ([nt]), from the stored series
+        /segments/NAME/in_water; None in files written before it (2026-12-05)."""
+        return self.read("in_water").values > 0.5 if self.has("in_water") else None
+
     def heat_flow_channels(self) -> list[str]:
         """Heat-flow channels stored for this segment, in contract order."""
         if "heat_flow" not in self.group:
@@ -691,6 +708,65 @@ class Results:
                 if isinstance(value, (int, float)) and not isinstance(value, bool):
                     largest = max(largest, float(value))
         return largest
+
+    def _contact_schedule(self, name: str):
+        """Steps of segment `name`'s contact fraction from the stored case: [(at [s], value)] starting at -inf with
+        its static `surface.contact_fraction`, then each `[[events]]` surface entry in time order ("all" before the
+        segment's own name within one event, as thermorph applies them); None when the case does not give them
+        as numbers."""
+        surface = self.case_segment(name).get("surface", {})
+        static = surface.get("contact_fraction", 0.0) if isinstance(surface, dict) else 0.0
+        if isinstance(static, bool) or not isinstance(static, (int, float)):
+            return None
+        steps = [(-np.inf, float(static))]
+        events = [e for e in self.case.get("events", []) or [] if isinstance(e, dict)]
+        try:
+            for e in sorted(events, key=lambda e: float(e.get("at", 0.0))):
+                entries = e.get("surface", {})
+                for key in ("all", name):
+                    entry = entries.get(key, {}) if isinstance(entries, dict) else {}
+                    value = entry.get("contact_fraction") if isinstance(entry, dict) else None
+                    if value is None:
+                        continue
+                    if isinstance(value, bool) or not isinstance(value, (int, float)):
+                        return None
+                    steps.append((float(e.get("at", 0.0)), float(value)))
+        except (TypeError, ValueError):
+            return None
+        return steps
+
+    def contact_line(self, name: str) -> tuple[np.ndarray, np.ndarray]:
+        """Times [s] (timeline_knots) and segment `name`'s contact fraction [1] there: the stored value at every
+        output (Segment.contact_fraction: the series, or the static value in older files), and between outputs
+        the stored case's steps (`[[events]] surface`), so that contact starts and ends at the events' own
+        times. The case is used only when it reproduces every stored output; otherwise the value of the last
+        output is held up to the next."""
+        time = np.asarray(self.time, float)
+        stored = np.asarray(self.segments([name])[0].contact_fraction().values, float)
+        knots, before = self.timeline_knots()
+        if time.size < 2 or stored.shape != time.shape:
+            return time, stored
+        steps = self._contact_schedule(name)
+
+        def scheduled(t, left):
+            value = steps[0][1]
+            for at, v in steps[1:]:
+                if at < t or (at == t and not left):
+                    value = v
+            return value
+
+        if steps is not None and any(scheduled(t, False) != v for t, v in zip(time.tolist(), stored.tolist())):
+            steps = None
+        index = {t: i for i, t in enumerate(time.tolist())}
+        out = np.empty(knots.size)
+        for k, (t, b) in enumerate(zip(knots.tolist(), before.tolist())):
+            if not b and t in index:
+                out[k] = stored[index[t]]
+            elif steps is not None:
+                out[k] = scheduled(t, b)
+            else:
+                out[k] = stored[max(int(np.searchsorted(time, t, side="left")) - 1, 0)]
+        return knots, out
 
     def solver_stats(self) -> dict:
         """Attributes of the /solver group ({} when absent)."""
