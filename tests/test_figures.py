@@ -527,6 +527,22 @@ def check_contact_series(tmp: Path, exe: str):
     except ImportError:
         print("test_figures: xarray not installed: the netCDF view of the contact series not checked")
 
+    # Map titles name what the segment was in at each moment: in water or air, its contact, the dive (labelled
+    # event) under way, per the event table (the value after a step at an output, as stored).
+    times = [300.0, 900.0, 1200.0, 2100.0, 3000.0]
+    with Results(h5) as res:
+        maps = figures.maps_figures(res, segments=["forelegs"], times=times)
+    titles = {ax.get_label(): ax.thermorph_title[1] for ax in maps["forelegs"].axes if ax.get_label().startswith("map at")}
+    for t in times:
+        wet = CONTACT_DIVE <= t < CONTACT_BACK or WADE_START <= t < WADE_END
+        f = _contact_expected("forelegs", t)
+        want = ["in water" if wet else "in air", f"contact {100 * f:.3g} %" if f else "no contact"]
+        want += ["dive"] if CONTACT_DIVE <= t < CONTACT_BACK else []
+        title = " ".join(titles.get(f"map at t = {t:.10g} s", "").split())
+        check(title.endswith(": " + ", ".join(want)), f"contact study: map title at {t:g} s {title!r}, expected {want}")
+    footer = " ".join(maps["forelegs"].thermorph_footer.get_text().split())
+    check("20 min: an output on a step" in footer, f"contact study: maps footer does not flag the step: {footer!r}")
+
     def substrate_and_water(path):
         with Results(path) as res:
             fig = figures.forcing_figure(res)
@@ -568,6 +584,11 @@ def check_contact_series(tmp: Path, exe: str):
     with Results(old) as res:
         legs = res.segments(["forelegs"])[0].contact_fraction()
         check(legs.path == "" and np.all(legs.values == 0.1), f"old file: forelegs contact {legs.values[:3]}...")
+    with Results(old) as res:
+        maps = figures.maps_figures(res, segments=["forelegs"], times=[900.0])
+    footer = " ".join(maps["forelegs"].thermorph_footer.get_text().split())
+    check("stores no in_water" in footer and "in water" not in maps["forelegs"].axes[0].thermorph_title[1],
+          f"old file: map does not say it cannot name the medium: {footer!r}")
     fig, sub, _ = substrate_and_water(old)
     check(sub is not None and np.any(np.isfinite(np.asarray(sub.get_ydata(), float))),
           "old file without contact series: no substrate line")

@@ -26,7 +26,8 @@ import numpy as np
 from matplotlib.ticker import MaxNLocator
 
 from thermorph_post.budget import rank_segments, window_budget
-from thermorph_post.results import Results, ResultsError, faces_from_centres, parse_time
+from thermorph_post.results import (Results, ResultsError, faces_from_centres, is_default_event_label,
+                                    parse_time)
 from thermorph_post.style import (ALL_IN_WATER_SHADE, BODY_STYLE, DEFAULT_STYLE, ENVIRONMENT_STYLE, FORMATS, LINE_CYCLE, MAP_COLOURS,
                                   MARKER_CYCLE, PNG_DPI, STYLES, add_footer, body_flow_scale, case_title,
                                   channel_styles, finish, format_time, legend_outside, length_scale, letters,
@@ -334,6 +335,25 @@ def _cone_note(seg, units: str) -> str:
             f"to {r1 * rs:.3g} {ru} at the distal end, the layers in proportion.")
 
 
+def moment_text(res: Results, seg, i: int) -> str:
+    """What segment `seg` was in at output i, from the stored series: "in water" or "in air" (/segments/NAME/in_water),
+    its substrate contact when it has any during the run ("contact 10 %", "no contact";
+    /segments/NAME/contact_fraction), and the labelled events (/events) under way ("dive 2"). The values at an output
+    on a step are those after it (as stored). "" for a file without these series (before 2026-12-05)."""
+    wet = seg.in_water()
+    if wet is None or i >= len(wet):
+        return ""
+    parts = ["in water" if wet[i] else "in air"]
+    contact = seg.contact_fraction()
+    if contact.path and np.any(contact.values > 0.0):
+        f = float(contact.values[i])
+        parts.append(f"contact {100.0 * f:.3g} %" if f > 0.0 else "no contact")
+    t = float(res.time[i])
+    parts += [label for start, end, label in res.events()
+              if start <= t < end and label and not is_default_event_label(label)]
+    return ", ".join(parts)
+
+
 def maps_figures(res: Results, units: str = "physiology", segments=None, times=None, top: int = DEFAULT_TOP,
                  style: str = DEFAULT_STYLE, caution: bool = True) -> dict:
     """Axial × radial temperature maps and radial profiles at mid-length: {segment name: Figure} for each
@@ -372,7 +392,9 @@ def maps_figures(res: Results, units: str = "physiology", segments=None, times=N
                 mesh.thermorph_value_label = f"Temperature ({tu})"
                 for r_b, _ in bounds[:-1]:
                     ax.axhline(r_b * rs, color="white", lw=0.8, ls="--")
-                panel_title(ax, "a" if k == 0 else None, f"t = {format_time(res.time[i], scale)}")
+                moment = moment_text(res, seg, i)
+                panel_title(ax, "a" if k == 0 else None, f"t = {format_time(res.time[i], scale)}"
+                            + (f": {moment}" if moment else ""))
                 ax.set_xlabel(f"Axial ({zu})" if n > 2 and style == "single" else f"Axial position ({zu})")
                 ax.xaxis.set_major_locator(MaxNLocator(3 if style == "single" else 4))
                 ax.thermorph_ylabel = f"{radial_name} ({ru})"   # for the source data of unlabelled panels
@@ -411,7 +433,15 @@ def maps_figures(res: Results, units: str = "physiology", segments=None, times=N
             legend_outside(ax)
             count = f" (one of {seg.count})" if seg.count > 1 else ""
             suptitle(fig, f"{title_prefix(res)}{case_title(res)}: {seg.name}{count} temperature map")
-            add_footer(fig, [n for n in [_cone_note(seg, units)] if n], caution)
+            unstated = "" if seg.in_water() is not None else (
+                "This file stores no in_water or contact_fraction series (written before 2026-12-05): the map titles "
+                "do not say whether the segment was in water or in contact.")
+            on_step = [format_time(res.time[i], scale) for i in indices
+                       if any(at == float(res.time[i]) for at, _ in res.timeline_steps())] if not unstated else []
+            if on_step:
+                unstated = (f"{', '.join(on_step)}: an output on a step of the timeline; the temperatures are those "
+                            "reached when the step occurs, the medium, contact and events in the title those after it.")
+            add_footer(fig, [n for n in [_cone_note(seg, units), unstated] if n], caution)
             finish(fig)
         figs[seg.name] = fig
     if not figs:
