@@ -17,7 +17,8 @@
 - `pip install --target DIR --no-deps --no-build-isolation --no-index ./postproc` works offline and the
   installed entry points (thermorph-figures, thermorph-export, thermorph-report, thermorph-sweep-figure)
   run from DIR with the checkout out of reach.
-- With THERMORPH: the substrate contact stored per segment equals the case's event table and the substrate is
+- With THERMORPH: the diving example's budget over time keeps metabolism readable beside the dives' spikes (a
+  symmetric-log axis, said in the figure), every stored flow inside the axis; the substrate contact stored per segment equals the case's event table and the substrate is
   drawn only while some segment touches (a dive between outputs), a water line equal to it stays visible, an old
   file without the series still draws; a step of the surroundings between two outputs is drawn as a vertical jump at the step's time
   and a ramp whose ends fall between outputs from its own start to its own end (the quadruped with a step 15 -> -5
@@ -594,6 +595,53 @@ def check_contact_series(tmp: Path, exe: str):
           "old file without contact series: no substrate line")
 
 
+def check_budget_spikes(tmp: Path, exe: str):
+    """The diving example's budget, panel b (whole-body flows over time): each dive's first seconds cool the body at
+    about 320 W/kg (convection in 4 degC sea water on a skin warmed in air) while metabolism is about 2 W/kg, so on a
+    linear axis metabolism was a line at zero (0.6 % of the axis height). Every channel must stay readable without
+    hiding the spikes: metabolism's drawn distance from zero at least 10 % of the axis height (common practice, no
+    source: a line closer than that to the zero line reads as zero), every stored flow (h5py, per kg of the stored
+    mass) inside the axis limits, and the figure says what it does (panel title and footer). A smooth run (the
+    synthetic sample) keeps a linear axis."""
+    import h5py
+    from thermorph_post import figures, sample
+    from thermorph_post.results import Results
+    h5 = tmp / "seal.h5"
+    proc = subprocess.run([exe, "run", str(ROOT / "cases" / "diving_seal.toml"), "-q", "-o", str(h5)],
+                          capture_output=True, text=True)
+    check(proc.returncode == 0, f"diving seal: exit {proc.returncode}\n{proc.stderr[-800:]}")
+    if proc.returncode != 0:
+        return
+    with h5py.File(h5, "r") as f:
+        case_mass = f["body"].attrs["mass"]
+        flows = {k: f[f"body/heat_flow/{k}"][()] for k in f["body/heat_flow"] if k != "time"}
+    with Results(h5) as res:
+        mass = res.body_mass or float(case_mass)
+        fig = figures.budget_figure(res)
+    ax = next(a for a in fig.axes if a.get_label() == "whole-body heat flows")
+    lo, hi = ax.get_ylim()
+    height = abs(ax.transData.transform((0, hi))[1] - ax.transData.transform((0, lo))[1])
+    zero = ax.transData.transform((0, 0.0))[1]
+    metabolism = np.median(flows["metabolism"]) / mass
+    lift = abs(ax.transData.transform((0, metabolism))[1] - zero) / height
+    check(lift >= 0.10, f"diving seal budget: metabolism ({metabolism:.3g} W/kg) drawn {100 * lift:.2g} % of the axis "
+                        f"height from zero (unreadable beside the spikes)")
+    for name, v in flows.items():
+        if np.max(np.abs(v)) > 1e-9:
+            check(lo <= v.min() / mass and v.max() / mass <= hi,
+                  f"diving seal budget: {name} ({v.min() / mass:.4g} to {v.max() / mass:.4g} W/kg) outside the axis "
+                  f"{lo:.4g} to {hi:.4g}")
+    footer = " ".join(fig.thermorph_footer.get_text().split())
+    check("symmetric-log" in ax.thermorph_title[1] and "symmetric-log" in footer and "Model estimates" in footer,
+          f"diving seal budget: the figure does not say the axis is symmetric-log: {footer!r}")
+    smooth = tmp / "smooth_sample.h5"
+    sample.main([str(smooth)])
+    with Results(smooth) as res:
+        fig = figures.budget_figure(res)
+    ax = next(a for a in fig.axes if a.get_label() == "whole-body heat flows")
+    check(ax.get_yscale() == "linear", f"smooth sample: budget panel b on a {ax.get_yscale()} axis")
+
+
 def check_cli_times():
     """figures.py --window and --times take times with units like report.py (1 min = 60 s, 1 h = 3600 s: SI
     Brochure 2019, Table 8), and a window also as t0:t1 (sweep's form); a bad time names the option."""
@@ -620,6 +668,7 @@ def main() -> int:
             check_immersion(tmp, EXE)
             check_contact_events(tmp, EXE)
             check_contact_series(tmp, EXE)
+            check_budget_spikes(tmp, EXE)
         else:
             print("test_figures: no thermorph executable given (second argument): step drawing not checked")
         check_tidy(full, tmp)

@@ -23,7 +23,7 @@ import sys
 from pathlib import Path
 
 import numpy as np
-from matplotlib.ticker import MaxNLocator
+from matplotlib.ticker import MaxNLocator, NullLocator
 
 from thermorph_post.budget import rank_segments, window_budget
 from thermorph_post.results import (Results, ResultsError, faces_from_centres, is_default_event_label,
@@ -177,8 +177,42 @@ def _parse_window(res: Results, window) -> tuple[float, float]:
     return max(t0, t_first), min(t1, t_last)
 
 
+#: Axis of the whole-body flows over time (budget panel b): auto, linear or symlog.
+FLOW_AXES = ("auto", "linear", "symlog")
+#: With flow_axis="auto", a symmetric-log axis when the largest flow exceeds this many times the typical size (the
+#: median over time of the largest channel): brief spikes (a dive's first seconds) would squeeze the rest into a
+#: line at zero. Common practice, no source.
+SYMLOG_RATIO = 20.0
+#: Height of the linear part of that axis, in decades of its logarithmic parts.
+SYMLOG_LINSCALE = 2.0
+
+
+def _nice_down(x: float) -> float:
+    """The largest of 1, 2, 5 × 10^k at or below x > 0."""
+    k = np.floor(np.log10(x))
+    return float(next(m * 10.0 ** k for m in (10.0, 5.0, 2.0, 1.0) if m * 10.0 ** k <= x * (1 + 1e-12)))
+
+
+def flow_axis_scale(flows: list, flow_axis: str = "auto"):
+    """Linear threshold of a symmetric-log axis for the flows over time ([nt] arrays, drawn units), or None for a
+    linear axis: flow_axis "symlog", or "auto" when the largest |flow| exceeds SYMLOG_RATIO times the typical size
+    (median over time of the largest |flow| of any channel); the threshold is that typical size rounded down to 1, 2,
+    5 × 10^k, so the smaller flows are drawn linearly and the spikes logarithmically beyond. Returns (threshold, peak,
+    typical)."""
+    if flow_axis not in FLOW_AXES:
+        raise ValueError(f"--flow-axis {flow_axis}: choose from {', '.join(FLOW_AXES)}")
+    if not flows or flow_axis == "linear":
+        return None
+    largest = np.max(np.abs(np.vstack(flows)), axis=0)
+    peak, typical = float(np.nanmax(largest)), float(np.nanmedian(largest))
+    if not (peak > 0.0) or (flow_axis == "auto" and peak <= SYMLOG_RATIO * typical):
+        return None
+    typical = typical if typical > 0.0 else peak / 100.0   # forced symlog on flows mostly zero
+    return _nice_down(typical), peak, typical
+
+
 def budget_figure(res: Results, units: str = "physiology", segments=None, window=None, top: int = DEFAULT_TOP,
-                  style: str = DEFAULT_STYLE, caution: bool = True):
+                  style: str = DEFAULT_STYLE, caution: bool = True, flow_axis: str = "auto"):
     """Figure: mean heat flow by channel over a window for segments, the rest and the blood pool (stacked
     bars), and whole-body heat flows over time."""
     style_of(style)
@@ -192,9 +226,17 @@ def budget_figure(res: Results, units: str = "physiology", segments=None, window
     zero = [c for c in b.channels if c != "storage" and c not in channels]
     styles = channel_styles(set(b.channels) | set(res.body_channels()))
     lw = style_of(style)["line"]
+    div, flow_unit, quantity = body_flow_scale(res, units)
+    t = res.time / scale[0]
+    flows = {c: res.body_heat_flow(c) for c in res.body_channels()}
+    fsize = max([float(np.nanmax(np.abs(v))) for v in flows.values() if v.size] + [1e-300])
+    body_channels = [c for c, v in flows.items() if not negligible(v, fsize)]
+    internal = [c for c in flows if c not in body_channels and c not in zero and c != "storage"]
+    symlog = flow_axis_scale([flows[c] / div for c in body_channels], flow_axis) if len(t) > 1 else None
     with rc(style):
-        fig = new_figure(style, 2 * _panel_height(style) + 1.6)
-        ax_bar, ax_time = fig.subplots(2, 1, height_ratios=[1.15, 1.0])
+        # A symmetric-log panel b gets more height: its linear part and the decades of the spikes.
+        fig = new_figure(style, (2.4 if symlog else 2) * _panel_height(style) + 1.6)
+        ax_bar, ax_time = fig.subplots(2, 1, height_ratios=[1.15, 1.4 if symlog else 1.0])
         ax_bar.set_label("segment budget")
         ax_time.set_label("whole-body heat flows")
 
@@ -239,16 +281,23 @@ def budget_figure(res: Results, units: str = "physiology", segments=None, window
                                for j in order])
 
         # Panel b: body heat flows by channel over time (channels zero throughout left out).
-        div, flow_unit, quantity = body_flow_scale(res, units)
-        t = res.time / scale[0]
-        flows = {c: res.body_heat_flow(c) for c in res.body_channels()}
-        fsize = max([float(np.nanmax(np.abs(v))) for v in flows.values() if v.size] + [1e-300])
-        body_channels = [c for c, v in flows.items() if not negligible(v, fsize)]
-        internal = [c for c in flows if c not in body_channels and c not in zero and c != "storage"]
         if len(t) > 1:
             for c in body_channels:
                 colour, _, ls = styles[c]
                 ax_time.plot(t, flows[c] / div, color=colour, ls=ls, lw=lw, label=c, path_effects=outline(colour))
+            if symlog is not None:
+                ax_time.set_yscale("symlog", linthresh=symlog[0], linscale=SYMLOG_LINSCALE)
+                for edge in (-symlog[0], symlog[0]):
+                    ax_time.axhline(edge, color="0.45", lw=0.6, ls=":", zorder=1)
+                # Ticks at 0, the linear threshold and the decades beyond it, as plain numbers (the default puts
+                # 10^0 beside 0 inside the linear part, where the labels collide).
+                lo, hi = ax_time.get_ylim()
+                ticks = [0.0] + [sign * v for sign in (-1.0, 1.0) for v in
+                                 [symlog[0]] + [10.0 ** k for k in range(int(np.floor(np.log10(symlog[0]))) + 1, 12)
+                                                if 10.0 ** k >= 4.0 * symlog[0]]
+                                 if lo <= sign * v <= hi]
+                ax_time.set_yticks(sorted(ticks), [f"{v:g}" for v in sorted(ticks)])
+                ax_time.yaxis.set_minor_locator(NullLocator())
             if t1 > t0 and (t0 > res.time[0] or t1 < res.time[-1]):
                 for edge in (t0, t1):
                     ax_time.axvline(edge / scale[0], color="0.3", lw=0.8, ls="-.")
@@ -256,7 +305,9 @@ def budget_figure(res: Results, units: str = "physiology", segments=None, window
             shade_events(ax_time, res, scale)
             panel_title(ax_time, "b", "Whole body heat flows by channel (positive = into the body)"
                         + ("; dash-dot lines: averaging window" if t1 > t0 and (t0 > res.time[0] or t1 < res.time[-1])
-                           else ""))
+                           else "")
+                        + (f"; symmetric-log axis: linear between the dotted lines (±{symlog[0]:g} {flow_unit}), "
+                           "logarithmic beyond" if symlog is not None else ""))
             legend_outside(ax_time)
         else:  # a single output time (steady solve): one bar per channel
             values = [float(flows[c][0]) / div for c in body_channels]
@@ -278,6 +329,14 @@ def budget_figure(res: Results, units: str = "physiology", segments=None, window
             notes.append(f"Not drawn, zero throughout: {', '.join(zero)}.")
         if internal:
             notes.append(f"Whole body: {', '.join(internal)} zero throughout (transfers inside the body), not drawn.")
+        if symlog is not None:
+            peak_c = max(body_channels, key=lambda c: float(np.nanmax(np.abs(flows[c]))))
+            k = int(np.nanargmax(np.abs(flows[peak_c])))
+            notes.append(f"Panel b on a symmetric-log axis (linear within ±{symlog[0]:g} {flow_unit}, logarithmic "
+                         f"beyond) so that every channel stays readable beside the largest flow, "
+                         f"{flows[peak_c][k] / div:.3g} {flow_unit} ({peak_c} at {format_time(res.time[k], scale)}), "
+                         f"{symlog[1] / symlog[2]:.0f}× the typical size (median over time of the largest channel, "
+                         f"{symlog[2]:.3g} {flow_unit}); --flow-axis linear for a linear axis.")
         err = res.optional("/body/energy_balance_error")
         if err is not None and err.values.size:
             notes.append(f"Largest |energy balance error| = {np.max(np.abs(err.values)):.3g} {err.units}.")
@@ -287,10 +346,11 @@ def budget_figure(res: Results, units: str = "physiology", segments=None, window
 
 
 def budget(results, out_dir, units: str = "physiology", segments=None, window=None, top: int = DEFAULT_TOP,
-           formats=FORMATS, style: str = DEFAULT_STYLE, dpi: float = PNG_DPI, caution: bool = True) -> list[Path]:
+           formats=FORMATS, style: str = DEFAULT_STYLE, dpi: float = PNG_DPI, caution: bool = True,
+           flow_axis: str = "auto") -> list[Path]:
     """Write the budget figure (budget.*) to out_dir; return the files written."""
     with _opened(results) as res:
-        fig = budget_figure(res, units, segments, window, top, style, caution)
+        fig = budget_figure(res, units, segments, window, top, style, caution, flow_axis)
         return save(fig, out_dir, "budget", res, formats, dpi)
 
 
@@ -827,6 +887,10 @@ def main(argv=None) -> int:
                     help="budget averaging window t0,t1 (s, or with a unit: 10min,1h; or t0:t1) (default: whole run)")
     ap.add_argument("--times", type=lambda s: _floats(s, "--times"), default=None,
                     help="map times, comma-separated, in s or with a unit (default: first, middle, last output)")
+    ap.add_argument("--flow-axis", choices=FLOW_AXES, default="auto",
+                    help="budget panel b (whole-body flows over time): symlog draws brief large spikes beside the small "
+                         f"terms; auto does so when the largest flow is over {SYMLOG_RATIO:g}x the typical size "
+                         "(default auto)")
     ap.add_argument("--formats", default=",".join(FORMATS),
                     help=f"comma-separated subset of {', '.join(FORMATS)} (default: all three)")
     ap.add_argument("--style", choices=tuple(STYLES), default=DEFAULT_STYLE,
@@ -871,7 +935,8 @@ def main(argv=None) -> int:
                 if "temperatures" in only:
                     written += temperatures(res, out, args.units, segments, args.top, **common)
                 if "budget" in only:
-                    written += budget(res, out, args.units, segments, args.window, args.top, **common)
+                    written += budget(res, out, args.units, segments, args.window, args.top, **common,
+                                      flow_axis=args.flow_axis)
                 if "maps" in only:
                     written += maps(res, out, args.units, segments, args.times, args.top, **common)
                 if "forcing" in only:
