@@ -17,7 +17,8 @@
 - `pip install --target DIR --no-deps --no-build-isolation --no-index ./postproc` works offline and the
   installed entry points (thermorph-figures, thermorph-export, thermorph-report, thermorph-sweep-figure)
   run from DIR with the checkout out of reach.
-- With THERMORPH: the diving example's budget over time keeps metabolism readable beside the dives' spikes (a
+- With THERMORPH: the overlay's footer names the case keys in which the runs differ; the README sweep draws the
+  bill length along x (the parameter with most values) with ticks at the swept values; the diving example's budget over time keeps metabolism readable beside the dives' spikes (a
   symmetric-log axis, said in the figure), every stored flow inside the axis; the substrate contact stored per segment equals the case's event table and the substrate is
   drawn only while some segment touches (a dive between outputs), a water line equal to it stays visible, an old
   file without the series still draws; a step of the surroundings between two outputs is drawn as a vertical jump at the step's time
@@ -642,6 +643,58 @@ def check_budget_spikes(tmp: Path, exe: str):
     check(ax.get_yscale() == "linear", f"smooth sample: budget panel b on a {ax.get_yscale()} axis")
 
 
+def check_overlay_and_sweep(tmp: Path, exe: str):
+    """The overlay and sweep figures as a new user meets them (README). Overlay: two quadruped runs that differ only
+    by --set environment.temperature (5 and 15 degC): the footer names that key with each run's value in degC (the
+    values given on the command line; before, it named only the files, and the figure did not say how the runs
+    differ). Sweep (README, "Parameter sweeps": shunts 0,1 x bill lengths 6 cm:24 cm:4): by default the bill length
+    (4 values) is along x and the shunt setting (2 values) makes the lines (before, the first parameter, the shunt,
+    was x: four lines from closed to open), ticks at the swept lengths 6, 12, 18, 24 cm (the --vary range; before at
+    7.5, 10, ...). Common practice, no source."""
+    from thermorph_post import figures, sweep
+    runs = []
+    for temp in (5, 15):
+        h5 = tmp / f"quad_{temp}.h5"
+        proc = subprocess.run([exe, "run", str(ROOT / "cases" / "quadruped.toml"), "-q", "--set",
+                               f'environment.temperature="{temp} degC"', "--set", 'run.duration="10 min"',
+                               "-o", str(h5)], capture_output=True, text=True)
+        check(proc.returncode == 0, f"overlay run at {temp} degC: exit {proc.returncode}\n{proc.stderr[-800:]}")
+        runs.append(h5)
+    if all(h.is_file() for h in runs):
+        fig = figures.overlay_figure(runs, labels=["cold", "mild"])
+        footer = " ".join(fig.thermorph_footer.get_text().split())
+        check("environment.temperature: cold 5 °C, mild 15 °C" in footer and "Model estimates" in footer,
+              f"overlay: the footer does not say how the runs differ: {footer!r}")
+        same = figures.overlay_figure([runs[0], runs[0]], labels=["a", "b"])
+        check("resolved cases are identical" in " ".join(same.thermorph_footer.get_text().split()),
+              "overlay: two identical runs not said to be identical")
+    table = tmp / "bill_sizes.h5"
+    proc = subprocess.run([exe, "sweep", str(ROOT / "cases" / "large_bill.toml"), "--steady", "--vary",
+                           "segments.bill.vasomotor.shunt=0,1", "--vary", "segments.bill.length=6 cm:24 cm:4",
+                           "--set", "circulation.fixed_arterial_temperature=40 degC",
+                           "--set", "control.vasomotor.enabled=off", "--metric", "segments.bill.heat_flow",
+                           "-o", str(table)], capture_output=True, text=True)
+    check(proc.returncode == 0, f"README sweep: exit {proc.returncode}\n{proc.stderr[-800:]}")
+    if proc.returncode != 0:
+        return
+    out = tmp / "readme_sweep"
+    code = sweep.main([str(table), "--metric", "segments.bill.heat_flow.convection", "--out", str(out),
+                       "--formats", "png"])
+    check(code == 0, f"README sweep figure: exit {code}")
+    with open(out / "bill_sizes_segments.bill.heat_flow.convection.data.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    series = sorted({r["series"] for r in rows})
+    xs = sorted({float(r["x"]) for r in rows})
+    check(series == ["0", "1"] and xs == [6.0, 12.0, 18.0, 24.0] and "length" in rows[0]["x_label"],
+          f"README sweep: x {rows[0]['x_label'] if rows else None} {xs}, lines {series}; expected the bill length "
+          "along x and one line per shunt setting")
+    sw = sweep.Sweep(table)
+    fig = sweep.line_figure(sw, "segments.bill.heat_flow.convection", "segments.bill.length",
+                            "segments.bill.vasomotor.shunt", np.ones(8, bool))
+    ticks = list(fig.axes[0].get_xticks())
+    check(ticks == [6.0, 12.0, 18.0, 24.0], f"README sweep: x ticks {ticks}, expected the swept lengths")
+
+
 def check_cli_times():
     """figures.py --window and --times take times with units like report.py (1 min = 60 s, 1 h = 3600 s: SI
     Brochure 2019, Table 8), and a window also as t0:t1 (sweep's form); a bad time names the option."""
@@ -669,6 +722,7 @@ def main() -> int:
             check_contact_events(tmp, EXE)
             check_contact_series(tmp, EXE)
             check_budget_spikes(tmp, EXE)
+            check_overlay_and_sweep(tmp, EXE)
         else:
             print("test_figures: no thermorph executable given (second argument): step drawing not checked")
         check_tidy(full, tmp)

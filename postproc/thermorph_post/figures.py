@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import re
 import sys
 from pathlib import Path
 
@@ -26,8 +27,8 @@ import numpy as np
 from matplotlib.ticker import MaxNLocator, NullLocator
 
 from thermorph_post.budget import rank_segments, window_budget
-from thermorph_post.results import (Results, ResultsError, faces_from_centres, is_default_event_label,
-                                    parse_time)
+from thermorph_post.results import (ZERO_CELSIUS_IN_KELVIN, Results, ResultsError, faces_from_centres,
+                                    is_default_event_label, parse_time)
 from thermorph_post.style import (ALL_IN_WATER_SHADE, BODY_STYLE, DEFAULT_STYLE, ENVIRONMENT_STYLE, FORMATS, LINE_CYCLE, MAP_COLOURS,
                                   MARKER_CYCLE, PNG_DPI, STYLES, add_footer, body_flow_scale, case_title,
                                   channel_styles, finish, format_time, legend_outside, length_scale, letters,
@@ -786,6 +787,55 @@ def _overlay_series(res: Results, key: str):
     return values, f"{seg_name}: mean {'tissue' if stat == 'mean' else 'surface'} temperature"
 
 
+def flat_case(case: dict, prefix: str = "") -> dict:
+    """A resolved case as {key path: value}: tables by key, arrays of tables by their `name` (segments) or index
+    (events), so that two runs' cases compare key by key."""
+    flat = {}
+    for key, value in case.items():
+        path = f"{prefix}{key}"
+        if isinstance(value, dict):
+            flat.update(flat_case(value, path + "."))
+        elif isinstance(value, list) and value and all(isinstance(v, dict) for v in value):
+            named = all(isinstance(v.get("name"), str) for v in value)
+            for k, v in enumerate(value):
+                flat.update(flat_case(v, f"{path}.{v['name'] if named else k}."))
+        else:
+            flat[path] = value
+    return flat
+
+
+#: Resolved-case keys drawn in °C in the overlay's list of differences (the resolved case holds kelvin).
+_KELVIN_KEYS = re.compile(r"(temperature|set_point)$")
+
+
+def _case_value_text(key: str, value) -> str:
+    if value is None:
+        return "not set"
+    if isinstance(value, float) and _KELVIN_KEYS.search(key):
+        return f"{value - ZERO_CELSIUS_IN_KELVIN:.6g} °C"
+    if isinstance(value, float):
+        return f"{value:.6g}"
+    return str(value)
+
+
+def case_differences(runs, labels, limit: int = 8) -> str:
+    """Footer note naming the keys in which the runs' resolved cases differ, with each run's value (what the overlay
+    compares: a new user otherwise sees only file names); "" when they agree or a case is missing."""
+    cases = [flat_case(r.case) for r in runs]
+    if len(runs) < 2 or not all(cases):
+        return ""
+    keys = sorted({k for c in cases for k in c} - {"title"})
+    differ = [k for k in keys if len({repr(c.get(k)) for c in cases}) > 1]
+    if not differ:
+        return "The runs' resolved cases are identical."
+    if len(differ) > limit:   # different cases, not variants of one: the keys would fill the figure
+        return (f"The runs' resolved cases differ in {len(differ)} keys (e.g. {', '.join(differ[:4])}): "
+                "`thermorph check --resolved` lists each.")
+    shown = [f"{k}: " + ", ".join(f"{lab} {_case_value_text(k, c.get(k))}" for c, lab in zip(cases, labels))
+             for k in differ]
+    return f"The runs differ in (resolved cases, SI units, temperatures in °C): {'; '.join(shown)}."
+
+
 def overlay_figure(results, labels=None, keys=DEFAULT_OVERLAY, units: str = "physiology",
                    style: str = DEFAULT_STYLE, caution: bool = True):
     """Several runs on the same axes: one panel per key (core, blood, skin, SEGMENT.mean, SEGMENT.surface),
@@ -837,6 +887,9 @@ def overlay_figure(results, labels=None, keys=DEFAULT_OVERLAY, units: str = "phy
             notes = ["Runs: " + "; ".join(f"{lab} = {r.path.name}" + (f" ({case_title(r)})" if len(titles) > 1 else "")
                                           for r, lab in zip(runs, labels))
                      + (f". Case: {titles.pop()}." if len(titles) == 1 else ".")]
+            differences = case_differences(runs, labels)
+            if differences:
+                notes.append(differences)
             if incomplete:
                 notes.append(f"Incomplete (complete = 0): {', '.join(incomplete)}.")
             add_footer(fig, notes, caution)

@@ -4,8 +4,8 @@
                            [--heatmap] [--fix PARAM=VALUE ...] [--logx|--linx] [--logy] [--out DIR]
                            [--formats pdf,svg,png] [--style single|double] [--dpi N] [--no-caution]
 
-One parameter: the metric against it. Two: the metric against --x (default: the first numeric swept
-parameter) with one line per value of the other (--lines), or with --heatmap a colour map over both. More
+One parameter: the metric against it. Two: the metric against --x (default: the numeric swept parameter
+with the most values) with one line per value of the other (--lines), or with --heatmap a colour map over both. More
 than two: fix the others with --fix PARAM=VALUE (a value as in the table, e.g. --fix environment.temperature=20).
 Failed runs leave gaps. Axes are labelled with readable names and units (PARAMETER_NAMES, metric names built
 from the key), log-spaced parameters (a `log:` range) get a log axis, legends sit outside the data. A size
@@ -290,6 +290,21 @@ def _missing_note(sweep: Sweep, x: str, mask, y: str | None = None) -> str:
             "(their errors: /runs/error in the sweep file).")
 
 
+#: A linear parameter axis with at most this many swept values has its ticks at those values.
+MAX_VALUE_TICKS = 8
+
+
+def default_x(sweep: Sweep, free: list[str]) -> str | None:
+    """The parameter on the horizontal axis when --x is not given: the numeric free parameter with the most distinct
+    values (ties: the first in sweep order), so that a line joins many points and the few values of the other make
+    the lines (the README's bill lengths 6 to 24 cm drawn along x, shunts closed and open as two lines, not four
+    lines from closed to open); a free non-numeric one when none is numeric; None when every parameter is fixed."""
+    numeric = [n for n in free if sweep.numeric(n)]
+    if not numeric:
+        return free[0] if free else None
+    return max(numeric, key=lambda n: (len(np.unique(sweep.values(n))), -numeric.index(n)))
+
+
 def _title(sweep: Sweep) -> str:
     return sweep.title if sweep.complete else "INCOMPLETE SWEEP: " + sweep.title
 
@@ -324,6 +339,10 @@ def line_figure(sweep: Sweep, metric: str, x: str, lines: str | None, mask, logx
         if logx:
             ax.set_xscale("log")
             _log_ticks(ax.xaxis, xs_all[mask])
+        elif x != "body.mass" and sweep.numeric(x):
+            swept = np.unique(xs_all[mask][np.isfinite(xs_all[mask])])
+            if 1 < len(swept) <= MAX_VALUE_TICKS:   # ticks at the swept values, not at 7.5, 10, 12.5 between them
+                ax.set_xticks(swept, [f"{v:g}" for v in swept])
         if logy:
             ax.set_yscale("log")
         if lines is not None:
@@ -415,7 +434,8 @@ def main(argv=None) -> int:
     parser = argparse.ArgumentParser(prog="thermorph-sweep-figure", description=__doc__.split("\n\n")[0])
     parser.add_argument("table", type=Path, help="sweep table (HDF5) written by thermorph sweep")
     parser.add_argument("--metric", action="append", required=True, help="metric to plot (repeatable)")
-    parser.add_argument("--x", help="parameter on the horizontal axis (default: the first numeric swept one); "
+    parser.add_argument("--x", help="parameter on the horizontal axis (default: the numeric swept one with the most "
+                                     "values, the first of those); "
                                     "body.mass for a size series when the table allows it")
     parser.add_argument("--lines", help="parameter with one line per value (default: the other one of two)")
     parser.add_argument("--heatmap", action="store_true", help="colour map over two parameters")
@@ -448,7 +468,7 @@ def main(argv=None) -> int:
                 raise SweepError(f"{p}: not a swept parameter (parameters: {', '.join(sweep.names)})")
         fixed = {f.partition("=")[0] for f in args.fix}
         free = [n for n in sweep.names if n not in fixed]
-        x = args.x or next((n for n in free if sweep.numeric(n)), free[0] if free else None)
+        x = args.x or default_x(sweep, [n for n in free if n != args.lines])
         if x is None:
             raise SweepError("every parameter is fixed: leave one for the horizontal axis")
         x_param = "scale.body" if derived_mass else x
