@@ -18,7 +18,8 @@
   installed entry points (thermorph-figures, thermorph-export, thermorph-report, thermorph-sweep-figure)
   run from DIR with the checkout out of reach.
 - With THERMORPH: the overlay's footer names the case keys in which the runs differ; the README sweep draws the
-  bill length along x (the parameter with most values) with ticks at the swept values; the diving example's budget over time keeps metabolism readable beside the dives' spikes (a
+  bill length along x (the parameter with most values) with ticks at the swept values, and its heat map shows
+  every run's dot; the diving example's budget over time keeps metabolism readable beside the dives' spikes (a
   symmetric-log axis, said in the figure), every stored flow inside the axis; the substrate contact stored per segment equals the case's event table and the substrate is
   drawn only while some segment touches (a dive between outputs), a water line equal to it stays visible, an old
   file without the series still draws; a step of the surroundings between two outputs is drawn as a vertical jump at the step's time
@@ -693,6 +694,18 @@ def check_overlay_and_sweep(tmp: Path, exe: str):
                             "segments.bill.vasomotor.shunt", np.ones(8, bool))
     ticks = list(fig.axes[0].get_xticks())
     check(ticks == [6.0, 12.0, 18.0, 24.0], f"README sweep: x ticks {ticks}, expected the swept lengths")
+    # Its heat map (--heatmap): the 8 runs are marked where a reader sees them. Every run of the two shunt settings
+    # lies on the frame (the map ends at the first and last value), where the clipped 2-pt dots were invisible.
+    fig = sweep.heatmap_figure(sw, "segments.bill.heat_flow.convection", "segments.bill.length",
+                               "segments.bill.vasomotor.shunt", np.ones(8, bool))
+    ax = fig.axes[0]
+    runs = [ln for ln in ax.get_lines() if ln.get_label() == "_runs"]
+    marked = runs[0] if runs else None
+    check(marked is not None and np.asarray(marked.get_xdata()).size == 8 and not marked.get_clip_on()
+          and marked.get_markersize() >= 3.0 and marked.get_zorder() > 2,
+          "README sweep heat map: the runs' dots clipped at the frame or too small to see")
+    check(list(ax.get_xticks()) == [6.0, 12.0, 18.0, 24.0] and list(ax.get_yticks()) == [0.0, 1.0],
+          f"README sweep heat map: ticks {list(ax.get_xticks())}, {list(ax.get_yticks())}; expected the swept values")
 
 
 def check_cli_times():

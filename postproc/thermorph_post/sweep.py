@@ -294,6 +294,15 @@ def _missing_note(sweep: Sweep, x: str, mask, y: str | None = None) -> str:
 MAX_VALUE_TICKS = 8
 
 
+def _value_ticks(axis, values):
+    """Ticks of a linear parameter axis at the swept values when there are 2 to MAX_VALUE_TICKS of them (not at 7.5,
+    10, 12.5 between lengths of 6, 12, 18, 24 cm)."""
+    values = np.asarray(values, float)
+    swept = np.unique(values[np.isfinite(values)])
+    if 1 < len(swept) <= MAX_VALUE_TICKS:
+        axis.set_ticks(swept, [f"{v:g}" for v in swept])
+
+
 def default_x(sweep: Sweep, free: list[str]) -> str | None:
     """The parameter on the horizontal axis when --x is not given: the numeric free parameter with the most distinct
     values (ties: the first in sweep order), so that a line joins many points and the few values of the other make
@@ -340,9 +349,7 @@ def line_figure(sweep: Sweep, metric: str, x: str, lines: str | None, mask, logx
             ax.set_xscale("log")
             _log_ticks(ax.xaxis, xs_all[mask])
         elif x != "body.mass" and sweep.numeric(x):
-            swept = np.unique(xs_all[mask][np.isfinite(xs_all[mask])])
-            if 1 < len(swept) <= MAX_VALUE_TICKS:   # ticks at the swept values, not at 7.5, 10, 12.5 between them
-                ax.set_xticks(swept, [f"{v:g}" for v in swept])
+            _value_ticks(ax.xaxis, xs_all[mask])
         if logy:
             ax.set_yscale("log")
         if lines is not None:
@@ -407,7 +414,10 @@ def heatmap_figure(sweep: Sweep, metric: str, x: str, y: str, mask, logx: bool |
         mesh.set_label(metric)
         mesh.thermorph_value_label = label(readable_metric(metric), unit)
         mesh.thermorph_cells = [(xs[i], ys[j], grid[j, i]) for j in range(len(ys)) for i in range(len(xs))]
-        ax.plot(*np.meshgrid(xs, ys), ls="none", marker=".", ms=2, color="white", alpha=0.7, label="_runs")
+        # The runs: white dots with a dark rim, not clipped (with the outer cells cut at the first and last value,
+        # every run of a two-value parameter lies on the frame, where clipped dots of 2 pt vanished).
+        ax.plot(*(g.ravel() for g in np.meshgrid(xs, ys)), ls="none", marker="o", ms=3.5, mfc="white", mec="0.15", mew=0.6,
+                clip_on=False, zorder=5, label="_runs")
         cbar = fig.colorbar(mesh, ax=ax, pad=0.02)
         cbar.set_label(label(readable_metric(metric), unit))
         ax.set_xlabel(label(readable_key(x), sweep.units[x]))
@@ -415,9 +425,13 @@ def heatmap_figure(sweep: Sweep, metric: str, x: str, y: str, mask, logx: bool |
         if logx:
             ax.set_xscale("log")
             _log_ticks(ax.xaxis, xs)
+        else:
+            _value_ticks(ax.xaxis, xs)
         if logy:
             ax.set_yscale("log")
             _log_ticks(ax.yaxis, ys)
+        else:
+            _value_ticks(ax.yaxis, ys)
         ax.set_xlim(edges(xs, logx)[0], edges(xs, logx)[-1])
         ax.set_ylim(edges(ys, logy)[0], edges(ys, logy)[-1])
         panel_title(ax, None, _title(sweep) + "; dots: runs")
