@@ -17,7 +17,8 @@
 - `pip install --target DIR --no-deps --no-build-isolation --no-index ./postproc` works offline and the
   installed entry points (thermorph-figures, thermorph-export, thermorph-report, thermorph-sweep-figure)
   run from DIR with the checkout out of reach.
-- With THERMORPH: the overlay's footer names the case keys in which the runs differ; the README sweep draws the
+- With THERMORPH: the overlay's footer names the case keys in which the runs differ and their common events are
+  shaded; the README sweep draws the
   bill length along x (the parameter with most values) with ticks at the swept values, and its heat map shows
   every run's dot; the diving example's budget over time keeps metabolism readable beside the dives' spikes (a
   symmetric-log axis, said in the figure), every stored flow inside the axis; the substrate contact stored per segment equals the case's event table and the substrate is
@@ -648,17 +649,18 @@ def check_overlay_and_sweep(tmp: Path, exe: str):
     """The overlay and sweep figures as a new user meets them (README). Overlay: two quadruped runs that differ only
     by --set environment.temperature (5 and 15 degC): the footer names that key with each run's value in degC (the
     values given on the command line; before, it named only the files, and the figure did not say how the runs
-    differ). Sweep (README, "Parameter sweeps": shunts 0,1 x bill lengths 6 cm:24 cm:4): by default the bill length
+    differ), and the event both share (a windy spell) is shaded in each panel. Sweep (README, "Parameter sweeps": shunts 0,1 x bill lengths 6 cm:24 cm:4): by default the bill length
     (4 values) is along x and the shunt setting (2 values) makes the lines (before, the first parameter, the shunt,
     was x: four lines from closed to open), ticks at the swept lengths 6, 12, 18, 24 cm (the --vary range; before at
     7.5, 10, ...). Common practice, no source."""
     from thermorph_post import figures, sweep
     runs = []
+    front = 'events=[{ at = "4 min", label = "front", span = "3 min", environment = { speed = "3 m/s" } }]'
     for temp in (5, 15):
         h5 = tmp / f"quad_{temp}.h5"
         proc = subprocess.run([exe, "run", str(ROOT / "cases" / "quadruped.toml"), "-q", "--set",
                                f'environment.temperature="{temp} degC"', "--set", 'run.duration="10 min"',
-                               "-o", str(h5)], capture_output=True, text=True)
+                               "--set", front, "-o", str(h5)], capture_output=True, text=True)
         check(proc.returncode == 0, f"overlay run at {temp} degC: exit {proc.returncode}\n{proc.stderr[-800:]}")
         runs.append(h5)
     if all(h.is_file() for h in runs):
@@ -666,6 +668,10 @@ def check_overlay_and_sweep(tmp: Path, exe: str):
         footer = " ".join(fig.thermorph_footer.get_text().split())
         check("environment.temperature: cold 5 °C, mild 15 °C" in footer and "Model estimates" in footer,
               f"overlay: the footer does not say how the runs differ: {footer!r}")
+        # The event both runs share (a windy spell from 4 to 7 min) is shaded in every panel, as in one run's figures.
+        shaded = [getattr(ax, "thermorph_events", []) for ax in fig.axes if ax.get_label().startswith("overlay:")]
+        check(bool(shaded) and all(ev == [(240.0, 420.0, "front")] for ev in shaded),
+              f"overlay: the runs' common event not shaded in every panel: {shaded}")
         same = figures.overlay_figure([runs[0], runs[0]], labels=["a", "b"])
         check("resolved cases are identical" in " ".join(same.thermorph_footer.get_text().split()),
               "overlay: two identical runs not said to be identical")

@@ -880,6 +880,12 @@ def overlay_figure(results, labels=None, keys=DEFAULT_OVERLAY, units: str = "phy
             t_hi = max(r.time[-1] for r in runs) / scale[0]
             if t_hi > t_lo:
                 axes[-1].set_xlim(t_lo, t_hi)
+            # Events (dives, a cold front) shaded when every run has the same ones; otherwise said in the footer.
+            events = [r.events() for r in runs]
+            common = all(e == events[0] for e in events) and bool(events[0])
+            if common:
+                for ax in axes:
+                    shade_events(ax, runs[0], scale, label=ax is axes[0])
             axes[-1].set_xlabel(f"Time ({scale[1]})")
             incomplete = [lab for r, lab in zip(runs, labels) if not r.complete]
             suptitle(fig, ("INCOMPLETE RUN — " if incomplete else "") + f"Overlay of {len(runs)} runs")
@@ -887,6 +893,8 @@ def overlay_figure(results, labels=None, keys=DEFAULT_OVERLAY, units: str = "phy
             notes = ["Runs: " + "; ".join(f"{lab} = {r.path.name}" + (f" ({case_title(r)})" if len(titles) > 1 else "")
                                           for r, lab in zip(runs, labels))
                      + (f". Case: {titles.pop()}." if len(titles) == 1 else ".")]
+            if any(events) and not common:
+                notes.append("The runs' labelled events (/events) differ: none shaded.")
             differences = case_differences(runs, labels)
             if differences:
                 notes.append(differences)
