@@ -700,6 +700,10 @@ def check_overlay_and_sweep(tmp: Path, exe: str):
                             "segments.bill.vasomotor.shunt", np.ones(8, bool))
     ticks = list(fig.axes[0].get_xticks())
     check(ticks == [6.0, 12.0, 18.0, 24.0], f"README sweep: x ticks {ticks}, expected the swept lengths")
+    legend = fig.axes[0].get_legend()
+    title = " ".join(legend.get_title().get_text().split()) if legend else ""
+    check("shunts open (0 closed, 1 fully open)" in title,   # cases/REFERENCE.md: open fraction of the shunts
+          f"README sweep: legend title {title!r} does not say what 0 and 1 are")
     # Its heat map (--heatmap): the 8 runs are marked where a reader sees them. Every run of the two shunt settings
     # lies on the frame (the map ends at the first and last value), where the clipped 2-pt dots were invisible.
     fig = sweep.heatmap_figure(sw, "segments.bill.heat_flow.convection", "segments.bill.length",

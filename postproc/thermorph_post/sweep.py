@@ -52,6 +52,15 @@ PARAMETER_NAMES = {
     "run.initial_temperature": "Initial temperature",
     "run.duration": "Simulated time",
 }
+#: Readable names of segment keys whose path words do not say what the number is (cases/REFERENCE.md): the
+#: README's sweep of shunts "0,1" drew a legend "bill: vasomotor shunt" with entries 0 and 1.
+SEGMENT_KEY_NAMES = {
+    "vasomotor.shunt": "shunts open (0 closed, 1 fully open)",
+    "vasomotor.skin_perfusion": "skin perfusion (× resting)",
+    "vasomotor.superficial_return": "share of venous return in superficial veins",
+    "surface.contact_fraction": "share of surface on the substrate",
+    "surface.wetted_fraction": "wet share of exposed surface",
+}
 #: Readable names of the metric quantities thermorph's sweep writes.
 METRIC_QUANTITIES = {
     "core_temperature": "core temperature", "blood_temperature": "blood temperature",
@@ -101,7 +110,8 @@ def readable_key(key: str) -> str:
         return f"{key[6:]}: size factor (lengths ×f)"
     parts = key.split(".")
     if parts[0] == "segments" and len(parts) >= 3:
-        return f"{parts[1]}: {_words('.'.join(parts[2:]))}"
+        rest = ".".join(parts[2:])
+        return f"{parts[1]}: {SEGMENT_KEY_NAMES.get(rest, _words(rest))}"
     if parts[0] == "environment":
         return f"Surroundings: {_words('.'.join(parts[1:]))}"
     words = _words(key)
