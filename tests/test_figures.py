@@ -204,7 +204,8 @@ def check_figures(tmp: Path):
     ax = fig.axes[0]
     check(ax.get_xscale() == "log", f"log range drawn on a {ax.get_xscale()} axis")
     check(ax.get_xlabel().startswith("Body size factor"), f"readable x label {ax.get_xlabel()!r}")
-    check(ax.get_ylabel() == "Convection heat flow, whole body (W)", f"readable y label {ax.get_ylabel()!r}")
+    check(" ".join(ax.get_ylabel().split()) == "Convection heat flow, whole body (W; positive into the body)",
+          f"readable y label {ax.get_ylabel()!r}")
     mass_rows = {round(r[2], 12): r[4] for r in style.source_data_rows(fig) if r[1] == "body mass"}
     for fx in np.unique(f_col):
         check(abs(mass_rows.get(round(fx, 12), np.nan) - 3.0 * fx ** 3) < 1e-12, f"body mass at f = {fx}")
@@ -700,6 +701,17 @@ def check_overlay_and_sweep(tmp: Path, exe: str):
                             "segments.bill.vasomotor.shunt", np.ones(8, bool))
     ticks = list(fig.axes[0].get_xticks())
     check(ticks == [6.0, 12.0, 18.0, 24.0], f"README sweep: x ticks {ticks}, expected the swept lengths")
+    ylabel = " ".join(fig.axes[0].get_ylabel().split())
+    check(ylabel == "bill: convection heat flow (W; positive into the body)",   # README, "Results": flows into the body
+          f"README sweep: y label {ylabel!r} does not give the sign of the (negative) heat flows")
+    from thermorph_post.style import text_outside
+    for preset in ("single", "double"):   # the longer labels still fit (no text leaves the figure)
+        for kind, made in (("lines", sweep.line_figure(sw, "segments.bill.heat_flow.convection", "segments.bill.length",
+                                                       "segments.bill.vasomotor.shunt", np.ones(8, bool), style=preset)),
+                           ("map", sweep.heatmap_figure(sw, "segments.bill.heat_flow.convection", "segments.bill.length",
+                                                        "segments.bill.vasomotor.shunt", np.ones(8, bool), style=preset))):
+            outside = text_outside(made)
+            check(not outside, f"README sweep {kind} at {preset}: text outside the figure: {outside}")
     legend = fig.axes[0].get_legend()
     title = " ".join(legend.get_title().get_text().split()) if legend else ""
     check("shunts open (0 closed, 1 fully open)" in title,   # cases/REFERENCE.md: open fraction of the shunts

@@ -500,6 +500,7 @@ def source_data_rows(fig) -> list[list]:
         # A time axis keeps its unit in the data even where a shared axis hides the label.
         xl = ax.get_xlabel() or (f"Time ({scale[1]})" if scale else getattr(ax, "thermorph_xlabel", ""))
         yl = ax.get_ylabel() or getattr(ax, "thermorph_ylabel", "")
+        xl, yl = " ".join(xl.split()), " ".join(yl.split())   # a label broken to fit its panel: one line in the CSV
         cats = getattr(ax, "thermorph_categories", None)
 
         def category(x):

@@ -88,6 +88,25 @@ def pretty_unit(unit: str) -> str:
     return re.sub(r"(?<=[a-zA-Z])3\b", "³", unit)
 
 
+def metric_label(metric: str, unit: str) -> str:
+    """Axis label of a metric: its readable name and unit, and for a heat flow the sign convention ("W; positive
+    into the body"), since a loss reads as a negative number (the bill that sheds heat: -0.4 to -2.3 W)."""
+    u = pretty_unit(unit)
+    if re.search(r"(^|\.)heat_flow\.", metric) and not metric.endswith(".storage"):
+        return f"{readable_metric(metric)} ({u + '; ' if u else ''}positive into the body)"
+    return label(readable_metric(metric), unit)
+
+
+#: An axis label (a metric's, a parameter's) longer than this breaks before its last parenthesis, so that it fits
+#: the height of a single-column panel or colour bar ("... heat flow" / "(W; positive into the body)").
+LONG_LABEL = 36
+
+
+def _broken(text: str) -> str:
+    cut = text.rfind(" (")
+    return text[:cut] + "\n" + text[cut + 1:] if len(text) > LONG_LABEL and cut > 0 else text
+
+
 def label(name: str, unit: str) -> str:
     """Axis label 'Name (unit)' (just the name without a unit)."""
     u = pretty_unit(unit)
@@ -354,7 +373,7 @@ def line_figure(sweep: Sweep, metric: str, x: str, lines: str | None, mask, logx
             ax.plot(xs[order], ys[order], color=LINE_CYCLE[i % len(LINE_CYCLE)], marker=MARKER_CYCLE[i % len(MARKER_CYCLE)],
                     markersize=3.5, linewidth=1.2, label=name)
         ax.set_xlabel(label(xname, xunit))
-        ax.set_ylabel(label(readable_metric(metric), unit))
+        ax.set_ylabel(_broken(metric_label(metric, unit)))
         if logx:
             ax.set_xscale("log")
             _log_ticks(ax.xaxis, xs_all[mask])
@@ -422,16 +441,16 @@ def heatmap_figure(sweep: Sweep, metric: str, x: str, y: str, mask, logx: bool |
         mesh = ax.pcolormesh(edges(xs, logx), edges(ys, logy), np.ma.masked_invalid(grid), cmap=MAP_COLOURS,
                              shading="flat")
         mesh.set_label(metric)
-        mesh.thermorph_value_label = label(readable_metric(metric), unit)
+        mesh.thermorph_value_label = metric_label(metric, unit)
         mesh.thermorph_cells = [(xs[i], ys[j], grid[j, i]) for j in range(len(ys)) for i in range(len(xs))]
         # The runs: white dots with a dark rim, not clipped (with the outer cells cut at the first and last value,
         # every run of a two-value parameter lies on the frame, where clipped dots of 2 pt vanished).
         ax.plot(*(g.ravel() for g in np.meshgrid(xs, ys)), ls="none", marker="o", ms=3.5, mfc="white", mec="0.15", mew=0.6,
                 clip_on=False, zorder=5, label="_runs")
         cbar = fig.colorbar(mesh, ax=ax, pad=0.02)
-        cbar.set_label(label(readable_metric(metric), unit))
+        cbar.set_label(_broken(metric_label(metric, unit)))
         ax.set_xlabel(label(readable_key(x), sweep.units[x]))
-        ax.set_ylabel(label(readable_key(y), sweep.units[y]))
+        ax.set_ylabel(_broken(label(readable_key(y), sweep.units[y])))
         if logx:
             ax.set_xscale("log")
             _log_ticks(ax.xaxis, xs)
