@@ -753,7 +753,7 @@ void Body::addPerfusionModulators(Circulation& c) {
     bool superficialPossible = s.vasomotor.superficialReturn > 0.0;
     for (const EventSpec& e : case_.events)
       for (const VasomotorTarget& v : e.vasomotor)
-        if ((v.segment == "all" || v.segment == s.name) && v.superficialReturn && *v.superficialReturn > 0.0)
+        if (targetsSegment(v.segment, s.name) && v.superficialReturn && *v.superficialReturn > 0.0)
           superficialPossible = true;
     for (const LayerSpec& l : s.layers) {
       const TissueRole role = case_.tissues.at(l.tissue).role;

@@ -757,7 +757,7 @@ void checkOverriddenByTimeline(const TableView& top, Case& c, const std::vector<
       if (key != "segments." + s.name + ".surface.contact_fraction") continue;
       for (const EventSpec& e : c.events) {
         if (std::none_of(e.contact.begin(), e.contact.end(),
-                         [&](const ContactTarget& t) { return t.segment == s.name || t.segment == "all"; }))
+                         [&](const ContactTarget& t) { return targetsSegment(t.segment, s.name); }))
           continue;
         if (e.at <= 0.0)
           throw TimelineOverrideError(fmt::format(
@@ -937,7 +937,7 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   c.events = readEvents(reader, top, root, c.run.duration, c.segments);
   for (std::size_t i = 0; i < c.events.size(); ++i) {
     for (const VasomotorTarget& v : c.events[i].vasomotor)
-      if (v.segment != "all" && !names.count(v.segment))
+      if (v.segment != kAllSegments && !names.count(v.segment))
         throw CaseError(fmt::format("{}: events (at {:g} s): vasomotor.{}: no segment of that name (segments: {}, "
                                     "or all)", file, c.events[i].at, v.segment, fmt::join(names, ", ")));
     for (const ControlTarget& t : c.events[i].control) {

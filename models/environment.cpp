@@ -84,7 +84,7 @@ EnvironmentModel::EnvironmentModel(const Case& c, Network& network) : case_(c) {
   for (const EventSpec& e : case_.events)
     for (const ContactTarget& t : e.contact)
       for (Index g = 0; g < case_.segments.size(); ++g)
-        if (t.segment == "all" || t.segment == case_.segments[g].name) {
+        if (targetsSegment(t.segment, case_.segments[g].name)) {
           maxContact_[g] = std::max(maxContact_[g], t.contactFraction);
           contactEvents_[g] = 1;
         }
@@ -129,7 +129,7 @@ void EnvironmentModel::setInterval(std::size_t interval) {
     if (e.medium) medium_ = *e.medium;  // always a step (the reader rejects a ramp)
     for (const ContactTarget& t : e.contact)  // steps ("all" before named segments: the reader's order)
       for (Index g = 0; g < case_.segments.size(); ++g)
-        if (t.segment == "all" || t.segment == case_.segments[g].name) contact_[g] = t.contactFraction;
+        if (targetsSegment(t.segment, case_.segments[g].name)) contact_[g] = t.contactFraction;
     for (const EnvironmentValue& target : e.environment) {
       const std::size_t v = index(target.variable);
       if (complete) {

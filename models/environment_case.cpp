@@ -402,7 +402,7 @@ void readContactEvent(const TableView& view, const std::vector<SegmentSpec>& seg
     const std::string name(key.str());
     TableView t = view.namedChild("surface", name);
     const auto segment = std::find_if(segments.begin(), segments.end(), [&](const SegmentSpec& s) { return s.name == name; });
-    if (name != "all" && segment == segments.end()) {
+    if (name != kAllSegments && segment == segments.end()) {
       std::vector<std::string> names;
       for (const SegmentSpec& s : segments) names.push_back(s.name);
       view.child("surface").fail(name, fmt::format("no segment named \"{}\" (segments: {}, or all)", name,
@@ -416,7 +416,7 @@ void readContactEvent(const TableView& view, const std::vector<SegmentSpec>& seg
                                              e.ramp));
     if (fraction >= 1.0)
       for (const SegmentSpec& s : segments)
-        if (s.coat && (name == "all" || s.name == name))
+        if (s.coat && targetsSegment(name, s.name))
           t.fail("contact_fraction", fmt::format("segment {} has a coat, which needs part of it exposed: below 1 (the "
                                                  "coat over the contact patch conducts to the substrate, the rest "
                                                  "meets the medium)",
@@ -424,7 +424,7 @@ void readContactEvent(const TableView& view, const std::vector<SegmentSpec>& seg
     e.contact.push_back({name, fraction});
   }
   // "all" first: a named segment's value wins within the event (as vasomotor targets).
-  std::stable_partition(e.contact.begin(), e.contact.end(), [](const ContactTarget& c) { return c.segment == "all"; });
+  std::stable_partition(e.contact.begin(), e.contact.end(), [](const ContactTarget& c) { return c.segment == kAllSegments; });
 }
 
 //! The values an event changes, as key paths (before followers are added).

@@ -101,6 +101,14 @@ struct EnvironmentValue {
   bool given = true;
 };
 
+//! The target of an [[events]] vasomotor or surface entry that names every segment.
+inline constexpr std::string_view kAllSegments = "all";
+//! Whether the target of an [[events]] vasomotor or surface entry (VasomotorTarget::segment,
+//! ContactTarget::segment) applies to the segment named `segment`: it names it, or it is "all".
+inline bool targetsSegment(std::string_view target, std::string_view segment) {
+  return target == kAllSegments || target == segment;
+}
+
 //! Vasomotor targets of one event for one segment ("all": every segment).
 struct VasomotorTarget {
   std::string segment;

@@ -615,7 +615,7 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
     double skin = s.vasomotor.skinPerfusion;
     for (const EventSpec& ev : c.events)
       for (const VasomotorTarget& v : ev.vasomotor)
-        if ((v.segment == "all" || v.segment == s.name) && v.skinPerfusion) skin = std::min(skin, *v.skinPerfusion);
+        if (targetsSegment(v.segment, s.name) && v.skinPerfusion) skin = std::min(skin, *v.skinPerfusion);
     double lower = 1.0;
     bool local = false;
     for (const LocalControllerSpec& l : c.control.local)

@@ -74,7 +74,7 @@ void InertKeys::environment() {
       // ... or contact from an [[events]] step (surface = { SEGMENT = { contact_fraction = F } }).
       for (const EventSpec& e : c.events)
         for (const ContactTarget& t : e.contact)
-          if ((t.segment == s.name || t.segment == "all") && t.contactFraction > 0.0)
+          if (targetsSegment(t.segment, s.name) && t.contactFraction > 0.0)
             used[index(V::SubstrateTemperature)] = true;
     }
     // Respiration breathes the air around the animal unless its segment is under water (PhysiologyModel).

@@ -72,7 +72,7 @@ void PhysiologyModel::setInterval(std::size_t interval) {
     const bool complete = e.ramp == 0.0 || (end < case_.run.duration && interval >= upTo(end));
     for (const VasomotorTarget& v : e.vasomotor)
       for (std::size_t g = 0; g < case_.segments.size(); ++g) {
-        if (v.segment != "all" && v.segment != case_.segments[g].name) continue;
+        if (!targetsSegment(v.segment, case_.segments[g].name)) continue;
         if (v.skinPerfusion) moveTrack(skin_[g], *v.skinPerfusion, e, complete);
         if (v.shunt) moveTrack(shunt_[g], *v.shunt, e, complete);
         if (v.superficialReturn) moveTrack(superficial_[g], *v.superficialReturn, e, complete);
