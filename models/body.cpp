@@ -310,7 +310,9 @@ void Body::buildControllers() {
     return network_.controllers.size() - 1;
   };
   const ControlSpec& cs = case_.control;
-  if (cs.vasomotor.present) {
+  // No states for a body-wide vasomotor controller that no segment follows (every skin and shunt under local
+  // control): they would drive nothing and still take part in the integrator's error test.
+  if (cs.vasomotor.present && bodyWideVasomotorActs(case_)) {
     skinControl_ = add(cs.vasomotor, 0, "vasomotor_skin_perfusion", 1.0, cs.vasomotor.gain, cs.vasomotor.lower,
                        cs.vasomotor.upper, 1.0);
     shuntControl_ = add(cs.vasomotor, 0, "vasomotor_shunts", 0.0, cs.vasomotor.shuntGain, 0.0, 1.0, 1.0);

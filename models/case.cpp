@@ -964,8 +964,14 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   // Keys the case gives that have no effect in it (models/inert_keys.hpp): a warning each, naming where.
   // Given-ness of the values in the tables where a key can be without effect (the rest is not asked: a sweep loads
   // the case once per run).
-  for (const char* table : {"environment", "control", "body", "circulation", "tissues"})
+  for (const char* table : {"environment", "control", "body", "circulation", "tissues", "sweep"})
     if (const toml::node* n = root.get(table)) CaseReader::collectGiven(*n, table, c.given);
+  if (const toml::array* events = root.get("events") ? root.get("events")->as_array() : nullptr)
+    for (std::size_t i = 0; i < events->size(); ++i)
+      if (const toml::table* e = (*events)[i].as_table())
+        for (const char* table : {"vasomotor", "metabolism"})
+          if (const toml::node* n = e->get(table))
+            CaseReader::collectGiven(*n, "events." + CaseReader::elementLabel((*events)[i], i) + "." + table, c.given);
   for (std::size_t i = 0; i < segArray.size(); ++i)
     for (const char* table : {"surface", "vasomotor"})
       if (const toml::node* n = segArray[i].as_table()->get(table))
@@ -1087,6 +1093,21 @@ Case loadCase(const std::string& path, const std::vector<std::string>& overrides
   std::stringstream buffer;
   buffer << in.rdbuf();
   return loadCaseFromString(buffer.str(), path, overrides);
+}
+
+bool followsBodyWideVasomotor(const Case& c, std::size_t g) {
+  const SegmentSpec& s = c.segments[g];
+  for (const LocalControllerSpec& l : c.control.local)
+    if (std::find(l.segments.begin(), l.segments.end(), s.name) != l.segments.end()) return false;
+  if (s.vessels.shuntFlowMax > 0.0) return true;
+  return std::any_of(s.layers.begin(), s.layers.end(),
+                     [&](const LayerSpec& l) { return c.tissues.at(l.tissue).role == TissueRole::Skin; });
+}
+
+bool bodyWideVasomotorActs(const Case& c) {
+  for (std::size_t g = 0; g < c.segments.size(); ++g)
+    if (followsBodyWideVasomotor(c, g)) return true;
+  return false;
 }
 
 std::string resolvedCaseToml(const Case& c) {

@@ -259,6 +259,14 @@ Case loadCaseFromString(const std::string& text, const std::string& sourceName,
 //! The fully resolved case as TOML text (SI values, every default filled in).
 std::string resolvedCaseToml(const Case& c);
 
+//! Whether segment `g` follows the body-wide [control.vasomotor]: it has a layer of role skin or shunts
+//! (vessels.shunt_flow_max > 0), and no [control.local.NAME] names it. When no segment does, the body-wide
+//! controller drives nothing: Body builds none, the automatic grid does not refine for it, and its keys warn
+//! (models/inert_keys.hpp).
+bool followsBodyWideVasomotor(const Case& c, std::size_t g);
+//! Some segment follows the body-wide [control.vasomotor] (followsBodyWideVasomotor).
+bool bodyWideVasomotorActs(const Case& c);
+
 //! Markdown reference of every case key (generated from the schema).
 std::string caseReferenceMarkdown();
 

@@ -522,7 +522,7 @@ void storageRule(const Case& c, const std::vector<std::vector<Layer>>& layers, s
       for (Index g = 0; g < n; ++g)
         if (c.segments[g].name == name) local[g] = 1;
   const ControlSpec& cs = c.control;
-  if (cs.vasomotor.present && (cs.vasomotor.enabled || named("vasomotor"))) {
+  if (cs.vasomotor.present && bodyWideVasomotorActs(c) && (cs.vasomotor.enabled || named("vasomotor"))) {
     outputs.push_back({cs.vasomotor.gain, cs.vasomotor.upper - cs.vasomotor.lower, all});
     // Its shunts drive a term only where a segment with shunts follows it (not a local controller).
     for (Index g = 0; g < n; ++g)
@@ -616,14 +616,13 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
     for (const EventSpec& ev : c.events)
       for (const VasomotorTarget& v : ev.vasomotor)
         if (targetsSegment(v.segment, s.name) && v.skinPerfusion) skin = std::min(skin, *v.skinPerfusion);
+    // A segment a local controller names follows it (on or off), never the body-wide one.
     double lower = 1.0;
-    bool local = false;
     for (const LocalControllerSpec& l : c.control.local)
-      if (l.enabled && std::find(l.segments.begin(), l.segments.end(), s.name) != l.segments.end()) {
+      if (l.enabled && std::find(l.segments.begin(), l.segments.end(), s.name) != l.segments.end())
         lower = std::min(lower, l.lower);
-        local = true;
-      }
-    if (!local && c.control.vasomotor.present && c.control.vasomotor.enabled) lower = std::min(lower, c.control.vasomotor.lower);
+    if (followsBodyWideVasomotor(c, g) && c.control.vasomotor.present && c.control.vasomotor.enabled)
+      lower = std::min(lower, c.control.vasomotor.lower);
     skin *= lower;
     for (std::size_t i = 0; i < s.layers.size(); ++i) {
       const Layer& L = layers[g][i];

@@ -24,6 +24,8 @@ InertKeys::InertKeys(const Case& c) : case_(c) {
   environment();
   surfaces();
   controllers();
+  vasomotor();
+  metabolism();
   others();
 }
 
@@ -187,12 +189,6 @@ void InertKeys::surfaces() {
       }
     }
     if (!s.coat && s.shape != Shape::Sphere) add(p + "end_coat", fmt::format("segment {} has no coat", s.name));
-    // Shunts open a fraction of shunt_flow_max: without it the opening moves no blood (a new-user trial's
-    // segments.neck.vasomotor.shunt = 1 on a neck without shunts said nothing).
-    if (!(s.vessels.shuntFlowMax > 0.0))
-      add("segments." + s.name + ".vasomotor.shunt",
-          fmt::format("segment {} has no arteriovenous shunts (vessels.shunt_flow_max = 0), so their opening moves no "
-                      "blood", s.name));
     if (s.surface.convection.value_or(c.environment.convection).fixed) {
       const std::string why = fmt::format("segment {} has a fixed convection coefficient (no correlation is used)", s.name);
       add(p + "correlation", why);
@@ -210,14 +206,25 @@ void InertKeys::controllers() {
         if (t.controller == name && t.enabled && *t.enabled) return false;
     return true;
   };
-  auto off = [&](const std::string& name, const std::string& table, std::initializer_list<const char*> keys) {
-    const std::string why = fmt::format("[{}] is off for the whole run (enabled = \"off\" and no [[events]] entry "
-                                        "switches it on)", table);
+  auto off = [&](const std::string& name, const std::string& table, std::initializer_list<const char*> keys,
+                 std::string why = "") {
+    if (why.empty())
+      why = fmt::format("[{}] is off for the whole run (enabled = \"off\" and no [[events]] entry switches it on)",
+                        table);
     controllerOff_[name] = why;
     for (const char* key : keys) add(table + "." + key, why);
   };
   const ControlSpec& k = c.control;
-  if (k.vasomotor.present && offThroughout("vasomotor", k.vasomotor.enabled))
+  // The body-wide vasomotor controller acts on the skin and shunts of the segments no local controller names; with
+  // none left it drives nothing and is not built (Body::buildControllers), so even `enabled` has no effect.
+  if (k.vasomotor.present && !bodyWideVasomotorActs(c))
+    off("vasomotor", "control.vasomotor",
+        {"signal", "set_point", "gain", "min", "max", "shunt_gain", "time_constant", "enabled"},
+        c.control.local.empty()
+            ? "no segment has a layer of role skin or shunts (vessels.shunt_flow_max > 0) for it to act on"
+            : "every segment with a layer of role skin or shunts (vessels.shunt_flow_max > 0) follows a "
+              "[control.local.NAME] instead, so [control.vasomotor] acts on none");
+  else if (k.vasomotor.present && offThroughout("vasomotor", k.vasomotor.enabled))
     off("vasomotor", "control.vasomotor", {"signal", "set_point", "gain", "min", "max", "shunt_gain", "time_constant"});
   if (k.shivering.present && offThroughout("shivering", k.shivering.enabled))
     off("shivering", "control.shivering", {"signal", "set_point", "gain", "max_power", "time_constant"});
@@ -230,6 +237,71 @@ void InertKeys::controllers() {
       off(l.name, "control.local." + l.name, {"signal", "set_point", "gain", "min", "max", "shunt_gain", "time_constant"});
 }
 
+void InertKeys::vasomotor() {
+  const Case& c = case_;
+  // Skin perfusion multiplies the perfusion of the segment's skin layers only (PhysiologyModel::value, Kind::Perfusion
+  // with `skin`); a shunt opening is a fraction of vessels.shunt_flow_max (Body::addPerfusionModulators). A new-user
+  // trial's segments.neck.vasomotor.shunt = 1 on a neck without shunts said nothing.
+  const std::size_t n = c.segments.size();
+  std::vector<std::string> noSkin(n), noShunts(n);
+  for (std::size_t g = 0; g < n; ++g) {
+    const SegmentSpec& s = c.segments[g];
+    if (std::none_of(s.layers.begin(), s.layers.end(), [&](const LayerSpec& l) {
+          const TissueProperties& t = c.tissues.at(l.tissue);
+          return t.role == TissueRole::Skin && t.perfusion > 0.0;
+        })) {
+      noSkin[g] = fmt::format("segment {} has no perfused skin (no layer whose tissue has role skin and perfusion > "
+                              "0), so the multiplier scales no blood flow", s.name);
+      add("segments." + s.name + ".vasomotor.skin_perfusion", noSkin[g]);
+    }
+    if (!(s.vessels.shuntFlowMax > 0.0)) {
+      noShunts[g] = fmt::format("segment {} has no arteriovenous shunts (vessels.shunt_flow_max = 0), so their opening "
+                                "moves no blood", s.name);
+      add("segments." + s.name + ".vasomotor.shunt", noShunts[g]);
+    }
+  }
+  // The same targets in [[events]] (events.N.vasomotor.SEGMENT.KEY): "all" has no effect when none of the segments
+  // can take it.
+  auto target = [&](const std::string& segment, const std::vector<std::string>& why,
+                    const char* none) -> std::optional<std::string> {
+    if (segment == kAllSegments) {
+      if (std::any_of(why.begin(), why.end(), [](const std::string& w) { return w.empty(); })) return std::nullopt;
+      return std::string(none);
+    }
+    for (std::size_t g = 0; g < n; ++g)
+      if (c.segments[g].name == segment && !why[g].empty()) return why[g];
+    return std::nullopt;
+  };
+  for (const EventSpec& e : c.events)
+    for (const VasomotorTarget& v : e.vasomotor) {
+      const std::string path = e.source + ".vasomotor." + v.segment + ".";
+      if (auto why = target(v.segment, noSkin, "no segment has perfused skin (a layer whose tissue has role skin and "
+                                               "perfusion > 0), so the multiplier scales no blood flow"))
+        add(path + "skin_perfusion", *why);
+      if (auto why = target(v.segment, noShunts, "no segment has arteriovenous shunts (vessels.shunt_flow_max = 0 on "
+                                                 "every one), so their opening moves no blood"))
+        add(path + "shunt", *why);
+    }
+}
+
+void InertKeys::metabolism() {
+  const Case& c = case_;
+  // Activity and hypometabolism multiply the tissues' metabolic heat (Body::addMetabolicModulation) and, through the
+  // basal rate, the respiratory loss (PhysiologyModel::respiratoryLoss): nothing when no tissue produces heat.
+  for (const SegmentSpec& s : c.segments) {
+    for (const LayerSpec& l : s.layers)
+      if (c.tissues.at(l.tissue).metabolicHeat > 0.0) return;
+    if (s.coat && c.tissues.at(s.coat->material).metabolicHeat > 0.0) return;
+  }
+  const std::string why = "no tissue of the body produces metabolic heat (metabolic_heat = 0 in the tissue of every "
+                          "layer), so there is no metabolism to multiply";
+  add("body.activity", why);
+  for (const EventSpec& e : c.events) {
+    if (e.activity) add(e.source + ".metabolism.activity", why);
+    if (e.hypometabolism) add(e.source + ".metabolism.hypometabolism", why);
+  }
+}
+
 void InertKeys::others() {
   const Case& c = case_;
   if (c.body.respiratorySegment.empty()) {
@@ -240,6 +312,11 @@ void InertKeys::others() {
         add("body.exhaled_temperature", fmt::format("the respiratory segment {} is in water for the whole run (no "
                                                     "breathing under water)", c.body.respiratorySegment));
   }
+  // A steady sweep reports each run's steady state, whatever the window (drivers/sweep_plan.cpp: the case's mode
+  // cannot be turned back to transient from the command line).
+  if (c.sweep.steady)
+    add("sweep.window", "sweep.mode = \"steady\": each run reports its steady state, so there is no window to "
+                        "average over");
   bool bradycardia = false;
   for (const EventSpec& e : c.events) bradycardia = bradycardia || e.bradycardia.has_value();
   if (!bradycardia)

@@ -34,6 +34,8 @@ class InertKeys {
   void environment();
   void surfaces();
   void controllers();
+  void vasomotor();
+  void metabolism();
   void others();
   void add(const std::string& path, std::string why) { reasons_.emplace(path, std::move(why)); }
   //! The entry of `path` or of the nearest table above it, or reasons_.end().

@@ -89,4 +89,60 @@ expect2 "the key has no effect in this case" \
   sensitivity bare.toml --set environment.air_temperature="0 degC" --method morris --param "environment.air_temperature=-10 degC:10 degC" -N 2 -o out.h5 -q
 expect2 "--param environment.air_temperature: the key has no effect in this case" \
   uncertainty bare.toml --param "environment.air_temperature[degC]=normal:10:2" --samples 4 -o out.h5 -q
+
+# 4. [[events]] vasomotor and metabolism targets that cannot act (the head has no skin; no segment has shunts), and
+#    the body-wide vasomotor controller when every skin follows a local one: warned at their line and column, and
+#    refused as sweep, fit and sensitivity parameters.
+cp bare.toml events.toml
+cat >> events.toml <<'TOML'
+[control.vasomotor]
+gain = "2 1/K"
+[control.local.trunk]
+segments = "trunk"
+[[events]]
+at = "2 min"
+vasomotor = { head = { skin_perfusion = 0.2 } }
+metabolism = { activity = 2 }
+TOML
+line=$(grep -n 'head = { skin_perfusion' events.toml | cut -d: -f1)
+column=$(awk -v n="$line" 'NR == n { print index($0, "0.2") }' events.toml)  # of the value, as the file has it
+"$exe" check events.toml > /dev/null 2> events.err || fail "check events exit $?: $(cat events.err)"
+grep -q "^warning: events.toml:$line:$column: events.0.vasomotor.head.skin_perfusion has no effect: segment head has no perfused skin" events.err ||
+  fail "no skin_perfusion warning at line $line: $(cat events.err)"
+grep -q "^warning: events.toml:[0-9]*:8: control.vasomotor.gain has no effect: every segment with a layer of role skin" events.err ||
+  fail "no body-wide controller warning: $(cat events.err)"
+grep -q 'metabolism.activity has no effect' events.err && fail "a metabolism event that acts warns: $(cat events.err)"
+expect2 "--vary events.0.vasomotor.head.skin_perfusion: the key has no effect in this case" \
+  sweep events.toml --vary "events.0.vasomotor.head.skin_perfusion=0.2,2" -o out.csv -q
+expect2 "--free control.vasomotor.gain=0.5 1/K:4 1/K: the key has no effect in this case" \
+  fit events.toml --data obs.csv --free "control.vasomotor.gain=0.5 1/K:4 1/K" --start "control.vasomotor.gain=1 1/K" -o out.h5 -q
+expect2 "the key has no effect in this case" \
+  sensitivity events.toml --method morris --param "events.0.vasomotor.head.skin_perfusion=0.2:2" -N 2 -o out.h5 -q
+expect2 "the key has no effect in this case" \
+  sensitivity events.toml --set 'tissues.muscle.metabolic_heat="0 W/m3"' --set 'tissues.skin.metabolic_heat="0 W/m3"' \
+  --method morris --param "events.0.metabolism.activity=1:3" -N 2 -o out.h5 -q
+
+# 5. [sweep] window of a steady sweep: warned; two windows give the same table, and in a transient sweep different.
+for mode in steady transient; do
+  for window in "1 min:2 min" "5 min:10 min"; do
+    cp bare.toml win.toml
+    printf '[sweep]\nmode = "%s"\nwindow = "%s"\n' "$mode" "$window" >> win.toml
+    "$exe" sweep win.toml --vary "environment.temperature=5 degC,15 degC" -o "$mode-${window%% *}.csv" -q > /dev/null 2> win.err ||
+      fail "sweep $mode $window: exit $?: $(cat win.err)"
+    if [[ $mode == steady ]]; then
+      grep -q "win.toml:$(wc -l < win.toml):$(awk 'END { print index($0, "\"") }' win.toml): sweep.window has no effect: sweep.mode = \"steady\"" win.err ||
+        fail "no sweep.window warning: $(cat win.err)"
+    else
+      grep -q 'sweep.window has no effect' win.err && fail "a transient sweep's window warns: $(cat win.err)"
+    fi
+  done
+done
+"$python" - <<'PY' || fail "sweep tables"
+import csv
+def rows(name):  # every column but the warnings (which name the window's line)
+    with open(name) as f:
+        return [[v for k, v in r.items() if k != "warnings"] for r in csv.DictReader(f)]
+assert rows("steady-1.csv") == rows("steady-5.csv"), "steady sweeps with two windows differ"
+assert rows("transient-1.csv") != rows("transient-5.csv"), "transient sweeps with two windows agree"
+PY
 echo "e2e_inert: ok"

@@ -280,3 +280,134 @@ TEST_CASE("No shipped case warns of a key with no effect after its resolved text
     CHECK(inertWarnings(again).size() <= inertWarnings(c).size());
   }
 }
+
+namespace {
+
+//! "FILE:LINE:COLUMN" of the first `value` after `key` in the case text: the position the loader names, counted
+//! here from the text itself (lines and columns from 1).
+std::string positionOf(const std::string& text, const std::string& key, const std::string& value) {
+  const std::size_t at = text.find(value, text.find(key));
+  REQUIRE(at != std::string::npos);
+  const std::size_t lineStart = text.rfind('\n', at) + 1;  // npos + 1 = 0 on the first line
+  const auto line = std::count(text.begin(), text.begin() + static_cast<std::ptrdiff_t>(at), '\n') + 1;
+  return "inert.toml:" + std::to_string(line) + ":" + std::to_string(at - lineStart + 1);
+}
+
+}  // namespace
+
+TEST_CASE("Vasomotor targets of [[events]] on a segment without skin or shunts warn; where they can act they act",
+          "[case][inert]") {
+  // The swimmer's head has no skin layer (muscle only) and no segment has shunts (vessels.shunt_flow_max = 0).
+  const std::string text = swimmer("", "", R"toml(
+[[events]]
+at = "2 min"
+vasomotor = { head = { skin_perfusion = 0.2 }, trunk = { shunt = 1, skin_perfusion = 0.3 } }
+[[events]]
+at = "4 min"
+vasomotor = { all = { shunt = 0.5 } }
+)toml");
+  const Case c = loadCaseFromString(text, "inert.toml");
+  const std::vector<std::string> w = inertWarnings(c);
+  CHECK(mentions(w, positionOf(text, "head = {", "0.2") +
+                        ": events.0.vasomotor.head.skin_perfusion has no effect: segment head has no perfused skin"));
+  CHECK(mentions(w, positionOf(text, "trunk = {", "1,") +
+                        ": events.0.vasomotor.trunk.shunt has no effect: segment trunk has no arteriovenous shunts"));
+  CHECK(mentions(w, positionOf(text, "all = {", "0.5") +
+                        ": events.1.vasomotor.all.shunt has no effect: no segment has arteriovenous shunts"));
+  CHECK_FALSE(mentions(w, "trunk.skin_perfusion"));  // the trunk has skin
+  CHECK(w.size() == 3);
+  const InertKeys inert(c);
+  CHECK(inert.reason("events.0.vasomotor.head.skin_perfusion"));
+  CHECK(inert.reason("events.1.vasomotor.all.shunt"));
+  CHECK_FALSE(inert.reason("events.0.vasomotor.trunk.skin_perfusion"));
+  // No effect: other values give the same temperatures bit for bit ...
+  const std::vector<double> base = finalTemperatures(text);
+  CHECK(base == finalTemperatures(text, {"events.0.vasomotor.head.skin_perfusion=3", "events.0.vasomotor.trunk.shunt=0",
+                                         "events.1.vasomotor.all.shunt=1"}));
+  // ... while the trunk's skin target acts.
+  CHECK(base != finalTemperatures(text, {"events.0.vasomotor.trunk.skin_perfusion=3"}));
+  SECTION("with shunts on the trunk the openings act and do not warn") {
+    const std::vector<std::string> flow{"segments.trunk.vessels.shunt_flow_max=\"20 mL/min\""};
+    const std::vector<std::string> w2 = inertWarnings(loadCaseFromString(text, "inert.toml", flow));
+    CHECK_FALSE(mentions(w2, ".shunt has no effect"));
+    CHECK(mentions(w2, "events.0.vasomotor.head.skin_perfusion has no effect"));
+    std::vector<std::string> closed = flow, allClosed = flow;
+    closed.push_back("events.0.vasomotor.trunk.shunt=0");
+    allClosed.push_back("events.1.vasomotor.all.shunt=0");
+    const std::vector<double> open = finalTemperatures(text, flow);
+    CHECK(open != finalTemperatures(text, closed));
+    CHECK(open != finalTemperatures(text, allClosed));
+  }
+}
+
+TEST_CASE("Metabolic multipliers on a body whose tissues produce no heat warn; with metabolic heat they act",
+          "[case][inert]") {
+  // The swimmer's tissues as the built-in ones without metabolic heat (values illustrative).
+  std::string text = swimmer("", "", R"toml(
+[body]
+activity = 2
+[tissues.lean]
+base = "muscle"
+metabolic_heat = "0 W/m3"
+[tissues.derm]
+base = "skin"
+metabolic_heat = "0 W/m3"
+[[events]]
+at = "2 min"
+metabolism = { activity = 3, hypometabolism = 0.5 }
+)toml");
+  for (const auto& [from, to] : {std::pair<std::string, std::string>{"tissue = \"muscle\"", "tissue = \"lean\""},
+                                 {"tissue = \"skin\"", "tissue = \"derm\""}})
+    for (std::size_t at; (at = text.find(from)) != std::string::npos;) text.replace(at, from.size(), to);
+  const std::vector<std::string> w = inertWarnings(loadCaseFromString(text, "inert.toml"));
+  CHECK(mentions(w, positionOf(text, "[body]", "2") +
+                        ": body.activity has no effect: no tissue of the body produces metabolic heat"));
+  CHECK(mentions(w, positionOf(text, "metabolism = {", "3") + ": events.0.metabolism.activity has no effect"));
+  CHECK(mentions(w, positionOf(text, "metabolism = {", "0.5") + ": events.0.metabolism.hypometabolism has no effect"));
+  CHECK(w.size() == 3);
+  CHECK(finalTemperatures(text) == finalTemperatures(text, {"body.activity=1", "events.0.metabolism.activity=10",
+                                                            "events.0.metabolism.hypometabolism=1"}));
+  SECTION("muscle that produces heat makes them act") {
+    const std::vector<std::string> heat{"tissues.lean.metabolic_heat=\"700 W/m3\""};
+    CHECK(inertWarnings(loadCaseFromString(text, "inert.toml", heat)).empty());
+    const std::vector<double> warm = finalTemperatures(text, heat);
+    for (const char* change : {"body.activity=1", "events.0.metabolism.activity=10", "events.0.metabolism.hypometabolism=1"}) {
+      INFO(change);
+      std::vector<std::string> changed = heat;
+      changed.push_back(change);
+      CHECK(warm != finalTemperatures(text, changed));
+    }
+  }
+}
+
+TEST_CASE("The body-wide vasomotor controller with every skin under local control warns and drives nothing",
+          "[case][inert][control]") {
+  // Only the trunk has skin (the head is muscle only); [control.local.trunk] takes it (values illustrative).
+  const std::string vasomotor = R"toml(
+[control.vasomotor]
+set_point = "37.5 degC"
+gain = "2 1/K"
+)toml";
+  const std::string local = R"toml(
+[control.local.trunk]
+segments = "trunk"
+set_point = "30 degC"
+)toml";
+  const std::string text = swimmer("", "", vasomotor + local);
+  const std::vector<std::string> w = inertWarnings(loadCaseFromString(text, "inert.toml"));
+  CHECK(mentions(w, positionOf(text, "[control.vasomotor]", "\"2 1/K\"") +
+                        ": control.vasomotor.gain has no effect: every segment with a layer of role skin or shunts"));
+  CHECK(mentions(w, "control.vasomotor.set_point has no effect"));
+  CHECK(w.size() == 2);
+  const Body body(loadCaseFromString(text, "inert.toml"));
+  for (const Controller& k : body.network().controllers) CHECK(k.name.rfind("vasomotor", 0) != 0);  // none built
+  const std::vector<double> base = finalTemperatures(text);
+  CHECK(base == finalTemperatures(text, {"control.vasomotor.gain=\"0.1 1/K\"", "control.vasomotor.enabled=\"off\"",
+                                         "control.vasomotor.set_point=\"36 degC\""}));
+  CHECK(base != finalTemperatures(text, {"control.local.trunk.set_point=\"20 degC\""}));  // the local one acts
+  SECTION("without the local controller the body-wide one acts on the trunk and does not warn") {
+    const std::string alone = swimmer("", "", vasomotor);
+    CHECK(inertWarnings(loadCaseFromString(alone, "inert.toml")).empty());
+    CHECK(finalTemperatures(alone) != finalTemperatures(alone, {"control.vasomotor.gain=\"0.1 1/K\""}));
+  }
+}
