@@ -11,7 +11,9 @@
 #include <pybind11/stl.h>
 
 #include <atomic>
+#include <cctype>
 #include <filesystem>
+#include <optional>
 #include <sstream>
 
 #include <toml++/toml.h>
@@ -69,16 +71,66 @@ toml::table toTable(const py::dict& d) {
   return t;
 }
 
-//! A Case from a TOML path, a TOML string or a dict (a dict or string reads relative files from `base`).
-Case loadAny(const py::object& spec, const std::vector<std::string>& overrides, const std::string& base) {
+//! Names of a case given as a dict or as TOML text in messages, warnings and the results' provenance (the folder
+//! `base` before it: relative files are read from the case's folder).
+constexpr const char* kDictCase = "<case dict>";
+constexpr const char* kTextCase = "<case text>";
+
+//! The source name of a case given as a dict or text: `base`/NAME.
+std::string sourceName(const std::string& base, const char* name) {
+  return (std::filesystem::path(base) / name).string();
+}
+
+//! A message about a case given as a dict or as text, which names it by its source name "BASE/<case dict>" (the
+//! folder for relative files), as "<case dict>" or "<case text>". A dict's lines and columns are those of the TOML
+//! text the dict was written to, which the user never sees, so they go ("<case dict>: environment.air_temperature
+//! has no effect: ..."; the key path follows in every message); a text's are its own and stay.
+std::string caseMessage(std::string message, const std::string& source, const char* name, bool keepPosition) {
+  for (std::size_t at = 0; (at = message.find(source, at)) != std::string::npos;) {
+    std::size_t end = at + source.size();
+    for (int part = 0; part < 2 && !keepPosition; ++part) {  // ":LINE" and ":COLUMN", when both are there
+      std::size_t digits = end + 1;
+      while (digits < message.size() && std::isdigit(static_cast<unsigned char>(message[digits]))) ++digits;
+      if (end < message.size() && message[end] == ':' && digits > end + 1) end = digits;
+      else break;
+    }
+    message.replace(at, end - at, name);
+    at += std::char_traits<char>::length(name);
+  }
+  return message;
+}
+
+//! A case given to the module, and how its messages are to be named.
+struct LoadedCase {
+  Case c;
+  std::string source;  //!< the source name of a dict or text case (messages are rewritten), empty for a file
+  bool dict = false;
+  std::string message(const std::string& m) const {
+    return source.empty() ? m : caseMessage(m, source, dict ? kDictCase : kTextCase, !dict);
+  }
+};
+
+//! A Case from a TOML path, a TOML string or a dict (a dict or string reads relative files from `base`). A string
+//! is named "<case text>" with its own lines and columns; a dict "<case dict>" with key paths only (caseMessage).
+LoadedCase loadAny(const py::object& spec, const std::vector<std::string>& overrides, const std::string& base) {
   if (py::isinstance<py::dict>(spec)) {
     std::ostringstream text;
     text << toTable(spec.cast<py::dict>());
-    return loadCaseFromString(text.str(), (std::filesystem::path(base) / "case.toml").string(), overrides);
+    const std::string source = sourceName(base, kDictCase);
+    try {
+      return {loadCaseFromString(text.str(), source, overrides), source, true};
+    } catch (const CaseError& e) {
+      throw CaseError(caseMessage(e.what(), source, kDictCase, false));
+    }
   }
   const std::string s = py::str(spec).cast<std::string>();
-  if (s.find('\n') == std::string::npos && std::filesystem::is_regular_file(s)) return loadCase(s, overrides);
-  return loadCaseFromString(s, (std::filesystem::path(base) / "case.toml").string(), overrides);
+  if (s.find('\n') == std::string::npos && std::filesystem::is_regular_file(s)) return {loadCase(s, overrides), "", false};
+  const std::string source = sourceName(base, kTextCase);
+  try {
+    return {loadCaseFromString(s, source, overrides), source, false};
+  } catch (const CaseError& e) {
+    throw CaseError(caseMessage(e.what(), source, kTextCase, true));
+  }
 }
 
 py::array_t<double> array(const std::vector<double>& values, std::vector<py::ssize_t> shape) {
@@ -199,8 +251,14 @@ struct Collector {
 
 py::dict runCase(const py::object& spec, const std::vector<std::string>& overrides, bool steady,
                  const std::string& output, const std::string& base) {
-  Case c = loadAny(spec, overrides, base);
-  Body body(c);
+  const LoadedCase loaded = loadAny(spec, overrides, base);
+  std::optional<Body> built;
+  try {
+    built.emplace(loaded.c);
+  } catch (const CaseError& e) {
+    throw CaseError(loaded.message(e.what()));
+  }
+  const Body& body = *built;
   Collector collector(body);
   RunOptions options;
   options.output = output;
@@ -212,7 +270,8 @@ py::dict runCase(const py::object& spec, const std::vector<std::string>& overrid
     py::gil_scoped_release release;
     summary = steady ? runSteady(body, options) : runTransient(body, options);
   }
-  if (!summary.complete) throw SolverError(summary.failure);
+  if (!summary.complete) throw SolverError(loaded.message(summary.failure));
+  for (std::string& w : summary.warnings) w = loaded.message(w);
   return collector.result(summary);
 }
 
@@ -266,7 +325,7 @@ py::dict runSweep(const std::string& casePath, const std::vector<std::string>& v
   for (const RunRow& row : rows) {
     status.append(row.status == RunStatus::Ok ? "ok" : row.status == RunStatus::Failed ? "failed" : "not run");
     errors.append(row.error);
-    warnings.append(joinedWarnings(row));
+    warnings.append(py::cast(row.warnings));  // a list per run (the results file joins them with "; ")
   }
   r["parameters"] = params;
   r["metrics"] = values;
@@ -309,6 +368,6 @@ PYBIND11_MODULE(thermorph, m) {
         py::arg("metrics") = std::vector<std::string>{}, py::arg("zip") = false, py::arg("steady") = false,
         py::arg("window") = "", py::arg("jobs") = 1,
         "Sweep a case file over --vary KEY=SPEC axes (and --scale); returns parameters and metrics per run as "
-        "NumPy arrays (NaN for failed runs), with units, status, errors and each run's warnings (as the results "
-        "file's /runs/warnings).");
+        "NumPy arrays (NaN for failed runs), with units, status, errors and each run's warnings (a list of strings per "
+        "run; the results file's /runs/warnings joins them with \"; \").");
 }

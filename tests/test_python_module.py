@@ -101,12 +101,45 @@ def main():
         check(s["status"] == ["ok", "ok"], f"sweep status {s['status']}")
         with h5py.File(sweep_h5, "r") as f:
             stored = [w.decode() if isinstance(w, bytes) else w for w in f["runs/warnings"][()]]
-        check(s["warnings"] == stored, f"sweep warnings {s['warnings']} != /runs/warnings {stored}")
-        # A row's own warnings: a grid coarser than the guard is named in that run's row only.
+        # Each run's warnings are a list of strings; the results file joins them with "; " (README, Python module).
+        check(all(isinstance(w, list) and all(isinstance(x, str) for x in w) for w in s["warnings"]),
+              f"sweep warnings are not a list of strings per run: {s['warnings']}")
+        check(["; ".join(w) for w in s["warnings"]] == stored, f"sweep warnings {s['warnings']} != /runs/warnings {stored}")
+        # A row's own warnings: a grid coarser than the guard is named in that run's row only, each warning whole.
         coarse = thermorph.sweep(str(case), vary=["segments.forelimb.layers.0.cells=1,4"],
                                  set=["run.duration=10 min"])
-        check("has 1 radial cells" in coarse["warnings"][0] and "radial cells" not in coarse["warnings"][1],
+        check(any("has 1 radial cells" in w for w in coarse["warnings"][0])
+              and not any("radial cells" in w for w in coarse["warnings"][1]),
               f"per-row grid warnings: {coarse['warnings']}")
+        check(all(w.startswith("grid: ") for w in coarse["warnings"][0] if "radial cells" in w),
+              f"a warning split or joined: {coarse['warnings'][0]}")
+
+        # A case given as a dict is named "<case dict>" with the key path (its lines would be those of a TOML text
+        # the user never sees); a TOML string "<case text>" with its own line and column.
+        water = dict(spec, environment=dict(spec["environment"], medium="water", air_temperature="-5 degC"))
+        for seg in water["segments"]:
+            seg.get("surface", {}).pop("immersion", None)
+        r = thermorph.run(water, set=["run.duration=10 min"], base=str(case.parent))
+        inert = [w for w in r["warnings"] if "environment.air_temperature has no effect" in w]
+        check(len(inert) == 1 and inert[0].startswith("<case dict>: environment.air_temperature has no effect: "),
+              f"dict case warning: {r['warnings']}")
+        check(not any("case.toml" in w for w in r["warnings"]), f"a warning names case.toml: {r['warnings']}")
+        try:
+            thermorph.run(dict(spec, run=dict(spec.get("run", {}), duration="-1 h")), base=str(case.parent))
+            check(False, "a bad dict value raised nothing")
+        except thermorph.CaseError as e:
+            check(str(e).startswith("<case dict>: run.duration") and "case.toml" not in str(e),
+                  f"dict case error: {e}")
+        text = case.read_text()
+        line = text[:text.index("[environment]")].count("\n") + 2  # the key below [environment]'s header
+        try:
+            lines = text.splitlines()
+            key = lines[line - 1].split("=")[0].strip()
+            lines[line - 1] = f"{key} = \"hot\""
+            thermorph.run("\n".join(lines) + "\n", base=str(case.parent))
+            check(False, "a bad text value raised nothing")
+        except thermorph.CaseError as e:
+            check(str(e).startswith(f"<case text>:{line}:") and f"environment.{key}" in str(e), f"text case error: {e}")
 
         env = dict(os.environ, PYTHONPATH=module_dir, THERMORPH_EXAMPLE_OUT=str(tmp / "nb"), MPLBACKEND="Agg")
         proc = subprocess.run([sys.executable, str(src / "docs/notebook_example.py")], env=env, capture_output=True,
