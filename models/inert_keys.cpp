@@ -263,10 +263,10 @@ void InertKeys::vasomotor() {
   // The same targets in [[events]] (events.N.vasomotor.SEGMENT.KEY): "all" has no effect when none of the segments
   // can take it.
   auto target = [&](const std::string& segment, const std::vector<std::string>& why,
-                    const char* none) -> std::optional<std::string> {
+                    const char* noSegment) -> std::optional<std::string> {
     if (segment == kAllSegments) {
       if (std::any_of(why.begin(), why.end(), [](const std::string& w) { return w.empty(); })) return std::nullopt;
-      return std::string(none);
+      return std::string(noSegment);
     }
     for (std::size_t g = 0; g < n; ++g)
       if (c.segments[g].name == segment && !why[g].empty()) return why[g];
