@@ -969,7 +969,7 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   if (const toml::array* events = root.get("events") ? root.get("events")->as_array() : nullptr)
     for (std::size_t i = 0; i < events->size(); ++i)
       if (const toml::table* e = (*events)[i].as_table())
-        for (const char* table : {"vasomotor", "metabolism"})
+        for (const char* table : {"vasomotor", "metabolism", "respiration"})
           if (const toml::node* n = e->get(table))
             CaseReader::collectGiven(*n, "events." + CaseReader::elementLabel((*events)[i], i) + "." + table, c.given);
   for (std::size_t i = 0; i < segArray.size(); ++i)

@@ -304,13 +304,20 @@ void InertKeys::metabolism() {
 
 void InertKeys::others() {
   const Case& c = case_;
+  // Respiration (PhysiologyModel::respiratoryLoss): none without a respiratory segment or while it is in water.
+  std::string noBreathing;
   if (c.body.respiratorySegment.empty()) {
-    add("body.exhaled_temperature", "there is no respiration (no [body] respiratory_segment)");
+    noBreathing = "there is no respiration (no [body] respiratory_segment)";
   } else {
     for (std::size_t g = 0; g < c.segments.size(); ++g)
       if (c.segments[g].name == c.body.respiratorySegment && neverInAir_[g])
-        add("body.exhaled_temperature", fmt::format("the respiratory segment {} is in water for the whole run (no "
-                                                    "breathing under water)", c.body.respiratorySegment));
+        noBreathing = fmt::format("the respiratory segment {} is in water for the whole run (no breathing under "
+                                  "water)", c.body.respiratorySegment);
+  }
+  if (!noBreathing.empty()) {
+    add("body.exhaled_temperature", noBreathing);
+    for (const EventSpec& e : c.events)
+      if (e.panting) add(e.source + ".respiration.panting", noBreathing);
   }
   // A steady sweep reports each run's steady state, whatever the window (drivers/sweep_plan.cpp: the case's mode
   // cannot be turned back to transient from the command line).

@@ -411,3 +411,29 @@ set_point = "30 degC"
     CHECK(finalTemperatures(alone) != finalTemperatures(alone, {"control.vasomotor.gain=\"0.1 1/K\""}));
   }
 }
+
+TEST_CASE("A panting multiplier of [[events]] without breathing warns; with a respiratory segment in air it acts",
+          "[case][inert]") {
+  // The swimmer has no respiratory segment; with one (the head, held in air) the ventilation multiplier acts.
+  const std::string text = swimmer("relative_humidity = \"50 %\"\nair_temperature = \"5 degC\"", "", R"toml(
+[[events]]
+at = "2 min"
+respiration = { panting = 3 }
+)toml");
+  const std::vector<std::string> w = inertWarnings(loadCaseFromString(text, "inert.toml"));
+  CHECK(mentions(w, positionOf(text, "respiration = {", "3") +
+                        ": events.0.respiration.panting has no effect: there is no respiration"));
+  CHECK(finalTemperatures(text) == finalTemperatures(text, {"events.0.respiration.panting=1"}));
+  SECTION("breathing from a head in air") {
+    const std::vector<std::string> breathing{"body.respiratory_segment=\"head\"",
+                                             "segments.head.surface.immersion=\"never\""};
+    CHECK_FALSE(mentions(inertWarnings(loadCaseFromString(text, "inert.toml", breathing)), "panting"));
+    std::vector<std::string> calm = breathing;
+    calm.push_back("events.0.respiration.panting=1");
+    CHECK(finalTemperatures(text, breathing) != finalTemperatures(text, calm));
+    // The head held under water: no breathing again.
+    const std::vector<std::string> diving{"body.respiratory_segment=\"head\""};
+    CHECK(mentions(inertWarnings(loadCaseFromString(text, "inert.toml", diving)),
+                   "events.0.respiration.panting has no effect: the respiratory segment head is in water"));
+  }
+}
