@@ -413,6 +413,9 @@ SolverStatistics Integrator::statistics() const {
   s.jacobianNonzeros = static_cast<long>(system_.pattern().nonzeros());
   if (newton_) {
     s.factorNonzeros = newton_->factorNonzeros();
+    s.factorizations = newton_->factorizations();
+    s.refactorizations = newton_->refactorizations();
+    s.factorFlops = newton_->factorFlops();
     if (newton_->banded()) {
       s.bandwidth = static_cast<long>(newton_->lowerBandwidth() + newton_->upperBandwidth());
       s.bandBorder = static_cast<long>(newton_->bandBorder());

@@ -57,6 +57,10 @@ struct SolverStatistics {
   double wallSeconds = 0.0;
   long jacobianNonzeros = 0;  //!< stored entries of the sparse Jacobian
   long factorNonzeros = 0;    //!< entries of KLU's L + U (fill), or of the band LU's storage; 0 for the dense solver
+  //! Of the transient Newton solver (solver/newton_solver.hpp): factorisations with a pivot search, numeric
+  //! refactorisations with the kept pivots, and KLU's floating-point operations of one factorisation (0: band).
+  long factorizations = 0, refactorizations = 0;
+  double factorFlops = 0.0;
   long bandwidth = -1;        //!< the band LU's lower + upper bandwidth of the factorised block; -1: KLU (or dense)
   long bandBorder = 0;        //!< components after the band, eliminated by their Schur complement
 };

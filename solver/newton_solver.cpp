@@ -340,6 +340,7 @@ bool NewtonSolver::factor() {
     Band& b = *band_;
     const auto m = static_cast<BandIndex>(b.size), ldim = static_cast<BandIndex>(b.columnLength());
     b.factored = false;
+    ++factorizations_;
     if (bandFactor(b.data.data(), ldim, m, static_cast<BandIndex>(b.upper), static_cast<BandIndex>(b.lower),
                    static_cast<BandIndex>(b.storedUpper), b.pivots.data()) != 0)
       return false;
@@ -399,10 +400,13 @@ bool NewtonSolver::factor() {
     if (k.numeric) klu_free_numeric(&k.numeric, &k.common);
     k.numeric = klu_factor(Ap, Ai, Ax, k.symbolic.get(), &k.common);
     if (!k.numeric) return false;
+    ++factorizations_;
+    if (klu_flops(k.symbolic.get(), k.numeric, &k.common)) factorFlops_ = k.common.flops;
     fresh_ = false;
     return true;
   }
   if (!klu_refactor(Ap, Ai, Ax, k.symbolic.get(), k.numeric, &k.common)) return false;
+  ++refactorizations_;
   // SUNDIALS' KLU module (SUNLinSolSetup_KLU): a cheap reciprocal condition estimate below eps^(2/3), confirmed
   // by klu_condest, makes it factorise afresh with new pivots.
   if (!klu_rcond(k.symbolic.get(), k.numeric, &k.common)) return false;
@@ -413,6 +417,7 @@ bool NewtonSolver::factor() {
       klu_free_numeric(&k.numeric, &k.common);
       k.numeric = klu_factor(Ap, Ai, Ax, k.symbolic.get(), &k.common);
       if (!k.numeric) return false;
+      ++factorizations_;
     }
   }
   return true;

@@ -58,6 +58,12 @@ class NewtonSolver {
   void forget() { fresh_ = true; }
   //! Entries of L + U of the last factorisation (0 before the first); band: the band storage's entries.
   long factorNonzeros() const;
+  //! Factorisations so far: with a pivot search (KLU's klu_factor, or every band LU) and numeric refactorisations
+  //! with the kept pivots (klu_refactor); floating-point operations of KLU's last pivoting factorisation
+  //! (klu_flops; 0 for the band path). Counters only: the benchmark of grid refinement reports them.
+  long factorizations() const { return factorizations_; }
+  long refactorizations() const { return refactorizations_; }
+  double factorFlops() const { return factorFlops_; }
   //! The leading block is factorised by the band LU (else KLU); its lower and upper bandwidths (band only).
   bool banded() const { return band_ != nullptr; }
   Index lowerBandwidth() const;
@@ -93,6 +99,8 @@ class NewtonSolver {
   struct Band;  //!< band storage of A_ff, its column pointers and pivots (SUNDIALS' band LU)
   std::unique_ptr<Band> band_;
   bool fresh_ = true;
+  long factorizations_ = 0, refactorizations_ = 0;
+  double factorFlops_ = 0.0;
 };
 
 }  // namespace thermorph
