@@ -4,6 +4,9 @@
 //!   thermorph_bench table DIR [--repeat N] [--skip-dense]
 //!                                              run them in this process and print Markdown tables
 //!   thermorph_bench one CASE [--dense]         one in-process run of any case file, one table row
+//!   thermorph_bench refine CASE [--levels N] [--set KEY=VALUE]...
+//!                                              the levels of `thermorph refine` (1x, 2x, 4x, ... cells), one
+//!                                              table row per level: solver counters, fill, time per phase
 //!
 //! Whole-process runs (peak memory, results-file size, the SciPy comparison) are made by run_benchmarks.sh with
 //! /usr/bin/time -v on the thermorph executable, using the same case files. Not part of ctest: a benchmark
@@ -23,7 +26,9 @@
 
 #include "models/body.hpp"
 #include "models/case.hpp"
+#include "drivers/refine.hpp"
 #include "drivers/simulation.hpp"
+#include "drivers/sweep_metrics.hpp"
 
 namespace {
 
@@ -237,6 +242,95 @@ int table(const fs::path& dir, int repeat, bool dense) {
   return 0;
 }
 
+// ---- grid refinement: the levels of `thermorph refine` ----------------------------------------------------
+
+//! A counter of SolverStatistics that older builds lack (the script builds this file against main too): its value,
+//! or -1 ("-" in the table).
+template <class S>
+double factorizations(const S& s) {
+  if constexpr (requires { s.factorizations; }) return static_cast<double>(s.factorizations);
+  return -1.0;
+}
+template <class S>
+double refactorizations(const S& s) {
+  if constexpr (requires { s.refactorizations; }) return static_cast<double>(s.refactorizations);
+  return -1.0;
+}
+template <class S>
+double factorFlops(const S& s) {
+  if constexpr (requires { s.factorFlops; }) return s.factorFlops;
+  return -1.0;
+}
+
+std::string countOrDash(double v, const char* format = "{:.0f}") {
+  return v < 0.0 ? std::string("-") : fmt::format(fmt::runtime(format), v);
+}
+
+//! Each level as `thermorph refine` runs it (refinedCase of the loaded case, a Body, runTransient with the metric
+//! collector as observer), with the steady start (initial = "steady") timed once more on its own before the run
+//! (steadyState from the same guess: the same work the run repeats).
+int refineTable(const std::string& path, int levels, const std::vector<std::string>& overrides) {
+  const auto l0 = std::chrono::steady_clock::now();
+  const Case base = loadCase(path, overrides);
+  const double loadWall = std::chrono::duration<double>(std::chrono::steady_clock::now() - l0).count();
+  const bool steadyStart = base.run.initial == InitialCondition::Steady;
+  fmt::print("{}: case load {:.3f} s; {}\n\n", fs::path(path).filename().string(), loadWall,
+             steadyStart ? "steady start (relaxation + KINSOL) timed separately" : "no steady start");
+  fmt::print("| level | cells | nodes | build [s] | steady start [s] | steady steps | CVODE [s] | rest of run [s] "
+             "| level [s] | level CPU [s] | steps | rhs | Jacobians | lin. setups | Newton its | conv. fails | err. fails | "
+             "Jacobian nnz | solver | L+U nnz | fill | factorisations | refactorisations | Mflop per factorisation |\n");
+  fmt::print("|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|---:|---:"
+             "|---:|---:|---:|\n");
+  for (int level = 0; level < levels; ++level) {
+    const int factor = 1 << level;
+    const double cpu0 = cpuSeconds();
+    const auto t0 = std::chrono::steady_clock::now();
+    const Case c = refinedCase(base, factor);
+    Body body(c);
+    const auto t1 = std::chrono::steady_clock::now();
+    double steadyWall = 0.0;
+    long steadySteps = 0;
+    if (steadyStart) {
+      std::vector<double> guess(body.network().nodes.size(), c.run.initialTemperature);
+      for (const Controller& k : body.network().controllers) guess.push_back(k.initial);
+      SolverStatistics st;
+      const auto s0 = std::chrono::steady_clock::now();
+      steadyState(body, guess, &st);
+      steadyWall = std::chrono::duration<double>(std::chrono::steady_clock::now() - s0).count();
+      steadySteps = st.steps;
+    }
+    MetricCollector collector(body, MetricWindow{}, {}, false);
+    RunOptions run;
+    run.quiet = true;
+    run.observer = [&](double t, std::span<const double> temperatures, const RunSummary& summary) {
+      collector.observe(t, temperatures, summary);
+    };
+    const auto r0 = std::chrono::steady_clock::now();
+    const RunSummary summary = runTransient(body, run);
+    const double runWall = std::chrono::duration<double>(std::chrono::steady_clock::now() - r0).count();
+    const double levelCpu = cpuSeconds() - cpu0;
+    if (!summary.complete) throw std::runtime_error(fmt::format("level {}x: {}", factor, summary.failure));
+    const double buildWall = std::chrono::duration<double>(t1 - t0).count();
+    const SolverStatistics& s = summary.statistics;
+    long cells = 0;
+    for (const SegmentMesh& seg : body.segments()) cells += static_cast<long>(seg.nz) * seg.nr;
+    const std::string solver =
+        s.bandwidth >= 0 ? fmt::format("band {} + border {}", s.bandwidth, s.bandBorder) : std::string("KLU");
+    const double flops = factorFlops(s);
+    fmt::print("| {}x | {} | {} | {:.3f} | {:.3f} | {} | {:.3f} | {:.3f} | {:.3f} | {:.3f} | {} | {} | {} | {} | {} | {} | {} "
+               "| {} | {} | {} | {:.2f} | {} | {} | {} |\n",
+               factor, cells, body.network().nodes.size(), buildWall, steadyWall, steadyStart ? steadySteps : 0L,
+               s.wallSeconds, runWall - s.wallSeconds - steadyWall, buildWall + runWall, levelCpu, s.steps, s.rhsEvaluations,
+               s.jacobianEvaluations, s.linearSetups, s.nonlinearIterations, s.nonlinearFailures, s.errorTestFailures,
+               s.jacobianNonzeros, solver, s.factorNonzeros,
+               static_cast<double>(s.factorNonzeros) / static_cast<double>(std::max(1L, s.jacobianNonzeros)),
+               countOrDash(factorizations(s)), countOrDash(refactorizations(s)),
+               flops < 0.0 ? std::string("-") : (flops == 0.0 ? std::string("band") : fmt::format("{:.2f}", 1e-6 * flops)));
+    std::fflush(stdout);
+  }
+  return 0;
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -250,6 +344,16 @@ int main(int argc, char** argv) {
       Measurement m = measureOnce(args[1], args.size() == 3 ? LinearSolverKind::Dense : LinearSolverKind::Klu);
       fmt::print("{}\n{}\n{}\n", header, rule, row(fs::path(args[1]).filename().string(), m));
       return 0;
+    }
+    if (args.size() >= 2 && args[0] == "refine") {
+      int levels = 3;
+      std::vector<std::string> overrides;
+      for (std::size_t i = 2; i < args.size(); ++i) {
+        if (args[i] == "--levels" && i + 1 < args.size()) levels = std::stoi(args[++i]);
+        else if (args[i] == "--set" && i + 1 < args.size()) overrides.push_back(args[++i]);
+        else throw std::invalid_argument("unknown option " + args[i]);
+      }
+      return refineTable(args[1], levels, overrides);
     }
     if (args.size() >= 2 && args[0] == "table") {
       int repeat = 3;
@@ -267,6 +371,7 @@ int main(int argc, char** argv) {
   }
   fmt::print(stderr,
              "usage: thermorph_bench cases DIR\n       thermorph_bench table DIR [--repeat N] [--skip-dense]\n"
-             "       thermorph_bench one CASE [--dense]\n");
+             "       thermorph_bench one CASE [--dense]\n"
+             "       thermorph_bench refine CASE [--levels N] [--set KEY=VALUE]...\n");
   return 2;
 }
