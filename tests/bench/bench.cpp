@@ -268,7 +268,9 @@ std::string countOrDash(double v, const char* format = "{:.0f}") {
 
 //! Each level as `thermorph refine` runs it (refinedCase of the loaded case, a Body, runTransient with the metric
 //! collector as observer), with the steady start (initial = "steady") timed once more on its own before the run
-//! (steadyState from the same guess: the same work the run repeats).
+//! (steadyState from the same guess: the same work the run repeats). "level [s]" and "level CPU [s]" are the level
+//! as refine runs it (build and run, without that extra steady start); "rest of run" is the run's wall time minus
+//! CVODE's and the separately timed steady start (a difference of wall times: noisy on a loaded machine).
 int refineTable(const std::string& path, int levels, const std::vector<std::string>& overrides) {
   const auto l0 = std::chrono::steady_clock::now();
   const Case base = loadCase(path, overrides);
@@ -288,15 +290,17 @@ int refineTable(const std::string& path, int levels, const std::vector<std::stri
     const Case c = refinedCase(base, factor);
     Body body(c);
     const auto t1 = std::chrono::steady_clock::now();
-    double steadyWall = 0.0;
+    double steadyWall = 0.0, steadyCpu = 0.0;
     long steadySteps = 0;
     if (steadyStart) {
       std::vector<double> guess(body.network().nodes.size(), c.run.initialTemperature);
       for (const Controller& k : body.network().controllers) guess.push_back(k.initial);
       SolverStatistics st;
+      const double c0 = cpuSeconds();
       const auto s0 = std::chrono::steady_clock::now();
       steadyState(body, guess, &st);
       steadyWall = std::chrono::duration<double>(std::chrono::steady_clock::now() - s0).count();
+      steadyCpu = cpuSeconds() - c0;
       steadySteps = st.steps;
     }
     MetricCollector collector(body, MetricWindow{}, {}, false);
@@ -308,7 +312,7 @@ int refineTable(const std::string& path, int levels, const std::vector<std::stri
     const auto r0 = std::chrono::steady_clock::now();
     const RunSummary summary = runTransient(body, run);
     const double runWall = std::chrono::duration<double>(std::chrono::steady_clock::now() - r0).count();
-    const double levelCpu = cpuSeconds() - cpu0;
+    const double levelCpu = cpuSeconds() - cpu0 - steadyCpu;  // the level as refine runs it: without the extra steady start
     if (!summary.complete) throw std::runtime_error(fmt::format("level {}x: {}", factor, summary.failure));
     const double buildWall = std::chrono::duration<double>(t1 - t0).count();
     const SolverStatistics& s = summary.statistics;
