@@ -285,7 +285,10 @@ class Runner:
     def __init__(self, exe, runs, refine=1):
         self.exe, self.runs, self.refine = exe, runs, refine
         self.cache = {}
-        self.tmp = Path(tempfile.mkdtemp(prefix="thermorph-docs-"))
+        # removed when the runner is collected or at exit, also after a SystemExit (583 directories of
+        # earlier runs had piled up in /tmp before)
+        self._tmpdir = tempfile.TemporaryDirectory(prefix="thermorph-docs-")
+        self.tmp = Path(self._tmpdir.name)
 
     def get(self, name):
         if name in self.cache:
