@@ -176,6 +176,9 @@ class SamplerProbe : public OutputProbe {
   SamplerProbe(const ObservedData& data, const Body& body) : sampler_(data, body) {}
   void observe(double t, std::span<const double> y, const RunSummary& s) override { sampler_.observe(t, y, s); }
   std::vector<double> values() const override { return sampler_.predictions(); }
+  std::vector<double> observerTimes(const Body& body) const override {
+    return ObservationSampler::timesBetweenOutputs(sampler_.data(), body.spec().run);
+  }
 
  private:
   ObservationSampler sampler_;
@@ -498,6 +501,7 @@ Evaluation evaluateModel(const FitProblem& pb, std::span<const double> x) {
     RunOptions options;
     options.quiet = true;
     options.observer = [&](double t, std::span<const double> y, const RunSummary& s) { sampler.observe(t, y, s); };
+    options.observerTimes = ObservationSampler::timesBetweenOutputs(pb.data, c.run);
     RunSummary summary = runTransient(body, options);
     if (!summary.complete) {
       e.error = summary.failure;
@@ -1165,6 +1169,7 @@ int runFitCommand(const FitOptions& o) {
   options.commandLine = o.commandLine;
   options.quiet = true;
   options.observer = [&](double t, std::span<const double> y, const RunSummary& s) { sampler.observe(t, y, s); };
+  options.observerTimes = ObservationSampler::timesBetweenOutputs(pb.data, c.run);
   RunSummary summary = runTransient(body, options);
   if (!summary.complete) {
     std::error_code ec;

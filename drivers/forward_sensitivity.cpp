@@ -310,6 +310,7 @@ ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const
 
     // Probes: the base; per forward parameter, the base body at y +- e s, and the two perturbed bodies at y.
     std::unique_ptr<OutputProbe> baseProbe = makeProbe(body);
+    const std::vector<double> observerTimes = baseProbe->observerTimes(body);
     struct Probes {
       std::unique_ptr<OutputProbe> up, down, plus, minus;
       double e = 0.0;
@@ -357,14 +358,27 @@ ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const
     observe(0.0);
     auto nextStop = [&] { return interval < breakpoints.size() ? breakpoints[interval] : c.run.duration; };
     integrator.setStopTime(nextStop());
+    // Observer-only times between outputs, as runTransient observes them (RunOptions::observerTimes).
+    std::size_t extra = 0;
+    auto observeBefore = [&](double limit) {
+      for (; extra < observerTimes.size() && observerTimes[extra] < limit; ++extra) {
+        if (observerTimes[extra] > integrator.time()) {
+          integrator.firstStepToward(limit);
+          integrator.advanceTo(observerTimes[extra]);
+        }
+        observe(observerTimes[extra]);
+      }
+    };
     for (long n = 1; n <= outputs; ++n) {
       const double t = std::min(c.run.duration, static_cast<double>(n) * c.run.outputInterval);
       while (interval < breakpoints.size() && breakpoints[interval] <= t) {
+        observeBefore(breakpoints[interval]);
         integrator.advanceTo(breakpoints[interval]);
         setInterval(++interval);
         integrator.restart();
         integrator.setStopTime(nextStop());
       }
+      observeBefore(t);
       integrator.advanceTo(t);
       observe(t);
     }

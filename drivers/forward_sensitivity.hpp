@@ -40,6 +40,9 @@ class OutputProbe {
   virtual ~OutputProbe() = default;
   virtual void observe(double time, std::span<const double> temperatures, const RunSummary& summary) = 0;
   virtual std::vector<double> values() const = 0;
+  //! Times between the outputs of a run of `body` at which the probe also observes (RunOptions::observerTimes;
+  //! a fit's observations), the steps unchanged. Default: none.
+  virtual std::vector<double> observerTimes(const Body&) const { return {}; }
 };
 using ProbeFactory = std::function<std::unique_ptr<OutputProbe>(const Body&)>;
 

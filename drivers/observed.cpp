@@ -527,6 +527,20 @@ double ObservationSampler::value(std::size_t s, double time, std::span<const dou
   return nan;
 }
 
+std::vector<double> ObservationSampler::timesBetweenOutputs(const ObservedData& data, const RunSpec& run) {
+  std::vector<double> out;
+  for (const ObservedSeries& s : data.series)
+    for (double t : s.times) {
+      if (!(t > 0.0) || !(t < run.duration)) continue;
+      const double k = std::round(t / run.outputInterval);
+      if (std::abs(t - k * run.outputInterval) <= 1e-9 * std::max(1.0, t)) continue;
+      out.push_back(t);
+    }
+  std::sort(out.begin(), out.end());
+  out.erase(std::unique(out.begin(), out.end()), out.end());
+  return out;
+}
+
 void ObservationSampler::observe(double time, std::span<const double> temperatures, const RunSummary& summary) {
   std::vector<double> row(data_.series.size());
   for (std::size_t s = 0; s < row.size(); ++s) row[s] = value(s, time, temperatures, summary);

@@ -90,6 +90,13 @@ void Recorder::record(double t, std::span<const double> y, double initialStored,
   fields_->write(f, y, faces);
 }
 
+void Recorder::observe(double t, std::span<const double> y, double initialStored, RunSummary& scratch) {
+  if (!observer_) return;
+  std::vector<double> faces;
+  budget_.compute(t, y, initialStored, scratch, faces, flows_);
+  observer_(t, y.first(system_.nodeCount()), scratch);
+}
+
 void Recorder::finish(RunSummary& summary, bool steady) {
   // Every warning of the run: the body's (at build) and the environment's (validity ranges, while running).
   summary.warnings = body_.warnings();

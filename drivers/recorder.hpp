@@ -33,6 +33,9 @@ class Recorder {
 
   //! Record time t with full state y (nodes, controls, then channel energies); fills `summary`.
   void record(double t, std::span<const double> y, double initialStored, RunSummary& summary);
+  //! Only the observer at time t (RunOptions::observerTimes): `scratch` gets the flows and energies there; nothing
+  //! is written or checked (freezing, controller grid), so the run's results are those of a run without it.
+  void observe(double t, std::span<const double> y, double initialStored, RunSummary& scratch);
   //! Solver statistics and completeness, then commit (a partial run goes to the incomplete path).
   void finish(RunSummary& summary, bool steady);
   void setIncompletePath(std::string p) { incompletePath_ = std::move(p); }

@@ -272,11 +272,25 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
     if (!integrator->advanceTo(time, *options.stop)) summary.stopped = true;
     return !summary.stopped;
   };
+  // Observer-only times (a fit's observations between outputs), each before the next time the loop asks for.
+  const std::vector<double>& extras = options.observerTimes;
+  std::size_t extra = 0;
+  RunSummary scratch;
+  auto observeBefore = [&](double limit) {
+    for (; extra < extras.size() && extras[extra] < limit; ++extra) {
+      if (extras[extra] > integrator->time()) {
+        integrator->firstStepToward(limit);
+        if (!advance(extras[extra])) return false;
+      }
+      recorder.observe(extras[extra], integrator->state(), initialStored, scratch);
+    }
+    return true;
+  };
   try {
     for (long k = 1; k <= outputs && !summary.stopped; ++k) {
       double t = std::min(c.run.duration, static_cast<double>(k) * c.run.outputInterval);
       while (interval < breakpoints.size() && breakpoints[interval] <= t) {
-        if (!advance(breakpoints[interval])) break;
+        if (!observeBefore(breakpoints[interval]) || !advance(breakpoints[interval])) break;
         body.setInterval(++interval);
         integrator->restart();
         integrator->setStopTime(nextStop());
@@ -285,7 +299,7 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
       // are not shortened by them), once a progress line can be shown (no interpolation nobody reads). Not as the
       // first time after a (re)start: that time bounds CVODE's first step, and the steps, hence the results,
       // depended on the wall clock (the day cycle refined 3x: 537 steps with progress lines, 523 without).
-      if (summary.stopped) break;
+      if (summary.stopped || !observeBefore(t)) break;
       if (progress.due() && integrator->stepped()) {
         const double from = integrator->time();
         for (int part = 1; part < 16 && !summary.stopped; ++part)

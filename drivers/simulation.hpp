@@ -33,6 +33,10 @@ struct RunOptions {
   //! and energies (a transient sweep's metrics) sets false: flows and storage then stay zero. A results file
   //! always gets them.
   bool flowsAtOutputs = true;
+  //! Times between outputs at which only the observer is called (a fit's observation times; sorted, inside the
+  //! run, none an output time): the model there by CVODE's interpolation, with the steps of a run without them
+  //! (Integrator::firstStepToward), not by linear interpolation between outputs. Nothing is written for them.
+  std::vector<double> observerTimes;
 };
 
 struct RunSummary {

@@ -392,6 +392,30 @@ bool Integrator::stepped() const {
   return steps > 0;
 }
 
+void Integrator::firstStepToward(double target) {
+  if (target <= time_ || stepped()) return;
+  auto start = std::chrono::steady_clock::now();
+  void* mem = memory_.get();
+  double reached = time_;
+  // CVODE's output vector receives y(t_n): the state at time() is put back (a copy for one step per restart).
+  const std::span<const double> now = state();
+  const std::vector<double> kept(now.begin(), now.end());
+  const int flag = CVode(mem, target, state_.get(), &reached, CV_ONE_STEP);
+  std::copy(kept.begin(), kept.end(), view(state_.get()).begin());
+  wallSeconds_ += std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+  if (flag < 0) {
+    std::string message = failureMessage(flag);
+    if (guard_.error) {
+      try {
+        guard_.rethrow();
+      } catch (const std::exception& e) {
+        throw SolverError(message + "; cause: " + e.what());
+      }
+    }
+    throw SolverError(message);
+  }
+}
+
 SolverStatistics Integrator::statistics() const {
   SolverStatistics s;
   void* mem = memory_.get();

@@ -147,6 +147,11 @@ class Integrator {
   //! bounds CVODE's estimate of the first step (cvHin: at most a tenth of the distance to it), so a caller that
   //! wants the same steps whatever it asks for in between must not ask for an extra time then.
   bool stepped() const;
+  //! Before the first step since the (re)initialisation, take that step as a call asking for `target` would (its
+  //! size bounded by the distance to `target`, cvHin), so that times asked for before `target` (a fit's
+  //! observations between outputs) are interpolated without changing any step; afterwards, nothing. The state
+  //! stays that at time() until the next advanceTo.
+  void firstStepToward(double target);
   std::span<const double> state() const;
   //! Start forward sensitivities at the current time (before the first advanceTo or after a restart()).
   void enableSensitivities(SensitivityProblem problem);

@@ -13,6 +13,9 @@
 
 #include "drivers/fit.hpp"
 #include "drivers/observed.hpp"
+#include "drivers/simulation.hpp"
+#include "models/body.hpp"
+#include "models/case.hpp"
 #include "test_lumped_sphere.hpp"
 
 using namespace thermorph;
@@ -388,4 +391,87 @@ speed = "2 m/s"
   CHECK(r.gradientMethods[0] == "cvodes");
   CHECK(r.caseText.find("axial_cells = 14") != std::string::npos);
   CHECK(std::abs(r.values[0] / 0.07 - 1.0) < 1e-4);
+}
+
+namespace {
+
+//! Core temperature of the lumped sphere with h = 0.01 W/(m2 K) (tau = 66.67 s) whose surroundings step from
+//! 10 to 25 degC at 100 s: eq. 5.6 of Incropera et al. (2007) on each side of the step, continuous at it.
+double steppedNewton(double t) {
+  const double tau = tauOf(0.01);
+  const double atStep = 10.0 + 30.0 * std::exp(-100.0 / tau);
+  return t <= 100.0 ? 10.0 + 30.0 * std::exp(-t / tau) : 25.0 + (atStep - 25.0) * std::exp(-(t - 100.0) / tau);
+}
+
+}  // namespace
+
+TEST_CASE("Observations between outputs are predicted at their own times, with the run's steps unchanged", "[fit]") {
+  // Outputs every 120 s (1.8 tau) and a step of the surroundings at 100 s; observations at 3, 13, ..., 593 s,
+  // none on an output, several within seconds after the step. Reference: Incropera et al. (2007) eq. 5.6 on each
+  // side of the step. Until 2026-12-05 the model was interpolated linearly between outputs: off by kelvins here.
+  ObservedSeries s;
+  s.file = "synthetic";
+  s.column = 2;
+  s.quantity = parseObservedQuantity("body.core_temperature", "test");
+  s.fileUnit = "degC";
+  for (int i = 0; i < 60; ++i) {
+    const double t = 3.0 + 10.0 * i;
+    s.times.push_back(t);
+    s.values.push_back(steppedNewton(t));
+    s.sd.push_back(0.05);
+  }
+  ObservedData data;
+  data.series.push_back(s);
+  FitProblem pb = problemFor(data, {"environment.convection=0.001 W/(m2 K):0.1 W/(m2 K)"},
+                             {"environment.convection=0.014 W/(m2 K)"});
+  pb.overrides.push_back("run.output_interval=120 s");
+  pb.overrides.push_back(R"(events=[{ at = "100 s", environment = { temperature = "25 degC" } }])");
+
+  // The predictions at the true h against the exact solution.
+  const double hTrue = 0.01;
+  Evaluation e = evaluateModel(pb, std::vector<double>{hTrue});
+  REQUIRE(e.ok);
+  double worst = 0.0;
+  for (std::size_t i = 0; i < s.times.size(); ++i) worst = std::max(worst, std::abs(e.predictions[i] - s.values[i]));
+  fmt::print("observations between outputs: largest |model - exact| {:.3g} K over {} times\n", worst, s.times.size());
+  CHECK(worst < 2e-6);  // the lumped model holds to ~1e-7 relative (Bi = 2e-7), the integrator to rtol 1e-11
+
+  // The fit (CVODES sensitivities at the same times) recovers tau from noise-free data.
+  FitResult r = runFit(pb);
+  REQUIRE(r.converged);
+  const double error = std::abs(tauOf(r.values[0]) / tauOf(hTrue) - 1.0);
+  fmt::print("observations between outputs: tau fitted, relative error {:.3g}\n", error);
+  CHECK(error < 1e-6);
+
+  // The run's own outputs and steps are those of a run without the extra times (bit for bit).
+  const Case c = loadCaseFromString(pb.caseText, pb.casePath,
+                                    [&] { auto o = pb.overrides; o.push_back("environment.convection=0.01 W/(m2 K)"); return o; }());
+  std::vector<double> plain, withExtra;
+  RunSummary a, b;
+  {
+    Body body(c);
+    RunOptions options;
+    options.quiet = true;
+    options.observer = [&](double t, std::span<const double> y, const RunSummary&) { plain.push_back(t); plain.push_back(y[0]); };
+    a = runTransient(body, options);
+  }
+  {
+    Body body(c);
+    RunOptions options;
+    options.quiet = true;
+    options.observerTimes = ObservationSampler::timesBetweenOutputs(data, c.run);
+    options.observer = [&](double t, std::span<const double> y, const RunSummary&) {
+      if (std::fmod(t, 120.0) == 0.0 || t == 600.0) {
+        withExtra.push_back(t);
+        withExtra.push_back(y[0]);
+      }
+    };
+    b = runTransient(body, options);
+  }
+  REQUIRE(a.complete);
+  REQUIRE(b.complete);
+  CHECK(a.statistics.steps == b.statistics.steps);
+  CHECK(a.statistics.rhsEvaluations == b.statistics.rhsEvaluations);
+  CHECK(plain == withExtra);
+  CHECK(a.finalState == b.finalState);
 }
