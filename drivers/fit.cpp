@@ -782,6 +782,19 @@ FitResult runFit(const FitProblem& given) {
     if (result.values[j] <= fp.lower + 1e-6 * span || result.values[j] >= fp.upper - 1e-6 * span)
       result.warnings.push_back(fmt::format("{} ended at a bound ({:g} {}): the interval assumes an interior optimum",
                                             fp.key, result.values[j], fp.unit));
+    // An interval wider than the range the user allowed: the data say less than the bounds, and the linearised
+    // interval (exact only for a model linear in the parameter) is no description of the uncertainty this far
+    // from the value (Bates & Watts 1988, ch. 6: profile-based regions then differ from the linear ones).
+    else if (std::isfinite(se) && (result.lower95.back() < fp.lower || result.upper95.back() > fp.upper))
+      result.warnings.push_back(fmt::format(
+          "{}: the 95 % interval {:.4g} .. {:.4g} {} reaches beyond the bounds given with --free ({:g} .. {:g}; standard "
+          "error {:.3g}, {:.0f} % of the value): the data determine it less than the bounds do, and the linearised "
+          "interval does not describe its uncertainty{}",
+          fp.key, result.lower95.back(), result.upper95.back(), fp.unit, fp.lower, fp.upper, se,
+          100.0 * se / std::abs(result.values[j]),
+          !fp.log && result.lower95.back() <= 0.0 && fp.lower >= 0.0
+              ? "; it reaches below 0: `:log` on the --free bound gives an interval in ln(value) that stays positive"
+              : ""));
   }
   // RMSE per series.
   for (std::size_t s = 0; s < pb.data.series.size(); ++s) {

@@ -157,6 +157,50 @@ TEST_CASE("A fit of two parameters that only act together warns of non-identifia
   CHECK(warned);
 }
 
+TEST_CASE("A parameter the data hardly determine warns that its interval reaches beyond its bounds", "[fit]") {
+  // Newton cooling (Incropera et al. 2007, eq. 5.6; tau = 66.7 s) observed with noise 0.05 K (fixed seed) at
+  // 0, 1, ..., `last` s; free: T_inf (bounds 0 .. 20 degC), T_i and h. Over the first 15 s
+  // T = T_i - (T_i - T_inf) t / tau + (T_i - T_inf) t^2 / (2 tau^2) - ... (Taylor series): the data fix T_i and the
+  // slope (T_i - T_inf) / tau, and T_inf and tau apart only through the curvature (0.76 K at 15 s), so T_inf's
+  // 95 % interval is far wider than its bounds. Over 600 s the decay shows T_inf itself: no warning.
+  auto fitUntil = [](int last, int every) {
+    std::mt19937_64 rng(77);
+    std::normal_distribution<double> gauss(0.0, 0.05);
+    ObservedData d = newtonData(0.01, 10.0, 40.0, 0.0, nullptr);
+    ObservedSeries& s = d.series[0];
+    s.times.clear();
+    s.values.clear();
+    s.sd.clear();
+    for (int t = 0; t <= last; t += every) {
+      s.times.push_back(t);
+      s.values.push_back(10.0 + 30.0 * std::exp(-t / tauOf(0.01)) + gauss(rng));
+      s.sd.push_back(0.05);
+    }
+    FitProblem pb = problemFor(d, {"environment.temperature=0 degC:20 degC", "run.initial_temperature=30 degC:50 degC",
+                                   "environment.convection=0.001 W/(m2 K):0.1 W/(m2 K)"},
+                               {"environment.temperature=12 degC", "run.initial_temperature=39 degC",
+                                "environment.convection=0.012 W/(m2 K)"});
+    return runFit(pb);
+  };
+  auto warnedFor = [](const FitResult& r, const std::string& key) {
+    for (const std::string& w : r.warnings)
+      if (w.rfind(key + ": the 95 % interval", 0) == 0 && w.find("reaches beyond the bounds") != std::string::npos) return true;
+    return false;
+  };
+  const FitResult brief = fitUntil(15, 1);
+  REQUIRE(brief.converged);
+  fmt::print("first 15 s: T_inf {:.4g} +- {:.3g} degC, T_i {:.4g} +- {:.3g} degC\n", brief.values[0],
+             brief.standardErrors[0], brief.values[1], brief.standardErrors[1]);
+  CHECK(warnedFor(brief, "environment.temperature"));
+  CHECK_FALSE(warnedFor(brief, "run.initial_temperature"));
+  const FitResult whole = fitUntil(600, 10);
+  REQUIRE(whole.converged);
+  fmt::print("whole 600 s: T_inf {:.4g} +- {:.3g} degC, T_i {:.4g} +- {:.3g} degC\n", whole.values[0],
+             whole.standardErrors[0], whole.values[1], whole.standardErrors[1]);
+  CHECK_FALSE(warnedFor(whole, "environment.temperature"));
+  CHECK_FALSE(warnedFor(whole, "run.initial_temperature"));
+}
+
 TEST_CASE("Observed-data CSV: units, missing values, sd columns and errors", "[fit]") {
   const std::string dir = (std::filesystem::temp_directory_path() / "thermorph_fit_csv").string();
   std::filesystem::create_directories(dir);
