@@ -93,6 +93,47 @@ with h5py.File('unc_fit.h5') as f:
     assert (q05 <= q95).all()
 " || fail "from-fit contents"
 
+# A poorly determined positive parameter (three late noisy points: SE/h = 0.57): fitted on a linear scale, its normal draws
+# reach below 0, the case refuses them, and the command says so (the statistics then describe a truncated sample);
+# fitted with :log it is drawn log-normally, ln h ~ N(ln h_fit, (SE/h_fit)^2) (delta method), all draws positive,
+# the sample's 5 and 95 % quantiles of ln h at ln h_fit -+ 1.6449 SE/h_fit (normal quantiles; Latin hypercube of
+# 400, within 3 % of that SD).
+"$python" -c "
+import math
+with open('noisy.csv', 'w') as f:
+    f.write('time [s], body.core_temperature [degC], body.core_temperature.sd [K]\n')
+    for i, t in enumerate([200, 250, 300]):
+        f.write(f'{t}, {10 + 30 * math.exp(-t / 66.6667) + (3.0, -4.5, 3.0)[i]:.5f}, 4\n')
+"
+"$exe" fit lump.toml --data noisy.csv --free "environment.convection=0.001 W/(m2 K):0.1 W/(m2 K)" \
+  -q -o fit_lin.h5 > /dev/null 2>&1 || fail "linear-scale fit of the noisy data"
+"$exe" uncertainty lump.toml --from-fit fit_lin.h5 --samples 100 -q -o unc_lin.h5 > /dev/null 2> unc_lin.err \
+  || fail "--from-fit linear exit $?: $(cat unc_lin.err)"
+grep -q "sampled runs failed (.* refused by the case loader) and are left out" unc_lin.err \
+  || fail "no warning of refused draws: $(cat unc_lin.err)"
+grep -q "fit them with \`:log\`" unc_lin.err || fail "no :log hint: $(cat unc_lin.err)"
+"$exe" fit lump.toml --data noisy.csv --free "environment.convection=0.001 W/(m2 K):0.1 W/(m2 K):log" \
+  -q -o fit_log.h5 > /dev/null 2>&1 || fail "log-scale fit of the noisy data"
+"$exe" uncertainty lump.toml --from-fit fit_log.h5 --samples 400 -q -o unc_log.h5 > /dev/null 2> unc_log.err \
+  || fail "--from-fit log exit $?: $(cat unc_log.err)"
+grep -q "sampled runs failed" unc_log.err && fail "log-normal draws failed: $(cat unc_log.err)"
+"$python" -c "
+import h5py, numpy as np
+with h5py.File('fit_log.h5') as f:
+    h, se = f['fit/parameters/value'][0], f['fit/parameters/standard_error'][0]
+with h5py.File('unc_log.h5') as f:
+    g = f['uncertainty']
+    x = g['samples'][:, 0]
+    assert int(g.attrs['runs_ok']) == 400, g.attrs['runs_ok']
+s = se / h
+print(f'log-scale draws: h {h:.4g} SE {se:.3g} (SE/h {s:.3f}); min draw {x.min():.3g}')
+assert s > 0.2, s   # poorly determined, or the test shows nothing
+assert (x > 0).all()
+q05, q95 = np.quantile(np.log(x), [0.05, 0.95])
+assert abs(q05 - (np.log(h) - 1.6448536 * s)) < 0.03 * s, (q05, np.log(h) - 1.6448536 * s)
+assert abs(q95 - (np.log(h) + 1.6448536 * s)) < 0.03 * s, (q95, np.log(h) + 1.6448536 * s)
+" || fail "log-normal draws"
+
 # Bad input: exit 2 with the key named.
 expect2() {  # expect2 PATTERN ARGS...
   local pattern="$1"; shift
