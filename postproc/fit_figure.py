@@ -11,7 +11,9 @@ Each figure is written as PNG and PDF. Model estimates for research; not veterin
 from __future__ import annotations
 
 import argparse
+import re
 import sys
+import textwrap
 from pathlib import Path
 
 import h5py
@@ -53,19 +55,35 @@ def fit_figures(f: h5py.File, out: Path, stem: str) -> list[Path]:
     params = [text(n) for n in g["parameters/name"][:]]
     units = [text(u) for u in g["parameters/units"][:]]
     values = g["parameters/value"][:]
-    se = g["parameters/standard_error"][:] if "standard_error" in g["parameters"] else np.full(len(values), np.nan)
+    nan = np.full(len(values), np.nan)
+    se = g["parameters/standard_error"][:] if "standard_error" in g["parameters"] else nan
+    lower = g["parameters/lower_95"][:] if "lower_95" in g["parameters"] else values - 1.96 * se
+    upper = g["parameters/upper_95"][:] if "upper_95" in g["parameters"] else values + 1.96 * se
+    # One line per parameter with its 95 % interval as the fit reports it (asymmetric for a log-scale parameter,
+    # where "value ± SE" would mislead); all on one line, a fit of three parameters ran off both sides of the figure.
+    lines = [f"{p} = {v:.4g} {'' if u == '1' else u}  (SE {e:.2g}; 95 %: {lo:.4g} .. {hi:.4g})"
+             for p, v, e, u, lo, hi in zip(params, values, se, units, lower, upper)]
+    warnings = [w for w in text(g.attrs.get("warnings", "")).split("\n") if w.strip()]
     for k, name in enumerate(names):
         s = g["series"][name]
         unit = text(s.attrs.get("units", ""))
-        fig, (top, bottom) = plt.subplots(2, 1, figsize=(7, 5), sharex=True,
+        head = 0.12 * len(lines) + 0.12
+        foot = 0.3 + 0.13 * sum(len(textwrap.wrap(w, 150)) for w in warnings[:3])
+        fig, (top, bottom) = plt.subplots(2, 1, figsize=(7, 4.6 + head + foot), sharex=True,
                                           gridspec_kw={"height_ratios": [3, 1]})
         if "model" in s:
             top.plot(hours(s["model_time"][:]), s["model"][:], color=BLUE, lw=1.5, label="fitted model")
         top.plot(hours(s["time"][:]), s["observed"][:], "o", ms=3, color=VERMILLION, label="observed")
-        top.set_ylabel(f"{name} [{unit}]")
+        # The series' full name above the panel; the axis label only its last part (a long name ran off the top).
+        top.set_title(name, fontsize=8, loc="left")
+        top.set_ylabel(f"{re.sub(r'^(segments[.][^.]+[.]|body[.])', '', name)} [{unit}]")
         top.legend(loc="best", fontsize=8)
-        title = ", ".join(f"{p} = {v:.4g} ± {e:.2g} {u}" for p, v, e, u in zip(params, values, se, units))
-        top.set_title(title, fontsize=7)
+        fig.suptitle("\n".join(lines), fontsize=7, x=0.01, ha="left", y=0.995, va="top")
+        if warnings:
+            shown = [textwrap.fill(f"fit warning: {w}", 150) for w in warnings[:3]]
+            if len(warnings) > 3:
+                shown.append(f"... and {len(warnings) - 3} more warnings (/fit attribute warnings)")
+            fig.text(0.01, 0.03, "\n".join(shown), fontsize=5.5, color=VERMILLION, ha="left", va="bottom")
         if "residual" in s:
             bottom.axhline(0.0, color=GREY, lw=0.8)
             bottom.plot(hours(s["time"][:]), s["residual"][:], "o", ms=2.5, color=GREEN)
@@ -73,7 +91,8 @@ def fit_figures(f: h5py.File, out: Path, stem: str) -> list[Path]:
             bottom.set_ylabel(f"model − obs.\n[{unit}]")
             bottom.set_title(f"RMSE {rmse:.3g} {unit}", fontsize=7, loc="right")
         bottom.set_xlabel("time [h]")
-        fig.tight_layout()
+        height = fig.get_figheight()
+        fig.tight_layout(rect=(0, foot / height, 1, 1))  # makes room for the suptitle itself
         paths += save(fig, out, f"{stem}_fit_{k}")
     return paths
 

@@ -745,11 +745,76 @@ def check_cli_times():
         check("--window" in str(err) and "soon" in str(err), f"--window soon,1h: {err}")
 
 
+def check_fit_figure(tmp: Path):
+    """fit_figure.py on a fit of three parameters with long key paths, one fitted on a log scale (an asymmetric
+    interval) and two warnings (a synthetic /fit group): every text lies inside the figure (the one-line title ran
+    off both sides, the series' name off the top), each parameter's stored 95 % interval is shown as stored (not
+    value +- SE), and the fit's warnings are printed. Common practice, no source."""
+    import importlib
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    import matplotlib.text  # noqa: F401
+    sys.path.insert(0, str(POSTPROC))
+    fit_figure = importlib.import_module("fit_figure")
+    path = tmp / "fitfig.h5"
+    names = ["tissues.fur.conductivity", "events.0.metabolism.activity", "environment.substrate_conductance"]
+    with h5py.File(path, "w") as f:
+        g = f.create_group("fit")
+        g.attrs["warnings"] = "first warning about a correlation\nsecond warning: a value at its bound"
+        g["series_names"] = np.array([b"segments.tail.surface_temperature@0.5"])
+        p = g.create_group("parameters")
+        p["name"] = np.array([n.encode() for n in names])
+        p["units"] = np.array([b"W/(m K)", b"1", b"W/(m2 K)"])
+        p["value"] = np.array([0.052, 2.5, 87.2])
+        p["standard_error"] = np.array([0.0017, 0.038, 175.6])
+        p["lower_95"] = np.array([0.0487, 2.43, 1.605])
+        p["upper_95"] = np.array([0.0554, 2.58, 4734.0])
+        s = g.create_group("series/segments.tail.surface_temperature@0.5")
+        s.attrs["units"] = "degC"
+        s.attrs["rmse"] = 0.4
+        t = np.linspace(0, 14400, 50)
+        s["model_time"], s["model"] = t, 20 - 0.001 * t
+        s["time"], s["observed"], s["residual"] = t[::5], 20 - 0.001 * t[::5], 0 * t[::5]
+    figures = []
+    original = fit_figure.save
+
+    def keep(fig, out, name):
+        fig.canvas.draw()
+        renderer = fig.canvas.get_renderer()
+        width, height = fig.bbox.width, fig.bbox.height
+        texts = list(fig.texts) + ([fig._suptitle] if fig._suptitle else [])
+        for ax in fig.axes:  # titles, axis labels, legends (tick labels of ticks outside the view are never drawn)
+            texts += [ax.title, ax._left_title, ax._right_title, ax.xaxis.label, ax.yaxis.label]
+            texts += ax.get_legend().get_texts() if ax.get_legend() else []
+        for artist in texts:
+            if not artist.get_visible() or not artist.get_text().strip():
+                continue
+            box = artist.get_window_extent(renderer)
+            check(box.x0 >= -1 and box.x1 <= width + 1 and box.y0 >= -1 and box.y1 <= height + 1,
+                  f"fit figure: text outside the figure: {artist.get_text()[:60]!r} at {box}")
+        figures.append("\n".join(a.get_text() for a in fig.findobj(matplotlib.text.Text)))
+        return original(fig, out, name)
+
+    fit_figure.save = keep
+    try:
+        with h5py.File(path) as f:
+            fit_figure.fit_figures(f, tmp, "fitfig")
+    finally:
+        fit_figure.save = original
+    plt.close("all")
+    check(len(figures) == 1, "fit figure: one figure per series")
+    every = figures[0] if figures else ""
+    check("1.605 .. 4734" in every, "fit figure: the log-scale parameter's stored interval 1.605 .. 4734 is not shown")
+    check("second warning: a value at its bound" in every, "fit figure: the fit's warnings are not shown")
+
+
 def main() -> int:
     with tempfile.TemporaryDirectory(prefix="thermorph_figures_") as name:
         tmp = Path(name)
         sys.path.insert(0, str(POSTPROC))   # the checkout's package (the installed one is checked below)
         check_cli_times()
+        check_fit_figure(tmp)
         full = check_figures(tmp)
         if EXE:
             check_steps(tmp, EXE)
