@@ -814,7 +814,6 @@ def main() -> int:
         tmp = Path(name)
         sys.path.insert(0, str(POSTPROC))   # the checkout's package (the installed one is checked below)
         check_cli_times()
-        check_fit_figure(tmp)
         full = check_figures(tmp)
         if EXE:
             check_steps(tmp, EXE)
@@ -827,6 +826,7 @@ def main() -> int:
             print("test_figures: no thermorph executable given (second argument): step drawing not checked")
         check_tidy(full, tmp)
         check_install(tmp, full, tmp / "sweep.h5")
+        check_fit_figure(tmp)   # last: it imports pyplot (fit_figure.py), which check_figures requires unimported
     if FAILURES:
         print(f"test_figures: {len(FAILURES)} check(s) failed")
         return 1
