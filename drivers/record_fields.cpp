@@ -25,7 +25,7 @@ FieldRecorder::FieldRecorder(ResultsFile& f, const Body& body) : body_(body) {
     f.writeArray(g + "/axial", m.axial, {m.axial.size()}, "m", "cell-centre distance from the proximal end");
     f.makeCoordinate(g + "/radius");
     f.makeCoordinate(g + "/axial");
-    f.writeIntArray(g + "/layer", m.layer, "1");
+    f.writeIntArray(g + "/layer", m.layer.expanded(), "1");
     f.setAttribute(g + "/layer", "long_name", std::string("layer index of each radial cell (see layer_names)"));
     f.writeStringArrayAttribute(g + "/layer", "layer_names", m.layerNames);
     f.attachDimensions(g + "/layer", {"radius"});

@@ -1266,27 +1266,21 @@ void Body::addSegment(const SegmentSpec& s, Index group, bool attached) {
   m.skinFirst = m.skinCell + 1 - s.layers.back().cells;
   // Cell labels are generated when a message asks for one, not stored per node (memory at 1e5 nodes).
   {
-    // The layer of each radial ring from the layers' first rings (a few per segment: the layers are contiguous
-    // runs of rings; not a name per ring, which held 4 MB of strings at 10^5 rings, nor an index per ring).
+    // The layer of each radial ring from the layers' runs of rings (RingLayers: not a name per ring, which held
+    // 4 MB of strings at 10^5 rings, nor an index per ring).
     struct Grid {
       std::string name;
       Index offset;
       int nz, nr;
       std::vector<std::string> layerNames;
-      std::vector<int> layerEnd;  //!< one past the last ring of each layer, in the order of layerNames
+      RingLayers layer;
     };
-    auto grid = std::make_shared<Grid>(Grid{s.name, m.offset, b.nz, b.nr, m.layerNames, {}});
-    for (int ir = 0; ir < b.nr; ++ir) {
-      const auto l = static_cast<std::size_t>(m.layer[static_cast<std::size_t>(ir)]);
-      if (grid->layerEnd.size() <= l) grid->layerEnd.resize(l + 1, ir);  // a layer without rings ends where it starts
-      grid->layerEnd[l] = ir + 1;
-    }
+    auto grid = std::make_shared<Grid>(Grid{s.name, m.offset, b.nz, b.nr, m.layerNames, m.layer});
     network_.labeler = [grid, previous = std::move(network_.labeler)](Index i) -> std::string {
       const Index cells = static_cast<Index>(grid->nz * grid->nr);
       if (i >= grid->offset && i < grid->offset + cells) {
         const int k = static_cast<int>(i - grid->offset);
-        const auto layer = std::upper_bound(grid->layerEnd.begin(), grid->layerEnd.end(), k % grid->nr) -
-                           grid->layerEnd.begin();
+        const auto layer = grid->layer[static_cast<std::size_t>(k % grid->nr)];
         return fmt::format("{}: axial {}, radial {} ({})", grid->name, k / grid->nr, k % grid->nr,
                            grid->layerNames[static_cast<std::size_t>(layer)]);
       }
@@ -1313,7 +1307,6 @@ Body::SegmentBuild Body::segmentTissues(const SegmentSpec& s, Index group, Segme
   b.group = group;
   int rings = s.coat ? s.coat->cells : 0;
   for (const auto& layer : s.layers) rings += layer.cells;
-  m.layer.reserve(static_cast<std::size_t>(rings));  // exact: no spare capacity kept for the run
   b.tissue.reserve(static_cast<std::size_t>(rings));
   for (std::size_t li = 0; li < s.layers.size(); ++li) {
     m.layerNames.push_back(s.layers[li].tissue);

@@ -1,6 +1,8 @@
 #pragma once
 //! Discretises a case into the thermal network: control volumes per segment, conductances, sources, faces.
+#include <algorithm>
 #include <memory>
+#include <stdexcept>
 #include <optional>
 #include <string>
 #include <utility>
@@ -16,6 +18,34 @@ namespace thermorph {
 //! Marks a blood node that does not exist because no blood flows there.
 inline constexpr Index noNode = static_cast<Index>(-1);
 
+//! The layer index of each radial ring of a segment (coat last). The layers are contiguous runs of rings in
+//! ascending order, so the runs' ends are kept (a few per segment), not an int per ring (0.4 MB at 10^5 rings).
+class RingLayers {
+ public:
+  //! Appends one ring of `layer` (not below the last ring's layer; layers skipped have no rings).
+  void push_back(int layer) {
+    const auto l = static_cast<std::size_t>(layer);
+    if (layer < 0 || l + 1 < end_.size()) throw std::logic_error("ring layers must come in ascending order");
+    while (end_.size() <= l) end_.push_back(rings_);
+    end_[l] = ++rings_;
+  }
+  //! Layer of ring `ring` (< size()).
+  int operator[](std::size_t ring) const {
+    return static_cast<int>(std::upper_bound(end_.begin(), end_.end(), ring) - end_.begin());
+  }
+  std::size_t size() const { return rings_; }
+  //! One entry per ring (for the results file).
+  std::vector<int> expanded() const {
+    std::vector<int> out(rings_);
+    for (std::size_t r = 0; r < rings_; ++r) out[r] = (*this)[r];
+    return out;
+  }
+
+ private:
+  std::vector<std::size_t> end_;  //!< one past the last ring of each layer
+  std::size_t rings_ = 0;
+};
+
 //! Where one segment's cells sit in the state vector and in space.
 struct SegmentMesh {
   std::string name;
@@ -25,7 +55,7 @@ struct SegmentMesh {
   int nr = 0;                       //!< radial cells, coat included
   std::vector<double> radius;       //!< [nr] cell-centre distance from the axis or mid-plane at mid-length [m]
   std::vector<double> axial;        //!< [nz] cell-centre distance from the proximal end [m]
-  std::vector<int> layer;           //!< [nr] layer index of each radial cell (coat last)
+  RingLayers layer;                 //!< [nr] layer index of each radial cell (coat last)
   std::vector<std::string> layerNames;  //!< tissue of each layer, then the coat material
   std::vector<Index> lateralFace;   //!< [nz] face index of the outer lateral face of each axial cell
   std::vector<double> volume;       //!< [nz * nr] cell volumes [m3]

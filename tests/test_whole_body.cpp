@@ -805,3 +805,44 @@ convection = 10
   CHECK(isolated.empty());
   CHECK_NOTHROW(runSteady(*body, silentRun()));
 }
+
+// The layer of each radial ring is kept as the layers' runs of rings (RingLayers) and the sources' channels and Q10
+// laws in 16 bits. Checked against the case text (the layers' cell counts, inside out, coat last); common practice,
+// no source.
+TEST_CASE("Ring layers follow the case's cell counts; 16-bit term indices refuse what does not fit", "[wholebody]") {
+  auto body = bodyFromToml(R"toml(
+[environment]
+temperature = "5 degC"
+convection = "10 W/(m2 K)"
+[[segments]]
+name = "trunk"
+shape = "cylinder"
+length = "20 cm"
+axial_cells = 2
+layers = [{ tissue = "viscera", thickness = "2 cm", cells = 3 }, { tissue = "muscle", thickness = "1 cm", cells = 1 },
+          { tissue = "fat", thickness = "0.5 cm", cells = 2 }]
+coat = { material = "fur", thickness = "1 cm", cells = 2 }
+)toml");
+  const SegmentMesh& m = body->segments().at(0);
+  const std::vector<int> expected{0, 0, 0, 1, 2, 2, 3, 3};  // 3 viscera, 1 muscle, 2 fat, 2 coat
+  REQUIRE(m.layer.size() == expected.size());
+  for (std::size_t r = 0; r < expected.size(); ++r) CHECK(m.layer[r] == expected[r]);
+  CHECK(m.layer.expanded() == expected);
+  // The labels name each cell's layer from the same runs.
+  CHECK_THAT(body->network().label(m.node(1, 3)), Catch::Contains("(muscle)"));
+  CHECK_THAT(body->network().label(m.node(0, 7)), Catch::Contains("(fur)"));
+  // A layer without rings between two others: its run is empty.
+  RingLayers gap;
+  for (int l : {0, 0, 2, 2, 2}) gap.push_back(l);
+  CHECK(gap.expanded() == std::vector<int>{0, 0, 2, 2, 2});
+  CHECK_THROWS_AS(gap.push_back(1), std::logic_error);
+
+  // Every source's channel and Q10 law read back as the names given to them.
+  const Network& n = body->network();
+  for (const HeatSource& s : n.sources) {
+    CHECK(n.channels.at(s.channel) == "metabolism");
+    CHECK(n.q10Laws.at(s.law).q10 > 1.0);
+  }
+  CHECK_THROWS_AS(Index16(65535), std::length_error);
+  CHECK(Index(Index16(65534)) == 65534);
+}
