@@ -26,34 +26,28 @@ using Index = std::size_t;
 //! "No such entry" for optional indices (modulator, control, schedule).
 inline constexpr Index none = static_cast<Index>(-1);
 
-//! An Index stored in 32 bits, for the endpoints, groups, channels and part ranges of the network's terms (there
-//! are several terms per node: at 10^5 nodes each 64-bit index costs about 1 MB). Written and read as an Index;
-//! an index that does not fit (none included) is refused where it is stored.
-class Index32 {
+//! An Index stored in the unsigned type U (a network index that does not fit, none included, is refused where it
+//! is stored; written and read as an Index). Index32: the endpoints, groups, channels and part ranges of the
+//! network's terms (there are several terms per node: at 10^5 nodes each 64-bit index costs about 1 MB). Index16:
+//! the few-valued indices of the heat sources (budget channel, Q10 law): a source is 20 bytes instead of 24 (at
+//! 10^5 cells 0.4 MB).
+template <class U>
+class CompactIndex {
+  static_assert(sizeof(U) == 2 || sizeof(U) == 4, "16- or 32-bit indices");
  public:
-  constexpr Index32() = default;
-  constexpr Index32(Index i) : value_(static_cast<std::uint32_t>(i)) {  // NOLINT: implicit on purpose
-    if (i >= std::uint32_t(-1)) throw std::length_error("a network index does not fit in 32 bits");
+  constexpr CompactIndex() = default;
+  constexpr CompactIndex(Index i) : value_(static_cast<U>(i)) {  // NOLINT: implicit on purpose
+    if (i >= U(-1))
+      throw std::length_error(sizeof(U) == 2 ? "a network index does not fit in 16 bits"
+                                             : "a network index does not fit in 32 bits");
   }
   constexpr operator Index() const { return value_; }  // NOLINT: implicit on purpose
 
  private:
-  std::uint32_t value_ = 0;
+  U value_ = 0;
 };
-
-//! An Index stored in 16 bits, for the few-valued indices of the heat sources (budget channel, Q10 law): a source
-//! is 20 bytes instead of 24 (at 10^5 cells 0.4 MB). An index that does not fit is refused where it is stored.
-class Index16 {
- public:
-  constexpr Index16() = default;
-  constexpr Index16(Index i) : value_(static_cast<std::uint16_t>(i)) {  // NOLINT: implicit on purpose
-    if (i >= std::uint16_t(-1)) throw std::length_error("a network index does not fit in 16 bits");
-  }
-  constexpr operator Index() const { return value_; }  // NOLINT: implicit on purpose
-
- private:
-  std::uint16_t value_ = 0;
-};
+using Index32 = CompactIndex<std::uint32_t>;
+using Index16 = CompactIndex<std::uint16_t>;
 
 //! An optional Index in 32 bits (none stays none): modulators of sources and flow parts.
 class OptionalIndex32 {
