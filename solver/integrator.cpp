@@ -321,16 +321,8 @@ void Integrator::advanceTo(double time) {
   int flag = CVode(mem, time, state_.get(), &reached, CV_NORMAL);
   wallSeconds_ += std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
   if (flag < 0) {
-    std::string message = failureMessage(flag);
     CVodeGetCurrentTime(mem, &time_);
-    if (guard_.error) {
-      try {
-        guard_.rethrow();
-      } catch (const std::exception& e) {
-        throw SolverError(message + "; cause: " + e.what());
-      }
-    }
-    throw SolverError(message);
+    throwFailure(flag);
   }
   time_ = time;
   checkFinite(state(), "the state");
@@ -358,16 +350,8 @@ bool Integrator::advanceTo(double time, const std::atomic<bool>& stop) {
   if (!stopped && flag >= 0) flag = CVodeGetDky(mem, time, 0, state_.get());
   wallSeconds_ += std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
   if (flag < 0) {
-    std::string message = failureMessage(flag);
     CVodeGetCurrentTime(mem, &time_);
-    if (guard_.error) {
-      try {
-        guard_.rethrow();
-      } catch (const std::exception& e) {
-        throw SolverError(message + "; cause: " + e.what());
-      }
-    }
-    throw SolverError(message);
+    throwFailure(flag);
   }
   time_ = stopped ? reached : time;
   checkFinite(state(), "the state");
@@ -392,6 +376,18 @@ bool Integrator::stepped() const {
   return steps > 0;
 }
 
+void Integrator::throwFailure(int flag) {
+  std::string message = failureMessage(flag);
+  if (guard_.error) {
+    try {
+      guard_.rethrow();
+    } catch (const std::exception& e) {
+      throw SolverError(message + "; cause: " + e.what());
+    }
+  }
+  throw SolverError(message);
+}
+
 void Integrator::firstStepToward(double target) {
   if (target <= time_ || stepped()) return;
   auto start = std::chrono::steady_clock::now();
@@ -403,17 +399,7 @@ void Integrator::firstStepToward(double target) {
   const int flag = CVode(mem, target, state_.get(), &reached, CV_ONE_STEP);
   std::copy(kept.begin(), kept.end(), view(state_.get()).begin());
   wallSeconds_ += std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
-  if (flag < 0) {
-    std::string message = failureMessage(flag);
-    if (guard_.error) {
-      try {
-        guard_.rethrow();
-      } catch (const std::exception& e) {
-        throw SolverError(message + "; cause: " + e.what());
-      }
-    }
-    throw SolverError(message);
-  }
+  if (flag < 0) throwFailure(flag);
 }
 
 SolverStatistics Integrator::statistics() const {

@@ -177,6 +177,8 @@ class Integrator {
                                   int jok, int* jcur, double gamma, void* self, _generic_N_Vector*,
                                   _generic_N_Vector*, _generic_N_Vector*);
   std::string failureMessage(int flag) const;
+  //! A SolverError for CVODE's failure `flag`, with the cause a callback raised (if any).
+  [[noreturn]] void throwFailure(int flag);
   static void errorHandler(int code, const char* module, const char* function, char* message, void* self);
   std::string lastMessage_;
   void checkFinite(std::span<const double> values, const char* what) const;
