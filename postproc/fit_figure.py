@@ -25,6 +25,8 @@ import numpy as np  # noqa: E402
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 from thermorph_post import CAUTION  # noqa: E402  (the text of models/caution.hpp)
+from thermorph_post.results import Results  # noqa: E402
+from thermorph_post.style import shade_events  # noqa: E402
 # Okabe & Ito (2008) colour-blind-safe colours.
 BLUE, VERMILLION, GREEN, ORANGE, GREY = "#0072B2", "#D55E00", "#009E73", "#E69F00", "#777777"
 
@@ -91,6 +93,12 @@ def fit_figures(f: h5py.File, out: Path, stem: str) -> list[Path]:
             bottom.set_ylabel(f"model − obs.\n[{unit}]")
             bottom.set_title(f"RMSE {rmse:.3g} {unit}", fontsize=7, loc="right")
         bottom.set_xlabel("time [h]")
+        # The fitted run's labelled events (a dive, an exposure) shaded as in figures.py, when the file has them.
+        if "events" in f and "time" in f:
+            res = Results(f.filename)
+            top.set_xlim(top.get_xlim())
+            shade_events(top, res, (3600.0, "h"))
+            shade_events(bottom, res, (3600.0, "h"), label=False)
         height = fig.get_figheight()
         fig.tight_layout(rect=(0, foot / height, 1, 1))  # makes room for the suptitle itself
         paths += save(fig, out, f"{stem}_fit_{k}")

@@ -776,7 +776,10 @@ def check_fit_figure(tmp: Path):
         t = np.linspace(0, 14400, 50)
         s["model_time"], s["model"] = t, 20 - 0.001 * t
         s["time"], s["observed"], s["residual"] = t[::5], 20 - 0.001 * t[::5], 0 * t[::5]
-    figures = []
+        f["time"] = t
+        ev = f.create_group("events")  # the fitted run's labelled span, 1 h to 2.5 h
+        ev["start"], ev["end"], ev["label"] = np.array([3600.0]), np.array([9000.0]), np.array([b"out"])
+    figures, spans = [], []
     original = fit_figure.save
 
     def keep(fig, out, name):
@@ -794,6 +797,7 @@ def check_fit_figure(tmp: Path):
             check(box.x0 >= -1 and box.x1 <= width + 1 and box.y0 >= -1 and box.y1 <= height + 1,
                   f"fit figure: text outside the figure: {artist.get_text()[:60]!r} at {box}")
         figures.append("\n".join(a.get_text() for a in fig.findobj(matplotlib.text.Text)))
+        spans.extend(getattr(ax, "thermorph_events", []) for ax in fig.axes)
         return original(fig, out, name)
 
     fit_figure.save = keep
@@ -807,6 +811,7 @@ def check_fit_figure(tmp: Path):
     every = figures[0] if figures else ""
     check("1.605 .. 4734" in every, "fit figure: the log-scale parameter's stored interval 1.605 .. 4734 is not shown")
     check("second warning: a value at its bound" in every, "fit figure: the fit's warnings are not shown")
+    check(spans == [[(3600.0, 9000.0, "out")]] * 2, f"fit figure: the stored event span not shaded on both panels: {spans}")
 
 
 def main() -> int:
