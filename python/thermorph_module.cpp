@@ -149,6 +149,7 @@ struct Collector {
   std::vector<std::vector<double>> energy;        //!< [channel][t]
   std::vector<std::vector<double>> fields;        //!< [segment][t * nz * nr] degC
   std::vector<std::vector<double>> segmentFlows;  //!< [segment * channels + c][t], one copy
+  std::vector<std::vector<double>> contact, inWater;  //!< [segment][t]: the interval's contact fraction, 1 in water
   std::vector<double> scratch;
 
   explicit Collector(const Body& b) : body(b) {
@@ -157,6 +158,8 @@ struct Collector {
     energy.resize(channels);
     fields.resize(segments);
     segmentFlows.resize(segments * (channels + 1));
+    contact.resize(segments);
+    inWater.resize(segments);
   }
 
   void operator()(double t, std::span<const double> y, const RunSummary& s) {
@@ -181,6 +184,9 @@ struct Collector {
         fields[g].push_back(y[m.offset + i] - kelvinOffset);
       for (std::size_t c = 0; c < channels; ++c) segmentFlows[g * (channels + 1) + c].push_back(s.flows[g * channels + c]);
       segmentFlows[g * (channels + 1) + channels].push_back(s.storage[g]);
+      // As the results file stores them (drivers/record_environment.cpp): the current interval's values.
+      contact[g].push_back(body.environment().contactFraction(g));
+      inWater[g].push_back(body.environment().immersed(g, t) ? 1.0 : 0.0);
     }
   }
 
@@ -209,6 +215,8 @@ struct Collector {
       d["radius"] = array(m.radius, {static_cast<py::ssize_t>(m.radius.size())});
       d["axial"] = array(m.axial, {static_cast<py::ssize_t>(m.axial.size())});
       d["count"] = m.weight;
+      d["contact_fraction"] = array(contact[g], {nt});
+      d["in_water"] = array(inWater[g], {nt});
       py::dict f;
       for (std::size_t c = 0; c < channels; ++c) f[py::str(n.channels[c])] = array(segmentFlows[g * (channels + 1) + c], {nt});
       f["storage"] = array(segmentFlows[g * (channels + 1) + channels], {nt});
@@ -354,7 +362,7 @@ PYBIND11_MODULE(thermorph, m) {
       py::arg("case"), py::arg("set") = std::vector<std::string>{}, py::arg("output") = "", py::arg("base") = ".",
       "Integrate a case (TOML path, TOML text or dict) with --set-style overrides (\"KEY=VALUE\"); returns a dict "
       "of NumPy arrays: time [s], core/blood/mean_skin_temperature [degC], heat_flow and cumulative_heat by "
-      "channel [W, J], segments[NAME] (temperature [nt, nz, nr] degC, radius, axial [m], heat_flow), budget "
+      "channel [W, J], segments[NAME] (temperature [nt, nz, nr] degC, radius, axial [m], heat_flow, contact_fraction, in_water), budget "
       "(flows at the last output, energies), warnings. `output` also writes the HDF5 results file; `base` is "
       "the folder for files a TOML string or dict names (weather files).");
   m.def(

@@ -53,6 +53,8 @@ def compare(r, h5):
             same(seg["radius"], g["radius"][()], f"{name} radius")
             for c, v in seg["heat_flow"].items():
                 same(v, g[f"heat_flow/{c}"][()], f"{name} heat_flow {c}")
+            for k in ("contact_fraction", "in_water"):
+                same(seg[k], g[k][()], f"{name} {k}")
         same(r["budget"]["energy_balance_error"], f["body/energy_balance_error"][-1], "energy balance error")
 
 
@@ -68,6 +70,21 @@ def main():
         check(r["time"].shape == (31,), f"time shape {r['time'].shape}")
         compare(r, cli)
         check("not veterinary or medical advice" in r["caution"], "caution missing")
+
+        # Contact and medium stepped by an event at 10 min: the module's series equal the file's and the event's
+        # own steps (contact 0 then 0.3, in water from 10 min; an output at the step holds the value after it).
+        step = ['events=[{ at = "10 min", environment = { medium = "water", temperature = "5 degC", speed = "0 m/s" },'
+                ' surface = { forelimb = { contact_fraction = 0.3 } } }]',
+                "environment.substrate_conductance=30 W/(m2 K)"]
+        ev_h5 = tmp / "events.h5"
+        subprocess.run([exe, "run", str(case), *sum([["--set", x] for x in sets + step], []), "-o", str(ev_h5), "-q"],
+                       check=True, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        r = thermorph.run(str(case), set=sets + step)
+        compare(r, ev_h5)
+        limb = r["segments"]["forelimb"]
+        after = r["time"] >= 600.0
+        same(limb["contact_fraction"], np.where(after, 0.3, 0.0), "forelimb contact_fraction against the event")
+        same(limb["in_water"], np.where(after, 1.0, 0.0), "forelimb in_water against the event")
 
         steady_h5 = tmp / "steady.h5"
         subprocess.run([exe, "steady", str(case), "-o", str(steady_h5), "-q"], check=True, stdout=subprocess.DEVNULL)
