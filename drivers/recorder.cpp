@@ -92,8 +92,7 @@ void Recorder::record(double t, std::span<const double> y, double initialStored,
 
 void Recorder::observe(double t, std::span<const double> y, double initialStored, RunSummary& scratch) {
   if (!observer_) return;
-  std::vector<double> faces;
-  budget_.compute(t, y, initialStored, scratch, faces, flows_);
+  budget_.compute(t, y, initialStored, scratch, faceTemperatures_, flows_);  // record() recomputes them
   observer_(t, y.first(system_.nodeCount()), scratch);
 }
 

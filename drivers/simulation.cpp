@@ -296,11 +296,13 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
         integrator->setStopTime(nextStop());
       }
       // Progress within long output intervals too: advance to interpolated intermediate times (CVODE's steps
-      // are not shortened by them), once a progress line can be shown (no interpolation nobody reads). Not as the
-      // first time after a (re)start: that time bounds CVODE's first step, and the steps, hence the results,
-      // depended on the wall clock (the day cycle refined 3x: 537 steps with progress lines, 523 without).
+      // are not shortened by them), once a progress line can be shown (no interpolation nobody reads). The first
+      // time after a (re)start bounds CVODE's first step, so the first step is taken towards t as without progress
+      // (firstStepToward; before, the steps and results depended on the wall clock: the day cycle refined 3x took
+      // 537 steps with progress lines, 523 without).
       if (summary.stopped || !observeBefore(t)) break;
-      if (progress.due() && integrator->stepped()) {
+      if (progress.due()) {
+        integrator->firstStepToward(t);
         const double from = integrator->time();
         for (int part = 1; part < 16 && !summary.stopped; ++part)
           if (advance(from + (t - from) * part / 16.0)) progress.report(integrator->time(), integrator->statistics().steps);

@@ -55,6 +55,7 @@ struct Sampled {
 
 struct RunOutput {
   bool ok = false;
+  bool refused = false;  //!< the case loader refused a sampled value (CaseError)
   std::string error;
   std::vector<double> metrics;
   std::vector<std::vector<double>> series;  // [series][output]
@@ -224,6 +225,9 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
       for (std::size_t s = 0; s < bands.series.size(); ++s) out.series.push_back(sampler.outputSeries(s));
       out.times = sampler.outputTimes();
       out.ok = true;
+    } catch (const CaseError& e) {
+      out.error = e.what();
+      out.refused = true;
     } catch (const std::exception& e) {
       out.error = e.what();
     }
@@ -259,7 +263,7 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
     for (std::size_t i = 1; i < runs; ++i)
       if (!outputs[i].ok) {
         if (first.empty()) first = outputs[i].error;
-        refused += outputs[i].error.find("(an override") != std::string::npos ? 1 : 0;
+        refused += outputs[i].refused ? 1 : 0;
       }
     std::string hint;
     if (refused > 0 && !o.fromFit.empty())
