@@ -8,7 +8,7 @@
 #
 #     PYTHONPATH=build/python /usr/bin/python3 docs/notebook_example.py
 #
-# Model estimates for research; not veterinary or medical advice. Follow local regulations, animal-welfare
+# Model estimates for research only; not veterinary or medical advice. Follow local regulations, animal-welfare
 # rules and licensed veterinary or medical practice.
 
 # %%

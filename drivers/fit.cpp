@@ -13,6 +13,7 @@
 #include <cmath>
 #include <filesystem>
 #include <fstream>
+#include <iterator>
 #include <limits>
 #include <map>
 #include <sstream>
@@ -814,6 +815,17 @@ FitResult runFit(const FitProblem& given) {
 
 // ---- the command ------------------------------------------------------------------------------------
 
+std::vector<std::string> fitSeriesNames(const ObservedData& data) {
+  std::map<std::string, int> seen;
+  std::vector<std::string> names;
+  for (const ObservedSeries& os : data.series) {
+    std::string name = os.quantity.name;
+    if (int k = seen[name]++; k > 0) name += fmt::format("#{}", k + 1);
+    names.push_back(name);
+  }
+  return names;
+}
+
 namespace {
 
 void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const FitOptions& o,
@@ -836,7 +848,10 @@ void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const 
   w.attribute("/fit", "grid_pinned", r.gridPinned ? 1.0 : 0.0);
   w.attribute("/fit", "step_tolerance_se", pb.stepTolerance);
   w.attribute("/fit", "command_line", o.commandLine);
-  w.attribute("/fit", "data_files", fmt::format("{}", fmt::join(o.data, "; ")));
+  std::vector<std::string> sources;  // the files (or in-memory tables) the series came from, in order
+  for (const ObservedSeries& os : pb.data.series)
+    if (std::find(sources.begin(), sources.end(), os.file) == sources.end()) sources.push_back(os.file);
+  w.attribute("/fit", "data_files", fmt::format("{}", fmt::join(sources, "; ")));
   w.attribute("/fit", "warnings", fmt::format("{}", fmt::join(r.warnings, "\n")));
   w.attribute("/fit", "method",
               "Ceres Solver, Levenberg-Marquardt with bounds; Jacobian columns by CVODES forward sensitivities where a "
@@ -902,14 +917,10 @@ void writeFitGroup(H5Writer& w, const FitProblem& pb, const FitResult& r, const 
   w.doubles("/fit/starts/cost", r.startCosts, {}, "1");
   // Series.
   std::size_t offset = 0;
-  std::map<std::string, int> seen;
-  std::vector<std::string> seriesNames;
+  const std::vector<std::string> seriesNames = fitSeriesNames(pb.data);
   for (std::size_t s = 0; s < pb.data.series.size(); ++s) {
     const ObservedSeries& os = pb.data.series[s];
-    std::string name = os.quantity.name;
-    if (int k = seen[name]++; k > 0) name += fmt::format("#{}", k + 1);
-    seriesNames.push_back(name);
-    const std::string g = "/fit/series/" + name;
+    const std::string g = "/fit/series/" + seriesNames[s];
     const std::size_t m = os.values.size();
     auto slice = [&](const std::vector<double>& v) {
       return v.size() >= offset + m ? std::vector<double>(v.begin() + static_cast<std::ptrdiff_t>(offset),
@@ -1024,26 +1035,26 @@ std::string stemOf(const std::string& output) {
   return (path.parent_path() / path.stem()).string();
 }
 
-void printGridCheck(const FitProblem& pb, const FitResult& r, const FitGridCheck& g) {
+void printGridCheck(std::string& out, const FitProblem& pb, const FitResult& r, const FitGridCheck& g) {
   if (g.refinement == 0) return;
   const std::size_t p = pb.parameters.size();
-  fmt::print("Grid check: one run at the fitted values on the grid refined {}x ({} nodes against the fit's {}; {:.3g} s)\n",
+  fmt::format_to(std::back_inserter(out), "Grid check: one run at the fitted values on the grid refined {}x ({} nodes against the fit's {}; {:.3g} s)\n",
              g.refinement, g.nodes, r.gridNodes, g.seconds);
   if (!g.ok) {
-    fmt::print("  no estimate: {}\n", g.error);
+    fmt::format_to(std::back_inserter(out), "  no estimate: {}\n", g.error);
     return;
   }
-  fmt::print("  change of the predictions, RMS in noise SDs (largest, in the series' unit):");
+  fmt::format_to(std::back_inserter(out), "  change of the predictions, RMS in noise SDs (largest, in the series' unit):");
   for (std::size_t s = 0; s < pb.data.series.size(); ++s)
-    fmt::print("{} {} {:.3g} ({:.3g} {})", s ? "," : "", pb.data.series[s].quantity.name, g.seriesRms[s], g.seriesMax[s],
+    fmt::format_to(std::back_inserter(out), "{} {} {:.3g} ({:.3g} {})", s ? "," : "", pb.data.series[s].quantity.name, g.seriesRms[s], g.seriesMax[s],
                pb.data.series[s].unit());
-  fmt::print("\n{:<44} {:>12} {:>9} {:>12} {:>9} {:>9}  {}\n", "parameter", "shift to Nx", "in SE", "bias (est.)",
+  fmt::format_to(std::back_inserter(out), "\n{:<44} {:>12} {:>9} {:>12} {:>9} {:>9}  {}\n", "parameter", "shift to Nx", "in SE", "bias (est.)",
              "in SE", "% value", "unit");
   for (std::size_t j = 0; j < p; ++j)
-    fmt::print("{:<44} {:>12.4g} {:>9.3f} {:>12.4g} {:>9.3f} {:>9.3f}  {}{}\n", pb.parameters[j].key, g.shift[j], g.shiftSe[j],
+    fmt::format_to(std::back_inserter(out), "{:<44} {:>12.4g} {:>9.3f} {:>12.4g} {:>9.3f} {:>9.3f}  {}{}\n", pb.parameters[j].key, g.shift[j], g.shiftSe[j],
                g.bias[j], g.biasSe[j], 100.0 * g.biasRelative[j], pb.parameters[j].unit.empty() ? "1" : pb.parameters[j].unit,
                g.held[j] ? " (held at its bound)" : "");
-  fmt::print("  shift: Gauss-Newton step from the fitted values towards the optimum on the refined grid, with the fit's "
+  fmt::format_to(std::back_inserter(out), "  shift: Gauss-Newton step from the fitted values towards the optimum on the refined grid, with the fit's "
              "Jacobian (first order);\n  bias: fitted value minus that of a converged grid, -shift x N^2/(N^2 - 1) "
              "for the scheme's order 2. {}\n",
              g.warnings.empty() ? fmt::format("Every bias is within {} SE and {} % of its value.", gridCheckSeFraction,
@@ -1052,46 +1063,55 @@ void printGridCheck(const FitProblem& pb, const FitResult& r, const FitGridCheck
                                               g.warnings.size(), gridCheckSeFraction, 100.0 * gridCheckRelative));
 }
 
-void printReport(const FitProblem& pb, const FitResult& r) {
+void printReport(std::string& out, const FitProblem& pb, const FitResult& r) {
   const std::size_t p = pb.parameters.size();
   long iterations = 0;
   for (const FitIteration& it : r.history) iterations += it.iteration > 0 ? 1 : 0;
-  fmt::print("Fit: {} observations in {} series, {} parameters; {} ({} iterations, {} model runs, {:.3g} s)\n", r.n,
+  fmt::format_to(std::back_inserter(out), "Fit: {} observations in {} series, {} parameters; {} ({} iterations, {} model runs, {:.3g} s)\n", r.n,
              pb.data.series.size(), p, r.converged ? "converged" : "NOT converged", iterations, r.runs, r.wallSeconds);
-  fmt::print("  {}\n", r.message);
+  fmt::format_to(std::back_inserter(out), "  {}\n", r.message);
   if (r.standardErrors.empty()) return;
-  fmt::print("{:<44} {:>14} {:>12} {:>30}  {}\n", "parameter", "value", "std. error", "95 % interval", "unit");
+  fmt::format_to(std::back_inserter(out), "{:<44} {:>14} {:>12} {:>30}  {}\n", "parameter", "value", "std. error", "95 % interval", "unit");
   for (std::size_t j = 0; j < p; ++j)
-    fmt::print("{:<44} {:>14.8g} {:>12.4g} {:>14.8g} .. {:<14.8g}  {}\n", pb.parameters[j].key, r.values[j],
+    fmt::format_to(std::back_inserter(out), "{:<44} {:>14.8g} {:>12.4g} {:>14.8g} .. {:<14.8g}  {}\n", pb.parameters[j].key, r.values[j],
                r.standardErrors[j], r.lower95[j], r.upper95[j], pb.parameters[j].unit.empty() ? "1" : pb.parameters[j].unit);
   if (p > 1) {
-    fmt::print("Correlation matrix:\n");
+    fmt::format_to(std::back_inserter(out), "Correlation matrix:\n");
     for (std::size_t a = 0; a < p; ++a) {
       std::string line = fmt::format("  {:<3}", a + 1);
       for (std::size_t b = 0; b < p; ++b) line += fmt::format(" {:>7.3f}", r.correlation[a * p + b]);
-      fmt::print("{}\n", line);
+      fmt::format_to(std::back_inserter(out), "{}\n", line);
     }
   }
   if (r.gradientMethods.size() == p) {
-    fmt::print("Jacobian columns:\n");
+    fmt::format_to(std::back_inserter(out), "Jacobian columns:\n");
     for (std::size_t j = 0; j < p; ++j)
-      fmt::print("  {:<44} {}{}\n", pb.parameters[j].key, r.gradientMethods[j],
+      fmt::format_to(std::back_inserter(out), "  {:<44} {}{}\n", pb.parameters[j].key, r.gradientMethods[j],
                  r.gradientReasons[j].empty() ? "" : " (" + r.gradientReasons[j] + ")");
   }
-  fmt::print("{:<44} {:>12} {:>8}\n", "series", "RMSE", "n");
+  fmt::format_to(std::back_inserter(out), "{:<44} {:>12} {:>8}\n", "series", "RMSE", "n");
   for (std::size_t s = 0; s < pb.data.series.size(); ++s)
-    fmt::print("{:<44} {:>12.4g} {:>8}  {}\n", pb.data.series[s].quantity.name, r.rmse[s],
+    fmt::format_to(std::back_inserter(out), "{:<44} {:>12.4g} {:>8}  {}\n", pb.data.series[s].quantity.name, r.rmse[s],
                pb.data.series[s].values.size(), pb.data.series[s].unit());
-  fmt::print("Weighted SSR {:.6g}, residual variance factor s^2 = {:.4g} (n - p = {}); AIC {:.4f}, BIC {:.4f}\n", r.ssr,
+  fmt::format_to(std::back_inserter(out), "Weighted SSR {:.6g}, residual variance factor s^2 = {:.4g} (n - p = {}); AIC {:.4f}, BIC {:.4f}\n", r.ssr,
              r.sigma2, r.n - p, r.aic, r.bic);
 }
 
 }  // namespace
 
-int runFitCommand(const FitOptions& o) {
+std::string fitReport(const FitProblem& pb, const FitResult& r, const FitGridCheck& grid) {
+  std::string out;
+  printReport(out, pb, r);
+  printGridCheck(out, pb, r, grid);
+  return out;
+}
+
+FitProblem makeFitProblem(const FitOptions& o, std::vector<std::string>& warnings) {
   FitProblem pb;
   pb.casePath = o.casePath;
-  {
+  if (!o.caseText.empty()) {
+    pb.caseText = o.caseText;
+  } else {
     std::ifstream in(o.casePath);
     if (!in) throw CaseError(fmt::format("{}: cannot open the case file", o.casePath));
     std::stringstream ss;
@@ -1104,13 +1124,14 @@ int runFitCommand(const FitOptions& o) {
     pb.overrides.push_back(fmt::format("run.atol={:g} K", o.rtol));
   }
   const Case base = loadCaseFromString(pb.caseText, pb.casePath, pb.overrides);
-  if (o.data.empty()) throw CaseError("fit: no observed data; give --data FILE.csv");
+  if (o.data.empty() && o.observed.series.empty()) throw CaseError("fit: no observed data; give --data FILE.csv");
   ObservedOptions readOptions;
   readOptions.startTime = o.dataStart;
   for (const std::string& file : o.data) {
     ObservedData d = readObservedCsv(file, readOptions);
     for (ObservedSeries& s : d.series) pb.data.series.push_back(std::move(s));
   }
+  for (const ObservedSeries& s : o.observed.series) pb.data.series.push_back(s);
   {
     Body body(base);
     checkObserved(pb.data, body);
@@ -1128,90 +1149,133 @@ int runFitCommand(const FitOptions& o) {
   if (pb.gradient != "auto" && pb.gradient != "fd")
     throw CaseError(fmt::format("--gradient {}: expected auto (CVODES sensitivities where possible) or fd", pb.gradient));
   if (!(pb.step > 0.0 && pb.step < 0.1)) throw CaseError(fmt::format("--step {}: must be between 0 and 0.1", pb.step));
+  if (o.multiStart < 1 || o.multiStart > 1000)
+    throw CaseError(fmt::format("--multi-start {}: expected 1 to 1000 starts", o.multiStart));
+  if (o.maxIterations < 1 || o.maxIterations > 10000)
+    throw CaseError(fmt::format("--max-iterations {}: expected 1 to 10000", o.maxIterations));
   bool mixed = false;
   for (const ObservedSeries& s : pb.data.series)
     mixed = mixed || (!s.sdGiven && s.quantity.temperature != pb.data.series.front().quantity.temperature);
   if (mixed)
-    fmt::print(stderr, "warning: series in different units (degC and W) without standard deviations (NAME.sd columns) "
-                       "are weighted 1 per unit; give sd columns to weight them properly\n");
-
-  const std::string output = o.output.empty() ? std::filesystem::path(o.casePath).stem().string() + "_fit.h5" : o.output;
-  if (auto dir = std::filesystem::path(output).parent_path(); !dir.empty() && !std::filesystem::is_directory(dir))
-    throw CaseError(fmt::format("-o {}: the folder {} does not exist", output, dir.string()));
-
+    warnings.push_back("series in different units (degC and W) without standard deviations (NAME.sd columns) are "
+                       "weighted 1 per unit; give sd columns to weight them properly");
+  if (!o.output.empty())
+    if (auto dir = std::filesystem::path(o.output).parent_path(); !dir.empty() && !std::filesystem::is_directory(dir))
+      throw CaseError(fmt::format("-o {}: the folder {} does not exist", o.output, dir.string()));
   if (o.gridCheck == 1 || o.gridCheck < 0 || o.gridCheck > 16)
     throw CaseError(fmt::format("--grid-check {}: expected 0 (no check) or a refinement from 2 to 16", o.gridCheck));
+  return pb;
+}
 
-  FitResult r = runFit(pb);
-  FitGridCheck grid;
-  if (r.converged && o.gridCheck >= 2) {
-    if (!pb.quiet)
-      fmt::print(stderr, "fit: grid check: one run at the fitted values on the grid refined {}x\n", o.gridCheck);
-    grid = gridCheck(pb, r, o.gridCheck);
-    for (const std::string& w : grid.warnings) r.warnings.push_back(w);
-    if (!grid.ok) r.warnings.push_back("grid check: no estimate: " + grid.error);
+FitOutcome fitAndCheck(const FitProblem& pb, int refinement) {
+  FitOutcome out;
+  FitResult& r = out.result;
+  r = runFit(pb);
+  if (r.converged && refinement >= 2) {
+    if (!pb.quiet) fmt::print(stderr, "fit: grid check: one run at the fitted values on the grid refined {}x\n", refinement);
+    out.grid = gridCheck(pb, r, refinement);
+    for (const std::string& w : out.grid.warnings) r.warnings.push_back(w);
+    if (!out.grid.ok) r.warnings.push_back("grid check: no estimate: " + out.grid.error);
   }
-  printReport(pb, r);
-  printGridCheck(pb, r, grid);
+  return out;
+}
+
+std::string writeIncompleteFit(const FitProblem& pb, const FitResult& r, const FitOptions& o, const std::string& output) {
+  const std::string partial = stemOf(output) + ".incomplete.h5";
+  {
+    H5Writer w(partial + ".tmp", false);
+    w.attribute("/", "complete", 0.0);
+    w.attribute("/", "caution", caution);
+    writeFitGroup(w, pb, r, o, {}, {});
+  }
+  std::filesystem::rename(partial + ".tmp", partial);
+  return partial;
+}
+
+Case fittedCase(const FitProblem& pb, const FitResult& r) {
+  // On the grid the fit's runs used (r.caseText, r.overrides: cell counts pinned at the start values).
+  std::vector<std::string> fitted = r.overrides;
+  for (std::size_t j = 0; j < r.values.size(); ++j) fitted.push_back(parameterOverride(pb.parameters[j], r.values[j]));
+  return loadCaseFromString(r.caseText, pb.casePath, fitted);
+}
+
+FittedRun runFitted(const FitProblem& pb, const FitOutcome& outcome, const FitOptions& o, const Body& body,
+                    const std::string& output, const OutputObserver& observer) {
+  const FitResult& r = outcome.result;
+  FittedRun out;
+  ObservationSampler sampler(pb.data, body);
+  const std::string running = output.empty() ? std::string() : output + ".fitting.h5";
+  RunOptions options;
+  options.output = running;
+  options.commandLine = o.commandLine;
+  options.quiet = true;
+  options.observer = [&](double t, std::span<const double> y, const RunSummary& s) {
+    sampler.observe(t, y, s);
+    if (observer) observer(t, y, s);
+  };
+  options.observerTimes = ObservationSampler::timesBetweenOutputs(pb.data, body.spec().run);
+  out.summary = runTransient(body, options);
+  if (!out.summary.complete) {
+    std::error_code ec;
+    if (!out.summary.outputPath.empty()) std::filesystem::remove(out.summary.outputPath, ec);
+    return out;
+  }
+  out.modelTimes = sampler.outputTimes();
+  for (std::size_t s = 0; s < pb.data.series.size(); ++s) out.modelSeries.push_back(sampler.outputSeries(s));
+  if (output.empty()) return out;
+  {
+    H5Writer w(running, true);
+    writeFitGroup(w, pb, r, o, out.modelSeries, out.modelTimes, outcome.grid);
+  }
+  std::filesystem::rename(running, output);
+  out.results = output;
+
+  const std::string fittedCasePath = stemOf(output) + "_fitted.toml";
+  {
+    std::ofstream file(fittedCasePath + ".tmp");
+    file << "# Fitted case written by `" << o.commandLine << "`\n";
+    file << "# " << caution << "\n# The fitted values (also in " << output << ", /fit):\n";
+    for (std::size_t j = 0; j < r.values.size(); ++j)
+      file << fmt::format("#   {} = {:.10g} {} (SE {:.4g}, 95 % interval {:.6g} .. {:.6g})\n", pb.parameters[j].key,
+                          r.values[j], pb.parameters[j].unit, r.standardErrors[j], r.lower95[j], r.upper95[j]);
+    file << "# Below: the fully resolved case with these values (SI units); `thermorph run` on this file reproduces\n"
+            "# the fitted run.\n\n";
+    file << resolvedCaseToml(body.spec());
+  }
+  std::filesystem::rename(fittedCasePath + ".tmp", fittedCasePath);
+  out.fittedCase = fittedCasePath;
+  return out;
+}
+
+int runFitCommand(const FitOptions& given) {
+  FitOptions o = given;
+  if (o.output.empty()) o.output = std::filesystem::path(o.casePath).stem().string() + "_fit.h5";
+  std::vector<std::string> inputWarnings;
+  const FitProblem pb = makeFitProblem(o, inputWarnings);
+  for (const std::string& w : inputWarnings) fmt::print(stderr, "warning: {}\n", w);
+  const std::string& output = o.output;
+
+  const FitOutcome outcome = fitAndCheck(pb, o.gridCheck);
+  const FitResult& r = outcome.result;
+  fmt::print("{}", fitReport(pb, r, outcome.grid));
   for (const std::string& w : r.warnings) fmt::print(stderr, "warning: {}\n", w);
 
   if (!r.converged) {
-    const std::string partial = stemOf(output) + ".incomplete.h5";
-    {
-      H5Writer w(partial + ".tmp", false);
-      w.attribute("/", "complete", 0.0);
-      w.attribute("/", "caution", caution);
-      writeFitGroup(w, pb, r, o, {}, {});
-    }
-    std::filesystem::rename(partial + ".tmp", partial);
+    const std::string partial = writeIncompleteFit(pb, r, o, output);
     fmt::print(stderr, "error: the fit did not converge: {}\nIteration history kept in {} (marked incomplete).\n",
                r.message, partial);
     return 3;
   }
 
   // The fitted run with its full results, then /fit, then the case file that reproduces it.
-  // On the grid the fit's runs used (r.caseText, r.overrides: cell counts pinned at the start values).
-  std::vector<std::string> fitted = r.overrides;
-  for (std::size_t j = 0; j < r.values.size(); ++j) fitted.push_back(parameterOverride(pb.parameters[j], r.values[j]));
-  const Case c = loadCaseFromString(r.caseText, pb.casePath, fitted);
+  const Case c = fittedCase(pb, r);
   Body body(c);
-  ObservationSampler sampler(pb.data, body);
-  const std::string running = output + ".fitting.h5";
-  RunOptions options;
-  options.output = running;
-  options.commandLine = o.commandLine;
-  options.quiet = true;
-  options.observer = [&](double t, std::span<const double> y, const RunSummary& s) { sampler.observe(t, y, s); };
-  options.observerTimes = ObservationSampler::timesBetweenOutputs(pb.data, c.run);
-  RunSummary summary = runTransient(body, options);
-  if (!summary.complete) {
-    std::error_code ec;
-    std::filesystem::remove(summary.outputPath, ec);
-    fmt::print(stderr, "error: the fitted run failed: {}\n", summary.failure);
+  const FittedRun fitted = runFitted(pb, outcome, o, body, output, nullptr);
+  if (!fitted.summary.complete) {
+    fmt::print(stderr, "error: the fitted run failed: {}\n", fitted.summary.failure);
     return 3;
   }
-  std::vector<std::vector<double>> modelSeries;
-  for (std::size_t s = 0; s < pb.data.series.size(); ++s) modelSeries.push_back(sampler.outputSeries(s));
-  {
-    H5Writer w(running, true);
-    writeFitGroup(w, pb, r, o, modelSeries, sampler.outputTimes(), grid);
-  }
-  std::filesystem::rename(running, output);
-
-  const std::string fittedCase = stemOf(output) + "_fitted.toml";
-  {
-    std::ofstream out(fittedCase + ".tmp");
-    out << "# Fitted case written by `" << o.commandLine << "`\n";
-    out << "# " << caution << "\n# The fitted values (also in " << output << ", /fit):\n";
-    for (std::size_t j = 0; j < r.values.size(); ++j)
-      out << fmt::format("#   {} = {:.10g} {} (SE {:.4g}, 95 % interval {:.6g} .. {:.6g})\n", pb.parameters[j].key,
-                         r.values[j], pb.parameters[j].unit, r.standardErrors[j], r.lower95[j], r.upper95[j]);
-    out << "# Below: the fully resolved case with these values (SI units); `thermorph run` on this file reproduces\n"
-           "# the fitted run.\n\n";
-    out << resolvedCaseToml(c);
-  }
-  std::filesystem::rename(fittedCase + ".tmp", fittedCase);
-  fmt::print("Results: {} (fitted run and /fit); fitted case: {}\n", output, fittedCase);
+  fmt::print("Results: {} (fitted run and /fit); fitted case: {}\n", fitted.results, fitted.fittedCase);
   fmt::print("Caution: {}\n", caution);
   return 0;
 }

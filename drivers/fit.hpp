@@ -155,10 +155,12 @@ FitResult runFit(const FitProblem& problem);
 
 //! The `fit` command line.
 struct FitOptions {
-  std::string casePath;
+  std::string casePath;              //!< the case file, or the name a case given as text goes by (relative files)
+  std::string caseText;              //!< the case as TOML text ("": read casePath)
   std::vector<std::string> overrides;
   std::vector<std::string> data;     //!< observed CSV files
   std::string dataStart;             //!< ISO date-time of t = 0 for datetime columns
+  ObservedData observed;             //!< observed series read elsewhere (the Python module's DataFrames), after the files
   std::vector<std::string> free, starts, priors;
   std::string output;                //!< HDF5 of the fitted run + /fit; the fitted case goes beside it
   int jobs = 0;
@@ -178,6 +180,46 @@ struct FitOptions {
   int gridCheck = 2;
   std::string commandLine;
 };
+
+//! The problem `fit` solves for these options: the case (text, or the file read), overrides with the fit's
+//! tolerances, the observed series (the files, then options.observed) checked against the body, the free
+//! parameters and the solver's settings. Appends warnings about the input (series in different units without
+//! standard deviations) to `warnings`. Throws CaseError for bad input (exit 2), naming file, column, key and unit.
+FitProblem makeFitProblem(const FitOptions& options, std::vector<std::string>& warnings);
+
+//! A fit and its grid check (none when `gridCheck` is 0 or the fit did not converge); the check's warnings are
+//! added to the result's.
+struct FitOutcome {
+  FitResult result;
+  FitGridCheck grid;
+};
+FitOutcome fitAndCheck(const FitProblem& problem, int gridCheck);
+
+//! The names of the observed series in results (/fit/series/NAME): the output's name, "#2", "#3" after repeats.
+std::vector<std::string> fitSeriesNames(const ObservedData& data);
+
+//! The report `fit` prints: parameters (value, SE, 95 % interval), correlations, Jacobian methods, RMSE per series,
+//! SSR, s^2, AIC/BIC, and the grid check.
+std::string fitReport(const FitProblem& problem, const FitResult& result, const FitGridCheck& grid);
+
+//! The case at the fitted values, on the grid the fit's runs used (result.caseText, result.overrides).
+Case fittedCase(const FitProblem& problem, const FitResult& result);
+
+//! The fitted run: `body` (built from fittedCase) run with the observation sampler and `observer` (optional).
+//! With an `output`, its results go there with the /fit group (written as OUTPUT.fitting.h5, then renamed) and
+//! the fitted case beside it as STEM_fitted.toml; without, no file. summary.complete false: the run failed (no file).
+struct FittedRun {
+  RunSummary summary;
+  std::string results, fittedCase;  //!< the files written ("" without an output)
+  std::vector<double> modelTimes;   //!< the run's output times [s]
+  std::vector<std::vector<double>> modelSeries;  //!< per observed series: the model at every output
+};
+FittedRun runFitted(const FitProblem& problem, const FitOutcome& outcome, const FitOptions& options, const Body& body,
+                    const std::string& output, const OutputObserver& observer);
+
+//! A fit that did not converge: its history in STEM.incomplete.h5 beside `output` (returns the path).
+std::string writeIncompleteFit(const FitProblem& problem, const FitResult& result, const FitOptions& options,
+                               const std::string& output);
 
 //! Run the `fit` command: exit 0, 2 (bad input) or 3 (no convergence or a model failure; history written).
 int runFitCommand(const FitOptions& options);

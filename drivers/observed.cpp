@@ -159,21 +159,45 @@ ObservedQuantity parseObservedQuantity(const std::string& name, const std::strin
 ObservedData readObservedCsv(const std::string& path, const ObservedOptions& options) {
   std::ifstream in(path);
   if (!in) throw CaseError(fmt::format("{}: cannot open the observed-data file", path));
-  ObservedData data;
+  ObservedTable table;
+  table.source = path;
   std::string line;
   int lineNumber = 0;
-  std::vector<std::string> header;
   int headerLine = 0;
+  std::vector<int> lines;  // line of each row
   while (std::getline(in, line)) {
     ++lineNumber;
     std::string t = trim(line);
     if (t.empty() || t[0] == '#') continue;
-    header = splitCsv(line);
-    headerLine = lineNumber;
-    break;
+    if (headerLine == 0) {
+      table.header = splitCsv(line);
+      headerLine = lineNumber;
+    } else {
+      table.rows.push_back(splitCsv(line));
+      lines.push_back(lineNumber);
+    }
   }
-  if (header.empty()) throw CaseError(fmt::format("{}: no header line (expected e.g. \"time [h], body.core_temperature [degC]\")", path));
-  auto at = [&](int ln, std::size_t column) { return fmt::format("{}:{}: column {}", path, ln, column + 1); };
+  if (table.header.empty())
+    throw CaseError(fmt::format("{}: no header line (expected e.g. \"time [h], body.core_temperature [degC]\")", path));
+  table.headerPlace = fmt::format(" (line {})", headerLine);
+  table.where = [&](std::size_t row, std::size_t column) {
+    const int ln = row == ObservedTable::header_row ? headerLine : lines[row];
+    return column == ObservedTable::no_column ? fmt::format("{}:{}", path, ln)
+                                              : fmt::format("{}:{}: column {}", path, ln, column + 1);
+  };
+  return readObservedTable(table, options);
+}
+
+ObservedData readObservedTable(const ObservedTable& table, const ObservedOptions& options) {
+  ObservedData data;
+  const std::string& path = table.source;
+  const std::vector<std::string>& header = table.header;
+  if (header.empty()) throw CaseError(fmt::format("{}: no columns (expected e.g. \"time [h]\", \"body.core_temperature [degC]\")", path));
+  constexpr std::size_t headerLine = ObservedTable::header_row;
+  auto at = [&](std::size_t row, std::size_t column) { return table.where(row, column); };
+  auto columnNumber = [&](std::size_t c) {
+    return c < table.columnNumbers.size() ? table.columnNumbers[c] : static_cast<int>(c + 1);
+  };
 
   // The time column.
   auto [timeName, timeUnit] = nameUnit(header[0]);
@@ -185,12 +209,13 @@ ObservedData readObservedCsv(const std::string& path, const ObservedOptions& opt
   double startEpoch = 0.0;
   if (iso) {
     if (options.startTime.empty())
-      throw CaseError(fmt::format("{}: a datetime column needs the date-time of the run's start (--data-start, e.g. "
+      throw CaseError(fmt::format("{}: a datetime column needs the date-time of the run's start ({}, e.g. "
                                   "2026-06-01T06:00)",
-                                  at(headerLine, 0)));
+                                  at(headerLine, 0), options.startOption));
     startEpoch = isoSeconds(options.startTime);
     if (std::isnan(startEpoch))
-      throw CaseError(fmt::format("--data-start {}: not an ISO 8601 date-time (YYYY-MM-DDTHH:MM[:SS])", options.startTime));
+      throw CaseError(fmt::format("{} {}: not an ISO 8601 date-time (YYYY-MM-DDTHH:MM[:SS])", options.startOption,
+                                  options.startTime));
   } else if (timeUnit.empty() || !unitConvertible(timeUnit, "s")) {
     throw CaseError(fmt::format("{}: \"{}\": the time needs a time unit in brackets, e.g. time [h]", at(headerLine, 0),
                                 header[0]));
@@ -217,7 +242,7 @@ ObservedData readObservedCsv(const std::string& path, const ObservedOptions& opt
     if (byName.count(name)) throw CaseError(fmt::format("{}: \"{}\" appears twice", at(headerLine, c), name));
     ObservedSeries s;
     s.file = path;
-    s.column = static_cast<int>(c + 1);
+    s.column = columnNumber(c);
     s.quantity = parseObservedQuantity(name, at(headerLine, c));
     s.fileUnit = unit;
     const char* si = s.quantity.temperature ? "K" : "W";
@@ -253,28 +278,26 @@ ObservedData readObservedCsv(const std::string& path, const ObservedOptions& opt
   std::vector<double> lastSd(data.series.size(), 1.0);
   double previousTime = -std::numeric_limits<double>::infinity();
   bool anyRow = false;
-  while (std::getline(in, line)) {
-    ++lineNumber;
-    std::string t = trim(line);
-    if (t.empty() || t[0] == '#') continue;
-    std::vector<std::string> cells = splitCsv(line);
+  for (std::size_t row = 0; row < table.rows.size(); ++row) {
+    const std::vector<std::string>& cells = table.rows[row];
     if (cells.size() != header.size())
-      throw CaseError(fmt::format("{}:{}: {} cells; the header has {}", path, lineNumber, cells.size(), header.size()));
+      throw CaseError(fmt::format("{}: {} cells; the header has {}", at(row, ObservedTable::no_column), cells.size(),
+                                  header.size()));
     double time = nan;
     if (iso) {
       double epoch = isoSeconds(cells[0]);
       if (std::isnan(epoch))
-        throw CaseError(fmt::format("{}: \"{}\" is not an ISO 8601 date-time", at(lineNumber, 0), cells[0]));
+        throw CaseError(fmt::format("{}: \"{}\" is not an ISO 8601 date-time", at(row, 0), cells[0]));
       time = epoch - startEpoch;
     } else {
       char* end = nullptr;
       double v = std::strtod(cells[0].c_str(), &end);
       if (cells[0].empty() || *end != '\0' || !std::isfinite(v))
-        throw CaseError(fmt::format("{}: \"{}\" is not a number", at(lineNumber, 0), cells[0]));
+        throw CaseError(fmt::format("{}: \"{}\" is not a number", at(row, 0), cells[0]));
       time = convertUnit(v, timeUnit, "s");
     }
     if (!(time > previousTime))
-      throw CaseError(fmt::format("{}: time {:g} s is not after the previous row's", at(lineNumber, 0), time));
+      throw CaseError(fmt::format("{}: time {:g} s is not after the previous row's", at(row, 0), time));
     previousTime = time;
     anyRow = true;
     // sd cells first (they apply to this row's values).
@@ -283,7 +306,7 @@ ObservedData readObservedCsv(const std::string& path, const ObservedOptions& opt
       char* end = nullptr;
       double v = std::strtod(cells[c].c_str(), &end);
       if (*end != '\0' || !(v > 0.0) || !std::isfinite(v))
-        throw CaseError(fmt::format("{}: standard deviation \"{}\" must be a positive number", at(lineNumber, c), cells[c]));
+        throw CaseError(fmt::format("{}: standard deviation \"{}\" must be a positive number", at(row, c), cells[c]));
       const ObservedSeries& s = data.series[columns[c].series];
       lastSd[columns[c].series] = differenceToModel(v, columns[c].unit, s.quantity.temperature);
     }
@@ -293,14 +316,14 @@ ObservedData readObservedCsv(const std::string& path, const ObservedOptions& opt
       double v = std::strtod(cells[c].c_str(), &end);
       if (*end != '\0' || !std::isfinite(v))
         throw CaseError(fmt::format("{}: \"{}\" is not a number (leave the cell blank or write NA when missing)",
-                                    at(lineNumber, c), cells[c]));
+                                    at(row, c), cells[c]));
       ObservedSeries& s = data.series[columns[c].series];
       s.times.push_back(time);
       s.values.push_back(toModel(v, columns[c].unit, s.quantity.temperature));
       s.sd.push_back(lastSd[columns[c].series]);
     }
   }
-  if (!anyRow) throw CaseError(fmt::format("{}: no data rows after the header (line {})", path, headerLine));
+  if (!anyRow) throw CaseError(fmt::format("{}: no data rows after the header{}", path, table.headerPlace));
   for (const ObservedSeries& s : data.series)
     if (s.values.empty())
       throw CaseError(fmt::format("{}: column {} \"{}\": every value is missing", path, s.column, s.quantity.name));

@@ -2,6 +2,7 @@
 //! Observed data (logger series) for fits: a CSV file whose columns map to model outputs, and the sampler that
 //! reads the same quantities from a run at the observation times.
 #include <cstddef>
+#include <functional>
 #include <optional>
 #include <span>
 #include <string>
@@ -46,6 +47,23 @@ struct ObservedData {
 struct ObservedOptions {
   //! ISO 8601 date-time of t = 0 of the run ("2026-06-01T06:00"), needed for a `datetime` time column.
   std::string startTime;
+  //! How messages name the start time's option (the Python module: data_start=).
+  std::string startOption = "--data-start";
+};
+
+//! Observed data as a table of text cells, wherever it came from (a CSV file, a pandas DataFrame in the Python
+//! module): the header (`time [UNIT]` or `datetime` first, then `NAME [UNIT]` and `NAME.sd [UNIT]` columns) and the
+//! rows, each with as many cells as the header. Numbers are read with strtod; blank, `NA` and `nan` are missing.
+struct ObservedTable {
+  static constexpr std::size_t header_row = static_cast<std::size_t>(-1);
+  static constexpr std::size_t no_column = static_cast<std::size_t>(-1);
+  std::string source;                          //!< names the data in messages and ObservedSeries::file
+  std::vector<std::string> header;
+  std::vector<std::vector<std::string>> rows;
+  std::vector<int> columnNumbers;              //!< ObservedSeries::column of each table column (default: index + 1)
+  std::string headerPlace;                     //!< said after "no data rows after the header" (a file: " (line N)")
+  //! Where a cell is, for messages ("FILE:LINE: column C"); row header_row: the header; column no_column: the row.
+  std::function<std::string(std::size_t row, std::size_t column)> where;
 };
 
 //! Parse a model-output name ("body.core_temperature", "segments.leg.temperature.muscle@0.5", ...). Throws
@@ -59,6 +77,8 @@ ObservedQuantity parseObservedQuantity(const std::string& name, const std::strin
 //! Throws CaseError (exit 2) naming file, line and column: unknown output, unit of the wrong kind, bad
 //! number, times not increasing, a column with no value.
 ObservedData readObservedCsv(const std::string& path, const ObservedOptions& options = {});
+//! The same checks and conversions on a table (readObservedCsv reads the file into one).
+ObservedData readObservedTable(const ObservedTable& table, const ObservedOptions& options = {});
 
 //! Check the series against a built body: segments, channels and layers exist, every time lies within the run
 //! [0, run.duration]. Throws CaseError naming the file, column and key.

@@ -5,25 +5,29 @@
 //!   r = thermorph.run("cases/limb_cooling.toml", set=["environment.temperature=5 degC"])
 //!   r["time"], r["core_temperature"], r["segments"]["forelimb"]["temperature"], r["heat_flow"]["convection"]
 //!
-//! Model estimates for research; not veterinary or medical advice.
+//! Model estimates for research only; not veterinary or medical advice (models/caution.hpp, thermorph.CAUTION).
 #include <pybind11/numpy.h>
 #include <pybind11/pybind11.h>
 #include <pybind11/stl.h>
 
 #include <atomic>
 #include <cctype>
+#include <cmath>
 #include <filesystem>
 #include <optional>
 #include <sstream>
 
+#include <fmt/format.h>
 #include <toml++/toml.h>
 
+#include "drivers/fit.hpp"
 #include "drivers/record_budget.hpp"
 #include "drivers/record_fields.hpp"
 #include "drivers/simulation.hpp"
 #include "drivers/sweep.hpp"
 #include "models/body.hpp"
 #include "models/case.hpp"
+#include "models/caution.hpp"
 
 namespace py = pybind11;
 using namespace thermorph;
@@ -31,9 +35,6 @@ using namespace thermorph;
 namespace {
 
 constexpr double kelvinOffset = 273.15;
-const char* caution =
-    "Model estimates for research; not veterinary or medical advice. Follow local regulations, animal-welfare "
-    "rules and licensed veterinary or medical practice.";
 
 // ---- case from a path, a TOML string or a dict ------------------------------------------------------------
 
@@ -100,36 +101,44 @@ std::string caseMessage(std::string message, const std::string& source, const ch
   return message;
 }
 
-//! A case given to the module, and how its messages are to be named.
-struct LoadedCase {
-  Case c;
-  std::string source;  //!< the source name of a dict or text case (messages are rewritten), empty for a file
+//! Where a case given to the module comes from, and how its messages are to be named.
+struct CaseSource {
+  std::string path;    //!< the file, or the source name of a dict or text case
+  std::string text;    //!< the TOML text of a dict or text case
+  bool file = false;
   bool dict = false;
   std::string message(const std::string& m) const {
-    return source.empty() ? m : caseMessage(m, source, dict ? kDictCase : kTextCase, !dict);
+    return file ? m : caseMessage(m, path, dict ? kDictCase : kTextCase, !dict);
   }
 };
 
-//! A Case from a TOML path, a TOML string or a dict (a dict or string reads relative files from `base`). A string
-//! is named "<case text>" with its own lines and columns; a dict "<case dict>" with key paths only (caseMessage).
-LoadedCase loadAny(const py::object& spec, const std::vector<std::string>& overrides, const std::string& base) {
+//! A TOML path, a TOML string or a dict (a dict or string reads relative files from `base`). A string is named
+//! "<case text>" with its own lines and columns; a dict "<case dict>" with key paths only (caseMessage).
+CaseSource caseSource(const py::object& spec, const std::string& base) {
   if (py::isinstance<py::dict>(spec)) {
     std::ostringstream text;
     text << toTable(spec.cast<py::dict>());
-    const std::string source = sourceName(base, kDictCase);
-    try {
-      return {loadCaseFromString(text.str(), source, overrides), source, true};
-    } catch (const CaseError& e) {
-      throw CaseError(caseMessage(e.what(), source, kDictCase, false));
-    }
+    return {sourceName(base, kDictCase), text.str(), false, true};
   }
   const std::string s = py::str(spec).cast<std::string>();
-  if (s.find('\n') == std::string::npos && std::filesystem::is_regular_file(s)) return {loadCase(s, overrides), "", false};
-  const std::string source = sourceName(base, kTextCase);
+  if (s.find('\n') == std::string::npos && std::filesystem::is_regular_file(s)) return {s, "", true, false};
+  return {sourceName(base, kTextCase), s, false, false};
+}
+
+//! A case given to the module, and how its messages are to be named.
+struct LoadedCase {
+  Case c;
+  CaseSource from;
+  std::string message(const std::string& m) const { return from.message(m); }
+};
+
+LoadedCase loadAny(const py::object& spec, const std::vector<std::string>& overrides, const std::string& base) {
+  CaseSource from = caseSource(spec, base);
+  if (from.file) return {loadCase(from.path, overrides), from};
   try {
-    return {loadCaseFromString(s, source, overrides), source, false};
+    return {loadCaseFromString(from.text, from.path, overrides), from};
   } catch (const CaseError& e) {
-    throw CaseError(caseMessage(e.what(), source, kTextCase, true));
+    throw CaseError(from.message(e.what()));
   }
 }
 
@@ -345,6 +354,376 @@ py::dict runSweep(const std::string& casePath, const std::vector<std::string>& v
   return r;
 }
 
+// ---- fit -----------------------------------------------------------------------------------------------
+
+//! A str or a list of str (a single --free, --set, ... given as one string).
+std::vector<std::string> strings(const py::object& o, const char* what) {
+  std::vector<std::string> out;
+  if (o.is_none()) return out;
+  if (py::isinstance<py::str>(o)) return {o.cast<std::string>()};
+  try {
+    for (const py::handle& item : o) out.push_back(py::str(item).cast<std::string>());
+  } catch (const py::error_already_set&) {
+    throw py::type_error(std::string(what) + ": expected a string or a list of strings");
+  }
+  return out;
+}
+
+//! An ISO 8601 text of a date-time given as text, datetime.datetime or pandas.Timestamp (aware ones in UTC).
+std::string isoText(const py::handle& v) {
+  if (py::isinstance<py::str>(v)) return v.cast<std::string>();
+  if (py::hasattr(v, "isoformat")) {
+    py::object t = py::reinterpret_borrow<py::object>(v);
+    if (py::hasattr(t, "tzinfo") && !t.attr("tzinfo").is_none()) {
+      py::object utc = py::module_::import("datetime").attr("timezone").attr("utc");
+      t = t.attr("astimezone")(utc).attr("replace")(py::arg("tzinfo") = py::none());
+    }
+    return t.attr("isoformat")().cast<std::string>();
+  }
+  return py::str(v).cast<std::string>();
+}
+
+//! The cells of one column as text, as a CSV file would give them: numbers to 17 digits ("nan" where missing),
+//! datetime64 and datetime objects as ISO 8601 (aware ones in UTC), None, NaN and NaT as missing ("").
+std::vector<std::string> columnCells(const py::handle& column, bool& datetime) {
+  py::module_ np = py::module_::import("numpy");
+  py::object values = py::reinterpret_borrow<py::object>(column);
+  // A pandas column of time-zone-aware date-times: in UTC, then naive.
+  if (py::hasattr(values, "dt") && py::hasattr(values, "dtype") && py::hasattr(values.attr("dtype"), "tz") &&
+      !values.attr("dtype").attr("tz").is_none())
+    values = values.attr("dt").attr("tz_convert")("UTC").attr("dt").attr("tz_localize")(py::none());
+  py::array a = np.attr("asarray")(values);
+  if (a.ndim() != 1) throw CaseError("a column with " + std::to_string(a.ndim()) + " dimensions; expected one value per row");
+  const char kind = a.dtype().kind();
+  std::vector<std::string> out;
+  if (kind == 'M') {
+    datetime = true;
+    py::list texts = np.attr("datetime_as_string")(a.attr("astype")("datetime64[us]"), py::arg("unit") = "us").attr("tolist")();
+    for (const py::handle& t : texts) {
+      std::string text = t.cast<std::string>();
+      out.push_back(text == "NaT" ? std::string() : text);
+    }
+    return out;
+  }
+  if (kind == 'f' || kind == 'i' || kind == 'u' || kind == 'b') {
+    py::array_t<double, py::array::forcecast> d(a);
+    for (py::ssize_t i = 0; i < d.size(); ++i)
+      out.push_back(std::isnan(d.at(i)) ? std::string("nan") : fmt::format("{:.17g}", d.at(i)));
+    return out;
+  }
+  bool anyDate = false;
+  for (const py::handle& v : a.attr("tolist")()) {
+    if (v.is_none() || (py::isinstance<py::float_>(v) && std::isnan(v.cast<double>()))) {
+      out.emplace_back();
+    } else if (py::isinstance<py::int_>(v) || py::isinstance<py::float_>(v)) {
+      out.push_back(fmt::format("{:.17g}", v.cast<double>()));
+    } else if (!py::isinstance<py::str>(v) && py::hasattr(v, "isoformat")) {
+      anyDate = true;
+      const std::string text = py::str(v).cast<std::string>();
+      out.push_back(text == "NaT" ? std::string() : isoText(v));
+    } else {
+      out.push_back(py::str(v).cast<std::string>());
+    }
+  }
+  datetime = datetime || anyDate;
+  return out;
+}
+
+//! Observed data given as a pandas DataFrame or a dict of arrays, read as a CSV file is (drivers/observed.cpp):
+//! columns named as in the file's header (`NAME [UNIT]`, `NAME.sd [UNIT]`); the time in a column `time [UNIT]`
+//! (a bare `time`: seconds), or date-times in a column `datetime` or `time` or the DataFrame's index, with
+//! data_start. Messages name the table, the row (0-based) and the column's label.
+ObservedData observedFromTable(const py::handle& table, const std::string& source, const ObservedOptions& options) {
+  const bool frame = py::hasattr(table, "columns") && py::hasattr(table, "index");
+  std::vector<std::string> labels;
+  std::vector<py::object> columns;
+  if (frame) {
+    for (const py::handle& c : table.attr("columns")) {
+      labels.push_back(py::str(c).cast<std::string>());
+      columns.push_back(table.attr("__getitem__")(c));
+    }
+  } else {
+    for (const auto& [k, v] : table.cast<py::dict>()) {
+      labels.push_back(py::str(k).cast<std::string>());
+      columns.push_back(py::reinterpret_borrow<py::object>(v));
+    }
+  }
+  auto baseName = [](const std::string& label) {
+    std::string name = label.substr(0, label.find('['));
+    name.erase(name.find_last_not_of(" \t") + 1);
+    name.erase(0, std::min(name.size(), name.find_first_not_of(" \t")));
+    return name;
+  };
+  // The time: a column, else the DataFrame's index.
+  std::size_t timeColumn = labels.size();
+  for (std::size_t c = 0; c < labels.size() && timeColumn == labels.size(); ++c)
+    if (baseName(labels[c]) == "time" || baseName(labels[c]) == "datetime") timeColumn = c;
+  ObservedTable t;
+  t.source = source;
+  std::vector<std::vector<std::string>> cells;
+  std::string timeLabel;
+  bool datetime = false;
+  std::vector<std::size_t> order;  // table column -> labels index (labels.size(): the index)
+  if (timeColumn < labels.size()) {
+    timeLabel = labels[timeColumn];
+    cells.push_back(columnCells(columns[timeColumn], datetime));
+  } else {
+    const py::object index = frame ? py::object(table.attr("index")) : py::object();
+    bool dates = false;
+    if (frame) {
+      const std::string name = index.attr("name").is_none() ? "" : py::str(index.attr("name")).cast<std::string>();
+      std::vector<std::string> c = columnCells(index, dates);
+      if (dates || baseName(name) == "time" || baseName(name) == "datetime") {
+        timeLabel = name.empty() ? "datetime" : name;
+        datetime = dates;
+        cells.push_back(std::move(c));
+      }
+    }
+    if (cells.empty())
+      throw CaseError(fmt::format("{}: no time column; expected a column \"time [UNIT]\" (e.g. \"time [h]\"; a bare \"time\" "
+                                  "is in seconds) or \"datetime\" (date-times, with data_start=){}; columns: {}",
+                                  source, frame ? ", or a DatetimeIndex" : "", fmt::join(labels, ", ")));
+  }
+  order.push_back(timeColumn);
+  const std::string timeName = baseName(timeLabel);
+  t.header.push_back(datetime || timeName == "datetime" ? "datetime"
+                     : timeLabel.find('[') == std::string::npos ? "time [s]"
+                                                                : timeLabel);
+  t.columnNumbers.push_back(timeColumn < labels.size() ? static_cast<int>(timeColumn + 1) : 0);
+  for (std::size_t c = 0; c < labels.size(); ++c) {
+    if (c == timeColumn) continue;
+    bool dates = false;
+    try {
+      cells.push_back(columnCells(columns[c], dates));
+    } catch (const CaseError& e) {
+      throw CaseError(fmt::format("{}: column \"{}\": {}", source, labels[c], e.what()));
+    }
+    t.header.push_back(labels[c]);
+    t.columnNumbers.push_back(static_cast<int>(c + 1));
+    order.push_back(c);
+  }
+  const std::size_t rows = cells.front().size();
+  for (std::size_t c = 1; c < cells.size(); ++c)
+    if (cells[c].size() != rows)
+      throw CaseError(fmt::format("{}: column \"{}\" has {} values; the time has {}", source, t.header[c], cells[c].size(), rows));
+  t.rows.assign(rows, std::vector<std::string>(cells.size()));
+  for (std::size_t c = 0; c < cells.size(); ++c)
+    for (std::size_t i = 0; i < rows; ++i) t.rows[i][c] = std::move(cells[c][i]);
+  const std::string timeShown = timeLabel.empty() ? std::string("index") : timeLabel;
+  t.where = [&](std::size_t row, std::size_t column) {
+    const std::string label = column == ObservedTable::no_column ? std::string()
+                              : order[column] < labels.size()   ? labels[order[column]]
+                                                                : timeShown;
+    if (row == ObservedTable::header_row) return fmt::format("{}: column \"{}\"", source, label);
+    if (column == ObservedTable::no_column) return fmt::format("{}: row {} (0-based)", source, row);
+    return fmt::format("{}: row {} (0-based), column \"{}\"", source, row, label);
+  };
+  return readObservedTable(t, options);
+}
+
+py::array_t<double> matrix(const std::vector<double>& values, std::size_t p) {
+  return array(values, {static_cast<py::ssize_t>(p), static_cast<py::ssize_t>(p)});
+}
+
+py::dict runFitPython(const py::object& spec, const py::object& data, const py::object& freeKeys, const py::object& set,
+                      const py::object& start, const py::object& prior, const py::object& dataStart, int multiStart,
+                      int maxIterations, const std::string& gradient, double step, double rtol, double convergedSe,
+                      int gridCheckRefinement, int jobs, const std::string& output, const std::string& base, bool progress) {
+  const CaseSource from = caseSource(spec, base);
+  FitOptions o;
+  o.casePath = from.path;
+  o.caseText = from.text;
+  o.overrides = strings(set, "set");
+  o.free = strings(freeKeys, "free");
+  o.starts = strings(start, "start");
+  o.priors = strings(prior, "prior");
+  o.dataStart = dataStart.is_none() ? std::string() : isoText(dataStart);
+  o.multiStart = multiStart;
+  o.maxIterations = maxIterations;
+  o.gradient = gradient;
+  o.step = step;
+  o.rtol = rtol;
+  o.stepTolerance = convergedSe;
+  o.gridCheck = gridCheckRefinement;
+  o.jobs = jobs;
+  o.output = output;
+  o.quiet = !progress;
+  o.commandLine = "python: thermorph.fit";
+  ObservedOptions readOptions;
+  readOptions.startTime = o.dataStart;
+  readOptions.startOption = "data_start=";
+  // The data: a CSV path, a DataFrame or dict of arrays, or a list of these (the series in the order given).
+  std::vector<py::object> items;
+  const bool many = py::isinstance<py::list>(data) || py::isinstance<py::tuple>(data);
+  if (many)
+    for (const py::handle& d : data) items.push_back(py::reinterpret_borrow<py::object>(d));
+  else
+    items.push_back(data);
+  const py::object pathLike = py::module_::import("os").attr("PathLike");
+  for (std::size_t k = 0; k < items.size(); ++k) {
+    const py::object& d = items[k];
+    ObservedData read;
+    if (py::isinstance<py::str>(d) || py::isinstance(d, pathLike)) {
+      read = readObservedCsv(py::str(d).cast<std::string>(), readOptions);
+    } else if (py::isinstance<py::dict>(d) || (py::hasattr(d, "columns") && py::hasattr(d, "index"))) {
+      const std::string name = py::isinstance<py::dict>(d) ? "<data dict" : "<DataFrame";
+      read = observedFromTable(d, items.size() > 1 ? fmt::format("{} {}>", name, k + 1) : name + ">", readOptions);
+    } else {
+      throw py::type_error("fit: data must be a CSV path, a pandas DataFrame, a dict of arrays or a list of these, not " +
+                           py::repr(d).cast<std::string>());
+    }
+    for (ObservedSeries& s : read.series) o.observed.series.push_back(std::move(s));
+  }
+  std::vector<std::string> inputWarnings;
+  FitProblem pb;
+  try {
+    pb = makeFitProblem(o, inputWarnings);
+  } catch (const CaseError& e) {
+    throw CaseError(from.message(e.what()));
+  }
+  FitOutcome outcome;
+  try {
+    py::gil_scoped_release release;
+    outcome = fitAndCheck(pb, o.gridCheck);
+  } catch (const CaseError& e) {
+    throw CaseError(from.message(e.what()));
+  } catch (const SolverError& e) {
+    throw SolverError(from.message(e.what()));
+  }
+  const FitResult& r = outcome.result;
+  if (!r.converged) {
+    std::string message = "fit: the fit did not converge: " + r.message;
+    if (!output.empty()) message += "; iteration history kept in " + writeIncompleteFit(pb, r, o, output) + " (marked incomplete)";
+    throw SolverError(from.message(message));
+  }
+  const Case fitted = fittedCase(pb, r);
+  Body body(fitted);
+  Collector collector(body);
+  FittedRun run;
+  {
+    py::gil_scoped_release release;
+    run = runFitted(pb, outcome, o, body, output,
+                    [&](double t, std::span<const double> y, const RunSummary& s) { collector(t, y, s); });
+  }
+  if (!run.summary.complete) throw SolverError(from.message("fit: the fitted run failed: " + run.summary.failure));
+  for (std::string& w : run.summary.warnings) w = from.message(w);
+
+  const std::size_t p = pb.parameters.size();
+  py::dict out;
+  py::list names;
+  py::dict values, se, lower, upper, units, logScale, startValues, lowerBounds, upperBounds, methods;
+  for (std::size_t j = 0; j < p; ++j) {
+    const FitParameter& fp = pb.parameters[j];
+    const py::str key(fp.key);
+    names.append(key);
+    values[key] = r.values[j];
+    se[key] = r.standardErrors[j];
+    lower[key] = r.lower95[j];
+    upper[key] = r.upper95[j];
+    units[key] = fp.unit.empty() ? "1" : fp.unit;
+    logScale[key] = fp.log;
+    startValues[key] = fp.start;
+    lowerBounds[key] = fp.lower;
+    upperBounds[key] = fp.upper;
+    methods[key] = j < r.gradientMethods.size() ? r.gradientMethods[j] : std::string();
+  }
+  out["parameters"] = names;
+  out["values"] = values;
+  out["standard_errors"] = se;
+  out["lower_95"] = lower;
+  out["upper_95"] = upper;
+  out["units"] = units;
+  out["log_scale"] = logScale;
+  out["start"] = startValues;
+  out["lower_bound"] = lowerBounds;
+  out["upper_bound"] = upperBounds;
+  out["gradient_method"] = methods;
+  out["covariance"] = matrix(r.covariance, p);
+  out["correlation"] = matrix(r.correlation, p);
+  out["jacobian"] = array(r.jacobian, {static_cast<py::ssize_t>(p ? r.jacobian.size() / p : 0), static_cast<py::ssize_t>(p)});
+  // Per series: the observations, the fitted model there, the residuals (model - observed) and RMSE.
+  const std::vector<std::string> seriesNames = fitSeriesNames(pb.data);
+  py::dict series, rmse;
+  std::size_t offset = 0;
+  for (std::size_t s = 0; s < pb.data.series.size(); ++s) {
+    const ObservedSeries& os = pb.data.series[s];
+    const std::size_t m = os.values.size();
+    auto slice = [&](const std::vector<double>& v) {
+      return array(std::vector<double>(v.begin() + static_cast<std::ptrdiff_t>(offset),
+                                       v.begin() + static_cast<std::ptrdiff_t>(offset + m)),
+                   {static_cast<py::ssize_t>(m)});
+    };
+    py::dict d;
+    d["time"] = array(os.times, {static_cast<py::ssize_t>(m)});
+    d["observed"] = array(os.values, {static_cast<py::ssize_t>(m)});
+    d["sd"] = array(os.sd, {static_cast<py::ssize_t>(m)});
+    d["predicted"] = slice(r.predictions);
+    d["residual"] = slice(r.residuals);
+    d["weighted_residual"] = slice(r.weightedResiduals);
+    d["rmse"] = r.rmse[s];
+    d["unit"] = os.unit();
+    d["source"] = os.file;
+    d["model_time"] = array(run.modelTimes, {static_cast<py::ssize_t>(run.modelTimes.size())});
+    d["model"] = array(run.modelSeries[s], {static_cast<py::ssize_t>(run.modelSeries[s].size())});
+    series[py::str(seriesNames[s])] = d;
+    rmse[py::str(seriesNames[s])] = r.rmse[s];
+    offset += m;
+  }
+  out["series"] = series;
+  out["rmse"] = rmse;
+  out["n"] = r.n;
+  out["dof"] = r.n - p;
+  out["ssr"] = r.ssr;
+  out["s2"] = r.sigma2;
+  out["aic"] = r.aic;
+  out["bic"] = r.bic;
+  out["t_quantile"] = r.tQuantile;
+  std::vector<std::string> warnings = inputWarnings;
+  for (const std::string& w : r.warnings) warnings.push_back(from.message(w));
+  out["warnings"] = warnings;
+  out["converged"] = r.converged;
+  out["message"] = r.message;
+  long iterations = 0;
+  for (const FitIteration& it : r.history) iterations += it.iteration > 0 ? 1 : 0;
+  out["iterations"] = iterations;
+  out["model_runs"] = r.runs;
+  out["wall_seconds"] = r.wallSeconds;
+  out["grid_nodes"] = r.gridNodes;
+  const FitGridCheck& g = outcome.grid;
+  py::dict grid;
+  grid["refinement"] = g.refinement;
+  grid["ok"] = g.ok;
+  grid["error"] = g.error;
+  grid["nodes"] = g.nodes;
+  if (g.ok) {
+    py::dict shift, shiftSe, bias, biasSe, biasRelative;
+    for (std::size_t j = 0; j < p; ++j) {
+      const py::str key(pb.parameters[j].key);
+      shift[key] = g.shift[j];
+      shiftSe[key] = g.shiftSe[j];
+      bias[key] = g.bias[j];
+      biasSe[key] = g.biasSe[j];
+      biasRelative[key] = g.biasRelative[j];
+    }
+    grid["shift"] = shift;
+    grid["shift_se"] = shiftSe;
+    grid["bias"] = bias;
+    grid["bias_se"] = biasSe;
+    grid["bias_relative"] = biasRelative;
+  }
+  out["grid_check"] = grid;
+  py::dict fittedRun = collector.result(run.summary);
+  fittedRun["output"] = run.results;  // the run wrote OUTPUT.fitting.h5, renamed to OUTPUT with /fit
+  out["run"] = fittedRun;
+  out["output"] = run.results;
+  out["fitted_case"] = run.fittedCase;
+  std::string report = from.message(fitReport(pb, r, g));
+  for (const std::string& w : warnings) report += "warning: " + w + "\n";
+  out["report"] = report + fmt::format("Caution: {}\n", caution);
+  out["caution"] = caution;
+  return out;
+}
+
 }  // namespace
 
 PYBIND11_MODULE(thermorph, m) {
@@ -378,4 +757,21 @@ PYBIND11_MODULE(thermorph, m) {
         "Sweep a case file over --vary KEY=SPEC axes (and --scale); returns parameters and metrics per run as "
         "NumPy arrays (NaN for failed runs), with units, status, errors and each run's warnings (a list of strings per "
         "run; the results file's /runs/warnings joins them with \"; \").");
+  m.def("fit", &runFitPython, py::arg("case"), py::arg("data"), py::arg("free"), py::arg("set") = py::none(),
+        py::arg("start") = py::none(), py::arg("prior") = py::none(), py::arg("data_start") = py::none(),
+        py::arg("multi_start") = 1, py::arg("max_iterations") = 50, py::arg("gradient") = "auto", py::arg("step") = 1e-4,
+        py::arg("rtol") = 1e-7, py::arg("converged_se") = 0.01, py::arg("grid_check") = 2, py::arg("jobs") = 0,
+        py::arg("output") = "", py::arg("base") = ".", py::arg("progress") = false,
+        "Fit case keys to observed series, as `thermorph fit` does (the same drivers: Ceres least squares, "
+        "covariance s^2 (J^T J)^-1, t intervals, the grid check). `case`: TOML path, text or dict; `data`: an "
+        "observed-data CSV path, a pandas DataFrame or dict of arrays with columns named as the CSV's header "
+        "(\"time [h]\" or a bare \"time\" in seconds, or date-times in \"datetime\" or the index with data_start; "
+        "\"NAME [UNIT]\", optional \"NAME.sd [UNIT]\"; NaN or None missing), or a list of these; `free`: "
+        "\"KEY=LOWER:UPPER\" or \"KEY=LOWER:UPPER:log\" (a string or a list), `start` \"KEY=VALUE\", `prior` "
+        "\"KEY=MEAN:SD\". Returns a dict: parameters, values, standard_errors, lower_95, upper_95, units, log_scale, "
+        "covariance, correlation, series (time, observed, sd, predicted, residual, rmse, model per series), rmse, "
+        "n, dof, ssr, s2, aic, bic, warnings (a list, as the command line warns), grid_check, run (the fitted run, "
+        "as run() returns it), report (the command line's report with the caution), caution. `output=\"fit.h5\"` "
+        "also writes the fitted run with /fit and STEM_fitted.toml beside it. Bad input raises CaseError; a fit "
+        "that does not converge raises SolverError (its history in STEM.incomplete.h5 when output is given).");
 }
