@@ -3,8 +3,9 @@
 #
 # Runs the example forelimb case (`cases/limb_cooling.toml`, every value illustrative) in three cold
 # surroundings with the compiled module `thermorph` (the command line's own drivers, in-process), overlays the
-# three runs and draws the heat budget of each as bars. Open it in an editor that understands `# %%` cells
-# (VS Code, Spyder, JupyterLab with jupytext) or run it as a script:
+# three runs, draws the heat budget of each as bars, and fits the fur's conductivity to invented logger data
+# (thermorph.fit). Open it in an editor that understands `# %%` cells (VS Code, Spyder, JupyterLab with jupytext)
+# or run it as a script:
 #
 #     PYTHONPATH=build/python /usr/bin/python3 docs/notebook_example.py
 #
@@ -63,4 +64,36 @@ ax.set(ylabel="heat over 1 h [kJ] (+ into the limb)", title="heat budget by chan
 ax.legend(frameon=False)
 fig.text(0.5, -0.02, thermorph.CAUTION, ha="center", va="top", fontsize=6, wrap=True)
 fig.savefig(out / "budget.png", dpi=150, bbox_inches="tight")
+
+# %% Fitting from Python. Invented logger data (illustrative: generated here from the model itself with the fur's
+# conductivity at 0.05 W/(m K), mean skin temperature every 5 min plus noise of SD 0.1 K), held as a logger's
+# download would be: a pandas DataFrame with a date-time index and columns named as in a `thermorph fit` CSV.
+# thermorph.fit runs the command line's fit in-process and finds the conductivity back with its standard error.
+import pandas as pd  # noqa: E402
+
+setup = ["environment.temperature=-5 degC", "run.duration=1 h"]
+truth = thermorph.run(str(case), set=setup + ["tissues.fur.conductivity=0.05 W/(m K)"])
+every5 = slice(0, None, 5)
+skin = truth["mean_skin_temperature"][every5]
+start = pd.Timestamp("2026-01-15T14:00")
+logger = pd.DataFrame({"body.mean_skin_temperature [degC]": skin + np.random.default_rng(1).normal(0, 0.1, skin.size),
+                       "body.mean_skin_temperature.sd [K]": 0.1},
+                      index=start + pd.to_timedelta(truth["time"][every5], unit="s"))
+fit = thermorph.fit(str(case), logger, free="tissues.fur.conductivity=0.02 W/(m K):0.2 W/(m K):log",
+                    start="tissues.fur.conductivity=0.08 W/(m K)", set=setup, data_start=start)
+print(fit["report"])  # the command line's report: value, SE, 95 % interval, RMSE, s^2, AIC/BIC, warnings, caution
+key = "tissues.fur.conductivity"
+s = fit["series"]["body.mean_skin_temperature"]
+fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(6, 4.4), sharex=True, height_ratios=[3, 1], constrained_layout=True)
+ax1.plot(s["model_time"] / 60, s["model"], label="fitted model")
+ax1.errorbar(s["time"] / 60, s["observed"], yerr=s["sd"], fmt="o", ms=3, label="invented logger data")
+ax1.set(ylabel="mean skin temperature [degC]",
+        title=f"fur conductivity {fit['values'][key]:.4f} W/(m K), 95 % {fit['lower_95'][key]:.4f}"
+              f"..{fit['upper_95'][key]:.4f}")
+ax1.legend(frameon=False)
+ax2.axhline(0, color="0.3", lw=0.8)
+ax2.plot(s["time"] / 60, s["residual"], "o", ms=3)
+ax2.set(xlabel="time [min]", ylabel="model - observed [K]")
+fig.text(0.5, -0.02, thermorph.CAUTION, ha="center", va="top", fontsize=6, wrap=True)
+fig.savefig(out / "fit.png", dpi=150, bbox_inches="tight")
 print(f"figures in {out}/")

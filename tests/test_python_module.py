@@ -162,7 +162,8 @@ def main():
         proc = subprocess.run([sys.executable, str(src / "docs/notebook_example.py")], env=env, capture_output=True,
                               text=True)
         check(proc.returncode == 0, f"notebook example: {proc.stderr[-2000:]}")
-        check((tmp / "nb/overlay.png").exists() and (tmp / "nb/budget.png").exists(), "notebook figures missing")
+        check((tmp / "nb/overlay.png").exists() and (tmp / "nb/budget.png").exists()
+              and (tmp / "nb/fit.png").exists(), "notebook figures missing")
     if failures:
         print(f"{len(failures)} failures")
         return 1
