@@ -383,9 +383,13 @@ std::string isoText(const py::handle& v) {
   return py::str(v).cast<std::string>();
 }
 
+//! What a column of a table holds.
+enum class ColumnKind { Values, DateTimes, Durations };
+
 //! The cells of one column as text, as a CSV file would give them: numbers to 17 digits ("nan" where missing),
-//! datetime64 and datetime objects as ISO 8601 (aware ones in UTC), None, NaN and NaT as missing ("").
-std::vector<std::string> columnCells(const py::handle& column, bool& datetime) {
+//! datetime64 and datetime objects as ISO 8601 (aware ones in UTC), timedelta64 as seconds, None, NaN and NaT
+//! as missing.
+std::vector<std::string> columnCells(const py::handle& column, ColumnKind& kind) {
   py::module_ np = py::module_::import("numpy");
   py::object values = py::reinterpret_borrow<py::object>(column);
   // A pandas column of time-zone-aware date-times: in UTC, then naive.
@@ -394,10 +398,15 @@ std::vector<std::string> columnCells(const py::handle& column, bool& datetime) {
     values = values.attr("dt").attr("tz_convert")("UTC").attr("dt").attr("tz_localize")(py::none());
   py::array a = np.attr("asarray")(values);
   if (a.ndim() != 1) throw CaseError("a column with " + std::to_string(a.ndim()) + " dimensions; expected one value per row");
-  const char kind = a.dtype().kind();
+  const char dtype = a.dtype().kind();
   std::vector<std::string> out;
-  if (kind == 'M') {
-    datetime = true;
+  kind = ColumnKind::Values;
+  if (dtype == 'm') {  // durations (pandas Timedelta): seconds, NaT -> NaN
+    kind = ColumnKind::Durations;
+    a = a.attr("astype")("timedelta64[ns]").attr("__truediv__")(np.attr("timedelta64")(1, "s"));
+  }
+  if (dtype == 'M') {
+    kind = ColumnKind::DateTimes;
     py::list texts = np.attr("datetime_as_string")(a.attr("astype")("datetime64[us]"), py::arg("unit") = "us").attr("tolist")();
     for (const py::handle& t : texts) {
       std::string text = t.cast<std::string>();
@@ -405,7 +414,7 @@ std::vector<std::string> columnCells(const py::handle& column, bool& datetime) {
     }
     return out;
   }
-  if (kind == 'f' || kind == 'i' || kind == 'u' || kind == 'b') {
+  if (dtype == 'f' || dtype == 'i' || dtype == 'u' || dtype == 'b' || dtype == 'm') {
     py::array_t<double, py::array::forcecast> d(a);
     for (py::ssize_t i = 0; i < d.size(); ++i)
       out.push_back(std::isnan(d.at(i)) ? std::string("nan") : fmt::format("{:.17g}", d.at(i)));
@@ -425,14 +434,15 @@ std::vector<std::string> columnCells(const py::handle& column, bool& datetime) {
       out.push_back(py::str(v).cast<std::string>());
     }
   }
-  datetime = datetime || anyDate;
+  if (anyDate) kind = ColumnKind::DateTimes;
   return out;
 }
 
 //! Observed data given as a pandas DataFrame or a dict of arrays, read as a CSV file is (drivers/observed.cpp):
 //! columns named as in the file's header (`NAME [UNIT]`, `NAME.sd [UNIT]`); the time in a column `time [UNIT]`
-//! (a bare `time`: seconds), or date-times in a column `datetime` or `time` or the DataFrame's index, with
-//! data_start. Messages name the table, the row (0-based) and the column's label.
+//! (a bare `time`: seconds; durations, timedelta64: their own unit), or date-times in a column `datetime` or
+//! `time` or the DataFrame's index, with data_start. Messages name the table, the row (0-based) and the column's
+//! label.
 ObservedData observedFromTable(const py::handle& table, const std::string& source, const ObservedOptions& options) {
   const bool frame = py::hasattr(table, "columns") && py::hasattr(table, "index");
   std::vector<std::string> labels;
@@ -462,42 +472,47 @@ ObservedData observedFromTable(const py::handle& table, const std::string& sourc
   t.source = source;
   std::vector<std::vector<std::string>> cells;
   std::string timeLabel;
-  bool datetime = false;
+  ColumnKind timeKind = ColumnKind::Values;
   std::vector<std::size_t> order;  // table column -> labels index (labels.size(): the index)
   if (timeColumn < labels.size()) {
     timeLabel = labels[timeColumn];
-    cells.push_back(columnCells(columns[timeColumn], datetime));
+    cells.push_back(columnCells(columns[timeColumn], timeKind));
   } else {
     const py::object index = frame ? py::object(table.attr("index")) : py::object();
-    bool dates = false;
     if (frame) {
       const std::string name = index.attr("name").is_none() ? "" : py::str(index.attr("name")).cast<std::string>();
-      std::vector<std::string> c = columnCells(index, dates);
-      if (dates || baseName(name) == "time" || baseName(name) == "datetime") {
-        timeLabel = name.empty() ? "datetime" : name;
-        datetime = dates;
+      ColumnKind kind = ColumnKind::Values;
+      std::vector<std::string> c = columnCells(index, kind);
+      if (kind != ColumnKind::Values || baseName(name) == "time" || baseName(name) == "datetime") {
+        timeLabel = !name.empty() ? name : kind == ColumnKind::DateTimes ? "datetime" : "time";
+        timeKind = kind;
         cells.push_back(std::move(c));
       }
     }
     if (cells.empty())
       throw CaseError(fmt::format("{}: no time column; expected a column \"time [UNIT]\" (e.g. \"time [h]\"; a bare \"time\" "
                                   "is in seconds) or \"datetime\" (date-times, with data_start=){}; columns: {}",
-                                  source, frame ? ", or a DatetimeIndex" : "", fmt::join(labels, ", ")));
+                                  source, frame ? ", or a DatetimeIndex or TimedeltaIndex" : "", fmt::join(labels, ", ")));
   }
   order.push_back(timeColumn);
   const std::string timeName = baseName(timeLabel);
-  t.header.push_back(datetime || timeName == "datetime" ? "datetime"
-                     : timeLabel.find('[') == std::string::npos ? "time [s]"
-                                                                : timeLabel);
+  t.header.push_back(timeKind == ColumnKind::DateTimes || (timeName == "datetime" && timeKind == ColumnKind::Values)
+                         ? "datetime"
+                     : timeKind == ColumnKind::Durations || timeLabel.find('[') == std::string::npos ? "time [s]"
+                                                                                                     : timeLabel);
   t.columnNumbers.push_back(timeColumn < labels.size() ? static_cast<int>(timeColumn + 1) : 0);
   for (std::size_t c = 0; c < labels.size(); ++c) {
     if (c == timeColumn) continue;
-    bool dates = false;
+    ColumnKind kind = ColumnKind::Values;
     try {
-      cells.push_back(columnCells(columns[c], dates));
+      cells.push_back(columnCells(columns[c], kind));
     } catch (const CaseError& e) {
       throw CaseError(fmt::format("{}: column \"{}\": {}", source, labels[c], e.what()));
     }
+    if (kind != ColumnKind::Values)
+      throw CaseError(fmt::format("{}: column \"{}\" holds {}; a series holds numbers in the unit its label gives "
+                                  "(only the time column, \"time\" or \"datetime\", or the index may hold these)",
+                                  source, labels[c], kind == ColumnKind::Durations ? "durations" : "date-times"));
     t.header.push_back(labels[c]);
     t.columnNumbers.push_back(static_cast<int>(c + 1));
     order.push_back(c);

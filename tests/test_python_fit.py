@@ -3,7 +3,7 @@
 least-squares computation.
 
 1. The same case and data fitted by the CLI (CSV file) and by the module (the CSV path, a pandas DataFrame with the
-   same numbers, a dict of arrays): values, standard errors, 95 % intervals (one log-scale parameter), correlations,
+   same numbers, a dict of arrays, a DataFrame with a TimedeltaIndex): values, standard errors, 95 % intervals (one log-scale parameter), correlations,
    s^2, AIC/BIC, RMSE, predictions, warnings (a value at its bound) and the report's parameter lines agree (1e-9
    relative; the same drivers, so in practice bit for bit), and the fitted run equals the CLI's results file.
 2. Independent check: Newton cooling of a lumped sphere, T(t) = T_inf + (T0 - T_inf) exp(-t / tau), tau = rho c R /
@@ -100,6 +100,10 @@ fits = {
     "dict": thermorph.fit(CASE, {"time [min]": minutes, "body.core_temperature [degC]": obs,
                                  "body.core_temperature.sd [K]": np.full(t.size, 0.05)}, free=free, start=start,
                           base=str(work)),
+    "TimedeltaIndex": thermorph.fit(str(work / "lump.toml"),
+                                    pd.DataFrame({"body.core_temperature [degC]": obs,
+                                                  "body.core_temperature.sd [K]": 0.05},
+                                                 index=pd.to_timedelta(t, unit="s")), free=free, start=start),
 }
 with h5py.File(work / "cli.h5", "r") as f:
     g = f["fit"]
@@ -216,6 +220,8 @@ refused("bound of the wrong unit", ["environment.convection", "W/(m2 K)"], free_
 refused("not a number", ["<data dict>", "row 3 (0-based)", '"body.core_temperature [degC]"', "is not a number"],
         data={"time": t[:5], "body.core_temperature [degC]": ["30", "29", "28", "warm", "27"]})
 refused("no time column", ["<DataFrame>", "no time column", "time [UNIT]"], data=good.drop(columns="time [s]"))
+refused("a series of date-times", ["<DataFrame>", '"body.core_temperature [degC]"', "holds date-times"],
+        data=good.assign(**{"body.core_temperature [degC]": pd.Timestamp("2026-06-01") + pd.to_timedelta(t, unit="s")}))
 refused("date-times without data_start", ["<DataFrame>", "data_start="], data=frame)
 refused("observation after the run", ["<DataFrame>", "outside the run", "run.duration"],
         data=pd.DataFrame({"time [h]": [0.0, 1.0], "body.core_temperature [degC]": [40.0, 10.0]}))
