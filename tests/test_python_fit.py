@@ -82,7 +82,12 @@ with open(work / "obs.csv", "w") as f:
 free = ["environment.convection=0.002 W/(m2 K):0.05 W/(m2 K):log", "environment.temperature=0 degC:20 degC",
         "run.initial_temperature=35 degC:39.9 degC"]  # the truth, 40 degC, lies beyond: the value ends at its bound
 start = ["environment.convection=0.006 W/(m2 K)", "environment.temperature=12 degC", "run.initial_temperature=38 degC"]
-args = [exe, "fit", "lump.toml", "--data", "obs.csv", "-q", "-o", "cli.h5"]
+# Options other than their defaults, each given to both (a wrong mapping moves the values beyond 1e-9).
+options = {"prior": "environment.temperature=10 degC:1 K", "multi_start": 2, "converged_se": 0.005, "grid_check": 3,
+           "rtol": 1e-8, "step": 2e-4, "max_iterations": 40}
+args = [exe, "fit", "lump.toml", "--data", "obs.csv", "-q", "-o", "cli.h5", "--prior", options["prior"],
+        "--multi-start", "2", "--converged-se", "0.005", "--grid-check", "3", "--rtol", "1e-8", "--step", "2e-4",
+        "--max-iterations", "40"]
 for f_ in free:
     args += ["--free", f_]
 for s_ in start:
@@ -91,19 +96,19 @@ cli = subprocess.run(args, cwd=work, capture_output=True, text=True)
 check(cli.returncode == 0, f"CLI fit exit {cli.returncode}: {cli.stderr[-400:]}")
 
 fits = {
-    "CSV path": thermorph.fit(str(work / "lump.toml"), str(work / "obs.csv"), free=free, start=start,
+    "CSV path": thermorph.fit(str(work / "lump.toml"), str(work / "obs.csv"), free=free, start=start, **options,
                               output=str(work / "py.h5")),
     "DataFrame": thermorph.fit(str(work / "lump.toml"),
                                pd.DataFrame({"time [min]": minutes, "body.core_temperature [degC]": obs,
                                              "body.core_temperature.sd [K]": [0.05] + [None] * (t.size - 1)}),
-                               free=free, start=start),
+                               free=free, start=start, **options),
     "dict": thermorph.fit(CASE, {"time [min]": minutes, "body.core_temperature [degC]": obs,
-                                 "body.core_temperature.sd [K]": np.full(t.size, 0.05)}, free=free, start=start,
+                                 "body.core_temperature.sd [K]": np.full(t.size, 0.05)}, free=free, start=start, **options,
                           base=str(work)),
     "TimedeltaIndex": thermorph.fit(str(work / "lump.toml"),
                                     pd.DataFrame({"body.core_temperature [degC]": obs,
                                                   "body.core_temperature.sd [K]": 0.05},
-                                                 index=pd.to_timedelta(t, unit="s")), free=free, start=start),
+                                                 index=pd.to_timedelta(t, unit="s")), free=free, start=start, **options),
 }
 with h5py.File(work / "cli.h5", "r") as f:
     g = f["fit"]
@@ -138,6 +143,7 @@ for label, r in fits.items():
     check(py_lines == cli_lines, f"{label}: report lines\n{py_lines}\nvs CLI\n{cli_lines}")
     check(r["report"].rstrip().endswith(thermorph.CAUTION), f"{label}: the report ends with the caution")
     check(r["caution"] == thermorph.CAUTION, f"{label}: caution")
+    check(r["grid_check"]["refinement"] == 3 and r["grid_check"]["ok"], f"{label}: grid check 3x {r['grid_check']}")
 # The log-scale interval is symmetric in ln(value): value x/ exp(t SE / value).
 r = fits["CSV path"]
 h, se, tq = r["values"][names[0]], r["standard_errors"][names[0]], r["t_quantile"]
