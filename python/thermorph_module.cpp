@@ -420,9 +420,16 @@ std::vector<std::string> columnCells(const py::handle& column, ColumnKind& kind)
       out.push_back(std::isnan(d.at(i)) ? std::string("nan") : fmt::format("{:.17g}", d.at(i)));
     return out;
   }
+  // Objects: numbers, text, date-times; missing: None, NaN and pandas' NA and NaT (pandas.isna, when installed).
+  py::object isna = py::none();
+  try {
+    isna = py::module_::import("pandas").attr("isna");
+  } catch (const py::error_already_set&) {
+  }
   bool anyDate = false;
   for (const py::handle& v : a.attr("tolist")()) {
-    if (v.is_none() || (py::isinstance<py::float_>(v) && std::isnan(v.cast<double>()))) {
+    if (v.is_none() || (py::isinstance<py::float_>(v) && std::isnan(v.cast<double>())) ||
+        (!isna.is_none() && !py::isinstance<py::str>(v) && py::isinstance<py::bool_>(isna(v)) && isna(v).cast<bool>())) {
       out.emplace_back();
     } else if (py::isinstance<py::int_>(v) || py::isinstance<py::float_>(v)) {
       out.push_back(fmt::format("{:.17g}", v.cast<double>()));

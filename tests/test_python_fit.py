@@ -3,7 +3,7 @@
 least-squares computation.
 
 1. The same case and data fitted by the CLI (CSV file) and by the module (the CSV path, a pandas DataFrame with the
-   same numbers, a dict of arrays, a DataFrame with a TimedeltaIndex): values, standard errors, 95 % intervals (one log-scale parameter), correlations,
+   same numbers, a dict of arrays, pandas' nullable Float64 with NA, a DataFrame with a TimedeltaIndex): values, standard errors, 95 % intervals (one log-scale parameter), correlations,
    s^2, AIC/BIC, RMSE, predictions, warnings (a value at its bound) and the report's parameter lines agree (1e-9
    relative; the same drivers, so in practice bit for bit), and the fitted run equals the CLI's results file.
 2. Independent check: Newton cooling of a lumped sphere, T(t) = T_inf + (T0 - T_inf) exp(-t / tau), tau = rho c R /
@@ -105,6 +105,12 @@ fits = {
     "dict": thermorph.fit(CASE, {"time [min]": minutes, "body.core_temperature [degC]": obs,
                                  "body.core_temperature.sd [K]": np.full(t.size, 0.05)}, free=free, start=start, **options,
                           base=str(work)),
+    "nullable Float64 with NA": thermorph.fit(
+        str(work / "lump.toml"), pd.DataFrame({"time [min]": minutes,
+                                               "body.core_temperature [degC]": pd.array(
+                                                   [None if np.isnan(v) else v for v in obs], dtype="Float64"),
+                                               "body.core_temperature.sd [K]": 0.05}),
+        free=free, start=start, **options),
     "TimedeltaIndex": thermorph.fit(str(work / "lump.toml"),
                                     pd.DataFrame({"body.core_temperature [degC]": obs,
                                                   "body.core_temperature.sd [K]": 0.05},
