@@ -26,7 +26,8 @@
   file without the series still draws; a step of the surroundings between two outputs is drawn as a vertical jump at the step's time
   and a ramp whose ends fall between outputs from its own start to its own end (the quadruped with a step 15 -> -5
   degC at 5 min and a ramp from 21 to 29 min, 2-min outputs; forcing and temperatures), and forcings are drawn only
-  where they act (the quadruped swimming from 10 to 20 min, all in water and with its head above water).
+  where they act (the quadruped swimming from 10 to 20 min, all in water and with its head above water); a map's
+  radial profile equal to an earlier one (a steady start and the output on the first step) is dashed over it.
 Exits 1 on any failure.
 """
 
@@ -446,6 +447,41 @@ def check_immersion(tmp: Path, exe: str):
               f"{variant}: temperatures figure's air line {'drawn' if inside else 'not drawn'} during the swim")
 
 
+def check_equal_profiles(tmp: Path, exe: str):
+    """A radial profile equal to one drawn already must stay visible: from a steady start the temperatures at an
+    output on the first step of the surroundings are the steady ones (the step acts after it), so the profiles at
+    0 and at the step coincide; the later one is dashed over a wider earlier one and says so in the legend, a
+    different one is neither. Common practice, no source."""
+    from thermorph_post import figures
+    from thermorph_post.results import Results
+    h5 = tmp / "steady_step.h5"
+    proc = subprocess.run([exe, "run", str(ROOT / "cases" / "limb_cooling.toml"), "-q", "--set", "run.initial=steady",
+                           "--set", 'run.duration="20 min"', "--set", 'run.output_interval="2 min"', "--set",
+                           'events=[{ at = "10 min", environment = { temperature = "15 degC" } }]', "-o", str(h5)],
+                          capture_output=True, text=True)
+    check(proc.returncode == 0, f"steady start and step: exit {proc.returncode}\n{proc.stderr[-800:]}")
+    if proc.returncode != 0:
+        return
+    with Results(h5) as res:
+        name = res.segment_names()[0]
+        fig = figures.maps_figures(res, segments=[name], times=[0.0, 600.0, 1200.0])[name]
+    ax = next(a for a in fig.axes if a.get_label() == "radial profiles at mid-length")
+    lines = {ln.get_label().split(" (")[0]: ln for ln in ax.get_lines()}
+    first, step, last = lines.get("t = 0 min"), lines.get("t = 10 min"), lines.get("t = 20 min")
+    check(None not in (first, step, last), f"steady start and step: profile lines {sorted(lines)}")
+    if None in (first, step, last):
+        return
+    check(np.allclose(first.get_ydata(), step.get_ydata(), rtol=0.0, atol=1e-6)
+          and not np.allclose(first.get_ydata(), last.get_ydata(), rtol=0.0, atol=1e-3),
+          "steady start and step: the test's premise (equal profiles at 0 and 10 min, a different one at 20) fails")
+    check(step.get_linestyle() not in ("-", "solid") and first.get_linewidth() > step.get_linewidth()
+          and "equal to t = 0 min" in step.get_label(),
+          f"steady start and step: the 10-min profile hides the 0-min one (style {step.get_linestyle()!r}, widths "
+          f"{first.get_linewidth()} / {step.get_linewidth()}, label {step.get_label()!r})")
+    check(last.get_linestyle() in ("-", "solid") and "equal" not in last.get_label(),
+          f"steady start and step: the 20-min profile marked equal: {last.get_label()!r}")
+
+
 def check_contact_events(tmp: Path, exe: str):
     """A segment that touches the substrate only after an event (`[[events]] surface = { NAME = { contact_fraction
     = F } }`, README "Timelines") is a target of the substrate forcing; without the event nothing touches it.
@@ -824,6 +860,7 @@ def main() -> int:
             check_steps(tmp, EXE)
             check_immersion(tmp, EXE)
             check_contact_events(tmp, EXE)
+            check_equal_profiles(tmp, EXE)
             check_contact_series(tmp, EXE)
             check_budget_spikes(tmp, EXE)
             check_overlay_and_sweep(tmp, EXE)

@@ -472,10 +472,22 @@ def maps_figures(res: Results, units: str = "physiology", segments=None, times=N
             ax = axd["profile"]
             ax.set_label("radial profiles at mid-length")
             z_mid = 0.5 * (z_faces[0] + z_faces[-1])
+            # A profile equal to one drawn already (a steady start and the output on the first step) would hide
+            # it: the earlier line widened beneath, this one dashed on top and its label says so.
+            profiles = []
             for k, i in enumerate(indices):
                 prof = np.array([np.interp(z_mid, seg.axial, temp[k, :, j]) for j in range(temp.shape[2])])
-                ax.plot(seg.radius * rs, prof, color=LINE_CYCLE[k % len(LINE_CYCLE)],
-                        marker=MARKER_CYCLE[k % len(MARKER_CYCLE)], ms=3, label=f"t = {format_time(res.time[i], scale)}")
+                label = f"t = {format_time(res.time[i], scale)}"
+                twin = next(((line, lab) for p, line, lab in profiles if np.allclose(p, prof, rtol=0.0, atol=1e-6)),
+                            None)
+                extra = {}
+                if twin is not None:
+                    twin[0].set_linewidth(3.0)
+                    extra = dict(ls=(0, (3, 2)), zorder=3)
+                    label += f" (dashed: equal to {twin[1]} within 1e-6 K)"
+                line, = ax.plot(seg.radius * rs, prof, color=LINE_CYCLE[k % len(LINE_CYCLE)],
+                                marker=MARKER_CYCLE[k % len(MARKER_CYCLE)], ms=3, label=label, **extra)
+                profiles.append((prof, line, f"t = {format_time(res.time[i], scale)}"))
             for r_b, _ in bounds[:-1]:
                 ax.axvline(r_b * rs, color="0.4", lw=0.8, ls=":")
             ax.set_xlim(0.0, r_faces[-1] * rs)
