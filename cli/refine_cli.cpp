@@ -32,6 +32,10 @@ CLI::App* addRefineSubcommand(CLI::App& app) {
       ->allow_extra_args(false);
   refine->add_option("--window", options.window, "Averaging window START:END (or START,END), e.g. \"30 min:1 h\"; default: the whole run");
   refine->add_option("--csv", csvPath, "Also write the table as CSV to this file");
+  refine->add_flag("--cold-start{false}", options.warmStart,
+                   "Find every level's steady start (or steady state) from the case's initial temperature (pseudo-time "
+                   "relaxation, then KINSOL) instead of by Newton from the coarser level's steady state on the finer "
+                   "cells (the default; the same steady state to KINSOL's tolerance)");
   return refine;
 }
 

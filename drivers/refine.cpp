@@ -6,6 +6,7 @@
 #include <cmath>
 #include <limits>
 #include <map>
+#include <memory>
 
 #include <fmt/format.h>
 
@@ -44,7 +45,80 @@ long tissueCells(const Case& c) {
   return cells;
 }
 
+//! Index of the coarse cell holding fine cell j's centre, of `coarseCount` cells that `fineCount` cells split (the
+//! same mapping of a uniform index: with fineCount = k coarseCount, cells j = k i ... k i + k - 1 make up cell i).
+int containing(int j, int fineCount, int coarseCount) {
+  const long numerator = (2L * j + 1) * coarseCount, denominator = 2L * fineCount;
+  return static_cast<int>(std::min<long>(numerator / denominator, coarseCount - 1));
+}
+
+//! First ring of each layer (and one past the last ring), of a segment's rings [layers + 1].
+std::vector<int> layerStarts(const SegmentMesh& m) {
+  std::vector<int> start(m.layerNames.size() + 1, m.nr);
+  for (int r = m.nr - 1; r >= 0; --r) start[static_cast<std::size_t>(m.layer[static_cast<std::size_t>(r)])] = r;
+  for (std::size_t l = m.layerNames.size(); l-- > 0;) start[l] = std::min(start[l], start[l + 1]);
+  return start;
+}
+
 }  // namespace
+
+std::vector<double> mapSteadyState(const Body& coarse, std::span<const double> state, const Body& fine) {
+  const Network& cn = coarse.network();
+  const Network& fn = fine.network();
+  const std::size_t controls = cn.controllers.size();
+  if (state.size() != cn.nodes.size() + controls || fn.controllers.size() != controls ||
+      coarse.segments().size() != fine.segments().size() || coarse.poolNode().has_value() != fine.poolNode().has_value())
+    return {};
+  for (std::size_t k = 0; k < controls; ++k)
+    if (cn.controllers[k].name != fn.controllers[k].name) return {};
+  std::vector<double> out(fn.nodes.size() + controls, notANumber);
+  for (std::size_t s = 0; s < fine.segments().size(); ++s) {
+    const SegmentMesh& cm = coarse.segments()[s];
+    const SegmentMesh& fm = fine.segments()[s];
+    if (cm.name != fm.name || cm.layerNames != fm.layerNames || fm.nz < cm.nz || fm.nr < cm.nr) return {};
+    const std::vector<int> cs = layerStarts(cm), fs = layerStarts(fm);
+    std::vector<int> ring(static_cast<std::size_t>(fm.nr));
+    for (std::size_t l = 0; l + 1 < fs.size(); ++l) {
+      const int fineCount = fs[l + 1] - fs[l], coarseCount = cs[l + 1] - cs[l];
+      if ((fineCount > 0) != (coarseCount > 0)) return {};
+      for (int j = 0; j < fineCount; ++j)
+        ring[static_cast<std::size_t>(fs[l] + j)] = cs[l] + containing(j, fineCount, coarseCount);
+    }
+    for (int iz = 0; iz < fm.nz; ++iz) {
+      const int cz = containing(iz, fm.nz, cm.nz);
+      for (int ir = 0; ir < fm.nr; ++ir) out[fm.node(iz, ir)] = state[cm.node(cz, ring[static_cast<std::size_t>(ir)])];
+    }
+    // Blood: the coarse node of the kind in the containing axial cell, else the nearest axial cell with one, else the
+    // segment's innermost tissue cell there (blood that flows only on the finer grid: none in the examples).
+    auto blood = [&](const std::vector<Index>& c, const std::vector<Index>& f) {
+      for (int iz = 0; iz < static_cast<int>(f.size()); ++iz) {
+        if (f[static_cast<std::size_t>(iz)] == noNode) continue;
+        const int cz = containing(iz, fm.nz, cm.nz);
+        double value = state[cm.node(cz, 0)];
+        for (int d = 0; d < cm.nz && !c.empty(); ++d) {
+          const int lo = cz - d, hi = cz + d;
+          if (lo >= 0 && c[static_cast<std::size_t>(lo)] != noNode) {
+            value = state[c[static_cast<std::size_t>(lo)]];
+            break;
+          }
+          if (hi < static_cast<int>(c.size()) && c[static_cast<std::size_t>(hi)] != noNode) {
+            value = state[c[static_cast<std::size_t>(hi)]];
+            break;
+          }
+        }
+        out[f[static_cast<std::size_t>(iz)]] = value;
+      }
+    };
+    blood(cm.arterial, fm.arterial);
+    blood(cm.venous, fm.venous);
+    blood(cm.superficial, fm.superficial);
+  }
+  if (fine.poolNode()) out[*fine.poolNode()] = state[*coarse.poolNode()];
+  for (std::size_t k = 0; k < controls; ++k) out[fn.nodes.size() + k] = state[cn.nodes.size() + k];
+  for (double v : out)
+    if (std::isnan(v)) return {};  // a node of the fine body no rule above reached
+  return out;
+}
 
 Case refinedCase(const Case& c, int factor) {
   Case out = c;
@@ -81,20 +155,32 @@ RefineResult runRefinement(const RefineOptions& options) {
   result.referenceTemperature = base.environment.temperature - 273.15;
   std::vector<MetricColumn> columns;
   std::vector<std::vector<double>> values;  // [level][column]
+  const bool hasSteadyStart = options.steady || base.run.initial == InitialCondition::Steady;
+  std::unique_ptr<Body> coarser;         // the previous level's body and steady state (warm start)
+  std::vector<double> coarserSteady;
   for (int level = 0; level < options.levels; ++level) {
     const int factor = 1 << level;
     const auto start = std::chrono::steady_clock::now();
     const Case c = refinedCase(base, factor);
-    Body body(c);
+    auto owned = std::make_unique<Body>(c);
+    const Body& body = *owned;
     MetricCollector collector(body, window, {}, options.steady);
     RunOptions run;
     run.quiet = true;
     run.observer = [&](double t, std::span<const double> temperatures, const RunSummary& summary) {
       collector.observe(t, temperatures, summary);
     };
+    run.keepSteadyState = options.warmStart && hasSteadyStart && level + 1 < options.levels;
+    if (options.warmStart && coarser && !coarserSteady.empty())
+      run.steadyGuess = mapSteadyState(*coarser, coarserSteady, body);
     RunSummary summary = options.steady ? runSteady(body, run) : runTransient(body, run);
     if (!summary.complete)
       throw SolverError(fmt::format("refinement level {}x: {}", factor, summary.failure));
+    result.hasSteadyStart.push_back(hasSteadyStart ? 1 : 0);
+    result.steadyWarm.push_back(summary.steadyWarm ? 1 : 0);
+    result.steadyStatistics.push_back(summary.steadyStatistics);
+    coarserSteady = std::move(summary.steadyState);
+    if (run.keepSteadyState) coarser = std::move(owned);
     const std::vector<MetricColumn> names = metricColumns(body, {}, options.steady);
     const std::vector<double> v = collector.values();
     if (level == 0) {
@@ -176,8 +262,18 @@ RefineResult runRefinement(const RefineOptions& options) {
 std::string refineTable(const RefineResult& r) {
   std::string out;
   out += "Grid refinement (every axial, layer and coat cell count multiplied)\n";
-  for (std::size_t l = 0; l < r.factors.size(); ++l)
-    out += fmt::format("  {:g}x: {} tissue cells, {:.3g} s\n", r.factors[l], r.cells[l], r.seconds[l]);
+  for (std::size_t l = 0; l < r.factors.size(); ++l) {
+    out += fmt::format("  {:g}x: {} tissue cells, {:.3g} s", r.factors[l], r.cells[l], r.seconds[l]);
+    if (l < r.hasSteadyStart.size() && r.hasSteadyStart[l]) {
+      const SolverStatistics& s = r.steadyStatistics[l];
+      out += r.steadyWarm[l]
+                 ? fmt::format("; steady solve from the {:g}x steady state on these cells: {} Newton iterations",
+                               r.factors[l - 1], s.nonlinearIterations)
+                 : fmt::format("; steady solve: {} relaxation steps, {} Newton iterations", s.steps,
+                               s.nonlinearIterations);
+    }
+    out += "\n";
+  }
   std::string header = fmt::format("{:<44}{:>6}", "quantity", "unit");
   for (double f : r.factors) header += fmt::format("{:>13}", fmt::format("{:g}x", f));
   header += fmt::format("{:>8}{:>13}{:>11}\n", "order", "Richardson", "1x vs fine");

@@ -152,6 +152,48 @@ std::vector<double> relaxToSteady(const Body& body, NetworkSystem& transient, st
   return result;
 }
 
+//! The steady state by Newton (KINSOL, as relaxToSteady's polish) from a warm guess [nodes + controls] near it (a
+//! coarser grid's steady state mapped onto this one's cells, drivers/refine.cpp), without the relaxation; empty when
+//! Newton fails or its root lies farther from the guess than kWarmStartNodeChange / kWarmStartMeanChange (then the
+//! relaxation from the case's guess decides, as without a warm start). The root does not depend on where Newton starts
+//! (the extra Newton step of solveSteadyState takes the residual to round-off), so a root kept is the relaxation's to
+//! round-off. The transient system's face temperatures (the Newton starts of the face balances) are left at the root,
+//! as the relaxation leaves them at its end.
+std::vector<double> warmSteadyState(const Body& body, NetworkSystem& transient, std::span<const double> warm,
+                                    SolverStatistics* stats) {
+  const Index nodes = transient.nodeCount(), states = nodes + transient.controlCount();
+  if (warm.size() != states) return {};
+  NetworkSystem steady(body.network(), NetworkSystem::Mode::Steady);
+  steady.freezeTime(0.0);
+  SolverStatistics counted;
+  std::vector<double> root;
+  try {
+    root = solveSteadyState(steady, warm, 0.0, &counted);
+  } catch (const SolverError&) {
+    return {};
+  }
+  double largest = 0.0, capacity = 0.0, weighted = 0.0;
+  const std::vector<NetworkNode>& n = body.network().nodes;
+  for (Index i = 0; i < nodes; ++i) {
+    const double change = root[i] - warm[i];
+    largest = std::max(largest, std::abs(change));
+    capacity += n[i].capacity;
+    weighted += n[i].capacity * change;
+  }
+  if (!(largest <= kWarmStartNodeChange) || !(std::abs(weighted) <= kWarmStartMeanChange * capacity)) return {};
+  std::vector<double> y(transient.size(), 0.0), rate(transient.size());
+  std::copy(root.begin(), root.end(), y.begin());
+  transient.freezeTime(0.0);
+  try {
+    transient.evaluate(0.0, y, rate);
+  } catch (const std::exception&) {
+    // the face guesses are only Newton starts; the root was evaluated by KINSOL already
+  }
+  transient.freezeTime(std::nullopt);
+  if (stats) *stats = counted;  // KINSOL's counters alone: no relaxation steps
+  return root;
+}
+
 //! relaxToSteady with range warnings from the steady state only: the relaxation's and Newton's trial states answer
 //! their range checks without logging (models/media.hpp, ValidityLogScope), and the faces whose evaluations fell
 //! outside a range are checked again at the state reached. Found in a new-user trial: the wading bird at
@@ -159,11 +201,15 @@ std::vector<double> relaxToSteady(const Body& body, NetworkSystem& transient, st
 //! film the relaxation passed through; no output of the run has its leg's surface below 4.00001 degC.
 std::vector<double> steadyTemperatures(const Body& body, NetworkSystem& transient, std::span<const double> guess,
                                        SolverStatistics* stats, const std::atomic<bool>* stop = nullptr,
-                                       bool* stopped = nullptr) {
+                                       bool* stopped = nullptr, std::span<const double> warm = {},
+                                       bool* warmUsed = nullptr) {
   std::vector<double> result;
+  if (warmUsed) *warmUsed = false;
   {
     const ValidityLogScope deferred(false);
-    result = relaxToSteady(body, transient, guess, stats, stop, stopped);
+    if (!warm.empty()) result = warmSteadyState(body, transient, warm, stats);
+    if (!result.empty() && warmUsed) *warmUsed = true;
+    if (result.empty()) result = relaxToSteady(body, transient, guess, stats, stop, stopped);
   }
   body.environment().confirmRanges(0.0);
   return result;
@@ -210,9 +256,10 @@ std::vector<std::string> exhaustedDefences(const Body& body, std::span<const dou
 
 }  // namespace
 
-std::vector<double> steadyState(const Body& body, std::span<const double> guess, SolverStatistics* statistics) {
+std::vector<double> steadyState(const Body& body, std::span<const double> guess, SolverStatistics* statistics,
+                                std::span<const double> warm, bool* warmUsed) {
   NetworkSystem transient(body.network(), NetworkSystem::Mode::Transient);
-  return steadyTemperatures(body, transient, guess, statistics);
+  return steadyTemperatures(body, transient, guess, statistics, nullptr, nullptr, warm, warmUsed);
 }
 
 RunSummary runTransient(const Body& body, const RunOptions& options) {
@@ -227,10 +274,14 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   std::vector<std::string> startWarnings;
   if (c.run.initial == InitialCondition::Steady) {
     // The relaxation integrates this run's own system (one transient system per run instead of two).
-    std::vector<double> steady = steadyTemperatures(body, system, std::span<const double>(y).first(states), nullptr,
-                                                    options.stop, &summary.stopped);
+    std::vector<double> steady =
+        steadyTemperatures(body, system, std::span<const double>(y).first(states), &summary.steadyStatistics,
+                           options.stop, &summary.stopped, options.steadyGuess, &summary.steadyWarm);
     std::copy(steady.begin(), steady.end(), y.begin());
-    if (!summary.stopped) startWarnings = exhaustedDefences(body, steady, "steady start");
+    if (!summary.stopped) {
+      startWarnings = exhaustedDefences(body, steady, "steady start");
+      if (options.keepSteadyState) summary.steadyState = std::move(steady);
+    }
   }
   IntegratorOptions io;
   io.rtol = c.run.rtol;
@@ -337,8 +388,8 @@ RunSummary runSteady(const Body& body, const RunOptions& options) {
   recorder.setIncompletePath(options.output.empty() ? "" : incompleteName(options.output));
   recorder.steadyState();
   body.setInterval(0);
-  std::vector<double> steady =
-      steadyTemperatures(body, transient, guess, &summary.statistics, options.stop, &summary.stopped);
+  std::vector<double> steady = steadyTemperatures(body, transient, guess, &summary.statistics, options.stop,
+                                                  &summary.stopped, options.steadyGuess, &summary.steadyWarm);
   if (!summary.stopped)
     for (std::string& w : exhaustedDefences(body, steady, "steady state")) recorder.addRunWarning(std::move(w));
   std::vector<double> y(transient.size(), 0.0);
@@ -350,6 +401,10 @@ RunSummary runSteady(const Body& body, const RunOptions& options) {
                       "reached so far";
   }
   summary.finalState.assign(steady.begin(), steady.begin() + static_cast<std::ptrdiff_t>(nodes));
+  if (!summary.stopped) {
+    summary.steadyStatistics = summary.statistics;
+    if (options.keepSteadyState) summary.steadyState = std::move(steady);
+  }
   recorder.finish(summary, true);
   return summary;
 }

@@ -37,6 +37,15 @@ struct RunOptions {
   //! run, none an output time): the model there by CVODE's interpolation, with the steps of a run without them
   //! (Integrator::firstStepToward), not by linear interpolation between outputs. Nothing is written for them.
   std::vector<double> observerTimes;
+  //! A warm start of the steady start (`initial = "steady"`) or of runSteady's state [nodes + controls]: the steady
+  //! state is first sought by Newton (KINSOL) from it, without the pseudo-time relaxation; when Newton fails or lands
+  //! far from it (warmSteadyState), the usual relaxation from the case's initial temperature. Empty: the usual.
+  //! `thermorph refine` passes the coarser level's steady state mapped onto the finer cells (drivers/refine.hpp).
+  //! A run without a steady start ignores it.
+  std::vector<double> steadyGuess;
+  //! Keep the steady state found in RunSummary::steadyState (refine's next level; off: a large run's steady start
+  //! is not held through its integration).
+  bool keepSteadyState = false;
 };
 
 struct RunSummary {
@@ -61,6 +70,13 @@ struct RunSummary {
   std::vector<double> controls;       //!< controller states at the last output [1]
   std::vector<std::string> warnings;     //!< every warning of the run: body, environment, then runWarnings
   std::vector<std::string> runWarnings;  //!< found while running (tissue below 0 degC), also in `warnings`
+  //! The steady start (or runSteady's state) found [nodes + controls] with RunOptions::keepSteadyState; empty
+  //! otherwise, without a steady start, or when stopped in it.
+  std::vector<double> steadyState;
+  //! The steady start's solver counters (relaxation steps, then Newton iterations, right-hand sides and Jacobians of
+  //! relaxation and KINSOL together); runSteady's are `statistics`.
+  SolverStatistics steadyStatistics;
+  bool steadyWarm = false;  //!< the steady state was found by Newton from RunOptions::steadyGuess
 };
 
 //! Integrate the case from its initial state for run.duration; output every run.output_interval.
@@ -70,7 +86,18 @@ RunSummary runSteady(const Body& body, const RunOptions& options);
 //! The steady state (node temperatures and controller states) of the surroundings and physiology at t = 0 from
 //! `guess` [nodes + controls], as runSteady and a run with `initial = "steady"` find it: pseudo-time relaxation,
 //! then KINSOL. Throws SolverError when it fails.
-std::vector<double> steadyState(const Body& body, std::span<const double> guess, SolverStatistics* statistics = nullptr);
+//! With `warm` given (RunOptions::steadyGuess), Newton from it first; `*warmUsed` says whether its root was kept.
+std::vector<double> steadyState(const Body& body, std::span<const double> guess, SolverStatistics* statistics = nullptr,
+                                std::span<const double> warm = {}, bool* warmUsed = nullptr);
+//! Largest change of any node temperature [K], and of the heat-capacity-weighted mean temperature [K], between a warm
+//! guess and the root Newton found from it, beyond which the root is not kept (the relaxation from the case's guess
+//! decides instead). A coarser level's steady state on the finer cells lies within the grid error of the finer one's:
+//! measured on `thermorph refine --steady` of the four steady-start examples at 1x -> 2x and 2x -> 4x, nodes at most
+//! 6.3 K (the wading bird) and the mean at most 0.021 K; the refine benchmark's swimmer (tests/bench/studies) 17.6 K
+//! and 0.0017 K (cell values carried across steep surface gradients in 6 degC water). Another root of the steady
+//! equations (a runaway branch of Q10 metabolism, which the relaxation exists to avoid) moves the whole body.
+inline constexpr double kWarmStartNodeChange = 50.0;
+inline constexpr double kWarmStartMeanChange = 1.0;
 //! Per-segment heat budget table, whole-body totals and the energy-balance error.
 void printBudget(const Body& body, const RunSummary& summary, std::FILE* out);
 

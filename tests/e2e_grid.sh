@@ -44,6 +44,11 @@ grep -q "grid: segment ears: axial_cells = 2 leaves an estimated error of .* axi
 grep -q "Richardson" "$work/ref.txt" || fail "refine table: $(cat "$work/ref.txt")"
 grep -q "not veterinary or medical advice" "$work/ref.txt" || fail "refine output lacks the caution"
 grep -q "^body.heat_flow.convection,W," "$work/ref.csv" || fail "refine CSV: $(cat "$work/ref.csv")"
+# --cold-start on a case without a steady start (the limb starts at 37 degC): the same table bit for bit.
+"$exe" refine "$limb" --duration "5 min" --metric body.heat_flow.convection --cold-start --csv "$work/cold.csv" \
+    > /dev/null || fail "refine --cold-start exit $?"
+cmp -s "$work/ref.csv" "$work/cold.csv" || fail "refine --cold-start without a steady start changed the table"
+grep -q "steady solve" "$work/ref.txt" && fail "refine reports a steady solve for a case without one: $(cat "$work/ref.txt")"
 "$exe" refine "$limb" --levels 2 > /dev/null 2>&1; code=$?
 [ "$code" -eq 2 ] || fail "refine --levels 2: exit $code, expected 2"
 echo "e2e_grid: ok"

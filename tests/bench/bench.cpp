@@ -4,7 +4,7 @@
 //!   thermorph_bench table DIR [--repeat N] [--skip-dense]
 //!                                              run them in this process and print Markdown tables
 //!   thermorph_bench one CASE [--dense]         one in-process run of any case file, one table row
-//!   thermorph_bench refine CASE [--levels N] [--set KEY=VALUE]...
+//!   thermorph_bench refine CASE [--levels N] [--cold-start] [--set KEY=VALUE]...
 //!                                              the levels of `thermorph refine` (1x, 2x, 4x, ... cells), one
 //!                                              table row per level: solver counters, fill, time per phase
 //!
@@ -19,6 +19,8 @@
 #include <cstdio>
 #include <filesystem>
 #include <fstream>
+#include <memory>
+#include <span>
 #include <string>
 #include <vector>
 
@@ -266,45 +268,78 @@ std::string countOrDash(double v, const char* format = "{:.0f}") {
   return v < 0.0 ? std::string("-") : fmt::format(fmt::runtime(format), v);
 }
 
+//! The coarser level's steady state mapped onto this level's cells, as `thermorph refine` warm-starts a finer level's
+//! steady start (drivers/refine.hpp, mapSteadyState); empty for a source without the warm start (older revisions built
+//! by refine_cost.sh: every level from the case's initial temperature, as they run), for the first level, or cold.
+template <class B>
+std::vector<double> warmGuess(const B* coarse, const std::vector<double>& state, const B& fine) {
+  if constexpr (requires { mapSteadyState(fine, std::span<const double>(state), fine); }) {
+    if (coarse && !state.empty()) return mapSteadyState(*coarse, std::span<const double>(state), fine);
+  }
+  return {};
+}
+//! steadyState from `warm` when the source has the warm start (and `warm` is given), else from `guess`; `*warmUsed`
+//! whether the warm root was kept.
+template <class B>
+std::vector<double> timedSteadyState(const B& body, const std::vector<double>& guess, const std::vector<double>& warm,
+                                     SolverStatistics* st, bool* warmUsed) {
+  *warmUsed = false;
+  if constexpr (requires { steadyState(body, std::span<const double>(guess), st, std::span<const double>(warm), warmUsed); })
+    return steadyState(body, std::span<const double>(guess), st, std::span<const double>(warm), warmUsed);
+  else
+    return steadyState(body, std::span<const double>(guess), st);
+}
+template <class R>
+void setSteadyGuess(R& run, const std::vector<double>& warm) {
+  if constexpr (requires { run.steadyGuess; }) run.steadyGuess = warm;
+}
+
 //! Each level as `thermorph refine` runs it (refinedCase of the loaded case, a Body, runTransient with the metric
 //! collector as observer), with the steady start (initial = "steady") timed once more on its own before the run
-//! (steadyState from the same guess: the same work the run repeats). "level [s]" and "level CPU [s]" are the level
+//! (steadyState from the same guess: the same work the run repeats; with the warm start, a finer level's from the
+//! coarser level's steady state mapped onto its cells, as refine does, unless `cold`). "level [s]" and "level CPU [s]" are the level
 //! as refine runs it (build and run, without that extra steady start); "rest of run" is the run's wall time minus
 //! CVODE's and the separately timed steady start (a difference of wall times: noisy on a loaded machine).
-int refineTable(const std::string& path, int levels, const std::vector<std::string>& overrides) {
+int refineTable(const std::string& path, int levels, const std::vector<std::string>& overrides, bool cold) {
   const auto l0 = std::chrono::steady_clock::now();
   const Case base = loadCase(path, overrides);
   const double loadWall = std::chrono::duration<double>(std::chrono::steady_clock::now() - l0).count();
   const bool steadyStart = base.run.initial == InitialCondition::Steady;
   fmt::print("{}: case load {:.3f} s; {}\n\n", fs::path(path).filename().string(), loadWall,
              steadyStart ? "steady start (relaxation + KINSOL) timed separately" : "no steady start");
-  fmt::print("| level | cells | nodes | build [s] | steady start [s] | steady steps | CVODE [s] | rest of run [s] "
+  fmt::print("| level | cells | nodes | build [s] | start | steady start [s] | steady steps | steady Newton its | "
+             "steady rhs | steady Jacobians | CVODE [s] | rest of run [s] "
              "| level [s] | level CPU [s] | steps | rhs | Jacobians | lin. setups | Newton its | conv. fails | err. fails | "
              "Jacobian nnz | solver | L+U nnz | fill | factorisations | refactorisations | Mflop per factorisation |\n");
-  fmt::print("|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|---:|---:"
-             "|---:|---:|---:|\n");
+  fmt::print("|---|---:|---:|---:|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:"
+             "|---|---:|---:|---:|---:|---:|\n");
+  std::unique_ptr<Body> coarser;  // the previous level and its steady start (warm start)
+  std::vector<double> coarserSteady;
   for (int level = 0; level < levels; ++level) {
     const int factor = 1 << level;
     const double cpu0 = cpuSeconds();
     const auto t0 = std::chrono::steady_clock::now();
     const Case c = refinedCase(base, factor);
-    Body body(c);
+    auto owned = std::make_unique<Body>(c);
+    Body& body = *owned;
     const auto t1 = std::chrono::steady_clock::now();
     double steadyWall = 0.0, steadyCpu = 0.0;
-    long steadySteps = 0;
+    SolverStatistics st;
+    bool warmUsed = false;
+    std::vector<double> warm;
     if (steadyStart) {
       std::vector<double> guess(body.network().nodes.size(), c.run.initialTemperature);
       for (const Controller& k : body.network().controllers) guess.push_back(k.initial);
-      SolverStatistics st;
       const double c0 = cpuSeconds();
       const auto s0 = std::chrono::steady_clock::now();
-      steadyState(body, guess, &st);
+      if (!cold) warm = warmGuess(coarser.get(), coarserSteady, body);  // the mapping counts as the steady start's
+      coarserSteady = timedSteadyState(body, guess, warm, &st, &warmUsed);
       steadyWall = std::chrono::duration<double>(std::chrono::steady_clock::now() - s0).count();
       steadyCpu = cpuSeconds() - c0;
-      steadySteps = st.steps;
     }
     MetricCollector collector(body, MetricWindow{}, {}, false);
     RunOptions run;
+    setSteadyGuess(run, warm);
     run.quiet = true;
     run.observer = [&](double t, std::span<const double> temperatures, const RunSummary& summary) {
       collector.observe(t, temperatures, summary);
@@ -321,9 +356,10 @@ int refineTable(const std::string& path, int levels, const std::vector<std::stri
     const std::string solver =
         s.bandwidth >= 0 ? fmt::format("band {} + border {}", s.bandwidth, s.bandBorder) : std::string("KLU");
     const double flops = factorFlops(s);
-    fmt::print("| {}x | {} | {} | {:.3f} | {:.3f} | {} | {:.3f} | {:.3f} | {:.3f} | {:.3f} | {} | {} | {} | {} | {} | {} | {} "
-               "| {} | {} | {} | {:.2f} | {} | {} | {} |\n",
-               factor, cells, body.network().nodes.size(), buildWall, steadyWall, steadyStart ? steadySteps : 0L,
+    fmt::print("| {}x | {} | {} | {:.3f} | {} | {:.3f} | {} | {} | {} | {} | {:.3f} | {:.3f} | {:.3f} | {:.3f} | {} | {} | {} "
+               "| {} | {} | {} | {} | {} | {} | {} | {:.2f} | {} | {} | {} |\n",
+               factor, cells, body.network().nodes.size(), buildWall, !steadyStart ? "-" : (warmUsed ? "warm" : "cold"),
+               steadyWall, st.steps, st.nonlinearIterations, st.rhsEvaluations, st.jacobianEvaluations,
                s.wallSeconds, runWall - s.wallSeconds - steadyWall, buildWall + runWall, levelCpu, s.steps, s.rhsEvaluations,
                s.jacobianEvaluations, s.linearSetups, s.nonlinearIterations, s.nonlinearFailures, s.errorTestFailures,
                s.jacobianNonzeros, solver, s.factorNonzeros,
@@ -331,6 +367,7 @@ int refineTable(const std::string& path, int levels, const std::vector<std::stri
                countOrDash(factorizations(s)), countOrDash(refactorizations(s)),
                flops < 0.0 ? std::string("-") : (flops == 0.0 ? std::string("band") : fmt::format("{:.2f}", 1e-6 * flops)));
     std::fflush(stdout);
+    if (steadyStart && level + 1 < levels) coarser = std::move(owned);
   }
   return 0;
 }
@@ -351,13 +388,15 @@ int main(int argc, char** argv) {
     }
     if (args.size() >= 2 && args[0] == "refine") {
       int levels = 3;
+      bool cold = false;
       std::vector<std::string> overrides;
       for (std::size_t i = 2; i < args.size(); ++i) {
         if (args[i] == "--levels" && i + 1 < args.size()) levels = std::stoi(args[++i]);
+        else if (args[i] == "--cold-start") cold = true;
         else if (args[i] == "--set" && i + 1 < args.size()) overrides.push_back(args[++i]);
         else throw std::invalid_argument("unknown option " + args[i]);
       }
-      return refineTable(args[1], levels, overrides);
+      return refineTable(args[1], levels, overrides, cold);
     }
     if (args.size() >= 2 && args[0] == "table") {
       int repeat = 3;
@@ -376,6 +415,6 @@ int main(int argc, char** argv) {
   fmt::print(stderr,
              "usage: thermorph_bench cases DIR\n       thermorph_bench table DIR [--repeat N] [--skip-dense]\n"
              "       thermorph_bench one CASE [--dense]\n"
-             "       thermorph_bench refine CASE [--levels N] [--set KEY=VALUE]...\n");
+             "       thermorph_bench refine CASE [--levels N] [--cold-start] [--set KEY=VALUE]...\n");
   return 2;
 }

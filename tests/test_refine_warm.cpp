@@ -1,0 +1,238 @@
+// The warm start of `thermorph refine` (drivers/refine.cpp, mapSteadyState; drivers/simulation.cpp, warmSteadyState):
+// each finer level's steady start by Newton from the coarser level's steady state on the finer cells. Checked against
+// (1) the cell geometry of the case (each fine cell takes the value of the coarse cell that contains its centre), (2)
+// the exact steady state of a perfused cylinder with a convective surface (the Pennes 1948 bioheat equation; its
+// regular solution T = T_eq + A I0(m r) with the convective boundary condition, derived below as in
+// test_validation_steady.cpp: the modified-Bessel form of the solid cylinder with surface heat transfer, Carslaw &
+// Jaeger 1959, ch. 7, and of the fin equation, Incropera et al. 2007, ch. 3; chapters from memory), (3) the cold start (pseudo-time relaxation from the case's initial
+// temperature, then KINSOL), which it must reproduce within KINSOL's tolerance with fewer Newton iterations and
+// right-hand sides.
+#include <unistd.h>
+
+#include <catch2/catch.hpp>
+
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+#include <filesystem>
+#include <fstream>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "drivers/refine.hpp"
+#include "test_support.hpp"
+
+using namespace thermorph;
+using namespace thermorph::testing;
+
+namespace {
+
+// Pennes (1948): k lap T + W (T_a - T) + q = 0, W = omega rho_b c_b; u = T - T_eq, T_eq = T_a + q / W, lap u = m^2 u,
+// m = sqrt(W / k); -k T'(R) = h (T(R) - T_inf). Values invented for the test (those of test_validation_steady.cpp).
+constexpr double conductivity = 0.5, perfusion = 5e-4, bloodDensity = 1050.0, bloodSpecificHeat = 3617.0;
+constexpr double metabolicHeat = 2000.0, arterial = 310.15, fluid = 293.15, radius = 0.04, convection = 20.0;
+
+//! Exact temperature at radius r [K]: T_eq - h dT I0(m r) / (k m I1(m R) + h I0(m R)), dT = T_eq - T_inf.
+double exactTemperature(double r) {
+  const double W = perfusion * bloodDensity * bloodSpecificHeat, m = std::sqrt(W / conductivity);
+  const double Teq = arterial + metabolicHeat / W;
+  return Teq - convection * (Teq - fluid) * std::cyl_bessel_i(0.0, m * r) /
+                   (conductivity * m * std::cyl_bessel_i(1.0, m * radius) +
+                    convection * std::cyl_bessel_i(0.0, m * radius));
+}
+double drivingDifference() {
+  const double W = perfusion * bloodDensity * bloodSpecificHeat;
+  return arterial + metabolicHeat / W - fluid;
+}
+
+//! The perfused cylinder as two layers of the same flesh (3 cm in 4 uniform cells, then 1 cm in 3 cells graded 5x
+//! towards the surface), 3 axial cells, insulated ends: the exact solution holds in both layers, and the mapping
+//! crosses a layer boundary and a graded layer. `q10` 1: linear (exact solution); 2: a nonlinear steady problem.
+std::string cylinderCase(double q10, const std::string& run = "") {
+  return "[run]\ninitial = \"steady\"\ninitial_temperature = " + num(arterial) + "\nduration = 600\noutput_interval = 60\n" +
+         run + "[circulation]\nblood_density = " + num(bloodDensity) + "\nblood_specific_heat = " +
+         num(bloodSpecificHeat) + "\nfixed_arterial_temperature = " + num(arterial) +
+         "\n[tissues.flesh]\nconductivity = " + num(conductivity) +
+         "\ndensity = 1050\nspecific_heat = 3600\nmetabolic_heat = " + num(metabolicHeat) + "\nperfusion = " +
+         num(perfusion) + "\nq10 = " + num(q10) +
+         "\n[[segments]]\nname = \"body\"\nshape = \"cylinder\"\nlength = 0.2\naxial_cells = 3\n"
+         "surface = { ends = \"insulated\" }\nlayers = [{ tissue = \"flesh\", thickness = 0.03, cells = 4 }, "
+         "{ tissue = \"flesh\", thickness = 0.01, cells = 3, grading = 5 }]\n[environment]\ntemperature = " +
+         num(fluid) + "\nconvection = " + num(convection) + "\n";
+}
+
+std::vector<double> initialGuess(const Body& body) {
+  std::vector<double> guess(body.network().nodes.size(), body.spec().run.initialTemperature);
+  for (const Controller& k : body.network().controllers) guess.push_back(k.initial);
+  return guess;
+}
+
+double largestDifference(const std::vector<double>& a, const std::vector<double>& b, std::size_t n) {
+  double d = 0.0;
+  for (std::size_t i = 0; i < n; ++i) d = std::max(d, std::abs(a[i] - b[i]));
+  return d;
+}
+
+//! Largest error of the tissue cells against the exact solution, relative to T_eq - T_inf.
+double exactError(const Body& body, const std::vector<double>& T) {
+  const SegmentMesh& m = body.segments()[0];
+  double worst = 0.0;
+  for (int iz = 0; iz < m.nz; ++iz)
+    for (int ir = 0; ir < m.nr; ++ir)
+      worst = std::max(worst, std::abs(T[m.node(iz, ir)] - exactTemperature(m.radius[static_cast<std::size_t>(ir)])));
+  return worst / drivingDifference();
+}
+
+}  // namespace
+
+TEST_CASE("Refine's warm start: each fine cell takes the coarse cell that contains its centre", "[refine][warm]") {
+  // Independent of the index arithmetic of mapSteadyState: the coarse cell edges from the case's geometry
+  // (SegmentSpec::axialEdges, LayerSpec::cellEdges: the uniform and graded mappings of the schema), the fine cell
+  // centres from the fine body's mesh. A coarse "state" holding each node's own index shows which coarse node each
+  // fine node took.
+  const Case base = loadCaseFromString(cylinderCase(1.0), "cylinder.toml");
+  for (int factor : {2, 4}) {
+    Body coarse(base);
+    Body fine(refinedCase(base, factor));
+    std::vector<double> index(coarse.network().nodes.size());
+    for (std::size_t i = 0; i < index.size(); ++i) index[i] = static_cast<double>(i);
+    const std::vector<double> taken = mapSteadyState(coarse, index, fine);
+    REQUIRE(taken.size() == fine.network().nodes.size());
+    const SegmentMesh& cm = coarse.segments()[0];
+    const SegmentMesh& fm = fine.segments()[0];
+    REQUIRE(fm.nz == factor * cm.nz);
+    REQUIRE(fm.nr == factor * cm.nr);
+    const std::vector<double> axial = base.segments[0].axialEdges();
+    std::vector<double> radial{0.0};  // ring edges from the axis, layer by layer
+    for (const LayerSpec& l : base.segments[0].layers) {
+      const double inner = radial.back();
+      const std::vector<double> e = l.cellEdges(l.thickness);
+      for (std::size_t k = 1; k < e.size(); ++k) radial.push_back(inner + e[k]);
+    }
+    REQUIRE(static_cast<int>(radial.size()) == cm.nr + 1);
+    for (int iz = 0; iz < fm.nz; ++iz)
+      for (int ir = 0; ir < fm.nr; ++ir) {
+        const auto node = static_cast<std::size_t>(taken[fm.node(iz, ir)]);
+        const int cz = static_cast<int>((node - cm.offset) / static_cast<std::size_t>(cm.nr));
+        const int cr = static_cast<int>((node - cm.offset) % static_cast<std::size_t>(cm.nr));
+        const double z = fm.axial[static_cast<std::size_t>(iz)], r = fm.radius[static_cast<std::size_t>(ir)];
+        INFO(factor << "x: fine cell (" << iz << ", " << ir << ") at z = " << z << ", r = " << r << " took coarse ("
+                    << cz << ", " << cr << ")");
+        CHECK(axial[static_cast<std::size_t>(cz)] <= z);
+        CHECK(z <= axial[static_cast<std::size_t>(cz) + 1]);
+        CHECK(radial[static_cast<std::size_t>(cr)] <= r);
+        CHECK(r <= radial[static_cast<std::size_t>(cr) + 1]);
+        CHECK(fm.layer[static_cast<std::size_t>(ir)] == cm.layer[static_cast<std::size_t>(cr)]);
+      }
+  }
+}
+
+TEST_CASE("Refine's warm start finds the cold start's steady state, the exact one within the grid error, in fewer "
+          "Newton iterations", "[refine][warm]") {
+  // Steady states of 1x, 2x and 4x (refinedCase): cold from the case's initial temperature; warm from the previous
+  // level's steady state mapped onto the cells. Criteria: warm and cold within 1e-9 K of each other (KINSOL stops at a
+  // scaled residual of 1e-11 K and takes one more full Newton step, solveSteadyState; measured: equal bit for bit here); against
+  // the exact solution (Pennes 1948; Carslaw & Jaeger 1959, ch. 7) the error falls at second order (cell-centred
+  // finite volumes: common practice, no source), warm as cold; warm uses fewer Newton iterations and right-hand sides
+  // and no relaxation step. Q10 = 2 (a nonlinear steady problem, no exact solution) must agree with its cold start too.
+  for (double q10 : {1.0, 2.0}) {
+    const Case base = loadCaseFromString(cylinderCase(q10), "cylinder.toml");
+    std::vector<double> previousState;
+    std::unique_ptr<Body> previous;
+    double previousError = 0.0;
+    for (int factor : {1, 2, 4}) {
+      auto body = std::make_unique<Body>(refinedCase(base, factor));
+      const std::vector<double> guess = initialGuess(*body);
+      SolverStatistics cold, warm;
+      const std::vector<double> coldState = steadyState(*body, guess, &cold);
+      const double error = exactError(*body, coldState);
+      std::printf("[refine warm] q10 %g, %dx: cold %ld relaxation steps, %ld Newton iterations, %ld right-hand sides",
+                  q10, factor, cold.steps, cold.nonlinearIterations, cold.rhsEvaluations);
+      if (previous) {
+        const std::vector<double> mapped = mapSteadyState(*previous, previousState, *body);
+        REQUIRE(mapped.size() == guess.size());
+        bool used = false;
+        const std::vector<double> warmState = steadyState(*body, guess, &warm, mapped, &used);
+        const double difference = largestDifference(warmState, coldState, warmState.size());
+        std::printf("; warm %ld steps, %ld Newton iterations, %ld right-hand sides; |warm - cold| %.2e K", warm.steps,
+                    warm.nonlinearIterations, warm.rhsEvaluations, difference);
+        INFO("q10 " << q10 << ", " << factor << "x");
+        CHECK(used);
+        CHECK(difference <= 1e-9);
+        CHECK(warm.steps == 0);
+        CHECK(warm.nonlinearIterations < cold.nonlinearIterations);
+        CHECK(warm.rhsEvaluations < cold.rhsEvaluations);
+        // A guess 60 K from the root (farther than kWarmStartNodeChange): Newton's root is not kept, the relaxation
+        // from the case's guess decides, the cold start's state bit for bit.
+        std::vector<double> far = mapped;
+        for (std::size_t i = 0; i < body->network().nodes.size(); ++i) far[i] += 60.0;
+        SolverStatistics fallback;
+        const std::vector<double> farState = steadyState(*body, guess, &fallback, far, &used);
+        CHECK_FALSE(used);
+        CHECK(largestDifference(farState, coldState, farState.size()) == 0.0);
+        CHECK(fallback.steps == cold.steps);
+        if (q10 == 1.0) {
+          const double warmError = exactError(*body, warmState);
+          const double order = observedOrder(previousError, warmError);
+          std::printf("; error vs exact %.3e of T_eq - T_inf (order %.2f)", warmError, order);
+          CHECK(order >= 1.8);
+          CHECK(order <= 2.2);
+          CHECK(std::abs(warmError - error) <= 1e-9 / drivingDifference());
+        }
+      } else if (q10 == 1.0) {
+        std::printf("; error vs exact %.3e of T_eq - T_inf", error);
+        CHECK(error <= 5e-3);
+      }
+      std::printf("\n");
+      previousState = coldState;
+      previousError = error;
+      previous = std::move(body);
+    }
+  }
+}
+
+TEST_CASE("thermorph refine: warm-started levels give the cold-started table, and without a steady start nothing changes",
+          "[refine][warm]") {
+  // The whole study (runRefinement, as `thermorph refine` runs it) with and without --cold-start on the nonlinear
+  // cylinder (Q10 = 2) with a steady start and a 10 min run after it, and on the same case started at a uniform
+  // temperature. The reference is the cold start: every value of the table within 1e-9 of it (relative, or K),
+  // the warm levels flagged and cheaper; without a steady start the two tables are bit for bit equal.
+  namespace fs = std::filesystem;
+  const fs::path dir = fs::temp_directory_path() / ("thermorph_refine_warm_" + std::to_string(::getpid()));
+  fs::create_directories(dir);
+  for (bool steadyStart : {true, false}) {
+    const fs::path file = dir / (steadyStart ? "steady.toml" : "uniform.toml");
+    std::string text = cylinderCase(2.0);
+    if (!steadyStart) text.replace(text.find("initial = \"steady\"\n"), 19, "");
+    std::ofstream(file) << text;
+    RefineOptions options;
+    options.casePath = file.string();
+    const RefineResult warm = runRefinement(options);
+    options.warmStart = false;
+    const RefineResult cold = runRefinement(options);
+    REQUIRE(warm.rows.size() == cold.rows.size());
+    for (std::size_t l = 0; l < 3; ++l) {
+      INFO("steady start " << steadyStart << ", level " << l);
+      CHECK(warm.hasSteadyStart[l] == (steadyStart ? 1 : 0));
+      CHECK(cold.steadyWarm[l] == 0);
+      CHECK(warm.steadyWarm[l] == (steadyStart && l > 0 ? 1 : 0));
+      if (steadyStart && l > 0) {
+        CHECK(warm.steadyStatistics[l].nonlinearIterations < cold.steadyStatistics[l].nonlinearIterations);
+        CHECK(warm.steadyStatistics[l].rhsEvaluations < cold.steadyStatistics[l].rhsEvaluations);
+      }
+    }
+    double worst = 0.0;
+    for (std::size_t k = 0; k < warm.rows.size(); ++k)
+      for (std::size_t l = 0; l < 3; ++l) {
+        const double a = warm.rows[k].values[l], b = cold.rows[k].values[l];
+        const double d = warm.rows[k].units == "W" ? std::abs(a - b) / std::max(std::abs(b), 1e-3) : std::abs(a - b);
+        worst = std::max(worst, d);
+        if (!steadyStart) CHECK(a == b);
+      }
+    std::printf("[refine warm] steady start %d: largest difference of the table's values warm vs cold %.2e\n",
+                steadyStart, worst);
+    CHECK(worst <= 1e-9);
+  }
+  fs::remove_all(dir);
+}
