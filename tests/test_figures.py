@@ -27,7 +27,8 @@
   and a ramp whose ends fall between outputs from its own start to its own end (the quadruped with a step 15 -> -5
   degC at 5 min and a ramp from 21 to 29 min, 2-min outputs; forcing and temperatures), and forcings are drawn only
   where they act (the quadruped swimming from 10 to 20 min, all in water and with its head above water); a map's
-  radial profile equal to an earlier one (a steady start and the output on the first step) is dashed over it.
+  radial profile equal to an earlier one (a steady start and the output on the first step) is dashed over it, and
+  the budget's flows over time are not joined across a step (the output on it holds the flows after it).
 Exits 1 on any failure.
 """
 
@@ -480,6 +481,24 @@ def check_equal_profiles(tmp: Path, exe: str):
           f"{first.get_linewidth()} / {step.get_linewidth()}, label {step.get_label()!r})")
     check(last.get_linestyle() in ("-", "solid") and "equal" not in last.get_label(),
           f"steady start and step: the 20-min profile marked equal: {last.get_label()!r}")
+
+    # The budget over time: the flows jump at the step (10 min) and the output there holds those after it; no
+    # line may join the 8-min output to the 10-min one (a ramp beginning before the event).
+    with Results(h5) as res:
+        fig = figures.budget_figure(res)
+    ax = next(a for a in fig.axes if a.get_label() == "whole-body heat flows")
+    for ln in ax.get_lines():
+        if ln.get_label().startswith("_"):
+            continue
+        x = np.asarray(ln.get_xdata(), float)
+        y = np.asarray(ln.get_ydata(), float)
+        joined = [k for k in range(len(x) - 1) if np.isfinite(y[k]) and np.isfinite(y[k + 1])
+                  and x[k] < 10.0 <= x[k + 1]]
+        check(not joined, f"steady start and step: budget line {ln.get_label()!r} joins {x[joined[0]]:g} and "
+                          f"{x[joined[0] + 1]:g} min across the step at 10 min" if joined else "")
+        check(8.0 in x and 10.0 in x, f"steady start and step: budget line {ln.get_label()!r} lost outputs: {x}")
+    footer = " ".join(fig.thermorph_footer.get_text().split())
+    check("lines broken at the timeline's step" in footer, f"steady start and step: budget footer {footer!r}")
 
 
 def check_contact_events(tmp: Path, exe: str):

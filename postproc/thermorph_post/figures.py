@@ -282,10 +282,19 @@ def budget_figure(res: Results, units: str = "physiology", segments=None, window
                                for j in order])
 
         # Panel b: body heat flows by channel over time (channels zero throughout left out).
+        breaks = []
         if len(t) > 1:
+            # Heat flows jump at the timeline's steps (events without a ramp), and an output on a step stores the
+            # flows after it: a line joined across the step would draw a ramp that begins before the event (a
+            # 2-min output before feet lifted at 60 min). The lines break there instead (NaN between the outputs
+            # that bracket a step, the step at or before the later one).
+            breaks = sorted({int(np.searchsorted(res.time, at, side="left")) for at, _ in res.timeline_steps()
+                             if res.time[0] < at <= res.time[-1]})
+            t_drawn = np.insert(t, breaks, np.nan)
             for c in body_channels:
                 colour, _, ls = styles[c]
-                ax_time.plot(t, flows[c] / div, color=colour, ls=ls, lw=lw, label=c, path_effects=outline(colour))
+                ax_time.plot(t_drawn, np.insert(flows[c] / div, breaks, np.nan), color=colour, ls=ls, lw=lw, label=c,
+                             path_effects=outline(colour))
             if symlog is not None:
                 ax_time.set_yscale("symlog", linthresh=symlog[0], linscale=SYMLOG_LINSCALE)
                 for edge in (-symlog[0], symlog[0]):
@@ -326,6 +335,12 @@ def budget_figure(res: Results, units: str = "physiology", segments=None, window
 
         suptitle(fig, f"{title_prefix(res)}{case_title(res)}: heat budget")
         notes = [n for n in [_selection_note(len(segs), left_out)] if n]
+        if breaks:
+            steps = [f"{label} at {format_time(at, scale)}" for at, label in res.timeline_steps()
+                     if res.time[0] < at <= res.time[-1]]
+            notes.append("Heat flows over time: lines broken at the timeline's "
+                         + (f"step ({steps[0]})" if len(steps) == 1 else f"{len(steps)} steps (first: {steps[0]})")
+                         + ", where flows jump; an output on a step holds the flows after it.")
         if zero:
             notes.append(f"Not drawn, zero throughout: {', '.join(zero)}.")
         if internal:
