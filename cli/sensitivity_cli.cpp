@@ -15,34 +15,25 @@ int guarded(Options& options, const std::string& commandLine, int (*command)(con
 }  // namespace
 
 CLI::App* addSensitivitySubcommand(CLI::App& app, SensitivityOptions& o) {
-  CLI::App* s = app.add_subcommand(
-      "sensitivity", "Sensitivity of sweep metrics to case parameters: local (normalised coefficients), Morris "
-                     "elementary effects or Sobol' indices; runs on the sweep engine");
+  namespace h = sensitivity_help;  // the texts the Python module's docstring shares (drivers/sensitivity.hpp)
+  CLI::App* s = app.add_subcommand("sensitivity", h::command);
   s->add_option("case", o.casePath, "Case file (TOML)")->required();
-  s->add_option("--set", o.overrides, "Override a case key in every run: KEY=VALUE")->take_all()->allow_extra_args(false);
-  s->add_option("--method", o.method, "local | morris | sobol (default sobol)");
-  s->add_option("--param", o.params,
-                "A parameter, addressed as --set addresses it: KEY=LOWER:UPPER[:log] (local: KEY, at the case's value)")
-      ->take_all()
-      ->allow_extra_args(false);
-  s->add_option("--metric", o.metrics, "Metrics as in `sweep --metric` (default: every column)")
-      ->take_all()
-      ->allow_extra_args(false);
-  s->add_option("--window", o.window, "Averaging window START:END (as in sweep)");
-  s->add_flag("--steady", o.steady, "Steady state of every run");
-  s->add_option("-N,--samples", o.samples, "Sobol: base samples N, N (k + 2) runs (default 512); Morris: trajectories (default 10)");
-  s->add_option("--levels", o.levels, "Morris grid levels (even; default 4)");
-  s->add_option("--gradient", o.gradient,
-                "Local: auto (CVODES forward sensitivities for parameters that enter the network as coefficients, "
-                "central differences for geometry and the rest) or fd (central differences for all); default auto")
-      ->check(CLI::IsMember({"auto", "fd"}));
-  s->add_option("--step", o.step, "Local: relative step of the central difference (default 1e-3)");
-  s->add_option("--bootstrap", o.bootstrap, "Sobol: bootstrap resamples for the 95 % intervals (default 1000)");
-  s->add_option("--seed", o.seed, "Seed of the Morris design and the bootstrap (default 1)");
-  s->add_option("-j,--jobs", o.jobs, "Worker threads (default: all cores); under mpirun one run per rank");
+  s->add_option("--set", o.overrides, h::set)->take_all()->allow_extra_args(false);
+  s->add_option("--method", o.method, h::method);
+  s->add_option("--param", o.params, h::param)->take_all()->allow_extra_args(false);
+  s->add_option("--metric", o.metrics, h::metric)->take_all()->allow_extra_args(false);
+  s->add_option("--window", o.window, h::window);
+  s->add_flag("--steady", o.steady, h::steady);
+  s->add_option("-N,--samples", o.samples, h::samples);
+  s->add_option("--levels", o.levels, h::levels);
+  s->add_option("--gradient", o.gradient, h::gradient)->check(CLI::IsMember({"auto", "fd"}));
+  s->add_option("--step", o.step, h::step);
+  s->add_option("--bootstrap", o.bootstrap, h::bootstrap);
+  s->add_option("--seed", o.seed, h::seed);
+  s->add_option("-j,--jobs", o.jobs, h::jobs);
   s->add_flag("--resume", o.resume, "Continue an interrupted analysis (the runs' sweep progress file)");
   s->add_flag("-q,--quiet", o.quiet, "No progress bar");
-  s->add_option("-o,--output", o.output, "Indices (HDF5); runs in NAME_runs.h5/.csv beside it. Default: CASE-NAME_METHOD.h5");
+  s->add_option("-o,--output", o.output, h::output);
   return s;
 }
 
@@ -51,27 +42,19 @@ int runSensitivityCli(SensitivityOptions& options, const std::string& commandLin
 }
 
 CLI::App* addUncertaintySubcommand(CLI::App& app, UncertaintyOptions& o) {
-  CLI::App* u = app.add_subcommand(
-      "uncertainty", "Propagate parameter distributions (or a fit's covariance) through the model: quantiles of "
-                     "metrics and 5-95 % bands of time series");
+  namespace h = uncertainty_help;  // shared with the Python module's docstring (drivers/uncertainty.hpp)
+  CLI::App* u = app.add_subcommand("uncertainty", h::command);
   u->add_option("case", o.casePath, "Case file (TOML)")->required();
-  u->add_option("--set", o.overrides, "Override a case key in every run: KEY=VALUE")->take_all()->allow_extra_args(false);
-  u->add_option("--param", o.params,
-                "KEY=DIST in the unit of UNIT: KEY[UNIT]=uniform:LO:HI | normal:MEAN:SD | lognormal:MEDIAN:GSD | "
-                "triangular:LO:MODE:HI, e.g. \"environment.temperature[degC]=normal:10:2\"")
-      ->take_all()
-      ->allow_extra_args(false);
-  u->add_option("--from-fit", o.fromFit, "Sample the fitted parameters from a fit's results (multivariate normal, its covariance)");
-  u->add_option("--series", o.series,
-                "Time series to band, as observed-data outputs (body.core_temperature, segments.NAME.mean_temperature, ...)")
-      ->take_all()
-      ->allow_extra_args(false);
-  u->add_option("--samples", o.samples, "Runs (default 200)");
-  u->add_option("--design", o.design, "lhs (Latin hypercube, default) or sobol (quasi-random)");
-  u->add_option("--seed", o.seed, "Seed of the Latin hypercube (default 1)");
-  u->add_option("-j,--jobs", o.jobs, "Threads (default: all cores)");
+  u->add_option("--set", o.overrides, h::set)->take_all()->allow_extra_args(false);
+  u->add_option("--param", o.params, h::param)->take_all()->allow_extra_args(false);
+  u->add_option("--from-fit", o.fromFit, h::fromFit);
+  u->add_option("--series", o.series, h::series)->take_all()->allow_extra_args(false);
+  u->add_option("--samples", o.samples, h::samples);
+  u->add_option("--design", o.design, h::design);
+  u->add_option("--seed", o.seed, h::seed);
+  u->add_option("-j,--jobs", o.jobs, h::jobs);
   u->add_flag("-q,--quiet", o.quiet, "No progress");
-  u->add_option("-o,--output", o.output, "Quantiles and bands (HDF5). Default: CASE-NAME_uncertainty.h5");
+  u->add_option("-o,--output", o.output, h::output);
   return u;
 }
 

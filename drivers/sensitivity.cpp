@@ -154,6 +154,8 @@ int runSensitivityCommand(const SensitivityOptions& o) {
   sweep.resume = o.resume;
   sweep.quiet = o.quiet;
   sweep.commandLine = o.commandLine;
+  sweep.report = o.report;
+  sweep.log = o.log;
   for (std::size_t j = 0; j < k; ++j) {
     std::string list;
     for (std::size_t r = 0; r < values.size(); ++r) {
@@ -163,7 +165,7 @@ int runSensitivityCommand(const SensitivityOptions& o) {
     sweep.vary.push_back(params[j].key + "=" + list);
   }
   if (!o.quiet)
-    fmt::print(stderr, "sensitivity ({}): {} parameters, {} runs on the sweep engine -> {}\n", method, k, values.size(),
+    fmt::print(o.log, "sensitivity ({}): {} parameters, {} runs on the sweep engine -> {}\n", method, k, values.size(),
                runsTable);
   const int code = runSweepCommand(sweep);
   if (code != 0 || launcherRank() != 0) return code;
@@ -182,7 +184,7 @@ int runSensitivityCommand(const SensitivityOptions& o) {
     forward = o.steady ? steadySensitivities(caseText, o.casePath, o.overrides, sp, probe)
                        : forwardSensitivities(caseText, o.casePath, o.overrides, sp, probe);
     if (!forward.ok) {
-      fmt::print(stderr, "error: the {} failed: {}\n",
+      fmt::print(o.log, "error: the {} failed: {}\n",
                  o.steady ? "steady state with sensitivities" : "run with forward sensitivities", forward.error);
       return 3;
     }
@@ -240,11 +242,11 @@ int runSensitivityCommand(const SensitivityOptions& o) {
     w.strings("/sensitivity/metrics", metrics);
     w.scale("/sensitivity/metrics");
     std::vector<double> a, b, c, d, e, f, variance, used;
-    fmt::print("Sensitivity ({}), {} runs ({} failed); parameters: {}\n", method, values.size(), failed,
+    fmt::print(o.report, "Sensitivity ({}), {} runs ({} failed); parameters: {}\n", method, values.size(), failed,
                fmt::join(keys, ", "));
     if (method == "local")
       for (std::size_t j = 0; j < k; ++j)
-        fmt::print("  {:<44} derivative by {}{}\n", keys[j], gradientMethodName(gradients[j].method),
+        fmt::print(o.report, "  {:<44} derivative by {}{}\n", keys[j], gradientMethodName(gradients[j].method),
                    gradients[j].reason.empty() ? "" : " (" + gradients[j].reason + ")");
     for (std::size_t q = 0; q < m; ++q) {
       std::vector<double> y = h5ReadDoubles(runsTable, "/metrics/" + metrics[q]);
@@ -262,9 +264,9 @@ int runSensitivityCommand(const SensitivityOptions& o) {
         variance.push_back(s.variance);
         used.push_back(static_cast<double>(s.used));
         if (q < 12) {
-          fmt::print("  {} (variance {:.4g} {}^2, {} base rows)\n", metrics[q], s.variance, units[q], s.used);
+          fmt::print(o.report, "  {} (variance {:.4g} {}^2, {} base rows)\n", metrics[q], s.variance, units[q], s.used);
           for (std::size_t j = 0; j < k; ++j)
-            fmt::print("    {:<44} S1 {:7.4f} [{:7.4f}, {:7.4f}]   ST {:7.4f} [{:7.4f}, {:7.4f}]\n", keys[j], s.first[j],
+            fmt::print(o.report, "    {:<44} S1 {:7.4f} [{:7.4f}, {:7.4f}]   ST {:7.4f} [{:7.4f}, {:7.4f}]\n", keys[j], s.first[j],
                        s.firstLow[j], s.firstHigh[j], s.total[j], s.totalLow[j], s.totalHigh[j]);
         }
       } else if (method == "morris") {
@@ -277,9 +279,9 @@ int runSensitivityCommand(const SensitivityOptions& o) {
           d.push_back(static_cast<double>(me.count[j]));
         }
         if (q < 12) {
-          fmt::print("  {} [{} per range]\n", metrics[q], units[q]);
+          fmt::print(o.report, "  {} [{} per range]\n", metrics[q], units[q]);
           for (std::size_t j = 0; j < k; ++j)
-            fmt::print("    {:<44} mu* {:10.4g}  mu {:10.4g}  sigma {:10.4g}  ({} effects)\n", keys[j], me.muStar[j], me.mu[j],
+            fmt::print(o.report, "    {:<44} mu* {:10.4g}  mu {:10.4g}  sigma {:10.4g}  ({} effects)\n", keys[j], me.muStar[j], me.mu[j],
                        me.sigma[j], me.count[j]);
         }
       } else {
@@ -303,20 +305,20 @@ int runSensitivityCommand(const SensitivityOptions& o) {
         }
         e.push_back(y0);
         if (q < 12) {
-          fmt::print("  {} = {:.6g} {}\n", metrics[q], y0, units[q]);
+          fmt::print(o.report, "  {} = {:.6g} {}\n", metrics[q], y0, units[q]);
           for (std::size_t j = 0; j < k; ++j) {
             // A compound parameter unit in parentheses: "degC/(W/(m K))", not "degC/W/(m K)" (read as degC per W,
             // per m K: found in a new-user trial).
             const std::string& pu = punits[j];
             const bool compound = pu.find_first_of("/ *.") != std::string::npos;
             const std::string per = pu.empty() || pu == "1" ? units[q] : units[q] + "/" + (compound ? "(" + pu + ")" : pu);
-            fmt::print("    {:<44} dy/dp {:11.5g} {}   dln y/dln p {:9.4g}   p dy/dp {:9.4g} {}\n", keys[j], a[q * k + j],
+            fmt::print(o.report, "    {:<44} dy/dp {:11.5g} {}   dln y/dln p {:9.4g}   p dy/dp {:9.4g} {}\n", keys[j], a[q * k + j],
                        per, b[q * k + j], c[q * k + j], units[q]);
           }
         }
       }
     }
-    if (m > 12) fmt::print("  ... {} metrics in all (see {})\n", m, output);
+    if (m > 12) fmt::print(o.report, "  ... {} metrics in all (see {})\n", m, output);
     w.strings("/sensitivity/units", units);
     const std::vector<std::uint64_t> shape = {m, k};
     if (method == "sobol") {
@@ -382,7 +384,7 @@ int runSensitivityCommand(const SensitivityOptions& o) {
       if (w.exists(name)) w.attach(name, {"/sensitivity/design/run", P});
   }
   std::filesystem::rename(tmp, output);
-  fmt::print("Results: {} (indices), {} (runs)\nCaution: {}\n", output, runsTable, caution);
+  fmt::print(o.report, "Results: {} (indices), {} (runs)\nCaution: {}\n", output, runsTable, caution);
   return 0;
 }
 

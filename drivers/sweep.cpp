@@ -242,7 +242,7 @@ SweepSession::SweepSession(const SweepPlan& plan, const SweepOptions& options, s
   start_ = lastDraw_ = Clock::now();
   tty_ = isatty(STDERR_FILENO) != 0;
   if (options.resume && !options.quiet)
-    fmt::print(stderr, "sweep: resuming {}: {} of {} runs done earlier\n", journal_.path(), before_, total_);
+    fmt::print(options_.log, "sweep: resuming {}: {} of {} runs done earlier\n", journal_.path(), before_, total_);
 }
 
 std::vector<std::size_t> SweepSession::todo() const {
@@ -275,7 +275,7 @@ void SweepSession::tick(bool force) {
   const int filled = total_ ? static_cast<int>(width * done / total_) : width;
   const std::string bar = std::string(static_cast<std::size_t>(filled), '#') + std::string(static_cast<std::size_t>(width - filled), '.');
   const std::string failed = failedNow_ ? fmt::format(", {} failed", failedNow_) : std::string();
-  fmt::print(stderr, "{}  [{}] {}/{} runs{}  {:.3g} runs/s  {} left   {}", tty_ ? "\r" : "", bar, done, total_, failed,
+  fmt::print(options_.log, "{}  [{}] {}/{} runs{}  {:.3g} runs/s  {} left   {}", tty_ ? "\r" : "", bar, done, total_, failed,
              rate, clock(left), tty_ ? "" : "\n");
   drawn_ = true;
 }
@@ -284,7 +284,7 @@ int SweepSession::finish() {
   const double wall = seconds(start_, Clock::now());
   if (drawn_ || (!options_.quiet && tty_)) {
     tick(true);
-    if (tty_) fmt::print(stderr, "\n");
+    if (tty_) fmt::print(options_.log, "\n");
   }
   std::size_t ok = 0, failed = 0;
   for (const RunRow& r : rows_) {
@@ -328,22 +328,22 @@ int SweepSession::finish() {
   }
   for (const std::string& pattern : order) {
     const Kind& k = kinds.at(pattern);
-    fmt::print(stderr, "warning ({} of {} runs{}): {}\n", k.runs, total_,
+    fmt::print(options_.log, "warning ({} of {} runs{}): {}\n", k.runs, total_,
                k.numbersDiffer ? fmt::format("; numbers differ, see the warnings column; run {}", k.first) : "",
                k.text);
   }
-  fmt::print("sweep: {} runs ({}): {} ok, {} failed, {} not run; {} done earlier, {} run now in {:.3g} s ({:.3g} runs/s, "
+  fmt::print(options_.report, "sweep: {} runs ({}): {} ok, {} failed, {} not run; {} done earlier, {} run now in {:.3g} s ({:.3g} runs/s, "
              "{})\n",
              total_, plan_.zip ? std::string("zip") : fmt::format("{}", fmt::join(plan_.shape, " x ")), ok, failed,
              missing, before_, now_, wall, wall > 0 ? static_cast<double>(now_) / wall : 0.0, engine_);
   for (std::size_t r = 0, shown = 0; r < rows_.size() && shown < 5; ++r)
     if (rows_[r].status == RunStatus::Failed) {
-      fmt::print("  run {} failed: {}\n", r, rows_[r].error);
-      if (++shown == 5 && failed > 5) fmt::print("  ... ({} failed runs in all; see /runs/error)\n", failed);
+      fmt::print(options_.report, "  run {} failed: {}\n", r, rows_[r].error);
+      if (++shown == 5 && failed > 5) fmt::print(options_.report, "  ... ({} failed runs in all; see /runs/error)\n", failed);
     }
-  fmt::print("Results: {} and {}\n", output_, sweepCsvPath(output_));
+  fmt::print(options_.report, "Results: {} and {}\n", output_, sweepCsvPath(output_));
   if (signal != 0) {
-    fmt::print(stderr, "sweep stopped by {}: {} runs not run; continue with the same command and --resume\n",
+    fmt::print(options_.log, "sweep stopped by {}: {} runs not run; continue with the same command and --resume\n",
                stopSignalName(), missing);
     return stopExitCode();
   }

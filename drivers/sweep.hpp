@@ -2,6 +2,7 @@
 //! Parameter sweeps: grids of case overrides and size series, run on local threads or MPI ranks, reduced to
 //! one table of metrics per run (HDF5 + CSV), resumable after an interruption.
 #include <atomic>
+#include <cstdio>
 #include <cstdint>
 #include <functional>
 #include <span>
@@ -42,6 +43,8 @@ struct SweepOptions {
   bool quiet = false;                  //!< no progress bar
   bool list = false;                   //!< print the runs and their overrides, run nothing
   std::string commandLine;
+  std::FILE* report = stdout;          //!< the summary a person reads (the Python module: a memory stream)
+  std::FILE* log = stderr;             //!< warnings and progress
 };
 
 //! Everything needed to run any run of the sweep, built identically on every rank.

@@ -252,7 +252,7 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
   for (std::size_t i = 1; i < runs; ++i) ok += outputs[i].ok ? 1 : 0;
   if (!outputs[0].ok) throw CaseError(fmt::format("uncertainty: the base case fails: {}", outputs[0].error));
   if (ok == 0) {
-    fmt::print(stderr, "error: every sampled run failed; the first: {}\n", outputs[1].error);
+    fmt::print(o.log, "error: every sampled run failed; the first: {}\n", outputs[1].error);
     return 3;
   }
   // Failed draws are left out, so the statistics describe a truncated distribution: said loudly, with the cause.
@@ -276,7 +276,7 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
         "describe the {} that ran, not the distribution given{}; the first failure: {}",
         o.samples - ok, o.samples, refused, ok, hint, first));
   }
-  for (const std::string& w : warnings) fmt::print(stderr, "warning: {}\n", w);
+  for (const std::string& w : warnings) fmt::print(o.log, "warning: {}\n", w);
 
   const std::string output =
       o.output.empty() ? std::filesystem::path(o.casePath).stem().string() + "_uncertainty.h5" : o.output;
@@ -319,8 +319,8 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
     std::vector<double> all(o.samples * m, nan), quantiles, means, sds;
     for (std::size_t r = 0; r < o.samples; ++r)
       if (outputs[r + 1].ok) std::copy(outputs[r + 1].metrics.begin(), outputs[r + 1].metrics.end(), all.begin() + static_cast<std::ptrdiff_t>(r * m));
-    fmt::print("Uncertainty: {} of {} runs ok ({:.3g} s); parameters: {}\n", ok, o.samples, wall, fmt::join(keys, ", "));
-    fmt::print("{:<52} {:>10} {:>10} {:>10} {:>10} {:>10}  unit\n", "metric", "5 %", "25 %", "median", "75 %", "95 %");
+    fmt::print(o.report, "Uncertainty: {} of {} runs ok ({:.3g} s); parameters: {}\n", ok, o.samples, wall, fmt::join(keys, ", "));
+    fmt::print(o.report, "{:<52} {:>10} {:>10} {:>10} {:>10} {:>10}  unit\n", "metric", "5 %", "25 %", "median", "75 %", "95 %");
     for (std::size_t q = 0; q < m; ++q) {
       std::vector<double> column;
       for (std::size_t r = 0; r < o.samples; ++r) column.push_back(all[r * m + q]);
@@ -336,7 +336,7 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
       sds.push_back(count > 1 ? std::sqrt(std::max(0.0, (sq - sum * sum / count) / (count - 1.0))) : nan);
       const bool shown = metricNames[q].starts_with("body.");
       if (shown)
-        fmt::print("{:<52} {:>10.4g} {:>10.4g} {:>10.4g} {:>10.4g} {:>10.4g}  {}\n", metricNames[q], quantiles[q * 5],
+        fmt::print(o.report, "{:<52} {:>10.4g} {:>10.4g} {:>10.4g} {:>10.4g} {:>10.4g}  {}\n", metricNames[q], quantiles[q * 5],
                    quantiles[q * 5 + 1], quantiles[q * 5 + 2], quantiles[q * 5 + 3], quantiles[q * 5 + 4], metricUnits[q]);
     }
     w.strings("/uncertainty/metric_names", metricNames);
@@ -392,7 +392,7 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
       w.attach(name, {M});
   }
   std::filesystem::rename(tmp, output);
-  fmt::print("Results: {}\nCaution: {}\n", output, caution);
+  fmt::print(o.report, "Results: {}\nCaution: {}\n", output, caution);
   return 0;
 }
 

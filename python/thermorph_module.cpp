@@ -20,7 +20,15 @@
 #include <fmt/format.h>
 #include <toml++/toml.h>
 
+#include <cstdio>
+#include <cstdlib>
+
+#include <hdf5.h>
+
 #include "drivers/fit.hpp"
+#include "drivers/h5_append.hpp"
+#include "drivers/sensitivity.hpp"
+#include "drivers/uncertainty.hpp"
 #include "drivers/record_budget.hpp"
 #include "drivers/record_fields.hpp"
 #include "drivers/simulation.hpp"
@@ -746,6 +754,270 @@ py::dict runFitPython(const py::object& spec, const py::object& data, const py::
   return out;
 }
 
+// ---- sensitivity and uncertainty -----------------------------------------------------------------------
+
+//! A memory stream for a driver's report or log (what the command line prints on stdout or stderr).
+class TextStream {
+ public:
+  TextStream() : file_(open_memstream(&buffer_, &size_)) {
+    if (!file_) throw std::runtime_error("cannot open a memory stream");
+  }
+  ~TextStream() {
+    if (file_) std::fclose(file_);
+    std::free(buffer_);
+  }
+  TextStream(const TextStream&) = delete;
+  TextStream& operator=(const TextStream&) = delete;
+  std::FILE* file() const { return file_; }
+  //! The text written so far (closes the stream).
+  std::string text() {
+    if (file_) std::fclose(file_);
+    file_ = nullptr;
+    return buffer_ ? std::string(buffer_, size_) : std::string();
+  }
+
+ private:
+  char* buffer_ = nullptr;
+  std::size_t size_ = 0;
+  std::FILE* file_ = nullptr;
+};
+
+//! An HDF5 handle closed on scope exit.
+struct H5Handle {
+  hid_t id;
+  herr_t (*close)(hid_t);
+  ~H5Handle() {
+    if (id >= 0) close(id);
+  }
+};
+
+//! The datasets of a results group as the file holds them: numbers as NumPy arrays of the dataset's shape, text
+//! as lists of str, subgroups as dicts; the group's attributes (text or numbers) in "attributes".
+py::dict readGroup(const std::string& file, const std::string& group) {
+  H5Handle f{H5Fopen(file.c_str(), H5F_ACC_RDONLY, H5P_DEFAULT), H5Fclose};
+  if (f.id < 0) throw std::runtime_error(file + ": cannot open");
+  H5Handle g{H5Gopen2(f.id, group.c_str(), H5P_DEFAULT), H5Gclose};
+  if (g.id < 0) throw std::runtime_error(file + ": no group " + group);
+  py::dict out, attributes;
+  for (const std::string& name : h5List(file, group)) {
+    const std::string path = group + "/" + name;
+    H5O_info_t info;
+    if (H5Oget_info_by_name2(g.id, name.c_str(), &info, H5O_INFO_BASIC, H5P_DEFAULT) < 0) continue;
+    if (info.type == H5O_TYPE_GROUP) {
+      out[py::str(name)] = readGroup(file, path);
+      continue;
+    }
+    if (info.type != H5O_TYPE_DATASET) continue;
+    H5Handle d{H5Dopen2(g.id, name.c_str(), H5P_DEFAULT), H5Dclose};
+    H5Handle type{H5Dget_type(d.id), H5Tclose};
+    if (H5Tget_class(type.id) == H5T_STRING) {
+      out[py::str(name)] = h5ReadStrings(file, path);
+      continue;
+    }
+    H5Handle space{H5Dget_space(d.id), H5Sclose};
+    const int rank = H5Sget_simple_extent_ndims(space.id);
+    std::vector<hsize_t> dims(static_cast<std::size_t>(std::max(rank, 0)));
+    H5Sget_simple_extent_dims(space.id, dims.data(), nullptr);
+    std::vector<py::ssize_t> shape(dims.begin(), dims.end());
+    py::array_t<double> a(shape);
+    if (a.size() > 0 && H5Dread(d.id, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, a.mutable_data()) < 0)
+      throw std::runtime_error(file + ": cannot read " + path);
+    out[py::str(name)] = a;
+  }
+  const int count = H5Aget_num_attrs(g.id);
+  for (int i = 0; i < count; ++i) {
+    H5Handle a{H5Aopen_by_idx(g.id, ".", H5_INDEX_NAME, H5_ITER_INC, static_cast<hsize_t>(i), H5P_DEFAULT, H5P_DEFAULT),
+               H5Aclose};
+    std::string name(static_cast<std::size_t>(H5Aget_name(a.id, 0, nullptr)), '\0');
+    H5Aget_name(a.id, name.size() + 1, name.data());
+    H5Handle type{H5Aget_type(a.id), H5Tclose};
+    if (H5Tget_class(type.id) == H5T_STRING) {
+      attributes[py::str(name)] = h5ReadStringAttribute(file, group, name);
+    } else {
+      double v = std::nan("");
+      H5Aread(a.id, H5T_NATIVE_DOUBLE, &v);
+      attributes[py::str(name)] = v;
+    }
+  }
+  out["attributes"] = attributes;
+  return out;
+}
+
+//! Where a driver writes: the caller's output=, or (none given) a fresh folder under the system's temporary folder,
+//! removed afterwards, whose name is taken out of the report (the files are gone when the call returns).
+struct DriverOutput {
+  std::filesystem::path scratch;
+  std::string path;
+  DriverOutput(const std::string& output, const std::string& casePath, const std::string& suffix) : path(output) {
+    if (!output.empty()) return;
+    std::string pattern = (std::filesystem::temp_directory_path() / "thermorph-XXXXXX").string();
+    if (!mkdtemp(pattern.data())) throw std::runtime_error("cannot create a temporary folder");
+    scratch = pattern;
+    path = (scratch / (std::filesystem::path(casePath).stem().string() + suffix)).string();
+  }
+  ~DriverOutput() {
+    std::error_code ignored;
+    if (!scratch.empty()) std::filesystem::remove_all(scratch, ignored);
+  }
+  DriverOutput(const DriverOutput&) = delete;
+  DriverOutput& operator=(const DriverOutput&) = delete;
+  //! A file name as the caller sees it ("" for a scratch file).
+  std::string shown(const std::string& file) const { return scratch.empty() ? file : std::string(); }
+  //! The report without the scratch folder's name.
+  std::string report(std::string text) const {
+    if (scratch.empty()) return text;
+    const std::string folder = scratch.string() + "/";
+    for (std::size_t at; (at = text.find(folder)) != std::string::npos;) text.erase(at, folder.size());
+    return text;
+  }
+};
+
+//! A case file path (str or os.PathLike): the sensitivity and uncertainty drivers read the file, as the command
+//! line does.
+std::string casePathOf(const py::object& spec, const char* function) {
+  const py::object pathLike = py::module_::import("os").attr("PathLike");
+  if (!py::isinstance<py::str>(spec) && !py::isinstance(spec, pathLike))
+    throw py::type_error(fmt::format("{}: case must be a case file path (str or os.PathLike), as the command line's", function));
+  return py::str(py::module_::import("os").attr("fspath")(spec)).cast<std::string>();
+}
+
+//! The lines a driver logged that begin with "warning", without "warning: ".
+std::vector<std::string> loggedWarnings(const std::string& log) {
+  std::vector<std::string> out;
+  std::istringstream in(log);
+  for (std::string line; std::getline(in, line);)
+    if (line.starts_with("warning: ")) out.push_back(line.substr(9));
+    else if (line.starts_with("warning")) out.push_back(line);
+  return out;
+}
+
+//! Run a driver on its options with the report and log in memory; the exit code as the command line's: 2 is a
+//! CaseError (thrown by the driver), 3 a failure (SolverError with the driver's error), 130/143 stopped.
+template <class Options>
+void runDriver(Options& o, int (*command)(const Options&), TextStream& report, TextStream& log, std::string& logText) {
+  o.report = report.file();
+  o.log = log.file();
+  o.quiet = true;
+  int code = 0;
+  {
+    py::gil_scoped_release release;
+    code = command(o);
+  }
+  std::fflush(report.file());
+  logText = log.text();
+  if (code == 0) return;
+  std::string error;
+  std::istringstream in(logText);
+  for (std::string line; std::getline(in, line);)
+    if (line.starts_with("error: ")) error = line.substr(7);
+  if (code == 130 || code == 143) throw SolverError("stopped by a signal" + (error.empty() ? "" : ": " + error));
+  throw SolverError(error.empty() ? fmt::format("the command failed (exit {})", code) : error);
+}
+
+py::dict runSensitivityPython(const py::object& spec, const py::object& params, const std::string& method,
+                              std::size_t samples, const py::object& metrics, bool steady, const std::string& window,
+                              int jobs, std::uint64_t seed, std::size_t bootstrap, const std::string& output,
+                              const py::object& set, std::size_t levels, const std::string& gradient, double step) {
+  SensitivityOptions o;
+  o.casePath = casePathOf(spec, "sensitivity");
+  o.params = strings(params, "params");
+  o.method = method;
+  o.samples = samples;
+  o.metrics = strings(metrics, "metrics");
+  o.steady = steady;
+  o.window = window;
+  o.jobs = jobs;
+  o.seed = seed;
+  o.bootstrap = bootstrap;
+  o.overrides = strings(set, "set");
+  o.levels = levels;
+  o.gradient = gradient;
+  o.step = step;
+  o.commandLine = "python: thermorph.sensitivity";
+  if (gradient != "auto" && gradient != "fd") throw CaseError(fmt::format("--gradient {}: expected auto or fd", gradient));
+  const DriverOutput out(output, o.casePath, "_" + method + ".h5");
+  o.output = out.path;
+  TextStream report, log;
+  std::string logText;
+  runDriver(o, &runSensitivityCommand, report, log, logText);
+  py::dict r = readGroup(o.output, "/sensitivity");
+  const std::string runsTable = h5ReadStringAttribute(o.output, "/sensitivity", "runs_table");
+  py::dict runs, values;
+  for (const std::string& name : h5List(runsTable, "/metrics"))
+    if (h5ReadStringAttribute(runsTable, "/metrics/" + name, "CLASS") != "DIMENSION_SCALE") {
+      const std::vector<double> v = h5ReadDoubles(runsTable, "/metrics/" + name);
+      values[py::str(name)] = array(v, {static_cast<py::ssize_t>(v.size())});
+    }
+  runs["metrics"] = values;
+  runs["status"] = h5ReadStrings(runsTable, "/runs/status");
+  runs["errors"] = h5ReadStrings(runsTable, "/runs/error");
+  runs["warnings"] = h5ReadStrings(runsTable, "/runs/warnings");
+  r["runs"] = runs;
+  // The runs' distinct warnings (the runs table's /provenance/warnings; the command line prints one line per kind).
+  r["warnings"] = h5ReadStrings(runsTable, "/provenance/warnings");
+  r["log"] = logText;
+  r["output"] = out.shown(o.output);
+  r["runs_table"] = out.shown(runsTable);
+  r["attributes"].cast<py::dict>()["runs_table"] = out.shown(runsTable);
+  r["report"] = out.report(report.text());
+  r["caution"] = caution;
+  return r;
+}
+
+py::dict runUncertaintyPython(const py::object& spec, const py::object& params, const py::object& fromFit,
+                              std::size_t samples, const std::string& design, const py::object& series,
+                              const py::object& metrics, std::uint64_t seed, int jobs, const std::string& output,
+                              const py::object& set) {
+  UncertaintyOptions o;
+  o.casePath = casePathOf(spec, "uncertainty");
+  o.params = strings(params, "params");
+  o.fromFit = fromFit.is_none() ? std::string() : py::str(py::module_::import("os").attr("fspath")(fromFit)).cast<std::string>();
+  o.samples = samples;
+  o.design = design;
+  o.series = strings(series, "series");
+  o.seed = seed;
+  o.jobs = jobs;
+  o.overrides = strings(set, "set");
+  o.commandLine = "python: thermorph.uncertainty";
+  const DriverOutput out(output, o.casePath, "_uncertainty.h5");
+  o.output = out.path;
+  TextStream report, log;
+  std::string logText;
+  runDriver(o, &runUncertaintyCommand, report, log, logText);
+  py::dict r = readGroup(o.output, "/uncertainty");
+  // metrics=[...]: the named metrics' rows only (the command line keeps every metric).
+  const std::vector<std::string> wanted = strings(metrics, "metrics");
+  if (!wanted.empty()) {
+    const std::vector<std::string> names = r["metric_names"].cast<std::vector<std::string>>();
+    std::vector<py::ssize_t> rows;
+    for (const std::string& w : wanted) {
+      auto at = std::find(names.begin(), names.end(), w);
+      if (at == names.end())
+        throw CaseError(fmt::format("uncertainty: metrics: no metric {}; the metrics are {}", w, fmt::join(names, ", ")));
+      rows.push_back(at - names.begin());
+    }
+    py::module_ np = py::module_::import("numpy");
+    py::array index = py::cast(rows);
+    r["metric_names"] = wanted;
+    for (const char* name : {"metric_units"}) {
+      const std::vector<std::string> all = r[name].cast<std::vector<std::string>>();
+      std::vector<std::string> kept;
+      for (py::ssize_t i : rows) kept.push_back(all[static_cast<std::size_t>(i)]);
+      r[name] = kept;
+    }
+    for (const char* name : {"metric_quantiles", "metric_mean", "metric_sd", "metric_base"})
+      r[name] = np.attr("take")(r[name], index, py::arg("axis") = 0);
+    r["metric_values"] = np.attr("take")(r["metric_values"], index, py::arg("axis") = 1);
+  }
+  // The command line's warnings (also in the file's /uncertainty attribute "warnings").
+  r["warnings"] = loggedWarnings(logText);
+  r["log"] = logText;
+  r["output"] = out.shown(o.output);
+  r["report"] = out.report(report.text());
+  r["caution"] = caution;
+  return r;
+}
+
 }  // namespace
 
 PYBIND11_MODULE(thermorph, m) {
@@ -796,4 +1068,44 @@ PYBIND11_MODULE(thermorph, m) {
         "as run() returns it), report (the command line's report with the caution), caution. `output=\"fit.h5\"` "
         "also writes the fitted run with /fit and STEM_fitted.toml beside it. Bad input raises CaseError; a fit "
         "that does not converge raises SolverError (its history in STEM.incomplete.h5 when output is given).");
+  {
+    namespace h = sensitivity_help;
+    m.def("sensitivity", &runSensitivityPython, py::arg("case"), py::arg("params"), py::arg("method") = "sobol",
+          py::arg("samples") = 0, py::arg("metrics") = py::none(), py::arg("steady") = false, py::arg("window") = "",
+          py::arg("jobs") = 1, py::arg("seed") = 1, py::arg("bootstrap") = 1000, py::arg("output") = "",
+          py::arg("set") = py::none(), py::arg("levels") = 4, py::arg("gradient") = "auto", py::arg("step") = 1e-3,
+          fmt::format("{}, as `thermorph sensitivity` does (the same driver; its options by the same names):\n"
+                      "case: a case file path\nparams (--param): {}\nmethod (--method): {}\nsamples (-N): {}; 0: the "
+                      "default\nmetrics (--metric): {}\nsteady (--steady): {}\nwindow (--window): {}\njobs (-j): {}; "
+                      "default here 1\nseed (--seed): {}\nbootstrap (--bootstrap): {}\nset (--set): {}\nlevels "
+                      "(--levels): {}\ngradient (--gradient): {}\nstep (--step): {}\noutput (-o): {}; \"\": no file\n"
+                      "Returns the results file's /sensitivity group as a dict (NumPy arrays of the file's shapes: "
+                      "first, total, first_low ... [metric, parameter] for sobol; mu, mu_star, sigma for morris; "
+                      "derivative, normalised for local; parameters, metrics, units, design), its attributes, runs "
+                      "(metrics per run, status, errors), warnings, report (the command line's, with the caution) "
+                      "and caution. Bad input raises CaseError with the command line's message.",
+                      h::command, h::param, h::method, h::samples, h::metric, h::steady, h::window, h::jobs, h::seed,
+                      h::bootstrap, h::set, h::levels, h::gradient, h::step, h::output)
+              .c_str());
+  }
+  {
+    namespace h = uncertainty_help;
+    m.def("uncertainty", &runUncertaintyPython, py::arg("case"), py::arg("params") = py::none(),
+          py::arg("from_fit") = py::none(), py::arg("samples") = 200, py::arg("design") = "lhs",
+          py::arg("series") = py::none(), py::arg("metrics") = py::none(), py::arg("seed") = 1, py::arg("jobs") = 1,
+          py::arg("output") = "", py::arg("set") = py::none(),
+          fmt::format("{}, as `thermorph uncertainty` does (the same driver; its options by the same names):\n"
+                      "case: a case file path\nparams (--param): {}\nfrom_fit (--from-fit): {}\nsamples "
+                      "(--samples): {}\ndesign (--design): {}\nseries (--series): {}\nmetrics: the metrics to "
+                      "return (default every one; the file keeps every one)\nseed (--seed): {}\njobs (-j): {}; "
+                      "default here 1\nset (--set): {}\noutput (-o): {}; \"\": no file\n"
+                      "Returns the results file's /uncertainty group as a dict (NumPy arrays: samples [sample, "
+                      "parameter], run_ok, metric_values [sample, metric], metric_quantiles [metric, probability], "
+                      "metric_mean, metric_sd, metric_base, time, series[NAME] q05 ... q95, mean, base), its attributes, "
+                      "warnings (the command line's), report (with the caution) and caution. Bad input raises "
+                      "CaseError with the command line's message.",
+                      h::command, h::param, h::fromFit, h::samples, h::design, h::series, h::seed, h::jobs, h::set,
+                      h::output)
+              .c_str());
+  }
 }

@@ -28,17 +28,8 @@ import numpy as np
 import pandas as pd
 from scipy.optimize import least_squares
 
-module_dir, exe, src = sys.argv[1], sys.argv[2], Path(sys.argv[3])
-sys.path.insert(0, module_dir)
-import thermorph  # noqa: E402
-
-failures = []
-
-
-def check(ok, what):
-    print(("ok   " if ok else "FAIL ") + what)
-    if not ok:
-        failures.append(what)
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from module_checks import check, exe, failures, src, thermorph  # noqa: E402
 
 
 def close(a, b, rel=1e-9):
