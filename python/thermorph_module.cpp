@@ -1,5 +1,6 @@
-//! The Python module `thermorph` (pybind11): runs a case, a steady state or a sweep in-process through the same
-//! drivers as the command line (runTransient, runSteady, makeSweepPlan/runLocal) and returns NumPy arrays.
+//! The Python module `thermorph` (pybind11): runs a case, a steady state, a sweep, a fit, a sensitivity analysis or an
+//! uncertainty propagation in-process through the same drivers as the command line (runTransient, runSteady,
+//! makeSweepPlan/runLocal, the fit steps, runSensitivityCommand, runUncertaintyCommand) and returns NumPy arrays.
 //!
 //!   import thermorph
 //!   r = thermorph.run("cases/limb_cooling.toml", set=["environment.temperature=5 degC"])
