@@ -31,11 +31,12 @@ std::string parameterOverride(const FitParameter& p, double value);
 //! Parse `--free KEY=LO:HI[:log]` against the case (text and --set overrides; the start defaults to the case's
 //! value) with the optional `--start KEY=VALUE` and `--prior KEY=MEAN:SD` lists. Checks the key (schema,
 //! numeric, segment names), the bounds (loaded by the case loader) and that the start lies within them. Throws
-//! CaseError (exit 2). With `boundsOptional`, a bare KEY is an unbounded parameter at the case's value.
+//! CaseError (exit 2). With `boundsOptional`, a bare KEY is an unbounded parameter at the case's value. `option`
+//! names the command line's option in messages (sensitivity and uncertainty: --param).
 std::vector<FitParameter> parseFitParameters(const std::vector<std::string>& free, const std::vector<std::string>& starts,
                                              const std::vector<std::string>& priors, const std::string& caseText,
                                              const std::string& casePath, const std::vector<std::string>& overrides,
-                                             bool boundsOptional = false);
+                                             bool boundsOptional = false, const std::string& option = "--free");
 
 //! Everything a fit needs.
 struct FitProblem {

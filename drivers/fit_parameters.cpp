@@ -73,7 +73,7 @@ std::string parameterOverride(const FitParameter& p, double value) {
 std::vector<FitParameter> parseFitParameters(const std::vector<std::string>& free, const std::vector<std::string>& starts,
                                              const std::vector<std::string>& priors, const std::string& caseText,
                                              const std::string& casePath, const std::vector<std::string>& overrides,
-                                             bool boundsOptional) {
+                                             bool boundsOptional, const std::string& option) {
   const Case base = loadCaseFromString(caseText, casePath, overrides);
   if (free.empty()) throw CaseError("fit: no free parameter; give at least one --free KEY=LOWER:UPPER");
   std::map<std::string, std::string> startOf, priorOf;
@@ -90,15 +90,15 @@ std::vector<FitParameter> parseFitParameters(const std::vector<std::string>& fre
     // Without bounds (local sensitivities): KEY alone, unbounded, in the schema's unit.
     const bool unbounded = boundsOptional && f.find('=') == std::string::npos;
     auto [key, spec] = unbounded ? std::pair<std::string, std::string>(trim(f), "")
-                                 : keyValue(f, "--free", "\"segments.trunk.coat.thickness=0.5 cm:3 cm\"");
-    const std::string what = fmt::format("--free {}", f);
+                                 : keyValue(f, option.c_str(), "\"segments.trunk.coat.thickness=0.5 cm:3 cm\"");
+    const std::string what = fmt::format("{} {}", option, f);
     const Param* param = schemaEntry(key);
     if (!param)
       throw CaseError(fmt::format("{}: no such case key \"{}\" (see cases/REFERENCE.md; segments are addressed by name, "
                                   "e.g. segments.NAME.length)",
                                   what, key));
     if (param->kind != ParamKind::Quantity && param->kind != ParamKind::Perfusion && param->kind != ParamKind::Number)
-      throw CaseError(fmt::format("{}: {} is not a continuous numeric key (a fit can only vary numbers and quantities)",
+      throw CaseError(fmt::format("{}: {} is not a continuous numeric key (only numbers and quantities can vary)",
                                   what, key));
     std::vector<std::string> parts = split(key, '.');
     if (parts.size() > 1 && parts[0] == "segments") {
@@ -112,7 +112,7 @@ std::vector<FitParameter> parseFitParameters(const std::vector<std::string>& fre
         throw CaseError(fmt::format("{}: no segment \"{}\" (segments: {})", what, parts[1], fmt::join(names, ", ")));
     }
     for (const FitParameter& p : out)
-      if (p.key == key) throw CaseError(fmt::format("{}: {} is free twice", what, key));
+      if (p.key == key) throw CaseError(fmt::format("{}: {} is given twice", what, key));
     std::vector<std::string> bounds = split(spec, ':');
     FitParameter p;
     p.key = key;

@@ -75,7 +75,7 @@ int runSensitivityCommand(const SensitivityOptions& o) {
       if (p.find('=') == std::string::npos)
         throw CaseError(fmt::format("--param {}: {} needs bounds, KEY=LOWER:UPPER[:log]", p, method));
   std::vector<FitParameter> params =
-      parseFitParameters(o.params, {}, {}, caseText, o.casePath, o.overrides, method == "local");
+      parseFitParameters(o.params, {}, {}, caseText, o.casePath, o.overrides, method == "local", "--param");
   const std::size_t k = params.size();
   if (method != "local")
     for (const FitParameter& p : params)

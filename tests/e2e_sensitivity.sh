@@ -143,7 +143,7 @@ expect2() {  # expect2 PATTERN ARGS...
 }
 expect2 "expected local, morris or sobol" sensitivity lump.toml --method fourier "${params[@]}" -q
 expect2 "needs bounds" sensitivity lump.toml --method sobol --param environment.convection -q
-expect2 "no such case key" sensitivity lump.toml --method sobol --param "environment.convektion=1:2" -q
+expect2 "^error: --param environment.convektion=1:2: no such case key" sensitivity lump.toml --method sobol --param "environment.convektion=1:2" -q   # names the option given (was --free)
 expect2 "unknown kind" uncertainty lump.toml --param "environment.temperature[degC]=gamma:1:2" -q
 expect2 "case loader refuses" uncertainty lump.toml --param "environment.temperature[m]=normal:1:0.1" -q
 expect2 "no such file" uncertainty lump.toml --from-fit missing.h5 -q
