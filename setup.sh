@@ -11,7 +11,7 @@ action="${1:-demo}"
 packages=(cmake make g++ pkg-config libeigen3-dev libsundials-dev libsuitesparse-dev libhdf5-dev catch2 libtomlplusplus-dev
           libcli11-dev libfmt-dev libudunits2-dev libopenmpi-dev openmpi-bin python3 python3-numpy python3-h5py
           python3-matplotlib python3-scipy python3-xarray python3-h5netcdf time libceres-dev libboost-dev
-          python3-dev pybind11-dev python3-pybind11 libdeflate-dev libexpat1-dev)
+          python3-dev pybind11-dev python3-pybind11 libdeflate-dev libexpat1-dev lld)
 packages+=(python3-pip python3-setuptools python3-wheel)   # pip install ./postproc (ctest figures)
 missing=()
 for p in "${packages[@]}"; do
