@@ -340,7 +340,7 @@ static void refuseInertAxes(const SweepPlan& plan) {
       continue;  // that run fails by itself
     }
     loaded = true;
-    const InertKeys inert(c);
+    const InertKeys inert(c, plan.steady);
     for (std::size_t a = 0; a < n; ++a) {
       if (plan.axes[a].scale) continue;
       if (auto reason = inert.reason(plan.axes[a].key)) why[a] = reason;

@@ -315,7 +315,10 @@ void Body::buildControllers() {
   if (cs.vasomotor.present && bodyWideVasomotorActs(case_)) {
     skinControl_ = add(cs.vasomotor, 0, "vasomotor_skin_perfusion", 1.0, cs.vasomotor.gain, cs.vasomotor.lower,
                        cs.vasomotor.upper, 1.0);
-    shuntControl_ = add(cs.vasomotor, 0, "vasomotor_shunts", 0.0, cs.vasomotor.shuntGain, 0.0, 1.0, 1.0);
+    // Its shunt state only where a segment with shunts follows it: a state that drives nothing still takes part in
+    // the integrator's error test, so its shunt_gain moved the steps.
+    if (bodyWideShuntsAct(case_))
+      shuntControl_ = add(cs.vasomotor, 0, "vasomotor_shunts", 0.0, cs.vasomotor.shuntGain, 0.0, 1.0, 1.0);
   }
   if (cs.shivering.present)
     shiverControl_ = add(cs.shivering, 1, "shivering", 0.0, -cs.shivering.gain, 0.0, 1.0, 0.0);

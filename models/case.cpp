@@ -973,7 +973,7 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
           if (const toml::node* n = e->get(table))
             CaseReader::collectGiven(*n, "events." + CaseReader::elementLabel((*events)[i], i) + "." + table, c.given);
   for (std::size_t i = 0; i < segArray.size(); ++i)
-    for (const char* table : {"surface", "vasomotor"})
+    for (const char* table : {"surface", "vasomotor", "vessels"})
       if (const toml::node* n = segArray[i].as_table()->get(table))
         CaseReader::collectGiven(*n, "segments." + c.segments[i].name + "." + table, c.given);
   if (warnInert)
@@ -1107,6 +1107,12 @@ bool followsBodyWideVasomotor(const Case& c, std::size_t g) {
 bool bodyWideVasomotorActs(const Case& c) {
   for (std::size_t g = 0; g < c.segments.size(); ++g)
     if (followsBodyWideVasomotor(c, g)) return true;
+  return false;
+}
+
+bool bodyWideShuntsAct(const Case& c) {
+  for (std::size_t g = 0; g < c.segments.size(); ++g)
+    if (c.segments[g].vessels.shuntFlowMax > 0.0 && followsBodyWideVasomotor(c, g)) return true;
   return false;
 }
 

@@ -266,6 +266,10 @@ std::string resolvedCaseToml(const Case& c);
 bool followsBodyWideVasomotor(const Case& c, std::size_t g);
 //! Some segment follows the body-wide [control.vasomotor] (followsBodyWideVasomotor).
 bool bodyWideVasomotorActs(const Case& c);
+//! Some segment with shunts (vessels.shunt_flow_max > 0) follows the body-wide [control.vasomotor]. When none does,
+//! its shunt opening drives nothing: Body builds no state for it (whose shunt_gain would otherwise move the
+//! integrator's steps) and control.vasomotor.shunt_gain warns (models/inert_keys.hpp).
+bool bodyWideShuntsAct(const Case& c);
 
 //! Markdown reference of every case key (generated from the schema).
 std::string caseReferenceMarkdown();

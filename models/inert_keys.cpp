@@ -13,6 +13,15 @@ namespace thermorph {
 namespace {
 
 using V = EnvironmentVariable;
+
+//! [run] keys of the integration over time: a steady state is solved by a relaxation at fixed tolerances and
+//! KINSOL (drivers/simulation.cpp, steadyTemperatures), which read none of them. (run.duration and run.initial act:
+//! the automatic grid's stepped-surroundings rule reads them, models/grid.cpp forcingInterval; so does
+//! run.initial_temperature, the relaxation's start.)
+constexpr const char* kSteadyRunKeys[] = {"run.output_interval", "run.rtol", "run.atol", "run.max_step"};
+constexpr const char* kSteadyWhy = "the sweep solves each run's steady state (--steady or sweep.mode = \"steady\"), not "
+                                   "an integration over time: the output interval and the integrator's tolerances and "
+                                   "largest step apply to transient runs only";
 constexpr std::size_t index(V v) { return static_cast<std::size_t>(v); }
 
 //! Where a segment's faces can be: the fluids of the run (EnvironmentModel::fluid).
@@ -20,7 +29,7 @@ enum Fluid : std::size_t { MediumFluid, WaterInAir, AirInWater, kFluids };
 
 }  // namespace
 
-InertKeys::InertKeys(const Case& c) : case_(c) {
+InertKeys::InertKeys(const Case& c, bool steady) : case_(c), steady_(steady) {
   environment();
   surfaces();
   controllers();
@@ -211,7 +220,7 @@ void InertKeys::controllers() {
     if (why.empty())
       why = fmt::format("[{}] is off for the whole run (enabled = \"off\" and no [[events]] entry switches it on)",
                         table);
-    controllerOff_[name] = why;
+    setPointInert_[name] = why;
     for (const char* key : keys) add(table + "." + key, why);
   };
   const ControlSpec& k = c.control;
@@ -226,15 +235,66 @@ void InertKeys::controllers() {
               "[control.local.NAME] instead, so [control.vasomotor] acts on none");
   else if (k.vasomotor.present && offThroughout("vasomotor", k.vasomotor.enabled))
     off("vasomotor", "control.vasomotor", {"signal", "set_point", "gain", "min", "max", "shunt_gain", "time_constant"});
+  else if (k.vasomotor.present)
+    vasomotorGains("vasomotor", "control.vasomotor", k.vasomotor.gain, k.vasomotor.shuntGain, bodyWideShuntsAct(c),
+                   k.vasomotor.enabled,
+                   "no segment with arteriovenous shunts (vessels.shunt_flow_max > 0) follows [control.vasomotor] "
+                   "(each segment has none, or follows a [control.local.NAME])");
+  // A gain of 0 makes the output the same at every temperature, and equal to its value when off (shivering 0,
+  // panting 1): the other keys then set nothing (the automatic grid leaves out outputs of gain 0 too). The signal
+  // is not among them: its nodes stay in the Jacobian's pattern (as zeros), which moves the steps.
   if (k.shivering.present && offThroughout("shivering", k.shivering.enabled))
     off("shivering", "control.shivering", {"signal", "set_point", "gain", "max_power", "time_constant"});
+  else if (k.shivering.present && !(k.shivering.gain != 0.0))
+    off("shivering", "control.shivering", {"set_point", "max_power", "time_constant", "enabled"},
+        "control.shivering.gain = 0: the shivering fraction gain x (set_point - T) is 0 at every temperature, on or "
+        "off, so there is no shivering heat (give a gain > 0)");
   if (k.panting.present && offThroughout("panting", k.panting.enabled))
     off("panting", "control.panting", {"signal", "set_point", "gain", "max", "time_constant"});
+  else if (k.panting.present && !(k.panting.gain != 0.0))
+    off("panting", "control.panting", {"set_point", "max", "time_constant", "enabled"},
+        "control.panting.gain = 0: the ventilation multiplier 1 + gain x (T - set_point) is 1 at every temperature, "
+        "on or off, as without panting (give a gain > 0)");
   // A local controller's segments and CIVD act whether it is on or off (the body-wide controller leaves its
   // segments alone; CIVD is never switched).
-  for (const LocalControllerSpec& l : k.local)
-    if (offThroughout(l.name, l.enabled))
-      off(l.name, "control.local." + l.name, {"signal", "set_point", "gain", "min", "max", "shunt_gain", "time_constant"});
+  for (const LocalControllerSpec& l : k.local) {
+    const std::string table = "control.local." + l.name;
+    if (offThroughout(l.name, l.enabled)) {
+      off(l.name, table, {"signal", "set_point", "gain", "min", "max", "shunt_gain", "time_constant"});
+      continue;
+    }
+    const bool shunts = std::any_of(l.segments.begin(), l.segments.end(), [&](const std::string& name) {
+      return std::any_of(c.segments.begin(), c.segments.end(),
+                         [&](const SegmentSpec& s) { return s.name == name && s.vessels.shuntFlowMax > 0.0; });
+    });
+    vasomotorGains(l.name, table, l.gain, l.shuntGain, shunts, l.enabled,
+                   fmt::format("no segment [{}] names has arteriovenous shunts (vessels.shunt_flow_max > 0)", table));
+  }
+}
+
+bool InertKeys::everOff(const std::string& controller, bool enabled) const {
+  if (!enabled) return true;
+  for (const EventSpec& e : case_.events)
+    for (const ControlTarget& t : e.control)
+      if (t.controller == controller && t.enabled && !*t.enabled) return true;
+  return false;
+}
+
+void InertKeys::vasomotorGains(const std::string& name, const std::string& table, double gain, double shuntGain,
+                               bool shunts, bool enabled, const std::string& noShunts) {
+  // Skin perfusion 1 + gain (T - set_point) within [min, max]; the shunt opening shunt_gain (T - set_point) within
+  // [0, 1], a state built only where a segment with shunts follows the controller (Body::buildControllers,
+  // buildLocalControllers).
+  if (!shunts) add(table + ".shunt_gain", noShunts);
+  if (gain != 0.0 || (shunts && shuntGain != 0.0)) return;
+  const std::string why = fmt::format(
+      "{}.gain = 0 and {}: no output of [{}] depends on the temperature (give a gain > 0)", table,
+      shunts ? "shunt_gain = 0" : "it drives no shunts", table);
+  add(table + ".set_point", why);
+  setPointInert_[name] = why;
+  // The states stay at their start unless the controller is switched off (it then moves them to its off values,
+  // perfusion 1 and shunts open, over its time constant).
+  if (!everOff(name, enabled)) add(table + ".time_constant", why + ", and it is on for the whole run");
 }
 
 void InertKeys::vasomotor() {
@@ -243,7 +303,18 @@ void InertKeys::vasomotor() {
   // with `skin`); a shunt opening is a fraction of vessels.shunt_flow_max (Body::addPerfusionModulators). A new-user
   // trial's segments.neck.vasomotor.shunt = 1 on a neck without shunts said nothing.
   const std::size_t n = c.segments.size();
-  std::vector<std::string> noSkin(n), noShunts(n);
+  std::vector<std::string> noSkin(n), noShunts(n), noPerfusion(n);
+  // The controller a segment's shunts follow, when its opening stays 0 for the whole run: shunt_gain = 0 and never
+  // switched off (off, the opening is the segment's own value). The segment's opening multiplies that state.
+  auto closedBy = [&](const SegmentSpec& s) -> std::optional<std::string> {
+    for (const LocalControllerSpec& l : c.control.local)
+      if (std::find(l.segments.begin(), l.segments.end(), s.name) != l.segments.end())
+        return l.shuntGain == 0.0 && !everOff(l.name, l.enabled) ? std::optional("[control.local." + l.name + "]")
+                                                                   : std::nullopt;
+    const ControllerSpec& v = c.control.vasomotor;
+    return v.present && v.shuntGain == 0.0 && !everOff("vasomotor", v.enabled) ? std::optional("[control.vasomotor]")
+                                                                                : std::nullopt;
+  };
   for (std::size_t g = 0; g < n; ++g) {
     const SegmentSpec& s = c.segments[g];
     if (std::none_of(s.layers.begin(), s.layers.end(), [&](const LayerSpec& l) {
@@ -257,9 +328,49 @@ void InertKeys::vasomotor() {
     if (!(s.vessels.shuntFlowMax > 0.0)) {
       noShunts[g] = fmt::format("segment {} has no arteriovenous shunts (vessels.shunt_flow_max = 0), so their opening "
                                 "moves no blood", s.name);
-      add("segments." + s.name + ".vasomotor.shunt", noShunts[g]);
+    } else if (auto controller = closedBy(s)) {
+      noShunts[g] = fmt::format("the shunts of segment {} follow {} with shunt_gain = 0, on for the whole run, so "
+                                "their opening stays 0 whatever this value (give shunt_gain > 0, or switch the "
+                                "controller off: then the shunts open to this value)", s.name, *controller);
+    }
+    if (!noShunts[g].empty()) add("segments." + s.name + ".vasomotor.shunt", noShunts[g]);
+    // Superficial return routes a share of the tissue's venous return (Body::planCellFlows): none without perfusion.
+    // (Without a countercurrent exchanger it still acts: the superficial veins hold blood and exchange heat with the
+    // skin.)
+    if (std::none_of(s.layers.begin(), s.layers.end(),
+                     [&](const LayerSpec& l) { return c.tissues.at(l.tissue).perfusion > 0.0; })) {
+      noPerfusion[g] = fmt::format("segment {} has no perfused tissue (perfusion = 0 in the tissue of every layer), so "
+                                   "there is no venous return to route (give a layer a perfused tissue)", s.name);
+      add("segments." + s.name + ".vasomotor.superficial_return", noPerfusion[g]);
     }
   }
+  // Superficial veins run where blood returns by them (Body::addBloodNodes): shunt flow or superficial return in the
+  // segment or a segment beyond it (whose superficial return joins the parent's). Without them their conductance to
+  // the skin connects nothing.
+  std::vector<bool> superficialFlow(n, false);
+  for (std::size_t g = 0; g < n; ++g) {
+    const SegmentSpec& s = c.segments[g];
+    bool flows = s.vessels.shuntFlowMax > 0.0 || (noPerfusion[g].empty() && s.vasomotor.superficialReturn > 0.0);
+    for (const EventSpec& e : c.events)
+      for (const VasomotorTarget& v : e.vasomotor)
+        if (targetsSegment(v.segment, s.name) && v.superficialReturn && *v.superficialReturn > 0.0)
+          flows = flows || noPerfusion[g].empty();
+    // Up the tree to the root (parents are named; a case's tree has no cycles).
+    for (std::size_t h = g; flows && !superficialFlow[h];) {
+      superficialFlow[h] = true;
+      const std::string& parent = c.segments[h].parent;
+      std::size_t p = 0;
+      while (p < n && c.segments[p].name != parent) ++p;
+      if (p == n) break;
+      h = p;
+    }
+  }
+  for (std::size_t g = 0; g < n; ++g)
+    if (!superficialFlow[g])
+      add("segments." + c.segments[g].name + ".vessels.superficial_conductance",
+          fmt::format("segment {} has no superficial veins: no blood returns by them (no shunts, vessels.shunt_flow_max "
+                      "= 0, and no superficial return, vasomotor.superficial_return = 0 in the case and every [[events]] "
+                      "entry, on it or any segment beyond it)", c.segments[g].name));
   // The same targets in [[events]] (events.N.vasomotor.SEGMENT.KEY): "all" has no effect when none of the segments
   // can take it.
   auto target = [&](const std::string& segment, const std::vector<std::string>& why,
@@ -278,9 +389,13 @@ void InertKeys::vasomotor() {
       if (auto why = target(v.segment, noSkin, "no segment has perfused skin (a layer whose tissue has role skin and "
                                                "perfusion > 0), so the multiplier scales no blood flow"))
         add(path + "skin_perfusion", *why);
-      if (auto why = target(v.segment, noShunts, "no segment has arteriovenous shunts (vessels.shunt_flow_max = 0 on "
-                                                 "every one), so their opening moves no blood"))
+      if (auto why = target(v.segment, noShunts, "no segment has arteriovenous shunts whose opening can act "
+                                                 "(vessels.shunt_flow_max = 0, or a controller with shunt_gain = 0 "
+                                                 "keeps them closed), so their opening moves no blood"))
         add(path + "shunt", *why);
+      if (auto why = target(v.segment, noPerfusion, "no segment has perfused tissue (perfusion = 0 in the tissue of "
+                                                    "every layer), so there is no venous return to route"))
+        add(path + "superficial_return", *why);
     }
 }
 
@@ -319,6 +434,8 @@ void InertKeys::others() {
     for (const EventSpec& e : c.events)
       if (e.panting) add(e.source + ".respiration.panting", noBreathing);
   }
+  if (steady_)
+    for (const char* key : kSteadyRunKeys) add(key, kSteadyWhy);
   // A steady sweep reports each run's steady state, whatever the window (drivers/sweep_plan.cpp: the case's mode
   // cannot be turned back to transient from the command line).
   if (c.sweep.steady)
@@ -385,7 +502,7 @@ std::optional<std::string> InertKeys::reason(const std::string& given) const {
   if (path.rfind("events.", 0) == 0 && key == "set_point") {
     const auto control = head.find(".control.");
     if (control != std::string::npos)
-      if (auto it = controllerOff_.find(head.substr(control + 9)); it != controllerOff_.end()) return it->second;
+      if (auto it = setPointInert_.find(head.substr(control + 9)); it != setPointInert_.end()) return it->second;
   }
   return std::nullopt;
 }
@@ -436,7 +553,7 @@ std::vector<std::string> InertKeys::warnings() const {
   }
   for (const EventSpec& e : c.events)
     for (const ControlTarget& t : e.control)
-      if (auto it = controllerOff_.find(t.controller); it != controllerOff_.end() && t.setPoint)
+      if (auto it = setPointInert_.find(t.controller); it != setPointInert_.end() && t.setPoint)
         out.push_back(fmt::format("{}{}: {}.set_point has no effect: {}", c.sourceFile,
                                   t.where.empty() ? "" : ":" + t.where, t.path, it->second));
   return out;

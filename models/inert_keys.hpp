@@ -16,8 +16,11 @@ namespace thermorph {
 
 class InertKeys {
  public:
-  //! Works from the loaded case only (the same answers for a case and its resolved text).
-  explicit InertKeys(const Case& c);
+  //! Works from the loaded case only (the same answers for a case and its resolved text). `steady`: each run's steady
+  //! state is asked for (a steady sweep), not a transient run, so the [run] keys of the integration over time have no
+  //! effect either. They are refused as its parameters, never warned of: a case serves `run` and `steady` alike, and
+  //! the loader does not know the command.
+  explicit InertKeys(const Case& c, bool steady = false);
 
   //! Why `path` (a key path as --set writes it; events and weather columns as "events.N.environment.KEY" and
   //! "environment.weather.KEY") has no effect in the case, or nullopt when it may have one.
@@ -37,14 +40,22 @@ class InertKeys {
   void vasomotor();
   void metabolism();
   void others();
+  //! A controller of the vasomotor form (body-wide or local) whose gains leave some of its keys without effect.
+  void vasomotorGains(const std::string& name, const std::string& table, double gain, double shuntGain, bool shunts,
+                      bool enabled, const std::string& noShunts);
+  //! The controller is off at some time of the run (`enabled` = off, or an [[events]] entry switches it off).
+  bool everOff(const std::string& controller, bool enabled) const;
   void add(const std::string& path, std::string why) { reasons_.emplace(path, std::move(why)); }
   //! The entry of `path` or of the nearest table above it, or reasons_.end().
   std::map<std::string, std::string>::const_iterator find(const std::string& path) const;
 
   const Case& case_;
+  bool steady_ = false;
   std::array<std::optional<std::string>, kEnvironmentVariables> variables_;
   std::map<std::string, std::string> reasons_;  //!< key path -> why (keys outside [[events]] and weather rows)
-  std::map<std::string, std::string> controllerOff_;  //!< controller name -> why it is off throughout
+  //! controller name -> why its set point has no effect (off throughout, or outputs independent of the signal): the
+  //! [[events]] entries' set_point of that controller
+  std::map<std::string, std::string> setPointInert_;
   std::vector<bool> neverInAir_, everInWater_;  //!< per segment
   std::vector<double> emissivity_;              //!< per segment, defaults resolved (EnvironmentModel::emissivity)
 };

@@ -145,4 +145,65 @@ def rows(name):  # every column but the warnings (which name the window's line)
 assert rows("steady-1.csv") == rows("steady-5.csv"), "steady sweeps with two windows differ"
 assert rows("transient-1.csv") != rows("transient-5.csv"), "transient sweeps with two windows agree"
 PY
+
+# 6. Third round: a superficial return on a segment without perfused tissue, a shunt gain with no shunts to open,
+#    keys a gain of 0 leaves without effect, and [run] integration keys of a steady state: warned at their line and
+#    column, and refused as sweep parameters; [run] integration keys of a steady sweep refused, not warned.
+cp bare.toml third.toml
+cat >> third.toml <<'TOML'
+[[segments]]
+name = "fin"
+parent = "trunk"
+shape = "cylinder"
+length = "10 cm"
+axial_cells = 2
+layers = [{ tissue = "keratin", thickness = "1 cm", cells = 2 }]
+vasomotor = { superficial_return = 0.5 }
+[tissues.keratin]
+base = "bone"
+perfusion = "0 1/s"
+[control.vasomotor]
+shunt_gain = "2 1/K"
+[control.shivering]
+gain = "0 1/K"
+set_point = "37.5 degC"
+TOML
+sed -i 's/^output_interval = "5 min"$/output_interval = "5 min"\nrtol = 1e-7/' third.toml
+"$exe" check third.toml > /dev/null 2> third.err || fail "check third exit $?: $(cat third.err)"
+at() { local n; n=$(grep -n -- "$1" third.toml | head -1 | cut -d: -f1); echo "third.toml:$n:$(awk -v n="$n" -v v="$2" 'NR == n { print index($0, v) }' third.toml)"; }
+grep -q "^warning: $(at 'superficial_return = 0.5' 0.5): segments.fin.vasomotor.superficial_return has no effect: segment fin has no perfused tissue" third.err ||
+  fail "no superficial_return warning: $(cat third.err)"
+grep -q "^warning: $(at 'shunt_gain' '"2'): control.vasomotor.shunt_gain has no effect: no segment with arteriovenous shunts" third.err ||
+  fail "no shunt_gain warning: $(cat third.err)"
+grep -q "^warning: $(at 'set_point = "37.5' '"37.5'): control.shivering.set_point has no effect: control.shivering.gain = 0" third.err ||
+  fail "no zero-gain warning: $(cat third.err)"
+[[ $(grep -c 'has no effect' third.err) == 3 ]] || fail "check third: expected 3 warnings: $(cat third.err)"
+# run.rtol acts in a transient run and not on a steady state; neither `run` nor `steady` warns of it (a case serves
+# both), a steady sweep refuses it as a parameter (below).
+for command in run steady; do
+  "$exe" $command third.toml -q -o third-$command.h5 > /dev/null 2> third-$command.err || fail "$command third exit $?"
+  grep -q 'run.rtol has no effect' third-$command.err && fail "$command warns of run.rtol: $(cat third-$command.err)"
+done
+expect2 "--vary segments.fin.vasomotor.superficial_return: the key has no effect in this case" \
+  sweep third.toml --vary "segments.fin.vasomotor.superficial_return=0,0.9" -o out.csv -q
+expect2 "--vary control.vasomotor.shunt_gain: the key has no effect in this case" \
+  sweep third.toml --vary "control.vasomotor.shunt_gain=0.5 1/K,3 1/K" -o out.csv -q
+expect2 "--vary control.shivering.max_power: the key has no effect in this case" \
+  sweep third.toml --vary "control.shivering.max_power=5 W,50 W" -o out.csv -q
+expect2 "--vary run.rtol: the key has no effect in this case" \
+  sweep third.toml --steady --vary "run.rtol=1e-4,1e-8" -o out.csv -q
+# The same keys where they act: a transient sweep of run.rtol, and the shivering's power with a gain.
+"$exe" sweep third.toml --vary "run.rtol=1e-3,1e-8" -o rtol.csv -q > /dev/null 2> rtol.err || fail "transient rtol sweep: exit $?: $(cat rtol.err)"
+"$exe" sweep third.toml --set 'control.shivering.gain="0.5 1/K"' --vary "control.shivering.max_power=5 W,50 W" -o power.csv -q \
+  > /dev/null 2> power.err || fail "shivering power sweep with a gain: exit $?: $(cat power.err)"
+"$python" - <<'PY' || fail "sweep tables where the keys act"
+import csv
+def rows(name):
+    with open(name) as f:
+        # the results only: temperatures (each run's own index, key value, timings and warnings differ anyway)
+        return [[v for k, v in r.items() if "temperature" in k] for r in csv.DictReader(f)]
+for name in ("rtol.csv", "power.csv"):
+    a, b = rows(name)
+    assert a != b, name + ": the two runs agree"
+PY
 echo "e2e_inert: ok"

@@ -437,3 +437,206 @@ respiration = { panting = 3 }
                    "events.0.respiration.panting has no effect: the respiratory segment head is in water"));
   }
 }
+
+TEST_CASE("Superficial return without perfused tissue warns; with it, it acts even without an exchanger",
+          "[case][inert]") {
+  // A fin of unperfused keratin-like tissue on the swimmer's trunk (values illustrative): no venous return to route,
+  // and no superficial veins anywhere (no shunts, no superficial return that flows) for their conductance to join.
+  const std::string fin = R"toml(
+[[segments]]
+name = "fin"
+parent = "trunk"
+shape = "cylinder"
+length = "10 cm"
+axial_cells = 2
+layers = [{ tissue = "keratin", thickness = "1 cm", cells = 2 }]
+vasomotor = { superficial_return = 0.5 }
+vessels = { superficial_conductance = "0.002 W/K" }
+[tissues.keratin]
+base = "bone"
+perfusion = "0 1/s"
+[[events]]
+at = "3 min"
+vasomotor = { fin = { superficial_return = 0.8 } }
+)toml";
+  const std::string text = swimmer("", "", fin);
+  const std::vector<std::string> w = inertWarnings(loadCaseFromString(text, "inert.toml"));
+  CHECK(mentions(w, positionOf(text, "vasomotor = { superficial_return", "0.5") +
+                        ": segments.fin.vasomotor.superficial_return has no effect: segment fin has no perfused tissue"));
+  CHECK(mentions(w, positionOf(text, "fin = { superficial_return", "0.8") +
+                        ": events.0.vasomotor.fin.superficial_return has no effect: segment fin has no perfused tissue"));
+  CHECK(mentions(w, ": segments.fin.vessels.superficial_conductance has no effect: segment fin has no superficial veins"));
+  CHECK(w.size() == 3);
+  const std::vector<double> base = finalTemperatures(text);
+  CHECK(base == finalTemperatures(text, {"segments.fin.vasomotor.superficial_return=0",
+                                         "events.0.vasomotor.fin.superficial_return=0.1",
+                                         "segments.fin.vessels.superficial_conductance=\"0.05 W/K\""}));
+  SECTION("perfused, without a countercurrent exchanger, the return and the veins' conductance act") {
+    // No vessels.countercurrent_conductance anywhere (default 0): the superficial veins still hold blood and
+    // exchange heat with the skin, so routing the return through them changes the temperatures.
+    const std::vector<std::string> perfused{"tissues.keratin.perfusion=\"10 mL/(100 g min)\""};
+    const std::vector<std::string> w2 = inertWarnings(loadCaseFromString(text, "inert.toml", perfused));
+    CHECK_FALSE(mentions(w2, "superficial_return"));
+    CHECK_FALSE(mentions(w2, "superficial_conductance"));
+    std::vector<std::string> deep = perfused, conductance = perfused;
+    deep.push_back("segments.fin.vasomotor.superficial_return=0");
+    conductance.push_back("segments.fin.vessels.superficial_conductance=\"0.05 W/K\"");
+    const std::vector<double> routed = finalTemperatures(text, perfused);
+    CHECK(routed != finalTemperatures(text, deep));
+    CHECK(routed != finalTemperatures(text, conductance));
+    // The trunk carries the fin's superficial return: its veins' conductance acts (not given: it does not warn).
+    CHECK_FALSE(InertKeys(loadCaseFromString(text, "inert.toml", perfused)).reason("segments.trunk.vessels.superficial_conductance"));
+    CHECK(InertKeys(loadCaseFromString(text, "inert.toml")).reason("segments.trunk.vessels.superficial_conductance"));
+  }
+}
+
+TEST_CASE("A shunt gain with no shunts to open warns and builds no state; with shunts it acts", "[case][inert][control]") {
+  // The swimmer has no shunts (vessels.shunt_flow_max = 0); the core is held near a set point of 36 degC so that an
+  // opening shunt_gain x (T - set_point) lies inside [0, 1] (values illustrative).
+  const std::string vasomotor = R"toml(
+[control.vasomotor]
+set_point = "36 degC"
+shunt_gain = "0.5 1/K"
+)toml";
+  const std::string text = swimmer("", "", vasomotor);
+  const std::vector<std::string> w = inertWarnings(loadCaseFromString(text, "inert.toml"));
+  CHECK(mentions(w, positionOf(text, "shunt_gain", "\"0.5 1/K\"") +
+                        ": control.vasomotor.shunt_gain has no effect: no segment with arteriovenous shunts"));
+  CHECK(w.size() == 1);
+  const Body body(loadCaseFromString(text, "inert.toml"));
+  for (const Controller& k : body.network().controllers) CHECK(k.name != "vasomotor_shunts");
+  const std::vector<double> base = finalTemperatures(text);
+  CHECK(base == finalTemperatures(text, {"control.vasomotor.shunt_gain=\"0.2 1/K\""}));
+  CHECK(base != finalTemperatures(text, {"control.vasomotor.gain=\"0.2 1/K\""}));  // the skin perfusion acts
+  SECTION("a local controller of segments without shunts") {
+    const std::string local = swimmer("", "", "[control.local.trunk]\nsegments = \"trunk\"\nshunt_gain = \"-1 1/K\"\n");
+    CHECK(mentions(inertWarnings(loadCaseFromString(local, "inert.toml")),
+                   ": control.local.trunk.shunt_gain has no effect: no segment [control.local.trunk] names has "
+                   "arteriovenous shunts"));
+    CHECK(finalTemperatures(local) == finalTemperatures(local, {"control.local.trunk.shunt_gain=\"2 1/K\""}));
+  }
+  SECTION("with shunts on the trunk the gain acts and does not warn") {
+    const std::vector<std::string> flow{"segments.trunk.vessels.shunt_flow_max=\"20 mL/min\""};
+    CHECK_FALSE(mentions(inertWarnings(loadCaseFromString(text, "inert.toml", flow)), "shunt_gain"));
+    std::vector<std::string> low = flow;
+    low.push_back("control.vasomotor.shunt_gain=\"0.2 1/K\"");
+    CHECK(finalTemperatures(text, flow) != finalTemperatures(text, low));
+  }
+}
+
+TEST_CASE("Keys a gain of 0 leaves without effect warn; with the gain they act", "[case][inert][control]") {
+  // Zero by value: a controller whose gains are 0 gives the same output at every temperature, equal to its value
+  // when off (shivering 0, panting and skin perfusion 1), so its set point and time constant set nothing; the
+  // shunts of a vasomotor controller with shunt_gain 0 stay closed, so their openings move no blood. The signal is
+  // not among these keys (its nodes stay in the Jacobian's pattern and move the steps).
+  const std::string controls = R"toml(
+[body]
+respiratory_segment = "head"
+[control.shivering]
+gain = "0 1/K"
+set_point = "37.5 degC"
+time_constant = "3 min"
+[control.panting]
+gain = "0 1/K"
+set_point = "36 degC"
+max = 4
+[control.vasomotor]
+gain = "0 1/K"
+shunt_gain = "0 1/K"
+set_point = "36 degC"
+time_constant = "3 min"
+)toml";
+  const std::string text = swimmer("air_temperature = \"30 degC\"", "vasomotor = { shunt = 0.6 }\n"
+                                                                      "vessels = { shunt_flow_max = \"20 mL/min\" }",
+                                   controls + "[[events]]\nat = \"5 min\"\ncontrol = { vasomotor = { set_point = \"35 degC\" } }\n");
+  const std::vector<std::string> flags{"segments.head.surface.immersion=\"never\""};
+  const Case c = loadCaseFromString(text, "inert.toml", flags);
+  const std::vector<std::string> w = inertWarnings(c);
+  for (const char* key : {"control.shivering.set_point", "control.shivering.time_constant", "control.panting.set_point",
+                          "control.panting.max", "control.vasomotor.set_point", "control.vasomotor.time_constant",
+                          "segments.trunk.vasomotor.shunt", "events.0.control.vasomotor.set_point"}) {
+    INFO(key);
+    CHECK(mentions(w, std::string(key) + " has no effect: "));
+  }
+  CHECK(mentions(w, positionOf(text, "[control.shivering]", "\"37.5 degC\"") +
+                        ": control.shivering.set_point has no effect: control.shivering.gain = 0"));
+  CHECK(mentions(w, ": segments.trunk.vasomotor.shunt has no effect: the shunts of segment trunk follow "
+                    "[control.vasomotor] with shunt_gain = 0"));
+  CHECK(w.size() == 8);
+  for (const char* key : {"control.shivering.gain", "control.vasomotor.gain", "control.vasomotor.shunt_gain",
+                          "control.vasomotor.min", "control.vasomotor.signal"})
+    CHECK_FALSE(InertKeys(c).reason(key));
+  std::vector<std::string> moved = flags;
+  for (const char* o : {"control.shivering.set_point=\"30 degC\"", "control.shivering.time_constant=\"20 s\"",
+                        "control.shivering.max_power=\"50 W\"", "control.panting.set_point=\"30 degC\"",
+                        "control.panting.max=2", "control.panting.time_constant=\"5 s\"",
+                        "control.vasomotor.set_point=\"30 degC\"", "control.vasomotor.time_constant=\"10 s\"",
+                        "segments.trunk.vasomotor.shunt=1", "events.0.control.vasomotor.set_point=\"39 degC\""})
+    moved.push_back(o);
+  const std::vector<double> base = finalTemperatures(text, flags);
+  CHECK(base == finalTemperatures(text, moved));
+  SECTION("with gains the same keys act and do not warn") {
+    std::vector<std::string> gains = flags;
+    for (const char* o : {"control.shivering.gain=\"0.5 1/K\"", "control.panting.gain=\"3 1/K\"",
+                          "control.vasomotor.shunt_gain=\"0.5 1/K\""})
+      gains.push_back(o);
+    const std::vector<std::string> w2 = inertWarnings(loadCaseFromString(text, "inert.toml", gains));
+    CHECK(w2.empty());
+    const std::vector<double> acting = finalTemperatures(text, gains);
+    for (const char* o : {"control.shivering.set_point=\"36.5 degC\"", "control.panting.set_point=\"37 degC\"",
+                          "control.vasomotor.set_point=\"30 degC\"", "segments.trunk.vasomotor.shunt=1"}) {
+      INFO(o);
+      std::vector<std::string> one = gains;
+      one.push_back(o);
+      CHECK(acting != finalTemperatures(text, one));
+    }
+  }
+  SECTION("switched off by an event, the closed shunts open to the segment's value and the lag acts") {
+    std::vector<std::string> off = flags;
+    off.push_back("events.0.control.vasomotor.enabled=\"off\"");
+    const std::vector<std::string> w2 = inertWarnings(loadCaseFromString(text, "inert.toml", off));
+    CHECK_FALSE(mentions(w2, "segments.trunk.vasomotor.shunt"));
+    CHECK_FALSE(mentions(w2, "control.vasomotor.time_constant"));
+    CHECK(mentions(w2, "control.vasomotor.set_point has no effect"));  // still no output depends on it
+    std::vector<std::string> shunt = off, lag = off;
+    shunt.push_back("segments.trunk.vasomotor.shunt=1");
+    lag.push_back("control.vasomotor.time_constant=\"10 s\"");
+    const std::vector<double> switched = finalTemperatures(text, off);
+    CHECK(switched != finalTemperatures(text, shunt));
+    CHECK(switched != finalTemperatures(text, lag));
+  }
+}
+
+TEST_CASE("Integration keys of [run] have no effect on a steady state: refused in steady sweeps, not warned",
+          "[case][inert]") {
+  // A steady state is solved at fixed tolerances (drivers/simulation.cpp): run.rtol, atol, max_step and
+  // output_interval set nothing; run.duration does (the automatic grid's stepped-surroundings rule reads it). The
+  // loader does not know the command, and a case serves `run` and `steady` alike: no warning.
+  std::string text = swimmer("");
+  text.replace(text.find("output_interval = \"5 min\""), 25, "output_interval = \"5 min\"\nrtol = 1e-7\nmax_step = \"30 s\"");
+  const Case c = loadCaseFromString(text, "inert.toml");
+  CHECK(inertWarnings(c).empty());
+  CHECK_FALSE(InertKeys(c).reason("run.rtol"));
+  for (const char* key : {"run.rtol", "run.atol", "run.max_step", "run.output_interval"}) {
+    INFO(key);
+    CHECK(InertKeys(c, true).reason(key) == "the sweep solves each run's steady state (--steady or sweep.mode = "
+                                            "\"steady\"), not an integration over time: the output interval and the "
+                                            "integrator's tolerances and largest step apply to transient runs only");
+  }
+  CHECK_FALSE(InertKeys(c, true).reason("run.duration"));
+  CHECK_FALSE(InertKeys(c, true).reason("run.initial_temperature"));  // the relaxation's start
+  auto steady = [&](const std::vector<std::string>& overrides) {
+    const Body body(loadCaseFromString(text, "inert.toml", overrides));
+    RunOptions options = silentRun();
+    std::vector<double> last;
+    options.observer = [&](double, std::span<const double> t, const RunSummary&) { last.assign(t.begin(), t.end()); };
+    REQUIRE(runSteady(body, options).complete);
+    REQUIRE(!last.empty());
+    return last;
+  };
+  const std::vector<std::string> other{"run.rtol=1e-3", "run.atol=\"0.1 K\"", "run.max_step=\"1 s\"",
+                                       "run.output_interval=\"1 min\""};
+  CHECK(steady({}) == steady(other));
+  CHECK(steady({}) != steady({"environment.temperature=\"12 degC\""}));  // the comparison can fail
+  CHECK(finalTemperatures(text) != finalTemperatures(text, {"run.rtol=1e-3"}));  // a transient run uses them
+}
