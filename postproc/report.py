@@ -1,5 +1,6 @@
 #!/usr/bin/python3
-"""Summary of a thermorph result: heat budget over a window, time above/below thresholds, time to reach them.
+"""Summary of a thermorph result: heat budget over a window, time in water and in contact with the substrate (and
+the heat lost there), time above/below thresholds, time to reach them.
 
     report.py RESULT.h5 [--window t0,t1 ...] [--above KEY=TEMP ...] [--below KEY=TEMP ...]
               [--segments a,b] [--csv FILE]
@@ -22,8 +23,8 @@ from pathlib import Path
 import numpy as np
 
 from thermorph_post import CAUTION  # the text of models/caution.hpp (tests/test_docs.py)
-from thermorph_post.budget import WindowBudget, window_budget
-from thermorph_post.results import ZERO_CELSIUS_IN_KELVIN, Results, ResultsError
+from thermorph_post.budget import WindowBudget, hermite_cumulative, window_budget
+from thermorph_post.results import ZERO_CELSIUS_IN_KELVIN, Results, ResultsError, time_average
 from thermorph_post.results import TIME_UNITS, parse_time as results_parse_time  # noqa: F401 (TIME_UNITS: re-exported)
 
 THRESHOLDS = ("Thresholds such as critical tissue temperatures are species-specific and must come from your own "
@@ -163,6 +164,115 @@ def first_reach(time, values, threshold: float, above: bool, t0: float, t1: floa
     return None
 
 
+# ---- water and substrate contact -------------------------------------------------------------
+def _pieces(knots, values, t0: float, t1: float) -> list[tuple[float, float, float]]:
+    """A piecewise-constant line (the value at each knot holds up to the next knot) cut to [t0, t1]: (start, end,
+    value) pieces of positive length, neighbours of equal value merged."""
+    out = []
+    for a, b, v in zip(knots[:-1].tolist(), knots[1:].tolist(), values[:-1].tolist()):
+        a, b = max(a, t0), min(b, t1)
+        if b <= a:
+            continue
+        if out and out[-1][1] == a and out[-1][2] == v:
+            out[-1] = (out[-1][0], b, v)
+        else:
+            out.append((a, b, v))
+    return out
+
+
+def _span_heat(res: Results, seg, channel: str, spans) -> tuple[float | None, str]:
+    """Heat gained by all copies of `seg` by `channel` over the spans [J] and how: the solver's cumulative energy
+    (Hermite-interpolated between outputs, as the budget) or the trapezoid on the stored flow; None when the file
+    stores neither."""
+    flow = seg.heat_flow(channel)
+    energy = seg.cumulative_heat(channel)
+    if flow is None:
+        return None, ""
+    if energy is not None:
+        total = sum(hermite_cumulative(res.time, energy, flow, b) - hermite_cumulative(res.time, energy, flow, a)
+                    for a, b in spans)
+        return seg.count * total, "cumulative"
+    total = sum(float(time_average(res.time, flow, a, b)) * (b - a) for a, b in spans)
+    return seg.count * total, "trapezoid"
+
+
+def exposure_rows(res: Results, t0: float, t1: float, segments=None) -> list[dict]:
+    """Per segment that is in water or touches the substrate at some time of the run: within [t0, t1] the time in
+    water, the time in contact, the contact-time integral of the contact fraction and its contact-time-weighted
+    mean, and the heat lost (all copies, positive: lost by the body) to the water (convection while in water: in
+    water only convection acts) and to the substrate (the substrate channel while in contact).
+
+    The series are /segments/NAME/in_water and contact_fraction: each output stores the value of the interval that
+    follows it (the value after a step on an output), which holds up to the timeline's next change (Results.
+    water_line, contact_line: the stored case's steps between outputs when it reproduces every output, else the
+    next output)."""
+    rows = []
+    for seg in res.segments(segments):
+        water = res.water_line(seg.name)
+        contact = res.contact_line(seg.name)
+        ever_wet = water is not None and bool(np.any(water[1] > 0.5))
+        ever_contact = bool(np.any(np.asarray(contact[1]) > 0.0))
+        if not (ever_wet or ever_contact):
+            continue
+        row = {"segment": seg.name, "label": seg.label, "copies": seg.count,
+               "window start [s]": t0, "window end [s]": t1}
+        wet_spans = [(a, b) for a, b, v in _pieces(*water, t0, t1) if v > 0.5] if water is not None else []
+        touch = [(a, b, v) for a, b, v in _pieces(*contact, t0, t1) if v > 0.0]
+        row["time in water [s]"] = sum(b - a for a, b in wet_spans) if water is not None else None
+        row["time in contact [s]"] = sum(b - a for a, b, _ in touch)
+        row["contact fraction x time [s]"] = sum(v * (b - a) for a, b, v in touch)
+        row["mean contact fraction in contact [1]"] = (row["contact fraction x time [s]"] / row["time in contact [s]"]
+                                                       if row["time in contact [s]"] > 0 else None)
+        heat, how = _span_heat(res, seg, "convection", wet_spans)
+        row["heat lost to water [J]"] = None if heat is None or water is None else -heat
+        row["water heat method"] = how
+        heat, how = _span_heat(res, seg, "substrate", [(a, b) for a, b, _ in touch])
+        row["heat lost to substrate [J]"] = None if heat is None else -heat
+        row["substrate heat method"] = how
+        outputs = set(np.asarray(res.time, float).tolist())
+        row["span ends between outputs"] = sorted({t for a, b in wet_spans + [(a, b) for a, b, _ in touch]
+                                                   for t in (a, b) if t not in outputs and t0 < t < t1})
+        rows.append(row)
+    return rows
+
+
+def exposure_lines(rows: list[dict], t0: float, t1: float) -> list[str]:
+    """The water and contact section as text lines."""
+    if not rows:
+        return []
+    lines = ["", "Water and substrate contact (/segments/NAME/in_water and contact_fraction: each output's value holds "
+                 "until the",
+             "  timeline's next change; heat of all copies by the solver's cumulative energies, positive: lost by "
+             "the body)"]
+    length = t1 - t0
+    for r in rows:
+        lines.append(f"  {r['label']}")
+        wet = r["time in water [s]"]
+        if wet is None:
+            lines.append("    in water: not stored in this file (written before 2026-12-05)")
+        else:
+            text = f"    in water: {fmt_time(wet)}"
+            if length > 0:
+                text += f", {100 * wet / length:.3g} % of the window"
+            if wet > 0 and r["heat lost to water [J]"] is not None:
+                text += f"; heat lost to the water (convection while in it): {r['heat lost to water [J]'] / 1e3:.4g} kJ"
+            lines.append(text)
+        touch = r["time in contact [s]"]
+        text = f"    in contact with the substrate: {fmt_time(touch)}"
+        if touch > 0:
+            text += (f"; contact-time-weighted mean contact fraction {r['mean contact fraction in contact [1]']:.4g} "
+                     f"({fmt_time(r['contact fraction x time [s]'])} of full contact)")
+            if r["heat lost to substrate [J]"] is not None:
+                text += f"; heat lost to the substrate: {r['heat lost to substrate [J]'] / 1e3:.4g} kJ"
+        lines.append(text)
+        ends = r["span ends between outputs"]
+        if ends:
+            lines.append("    NOTE: " + ", ".join(fmt_time(t) for t in ends) + " (a change of water or contact) "
+                         "lies between outputs: the times are the timeline's own, the heat there is interpolated "
+                         "across the step; an output at each change makes it exact.")
+    return lines
+
+
 # ---- output -------------------------------------------------------------------------------
 def _fmt(value: float, scale: float = 0.0) -> str:
     """A number for the tables, 4 significant digits; "0" below 1e-9 of `scale` (rounding noise)."""
@@ -256,9 +366,10 @@ def threshold_rows(thresholds, t0: float, t1: float) -> list[dict]:
     return rows
 
 
-def write_csv(path: Path, budgets: list[WindowBudget], mass: float | None, rows: list[dict]) -> list[Path]:
-    """Budgets (one block of rows per window) to `path`, thresholds to PATH.thresholds.csv beside it; return the
-    paths written."""
+def write_csv(path: Path, budgets: list[WindowBudget], mass: float | None, rows: list[dict],
+              exposure: list[dict] = ()) -> list[Path]:
+    """Budgets (one block of rows per window) to `path`, thresholds to PATH.thresholds.csv and water and contact
+    (exposure_rows) to PATH.exposure.csv beside it; return the paths written."""
     path.parent.mkdir(parents=True, exist_ok=True)
     written = [path]
     with open(path, "w", newline="", encoding="utf-8") as fh:
@@ -278,6 +389,15 @@ def write_csv(path: Path, budgets: list[WindowBudget], mass: float | None, rows:
             w.writerow(list(rows[0].keys()))
             for r in rows:
                 w.writerow(["" if v is None else (repr(v) if isinstance(v, float) else v) for v in r.values()])
+        written.append(side)
+    if exposure:
+        side = path.with_name(f"{path.stem}.exposure.csv")
+        with open(side, "w", newline="", encoding="utf-8") as fh:
+            w = csv.writer(fh, lineterminator="\n")
+            keys = [k for k in exposure[0] if k != "span ends between outputs"]
+            w.writerow(keys)
+            for r in exposure:
+                w.writerow(["" if r[k] is None else (repr(r[k]) if isinstance(r[k], float) else r[k]) for k in keys])
         written.append(side)
     return written
 
@@ -304,17 +424,19 @@ def report(res: Results, window=None, above=(), below=(), segments=None, csv_pat
         p(f"body mass: {mass:.4g} kg")
     all_rows = []
     for (t0, t1), b in zip(spans, budgets):
-        rows = _report_window(res, b, t0, t1, thresholds, mass, p)
+        rows = _report_window(res, b, t0, t1, thresholds, mass, p, segments)
         all_rows += [{**r, "window start [s]": t0, "window end [s]": t1} for r in rows]
     if csv_path:
-        for path in write_csv(Path(csv_path), budgets, mass, all_rows):
+        exposure = [r for t0, t1 in spans for r in exposure_rows(res, t0, t1, segments)]
+        for path in write_csv(Path(csv_path), budgets, mass, all_rows, exposure):
             p(f"wrote {path}")
     p("")
     p(f"Caution: {CAUTION} {THRESHOLDS}")
     return 0
 
 
-def _report_window(res: Results, b: WindowBudget, t0: float, t1: float, thresholds, mass, p) -> list[dict]:
+def _report_window(res: Results, b: WindowBudget, t0: float, t1: float, thresholds, mass, p,
+                   segments=None) -> list[dict]:
     """One window's budget and thresholds, printed; returns its threshold rows."""
     p("")
     if t1 > t0:
@@ -352,6 +474,9 @@ def _report_window(res: Results, b: WindowBudget, t0: float, t1: float, threshol
     else:
         p("'sum of rows − whole body' is not zero where the segment flows in this file do not add up to the "
           "whole body.")
+
+    for line in exposure_lines(exposure_rows(res, t0, t1, segments), t0, t1):
+        p(line)
 
     rows = threshold_rows(thresholds, t0, t1)
     if rows:

@@ -11,6 +11,7 @@
 3. Bad arguments exit with code 2 and say what is wrong.
 4. Repeated --window: one section per window, each as that window alone.
 5. A window end between outputs that bracket a step of the timeline is noted (and is really off).
+6. Time in water and in contact with the substrate, and the heat lost there, against an events table.
 Exits 1 on any failure.
 """
 
@@ -458,6 +459,116 @@ def check_step_note(tmp: Path):
           f"the noted window is visibly off ({got_coarse:.6g} W vs {truth:.6g} W): the note is not idle")
 
 
+# ---- 6. time in water and in contact with the substrate, and the heat lost there ---------------------------------
+# The events table of the invented case below: a pair of legs dipped in water from 10 to 25 min of a 60-min run (the
+# medium steps to water and back; the trunk is never immersed), and standing on the substrate with 30 % of their
+# surface from 30 to 50 min. Hand computation: 15 min in water, 20 min in contact, 0.3 x 20 min = 6 contact-minutes.
+DIP_WATER = [(600.0, 1500.0)]                 # in water [s]
+DIP_CONTACT = [(1800.0, 3000.0, 0.3)]         # (from, to [s], contact fraction)
+DIP_CASE = """title = "Wader dipping its legs (invented, values illustrative)"
+[run]
+duration = "60 min"
+output_interval = "5 min"
+[environment]
+medium = "air"
+temperature = "15 degC"
+speed = "1 m/s"
+substrate_temperature = "5 degC"
+substrate_conductance = "200 W/(m2 K)"
+[[segments]]
+name = "trunk"
+shape = "cylinder"
+surface = { immersion = "never" }
+length = "20 cm"
+axial_cells = 2
+layers = [{ tissue = "muscle", thickness = "4 cm", cells = 3 }, { tissue = "skin", thickness = "0.2 cm", cells = 1 }]
+[[segments]]
+name = "leg"
+parent = "trunk"
+count = 2
+shape = "cylinder"
+length = "10 cm"
+axial_cells = 2
+layers = [{ tissue = "muscle", thickness = "0.5 cm", cells = 2 }, { tissue = "skin", thickness = "0.1 cm", cells = 1 }]
+[[events]]
+at = "10 min"
+environment = { medium = "water", temperature = "8 degC", speed = "0.2 m/s" }
+[[events]]
+at = "25 min"
+environment = { medium = "air", temperature = "15 degC", speed = "1 m/s" }
+[[events]]
+at = "30 min"
+surface = { leg = { contact_fraction = 0.3 } }
+[[events]]
+at = "50 min"
+surface = { leg = { contact_fraction = 0 } }
+"""
+
+
+def overlap(spans, t0: float, t1: float) -> float:
+    """Length of the spans [(a, b), ...] inside [t0, t1] [s] (hand computation from the events table)."""
+    return sum(max(0.0, min(b, t1) - max(a, t0)) for a, b, *_ in spans)
+
+
+def check_exposure(tmp: Path):
+    """Time in water, time in contact, the contact-time-weighted contact fraction and the heat lost to the water and
+    the substrate, against the events table above: with outputs on every change (5 min) and between them (4 min:
+    the times are still the timeline's own; a sum of each output's value over the output intervals would give
+    16 min in water, so the check can fail), for the whole run and a window cutting both spans."""
+    case = tmp / "dip.toml"
+    case.write_text(DIP_CASE)
+    files = {}
+    for interval in ("5 min", "4 min"):
+        h5 = tmp / f"dip_{interval.split()[0]}.h5"
+        proc = subprocess.run([THERMORPH, "run", str(case), "-o", str(h5), "--quiet",
+                               "--set", f'run.output_interval="{interval}"'], capture_output=True, text=True)
+        check(proc.returncode == 0 and h5.is_file(), f"thermorph run dip ({interval}) failed: {proc.stderr[-1500:]}")
+        files[interval] = h5
+    if not all(h.is_file() for h in files.values()):
+        return
+    for interval, h5 in files.items():
+        for window, (t0, t1) in ((None, (0.0, 3600.0)), ("20min,40min", (1200.0, 2400.0))):
+            out = tmp / f"dip_{interval.split()[0]}_{t0:g}.csv"
+            args = [h5, "--csv", out] + (["--window", window] if window else [])
+            text = run_report(*args).stdout
+            check(f"Caution: {CAUTION}" in text, "the report keeps the caution line")
+            with open(out.with_name(f"{out.stem}.exposure.csv"), newline="", encoding="utf-8") as fh:
+                rows = {r["segment"]: r for r in csv.DictReader(fh)}
+            check(set(rows) == {"leg"}, f"only the legs are ever in water or contact: {sorted(rows)}")
+            if "leg" not in rows:
+                continue
+            r = rows["leg"]
+            what = f"{interval} outputs, window {t0:g}..{t1:g} s"
+            close(number(r["time in water [s]"]), overlap(DIP_WATER, t0, t1), f"time in water, {what}")
+            close(number(r["time in contact [s]"]), overlap(DIP_CONTACT, t0, t1), f"time in contact, {what}")
+            close(number(r["contact fraction x time [s]"]),
+                  sum(f * overlap([(a, b)], t0, t1) for a, b, f in DIP_CONTACT), f"contact-seconds, {what}")
+            close(number(r["mean contact fraction in contact [1]"]), 0.3, f"mean contact fraction, {what}")
+            on_outputs = interval == "5 min"
+            check(("NOTE: " in text.split("Water and substrate")[-1]) != on_outputs,
+                  f"a note exactly when a change lies between outputs ({what})")
+            if on_outputs and window is None:
+                # Heat by the solver's cumulative energies at the outputs on the changes (one copy stored, 2 legs);
+                # the substrate takes heat only in contact, so its share is the run's whole substrate energy.
+                with h5py.File(h5, "r") as f:
+                    time = f["time"][()]
+                    conv = f["segments/leg/cumulative_heat/convection"][()]
+                    sub = f["segments/leg/cumulative_heat/substrate"][()]
+                i10, i25 = int(np.searchsorted(time, 600.0)), int(np.searchsorted(time, 1500.0))
+                close(number(r["heat lost to water [J]"]), -2 * (conv[i25] - conv[i10]), "heat lost to the water",
+                      rtol=1e-12, atol=1e-9)
+                close(number(r["heat lost to substrate [J]"]), -2 * (sub[-1] - sub[0]), "heat lost to the substrate",
+                      rtol=1e-12, atol=1e-9)
+                check(number(r["heat lost to water [J]"]) > 0 and number(r["heat lost to substrate [J]"]) > 0,
+                      "legs warmer than 8 degC water and a 5 degC substrate lose heat to both")
+                check("in water: 900 s (15 min), 25 % of the window" in text, "the printed time in water")
+    with h5py.File(files["4 min"], "r") as f:
+        time = f["time"][()]
+        wet = f["segments/leg/in_water"][()]
+    naive = float(np.sum(wet[:-1] * np.diff(time)))
+    check(abs(naive - 900.0) > 30.0, f"the per-output sum on 4-min outputs is off ({naive:g} s): the check is not idle")
+
+
 def main() -> int:
     with tempfile.TemporaryDirectory(prefix="thermorph_report_") as name:
         tmp = Path(name)
@@ -466,6 +577,7 @@ def main() -> int:
         check_errors(tmp)
         check_real(tmp)
         check_step_note(tmp)
+        check_exposure(tmp)
     if FAILURES:
         print(f"test_report: {len(FAILURES)} check(s) failed")
         return 1

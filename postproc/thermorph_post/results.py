@@ -768,6 +768,37 @@ class Results:
                 out[k] = stored[max(int(np.searchsorted(time, t, side="left")) - 1, 0)]
         return knots, out
 
+    def water_line(self, name: str) -> tuple[np.ndarray, np.ndarray] | None:
+        """Times [s] (timeline_knots) and whether segment `name` is in water there (1.0) or in air (0.0), as
+        contact_line does for contact: the stored /segments/NAME/in_water at every output, and between outputs the
+        stored case's medium steps with the segment's immersion, so that a dip starts and ends at the events' own
+        times. The case is used only when it reproduces every stored output; otherwise the value of the last
+        output is held up to the next. None in files without the series (before 2026-12-05)."""
+        wet = self.segments([name])[0].in_water()
+        if wet is None:
+            return None
+        time = np.asarray(self.time, float)
+        stored = wet.astype(float)
+        knots, before = self.timeline_knots()
+        if time.size < 2 or stored.shape != time.shape:
+            return time, stored
+
+        def scheduled(t, left):
+            medium = self.medium_fluid(t, left)
+            return None if medium is None else float(self.segment_fluid(name, medium) == "water")
+
+        use_case = all(scheduled(t, False) == v for t, v in zip(time.tolist(), stored.tolist()))
+        index = {t: i for i, t in enumerate(time.tolist())}
+        out = np.empty(knots.size)
+        for k, (t, b) in enumerate(zip(knots.tolist(), before.tolist())):
+            if not b and t in index:
+                out[k] = stored[index[t]]
+            elif use_case:
+                out[k] = scheduled(t, b)
+            else:
+                out[k] = stored[max(int(np.searchsorted(time, t, side="left")) - 1, 0)]
+        return knots, out
+
     def solver_stats(self) -> dict:
         """Attributes of the /solver group ({} when absent)."""
         grp = self.file.get("solver")
