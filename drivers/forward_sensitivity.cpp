@@ -172,7 +172,17 @@ std::vector<std::vector<double>> steadyDerivatives(const Body& body, std::span<c
   for (Index col = 0; col < n; ++col)
     for (Index p = pattern.columnStart[col]; p < pattern.columnStart[col + 1]; ++p)
       entries.emplace_back(static_cast<int>(pattern.rowIndex[p]), static_cast<int>(col), values[p]);
-  Matrix J(static_cast<int>(n), static_cast<int>(n));
+  // The junctions' rank-one terms u v^T (NetworkSystem::junctionTerms) as the augmented system [J_s U; V^T -I]
+  // with one auxiliary unknown z = v . x per term: its first n components solve J x = b (block elimination).
+  const auto& terms = steady.junctionTerms();
+  const Index augmented = n + terms.size();
+  for (Index t = 0; t < terms.size(); ++t) {
+    const int aux = static_cast<int>(n + t);
+    for (auto [row, u] : terms[t].u) entries.emplace_back(static_cast<int>(row), aux, u);
+    for (auto [col, v] : terms[t].v) entries.emplace_back(aux, static_cast<int>(col), v);
+    entries.emplace_back(aux, aux, -1.0);
+  }
+  Matrix J(static_cast<int>(augmented), static_cast<int>(augmented));
   J.setFromTriplets(entries.begin(), entries.end());
   Eigen::SparseLU<Matrix> lu;
   lu.compute(J);
@@ -185,7 +195,8 @@ std::vector<std::vector<double>> steadyDerivatives(const Body& body, std::span<c
   steady.parameterDerivatives(0.0, y, residual, networks, outs);
   std::vector<std::vector<double>> ds(networks.size(), std::vector<double>(n, 0.0));
   for (std::size_t j = 0; j < networks.size(); ++j) {
-    const Eigen::VectorXd b = -Eigen::Map<const Eigen::VectorXd>(dF[j].data(), static_cast<Eigen::Index>(n));
+    Eigen::VectorXd b = Eigen::VectorXd::Zero(static_cast<Eigen::Index>(augmented));
+    b.head(static_cast<Eigen::Index>(n)) = -Eigen::Map<const Eigen::VectorXd>(dF[j].data(), static_cast<Eigen::Index>(n));
     const Eigen::VectorXd x = lu.solve(b);
     if (lu.info() != Eigen::Success || !x.allFinite())
       throw SolverError("steady-state sensitivities: the linear solve failed");

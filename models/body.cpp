@@ -592,14 +592,23 @@ void Body::attachChildren() {
     // The pair terms, per copy of the child: both ends are parent cells, so the child's count is applied here
     // (a conductance between groups carries its flow once per copy of the more numerous group). Summed over the
     // child's rings, one conductance per pair of cells.
+    // The rings are also kept in rank-one form (Network::junctions): the transient solver's linear algebra takes
+    // them that way instead of as a dense block of pair entries over the region (solver/newton_solver.hpp).
     std::map<std::pair<Index, Index>, double> pairs;
+    Junction junction;
     auto addPairs = [&](const std::vector<std::pair<Index, double>>& cells, double total) {
       for (std::size_t i = 0; i < cells.size(); ++i)
         for (std::size_t j = i + 1; j < cells.size(); ++j)
           pairs[std::minmax(cells[i].first, cells[j].first)] -= s.count * total * cells[i].second * cells[j].second;
+      JunctionRing ring{s.count * total, {}};
+      for (auto [node, w] : cells) ring.shares.emplace_back(static_cast<Index32>(node), w);
+      if (cells.size() > 1) junction.rings.push_back(std::move(ring));
     };
     auto flushPairs = [&]() {
+      junction.pairBegin = static_cast<Index32>(network_.conductances.size());
       for (auto [ij, G] : pairs) network_.conductances.push_back({ij.first, ij.second, G, 0});
+      junction.pairEnd = static_cast<Index32>(network_.conductances.size());
+      if (!junction.rings.empty()) network_.junctions.push_back(std::move(junction));
     };
     if (s.shape == Shape::Sphere) {
       // Across the contact patch (a disc of radius a) from the sphere's outermost tissue cell into the parent:

@@ -17,6 +17,7 @@
 #include <stdexcept>
 #include <span>
 #include <string>
+#include <utility>
 #include <vector>
 
 namespace thermorph {
@@ -199,9 +200,27 @@ class SurfaceModel {
   virtual void setReporting(bool) const {}
 };
 
+//! One tissue ring of a junction (models/body.cpp Body::attachChildren): the pair conductances between the cells of
+//! its target region are -conductance w_i w_j (summed over the junction's rings into one term per pair), i.e. with
+//! the ring's conductances to the cells the rank-one form conductance (e_r - w)(e_r - w)^T.
+struct JunctionRing {
+  double conductance = 0.0;                          //!< G_r per copy of the parent times the child's count [W/K]
+  std::vector<std::pair<Index32, double>> shares;    //!< (region cell, w_i), sum 1
+};
+
+//! A junction: the pair conductances Network::conductances[pairBegin, pairEnd) are exactly the sums over `rings` of
+//! -conductance w_i w_j. The transient assembly keeps them out of the Jacobian's pattern (a dense block over the
+//! region) and hands them to the linear solver in rank-one form (NetworkSystem::junctionTerms).
+struct Junction {
+  Index32 pairBegin = 0, pairEnd = 0;
+  std::vector<JunctionRing> rings;
+};
+
 struct Network {
   std::vector<NetworkNode> nodes;
   std::vector<Conductance> conductances;
+  //! Junctions whose pair terms (a range of `conductances`) have a rank-one form (none for hand-built networks).
+  std::vector<Junction> junctions;
   std::vector<Advection> advections;
   std::vector<BoundaryExchange> exchanges;
   std::vector<HeatSource> sources;

@@ -17,6 +17,28 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       channels_(network.channels.size()) {
   const bool transient = mode == Mode::Transient;
   groups_ = transient ? network.groups.size() : 0;
+  {
+    // The junctions' pair terms in rank-one form: J = J_pattern + sum over rings of u v^T, u = -G_r w / C
+    // (steady: -G_r w), v = w (the pair conductance -G_r w_i w_j between cells i and j of the region, i != j, is
+    // u_i v_j C_i; its diagonal part stays in the pattern, with the remainder G_r w_i^2 that u_i v_i takes away:
+    // jacobian()).
+    for (const Junction& j : network.junctions) {
+      if (j.pairEnd > network.conductances.size() || j.pairBegin > j.pairEnd ||
+          (!pairRanges_.empty() && j.pairBegin < pairRanges_.back().second))
+        throw std::invalid_argument("a junction's pair terms are not an ascending range of the conductances");
+      pairRanges_.emplace_back(j.pairBegin, j.pairEnd);
+      for (const JunctionRing& ring : j.rings) {
+        RankOneTerm t;
+        for (auto [node, w] : ring.shares) {
+          if (node >= nodes_) throw std::invalid_argument("a junction ring's share names a missing node");
+          if (transient && !(network.nodes[node].capacity > 0.0)) continue;  // refused below with the node's name
+          t.u.emplace_back(node, transient ? -ring.conductance * w / network.nodes[node].capacity : -ring.conductance * w);
+          t.v.emplace_back(node, w);
+        }
+        junctionTerms_.push_back(std::move(t));
+      }
+    }
+  }
   pattern_.size = nodes_ + controls_ + (transient ? channels_ + groups_ * channels_ : 0);
   if (pattern_.size >= std::numeric_limits<Slot>::max())
     throw std::invalid_argument(fmt::format("the state has {} components, more than this build supports", pattern_.size));
@@ -66,10 +88,12 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       }
     };
     for (Index i = 0; i < pattern_.size; ++i) add(i, i);
-    for (const Conductance& c : network.conductances) {
+    forEachConductance([&](Index k, bool pair) {
+      if (pair) return;  // in rank-one form (junctionTerms_)
+      const Conductance& c = network.conductances[k];
       add(c.a, c.b);
       add(c.b, c.a);
-    }
+    });
     for (const Advection& a : network.advections) {
       const bool cancels = viaCancels(a);
       forEachHop(a, [&](Index from, Index to) {
@@ -418,20 +442,27 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     const Index r = groupRowOf(node);
     if (r != none && col != none) values[position(r + channel, col)] += d;
   };
-  for (const Conductance& c : network_.conductances) {
+  forEachConductance([&](Index k, bool pair) {
+    const Conductance& c = network_.conductances[k];
     const double G = c.conductance;
     const auto [fa, fb] = conductanceFactors(c);
     add(c.a, c.a, -fa * G);
-    add(c.a, c.b, fa * G);
+    if (!pair) add(c.a, c.b, fa * G);
     add(c.b, c.b, -fb * G);
-    add(c.b, c.a, fb * G);
+    if (!pair) add(c.b, c.a, fb * G);
     if (!transient || network_.nodes[c.a].group == network_.nodes[c.b].group)
-      continue;  // no group-energy entries within a group
+      return;  // no group-energy entries within a group
     toGroup(c.a, c.channel, c.a, -fa * G);
     toGroup(c.a, c.channel, c.b, fa * G);
     toGroup(c.b, c.channel, c.a, fb * G);
     toGroup(c.b, c.channel, c.b, -fb * G);
-  }
+  });
+  // The junction rings' rank-one terms -G_r w w^T (junctionTerms_, before the row scaling) put -G_r w_i^2 on the
+  // diagonal, which the pair terms' diagonal above does not hold: that part back here.
+  if (!junctionTerms_.empty())
+    for (const Junction& j : network_.junctions)
+      for (const JunctionRing& ring : j.rings)
+        for (auto [node, w] : ring.shares) add(node, node, ring.conductance * w * w);
   // Flow parts with a control of a term into `row` of budget `channel`.
   auto partDerivatives = [&](Index begin, Index end, Index row, Index channel, double difference, double weight) {
     for (Index p = begin; p < end; ++p) {
@@ -579,6 +610,29 @@ void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span
     }
   }
   for (Index i = 0; i < nodes_; ++i) storage[group(i)] += rate[i];
+}
+
+void NetworkSystem::addJunctionProduct(std::span<const double> x, std::span<double> out) const {
+  for (const RankOneTerm& t : junctionTerms_) {
+    double dot = 0.0;
+    for (auto [col, v] : t.v) dot += v * x[col];
+    if (dot == 0.0) continue;
+    for (auto [row, u] : t.u) out[row] += u * dot;
+  }
+}
+
+void NetworkSystem::denseJacobian(double time, std::span<const double> state, std::span<double> rowMajor) const {
+  const Index n = size();
+  if (rowMajor.size() != n * n) throw std::invalid_argument("denseJacobian needs size^2 values");
+  std::vector<double> values(pattern_.nonzeros());
+  jacobian(time, state, values);
+  std::fill(rowMajor.begin(), rowMajor.end(), 0.0);
+  for (Index col = 0; col < n; ++col)
+    for (Index p = pattern_.columnStart[col]; p < pattern_.columnStart[col + 1]; ++p)
+      rowMajor[pattern_.rowIndex[p] * n + col] = values[p];
+  for (const RankOneTerm& t : junctionTerms_)
+    for (auto [row, u] : t.u)
+      for (auto [col, v] : t.v) rowMajor[row * n + col] += u * v;
 }
 
 double NetworkSystem::storedHeat(std::span<const double> T) const {

@@ -22,6 +22,12 @@ struct SparsePattern {
   Index nonzeros() const { return rowIndex.size(); }
 };
 
+//! A rank-one part of a Jacobian, u v^T, both vectors sparse: J = (the pattern's values) + the sum of these terms.
+struct RankOneTerm {
+  std::vector<std::pair<Index, double>> u;  //!< (row, value)
+  std::vector<std::pair<Index, double>> v;  //!< (column, value)
+};
+
 //! How a network's terms differ from another's in structure ("" when only their coefficients differ): node groups,
 //! term endpoints, channels, modulators, Q10 laws, controller laws. Forward sensitivities need equal structures.
 std::string structuralDifference(const Network& a, const Network& b);
@@ -64,8 +70,19 @@ class NetworkSystem {
 
   //! Time derivative (transient) or residual (steady) [size].
   void evaluate(double time, std::span<const double> state, std::span<double> out) const;
-  //! Jacobian values in the order of pattern().rowIndex [nonzeros].
+  //! Jacobian values in the order of pattern().rowIndex [nonzeros]; with junctionTerms() the Jacobian is these plus
+  //! the junctions' rank-one terms.
   void jacobian(double time, std::span<const double> state, std::span<double> values) const;
+  //! The junctions' pair terms (Network::junctions) are not in the pattern; the Jacobian is J = J_pattern + sum
+  //! u v^T over these terms (constant: u = -G_r w_r / C, steady -G_r w_r, v = w_r per junction ring, the pattern's
+  //! diagonal carrying the remainder G_r w_i^2 (/ C)). A pair term couples every two cells of a ring's region: as
+  //! pattern entries a dense block of m^2 entries per region, m^3/3 flops in the factorisation whatever the order.
+  const std::vector<RankOneTerm>& junctionTerms() const { return junctionTerms_; }
+  //! out += sum u (v . x) over junctionTerms() [size].
+  void addJunctionProduct(std::span<const double> x, std::span<double> out) const;
+  //! The whole Jacobian as a dense row-major matrix [size x size] (tests and small systems): jacobian() plus the
+  //! junction terms.
+  void denseJacobian(double time, std::span<const double> state, std::span<double> rowMajor) const;
 
   //! Partial derivative of the right-hand side (transient mode) with respect to a parameter at fixed state:
   //! d f / d p [size]. `rhs` is evaluate()'s result at the same time and state.
@@ -119,6 +136,19 @@ class NetworkSystem {
   }
   double controlTarget(const Controller& c, double time, std::span<const double> state, bool* active) const;
   Index controlColumn(Index modulator) const;  //!< state column of the modulator's control, or none
+
+  //! [begin, end) of Network::conductances: the junctions' pair terms in rank-one form, ascending.
+  std::vector<std::pair<Index, Index>> pairRanges_;
+  //! Calls visit(k, pair) for every conductance k in order, pair: it lies in one of pairRanges_.
+  template <class Visit>
+  void forEachConductance(Visit&& visit) const {
+    std::size_t range = 0;
+    for (Index k = 0; k < network_.conductances.size(); ++k) {
+      while (range < pairRanges_.size() && k >= pairRanges_[range].second) ++range;
+      visit(k, range < pairRanges_.size() && k >= pairRanges_[range].first);
+    }
+  }
+  std::vector<RankOneTerm> junctionTerms_;
 
   const Network& network_;
   Mode mode_;

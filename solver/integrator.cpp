@@ -133,7 +133,10 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
     // itself; CVODE gets an empty matrix. Row scaling off and no check of the matrix at every factorisation
     // (scale < 0): I - gamma J is well scaled by construction (rows of dT/dt) and the pattern is ours and valid.
     // AMD ordering: half the fill of COLAMD on bodies of many 2-D segments (tests/bench/whole_body_bench.sh).
-    newton_ = std::make_unique<NewtonSolver>(pattern, system.nodeCount() + system.controlCount(), -1);
+    // The junctions' pair terms come as rank-one terms (NetworkSystem::junctionTerms), factorised in the
+    // augmented sparse form instead of a dense block per junction region.
+    newton_ = std::make_unique<NewtonSolver>(pattern, system.nodeCount() + system.controlCount(), -1,
+                                             system.junctionTerms());
     matrix_.reset(checkCreated(NewtonSolver::shellMatrix(ctx), "the Newton matrix"));
     linearSolver_.reset(checkCreated(newton_->sundialsSolver(ctx), "the KLU solver"));
   } else {
@@ -228,6 +231,7 @@ int Integrator::sensitivityCallback(int count, double t, N_Vector y, N_Vector yd
         for (Index p = pattern.columnStart[c]; p < pattern.columnStart[c + 1]; ++p)
           out[pattern.rowIndex[p]] += self->sensitivityJacobian_[p] * v;
       }
+      self->system_.addJunctionProduct(sj, out);
     }
   });
 }
@@ -254,6 +258,9 @@ int Integrator::jacobianCallback(double t, N_Vector y, N_Vector, SUNMatrix J, vo
   return self->guard_.run([&] {
     self->system_.jacobian(t, view(y), self->jacobianValues_);
     fillMatrix(J, self->system_.pattern(), self->jacobianValues_);
+    for (const RankOneTerm& term : self->system_.junctionTerms())  // the dense matrix takes them as they are
+      for (auto [row, u] : term.u)
+        for (auto [col, v] : term.v) SM_ELEMENT_D(J, row, col) += u * v;
   });
 }
 
@@ -443,6 +450,7 @@ struct SteadyProblem {
   double time;
   detail::CallbackGuard guard;
   std::vector<double> values;
+  NewtonSolver* newton = nullptr;  //!< the linear solver when the junctions come in rank-one form
 };
 
 int steadyResidual(N_Vector u, N_Vector f, void* user) {
@@ -454,7 +462,10 @@ int steadyJacobian(N_Vector u, N_Vector, SUNMatrix J, void* user, N_Vector, N_Ve
   auto* p = static_cast<SteadyProblem*>(user);
   return p->guard.run([&] {
     p->system->jacobian(p->time, view(u), p->values);
-    fillMatrix(J, p->system->pattern(), p->values);
+    if (p->newton)
+      p->newton->setMatrix(p->values, 0.0, 1.0);
+    else
+      fillMatrix(J, p->system->pattern(), p->values);
   });
 }
 
@@ -475,19 +486,39 @@ std::vector<double> solveSteadyState(const NetworkSystem& system, std::span<cons
   std::copy(guess.begin(), guess.end(), view(u.get()).begin());
   SteadyProblem problem{&system, time, {}, std::vector<double>(pattern.nonzeros())};
 
-  // Scale each residual (W) by its node's diagonal conductance so the norm is in kelvin.
+  // Scale each residual (W) by its node's diagonal conductance so the norm is in kelvin (the junctions' rank-one
+  // terms included: the whole Jacobian's diagonal).
   system.jacobian(time, guess, problem.values);
   auto fs = view(fScale.get());
+  std::vector<double> diagonal(pattern.size, 0.0);
   for (Index c = 0; c < pattern.size; ++c)
     for (Index p = pattern.columnStart[c]; p < pattern.columnStart[c + 1]; ++p)
-      if (pattern.rowIndex[p] == c) fs[c] = 1.0 / std::max(std::abs(problem.values[p]), 1e-300);
+      if (pattern.rowIndex[p] == c) diagonal[c] = problem.values[p];
+  for (const RankOneTerm& t : system.junctionTerms())
+    for (auto [row, u] : t.u)
+      for (auto [col, v] : t.v)
+        if (col == row) diagonal[row] += u * v;
+  for (Index c = 0; c < pattern.size; ++c) fs[c] = 1.0 / std::max(std::abs(diagonal[c]), 1e-300);
   N_VConst(1.0, uScale.get());
 
-  detail::Handle<_generic_SUNMatrix> J(
-      checkCreated(SUNSparseMatrix(n, n, static_cast<sunindextype>(pattern.nonzeros()), CSC_MAT, raw), "the Jacobian"));
-  useFastSparseOperations(J.get());
-  detail::Handle<_generic_SUNLinearSolver> LS(checkCreated(SUNLinSol_KLU(u.get(), J.get(), raw), "KLU"));
-  check(SUNLinSol_KLUSetOrdering(LS.get(), 0), "SUNLinSol_KLUSetOrdering");  // AMD, as for CVODE
+  // Junctions in rank-one form: the Newton solver's augmented sparse system (KLU with its default row scaling, as
+  // SUNLinSol_KLU), behind an empty matrix; KINSOL's direct-solver path multiplies by no matrix (its line search
+  // takes J p = -F from the solve). Otherwise SUNDIALS' KLU module on the pattern.
+  std::unique_ptr<NewtonSolver> newton;
+  detail::Handle<_generic_SUNMatrix> J;
+  detail::Handle<_generic_SUNLinearSolver> LS;
+  if (!system.junctionTerms().empty()) {
+    newton = std::make_unique<NewtonSolver>(pattern, pattern.size, 2, system.junctionTerms());
+    problem.newton = newton.get();
+    J.reset(checkCreated(NewtonSolver::shellMatrix(raw), "the Newton matrix"));
+    LS.reset(checkCreated(newton->sundialsSolver(raw), "the KLU solver"));
+  } else {
+    J.reset(checkCreated(SUNSparseMatrix(n, n, static_cast<sunindextype>(pattern.nonzeros()), CSC_MAT, raw),
+                         "the Jacobian"));
+    useFastSparseOperations(J.get());
+    LS.reset(checkCreated(SUNLinSol_KLU(u.get(), J.get(), raw), "KLU"));
+    check(SUNLinSol_KLUSetOrdering(LS.get(), 0), "SUNLinSol_KLUSetOrdering");  // AMD, as for CVODE
+  }
   detail::SolverMemory mem(checkCreated(KINCreate(raw), "KINSOL memory"), detail::MemoryDeleter{KINFree});
   check(KINInit(mem.get(), steadyResidual, u.get()), "KINInit");
   check(KINSetUserData(mem.get(), &problem), "KINSetUserData");
@@ -562,6 +593,17 @@ std::vector<double> linearlyImplicitStep(const NetworkSystem& system, std::span<
   detail::Handle<_generic_N_Vector> change(checkCreated(N_VNew_Serial(n, raw), "the step"));
   system.evaluate(time, from, view(rate.get()));
   N_VScale(-1.0, rate.get(), rate.get());
+  if (!system.junctionTerms().empty()) {
+    // Junctions in rank-one form: the Newton solver's augmented sparse system (KLU, its default row scaling).
+    NewtonSolver solver(pattern, system.nodeCount() + system.controlCount(), 2, system.junctionTerms());
+    system.jacobian(time, from, values);
+    solver.setMatrix(values, -1.0 / step, 1.0);
+    std::vector<double> d(view(rate.get()).begin(), view(rate.get()).end());
+    if (!solver.factor() || !solver.solve(d)) return {};
+    std::vector<double> result(from.begin(), from.end());
+    for (Index i = 0; i < system.size(); ++i) result[i] += d[i];
+    return result;
+  }
   detail::Handle<_generic_SUNMatrix> J(
       checkCreated(SUNSparseMatrix(n, n, static_cast<sunindextype>(pattern.nonzeros()), CSC_MAT, raw), "the Jacobian"));
   fillMatrix(J.get(), pattern, values);

@@ -200,8 +200,10 @@ constexpr Index kMaxBorder = 16;
 
 }  // namespace
 
-NewtonSolver::NewtonSolver(const SparsePattern& pattern, Index factored, int scale)
+NewtonSolver::NewtonSolver(const SparsePattern& pattern, Index factored, int scale, std::span<const RankOneTerm> rankOne)
     : pattern_(pattern), factored_(factored), klu_(std::make_unique<Klu>()) {
+  for (const RankOneTerm& t : rankOne)
+    if (!t.u.empty() && !t.v.empty()) ++terms_;
   if (factored > pattern.size || pattern.nonzeros() > static_cast<Index>(std::numeric_limits<int>::max()))
     throw std::invalid_argument("the Newton matrix is too large for KLU's 32-bit interface");
   // The trailing columns hold only their diagonal (nothing depends on those components).
@@ -268,7 +270,7 @@ NewtonSolver::NewtonSolver(const SparsePattern& pattern, Index factored, int sca
     }
     if (!best || b->bytes(factored) < best->bytes(factored)) best = std::move(b);
   }
-  if (best && best->bytes(factored) <= 24.0 * static_cast<double>(entries) &&
+  if (terms_ == 0 && best && best->bytes(factored) <= 24.0 * static_cast<double>(entries) &&
       static_cast<BandIndex>(best->lower) <= kMaxPivotOffset) {
     band_ = std::move(best);
     Band& b = *band_;
@@ -295,6 +297,55 @@ NewtonSolver::NewtonSolver(const SparsePattern& pattern, Index factored, int sca
     for (int k = 0; k < blockStart_[c + 1] - blockStart_[c]; ++k)
       blockRow_[static_cast<std::size_t>(blockStart_[c] + k)] = static_cast<int>(pattern.rowIndex[pattern.columnStart[c] + k]);
   blockValues_.resize(blockRow_.size());
+  if (terms_ > 0) {
+    // The augmented matrix: leading column c holds A_ff's rows, then row factored + t with v_t[c] for each term t
+    // that has c; term column factored + t holds u_t's rows (ascending) and its -1 on the diagonal.
+    if (factored + terms_ > static_cast<Index>(std::numeric_limits<int>::max()))
+      throw std::invalid_argument("the Newton matrix is too large for KLU's 32-bit interface");
+    std::vector<std::vector<std::pair<int, double>>> extra(factored);
+    Index t = 0;
+    for (const RankOneTerm& term : rankOne) {
+      if (term.u.empty() || term.v.empty()) continue;
+      for (auto [col, v] : term.v) {
+        if (col >= factored) throw std::invalid_argument("a rank-one term lies outside the factorised block");
+        extra[col].emplace_back(static_cast<int>(factored + t), v);
+      }
+      ++t;
+    }
+    augStart_.assign(factored + terms_ + 1, 0);
+    for (Index c = 0; c < factored; ++c) {
+      augStart_[c + 1] = augStart_[c] + (blockStart_[c + 1] - blockStart_[c]) + static_cast<int>(extra[c].size());
+      for (int k = blockStart_[c]; k < blockStart_[c + 1]; ++k) augRow_.push_back(blockRow_[static_cast<std::size_t>(k)]);
+      for (auto [row, v] : extra[c]) {
+        if (!augRow_.empty() && augRow_.back() == row) throw std::invalid_argument("a rank-one term repeats a column");
+        augRow_.push_back(row);
+      }
+    }
+    augValues_.assign(augRow_.size(), 0.0);
+    for (Index c = 0; c < factored; ++c) {
+      int q = augStart_[c] + (blockStart_[c + 1] - blockStart_[c]);
+      for (auto [row, v] : extra[c]) augValues_[static_cast<std::size_t>(q++)] = v;
+    }
+    t = 0;
+    for (const RankOneTerm& term : rankOne) {
+      if (term.u.empty() || term.v.empty()) continue;
+      std::vector<std::pair<Index, double>> u(term.u.begin(), term.u.end());
+      std::sort(u.begin(), u.end());
+      std::vector<double> values;
+      for (std::size_t k = 0; k < u.size(); ++k) {
+        if (u[k].first >= factored || (k > 0 && u[k].first == u[k - 1].first))
+          throw std::invalid_argument("a rank-one term lies outside the factorised block or repeats a row");
+        augRow_.push_back(static_cast<int>(u[k].first));
+        values.push_back(u[k].second);
+      }
+      augRow_.push_back(static_cast<int>(factored + t));
+      augStart_[factored + t + 1] = static_cast<int>(augRow_.size());
+      termU_.push_back(std::move(values));
+      ++t;
+    }
+    augValues_.resize(augRow_.size(), -1.0);
+    augWork_.resize(factored + terms_);
+  }
   klu_defaults(&klu_->common);
   klu_->common.ordering = 0;  // AMD
   klu_->common.scale = scale;
@@ -330,6 +381,16 @@ void NewtonSolver::setMatrix(std::span<const double> jacobian, double alpha, dou
       const double v = beta * jacobian[first + static_cast<Index>(k - blockStart_[c])];
       blockValues_[static_cast<std::size_t>(k)] = blockRow_[static_cast<std::size_t>(k)] == static_cast<int>(c) ? v + alpha : v;
     }
+  }
+  if (terms_ == 0) return;
+  // The augmented matrix: A_ff's values, the V^T rows (constant, set once), beta u and the -1 of each term.
+  for (Index c = 0; c < factored_; ++c)
+    std::copy(blockValues_.begin() + blockStart_[c], blockValues_.begin() + blockStart_[c + 1],
+              augValues_.begin() + augStart_[c]);
+  for (Index t = 0; t < terms_; ++t) {
+    const std::vector<double>& u = termU_[t];
+    double* column = augValues_.data() + augStart_[factored_ + t];
+    for (std::size_t k = 0; k < u.size(); ++k) column[k] = beta * u[k];
   }
 }
 
@@ -385,17 +446,20 @@ bool NewtonSolver::factor() {
     return true;
   }
   Klu& k = *klu_;
-  int* Ap = blockStart_.data();
-  int* Ai = blockRow_.data();
-  double* Ax = blockValues_.data();
+  const bool augmented = terms_ > 0;
+  std::vector<int>& starts = augmented ? augStart_ : blockStart_;
+  std::vector<int>& rows = augmented ? augRow_ : blockRow_;
+  int* Ap = starts.data();
+  int* Ai = rows.data();
+  double* Ax = augmented ? augValues_.data() : blockValues_.data();
   if (fresh_ || !k.symbolic || !k.numeric) {
     k.symbolic.reset();
-    const bool shareable = factored_ <= kSharedAnalysisLimit;
-    if (shareable) k.symbolic = findAnalysis(blockStart_, blockRow_);
+    const bool shareable = kluSize() <= kSharedAnalysisLimit;
+    if (shareable) k.symbolic = findAnalysis(starts, rows);
     if (!k.symbolic) {
-      k.symbolic = SharedSymbolic(klu_analyze(static_cast<int>(factored_), Ap, Ai, &k.common), SymbolicFree{});
+      k.symbolic = SharedSymbolic(klu_analyze(static_cast<int>(kluSize()), Ap, Ai, &k.common), SymbolicFree{});
       if (!k.symbolic) return false;
-      if (shareable) keepAnalysis(blockStart_, blockRow_, k.symbolic);
+      if (shareable) keepAnalysis(starts, rows, k.symbolic);
     }
     if (k.numeric) klu_free_numeric(&k.numeric, &k.common);
     k.numeric = klu_factor(Ap, Ai, Ax, k.symbolic.get(), &k.common);
@@ -482,7 +546,16 @@ bool NewtonSolver::solve(std::span<double> x, const double* rhs) const {
     }
   } else if (factored_ > 0) {
     Klu& k = *klu_;
-    if (!klu_solve(k.symbolic.get(), k.numeric, static_cast<int>(factored_), 1, x.data(), &k.common)) return false;
+    if (terms_ > 0) {
+      // [x; z] of the augmented system with right-hand side [b; 0].
+      std::copy(x.begin(), x.begin() + static_cast<std::ptrdiff_t>(factored_), augWork_.begin());
+      std::fill(augWork_.begin() + static_cast<std::ptrdiff_t>(factored_), augWork_.end(), 0.0);
+      if (!klu_solve(k.symbolic.get(), k.numeric, static_cast<int>(kluSize()), 1, augWork_.data(), &k.common))
+        return false;
+      std::copy(augWork_.begin(), augWork_.begin() + static_cast<std::ptrdiff_t>(factored_), x.begin());
+    } else if (!klu_solve(k.symbolic.get(), k.numeric, static_cast<int>(factored_), 1, x.data(), &k.common)) {
+      return false;
+    }
   }
   if (factored_ == pattern_.size) return true;
   // x_e = D^-1 (b_e - A_ef x_f), A_ef = beta J_ef. The same operations in the same order as before, on local

@@ -37,7 +37,13 @@ class NewtonSolver {
   //! is factorised (every later column must hold only its diagonal entry: std::invalid_argument otherwise);
   //! `scale`: KLU's row scaling option (-1: none and no check of the matrix, 0: none, 1: sum, 2: max).
   //! Ordering: AMD.
-  NewtonSolver(const SparsePattern& pattern, Index factored, int scale);
+  //! `rankOne`: terms u v^T of J that the pattern leaves out (NetworkSystem::junctionTerms; rows and columns in the
+  //! leading block): A = alpha I + beta (J_pattern + sum u v^T) is factorised as the sparse augmented matrix
+  //!   [ A_s      beta U ] [x]   [b]
+  //!   [ V^T        -I   ] [z] = [0]     (one auxiliary unknown z_r = v_r . x per term),
+  //! whose first block row is A_s x + beta U V^T x = b: the same x as an LU of A (block elimination; Golub & Van
+  //! Loan 2013, sec. 3.2.10), with 2 m entries per term instead of a dense m x m block (m^3/3 flops). KLU path only.
+  NewtonSolver(const SparsePattern& pattern, Index factored, int scale, std::span<const RankOneTerm> rankOne = {});
   ~NewtonSolver();
   NewtonSolver(const NewtonSolver&) = delete;
   NewtonSolver& operator=(const NewtonSolver&) = delete;
@@ -87,6 +93,14 @@ class NewtonSolver {
   Index factored_ = 0;
   std::vector<int> blockStart_, blockRow_;  //!< CSC pattern of A_ff (KLU's int interface)
   std::vector<double> blockValues_;
+  //! With rank-one terms: the augmented matrix of size factored_ + terms that KLU factorises (CSC, each leading
+  //! column A_ff's entries then its V^T rows; then one column per term, beta u and the -1), and a work vector.
+  Index terms_ = 0;
+  std::vector<int> augStart_, augRow_;
+  std::vector<double> augValues_;
+  std::vector<std::vector<double>> termU_;  //!< u of each term in the order of its column's rows
+  mutable std::vector<double> augWork_;
+  Index kluSize() const { return factored_ + terms_; }
   //! A_ef row by row (systems of up to 5000 components; larger ones go column by column and keep no copy): for
   //! trailing row r, entries [rowStart_[r - factored], rowStart_[r - factored + 1]) of rowColumn_ (the column c) and
   //! rowEntry_ (the position of J's entry); rowValue_ = beta J at that position, set by setMatrix.

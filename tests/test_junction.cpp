@@ -3,12 +3,15 @@
 // Observed order p = log2(|f1 - f2| / |f2 - f4|) on grids refined 2x and 4x: common practice, no source
 // (grid-convergence studies: Roache 1998).
 #include <catch2/catch.hpp>
+#include <Eigen/Dense>
 
+#include <algorithm>
 #include <cmath>
 #include <cstdio>
 #include <numbers>
 #include <string>
 
+#include "solver/newton_solver.hpp"
 #include "test_support_body.hpp"
 
 using namespace thermorph;
@@ -390,4 +393,94 @@ TEST_CASE("The blood of a child's return in its parent does not depend on the pa
   CHECK(std::abs(d10) < 0.5e-3);  // was +4.8 mK
   CHECK(std::abs(d20) < 0.2e-3);
   CHECK(std::abs(d40) < 0.2e-3);  // was +0.9 mK
+}
+
+TEST_CASE("A wide footprint's junction adds no dense block to the Jacobian; the whole Jacobian and the Newton "
+          "solves stay exact",
+          "[junction][jacobian]") {
+  // A plate 5 cm wide (along the limb's axis) on the 8 cm limb of trunkAndLimb: its proximal rings meet the limb's
+  // cells under 5/8 of its length. The pair terms -G_r w_i w_j couple every two cells of a ring's region; as
+  // pattern entries they were a dense block (a region cell's row held its whole region: 45 entries here, m^3/3
+  // flops per region in any elimination order). In rank-one form (NetworkSystem::junctionTerms) a region cell's row
+  // keeps its grid neighbours and the junction rings whose regions hold it.
+  // References: central differences of the right-hand side over the dense matrix (common practice, no source);
+  // Eigen's dense LU with partial pivoting of the Newton matrix I - gamma J (steady: J), J the whole Jacobian
+  // (Golub & Van Loan 2013, sec. 3.4).
+  const std::string plate = R"toml(
+[[segments]]
+name = "paddle"
+parent = "limb"
+attach_position = 0.5
+shape = "plate"
+length = "4 cm"
+width = "5 cm"
+axial_cells = 2
+layers = [{ tissue = "flesh", thickness = "0.4 cm", cells = 2 }]
+surface = { convection = "5 W/(m2 K)" }
+)toml";
+  auto body = bodyFromToml(trunkAndLimb(2, 1, plate));
+  const Network& network = body->network();
+  REQUIRE(!network.junctions.empty());
+  std::size_t widest = 0;  // the largest ring region
+  for (const Junction& j : network.junctions)
+    for (const JunctionRing& r : j.rings) widest = std::max(widest, r.shares.size());
+  CHECK(widest >= 25);
+  for (auto mode : {NetworkSystem::Mode::Transient, NetworkSystem::Mode::Steady}) {
+    const bool transient = mode == NetworkSystem::Mode::Transient;
+    const char* name = transient ? "transient" : "steady";
+    NetworkSystem system(network, mode);
+    // Entries in the longest row of a region cell (the ring's own row and column hold the region's cells in
+    // either form: a star, not a block).
+    const SparsePattern& p = system.pattern();
+    std::vector<std::size_t> count(p.size, 0);
+    for (Index k = 0; k < p.nonzeros(); ++k) ++count[p.rowIndex[k]];
+    std::size_t longest = 0;
+    for (const Junction& j : network.junctions)
+      for (const JunctionRing& r : j.rings)
+        for (auto [cell, w] : r.shares) longest = std::max(longest, count[cell]);
+    std::printf("[junction] %s: widest ring region %zu cells, longest row of a region cell %zu entries; nonzeros %zu "
+                "for %zu states\n",
+                name, widest, longest, static_cast<std::size_t>(p.nonzeros()), static_cast<std::size_t>(p.size));
+    CHECK(longest <= 12);
+    CHECK(p.nonzeros() <= 12 * p.size);
+
+    // The whole Jacobian (pattern plus rank-one terms) against central differences, at a non-uniform state.
+    std::vector<double> y(system.size());
+    for (Index i = 0; i < y.size(); ++i)
+      y[i] = i < system.nodeCount() ? 305.0 + 13.0 * std::sin(1.3 * static_cast<double>(i) + 0.4) : 1e3;
+    const JacobianCheck c = checkJacobian(system, y, 0.0);
+    std::printf("[junction] %s: whole Jacobian against finite differences: max relative error %.2e, %d entries "
+                "outside pattern and rank-one terms\n",
+                name, c.worstRelative, c.outsidePattern);
+    CHECK(c.worstRelative <= 1e-6);
+    CHECK(c.outsidePattern == 0);
+
+    // The Newton solver's augmented system against a dense LU of the Newton matrix with the whole Jacobian.
+    const Index n = system.size();
+    std::vector<double> full(n * n), values(p.nonzeros());
+    system.denseJacobian(0.0, y, full);
+    system.jacobian(0.0, y, values);
+    NewtonSolver solver(p, system.nodeCount() + system.controlCount(), transient ? -1 : 2, system.junctionTerms());
+    for (double gamma : transient ? std::vector<double>{0.5, 60.0, 3600.0} : std::vector<double>{1.0}) {
+      const double alpha = transient ? 1.0 : 0.0, beta = transient ? -gamma : 1.0;
+      Eigen::MatrixXd A = alpha * Eigen::MatrixXd::Identity(static_cast<Eigen::Index>(n), static_cast<Eigen::Index>(n));
+      for (Index r = 0; r < n; ++r)
+        for (Index col = 0; col < n; ++col)
+          A(static_cast<Eigen::Index>(r), static_cast<Eigen::Index>(col)) += beta * full[r * n + col];
+      Eigen::VectorXd b(static_cast<Eigen::Index>(n));
+      for (Index i = 0; i < n; ++i) b(static_cast<Eigen::Index>(i)) = std::cos(0.7 * static_cast<double>(i));
+      const Eigen::VectorXd reference = A.partialPivLu().solve(b);
+      solver.setMatrix(values, alpha, beta);
+      REQUIRE(solver.factor());
+      std::vector<double> x(b.data(), b.data() + b.size());
+      REQUIRE(solver.solve(x));
+      double difference = 0.0;
+      for (Index i = 0; i < n; ++i)
+        difference = std::max(difference, std::abs(x[i] - reference(static_cast<Eigen::Index>(i))));
+      const double relative = difference / reference.lpNorm<Eigen::Infinity>();
+      std::printf("[junction] %s Newton solve, gamma %g s: max difference from a dense LU %.2e (relative)\n", name,
+                  transient ? gamma : 0.0, relative);
+      CHECK(relative < 1e-11);
+    }
+  }
 }

@@ -117,6 +117,20 @@ inline bool inPattern(const SparsePattern& pattern, Index row, Index col) {
   return false;
 }
 
+//! Where the Jacobian can be nonzero, row-major [size x size]: the pattern and the junctions' rank-one terms
+//! (NetworkSystem::junctionTerms: every row of u with every column of v).
+inline std::vector<char> jacobianStructure(const NetworkSystem& system) {
+  const Index n = system.size();
+  const SparsePattern& p = system.pattern();
+  std::vector<char> s(n * n, 0);
+  for (Index col = 0; col < n; ++col)
+    for (Index k = p.columnStart[col]; k < p.columnStart[col + 1]; ++k) s[p.rowIndex[k] * n + col] = 1;
+  for (const RankOneTerm& t : system.junctionTerms())
+    for (auto [row, u] : t.u)
+      for (auto [col, v] : t.v) s[row * n + col] = 1;
+  return s;
+}
+
 //! Observed order of convergence between grids refined by two [1].
 inline double observedOrder(double coarseError, double fineError) { return std::log2(coarseError / fineError); }
 
