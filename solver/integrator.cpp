@@ -495,9 +495,9 @@ std::vector<double> solveSteadyState(const NetworkSystem& system, std::span<cons
     for (Index p = pattern.columnStart[c]; p < pattern.columnStart[c + 1]; ++p)
       if (pattern.rowIndex[p] == c) diagonal[c] = problem.values[p];
   for (const RankOneTerm& t : system.junctionTerms())
-    for (auto [row, u] : t.u)
-      for (auto [col, v] : t.v)
-        if (col == row) diagonal[row] += u * v;
+    for (auto [row, uk] : t.u)
+      for (auto [col, vk] : t.v)
+        if (col == row) diagonal[row] += uk * vk;
   for (Index c = 0; c < pattern.size; ++c) fs[c] = 1.0 / std::max(std::abs(diagonal[c]), 1e-300);
   N_VConst(1.0, uScale.get());
 
