@@ -13,13 +13,14 @@
 # source (git archive) with this tree's tests/bench/bench.cpp, configured (Release) and its thermorph_bench built
 # with -j2 (ccache if CCACHE_DIR is set) in the work folder. Counters a revision's SolverStatistics lacks show "-".
 # The builds alternate case by case, so each case's tables are measured side by side under the same load.
-# Environment: LEVELS (default 3), CASES (default: the trial swimmer of tests/bench/studies/refine_swimmer.toml,
+# Environment: LEVELS (default 3), CASES (default: the trial swimmer of tests/bench/studies/refine_swimmer.toml, the
+# trial bird on snow of tests/bench/studies/refine_snowbird.toml,
 # cases/quadruped.toml, cases/large_bill.toml, cases/wading_bird.toml), KEEP=1 keeps the work folder.
 set -euo pipefail
 here=$(cd "$(dirname "$0")" && pwd)
 root=$(cd "$here/../.." && pwd)
 LEVELS=${LEVELS:-3}
-CASES=${CASES:-"$here/studies/refine_swimmer.toml $root/cases/quadruped.toml $root/cases/large_bill.toml $root/cases/wading_bird.toml"}
+CASES=${CASES:-"$here/studies/refine_swimmer.toml $here/studies/refine_snowbird.toml $root/cases/quadruped.toml $root/cases/large_bill.toml $root/cases/wading_bird.toml"}
 [ $# -ge 1 ] || { echo "usage: $0 NAME=BUILD_DIR|GIT_REVISION [NAME=... ...]" >&2; exit 2; }
 work=$(mktemp -d)
 if [ "${KEEP:-0}" = 1 ]; then echo "work folder: $work" >&2; else trap 'rm -rf "$work"' EXIT; fi
