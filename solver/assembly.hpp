@@ -77,6 +77,7 @@ class NetworkSystem {
   //! u v^T over these terms (constant: u = -G_r w_r / C, steady -G_r w_r, v = w_r per junction ring, the pattern's
   //! diagonal carrying the remainder G_r w_i^2 (/ C)). A pair term couples every two cells of a ring's region: as
   //! pattern entries a dense block of m^2 entries per region, m^3/3 flops in the factorisation whatever the order.
+  //! Each term's u and v list the same region cells in the same order (u[k].first == v[k].first).
   const std::vector<RankOneTerm>& junctionTerms() const { return junctionTerms_; }
   //! out += sum u (v . x) over junctionTerms() [size].
   void addJunctionProduct(std::span<const double> x, std::span<double> out) const;

@@ -494,10 +494,8 @@ std::vector<double> solveSteadyState(const NetworkSystem& system, std::span<cons
   for (Index c = 0; c < pattern.size; ++c)
     for (Index p = pattern.columnStart[c]; p < pattern.columnStart[c + 1]; ++p)
       if (pattern.rowIndex[p] == c) diagonal[c] = problem.values[p];
-  for (const RankOneTerm& t : system.junctionTerms())
-    for (auto [row, uk] : t.u)
-      for (auto [col, vk] : t.v)
-        if (col == row) diagonal[row] += uk * vk;
+  for (const RankOneTerm& t : system.junctionTerms())  // u and v list the same region cells in the same order
+    for (std::size_t k = 0; k < t.u.size(); ++k) diagonal[t.u[k].first] += t.u[k].second * t.v[k].second;
   for (Index c = 0; c < pattern.size; ++c) fs[c] = 1.0 / std::max(std::abs(diagonal[c]), 1e-300);
   N_VConst(1.0, uScale.get());
 
