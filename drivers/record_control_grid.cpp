@@ -167,7 +167,7 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
   std::vector<char> internal(channels, 0);
   for (Index ch = 0; ch < channels; ++ch) internal[ch] = net.channels[ch] == "blood" || net.channels[ch] == "conduction";
   // Heat each group (one copy) has lost to its surroundings since the start, for the storage term (trapezoidal
-  // over the outputs; the first observation after the start, a sweep's last output: rectangle).
+  // over the outputs; the first observation after the start: rectangle).
   exchanged_.resize(groups, 0.0);
   lastLoss_.resize(groups, -1.0);
   for (Index g = 0; g < groups; ++g) {
@@ -199,7 +199,7 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
     }
     // int eps L dt / C: the heat-flow error the scope can have stored by now (trapezoidal over the outputs).
     const double source = (gridError_ + w.signalError) * n.balanced;
-    if (w.capacity > 0.0 && dt > 0.0)  // the first observation after the start (a sweep's last output): rectangle
+    if (w.capacity > 0.0 && dt > 0.0)  // the first observation after the start: rectangle
       w.stored += (w.lastSource < 0.0 ? source : 0.5 * (w.lastSource + source)) * dt / w.capacity;
     w.lastSource = source;
     if (steady_) {  // after a steady start: what the change of the heat-flow error can have stored

@@ -56,6 +56,11 @@ Recorder::Recorder(const Body& body, const NetworkSystem& system, const RunOptio
       budget_(body.network(), system),
       freezing_(body),
       controlGrid_(body, system) {
+  // The controller-output check needs each output's heat flows: a transient sweep, which needs none for its
+  // metrics, computes them anyway when a controller is watched, so that a sweep row warns as `run` of the same case
+  // does (it checked the last output only before 2026-12-05 and missed the trial forager's shivering, 4.7 % at 13 min
+  // of 120; 5-8 % more instructions per run of the bench studies, measured with tests/bench/sweep_instructions.sh).
+  if (controlGrid_.active()) flows_ = true;
   if (options.output.empty()) return;
   file_ = std::make_unique<ResultsFile>(options.output);
   ResultsFile& f = *file_;
@@ -75,11 +80,7 @@ void Recorder::record(double t, std::span<const double> y, double initialStored,
   freezing_.observe(t, y);
   if (controlGrid_.active()) {
     controlGrid_.start(t);
-    if (flows_) controlGrid_.observe(t, y, summary.flows);
-    else {  // no flows at outputs (a transient sweep): the last output is checked at the end
-      lastTime_ = t;
-      lastState_.assign(y.begin(), y.begin() + static_cast<std::ptrdiff_t>(system_.nodeCount() + system_.controlCount()));
-    }
+    controlGrid_.observe(t, y, summary.flows);
   }
   if (observer_) observer_(t, y.first(system_.nodeCount()), summary);
   if (!file_) return;
@@ -104,13 +105,6 @@ void Recorder::finish(RunSummary& summary, bool steady) {
   summary.runWarnings = driverWarnings_;
   for (std::string& w : freezing_.warnings()) summary.runWarnings.push_back(std::move(w));
   // Controller outputs whose estimated grid error exceeds 1 % (record_control_grid.hpp).
-  if (controlGrid_.active() && !lastState_.empty()) {
-    const Network& net = body_.network();
-    std::vector<double> flows(net.groups.size() * net.channels.size(), 0.0), storage(net.groups.size(), 0.0),
-        faces(net.faces.size(), 0.0);
-    system_.groupFlows(lastTime_, lastState_, flows, storage, faces);
-    controlGrid_.observe(lastTime_, lastState_, flows);
-  }
   if (summary.complete)
     for (std::string& w : controlGrid_.warnings()) summary.runWarnings.push_back(std::move(w));
   for (const std::string& w : summary.runWarnings) summary.warnings.push_back(w);

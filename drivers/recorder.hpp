@@ -48,7 +48,7 @@ class Recorder {
   const Body& body_;
   const NetworkSystem& system_;
   OutputObserver observer_;
-  bool flows_ = true;  //!< RunOptions::flowsAtOutputs, or a results file
+  bool flows_ = true;  //!< RunOptions::flowsAtOutputs, a results file, or a watched controller
   std::unique_ptr<ResultsFile> file_;
   std::size_t time_ = 0;
   BudgetRecorder budget_;
@@ -56,8 +56,6 @@ class Recorder {
   std::unique_ptr<FieldRecorder> fields_;
   FreezeWatch freezing_;                  //!< tissue below 0 degC: warnings of the run (record_freezing.hpp)
   ControlGridWatch controlGrid_;          //!< controller outputs' grid error (record_control_grid.hpp)
-  double lastTime_ = 0.0;                 //!< without flows at outputs: the last output, checked at the end
-  std::vector<double> lastState_;
   std::vector<double> faceTemperatures_;  //!< [K], from the budget, used by the other parts
   std::string incompletePath_;
   std::vector<std::string> driverWarnings_;
