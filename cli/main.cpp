@@ -140,6 +140,19 @@ int main(int argc, char** argv) {
 
   try {
     app.parse(argc, argv);
+  } catch (const CLI::ExtrasError& e) {
+    // CLI11 2.3's own message lists the arguments it did not expect in reverse order ("24 -N" for "-N 24"): name
+    // them in the order given, with the subcommand and where its options are listed.
+    std::string command = "thermorph";
+    std::vector<std::string> extra;
+    for (CLI::App* sub : app.get_subcommands())
+      if (sub->parsed()) command += " " + sub->get_name(), extra = sub->remaining();
+    if (extra.empty()) extra = app.remaining();
+    std::string list;
+    for (const std::string& a : extra) list += (list.empty() ? "" : " ") + a;
+    fmt::print(stderr, "error: {}: unexpected argument{}: {} (an option this command does not have, or a value "
+               "without its option); the options: {} --help\n", command, extra.size() == 1 ? "" : "s", list, command);
+    return exitBadInput;
   } catch (const CLI::ParseError& e) {
     // Help and version exit 0; any other command-line error is bad input: exit 2 like a bad case file.
     int code = app.exit(e);
