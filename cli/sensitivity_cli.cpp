@@ -49,7 +49,9 @@ CLI::App* addUncertaintySubcommand(CLI::App& app, UncertaintyOptions& o) {
   u->add_option("--param", o.params, h::param)->take_all()->allow_extra_args(false);
   u->add_option("--from-fit", o.fromFit, h::fromFit);
   u->add_option("--series", o.series, h::series)->take_all()->allow_extra_args(false);
-  u->add_option("--samples", o.samples, h::samples);
+  u->add_option("--metric", o.metrics, h::metric)->take_all()->allow_extra_args(false);
+  u->add_option("--window", o.window, h::window);
+  u->add_option("-N,--samples", o.samples, h::samples);
   u->add_option("--design", o.design, h::design);
   u->add_option("--seed", o.seed, h::seed);
   u->add_option("-j,--jobs", o.jobs, h::jobs);

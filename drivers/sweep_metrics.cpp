@@ -1,5 +1,7 @@
 #include "drivers/sweep_metrics.hpp"
 
+#include <fnmatch.h>
+
 #include <algorithm>
 #include <cmath>
 #include <limits>
@@ -7,6 +9,7 @@
 #include <fmt/format.h>
 
 #include "models/units.hpp"
+#include "drivers/option_text.hpp"
 
 namespace thermorph {
 namespace {
@@ -302,6 +305,37 @@ std::vector<double> MetricCollector::values() const {
     temperature(3 + g);
   }
   for (double t : crossing_) out.push_back(t);
+  return out;
+}
+
+MetricChoice chooseMetrics(const Body& body, std::span<const std::string> metrics, MetricWindow window, bool steady) {
+  MetricChoice out;
+  std::vector<std::string> selectors;
+  for (const std::string& m : metrics) {
+    if (m.rfind("time_to:", 0) == 0) out.thresholds.push_back(parseThreshold(m));
+    else selectors.push_back(option_text::trim(m));
+  }
+  MetricCollector check(body, window, out.thresholds, steady);  // window and thresholds valid
+  std::vector<MetricColumn> all = metricColumns(body, out.thresholds, steady);
+  std::vector<bool> keep(all.size(), selectors.empty());
+  for (const std::string& sel : selectors) {
+    const std::string below = sel + ".*";
+    bool any = false;
+    for (std::size_t c = 0; c < all.size(); ++c)
+      if (fnmatch(sel.c_str(), all[c].name.c_str(), 0) == 0 || fnmatch(below.c_str(), all[c].name.c_str(), 0) == 0) {
+        keep[c] = true;
+        any = true;
+      }
+    if (!any)
+      throw CaseError(fmt::format("--metric {}: matches no metric; metrics are body.heat_flow.CHANNEL, "
+                                  "body.core_temperature.STAT, body.blood_temperature.STAT, "
+                                  "body.mean_skin_temperature.STAT, segments.NAME.heat_flow.CHANNEL, "
+                                  "segments.NAME.mean_temperature.STAT (STAT: mean, final, min, max; CHANNEL: {}, "
+                                  "storage), a prefix of these or a pattern with *, and time_to:QUANTITY<VALUE",
+                                  sel, fmt::join(body.network().channels, ", ")));
+  }
+  for (std::size_t c = 0; c < all.size(); ++c)
+    if (keep[c] || c >= all.size() - out.thresholds.size()) out.columns.push_back(all[c]);
   return out;
 }
 

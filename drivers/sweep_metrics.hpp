@@ -40,6 +40,15 @@ Threshold parseThreshold(const std::string& text);
 //! Every metric column a run of `body` reports (before selection), in a fixed order.
 std::vector<MetricColumn> metricColumns(const Body& body, std::span<const Threshold> thresholds, bool steady);
 
+//! The `--metric` arguments of a sweep, sensitivity or uncertainty analysis against the base body: the thresholds
+//! (`time_to:...`) and the columns kept, in metricColumns() order; no selector keeps every column, thresholds are
+//! always kept. CaseError for a selector that matches no column, a bad threshold or window.
+struct MetricChoice {
+  std::vector<Threshold> thresholds;
+  std::vector<MetricColumn> columns;
+};
+MetricChoice chooseMetrics(const Body& body, std::span<const std::string> metrics, MetricWindow window, bool steady);
+
 //! Follows one run output by output and reduces it to the values of metricColumns().
 //!
 //! Over the window [a, b]: a body or segment channel's mean heat flow is (E(b) - E(a)) / (b - a) from the

@@ -1,6 +1,4 @@
 //! Sweep plans: value specs, grids and zips, size series as overrides, metric selection, fingerprint.
-#include <fnmatch.h>
-
 #include <algorithm>
 #include <cmath>
 #include <filesystem>
@@ -453,33 +451,12 @@ static SweepPlan finishSweepPlan(SweepPlan plan, const SweepOptions& options, co
   if (!options.window.empty()) plan.window = parseMetricWindow(options.window);
 
   // Metric columns from the base body; selectors keep a subset; thresholds are always kept.
-  std::vector<std::string> selectors;
-  for (const std::string& m : options.metrics) {
-    if (m.rfind("time_to:", 0) == 0) plan.thresholds.push_back(parseThreshold(m));
-    else selectors.push_back(trim(m));
+  {
+    Body body(base);
+    MetricChoice chosen = chooseMetrics(body, options.metrics, plan.window, plan.steady);
+    plan.thresholds = std::move(chosen.thresholds);
+    plan.columns = std::move(chosen.columns);
   }
-  Body body(base);
-  MetricCollector check(body, plan.window, plan.thresholds, plan.steady);  // window and thresholds valid
-  std::vector<MetricColumn> all = metricColumns(body, plan.thresholds, plan.steady);
-  std::vector<bool> keep(all.size(), selectors.empty());
-  for (const std::string& sel : selectors) {
-    const std::string below = sel + ".*";
-    bool any = false;
-    for (std::size_t c = 0; c < all.size(); ++c)
-      if (fnmatch(sel.c_str(), all[c].name.c_str(), 0) == 0 || fnmatch(below.c_str(), all[c].name.c_str(), 0) == 0) {
-        keep[c] = true;
-        any = true;
-      }
-    if (!any)
-      throw CaseError(fmt::format("--metric {}: matches no metric; metrics are body.heat_flow.CHANNEL, "
-                                  "body.core_temperature.STAT, body.blood_temperature.STAT, "
-                                  "body.mean_skin_temperature.STAT, segments.NAME.heat_flow.CHANNEL, "
-                                  "segments.NAME.mean_temperature.STAT (STAT: mean, final, min, max; CHANNEL: {}, "
-                                  "storage), a prefix of these or a pattern with *, and time_to:QUANTITY<VALUE",
-                                  sel, fmt::join(body.network().channels, ", ")));
-  }
-  for (std::size_t c = 0; c < all.size(); ++c)
-    if (keep[c] || c >= all.size() - plan.thresholds.size()) plan.columns.push_back(all[c]);
 
   Fingerprint fp;
   fp.add(THERMORPH_VERSION);

@@ -22,6 +22,7 @@
 #include "models/units.hpp"
 #include "drivers/h5_append.hpp"
 #include "drivers/observed.hpp"
+#include "drivers/option_text.hpp"
 #include "drivers/sampling.hpp"
 #include "drivers/simulation.hpp"
 #include "drivers/sweep_metrics.hpp"
@@ -29,13 +30,10 @@
 namespace thermorph {
 namespace {
 
+using option_text::trim;
+
 constexpr double nan = std::numeric_limits<double>::quiet_NaN();
 constexpr double probabilities[] = {0.05, 0.25, 0.5, 0.75, 0.95};
-
-std::string trim(const std::string& s) {
-  std::size_t b = s.find_first_not_of(" \t\r\n"), e = s.find_last_not_of(" \t\r\n");
-  return b == std::string::npos ? std::string() : s.substr(b, e - b + 1);
-}
 
 //! Quantile of the finite values (linear between order statistics; Hyndman & Fan 1996, type 7).
 double quantileOf(std::vector<double> v, double q) {
@@ -192,9 +190,13 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
   const std::size_t runs = o.samples + 1;
   std::vector<RunOutput> outputs(runs);
   std::vector<std::string> metricNames, metricUnits;
+  const MetricWindow window = o.window.empty() ? MetricWindow{} : parseMetricWindow(o.window);
+  std::vector<Threshold> thresholds;
   {
     Body body(base);
-    for (const MetricColumn& c : metricColumns(body, {}, false)) {
+    MetricChoice chosen = chooseMetrics(body, o.metrics, window, false);
+    thresholds = std::move(chosen.thresholds);
+    for (const MetricColumn& c : chosen.columns) {
       metricNames.push_back(c.name);
       metricUnits.push_back(c.units);
     }
@@ -207,7 +209,7 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
         for (std::size_t j = 0; j < k; ++j) ov.push_back(overrideOf(j, values[i - 1][j]));
       const Case c = loadCaseFromString(caseText, o.casePath, ov);
       Body body(c);
-      MetricCollector metrics(body, MetricWindow{}, {}, false);
+      MetricCollector metrics(body, window, thresholds, false);
       ObservationSampler sampler(bands, body);
       RunOptions options;
       options.quiet = true;
@@ -220,8 +222,16 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
         out.error = summary.failure;
         return;
       }
-      out.metrics = metrics.values();
-      if (out.metrics.size() != metricNames.size()) out.metrics.assign(metricNames.size(), nan);
+      // The chosen columns by name (a sampled geometry may give a run other columns than the base).
+      const std::vector<double> all = metrics.values();
+      const std::vector<MetricColumn> names = metricColumns(body, thresholds, false);
+      out.metrics.assign(metricNames.size(), nan);
+      for (std::size_t q = 0; q < metricNames.size(); ++q)
+        for (std::size_t col = 0; col < names.size() && col < all.size(); ++col)
+          if (names[col].name == metricNames[q]) {
+            out.metrics[q] = all[col];
+            break;
+          }
       for (std::size_t s = 0; s < bands.series.size(); ++s) out.series.push_back(sampler.outputSeries(s));
       out.times = sampler.outputTimes();
       out.ok = true;
@@ -321,9 +331,56 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
       if (outputs[r + 1].ok) std::copy(outputs[r + 1].metrics.begin(), outputs[r + 1].metrics.end(), all.begin() + static_cast<std::ptrdiff_t>(r * m));
     fmt::print(o.report, "Uncertainty: {} of {} runs ok ({:.3g} s); parameters: {}\n", ok, o.samples, wall, fmt::join(keys, ", "));
     fmt::print(o.report, "{:<52} {:>10} {:>10} {:>10} {:>10} {:>10}  unit\n", "metric", "5 %", "25 %", "median", "75 %", "95 %");
+    const bool selected = std::any_of(o.metrics.begin(), o.metrics.end(), [](const std::string& x) {
+      return trim(x).rfind("time_to:", 0) != 0;
+    });
+    std::vector<double> reached;  // time_to columns: share of the runs that ok'd which crossed the threshold
     for (std::size_t q = 0; q < m; ++q) {
       std::vector<double> column;
       for (std::size_t r = 0; r < o.samples; ++r) column.push_back(all[r * m + q]);
+      const bool threshold = metricNames[q].starts_with("time_to.");
+      if (threshold) {
+        // A run that never crosses the threshold is censored at "never" (+infinity), not left out: the quantiles
+        // of the runs that did cross would understate the time (half the runs never below 35 degC and the
+        // "median" would be the median of the other half). Means and SDs are undefined then.
+        double crossed = 0.0, ran = 0.0;
+        for (std::size_t r = 0; r < o.samples; ++r)
+          if (outputs[r + 1].ok) {
+            ran += 1.0;
+            if (std::isnan(column[r])) column[r] = std::numeric_limits<double>::infinity();
+            else crossed += 1.0;
+          }
+        reached.push_back(ran > 0.0 ? crossed / ran : nan);
+        for (double pr : probabilities) {
+          std::vector<double> v;
+          for (double x : column)
+            if (!std::isnan(x)) v.push_back(x);
+          std::sort(v.begin(), v.end());
+          if (v.empty()) {
+            quantiles.push_back(nan);
+            continue;
+          }
+          const double pos = pr * static_cast<double>(v.size() - 1);
+          const std::size_t lo = static_cast<std::size_t>(std::floor(pos)), hi = std::min(lo + 1, v.size() - 1);
+          quantiles.push_back(std::isinf(v[hi]) ? (pos == static_cast<double>(lo) && !std::isinf(v[lo]) ? v[lo] : v[hi])
+                                                : v[lo] + (v[hi] - v[lo]) * (pos - static_cast<double>(lo)));
+        }
+        means.push_back(nan);
+        sds.push_back(nan);
+        if (crossed == ran) {  // every run crossed: the ordinary statistics
+          double sum = 0.0, sq = 0.0;
+          for (double v : column)
+            if (std::isfinite(v)) sum += v, sq += v * v;
+          means.back() = sum / ran;
+          sds.back() = ran > 1 ? std::sqrt(std::max(0.0, (sq - sum * sum / ran) / (ran - 1.0))) : nan;
+        }
+        auto text = [](double v) { return std::isinf(v) ? std::string("never") : fmt::format("{:.4g}", v); };
+        fmt::print(o.report, "{:<52} {:>10} {:>10} {:>10} {:>10} {:>10}  {} ({:.0f} % of the runs cross it)\n",
+                   metricNames[q], text(quantiles[q * 5]), text(quantiles[q * 5 + 1]), text(quantiles[q * 5 + 2]),
+                   text(quantiles[q * 5 + 3]), text(quantiles[q * 5 + 4]), metricUnits[q], 100.0 * reached.back());
+        continue;
+      }
+      reached.push_back(nan);
       for (double pr : probabilities) quantiles.push_back(quantileOf(column, pr));
       double sum = 0.0, sq = 0.0, count = 0.0;
       for (double v : column)
@@ -334,7 +391,8 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
         }
       means.push_back(sum / count);
       sds.push_back(count > 1 ? std::sqrt(std::max(0.0, (sq - sum * sum / count) / (count - 1.0))) : nan);
-      const bool shown = metricNames[q].starts_with("body.");
+      // Printed: the body's metrics, or every chosen one when --metric selects columns.
+      const bool shown = selected || metricNames[q].starts_with("body.");
       if (shown)
         fmt::print(o.report, "{:<52} {:>10.4g} {:>10.4g} {:>10.4g} {:>10.4g} {:>10.4g}  {}\n", metricNames[q], quantiles[q * 5],
                    quantiles[q * 5 + 1], quantiles[q * 5 + 2], quantiles[q * 5 + 3], quantiles[q * 5 + 4], metricUnits[q]);
@@ -347,6 +405,9 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
     w.attribute("/uncertainty/metric_quantiles", "probabilities", "0.05, 0.25, 0.5, 0.75, 0.95");
     w.doubles("/uncertainty/metric_mean", means, {}, "see metric_units");
     w.doubles("/uncertainty/metric_sd", sds, {}, "see metric_units");
+    w.doubles("/uncertainty/metric_reached", reached, {}, "1",
+              "time_to metrics: share of the runs that crossed the threshold (the others count as never: +inf in "
+              "the quantiles; mean and SD NaN unless every run crossed); NaN for other metrics");
     std::vector<double> baseMetrics = outputs[0].metrics;
     w.doubles("/uncertainty/metric_base", baseMetrics, {}, "see metric_units");
     // Bands.
@@ -388,7 +449,8 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
     w.attach("/uncertainty/metric_units", {M});
     w.attach("/uncertainty/metric_values", {S, M});
     w.attach("/uncertainty/metric_quantiles", {M, Q});
-    for (const char* name : {"/uncertainty/metric_mean", "/uncertainty/metric_sd", "/uncertainty/metric_base"})
+    for (const char* name : {"/uncertainty/metric_mean", "/uncertainty/metric_sd", "/uncertainty/metric_base",
+                             "/uncertainty/metric_reached"})
       w.attach(name, {M});
   }
   std::filesystem::rename(tmp, output);

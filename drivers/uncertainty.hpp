@@ -15,6 +15,8 @@ struct UncertaintyOptions {
   std::vector<std::string> params;   //!< KEY[UNIT]=DIST
   std::string fromFit;               //!< a fit's results file: its values and covariance
   std::vector<std::string> series;   //!< outputs to band (observed-data names)
+  std::vector<std::string> metrics;  //!< as sweep --metric: selectors and time_to: thresholds (default: every column)
+  std::string window;                //!< as sweep --window (default: the whole run)
   std::size_t samples = 200;
   std::string design = "lhs";        //!< lhs | sobol
   std::uint64_t seed = 1;
@@ -40,6 +42,9 @@ inline constexpr const char* fromFit =
     "Sample the fitted parameters from a fit's results (multivariate normal, its covariance)";
 inline constexpr const char* series =
     "Time series to band, as observed-data outputs (body.core_temperature, segments.NAME.mean_temperature, ...)";
+inline constexpr const char* metric =
+    "Metrics as in `sweep --metric` (default: every column), e.g. \"time_to:body.core_temperature<35 degC\"";
+inline constexpr const char* window = "Averaging window START:END (as in sweep)";
 inline constexpr const char* samples = "Runs (default 200)";
 inline constexpr const char* design = "lhs (Latin hypercube, default) or sobol (quasi-random)";
 inline constexpr const char* seed = "Seed of the Latin hypercube (default 1)";

@@ -6,6 +6,8 @@
 #include <catch2/catch.hpp>
 
 #include <cmath>
+#include <cstdio>
+#include <limits>
 #include <filesystem>
 #include <fstream>
 #include <numbers>
@@ -274,5 +276,85 @@ convection = "0.01 W/(m2 K)"
     CHECK(std::abs(q50[i] - mean) < 0.03 * sd);
     CHECK(std::abs(q95[i] - (mean + 1.6448536 * sd)) < 0.03 * sd);
   }
+  std::filesystem::remove_all(dir);
+}
+
+TEST_CASE("Uncertainty of a threshold time counts the runs that never cross it, against Newton cooling's exact "
+          "quantiles",
+          "[fit][sensitivity]") {
+  // The lumped sphere of the test above (Incropera eq. 5.6), 200 s: it falls below 12 degC at
+  // t = tau ln((40 - T_inf) / (12 - T_inf)) when that is at most 200 s, i.e. when T_inf <= (12 E - 40) / (E - 1),
+  // E = exp(200 s / tau); otherwise never in the run. The time grows with T_inf, so its p-quantile is that of T_inf
+  // mapped through it, "never" (+inf) past the crossing bound. T_inf ~ N(10, 2^2): 60.5 % of the runs cross, the
+  // 5/25/50 % quantiles are 122.6/149.1/180.5 s and the 75/95 % ones never. Before 2026-12-05 the runs that never
+  // crossed were left out, and the "median" was that of the crossing runs alone (about 155 s).
+  const std::string dir = tempDir("uncertainty_threshold");
+  std::ofstream(dir + "/lump.toml") << R"toml(
+title = "lumped sphere"
+[run]
+duration = "200 s"
+output_interval = "1 s"
+initial_temperature = "40 degC"
+rtol = 1e-10
+atol = "1e-10 K"
+[tissues.lump]
+base = "muscle"
+conductivity = "1000 W/(m K)"
+density = "1 kg/m3"
+specific_heat = "100 J/(kg K)"
+metabolic_heat = "0 W/m3"
+perfusion = "0 1/s"
+[[segments]]
+name = "ball"
+shape = "sphere"
+layers = [{ tissue = "lump", thickness = "2 cm", cells = 1 }]
+[environment]
+temperature = "10 degC"
+convection = "0.01 W/(m2 K)"
+)toml";
+  UncertaintyOptions o;
+  o.casePath = dir + "/lump.toml";
+  o.params = {"environment.temperature[degC]=normal:10:2"};
+  o.metrics = {"time_to:body.core_temperature<12 degC", "body.core_temperature.final"};
+  o.samples = 400;
+  o.jobs = 2;
+  o.quiet = true;
+  o.output = dir + "/unc.h5";
+  std::FILE* report = std::tmpfile();
+  o.report = report;
+  REQUIRE(runUncertaintyCommand(o) == 0);
+  const double tau = 1 * 100 * 0.02 / (3 * 0.01), E = std::exp(200.0 / tau), bound = (12 * E - 40) / (E - 1);
+  auto timeAt = [&](double tInf) {
+    return tInf <= bound ? tau * std::log((40 - tInf) / (12 - tInf)) : std::numeric_limits<double>::infinity();
+  };
+  const std::vector<std::string> names = h5ReadStrings(o.output, "/uncertainty/metric_names");
+  REQUIRE(names.size() == 2);  // the chosen columns only
+  const std::size_t col = names[0].starts_with("time_to.") ? 0 : 1;
+  const std::vector<double> quantiles = h5ReadDoubles(o.output, "/uncertainty/metric_quantiles");
+  const std::vector<double> reached = h5ReadDoubles(o.output, "/uncertainty/metric_reached");
+  const double z[] = {-1.6448536, -0.6744898, 0.0, 0.6744898, 1.6448536};
+  const double exactReached = 0.5 * std::erfc(-(bound - 10) / 2 / std::sqrt(2.0));
+  fmt::print("time to 12 degC: crossed by {:.3f} of the runs (exact {:.3f})\n", reached[col], exactReached);
+  CHECK(std::abs(reached[col] - exactReached) < 0.03);
+  CHECK(std::isnan(reached[1 - col]));
+  for (int i = 0; i < 5; ++i) {
+    const double q = quantiles[col * 5 + i], tInf = 10 + 2 * z[i];
+    // 400 Latin-hypercube samples: the sample quantile of T_inf within 3 % of its SD (the test above).
+    const double lo = timeAt(tInf - 0.06), hi = timeAt(tInf + 0.06);
+    fmt::print("  {:.0f} %: {:.2f} s (exact {:.2f} s)\n", 100 * (0.5 + 0.5 * std::erf(z[i] / std::sqrt(2.0))), q,
+               timeAt(tInf));
+    if (std::isinf(timeAt(tInf))) CHECK(std::isinf(q));
+    else CHECK((q >= lo - 0.5 && q <= hi + 0.5));  // 0.5 s: linear between 1-s outputs
+  }
+  CHECK(std::isnan(h5ReadDoubles(o.output, "/uncertainty/metric_mean")[col]));  // undefined when some never cross
+  std::rewind(report);
+  std::string text(4096, '\0');
+  text.resize(std::fread(text.data(), 1, text.size(), report));
+  std::fclose(report);
+  CHECK(text.find("never") != std::string::npos);
+  CHECK(text.find("% of the runs cross it") != std::string::npos);
+  // A selector that matches no metric is bad input, named.
+  o.metrics = {"body.no_such_metric"};
+  CHECK_THROWS_WITH(runUncertaintyCommand(o), Catch::Contains("--metric body.no_such_metric: matches no metric"));
   std::filesystem::remove_all(dir);
 }
