@@ -242,6 +242,7 @@ int runSensitivityCommand(const SensitivityOptions& o) {
     w.strings("/sensitivity/metrics", metrics);
     w.scale("/sensitivity/metrics");
     std::vector<double> a, b, c, d, e, f, variance, used;
+    std::vector<std::string> sensitivityWarnings;
     fmt::print(o.report, "Sensitivity ({}), {} runs ({} failed); parameters: {}\n", method, values.size(), failed,
                fmt::join(keys, ", "));
     if (method == "local")
@@ -253,6 +254,25 @@ int runSensitivityCommand(const SensitivityOptions& o) {
       units.push_back(h5ReadStringAttribute(runsTable, "/metrics/" + metrics[q], "units"));
       for (std::size_t r = 0; r < y.size(); ++r)
         if (status[r] != "ok") y[r] = nan;
+      // A threshold some runs never cross (NaN in a run that ran): the estimators leave out what they touch, so the
+      // indices describe only the part of the parameter space where it is crossed. Said, not hidden.
+      const bool shown = q < 12 || metrics[q].starts_with("time_to.");
+      if (method != "local" && metrics[q].starts_with("time_to.")) {
+        std::size_t never = 0, ran = 0;
+        for (std::size_t r = 0; r < y.size(); ++r)
+          if (status[r] == "ok") ++ran, never += std::isnan(y[r]) ? 1 : 0;
+        if (never > 0) {
+          const std::string text = fmt::format(
+              "{}: {} of {} runs never cross the threshold; the {} leave out every {} touching one of them, so they "
+              "describe only the part of the parameter space where it is crossed (a conditional analysis): lengthen "
+              "run.duration or choose a threshold every run reaches",
+              metrics[q], never, ran, method == "sobol" ? "Sobol' indices" : "Morris effects",
+              method == "sobol" ? "base row" : "elementary effect");
+          fmt::print(o.log, "warning: {}\n", text);
+          if (shown) fmt::print(o.report, "  warning: {}\n", text);
+          sensitivityWarnings.push_back(text);
+        }
+      }
       if (method == "sobol") {
         SobolIndices s = saltelliIndices(k, n, y, o.bootstrap, 0.95, o.seed);
         a.insert(a.end(), s.first.begin(), s.first.end());
@@ -263,9 +283,10 @@ int runSensitivityCommand(const SensitivityOptions& o) {
         f.insert(f.end(), s.totalHigh.begin(), s.totalHigh.end());
         variance.push_back(s.variance);
         used.push_back(static_cast<double>(s.used));
-        if (q < 12) {
+        if (shown) {
           fmt::print(o.report, "  {} (variance {:.4g} {}^2, {} base rows)\n", metrics[q], s.variance, units[q], s.used);
-          for (std::size_t j = 0; j < k; ++j)
+          if (!(s.variance > 0.0)) fmt::print(o.report, "    constant over the design: no indices (NaN in the file)\n");
+          else for (std::size_t j = 0; j < k; ++j)
             fmt::print(o.report, "    {:<44} S1 {:7.4f} [{:7.4f}, {:7.4f}]   ST {:7.4f} [{:7.4f}, {:7.4f}]\n", keys[j], s.first[j],
                        s.firstLow[j], s.firstHigh[j], s.total[j], s.totalLow[j], s.totalHigh[j]);
         }
@@ -278,7 +299,7 @@ int runSensitivityCommand(const SensitivityOptions& o) {
           c.push_back(me.sigma[j]);
           d.push_back(static_cast<double>(me.count[j]));
         }
-        if (q < 12) {
+        if (shown) {
           fmt::print(o.report, "  {} [{} per range]\n", metrics[q], units[q]);
           for (std::size_t j = 0; j < k; ++j)
             fmt::print(o.report, "    {:<44} mu* {:10.4g}  mu {:10.4g}  sigma {:10.4g}  ({} effects)\n", keys[j], me.muStar[j], me.mu[j],
@@ -304,7 +325,7 @@ int runSensitivityCommand(const SensitivityOptions& o) {
           c.push_back(derivative * p0);
         }
         e.push_back(y0);
-        if (q < 12) {
+        if (shown) {
           fmt::print(o.report, "  {} = {:.6g} {}\n", metrics[q], y0, units[q]);
           for (std::size_t j = 0; j < k; ++j) {
             // A compound parameter unit in parentheses: "degC/(W/(m K))", not "degC/W/(m K)" (read as degC per W,
@@ -320,6 +341,7 @@ int runSensitivityCommand(const SensitivityOptions& o) {
     }
     if (m > 12) fmt::print(o.report, "  ... {} metrics in all (see {})\n", m, output);
     w.strings("/sensitivity/units", units);
+    if (!sensitivityWarnings.empty()) w.attribute("/sensitivity", "warnings", fmt::format("{}", fmt::join(sensitivityWarnings, "; ")));
     const std::vector<std::uint64_t> shape = {m, k};
     if (method == "sobol") {
       w.doubles("/sensitivity/first", a, shape, "1");

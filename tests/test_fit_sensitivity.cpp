@@ -356,5 +356,32 @@ convection = "0.01 W/(m2 K)"
   // A selector that matches no metric is bad input, named.
   o.metrics = {"body.no_such_metric"};
   CHECK_THROWS_WITH(runUncertaintyCommand(o), Catch::Contains("--metric body.no_such_metric: matches no metric"));
+
+  // Sobol' indices of the same threshold: the estimators leave out the base rows with a run that never crossed, a
+  // conditional analysis; the report and the file say so (they did not before 2026-12-05).
+  SensitivityOptions so;
+  so.casePath = dir + "/lump.toml";
+  so.method = "sobol";
+  so.samples = 16;
+  so.params = {"environment.temperature=6 degC:14 degC"};
+  so.metrics = {"time_to:body.core_temperature<12 degC"};
+  so.jobs = 2;
+  so.quiet = true;
+  so.output = dir + "/sobol.h5";
+  std::FILE* sreport = std::tmpfile();
+  std::FILE* slog = std::tmpfile();
+  so.report = sreport;
+  so.log = slog;
+  REQUIRE(runSensitivityCommand(so) == 0);
+  const std::string attribute = h5ReadStringAttribute(so.output, "/sensitivity", "warnings");
+  CHECK(attribute.find("time_to.body.core_temperature<12degC:") != std::string::npos);
+  CHECK(attribute.find("runs never cross the threshold") != std::string::npos);
+  std::rewind(sreport);
+  std::string stext(65536, '\0');
+  stext.resize(std::fread(stext.data(), 1, stext.size(), sreport));
+  std::fclose(sreport);
+  std::fclose(slog);
+  CHECK(stext.find("warning: time_to.body.core_temperature<12degC") != std::string::npos);
+  CHECK(stext.find("  time_to.body.core_temperature<12degC (variance") != std::string::npos);  // shown, though not in the first 12
   std::filesystem::remove_all(dir);
 }
