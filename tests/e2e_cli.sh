@@ -40,10 +40,10 @@ grep -q "cannot open" "$work/err.txt" || fail "missing-file message: $(cat "$wor
 "$exe" run "$src/cases/limb_cooling.toml" --no-such-option 2> /dev/null; rc=$?
 [[ $rc -eq 2 ]] || fail "unknown option gave exit $rc"
 # The message names the subcommand and the unexpected arguments in the order given (CLI11 2.3 reversed them:
-# "24 -N" for "-N 24") and where the options are listed.
-"$exe" uncertainty "$src/cases/limb_cooling.toml" -N 24 2> "$work/err.txt"; rc=$?
-[[ $rc -eq 2 ]] || fail "uncertainty -N gave exit $rc"
-grep -q "thermorph uncertainty: unexpected arguments: -N 24 .*thermorph uncertainty --help" "$work/err.txt" ||
+# "24 --bogus" for "--bogus 24") and where the options are listed.
+"$exe" uncertainty "$src/cases/limb_cooling.toml" --bogus 24 2> "$work/err.txt"; rc=$?
+[[ $rc -eq 2 ]] || fail "uncertainty --bogus gave exit $rc"
+grep -q "thermorph uncertainty: unexpected arguments: --bogus 24 .*thermorph uncertainty --help" "$work/err.txt" ||
   fail "unexpected-argument message: $(cat "$work/err.txt")"
 
 # 3. check, steady, and the resolved case round trip.
