@@ -18,6 +18,7 @@
 #include "drivers/sampling.hpp"
 #include "drivers/sensitivity.hpp"
 #include "drivers/uncertainty.hpp"
+#include "test_lumped_sphere.hpp"
 
 using namespace thermorph;
 
@@ -282,38 +283,19 @@ convection = "0.01 W/(m2 K)"
 TEST_CASE("Uncertainty of a threshold time counts the runs that never cross it, against Newton cooling's exact "
           "quantiles",
           "[fit][sensitivity]") {
-  // The lumped sphere of the test above (Incropera eq. 5.6), 200 s: it falls below 12 degC at
+  // The lumped sphere (tests/test_lumped_sphere.hpp; Incropera eq. 5.6) for 200 s: it falls below 12 degC at
   // t = tau ln((40 - T_inf) / (12 - T_inf)) when that is at most 200 s, i.e. when T_inf <= (12 E - 40) / (E - 1),
   // E = exp(200 s / tau); otherwise never in the run. The time grows with T_inf, so its p-quantile is that of T_inf
   // mapped through it, "never" (+inf) past the crossing bound. T_inf ~ N(10, 2^2): 60.5 % of the runs cross, the
   // 5/25/50 % quantiles are 122.6/149.1/180.5 s and the 75/95 % ones never. Before 2026-12-05 the runs that never
   // crossed were left out, and the "median" was that of the crossing runs alone (about 155 s).
   const std::string dir = tempDir("uncertainty_threshold");
-  std::ofstream(dir + "/lump.toml") << R"toml(
-title = "lumped sphere"
-[run]
-duration = "200 s"
-output_interval = "1 s"
-initial_temperature = "40 degC"
-rtol = 1e-10
-atol = "1e-10 K"
-[tissues.lump]
-base = "muscle"
-conductivity = "1000 W/(m K)"
-density = "1 kg/m3"
-specific_heat = "100 J/(kg K)"
-metabolic_heat = "0 W/m3"
-perfusion = "0 1/s"
-[[segments]]
-name = "ball"
-shape = "sphere"
-layers = [{ tissue = "lump", thickness = "2 cm", cells = 1 }]
-[environment]
-temperature = "10 degC"
-convection = "0.01 W/(m2 K)"
-)toml";
+  std::ofstream(dir + "/lump.toml") << testing::lumpedSphere;
+  const std::vector<std::string> run200 = {"run.duration=200 s", "run.output_interval=1 s", "run.rtol=1e-10",
+                                           "run.atol=1e-10 K"};
   UncertaintyOptions o;
   o.casePath = dir + "/lump.toml";
+  o.overrides = run200;
   o.params = {"environment.temperature[degC]=normal:10:2"};
   o.metrics = {"time_to:body.core_temperature<12 degC", "body.core_temperature.final"};
   o.samples = 400;
@@ -361,6 +343,7 @@ convection = "0.01 W/(m2 K)"
   // conditional analysis; the report and the file say so (they did not before 2026-12-05).
   SensitivityOptions so;
   so.casePath = dir + "/lump.toml";
+  so.overrides = run200;
   so.method = "sobol";
   so.samples = 16;
   so.params = {"environment.temperature=6 degC:14 degC"};
