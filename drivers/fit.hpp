@@ -32,11 +32,13 @@ std::string parameterOverride(const FitParameter& p, double value);
 //! value) with the optional `--start KEY=VALUE` and `--prior KEY=MEAN:SD` lists. Checks the key (schema,
 //! numeric, segment names), the bounds (loaded by the case loader) and that the start lies within them. Throws
 //! CaseError (exit 2). With `boundsOptional`, a bare KEY is an unbounded parameter at the case's value. `option`
-//! names the command line's option in messages (sensitivity and uncertainty: --param).
+//! names the command line's option in messages (sensitivity and uncertainty: --param). `steady`: the runs solve
+//! steady states (sensitivity --steady), so the [run] keys of the integration over time are refused too.
 std::vector<FitParameter> parseFitParameters(const std::vector<std::string>& free, const std::vector<std::string>& starts,
                                              const std::vector<std::string>& priors, const std::string& caseText,
                                              const std::string& casePath, const std::vector<std::string>& overrides,
-                                             bool boundsOptional = false, const std::string& option = "--free");
+                                             bool boundsOptional = false, const std::string& option = "--free",
+                                             bool steady = false);
 
 //! Everything a fit needs.
 struct FitProblem {

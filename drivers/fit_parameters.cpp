@@ -73,7 +73,7 @@ std::string parameterOverride(const FitParameter& p, double value) {
 std::vector<FitParameter> parseFitParameters(const std::vector<std::string>& free, const std::vector<std::string>& starts,
                                              const std::vector<std::string>& priors, const std::string& caseText,
                                              const std::string& casePath, const std::vector<std::string>& overrides,
-                                             bool boundsOptional, const std::string& option) {
+                                             bool boundsOptional, const std::string& option, bool steady) {
   const Case base = loadCaseFromString(caseText, casePath, overrides);
   if (free.empty()) throw CaseError("fit: no free parameter; give at least one --free KEY=LOWER:UPPER");
   std::map<std::string, std::string> startOf, priorOf;
@@ -203,14 +203,14 @@ std::vector<FitParameter> parseFitParameters(const std::vector<std::string>& fre
       o.push_back(parameterOverride(p, v));
       try {
         const Case c = loadCaseFromString(caseText, casePath, o);
-        if (auto why = InertKeys(c).reason(key)) inert = why;
+        if (auto why = InertKeys(c, steady).reason(key)) inert = why;
         else acts = true;
       } catch (const CaseError& e) {
         throw CaseError(fmt::format("{}: the case loader refuses {}: {}", what, parameterOverride(p, v), e.what()));
       }
     }
     if (!acts) {
-      if (!inert) inert = InertKeys(base).reason(key);
+      if (!inert) inert = InertKeys(base, steady).reason(key);
       if (inert)
         throw CaseError(fmt::format("{}: {}: the key has no effect in this case, so the results cannot depend on it: {}",
                                     casePath, what, *inert));

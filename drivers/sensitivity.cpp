@@ -74,8 +74,11 @@ int runSensitivityCommand(const SensitivityOptions& o) {
     for (const std::string& p : o.params)
       if (p.find('=') == std::string::npos)
         throw CaseError(fmt::format("--param {}: {} needs bounds, KEY=LOWER:UPPER[:log]", p, method));
+  // Steady runs (--steady, or the case's sweep.mode = "steady", which the sweep engine follows): the [run] keys of
+  // the integration over time are refused as parameters here, naming --param (the sweep engine would name --vary).
+  const bool steady = o.steady || loadCaseFromString(caseText, o.casePath, o.overrides).sweep.steady;
   std::vector<FitParameter> params =
-      parseFitParameters(o.params, {}, {}, caseText, o.casePath, o.overrides, method == "local", "--param");
+      parseFitParameters(o.params, {}, {}, caseText, o.casePath, o.overrides, method == "local", "--param", steady);
   const std::size_t k = params.size();
   if (method != "local")
     for (const FitParameter& p : params)

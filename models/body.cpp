@@ -400,7 +400,9 @@ void Body::buildLocalControllers() {
         if (hasShunts(g)) localShuntControl_[g] = shunt;
       }
     }
-    if (!l.civd) continue;
+    // No states for a CIVD of opening 0: it adds no shunt flow at any temperature (its keys then have no effect,
+    // models/inert_keys.cpp, and the automatic grid leaves it out, models/grid.cpp).
+    if (!civdActs(l)) continue;
     // Cold-induced vasodilation (Lewis 1930): c* = clamp((threshold - T_skin) / width, 0, 1) of the segment's own
     // skin, followed through a chain of `stages` first-order lags of time_constant / stages each (a gamma-distributed
     // delay of mean time_constant: the linear chain trick, MacDonald 1978); always on (not switched by the
@@ -763,8 +765,10 @@ void Body::addPerfusionModulators(Circulation& c) {
   // the shunt opening; skin layers and shunts follow the vasomotor controllers when there are any.
   for (Index g = 0; g < c.n; ++g) {
     const SegmentSpec& s = case_.segments[g];
-    // A superficial return exists when the case or an event gives this segment one.
-    bool superficialPossible = s.vasomotor.superficialReturn > 0.0;
+    // A superficial return exists when the case or an event gives this segment one (the case's value only when no
+    // event sets it by a step at t = 0: it then never acts).
+    bool superficialPossible = s.vasomotor.superficialReturn > 0.0 &&
+                               !vasomotorSetAtStart(case_, s.name, &VasomotorTarget::superficialReturn).first;
     for (const EventSpec& e : case_.events)
       for (const VasomotorTarget& v : e.vasomotor)
         if (targetsSegment(v.segment, s.name) && v.superficialReturn && *v.superficialReturn > 0.0)

@@ -1116,6 +1116,15 @@ bool bodyWideShuntsAct(const Case& c) {
   return false;
 }
 
+std::pair<const EventSpec*, const VasomotorTarget*> vasomotorSetAtStart(const Case& c, const std::string& segment,
+                                                                        std::optional<double> VasomotorTarget::*key) {
+  for (const EventSpec& e : c.events)
+    if (e.at == 0.0 && e.ramp == 0.0)
+      for (const VasomotorTarget& v : e.vasomotor)
+        if ((v.*key).has_value() && targetsSegment(v.segment, segment)) return {&e, &v};
+  return {nullptr, nullptr};
+}
+
 std::string resolvedCaseToml(const Case& c) {
   toml::table root;
   root.insert("title", c.title);

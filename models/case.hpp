@@ -5,6 +5,7 @@
 #include <optional>
 #include <stdexcept>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "models/environment_spec.hpp"
@@ -270,6 +271,17 @@ bool bodyWideVasomotorActs(const Case& c);
 //! its shunt opening drives nothing: Body builds no state for it (whose shunt_gain would otherwise move the
 //! integrator's steps) and control.vasomotor.shunt_gain warns (models/inert_keys.hpp).
 bool bodyWideShuntsAct(const Case& c);
+
+//! The local controller has a CIVD that can act: civd.opening > 0. With opening 0 it adds no shunt flow at any
+//! temperature: Body builds no states for it (which would otherwise move the integrator's steps), the automatic grid
+//! does not refine for it, and its keys warn (models/inert_keys.hpp).
+inline bool civdActs(const LocalControllerSpec& l) { return l.civd && l.civd->opening > 0.0; }
+//! The [[events]] entry and its target that set segment `segment`'s vasomotor value `key` (shunt,
+//! superficial_return, ...) by a step at t = 0 s (at = 0, ramp = 0; a ramp starts from the value before it), or
+//! {nullptr, nullptr}: the segment's own value then never acts, neither in the physiology's schedules nor (for
+//! superficial_return) in which terms Body builds (models/inert_keys.hpp).
+std::pair<const EventSpec*, const VasomotorTarget*> vasomotorSetAtStart(const Case& c, const std::string& segment,
+                                                                        std::optional<double> VasomotorTarget::*key);
 
 //! Markdown reference of every case key (generated from the schema).
 std::string caseReferenceMarkdown();

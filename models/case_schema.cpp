@@ -400,7 +400,8 @@ constexpr std::array params = {
     Param{"control.local.*.civd.width", K::Quantity, "K", "2 K", 0, 100, true, "",
           "Fully open this far below the threshold (a temperature difference: give it in K)."},
     Param{"control.local.*.civd.opening", K::Number, "", "1", 0, 10, false, "",
-          "Extra shunt flow at full opening, times vessels.shunt_flow_max."},
+          "Extra shunt flow at full opening, times vessels.shunt_flow_max. 0: no CIVD (no states are built; the "
+          "table warns that it has no effect)."},
     Param{"control.local.*.civd.time_constant", K::Quantity, "s", "5 min", 0, 1e6, true, "",
           "Mean delay of the opening behind its target: one first-order lag of this time constant, or, with stages "
           "= N, a chain of N lags of time_constant / N each (a gamma-distributed delay, the linear chain trick, "

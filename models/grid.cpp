@@ -544,7 +544,7 @@ void storageRule(const Case& c, const std::vector<std::vector<Layer>>& layers, s
           outputs.push_back({l.gain, l.upper - l.lower, scope});
           if (c.segments[g].vessels.shuntFlowMax > 0.0) outputs.push_back({l.shuntGain, 1.0, scope});
         }
-        if (l.civd) outputs.push_back({1.0 / l.civd->width, 1.0, {g}});  // always on; its own skin
+        if (civdActs(l)) outputs.push_back({1.0 / l.civd->width, 1.0, {g}});  // always on; its own skin
       }
   }
   const double limit = std::max(kGridWarnError, c.run.gridTolerance);

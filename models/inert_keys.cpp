@@ -163,6 +163,20 @@ void InertKeys::environment() {
   if (spec.everAir() && !inFluid[WaterInAir]) add("environment.immersion_water", noWaterInAir);
   if (!used[index(V::SubstrateTemperature)])
     add("environment.substrate_conductance", *variables_[index(V::SubstrateTemperature)]);
+  // An immersion that puts the segment where "body" would throughout: "never" (in air) while the medium is air for
+  // the whole run, "always" (in water) while it is water (EnvironmentModel::inWater; the recorded environment series
+  // and the static-contact note ask for the other fluid only when the medium ever is it).
+  for (const SegmentSpec& s : c.segments) {
+    if (s.surface.immersion == Immersion::Body) continue;
+    const bool never = s.surface.immersion == Immersion::Never;
+    if (std::all_of(media.begin(), media.end(), [&](SurroundingMedium m) {
+          return EnvironmentModel::inWater(s.surface.immersion, m) == EnvironmentModel::inWater(Immersion::Body, m);
+        }))
+      add("segments." + s.name + ".surface.immersion",
+          fmt::format("the medium is {} for the whole run (no [[events]] entry changes it), so segment {} is in {} "
+                      "with immersion \"{}\" as with the default \"body\"",
+                      never ? "air" : "water", s.name, never ? "air" : "water", never ? "never" : "always"));
+  }
   if (n > 0 && std::all_of(c.segments.begin(), c.segments.end(), [](const SegmentSpec& s) { return s.surface.convection.has_value(); }))
     add("environment.convection", "every segment gives its own surface.convection");
 
@@ -259,6 +273,12 @@ void InertKeys::controllers() {
   // segments alone; CIVD is never switched).
   for (const LocalControllerSpec& l : k.local) {
     const std::string table = "control.local." + l.name;
+    // CIVD of opening 0: no extra shunt flow at any temperature, and no states (Body::buildLocalControllers), so
+    // none of its keys acts. (Its `opening` is among them: a sweep or fit that varies it acts at its other values.)
+    if (l.civd && !civdActs(l))
+      add(table + ".civd", fmt::format("{}.civd.opening = 0: cold-induced vasodilation adds no shunt flow at any "
+                                       "temperature, so [{}.civd] does nothing (give opening > 0, or remove the "
+                                       "table)", table, table));
     if (offThroughout(l.name, l.enabled)) {
       off(l.name, table, {"signal", "set_point", "gain", "min", "max", "shunt_gain", "time_constant"});
       continue;
@@ -334,6 +354,21 @@ void InertKeys::vasomotor() {
                                 "controller off: then the shunts open to this value)", s.name, *controller);
     }
     if (!noShunts[g].empty()) add("segments." + s.name + ".vasomotor.shunt", noShunts[g]);
+    // The segment's value set over by an [[events]] step at t = 0 never acts (PhysiologyModel::setInterval; Body
+    // builds the superficial-return terms from the events' values then).
+    for (auto key : {&VasomotorTarget::shunt, &VasomotorTarget::superficialReturn}) {
+      const auto [event, target] = vasomotorSetAtStart(c, s.name, key);
+      if (!event) continue;
+      const char* name = key == &VasomotorTarget::shunt ? "shunt" : "superficial_return";
+      const std::string eventKey = event->source + ".vasomotor." + target->segment + "." + name;
+      const auto at = c.given.find(eventKey);
+      add("segments." + s.name + ".vasomotor." + name,
+          fmt::format("{} ({}) sets it from t = 0 s (a step at at = 0 s), so the segment's own value never acts "
+                      "(give the value in that entry, or remove it there)",
+                      eventKey, at != c.given.end() && at->second.line > 0
+                                    ? fmt::format("{}:{}:{}", c.sourceFile, at->second.line, at->second.column)
+                                    : event->where));
+    }
     // Superficial return routes a share of the tissue's venous return (Body::planCellFlows): none without perfusion.
     // (Without a countercurrent exchanger it still acts: the superficial veins hold blood and exchange heat with the
     // skin.)
@@ -350,7 +385,9 @@ void InertKeys::vasomotor() {
   std::vector<bool> superficialFlow(n, false);
   for (std::size_t g = 0; g < n; ++g) {
     const SegmentSpec& s = c.segments[g];
-    bool flows = s.vessels.shuntFlowMax > 0.0 || (noPerfusion[g].empty() && s.vasomotor.superficialReturn > 0.0);
+    bool flows = s.vessels.shuntFlowMax > 0.0 ||
+                 (noPerfusion[g].empty() && s.vasomotor.superficialReturn > 0.0 &&
+                  !vasomotorSetAtStart(c, s.name, &VasomotorTarget::superficialReturn).first);
     for (const EventSpec& e : c.events)
       for (const VasomotorTarget& v : e.vasomotor)
         if (targetsSegment(v.segment, s.name) && v.superficialReturn && *v.superficialReturn > 0.0)

@@ -192,6 +192,18 @@ expect2 "--vary control.shivering.max_power: the key has no effect in this case"
   sweep third.toml --vary "control.shivering.max_power=5 W,50 W" -o out.csv -q
 expect2 "--vary run.rtol: the key has no effect in this case" \
   sweep third.toml --steady --vary "run.rtol=1e-4,1e-8" -o out.csv -q
+# The same refusal names the option given: sensitivity --param with --steady (local and morris), and a case whose
+# sweep.mode is steady; without --steady the same parameter runs.
+expect2 "third.toml: --param run.rtol: the key has no effect in this case, so the results cannot depend on it: the sweep solves each run's steady state" \
+  sensitivity third.toml --steady --method local --param run.rtol -o out.h5 -q
+expect2 "--param run.atol=1e-7 K:1e-5 K: the key has no effect in this case" \
+  sensitivity third.toml --steady --method morris --param "run.atol=1e-7 K:1e-5 K" -N 2 -o out.h5 -q
+printf '[sweep]\nmode = "steady"\n' | cat third.toml - > third-steady.toml
+"$exe" sensitivity third-steady.toml --method local --param run.atol -o out.h5 -q > out.txt 2> err.txt; rc=$?
+[[ $rc == 2 ]] && grep -q -- "--param run.atol: the key has no effect" err.txt || fail "sweep.mode = steady: exit $rc: $(cat err.txt)"
+rm -f out.h5
+"$exe" sensitivity third.toml --method local --param run.rtol -o rtol-local.h5 -q > /dev/null 2> rtol-local.err ||
+  fail "transient local sensitivity of run.rtol: exit $?: $(cat rtol-local.err)"
 # The same keys where they act: a transient sweep of run.rtol, and the shivering's power with a gain.
 "$exe" sweep third.toml --vary "run.rtol=1e-3,1e-8" -o rtol.csv -q > /dev/null 2> rtol.err || fail "transient rtol sweep: exit $?: $(cat rtol.err)"
 "$exe" sweep third.toml --set 'control.shivering.gain="0.5 1/K"' --vary "control.shivering.max_power=5 W,50 W" -o power.csv -q \
@@ -205,5 +217,57 @@ def rows(name):
 for name in ("rtol.csv", "power.csv"):
     a, b = rows(name)
     assert a != b, name + ": the two runs agree"
+PY
+# 7. Fourth round: a CIVD of opening 0, and a segment's superficial return set by an [[events]] step at t = 0 s:
+#    warned at their line and column (the event's too), refused as sweep parameters; the results file equal, dataset
+#    by dataset, to the case without them.
+cp bare.toml fourth.toml
+sed -i 's/^layers = \[{ tissue = "muscle", thickness = "5 cm", cells = 4 }, { tissue = "skin", thickness = "0.3 cm", cells = 1 }\]$/&\nvessels = { shunt_flow_max = "20 mL\/min" }/' fourth.toml
+cat >> fourth.toml <<'TOML'
+[control.local.trunk]
+segments = "trunk"
+shunt_gain = "-0.5 1/K"
+TOML
+cp fourth.toml fourth-without.toml
+cat >> fourth.toml <<'TOML'
+civd = { threshold = "36 degC", width = "1 K", opening = 0 }
+TOML
+printf '[[events]]\nat = "0 s"\nvasomotor = { trunk = { superficial_return = 0 } }\n' | tee -a fourth-without.toml >> fourth.toml
+sed -i 's/^vessels = { shunt_flow_max = "20 mL\/min" }$/&\nvasomotor = { superficial_return = 0.4 }/' fourth.toml
+grep -q 'superficial_return = 0.4' fourth.toml && grep -q 'shunt_flow_max' fourth-without.toml || fail "test set-up (fourth)"
+"$exe" run fourth.toml -q -o fourth.h5 > /dev/null 2> fourth.err || fail "run fourth exit $?: $(cat fourth.err)"
+at4() { local n; n=$(grep -n -- "$1" fourth.toml | head -1 | cut -d: -f1); echo "fourth.toml:$n:$(awk -v n="$n" -v v="$2" 'NR == n { print index($0, v) }' fourth.toml)"; }
+grep -q "^warning: $(at4 'civd = {' '0 }'): \[control.local.trunk.civd\] has no effect: control.local.trunk.civd.opening = 0" fourth.err ||
+  fail "no CIVD warning: $(cat fourth.err)"
+grep -q "^warning: $(at4 'superficial_return = 0.4' 0.4): segments.trunk.vasomotor.superficial_return has no effect: events.0.vasomotor.trunk.superficial_return ($(at4 'trunk = { superficial_return = 0 }' '0 }')) sets it from t = 0 s" fourth.err ||
+  fail "no superficial_return warning: $(cat fourth.err)"
+[[ $(grep -c 'has no effect' fourth.err) == 2 ]] || fail "run fourth: expected 2 warnings: $(cat fourth.err)"
+"$exe" run fourth-without.toml -q -o fourth-without.h5 > /dev/null 2> fourth-without.err || fail "run fourth-without exit $?"
+grep -q 'has no effect' fourth-without.err && fail "the case without the keys warns: $(cat fourth-without.err)"
+"$python" - fourth.h5 fourth-without.h5 <<'PY' || fail "the keys with no effect moved the results"
+import sys, h5py, numpy as np
+def datasets(path):
+    out = {}
+    with h5py.File(path) as f:
+        f.visititems(lambda n, o: out.__setitem__(n, o[()]) if isinstance(o, h5py.Dataset) and n.split("/")[0] in ("body", "segments", "control") else None)
+    return out
+a, b = datasets(sys.argv[1]), datasets(sys.argv[2])
+assert a.keys() == b.keys(), sorted(set(a) ^ set(b))
+assert len(a) > 20
+for k in a:
+    assert a[k].tobytes() == b[k].tobytes(), k
+PY
+expect2 "--vary control.local.trunk.civd.threshold: the key has no effect in this case" \
+  sweep fourth.toml --vary "control.local.trunk.civd.threshold=30 degC,36 degC" -o out.csv -q
+expect2 "--vary segments.trunk.vasomotor.superficial_return: the key has no effect in this case" \
+  sweep fourth.toml --vary "segments.trunk.vasomotor.superficial_return=0.1,0.9" -o out.csv -q
+# Where they act: the CIVD's opening as the axis (its value 0 has no effect, 0.5 acts).
+"$exe" sweep fourth.toml --vary "control.local.trunk.civd.opening=0,0.5" -o civd.csv -q > /dev/null 2> civd.err ||
+  fail "sweep of the CIVD opening: exit $?: $(cat civd.err)"
+"$python" - <<'PY' || fail "the CIVD opening does not act"
+import csv
+with open("civd.csv") as f:
+    a, b = [[v for k, v in r.items() if "temperature" in k] for r in csv.DictReader(f)]
+assert a != b
 PY
 echo "e2e_inert: ok"

@@ -640,3 +640,118 @@ TEST_CASE("Integration keys of [run] have no effect on a steady state: refused i
   CHECK(steady({}) != steady({"environment.temperature=\"12 degC\""}));  // the comparison can fail
   CHECK(finalTemperatures(text) != finalTemperatures(text, {"run.rtol=1e-3"}));  // a transient run uses them
 }
+
+TEST_CASE("A CIVD of opening 0 warns, builds no states and changes nothing; with an opening it acts",
+          "[case][inert][control]") {
+  // The swimmer's trunk with shunts under a local controller whose CIVD would open below a skin of 36 degC (the skin
+  // in 10 degC water is far below it; values illustrative). With opening = 0 the extra shunt flow is 0 at every
+  // temperature: the [control.local.trunk.civd] table must leave every temperature as without it, bit for bit.
+  const std::string without = swimmer("", "vessels = { shunt_flow_max = \"20 mL/min\" }",
+                                      "[control.local.trunk]\nsegments = \"trunk\"\nshunt_gain = \"-0.5 1/K\"\n");
+  const std::string text =
+      without + "civd = { threshold = \"36 degC\", width = \"1 K\", opening = 0, time_constant = \"1 min\" }\n";
+  const Case c = loadCaseFromString(text, "inert.toml");
+  const std::vector<std::string> w = inertWarnings(c);
+  // One warning for the table, at its first given key in key order (opening).
+  CHECK(mentions(w, positionOf(text, "civd = {", "0,") +
+                        ": [control.local.trunk.civd] has no effect: control.local.trunk.civd.opening = 0: "
+                        "cold-induced vasodilation adds no shunt flow at any temperature"));
+  CHECK(w.size() == 1);
+  for (const char* key : {"control.local.trunk.civd.threshold", "control.local.trunk.civd.width",
+                          "control.local.trunk.civd.time_constant", "control.local.trunk.civd.stages"})
+    CHECK(InertKeys(c).reason(key));
+  CHECK_FALSE(InertKeys(c).reason("control.local.trunk.shunt_gain"));
+  const Body body(c);
+  for (const Controller& k : body.network().controllers) CHECK(k.name.find("civd") == std::string::npos);
+  const std::vector<double> base = finalTemperatures(text);
+  CHECK(base == finalTemperatures(without));  // the table removed
+  CHECK(base == finalTemperatures(text, {"control.local.trunk.civd.threshold=\"20 degC\"",
+                                         "control.local.trunk.civd.width=\"3 K\"",
+                                         "control.local.trunk.civd.time_constant=\"10 s\"",
+                                         "control.local.trunk.civd.stages=3"}));
+  SECTION("with an opening the CIVD acts and does not warn") {
+    const std::vector<std::string> open{"control.local.trunk.civd.opening=0.5"};
+    const Case acting = loadCaseFromString(text, "inert.toml", open);
+    CHECK(inertWarnings(acting).empty());
+    CHECK_FALSE(InertKeys(acting).reason("control.local.trunk.civd.threshold"));
+    const std::vector<double> opened = finalTemperatures(text, open);
+    CHECK(opened != base);
+    std::vector<std::string> lower = open;
+    lower.push_back("control.local.trunk.civd.threshold=\"20 degC\"");
+    CHECK(opened != finalTemperatures(text, lower));
+  }
+}
+
+TEST_CASE("A segment's shunt and superficial return set by an [[events]] step at t = 0 warn; later, they act",
+          "[case][inert]") {
+  // The swimmer's trunk (perfused muscle and skin) with shunts; an event at t = 0 s sets both values as a step, so
+  // the segment's own values never act (PhysiologyModel::setInterval), not even in which terms Body builds: here the
+  // event closes the superficial return the segment opens. Values illustrative.
+  const std::string trunk = "vessels = { shunt_flow_max = \"20 mL/min\" }\n";
+  const std::string event = "[[events]]\nat = \"0 s\"\nvasomotor = { trunk = { superficial_return = 0, shunt = 0.6 } }\n";
+  const std::string without = swimmer("", trunk, event);
+  const std::string text = swimmer("", trunk + "vasomotor = { superficial_return = 0.5, shunt = 0.2 }", event);
+  const std::vector<std::string> w = inertWarnings(loadCaseFromString(text, "inert.toml"));
+  for (const char* key : {"superficial_return", "shunt"}) {
+    INFO(key);
+    CHECK(mentions(w, positionOf(text, "vasomotor = { superficial_return = 0.5", key == std::string("shunt") ? "0.2" : "0.5") +
+                          ": segments.trunk.vasomotor." + key + " has no effect: events.0.vasomotor.trunk." + key + " (" +
+                          positionOf(text, "trunk = { superficial_return = 0,", key == std::string("shunt") ? "0.6" : "0,") +
+                          ") sets it from t = 0 s"));
+  }
+  CHECK(w.size() == 2);
+  const std::vector<double> base = finalTemperatures(text);
+  CHECK(base == finalTemperatures(without));  // the segment's values removed
+  CHECK(base == finalTemperatures(text, {"segments.trunk.vasomotor.superficial_return=0.9",
+                                         "segments.trunk.vasomotor.shunt=1"}));
+  CHECK(InertKeys(loadCaseFromString(text, "inert.toml")).reason("segments.trunk.vasomotor.superficial_return"));
+  SECTION("\"all\" at t = 0 s: the same") {
+    std::string all = text;
+    all.replace(all.find("{ trunk = {"), 11, "{ all = {");
+    const std::vector<std::string> w2 = inertWarnings(loadCaseFromString(all, "inert.toml"));
+    CHECK(mentions(w2, ": segments.trunk.vasomotor.superficial_return has no effect: events.0.vasomotor.all.superficial_return"));
+    CHECK(w2.size() == 2);
+  }
+  SECTION("an event later, or ramped from t = 0 s, lets the segment's values act, and does not warn") {
+    for (const char* o : {"events.0.at=\"1 min\"", "events.0.ramp=\"2 min\""}) {
+      INFO(o);
+      CHECK(inertWarnings(loadCaseFromString(text, "inert.toml", {o})).empty());
+      const std::vector<double> later = finalTemperatures(text, {o});
+      CHECK(later != finalTemperatures(text, {o, "segments.trunk.vasomotor.superficial_return=0.9"}));
+      CHECK(later != finalTemperatures(text, {o, "segments.trunk.vasomotor.shunt=1"}));
+    }
+  }
+}
+
+TEST_CASE("An immersion that places a segment as \"body\" would for the whole run warns; where the fluids differ it acts",
+          "[case][inert]") {
+  // The swimmer is in water throughout: "always" puts the trunk in water, as the default "body" does. In air, the
+  // same value puts it in water (values illustrative).
+  const std::string without = swimmer("air_temperature = \"25 degC\"");
+  const std::string text = swimmer("air_temperature = \"25 degC\"", "surface = { immersion = \"always\" }");
+  const std::vector<std::string> w = inertWarnings(loadCaseFromString(text, "inert.toml"));
+  CHECK(mentions(w, positionOf(text, "immersion", "\"always\"") +
+                        ": segments.trunk.surface.immersion has no effect: the medium is water for the whole run"));
+  // (air_temperature warns as before: every segment is in water)
+  CHECK(w.size() == 2);
+  CHECK(finalTemperatures(text) == finalTemperatures(without));
+  SECTION("\"never\" in air throughout: the same") {
+    std::string air = swimmer("", "surface = { immersion = \"never\" }"), airWithout = swimmer("");
+    air.replace(air.find("medium = \"water\""), 16, "medium = \"air\"");
+    airWithout.replace(airWithout.find("medium = \"water\""), 16, "medium = \"air\"");
+    CHECK(mentions(inertWarnings(loadCaseFromString(air, "inert.toml")),
+                   ": segments.trunk.surface.immersion has no effect: the medium is air for the whole run"));
+    CHECK(finalTemperatures(air) == finalTemperatures(airWithout));
+  }
+  SECTION("with the medium changed by an event, or the other value, it acts and does not warn") {
+    for (const std::string& extra : {std::string("[[events]]\nat = \"5 min\"\nenvironment = { medium = \"air\", "
+                                                 "temperature = \"20 degC\", speed = \"1 m/s\" }\n"),
+                                     std::string()}) {
+      const std::string changing = text + extra;
+      const std::string other = extra.empty() ? std::string("segments.trunk.surface.immersion=\"never\"")
+                                              : std::string("segments.trunk.surface.immersion=\"body\"");
+      if (!extra.empty()) CHECK_FALSE(mentions(inertWarnings(loadCaseFromString(changing, "inert.toml")), "immersion"));
+      CHECK(finalTemperatures(changing) != finalTemperatures(changing, {other}));
+    }
+  }
+}
