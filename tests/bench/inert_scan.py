@@ -17,6 +17,7 @@ own settings before they are reported). Exit code 1 when there is a finding.
 import argparse
 import os
 import re
+import shutil
 import subprocess
 import sys
 import tempfile
@@ -99,10 +100,17 @@ def variants(lines):
 
 
 def scan(exe, path, sets, verify_sets):
+    folder = tempfile.mkdtemp(prefix="inert_scan_")
+    try:
+        return scan_in(exe, path, sets, verify_sets, folder)
+    finally:
+        shutil.rmtree(folder, ignore_errors=True)
+
+
+def scan_in(exe, path, sets, verify_sets, folder):
     name = os.path.basename(path)
     with open(path) as f:
         lines = f.readlines()
-    folder = tempfile.mkdtemp(prefix="inert_scan_")
     # Other files the case names (weather, tissues) are read relative to the case: link the case's folder's files.
     for entry in os.listdir(os.path.dirname(os.path.abspath(path))):
         src = os.path.join(os.path.dirname(os.path.abspath(path)), entry)
