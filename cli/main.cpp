@@ -86,6 +86,11 @@ void describe(const Body& body) {
   for (const Controller& k : body.network().controllers)
     controllers += fmt::format("{}{} (set point {:.4g} degC, lag {:g} s)", controllers.empty() ? "" : ", ", k.name,
                                k.setpoint - 273.15, k.timeConstant);
+  for (const Body::Tucking& t : body.tucking())
+    fmt::print("Tucking: {} into {}, tucked fraction {:g} at t = 0 (largest {:g}); the whole tucked path conducts "
+               "{:.4g} W/K per copy at fraction 1 (channel \"tucking\")\n",
+               body.segments()[t.guest].name, body.segments()[t.host].name,
+               body.environment().tuckedFraction(t.guest), body.environment().maxTuckedFraction(t.guest), t.conductance);
   fmt::print("Respiration: {}. Controllers: {}. Events: {}.\n",
              c.body.respiratorySegment.empty() ? "off (no [body] respiratory_segment)" : "from " + c.body.respiratorySegment,
              controllers.empty() ? "none" : controllers, c.events.size());

@@ -165,7 +165,7 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
   last_ = t;
   system_.modulatorValues(t, y, modulators_);
   std::vector<char> internal(channels, 0);
-  for (Index ch = 0; ch < channels; ++ch) internal[ch] = net.channels[ch] == "blood" || net.channels[ch] == "conduction";
+  for (Index ch = 0; ch < channels; ++ch) internal[ch] = net.channels[ch] == "blood" || net.channels[ch] == "conduction" || net.channels[ch] == "tucking";
   // Heat each group (one copy) has lost to its surroundings since the start, for the storage term (trapezoidal
   // over the outputs; the first observation after the start: rectangle).
   exchanged_.resize(groups, 0.0);

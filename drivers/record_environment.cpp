@@ -57,6 +57,15 @@ EnvironmentRecorder::EnvironmentRecorder(ResultsFile& f, const Body& body) : bod
                    "fluid around the segment: the medium (changed by events) unless surface.immersion is always "
                    "(water) or never (air); the value of the interval that follows an output at a step");
   }
+  // Tucked segments only (a file of a case without tucking is unchanged).
+  for (const Body::Tucking& t : body.tucking()) {
+    const std::string path = "/segments/" + body.segments()[t.guest].name + "/tucked_fraction";
+    tucked_.emplace_back(t.guest, f.createSeries(path, {}, "1", "share of the lateral surface tucked into " +
+                                                                    body.segments()[t.host].name));
+    f.setAttribute(path, "definition",
+                   "surface.tucked_fraction, stepped by [[events]] surface entries; the value of the interval that "
+                   "follows an output at a step");
+  }
 }
 
 void EnvironmentRecorder::write(ResultsFile& f, double t, std::span<const double> controls,
@@ -72,6 +81,10 @@ void EnvironmentRecorder::write(ResultsFile& f, double t, std::span<const double
     const double wet = body_.environment().immersed(g, t) ? 1.0 : 0.0;
     f.append(contact_[g], {&contact, 1});
     f.append(inWater_[g], {&wet, 1});
+  }
+  for (auto [g, series] : tucked_) {
+    const double tucked = body_.environment().tuckedFraction(g);
+    f.append(series, {&tucked, 1});
   }
 }
 

@@ -4,6 +4,7 @@
 //! figures).
 #include <cstddef>
 #include <span>
+#include <utility>
 #include <vector>
 
 #include "drivers/results.hpp"
@@ -13,7 +14,7 @@ namespace thermorph {
 
 class EnvironmentRecorder {
  public:
-  //! Creates /environment/*, /control/*, /segments/*/convection_coefficient, contact_fraction, in_water and
+  //! Creates /environment/*, /control/*, /segments/*/convection_coefficient, contact_fraction, in_water (tucked_fraction of tucked segments) and
   //! writes /events.
   EnvironmentRecorder(ResultsFile& f, const Body& body);
   //! Appends time t; `controls` from the summary, `faceTemperatures` [K] from the budget.
@@ -22,6 +23,7 @@ class EnvironmentRecorder {
  private:
   const Body& body_;
   std::vector<std::size_t> environment_, control_, convection_, contact_, inWater_;
+  std::vector<std::pair<Index, std::size_t>> tucked_;  //!< (tucked segment, its /segments/NAME/tucked_fraction)
   std::vector<double> values_;
 };
 

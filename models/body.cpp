@@ -169,6 +169,14 @@ Body::Body(const Case& c) : case_(c) {
     for (auto [iz, w] : footprintShares(s, ps)) coveredArea_[p][static_cast<std::size_t>(iz)] += s.count * section * w;
   }
   cellPerfusion_.resize(case_.segments.size());
+  // Tucking: the segments whose lateral cells addLateralFace describes for addTucking (tucked ones and their hosts).
+  tuckSides_.resize(case_.segments.size());
+  tuckInvolved_.assign(case_.segments.size(), 0);
+  for (Index g = 0; g < case_.segments.size(); ++g)
+    if (environment_->maxTuckedFraction(g) > 0.0) {
+      tuckInvolved_[g] = 1;
+      tuckInvolved_[index.at(case_.segments[g].surface.tuckedInto)] = 1;
+    }
   for (Index g = 0; g < case_.segments.size(); ++g) {
     network_.groups.push_back(case_.segments[g].name);
     network_.groupWeights.push_back(weight[g]);
@@ -178,6 +186,7 @@ Body::Body(const Case& c) : case_(c) {
   for (Index g = 0; g < meshes_.size(); ++g) bodyMass_ += meshes_[g].weight * meshes_[g].tissueMass;
   if (case_.body.mass) bodyMass_ = *case_.body.mass;
   attachChildren();
+  addTucking();
   scaleMetabolism();
   // Respiration when a respiratory segment is named; it pauses while that segment is in water (checked at each
   // time by the physiology model).
@@ -249,13 +258,56 @@ void Body::setInterval(std::size_t interval) const {
   for (const CoatSwitch& c : coatSwitches_) {
     double value = environment_->immersed(c.segment, 0.0) ? c.wet : c.dry;
     const double f = environment_->contactFraction(c.segment), fMax = environment_->maxContactFraction(c.segment);
-    if (c.part == ContactPart::Rings) value *= (1.0 - f) / (1.0 - fMax);
+    // (The rings away from the substrate and the host: 1 - f_c - f_t of the coat, built for the largest such share.)
+    if (c.part == ContactPart::Rings)
+      value *= (1.0 - f - environment_->tuckedFraction(c.segment)) / (1.0 - environment_->maxCoveredFraction(c.segment));
     // A column without contact keeps its conductance: its face then has no area and exchanges nothing, and a zero
     // conductance would leave the face's temperature undetermined (NetworkSystem::solveFace divides by G - q').
     if (c.part == ContactPart::Column && f > 0.0) value *= f / fMax;
     if (c.face) network_.faces[c.index].halfConductance = value;
     else network_.conductances[c.index].conductance = value;
   }
+  // Tucking: the interval's tucked fraction times the path's conductance, each side's coat dry or wet with its own
+  // medium (0 while untucked: the guest's face then exchanges over its whole surface).
+  for (const TuckLink& l : tuckLinks_) {
+    const double rGuest = environment_->immersed(l.guest, 0.0) ? l.guestWet : l.guestDry;
+    const double rHost = environment_->immersed(l.host, 0.0) ? l.hostWet : l.hostDry;
+    network_.conductances[l.conductance].conductance = environment_->tuckedFraction(l.guest) * l.patch / (rGuest + rHost);
+  }
+}
+
+void Body::addTucking() {
+  // A tucked segment's lateral cell i (exposed area a_i) pressed against its host over a patch of the same area,
+  // spread over the host's lateral cells j by their exposed areas (shares w_j): per copy of the guest, the path is
+  // a radial sector of the guest's ring (its outermost tissue half cell and coat, r_i per unit area) in series with
+  // a sector of the host's (r_j), so G_ij = f_t a_i w_j / (r_i + r_j). Assumptions: the patch is spread over the
+  // host's whole lateral surface; coats are not compressed; the host's own exposed surface is not reduced (it still
+  // exchanges with the medium under the patch); no heat capacity in the path (as the contact column).
+  const Index segments = case_.segments.size();
+  for (Index g = 0; g < segments; ++g) {
+    if (environment_->maxTuckedFraction(g) <= 0.0) continue;
+    Index h = 0;
+    while (case_.segments[h].name != case_.segments[g].surface.tuckedInto) ++h;
+    if (tuckingChannel_ == none) tuckingChannel_ = network_.channel("tucking");
+    const std::vector<TuckSide>& guest = tuckSides_[g];
+    const std::vector<TuckSide>& host = tuckSides_[h];
+    double hostArea = 0.0;
+    for (const TuckSide& j : host) hostArea += j.area;
+    // Between groups of different weight a conductance carries its flow once per copy of the more numerous one
+    // (network.hpp): per copy of the guest when the guest is more numerous, else shared by the host's copies.
+    const double wg = meshes_[g].weight, wh = meshes_[h].weight;
+    const double weight = wg >= wh ? 1.0 : wg / wh;
+    Tucking summary{g, h, 0.0};
+    for (const TuckSide& i : guest)
+      for (const TuckSide& j : host) {
+        TuckLink l{network_.conductances.size(), g, h, weight * i.area * j.area / hostArea, i.rDry, i.rWet, j.rDry, j.rWet};
+        network_.conductances.push_back({i.node, j.node, 0.0, tuckingChannel_});
+        tuckLinks_.push_back(l);
+        summary.conductance += i.area * j.area / hostArea / (i.rDry + j.rDry);
+      }
+    tucking_.push_back(summary);
+  }
+  std::vector<std::vector<TuckSide>>().swap(tuckSides_);
 }
 
 Index Body::addModulator(Index schedule, Index control, std::string name) {
@@ -1354,9 +1406,12 @@ Body::SegmentBuild Body::segmentTissues(const SegmentSpec& s, Index group, Segme
   b.coatDry = s.coat ? &case_.tissues.at(s.coat->material) : nullptr;
   b.coatChanges = b.coatDry && b.coatDry->wetConductivity > 0.0 && b.coatDry->wetConductivity != b.coatDry->conductivity;
   // Built for the largest contact fraction of the run (events may change it; setInterval scales to each interval's).
+  // The coat's rings: built for the largest share covered by contact and tucking (the largest contact when nothing
+  // is tucked), scaled per interval.
   b.contact = environment_->maxContactFraction(group);
-  b.contactChanges = environment_->contactChanges(group);
-  if (s.coat && b.contact > 0.0) b.coatShare = 1.0 - b.contact;
+  b.contactChanges = environment_->contactChanges(group) || environment_->tuckChanges(group);
+  const double covered = environment_->maxCoveredFraction(group);
+  if (s.coat && covered > 0.0) b.coatShare = 1.0 - covered;
   b.length = s.shape == Shape::Sphere ? 0.0 : s.length;
   // Uniform: every cell L / nz and edges i (L / nz), as before axial_grading; graded: SegmentSpec::axialEdges.
   b.edges = s.axialEdges();
@@ -1473,7 +1528,21 @@ void Body::addLateralFace(const SegmentBuild& b, SegmentMesh& m, int iz, const C
   environment_->addFace({b.group, s.shape, true, area, diameter, 0.0,
                          b.coatShare < 1.0 ? FaceContact::Elsewhere : FaceContact::Shared});
   m.area += area;
-  if (b.coatShare < 1.0) {
+  if (tuckInvolved_[b.group]) {
+    // Tucking (addTucking): the outermost tissue cell's half cell and the coat's shell (a bare segment: the half cell
+    // alone) over the whole ring, times its full outer area: the resistance of a unit area of a radial sector.
+    const int skin = b.firstCoat - 1;
+    const double rSkin = 0.5 * (cm.bounds[skin] + cm.bounds[skin + 1]);
+    auto perArea = [&](bool wet) {
+      const double R = s.coat ? radialResistance(s.shape, rSkin, cm.bounds[skin + 1], rOut, b.tissue[skin]->conductivity,
+                                                 b.conductivity(nr - 1, wet), dz, s.width, false, true)
+                              : radialResistance(s.shape, rSkin, rOut, rOut, b.tissue[skin]->conductivity, 1.0, dz,
+                                                 s.width, false, false);
+      return R * fullArea;
+    };
+    tuckSides_[b.group].push_back({m.node(iz, skin), area, fullArea, perArea(false), perArea(b.coatChanges)});
+  }
+  if (b.coatShare < 1.0 && b.contact > 0.0) {
     // The contact patch of a coated segment (f_c of the lateral surface): a column of coat from the outermost tissue
     // cell to the substrate, in parallel with the coat's rings, which keep the other 1 - f_c of their conductances.
     // The column's face touches only the substrate: its surface is not the air-cooled surface of the rest of the

@@ -125,6 +125,14 @@ class Body {
   double basalMetabolicRate() const { return basalRate_; }
   //! Messages for the user (e.g. perfusion above cardiac output).
   const std::vector<std::string>& warnings() const { return warnings_; }
+  //! One tucked segment (surface.tucked_into): its host and the conductance of the whole tucked path at a tucked
+  //! fraction of 1, dry coats, per copy of the guest [W/K] (the network's conductances are this times the
+  //! interval's tucked fraction; `thermorph check` prints it).
+  struct Tucking {
+    Index guest = 0, host = 0;
+    double conductance = 0.0;
+  };
+  const std::vector<Tucking>& tucking() const { return tucking_; }
 
  private:
   // Building a segment (body.cpp): its radial cells' tissues, then per axial cell the nodes, radial conduction,
@@ -190,9 +198,32 @@ class Body {
     ContactPart part;
   };
 
+  //! Tucking (addTucking): one lateral cell of a tucked segment or of a host, as addLateralFace finds it: its
+  //! outermost tissue cell, the face's exposed area (children's footprints off) and full area [m2], and the
+  //! resistance per unit area from that cell's centre through its half cell and the coat to the outer surface, dry
+  //! and wet [K m2/W] (the ring's resistance times its full outer area: a radial sector of the ring).
+  struct TuckSide {
+    Index node = 0;
+    double area = 0.0, fullArea = 0.0, rDry = 0.0, rWet = 0.0;
+  };
+  //! One conductance of a tucked segment's cell i to a host cell j: f_t(t) a_i w_j / (r_i + r_j) per copy of the
+  //! guest (times w_g / max(w_g, w_h) as a network conductance between groups of different weight), w_j the host
+  //! cell's share of the host's exposed lateral area, r dry or wet with each segment's medium.
+  struct TuckLink {
+    Index conductance = 0, guest = 0, host = 0;
+    double patch = 0.0;  //!< a_i w_j times the weight factor [m2]
+    double guestDry = 0.0, guestWet = 0.0, hostDry = 0.0, hostWet = 0.0;  //!< [K m2/W]
+  };
+  void addTucking();
+
   Case case_;
   mutable Network network_;  //!< coat conductances follow immersion and contact in setInterval()
   std::vector<CoatSwitch> coatSwitches_;
+  std::vector<std::vector<TuckSide>> tuckSides_;  //!< per segment: [nz] when it is tucked or a host, else empty
+  std::vector<char> tuckInvolved_;                //!< per segment: tucked (ever) or the host of one
+  std::vector<TuckLink> tuckLinks_;
+  std::vector<Tucking> tucking_;
+  Index tuckingChannel_ = none;
   //! Per child: the parent's axial cells its blood joins, with their shares (sum 1); see attachChildren.
   std::vector<std::vector<std::pair<int, double>>> attachShares_;
   std::vector<SegmentMesh> meshes_;

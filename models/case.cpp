@@ -725,6 +725,86 @@ void validateTree(const CaseReader& reader, const toml::array& segArray, const C
   }
 }
 
+//! Tucking (segments[].surface.tucked_into / tucked_fraction, events[].surface.NAME.tucked_fraction): the host is
+//! another segment of the body, no chain of hosts comes back to the guest (a host tucked into its guest), and in
+//! every interval of the timeline a segment's contact and tucked shares sum to at most 1 (a coated segment: below
+//! 1, part of its coat stays exposed: its rings carry the rest).
+void checkTucking(const CaseReader& reader, const toml::array& segArray, const Case& c) {
+  std::map<std::string, std::size_t> index;
+  for (std::size_t i = 0; i < c.segments.size(); ++i) index[c.segments[i].name] = i;
+  auto surfaceView = [&](std::size_t i) {
+    return TableView(reader, segArray[i].as_table(), "segments[]", "segments." + c.segments[i].name).child("surface");
+  };
+  std::vector<std::size_t> host(c.segments.size(), c.segments.size());
+  for (std::size_t i = 0; i < c.segments.size(); ++i) {
+    const SegmentSpec& s = c.segments[i];
+    if (s.surface.tuckedInto.empty()) continue;
+    const TableView surface = surfaceView(i);
+    const auto it = index.find(s.surface.tuckedInto);
+    if (it == index.end()) {
+      std::vector<std::string> names;
+      for (const auto& [n, _] : index)
+        if (n != s.name) names.push_back(n);
+      surface.fail("tucked_into", fmt::format("no segment named \"{}\" to tuck {} into (segments: {})",
+                                              s.surface.tuckedInto, s.name, fmt::join(names, ", ")));
+    }
+    if (it->second == i)
+      surface.fail("tucked_into", fmt::format("{} cannot be tucked into itself: name another segment that covers it",
+                                              s.name));
+    host[i] = it->second;
+  }
+  // A chain of hosts that comes back to its start: each would lie inside the other.
+  for (std::size_t i = 0; i < c.segments.size(); ++i) {
+    std::vector<std::string> chain{c.segments[i].name};
+    for (std::size_t j = host[i], steps = 0; j < c.segments.size() && steps <= c.segments.size(); j = host[j], ++steps) {
+      chain.push_back(c.segments[j].name);
+      if (j == i)
+        surfaceView(i).fail("tucked_into", fmt::format("the hosts come back to {}: {} (a segment cannot be tucked into "
+                                                       "a segment that is tucked into it)",
+                                                       c.segments[i].name, fmt::join(chain, " -> ")));
+    }
+  }
+  // Contact plus tucking per interval: the static values, then each time's events (steps; "all" first within an
+  // event, as the environment applies them).
+  std::vector<double> contact(c.segments.size()), tucked(c.segments.size());
+  for (std::size_t i = 0; i < c.segments.size(); ++i) {
+    contact[i] = c.segments[i].surface.contactFraction;
+    tucked[i] = c.segments[i].surface.tuckedFraction;
+  }
+  std::vector<std::size_t> order(c.events.size());
+  for (std::size_t k = 0; k < order.size(); ++k) order[k] = k;
+  std::stable_sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) { return c.events[a].at < c.events[b].at; });
+  auto check = [&](const EventSpec* e) {
+    for (std::size_t i = 0; i < c.segments.size(); ++i) {
+      const SegmentSpec& s = c.segments[i];
+      const double sum = contact[i] + tucked[i];
+      const bool coated = s.coat.has_value();
+      if (sum < 1.0 || (!coated && sum == 1.0)) continue;
+      const std::string what = fmt::format(
+          "contact_fraction {:g} and tucked_fraction {:g} of {} sum to {:g}{}: at most 1{}", contact[i], tucked[i],
+          s.name, sum, e ? fmt::format(" from t = {:g} s", e->at) : std::string(), 
+          coated ? " and, on a coated segment, below 1 (part of the coat stays exposed)" : "");
+      if (!e) surfaceView(i).fail(s.surface.tuckedFraction > 0.0 ? "tucked_fraction" : "contact_fraction", what);
+      throw CaseError(fmt::format("{}: {}.surface.{}: {}", e->where, e->source, s.name, what));
+    }
+  };
+  check(nullptr);
+  for (std::size_t k = 0; k < order.size();) {
+    std::size_t end = k;
+    const EventSpec* last = nullptr;
+    for (; end < order.size() && c.events[order[end]].at == c.events[order[k]].at; ++end) {
+      const EventSpec& e = c.events[order[end]];
+      for (const ContactTarget& t : e.contact)
+        for (std::size_t i = 0; i < c.segments.size(); ++i)
+          if (targetsSegment(t.segment, c.segments[i].name)) contact[i] = t.contactFraction;
+      for (const TuckTarget& t : e.tuck) tucked[index.at(t.segment)] = t.tuckedFraction;
+      if (!e.contact.empty() || !e.tuck.empty()) last = &e;
+    }
+    if (last) check(last);
+    k = end;
+  }
+}
+
 //! Provenance: SHA-256 of the case text and of every file the case (overrides applied) reads.
 void recordInputs(Case& c, const toml::table& root, const std::string& text) {
   // Sweeps, fits and sensitivity runs load the same text once per run: its digest is kept per thread.
@@ -935,6 +1015,7 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
 
   c.environment = readEnvironment(top);
   c.events = readEvents(reader, top, root, c.run.duration, c.segments);
+  checkTucking(reader, segArray, c);
   for (std::size_t i = 0; i < c.events.size(); ++i) {
     for (const VasomotorTarget& v : c.events[i].vasomotor)
       if (v.segment != kAllSegments && !names.count(v.segment))

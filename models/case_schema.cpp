@@ -206,6 +206,19 @@ constexpr std::array params = {
     Param{"segments[].surface.contact_coat_thickness", K::Quantity, "m", "", 0, 1, true, "",
           "A coated segment's coat under the contact patch (fur or feathers compressed by the body's weight): the "
           "contact column's coat thickness; default the coat's. At most the coat's thickness."},
+    Param{"segments[].surface.tucked_into", K::Text, "", "", 0, 0, false, "",
+          "Tucking: the name of another segment of the body whose surface covers part of this one (a foot drawn into "
+          "the plumage of the trunk, a head under a wing, a tail curled over the body). The covered share "
+          "(tucked_fraction) of this segment's lateral surface (a sphere's whole surface; end faces stay exposed) "
+          "exchanges nothing with the medium (no convection, radiation, sun, evaporation or substrate there): it "
+          "conducts through this segment's outermost tissue half cell and coat, then the host's coat and outermost "
+          "tissue half cell, into the host's outermost tissue cells, over a patch of the same area spread over the "
+          "host's lateral surface in proportion to each cell's exposed area (budget channel `tucking`). The host's "
+          "own exposed surface is not reduced. Not the segment itself, nor a segment tucked into this one."},
+    Param{"segments[].surface.tucked_fraction", K::Number, "", "0", 0, 1, false, "",
+          "Share of the lateral surface tucked into the segment `tucked_into` (needs it when above 0); with "
+          "contact_fraction at most 1 (a coated segment: below 1, part of its coat stays exposed). Holds for the whole "
+          "run unless [[events]] change it (events[].surface.NAME.tucked_fraction)."},
     Param{"segments[].surface.wetted_fraction", K::Number, "", "0", 0, 1, false, "",
           "Share of the exposed surface that is wet and evaporates (1: a wet surface); zero in water."},
     Param{"segments[].surface.immersion", K::Choice, "", "body", 0, 0, false, "body|always|never",
@@ -309,11 +322,17 @@ constexpr std::array params = {
     Param{"events[].vasomotor.*.superficial_return", K::Number, "", "", 0, 1, false, "",
           "Share of tissue venous return taking the superficial veins."},
     Param{"events[].surface", K::NamedTables, "", "", 0, 0, false, "",
-          "Substrate contact per segment name, or `all`, from this event on (a step: not in an event with a ramp): "
-          "`surface = { feet = { contact_fraction = 0 } }` (a bird that takes off, an animal that lies down)."},
+          "Substrate contact and tucking per segment name, or `all` (contact only), from this event on (a step: not in "
+          "an event with a ramp): `surface = { feet = { contact_fraction = 0 } }` (a bird that takes off, an animal "
+          "that lies down)."},
     Param{"events[].surface.*.contact_fraction", K::Number, "", "", 0, 1, false, "",
           "As segments[].surface.contact_fraction (a coated segment below 1), which holds until the first event "
           "that changes it. Results store each segment's value at every output (/segments/NAME/contact_fraction)."},
+    Param{"events[].surface.*.tucked_fraction", K::Number, "", "", 0, 1, false, "",
+          "As segments[].surface.tucked_fraction, into the segment's own surface.tucked_into (a named segment that "
+          "has one; not `all`), which holds until the first event that changes it: `surface = { feet = { "
+          "tucked_fraction = 0.8 } }` (a bird drawing its feet into its plumage). Results store each tucked "
+          "segment's value at every output (/segments/NAME/tucked_fraction)."},
     Param{"events[].metabolism", K::Table, "", "", 0, 0, false, "", "Metabolic multipliers."},
     Param{"events[].metabolism.activity", K::Number, "", "", 0, 50, false, "", "Activity multiplier (as [body] activity)."},
     Param{"events[].metabolism.hypometabolism", K::Number, "", "", 0, 1, false, "",

@@ -88,12 +88,29 @@ EnvironmentModel::EnvironmentModel(const Case& c, Network& network) : case_(c) {
           maxContact_[g] = std::max(maxContact_[g], t.contactFraction);
           contactEvents_[g] = 1;
         }
+  tuckEvents_.assign(case_.segments.size(), 0);
+  for (const SegmentSpec& s : case_.segments) maxTucked_.push_back(s.surface.tuckedFraction);
+  for (const EventSpec& e : case_.events)
+    for (const TuckTarget& t : e.tuck)
+      for (Index g = 0; g < case_.segments.size(); ++g)
+        if (t.segment == case_.segments[g].name) {
+          maxTucked_[g] = std::max(maxTucked_[g], t.tuckedFraction);
+          tuckEvents_[g] = 1;
+        }
+  maxCovered_ = maxContact_;
 
   for (const EventSpec& e : case_.events)
     for (double t : {e.at, e.at + e.ramp})
       if (t > 0.0 && t < case_.run.duration) breakpoints_.push_back(t);
   std::sort(breakpoints_.begin(), breakpoints_.end());
   breakpoints_.erase(std::unique(breakpoints_.begin(), breakpoints_.end()), breakpoints_.end());
+  // Contact plus tucking of every interval (only where something is tucked: otherwise the largest contact).
+  for (Index g = 0; g < case_.segments.size(); ++g)
+    if (maxTucked_[g] > 0.0)
+      for (std::size_t k = 0; k <= breakpoints_.size(); ++k) {
+        setInterval(k);
+        maxCovered_[g] = std::max(maxCovered_[g], contact_[g] + tucked_[g]);
+      }
   setInterval(0);
   initialMedium_ = medium_;
 }
@@ -115,6 +132,8 @@ void EnvironmentModel::setInterval(std::size_t interval) {
   medium_ = env.medium;
   contact_.resize(case_.segments.size());
   for (Index g = 0; g < case_.segments.size(); ++g) contact_[g] = case_.segments[g].surface.contactFraction;
+  tucked_.resize(case_.segments.size());
+  for (Index g = 0; g < case_.segments.size(); ++g) tucked_[g] = case_.segments[g].surface.tuckedFraction;
   for (std::size_t v = 0; v < kEnvironmentVariables; ++v) {
     offset_[v] = env.value(static_cast<V>(v));
     slope_[v] = 0.0;
@@ -130,6 +149,9 @@ void EnvironmentModel::setInterval(std::size_t interval) {
     for (const ContactTarget& t : e.contact)  // steps ("all" before named segments: the reader's order)
       for (Index g = 0; g < case_.segments.size(); ++g)
         if (targetsSegment(t.segment, case_.segments[g].name)) contact_[g] = t.contactFraction;
+    for (const TuckTarget& t : e.tuck)  // steps of named segments
+      for (Index g = 0; g < case_.segments.size(); ++g)
+        if (t.segment == case_.segments[g].name) tucked_[g] = t.tuckedFraction;
     for (const EnvironmentValue& target : e.environment) {
       const std::size_t v = index(target.variable);
       if (complete) {
@@ -273,7 +295,9 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
     return;
   }
   const FaceFluid fl = fluid(f.segment, time);
-  const double exposed = f.contact == FaceContact::None ? f.area : (1.0 - contact) * f.area;  // A_e [m2]
+  // The tucked share f_t of a lateral face lies against its host (Body's tucking conductances): no exchange here.
+  const double tucked = f.lateral ? tucked_[f.segment] : 0.0;
+  const double exposed = f.contact == FaceContact::None ? f.area : (1.0 - contact - tucked) * f.area;  // A_e [m2]
 
   // Convection, Newton's law: q = h A_e (T_f - T_s), dq/dT_s = A_e (h' (T_f - T_s) - h).
   double dh = 0.0;
@@ -296,7 +320,8 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
     // the shadow of the shape for a beam normal to its axis or face. End faces lie parallel to that beam and
     // take none.
     if (f.lateral)
-      channelHeat[solarChannel_] += spec.solarAbsorptivity * value(V::SolarIrradiance, time) * spec.solarExposure * f.area;
+      channelHeat[solarChannel_] +=
+          spec.solarAbsorptivity * value(V::SolarIrradiance, time) * spec.solarExposure * f.area * (1.0 - tucked);
 
     // Cutaneous evaporation by the heat-mass transfer analogy with air properties at the film temperature;
     // the slope includes h(T_s) and the film properties' dependence on T_s (through T_film = (T_s + T_a)/2).

@@ -61,10 +61,11 @@ class EnvironmentModel : public SurfaceModel {
   //!   solar       alpha S exposure A on lateral faces (air only; end faces are parallel to the beam);
   //!   evaporation -w h_m [rho_v,sat(T_s) - RH rho_v,sat(T_a)] L_v A_e (air only; Chilton-Colburn analogy);
   //!   substrate   h_sub f_c A (T_sub - T_s);
-  //! with A_e = (1 - f_c) A the exposed area and f_c the contact fraction of the current interval
-  //! (contactFraction; FaceContact::Shared). A Column face, built for the largest contact of the run
+  //! with A_e = (1 - f_c - f_t) A the exposed area, f_c the contact fraction of the current interval
+  //! (contactFraction; FaceContact::Shared) and f_t the tucked fraction (tuckedFraction; lateral faces only, 0 on
+  //! end faces); the sun falls on (1 - f_t) A of a lateral face. A Column face, built for the largest contact of the run
   //! (maxContactFraction), has only the substrate term over f_c / f_max of its area, an Elsewhere face
-  //! A_e = (1 - f_c) A and no substrate term, a None face A_e = A and no substrate term.
+  //! A_e = (1 - f_c - f_t) A and no substrate term, a None face A_e = A and no substrate term.
   void faceHeat(Index face, double faceTemperature, double time, std::span<double> channelHeat,
                 std::span<double> channelDerivative) const override;
   //! Reports (budgets, mean coefficients at outputs) read the per-face coefficient cache but do not write it.
@@ -102,6 +103,16 @@ class EnvironmentModel : public SurfaceModel {
   double maxContactFraction(Index segment) const { return maxContact_[segment]; }
   //! Some [[events]] entry sets the segment's contact (it may change during the run).
   bool contactChanges(Index segment) const { return contactEvents_[segment] != 0; }
+  //! Share of a segment's lateral surface tucked into its host (surface.tucked_into) in the current interval: its
+  //! surface.tucked_fraction until the first [[events]] entry that changes it [1].
+  double tuckedFraction(Index segment) const { return tucked_[segment]; }
+  //! The largest tucked fraction of a segment over the run (0: never tucked, no coupling is built) [1].
+  double maxTuckedFraction(Index segment) const { return maxTucked_[segment]; }
+  //! Some [[events]] entry sets the segment's tucking.
+  bool tuckChanges(Index segment) const { return tuckEvents_[segment] != 0; }
+  //! The largest share of a segment's surface covered, contact plus tucking, over the run's intervals (a coated
+  //! segment's coat rings are built for the rest) [1]; the largest contact fraction when nothing is tucked.
+  double maxCoveredFraction(Index segment) const { return maxCovered_[segment]; }
   //! The medium around segments with immersion "body" in the current interval.
   SurroundingMedium medium() const { return medium_; }
   //! The fluid around a segment's faces at time t in the current interval.
@@ -149,6 +160,10 @@ class EnvironmentModel : public SurfaceModel {
   //! Per segment: contact fraction of the current interval, its largest value over the run, set by some event.
   std::vector<double> contact_, maxContact_;
   std::vector<char> contactEvents_;
+  //! Per segment: tucked fraction of the current interval, its largest over the run, set by some event; the largest
+  //! contact plus tucked fraction of any interval.
+  std::vector<double> tucked_, maxTucked_, maxCovered_;
+  std::vector<char> tuckEvents_;
   mutable std::vector<std::string> warnings_;
   //! Last correlation result per face and the fluid it was for: the face Newton solve ends with a call a few nK
   //! from its last iterate, and the next right-hand side starts from the same face temperature.

@@ -222,6 +222,13 @@ SurfaceSpec readSurface(const TableView& segment, Shape shape) {
       surface.fail("contact_coat_thickness", fmt::format("{:g} m is thicker than the coat ({:g} m): a compressed coat is "
                                                          "at most as thick as the coat", *s.contactCoatThickness, coat));
   }
+  // Tucking (surface.tucked_into, tucked_fraction): the host's name is checked against the segments, and the
+  // fractions against the timeline's contact, once every segment and event is read (checkTucking, models/case.cpp).
+  s.tuckedInto = surface.optionalText("tucked_into").value_or("");
+  s.tuckedFraction = surface.number("tucked_fraction");
+  if (s.tuckedFraction > 0.0 && s.tuckedInto.empty())
+    surface.fail("tucked_fraction", fmt::format("{:g} of the surface is tucked, but into what? Name the covering "
+                                                "segment: surface.tucked_into = \"NAME\"", s.tuckedFraction));
   s.wettedFraction = surface.number("wetted_fraction");
   const std::string immersion = surface.choice("immersion");
   s.immersion = immersion == "always" ? Immersion::Always : immersion == "never" ? Immersion::Never : Immersion::Body;
@@ -408,6 +415,23 @@ void readContactEvent(const TableView& view, const std::vector<SegmentSpec>& seg
       view.child("surface").fail(name, fmt::format("no segment named \"{}\" (segments: {}, or all)", name,
                                                    fmt::join(names, ", ")));
     }
+    if (t.has("tucked_fraction")) {
+      // Tucking of a named segment into its own surface.tucked_into (checked in checkTucking, models/case.cpp).
+      if (name == kAllSegments)
+        t.fail("tucked_fraction", "tucking is set per segment, into its own surface.tucked_into; name the segment "
+                                  "instead of all");
+      const double tucked = t.number("tucked_fraction");
+      if (e.ramp > 0.0)
+        t.fail("tucked_fraction", fmt::format("tucking changes by a step, not over ramp = {:g} s; give the change an "
+                                              "event of its own without a ramp",
+                                              e.ramp));
+      if (segment->surface.tuckedInto.empty())
+        t.fail("tucked_fraction", fmt::format("segment {} is tucked into nothing: give it surface.tucked_into = "
+                                              "\"NAME\" (the covering segment)",
+                                              name));
+      e.tuck.push_back({name, tucked});
+      if (!t.has("contact_fraction")) continue;
+    }
     if (!t.has("contact_fraction")) t.missing("contact_fraction");
     const double fraction = t.number("contact_fraction");
     if (e.ramp > 0.0)
@@ -438,6 +462,7 @@ std::vector<std::string> changedKeys(const EventSpec& e) {
     if (v.superficialReturn) keys.push_back("vasomotor." + v.segment + ".superficial_return");
   }
   for (const ContactTarget& c : e.contact) keys.push_back("surface." + c.segment + ".contact_fraction");
+  for (const TuckTarget& c : e.tuck) keys.push_back("surface." + c.segment + ".tucked_fraction");
   if (e.activity) keys.emplace_back("metabolism.activity");
   if (e.hypometabolism) keys.emplace_back("metabolism.hypometabolism");
   if (e.bradycardia) keys.emplace_back("circulation.bradycardia");
@@ -615,6 +640,10 @@ toml::table surfaceToml(const SurfaceSpec& s, Shape shape) {
   surface.insert("sky_view", s.skyView);
   surface.insert("contact_fraction", s.contactFraction);
   if (s.contactCoatThickness) surface.insert("contact_coat_thickness", *s.contactCoatThickness);
+  if (!s.tuckedInto.empty()) {
+    surface.insert("tucked_into", s.tuckedInto);
+    surface.insert("tucked_fraction", s.tuckedFraction);
+  }
   surface.insert("wetted_fraction", s.wettedFraction);
   surface.insert("immersion", s.immersion == Immersion::Always  ? "always"
                               : s.immersion == Immersion::Never ? "never"
@@ -643,6 +672,10 @@ toml::array eventsToml(const std::vector<EventSpec>& events) {
     if (!vasomotor.empty()) event.insert("vasomotor", vasomotor);
     toml::table surface;
     for (const ContactTarget& c : e.contact) surface.insert(c.segment, toml::table{{"contact_fraction", c.contactFraction}});
+    for (const TuckTarget& c : e.tuck) {
+      if (toml::table* t = surface[c.segment].as_table()) t->insert("tucked_fraction", c.tuckedFraction);
+      else surface.insert(c.segment, toml::table{{"tucked_fraction", c.tuckedFraction}});
+    }
     if (!surface.empty()) event.insert("surface", surface);
     toml::table metabolism;
     if (e.activity) metabolism.insert("activity", *e.activity);

@@ -34,6 +34,10 @@ struct SurfaceSpec {
   double skyView = 0.5;                         //!< share of the exposed surface's view filled by sky [1]
   double contactFraction = 0.0;                 //!< share of the surface touching the substrate [1]
   std::optional<double> contactCoatThickness;   //!< a coated segment's coat under the contact patch [m] (compressed)
+  //! Tucking: the segment (empty: none) whose surface covers `tuckedFraction` of this segment's lateral surface (a
+  //! foot tucked into the plumage of the trunk, a head under a wing); that share exchanges with the host only.
+  std::string tuckedInto;
+  double tuckedFraction = 0.0;                  //!< share of the lateral surface pressed against the host [1]
   double wettedFraction = 0.0;                  //!< share of the exposed surface that is wet [1]
   Immersion immersion = Immersion::Body;
   ConvectionCorrelation correlation = ConvectionCorrelation::Standard;
@@ -121,6 +125,12 @@ struct ContactTarget {
   double contactFraction = 0.0;  //!< share of the surface touching the substrate from the event on [1]
 };
 
+//! Tucking of one segment set by one event (a named segment with surface.tucked_into; never "all"): a step.
+struct TuckTarget {
+  std::string segment;
+  double tuckedFraction = 0.0;  //!< share of the lateral surface pressed against the host from the event on [1]
+};
+
 //! Controller change of one event.
 struct ControlTarget {
   std::string controller;  //!< vasomotor, shivering, panting or the NAME of a [control.local.NAME]
@@ -143,6 +153,8 @@ struct EventSpec {
   //! `surface = { SEGMENT = { contact_fraction = F } }`: steps of substrate contact (a named segment's value wins
   //! over "all" within one event).
   std::vector<ContactTarget> contact;
+  //! `surface = { SEGMENT = { tucked_fraction = F } }`: steps of tucking (segments with surface.tucked_into).
+  std::vector<TuckTarget> tuck;
   std::optional<double> activity, hypometabolism, bradycardia, panting;
   std::vector<ControlTarget> control;
   std::string label;   //!< for figures

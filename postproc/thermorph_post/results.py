@@ -24,7 +24,7 @@ import h5py
 import numpy as np
 
 #: Heat-flow channels in the order of thermorph's budget table (storage last).
-CHANNEL_ORDER = ("metabolism", "shivering", "blood", "conduction", "convection", "radiation", "solar",
+CHANNEL_ORDER = ("metabolism", "shivering", "blood", "conduction", "tucking", "convection", "radiation", "solar",
                  "evaporation", "substrate", "respiration", "storage")
 
 #: Channels that exchange heat with the surroundings (losses here are "heat lost to the environment").

@@ -77,14 +77,16 @@ ENVIRONMENT_STYLE = {
 ALL_IN_WATER_SHADE = {"color": "#56B4E9", "alpha": 0.16, "lw": 0, "zorder": 0}
 
 # Heat-flow channels: colour, bar hatch and line style, the same in every panel and figure. Eight colours
-# serve eleven channels, so the two that share a colour with a related channel differ by hatch and dashes
-# (shivering beside metabolism, respiration beside evaporation); conduction between segments is light grey,
-# storage dark grey and hatched.
+# serve twelve channels, so the three that share a colour with a related channel differ by hatch and dashes
+# (shivering beside metabolism, respiration beside evaporation, tucking beside conduction); conduction between
+# segments is light grey, tucking (a tucked segment's conduction into its host) light grey and dotted, storage
+# dark grey and hatched.
 CHANNEL_STYLE = {
     "metabolism": (OKABE_ITO["vermillion"], "", "-"),
     "shivering": (OKABE_ITO["vermillion"], "xxx", "--"),
     "blood": (OKABE_ITO["reddish_purple"], "", "-"),
     "conduction": ("#AAAAAA", "", "-"),
+    "tucking": ("#AAAAAA", "...", ":"),
     "convection": (OKABE_ITO["sky_blue"], "", "-"),
     "radiation": (OKABE_ITO["blue"], "", "-"),
     "solar": (OKABE_ITO["yellow"], "", "-"),
