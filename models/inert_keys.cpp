@@ -212,6 +212,14 @@ void InertKeys::surfaces() {
       }
     }
     if (!s.coat && s.shape != Shape::Sphere) add(p + "end_coat", fmt::format("segment {} has no coat", s.name));
+    // Tucking into a host while the tucked fraction stays 0 (no event raises it): no coupling is built.
+    if (!s.surface.tuckedInto.empty() && !(s.surface.tuckedFraction > 0.0) &&
+        std::none_of(c.events.begin(), c.events.end(), [&](const EventSpec& e) {
+          return std::any_of(e.tuck.begin(), e.tuck.end(),
+                             [&](const TuckTarget& t) { return t.segment == s.name && t.tuckedFraction > 0.0; });
+        }))
+      add(p + "tucked_into", fmt::format("segment {} is never tucked (surface.tucked_fraction = 0 and no [[events]] "
+                                         "entry sets a tucked_fraction above 0)", s.name));
     if (s.surface.convection.value_or(c.environment.convection).fixed) {
       const std::string why = fmt::format("segment {} has a fixed convection coefficient (no correlation is used)", s.name);
       add(p + "correlation", why);

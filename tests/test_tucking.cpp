@@ -292,6 +292,16 @@ TEST_CASE("Tucked fraction 0 leaves every result bit for bit unchanged", "[tucki
   CHECK(a.summary.energyBalanceError == b.summary.energyBalanceError);
   Body body(loadCaseFromString(tucked, "tucked.toml"));
   CHECK(body.tucking().empty());
+  // ... and is warned of as a key without effect (InertKeys), unlike a tucking that an event starts.
+  auto warned = [](const Body& b) {
+    return std::any_of(b.warnings().begin(), b.warnings().end(), [](const std::string& w) {
+      return w.find("segments.foot.surface.tucked_into") != std::string::npos && w.find("never tucked") != std::string::npos;
+    });
+  };
+  CHECK(warned(body));
+  Body later(loadCaseFromString(tucked, "tucked.toml", {"events.0.surface.foot.tucked_fraction=0.5"}));
+  CHECK_FALSE(warned(later));
+  CHECK(later.tucking().size() == 1);
   CHECK(std::find(body.network().channels.begin(), body.network().channels.end(), "tucking") ==
         body.network().channels.end());
 }
@@ -364,3 +374,4 @@ TEST_CASE("Tucking: input errors name file, line and key path; the resolved case
   CHECK(again.spec().segments[1].surface.tuckedInto == "trunk");
   CHECK(again.environment().maxCoveredFraction(1) == 0.7);
 }
+
