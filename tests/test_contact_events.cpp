@@ -22,6 +22,7 @@
 #include <vector>
 
 #include "test_common.hpp"
+#include "test_run_datasets.hpp"
 #include "test_lumped_sphere.hpp"
 #include "test_support.hpp"
 #include "test_support_body.hpp"
@@ -35,26 +36,10 @@ namespace {
 
 constexpr double pi = std::numbers::pi;
 
-//! A transient run of `text` written to a temporary HDF5 file; the summary and the named datasets.
-struct Run {
-  RunSummary summary;
-  std::vector<double> time;
-  std::vector<std::vector<double>> data;
-};
+using Run = testing::RunDatasets;
 Run runCase(const std::string& text, const std::vector<std::string>& datasets,
             const std::vector<std::string>& overrides = {}) {
-  Body body(loadCaseFromString(text, "contact-events.toml", overrides));
-  const std::filesystem::path out =
-      std::filesystem::temp_directory_path() / ("thermorph-contact-events-" + std::to_string(::getpid()) + ".h5");
-  RunOptions options;
-  options.output = out.string();
-  options.quiet = true;
-  Run r;
-  r.summary = runTransient(body, options);
-  r.time = common::readDataset(out.string(), "/time");
-  for (const std::string& d : datasets) r.data.push_back(common::readDataset(out.string(), d));
-  std::filesystem::remove(out);
-  return r;
+  return testing::runDatasets(text, "contact-events.toml", datasets, overrides);
 }
 
 // The lumped sphere of tests/test_lumped_sphere.hpp (R = 2 cm, k = 1000 W/(m K)) with rho c = 1e5 J/(m3 K):

@@ -28,6 +28,7 @@
 #include <vector>
 
 #include "test_common.hpp"
+#include "test_run_datasets.hpp"
 #include "test_support.hpp"
 #include "test_support_body.hpp"
 #include "drivers/simulation.hpp"
@@ -40,25 +41,10 @@ namespace {
 
 constexpr double pi = std::numbers::pi;
 
-struct Run {
-  RunSummary summary;
-  std::vector<double> time;
-  std::vector<std::vector<double>> data;
-};
+using Run = testing::RunDatasets;
 Run runCase(const std::string& text, const std::vector<std::string>& datasets,
             const std::vector<std::string>& overrides = {}) {
-  Body body(loadCaseFromString(text, "tucking.toml", overrides));
-  const std::filesystem::path out =
-      std::filesystem::temp_directory_path() / ("thermorph-tucking-" + std::to_string(::getpid()) + ".h5");
-  RunOptions options;
-  options.output = out.string();
-  options.quiet = true;
-  Run r;
-  r.summary = runTransient(body, options);
-  r.time = common::readDataset(out.string(), "/time");
-  for (const std::string& d : datasets) r.data.push_back(common::readDataset(out.string(), d));
-  std::filesystem::remove(out);
-  return r;
+  return testing::runDatasets(text, "tucking.toml", datasets, overrides);
 }
 
 // Host: a sphere of radius 4 cm of a very conductive tissue (k = 1000 W/(m K), rho c = 1e5 J/(m3 K)) under 1 cm of a
