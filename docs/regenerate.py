@@ -24,7 +24,8 @@ EXPR is a Python expression over `r`, the run's results (see `Result` below: r.c
 with numpy as `np`; run("OTHER") gives another named run's results. A fit run (`fit CASE --data FILE --free ...`) is
 the fitted run plus r.value(KEY), r.se(KEY), r.lower(KEY), r.upper(KEY), r.correlation(KEY1, KEY2), r.rmse(SERIES)
 and r.fit_attrs (aic, bic, residual_variance, runs, ...). A `catch [TAG]` run is the tests' printed lines
-(r.stdout) with r.coverage_study() for the coverage study of tests/test_fit.cpp. FMT is a format specification (`.2f`, `.3g`, `d`) or `s` for a string.
+(r.stdout) with r.coverage_study() for the coverage study of tests/test_fit.cpp; a `check CASE` run is the printed
+description of `thermorph check` (r.stdout, r.number_after(TEXT): the first number after TEXT). FMT is a format specification (`.2f`, `.3g`, `d`) or `s` for a string.
 Run names are shared by every scanned file, so a note can use a run defined in another.
 
 Check: the text between the markers must match what the runs give now. Numbers may differ by one unit in their
@@ -222,6 +223,14 @@ class Result:
         """Root mean square of the raw residuals (model - observed) of one observed series."""
         return self._rmse[series]
 
+    # --- printed text (catch, check) ---
+    def number_after(self, text):
+        """The first number printed after `text` in the run's output (a `check` run's description, a test's line)."""
+        m = re.search(re.escape(text) + r"\s*([-+]?[\d.]+(?:e[-+]?\d+)?)", self.stdout)
+        if not m:
+            raise SystemExit(f"regenerate: {text!r} not found in the printed output")
+        return float(m.group(1))
+
     # --- Catch2 output ---
     def coverage_study(self):
         """The coverage study's printed lines: {"draws", "ratio": [per parameter], "coverage": [...], "worst_z"}."""
@@ -297,6 +306,13 @@ class Runner:
             raise SystemExit(f"regenerate: no run named {name!r} (define it with <!-- gen-run {name}: run CASE -->)")
         args = shlex.split(self.runs[name])
         kind, case = args[0], args[1]
+        if kind == "check":  # `thermorph check CASE [--set ...]`: its printed description (r.stdout, r.number_after)
+            proc = subprocess.run([str(self.exe), "check", str(ROOT / case)] + args[2:], capture_output=True, text=True,
+                                  cwd=self.tmp)
+            if proc.returncode != 0:
+                raise SystemExit(f"regenerate: run {name} failed ({proc.returncode}): check {case}\n{proc.stderr}")
+            self.cache[name] = Result("catch", None, proc.stdout)
+            return self.cache[name]
         if kind == "catch":
             tests = self.exe.parent / "tests" / "thermorph_tests"
             proc = subprocess.run([str(tests)] + args[1:], capture_output=True, text=True, cwd=self.tmp)

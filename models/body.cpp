@@ -297,7 +297,9 @@ void Body::addTucking() {
     // (network.hpp): per copy of the guest when the guest is more numerous, else shared by the host's copies.
     const double wg = meshes_[g].weight, wh = meshes_[h].weight;
     const double weight = wg >= wh ? 1.0 : wg / wh;
-    Tucking summary{g, h, 0.0};
+    double guestArea = 0.0;
+    for (const TuckSide& i : guest) guestArea += i.area;
+    Tucking summary{g, h, 0.0, environment_->maxTuckedFraction(g) * guestArea * wg / wh, hostArea};
     for (const TuckSide& i : guest)
       for (const TuckSide& j : host) {
         TuckLink l{network_.conductances.size(), g, h, weight * i.area * j.area / hostArea, i.rDry, i.rWet, j.rDry, j.rWet};

@@ -128,9 +128,15 @@ class Body {
   //! One tucked segment (surface.tucked_into): its host and the conductance of the whole tucked path at a tucked
   //! fraction of 1, dry coats, per copy of the guest [W/K] (the network's conductances are this times the
   //! interval's tucked fraction; `thermorph check` prints it).
+  //! Known limitation (not yet modelled): the host's own exposed surface is not reduced under the patch, so the
+  //! patch is exposed twice, as the guest's tucked share (which exchanges only with the host) and as the host's
+  //! surface (which still exchanges with the medium). doubleExposedArea quantifies it: the largest tucked fraction
+  //! of the run times the guest's lateral area (children's footprints off) times n_guest / n_host, per copy of the
+  //! host [m2]; hostArea is the host's lateral area (children's footprints off) per copy [m2].
   struct Tucking {
     Index guest = 0, host = 0;
     double conductance = 0.0;
+    double doubleExposedArea = 0.0, hostArea = 0.0;
   };
   const std::vector<Tucking>& tucking() const { return tucking_; }
 
