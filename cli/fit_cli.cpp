@@ -43,6 +43,10 @@ CLI::App* addFitSubcommand(CLI::App& app, FitOptions& o) {
                   "the fitted values from the fit's Jacobian (warning above 0.2 SE or 1 % of a value); 0: no check. "
                   "Default 2")
       ->check(CLI::Range(0, 16));
+  fit->add_flag("--cold-start", o.coldStart,
+                "Find the steady start of a refined run (the grid check's, or any with run.grid_refinement > 1) by "
+                "the relaxation from the case's initial temperature instead of by Newton from the unrefined grid's "
+                "steady state on its cells (the default; the same steady state to KINSOL's tolerance)");
   fit->add_option("-j,--jobs", o.jobs, "Threads for the runs of one Jacobian (default: all cores)");
   fit->add_option("-o,--output", o.output,
                   "Results of the fitted run with the /fit group (HDF5); the fitted case goes beside it as "

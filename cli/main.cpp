@@ -113,7 +113,7 @@ int main(int argc, char** argv) {
   app.require_subcommand(1);
   std::string casePath, output;
   std::vector<std::string> overrides;
-  bool quiet = false, resolved = false, dense = false;
+  bool quiet = false, resolved = false, dense = false, coldStart = false;
 
   auto addCommon = [&](CLI::App* sub) {
     sub->add_option("case", casePath, "Case file (TOML)")->required();
@@ -126,10 +126,17 @@ int main(int argc, char** argv) {
   run->add_option("-o,--output", output, "Results file (HDF5); default: CASE-NAME.h5 in the current folder");
   run->add_flag("-q,--quiet", quiet, "No progress on stderr");
   run->add_flag("--dense", dense, "Use the dense linear solver instead of KLU (benchmarks)");
+  // The same text for run and steady: how a refined grid's steady state is found (RunOptions::coarseSteadyStart).
+  const std::string coldStartHelp =
+      "On a refined grid (run.grid_refinement > 1), find the steady state by the relaxation from initial_temperature "
+      "instead of by Newton from the unrefined grid's steady state on the refined cells (the default; the same "
+      "steady state to KINSOL's tolerance)";
+  run->add_flag("--cold-start", coldStart, coldStartHelp);
   CLI::App* steady = app.add_subcommand("steady", "Find the steady state of a case");
   addCommon(steady);
   steady->add_option("-o,--output", output, "Results file (HDF5); default: CASE-NAME.h5");
   steady->add_flag("-q,--quiet", quiet, "No progress on stderr");
+  steady->add_flag("--cold-start", coldStart, coldStartHelp);
   CLI::App* check = app.add_subcommand("check", "Validate a case and describe the body");
   addCommon(check);
   check->add_flag("--resolved", resolved, "Print the fully resolved case (SI values, defaults filled in) as TOML");
@@ -227,6 +234,7 @@ int main(int argc, char** argv) {
     options.quiet = quiet;
     options.linearSolver = dense ? LinearSolverKind::Dense : LinearSolverKind::Klu;
     options.stop = &stopRequested();
+    options.coarseSteadyStart = !coldStart;
     RunSummary summary = run->parsed() ? runTransient(body, options) : runSteady(body, options);
     printBudget(body, summary, stdout);
     for (const std::string& w : body.environment().warnings()) fmt::print(stderr, "warning: {}\n", w);

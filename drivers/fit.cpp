@@ -503,6 +503,7 @@ Evaluation evaluateModel(const FitProblem& pb, std::span<const double> x) {
     options.quiet = true;
     options.observer = [&](double t, std::span<const double> y, const RunSummary& s) { sampler.observe(t, y, s); };
     options.observerTimes = ObservationSampler::timesBetweenOutputs(pb.data, c.run);
+    options.coarseSteadyStart = pb.coarseSteadyStart;
     RunSummary summary = runTransient(body, options);
     if (!summary.complete) {
       e.error = summary.failure;
@@ -1119,6 +1120,7 @@ FitProblem makeFitProblem(const FitOptions& o, std::vector<std::string>& warning
     pb.caseText = ss.str();
   }
   pb.overrides = o.overrides;
+  pb.coarseSteadyStart = !o.coldStart;
   if (o.rtol > 0.0) {
     pb.overrides.push_back(fmt::format("run.rtol={:g}", o.rtol));
     pb.overrides.push_back(fmt::format("run.atol={:g} K", o.rtol));
@@ -1214,6 +1216,7 @@ FittedRun runFitted(const FitProblem& pb, const FitOutcome& outcome, const FitOp
     if (observer) observer(t, y, s);
   };
   options.observerTimes = ObservationSampler::timesBetweenOutputs(pb.data, body.spec().run);
+  options.coarseSteadyStart = pb.coarseSteadyStart;
   out.summary = runTransient(body, options);
   if (!out.summary.complete) {
     std::error_code ec;

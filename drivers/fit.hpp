@@ -59,6 +59,9 @@ struct FitProblem {
   double stepTolerance = 0.01;
   //! Fix every run's cell counts at the grid of the start values (the automatic grid depends on parameters).
   bool pinGrid = true;
+  //! RunOptions::coarseSteadyStart of every run (a steady start on a refined grid, e.g. the grid check's, from the
+  //! unrefined grid's steady state); false: `fit --cold-start`.
+  bool coarseSteadyStart = true;
 };
 
 //! One model evaluation at parameter values x: predictions at every observation (ObservedData order).
@@ -181,6 +184,9 @@ struct FitOptions {
   //! the grid's bias of the fitted values (gridCheck). Default 2: on the example fit (cases/quadruped_fit.md) the
   //! 2x run costs 2.3 s against the fit's 37 s (6 %); 4x about 20x that.
   int gridCheck = 2;
+  //! The steady starts of refined runs (the grid check's) by the relaxation from the case's initial temperature
+  //! instead of from the unrefined grid's steady state (FitProblem::coarseSteadyStart).
+  bool coldStart = false;
   std::string commandLine;
 };
 

@@ -2,6 +2,7 @@
 
 #include <fnmatch.h>
 
+#include <algorithm>
 #include <chrono>
 #include <cmath>
 #include <limits>
@@ -60,6 +61,17 @@ std::vector<int> layerStarts(const SegmentMesh& m) {
   return start;
 }
 
+//! Linear interpolation of a point x among the ascending centres c[lo, hi): the first of the two centres used and
+//! the weight of the second; beyond the first or last centre, linear extrapolation from the two end centres. One
+//! centre: its value (weight 0).
+std::pair<int, double> linearWeight(const std::vector<double>& c, int lo, int hi, double x) {
+  if (hi - lo < 2) return {lo, 0.0};
+  int k = lo;
+  while (k + 2 < hi && x > c[static_cast<std::size_t>(k + 1)]) ++k;
+  const double a = c[static_cast<std::size_t>(k)], b = c[static_cast<std::size_t>(k + 1)];
+  return {k, (x - a) / (b - a)};
+}
+
 }  // namespace
 
 std::vector<double> mapSteadyState(const Body& coarse, std::span<const double> state, const Body& fine) {
@@ -77,16 +89,25 @@ std::vector<double> mapSteadyState(const Body& coarse, std::span<const double> s
     const SegmentMesh& fm = fine.segments()[s];
     if (cm.name != fm.name || cm.layerNames != fm.layerNames || fm.nz < cm.nz || fm.nr < cm.nr) return {};
     const std::vector<int> cs = layerStarts(cm), fs = layerStarts(fm);
-    std::vector<int> ring(static_cast<std::size_t>(fm.nr));
+    // Tissue: bilinear in the cell centres' axial position and radius (SegmentMesh::axial, ::radius), the radius
+    // among the coarse cells of the same layer only (the gradient jumps at an interface where the conductivity
+    // does), extrapolated linearly past a layer's or the segment's end centres.
+    std::vector<std::pair<int, double>> across(static_cast<std::size_t>(fm.nr));
     for (std::size_t l = 0; l + 1 < fs.size(); ++l) {
-      const int fineCount = fs[l + 1] - fs[l], coarseCount = cs[l + 1] - cs[l];
-      if ((fineCount > 0) != (coarseCount > 0)) return {};
-      for (int j = 0; j < fineCount; ++j)
-        ring[static_cast<std::size_t>(fs[l] + j)] = cs[l] + containing(j, fineCount, coarseCount);
+      if ((fs[l + 1] > fs[l]) != (cs[l + 1] > cs[l])) return {};
+      for (int ir = fs[l]; ir < fs[l + 1]; ++ir)
+        across[static_cast<std::size_t>(ir)] = linearWeight(cm.radius, cs[l], cs[l + 1], fm.radius[static_cast<std::size_t>(ir)]);
     }
     for (int iz = 0; iz < fm.nz; ++iz) {
-      const int cz = containing(iz, fm.nz, cm.nz);
-      for (int ir = 0; ir < fm.nr; ++ir) out[fm.node(iz, ir)] = state[cm.node(cz, ring[static_cast<std::size_t>(ir)])];
+      const auto [z0, wz] = linearWeight(cm.axial, 0, cm.nz, fm.axial[static_cast<std::size_t>(iz)]);
+      const int z1 = wz != 0.0 ? z0 + 1 : z0;  // weight 0: one centre (or a fine centre on a coarse one)
+      for (int ir = 0; ir < fm.nr; ++ir) {
+        const auto [r0, wr] = across[static_cast<std::size_t>(ir)];
+        const int r1 = wr != 0.0 ? r0 + 1 : r0;
+        auto at = [&](int z, int r) { return state[cm.node(z, r)]; };
+        out[fm.node(iz, ir)] = (1.0 - wz) * ((1.0 - wr) * at(z0, r0) + wr * at(z0, r1)) +
+                               wz * ((1.0 - wr) * at(z1, r0) + wr * at(z1, r1));
+      }
     }
     // Blood: the coarse node of the kind in the containing axial cell, else the nearest axial cell with one, else the
     // segment's innermost tissue cell there (blood that flows only on the finer grid: none in the examples).
@@ -131,6 +152,30 @@ Case refinedCase(const Case& c, int factor) {
     for (LayerSpec& l : s.layers) l.cellsAuto = false;
     if (s.coat) s.coat->cellsAuto = false;
   }
+  out.run.appliedRefinement *= factor;
+  out.warnings.clear();
+  return out;
+}
+
+std::optional<Case> coarsenedCase(const Case& c, int factor) {
+  if (factor < 1 || c.run.appliedRefinement % factor != 0) return std::nullopt;
+  Case out = c;
+  auto divide = [factor](int& cells) {
+    if (cells % factor != 0) return false;
+    cells /= factor;
+    return true;
+  };
+  for (SegmentSpec& s : out.segments) {
+    if (s.shape != Shape::Sphere && !divide(s.axialCells)) return std::nullopt;
+    for (LayerSpec& l : s.layers)
+      if (!divide(l.cells)) return std::nullopt;
+    if (s.coat && !divide(s.coat->cells)) return std::nullopt;
+    s.axialAuto = false;
+    s.gradingAuto = false;
+    for (LayerSpec& l : s.layers) l.cellsAuto = false;
+    if (s.coat) s.coat->cellsAuto = false;
+  }
+  out.run.appliedRefinement /= factor;
   out.warnings.clear();
   return out;
 }
@@ -171,6 +216,7 @@ RefineResult runRefinement(const RefineOptions& options) {
       collector.observe(t, temperatures, summary);
     };
     run.keepSteadyState = options.warmStart && hasSteadyStart && level + 1 < options.levels;
+    run.coarseSteadyStart = options.warmStart;  // a level of a case given refined (run.grid_refinement) without a guess
     if (options.warmStart && coarser && !coarserSteady.empty())
       run.steadyGuess = mapSteadyState(*coarser, coarserSteady, body);
     RunSummary summary = options.steady ? runSteady(body, run) : runTransient(body, run);

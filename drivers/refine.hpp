@@ -3,6 +3,7 @@
 //! segment, layers and coats multiplied), observed order of convergence and Richardson-extrapolated values of the
 //! heat budget and key temperatures (Roache 1998, "Verification and Validation in Computational Science and
 //! Engineering", ch. 5: p = ln((f1 - f2) / (f2 - f3)) / ln 2, f* = f3 + (f3 - f2) / (2^p - 1)).
+#include <optional>
 #include <span>
 #include <string>
 #include <vector>
@@ -50,6 +51,9 @@ struct RefineResult {
 
 //! The case with every cell count multiplied by `factor` (axial cells of non-spheres, layer and coat cells).
 Case refinedCase(const Case& c, int factor);
+//! The inverse: every cell count divided by `factor` (RunSpec::appliedRefinement divided too), so that
+//! refinedCase(coarsenedCase(c, k), k) has c's grid; nullopt when a count is not a multiple of `factor`.
+std::optional<Case> coarsenedCase(const Case& c, int factor);
 
 class Body;
 

@@ -6,6 +6,7 @@
 #include <fmt/format.h>
 
 #include "drivers/progress.hpp"
+#include "drivers/refine.hpp"
 #include "drivers/record_fields.hpp"
 #include "drivers/recorder.hpp"
 #include "models/media.hpp"
@@ -262,6 +263,29 @@ std::vector<double> steadyState(const Body& body, std::span<const double> guess,
   return steadyTemperatures(body, transient, guess, statistics, nullptr, nullptr, warm, warmUsed);
 }
 
+std::vector<double> coarseSteadyGuess(const Body& body, SolverStatistics* statistics, const std::atomic<bool>* stop) {
+  const int n = body.spec().run.appliedRefinement;
+  if (n <= 1) return {};
+  try {
+    // The unrefined body's environment resets the thread's log of range warnings when built, and its states are not
+    // the run's: every warning it raises goes to a log of its own.
+    const ValidityLogIsolation isolation;
+    const std::optional<Case> c = coarsenedCase(body.spec(), n);
+    if (!c) return {};
+    const Body coarse(*c);
+    NetworkSystem transient(coarse.network(), NetworkSystem::Mode::Transient);
+    const std::vector<double> guess = initialState(coarse, transient);
+    SolverStatistics st;
+    bool stopped = false;
+    const std::vector<double> state = steadyTemperatures(coarse, transient, guess, &st, stop, &stopped);
+    if (stopped) return {};
+    if (statistics) *statistics = st;
+    return mapSteadyState(coarse, state, body);
+  } catch (const std::exception&) {
+    return {};  // an unrefined grid that cannot be solved: the run's own relaxation decides, as without this
+  }
+}
+
 RunSummary runTransient(const Body& body, const RunOptions& options) {
   const Case& c = body.spec();
   NetworkSystem system(body.network(), NetworkSystem::Mode::Transient);
@@ -274,9 +298,12 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   std::vector<std::string> startWarnings;
   if (c.run.initial == InitialCondition::Steady) {
     // The relaxation integrates this run's own system (one transient system per run instead of two).
-    std::vector<double> steady =
-        steadyTemperatures(body, system, std::span<const double>(y).first(states), &summary.steadyStatistics,
-                           options.stop, &summary.stopped, options.steadyGuess, &summary.steadyWarm);
+    std::vector<double> coarse;
+    if (options.steadyGuess.empty() && options.coarseSteadyStart)
+      coarse = coarseSteadyGuess(body, &summary.coarseStatistics, options.stop);
+    std::vector<double> steady = steadyTemperatures(
+        body, system, std::span<const double>(y).first(states), &summary.steadyStatistics, options.stop,
+        &summary.stopped, coarse.empty() ? std::span<const double>(options.steadyGuess) : coarse, &summary.steadyWarm);
     std::copy(steady.begin(), steady.end(), y.begin());
     if (!summary.stopped) {
       startWarnings = exhaustedDefences(body, steady, "steady start");
@@ -388,8 +415,12 @@ RunSummary runSteady(const Body& body, const RunOptions& options) {
   recorder.setIncompletePath(options.output.empty() ? "" : incompleteName(options.output));
   recorder.steadyState();
   body.setInterval(0);
-  std::vector<double> steady = steadyTemperatures(body, transient, guess, &summary.statistics, options.stop,
-                                                  &summary.stopped, options.steadyGuess, &summary.steadyWarm);
+  std::vector<double> coarse;
+  if (options.steadyGuess.empty() && options.coarseSteadyStart)
+    coarse = coarseSteadyGuess(body, &summary.coarseStatistics, options.stop);
+  std::vector<double> steady =
+      steadyTemperatures(body, transient, guess, &summary.statistics, options.stop, &summary.stopped,
+                         coarse.empty() ? std::span<const double>(options.steadyGuess) : coarse, &summary.steadyWarm);
   if (!summary.stopped)
     for (std::string& w : exhaustedDefences(body, steady, "steady state")) recorder.addRunWarning(std::move(w));
   std::vector<double> y(transient.size(), 0.0);

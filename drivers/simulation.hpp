@@ -43,6 +43,12 @@ struct RunOptions {
   //! `thermorph refine` passes the coarser level's steady state mapped onto the finer cells (drivers/refine.hpp).
   //! A run without a steady start ignores it.
   std::vector<double> steadyGuess;
+  //! A run on a refined grid (run.grid_refinement = N > 1, Case::run.appliedRefinement) without steadyGuess finds its
+  //! steady start (or runSteady's state) as `thermorph refine` finds a finer level's: the unrefined grid's steady
+  //! state first (relaxation and KINSOL on about N^2 times fewer cells), mapped onto the run's cells as the start of
+  //! Newton, with the same safeguards and fallback (coarseSteadyGuess, warmSteadyState). False (`--cold-start`):
+  //! the relaxation from the case's initial temperature, as on an unrefined grid.
+  bool coarseSteadyStart = true;
   //! Keep the steady state found in RunSummary::steadyState (refine's next level; off: a large run's steady start
   //! is not held through its integration).
   bool keepSteadyState = false;
@@ -76,7 +82,12 @@ struct RunSummary {
   //! The steady start's solver counters (relaxation steps, then Newton iterations, right-hand sides and Jacobians of
   //! relaxation and KINSOL together); runSteady's are `statistics`.
   SolverStatistics steadyStatistics;
-  bool steadyWarm = false;  //!< the steady state was found by Newton from RunOptions::steadyGuess
+  //! The steady state was found by Newton from RunOptions::steadyGuess or, on a refined grid, from the coarser
+  //! grid's steady state (coarseSteadyGuess)
+  bool steadyWarm = false;
+  //! A refined run's unrefined steady solve (RunOptions::coarseSteadyStart, coarseSteadyGuess): its counters
+  //! (relaxation steps, Newton iterations, right-hand sides, Jacobians); zero when none was solved.
+  SolverStatistics coarseStatistics;
 };
 
 //! Integrate the case from its initial state for run.duration; output every run.output_interval.
@@ -89,6 +100,16 @@ RunSummary runSteady(const Body& body, const RunOptions& options);
 //! With `warm` given (RunOptions::steadyGuess), Newton from it first; `*warmUsed` says whether its root was kept.
 std::vector<double> steadyState(const Body& body, std::span<const double> guess, SolverStatistics* statistics = nullptr,
                                 std::span<const double> warm = {}, bool* warmUsed = nullptr);
+//! The warm start of a refined run (RunOptions::coarseSteadyStart): for a body whose counts carry a refinement N > 1
+//! (Case::run.appliedRefinement), the steady state of its unrefined grid (coarsenedCase; relaxation, then KINSOL, as
+//! any steady start) mapped onto `body`'s cells (mapSteadyState) [nodes + controls]. Directly from 1x, not through
+//! the grids between: the Newton iterations from 1x at 4x are those from 2x (measured on the four steady-start
+//! examples and the snowbird: 3-4 either way), so a 2x solve on the way costs without gaining. Empty for N = 1, when
+//! a count does not divide by N, when the unrefined solve fails or when `stop` is set; never throws for a solver
+//! failure. The unrefined grid's range warnings are not the run's and are discarded (ValidityLogIsolation).
+//! `statistics`: that solve's counters.
+std::vector<double> coarseSteadyGuess(const Body& body, SolverStatistics* statistics = nullptr,
+                                      const std::atomic<bool>* stop = nullptr);
 //! Largest change of any node temperature [K], and of the heat-capacity-weighted mean temperature [K], between a warm
 //! guess and the root Newton found from it, beyond which the root is not kept (the relaxation from the case's guess
 //! decides instead). A coarser level's steady state on the finer cells lies within the grid error of the finer one's:

@@ -121,6 +121,10 @@ struct RunSpec {
   double atol = 1e-6;              //!< absolute tolerance on temperatures [K]
   double maxStep = 0.0;            //!< maximum step [s] (0: no limit)
   int gridRefinement = 1;          //!< every cell count multiplied by this after the grid is resolved [1]
+  //! The refinement the counts carry (not a key): resolveGrid sets it to run.grid_refinement when it multiplies the
+  //! counts (gridRefinement is then 1), refinedCase multiplies it. The unrefined grid of a run is its counts divided
+  //! by this (drivers/simulation.cpp finds a refined run's steady start from that grid's steady state).
+  int appliedRefinement = 1;
   //! Tolerance of the automatic grid against a grid refined 4x [1]: segments' heat flows are estimated within
   //! half of it of their converged value (models/grid.hpp gridTargetError); controller outputs are checked after
   //! the run (drivers/record_control_grid.hpp).

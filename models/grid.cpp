@@ -1039,6 +1039,7 @@ void resolveGrid(Case& c) {
     }
   }
   c.run.gridRefinement = 1;  // applied: the counts above are the refined ones
+  c.run.appliedRefinement *= f;
 }
 
 }  // namespace thermorph

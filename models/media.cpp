@@ -56,6 +56,19 @@ ValidityLogScope::ValidityLogScope(bool logging) : previous_(warningLog().loggin
 ValidityLogScope::~ValidityLogScope() { warningLog().logging = previous_; }
 bool validityLogging() { return warningLog().logging; }
 
+ValidityLogIsolation::ValidityLogIsolation() {
+  WarningLog& log = warningLog();
+  issued_.swap(log.issued);
+  pending_.swap(log.pending);
+  logging_ = log.logging;
+}
+ValidityLogIsolation::~ValidityLogIsolation() {
+  WarningLog& log = warningLog();
+  log.issued.swap(issued_);
+  log.pending.swap(pending_);
+  log.logging = logging_;
+}
+
 void resetValidityWarnings() {
   WarningLog& log = warningLog();
   log.issued.clear();

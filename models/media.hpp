@@ -5,6 +5,7 @@
 #include <limits>
 #include <string>
 #include <string_view>
+#include <utility>
 #include <vector>
 
 #include "models/dual.hpp"
@@ -70,6 +71,22 @@ class ValidityLogScope {
 
 //! Whether range checks on this thread log now (true unless the innermost ValidityLogScope says false).
 bool validityLogging();
+
+//! Range checks, and the reset by a new EnvironmentModel, on a log of their own while it lives, discarded at its end:
+//! the thread's log (what was issued and is pending, whether it logs) is as before afterwards. For bodies and states
+//! that are not the run's: the unrefined grid whose steady state starts a refined run's (drivers/simulation.cpp).
+class ValidityLogIsolation {
+ public:
+  ValidityLogIsolation();
+  ~ValidityLogIsolation();
+  ValidityLogIsolation(const ValidityLogIsolation&) = delete;
+  ValidityLogIsolation& operator=(const ValidityLogIsolation&) = delete;
+
+ private:
+  std::vector<std::pair<std::string, std::string>> issued_;
+  std::vector<std::string> pending_;
+  bool logging_;
+};
 
 // ---- fluid properties ------------------------------------------------------------
 

@@ -293,6 +293,11 @@ template <class R>
 void setSteadyGuess(R& run, const std::vector<double>& warm) {
   if constexpr (requires { run.steadyGuess; }) run.steadyGuess = warm;
 }
+//! RunOptions::coarseSteadyStart where the source has it (a refined run's steady start from the unrefined grid's).
+template <class R>
+void setCoarseSteadyStart(R& run, bool on) {
+  if constexpr (requires { run.coarseSteadyStart; }) run.coarseSteadyStart = on;
+}
 
 //! Each level as `thermorph refine` runs it (refinedCase of the loaded case, a Body, runTransient with the metric
 //! collector as observer), with the steady start (initial = "steady") timed once more on its own before the run
@@ -340,6 +345,7 @@ int refineTable(const std::string& path, int levels, const std::vector<std::stri
     MetricCollector collector(body, MetricWindow{}, {}, false);
     RunOptions run;
     setSteadyGuess(run, warm);
+    setCoarseSteadyStart(run, !cold);
     run.quiet = true;
     run.observer = [&](double t, std::span<const double> temperatures, const RunSummary& summary) {
       collector.observe(t, temperatures, summary);
@@ -372,6 +378,77 @@ int refineTable(const std::string& path, int levels, const std::vector<std::stri
   return 0;
 }
 
+//! The coarser grids' steady state on a refined body's cells (coarseSteadyGuess) where the source has it, else
+//! empty (an older revision: its refined runs relax from the case's initial temperature).
+template <class B>
+std::vector<double> coarseGuess(const B& body, SolverStatistics* st) {
+  if constexpr (requires { coarseSteadyGuess(body, st); }) return coarseSteadyGuess(body, st);
+  return {};
+}
+
+//! A run on a grid refined N x (`run --set run.grid_refinement=N`, or `steady` with --steady), its steady start
+//! found cold (the relaxation from the case's initial temperature, then KINSOL) and warm (Newton from the unrefined
+//! grid's steady state mapped onto the cells, coarseSteadyGuess; a source without it: cold again), one after the
+//! other in one process on the same body. Per start: the unrefined grid's counters and CPU (and how far Newton
+//! moved from its mapped state: largest node change and heat-capacity-weighted mean), the refined grid's steady
+//! solve's counters and CPU (the steady start alone, timed on its own), the whole run's CPU (its own steady start
+//! included; skipped with --no-run) and transient steps, and the largest difference of the warm steady state from
+//! the cold one [K].
+int refinedTable(const std::string& path, int factor, const std::vector<std::string>& given, bool steady, bool doRun) {
+  std::vector<std::string> overrides = given;
+  overrides.push_back(fmt::format("run.grid_refinement={}", factor));
+  const Case c = loadCase(path, overrides);
+  Body body(c);
+  const std::size_t nodes = body.network().nodes.size();
+  std::vector<double> guess(nodes, c.run.initialTemperature);
+  for (const Controller& k : body.network().controllers) guess.push_back(k.initial);
+  std::vector<double> cold;
+  for (const bool warmStart : {false, true}) {
+    const double c0 = cpuSeconds();
+    SolverStatistics coarse, st;
+    const std::vector<double> warm = warmStart ? coarseGuess(body, &coarse) : std::vector<double>{};
+    const double coarseCpu = cpuSeconds() - c0;
+    bool used = false;
+    const std::vector<double> state = timedSteadyState(body, guess, warm, &st, &used);
+    const double steadyCpu = cpuSeconds() - c0;
+    double largest = 0.0;
+    if (!warmStart) cold = state;
+    else
+      for (std::size_t i = 0; i < nodes; ++i) largest = std::max(largest, std::abs(state[i] - cold[i]));
+    double runCpu = -1.0;
+    long steps = -1;
+    if (doRun) {
+      RunOptions run;
+      run.quiet = true;
+      setCoarseSteadyStart(run, warmStart);
+      const double r0 = cpuSeconds();
+      const RunSummary summary = steady ? runSteady(body, run) : runTransient(body, run);
+      runCpu = cpuSeconds() - r0;
+      if (!summary.complete) throw std::runtime_error(summary.failure);
+      steps = steady ? 0 : summary.statistics.steps;
+    }
+    // The largest change of a node from the warm guess to the root, and of the heat-capacity-weighted mean: what the
+    // safeguards of warmSteadyState (kWarmStartNodeChange, kWarmStartMeanChange) bound.
+    double moved = 0.0, capacity = 0.0, weighted = 0.0;
+    for (std::size_t i = 0; i < nodes && !warm.empty(); ++i) {
+      moved = std::max(moved, std::abs(state[i] - warm[i]));
+      capacity += body.network().nodes[i].capacity;
+      weighted += body.network().nodes[i].capacity * (state[i] - warm[i]);
+    }
+    const std::string grids =
+        warm.empty() ? std::string("-") : fmt::format("1x (moved {:.3g} K, mean {:.2g} K)", moved, std::abs(weighted) / capacity);
+    fmt::print("| {} | {}x | {} | {} | {} | {} / {} / {} | {:.3f} | {} / {} / {} / {} | {:.3f} | {} | {} | {} |\n",
+               fs::path(path).filename().string(), factor, nodes, used ? "warm" : "cold", grids,
+               coarse.steps, coarse.nonlinearIterations, coarse.rhsEvaluations, coarseCpu, st.steps,
+               st.nonlinearIterations, st.rhsEvaluations, st.jacobianEvaluations, steadyCpu,
+               runCpu < 0.0 ? std::string("-") : fmt::format("{:.3f}", runCpu),
+               steps < 0 ? std::string("-") : fmt::format("{}", steps),
+               warmStart ? fmt::format("{:.2g}", largest) : std::string("-"));
+    std::fflush(stdout);
+  }
+  return 0;
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -398,6 +475,19 @@ int main(int argc, char** argv) {
       }
       return refineTable(args[1], levels, overrides, cold);
     }
+    if (args.size() >= 2 && args[0] == "refined") {
+      int factor = 4;
+      bool steady = false, doRun = true;
+      std::vector<std::string> overrides;
+      for (std::size_t i = 2; i < args.size(); ++i) {
+        if (args[i] == "--factor" && i + 1 < args.size()) factor = std::stoi(args[++i]);
+        else if (args[i] == "--steady") steady = true;
+        else if (args[i] == "--no-run") doRun = false;
+        else if (args[i] == "--set" && i + 1 < args.size()) overrides.push_back(args[++i]);
+        else throw std::invalid_argument("unknown option " + args[i]);
+      }
+      return refinedTable(args[1], factor, overrides, steady, doRun);
+    }
     if (args.size() >= 2 && args[0] == "table") {
       int repeat = 3;
       bool dense = true;
@@ -415,6 +505,7 @@ int main(int argc, char** argv) {
   fmt::print(stderr,
              "usage: thermorph_bench cases DIR\n       thermorph_bench table DIR [--repeat N] [--skip-dense]\n"
              "       thermorph_bench one CASE [--dense]\n"
-             "       thermorph_bench refine CASE [--levels N] [--cold-start] [--set KEY=VALUE]...\n");
+             "       thermorph_bench refine CASE [--levels N] [--cold-start] [--set KEY=VALUE]...\n"
+             "       thermorph_bench refined CASE [--factor N] [--steady] [--no-run] [--set KEY=VALUE]...\n");
   return 2;
 }
