@@ -19,6 +19,7 @@
 #include <fstream>
 #include <memory>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "drivers/refine.hpp"
@@ -236,6 +237,24 @@ TEST_CASE("thermorph refine: warm-started levels give the cold-started table, an
   fs::remove_all(dir);
 }
 
+namespace {
+//! The case's steady state (runSteady) or its transient run after a steady start (runTransient, the steady state
+//! kept), warm (the default, RunOptions::coarseSteadyStart) and cold (`--cold-start`), both complete.
+std::pair<RunSummary, RunSummary> warmAndCold(const Body& body, bool transient) {
+  std::pair<RunSummary, RunSummary> out;
+  for (bool warm : {true, false}) {
+    RunOptions options;
+    options.quiet = true;
+    options.keepSteadyState = transient;
+    options.coarseSteadyStart = warm;
+    body.setInterval(0);
+    (warm ? out.first : out.second) = transient ? runTransient(body, options) : runSteady(body, options);
+    REQUIRE((warm ? out.first : out.second).complete);
+  }
+  return out;
+}
+}  // namespace
+
 TEST_CASE("A run on a refined grid (run.grid_refinement) finds its steady start from the unrefined grid's steady state",
           "[refine][warm]") {
   // `thermorph run`/`steady --set run.grid_refinement=N` and the fit's grid check (RunOptions::coarseSteadyStart,
@@ -253,13 +272,7 @@ TEST_CASE("A run on a refined grid (run.grid_refinement) finds its steady start 
                                         "cylinder.toml");
       REQUIRE(c.run.appliedRefinement == n);
       Body body(c);
-      RunOptions warmOptions, coldOptions;
-      warmOptions.quiet = coldOptions.quiet = true;
-      coldOptions.coarseSteadyStart = false;
-      const RunSummary warm = runSteady(body, warmOptions);
-      const RunSummary cold = runSteady(body, coldOptions);
-      REQUIRE(warm.complete);
-      REQUIRE(cold.complete);
+      const auto [warm, cold] = warmAndCold(body, false);
       const double difference = largestDifference(warm.finalState, cold.finalState, cold.finalState.size());
       std::printf("[refine warm] run.grid_refinement = %d, q10 %g: cold %ld relaxation steps, %ld Newton iterations, "
                   "%ld right-hand sides; 1x (%ld relaxation steps, %ld Newton iterations), then %ld steps, %ld Newton "
@@ -300,14 +313,7 @@ TEST_CASE("A run on a refined grid (run.grid_refinement) finds its steady start 
   // The transient run's steady start (initial = "steady", `thermorph run`): the same warm start, the same state.
   const Case c = loadCaseFromString(cylinderCase(2.0, "grid_refinement = 4\n"), "cylinder.toml");
   Body body(c);
-  RunOptions warmOptions, coldOptions;
-  warmOptions.quiet = coldOptions.quiet = true;
-  warmOptions.keepSteadyState = coldOptions.keepSteadyState = true;
-  coldOptions.coarseSteadyStart = false;
-  const RunSummary warm = runTransient(body, warmOptions);
-  const RunSummary cold = runTransient(body, coldOptions);
-  REQUIRE(warm.complete);
-  REQUIRE(cold.complete);
+  const auto [warm, cold] = warmAndCold(body, true);
   CHECK(warm.steadyWarm);
   CHECK_FALSE(cold.steadyWarm);
   CHECK(warm.steadyStatistics.nonlinearIterations < cold.steadyStatistics.nonlinearIterations);

@@ -404,6 +404,7 @@ int refinedTable(const std::string& path, int factor, const std::vector<std::str
   for (const Controller& k : body.network().controllers) guess.push_back(k.initial);
   std::vector<double> cold;
   for (const bool warmStart : {false, true}) {
+    body.setInterval(0);  // the surroundings of t = 0 (the cold run before left the body at its last interval)
     const double c0 = cpuSeconds();
     SolverStatistics coarse, st;
     const std::vector<double> warm = warmStart ? coarseGuess(body, &coarse) : std::vector<double>{};
@@ -421,6 +422,7 @@ int refinedTable(const std::string& path, int factor, const std::vector<std::str
       RunOptions run;
       run.quiet = true;
       setCoarseSteadyStart(run, warmStart);
+      body.setInterval(0);
       const double r0 = cpuSeconds();
       const RunSummary summary = steady ? runSteady(body, run) : runTransient(body, run);
       runCpu = cpuSeconds() - r0;
