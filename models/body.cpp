@@ -568,7 +568,9 @@ void Body::attachChildren() {
   //     q_i = sum_r G_r w_ri (T_r - Tbar_r),   Tbar_r = sum_j w_rj T_j,
   // which conserves energy exactly (sum_i q_i is what the child loses). As a network it is a conductance G_r w_ri
   // from ring r to cell i plus a conductance -G_r w_ri w_rj between every pair of cells of ring r's region: per
-  // ring the rank-one form G_r (e_r - w_r)(e_r - w_r)^T, symmetric positive semi-definite. Without the pair terms
+  // ring the rank-one form G_r (e_r - w_r)(e_r - w_r)^T, symmetric positive semi-definite. The network holds the
+  // conductances to the cells and, per ring, G_r and the shares (Network::junctions): the pair part's flow
+  // G_r w_ri (S_r T_i - Tbar_r), S_r = sum_j w_rj, evaluated in O(m) (NetworkSystem). Without the pair terms
   // the child short-circuits the region cells through conductances that grow as its cells shrink (first order),
   // and a junction into one parent cell (or a point interpolated from a few) is a ring source in the parent's
   // (r, z) plane whose cell temperature falls like log(1/h): the junction flow did not converge.
@@ -645,25 +647,18 @@ void Body::attachChildren() {
       for (auto& c : out) c.second /= total;
       return out;
     };
-    // The pair terms, per copy of the child: both ends are parent cells, so the child's count is applied here
-    // (a conductance between groups carries its flow once per copy of the more numerous group). Summed over the
-    // child's rings, one conductance per pair of cells.
-    // The rings are also kept in rank-one form (Network::junctions): the transient solver's linear algebra takes
-    // them that way instead of as a dense block of pair entries over the region (solver/newton_solver.hpp).
-    std::map<std::pair<Index, Index>, double> pairs;
+    // The pair part, per copy of the child: both ends are parent cells, so the child's count is applied here
+    // (a conductance between groups carries its flow once per copy of the more numerous group). Kept per ring in
+    // rank-one form (Network::junctions, O(m) per ring of m region cells), not as a conductance between every two
+    // cells of the region (m^2/2 terms: the right-hand side's work and memory grew with the footprint's square).
     Junction junction;
     auto addPairs = [&](const std::vector<std::pair<Index, double>>& cells, double total) {
-      for (std::size_t i = 0; i < cells.size(); ++i)
-        for (std::size_t j = i + 1; j < cells.size(); ++j)
-          pairs[std::minmax(cells[i].first, cells[j].first)] -= s.count * total * cells[i].second * cells[j].second;
+      if (cells.size() < 2) return;  // one cell: no pair part (q = G (T_ring - T_cell) through the conductance)
       JunctionRing ring{s.count * total, {}};
       for (auto [node, w] : cells) ring.shares.emplace_back(static_cast<Index32>(node), w);
-      if (cells.size() > 1) junction.rings.push_back(std::move(ring));
+      junction.rings.push_back(std::move(ring));
     };
     auto flushPairs = [&]() {
-      junction.pairBegin = static_cast<Index32>(network_.conductances.size());
-      for (auto [ij, G] : pairs) network_.conductances.push_back({ij.first, ij.second, G, 0});
-      junction.pairEnd = static_cast<Index32>(network_.conductances.size());
       if (!junction.rings.empty()) network_.junctions.push_back(std::move(junction));
     };
     if (s.shape == Shape::Sphere) {

@@ -200,26 +200,26 @@ class SurfaceModel {
   virtual void setReporting(bool) const {}
 };
 
-//! One tissue ring of a junction (models/body.cpp Body::attachChildren): the pair conductances between the cells of
-//! its target region are -conductance w_i w_j (summed over the junction's rings into one term per pair), i.e. with
-//! the ring's conductances to the cells the rank-one form conductance (e_r - w)(e_r - w)^T.
+//! One tissue ring of a junction (models/body.cpp Body::attachChildren). The ring gives each cell i of its target
+//! region q_i = conductance w_i (T_ring - Tbar), Tbar = sum_j w_j T_j: through an ordinary conductance
+//! conductance * w_i from the ring's node to cell i (in Network::conductances) plus the pair part
+//! -conductance w_i (Tbar - S T_i), S = sum_j w_j, which the network keeps here in this rank-one form (O(m) per ring of
+//! m region cells) and NetworkSystem evaluates as such. As conductances the pair part is -conductance w_i w_j between
+//! every two region cells (m^2/2 terms): with the ring's conductances the rank-one form conductance (e_r - w)(e_r - w)^T.
 struct JunctionRing {
   double conductance = 0.0;                          //!< G_r per copy of the parent times the child's count [W/K]
-  std::vector<std::pair<Index32, double>> shares;    //!< (region cell, w_i), sum 1
+  std::vector<std::pair<Index32, double>> shares;    //!< (region cell, w_i), sum 1; all cells of one group
 };
 
-//! A junction: the pair conductances Network::conductances[pairBegin, pairEnd) are exactly the sums over `rings` of
-//! -conductance w_i w_j. The transient assembly keeps them out of the Jacobian's pattern (a dense block over the
-//! region) and hands them to the linear solver in rank-one form (NetworkSystem::junctionTerms).
+//! A junction: its rings' pair parts (JunctionRing), not in Network::conductances.
 struct Junction {
-  Index32 pairBegin = 0, pairEnd = 0;
   std::vector<JunctionRing> rings;
 };
 
 struct Network {
   std::vector<NetworkNode> nodes;
   std::vector<Conductance> conductances;
-  //! Junctions whose pair terms (a range of `conductances`) have a rank-one form (none for hand-built networks).
+  //! The junctions' pair parts in rank-one form (none for hand-built networks).
   std::vector<Junction> junctions;
   std::vector<Advection> advections;
   std::vector<BoundaryExchange> exchanges;
@@ -266,6 +266,7 @@ struct Network {
     faces.shrink_to_fit();
     flowParts.shrink_to_fit();
     namedNodes.shrink_to_fit();
+    junctions.shrink_to_fit();
   }
   //! The index of the Q10 law (q10, reference temperature) in q10Laws, added if new (a NaN Q10 matches a NaN).
   Index q10Law(double q10, double referenceTemperature) {

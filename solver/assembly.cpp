@@ -18,15 +18,10 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
   const bool transient = mode == Mode::Transient;
   groups_ = transient ? network.groups.size() : 0;
   {
-    // The junctions' pair terms in rank-one form: J = J_pattern + sum over rings of u v^T, u = -G_r w / C
-    // (steady: -G_r w), v = w (the pair conductance -G_r w_i w_j between cells i and j of the region, i != j, is
-    // u_i v_j C_i; its diagonal part stays in the pattern, with the remainder G_r w_i^2 that u_i v_i takes away:
-    // jacobian()).
+    // The junctions' pair parts in rank-one form: J = J_pattern + sum over rings of u v^T, u = -G_r w / C
+    // (steady: -G_r w), v = w (d q_i / d T_j = -G_r w_i w_j + delta_ij G_r w_i S_r for q_i = G_r w_i (S_r T_i -
+    // Tbar_r): the diagonal part G_r w_i S_r stays in the pattern, jacobian()).
     for (const Junction& j : network.junctions) {
-      if (j.pairEnd > network.conductances.size() || j.pairBegin > j.pairEnd ||
-          (!pairRanges_.empty() && j.pairBegin < pairRanges_.back().second))
-        throw std::invalid_argument("a junction's pair terms are not an ascending range of the conductances");
-      pairRanges_.emplace_back(j.pairBegin, j.pairEnd);
       for (const JunctionRing& ring : j.rings) {
         RankOneTerm t;
         for (auto [node, w] : ring.shares) {
@@ -88,12 +83,10 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       }
     };
     for (Index i = 0; i < pattern_.size; ++i) add(i, i);
-    forEachConductance([&](Index k, bool pair) {
-      if (pair) return;  // in rank-one form (junctionTerms_)
-      const Conductance& c = network.conductances[k];
+    for (const Conductance& c : network.conductances) {
       add(c.a, c.b);
       add(c.b, c.a);
-    });
+    }
     for (const Advection& a : network.advections) {
       const bool cancels = viaCancels(a);
       forEachHop(a, [&](Index from, Index to) {
@@ -355,6 +348,9 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
       toGroup(c.b, c.channel, -f.b * q);
     }
   }
+  // The junction rings' pair parts, O(m) per ring (within the parent's group: no budget or group-energy rows).
+  for (const Junction& j : network_.junctions)
+    for (const JunctionRing& ring : j.rings) ringFlows(ring, T, [&](Index node, double q) { out[node] += q; });
   for (const Advection& a : network_.advections) {
     double F = a.flowCapacity + partsValue(a.partsBegin, a.partsEnd, modulators_);
     forEachHop(a, [&](Index from, Index to) {
@@ -442,27 +438,28 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     const Index r = groupRowOf(node);
     if (r != none && col != none) values[position(r + channel, col)] += d;
   };
-  forEachConductance([&](Index k, bool pair) {
-    const Conductance& c = network_.conductances[k];
+  for (const Conductance& c : network_.conductances) {
     const double G = c.conductance;
     const auto [fa, fb] = conductanceFactors(c);
     add(c.a, c.a, -fa * G);
-    if (!pair) add(c.a, c.b, fa * G);
+    add(c.a, c.b, fa * G);
     add(c.b, c.b, -fb * G);
-    if (!pair) add(c.b, c.a, fb * G);
+    add(c.b, c.a, fb * G);
     if (!transient || network_.nodes[c.a].group == network_.nodes[c.b].group)
-      return;  // no group-energy entries within a group
+      continue;  // no group-energy entries within a group
     toGroup(c.a, c.channel, c.a, -fa * G);
     toGroup(c.a, c.channel, c.b, fa * G);
     toGroup(c.b, c.channel, c.a, fb * G);
     toGroup(c.b, c.channel, c.b, -fb * G);
-  });
-  // The junction rings' rank-one terms -G_r w w^T (junctionTerms_, before the row scaling) put -G_r w_i^2 on the
-  // diagonal, which the pair terms' diagonal above does not hold: that part back here.
-  if (!junctionTerms_.empty())
-    for (const Junction& j : network_.junctions)
-      for (const JunctionRing& ring : j.rings)
-        for (auto [node, w] : ring.shares) add(node, node, ring.conductance * w * w);
+  }
+  // The junction rings' pair parts q_i = G_r w_i (S_r T_i - Tbar_r): the diagonal G_r w_i S_r here, the rest
+  // -G_r w w^T in rank-one form (junctionTerms_, before the row scaling).
+  for (const Junction& j : network_.junctions)
+    for (const JunctionRing& ring : j.rings) {
+      double sum = 0.0;
+      for (auto [node, w] : ring.shares) sum += w;
+      for (auto [node, w] : ring.shares) add(node, node, ring.conductance * w * sum);
+    }
   // Flow parts with a control of a term into `row` of budget `channel`.
   auto partDerivatives = [&](Index begin, Index end, Index row, Index channel, double difference, double weight) {
     for (Index p = begin; p < end; ++p) {
@@ -572,6 +569,8 @@ void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span
       at(c.b, c.channel) -= fb * q;
     }
   }
+  for (const Junction& j : network_.junctions)  // within the parent's group: its storage, no channel
+    for (const JunctionRing& ring : j.rings) ringFlows(ring, T, [&](Index node, double q) { rate[node] += q; });
   for (const Advection& a : network_.advections) {
     const double F = a.flowCapacity + partsValue(a.partsBegin, a.partsEnd, modulators_);
     forEachHop(a, [&](Index from, Index to) {
@@ -666,6 +665,16 @@ std::string structuralDifference(const Network& a, const Network& b) {
   for (Index i = 0; i < a.conductances.size(); ++i) {
     const Conductance &x = a.conductances[i], &y = b.conductances[i];
     if (x.a != y.a || x.b != y.b || x.channel != y.channel) return "conductances join other nodes";
+  }
+  if (a.junctions.size() != b.junctions.size()) return "the number of nodes or terms differs (cell counts, segments or vessels)";
+  for (Index j = 0; j < a.junctions.size(); ++j) {
+    const auto &x = a.junctions[j].rings, &y = b.junctions[j].rings;
+    if (x.size() != y.size()) return "a child's junction meets other cells of its parent";
+    for (Index r = 0; r < x.size(); ++r) {
+      if (x[r].shares.size() != y[r].shares.size()) return "a child's junction meets other cells of its parent";
+      for (Index k = 0; k < x[r].shares.size(); ++k)
+        if (x[r].shares[k].first != y[r].shares[k].first) return "a child's junction meets other cells of its parent";
+    }
   }
   for (Index i = 0; i < a.advections.size(); ++i) {
     const Advection &x = a.advections[i], &y = b.advections[i];
@@ -769,6 +778,18 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
         toGroup(c.b, c.channel, -fb * q);
       }
     }
+    // The junction rings' pair parts: their flows with the rings of p + h and of p - h (equal structure), differenced
+    // share by share (linear in the ring's conductance, as the pair conductances' difference was).
+    for (std::size_t jj = 0; jj < network_.junctions.size(); ++jj)
+      for (std::size_t r = 0; r < network_.junctions[jj].rings.size(); ++r) {
+        const JunctionRing &ringP = P.junctions[jj].rings[r], &ringM = M.junctions[jj].rings[r];
+        if (ringP.conductance == ringM.conductance && ringP.shares == ringM.shares) continue;
+        std::vector<double>& flowsP = ringScratch_;
+        flowsP.clear();
+        ringFlows(ringP, T, [&](Index, double q) { flowsP.push_back(q); });
+        std::size_t k = 0;
+        ringFlows(ringM, T, [&](Index node, double q) { out[node] += (flowsP[k++] - q) / h; });
+      }
     for (std::size_t k = 0; k < network_.advections.size(); ++k) {
       const Advection& a = network_.advections[k];
       const double dF =

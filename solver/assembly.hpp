@@ -73,9 +73,9 @@ class NetworkSystem {
   //! Jacobian values in the order of pattern().rowIndex [nonzeros]; with junctionTerms() the Jacobian is these plus
   //! the junctions' rank-one terms.
   void jacobian(double time, std::span<const double> state, std::span<double> values) const;
-  //! The junctions' pair terms (Network::junctions) are not in the pattern; the Jacobian is J = J_pattern + sum
+  //! The junctions' pair parts (Network::junctions) are not in the pattern; the Jacobian is J = J_pattern + sum
   //! u v^T over these terms (constant: u = -G_r w_r / C, steady -G_r w_r, v = w_r per junction ring, the pattern's
-  //! diagonal carrying the remainder G_r w_i^2 (/ C)). A pair term couples every two cells of a ring's region: as
+  //! diagonal carrying G_r w_i S_r (/ C), S_r = sum of the ring's shares). A pair term couples every two cells of a ring's region: as
   //! pattern entries a dense block of m^2 entries per region, m^3/3 flops in the factorisation whatever the order.
   //! Each term's u and v list the same region cells in the same order (u[k].first == v[k].first).
   const std::vector<RankOneTerm>& junctionTerms() const { return junctionTerms_; }
@@ -138,18 +138,19 @@ class NetworkSystem {
   double controlTarget(const Controller& c, double time, std::span<const double> state, bool* active) const;
   Index controlColumn(Index modulator) const;  //!< state column of the modulator's control, or none
 
-  //! [begin, end) of Network::conductances: the junctions' pair terms in rank-one form, ascending.
-  std::vector<std::pair<Index, Index>> pairRanges_;
-  //! Calls visit(k, pair) for every conductance k in order, pair: it lies in one of pairRanges_.
+  //! Calls visit(node, q) for each share of a junction ring with the ring's pair-part flow into that region cell,
+  //! q_i = G w_i (S T_i - Tbar), Tbar = sum w_j T_j, S = sum w_j (Network::JunctionRing): O(m) per ring of m cells.
   template <class Visit>
-  void forEachConductance(Visit&& visit) const {
-    std::size_t range = 0;
-    for (Index k = 0; k < network_.conductances.size(); ++k) {
-      while (range < pairRanges_.size() && k >= pairRanges_[range].second) ++range;
-      visit(k, range < pairRanges_.size() && k >= pairRanges_[range].first);
+  static void ringFlows(const JunctionRing& ring, std::span<const double> T, Visit&& visit) {
+    double mean = 0.0, sum = 0.0;
+    for (auto [node, w] : ring.shares) {
+      mean += w * T[node];
+      sum += w;
     }
+    for (auto [node, w] : ring.shares) visit(Index{node}, ring.conductance * w * (sum * T[node] - mean));
   }
   std::vector<RankOneTerm> junctionTerms_;
+  mutable std::vector<double> ringScratch_;  //!< one ring's flows (parameterDerivatives)
 
   const Network& network_;
   Mode mode_;
