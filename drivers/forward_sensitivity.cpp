@@ -13,6 +13,7 @@
 #include "models/case.hpp"
 #include "solver/assembly.hpp"
 #include "solver/integrator.hpp"
+#include "solver/newton_solver.hpp"
 
 namespace thermorph {
 namespace {
@@ -166,24 +167,17 @@ std::vector<std::vector<double>> steadyDerivatives(const Body& body, std::span<c
   const SparsePattern& pattern = steady.pattern();
   std::vector<double> values(pattern.nonzeros());
   steady.jacobian(0.0, y, values);
+  // The Newton solver's matrix (AugmentedMatrix, alpha = 0, beta = 1: J itself), with the junctions' rank-one terms
+  // u v^T (NetworkSystem::junctionTerms) as the augmented system [J_s U; V^T -I], one auxiliary unknown z = v . x
+  // per term: its first n components solve J x = b (block elimination).
+  AugmentedMatrix aug(pattern, n, steady.junctionTerms());
+  aug.setValues(values, 0.0, 1.0);
+  std::vector<double>().swap(values);
+  const Index augmented = aug.size();
   using Matrix = Eigen::SparseMatrix<double, Eigen::ColMajor, int>;
-  std::vector<Eigen::Triplet<double, int>> entries;
-  entries.reserve(values.size());
-  for (Index col = 0; col < n; ++col)
-    for (Index p = pattern.columnStart[col]; p < pattern.columnStart[col + 1]; ++p)
-      entries.emplace_back(static_cast<int>(pattern.rowIndex[p]), static_cast<int>(col), values[p]);
-  // The junctions' rank-one terms u v^T (NetworkSystem::junctionTerms) as the augmented system [J_s U; V^T -I]
-  // with one auxiliary unknown z = v . x per term: its first n components solve J x = b (block elimination).
-  const auto& terms = steady.junctionTerms();
-  const Index augmented = n + terms.size();
-  for (Index t = 0; t < terms.size(); ++t) {
-    const int aux = static_cast<int>(n + t);
-    for (auto [row, u] : terms[t].u) entries.emplace_back(static_cast<int>(row), aux, u);
-    for (auto [col, v] : terms[t].v) entries.emplace_back(aux, static_cast<int>(col), v);
-    entries.emplace_back(aux, aux, -1.0);
-  }
-  Matrix J(static_cast<int>(augmented), static_cast<int>(augmented));
-  J.setFromTriplets(entries.begin(), entries.end());
+  const Matrix J = Eigen::Map<const Matrix>(static_cast<int>(augmented), static_cast<int>(augmented),
+                                            static_cast<int>(aug.nonzeros()), aug.start.data(), aug.row.data(),
+                                            aug.value.data());
   Eigen::SparseLU<Matrix> lu;
   lu.compute(J);
   if (lu.info() != Eigen::Success)

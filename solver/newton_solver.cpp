@@ -200,6 +200,81 @@ constexpr Index kMaxBorder = 16;
 
 }  // namespace
 
+AugmentedMatrix::AugmentedMatrix(const SparsePattern& pattern, Index factored, std::span<const RankOneTerm> rankOne)
+    : pattern_(pattern), factored_(factored) {
+  for (const RankOneTerm& t : rankOne)
+    if (!t.u.empty() && !t.v.empty()) ++terms_;
+  if (factored > pattern.size || factored + terms_ > static_cast<Index>(std::numeric_limits<int>::max()) ||
+      pattern.nonzeros() > static_cast<Index>(std::numeric_limits<int>::max()))
+    throw std::invalid_argument("the Newton matrix is too large for KLU's 32-bit interface");
+  // The V^T rows of each leading column (term order, so ascending rows).
+  std::vector<std::vector<std::pair<int, double>>> extra(terms_ > 0 ? factored : 0);
+  Index t = 0;
+  for (const RankOneTerm& term : rankOne) {
+    if (term.u.empty() || term.v.empty()) continue;
+    for (auto [col, v] : term.v) {
+      if (col >= factored) throw std::invalid_argument("a rank-one term lies outside the factorised block");
+      extra[col].emplace_back(static_cast<int>(factored + t), v);
+    }
+    ++t;
+  }
+  start.assign(factored + terms_ + 1, 0);
+  blockCount_.assign(factored, 0);
+  for (Index c = 0; c < factored; ++c) {
+    Index k = pattern.columnStart[c];
+    for (; k < pattern.columnStart[c + 1] && pattern.rowIndex[k] < factored; ++k) row.push_back(static_cast<int>(pattern.rowIndex[k]));
+    blockCount_[c] = static_cast<int>(k - pattern.columnStart[c]);
+    if (terms_ > 0)
+      for (auto [r, v] : extra[c]) {
+        if (!row.empty() && row.back() == r) throw std::invalid_argument("a rank-one term repeats a column");
+        row.push_back(r);
+      }
+    start[c + 1] = static_cast<int>(row.size());
+  }
+  value.assign(row.size(), 0.0);
+  if (terms_ == 0) return;
+  for (Index c = 0; c < factored; ++c) {
+    int q = start[c] + blockCount_[c];
+    for (auto [r, v] : extra[c]) value[static_cast<std::size_t>(q++)] = v;
+  }
+  t = 0;
+  for (const RankOneTerm& term : rankOne) {
+    if (term.u.empty() || term.v.empty()) continue;
+    std::vector<std::pair<Index, double>> u(term.u.begin(), term.u.end());
+    std::sort(u.begin(), u.end());
+    std::vector<double> values;
+    for (std::size_t k = 0; k < u.size(); ++k) {
+      if (u[k].first >= factored || (k > 0 && u[k].first == u[k - 1].first))
+        throw std::invalid_argument("a rank-one term lies outside the factorised block or repeats a row");
+      row.push_back(static_cast<int>(u[k].first));
+      values.push_back(u[k].second);
+    }
+    row.push_back(static_cast<int>(factored + t));
+    start[factored + t + 1] = static_cast<int>(row.size());
+    termU_.push_back(std::move(values));
+    ++t;
+  }
+  value.resize(row.size(), -1.0);
+}
+
+void AugmentedMatrix::setValues(std::span<const double> jacobian, double alpha, double beta) {
+  // The arithmetic of SUNDIALS' SUNMatScaleAddI on a copy of J: beta J, plus alpha on the diagonal.
+  for (Index c = 0; c < factored_; ++c) {
+    const Index first = pattern_.columnStart[c];
+    double* column = value.data() + start[c];
+    const int* rows = row.data() + start[c];
+    for (int k = 0; k < blockCount_[c]; ++k) {
+      const double v = beta * jacobian[first + static_cast<Index>(k)];
+      column[k] = rows[k] == static_cast<int>(c) ? v + alpha : v;
+    }
+  }
+  for (Index t = 0; t < terms_; ++t) {
+    const std::vector<double>& u = termU_[t];
+    double* column = value.data() + start[factored_ + t];
+    for (std::size_t k = 0; k < u.size(); ++k) column[k] = beta * u[k];
+  }
+}
+
 NewtonSolver::NewtonSolver(const SparsePattern& pattern, Index factored, int scale, std::span<const RankOneTerm> rankOne)
     : pattern_(pattern), factored_(factored), klu_(std::make_unique<Klu>()) {
   for (const RankOneTerm& t : rankOne)
@@ -292,60 +367,8 @@ NewtonSolver::NewtonSolver(const SparsePattern& pattern, Index factored, int sca
     while (k < pattern.columnStart[c + 1] && pattern.rowIndex[k] < factored) ++k;
     blockStart_[c + 1] = blockStart_[c] + static_cast<int>(k - pattern.columnStart[c]);
   }
-  blockRow_.resize(static_cast<std::size_t>(blockStart_[factored]));
-  for (Index c = 0; c < factored; ++c)
-    for (int k = 0; k < blockStart_[c + 1] - blockStart_[c]; ++k)
-      blockRow_[static_cast<std::size_t>(blockStart_[c] + k)] = static_cast<int>(pattern.rowIndex[pattern.columnStart[c] + k]);
-  blockValues_.resize(blockRow_.size());
-  if (terms_ > 0) {
-    // The augmented matrix: leading column c holds A_ff's rows, then row factored + t with v_t[c] for each term t
-    // that has c; term column factored + t holds u_t's rows (ascending) and its -1 on the diagonal.
-    if (factored + terms_ > static_cast<Index>(std::numeric_limits<int>::max()))
-      throw std::invalid_argument("the Newton matrix is too large for KLU's 32-bit interface");
-    std::vector<std::vector<std::pair<int, double>>> extra(factored);
-    Index t = 0;
-    for (const RankOneTerm& term : rankOne) {
-      if (term.u.empty() || term.v.empty()) continue;
-      for (auto [col, v] : term.v) {
-        if (col >= factored) throw std::invalid_argument("a rank-one term lies outside the factorised block");
-        extra[col].emplace_back(static_cast<int>(factored + t), v);
-      }
-      ++t;
-    }
-    augStart_.assign(factored + terms_ + 1, 0);
-    for (Index c = 0; c < factored; ++c) {
-      augStart_[c + 1] = augStart_[c] + (blockStart_[c + 1] - blockStart_[c]) + static_cast<int>(extra[c].size());
-      for (int k = blockStart_[c]; k < blockStart_[c + 1]; ++k) augRow_.push_back(blockRow_[static_cast<std::size_t>(k)]);
-      for (auto [row, v] : extra[c]) {
-        if (!augRow_.empty() && augRow_.back() == row) throw std::invalid_argument("a rank-one term repeats a column");
-        augRow_.push_back(row);
-      }
-    }
-    augValues_.assign(augRow_.size(), 0.0);
-    for (Index c = 0; c < factored; ++c) {
-      int q = augStart_[c] + (blockStart_[c + 1] - blockStart_[c]);
-      for (auto [row, v] : extra[c]) augValues_[static_cast<std::size_t>(q++)] = v;
-    }
-    t = 0;
-    for (const RankOneTerm& term : rankOne) {
-      if (term.u.empty() || term.v.empty()) continue;
-      std::vector<std::pair<Index, double>> u(term.u.begin(), term.u.end());
-      std::sort(u.begin(), u.end());
-      std::vector<double> values;
-      for (std::size_t k = 0; k < u.size(); ++k) {
-        if (u[k].first >= factored || (k > 0 && u[k].first == u[k - 1].first))
-          throw std::invalid_argument("a rank-one term lies outside the factorised block or repeats a row");
-        augRow_.push_back(static_cast<int>(u[k].first));
-        values.push_back(u[k].second);
-      }
-      augRow_.push_back(static_cast<int>(factored + t));
-      augStart_[factored + t + 1] = static_cast<int>(augRow_.size());
-      termU_.push_back(std::move(values));
-      ++t;
-    }
-    augValues_.resize(augRow_.size(), -1.0);
-    augWork_.resize(factored + terms_);
-  }
+  matrix_ = std::make_unique<AugmentedMatrix>(pattern, factored, rankOne);
+  if (terms_ > 0) augWork_.resize(factored + terms_);
   klu_defaults(&klu_->common);
   klu_->common.ordering = 0;  // AMD
   klu_->common.scale = scale;
@@ -374,24 +397,7 @@ void NewtonSolver::setMatrix(std::span<const double> jacobian, double alpha, dou
     b.factored = false;
     return;
   }
-  // The arithmetic of SUNDIALS' SUNMatScaleAddI on a copy of J: beta J, plus alpha on the diagonal.
-  for (Index c = 0; c < factored_; ++c) {
-    const Index first = pattern_.columnStart[c];
-    for (int k = blockStart_[c]; k < blockStart_[c + 1]; ++k) {
-      const double v = beta * jacobian[first + static_cast<Index>(k - blockStart_[c])];
-      blockValues_[static_cast<std::size_t>(k)] = blockRow_[static_cast<std::size_t>(k)] == static_cast<int>(c) ? v + alpha : v;
-    }
-  }
-  if (terms_ == 0) return;
-  // The augmented matrix: A_ff's values, the V^T rows (constant, set once), beta u and the -1 of each term.
-  for (Index c = 0; c < factored_; ++c)
-    std::copy(blockValues_.begin() + blockStart_[c], blockValues_.begin() + blockStart_[c + 1],
-              augValues_.begin() + augStart_[c]);
-  for (Index t = 0; t < terms_; ++t) {
-    const std::vector<double>& u = termU_[t];
-    double* column = augValues_.data() + augStart_[factored_ + t];
-    for (std::size_t k = 0; k < u.size(); ++k) column[k] = beta * u[k];
-  }
+  matrix_->setValues(jacobian, alpha, beta);
 }
 
 bool NewtonSolver::factor() {
@@ -446,12 +452,11 @@ bool NewtonSolver::factor() {
     return true;
   }
   Klu& k = *klu_;
-  const bool augmented = terms_ > 0;
-  std::vector<int>& starts = augmented ? augStart_ : blockStart_;
-  std::vector<int>& rows = augmented ? augRow_ : blockRow_;
+  std::vector<int>& starts = matrix_->start;
+  std::vector<int>& rows = matrix_->row;
   int* Ap = starts.data();
   int* Ai = rows.data();
-  double* Ax = augmented ? augValues_.data() : blockValues_.data();
+  double* Ax = matrix_->value.data();
   if (fresh_ || !k.symbolic || !k.numeric) {
     k.symbolic.reset();
     const bool shareable = kluSize() <= kSharedAnalysisLimit;

@@ -31,6 +31,37 @@ struct _SUNContext;
 
 namespace thermorph {
 
+//! The matrix that NewtonSolver's KLU path factorises, A = alpha I + beta J on the leading block [0, factored),
+//! with rank-one terms u v^T of J that the pattern leaves out (NetworkSystem::junctionTerms) as the augmented matrix
+//!   [ A_ff     beta U ]
+//!   [ V^T        -I   ]     (one auxiliary row and column per term: z_t = v_t . x),
+//! in compressed columns with 32-bit indices (KLU's int interface; Eigen::SparseMatrix<double, ColMajor, int>):
+//! leading column c holds A_ff's rows (J's rows below `factored`, ascending) then row factored + t with v_t[c] for
+//! each term t that has c; term column factored + t holds u_t's rows (ascending) and its -1 on the diagonal. One
+//! builder for the transient and steady Newton solves and the steady implicit-function sensitivities
+//! (drivers/forward_sensitivity.cpp), so that all factorise the same matrix. Without terms: A_ff alone.
+class AugmentedMatrix {
+ public:
+  //! `pattern`: J's CSC pattern (kept by reference); terms with an empty u or v are left out. std::invalid_argument
+  //! if a term leaves the leading block, repeats a row or column, or the matrix is too large for 32 bits.
+  AugmentedMatrix(const SparsePattern& pattern, Index factored, std::span<const RankOneTerm> rankOne = {});
+  //! The values from J's (pattern order): beta J, plus alpha on the diagonal (the arithmetic of SUNDIALS'
+  //! SUNMatScaleAddI), and beta u; the V^T rows and the -1 are constant.
+  void setValues(std::span<const double> jacobian, double alpha, double beta);
+  Index size() const { return factored_ + terms_; }
+  Index factored() const { return factored_; }
+  Index terms() const { return terms_; }
+  Index nonzeros() const { return row.size(); }
+  std::vector<int> start, row;  //!< column starts [size + 1], rows [nonzeros]
+  std::vector<double> value;    //!< [nonzeros]
+
+ private:
+  const SparsePattern& pattern_;
+  Index factored_ = 0, terms_ = 0;
+  std::vector<int> blockCount_;              //!< A_ff's entries in each leading column
+  std::vector<std::vector<double>> termU_;   //!< u of each term in the order of its column's rows
+};
+
 class NewtonSolver {
  public:
   //! `pattern`: the Jacobian's CSC pattern (kept by reference); `factored`: the leading block [0, factored) that
@@ -91,14 +122,10 @@ class NewtonSolver {
  private:
   const SparsePattern& pattern_;
   Index factored_ = 0;
-  std::vector<int> blockStart_, blockRow_;  //!< CSC pattern of A_ff (KLU's int interface)
-  std::vector<double> blockValues_;
-  //! With rank-one terms: the augmented matrix of size factored_ + terms that KLU factorises (CSC, each leading
-  //! column A_ff's entries then its V^T rows; then one column per term, beta u and the -1), and a work vector.
+  std::vector<int> blockStart_;  //!< A_ff's entries in each leading column, cumulated (the pattern's first ones)
+  //! The matrix KLU factorises: A_ff, with rank-one terms augmented (AugmentedMatrix); and a work vector.
+  std::unique_ptr<AugmentedMatrix> matrix_;
   Index terms_ = 0;
-  std::vector<int> augStart_, augRow_;
-  std::vector<double> augValues_;
-  std::vector<std::vector<double>> termU_;  //!< u of each term in the order of its column's rows
   mutable std::vector<double> augWork_;
   Index kluSize() const { return factored_ + terms_; }
   //! A_ef row by row (systems of up to 5000 components; larger ones go column by column and keep no copy): for
