@@ -805,6 +805,81 @@ void checkTucking(const CaseReader& reader, const toml::array& segArray, const C
   }
 }
 
+//! A child's footprint on its parent that the junction cannot represent (a warning each, at the child's table).
+//! The model joins a child along its parent's side over the child's footprint (models/body.cpp footprintShares):
+//! a length l along the parent's axis (a plate's width, a cylinder's or cone's outer diameter, a sphere's contact
+//! patch) across which the child's heat enters, and a cross-section cut out of the parent's side there.
+//!  - Along the axis: l > 2 D and l > L / 4, with D the parent's outer diameter (coat included; a plate parent:
+//!    its width) at attach_position and L its length. Heat that enters a cylinder through a patch spreads through
+//!    its cross-section within about a diameter, so a footprint longer than two of the parent's diameters places the
+//!    child's heat along the parent's axial profile, not at a joint; over a quarter of the parent's length that
+//!    profile changes across it. A wide foot at the end of a thin leg (3 cm on a 0.6-0.7 cm leg of 6 cm): its heat
+//!    enters along half the leg. The examples stay below both (l / D at most 1.4, a head on a neck).
+//!  - Across the axis: the child's cross-section (the area cut from the parent's side) exceeds the parent's side
+//!    under the footprint, perimeter x l: a plate thicker than the parent's circumference, a disc of radius above
+//!    2 D. The footprint cannot lie on the parent however it wraps round it (the model keeps 10 % of the side
+//!    exposed and goes on).
+//! Sphere parents have one axial cell (no axial footprint) and are not checked.
+void checkFootprints(const CaseReader& reader, const toml::array& segArray, Case& c) {
+  constexpr double pi = std::numbers::pi;
+  for (std::size_t i = 0; i < c.segments.size(); ++i) {
+    const SegmentSpec& s = c.segments[i];
+    if (s.parent.empty()) continue;
+    const auto parent = std::find_if(c.segments.begin(), c.segments.end(),
+                                     [&](const SegmentSpec& p) { return p.name == s.parent; });
+    if (parent == c.segments.end() || parent->shape == Shape::Sphere) continue;
+    const SegmentSpec& p = *parent;
+    const double coat = s.coat ? s.coat->thickness : 0.0, parentCoat = p.coat ? p.coat->thickness : 0.0;
+    // The child's footprint: its length along the parent's axis and its cross-section (as models/body.cpp).
+    const double outer = s.tissueRadius() + coat;
+    double length = 0.0, section = 0.0;
+    if (s.shape == Shape::Sphere) {
+      const double a = s.contactRadius.value_or(std::min(s.tissueRadius(), p.tissueRadius()));
+      length = 2.0 * a;
+      section = pi * a * a;
+    } else if (s.shape == Shape::Plate) {
+      length = s.width;
+      section = 2.0 * s.width * outer;
+    } else {
+      length = 2.0 * outer;
+      section = pi * outer * outer;
+    }
+    // The parent at the attachment: its outer diameter (a plate: its width) and perimeter.
+    double diameter = 0.0, perimeter = 0.0;
+    if (p.shape == Shape::Plate) {
+      diameter = p.width;
+      perimeter = 2.0 * (p.width + 2.0 * (p.tissueRadius() + parentCoat));
+    } else {
+      const double r = p.shape == Shape::Cone
+                           ? p.radiusProximal + (p.radiusDistal - p.radiusProximal) * s.attachPosition
+                           : p.tissueRadius();
+      diameter = 2.0 * (r + parentCoat);
+      perimeter = pi * diameter;
+    }
+    const std::string where = reader.location(segArray[i].as_table());
+    const char* measure = s.shape == Shape::Plate    ? "its width"
+                          : s.shape == Shape::Sphere ? "its contact patch's diameter"
+                                                     : "its outer diameter";
+    if (length > 2.0 * diameter && length > 0.25 * p.length)
+      c.warnings.push_back(fmt::format(
+          "{}: segment {}: its footprint on {} runs {:.3g} cm along {}'s axis ({}), {:.2g} times {}'s diameter there "
+          "({:.3g} cm) and {:.0f} % of its length: the model joins a child along its parent's side over that length, "
+          "so {}'s heat enters along that part of {} instead of at a joint of {}'s size (a wide child at the end of "
+          "a thin parent, such as a broad foot on a thin leg, joins through the parent's end). Check how the results "
+          "change with a narrower footprint (a footprint over 2 diameters and a quarter of the length warns)",
+          where, s.name, p.name, 100.0 * length, p.name, measure, length / diameter, p.name, 100.0 * diameter,
+          100.0 * std::min(1.0, length / p.length), s.name, p.name, p.name));
+    if (section > perimeter * length)
+      c.warnings.push_back(fmt::format(
+          "{}: segment {}: its cross-section ({:.3g} cm2) is larger than {}'s side under its footprint ({:.3g} cm2: "
+          "{}'s perimeter {:.3g} cm times the footprint's {:.3g} cm along its axis): the child is wider than {}'s "
+          "circumference allows, so its junction cannot lie on {} (the model keeps 10 % of the side exposed); check "
+          "the sizes of both",
+          where, s.name, 1e4 * section, p.name, 1e4 * perimeter * length, p.name, 100.0 * perimeter, 100.0 * length,
+          p.name, p.name));
+  }
+}
+
 //! Provenance: SHA-256 of the case text and of every file the case (overrides applied) reads.
 void recordInputs(Case& c, const toml::table& root, const std::string& text) {
   // Sweeps, fits and sensitivity runs load the same text once per run: its digest is kept per thread.
@@ -1007,6 +1082,7 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
                 fmt::format("the body has {} cells; the limit is {} (reduce axial_cells or layer cells)", cells,
                             maxCells));
   validateTree(reader, segArray, c);
+  checkFootprints(reader, segArray, c);
   for (const char* key : {"core_segment", "respiratory_segment"}) {
     std::string name = key == std::string("core_segment") ? c.body.coreSegment : c.body.respiratorySegment;
     if (!name.empty() && !names.count(name))

@@ -117,7 +117,15 @@ constexpr std::array params = {
           "(Incropera et al. 2007, Table 4.1 case 10; k of that tissue). Default: the smaller of the sphere's and the "
           "parent's tissue radius (plate: half-thickness); at most the sphere's tissue radius."},
     Param{"segments[].attach_position", K::Number, "", "0.5", 0, 1, false, "",
-          "Where along the parent's length the segment attaches (0 proximal, 1 distal)."},
+          "Where along the parent's length the segment attaches (0 proximal, 1 distal). The child joins the "
+          "parent's side over its footprint, centred here (moved inside the parent's length at its ends): along the "
+          "parent's axis a plate's width, a cylinder's or cone's outer diameter, a sphere's contact patch. `check` "
+          "and `run` warn (at the child's [[segments]] line) when that footprint runs more than twice the parent's "
+          "outer diameter there and more than a quarter of its length (heat entering a cylinder spreads through its "
+          "cross-section within about a diameter, so the child's heat is placed along the parent, not at a joint: "
+          "a 3 cm wide foot plate at the end of a 0.6 cm thick, 6 cm leg heats half the leg), or when the child's "
+          "cross-section exceeds the parent's side under the footprint (wider than the parent's circumference "
+          "allows)."},
     Param{"segments[].attach_tissue", K::Text, "", "muscle", 0, 0, false, "",
           "Parent tissue layer the child's deep tissue meets at the junction (falls back to the innermost layer). "
           "Each tissue ring of the child's proximal face conducts to the parent's cells at its own depth under the "
