@@ -26,6 +26,11 @@ class BudgetRecorder {
   void compute(double t, std::span<const double> y, double initialStored, RunSummary& summary,
                std::vector<double>& faceTemperatures, bool flows = true) const;
   //! Whole-body heat flow per channel [W] (copies weighted) and storage [W] of a filled summary.
+  //! The energies of state y into `summary` (energiesAt with the initial group stored heat of the first output;
+  //! flows untouched): the run loop's record at a step of the timeline (Recorder::recordStep).
+  void energies(std::span<const double> y, double initialStored, RunSummary& summary) const {
+    energiesAt(system_, y, initialStored, initialGroupStored_, summary);
+  }
   static void bodyFlows(const Network& network, const RunSummary& summary, std::span<double> perChannel,
                         double& storage);
   //! /body/heat_flow, /body/cumulative_heat, /body/energy_balance_error, /segments/*/heat_flow,

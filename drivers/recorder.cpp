@@ -45,6 +45,54 @@ std::vector<std::string> segmentNames(const Body& body) {
   return names;
 }
 
+//! /steps (postproc/README.md, "Results layout"): the times of the timeline's steps the run reached, `step_time`
+//! [ns] (a netCDF coordinate, copied into each group that holds values, as /time is), and the cumulative energies
+//! there: /steps/body/cumulative_heat/CHANNEL [ns] (whole body) and /steps/segments/NAME/cumulative_heat/CHANNEL
+//! and `storage` [ns] (one copy), the values of /body and /segments/NAME/cumulative_heat at those times. Written
+//! for a transient run, empty (ns = 0) when the timeline has no step.
+void writeSteps(ResultsFile& f, const Body& body, const RunSummary& s) {
+  const Network& n = body.network();
+  const std::size_t ns = s.stepTimes.size(), channels = n.channels.size(), groups = n.groups.size();
+  const std::vector<std::uint64_t> shape{ns};
+  const double none = 0.0;  // HDF5 refuses a null buffer even for no values
+  auto write = [&](const std::string& path, const std::vector<double>& v, const std::string& units,
+                   const std::string& longName) {
+    f.writeArray(path, std::span<const double>(v.empty() ? &none : v.data(), v.size()), shape, units, longName);
+  };
+  auto coordinate = [&](const std::string& group) {
+    write(group + "/step_time", s.stepTimes, "s",
+          "time of a step of the timeline (an event, the end of a ramp, a weather row), where the integrator stops "
+          "and restarts");
+    f.makeCoordinate(group + "/step_time");
+  };
+  auto series = [&](const std::string& path, const std::vector<double>& v, const std::string& longName) {
+    write(path, v, "J", longName);
+    f.attachDimensions(path, {"step_time"});
+  };
+  std::vector<double> v(ns);
+  coordinate("/steps");
+  coordinate("/steps/body/cumulative_heat");
+  for (std::size_t c = 0; c < channels; ++c) {
+    for (std::size_t k = 0; k < ns; ++k) v[k] = s.stepChannelEnergy[k * channels + c];
+    series("/steps/body/cumulative_heat/" + n.channels[c], v,
+           "whole-body heat gained by " + n.channels[c] + " since the start of the run, at each step of the timeline");
+  }
+  for (std::size_t g = 0; g < body.segments().size(); ++g) {
+    const std::string& name = body.segments()[g].name;
+    const std::string group = "/steps/segments/" + name + "/cumulative_heat";
+    coordinate(group);
+    for (std::size_t c = 0; c < channels; ++c) {
+      for (std::size_t k = 0; k < ns; ++k) v[k] = s.stepSegmentEnergy[(k * groups + g) * channels + c];
+      series(group + "/" + n.channels[c], v,
+             "heat gained by one " + name + " by " + n.channels[c] +
+                 " since the start of the run, at each step of the timeline (integrated by the solver)");
+    }
+    for (std::size_t k = 0; k < ns; ++k) v[k] = s.stepSegmentStoredChange[k * groups + g];
+    series(group + "/storage", v,
+           "change of the heat stored in one " + name + " since the start of the run, at each step of the timeline");
+  }
+}
+
 }  // namespace
 
 Recorder::Recorder(const Body& body, const NetworkSystem& system, const RunOptions& options,
@@ -97,7 +145,23 @@ void Recorder::observe(double t, std::span<const double> y, double initialStored
   observer_(t, y.first(system_.nodeCount()), scratch);
 }
 
+void Recorder::recordStep(double t, std::span<const double> y, double initialStored) {
+  if (!file_ && !observer_) return;
+  RunSummary& s = steps_;
+  RunSummary at;
+  budget_.energies(y, initialStored, at);
+  s.stepTimes.push_back(t);
+  s.stepChannelEnergy.insert(s.stepChannelEnergy.end(), at.channelEnergy.begin(), at.channelEnergy.end());
+  s.stepSegmentEnergy.insert(s.stepSegmentEnergy.end(), at.segmentEnergy.begin(), at.segmentEnergy.end());
+  s.stepSegmentStoredChange.insert(s.stepSegmentStoredChange.end(), at.segmentStoredChange.begin(),
+                                   at.segmentStoredChange.end());
+}
+
 void Recorder::finish(RunSummary& summary, bool steady) {
+  summary.stepTimes = std::move(steps_.stepTimes);
+  summary.stepChannelEnergy = std::move(steps_.stepChannelEnergy);
+  summary.stepSegmentEnergy = std::move(steps_.stepSegmentEnergy);
+  summary.stepSegmentStoredChange = std::move(steps_.stepSegmentStoredChange);
   // Every warning of the run: the body's (at build) and the environment's (validity ranges, while running).
   summary.warnings = body_.warnings();
   for (const std::string& w : body_.environment().warnings()) summary.warnings.push_back(w);
@@ -121,6 +185,7 @@ void Recorder::finish(RunSummary& summary, bool steady) {
   f.setAttribute("/solver", "state_size", static_cast<long>(system_.size()));
   f.setAttribute("/solver", "jacobian_nonzeros", s.jacobianNonzeros);
   f.setAttribute("/solver", "factor_nonzeros", s.factorNonzeros);
+  if (!steady) writeSteps(f, body_, summary);
   writeWarnings(f, summary.warnings);
   f.setAttribute("/", "complete", summary.complete ? 1L : 0L);
   if (!summary.complete) f.setAttribute("/", "failure", summary.failure);

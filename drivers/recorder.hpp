@@ -36,6 +36,10 @@ class Recorder {
   //! Only the observer at time t (RunOptions::observerTimes): `scratch` gets the flows and energies there; nothing
   //! is written or checked (freezing, controller grid), so the run's results are those of a run without it.
   void observe(double t, std::span<const double> y, double initialStored, RunSummary& scratch);
+  //! The cumulative energies at a step of the timeline (time t, the state where the integrator stopped before it
+  //! restarts), kept for RunSummary::step* and the results' /steps group, written at finish(); nothing without a
+  //! results file or an observer.
+  void recordStep(double t, std::span<const double> y, double initialStored);
   //! Solver statistics and completeness, then commit (a partial run goes to the incomplete path).
   void finish(RunSummary& summary, bool steady);
   void setIncompletePath(std::string p) { incompletePath_ = std::move(p); }
@@ -59,6 +63,7 @@ class Recorder {
   std::vector<double> faceTemperatures_;  //!< [K], from the budget, used by the other parts
   std::string incompletePath_;
   std::vector<std::string> driverWarnings_;
+  RunSummary steps_;  //!< recordStep's energies (stepTimes, stepChannelEnergy, ...), moved into the summary at finish
 };
 
 //! `dir/name.incomplete.ext` for `dir/name.ext`: where a partial run is written.

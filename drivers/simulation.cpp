@@ -369,6 +369,7 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
       double t = std::min(c.run.duration, static_cast<double>(k) * c.run.outputInterval);
       while (interval < breakpoints.size() && breakpoints[interval] <= t) {
         if (!observeBefore(breakpoints[interval]) || !advance(breakpoints[interval])) break;
+        recorder.recordStep(breakpoints[interval], integrator->state(), initialStored);  // exact: stopped there
         body.setInterval(++interval);
         integrator->restart();
         integrator->setStopTime(nextStop());

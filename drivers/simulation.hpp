@@ -88,6 +88,13 @@ struct RunSummary {
   //! A refined run's unrefined steady solve (RunOptions::coarseSteadyStart, coarseSteadyGuess): its counters
   //! (relaxation steps, Newton iterations, right-hand sides, Jacobians); zero when none was solved.
   SolverStatistics coarseStatistics;
+  //! The timeline's steps the run reached (EnvironmentModel::breakpoints: events, ends of ramps, weather rows; the
+  //! integrator stops exactly at each and restarts) [s], with a results file or an observer; empty otherwise and
+  //! for a steady state. The energies there, exact (the state at the stop, not interpolated between outputs):
+  std::vector<double> stepTimes;
+  std::vector<double> stepChannelEnergy;   //!< [step x channel] whole-body heat gained since t = 0 [J], weighted
+  std::vector<double> stepSegmentEnergy;   //!< [step x group x channel] one copy of each group [J], as segmentEnergy
+  std::vector<double> stepSegmentStoredChange;  //!< [step x group] change of the heat stored in one copy [J]
 };
 
 //! Integrate the case from its initial state for run.duration; output every run.output_interval.

@@ -180,18 +180,47 @@ def _pieces(knots, values, t0: float, t1: float) -> list[tuple[float, float, flo
     return out
 
 
+def _step_index(steps, t: float) -> int | None:
+    """Index of the step of the timeline at time t in `steps` (Results.step_times), None when t is none of them.
+    The span ends come from the stored case's events, the steps from the run's own breakpoints: the same numbers
+    (the resolved case stores 17 digits), matched to 1e-9 s relative so that a last-digit difference of a sum
+    (at + ramp) cannot hide one."""
+    if steps is None or steps.size == 0:
+        return None
+    k = int(np.argmin(np.abs(steps - t)))
+    return k if abs(steps[k] - t) <= 1e-9 * max(1.0, abs(t)) else None
+
+
+def _exact_at(res: Results, t: float) -> bool:
+    """Whether the cumulative energies at time t are stored exactly: an output, or a step of the timeline in
+    /steps (files from 2026-12-05)."""
+    return t in set(np.asarray(res.time, float).tolist()) or _step_index(res.step_times(), t) is not None
+
+
 def _span_heat(res: Results, seg, channel: str, spans) -> tuple[float | None, str]:
-    """Heat gained by all copies of `seg` by `channel` over the spans [J] and how: the solver's cumulative energy
-    (Hermite-interpolated between outputs, as the budget) or the trapezoid on the stored flow; None when the file
-    stores neither."""
+    """Heat gained by all copies of `seg` by `channel` over the spans [J] and how: the solver's cumulative energy at
+    each span end — the stored value at an output, the exact value at a step of the timeline from /steps
+    (`cumulative, exact at steps`), else Hermite-interpolated between outputs as the budget (`cumulative`; across
+    a step between outputs this mixes both sides of it: files without /steps) — or the trapezoid on the stored
+    flow; None when the file stores neither."""
     flow = seg.heat_flow(channel)
     energy = seg.cumulative_heat(channel)
     if flow is None:
         return None, ""
     if energy is not None:
-        total = sum(hermite_cumulative(res.time, energy, flow, b) - hermite_cumulative(res.time, energy, flow, a)
-                    for a, b in spans)
-        return seg.count * total, "cumulative"
+        steps, at_steps = res.step_times(), seg.step_cumulative_heat(channel)
+        used = False
+
+        def energy_at(t):
+            nonlocal used
+            k = _step_index(steps, t) if at_steps is not None else None
+            if k is not None and t not in set(res.time.tolist()):
+                used = True
+                return float(at_steps[k])
+            return hermite_cumulative(res.time, energy, flow, t)
+
+        total = sum(energy_at(b) - energy_at(a) for a, b in spans)
+        return seg.count * total, "cumulative, exact at steps" if used else "cumulative"
     total = sum(float(time_average(res.time, flow, a, b)) * (b - a) for a, b in spans)
     return seg.count * total, "trapezoid"
 
@@ -205,7 +234,8 @@ def exposure_rows(res: Results, t0: float, t1: float, segments=None) -> list[dic
     The series are /segments/NAME/in_water and contact_fraction: each output stores the value of the interval that
     follows it (the value after a step on an output), which holds up to the timeline's next change (Results.
     water_line, contact_line: the stored case's steps between outputs when it reproduces every output, else the
-    next output)."""
+    next output). The heat at a change between outputs is the solver's own value there (/steps), interpolated
+    only in files without it."""
     rows = []
     for seg in res.segments(segments):
         water = res.water_line(seg.name)
@@ -229,9 +259,9 @@ def exposure_rows(res: Results, t0: float, t1: float, segments=None) -> list[dic
         heat, how = _span_heat(res, seg, "substrate", [(a, b) for a, b, _ in touch])
         row["heat lost to substrate [J]"] = None if heat is None else -heat
         row["substrate heat method"] = how
-        outputs = set(np.asarray(res.time, float).tolist())
+        # Span ends inside the window where the heat is interpolated: neither an output nor a stored step.
         row["span ends between outputs"] = sorted({t for a, b in wet_spans + [(a, b) for a, b, _ in touch]
-                                                   for t in (a, b) if t not in outputs and t0 < t < t1})
+                                                   for t in (a, b) if t0 < t < t1 and not _exact_at(res, t)})
         rows.append(row)
     return rows
 
@@ -242,8 +272,9 @@ def exposure_lines(rows: list[dict], t0: float, t1: float) -> list[str]:
         return []
     lines = ["", "Water and substrate contact (/segments/NAME/in_water and contact_fraction: each output's value holds "
                  "until the",
-             "  timeline's next change; heat of all copies by the solver's cumulative energies, positive: lost by "
-             "the body)"]
+             "  timeline's next change; heat of all copies by the solver's cumulative energies at the outputs and at "
+             "the",
+             "  timeline's steps (/steps), positive: lost by the body)"]
     length = t1 - t0
     for r in rows:
         lines.append(f"  {r['label']}")
@@ -269,7 +300,8 @@ def exposure_lines(rows: list[dict], t0: float, t1: float) -> list[str]:
         if ends:
             lines.append("    NOTE: " + ", ".join(fmt_time(t) for t in ends) + " (a change of water or contact) "
                          "lies between outputs: the times are the timeline's own, the heat there is interpolated "
-                         "across the step; an output at each change makes it exact.")
+                         "across the step (the file stores no exact heat there: no /steps, written before "
+                         "2026-12-05); rerunning with this version, or an output at each change, makes it exact.")
     return lines
 
 

@@ -12,6 +12,8 @@
 4. Repeated --window: one section per window, each as that window alone.
 5. A window end between outputs that bracket a step of the timeline is noted (and is really off).
 6. Time in water and in contact with the substrate, and the heat lost there, against an events table.
+7. The heat lost to the water and the substrate with every change between outputs, against Newton cooling of a lumped
+   sphere in closed form: exact from /steps; the old interpolation (a file without /steps) misses it.
 Exits 1 on any failure.
 """
 
@@ -526,6 +528,7 @@ def check_exposure(tmp: Path):
         files[interval] = h5
     if not all(h.is_file() for h in files.values()):
         return
+    heats = {}
     for interval, h5 in files.items():
         for window, (t0, t1) in ((None, (0.0, 3600.0)), ("20min,40min", (1200.0, 2400.0))):
             out = tmp / f"dip_{interval.split()[0]}_{t0:g}.csv"
@@ -545,8 +548,10 @@ def check_exposure(tmp: Path):
                   sum(f * overlap([(a, b)], t0, t1) for a, b, f in DIP_CONTACT), f"contact-seconds, {what}")
             close(number(r["mean contact fraction in contact [1]"]), 0.3, f"mean contact fraction, {what}")
             on_outputs = interval == "5 min"
-            check(("NOTE: " in text.split("Water and substrate")[-1]) != on_outputs,
-                  f"a note exactly when a change lies between outputs ({what})")
+            # Changes between outputs (4 min): the heat there is the solver's own (/steps), so no note; the
+            # interpolated heat of files without /steps is section 7's.
+            check("NOTE: " not in text.split("Water and substrate")[-1], f"no note: the heat at changes is stored ({what})")
+            heats[interval, t0] = (number(r["heat lost to water [J]"]), number(r["heat lost to substrate [J]"]))
             if on_outputs and window is None:
                 # Heat by the solver's cumulative energies at the outputs on the changes (one copy stored, 2 legs);
                 # the substrate takes heat only in contact, so its share is the run's whole substrate energy.
@@ -562,11 +567,152 @@ def check_exposure(tmp: Path):
                 check(number(r["heat lost to water [J]"]) > 0 and number(r["heat lost to substrate [J]"]) > 0,
                       "legs warmer than 8 degC water and a 5 degC substrate lose heat to both")
                 check("in water: 900 s (15 min), 25 % of the window" in text, "the printed time in water")
+    # The same run with other outputs: the heat with the changes between outputs (from /steps) is that with outputs
+    # on them, to the solver's tolerance (the old interpolation was 16 % low on the water's heat here).
+    for t0 in (0.0, 1200.0):
+        for k, what in enumerate(("water", "substrate")):
+            if ("4 min", t0) in heats and ("5 min", t0) in heats:
+                print(f"  legs, heat lost to the {what} (window from {t0:g} s): 4-min outputs {heats['4 min', t0][k]:.6g} J, "
+                      f"5-min (outputs on the changes) {heats['5 min', t0][k]:.6g} J")
+                close(heats["4 min", t0][k], heats["5 min", t0][k],
+                      f"heat lost to the {what} (window from {t0:g} s), 4-min outputs against 5-min", rtol=1e-4)
     with h5py.File(files["4 min"], "r") as f:
         time = f["time"][()]
         wet = f["segments/leg/in_water"][()]
     naive = float(np.sum(wet[:-1] * np.diff(time)))
     check(abs(naive - 900.0) > 30.0, f"the per-output sum on 4-min outputs is off ({naive:g} s): the check is not idle")
+
+
+# ---- 7. heat at changes between outputs against Newton cooling in closed form ------------------------------------
+# A lumped sphere (R = 2 cm, k = 1000 W/(m K): Bi = h R / k <= 8e-4 with the substrate's 40 W/(m2 K)) with a fixed
+# coefficient h = 10 W/(m2 K) (no radiation: the default emissivity with a fixed coefficient is 0), starting at
+# 35 degC: in 20 degC air, in 5 degC water from 100 s to 500 s (medium steps), on a 10 degC substrate with half its
+# surface (h_sub = 40 W/(m2 K)) from 700 s to 1000 s, outputs every 240 s, so that every change lies between two
+# outputs. In each interval of constant surroundings the lumped body relaxes exponentially to the conductance-
+# weighted mean of the fluid and substrate temperatures, T_eq = (G_c T_f + G_s T_s) / (G_c + G_s), with
+# tau = rho c V / (G_c + G_s), G_c = h (1 - f) A, G_s = h_sub f A (Incropera et al. 2007, eq. 5.6, lumped
+# capacitance; the contact split as tests/test_contact_events.cpp), so over an interval of length d starting at
+# theta_0 = T_0 - T_eq: integral of (T - T_eq) dt = theta_0 tau (1 - exp(-d / tau)), and the heat lost by a path of
+# conductance G to temperature T_x is G (integral of (T - T_eq) dt + (T_eq - T_x) d). Invented values. The heat from
+# /steps is within 1.5e-4 of it, an error that scales with 1/k (k = 100 W/(m K): 1.5e-3): the lumped model's.
+NEWTON_R, NEWTON_H, NEWTON_HSUB, NEWTON_F = 0.02, 10.0, 40.0, 0.5
+NEWTON_RHO_C = 1000.0 * 3000.0
+NEWTON_CASE = """title = "Lumped sphere dipped and set down (invented, values illustrative)"
+[run]
+duration = "1200 s"
+output_interval = "240 s"
+initial_temperature = "35 degC"
+rtol = 1e-10
+atol = "1e-10 K"
+[tissues.lump]
+base = "muscle"
+conductivity = "1000 W/(m K)"
+density = "1000 kg/m3"
+specific_heat = "3000 J/(kg K)"
+metabolic_heat = "0 W/m3"
+perfusion = "0 1/s"
+[[segments]]
+name = "ball"
+shape = "sphere"
+layers = [{ tissue = "lump", thickness = "2 cm", cells = 1 }]
+[environment]
+medium = "air"
+temperature = "20 degC"
+convection = "10 W/(m2 K)"
+substrate_temperature = "10 degC"
+substrate_conductance = "40 W/(m2 K)"
+[[events]]
+at = "100 s"
+environment = { medium = "water", temperature = "5 degC", speed = "0 m/s" }
+[[events]]
+at = "500 s"
+environment = { medium = "air", temperature = "20 degC", speed = "0 m/s" }
+[[events]]
+at = "700 s"
+surface = { ball = { contact_fraction = 0.5 } }
+[[events]]
+at = "1000 s"
+surface = { ball = { contact_fraction = 0 } }
+"""
+# (start [s], fluid temperature [degC], contact fraction): the surroundings from each start to the next.
+NEWTON_PHASES = [(0.0, 20.0, 0.0), (100.0, 5.0, 0.0), (500.0, 20.0, 0.0), (700.0, 20.0, NEWTON_F),
+                 (1000.0, 20.0, 0.0), (1200.0, None, None)]
+
+
+def newton_heat(t0: float, t1: float) -> dict:
+    """Closed-form heat [J] lost by the lumped sphere over [t0, t1] (positive: lost): to the water (convection
+    while in water), to the air (convection in air), to the substrate; and the convective heat gained since t = 0
+    at t1 (negative of both convective losses over [0, t1])."""
+    area = 4.0 * np.pi * NEWTON_R ** 2
+    capacity = NEWTON_RHO_C * 4.0 / 3.0 * np.pi * NEWTON_R ** 3
+    temperature, out = 35.0, {"water": 0.0, "air": 0.0, "substrate": 0.0}
+    for (a, fluid, f), (b, _, _) in zip(NEWTON_PHASES[:-1], NEWTON_PHASES[1:]):
+        gc, gs = NEWTON_H * (1.0 - f) * area, NEWTON_HSUB * f * area
+        t_eq = (gc * fluid + gs * 10.0) / (gc + gs)
+        tau = capacity / (gc + gs)
+        lo, hi = max(a, t0), min(b, t1)
+        if hi > lo:   # theta at lo, then its integral over [lo, hi]
+            theta_lo = (temperature - t_eq) * np.exp(-(lo - a) / tau)
+            integral = theta_lo * tau * (1.0 - np.exp(-(hi - lo) / tau))
+            out["water" if fluid == 5.0 else "air"] += gc * (integral + (t_eq - fluid) * (hi - lo))
+            out["substrate"] += gs * (integral + (t_eq - 10.0) * (hi - lo))
+        temperature = t_eq + (temperature - t_eq) * np.exp(-(b - a) / tau)
+    return out
+
+
+def check_exact_steps(tmp: Path):
+    """The report's heat lost to the water and to the substrate, with every change between outputs, against the
+    closed-form integrals above: exact from /steps to the solver's tolerance and the lumped model's Biot error; the
+    same file without /steps (as written before 2026-12-05) gives the interpolated heat of the old report, which
+    misses them (and says so). Also: /steps holds the event times and the cumulative convection there."""
+    case = tmp / "newton.toml"
+    case.write_text(NEWTON_CASE)
+    h5 = tmp / "newton.h5"
+    proc = subprocess.run([THERMORPH, "run", str(case), "-o", str(h5), "--quiet"], capture_output=True, text=True)
+    check(proc.returncode == 0 and h5.is_file(), f"thermorph run newton failed: {proc.stderr[-1500:]}")
+    if not h5.is_file():
+        return
+    old = tmp / "newton_old.h5"
+    with h5py.File(h5, "r") as src, h5py.File(old, "w") as dst:
+        for key, value in src.attrs.items():
+            dst.attrs[key] = value
+        for name in src:
+            if name != "steps":
+                src.copy(src[name], dst, name=name)
+        steps = src["steps/step_time"][()]
+        body_conv = src["steps/body/cumulative_heat/convection"][()]
+        seg_conv = src["steps/segments/ball/cumulative_heat/convection"][()]
+        other = max(abs(src[f"body/cumulative_heat/{c}"][-1]) for c in src["body/cumulative_heat"]
+                    if c not in ("convection", "substrate", "time"))
+    check(np.array_equal(steps, [100.0, 500.0, 700.0, 1000.0]), f"/steps/step_time holds the event times: {steps}")
+    check(np.array_equal(body_conv, seg_conv), "one segment: the body's step energies are the segment's")
+    for k, t in enumerate(steps):
+        exact = -(newton_heat(0.0, t)["water"] + newton_heat(0.0, t)["air"])
+        close(float(body_conv[k]), exact, f"/steps convection gained by {t:g} s against the closed form", rtol=2e-4)
+    check(other < 1e-6, f"no channel but convection and substrate acts ({other:.2g} J): the closed form is the model")
+    print("  heat at changes between outputs (4-min outputs), relative error against the closed form:")
+    for window, (t0, t1) in ((None, (0.0, 1200.0)), ("240,960", (240.0, 960.0))):
+        exact = newton_heat(t0, t1)
+        found = {}
+        for label, path in (("new", h5), ("old", old)):
+            out = tmp / f"newton_{label}_{t0:g}.csv"
+            text = run_report(path, "--csv", out, *(["--window", window] if window else [])).stdout
+            check(f"Caution: {CAUTION}" in text, "the report keeps the caution line")
+            check(("NOTE: " in text.split("Water and substrate")[-1]) == (label == "old"),
+                  f"{label} file, window {t0:g}..{t1:g} s: a note on interpolated heat exactly without /steps")
+            with open(out.with_name(f"{out.stem}.exposure.csv"), newline="", encoding="utf-8") as fh:
+                found[label] = next(csv.DictReader(fh))
+        for what, key, method in (("water", "heat lost to water [J]", "water heat method"),
+                                  ("substrate", "heat lost to substrate [J]", "substrate heat method")):
+            new, old_value = number(found["new"][key]), number(found["old"][key])
+            err_new, err_old = abs(new / exact[what] - 1), abs(old_value / exact[what] - 1)
+            print(f"    window {t0:g}..{t1:g} s, heat lost to the {what}: closed form {exact[what]:.6g} J, "
+                  f"/steps {new:.6g} J ({err_new:.1e}), interpolated {old_value:.6g} J ({err_old:.1e})")
+            close(new, exact[what], f"heat lost to the {what} from /steps, window {t0:g}..{t1:g} s", rtol=2e-4)
+            check(found["new"][method] == "cumulative, exact at steps", f"method {found['new'][method]!r}")
+            check(err_old > 10 * 2e-4, f"the interpolation across the steps misses the {what}'s heat by over ten "
+                                        f"times the bound the exact heat meets ({err_old:.2g}): the check is not idle")
+        close(number(found["new"]["time in water [s]"]), max(0.0, min(500.0, t1) - max(100.0, t0)), "time in water")
 
 
 def main() -> int:
@@ -578,6 +724,7 @@ def main() -> int:
         check_real(tmp)
         check_step_note(tmp)
         check_exposure(tmp)
+        check_exact_steps(tmp)
     if FAILURES:
         print(f"test_report: {len(FAILURES)} check(s) failed")
         return 1

@@ -102,7 +102,7 @@ def _full_parts(group_path: str, name: str) -> list[str]:
 def _is_time_series(group_path: str, name: str, ds, nt: int) -> bool:
     """Whether a dataset is indexed by output time along its first axis."""
     parts = _full_parts(group_path, name)
-    if parts[0] == "events" or ds.ndim == 0 or ds.shape[0] != nt:
+    if parts[0] in ("events", "steps") or ds.ndim == 0 or ds.shape[0] != nt:  # /steps: indexed by step_time
         return False
     return not (len(parts) == 3 and parts[0] == "segments" and parts[2] in SEGMENT_STATIC)
 

@@ -258,6 +258,14 @@ class Segment:
         path = f"cumulative_heat/{channel}"
         return self.read(path).values if self.has(path) else None
 
+    def step_cumulative_heat(self, channel: str) -> np.ndarray | None:
+        """Heat gained by one copy of the segment by `channel` since t = 0 [J] at each step of the timeline
+        (Results.step_times: /steps/segments/NAME/cumulative_heat/CHANNEL, the solver's value where it stopped, not
+        interpolated between outputs); `storage`: the change of its stored heat. None in files without /steps
+        (written before 2026-12-05) or for a channel not stored."""
+        path = f"/steps/segments/{self.name}/cumulative_heat/{channel}"
+        return self.results.read(path).values if self.results.has(path) else None
+
     def contact_fraction(self) -> Series:
         """Share of the surface touching the substrate at each output [1] ([nt]): the stored series
         /segments/NAME/contact_fraction (events step it), or, in a file written before that series (2026-12-05),
@@ -472,6 +480,18 @@ class Results:
     def cumulative_heat(self, channel: str) -> np.ndarray | None:
         """Whole-body energy exchanged by `channel` since t = 0 [J] ([nt]); None when not stored."""
         path = f"/body/cumulative_heat/{channel}"
+        return self.read(path).values if self.has(path) else None
+
+    def step_times(self) -> np.ndarray | None:
+        """Times of the timeline's steps the run reached [s] (/steps/step_time: events, ends of ramps, weather rows,
+        where the integrator stopped and restarted; empty when the timeline has none), at which /steps stores the
+        cumulative energies exactly; None in files without /steps (before 2026-12-05, and steady states)."""
+        return np.asarray(self.read("/steps/step_time").values, float) if self.has("/steps/step_time") else None
+
+    def step_cumulative_heat(self, channel: str) -> np.ndarray | None:
+        """Whole-body energy exchanged by `channel` since t = 0 [J] at each step_times() time; None when not
+        stored."""
+        path = f"/steps/body/cumulative_heat/{channel}"
         return self.read(path).values if self.has(path) else None
 
     def environment(self) -> dict[str, Series]:
