@@ -1110,15 +1110,7 @@ std::string fitReport(const FitProblem& pb, const FitResult& r, const FitGridChe
 FitProblem makeFitProblem(const FitOptions& o, std::vector<std::string>& warnings) {
   FitProblem pb;
   pb.casePath = o.casePath;
-  if (!o.caseText.empty()) {
-    pb.caseText = o.caseText;
-  } else {
-    std::ifstream in(o.casePath);
-    if (!in) throw CaseError(fmt::format("{}: cannot open the case file", o.casePath));
-    std::stringstream ss;
-    ss << in.rdbuf();
-    pb.caseText = ss.str();
-  }
+  pb.caseText = caseText(o.casePath, o.caseText);
   pb.overrides = o.overrides;
   pb.coarseSteadyStart = !o.coldStart;
   if (o.rtol > 0.0) {

@@ -26,14 +26,6 @@ namespace {
 
 constexpr double nan = std::numeric_limits<double>::quiet_NaN();
 
-std::string readText(const std::string& path) {
-  std::ifstream in(path);
-  if (!in) throw CaseError(fmt::format("{}: cannot open the case file", path));
-  std::stringstream ss;
-  ss << in.rdbuf();
-  return ss.str();
-}
-
 //! MPI rank from the launcher's environment (0 when not under MPI).
 int launcherRank() {
   for (const char* name : {"OMPI_COMM_WORLD_RANK", "PMIX_RANK", "PMI_RANK", "MV2_COMM_WORLD_RANK"})
@@ -68,7 +60,7 @@ int runSensitivityCommand(const SensitivityOptions& o) {
   const std::string method = o.method;
   if (method != "local" && method != "morris" && method != "sobol")
     throw CaseError(fmt::format("--method {}: expected local, morris or sobol", method));
-  const std::string caseText = readText(o.casePath);
+  const std::string caseText = thermorph::caseText(o.casePath, o.caseText);
   if (o.params.empty()) throw CaseError("sensitivity: no parameter; give --param KEY=LOWER:UPPER (local: --param KEY)");
   if (method != "local")
     for (const std::string& p : o.params)
@@ -147,6 +139,7 @@ int runSensitivityCommand(const SensitivityOptions& o) {
   const std::string runsTable = ((outPath.parent_path() / outPath.stem()).string()) + "_runs.h5";
   SweepOptions sweep;
   sweep.casePath = o.casePath;
+  sweep.caseText = caseText;
   sweep.overrides = o.overrides;
   sweep.zip = true;
   sweep.metrics = o.metrics;

@@ -10,7 +10,8 @@
 namespace thermorph {
 
 struct SensitivityOptions {
-  std::string casePath;
+  std::string casePath;                //!< the case file, or the name of caseText in messages
+  std::string caseText;                //!< the case as TOML text ("": read casePath; the Python module's dicts)
   std::vector<std::string> overrides;  //!< --set
   std::string method = "sobol";        //!< local | morris | sobol
   std::vector<std::string> params;     //!< KEY=LOWER:UPPER[:log] (local: KEY, or KEY=... with the base value)

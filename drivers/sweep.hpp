@@ -30,6 +30,7 @@ struct SweepAxis {
 //! The sweep command line.
 struct SweepOptions {
   std::string casePath;
+  std::string caseText;                //!< the case as TOML text ("": read casePath; the Python module's dicts)
   std::vector<std::string> overrides;  //!< --set KEY=VALUE, applied to every run first
   std::vector<std::string> vary;       //!< --vary KEY=SPEC
   std::vector<std::string> scale;      //!< --scale SEGMENT=SPEC or body=SPEC

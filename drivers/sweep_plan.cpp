@@ -357,11 +357,7 @@ SweepPlan makeSweepPlan(const SweepOptions& commandLine) {
   const SweepOptions& options = commandLine;  // until the case is read
   SweepPlan plan;
   plan.casePath = options.casePath;
-  std::ifstream in(options.casePath, std::ios::binary);
-  if (!in) throw CaseError(fmt::format("{}: cannot open the case file (does it exist?)", options.casePath));
-  std::stringstream buffer;
-  buffer << in.rdbuf();
-  plan.caseText = buffer.str();
+  plan.caseText = caseText(options.casePath, options.caseText);
   plan.overrides = options.overrides;
   plan.zip = options.zip;
   plan.steady = options.steady;

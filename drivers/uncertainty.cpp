@@ -63,14 +63,7 @@ struct RunOutput {
 }  // namespace
 
 int runUncertaintyCommand(const UncertaintyOptions& o) {
-  std::string caseText;
-  {
-    std::ifstream in(o.casePath);
-    if (!in) throw CaseError(fmt::format("{}: cannot open the case file", o.casePath));
-    std::stringstream ss;
-    ss << in.rdbuf();
-    caseText = ss.str();
-  }
+  const std::string caseText = thermorph::caseText(o.casePath, o.caseText);
   const Case base = loadCaseFromString(caseText, o.casePath, o.overrides);
   if (o.design != "lhs" && o.design != "sobol") throw CaseError(fmt::format("--design {}: expected lhs or sobol", o.design));
   if (o.samples < 2 || o.samples > 1'000'000) throw CaseError(fmt::format("--samples {}: expected 2 to 1000000", o.samples));

@@ -10,7 +10,8 @@
 namespace thermorph {
 
 struct UncertaintyOptions {
-  std::string casePath;
+  std::string casePath;              //!< the case file, or the name of caseText in messages
+  std::string caseText;              //!< the case as TOML text ("": read casePath; the Python module's dicts)
   std::vector<std::string> overrides;
   std::vector<std::string> params;   //!< KEY[UNIT]=DIST
   std::string fromFit;               //!< a fit's results file: its values and covariance

@@ -1244,12 +1244,17 @@ Case loadCaseFromString(const std::string& text, const std::string& sourceName,
   return c;
 }
 
-Case loadCase(const std::string& path, const std::vector<std::string>& overrides) {
-  std::ifstream in(path);
+std::string caseText(const std::string& path, const std::string& text) {
+  if (!text.empty()) return text;
+  std::ifstream in(path, std::ios::binary);
   if (!in) throw CaseError(fmt::format("{}: cannot open the case file (does it exist?)", path));
   std::stringstream buffer;
   buffer << in.rdbuf();
-  return loadCaseFromString(buffer.str(), path, overrides);
+  return buffer.str();
+}
+
+Case loadCase(const std::string& path, const std::vector<std::string>& overrides) {
+  return loadCaseFromString(caseText(path), path, overrides);
 }
 
 bool followsBodyWideVasomotor(const Case& c, std::size_t g) {

@@ -257,6 +257,11 @@ inline constexpr long maxStepsPerOutput = 1'000'000;
 //! Load and validate a case file, applying `--set KEY=VALUE` overrides in order. Throws CaseError.
 Case loadCase(const std::string& path, const std::vector<std::string>& overrides = {});
 
+//! The text of a case: `text` when given (a case given as text or a dict by the Python module), else the file
+//! `path`'s (CaseError naming the path when it cannot be read). The drivers that take a case as options (sweep,
+//! fit, sensitivity, uncertainty) read it through this, so every one takes a text as the module gives it.
+std::string caseText(const std::string& path, const std::string& text = {});
+
 //! Load from TOML text (tests); `sourceName` is used in messages.
 Case loadCaseFromString(const std::string& text, const std::string& sourceName,
                         const std::vector<std::string>& overrides = {});

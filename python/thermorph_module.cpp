@@ -130,7 +130,12 @@ CaseSource caseSource(const py::object& spec, const std::string& base) {
     return {sourceName(base, kDictCase), text.str(), false, true};
   }
   const std::string s = py::str(spec).cast<std::string>();
-  if (s.find('\n') == std::string::npos && std::filesystem::is_regular_file(s)) return {s, "", true, false};
+  // A path: an os.PathLike, or one line that is a file or holds no "=" (no TOML text of a case), so that a missing
+  // file reads "PATH: cannot open the case file" and not a TOML syntax error at line 1.
+  const bool pathLike = py::isinstance(spec, py::module_::import("os").attr("PathLike"));
+  if (pathLike || (s.find('\n') == std::string::npos &&
+                   (std::filesystem::is_regular_file(s) || s.find('=') == std::string::npos)))
+    return {s, "", true, false};
   return {sourceName(base, kTextCase), s, false, false};
 }
 
@@ -242,6 +247,31 @@ struct Collector {
       segs[py::str(m.name)] = d;
     }
     r["segments"] = segs;
+    // The timeline's steps (the results file's /steps): the times where the integrator stopped and restarted, and
+    // the cumulative energies there, exact (not interpolated between outputs).
+    const auto ns = static_cast<py::ssize_t>(s.stepTimes.size());
+    const std::size_t groupCount = n.groups.size();
+    py::dict steps, stepBody;
+    steps["time"] = array(s.stepTimes, {ns});
+    std::vector<double> v(s.stepTimes.size());
+    for (std::size_t c = 0; c < channels; ++c) {
+      for (std::size_t k = 0; k < v.size(); ++k) v[k] = s.stepChannelEnergy[k * channels + c];
+      stepBody[py::str(n.channels[c])] = array(v, {ns});
+    }
+    steps["cumulative_heat"] = stepBody;
+    py::dict stepSegments;
+    for (std::size_t g = 0; g < body.segments().size(); ++g) {
+      py::dict e;
+      for (std::size_t c = 0; c < channels; ++c) {
+        for (std::size_t k = 0; k < v.size(); ++k) v[k] = s.stepSegmentEnergy[(k * groupCount + g) * channels + c];
+        e[py::str(n.channels[c])] = array(v, {ns});
+      }
+      for (std::size_t k = 0; k < v.size(); ++k) v[k] = s.stepSegmentStoredChange[k * groupCount + g];
+      e["storage"] = array(v, {ns});
+      stepSegments[py::str(body.segments()[g].name)] = py::dict(py::arg("cumulative_heat") = e);
+    }
+    steps["segments"] = stepSegments;
+    r["steps"] = steps;
     // The budget at the last output, as printed by the command line (W, positive into the body; J over the run).
     py::dict budget;
     py::list groups;
@@ -303,11 +333,13 @@ py::dict runCase(const py::object& spec, const std::vector<std::string>& overrid
 
 // ---- sweep ---------------------------------------------------------------------------------------------
 
-py::dict runSweep(const std::string& casePath, const std::vector<std::string>& vary, const std::vector<std::string>& set,
+py::dict runSweep(const py::object& spec, const std::vector<std::string>& vary, const std::vector<std::string>& set,
                   const std::vector<std::string>& scale, const std::vector<std::string>& metrics, bool zip, bool steady,
-                  const std::string& window, int jobs) {
+                  const std::string& window, int jobs, const std::string& base) {
+  const CaseSource from = caseSource(spec, base);
   SweepOptions o;
-  o.casePath = casePath;
+  o.casePath = from.path;
+  o.caseText = from.text;
   o.vary = vary;
   o.overrides = set;
   o.scale = scale;
@@ -317,7 +349,12 @@ py::dict runSweep(const std::string& casePath, const std::vector<std::string>& v
   o.window = window;
   o.jobs = jobs;
   o.quiet = true;
-  SweepPlan plan = makeSweepPlan(o);
+  SweepPlan plan;
+  try {
+    plan = makeSweepPlan(o);
+  } catch (const CaseError& e) {
+    throw CaseError(from.message(e.what()));
+  }
   std::vector<RunRow> rows(plan.runs);
   {
     py::gil_scoped_release release;
@@ -348,9 +385,10 @@ py::dict runSweep(const std::string& casePath, const std::vector<std::string>& v
     units[py::str(plan.columns[c].name)] = plan.columns[c].units;
   }
   py::list status, errors, warnings;
-  for (const RunRow& row : rows) {
+  for (RunRow& row : rows) {
     status.append(row.status == RunStatus::Ok ? "ok" : row.status == RunStatus::Failed ? "failed" : "not run");
-    errors.append(row.error);
+    errors.append(from.message(row.error));
+    for (std::string& w : row.warnings) w = from.message(w);
     warnings.append(py::cast(row.warnings));  // a list per run (the results file joins them with "; ")
   }
   r["parameters"] = params;
@@ -849,12 +887,13 @@ py::dict readGroup(const std::string& file, const std::string& group) {
 struct DriverOutput {
   std::filesystem::path scratch;
   std::string path;
-  DriverOutput(const std::string& output, const std::string& casePath, const std::string& suffix) : path(output) {
+  //! `stem`: the case file's stem, or "case" for a case given as text or a dict (the scratch file's name).
+  DriverOutput(const std::string& output, const std::string& stem, const std::string& suffix) : path(output) {
     if (!output.empty()) return;
     std::string pattern = (std::filesystem::temp_directory_path() / "thermorph-XXXXXX").string();
     if (!mkdtemp(pattern.data())) throw std::runtime_error("cannot create a temporary folder");
     scratch = pattern;
-    path = (scratch / (std::filesystem::path(casePath).stem().string() + suffix)).string();
+    path = (scratch / (stem + suffix)).string();
   }
   ~DriverOutput() {
     std::error_code ignored;
@@ -873,13 +912,9 @@ struct DriverOutput {
   }
 };
 
-//! A case file path (str or os.PathLike): the sensitivity and uncertainty drivers read the file, as the command
-//! line does.
-std::string casePathOf(const py::object& spec, const char* function) {
-  const py::object pathLike = py::module_::import("os").attr("PathLike");
-  if (!py::isinstance<py::str>(spec) && !py::isinstance(spec, pathLike))
-    throw py::type_error(fmt::format("{}: case must be a case file path (str or os.PathLike), as the command line's", function));
-  return py::str(py::module_::import("os").attr("fspath")(spec)).cast<std::string>();
+//! The stem of a driver's default output name: the case file's, "case" for a text or dict.
+std::string caseStem(const CaseSource& from) {
+  return from.file ? std::filesystem::path(from.path).stem().string() : std::string("case");
 }
 
 //! The lines a driver logged that begin with "warning", without "warning: ".
@@ -893,19 +928,25 @@ std::vector<std::string> loggedWarnings(const std::string& log) {
 }
 
 //! Run a driver on its options with the report and log in memory; the exit code as the command line's: 2 is a
-//! CaseError (thrown by the driver), 3 a failure (SolverError with the driver's error), 130/143 stopped.
+//! CaseError (thrown by the driver), 3 a failure (SolverError with the driver's error), 130/143 stopped. Messages
+//! and the log name a case given as text or a dict as the module's other functions do (CaseSource::message).
 template <class Options>
-void runDriver(Options& o, int (*command)(const Options&), TextStream& report, TextStream& log, std::string& logText) {
+void runDriver(Options& o, int (*command)(const Options&), TextStream& report, TextStream& log, std::string& logText,
+               const CaseSource& from) {
+  o.casePath = from.path;
+  o.caseText = from.text;
   o.report = report.file();
   o.log = log.file();
   o.quiet = true;
   int code = 0;
-  {
+  try {
     py::gil_scoped_release release;
     code = command(o);
+  } catch (const CaseError& e) {
+    throw CaseError(from.message(e.what()));
   }
   std::fflush(report.file());
-  logText = log.text();
+  logText = from.message(log.text());
   if (code == 0) return;
   std::string error;
   std::istringstream in(logText);
@@ -918,9 +959,10 @@ void runDriver(Options& o, int (*command)(const Options&), TextStream& report, T
 py::dict runSensitivityPython(const py::object& spec, const py::object& params, const std::string& method,
                               std::size_t samples, const py::object& metrics, bool steady, const std::string& window,
                               int jobs, std::uint64_t seed, std::size_t bootstrap, const std::string& output,
-                              const py::object& set, std::size_t levels, const std::string& gradient, double step) {
+                              const py::object& set, std::size_t levels, const std::string& gradient, double step,
+                              const std::string& base) {
+  const CaseSource from = caseSource(spec, base);
   SensitivityOptions o;
-  o.casePath = casePathOf(spec, "sensitivity");
   o.params = strings(params, "params");
   o.method = method;
   o.samples = samples;
@@ -936,11 +978,11 @@ py::dict runSensitivityPython(const py::object& spec, const py::object& params, 
   o.step = step;
   o.commandLine = "python: thermorph.sensitivity";
   if (gradient != "auto" && gradient != "fd") throw CaseError(fmt::format("--gradient {}: expected auto or fd", gradient));
-  const DriverOutput out(output, o.casePath, "_" + method + ".h5");
+  const DriverOutput out(output, caseStem(from), "_" + method + ".h5");
   o.output = out.path;
   TextStream report, log;
   std::string logText;
-  runDriver(o, &runSensitivityCommand, report, log, logText);
+  runDriver(o, &runSensitivityCommand, report, log, logText, from);
   py::dict r = readGroup(o.output, "/sensitivity");
   const std::string runsTable = h5ReadStringAttribute(o.output, "/sensitivity", "runs_table");
   py::dict runs, values;
@@ -952,15 +994,20 @@ py::dict runSensitivityPython(const py::object& spec, const py::object& params, 
   runs["metrics"] = values;
   runs["status"] = h5ReadStrings(runsTable, "/runs/status");
   runs["errors"] = h5ReadStrings(runsTable, "/runs/error");
-  runs["warnings"] = h5ReadStrings(runsTable, "/runs/warnings");
+  // The runs' warnings and their distinct ones (the runs table's /provenance/warnings; the command line prints one
+  // line per kind).
+  std::vector<std::string> runWarnings = h5ReadStrings(runsTable, "/runs/warnings");
+  for (std::string& w : runWarnings) w = from.message(w);
+  runs["warnings"] = runWarnings;
   r["runs"] = runs;
-  // The runs' distinct warnings (the runs table's /provenance/warnings; the command line prints one line per kind).
-  r["warnings"] = h5ReadStrings(runsTable, "/provenance/warnings");
+  std::vector<std::string> warnings = h5ReadStrings(runsTable, "/provenance/warnings");
+  for (std::string& w : warnings) w = from.message(w);
+  r["warnings"] = warnings;
   r["log"] = logText;
   r["output"] = out.shown(o.output);
   r["runs_table"] = out.shown(runsTable);
   r["attributes"].cast<py::dict>()["runs_table"] = out.shown(runsTable);
-  r["report"] = out.report(report.text());
+  r["report"] = out.report(from.message(report.text()));
   r["caution"] = caution;
   return r;
 }
@@ -968,9 +1015,9 @@ py::dict runSensitivityPython(const py::object& spec, const py::object& params, 
 py::dict runUncertaintyPython(const py::object& spec, const py::object& params, const py::object& fromFit,
                               std::size_t samples, const std::string& design, const py::object& series,
                               const py::object& metrics, std::uint64_t seed, int jobs, const std::string& output,
-                              const py::object& set) {
+                              const py::object& set, const std::string& base) {
+  const CaseSource from = caseSource(spec, base);
   UncertaintyOptions o;
-  o.casePath = casePathOf(spec, "uncertainty");
   o.params = strings(params, "params");
   o.fromFit = fromFit.is_none() ? std::string() : py::str(py::module_::import("os").attr("fspath")(fromFit)).cast<std::string>();
   o.samples = samples;
@@ -980,11 +1027,11 @@ py::dict runUncertaintyPython(const py::object& spec, const py::object& params, 
   o.jobs = jobs;
   o.overrides = strings(set, "set");
   o.commandLine = "python: thermorph.uncertainty";
-  const DriverOutput out(output, o.casePath, "_uncertainty.h5");
+  const DriverOutput out(output, caseStem(from), "_uncertainty.h5");
   o.output = out.path;
   TextStream report, log;
   std::string logText;
-  runDriver(o, &runUncertaintyCommand, report, log, logText);
+  runDriver(o, &runUncertaintyCommand, report, log, logText, from);
   py::dict r = readGroup(o.output, "/uncertainty");
   // metrics=[...]: the named metrics' rows only (the command line keeps every metric).
   const std::vector<std::string> wanted = strings(metrics, "metrics");
@@ -1014,7 +1061,7 @@ py::dict runUncertaintyPython(const py::object& spec, const py::object& params, 
   r["warnings"] = loggedWarnings(logText);
   r["log"] = logText;
   r["output"] = out.shown(o.output);
-  r["report"] = out.report(report.text());
+  r["report"] = out.report(from.message(report.text()));
   r["caution"] = caution;
   return r;
 }
@@ -1036,8 +1083,9 @@ PYBIND11_MODULE(thermorph, m) {
       py::arg("case"), py::arg("set") = std::vector<std::string>{}, py::arg("output") = "", py::arg("base") = ".",
       "Integrate a case (TOML path, TOML text or dict) with --set-style overrides (\"KEY=VALUE\"); returns a dict "
       "of NumPy arrays: time [s], core/blood/mean_skin_temperature [degC], heat_flow and cumulative_heat by "
-      "channel [W, J], segments[NAME] (temperature [nt, nz, nr] degC, radius, axial [m], heat_flow, contact_fraction, in_water), budget "
-      "(flows at the last output, energies), warnings. `output` also writes the HDF5 results file; `base` is "
+      "channel [W, J], segments[NAME] (temperature [nt, nz, nr] degC, radius, axial [m], heat_flow, contact_fraction, in_water), steps "
+      "(the timeline's steps: time [s] and cumulative_heat by channel [J] there, whole body and segments[NAME], one copy; "
+      "the results file's /steps), budget (flows at the last output, energies), warnings. `output` also writes the HDF5 results file; `base` is "
       "the folder for files a TOML string or dict names (weather files).");
   m.def(
       "steady",
@@ -1048,8 +1096,9 @@ PYBIND11_MODULE(thermorph, m) {
   m.def("sweep", &runSweep, py::arg("case"), py::arg("vary") = std::vector<std::string>{},
         py::arg("set") = std::vector<std::string>{}, py::arg("scale") = std::vector<std::string>{},
         py::arg("metrics") = std::vector<std::string>{}, py::arg("zip") = false, py::arg("steady") = false,
-        py::arg("window") = "", py::arg("jobs") = 1,
-        "Sweep a case file over --vary KEY=SPEC axes (and --scale); returns parameters and metrics per run as "
+        py::arg("window") = "", py::arg("jobs") = 1, py::arg("base") = ".",
+        "Sweep a case (TOML path, TOML text or dict, as run() takes it; `base`: the folder for files a text or dict "
+        "names) over --vary KEY=SPEC axes (and --scale); returns parameters and metrics per run as "
         "NumPy arrays (NaN for failed runs), with units, status, errors and each run's warnings (a list of strings per "
         "run; the results file's /runs/warnings joins them with \"; \").");
   m.def("fit", &runFitPython, py::arg("case"), py::arg("data"), py::arg("free"), py::arg("set") = py::none(),
@@ -1075,11 +1124,13 @@ PYBIND11_MODULE(thermorph, m) {
           py::arg("samples") = 0, py::arg("metrics") = py::none(), py::arg("steady") = false, py::arg("window") = "",
           py::arg("jobs") = 1, py::arg("seed") = 1, py::arg("bootstrap") = 1000, py::arg("output") = "",
           py::arg("set") = py::none(), py::arg("levels") = 4, py::arg("gradient") = "auto", py::arg("step") = 1e-3,
+          py::arg("base") = ".",
           fmt::format("{}, as `thermorph sensitivity` does (the same driver; its options by the same names):\n"
-                      "case: a case file path\nparams (--param): {}\nmethod (--method): {}\nsamples (-N): {}; 0: the "
+                      "case: a case: TOML path, TOML text or dict, as run() and fit() take it\nparams (--param): {}\nmethod (--method): {}\nsamples (-N): {}; 0: the "
                       "default\nmetrics (--metric): {}\nsteady (--steady): {}\nwindow (--window): {}\njobs (-j): {}; "
                       "default here 1\nseed (--seed): {}\nbootstrap (--bootstrap): {}\nset (--set): {}\nlevels "
-                      "(--levels): {}\ngradient (--gradient): {}\nstep (--step): {}\noutput (-o): {}; \"\": no file\n"
+                      "(--levels): {}\ngradient (--gradient): {}\nstep (--step): {}\noutput (-o): {}; \"\": no file\nbase: the folder "
+                      "for files a TOML text or dict names (weather files)\n"
                       "Returns the results file's /sensitivity group as a dict (NumPy arrays of the file's shapes: "
                       "first, total, first_low ... [metric, parameter] for sobol; mu, mu_star, sigma for morris; "
                       "derivative, normalised for local; parameters, metrics, units, design), its attributes, runs "
@@ -1094,12 +1145,13 @@ PYBIND11_MODULE(thermorph, m) {
     m.def("uncertainty", &runUncertaintyPython, py::arg("case"), py::arg("params") = py::none(),
           py::arg("from_fit") = py::none(), py::arg("samples") = 200, py::arg("design") = "lhs",
           py::arg("series") = py::none(), py::arg("metrics") = py::none(), py::arg("seed") = 1, py::arg("jobs") = 1,
-          py::arg("output") = "", py::arg("set") = py::none(),
+          py::arg("output") = "", py::arg("set") = py::none(), py::arg("base") = ".",
           fmt::format("{}, as `thermorph uncertainty` does (the same driver; its options by the same names):\n"
-                      "case: a case file path\nparams (--param): {}\nfrom_fit (--from-fit): {}\nsamples "
+                      "case: a case: TOML path, TOML text or dict, as run() and fit() take it\nparams (--param): {}\nfrom_fit (--from-fit): {}\nsamples "
                       "(--samples): {}\ndesign (--design): {}\nseries (--series): {}\nmetrics: the metrics to "
                       "return (default every one; the file keeps every one)\nseed (--seed): {}\njobs (-j): {}; "
-                      "default here 1\nset (--set): {}\noutput (-o): {}; \"\": no file\n"
+                      "default here 1\nset (--set): {}\noutput (-o): {}; \"\": no file\nbase: the folder for files a "
+                      "TOML text or dict names (weather files)\n"
                       "Returns the results file's /uncertainty group as a dict (NumPy arrays: samples [sample, "
                       "parameter], run_ok, metric_values [sample, metric], metric_quantiles [metric, probability], "
                       "metric_mean, metric_sd, metric_base, time, series[NAME] q05 ... q95, mean, base), its attributes, "

@@ -56,6 +56,17 @@ def compare(r, h5):
             for k in ("contact_fraction", "in_water"):
                 same(seg[k], g[k][()], f"{name} {k}")
         same(r["budget"]["energy_balance_error"], f["body/energy_balance_error"][-1], "energy balance error")
+        # The timeline's steps (/steps; none in a steady state's file, and none in the module's dict then).
+        steps = r["steps"]
+        if "steps" not in f:
+            check(steps["time"].size == 0, f"steps without /steps in the file: {steps['time']}")
+            return
+        same(steps["time"], f["steps/step_time"][()], "steps time")
+        for c, v in steps["cumulative_heat"].items():
+            same(v, f[f"steps/body/cumulative_heat/{c}"][()], f"steps cumulative_heat {c}")
+        for name, seg in steps["segments"].items():
+            for c, v in seg["cumulative_heat"].items():
+                same(v, f[f"steps/segments/{name}/cumulative_heat/{c}"][()], f"steps {name} cumulative_heat {c}")
 
 
 def main():
@@ -85,6 +96,12 @@ def main():
         after = r["time"] >= 600.0
         same(limb["contact_fraction"], np.where(after, 0.3, 0.0), "forelimb contact_fraction against the event")
         same(limb["in_water"], np.where(after, 1.0, 0.0), "forelimb in_water against the event")
+        # The step at 10 min is an output: the energies stored at the step are those of that output (one state).
+        check(np.array_equal(r["steps"]["time"], [600.0]), f"steps: the event's time ({r['steps']['time']})")
+        at = int(np.searchsorted(r["time"], 600.0))
+        with h5py.File(ev_h5, "r") as f:
+            for c, v in r["steps"]["segments"]["forelimb"]["cumulative_heat"].items():
+                same(v, f[f"segments/forelimb/cumulative_heat/{c}"][at:at + 1], f"forelimb {c}: the step = the output")
 
         steady_h5 = tmp / "steady.h5"
         subprocess.run([exe, "steady", str(case), "-o", str(steady_h5), "-q"], check=True, stdout=subprocess.DEVNULL)

@@ -22,13 +22,18 @@ command line's tests (tests/e2e_sensitivity.sh, tests/test_fit_sensitivity.cpp).
      through Newton cooling gives the exact quantiles"); 400 Latin-hypercube samples, within 3 % of the SD.
 3. Bad input (unknown method, malformed --param, unknown key, unknown distribution) raises thermorph.CaseError
    with the command line's message (its stderr "error: MESSAGE", exit 2).
+4. The case given as a dict or as TOML text, as run() and fit() take it: Sobol', local and uncertainty results
+   equal the CLI's on the case file bit for bit, warnings and a bad value's message are the CLI's naming
+   "<case dict>" (key path, no line) or "<case text>" (its own line and column).
 
     test_python_sensitivity.py MODULE_DIR THERMORPH_EXE SOURCE_DIR
 """
 import math
+import re
 import subprocess
 import sys
 import tempfile
+import tomllib
 from pathlib import Path
 
 import h5py
@@ -200,10 +205,74 @@ with tempfile.TemporaryDirectory() as tmp:
             ["uncertainty", str(case), "--param", "environment.temprature[degC]=normal:1:2"])
     refused("from_fit missing", lambda: thermorph.uncertainty(str(case), from_fit=str(tmp / "missing.h5")),
             ["uncertainty", str(case), "--from-fit", str(tmp / "missing.h5")])
+
+    # ---- 1 + 3: a case given as a dict or as TOML text (as run() and fit() take it) ---------------------------
+    # The same results as the file's, bit for bit, against the CLI on the file; messages name "<case dict>" with the
+    # key path (a dict has no lines of its own) or "<case text>" with its own line and column, as run() does.
+    def as_given(what, message, path):
+        if what == "dict":
+            return re.sub(re.escape(str(path)) + r"(:\d+:\d+)?", "<case dict>", message)
+        return message.replace(str(path), "<case text>")
+
+    text = case.read_text()
+    forms = (("dict", tomllib.loads(text)), ("TOML text", text))
+    r = cli("sensitivity", str(case), "--method", "sobol", "-N", "64", "--param", params[0], "--param", params[1],
+            "--metric", metric, "--seed", "3", "--bootstrap", "100", "-q", "-o", str(tmp / "cli_sobol64.h5"))
+    check(r.returncode == 0, f"CLI sobol 64 exit {r.returncode}")
+    cli_warnings = [l.split("): ", 1)[-1] for l in r.stderr.splitlines() if l.startswith("warning (")]  # per kind
+    for what, given in forms:
+        kind = "dict" if what == "dict" else "text"
+        sd = thermorph.sensitivity(given, params=params, method="sobol", samples=64, metrics=[metric], seed=3,
+                                   bootstrap=100, base=str(tmp))
+        same_group(sd, tmp / "cli_sobol64.h5", "sensitivity", f"sobol, case as a {what}")
+        with h5py.File(tmp / "cli_sobol64_runs.h5") as f:
+            check(np.array_equal(f["metrics/" + metric][()], sd["runs"]["metrics"][metric]),
+                  f"sobol, case as a {what}: per-run metric values = the CLI's on the file")
+        expect = [as_given(kind, w, case) for w in cli_warnings]
+        check(len(expect) >= 1 and sd["warnings"] == expect and not any("/<case" in w for w in sd["warnings"]),
+              f"sobol, case as a {what}: the CLI's warnings ({sd['warnings']})")
+        check(thermorph.CAUTION in sd["report"] and str(tmp) not in sd["report"],
+              f"sobol, case as a {what}: the report keeps the caution and names no scratch file")
+        lo2 = thermorph.sensitivity(given, params=local, method="local", metrics=[metric], base=str(tmp))
+        same_group(lo2, tmp / "cli_local.h5", "sensitivity", f"local (CVODES), case as a {what}")
+        u2 = thermorph.uncertainty(given, params=up, series=["body.core_temperature"], samples=400, seed=7, jobs=2,
+                                   base=str(tmp))
+        same_group(u2, tmp / "cli_unc.h5", "uncertainty", f"uncertainty, case as a {what}")
+        check(thermorph.CAUTION in u2["report"], f"uncertainty, case as a {what}: the report keeps the caution")
+
+    # A sweep of the case as a dict or text: the rows of the file's sweep, bit for bit.
+    vary = ["environment.temperature=0 degC:10 degC:3"]
+    sw = thermorph.sweep(str(case), vary=vary, metrics=[metric])
+    for what, given in forms:
+        sg = thermorph.sweep(given, vary=vary, metrics=[metric], base=str(tmp))
+        check(np.array_equal(sg["metrics"][metric], sw["metrics"][metric]) and sg["warnings"] == sw["warnings"],
+              f"sweep, case as a {what}: the file's metrics and warnings")
+
+    # A value of the wrong unit: the CLI's message on the same text in a file, naming the key path and the unit.
+    bad_text = text.replace('convection = "0.01 W/(m2 K)"', 'convection = "0.01 K"')
+    check(bad_text != text, "the bad case differs from the good one")
+    bad_file = tmp / "bad_lump.toml"
+    bad_file.write_text(bad_text)
+    for command, call in (("sensitivity", lambda g: thermorph.sensitivity(g, params=params, base=str(tmp))),
+                          ("uncertainty", lambda g: thermorph.uncertainty(g, params=up, base=str(tmp)))):
+        first = params if command == "sensitivity" else up
+        r = cli(command, str(bad_file), *[x for p in first for x in ("--param", p)], "-q", "-o", str(tmp / "bad.h5"))
+        message = next((l[len("error: "):] for l in r.stderr.splitlines() if l.startswith("error: ")), "")
+        check(r.returncode == 2 and "environment.convection" in message and "W/(m2 K)" in message,
+              f"{command} CLI on a bad unit: exit 2 naming the key path and the unit ({message})")
+        for what, given in (("dict", tomllib.loads(bad_text)), ("TOML text", bad_text)):
+            kind = "dict" if what == "dict" else "text"
+            try:
+                call(given)
+                check(False, f"{command}, bad {what}: no CaseError")
+            except thermorph.CaseError as e:
+                expect = as_given(kind, message, bad_file)
+                check(str(e) == expect and str(e).startswith(f"<case {kind}>"),
+                      f"{command}, bad {what}: the CLI's message naming <case {kind}> ({e}; expected {expect})")
     try:
-        thermorph.sensitivity({"title": "x"}, params=params)
-        check(False, "a dict case: no TypeError")
-    except TypeError as e:
-        check("case file path" in str(e), f"a dict case: TypeError ({e})")
+        thermorph.sensitivity(str(tmp / "missing.toml"), params=params)
+        check(False, "a missing case file: no CaseError")
+    except thermorph.CaseError as e:
+        check("missing.toml" in str(e) and "cannot open the case file" in str(e), f"a missing case file: {e}")
 
 finish()
