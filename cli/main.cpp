@@ -217,7 +217,8 @@ int main(int argc, char** argv) {
       checkOutputPath(output, inputPaths(c), {incompleteOutputPath(output)});
     }
     Body body(c);
-    for (const std::string& w : body.warnings()) fmt::print(stderr, "warning: {}\n", w);
+    // `steady` uses the t = 0 conditions: the warnings about the timeline after t = 0 do not apply to it.
+    for (const std::string& w : body.warnings(steady->parsed())) fmt::print(stderr, "warning: {}\n", w);
     if (check->parsed()) {
       if (resolved) std::cout << resolvedCaseToml(c);
       else {

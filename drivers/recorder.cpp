@@ -163,7 +163,8 @@ void Recorder::finish(RunSummary& summary, bool steady) {
   summary.stepSegmentEnergy = std::move(steps_.stepSegmentEnergy);
   summary.stepSegmentStoredChange = std::move(steps_.stepSegmentStoredChange);
   // Every warning of the run: the body's (at build) and the environment's (validity ranges, while running).
-  summary.warnings = body_.warnings();
+  // A steady solve uses the t = 0 conditions: the warnings about the timeline after t = 0 are left out.
+  summary.warnings = body_.warnings(steady);
   for (const std::string& w : body_.environment().warnings()) summary.warnings.push_back(w);
   // Found while running (tissue below 0 degC): stored with the others, in result files and sweep rows.
   summary.runWarnings = driverWarnings_;

@@ -96,7 +96,7 @@ RunRow runOne(const SweepPlan& plan, std::size_t run, const std::atomic<bool>* s
     loaded = Clock::now();
     Body body(c);
     built = Clock::now();
-    row.warnings = body.warnings();
+    row.warnings = body.warnings(plan.steady);
     MetricCollector collector(body, plan.window, plan.thresholds, plan.steady);
     RunOptions options;
     options.quiet = true;  // and no results file: options.output stays empty
@@ -108,8 +108,9 @@ RunRow runOne(const SweepPlan& plan, std::size_t run, const std::atomic<bool>* s
     };
     RunSummary summary = plan.steady ? runSteady(body, options) : runTransient(body, options);
     // Warnings of this run, per row: the body's (grids, blood flow, command-line values the timeline takes
-    // over), the run's, and correlations used outside their range.
-    std::vector<std::string> warnings = body.warnings();
+    // over; a steady row leaves out those about the timeline after t = 0), the run's, and correlations used outside
+    // their range.
+    std::vector<std::string> warnings = body.warnings(plan.steady);
     for (const std::string& w : summary.warnings)
       if (std::find(warnings.begin(), warnings.end(), w) == warnings.end()) warnings.push_back(w);
     for (const std::string& w : body.environment().warnings())

@@ -124,6 +124,7 @@ Body::CrossSection Body::crossSection(const SegmentSpec& s, double scale) {
 
 Body::Body(const Case& c) : case_(c) {
   warnings_ = case_.warnings;  // found while loading (models/grid.cpp)
+  timelineWarnings_ = case_.timelineWarnings;
   metabolismChannel_ = network_.channel("metabolism");
   bloodChannel_ = network_.channel("blood");
   conductionChannel_ = network_.channel("conduction");
@@ -241,12 +242,20 @@ void Body::warnStaticContact() {
     }
     if (spans[0].empty() || spans[1].empty()) continue;
     const std::string& name = case_.segments[g].name;
-    warnings_.push_back(fmt::format(
+    timelineWarnings_.push_back(fmt::format(
         "segment {}: contact_fraction {:g} holds in water ({}) and in air ({}): the same share of its surface stands on "
         "the substrate in both; events can change it ([[events]] surface = {{ {} = {{ contact_fraction = 0 }} }})",
         name, case_.segments[g].surface.contactFraction, fmt::join(spans[1], ", "), fmt::join(spans[0], ", "), name));
+    warnings_.push_back(timelineWarnings_.back());  // about the spans of the timeline: not for a steady solve
   }
   environment_->setInterval(0);
+}
+
+std::vector<std::string> Body::steadyWarnings() const {
+  std::vector<std::string> out;
+  for (const std::string& w : warnings_)
+    if (std::find(timelineWarnings_.begin(), timelineWarnings_.end(), w) == timelineWarnings_.end()) out.push_back(w);
+  return out;
 }
 
 void Body::setInterval(std::size_t interval) const {

@@ -139,6 +139,11 @@ class Body {
     double doubleExposedArea = 0.0, hostArea = 0.0;
   };
   const std::vector<Tucking>& tucking() const { return tucking_; }
+  //! The warnings that apply to a steady solve (the t = 0 conditions): warnings() without those about the timeline
+  //! after t = 0 (Case::timelineWarnings and the body's own, e.g. a contact fraction held in water and in air).
+  std::vector<std::string> steadyWarnings() const;
+  //! warnings() for a transient run, steadyWarnings() for a steady solve.
+  std::vector<std::string> warnings(bool steady) const { return steady ? steadyWarnings() : warnings_; }
 
  private:
   // Building a segment (body.cpp): its radial cells' tissues, then per axial cell the nodes, radial conduction,
@@ -249,6 +254,7 @@ class Body {
   Index core_ = 0;
   double totalFlow_ = 0.0, cardiacOutput_ = 0.0, bodyMass_ = 0.0, bloodVolume_ = 0.0, basalRate_ = 0.0;
   std::vector<std::string> warnings_;
+  std::vector<std::string> timelineWarnings_;  //!< the entries of warnings_ about the timeline after t = 0
   std::vector<std::unique_ptr<TissueProperties>> wetCoats_;  //!< coat properties of immersed segments
 };
 

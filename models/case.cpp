@@ -923,6 +923,7 @@ void checkOverriddenByTimeline(const TableView& top, Case& c, const std::vector<
         c.warnings.push_back(fmt::format("{} = {} (command line) holds until t = {:g} s, when an [[events]] entry "
                                          "changes it (the timeline takes over from its first change)",
                                          key, o.substr(o.find('=') + 1), e.at));
+        c.timelineWarnings.push_back(c.warnings.back());  // the value holds at t = 0: not for a steady solve
         break;
       }
     }
@@ -947,6 +948,7 @@ void checkOverriddenByTimeline(const TableView& top, Case& c, const std::vector<
             "{} = {} (an override: --set, a sweep or fit parameter, or set= in Python) holds until t = {:g} s, when {} changes it (the timeline takes over from "
             "its first change)",
             key, o.substr(o.find('=') + 1), e.at, by));
+        c.timelineWarnings.push_back(c.warnings.back());  // the value holds at t = 0: not for a steady solve
         break;
       }
     }

@@ -230,6 +230,9 @@ struct Case {
   EnvironmentSpec environment;
   std::vector<EventSpec> events;
   std::vector<std::string> warnings;  //!< found while loading (grids coarser than needed); Body reports them
+  //! The entries of warnings that describe the timeline after t = 0 (a coat leaving the water, an override the
+  //! timeline takes over): a steady solve uses the t = 0 conditions, so they do not apply to it (Body::steadyWarnings).
+  std::vector<std::string> timelineWarnings;
   //! The values the case text gives (overrides applied) in the tables where a key can be without effect
   //! ([environment], [control], [body], [circulation], [tissues], each segment's surface), by key path as --set
   //! writes it, each with the line and column of its value (0: an override): what the user gave, as opposed to

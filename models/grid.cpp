@@ -976,13 +976,15 @@ void resolveGrid(Case& c) {
           "numbers you use with `thermorph refine`",
           s.name, e.waterLineParent, e.gradingNeeded > 1.0 ? e.gradingNeeded : 100.0));
     // A wet coat that leaves the water: the model has no drying (DEVELOPERS.md "Limits"), said so it is not silent.
-    if (e.coatLeavesWater >= 0.0)
+    if (e.coatLeavesWater >= 0.0) {
       c.warnings.push_back(fmt::format(
           "segment {}: its coat leaves the water at t = {:g} s and is treated as dry from then on (dry conductivity, "
           "no evaporation of the water it holds): thermorph does not model the drying of a wet coat, so the heat "
           "lost after leaving the water is underestimated; surface.wetted_fraction adds evaporation from the "
           "coat's surface over the whole run",
           s.name, e.coatLeavesWater));
+      c.timelineWarnings.push_back(c.warnings.back());  // an event after t = 0: not for a steady solve
+    }
     // Radial cells per layer, the coat last.
     auto radial = [&](std::size_t i, int& cells, bool automatic, const std::string& what, double thickness,
                       double grading) {

@@ -7,6 +7,7 @@
 // Jaeger 1959, sec. 7.2). The solutions here are solved independently (3x3 linear systems).
 #include <catch2/catch.hpp>
 
+#include <algorithm>
 #include <array>
 #include <cmath>
 #include <cstdio>
@@ -155,6 +156,38 @@ TEST_CASE("A coat that leaves the water is named in the warnings (no drying mode
   CHECK(named(loadCaseFromString(text(fur, "water"), "test-case")));
   CHECK_FALSE(named(loadCaseFromString(text(fur, "air"), "test-case")));
   CHECK_FALSE(named(loadCaseFromString(text("", "water"), "test-case")));
+}
+
+TEST_CASE("A steady solve leaves out the warnings about the timeline after t = 0, a transient run keeps them", "[grid]") {
+  // A steady solve uses the t = 0 conditions (the swimming trunk, its coat wet) and not the [[events]] after t = 0,
+  // so "its coat leaves the water at t = 600 s" does not describe it; a transient run of the same case does leave
+  // the water. An override of the water temperature that the timeline takes over at t = 600 s holds throughout a
+  // steady solve, so its warning is left out too. The grid warning of a given coarse grid applies to both.
+  // Common practice, no source: warnings name what the run computed.
+  const std::string text =
+      "title = \"haul-out\"\n[run]\nduration = 1200\noutput_interval = 600\n[[segments]]\nname = \"trunk\"\n"
+      "shape = \"cylinder\"\nlength = 0.2\naxial_cells = 1\nlayers = [{ tissue = \"muscle\", thickness = 0.04 }]\n"
+      "coat = { material = \"fur\", thickness = 0.01 }\n[environment]\nmedium = \"water\"\ntemperature = 283.15\n"
+      "[[events]]\nat = 600\nenvironment = { medium = \"air\", temperature = 278.15, speed = 1 }\n";
+  const Case c = loadCaseFromString(text, "test-case", {"environment.temperature=284.15"});
+  const Body body(c);
+  auto has = [](const std::vector<std::string>& ws, const std::string& part) {
+    return std::any_of(ws.begin(), ws.end(), [&](const std::string& w) { return w.find(part) != std::string::npos; });
+  };
+  const std::string coat = "its coat leaves the water at t = 600 s", takeOver = "holds until t = 600 s";
+  REQUIRE(has(body.warnings(), coat));
+  REQUIRE(has(body.warnings(), takeOver));
+  const RunSummary steady = runSteady(body, silentRun());
+  const RunSummary transient = runTransient(body, silentRun());
+  REQUIRE(steady.complete);
+  REQUIRE(transient.complete);
+  CHECK_FALSE(has(steady.warnings, coat));
+  CHECK_FALSE(has(steady.warnings, takeOver));
+  CHECK(has(transient.warnings, coat));
+  CHECK(has(transient.warnings, takeOver));
+  // What applies at t = 0 stays: the given single axial cell of a trunk in water (grid estimate).
+  CHECK(has(steady.warnings, "axial_cells = 1"));
+  CHECK(has(transient.warnings, "axial_cells = 1"));
 }
 
 TEST_CASE("A bare child on a coated parent, its cells longer than its skin's Biot length, is named", "[grid]") {
