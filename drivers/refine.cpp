@@ -180,6 +180,13 @@ std::optional<Case> coarsenedCase(const Case& c, int factor) {
   return out;
 }
 
+std::string storageStem(const std::string& name) {
+  static const std::string storage = "heat_flow.storage";
+  if (name.size() < storage.size() || name.compare(name.size() - storage.size(), storage.size(), storage) != 0)
+    return "";
+  return name.substr(0, name.size() - std::string("storage").size());  // "body.heat_flow.", "segments.X.heat_flow."
+}
+
 RefineResult runRefinement(const RefineOptions& options) {
   if (options.levels < 3 || options.levels > 5)
     throw CaseError(fmt::format("--levels {}: give 3 to 5 levels (1x, 2x, 4x, ...); an order needs three",
@@ -197,9 +204,15 @@ RefineResult runRefinement(const RefineOptions& options) {
 
   RefineResult result;
   result.warnings = base.warnings;
+  // A steady refinement uses the t = 0 conditions: the warnings about the timeline after t = 0 do not apply.
+  if (options.steady)
+    std::erase_if(result.warnings, [&](const std::string& w) {
+      return std::find(base.timelineWarnings.begin(), base.timelineWarnings.end(), w) != base.timelineWarnings.end();
+    });
   result.referenceTemperature = base.environment.temperature - 273.15;
   std::vector<MetricColumn> columns;
   std::vector<std::vector<double>> values;  // [level][column]
+  std::map<std::string, double> finest;     // every metric of the last (finest) level, selected or not
   const bool hasSteadyStart = options.steady || base.run.initial == InitialCondition::Steady;
   std::unique_ptr<Body> coarser;         // the previous level's body and steady state (warm start)
   std::vector<double> coarserSteady;
@@ -238,6 +251,7 @@ RefineResult runRefinement(const RefineOptions& options) {
     }
     std::map<std::string, double> byName;
     for (std::size_t k = 0; k < names.size(); ++k) byName[names[k].name] = v[k];
+    finest = byName;
     std::vector<double> row;
     for (const MetricColumn& col : columns) row.push_back(byName.count(col.name) ? byName[col.name] : notANumber);
     values.push_back(row);
@@ -299,6 +313,16 @@ RefineResult runRefinement(const RefineOptions& options) {
     row.coarseVsFinest = row.values.front() - row.values.back();
     double denominator = std::abs(row.values.back());
     if (row.units == "degC") denominator = std::abs(row.values.back() - result.referenceTemperature);
+    // Storage is the small difference of the flows in and out (a window mean near zero, e.g. -0.1 W while the
+    // body exchanges 10 W): relative to itself a 0.04 W difference would read as a 30 % grid error. It is taken
+    // relative to the largest |heat flow| of the same body or segment's channels on the finest grid instead.
+    if (const std::string stem = storageStem(row.name); !stem.empty()) {
+      denominator = 0.0;
+      for (const auto& [name, value] : finest)
+        if (name.rfind(stem, 0) == 0 && name != row.name && name.find('.', stem.size()) == std::string::npos &&
+            std::isfinite(value))
+          denominator = std::max(denominator, std::abs(value));
+    }
     row.relative = denominator > 0.0 && !roundOff ? std::abs(row.coarseVsFinest) / denominator : notANumber;
     result.rows.push_back(row);
   }
@@ -336,7 +360,9 @@ std::string refineTable(const RefineResult& r) {
       "order: observed from the three finest grids (Roache 1998); '-': not monotone or converged to round-off.\n"
       "A heat flow below 1e-9 of the table's largest on every grid is zero to round-off (a transfer inside the body): '-'.\n"
       "1x vs fine: |1x - finest| relative to |finest| (heat flows), to |finest - {:.4g} degC| (the medium at t = 0; "
-      "temperatures) or to the finest range (ranges).\n",
+      "temperatures) or to the finest range (ranges);\n"
+      "  storage rows (a small difference of the flows in and out) relative to the largest |heat flow| of the same "
+      "body or segment's channels on the finest grid.\n",
       r.referenceTemperature);
   out += "Model estimates for research, not veterinary or medical advice; follow local regulations, animal-welfare "
          "rules and licensed veterinary or medical practice.\n";

@@ -33,8 +33,13 @@ struct RefineRow {
   double order = 0.0;          //!< observed order from the finest three levels (NaN: not monotone)
   double extrapolated = 0.0;   //!< Richardson value (NaN when the order is undefined)
   double coarseVsFinest = 0.0; //!< level 1 minus the finest level (W or K)
-  double relative = 0.0;       //!< |coarseVsFinest| / |finest| for flows; / |finest - reference| for temperatures
+  //! |coarseVsFinest| / |finest| for flows; / |finest - reference| for temperatures; for storage (NAME ending in
+  //! heat_flow.storage) / the largest |finest| of the same body or segment's channel heat flows (storageStem)
+  double relative = 0.0;
 };
+
+//! "body.heat_flow." for "body.heat_flow.storage", "segments.X.heat_flow." for a segment's storage; "" otherwise.
+std::string storageStem(const std::string& name);
 
 struct RefineResult {
   std::vector<double> factors;   //!< 1, 2, 4, ...

@@ -3,6 +3,7 @@
 // tanh(mL)); command-line values that the timeline would override (models/case.cpp).
 #include <catch2/catch.hpp>
 
+#include <algorithm>
 #include <cmath>
 #include <cstdio>
 #include <filesystem>
@@ -72,8 +73,9 @@ bool anyContains(const std::vector<std::string>& lines, const std::string& a, co
   return false;
 }
 
-//! `thermorph refine --steady` (drivers/refine.cpp) of a case given as text, on `metrics`: 1x/2x/4x rows.
-RefineResult refineSteady(const std::string& text, const std::string& name, const std::vector<std::string>& metrics) {
+//! `thermorph refine [--steady]` (drivers/refine.cpp) of a case given as text, on the `metrics` selection.
+RefineResult refineText(const std::string& text, const std::string& name, const std::vector<std::string>& metrics,
+                        bool steady) {
   const std::filesystem::path path = std::filesystem::temp_directory_path() / ("thermorph_test_refine_" + name + ".toml");
   {
     std::ofstream out(path);
@@ -81,10 +83,16 @@ RefineResult refineSteady(const std::string& text, const std::string& name, cons
   }
   RefineOptions options;
   options.casePath = path.string();
-  options.steady = true;
+  options.steady = steady;
   options.metrics = metrics;
   RefineResult r = runRefinement(options);
   std::filesystem::remove(path);
+  return r;
+}
+
+//! `thermorph refine --steady` of a case given as text, on `metrics` (full names): 1x/2x/4x rows.
+RefineResult refineSteady(const std::string& text, const std::string& name, const std::vector<std::string>& metrics) {
+  RefineResult r = refineText(text, name, metrics, true);
   REQUIRE(r.rows.size() == metrics.size());
   return r;
 }
@@ -124,6 +132,63 @@ TEST_CASE("Refinement study of the coarse pin fin: observed order 2 and Richards
   CHECK(std::abs(row.order - 2.0) <= 0.2);  // second-order scheme (DEVELOPERS.md)
   CHECK(std::abs(row.extrapolated / reference - 1.0) <= 0.003);  // 1-D fin vs the 2-D body: Bi = 6e-3
   CHECK(std::abs(row.relative - std::abs(row.values[0] / row.values[2] - 1.0)) <= 1e-12);
+}
+
+TEST_CASE("Refinement: a storage row near zero is compared with the body's or segment's largest heat flow",
+          "[grid]") {
+  // A trunk at its steady state in 20 degC water whose water cools by 0.05 K at 60 s: over the 20-min window its
+  // storage is a small negative mean (a few % of the metabolic and convective flows). Relative to itself, the 1x
+  // grid's storage difference would read as a large grid error; relative to the largest channel flow of the same
+  // body or segment it is bounded, by the first law (storage = the sum of the channel flows, on every grid), by
+  // the channels' own differences: |d storage| <= sum |d channel| (Incropera et al. 2007, eq. 1.11c, the energy
+  // balance of a control volume). The table's footer says which scale is used.
+  const std::string text = R"toml(title = "storage near zero (illustrative)"
+[run]
+initial = "steady"
+duration = "20 min"
+output_interval = "5 min"
+[body]
+basal_metabolic_rate = "2 W"
+[[segments]]
+name = "trunk"
+shape = "cylinder"
+length = "15 cm"
+axial_cells = 2
+layers = [{ tissue = "muscle", thickness = "2 cm", cells = 2 }, { tissue = "fat", thickness = "0.4 cm", cells = 1 },
+          { tissue = "skin", thickness = "0.2 cm", cells = 1 }]
+[environment]
+medium = "water"
+temperature = "20 degC"
+speed = "0.2 m/s"
+[[events]]
+at = "1 min"
+environment = { temperature = "19.95 degC" }
+)toml";
+  const RefineResult r = refineText(text, "storage", {"body.heat_flow", "segments.trunk.heat_flow"}, false);
+  for (const std::string stem : {"body.heat_flow.", "segments.trunk.heat_flow."}) {
+    const RefineRow* storage = nullptr;
+    double scale = 0.0, channelDifferences = 0.0;
+    for (const RefineRow& row : r.rows) {
+      if (row.name.rfind(stem, 0) != 0) continue;
+      if (row.name == stem + "storage") storage = &row;
+      else {
+        scale = std::max(scale, std::abs(row.values.back()));
+        channelDifferences += std::abs(row.coarseVsFinest);
+      }
+    }
+    REQUIRE(storage != nullptr);
+    const double s = storage->values.back(), self = std::abs(storage->coarseVsFinest / s);
+    std::printf("[grid] refine storage %s: %.5g / %.5g / %.5g W, largest channel %.4g W; 1x vs fine %.3g %% "
+                "(relative to itself %.3g %%; the channels' differences sum to %.3g %%)\n",
+                storage->name.c_str(), storage->values[0], storage->values[1], s, scale, 100.0 * storage->relative,
+                100.0 * self, 100.0 * channelDifferences / scale);
+    REQUIRE(s < 0.0);
+    REQUIRE(std::abs(s) < 0.1 * scale);  // the premise: storage small beside the exchange
+    CHECK(storage->relative <= channelDifferences / scale * (1.0 + 1e-3) + 1e-6);  // the first-law bound
+    CHECK(storage->relative < self);
+  }
+  CHECK(refineTable(r).find("storage rows (a small difference of the flows in and out) relative to the largest "
+                            "|heat flow|") != std::string::npos);
 }
 
 TEST_CASE("Refined case multiplies every cell count", "[grid]") {
