@@ -29,6 +29,8 @@
   where they act (the quadruped swimming from 10 to 20 min, all in water and with its head above water); a map's
   radial profile equal to an earlier one (a steady start and the output on the first step) is dashed over it, and
   the budget's flows over time are not joined across a step (the output on it holds the flows after it).
+- Default map times: first, middle, last output without labelled events; with them the last output inside the first
+  labelled span replaces the middle (the contact study's dive, the sample's "cold air"), and the footer says so.
 Exits 1 on any failure.
 """
 
@@ -602,6 +604,22 @@ def check_contact_series(tmp: Path, exe: str):
         check(title.endswith(": " + ", ".join(want)), f"contact study: map title at {t:g} s {title!r}, expected {want}")
     footer = " ".join(maps["forelegs"].thermorph_footer.get_text().split())
     check("20 min: an output on a step" in footer, f"contact study: maps footer does not flag the step: {footer!r}")
+    # Without --times the maps show the tissue inside the first labelled span (the dive, 10.5 to 20 min): the first
+    # output, the last output before the dive ends (the event table's, not thermorph's), the last output; the
+    # footer says so. The first and last outputs are in air.
+    with Results(h5) as res:
+        out = np.asarray(res.time, float)
+        maps = figures.maps_figures(res, segments=["forelegs"])
+    inside = out[(out > CONTACT_DIVE) & (out < CONTACT_BACK)].max()
+    titles = {ax.get_label(): " ".join(ax.thermorph_title[1].split()) for ax in maps["forelegs"].axes
+              if ax.get_label().startswith("map at")}
+    want = [f"map at t = {x:.10g} s" for x in (out[0], inside, out[-1])]
+    check(sorted(titles) == sorted(want), f"contact study: default map times {sorted(titles)}, expected {want}")
+    check(titles.get(want[1], "").endswith(": in water, no contact, dive"),
+          f"contact study: default middle map not in the dive: {titles.get(want[1])!r}")
+    footer = " ".join(maps["forelegs"].thermorph_footer.get_text().split())
+    check("Map times (default)" in footer and "(dive, " in footer,
+          f"contact study: maps footer does not say the default times: {footer!r}")
 
     def substrate_and_water(path):
         with Results(path) as res:
@@ -785,6 +803,28 @@ def check_overlay_and_sweep(tmp: Path, exe: str):
           f"README sweep heat map: ticks {list(ax.get_xticks())}, {list(ax.get_yticks())}; expected the swept values")
 
 
+def check_default_map_times(tmp: Path):
+    """Default map times: first, middle and last output without labelled events (a file without /events), and
+    no note; with the sample's labelled span ("cold air", 1 h to 2 h) the last output inside it replaces the middle.
+    Common practice, no source: the default should show the tissue during the case's labelled episode."""
+    from thermorph_post import figures, sample
+    from thermorph_post.results import Results
+    plain, labelled = tmp / "default_times_minimal.h5", tmp / "default_times_full.h5"
+    sample.main([str(plain), "--minimal"])
+    sample.main([str(labelled)])
+    with Results(plain) as res:
+        t = np.asarray(res.time, float)
+        times, note = figures.default_map_times(res)
+    check(times == [t[0], 0.5 * (t[0] + t[-1]), t[-1]] and note == "",
+          f"default map times without events: {times}, note {note!r}")
+    with Results(labelled) as res:
+        t = np.asarray(res.time, float)
+        times, note = figures.default_map_times(res)
+    inside = t[(t > 3600.0) & (t < 7200.0)].max()
+    check(times == [t[0], inside, t[-1]] and "cold air" in note,
+          f"default map times with the labelled span 1 h to 2 h: {times}, note {note!r}")
+
+
 def check_cli_times():
     """figures.py --window and --times take times with units like report.py (1 min = 60 s, 1 h = 3600 s: SI
     Brochure 2019, Table 8), and a window also as t0:t1 (sweep's form); a bad time names the option."""
@@ -875,6 +915,7 @@ def main() -> int:
         sys.path.insert(0, str(POSTPROC))   # the checkout's package (the installed one is checked below)
         check_cli_times()
         full = check_figures(tmp)
+        check_default_map_times(tmp)
         if EXE:
             check_steps(tmp, EXE)
             check_immersion(tmp, EXE)

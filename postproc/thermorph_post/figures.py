@@ -371,11 +371,41 @@ def budget(results, out_dir, units: str = "physiology", segments=None, window=No
 
 
 # ---- figure: maps -----------------------------------------------------------------------
+def default_map_times(res: Results) -> tuple[list[float], str]:
+    """The maps' default times [s] and the footer's note on them. Without labelled events: the first, middle and
+    last output (note ""). With labelled events (a dive, a foraging bout): the first output, the last output inside
+    the first labelled span (from its start to its end, or for an event without a span to the next change of the
+    timeline), and the last output, so the tissue is seen in that span and not only before and after it (the
+    middle output of a run with short bouts in water falls in air). An output on the span's start or end is left
+    out (the temperatures there are those before the step, the title's medium the one after it). When no output
+    lies inside the span, or the span reaches the last output, first, middle and last."""
+    t = np.asarray(res.time, float)
+    plain = [float(t[0]), 0.5 * float(t[0] + t[-1]), float(t[-1])]
+    if len(t) < 3:
+        return plain, ""
+    labelled = [(a, b, lab) for a, b, lab in res.events() if lab and not is_default_event_label(lab) and a >= t[0]]
+    if not labelled:
+        return plain, ""
+    start, end, label = labelled[0]
+    if not end > start:
+        later = [at for at, _ in res.timeline_changes() if at > start]
+        end = min(later) if later else float(t[-1])
+    inside = np.nonzero((t > start) & (t < end))[0]
+    if len(inside) == 0 or inside[-1] >= len(t) - 1:
+        return plain, ""
+    pick = float(t[inside[-1]])
+    scale = time_scale(res.duration)
+    note = (f"Map times (default): the first output, the last output inside the first labelled span of the timeline "
+            f"({label}, {format_time(start, scale)} to {format_time(end, scale)}: {format_time(pick, scale)}) and the "
+            "last output; --times (times=) chooses others.")
+    return [float(t[0]), pick, float(t[-1])], note
+
+
 def _time_indices(res: Results, times) -> list[int]:
-    """Output indices nearest the requested times [s]; default first, middle and last."""
+    """Output indices nearest the requested times [s]; default default_map_times."""
     requested = times is not None
     if not requested:
-        times = [res.time[0], 0.5 * (res.time[0] + res.time[-1]), res.time[-1]]
+        times, _ = default_map_times(res)
     indices = []
     for t in times:
         i = int(np.argmin(np.abs(res.time - float(t))))
@@ -529,7 +559,8 @@ def maps_figures(res: Results, units: str = "physiology", segments=None, times=N
             if on_step:
                 unstated = (f"{', '.join(on_step)}: an output on a step of the timeline; the temperatures are those "
                             "reached when the step occurs, the medium, contact and events in the title those after it.")
-            add_footer(fig, [n for n in [_cone_note(seg, units), unstated] if n], caution)
+            chosen = default_map_times(res)[1] if times is None else ""
+            add_footer(fig, [n for n in [_cone_note(seg, units), chosen, unstated] if n], caution)
             finish(fig)
         figs[seg.name] = fig
     if not figs:
@@ -974,7 +1005,8 @@ def main(argv=None) -> int:
     ap.add_argument("--window", type=lambda s: _floats(s, "--window"), default=None,
                     help="budget averaging window t0,t1 (s, or with a unit: 10min,1h; or t0:t1) (default: whole run)")
     ap.add_argument("--times", type=lambda s: _floats(s, "--times"), default=None,
-                    help="map times, comma-separated, in s or with a unit (default: first, middle, last output)")
+                    help="map times, comma-separated, in s or with a unit (default: first, middle, last output; "
+                         "with labelled events the last output inside the first labelled span replaces the middle)")
     ap.add_argument("--flow-axis", choices=FLOW_AXES, default="auto",
                     help="budget panel b (whole-body flows over time): symlog draws brief large spikes beside the small "
                          f"terms; auto does so when the largest flow is over {SYMLOG_RATIO:g}x the typical size "
