@@ -1014,8 +1014,8 @@ py::dict runSensitivityPython(const py::object& spec, const py::object& params, 
 
 py::dict runUncertaintyPython(const py::object& spec, const py::object& params, const py::object& fromFit,
                               std::size_t samples, const std::string& design, const py::object& series,
-                              const py::object& metrics, std::uint64_t seed, int jobs, const std::string& output,
-                              const py::object& set, const std::string& base) {
+                              const py::object& metrics, const std::string& window, std::uint64_t seed, int jobs,
+                              const std::string& output, const py::object& set, const std::string& base) {
   const CaseSource from = caseSource(spec, base);
   UncertaintyOptions o;
   o.params = strings(params, "params");
@@ -1023,6 +1023,8 @@ py::dict runUncertaintyPython(const py::object& spec, const py::object& params, 
   o.samples = samples;
   o.design = design;
   o.series = strings(series, "series");
+  o.metrics = strings(metrics, "metrics");  // --metric: selectors, patterns and time_to thresholds
+  o.window = window;
   o.seed = seed;
   o.jobs = jobs;
   o.overrides = strings(set, "set");
@@ -1033,30 +1035,6 @@ py::dict runUncertaintyPython(const py::object& spec, const py::object& params, 
   std::string logText;
   runDriver(o, &runUncertaintyCommand, report, log, logText, from);
   py::dict r = readGroup(o.output, "/uncertainty");
-  // metrics=[...]: the named metrics' rows only (the command line keeps every metric).
-  const std::vector<std::string> wanted = strings(metrics, "metrics");
-  if (!wanted.empty()) {
-    const std::vector<std::string> names = r["metric_names"].cast<std::vector<std::string>>();
-    std::vector<py::ssize_t> rows;
-    for (const std::string& w : wanted) {
-      auto at = std::find(names.begin(), names.end(), w);
-      if (at == names.end())
-        throw CaseError(fmt::format("uncertainty: metrics: no metric {}; the metrics are {}", w, fmt::join(names, ", ")));
-      rows.push_back(at - names.begin());
-    }
-    py::module_ np = py::module_::import("numpy");
-    py::array index = py::cast(rows);
-    r["metric_names"] = wanted;
-    for (const char* name : {"metric_units"}) {
-      const std::vector<std::string> all = r[name].cast<std::vector<std::string>>();
-      std::vector<std::string> kept;
-      for (py::ssize_t i : rows) kept.push_back(all[static_cast<std::size_t>(i)]);
-      r[name] = kept;
-    }
-    for (const char* name : {"metric_quantiles", "metric_mean", "metric_sd", "metric_base"})
-      r[name] = np.attr("take")(r[name], index, py::arg("axis") = 0);
-    r["metric_values"] = np.attr("take")(r["metric_values"], index, py::arg("axis") = 1);
-  }
   // The command line's warnings (also in the file's /uncertainty attribute "warnings").
   r["warnings"] = loggedWarnings(logText);
   r["log"] = logText;
@@ -1144,21 +1122,23 @@ PYBIND11_MODULE(thermorph, m) {
     namespace h = uncertainty_help;
     m.def("uncertainty", &runUncertaintyPython, py::arg("case"), py::arg("params") = py::none(),
           py::arg("from_fit") = py::none(), py::arg("samples") = 200, py::arg("design") = "lhs",
-          py::arg("series") = py::none(), py::arg("metrics") = py::none(), py::arg("seed") = 1, py::arg("jobs") = 1,
-          py::arg("output") = "", py::arg("set") = py::none(), py::arg("base") = ".",
+          py::arg("series") = py::none(), py::arg("metrics") = py::none(), py::arg("window") = "",
+          py::arg("seed") = 1, py::arg("jobs") = 1, py::arg("output") = "", py::arg("set") = py::none(),
+          py::arg("base") = ".",
           fmt::format("{}, as `thermorph uncertainty` does (the same driver; its options by the same names):\n"
                       "case: a case: TOML path, TOML text or dict, as run() and fit() take it\nparams (--param): {}\nfrom_fit (--from-fit): {}\nsamples "
-                      "(--samples): {}\ndesign (--design): {}\nseries (--series): {}\nmetrics: the metrics to "
-                      "return (default every one; the file keeps every one)\nseed (--seed): {}\njobs (-j): {}; "
+                      "(--samples): {}\ndesign (--design): {}\nseries (--series): {}\nmetrics (--metric): {}\n"
+                      "window (--window): {}\nseed (--seed): {}\njobs (-j): {}; "
                       "default here 1\nset (--set): {}\noutput (-o): {}; \"\": no file\nbase: the folder for files a "
                       "TOML text or dict names (weather files)\n"
                       "Returns the results file's /uncertainty group as a dict (NumPy arrays: samples [sample, "
                       "parameter], run_ok, metric_values [sample, metric], metric_quantiles [metric, probability], "
-                      "metric_mean, metric_sd, metric_base, time, series[NAME] q05 ... q95, mean, base), its attributes, "
+                      "metric_mean, metric_sd, metric_base, metric_reached, time, series[NAME] q05 ... q95, mean, base), "
+                      "its attributes, "
                       "warnings (the command line's), report (with the caution) and caution. Bad input raises "
                       "CaseError with the command line's message.",
-                      h::command, h::param, h::fromFit, h::samples, h::design, h::series, h::seed, h::jobs, h::set,
-                      h::output)
+                      h::command, h::param, h::fromFit, h::samples, h::design, h::series, h::metric, h::window,
+                      h::seed, h::jobs, h::set, h::output)
               .c_str());
   }
 }

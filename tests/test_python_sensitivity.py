@@ -173,6 +173,17 @@ with tempfile.TemporaryDirectory() as tmp:
     only = thermorph.uncertainty(str(case), params=up, samples=20, metrics=[metric])
     check(only["metric_names"] == [metric] and only["metric_quantiles"].shape == (1, 5)
           and only["metric_values"].shape == (20, 1), "metrics= selects the rows")
+    # metrics= is --metric: a threshold as well; equal to the command line's file bit for bit.
+    thr = ["time_to:body.core_temperature<25 degC", "body.core_temperature.final"]
+    ut = thermorph.uncertainty(str(case), params=up, samples=20, metrics=thr, output=str(tmp / "py_thr.h5"))
+    rc = cli("uncertainty", str(case), "--param", up[0], "--samples", "20", "--metric", thr[0], "--metric", thr[1],
+             "-q", "-j", "1", "-o", str(tmp / "cli_thr.h5"))
+    check(rc.returncode == 0, f"CLI uncertainty --metric exit 0 ({rc.stderr[-300:]})")
+    with h5py.File(tmp / "cli_thr.h5") as f:
+        same = all(np.array_equal(np.asarray(f["uncertainty"][k][()]), np.asarray(ut[k]), equal_nan=True)
+                   for k in ("metric_values", "metric_quantiles", "metric_reached"))
+    check(sorted(ut["metric_names"]) == sorted(["body.core_temperature.final", "time_to.body.core_temperature<25degC"])
+          and same, "metrics= takes --metric's thresholds, as the command line (bit for bit)")
 
     # A draw the case refuses: the CLI's warning, as a string.
     bad = ["environment.convection[W/(m2 K)]=normal:0.01:0.02"]
