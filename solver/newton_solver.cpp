@@ -78,11 +78,18 @@ namespace {
 // Column j starts at a + j ldim (ldim = smu + ml + 1; no array of column pointers: 8 bytes per node less) and
 // (i, j) is at a[j ldim + i - j + smu]; the pivot row l of column k is stored as its offset l - k (0 .. ml, one
 // byte: the band path is taken only for ml <= kMaxPivotOffset). Returns 0, or k + 1 for a zero pivot in column k.
+// Storage without the room for the pivots' fill (smu = mu; NewtonSolver::Band starts so): a column whose pivot
+// search picks another row stops the factorisation (kNeedsPivotRoom) before anything is swapped, and the caller
+// factorises again in the full storage. Without a row swap the rows above mu stay zero all the way (the full
+// storage's loop over the columns k + mu + 1 .. k + smu meets a(k, j) = 0 there and does nothing), so both storages
+// give the same factors, bit for bit.
 using BandIndex = std::ptrdiff_t;
 using PivotOffset = std::uint8_t;
 constexpr BandIndex kMaxPivotOffset = 255;
+constexpr BandIndex kNeedsPivotRoom = -1;
 BandIndex bandFactor(double* a, BandIndex ldim, BandIndex n, BandIndex mu, BandIndex ml, BandIndex smu,
                      PivotOffset* p) {
+  const bool pivotRoom = smu >= std::min(n - 1, mu + ml);
   // Zero the first smu - mu rows (the room for the pivots' fill).
   for (BandIndex c = 0; c < n; ++c)
     for (BandIndex r = 0; r < smu - mu; ++r) a[c * ldim + r] = 0.0;
@@ -99,6 +106,7 @@ BandIndex bandFactor(double* a, BandIndex ldim, BandIndex n, BandIndex mu, BandI
         l = i;
         max = std::abs(subDiagK[i - k - 1]);
       }
+    if (l != k && !pivotRoom) return kNeedsPivotRoom;
     BandIndex storageL = l - k + smu;
     *p = static_cast<PivotOffset>(l - k);
     if (colK[storageL] == 0.0) return k + 1;
@@ -173,7 +181,11 @@ void bandSolve(const double* a, BandIndex ldim, BandIndex n, BandIndex smu, Band
 //! takes x_1 = B^-1 (b_1 - E x_2) with a second band solve, from the right-hand side b_1 the caller still holds.
 struct NewtonSolver::Band {
   Index size = 0;                               //!< m
-  Index lower = 0, upper = 0, storedUpper = 0;  //!< ml, mu of B, smu = min(m - 1, mu + ml) (room for the pivots' fill)
+  //! ml, mu of B, and the stored upper bandwidth smu: mu until a factorisation needs a row swap, then
+  //! min(m - 1, mu + ml) (room for the pivots' fill; bandFactor). A diagonally dominant block (the 1-D radial grid's
+  //! I - gamma J) never swaps: one row of the band storage less, 8 bytes per node of a tridiagonal block.
+  Index lower = 0, upper = 0, storedUpper = 0;
+  Index fullUpper() const { return std::min(size - 1, lower + upper); }
   std::vector<double> data;                     //!< column j: rows j - smu .. j + ml, (smu + ml + 1) per column
   std::vector<PivotOffset> pivots;  //!< pivot row of column k minus k
   std::vector<Index> coupled;                   //!< border components (0-based from m) with entries in rows < m
@@ -185,8 +197,11 @@ struct NewtonSolver::Band {
   bool factored = false;
   Index columnLength() const { return storedUpper + lower + 1; }
   Index border(Index f) const { return f - size; }
+  //! Storage of this split with the room for the pivots' fill (what a block that swaps rows needs; the choice
+  //! between the band and KLU does not depend on whether it will).
   double bytes(Index f) const {
-    return static_cast<double>(size) * static_cast<double>(columnLength() * sizeof(double) + sizeof(PivotOffset) +
+    const Index fullLength = fullUpper() + lower + 1;
+    return static_cast<double>(size) * static_cast<double>(fullLength * sizeof(double) + sizeof(PivotOffset) +
                                                          (keepSolved ? coupled.size() * sizeof(double) : 0)) +
            static_cast<double>(border(f) * border(f) * sizeof(double));
   }
@@ -335,7 +350,7 @@ NewtonSolver::NewtonSolver(const SparsePattern& pattern, Index factored, int sca
     b->size = factored - border;
     b->lower = lowerAt[border];
     b->upper = upperAt[border];
-    b->storedUpper = std::min(b->size - 1, b->lower + b->upper);
+    b->storedUpper = b->upper;
     b->keepSolved = factored <= kRowSubstitutionLimit;
     // Border columns with entries in B's rows (rows are sorted: the first entry decides).
     for (Index j = 0; j < border; ++j) {
@@ -382,22 +397,26 @@ void NewtonSolver::setMatrix(std::span<const double> jacobian, double alpha, dou
   beta_ = beta;
   for (std::size_t q = 0; q < rowEntry_.size(); ++q) rowValue_[q] = beta * jacobian[rowEntry_[q]];
   if (band_) {
-    // B's entries (beta J, plus alpha on the diagonal) in band storage: (i, j) at data[j ldim + smu + i - j]; the
-    // rest of the band is zero (GBTRF clears the fill rows above mu itself). E, F and D are read from J.
-    Band& b = *band_;
-    std::fill(b.data.begin(), b.data.end(), 0.0);
-    for (Index c = 0; c < b.size; ++c) {
-      double* column = b.data.data() + c * b.columnLength() + b.storedUpper;
-      for (Index k = pattern_.columnStart[c]; k < pattern_.columnStart[c + 1] && pattern_.rowIndex[k] < b.size; ++k) {
-        const Index r = pattern_.rowIndex[k];
-        const double v = beta * jacobian[k];
-        column[static_cast<std::ptrdiff_t>(r) - static_cast<std::ptrdiff_t>(c)] = r == c ? v + alpha : v;
-      }
-    }
-    b.factored = false;
+    fillBand();
+    band_->factored = false;
     return;
   }
   matrix_->setValues(jacobian, alpha, beta);
+}
+
+void NewtonSolver::fillBand() {
+  // B's entries (beta J, plus alpha on the diagonal) in band storage: (i, j) at data[j ldim + smu + i - j]; the
+  // rest of the band is zero (GBTRF clears the fill rows above mu itself). E, F and D are read from J.
+  Band& b = *band_;
+  std::fill(b.data.begin(), b.data.end(), 0.0);
+  for (Index c = 0; c < b.size; ++c) {
+    double* column = b.data.data() + c * b.columnLength() + b.storedUpper;
+    for (Index k = pattern_.columnStart[c]; k < pattern_.columnStart[c + 1] && pattern_.rowIndex[k] < b.size; ++k) {
+      const Index r = pattern_.rowIndex[k];
+      const double v = beta_ * jacobian_[k];
+      column[static_cast<std::ptrdiff_t>(r) - static_cast<std::ptrdiff_t>(c)] = r == c ? v + alpha_ : v;
+    }
+  }
 }
 
 bool NewtonSolver::factor() {
@@ -405,12 +424,23 @@ bool NewtonSolver::factor() {
   if (band_) {
     // SUNLinSolSetup_Band's factorisation of B: LU with partial pivoting; a positive return is a zero pivot.
     Band& b = *band_;
-    const auto m = static_cast<BandIndex>(b.size), ldim = static_cast<BandIndex>(b.columnLength());
+    const auto m = static_cast<BandIndex>(b.size);
+    auto ldim = static_cast<BandIndex>(b.columnLength());
     b.factored = false;
     ++factorizations_;
-    if (bandFactor(b.data.data(), ldim, m, static_cast<BandIndex>(b.upper), static_cast<BandIndex>(b.lower),
-                   static_cast<BandIndex>(b.storedUpper), b.pivots.data()) != 0)
-      return false;
+    BandIndex status = bandFactor(b.data.data(), ldim, m, static_cast<BandIndex>(b.upper),
+                                  static_cast<BandIndex>(b.lower), static_cast<BandIndex>(b.storedUpper), b.pivots.data());
+    if (status == kNeedsPivotRoom) {
+      // A row swap: from now on the storage with the pivots' fill, B again from J (kept since setMatrix).
+      b.storedUpper = b.fullUpper();
+      std::vector<double>().swap(b.data);
+      b.data.resize(b.size * b.columnLength());
+      fillBand();
+      ldim = static_cast<BandIndex>(b.columnLength());
+      status = bandFactor(b.data.data(), ldim, m, static_cast<BandIndex>(b.upper), static_cast<BandIndex>(b.lower),
+                          static_cast<BandIndex>(b.storedUpper), b.pivots.data());
+    }
+    if (status != 0) return false;
     const Index k = b.border(factored_);
     if (k > 0) {
       // S = D - F (B^-1 E): D first, then each coupled border column's B^-1 E_t (kept, or in a vector of the

@@ -15,9 +15,10 @@
 //! tridiagonal, and its arterial and venous blood nodes coupled to every cell) is factorised instead by SUNDIALS'
 //! band LU with partial pivoting (the routines of SUNLinSol_Band, compiled here) and the few by their
 //! Schur complement, chosen when that storage is smaller than the lower bound of the KLU path (the block's values
-//! and pattern, and L + U with at least as many entries): about 33 bytes per node for the radial grid above 5000
-//! nodes (one byte per pivot, no B^-1 E kept) against about 200 for KLU (its values, pattern, L and U, and
-//! Numeric's and Symbolic's arrays of length n).
+//! and pattern, and L + U with at least as many entries; the band's storage counted with the room for the pivots'
+//! fill): about 25 bytes per node for the radial grid above 5000 nodes (three values per column while no row swap
+//! has needed the fourth, one byte per pivot, no B^-1 E kept) against about 200 for KLU (its values, pattern, L
+//! and U, and Numeric's and Symbolic's arrays of length n).
 #include <cstdint>
 #include <memory>
 #include <span>
@@ -139,6 +140,7 @@ class NewtonSolver {
   std::unique_ptr<Klu> klu_;
   struct Band;  //!< band storage of A_ff, its column pointers and pivots (SUNDIALS' band LU)
   std::unique_ptr<Band> band_;
+  void fillBand();  //!< A_ff's band part from jacobian_, alpha_, beta_ into the band storage
   bool fresh_ = true;
   long factorizations_ = 0, refactorizations_ = 0;
   double factorFlops_ = 0.0;

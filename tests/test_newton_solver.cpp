@@ -222,9 +222,17 @@ TEST_CASE("Newton solver: a tridiagonal leading block takes the band LU and matc
 
 TEST_CASE("Newton solver: the band LU gives SUNLinSol_Band's solution bit for bit", "[newton_solver]") {
   // The band path's LU is SUNDIALS' band LU compiled here (solver/newton_solver.cpp): the same operations, so the
-  // same numbers as SUNDIALS' own band solver (SUNBandMatrix + SUNLinSol_Band) on the same matrix.
+  // same numbers as SUNDIALS' own band solver (SUNBandMatrix + SUNLinSol_Band) on the same matrix. Twice: a
+  // diagonally dominant matrix (no row swaps: the band storage without the room for the pivots' fill) and one whose
+  // every third diagonal entry is weak (rows swapped: the factorisation starts again in the full storage).
+  for (bool weak : {false, true}) {
+  INFO("weak diagonal " << weak);
   const Index n = 300;
   RandomSystem s = bandedSystem(n, 0, 0, 77u);
+  if (weak)
+    for (Index c = 0; c < n; c += 3)
+      for (Index p = s.pattern.columnStart[c]; p < s.pattern.columnStart[c + 1]; ++p)
+        if (s.pattern.rowIndex[p] == c) s.jacobian[p] *= 0.05;
   NewtonSolver solver(s.pattern, n, -1);
   REQUIRE(solver.banded());
   SUNContext ctx = nullptr;
@@ -253,11 +261,19 @@ TEST_CASE("Newton solver: the band LU gives SUNLinSol_Band's solution bit for bi
   Index unequal = 0;
   for (Index i = 0; i < n; ++i) unequal += ours[i] != NV_Ith_S(x, static_cast<sunindextype>(i));
   CHECK(unequal == 0);
+  // The factors' storage: three values per column without row swaps, four (the pivots' fill) with them.
+  CHECK(solver.factorNonzeros() == static_cast<long>((weak ? 4 : 3) * n));
+  // Pivots of SUNDIALS' factorisation: rows were swapped exactly in the weak case.
+  Index swapped = 0;
+  const sunindextype* pivots = static_cast<SUNLinearSolverContent_Band>(band->content)->pivots;
+  for (Index k = 0; k < n; ++k) swapped += pivots[k] != static_cast<sunindextype>(k);
+  CHECK((swapped > 0) == weak);
   SUNLinSolFree(band);
   N_VDestroy(x);
   N_VDestroy(b);
   SUNMatDestroy(A);
   SUNContext_Free(&ctx);
+  }
 }
 
 TEST_CASE("Newton solver: a singular band block is reported, not solved", "[newton_solver]") {
