@@ -48,8 +48,9 @@ ControlGridWatch::ControlGridWatch(const Body& body, const NetworkSystem& system
   };
   for (Index i = 0; i < net.advections.size(); ++i)
     for (int hop = 0; hop < (net.advections[i].via == none ? 1 : 2); ++hop)
-      for (Index p = net.advections[i].partsBegin; p < net.advections[i].partsEnd; ++p)
-        term(net.flowParts[p].modulator, {Term::Advection, i, p, hop});
+      net.forEachPart(net.advections[i], [&](Index p, const FlowPart& part) {
+        term(part.modulator, {Term::Advection, i, p, hop});
+      });
   for (Index i = 0; i < net.exchanges.size(); ++i)
     for (Index p = net.exchanges[i].partsBegin; p < net.exchanges[i].partsEnd; ++p)
       term(net.flowParts[p].modulator, {Term::Exchange, i, p});
@@ -223,7 +224,7 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
       switch (term.kind) {
         case Term::Advection: {
           const Advection& a = net.advections[term.term];
-          const FlowPart& p = net.flowParts[term.part];
+          const FlowPart p = net.part(a, term.part);
           const Index from = term.hop == 1 ? Index(a.via) : Index(a.from), to = a.via != none && term.hop == 0 ? Index(a.via) : Index(a.to);
           n.carried += weight(to) * std::abs(p.coefficient * modulators_[p.modulator] * (y[from] - y[to]));
           break;

@@ -90,7 +90,7 @@ class ControlGridWatch {
   struct Term {
     enum Kind { Advection, Exchange, Source } kind;
     Index term = 0;      //!< index in its network vector
-    Index part = none;   //!< flow part (advection, exchange) or none (source)
+    Index part = none;   //!< flow part (advection, exchange; Network::part) or none (source, an advection's inline part)
     int hop = 0;         //!< hop of the advection (0, or 1 for the second of a stream through a node)
   };
   struct Watched {

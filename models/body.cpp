@@ -683,7 +683,7 @@ void Body::attachChildren() {
       for (int l = 0; l < layer; ++l) first += ps.layers[static_cast<std::size_t>(l)].cells;
       const auto cells = region(pb[static_cast<std::size_t>(first)] / parentTissue,
                                 pb[static_cast<std::size_t>(first + ps.layers[static_cast<std::size_t>(layer)].cells)] / parentTissue);
-      for (auto [node, w] : cells) network_.conductances.push_back({cm.node(0, cm.skinCell), node, G * w, conductionChannel_});
+      for (auto [node, w] : cells) network_.addConductance(cm.node(0, cm.skinCell), node, G * w, conductionChannel_);
       addPairs(cells, G);
       flushPairs();
       continue;
@@ -705,7 +705,7 @@ void Body::attachChildren() {
       const TissueProperties& t = case_.tissues.at(cm.layerNames[static_cast<std::size_t>(cm.layer[r])]);
       const double G = t.conductivity * area / (0.5 * dz);
       const auto cells = region(depth(bounds[r] / childTissue), depth(bounds[r + 1] / childTissue));
-      for (auto [node, w] : cells) network_.conductances.push_back({cm.node(0, ir), node, G * w, conductionChannel_});
+      for (auto [node, w] : cells) network_.addConductance(cm.node(0, ir), node, G * w, conductionChannel_);
       addPairs(cells, G);
     }
     flushPairs();
@@ -1088,7 +1088,7 @@ void Body::linkBlood(const Circulation& c, Index from, Index to, const FlowExpr&
   if (flow.empty()) return;
   if (from == noNode || to == noNode) throw std::logic_error("blood link to a node that carries no flow");
   auto [begin, end] = addFlowParts(c, flow, factor);
-  network_.advections.push_back({from, to, 0.0, bloodChannel_, begin, end});
+  network_.addModulatedAdvection(from, to, bloodChannel_, begin, end);
 }
 
 void Body::linkExchanger(Index artery, Index vein, Index arteryIn, Index veinIn, double g) {
@@ -1108,9 +1108,9 @@ void Body::linkExchanger(Index artery, Index vein, Index arteryIn, Index veinIn,
   // artery node into the vein node, as four constant advections of +-g/2 whose flows balance at every node (into
   // the vein: +g/2 from the artery inlet, -g/2 from the vein inlet; into the artery: +g/2 from the vein inlet,
   // -g/2 from the artery inlet), so the network conserves energy exactly as for any mass-balanced streams.
-  network_.conductances.push_back({artery, vein, 0.5 * g, 0});
+  network_.addConductance(artery, vein, 0.5 * g);
   if (arteryIn == artery && veinIn == vein) {
-    network_.conductances.push_back({artery, vein, 0.5 * g, 0});
+    network_.addConductance(artery, vein, 0.5 * g);
     return;
   }
   auto add = [&](Index from, Index to, double F) {
@@ -1216,7 +1216,7 @@ void Body::linkSegmentBlood(const Circulation& c, Index g) {
                     perLength(s.vessels.countercurrentConductance, z));
     if (m.superficial[z] != noNode && s.vessels.superficialConductance > 0.0)
       for (auto [node, w] : skinShare)
-        network_.conductances.push_back({m.superficial[z], node, w * perLength(s.vessels.superficialConductance, z), 0});
+        network_.addConductance(m.superficial[z], node, w * perLength(s.vessels.superficialConductance, z));
   }
   if (s.vessels.countercurrentConductance > 0.0 && c.deep[g].empty())
     warnings_.push_back(fmt::format("{}: all venous return is superficial, so the countercurrent exchanger carries "
@@ -1236,10 +1236,10 @@ void Body::checkBloodMassBalance() const {
   for (const Advection& a : network_.advections)
     forEachHop(a, [&](Index from, Index to) {
       double w = network_.groupWeights[network_.nodes[to].group];
-      for (Index p = a.partsBegin; p < a.partsEnd; ++p) {
-        terms.push_back({to, network_.flowParts[p].modulator, w * network_.flowParts[p].coefficient, 0.0});
-        terms.push_back({from, network_.flowParts[p].modulator, 0.0, w * network_.flowParts[p].coefficient});
-      }
+      network_.forEachPart(a, [&](Index, const FlowPart& p) {
+        terms.push_back({to, p.modulator, w * p.coefficient, 0.0});
+        terms.push_back({from, p.modulator, 0.0, w * p.coefficient});
+      });
     });
   for (const BoundaryExchange& e : network_.exchanges)
     for (Index p = e.partsBegin; p < e.partsEnd; ++p)
@@ -1480,7 +1480,7 @@ void Body::addRadialConduction(const SegmentBuild& b, const SegmentMesh& m, int 
                                          b.tissue[ir + 1]->conductivity, dz, s.width, ir >= b.firstCoat,
                                          ir + 1 >= b.firstCoat);
     const double share = ir + 1 >= b.firstCoat ? b.coatShare : 1.0;  // the coat's rings away from the substrate
-    network_.conductances.push_back({m.node(iz, ir), m.node(iz, ir + 1), share / resistance, 0});
+    network_.addConductance(m.node(iz, ir), m.node(iz, ir + 1), share / resistance);
     if (ir + 1 >= b.firstCoat)
       recordCoat(b, false, network_.conductances.size() - 1, share * conductance(false), share * conductance(true),
                  ContactPart::Rings);
@@ -1581,8 +1581,7 @@ void Body::addAxialConduction(const SegmentBuild& b, const SegmentMesh& m, int i
   for (int ir = 0; ir < b.nr; ++ir) {
     double section = sectionArea(b.s.shape, c1.bounds[ir], c1.bounds[ir + 1], b.s.width);
     const double share = ir >= b.firstCoat ? b.coatShare : 1.0;  // the coat's rings away from the substrate
-    network_.conductances.push_back(
-        {m.node(iz, ir), m.node(iz + 1, ir), share * b.tissue[ir]->conductivity * section / dz, 0});
+    network_.addConductance(m.node(iz, ir), m.node(iz + 1, ir), share * b.tissue[ir]->conductivity * section / dz);
     if (ir >= b.firstCoat)
       recordCoat(b, false, network_.conductances.size() - 1, share * b.conductivity(ir, false) * section / dz,
                  share * b.conductivity(ir, true) * section / dz, ContactPart::Rings);

@@ -11,6 +11,7 @@
 //! A group may stand for several identical copies (groupWeights): advection flows are per copy of the
 //! receiving node; a conductance between groups of different weight carries its flow once per copy of the
 //! more numerous group. Stored heat and budgets are weighted, so energy is conserved exactly.
+#include <algorithm>
 #include <cstddef>
 #include <cstdint>
 #include <functional>
@@ -117,24 +118,41 @@ struct NetworkNode {
   Index32 group = 0;      //!< owning group (segment)
 };
 
-//! Conduction between two nodes [W/K].
-struct Conductance {  // 20 bytes
+//! Conduction between two nodes [W/K]. Its budget channel (where a and b belong to different groups) is not stored
+//! here: Network::conductanceChannel (most conductances join cells of one segment; 4 bytes per conductance less).
+struct Conductance {  // 16 bytes
   Index32 a = 0, b = 0;
   double conductance = 0.0;
-  Index32 channel = 0;  //!< budget channel when a and b belong to different groups
+};
+
+//! A conductance's budget channel other than 0 (Network::conductanceChannels).
+struct ConductanceChannel {
+  Index32 conductance = 0, channel = 0;
+  bool operator==(const ConductanceChannel& o) const {
+    return Index(conductance) == Index(o.conductance) && Index(channel) == Index(o.channel);
+  }
 };
 
 //! Heat carried by a fluid stream from `from` into `to`: F (T_from - T_to) [W/K]. A stream through a node on its
 //! way (`via`: perfusion, artery -> tissue cell -> vein) is two hops of the same flow in one term, in this order:
 //! F (T_from - T_via) into `via`, then F (T_via - T_to) into `to` (the same sums as two advections, one term less
 //! per perfused cell).
+//! The flow F = flowCapacity + the sum of its modulated parts (Network::flowParts[partsBegin, partsEnd)). A flow of
+//! exactly one part and no constant (a perfused cell's draw: its layer's perfusion modulator times the cell's flow)
+//! holds that part itself: partsEnd == kInlinePart, partsBegin its modulator, flowCapacity its coefficient, and F =
+//! coefficient * modulator, the number 0 + (0 + coefficient * modulator) gave (12 bytes per perfused cell less: at
+//! 10^5 cells 1.2 MB). Read flows through Network::forEachPart and Network::constantFlow.
 struct Advection {  // 32 bytes
   Index32 from = 0, to = 0;
-  double flowCapacity = 0.0;  //!< mass flow times specific heat [W/K] (constant part)
+  double flowCapacity = 0.0;  //!< mass flow times specific heat [W/K] (constant part; the inline part's coefficient)
   Index32 channel = 0;
   Index32 partsBegin = 0, partsEnd = 0;  //!< modulated parts in Network::flowParts, added to flowCapacity
   OptionalIndex32 via = none;            //!< the node the stream passes through first (none: straight to `to`)
 };
+
+//! Advection::partsEnd of an advection that holds its one modulated part itself.
+inline constexpr Index kInlinePart = 0xFFFFFFFEu;
+inline bool hasInlinePart(const Advection& a) { return Index(a.partsEnd) == kInlinePart; }
 
 //! Calls f(from, to) for each hop of an advection, in order.
 template <class F>
@@ -174,7 +192,7 @@ struct SurfaceFace {  // 20 bytes
 };
 
 #pragma pack(pop)
-static_assert(sizeof(FlowPart) == 12 && sizeof(NetworkNode) == 12 && sizeof(Conductance) == 20 &&
+static_assert(sizeof(FlowPart) == 12 && sizeof(NetworkNode) == 12 && sizeof(Conductance) == 16 &&
               sizeof(Advection) == 32 && sizeof(BoundaryExchange) == 32 && sizeof(HeatSource) == 20 &&
               sizeof(SurfaceFace) == 20, "the network's terms are packed");
 
@@ -219,6 +237,9 @@ struct Junction {
 struct Network {
   std::vector<NetworkNode> nodes;
   std::vector<Conductance> conductances;
+  //! The budget channel of each conductance whose channel is not 0, by ascending conductance (addConductance):
+  //! a conductance's flow is booked to its channel where it joins two groups.
+  std::vector<ConductanceChannel> conductanceChannels;
   //! The junctions' pair parts in rank-one form (none for hand-built networks).
   std::vector<Junction> junctions;
   std::vector<Advection> advections;
@@ -240,6 +261,45 @@ struct Network {
   //! Label of any other node (the model's grid cells), generated when asked; may be empty.
   std::function<std::string(Index)> labeler;
 
+  //! Adds a conductance G [W/K] between a and b whose flow between two groups is booked to `channel`.
+  void addConductance(Index a, Index b, double G, Index channel = 0) {
+    if (channel != 0) conductanceChannels.push_back({conductances.size(), channel});
+    conductances.push_back({a, b, G});
+  }
+  //! The budget channel of conductance k (0 unless addConductance gave another).
+  Index conductanceChannel(Index k) const {
+    auto it = std::lower_bound(conductanceChannels.begin(), conductanceChannels.end(), k,
+                               [](const ConductanceChannel& c, Index key) { return Index(c.conductance) < key; });
+    return it != conductanceChannels.end() && Index(it->conductance) == k ? Index(it->channel) : 0;
+  }
+  //! Calls f(p, part) for each modulated part of advection a in order: p its index in flowParts (none for the part
+  //! the advection holds itself).
+  template <class F>
+  void forEachPart(const Advection& a, F&& f) const {
+    if (hasInlinePart(a)) {
+      f(none, FlowPart{Index(a.partsBegin), a.flowCapacity});
+      return;
+    }
+    for (Index p = a.partsBegin; p < a.partsEnd; ++p) f(p, flowParts[p]);
+  }
+  //! Part p of advection a as forEachPart gives it (p == none: the part it holds itself).
+  FlowPart part(const Advection& a, Index p) const {
+    return p == none ? FlowPart{Index(a.partsBegin), a.flowCapacity} : flowParts[p];
+  }
+  //! The constant part of advection a's flow [W/K] (0 when it holds its one part itself).
+  static double constantFlow(const Advection& a) { return hasInlinePart(a) ? 0.0 : a.flowCapacity; }
+  //! Adds a stream from -> to of channel `channel` whose flow is the parts flowParts[begin, end) (at the end of
+  //! flowParts), no constant: one part of a modulator is moved into the advection (Advection, kInlinePart).
+  void addModulatedAdvection(Index from, Index to, Index channel, Index begin, Index end) {
+    if (end == begin + 1 && end == flowParts.size() && Index(flowParts.back().modulator) != none) {
+      const FlowPart p = flowParts.back();
+      flowParts.pop_back();
+      advections.push_back({from, to, p.coefficient, channel, Index(p.modulator), kInlinePart});
+      return;
+    }
+    advections.push_back({from, to, 0.0, channel, begin, end});
+  }
+
   //! Human-readable position of node i, e.g. "arm: axial 3, radial 7 (skin)" (for messages; not fast).
   std::string label(Index i) const {
     for (const auto& [node, text] : namedNodes)
@@ -260,6 +320,7 @@ struct Network {
   void compact() {
     nodes.shrink_to_fit();
     conductances.shrink_to_fit();
+    conductanceChannels.shrink_to_fit();
     advections.shrink_to_fit();
     exchanges.shrink_to_fit();
     sources.shrink_to_fit();

@@ -62,7 +62,8 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
     for (std::size_t k = 0; k < network.conductances.size(); ++k) {
       const Conductance& c = network.conductances[k];
       const auto [fa, fb] = conductanceFactors(c);
-      conductanceFactors_[k] = {fa, fb, network.nodes[c.a].group != network.nodes[c.b].group};
+      conductanceFactors_[k] = {fa, fb, network.nodes[c.a].group != network.nodes[c.b].group,
+                                static_cast<std::uint32_t>(network.conductanceChannel(k))};
     }
   }
   for (const Modulator& m : network.modulators)
@@ -74,13 +75,14 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
   // CSC. The Jacobian finds each term's value slot again by a search in its column (slot()).
   auto accumulator = [&](Index channel) { return nodes_ + controls_ + channel; };
   auto visitEntries = [&](auto&& add) {
+    auto forPart = [&](Index modulator, Index row, Index channel) {
+      Index u = controlColumn(modulator);
+      if (u == none) return;
+      add(row, u);
+      if (transient) add(accumulator(channel), u);
+    };
     auto forParts = [&](Index begin, Index end, Index row, Index channel) {
-      for (Index p = begin; p < end; ++p) {
-        Index u = controlColumn(network.flowParts[p].modulator);
-        if (u == none) continue;
-        add(row, u);
-        if (transient) add(accumulator(channel), u);
-      }
+      for (Index p = begin; p < end; ++p) forPart(network.flowParts[p].modulator, row, channel);
     };
     for (Index i = 0; i < pattern_.size; ++i) add(i, i);
     for (const Conductance& c : network.conductances) {
@@ -95,7 +97,7 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
           if (!(cancels && from == a.via)) add(accumulator(a.channel), from);
           if (!(cancels && to == a.via)) add(accumulator(a.channel), to);
         }
-        forParts(a.partsBegin, a.partsEnd, to, a.channel);
+        network.forEachPart(a, [&](Index, const FlowPart& p) { forPart(p.modulator, to, a.channel); });
       });
     }
     for (const BoundaryExchange& e : network.exchanges) {
@@ -125,9 +127,11 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       for (Index p = begin; p < end; ++p)
         if (Index u = controlColumn(network.flowParts[p].modulator); u != none) visit(r, u);
     };
-    for (const Conductance& c : network.conductances) {
+    for (Index k = 0; k < network.conductances.size(); ++k) {
+      const Conductance& c = network.conductances[k];
       if (network.nodes[c.a].group == network.nodes[c.b].group) continue;
-      const Index ra = row(c.a, c.channel), rb = row(c.b, c.channel);
+      const Index channel = network.conductanceChannel(k);
+      const Index ra = row(c.a, channel), rb = row(c.b, channel);
       for (auto [r, col] : {std::pair{ra, c.a}, {ra, c.b}, {rb, c.a}, {rb, c.b}}) visit(r, col);
     }
     for (const Advection& a : network.advections) {
@@ -135,7 +139,9 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       forEachHop(a, [&](Index from, Index to) {
         if (!(cancels && from == a.via)) visit(row(to, a.channel), from);
         if (!(cancels && to == a.via)) visit(row(to, a.channel), to);
-        partColumns(a.partsBegin, a.partsEnd, row(to, a.channel));
+        network.forEachPart(a, [&](Index, const FlowPart& p) {
+          if (Index u = controlColumn(p.modulator); u != none) visit(row(to, a.channel), u);
+        });
       });
     }
     for (const BoundaryExchange& e : network.exchanges) {
@@ -224,6 +230,12 @@ void NetworkSystem::modulatorValues(double time, std::span<const double> y, std:
   double sum = 0.0;
   for (Index p = begin; p < end; ++p) sum += network_.flowParts[p].coefficient * m[network_.flowParts[p].modulator];
   return sum;
+}
+
+[[gnu::always_inline]] inline double NetworkSystem::flowOf(const Advection& a, std::span<const double> m) const {
+  // The inline part: coefficient * m, the value flowCapacity (0) + (0 + coefficient * m) of a part in flowParts.
+  if (hasInlinePart(a)) return a.flowCapacity * m[a.partsBegin];
+  return a.flowCapacity + partsValue(a.partsBegin, a.partsEnd, m);
 }
 
 double NetworkSystem::controlTarget(const Controller& c, double time, std::span<const double> y, bool* active) const {
@@ -344,15 +356,16 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
     out[c.a] += f.a * q;
     out[c.b] -= f.b * q;
     if (transient && f.acrossGroups) {
-      toGroup(c.a, c.channel, f.a * q);
-      toGroup(c.b, c.channel, -f.b * q);
+      const Index channel = tables ? Index(f.channel) : network_.conductanceChannel(k);
+      toGroup(c.a, channel, f.a * q);
+      toGroup(c.b, channel, -f.b * q);
     }
   }
   // The junction rings' pair parts, O(m) per ring (within the parent's group: no budget or group-energy rows).
   for (const Junction& j : network_.junctions)
     for (const JunctionRing& ring : j.rings) ringFlows(ring, T, [&](Index node, double q) { out[node] += q; });
   for (const Advection& a : network_.advections) {
-    double F = a.flowCapacity + partsValue(a.partsBegin, a.partsEnd, modulators_);
+    double F = flowOf(a, modulators_);
     forEachHop(a, [&](Index from, Index to) {
       double q = F * (T[from] - T[to]);
       out[to] += q;
@@ -438,7 +451,8 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     const Index r = groupRowOf(node);
     if (r != none && col != none) values[position(r + channel, col)] += d;
   };
-  for (const Conductance& c : network_.conductances) {
+  for (Index k = 0; k < network_.conductances.size(); ++k) {
+    const Conductance& c = network_.conductances[k];
     const double G = c.conductance;
     const auto [fa, fb] = conductanceFactors(c);
     add(c.a, c.a, -fa * G);
@@ -447,10 +461,11 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     add(c.b, c.a, fb * G);
     if (!transient || network_.nodes[c.a].group == network_.nodes[c.b].group)
       continue;  // no group-energy entries within a group
-    toGroup(c.a, c.channel, c.a, -fa * G);
-    toGroup(c.a, c.channel, c.b, fa * G);
-    toGroup(c.b, c.channel, c.a, fb * G);
-    toGroup(c.b, c.channel, c.b, -fb * G);
+    const Index channel = network_.conductanceChannel(k);
+    toGroup(c.a, channel, c.a, -fa * G);
+    toGroup(c.a, channel, c.b, fa * G);
+    toGroup(c.b, channel, c.a, fb * G);
+    toGroup(c.b, channel, c.b, -fb * G);
   }
   // The junction rings' pair parts q_i = G_r w_i (S_r T_i - Tbar_r): the diagonal G_r w_i S_r here, the rest
   // -G_r w w^T in rank-one form (junctionTerms_, before the row scaling).
@@ -461,19 +476,22 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
       for (auto [node, w] : ring.shares) add(node, node, ring.conductance * w * sum);
     }
   // Flow parts with a control of a term into `row` of budget `channel`.
+  auto partDerivative = [&](Index modulator, double coefficient, Index row, Index channel, double difference,
+                            double weight) {
+    const Index u = controlColumn(modulator);
+    if (u == none) return;
+    double d = coefficient * scheduleOf(modulator) * difference;
+    add(row, u, d);
+    if (transient) add(nodes_ + controls_ + channel, u, weight * d);
+    toGroup(row, channel, u, d);
+  };
   auto partDerivatives = [&](Index begin, Index end, Index row, Index channel, double difference, double weight) {
-    for (Index p = begin; p < end; ++p) {
-      const FlowPart& part = network_.flowParts[p];
-      const Index u = controlColumn(part.modulator);
-      if (u == none) continue;
-      double d = part.coefficient * scheduleOf(part.modulator) * difference;
-      add(row, u, d);
-      if (transient) add(nodes_ + controls_ + channel, u, weight * d);
-      toGroup(row, channel, u, d);
-    }
+    for (Index p = begin; p < end; ++p)
+      partDerivative(network_.flowParts[p].modulator, network_.flowParts[p].coefficient, row, channel, difference,
+                     weight);
   };
   for (const Advection& adv : network_.advections) {
-    double F = adv.flowCapacity + partsValue(adv.partsBegin, adv.partsEnd, modulators_);
+    double F = flowOf(adv, modulators_);
     const bool cancels = viaCancels(adv);
     forEachHop(adv, [&](Index from, Index to) {
       add(to, to, -F);
@@ -489,7 +507,10 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
       }
       if (!fromVia) toGroup(to, adv.channel, from, F);
       if (!toVia) toGroup(to, adv.channel, to, -F);
-      partDerivatives(adv.partsBegin, adv.partsEnd, to, adv.channel, T[from] - T[to], w);
+      if (hasInlinePart(adv))
+        partDerivative(Index(adv.partsBegin), adv.flowCapacity, to, adv.channel, T[from] - T[to], w);
+      else
+        partDerivatives(adv.partsBegin, adv.partsEnd, to, adv.channel, T[from] - T[to], w);
     });
   }
   for (const BoundaryExchange& ex : network_.exchanges) {
@@ -565,14 +586,15 @@ void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span
     rate[c.a] += fa * q;
     rate[c.b] -= fb * q;
     if (group(c.a) != group(c.b)) {
-      at(c.a, c.channel) += fa * q;
-      at(c.b, c.channel) -= fb * q;
+      const Index channel = network_.conductanceChannel(k);
+      at(c.a, channel) += fa * q;
+      at(c.b, channel) -= fb * q;
     }
   }
   for (const Junction& j : network_.junctions)  // within the parent's group: its storage, no channel
     for (const JunctionRing& ring : j.rings) ringFlows(ring, T, [&](Index node, double q) { rate[node] += q; });
   for (const Advection& a : network_.advections) {
-    const double F = a.flowCapacity + partsValue(a.partsBegin, a.partsEnd, modulators_);
+    const double F = flowOf(a, modulators_);
     forEachHop(a, [&](Index from, Index to) {
       double q = F * (T[from] - T[to]);
       rate[to] += q;
@@ -664,7 +686,7 @@ std::string structuralDifference(const Network& a, const Network& b) {
     if (a.nodes[i].group != b.nodes[i].group) return "a node moved to another segment";
   for (Index i = 0; i < a.conductances.size(); ++i) {
     const Conductance &x = a.conductances[i], &y = b.conductances[i];
-    if (x.a != y.a || x.b != y.b || x.channel != y.channel) return "conductances join other nodes";
+    if (x.a != y.a || x.b != y.b) return "conductances join other nodes";
   }
   if (a.junctions.size() != b.junctions.size()) return "the number of nodes or terms differs (cell counts, segments or vessels)";
   for (Index j = 0; j < a.junctions.size(); ++j) {
@@ -676,6 +698,7 @@ std::string structuralDifference(const Network& a, const Network& b) {
         if (x[r].shares[k].first != y[r].shares[k].first) return "a child's junction meets other cells of its parent";
     }
   }
+  if (a.conductanceChannels != b.conductanceChannels) return "conductances join other nodes";
   for (Index i = 0; i < a.advections.size(); ++i) {
     const Advection &x = a.advections[i], &y = b.advections[i];
     if (x.from != y.from || x.to != y.to || x.via != y.via || x.channel != y.channel ||
@@ -774,8 +797,9 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
       out[c.a] += fa * q;
       out[c.b] -= fb * q;
       if (network_.nodes[c.a].group != network_.nodes[c.b].group) {
-        toGroup(c.a, c.channel, fa * q);
-        toGroup(c.b, c.channel, -fb * q);
+        const Index channel = network_.conductanceChannel(k);
+        toGroup(c.a, channel, fa * q);
+        toGroup(c.b, channel, -fb * q);
       }
     }
     // The junction rings' pair parts: their flows with the rings of p + h and of p - h (equal structure), differenced
@@ -792,8 +816,13 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
       }
     for (std::size_t k = 0; k < network_.advections.size(); ++k) {
       const Advection& a = network_.advections[k];
+      // The inline part: its coefficient's difference times m plus the coefficient times dm, the number that
+      // 0 / h + (0 + that) gave from flowParts.
       const double dF =
-          (P.advections[k].flowCapacity - M.advections[k].flowCapacity) / h + dParts(a.partsBegin, a.partsEnd);
+          hasInlinePart(a)
+              ? (P.advections[k].flowCapacity - M.advections[k].flowCapacity) / h * modulators_[a.partsBegin] +
+                    a.flowCapacity * dm[a.partsBegin]
+              : (P.advections[k].flowCapacity - M.advections[k].flowCapacity) / h + dParts(a.partsBegin, a.partsEnd);
       forEachHop(a, [&](Index from, Index to) {
         const double q = dF * (T[from] - T[to]);
         out[to] += q;

@@ -127,6 +127,8 @@ class NetworkSystem {
   static constexpr Index kSlotReplayLimit = 5000;
   mutable std::vector<Slot> slotSequence_;
   double partsValue(Index begin, Index end, std::span<const double> m) const;
+  //! An advection's flow F at modulator values m [W/K] (Advection: flowCapacity plus its parts, or its inline part).
+  double flowOf(const Advection& a, std::span<const double> m) const;
   //! A stream through a node of the group it flows on into (perfusion: artery -> tissue cell -> vein of the same
   //! segment): its hops' flows into the energy rows of its channel and group, d/dT_via, are -w F (the stream
   //! leaving via, first hop) and +w F (entering the second), with the same w and F: exactly zero together. These
@@ -192,6 +194,7 @@ class NetworkSystem {
   struct ConductanceFactors {
     double a = 1.0, b = 1.0;
     bool acrossGroups = false;
+    std::uint32_t channel = 0;  //!< Network::conductanceChannel (in the padding: 24 bytes as without it)
   };
   std::vector<Index> nodeGroupRow_;
   std::vector<double> nodeWeight_;

@@ -42,7 +42,7 @@ Network twoNodes(const SurfaceModel* surface) {
   n.channel("convection");
   n.addNode(100.0, 0, "part: inner");
   n.addNode(50.0, 0, "part: outer");
-  n.conductances.push_back({0, 1, 3.0, 0});
+  n.addConductance(0, 1, 3.0);
   n.faces.push_back({1, 10.0, 0.01});
   n.surface = surface;
   return n;

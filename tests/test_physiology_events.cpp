@@ -80,8 +80,8 @@ double arterialFlowInto(const Body& body, const std::string& segment, int layer,
       if (std::find(m.arterial.begin(), m.arterial.end(), from) == m.arterial.end()) return;
       if (to < m.offset || to >= m.offset + static_cast<Index>(m.nz * m.nr)) return;
       if (m.layer[static_cast<std::size_t>((to - m.offset) % static_cast<Index>(m.nr))] != layer) return;
-      double F = a.flowCapacity;
-      for (Index p = a.partsBegin; p < a.partsEnd; ++p) F += n.flowParts[p].coefficient * mods[n.flowParts[p].modulator];
+      double F = Network::constantFlow(a);
+      n.forEachPart(a, [&](Index, const FlowPart& p) { F += p.coefficient * mods[p.modulator]; });
       flow += F / rhoC;
     });
   return flow;

@@ -610,8 +610,8 @@ TEST_CASE("Total arterial flow equals the sum over copies of perfusion and shunt
   system.modulatorValues(0.0, state, modulators);
   std::vector<double> in(n.nodes.size(), 0.0), out(n.nodes.size(), 0.0);
   for (const Advection& a : n.advections) {
-    double flow = a.flowCapacity;
-    for (Index p = a.partsBegin; p < a.partsEnd; ++p) flow += n.flowParts[p].coefficient * modulators[n.flowParts[p].modulator];
+    double flow = Network::constantFlow(a);
+    n.forEachPart(a, [&](Index, const FlowPart& p) { flow += p.coefficient * modulators[p.modulator]; });
     forEachHop(a, [&](Index from, Index to) {
       const double w = nodeWeight(n, to) * flow;  // per copy of the receiving node
       in[to] += w;
