@@ -356,7 +356,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
     out[c.a] += f.a * q;
     out[c.b] -= f.b * q;
     if (transient && f.acrossGroups) {
-      const Index channel = tables ? Index(f.channel) : network_.conductanceChannel(k);
+      const Index channel = tables ? Index(f.channel) : network_.conductanceChannel(k);  // = conductanceChannel(k)
       toGroup(c.a, channel, f.a * q);
       toGroup(c.b, channel, -f.b * q);
     }
@@ -461,7 +461,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     add(c.b, c.a, fb * G);
     if (!transient || network_.nodes[c.a].group == network_.nodes[c.b].group)
       continue;  // no group-energy entries within a group
-    const Index channel = network_.conductanceChannel(k);
+    const Index channel = conductanceChannel(k);
     toGroup(c.a, channel, c.a, -fa * G);
     toGroup(c.a, channel, c.b, fa * G);
     toGroup(c.b, channel, c.a, fb * G);
@@ -586,7 +586,7 @@ void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span
     rate[c.a] += fa * q;
     rate[c.b] -= fb * q;
     if (group(c.a) != group(c.b)) {
-      const Index channel = network_.conductanceChannel(k);
+      const Index channel = conductanceChannel(k);
       at(c.a, channel) += fa * q;
       at(c.b, channel) -= fb * q;
     }

@@ -196,6 +196,10 @@ class NetworkSystem {
     bool acrossGroups = false;
     std::uint32_t channel = 0;  //!< Network::conductanceChannel (in the padding: 24 bytes as without it)
   };
+  //! Network::conductanceChannel(k), from the table where there is one (a search in the network's list otherwise).
+  Index conductanceChannel(Index k) const {
+    return conductanceFactors_.empty() ? network_.conductanceChannel(k) : Index(conductanceFactors_[k].channel);
+  }
   std::vector<Index> nodeGroupRow_;
   std::vector<double> nodeWeight_;
   std::vector<ConductanceFactors> conductanceFactors_;
