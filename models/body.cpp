@@ -312,7 +312,7 @@ void Body::addTucking() {
     for (const TuckSide& i : guest)
       for (const TuckSide& j : host) {
         TuckLink l{network_.conductances.size(), g, h, weight * i.area * j.area / hostArea, i.rDry, i.rWet, j.rDry, j.rWet};
-        network_.conductances.push_back({i.node, j.node, 0.0, tuckingChannel_});
+        network_.addConductance(i.node, j.node, 0.0, tuckingChannel_);
         tuckLinks_.push_back(l);
         summary.conductance += i.area * j.area / hostArea / (i.rDry + j.rDry);
       }
