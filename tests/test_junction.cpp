@@ -445,8 +445,8 @@ surface = { convection = "5 W/(m2 K)" }
       for (const JunctionRing& r : j.rings)
         for (std::size_t a = 0; a < r.shares.size(); ++a)
           for (std::size_t b = a + 1; b < r.shares.size(); ++b)
-            written.conductances.push_back({r.shares[a].first, r.shares[b].first,
-                                            -r.conductance * r.shares[a].second * r.shares[b].second, 0});
+            written.addConductance(r.shares[a].first, r.shares[b].first,
+                                   -r.conductance * r.shares[a].second * r.shares[b].second);
     std::printf("[junction] pair part: %zu shares kept (%zu pair conductances written out)\n", shares, pairs);
     for (auto mode : {NetworkSystem::Mode::Transient, NetworkSystem::Mode::Steady}) {
       NetworkSystem rankOne(network, mode), pairwise(written, mode);
