@@ -107,7 +107,7 @@ Recorder::Recorder(const Body& body, const NetworkSystem& system, const RunOptio
   // The controller-output check needs each output's heat flows: a transient sweep, which needs none for its
   // metrics, computes them anyway when a controller is watched, so that a sweep row warns as `run` of the same case
   // does (it checked the last output only before 2026-12-05 and missed the trial forager's shivering, 4.7 % at 13 min
-  // of 120; 5-8 % more instructions per run of the bench studies, measured with tests/bench/sweep_instructions.sh).
+  // of 120; 8 % more instructions per run of the bench studies with a watched controller, measured with tests/bench/sweep_instructions.sh).
   if (controlGrid_.active()) flows_ = true;
   if (options.output.empty()) return;
   file_ = std::make_unique<ResultsFile>(options.output);

@@ -36,13 +36,17 @@ constexpr double nan = std::numeric_limits<double>::quiet_NaN();
 constexpr double probabilities[] = {0.05, 0.25, 0.5, 0.75, 0.95};
 
 //! Quantile of the finite values (linear between order statistics; Hyndman & Fan 1996, type 7).
-double quantileOf(std::vector<double> v, double q) {
-  v.erase(std::remove_if(v.begin(), v.end(), [](double x) { return !std::isfinite(x); }), v.end());
+//! `infinite`: +inf values ("never", a threshold not crossed) are kept and sort last; a quantile that reaches
+//! into them is +inf.
+double quantileOf(std::vector<double> v, double q, bool infinite = false) {
+  v.erase(std::remove_if(v.begin(), v.end(), [&](double x) { return infinite ? std::isnan(x) : !std::isfinite(x); }),
+          v.end());
   if (v.empty()) return nan;
   std::sort(v.begin(), v.end());
   const double pos = q * static_cast<double>(v.size() - 1);
   const std::size_t lo = static_cast<std::size_t>(std::floor(pos));
   const std::size_t hi = std::min(lo + 1, v.size() - 1);
+  if (std::isinf(v[hi])) return pos == static_cast<double>(lo) ? v[lo] : v[hi];
   return v[lo] + (v[hi] - v[lo]) * (pos - static_cast<double>(lo));
 }
 
@@ -344,20 +348,7 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
             else crossed += 1.0;
           }
         reached.push_back(ran > 0.0 ? crossed / ran : nan);
-        for (double pr : probabilities) {
-          std::vector<double> v;
-          for (double x : column)
-            if (!std::isnan(x)) v.push_back(x);
-          std::sort(v.begin(), v.end());
-          if (v.empty()) {
-            quantiles.push_back(nan);
-            continue;
-          }
-          const double pos = pr * static_cast<double>(v.size() - 1);
-          const std::size_t lo = static_cast<std::size_t>(std::floor(pos)), hi = std::min(lo + 1, v.size() - 1);
-          quantiles.push_back(std::isinf(v[hi]) ? (pos == static_cast<double>(lo) && !std::isinf(v[lo]) ? v[lo] : v[hi])
-                                                : v[lo] + (v[hi] - v[lo]) * (pos - static_cast<double>(lo)));
-        }
+        for (double pr : probabilities) quantiles.push_back(quantileOf(column, pr, true));
         means.push_back(nan);
         sds.push_back(nan);
         if (crossed == ran) {  // every run crossed: the ordinary statistics
