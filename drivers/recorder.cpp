@@ -102,7 +102,7 @@ Recorder::Recorder(const Body& body, const NetworkSystem& system, const RunOptio
       observer_(options.observer),
       flows_(options.flowsAtOutputs || !options.output.empty()),
       budget_(body.network(), system),
-      freezing_(body),
+      tissueLimits_(body),
       controlGrid_(body, system) {
   // The controller-output check needs each output's heat flows: a transient sweep, which needs none for its
   // metrics, computes them anyway when a controller is watched, so that a sweep row warns as `run` of the same case
@@ -125,7 +125,7 @@ Recorder::Recorder(const Body& body, const NetworkSystem& system, const RunOptio
 void Recorder::record(double t, std::span<const double> y, double initialStored, RunSummary& summary) {
   std::vector<double>& faces = faceTemperatures_;
   budget_.compute(t, y, initialStored, summary, faces, flows_);
-  freezing_.observe(t, y);
+  tissueLimits_.observe(t, y);
   if (controlGrid_.active()) {
     controlGrid_.start(t);
     controlGrid_.observe(t, y, summary.flows);
@@ -166,9 +166,9 @@ void Recorder::finish(RunSummary& summary, bool steady) {
   // A steady solve uses the t = 0 conditions: the warnings about the timeline after t = 0 are left out.
   summary.warnings = body_.warnings(steady);
   for (const std::string& w : body_.environment().warnings()) summary.warnings.push_back(w);
-  // Found while running (tissue below 0 degC): stored with the others, in result files and sweep rows.
+  // Found while running (tissue below 0 degC or above 45 degC): stored with the others, in result files and sweep rows.
   summary.runWarnings = driverWarnings_;
-  for (std::string& w : freezing_.warnings()) summary.runWarnings.push_back(std::move(w));
+  for (std::string& w : tissueLimits_.warnings()) summary.runWarnings.push_back(std::move(w));
   // Controller outputs whose estimated grid error exceeds 1 % (record_control_grid.hpp).
   if (summary.complete)
     for (std::string& w : controlGrid_.warnings()) summary.runWarnings.push_back(std::move(w));

@@ -18,7 +18,7 @@
 #include "drivers/record_control_grid.hpp"
 #include "drivers/record_environment.hpp"
 #include "drivers/record_fields.hpp"
-#include "drivers/record_freezing.hpp"
+#include "drivers/record_tissue_limits.hpp"
 #include "drivers/results.hpp"
 #include "drivers/simulation.hpp"
 
@@ -58,7 +58,7 @@ class Recorder {
   BudgetRecorder budget_;
   std::unique_ptr<EnvironmentRecorder> environment_;
   std::unique_ptr<FieldRecorder> fields_;
-  FreezeWatch freezing_;                  //!< tissue below 0 degC: warnings of the run (record_freezing.hpp)
+  TissueLimitWatch tissueLimits_;         //!< tissue below 0 degC or above 45 degC: warnings of the run (record_tissue_limits.hpp)
   ControlGridWatch controlGrid_;          //!< controller outputs' grid error (record_control_grid.hpp)
   std::vector<double> faceTemperatures_;  //!< [K], from the budget, used by the other parts
   std::string incompletePath_;

@@ -4,6 +4,11 @@
 #    run's result file holds the freezing warning in /provenance/warnings with the segment, and its minimum
 #    equals the lowest tissue temperature stored in the file (read independently with h5py); in 20 degC air no
 #    such warning. (0 degC as the freezing point of tissue: common practice, no source.)
+#    Tissue above 45 degC (the model's hot limit, drivers/record_tissue_limits.hpp; a choice, common practice,
+#    no source): the same rod in 46 degC air reaches it (its tissue heat is ~0.03 K of rise, and Newton heating
+#    brings it from 37 to within 0.6 K of the air in 1 h: time constant rho c r / (2 h) ~ 3 min, Incropera et al.
+#    2007 eq. 5.6), so the run warns with the file's highest tissue temperature; in 44 degC air (settles near 44.03
+#    degC) it does not.
 # 2. Sweep rows: the freezing row carries the warning in the CSV and in /runs/warnings, the warm row does not.
 # 3. Correlation-range warnings per row: Mitchell's sphere constants on a cylinder warn in every row, also with
 #    two threads (the validity log is per thread and reset per run).
@@ -54,6 +59,35 @@ assert abs(stated - lowest) <= 0.005 * abs(lowest) + 1e-3, (stated, lowest)
 assert when == float(times[t.min(axis=(1, 2)).argmin()]), when
 warm, _ = warnings(sys.argv[2])
 assert not any("tissue below 0 degC" in w for w in warm), warm
+PY
+"$exe" run "$work/rod.toml" --set environment.temperature="46 degC" -o "$work/hot.h5" -q > /dev/null 2> "$work/hot.err" \
+  || fail "hot run exit $?"
+grep -q "segment rod: tissue above 45 degC (hyperthermia)" "$work/hot.err" || fail "no hot-tissue warning printed: $(cat "$work/hot.err")"
+"$exe" run "$work/rod.toml" --set environment.temperature="44 degC" -o "$work/hot44.h5" -q > /dev/null 2> "$work/hot44.err" \
+  || fail "44 degC run exit $?"
+grep -q "tissue above" "$work/hot44.err" && fail "44 degC air warned of hot tissue: $(cat "$work/hot44.err")"
+"$python" - "$work/hot.h5" "$work/hot44.h5" <<'PY' || fail "hot-tissue warnings in the result files"
+import re, sys, h5py
+def read(path):
+    with h5py.File(path) as f:
+        w = [x.decode() if isinstance(x, bytes) else str(x) for x in f["provenance/warnings"][()]]
+        return w, f["segments/rod/temperature"][...], f["time"][...]
+w, t, times = read(sys.argv[1])
+hits = [x for x in w if "tissue above 45 degC" in x]
+assert len(hits) == 1 and hits[0].startswith("segment rod:"), w
+m = re.search(r"maximum (\S+) degC at t = (\S+) s", hits[0])
+first = re.search(r"first above 45 degC at t = (\S+) s", hits[0])
+assert m and first, hits[0]
+highest = float(t.max())
+peak_time = float(times[t.max(axis=(1, 2)).argmax()])
+first_file = float(times[(t.max(axis=(1, 2)) > 45.0).argmax()])
+print(f"hot warning: maximum {m.group(1)} degC at {m.group(2)} s, first at {first.group(1)} s; "
+      f"file: highest {highest:.4g} degC at {peak_time:g} s, first above 45 at {first_file:g} s")
+assert 45.0 < highest < 46.1, highest
+assert abs(float(m.group(1)) - highest) <= 1e-3, (m.group(1), highest)
+assert float(m.group(2)) == peak_time and float(first.group(1)) == first_file
+w44, t44, _ = read(sys.argv[2])
+assert float(t44.max()) < 45.0 and not any("tissue above" in x for x in w44), (float(t44.max()), w44)
 PY
 "$exe" sweep "$work/rod.toml" --vary "environment.temperature=-10 degC,20 degC" -j 2 -q -o "$work/s.h5" > /dev/null 2>&1 \
   || fail "sweep exit $?"
