@@ -17,6 +17,7 @@ import argparse
 import csv
 import re
 import sys
+import textwrap
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -454,6 +455,12 @@ def report(res: Results, window=None, above=(), below=(), segments=None, csv_pat
         p(f"INCOMPLETE RUN: the results stop at t = {res.time[-1]:g} s ({res.attr('failure', 'solver failure')})")
     if mass:
         p(f"body mass: {mass:.4g} kg")
+    warnings = res.warnings
+    if warnings:
+        p("")
+        p(f"Warnings stored with the run ({len(warnings)}; /provenance/warnings):")
+        for w in warnings:
+            p("\n".join(textwrap.wrap(w, 110, initial_indent="  - ", subsequent_indent="    ")))
     all_rows = []
     for (t0, t1), b in zip(spans, budgets):
         rows = _report_window(res, b, t0, t1, thresholds, mass, p, segments)

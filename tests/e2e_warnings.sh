@@ -89,6 +89,24 @@ assert float(m.group(2)) == peak_time and float(first.group(1)) == first_file
 w44, t44, _ = read(sys.argv[2])
 assert float(t44.max()) < 45.0 and not any("tissue above" in x for x in w44), (float(t44.max()), w44)
 PY
+# The stored warnings reach a reader who has only the file: report.py lists every one (the hot run also stores the
+# 4-cell rod's grid warning), a figure's footer counts them and quotes the first.
+"$python" "$src/postproc/report.py" "$work/hot.h5" > "$work/hot.report" 2>&1 || fail "report.py exit $?"
+grep -q "Warnings stored with the run (2; /provenance/warnings):" "$work/hot.report" \
+  && grep -q "segment rod: tissue above 45 degC (hyperthermia)" "$work/hot.report" \
+  && grep -q "grid: segment rod: axial_cells = 4" "$work/hot.report" \
+  || fail "report.py does not list the stored warnings: $(head -12 "$work/hot.report")"
+"$python" "$src/postproc/report.py" "$work/hot44.h5" | grep -q "tissue above" && fail "report.py lists a hot warning of a run without one"
+PYTHONPATH="$src/postproc" "$python" - "$work/hot.h5" <<'PY' || fail "figure footer note of the stored warnings"
+import sys, h5py
+from thermorph_post.results import Results
+from thermorph_post.style import warnings_note
+with h5py.File(sys.argv[1]) as f:
+    stored = [x.decode() if isinstance(x, bytes) else str(x) for x in f["provenance/warnings"][()]]
+with Results(sys.argv[1]) as r:
+    note = warnings_note(r)
+assert note.startswith(f"The run stored {len(stored)} warnings") and stored[0][:100] in note, (note, stored)
+PY
 "$exe" sweep "$work/rod.toml" --vary "environment.temperature=-10 degC,20 degC" -j 2 -q -o "$work/s.h5" > /dev/null 2>&1 \
   || fail "sweep exit $?"
 sed -n 2p "$work/s.csv" | grep -q "segment rod: tissue below 0 degC" || fail "row 0 lacks the freezing warning: $(sed -n 2p "$work/s.csv")"

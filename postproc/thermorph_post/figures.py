@@ -148,7 +148,7 @@ def temperatures_figure(res: Results, units: str = "physiology", segments=None, 
             mixed = [ln for ln in surroundings if ln["targets"] is not None and any(
                 _segments_text(res, names) != "every segment" for names in ln["targets"].values())]
             notes += acting_notes(res, mixed)
-        add_footer(fig, notes, caution)
+        add_footer(fig, notes, caution, res)
         finish(fig)
     return fig
 
@@ -356,7 +356,7 @@ def budget_figure(res: Results, units: str = "physiology", segments=None, window
         err = res.optional("/body/energy_balance_error")
         if err is not None and err.values.size:
             notes.append(f"Largest |energy balance error| = {np.max(np.abs(err.values)):.3g} {err.units}.")
-        add_footer(fig, notes, caution)
+        add_footer(fig, notes, caution, res)
         finish(fig)
     return fig
 
@@ -560,7 +560,7 @@ def maps_figures(res: Results, units: str = "physiology", segments=None, times=N
                 unstated = (f"{', '.join(on_step)}: an output on a step of the timeline; the temperatures are those "
                             "reached when the step occurs, the medium, contact and events in the title those after it.")
             chosen = default_map_times(res)[1] if times is None else ""
-            add_footer(fig, [n for n in [_cone_note(seg, units), chosen, unstated] if n], caution)
+            add_footer(fig, [n for n in [_cone_note(seg, units), chosen, unstated] if n], caution, res)
             finish(fig)
         figs[seg.name] = fig
     if not figs:
@@ -808,7 +808,7 @@ def forcing_figure(res: Results, units: str = "physiology", style: str = DEFAULT
         axes[-1].set_xlabel(f"Time ({scale[1]})")
         suptitle(fig, f"{title_prefix(res)}{case_title(res)}: surroundings (forcing)")
         add_footer(fig, acting_notes(res, lines) + ([f"Not drawn, zero throughout: {', '.join(zero)}."] if zero
-                                                    else []), caution)
+                                                    else []), caution, res)
         finish(fig)
     return fig
 

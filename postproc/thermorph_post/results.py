@@ -394,6 +394,13 @@ class Results:
 
     # ---- run metadata ----------------------------------------------------------------
     @property
+    def warnings(self) -> list[str]:
+        """Every warning stored with the run (/provenance/warnings: grid, ranges, hot or freezing tissue, ...)."""
+        if not self.has("/provenance/warnings"):
+            return []
+        return [_text(w) for w in np.atleast_1d(self.file["/provenance/warnings"][()])]
+
+    @property
     def complete(self) -> bool:
         """False only when the root attribute `complete` is 0 (a run stopped early)."""
         return self.attr("complete", 1) != 0

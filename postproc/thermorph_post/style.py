@@ -334,8 +334,20 @@ def legend_outside(ax, **kw):
     return ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0, **kw)
 
 
-def add_footer(fig, lines=(), caution: bool = True):
-    """Small grey footer under the figure: notes (one per entry), then the caution unless caution=False.
+def warnings_note(res) -> str:
+    """One footer line saying how many warnings the run stored and the first of them ("" without warnings):
+    a figure read without the run's terminal output still says that the run warned (hot tissue, grid, ...)."""
+    warnings = res.warnings
+    if not warnings:
+        return ""
+    first = warnings[0] if len(warnings[0]) <= 160 else warnings[0][:157].rstrip() + "..."
+    more = f"{len(warnings)} warnings" if len(warnings) > 1 else "a warning"
+    return f"The run stored {more} (report.py lists them; /provenance/warnings); the first: {first}"
+
+
+def add_footer(fig, lines=(), caution: bool = True, res=None):
+    """Small grey footer under the figure: notes (one per entry), the run's warnings (a count and the first, when
+    `res` is given and stored any), then the caution unless caution=False.
 
     The text is wrapped to the figure's width and the constrained layout is
     told to keep clear of it, so it never overlaps the panels. Kept in
@@ -343,7 +355,8 @@ def add_footer(fig, lines=(), caution: bool = True):
     """
     s = style_of(getattr(fig, "thermorph_style", DEFAULT_STYLE))
     size = s["footer"]
-    entries = list(lines) + ([CAUTION] if caution else [])
+    note = warnings_note(res) if res is not None else ""
+    entries = list(lines) + ([note] if note else []) + ([CAUTION] if caution else [])
     fig.thermorph_footer = None
     if not entries:
         return None
