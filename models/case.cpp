@@ -938,6 +938,18 @@ void checkOverriddenByTimeline(const TableView& top, Case& c, const std::vector<
         if (!changes) continue;
         const std::string by = weather ? "an [[events]] entry or a row of the weather file (environment.weather)"
                                        : "an [[events]] entry";
+        // A ramp that starts at t = 0 runs from the value in force before it, [environment]'s: the override is the
+        // ramp's start (the trial roost's air ramped from 30 to 41 degC over 3 h; a sweep of its starting air
+        // temperature was refused).
+        if (e.at <= 0.0 && e.ramp > 0.0 && !e.weatherRow) {
+          c.warnings.push_back(fmt::format(
+              "{} = {} (an override: --set, a sweep or fit parameter, or set= in Python) is the start of the ramp "
+              "of {} from t = 0 s to t = {:g} s (the timeline takes over from there)",
+              key, o.substr(o.find('=') + 1), e.source.empty() ? std::string("an [[events]] entry") : e.source,
+              e.ramp));
+          c.timelineWarnings.push_back(c.warnings.back());  // the value holds at t = 0: not for a steady solve
+          break;
+        }
         if (e.at <= 0.0)
           throw TimelineOverrideError(fmt::format(
               "{}: {}: the value given as an override ({}: --set, a sweep or fit parameter, or set= in Python) would never take effect: {} sets {} from t = 0 s. "

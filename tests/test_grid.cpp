@@ -13,6 +13,8 @@
 #include <string>
 
 #include "drivers/refine.hpp"
+#include "models/body.hpp"
+#include "models/environment.hpp"
 #include "models/grid.hpp"
 #include "test_support_body.hpp"
 
@@ -259,6 +261,19 @@ temperature = "10 degC"
   // A key the timeline never changes: no warning.
   const Case t = loadCaseFromString(later, "t.toml", {"environment.temperature=5 degC"});
   CHECK_FALSE(anyContains(t.warnings, "environment.temperature", "holds"));
+  // A ramp from t = 0 runs from the value before it (events[].ramp: "a linear ramp from the values at its start"),
+  // so an override of that value is the ramp's start: accepted with a warning, and the air is the override at
+  // t = 0 and the mean of the override and the target halfway (linear ramp: common practice, no source).
+  const std::string ramp = base + "[[events]]\nat = 0\nramp = \"1 h\"\nenvironment = { temperature = \"30 degC\" }\n";
+  Body body(loadCaseFromString(ramp, "t.toml", {"environment.temperature=20 degC"}));
+  CHECK(anyContains(body.spec().warnings, "environment.temperature", "is the start of the ramp of events.0"));
+  CHECK(body.environment().value(EnvironmentVariable::Temperature, 0.0) == Approx(293.15).epsilon(1e-12));
+  CHECK(body.environment().value(EnvironmentVariable::Temperature, 1800.0) == Approx(298.15).epsilon(1e-12));
+  CHECK(body.environment().value(EnvironmentVariable::Temperature, 3600.0) == Approx(303.15).epsilon(1e-12));
+  // A step at t = 0 still never lets it act.
+  CHECK_THROWS_AS(loadCaseFromString(base + "[[events]]\nat = 0\nenvironment = { temperature = \"30 degC\" }\n",
+                                     "t.toml", {"environment.temperature=20 degC"}),
+                  TimelineOverrideError);
 }
 
 namespace {
