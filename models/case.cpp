@@ -1143,10 +1143,18 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
         for (const char* table : {"vasomotor", "metabolism", "respiration"})
           if (const toml::node* n = e->get(table))
             CaseReader::collectGiven(*n, "events." + CaseReader::elementLabel((*events)[i], i) + "." + table, c.given);
-  for (std::size_t i = 0; i < segArray.size(); ++i)
+  for (std::size_t i = 0; i < segArray.size(); ++i) {
+    const toml::table& seg = *segArray[i].as_table();
+    const std::string path = "segments." + c.segments[i].name;
     for (const char* table : {"surface", "vasomotor", "vessels"})
-      if (const toml::node* n = segArray[i].as_table()->get(table))
-        CaseReader::collectGiven(*n, "segments." + c.segments[i].name + "." + table, c.given);
+      if (const toml::node* n = seg.get(table)) CaseReader::collectGiven(*n, path + "." + table, c.given);
+    // The gradings (no effect on a single cell).
+    if (const toml::node* n = seg.get("axial_grading")) CaseReader::collectGiven(*n, path + ".axial_grading", c.given);
+    if (const toml::array* layers = seg.get("layers") ? seg.get("layers")->as_array() : nullptr)
+      for (std::size_t j = 0; j < layers->size(); ++j)
+        if (const toml::node* n = (*layers)[j].as_table() ? (*layers)[j].as_table()->get("grading") : nullptr)
+          CaseReader::collectGiven(*n, fmt::format("{}.layers.{}.grading", path, j), c.given);
+  }
   if (warnInert)
     for (std::string& w : InertKeys(c).warnings()) c.warnings.push_back(std::move(w));
   if (c.control.panting.present && c.body.respiratorySegment.empty())
@@ -1384,9 +1392,12 @@ std::string resolvedCaseToml(const Case& c) {
     }
     if (s.shape == Shape::Plate) t.insert("width", s.width);
     toml::array layers;
-    for (const LayerSpec& l : s.layers) {
+    for (std::size_t j = 0; j < s.layers.size(); ++j) {
+      const LayerSpec& l = s.layers[j];
       toml::table layer{{"tissue", l.tissue}, {"thickness", l.thickness}, {"cells", l.cells}};
-      if (l.grading > 1.0) layer.insert("grading", l.grading);  // uniform layers as before
+      // Uniform layers as before, unless the case gives grading = 1 (which then warns again on a single cell).
+      if (l.grading > 1.0 || c.given.count(fmt::format("segments.{}.layers.{}.grading", s.name, j)))
+        layer.insert("grading", l.grading);
       layers.push_back(layer);
     }
     t.insert("layers", layers);

@@ -608,11 +608,14 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
   for (Index g = 0; g < n; ++g) fins[g] = finOf(c.segments[g], layers[g], probe.conductance[g], probe.everWet[g], rc);
   // The smallest blood flow of each copy and its children [m3/s]: the skin layers' perfusion at the lowest
   // multiplier the case allows (the segment's static vasomotor state and every event's, times the lower limit of the
-  // local or body-wide vasomotor controller that acts on it), other tissues at theirs.
+  // local or body-wide vasomotor controller that acts on it), other tissues at theirs. A static state that an
+  // [[events]] step at t = 0 sets over never acts (vasomotorSetAtStart), so it does not count.
   std::vector<double> ownMin(n, 0.0), flowMin(n, 0.0);
   for (Index g = 0; g < n; ++g) {
     const SegmentSpec& s = c.segments[g];
-    double skin = s.vasomotor.skinPerfusion;
+    double skin = vasomotorSetAtStart(c, s.name, &VasomotorTarget::skinPerfusion).first
+                      ? std::numeric_limits<double>::infinity()
+                      : s.vasomotor.skinPerfusion;
     for (const EventSpec& ev : c.events)
       for (const VasomotorTarget& v : ev.vasomotor)
         if (targetsSegment(v.segment, s.name) && v.skinPerfusion) skin = std::min(skin, *v.skinPerfusion);

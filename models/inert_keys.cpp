@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <cctype>
 #include <set>
+#include <utility>
 
 #include <fmt/format.h>
 
@@ -35,6 +36,7 @@ InertKeys::InertKeys(const Case& c, bool steady) : case_(c), steady_(steady) {
   controllers();
   vasomotor();
   metabolism();
+  grids();
   others();
 }
 
@@ -363,11 +365,14 @@ void InertKeys::vasomotor() {
     }
     if (!noShunts[g].empty()) add("segments." + s.name + ".vasomotor.shunt", noShunts[g]);
     // The segment's value set over by an [[events]] step at t = 0 never acts (PhysiologyModel::setInterval; Body
-    // builds the superficial-return terms from the events' values then).
-    for (auto key : {&VasomotorTarget::shunt, &VasomotorTarget::superficialReturn}) {
+    // builds the superficial-return terms from the events' values then, and the automatic grid takes the skin's
+    // smallest perfusion from the events' values alone, grid.cpp).
+    using Key = std::optional<double> VasomotorTarget::*;
+    for (const auto& [key, name] : {std::pair<Key, const char*>{&VasomotorTarget::skinPerfusion, "skin_perfusion"},
+                                    {&VasomotorTarget::shunt, "shunt"},
+                                    {&VasomotorTarget::superficialReturn, "superficial_return"}}) {
       const auto [event, target] = vasomotorSetAtStart(c, s.name, key);
       if (!event) continue;
-      const char* name = key == &VasomotorTarget::shunt ? "shunt" : "superficial_return";
       const std::string eventKey = event->source + ".vasomotor." + target->segment + "." + name;
       const auto at = c.given.find(eventKey);
       add("segments." + s.name + ".vasomotor." + name,
@@ -459,6 +464,29 @@ void InertKeys::metabolism() {
   for (const EventSpec& e : c.events) {
     if (e.activity) add(e.source + ".metabolism.activity", why);
     if (e.hypometabolism) add(e.source + ".metabolism.hypometabolism", why);
+  }
+}
+
+void InertKeys::grids() {
+  // One cell spans its layer (or its segment's length) whatever the grading: its edges are the layer's faces, the
+  // segment's ends, under every Q (LayerSpec::cellEdges, axialCellEdges), and Body and the grid estimates see the
+  // grading only through those edges (or, axially, through terms that are equal on one cell). The automatic grid
+  // never chooses one cell (at least 2 radial, 4 axial: resolveGrid), so only given counts are single, counted here
+  // with run.grid_refinement (before resolveGrid applies it; 1 after), which splits the cell along the grading.
+  const Case& c = case_;
+  const int refinement = c.run.gridRefinement;
+  const std::string splits = "(run.grid_refinement > 1 or `thermorph refine` splits the cell along it; give more "
+                             "cells, or leave cells out to have them chosen)";
+  for (const SegmentSpec& s : c.segments) {
+    for (std::size_t i = 0; i < s.layers.size(); ++i)
+      if (!s.layers[i].cellsAuto && s.layers[i].cells * refinement == 1)
+        add(fmt::format("segments.{}.layers.{}.grading", s.name, i),
+            fmt::format("layer {} ({}) of segment {} has one radial cell (cells = 1), which spans the layer whatever "
+                        "its grading {}", i, s.layers[i].tissue, s.name, splits));
+    if (s.shape != Shape::Sphere && !s.axialAuto && s.axialCells * refinement == 1)
+      add("segments." + s.name + ".axial_grading",
+          fmt::format("segment {} has one axial cell (axial_cells = 1), which spans its length whatever the grading {}",
+                      s.name, splits));
   }
 }
 

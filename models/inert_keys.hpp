@@ -39,6 +39,7 @@ class InertKeys {
   void controllers();
   void vasomotor();
   void metabolism();
+  void grids();
   void others();
   //! A controller of the vasomotor form (body-wide or local) whose gains leave some of its keys without effect.
   void vasomotorGains(const std::string& name, const std::string& table, double gain, double shuntGain, bool shunts,

@@ -682,35 +682,45 @@ TEST_CASE("A CIVD of opening 0 warns, builds no states and changes nothing; with
   }
 }
 
-TEST_CASE("A segment's shunt and superficial return set by an [[events]] step at t = 0 warn; later, they act",
-          "[case][inert]") {
-  // The swimmer's trunk (perfused muscle and skin) with shunts; an event at t = 0 s sets both values as a step, so
-  // the segment's own values never act (PhysiologyModel::setInterval), not even in which terms Body builds: here the
-  // event closes the superficial return the segment opens. Values illustrative.
+TEST_CASE("A segment's skin perfusion, shunt and superficial return set by an [[events]] step at t = 0 warn; later, "
+          "they act", "[case][inert]") {
+  // The swimmer's trunk (perfused muscle and skin) with shunts; an event at t = 0 s sets the three values as a step,
+  // so the segment's own values never act (PhysiologyModel::setInterval), not even in which terms Body builds: here
+  // the event closes the superficial return the segment opens. Values illustrative.
   const std::string trunk = "vessels = { shunt_flow_max = \"20 mL/min\" }\n";
-  const std::string event = "[[events]]\nat = \"0 s\"\nvasomotor = { trunk = { superficial_return = 0, shunt = 0.6 } }\n";
+  const std::string event =
+      "[[events]]\nat = \"0 s\"\nvasomotor = { trunk = { superficial_return = 0, shunt = 0.6, skin_perfusion = 2 } }\n";
   const std::string without = swimmer("", trunk, event);
-  const std::string text = swimmer("", trunk + "vasomotor = { superficial_return = 0.5, shunt = 0.2 }", event);
+  const std::string text =
+      swimmer("", trunk + "vasomotor = { superficial_return = 0.5, shunt = 0.2, skin_perfusion = 0.3 }", event);
   const std::vector<std::string> w = inertWarnings(loadCaseFromString(text, "inert.toml"));
-  for (const char* key : {"superficial_return", "shunt"}) {
+  const std::pair<const char*, const char*> values[] = {
+      {"superficial_return", "0.5"}, {"shunt", "0.2"}, {"skin_perfusion", "0.3"}};
+  const std::pair<const char*, const char*> eventValues[] = {
+      {"superficial_return", "0,"}, {"shunt", "0.6"}, {"skin_perfusion", "2 }"}};
+  for (std::size_t k = 0; k < 3; ++k) {
+    const std::string key = values[k].first;
     INFO(key);
-    CHECK(mentions(w, positionOf(text, "vasomotor = { superficial_return = 0.5", key == std::string("shunt") ? "0.2" : "0.5") +
+    CHECK(mentions(w, positionOf(text, "vasomotor = { superficial_return = 0.5", values[k].second) +
                           ": segments.trunk.vasomotor." + key + " has no effect: events.0.vasomotor.trunk." + key + " (" +
-                          positionOf(text, "trunk = { superficial_return = 0,", key == std::string("shunt") ? "0.6" : "0,") +
+                          positionOf(text, "trunk = { superficial_return = 0,", eventValues[k].second) +
                           ") sets it from t = 0 s"));
   }
-  CHECK(w.size() == 2);
+  CHECK(w.size() == 3);
   const std::vector<double> base = finalTemperatures(text);
   CHECK(base == finalTemperatures(without));  // the segment's values removed
   CHECK(base == finalTemperatures(text, {"segments.trunk.vasomotor.superficial_return=0.9",
-                                         "segments.trunk.vasomotor.shunt=1"}));
+                                         "segments.trunk.vasomotor.shunt=1",
+                                         "segments.trunk.vasomotor.skin_perfusion=0.05"}));
   CHECK(InertKeys(loadCaseFromString(text, "inert.toml")).reason("segments.trunk.vasomotor.superficial_return"));
+  CHECK(InertKeys(loadCaseFromString(text, "inert.toml")).reason("segments.trunk.vasomotor.skin_perfusion"));
   SECTION("\"all\" at t = 0 s: the same") {
     std::string all = text;
     all.replace(all.find("{ trunk = {"), 11, "{ all = {");
     const std::vector<std::string> w2 = inertWarnings(loadCaseFromString(all, "inert.toml"));
     CHECK(mentions(w2, ": segments.trunk.vasomotor.superficial_return has no effect: events.0.vasomotor.all.superficial_return"));
-    CHECK(w2.size() == 2);
+    CHECK(mentions(w2, ": segments.trunk.vasomotor.skin_perfusion has no effect: events.0.vasomotor.all.skin_perfusion"));
+    CHECK(w2.size() == 3);
   }
   SECTION("an event later, or ramped from t = 0 s, lets the segment's values act, and does not warn") {
     for (const char* o : {"events.0.at=\"1 min\"", "events.0.ramp=\"2 min\""}) {
@@ -719,39 +729,96 @@ TEST_CASE("A segment's shunt and superficial return set by an [[events]] step at
       const std::vector<double> later = finalTemperatures(text, {o});
       CHECK(later != finalTemperatures(text, {o, "segments.trunk.vasomotor.superficial_return=0.9"}));
       CHECK(later != finalTemperatures(text, {o, "segments.trunk.vasomotor.shunt=1"}));
+      CHECK(later != finalTemperatures(text, {o, "segments.trunk.vasomotor.skin_perfusion=0.05"}));
+    }
+  }
+  SECTION("on the automatic grid and from a steady start: the skin perfusion still never acts") {
+    // The automatic grid counts a child's smallest blood flow over the run (models/grid.cpp: the stream that an
+    // exchanger of the parent brings to the child), its skin's at the segment's own value only when no step at
+    // t = 0 sets it over. A flipper with skin on the swimmer's trunk with an exchanger; the trunk's cells left out.
+    std::string automatic = swimmer("", "vessels = { countercurrent_conductance = \"2 W/K\" }\n", R"toml(
+[[segments]]
+name = "flipper"
+parent = "trunk"
+shape = "cylinder"
+length = "12 cm"
+layers = [{ tissue = "muscle", thickness = "1 cm" }, { tissue = "skin", thickness = "0.2 cm" }]
+vasomotor = { skin_perfusion = 0.3 }
+[[events]]
+at = "0 s"
+vasomotor = { flipper = { skin_perfusion = 2 } }
+)toml");
+    for (const std::string cut : {"axial_cells = 3\n", ", cells = 4", ", cells = 1"}) {
+      REQUIRE(automatic.find(cut) != std::string::npos);
+      automatic.erase(automatic.find(cut), cut.size());
+    }
+    CHECK(mentions(inertWarnings(loadCaseFromString(automatic, "inert.toml")),
+                   ": segments.flipper.vasomotor.skin_perfusion has no effect: events.0.vasomotor.flipper.skin_perfusion"));
+    // Two hours (the event later at 1 h: steps of the surroundings that far apart leave the trunk's axial cells to
+    // the flipper's stream): 136 cells at the flipper's skin perfusion 0.3, 180 at 0.01 (child NTU 15 and 21).
+    const std::string low = "segments.flipper.vasomotor.skin_perfusion=0.01";
+    for (const std::vector<std::string>& o : {std::vector<std::string>{"run.duration=\"2 h\""},
+                                              {"run.duration=\"2 h\"", "run.initial=\"steady\""}}) {
+      INFO((o.size() == 1 ? "uniform start" : o.back()));
+      std::vector<std::string> lowered = o;
+      lowered.push_back(low);
+      CHECK(finalTemperatures(automatic, o) == finalTemperatures(automatic, lowered));
+      // Without the step (the event later), the low value acts: on the grid (the trunk's axial cells) and the run.
+      std::vector<std::string> later = o, laterLowered = lowered;
+      later.push_back("events.0.at=\"1 h\"");
+      laterLowered.push_back("events.0.at=\"1 h\"");
+      CHECK(loadCaseFromString(automatic, "inert.toml", later).segments[0].axialCells !=
+            loadCaseFromString(automatic, "inert.toml", laterLowered).segments[0].axialCells);
+      CHECK(finalTemperatures(automatic, later) != finalTemperatures(automatic, laterLowered));
     }
   }
 }
 
-TEST_CASE("An immersion that places a segment as \"body\" would for the whole run warns; where the fluids differ it acts",
-          "[case][inert]") {
-  // The swimmer is in water throughout: "always" puts the trunk in water, as the default "body" does. In air, the
-  // same value puts it in water (values illustrative).
-  const std::string without = swimmer("air_temperature = \"25 degC\"");
-  const std::string text = swimmer("air_temperature = \"25 degC\"", "surface = { immersion = \"always\" }");
+TEST_CASE("A grading on a single cell warns and changes nothing; on more cells, or refined, it acts", "[case][inert]") {
+  // The swimmer's skin has one radial cell; here graded, and the trunk on one axial cell graded too, with shunts, an
+  // exchanger and the head attached (the terms Body spreads along graded cells: LayerSpec::cellEdges, axialCellEdges).
+  // Values illustrative.
+  std::string text = swimmer("", R"toml(vessels = { shunt_flow_max = "20 mL/min", countercurrent_conductance = "0.05 W/K" }
+vasomotor = { shunt = 0.5 }
+axial_grading = 4
+)toml");
+  text.replace(text.find("cells = 1 }"), 11, "cells = 1, grading = 5 }");
+  text.replace(text.find("axial_cells = 3"), 15, "axial_cells = 1");
   const std::vector<std::string> w = inertWarnings(loadCaseFromString(text, "inert.toml"));
-  CHECK(mentions(w, positionOf(text, "immersion", "\"always\"") +
-                        ": segments.trunk.surface.immersion has no effect: the medium is water for the whole run"));
-  // (air_temperature warns as before: every segment is in water)
+  CHECK(mentions(w, positionOf(text, "grading = 5", "5") + ": segments.trunk.layers.1.grading has no effect: layer 1 "
+                    "(skin) of segment trunk has one radial cell (cells = 1), which spans the layer whatever its grading"));
+  CHECK(mentions(w, positionOf(text, "axial_grading = 4", "4") + ": segments.trunk.axial_grading has no effect: segment "
+                    "trunk has one axial cell (axial_cells = 1), which spans its length whatever the grading"));
   CHECK(w.size() == 2);
-  CHECK(finalTemperatures(text) == finalTemperatures(without));
-  SECTION("\"never\" in air throughout: the same") {
-    std::string air = swimmer("", "surface = { immersion = \"never\" }"), airWithout = swimmer("");
-    air.replace(air.find("medium = \"water\""), 16, "medium = \"air\"");
-    airWithout.replace(airWithout.find("medium = \"water\""), 16, "medium = \"air\"");
-    CHECK(mentions(inertWarnings(loadCaseFromString(air, "inert.toml")),
-                   ": segments.trunk.surface.immersion has no effect: the medium is air for the whole run"));
-    CHECK(finalTemperatures(air) == finalTemperatures(airWithout));
+  const std::vector<double> base = finalTemperatures(text);
+  CHECK(base == finalTemperatures(text, {"segments.trunk.layers.1.grading=1", "segments.trunk.axial_grading=1"}));
+  CHECK(base == finalTemperatures(text, {"segments.trunk.layers.1.grading=500", "segments.trunk.axial_grading=300"}));
+  const Case c = loadCaseFromString(text, "inert.toml");
+  CHECK(InertKeys(c).reason("segments.trunk.layers.1.grading"));
+  CHECK(InertKeys(c).reason("segments.0.axial_grading"));  // a segment by number, as --set takes it
+  SECTION("the resolved case warns of the same two keys, also of a given grading = 1") {
+    std::string uniform = text;
+    uniform.replace(uniform.find("grading = 5"), 11, "grading = 1");
+    for (const std::string& t : {text, uniform}) {
+      const Case again = loadCaseFromString(resolvedCaseToml(loadCaseFromString(t, "inert.toml")), "resolved.toml");
+      const std::vector<std::string> w2 = inertWarnings(again);
+      CHECK(mentions(w2, ": segments.trunk.layers.1.grading has no effect"));
+      CHECK(mentions(w2, ": segments.trunk.axial_grading has no effect"));
+      CHECK(w2.size() == 2);
+    }
   }
-  SECTION("with the medium changed by an event, or the other value, it acts and does not warn") {
-    for (const std::string& extra : {std::string("[[events]]\nat = \"5 min\"\nenvironment = { medium = \"air\", "
-                                                 "temperature = \"20 degC\", speed = \"1 m/s\" }\n"),
-                                     std::string()}) {
-      const std::string changing = text + extra;
-      const std::string other = extra.empty() ? std::string("segments.trunk.surface.immersion=\"never\"")
-                                              : std::string("segments.trunk.surface.immersion=\"body\"");
-      if (!extra.empty()) CHECK_FALSE(mentions(inertWarnings(loadCaseFromString(changing, "inert.toml")), "immersion"));
-      CHECK(finalTemperatures(changing) != finalTemperatures(changing, {other}));
+  SECTION("more cells, or the grid refined, and the gradings act without a warning") {
+    for (const std::vector<std::string>& o :
+         {std::vector<std::string>{"segments.trunk.layers.1.cells=3", "segments.trunk.axial_cells=3"},
+          {"run.grid_refinement=2"}}) {
+      INFO(o.front());
+      CHECK(inertWarnings(loadCaseFromString(text, "inert.toml", o)).empty());
+      const std::vector<double> graded = finalTemperatures(text, o);
+      std::vector<std::string> radialSet = o, axialSet = o;
+      radialSet.push_back("segments.trunk.layers.1.grading=1");
+      axialSet.push_back("segments.trunk.axial_grading=1");
+      CHECK(graded != finalTemperatures(text, radialSet));
+      CHECK(graded != finalTemperatures(text, axialSet));
     }
   }
 }
