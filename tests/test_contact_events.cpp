@@ -181,7 +181,7 @@ TEST_CASE("A coated cylinder's contact switched by an event reaches the static c
   }
 }
 
-TEST_CASE("Contact events: input errors name file, line and key path; the resolved case keeps them",
+TEST_CASE("Contact events: input errors name file, line and key path - the resolved case keeps them",
           "[environment][contact][errors]") {
   const std::string base = testing::isothermalFurredCylinder(R"(surface = { ends = "insulated" })",
                                                              "substrate_conductance = \"50 W/(m2 K)\"\n");

@@ -115,7 +115,7 @@ TEST_CASE("The estimated grid error of a thermogenesis output stays above its er
   CHECK(measured[2] < 0.5 * measured[0]);
 }
 
-TEST_CASE("A controller output whose estimated grid error exceeds 1 % is a warning of the run; a tighter "
+TEST_CASE("A controller output whose estimated grid error exceeds 1 % is a warning of the run - a tighter "
           "run.grid_tolerance meets it",
           "[control_grid]") {
   const Measured coarse = steadyOutput(thermogenesisCase("1", "1"));

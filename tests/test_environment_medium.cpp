@@ -61,7 +61,7 @@ double cylinderCoefficient(Medium medium, double Ts, double Tinf, double speed, 
 
 }  // namespace
 
-TEST_CASE("A step of the medium lands at its time; energy is conserved across the restarts", "[environment][medium]") {
+TEST_CASE("A step of the medium lands at its time - energy is conserved across the restarts", "[environment][medium]") {
   Body body(loadCaseFromString(diver, "diver.toml"));
   const std::filesystem::path out =
       std::filesystem::temp_directory_path() / ("thermorph-medium-" + std::to_string(::getpid()) + ".h5");

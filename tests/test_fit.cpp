@@ -133,7 +133,7 @@ void coverageStudy(int draws, double ratioTolerance, double minCoverage) {
 
 }  // namespace
 
-TEST_CASE("Recovery from starts 30-50 % off; standard errors against the spread over 10 noise draws", "[fit]") {
+TEST_CASE("Recovery from starts 30-50 % off - standard errors against the spread over 10 noise draws", "[fit]") {
   // The quick version for ctest: with 10 draws the sample SD itself scatters by about 24 % (chi-square with
   // 9 degrees of freedom; 1.5 at the 99th percentile of SE / SD), so this only checks the ratio within a factor
   // of 2 and 8 of 10 intervals covering the truth; the 25 % criterion is the 50-draw study below.

@@ -229,7 +229,7 @@ TEST_CASE("run.grid_refinement refines any command's grid: the coarse pin fin ap
   CHECK(automatic2.segments[1].axialCells == 2 * automatic.segments[1].axialCells);
 }
 
-TEST_CASE("A command-line environment value the timeline overrides at t = 0 is refused; later, it warns",
+TEST_CASE("A command-line environment value the timeline overrides at t = 0 is refused - later, it warns",
           "[grid][case]") {
   const std::string base = R"(
 [run]
@@ -354,7 +354,7 @@ TEST_CASE("Exposed ends of a perfused rod: the automatic axial grid meets the ex
   CHECK(anyContains(coarse.warnings, "segment rod", "axial_cells = 8"));  // ... and warns
 }
 
-TEST_CASE("A coated trunk with exposed ends converges at second order; its automatic grid is within 1 % of 4x",
+TEST_CASE("A coated trunk with exposed ends converges at second order - its automatic grid is within 1 % of 4x",
           "[grid][validation]") {
   // Grid-convergence study (Roache 1998): a feathered, perfused trunk at -15 degC in a 4 m/s wind (values
   // illustrative). Before the end coat also covered the coat's own annular ends, the warm skin met the exposed

@@ -179,7 +179,7 @@ TEST_CASE("Forcing interval: steps of the surroundings and how long each acts", 
   CHECK(forcingInterval(c) == Approx(600.0));  // the start acts until the ramp begins
 }
 
-TEST_CASE("Exposed end faces under a transient get axial cells from the penetration depth; a coarse given count warns",
+TEST_CASE("Exposed end faces under a transient get axial cells from the penetration depth - a coarse given count warns",
           "[grid]") {
   // A short cylinder (r 3 cm, L 10 cm) with bare ends plunged into water for 120 s, the material above: the rule of
   // models/grid.cpp asks for axial cells of at most a fraction of delta = sqrt(alpha tau) = 3.9 mm near the ends,

@@ -127,7 +127,7 @@ TEST_CASE("rows 3 and 16: segment names are non-empty HDF5 path components", "[h
   CHECK(caseErrorOf(edited("name = \"leg\"", "name = \"fore limb-2\"")) == "no error");
 }
 
-TEST_CASE("row 4: the segment tree is at most 64 deep below its root; depth is computed in linear time",
+TEST_CASE("row 4: the segment tree is at most 64 deep below its root - depth is computed in linear time",
           "[hardening]") {
   // Before: memory grew with the square of the depth (a chain 3 000 deep took 2.5 GB).
   CHECK(caseErrorOf(chain(65)) == "no error");  // depth 64

@@ -190,7 +190,7 @@ surface = { trunk = { contact_fraction = 0.3 } }
   }
 }
 
-TEST_CASE("A shunt opening on a segment without shunts warns; with shunt_flow_max it acts", "[case][inert]") {
+TEST_CASE("A shunt opening on a segment without shunts warns - with shunt_flow_max it acts", "[case][inert]") {
   // An open fraction of no flow is no flow (README, "A whole body": shunts pass shunt_flow_max times the opening).
   const std::string text = swimmer("", "vasomotor = { shunt = 1 }", "");
   const std::vector<std::string> w = inertWarnings(loadCaseFromString(text, "inert.toml"));
@@ -203,7 +203,7 @@ TEST_CASE("A shunt opening on a segment without shunts warns; with shunt_flow_ma
   CHECK(finalTemperatures(text, flow) != finalTemperatures(text, closed));
 }
 
-TEST_CASE("Environment values of [[events]] with no effect warn once per key; followers do not", "[case][inert]") {
+TEST_CASE("Environment values of [[events]] with no effect warn once per key - followers do not", "[case][inert]") {
   const std::string text = swimmer("", "", R"toml(
 [[events]]
 at = "2 min"
@@ -295,7 +295,7 @@ std::string positionOf(const std::string& text, const std::string& key, const st
 
 }  // namespace
 
-TEST_CASE("Vasomotor targets of [[events]] on a segment without skin or shunts warn; where they can act they act",
+TEST_CASE("Vasomotor targets of [[events]] on a segment without skin or shunts warn - where they can act they act",
           "[case][inert]") {
   // The swimmer's head has no skin layer (muscle only) and no segment has shunts (vessels.shunt_flow_max = 0).
   const std::string text = swimmer("", "", R"toml(
@@ -340,7 +340,7 @@ vasomotor = { all = { shunt = 0.5 } }
   }
 }
 
-TEST_CASE("Metabolic multipliers on a body whose tissues produce no heat warn; with metabolic heat they act",
+TEST_CASE("Metabolic multipliers on a body whose tissues produce no heat warn - with metabolic heat they act",
           "[case][inert]") {
   // The swimmer's tissues as the built-in ones without metabolic heat (values illustrative).
   std::string text = swimmer("", "", R"toml(
@@ -412,7 +412,7 @@ set_point = "30 degC"
   }
 }
 
-TEST_CASE("A panting multiplier of [[events]] without breathing warns; with a respiratory segment in air it acts",
+TEST_CASE("A panting multiplier of [[events]] without breathing warns - with a respiratory segment in air it acts",
           "[case][inert]") {
   // The swimmer has no respiratory segment; with one (the head, held in air) the ventilation multiplier acts.
   const std::string text = swimmer("relative_humidity = \"50 %\"\nair_temperature = \"5 degC\"", "", R"toml(
@@ -438,7 +438,7 @@ respiration = { panting = 3 }
   }
 }
 
-TEST_CASE("Superficial return without perfused tissue warns; with it, it acts even without an exchanger",
+TEST_CASE("Superficial return without perfused tissue warns - with it, it acts even without an exchanger",
           "[case][inert]") {
   // A fin of unperfused keratin-like tissue on the swimmer's trunk (values illustrative): no venous return to route,
   // and no superficial veins anywhere (no shunts, no superficial return that flows) for their conductance to join.
@@ -490,7 +490,7 @@ vasomotor = { fin = { superficial_return = 0.8 } }
   }
 }
 
-TEST_CASE("A shunt gain with no shunts to open warns and builds no state; with shunts it acts", "[case][inert][control]") {
+TEST_CASE("A shunt gain with no shunts to open warns and builds no state - with shunts it acts", "[case][inert][control]") {
   // The swimmer has no shunts (vessels.shunt_flow_max = 0); the core is held near a set point of 36 degC so that an
   // opening shunt_gain x (T - set_point) lies inside [0, 1] (values illustrative).
   const std::string vasomotor = R"toml(
@@ -524,7 +524,7 @@ shunt_gain = "0.5 1/K"
   }
 }
 
-TEST_CASE("Keys a gain of 0 leaves without effect warn; with the gain they act", "[case][inert][control]") {
+TEST_CASE("Keys a gain of 0 leaves without effect warn - with the gain they act", "[case][inert][control]") {
   // Zero by value: a controller whose gains are 0 gives the same output at every temperature, equal to its value
   // when off (shivering 0, panting and skin perfusion 1), so its set point and time constant set nothing; the
   // shunts of a vasomotor controller with shunt_gain 0 stay closed, so their openings move no blood. The signal is
@@ -641,7 +641,7 @@ TEST_CASE("Integration keys of [run] have no effect on a steady state: refused i
   CHECK(finalTemperatures(text) != finalTemperatures(text, {"run.rtol=1e-3"}));  // a transient run uses them
 }
 
-TEST_CASE("A CIVD of opening 0 warns, builds no states and changes nothing; with an opening it acts",
+TEST_CASE("A CIVD of opening 0 warns, builds no states and changes nothing - with an opening it acts",
           "[case][inert][control]") {
   // The swimmer's trunk with shunts under a local controller whose CIVD would open below a skin of 36 degC (the skin
   // in 10 degC water is far below it; values illustrative). With opening = 0 the extra shunt flow is 0 at every
@@ -682,7 +682,7 @@ TEST_CASE("A CIVD of opening 0 warns, builds no states and changes nothing; with
   }
 }
 
-TEST_CASE("A segment's skin perfusion, shunt and superficial return set by an [[events]] step at t = 0 warn; later, "
+TEST_CASE("A segment's skin perfusion, shunt and superficial return set by an [[events]] step at t = 0 warn - later, "
           "they act", "[case][inert]") {
   // The swimmer's trunk (perfused muscle and skin) with shunts; an event at t = 0 s sets the three values as a step,
   // so the segment's own values never act (PhysiologyModel::setInterval), not even in which terms Body builds: here
@@ -774,7 +774,7 @@ vasomotor = { flipper = { skin_perfusion = 2 } }
   }
 }
 
-TEST_CASE("A grading on a single cell warns and changes nothing; on more cells, or refined, it acts", "[case][inert]") {
+TEST_CASE("A grading on a single cell warns and changes nothing - on more cells, or refined, it acts", "[case][inert]") {
   // The swimmer's skin has one radial cell; here graded, and the trunk on one axial cell graded too, with shunts, an
   // exchanger and the head attached (the terms Body spreads along graded cells: LayerSpec::cellEdges, axialCellEdges).
   // Values illustrative.

@@ -395,7 +395,7 @@ TEST_CASE("The blood of a child's return in its parent does not depend on the pa
   CHECK(std::abs(d40) < 0.2e-3);  // was +0.9 mK
 }
 
-TEST_CASE("A wide footprint's junction adds no dense block to the Jacobian; the whole Jacobian and the Newton "
+TEST_CASE("A wide footprint's junction adds no dense block to the Jacobian - the whole Jacobian and the Newton "
           "solves stay exact",
           "[junction][jacobian]") {
   // A plate 5 cm wide (along the limb's axis) on the 8 cm limb of trunkAndLimb: its proximal rings meet the limb's

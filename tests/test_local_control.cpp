@@ -356,7 +356,7 @@ TEST_CASE("CIVD opens the shunts when and only when the local skin falls below i
   for (std::size_t i = 0; i + 1 < firstCold; ++i) CHECK(std::abs(trace.skin[i] - without.skin[i]) < 1e-4);
 }
 
-TEST_CASE("CIVD through a chain of lags hunts; through one lag it settles", "[control][local]") {
+TEST_CASE("CIVD through a chain of lags hunts - through one lag it settles", "[control][local]") {
   // Lewis 1930 (Heart 15:177-208): a finger in ice water cools, rewarms as its vessels dilate, cools again, in
   // repeated waves (the "hunting" reaction) of several minutes (from memory). A loop skin -> opening -> warm blood
   // -> skin with one short lag and the tissue's own capacities settles; a delay in the opening (three lag stages,

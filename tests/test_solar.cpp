@@ -140,7 +140,7 @@ surface = { solar_absorptivity = 0.8 }
   }
 }
 
-TEST_CASE("A given solar_exposure scales the lateral area only; end faces never take sun", "[environment][solar]") {
+TEST_CASE("A given solar_exposure scales the lateral area only - end faces never take sun", "[environment][solar]") {
   // solar_exposure = sunlit projected area / lateral area (cases/REFERENCE.md): 0.2 of a 2 cm x 20 cm bare
   // cylinder's lateral area 2 pi R L, whatever its ends.
   const std::string leg = R"toml(

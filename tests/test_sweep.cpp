@@ -103,7 +103,7 @@ TEST_CASE("sweep plan: grid order, zip, bad keys", "[sweep]") {
   CHECK_THROWS_WITH(makeSweepPlan(o), Catch::Contains("matches no metric"));
 }
 
-TEST_CASE("sweep plan: [sweep] in the case gives metric and window defaults; the command line wins", "[sweep]") {
+TEST_CASE("sweep plan: [sweep] in the case gives metric and window defaults - the command line wins", "[sweep]") {
   // Issue: metrics "chosen on the command line or in the case" (common practice, no source).
   const std::string path = (std::filesystem::temp_directory_path() / "thermorph_sweep_defaults.toml").string();
   {
@@ -344,7 +344,7 @@ TEST_CASE("sweep: a window end between outputs that bracket a step of the timeli
   }
 }
 
-TEST_CASE("sweep: --window takes START:END or report.py's START,END; anything else names the option", "[sweep]") {
+TEST_CASE("sweep: --window takes START:END or report.py's START,END - anything else names the option", "[sweep]") {
   // Both separators give the same seconds (SI Brochure 2019, Table 8: 1 min = 60 s, 1 h = 3600 s).
   const MetricWindow colon = parseMetricWindow("30 min:1 h"), comma = parseMetricWindow("30min,1h");
   CHECK(colon.start == 1800.0);

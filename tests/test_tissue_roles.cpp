@@ -99,7 +99,7 @@ TEST_CASE("A tissue's role comes from its base or its role key, never from its n
   CHECK(again.tissues.at("cortex").role == TissueRole::Brain);
 }
 
-TEST_CASE("The role key overrides the base; shunts need a skin role; bad roles are refused", "[case][roles]") {
+TEST_CASE("The role key overrides the base - shunts need a skin role - bad roles are refused", "[case][roles]") {
   const std::string segment = R"toml(
 [[segments]]
 name = "leg"

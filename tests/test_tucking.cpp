@@ -292,7 +292,7 @@ TEST_CASE("Tucked fraction 0 leaves every result bit for bit unchanged", "[tucki
         body.network().channels.end());
 }
 
-TEST_CASE("Tucking: input errors name file, line and key path; the resolved case keeps the keys", "[tucking][errors]") {
+TEST_CASE("Tucking: input errors name file, line and key path - the resolved case keeps the keys", "[tucking][errors]") {
   auto error = [](const std::string& text) { return testing::caseErrorMessage(text); };
   auto withGuestSurface = [](const std::string& surface) {
     std::string text = coatedPair;

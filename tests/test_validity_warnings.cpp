@@ -47,7 +47,7 @@ speed = ")toml" + speed + R"toml("
 
 }  // namespace
 
-TEST_CASE("Range checks in a ValidityLogScope(false) answer but log nothing; later checks log", "[media][validity]") {
+TEST_CASE("Range checks in a ValidityLogScope(false) answer but log nothing - later checks log", "[media][validity]") {
   resetValidityWarnings();
   {
     const ValidityLogScope deferred(false);

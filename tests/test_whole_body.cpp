@@ -809,7 +809,7 @@ convection = 10
 // The layer of each radial ring is kept as the layers' runs of rings (RingLayers) and the sources' channels and Q10
 // laws in 16 bits. Checked against the case text (the layers' cell counts, inside out, coat last); common practice,
 // no source.
-TEST_CASE("Ring layers follow the case's cell counts; 16-bit term indices refuse what does not fit", "[wholebody]") {
+TEST_CASE("Ring layers follow the case's cell counts - 16-bit term indices refuse what does not fit", "[wholebody]") {
   auto body = bodyFromToml(R"toml(
 [environment]
 temperature = "5 degC"
