@@ -91,12 +91,14 @@ void describe(const Body& body) {
                "{:.4g} W/K per copy at fraction 1 (channel \"tucking\")\n",
                body.segments()[t.guest].name, body.segments()[t.host].name,
                body.environment().tuckedFraction(t.guest), body.environment().maxTuckedFraction(t.guest), t.conductance);
-  for (const Body::Tucking& t : body.tucking())
-    fmt::print("  not modelled: {}'s exposed area is not reduced under the patch; at the largest tucked fraction "
-               "{:.4g} m2 per copy of {} ({:.3g} % of its lateral area {:.4g} m2) exchange with the medium though covered "
-               "(double-exposed)\n",
-               body.segments()[t.host].name, t.doubleExposedArea, body.segments()[t.host].name,
-               100.0 * t.doubleExposedArea / t.hostArea, t.hostArea);
+  for (const Body::Tucking& t : body.tucking()) {
+    const std::string& host = body.segments()[t.host].name;
+    fmt::print("  {}'s exposed lateral area (convection, radiation, evaporation, sun) and its coat's rings lose the "
+               "tucked patch, spread over its lateral cells by area: at the largest tucked fraction {:.4g} m2 per copy "
+               "of {} ({:.3g} % of its lateral area {:.4g} m2); covered at most {:.3g} % with its own contact and "
+               "tucking and all its guests\n",
+               host, t.coveredArea, host, 100.0 * t.coveredArea / t.hostArea, t.hostArea, 100.0 * t.largestHostShare);
+  }
   fmt::print("Respiration: {}. Controllers: {}. Events: {}.\n",
              c.body.respiratorySegment.empty() ? "off (no [body] respiratory_segment)" : "from " + c.body.respiratorySegment,
              controllers.empty() ? "none" : controllers, c.events.size());

@@ -154,15 +154,13 @@ Body::Body(const Case& c) : case_(c) {
     const SegmentSpec& ps = case_.segments[p];
     int nz = ps.shape == Shape::Sphere ? 1 : ps.axialCells;
     coveredArea_[p].resize(static_cast<std::size_t>(nz), 0.0);
-    double outer = s.tissueRadius() + (s.coat ? s.coat->thickness : 0.0);
+    const double section = footprintSection(s, ps);
     if (s.shape == Shape::Sphere) {
       // A sphere child sits on a contact patch, a disc of radius a cut from the parent (below) and from the
       // sphere's own surface (one copy).
-      outer = contactRadius(s, ps);
       coveredArea_[g].resize(1, 0.0);
-      coveredArea_[g][0] += pi * outer * outer;
+      coveredArea_[g][0] += section;
     }
-    double section = s.shape == Shape::Plate ? 2.0 * s.width * outer : pi * outer * outer;
     if (nz == 1) {
       coveredArea_[p][0] += s.count * section;
       continue;
@@ -173,10 +171,12 @@ Body::Body(const Case& c) : case_(c) {
   // Tucking: the segments whose lateral cells addLateralFace describes for addTucking (tucked ones and their hosts).
   tuckSides_.resize(case_.segments.size());
   tuckInvolved_.assign(case_.segments.size(), 0);
+  tuckHost_.assign(case_.segments.size(), 0);
   for (Index g = 0; g < case_.segments.size(); ++g)
     if (environment_->maxTuckedFraction(g) > 0.0) {
       tuckInvolved_[g] = 1;
       tuckInvolved_[index.at(case_.segments[g].surface.tuckedInto)] = 1;
+      tuckHost_[index.at(case_.segments[g].surface.tuckedInto)] = 1;
     }
   for (Index g = 0; g < case_.segments.size(); ++g) {
     network_.groups.push_back(case_.segments[g].name);
@@ -267,9 +267,11 @@ void Body::setInterval(std::size_t interval) const {
   for (const CoatSwitch& c : coatSwitches_) {
     double value = environment_->immersed(c.segment, 0.0) ? c.wet : c.dry;
     const double f = environment_->contactFraction(c.segment), fMax = environment_->maxContactFraction(c.segment);
-    // (The rings away from the substrate and the host: 1 - f_c - f_t of the coat, built for the largest such share.)
+    // (The rings away from the substrate, the host and the guests: 1 - f_c - f_t - f_h of the coat, f_h the share
+    // the segment's own tucked guests cover, built for the largest share of contact and its own tucking.)
     if (c.part == ContactPart::Rings)
-      value *= (1.0 - f - environment_->tuckedFraction(c.segment)) / (1.0 - environment_->maxCoveredFraction(c.segment));
+      value *= (1.0 - f - environment_->tuckedFraction(c.segment) - environment_->coveredByGuests(c.segment)) /
+               (1.0 - environment_->maxCoveredFraction(c.segment));
     // A column without contact keeps its conductance: its face then has no area and exchanges nothing, and a zero
     // conductance would leave the face's temperature undetermined (NetworkSystem::solveFace divides by G - q').
     if (c.part == ContactPart::Column && f > 0.0) value *= f / fMax;
@@ -289,9 +291,11 @@ void Body::addTucking() {
   // A tucked segment's lateral cell i (exposed area a_i) pressed against its host over a patch of the same area,
   // spread over the host's lateral cells j by their exposed areas (shares w_j): per copy of the guest, the path is
   // a radial sector of the guest's ring (its outermost tissue half cell and coat, r_i per unit area) in series with
-  // a sector of the host's (r_j), so G_ij = f_t a_i w_j / (r_i + r_j). Assumptions: the patch is spread over the
-  // host's whole lateral surface; coats are not compressed; the host's own exposed surface is not reduced (it still
-  // exchanges with the medium under the patch); no heat capacity in the path (as the contact column).
+  // a sector of the host's (r_j), so G_ij = f_t a_i w_j / (r_i + r_j). The host's exposed lateral area and its coat's
+  // rings lose the patch in the same proportion w_j (EnvironmentModel::coverHost, Body::setInterval): per copy of
+  // the host f_t A_g n_g / n_h, a share f_h of its lateral area A_h (the faces' exposed areas, children's
+  // footprints off). Assumptions: the patch is spread over the host's whole lateral surface; coats are not
+  // compressed; no heat capacity in the path (as the contact column).
   const Index segments = case_.segments.size();
   for (Index g = 0; g < segments; ++g) {
     if (environment_->maxTuckedFraction(g) <= 0.0) continue;
@@ -309,6 +313,7 @@ void Body::addTucking() {
     double guestArea = 0.0;
     for (const TuckSide& i : guest) guestArea += i.area;
     Tucking summary{g, h, 0.0, environment_->maxTuckedFraction(g) * guestArea * wg / wh, hostArea};
+    environment_->coverHost(g, h, guestArea * wg / (wh * hostArea));
     for (const TuckSide& i : guest)
       for (const TuckSide& j : host) {
         TuckLink l{network_.conductances.size(), g, h, weight * i.area * j.area / hostArea, i.rDry, i.rWet, j.rDry, j.rWet};
@@ -319,6 +324,29 @@ void Body::addTucking() {
     tucking_.push_back(summary);
   }
   std::vector<std::vector<TuckSide>>().swap(tuckSides_);
+  if (tucking_.empty()) return;
+  // Each host's covered share, contact and tucking of its own plus its guests', in every interval: checkTucking
+  // (models/case.cpp) refuses above 1 from the shapes' areas; the faces' areas differ from those only where children
+  // cover over 90 % of an axial cell (10 % kept exposed), which is refused here.
+  std::vector<double> largest(segments, 0.0);
+  const std::size_t intervals = environment_->breakpoints().size() + 1;
+  for (std::size_t k = 0; k < intervals; ++k) {
+    environment_->setInterval(k);
+    for (const Tucking& t : tucking_) {
+      const Index h = t.host;
+      const double share = environment_->contactFraction(h) + environment_->tuckedFraction(h) +
+                           environment_->coveredByGuests(h);
+      largest[h] = std::max(largest[h], share);
+      if (share > 1.0 + 1e-12 || (case_.segments[h].coat && share >= 1.0))
+        throw CaseError(fmt::format("{}: segments.{}.surface.tucked_fraction: the segments tucked into {} cover {:.4g} of "
+                                    "its lateral area with its own contact and tucking in timeline interval {} (its "
+                                    "lateral faces, children's footprints off): at most 1{}",
+                                    case_.sourceFile, case_.segments[t.guest].name, case_.segments[h].name, share, k,
+                                    case_.segments[h].coat ? " and, on a coated host, below 1" : ""));
+    }
+  }
+  environment_->setInterval(0);
+  for (Tucking& t : tucking_) t.largestHostShare = largest[t.host];
 }
 
 Index Body::addModulator(Index schedule, Index control, std::string name) {
@@ -1305,6 +1333,7 @@ struct Body::SegmentBuild {
   double coatShare = 1.0;
   double contact = 0.0;         //!< the segment's largest contact fraction over the run (its column's share)
   bool contactChanges = false;  //!< events change the contact: the coat's conductances are scaled per interval
+  bool tuckHost = false;        //!< some segment is tucked into this one: its coat's rings are scaled per interval
   bool coatChanges = false;                     //!< the coat has a different wet conductivity
   double length = 0.0;                          //!< sphere: 0
   std::vector<double> edges, dz;                //!< [nz + 1] axial cell edges, [nz] cell lengths (sphere: {0, 1}, {1})
@@ -1416,6 +1445,7 @@ Body::SegmentBuild Body::segmentTissues(const SegmentSpec& s, Index group, Segme
   // is tucked), scaled per interval.
   b.contact = environment_->maxContactFraction(group);
   b.contactChanges = environment_->contactChanges(group) || environment_->tuckChanges(group);
+  b.tuckHost = tuckHost_[group] != 0;
   const double covered = environment_->maxCoveredFraction(group);
   if (s.coat && covered > 0.0) b.coatShare = 1.0 - covered;
   b.length = s.shape == Shape::Sphere ? 0.0 : s.length;
@@ -1427,7 +1457,9 @@ Body::SegmentBuild Body::segmentTissues(const SegmentSpec& s, Index group, Segme
 
 void Body::recordCoat(const SegmentBuild& b, bool face, Index index, double dry, double wet, ContactPart part) {
   if (!b.coatChanges) wet = dry;  // no wet conductivity of its own (or the same): the coat conducts as given
-  const bool scaled = b.contactChanges && b.coatShare < 1.0 && part != ContactPart::None;
+  // (A host's rings follow its guests' tucking, Body::setInterval, with or without a contact of its own.)
+  const bool scaled = part != ContactPart::None &&
+                      ((b.contactChanges && b.coatShare < 1.0) || (b.tuckHost && part == ContactPart::Rings));
   if ((b.coatChanges && dry != wet) || scaled)
     coatSwitches_.push_back({face, index, b.group, dry, wet, scaled ? part : ContactPart::None});
 }

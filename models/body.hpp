@@ -128,15 +128,16 @@ class Body {
   //! One tucked segment (surface.tucked_into): its host and the conductance of the whole tucked path at a tucked
   //! fraction of 1, dry coats, per copy of the guest [W/K] (the network's conductances are this times the
   //! interval's tucked fraction; `thermorph check` prints it).
-  //! Known limitation (not yet modelled): the host's own exposed surface is not reduced under the patch, so the
-  //! patch is exposed twice, as the guest's tucked share (which exchanges only with the host) and as the host's
-  //! surface (which still exchanges with the medium). doubleExposedArea quantifies it: the largest tucked fraction
-  //! of the run times the guest's lateral area (children's footprints off) times n_guest / n_host, per copy of the
-  //! host [m2]; hostArea is the host's lateral area (children's footprints off) per copy [m2].
+  //! The host's exposed lateral area (and its coat's rings) lose the patch, spread over its lateral cells in
+  //! proportion to their areas: coveredArea is the largest tucked fraction of the run times the guest's lateral
+  //! area (children's footprints off) times n_guest / n_host, per copy of the host [m2]; hostArea is the host's
+  //! lateral area (children's footprints off) per copy [m2]; largestHostShare the largest share of the host's
+  //! lateral surface covered in any interval, its own contact and tucking and all its guests together [1].
   struct Tucking {
     Index guest = 0, host = 0;
     double conductance = 0.0;
-    double doubleExposedArea = 0.0, hostArea = 0.0;
+    double coveredArea = 0.0, hostArea = 0.0;
+    double largestHostShare = 0.0;
   };
   const std::vector<Tucking>& tucking() const { return tucking_; }
   //! The warnings that apply to a steady solve (the t = 0 conditions): warnings() without those about the timeline
@@ -232,6 +233,7 @@ class Body {
   std::vector<CoatSwitch> coatSwitches_;
   std::vector<std::vector<TuckSide>> tuckSides_;  //!< per segment: [nz] when it is tucked or a host, else empty
   std::vector<char> tuckInvolved_;                //!< per segment: tucked (ever) or the host of one
+  std::vector<char> tuckHost_;                    //!< per segment: the host of a segment tucked at some time
   std::vector<TuckLink> tuckLinks_;
   std::vector<Tucking> tucking_;
   Index tuckingChannel_ = none;

@@ -8,6 +8,8 @@
 #include <numbers>
 #include <filesystem>
 #include <fstream>
+#include <functional>
+#include <limits>
 #include <map>
 #include <set>
 #include <sstream>
@@ -38,6 +40,58 @@ double SegmentSpec::tissueRadius() const {
   double r = 0.0;
   for (const LayerSpec& l : layers) r += l.thickness;
   return r;
+}
+
+double footprintSection(const SegmentSpec& child, const SegmentSpec& parent) {
+  constexpr double pi = std::numbers::pi;
+  if (child.shape == Shape::Sphere) {
+    const double a = child.contactRadius.value_or(std::min(child.tissueRadius(), parent.tissueRadius()));
+    return pi * a * a;
+  }
+  const double outer = child.tissueRadius() + (child.coat ? child.coat->thickness : 0.0);
+  return child.shape == Shape::Plate ? 2.0 * child.width * outer : pi * outer * outer;
+}
+
+double outerLateralArea(const SegmentSpec& s) {
+  constexpr double pi = std::numbers::pi;
+  const double coat = s.coat ? s.coat->thickness : 0.0;
+  switch (s.shape) {
+    case Shape::Sphere: return 4.0 * pi * std::pow(s.tissueRadius() + coat, 2);
+    case Shape::Plate: return 2.0 * s.width * s.length;
+    case Shape::Cylinder: return 2.0 * pi * (s.tissueRadius() + coat) * s.length;
+    case Shape::Cone: {
+      const double r0 = s.radiusProximal + coat, r1 = s.radiusDistal + coat;
+      return pi * (r0 + r1) * std::hypot(s.length, r1 - r0);
+    }
+  }
+  return 0.0;
+}
+
+std::vector<double> segmentCopies(const Case& c) {
+  std::vector<double> copies(c.segments.size(), 0.0);
+  std::function<double(std::size_t, std::size_t)> of = [&](std::size_t g, std::size_t depth) -> double {
+    if (copies[g] > 0.0 || depth > c.segments.size()) return copies[g];
+    const SegmentSpec& s = c.segments[g];
+    double parent = 1.0;
+    for (std::size_t p = 0; p < c.segments.size(); ++p)
+      if (!s.parent.empty() && c.segments[p].name == s.parent) parent = of(p, depth + 1);
+    return copies[g] = (s.parent.empty() ? 1.0 : s.count) * parent;
+  };
+  for (std::size_t g = 0; g < c.segments.size(); ++g) of(g, 0);
+  return copies;
+}
+
+std::vector<double> exposedLateralAreas(const Case& c) {
+  std::vector<double> area(c.segments.size());
+  for (std::size_t g = 0; g < c.segments.size(); ++g) area[g] = outerLateralArea(c.segments[g]);
+  for (const SegmentSpec& s : c.segments)
+    for (std::size_t p = 0; p < c.segments.size(); ++p)
+      if (!s.parent.empty() && c.segments[p].name == s.parent) {
+        const double section = footprintSection(s, c.segments[p]);
+        area[p] -= s.count * section;
+        if (s.shape == Shape::Sphere) area[static_cast<std::size_t>(&s - c.segments.data())] -= section;
+      }
+  return area;
 }
 
 std::vector<double> SegmentSpec::axialEdges() const {
@@ -728,7 +782,8 @@ void validateTree(const CaseReader& reader, const toml::array& segArray, const C
 //! Tucking (segments[].surface.tucked_into / tucked_fraction, events[].surface.NAME.tucked_fraction): the host is
 //! another segment of the body, no chain of hosts comes back to the guest (a host tucked into its guest), and in
 //! every interval of the timeline a segment's contact and tucked shares sum to at most 1 (a coated segment: below
-//! 1, part of its coat stays exposed: its rings carry the rest).
+//! 1, part of its coat stays exposed: its rings carry the rest), and a host's contact and tucked shares plus its
+//! guests' tucked area (as a share of its lateral area, exposedLateralAreas) likewise.
 void checkTucking(const CaseReader& reader, const toml::array& segArray, const Case& c) {
   std::map<std::string, std::size_t> index;
   for (std::size_t i = 0; i < c.segments.size(); ++i) index[c.segments[i].name] = i;
@@ -767,6 +822,7 @@ void checkTucking(const CaseReader& reader, const toml::array& segArray, const C
   // Contact plus tucking per interval: the static values, then each time's events (steps; "all" first within an
   // event, as the environment applies them).
   std::vector<double> contact(c.segments.size()), tucked(c.segments.size());
+  const std::vector<double> area = exposedLateralAreas(c), copies = segmentCopies(c);
   for (std::size_t i = 0; i < c.segments.size(); ++i) {
     contact[i] = c.segments[i].surface.contactFraction;
     tucked[i] = c.segments[i].surface.tuckedFraction;
@@ -786,6 +842,42 @@ void checkTucking(const CaseReader& reader, const toml::array& segArray, const C
           coated ? " and, on a coated segment, below 1 (part of the coat stays exposed)" : "");
       if (!e) surfaceView(i).fail(s.surface.tuckedFraction > 0.0 ? "tucked_fraction" : "contact_fraction", what);
       throw CaseError(fmt::format("{}: {}.surface.{}: {}", e->where, e->source, s.name, what));
+    }
+    // The guests' tucked area on each host (Body takes it off the host's exposed lateral area): per copy of the host
+    // f_t A_g n_g / n_h, A the lateral areas less the children's footprints, with the host's own contact and tucking
+    // at most 1 of its lateral area (a coated host: below 1, its coat's rings carry the rest).
+    for (std::size_t h = 0; h < c.segments.size(); ++h) {
+      double covered = 0.0, largest = 0.0;
+      std::size_t named = c.segments.size();
+      std::vector<std::string> guests;
+      for (std::size_t g = 0; g < c.segments.size(); ++g) {
+        if (host[g] != h || !(tucked[g] > 0.0)) continue;
+        const double a = tucked[g] * area[g] * copies[g] / copies[h];
+        covered += a;
+        guests.push_back(fmt::format("{} ({}{:g} x {:.4g} cm2)", c.segments[g].name,
+                                     copies[g] == copies[h] ? std::string()
+                                                            : fmt::format("{:g} per {} x ", copies[g] / copies[h], c.segments[h].name),
+                                     tucked[g], 1e4 * area[g]));
+        if (a > largest) {
+          largest = a;
+          named = g;
+        }
+      }
+      if (named == c.segments.size()) continue;
+      const SegmentSpec& hs = c.segments[h];
+      const double share = area[h] > 0.0 ? covered / area[h] : std::numeric_limits<double>::infinity();
+      const double sum = contact[h] + tucked[h] + share;
+      const bool coated = hs.coat.has_value();
+      if (sum < 1.0 || (!coated && sum <= 1.0 + 1e-12)) continue;
+      const std::string what = fmt::format(
+          "the tucked area of {} is {:.4g} cm2 per copy of {}, {:.4g} of its lateral area ({:.4g} cm2, children's "
+          "footprints off); with {}'s contact_fraction {:g} and tucked_fraction {:g} that covers {:.4g} of it{}: at "
+          "most 1{}",
+          fmt::join(guests, " and "), 1e4 * covered, hs.name, share, 1e4 * area[h], hs.name, contact[h], tucked[h], sum,
+          e ? fmt::format(" from t = {:g} s", e->at) : std::string(),
+          coated ? " and, on a coated host, below 1 (part of its coat stays exposed)" : "");
+      if (!e) surfaceView(named).fail("tucked_fraction", what);
+      throw CaseError(fmt::format("{}: {}.surface.{}: {}", e->where, e->source, c.segments[named].name, what));
     }
   };
   check(nullptr);
@@ -832,18 +924,10 @@ void checkFootprints(const CaseReader& reader, const toml::array& segArray, Case
     const double coat = s.coat ? s.coat->thickness : 0.0, parentCoat = p.coat ? p.coat->thickness : 0.0;
     // The child's footprint: its length along the parent's axis and its cross-section (as models/body.cpp).
     const double outer = s.tissueRadius() + coat;
-    double length = 0.0, section = 0.0;
-    if (s.shape == Shape::Sphere) {
-      const double a = s.contactRadius.value_or(std::min(s.tissueRadius(), p.tissueRadius()));
-      length = 2.0 * a;
-      section = pi * a * a;
-    } else if (s.shape == Shape::Plate) {
-      length = s.width;
-      section = 2.0 * s.width * outer;
-    } else {
-      length = 2.0 * outer;
-      section = pi * outer * outer;
-    }
+    const double section = footprintSection(s, p);
+    const double length = s.shape == Shape::Sphere ? 2.0 * s.contactRadius.value_or(std::min(s.tissueRadius(), p.tissueRadius()))
+                          : s.shape == Shape::Plate ? s.width
+                                                    : 2.0 * outer;
     // The parent at the attachment: its outer diameter (a plate: its width) and perimeter.
     double diameter = 0.0, perimeter = 0.0;
     if (p.shape == Shape::Plate) {

@@ -108,6 +108,15 @@ struct SegmentSpec {
   std::vector<double> axialLengths() const;
 };
 
+//! A child's footprint on its parent: the area cut from the parent's lateral surface per copy of the child [m2] (a
+//! sphere child's contact patch pi a^2, a = contact_radius or the smaller tissue radius, which the sphere's own
+//! surface loses too; a plate's cross-section 2 w (h + coat); a cylinder's or cone's outer disc pi (r + coat)^2).
+//! Body cuts it from the parent's lateral cells (models/body.cpp), checkFootprints and checkTucking read it.
+double footprintSection(const SegmentSpec& child, const SegmentSpec& parent);
+//! Outer lateral area of one copy of a segment, coat included [m2]: a sphere 4 pi R^2, a plate 2 w L, a cylinder
+//! 2 pi R L, a cone's frustum pi (R0 + R1) sqrt(L^2 + (R1 - R0)^2) with R the outer radius (tissue plus coat).
+double outerLateralArea(const SegmentSpec& s);
+
 //! The nz + 1 edges [m] of nz axial cells over a length, uniform (grading <= 1) or geometrically graded towards
 //! the proximal end with largest/smallest cell ratio `grading` (SegmentSpec::axialEdges of a cylinder, cone or plate).
 std::vector<double> axialCellEdges(double length, int axialCells, double grading);
@@ -272,6 +281,12 @@ Case loadCaseFromString(const std::string& text, const std::string& sourceName,
 //! The fully resolved case as TOML text (SI values, every default filled in).
 std::string resolvedCaseToml(const Case& c);
 
+//! Per segment of a case whose tree is valid: its copies in the body (count times its parent's copies) [1].
+std::vector<double> segmentCopies(const Case& c);
+//! Per segment: its outer lateral area less its children's footprints (count times footprintSection) and, a sphere
+//! child, its own contact patch, per copy [m2] (the sum of Body's lateral faces' areas unless children cover over
+//! 90 % of an axial cell, where Body keeps 10 % exposed).
+std::vector<double> exposedLateralAreas(const Case& c);
 //! Whether segment `g` follows the body-wide [control.vasomotor]: it has a layer of role skin or shunts
 //! (vessels.shunt_flow_max > 0), and no [control.local.NAME] names it. When no segment does, the body-wide
 //! controller drives nothing: Body builds none, the automatic grid does not refine for it, and its keys warn

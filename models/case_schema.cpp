@@ -221,12 +221,15 @@ constexpr std::array params = {
           "exchanges nothing with the medium (no convection, radiation, sun, evaporation or substrate there): it "
           "conducts through this segment's outermost tissue half cell and coat, then the host's coat and outermost "
           "tissue half cell, into the host's outermost tissue cells, over a patch of the same area spread over the "
-          "host's lateral surface in proportion to each cell's exposed area (budget channel `tucking`). The host's "
-          "own exposed surface is not reduced. Not the segment itself, nor a segment tucked into this one."},
+          "host's lateral surface in proportion to each cell's exposed area (budget channel `tucking`). The host "
+          "loses that patch from its own exposed lateral area (convection, radiation, evaporation, sun) and its "
+          "coat's rings, in the same proportion. Not the segment itself, nor a segment tucked into this one."},
     Param{"segments[].surface.tucked_fraction", K::Number, "", "0", 0, 1, false, "",
           "Share of the lateral surface tucked into the segment `tucked_into` (needs it when above 0); with "
-          "contact_fraction at most 1 (a coated segment: below 1, part of its coat stays exposed). Holds for the whole "
-          "run unless [[events]] change it (events[].surface.NAME.tucked_fraction)."},
+          "contact_fraction at most 1 (a coated segment: below 1, part of its coat stays exposed), and the tucked "
+          "area of all the host's guests (f_t A n per copy of the host) with the host's own contact and tucking "
+          "at most the host's lateral area (a coated host: below it), children's footprints off, in every interval. "
+          "Holds for the whole run unless [[events]] change it (events[].surface.NAME.tucked_fraction)."},
     Param{"segments[].surface.wetted_fraction", K::Number, "", "0", 0, 1, false, "",
           "Share of the exposed surface that is wet and evaporates (1: a wet surface); zero in water."},
     Param{"segments[].surface.immersion", K::Choice, "", "body", 0, 0, false, "body|always|never",

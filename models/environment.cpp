@@ -134,6 +134,7 @@ void EnvironmentModel::setInterval(std::size_t interval) {
   for (Index g = 0; g < case_.segments.size(); ++g) contact_[g] = case_.segments[g].surface.contactFraction;
   tucked_.resize(case_.segments.size());
   for (Index g = 0; g < case_.segments.size(); ++g) tucked_[g] = case_.segments[g].surface.tuckedFraction;
+  hostCovered_.assign(case_.segments.size(), 0.0);
   for (std::size_t v = 0; v < kEnvironmentVariables; ++v) {
     offset_[v] = env.value(static_cast<V>(v));
     slope_[v] = 0.0;
@@ -165,6 +166,12 @@ void EnvironmentModel::setInterval(std::size_t interval) {
       }
     }
   }
+  for (const HostCover& c : hostCovers_) hostCovered_[c.host] += tucked_[c.guest] * c.ratio;
+}
+
+void EnvironmentModel::coverHost(Index guest, Index host, double ratio) {
+  hostCovers_.push_back({guest, host, ratio});
+  setInterval(interval_);
 }
 
 double EnvironmentModel::value(EnvironmentVariable variable, double time) const {
@@ -295,8 +302,9 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
     return;
   }
   const FaceFluid fl = fluid(f.segment, time);
-  // The tucked share f_t of a lateral face lies against its host (Body's tucking conductances): no exchange here.
-  const double tucked = f.lateral ? tucked_[f.segment] : 0.0;
+  // The tucked share f_t of a lateral face lies against its host (Body's tucking conductances), and the share f_h
+  // that its own tucked guests cover lies against them: no exchange here.
+  const double tucked = f.lateral ? tucked_[f.segment] + hostCovered_[f.segment] : 0.0;
   const double exposed = f.contact == FaceContact::None ? f.area : (1.0 - contact - tucked) * f.area;  // A_e [m2]
 
   // Convection, Newton's law: q = h A_e (T_f - T_s), dq/dT_s = A_e (h' (T_f - T_s) - h).

@@ -61,11 +61,12 @@ class EnvironmentModel : public SurfaceModel {
   //!   solar       alpha S exposure A on lateral faces (air only; end faces are parallel to the beam);
   //!   evaporation -w h_m [rho_v,sat(T_s) - RH rho_v,sat(T_a)] L_v A_e (air only; Chilton-Colburn analogy);
   //!   substrate   h_sub f_c A (T_sub - T_s);
-  //! with A_e = (1 - f_c - f_t) A the exposed area, f_c the contact fraction of the current interval
-  //! (contactFraction; FaceContact::Shared) and f_t the tucked fraction (tuckedFraction; lateral faces only, 0 on
-  //! end faces); the sun falls on (1 - f_t) A of a lateral face. A Column face, built for the largest contact of the run
+  //! with A_e = (1 - f_c - f_t - f_h) A the exposed area, f_c the contact fraction of the current interval
+  //! (contactFraction; FaceContact::Shared), f_t the tucked fraction (tuckedFraction) and f_h the share its tucked
+  //! guests cover (coveredByGuests; f_t and f_h on lateral faces only, 0 on end faces); the sun falls on
+  //! (1 - f_t - f_h) A of a lateral face. A Column face, built for the largest contact of the run
   //! (maxContactFraction), has only the substrate term over f_c / f_max of its area, an Elsewhere face
-  //! A_e = (1 - f_c - f_t) A and no substrate term, a None face A_e = A and no substrate term.
+  //! A_e = (1 - f_c - f_t - f_h) A and no substrate term, a None face A_e = A and no substrate term.
   void faceHeat(Index face, double faceTemperature, double time, std::span<double> channelHeat,
                 std::span<double> channelDerivative) const override;
   //! Reports (budgets, mean coefficients at outputs) read the per-face coefficient cache but do not write it.
@@ -113,6 +114,13 @@ class EnvironmentModel : public SurfaceModel {
   //! The largest share of a segment's surface covered, contact plus tucking, over the run's intervals (a coated
   //! segment's coat rings are built for the rest) [1]; the largest contact fraction when nothing is tucked.
   double maxCoveredFraction(Index segment) const { return maxCovered_[segment]; }
+  //! Tucking on a host: `guest` (tucked into `host`) covers tuckedFraction(guest) times `ratio` of the host's lateral
+  //! surface (ratio = A_guest n_guest / (n_host A_host), the lateral areas per copy less the children's footprints),
+  //! spread over the host's lateral faces in proportion to their areas. Body sets it once built (Body::addTucking).
+  void coverHost(Index guest, Index host, double ratio);
+  //! Share of a segment's lateral surface that its tucked guests cover in the current interval (0 for a segment that
+  //! is no host): sum over its guests of tuckedFraction(guest) times their ratio [1].
+  double coveredByGuests(Index segment) const { return hostCovered_[segment]; }
   //! The medium around segments with immersion "body" in the current interval.
   SurroundingMedium medium() const { return medium_; }
   //! The fluid around a segment's faces at time t in the current interval.
@@ -164,6 +172,13 @@ class EnvironmentModel : public SurfaceModel {
   //! contact plus tucked fraction of any interval.
   std::vector<double> tucked_, maxTucked_, maxCovered_;
   std::vector<char> tuckEvents_;
+  //! Per segment: the share of its lateral surface its guests cover in the current interval; the tuckings on hosts.
+  std::vector<double> hostCovered_;
+  struct HostCover {
+    Index guest = 0, host = 0;
+    double ratio = 0.0;  //!< A_guest n_guest / (n_host A_host) [1]
+  };
+  std::vector<HostCover> hostCovers_;
   mutable std::vector<std::string> warnings_;
   //! Last correlation result per face and the fluid it was for: the face Newton solve ends with a call a few nK
   //! from its last iterate, and the next right-hand side starts from the same face temperature.

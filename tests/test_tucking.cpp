@@ -11,6 +11,9 @@
 //  2. a coated guest cylinder of several cells tucked into a coated host, with contact and tucking stepped by events:
 //     the Jacobian against central differences in each interval, the energy balance, the tucking channel summing to
 //     zero over the body;
+//  2b. the host's exposed area loses the patch: the exposed areas of host and guest count A_host + A_guest - 2 a_t
+//     (a_t the tucked area) in every interval, for convection and the sun, and the host's coat rings lose the same
+//     share; a half-tucked lumped guest reaches the steady state of the parallel and series conductances;
 //  3. tucked fraction 0 (tucked_into given, no event) leaves every temperature bit for bit as without the keys;
 //  4. bad input names file, line and key path (exit 2 through CaseError); the resolved case keeps the keys.
 #include <catch2/catch.hpp>
@@ -94,13 +97,16 @@ convection = "10 W/(m2 K)"
 }
 
 // The pair's conductances from their own formulas: the host's coat shell (Incropera et al. 2007 eq. 3.36) in series
-// with the film 1 / (h 4 pi r_o^2) to the air; the tucked patch (the guest's whole surface, 4 pi r_g^2) on the host's
-// outer surface, a radial sector of the coat shell of solid-angle share r_g^2 / r_o^2: R_shell r_o^2 / r_g^2.
+// with the film 1 / (h 4 pi r_o^2) to the air, both over the share s of the host's outer surface that the tucked
+// guest leaves exposed (parallel radial sectors: a sector of solid-angle share s conducts s times the shell); the
+// tucked patch (the guest's whole surface, 4 pi r_g^2, times the tucked fraction f_t) on the host's outer surface, a
+// radial sector of the coat shell of solid-angle share f_t r_g^2 / r_o^2: R_shell r_o^2 / (f_t r_g^2).
 struct Pair {
-  double rg = 0.02, ri = 0.04, ro = 0.05, kCoat = 0.05, h = 10.0, rhoC = 1e5;
+  double rg = 0.02, ri = 0.04, ro = 0.05, kCoat = 0.05, h = 10.0, rhoC = 1e5, ft = 1.0;
   double shell() const { return (1.0 / ri - 1.0 / ro) / (4.0 * pi * kCoat); }
-  double H() const { return 1.0 / (shell() + 1.0 / (h * 4.0 * pi * ro * ro)); }
-  double G() const { return 1.0 / (shell() * ro * ro / (rg * rg)); }
+  double exposedShare() const { return 1.0 - ft * rg * rg / (ro * ro); }
+  double H() const { return exposedShare() / (shell() + 1.0 / (h * 4.0 * pi * ro * ro)); }
+  double G() const { return ft / (shell() * ro * ro / (rg * rg)); }
   double Cg() const { return rhoC * 4.0 / 3.0 * pi * rg * rg * rg; }
   double Ch() const { return rhoC * 4.0 / 3.0 * pi * ri * ri * ri; }
 };
@@ -164,8 +170,8 @@ TEST_CASE("Tucking: two lumped spheres reach the series-resistance steady state"
               "%.6f degC (%.6f, %.1e); tucking flow guest %.6g W, host %.6g W (P = %.6g W), G = %.6g W/K, H = %.6g W/K\n",
               Tg - 273.15, exactG - 273.15, std::abs((Tg - Ta) / (exactG - Ta) - 1.0), Th - 273.15, exactH - 273.15,
               std::abs((Th - Ta) / (exactH - Ta) - 1.0), intoGuest, intoHost, P, p.G(), p.H());
-  // Departures: the lumps' half cells (8.2e-3 K/W in the tucked path against 49.7 K/W, 1e-3 K/W against the host's
-  // 11.1 K/W to the air) and the junction's 4e-9 W/K.
+  // Departures: the lumps' half cells (8.2e-3 K/W in the tucked path against 49.7 K/W, 1.2e-3 K/W against the host's
+  // 13.2 K/W to the air over its 84 % left exposed) and the junction's 4e-9 W/K.
   CHECK(std::abs((Tg - Ta) / (exactG - Ta) - 1.0) < 2e-4);
   CHECK(std::abs((Th - Ta) / (exactH - Ta) - 1.0) < 2e-4);
   CHECK(std::abs(intoGuest + P) < 1e-4 * P);
@@ -178,6 +184,104 @@ TEST_CASE("Tucking: two lumped spheres reach the series-resistance steady state"
   // The lumps' half cells in the path (guest 2.0e-3 K/W, host 1.0e-3 K/W over its sector: 6.2e-3 K/W) against the
   // coat's 49.7 K/W: 1.65e-4.
   CHECK(std::abs(body.tucking()[0].conductance / p.G() - 1.0) < 2e-4);
+}
+
+TEST_CASE("Tucking: a half-tucked lumped guest and its host follow the parallel and series conductances",
+          "[tucking][validation]") {
+  // Tucked fraction 0.5: half the guest's surface meets the air (h (1 - f_t) A_g, A_g = 4 pi r_g^2 less its 1e-12 m
+  // contact patch), half lies on the host (G = f_t times the sector, Pair), whose outer surface keeps
+  // A_o - f_t A_g to the air (H = s / (R_shell + 1 / (h A_o)), Pair). Steady state of the heated guest (P = 0.2 W):
+  // P = H_g theta_g + G (theta_g - theta_h), G (theta_g - theta_h) = H theta_h (two nodes, parallel and series
+  // conductances; Incropera et al. 2007 eq. 3.36 and Newton cooling). Exposed area in all: A_o + A_g - 2 f_t A_g.
+  Pair p;
+  p.ft = 0.5;
+  Body body(loadCaseFromString(lumpedPair("warm"), "pair.toml", {"segments.head.surface.tucked_fraction=0.5"}));
+  const double P = 5968.31 * 4.0 / 3.0 * pi * p.rg * p.rg * p.rg, Ta = 283.15;
+  const double Ag = 4.0 * pi * p.rg * p.rg, Hg = p.h * (1.0 - p.ft) * Ag, G = p.G(), H = p.H();
+  const double thetaG = P / (Hg + G * H / (G + H)), thetaH = G * thetaG / (G + H);
+  const std::vector<double> T = testing::steadyTemperatures(body);
+  const double Th = T[body.segments()[0].node(0, 0)], Tg = T[body.segments()[1].node(0, 0)];
+  const testing::SteadyFlows flows = testing::steadyGroupFlows(body);
+  const Network& n = body.network();
+  const Index convection = testing::channelIndex(n, "convection");
+  const double hostLoss = -flows.flows[0 * n.channels.size() + convection];
+  const double guestLoss = -flows.flows[1 * n.channels.size() + convection];
+  std::printf("[tucking] half-tucked lumped pair, steady: guest rise %.6f K (two-node formula %.6f, %.1e), host %.6f K "
+              "(%.6f, %.1e); host's loss to the air %.6g W (H theta_h %.6g W), guest's %.6g W (H_g theta_g %.6g W)\n",
+              Tg - Ta, thetaG, std::abs((Tg - Ta) / thetaG - 1.0), Th - Ta, thetaH, std::abs((Th - Ta) / thetaH - 1.0),
+              hostLoss, H * thetaH, guestLoss, Hg * thetaG);
+  // Departures: the lumps' half cells (as the wholly tucked pair; the guest's 4.0e-3 K/W against its 39.8 K/W film).
+  CHECK(std::abs((Tg - Ta) / thetaG - 1.0) < 2e-4);
+  CHECK(std::abs((Th - Ta) / thetaH - 1.0) < 2e-4);
+  CHECK(std::abs(hostLoss / (H * thetaH) - 1.0) < 2e-4);
+  CHECK(std::abs(guestLoss / (Hg * thetaG) - 1.0) < 2e-4);
+  CHECK(std::abs((hostLoss + guestLoss) / P - 1.0) < 1e-9);  // all of P leaves by convection at steady state
+
+  // The exposed areas themselves, from the faces' convection at a face 1 K above the air (fixed h = 10 W/(m2 K)):
+  // A_o - pi a^2 - f_t A_g' for the host, (1 - f_t) A_g' for the guest (A_g' = A_g - pi a^2, a = 1e-12 m).
+  const double patch = pi * 1e-24, Ao = 4.0 * pi * p.ro * p.ro - patch, Agp = Ag - patch;
+  double area[2] = {0.0, 0.0};
+  std::vector<double> heat(n.channels.size()), slope(n.channels.size());
+  for (Index g = 0; g < 2; ++g)
+    for (Index f : body.segments()[g].lateralFace) {
+      std::fill(heat.begin(), heat.end(), 0.0);
+      body.environment().faceHeat(f, Ta + 1.0, 0.0, heat, slope);
+      area[g] += -heat[convection] / p.h;
+    }
+  std::printf("[tucking] half-tucked lumped pair: exposed areas host %.8g m2 (geometry %.8g), guest %.8g m2 (%.8g), "
+              "together %.8g m2 = A_o + A_g - 2 a_t %.8g m2\n",
+              area[0], Ao - 0.5 * Agp, area[1], 0.5 * Agp, area[0] + area[1], Ao + Agp - 2.0 * 0.5 * Agp);
+  CHECK(std::abs(area[0] / (Ao - 0.5 * Agp) - 1.0) < 1e-12);
+  CHECK(std::abs(area[1] / (0.5 * Agp) - 1.0) < 1e-12);
+  CHECK(std::abs((area[0] + area[1]) / (Ao + Agp - 2.0 * 0.5 * Agp) - 1.0) < 1e-12);
+}
+
+TEST_CASE("Tucking: the host loses the tucked area in every interval (convection, sun, coat rings)",
+          "[tucking][validation]") {
+  // Coated cylinders with a fixed h = 10 W/(m2 K) (no radiation then) and sun: per copy of the trunk, two feet
+  // (r 0.3 + 0.2 cm, L 4 cm: A_F = 2 pi r L each) tucked by f_t = 0.3, 0.7, 0 in the three intervals, in contact
+  // 0.2, 0, 0; the trunk (r 3.1 + 1.5 cm, L 12 cm) loses the feet's two footprints (pi r^2 each): A_T = 2 pi R L -
+  // 2 pi r^2. Exposed to the air: trunk A_T - 2 f_t A_F, each foot (1 - f_c - f_t) A_F; the sun falls on A_T - 2 f_t
+  // A_F and (1 - f_t) A_F (elementary geometry); the trunk's coat rings carry 1 - 2 f_t A_F / A_T of their untucked
+  // conductance (parallel radial sectors).
+  std::string text = coatedPair;
+  text.replace(text.find("speed = \"3 m/s\""), std::string("speed = \"3 m/s\"").size(), "convection = \"10 W/(m2 K)\"");
+  Body body(loadCaseFromString(text, "areas.toml"));
+  const double AF = 2.0 * pi * 0.005 * 0.04, AT = 2.0 * pi * 0.046 * 0.12 - 2.0 * pi * 0.005 * 0.005;
+  const double tucked[] = {0.3, 0.7, 0.0}, contact[] = {0.2, 0.0, 0.0};
+  const Network& n = body.network();
+  const Index convection = testing::channelIndex(n, "convection"), solar = testing::channelIndex(n, "solar");
+  const Index trunkFace = body.segments()[0].lateralFace[1];
+  body.setInterval(2);
+  const double untuckedRing = n.faces[trunkFace].halfConductance;
+  std::vector<double> heat(n.channels.size()), slope(n.channels.size());
+  for (std::size_t k = 0; k < 3; ++k) {
+    body.setInterval(k);
+    double exposed[2] = {0.0, 0.0}, sunlit[2] = {0.0, 0.0};
+    for (Index g = 0; g < 2; ++g) {
+      const SurfaceSpec& s = body.spec().segments[g].surface;
+      for (Index f : body.segments()[g].lateralFace) {
+        std::fill(heat.begin(), heat.end(), 0.0);
+        body.environment().faceHeat(f, 274.15, 0.0, heat, slope);
+        exposed[g] += -heat[convection] / 10.0;
+        sunlit[g] += heat[solar] / (s.solarAbsorptivity * 300.0 * s.solarExposure);
+      }
+    }
+    const double at = 2.0 * tucked[k] * AF;  // tucked area per trunk
+    const double total = exposed[0] + 2.0 * exposed[1], expected = AT + 2.0 * AF - 2.0 * at - 2.0 * contact[k] * AF;
+    const double ring = n.faces[trunkFace].halfConductance / untuckedRing;
+    std::printf("[tucking] interval %zu (f_t %.1f, f_c %.1f): exposed trunk %.8g m2 (geometry %.8g), foot %.8g m2 "
+                "(%.8g), body %.8g m2 (A_T + 2 A_F - 2 a_t - 2 f_c A_F = %.8g); sunlit trunk %.8g (%.8g), foot %.8g "
+                "(%.8g); trunk's coat ring %.10f of untucked (%.10f)\n",
+                k, tucked[k], contact[k], exposed[0], AT - at, exposed[1], (1.0 - contact[k] - tucked[k]) * AF, total,
+                expected, sunlit[0], AT - at, sunlit[1], (1.0 - tucked[k]) * AF, ring, 1.0 - at / AT);
+    CHECK(std::abs(exposed[0] / (AT - at) - 1.0) < 1e-12);
+    CHECK(std::abs(exposed[1] - (1.0 - contact[k] - tucked[k]) * AF) < 1e-12 * AF);
+    CHECK(std::abs(total / expected - 1.0) < 1e-12);
+    CHECK(std::abs(sunlit[0] / (AT - at) - 1.0) < 1e-12);
+    CHECK(std::abs(sunlit[1] / ((1.0 - tucked[k]) * AF) - 1.0) < 1e-12);
+    CHECK(std::abs(ring - (1.0 - at / AT)) < 1e-12);
+  }
 }
 
 TEST_CASE("Tucking: two lumped spheres cool as the analytic two-node system", "[tucking][validation]") {
@@ -328,6 +432,25 @@ TEST_CASE("Tucking: input errors name file, line and key path - the resolved cas
   e = error(text);
   CHECK_THAT(e, Catch::Contains(lineOf(text, "at = 240")) && Catch::Contains("events.0.surface.foot") &&
                     Catch::Contains("from t = 240 s") && Catch::Contains("sum to 1.1"));
+  // The guests' tucked area above the host's lateral area (with its own contact): a 6 cm guest sphere wholly tucked
+  // into a 5 cm host (1.44 of its surface) statically; two feet tucked 0.7 (0.051 of the trunk's side) from an event
+  // that also sets the trunk's contact to 0.95 (1.001 in all; 0.9, 0.951, passes).
+  {
+    std::string big = lumpedPair();
+    big.replace(big.find("thickness = \"2 cm\""), std::string("thickness = \"2 cm\"").size(), "thickness = \"6 cm\"");
+    e = error(big);
+    CHECK_THAT(e, Catch::Contains(lineOf(big, "tucked_into = \"body\"")) &&
+                      Catch::Contains("segments.head.surface.tucked_fraction") && Catch::Contains("covers 1.44 of it") &&
+                      Catch::Contains("below 1"));
+    const std::string lying = "[[events]]\nat = 240\nsurface = { foot = { tucked_fraction = 0.7 }, trunk = { contact_fraction = ";
+    text = coatedPair + lying + "0.95 } }\n";
+    e = error(text);
+    CHECK_THAT(e, Catch::Contains(lineOf(text, "at = 240")) && Catch::Contains("events.2.surface.foot") &&
+                      Catch::Contains("from t = 240 s") && Catch::Contains("covers 1.001 of it") &&
+                      Catch::Contains("contact_fraction 0.95"));
+    std::printf("[tucking] refusal: %s\n", e.c_str());
+    CHECK_NOTHROW(loadCaseFromString(coatedPair + lying + "0.9 } }\n", "lying.toml"));
+  }
   // A host tucked into its guest.
   text = coatedPair;
   text.replace(text.find("coat = { material = \"feathers\", thickness = \"1.5 cm\", cells = 2 }"),
@@ -362,9 +485,9 @@ TEST_CASE("Tucking: input errors name file, line and key path - the resolved cas
 }
 
 
-TEST_CASE("Tucking: the host's double-exposed area (not removed yet) is quantified", "[tucking][validation]") {
-  // Known limitation: the host's exposed area is not reduced under the patch. Body::Tucking reports that area, checked
-  // here against the shapes' surface areas (sphere 4 pi r^2, cylinder side 2 pi r L, circular footprint pi r^2;
+TEST_CASE("Tucking: the host's covered area is reported", "[tucking][validation]") {
+  // Body::Tucking reports the area the guests take off the host's exposed area (`thermorph check`), checked here
+  // against the shapes' surface areas (sphere 4 pi r^2, cylinder side 2 pi r L, circular footprint pi r^2;
   // elementary geometry): lumped pair, the guest's whole sphere (r 2 cm) on the host's outer sphere (r 5 cm),
   // 16 % of it; coated cylinders, 0.7 of two feet's sides (r 0.5 cm, L 4 cm) per trunk, whose side (r 4.6 cm,
   // L 12 cm) loses the feet's two footprints.
@@ -377,14 +500,21 @@ TEST_CASE("Tucking: the host's double-exposed area (not removed yet) is quantifi
   REQUIRE(cyl.tucking().size() == 1);
   const double cylGuest = 0.7 * 2.0 * 2.0 * pi * 0.005 * 0.04, cylHost = 2.0 * pi * 0.046 * 0.12 - 2.0 * pi * 0.005 * 0.005;
   const Body::Tucking& b = cyl.tucking()[0];
-  std::printf("[tucking] double-exposed host area: lumped pair %.6g m2 (geometry %.6g, %.1e), %.4g %% of the host's "
+  std::printf("[tucking] covered host area: lumped pair %.6g m2 (geometry %.6g, %.1e), %.4g %% of the host's "
               "%.6g m2 (%.6g); cylinders %.6g m2 (%.6g, %.1e), %.4g %% of %.6g m2 (%.6g)\n",
-              a.doubleExposedArea, pairGuest, std::abs(a.doubleExposedArea / pairGuest - 1.0),
-              100.0 * a.doubleExposedArea / a.hostArea, a.hostArea, pairHost, b.doubleExposedArea, cylGuest,
-              std::abs(b.doubleExposedArea / cylGuest - 1.0), 100.0 * b.doubleExposedArea / b.hostArea, b.hostArea, cylHost);
-  CHECK(std::abs(a.doubleExposedArea / pairGuest - 1.0) < 1e-12);
+              a.coveredArea, pairGuest, std::abs(a.coveredArea / pairGuest - 1.0),
+              100.0 * a.coveredArea / a.hostArea, a.hostArea, pairHost, b.coveredArea, cylGuest,
+              std::abs(b.coveredArea / cylGuest - 1.0), 100.0 * b.coveredArea / b.hostArea, b.hostArea, cylHost);
+  CHECK(std::abs(a.coveredArea / pairGuest - 1.0) < 1e-12);
   CHECK(std::abs(a.hostArea / pairHost - 1.0) < 1e-12);
-  CHECK(std::abs(a.doubleExposedArea / a.hostArea - 0.16) < 1e-12);
-  CHECK(std::abs(b.doubleExposedArea / cylGuest - 1.0) < 1e-12);
+  CHECK(std::abs(a.coveredArea / a.hostArea - 0.16) < 1e-12);
+  CHECK(std::abs(b.coveredArea / cylGuest - 1.0) < 1e-12);
   CHECK(std::abs(b.hostArea / cylHost - 1.0) < 1e-12);
+  // The largest covered share of the host over the run (no contact of its own): 0.16 and 0.7 of two feet's sides.
+  CHECK(std::abs(a.largestHostShare - 0.16) < 1e-12);
+  CHECK(std::abs(b.largestHostShare - cylGuest / cylHost) < 1e-12);
+  // The load-time check's areas (models/case.cpp exposedLateralAreas) against the same geometry.
+  const std::vector<double> areas = exposedLateralAreas(cyl.spec());
+  CHECK(std::abs(areas[0] / cylHost - 1.0) < 1e-12);
+  CHECK(std::abs(areas[1] / (2.0 * pi * 0.005 * 0.04) - 1.0) < 1e-12);
 }
