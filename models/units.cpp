@@ -1,9 +1,12 @@
 #include "models/units.hpp"
 
+#include <dlfcn.h>
 #include <udunits2.h>
 
 #include <cctype>
 #include <cstdio>
+#include <cstring>
+#include <filesystem>
 #include <tuple>
 #include <charconv>
 #include <map>
@@ -13,6 +16,7 @@
 #include <optional>
 #include <string>
 #include <utility>
+#include <vector>
 
 #include <fmt/format.h>
 
@@ -33,15 +37,30 @@ ut_system* fullSystem() {
   return system;
 }
 
-// thermorph's small database (models/udunits/thermorph-units.xml): the source tree's copy of the build, or the
-// installed one (share/thermorph). Not found: every unit uses the full database.
+// thermorph's small database (models/udunits/thermorph-units.xml): the installed copy beside the binary that holds
+// this code, else the source tree's copy of the build, else the copy installed under the configured prefix. Not
+// found: every unit uses the full database.
 const std::string& smallPath() {
   static const std::string path = [] {
-    // The source tree's first: a build's own copy; an installed executable reads the installed one.
-    for (const char* candidate : {THERMORPH_UNITS_XML_SOURCE, THERMORPH_UNITS_XML_INSTALLED})
-      if (std::FILE* f = std::fopen(candidate, "rb")) {
+    // Beside the binary first: an installed executable (bin/) or Python module (its Python folder) reads the copy
+    // installed with it under whatever --prefix `cmake --install` was given (before 2026-12-05 it read the source
+    // tree's, and the configured prefix's, /usr/local, only). The module is the shared object dladdr names for this
+    // variable; the executable (dladdr gives argv[0] there) is /proc/self/exe. A build's binaries have no
+    // share/thermorph beside them and read the source tree's.
+    static const char anchor = 0;
+    std::vector<std::string> candidates;
+    std::error_code ec;
+    if (Dl_info info{}; dladdr(&anchor, &info) && info.dli_fname && std::strstr(info.dli_fname, ".so"))
+      candidates.push_back((std::filesystem::path(info.dli_fname).parent_path() / THERMORPH_UNITS_XML_FROM_PYTHON)
+                               .lexically_normal().string());
+    else if (const std::filesystem::path exe = std::filesystem::read_symlink("/proc/self/exe", ec); !ec)
+      candidates.push_back((exe.parent_path() / THERMORPH_UNITS_XML_FROM_BIN).lexically_normal().string());
+    candidates.push_back(THERMORPH_UNITS_XML_SOURCE);
+    candidates.push_back(THERMORPH_UNITS_XML_INSTALLED);
+    for (const std::string& candidate : candidates)
+      if (std::FILE* f = std::fopen(candidate.c_str(), "rb")) {
         std::fclose(f);
-        return std::string(candidate);
+        return candidate;
       }
     return std::string();
   }();
