@@ -24,7 +24,7 @@ from pathlib import Path
 import numpy as np
 
 from thermorph_post import CAUTION  # the text of models/caution.hpp (tests/test_docs.py)
-from thermorph_post.budget import WindowBudget, hermite_cumulative, window_budget
+from thermorph_post.budget import WindowBudget, cumulative_at, locate, step_index, window_budget
 from thermorph_post.results import ZERO_CELSIUS_IN_KELVIN, Results, ResultsError, time_average
 from thermorph_post.results import TIME_UNITS, parse_time as results_parse_time  # noqa: F401 (TIME_UNITS: re-exported)
 
@@ -181,46 +181,27 @@ def _pieces(knots, values, t0: float, t1: float) -> list[tuple[float, float, flo
     return out
 
 
-def _step_index(steps, t: float) -> int | None:
-    """Index of the step of the timeline at time t in `steps` (Results.step_times), None when t is none of them.
-    The span ends come from the stored case's events, the steps from the run's own breakpoints: the same numbers
-    (the resolved case stores 17 digits), matched to 1e-9 s relative so that a last-digit difference of a sum
-    (at + ramp) cannot hide one."""
-    if steps is None or steps.size == 0:
-        return None
-    k = int(np.argmin(np.abs(steps - t)))
-    return k if abs(steps[k] - t) <= 1e-9 * max(1.0, abs(t)) else None
-
-
 def _exact_at(res: Results, t: float) -> bool:
     """Whether the cumulative energies at time t are stored exactly: an output, or a step of the timeline in
     /steps (files from 2026-12-05)."""
-    return t in set(np.asarray(res.time, float).tolist()) or _step_index(res.step_times(), t) is not None
+    return t in set(np.asarray(res.time, float).tolist()) or step_index(res.step_times(), t) is not None
 
 
 def _span_heat(res: Results, seg, channel: str, spans) -> tuple[float | None, str]:
     """Heat gained by all copies of `seg` by `channel` over the spans [J] and how: the solver's cumulative energy at
     each span end — the stored value at an output, the exact value at a step of the timeline from /steps
-    (`cumulative, exact at steps`), else Hermite-interpolated between outputs as the budget (`cumulative`; across
-    a step between outputs this mixes both sides of it: files without /steps) — or the trapezoid on the stored
-    flow; None when the file stores neither."""
+    (`cumulative, exact at steps`), else interpolated between the outputs and steps around it as the budget
+    (budget.cumulative_at: `cumulative`; files without /steps: across a step between outputs this mixes both sides
+    of it) — or the trapezoid on the stored flow; None when the file stores neither."""
     flow = seg.heat_flow(channel)
     energy = seg.cumulative_heat(channel)
     if flow is None:
         return None, ""
     if energy is not None:
         steps, at_steps = res.step_times(), seg.step_cumulative_heat(channel)
-        used = False
-
-        def energy_at(t):
-            nonlocal used
-            k = _step_index(steps, t) if at_steps is not None else None
-            if k is not None and t not in set(res.time.tolist()):
-                used = True
-                return float(at_steps[k])
-            return hermite_cumulative(res.time, energy, flow, t)
-
-        total = sum(energy_at(b) - energy_at(a) for a, b in spans)
+        found = [cumulative_at(res.time, energy, flow, t, steps, at_steps) for span in spans for t in span]
+        total = sum(b.value - a.value for a, b in zip(found[::2], found[1::2]))
+        used = any(e.piece.how == "step" for e in found)
         return seg.count * total, "cumulative, exact at steps" if used else "cumulative"
     total = sum(float(time_average(res.time, flow, a, b)) * (b - a) for a, b in spans)
     return seg.count * total, "trapezoid"
@@ -358,26 +339,73 @@ def budget_lines(b: WindowBudget, mass: float | None) -> list[str]:
     return lines
 
 
+def _exact_interval(res: Results, t: float) -> str:
+    """A run.output_interval that makes t an output time (outputs at multiples of it from 0): the current interval
+    shortened to t / ceil(t / interval)."""
+    time = np.asarray(res.time, float)
+    interval = float(time[1] - time[0])
+    n = max(1, int(np.ceil(t / interval - 1e-9)))
+    return f"{t / n:.6g} s"
+
+
 def step_notes(res: Results, t0: float, t1: float) -> list[str]:
-    """Notes for window ends that lie between two outputs bracketing a step of the timeline: the flows jump there,
-    so the interpolation at that end (cumulative energies and flows alike) mixes the two sides of the step. An
-    output exactly at the step is not enough for an end before it: that output holds the flows after the step.
-    Found in a new-user trial: a window starting at a 5-min event with 2-min outputs gave a swim window 83 J of
-    radiation, which water has none of."""
+    """Notes for window ends where the cumulative energies are not stored and a step of the timeline is near: the
+    flows jump there, so no interpolant may run across it.
+
+    Files with /steps (2026-12-05 on): the energies are exact at the steps and interpolated on the piece between
+    the nearest outputs and steps (budget.locate); a piece bounded by a step gets a note with its interpolant, the
+    error it leaves and how large the flows' correction there was (Interpolated.spread). Files without /steps: the
+    cubic between the outputs runs across the step and mixes both sides of it (a window starting at a 5-min event
+    with 2-min outputs gave a swim window 83 J of radiation, which water has none of, in a new-user trial). An
+    output exactly at the step is not enough for an end before it: that output holds the flows after the step."""
     time = res.time
+    steps = res.step_times()
     notes = []
     for label, t in (("start", t0), ("end", t1)):
         i = int(np.searchsorted(time, t, side="right")) - 1
         if i < 0 or i + 1 >= len(time) or time[i] == t:
             continue  # at an output (or outside): exact
         lo, hi = float(time[i]), float(time[i + 1])
-        for at, name in res.timeline_steps():
-            if lo < at <= hi:
-                notes.append(f"NOTE: the window {label} {fmt_time(t)} lies between the outputs at {fmt_time(lo)} and "
-                             f"{fmt_time(hi)}, across the step at {fmt_time(at)} ({name}): the values there are "
-                             f"interpolated across the step and mix both sides of it. Put the window {label} on an "
-                             f"output time, or rerun with a run.output_interval that makes {fmt_time(at)} an output "
-                             f"time.")
+        if steps is None:
+            for at, name in res.timeline_steps():
+                if lo < at <= hi:
+                    notes.append(f"NOTE: the window {label} {fmt_time(t)} lies between the outputs at {fmt_time(lo)} "
+                                 f"and {fmt_time(hi)}, across the step at {fmt_time(at)} ({name}): the values there "
+                                 f"are interpolated across the step and mix both sides of it (this file has no /steps: "
+                                 f"written before 2026-12-05). Put the window {label} on an output time, or rerun with "
+                                 f"run.output_interval = {_exact_interval(res, at)} (makes {fmt_time(at)} an output "
+                                 f"time), or rerun with this version (/steps).")
+            continue
+        piece = locate(time, t, steps)
+        if piece.how not in ("quadratic", "linear"):
+            continue
+        outputs = set(np.asarray(time, float).tolist())
+        where = lambda x: f"the {'output' if x in outputs else 'step'} at {fmt_time(x)}"  # noqa: E731
+        head = (f"NOTE: the window {label} {fmt_time(t)} lies between {where(piece.a)} and {where(piece.b)} of the "
+                f"timeline: the cumulative energies there are interpolated ")
+        fix = (f"For exact values put the window {label} on an output or a step (/steps/step_time), or rerun with "
+               f"run.output_interval = {_exact_interval(res, t)} (makes {fmt_time(t)} an output time).")
+        if piece.how == "linear":
+            notes.append(head + "along a straight line between the exact energies at both (no output between them, "
+                         "and /steps stores no flows), off by up to (t−a)(b−t)·max|E''|/2, which the file cannot "
+                         "estimate. " + fix)
+            continue
+        worst = None   # (share of the window's change, spread [J], channel)
+        for c in res.body_channels():
+            energy, flow, at_steps = res.cumulative_heat(c), res.body_heat_flow(c), res.step_cumulative_heat(c)
+            if energy is None or flow is None or at_steps is None:
+                continue
+            found = cumulative_at(time, energy, flow, t, steps, at_steps)
+            change = abs(cumulative_at(time, energy, flow, t1, steps, at_steps).value
+                         - cumulative_at(time, energy, flow, t0, steps, at_steps).value)
+            if change > 0 and (worst is None or found.spread / change > worst[0]):
+                worst = (found.spread / change, found.spread, c)
+        size = ("" if worst is None else
+                f" The output's flow bends them by up to {worst[1]:.3g} J off that line ({worst[2]}: "
+                f"{100 * worst[0]:.2g} % of the whole body's {worst[2]} over the window), an upper estimate of the "
+                f"error left while the flows are resolved at that spacing.")
+        notes.append(head + "by the quadratic through the exact energies at both and the output's flow, off by up to "
+                     "(t−o)²·|s−t|·max|E'''|/6 (o the output, s the step)." + size + " " + fix)
     return notes
 
 

@@ -71,20 +71,115 @@ def hermite_cumulative(time, energy, flow, t: float) -> float:
 
     Cubic Hermite interpolation on the output interval holding t (exact for
     energies up to cubic in time); the stored value when t is an output time.
+    Across a step of the timeline between the outputs this mixes both sides of
+    it: cumulative_at uses the energies stored at the steps instead.
     """
+    return cumulative_at(time, energy, flow, t).value
+
+
+def step_index(steps, t: float) -> int | None:
+    """Index of time t in `steps` (Results.step_times), None when t is none of them. Times that come from the case
+    (window ends, event times) and the run's own breakpoints are the same numbers up to the last digit of a sum
+    (at + ramp): matched to 1e-9 s relative."""
+    if steps is None or len(steps) == 0:
+        return None
+    steps = np.asarray(steps, dtype=float)
+    k = int(np.argmin(np.abs(steps - t)))
+    return k if abs(steps[k] - t) <= 1e-9 * max(1.0, abs(t)) else None
+
+
+@dataclass
+class Piece:
+    """Where a time t lies among the knots of the cumulative energies (outputs and the timeline's steps, /steps)
+    and how E(t) is found there: "output" or "step" (stored, exact); "hermite" (between two outputs with no step
+    between them: the cubic through E and the flow at both, error (t−a)²(b−t)² max|E''''|/24); "quadratic" (an
+    output and a step: E and the flow at the output, E at the step, error (t−a)²(b−t) max|E'''|/6 with a the
+    output's side doubled); "linear" (two steps with no output between them, or a step and an output that is also
+    a step, whose stored flow is the one after it: E at both, error (t−a)(b−t) max|E''|/2, which the file cannot
+    estimate)."""
+    how: str
+    a: float
+    b: float
+    a_step: bool = False
+    b_step: bool = False
+
+
+def locate(time, t: float, steps=None) -> Piece:
+    """The Piece of the knots holding t: outputs `time` and step times `steps` (None: a file without /steps, where
+    the steps are not knots and the cubic runs across them)."""
     time = np.asarray(time, dtype=float)
     i = int(np.searchsorted(time, t, side="right")) - 1
     if i < 0 or t <= time[0]:
-        return float(energy[0])
-    if i >= len(time) - 1:
-        return float(energy[-1])
-    if t == time[i]:
-        return float(energy[i])
-    h = time[i + 1] - time[i]
-    s = (t - time[i]) / h
+        return Piece("output", float(time[0]), float(time[0]))
+    if i >= len(time) - 1 or t == time[i]:
+        j = min(i, len(time) - 1)
+        return Piece("output", float(time[j]), float(time[j]))
+    if step_index(steps, t) is not None:
+        return Piece("step", t, t, True, True)
+    a, b = float(time[i]), float(time[i + 1])
+    inside = [] if steps is None else [float(s) for s in np.asarray(steps, float) if a < s < b]
+    a_step = step_index(steps, a) is not None  # an output on a step: its flow is the one after the step (fine on a)
+    b_step = step_index(steps, b) is not None  # ... which is no derivative from the left on b
+    for s in inside:
+        if s < t:
+            a, a_step = s, True
+        elif s > t:
+            b, b_step = s, True
+            break
+    left_flow = not (a_step and a not in time.tolist())   # a is an output: its flow is the right derivative
+    right_flow = not b_step
+    how = "hermite" if left_flow and right_flow else "quadratic" if left_flow or right_flow else "linear"
+    return Piece(how, a, b, a_step, b_step)
+
+
+@dataclass
+class Interpolated:
+    """E(t) [J], the Piece it comes from, and `spread` [J]: |E(t) − the next lower-order interpolant| (quadratic: the
+    straight line through the two energies; hermite: the quadratic through E and the flow at the left output and
+    E at the right), the correction the flows made, which bounds the error when the flows are resolved at the
+    knots' spacing; 0 where exact, nan for "linear" (no flow to compare with)."""
+    value: float
+    piece: Piece
+    spread: float
+
+
+def cumulative_at(time, energy, flow, t: float, steps=None, at_steps=None) -> Interpolated:
+    """Cumulative energy at time t [J] from E at the outputs `time` [J], dE/dt = `flow` [W] there and E at the
+    timeline's steps (`steps` [s], `at_steps` [J], /steps; None for files without it): the stored value at an output
+    or a step, else the interpolant of locate() on the piece holding t."""
+    time = np.asarray(time, dtype=float)
+    use_steps = steps if at_steps is not None else None
+    piece = locate(time, t, use_steps)
+    values = time.tolist()
+
+    def knot(x: float) -> tuple[float, float | None]:
+        """E and its derivative (None when the stored flow is no derivative on that side) at a knot."""
+        if x in values:
+            i = values.index(x)
+            return float(energy[i]), float(flow[i])
+        return float(at_steps[step_index(use_steps, x)]), None
+
+    if piece.how in ("output", "step"):
+        return Interpolated(knot(piece.a)[0], piece, 0.0)
+    (ea, da), (eb, db) = knot(piece.a), knot(piece.b)
+    h = piece.b - piece.a
+    s = (t - piece.a) / h
+    line = ea + s * (eb - ea)
+    if piece.how == "linear":
+        return Interpolated(line, piece, float("nan"))
+    if piece.how == "quadratic" and (piece.a_step and piece.a not in values):
+        # the flow at b (the right end) only: E = eb - db h (1-s) + c (1-s)^2, through ea at s = 0
+        c = ea - eb + db * h
+        quad = eb - db * h * (1 - s) + c * (1 - s) ** 2
+        return Interpolated(quad, piece, abs(quad - line))
+    c = eb - ea - da * h
+    quad = ea + da * h * s + c * s ** 2      # E and the flow at a, E at b
+    if piece.how == "quadratic":
+        return Interpolated(quad, piece, abs(quad - line))
     h00, h10 = 2 * s**3 - 3 * s**2 + 1, s**3 - 2 * s**2 + s
     h01, h11 = -2 * s**3 + 3 * s**2, s**3 - s**2
-    return float(h00 * energy[i] + h10 * h * flow[i] + h01 * energy[i + 1] + h11 * h * flow[i + 1])
+    cubic = h00 * ea + h10 * h * da + h01 * eb + h11 * h * db
+    return Interpolated(float(cubic), piece, abs(cubic - quad))
 
 
 def _mean(time, values, t0, t1) -> float:
@@ -114,9 +209,11 @@ def window_budget(res: Results, t0: float, t1: float, segments=None) -> WindowBu
     chosen_names = {s.name for s in chosen}
     channels = ordered_channels(set(res.body_channels()) | {c for s in all_segs for c in s.heat_flow_channels()})
     time = res.time
+    steps = res.step_times()
 
     def seg_row(seg) -> Row:
-        exact = _energy_changes(time, channels, seg.cumulative_heat, seg.heat_flow, t0, t1)
+        exact = _energy_changes(time, channels, seg.cumulative_heat, seg.heat_flow, t0, t1, steps,
+                                seg.step_cumulative_heat)
         if exact is not None:
             return Row(seg.label, "segment", {c: seg.count * (d / (t1 - t0)) for c, d in exact.items()}, "cumulative")
         means = {}
@@ -152,10 +249,12 @@ def window_budget(res: Results, t0: float, t1: float, segments=None) -> WindowBu
     return WindowBudget(t0, t1, channels, [seg_rows[s.name] for s in chosen], others, pool, body, body_trap)
 
 
-def _energy_changes(time, channels, cumulative, flow, t0: float, t1: float) -> dict[str, float] | None:
-    """Energy gained over [t0, t1] per channel from cumulative energies, E(t1) − E(t0) [J], E between outputs by the
-    cubic Hermite polynomial through E and the flow; None for a point window or when a channel's energy or flow is
-    missing. `cumulative(c)`, `flow(c)`: [nt] arrays or None; storage's flow is its rate of storage."""
+def _energy_changes(time, channels, cumulative, flow, t0: float, t1: float, steps=None,
+                    at_steps=lambda c: None) -> dict[str, float] | None:
+    """Energy gained over [t0, t1] per channel from cumulative energies, E(t1) − E(t0) [J], E between outputs by
+    cumulative_at (exact at the timeline's steps `steps` where `at_steps(c)` gives E there, /steps); None for a point
+    window or when a channel's energy or flow is missing. `cumulative(c)`, `flow(c)`, `at_steps(c)`: arrays or
+    None; storage's flow is its rate of storage."""
     if t1 <= t0 or len(time) < 2:
         return None
     changes = {}
@@ -163,14 +262,16 @@ def _energy_changes(time, channels, cumulative, flow, t0: float, t1: float) -> d
         energy, rate = cumulative(c), flow(c)
         if energy is None or rate is None:
             return None
-        changes[c] = hermite_cumulative(time, energy, rate, t1) - hermite_cumulative(time, energy, rate, t0)
+        stored = at_steps(c)
+        changes[c] = (cumulative_at(time, energy, rate, t1, steps, stored).value
+                      - cumulative_at(time, energy, rate, t0, steps, stored).value)
     return changes
 
 
 def _body_from_cumulative(res: Results, channels, t0: float, t1: float) -> Row | None:
     """Whole-body means from /body/cumulative_heat, or None when they are missing or the window is a point."""
     changes = _energy_changes(res.time, [c for c in channels if c != "storage"], res.cumulative_heat,
-                              res.body_heat_flow, t0, t1)
+                              res.body_heat_flow, t0, t1, res.step_times(), res.step_cumulative_heat)
     if changes is None:
         return None
     means = {c: delta / (t1 - t0) for c, delta in changes.items()}
