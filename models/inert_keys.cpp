@@ -121,6 +121,22 @@ void InertKeys::environment() {
                                    "\"always\")";
   const std::string noAirInWater = "no segment is in air while the medium is water (no segment has surface.immersion = "
                                    "\"never\")";
+  // The [[events]] entries that make the medium water: each gives the new medium's own temperature and speed
+  // (models/environment_case.cpp), so water_temperature and water_speed, which are for segments immersed while the
+  // medium is air, have no effect while the animal is in water by them (a new-user trial read the warning as a bug).
+  std::vector<std::string> toWater;
+  for (std::size_t k = 0; k < c.events.size(); ++k)
+    if (c.events[k].medium == SurroundingMedium::Water) toWater.push_back(fmt::format("events.{} at {:g} s", k, c.events[k].at));
+  auto ownWater = [&](const char* value, const char* key) {
+    if (toWater.empty()) return noWaterInAir;
+    const std::size_t shown = std::min<std::size_t>(toWater.size(), 3);
+    std::string list;
+    for (std::size_t k = 0; k < shown; ++k) list += (k ? ", " : "") + toWater[k];
+    if (toWater.size() > shown) list += fmt::format(" and {} more", toWater.size() - shown);
+    return fmt::format("the [[events]] entries that put the animal in water give the water's own {} (their "
+                       "environment.{}: {}), and {}, where it would apply",
+                       value, key, list, noWaterInAir);
+  };
   auto fixedIn = [](const char* where) {
     return fmt::format("every segment {} has a fixed convection coefficient (the speed enters only the correlations)",
                        where);
@@ -131,8 +147,10 @@ void InertKeys::environment() {
     switch (static_cast<V>(v)) {
       case V::Temperature: why = noMedium; break;
       case V::Speed: why = inFluid[MediumFluid] ? fixedIn("in the medium") : noMedium; break;
-      case V::WaterTemperature: why = noWaterInAir; break;
-      case V::WaterSpeed: why = inFluid[WaterInAir] ? fixedIn("in water while the medium is air") : noWaterInAir; break;
+      case V::WaterTemperature: why = ownWater("temperature", "temperature"); break;
+      case V::WaterSpeed:
+        why = inFluid[WaterInAir] ? fixedIn("in water while the medium is air") : ownWater("speed", "speed");
+        break;
       case V::AirTemperature: why = allInWater ? inWater : noAirInWater; break;
       case V::AirSpeed:
         why = allInWater ? inWater : inFluid[AirInWater] ? fixedIn("in air while the medium is water") : noAirInWater;
@@ -162,7 +180,7 @@ void InertKeys::environment() {
     variables_[v] = why;
     add("environment." + std::string(environmentKey(static_cast<V>(v))), why);
   }
-  if (spec.everAir() && !inFluid[WaterInAir]) add("environment.immersion_water", noWaterInAir);
+  if (spec.everAir() && !inFluid[WaterInAir]) add("environment.immersion_water", ownWater("kind", "medium"));
   if (!used[index(V::SubstrateTemperature)])
     add("environment.substrate_conductance", *variables_[index(V::SubstrateTemperature)]);
   // An immersion that puts the segment where "body" would throughout: "never" (in air) while the medium is air for

@@ -132,6 +132,46 @@ immersion_water = "sea_water")toml");
   }
 }
 
+TEST_CASE("Water-side keys when only [[events]] put the animal in water say that the events give the water's own values",
+          "[case][inert]") {
+  // As an invented forager (a new-user trial): in air, bouts in a stream by [[events]] that make the medium water
+  // with its own temperature and speed; [environment] water_temperature and water_speed, which are for segments
+  // immersed while the medium is air, act nowhere, and the warning says why instead of reading as a bug.
+  std::string text = swimmer(R"toml(water_temperature = "6 degC"
+water_speed = "0.5 m/s")toml",
+                             "", R"toml(
+[[events]]
+at = "2 min"
+label = "bout 1"
+environment = { medium = "water", temperature = "6 degC", speed = "0.5 m/s" }
+[[events]]
+at = "4 min"
+environment = { medium = "air", temperature = "2 degC", speed = "3 m/s" }
+[[events]]
+at = "6 min"
+label = "bout 2"
+environment = { medium = "water", temperature = "6 degC", speed = "0.5 m/s" }
+[[events]]
+at = "8 min"
+environment = { medium = "air", temperature = "2 degC", speed = "3 m/s" }
+)toml");
+  text.replace(text.find("medium = \"water\""), 16, "medium = \"air\"");
+  const std::vector<std::string> w = inertWarnings(loadCaseFromString(text, "inert.toml"));
+  CHECK(mentions(w, "inert.toml:9:21: environment.water_temperature has no effect: the [[events]] entries that put the "
+                    "animal in water give the water's own temperature (their environment.temperature: events.0 at "
+                    "120 s, events.2 at 360 s), and no segment is in water while the medium is air (no segment has "
+                    "surface.immersion = \"always\"), where it would apply"));
+  CHECK(mentions(w, "environment.water_speed has no effect: the [[events]] entries that put the animal in water give "
+                    "the water's own speed (their environment.speed: events.0 at 120 s, events.2 at 360 s)"));
+  CHECK(w.size() == 2);
+  // True as worded: another value changes no temperature, bit for bit; the events' own water temperature does.
+  const std::vector<double> a = finalTemperatures(text);
+  CHECK(a == finalTemperatures(text, {"environment.water_temperature=\"30 degC\"", "environment.water_speed=\"2 m/s\""}));
+  std::string warmer = text;
+  warmer.replace(warmer.find("temperature = \"6 degC\", speed"), 22, "temperature = \"9 degC\"");
+  CHECK(a != finalTemperatures(warmer));
+}
+
 TEST_CASE("Parameters of a controller off for the whole run warn and have no effect", "[case][inert]") {
   const std::string text = swimmer("", "", R"toml(
 [control.shivering]
