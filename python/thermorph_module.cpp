@@ -306,7 +306,7 @@ struct Collector {
 };
 
 py::dict runCase(const py::object& spec, const std::vector<std::string>& overrides, bool steady,
-                 const std::string& output, const std::string& base) {
+                 const std::string& output, const std::string& base, bool coldStart) {
   const LoadedCase loaded = loadAny(spec, overrides, base);
   std::optional<Body> built;
   try {
@@ -320,6 +320,7 @@ py::dict runCase(const py::object& spec, const std::vector<std::string>& overrid
   options.output = output;
   options.commandLine = "python: thermorph." + std::string(steady ? "steady" : "run");
   options.quiet = true;
+  options.coarseSteadyStart = !coldStart;   // `thermorph run/steady --cold-start` (cli/main.cpp)
   options.observer = [&](double t, std::span<const double> y, const RunSummary& s) { collector(t, y, s); };
   RunSummary summary;
   {
@@ -597,7 +598,8 @@ py::array_t<double> matrix(const std::vector<double>& values, std::size_t p) {
 py::dict runFitPython(const py::object& spec, const py::object& data, const py::object& freeKeys, const py::object& set,
                       const py::object& start, const py::object& prior, const py::object& dataStart, int multiStart,
                       int maxIterations, const std::string& gradient, double step, double rtol, double convergedSe,
-                      int gridCheckRefinement, int jobs, const std::string& output, const std::string& base, bool progress) {
+                      int gridCheckRefinement, int jobs, const std::string& output, const std::string& base, bool progress,
+                      bool coldStart) {
   const CaseSource from = caseSource(spec, base);
   FitOptions o;
   o.casePath = from.path;
@@ -617,6 +619,7 @@ py::dict runFitPython(const py::object& spec, const py::object& data, const py::
   o.jobs = jobs;
   o.output = output;
   o.quiet = !progress;
+  o.coldStart = coldStart;   // `thermorph fit --cold-start` (cli/fit_cli.cpp)
   o.commandLine = "python: thermorph.fit";
   ObservedOptions readOptions;
   readOptions.startTime = o.dataStart;
@@ -1057,20 +1060,25 @@ PYBIND11_MODULE(thermorph, m) {
   m.def(
       "run",
       [](const py::object& spec, const std::vector<std::string>& set, const std::string& output,
-         const std::string& base) { return runCase(spec, set, false, output, base); },
+         const std::string& base, bool coldStart) { return runCase(spec, set, false, output, base, coldStart); },
       py::arg("case"), py::arg("set") = std::vector<std::string>{}, py::arg("output") = "", py::arg("base") = ".",
+      py::arg("cold_start") = false,
       "Integrate a case (TOML path, TOML text or dict) with --set-style overrides (\"KEY=VALUE\"); returns a dict "
       "of NumPy arrays: time [s], core/blood/mean_skin_temperature [degC], heat_flow and cumulative_heat by "
       "channel [W, J], segments[NAME] (temperature [nt, nz, nr] degC, radius, axial [m], heat_flow, contact_fraction, in_water), steps "
       "(the timeline's steps: time [s] and cumulative_heat by channel [J] there, whole body and segments[NAME], one copy; "
       "the results file's /steps), budget (flows at the last output, energies), warnings. `output` also writes the HDF5 results file; `base` is "
-      "the folder for files a TOML string or dict names (weather files).");
+      "the folder for files a TOML string or dict names (weather files). `cold_start=True`: as `thermorph run --cold-start`, "
+      "a refined grid's (run.grid_refinement > 1) steady start by the relaxation from initial_temperature instead of by "
+      "Newton from the unrefined grid's steady state (the default; the same state to KINSOL's tolerance).");
   m.def(
       "steady",
       [](const py::object& spec, const std::vector<std::string>& set, const std::string& output,
-         const std::string& base) { return runCase(spec, set, true, output, base); },
+         const std::string& base, bool coldStart) { return runCase(spec, set, true, output, base, coldStart); },
       py::arg("case"), py::arg("set") = std::vector<std::string>{}, py::arg("output") = "", py::arg("base") = ".",
-      "Steady state of a case (KINSOL); the same dict as run() with one time point.");
+      py::arg("cold_start") = false,
+      "Steady state of a case (KINSOL); the same dict as run() with one time point. `cold_start=True`: as "
+      "`thermorph steady --cold-start` (see run()).");
   m.def("sweep", &runSweep, py::arg("case"), py::arg("vary") = std::vector<std::string>{},
         py::arg("set") = std::vector<std::string>{}, py::arg("scale") = std::vector<std::string>{},
         py::arg("metrics") = std::vector<std::string>{}, py::arg("zip") = false, py::arg("steady") = false,
@@ -1083,7 +1091,7 @@ PYBIND11_MODULE(thermorph, m) {
         py::arg("start") = py::none(), py::arg("prior") = py::none(), py::arg("data_start") = py::none(),
         py::arg("multi_start") = 1, py::arg("max_iterations") = 50, py::arg("gradient") = "auto", py::arg("step") = 1e-4,
         py::arg("rtol") = 1e-7, py::arg("converged_se") = 0.01, py::arg("grid_check") = 2, py::arg("jobs") = 0,
-        py::arg("output") = "", py::arg("base") = ".", py::arg("progress") = false,
+        py::arg("output") = "", py::arg("base") = ".", py::arg("progress") = false, py::arg("cold_start") = false,
         "Fit case keys to observed series, as `thermorph fit` does (the same drivers: Ceres least squares, "
         "covariance s^2 (J^T J)^-1, t intervals, the grid check). `case`: TOML path, text or dict; `data`: an "
         "observed-data CSV path, a pandas DataFrame or dict of arrays with columns named as the CSV's header "
@@ -1094,7 +1102,8 @@ PYBIND11_MODULE(thermorph, m) {
         "covariance, correlation, series (time, observed, sd, predicted, residual, rmse, model per series), rmse, "
         "n, dof, ssr, s2, aic, bic, warnings (a list, as the command line warns), grid_check, run (the fitted run, "
         "as run() returns it), report (the command line's report with the caution), caution. `output=\"fit.h5\"` "
-        "also writes the fitted run with /fit and STEM_fitted.toml beside it. Bad input raises CaseError; a fit "
+        "also writes the fitted run with /fit and STEM_fitted.toml beside it. `cold_start=True`: as `thermorph fit "
+        "--cold-start` (refined runs' steady starts, the grid check's too, by the relaxation). Bad input raises CaseError; a fit "
         "that does not converge raises SolverError (its history in STEM.incomplete.h5 when output is given).");
   {
     namespace h = sensitivity_help;

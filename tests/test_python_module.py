@@ -1,7 +1,7 @@
 #!/usr/bin/env python3
 """The compiled Python module against the command line: the same case run in-process and by the CLI gives the
 same arrays (bit for bit: both call drivers/simulation.cpp; checked to 1e-12 relative at worst), for a
-transient run, a steady state, a case given as a dict and as TOML text, and a sweep. Bad input raises
+transient run, a steady state, a case given as a dict and as TOML text, a sweep, and cold_start= (--cold-start). Bad input raises
 thermorph.CaseError naming the key. The notebook example runs.
 
     test_python_module.py MODULE_DIR THERMORPH_EXE SOURCE_DIR
@@ -106,6 +106,29 @@ def main():
         steady_h5 = tmp / "steady.h5"
         subprocess.run([exe, "steady", str(case), "-o", str(steady_h5), "-q"], check=True, stdout=subprocess.DEVNULL)
         compare(thermorph.steady(str(case)), steady_h5)
+
+        # cold_start= is the command line's --cold-start (cli/main.cpp): a refined grid's steady start by the
+        # relaxation from initial_temperature instead of by Newton from the unrefined grid's steady state. Each way
+        # the module equals the CLI bit for bit, statistics included; the steady state's statistics tell the two
+        # ways apart (relaxation steps only cold), so the flag reaches the driver (the run's steady start is not in
+        # its statistics, and here both ways reach the same state bit for bit).
+        refined = ["run.grid_refinement=2"]
+        for cold in (False, True):
+            flag = ["--cold-start"] if cold else []
+            for kind, extra in (("steady", []), ("run", ["run.initial=steady", "run.duration=10 min"])):
+                h5 = tmp / f"{kind}_refined_{cold}.h5"
+                subprocess.run([exe, kind, str(case), *sum([["--set", x] for x in refined + extra], []), "-o", str(h5),
+                                "-q", *flag], check=True, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+                r = getattr(thermorph, kind)(str(case), set=refined + extra, cold_start=cold)
+                compare(r, h5)
+                with h5py.File(h5, "r") as f:
+                    for key in ("steps", "rhs_evaluations"):
+                        check(r["statistics"][key] == f["solver"].attrs[key],
+                              f"{kind} cold_start={cold}: {key} {r['statistics'][key]} != the CLI's "
+                              f"{f['solver'].attrs[key]}")
+                if kind == "steady":
+                    check((r["statistics"]["steps"] > 0) == cold,
+                          f"steady cold_start={cold}: {r['statistics']['steps']} relaxation steps")
 
         # The same case as a dict (tomllib) and as TOML text, with the same overrides.
         spec = tomllib.loads(case.read_text())
