@@ -672,6 +672,44 @@ def check_contact_series(tmp: Path, exe: str):
           "old file without contact series: no substrate line")
 
 
+#: Bouts of a forager (invented, as the lead's trial 3): labelled events of a single time (no `span`), each ended by
+#: the timeline's next change: "bout 1" in water from 5 to 9 min (an unlabelled event returns to air), "bout 2" from
+#: 13 min to the end of the 20-min run (nothing ends it).
+BOUT_1, BOUT_1_END, BOUT_2 = 300.0, 540.0, 780.0
+
+
+def check_bout_titles(tmp: Path, exe: str):
+    """Map titles name a labelled event without a span while it lasts (up to the timeline's next change, as the
+    default map times' footer names it: "bout 1, 5 min to 9 min"), per the event table above, independent of the
+    package; before, only events with a span were named. Common practice, no source."""
+    from thermorph_post import figures
+    from thermorph_post.results import Results
+    events = (f'events=[{{ at = {BOUT_1}, label = "bout 1", environment = {{ medium = "water", temperature = "6 degC", '
+              'speed = "0.5 m/s" } },'
+              f' {{ at = {BOUT_1_END}, environment = {{ medium = "air", temperature = "2 degC", speed = "3 m/s" }} }},'
+              f' {{ at = {BOUT_2}, label = "bout 2", environment = {{ medium = "water", temperature = "6 degC", '
+              'speed = "0.5 m/s" } }]')
+    h5 = tmp / "bouts.h5"
+    proc = subprocess.run([exe, "run", str(ROOT / "cases" / "limb_cooling.toml"), "-q", "--set", events,
+                           "--set", 'run.duration="20 min"', "--set", 'run.output_interval="1 min"', "-o", str(h5)],
+                          capture_output=True, text=True)
+    check(proc.returncode == 0, f"bouts: exit {proc.returncode}\n{proc.stderr[-800:]}")
+    if proc.returncode != 0:
+        return
+    times = [240.0, 300.0, 480.0, 540.0, 780.0, 1200.0]
+    with Results(h5) as res:
+        maps = figures.maps_figures(res, segments=["forelimb"], times=times)
+        _, note = figures.default_map_times(res)
+    titles = {ax.get_label(): " ".join(ax.thermorph_title[1].split()) for ax in maps["forelimb"].axes
+              if ax.get_label().startswith("map at")}
+    for t in times:
+        bout = "bout 1" if BOUT_1 <= t < BOUT_1_END else "bout 2" if t >= BOUT_2 else None
+        want = "in water, " + bout if bout else "in air"
+        title = titles.get(f"map at t = {t:.10g} s", "")
+        check(title.endswith(": " + want), f"bouts: map title at {t:g} s {title!r}, expected it to end {want!r}")
+    check("(bout 1, 5 min to 9 min: 8 min)" in note, f"bouts: the default map times' note {note!r}")
+
+
 def check_budget_spikes(tmp: Path, exe: str):
     """The diving example's budget, panel b (whole-body flows over time): each dive's first seconds cool the body at
     about 320 W/kg (convection in 4 degC sea water on a skin warmed in air) while metabolism is about 2 W/kg, so on a
@@ -922,6 +960,7 @@ def main() -> int:
             check_contact_events(tmp, EXE)
             check_equal_profiles(tmp, EXE)
             check_contact_series(tmp, EXE)
+            check_bout_titles(tmp, EXE)
             check_budget_spikes(tmp, EXE)
             check_overlay_and_sweep(tmp, EXE)
         else:

@@ -371,6 +371,22 @@ def budget(results, out_dir, units: str = "physiology", segments=None, window=No
 
 
 # ---- figure: maps -----------------------------------------------------------------------
+def labelled_spans(res: Results) -> list[tuple[float, float, str]]:
+    """The labelled events (/events; not thermorph's "event at N s") as (start, end, label) [s], sorted: an event
+    with a `span` covers it; one of a single time (no span: a foraging bout that a later event ends) holds up to the
+    timeline's next change (Results.timeline_changes), or with none to the end of the run (end = inf)."""
+    changes = sorted(at for at, _ in res.timeline_changes())
+    spans = []
+    for start, end, label in res.events():
+        if not label or is_default_event_label(label):
+            continue
+        if not end > start:
+            later = [at for at in changes if at > start]
+            end = min(later) if later else float("inf")
+        spans.append((start, end, label))
+    return spans
+
+
 def default_map_times(res: Results) -> tuple[list[float], str]:
     """The maps' default times [s] and the footer's note on them. Without labelled events: the first, middle and
     last output (note ""). With labelled events (a dive, a foraging bout): the first output, the last output inside
@@ -383,13 +399,11 @@ def default_map_times(res: Results) -> tuple[list[float], str]:
     plain = [float(t[0]), 0.5 * float(t[0] + t[-1]), float(t[-1])]
     if len(t) < 3:
         return plain, ""
-    labelled = [(a, b, lab) for a, b, lab in res.events() if lab and not is_default_event_label(lab) and a >= t[0]]
+    labelled = [(a, b, lab) for a, b, lab in labelled_spans(res) if a >= t[0]]
     if not labelled:
         return plain, ""
     start, end, label = labelled[0]
-    if not end > start:
-        later = [at for at, _ in res.timeline_changes() if at > start]
-        end = min(later) if later else float(t[-1])
+    end = float(t[-1]) if np.isinf(end) else end
     inside = np.nonzero((t > start) & (t < end))[0]
     if len(inside) == 0 or inside[-1] >= len(t) - 1:
         return plain, ""
@@ -444,7 +458,8 @@ def _cone_note(seg, units: str) -> str:
 def moment_text(res: Results, seg, i: int) -> str:
     """What segment `seg` was in at output i, from the stored series: "in water" or "in air" (/segments/NAME/in_water),
     its substrate contact when it has any during the run ("contact 10 %", "no contact";
-    /segments/NAME/contact_fraction), and the labelled events (/events) under way ("dive 2"). The values at an output
+    /segments/NAME/contact_fraction), and the labelled events under way ("dive 2"; labelled_spans: one without a
+    span, such as "bout 1", up to the timeline's next change, as the default map times' footer names it). The values at an output
     on a step are those after it (as stored). "" for a file without these series (before 2026-12-05)."""
     wet = seg.in_water()
     if wet is None or i >= len(wet):
@@ -455,8 +470,7 @@ def moment_text(res: Results, seg, i: int) -> str:
         f = float(contact.values[i])
         parts.append(f"contact {100.0 * f:.3g} %" if f > 0.0 else "no contact")
     t = float(res.time[i])
-    parts += [label for start, end, label in res.events()
-              if start <= t < end and label and not is_default_event_label(label)]
+    parts += [label for start, end, label in labelled_spans(res) if start <= t < end]
     return ", ".join(parts)
 
 
