@@ -3,17 +3,20 @@
 Shared by report.py and figures.py. Heat flows are positive into the body [W].
 
 - Segment rows: from /segments/NAME/cumulative_heat (integrated by the solver
-  with the state, like the whole body's), (E(t1) − E(t0)) / (t1 − t0) with the
-  same Hermite interpolation between outputs; all copies of a segment counted
+  with the state, like the whole body's), (E(t1) − E(t0)) / (t1 − t0) with E
+  at window ends as the whole body's (cumulative_at); all copies of a segment counted
   (one copy is stored, `count` multiplies). Files without them: trapezoidal
   rule on the stored flows, linearly interpolated at window ends between
   outputs. (The trapezoid credits an output on the instant of a step of the
   timeline with half an interval of the new flows: an invented diving bird
   hauled out at a window's end got 0.17 W of sun while in water.)
 - Whole body: from /body/cumulative_heat (the integrator's own channel energies,
-  so exact to its tolerance): (E(t1) − E(t0)) / (t1 − t0). Between two outputs
-  E is interpolated by the cubic Hermite polynomial through E and its
-  derivative, the stored flow, at both outputs. Storage = sum of the channel
+  so exact to its tolerance): (E(t1) − E(t0)) / (t1 − t0). E is stored at the
+  outputs and at the timeline's steps (/steps); between them (cumulative_at) by
+  the cubic Hermite polynomial through E and its derivative, the stored flow,
+  at two outputs, the quadratic through both energies and the output's flow
+  between an output and a step, a straight line between two steps: never
+  across a step, where the flows jump. Storage = sum of the channel
   energies minus the change of /body/energy_balance_error (whose definition is
   gains − change in stored heat). Without cumulative energies: trapezoid.
 - Blood pool: whole-body flows minus the sum over all segments (exact when
