@@ -155,7 +155,8 @@ constexpr std::array params = {
           "whose cell edges are z(i / axial_cells). 1 is uniform. Neighbouring cells differ by Q^(1/axial_cells), "
           "the longest is Q^((axial_cells - 1)/axial_cells) times the shortest. Refinement (run.grid_refinement, "
           "`thermorph refine`) multiplies axial_cells and keeps Q: every cell splits into N cells along the same "
-          "mapping. Left out together with axial_cells, it is chosen with them: graded where the water line lies at the "
+          "mapping (on one cell, unrefined, Q has no effect, and a given value warns). Left out together with "
+          "axial_cells, it is chosen with them: graded where the water line lies at the "
           "segment's junction (the child in water, its parent in air at some time of the run), whose corner uniform "
           "cells resolve only slowly (the smallest Q of 10, 30, 100, 300, 1000 whose proximal cell is at most a "
           "tenth of the outermost tissue layer; that layer also gets four times its automatic radial cells), "
@@ -171,7 +172,8 @@ constexpr std::array params = {
           "Radial cells of the layer graded geometrically towards its outer face: the ratio Q of the cell thickness at "
           "the inner face to that at the outer face of the mapping d(y) = t (Q^y - 1) / (Q - 1) (d the distance from "
           "the outer face, t the layer's thickness) whose cell faces are d(1 - i / cells). 1 is uniform. Refinement "
-          "multiplies cells and keeps Q, as axial_grading. Left out together with cells, it is chosen with them: "
+          "multiplies cells and keeps Q, as axial_grading. On one cell (cells = 1, unrefined) it has no effect, and "
+          "a given value warns. Left out together with cells, it is chosen with them: "
           "graded in the outermost layer of a bare child on a coated parent whose skin's Biot length k/h is shorter "
           "than its cells there, uniform elsewhere (README, Grid)."},
     Param{"segments[].coat", K::Table, "", "", 0, 0, false, "", "Optional fur or feather coat: `{ material, thickness, cells }`."},
