@@ -146,7 +146,7 @@ std::vector<FitParameter> parseFitParameters(const std::vector<std::string>& fre
       }
     };
     if (!si.empty() && !p.unit.empty() && !unitConvertible(p.unit, si) && param->kind != ParamKind::Perfusion)
-      throw CaseError(fmt::format("{}: unit \"{}\" is not a {} (expected {})", what, p.unit, quantityName(si), si));
+      throw CaseError(fmt::format("{}: unit \"{}\" is not {} (expected {})", what, p.unit, aQuantity(si), si));
     p.lower = inUnit(lo, "lower bound");
     p.upper = inUnit(hi, "upper bound");
     if (!(p.lower < p.upper))

@@ -122,12 +122,12 @@ class CaseReader {
                                       trimmed(*text), p.unit));
         value = toSI(*text, p, density);
       } catch (const UnitError& e) {
-        fail(&node, path, fmt::format("{} = {}: {}; expected a {} in {} or a convertible unit, e.g. {}", lastComponent(path), formatValue(node),
-                                      e.what(), quantityName(p.unit), p.unit, example(p)));
+        fail(&node, path, fmt::format("{} = {}: {}; expected {} in {} or a convertible unit, e.g. {}", lastComponent(path), formatValue(node),
+                                      e.what(), aQuantity(p.unit), p.unit, example(p)));
       }
     } else {
-      fail(&node, path, fmt::format("{} is not a number or a quantity string (expected a {} in {}, e.g. {})", formatValue(node),
-                                    quantityName(p.unit), p.unit, example(p)));
+      fail(&node, path, fmt::format("{} is not a number or a quantity string (expected {} in {}, e.g. {})", formatValue(node),
+                                    aQuantity(p.unit), p.unit, example(p)));
     }
     checkRange(node, p, path, value);
     return snapToRange(p, value);

@@ -315,8 +315,8 @@ void readWeather(const CaseReader& reader, const TableView& environment, const E
           column.siUnit = std::string(findParam("events[].environment." + std::string(it->key))->unit);
         }
         if (!unit.empty() && !unitConvertible(unit, column.siUnit))
-          failAt(lineNumber, fmt::format("column \"{}\": unit \"{}\" is not a {} (SI: {})", header, unit,
-                                         quantityName(column.siUnit), column.siUnit));
+          failAt(lineNumber, fmt::format("column \"{}\": unit \"{}\" is not {} (SI: {})", header, unit,
+                                         aQuantity(column.siUnit), column.siUnit));
         columns.push_back(column);
       }
       continue;

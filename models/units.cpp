@@ -182,6 +182,12 @@ std::string quantityName(std::string_view siUnit) {
   return it == names.end() ? std::string(siUnit) : it->second;
 }
 
+std::string aQuantity(std::string_view siUnit) {
+  const std::string name = quantityName(siUnit);
+  const bool vowel = !name.empty() && std::string_view("aeiou").find(name.front()) != std::string_view::npos;
+  return (vowel ? "an " : "a ") + name;
+}
+
 bool unitConvertible(std::string_view unit, std::string_view siUnit) {
   std::lock_guard lock(unitMutex);
   const std::string u = normalised(unit), si = normalised(siUnit);
@@ -232,7 +238,7 @@ double convertUnitWith(UnitDatabase database, double value, std::string_view uni
     UnitPtr to = parseUnit(system, si);
     if (!to) throw UnitError(fmt::format("internal: bad SI unit \"{}\"", siUnit));
     if (!ut_are_convertible(from.get(), to.get()))
-      throw UnitError(fmt::format("unit \"{}\" is not a {} (not convertible to {})", unit, quantityName(siUnit),
+      throw UnitError(fmt::format("unit \"{}\" is not {} (not convertible to {})", unit, aQuantity(siUnit),
                                   siUnit));
     cv_converter* converter = ut_get_converter(from.get(), to.get());
     if (!converter) throw UnitError(fmt::format("udunits2: no converter from \"{}\" to {}", unit, siUnit));

@@ -15,6 +15,8 @@ class UnitError : public std::runtime_error {
 
 //! Human name of the quantity an SI unit measures ("length" for "m"), for messages.
 std::string quantityName(std::string_view siUnit);
+//! quantityName with its indefinite article ("a length", "an irradiance or heat flux"), for messages.
+std::string aQuantity(std::string_view siUnit);
 
 //! True when `unit` parses and converts to `siUnit`.
 bool unitConvertible(std::string_view unit, std::string_view siUnit);

@@ -236,6 +236,10 @@ TEST_CASE("A weather file interpolates linearly between its rows, with a breakpo
   std::string e = common::caseErrorOf(leg + "[environment]\nweather = \"" + (dir / "bad.csv").string() + "\"\n");
   CHECK_THAT(e, Catch::Contains("environment.weather") && Catch::Contains("bad.csv:1") &&
                     Catch::Contains("unit \"kg\" is not a temperature"));
+  // The article follows the quantity's name (common practice, no source): "an irradiance", not "a irradiance".
+  CHECK_THAT(common::caseErrorOf(leg + "[environment]\nsolar_irradiance = \"800 W\"\n"),
+             Catch::Contains("environment.solar_irradiance") && Catch::Contains("is not an irradiance or heat flux") &&
+                 Catch::Contains("expected an irradiance or heat flux in W/m2"));
   {
     std::ofstream csv(dir / "bad.csv");
     csv << "time, temperature\n0, 280\n60, 281\n60, 282\n";
