@@ -15,7 +15,9 @@
 #include <cctype>
 #include <cmath>
 #include <filesystem>
+#include <map>
 #include <optional>
+#include <set>
 #include <sstream>
 
 #include <fmt/format.h>
@@ -34,6 +36,7 @@
 #include "drivers/record_fields.hpp"
 #include "drivers/simulation.hpp"
 #include "drivers/sweep.hpp"
+#include "drivers/sweep_engine.hpp"
 #include "models/body.hpp"
 #include "models/case.hpp"
 #include "models/caution.hpp"
@@ -305,6 +308,40 @@ struct Collector {
   }
 };
 
+//! thermorph.ThermorphWarning (a UserWarning), created when the module is imported.
+PyObject* thermorphWarning = nullptr;
+
+//! Raises the result's warnings (r["warnings"]: texts, or a list of texts per run) as Python warnings of category
+//! thermorph.ThermorphWarning, one per kind (texts that differ only in numbers: sweep.cpp's warningPattern, as the
+//! command line prints them), so that a notebook shows what the command line prints on stderr; the dict keeps every
+//! text. A filter that turns them into errors ("error") raises the first. Returns r.
+py::dict warned(py::dict r) {
+  if (!r.contains("warnings") || thermorphWarning == nullptr) return r;
+  std::vector<std::string> texts;
+  for (const py::handle item : r["warnings"]) {
+    if (py::isinstance<py::str>(item)) texts.push_back(item.cast<std::string>());
+    else
+      for (const py::handle w : item) texts.push_back(w.cast<std::string>());
+  }
+  std::vector<std::string> order;
+  std::map<std::string, std::pair<std::string, std::set<std::string>>> kinds;
+  for (const std::string& w : texts) {
+    std::string pattern = warningPattern(w);
+    auto [it, added] = kinds.try_emplace(pattern, w, std::set<std::string>{});
+    if (added) order.push_back(pattern);
+    it->second.second.insert(w);
+  }
+  for (const std::string& pattern : order) {
+    const auto& [first, distinct] = kinds.at(pattern);
+    const std::string text =
+        distinct.size() == 1 ? first
+                             : fmt::format("{} (and {} more of this kind whose numbers differ: the result's 'warnings')",
+                                           first, distinct.size() - 1);
+    if (PyErr_WarnEx(thermorphWarning, text.c_str(), 1) < 0) throw py::error_already_set();
+  }
+  return r;
+}
+
 py::dict runCase(const py::object& spec, const std::vector<std::string>& overrides, bool steady,
                  const std::string& output, const std::string& base, bool coldStart) {
   const LoadedCase loaded = loadAny(spec, overrides, base);
@@ -329,7 +366,7 @@ py::dict runCase(const py::object& spec, const std::vector<std::string>& overrid
   }
   if (!summary.complete) throw SolverError(loaded.message(summary.failure));
   for (std::string& w : summary.warnings) w = loaded.message(w);
-  return collector.result(summary);
+  return warned(collector.result(summary));
 }
 
 // ---- sweep ---------------------------------------------------------------------------------------------
@@ -399,7 +436,7 @@ py::dict runSweep(const py::object& spec, const std::vector<std::string>& vary, 
   r["errors"] = errors;
   r["warnings"] = warnings;
   r["caution"] = caution;
-  return r;
+  return warned(r);
 }
 
 // ---- fit -----------------------------------------------------------------------------------------------
@@ -793,7 +830,7 @@ py::dict runFitPython(const py::object& spec, const py::object& data, const py::
   for (const std::string& w : warnings) report += "warning: " + w + "\n";
   out["report"] = report + fmt::format("Caution: {}\n", caution);
   out["caution"] = caution;
-  return out;
+  return warned(out);
 }
 
 // ---- sensitivity and uncertainty -----------------------------------------------------------------------
@@ -1012,7 +1049,7 @@ py::dict runSensitivityPython(const py::object& spec, const py::object& params, 
   r["attributes"].cast<py::dict>()["runs_table"] = out.shown(runsTable);
   r["report"] = out.report(from.message(report.text()));
   r["caution"] = caution;
-  return r;
+  return warned(r);
 }
 
 py::dict runUncertaintyPython(const py::object& spec, const py::object& params, const py::object& fromFit,
@@ -1044,7 +1081,7 @@ py::dict runUncertaintyPython(const py::object& spec, const py::object& params, 
   r["output"] = out.shown(o.output);
   r["report"] = out.report(from.message(report.text()));
   r["caution"] = caution;
-  return r;
+  return warned(r);
 }
 
 }  // namespace
@@ -1057,6 +1094,14 @@ PYBIND11_MODULE(thermorph, m) {
   m.attr("CAUTION") = caution;
   py::register_exception<CaseError>(m, "CaseError", PyExc_ValueError);
   py::register_exception<SolverError>(m, "SolverError", PyExc_RuntimeError);
+  thermorphWarning = PyErr_NewExceptionWithDoc(
+      "thermorph.ThermorphWarning",
+      "A warning of a thermorph run (grid, validity ranges, keys with no effect, hot or freezing tissue, ...): every "
+      "function raises its result's warnings so, one per kind, as the command line prints them on stderr; the "
+      "result's 'warnings' keeps every text. Silence with warnings.simplefilter('ignore', thermorph.ThermorphWarning).",
+      PyExc_UserWarning, nullptr);
+  if (thermorphWarning == nullptr) throw py::error_already_set();
+  m.add_object("ThermorphWarning", py::handle(thermorphWarning));
   m.def(
       "run",
       [](const py::object& spec, const std::vector<std::string>& set, const std::string& output,

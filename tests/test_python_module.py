@@ -171,6 +171,41 @@ def main():
         check(all(w.startswith("grid: ") for w in coarse["warnings"][0] if "radial cells" in w),
               f"a warning split or joined: {coarse['warnings'][0]}")
 
+        # Warnings reach a notebook as Python warnings (thermorph.ThermorphWarning, a UserWarning), one per kind as
+        # the command line prints them on stderr; the dict keeps every text. The limb in 90 degC air for 2 h warms
+        # above 45 degC (the hot-tissue warning; its blood is pinned at 37 degC) and its 1-cell layer warns of the grid.
+        hot = ["environment.temperature=90 degC", "run.duration=2 h", "segments.forelimb.layers.0.cells=1"]
+        proc = subprocess.run([exe, "run", str(case), *sum([["--set", x] for x in hot], []), "-o", str(tmp / "hot.h5"),
+                               "-q"], capture_output=True, text=True)
+        cli_lines = [l[len("warning: "):] for l in proc.stderr.splitlines() if l.startswith("warning: ")]
+        import warnings as pywarnings
+        with pywarnings.catch_warnings(record=True) as caught:
+            pywarnings.simplefilter("always")
+            rh = thermorph.run(str(case), set=hot)
+        raised = [str(w.message) for w in caught if issubclass(w.category, thermorph.ThermorphWarning)]
+        check(issubclass(thermorph.ThermorphWarning, UserWarning), "ThermorphWarning is a UserWarning")
+        check(any("tissue above 45 degC" in w for w in raised) and any("radial cells" in w for w in raised)
+              and raised == rh["warnings"] == cli_lines,
+              f"run: raised {raised} = the dict's {rh['warnings']} = the CLI's stderr {cli_lines}")
+        with pywarnings.catch_warnings():
+            pywarnings.simplefilter("error", thermorph.ThermorphWarning)
+            try:
+                thermorph.run(str(case), set=hot)
+                check(False, "simplefilter('error') did not raise the first warning")
+            except thermorph.ThermorphWarning as e:
+                check(str(e) == rh["warnings"][0], f"the first warning raised as an error: {e}")
+        # A sweep: one warning per kind with how many more differ in numbers (two rows, 85 and 90 degC: the hot
+        # warning's maximum differs); the command line prints one line per kind too.
+        with pywarnings.catch_warnings(record=True) as caught:
+            pywarnings.simplefilter("always")
+            sh = thermorph.sweep(str(case), vary=["environment.temperature=85 degC,90 degC"], set=hot[1:])
+        raised = [str(w.message) for w in caught if issubclass(w.category, thermorph.ThermorphWarning)]
+        hot_raised = [w for w in raised if "tissue above 45 degC" in w]
+        check(len(hot_raised) == 1 and "(and 1 more of this kind whose numbers differ" in hot_raised[0]
+              and hot_raised[0].startswith(sh["warnings"][0][[i for i, w in enumerate(sh["warnings"][0])
+                                                               if "tissue above" in w][0]]),
+              f"sweep: one hot-tissue warning for two rows: {raised}")
+
         # A case given as a dict is named "<case dict>" with the key path (its lines would be those of a TOML text
         # the user never sees); a TOML string "<case text>" with its own line and column.
         water = dict(spec, environment=dict(spec["environment"], medium="water", air_temperature="-5 degC"))
