@@ -93,6 +93,13 @@ void describe(const Body& body) {
                body.environment().tuckedFraction(t.guest), body.environment().maxTuckedFraction(t.guest), t.conductance);
   for (const Body::Tucking& t : body.tucking()) {
     const std::string& host = body.segments()[t.host].name;
+    if (c.segments[t.guest].surface.tuckedInCoat) {
+      fmt::print("  {} lies inside {}'s coat (tucked_placement = \"in_coat\"): {}'s exposed area and coat rings stay "
+                 "whole, the path crosses its whole coat; covered at most {:.3g} % with its own contact and tucking and "
+                 "its guests on its coat\n",
+                 body.segments()[t.guest].name, host, host, 100.0 * t.largestHostShare);
+      continue;
+    }
     fmt::print("  {}'s exposed lateral area (convection, radiation, evaporation, sun) and its coat's rings lose the "
                "tucked patch, spread over its lateral cells by area: at the largest tucked fraction {:.4g} m2 per copy "
                "of {} ({:.3g} % of its lateral area {:.4g} m2); covered at most {:.3g} % with its own contact and "

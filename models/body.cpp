@@ -294,8 +294,9 @@ void Body::addTucking() {
   // a sector of the host's (r_j), so G_ij = f_t a_i w_j / (r_i + r_j). The host's exposed lateral area and its coat's
   // rings lose the patch in the same proportion w_j (EnvironmentModel::coverHost, Body::setInterval): per copy of
   // the host f_t A_g n_g / n_h, a share f_h of its lateral area A_h (the faces' exposed areas, children's
-  // footprints off). Assumptions: the patch is spread over the host's whole lateral surface; coats are not
-  // compressed; no heat capacity in the path (as the contact column).
+  // footprints off), unless the guest lies inside the host's coat (tucked_placement = "in_coat": the host keeps its
+  // outer surface, the path still crosses its whole coat). Assumptions: the patch is spread over the host's whole
+  // lateral surface; coats are not compressed; no heat capacity in the path (as the contact column).
   const Index segments = case_.segments.size();
   for (Index g = 0; g < segments; ++g) {
     if (environment_->maxTuckedFraction(g) <= 0.0) continue;
@@ -313,7 +314,9 @@ void Body::addTucking() {
     double guestArea = 0.0;
     for (const TuckSide& i : guest) guestArea += i.area;
     Tucking summary{g, h, 0.0, environment_->maxTuckedFraction(g) * guestArea * wg / wh, hostArea};
-    environment_->coverHost(g, h, guestArea * wg / (wh * hostArea));
+    // (A guest inside the host's coat, tucked_placement = "in_coat", leaves the host's outer surface whole.)
+    if (case_.segments[g].surface.tuckedInCoat) summary.coveredArea = 0.0;
+    else environment_->coverHost(g, h, guestArea * wg / (wh * hostArea));
     for (const TuckSide& i : guest)
       for (const TuckSide& j : host) {
         TuckLink l{network_.conductances.size(), g, h, weight * i.area * j.area / hostArea, i.rDry, i.rWet, j.rDry, j.rWet};

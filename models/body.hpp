@@ -129,7 +129,7 @@ class Body {
   //! fraction of 1, dry coats, per copy of the guest [W/K] (the network's conductances are this times the
   //! interval's tucked fraction; `thermorph check` prints it).
   //! The host's exposed lateral area (and its coat's rings) lose the patch, spread over its lateral cells in
-  //! proportion to their areas: coveredArea is the largest tucked fraction of the run times the guest's lateral
+  //! proportion to their areas (not for a guest placed "in_coat": coveredArea 0): coveredArea is the largest tucked fraction of the run times the guest's lateral
   //! area (children's footprints off) times n_guest / n_host, per copy of the host [m2]; hostArea is the host's
   //! lateral area (children's footprints off) per copy [m2]; largestHostShare the largest share of the host's
   //! lateral surface covered in any interval, its own contact and tucking and all its guests together [1].

@@ -783,7 +783,8 @@ void validateTree(const CaseReader& reader, const toml::array& segArray, const C
 //! another segment of the body, no chain of hosts comes back to the guest (a host tucked into its guest), and in
 //! every interval of the timeline a segment's contact and tucked shares sum to at most 1 (a coated segment: below
 //! 1, part of its coat stays exposed: its rings carry the rest), and a host's contact and tucked shares plus its
-//! guests' tucked area (as a share of its lateral area, exposedLateralAreas) likewise.
+//! guests' tucked area (as a share of its lateral area, exposedLateralAreas; guests placed "in_coat" take none, and
+//! need a coated host) likewise.
 void checkTucking(const CaseReader& reader, const toml::array& segArray, const Case& c) {
   std::map<std::string, std::size_t> index;
   for (std::size_t i = 0; i < c.segments.size(); ++i) index[c.segments[i].name] = i;
@@ -807,6 +808,10 @@ void checkTucking(const CaseReader& reader, const toml::array& segArray, const C
       surface.fail("tucked_into", fmt::format("{} cannot be tucked into itself: name another segment that covers it",
                                               s.name));
     host[i] = it->second;
+    if (s.surface.tuckedInCoat && !c.segments[it->second].coat)
+      surface.fail("tucked_placement", fmt::format("\"in_coat\" puts {} inside {}'s coat, but {} has no coat: use "
+                                                   "\"on_coat\" (the default)", s.name, s.surface.tuckedInto,
+                                                   s.surface.tuckedInto));
   }
   // A chain of hosts that comes back to its start: each would lie inside the other.
   for (std::size_t i = 0; i < c.segments.size(); ++i) {
@@ -851,7 +856,7 @@ void checkTucking(const CaseReader& reader, const toml::array& segArray, const C
       std::size_t named = c.segments.size();
       std::vector<std::string> guests;
       for (std::size_t g = 0; g < c.segments.size(); ++g) {
-        if (host[g] != h || !(tucked[g] > 0.0)) continue;
+        if (host[g] != h || !(tucked[g] > 0.0) || c.segments[g].surface.tuckedInCoat) continue;
         const double a = tucked[g] * area[g] * copies[g] / copies[h];
         covered += a;
         guests.push_back(fmt::format("{} ({}{:g} x {:.4g} cm2)", c.segments[g].name,

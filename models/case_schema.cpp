@@ -232,6 +232,12 @@ constexpr std::array params = {
           "area of all the host's guests (f_t A n per copy of the host) with the host's own contact and tucking "
           "at most the host's lateral area (a coated host: below it), children's footprints off, in every interval. "
           "Holds for the whole run unless [[events]] change it (events[].surface.NAME.tucked_fraction)."},
+    Param{"segments[].surface.tucked_placement", K::Choice, "", "on_coat", 0, 0, false, "on_coat|in_coat",
+          "Where the tucked share lies on its host (surface.tucked_into): \"on_coat\", on the host's outer surface, "
+          "which loses the patch (its exposed lateral area and its coat's rings); \"in_coat\", inside the host's "
+          "coat (feet buried in plumage), whose outer surface stays whole: the host keeps its exposed area and rings "
+          "and the path still crosses the host's whole coat (a host with a coat only). The two bracket the host's "
+          "loss."},
     Param{"segments[].surface.wetted_fraction", K::Number, "", "0", 0, 1, false, "",
           "Share of the exposed surface that is wet and evaporates (1: a wet surface); zero in water."},
     Param{"segments[].surface.immersion", K::Choice, "", "body", 0, 0, false, "body|always|never",

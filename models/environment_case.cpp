@@ -226,6 +226,7 @@ SurfaceSpec readSurface(const TableView& segment, Shape shape) {
   // fractions against the timeline's contact, once every segment and event is read (checkTucking, models/case.cpp).
   s.tuckedInto = surface.optionalText("tucked_into").value_or("");
   s.tuckedFraction = surface.number("tucked_fraction");
+  s.tuckedInCoat = surface.choice("tucked_placement") == "in_coat";
   if (s.tuckedFraction > 0.0 && s.tuckedInto.empty())
     surface.fail("tucked_fraction", fmt::format("{:g} of the surface is tucked, but into what? Name the covering "
                                                 "segment: surface.tucked_into = \"NAME\"", s.tuckedFraction));
@@ -643,6 +644,7 @@ toml::table surfaceToml(const SurfaceSpec& s, Shape shape) {
   if (!s.tuckedInto.empty()) {
     surface.insert("tucked_into", s.tuckedInto);
     surface.insert("tucked_fraction", s.tuckedFraction);
+    surface.insert("tucked_placement", s.tuckedInCoat ? "in_coat" : "on_coat");
   }
   surface.insert("wetted_fraction", s.wettedFraction);
   surface.insert("immersion", s.immersion == Immersion::Always  ? "always"

@@ -38,6 +38,9 @@ struct SurfaceSpec {
   //! foot tucked into the plumage of the trunk, a head under a wing); that share exchanges with the host only.
   std::string tuckedInto;
   double tuckedFraction = 0.0;                  //!< share of the lateral surface pressed against the host [1]
+  //! surface.tucked_placement: "on_coat" (false, the default): the guest lies on the host's outer surface, which
+  //! loses the patch; "in_coat" (true): inside the host's coat, whose outer surface stays whole.
+  bool tuckedInCoat = false;
   double wettedFraction = 0.0;                  //!< share of the exposed surface that is wet [1]
   Immersion immersion = Immersion::Body;
   ConvectionCorrelation correlation = ConvectionCorrelation::Standard;

@@ -237,9 +237,14 @@ void InertKeys::surfaces() {
         std::none_of(c.events.begin(), c.events.end(), [&](const EventSpec& e) {
           return std::any_of(e.tuck.begin(), e.tuck.end(),
                              [&](const TuckTarget& t) { return t.segment == s.name && t.tuckedFraction > 0.0; });
-        }))
-      add(p + "tucked_into", fmt::format("segment {} is never tucked (surface.tucked_fraction = 0 and no [[events]] "
-                                         "entry sets a tucked_fraction above 0)", s.name));
+        })) {
+      const std::string why = fmt::format("segment {} is never tucked (surface.tucked_fraction = 0 and no [[events]] "
+                                          "entry sets a tucked_fraction above 0)", s.name);
+      add(p + "tucked_into", why);
+      add(p + "tucked_placement", why);
+    }
+    if (s.surface.tuckedInto.empty())
+      add(p + "tucked_placement", fmt::format("segment {} is tucked into nothing (no surface.tucked_into)", s.name));
     if (s.surface.convection.value_or(c.environment.convection).fixed) {
       const std::string why = fmt::format("segment {} has a fixed convection coefficient (no correlation is used)", s.name);
       add(p + "correlation", why);

@@ -103,8 +103,9 @@ convection = "10 W/(m2 K)"
 // radial sector of the coat shell of solid-angle share f_t r_g^2 / r_o^2: R_shell r_o^2 / (f_t r_g^2).
 struct Pair {
   double rg = 0.02, ri = 0.04, ro = 0.05, kCoat = 0.05, h = 10.0, rhoC = 1e5, ft = 1.0;
+  bool inCoat = false;  // tucked_placement = "in_coat": the host's outer surface stays whole
   double shell() const { return (1.0 / ri - 1.0 / ro) / (4.0 * pi * kCoat); }
-  double exposedShare() const { return 1.0 - ft * rg * rg / (ro * ro); }
+  double exposedShare() const { return inCoat ? 1.0 : 1.0 - ft * rg * rg / (ro * ro); }
   double H() const { return exposedShare() / (shell() + 1.0 / (h * 4.0 * pi * ro * ro)); }
   double G() const { return ft / (shell() * ro * ro / (rg * rg)); }
   double Cg() const { return rhoC * 4.0 / 3.0 * pi * rg * rg * rg; }
@@ -234,6 +235,53 @@ TEST_CASE("Tucking: a half-tucked lumped guest and its host follow the parallel 
   CHECK(std::abs(area[0] / (Ao - 0.5 * Agp) - 1.0) < 1e-12);
   CHECK(std::abs(area[1] / (0.5 * Agp) - 1.0) < 1e-12);
   CHECK(std::abs((area[0] + area[1]) / (Ao + Agp - 2.0 * 0.5 * Agp) - 1.0) < 1e-12);
+}
+
+TEST_CASE("Tucking inside the host's coat (tucked_placement = in_coat) keeps the host's surface whole",
+          "[tucking][validation]") {
+  // The wholly tucked heated guest inside the host's coat: the host keeps its whole outer surface to the air
+  // (H = 1 / (R_shell + 1 / (h A_o)), series; Incropera et al. 2007 eq. 3.36), the path the same sector of its coat.
+  Pair p;
+  p.inCoat = true;
+  Body body(loadCaseFromString(lumpedPair("warm"), "pair.toml", {"segments.head.surface.tucked_placement=in_coat"}));
+  const double P = 5968.31 * 4.0 / 3.0 * pi * p.rg * p.rg * p.rg, Ta = 283.15;
+  const std::vector<double> T = testing::steadyTemperatures(body);
+  const double Th = T[body.segments()[0].node(0, 0)], Tg = T[body.segments()[1].node(0, 0)];
+  const double exactH = Ta + P / p.H(), exactG = exactH + P / p.G();
+  const Network& n = body.network();
+  const Index convection = testing::channelIndex(n, "convection");
+  double area = 0.0;
+  std::vector<double> heat(n.channels.size()), slope(n.channels.size());
+  for (Index f : body.segments()[0].lateralFace) {
+    body.environment().faceHeat(f, Ta + 1.0, 0.0, heat, slope);
+    area += -heat[convection] / p.h;
+  }
+  const double whole = 4.0 * pi * p.ro * p.ro - pi * 1e-24;
+  std::printf("[tucking] guest in the host's coat, steady: guest rise %.6f K (series %.6f, %.1e), host %.6f K (%.6f, "
+              "%.1e); host's exposed area %.8g m2 (whole %.8g)\n",
+              Tg - Ta, exactG - Ta, std::abs((Tg - Ta) / (exactG - Ta) - 1.0), Th - Ta, exactH - Ta,
+              std::abs((Th - Ta) / (exactH - Ta) - 1.0), area, whole);
+  CHECK(std::abs((Tg - Ta) / (exactG - Ta) - 1.0) < 2e-4);
+  CHECK(std::abs((Th - Ta) / (exactH - Ta) - 1.0) < 2e-4);
+  CHECK(std::abs(area / whole - 1.0) < 1e-12);
+  REQUIRE(body.tucking().size() == 1);
+  CHECK(body.tucking()[0].coveredArea == 0.0);
+  // A bare host has no coat to lie in (refused at the key), and the key without tucking warns as without effect.
+  std::string bare = lumpedPair();
+  bare.replace(bare.find("coat = { material = \"down\", thickness = \"1 cm\", cells = 1 }"),
+               std::string("coat = { material = \"down\", thickness = \"1 cm\", cells = 1 }").size(), "");
+  bare.replace(bare.find("tucked_fraction = 1 }"), std::string("tucked_fraction = 1 }").size(),
+               "tucked_fraction = 1, tucked_placement = \"in_coat\" }");
+  CHECK_THAT(testing::caseErrorMessage(bare), Catch::Contains("segments.head.surface.tucked_placement") &&
+                                                  Catch::Contains("body has no coat"));
+  std::string loose = lumpedPair();
+  loose.replace(loose.find("tucked_into = \"body\", tucked_fraction = 1 }"),
+                std::string("tucked_into = \"body\", tucked_fraction = 1 }").size(), "tucked_placement = \"in_coat\" }");
+  const Body untucked(loadCaseFromString(loose, "loose.toml"));
+  CHECK(std::any_of(untucked.warnings().begin(), untucked.warnings().end(), [](const std::string& w) {
+    return w.find("segments.head.surface.tucked_placement") != std::string::npos &&
+           w.find("tucked into nothing") != std::string::npos;
+  }));
 }
 
 TEST_CASE("Tucking: the host loses the tucked area in every interval (convection, sun, coat rings)",
