@@ -861,6 +861,23 @@ def check_default_map_times(tmp: Path):
     inside = t[(t > 3600.0) & (t < 7200.0)].max()
     check(times == [t[0], inside, t[-1]] and "cold air" in note,
           f"default map times with the labelled span 1 h to 2 h: {times}, note {note!r}")
+    # A labelled span that reaches the last output (a trial roost's "sun reaches the roost" from 0.5 h to the end
+    # gave maps at 3.967 h and 4 h, the same picture twice): first, middle and last, as the docstring says.
+    import shutil
+    import h5py
+    to_end = tmp / "default_times_to_end.h5"
+    shutil.copy(labelled, to_end)
+    with h5py.File(to_end, "r+") as f:
+        labels = [x.decode() if isinstance(x, bytes) else str(x) for x in f["events/label"][()]]
+        ends = f["events/end"]
+        values = ends[()]
+        values[labels.index("cold air")] = f["time"][-1]
+        ends[...] = values
+    with Results(to_end) as res:
+        t = np.asarray(res.time, float)
+        times, note = figures.default_map_times(res)
+    check(times == [t[0], 0.5 * (t[0] + t[-1]), t[-1]] and note == "",
+          f"default map times with a labelled span to the end: {times}, note {note!r}")
 
 
 def check_cli_times():

@@ -405,7 +405,7 @@ def default_map_times(res: Results) -> tuple[list[float], str]:
     start, end, label = labelled[0]
     end = float(t[-1]) if np.isinf(end) else end
     inside = np.nonzero((t > start) & (t < end))[0]
-    if len(inside) == 0 or inside[-1] >= len(t) - 1:
+    if len(inside) == 0 or end >= float(t[-1]):   # a span to the end would repeat the last output's map
         return plain, ""
     pick = float(t[inside[-1]])
     scale = time_scale(res.duration)
