@@ -9,8 +9,8 @@ Each NAME=EXE is a thermorph executable (e.g. before=/tmp/old/thermorph after=bu
 one column per executable, so a before/after comparison is measured in the same session under the same load.
 Not part of ctest: it measures, it does not pass or fail. Run through peer_table.sh (see DEVELOPERS.md).
 
-Measured (whole processes: wall time by time.perf_counter, CPU and peak RSS from os.wait4's rusage, which is
-what /usr/bin/time -v reports):
+Measured (whole processes: wall time by time.perf_counter, CPU and peak RSS from os.wait4's rusage; the memory rows'
+peak RSS by /usr/bin/time, the command's own, not floored by this script's as wait4's is: measure()):
   - the peer problem at 500, 5 000 and 20 000 radial cells (cylinder, Pennes perfusion, Q10 metabolism,
     convection, 1 h, output every minute, rtol = atol = 1e-6): whole process and solver only (thermorph's
     "Solver: ... s wall", SciPy's solve_ivp wall), best of N by wall time;
@@ -87,8 +87,16 @@ class Result:
         self.wall, self.cpu, self.rss, self.out = wall, cpu, rss_kb * 1024.0, out
 
 
-def measure(cmd, cwd):
-    """Run cmd; wall [s], CPU user + system [s], peak RSS [B], stdout."""
+def measure(cmd, cwd, own_rss=False):
+    """Run cmd; wall [s], CPU user + system [s], peak RSS [B], stdout.
+
+    The peak RSS that wait4 reports for a child of this script starts from this Python process's own: the kernel keeps
+    the largest resident set of the process's memory before exec (Linux exec_mmap, setmax_mm_hiwater_rss), and a child
+    forked or vforked from Python holds Python's pages until then (about 12-13 MB here, more than a 10^4-node run's).
+    With own_rss the command is started by /usr/bin/time (a small process) and its %M, the command's own peak, is taken.
+    """
+    if own_rss:
+        cmd = ["/usr/bin/time", "-f", "thermorph-bench-maxrss %M", *cmd]
     start = time.perf_counter()
     with tempfile.TemporaryFile() as out, tempfile.TemporaryFile() as err:
         proc = subprocess.Popen(cmd, cwd=cwd, stdout=out, stderr=err)
@@ -98,9 +106,13 @@ def measure(cmd, cwd):
         out.seek(0)
         err.seek(0)
         text = out.read().decode()
+        errors = err.read().decode()
         if proc.returncode != 0:
-            sys.exit(f"failed ({proc.returncode}): {' '.join(cmd)}\n{text}\n{err.read().decode()}")
-    return Result(wall, usage.ru_utime + usage.ru_stime, usage.ru_maxrss, text)
+            sys.exit(f"failed ({proc.returncode}): {' '.join(cmd)}\n{text}\n{errors}")
+    rss_kb = usage.ru_maxrss
+    if own_rss:
+        rss_kb = int(number(r"thermorph-bench-maxrss ([0-9]+)", errors))
+    return Result(wall, usage.ru_utime + usage.ru_stime, rss_kb, text)
 
 
 def best(cmd, cwd, repeat):
@@ -213,7 +225,7 @@ def main():
             case.write_text(radial_case(cells_n))
             cells = {}
             for name, exe in exes:
-                r = measure([exe, "run", str(case), "-o", str(work / "mem.h5"), "-q"], work)
+                r = measure([exe, "run", str(case), "-o", str(work / "mem.h5"), "-q"], work, own_rss=True)
                 nodes = int(number(r"; ([0-9]+) nodes", r.out))
                 cells[name] = f"{r.rss / 2**20:.1f} MB = {r.rss / nodes:.0f} B/node ({fmt_s(r.wall)})"
                 last = r.rss / nodes
@@ -226,7 +238,7 @@ def main():
                                             *map(str, shape)], check=True, capture_output=True, text=True).stdout)
             cells = {}
             for name, exe in exes:
-                r = measure([exe, "run", str(case), "-o", str(work / "mem.h5"), "-q"], work)
+                r = measure([exe, "run", str(case), "-o", str(work / "mem.h5"), "-q"], work, own_rss=True)
                 nodes = int(number(r"; ([0-9]+) nodes", r.out))
                 cells[name] = f"{r.rss / 2**20:.1f} MB = {r.rss / nodes:.0f} B/node ({fmt_s(r.wall)})"
             rows.append((f"peak RSS of `run`, large body {'x'.join(map(str, shape))}, {nodes} nodes", "", cells, "", ""))
