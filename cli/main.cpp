@@ -245,7 +245,6 @@ int main(int argc, char** argv) {
     options.linearSolver = dense ? LinearSolverKind::Dense : LinearSolverKind::Klu;
     options.stop = &stopRequested();
     options.coarseSteadyStart = !coldStart;
-    options.releaseStartupPages = true;
     RunSummary summary = run->parsed() ? runTransient(body, options) : runSteady(body, options);
     printBudget(body, summary, stdout);
     for (const std::string& w : body.environment().warnings()) fmt::print(stderr, "warning: {}\n", w);

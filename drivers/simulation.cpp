@@ -1,5 +1,4 @@
 #include "drivers/simulation.hpp"
-#include "drivers/resident_code.hpp"
 
 #include <cmath>
 #include <optional>
@@ -332,10 +331,6 @@ RunSummary runTransient(const Body& body, const RunOptions& options) {
   std::optional<Integrator> integrator(std::in_place, system, y, 0.0, std::move(io));
   std::vector<double>().swap(y);  // the integrator holds the state
   recorder.record(0.0, integrator->state(), initialStored, summary);
-  // The set-up's code and constants are not needed again (drivers/resident_code.hpp): at 10^5 nodes 2.8 MB of the
-  // peak RSS (radial case of tests/bench/peer_table.sh). Runs of fewer nodes keep them (their code is most of their
-  // memory, and what they use again would only be read in again).
-  if (options.releaseStartupPages && nodes >= kReleasePagesNodes) releaseReadOnlyPages();
 
   ProgressReporter progress(c.run.duration, options.quiet, options.progressAfter);
   // Discontinuities of the timeline: the integrator stops exactly at each and restarts (never steps across).

@@ -52,12 +52,7 @@ struct RunOptions {
   //! Keep the steady state found in RunSummary::steadyState (refine's next level; off: a large run's steady start
   //! is not held through its integration).
   bool keepSteadyState = false;
-  //! After the set-up and the first output of a run of kReleasePagesNodes nodes or more, give back the resident pages
-  //! of the code and constants (releaseReadOnlyPages, drivers/resident_code.hpp): `thermorph run` (one large run per
-  //! process; a sweep's or a fit's runs use the set-up's code again).
-  bool releaseStartupPages = false;
 };
-inline constexpr std::size_t kReleasePagesNodes = 5000;
 
 struct RunSummary {
   bool complete = true;

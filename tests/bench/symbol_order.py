@@ -11,9 +11,7 @@ fault of a file-backed mapping (fault-around), so code spread over the whole exe
     /usr/bin/python3 tests/bench/symbol_order.py build/thermorph > cmake/thermorph.order
 
 Functions executed (valgrind --tool=callgrind, mangled names) by: a `run` of the radial 10^4 case of peer_table.py
-(first: the memory benchmark's case, so its code is one contiguous run; and within it first the functions executed
-after the set-up, where `run` gives back the code's resident pages (drivers/resident_code.hpp), so that those the
-integration faults in again are few), then `run` of the four examples with few
+(first: the memory benchmark's case, so its code is one contiguous run), then `run` of the four examples with few
 steps (limb cooling, quadruped, wading bird, large bill) and `check` of every example of cases/. Each function once,
 in that order; within one command by name. (Sweeps and the other commands run the same model code; their own
 functions come after, unlisted, in the linker's order.)
@@ -30,10 +28,14 @@ sys.path.insert(0, str(HERE))
 from peer_table import radial_case  # noqa: E402
 
 
-def names_in(path, exe_path):
-    """Mangled names of the functions of the executable `exe_path` in callgrind's profile `path`."""
+def executed(exe, args, cwd):
+    """Mangled names of the functions of `exe` that `exe args` executes."""
+    out = Path(cwd) / "callgrind.out"
+    subprocess.run(["valgrind", "--tool=callgrind", "--demangle=no", f"--callgrind-out-file={out}", exe, *args],
+                   cwd=cwd, check=True, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     objects, functions, names, current = {}, {}, set(), None
-    for line in Path(path).read_text(errors="replace").splitlines():
+    exe_path = str(Path(exe).resolve())
+    for line in out.read_text(errors="replace").splitlines():
         m = re.match(r"^(c?ob|c?fn)=\((\d+)\)(?: (.*))?$", line)
         if not m:
             continue
@@ -45,35 +47,8 @@ def names_in(path, exe_path):
             current = objects[key]
         elif kind == "fn" and current == exe_path:
             names.add(re.sub(r"'\d+$", "", functions[key]))
+    out.unlink()
     return sorted(n for n in names if not n.startswith("0x") and n != "(below main)")
-
-
-# The set-up's end in a `run` (drivers/resident_code.hpp): the code pages are given back there, and the functions
-# executed after it fault theirs in again.
-RELEASE = "_ZN9thermorph20releaseReadOnlyPagesEv"
-
-
-def executed(exe, args, cwd, split=False):
-    """Mangled names of the functions of `exe` that `exe args` executes; with `split`, (those executed after
-    releaseReadOnlyPages, the others)."""
-    out = Path(cwd) / "callgrind.out"
-    extra = [f"--dump-after={RELEASE}"] if split else []
-    subprocess.run(["valgrind", "--tool=callgrind", "--demangle=no", f"--callgrind-out-file={out}", *extra, exe, *args],
-                   cwd=cwd, check=True, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    exe_path = str(Path(exe).resolve())
-    parts = sorted(Path(cwd).glob("callgrind.out*"))
-    if not split:
-        names = names_in(out, exe_path)
-        out.unlink()
-        return names
-    # callgrind.out.1: up to the release; callgrind.out (or .2): after it.
-    before = names_in(Path(f"{out}.1"), exe_path)
-    after_path = Path(f"{out}.2") if Path(f"{out}.2").exists() else out
-    after = names_in(after_path, exe_path)
-    for p in parts + [out]:
-        if p.exists():
-            p.unlink()
-    return after, [n for n in before if n not in set(after)]
 
 
 def main():
@@ -91,15 +66,7 @@ def main():
             commands.append(["run", str(ROOT / "cases" / f"{name}.toml"), "-o", f"{name}.h5", "-q"])
         for case in sorted((ROOT / "cases").glob("*.toml")):
             commands.append(["check", str(case)])
-        # The radial run's integration first (its code one contiguous run after the set-up's pages are given
-        # back), then its set-up.
-        after, before = executed(exe, commands[0], work, split=True)
-        for name in after + before:
-            if name not in seen:
-                seen.add(name)
-                order.append(name)
-        print(f"run radial (after the set-up: {len(after)} functions): {len(order)} functions", file=sys.stderr)
-        for args in commands[1:]:
+        for args in commands:
             for name in executed(exe, args, work):
                 if name not in seen:
                     seen.add(name)
