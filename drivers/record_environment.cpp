@@ -57,6 +57,15 @@ EnvironmentRecorder::EnvironmentRecorder(ResultsFile& f, const Body& body) : bod
                    "fluid around the segment: the medium (changed by events) unless surface.immersion is always "
                    "(water) or never (air); the value of the interval that follows an output at a step");
   }
+  // Segments whose wetted fraction an event changes only (a file of a case without such events is unchanged).
+  for (Index g = 0; g < body.segments().size(); ++g) {
+    if (!body.environment().wetChanges(g)) continue;
+    const std::string path = "/segments/" + body.segments()[g].name + "/wetted_fraction";
+    wetted_.emplace_back(g, f.createSeries(path, {}, "1", "share of the exposed surface that is wet"));
+    f.setAttribute(path, "definition",
+                   "surface.wetted_fraction, stepped or ramped by [[events]] surface entries; after a step at an "
+                   "output, the value that follows it");
+  }
   // Tucked segments only (a file of a case without tucking is unchanged).
   for (const Body::Tucking& t : body.tucking()) {
     const std::string path = "/segments/" + body.segments()[t.guest].name + "/tucked_fraction";
@@ -81,6 +90,10 @@ void EnvironmentRecorder::write(ResultsFile& f, double t, std::span<const double
     const double wet = body_.environment().immersed(g, t) ? 1.0 : 0.0;
     f.append(contact_[g], {&contact, 1});
     f.append(inWater_[g], {&wet, 1});
+  }
+  for (auto [g, series] : wetted_) {
+    const double wetted = body_.environment().wettedFraction(g, t);
+    f.append(series, {&wetted, 1});
   }
   for (auto [g, series] : tucked_) {
     const double tucked = body_.environment().tuckedFraction(g);

@@ -239,7 +239,9 @@ constexpr std::array params = {
           "and the path still crosses the host's whole coat (a host with a coat only). The two bracket the host's "
           "loss."},
     Param{"segments[].surface.wetted_fraction", K::Number, "", "0", 0, 1, false, "",
-          "Share of the exposed surface that is wet and evaporates (1: a wet surface); zero in water."},
+          "Share of the exposed surface that is wet and evaporates (1: a wet surface); zero in water. On a coated "
+          "segment, the coat's outer surface. Holds for the whole run unless [[events]] change it "
+          "(events[].surface.NAME.wetted_fraction, stepped or ramped)."},
     Param{"segments[].surface.immersion", K::Choice, "", "body", 0, 0, false, "body|always|never",
           "\"body\": in the [environment] medium; \"always\": in water (water_temperature when the medium is "
           "air); \"never\": in air (air_temperature when the medium is water)."},
@@ -343,7 +345,7 @@ constexpr std::array params = {
     Param{"events[].surface", K::NamedTables, "", "", 0, 0, false, "",
           "Substrate contact and tucking per segment name, or `all` (contact only), from this event on (a step: not in "
           "an event with a ramp): `surface = { feet = { contact_fraction = 0 } }` (a bird that takes off, an animal "
-          "that lies down)."},
+          "that lies down); and the wetted fraction (stepped, or ramped over the event's `ramp`)."},
     Param{"events[].surface.*.contact_fraction", K::Number, "", "", 0, 1, false, "",
           "As segments[].surface.contact_fraction (a coated segment below 1), which holds until the first event "
           "that changes it. Results store each segment's value at every output (/segments/NAME/contact_fraction)."},
@@ -352,6 +354,12 @@ constexpr std::array params = {
           "has one; not `all`), which holds until the first event that changes it: `surface = { feet = { "
           "tucked_fraction = 0.8 } }` (a bird drawing its feet into its plumage). Results store each tucked "
           "segment's value at every output (/segments/NAME/tucked_fraction)."},
+    Param{"events[].surface.*.wetted_fraction", K::Number, "", "", 0, 1, false, "",
+          "As segments[].surface.wetted_fraction, for a named segment or `all` (a named segment's value wins within "
+          "one event): a step, or with the event's `ramp` a linear change from the value at `at` to this one at `at` + "
+          "`ramp` (a coat drying after the water, a licked or wetted patch drying): `surface = { all = { "
+          "wetted_fraction = 0 } }` with `ramp = \"40 min\"`. Changes of one segment's value may not overlap. Results "
+          "store the value at every output of each segment that an event wets (/segments/NAME/wetted_fraction)."},
     Param{"events[].metabolism", K::Table, "", "", 0, 0, false, "", "Metabolic multipliers."},
     Param{"events[].metabolism.activity", K::Number, "", "", 0, 50, false, "", "Activity multiplier (as [body] activity)."},
     Param{"events[].metabolism.hypometabolism", K::Number, "", "", 0, 1, false, "",

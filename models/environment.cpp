@@ -98,6 +98,11 @@ EnvironmentModel::EnvironmentModel(const Case& c, Network& network) : case_(c) {
           tuckEvents_[g] = 1;
         }
   maxCovered_ = maxContact_;
+  wetEvents_.assign(case_.segments.size(), 0);
+  for (const EventSpec& e : case_.events)
+    for (const WetTarget& w : e.wet)
+      for (Index g = 0; g < case_.segments.size(); ++g)
+        if (targetsSegment(w.segment, case_.segments[g].name)) wetEvents_[g] = 1;
 
   for (const EventSpec& e : case_.events)
     for (double t : {e.at, e.at + e.ramp})
@@ -135,6 +140,9 @@ void EnvironmentModel::setInterval(std::size_t interval) {
   tucked_.resize(case_.segments.size());
   for (Index g = 0; g < case_.segments.size(); ++g) tucked_[g] = case_.segments[g].surface.tuckedFraction;
   hostCovered_.assign(case_.segments.size(), 0.0);
+  wetOffset_.resize(case_.segments.size());
+  wetSlope_.assign(case_.segments.size(), 0.0);
+  for (Index g = 0; g < case_.segments.size(); ++g) wetOffset_[g] = case_.segments[g].surface.wettedFraction;
   for (std::size_t v = 0; v < kEnvironmentVariables; ++v) {
     offset_[v] = env.value(static_cast<V>(v));
     slope_[v] = 0.0;
@@ -153,17 +161,23 @@ void EnvironmentModel::setInterval(std::size_t interval) {
     for (const TuckTarget& t : e.tuck)  // steps of named segments
       for (Index g = 0; g < case_.segments.size(); ++g)
         if (t.segment == case_.segments[g].name) tucked_[g] = t.tuckedFraction;
+    // Linear from the value at `at` to the target at `at + ramp` (as the environment's values below).
+    auto track = [&](double target, double& offset, double& slope) {
+      if (complete) {
+        offset = target;
+        slope = 0.0;
+      } else {
+        const double start = offset + slope * e.at;
+        slope = (target - start) / e.ramp;
+        offset = start - slope * e.at;
+      }
+    };
+    for (const WetTarget& w : e.wet)  // "all" before named segments: the reader's order
+      for (Index g = 0; g < case_.segments.size(); ++g)
+        if (targetsSegment(w.segment, case_.segments[g].name)) track(w.wettedFraction, wetOffset_[g], wetSlope_[g]);
     for (const EnvironmentValue& target : e.environment) {
       const std::size_t v = index(target.variable);
-      if (complete) {
-        offset_[v] = target.value;
-        slope_[v] = 0.0;
-      } else {
-        // Linear from the value at `at` to the target at `at + ramp`.
-        const double start = offset_[v] + slope_[v] * e.at;
-        slope_[v] = (target.value - start) / e.ramp;
-        offset_[v] = start - slope_[v] * e.at;
-      }
+      track(target.value, offset_[v], slope_[v]);
     }
   }
   for (const HostCover& c : hostCovers_) hostCovered_[c.host] += tucked_[c.guest] * c.ratio;
@@ -333,7 +347,7 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
 
     // Cutaneous evaporation by the heat-mass transfer analogy with air properties at the film temperature;
     // the slope includes h(T_s) and the film properties' dependence on T_s (through T_film = (T_s + T_a)/2).
-    if (spec.wettedFraction > 0.0) {
+    if (const double wetted = wettedFraction(f.segment, time); wetted > 0.0) {
       const double film = 0.5 * (Ts + fl.temperature);
       const AnalogyGroup group = analogyGroup(Dual{film, 1.0});
       EvaporationInput in;
@@ -341,7 +355,7 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
       in.surfaceTemperature = Ts;
       in.airTemperature = fl.temperature;
       in.relativeHumidity = value(V::RelativeHumidity, time);
-      in.wettedFraction = spec.wettedFraction;
+      in.wettedFraction = wetted;
       in.airDensity = kStandardPressure / (kGasConstantDryAir * film);
       in.airSpecificHeat = group.specificHeat;
       in.lewisNumber = group.lewisNumber;

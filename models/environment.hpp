@@ -59,7 +59,8 @@ class EnvironmentModel : public SurfaceModel {
   //!   convection  h A_e (T_f - T_s), h from correlations at the film temperature or fixed;
   //!   radiation   eps sigma A_e [F_sky (T_sky^4 - T_s^4) + (1 - F_sky)(T_r^4 - T_s^4)] (air only);
   //!   solar       alpha S exposure A on lateral faces (air only; end faces are parallel to the beam);
-  //!   evaporation -w h_m [rho_v,sat(T_s) - RH rho_v,sat(T_a)] L_v A_e (air only; Chilton-Colburn analogy);
+  //!   evaporation -w h_m [rho_v,sat(T_s) - RH rho_v,sat(T_a)] L_v A_e (air only; Chilton-Colburn analogy; w the
+  //!               wetted fraction at time t, wettedFraction);
   //!   substrate   h_sub f_c A (T_sub - T_s);
   //! with A_e = (1 - f_c - f_t - f_h) A the exposed area, f_c the contact fraction of the current interval
   //! (contactFraction; FaceContact::Shared), f_t the tucked fraction (tuckedFraction) and f_h the share its tucked
@@ -111,6 +112,13 @@ class EnvironmentModel : public SurfaceModel {
   double maxTuckedFraction(Index segment) const { return maxTucked_[segment]; }
   //! Some [[events]] entry sets the segment's tucking.
   bool tuckChanges(Index segment) const { return tuckEvents_[segment] != 0; }
+  //! Share of a segment's exposed surface that is wet at time t in the current interval: its surface.wetted_fraction
+  //! until the first [[events]] entry that changes it, then linear in time over an event's ramp [1].
+  double wettedFraction(Index segment, double time) const {
+    return wetSlope_[segment] == 0.0 ? wetOffset_[segment] : wetOffset_[segment] + wetSlope_[segment] * time;
+  }
+  //! Some [[events]] entry sets the segment's wetted fraction (it may change during the run).
+  bool wetChanges(Index segment) const { return wetEvents_[segment] != 0; }
   //! The largest share of a segment's surface covered, contact plus tucking, over the run's intervals (a coated
   //! segment's coat rings are built for the rest) [1]; the largest contact fraction when nothing is tucked.
   double maxCoveredFraction(Index segment) const { return maxCovered_[segment]; }
@@ -179,6 +187,9 @@ class EnvironmentModel : public SurfaceModel {
     double ratio = 0.0;  //!< A_guest n_guest / (n_host A_host) [1]
   };
   std::vector<HostCover> hostCovers_;
+  //! Per segment: the wetted fraction of the current interval, offset + slope t [1, 1/s]; set by some event.
+  std::vector<double> wetOffset_, wetSlope_;
+  std::vector<char> wetEvents_;
   mutable std::vector<std::string> warnings_;
   //! Last correlation result per face and the fluid it was for: the face Newton solve ends with a call a few nK
   //! from its last iterate, and the next right-hand side starts from the same face temperature.

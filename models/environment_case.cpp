@@ -401,8 +401,18 @@ void readPhysiologyEvent(const TableView& view, EventSpec& e) {
 
 namespace {
 
+//! The wetted fraction of one segment (or "all") in an [[events]] surface table, `{ wetted_fraction = W }`: a step, or
+//! a linear ramp over the event's `ramp` (it enters only the surface's evaporation, which EnvironmentModel evaluates
+//! at each time, so it may change within an interval as the environment's values do). True when the table gives it.
+bool readWetEvent(const TableView& t, const std::string& name, EventSpec& e) {
+  if (!t.has("wetted_fraction")) return false;
+  e.wet.push_back({name, t.number("wetted_fraction")});
+  return true;
+}
+
 //! Substrate contact steps of one [[events]] entry: `surface = { SEGMENT = { contact_fraction = F } }`, SEGMENT a
 //! segment's name or "all"; F in the static key's range (a coated segment below 1); never in an event with a ramp.
+//! The same tables' `wetted_fraction` (readWetEvent) and `tucked_fraction`.
 void readContactEvent(const TableView& view, const std::vector<SegmentSpec>& segments, EventSpec& e) {
   const toml::node* node = view.node("surface");
   if (!node) return;
@@ -416,6 +426,7 @@ void readContactEvent(const TableView& view, const std::vector<SegmentSpec>& seg
       view.child("surface").fail(name, fmt::format("no segment named \"{}\" (segments: {}, or all)", name,
                                                    fmt::join(names, ", ")));
     }
+    if (readWetEvent(t, name, e) && !t.has("tucked_fraction") && !t.has("contact_fraction")) continue;
     if (t.has("tucked_fraction")) {
       // Tucking of a named segment into its own surface.tucked_into (checked in checkTucking, models/case.cpp).
       if (name == kAllSegments)
@@ -450,6 +461,7 @@ void readContactEvent(const TableView& view, const std::vector<SegmentSpec>& seg
   }
   // "all" first: a named segment's value wins within the event (as vasomotor targets).
   std::stable_partition(e.contact.begin(), e.contact.end(), [](const ContactTarget& c) { return c.segment == kAllSegments; });
+  std::stable_partition(e.wet.begin(), e.wet.end(), [](const WetTarget& w) { return w.segment == kAllSegments; });
 }
 
 //! The values an event changes, as key paths (before followers are added).
@@ -464,6 +476,7 @@ std::vector<std::string> changedKeys(const EventSpec& e) {
   }
   for (const ContactTarget& c : e.contact) keys.push_back("surface." + c.segment + ".contact_fraction");
   for (const TuckTarget& c : e.tuck) keys.push_back("surface." + c.segment + ".tucked_fraction");
+  for (const WetTarget& w : e.wet) keys.push_back("surface." + w.segment + ".wetted_fraction");
   if (e.activity) keys.emplace_back("metabolism.activity");
   if (e.hypometabolism) keys.emplace_back("metabolism.hypometabolism");
   if (e.bradycardia) keys.emplace_back("circulation.bradycardia");
@@ -491,13 +504,14 @@ void refuseSimultaneousChanges(const CaseReader& reader, const std::vector<Event
     time = read[index].at;
     for (const std::string& key : changedKeys(read[index])) {
       auto [it, inserted] = atThisTime.emplace(key, index);
-      // Contact of "all" and of a named segment in two events at one time: the same value twice (within one event
-      // the named segment wins, as for vasomotor targets).
+      // Contact (or wetting) of "all" and of a named segment in two events at one time: the same value twice (within
+      // one event the named segment wins, as for vasomotor targets).
+      auto field = [](const std::string& k) { return std::string_view(k).substr(k.rfind('.') + 1); };
       if (inserted && key.rfind("surface.", 0) == 0)
         for (auto other = atThisTime.lower_bound("surface."); other != atThisTime.end() &&
                                                              other->first.rfind("surface.", 0) == 0; ++other)
-          if (other->second != index && (key == "surface.all.contact_fraction" ||
-                                         other->first == "surface.all.contact_fraction")) {
+          if (other->second != index && field(key) == field(other->first) &&
+              (key.rfind("surface.all.", 0) == 0 || other->first.rfind("surface.all.", 0) == 0)) {
             it = other;
             inserted = false;
           }
@@ -602,6 +616,24 @@ std::vector<EventSpec> readEvents(const CaseReader& reader, const TableView& roo
       previous = index;
     }
   }
+  // The same for a segment's wetted fraction (events[].surface.NAME.wetted_fraction, "all" included).
+  for (const SegmentSpec& segment : segments) {
+    std::optional<std::size_t> previous;
+    for (std::size_t index : order) {
+      const EventSpec& e = read[index];
+      if (std::none_of(e.wet.begin(), e.wet.end(), [&](const WetTarget& w) { return targetsSegment(w.segment, segment.name); }))
+        continue;
+      if (previous && e.at < read[*previous].at + read[*previous].ramp) {
+        const EventSource& s = sources[index];
+        reader.fail(s.node, s.path,
+                    fmt::format("{} changes the wetted_fraction of {} at {:g} s, inside the ramp of {} ({:g} s to {:g} "
+                                "s); changes of one value may not overlap",
+                                s.label, segment.name, e.at, sources[*previous].label, read[*previous].at,
+                                read[*previous].at + read[*previous].ramp));
+      }
+      previous = index;
+    }
+  }
   std::vector<EventSpec> events;
   for (std::size_t index : order) {
     read[index].where = reader.location(sources[index].node);
@@ -677,6 +709,10 @@ toml::array eventsToml(const std::vector<EventSpec>& events) {
     for (const TuckTarget& c : e.tuck) {
       if (toml::table* t = surface[c.segment].as_table()) t->insert("tucked_fraction", c.tuckedFraction);
       else surface.insert(c.segment, toml::table{{"tucked_fraction", c.tuckedFraction}});
+    }
+    for (const WetTarget& w : e.wet) {
+      if (toml::table* t = surface[w.segment].as_table()) t->insert("wetted_fraction", w.wettedFraction);
+      else surface.insert(w.segment, toml::table{{"wetted_fraction", w.wettedFraction}});
     }
     if (!surface.empty()) event.insert("surface", surface);
     toml::table metabolism;

@@ -134,6 +134,13 @@ struct TuckTarget {
   double tuckedFraction = 0.0;  //!< share of the lateral surface pressed against the host from the event on [1]
 };
 
+//! Wetted fraction of one segment set by one event ("all": every segment): a step, or a linear ramp over the event's
+//! `ramp` from the value at its start (drying, a coat that dries after the water).
+struct WetTarget {
+  std::string segment;
+  double wettedFraction = 0.0;  //!< share of the exposed surface that is wet, from the event on (its ramp's end) [1]
+};
+
 //! Controller change of one event.
 struct ControlTarget {
   std::string controller;  //!< vasomotor, shivering, panting or the NAME of a [control.local.NAME]
@@ -158,6 +165,9 @@ struct EventSpec {
   std::vector<ContactTarget> contact;
   //! `surface = { SEGMENT = { tucked_fraction = F } }`: steps of tucking (segments with surface.tucked_into).
   std::vector<TuckTarget> tuck;
+  //! `surface = { SEGMENT = { wetted_fraction = W } }`: the wet share of the exposed surface, stepped or ramped (a
+  //! named segment's value wins over "all" within one event).
+  std::vector<WetTarget> wet;
   std::optional<double> activity, hypometabolism, bradycardia, panting;
   std::vector<ControlTarget> control;
   std::string label;   //!< for figures

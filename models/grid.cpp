@@ -983,9 +983,10 @@ void resolveGrid(Case& c) {
       c.warnings.push_back(fmt::format(
           "segment {}: its coat leaves the water at t = {:g} s and is treated as dry from then on (dry conductivity, "
           "no evaporation of the water it holds): thermorph does not model the drying of a wet coat, so the heat "
-          "lost after leaving the water is underestimated; surface.wetted_fraction adds evaporation from the "
-          "coat's surface over the whole run",
-          s.name, e.coatLeavesWater));
+          "lost after leaving the water is underestimated; surface.wetted_fraction = 1 (no evaporation in water) "
+          "with an [[events]] entry at that time, ramp = the drying time and surface = {{ {} = {{ wetted_fraction = "
+          "0 }} }}, adds evaporation from the coat's surface while it dries",
+          s.name, e.coatLeavesWater, s.name));
       c.timelineWarnings.push_back(c.warnings.back());  // an event after t = 0: not for a steady solve
     }
     // Radial cells per layer, the coat last.

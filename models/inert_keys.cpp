@@ -82,6 +82,10 @@ void InertKeys::environment() {
         }
         if (s.surface.solarAbsorptivity > 0.0 && s.surface.solarExposure > 0.0) used[index(V::SolarIrradiance)] = true;
         if (s.surface.wettedFraction > 0.0) used[index(V::RelativeHumidity)] = true;
+        // ... or wet from an [[events]] entry (surface = { SEGMENT = { wetted_fraction = W } }).
+        for (const EventSpec& e : c.events)
+          for (const WetTarget& w : e.wet)
+            if (targetsSegment(w.segment, s.name) && w.wettedFraction > 0.0) used[index(V::RelativeHumidity)] = true;
       }
       if (s.surface.contactFraction > 0.0) used[index(V::SubstrateTemperature)] = true;
       // ... or contact from an [[events]] step (surface = { SEGMENT = { contact_fraction = F } }).
@@ -157,7 +161,8 @@ void InertKeys::environment() {
         break;
       case V::RelativeHumidity:
         why = allInWater ? inWater
-                         : std::string("no segment in air is wet (surface.wetted_fraction = 0 on every one) and there "
+                         : std::string("no segment in air is wet (surface.wetted_fraction = 0 on every one, and no "
+                                       "[[events]] entry wets one) and there "
                                        "is no breathing of air (") +
                                (c.body.respiratorySegment.empty() ? "no [body] respiratory_segment)"
                                                                   : "the respiratory segment is in water throughout)");

@@ -684,7 +684,8 @@ class Results:
         "air" and "water": segments in that fluid (convection; "air" also breathing); "wind" and "current": in air
         or water, convection from correlations (a fixed coefficient does not depend on speed); "radiant": in air,
         emissivity above 0, sky_view below 1; "sky": in air, emissivity and sky_view above 0; "sun": in air,
-        solar_absorptivity and solar_exposure above 0; "humidity": in air with a wetted_fraction, and the breathing
+        solar_absorptivity and solar_exposure above 0; "humidity": in air with a wetted_fraction above 0 at some time
+        (the segment's key or an event's surface entry), and the breathing
         segment (marked "breathing") in air; "substrate": contact_fraction above 0 at some time (the segment's key or an
         event's surface entry). Missing surface keys take the
         case defaults (sky_view 0.5, solar_absorptivity 0.7, wetted_fraction 0, contact_fraction 0, convection
@@ -713,7 +714,8 @@ class Results:
                     "radiant": in_air and radiates and number("sky_view", 0.5) < 1.0,
                     "sky": in_air and radiates and number("sky_view", 0.5) > 0.0,
                     "sun": in_air and number("solar_absorptivity", 0.7) > 0.0 and number("solar_exposure", 1.0) > 0.0,
-                    "humidity": in_air and number("wetted_fraction", 0.0) > 0.0,
+                    "humidity": in_air and self.largest_contact(seg, number("wetted_fraction", 0.0),
+                                                                "wetted_fraction") > 0.0,
                     "substrate": self.largest_contact(seg, number("contact_fraction", 0.0)) > 0.0}.get(kind, True)
             if acts:
                 targets.append(label)
@@ -721,17 +723,18 @@ class Results:
                 targets.append(f"{label} (breathing)")
         return targets
 
-    def largest_contact(self, name: str, static: float) -> float:
+    def largest_contact(self, name: str, static: float, key: str = "contact_fraction") -> float:
         """Largest substrate contact fraction of segment `name` over the run: its `surface.contact_fraction`
         (`static`) and every `[[events]]` entry's `surface = { NAME or all = { contact_fraction = F } }` (main
-        README, "Timelines"), so that a segment in contact only after an event counts as touching the substrate."""
+        README, "Timelines"), so that a segment in contact only after an event counts as touching the substrate.
+        With `key` = "wetted_fraction", the largest wetted fraction the same way (events step or ramp it)."""
         largest = static
         events = self.case.get("events", [])
         for event in events if isinstance(events, list) else []:
             surface = event.get("surface", {}) if isinstance(event, dict) else {}
             for key in (name, "all"):
                 entry = surface.get(key, {}) if isinstance(surface, dict) else {}
-                value = entry.get("contact_fraction") if isinstance(entry, dict) else None
+                value = entry.get(key) if isinstance(entry, dict) else None
                 if isinstance(value, (int, float)) and not isinstance(value, bool):
                     largest = max(largest, float(value))
         return largest
