@@ -524,6 +524,30 @@ def check_contact_events(tmp: Path, exe: str):
         check(targets == expected, f"quadruped {variant}: substrate acts on {targets}, expected {expected}")
 
 
+def check_wetting_events(tmp: Path, exe: str):
+    """A segment wet only after an event (`[[events]] surface = { NAME = { wetted_fraction = W } }`, README
+    "Timelines") is a target of the humidity forcing, and its /segments/NAME/wetted_fraction series holds the step;
+    without the event only the breathing segment is. Common practice, no source."""
+    from thermorph_post.results import Results
+    lick = 'events=[{ at = "10 min", surface = { trunk = { wetted_fraction = 0.2 } } }]'
+    for variant, extra in (("licked at 10 min", ["--set", lick]), ("dry", [])):
+        h5 = tmp / f"lick{len(extra)}.h5"
+        proc = subprocess.run([exe, "run", str(ROOT / "cases" / "quadruped.toml"), *extra, "-q",
+                               "--set", 'run.duration="20 min"', "-o", str(h5)], capture_output=True, text=True)
+        check(proc.returncode == 0, f"quadruped {variant}: exit {proc.returncode}\n{proc.stderr[-800:]}")
+        if proc.returncode != 0:
+            continue
+        with Results(h5) as res:
+            targets = [t for t in res.forcing_targets("humidity", "air") if "breathing" not in t]
+        check(targets == (["trunk"] if extra else []), f"quadruped {variant}: humidity acts on {targets}")
+        with h5py.File(h5, "r") as f:
+            stored = "/segments/trunk/wetted_fraction" in f
+            if extra and stored:
+                t, w = f["/time"][:], f["/segments/trunk/wetted_fraction"][:]
+                check(np.array_equal(w, np.where(t < 600.0, 0.0, 0.2)), f"quadruped {variant}: wetted_fraction {w}")
+        check(stored == bool(extra), f"quadruped {variant}: /segments/trunk/wetted_fraction stored: {stored}")
+
+
 #: The contact study's timeline (the events of check_contact_series), independent of thermorph: the legs stand on
 #: the substrate (contact 0.1) and leave it for a dive from 10.5 to 20 min (between outputs: 1-min outputs), stand
 #: again in air, and wade (still standing) in water at the substrate's temperature from 30 to 40 min.
@@ -975,6 +999,7 @@ def main() -> int:
             check_steps(tmp, EXE)
             check_immersion(tmp, EXE)
             check_contact_events(tmp, EXE)
+            check_wetting_events(tmp, EXE)
             check_equal_profiles(tmp, EXE)
             check_contact_series(tmp, EXE)
             check_bout_titles(tmp, EXE)

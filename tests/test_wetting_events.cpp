@@ -8,7 +8,8 @@
 //     properties at the film temperature from Incropera et al. 2007 Table A.4 (300 and 350 K rows, linear between),
 //     D_AB of water vapour in air 0.26e-4 m2/s at 298 K (Table A.8) times (T/298)^(3/2) (the table's note: D_AB ~
 //     p^-1 T^(3/2); the code uses the same source), L from Table A.6 (h_fg 2438 kJ/kg at 300 K, 2390 at 320 K, linear), rho_v,s = e_s M_w / (R T)
-//     with e_s from Alduchov & Eskridge (1996) (the code uses Buck 1981). The late transient's time constant against
+//     with e_s from Alduchov & Eskridge (1996) (the code uses Buck 1981); the table rows and the AERK constants are
+//     from memory (docs/references.md). The late transient's time constant against
 //     the linearised balance, rho c V / (h A + dE/dT), and the whole transient against this equation integrated by RK4;
 //  2. a ramp (w from 0.3 to 0 over 20 min): the recorded wetted fraction is linear in time, the evaporation at each
 //     output equals w(t) times the reference flux at the recorded temperature; energy balance;

@@ -732,8 +732,8 @@ class Results:
         events = self.case.get("events", [])
         for event in events if isinstance(events, list) else []:
             surface = event.get("surface", {}) if isinstance(event, dict) else {}
-            for key in (name, "all"):
-                entry = surface.get(key, {}) if isinstance(surface, dict) else {}
+            for target in (name, "all"):
+                entry = surface.get(target, {}) if isinstance(surface, dict) else {}
                 value = entry.get(key) if isinstance(entry, dict) else None
                 if isinstance(value, (int, float)) and not isinstance(value, bool):
                     largest = max(largest, float(value))
