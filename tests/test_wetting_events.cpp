@@ -225,7 +225,7 @@ TEST_CASE("Wetting events: Jacobian against central differences in every interva
   }
 }
 
-TEST_CASE("Wetting events: input errors name file, line and key path; the resolved case keeps them",
+TEST_CASE("Wetting events: input errors name file, line and key path - the resolved case keeps them",
           "[environment][wetting][errors]") {
   const std::string base = testing::isothermalFurredCylinder(R"(surface = { ends = "insulated" })",
                                                              "substrate_conductance = \"50 W/(m2 K)\"\n");
