@@ -36,6 +36,10 @@ ControlGridWatch::ControlGridWatch(const Body& body, const NetworkSystem& system
       steady_(steady || (system.groupCount() == 0 && !body.network().groups.empty())) {
   const Network& net = body.network();
   const Index nodes = system.nodeCount();
+  // L counts the heat lost through the channels to the surroundings, not blood, conduction or tucking.
+  external_.assign(net.channels.size(), 1);
+  for (Index ch = 0; ch < net.channels.size(); ++ch)
+    external_[ch] = !(net.channels[ch] == "blood" || net.channels[ch] == "conduction" || net.channels[ch] == "tucking");
   // Controllers that drive terms directly, by modulator.
   std::vector<Index> owner(net.modulators.size(), none);
   for (Index k = 0; k < net.modulators.size(); ++k) owner[k] = net.modulators[k].control;
@@ -150,9 +154,22 @@ double ControlGridWatch::effectiveGain(const Watched& w) const {
 void ControlGridWatch::observe(double t, std::span<const double> y, std::span<const double> flows) {
   if (controllers_.empty()) return;
   const Network& net = body_.network();
-  const Index nodes = system_.nodeCount(), channels = net.channels.size(), groups = net.groups.size();
-  if (flows.size() < groups * channels) return;
+  if (flows.size() < net.groups.size() * net.channels.size()) return;
   if (std::all_of(flows.begin(), flows.end(), [](double f) { return f == 0.0; })) return;  // flows not computed
+  observeFlows(t, y, flows);
+}
+
+void ControlGridWatch::observe(double t, std::span<const double> y) {
+  if (controllers_.empty()) return;
+  const Network& net = body_.network();
+  flows_.resize(net.groups.size() * net.channels.size());
+  system_.channelFlows(t, y.first(system_.nodeCount() + system_.controlCount()), external_, flows_);
+  observeFlows(t, y, flows_);
+}
+
+void ControlGridWatch::observeFlows(double t, std::span<const double> y, std::span<const double> flows) {
+  const Network& net = body_.network();
+  const Index nodes = system_.nodeCount(), channels = net.channels.size(), groups = net.groups.size();
   start(t);
   const double dt = t - last_;
   // The latest step of the timeline (an event without a ramp) in (last output, t]: the losses jump there, so the
@@ -165,8 +182,6 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
   const double previous = last_;
   last_ = t;
   system_.modulatorValues(t, y, modulators_);
-  std::vector<char> internal(channels, 0);
-  for (Index ch = 0; ch < channels; ++ch) internal[ch] = net.channels[ch] == "blood" || net.channels[ch] == "conduction" || net.channels[ch] == "tucking";
   // Heat each group (one copy) has lost to its surroundings since the start, for the storage term (trapezoidal
   // over the outputs; the first observation after the start: rectangle).
   exchanged_.resize(groups, 0.0);
@@ -174,7 +189,7 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
   for (Index g = 0; g < groups; ++g) {
     double loss = 0.0;
     for (Index ch = 0; ch < channels; ++ch)
-      if (!internal[ch]) loss += std::max(0.0, -flows[g * channels + ch]);
+      if (external_[ch]) loss += std::max(0.0, -flows[g * channels + ch]);
     if (dt > 0.0) exchanged_[g] += (lastLoss_[g] < 0.0 ? loss : 0.5 * (lastLoss_[g] + loss)) * dt;
     lastLoss_[g] = loss;
   }
@@ -195,7 +210,7 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
       for (Index g = 0; g < groups; ++g) {
         if (!w.scope[g]) continue;
         for (Index ch = 0; ch < channels; ++ch)
-          if (!internal[ch]) n.balanced += net.groupWeights[g] * std::max(0.0, -flows[g * channels + ch]);
+          if (external_[ch]) n.balanced += net.groupWeights[g] * std::max(0.0, -flows[g * channels + ch]);
       }
     }
     // int eps L dt / C: the heat-flow error the scope can have stored by now (trapezoidal over the outputs).

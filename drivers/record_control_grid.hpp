@@ -61,6 +61,10 @@ class ControlGridWatch {
   void start(double t);
   //! State y (nodes, controls, ...) at time t [s]; `flows` [groups x channels] [W] as RunSummary::flows.
   void observe(double t, std::span<const double> y, std::span<const double> flows);
+  //! The same at an output without flows (a transient sweep's): the watch computes the ones it reads, the channels
+  //! to the surroundings (NetworkSystem::channelFlows: the values groupFlows gives them, bit for bit, without the
+  //! internal channels' terms and the storage).
+  void observe(double t, std::span<const double> y);
 
   //! The largest estimate of one controller over the observed outputs.
   struct Estimate {
@@ -111,12 +115,16 @@ class ControlGridWatch {
     double startShift = -1.0;      //!< quasi-static shift when the output was first unclamped [K] (-1: not yet)
   };
   double effectiveGain(const Watched& w) const;
+  //! observe() once the flows are there.
+  void observeFlows(double t, std::span<const double> y, std::span<const double> flows);
 
   const Body& body_;
   const NetworkSystem& system_;
   std::vector<Watched> controllers_;
   std::vector<Estimate> worst_;
   std::vector<double> modulators_;
+  std::vector<char> external_;   //!< per channel: to the surroundings (not blood, conduction or tucking), 1
+  std::vector<double> flows_;    //!< observe(t, y)'s flows [groups x channels] [W]
   std::vector<SegmentGridEstimate> estimates_;  //!< the case's (Case::gridEstimates) or a new estimate
   std::vector<double> exchanged_; //!< per group: heat lost to the surroundings since the start, one copy [J]
   std::vector<double> lastLoss_;  //!< per group: that loss at the last observation [W] (-1: none yet)

@@ -104,11 +104,6 @@ Recorder::Recorder(const Body& body, const NetworkSystem& system, const RunOptio
       budget_(body.network(), system),
       tissueLimits_(body),
       controlGrid_(body, system) {
-  // The controller-output check needs each output's heat flows: a transient sweep, which needs none for its
-  // metrics, computes them anyway when a controller is watched, so that a sweep row warns as `run` of the same case
-  // does (it checked the last output only before 2026-12-05 and missed the trial forager's shivering, 4.7 % at 13 min
-  // of 120; 8 % more instructions per run of the bench studies with a watched controller, measured with tests/bench/sweep_instructions.sh).
-  if (controlGrid_.active()) flows_ = true;
   if (options.output.empty()) return;
   file_ = std::make_unique<ResultsFile>(options.output);
   ResultsFile& f = *file_;
@@ -128,7 +123,12 @@ void Recorder::record(double t, std::span<const double> y, double initialStored,
   tissueLimits_.observe(t, y);
   if (controlGrid_.active()) {
     controlGrid_.start(t);
-    controlGrid_.observe(t, y, summary.flows);
+    // The check needs each output's heat lost to the surroundings, so that a sweep row warns as `run` of the same
+    // case does (a sweep checked its last output only before 2026-12-05 and missed the trial forager's shivering,
+    // 4.7 % at 13 min of 120). Without flows at outputs (a transient sweep, whose metrics need none) the watch
+    // computes the channels it reads only (DEVELOPERS.md "Controller outputs' grid error").
+    if (flows_) controlGrid_.observe(t, y, summary.flows);
+    else controlGrid_.observe(t, y);
   }
   if (observer_) observer_(t, y.first(system_.nodeCount()), summary);
   if (!file_) return;

@@ -52,7 +52,7 @@ class Recorder {
   const Body& body_;
   const NetworkSystem& system_;
   OutputObserver observer_;
-  bool flows_ = true;  //!< RunOptions::flowsAtOutputs, a results file, or a watched controller
+  bool flows_ = true;  //!< RunOptions::flowsAtOutputs, or a results file
   std::unique_ptr<ResultsFile> file_;
   std::size_t time_ = 0;
   BudgetRecorder budget_;

@@ -572,47 +572,76 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
 
 void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span<double> flows,
                                std::span<double> storage, std::span<double> faceTemperatures) const {
+  flowsByGroup(time, T, {}, flows, storage, faceTemperatures);
+}
+
+void NetworkSystem::channelFlows(double time, std::span<const double> T, std::span<const char> channels,
+                                 std::span<double> flows) const {
+  if (channels.size() < channels_) throw std::invalid_argument("channelFlows needs one mark per channel");
+  flowsByGroup(time, T, channels, flows, {}, {});
+}
+
+void NetworkSystem::flowsByGroup(double time, std::span<const double> T, std::span<const char> channels,
+                                 std::span<double> flows, std::span<double> storage,
+                                 std::span<double> faceTemperatures) const {
+  // Every channel (groupFlows), or the marked ones (channelFlows): a flow of a marked channel gets the same terms
+  // in the same order either way. Without storage the nodes' rates are not formed.
+  const bool all = channels.empty(), rates = !storage.empty();
+  auto wanted = [&](Index channel) { return all || channels[channel] != 0; };
   time = at(time);
   std::fill(flows.begin(), flows.end(), 0.0);
   std::fill(storage.begin(), storage.end(), 0.0);
   modulatorValues(time, T, modulators_);
   auto group = [&](Index node) { return network_.nodes[node].group; };
   auto at = [&](Index node, Index channel) -> double& { return flows[group(node) * channels_ + channel]; };
-  std::vector<double> rate(nodes_, 0.0);
-  for (std::size_t k = 0; k < network_.conductances.size(); ++k) {
+  std::vector<double> rate(rates ? nodes_ : 0, 0.0);
+  auto conductance = [&](Index k) {
     const Conductance& c = network_.conductances[k];
     const auto [fa, fb] = conductanceFactors(c);
     double q = c.conductance * (T[c.b] - T[c.a]);
-    rate[c.a] += fa * q;
-    rate[c.b] -= fb * q;
+    if (rates) {
+      rate[c.a] += fa * q;
+      rate[c.b] -= fb * q;
+    }
     if (group(c.a) != group(c.b)) {
       const Index channel = conductanceChannel(k);
+      if (!wanted(channel)) return;
       at(c.a, channel) += fa * q;
       at(c.b, channel) -= fb * q;
     }
+  };
+  if (rates || wanted(0)) {
+    for (std::size_t k = 0; k < network_.conductances.size(); ++k) conductance(k);
+  } else {  // only the conductances booked to another channel than 0 can carry a marked one (ascending, as above)
+    for (const ConductanceChannel& c : network_.conductanceChannels)
+      if (wanted(c.channel)) conductance(c.conductance);
   }
-  for (const Junction& j : network_.junctions)  // within the parent's group: its storage, no channel
-    for (const JunctionRing& ring : j.rings) ringFlows(ring, T, [&](Index node, double q) { rate[node] += q; });
+  if (rates)
+    for (const Junction& j : network_.junctions)  // within the parent's group: its storage, no channel
+      for (const JunctionRing& ring : j.rings) ringFlows(ring, T, [&](Index node, double q) { rate[node] += q; });
   for (const Advection& a : network_.advections) {
+    if (!rates && !wanted(a.channel)) continue;
     const double F = flowOf(a, modulators_);
     forEachHop(a, [&](Index from, Index to) {
       double q = F * (T[from] - T[to]);
-      rate[to] += q;
-      at(to, a.channel) += q;
+      if (rates) rate[to] += q;
+      if (wanted(a.channel)) at(to, a.channel) += q;
     });
   }
   for (const BoundaryExchange& e : network_.exchanges) {
+    if (!rates && !wanted(e.channel)) continue;
     double q = (e.conductance + partsValue(e.partsBegin, e.partsEnd, modulators_)) * (e.temperature - T[e.node]);
-    rate[e.node] += q;
-    at(e.node, e.channel) += q;
+    if (rates) rate[e.node] += q;
+    if (wanted(e.channel)) at(e.node, e.channel) += q;
   }
   for (std::size_t i = 0; i < network_.sources.size(); ++i) {
     const HeatSource& s = network_.sources[i];
+    if (!rates && !wanted(s.channel)) continue;
     double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
     const auto [q10Rate, reference] = q10Rates_[s.law];
     double q = s.power * m * std::exp(q10Rate * (T[s.node] - reference));
-    rate[s.node] += q;
-    at(s.node, s.channel) += q;
+    if (rates) rate[s.node] += q;
+    if (wanted(s.channel)) at(s.node, s.channel) += q;
   }
   // A report: the face solves leave the Newton starts and the surface model's caches as they were, so outputs
   // never change the integrator's path.
@@ -626,11 +655,12 @@ void NetworkSystem::groupFlows(double time, std::span<const double> T, std::span
     FaceSolution sol = solveFace(f, time, T[node], scratchHeat_, scratchDerivative_, false);
     if (f < faceTemperatures.size()) faceTemperatures[f] = sol.temperature;
     for (Index c = 0; c < channels_; ++c) {
-      rate[node] += scratchHeat_[c];
-      at(node, c) += scratchHeat_[c];
+      if (rates) rate[node] += scratchHeat_[c];
+      if (wanted(c)) at(node, c) += scratchHeat_[c];
     }
   }
-  for (Index i = 0; i < nodes_; ++i) storage[group(i)] += rate[i];
+  if (rates)
+    for (Index i = 0; i < nodes_; ++i) storage[group(i)] += rate[i];
 }
 
 void NetworkSystem::addJunctionProduct(std::span<const double> x, std::span<double> out) const {

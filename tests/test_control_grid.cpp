@@ -13,6 +13,7 @@
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
+#include <cstring>
 #include <filesystem>
 #include <fstream>
 #include <numbers>
@@ -292,4 +293,52 @@ TEST_CASE("A sweep row carries the controller grid warning of its run, at the ou
   std::filesystem::remove(path);
   REQUIRE(row.status == RunStatus::Ok);
   CHECK(gridWarning(row.warnings) == expected);
+}
+
+TEST_CASE("The watch's flows of the channels to the surroundings are groupFlows' bit for bit, the others zero",
+          "[control_grid][sweep]") {
+  // A transient sweep computes no flows at outputs; its controller check computes only the channels it reads
+  // (NetworkSystem::channelFlows: the same terms in the same order, without the conductances, streams, junctions
+  // and storage of the internal channels). Reference: groupFlows of the same state (common practice, no source: the
+  // same sums evaluated twice, which must not differ in any bit). The tucked bird (cases/tucked_bird.toml) has every
+  // kind of term: conductances booked to `tucking` and `conduction`, blood streams, shunts, a coat, contact faces.
+  Body body(loadCase(std::string(THERMORPH_SOURCE_DIR) + "/cases/tucked_bird.toml", {"run.duration=90 min"}));
+  RunOptions options = silentRun();
+  options.flowsAtOutputs = false;
+  const RunSummary run = runTransient(body, options);
+  REQUIRE(run.complete);
+  NetworkSystem system(body.network(), NetworkSystem::Mode::Transient);
+  const Network& net = body.network();
+  const Index groups = net.groups.size(), channels = net.channels.size();
+  std::vector<char> external(channels, 0);
+  for (Index c = 0; c < channels; ++c)
+    external[c] = !(net.channels[c] == "blood" || net.channels[c] == "conduction" || net.channels[c] == "tucking");
+  REQUIRE(std::count(external.begin(), external.end(), 0) == 3);
+  REQUIRE(std::any_of(net.conductanceChannels.begin(), net.conductanceChannels.end(),
+                      [&](const ConductanceChannel& c) { return net.channels[c.channel] == "tucking"; }));
+  // The run's last state (temperatures, controls) and the state halfway between it and the uniform start.
+  std::vector<double> last = run.finalState;
+  last.insert(last.end(), run.controls.begin(), run.controls.end());
+  std::vector<double> halfway = initialState(body, system);
+  halfway.resize(last.size());
+  for (std::size_t i = 0; i < last.size(); ++i) halfway[i] = 0.5 * (last[i] + halfway[i]);
+  long compared = 0, nonzero = 0;
+  for (const std::vector<double>* state : {&last, &halfway}) {
+    for (double t : {1800.0, 4800.0}) {  // before and after the feet are lifted and tucked (the event at 60 min)
+      body.setInterval(t < 3600.0 ? 0 : 1);
+      std::vector<double> all(groups * channels), storage(groups), faces(net.faces.size());
+      std::vector<double> some(groups * channels, -1.0);
+      system.groupFlows(t, *state, all, storage, faces);
+      system.channelFlows(t, *state, external, some);
+      for (Index g = 0; g < groups; ++g)
+        for (Index c = 0; c < channels; ++c) {
+          const double expected = external[c] ? all[g * channels + c] : 0.0;
+          CHECK(std::memcmp(&some[g * channels + c], &expected, sizeof(double)) == 0);
+          ++compared;
+          nonzero += some[g * channels + c] != 0.0 ? 1 : 0;
+        }
+    }
+  }
+  CHECK(compared == static_cast<long>(4 * groups * channels));
+  CHECK(nonzero > static_cast<long>(groups));  // convection, radiation, ... of every segment
 }
