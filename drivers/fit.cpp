@@ -29,6 +29,7 @@
 #include "models/units.hpp"
 #include "drivers/forward_sensitivity.hpp"
 #include "drivers/h5_append.hpp"
+#include "drivers/refine.hpp"
 #include "drivers/sampling.hpp"
 #include "drivers/simulation.hpp"
 
@@ -58,19 +59,27 @@ void parallelFor(std::size_t n, int jobs, const std::function<void(std::size_t)>
 
 //! The case text with every segment's cell counts (axial, per layer, coat) written out as the grid resolved at
 //! `overrides` (the base case's, then the start values) gives them; `pinned` says whether it did (the caller then
-//! appends run.grid_refinement = 1 to the fit's overrides: the counts written are the refined ones). The automatic grid depends on the parameters (the coat's conductivity sets the
+//! appends run.grid_refinement = `refinement` to the fit's overrides). A grid refined N x (run.grid_refinement, e.g.
+//! a refit on a finer grid) is written as its unrefined counts with `refinement` N (coarsenedCase; the same cells, as
+//! refinement multiplies the counts and keeps the gradings), so that the fit's runs and forward sensitivities
+//! find a steady start by Newton from the unrefined grid's (RunOptions::coarseSteadyStart; written as the refined
+//! counts with refinement 1 before, every run relaxed on the fine grid); counts that do not divide by N are
+//! written refined, with `refinement` 1. The automatic grid depends on the parameters (the coat's conductivity sets the
 //! coat's and the tissue layers' counts through the decay length): left automatic, a fit's model jumps where a
 //! count changes (the example fit crept for 50 iterations on such jumps), and its Jacobian cannot come from
 //! forward sensitivities (a different network structure at p +- h). Returns the node count of the pinned grid.
 Index pinGrid(std::string& caseText, const std::string& casePath, const std::vector<std::string>& overrides,
-              bool& pinned) {
+              bool& pinned, int& refinement) {
   pinned = false;
+  refinement = 1;
   const Case c = loadCaseFromString(caseText, casePath, overrides);
   const Index nodes = Body(c).network().nodes.size();
+  const int n = c.run.appliedRefinement;
+  const std::optional<Case> unrefined = n > 1 ? coarsenedCase(c, n) : std::nullopt;
   toml::table text, resolved;
   try {
     text = toml::parse(caseText, casePath);
-    resolved = toml::parse(resolvedCaseToml(c));
+    resolved = toml::parse(resolvedCaseToml(unrefined ? *unrefined : c));
   } catch (const toml::parse_error&) {
     return nodes;  // the loader accepted it: leave the text as it is
   }
@@ -104,7 +113,7 @@ Index pinGrid(std::string& caseText, const std::string& casePath, const std::vec
   std::ostringstream out;
   out << text;
   std::vector<std::string> pinnedOverrides = overrides;
-  pinnedOverrides.push_back("run.grid_refinement=1");
+  pinnedOverrides.push_back(fmt::format("run.grid_refinement={}", unrefined ? n : 1));
   // Keep the pinned text only if it builds the same grid.
   try {
     if (Body(loadCaseFromString(out.str(), casePath, pinnedOverrides)).network().nodes.size() != nodes) return nodes;
@@ -113,6 +122,7 @@ Index pinGrid(std::string& caseText, const std::string& casePath, const std::vec
   }
   caseText = out.str();
   pinned = true;
+  refinement = unrefined ? n : 1;
   return nodes;
 }
 
@@ -278,7 +288,7 @@ class Model {
       sens[i] = forwardSensitivities(
           pb_.caseText, pb_.casePath, pb_.overrides, sensitivityParameters(x),
           [&](const Body& body) { return std::unique_ptr<OutputProbe>(new SamplerProbe(pb_.data, body)); }, false,
-          select);
+          select, pb_.coarseSteadyStart);
     });
     runs_ += static_cast<long>(evals.size() + groups);
     std::size_t k = 0;
@@ -535,16 +545,17 @@ FitResult runFit(const FitProblem& given) {
   // The grid of every run: the one resolved at the start values, written out (pinGrid).
   FitProblem pb = given;
   bool pinned = false;
+  int refinement = 1;
   Index gridNodes = 0;
   {
     std::vector<std::string> atStart = pb.overrides;
     for (const FitParameter& fp : pb.parameters) atStart.push_back(parameterOverride(fp, fp.start));
     try {
-      if (pb.pinGrid) gridNodes = pinGrid(pb.caseText, pb.casePath, atStart, pinned);
+      if (pb.pinGrid) gridNodes = pinGrid(pb.caseText, pb.casePath, atStart, pinned, refinement);
     } catch (const std::exception&) {
       // The case fails at the start values: the first evaluation reports it.
     }
-    if (pinned) pb.overrides.push_back("run.grid_refinement=1");
+    if (pinned) pb.overrides.push_back(fmt::format("run.grid_refinement={}", refinement));
   }
   const Targets targets(pb.data);
   const std::size_t n = targets.observed.size();

@@ -61,7 +61,8 @@ FitGridCheck gridCheck(const FitProblem& given, const FitResult& r, int refineme
   const std::size_t p = given.parameters.size();
   const std::size_t n = r.n;
   // The grid of the fit's runs (cell counts pinned at the start values, r.overrides ending in
-  // run.grid_refinement = 1) refined N x; without pinning, N times the refinement the fit ran with.
+  // run.grid_refinement = 1, or M for a fit on a grid refined M x: its unrefined counts) refined N x: N times the
+  // refinement the fit ran with, pinned or not.
   FitProblem fine = given;
   fine.caseText = r.caseText;
   fine.overrides = r.overrides;

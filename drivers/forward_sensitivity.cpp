@@ -219,11 +219,24 @@ std::vector<ParameterGradient> classifyParameters(const std::string& caseText, c
   return out;
 }
 
+namespace {
+
+//! The steady state of `body` from `guess` as runTransient and runSteady find it (the same problem: the body's
+//! surroundings and physiology at t = 0): on a refined grid with `coarseStart`, Newton from the unrefined grid's
+//! steady state first (coarseSteadyGuess, RunOptions::coarseSteadyStart), else the relaxation. Counters into `r`.
+std::vector<double> startingSteadyState(const Body& body, std::span<const double> guess, bool coarseStart,
+                                        ForwardSensitivityResult& r) {
+  const std::vector<double> coarse = coarseStart ? coarseSteadyGuess(body, &r.coarseStatistics) : std::vector<double>();
+  return steadyState(body, guess, &r.steadyStatistics, coarse, &r.steadyWarm);
+}
+
+}  // namespace
+
 ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const std::string& casePath,
                                               const std::vector<std::string>& overrides,
                                               const std::vector<SensitivityParameter>& parameters,
                                               const ProbeFactory& makeProbe, bool errorControl,
-                                              const std::vector<bool>& select) {
+                                              const std::vector<bool>& select, bool coarseSteadyStart) {
   ForwardSensitivityResult result;
   const std::size_t k = parameters.size();
   result.derivatives.resize(k);
@@ -249,7 +262,7 @@ ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const
     std::vector<std::vector<double>> steadyS;
     if (steadyStart) {
       body.setInterval(0);
-      std::vector<double> ys = steadyState(body, std::span<const double>(y0).first(states));
+      std::vector<double> ys = startingSteadyState(body, std::span<const double>(y0).first(states), coarseSteadyStart, result);
       std::copy(ys.begin(), ys.end(), y0.begin());
       std::vector<ParameterNetworks> nets;
       for (std::size_t j : forward) {
@@ -408,7 +421,8 @@ ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const
 ForwardSensitivityResult steadySensitivities(const std::string& caseText, const std::string& casePath,
                                              const std::vector<std::string>& overrides,
                                              const std::vector<SensitivityParameter>& parameters,
-                                             const ProbeFactory& makeProbe, const std::vector<bool>& select) {
+                                             const ProbeFactory& makeProbe, const std::vector<bool>& select,
+                                             bool coarseSteadyStart) {
   ForwardSensitivityResult result;
   const std::size_t k = parameters.size();
   result.derivatives.resize(k);
@@ -440,7 +454,9 @@ ForwardSensitivityResult steadySensitivities(const std::string& caseText, const 
     NetworkSystem system(body.network(), NetworkSystem::Mode::Transient);
     const Index states = system.nodeCount() + system.controlCount();
     std::vector<double> y = initialState(body, system);
-    const std::vector<double> steady = steadyState(body, std::span<const double>(y).first(states), &result.statistics);
+    const std::vector<double> steady =
+        startingSteadyState(body, std::span<const double>(y).first(states), coarseSteadyStart, result);
+    result.statistics = result.steadyStatistics;
     std::copy(steady.begin(), steady.end(), y.begin());
     std::fill(y.begin() + static_cast<std::ptrdiff_t>(states), y.end(), 0.0);
     const std::vector<std::vector<double>> ds = steadyDerivatives(body, steady, networks);

@@ -76,6 +76,11 @@ struct ForwardSensitivityResult {
                                                  //!< for a parameter that needs finite differences
   std::vector<ParameterGradient> methods;
   SolverStatistics statistics;
+  //! A steady start (forwardSensitivities) or state (steadySensitivities): its counters, and, on a refined grid with
+  //! coarseSteadyStart, whether Newton from the unrefined grid's steady state found it (RunSummary::steadyWarm) and
+  //! that unrefined solve's counters (RunSummary::coarseStatistics).
+  SolverStatistics steadyStatistics, coarseStatistics;
+  bool steadyWarm = false;
 };
 
 //! One transient run of the case (text, overrides, then every parameter at its value) with CVODES forward
@@ -85,20 +90,25 @@ struct ForwardSensitivityResult {
 //! with central differences at tolerances 1e-11: about 1e-7 either way, tests/test_forward_sensitivity.cpp); on,
 //! their own truncation error is controlled too, at two to three times the steps. `select` (empty: all) limits
 //! the sensitivities to some parameters (the others get no derivative and the reason "not selected"), so that
-//! groups of parameters can run on separate threads.
+//! groups of parameters can run on separate threads. `coarseSteadyStart`: a steady start on a refined grid
+//! (run.grid_refinement = N > 1) is found as runTransient finds it (RunOptions::coarseSteadyStart): by Newton from the
+//! unrefined grid's steady state mapped onto the cells (coarseSteadyGuess), else the relaxation; false: the relaxation
+//! (`fit --cold-start`).
 ForwardSensitivityResult forwardSensitivities(const std::string& caseText, const std::string& casePath,
                                               const std::vector<std::string>& overrides,
                                               const std::vector<SensitivityParameter>& parameters,
                                               const ProbeFactory& probe, bool errorControl = false,
-                                              const std::vector<bool>& select = {});
+                                              const std::vector<bool>& select = {}, bool coarseSteadyStart = true);
 
 //! The steady state of the case (text, overrides, then every parameter at its value; KINSOL as runSteady finds
 //! it) and the exact derivatives of the probe's values there, ds/dp = -(dF/ds)^{-1} dF/dp for the parameters
 //! that enter the network as coefficients (methods: Steady), none for the others (FiniteDifference, with the
 //! reason). The probe observes the one output at t = 0, as in runSteady. Never throws for a model failure.
+//! `coarseSteadyStart` as for forwardSensitivities (runSteady's warm start on a refined grid).
 ForwardSensitivityResult steadySensitivities(const std::string& caseText, const std::string& casePath,
                                              const std::vector<std::string>& overrides,
                                              const std::vector<SensitivityParameter>& parameters,
-                                             const ProbeFactory& probe, const std::vector<bool>& select = {});
+                                             const ProbeFactory& probe, const std::vector<bool>& select = {},
+                                             bool coarseSteadyStart = true);
 
 }  // namespace thermorph
