@@ -176,6 +176,7 @@ struct Collector {
   std::vector<std::vector<double>> fields;        //!< [segment][t * nz * nr] degC
   std::vector<std::vector<double>> segmentFlows;  //!< [segment * channels + c][t], one copy
   std::vector<std::vector<double>> contact, inWater;  //!< [segment][t]: the interval's contact fraction, 1 in water
+  std::vector<std::vector<double>> wetted, tucked;    //!< [segment][t]: wetted fraction at t, the interval's tucked one
   std::vector<double> scratch;
 
   explicit Collector(const Body& b) : body(b) {
@@ -186,6 +187,8 @@ struct Collector {
     segmentFlows.resize(segments * (channels + 1));
     contact.resize(segments);
     inWater.resize(segments);
+    wetted.resize(segments);
+    tucked.resize(segments);
   }
 
   void operator()(double t, std::span<const double> y, const RunSummary& s) {
@@ -213,6 +216,8 @@ struct Collector {
       // As the results file stores them (drivers/record_environment.cpp): the current interval's values.
       contact[g].push_back(body.environment().contactFraction(g));
       inWater[g].push_back(body.environment().immersed(g, t) ? 1.0 : 0.0);
+      wetted[g].push_back(body.environment().wettedFraction(g, t));
+      tucked[g].push_back(body.environment().tuckedFraction(g));
     }
   }
 
@@ -243,6 +248,8 @@ struct Collector {
       d["count"] = m.weight;
       d["contact_fraction"] = array(contact[g], {nt});
       d["in_water"] = array(inWater[g], {nt});
+      d["wetted_fraction"] = array(wetted[g], {nt});   // every segment (the file: those events wet)
+      d["tucked_fraction"] = array(tucked[g], {nt});   // every segment (the file: tucked ones)
       py::dict f;
       for (std::size_t c = 0; c < channels; ++c) f[py::str(n.channels[c])] = array(segmentFlows[g * (channels + 1) + c], {nt});
       f["storage"] = array(segmentFlows[g * (channels + 1) + channels], {nt});
@@ -1110,7 +1117,7 @@ PYBIND11_MODULE(thermorph, m) {
       py::arg("cold_start") = false,
       "Integrate a case (TOML path, TOML text or dict) with --set-style overrides (\"KEY=VALUE\"); returns a dict "
       "of NumPy arrays: time [s], core/blood/mean_skin_temperature [degC], heat_flow and cumulative_heat by "
-      "channel [W, J], segments[NAME] (temperature [nt, nz, nr] degC, radius, axial [m], heat_flow, contact_fraction, in_water), steps "
+      "channel [W, J], segments[NAME] (temperature [nt, nz, nr] degC, radius, axial [m], heat_flow, contact_fraction, in_water, wetted_fraction, tucked_fraction), steps "
       "(the timeline's steps: time [s] and cumulative_heat by channel [J] there, whole body and segments[NAME], one copy; "
       "the results file's /steps), budget (flows at the last output, energies), warnings. `output` also writes the HDF5 results file; `base` is "
       "the folder for files a TOML string or dict names (weather files). `cold_start=True`: as `thermorph run --cold-start`, "

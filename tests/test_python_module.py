@@ -55,6 +55,9 @@ def compare(r, h5):
                 same(v, g[f"heat_flow/{c}"][()], f"{name} heat_flow {c}")
             for k in ("contact_fraction", "in_water"):
                 same(seg[k], g[k][()], f"{name} {k}")
+            for k in ("wetted_fraction", "tucked_fraction"):   # stored only where events wet or a segment tucks
+                if k in g:
+                    same(seg[k], g[k][()], f"{name} {k}")
         same(r["budget"]["energy_balance_error"], f["body/energy_balance_error"][-1], "energy balance error")
         # The timeline's steps (/steps; none in a steady state's file, and none in the module's dict then).
         steps = r["steps"]
@@ -96,6 +99,24 @@ def main():
         after = r["time"] >= 600.0
         same(limb["contact_fraction"], np.where(after, 0.3, 0.0), "forelimb contact_fraction against the event")
         same(limb["in_water"], np.where(after, 1.0, 0.0), "forelimb in_water against the event")
+        # Wetting by an event (a step to 0.4 at 20 min, then a ramp back to 0 over 5 min, as the case's events
+        # say: linear ramp, common practice, no source): the module's series, the file's and the events' own values.
+        wet = step[1:] + ['events=[{ at = "10 min", environment = { medium = "water", temperature = "5 degC", '
+                      'speed = "0 m/s" }, surface = { forelimb = { contact_fraction = 0.3 } } }, '
+                      '{ at = "20 min", environment = { medium = "air", temperature = "2 degC", speed = "0 m/s" }, '
+                      'surface = { forelimb = { wetted_fraction = 0.4 } } }, '
+                      '{ at = "20 min", ramp = "5 min", surface = { forelimb = { wetted_fraction = 0 } } }]']
+        wet_h5 = tmp / "wet.h5"
+        subprocess.run([exe, "run", str(case), *sum([["--set", x] for x in sets + wet], []), "-o", str(wet_h5), "-q"],
+                       check=True, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        rw = thermorph.run(str(case), set=sets + wet)
+        compare(rw, wet_h5)
+        tw = rw["time"]
+        expect = np.where(tw < 1200.0, 0.0, np.clip(0.4 * (1.0 - (tw - 1200.0) / 300.0), 0.0, 0.4))
+        same(rw["segments"]["forelimb"]["wetted_fraction"], expect, "forelimb wetted_fraction against the events")
+        with h5py.File(wet_h5, "r") as f:
+            check("segments/forelimb/wetted_fraction" in f, "the file stores the event-wetted series")
+        same(rw["segments"]["forelimb"]["tucked_fraction"], np.zeros_like(tw), "an untucked segment's tucked_fraction")
         # The step at 10 min is an output: the energies stored at the step are those of that output (one state).
         check(np.array_equal(r["steps"]["time"], [600.0]), f"steps: the event's time ({r['steps']['time']})")
         at = int(np.searchsorted(r["time"], 600.0))
