@@ -996,22 +996,37 @@ void checkOverriddenByTimeline(const TableView& top, Case& c, const std::vector<
   const bool weather = top.child("environment").has("weather");
   for (const std::string& o : overrides) {
     const std::string key = o.substr(0, o.find('='));
-    // A segment's static contact (segments.NAME.surface.contact_fraction) holds until an event changes it.
+    // A segment's static contact, wetted or tucked fraction (segments.NAME.surface.KEY) holds until an event
+    // changes it; a wetting event that ramps from t = 0 starts from it (as [environment] values below).
     for (const SegmentSpec& s : c.segments) {
-      if (key != "segments." + s.name + ".surface.contact_fraction") continue;
+      const std::string prefix = "segments." + s.name + ".surface.";
+      if (key.rfind(prefix, 0) != 0) continue;
+      const std::string what = key.substr(prefix.size());
+      if (what != "contact_fraction" && what != "wetted_fraction" && what != "tucked_fraction") continue;
+      auto names = [&](const auto& targets) {
+        return std::any_of(targets.begin(), targets.end(), [&](const auto& t) { return targetsSegment(t.segment, s.name); });
+      };
       for (const EventSpec& e : c.events) {
-        if (std::none_of(e.contact.begin(), e.contact.end(),
-                         [&](const ContactTarget& t) { return targetsSegment(t.segment, s.name); }))
-          continue;
-        if (e.at <= 0.0)
+        const bool changes = what == "contact_fraction" ? names(e.contact)
+                             : what == "wetted_fraction" ? names(e.wet)
+                                                         : names(e.tuck);
+        if (!changes) continue;
+        const bool rampStart = what == "wetted_fraction" && e.ramp > 0.0;
+        if (e.at <= 0.0 && !rampStart)
           throw TimelineOverrideError(fmt::format(
               "{}: {}: the value given on the command line ({}) would never take effect: an [[events]] entry sets the "
-              "contact of {} from t = 0 s. Change the value in the timeline instead (its "
-              "events.N.surface.{}.contact_fraction), or remove it there",
-              c.sourceFile, key, o.substr(o.find('=') + 1), s.name, s.name));
-        c.warnings.push_back(fmt::format("{} = {} (command line) holds until t = {:g} s, when an [[events]] entry "
-                                         "changes it (the timeline takes over from its first change)",
-                                         key, o.substr(o.find('=') + 1), e.at));
+              "{} of {} from t = 0 s. Change the value in the timeline instead (its "
+              "events.N.surface.{}.{}), or remove it there",
+              c.sourceFile, key, o.substr(o.find('=') + 1), what, s.name, s.name, what));
+        if (e.at <= 0.0)  // rampStart: a wetting ramp from t = 0 runs from this value
+          c.warnings.push_back(fmt::format("{} = {} (command line) is the start of the ramp of {} from t = 0 s to t = "
+                                           "{:g} s (the timeline takes over from there)",
+                                           key, o.substr(o.find('=') + 1),
+                                           e.source.empty() ? std::string("an [[events]] entry") : e.source, e.ramp));
+        else
+          c.warnings.push_back(fmt::format("{} = {} (command line) holds until t = {:g} s, when an [[events]] entry "
+                                           "changes it (the timeline takes over from its first change)",
+                                           key, o.substr(o.find('=') + 1), e.at));
         c.timelineWarnings.push_back(c.warnings.back());  // the value holds at t = 0: not for a steady solve
         break;
       }

@@ -274,6 +274,21 @@ temperature = "10 degC"
   CHECK_THROWS_AS(loadCaseFromString(base + "[[events]]\nat = 0\nenvironment = { temperature = \"30 degC\" }\n",
                                      "t.toml", {"environment.temperature=20 degC"}),
                   TimelineOverrideError);
+  // A segment's wetted fraction: stepped by an event at t = 0 it never acts (refused, as contact); ramped from t = 0
+  // it is the ramp's start (wetted fraction 0.5 at t = 0, 0.25 halfway to the event's 0; linear ramp).
+  const std::string wetStep = base + "[[events]]\nat = 0\nsurface = { limb = { wetted_fraction = 0 } }\n";
+  try {
+    (void)loadCaseFromString(wetStep, "t.toml", {"segments.limb.surface.wetted_fraction=0.5"});
+    FAIL("expected a TimelineOverrideError");
+  } catch (const TimelineOverrideError& e) {
+    CHECK(std::string(e.what()).find("segments.limb.surface.wetted_fraction") != std::string::npos);
+    CHECK(std::string(e.what()).find("never take effect") != std::string::npos);
+  }
+  const std::string wetRamp = base + "[[events]]\nat = 0\nramp = \"1 h\"\nsurface = { limb = { wetted_fraction = 0 } }\n";
+  Body wet(loadCaseFromString(wetRamp, "t.toml", {"segments.limb.surface.wetted_fraction=0.5"}));
+  CHECK(anyContains(wet.spec().warnings, "segments.limb.surface.wetted_fraction", "is the start of the ramp"));
+  CHECK(wet.environment().wettedFraction(0, 0.0) == Approx(0.5).epsilon(1e-12));
+  CHECK(wet.environment().wettedFraction(0, 1800.0) == Approx(0.25).epsilon(1e-12));
 }
 
 namespace {
