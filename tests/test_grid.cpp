@@ -275,7 +275,8 @@ temperature = "10 degC"
                                      "t.toml", {"environment.temperature=20 degC"}),
                   TimelineOverrideError);
   // A segment's wetted fraction: stepped by an event at t = 0 it never acts (refused, as contact); ramped from t = 0
-  // it is the ramp's start (wetted fraction 0.5 at t = 0, 0.25 halfway to the event's 0; linear ramp: common practice, no source).
+  // it is the ramp's start (wetted fraction 0.5 at t = 0, 0.25 halfway to the event's 0; linear ramp: common
+  // practice, no source).
   const std::string wetStep = base + "[[events]]\nat = 0\nsurface = { limb = { wetted_fraction = 0 } }\n";
   try {
     (void)loadCaseFromString(wetStep, "t.toml", {"segments.limb.surface.wetted_fraction=0.5"});
