@@ -29,6 +29,8 @@
   where they act (the quadruped swimming from 10 to 20 min, all in water and with its head above water); a map's
   radial profile equal to an earlier one (a steady start and the output on the first step) is dashed over it, and
   the budget's flows over time are not joined across a step (the output on it holds the flows after it).
+- Maps: the colour bar against the last map (also with the profile's legend outside), ending with the profile panel;
+  a segment of one axial cell and (with THERMORPH) a sphere get a map of the stored temperature over time and radius.
 - Default map times: first, middle, last output without labelled events; with them the last output inside the first
   labelled span replaces the middle (the contact study's dive, the sample's "cold air"), and the footer says so.
 Exits 1 on any failure.
@@ -904,6 +906,98 @@ def check_default_map_times(tmp: Path):
           f"default map times with a labelled span to the end: {times}, note {note!r}")
 
 
+def check_map_layout(tmp: Path):
+    """The maps' colour bar sits against the last map at both presets, also when the profile's legend stands outside
+    the axes: no farther from it than the maps are from each other (tick labels overhang their panels: 0.15 to 0.3
+    in) and under 0.4 in (a colour bar made with fig.colorbar(ax=maps) was pushed beyond the legend's margin: 0.81 in
+    from the maps of a single-column figure 3.35 in wide, 1.03 in at double width); the bar ends where the profile
+    panel ends.
+    And a segment of one axial cell (the sample's trunk, axial_cells = 1) gets a map over time and radius whose cells
+    are the stored temperatures at every output (read with h5py). Common practice, no source."""
+    from thermorph_post import figures, sample
+    from thermorph_post.results import Results
+    path = tmp / "map_layout.h5"
+    sample.main([str(path)])
+    with h5py.File(path, "r") as f:
+        stored = np.asarray(f["segments/trunk/temperature"][()], float)[:, 0, :]   # [nt, nr], degC
+        time, radius = np.asarray(f["time"][()], float), np.asarray(f["segments/trunk/radius"][()], float)
+    for style_name in ("single", "double"):
+        with Results(path) as res:
+            made = figures.maps_figures(res, style=style_name)
+        check(set(made) == {"left_ear", "tail", "trunk"}, f"maps ({style_name}): drawn for {sorted(made)}")
+        for name, fig in made.items():
+            fig.canvas.draw()
+            dpi = fig.dpi
+            bars = [ax for ax in fig.axes if ax.get_label() == "<colorbar>"]
+            maps = [ax for ax in fig.axes if ax.get_label().startswith("map ")]
+            profile = [ax for ax in fig.axes if ax.get_label().startswith("radial profiles")]
+            check(len(bars) == 1 and maps and len(profile) == 1 and profile[0].get_legend() is not None,
+                  f"maps_{name} ({style_name}): {len(bars)} colour bars, {len(maps)} maps, {len(profile)} profile "
+                  "panels with a legend")
+            if len(bars) != 1 or not maps or len(profile) != 1:
+                continue
+            boxes = sorted((ax.get_window_extent() for ax in maps), key=lambda b: b.x0)
+            bar, right = bars[0].get_window_extent(), boxes[-1].x1
+            gap = (bar.x0 - right) / dpi
+            between = max([(b.x0 - a.x1) / dpi for a, b in zip(boxes, boxes[1:])],
+                          default=float("inf"))   # a single map: the 0.4 in bound alone
+            check(0.0 <= gap < 0.4 and gap <= between + 0.02,
+                  f"maps_{name} ({style_name}): colour bar {gap:.3f} in from the maps (0 to 0.4 in, and no farther "
+                  f"than the maps from each other, {between:.3f} in)")
+            edge = (bar.x1 - profile[0].get_window_extent().x1) / dpi
+            check(abs(edge) < 0.02, f"maps_{name} ({style_name}): colour bar ends {edge:.3f} in from the profile's end")
+        fig = made.get("trunk")
+        if fig is None:
+            continue
+        # The trunk's map over time: a cell per output and radial cell, at the output's time, equal to the file.
+        ax = next(a for a in fig.axes if a.get_label() == "map over time")
+        cells = next(c for c in ax.collections if getattr(c, "thermorph_cells", None)).thermorph_cells
+        got = np.array([v for _, _, v in cells]).reshape(stored.shape)
+        x = np.array([x for x, _, _ in cells]).reshape(stored.shape)[:, 0] * ax.thermorph_time_scale[0]
+        y = np.array([y for _, y, _ in cells]).reshape(stored.shape)[0] / 100.0   # cm
+        check(np.array_equal(got, stored) and np.allclose(x, time, rtol=1e-14, atol=0.0)
+              and np.allclose(y, radius, rtol=1e-14, atol=0.0),
+              f"maps_trunk ({style_name}): the map over time is not the stored temperature at every output")
+
+
+def check_sphere_map(tmp: Path, exe: str):
+    """A sphere (the tucked bird's head) has no axial coordinate: its map is temperature against time and distance
+    from the centre, each cell the stored temperature (read with h5py), and the footer says why (a sphere got no
+    map before). Common practice, no source."""
+    from thermorph_post import figures
+    from thermorph_post.results import Results
+    h5 = tmp / "sphere.h5"
+    proc = subprocess.run([exe, "run", str(ROOT / "cases" / "tucked_bird.toml"), "-q", "--set",
+                           'run.duration="20 min"', "--set", 'run.output_interval="2 min"', "--set", "events=[]",
+                           "-o", str(h5)],
+                          capture_output=True, text=True)
+    check(proc.returncode == 0, f"sphere map: exit {proc.returncode}\n{proc.stderr[-800:]}")
+    if proc.returncode != 0:
+        return
+    with h5py.File(h5, "r") as f:
+        shape = f["segments/head"].attrs.get("shape")
+        stored = np.asarray(f["segments/head/temperature"][()], float)
+        units = f["segments/head/temperature"].attrs.get("units")
+    check(shape in ("sphere", b"sphere") and stored.shape[1] == 1, f"sphere map: premise: head {shape!r}, "
+                                                                   f"{stored.shape}")
+    stored_c = stored[:, 0, :] - (273.15 if units in ("K", b"K") else 0.0)
+    with Results(h5) as res:
+        fig = figures.maps_figures(res, segments=["head"]).get("head")
+    check(fig is not None, "sphere map: no map for the head (a sphere)")
+    if fig is None:
+        return
+    ax = next((a for a in fig.axes if a.get_label() == "map over time"), None)
+    check(ax is not None and ax.get_ylabel().startswith("Distance from centre"), "sphere map: no map over time")
+    if ax is None:
+        return
+    cells = next(c for c in ax.collections if getattr(c, "thermorph_cells", None)).thermorph_cells
+    got = np.array([v for _, _, v in cells]).reshape(stored_c.shape)
+    check(np.allclose(got, stored_c, rtol=0.0, atol=1e-9), "sphere map: cells differ from the stored temperature: "
+                                                           f"{np.max(np.abs(got - stored_c))} K")
+    footer = " ".join(fig.thermorph_footer.get_text().split())
+    check("head is a sphere" in footer, f"sphere map: the footer does not say why: {footer!r}")
+
+
 def check_cli_times():
     """figures.py --window and --times take times with units like report.py (1 min = 60 s, 1 h = 3600 s: SI
     Brochure 2019, Table 8), and a window also as t0:t1 (sweep's form); a bad time names the option."""
@@ -995,7 +1089,9 @@ def main() -> int:
         check_cli_times()
         full = check_figures(tmp)
         check_default_map_times(tmp)
+        check_map_layout(tmp)
         if EXE:
+            check_sphere_map(tmp, EXE)
             check_steps(tmp, EXE)
             check_immersion(tmp, EXE)
             check_contact_events(tmp, EXE)

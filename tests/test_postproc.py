@@ -160,7 +160,7 @@ def check_mean_tissue_excludes_coat(sample: Path, tmp: Path):
 
 
 # ---- figures ------------------------------------------------------------------------------
-def check_figures(sample: Path, out: Path, extra=(), expect_maps=("left_ear", "tail"),
+def check_figures(sample: Path, out: Path, extra=(), expect_maps=("left_ear", "tail", "trunk"),
                   incomplete=False, events=True, per_kg=True, formats=("pdf", "svg", "png"), forcing=True):
     proc = run("figures.py", sample, "--out", out, "--formats", ",".join(formats), *extra)
     files = listed_files(proc)
@@ -631,7 +631,7 @@ def main() -> int:
 
         check_figures(full, tmp / "fig_full")
         check_figures(full, tmp / "fig_window", extra=("--window", "3600,7200", "--times", "0,5400",
-                                                       "--segments", "tail,trunk"), expect_maps=("tail",),
+                                                       "--segments", "tail,trunk"), expect_maps=("tail", "trunk"),
                       formats=("svg",))
         check_figures(minimal, tmp / "fig_min", extra=("--units", "si"), incomplete=True, events=False,
                       per_kg=False, formats=("svg",), forcing=False)

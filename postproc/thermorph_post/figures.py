@@ -474,95 +474,167 @@ def moment_text(res: Results, seg, i: int) -> str:
     return ", ".join(parts)
 
 
+#: Width of the maps' colour bar [in]; it is a column of the maps' grid of its own, beside the last map.
+COLOUR_BAR_WIDTH_IN = 0.12
+
+
+def _map_grid(fig, n: int, style: str):
+    """The maps' panels: n map axes in a row with the colour bar as a last, narrow column of the same grid (so the
+    bar sits against the last map whatever the profile's legend needs), and the profile panel below spanning every
+    column (its legend and the bar's labels share the right margin). Returns (map axes, colour bar axes, profile
+    axes). A colour bar made with fig.colorbar(ax=maps) was placed beyond the right margin that the profile's outer
+    legend opens, 0.6 to 1 in away from the maps."""
+    share = 0.8 * fig.get_figwidth() / n   # about the width of one map [in]
+    mosaic = [[f"map{k}" for k in range(n)] + ["cbar"], ["profile"] * (n + 1)]
+    axd = fig.subplot_mosaic(mosaic, height_ratios=[1.0, 1.0], width_ratios=[1.0] * n + [COLOUR_BAR_WIDTH_IN / share])
+    axd["cbar"].set_label("<colorbar>")   # as fig.colorbar labels its own axes: no source data of its own
+    return [axd[f"map{k}"] for k in range(n)], axd["cbar"], axd["profile"]
+
+
+def _profiles_panel(ax, res: Results, seg, temp, indices, scale, rs, ru, r_outer, bounds, radial_name, tu, small,
+                    labels=None):
+    """Radial temperature profiles temp[k] (one per output indices[k]) against the cell centres, with the layer
+    boundaries dotted and the layer names along the top. A profile equal to one drawn already (a steady start and
+    the output on the first step) would hide it: the earlier line widened beneath, this one dashed on top and its
+    label says so. `labels` replaces "t = ..." in the legend."""
+    profiles = []
+    for k, i in enumerate(indices):
+        prof = temp[k]
+        name = f"t = {format_time(res.time[i], scale)}"
+        label = labels[k] if labels else name
+        twin = next(((line, lab) for p, line, lab in profiles if np.allclose(p, prof, rtol=0.0, atol=1e-6)), None)
+        extra = {}
+        if twin is not None:
+            twin[0].set_linewidth(3.0)
+            extra = dict(ls=(0, (3, 2)), zorder=3)
+            label += f" (dashed: equal to {twin[1]} within 1e-6 K)"
+        line, = ax.plot(seg.radius * rs, prof, color=LINE_CYCLE[k % len(LINE_CYCLE)],
+                        marker=MARKER_CYCLE[k % len(MARKER_CYCLE)], ms=3, label=label, **extra)
+        profiles.append((prof, line, name))
+    for r_b, _ in bounds[:-1]:
+        ax.axvline(r_b * rs, color="0.4", lw=0.8, ls=":")
+    ax.set_xlim(0.0, r_outer * rs)
+    # Layer names on a second axis along the top, at the middle of each layer.
+    top_axis = ax.secondary_xaxis("top")
+    inner, ticks, names = 0.0, [], []
+    for r_b, name in bounds:
+        ticks.append(0.5 * (inner + r_b) * rs)
+        names.append(name)
+        inner = r_b
+    top_axis.set_xticks(ticks, names, fontsize=small, color="0.25")
+    top_axis.tick_params(length=0)
+    ax.set_xlabel(f"{radial_name} ({ru})")
+    ax.set_ylabel(f"Temperature ({tu})")
+    legend_outside(ax)
+
+
 def maps_figures(res: Results, units: str = "physiology", segments=None, times=None, top: int = DEFAULT_TOP,
                  style: str = DEFAULT_STYLE, caution: bool = True) -> dict:
-    """Axial × radial temperature maps and radial profiles at mid-length: {segment name: Figure} for each
-    chosen segment with more than one axial cell."""
+    """Temperature maps and radial profiles: {segment name: Figure} for each chosen segment with more than one
+    radial cell. A segment with several axial cells gets axial × radial maps at the chosen times and profiles at
+    mid-length; one with a single axial cell (every sphere, which has no axial coordinate, and a segment with
+    axial_cells = 1) one map of temperature against time and radial position over the run, the chosen times marked,
+    and the profiles at those times."""
     style_of(style)
     figs = {}
     scale = time_scale(res.duration)
     indices = _time_indices(res, times)
     segs, _ = select_segments(res, segments, top, res.time[0], res.time[-1])
     small = style_of(style)["small"]
+    lumped = []
     for seg in segs:
         temp_all = seg.read("temperature").values
-        if temp_all.shape[1] < 2:
+        if temp_all.shape[2] < 2:   # a single radial cell: nothing to map
+            lumped.append(seg.name)
             continue
+        along = temp_all.shape[1] > 1
         temp = temperature_in(temp_all[indices], units)  # [n, nz, nr]
-        z_faces = faces_from_centres(seg.axial)
         r_faces = faces_from_centres(seg.radius)
-        zs, zu = length_scale(z_faces[-1], units)
         rs, ru = length_scale(r_faces[-1], units)
         bounds = layer_boundaries(seg)
         tu = temperature_label(units)
-        radial_name = "Distance from mid-plane" if seg.shape == "plate" else "Radial position"
+        radial_name = "Distance from mid-plane" if seg.shape == "plate" else (
+            "Distance from centre" if seg.shape == "sphere" else "Radial position")
         n = len(indices)
+        notes = []
         with rc(style):
             fig = new_figure(style, 2 * _panel_height(style) + 1.5)
-            mosaic = [[f"map{k}" for k in range(n)], ["profile"] * n]
-            axd = fig.subplot_mosaic(mosaic, height_ratios=[1.0, 1.0])
-            vmin, vmax = float(np.nanmin(temp)), float(np.nanmax(temp))
-            map_axes = [axd[f"map{k}"] for k in range(n)]
-            for k, (ax, i) in enumerate(zip(map_axes, indices)):
+            map_axes, cax, ax_prof = _map_grid(fig, n if along else 1, style)
+            if along:
+                z_faces = faces_from_centres(seg.axial)
+                zs, zu = length_scale(z_faces[-1], units)
+                vmin, vmax = float(np.nanmin(temp)), float(np.nanmax(temp))
+                for k, (ax, i) in enumerate(zip(map_axes, indices)):
+                    ax.grid(False)
+                    ax.set_label(f"map at t = {res.time[i]:.10g} s")
+                    mesh = ax.pcolormesh(z_faces * zs, r_faces * rs, temp[k].T, shading="flat",
+                                         cmap=MAP_COLOURS, vmin=vmin, vmax=vmax, rasterized=True)
+                    mesh.set_label("temperature")
+                    mesh.thermorph_value_label = f"Temperature ({tu})"
+                    for r_b, _ in bounds[:-1]:
+                        ax.axhline(r_b * rs, color="white", lw=0.8, ls="--")
+                    moment = moment_text(res, seg, i)
+                    panel_title(ax, "a" if k == 0 else None, f"t = {format_time(res.time[i], scale)}"
+                                + (f": {moment}" if moment else ""))
+                    ax.set_xlabel(f"Axial ({zu})" if n > 2 and style == "single" else f"Axial position ({zu})")
+                    ax.xaxis.set_major_locator(MaxNLocator(3 if style == "single" else 4))
+                    ax.thermorph_ylabel = f"{radial_name} ({ru})"   # for the source data of unlabelled panels
+                    if k == 0:
+                        ax.set_ylabel(f"{radial_name} ({ru})")
+                    else:
+                        ax.sharey(map_axes[0])
+                        ax.tick_params(labelleft=False)
+                # Radial profiles at mid-length, interpolated between the two nearest axial cells.
+                z_mid = 0.5 * (z_faces[0] + z_faces[-1])
+                profiles = [np.array([np.interp(z_mid, seg.axial, temp[k, :, j]) for j in range(temp.shape[2])])
+                            for k in range(n)]
+                ax_prof.set_label("radial profiles at mid-length")
+                _profiles_panel(ax_prof, res, seg, profiles, indices, scale, rs, ru, r_faces[-1], bounds, radial_name,
+                                tu, small)
+                panel_title(ax_prof, "b", f"Radial profile at mid-length ({z_mid * zs:.3g} {zu}); dotted: layer "
+                                          "boundaries")
+            else:
+                # One axial cell: temperature against time and radial position over the whole run, each output a
+                # column from midway to its neighbours (the first and last end at the run's ends).
+                ax = map_axes[0]
                 ax.grid(False)
-                ax.set_label(f"map at t = {res.time[i]:.10g} s")
-                mesh = ax.pcolormesh(z_faces * zs, r_faces * rs, temp[k].T, shading="flat",
-                                     cmap=MAP_COLOURS, vmin=vmin, vmax=vmax, rasterized=True)
+                ax.set_label("map over time")
+                t = np.asarray(res.time, float)
+                full = temperature_in(temp_all[:, 0, :], units)   # [nt, nr]
+                vmin, vmax = float(np.nanmin(full)), float(np.nanmax(full))
+                if len(t) > 1:
+                    t_faces = np.concatenate([[t[0]], 0.5 * (t[1:] + t[:-1]), [t[-1]]]) / scale[0]
+                else:   # a steady result: one column over the axis set_time_axis centres on it
+                    t_faces = np.array([t[0] / scale[0] - 1.0, t[0] / scale[0] + 1.0])
+                mesh = ax.pcolormesh(t_faces, r_faces * rs, full.T, shading="flat", cmap=MAP_COLOURS, vmin=vmin,
+                                     vmax=vmax, rasterized=True)
                 mesh.set_label("temperature")
                 mesh.thermorph_value_label = f"Temperature ({tu})"
+                # Source data at the outputs themselves (the cells span half the interval to each neighbour).
+                mesh.thermorph_cells = [(t[i] / scale[0], seg.radius[j] * rs, full[i, j])
+                                        for i in range(len(t)) for j in range(len(seg.radius))]
                 for r_b, _ in bounds[:-1]:
                     ax.axhline(r_b * rs, color="white", lw=0.8, ls="--")
-                moment = moment_text(res, seg, i)
-                panel_title(ax, "a" if k == 0 else None, f"t = {format_time(res.time[i], scale)}"
-                            + (f": {moment}" if moment else ""))
-                ax.set_xlabel(f"Axial ({zu})" if n > 2 and style == "single" else f"Axial position ({zu})")
-                ax.xaxis.set_major_locator(MaxNLocator(3 if style == "single" else 4))
-                ax.thermorph_ylabel = f"{radial_name} ({ru})"   # for the source data of unlabelled panels
-                if k == 0:
-                    ax.set_ylabel(f"{radial_name} ({ru})")
-                else:
-                    ax.sharey(map_axes[0])
-                    ax.tick_params(labelleft=False)
-            cbar = fig.colorbar(mesh, ax=map_axes, shrink=0.95, pad=0.02)
+                for k, i in enumerate(indices):   # the profiles' times, in their colours
+                    ax.axvline(t[i] / scale[0], color=LINE_CYCLE[k % len(LINE_CYCLE)], lw=1.2, ls=(0, (4, 2)),
+                               label=f"_profile time {k}")
+                set_time_axis(ax, res, scale)
+                ax.set_ylabel(f"{radial_name} ({ru})")
+                panel_title(ax, "a", f"Temperature against time and {radial_name.lower()}; dashed: the times of b")
+                labels = []
+                for i in indices:
+                    moment = moment_text(res, seg, i)
+                    labels.append(f"t = {format_time(res.time[i], scale)}" + (f": {moment}" if moment else ""))
+                ax_prof.set_label("radial profiles")
+                _profiles_panel(ax_prof, res, seg, [temp[k, 0] for k in range(n)], indices, scale, rs, ru,
+                                r_faces[-1], bounds, radial_name, tu, small, labels)
+                panel_title(ax_prof, "b", "Radial profiles at the marked times; dotted: layer boundaries")
+                notes.append(f"{seg.name} is {'a sphere' if seg.shape == 'sphere' else 'a segment of one axial cell'}"
+                             f": no map along its length; a shows its temperature against time (each output a column) "
+                             f"and {radial_name.lower()}, b the radial profiles at the times marked in a.")
+            cbar = fig.colorbar(mesh, cax=cax)
             cbar.set_label(f"Temperature ({tu})")
             cbar.ax.tick_params(labelsize=small)
-
-            # Radial profiles at mid-length, interpolated between the two nearest axial cells.
-            ax = axd["profile"]
-            ax.set_label("radial profiles at mid-length")
-            z_mid = 0.5 * (z_faces[0] + z_faces[-1])
-            # A profile equal to one drawn already (a steady start and the output on the first step) would hide
-            # it: the earlier line widened beneath, this one dashed on top and its label says so.
-            profiles = []
-            for k, i in enumerate(indices):
-                prof = np.array([np.interp(z_mid, seg.axial, temp[k, :, j]) for j in range(temp.shape[2])])
-                label = f"t = {format_time(res.time[i], scale)}"
-                twin = next(((line, lab) for p, line, lab in profiles if np.allclose(p, prof, rtol=0.0, atol=1e-6)),
-                            None)
-                extra = {}
-                if twin is not None:
-                    twin[0].set_linewidth(3.0)
-                    extra = dict(ls=(0, (3, 2)), zorder=3)
-                    label += f" (dashed: equal to {twin[1]} within 1e-6 K)"
-                line, = ax.plot(seg.radius * rs, prof, color=LINE_CYCLE[k % len(LINE_CYCLE)],
-                                marker=MARKER_CYCLE[k % len(MARKER_CYCLE)], ms=3, label=label, **extra)
-                profiles.append((prof, line, f"t = {format_time(res.time[i], scale)}"))
-            for r_b, _ in bounds[:-1]:
-                ax.axvline(r_b * rs, color="0.4", lw=0.8, ls=":")
-            ax.set_xlim(0.0, r_faces[-1] * rs)
-            # Layer names on a second axis along the top, at the middle of each layer.
-            top_axis = ax.secondary_xaxis("top")
-            inner, ticks, names = 0.0, [], []
-            for r_b, name in bounds:
-                ticks.append(0.5 * (inner + r_b) * rs)
-                names.append(name)
-                inner = r_b
-            top_axis.set_xticks(ticks, names, fontsize=small, color="0.25")
-            top_axis.tick_params(length=0)
-            ax.set_xlabel(f"{radial_name} ({ru})")
-            ax.set_ylabel(f"Temperature ({tu})")
-            panel_title(ax, "b", f"Radial profile at mid-length ({z_mid * zs:.3g} {zu}); dotted: layer boundaries")
-            legend_outside(ax)
             count = f" (one of {seg.count})" if seg.count > 1 else ""
             suptitle(fig, f"{title_prefix(res)}{case_title(res)}: {seg.name}{count} temperature map")
             unstated = "" if seg.in_water() is not None else (
@@ -574,17 +646,19 @@ def maps_figures(res: Results, units: str = "physiology", segments=None, times=N
                 unstated = (f"{', '.join(on_step)}: an output on a step of the timeline; the temperatures are those "
                             "reached when the step occurs, the medium, contact and events in the title those after it.")
             chosen = default_map_times(res)[1] if times is None else ""
-            add_footer(fig, [n for n in [_cone_note(seg, units), chosen, unstated] if n], caution, res)
+            add_footer(fig, [n for n in [_cone_note(seg, units), *notes, chosen, unstated] if n], caution, res)
             finish(fig)
         figs[seg.name] = fig
-    if not figs:
-        print(f"figures: {res.path}: no chosen segment has more than one axial cell; no maps drawn", file=sys.stderr)
+    if lumped:
+        print(f"figures: {res.path}: {', '.join(lumped)}: a single radial cell, no temperature map drawn",
+              file=sys.stderr)
     return figs
 
 
 def maps(results, out_dir, units: str = "physiology", segments=None, times=None, top: int = DEFAULT_TOP,
          formats=FORMATS, style: str = DEFAULT_STYLE, dpi: float = PNG_DPI, caution: bool = True) -> list[Path]:
-    """Write one maps_SEGMENT.* figure per chosen segment with nz > 1; return the files written."""
+    """Write one maps_SEGMENT.* figure per chosen segment with more than one radial cell (maps_figures); return the
+    files written."""
     written = []
     with _opened(results) as res:
         for name, fig in maps_figures(res, units, segments, times, top, style, caution).items():
