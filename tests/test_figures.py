@@ -15,7 +15,8 @@
   volume scales with the cube of a length factor, exact geometry), heat map limited to the swept range.
 - The long ("tidy") CSV export equals the HDF5 datasets bit for bit (read with h5py, not with postproc).
 - `pip install --target DIR --no-deps --no-build-isolation --no-index ./postproc` works offline and the
-  installed entry points (thermorph-figures, thermorph-export, thermorph-report, thermorph-sweep-figure)
+  installed entry points (thermorph-figures, thermorph-export, thermorph-report, thermorph-sweep-figure,
+  thermorph-fit-figure)
   run from DIR with the checkout out of reach.
 - With THERMORPH: the overlay's footer names the case keys in which the runs differ and their common events are
   shaded; the README sweep draws the
@@ -317,7 +318,8 @@ def check_install(tmp: Path, full: Path, sweep_path: Path):
                "thermorph-export": [str(full), "--tidy", str(tmp / "inst" / "t.csv")],
                "thermorph-report": [str(full), "--window", "1h,2h"],
                "thermorph-sweep-figure": [str(sweep_path), "--metric", "body.heat_flow.convection", "--out",
-                                          str(tmp / "inst"), "--formats", "png"]}
+                                          str(tmp / "inst"), "--formats", "png"],
+               "thermorph-fit-figure": ["--help"]}   # on a fit: tests/test_install.sh
     for name, args in scripts.items():
         exe = target / "bin" / name
         check(exe.is_file(), f"entry point {exe} not installed")

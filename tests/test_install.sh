@@ -11,6 +11,10 @@ cmake --install "$build" --prefix "$work/prefix" > "$work/install.log" 2>&1 || {
 [ -f "$work/prefix/include/thermorph/drivers/simulation.hpp" ] || fail "no headers"
 man="$(find "$work/prefix" -name thermorph.1)"
 [ -n "$man" ] && grep -q '^\.SH "THERMORPH run"' "$man" || fail "man page without the run subcommand"
+# thermorph-fit (run by `thermorph fit`) has its page too, with the fit options (none before 2026-12-05).
+fitman="$(find "$work/prefix" -name thermorph-fit.1)"
+[ -n "$fitman" ] && grep -q -- '--free' "$fitman" && grep -q 'not veterinary or medical advice' "$fitman" \
+  || fail "no man page thermorph-fit.1 with the fit options and the caution"
 cmake -S "$src/tests/consumer" -B "$work/consumer" -DCMAKE_PREFIX_PATH="$work/prefix" -DCMAKE_BUILD_TYPE=Release \
       > "$work/configure.log" 2>&1 || { cat "$work/configure.log"; fail "consumer configure"; }
 cmake --build "$work/consumer" > "$work/build.log" 2>&1 || { cat "$work/build.log"; fail "consumer build"; }
@@ -84,6 +88,43 @@ thermorph-sweep-figure sweep.h5 --metric body.core_temperature.final --formats p
   || { cat sweepfig.log; fail "thermorph-sweep-figure"; }
 thermorph-export run.h5 /body --out body.csv > export.log 2>&1 || { cat export.log; fail "thermorph-export"; }
 [ -s body.csv ] || fail "thermorph-export: no body.csv"
+# A fit with the installed thermorph (it runs the installed thermorph-fit) and its figure with the installed
+# thermorph-fit-figure (fit_figure.py; not installed as a command before 2026-12-05): a lumped sphere cooling in air,
+# h fitted to its exact Newton-cooling curve (Incropera et al. 2007 eq. 5.6; tests/e2e_fit.sh, there with noise).
+cat > lump.toml <<'EOF'
+title = "lumped sphere (Newton cooling; illustrative)"
+[run]
+duration = "600 s"
+output_interval = "20 s"
+initial_temperature = "40 degC"
+[tissues.lump]
+base = "muscle"
+conductivity = "1000 W/(m K)"
+density = "1 kg/m3"
+specific_heat = "100 J/(kg K)"
+metabolic_heat = "0 W/m3"
+perfusion = "0 1/s"
+[[segments]]
+name = "ball"
+shape = "sphere"
+layers = [{ tissue = "lump", thickness = "2 cm", cells = 1 }]
+[environment]
+temperature = "10 degC"
+convection = "0.01 W/(m2 K)"
+EOF
+"$python" -c '
+import math
+tau = 1 * 100 * 0.02 / (3 * 0.01)   # rho c R / (3 h) [s]
+print("time [s], body.core_temperature [degC], body.core_temperature.sd [K]")
+for i in range(31):
+    print(f"{20 * i}, {10 + 30 * math.exp(-20 * i / tau)!r}, {0.05 if i == 0 else str()}")
+' > obs.csv || fail "writing obs.csv"
+thermorph fit lump.toml --data obs.csv --free "environment.convection=0.001 W/(m2 K):0.1 W/(m2 K)" \
+  --start "environment.convection=0.0065 W/(m2 K)" --grid-check 0 -q -o fit.h5 > fit.txt 2> fit.err \
+  || { cat fit.err; fail "installed thermorph fit"; }
+thermorph-fit-figure fit.h5 --out fitfig > fitfig.log 2>&1 || { cat fitfig.log; fail "thermorph-fit-figure"; }
+[ -s fitfig/fit_fit_0.png ] || { cat fitfig.log; fail "thermorph-fit-figure: no fitfig/fit_fit_0.png"; }
+grep -q "not veterinary or medical advice" fitfig.log || fail "thermorph-fit-figure: no caution line"
 # The module from the prefix: the same core temperatures as the installed executable's file, bit for bit; the file
 # through xarray as the README shows; the module's folder on the interpreter's path under /usr/local (Debian).
 [ -n "$module" ] || fail "no Python module installed"
