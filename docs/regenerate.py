@@ -8,12 +8,13 @@
                                                       moves by more than --tolerance (default 1 %)
 
 Options: --exe PATH (default build/thermorph), --skip RUN (with --refine: leave that named run out, e.g. one that is
-already refined), FILE... (default README.md and cases/*.md).
+already refined), FILE... (default README.md, postproc/README.md and cases/*.md).
 
 A generated part of a Markdown file sits between two HTML comments (invisible when rendered):
 
     <!-- gen-run NAME: run cases/x.toml --set KEY=VALUE -->   a named run (run | steady | sweep | fit + arguments)
     <!-- gen-run NAME: catch [TAG] -->                           the Catch2 tests of TAG (build/tests/thermorph_tests)
+    <!-- gen-run NAME: script tests/x.py ARGS -->                a test script: PYTHON tests/x.py PYTHON EXE ARGS
     <!-- gen:NAME FMT EXPR -->36.72<!-- /gen -->                 one number: EXPR on run NAME, formatted by FMT
     <!-- gen:budget NAME -->                                      a block: the heat budget printed by run NAME
     ...
@@ -25,7 +26,9 @@ with numpy as `np`; run("OTHER") gives another named run's results. A fit run (`
 the fitted run plus r.value(KEY), r.se(KEY), r.lower(KEY), r.upper(KEY), r.correlation(KEY1, KEY2), r.rmse(SERIES)
 and r.fit_attrs (aic, bic, residual_variance, runs, ...). A `catch [TAG]` run is the tests' printed lines
 (r.stdout) with r.coverage_study() for the coverage study of tests/test_fit.cpp; a `check CASE` run is the printed
-description of `thermorph check` (r.stdout, r.number_after(TEXT): the first number after TEXT). FMT is a format specification (`.2f`, `.3g`, `d`) or `s` for a string.
+description of `thermorph check` (r.stdout, r.number_after(TEXT): the first number after TEXT; r.number_after(TEXT,
+FROM): the first after TEXT that follows FROM); a `script` run is a test script's printed lines (r.stdout,
+r.number_after; tests/test_report.py --only 5,6,8 for postproc/README.md's report numbers), which must pass. FMT is a format specification (`.2f`, `.3g`, `d`) or `s` for a string.
 Run names are shared by every scanned file, so a note can use a run defined in another.
 
 Check: the text between the markers must match what the runs give now. Numbers may differ by one unit in their
@@ -224,9 +227,15 @@ class Result:
         return self._rmse[series]
 
     # --- printed text (catch, check) ---
-    def number_after(self, text):
-        """The first number printed after `text` in the run's output (a `check` run's description, a test's line)."""
-        m = re.search(re.escape(text) + r"\s*([-+]?[\d.]+(?:e[-+]?\d+)?)", self.stdout)
+    def number_after(self, text, start=None):
+        """The first number printed after `text` in the run's output (a `check` run's description, a test's line);
+        with `start`, the first such `text` after the first `start` (a line's label: "t = 50 s,")."""
+        offset = 0
+        if start is not None:
+            offset = self.stdout.find(start)
+            if offset < 0:
+                raise SystemExit(f"regenerate: {start!r} not found in the printed output")
+        m = re.compile(re.escape(text) + r"\s*([-+]?[\d.]+(?:e[-+]?\d+)?)").search(self.stdout, offset)
         if not m:
             raise SystemExit(f"regenerate: {text!r} not found in the printed output")
         return float(m.group(1))
@@ -311,6 +320,14 @@ class Runner:
                                   cwd=self.tmp)
             if proc.returncode != 0:
                 raise SystemExit(f"regenerate: run {name} failed ({proc.returncode}): check {case}\n{proc.stderr}")
+            self.cache[name] = Result("catch", None, proc.stdout)
+            return self.cache[name]
+        if kind == "script":  # a test script (PYTHON SCRIPT PYTHON EXE ARGS): its printed lines; it must pass
+            proc = subprocess.run([sys.executable, str(ROOT / case), sys.executable, str(self.exe)] + args[2:],
+                                  capture_output=True, text=True, cwd=self.tmp)
+            if proc.returncode != 0:
+                raise SystemExit(f"regenerate: run {name} failed ({proc.returncode}): {case} {' '.join(args[2:])}\n"
+                                 f"{proc.stdout[-2000:]}{proc.stderr[-2000:]}")
             self.cache[name] = Result("catch", None, proc.stdout)
             return self.cache[name]
         if kind == "catch":
@@ -410,10 +427,11 @@ def main():
                          "(cases/diving_seal.md seal_rest4: 4x of a 4x grid is beyond this machine); listed as skipped")
     ap.add_argument("--exe", default=str(ROOT / "build" / "thermorph"))
     a = ap.parse_args()
-    files = [Path(f) for f in a.files] or [ROOT / "README.md"] + sorted((ROOT / "cases").glob("*.md"))
+    files = [Path(f) for f in a.files] or [ROOT / "README.md", ROOT / "postproc" / "README.md"] + sorted(
+        (ROOT / "cases").glob("*.md"))
     texts = {f: f.read_text() for f in files}
     runs = {}
-    for f in sorted((ROOT / "cases").glob("*.md")) + [ROOT / "README.md"] + files:
+    for f in sorted((ROOT / "cases").glob("*.md")) + [ROOT / "README.md", ROOT / "postproc" / "README.md"] + files:
         for name, command in RUN_RE.findall(f.read_text()):
             runs[name] = command
     runner = Runner(Path(a.exe).resolve(), runs)

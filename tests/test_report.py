@@ -1,7 +1,9 @@
 #!/usr/bin/python3
 """Test of postproc/report.py: window heat budgets, threshold times and argument errors.
 
-    /usr/bin/python3 tests/test_report.py [PYTHON [THERMORPH]]
+    /usr/bin/python3 tests/test_report.py [PYTHON [THERMORPH]] [--only 5,6,8]
+
+(--only: those sections; docs/regenerate.py quotes the lines sections 5, 6 and 8 print in postproc/README.md.)
 
 1. A synthetic results file whose flows and temperatures are simple functions of
    time (ramps, a quadratic, a triangle), so every number the report prints has
@@ -31,8 +33,14 @@ import numpy as np
 
 ROOT = Path(__file__).resolve().parent.parent
 REPORT = ROOT / "postproc" / "report.py"
-PYTHON = sys.argv[1] if len(sys.argv) > 1 else sys.executable
-THERMORPH = sys.argv[2] if len(sys.argv) > 2 else str(ROOT / "build" / "thermorph")
+ARGS = sys.argv[1:]
+ONLY = None   # --only 5,8: those sections (8 runs 7 first: it reads 7's files); docs/regenerate.py quotes their lines
+if "--only" in ARGS:
+    _at = ARGS.index("--only")
+    ONLY = {int(x) for x in ARGS[_at + 1].split(",")}
+    del ARGS[_at:_at + 2]
+PYTHON = ARGS[0] if len(ARGS) > 0 else sys.executable
+THERMORPH = ARGS[1] if len(ARGS) > 1 else str(ROOT / "build" / "thermorph")
 CAUTION = ("Model estimates for research only; not veterinary or medical advice. Follow local regulations, "
            "animal-welfare rules and licensed veterinary or medical practice.")
 FAILURES = []
@@ -478,6 +486,8 @@ def check_step_note(tmp: Path):
     # limitations").
     close(got_coarse, truth, "step window on the 2-min file, from /steps, = the 1-min file's", rtol=1e-5)
     got_old = number(read_table(old_csv)["whole body"]["convection"])
+    print(f"  cold front at 5 min, 2-min outputs, window from the front: without /steps the whole-body convection is "
+          f"off by {100.0 * abs(got_old / truth - 1.0):.3g} % ({got_old:.6g} W against {truth:.6g} W)")
     check(abs(got_old - truth) > 1e-3 * abs(truth),
           f"the noted window is visibly off ({got_old:.6g} W vs {truth:.6g} W): the note is not idle")
 
@@ -597,6 +607,19 @@ def check_exposure(tmp: Path):
                       f"5-min (outputs on the changes) {heats['5 min', t0][k]:.6g} J")
                 close(heats["4 min", t0][k], heats["5 min", t0][k],
                       f"heat lost to the {what} (window from {t0:g} s), 4-min outputs against 5-min", rtol=1e-4)
+    # The same 4-min file without /steps (as written before 2026-12-05): the heat at the changes is interpolated
+    # across them between the outputs, visibly off, and the report says so.
+    old, old_csv = tmp / "dip_4_old.h5", tmp / "dip_4_old.csv"
+    without_steps(files["4 min"], old)
+    text = run_report(old, "--csv", old_csv).stdout
+    with open(old_csv.with_name(f"{old_csv.stem}.exposure.csv"), newline="", encoding="utf-8") as fh:
+        stale = number(next(csv.DictReader(fh))["heat lost to water [J]"])
+    if ("5 min", 0.0) in heats:
+        low = 100.0 * (1.0 - stale / heats["5 min", 0.0][0])
+        print(f"  legs, heat lost to the water on 4-min outputs without /steps (interpolated across the changes): "
+              f"{stale:.6g} J, {low:.3g} % low against the 5-min file's {heats['5 min', 0.0][0]:.6g} J")
+        check(abs(low) > 1.0 and "NOTE: " in text.split("Water and substrate")[-1],
+              f"without /steps the water's heat is off by {low:.3g} % and noted: the check above is not idle")
     with h5py.File(files["4 min"], "r") as f:
         time = f["time"][()]
         wet = f["segments/leg/in_water"][()]
@@ -797,9 +820,9 @@ def check_window_ends(tmp: Path):
     for t, how, a, b in NEWTON_ENDS:
         bound = interpolation_bound(t, how, a, b)
         new, stale, exact, own = found["new"][t], found["old"][t], newton_energy(t), solver[t]
-        print(f"    t = {t:g} s ({how} on {min(a, b):g}..{max(a, b):g} s): closed form {exact:.6g}, solver {own:.6g}, "
-              f"report {new:.6g} (off the solver by {new - own:.2e}, bound {bound:.2e}), without /steps "
-              f"{stale:.6g} ({stale - own:+.2e})")
+        print(f"    t = {t:g} s, report off the solver by {new - own:.3e} J (bound {bound:.2e} J; {how} on "
+              f"{min(a, b):g}..{max(a, b):g} s); closed form {exact:.6g} J, solver {own:.6g} J, report {new:.6g} J; "
+              f"without /steps off by {stale - own:+.3e} J")
         check(abs(new - own) <= bound, f"t = {t:g} s: the {how} interpolant's error {new - own:.3g} J is within its "
                                        f"remainder bound {bound:.3g} J")
         check(abs(new - own) >= 0.1 * bound, f"t = {t:g} s: the error {new - own:.3g} J is at least a tenth of the "
@@ -830,14 +853,12 @@ def check_window_ends(tmp: Path):
 def main() -> int:
     with tempfile.TemporaryDirectory(prefix="thermorph_report_") as name:
         tmp = Path(name)
-        check_synthetic(tmp)
-        check_windows(tmp)
-        check_errors(tmp)
-        check_real(tmp)
-        check_step_note(tmp)
-        check_exposure(tmp)
-        check_exact_steps(tmp)
-        check_window_ends(tmp)
+        sections = ((1, check_synthetic), (4, check_windows), (3, check_errors), (2, check_real), (5, check_step_note),
+                    (6, check_exposure), (7, check_exact_steps), (8, check_window_ends))
+        wanted = None if ONLY is None else ONLY | ({7} if 8 in ONLY else set())
+        for number_, section in sections:
+            if wanted is None or number_ in wanted:
+                section(tmp)
     if FAILURES:
         print(f"test_report: {len(FAILURES)} check(s) failed")
         return 1
