@@ -112,6 +112,7 @@ struct SegmentGridEstimate {
   double childNtu = 0.0;      //!< NTU of the exchanger for the stream that reaches a child, G / (rho_b c_b F_c) [1]
   double childBloodShare = 0.0;  //!< share of that child's heat flows that comes with its blood [1]
   std::string childStream;    //!< that child
+  double childAttach = 1.0;   //!< where that child joins, along the segment's length (attach_position) [1]
   bool axialForced = false;   //!< a junction or exposed end forces axial profiles
   bool appendage = false;     //!< has a parent: the junction at its proximal end
   double endWeight = 1.0;     //!< share of the segment's heat flows that passes the forced ends [1]
