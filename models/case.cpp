@@ -1104,6 +1104,7 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
   c.run.maxStep = run.quantity("max_step");
   c.run.gridRefinement = static_cast<int>(run.integer("grid_refinement"));
   c.run.gridTolerance = run.number("grid_tolerance");
+  c.run.axialGrading = run.choice("axial_grading") == "graded" ? AxialGradingRule::Graded : AxialGradingRule::Uniform;
   if (c.run.outputInterval > c.run.duration)
     run.fail("output_interval", fmt::format("output_interval = {:g} s exceeds duration = {:g} s",
                                             c.run.outputInterval, c.run.duration));

@@ -28,6 +28,8 @@ class TimelineOverrideError : public CaseError {
 
 enum class Shape { Sphere, Cylinder, Cone, Plate };
 enum class InitialCondition { Temperature, Steady };
+//! run.axial_grading: how the automatic grid spaces an appendage's axial cells (models/grid.cpp resolveGrid).
+enum class AxialGradingRule { Uniform, Graded };
 
 const char* shapeName(Shape shape);
 
@@ -138,6 +140,10 @@ struct RunSpec {
   //! half of it of their converged value (models/grid.hpp gridTargetError); controller outputs are checked after
   //! the run (drivers/record_control_grid.hpp).
   double gridTolerance = 0.01;
+  //! run.axial_grading: Graded gives each appendage whose axial cells and grading are both left out the cheapest of
+  //! uniform cells and cells graded towards its junction (Q = 10, 30, 100, 300, 1000) that meets the estimate;
+  //! Uniform (the default) keeps uniform cells but where a water line or a Biot corner asks for grading.
+  AxialGradingRule axialGrading = AxialGradingRule::Uniform;
 };
 
 struct CirculationSpec {

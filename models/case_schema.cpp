@@ -41,6 +41,13 @@ constexpr std::array params = {
           "naming the tolerance that would meet it and, after a start from a uniform temperature, the layer whose "
           "storage transient carries it and the radial cells that would meet it (README, Grid). Given cell counts "
           "are not changed."},
+    Param{"run.axial_grading", K::Choice, "", "uniform", 0, 0, false, "uniform|graded",
+          "How the automatic grid spaces the axial cells of an appendage (a segment with a parent) whose "
+          "`axial_cells` and `axial_grading` are both left out: \"uniform\" cells (the default; graded only where a "
+          "water line or a bare skin's Biot corner lies at the junction), or \"graded\": the fewest cells of "
+          "uniform and of cells graded towards the junction with Q = 10, 30, 100, 300 or 1000 that meet "
+          "run.grid_tolerance by the estimate (ties: the smaller Q). Thin appendages then need far fewer cells "
+          "(`thermorph check` names them; README, Grid)."},
 
     Param{"circulation", K::Table, "", "", 0, 0, false, "", "Blood properties and arterial supply."},
     Param{"circulation.blood_density", K::Quantity, "kg/m3", "1050 kg/m3", 0, 5000, true, "",

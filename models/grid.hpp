@@ -202,6 +202,16 @@ double forcingInterval(const Case& c);
 //! end (grading: SegmentSpec::axialGrading).
 double axialGridError(const SegmentGridEstimate& e, double length, int nz, double grading = 1.0);
 
+//! The cheapest automatic axial grid of an appendage (run.axial_grading = "graded"): uniform cells (q 1, the
+//! estimate's axialNeeded) or cells graded towards the junction with q of 10, 30, 100, 300, 1000, the fewest cells
+//! whose estimated error (axialGridError) meets `target` (ties: the smaller q). Each graded count is found as for a
+//! given axial_grading (at least the uniform count up to 10, even).
+struct AxialGrid {
+  double grading = 1.0;
+  int cells = 1;
+};
+AxialGrid cheapestAxialGrid(const SegmentGridEstimate& e, double length, double target);
+
 //! Estimates for every segment of a case (uses the environment's surface conductances over the timeline).
 std::vector<SegmentGridEstimate> estimateGrid(const Case& c);
 

@@ -51,4 +51,26 @@ cmp -s "$work/ref.csv" "$work/cold.csv" || fail "refine --cold-start without a s
 grep -q "steady solve" "$work/ref.txt" && fail "refine reports a steady solve for a case without one: $(cat "$work/ref.txt")"
 "$exe" refine "$limb" --levels 2 > /dev/null 2>&1; code=$?
 [ "$code" -eq 2 ] || fail "refine --levels 2: exit $code, expected 2"
+# 5. run.axial_grading: a bad value is exit 2 with file:line:column and the key path, and leaves an earlier result
+#    untouched (also from --set); `check` hints at "graded" where an appendage's uniform cells cost twice the graded
+#    ones, and the key grades them (the trial wings: 732 uniform cells, 28 graded Q = 1000).
+wings="$src/tests/bench/studies/roost_wings.toml"
+"$exe" run "$limb" --set run.duration="2 min" -q -o "$work/keep.h5" > /dev/null 2>&1 || fail "limb run exit $?"
+cp "$work/keep.h5" "$work/before.h5"
+{ sed '/^\[run\]/a axial_grading = "geometric"' "$limb"; } > "$work/bad.toml"
+grep -q '^axial_grading = "geometric"' "$work/bad.toml" || fail "test setup: no [run] table in $limb"
+"$exe" run "$work/bad.toml" -q -o "$work/keep.h5" > /dev/null 2> "$work/bad.err"; code=$?
+[ "$code" -eq 2 ] || fail "run.axial_grading = geometric: exit $code, expected 2"
+grep -q 'bad.toml:[0-9]*:[0-9]*: run.axial_grading: "geometric" is not one of: uniform, graded' "$work/bad.err" \
+    || fail "bad axial_grading message: $(cat "$work/bad.err")"
+cmp -s "$work/keep.h5" "$work/before.h5" || fail "a refused run changed the earlier result"
+"$exe" check "$limb" --set run.axial_grading=1000 > /dev/null 2> "$work/set.err"; code=$?
+[ "$code" -eq 2 ] || fail "--set run.axial_grading=1000: exit $code, expected 2"
+grep -q "run.axial_grading" "$work/set.err" || fail "--set message: $(cat "$work/set.err")"
+"$exe" check "$wings" > "$work/u.txt" || fail "check wings exit $?"
+grep -q '^hint: segment wings: 732 uniform axial cells; 28 cells graded towards its junction (Q = 1000) .*run.axial_grading = "graded"' \
+    "$work/u.txt" || fail "no hint: $(grep -i hint "$work/u.txt")"
+"$exe" check "$wings" --set run.axial_grading=graded > "$work/g.txt" || fail "check graded exit $?"
+grep -q "^  wings  *28\*/1000\* " "$work/g.txt" || fail "graded wings: $(grep wings "$work/g.txt")"
+grep -q "^hint" "$work/g.txt" && fail "hint under run.axial_grading = graded: $(grep hint "$work/g.txt")"
 echo "e2e_grid: ok"
