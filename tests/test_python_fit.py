@@ -13,6 +13,9 @@ least-squares computation.
    SE = sqrt(s^2 (J^T J)^-1), s^2 = SSR / (n - p), J by central differences of the analytic solution (Bates & Watts
    1988, ch. 2; Seber & Wild 1989, sec. 2.1): within 5 %; the true h lies in the 95 % interval.
 3. Bad input raises thermorph.CaseError naming the table, the column or key and the expected unit.
+4. cold_start=True is `thermorph fit --cold-start`: on a refined grid check of a nonlinear case the cold and the warm
+   steady starts give refined predictions that differ in their last digits, and each module fit equals the CLI's
+   of the same start bit for bit.
 
     test_python_fit.py MODULE_DIR THERMORPH_EXE SOURCE_DIR
 """
@@ -241,6 +244,55 @@ try:
 except thermorph.SolverError as e:
     check("did not converge" in str(e) and (work / "short.incomplete.h5").exists() and not (work / "short.h5").exists(),
           f"one iteration: {e}")
+
+# ---- 4. cold_start= is the command line's --cold-start ------------------------------------------------------
+# `thermorph fit --cold-start` finds the steady start of a refined run (here the grid check's, on the grid refined
+# 2x) by the relaxation from the case's initial temperature instead of by Newton from the unrefined grid's steady state
+# (cli/fit_cli.cpp). The invented quadruped (controllers: a nonlinear steady state) with a cold front at 4 min, its
+# mean skin temperature "observed" from its own run with seeded noise (SD 0.05 K; illustrative), fur conductivity
+# free: the two starts reach the steady state to KINSOL's tolerance, so the grid check's refined predictions differ
+# in their last digits (about 1e-12 K), and each of the module's fits equals the CLI's of the same start bit for bit
+# (values, the grid check's shift, the refined predictions of its results file): cold_start reaches the driver.
+quad = src / "cases" / "quadruped.toml"
+qset = ["run.initial=steady", 'run.duration="20 min"', 'run.output_interval="2 min"',
+        'events=[{ at = "4 min", environment = { temperature = "-5 degC", speed = "4 m/s" } }]']
+qsets = sum([["--set", x] for x in qset], [])
+subprocess.run([exe, "run", str(quad), *qsets, "-q", "-o", "qtruth.h5"], cwd=work, check=True,
+               stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+with h5py.File(work / "qtruth.h5", "r") as f:
+    qt, qskin = f["time"][()], f["body/mean_skin_temperature"][()]
+qskin = qskin + np.random.default_rng(5).normal(0.0, 0.05, qskin.size)
+with open(work / "qobs.csv", "w") as f:
+    f.write("# invented test data (illustrative): the model's own mean skin temperature plus noise, sd 0.05 K\n")
+    f.write("time [s], body.mean_skin_temperature [degC], body.mean_skin_temperature.sd [K]\n")
+    for i in range(qt.size):
+        f.write(f"{qt[i]!r}, {qskin[i]!r}, {'0.05' if i == 0 else ''}\n")
+qfree = "tissues.fur.conductivity=0.02 W/(m K):0.1 W/(m K)"
+refined_predictions = {}
+for cold in (False, True):
+    label = "cold" if cold else "warm"
+    cli_h5, py_h5 = work / f"q_cli_{label}.h5", work / f"q_py_{label}.h5"
+    proc = subprocess.run([exe, "fit", str(quad), *qsets, "--data", "qobs.csv", "--free", qfree, "-j", "1", "-q",
+                           "-o", str(cli_h5)] + (["--cold-start"] if cold else []), cwd=work, capture_output=True,
+                          text=True)
+    check(proc.returncode == 0, f"CLI fit ({label} start) exit {proc.returncode}" + (f": {proc.stderr[-400:]}"
+                                                                                    if proc.returncode else ""))
+    r = thermorph.fit(str(quad), str(work / "qobs.csv"), free=qfree, set=qset, jobs=1, output=str(py_h5),
+                      cold_start=cold)
+    with h5py.File(cli_h5, "r") as f, h5py.File(py_h5, "r") as g:
+        key = "tissues.fur.conductivity"
+        same_value = r["values"][key] == f["fit/parameters/value"][0]
+        same_shift = r["grid_check"]["shift"][key] == f["fit/grid_check/shift"][0]
+        name = "fit/series/body.mean_skin_temperature/predicted_refined"
+        refined_predictions[label] = f[name][()]
+        same_refined = np.array_equal(g[name][()], f[name][()])
+    check(same_value and same_shift and same_refined,
+          f"fit cold_start={cold} equals `thermorph fit{' --cold-start' if cold else ''}` bit for bit: value "
+          f"{same_value}, grid-check shift {same_shift}, refined predictions {same_refined}")
+gap = float(np.max(np.abs(refined_predictions["cold"] - refined_predictions["warm"])))
+print(f"cold against warm start: the grid check's refined predictions differ by up to {gap:.3g} K")
+check(0.0 < gap < 1e-6, f"the two starts reach the same steady state to KINSOL's tolerance but not bit for bit "
+                        f"({gap:.3g} K): the comparisons above tell the starts apart")
 
 tmp.cleanup()
 if failures:
