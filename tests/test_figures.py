@@ -32,6 +32,7 @@
   the budget's flows over time are not joined across a step (the output on it holds the flows after it).
 - Maps: the colour bar against the last map (also with the profile's legend outside), ending with the profile panel;
   a segment of one axial cell and (with THERMORPH) a sphere get a map of the stored temperature over time and radius.
+- With THERMORPH: the forelimb's layer names along the top of the profiles do not overlap at either preset (fat and skin).
 - Default map times: first, middle, last output without labelled events; with them the last output inside the first
   labelled span replaces the middle (the contact study's dive, the sample's "cold air"), and the footer says so.
 Exits 1 on any failure.
@@ -1000,6 +1001,40 @@ def check_sphere_map(tmp: Path, exe: str):
     check("head is a sphere" in footer, f"sphere map: the footer does not say why: {footer!r}")
 
 
+def check_layer_names(tmp: Path, exe: str):
+    """The layer names along the top of the radial profiles do not run into each other at either preset: the
+    forelimb's fat (1 mm) and skin (1.5 mm) beside 9 mm of muscle were drawn as one word ("fatskin"); now a name that
+    would overlap its neighbour stands one line up (a trailing newline: its drawn box is two equal lines, the name in
+    the upper one). Drawn extents (Text.get_window_extent). Common practice, no source."""
+    from thermorph_post import figures
+    from thermorph_post.results import Results
+    h5 = tmp / "layer_names.h5"
+    proc = subprocess.run([exe, "run", str(ROOT / "cases" / "limb_cooling.toml"), "-q", "--set",
+                           'run.duration="10 min"', "-o", str(h5)], capture_output=True, text=True)
+    check(proc.returncode == 0, f"layer names: exit {proc.returncode}\n{proc.stderr[-800:]}")
+    if proc.returncode != 0:
+        return
+    for style_name in ("single", "double"):
+        with Results(h5) as res:
+            fig = figures.maps_figures(res, segments=["forelimb"], style=style_name)["forelimb"]
+        fig.canvas.draw()
+        renderer = fig.canvas.get_renderer()
+        profile = next(a for a in fig.axes if a.get_label().startswith("radial profiles"))
+        top = [c for c in profile.get_children() if type(c).__name__ == "SecondaryAxis"]
+        labels = [t for t in top[0].get_xticklabels() if t.get_visible() and t.get_text().strip()] if top else []
+        boxes = []
+        for t in labels:
+            box = t.get_window_extent(renderer)
+            lines = t.get_text().count("\n") + 1
+            y0 = box.y1 - box.height / lines   # the name's line: the top one
+            boxes.append((t.get_text().strip(), box.x0, box.x1, y0, box.y1))
+        names = [b[0] for b in boxes]
+        check(names == ["bone", "muscle", "fat", "skin", "fur"], f"layer names ({style_name}): {names}")
+        clashes = [f"{a[0]} / {b[0]}" for i, a in enumerate(boxes) for b in boxes[i + 1:]
+                   if a[1] < b[2] and b[1] < a[2] and a[3] < b[4] and b[3] < a[4]]
+        check(not clashes, f"layer names ({style_name}) overlap: {clashes}")
+
+
 def check_cli_times():
     """figures.py --window and --times take times with units like report.py (1 min = 60 s, 1 h = 3600 s: SI
     Brochure 2019, Table 8), and a window also as t0:t1 (sweep's form); a bad time names the option."""
@@ -1094,6 +1129,7 @@ def main() -> int:
         check_map_layout(tmp)
         if EXE:
             check_sphere_map(tmp, EXE)
+            check_layer_names(tmp, EXE)
             check_steps(tmp, EXE)
             check_immersion(tmp, EXE)
             check_contact_events(tmp, EXE)
