@@ -50,15 +50,15 @@ ControlGridWatch::ControlGridWatch(const Body& body, const NetworkSystem& system
     w.control = owner[k];
     w.terms.push_back(t);
   };
-  for (Index i = 0; i < net.advections.size(); ++i)
-    for (int hop = 0; hop < (net.advections[i].via == none ? 1 : 2); ++hop)
-      net.forEachPart(net.advections[i], [&](Index p, const FlowPart& part) {
-        term(part.modulator, {Term::Advection, i, p, hop});
-      });
+  for (auto it = net.advections.begin(); it != net.advections.end(); ++it) {
+    const Advection a = *it;
+    for (int hop = 0; hop < (a.via == none ? 1 : 2); ++hop)
+      net.forEachPart(a, [&](Index p, const FlowPart& part) { term(part.modulator, {Term::Advection, it.index(), p, hop}); });
+  }
   for (Index i = 0; i < net.exchanges.size(); ++i)
     for (Index p = net.exchanges[i].partsBegin; p < net.exchanges[i].partsEnd; ++p)
       term(net.flowParts[p].modulator, {Term::Exchange, i, p});
-  for (Index i = 0; i < net.sources.size(); ++i) term(net.sources[i].modulator, {Term::Source, i, none});
+  for (auto it = net.sources.begin(); it != net.sources.end(); ++it) term((*it).modulator, {Term::Source, it.index(), none});
   if (byControl.empty()) return;
 
   // The core segment's group: a signal that reads it (core temperature, mean skin) balances the whole body.

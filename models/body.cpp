@@ -276,14 +276,14 @@ void Body::setInterval(std::size_t interval) const {
     // conductance would leave the face's temperature undetermined (NetworkSystem::solveFace divides by G - q').
     if (c.part == ContactPart::Column && f > 0.0) value *= f / fMax;
     if (c.face) network_.faces[c.index].halfConductance = value;
-    else network_.conductances[c.index].conductance = value;
+    else network_.conductances.setValue(c.index, value);
   }
   // Tucking: the interval's tucked fraction times the path's conductance, each side's coat dry or wet with its own
   // medium (0 while untucked: the guest's face then exchanges over its whole surface).
   for (const TuckLink& l : tuckLinks_) {
     const double rGuest = environment_->immersed(l.guest, 0.0) ? l.guestWet : l.guestDry;
     const double rHost = environment_->immersed(l.host, 0.0) ? l.hostWet : l.hostDry;
-    network_.conductances[l.conductance].conductance = environment_->tuckedFraction(l.guest) * l.patch / (rGuest + rHost);
+    network_.conductances.setValue(l.conductance, environment_->tuckedFraction(l.guest) * l.patch / (rGuest + rHost));
   }
 }
 
@@ -535,7 +535,7 @@ void Body::addMetabolicModulation(Index respiratorySegment) {
   using K = PhysiologyModel::Kind;
   // Tissue metabolism follows activity x hypometabolism from the case and its events.
   Index metabolism = addModulator(physiology_->add({K::Metabolism}), none, "metabolism");
-  for (HeatSource& src : network_.sources) src.modulator = metabolism;
+  network_.sources.transform([&](HeatSource& src) { src.modulator = metabolism; });
   // Shivering: extra heat in muscle, distributed by muscle volume (all copies counted).
   if (shiverControl_ != none) {
     Index shivering = addModulator(none, shiverControl_, "shivering");
@@ -594,7 +594,7 @@ void Body::scaleMetabolism() {
                                 case_.sourceFile));
   // Activity (and later events) multiply through the metabolism modulator.
   double factor = tissueSum > 0.0 ? target / tissueSum : 1.0;
-  for (HeatSource& src : network_.sources) src.power *= factor;
+  for (Index k = 0; k < network_.sources.size(); ++k) network_.sources.setValue(k, network_.sources.value(k) * factor);
   basalRate_ = target;
 }
 
@@ -1216,9 +1216,11 @@ void Body::linkSegmentBlood(const Circulation& c, Index g) {
         // coefficients), so the draw continues through the cell to the vein: one term of the same flow, whose hops
         // add the same numbers in the same order as a draw and a return (one advection of 32 bytes and one set of
         // flow parts instead of two advections of 28 bytes and two sets).
-        Advection& draw = network_.advections.back();
+        Advection draw = network_.advections.back();
+        network_.advections.pop_back();
         draw.via = Index(draw.to);
         draw.to = m.venous[z];
+        network_.advections.push_back(draw);
       } else {
         linkBlood(c, m.node(iz, ir), m.venous[z], c.cellDeep[g][k]);
       }

@@ -15,6 +15,7 @@
 #include <cstddef>
 #include <cstdint>
 #include <functional>
+#include <iterator>
 #include <stdexcept>
 #include <span>
 #include <string>
@@ -196,6 +197,170 @@ static_assert(sizeof(FlowPart) == 12 && sizeof(NetworkNode) == 12 && sizeof(Cond
               sizeof(Advection) == 32 && sizeof(BoundaryExchange) == 32 && sizeof(HeatSource) == 20 &&
               sizeof(SurfaceFace) == 20, "the network's terms are packed");
 
+//! How a term of one kind continues a run in TermRuns: Key(t) the fields that a run shares once its node indices are
+//! taken back to the run's first term (at(head, offset, value) moves them forward by offset), value(t) the one
+//! coefficient each term stores.
+template <class T>
+struct TermTraits;
+
+template <>
+struct TermTraits<Conductance> {  // a and b advance by one: a 1-D chain of cells
+  static double value(const Conductance& c) { return c.conductance; }
+  static Conductance at(Conductance c, Index offset, double value) {
+    c.a = Index(c.a) + offset;
+    c.b = Index(c.b) + offset;
+    c.conductance = value;
+    return c;
+  }
+  static bool same(const Conductance& x, const Conductance& y) {
+    return Index(x.a) == Index(y.a) && Index(x.b) == Index(y.b);
+  }
+};
+
+template <>
+struct TermTraits<Advection> {  // a stream through consecutive cells (via advances by one; from, to, parts shared)
+  static double value(const Advection& a) { return a.flowCapacity; }
+  static Advection at(Advection a, Index offset, double value) {
+    if (a.via != none) a.via = Index(a.via) + offset;
+    a.flowCapacity = value;
+    return a;
+  }
+  static bool same(const Advection& x, const Advection& y) {
+    return Index(x.from) == Index(y.from) && Index(x.to) == Index(y.to) && Index(x.channel) == Index(y.channel) &&
+           Index(x.partsBegin) == Index(y.partsBegin) && Index(x.partsEnd) == Index(y.partsEnd) &&
+           Index(x.via) == Index(y.via);
+  }
+};
+
+template <>
+struct TermTraits<HeatSource> {  // the sources of consecutive cells of one tissue (law, channel, modulator shared)
+  static double value(const HeatSource& s) { return s.power; }
+  static HeatSource at(HeatSource s, Index offset, double value) {
+    s.node = Index(s.node) + offset;
+    s.power = value;
+    return s;
+  }
+  static bool same(const HeatSource& x, const HeatSource& y) {
+    return Index(x.node) == Index(y.node) && Index(x.law) == Index(y.law) && Index(x.channel) == Index(y.channel) &&
+           Index(x.modulator) == Index(y.modulator);
+  }
+};
+
+//! A list of terms of one kind (conductances, advections, heat sources) stored as runs: a term that continues the
+//! last one's run (TermTraits: the same fields but its node indices one further along, as a radial layer's cells
+//! give) adds only its coefficient, a double. At 10^5 cells of one tissue a source costs 8 bytes instead of 20, a
+//! conductance 8 instead of 16, a perfused cell's stream 8 instead of 32 (3.6 MB less in the radial case). The
+//! terms, their order and their values are those pushed: read by value (operator[], a search among the runs;
+//! iteration, sequential). The coefficient of term k can be changed in place (setValue: an interval's
+//! conductances), its other fields only by rebuilding the list (transform).
+template <class T>
+class TermRuns {
+  using Traits = TermTraits<T>;
+#pragma pack(push, 4)
+  struct Run {
+    std::uint32_t first = 0;  //!< index of the run's first term
+    T head;                   //!< the run's first term (its coefficient unused: values_)
+  };
+#pragma pack(pop)
+
+ public:
+  using value_type = T;
+  class const_iterator {
+   public:
+    using iterator_category = std::input_iterator_tag;
+    using value_type = T;
+    using difference_type = std::ptrdiff_t;
+    using reference = T;
+    using pointer = void;
+    const_iterator() = default;
+    const_iterator(const TermRuns* list, Index k, Index run) : list_(list), k_(k), run_(run) {}
+    T operator*() const {
+      const Run& r = list_->runs_[run_];
+      return Traits::at(r.head, k_ - r.first, list_->values_[k_]);
+    }
+    const_iterator& operator++() {
+      ++k_;
+      if (run_ + 1 < list_->runs_.size() && k_ == list_->runs_[run_ + 1].first) ++run_;
+      return *this;
+    }
+    const_iterator operator++(int) {
+      const_iterator old = *this;
+      ++*this;
+      return old;
+    }
+    bool operator==(const const_iterator& o) const { return k_ == o.k_; }
+    //! The index of the term it points at.
+    Index index() const { return k_; }
+
+   private:
+    const TermRuns* list_ = nullptr;
+    Index k_ = 0, run_ = 0;
+  };
+
+  Index size() const { return values_.size(); }
+  bool empty() const { return values_.empty(); }
+  const_iterator begin() const { return {this, 0, 0}; }
+  const_iterator end() const { return {this, size(), runs_.empty() ? 0 : runs_.size() - 1}; }
+  T operator[](Index k) const {
+    const Run& r = runOf(k);
+    return Traits::at(r.head, k - r.first, values_[k]);
+  }
+  T back() const { return (*this)[size() - 1]; }
+  //! Appends t: to the last run if it continues it, else as a new run.
+  void push_back(const T& t) {
+    if (values_.size() >= std::uint32_t(-1)) throw std::length_error("a network index does not fit in 32 bits");
+    const double v = Traits::value(t);
+    if (!runs_.empty()) {
+      const Run& r = runs_.back();
+      if (Traits::same(Traits::at(r.head, size() - r.first, v), t)) {
+        values_.push_back(v);
+        return;
+      }
+    }
+    runs_.push_back({static_cast<std::uint32_t>(size()), t});
+    values_.push_back(v);
+  }
+  void pop_back() {
+    values_.pop_back();
+    if (runs_.back().first == values_.size()) runs_.pop_back();
+  }
+  //! The coefficient of term k (Conductance::conductance, Advection::flowCapacity, HeatSource::power).
+  double value(Index k) const { return values_[k]; }
+  void setValue(Index k, double v) {
+    values_[k] = v;
+    ++changes_;
+  }
+  //! Counts setValue calls (a copy of the terms knows from it when to read the values again).
+  std::uint64_t changes() const { return changes_; }
+  //! Replaces every term t by f(t) (its runs formed again).
+  template <class F>
+  void transform(F&& f) {
+    TermRuns out;
+    out.runs_.reserve(runs_.size());
+    out.values_.reserve(values_.size());
+    for (T t : *this) {
+      f(t);
+      out.push_back(t);
+    }
+    *this = std::move(out);
+  }
+  void shrink_to_fit() {
+    runs_.shrink_to_fit();
+    values_.shrink_to_fit();
+  }
+  Index runCount() const { return runs_.size(); }
+
+ private:
+  const Run& runOf(Index k) const {
+    return *(std::upper_bound(runs_.begin(), runs_.end(), k,
+                              [](Index key, const Run& r) { return key < r.first; }) -
+             1);
+  }
+  std::vector<Run> runs_;
+  std::vector<double> values_;
+  std::uint64_t changes_ = 0;
+};
+
 //! The temperature law of heat sources: Q10^((T - T_ref)/10).
 struct Q10Law {
   double q10 = 1.0;                   //!< [1]
@@ -236,15 +401,15 @@ struct Junction {
 
 struct Network {
   std::vector<NetworkNode> nodes;
-  std::vector<Conductance> conductances;
+  TermRuns<Conductance> conductances;
   //! The budget channel of each conductance whose channel is not 0, by ascending conductance (addConductance):
   //! a conductance's flow is booked to its channel where it joins two groups.
   std::vector<ConductanceChannel> conductanceChannels;
   //! The junctions' pair parts in rank-one form (none for hand-built networks).
   std::vector<Junction> junctions;
-  std::vector<Advection> advections;
+  TermRuns<Advection> advections;
   std::vector<BoundaryExchange> exchanges;
-  std::vector<HeatSource> sources;
+  TermRuns<HeatSource> sources;
   std::vector<Q10Law> q10Laws;  //!< the sources' Q10 laws (HeatSource::law)
   std::vector<SurfaceFace> faces;
   std::vector<std::string> groups;    //!< group names (segments)

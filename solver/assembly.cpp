@@ -49,6 +49,12 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
     for (Index i = 0; i < nodes_; ++i)
       if (!(network.nodes[i].capacity > 0.0))
         throw std::invalid_argument(fmt::format("node {} has no heat capacity", network.label(i)));
+  if (pattern_.size <= kSlotReplayLimit) {
+    conductanceCopy_.assign(network.conductances.begin(), network.conductances.end());
+    conductanceChanges_ = network.conductances.changes();
+    advections_.assign(network.advections.begin(), network.advections.end());
+    sources_.assign(network.sources.begin(), network.sources.end());
+  }
   if (transient && pattern_.size <= kSlotReplayLimit) {
     inverseCapacity_.resize(nodes_);
     for (Index i = 0; i < nodes_; ++i) inverseCapacity_[i] = 1.0 / network.nodes[i].capacity;
@@ -59,8 +65,9 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       nodeWeight_[i] = nodeWeight(i);
     }
     conductanceFactors_.resize(network.conductances.size());
-    for (std::size_t k = 0; k < network.conductances.size(); ++k) {
-      const Conductance& c = network.conductances[k];
+    for (auto it = network.conductances.begin(); it != network.conductances.end(); ++it) {
+      const Index k = it.index();
+      const Conductance c = *it;
       const auto [fa, fb] = conductanceFactors(c);
       conductanceFactors_[k] = {fa, fb, network.nodes[c.a].group != network.nodes[c.b].group,
                                 static_cast<std::uint32_t>(network.conductanceChannel(k))};
@@ -127,8 +134,9 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       for (Index p = begin; p < end; ++p)
         if (Index u = controlColumn(network.flowParts[p].modulator); u != none) visit(r, u);
     };
-    for (Index k = 0; k < network.conductances.size(); ++k) {
-      const Conductance& c = network.conductances[k];
+    for (auto it = network.conductances.begin(); it != network.conductances.end(); ++it) {
+      const Index k = it.index();
+      const Conductance c = *it;
       if (network.nodes[c.a].group == network.nodes[c.b].group) continue;
       const Index channel = network.conductanceChannel(k);
       const Index ra = row(c.a, channel), rb = row(c.b, channel);
@@ -344,8 +352,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
   auto toGroup = [&](Index node, Index channel, double q) {
     if (const Index r = rowOf(node); r != none) out[r + channel] += q;
   };
-  for (std::size_t k = 0; k < network_.conductances.size(); ++k) {
-    const Conductance& c = network_.conductances[k];
+  forEachTerm(network_.conductances, conductanceTerms(), [&](Index k, const Conductance& c) __attribute__((always_inline)) {
     const ConductanceFactors f =
         tables ? conductanceFactors_[k]
                : [&] {
@@ -360,11 +367,11 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
       toGroup(c.a, channel, f.a * q);
       toGroup(c.b, channel, -f.b * q);
     }
-  }
+  });
   // The junction rings' pair parts, O(m) per ring (within the parent's group: no budget or group-energy rows).
   for (const Junction& j : network_.junctions)
     for (const JunctionRing& ring : j.rings) ringFlows(ring, T, [&](Index node, double q) { out[node] += q; });
-  for (const Advection& a : network_.advections) {
+  forEachTerm(network_.advections, advections_, [&](Index, const Advection& a) __attribute__((always_inline)) {
     double F = flowOf(a, modulators_);
     forEachHop(a, [&](Index from, Index to) {
       double q = F * (T[from] - T[to]);
@@ -374,7 +381,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
         toGroup(to, a.channel, q);
       }
     });
-  }
+  });
   for (const BoundaryExchange& e : network_.exchanges) {
     double G = e.conductance + partsValue(e.partsBegin, e.partsEnd, modulators_);
     double q = G * (e.temperature - T[e.node]);
@@ -384,8 +391,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
       toGroup(e.node, e.channel, q);
     }
   }
-  for (std::size_t i = 0; i < network_.sources.size(); ++i) {
-    const HeatSource& s = network_.sources[i];
+  forEachTerm(network_.sources, sources_, [&](Index, const HeatSource& s) __attribute__((always_inline)) {
     double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
     const auto [rate, reference] = q10Rates_[s.law];
     double q = s.power * m * std::exp(rate * (T[s.node] - reference));
@@ -394,7 +400,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
       acc[s.channel] += weightOf(s.node) * q;
       toGroup(s.node, s.channel, q);
     }
-  }
+  });
   for (Index f = 0; f < network_.faces.size(); ++f) {
     Index node = network_.faces[f].node;
     solveFace(f, time, T[node], scratchHeat_, scratchDerivative_);
@@ -451,8 +457,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     const Index r = groupRowOf(node);
     if (r != none && col != none) values[position(r + channel, col)] += d;
   };
-  for (Index k = 0; k < network_.conductances.size(); ++k) {
-    const Conductance& c = network_.conductances[k];
+  forEachTerm(network_.conductances, conductanceTerms(), [&](Index k, const Conductance& c) __attribute__((always_inline)) {
     const double G = c.conductance;
     const auto [fa, fb] = conductanceFactors(c);
     add(c.a, c.a, -fa * G);
@@ -460,13 +465,13 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     add(c.b, c.b, -fb * G);
     add(c.b, c.a, fb * G);
     if (!transient || network_.nodes[c.a].group == network_.nodes[c.b].group)
-      continue;  // no group-energy entries within a group
+      return;  // no group-energy entries within a group
     const Index channel = conductanceChannel(k);
     toGroup(c.a, channel, c.a, -fa * G);
     toGroup(c.a, channel, c.b, fa * G);
     toGroup(c.b, channel, c.a, fb * G);
     toGroup(c.b, channel, c.b, -fb * G);
-  }
+  });
   // The junction rings' pair parts q_i = G_r w_i (S_r T_i - Tbar_r): the diagonal G_r w_i S_r here, the rest
   // -G_r w w^T in rank-one form (junctionTerms_, before the row scaling).
   for (const Junction& j : network_.junctions)
@@ -490,7 +495,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
       partDerivative(network_.flowParts[p].modulator, network_.flowParts[p].coefficient, row, channel, difference,
                      weight);
   };
-  for (const Advection& adv : network_.advections) {
+  forEachTerm(network_.advections, advections_, [&](Index, const Advection& adv) __attribute__((always_inline)) {
     double F = flowOf(adv, modulators_);
     const bool cancels = viaCancels(adv);
     forEachHop(adv, [&](Index from, Index to) {
@@ -512,7 +517,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
       else
         partDerivatives(adv.partsBegin, adv.partsEnd, to, adv.channel, T[from] - T[to], w);
     });
-  }
+  });
   for (const BoundaryExchange& ex : network_.exchanges) {
     double G = ex.conductance + partsValue(ex.partsBegin, ex.partsEnd, modulators_);
     add(ex.node, ex.node, -G);
@@ -521,8 +526,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     partDerivatives(ex.partsBegin, ex.partsEnd, ex.node, ex.channel, ex.temperature - T[ex.node],
                     nodeWeight(ex.node));
   }
-  for (std::size_t i = 0; i < network_.sources.size(); ++i) {
-    const HeatSource& s = network_.sources[i];
+  forEachTerm(network_.sources, sources_, [&](Index, const HeatSource& s) __attribute__((always_inline)) {
     double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
     const auto [rate, reference] = q10Rates_[s.law];
     double base = s.power * std::exp(rate * (T[s.node] - reference));
@@ -539,7 +543,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
       if (transient) add(acc, u, nodeWeight(s.node) * du);
     }
     toGroup(s.node, s.channel, u, du);
-  }
+  });
   for (Index f = 0; f < network_.faces.size(); ++f) {
     Index node = network_.faces[f].node;
     FaceSolution sol = solveFace(f, time, T[node], scratchHeat_, scratchDerivative_);
@@ -595,8 +599,7 @@ void NetworkSystem::flowsByGroup(double time, std::span<const double> T, std::sp
   auto group = [&](Index node) { return network_.nodes[node].group; };
   auto at = [&](Index node, Index channel) -> double& { return flows[group(node) * channels_ + channel]; };
   std::vector<double> rate(rates ? nodes_ : 0, 0.0);
-  auto conductance = [&](Index k) {
-    const Conductance& c = network_.conductances[k];
+  auto conductance = [&](Index k, const Conductance& c) __attribute__((always_inline)) {
     const auto [fa, fb] = conductanceFactors(c);
     double q = c.conductance * (T[c.b] - T[c.a]);
     if (rates) {
@@ -611,38 +614,37 @@ void NetworkSystem::flowsByGroup(double time, std::span<const double> T, std::sp
     }
   };
   if (rates || wanted(0)) {
-    for (std::size_t k = 0; k < network_.conductances.size(); ++k) conductance(k);
+    forEachTerm(network_.conductances, conductanceTerms(), conductance);
   } else {  // only the conductances booked to another channel than 0 can carry a marked one (ascending, as above)
     for (const ConductanceChannel& c : network_.conductanceChannels)
-      if (wanted(c.channel)) conductance(c.conductance);
+      if (wanted(c.channel)) conductance(c.conductance, network_.conductances[c.conductance]);
   }
   if (rates)
     for (const Junction& j : network_.junctions)  // within the parent's group: its storage, no channel
       for (const JunctionRing& ring : j.rings) ringFlows(ring, T, [&](Index node, double q) { rate[node] += q; });
-  for (const Advection& a : network_.advections) {
-    if (!rates && !wanted(a.channel)) continue;
+  forEachTerm(network_.advections, advections_, [&](Index, const Advection& a) __attribute__((always_inline)) {
+    if (!rates && !wanted(a.channel)) return;
     const double F = flowOf(a, modulators_);
     forEachHop(a, [&](Index from, Index to) {
       double q = F * (T[from] - T[to]);
       if (rates) rate[to] += q;
       if (wanted(a.channel)) at(to, a.channel) += q;
     });
-  }
+  });
   for (const BoundaryExchange& e : network_.exchanges) {
     if (!rates && !wanted(e.channel)) continue;
     double q = (e.conductance + partsValue(e.partsBegin, e.partsEnd, modulators_)) * (e.temperature - T[e.node]);
     if (rates) rate[e.node] += q;
     if (wanted(e.channel)) at(e.node, e.channel) += q;
   }
-  for (std::size_t i = 0; i < network_.sources.size(); ++i) {
-    const HeatSource& s = network_.sources[i];
-    if (!rates && !wanted(s.channel)) continue;
+  forEachTerm(network_.sources, sources_, [&](Index, const HeatSource& s) __attribute__((always_inline)) {
+    if (!rates && !wanted(s.channel)) return;
     double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
     const auto [q10Rate, reference] = q10Rates_[s.law];
     double q = s.power * m * std::exp(q10Rate * (T[s.node] - reference));
     if (rates) rate[s.node] += q;
     if (wanted(s.channel)) at(s.node, s.channel) += q;
-  }
+  });
   // A report: the face solves leave the Newton starts and the surface model's caches as they were, so outputs
   // never change the integrator's path.
   struct Reporting {
@@ -714,8 +716,8 @@ std::string structuralDifference(const Network& a, const Network& b) {
     return "one network has surroundings or schedules the other lacks";
   for (Index i = 0; i < a.nodes.size(); ++i)
     if (a.nodes[i].group != b.nodes[i].group) return "a node moved to another segment";
-  for (Index i = 0; i < a.conductances.size(); ++i) {
-    const Conductance &x = a.conductances[i], &y = b.conductances[i];
+  for (auto i = a.conductances.begin(), j = b.conductances.begin(); i != a.conductances.end(); ++i, ++j) {
+    const Conductance x = *i, y = *j;
     if (x.a != y.a || x.b != y.b) return "conductances join other nodes";
   }
   if (a.junctions.size() != b.junctions.size()) return "the number of nodes or terms differs (cell counts, segments or vessels)";
@@ -729,8 +731,8 @@ std::string structuralDifference(const Network& a, const Network& b) {
     }
   }
   if (a.conductanceChannels != b.conductanceChannels) return "conductances join other nodes";
-  for (Index i = 0; i < a.advections.size(); ++i) {
-    const Advection &x = a.advections[i], &y = b.advections[i];
+  for (auto i = a.advections.begin(), j = b.advections.begin(); i != a.advections.end(); ++i, ++j) {
+    const Advection x = *i, y = *j;
     if (x.from != y.from || x.to != y.to || x.via != y.via || x.channel != y.channel ||
         x.partsBegin != y.partsBegin || x.partsEnd != y.partsEnd)
       return "blood streams join other nodes";
@@ -740,8 +742,8 @@ std::string structuralDifference(const Network& a, const Network& b) {
     if (x.node != y.node || x.channel != y.channel || x.partsBegin != y.partsBegin || x.partsEnd != y.partsEnd)
       return "boundary exchanges differ";
   }
-  for (Index i = 0; i < a.sources.size(); ++i) {
-    const HeatSource &x = a.sources[i], &y = b.sources[i];
+  for (auto i = a.sources.begin(), j = b.sources.begin(); i != a.sources.end(); ++i, ++j) {
+    const HeatSource x = *i, y = *j;
     if (x.node != y.node || x.channel != y.channel || x.modulator != y.modulator || x.law != y.law ||
         x.law >= a.q10Laws.size() || y.law >= b.q10Laws.size() || a.q10Laws[x.law] != b.q10Laws[y.law])
       return "a heat source's Q10 law or reference temperature differs";
@@ -818,10 +820,11 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
       }
       return sum;
     };
-    for (std::size_t k = 0; k < network_.conductances.size(); ++k) {
-      const Conductance& c = network_.conductances[k];
-    const auto [fa, fb] = conductanceFactors(c);
-      const double dG = (P.conductances[k].conductance - M.conductances[k].conductance) / h;
+    for (auto it = network_.conductances.begin(); it != network_.conductances.end(); ++it) {
+      const Index k = it.index();
+      const Conductance c = *it;
+      const auto [fa, fb] = conductanceFactors(c);
+      const double dG = (P.conductances.value(k) - M.conductances.value(k)) / h;
       if (dG == 0.0) continue;
       const double q = dG * (T[c.b] - T[c.a]);
       out[c.a] += fa * q;
@@ -844,15 +847,16 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
         std::size_t k = 0;
         ringFlows(ringM, T, [&](Index node, double q) { out[node] += (flowsP[k++] - q) / h; });
       }
-    for (std::size_t k = 0; k < network_.advections.size(); ++k) {
-      const Advection& a = network_.advections[k];
+    for (auto it = network_.advections.begin(); it != network_.advections.end(); ++it) {
+      const Index k = it.index();
+      const Advection a = *it;
       // The inline part: its coefficient's difference times m plus the coefficient times dm, the number that
       // 0 / h + (0 + that) gave from flowParts.
       const double dF =
           hasInlinePart(a)
-              ? (P.advections[k].flowCapacity - M.advections[k].flowCapacity) / h * modulators_[a.partsBegin] +
+              ? (P.advections.value(k) - M.advections.value(k)) / h * modulators_[a.partsBegin] +
                     a.flowCapacity * dm[a.partsBegin]
-              : (P.advections[k].flowCapacity - M.advections[k].flowCapacity) / h + dParts(a.partsBegin, a.partsEnd);
+              : (P.advections.value(k) - M.advections.value(k)) / h + dParts(a.partsBegin, a.partsEnd);
       forEachHop(a, [&](Index from, Index to) {
         const double q = dF * (T[from] - T[to]);
         out[to] += q;
@@ -871,11 +875,12 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
       if (transient) acc[e.channel] += nodeWeight(e.node) * q;
       toGroup(e.node, e.channel, q);
     }
-    for (std::size_t i = 0; i < network_.sources.size(); ++i) {
-      const HeatSource& s = network_.sources[i];
+    for (auto it = network_.sources.begin(); it != network_.sources.end(); ++it) {
+      const Index i = it.index();
+      const HeatSource s = *it;
       const double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
       const double dmv = s.modulator == none ? 0.0 : dm[s.modulator];
-      const double dP = (P.sources[i].power - M.sources[i].power) / h;
+      const double dP = (P.sources.value(i) - M.sources.value(i)) / h;
       if (dP == 0.0 && dmv == 0.0) continue;
       const auto [rate, reference] = q10Rates_[s.law];
       const double q = (dP * m + s.power * dmv) * std::exp(rate * (T[s.node] - reference));

@@ -259,3 +259,63 @@ layers = [{ tissue = "flesh", thickness = 0.03, cells = 5 }]
   CHECK(e2 <= 1e-12);
   CHECK(e3 <= 1e-12);
 }
+
+TEST_CASE("Network terms stored as runs read back as pushed", "[network]") {
+  // Reference: the terms pushed, field by field (a storage layout: common practice, no source). A radial layer's
+  // cells give one run per kind of term; a term that breaks the pattern starts a new run.
+  TermRuns<HeatSource> sources;
+  const Index law = 3, channel = 2, modulator = 5;
+  std::vector<HeatSource> pushed;
+  for (Index i = 0; i < 6; ++i) pushed.push_back({10 + i, 0.5 + static_cast<double>(i), law, channel, modulator});
+  pushed.push_back({16, 9.0, law, channel, none});  // another modulator: a new run
+  pushed.push_back({40, 1.0, law, channel, none});  // not the next node: a new run
+  for (const HeatSource& s : pushed) sources.push_back(s);
+  auto same = [](const HeatSource& x, const HeatSource& y) {
+    return Index(x.node) == Index(y.node) && x.power == y.power && Index(x.law) == Index(y.law) &&
+           Index(x.channel) == Index(y.channel) && Index(x.modulator) == Index(y.modulator);
+  };
+  REQUIRE(sources.size() == pushed.size());
+  CHECK(sources.runCount() == 3);
+  Index k = 0;
+  for (auto it = sources.begin(); it != sources.end(); ++it, ++k) {
+    CHECK(it.index() == k);
+    CHECK(same(*it, pushed[k]));
+    CHECK(same(sources[k], pushed[k]));
+  }
+  CHECK(k == pushed.size());
+  sources.setValue(2, -1.25);
+  CHECK(sources[2].power == -1.25);
+  CHECK(sources.value(2) == -1.25);
+  sources.pop_back();
+  CHECK(sources.runCount() == 2);
+  CHECK(same(sources.back(), pushed[6]));
+  sources.transform([](HeatSource& s) { s.modulator = 7; });  // one modulator: nodes 10..16 one run
+  CHECK(sources.runCount() == 1);
+  CHECK(Index(sources[6].modulator) == 7);
+  CHECK(Index(sources[6].node) == 16);
+
+  // A perfused radial layer: one run of conductances, streams and sources for the whole layer.
+  auto body = bodyFromToml(tissueTables + R"toml(
+[[segments]]
+name = "trunk"
+shape = "cylinder"
+length = 0.2
+radius = 0.04
+axial_cells = 1
+layers = [ { tissue = "flesh", thickness = 0.04, cells = 50 } ]
+[environment]
+temperature = 283.15
+convection = 20.0
+)toml");
+  const Network& n = body->network();
+  std::printf("[network] 50 radial cells: %zu conductances in %zu runs, %zu streams in %zu, %zu sources in %zu\n",
+              static_cast<std::size_t>(n.conductances.size()), static_cast<std::size_t>(n.conductances.runCount()),
+              static_cast<std::size_t>(n.advections.size()), static_cast<std::size_t>(n.advections.runCount()),
+              static_cast<std::size_t>(n.sources.size()), static_cast<std::size_t>(n.sources.runCount()));
+  CHECK(n.sources.size() >= 50);
+  CHECK(n.sources.runCount() <= 2);
+  CHECK(n.conductances.size() >= 49);
+  CHECK(n.conductances.runCount() <= 3);
+  CHECK(n.advections.size() >= 50);
+  CHECK(n.advections.runCount() <= 3);
+}
