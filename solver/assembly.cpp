@@ -50,6 +50,9 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       if (!(network.nodes[i].capacity > 0.0))
         throw std::invalid_argument(fmt::format("node {} has no heat capacity", network.label(i)));
   if (pattern_.size <= kSlotReplayLimit) {
+    conductanceCopy_.reserve(network.conductances.size());
+    advections_.reserve(network.advections.size());
+    sources_.reserve(network.sources.size());
     conductanceCopy_.assign(network.conductances.begin(), network.conductances.end());
     conductanceChanges_ = network.conductances.changes();
     advections_.assign(network.advections.begin(), network.advections.end());
@@ -92,11 +95,11 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       for (Index p = begin; p < end; ++p) forPart(network.flowParts[p].modulator, row, channel);
     };
     for (Index i = 0; i < pattern_.size; ++i) add(i, i);
-    for (const Conductance& c : network.conductances) {
+    forEachTerm(network.conductances, conductanceCopy_, [&](Index, const Conductance& c) {
       add(c.a, c.b);
       add(c.b, c.a);
-    }
-    for (const Advection& a : network.advections) {
+    });
+    forEachTerm(network.advections, advections_, [&](Index, const Advection& a) {
       const bool cancels = viaCancels(a);
       forEachHop(a, [&](Index from, Index to) {
         add(to, from);
@@ -106,18 +109,18 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
         }
         network.forEachPart(a, [&](Index, const FlowPart& p) { forPart(p.modulator, to, a.channel); });
       });
-    }
+    });
     for (const BoundaryExchange& e : network.exchanges) {
       if (transient) add(accumulator(e.channel), e.node);
       forParts(e.partsBegin, e.partsEnd, e.node, e.channel);
     }
-    for (const HeatSource& s : network.sources) {
+    forEachTerm(network.sources, sources_, [&](Index, const HeatSource& s) {
       if (transient) add(accumulator(s.channel), s.node);
       if (Index u = controlColumn(s.modulator); u != none) {
         add(s.node, u);
         if (transient) add(accumulator(s.channel), u);
       }
-    }
+    });
     for (const SurfaceFace& f : network.faces)
       if (transient)
         for (Index c = 0; c < channels_; ++c) add(accumulator(c), f.node);
@@ -134,15 +137,13 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       for (Index p = begin; p < end; ++p)
         if (Index u = controlColumn(network.flowParts[p].modulator); u != none) visit(r, u);
     };
-    for (auto it = network.conductances.begin(); it != network.conductances.end(); ++it) {
-      const Index k = it.index();
-      const Conductance c = *it;
-      if (network.nodes[c.a].group == network.nodes[c.b].group) continue;
+    forEachTerm(network.conductances, conductanceCopy_, [&](Index k, const Conductance& c) {
+      if (network.nodes[c.a].group == network.nodes[c.b].group) return;
       const Index channel = network.conductanceChannel(k);
       const Index ra = row(c.a, channel), rb = row(c.b, channel);
       for (auto [r, col] : {std::pair{ra, c.a}, {ra, c.b}, {rb, c.a}, {rb, c.b}}) visit(r, col);
-    }
-    for (const Advection& a : network.advections) {
+    });
+    forEachTerm(network.advections, advections_, [&](Index, const Advection& a) {
       const bool cancels = viaCancels(a);
       forEachHop(a, [&](Index from, Index to) {
         if (!(cancels && from == a.via)) visit(row(to, a.channel), from);
@@ -151,15 +152,15 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
           if (Index u = controlColumn(p.modulator); u != none) visit(row(to, a.channel), u);
         });
       });
-    }
+    });
     for (const BoundaryExchange& e : network.exchanges) {
       visit(row(e.node, e.channel), e.node);
       partColumns(e.partsBegin, e.partsEnd, row(e.node, e.channel));
     }
-    for (const HeatSource& s : network.sources) {
+    forEachTerm(network.sources, sources_, [&](Index, const HeatSource& s) {
       visit(row(s.node, s.channel), s.node);
       visit(row(s.node, s.channel), controlColumn(s.modulator));
-    }
+    });
     for (const SurfaceFace& f : network.faces)
       for (Index c = 0; c < channels_; ++c) visit(row(f.node, c), f.node);
   };
@@ -443,13 +444,13 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
   const bool record = !replay && pattern_.size <= kSlotReplayLimit;
   std::size_t cursor = 0;
   std::vector<Slot> recorded;  // kept only when the whole call completes
-  auto position = [&](Index row, Index col) -> Slot {
+  auto position = [&](Index row, Index col) __attribute__((always_inline)) -> Slot {
     if (replay) return slotSequence_[cursor++];
     const Slot s = slot(row, col);
     if (record) recorded.push_back(s);
     return s;
   };
-  auto add = [&](Index row, Index col, double d) { values[position(row, col)] += d; };
+  auto add = [&](Index row, Index col, double d) __attribute__((always_inline)) { values[position(row, col)] += d; };
   // Group-energy rows (transient only): the flow of `channel` into the group of `node`; skipped where there is
   // no such row (or no such column: a source without a control).
   auto toGroup = [&](Index node, Index channel, Index col, double d) {
