@@ -297,15 +297,15 @@ TEST_CASE("Network terms stored as runs read back as pushed", "[network]") {
   // A perfused radial layer: one run of conductances, streams and sources for the whole layer.
   auto body = bodyFromToml(tissueTables + R"toml(
 [[segments]]
-name = "trunk"
+name = "torso"
 shape = "cylinder"
-length = 0.2
-radius = 0.04
 axial_cells = 1
-layers = [ { tissue = "flesh", thickness = 0.04, cells = 50 } ]
+length = 0.3
+radius = 0.05
+layers = [ { tissue = "flesh", thickness = 0.05, cells = 50 } ]
 [environment]
-temperature = 283.15
-convection = 20.0
+convection = 15.0
+temperature = 290.0
 )toml");
   const Network& n = body->network();
   std::printf("[network] 50 radial cells: %zu conductances in %zu runs, %zu streams in %zu, %zu sources in %zu\n",
