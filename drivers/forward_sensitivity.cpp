@@ -108,6 +108,19 @@ bool surfaceDiffers(const Body& a, const Body& b) {
           b.network().surface->faceHeat(f, ts, t, qb, db);
           if (qa != qb || da != db) differs = true;
         }
+    // Sweating's faces at a few states of its controller (control.sweating.max caps the wetted fraction).
+    for (double t : {t0, 0.5 * (t0 + t1)})
+      for (const FaceControl& fc : n.faceControls)
+        for (double u : {0.0, 0.3, 1.0}) {
+          std::vector<double> ua(n.channels.size()), ub(n.channels.size());
+          std::fill(qa.begin(), qa.end(), 0.0);
+          std::fill(da.begin(), da.end(), 0.0);
+          std::fill(qb.begin(), qb.end(), 0.0);
+          std::fill(db.begin(), db.end(), 0.0);
+          a.network().surface->controlledFaceHeat(fc.face, 308.15, t, u, qa, da, ua);
+          b.network().surface->controlledFaceHeat(fc.face, 308.15, t, u, qb, db, ub);
+          if (qa != qb || da != db || ua != ub) differs = true;
+        }
   }
   a.setInterval(0);
   b.setInterval(0);

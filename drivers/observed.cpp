@@ -513,7 +513,7 @@ double ObservationSampler::value(std::size_t s, double time, std::span<const dou
     case K::SegmentSurface: {
       // Face temperatures as the assembly solves them: G (T_n - T_s) + q(T_s, t) = 0 by Newton's method.
       double weighted = 0.0, area = 0.0;
-      std::vector<double> heat(channels), slope(channels);
+      std::vector<double> heat(channels), slope(channels), ignored(channels);
       for (std::size_t i = 0; i < b.nodes.size(); ++i) {
         const SurfaceFace& f = n.faces[b.nodes[i]];
         const double tn = y[f.node];
@@ -522,7 +522,13 @@ double ObservationSampler::value(std::size_t s, double time, std::span<const dou
         for (int iteration = 0; iteration < 60 && !converged; ++iteration) {
           std::fill(heat.begin(), heat.end(), 0.0);
           std::fill(slope.begin(), slope.end(), 0.0);
-          n.surface->faceHeat(b.nodes[i], ts, time, heat, slope);
+          // A face of a segment that sweats evaporates over sweating's wetted fraction at the output's state.
+          const Index sweat = body_.sweatingControl();
+          if (sweat != none && sweat < summary.controls.size() &&
+              body_.environment().sweats(body_.environment().face(b.nodes[i]).segment))
+            n.surface->controlledFaceHeat(b.nodes[i], ts, time, summary.controls[sweat], heat, slope, ignored);
+          else
+            n.surface->faceHeat(b.nodes[i], ts, time, heat, slope);
           double total = 0.0, dq = 0.0;
           for (std::size_t c = 0; c < channels; ++c) {
             total += heat[c];

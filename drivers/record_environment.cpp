@@ -57,14 +57,18 @@ EnvironmentRecorder::EnvironmentRecorder(ResultsFile& f, const Body& body) : bod
                    "fluid around the segment: the medium (changed by events) unless surface.immersion is always "
                    "(water) or never (air); the value of the interval that follows an output at a step");
   }
-  // Segments whose wetted fraction an event changes only (a file of a case without such events is unchanged).
+  // Segments whose wetted fraction an event changes or that sweat only (a file of a case without such events or
+  // [control.sweating] is unchanged).
   for (Index g = 0; g < body.segments().size(); ++g) {
-    if (!body.environment().wetChanges(g)) continue;
+    const bool sweats = body.sweatingControl() != none && body.environment().sweats(g);
+    if (!body.environment().wetChanges(g) && !sweats) continue;
     const std::string path = "/segments/" + body.segments()[g].name + "/wetted_fraction";
     wetted_.emplace_back(g, f.createSeries(path, {}, "1", "share of the exposed surface that is wet"));
     f.setAttribute(path, "definition",
-                   "surface.wetted_fraction, stepped or ramped by [[events]] surface entries; after a step at an "
-                   "output, the value that follows it");
+                   sweats ? "surface.wetted_fraction (stepped or ramped by [[events]] surface entries) plus "
+                            "sweating's state /control/sweating, at most control.sweating.max"
+                          : "surface.wetted_fraction, stepped or ramped by [[events]] surface entries; after a step at "
+                            "an output, the value that follows it");
   }
   // Tucked segments only (a file of a case without tucking is unchanged).
   for (const Body::Tucking& t : body.tucking()) {
@@ -92,7 +96,7 @@ void EnvironmentRecorder::write(ResultsFile& f, double t, std::span<const double
     f.append(inWater_[g], {&wet, 1});
   }
   for (auto [g, series] : wetted_) {
-    const double wetted = body_.environment().wettedFraction(g, t);
+    const double wetted = body_.wettedFraction(g, t, controls);
     f.append(series, {&wetted, 1});
   }
   for (auto [g, series] : tucked_) {

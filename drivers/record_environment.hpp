@@ -15,7 +15,7 @@ namespace thermorph {
 class EnvironmentRecorder {
  public:
   //! Creates /environment/*, /control/*, /segments/*/convection_coefficient, contact_fraction, in_water (tucked_fraction of tucked segments,
-  //! wetted_fraction of segments whose wetting events change) and
+  //! wetted_fraction of segments whose wetting events change or that sweat) and
   //! writes /events.
   EnvironmentRecorder(ResultsFile& f, const Body& body);
   //! Appends time t; `controls` from the summary, `faceTemperatures` [K] from the budget.
@@ -25,7 +25,7 @@ class EnvironmentRecorder {
   const Body& body_;
   std::vector<std::size_t> environment_, control_, convection_, contact_, inWater_;
   std::vector<std::pair<Index, std::size_t>> tucked_;  //!< (tucked segment, its /segments/NAME/tucked_fraction)
-  std::vector<std::pair<Index, std::size_t>> wetted_;  //!< (segment wetted by events, its /segments/NAME/wetted_fraction)
+  std::vector<std::pair<Index, std::size_t>> wetted_;  //!< (segment wetted by events or sweating, its /segments/NAME/wetted_fraction)
   std::vector<double> values_;
 };
 

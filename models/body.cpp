@@ -419,6 +419,22 @@ void Body::buildControllers() {
   if (cs.panting.present)
     pantControl_ = add(cs.panting, 2, "panting", 1.0, cs.panting.gain, 1.0, cs.panting.upper, 1.0);
   buildLocalControllers();
+  if (cs.sweating.present) {
+    // Sweating: s* = clamp(gain (T - set point), 0, max), off 0; the faces of the segments that sweat evaporate over
+    // w_0 + s, at most max (EnvironmentModel::sweatingWettedFraction). After the local controllers (its enable and
+    // set-point tracks: PhysiologyModel::sweatingController).
+    sweatControl_ = add(cs.sweating, PhysiologyModel::sweatingController(case_), "sweating", 0.0, cs.sweating.gain,
+                        0.0, cs.sweating.upper, 0.0);
+    for (Index f = 0; f < network_.faces.size(); ++f)
+      if (environment_->sweats(environment_->face(f).segment) && environment_->face(f).contact != FaceContact::Column)
+        network_.faceControls.push_back({f, sweatControl_});
+  }
+}
+
+double Body::wettedFraction(Index segment, double time, std::span<const double> controls) const {
+  if (sweatControl_ == none || !environment_->sweats(segment) || sweatControl_ >= controls.size())
+    return environment_->wettedFraction(segment, time);
+  return environment_->sweatingWettedFraction(segment, time, controls[sweatControl_]);
 }
 
 std::vector<std::pair<Index, double>> Body::localSkinNodes(Index segment) const {

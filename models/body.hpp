@@ -4,6 +4,7 @@
 #include <memory>
 #include <stdexcept>
 #include <optional>
+#include <span>
 #include <string>
 #include <utility>
 #include <vector>
@@ -111,6 +112,12 @@ class Body {
 
   //! Central blood pool node, when the arterial supply is not pinned and blood flows.
   std::optional<Index> poolNode() const { return pool_; }
+  //! The wetted fraction of a segment at time t with the controller states `controls` (RunSummary::controls): a
+  //! segment that sweats its own plus sweating's ([control.sweating]), any other its own (surface.wetted_fraction
+  //! and its events) [1].
+  double wettedFraction(Index segment, double time, std::span<const double> controls) const;
+  //! The controller of [control.sweating] (index in Network::controllers), or none.
+  Index sweatingControl() const { return sweatControl_; }
   //! Index of the segment whose innermost layer defines the core temperature.
   Index coreSegment() const { return core_; }
   //! Total arterial flow leaving the pool (cardiac output used) [m3/s] and the case's cardiac output [m3/s].
@@ -242,7 +249,7 @@ class Body {
   std::vector<SegmentMesh> meshes_;
   std::unique_ptr<EnvironmentModel> environment_;
   std::unique_ptr<PhysiologyModel> physiology_;
-  Index skinControl_ = none, shuntControl_ = none, shiverControl_ = none, pantControl_ = none;
+  Index skinControl_ = none, shuntControl_ = none, shiverControl_ = none, pantControl_ = none, sweatControl_ = none;
   //! Per segment: the local controller of its skin perfusion and shunts, and its CIVD state (none: the body-wide
   //! controller, or none at all); see buildLocalControllers.
   std::vector<Index> localSkinControl_, localShuntControl_, civdControl_;

@@ -540,7 +540,7 @@ SegmentSpec readSegment(const CaseReader& reader, const Case& c, const toml::tab
   return s;
 }
 
-//! [control.vasomotor], [control.shivering], [control.panting].
+//! [control.vasomotor], [control.shivering], [control.panting], [control.sweating].
 void readControl(const TableView& top, Case& c) {
   TableView control = top.child("control");
   auto common = [&](const char* name, ControllerSpec& spec) {
@@ -566,13 +566,29 @@ void readControl(const TableView& top, Case& c) {
     c.control.panting.lower = 1.0;
     c.control.panting.upper = t->number("max");
   }
+  if (auto t = common("sweating", c.control.sweating)) {
+    c.control.sweating.lower = 0.0;
+    c.control.sweating.upper = t->number("max");
+    // Segment names are checked once the segments are read (checkSweating).
+    if (t->has("segments")) {
+      std::stringstream ss(t->text("segments"));
+      for (std::string item; std::getline(ss, item, ',');) {
+        item.erase(0, item.find_first_not_of(" \t"));
+        item.erase(item.find_last_not_of(" \t") + 1);
+        if (!item.empty()) c.control.sweatingSegments.push_back(item);
+      }
+      if (c.control.sweatingSegments.empty())
+        t->fail("segments", "names no segment (expected e.g. \"trunk, neck\"; leave the key out for every segment "
+                            "without a coat)");
+    }
+  }
   // [control.local.NAME]: local vasomotor controllers (segment names are checked once the segments are read).
   if (const toml::node* local = control.node("local"))
     for (auto&& [key, child] : *local->as_table()) {
       LocalControllerSpec spec;
       spec.name = std::string(key.str());
       TableView t = control.namedChild("local", spec.name);
-      if (spec.name == "vasomotor" || spec.name == "shivering" || spec.name == "panting")
+      if (spec.name == "vasomotor" || spec.name == "shivering" || spec.name == "panting" || spec.name == "sweating")
         control.child("local").fail(spec.name, fmt::format("a local controller may not be named \"{}\" (the name of a "
                                                     "body-wide controller, used by [[events]] control)", spec.name));
       if (!t.has("segments")) t.missing("segments");
@@ -639,6 +655,26 @@ void checkLocalControllers(const TableView& top, const Case& c) {
   }
 }
 
+//! [control.sweating]: every named segment exists and its outer surface is skin (no coat: a coat's wetted fraction is
+//! a wet coat, not sweating); without `segments`, some segment has no coat.
+void checkSweating(const TableView& top, const Case& c) {
+  if (!c.control.sweating.present) return;
+  TableView t = top.child("control").child("sweating");
+  std::vector<std::string> names;
+  for (const SegmentSpec& s : c.segments) names.push_back(s.name);
+  for (const std::string& name : c.control.sweatingSegments) {
+    auto it = std::find_if(c.segments.begin(), c.segments.end(), [&](const SegmentSpec& s) { return s.name == name; });
+    if (it == c.segments.end())
+      t.fail("segments", fmt::format("no segment named \"{}\" (segments: {})", name, fmt::join(names, ", ")));
+    if (it->coat)
+      t.fail("segments", fmt::format("segment \"{}\" has a coat: its outer surface is the coat's, not skin, so it "
+                                     "cannot sweat (a wet coat is its surface.wetted_fraction)", name));
+  }
+  if (c.control.sweatingSegments.empty() &&
+      std::all_of(c.segments.begin(), c.segments.end(), [](const SegmentSpec& s) { return s.coat.has_value(); }))
+    t.fail("segments", "every segment has a coat: no segment has skin as its outer surface to sweat from");
+}
+
 toml::table controlToml(const ControlSpec& control) {
   toml::table out;
   auto common = [&](const ControllerSpec& spec) {
@@ -665,6 +701,13 @@ toml::table controlToml(const ControlSpec& control) {
     toml::table t = common(control.panting);
     t.insert("max", control.panting.upper);
     out.insert("panting", t);
+  }
+  if (control.sweating.present) {
+    toml::table t = common(control.sweating);
+    t.insert("max", control.sweating.upper);
+    if (!control.sweatingSegments.empty())
+      t.insert("segments", fmt::format("{}", fmt::join(control.sweatingSegments, ", ")));
+    out.insert("sweating", t);
   }
   toml::table local;
   for (const LocalControllerSpec& spec : control.local) {
@@ -1217,10 +1260,11 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
         throw CaseError(fmt::format("{}: events (at {:g} s): vasomotor.{}: no segment of that name (segments: {}, "
                                     "or all)", file, c.events[i].at, v.segment, fmt::join(names, ", ")));
     for (const ControlTarget& t : c.events[i].control) {
-      if (t.controller != "vasomotor" && t.controller != "shivering" && t.controller != "panting") {
+      if (t.controller != "vasomotor" && t.controller != "shivering" && t.controller != "panting" &&
+          t.controller != "sweating") {
         if (std::none_of(c.control.local.begin(), c.control.local.end(),
                          [&](const LocalControllerSpec& l) { return l.name == t.controller; })) {
-          std::vector<std::string> known{"vasomotor", "shivering", "panting"};
+          std::vector<std::string> known{"vasomotor", "shivering", "panting", "sweating"};
           for (const LocalControllerSpec& l : c.control.local) known.push_back(l.name);
           throw CaseError(fmt::format("{}{}: {}: unknown controller \"{}\" (the case has: {})", file,
                                       t.where.empty() ? "" : ":" + t.where, t.path, t.controller,
@@ -1228,14 +1272,17 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
         }
         continue;
       }
-      const ControllerSpec& spec = t.controller == "vasomotor" ? c.control.vasomotor
-                                   : t.controller == "shivering" ? c.control.shivering : c.control.panting;
+      const ControllerSpec& spec = t.controller == "vasomotor"   ? c.control.vasomotor
+                                   : t.controller == "shivering" ? c.control.shivering
+                                   : t.controller == "panting"   ? c.control.panting
+                                                                 : c.control.sweating;
       if (!spec.present)
         throw CaseError(fmt::format("{}: events (at {:g} s): control.{}: the case has no [control.{}]", file,
                                     c.events[i].at, t.controller, t.controller));
     }
   }
   checkLocalControllers(top, c);
+  checkSweating(top, c);
   checkOverriddenByTimeline(top, c, overrides);
   // Keys the case gives that have no effect in it (models/inert_keys.hpp): a warning each, naming where.
   // Given-ness of the values in the tables where a key can be without effect (the rest is not asked: a sweep loads
@@ -1584,6 +1631,19 @@ std::string caseReferenceMarkdown() {
   }
   os << "\n**Caution.** " << caution << "\n";
   return os.str();
+}
+
+std::vector<char> sweatingSegments(const Case& c) {
+  std::vector<char> out(c.segments.size(), 0);
+  if (!c.control.sweating.present) return out;
+  for (std::size_t g = 0; g < c.segments.size(); ++g) {
+    const SegmentSpec& s = c.segments[g];
+    out[g] = c.control.sweatingSegments.empty()
+                 ? !s.coat.has_value()
+                 : std::find(c.control.sweatingSegments.begin(), c.control.sweatingSegments.end(), s.name) !=
+                       c.control.sweatingSegments.end();
+  }
+  return out;
 }
 
 }  // namespace thermorph

@@ -220,7 +220,12 @@ struct LocalControllerSpec {
 struct ControlSpec {
   ControllerSpec vasomotor, shivering, panting;
   std::vector<LocalControllerSpec> local;  //!< in the order of the case file
+  //! [control.sweating]: wetted fraction of the named segments' skin w_0 + clamp(gain (T - set_point), 0, max), at
+  //! most max (lower = 0, upper = max); w_0 the segment's own (surface.wetted_fraction and its events).
+  ControllerSpec sweating;
+  std::vector<std::string> sweatingSegments;  //!< as given (empty: every segment without a coat)
 };
+
 
 //! A file a case was read from (provenance): the case text itself, then every file it reads (weather, ...).
 struct InputFile {
@@ -262,6 +267,10 @@ struct Case {
   //! was not resolved.
   std::shared_ptr<const std::vector<SegmentGridEstimate>> gridEstimates;
 };
+
+//! The segments [control.sweating] wets (its `segments`, or every segment without a coat), as flags by segment
+//! index; all 0 without [control.sweating].
+std::vector<char> sweatingSegments(const Case& c);
 
 //! Upper limit on the total number of nodes in one case (memory and run time guard).
 inline constexpr long maxCells = 2'000'000;

@@ -378,7 +378,7 @@ constexpr std::array params = {
     Param{"events[].respiration.panting", K::Number, "", "", 0, 50, false, "",
           "Ventilation multiplier (0: breath hold)."},
     Param{"events[].control", K::NamedTables, "", "", 0, 0, false, "",
-          "Controller changes by name (vasomotor, shivering, panting, or the NAME of a [control.local.NAME]): "
+          "Controller changes by name (vasomotor, shivering, panting, sweating, or the NAME of a [control.local.NAME]): "
           "`control = { vasomotor = { enabled = \"off\" } }`."},
     Param{"events[].control.*.enabled", K::Choice, "", "", 0, 0, false, "on|off", "Switch the controller on or off."},
     Param{"events[].control.*.set_point", K::Quantity, "K", "", tMin, tMax, false, "", "New set point."},
@@ -423,11 +423,27 @@ constexpr std::array params = {
     Param{"control.panting.max", K::Number, "", "10", 1, 100, false, "", "Largest ventilation multiplier."},
     Param{"control.panting.time_constant", K::Quantity, "s", "1 min", 0, 1e6, true, "", "First-order lag."},
     Param{"control.panting.enabled", K::Choice, "", "on", 0, 0, false, "on|off", "Initially on or off."},
+    Param{"control.sweating", K::Table, "", "", 0, 0, false, "",
+          "Sweating: the wetted fraction of each named segment's skin is its own (surface.wetted_fraction and its "
+          "[[events]]) plus clamp(gain (T - set_point), 0, max), at most max (a skin wetted beyond max keeps its own); "
+          "the evaporation of those segments' faces scales with it. Below the set point sweating adds nothing (it "
+          "never dries a wetted skin). The output is the controller state /control/sweating; the wetted fraction is "
+          "stored as /segments/NAME/wetted_fraction. Defaults are illustrative."},
+    Param{"control.sweating.segments", K::Text, "", "", 0, 0, false, "",
+          "Comma-separated names of the segments that sweat, e.g. \"trunk, neck\"; each must have skin as its outer "
+          "surface (no coat). Default: every segment without a coat."},
+    Param{"control.sweating.signal", K::Choice, "", "core", 0, 0, false, "core|mean_skin", "Controlled temperature."},
+    Param{"control.sweating.set_point", K::Quantity, "K", "37.5 degC", tMin, tMax, false, "", "Set point."},
+    Param{"control.sweating.gain", K::Quantity, "1/K", "0.3 1/K", 0, 100, false, "", "Wetted fraction added per K."},
+    Param{"control.sweating.max", K::Number, "", "0.8", 0, 1, false, "",
+          "Largest wetted fraction sweating brings the skin to (at most 1: the whole exposed skin wet)."},
+    Param{"control.sweating.time_constant", K::Quantity, "s", "5 min", 0, 1e6, true, "", "First-order lag."},
+    Param{"control.sweating.enabled", K::Choice, "", "on", 0, 0, false, "on|off", "Initially on or off."},
     Param{"control.local", K::NamedTables, "", "", 0, 0, false, "",
           "Local vasomotor controllers `[control.local.NAME]`: the form of [control.vasomotor] acting only on the "
           "named segments, which [control.vasomotor] then leaves alone; a segment may be named by one local "
           "controller only (two: exit 2). NAME is used in [[events]] `control = { NAME = {...} }` and may not be "
-          "vasomotor, shivering or panting. Defaults are illustrative."},
+          "vasomotor, shivering, panting or sweating. Defaults are illustrative."},
     Param{"control.local.*.segments", K::Text, "", "", 0, 0, false, "",
           "Comma-separated names of the segments it acts on, e.g. \"leg, foot\" (required); each needs a layer "
           "with role skin."},

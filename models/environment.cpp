@@ -103,6 +103,7 @@ EnvironmentModel::EnvironmentModel(const Case& c, Network& network) : case_(c) {
     for (const WetTarget& w : e.wet)
       for (Index g = 0; g < case_.segments.size(); ++g)
         if (targetsSegment(w.segment, case_.segments[g].name)) wetEvents_[g] = 1;
+  sweats_ = sweatingSegments(case_);
 
   for (const EventSpec& e : case_.events)
     for (double t : {e.at, e.at + e.ramp})
@@ -301,6 +302,25 @@ void EnvironmentModel::confirmRanges(double time) const {
 
 void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<double> channelHeat,
                                 std::span<double> channelDerivative) const {
+  exchange(face, Ts, time, nullptr, channelHeat, channelDerivative, {});
+}
+
+void EnvironmentModel::controlledFaceHeat(Index face, double Ts, double time, double control,
+                                          std::span<double> channelHeat, std::span<double> channelDerivative,
+                                          std::span<double> controlDerivative) const {
+  exchange(face, Ts, time, &control, channelHeat, channelDerivative, controlDerivative);
+}
+
+double EnvironmentModel::sweatingWettedFraction(Index segment, double time, double u, double* slope) const {
+  const double own = wettedFraction(segment, time);
+  const double room = std::max(0.0, case_.control.sweating.upper - own);
+  if (slope) *slope = u >= 0.0 && u < room ? 1.0 : 0.0;
+  return own + std::clamp(u, 0.0, room);
+}
+
+void EnvironmentModel::exchange(Index face, double Ts, double time, const double* control,
+                                std::span<double> channelHeat, std::span<double> channelDerivative,
+                                std::span<double> controlDerivative) const {
   const FaceDescription& f = faces_[face];
   const SegmentSurface& surface = surfaces_[f.segment];
   const SurfaceSpec& spec = case_.segments[f.segment].surface;
@@ -347,7 +367,12 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
 
     // Cutaneous evaporation by the heat-mass transfer analogy with air properties at the film temperature;
     // the slope includes h(T_s) and the film properties' dependence on T_s (through T_film = (T_s + T_a)/2).
-    if (const double wetted = wettedFraction(f.segment, time); wetted > 0.0) {
+    // A segment that sweats: w_0 plus sweating's state (sweatingWettedFraction); the flux is linear in w, so
+    // d q / d u = (dw/du) q / w, from the flux at w = 1 when w is 0.
+    double dwdu = 0.0;
+    const double wetted = control ? sweatingWettedFraction(f.segment, time, *control, &dwdu)
+                                  : wettedFraction(f.segment, time);
+    if (wetted > 0.0 || dwdu > 0.0) {
       const double film = 0.5 * (Ts + fl.temperature);
       const AnalogyGroup group = analogyGroup(Dual{film, 1.0});
       EvaporationInput in;
@@ -355,14 +380,17 @@ void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<do
       in.surfaceTemperature = Ts;
       in.airTemperature = fl.temperature;
       in.relativeHumidity = value(V::RelativeHumidity, time);
-      in.wettedFraction = wetted;
+      in.wettedFraction = wetted > 0.0 ? wetted : 1.0;
       in.airDensity = kStandardPressure / (kGasConstantDryAir * film);
       in.airSpecificHeat = group.specificHeat;
       in.lewisNumber = group.lewisNumber;
       const EvaporationFlux e = cutaneousEvaporation(in);
       const double dLogGroup = group.group.d / group.group.v;  // d ln(group) / d T_film [1/K]
-      channelHeat[evaporationChannel_] += e.flux * exposed;
-      channelDerivative[evaporationChannel_] += exposed * (e.dFlux_dTs + e.dFlux_dh * dh + e.flux * 0.5 * dLogGroup);
+      if (dwdu > 0.0) controlDerivative[evaporationChannel_] += dwdu * exposed * e.flux / in.wettedFraction;
+      if (wetted > 0.0) {
+        channelHeat[evaporationChannel_] += e.flux * exposed;
+        channelDerivative[evaporationChannel_] += exposed * (e.dFlux_dTs + e.dFlux_dh * dh + e.flux * 0.5 * dLogGroup);
+      }
     }
   }
 

@@ -54,6 +54,8 @@ class EnvironmentModel : public SurfaceModel {
 
   //! Describe the next exterior face; faces are added in network face-index order.
   void addFace(const FaceDescription& face);
+  //! The description of exterior face f.
+  const FaceDescription& face(Index f) const { return faces_[f]; }
 
   //! Heat into the body through one face [W] per channel and its derivative with the face temperature [W/K]:
   //!   convection  h A_e (T_f - T_s), h from correlations at the film temperature or fixed;
@@ -70,6 +72,11 @@ class EnvironmentModel : public SurfaceModel {
   //! A_e = (1 - f_c - f_t - f_h) A and no substrate term, a None face A_e = A and no substrate term.
   void faceHeat(Index face, double faceTemperature, double time, std::span<double> channelHeat,
                 std::span<double> channelDerivative) const override;
+  //! A face of a segment that sweats ([control.sweating]): as faceHeat with the wetted fraction
+  //! sweatingWettedFraction(segment, time, u), and d q_evaporation / d u into controlDerivative.
+  void controlledFaceHeat(Index face, double faceTemperature, double time, double control,
+                          std::span<double> channelHeat, std::span<double> channelDerivative,
+                          std::span<double> controlDerivative) const override;
   //! Reports (budgets, mean coefficients at outputs) read the per-face coefficient cache but do not write it.
   void setReporting(bool reporting) const override { reporting_ = reporting; }
 
@@ -119,6 +126,13 @@ class EnvironmentModel : public SurfaceModel {
   }
   //! Some [[events]] entry sets the segment's wetted fraction (it may change during the run).
   bool wetChanges(Index segment) const { return wetEvents_[segment] != 0; }
+  //! The segment sweats ([control.sweating] and its `segments`, models/case.hpp sweatingSegments).
+  bool sweats(Index segment) const { return sweats_[segment] != 0; }
+  //! The wetted fraction of a segment that sweats, with sweating's state u ([control.sweating]): its own wetted
+  //! fraction w_0 = wettedFraction(segment, time) plus u, at most max (control.sweating.max); a skin wetted beyond
+  //! max by its own keeps w_0, and u below 0 adds nothing: w_0 + clamp(u, 0, max(0, max - w_0)). `slope`: dw/du
+  //! (1 inside, 0 where clamped; 1 at u = 0 exactly).
+  double sweatingWettedFraction(Index segment, double time, double u, double* slope = nullptr) const;
   //! The largest share of a segment's surface covered, contact plus tucking, over the run's intervals (a coated
   //! segment's coat rings are built for the rest) [1]; the largest contact fraction when nothing is tucked.
   double maxCoveredFraction(Index segment) const { return maxCovered_[segment]; }
@@ -190,6 +204,10 @@ class EnvironmentModel : public SurfaceModel {
   //! Per segment: the wetted fraction of the current interval, offset + slope t [1, 1/s]; set by some event.
   std::vector<double> wetOffset_, wetSlope_;
   std::vector<char> wetEvents_;
+  std::vector<char> sweats_;  //!< per segment: it sweats ([control.sweating])
+  //! faceHeat and controlledFaceHeat: `control` the state of sweating's controller (nullptr: the face's own w_0).
+  void exchange(Index face, double faceTemperature, double time, const double* control, std::span<double> channelHeat,
+                std::span<double> channelDerivative, std::span<double> controlDerivative) const;
   mutable std::vector<std::string> warnings_;
   //! Last correlation result per face and the fluid it was for: the face Newton solve ends with a call a few nK
   //! from its last iterate, and the next right-hand side starts from the same face temperature.

@@ -386,7 +386,7 @@ void readPhysiologyEvent(const TableView& view, EventSpec& e) {
     for (auto&& [name, child] : *node->as_table()) {
       TableView t = view.namedChild("control", name.str());
       std::string controller(name.str());
-      // vasomotor, shivering, panting or a [control.local.NAME]: checked by the case loader against the controllers.
+      // vasomotor, shivering, panting, sweating or a [control.local.NAME]: checked by the case loader against the controllers.
       ControlTarget target;
       target.controller = controller;
       if (child.source().begin.line > 0)

@@ -143,7 +143,7 @@ struct WetTarget {
 
 //! Controller change of one event.
 struct ControlTarget {
-  std::string controller;  //!< vasomotor, shivering, panting or the NAME of a [control.local.NAME]
+  std::string controller;  //!< vasomotor, shivering, panting, sweating or the NAME of a [control.local.NAME]
   std::string where;       //!< "line:column" of its table in the case file (messages), empty for --set
   std::string path;        //!< key path of its table, e.g. "events.2.control.feet" (messages)
   std::optional<bool> enabled;

@@ -307,6 +307,12 @@ void InertKeys::controllers() {
     off("panting", "control.panting", {"set_point", "max", "time_constant", "enabled"},
         "control.panting.gain = 0: the ventilation multiplier 1 + gain x (T - set_point) is 1 at every temperature, "
         "on or off, as without panting (give a gain > 0)");
+  if (k.sweating.present && offThroughout("sweating", k.sweating.enabled))
+    off("sweating", "control.sweating", {"segments", "signal", "set_point", "gain", "max", "time_constant"});
+  else if (k.sweating.present && !(k.sweating.gain != 0.0))
+    off("sweating", "control.sweating", {"segments", "set_point", "max", "time_constant", "enabled"},
+        "control.sweating.gain = 0: sweating adds clamp(gain x (T - set_point), 0, max) = 0 to the wetted fraction "
+        "at every temperature, on or off, as without sweating (give a gain > 0)");
   // A local controller's segments and CIVD act whether it is on or off (the body-wide controller leaves its
   // segments alone; CIVD is never switched).
   for (const LocalControllerSpec& l : k.local) {

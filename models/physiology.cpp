@@ -28,6 +28,9 @@ PhysiologyModel::PhysiologyModel(const Case& c, const EnvironmentModel& environm
     enabled_.push_back(track(l.enabled ? 1.0 : 0.0));
     setPoint_.push_back(track(l.setPoint));
   }
+  // [control.sweating] after the local controllers: 3 + local.size() (sweatingController()).
+  enabled_.push_back(track(c.control.sweating.enabled ? 1.0 : 0.0));
+  setPoint_.push_back(track(c.control.sweating.setPoint));
   breakpoints_ = environment.breakpoints();
   setInterval(0);
 }
@@ -83,7 +86,8 @@ void PhysiologyModel::setInterval(std::size_t interval) {
     if (e.panting) moveTrack(panting_, *e.panting, e, complete);
     for (const ControlTarget& c : e.control) {
       std::size_t k = c.controller == "vasomotor" ? 0 : c.controller == "shivering" ? 1 : 2;
-      if (c.controller != "vasomotor" && c.controller != "shivering" && c.controller != "panting")
+      if (c.controller == "sweating") k = sweatingController(case_);
+      else if (c.controller != "vasomotor" && c.controller != "shivering" && c.controller != "panting")
         for (std::size_t i = 0; i < case_.control.local.size(); ++i)
           if (case_.control.local[i].name == c.controller) k = 3 + i;
       // Switching is a step even within a ramped event.

@@ -27,8 +27,10 @@ class PhysiologyModel : public ScheduleModel {
     Index segment = 0;
     bool skin = false;
     bool brain = false;  //!< spared by bradycardia (brain by default; see [circulation] bradycardia_tissues)
-    Index controller = 0;  //!< 0 vasomotor, 1 shivering, 2 panting, 3 + i: case.control.local[i]
+    Index controller = 0;  //!< 0 vasomotor, 1 shivering, 2 panting, 3 + i: case.control.local[i], then sweating
   };
+  //! The controller index of [control.sweating] (Schedule::controller): after the local controllers.
+  static Index sweatingController(const Case& c) { return 3 + c.control.local.size(); }
 
   //! `respiratorySegment`: the segment that breathes (none: no respiration).
   PhysiologyModel(const Case& c, const EnvironmentModel& environment, double basalRate, Index respiratorySegment);

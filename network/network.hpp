@@ -377,6 +377,16 @@ class SurfaceModel {
   //! [W/K] to `channelDerivative` (both of length: number of channels).
   virtual void faceHeat(Index face, double faceTemperature, double time, std::span<double> channelHeat,
                         std::span<double> channelDerivative) const = 0;
+  //! As faceHeat for a face whose exchange also depends on a controller's state u (Network::faceControls: sweating's
+  //! wetted fraction), at that state; adds each channel's derivative with respect to u [W] to `controlDerivative`.
+  //! The default ignores u (the face's heats as faceHeat gives them, derivatives 0).
+  virtual void controlledFaceHeat(Index face, double faceTemperature, double time, double control,
+                                  std::span<double> channelHeat, std::span<double> channelDerivative,
+                                  std::span<double> controlDerivative) const {
+    (void)control;
+    (void)controlDerivative;
+    faceHeat(face, faceTemperature, time, channelHeat, channelDerivative);
+  }
   //! While set, faceHeat calls are reports (budgets at outputs), not steps of the integration: a model that keeps
   //! caches between calls reads them but leaves them as they are, so that a report never changes the
   //! integrator's path (a run with a results file and a sweep run without one stay bit for bit equal).
@@ -399,6 +409,15 @@ struct Junction {
   std::vector<JunctionRing> rings;
 };
 
+//! A face whose exchange with the surroundings also depends on a controller's state (SurfaceModel::
+//! controlledFaceHeat): sweating's wetted fraction of the face's segment.
+struct FaceControl {
+  Index32 face = 0, controller = 0;
+  bool operator==(const FaceControl& o) const {
+    return Index(face) == Index(o.face) && Index(controller) == Index(o.controller);
+  }
+};
+
 struct Network {
   std::vector<NetworkNode> nodes;
   TermRuns<Conductance> conductances;
@@ -412,6 +431,8 @@ struct Network {
   TermRuns<HeatSource> sources;
   std::vector<Q10Law> q10Laws;  //!< the sources' Q10 laws (HeatSource::law)
   std::vector<SurfaceFace> faces;
+  //! The faces whose exchange depends on a controller's state, by ascending face (none without [control.sweating]).
+  std::vector<FaceControl> faceControls;
   std::vector<std::string> groups;    //!< group names (segments)
   std::vector<double> groupWeights;   //!< multiplicity of each group in the budget (1 unless mirrored)
   std::vector<std::string> channels;  //!< budget channel names
@@ -490,6 +511,7 @@ struct Network {
     exchanges.shrink_to_fit();
     sources.shrink_to_fit();
     faces.shrink_to_fit();
+    faceControls.shrink_to_fit();
     flowParts.shrink_to_fit();
     namedNodes.shrink_to_fit();
     junctions.shrink_to_fit();

@@ -216,7 +216,7 @@ struct Collector {
       // As the results file stores them (drivers/record_environment.cpp): the current interval's values.
       contact[g].push_back(body.environment().contactFraction(g));
       inWater[g].push_back(body.environment().immersed(g, t) ? 1.0 : 0.0);
-      wetted[g].push_back(body.environment().wettedFraction(g, t));
+      wetted[g].push_back(body.wettedFraction(g, t, s.controls));  // sweating's included
       tucked[g].push_back(body.environment().tuckedFraction(g));
     }
   }
@@ -248,7 +248,7 @@ struct Collector {
       d["count"] = m.weight;
       d["contact_fraction"] = array(contact[g], {nt});
       d["in_water"] = array(inWater[g], {nt});
-      d["wetted_fraction"] = array(wetted[g], {nt});   // every segment (the file: those events wet)
+      d["wetted_fraction"] = array(wetted[g], {nt});   // every segment (the file: those events wet or that sweat)
       d["tucked_fraction"] = array(tucked[g], {nt});   // every segment (the file: tucked ones)
       py::dict f;
       for (std::size_t c = 0; c < channels; ++c) f[py::str(n.channels[c])] = array(segmentFlows[g * (channels + 1) + c], {nt});

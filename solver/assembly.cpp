@@ -124,6 +124,13 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
     for (const SurfaceFace& f : network.faces)
       if (transient)
         for (Index c = 0; c < channels_; ++c) add(accumulator(c), f.node);
+    // A face whose heats depend on a controller's state: its node's row and the energy rows in that state's column.
+    for (const FaceControl& fc : network.faceControls) {
+      const Index node = network.faces[fc.face].node, u = nodes_ + fc.controller;
+      add(node, u);
+      if (transient)
+        for (Index c = 0; c < channels_; ++c) add(accumulator(c), u);
+    }
     for (Index k = 0; k < controls_; ++k)
       for (auto [node, weight] : network.controllers[k].signal) add(nodes_ + k, node);
     if (!transient) return;
@@ -163,6 +170,8 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
     });
     for (const SurfaceFace& f : network.faces)
       for (Index c = 0; c < channels_; ++c) visit(row(f.node, c), f.node);
+    for (const FaceControl& fc : network.faceControls)
+      for (Index c = 0; c < channels_; ++c) visit(row(network.faces[fc.face].node, c), nodes_ + fc.controller);
   };
   // The terms' rows bucketed by column (counted first, so that the buckets are allocated once at their exact
   // size), then each column's rows sorted and made unique: the CSC pattern that sorting (column, row) keys of all
@@ -202,6 +211,15 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
   faceEvalSlope_.assign(network.faces.size(), 0.0);
   scratchHeat_.resize(channels_);
   scratchDerivative_.resize(channels_);
+  if (!network.faceControls.empty()) {
+    faceControl_.assign(network.faces.size(), none);
+    for (const FaceControl& fc : network.faceControls) {
+      if (fc.face >= network.faces.size() || fc.controller >= controls_)
+        throw std::invalid_argument("a face control refers to a missing face or controller");
+      faceControl_[fc.face] = fc.controller;
+    }
+    controlDerivative_.resize(channels_);
+  }
   modulators_.resize(network.modulators.size());
   scheduleValues_.resize(network.modulators.size());
 }
@@ -264,7 +282,8 @@ double NetworkSystem::controlTarget(const Controller& c, double time, std::span<
 
 NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, double nodeTemperature,
                                                      std::span<double> channelHeat,
-                                                     std::span<double> channelDerivative, bool remember) const {
+                                                     std::span<double> channelDerivative, bool remember,
+                                                     const double* control) const {
   // Face balance G (T_n - T_s) + q(T_s) = 0, solved by Newton for T_s; then by the implicit function theorem
   // dT_s/dT_n = G / (G - q'(T_s)).
   const SurfaceFace& f = network_.faces[face];
@@ -278,7 +297,12 @@ NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, do
   for (int iteration = 0; iteration < 60; ++iteration) {
     std::fill(channelHeat.begin(), channelHeat.end(), 0.0);
     std::fill(channelDerivative.begin(), channelDerivative.end(), 0.0);
-    network_.surface->faceHeat(face, Ts, time, channelHeat, channelDerivative);
+    if (control) {
+      std::fill(controlDerivative_.begin(), controlDerivative_.end(), 0.0);
+      network_.surface->controlledFaceHeat(face, Ts, time, *control, channelHeat, channelDerivative, controlDerivative_);
+    } else {
+      network_.surface->faceHeat(face, Ts, time, channelHeat, channelDerivative);
+    }
     double q = 0.0, dq = 0.0;
     for (Index c = 0; c < channels_; ++c) {
       q += channelHeat[c];
@@ -316,7 +340,7 @@ NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, do
         faceEvalTemperature_[face] = evaluated;
         faceEvalSlope_[face] = dq;
       }
-      return {Ts, slope};
+      return {Ts, slope, dq};
     }
   }
   throw std::runtime_error(fmt::format("face temperature did not converge at {}", network_.label(f.node)));
@@ -404,7 +428,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
   });
   for (Index f = 0; f < network_.faces.size(); ++f) {
     Index node = network_.faces[f].node;
-    solveFace(f, time, T[node], scratchHeat_, scratchDerivative_);
+    solveFace(f, time, T[node], scratchHeat_, scratchDerivative_, true, faceControl(f, T));
     // The node's sum in a register (the same additions in the same order; out[node] is none of the energy rows
     // written meanwhile): a store and reload of out[node] per channel was the longest chain of the evaluation.
     double sum = out[node];
@@ -547,7 +571,8 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
   });
   for (Index f = 0; f < network_.faces.size(); ++f) {
     Index node = network_.faces[f].node;
-    FaceSolution sol = solveFace(f, time, T[node], scratchHeat_, scratchDerivative_);
+    const double* control = faceControl(f, T);
+    FaceSolution sol = solveFace(f, time, T[node], scratchHeat_, scratchDerivative_, true, control);
     double total = 0.0;
     for (Index c = 0; c < channels_; ++c) total += scratchDerivative_[c];
     add(node, node, total * sol.dTsdTn);
@@ -555,6 +580,20 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
       for (Index c = 0; c < channels_; ++c) {
         add(nodes_ + controls_ + c, node, nodeWeight(node) * scratchDerivative_[c] * sol.dTsdTn);
         toGroup(node, c, node, scratchDerivative_[c] * sol.dTsdTn);
+      }
+    if (!control) continue;
+    // The face's controller u: G (T_n - T_s) + q(T_s, u) = 0 gives dT_s/du = (dq/du) / (G - q'(T_s)); channel c
+    // carries dq_c/du + q_c'(T_s) dT_s/du into the node.
+    const Index u = nodes_ + faceControl_[f];
+    double dqdu = 0.0;
+    for (Index c = 0; c < channels_; ++c) dqdu += controlDerivative_[c];
+    const double dTsdu = dqdu / (network_.faces[f].halfConductance - sol.dqdTs);
+    add(node, u, dqdu + sol.dqdTs * dTsdu);
+    if (transient)
+      for (Index c = 0; c < channels_; ++c) {
+        const double d = controlDerivative_[c] + scratchDerivative_[c] * dTsdu;
+        add(nodes_ + controls_ + c, u, nodeWeight(node) * d);
+        toGroup(node, c, u, d);
       }
   }
   for (Index kk = 0; kk < controls_; ++kk) {
@@ -655,7 +694,7 @@ void NetworkSystem::flowsByGroup(double time, std::span<const double> T, std::sp
   } reporting(network_.faces.empty() ? nullptr : network_.surface);
   for (Index f = 0; f < network_.faces.size(); ++f) {
     Index node = network_.faces[f].node;
-    FaceSolution sol = solveFace(f, time, T[node], scratchHeat_, scratchDerivative_, false);
+    FaceSolution sol = solveFace(f, time, T[node], scratchHeat_, scratchDerivative_, false, faceControl(f, T));
     if (f < faceTemperatures.size()) faceTemperatures[f] = sol.temperature;
     for (Index c = 0; c < channels_; ++c) {
       if (rates) rate[node] += scratchHeat_[c];
@@ -751,6 +790,7 @@ std::string structuralDifference(const Network& a, const Network& b) {
   }
   for (Index i = 0; i < a.faces.size(); ++i)
     if (a.faces[i].node != b.faces[i].node) return "faces sit on other nodes";
+  if (a.faceControls != b.faceControls) return "other faces sweat (control.sweating.segments)";
   for (Index i = 0; i < a.flowParts.size(); ++i)
     if (a.flowParts[i].modulator != b.flowParts[i].modulator) return "modulated flows differ";
   for (Index i = 0; i < a.modulators.size(); ++i)
@@ -782,7 +822,8 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
   const Index faces = network_.faces.size();
   std::vector<double> faceT(faces), faceSlope(faces * channels_), faceDq(faces);
   for (Index f = 0; f < faces; ++f) {
-    const FaceSolution sol = solveFace(f, time, T[network_.faces[f].node], scratchHeat_, scratchDerivative_);
+    const FaceSolution sol =
+        solveFace(f, time, T[network_.faces[f].node], scratchHeat_, scratchDerivative_, true, faceControl(f, T));
     faceT[f] = sol.temperature;
     double dq = 0.0;
     for (Index c = 0; c < channels_; ++c) {
@@ -900,8 +941,14 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
         std::fill(dhp.begin(), dhp.end(), 0.0);
         std::fill(hm.begin(), hm.end(), 0.0);
         std::fill(dhm.begin(), dhm.end(), 0.0);
-        P.surface->faceHeat(f, faceT[f], time, hp, dhp);
-        M.surface->faceHeat(f, faceT[f], time, hm, dhm);
+        if (const double* control = faceControl(f, T)) {
+          std::fill(controlDerivative_.begin(), controlDerivative_.end(), 0.0);
+          P.surface->controlledFaceHeat(f, faceT[f], time, *control, hp, dhp, controlDerivative_);
+          M.surface->controlledFaceHeat(f, faceT[f], time, *control, hm, dhm, controlDerivative_);
+        } else {
+          P.surface->faceHeat(f, faceT[f], time, hp, dhp);
+          M.surface->faceHeat(f, faceT[f], time, hm, dhm);
+        }
         for (Index c = 0; c < channels_; ++c) {
           hp[c] = (hp[c] - hm[c]) / h;
           dqp += hp[c];

@@ -122,13 +122,25 @@ class NetworkSystem {
   struct FaceSolution {
     double temperature;  //!< face temperature [K]
     double dTsdTn;       //!< d(face temperature)/d(node temperature) [1]
+    double dqdTs;        //!< sum of the channels' dq/dT_s at the solution [W/K]
   };
   //! groupFlows (channels empty) and channelFlows (channels marked; storage and faceTemperatures may be empty).
   void flowsByGroup(double time, std::span<const double> state, std::span<const char> channels,
                     std::span<double> flows, std::span<double> storage, std::span<double> faceTemperatures) const;
   //! `remember`: keep the solution as the face's next Newton start (false for reports: groupFlows).
+  //! `control`: the state of the face's controller (Network::faceControls; nullptr: none), whose derivatives d q_c/d u
+  //! are left in controlDerivative_.
   FaceSolution solveFace(Index face, double time, double nodeTemperature, std::span<double> channelHeat,
-                         std::span<double> channelDerivative, bool remember = true) const;
+                         std::span<double> channelDerivative, bool remember = true,
+                         const double* control = nullptr) const;
+  //! The state of face f's controller in `state` (nodes and controls at least), or nullptr for a face without one.
+  const double* faceControl(Index f, std::span<const double> state) const {
+    if (faceControl_.empty() || faceControl_[f] == none) return nullptr;
+    return &state[nodes_ + faceControl_[f]];
+  }
+  //! Controller of each face (Network::faceControls; none: none), empty when no face has one.
+  std::vector<Index> faceControl_;
+  mutable std::vector<double> controlDerivative_;  //!< d q_c / d u of the last controlled face solve [channels]
   //! Position of a Jacobian entry in pattern().rowIndex: a search in its column (the Jacobian's terms find their
   //! entries this way; no per-term tables of positions are kept). 32 bits (the constructor checks that they suffice).
   using Slot = std::uint32_t;

@@ -80,8 +80,9 @@ struct JacobianCheck {
 
 //! Compare at `state`; temperature steps of 1e-3 K (state ~300 K, round-off ~1e-16 * 300 / 1e-3 relative).
 //! `channelFloor`: least scale of a channel (transient energy) row [W/K], e.g. rho c Q of the circulation.
+//! `controlStep`: the difference step of the controller states' columns.
 inline JacobianCheck checkJacobian(const NetworkSystem& system, std::span<const double> state, double time,
-                                   double channelFloor = 0.0) {
+                                   double channelFloor = 0.0, double controlStep = 1e-3) {
   const Index n = system.size();
   const SparsePattern& p = system.pattern();
   JacobianCheck result;
@@ -94,7 +95,8 @@ inline JacobianCheck checkJacobian(const NetworkSystem& system, std::span<const 
   std::vector<double> y(state.begin(), state.end());
   for (Index col = 0; col < n; ++col) {
     // Temperatures ~300 K, controller states ~1 (small enough not to cross a clamp of a chained controller).
-    const double step = 1e-3;
+    const bool control = col >= system.nodeCount() && col < system.nodeCount() + system.controlCount();
+    const double step = control ? controlStep : 1e-3;
     const double saved = y[col];
     y[col] = saved + step;
     system.evaluate(time, y, plus);
