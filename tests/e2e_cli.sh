@@ -35,6 +35,20 @@ ls -a "$work" | grep -q "^\.thermorph-\|tmp-" && fail "temporary file left behin
 [[ $rc -eq 2 ]] || fail "missing file gave exit $rc"
 grep -q "cannot open" "$work/err.txt" || fail "missing-file message: $(cat "$work/err.txt")"
 
+# [control.sweating]: max above 1, an unknown segment, a segment whose outer surface is a coat: exit 2 naming the file,
+# line and key path; the earlier result survives.
+printf 'title = "t"\n[[segments]]\nname = "ball"\nshape = "sphere"\nlayers = [{ tissue = "muscle", thickness = "2 cm" }]\n[control.sweating]\nmax = 1.2\nsegments = "ball"\n' > "$work/sweat.toml"
+"$exe" run "$work/sweat.toml" -o "$work/demo.h5" 2> "$work/err.txt"; rc=$?
+[[ $rc -eq 2 ]] || fail "sweating max 1.2 gave exit $rc"
+grep -q "sweat.toml:7:7: control.sweating.max: max = 1.2: out of range" "$work/err.txt" || fail "sweating max message: $(cat "$work/err.txt")"
+"$exe" run "$work/sweat.toml" -o "$work/demo.h5" --set control.sweating.max=0.5 --set control.sweating.segments=tail 2> "$work/err.txt"; rc=$?
+[[ $rc -eq 2 ]] || fail "sweating unknown segment gave exit $rc"
+grep -q "control.sweating.segments: no segment named \"tail\"" "$work/err.txt" || fail "sweating segment message: $(cat "$work/err.txt")"
+"$exe" run "$src/cases/limb_cooling.toml" -o "$work/demo.h5" --set control.sweating.segments=forelimb 2> "$work/err.txt"; rc=$?
+[[ $rc -eq 2 ]] || fail "sweating coated segment gave exit $rc"
+grep -q "control.sweating.segments: segment \"forelimb\" has a coat" "$work/err.txt" || fail "sweating coat message: $(cat "$work/err.txt")"
+cmp -s "$work/demo.h5" "$work/keep.h5" || fail "a refused sweating case changed the earlier result"
+
 # Command-line errors are bad input too: exit 2.
 "$exe" run 2> /dev/null; rc=$?; [[ $rc -eq 2 ]] || fail "missing case argument gave exit $rc"
 "$exe" run "$src/cases/limb_cooling.toml" --no-such-option 2> /dev/null; rc=$?
