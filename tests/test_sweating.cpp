@@ -5,7 +5,7 @@
 // Checks, against references outside the code:
 //  1. a lumped sphere (Bi < 1e-3) with a heat source in warm air: its steady state with sweating solves
 //     Q + h A (T_a - T) = E(T, w(T)), w = w_0 + clamp(g (T - T_set), 0, max - w_0), with E the Chilton-Colburn
-//     evaporation of tests/test_wetting_events.cpp (Incropera et al. 2007 eq. 6.92, Tables A.4/A.6/A.8; e_s from
+//     evaporation of tests/test_evaporation_reference.hpp (Incropera et al. 2007 eq. 6.92, Tables A.4/A.6/A.8; e_s from
 //     Alduchov & Eskridge 1996; table rows from memory), solved here by bisection; and the same sphere with the
 //     controller's steady output given as a fixed surface.wetted_fraction has the same steady temperature;
 //  2. the lag: a sphere at the temperature of saturated air (no evaporation, so a constant signal) whose set point
@@ -24,6 +24,7 @@
 #include <vector>
 
 #include "test_common.hpp"
+#include "test_evaporation_reference.hpp"
 #include "test_lumped_sphere.hpp"
 #include "test_run_datasets.hpp"
 #include "test_support.hpp"
@@ -60,29 +61,9 @@ std::vector<std::string> sphereOverrides(std::vector<std::string> more) {
   return o;
 }
 
-// --- The reference, with its own property values (as tests/test_wetting_events.cpp) -----------------------------
-double between(double x, double x0, double y0, double x1, double y1) { return y0 + (y1 - y0) * (x - x0) / (x1 - x0); }
-//! Saturation vapour pressure over water [Pa], Alduchov & Eskridge (1996) eq. 21 (AERK), t in degC.
-double saturationPressure(double T) {
-  const double t = T - 273.15;
-  return 610.94 * std::exp(17.625 * t / (t + 243.04));
-}
-//! Water vapour density at saturation [kg/m3], ideal gas: M_w = 18.015 g/mol, R = 8.314 J/(mol K) (CODATA, rounded).
-double saturationDensity(double T) { return saturationPressure(T) * 0.018015 / (8.314 * T); }
+// --- The reference, with its own property values (tests/test_evaporation_reference.hpp) -----------------------
 //! Evaporation from the sphere at surface temperature T with wetted fraction w [W] (positive out of the body).
-double evaporation(double T, double w) {
-  const double film = 0.5 * (T + Ta);
-  // Incropera et al. 2007 Table A.4, air at 300 K and 350 K: rho 1.1614 / 0.9950 kg/m3, c_p 1007 / 1009 J/(kg K),
-  // alpha 22.5e-6 / 29.9e-6 m2/s.
-  const double rho = between(film, 300.0, 1.1614, 350.0, 0.9950);
-  const double cp = between(film, 300.0, 1007.0, 350.0, 1009.0);
-  const double alpha = between(film, 300.0, 22.5e-6, 350.0, 29.9e-6);
-  const double diffusivity = 0.26e-4 * std::pow(film / 298.0, 1.5);  // Table A.8, H2O in air at 298 K
-  const double lewis = alpha / diffusivity;
-  const double hm = h / (rho * cp * std::pow(lewis, 2.0 / 3.0));  // eq. 6.92, n = 1/3
-  const double latent = between(T, 300.0, 2438e3, 320.0, 2390e3);  // Table A.6 h_fg
-  return w * hm * A * (saturationDensity(T) - RH * saturationDensity(Ta)) * latent;
-}
+double evaporation(double T, double w) { return testing::referenceEvaporation(T, w, Ta, RH, h, A); }
 //! The sweating law as the case states it (README, cases/REFERENCE.md): w_0 + clamp(g (T - T_set), 0, max - w_0).
 double wettedBySweating(double T, double own, double gain, double setPoint, double max) {
   return own + std::clamp(gain * (T - setPoint), 0.0, std::max(0.0, max - own));
