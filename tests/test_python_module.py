@@ -117,6 +117,25 @@ def main():
         with h5py.File(wet_h5, "r") as f:
             check("segments/forelimb/wetted_fraction" in f, "the file stores the event-wetted series")
         same(rw["segments"]["forelimb"]["tucked_fraction"], np.zeros_like(tw), "an untucked segment's tucked_fraction")
+        # Sweating ([control.sweating]): the dict's wetted_fraction is the controlled one, as the file's: w_0 plus the
+        # state /control/sweating (below max 0.8 here).
+        sweat = tmp / "sweat.toml"
+        sweat.write_text('title = "sweating sphere"\n[run]\nduration = "20 min"\noutput_interval = "2 min"\n'
+                         'initial_temperature = "39 degC"\n[[segments]]\nname = "ball"\nshape = "sphere"\n'
+                         'layers = [{ tissue = "muscle", thickness = "3 cm" }]\nsurface = { wetted_fraction = 0.1 }\n'
+                         '[environment]\ntemperature = "35 degC"\nrelative_humidity = 0.3\n'
+                         '[control.sweating]\nset_point = "37 degC"\ngain = "0.2 1/K"\n')
+        sweat_h5 = tmp / "sweat.h5"
+        subprocess.run([exe, "run", str(sweat), "-o", str(sweat_h5), "-q"], check=True, stdout=subprocess.DEVNULL,
+                       stderr=subprocess.DEVNULL)
+        rs = thermorph.run(str(sweat))
+        compare(rs, sweat_h5)
+        with h5py.File(sweat_h5, "r") as f:
+            check("segments/ball/wetted_fraction" in f, "the file stores a sweating segment's wetted fraction")
+            state = f["control/sweating"][()]
+            check(state.max() > 0.0, f"sweating state {state}")
+            same(f["segments/ball/wetted_fraction"][()], 0.1 + state, "the file's wetted fraction = w_0 + the state")
+        same(rs["segments"]["ball"]["wetted_fraction"], 0.1 + state, "the dict's wetted fraction = w_0 + the state")
         # The step at 10 min is an output: the energies stored at the step are those of that output (one state).
         check(np.array_equal(r["steps"]["time"], [600.0]), f"steps: the event's time ({r['steps']['time']})")
         at = int(np.searchsorted(r["time"], 600.0))
