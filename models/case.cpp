@@ -1264,7 +1264,8 @@ Case buildCase(toml::table& root, const std::string& file, const std::vector<std
           t.controller != "sweating") {
         if (std::none_of(c.control.local.begin(), c.control.local.end(),
                          [&](const LocalControllerSpec& l) { return l.name == t.controller; })) {
-          std::vector<std::string> known{"vasomotor", "shivering", "panting", "sweating"};
+          std::vector<std::string> known{"vasomotor", "shivering", "panting"};
+          if (c.control.sweating.present) known.push_back("sweating");
           for (const LocalControllerSpec& l : c.control.local) known.push_back(l.name);
           throw CaseError(fmt::format("{}{}: {}: unknown controller \"{}\" (the case has: {})", file,
                                       t.where.empty() ? "" : ":" + t.where, t.path, t.controller,
