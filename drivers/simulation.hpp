@@ -79,6 +79,9 @@ struct RunSummary {
   //! The steady start (or runSteady's state) found [nodes + controls] with RunOptions::keepSteadyState; empty
   //! otherwise, without a steady start, or when stopped in it.
   std::vector<double> steadyState;
+  //! After a steady start (`initial = "steady"`): core, blood and mean skin temperatures at t = 0 [K] (blood NaN
+  //! without a blood pool), printed with the final ones; empty otherwise.
+  std::vector<double> startTemperatures;
   //! The steady start's solver counters (relaxation steps, then Newton iterations, right-hand sides and Jacobians of
   //! relaxation and KINSOL together); runSteady's are `statistics`.
   SolverStatistics steadyStatistics;

@@ -23,6 +23,23 @@ with h5py.File(sys.argv[2], "r") as f:
         assert abs(float(m.group(i)) - f["body/" + q][-1]) <= 0.005 + 1e-9, (q, m.group(i), f["body/" + q][-1])
 PY
 
+# After a steady start the starting temperatures are printed too, equal to the file's first values (a steady start
+# in cold surroundings without controllers starts cold: a new-user trial saw only the final core).
+"$exe" run "$src/cases/limb_cooling.toml" --set run.initial=steady -o "$work/steady_start.h5" --quiet \
+  > "$work/out_steady.txt" || fail "steady-start run exit $?"
+"$python" - "$work/out_steady.txt" "$work/steady_start.h5" "$work/out.txt" <<'PY' || fail "steady start line"
+import re, sys, h5py
+text = open(sys.argv[1]).read()
+m = re.search(r"Steady start at t = 0 s: core (\S+) degC, (?:blood (\S+) degC, )?mean skin (\S+) degC", text)
+assert m, "no steady-start line"
+with h5py.File(sys.argv[2], "r") as f:
+    assert f["time"][0] == 0.0
+    for i, q in ((1, "core_temperature"), (2, "blood_temperature"), (3, "mean_skin_temperature")):
+        if m.group(i) is not None:
+            assert abs(float(m.group(i)) - f["body/" + q][0]) <= 0.005 + 1e-9, (q, m.group(i), f["body/" + q][0])
+assert "Steady start" not in open(sys.argv[3]).read(), "a uniform start printed a steady-start line"
+PY
+
 # 2. Bad input: exit 2, message names the key, the earlier result survives byte for byte.
 cp "$work/demo.h5" "$work/keep.h5"
 "$exe" run "$src/cases/limb_cooling.toml" -o "$work/demo.h5" --set environment.temperature="5 kg" 2> "$work/err.txt"
