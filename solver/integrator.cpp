@@ -123,6 +123,7 @@ Integrator::Integrator(const NetworkSystem& system, std::span<const double> init
   check(CVodeSetErrHandlerFn(mem, &Integrator::errorHandler, this), "CVodeSetErrHandlerFn");
   check(CVodeSetMaxNumSteps(mem, 1'000'000), "CVodeSetMaxNumSteps");
   check(CVodeSetMaxOrd(mem, o.maxOrder), "CVodeSetMaxOrd");
+  if (o.stabilityLimitDetection) check(CVodeSetStabLimDet(mem, SUNTRUE), "CVodeSetStabLimDet");
   if (o.maxStep > 0.0) check(CVodeSetMaxStep(mem, o.maxStep), "CVodeSetMaxStep");
   if (o.setupEveryStep) check(CVodeSetLSetupFrequency(mem, 1), "CVodeSetLSetupFrequency");
   const SparsePattern& pattern = system.pattern();

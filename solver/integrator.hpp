@@ -46,6 +46,11 @@ struct IntegratorOptions {
   double maxStep = 0.0;      //!< [s], 0: none
   LinearSolverKind linearSolver = LinearSolverKind::Klu;
   int maxOrder = 5;
+  //! CVODE's BDF stability limit detection (CVodeSetStabLimDet; Hindmarsh et al. 2005, sec. 3.6 of the CVODE
+  //! guide): BDF of order 3-5 is not A-stable, and the blood streams' upwind advection gives eigenvalues near the
+  //! imaginary axis that order 5 cannot follow at large steps. Without it, a new-user trial's countercurrent legs on
+  //! a 2x refined grid (an invented 6 kg swimmer, 19 017 nodes) took 27 124 steps (265 s) where 642 do.
+  bool stabilityLimitDetection = true;
   //! Update the Newton matrix I - gamma J at every step (CVodeSetLSetupFrequency 1) instead of CVODE's default
   //! (every 20 steps or when gamma changed by 30 %): the steady start's fallback (drivers/simulation.cpp).
   bool setupEveryStep = false;
