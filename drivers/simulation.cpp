@@ -1,9 +1,11 @@
 #include "drivers/simulation.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <optional>
 
 #include <fmt/format.h>
+#include <fmt/ranges.h>
 
 #include "drivers/progress.hpp"
 #include "drivers/refine.hpp"
@@ -216,8 +218,8 @@ std::vector<double> steadyTemperatures(const Body& body, NetworkSystem& transien
   return result;
 }
 
-//! Warnings for a steady state in which a heat defence is exhausted: shivering at its maximum power or panting at its
-//! largest ventilation. The controller's proportional law then no longer holds its signal near the set point, so
+//! Warnings for a steady state in which a heat defence is exhausted: shivering at its maximum power, panting at its
+//! largest ventilation or sweating at its largest wetted fraction. The controller's proportional law then no longer holds its signal near the set point, so
 //! the state is the passive balance of a body at full effort. Found in a new-user trial: a 2 kg swimmer started
 //! with `initial = "steady"` in 6 degC water began its run at a core of 17.2 degC (shivering at its maximum), with
 //! nothing said; the user expected a body at rest before the swim.
@@ -226,8 +228,8 @@ std::vector<std::string> exhaustedDefences(const Body& body, std::span<const dou
   const Network& n = body.network();
   const ControlSpec& cs = body.spec().control;
   for (const Controller& c : n.controllers) {
-    const bool shivering = c.name == "shivering", panting = c.name == "panting";
-    if (!shivering && !panting) continue;
+    const bool shivering = c.name == "shivering", panting = c.name == "panting", sweating = c.name == "sweating";
+    if (!shivering && !panting && !sweating) continue;
     if (c.enableSchedule != none && n.schedules && !(n.schedules->value(c.enableSchedule, 0.0) > 0.5)) continue;
     const double setpoint =
         c.setpointSchedule != none && n.schedules ? n.schedules->value(c.setpointSchedule, 0.0) : c.setpoint;
@@ -235,6 +237,32 @@ std::vector<std::string> exhaustedDefences(const Body& body, std::span<const dou
     for (auto [node, w] : c.signal) signal += w * state[node];
     // At a steady state the lagged state equals its target clamp(bias + gain (T - set point), lower, upper).
     const double target = c.bias + c.gain * (signal - setpoint);
+    if (sweating) {
+      // Sweating is exhausted where every segment it wets is at `max` (w_0 + s, at most max: a segment wetted by its
+      // own w_0 reaches it before s does), its state at the steady state's target.
+      const Index nodes = n.nodes.size();
+      std::vector<double> controls(state.begin() + static_cast<std::ptrdiff_t>(nodes), state.end());
+      const Index k = static_cast<Index>(&c - n.controllers.data());
+      if (k >= controls.size()) continue;
+      controls[k] = std::clamp(target, c.lower, c.upper);
+      std::vector<std::string> wet;
+      bool all = true;
+      for (Index g = 0; g < body.spec().segments.size(); ++g) {
+        if (!body.environment().sweats(g)) continue;
+        wet.push_back(body.spec().segments[g].name);
+        if (body.wettedFraction(g, 0.0, controls) < c.upper * (1.0 - 1e-9)) all = false;
+      }
+      if (!all || wet.empty()) continue;
+      const char* signalName = cs.sweating.signal == ControlSignal::Core ? "core" : "mean skin";
+      warnings.push_back(fmt::format(
+          "{}: sweating at its largest wetted fraction ({:.4g} of the skin of {}) and the {} at {:.1f} degC, {:.1f} K "
+          "above the sweating set point ({:.4g} degC): the body cannot shed the heat it gains. This is where the body "
+          "settles after a long exposure at full effort (the surroundings and physiology of t = 0), not a state at "
+          "rest before it; to start from rest, start in other surroundings (initial_temperature, or a steady start in "
+          "the surroundings before the exposure, changed to it by an event)",
+          what, c.upper, fmt::join(wet, ", "), signalName, signal - 273.15, signal - setpoint, setpoint - 273.15));
+      continue;
+    }
     if (!(target >= c.upper - 1e-9 * std::max(1.0, std::abs(c.upper)))) continue;
     const ControllerSpec& spec = shivering ? cs.shivering : cs.panting;
     const char* signalName = spec.signal == ControlSignal::Core ? "core" : "mean skin";

@@ -23,7 +23,7 @@ constexpr std::array params = {
     Param{"run.output_interval", K::Quantity, "s", "60 s", 0, 1e9, true, "", "Time between stored outputs."},
     Param{"run.initial", K::Choice, "", "temperature", 0, 0, false, "temperature|steady",
           "Initial state: uniform `initial_temperature`, or the steady state of the case at t = 0 (the surroundings and "
-          "physiology of t = 0; a warning says when shivering or panting is at its limit there)."},
+          "physiology of t = 0; a warning says when shivering, panting or sweating is at its limit there)."},
     Param{"run.initial_temperature", K::Quantity, "K", "37 degC", tMin, tMax, false, "",
           "Uniform initial temperature of every node."},
     Param{"run.rtol", K::Number, "", "1e-6", 1e-12, 1e-2, false, "", "Relative tolerance of the integrator."},
