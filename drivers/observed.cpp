@@ -511,7 +511,9 @@ double ObservationSampler::value(std::size_t s, double time, std::span<const dou
     case K::SegmentFlow:
       return b.channel == channels ? summary.storage[b.segment] : summary.flows[b.segment * channels + b.channel];
     case K::SegmentSurface: {
-      // Face temperatures as the assembly solves them: G (T_n - T_s) + q(T_s, t) = 0 by Newton's method.
+      // Face temperatures as the assembly solves them: G (T_n - T_s) + q(T_s, t) = 0 by Newton's method (G at time
+      // t: a drying coat's follows its wetness).
+      n.coefficientsAt(time);
       double weighted = 0.0, area = 0.0;
       std::vector<double> heat(channels), slope(channels), ignored(channels);
       for (std::size_t i = 0; i < b.nodes.size(); ++i) {

@@ -203,6 +203,17 @@ Body::Body(const Case& c) : case_(c) {
   for (auto [k, previous] : controlChain_)
     network_.controllers[k].signal = {{network_.nodes.size() + previous, 1.0}};
   network_.compact();
+  coatConductivity_.assign(case_.segments.size(), {0.0, 0.0});
+  for (Index g = 0; g < case_.segments.size(); ++g)
+    if (const auto& coat = case_.segments[g].coat) {
+      const TissueProperties& t = case_.tissues.at(coat->material);
+      coatConductivity_[g] = {t.conductivity, t.wetConductivity > 0.0 ? t.wetConductivity : t.conductivity};
+    }
+  if (!coatSwitches_.empty() || !tuckLinks_.empty()) {
+    network_.timed = &coatWetness_;
+    intervalStart_.push_back(0.0);
+    for (double b : environment_->breakpoints()) intervalStart_.push_back(b);
+  }
   // The values of t = 0 (the coats' conductances are built for the largest contact of the run: scaled to the first
   // interval's, for a steady start and the first step).
   setInterval(0);
@@ -258,14 +269,57 @@ std::vector<std::string> Body::steadyWarnings() const {
   return out;
 }
 
+namespace {
+//! A coat's conductance (or its resistance, `resistance`) at wetted fraction w, from its values dry and soaked:
+//! the coat conducts with k = k_dry + w (k_wet - k_dry), linear in the wetness between the dry and the soaked
+//! values (a modelling choice: the parallel, upper, bound of a two-phase mixture's conductivity, Wiener 1912). Every
+//! coat term is R(k) = R_f + C / k, R_f the part outside the coat (a tissue half cell, none within the coat), so R_f
+//! and C follow from the two values. w <= 0 and w >= 1 give the values as built, bit for bit.
+double partlyWet(double dry, double wet, double kDry, double kWet, double w, bool resistance) {
+  if (!(w > 0.0) || dry == wet) return dry;
+  if (w >= 1.0) return wet;
+  const double rDry = resistance ? dry : 1.0 / dry, rWet = resistance ? wet : 1.0 / wet;
+  const double c = (rDry - rWet) / (1.0 / kDry - 1.0 / kWet);
+  const double r = (rDry - c / kDry) + c / (kDry + w * (kWet - kDry));
+  return resistance ? r : 1.0 / r;
+}
+}  // namespace
+
 void Body::setInterval(std::size_t interval) const {
   environment_->setInterval(interval);
   physiology_->setInterval(interval);
-  // Coats conduct wet while their segment is in water (the medium may change by event), and share their
-  // conductance between the rings and the contact column by the interval's contact fraction f_c (events may change
-  // it; built for the run's largest, f_max).
-  for (const CoatSwitch& c : coatSwitches_) {
-    double value = environment_->immersed(c.segment, 0.0) ? c.wet : c.dry;
+  // The coats at the interval's start; those of segments in air whose wetness events change follow it at every
+  // evaluation (coatsAt, called through Network::timed).
+  if (coatSwitches_.empty() && tuckLinks_.empty()) return;
+  const double start = intervalStart_[std::min(interval, intervalStart_.size() - 1)];
+  liveCoats_.clear();
+  liveTucks_.clear();
+  auto follows = [&](Index g) { return environment_->wetChanges(g) && !environment_->immersed(g, start); };
+  for (Index i = 0; i < coatSwitches_.size(); ++i)
+    if (follows(coatSwitches_[i].segment) && coatSwitches_[i].dry != coatSwitches_[i].wet) liveCoats_.push_back(i);
+  for (Index i = 0; i < tuckLinks_.size(); ++i)
+    if (follows(tuckLinks_[i].guest) || follows(tuckLinks_[i].host)) liveTucks_.push_back(i);
+  setCoat(coatSwitches_.size(), start);
+  setTuck(tuckLinks_.size(), start);
+}
+
+void Body::coatsAt(double time) const {
+  for (Index i : liveCoats_) setCoat(i, time);
+  for (Index i : liveTucks_) setTuck(i, time);
+}
+
+void Body::setCoat(Index which, double time) const {
+  // Coats conduct wet while their segment is in water (the medium may change by event) and, in air, as wet as the
+  // segment's wetted fraction says (partlyWet); they share their conductance between the rings and the contact
+  // column by the interval's contact fraction f_c (events may change it; built for the run's largest, f_max).
+  // which == coatSwitches_.size(): every coat.
+  const Index first = which == coatSwitches_.size() ? 0 : which, last = which == coatSwitches_.size() ? which : which + 1;
+  for (Index i = first; i < last; ++i) {
+    const CoatSwitch& c = coatSwitches_[i];
+    double value = environment_->immersed(c.segment, time)
+                       ? c.wet
+                       : partlyWet(c.dry, c.wet, coatConductivity_[c.segment].first, coatConductivity_[c.segment].second,
+                                   environment_->wettedFraction(c.segment, time), false);
     const double f = environment_->contactFraction(c.segment), fMax = environment_->maxContactFraction(c.segment);
     // (The rings away from the substrate, the host and the guests: 1 - f_c - f_t - f_h of the coat, f_h the share
     // the segment's own tucked guests cover, built for the largest share of contact and its own tucking.)
@@ -278,11 +332,21 @@ void Body::setInterval(std::size_t interval) const {
     if (c.face) network_.faces[c.index].halfConductance = value;
     else network_.conductances.setValue(c.index, value);
   }
-  // Tucking: the interval's tucked fraction times the path's conductance, each side's coat dry or wet with its own
-  // medium (0 while untucked: the guest's face then exchanges over its whole surface).
-  for (const TuckLink& l : tuckLinks_) {
-    const double rGuest = environment_->immersed(l.guest, 0.0) ? l.guestWet : l.guestDry;
-    const double rHost = environment_->immersed(l.host, 0.0) ? l.hostWet : l.hostDry;
+}
+
+void Body::setTuck(Index which, double time) const {
+  // Tucking: the interval's tucked fraction times the path's conductance, each side's coat dry, wet or partly wet
+  // with its own medium and wetness (0 while untucked: the guest's face then exchanges over its whole surface).
+  // which == tuckLinks_.size(): every link.
+  const Index first = which == tuckLinks_.size() ? 0 : which, last = which == tuckLinks_.size() ? which : which + 1;
+  auto side = [&](Index g, double dry, double wet) {
+    return environment_->immersed(g, time) ? wet
+                                           : partlyWet(dry, wet, coatConductivity_[g].first, coatConductivity_[g].second,
+                                                       environment_->wettedFraction(g, time), true);
+  };
+  for (Index i = first; i < last; ++i) {
+    const TuckLink& l = tuckLinks_[i];
+    const double rGuest = side(l.guest, l.guestDry, l.guestWet), rHost = side(l.host, l.hostDry, l.hostWet);
     network_.conductances.setValue(l.conductance, environment_->tuckedFraction(l.guest) * l.patch / (rGuest + rHost));
   }
 }
@@ -1456,8 +1520,9 @@ Body::SegmentBuild Body::segmentTissues(const SegmentSpec& s, Index group, Segme
   b.nz = m.nz;
   b.nr = static_cast<int>(b.tissue.size());
   m.nr = b.nr;
-  // A coat changes conductivity when its segment goes in or out of water (medium events): every conductance and
-  // face that involves a coat cell is computed dry and wet, and setInterval() picks one.
+  // A coat changes conductivity when its segment goes in or out of water (medium events) and with its wetted
+  // fraction in air: every conductance and face that involves a coat cell is computed dry and wet, and setCoat()
+  // sets the value between them (setInterval, and within an interval where events change the wetness).
   b.firstCoat = s.coat ? b.nr - s.coat->cells : b.nr;
   b.coatDry = s.coat ? &case_.tissues.at(s.coat->material) : nullptr;
   b.coatChanges = b.coatDry && b.coatDry->wetConductivity > 0.0 && b.coatDry->wetConductivity != b.coatDry->conductivity;

@@ -125,7 +125,8 @@ class Body {
   double cardiacOutput() const { return cardiacOutput_; }
   double bodyMass() const { return bodyMass_; }
   double bloodVolume() const { return bloodVolume_; }
-  //! Move every time-dependent model to timeline interval k (after breakpoint k-1).
+  //! Move every time-dependent model to timeline interval k (after breakpoint k-1); the coats' conductances are set
+  //! at the interval's start (a drying coat's then follow its wetness through Network::timed).
   void setInterval(std::size_t interval) const;
   const PhysiologyModel& physiology() const { return *physiology_; }
   //! Basal metabolic heat at the Q10 reference temperature, static activity included [W].
@@ -206,7 +207,8 @@ class Body {
   //! Warn about a segment whose static contact holds while its fluid changes (no event changes the contact).
   void warnStaticContact();
 
-  //! A coat conductance (or face half-conductance) dry and wet, chosen per timeline interval, built for the
+  //! A coat conductance (or face half-conductance) dry and wet (wet in water; in air partly wet by the segment's
+  //! wetted fraction at the time, Body::setCoat), built for the
   //! segment's largest contact fraction f_max and scaled to the interval's f_c: rings (1 - f_c) / (1 - f_max), the
   //! column f_c / f_max.
   struct CoatSwitch {
@@ -234,6 +236,17 @@ class Body {
     double guestDry = 0.0, guestWet = 0.0, hostDry = 0.0, hostWet = 0.0;  //!< [K m2/W]
   };
   void addTucking();
+  //! The conductances of coat switch (tuck link) `which` at time t in the current interval, every one when `which`
+  //! is their count: wet in water, in air partly wet by the segment's wetted fraction (body.cpp partlyWet).
+  void setCoat(Index which, double time) const;
+  void setTuck(Index which, double time) const;
+  //! The coats of the current interval that follow a wetness that events change (the network's TimedCoefficients).
+  void coatsAt(double time) const;
+  struct CoatWetness final : TimedCoefficients {
+    explicit CoatWetness(const Body* b) : body(b) {}
+    const Body* body;
+    void at(double time) const override { body->coatsAt(time); }
+  };
 
   Case case_;
   mutable Network network_;  //!< coat conductances follow immersion and contact in setInterval()
@@ -242,6 +255,12 @@ class Body {
   std::vector<char> tuckInvolved_;                //!< per segment: tucked (ever) or the host of one
   std::vector<char> tuckHost_;                    //!< per segment: the host of a segment tucked at some time
   std::vector<TuckLink> tuckLinks_;
+  //! Per segment: its coat's conductivity dry and wet [W/(m K)] (0, 0 without a coat).
+  std::vector<std::pair<double, double>> coatConductivity_;
+  //! The coat switches and tuck links that follow the wetness in the current interval (setInterval).
+  mutable std::vector<Index> liveCoats_, liveTucks_;
+  std::vector<double> intervalStart_;  //!< start time of each timeline interval [s] (0, then the breakpoints)
+  CoatWetness coatWetness_{this};
   std::vector<Tucking> tucking_;
   Index tuckingChannel_ = none;
   //! Per child: the parent's axial cells its blood joins, with their shares (sum 1); see attachChildren.

@@ -106,7 +106,8 @@ constexpr std::array params = {
           "Basal blood perfusion: 1/s, or volume per tissue mass per time, e.g. \"30 mL/(100 g min)\"."},
     Param{"tissues.*.q10", K::Number, "", "", 1.0, 10.0, false, "", "Q10 of metabolic heat."},
     Param{"tissues.*.wet_conductivity", K::Quantity, "W/(m K)", "", 0, 1e3, true, "",
-          "Coats only: conductivity when immersed."},
+          "Coats only: conductivity when immersed; in air the coat conducts with k + w (wet_conductivity - k), w "
+          "the segment's wetted_fraction (linear in the wetness: a modelling choice)."},
 
     Param{"segments", K::TableArray, "", "", 0, 0, false, "", "Body segments, one `[[segments]]` each."},
     Param{"segments[].name", K::Text, "", "", 0, 0, false, "", "Unique segment name (used in results and key paths)."},
@@ -247,8 +248,9 @@ constexpr std::array params = {
           "loss."},
     Param{"segments[].surface.wetted_fraction", K::Number, "", "0", 0, 1, false, "",
           "Share of the exposed surface that is wet and evaporates (1: a wet surface); zero in water. On a coated "
-          "segment, the coat's outer surface. Holds for the whole run unless [[events]] change it "
-          "(events[].surface.NAME.wetted_fraction, stepped or ramped)."},
+          "segment, the coat's outer surface, and the coat conducts partly wet in air (tissues.NAME.wet_conductivity). "
+          "Holds for the whole run unless [[events]] change it (events[].surface.NAME.wetted_fraction, stepped or "
+          "ramped)."},
     Param{"segments[].surface.immersion", K::Choice, "", "body", 0, 0, false, "body|always|never",
           "\"body\": in the [environment] medium; \"always\": in water (water_temperature when the medium is "
           "air); \"never\": in air (air_temperature when the medium is water)."},

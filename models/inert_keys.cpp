@@ -565,15 +565,24 @@ void InertKeys::others() {
   for (const auto& [name, tissue] : c.tissues)
     if (!usedTissues.count(name))
       add("tissues." + name, fmt::format("no segment uses the tissue {} (no layer or coat names it)", name));
-  // Coats conduct with their wet conductivity while their segment is in water (Body::setInterval).
+  // Coats conduct with their wet conductivity while their segment is in water, and partly in air while its wetted
+  // fraction is above 0, statically or by an event (Body::setCoat).
   std::set<std::string> wetCoats;
-  for (std::size_t g = 0; g < c.segments.size(); ++g)
-    if (c.segments[g].coat && everInWater_[g]) wetCoats.insert(c.segments[g].coat->material);
+  for (std::size_t g = 0; g < c.segments.size(); ++g) {
+    const SegmentSpec& s = c.segments[g];
+    if (!s.coat) continue;
+    bool wetInAir = s.surface.wettedFraction > 0.0;
+    for (const EventSpec& e : c.events)
+      for (const WetTarget& w : e.wet)
+        if (targetsSegment(w.segment, s.name) && w.wettedFraction > 0.0) wetInAir = true;
+    if (everInWater_[g] || (wetInAir && !neverInAir_[g])) wetCoats.insert(s.coat->material);
+  }
   for (const auto& [name, tissue] : c.tissues)
     if (tissue.isCoat() && usedTissues.count(name) && !wetCoats.count(name))
       add("tissues." + name + ".wet_conductivity",
-          fmt::format("no segment with a coat of {} is in water at any time (the wet conductivity applies in water "
-                      "only)", name));
+          fmt::format("no segment with a coat of {} is in water or wet (wetted_fraction above 0) in air at any time "
+                      "(the wet conductivity applies in water, and in proportion to the wetted fraction in air)",
+                      name));
 }
 
 std::map<std::string, std::string>::const_iterator InertKeys::find(const std::string& path) const {

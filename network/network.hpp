@@ -71,6 +71,18 @@ class OptionalIndex32 {
 // about six such terms per node: 28 bytes per node less). x86-64 and AArch64 read a double at a 4-byte boundary
 // at full speed within a cache line; the values and their order are unchanged. Members are read and written by
 // value (no reference or pointer to a packed member: the compiler refuses to bind one).
+//! Coefficients that change within a timeline interval (models/: a wet coat's conductances follow its segment's
+//! wetted fraction while it dries, linear in time over an event's ramp). NetworkSystem calls at(t) before it reads
+//! the network's conductances and face half-conductances at time t (right-hand side, Jacobian, budgets, parameter
+//! derivatives); the model writes that time's values into the network it built. The values are a function of the
+//! time alone (the interval set by the model's own setInterval), so a report at an output time does not change the
+//! integrator's path, and the Jacobian's form in the state is unchanged.
+class TimedCoefficients {
+ public:
+  virtual ~TimedCoefficients() = default;
+  virtual void at(double time) const = 0;
+};
+
 #pragma pack(push, 4)
 
 //! One part of a modulated flow: coefficient times the value of a modulator [W/K].
@@ -441,6 +453,12 @@ struct Network {
   std::vector<Modulator> modulators;
   std::vector<Controller> controllers;
   const ScheduleModel* schedules = nullptr;  //!< required when a modulator or controller uses a schedule
+  //! Sets the conductances and face half-conductances that vary within an interval (none: all constant).
+  const TimedCoefficients* timed = nullptr;
+  //! Those values at time t (nothing when none vary).
+  void coefficientsAt(double time) const {
+    if (timed) timed->at(time);
+  }
 
   //! Labels of nodes added with one (few: blood nodes, pools, hand-built test networks).
   std::vector<std::pair<Index, std::string>> namedNodes;

@@ -348,6 +348,7 @@ NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, do
 
 void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<double> out) const {
   time = at(time);
+  network_.coefficientsAt(time);
   // A body without a stable state (e.g. Q10 metabolism outrunning its losses) leaves any sensible range long
   // before the numbers fail: stop with a message that says so (one pass without a branch per node, then the first
   // node outside for the message).
@@ -456,6 +457,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
 
 void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<double> values) const {
   time = at(time);
+  network_.coefficientsAt(time);
   const bool transient = mode_ == Mode::Transient;
   std::fill(values.begin(), values.end(), 0.0);
   modulatorValues(time, T, modulators_);
@@ -633,6 +635,7 @@ void NetworkSystem::flowsByGroup(double time, std::span<const double> T, std::sp
   const bool all = channels.empty(), rates = !storage.empty();
   auto wanted = [&](Index channel) { return all || channels[channel] != 0; };
   time = at(time);
+  network_.coefficientsAt(time);
   std::fill(flows.begin(), flows.end(), 0.0);
   std::fill(storage.begin(), storage.end(), 0.0);
   modulatorValues(time, T, modulators_);
@@ -816,6 +819,7 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
                                          std::span<const ParameterNetworks> parameters,
                                          std::span<const std::span<double>> outs) const {
   time = at(time);
+  network_.coefficientsAt(time);
   const bool transient = mode_ == Mode::Transient;
   modulatorValues(time, T, modulators_);
   // The base face solutions, shared by every parameter: T_s, each channel's slope q_c'(T_s) and their sum.
@@ -840,6 +844,8 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
     const Network& P = *parameter.plus;
     const Network& M = *parameter.minus;
     const double h = parameter.step;
+    P.coefficientsAt(time);  // the perturbed bodies' coats at the same wetness time
+    M.coefficientsAt(time);
     std::fill(out.begin(), out.end(), 0.0);
     std::span<double> acc = transient ? out.subspan(nodes_ + controls_, channels_) : std::span<double>();
     auto toGroup = [&](Index node, Index channel, double q) {

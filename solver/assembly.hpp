@@ -226,7 +226,8 @@ class NetworkSystem {
   }
   //! The same systems' conductances, streams and heat sources expanded from the network's runs (TermRuns): reading
   //! a term from its run at every evaluation was 40 % more of evaluate()'s instructions in the hare study. The
-  //! conductances' values are copied again when the network's have changed (Body::setInterval sets them); the
+  //! conductances' values are copied again when the network's have changed (Body::setInterval sets them, and a
+  //! drying coat's Body::coatsAt at each evaluation through Network::timed); the
   //! other terms' values do not change once the network is built.
   std::vector<Advection> advections_;
   std::vector<HeatSource> sources_;

@@ -862,3 +862,22 @@ axial_grading = 4
     }
   }
 }
+
+TEST_CASE("A coat's wet conductivity acts in air where its segment is wet, and only there", "[case][inert]") {
+  // The swimmer in air with a furred trunk: the coat's wet_conductivity has no effect while the trunk is dry (it warns,
+  // and other values give the same temperatures bit for bit); with surface.wetted_fraction above 0 (static, or set by
+  // an event) the coat conducts partly wet in air (Body::setCoat), so it acts and does not warn.
+  std::string text = swimmer("", "coat = { material = \"pelt\", thickness = \"1 cm\", cells = 2 }",
+                             "[tissues.pelt]\nbase = \"fur\"\nwet_conductivity = 0.2\n");
+  text.replace(text.find("medium = \"water\""), 16, "medium = \"air\"");
+  const std::string key = "tissues.pelt.wet_conductivity has no effect";
+  CHECK(mentions(inertWarnings(loadCaseFromString(text, "inert.toml")), key));
+  CHECK(finalTemperatures(text) == finalTemperatures(text, {"tissues.pelt.wet_conductivity=0.4"}));
+  const std::vector<std::string> wet{"segments.trunk.surface.wetted_fraction=0.3"};
+  CHECK_FALSE(mentions(inertWarnings(loadCaseFromString(text, "inert.toml", wet)), key));
+  std::vector<std::string> wetter = wet;
+  wetter.push_back("tissues.pelt.wet_conductivity=0.4");
+  CHECK(finalTemperatures(text, wet) != finalTemperatures(text, wetter));
+  const std::string event = text + "[[events]]\nat = \"5 min\"\nsurface = { trunk = { wetted_fraction = 0.5 } }\n";
+  CHECK_FALSE(mentions(inertWarnings(loadCaseFromString(event, "inert.toml")), key));
+}
