@@ -250,6 +250,7 @@ struct SurfaceProbe {
   std::vector<double> conductance;
   std::vector<bool> everWet;
   std::vector<std::vector<char>> immersed;  //!< per segment, per probed time: in water
+  std::vector<std::vector<double>> wetted;  //!< per segment, per probed time: wetted fraction
   std::vector<double> times;                //!< the probed times [s] (as immersed's entries)
   std::vector<double> contrast;             //!< per segment: largest |initial temperature - fluid| [K]
 };
@@ -267,6 +268,7 @@ SurfaceProbe probeSurfaces(const Case& c) {
   probe.conductance.assign(n, 0.0);
   probe.everWet.assign(n, false);
   probe.immersed.assign(n, {});
+  probe.wetted.assign(n, {});
   probe.contrast.assign(n, 0.0);
   std::vector<double> times{0.0};
   for (double b : env.breakpoints()) times.push_back(b);
@@ -279,6 +281,7 @@ SurfaceProbe probeSurfaces(const Case& c) {
       probe.times.push_back(t);
       for (Index g = 0; g < n; ++g) {
         probe.immersed[g].push_back(env.immersed(g, t) ? 1 : 0);
+        probe.wetted[g].push_back(env.wettedFraction(g, t));
         if (env.immersed(g, t)) probe.everWet[g] = true;
         const double fluid = env.fluid(g, t).temperature;
         probe.contrast[g] = std::max(probe.contrast[g], std::abs(c.run.initialTemperature - fluid));
@@ -708,10 +711,21 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
       if (!s.parent.empty() && c.segments[p].name == s.parent && c.segments[p].coat && !s.coat && !s.layers.empty() &&
           probe.conductance[g] > 0.0)
         e.junctionBiotLength = c.tissues.at(s.layers.back().tissue).conductivity / probe.conductance[g];
-    // A coat that leaves the water during the run (it dries at once in the model).
+    // A coat that leaves the water during the run: its wetted fraction then, and when that reaches 0 in air (the
+    // probed times are the intervals' ends: a ramp's end is one).
     if (s.coat && g < probe.immersed.size())
       for (std::size_t k = 1; k < probe.immersed[g].size() && k < probe.times.size(); ++k)
-        if (probe.immersed[g][k - 1] && !probe.immersed[g][k] && e.coatLeavesWater < 0.0) e.coatLeavesWater = probe.times[k];
+        if (probe.immersed[g][k - 1] && !probe.immersed[g][k] && e.coatLeavesWater < 0.0) {
+          e.coatLeavesWater = probe.times[k];
+          e.coatWetOnLeaving = probe.wetted[g][k];
+          for (std::size_t j = k; j < probe.immersed[g].size() && !probe.immersed[g][j]; ++j) {
+            e.coatWetAtEnd = probe.wetted[g][j];
+            if (probe.wetted[g][j] <= 0.0) {
+              e.coatDriedAt = probe.times[j];
+              break;
+            }
+          }
+        }
 
     // Transient penetration (grid.hpp): from the outside in, each layer's delta = sqrt(alpha tau) and the share
     // erfc(depth / (2 delta)) of a surface step that reaches its outer face, the depth counted through the
@@ -1047,15 +1061,35 @@ void resolveGrid(Case& c) {
           "to grade the cells towards the junction automatically, give axial_grading (e.g. {:g}), or check the "
           "numbers you use with `thermorph refine`",
           s.name, e.waterLineParent, e.gradingNeeded > 1.0 ? e.gradingNeeded : 100.0));
-    // A wet coat that leaves the water: the model has no drying (DEVELOPERS.md "Limits"), said so it is not silent.
+    // A coat that leaves the water: wet (its wetted fraction > 0 then), it evaporates and conducts as wet as that
+    // fraction says while it dries (Body::setCoat); dry, it is dry at once, said so it is not silent.
     if (e.coatLeavesWater >= 0.0) {
-      c.warnings.push_back(fmt::format(
-          "segment {}: its coat leaves the water at t = {:g} s and is treated as dry from then on (dry conductivity, "
-          "no evaporation of the water it holds): thermorph does not model the drying of a wet coat, so the heat "
-          "lost after leaving the water is underestimated; surface.wetted_fraction = 1 (no evaporation in water) "
-          "with an [[events]] entry at that time, ramp = the drying time and surface = {{ {} = {{ wetted_fraction = "
-          "0 }} }}, adds evaporation from the coat's surface while it dries",
-          s.name, e.coatLeavesWater, s.name));
+      const TissueProperties& coat = c.tissues.at(s.coat->material);
+      const bool conducts = coat.wetConductivity > 0.0 && coat.wetConductivity != coat.conductivity;
+      if (e.coatWetOnLeaving > 0.0) {
+        const std::string until =
+            e.coatDriedAt >= 0.0 ? fmt::format("until it reaches 0 at t = {:g} s", e.coatDriedAt)
+                                 : fmt::format("while it is above 0 ({:g} at the last time in air)", e.coatWetAtEnd);
+        c.warnings.push_back(
+            conducts ? fmt::format("segment {}: its coat leaves the water at t = {:g} s wet (wetted fraction {:g}): "
+                                   "modelled are evaporation from its surface and a coat conductivity that follows "
+                                   "the wetted fraction w, k_dry + w (k_wet - k_dry) between {:g} and {:g} W/(m K), "
+                                   "{}",
+                                   s.name, e.coatLeavesWater, e.coatWetOnLeaving, coat.conductivity,
+                                   coat.wetConductivity, until)
+                     : fmt::format("segment {}: its coat leaves the water at t = {:g} s wet (wetted fraction {:g}): "
+                                   "modelled is evaporation from its surface {} (its material has no wet_conductivity "
+                                   "of its own: it conducts as given, wet or dry)",
+                                   s.name, e.coatLeavesWater, e.coatWetOnLeaving, until));
+      } else {
+        c.warnings.push_back(fmt::format(
+            "segment {}: its coat leaves the water at t = {:g} s and is treated as dry from then on (dry conductivity, "
+            "no evaporation of the water it holds): its wetted fraction is 0 then, so the heat lost after leaving the "
+            "water is underestimated; surface.wetted_fraction = 1 (no evaporation in water) with an [[events]] entry "
+            "at that time, ramp = the drying time and surface = {{ {} = {{ wetted_fraction = 0 }} }}, adds "
+            "evaporation from the coat's surface and keeps its conductivity wet in proportion while it dries",
+            s.name, e.coatLeavesWater, s.name));
+      }
       c.timelineWarnings.push_back(c.warnings.back());  // an event after t = 0: not for a steady solve
     }
     // Radial cells per layer, the coat last.

@@ -137,6 +137,10 @@ struct SegmentGridEstimate {
   std::string waterLineParent;     //!< the parent, when the water line lies at this segment's junction
   double junctionBiotLength = 0.0; //!< a bare child on a coated parent: k/h of its skin at the largest h [m]
   double coatLeavesWater = -1.0;   //!< first probed time a coated segment is out of water after being in it [s]
+  double coatWetOnLeaving = 0.0;   //!< its wetted fraction then [1]
+  double coatDriedAt = -1.0;       //!< first probed time after that the wetted fraction is 0 in air (-1: not in the
+                                   //!< run, or back in water first) [s]
+  double coatWetAtEnd = 0.0;       //!< the wetted fraction at the last probed time in air after leaving [1]
   double endShare = 0.0;           //!< exposed end-face area over the segment's exposed area (transient only) [1]
   //! Steady exposed end faces (cylinders, cones; a root's two, a child's distal one), grid.cpp endFaceTerms:
   double tissueEndShare = 0.0;     //!< share of the surface heat leaving through the tissue ends, times the share

@@ -138,8 +138,8 @@ TEST_CASE("A water line at a junction is named in the warnings", "[grid]") {
 }
 
 TEST_CASE("A coat that leaves the water is named in the warnings (no drying model)", "[grid]") {
-  // A furred trunk swims, then an event takes it into air: the model treats the coat as dry at once (no evaporation
-  // of the water it holds), so the warnings say so, with the time; a coat in air throughout, or a bare segment that
+  // A furred trunk swims, then an event takes it into air: with a wetted fraction of 0 the model treats the coat as
+  // dry at once (no evaporation of the water it holds), so the warnings say so, with the time; a coat in air throughout, or a bare segment that
   // leaves the water, is not named. Common practice, no source: a trap a user should be told about.
   auto text = [](const std::string& coat, const std::string& medium) {
     return "title = \"haul-out\"\n[run]\nduration = 1200\n[[segments]]\nname = \"trunk\"\nshape = \"cylinder\"\n"
@@ -156,6 +156,45 @@ TEST_CASE("A coat that leaves the water is named in the warnings (no drying mode
   CHECK(named(loadCaseFromString(text(fur, "water"), "test-case")));
   CHECK_FALSE(named(loadCaseFromString(text(fur, "air"), "test-case")));
   CHECK_FALSE(named(loadCaseFromString(text("", "water"), "test-case")));
+}
+
+TEST_CASE("A wet coat that leaves the water: the warning says what is modelled, the advice only for a dry one", "[grid]") {
+  // The coat leaves the water at 600 s. Wet then (surface.wetted_fraction = 1, drying by an event's ramp), the model
+  // evaporates from its surface and its conductivity follows the wetted fraction (Body::setCoat): the warning says so
+  // with the time the fraction reaches 0 and gives no advice; dry then, it keeps the advice. Common practice, no
+  // source: a warning names what the run computes.
+  auto text = [](const std::string& surface, const std::string& events) {
+    return "title = \"haul-out\"\n[run]\nduration = 1200\n[[segments]]\nname = \"trunk\"\nshape = \"cylinder\"\n"
+           "length = 0.2\nlayers = [{ tissue = \"muscle\", thickness = 0.04 }]\n"
+           "coat = { material = \"fur\", thickness = 0.01 }\n" + surface +
+           "[environment]\nmedium = \"water\"\ntemperature = 283.15\n"
+           "[[events]]\nat = 600\nenvironment = { medium = \"air\", temperature = 278.15, speed = 1 }\n" + events;
+  };
+  auto warning = [](const Case& c) {
+    for (const std::string& w : c.warnings)
+      if (w.find("segment trunk: its coat leaves the water at t = 600 s") != std::string::npos) return w;
+    return std::string();
+  };
+  const std::string wet = "surface = { wetted_fraction = 1 }\n";
+  const std::string drying = "[[events]]\nat = 600\nramp = 300\nsurface = { trunk = { wetted_fraction = 0 } }\n";
+  const std::string w = warning(loadCaseFromString(text(wet, drying), "test-case"));
+  INFO(w);
+  CHECK_THAT(w, Catch::Contains("wet (wetted fraction 1)") && Catch::Contains("evaporation from its surface") &&
+                    Catch::Contains("follows the wetted fraction") && Catch::Contains("until it reaches 0 at t = 900 s"));
+  CHECK(w.find("underestimated") == std::string::npos);
+  CHECK(w.find("ramp = the drying time") == std::string::npos);
+  // Drying slower than the run: still wet at its end.
+  const std::string slow = "[[events]]\nat = 600\nramp = 1200\nsurface = { trunk = { wetted_fraction = 0 } }\n";
+  const std::string s = warning(loadCaseFromString(text(wet, slow), "test-case"));
+  INFO(s);
+  CHECK_THAT(s, Catch::Contains("while it is above 0 (0.5 at the last time in air)"));
+  // Dry when it leaves (no wetting, or wetting that ends in the water): the advice.
+  for (const std::string& t : {text("", ""), text(wet, "[[events]]\nat = 300\nsurface = { trunk = { wetted_fraction = 0 } }\n")}) {
+    const std::string d = warning(loadCaseFromString(t, "test-case"));
+    INFO(d);
+    CHECK_THAT(d, Catch::Contains("treated as dry from then on") && Catch::Contains("underestimated") &&
+                      Catch::Contains("ramp = the drying time"));
+  }
 }
 
 TEST_CASE("A steady solve leaves out the warnings about the timeline after t = 0, a transient run keeps them", "[grid]") {
