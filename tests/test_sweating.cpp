@@ -25,6 +25,7 @@
 
 #include "test_common.hpp"
 #include "test_evaporation_reference.hpp"
+#include "test_wet_sphere.hpp"
 #include "test_lumped_sphere.hpp"
 #include "test_run_datasets.hpp"
 #include "test_support.hpp"
@@ -40,30 +41,15 @@ namespace {
 constexpr double pi = std::numbers::pi;
 using Run = testing::RunDatasets;
 
-// The lumped sphere of tests/test_lumped_sphere.hpp (R = 2 cm, k = 1000 W/(m K)) with rho c = 1e5 J/(m3 K), a heat
-// source of 0.5 W (Q10 = 1), in air at 30 degC, RH 0.4, a fixed h = 10 W/(m2 K) (no radiation).
-constexpr double R = 0.02, h = 10.0, Ta = 303.15, RH = 0.4, Q = 0.5;
-const double V = 4.0 / 3.0 * pi * R * R * R, A = 4.0 * pi * R * R;
+using namespace testing::wet_sphere;  // R, V, A, h, Ta, RH, Q; evaporation()
 
+// The wet sphere's overrides for a steady start of 600 s with outputs every 60 s, then `more`.
 std::vector<std::string> sphereOverrides(std::vector<std::string> more) {
-  std::vector<std::string> o = {"run.rtol=1e-9",
-                                "run.atol=1e-9",
-                                "run.duration=600",
-                                "run.output_interval=60",
-                                "run.initial=steady",
-                                "tissues.lump.density=1000",
-                                "tissues.lump.q10=1",
-                                "tissues.lump.metabolic_heat=" + testing::num(Q / V),
-                                "environment.convection=10",
-                                "environment.temperature=30 degC",
-                                "environment.relative_humidity=0.4"};
+  std::vector<std::string> o = {"run.duration=600", "run.output_interval=60", "run.initial=steady"};
   o.insert(o.end(), more.begin(), more.end());
-  return o;
+  return overrides(o);
 }
 
-// --- The reference, with its own property values (tests/test_evaporation_reference.hpp) -----------------------
-//! Evaporation from the sphere at surface temperature T with wetted fraction w [W] (positive out of the body).
-double evaporation(double T, double w) { return testing::referenceEvaporation(T, w, Ta, RH, h, A); }
 //! The sweating law as the case states it (README, cases/REFERENCE.md): w_0 + clamp(g (T - T_set), 0, max - w_0).
 double wettedBySweating(double T, double own, double gain, double setPoint, double max) {
   return own + std::clamp(gain * (T - setPoint), 0.0, std::max(0.0, max - own));

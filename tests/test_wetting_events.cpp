@@ -27,6 +27,7 @@
 
 #include "test_common.hpp"
 #include "test_evaporation_reference.hpp"
+#include "test_wet_sphere.hpp"
 #include "test_lumped_sphere.hpp"
 #include "test_run_datasets.hpp"
 #include "test_support.hpp"
@@ -43,28 +44,8 @@ constexpr double pi = std::numbers::pi;
 
 using Run = testing::RunDatasets;
 
-// The lumped sphere of tests/test_lumped_sphere.hpp (R = 2 cm, k = 1000 W/(m K)) with rho c = 1e5 J/(m3 K) and a
-// heat source of 0.5 W (Q10 = 1), in air at 30 degC, RH 0.4, a fixed h = 10 W/(m2 K) (no radiation: the default
-// emissivity with a fixed coefficient is 0). Bi = (h + evaporation's ~15 W/(m2 K)) R / k < 1e-3.
-constexpr double R = 0.02, rhoC = 1000.0 * 100.0, h = 10.0, Ta = 303.15, RH = 0.4, Q = 0.5;
-const double V = 4.0 / 3.0 * pi * R * R * R, A = 4.0 * pi * R * R;
+using namespace testing::wet_sphere;  // R, V, A, h, Ta, RH, Q, rhoC; overrides(), evaporation()
 
-std::vector<std::string> sphereOverrides(std::vector<std::string> more) {
-  std::vector<std::string> o = {"run.rtol=1e-9",
-                                "run.atol=1e-9",
-                                "tissues.lump.density=1000",
-                                "tissues.lump.q10=1",
-                                "tissues.lump.metabolic_heat=" + testing::num(Q / V),
-                                "environment.convection=10",
-                                "environment.temperature=30 degC",
-                                "environment.relative_humidity=0.4"};
-  o.insert(o.end(), more.begin(), more.end());
-  return o;
-}
-
-// --- The reference, with its own property values (tests/test_evaporation_reference.hpp) -----------------------
-//! Evaporation from the sphere at surface temperature T with wetted fraction w [W] (positive out of the body).
-double evaporation(double T, double w) { return testing::referenceEvaporation(T, w, Ta, RH, h, A); }
 //! Net heat into the sphere at temperature T [W].
 double netHeat(double T, double w) { return Q + h * A * (Ta - T) - evaporation(T, w); }
 double steadyTemperature(double w) {
@@ -82,7 +63,7 @@ TEST_CASE("Wetted fraction stepped by an event: steady states and transient of a
   const Run r = testing::runDatasets(
       text, "wetting-step.toml",
       {"/segments/ball/temperature", "/segments/ball/wetted_fraction", "/segments/ball/heat_flow/evaporation"},
-      sphereOverrides({"run.duration=1500", "run.initial=steady"}));
+      overrides({"run.duration=1500", "run.initial=steady"}));
   REQUIRE(r.summary.complete);
   const std::vector<double>& T = r.data[0];  // degC
   const std::vector<double>& wetted = r.data[1];
@@ -154,7 +135,7 @@ TEST_CASE("Wetted fraction ramped by an event: linear in time, evaporation follo
   const Run r = testing::runDatasets(
       text, "wetting-ramp.toml",
       {"/segments/ball/temperature", "/segments/ball/wetted_fraction", "/segments/ball/heat_flow/evaporation"},
-      sphereOverrides({"run.duration=2400", "run.output_interval=60", "run.initial=steady",
+      overrides({"run.duration=2400", "run.output_interval=60", "run.initial=steady",
                        "segments.ball.surface.wetted_fraction=0.3"}));
   REQUIRE(r.summary.complete);
   double worstWet = 0.0, worstFlux = 0.0, afterRamp = 0.0;
