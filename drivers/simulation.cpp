@@ -219,10 +219,10 @@ std::vector<double> steadyTemperatures(const Body& body, NetworkSystem& transien
 }
 
 //! Warnings for a steady state in which a heat defence is exhausted: shivering at its maximum power, panting at its
-//! largest ventilation or sweating at its largest wetted fraction. The controller's proportional law then no longer holds its signal near the set point, so
-//! the state is the passive balance of a body at full effort. Found in a new-user trial: a 2 kg swimmer started
-//! with `initial = "steady"` in 6 degC water began its run at a core of 17.2 degC (shivering at its maximum), with
-//! nothing said; the user expected a body at rest before the swim.
+//! largest ventilation or sweating at its largest wetted fraction. The controller's proportional law then no longer
+//! holds its signal near the set point, so the state is the passive balance of a body at full effort. Found in a
+//! new-user trial: a 2 kg swimmer started with `initial = "steady"` in 6 degC water began its run at a core of
+//! 17.2 degC (shivering at its maximum), with nothing said; the user expected a body at rest before the swim.
 std::vector<std::string> exhaustedDefences(const Body& body, std::span<const double> state, const char* what) {
   std::vector<std::string> warnings;
   const Network& n = body.network();
@@ -237,11 +237,15 @@ std::vector<std::string> exhaustedDefences(const Body& body, std::span<const dou
     for (auto [node, w] : c.signal) signal += w * state[node];
     // At a steady state the lagged state equals its target clamp(bias + gain (T - set point), lower, upper).
     const double target = c.bias + c.gain * (signal - setpoint);
+    const char* signalName = (sweating ? cs.sweating : shivering ? cs.shivering : cs.panting).signal == ControlSignal::Core
+                                 ? "core"
+                                 : "mean skin";
+    const double offset = signal - setpoint;
+    std::string reason;
     if (sweating) {
       // Sweating is exhausted where every segment it wets is at `max` (w_0 + s, at most max: a segment wetted by its
       // own w_0 reaches it before s does), its state at the steady state's target.
-      const Index nodes = n.nodes.size();
-      std::vector<double> controls(state.begin() + static_cast<std::ptrdiff_t>(nodes), state.end());
+      std::vector<double> controls(state.begin() + static_cast<std::ptrdiff_t>(n.nodes.size()), state.end());
       const Index k = static_cast<Index>(&c - n.controllers.data());
       if (k >= controls.size()) continue;
       controls[k] = std::clamp(target, c.lower, c.upper);
@@ -253,27 +257,19 @@ std::vector<std::string> exhaustedDefences(const Body& body, std::span<const dou
         if (body.wettedFraction(g, 0.0, controls) < c.upper * (1.0 - 1e-9)) all = false;
       }
       if (!all || wet.empty()) continue;
-      const char* signalName = cs.sweating.signal == ControlSignal::Core ? "core" : "mean skin";
-      warnings.push_back(fmt::format(
-          "{}: sweating at its largest wetted fraction ({:.4g} of the skin of {}) and the {} at {:.1f} degC, {:.1f} K "
-          "above the sweating set point ({:.4g} degC): the body cannot shed the heat it gains. This is where the body "
-          "settles after a long exposure at full effort (the surroundings and physiology of t = 0), not a state at "
-          "rest before it; to start from rest, start in other surroundings (initial_temperature, or a steady start in "
-          "the surroundings before the exposure, changed to it by an event)",
-          what, c.upper, fmt::join(wet, ", "), signalName, signal - 273.15, signal - setpoint, setpoint - 273.15));
-      continue;
+      reason = fmt::format("sweating at its largest wetted fraction ({:.4g} of the skin of {}) and the {} at {:.1f} degC, "
+                           "{:.1f} K above the sweating set point ({:.4g} degC): the body cannot shed the heat it gains",
+                           c.upper, fmt::join(wet, ", "), signalName, signal - 273.15, offset, setpoint - 273.15);
+    } else {
+      if (!(target >= c.upper - 1e-9 * std::max(1.0, std::abs(c.upper)))) continue;
+      reason =
+          shivering ? fmt::format("shivering at its maximum power and the {} at {:.1f} degC, {:.1f} K below the shivering "
+                                  "set point ({:.4g} degC): the surroundings take more heat than the body can make",
+                                  signalName, signal - 273.15, -offset, setpoint - 273.15)
+                    : fmt::format("panting at its largest ventilation ({:.4g} x) and the {} at {:.1f} degC, {:.1f} K above "
+                                  "the panting set point ({:.4g} degC): the body cannot shed the heat it gains",
+                                  c.upper, signalName, signal - 273.15, offset, setpoint - 273.15);
     }
-    if (!(target >= c.upper - 1e-9 * std::max(1.0, std::abs(c.upper)))) continue;
-    const ControllerSpec& spec = shivering ? cs.shivering : cs.panting;
-    const char* signalName = spec.signal == ControlSignal::Core ? "core" : "mean skin";
-    const double offset = signal - setpoint;
-    std::string reason =
-        shivering ? fmt::format("shivering at its maximum power and the {} at {:.1f} degC, {:.1f} K below the shivering "
-                                "set point ({:.4g} degC): the surroundings take more heat than the body can make",
-                                signalName, signal - 273.15, -offset, setpoint - 273.15)
-                  : fmt::format("panting at its largest ventilation ({:.4g} x) and the {} at {:.1f} degC, {:.1f} K above "
-                                "the panting set point ({:.4g} degC): the body cannot shed the heat it gains",
-                                c.upper, signalName, signal - 273.15, offset, setpoint - 273.15);
     warnings.push_back(fmt::format(
         "{}: {}. This is where the body settles after a long exposure at full effort (the surroundings and physiology "
         "of t = 0), not a state at rest before it; to start from rest, start in other surroundings (initial_temperature, "
@@ -506,18 +502,16 @@ void printBudget(const Body& body, const RunSummary& s, std::FILE* out) {
   // The temperatures a reader looks for first, at the same time as the table (a new-user trial had to open the
   // results file to see that a steady start had put the core at 17 degC).
   if (s.finalState.size() == n.nodes.size()) {
-    if (s.startTemperatures.size() == 3) {
-      const double core = s.startTemperatures[0], blood = s.startTemperatures[1], skin = s.startTemperatures[2];
-      std::string start = fmt::format("Steady start at t = 0 s: core {:.2f} degC, ", core - 273.15);
-      if (!std::isnan(blood)) start += fmt::format("blood {:.2f} degC, ", blood - 273.15);
-      start += fmt::format("mean skin {:.2f} degC (the balance of the surroundings and physiology of t = 0)", skin - 273.15);
-      fmt::print(out, "{}\n", start);
-    }
+    auto temperatures = [](double core, double blood, double skin) {  // [K]; blood NaN without a pool
+      return fmt::format("core {:.2f} degC, {}mean skin {:.2f} degC", core - 273.15,
+                         std::isnan(blood) ? std::string() : fmt::format("blood {:.2f} degC, ", blood - 273.15),
+                         skin - 273.15);
+    };
+    if (s.startTemperatures.size() == 3)
+      fmt::print(out, "Steady start at t = 0 s: {} (the balance of the surroundings and physiology of t = 0)\n",
+                 temperatures(s.startTemperatures[0], s.startTemperatures[1], s.startTemperatures[2]));
     const BodyTemperatures t = bodyTemperatures(body, s.finalState);
-    std::string line = fmt::format("Temperatures at t = {:g} s: core {:.2f} degC, ", s.finalTime, t.core - 273.15);
-    if (!std::isnan(t.blood)) line += fmt::format("blood {:.2f} degC, ", t.blood - 273.15);
-    line += fmt::format("mean skin {:.2f} degC", t.skin - 273.15);
-    fmt::print(out, "{}\n", line);
+    fmt::print(out, "Temperatures at t = {:g} s: {}\n", s.finalTime, temperatures(t.core, t.blood, t.skin));
     if (!n.controllers.empty() && s.controls.size() >= n.controllers.size()) {
       std::string states;
       for (std::size_t k = 0; k < n.controllers.size(); ++k)
