@@ -358,10 +358,11 @@ std::vector<std::string> ControlGridWatch::warnings() const {
       const bool rest = e.storageError > 0.0;
       const double tolerance = roundDown(tolerance_ * (rest ? 0.5 : 1.0) * limit_ / quasiStatic);
       text += fmt::format("; about run.grid_tolerance = {:g} (now {:g}) meets {} on automatic cell counts (they change "
-                          "in steps: rerun to see; given counts: refine them, or check with `thermorph refine`)",
-                          tolerance, tolerance_, rest ? "the rest" : "it");
+                          "in steps: rerun to see; given counts: refine them), or measure it with `thermorph refine CASE "
+                          "--metric controls.{}`",
+                          tolerance, tolerance_, rest ? "the rest" : "it", e.controller);
     } else {
-      text += "; check with `thermorph refine`";
+      text += fmt::format("; measure it with `thermorph refine CASE --metric controls.{}`", e.controller);
     }
     out.push_back(std::move(text));
   }

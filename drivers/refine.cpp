@@ -26,7 +26,8 @@ constexpr double notANumber = std::numeric_limits<double>::quiet_NaN();
 //! mean temperature.
 const std::vector<std::string> kDefaultMetrics = {
     "body.heat_flow",           "body.core_temperature",       "body.blood_temperature.final",
-    "body.mean_skin_temperature.final", "segments.*.heat_flow", "segments.*.mean_temperature.final"};
+    "body.mean_skin_temperature.final", "segments.*.heat_flow", "segments.*.mean_temperature.final",
+    "controls.*.final"};
 
 bool selected(const std::string& name, const std::vector<std::string>& selectors) {
   for (const std::string& sel : selectors) {
@@ -260,7 +261,8 @@ RefineResult runRefinement(const RefineOptions& options) {
     result.seconds.push_back(std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count());
   }
 
-  // Temperature ranges (max - min over the window: a core drop) next to their series.
+  // Ranges (max - min over the window: a core drop, a controller's swing) next to their series, in kelvin for a
+  // temperature, else in the series' own unit.
   std::vector<MetricColumn> all;
   std::vector<std::vector<double>> allValues(values.size());
   for (std::size_t k = 0; k < columns.size(); ++k) {
@@ -271,7 +273,7 @@ RefineResult runRefinement(const RefineOptions& options) {
       const std::string stem = name.substr(0, name.size() - 4);
       for (std::size_t j = 0; j < columns.size(); ++j)
         if (columns[j].name == stem + ".min") {
-          all.push_back({stem + ".range", "K", "max - min over the window"});
+          all.push_back({stem + ".range", columns[k].units == "degC" ? "K" : columns[k].units, "max - min over the window"});
           for (std::size_t l = 0; l < values.size(); ++l) allValues[l].push_back(values[l][k] - values[l][j]);
         }
     }
@@ -359,7 +361,7 @@ std::string refineTable(const RefineResult& r) {
   out += fmt::format(
       "order: observed from the three finest grids (Roache 1998); '-': not monotone or converged to round-off.\n"
       "A heat flow below 1e-9 of the table's largest on every grid is zero to round-off (a transfer inside the body): '-'.\n"
-      "1x vs fine: |1x - finest| relative to |finest| (heat flows), to |finest - {:.4g} degC| (the medium at t = 0; "
+      "1x vs fine: |1x - finest| relative to |finest| (heat flows, controller states), to |finest - {:.4g} degC| (the medium at t = 0; "
       "temperatures) or to the finest range (ranges);\n"
       "  storage rows (a small difference of the flows in and out) relative to the largest |heat flow| of the same "
       "body or segment's channels on the finest grid.\n",

@@ -30,6 +30,13 @@ std::vector<std::string> temperatureNames(const Body& body) {
   return names;
 }
 
+//! The controllers' names for a message ("none" without controllers).
+std::string controllerNames(const Body& body) {
+  std::vector<std::string> names;
+  for (const Controller& c : body.network().controllers) names.push_back(c.name);
+  return names.empty() ? std::string("none in this case") : fmt::format("{}", fmt::join(names, ", "));
+}
+
 //! Value of the piecewise-linear series through (t0, v0), (t1, v1) at t in [t0, t1]; exact at the ends.
 double interpolate(double t0, double v0, double t1, double v1, double t) {
   if (t == t0) return v0;
@@ -113,6 +120,14 @@ std::vector<MetricColumn> metricColumns(const Body& body, std::span<const Thresh
                                    steady ? "" : ", from the change of its stored heat")});
     addTemperature(3 + g, "tissue temperature of " + m.name + " (volume mean, coat excluded)");
   }
+  // Controllers: their states as /control/NAME stores them (a multiplier or an open fraction).
+  for (const Controller& c : n.controllers)
+    for (const char* s : statistics)
+      columns.push_back({"controls." + c.name + "." + s, "1",
+                         steady ? fmt::format("state of controller {} (as /control/{}) at the steady state", c.name,
+                                              c.name)
+                                : fmt::format("{} of the state of controller {} (as /control/{}) over the window", s,
+                                              c.name, c.name)});
   for (const Threshold& th : thresholds)
     columns.push_back({th.text, "s",
                        fmt::format("first time {} is {} {:g} degC (linear between outputs; NaN: never)", th.quantity,
@@ -165,7 +180,7 @@ MetricCollector::MetricCollector(const Body& body, MetricWindow window, std::spa
   const Network& n = body.network();
   temperatures_ = names.size();
   segmentFlows_ = body.segments().size() * (n.channels.size() + 1);
-  series_.resize(temperatures_ + segmentFlows_ + n.channels.size() + 1);
+  series_.resize(temperatures_ + segmentFlows_ + n.channels.size() + 1 + n.controllers.size());
   crossing_.assign(thresholds_.size(), notANumber);
 }
 
@@ -227,6 +242,8 @@ void MetricCollector::sample(std::span<const double> y, const RunSummary& s) {
     for (std::size_t c = 0; c < channels; ++c) current_[k++] = s.channelEnergy[c];
     current_[k++] = s.storedChange;
   }
+  for (std::size_t c = 0; c < n.controllers.size(); ++c)
+    current_[k++] = c < s.controls.size() ? s.controls[c] : notANumber;
 }
 
 void MetricCollector::reduce(double t0, double t1, std::span<const double> v0, std::span<const double> v1) {
@@ -288,7 +305,7 @@ std::vector<double> MetricCollector::values() const {
   };
   const std::size_t body = temperatures_ + segmentFlows_;
   for (std::size_t c = 0; c <= channels; ++c) out.push_back(difference(body + c));
-  auto temperature = [&](std::size_t q) {
+  auto statistics4 = [&](std::size_t q) {  // mean, final, min, max (a temperature or a controller state)
     if (steady_) {
       out.insert(out.end(), 4, last[q]);
       return;
@@ -299,11 +316,12 @@ std::vector<double> MetricCollector::values() const {
     out.push_back(s.min);
     out.push_back(s.max);
   };
-  for (std::size_t q = 0; q < 3; ++q) temperature(q);
+  for (std::size_t q = 0; q < 3; ++q) statistics4(q);
   for (std::size_t g = 0; g < body_.segments().size(); ++g) {
     for (std::size_t c = 0; c <= channels; ++c) out.push_back(difference(temperatures_ + g * (channels + 1) + c));
-    temperature(3 + g);
+    statistics4(3 + g);
   }
+  for (std::size_t c = 0; c < n.controllers.size(); ++c) statistics4(body + channels + 1 + c);
   for (double t : crossing_) out.push_back(t);
   return out;
 }
@@ -330,9 +348,9 @@ MetricChoice chooseMetrics(const Body& body, std::span<const std::string> metric
       throw CaseError(fmt::format("--metric {}: matches no metric; metrics are body.heat_flow.CHANNEL, "
                                   "body.core_temperature.STAT, body.blood_temperature.STAT, "
                                   "body.mean_skin_temperature.STAT, segments.NAME.heat_flow.CHANNEL, "
-                                  "segments.NAME.mean_temperature.STAT (STAT: mean, final, min, max; CHANNEL: {}, "
-                                  "storage), a prefix of these or a pattern with *, and time_to:QUANTITY<VALUE",
-                                  sel, fmt::join(body.network().channels, ", ")));
+                                  "segments.NAME.mean_temperature.STAT, controls.CONTROLLER.STAT (STAT: mean, final, min, "
+                                  "max; CHANNEL: {}, storage; CONTROLLER: {}), a prefix of these or a pattern with *, and time_to:QUANTITY<VALUE",
+                                  sel, fmt::join(body.network().channels, ", "), controllerNames(body)));
   }
   for (std::size_t c = 0; c < all.size(); ++c)
     if (keep[c] || c >= all.size() - out.thresholds.size()) out.columns.push_back(all[c]);

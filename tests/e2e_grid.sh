@@ -49,6 +49,13 @@ grep -q "^body.heat_flow.convection,W," "$work/ref.csv" || fail "refine CSV: $(c
     > /dev/null || fail "refine --cold-start exit $?"
 cmp -s "$work/ref.csv" "$work/cold.csv" || fail "refine --cold-start without a steady start changed the table"
 grep -q "steady solve" "$work/ref.txt" && fail "refine reports a steady solve for a case without one: $(cat "$work/ref.txt")"
+# A controller's state is a refine row (controls.NAME.STAT, unit 1; its range in the same unit, not kelvin), as the
+# controller grid warning tells the user to measure it (README "Controller outputs").
+tree="$src/tests/bench/studies/tree_dweller_night.toml"
+"$exe" refine "$tree" --metric controls.shivering --csv "$work/ctl.csv" > /dev/null \
+    || fail "refine --metric controls.shivering exit $?"
+grep -q "^controls.shivering.final,1,0\.[0-9]" "$work/ctl.csv" || fail "refine controls row: $(cat "$work/ctl.csv")"
+grep -q "^controls.shivering.range,1," "$work/ctl.csv" || fail "refine controls range unit: $(cat "$work/ctl.csv")"
 "$exe" refine "$limb" --levels 2 > /dev/null 2>&1; code=$?
 [ "$code" -eq 2 ] || fail "refine --levels 2: exit $code, expected 2"
 # 5. run.axial_grading: a bad value is exit 2 with file:line:column and the key path, and leaves an earlier result

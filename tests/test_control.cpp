@@ -10,6 +10,7 @@
 #include <string>
 #include <vector>
 
+#include "drivers/sweep_metrics.hpp"
 #include "test_support_body.hpp"
 
 using namespace thermorph;
@@ -313,6 +314,86 @@ control = { vasomotor = { set_point = "36.5 degC" }, panting = { set_point = "36
   }
   // The signal really stayed put (a check of the set-up).
   for (const auto& T : trace.nodes) CHECK(std::abs(coreMean(*body, T) - (37.0 + kZero)) < 1e-9);
+}
+
+TEST_CASE("Sweep metrics of a controller state: mean, final, min and max of the exact first-order response",
+          "[control][metrics]") {
+  // The equilibrium body of the test above (signal exactly 37 degC throughout): at 10 min the vasomotor set point
+  // steps from 37 to 36.5 degC, so its states follow u(t) = u* + (u0 - u*) exp(-(t - 600 s)/tau), tau = 120 s,
+  // u0 = 1, u* = 1.5 (skin) and u0 = 0, u* = 0.5 (shunts); before the step u = u0 (first-order system: common
+  // practice, no source). Exact over the run [0, T = 1800 s]: mean = (600 u0 + 1200 u* + (u0 - u*) tau (1 -
+  // exp(-1200/tau))) / T, final = u* + (u0 - u*) exp(-1200/tau), min = u0, max = final. The metrics take the mean by
+  // the trapezoid rule over 10 s outputs (error about h^2/12 |u'| jump / T = 2e-5 here) of states integrated to
+  // 1e-6 per step; criterion 2e-4. A steady sweep reports the state at the steady state: u* exactly, to KINSOL's
+  // tolerance (criterion 1e-6).
+  const std::string caseText = equilibrium + R"toml(
+[run]
+duration = "30 min"
+output_interval = "10 s"
+initial_temperature = "37 degC"
+[control.vasomotor]
+set_point = "37 degC"
+time_constant = "2 min"
+[[events]]
+at = "10 min"
+control = { vasomotor = { set_point = "36.5 degC" } }
+)toml";
+  auto body = bodyFromToml(caseText);
+  MetricCollector collector(*body, MetricWindow{}, {}, false);
+  RunOptions options = silentRun();
+  options.observer = [&](double t, std::span<const double> y, const RunSummary& s) { collector.observe(t, y, s); };
+  REQUIRE(runTransient(*body, options).complete);
+  const std::vector<MetricColumn> columns = metricColumns(*body, {}, false);
+  const std::vector<double> values = collector.values();
+  REQUIRE(columns.size() == values.size());
+  auto metric = [&](const std::string& name) {
+    for (std::size_t k = 0; k < columns.size(); ++k)
+      if (columns[k].name == name) {
+        CHECK(columns[k].units == "1");
+        return values[k];
+      }
+    FAIL("no metric " << name);
+    return 0.0;
+  };
+  const double tau = 120.0, T = 1800.0, decay = std::exp(-1200.0 / tau);
+  struct Expected {
+    const char* name;
+    double u0, target;
+  };
+  for (const Expected& e : {Expected{"vasomotor_skin_perfusion", 1.0, 1.5}, Expected{"vasomotor_shunts", 0.0, 0.5}}) {
+    const std::string stem = std::string("controls.") + e.name + ".";
+    const double mean = (600.0 * e.u0 + 1200.0 * e.target + (e.u0 - e.target) * tau * (1.0 - decay)) / T;
+    const double final = e.target + (e.u0 - e.target) * decay;
+    std::printf("[control][metrics] %-26s mean %.6f (exact %.6f), final %.6f (exact %.6f), min %.6f, max %.6f\n",
+                e.name, metric(stem + "mean"), mean, metric(stem + "final"), final, metric(stem + "min"),
+                metric(stem + "max"));
+    INFO(e.name);
+    CHECK(std::abs(metric(stem + "mean") - mean) < 2e-4);
+    CHECK(std::abs(metric(stem + "final") - final) < 2e-4);
+    CHECK(std::abs(metric(stem + "min") - e.u0) < 2e-4);
+    CHECK(std::abs(metric(stem + "max") - final) < 2e-4);
+  }
+
+  // Steady: the set point 36.5 degC from the start; the signal stays at 37 degC, so each state is its target.
+  auto steadyBody = bodyFromToml(equilibrium + R"toml(
+[control.vasomotor]
+set_point = "36.5 degC"
+)toml");
+  MetricCollector steady(*steadyBody, MetricWindow{}, {}, true);
+  RunOptions steadyOptions = silentRun();
+  steadyOptions.observer = [&](double t, std::span<const double> y, const RunSummary& s) { steady.observe(t, y, s); };
+  REQUIRE(runSteady(*steadyBody, steadyOptions).complete);
+  const std::vector<MetricColumn> steadyColumns = metricColumns(*steadyBody, {}, true);
+  const std::vector<double> steadyValues = steady.values();
+  for (const Expected& e : {Expected{"vasomotor_skin_perfusion", 1.0, 1.5}, Expected{"vasomotor_shunts", 0.0, 0.5}})
+    for (const char* stat : {"mean", "final", "min", "max"}) {
+      const std::string name = std::string("controls.") + e.name + "." + stat;
+      auto it = std::find_if(steadyColumns.begin(), steadyColumns.end(),
+                             [&](const MetricColumn& c) { return c.name == name; });
+      REQUIRE(it != steadyColumns.end());
+      INFO(name);
+      CHECK(std::abs(steadyValues[static_cast<std::size_t>(it - steadyColumns.begin())] - e.target) < 1e-6);
+    }
 }
 
 TEST_CASE("Events switch a controller off and on and move its set point", "[control]") {
