@@ -244,8 +244,19 @@ std::vector<double> crossingShares(Shape shape, double width, const std::vector<
   return shares;
 }
 
+//! Whether an [[events]] entry's control table names the controller `name` (it may enable it during the run).
+bool namedByEvent(const Case& c, const std::string& name) {
+  for (const EventSpec& ev : c.events)
+    for (const ControlTarget& t : ev.control)
+      if (t.controller == name) return true;
+  return false;
+}
+
 //! Largest surface conductance (convection + radiation + evaporation + substrate slopes) of a segment's lateral
-//! face over the timeline [W/(m2 K)], and whether the segment is ever in water.
+//! face over the timeline [W/(m2 K)], and whether the segment is ever in water. A segment that sweats evaporates
+//! over the wetted fraction sweating can reach (the conservative choice: max(w_0, control.sweating.max) at every
+//! probed time where sweatingActs), so where sweating is strong its conductance, and the cells it asks for, are
+//! those of the wet skin the run may have, not of the dry one.
 struct SurfaceProbe {
   std::vector<double> conductance;
   std::vector<bool> everWet;
@@ -253,6 +264,7 @@ struct SurfaceProbe {
   std::vector<std::vector<double>> wetted;  //!< per segment, per probed time: wetted fraction
   std::vector<double> times;                //!< the probed times [s] (as immersed's entries)
   std::vector<double> contrast;             //!< per segment: largest |initial temperature - fluid| [K]
+  std::vector<double> sweatingReach;        //!< per segment: the wetted fraction probed for sweating (-1: none)
 };
 
 SurfaceProbe probeSurfaces(const Case& c) {
@@ -270,10 +282,15 @@ SurfaceProbe probeSurfaces(const Case& c) {
   probe.immersed.assign(n, {});
   probe.wetted.assign(n, {});
   probe.contrast.assign(n, 0.0);
+  // Sweating's state at its upper limit: EnvironmentModel::sweatingWettedFraction gives w_0 + clamp(max, 0, max - w_0),
+  // i.e. max(w_0, max), on the segments it wets.
+  const bool sweating = sweatingActs(c);
+  const double reach = c.control.sweating.upper;
+  probe.sweatingReach.assign(n, -1.0);
   std::vector<double> times{0.0};
   for (double b : env.breakpoints()) times.push_back(b);
   times.push_back(c.run.duration);
-  std::vector<double> heat(network.channels.size()), slope(network.channels.size());
+  std::vector<double> heat(network.channels.size()), slope(network.channels.size()), dControl(network.channels.size());
   const double body = std::max(c.run.initialTemperature, 300.0);
   for (std::size_t k = 0; k + 1 < times.size(); ++k) {
     env.setInterval(k);
@@ -288,7 +305,12 @@ SurfaceProbe probeSurfaces(const Case& c) {
         for (double Ts : {fluid + 0.5 * (body - fluid), fluid + 0.1 * (body - fluid), fluid + 1.0}) {
           std::fill(heat.begin(), heat.end(), 0.0);
           std::fill(slope.begin(), slope.end(), 0.0);
-          env.faceHeat(g, Ts, t, heat, slope);
+          if (sweating && env.sweats(g)) {
+            env.controlledFaceHeat(g, Ts, t, reach, heat, slope, dControl);
+            probe.sweatingReach[g] = std::max(probe.sweatingReach[g], env.sweatingWettedFraction(g, t, reach));
+          } else {
+            env.faceHeat(g, Ts, t, heat, slope);
+          }
           double total = 0.0;
           for (double d : slope) total -= d;
           if (std::isfinite(total)) probe.conductance[g] = std::max(probe.conductance[g], total);
@@ -301,6 +323,11 @@ SurfaceProbe probeSurfaces(const Case& c) {
 }
 
 }  // namespace
+
+bool sweatingActs(const Case& c) {
+  const ControllerSpec& s = c.control.sweating;
+  return s.present && s.gain > 0.0 && s.upper > 0.0 && (s.enabled || namedByEvent(c, "sweating"));
+}
 
 double forcingInterval(const Case& c) {
   // Steps: a start from a uniform temperature (the body meets its surroundings at t = 0) and every event inside
@@ -547,12 +574,7 @@ void storageRule(const Case& c, const std::vector<std::vector<Layer>>& layers, s
     }
   }
   // A controller named in an event's control table may be enabled by it.
-  auto named = [&](const std::string& name) {
-    for (const EventSpec& ev : c.events)
-      for (const ControlTarget& t : ev.control)
-        if (t.controller == name) return true;
-    return false;
-  };
+  auto named = [&](const std::string& name) { return namedByEvent(c, name); };
   struct Output {
     double gain, range;
     std::vector<Index> scope;
@@ -578,6 +600,9 @@ void storageRule(const Case& c, const std::vector<std::vector<Layer>>& layers, s
   if (cs.shivering.present && (cs.shivering.enabled || named("shivering"))) outputs.push_back({cs.shivering.gain, 1.0, all});
   if (cs.panting.present && (cs.panting.enabled || named("panting")))
     outputs.push_back({cs.panting.gain, cs.panting.upper - cs.panting.lower, all});
+  // Sweating drives the evaporation of its segments' faces (Network::faceControls); its signal (core, mean skin)
+  // reads the body, so its scope is the whole body, as the check's.
+  if (sweatingActs(c)) outputs.push_back({cs.sweating.gain, cs.sweating.upper - cs.sweating.lower, all});
   for (const LocalControllerSpec& l : cs.local) {
     const bool on = l.enabled || named(l.name);
     for (const std::string& name : l.segments)
@@ -697,6 +722,8 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
     const std::vector<Layer>& ls = layers[g];
     SegmentGridEstimate e;
     e.segment = s.name;
+    e.surfaceConductance = probe.conductance[g];
+    e.sweatingReach = probe.sweatingReach[g];
     e.forcingInterval = tau;
     const bool plate = s.shape == Shape::Plate, curved = !plate;
     const bool wet = probe.everWet[g];
@@ -1179,6 +1206,18 @@ std::string gridSummary(const Case& c) {
   if (tau > 0.0)
     out += fmt::format("Transient: steps of the surroundings act for at least {:.4g} s; penetration depth "
                        "sqrt(alpha tau) of the outermost tissue layer and, for exposed ends, of the cross-section\n", tau);
+  // Segments that sweat: their surface conductance counts evaporation over the wetted fraction sweating can reach.
+  std::string sweating;
+  double reach = -1.0;
+  for (const SegmentGridEstimate& e : estimates)
+    if (e.sweatingReach >= 0.0) {
+      sweating += (sweating.empty() ? "" : ", ") + e.segment;
+      reach = std::max(reach, e.sweatingReach);
+    }
+  if (!sweating.empty())
+    out += fmt::format("Sweating: the surface conductance of {} counts evaporation over the wetted fraction sweating "
+                       "can reach ({:g}, control.sweating.max or the skin's own if larger) at every time\n",
+                       sweating, reach);
   if (std::any_of(estimates.begin(), estimates.end(), [](const SegmentGridEstimate& e) { return e.childNtu > 0.0; }))
     out += "NTU a/b: the exchanger's NTU for the segment's whole stream / for the stream that reaches its children\n";
   out += fmt::format("{:<14}{:>8}  {:<34}{:>12}{:>10}{:>14}{:>9}\n", "segment", "axial",

@@ -106,6 +106,13 @@ inline constexpr int kBiotCornerSkinCells = 12;
 //! What the estimator found for one segment (for `check` and the warnings).
 struct SegmentGridEstimate {
   std::string segment;
+  //! The largest surface conductance of the lateral face probed over the timeline (convection, radiation,
+  //! evaporation and substrate slopes) [W/(m2 K)]; a segment that sweats evaporates there over the wetted fraction
+  //! sweating can reach (sweatingReach), not its own alone.
+  double surfaceConductance = 0.0;
+  //! The wetted fraction the probe evaporated over on a segment that sweats: max(w_0, control.sweating.max) where
+  //! sweating is enabled at some time of the run with a gain > 0 (sweatingActs); -1 for a segment that does not.
+  double sweatingReach = -1.0;
   double decayLength = 0.0;   //!< 1/m [m] (infinite: no axial decay)
   double ntu = 0.0;           //!< countercurrent exchanger NTU [1]
   double ownStreamShare = 0.0;  //!< share of the segment's blood flow that perfuses its own tissue (the rest passes to children) [1]
@@ -216,7 +223,13 @@ struct AxialGrid {
 };
 AxialGrid cheapestAxialGrid(const SegmentGridEstimate& e, double length, double target);
 
-//! Estimates for every segment of a case (uses the environment's surface conductances over the timeline).
+//! Whether [control.sweating] can wet a skin during the run: present, gain > 0, max > 0, and enabled at the start or
+//! named by an [[events]] entry's control table (which may enable it).
+bool sweatingActs(const Case& c);
+
+//! Estimates for every segment of a case (uses the environment's surface conductances over the timeline; a segment
+//! that sweats evaporates over the largest wetted fraction sweating can reach, max(w_0, control.sweating.max), at
+//! every probed time: the conservative choice, as the run may sweat at max wherever sweatingActs).
 std::vector<SegmentGridEstimate> estimateGrid(const Case& c);
 
 //! Estimated relative error of a segment's heat flows on its cell counts in `c` (the largest of the axial and

@@ -8,6 +8,7 @@
 #include <fmt/format.h>
 
 #include "models/environment.hpp"
+#include "models/grid.hpp"
 
 namespace thermorph {
 
@@ -62,6 +63,8 @@ void InertKeys::environment() {
   std::size_t respiratory = n;
   for (std::size_t g = 0; g < n; ++g)
     if (c.segments[g].name == c.body.respiratorySegment) respiratory = g;
+  // The segments sweating may wet (none where it cannot act: off throughout, gain 0).
+  const std::vector<char> sweating = sweatingActs(c) ? sweatingSegments(c) : std::vector<char>(n, 0);
   for (const SurroundingMedium medium : media) {
     const bool mediumAir = medium == SurroundingMedium::Air;
     for (std::size_t g = 0; g < n; ++g) {
@@ -82,6 +85,8 @@ void InertKeys::environment() {
         }
         if (s.surface.solarAbsorptivity > 0.0 && s.surface.solarExposure > 0.0) used[index(V::SolarIrradiance)] = true;
         if (s.surface.wettedFraction > 0.0) used[index(V::RelativeHumidity)] = true;
+        // ... or wetted by sweating ([control.sweating], when it can act: models/grid.hpp sweatingActs) ...
+        if (sweating[g]) used[index(V::RelativeHumidity)] = true;
         // ... or wet from an [[events]] entry (surface = { SEGMENT = { wetted_fraction = W } }).
         for (const EventSpec& e : c.events)
           for (const WetTarget& w : e.wet)
