@@ -59,6 +59,19 @@ ControlGridWatch::ControlGridWatch(const Body& body, const NetworkSystem& system
     for (Index p = net.exchanges[i].partsBegin; p < net.exchanges[i].partsEnd; ++p)
       term(net.flowParts[p].modulator, {Term::Exchange, i, p});
   for (auto it = net.sources.begin(); it != net.sources.end(); ++it) term((*it).modulator, {Term::Source, it.index(), none});
+  // Sweating drives no modulator: the evaporation of its segments' faces (Network::faceControls), one term per group.
+  for (Index ch = 0; ch < net.channels.size(); ++ch)
+    if (net.channels[ch] == "evaporation") evaporation_ = ch;
+  if (evaporation_ != none)
+    for (const FaceControl& fc : net.faceControls) {
+      const Index g = net.nodes[net.faces[fc.face].node].group;
+      Watched& w = byControl[fc.controller];
+      w.control = fc.controller;
+      const bool known = std::any_of(w.terms.begin(), w.terms.end(), [&](const Term& t) {
+        return t.kind == Term::Evaporation && t.term == g;
+      });
+      if (!known) w.terms.push_back({Term::Evaporation, g, none});
+    }
   if (byControl.empty()) return;
 
   // The core segment's group: a signal that reads it (core temperature, mean skin) balances the whole body.
@@ -255,6 +268,16 @@ void ControlGridWatch::observeFlows(double t, std::span<const double> y, std::sp
           const Q10Law& law = net.q10Laws[s.law];
           n.carried += weight(s.node) * std::abs(s.power * std::pow(law.q10, (y[s.node] - law.referenceTemperature) / 10.0) *
                                                  modulators_[s.modulator]);
+          break;
+        }
+        case Term::Evaporation: {
+          // The group's evaporation is that of its controlled faces, linear in w = sweatingWettedFraction(g, t, u):
+          // u dQ/du = u (dw/du) Q / w (0 where w is clamped at max).
+          const Index g = term.term;
+          double slope = 0.0;
+          const double wetted = body_.environment().sweatingWettedFraction(g, t, n.u, &slope);
+          if (wetted > 0.0 && slope > 0.0)
+            n.carried += net.groupWeights[g] * std::abs(flows[g * channels + evaporation_] * slope * n.u / wetted);
           break;
         }
       }

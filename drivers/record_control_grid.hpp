@@ -7,7 +7,9 @@
 //!     dT_s = eps L / K,   K = sum_j |g_j| dQ/du_j = sum_j |g_j| H_j / |u_j|,
 //! the loop's stiffness: every unclamped output j on the same signal, H_j the heat its modulated terms carry
 //! (shivering power, the heat of the blood through the shunts or the skin perfusion it scales; each term is linear
-//! in u_j, so u_j dQ/du_j = H_j). The output then moves by |g| dT_s, a relative error of
+//! in u_j, so u_j dQ/du_j = H_j; sweating's: the evaporation of its segments' faces, linear in the wetted fraction
+//! w = w_0 + u, so u dQ/du = Q_evaporation u / w, the share sweating adds). The output then moves by |g| dT_s, a
+//! relative error of
 //!     e_u = |g| eps L / (K max(|u|, 0.05 (upper - lower))).
 //! With one output on the signal this is eps L / H: the shivering that balances five times its power carries five
 //! times the heat flows' error. The body's own passive stiffness (a warmer body loses more) is left out, so e_u is
@@ -92,8 +94,9 @@ class ControlGridWatch {
 
  private:
   struct Term {
-    enum Kind { Advection, Exchange, Source } kind;
-    Index term = 0;      //!< index in its network vector
+    //! Evaporation: sweating's faces of one segment (Network::faceControls), `term` the segment's group.
+    enum Kind { Advection, Exchange, Source, Evaporation } kind;
+    Index term = 0;      //!< index in its network vector (Evaporation: the group)
     Index part = none;   //!< flow part (advection, exchange; Network::part) or none (source, an advection's inline part)
     int hop = 0;         //!< hop of the advection (0, or 1 for the second of a stream through a node)
   };
@@ -124,6 +127,7 @@ class ControlGridWatch {
   std::vector<Estimate> worst_;
   std::vector<double> modulators_;
   std::vector<char> external_;   //!< per channel: to the surroundings (not blood, conduction or tucking), 1
+  Index evaporation_ = none;     //!< the evaporation channel (sweating's terms), none without one
   std::vector<double> flows_;    //!< observe(t, y)'s flows [groups x channels] [W]
   std::vector<SegmentGridEstimate> estimates_;  //!< the case's (Case::gridEstimates) or a new estimate
   std::vector<double> exchanged_; //!< per group: heat lost to the surroundings since the start, one copy [J]
