@@ -438,7 +438,11 @@ constexpr std::array params = {
     Param{"control.sweating.set_point", K::Quantity, "K", "37.5 degC", tMin, tMax, false, "", "Set point."},
     Param{"control.sweating.gain", K::Quantity, "1/K", "0.3 1/K", 0, 100, false, "", "Wetted fraction added per K."},
     Param{"control.sweating.max", K::Number, "", "0.8", 0, 1, false, "",
-          "Largest wetted fraction sweating brings the skin to (at most 1: the whole exposed skin wet)."},
+          "Largest wetted fraction sweating brings the skin to (at most 1: the whole exposed skin wet). The automatic "
+          "grid resolves the segments that sweat for this wetted fraction (or their own, if larger) at every time of "
+          "the run where sweating can act (on at the start or switched by an event, gain > 0): their surface "
+          "conductance counts evaporation over it, so the cells suit the wettest skin the run may have (the "
+          "conservative choice; `check` says so)."},
     Param{"control.sweating.time_constant", K::Quantity, "s", "5 min", 0, 1e6, true, "", "First-order lag."},
     Param{"control.sweating.enabled", K::Choice, "", "on", 0, 0, false, "on|off", "Initially on or off."},
     Param{"control.local", K::NamedTables, "", "", 0, 0, false, "",

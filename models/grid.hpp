@@ -7,7 +7,8 @@
 //! segment's heat flows is estimated from
 //!   * the fin parameter m = sqrt((U' + sum_i w_i rho_b c_b A_i) / sum_i k_i A_i) [1/m]: U' the conductance per unit
 //!     length from the tissue to the surroundings (surface conductance from the environment's convection,
-//!     radiation, evaporation and substrate slopes, in series with the coat and tissue radial resistances), the
+//!     radiation, evaporation and substrate slopes, a segment that sweats at the wetted fraction sweating can reach,
+//!     in series with the coat and tissue radial resistances), the
 //!     perfusion term tying tissue to the local arterial temperature (perfusion length sqrt(k / (w rho_b c_b))),
 //!     and the axial conductance of all layers. The discrete semi-infinite fin on cells of length dz with a
 //!     half-cell junction has the heat flow ratio q_h / q = 2 (1 - r + a^2) / (a (3 - r + a^2)), a = m dz,
