@@ -23,6 +23,7 @@
 
 #include "drivers/record_control_grid.hpp"
 #include "drivers/sweep.hpp"
+#include "test_steady_watch.hpp"
 #include "test_support.hpp"
 
 using namespace thermorph;
@@ -70,19 +71,12 @@ struct Measured {
 };
 
 Measured steadyOutput(const std::string& toml) {
-  Body body(loadCaseFromString(toml, "core.toml"));
-  RunSummary s = runSteady(body, silentRun());
-  REQUIRE(s.complete);
-  REQUIRE(s.controls.size() == 1);
-  NetworkSystem system(body.network(), NetworkSystem::Mode::Steady);
-  ControlGridWatch watch(body, system);
-  REQUIRE(watch.active());
-  std::vector<double> y = s.finalState;
-  y.insert(y.end(), s.controls.begin(), s.controls.end());
-  watch.observe(s.finalTime, y, s.flows);
-  REQUIRE(watch.estimates().size() == 1);
-  REQUIRE(watch.estimates()[0].observed);
-  return {s.controls[0], watch.estimates()[0].error, watch.estimates()[0].magnification, s.runWarnings};
+  const SteadyWatch r = steadyWatch(toml, "core.toml");
+  REQUIRE(r.run.controls.size() == 1);
+  REQUIRE(r.active);
+  REQUIRE(r.estimates.size() == 1);
+  REQUIRE(r.estimates[0].observed);
+  return {r.run.controls[0], r.estimates[0].error, r.estimates[0].magnification, r.run.runWarnings};
 }
 
 }  // namespace

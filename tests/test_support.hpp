@@ -142,32 +142,32 @@ inline RunOptions silentRun() {
   return options;
 }
 
+//! A [tissues.clamp] table: a tissue of conductivity `k` [W/(m K)] perfused at 1 1/s, without metabolism, that holds
+//! itself at the fixed arterial temperature (copperPinOnClamp).
+inline std::string clampTissue(const std::string& k) {
+  return "[tissues.clamp]\nconductivity = " + k +
+         "\ndensity = 1000\nspecific_heat = 4000\nmetabolic_heat = 0\nperfusion = 1\nq10 = 1\n";
+}
+
+//! The reservoir segment of copperPinOnClamp: a sphere of radius 10 cm of the clamp tissue in one cell, no exchange
+//! with the surroundings.
+inline std::string clampReservoir() {
+  return "[[segments]]\nname = \"reservoir\"\nshape = \"sphere\"\nlayers = [{ tissue = \"clamp\", thickness = 0.1, "
+         "cells = 1 }]\nsurface = { convection = 0 }\n";
+}
+
 //! The case text of a copper pin (k = 398 W/(m K); Incropera et al. 2007, Table A.1) on a clamp held at 30 degC by
 //! its perfusion from fixed arterial blood, from [circulation] to the pin's `shape = "cylinder"` line; the caller
 //! gives the title and [run] before it and the pin's length, cells, layers and surroundings after it.
 inline std::string copperPinOnClamp() {
-  return R"toml([circulation]
-fixed_arterial_temperature = "30 degC"
-[tissues.clamp]
-conductivity = 0.5
-density = 1000
-specific_heat = 4000
-metabolic_heat = 0
-perfusion = 1
-q10 = 1
-[tissues.copper]
+  return "[circulation]\nfixed_arterial_temperature = \"30 degC\"\n" + clampTissue("0.5") + R"toml([tissues.copper]
 conductivity = 398
 density = 8933
 specific_heat = 385
 metabolic_heat = 0
 perfusion = 0
 q10 = 1
-[[segments]]
-name = "reservoir"
-shape = "sphere"
-layers = [{ tissue = "clamp", thickness = 0.1, cells = 1 }]
-surface = { convection = 0 }
-[[segments]]
+)toml" + clampReservoir() + R"toml([[segments]]
 name = "pin"
 parent = "reservoir"
 shape = "cylinder"

@@ -26,6 +26,7 @@
 #include "models/case.hpp"
 #include "models/grid.hpp"
 #include "test_evaporation_reference.hpp"
+#include "test_steady_watch.hpp"
 #include "test_support.hpp"
 #include "test_support_body.hpp"
 
@@ -57,26 +58,14 @@ output_interval = "1 s"
 )toml" + run + R"toml(
 [circulation]
 fixed_arterial_temperature = "37 degC"
-[tissues.clamp]
-conductivity = 1000
-density = 1000
-specific_heat = 4000
-metabolic_heat = 0
-perfusion = 1
-q10 = 1
-[tissues.limb]
+)toml" + clampTissue("1000") + R"toml([tissues.limb]
 conductivity = 5
 density = 1050
 specific_heat = 3600
 metabolic_heat = 0
 perfusion = 0
 q10 = 1
-[[segments]]
-name = "reservoir"
-shape = "sphere"
-layers = [{ tissue = "clamp", thickness = 0.1, cells = 1 }]
-surface = { convection = 0 }
-[[segments]]
+)toml" + clampReservoir() + R"toml([[segments]]
 name = "limb"
 parent = "reservoir"
 shape = "cylinder"
@@ -222,19 +211,11 @@ struct SweatOutput {
 };
 
 SweatOutput steadySweating(const std::string& toml) {
-  Body body(loadCaseFromString(toml, "core.toml"));
-  RunSummary s = runSteady(body, silentRun());
-  REQUIRE(s.complete);
-  REQUIRE(s.controls.size() == 1);
-  NetworkSystem system(body.network(), NetworkSystem::Mode::Steady);
-  ControlGridWatch watch(body, system);
+  const SteadyWatch r = steadyWatch(toml, "core.toml");
+  REQUIRE(r.run.controls.size() == 1);
   SweatOutput out;
-  out.output = s.controls[0];
-  if (!watch.active()) return out;
-  std::vector<double> y = s.finalState;
-  y.insert(y.end(), s.controls.begin(), s.controls.end());
-  watch.observe(s.finalTime, y, s.flows);
-  for (const ControlGridWatch::Estimate& e : watch.estimates())
+  out.output = r.run.controls[0];
+  for (const ControlGridWatch::Estimate& e : r.estimates)
     if (e.controller == "sweating" && e.observed) {
       out.watched = true;
       out.estimate = e.error;
