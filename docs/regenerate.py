@@ -27,7 +27,8 @@ the fitted run plus r.value(KEY), r.se(KEY), r.lower(KEY), r.upper(KEY), r.corre
 and r.fit_attrs (aic, bic, residual_variance, runs, ...). A `catch [TAG]` run is the tests' printed lines
 (r.stdout) with r.coverage_study() for the coverage study of tests/test_fit.cpp; a `check CASE` run is the printed
 description of `thermorph check` (r.stdout, r.number_after(TEXT): the first number after TEXT; r.number_after(TEXT,
-FROM): the first after TEXT that follows FROM); a `script` run is a test script's printed lines (r.stdout,
+FROM): the first after TEXT that follows FROM; a run's r.warning_number(TEXT, FROM) does the same over its stored
+warnings, /provenance/warnings); a `script` run is a test script's printed lines (r.stdout,
 r.number_after; tests/test_report.py --only 5,6,8 for postproc/README.md's report numbers), which must pass. FMT is a format specification (`.2f`, `.3g`, `d`) or `s` for a string.
 Run names are shared by every scanned file, so a note can use a run defined in another.
 
@@ -116,6 +117,9 @@ class Result:
                     self._seg[name]["_arterial"] = g["arterial_temperature"][...]
                     self._seg[name]["_venous"] = g["venous_temperature"][...]
             self._control = {k: v[...] for k, v in f["control"].items()} if "control" in f else {}
+            # The run's warnings (/provenance/warnings), one per line: r.warning_number(TEXT, START)
+            self.warnings = "\n".join(w.decode() if isinstance(w, bytes) else str(w)
+                                      for w in f["provenance/warnings"][...]) if "provenance/warnings" in f else ""
 
     def excess(self):
         """The same results with every temperature [degC] replaced by its excess over the medium at t = 0 [K]: the
@@ -239,6 +243,14 @@ class Result:
         if not m:
             raise SystemExit(f"regenerate: {text!r} not found in the printed output")
         return float(m.group(1))
+
+    def warning_number(self, text, start=None):
+        """number_after over the run's stored warnings (/provenance/warnings) instead of its printed output."""
+        printed, self.stdout = self.stdout, self.warnings
+        try:
+            return self.number_after(text, start)
+        finally:
+            self.stdout = printed
 
     # --- Catch2 output ---
     def coverage_study(self):
