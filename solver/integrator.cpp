@@ -569,6 +569,7 @@ std::vector<double> solveSteadyState(const NetworkSystem& system, std::span<cons
     statistics->nonlinearIterations = iters + polishIters;
     statistics->rhsEvaluations = fevals + polishFevals;
     statistics->jacobianEvaluations = jevals + polishJevals;
+    statistics->linearSetups = jevals + polishJevals;  // KINSOL evaluates J at every linear setup
     statistics->wallSeconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
   }
   auto result = view(u.get());

@@ -145,7 +145,7 @@ def main():
     rows = []  # (measure, scipy cell, {name: cell}, target, verdict on the last executable)
 
     def fmt_s(x):
-        return f"{x * 1e3:.1f} ms" if x < 1.0 else f"{x:.3f} s"
+        return f"{x * 1e3:.2f} ms" if x < 0.01 else f"{x * 1e3:.1f} ms" if x < 1.0 else f"{x:.3f} s"
 
     try:
         for c in STUDIES:

@@ -13,6 +13,7 @@ resistances from cell centre to face to cell centre (cylinder ln(b/a)/(2 pi k L)
 Pennes (1948) perfusion to a fixed arterial temperature, metabolism P Q10^((T - T_ref)/10), and Newton cooling
 of the outer face through the outer half-cell resistance. Only timing is measured here, nothing is asserted.
 """
+import math
 import sys
 import time
 import tomllib
@@ -139,7 +140,12 @@ def run(case_path, out_path, tolerance=None):
     np.savez(out_path, final=sol.y[:, -1], volume=model.volume, nfev=sol.nfev, njev=sol.njev, nlu=sol.nlu,
              steps=CountingBDF.accepted, solve_wall=wall, cpu=time.process_time() - start_process)
     print(f"scipy BDF: {model.n} cells, {CountingBDF.accepted} steps, {sol.nfev} rhs, {sol.njev} Jacobians, "
-          f"{sol.nlu} LU, solve_ivp {wall:.3f} s wall")
+          f"{sol.nlu} LU, solve_ivp {wall:.{decimals(wall)}f} s wall")
+
+
+def decimals(seconds):
+    """Decimals for 4 significant digits in fixed notation, at most to the microsecond (thermorph's "s wall")."""
+    return min(6, max(0, 3 - math.floor(math.log10(max(seconds, 1e-6)))))
 
 
 def final_temperatures(path):
