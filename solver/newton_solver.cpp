@@ -90,6 +90,25 @@ constexpr BandIndex kNeedsPivotRoom = -1;
 BandIndex bandFactor(double* a, BandIndex ldim, BandIndex n, BandIndex mu, BandIndex ml, BandIndex smu,
                      PivotOffset* p) {
   const bool pivotRoom = smu >= std::min(n - 1, mu + ml);
+  if (ml == 1 && mu == 1 && smu == 1 && !pivotRoom) {
+    // A tridiagonal block in the storage without room for the pivots' fill (a 1-D radial grid's I - gamma J): the
+    // loops below with their bounds resolved (rows k and k + 1 of column k, column k + 1 only), the same operations
+    // in the same order; a row swap stops it as it stops them. 62 -> ~15 instructions per column.
+    for (BandIndex k = 0; k < n - 1; ++k, ++p) {
+      double* const colK = a + k * ldim;  // (k - 1, k), (k, k), (k + 1, k)
+      if (std::abs(colK[2]) > std::abs(colK[1])) return kNeedsPivotRoom;
+      *p = 0;
+      if (colK[1] == 0.0) return k + 1;
+      const double mult = -1.0 / colK[1];
+      colK[2] *= mult;
+      double* const colJ = colK + ldim;
+      const double akj = colJ[0];
+      if (akj != 0.0) colJ[1] += akj * colK[2];
+    }
+    *p = 0;
+    if (a[(n - 1) * ldim + smu] == 0.0) return n;
+    return 0;
+  }
   // Zero the first smu - mu rows (the room for the pivots' fill).
   for (BandIndex c = 0; c < n; ++c)
     for (BandIndex r = 0; r < smu - mu; ++r) a[c * ldim + r] = 0.0;
@@ -144,6 +163,27 @@ BandIndex bandFactor(double* a, BandIndex ldim, BandIndex n, BandIndex mu, BandI
 //! b := A^-1 b from bandFactor's LU (SUNDlsMat_bandGBTRS).
 void bandSolve(const double* a, BandIndex ldim, BandIndex n, BandIndex smu, BandIndex ml, const PivotOffset* p,
                double* b) {
+  if (ml == 1 && smu == 1) {
+    // Tridiagonal (bandFactor's fast path): the loops below with their bounds resolved, the same operations in
+    // the same order. 66 -> ~12 instructions per row.
+    for (BandIndex k = 0; k < n - 1; ++k) {
+      const BandIndex l = k + p[k];
+      const double mult = b[l];
+      if (l != k) {
+        b[l] = b[k];
+        b[k] = mult;
+      }
+      b[k + 1] += mult * a[k * ldim + 2];
+    }
+    for (BandIndex k = n - 1; k > 0; --k) {
+      const double* const diagK = a + k * ldim + 1;
+      b[k] /= (*diagK);
+      const double mult = -b[k];
+      b[k - 1] += mult * diagK[-1];
+    }
+    if (n > 0) b[0] /= a[1];
+    return;
+  }
   // L y = P b
   for (BandIndex k = 0; k < n - 1; ++k) {
     const BandIndex l = k + p[k];
@@ -191,6 +231,12 @@ struct NewtonSolver::Band {
   std::vector<Index> coupled;                   //!< border components (0-based from m) with entries in rows < m
   std::vector<double> solved;                   //!< B^-1 E for the coupled columns [coupled x m], column by column
   bool keepSolved = true;                       //!< B^-1 E kept (else: a second band solve per solve)
+  //! F = A[m, f) x [0, m) by rows where B^-1 E is kept: border row r's entries [fStart[r], fStart[r + 1]) in
+  //! ascending column fColumn, at position fEntry of J, fValue = beta J there (set by setMatrix). The products
+  //! F x_1 and F (B^-1 E) then sum each border row in a register instead of searching every column of B for the
+  //! border's rows (2.5 of the 7.3 M instructions of the 500-cell radial run's solves).
+  std::vector<std::uint32_t> fStart, fColumn, fEntry;
+  std::vector<double> fValue;
   std::vector<double> schur;                    //!< S, then its LU [k x k], column-major
   std::vector<double*> schurColumns;
   std::vector<sunindextype> schurPivots;
@@ -368,6 +414,24 @@ NewtonSolver::NewtonSolver(const SparsePattern& pattern, Index factored, int sca
     b.pivots.resize(b.size);
     if (b.keepSolved) b.solved.resize(b.coupled.size() * b.size);
     const Index k = b.border(factored);
+    if (b.keepSolved && k > 0) {
+      b.fStart.assign(k + 1, 0);
+      for (Index c = 0; c < b.size; ++c)
+        for (Index p = pattern.columnStart[c]; p < pattern.columnStart[c + 1]; ++p)
+          if (const Index r = pattern.rowIndex[p]; r >= b.size && r < factored) ++b.fStart[r - b.size + 1];
+      for (Index r = 0; r < k; ++r) b.fStart[r + 1] += b.fStart[r];
+      b.fColumn.resize(b.fStart[k]);
+      b.fEntry.resize(b.fStart[k]);
+      b.fValue.resize(b.fStart[k]);
+      std::vector<std::uint32_t> next(b.fStart.begin(), b.fStart.end() - 1);
+      for (Index c = 0; c < b.size; ++c)
+        for (Index p = pattern.columnStart[c]; p < pattern.columnStart[c + 1]; ++p)
+          if (const Index r = pattern.rowIndex[p]; r >= b.size && r < factored) {
+            const std::uint32_t q = next[r - b.size]++;
+            b.fColumn[q] = static_cast<std::uint32_t>(c);
+            b.fEntry[q] = static_cast<std::uint32_t>(p);
+          }
+    }
     b.schur.resize(k * k);
     b.schurColumns.resize(k);
     for (Index j = 0; j < k; ++j) b.schurColumns[j] = b.schur.data() + j * k;
@@ -397,8 +461,10 @@ void NewtonSolver::setMatrix(std::span<const double> jacobian, double alpha, dou
   beta_ = beta;
   for (std::size_t q = 0; q < rowEntry_.size(); ++q) rowValue_[q] = beta * jacobian[rowEntry_[q]];
   if (band_) {
+    Band& b = *band_;
+    for (std::size_t q = 0; q < b.fEntry.size(); ++q) b.fValue[q] = beta * jacobian[b.fEntry[q]];
     fillBand();
-    band_->factored = false;
+    b.factored = false;
     return;
   }
   matrix_->setValues(jacobian, alpha, beta);
@@ -466,6 +532,15 @@ bool NewtonSolver::factor() {
           w[pattern_.rowIndex[p]] = beta_ * jacobian_[p];
         bandSolve(b.data.data(), ldim, m, static_cast<BandIndex>(b.storedUpper), static_cast<BandIndex>(b.lower),
                   b.pivots.data(), w);
+        if (!b.fStart.empty()) {
+          // F by rows: each entry of S reduced in ascending c as below, in a register.
+          for (Index r = 0; r < k; ++r) {
+            double sum = b.schur[b.coupled[t] * k + r];
+            for (std::uint32_t q = b.fStart[r]; q < b.fStart[r + 1]; ++q) sum -= b.fValue[q] * w[b.fColumn[q]];
+            b.schur[b.coupled[t] * k + r] = sum;
+          }
+          continue;
+        }
         for (Index c = 0; c < b.size; ++c)
           for (Index p = pattern_.columnStart[c]; p < pattern_.columnStart[c + 1]; ++p) {
             const Index r = pattern_.rowIndex[p];
@@ -547,13 +622,23 @@ bool NewtonSolver::solve(std::span<double> x, const double* rhs) const {
         const auto* const start = pattern_.columnStart.data();
         const Index size = b.size, f = factored_;
         const double beta = beta_;
-        for (Index c = 0; c < size; ++c) {
-          const double xc = xs[c];
-          if (xc == 0.0) continue;
-          Index q = start[c];
-          const Index end = start[c + 1];
-          while (q < end && rows[q] < size) ++q;
-          for (; q < end && rows[q] < f; ++q) xs[rows[q]] -= beta * J[q] * xc;
+        if (!b.fStart.empty()) {
+          // F by rows: each border row's terms in ascending c as below (x_c = 0 left out as there), in a register.
+          for (Index r = 0; r < k; ++r) {
+            double sum = xs[size + r];
+            for (std::uint32_t q = b.fStart[r]; q < b.fStart[r + 1]; ++q)
+              if (const double xc = xs[b.fColumn[q]]; xc != 0.0) sum -= b.fValue[q] * xc;
+            xs[size + r] = sum;
+          }
+        } else {
+          for (Index c = 0; c < size; ++c) {
+            const double xc = xs[c];
+            if (xc == 0.0) continue;
+            Index q = start[c];
+            const Index end = start[c + 1];
+            while (q < end && rows[q] < size) ++q;
+            for (; q < end && rows[q] < f; ++q) xs[rows[q]] -= beta * J[q] * xc;
+          }
         }
         SUNDlsMat_denseGETRS(b.schurColumns.data(), static_cast<sunindextype>(k), b.schurPivots.data(), xs + size);
         // x_1 := B^-1 (b_1 - E x_2), unless every coupled x_2 is zero (a fixed arterial temperature: the first
