@@ -165,23 +165,27 @@ void bandSolve(const double* a, BandIndex ldim, BandIndex n, BandIndex smu, Band
                double* b) {
   if (ml == 1 && smu == 1) {
     // Tridiagonal (bandFactor's fast path): the loops below with their bounds resolved, the same operations in
-    // the same order. 66 -> ~12 instructions per row.
+    // the same order (66 -> ~12 instructions per row), and the entry that each row's update passes to the next
+    // carried in a register: both sweeps are chains of dependent operations (the second through a division per
+    // row), and through memory each row also waited for the store of the row before.
+    if (n == 0) return;
+    double carried = b[0];  // b[k] as the loop below has left it so far
     for (BandIndex k = 0; k < n - 1; ++k) {
-      const BandIndex l = k + p[k];
-      const double mult = b[l];
-      if (l != k) {
-        b[l] = b[k];
-        b[k] = mult;
-      }
-      b[k + 1] += mult * a[k * ldim + 2];
+      double next = b[k + 1];
+      if (p[k] != 0) std::swap(carried, next);  // l = k + 1: mult = b[l], b[l] = b[k], b[k] = mult
+      b[k] = carried;                           // mult
+      next += carried * a[k * ldim + 2];        // b[k + 1] += mult * a(k + 1, k)
+      carried = next;
     }
+    b[n - 1] = carried;
     for (BandIndex k = n - 1; k > 0; --k) {
       const double* const diagK = a + k * ldim + 1;
-      b[k] /= (*diagK);
-      const double mult = -b[k];
-      b[k - 1] += mult * diagK[-1];
+      carried /= (*diagK);  // b[k] /= a(k, k)
+      b[k] = carried;
+      const double mult = -carried;
+      carried = b[k - 1] + mult * diagK[-1];  // b[k - 1] += mult * a(k - 1, k)
     }
-    if (n > 0) b[0] /= a[1];
+    b[0] = carried / a[1];
     return;
   }
   // L y = P b
