@@ -15,6 +15,7 @@
 
 #include "drivers/h5_append.hpp"
 #include "drivers/output_file.hpp"
+#include "solver/scratch.hpp"
 
 namespace thermorph {
 namespace {
@@ -96,7 +97,6 @@ constexpr std::uint64_t kSplitValues = 32768;
 
 struct ResultsFile::ChunkCompressor {
   libdeflate_compressor* compressor = libdeflate_alloc_compressor(deflateLevel);
-  std::vector<unsigned char> shuffled, packed;
   ~ChunkCompressor() { libdeflate_free_compressor(compressor); }
 };
 
@@ -499,8 +499,12 @@ void ResultsFile::writeChunks(Series& s, std::span<const double> points, std::ui
       1, std::accumulate(extent.begin(), extent.end(), std::uint64_t{1}, std::multiplies<>()));
   const std::uint64_t lines = std::max<std::uint64_t>(1, perChunkPoint / line);
   const std::size_t elements = s.chunkRows * perChunkPoint, bytes = elements * sizeof(double);
-  c.shuffled.resize(bytes);
-  c.packed.resize(libdeflate_zlib_compress_bound(c.compressor, bytes));
+  // The filter buffers, shuffled values then deflated bytes, in one block of the thread's spare (solver/scratch.hpp),
+  // reused from one time point to the next.
+  const std::size_t bound = libdeflate_zlib_compress_bound(c.compressor, bytes);
+  const ScratchLease block(bytes + bound);
+  unsigned char* const shuffled = block.as<unsigned char>();
+  unsigned char* const packed = shuffled + bytes;
   std::vector<hsize_t> offset(dims.size(), 0);
   std::vector<std::uint64_t> origin(rank, 0), at(rank, 0);
   for (std::uint64_t done = 0; done < rows; done += s.chunkRows) {
@@ -534,15 +538,15 @@ void ResultsFile::writeChunks(Series& s, std::span<const double> points, std::ui
             const double v = j < valid ? (subtract ? values[j] - *subtract : values[j]) : 0.0;
             unsigned char octets[sizeof(double)];
             std::memcpy(octets, &v, sizeof(double));
-            for (std::size_t k = 0; k < sizeof(double); ++k) c.shuffled[k * elements + i] = octets[k];
+            for (std::size_t k = 0; k < sizeof(double); ++k) shuffled[k * elements + i] = octets[k];
           }
         }
       const std::size_t size =
-          libdeflate_zlib_compress(c.compressor, c.shuffled.data(), bytes, c.packed.data(), c.packed.size());
+          libdeflate_zlib_compress(c.compressor, shuffled, bytes, packed, bound);
       if (size == 0) throw std::runtime_error("deflate of a chunk failed");
       offset[0] = s.count + done;
       for (std::size_t d = 0; d < rank; ++d) offset[d + 1] = origin[d];
-      checkH5(H5Dwrite_chunk(s.dataset, H5P_DEFAULT, 0, offset.data(), size, c.packed.data()), "write a chunk");
+      checkH5(H5Dwrite_chunk(s.dataset, H5P_DEFAULT, 0, offset.data(), size, packed), "write a chunk");
       // The next chunk of the grid (the last dimension fastest); none after the last.
       bool next = false;
       for (std::size_t d = rank; d-- > 0 && !next;) {
@@ -554,13 +558,6 @@ void ResultsFile::writeChunks(Series& s, std::span<const double> points, std::ui
     }
   }
   s.count += rows;
-  // The filter buffers of a chunk larger than the usual 64 KiB (a field of more than 8192 cells) are released once
-  // it is written: kept, they sat beside the integrator through the run, adding to the peak when the budget's
-  // per-node rates were allocated at the next output.
-  if (bytes > kChunkValues * sizeof(double)) {
-    std::vector<unsigned char>().swap(c.shuffled);
-    std::vector<unsigned char>().swap(c.packed);
-  }
 }
 
 void ResultsFile::setAttribute(const std::string& object, const std::string& name, const std::string& value) {

@@ -3,9 +3,12 @@
 #include <algorithm>
 #include <cmath>
 #include <limits>
+#include <optional>
 #include <stdexcept>
 
 #include <fmt/format.h>
+
+#include "solver/scratch.hpp"
 
 namespace thermorph {
 
@@ -694,7 +697,15 @@ void NetworkSystem::flowsByGroup(double time, std::span<const double> T, std::sp
   modulatorValues(time, T, modulators_);
   auto group = [&](Index node) { return network_.nodes[node].group; };
   auto at = [&](Index node, Index channel) -> double& { return flows[group(node) * channels_ + channel]; };
-  std::vector<double> rate(rates ? nodes_ : 0, 0.0);
+  // The per-node rates in a block leased from the thread's spares (solver/scratch.hpp): new at every output, more than
+  // 16 384 nodes' were mapped and faulted in afresh each time.
+  std::optional<ScratchLease> rateBlock;
+  double* rate = nullptr;
+  if (rates) {
+    rateBlock.emplace(nodes_ * sizeof(double));
+    rate = rateBlock->as<double>();
+    std::fill(rate, rate + nodes_, 0.0);
+  }
   auto conductance = [&](Index k, const Conductance& c) __attribute__((always_inline)) {
     const auto [fa, fb] = conductanceFactors(c);
     double q = c.conductance * (T[c.b] - T[c.a]);

@@ -11,9 +11,12 @@
 #include <cstdint>
 #include <cmath>
 #include <limits>
+#include <optional>
 #include <stdexcept>
 
 #include <fmt/format.h>
+
+#include "solver/scratch.hpp"
 
 namespace thermorph {
 
@@ -515,8 +518,11 @@ bool NewtonSolver::factor() {
     if (k > 0) {
       // S = D - F (B^-1 E): D first, then each coupled border column's B^-1 E_t (kept, or in a vector of the
       // block's size while it is used) and its products, each entry of S still reduced in ascending c.
-      std::vector<double> column(b.keepSolved ? 0 : b.size);
-      auto solvedColumn = [&](Index t) { return b.keepSolved ? b.solved.data() + t * b.size : column.data(); };
+      // Without B^-1 E kept: one column at a time in a block of the thread's spares (solver/scratch.hpp; a new
+      // vector per factorisation above 16 384 nodes was mapped and faulted in afresh each time).
+      std::optional<ScratchLease> column;
+      if (!b.keepSolved) column.emplace(b.size * sizeof(double));
+      auto solvedColumn = [&](Index t) { return b.keepSolved ? b.solved.data() + t * b.size : column->as<double>(); };
       std::fill(b.schur.begin(), b.schur.end(), 0.0);
       for (Index j = 0; j < k; ++j) {
         const Index c = b.size + j;
