@@ -88,8 +88,8 @@ class ResultsFile {
     std::vector<std::uint64_t> shape;
     std::uint64_t count;                //!< time points in the file
     std::uint64_t chunkRows = 1;        //!< time points per chunk
-    //! A chunk's extent in each dimension of `shape` (empty: the whole shape). A field of more than 32 768 values
-    //! per time point is split so that a chunk keeps 256 KiB at most (results.cpp, createDataset).
+    //! A chunk's extent in each dimension of `shape` (empty: the whole shape). A field of more than 4096 values
+    //! per time point is split so that a chunk keeps 32 KiB at most (results.cpp, createDataset).
     std::vector<std::uint64_t> chunkShape = {};
     std::vector<double> pending = {};   //!< time points appended but not yet written (fewer than a chunk)
     bool deferred = false;              //!< created and written whole at commit (see expectPoints)

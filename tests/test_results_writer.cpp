@@ -224,9 +224,9 @@ TEST_CASE("compressed series filtered by the writer read back through HDF5's own
   CHECK(wrong == 0);
 }
 
-TEST_CASE("fields of more than 32768 values are split into chunks of part of a time point", "[h5][results]") {
-  // A large field's time point is written as several chunks of 256 KiB at most (the first dimensions cut first, edge
-  // chunks padded with the fill value); HDF5's own filter pipeline (zlib) and chunk index must give back every value
+TEST_CASE("fields of more than 4096 values per time point are split into chunks of part of one", "[h5][results]") {
+  // A large field's time point is written as several chunks of 32 KiB at most (the first dimensions cut first, in
+  // pieces of equal size along the dimension cut, edge chunks padded with the fill value); HDF5's own filter pipeline (zlib) and chunk index must give back every value
   // written, and the dataset's chunk shape must say so.
   const std::string path =
       (std::filesystem::temp_directory_path() / ("thermorph-split-" + std::to_string(::getpid()) + ".h5")).string();
@@ -236,10 +236,11 @@ TEST_CASE("fields of more than 32768 values are split into chunks of part of a t
     std::vector<hsize_t> chunk;  // expected: time points, then the field's dimensions
   };
   const std::vector<Field> fields = {
-      {"/a/one_line", {70000}, {1, 32768}},       // two whole chunks and a partial one per time point
-      {"/b/rows", {7, 9000}, {1, 3, 9000}},       // whole rows, the last chunk of rows partial
-      {"/c/lines", {3, 40000}, {1, 1, 32768}},    // lines longer than a chunk: cut along the last dimension too
-      {"/e/whole", {20000}, {1, 20000}},          // up to 32 768 values: one time point per chunk, as before
+      {"/a/one_line", {70000}, {1, 3889}},        // 18 chunks per time point, the last with 2 values of padding
+      {"/b/rows", {7, 1000}, {1, 4, 1000}},       // whole rows, the last chunk of rows partial
+      {"/c/lines", {3, 40000}, {1, 1, 4000}},     // lines longer than a chunk: cut along the last dimension too
+      {"/e/equal", {20000}, {1, 4000}},           // five equal pieces (the radial peer case's field)
+      {"/f/point", {4096}, {2, 4096}},            // up to 4096 values: whole time points per chunk, as before
       {"/d/small", {40, 30}, {6, 40, 30}},        // 1200 values: several time points per chunk, as before
   };
   const int points = 5;
