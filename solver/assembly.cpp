@@ -768,8 +768,13 @@ void NetworkSystem::flowsByGroup(double time, std::span<const double> T, std::sp
       if (wanted(c)) at(node, c) += scratchHeat_[c];
     }
   }
-  if (rates)
-    for (Index i = 0; i < nodes_; ++i) storage[group(i)] += rate[i];
+  if (rates)  // each group's sum in a register over a run of its nodes (groupStoredHeat): the same additions, in order
+    for (Index i = 0; i < nodes_;) {
+      const Index g = group(i);
+      double sum = storage[g];
+      for (; i < nodes_ && group(i) == g; ++i) sum += rate[i];
+      storage[g] = sum;
+    }
 }
 
 void NetworkSystem::addJunctionProduct(std::span<const double> x, std::span<double> out) const {
@@ -803,8 +808,20 @@ double NetworkSystem::storedHeat(std::span<const double> T) const {
 
 void NetworkSystem::groupStoredHeat(std::span<const double> T, std::span<double> out) const {
   std::fill(out.begin(), out.end(), 0.0);
-  for (Index i = 0; i < nodes_; ++i)
-    if (network_.nodes[i].group < out.size()) out[network_.nodes[i].group] += network_.nodes[i].capacity * T[i];
+  // A group's sum in a register over each run of consecutive nodes in it: the same additions in the same order as
+  // adding into `out` node by node, without waiting for the store of the one before (a segment's nodes are
+  // consecutive: the radial 20 000-cell run's 61 outputs, 1.5 % of its CPU samples before).
+  const std::vector<NetworkNode>& nodes = network_.nodes;
+  for (Index i = 0; i < nodes_;) {
+    const Index g = nodes[i].group;
+    if (g >= out.size()) {
+      ++i;
+      continue;
+    }
+    double sum = out[g];
+    for (; i < nodes_ && nodes[i].group == g; ++i) sum += nodes[i].capacity * T[i];
+    out[g] = sum;
+  }
 }
 
 
