@@ -1382,7 +1382,9 @@ void Body::checkBloodMassBalance() const {
       const auto first = terms.begin() + static_cast<std::ptrdiff_t>(begin);
       const auto last = terms.begin() + static_cast<std::ptrdiff_t>(end[n]);
       if (last - first > 32) {
-        std::stable_sort(first, last, byModulator);
+        // (Already in order, as the pinned supply's terms of a radial run are: 40 000 of one modulator took 9 million
+        // instructions to stable-sort at 20 000 cells.)
+        if (!std::is_sorted(first, last, byModulator)) std::stable_sort(first, last, byModulator);
         continue;
       }
       for (auto i = first + (first == last ? 0 : 1); i < last; ++i)
