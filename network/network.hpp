@@ -258,13 +258,18 @@ struct TermTraits<HeatSource> {  // the sources of consecutive cells of one tiss
   }
 };
 
-//! A list of terms of one kind (conductances, advections, heat sources) stored as runs: a term that continues the
-//! last one's run (TermTraits: the same fields but its node indices one further along, as a radial layer's cells
-//! give) adds only its coefficient, a double. At 10^5 cells of one tissue a source costs 8 bytes instead of 20, a
-//! conductance 8 instead of 16, a perfused cell's stream 8 instead of 32 (3.6 MB less in the radial case). The
-//! terms, their order and their values are those pushed: read by value (operator[], a search among the runs;
-//! iteration, sequential). The coefficient of term k can be changed in place (setValue: an interval's
-//! conductances), its other fields only by rebuilding the list (transform).
+//! A list of terms of one kind (conductances, advections, heat sources): plain (a vector of the terms) while it is
+//! built and in small networks, or stored as runs once packed (pack(); Network::compact packs the lists of a network
+//! of more than Network::kPlainNodes nodes). Packed, a term that continues the last one's run (TermTraits: the same
+//! fields but its node indices one further along, as a radial layer's cells give) adds only its coefficient, a
+//! double: at 10^5 cells of one tissue a source costs 8 bytes instead of 20, a conductance 8 instead of 16, a
+//! perfused cell's stream 8 instead of 32 (3.6 MB less in the radial case). The terms, their order and their values
+//! are those pushed in either form: read by value (operator[]: an index, or a search among the runs; iteration;
+//! forEach, a loop over the terms or over each run's coefficients). The coefficient of term k can be changed in
+//! place (setValue: an interval's conductances), its other fields only by rebuilding the list (transform).
+//! Plain lists keep the small networks of sweeps free of the runs' costs (building them, reading terms back: about
+//! 1.5 % of a small study's run, DEVELOPERS.md "Term runs without their cost"); a plain list that grows past
+//! kPlainLimit terms packs itself (the set-up of a large network never holds the whole plain list).
 template <class T>
 class TermRuns {
   using Traits = TermTraits<T>;
@@ -276,6 +281,8 @@ class TermRuns {
 #pragma pack(pop)
 
  public:
+  //! A plain list that reaches this many terms is packed (push_back).
+  static constexpr Index kPlainLimit = 1 << 15;
   using value_type = T;
   class const_iterator {
    public:
@@ -287,6 +294,7 @@ class TermRuns {
     const_iterator() = default;
     const_iterator(const TermRuns* list, Index k, Index run) : list_(list), k_(k), run_(run) {}
     T operator*() const {
+      if (!list_->packed_) return list_->plain_[k_];
       const Run& r = list_->runs_[run_];
       return Traits::at(r.head, k_ - r.first, list_->values_[k_]);
     }
@@ -309,17 +317,39 @@ class TermRuns {
     Index k_ = 0, run_ = 0;
   };
 
-  Index size() const { return values_.size(); }
-  bool empty() const { return values_.empty(); }
+  Index size() const { return packed_ ? values_.size() : plain_.size(); }
+  bool empty() const { return size() == 0; }
   const_iterator begin() const { return {this, 0, 0}; }
   const_iterator end() const { return {this, size(), runs_.empty() ? 0 : runs_.size() - 1}; }
   T operator[](Index k) const {
+    if (!packed_) return plain_[k];
     const Run& r = runOf(k);
     return Traits::at(r.head, k - r.first, values_[k]);
   }
   T back() const { return (*this)[size() - 1]; }
-  //! Appends t: to the last run if it continues it, else as a new run.
+  //! Calls f(k, term) for each term in order: the plain terms themselves, or each run's terms formed from its head
+  //! and coefficients (one loop per run).
+  template <class F>
+  [[gnu::always_inline]] void forEach(F&& f) const {
+    if (!packed_) {
+      const T* terms = plain_.data();
+      for (Index k = 0, n = plain_.size(); k < n; ++k) f(k, terms[k]);
+      return;
+    }
+    const double* values = values_.data();
+    for (Index r = 0, runs = runs_.size(); r < runs; ++r) {
+      const T head = runs_[r].head;
+      const Index first = runs_[r].first, end = r + 1 < runs ? Index(runs_[r + 1].first) : values_.size();
+      for (Index k = first; k < end; ++k) f(k, Traits::at(head, k - first, values[k]));
+    }
+  }
+  //! Appends t: plain, or (packed) to the last run if it continues it, else as a new run.
   void push_back(const T& t) {
+    if (!packed_) {
+      plain_.push_back(t);
+      if (plain_.size() >= kPlainLimit) pack();
+      return;
+    }
     if (values_.size() >= std::uint32_t(-1)) throw std::length_error("a network index does not fit in 32 bits");
     const double v = Traits::value(t);
     if (!runs_.empty()) {
@@ -333,21 +363,28 @@ class TermRuns {
     values_.push_back(v);
   }
   void pop_back() {
+    if (!packed_) {
+      plain_.pop_back();
+      return;
+    }
     values_.pop_back();
     if (runs_.back().first == values_.size()) runs_.pop_back();
   }
   //! The coefficient of term k (Conductance::conductance, Advection::flowCapacity, HeatSource::power).
-  double value(Index k) const { return values_[k]; }
+  double value(Index k) const { return packed_ ? values_[k] : Traits::value(plain_[k]); }
   void setValue(Index k, double v) {
-    values_[k] = v;
-    ++changes_;
+    if (packed_) values_[k] = v;
+    else plain_[k] = Traits::at(plain_[k], 0, v);
   }
-  //! Counts setValue calls (a copy of the terms knows from it when to read the values again).
-  std::uint64_t changes() const { return changes_; }
-  //! Replaces every term t by f(t) (its runs formed again).
+  //! Replaces every term t by f(t) (a packed list's runs formed again).
   template <class F>
   void transform(F&& f) {
+    if (!packed_) {
+      for (T& t : plain_) f(t);
+      return;
+    }
     TermRuns out;
+    out.packed_ = true;
     out.runs_.reserve(runs_.size());
     out.values_.reserve(values_.size());
     for (T t : *this) {
@@ -356,10 +393,23 @@ class TermRuns {
     }
     *this = std::move(out);
   }
+  //! Stores the list as runs from now on (the same terms; nothing when packed already).
+  void pack() {
+    if (packed_) return;
+    std::vector<T> plain;
+    plain.swap(plain_);
+    packed_ = true;
+    for (const T& t : plain) push_back(t);
+  }
+  bool packed() const { return packed_; }
+  //! The terms of a plain list (empty when packed).
+  std::span<const T> plain() const { return packed_ ? std::span<const T>() : std::span<const T>(plain_); }
   void shrink_to_fit() {
+    plain_.shrink_to_fit();
     runs_.shrink_to_fit();
     values_.shrink_to_fit();
   }
+  //! Runs of a packed list (0 for a plain one).
   Index runCount() const { return runs_.size(); }
 
  private:
@@ -368,9 +418,10 @@ class TermRuns {
                               [](Index key, const Run& r) { return key < r.first; }) -
              1);
   }
-  std::vector<Run> runs_;
+  std::vector<T> plain_;  //!< the terms of a plain list
+  std::vector<Run> runs_;  //!< a packed list's runs and coefficients
   std::vector<double> values_;
-  std::uint64_t changes_ = 0;
+  bool packed_ = false;
 };
 
 //! The temperature law of heat sources: Q10^((T - T_ref)/10).
@@ -519,9 +570,19 @@ struct Network {
     namedNodes.emplace_back(nodes.size(), std::move(label));
     return addNode(capacity, group);
   }
-  //! Return the spare capacity of the term vectors (they grow by doubling while a model builds them): called
-  //! once the network is complete; at 10^5 nodes this is about 100 bytes per node of peak memory.
+  //! Networks of up to this many nodes keep their conductances, streams and sources plain (TermRuns), larger ones
+  //! store them as runs (compact): the systems of sweeps (NetworkSystem's small systems, up to 5000 states) read
+  //! plain terms, a large body (10^5 radial cells) keeps its 3.6 MB less.
+  static constexpr Index kPlainNodes = 5000;
+  //! Return the spare capacity of the term vectors (they grow by doubling while a model builds them), and pack the
+  //! term lists of a network of more than kPlainNodes nodes into runs: called once the network is complete; at
+  //! 10^5 nodes this is about 100 bytes per node of peak memory.
   void compact() {
+    if (nodes.size() > kPlainNodes) {
+      conductances.pack();
+      advections.pack();
+      sources.pack();
+    }
     nodes.shrink_to_fit();
     conductances.shrink_to_fit();
     conductanceChannels.shrink_to_fit();

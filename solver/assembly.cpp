@@ -52,15 +52,6 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
     for (Index i = 0; i < nodes_; ++i)
       if (!(network.nodes[i].capacity > 0.0))
         throw std::invalid_argument(fmt::format("node {} has no heat capacity", network.label(i)));
-  if (pattern_.size <= kSlotReplayLimit) {
-    conductanceCopy_.reserve(network.conductances.size());
-    advections_.reserve(network.advections.size());
-    sources_.reserve(network.sources.size());
-    conductanceCopy_.assign(network.conductances.begin(), network.conductances.end());
-    conductanceChanges_ = network.conductances.changes();
-    advections_.assign(network.advections.begin(), network.advections.end());
-    sources_.assign(network.sources.begin(), network.sources.end());
-  }
   if (transient && pattern_.size <= kSlotReplayLimit) {
     inverseCapacity_.resize(nodes_);
     for (Index i = 0; i < nodes_; ++i) inverseCapacity_[i] = 1.0 / network.nodes[i].capacity;
@@ -71,13 +62,11 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       nodeWeight_[i] = nodeWeight(i);
     }
     conductanceFactors_.resize(network.conductances.size());
-    for (auto it = network.conductances.begin(); it != network.conductances.end(); ++it) {
-      const Index k = it.index();
-      const Conductance c = *it;
+    network.conductances.forEach([&](Index k, const Conductance& c) {
       const auto [fa, fb] = conductanceFactors(c);
       conductanceFactors_[k] = {fa, fb, network.nodes[c.a].group != network.nodes[c.b].group,
                                 static_cast<std::uint32_t>(network.conductanceChannel(k))};
-    }
+    });
   }
   for (const Modulator& m : network.modulators)
     if ((m.schedule != none && !network.schedules) || (m.control != none && m.control >= controls_))
@@ -98,11 +87,11 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       for (Index p = begin; p < end; ++p) forPart(network.flowParts[p].modulator, row, channel);
     };
     for (Index i = 0; i < pattern_.size; ++i) add(i, i);
-    forEachTerm(network.conductances, conductanceCopy_, [&](Index, const Conductance& c) {
+    network.conductances.forEach([&](Index, const Conductance& c) {
       add(c.a, c.b);
       add(c.b, c.a);
     });
-    forEachTerm(network.advections, advections_, [&](Index, const Advection& a) {
+    network.advections.forEach([&](Index, const Advection& a) {
       const bool cancels = viaCancels(a);
       forEachHop(a, [&](Index from, Index to) {
         add(to, from);
@@ -117,7 +106,7 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       if (transient) add(accumulator(e.channel), e.node);
       forParts(e.partsBegin, e.partsEnd, e.node, e.channel);
     }
-    forEachTerm(network.sources, sources_, [&](Index, const HeatSource& s) {
+    network.sources.forEach([&](Index, const HeatSource& s) {
       if (transient) add(accumulator(s.channel), s.node);
       if (Index u = controlColumn(s.modulator); u != none) {
         add(s.node, u);
@@ -147,13 +136,13 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       for (Index p = begin; p < end; ++p)
         if (Index u = controlColumn(network.flowParts[p].modulator); u != none) visit(r, u);
     };
-    forEachTerm(network.conductances, conductanceCopy_, [&](Index k, const Conductance& c) {
+    network.conductances.forEach([&](Index k, const Conductance& c) {
       if (network.nodes[c.a].group == network.nodes[c.b].group) return;
       const Index channel = network.conductanceChannel(k);
       const Index ra = row(c.a, channel), rb = row(c.b, channel);
       for (auto [r, col] : {std::pair{ra, c.a}, {ra, c.b}, {rb, c.a}, {rb, c.b}}) visit(r, col);
     });
-    forEachTerm(network.advections, advections_, [&](Index, const Advection& a) {
+    network.advections.forEach([&](Index, const Advection& a) {
       const bool cancels = viaCancels(a);
       forEachHop(a, [&](Index from, Index to) {
         if (!(cancels && from == a.via)) visit(row(to, a.channel), from);
@@ -167,7 +156,7 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
       visit(row(e.node, e.channel), e.node);
       partColumns(e.partsBegin, e.partsEnd, row(e.node, e.channel));
     }
-    forEachTerm(network.sources, sources_, [&](Index, const HeatSource& s) {
+    network.sources.forEach([&](Index, const HeatSource& s) {
       visit(row(s.node, s.channel), s.node);
       visit(row(s.node, s.channel), controlColumn(s.modulator));
     });
@@ -381,7 +370,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
   auto toGroup = [&](Index node, Index channel, double q) {
     if (const Index r = rowOf(node); r != none) out[r + channel] += q;
   };
-  forEachTerm(network_.conductances, conductanceTerms(), [&](Index k, const Conductance& c) __attribute__((always_inline)) {
+  network_.conductances.forEach([&](Index k, const Conductance& c) __attribute__((always_inline)) {
     const ConductanceFactors f =
         tables ? conductanceFactors_[k]
                : [&] {
@@ -400,7 +389,9 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
   // The junction rings' pair parts, O(m) per ring (within the parent's group: no budget or group-energy rows).
   for (const Junction& j : network_.junctions)
     for (const JunctionRing& ring : j.rings) ringFlows(ring, T, [&](Index node, double q) { out[node] += q; });
-  if (transient && tables && !advections_.empty()) {
+  // (A small system's network keeps its streams plain: Network::kPlainNodes.)
+  const std::span<const Advection> plainAdvections = network_.advections.plain();
+  if (transient && tables && !plainAdvections.empty()) {
     // The small transient systems' hops (the same terms in the same order as the loop below) with the rows that
     // take one hop after another kept in registers: the channel's total and the group's share of it that the hop
     // goes to (acc[channel], toGroup), and the node that second hops go to (a segment's vein, which every perfused
@@ -414,7 +405,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
     const Index channelRow = nodes_ + controls_;  // acc[c] is out[channelRow + c]
     Index chRow = none, grRow = none, toRow = none;
     double chSum = 0.0, grSum = 0.0, toSum = 0.0;
-    for (const Advection& a : advections_) {
+    for (const Advection& a : plainAdvections) {
       const double F = flowOf(a, modulators_);
       const Index channel = a.channel;
       const bool via = a.via != none;
@@ -452,7 +443,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
     if (chRow != none) o[chRow] = chSum;
     if (grRow != none) o[grRow] = grSum;
   } else {
-    forEachTerm(network_.advections, advections_, [&](Index, const Advection& a) __attribute__((always_inline)) {
+    network_.advections.forEach([&](Index, const Advection& a) __attribute__((always_inline)) {
       double F = flowOf(a, modulators_);
       forEachHop(a, [&](Index from, Index to) {
         double q = F * (T[from] - T[to]);
@@ -473,7 +464,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
       toGroup(e.node, e.channel, q);
     }
   }
-  forEachTerm(network_.sources, sources_, [&](Index, const HeatSource& s) __attribute__((always_inline)) {
+  network_.sources.forEach([&](Index, const HeatSource& s) __attribute__((always_inline)) {
     double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
     const auto [rate, reference] = q10Rates_[s.law];
     double q = s.power * m * std::exp(rate * (T[s.node] - reference));
@@ -540,7 +531,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     const Index r = groupRowOf(node);
     if (r != none && col != none) values[position(r + channel, col)] += d;
   };
-  forEachTerm(network_.conductances, conductanceTerms(), [&](Index k, const Conductance& c) __attribute__((always_inline)) {
+  network_.conductances.forEach([&](Index k, const Conductance& c) __attribute__((always_inline)) {
     const double G = c.conductance;
     const auto [fa, fb] = conductanceFactors(c);
     add(c.a, c.a, -fa * G);
@@ -578,7 +569,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
       partDerivative(network_.flowParts[p].modulator, network_.flowParts[p].coefficient, row, channel, difference,
                      weight);
   };
-  forEachTerm(network_.advections, advections_, [&](Index, const Advection& adv) __attribute__((always_inline)) {
+  network_.advections.forEach([&](Index, const Advection& adv) __attribute__((always_inline)) {
     double F = flowOf(adv, modulators_);
     const bool cancels = viaCancels(adv);
     forEachHop(adv, [&](Index from, Index to) {
@@ -609,7 +600,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     partDerivatives(ex.partsBegin, ex.partsEnd, ex.node, ex.channel, ex.temperature - T[ex.node],
                     nodeWeight(ex.node));
   }
-  forEachTerm(network_.sources, sources_, [&](Index, const HeatSource& s) __attribute__((always_inline)) {
+  network_.sources.forEach([&](Index, const HeatSource& s) __attribute__((always_inline)) {
     double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
     const auto [rate, reference] = q10Rates_[s.law];
     double base = s.power * std::exp(rate * (T[s.node] - reference));
@@ -721,7 +712,7 @@ void NetworkSystem::flowsByGroup(double time, std::span<const double> T, std::sp
     }
   };
   if (rates || wanted(0)) {
-    forEachTerm(network_.conductances, conductanceTerms(), conductance);
+    network_.conductances.forEach(conductance);
   } else {  // only the conductances booked to another channel than 0 can carry a marked one (ascending, as above)
     for (const ConductanceChannel& c : network_.conductanceChannels)
       if (wanted(c.channel)) conductance(c.conductance, network_.conductances[c.conductance]);
@@ -729,7 +720,7 @@ void NetworkSystem::flowsByGroup(double time, std::span<const double> T, std::sp
   if (rates)
     for (const Junction& j : network_.junctions)  // within the parent's group: its storage, no channel
       for (const JunctionRing& ring : j.rings) ringFlows(ring, T, [&](Index node, double q) { rate[node] += q; });
-  forEachTerm(network_.advections, advections_, [&](Index, const Advection& a) __attribute__((always_inline)) {
+  network_.advections.forEach([&](Index, const Advection& a) __attribute__((always_inline)) {
     if (!rates && !wanted(a.channel)) return;
     const double F = flowOf(a, modulators_);
     forEachHop(a, [&](Index from, Index to) {
@@ -744,7 +735,7 @@ void NetworkSystem::flowsByGroup(double time, std::span<const double> T, std::sp
     if (rates) rate[e.node] += q;
     if (wanted(e.channel)) at(e.node, e.channel) += q;
   }
-  forEachTerm(network_.sources, sources_, [&](Index, const HeatSource& s) __attribute__((always_inline)) {
+  network_.sources.forEach([&](Index, const HeatSource& s) __attribute__((always_inline)) {
     if (!rates && !wanted(s.channel)) return;
     double m = s.modulator == none ? 1.0 : modulators_[s.modulator];
     const auto [q10Rate, reference] = q10Rates_[s.law];

@@ -224,32 +224,6 @@ class NetworkSystem {
   Index conductanceChannel(Index k) const {
     return conductanceFactors_.empty() ? network_.conductanceChannel(k) : Index(conductanceFactors_[k].channel);
   }
-  //! The same systems' conductances, streams and heat sources expanded from the network's runs (TermRuns): reading
-  //! a term from its run at every evaluation was 40 % more of evaluate()'s instructions in the hare study. The
-  //! conductances' values are copied again when the network's have changed (Body::setInterval sets them, and a
-  //! drying coat's Body::coatsAt at each evaluation through Network::timed); the
-  //! other terms' values do not change once the network is built.
-  std::vector<Advection> advections_;
-  std::vector<HeatSource> sources_;
-  mutable std::vector<Conductance> conductanceCopy_;
-  mutable std::uint64_t conductanceChanges_ = 0;
-  //! The expanded conductances with the network's current values (small systems; empty otherwise).
-  const std::vector<Conductance>& conductanceTerms() const {
-    if (conductanceChanges_ != network_.conductances.changes()) {
-      for (Index k = 0; k < conductanceCopy_.size(); ++k) conductanceCopy_[k].conductance = network_.conductances.value(k);
-      conductanceChanges_ = network_.conductances.changes();
-    }
-    return conductanceCopy_;
-  }
-  //! Calls f(k, term) for each term of `list` in order: from `flat` where the system keeps the terms expanded.
-  template <class T, class F>
-  [[gnu::always_inline]] static void forEachTerm(const TermRuns<T>& list, const std::vector<T>& flat, F&& f) {
-    if (!flat.empty()) {
-      for (Index k = 0; k < flat.size(); ++k) f(k, flat[k]);
-    } else {
-      for (auto it = list.begin(); it != list.end(); ++it) f(it.index(), *it);
-    }
-  }
   std::vector<Index> nodeGroupRow_;
   std::vector<double> nodeWeight_;
   std::vector<ConductanceFactors> conductanceFactors_;

@@ -274,15 +274,30 @@ TEST_CASE("Network terms stored as runs read back as pushed", "[network]") {
     return Index(x.node) == Index(y.node) && x.power == y.power && Index(x.law) == Index(y.law) &&
            Index(x.channel) == Index(y.channel) && Index(x.modulator) == Index(y.modulator);
   };
-  REQUIRE(sources.size() == pushed.size());
+  // Read back plain (as built), then packed into runs: the same terms by iteration, forEach and index.
+  auto readsBack = [&] {
+    REQUIRE(sources.size() == pushed.size());
+    Index k = 0;
+    for (auto it = sources.begin(); it != sources.end(); ++it, ++k) {
+      CHECK(it.index() == k);
+      CHECK(same(*it, pushed[k]));
+      CHECK(same(sources[k], pushed[k]));
+    }
+    CHECK(k == pushed.size());
+    Index visited = 0;
+    sources.forEach([&](Index i, const HeatSource& s) {
+      CHECK(i == visited);
+      CHECK(same(s, pushed[visited]));
+      ++visited;
+    });
+    CHECK(visited == pushed.size());
+  };
+  CHECK_FALSE(sources.packed());
+  readsBack();
+  sources.pack();
+  CHECK(sources.packed());
   CHECK(sources.runCount() == 3);
-  Index k = 0;
-  for (auto it = sources.begin(); it != sources.end(); ++it, ++k) {
-    CHECK(it.index() == k);
-    CHECK(same(*it, pushed[k]));
-    CHECK(same(sources[k], pushed[k]));
-  }
-  CHECK(k == pushed.size());
+  readsBack();
   sources.setValue(2, -1.25);
   CHECK(sources[2].power == -1.25);
   CHECK(sources.value(2) == -1.25);
@@ -293,6 +308,25 @@ TEST_CASE("Network terms stored as runs read back as pushed", "[network]") {
   CHECK(sources.runCount() == 1);
   CHECK(Index(sources[6].modulator) == 7);
   CHECK(Index(sources[6].node) == 16);
+
+  // compact() packs the lists of a network of more than kPlainNodes nodes only; a plain list packs itself at
+  // kPlainLimit terms (a large network's set-up never holds the whole plain list).
+  for (const Index nodes : {Network::kPlainNodes, Network::kPlainNodes + 1}) {
+    Network net;
+    for (Index i = 0; i < nodes; ++i) net.addNode(1.0, 0);
+    for (Index i = 0; i + 1 < nodes; ++i) net.addConductance(i, i + 1, 2.0 + static_cast<double>(i));
+    net.compact();
+    CHECK(net.conductances.packed() == (nodes > Network::kPlainNodes));
+    CHECK(net.conductances.size() == nodes - 1);
+    CHECK(net.conductances[nodes - 2].conductance == 2.0 + static_cast<double>(nodes - 2));
+    CHECK(Index(net.conductances[nodes - 2].b) == nodes - 1);
+  }
+  TermRuns<HeatSource> many;
+  for (Index i = 0; i + 1 < TermRuns<HeatSource>::kPlainLimit; ++i) many.push_back({i, 1.0, law, channel, none});
+  CHECK_FALSE(many.packed());
+  many.push_back({TermRuns<HeatSource>::kPlainLimit - 1, 1.0, law, channel, none});
+  CHECK(many.packed());
+  CHECK(many.runCount() == 1);
 
   // A perfused radial layer: one run of conductances, streams and sources for the whole layer.
   auto body = bodyFromToml(tissueTables + R"toml(
@@ -307,7 +341,12 @@ layers = [ { tissue = "flesh", thickness = 0.05, cells = 50 } ]
 convection = 15.0
 temperature = 290.0
 )toml");
-  const Network& n = body->network();
+  // (A network of up to Network::kPlainNodes nodes keeps its lists plain: packed here as a large one's are.)
+  Network n = body->network();
+  CHECK_FALSE(n.sources.packed());
+  n.conductances.pack();
+  n.advections.pack();
+  n.sources.pack();
   std::printf("[network] 50 radial cells: %zu conductances in %zu runs, %zu streams in %zu, %zu sources in %zu\n",
               static_cast<std::size_t>(n.conductances.size()), static_cast<std::size_t>(n.conductances.runCount()),
               static_cast<std::size_t>(n.advections.size()), static_cast<std::size_t>(n.advections.runCount()),
