@@ -211,13 +211,14 @@ static_assert(sizeof(FlowPart) == 12 && sizeof(NetworkNode) == 12 && sizeof(Cond
 
 //! How a term of one kind continues a run in TermRuns: Key(t) the fields that a run shares once its node indices are
 //! taken back to the run's first term (at(head, offset, value) moves them forward by offset), value(t) the one
-//! coefficient each term stores.
+//! coefficient each term stores (setValue(t, v) sets it).
 template <class T>
 struct TermTraits;
 
 template <>
 struct TermTraits<Conductance> {  // a and b advance by one: a 1-D chain of cells
   static double value(const Conductance& c) { return c.conductance; }
+  static void setValue(Conductance& c, double value) { c.conductance = value; }
   static Conductance at(Conductance c, Index offset, double value) {
     c.a = Index(c.a) + offset;
     c.b = Index(c.b) + offset;
@@ -232,6 +233,7 @@ struct TermTraits<Conductance> {  // a and b advance by one: a 1-D chain of cell
 template <>
 struct TermTraits<Advection> {  // a stream through consecutive cells (via advances by one; from, to, parts shared)
   static double value(const Advection& a) { return a.flowCapacity; }
+  static void setValue(Advection& a, double value) { a.flowCapacity = value; }
   static Advection at(Advection a, Index offset, double value) {
     if (a.via != none) a.via = Index(a.via) + offset;
     a.flowCapacity = value;
@@ -247,6 +249,7 @@ struct TermTraits<Advection> {  // a stream through consecutive cells (via advan
 template <>
 struct TermTraits<HeatSource> {  // the sources of consecutive cells of one tissue (law, channel, modulator shared)
   static double value(const HeatSource& s) { return s.power; }
+  static void setValue(HeatSource& s, double value) { s.power = value; }
   static HeatSource at(HeatSource s, Index offset, double value) {
     s.node = Index(s.node) + offset;
     s.power = value;
@@ -345,22 +348,8 @@ class TermRuns {
   }
   //! Appends t: plain, or (packed) to the last run if it continues it, else as a new run.
   void push_back(const T& t) {
-    if (!packed_) {
-      plain_.push_back(t);
-      if (plain_.size() >= kPlainLimit) pack();
-      return;
-    }
-    if (values_.size() >= std::uint32_t(-1)) throw std::length_error("a network index does not fit in 32 bits");
-    const double v = Traits::value(t);
-    if (!runs_.empty()) {
-      const Run& r = runs_.back();
-      if (Traits::same(Traits::at(r.head, size() - r.first, v), t)) {
-        values_.push_back(v);
-        return;
-      }
-    }
-    runs_.push_back({static_cast<std::uint32_t>(size()), t});
-    values_.push_back(v);
+    if (!packed_ && plain_.size() + 1 < kPlainLimit) plain_.push_back(t);  // (inline: a network's build)
+    else pushPacking(t);
   }
   void pop_back() {
     if (!packed_) {
@@ -374,7 +363,7 @@ class TermRuns {
   double value(Index k) const { return packed_ ? values_[k] : Traits::value(plain_[k]); }
   void setValue(Index k, double v) {
     if (packed_) values_[k] = v;
-    else plain_[k] = Traits::at(plain_[k], 0, v);
+    else Traits::setValue(plain_[k], v);
   }
   //! Replaces every term t by f(t) (a packed list's runs formed again).
   template <class F>
@@ -399,7 +388,7 @@ class TermRuns {
     std::vector<T> plain;
     plain.swap(plain_);
     packed_ = true;
-    for (const T& t : plain) push_back(t);
+    for (const T& t : plain) pushPacking(t);
   }
   bool packed() const { return packed_; }
   //! The terms of a plain list (empty when packed).
@@ -413,6 +402,21 @@ class TermRuns {
   Index runCount() const { return runs_.size(); }
 
  private:
+  //! push_back of a packed list, or of a plain one that reaches kPlainLimit terms with t (packed first).
+  [[gnu::noinline]] void pushPacking(const T& t) {
+    pack();
+    if (values_.size() >= std::uint32_t(-1)) throw std::length_error("a network index does not fit in 32 bits");
+    const double v = Traits::value(t);
+    if (!runs_.empty()) {
+      const Run& r = runs_.back();
+      if (Traits::same(Traits::at(r.head, size() - r.first, v), t)) {
+        values_.push_back(v);
+        return;
+      }
+    }
+    runs_.push_back({static_cast<std::uint32_t>(size()), t});
+    values_.push_back(v);
+  }
   const Run& runOf(Index k) const {
     return *(std::upper_bound(runs_.begin(), runs_.end(), k,
                               [](Index key, const Run& r) { return key < r.first; }) -

@@ -138,7 +138,7 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
     };
     network.conductances.forEach([&](Index k, const Conductance& c) {
       if (network.nodes[c.a].group == network.nodes[c.b].group) return;
-      const Index channel = network.conductanceChannel(k);
+      const Index channel = conductanceChannel(k);  // (from the table of small transient systems)
       const Index ra = row(c.a, channel), rb = row(c.b, channel);
       for (auto [r, col] : {std::pair{ra, c.a}, {ra, c.b}, {rb, c.a}, {rb, c.b}}) visit(r, col);
     });
