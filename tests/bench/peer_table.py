@@ -15,7 +15,10 @@ peak RSS by /usr/bin/time, the command's own, not floored by this script's as wa
     convection, 1 h, output every minute, rtol = atol = 1e-6): whole process and solver only (thermorph's
     "Solver: ... s wall", SciPy's solve_ivp wall), best of N by wall time;
   - per-run CPU of each example study (frozen copies in tests/bench/studies/) inside a sweep on one thread:
-    (CPU of a sweep of K + 1 identical runs - CPU of a sweep of 1 run) / K, so start-up is not counted;
+    (CPU of a sweep of K + 1 identical runs - CPU of a sweep of 1 run) / K, so start-up is not counted; the verdict
+    compares the last executable with the FIRST, so give the issue's baseline executable first (commit 212fe53,
+    main at the start of issue 11) for it to be the issue's target, and run on an idle machine: the baseline
+    measured at load 6-10 took 61.4 ms per hare run, idle 31.7 ms (DEVELOPERS.md, sixteenth round);
   - sweep throughput on all cores (runs/s, wall) for the hare study;
   - start-up: `check` of the hare study and `run` of a 100-node radial case (98 cells + 2 state rows), whole
     process wall, best of N;
@@ -190,7 +193,7 @@ def main():
             rows.append((f"{c}: CPU per run in a sweep (-j 1)", "",
                          {n: f"{v * 1e3:.1f} ms" + (f" ({cells[first] / v:.2f}× less)" if n != first else "")
                           for n, v in cells.items()},
-                         "≥ 4× less than before",
+                         f"≥ 4× less than {first}",
                          ("met" if cells[first] / cells[exes[-1][0]] >= 4 else "MISSED") if len(exes) > 1 else ""))
             base[c] = cells
         cells = {}
