@@ -189,19 +189,11 @@ void EnvironmentModel::coverHost(Index guest, Index host, double ratio) {
   setInterval(interval_);
 }
 
-double EnvironmentModel::value(EnvironmentVariable variable, double time) const {
-  return offset_[index(variable)] + slope_[index(variable)] * time;
-}
-
 double EnvironmentModel::segmentEmissivity(const SegmentSpec& s, const EnvironmentSpec& environment) {
   // A fixed coefficient stands for the whole surface exchange (Newton cooling, as in validation problems):
   // radiation only when an emissivity is given.
   const bool fixed = s.surface.convection.value_or(environment.convection).fixed;
   return s.surface.emissivity.value_or(fixed ? 0.0 : s.coat ? kCoatEmissivity : kSkinEmissivity);
-}
-
-bool EnvironmentModel::inWater(Immersion immersion, SurroundingMedium medium) {
-  return immersion == Immersion::Always || (immersion == Immersion::Body && medium != SurroundingMedium::Air);
 }
 
 bool EnvironmentModel::immersed(Index segment) const { return inWater(surfaces_.at(segment).immersion, initialMedium_); }

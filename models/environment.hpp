@@ -93,8 +93,11 @@ class EnvironmentModel : public SurfaceModel {
   //! temperatures (all faces of the network) [W/(m2 K)].
   double meanConvectionCoefficient(Index segment, double time, std::span<const double> faceTemperatures) const;
 
-  //! Whether a segment with this immersion is in water while the medium is `medium`.
-  static bool inWater(Immersion immersion, SurroundingMedium medium);
+  //! Whether a segment with this immersion is in water while the medium is `medium` (inline: it is read in every
+  //! face evaluation, DEVELOPERS.md "Per-run CPU in sweeps, sixteenth round").
+  static bool inWater(Immersion immersion, SurroundingMedium medium) {
+    return immersion == Immersion::Always || (immersion == Immersion::Body && medium != SurroundingMedium::Air);
+  }
   //! Long-wave emissivity of a segment, its default resolved: a fixed convection coefficient (the segment's or the
   //! environment's) stands for the whole exchange unless an emissivity is given [1].
   static double segmentEmissivity(const SegmentSpec& s, const EnvironmentSpec& environment);
@@ -149,8 +152,11 @@ class EnvironmentModel : public SurfaceModel {
   FaceFluid fluid(Index segment, double time) const;
   //! Long-wave emissivity used for a segment, defaults resolved [1].
   double emissivity(Index segment) const;
-  //! Value of an environment variable at time t in the current interval [SI].
-  double value(EnvironmentVariable variable, double time) const;
+  //! Value of an environment variable at time t in the current interval [SI] (inline, as inWater).
+  double value(EnvironmentVariable variable, double time) const {
+    const auto i = static_cast<std::size_t>(variable);
+    return offset_[i] + slope_[i] * time;
+  }
   //! Correlations used outside their validity range, each reported once (collected while running).
   std::vector<std::string> warnings() const;
   //! Range checks of the faces whose last convection evaluation lay outside a correlation's range while range checks

@@ -33,8 +33,7 @@ WarningLog& warningLog() {
 }
 }  // namespace
 
-bool checkValidity(const ValidityRange& range, double value) {
-  if (range.contains(value)) return false;
+bool recordOutsideValidity(const ValidityRange& range, double value) {
   WarningLog& log = warningLog();
   if (!log.logging) return true;
   for (const auto& [correlation, parameter] : log.issued)

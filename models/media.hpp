@@ -42,9 +42,17 @@ struct ValidityRange {
   constexpr bool contains(double value) const { return value >= min && value <= max; }
 };
 
+//! Records a warning for a value outside `range` the first time this (correlation, parameter) pair is seen on this
+//! thread since the last reset (a log per thread); returns true. The slow path of checkValidity.
+bool recordOutsideValidity(const ValidityRange& range, double value);
+
 //! True when `value` is outside `range`; then records a warning the first time this
-//! (correlation, parameter) pair is seen on this thread since the last reset (a log per thread).
-bool checkValidity(const ValidityRange& range, double value);
+//! (correlation, parameter) pair is seen on this thread since the last reset (a log per thread). The test inline,
+//! the record out of line: every convection evaluation checks two ranges (DEVELOPERS.md "Per-run CPU in sweeps,
+//! sixteenth round").
+inline bool checkValidity(const ValidityRange& range, double value) {
+  return !range.contains(value) && recordOutsideValidity(range, value);
+}
 
 //! Warnings recorded on this thread since the last call, each (correlation, parameter, value, range)
 //! reported once between resets.

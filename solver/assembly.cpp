@@ -343,9 +343,9 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
   network_.coefficientsAt(time);
   // A body without a stable state (e.g. Q10 metabolism outrunning its losses) leaves any sensible range long
   // before the numbers fail: stop with a message that says so (one pass without a branch per node, then the first
-  // node outside for the message).
-  bool outside = false;
-  for (Index i = 0; i < nodes_; ++i) outside |= !(T[i] > 150.0 && T[i] < 450.0);
+  // node outside for the message; the two tests of each node or-ed as integers, which the compiler vectorises).
+  unsigned outside = 0;
+  for (Index i = 0; i < nodes_; ++i) outside |= unsigned(!(T[i] > 150.0)) | unsigned(!(T[i] < 450.0));
   if (outside)
     for (Index i = 0; i < nodes_; ++i)
       if (!(T[i] > 150.0 && T[i] < 450.0))
