@@ -201,8 +201,7 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
   faceSlope_.assign(network.faces.size(), 0.0);
   faceEvalTemperature_.assign(network.faces.size(), std::nan(""));
   faceEvalSlope_.assign(network.faces.size(), 0.0);
-  scratchHeat_.resize(channels_);
-  scratchDerivative_.resize(channels_);
+  faceScratch_.resize(2 * channels_);
   if (!network.faceControls.empty()) {
     faceControl_.assign(network.faces.size(), none);
     for (const FaceControl& fc : network.faceControls) {
@@ -287,8 +286,12 @@ NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, do
   if (std::isfinite(faceGuess_[face]))
     Ts = faceGuess_[face] + faceSlope_[face] * (nodeTemperature - faceNodeTemperature_[face]);
   for (int iteration = 0; iteration < 60; ++iteration) {
-    std::fill(channelHeat.begin(), channelHeat.end(), 0.0);
-    std::fill(channelDerivative.begin(), channelDerivative.end(), 0.0);
+    if (channelDerivative.data() == channelHeat.data() + channelHeat.size()) {  // one block (faceScratch_)
+      std::fill_n(channelHeat.data(), channelHeat.size() + channelDerivative.size(), 0.0);
+    } else {
+      std::fill(channelHeat.begin(), channelHeat.end(), 0.0);
+      std::fill(channelDerivative.begin(), channelDerivative.end(), 0.0);
+    }
     if (control) {
       std::fill(controlDerivative_.begin(), controlDerivative_.end(), 0.0);
       network_.surface->controlledFaceHeat(face, Ts, time, *control, channelHeat, channelDerivative, controlDerivative_);
@@ -343,9 +346,9 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
   network_.coefficientsAt(time);
   // A body without a stable state (e.g. Q10 metabolism outrunning its losses) leaves any sensible range long
   // before the numbers fail: stop with a message that says so (one pass without a branch per node, then the first
-  // node outside for the message; the two tests of each node or-ed as integers, which the compiler vectorises).
-  unsigned outside = 0;
-  for (Index i = 0; i < nodes_; ++i) outside |= unsigned(!(T[i] > 150.0)) | unsigned(!(T[i] < 450.0));
+  // node outside for the message).
+  bool outside = false;
+  for (Index i = 0; i < nodes_; ++i) outside |= !(T[i] > 150.0 && T[i] < 450.0);
   if (outside)
     for (Index i = 0; i < nodes_; ++i)
       if (!(T[i] > 150.0 && T[i] < 450.0))
@@ -476,15 +479,15 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
   });
   for (Index f = 0; f < network_.faces.size(); ++f) {
     Index node = network_.faces[f].node;
-    solveFace(f, time, T[node], scratchHeat_, scratchDerivative_, true, faceControl(f, T));
+    solveFace(f, time, T[node], heatScratch(), slopeScratch(), true, faceControl(f, T));
     // The node's sum in a register (the same additions in the same order; out[node] is none of the energy rows
     // written meanwhile): a store and reload of out[node] per channel was the longest chain of the evaluation.
     double sum = out[node];
     for (Index c = 0; c < channels_; ++c) {
-      sum += scratchHeat_[c];
+      sum += heatScratch()[c];
       if (transient) {
-        acc[c] += weightOf(node) * scratchHeat_[c];
-        toGroup(node, c, scratchHeat_[c]);
+        acc[c] += weightOf(node) * heatScratch()[c];
+        toGroup(node, c, heatScratch()[c]);
       }
     }
     out[node] = sum;
@@ -621,14 +624,14 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
   for (Index f = 0; f < network_.faces.size(); ++f) {
     Index node = network_.faces[f].node;
     const double* control = faceControl(f, T);
-    FaceSolution sol = solveFace(f, time, T[node], scratchHeat_, scratchDerivative_, true, control);
+    FaceSolution sol = solveFace(f, time, T[node], heatScratch(), slopeScratch(), true, control);
     double total = 0.0;
-    for (Index c = 0; c < channels_; ++c) total += scratchDerivative_[c];
+    for (Index c = 0; c < channels_; ++c) total += slopeScratch()[c];
     add(node, node, total * sol.dTsdTn);
     if (transient)
       for (Index c = 0; c < channels_; ++c) {
-        add(nodes_ + controls_ + c, node, nodeWeight(node) * scratchDerivative_[c] * sol.dTsdTn);
-        toGroup(node, c, node, scratchDerivative_[c] * sol.dTsdTn);
+        add(nodes_ + controls_ + c, node, nodeWeight(node) * slopeScratch()[c] * sol.dTsdTn);
+        toGroup(node, c, node, slopeScratch()[c] * sol.dTsdTn);
       }
     if (!control) continue;
     // The face's controller u: G (T_n - T_s) + q(T_s, u) = 0 gives dT_s/du = (dq/du) / (G - q'(T_s)); channel c
@@ -640,7 +643,7 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     add(node, u, dqdu + sol.dqdTs * dTsdu);
     if (transient)
       for (Index c = 0; c < channels_; ++c) {
-        const double d = controlDerivative_[c] + scratchDerivative_[c] * dTsdu;
+        const double d = controlDerivative_[c] + slopeScratch()[c] * dTsdu;
         add(nodes_ + controls_ + c, u, nodeWeight(node) * d);
         toGroup(node, c, u, d);
       }
@@ -752,11 +755,11 @@ void NetworkSystem::flowsByGroup(double time, std::span<const double> T, std::sp
   } reporting(network_.faces.empty() ? nullptr : network_.surface);
   for (Index f = 0; f < network_.faces.size(); ++f) {
     Index node = network_.faces[f].node;
-    FaceSolution sol = solveFace(f, time, T[node], scratchHeat_, scratchDerivative_, false, faceControl(f, T));
+    FaceSolution sol = solveFace(f, time, T[node], heatScratch(), slopeScratch(), false, faceControl(f, T));
     if (f < faceTemperatures.size()) faceTemperatures[f] = sol.temperature;
     for (Index c = 0; c < channels_; ++c) {
-      if (rates) rate[node] += scratchHeat_[c];
-      if (wanted(c)) at(node, c) += scratchHeat_[c];
+      if (rates) rate[node] += heatScratch()[c];
+      if (wanted(c)) at(node, c) += heatScratch()[c];
     }
   }
   if (rates)  // each group's sum in a register over a run of its nodes (groupStoredHeat): the same additions, in order
@@ -899,12 +902,12 @@ void NetworkSystem::parameterDerivatives(double time, std::span<const double> T,
   std::vector<double> faceT(faces), faceSlope(faces * channels_), faceDq(faces);
   for (Index f = 0; f < faces; ++f) {
     const FaceSolution sol =
-        solveFace(f, time, T[network_.faces[f].node], scratchHeat_, scratchDerivative_, true, faceControl(f, T));
+        solveFace(f, time, T[network_.faces[f].node], heatScratch(), slopeScratch(), true, faceControl(f, T));
     faceT[f] = sol.temperature;
     double dq = 0.0;
     for (Index c = 0; c < channels_; ++c) {
-      faceSlope[f * channels_ + c] = scratchDerivative_[c];
-      dq += scratchDerivative_[c];
+      faceSlope[f * channels_ + c] = slopeScratch()[c];
+      dq += slopeScratch()[c];
     }
     faceDq[f] = dq;
   }

@@ -232,7 +232,12 @@ class NetworkSystem {
   //! Face temperature of the last evaluation of the face's heats in a remembered solve, and dq/dT_s there (the
   //! secant of dq/dT_s between two evaluations estimates q'' for the error of a single Newton step).
   mutable std::vector<double> faceEvalTemperature_, faceEvalSlope_;
-  mutable std::vector<double> scratchHeat_, scratchDerivative_, modulators_;
+  //! The face solves' channel heats (first half) and their slopes dq_c/dT_s (second half) in one block, zeroed by one
+  //! fill per Newton iteration (DEVELOPERS.md "Per-run CPU in sweeps, sixteenth round").
+  mutable std::vector<double> faceScratch_;
+  std::span<double> heatScratch() const { return {faceScratch_.data(), channels_}; }
+  std::span<double> slopeScratch() const { return {faceScratch_.data() + channels_, channels_}; }
+  mutable std::vector<double> modulators_;
   mutable std::vector<double> scheduleValues_;  //!< schedule factor of each modulator at the last evaluation
   std::optional<double> frozenTime_;
   double at(double time) const { return frozenTime_ ? *frozenTime_ : time; }
