@@ -41,6 +41,8 @@ using SharedSymbolic = std::shared_ptr<klu_symbolic>;
 constexpr Index kSharedAnalysisLimit = 5000;
 //! Systems up to this size keep A_ef by rows (NewtonSolver::rowStart_).
 constexpr Index kRowSubstitutionLimit = 5000;
+//! Systems up to this size solve with KLU's factors by rows (NewtonSolver::Klu::byRows).
+constexpr Index kRowSolveLimit = 5000;
 constexpr std::size_t kSharedAnalyses = 4;
 struct SharedAnalysis {
   std::vector<int> start, row;
@@ -65,10 +67,78 @@ struct NewtonSolver::Klu {
   klu_common common{};
   SharedSymbolic symbolic;
   klu_numeric* numeric = nullptr;
+  //! KLU's factors L and U by rows, for solve() (systems of up to kRowSolveLimit components in one block, without
+  //! row scaling; else klu_solve): row i of L holds its entries left of the diagonal in ascending column order,
+  //! row i of U its entries right of the diagonal in descending column order, each as the column and the position
+  //! of the value in KLU's LUbx[0] (in doubles); the values are copied from there after each factorisation.
+  bool byRows = false;
+  std::vector<int> lStart, lColumn, uStart, uColumn;
+  std::vector<std::uint32_t> lSource, uSource;
+  std::vector<double> lValue, uValue;
+  mutable std::vector<double> work;  //!< the permuted solution, KLU's X [n]
+  void rowsFromFactors(bool patternChanged);
   ~Klu() {
     if (numeric) klu_free_numeric(&numeric, &common);
   }
 };
+
+void NewtonSolver::Klu::rowsFromFactors(bool patternChanged) {
+  const klu_numeric& N = *numeric;
+  if (patternChanged) {
+    auto clear = [&] {
+      byRows = false;
+      lStart = lColumn = uStart = uColumn = {};
+      lSource = uSource = {};
+      lValue = uValue = work = {};
+    };
+    byRows = N.n <= static_cast<int>(kRowSolveLimit) && N.nblocks == 1 && N.nzoff == 0 && N.Rs == nullptr;
+    if (!byRows) return clear();
+    // Column k of L (U) in LUbx[0]: Llen[k] (Ulen[k]) row indices from Lip[k] (Uip[k]), then their values from
+    // the next multiple of sizeof(double) (KLU's GET_POINTER, klu_internal.h); indices in the permuted order.
+    const auto* lu = static_cast<const double*>(N.LUbx[0]);
+    const int n = N.n;
+    auto indexUnits = [](int len) { return (static_cast<std::size_t>(len) * sizeof(int) + sizeof(double) - 1) / sizeof(double); };
+    auto transpose = [&](const int* ip, const int* len, bool lower, std::vector<int>& start, std::vector<int>& column,
+                         std::vector<std::uint32_t>& source) {
+      start.assign(n + 1, 0);
+      for (int k = 0; k < n; ++k) {
+        const int* rows = reinterpret_cast<const int*>(lu + ip[k]);
+        for (int p = 0; p < len[k]; ++p) {
+          if (lower ? rows[p] <= k : rows[p] >= k) {  // not triangular as expected: use klu_solve
+            byRows = false;
+            return;
+          }
+          ++start[rows[p] + 1];
+        }
+      }
+      for (int i = 0; i < n; ++i) start[i + 1] += start[i];
+      column.resize(start[n]);
+      source.resize(start[n]);
+      std::vector<int> next(start.begin(), start.end() - 1);
+      // L: columns ascending, so each row's entries come in ascending column order; U: columns descending.
+      for (int j = 0; j < n; ++j) {
+        const int k = lower ? j : n - 1 - j;
+        const int* rows = reinterpret_cast<const int*>(lu + ip[k]);
+        const std::size_t values = static_cast<std::size_t>(ip[k]) + indexUnits(len[k]);
+        for (int p = 0; p < len[k]; ++p) {
+          const int q = next[rows[p]]++;
+          column[q] = k;
+          source[q] = static_cast<std::uint32_t>(values + p);
+        }
+      }
+    };
+    transpose(N.Lip, N.Llen, true, lStart, lColumn, lSource);
+    if (byRows) transpose(N.Uip, N.Ulen, false, uStart, uColumn, uSource);
+    if (!byRows) return clear();
+    lValue.resize(lSource.size());
+    uValue.resize(uSource.size());
+    work.resize(n);
+  }
+  if (!byRows) return;
+  const auto* lu = static_cast<const double*>(N.LUbx[0]);
+  for (std::size_t q = 0; q < lSource.size(); ++q) lValue[q] = lu[lSource[q]];
+  for (std::size_t q = 0; q < uSource.size(); ++q) uValue[q] = lu[uSource[q]];
+}
 
 namespace {
 
@@ -581,10 +651,12 @@ bool NewtonSolver::factor() {
       if (!k.symbolic) return false;
       if (shareable) keepAnalysis(starts, rows, k.symbolic);
     }
+    k.byRows = false;
     if (k.numeric) klu_free_numeric(&k.numeric, &k.common);
     k.numeric = klu_factor(Ap, Ai, Ax, k.symbolic.get(), &k.common);
     if (!k.numeric) return false;
     ++factorizations_;
+    k.rowsFromFactors(true);
     if (klu_flops(k.symbolic.get(), k.numeric, &k.common)) factorFlops_ = k.common.flops;
     fresh_ = false;
     return true;
@@ -598,12 +670,16 @@ bool NewtonSolver::factor() {
   if (k.common.rcond < threshold) {
     if (!klu_condest(Ap, Ax, k.symbolic.get(), k.numeric, &k.common)) return false;
     if (k.common.condest > 1.0 / threshold) {
+      k.byRows = false;
       klu_free_numeric(&k.numeric, &k.common);
       k.numeric = klu_factor(Ap, Ai, Ax, k.symbolic.get(), &k.common);
       if (!k.numeric) return false;
       ++factorizations_;
+      k.rowsFromFactors(true);
+      return true;
     }
   }
+  k.rowsFromFactors(false);
   return true;
 }
 
@@ -674,6 +750,39 @@ bool NewtonSolver::solve(std::span<double> x, const double* rhs) const {
         }
       }
     }
+  } else if (factored_ > 0 && klu_->byRows) {
+    // klu_solve's operations in its order, on the factors by rows (one block, no scaling): X = P b (b with zeros
+    // for the rank-one terms' rows), X := L^-1 X, X := U^-1 X, x = Q X. KLU updates X[i] column by column,
+    // X[i] -= L(i, k) X[k] for k ascending (klu_lsolve) and X[i] -= U(i, k) X[k] for k descending after
+    // X[k] /= U(k, k) (klu_usolve); row i here subtracts the same products in the same order in a register.
+    const Klu& k = *klu_;
+    const klu_numeric& N = *k.numeric;
+    const int n = N.n;
+    const int* const P = N.Pnum;
+    const int* const Q = k.symbolic->Q;
+    const auto* const diagonal = static_cast<const double*>(N.Udiag);
+    double* const X = k.work.data();
+    double* const xs = x.data();
+    const int f = static_cast<int>(factored_);
+    const int* const lStart = k.lStart.data();
+    const int* const lColumn = k.lColumn.data();
+    const double* const lValue = k.lValue.data();
+    for (int i = 0; i < n; ++i) {
+      const int row = P[i];
+      double s = row < f ? xs[row] : 0.0;
+      for (int q = lStart[i]; q < lStart[i + 1]; ++q) s -= lValue[q] * X[lColumn[q]];
+      X[i] = s;
+    }
+    const int* const uStart = k.uStart.data();
+    const int* const uColumn = k.uColumn.data();
+    const double* const uValue = k.uValue.data();
+    for (int i = n - 1; i >= 0; --i) {
+      double s = X[i];
+      for (int q = uStart[i]; q < uStart[i + 1]; ++q) s -= uValue[q] * X[uColumn[q]];
+      X[i] = s / diagonal[i];
+    }
+    for (int i = 0; i < n; ++i)
+      if (Q[i] < f) xs[Q[i]] = X[i];
   } else if (factored_ > 0) {
     Klu& k = *klu_;
     if (terms_ > 0) {
@@ -766,6 +875,8 @@ long NewtonSolver::factorNonzeros() const {
     return band_->factored ? static_cast<long>(band_->data.size() + band_->solved.size() + band_->schur.size()) : 0;
   return klu_->numeric ? static_cast<long>(klu_->numeric->lnz) + klu_->numeric->unz : 0;
 }
+
+bool NewtonSolver::solvesByRows() const { return klu_ && klu_->numeric && klu_->byRows; }
 
 Index NewtonSolver::lowerBandwidth() const { return band_ ? band_->lower : 0; }
 Index NewtonSolver::upperBandwidth() const { return band_ ? band_->upper : 0; }

@@ -110,6 +110,9 @@ class NewtonSolver {
   Index bandBorder() const;
   Index size() const { return pattern_.size; }
   Index factoredSize() const { return factored_; }
+  //! The last factorisation is solved with KLU's factors by rows (one block, no row scaling, up to 5000
+  //! components): klu_solve's operations in its order (bit for bit), without its column sweeps. Else klu_solve.
+  bool solvesByRows() const;
 
   //! A SUNDIALS direct linear solver (SUNLINEARSOLVER_CUSTOM) whose setup factorises the matrix last given to
   //! setMatrix and whose solve calls solve(); its SUNLinSolInitialize keeps an existing factorisation (the

@@ -8,11 +8,14 @@
 #include <Eigen/Dense>
 
 #include <algorithm>
+#include <bit>
 #include <cmath>
+#include <map>
 #include <random>
 #include <set>
 #include <vector>
 
+#include <klu.h>
 #include <sundials/sundials_context.h>
 #include <sunlinsol/sunlinsol_band.h>
 #include <sunmatrix/sunmatrix_band.h>
@@ -318,4 +321,172 @@ TEST_CASE("Newton solver: a band block of more than 5000 components solves witho
     CHECK(worst / size < 1e-12);
     CHECK(x == y);
   }
+}
+
+namespace {
+
+//! A general network-like system: randomSystem's, plus `dense` components coupled both ways to every third leading
+//! component (a blood pool's many exchanges) and rank-one terms u v^T over 2-6 leading components each (the
+//! junction rings' pair parts, NetworkSystem::junctionTerms), which the pattern leaves out.
+struct GeneralSystem {
+  RandomSystem s;
+  std::vector<RankOneTerm> terms;
+};
+
+GeneralSystem generalSystem(Index n, Index trailing, Index dense, unsigned seed) {
+  GeneralSystem g;
+  g.s = randomSystem(n, trailing, 2, seed);
+  std::mt19937 rng(seed + 1);
+  std::uniform_real_distribution<double> value(-1.0, 1.0);
+  const Index f = n - trailing;
+  // Entries (r, c) and (c, r) for each dense component r in [f - dense, f) and every third c below it.
+  std::vector<std::set<Index>> rows(n);
+  std::vector<std::vector<double>> values(n);
+  for (Index c = 0; c < n; ++c)
+    for (Index p = g.s.pattern.columnStart[c]; p < g.s.pattern.columnStart[c + 1]; ++p) rows[c].insert(g.s.pattern.rowIndex[p]);
+  for (Index r = f - dense; r < f; ++r)
+    for (Index c = 0; c < f - dense; c += 3) {
+      rows[c].insert(r);
+      rows[r].insert(c);
+    }
+  std::map<std::pair<Index, Index>, double> old;
+  for (Index c = 0; c < n; ++c)
+    for (Index p = g.s.pattern.columnStart[c]; p < g.s.pattern.columnStart[c + 1]; ++p)
+      old[{g.s.pattern.rowIndex[p], c}] = g.s.jacobian[p];
+  SparsePattern pattern;
+  pattern.size = n;
+  pattern.columnStart.push_back(0);
+  std::vector<double> jacobian;
+  for (Index c = 0; c < n; ++c) {
+    for (Index r : rows[c]) {
+      pattern.rowIndex.push_back(static_cast<std::uint32_t>(r));
+      const auto it = old.find({r, c});
+      // New couplings small beside the diagonals (which keep dominating their rows and columns).
+      jacobian.push_back(it != old.end() ? it->second * (r == c && r < f ? static_cast<double>(dense + 1) : 1.0)
+                                         : 0.3 * value(rng) / static_cast<double>(f));
+    }
+    pattern.columnStart.push_back(static_cast<std::uint32_t>(pattern.rowIndex.size()));
+  }
+  g.s.pattern = std::move(pattern);
+  g.s.jacobian = std::move(jacobian);
+  std::uniform_int_distribution<Index> leading(0, f - 1);
+  std::uniform_int_distribution<int> size(2, 6);
+  for (int t = 0; t < 12; ++t) {
+    std::set<Index> members;
+    const int m = size(rng);
+    while (static_cast<int>(members.size()) < m) members.insert(leading(rng));
+    RankOneTerm term;
+    for (Index i : members) {
+      term.u.emplace_back(i, 0.2 * value(rng));
+      term.v.emplace_back(i, 0.2 * value(rng));
+    }
+    g.terms.push_back(std::move(term));
+  }
+  return g;
+}
+
+}  // namespace
+
+TEST_CASE("Newton solver: KLU's factors by rows give klu_solve's solution bit for bit", "[newton_solver]") {
+  // NewtonSolver solves with KLU's L and U copied by rows (solver/newton_solver.cpp): the same products subtracted
+  // in the same order as KLU's own klu_solve (SuiteSparse KLU, Davis & Palamadai Natarajan 2010, klu_lsolve and
+  // klu_usolve), so the same numbers. Reference: KLU itself (klu_analyze, klu_factor then klu_refactor, klu_solve)
+  // on the same augmented matrix, and Eigen's dense LU of alpha I + beta (J + sum u v^T) for the whole solution.
+  const Index n = 320, trailing = 20;
+  const Index f = n - trailing;
+  GeneralSystem g = generalSystem(n, trailing, 3, 20261205u);
+  NewtonSolver solver(g.s.pattern, f, -1, g.terms);
+  AugmentedMatrix reference(g.s.pattern, f, g.terms);
+  klu_common common;
+  klu_defaults(&common);
+  common.ordering = 0;
+  common.scale = -1;
+  const int m = static_cast<int>(reference.size());
+  klu_symbolic* symbolic = klu_analyze(m, reference.start.data(), reference.row.data(), &common);
+  REQUIRE(symbolic != nullptr);
+  klu_numeric* numeric = nullptr;
+  std::mt19937 rng(11);
+  std::uniform_real_distribution<double> value(-1.0, 1.0);
+  for (double gamma : {0.1, 0.37, 2.5, 40.0}) {
+    INFO("gamma " << gamma);
+    solver.setMatrix(g.s.jacobian, 1.0, -gamma);
+    REQUIRE(solver.factor());
+    CHECK(solver.solvesByRows());
+    reference.setValues(g.s.jacobian, 1.0, -gamma);
+    if (!numeric) {
+      numeric = klu_factor(reference.start.data(), reference.row.data(), reference.value.data(), symbolic, &common);
+      REQUIRE(numeric != nullptr);
+    } else {
+      REQUIRE(klu_refactor(reference.start.data(), reference.row.data(), reference.value.data(), symbolic, numeric,
+                           &common));
+    }
+    CHECK(numeric->nblocks == 1);
+    for (int rhs = 0; rhs < 3; ++rhs) {
+      Eigen::VectorXd b(static_cast<Eigen::Index>(n));
+      for (Eigen::Index i = 0; i < b.size(); ++i) b(i) = value(rng);
+      std::vector<double> x(b.data(), b.data() + b.size());
+      REQUIRE(solver.solve(x));
+      std::vector<double> y(static_cast<std::size_t>(m), 0.0);
+      std::copy(b.data(), b.data() + f, y.begin());
+      REQUIRE(klu_solve(symbolic, numeric, m, 1, y.data(), &common));
+      Index equal = 0;
+      for (Index i = 0; i < f; ++i) equal += std::bit_cast<std::uint64_t>(x[i]) == std::bit_cast<std::uint64_t>(y[i]);
+      CHECK(equal == f);
+      Eigen::MatrixXd A = dense(g.s, 1.0, -gamma);
+      for (const RankOneTerm& t : g.terms)
+        for (auto [r, u] : t.u)
+          for (auto [c, v] : t.v) A(static_cast<Eigen::Index>(r), static_cast<Eigen::Index>(c)) += -gamma * u * v;
+      CHECK(relativeDifference(x, A.partialPivLu().solve(b)) < 1e-12);
+    }
+  }
+  klu_free_numeric(&numeric, &common);
+  klu_free_symbolic(&symbolic, &common);
+}
+
+TEST_CASE("Newton solver: a block triangular matrix, or row scaling, takes klu_solve and matches a dense LU",
+          "[newton_solver]") {
+  // One-way couplings (component c feeds c + 1 only) give KLU's block triangular form one block per component:
+  // the solve by rows is not taken (klu_solve's off-diagonal blocks), nor with KLU's row scaling (steady systems).
+  const Index n = 60;
+  RandomSystem s;
+  s.pattern.size = n;
+  s.pattern.columnStart.push_back(0);
+  std::mt19937 rng(5);
+  std::uniform_real_distribution<double> value(-1.0, 1.0);
+  for (Index c = 0; c < n; ++c) {
+    s.pattern.rowIndex.push_back(static_cast<std::uint32_t>(c));
+    s.jacobian.push_back(-(3.0 + value(rng)));
+    if (c + 1 < n) {
+      s.pattern.rowIndex.push_back(static_cast<std::uint32_t>(c + 1));
+      s.jacobian.push_back(value(rng));
+    }
+    s.pattern.columnStart.push_back(static_cast<std::uint32_t>(s.pattern.rowIndex.size()));
+  }
+  // Component 0 is a pivot of the triangular chain: not banded (the band test's storage bound aside, a chain is a
+  // band of width 1, so force KLU by a rank-one term over two far components).
+  std::vector<RankOneTerm> terms(1);
+  terms[0].u = {{5, 0.1}};
+  terms[0].v = {{50, 0.1}};
+  NewtonSolver chain(s.pattern, n, -1, terms);
+  std::vector<double> x;
+  Eigen::VectorXd b;
+  chain.setMatrix(s.jacobian, 1.0, -0.5);
+  REQUIRE(chain.factor());
+  CHECK_FALSE(chain.solvesByRows());
+  b = Eigen::VectorXd::LinSpaced(static_cast<Eigen::Index>(n), -1.0, 2.0);
+  x.assign(b.data(), b.data() + b.size());
+  REQUIRE(chain.solve(x));
+  Eigen::MatrixXd A = dense(s, 1.0, -0.5);
+  A(5, 50) += -0.5 * 0.1 * 0.1;
+  CHECK(relativeDifference(x, A.partialPivLu().solve(b)) < 1e-12);
+
+  RandomSystem steady = randomSystem(200, 0, 3, 17u);
+  NewtonSolver scaled(steady.pattern, 200, 2);
+  scaled.setMatrix(steady.jacobian, 0.0, 1.0);
+  REQUIRE(scaled.factor());
+  CHECK_FALSE(scaled.solvesByRows());
+  b = Eigen::VectorXd::LinSpaced(200, -3.0, 5.0);
+  x.assign(b.data(), b.data() + b.size());
+  REQUIRE(scaled.solve(x));
+  CHECK(relativeDifference(x, dense(steady, 0.0, 1.0).partialPivLu().solve(b)) < 1e-12);
 }
