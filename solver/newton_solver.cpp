@@ -69,27 +69,40 @@ struct NewtonSolver::Klu {
   klu_numeric* numeric = nullptr;
   //! KLU's factors L and U by rows, for solve() (systems of up to kRowSolveLimit components in one block, without
   //! row scaling; else klu_solve): row i of L holds its entries left of the diagonal in ascending column order,
-  //! row i of U its entries right of the diagonal in descending column order, each as the column and the position
-  //! of the value in KLU's LUbx[0] (in doubles); the values are copied from there after each factorisation.
+  //! row i of U its entries right of the diagonal in descending column order (columns lColumn, uColumn; values
+  //! lValue, uValue), copied after each pivoting factorisation and written by refactor().
   bool byRows = false;
   std::vector<int> lStart, lColumn, uStart, uColumn;
-  std::vector<std::uint32_t> lSource, uSource;
   std::vector<double> lValue, uValue;
   mutable std::vector<double> work;  //!< the permuted solution, KLU's X [n]
-  void rowsFromFactors(bool patternChanged);
+  //! For refactor(), worked out with each pivot order: per column k of the permuted matrix A(P, Q), A's entries
+  //! (positions in Ax, scatterEntry) and their permuted rows (scatterRow) from scatterStart[k]; the rows and values
+  //! of L's and U's columns in LUbx[0] (KLU's GET_POINTER once per column, not once per use); and for each entry
+  //! of L's (U's) columns in column order, from lColumnStart[k] (uColumnStart[k]), its position in lValue (uValue).
+  std::vector<int> scatterStart, scatterEntry, scatterRow;
+  std::vector<const int*> lRows, uRows;
+  std::vector<double*> lValues, uValues;
+  std::vector<int> lColumnStart, uColumnStart, lTarget, uTarget;
+  std::vector<double> columnWork;  //!< klu_refactor's X: zero between columns
+  //! After klu_factor: the tables above (byRows false if the factors do not qualify) and the values by rows.
+  void rowsFromFactors(const int* Ap, const int* Ai);
+  bool refactor(const double* Ax);
   ~Klu() {
     if (numeric) klu_free_numeric(&numeric, &common);
   }
 };
 
-void NewtonSolver::Klu::rowsFromFactors(bool patternChanged) {
+void NewtonSolver::Klu::rowsFromFactors(const int* Ap, const int* Ai) {
   const klu_numeric& N = *numeric;
-  if (patternChanged) {
+  {  // the tables
     auto clear = [&] {
       byRows = false;
       lStart = lColumn = uStart = uColumn = {};
-      lSource = uSource = {};
       lValue = uValue = work = {};
+      scatterStart = scatterEntry = scatterRow = lColumnStart = uColumnStart = lTarget = uTarget = {};
+      lRows = uRows = {};
+      lValues = uValues = {};
+      columnWork = {};
     };
     byRows = N.n <= static_cast<int>(kRowSolveLimit) && N.nblocks == 1 && N.nzoff == 0 && N.Rs == nullptr;
     if (!byRows) return clear();
@@ -97,9 +110,12 @@ void NewtonSolver::Klu::rowsFromFactors(bool patternChanged) {
     // the next multiple of sizeof(double) (KLU's GET_POINTER, klu_internal.h); indices in the permuted order.
     const auto* lu = static_cast<const double*>(N.LUbx[0]);
     const int n = N.n;
-    auto indexUnits = [](int len) { return (static_cast<std::size_t>(len) * sizeof(int) + sizeof(double) - 1) / sizeof(double); };
+    auto indexUnits = [](int len) {
+      return (static_cast<std::size_t>(len) * sizeof(int) + sizeof(double) - 1) / sizeof(double);
+    };
     auto transpose = [&](const int* ip, const int* len, bool lower, std::vector<int>& start, std::vector<int>& column,
-                         std::vector<std::uint32_t>& source) {
+                         std::vector<const int*>& columnRows, std::vector<double*>& columnValues,
+                         std::vector<int>& columnStart, std::vector<int>& target) {
       start.assign(n + 1, 0);
       for (int k = 0; k < n; ++k) {
         const int* rows = reinterpret_cast<const int*>(lu + ip[k]);
@@ -113,31 +129,101 @@ void NewtonSolver::Klu::rowsFromFactors(bool patternChanged) {
       }
       for (int i = 0; i < n; ++i) start[i + 1] += start[i];
       column.resize(start[n]);
-      source.resize(start[n]);
+      target.resize(start[n]);
+      columnRows.resize(n);
+      columnValues.resize(n);
+      columnStart.assign(n + 1, 0);
+      for (int k = 0; k < n; ++k) columnStart[k + 1] = columnStart[k] + len[k];
       std::vector<int> next(start.begin(), start.end() - 1);
       // L: columns ascending, so each row's entries come in ascending column order; U: columns descending.
       for (int j = 0; j < n; ++j) {
         const int k = lower ? j : n - 1 - j;
         const int* rows = reinterpret_cast<const int*>(lu + ip[k]);
         const std::size_t values = static_cast<std::size_t>(ip[k]) + indexUnits(len[k]);
+        columnRows[k] = rows;
+        columnValues[k] = static_cast<double*>(N.LUbx[0]) + values;
         for (int p = 0; p < len[k]; ++p) {
           const int q = next[rows[p]]++;
           column[q] = k;
-          source[q] = static_cast<std::uint32_t>(values + p);
+          target[columnStart[k] + p] = q;
         }
       }
     };
-    transpose(N.Lip, N.Llen, true, lStart, lColumn, lSource);
-    if (byRows) transpose(N.Uip, N.Ulen, false, uStart, uColumn, uSource);
+    transpose(N.Lip, N.Llen, true, lStart, lColumn, lRows, lValues, lColumnStart, lTarget);
+    if (byRows) transpose(N.Uip, N.Ulen, false, uStart, uColumn, uRows, uValues, uColumnStart, uTarget);
     if (!byRows) return clear();
-    lValue.resize(lSource.size());
-    uValue.resize(uSource.size());
+    // A's column Q[k] scattered into the permuted rows Pinv[i] (klu_refactor's loop; one block: no offset).
+    const int* const Q = symbolic->Q;
+    scatterStart.assign(n + 1, 0);
+    scatterEntry.clear();
+    scatterRow.clear();
+    for (int k = 0; k < n; ++k) {
+      for (int p = Ap[Q[k]]; p < Ap[Q[k] + 1]; ++p) {
+        scatterEntry.push_back(p);
+        scatterRow.push_back(N.Pinv[Ai[p]]);
+      }
+      scatterStart[k + 1] = static_cast<int>(scatterEntry.size());
+    }
+    columnWork.assign(n, 0.0);
+    lValue.resize(lColumn.size());
+    uValue.resize(uColumn.size());
     work.resize(n);
   }
-  if (!byRows) return;
-  const auto* lu = static_cast<const double*>(N.LUbx[0]);
-  for (std::size_t q = 0; q < lSource.size(); ++q) lValue[q] = lu[lSource[q]];
-  for (std::size_t q = 0; q < uSource.size(); ++q) uValue[q] = lu[uSource[q]];
+  for (int k = 0; k < N.n; ++k) {
+    for (int p = 0; p < N.Llen[k]; ++p) lValue[lTarget[lColumnStart[k] + p]] = lValues[k][p];
+    for (int p = 0; p < N.Ulen[k]; ++p) uValue[uTarget[uColumnStart[k] + p]] = uValues[k][p];
+  }
+}
+
+bool NewtonSolver::Klu::refactor(const double* Ax) {
+  // klu_refactor's operations in its order for one block without scaling (SuiteSparse KLU, klu_refactor.c): per
+  // column k, X = A(P, Q[k]); for each entry j of U(:, k) in KLU's order, U(j, k) = X[j] and X -= L(:, j) U(j, k);
+  // U(k, k) = X[k]; L(:, k) = X / U(k, k); X back to zero. The values go to KLU's LUbx[0] and Udiag (klu_rcond,
+  // klu_condest and later refactorisations read them) and to the rows of solve().
+  const klu_numeric& N = *numeric;
+  const int n = N.n;
+  double* const X = columnWork.data();
+  auto* const diagonal = static_cast<double*>(N.Udiag);
+  const int* const Llen = N.Llen;
+  const int* const Ulen = N.Ulen;
+  for (int k = 0; k < n; ++k) {
+    for (int e = scatterStart[k]; e < scatterStart[k + 1]; ++e) X[scatterRow[e]] = Ax[scatterEntry[e]];
+    const int* const Ui = uRows[k];
+    double* const Ux = uValues[k];
+    const int* const uTo = uTarget.data() + uColumnStart[k];
+    for (int up = 0; up < Ulen[k]; ++up) {
+      const int j = Ui[up];
+      const double ujk = X[j];
+      X[j] = 0.0;
+      Ux[up] = ujk;
+      uValue[uTo[up]] = ujk;
+      const int* const Li = lRows[j];
+      const double* const Lx = lValues[j];
+      const int len = Llen[j];
+      for (int p = 0; p < len; ++p) X[Li[p]] -= Lx[p] * ujk;
+    }
+    const double ukk = X[k];
+    X[k] = 0.0;
+    if (ukk == 0.0) {
+      // Numerically singular: klu_refactor stops here (halt_if_singular) and returns FALSE; X back to zero.
+      std::fill(columnWork.begin(), columnWork.end(), 0.0);
+      common.status = KLU_SINGULAR;
+      return false;
+    }
+    diagonal[k] = ukk;
+    const int* const Li = lRows[k];
+    double* const Lx = lValues[k];
+    const int* const lTo = lTarget.data() + lColumnStart[k];
+    for (int p = 0; p < Llen[k]; ++p) {
+      const int i = Li[p];
+      const double v = X[i] / ukk;
+      Lx[p] = v;
+      lValue[lTo[p]] = v;
+      X[i] = 0.0;
+    }
+  }
+  common.status = KLU_OK;
+  return true;
 }
 
 namespace {
@@ -656,12 +742,12 @@ bool NewtonSolver::factor() {
     k.numeric = klu_factor(Ap, Ai, Ax, k.symbolic.get(), &k.common);
     if (!k.numeric) return false;
     ++factorizations_;
-    k.rowsFromFactors(true);
+    k.rowsFromFactors(Ap, Ai);
     if (klu_flops(k.symbolic.get(), k.numeric, &k.common)) factorFlops_ = k.common.flops;
     fresh_ = false;
     return true;
   }
-  if (!klu_refactor(Ap, Ai, Ax, k.symbolic.get(), k.numeric, &k.common)) return false;
+  if (k.byRows ? !k.refactor(Ax) : !klu_refactor(Ap, Ai, Ax, k.symbolic.get(), k.numeric, &k.common)) return false;
   ++refactorizations_;
   // SUNDIALS' KLU module (SUNLinSolSetup_KLU): a cheap reciprocal condition estimate below eps^(2/3), confirmed
   // by klu_condest, makes it factorise afresh with new pivots.
@@ -675,11 +761,9 @@ bool NewtonSolver::factor() {
       k.numeric = klu_factor(Ap, Ai, Ax, k.symbolic.get(), &k.common);
       if (!k.numeric) return false;
       ++factorizations_;
-      k.rowsFromFactors(true);
-      return true;
+      k.rowsFromFactors(Ap, Ai);
     }
   }
-  k.rowsFromFactors(false);
   return true;
 }
 

@@ -387,11 +387,14 @@ GeneralSystem generalSystem(Index n, Index trailing, Index dense, unsigned seed)
 
 }  // namespace
 
-TEST_CASE("Newton solver: KLU's factors by rows give klu_solve's solution bit for bit", "[newton_solver]") {
-  // NewtonSolver solves with KLU's L and U copied by rows (solver/newton_solver.cpp): the same products subtracted
-  // in the same order as KLU's own klu_solve (SuiteSparse KLU, Davis & Palamadai Natarajan 2010, klu_lsolve and
-  // klu_usolve), so the same numbers. Reference: KLU itself (klu_analyze, klu_factor then klu_refactor, klu_solve)
-  // on the same augmented matrix, and Eigen's dense LU of alpha I + beta (J + sum u v^T) for the whole solution.
+TEST_CASE("Newton solver: KLU's factors by rows give klu_refactor's and klu_solve's solution bit for bit",
+          "[newton_solver]") {
+  // NewtonSolver refactorises with klu_refactor's operations in its order on KLU's own factors and solves with L
+  // and U by rows (solver/newton_solver.cpp): the same products subtracted in the same order as KLU's own
+  // klu_refactor and klu_solve (SuiteSparse KLU 1.3, Davis & Palamadai Natarajan 2010; klu_lsolve and klu_usolve),
+  // so the same numbers. Reference: KLU itself (klu_analyze, klu_factor, then klu_refactor for each later gamma,
+  // klu_solve) on the same augmented matrix, and Eigen's dense LU of alpha I + beta (J + sum u v^T) for the whole
+  // solution.
   const Index n = 320, trailing = 20;
   const Index f = n - trailing;
   GeneralSystem g = generalSystem(n, trailing, 3, 20261205u);
