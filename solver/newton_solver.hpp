@@ -19,6 +19,13 @@
 //! fill): about 25 bytes per node for the radial grid above 5000 nodes (three values per column while no row swap
 //! has needed the fourth, one byte per pivot, no B^-1 E kept) against about 200 for KLU (its values, pattern, L
 //! and U, and Numeric's and Symbolic's arrays of length n).
+//!
+//! On the KLU path, a system of up to 5000 components whose factors form one block (no block triangular form's
+//! off-diagonal blocks) and have no row scaling is refactorised with klu_refactor's operations in its order on
+//! KLU's own factors (the column pointers and A's scatter worked out once per pivot order) and solved with L and U
+//! copied by rows, each row subtracting klu_solve's products in klu_solve's order in a register: the same numbers
+//! as klu_refactor and klu_solve, bit for bit, in about 0.9 and 0.65 of their instructions. klu_analyze,
+//! klu_factor (the pivot search), klu_rcond and klu_condest stay KLU's.
 #include <cstdint>
 #include <memory>
 #include <span>
