@@ -104,7 +104,9 @@ void NewtonSolver::Klu::rowsFromFactors(const int* Ap, const int* Ai) {
       lValues = uValues = {};
       columnWork = {};
     };
-    byRows = N.n <= static_cast<int>(kRowSolveLimit) && N.nblocks == 1 && N.nzoff == 0 && N.Rs == nullptr;
+    // One block of more than one component (KLU keeps a 1 x 1 block as a singleton: no L, U or LUbx).
+    byRows = N.n > 1 && N.n <= static_cast<int>(kRowSolveLimit) && N.nblocks == 1 && N.nzoff == 0 &&
+             N.Rs == nullptr && N.LUbx != nullptr && N.LUbx[0] != nullptr;
     if (!byRows) return clear();
     // Column k of L (U) in LUbx[0]: Llen[k] (Ulen[k]) row indices from Lip[k] (Uip[k]), then their values from
     // the next multiple of sizeof(double) (KLU's GET_POINTER, klu_internal.h); indices in the permuted order.

@@ -446,10 +446,11 @@ TEST_CASE("Newton solver: KLU's factors by rows give klu_refactor's and klu_solv
   klu_free_symbolic(&symbolic, &common);
 }
 
-TEST_CASE("Newton solver: a block triangular matrix, or row scaling, takes klu_solve and matches a dense LU",
+TEST_CASE("Newton solver: a block triangular matrix, a singleton or row scaling takes klu_solve and matches a dense LU",
           "[newton_solver]") {
   // One-way couplings (component c feeds c + 1 only) give KLU's block triangular form one block per component:
-  // the solve by rows is not taken (klu_solve's off-diagonal blocks), nor with KLU's row scaling (steady systems).
+  // the solve by rows is not taken (klu_solve's off-diagonal blocks), nor for a one-component block (KLU's
+  // singleton) or with KLU's row scaling (steady systems).
   const Index n = 60;
   RandomSystem s;
   s.pattern.size = n;
@@ -482,6 +483,17 @@ TEST_CASE("Newton solver: a block triangular matrix, or row scaling, takes klu_s
   Eigen::MatrixXd A = dense(s, 1.0, -0.5);
   A(5, 50) += -0.5 * 0.1 * 0.1;
   CHECK(relativeDifference(x, A.partialPivLu().solve(b)) < 1e-12);
+
+  // A one-component leading block: KLU's singleton (no L, U or LUbx), klu_solve's division.
+  RandomSystem single = randomSystem(4, 3, 0, 23u);
+  NewtonSolver one(single.pattern, 1, -1);
+  one.setMatrix(single.jacobian, 1.0, -0.7);
+  REQUIRE(one.factor());
+  CHECK_FALSE(one.solvesByRows());
+  b = Eigen::VectorXd::LinSpaced(4, 1.0, 2.0);
+  x.assign(b.data(), b.data() + b.size());
+  REQUIRE(one.solve(x));
+  CHECK(relativeDifference(x, dense(single, 1.0, -0.7).partialPivLu().solve(b)) < 1e-12);
 
   RandomSystem steady = randomSystem(200, 0, 3, 17u);
   NewtonSolver scaled(steady.pattern, 200, 2);
