@@ -174,6 +174,68 @@ void endFaceTerms(SegmentGridEstimate& e, const std::vector<Layer>& ls, int ends
   e.coatEndRadialShare = coatEnd / total;
 }
 
+//! The elimination of crossingShares over one shape's cells (area: face area per unit length at a radius; volume:
+//! shellVolume per unit length between two radii), into g (conductance to the next cell) and diag (the eliminated
+//! diagonal). The same operations in the same order as building each cell's row and eliminating it (Thomas
+//! algorithm) one cell at a time, with the tests of where a cell lies taken out of the loop: the first cell of the
+//! body (no cell before it), a layer's last cell (its conductance to the next layer's half cell) and the body's
+//! last cell (to the surroundings, gs) are done outside the loop over a layer's inner cells.
+template <class Area, class Volume>
+void eliminateCells(const std::vector<Layer>& ls, bool wet, double rhoCBlood, double finM2, int perLayer, double gs,
+                    Area area, Volume volume, double* g, double* diag) {
+  auto conductivity = [&](const Layer& L) { return L.coat && wet ? L.kWet : L.k; };
+  auto halfResistance = [&](const Layer& L) {  // 0.5 dr / k of the layer's cells
+    return 0.5 * ((L.outer - L.inner) / perLayer) / conductivity(L);
+  };
+  const std::size_t layers = ls.size();
+  double gPrevious = 0.0, diagPrevious = 0.0;  // g and diag of the cell before (none before the first)
+  bool first = true;
+  for (std::size_t i = 0; i < layers; ++i) {
+    const Layer& L = ls[i];
+    const bool lastLayer = i + 1 == layers;
+    const double d = (L.outer - L.inner) / perLayer;
+    const double kk = conductivity(L);
+    const double b = L.coat ? 0.0 : L.perfusion * rhoCBlood + kk * finM2;
+    const double here = 0.5 * d / kk, next = !lastLayer ? halfResistance(ls[i + 1]) : here;
+    const double inside = here + here, across = here + next;  // the two half cells between centres
+    // Cell j of this layer: its conductance to the next cell (the sum of the two half resistances over the face
+    // area, `halves`; none for the body's last cell), its diagonal with the cell before and after it, eliminated
+    // against the cell before.
+    auto cell = [&](int j, double halves, bool bodyEnd) {
+      const double r0 = L.inner + j * d, r1 = r0 + d;
+      const double rf = 0.5 * (r0 + r1) + 0.5 * d;
+      const double gHere = bodyEnd ? 0.0 : 1.0 / (halves / area(rf));
+      double diagHere = b * volume(r0, r1) + (first ? 0.0 : gPrevious) + (bodyEnd ? gs : gHere);
+      if (!first) {
+        const double f = -gPrevious / diagPrevious;
+        diagHere -= f * -gPrevious;
+      }
+      *g++ = gHere;
+      *diag++ = diagHere;
+      gPrevious = gHere;
+      diagPrevious = diagHere;
+      first = false;
+    };
+    int j = 0;
+    if (first && perLayer > 1) cell(j++, inside, false);
+    // The layer's inner cells: no cell is the first or the last of the body, each joins the next across two of
+    // this layer's half cells.
+    for (; j + 1 < perLayer; ++j) {
+      const double r0 = L.inner + j * d, r1 = r0 + d;
+      const double rf = 0.5 * (r0 + r1) + 0.5 * d;
+      const double gHere = 1.0 / (inside / area(rf));
+      double diagHere = b * volume(r0, r1) + gPrevious + gHere;
+      const double f = -gPrevious / diagPrevious;
+      diagHere -= f * -gPrevious;
+      *g++ = gHere;
+      *diag++ = diagHere;
+      gPrevious = gHere;
+      diagPrevious = diagHere;
+    }
+    cell(j, across, lastLayer);  // the layer's last cell
+  }
+}
+
 //! Share of a segment's surface heat that crosses the outer face of each layer (coat last), from a fine 1-D radial
 //! model of its cross-section: tissue tied to the arterial temperature (0) by its perfusion w rho_b c_b and, where a
 //! junction or exposed end draws heat along the segment, by the fin term k m^2 (the heat axial conduction brings
@@ -195,36 +257,40 @@ std::vector<double> crossingShares(Shape shape, double width, const std::vector<
       default: return 2.0 * pi * r;
     }
   };
-  // One pass per cell builds the tridiagonal system and eliminates it (Thomas algorithm) as it goes; the arithmetic
-  // is the same as building the arrays of centres, widths, conductivities and volumes first (this runs for every
-  // segment of every case load, sweep runs included): conductance g[j] between cells j and j + 1 and from the last
-  // cell through the surface to the surroundings (gs), rows
-  // -g[j-1] t[j-1] + (g[j-1] + g[j] + beta V) t[j] - g[j] t[j+1] = rhs, the surroundings at -1.
+  // One pass per cell builds the tridiagonal system and eliminates it (Thomas algorithm) as it goes (this runs for
+  // every segment of every case load, sweep runs included): conductance g[j] between cells j and j + 1 and from the
+  // last cell through the surface to the surroundings (gs), rows
+  // -g[j-1] t[j-1] + (g[j-1] + g[j] + beta V) t[j] - g[j] t[j+1] = rhs, the surroundings at -1. The arrays are kept
+  // per thread and not zeroed: every element read is written first (zeroing them was a quarter of the estimate's
+  // instructions).
   const std::size_t n = ls.size() * perLayer;
   auto conductivity = [&](const Layer& L) { return L.coat && wet ? L.kWet : L.k; };
-  auto halfResistance = [&](const Layer& L) {  // 0.5 dr / k of the layer's cells
-    return 0.5 * ((L.outer - L.inner) / perLayer) / conductivity(L);
-  };
   const double rs = ls.back().outer;
   const double gs = 1.0 / (0.5 * ((ls.back().outer - ls.back().inner) / perLayer) / (conductivity(ls.back()) * area(rs)) +
                            1.0 / (h * area(rs)));
-  std::vector<double> g(n, 0.0), diag(n), t(n);
-  for (std::size_t i = 0, at = 0; i < ls.size(); ++i) {
-    const Layer& L = ls[i];
-    const double d = (L.outer - L.inner) / perLayer;
-    const double kk = conductivity(L);
-    const double b = L.coat ? 0.0 : L.perfusion * rhoCBlood + kk * finM2;
-    const double here = 0.5 * d / kk, next = i + 1 < ls.size() ? halfResistance(ls[i + 1]) : here;
-    for (int j = 0; j < perLayer; ++j, ++at) {
-      const double r0 = L.inner + j * d, r1 = r0 + d;
-      const double rf = 0.5 * (r0 + r1) + 0.5 * d;
-      if (at + 1 < n) g[at] = 1.0 / ((here + (j + 1 < perLayer ? here : next)) / area(rf));
-      diag[at] = b * shellVolume(shape, width, 1.0, r0, r1) + (at > 0 ? g[at - 1] : 0.0) + (at + 1 < n ? g[at] : gs);
-      if (at > 0) {
-        const double f = -g[at - 1] / diag[at - 1];
-        diag[at] -= f * -g[at - 1];
-      }
-    }
+  thread_local std::vector<double> gStore, diagStore, tStore;
+  if (gStore.size() < n) {
+    gStore.resize(n);
+    diagStore.resize(n);
+    tStore.resize(n);
+  }
+  double* g = gStore.data();
+  double* diag = diagStore.data();
+  double* t = tStore.data();
+  // The shape's area and shell volume per unit length (shellVolume with length 1), chosen once per call.
+  switch (shape) {
+    case Shape::Sphere:
+      eliminateCells(ls, wet, rhoCBlood, finM2, perLayer, gs, [](double r) { return 4.0 * pi * r * r; },
+                     [](double a, double b) { return shellVolume(Shape::Sphere, 0.0, 1.0, a, b); }, g, diag);
+      break;
+    case Shape::Plate:
+      eliminateCells(ls, wet, rhoCBlood, finM2, perLayer, gs, [&](double) { return 2.0 * width; },
+                     [&](double a, double b) { return shellVolume(Shape::Plate, width, 1.0, a, b); }, g, diag);
+      break;
+    default:
+      eliminateCells(ls, wet, rhoCBlood, finM2, perLayer, gs, [](double r) { return 2.0 * pi * r; },
+                     [](double a, double b) { return shellVolume(Shape::Cylinder, 0.0, 1.0, a, b); }, g, diag);
+      break;
   }
   // The right-hand side is zero but for the last row (-gs), and elimination leaves it so (f 0 subtracted from 0).
   t[n - 1] = -gs / diag[n - 1];
