@@ -53,6 +53,35 @@ inline std::string parentPattern(std::string_view pattern) {
   return pos == std::string_view::npos ? std::string() : std::string(pattern.substr(0, pos));
 }
 
+//! A value's key path for messages ("segments.trunk.length"), joined only when a message needs it: a sweep run
+//! reads every value of its case, and a joined string per value read was about 1 % of a quadruped run's
+//! instructions (DEVELOPERS.md "Per-run CPU in sweeps, seventeenth round").
+struct KeyPath {
+  std::string_view parent, key;
+  std::string str() const { return joinPath(parent, key); }
+};
+
+//! How a schema entry's default is read: as a quantity (parseQuantity), a plain number (std::stod) or an integer
+//! (std::stoi).
+enum class DefaultAs { quantity, number, integer };
+//! The value of a schema entry's default, read once per entry, reading and thread (the same text through the same
+//! function gives the same value; a default read for every absent key of every sweep run cost a parse each).
+inline double schemaDefault(const Param& p, DefaultAs as) {
+  struct Entry {
+    bool known = false;
+    double value = 0.0;
+  };
+  thread_local std::vector<Entry> cache(3 * caseSchema().size());
+  Entry& e = cache[3 * static_cast<std::size_t>(&p - caseSchema().data()) + static_cast<std::size_t>(as)];
+  if (!e.known) {
+    if (as == DefaultAs::integer) e.value = std::stoi(std::string(p.defaultValue));
+    else if (as == DefaultAs::number) e.value = std::stod(std::string(p.defaultValue));
+    else e.value = parseQuantity(p.defaultValue, p.unit);
+    e.known = true;
+  }
+  return e.value;
+}
+
 //! Reads typed values from the TOML tree against the schema; every failure is a CaseError with location.
 class CaseReader {
  public:
@@ -85,14 +114,8 @@ class CaseReader {
 
   //! Check every key below `table` against the schema (recursively).
   void checkKeys(const toml::table& table, const std::string& pattern, const std::string& display) const {
-    for (auto&& [key, node] : table) {
-      std::string k(key.str());
-      std::string childPattern = joinPath(pattern, k);
-      std::string childDisplay = joinPath(display, k);
-      const Param* p = findParam(childPattern);
-      if (!p) unknownKey(&node, pattern, childDisplay, k);
-      checkNode(node, *p, childPattern, childDisplay);
-    }
+    std::string buffer = pattern;
+    checkKeysIn(table, buffer, display);
   }
 
   std::string formatValue(const toml::node& node) const {
@@ -108,7 +131,7 @@ class CaseReader {
   }
 
   //! SI value of a quantity node (number in SI, or a string with a unit), range-checked.
-  double quantity(const toml::node& node, const Param& p, const std::string& path, double density = 0.0) const {
+  double quantity(const toml::node& node, const Param& p, const KeyPath& path, double density = 0.0) const {
     double value = 0.0;
     if (auto number = node.value<double>(); number && !node.is_string()) {
       value = *number;
@@ -122,12 +145,13 @@ class CaseReader {
                                       trimmed(*text), p.unit));
         value = toSI(*text, p, density);
       } catch (const UnitError& e) {
-        fail(&node, path, fmt::format("{} = {}: {}; expected {} in {} or a convertible unit, e.g. {}", lastComponent(path), formatValue(node),
-                                      e.what(), aQuantity(p.unit), p.unit, example(p)));
+        fail(&node, path.str(), fmt::format("{} = {}: {}; expected {} in {} or a convertible unit, e.g. {}",
+                                            lastComponent(path.str()), formatValue(node), e.what(),
+                                            aQuantity(p.unit), p.unit, example(p)));
       }
     } else {
-      fail(&node, path, fmt::format("{} is not a number or a quantity string (expected {} in {}, e.g. {})", formatValue(node),
-                                    aQuantity(p.unit), p.unit, example(p)));
+      fail(&node, path.str(), fmt::format("{} is not a number or a quantity string (expected {} in {}, e.g. {})",
+                                          formatValue(node), aQuantity(p.unit), p.unit, example(p)));
     }
     checkRange(node, p, path, value);
     return snapToRange(p, value);
@@ -162,7 +186,7 @@ class CaseReader {
 
   //! The value as written (formatValue) is formatted only for the message: an ostringstream per value was about
   //! 1 % of a sweep run's instructions.
-  void checkRange(const toml::node& node, const Param& p, const std::string& path, double value) const {
+  void checkRange(const toml::node& node, const Param& p, const KeyPath& path, double value) const {
     bool belowMin = p.minExclusive ? !(value > p.min) : !(value >= p.min || nearBound(value, p.min));
     bool aboveMax = value > p.max && !nearBound(value, p.max);
     // Subnormal numbers (below 2.2e-308) lose their precision in any product: no physical input is that small.
@@ -172,41 +196,46 @@ class CaseReader {
       std::string hint;
       if (p.unit == "K" && value < p.min && value > -100 && value < 100)
         hint = fmt::format(" (a bare number is in kelvin; did you mean \"{} degC\"?)", value);
-      fail(&node, path,
-           fmt::format("{} = {}: out of range, allowed {} {:g}{} to {:g}{}{}", lastComponent(path), formatValue(node),
+      fail(&node, path.str(),
+           fmt::format("{} = {}: out of range, allowed {} {:g}{} to {:g}{}{}", lastComponent(path.str()), formatValue(node),
                        p.minExclusive ? ">" : ">=", p.min, unit, p.max, unit, hint));
     }
   }
 
-  double number(const toml::node& node, const Param& p, const std::string& path) const {
+  double number(const toml::node& node, const Param& p, const KeyPath& path) const {
     auto v = node.value<double>();
-    if (!v || node.is_string()) fail(&node, path, fmt::format("{} must be a plain number", formatValue(node)));
+    if (!v || node.is_string()) fail(&node, path.str(), fmt::format("{} must be a plain number", formatValue(node)));
     checkRange(node, p, path, *v);
     return snapToRange(p, *v);
   }
 
-  long integer(const toml::node& node, const Param& p, const std::string& path) const {
+  long integer(const toml::node& node, const Param& p, const KeyPath& path) const {
     auto v = node.value<int64_t>();
-    if (!v || !node.is_integer()) fail(&node, path, fmt::format("{} must be an integer", formatValue(node)));
+    if (!v || !node.is_integer()) fail(&node, path.str(), fmt::format("{} must be an integer", formatValue(node)));
     checkRange(node, p, path, static_cast<double>(*v));
     return static_cast<long>(*v);
   }
 
-  std::string text(const toml::node& node, const std::string& path) const {
+  std::string text(const toml::node& node, const KeyPath& path) const {
     auto v = node.value<std::string>();
-    if (!v || !node.is_string()) fail(&node, path, fmt::format("{} must be a string", formatValue(node)));
+    if (!v || !node.is_string()) fail(&node, path.str(), fmt::format("{} must be a string", formatValue(node)));
     return *v;
   }
 
-  std::string choice(const toml::node& node, const Param& p, const std::string& path) const {
+  //! One of p.choices ("a|b|c"); the list is split only for the message (a stringstream per choice read before).
+  std::string choice(const toml::node& node, const Param& p, const KeyPath& path) const {
     std::string v = text(node, path);
+    for (std::string_view rest = p.choices;;) {
+      const std::size_t bar = rest.find('|');
+      if (rest.substr(0, bar) == v) return v;
+      if (bar == std::string_view::npos) break;
+      rest.remove_prefix(bar + 1);
+    }
     std::string choices(p.choices);
     std::vector<std::string> options;
     std::stringstream ss(choices);
     for (std::string item; std::getline(ss, item, '|');) options.push_back(item);
-    if (std::find(options.begin(), options.end(), v) == options.end())
-      fail(&node, path, fmt::format("\"{}\" is not one of: {}", v, fmt::join(options, ", ")));
-    return v;
+    fail(&node, path.str(), fmt::format("\"{}\" is not one of: {}", v, fmt::join(options, ", ")));
   }
 
   const std::string& file() const { return file_; }
@@ -217,18 +246,39 @@ class CaseReader {
     return fmt::format("\"1 {}\"", p.unit);
   }
 
-  void checkNode(const toml::node& node, const Param& p, const std::string& pattern, const std::string& display) const {
+  //! checkKeys with the pattern in one string that grows and shrinks with the depth (`pattern` is as it was on
+  //! return), and each key's display path joined only where a table below it or a message needs it: a string per
+  //! key and two per value checked were about 1 % of a sweep run's instructions.
+  void checkKeysIn(const toml::table& table, std::string& pattern, const std::string& display) const {
+    const std::size_t length = pattern.size();
+    for (auto&& [key, node] : table) {
+      const std::string_view k = key.str();
+      if (length > 0) pattern.push_back('.');
+      pattern.append(k);
+      const Param* p = findParam(pattern);
+      if (!p) unknownKey(&node, pattern.substr(0, length), joinPath(display, k), std::string(k));
+      const bool leaf = p->kind != ParamKind::Table && p->kind != ParamKind::NamedTables &&
+                        p->kind != ParamKind::TableArray;
+      if (!leaf || node.is_table() || node.is_array()) checkNode(node, *p, pattern, joinPath(display, k));
+      pattern.resize(length);
+    }
+  }
+
+  void checkNode(const toml::node& node, const Param& p, std::string& pattern, const std::string& display) const {
     switch (p.kind) {
       case ParamKind::Table:
         if (!node.is_table()) fail(&node, display, fmt::format("expected a table, got {}", formatValue(node)));
-        checkKeys(*node.as_table(), pattern, display);
+        checkKeysIn(*node.as_table(), pattern, display);
         break;
       case ParamKind::NamedTables:
         if (!node.is_table()) fail(&node, display, "expected a table of named tables, e.g. [tissues.muscle]");
         for (auto&& [name, child] : *node.as_table()) {
           std::string d = display + "." + std::string(name.str());
           if (!child.is_table()) fail(&child, d, "expected a table");
-          checkKeys(*child.as_table(), pattern + ".*", d);
+          const std::size_t length = pattern.size();
+          pattern.append(".*");
+          checkKeysIn(*child.as_table(), pattern, d);
+          pattern.resize(length);
         }
         break;
       case ParamKind::TableArray: {
@@ -238,7 +288,10 @@ class CaseReader {
           const toml::node& element = (*array)[i];
           std::string d = display + "." + elementLabel(element, i);
           if (!element.is_table()) fail(&element, d, "expected a table");
-          checkKeys(*element.as_table(), pattern + "[]", d);
+          const std::size_t length = pattern.size();
+          pattern.append("[]");
+          checkKeysIn(*element.as_table(), pattern, d);
+          pattern.resize(length);
         }
         break;
       }
@@ -285,8 +338,13 @@ class TableView {
 
   const toml::node* node(std::string_view key) const { return table_ ? table_->get(key) : nullptr; }
   bool has(std::string_view key) const { return node(key) != nullptr; }
+  //! The schema entry of a key of this table (its pattern joined in a buffer kept per thread: no allocation).
   const Param& param(std::string_view key) const {
-    const Param* p = findParam(join(pattern_, key));
+    thread_local std::string pattern;
+    pattern.clear();
+    if (!pattern_.empty()) pattern.append(pattern_).push_back('.');
+    pattern.append(key);
+    const Param* p = findParam(pattern);
     if (!p) throw std::logic_error("schema has no " + join(pattern_, key));
     return *p;
   }
@@ -294,9 +352,9 @@ class TableView {
 
   std::optional<double> optionalQuantity(std::string_view key, double density = 0.0) const {
     const Param& p = param(key);
-    if (const toml::node* n = node(key)) return reader_.quantity(*n, p, path(key), density);
+    if (const toml::node* n = node(key)) return reader_.quantity(*n, p, keyPath(key), density);
     if (p.defaultValue.empty()) return std::nullopt;
-    return parseQuantity(p.defaultValue, p.unit);
+    return schemaDefault(p, DefaultAs::quantity);
   }
   double quantity(std::string_view key, double density = 0.0) const {
     if (auto v = optionalQuantity(key, density)) return *v;
@@ -304,29 +362,29 @@ class TableView {
   }
   double number(std::string_view key) const {
     const Param& p = param(key);
-    if (const toml::node* n = node(key)) return reader_.number(*n, p, path(key));
-    return std::stod(std::string(p.defaultValue));
+    if (const toml::node* n = node(key)) return reader_.number(*n, p, keyPath(key));
+    return schemaDefault(p, DefaultAs::number);
   }
   int integer(std::string_view key) const {
     const Param& p = param(key);
-    if (const toml::node* n = node(key)) return static_cast<int>(reader_.integer(*n, p, path(key)));
+    if (const toml::node* n = node(key)) return static_cast<int>(reader_.integer(*n, p, keyPath(key)));
     if (p.defaultValue.empty()) missing(key);
-    return std::stoi(std::string(p.defaultValue));
+    return static_cast<int>(schemaDefault(p, DefaultAs::integer));
   }
   std::string text(std::string_view key) const {
     const Param& p = param(key);
-    if (const toml::node* n = node(key)) return reader_.text(*n, path(key));
+    if (const toml::node* n = node(key)) return reader_.text(*n, keyPath(key));
     if (p.defaultValue.empty()) missing(key);
     return std::string(p.defaultValue);
   }
   std::optional<std::string> optionalText(std::string_view key) const {
     param(key);
-    if (const toml::node* n = node(key)) return reader_.text(*n, path(key));
+    if (const toml::node* n = node(key)) return reader_.text(*n, keyPath(key));
     return std::nullopt;
   }
   std::string choice(std::string_view key) const {
     const Param& p = param(key);
-    if (const toml::node* n = node(key)) return reader_.choice(*n, p, path(key));
+    if (const toml::node* n = node(key)) return reader_.choice(*n, p, keyPath(key));
     if (p.defaultValue.empty()) missing(key);
     return std::string(p.defaultValue);
   }
@@ -356,6 +414,7 @@ class TableView {
 
  private:
   static std::string join(std::string_view a, std::string_view b) { return joinPath(a, b); }
+  KeyPath keyPath(std::string_view key) const { return KeyPath{display_, key}; }
   const CaseReader& reader_;
   const toml::table* table_;
   std::string pattern_;

@@ -190,11 +190,21 @@ std::string aQuantity(std::string_view siUnit) {
 
 bool unitConvertible(std::string_view unit, std::string_view siUnit) {
   std::lock_guard lock(unitMutex);
+  // The answer for each pair of texts is kept for the process, as the converters are (convertUnitWith): a perfusion
+  // given per tissue mass asked it twice per value read, parsing both units with udunits2 each time.
+  static std::unordered_map<std::string, bool> answers;
+  std::string key;
+  key.reserve(unit.size() + siUnit.size() + 1);
+  key.append(unit).push_back('\0');
+  key.append(siUnit);
+  if (auto it = answers.find(key); it != answers.end()) return it->second;
   const std::string u = normalised(unit), si = normalised(siUnit);
   ut_system* system = systemFor(UnitDatabase::automatic, u, si);
   UnitPtr from = parseUnit(system, u);
   UnitPtr to = parseUnit(system, si);
-  return from && to && ut_are_convertible(from.get(), to.get());
+  const bool convertible = from && to && ut_are_convertible(from.get(), to.get());
+  answers.emplace(std::move(key), convertible);
+  return convertible;
 }
 
 double convertUnit(double value, std::string_view unit, std::string_view siUnit) {
