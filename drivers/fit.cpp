@@ -506,13 +506,12 @@ Evaluation evaluateModel(const FitProblem& pb, std::span<const double> x) {
   try {
     std::vector<std::string> overrides = pb.overrides;
     for (std::size_t j = 0; j < pb.parameters.size(); ++j) overrides.push_back(parameterOverride(pb.parameters[j], x[j]));
-    const Case c = loadCaseFromString(pb.caseText, pb.casePath, overrides);
-    Body body(c);
+    Body body(loadCaseFromString(pb.caseText, pb.casePath, overrides));
     ObservationSampler sampler(pb.data, body);
     RunOptions options;
     options.quiet = true;
     options.observer = [&](double t, std::span<const double> y, const RunSummary& s) { sampler.observe(t, y, s); };
-    options.observerTimes = ObservationSampler::timesBetweenOutputs(pb.data, c.run);
+    options.observerTimes = ObservationSampler::timesBetweenOutputs(pb.data, body.spec().run);
     options.coarseSteadyStart = pb.coarseSteadyStart;
     RunSummary summary = runTransient(body, options);
     if (!summary.complete) {

@@ -94,7 +94,7 @@ RunRow runOne(const SweepPlan& plan, std::size_t run, const std::atomic<bool>* s
     overrides = runOverrides(plan, run, &c);
     row.overrides = join(overrides);
     loaded = Clock::now();
-    Body body(c);
+    Body body(std::move(c));  // the run's case is the body's (Body::spec())
     built = Clock::now();
     row.warnings = body.warnings(plan.steady);
     MetricCollector collector(body, plan.window, plan.thresholds, plan.steady);

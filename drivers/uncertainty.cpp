@@ -204,8 +204,7 @@ int runUncertaintyCommand(const UncertaintyOptions& o) {
       std::vector<std::string> ov = o.overrides;
       if (i > 0)
         for (std::size_t j = 0; j < k; ++j) ov.push_back(overrideOf(j, values[i - 1][j]));
-      const Case c = loadCaseFromString(caseText, o.casePath, ov);
-      Body body(c);
+      Body body(loadCaseFromString(caseText, o.casePath, ov));
       MetricCollector metrics(body, window, thresholds, false);
       ObservationSampler sampler(bands, body);
       RunOptions options;

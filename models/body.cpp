@@ -122,7 +122,11 @@ Body::CrossSection Body::crossSection(const SegmentSpec& s, double scale) {
   return cs;
 }
 
-Body::Body(const Case& c) : case_(c) {
+Body::Body(const Case& c) : case_(c) { build(); }
+
+Body::Body(Case&& c) : case_(std::move(c)) { build(); }
+
+void Body::build() {
   warnings_ = case_.warnings;  // found while loading (models/grid.cpp)
   timelineWarnings_ = case_.timelineWarnings;
   metabolismChannel_ = network_.channel("metabolism");

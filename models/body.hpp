@@ -101,6 +101,8 @@ struct SegmentMesh {
 class Body {
  public:
   explicit Body(const Case& c);
+  //! The same body from a case that is not needed afterwards (a sweep, fit or sensitivity run's): moved, not copied.
+  explicit Body(Case&& c);
   Body(const Body&) = delete;
   Body& operator=(const Body&) = delete;
 
@@ -249,6 +251,7 @@ class Body {
   };
 
   Case case_;
+  void build();  //!< the constructors' work, on case_
   mutable Network network_;  //!< coat conductances follow immersion and contact in setInterval()
   std::vector<CoatSwitch> coatSwitches_;
   std::vector<std::vector<TuckSide>> tuckSides_;  //!< per segment: [nz] when it is tucked or a host, else empty
