@@ -8,9 +8,13 @@
 #include <filesystem>
 #include <fstream>
 #include <numeric>
+#include <optional>
+#include <thread>
+#include <variant>
 
 #include "test_common.hpp"
 #include "models/body.hpp"
+#include "models/grid.hpp"
 #include "drivers/sweep.hpp"
 #include "drivers/sweep_engine.hpp"
 #include "drivers/sweep_output.hpp"
@@ -355,4 +359,123 @@ TEST_CASE("sweep: --window takes START:END or report.py's START,END - anything e
   CHECK(parseMetricWindow("600,").end == -1.0);
   for (const char* bad : {"30 min", ":1 h", "1:2:3", "1,2:3", "soon:1 h"})
     CHECK_THROWS_WITH(parseMetricWindow(bad), Catch::Contains("--window"));
+}
+
+namespace {
+
+//! The case of `overrides` loaded on a thread of its own: its own parse of the file (the per-thread tree of
+//! loadCaseFromString and every per-thread cache start empty there), as a single `run --set` loads it. The error
+//! message instead when the load fails.
+std::variant<Case, std::string> freshLoad(const std::string& path, const std::vector<std::string>& overrides) {
+  std::variant<Case, std::string> out;
+  std::thread([&] {
+    try {
+      out = loadCase(path, overrides);
+    } catch (const CaseError& e) {
+      out = std::string(e.what());
+    }
+  }).join();
+  return out;
+}
+
+//! Everything of two loads that a run or its row reads, compared exactly.
+void requireSameCase(const Case& a, const Case& b) {
+  CHECK(resolvedCaseToml(a) == resolvedCaseToml(b));
+  CHECK(a.warnings == b.warnings);
+  CHECK(a.timelineWarnings == b.timelineWarnings);
+  REQUIRE(a.given.size() == b.given.size());
+  for (auto i = a.given.begin(), j = b.given.begin(); i != a.given.end(); ++i, ++j) {
+    CHECK(i->first == j->first);
+    CHECK(i->second.line == j->second.line);
+    CHECK(i->second.column == j->second.column);
+  }
+  REQUIRE(a.segments.size() == b.segments.size());
+  for (std::size_t g = 0; g < a.segments.size(); ++g) {
+    const SegmentSpec &s = a.segments[g], &t = b.segments[g];
+    CHECK(s.length == t.length);
+    CHECK(s.axialCells == t.axialCells);
+    CHECK(s.axialGrading == t.axialGrading);
+    REQUIRE(s.layers.size() == t.layers.size());
+    for (std::size_t i = 0; i < s.layers.size(); ++i) {
+      CHECK(s.layers[i].thickness == t.layers[i].thickness);
+      CHECK(s.layers[i].cells == t.layers[i].cells);
+      CHECK(s.layers[i].grading == t.layers[i].grading);
+    }
+  }
+  // The grid estimate (the cross-section shares, the counts it asks for), bit for bit.
+  REQUIRE(a.gridEstimates);
+  REQUIRE(b.gridEstimates);
+  REQUIRE(a.gridEstimates->size() == b.gridEstimates->size());
+  for (std::size_t g = 0; g < a.gridEstimates->size(); ++g) {
+    const SegmentGridEstimate &e = (*a.gridEstimates)[g], &f = (*b.gridEstimates)[g];
+    CHECK(e.layerWeight == f.layerWeight);
+    CHECK(e.layerStorageHeat == f.layerStorageHeat);
+    CHECK(e.layerNeeded == f.layerNeeded);
+    CHECK(e.surfaceConductance == f.surfaceConductance);
+    CHECK(e.axialNeeded == f.axialNeeded);
+    CHECK(e.decayLength == f.decayLength);
+  }
+  // The bodies built from them: the same network.
+  const Body x(a), y(b);
+  CHECK(x.network().nodes.size() == y.network().nodes.size());
+  CHECK(x.warnings(false) == y.warnings(false));
+}
+
+}  // namespace
+
+TEST_CASE("sweep: each run's case equals a fresh load of the case with the run's overrides", "[sweep]") {
+  // A sweep loads the case once per run on the same thread, reusing the parsed tree (its overrides applied and put
+  // back), the grid estimate's scratch arrays and the schema defaults read before (models/case.cpp,
+  // models/case_reader.hpp, DEVELOPERS.md "Per-run CPU in sweeps, seventeenth round"). The reference is the plain
+  // load path: the file parsed on a thread of its own with the run's overrides (what `run --set` does). The runs
+  // are loaded forwards and then backwards, so each follows loads with other overrides; the grid comes once from
+  // the case's cell counts and once from the automatic grid (the counts left out), and one value is out of range
+  // (the same message both ways).
+  Scratch scratch;
+  std::string automatic;
+  {
+    std::ifstream in(quadruped);
+    for (std::string line; std::getline(in, line);)
+      if (line.rfind("axial_cells", 0) != 0) automatic += line + "\n";
+  }
+  const std::string automaticPath = scratch.path("quadruped_automatic_axial.toml");
+  std::ofstream(automaticPath) << automatic;
+  for (const std::string& path : {quadruped, automaticPath}) {
+    INFO(path);
+    SweepOptions o;
+    o.casePath = path;
+    o.vary = {"environment.temperature=5 degC,25 degC,900 degC", "segments.ears.layers.1.thickness=1 mm,1.5 mm"};
+    o.scale = {"body=0.9,1.1"};
+    o.metrics = {"body.core_temperature.final"};
+    const SweepPlan plan = makeSweepPlan(o);
+    REQUIRE(plan.runs == 12);
+    std::size_t failed = 0;
+    for (int pass = 0; pass < 2; ++pass)
+      for (std::size_t k = 0; k < plan.runs; ++k) {
+        const std::size_t r = pass == 0 ? k : plan.runs - 1 - k;
+        INFO("run " << r);
+        std::optional<std::string> error;
+        Case c;
+        std::vector<std::string> overrides;
+        try {
+          overrides = runOverrides(plan, r, &c);
+        } catch (const CaseError& e) {
+          error = e.what();
+        }
+        if (error) {
+          // The size series' overrides come from the loaded case: a run that fails to load has none.
+          ++failed;
+          const auto fresh = freshLoad(path, plan.keyOverrides(r));
+          REQUIRE(std::holds_alternative<std::string>(fresh));
+          CHECK(std::get<std::string>(fresh) == *error);
+          CHECK(error->find("environment.temperature") != std::string::npos);
+          continue;
+        }
+        CHECK(overrides.size() > plan.keyOverrides(r).size());  // the size factors' overrides
+        const auto fresh = freshLoad(path, overrides);
+        REQUIRE(std::holds_alternative<Case>(fresh));
+        requireSameCase(c, std::get<Case>(fresh));
+      }
+    CHECK(failed == 2 * 4);  // 900 degC: 4 runs, loaded twice
+  }
 }
