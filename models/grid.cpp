@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstring>
 #include <functional>
 #include <limits>
 #include <numbers>
@@ -307,6 +308,43 @@ std::vector<double> crossingShares(Shape shape, double width, const std::vector<
     const std::size_t j = (i + 1) * perLayer - 1;  // last cell of layer i
     shares[i] = std::clamp(g[j] * (t[j] - t[j + 1]) / surface, 0.0, 1.0);
   }
+  return shares;
+}
+
+//! crossingShares through a record of the cross-sections this thread has solved: the same inputs, bit for bit, give
+//! the same shares and drops, so a cross-section seen before is not solved again. A sweep loads its case once per
+//! run, and where the run's overrides leave a segment's layers, blood, fin term and surface conductance as they were
+//! (a controller's gain, a metabolic rate; not a size series, whose radii change, nor the surroundings, whose
+//! surface conductance changes), its 400 cells per layer were solved again for each run (a third of a quadruped
+//! run's case load). Up to kRecorded cross-sections, the oldest replaced first.
+std::vector<double> recordedCrossingShares(Shape shape, double width, const std::vector<Layer>& ls, bool wet,
+                                           double rhoCBlood, double finM2, double h, std::vector<double>& drop) {
+  constexpr std::size_t kRecorded = 64;
+  struct Record {
+    std::vector<double> key;  // every input, compared as bits (memcmp): -0 and 0 differ, a NaN matches itself
+    std::vector<double> shares, drop;
+  };
+  thread_local std::vector<Record> records;
+  thread_local std::size_t next = 0;
+  thread_local std::vector<double> key;
+  key.clear();
+  key.push_back(static_cast<double>(static_cast<int>(shape)));
+  key.push_back(wet ? 1.0 : 0.0);
+  for (double v : {width, rhoCBlood, finM2, h}) key.push_back(v);
+  for (const Layer& L : ls)  // what crossingShares reads of a layer (not its capacity)
+    for (double v : {L.inner, L.outer, L.k, L.kWet, L.perfusion, L.coat ? 1.0 : 0.0}) key.push_back(v);
+  auto same = [&](const std::vector<double>& k) {
+    return k.size() == key.size() && std::memcmp(k.data(), key.data(), key.size() * sizeof(double)) == 0;
+  };
+  for (const Record& r : records)
+    if (same(r.key)) {
+      drop = r.drop;
+      return r.shares;
+    }
+  std::vector<double> shares = crossingShares(shape, width, ls, wet, rhoCBlood, finM2, h, &drop);
+  Record r{key, shares, drop};
+  if (records.size() < kRecorded) records.push_back(std::move(r));
+  else records[next++ % kRecorded] = std::move(r);
   return shares;
 }
 
@@ -866,7 +904,7 @@ std::vector<SegmentGridEstimate> estimateGrid(const Case& c) {
     // radius) unweighted (limb_cooling's forelimb, bone of radius 5 mm in 1 cell instead of 4: heat flows 0.06 %,
     // core temperature 0.086 K).
     std::vector<double> drop;
-    e.layerWeight = crossingShares(s.shape, s.width, ls, wet, rc, e.axialForced ? m * m : 0.0, h, &drop);
+    e.layerWeight = recordedCrossingShares(s.shape, s.width, ls, wet, rc, e.axialForced ? m * m : 0.0, h, drop);
     // The storage transient after a start from a uniform temperature (storageHeatBound): per layer its heat
     // capacity C times the drop D across it on the steady profile times D over the whole contrast.
     e.layerStorageHeat.assign(ls.size(), 0.0);
