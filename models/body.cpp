@@ -7,6 +7,7 @@
 #include <map>
 #include <numbers>
 
+#include <boost/container/small_vector.hpp>
 #include <fmt/format.h>
 
 namespace thermorph {
@@ -863,7 +864,10 @@ double Body::DepthMap::operator()(double x) const {
 struct Body::FlowExpr {
   //! (modulator, coefficient [m3/s]), sorted by modulator: a flat map (a 10^5-cell grid holds three per cell while
   //! the circulation is built; a std::map took twice the memory). The same sums in the same order as a std::map.
-  std::vector<std::pair<Index, double>> parts;
+  //! Up to two parts in place (a cell's perfusion: its total, deep and superficial flows have one or two), more on
+  //! the heap: a heap block per cell flow was a fifth of a sweep run's body build (DEVELOPERS.md "Per-run CPU in
+  //! sweeps, seventeenth round").
+  boost::container::small_vector<std::pair<Index, double>, 2> parts;
   void add(Index modulator, double coefficient) {
     if (coefficient == 0.0) return;
     auto it = std::lower_bound(parts.begin(), parts.end(), modulator,
