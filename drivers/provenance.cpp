@@ -2,12 +2,8 @@
 
 #include <algorithm>
 
-#ifndef THERMORPH_SOURCE_REVISION
-#define THERMORPH_SOURCE_REVISION "unknown"
-#endif
-#ifndef THERMORPH_SOURCE_COMMIT
-#define THERMORPH_SOURCE_COMMIT "unknown"
-#endif
+// The revision and commit of the build (cmake/revision.cmake, written at every build into the build tree).
+#include "thermorph_revision.hpp"
 
 namespace thermorph {
 

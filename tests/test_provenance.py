@@ -34,6 +34,16 @@ def git_revision(src):
     return r.stdout.strip() if r.returncode == 0 else None
 
 
+def git_commit_time(src):
+    """Committer time of HEAD (seconds since the epoch)."""
+    r = subprocess.run([shutil.which("git"), "-C", str(src), "log", "-1", "--format=%ct"], capture_output=True,
+                       text=True)
+    return int(r.stdout.strip()) if r.returncode == 0 and r.stdout.strip() else float("inf")
+
+
+EXE_MTIME = 0.0
+
+
 def check_provenance(path, case_file, extra, src):
     with h5py.File(path, "r") as f:
         check("provenance" in f, f"{path.name}: no /provenance")
@@ -50,17 +60,25 @@ def check_provenance(path, case_file, extra, src):
                 check(hashes[roles.index(role)] == want, f"{path.name}: {role} sha256")
         rev, commit = text(p.attrs["source_revision"]), text(p.attrs["source_commit"])
         check(bool(rev), f"{path.name}: empty source_revision")
-        # The build configured from this checkout (CI clones it): the commit is HEAD's, unless git is missing
-        # (then "unknown"). A build configured before a later commit reports its own commit: compare prefixes.
+        # The revision is worked out at every build (cmake/revision.cmake), not when CMake configures: an
+        # executable built after HEAD was committed records HEAD (a configure-time revision recorded the commit of
+        # the last configure, stale after `git pull` and a rebuild). An executable older than HEAD may carry an
+        # earlier commit; then only its form is checked. Without git: "unknown".
         head = git_revision(src)
         if head is not None and commit != "unknown":
             check(len(commit) == 40 and all(c in "0123456789abcdef" for c in commit), f"source_commit {commit}")
+            if EXE_MTIME > git_commit_time(src):
+                check(commit == head, f"{path.name}: source_commit {commit} is not HEAD {head}, though the "
+                      f"executable was built after HEAD was committed")
+                check(head[:7] in rev, f"{path.name}: source_revision {rev} does not name HEAD {head[:7]}")
         check("warnings" in p and isinstance(p["warnings"], h5py.Dataset), f"{path.name}: no /provenance/warnings")
         return [text(w) for w in p["warnings"][()]] if "warnings" in p else []
 
 
 def main():
+    global EXE_MTIME
     exe, src = sys.argv[1], Path(sys.argv[2]).resolve()
+    EXE_MTIME = Path(exe).stat().st_mtime
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
         case = src / "cases/env_day_cycle.toml"
