@@ -249,7 +249,7 @@ double EnvironmentModel::convectionCoefficient(Index face, double faceTemperatur
     return cached.h + cached.dh * shift;
   }
 
-  const ConvectionResult r = thermorph::convectionCoefficient(convectionInput(face, faceTemperature, fl));
+  const ConvectionResult r = convectionCoefficientTabulated(convectionInput(face, faceTemperature, fl));
   if (r.outsideValidity) collectWarnings();
   const double curvature = sameFluid && shift != 0.0 ? std::abs(r.dh_dTs - cached.dh) / std::abs(shift)
                                                      : std::numeric_limits<double>::infinity();
@@ -287,7 +287,7 @@ void EnvironmentModel::confirmRanges(double time) const {
     if (!cached.unlogged) continue;
     cached.unlogged = false;
     const FaceFluid fl = fluid(faces_[face].segment, time);
-    if (thermorph::convectionCoefficient(convectionInput(face, cached.faceTemperature, fl)).outsideValidity)
+    if (convectionCoefficientTabulated(convectionInput(face, cached.faceTemperature, fl)).outsideValidity)
       collectWarnings();
   }
 }

@@ -346,6 +346,15 @@ FluidPropertiesDual fluidPropertiesDual(Medium medium, Dual temperatureK, double
   return p;
 }
 
+std::vector<double> propertyPieces(Medium medium) {
+  switch (medium) {
+    case Medium::Air: return {kAirT.begin(), kAirT.end()};
+    case Medium::FreshWater: return {kWaterT.begin(), kWaterT.end()};
+    case Medium::SeaWater: return {kSeaWaterTemperatureRange.min, kSeaWaterTemperatureRange.max};
+  }
+  return {};
+}
+
 Dual mediumDensityDual(Medium medium, Dual temperatureK, double salinity) {
   bool clamped = false;
   switch (medium) {

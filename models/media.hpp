@@ -153,6 +153,13 @@ struct FluidPropertiesDual {
 };
 FluidPropertiesDual fluidPropertiesDual(Medium medium, Dual temperatureK, double salinity = 35e-3);
 
+//! The temperatures [K] where the properties of `medium` change from one smooth piece to the next, the ends of their
+//! range included: the nodes of the Hermite tables (air: Table A.4, fresh water: Table A.6; the interpolants are C1
+//! there), the ends of the fitted range for sea water (its fits are smooth). Between two of them every property of
+//! fluidPropertiesDual is infinitely differentiable in temperature (the film-temperature tables of the convection
+//! evaluator put a node on each, models/convection.cpp).
+std::vector<double> propertyPieces(Medium medium);
+
 //! mediumDensity with its temperature derivative (the fits' own slopes; 0 where clamped).
 Dual mediumDensityDual(Medium medium, Dual temperatureK, double salinity = 35e-3);
 
