@@ -856,6 +856,7 @@ bool NewtonSolver::solve(std::span<double> x, const double* rhs) const {
     for (int i = 0; i < n; ++i) {
       const int row = P[i];
       double s = row < f ? xs[row] : 0.0;
+#pragma GCC unroll 4
       for (int q = lStart[i]; q < lStart[i + 1]; ++q) s -= lValue[q] * X[lColumn[q]];
       X[i] = s;
     }
@@ -864,6 +865,7 @@ bool NewtonSolver::solve(std::span<double> x, const double* rhs) const {
     const double* const uValue = k.uValue.data();
     for (int i = n - 1; i >= 0; --i) {
       double s = X[i];
+#pragma GCC unroll 4
       for (int q = uStart[i]; q < uStart[i + 1]; ++q) s -= uValue[q] * X[uColumn[q]];
       X[i] = s / diagonal[i];
     }
@@ -895,14 +897,33 @@ bool NewtonSolver::solve(std::span<double> x, const double* rhs) const {
   if (!rowStart_.empty()) {
     // Row by row: x_r - sum over c of (beta J_rc) x_c in ascending c, the terms with x_c = 0 left out as before
     // (subtracting +0.0 leaves every value, -0.0 included, unchanged).
-    // Four rows at a time over their common length, each in its own register, so that four chains of
-    // subtractions run side by side (each row's terms still in its own order); the rest of each row after.
+    // Each row is summed first without that test: a term with x_c = 0 then subtracts (beta J_rc) 0 = +-0.0, which
+    // leaves a nonzero partial sum as it is, and makes a zero one a zero of perhaps the other sign; the next nonzero
+    // term gives the same value from either zero (0 - p = -0 - p = -p) and a NaN or infinite beta J_rc yields NaN.
+    // So a sum that ends nonzero and not NaN is bit for bit the one with the test. A zero one is too unless x_r
+    // starts as -0.0: in round-to-nearest a difference is -0.0 only for -0.0 - (+0.0) (a - b = 0 for a == b is
+    // +0.0; IEEE 754-2008, sec. 6.3), so from any other start neither sum ever holds -0.0 and both end +0.0. For a
+    // NaN sum, or a zero one from -0.0 (the rows of the energies that do not change, with b_r = -0.0 and
+    // beta J_rc = -0.0), both sums are the same when no x_c is zero (the test then leaves no term out): x_f is
+    // searched once for a zero, and only if it has one such a row is summed again with the test. Four rows at a time over their common length, each in its own register, so that four
+    // chains of subtractions run side by side (each row's terms still in its own order); the rest of each row after.
     const std::uint32_t* const column = rowColumn_.data();
     const double* const value = rowValue_.data();
     const std::uint32_t* const first = rowStart_.data();
-    auto term = [&](std::uint32_t q) {
-      const double xc = xs[column[q]];
-      return xc != 0.0 ? value[q] * xc : 0.0;
+    auto product = [&](std::uint32_t q) { return value[q] * xs[column[q]]; };
+    int zeroInLeading = -1;  // x_f holds a zero: -1 not searched yet
+    auto leadingHasZero = [&] {
+      if (zeroInLeading < 0) zeroInLeading = std::find(xs, xs + factored_, 0.0) != xs + factored_;
+      return zeroInLeading == 1;
+    };
+    auto finish = [&](Index t, double sum) {
+      const Index r = factored_ + t;
+      if ((sum != sum || (sum == 0.0 && std::signbit(xs[r]))) && first[t] < first[t + 1] && leadingHasZero()) {
+        sum = xs[r];
+        for (std::uint32_t q = first[t]; q < first[t + 1]; ++q)
+          if (const double xc = xs[column[q]]; xc != 0.0) sum -= value[q] * xc;
+      }
+      xs[r] = sum / (alpha + beta * J[start[r]]);
     };
     const Index trailing = pattern_.size - factored_;
     Index t = 0;
@@ -912,26 +933,29 @@ bool NewtonSolver::solve(std::span<double> x, const double* rhs) const {
       const std::uint32_t n0 = b1 - b0, n1 = b2 - b1, n2 = b3 - b2, n3 = first[t + 4] - b3;
       const std::uint32_t common = std::min(std::min(n0, n1), std::min(n2, n3));
       for (std::uint32_t k = 0; k < common; ++k) {
-        s0 -= term(b0 + k);
-        s1 -= term(b1 + k);
-        s2 -= term(b2 + k);
-        s3 -= term(b3 + k);
+        s0 -= product(b0 + k);
+        s1 -= product(b1 + k);
+        s2 -= product(b2 + k);
+        s3 -= product(b3 + k);
       }
-      for (std::uint32_t k = common; k < n0; ++k) s0 -= term(b0 + k);
-      for (std::uint32_t k = common; k < n1; ++k) s1 -= term(b1 + k);
-      for (std::uint32_t k = common; k < n2; ++k) s2 -= term(b2 + k);
-      for (std::uint32_t k = common; k < n3; ++k) s3 -= term(b3 + k);
-      const double sums[4] = {s0, s1, s2, s3};
-      for (Index j = 0; j < 4; ++j) {
-        const Index r = factored_ + t + j;
-        xs[r] = sums[j] / (alpha + beta * J[start[r]]);
-      }
+#pragma GCC unroll 4
+      for (std::uint32_t k = common; k < n0; ++k) s0 -= product(b0 + k);
+#pragma GCC unroll 4
+      for (std::uint32_t k = common; k < n1; ++k) s1 -= product(b1 + k);
+#pragma GCC unroll 4
+      for (std::uint32_t k = common; k < n2; ++k) s2 -= product(b2 + k);
+#pragma GCC unroll 4
+      for (std::uint32_t k = common; k < n3; ++k) s3 -= product(b3 + k);
+      finish(t, s0);
+      finish(t + 1, s1);
+      finish(t + 2, s2);
+      finish(t + 3, s3);
     }
     for (; t < trailing; ++t) {
-      const Index r = factored_ + t;
-      double sum = xs[r];
-      for (std::uint32_t q = first[t]; q < first[t + 1]; ++q) sum -= term(q);
-      xs[r] = sum / (alpha + beta * J[start[r]]);
+      double sum = xs[factored_ + t];
+#pragma GCC unroll 4
+      for (std::uint32_t q = first[t]; q < first[t + 1]; ++q) sum -= product(q);
+      finish(t, sum);
     }
     return true;
   }

@@ -10,6 +10,7 @@
 #include <algorithm>
 #include <bit>
 #include <cmath>
+#include <limits>
 #include <map>
 #include <random>
 #include <set>
@@ -444,6 +445,72 @@ TEST_CASE("Newton solver: KLU's factors by rows give klu_refactor's and klu_solv
   }
   klu_free_numeric(&numeric, &common);
   klu_free_symbolic(&symbolic, &common);
+}
+
+TEST_CASE("Newton solver: the trailing rows' zero terms and signed zeros as the substitution column by column",
+          "[newton_solver]") {
+  // x_e = D^-1 (b_e - A_ef x_f) (block forward substitution, Golub & Van Loan 2013, sec. 3.1) with the terms of a
+  // zero x_c left out: solver/newton_solver.cpp sums each trailing row without that test and sums it again with it
+  // only where the two can differ (a NaN sum, or a zero one from b_r = -0.0, when x_f holds a zero). References:
+  // (a) b_f = 0, so x_f = 0 and x_e = b_e / (alpha + beta J_ee) exactly, whatever A_ef holds (an infinite entry
+  // against a zero x_c is left out, not made NaN); (b) the substitution column by column in ascending c with the
+  // test, the order of KLU's own block solves (klu_solve.c), for rows of zero entries (beta J_rc = -0.0) from
+  // b_r = -0.0 and b_r = +0.0, bit for bit, and Eigen's dense LU within 1e-12.
+  const Index n = 240, trailing = 16;
+  const Index f = n - trailing;
+  RandomSystem s = randomSystem(n, trailing, 3, 20261206u);
+  // Trailing rows f .. f + 5: zero entries; row f + 6: one infinite entry.
+  bool infinite = false;
+  for (Index c = 0; c < f; ++c)
+    for (Index p = s.pattern.columnStart[c]; p < s.pattern.columnStart[c + 1]; ++p) {
+      const Index r = s.pattern.rowIndex[p];
+      if (r >= f && r < f + 6) s.jacobian[p] = 0.0;
+      if (r == f + 6 && !infinite) {
+        s.jacobian[p] = std::numeric_limits<double>::infinity();
+        infinite = true;
+      }
+    }
+  REQUIRE(infinite);
+  NewtonSolver solver(s.pattern, f, -1);
+  const double gamma = 0.5;
+  solver.setMatrix(s.jacobian, 1.0, -gamma);
+  REQUIRE(solver.factor());
+  CHECK(solver.solvesByRows());
+  auto bits = [](double v) { return std::bit_cast<std::uint64_t>(v); };
+  std::mt19937 rng(13);
+  std::uniform_real_distribution<double> value(-1.0, 1.0);
+  // (a)
+  std::vector<double> x(n, 0.0);
+  for (Index r = f; r < n; ++r) x[r] = r % 3 == 0 ? -0.0 : r % 3 == 1 ? 0.0 : value(rng);
+  const std::vector<double> b = x;
+  REQUIRE(solver.solve(x));
+  for (Index i = 0; i < f; ++i) CHECK(x[i] == 0.0);
+  for (Index r = f; r < n; ++r) {
+    INFO("row " << r);
+    CHECK(bits(x[r]) == bits(b[r] / (1.0 + -gamma * s.jacobian[s.pattern.columnStart[r]])));
+  }
+  // (b), without the infinite entry.
+  for (double& v : s.jacobian)
+    if (std::isinf(v)) v = 0.5;
+  solver.setMatrix(s.jacobian, 1.0, -gamma);
+  REQUIRE(solver.factor());
+  Eigen::VectorXd rhs(static_cast<Eigen::Index>(n));
+  for (Index i = 0; i < n; ++i) rhs(static_cast<Eigen::Index>(i)) = i < f ? value(rng) : i % 2 == 0 ? -0.0 : 0.0;
+  x.assign(rhs.data(), rhs.data() + n);
+  REQUIRE(solver.solve(x));
+  std::vector<double> y(x.begin(), x.begin() + f);
+  y.resize(n);
+  for (Index r = f; r < n; ++r) y[r] = rhs(static_cast<Eigen::Index>(r));
+  for (Index c = 0; c < f; ++c)
+    for (Index p = s.pattern.columnStart[c]; p < s.pattern.columnStart[c + 1]; ++p)
+      if (const Index r = s.pattern.rowIndex[p]; r >= f && y[c] != 0.0) y[r] -= -gamma * s.jacobian[p] * y[c];
+  Index equal = 0;
+  for (Index r = f; r < n; ++r) {
+    y[r] /= 1.0 + -gamma * s.jacobian[s.pattern.columnStart[r]];
+    equal += bits(x[r]) == bits(y[r]);
+  }
+  CHECK(equal == trailing);
+  CHECK(relativeDifference(x, dense(s, 1.0, -gamma).partialPivLu().solve(rhs)) < 1e-12);
 }
 
 TEST_CASE("Newton solver: a block triangular matrix, a singleton or row scaling takes klu_solve and matches a dense LU",
