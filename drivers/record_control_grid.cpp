@@ -109,6 +109,31 @@ ControlGridWatch::ControlGridWatch(const Body& body, const NetworkSystem& system
     worst_.push_back(e);
   }
   modulators_.assign(net.modulators.size(), 0.0);
+  // Channels to the surroundings whose flows can only be gains (metabolism, shivering: Q10 sources and nothing
+  // else): L and the storage term count a channel's loss max(0, -flow) only, 0 for such a channel whatever its
+  // value, so observe(t, y) leaves their sources (an exp each) and, for channel 0, the loop over every conductance
+  // out of the flows it computes. A channel qualifies when no conductance between groups, stream, exchange, face
+  // (SurfaceModel::writesChannel) or source of negative power (respiration's) books to it; its sources' power and
+  // modulators are checked >= 0 again at each output (a controller's state can dip below 0 by the integrator's
+  // error: then that output computes every channel).
+  std::vector<char> signedTerms(net.channels.size(), 0), sourced(net.channels.size(), 0);
+  net.conductances.forEach([&](Index k, const Conductance& c) {
+    if (net.nodes[c.a].group != net.nodes[c.b].group) signedTerms[net.conductanceChannel(k)] = 1;
+  });
+  net.advections.forEach([&](Index, const Advection& a) { signedTerms[a.channel] = 1; });
+  for (const BoundaryExchange& e : net.exchanges) signedTerms[e.channel] = 1;
+  net.sources.forEach([&](Index, const HeatSource& s) {
+    sourced[s.channel] = 1;
+    if (!(s.power >= 0.0)) signedTerms[s.channel] = 1;  // a loss booked as a source (respiration)
+  });
+  gainOnly_.assign(net.channels.size(), 0);
+  mask_ = external_;
+  for (Index ch = 0; ch < net.channels.size(); ++ch) {
+    const bool faces = !net.faces.empty() && (!net.surface || net.surface->writesChannel(ch));
+    gainOnly_[ch] = external_[ch] && ch != evaporation_ && sourced[ch] && !signedTerms[ch] && !faces;
+    if (gainOnly_[ch]) mask_[ch] = 0;
+  }
+  gainChannels_ = std::any_of(gainOnly_.begin(), gainOnly_.end(), [](char c) { return c != 0; });
   // eps: the largest estimated error of any segment's heat flows on the grid of this run.
   const Case& spec = body.spec();
   // The estimate the case was resolved with (it does not depend on the cell counts), else a new one. Estimating
@@ -172,15 +197,45 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
   observeFlows(t, y, flows);
 }
 
-void ControlGridWatch::observe(double t, std::span<const double> y) {
-  if (controllers_.empty()) return;
-  const Network& net = body_.network();
-  flows_.resize(net.groups.size() * net.channels.size());
-  system_.channelFlows(t, y.first(system_.nodeCount() + system_.controlCount()), external_, flows_);
-  observeFlows(t, y, flows_);
+bool ControlGridWatch::enabled(const Watched& w, double t) const {
+  const Controller& head = body_.network().controllers[w.head];
+  return head.enableSchedule == none || body_.network().schedules->value(head.enableSchedule, t) > 0.5;
 }
 
-void ControlGridWatch::observeFlows(double t, std::span<const double> y, std::span<const double> flows) {
+bool ControlGridWatch::flowsNeeded(double t) const {
+  // From a uniform start the storage term integrates every scope's loss from the start: every output's flows.
+  if (!steady_) return true;
+  // After a steady start the flows enter only through L of an enabled controller's scope (a disabled one balances
+  // nothing: L = 0, its change since the start eps L_0 without flows) and sweating's evaporation at its unclamped
+  // outputs, which are enabled ones.
+  return std::any_of(controllers_.begin(), controllers_.end(), [&](const Watched& w) { return enabled(w, t); });
+}
+
+void ControlGridWatch::observe(double t, std::span<const double> y) {
+  if (controllers_.empty()) return;
+  if (!flowsNeeded(t)) {
+    observeFlows(t, y, {});
+    return;
+  }
+  const Network& net = body_.network();
+  flows_.resize(net.groups.size() * net.channels.size());
+  // The gain-only channels left out (constructor) where their sources are gains at this output: the coefficients
+  // and modulators of time t, as channelFlows takes them.
+  bool gains = gainChannels_;
+  if (gains) {
+    net.coefficientsAt(t);
+    system_.modulatorValues(t, y, modulators_);
+    net.sources.forEach([&](Index, const HeatSource& s) {
+      if (gainOnly_[s.channel] && !(s.power >= 0.0 && (s.modulator == none || modulators_[s.modulator] >= 0.0)))
+        gains = false;
+    });
+  }
+  system_.channelFlows(t, y.first(system_.nodeCount() + system_.controlCount()), gains ? mask_ : external_, flows_);
+  observeFlows(t, y, flows_, gainChannels_);
+}
+
+void ControlGridWatch::observeFlows(double t, std::span<const double> y, std::span<const double> flows,
+                                    bool modulatorsKnown) {
   const Network& net = body_.network();
   const Index nodes = system_.nodeCount(), channels = net.channels.size(), groups = net.groups.size();
   start(t);
@@ -194,12 +249,14 @@ void ControlGridWatch::observeFlows(double t, std::span<const double> y, std::sp
     if (e.ramp == 0.0 && e.at > last_ && e.at <= t) step = std::max(step, e.at);
   const double previous = last_;
   last_ = t;
-  system_.modulatorValues(t, y, modulators_);
+  if (!modulatorsKnown) system_.modulatorValues(t, y, modulators_);
   // Heat each group (one copy) has lost to its surroundings since the start, for the storage term (trapezoidal
   // over the outputs; the first observation after the start: rectangle).
   exchanged_.resize(groups, 0.0);
   lastLoss_.resize(groups, -1.0);
-  for (Index g = 0; g < groups; ++g) {
+  // Without flows (flowsNeeded: after a steady start, every controller disabled) the loss is not formed; after a
+  // steady start the storage term, its only reader, is never computed.
+  for (Index g = 0; g < groups && !flows.empty(); ++g) {
     double loss = 0.0;
     for (Index ch = 0; ch < channels; ++ch)
       if (external_[ch]) loss += std::max(0.0, -flows[g * channels + ch]);
@@ -218,8 +275,8 @@ void ControlGridWatch::observeFlows(double t, std::span<const double> y, std::sp
     Watched& w = controllers_[i];
     const Controller& head = net.controllers[w.head];
     Now& n = now[i];
-    const bool enabled = head.enableSchedule == none || net.schedules->value(head.enableSchedule, t) > 0.5;
-    if (enabled) {
+    const bool on = enabled(w, t);
+    if (on) {
       for (Index g = 0; g < groups; ++g) {
         if (!w.scope[g]) continue;
         for (Index ch = 0; ch < channels; ++ch)
@@ -240,7 +297,7 @@ void ControlGridWatch::observeFlows(double t, std::span<const double> y, std::sp
                                             : 0.5 * (w.lastChange + change) * dt) / w.capacity;
       w.lastChange = change;
     }
-    if (!enabled) continue;
+    if (!on) continue;
     double signal = 0.0;
     for (auto [node, share] : head.signal) signal += share * y[node];
     const double setpoint = head.setpointSchedule == none ? head.setpoint : net.schedules->value(head.setpointSchedule, t);

@@ -65,8 +65,17 @@ class ControlGridWatch {
   void observe(double t, std::span<const double> y, std::span<const double> flows);
   //! The same at an output without flows (a transient sweep's): the watch computes the ones it reads, the channels
   //! to the surroundings (NetworkSystem::channelFlows: the values groupFlows gives them, bit for bit, without the
-  //! internal channels' terms and the storage).
+  //! internal channels' terms and the storage), and of those neither the gain-only channels (gainOnlyChannels) nor,
+  //! where flowsNeeded(t) is false, any: the estimates are those of observe(t, y, flows) bit for bit.
   void observe(double t, std::span<const double> y);
+  //! Per channel: to the surroundings and booked only by sources of power >= 0 (metabolism, shivering), 1. Their
+  //! loss max(0, -flow) is 0 whatever the flow, so observe(t, y) leaves them out of the flows it computes where
+  //! every such source's power and modulator are >= 0 at that output.
+  const std::vector<char>& gainOnlyChannels() const { return gainOnly_; }
+  //! Whether observe(t, y) computes flows at time t: always from a uniform start (the storage term integrates every
+  //! output's losses); after a steady start only while some controller is enabled (a disabled one balances nothing,
+  //! and the storage term is not formed). Without them the check is the same bit for bit.
+  bool flowsNeeded(double t) const;
 
   //! The largest estimate of one controller over the observed outputs.
   struct Estimate {
@@ -118,8 +127,11 @@ class ControlGridWatch {
     double startShift = -1.0;      //!< quasi-static shift when the output was first unclamped [K] (-1: not yet)
   };
   double effectiveGain(const Watched& w) const;
-  //! observe() once the flows are there.
-  void observeFlows(double t, std::span<const double> y, std::span<const double> flows);
+  //! The controller (its chain's head) is enabled at time t (Controller::enableSchedule).
+  bool enabled(const Watched& w, double t) const;
+  //! observe() once the flows are there (none: flowsNeeded(t) was false); `modulatorsKnown`: modulators_ holds the
+  //! values at (t, y) already.
+  void observeFlows(double t, std::span<const double> y, std::span<const double> flows, bool modulatorsKnown = false);
 
   const Body& body_;
   const NetworkSystem& system_;
@@ -129,6 +141,9 @@ class ControlGridWatch {
   std::vector<char> external_;   //!< per channel: to the surroundings (not blood, conduction or tucking), 1
   Index evaporation_ = none;     //!< the evaporation channel (sweating's terms), none without one
   std::vector<double> flows_;    //!< observe(t, y)'s flows [groups x channels] [W]
+  std::vector<char> gainOnly_;   //!< per channel: to the surroundings, only sources of power >= 0 book to it, 1
+  std::vector<char> mask_;       //!< external_ without the gain-only channels
+  bool gainChannels_ = false;    //!< some channel is gain-only
   std::vector<SegmentGridEstimate> estimates_;  //!< the case's (Case::gridEstimates) or a new estimate
   std::vector<double> exchanged_; //!< per group: heat lost to the surroundings since the start, one copy [J]
   std::vector<double> lastLoss_;  //!< per group: that loss at the last observation [W] (-1: none yet)

@@ -336,3 +336,73 @@ TEST_CASE("The watch's flows of the channels to the surroundings are groupFlows'
   CHECK(compared == static_cast<long>(4 * groups * channels));
   CHECK(nonzero > static_cast<long>(groups));  // convection, radiation, ... of every segment
 }
+
+TEST_CASE("The watch without flows at outputs gives the estimates of the watch fed every output's flows, bit for bit, "
+          "where it skips outputs and channels",
+          "[control_grid][sweep]") {
+  // A transient sweep's check (observe(t, y)) computes flows only where they can change it: after a steady start
+  // none while every controller is disabled (flowsNeeded), and never the channels to the surroundings that only
+  // sources of power >= 0 book to (metabolism, shivering: their loss max(0, -flow) is 0 whatever the flow).
+  // Reference: the same check fed groupFlows at every output, as `run` feeds it (common practice, no source: the
+  // same estimate computed twice, which must not differ in any bit). The furred trunk from its steady start with
+  // its shivering switched off from 20 to 50 min and a cold front at 30 min (the tests above), and from a uniform
+  // start (every output's flows).
+  auto frontCase = [](bool steady) {
+    std::string toml = furredTrunk(steady ? "\ninitial = \"steady\"\n" : "");
+    if (steady)
+      toml.replace(toml.find("initial_temperature = \"37 degC\"\n"), std::string("initial_temperature = \"37 degC\"\n").size(), "");
+    toml.replace(toml.find("temperature = \"-40 degC\""), std::string("temperature = \"-40 degC\"").size(),
+                 "temperature = \"-30 degC\"");
+    return toml + "[[events]]\nat = \"20 min\"\ncontrol = { shivering = { enabled = \"off\" } }\n"
+                  "[[events]]\nat = \"30 min\"\nenvironment = { temperature = \"-45 degC\", speed = \"8 m/s\" }\n"
+                  "[[events]]\nat = \"50 min\"\ncontrol = { shivering = { enabled = \"on\" } }\n";
+  };
+  for (const bool steady : {true, false}) {
+    Body body(loadCaseFromString(frontCase(steady), "front.toml"));
+    NetworkSystem system(body.network(), NetworkSystem::Mode::Transient);
+    const Network& net = body.network();
+    ControlGridWatch fed(body, system), alone(body, system);
+    REQUIRE(alone.active());
+    // Metabolism and shivering are gains only (their sources), convection and the rest are not.
+    std::vector<std::string> gains;
+    for (Index c = 0; c < net.channels.size(); ++c)
+      if (alone.gainOnlyChannels().at(c)) gains.push_back(net.channels[c]);
+    CHECK(gains == std::vector<std::string>{"metabolism", "shivering"});
+    long outputs = 0, skipped = 0;
+    RunOptions options = silentRun();
+    options.flowsAtOutputs = false;
+    options.observer = [&](double t, std::span<const double> temperatures, const RunSummary& s) {
+      std::vector<double> y(temperatures.begin(), temperatures.end());
+      y.insert(y.end(), s.controls.begin(), s.controls.end());
+      // Reports on the test's own system (no face starts or coefficient cache of the run's): both watches' flows
+      // come from the same state of it.
+      std::vector<double> flows(net.groups.size() * net.channels.size()), storage(net.groups.size()),
+          faces(net.faces.size());
+      system.groupFlows(t, y, flows, storage, faces);
+      fed.observe(t, y, flows);
+      ++outputs;
+      skipped += alone.flowsNeeded(t) ? 0 : 1;
+      alone.observe(t, y);
+    };
+    const RunSummary run = runTransient(body, options);
+    REQUIRE(run.complete);
+    std::printf("[control_grid] furred trunk, %s start, shivering off 20-50 min: %ld of %ld outputs without flows\n",
+                steady ? "steady" : "uniform", skipped, outputs);
+    if (steady) CHECK(skipped >= 14);  // 22-50 min every 2 min: disabled
+    else CHECK(skipped == 0);
+    const ControlGridWatch::Estimate& a = fed.estimates().at(0);
+    const ControlGridWatch::Estimate& b = alone.estimates().at(0);
+    REQUIRE(a.observed);
+    CHECK(b.observed);
+    for (auto field : {&ControlGridWatch::Estimate::time, &ControlGridWatch::Estimate::output,
+                       &ControlGridWatch::Estimate::balanced, &ControlGridWatch::Estimate::carried,
+                       &ControlGridWatch::Estimate::magnification, &ControlGridWatch::Estimate::gridError,
+                       &ControlGridWatch::Estimate::error, &ControlGridWatch::Estimate::storageError})
+      CHECK(std::memcmp(&(a.*field), &(b.*field), sizeof(double)) == 0);
+    CHECK(a.capped == b.capped);
+    CHECK(a.segment == b.segment);
+    CHECK(a.layer == b.layer);
+    CHECK(a.cellsNeeded == b.cellsNeeded);
+    CHECK(fed.warnings() == alone.warnings());
+  }
+}
