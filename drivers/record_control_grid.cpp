@@ -109,31 +109,6 @@ ControlGridWatch::ControlGridWatch(const Body& body, const NetworkSystem& system
     worst_.push_back(e);
   }
   modulators_.assign(net.modulators.size(), 0.0);
-  // Channels to the surroundings whose flows can only be gains (metabolism, shivering: Q10 sources and nothing
-  // else): L and the storage term count a channel's loss max(0, -flow) only, 0 for such a channel whatever its
-  // value, so observe(t, y) leaves their sources (an exp each) and, for channel 0, the loop over every conductance
-  // out of the flows it computes. A channel qualifies when no conductance between groups, stream, exchange, face
-  // (SurfaceModel::writesChannel) or source of negative power (respiration's) books to it; its sources' power and
-  // modulators are checked >= 0 again at each output (a controller's state can dip below 0 by the integrator's
-  // error: then that output computes every channel).
-  std::vector<char> signedTerms(net.channels.size(), 0), sourced(net.channels.size(), 0);
-  net.conductances.forEach([&](Index k, const Conductance& c) {
-    if (net.nodes[c.a].group != net.nodes[c.b].group) signedTerms[net.conductanceChannel(k)] = 1;
-  });
-  net.advections.forEach([&](Index, const Advection& a) { signedTerms[a.channel] = 1; });
-  for (const BoundaryExchange& e : net.exchanges) signedTerms[e.channel] = 1;
-  net.sources.forEach([&](Index, const HeatSource& s) {
-    sourced[s.channel] = 1;
-    if (!(s.power >= 0.0)) signedTerms[s.channel] = 1;  // a loss booked as a source (respiration)
-  });
-  gainOnly_.assign(net.channels.size(), 0);
-  mask_ = external_;
-  for (Index ch = 0; ch < net.channels.size(); ++ch) {
-    const bool faces = !net.faces.empty() && (!net.surface || net.surface->writesChannel(ch));
-    gainOnly_[ch] = external_[ch] && ch != evaporation_ && sourced[ch] && !signedTerms[ch] && !faces;
-    if (gainOnly_[ch]) mask_[ch] = 0;
-  }
-  gainChannels_ = std::any_of(gainOnly_.begin(), gainOnly_.end(), [](char c) { return c != 0; });
   // eps: the largest estimated error of any segment's heat flows on the grid of this run.
   const Case& spec = body.spec();
   // The estimate the case was resolved with (it does not depend on the cell counts), else a new one. Estimating
@@ -197,6 +172,36 @@ void ControlGridWatch::observe(double t, std::span<const double> y, std::span<co
   observeFlows(t, y, flows);
 }
 
+void ControlGridWatch::findGainChannels() {
+  const Network& net = body_.network();
+  // Channels to the surroundings whose flows can only be gains (metabolism, shivering: Q10 sources and nothing
+  // else): L and the storage term count a channel's loss max(0, -flow) only, 0 for such a channel whatever its
+  // value, so observe(t, y) leaves their sources (an exp each) and, for channel 0, the loop over every conductance
+  // out of the flows it computes. A channel qualifies when no conductance between groups, stream, exchange, face
+  // (SurfaceModel::writesChannel) or source of negative power (respiration's) books to it; its sources' power and
+  // modulators are checked >= 0 again at each output (a controller's state can dip below 0 by the integrator's
+  // error: then that output computes every channel).
+  std::vector<char> signedTerms(net.channels.size(), 0), sourced(net.channels.size(), 0);
+  net.conductances.forEach([&](Index k, const Conductance& c) {
+    if (net.nodes[c.a].group != net.nodes[c.b].group) signedTerms[net.conductanceChannel(k)] = 1;
+  });
+  net.advections.forEach([&](Index, const Advection& a) { signedTerms[a.channel] = 1; });
+  for (const BoundaryExchange& e : net.exchanges) signedTerms[e.channel] = 1;
+  net.sources.forEach([&](Index, const HeatSource& s) {
+    sourced[s.channel] = 1;
+    if (!(s.power >= 0.0)) signedTerms[s.channel] = 1;  // a loss booked as a source (respiration)
+  });
+  gainOnly_.assign(net.channels.size(), 0);
+  mask_ = external_;
+  for (Index ch = 0; ch < net.channels.size(); ++ch) {
+    const bool faces = !net.faces.empty() && (!net.surface || net.surface->writesChannel(ch));
+    gainOnly_[ch] = external_[ch] && ch != evaporation_ && sourced[ch] && !signedTerms[ch] && !faces;
+    if (gainOnly_[ch]) mask_[ch] = 0;
+  }
+  gainChannels_ = std::any_of(gainOnly_.begin(), gainOnly_.end(), [](char c) { return c != 0; });
+  gainScanned_ = true;
+}
+
 bool ControlGridWatch::enabled(const Watched& w, double t) const {
   const Controller& head = body_.network().controllers[w.head];
   return head.enableSchedule == none || body_.network().schedules->value(head.enableSchedule, t) > 0.5;
@@ -218,8 +223,9 @@ void ControlGridWatch::observe(double t, std::span<const double> y) {
     return;
   }
   const Network& net = body_.network();
+  if (!gainScanned_) findGainChannels();  // here, not in the constructor: `run`'s check is fed its flows
   flows_.resize(net.groups.size() * net.channels.size());
-  // The gain-only channels left out (constructor) where their sources are gains at this output: the coefficients
+  // The gain-only channels left out (findGainChannels) where their sources are gains at this output: the coefficients
   // and modulators of time t, as channelFlows takes them.
   bool gains = gainChannels_;
   if (gains) {

@@ -70,7 +70,8 @@ class ControlGridWatch {
   void observe(double t, std::span<const double> y);
   //! Per channel: to the surroundings and booked only by sources of power >= 0 (metabolism, shivering), 1. Their
   //! loss max(0, -flow) is 0 whatever the flow, so observe(t, y) leaves them out of the flows it computes where
-  //! every such source's power and modulator are >= 0 at that output.
+  //! every such source's power and modulator are >= 0 at that output. Found at the first observe(t, y) (empty
+  //! before).
   const std::vector<char>& gainOnlyChannels() const { return gainOnly_; }
   //! Whether observe(t, y) computes flows at time t: always from a uniform start (the storage term integrates every
   //! output's losses); after a steady start only while some controller is enabled (a disabled one balances nothing,
@@ -144,6 +145,9 @@ class ControlGridWatch {
   std::vector<char> gainOnly_;   //!< per channel: to the surroundings, only sources of power >= 0 book to it, 1
   std::vector<char> mask_;       //!< external_ without the gain-only channels
   bool gainChannels_ = false;    //!< some channel is gain-only
+  bool gainScanned_ = false;     //!< gainOnly_ and mask_ found (findGainChannels)
+  //! The gain-only channels of the network: gainOnly_, mask_, gainChannels_.
+  void findGainChannels();
   std::vector<SegmentGridEstimate> estimates_;  //!< the case's (Case::gridEstimates) or a new estimate
   std::vector<double> exchanged_; //!< per group: heat lost to the surroundings since the start, one copy [J]
   std::vector<double> lastLoss_;  //!< per group: that loss at the last observation [W] (-1: none yet)

@@ -363,11 +363,6 @@ TEST_CASE("The watch without flows at outputs gives the estimates of the watch f
     const Network& net = body.network();
     ControlGridWatch fed(body, system), alone(body, system);
     REQUIRE(alone.active());
-    // Metabolism and shivering are gains only (their sources), convection and the rest are not.
-    std::vector<std::string> gains;
-    for (Index c = 0; c < net.channels.size(); ++c)
-      if (alone.gainOnlyChannels().at(c)) gains.push_back(net.channels[c]);
-    CHECK(gains == std::vector<std::string>{"metabolism", "shivering"});
     long outputs = 0, skipped = 0;
     RunOptions options = silentRun();
     options.flowsAtOutputs = false;
@@ -390,6 +385,11 @@ TEST_CASE("The watch without flows at outputs gives the estimates of the watch f
                 steady ? "steady" : "uniform", skipped, outputs);
     if (steady) CHECK(skipped >= 14);  // 22-50 min every 2 min: disabled
     else CHECK(skipped == 0);
+    // Metabolism and shivering are gains only (their sources), convection and the rest are not.
+    std::vector<std::string> gains;
+    for (Index c = 0; c < net.channels.size() && c < alone.gainOnlyChannels().size(); ++c)
+      if (alone.gainOnlyChannels()[c]) gains.push_back(net.channels[c]);
+    CHECK(gains == std::vector<std::string>{"metabolism", "shivering"});
     const ControlGridWatch::Estimate& a = fed.estimates().at(0);
     const ControlGridWatch::Estimate& b = alone.estimates().at(0);
     REQUIRE(a.observed);
