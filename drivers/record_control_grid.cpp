@@ -178,7 +178,7 @@ void ControlGridWatch::findGainChannels() {
   // else): L and the storage term count a channel's loss max(0, -flow) only, 0 for such a channel whatever its
   // value, so observe(t, y) leaves their sources (an exp each) and, for channel 0, the loop over every conductance
   // out of the flows it computes. A channel qualifies when no conductance between groups, stream, exchange, face
-  // (SurfaceModel::writesChannel) or source of negative power (respiration's) books to it; its sources' power and
+  // (SurfaceModel::faceChannels) or source of negative power (respiration's) books to it; its sources' power and
   // modulators are checked >= 0 again at each output (a controller's state can dip below 0 by the integrator's
   // error: then that output computes every channel).
   std::vector<char> signedTerms(net.channels.size(), 0), sourced(net.channels.size(), 0);
@@ -191,10 +191,14 @@ void ControlGridWatch::findGainChannels() {
     sourced[s.channel] = 1;
     if (!(s.power >= 0.0)) signedTerms[s.channel] = 1;  // a loss booked as a source (respiration)
   });
+  // The surface model's channels (ascending; empty: any channel).
+  const std::vector<Index> surfaceChannels = net.surface ? net.surface->faceChannels() : std::vector<Index>{};
   gainOnly_.assign(net.channels.size(), 0);
   mask_ = external_;
   for (Index ch = 0; ch < net.channels.size(); ++ch) {
-    const bool faces = !net.faces.empty() && (!net.surface || net.surface->writesChannel(ch));
+    const bool faces = !net.faces.empty() &&
+                       (surfaceChannels.empty() ||
+                        std::binary_search(surfaceChannels.begin(), surfaceChannels.end(), ch));
     gainOnly_[ch] = external_[ch] && ch != evaporation_ && sourced[ch] && !signedTerms[ch] && !faces;
     if (gainOnly_[ch]) mask_[ch] = 0;
   }

@@ -292,6 +292,14 @@ void EnvironmentModel::confirmRanges(double time) const {
   }
 }
 
+std::vector<Index> EnvironmentModel::faceChannels() const {
+  std::vector<Index> channels{convectionChannel_, radiationChannel_, solarChannel_, evaporationChannel_,
+                              substrateChannel_};
+  std::sort(channels.begin(), channels.end());
+  channels.erase(std::unique(channels.begin(), channels.end()), channels.end());
+  return channels;
+}
+
 void EnvironmentModel::faceHeat(Index face, double Ts, double time, std::span<double> channelHeat,
                                 std::span<double> channelDerivative) const {
   exchange(face, Ts, time, nullptr, channelHeat, channelDerivative, {});

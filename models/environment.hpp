@@ -79,11 +79,8 @@ class EnvironmentModel : public SurfaceModel {
                           std::span<double> controlDerivative) const override;
   //! Reports (budgets, mean coefficients at outputs) read the per-face coefficient cache but do not write it.
   void setReporting(bool reporting) const override { reporting_ = reporting; }
-  //! The five channels above, no other.
-  bool writesChannel(Index channel) const override {
-    return channel == convectionChannel_ || channel == radiationChannel_ || channel == solarChannel_ ||
-           channel == evaporationChannel_ || channel == substrateChannel_;
-  }
+  //! convection, radiation, solar, evaporation and substrate: the only channels exchange() adds to.
+  std::vector<Index> faceChannels() const override;
 
   //! Times in (0, duration) where the surroundings change discontinuously (steps, ramp ends, series rows) [s].
   std::vector<double> breakpoints() const;

@@ -458,12 +458,10 @@ class SurfaceModel {
   //! caches between calls reads them but leaves them as they are, so that a report never changes the
   //! integrator's path (a run with a results file and a sweep run without one stay bit for bit equal).
   virtual void setReporting(bool) const {}
-  //! Whether faceHeat or controlledFaceHeat can add a flow to `channel`; a model that does not say: any (the
-  //! controller check then computes that channel's flows at outputs, drivers/record_control_grid.cpp).
-  virtual bool writesChannel(Index channel) const {
-    (void)channel;
-    return true;
-  }
+  //! The channels that faceHeat and controlledFaceHeat may add to (flows, derivatives), ascending; empty: any
+  //! channel. The face solves zero, sum and book only these (NetworkSystem: the other channels of a face are exactly
+  //! 0 and are skipped).
+  virtual std::vector<Index> faceChannels() const { return {}; }
 };
 
 //! One tissue ring of a junction (models/body.cpp Body::attachChildren). The ring gives each cell i of its target

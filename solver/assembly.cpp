@@ -202,6 +202,12 @@ NetworkSystem::NetworkSystem(const Network& network, Mode mode)
   faceEvalTemperature_.assign(network.faces.size(), std::nan(""));
   faceEvalSlope_.assign(network.faces.size(), 0.0);
   faceScratch_.resize(2 * channels_);
+  if (network.surface) faceChannels_ = network.surface->faceChannels();
+  if (faceChannels_.empty())
+    for (Index c = 0; c < channels_; ++c) faceChannels_.push_back(c);
+  for (Index k = 0; k < faceChannels_.size(); ++k)
+    if (faceChannels_[k] >= channels_ || (k > 0 && faceChannels_[k] <= faceChannels_[k - 1]))
+      throw std::invalid_argument("the surface model's face channels are not ascending channels of the network");
   if (!network.faceControls.empty()) {
     faceControl_.assign(network.faces.size(), none);
     for (const FaceControl& fc : network.faceControls) {
@@ -285,12 +291,14 @@ NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, do
   double Ts = nodeTemperature;
   if (std::isfinite(faceGuess_[face]))
     Ts = faceGuess_[face] + faceSlope_[face] * (nodeTemperature - faceNodeTemperature_[face]);
+  // Only the surface model's channels are zeroed, summed and moved to the solution (faceChannels_): the others are
+  // never written and stay 0, so the sums are those over every channel, term for term.
+  const Index* const faceChannel = faceChannels_.data();
+  const Index faceChannelCount = faceChannels_.size();
   for (int iteration = 0; iteration < 60; ++iteration) {
-    if (channelDerivative.data() == channelHeat.data() + channelHeat.size()) {  // one block (faceScratch_)
-      std::fill_n(channelHeat.data(), channelHeat.size() + channelDerivative.size(), 0.0);
-    } else {
-      std::fill(channelHeat.begin(), channelHeat.end(), 0.0);
-      std::fill(channelDerivative.begin(), channelDerivative.end(), 0.0);
+    for (Index k = 0; k < faceChannelCount; ++k) {
+      channelHeat[faceChannel[k]] = 0.0;
+      channelDerivative[faceChannel[k]] = 0.0;
     }
     if (control) {
       std::fill(controlDerivative_.begin(), controlDerivative_.end(), 0.0);
@@ -299,9 +307,9 @@ NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, do
       network_.surface->faceHeat(face, Ts, time, channelHeat, channelDerivative);
     }
     double q = 0.0, dq = 0.0;
-    for (Index c = 0; c < channels_; ++c) {
-      q += channelHeat[c];
-      dq += channelDerivative[c];
+    for (Index k = 0; k < faceChannelCount; ++k) {
+      q += channelHeat[faceChannel[k]];
+      dq += channelDerivative[faceChannel[k]];
     }
     const double residual = G * (nodeTemperature - Ts) + q;
     const double step = residual / (G - dq);
@@ -326,7 +334,10 @@ NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, do
       // The heats at the solution to first order from this evaluation, instead of another evaluation there: the
       // error 1/2 q'' step^2 is below round-off for a converged step (see above); the slopes are those of this
       // evaluation (relative change of order q''/q' * step, far below the Jacobian's needs).
-      for (Index c = 0; c < channels_; ++c) channelHeat[c] += channelDerivative[c] * step;
+      for (Index k = 0; k < faceChannelCount; ++k) {
+        const Index c = faceChannel[k];
+        channelHeat[c] += channelDerivative[c] * step;
+      }
       const double slope = G / (G - dq);
       if (remember) {
         faceGuess_[face] = Ts;
@@ -483,7 +494,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
     // The node's sum in a register (the same additions in the same order; out[node] is none of the energy rows
     // written meanwhile): a store and reload of out[node] per channel was the longest chain of the evaluation.
     double sum = out[node];
-    for (Index c = 0; c < channels_; ++c) {
+    for (const Index c : faceChannels_) {  // the other channels' heats are 0
       sum += heatScratch()[c];
       if (transient) {
         acc[c] += weightOf(node) * heatScratch()[c];
@@ -626,10 +637,10 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     const double* control = faceControl(f, T);
     FaceSolution sol = solveFace(f, time, T[node], heatScratch(), slopeScratch(), true, control);
     double total = 0.0;
-    for (Index c = 0; c < channels_; ++c) total += slopeScratch()[c];
+    for (const Index c : faceChannels_) total += slopeScratch()[c];  // the other channels' slopes are 0
     add(node, node, total * sol.dTsdTn);
     if (transient)
-      for (Index c = 0; c < channels_; ++c) {
+      for (const Index c : faceChannels_) {
         add(nodes_ + controls_ + c, node, nodeWeight(node) * slopeScratch()[c] * sol.dTsdTn);
         toGroup(node, c, node, slopeScratch()[c] * sol.dTsdTn);
       }
@@ -638,11 +649,11 @@ void NetworkSystem::jacobian(double time, std::span<const double> T, std::span<d
     // carries dq_c/du + q_c'(T_s) dT_s/du into the node.
     const Index u = nodes_ + faceControl_[f];
     double dqdu = 0.0;
-    for (Index c = 0; c < channels_; ++c) dqdu += controlDerivative_[c];
+    for (const Index c : faceChannels_) dqdu += controlDerivative_[c];
     const double dTsdu = dqdu / (network_.faces[f].halfConductance - sol.dqdTs);
     add(node, u, dqdu + sol.dqdTs * dTsdu);
     if (transient)
-      for (Index c = 0; c < channels_; ++c) {
+      for (const Index c : faceChannels_) {
         const double d = controlDerivative_[c] + slopeScratch()[c] * dTsdu;
         add(nodes_ + controls_ + c, u, nodeWeight(node) * d);
         toGroup(node, c, u, d);
@@ -757,7 +768,7 @@ void NetworkSystem::flowsByGroup(double time, std::span<const double> T, std::sp
     Index node = network_.faces[f].node;
     FaceSolution sol = solveFace(f, time, T[node], heatScratch(), slopeScratch(), false, faceControl(f, T));
     if (f < faceTemperatures.size()) faceTemperatures[f] = sol.temperature;
-    for (Index c = 0; c < channels_; ++c) {
+    for (const Index c : faceChannels_) {  // the other channels' heats are 0
       if (rates) rate[node] += heatScratch()[c];
       if (wanted(c)) at(node, c) += heatScratch()[c];
     }

@@ -235,6 +235,10 @@ class NetworkSystem {
   //! The face solves' channel heats (first half) and their slopes dq_c/dT_s (second half) in one block, zeroed by one
   //! fill per Newton iteration (DEVELOPERS.md "Per-run CPU in sweeps, sixteenth round").
   mutable std::vector<double> faceScratch_;
+  //! The channels the surface model's face heats may add to (SurfaceModel::faceChannels; every channel when it names
+  //! none), ascending: the face solves zero, sum and book only these, the others of the scratch block stay 0 (the
+  //! environment's 5 of 9-10 channels; DEVELOPERS.md "Per-run CPU in sweeps, seventeenth round").
+  std::vector<Index> faceChannels_;
   std::span<double> heatScratch() const { return {faceScratch_.data(), channels_}; }
   std::span<double> slopeScratch() const { return {faceScratch_.data() + channels_, channels_}; }
   mutable std::vector<double> modulators_;
