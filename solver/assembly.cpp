@@ -400,6 +400,7 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
       toGroup(c.b, channel, -f.b * q);
     }
   });
+
   // The junction rings' pair parts, O(m) per ring (within the parent's group: no budget or group-energy rows).
   for (const Junction& j : network_.junctions)
     for (const JunctionRing& ring : j.rings) ringFlows(ring, T, [&](Index node, double q) { out[node] += q; });
@@ -419,38 +420,43 @@ void NetworkSystem::evaluate(double time, std::span<const double> T, std::span<d
     const Index channelRow = nodes_ + controls_;  // acc[c] is out[channelRow + c]
     Index chRow = none, grRow = none, toRow = none;
     double chSum = 0.0, grSum = 0.0, toSum = 0.0;
+    // One hop into `to`; `second`: the second hop of a stream through a node (the one that moves toRow).
+    auto hop = [&](Index from, Index to, double F, Index channel, bool second) __attribute__((always_inline)) {
+      const double q = F * (T[from] - T[to]);
+      if (to == toRow) {
+        toSum += q;
+      } else if (second) {
+        if (toRow != none) o[toRow] = toSum;
+        toRow = to;
+        toSum = o[to];
+        toSum += q;
+      } else {
+        o[to] += q;
+      }
+      chSum += weight[to] * q;
+      if (const Index g = groupRow[to]; g != none) {
+        if (const Index r = g + channel; r != grRow) {
+          if (grRow != none) o[grRow] = grSum;
+          grRow = r;
+          grSum = o[r];
+        }
+        grSum += q;
+      }
+    };
     for (const Advection& a : plainAdvections) {
       const double F = flowOf(a, modulators_);
       const Index channel = a.channel;
-      const bool via = a.via != none;
-      const Index stops[3] = {Index(a.from), via ? Index(a.via) : Index(a.to), Index(a.to)};
-      for (int h = 0; h < (via ? 2 : 1); ++h) {
-        const Index from = stops[h], to = stops[h + 1];
-        const double q = F * (T[from] - T[to]);
-        if (to == toRow) {
-          toSum += q;
-        } else if (h == 1) {
-          if (toRow != none) o[toRow] = toSum;
-          toRow = to;
-          toSum = o[to];
-          toSum += q;
-        } else {
-          o[to] += q;
-        }
-        if (const Index r = channelRow + channel; r != chRow) {
-          if (chRow != none) o[chRow] = chSum;
-          chRow = r;
-          chSum = o[r];
-        }
-        chSum += weight[to] * q;
-        if (const Index g = groupRow[to]; g != none) {
-          if (const Index r = g + channel; r != grRow) {
-            if (grRow != none) o[grRow] = grSum;
-            grRow = r;
-            grSum = o[r];
-          }
-          grSum += q;
-        }
+      // The channel's row, the same for both hops: moved to before the first (as it was at each hop).
+      if (const Index r = channelRow + channel; r != chRow) {
+        if (chRow != none) o[chRow] = chSum;
+        chRow = r;
+        chSum = o[r];
+      }
+      if (a.via == none) {
+        hop(a.from, a.to, F, channel, false);
+      } else {
+        hop(a.from, a.via, F, channel, false);
+        hop(a.via, a.to, F, channel, true);
       }
     }
     if (toRow != none) o[toRow] = toSum;
