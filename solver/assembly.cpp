@@ -295,6 +295,9 @@ NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, do
   // never written and stay 0, so the sums are those over every channel, term for term.
   const Index* const faceChannel = faceChannels_.data();
   const Index faceChannelCount = faceChannels_.size();
+  // The secant of q' within this solve (the last iteration's evaluation at the same time): the error estimate of
+  // iterations after the first (see below).
+  double lastEvaluated = std::numeric_limits<double>::quiet_NaN(), lastSlope = 0.0;
   for (int iteration = 0; iteration < 60; ++iteration) {
     for (Index k = 0; k < faceChannelCount; ++k) {
       channelHeat[faceChannel[k]] = 0.0;
@@ -316,7 +319,7 @@ NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, do
     const double evaluated = Ts;
     Ts += step;
     bool converged = std::abs(step) < 1e-11 * (1.0 + std::abs(Ts));
-    if (!converged && iteration == 0 && std::abs(step) < 1e-5 * (1.0 + std::abs(Ts))) {
+    if (!converged && (iteration == 0 || !remember) && std::abs(step) < 1e-5 * (1.0 + std::abs(Ts))) {
       // One Newton step from the tangent start is usually enough: its error is q'' step^2 / (2 (G - q')) (Taylor),
       // with q'' estimated by the secant of q' between the last evaluation of this face and this one (times 10 for
       // safety). Accepted when that is below 1e-11 (1 + T_s) (about 3e-9 K, the distance from the root at which the
@@ -324,12 +327,17 @@ NetworkSystem::FaceSolution NetworkSystem::solveFace(Index face, double time, do
       // (about 3 mK, so that a kink of q' inside the step cannot move the root far); otherwise Newton goes on as
       // before. Saves the second evaluation of the face's heats in most right-hand sides (95 % of the face solves
       // of the quadruped study; DEVELOPERS.md "Per-run CPU in sweeps, eighth round").
-      const double dT = evaluated - faceEvalTemperature_[face];
+      // From the second iteration on, the same test with q'' from the secant of q' between this iteration's
+      // evaluation and the last one, at the same time (the surroundings unchanged: at the first iteration the
+      // secant to the last solve's evaluation also carries the change of the surroundings since then).
+      const double dT = evaluated - (iteration == 0 ? faceEvalTemperature_[face] : lastEvaluated);
       if (std::isfinite(dT) && dT != 0.0) {
-        const double curvature = std::abs(dq - faceEvalSlope_[face]) / std::abs(dT);
+        const double curvature = std::abs(dq - (iteration == 0 ? faceEvalSlope_[face] : lastSlope)) / std::abs(dT);
         converged = 10.0 * curvature * step * step < 2e-11 * (1.0 + std::abs(Ts)) * std::abs(G - dq);
       }
     }
+    lastEvaluated = evaluated;
+    lastSlope = dq;
     if (converged) {
       // The heats at the solution to first order from this evaluation, instead of another evaluation there: the
       // error 1/2 q'' step^2 is below round-off for a converged step (see above); the slopes are those of this
