@@ -5,6 +5,7 @@
 #include <fstream>
 #include <functional>
 #include <limits>
+#include <memory>
 #include <optional>
 #include <set>
 #include <sstream>
@@ -260,6 +261,31 @@ std::vector<std::string> SweepPlan::keyOverrides(std::size_t run) const {
   return out;
 }
 
+//! The case as varied by the key overrides `keys` (before size factors), kept per thread: up to four, the oldest
+//! replaced first. A load that throws keeps nothing (the next run loads again and throws the same message).
+static const Case& variedCase(const SweepPlan& plan, const std::vector<std::string>& keys) {
+  struct Entry {
+    std::string text, path;
+    std::vector<std::string> keys;
+    std::shared_ptr<const Case> loaded;
+  };
+  thread_local std::vector<Entry> kept;
+  thread_local std::size_t next = 0;
+  for (const Entry& e : kept)
+    if (e.keys == keys && e.path == plan.casePath && e.text == plan.caseText) return *e.loaded;
+  auto loaded = std::make_shared<const Case>(loadCaseFromString(plan.caseText, plan.casePath, keys));
+  constexpr std::size_t kKept = 4;
+  Entry entry{plan.caseText, plan.casePath, keys, std::move(loaded)};
+  if (kept.size() < kKept) {
+    kept.push_back(std::move(entry));
+    return *kept.back().loaded;
+  }
+  Entry& slot = kept[next];
+  next = (next + 1) % kKept;
+  slot = std::move(entry);
+  return *slot.loaded;
+}
+
 std::vector<std::string> runOverrides(const SweepPlan& plan, std::size_t run, Case* runCase) {
   std::vector<std::string> out = plan.keyOverrides(run);
   bool anyScale = std::any_of(plan.axes.begin(), plan.axes.end(), [](const SweepAxis& a) { return a.scale; });
@@ -267,8 +293,12 @@ std::vector<std::string> runOverrides(const SweepPlan& plan, std::size_t run, Ca
     if (runCase) *runCase = loadCaseFromString(plan.caseText, plan.casePath, out);
     return out;
   }
-  // Size series act on the case as varied: each segment's factor is the product of the factors that reach it.
-  Case varied = loadCaseFromString(plan.caseText, plan.casePath, out);
+  // Size series act on the case as varied: each segment's factor is the product of the factors that reach it. The
+  // case as varied depends only on the case text and the key overrides, the same for every run of a size series
+  // (and for the runs of one row of a size series crossed with other axes): it is loaded once per thread and kept
+  // (the last few, by text, path and overrides), so a scaled run loads only its own case. Loads are deterministic
+  // (tests/test_sweep.cpp: every run's case equals a fresh load), so this is the same case.
+  const Case& varied = variedCase(plan, out);
   std::vector<std::size_t> v = plan.valueIndices(run);
   double bodyFactor = 1.0;
   std::vector<std::pair<std::string, double>> segmentFactors;
@@ -292,7 +322,7 @@ std::vector<std::string> runOverrides(const SweepPlan& plan, std::size_t run, Ca
   }
   if (runCase) {
     // A run whose factors are all 1 is the varied case itself: no second parse.
-    if (out.size() == unscaled) *runCase = std::move(varied);
+    if (out.size() == unscaled) *runCase = varied;
     else *runCase = loadCaseFromString(plan.caseText, plan.casePath, out);
   }
   return out;
