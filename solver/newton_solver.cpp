@@ -730,6 +730,17 @@ bool NewtonSolver::factor() {
   int* Ap = starts.data();
   int* Ai = rows.data();
   double* Ax = matrix_->value.data();
+  // A factorisation with a pivot search (KLU's klu_factor), and the tables of the by-rows refactorisation and solve
+  // for its pivot order.
+  auto factorWithPivoting = [&] {
+    k.byRows = false;
+    if (k.numeric) klu_free_numeric(&k.numeric, &k.common);
+    k.numeric = klu_factor(Ap, Ai, Ax, k.symbolic.get(), &k.common);
+    if (!k.numeric) return false;
+    ++factorizations_;
+    k.rowsFromFactors(Ap, Ai);
+    return true;
+  };
   if (fresh_ || !k.symbolic || !k.numeric) {
     k.symbolic.reset();
     const bool shareable = kluSize() <= kSharedAnalysisLimit;
@@ -739,12 +750,7 @@ bool NewtonSolver::factor() {
       if (!k.symbolic) return false;
       if (shareable) keepAnalysis(starts, rows, k.symbolic);
     }
-    k.byRows = false;
-    if (k.numeric) klu_free_numeric(&k.numeric, &k.common);
-    k.numeric = klu_factor(Ap, Ai, Ax, k.symbolic.get(), &k.common);
-    if (!k.numeric) return false;
-    ++factorizations_;
-    k.rowsFromFactors(Ap, Ai);
+    if (!factorWithPivoting()) return false;
     if (klu_flops(k.symbolic.get(), k.numeric, &k.common)) factorFlops_ = k.common.flops;
     fresh_ = false;
     return true;
@@ -757,14 +763,7 @@ bool NewtonSolver::factor() {
   const double threshold = std::pow(DBL_EPSILON, 2.0 / 3.0);
   if (k.common.rcond < threshold) {
     if (!klu_condest(Ap, Ax, k.symbolic.get(), k.numeric, &k.common)) return false;
-    if (k.common.condest > 1.0 / threshold) {
-      k.byRows = false;
-      klu_free_numeric(&k.numeric, &k.common);
-      k.numeric = klu_factor(Ap, Ai, Ax, k.symbolic.get(), &k.common);
-      if (!k.numeric) return false;
-      ++factorizations_;
-      k.rowsFromFactors(Ap, Ai);
-    }
+    if (k.common.condest > 1.0 / threshold && !factorWithPivoting()) return false;
   }
   return true;
 }
